@@ -1,0 +1,401 @@
+"""Reading and validating arm description files (TOML or JSON, one schema).
+
+The schema is documented in docs/arm-file.md. Every problem becomes an ``ArmFileError`` that
+names the file, the line when it can be found, the place (joint index and name, field), what
+was found and what was expected; an unknown key suggests the closest known one.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import math
+import re
+import tomllib
+from pathlib import Path
+
+import sympy as sp
+
+from .errors import ArmFileError
+from .exact import NotANumber, parse_exact, snap_radians
+from .model import ANGLE_UNITS, CONVENTIONS, JOINT_KINDS, LENGTH_UNITS, Arm, Joint
+from .rotations import from_axis_angles, from_quaternion, homogeneous
+
+CONVENTION_ALIASES = {"standard": "standard", "distal": "standard",
+                      "modified": "modified", "proximal": "modified"}
+TOP_KEYS = ("arm", "joint", "base", "tool")
+ARM_KEYS = ("name", "description", "convention", "length_unit", "angle_unit")
+JOINT_KEYS = ("name", "type", "a", "alpha", "d", "theta", "offset", "direction", "limits")
+FRAME_KEYS = ("translation", "rotation")
+ROTATION_KEYS = ("axes", "frame", "angles", "quaternion", "order", "matrix")
+QUATERNION_ORDERS = ("wxyz", "xyzw")
+UNIT_TOLERANCE = 1e-6  # how far from 1 a quaternion's norm (or a matrix's columns) may be
+
+NAME_PATTERN = re.compile(r"^[^\x00-\x1f\x7f]{1,64}$")
+
+
+def load_arm(path: str | Path) -> Arm:
+    """Read, validate and return the arm described in ``path`` (.toml or .json)."""
+    path = Path(path)
+    shown = str(path)
+    if not path.exists():
+        raise ArmFileError(shown, "", "file not found", "a path to an existing .toml or .json arm file")
+    if path.is_dir():
+        raise ArmFileError(shown, "", "is a directory", "an arm file (.toml or .json)")
+    raw = path.read_bytes()
+    suffix = path.suffix.lower()
+    if suffix not in (".toml", ".json"):
+        raise ArmFileError(shown, "", f"unknown file type '{path.suffix or '(none)'}'", "a .toml or .json file")
+    if not raw.strip():
+        raise ArmFileError(shown, "", "the file is empty", "an arm description (see docs/arm-file.md)")
+    if b"\x00" in raw:
+        raise ArmFileError(shown, "", "the file holds binary data (NUL bytes)", "a UTF-8 text file")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ArmFileError(shown, "", f"not valid UTF-8 text (byte {exc.start})", "a UTF-8 text file") from None
+    digest = hashlib.sha256(raw).hexdigest()
+    if suffix == ".toml":
+        data = _parse_toml(text, shown)
+        locate = TomlLocator(text)
+    else:
+        data = _parse_json(text, shown)
+        locate = JsonLocator(text)
+    return arm_from_data(data, shown, digest, locate)
+
+
+def _parse_toml(text: str, shown: str) -> dict:
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        message = str(exc)
+        match = re.search(r"\(at line (\d+), column (\d+)\)", message)
+        line = int(match.group(1)) if match else None
+        problem = re.sub(r"\s*\(at line \d+, column \d+\)", "", message)
+        if match:
+            problem += f" at column {match.group(2)}"
+        raise ArmFileError(shown, "", f"malformed TOML: {problem}", "valid TOML", line=line) from None
+
+
+def _parse_json(text: str, shown: str) -> dict:
+    try:
+        data = json.loads(text, parse_constant=_reject_json_constant)
+    except json.JSONDecodeError as exc:
+        raise ArmFileError(shown, "", f"malformed JSON: {exc.msg} at column {exc.colno}", "valid JSON",
+                           line=exc.lineno) from None
+    except ValueError as exc:
+        raise ArmFileError(shown, "", f"malformed JSON: {exc}", "finite numbers only") from None
+    if not isinstance(data, dict):
+        raise ArmFileError(shown, "", f"the top level is a JSON {type(data).__name__}", "a JSON object")
+    return data
+
+
+def _reject_json_constant(name: str):
+    raise ValueError(f"{name} is not a finite number")
+
+
+class TomlLocator:
+    """Best-effort line numbers for keys of a TOML file (tomllib gives lines only for syntax errors)."""
+
+    def __init__(self, text: str):
+        self.lines: dict[tuple, int] = {}
+        table: tuple = ()
+        counts: dict[str, int] = {}
+        for number, line in enumerate(text.splitlines(), 1):
+            stripped = line.strip()
+            header = re.match(r"^\[\[\s*([A-Za-z0-9_.\-]+)\s*\]\]", stripped)
+            if header:
+                name = header.group(1)
+                counts[name] = counts.get(name, 0) + 1
+                table = (name, counts[name] - 1)
+                self.lines.setdefault(table, number)
+                continue
+            header = re.match(r"^\[\s*([A-Za-z0-9_.\-]+)\s*\]", stripped)
+            if header:
+                parts = header.group(1).split(".")
+                if parts[0] in counts and len(parts) > 1:  # [joint.sub] after [[joint]]
+                    table = (parts[0], counts[parts[0]] - 1, *parts[1:])
+                else:
+                    table = tuple(parts)
+                self.lines.setdefault(table, number)
+                continue
+            key = re.match(r"^([A-Za-z0-9_\-]+|\"[^\"]*\")\s*=", stripped)
+            if key:
+                name = key.group(1).strip('"')
+                self.lines.setdefault(table + (name,), number)
+                for inner in re.findall(r"([A-Za-z0-9_\-]+)\s*=", stripped[key.end():]):
+                    self.lines.setdefault(table + (name, inner), number)
+
+    def __call__(self, path: tuple) -> int | None:
+        while path:
+            if path in self.lines:
+                return self.lines[path]
+            path = path[:-1]
+        return None
+
+
+class JsonLocator:
+    """Best-effort line numbers for JSON keys: the first line that shows the key after its parent."""
+
+    def __init__(self, text: str):
+        self.text_lines = text.splitlines()
+
+    def __call__(self, path: tuple) -> int | None:
+        start = 0
+        found = None
+        for part in path:
+            if isinstance(part, int):
+                hits = [i for i, l in enumerate(self.text_lines) if i >= start and "{" in l]
+                if part < len(hits):
+                    start = hits[part]
+                    found = start + 1
+                continue
+            pattern = re.compile(r'"%s"\s*:' % re.escape(str(part)))
+            for i in range(start, len(self.text_lines)):
+                if pattern.search(self.text_lines[i]):
+                    start, found = i, i + 1
+                    break
+            else:
+                return found
+        return found
+
+
+class _Reader:
+    """Validates one parsed document, raising ArmFileError with place and line."""
+
+    def __init__(self, path: str, locate):
+        self.path = path
+        self.locate = locate
+        self.notes: list[str] = []
+
+    def fail(self, where: str, place: tuple, problem: str, expected: str | None = None, hint: str | None = None):
+        raise ArmFileError(self.path, where, problem, expected, line=self.locate(place), hint=hint)
+
+    def check_keys(self, table: dict, known: tuple, where: str, place: tuple):
+        for key in table:
+            if key not in known:
+                close = difflib.get_close_matches(str(key), known, n=1, cutoff=0.5)
+                hint = f"did you mean '{close[0]}'?" if close else None
+                self.fail(where, place + (key,), f"unknown key '{key}'", "one of " + ", ".join(known), hint)
+
+    def table(self, parent: dict, key: str, where: str, place: tuple, required: bool) -> dict | None:
+        if key not in parent:
+            if required:
+                self.fail(where, place, f"missing table '{key}'", f"a [{key}] table")
+            return None
+        value = parent[key]
+        if not isinstance(value, dict):
+            self.fail(where, place + (key,), f"'{key}' is a {_kind(value)}", "a table of keys")
+        return value
+
+    def choice(self, table: dict, key: str, options, where: str, place: tuple, default=None, aliases=None):
+        if key not in table:
+            if default is not None:
+                return default
+            self.fail(where, place, f"missing field '{key}'", "one of " + ", ".join(options))
+        value = table[key]
+        if not isinstance(value, str):
+            self.fail(where, place + (key,), f"field '{key}' is a {_kind(value)} ({value!r})",
+                      "a string, one of " + ", ".join(options))
+        lookup = aliases or {o: o for o in options}
+        if value.lower() not in lookup:
+            close = difflib.get_close_matches(value.lower(), list(lookup), n=1, cutoff=0.5)
+            self.fail(where, place + (key,), f"unknown {key.replace('_', ' ')} '{value}'",
+                      "one of " + ", ".join(lookup), f"did you mean '{close[0]}'?" if close else None)
+        return lookup[value.lower()]
+
+    def number(self, table: dict, key: str, where: str, place: tuple, default=None) -> sp.Expr:
+        if key not in table:
+            if default is not None:
+                return default
+            self.fail(where, place, f"missing field '{key}'", "a number")
+        return self.value(table[key], f"field '{key}'", where, place + (key,))
+
+    def value(self, raw, what: str, where: str, place: tuple) -> sp.Expr:
+        try:
+            return parse_exact(raw)
+        except NotANumber as exc:
+            self.fail(where, place, f"{what}: {exc}",
+                      "a finite number, or a string such as \"pi/2\" using numbers, pi, + - * / and parentheses")
+
+    def vector(self, table: dict, key: str, size: int, where: str, place: tuple) -> list[sp.Expr]:
+        raw = table[key]
+        if not isinstance(raw, list) or len(raw) != size:
+            found = f"a list of {len(raw)}" if isinstance(raw, list) else f"a {_kind(raw)}"
+            self.fail(where, place + (key,), f"field '{key}' is {found}", f"a list of {size} numbers")
+        return [self.value(v, f"field '{key}' item {i + 1}", where, place + (key,)) for i, v in enumerate(raw)]
+
+
+def _kind(value) -> str:
+    return {bool: "boolean", int: "integer", float: "number", str: "string", list: "list",
+            dict: "table"}.get(type(value), type(value).__name__)
+
+
+def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=None) -> Arm:
+    """Validate an already parsed document (the dict a TOML or JSON file gives) into an Arm."""
+    reader = _Reader(path, locate or (lambda place: None))
+    reader.check_keys(data, TOP_KEYS, "top level", ())
+    arm_table = reader.table(data, "arm", "top level", (), required=True)
+    reader.check_keys(arm_table, ARM_KEYS, "[arm]", ("arm",))
+    name = _read_name(reader, arm_table, "[arm]", ("arm",), default=None)
+    description = arm_table.get("description", "")
+    if not isinstance(description, str):
+        reader.fail("[arm]", ("arm", "description"), f"field 'description' is a {_kind(description)}", "a string")
+    convention = reader.choice(arm_table, "convention", CONVENTIONS, "[arm]", ("arm",),
+                               aliases=CONVENTION_ALIASES)
+    length_unit = reader.choice(arm_table, "length_unit", LENGTH_UNITS, "[arm]", ("arm",))
+    angle_unit = reader.choice(arm_table, "angle_unit", ANGLE_UNITS, "[arm]", ("arm",))
+    angle_scale = sp.pi / 180 if angle_unit == "deg" else sp.Integer(1)
+
+    if "joint" not in data:
+        reader.fail("top level", (), "no joints: missing [[joint]] entries", "at least one [[joint]] table")
+    joint_list = data["joint"]
+    if not isinstance(joint_list, list):
+        reader.fail("top level", ("joint",), f"'joint' is a {_kind(joint_list)}",
+                    "an array of tables ([[joint]] in TOML, a list of objects in JSON)")
+    if not joint_list:
+        reader.fail("top level", ("joint",), "zero joints", "at least one joint")
+    joints = []
+    seen_names: dict[str, int] = {}
+    for i, raw in enumerate(joint_list):
+        place = ("joint", i)
+        if not isinstance(raw, dict):
+            reader.fail(f"joint {i + 1}", place, f"is a {_kind(raw)}", "a table of joint fields")
+        joint = _read_joint(reader, raw, i, place, angle_unit, angle_scale)
+        if joint.name in seen_names:
+            reader.fail(f"{joint.label}", place + ("name",),
+                        f"duplicate joint name '{joint.name}' (joint {seen_names[joint.name]} has it too)",
+                        "a name unique within the arm")
+        seen_names[joint.name] = joint.index
+        joints.append(joint)
+
+    base = _read_frame(reader, data, "base", angle_scale)
+    tool = _read_frame(reader, data, "tool", angle_scale)
+    return Arm(name=name, description=description, convention=convention, length_unit=length_unit,
+               angle_unit=angle_unit, joints=tuple(joints), base=base, tool=tool, source=path,
+               digest=digest, notes=tuple(reader.notes))
+
+
+def _read_name(reader: _Reader, table: dict, where: str, place: tuple, default: str | None) -> str:
+    if "name" not in table:
+        if default is None:
+            reader.fail(where, place, "missing field 'name'", "a non-empty string")
+        return default
+    value = table["name"]
+    if not isinstance(value, str) or not value.strip():
+        found = f"a {_kind(value)}" if not isinstance(value, str) else "an empty string"
+        reader.fail(where, place + ("name",), f"field 'name' is {found}", "a non-empty string")
+    if not NAME_PATTERN.match(value):
+        reader.fail(where, place + ("name",), f"field 'name' {value!r} holds control characters or is too long",
+                    "a printable name of at most 64 characters")
+    return value.strip()
+
+
+def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: str, angle_scale) -> Joint:
+    index = i + 1
+    name = _read_name(reader, raw, f"joint {index}", place, default=f"j{index}")
+    where = f"joint {index} '{name}'"
+    reader.check_keys(raw, JOINT_KEYS, where, place)
+    kind = reader.choice(raw, "type", JOINT_KINDS, where, place)
+
+    def angle(key: str, default=None):
+        value = reader.number(raw, key, where, place, default)
+        value = value * angle_scale
+        snapped = snap_radians(value) if angle_unit == "rad" else value
+        if snapped != value:
+            reader.notes.append(f"{where}: {key} = {float(value)!r} rad read as {snapped}")
+        return snapped
+
+    a = reader.number(raw, "a", where, place)
+    alpha = angle("alpha")
+    d = reader.number(raw, "d", where, place)
+    theta = angle("theta")
+    if kind == "revolute":
+        offset = angle("offset", sp.Integer(0))
+    else:
+        offset = reader.number(raw, "offset", where, place, sp.Integer(0))
+    direction = raw.get("direction", 1)
+    if isinstance(direction, bool) or direction not in (1, -1):
+        reader.fail(where, place + ("direction",), f"field 'direction' is {direction!r}", "1 or -1")
+    if "limits" in raw:
+        lower, upper = reader.vector(raw, "limits", 2, where, place)
+        scale = angle_scale if kind == "revolute" else 1
+        if lower >= upper:
+            reader.fail(where, place + ("limits",), f"lower limit {lower} is not below upper limit {upper}",
+                        "[lower, upper] with lower < upper")
+        limits = (float(lower * scale), float(upper * scale))
+    elif kind == "revolute":
+        limits = (-math.pi, math.pi)
+    else:
+        reader.fail(where, place, "missing field 'limits' (a prismatic joint has no natural range)",
+                    "[lower, upper] in the length unit")
+    return Joint(index=index, name=name, kind=kind, a=a, alpha=alpha, d=d, theta=theta, offset=offset,
+                 direction=int(direction), limits=limits)
+
+
+def _read_frame(reader: _Reader, data: dict, key: str, angle_scale) -> sp.ImmutableMatrix:
+    table = reader.table(data, key, "top level", (), required=False)
+    if table is None:
+        return sp.ImmutableMatrix(sp.eye(4))
+    where = f"[{key}]"
+    place = (key,)
+    reader.check_keys(table, FRAME_KEYS, where, place)
+    translation = reader.vector(table, "translation", 3, where, place) if "translation" in table else [0, 0, 0]
+    rotation = sp.eye(3)
+    if "rotation" in table:
+        rotation = _read_rotation(reader, table["rotation"], f"[{key}.rotation]", place + ("rotation",),
+                                  angle_scale)
+    return sp.ImmutableMatrix(homogeneous(rotation, translation))
+
+
+def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale) -> sp.Matrix:
+    if not isinstance(table, dict):
+        reader.fail(where, place, f"'rotation' is a {_kind(table)}",
+                    "a table with angles+axes+frame, or quaternion+order, or matrix")
+    reader.check_keys(table, ROTATION_KEYS, where, place)
+    forms = [k for k in ("angles", "quaternion", "matrix") if k in table]
+    if len(forms) != 1:
+        found = "none of them" if not forms else " and ".join(forms)
+        reader.fail(where, place, f"found {found}", "exactly one of 'angles', 'quaternion' or 'matrix'")
+    form = forms[0]
+    if form == "angles":
+        for needed in ("axes", "frame"):
+            if needed not in table:
+                reader.fail(where, place, f"missing field '{needed}' (the angles' convention must be stated)",
+                            "axes = three of x, y, z such as \"xyz\" or \"zyz\"; frame = \"fixed\" or \"moving\"")
+        axes = table["axes"]
+        if not isinstance(axes, str) or not re.fullmatch(r"[xyz]{3}", axes.lower()) or \
+                axes[0].lower() == axes[1].lower() or axes[1].lower() == axes[2].lower():
+            reader.fail(where, place + ("axes",), f"field 'axes' is {axes!r}",
+                        "three letters of x, y, z with no two neighbours equal, such as \"xyz\" or \"zyz\"")
+        frame = reader.choice(table, "frame", ("fixed", "moving"), where, place)
+        stray = [k for k in ("order",) if k in table]
+        if stray:
+            reader.fail(where, place + (stray[0],), f"'{stray[0]}' belongs to a quaternion", "no 'order' with angles")
+        angles = [v * angle_scale for v in reader.vector(table, "angles", 3, where, place)]
+        return from_axis_angles(axes.lower(), angles, frame)
+    if form == "quaternion":
+        if "order" not in table:
+            reader.fail(where, place, "missing field 'order' (the component order must be stated)",
+                        "order = \"wxyz\" or \"xyzw\" (w is the scalar part)")
+        order = reader.choice(table, "order", QUATERNION_ORDERS, where, place)
+        values = reader.vector(table, "quaternion", 4, where, place)
+        w, x, y, z = values if order == "wxyz" else (values[3], values[0], values[1], values[2])
+        norm = math.sqrt(float(w * w + x * x + y * y + z * z))
+        if abs(norm - 1.0) > UNIT_TOLERANCE:
+            reader.fail(where, place + ("quaternion",), f"quaternion has norm {norm:.9g}",
+                        f"a unit quaternion (norm within {UNIT_TOLERANCE:g} of 1)")
+        return from_quaternion(w, x, y, z)
+    rows = table["matrix"]
+    if not isinstance(rows, list) or len(rows) != 3 or not all(isinstance(r, list) and len(r) == 3 for r in rows):
+        reader.fail(where, place + ("matrix",), "field 'matrix' is not 3 rows of 3 numbers", "[[r11, r12, r13], [...], [...]]")
+    matrix = sp.Matrix([[reader.value(v, f"matrix row {r + 1}", where, place + ("matrix",)) for v in row]
+                        for r, row in enumerate(rows)])
+    numeric = sp.matrix2numpy(matrix, dtype=float)
+    import numpy as np
+    error = np.abs(numeric.T @ numeric - np.eye(3)).max()
+    if error > UNIT_TOLERANCE or np.linalg.det(numeric) < 0:
+        reader.fail(where, place + ("matrix",), f"matrix is not a rotation (|R^T R - I| = {error:.3g}, "
+                    f"det = {np.linalg.det(numeric):.6g})", "an orthonormal matrix with determinant +1")
+    return matrix

@@ -1,0 +1,1 @@
+"""Back-ends: each renders the derivation IR into one language through templates/."""

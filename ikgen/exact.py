@@ -1,0 +1,83 @@
+"""Exact numbers from arm files.
+
+Values the user writes are turned into exact sympy numbers so that the symbolic model keeps
+structure: ``alpha = 90`` (degrees) becomes ``pi/2`` and its cosine is exactly 0, never 6.1e-17.
+A decimal literal is read as the exact decimal it shows (``0.1`` is 1/10). Strings may hold a
+small arithmetic expression with ``pi`` (``"pi/2"``, ``"-3*pi/4"``, ``"1/3"``); nothing else is
+evaluated, so an arm file can never run code.
+"""
+
+from __future__ import annotations
+
+import ast
+import math
+
+import sympy as sp
+
+_ALLOWED_BINOPS = {ast.Add: lambda a, b: a + b, ast.Sub: lambda a, b: a - b,
+                   ast.Mult: lambda a, b: a * b, ast.Div: lambda a, b: a / b}
+
+
+class NotANumber(ValueError):
+    """The value is not a finite number or an allowed expression; the message says why."""
+
+
+def exact_from_float(value: float) -> sp.Rational:
+    """The exact decimal that the shortest repr of ``value`` shows (0.1 -> 1/10)."""
+    if not math.isfinite(value):
+        raise NotANumber(f"{value!r} is not finite")
+    return sp.Rational(repr(float(value)))
+
+
+def parse_exact(value) -> sp.Expr:
+    """An exact sympy number from an int, a float or an expression string.
+
+    Raises NotANumber for anything else (booleans, NaN, infinities, other names or operators).
+    """
+    if isinstance(value, bool):
+        raise NotANumber(f"{str(value).lower()} is a boolean, not a number")
+    if isinstance(value, int):
+        return sp.Integer(value)
+    if isinstance(value, float):
+        return exact_from_float(value)
+    if isinstance(value, str):
+        text = value.strip()
+        if not text:
+            raise NotANumber("the string is empty")
+        try:
+            tree = ast.parse(text, mode="eval")
+        except SyntaxError:
+            raise NotANumber(f"{value!r} is not an arithmetic expression") from None
+        return _evaluate(tree.body, value)
+    raise NotANumber(f"{type(value).__name__} {value!r} is not a number")
+
+
+def _evaluate(node: ast.AST, source: str) -> sp.Expr:
+    if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
+        return parse_exact(node.value)
+    if isinstance(node, ast.Name) and node.id == "pi":
+        return sp.pi
+    if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+        inner = _evaluate(node.operand, source)
+        return -inner if isinstance(node.op, ast.USub) else inner
+    if isinstance(node, ast.BinOp) and type(node.op) in _ALLOWED_BINOPS:
+        left, right = _evaluate(node.left, source), _evaluate(node.right, source)
+        if isinstance(node.op, ast.Div) and right == 0:
+            raise NotANumber(f"{source!r} divides by zero")
+        return _ALLOWED_BINOPS[type(node.op)](left, right)
+    raise NotANumber(f"{source!r} may only use numbers, pi, + - * / and parentheses")
+
+
+def snap_radians(value: sp.Expr) -> sp.Expr:
+    """Replace a radian value that is a double's rendering of k*pi/12 by the exact multiple.
+
+    A user who writes ``1.5707963267948966`` rad means pi/2; the two differ by less than one unit
+    in the last place. Any other value is returned unchanged.
+    """
+    if value.has(sp.pi) or not value.is_Rational:
+        return value
+    x = float(value)
+    k = round(x / (math.pi / 12))
+    if k != 0 and abs(x - k * math.pi / 12) <= 4 * math.ulp(abs(x)):
+        return sp.Rational(k, 12) * sp.pi
+    return value

@@ -1,0 +1,1 @@
+"""Kinematic families: each module recognises one arm structure and emits the derivation IR."""

@@ -1,0 +1,99 @@
+"""The validated arm: joints with exact DH parameters, conventions, units, base and tool.
+
+Internal units: lengths stay in the file's length unit (m or mm); angles are radians. A joint's
+*reading* is what the user's controller shows (degrees or radians for a revolute joint, the
+length unit for a prismatic one). The DH joint variable follows from it by
+
+    revolute:   theta_i = theta + offset + direction * reading
+    prismatic:  d_i     = d     + offset + direction * reading
+
+so ``theta``/``d`` are the table's constant parts, ``offset`` is the zero offset between the
+reading and the DH variable, and ``direction`` (+1 or -1) says whether they turn the same way.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import sympy as sp
+
+CONVENTIONS = ("standard", "modified")
+LENGTH_UNITS = ("m", "mm")
+ANGLE_UNITS = ("deg", "rad")
+JOINT_KINDS = ("revolute", "prismatic")
+
+
+@dataclass(frozen=True)
+class Joint:
+    index: int                  # 1-based position in the chain
+    name: str
+    kind: str                   # "revolute" or "prismatic"
+    a: sp.Expr                  # length unit
+    alpha: sp.Expr              # radians, exact
+    d: sp.Expr                  # length unit
+    theta: sp.Expr              # radians, exact
+    offset: sp.Expr             # radians (revolute) or length unit (prismatic)
+    direction: int              # +1 or -1
+    limits: tuple[float, float]  # internal units: radians or length unit
+
+    @property
+    def revolute(self) -> bool:
+        return self.kind == "revolute"
+
+    @property
+    def label(self) -> str:
+        return f"joint {self.index} '{self.name}'"
+
+
+@dataclass(frozen=True)
+class Arm:
+    name: str
+    description: str
+    convention: str             # "standard" (distal) or "modified" (proximal)
+    length_unit: str
+    angle_unit: str
+    joints: tuple[Joint, ...]
+    base: sp.ImmutableMatrix    # 4x4 exact: world <- DH frame 0
+    tool: sp.ImmutableMatrix    # 4x4 exact: flange (last DH frame) <- tool point
+    source: str = ""            # path the arm was read from
+    digest: str = ""            # sha256 of the source bytes
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def dof(self) -> int:
+        return len(self.joints)
+
+    @property
+    def angle_scale(self) -> float:
+        """Radians per user angle unit."""
+        return math.pi / 180.0 if self.angle_unit == "deg" else 1.0
+
+    @property
+    def exact_angle_scale(self) -> sp.Expr:
+        return sp.pi / 180 if self.angle_unit == "deg" else sp.Integer(1)
+
+    def reading_scales(self) -> np.ndarray:
+        """Per joint: internal units per reading unit (rad/deg for revolute joints, 1 otherwise)."""
+        return np.array([self.angle_scale if j.revolute else 1.0 for j in self.joints])
+
+    def readings_to_internal(self, readings) -> np.ndarray:
+        return np.asarray(readings, dtype=float) * self.reading_scales()
+
+    def internal_to_readings(self, values) -> np.ndarray:
+        return np.asarray(values, dtype=float) / self.reading_scales()
+
+    def reading_unit(self, joint: Joint) -> str:
+        return self.angle_unit if joint.revolute else self.length_unit
+
+    def limits_in_readings(self) -> np.ndarray:
+        """(dof, 2) array of limits in the user's reading units."""
+        return np.array([j.limits for j in self.joints]) / self.reading_scales()[:, None]
+
+    def reach_scale(self) -> float:
+        """A length that sets the arm's scale: the sum of |a| and |d| over the chain, plus base and tool offsets."""
+        total = sum(abs(float(j.a)) + abs(float(j.d)) + (abs(float(j.offset)) if not j.revolute else 0.0)
+                    for j in self.joints)
+        total += float(sp.Matrix(self.base[:3, 3]).norm()) + float(sp.Matrix(self.tool[:3, 3]).norm())
+        return total if total > 0 else 1.0

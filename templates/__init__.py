@@ -1,0 +1,1 @@
+"""Jinja2 templates of ikgen's back-ends (shipped as package data as ``ikgen.templates``)."""
