@@ -19,9 +19,13 @@ import sympy as sp
 from .model import Arm, Joint
 
 
-def link_matrix(convention: str, a, alpha, d, theta, cos=sp.cos, sin=sp.sin) -> sp.Matrix:
+def link_matrix(convention: str, a, alpha, d, theta) -> sp.Matrix:
     """The 4x4 DH link transform, exact (sympy) for the given convention."""
-    ct, st, ca, sa = cos(theta), sin(theta), cos(alpha), sin(alpha)
+    return link_from_cos_sin(convention, a, sp.cos(alpha), sp.sin(alpha), d, sp.cos(theta), sp.sin(theta))
+
+
+def link_from_cos_sin(convention: str, a, ca, sa, d, ct, st) -> sp.Matrix:
+    """The DH link transform from the cosines and sines of alpha and theta (symbols allowed)."""
     if convention == "standard":
         return sp.Matrix([[ct, -st * ca, st * sa, a * ct],
                           [st, ct * ca, -ct * sa, a * st],

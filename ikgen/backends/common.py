@@ -1,0 +1,225 @@
+"""What every back-end shares: the code plan (the IR lowered to numbered blocks with numbers
+substituted and common subexpressions eliminated), the jinja environment, and sanitising of
+user text that reaches generated source.
+
+Lowering is language-neutral; each back-end then prints the plan's sympy expressions with its
+own printer and renders its own templates. Determinism: CSE runs with canonical ordering and
+per-block temporary names, constants are printed from exact values, and nothing depends on time.
+"""
+
+from __future__ import annotations
+
+import importlib.resources
+import re
+import unicodedata
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import jinja2
+import sympy as sp
+
+from .. import __version__
+from ..ir import (GUARD_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
+                  cos_symbol, sin_symbol)
+from ..model import Arm
+
+GENERATOR = f"ikgen {__version__} (sympy {sp.__version__})"
+
+
+# ------------------------------------------------------------------------------ templates
+
+def template_directory() -> Path:
+    """templates/ of the source tree when running from a checkout, else the installed package data."""
+    source_tree = Path(__file__).resolve().parents[2] / "templates"
+    if (source_tree / "__init__.py").is_file():
+        return source_tree
+    return Path(str(importlib.resources.files("ikgen.templates")))
+
+
+def environment() -> jinja2.Environment:
+    return jinja2.Environment(loader=jinja2.FileSystemLoader(str(template_directory())),
+                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                              keep_trailing_newline=True, autoescape=False)
+
+
+# ------------------------------------------------------------------------------ sanitising
+
+def identifier(text: str, fallback: str = "arm") -> str:
+    """A C/Python identifier from user text: ASCII letters, digits and _; deterministic."""
+    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
+    name = re.sub(r"[^A-Za-z0-9_]", "_", ascii_text)
+    name = re.sub(r"_+", "_", name).strip("_").lower()
+    if not name:
+        name = fallback
+    if name[0].isdigit():
+        name = "_" + name
+    return name
+
+
+def comment_text(text: str) -> str:
+    """User text made safe inside a comment or docstring of any back-end: one line, printable
+    ASCII, no comment terminators, no quotes that could close a docstring, no backslashes."""
+    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
+    flat = re.sub(r"[\x00-\x1f\x7f]+", " ", ascii_text)
+    flat = flat.replace("*/", "* /").replace("/*", "/ *").replace("\\", "/")
+    flat = flat.replace('"""', "'''").replace('"', "'")
+    flat = re.sub(r"\s+", " ", flat).strip()
+    return flat.lstrip("#").strip()
+
+
+# ------------------------------------------------------------------------------ the plan
+
+@dataclass
+class Assignment:
+    target: sp.Symbol
+    expr: sp.Expr
+
+
+@dataclass
+class FormPlan:
+    temps: list[Assignment]
+    det: sp.Expr
+    cos_num: sp.Expr
+    sin_num: sp.Expr
+    threshold: float
+    constant_det: bool
+
+
+@dataclass
+class Block:
+    kind: str                    # "compute", "cossin", "pair"
+    depth: int                   # number of enclosing branch loops
+    comment: str
+    joint: int = 0
+    temps: list[Assignment] = field(default_factory=list)
+    # cossin
+    a: sp.Expr | None = None
+    b: sp.Expr | None = None
+    c: sp.Expr | None = None
+    norm: sp.Expr | None = None
+    radicand: sp.Expr | None = None
+    threshold: float | None = None  # None: a^2+b^2 is a non-zero constant, never singular
+    # pair
+    forms: list[FormPlan] = field(default_factory=list)
+    free_possible: bool = True
+
+
+@dataclass
+class OutputPlan:
+    joint: int
+    zero: float                  # radians, reduced into (-pi, pi]
+    factor: float                # reading per radian times direction
+    direction: int
+    scale: float                 # radians per reading unit
+
+
+@dataclass
+class LabelPlan:
+    name: str
+    positive: str
+    negative: str
+
+
+@dataclass
+class Plan:
+    blocks: list[Block]
+    final_temps: list[Assignment]
+    label_measures: list[sp.Expr]
+    labels: list[LabelPlan]
+    outputs: list[OutputPlan]
+    pose_symbols: tuple
+    max_solutions: int
+    depth: int                   # depth of the innermost block (where solutions are emitted)
+    branch_joints: list[int]
+    guard_tolerance: float = GUARD_TOLERANCE
+
+
+def numeric(expr: sp.Expr, parameters: dict) -> sp.Expr:
+    """Substitute the DH values and turn every non-integer constant into a 17-digit Float."""
+    return floats(sp.sympify(expr).xreplace(parameters))
+
+
+def floats(expr: sp.Expr) -> sp.Expr:
+    """Non-integer numeric subtrees (sqrt(145), 1/3, pi) become Floats; exponents stay integers."""
+    if expr.is_Integer or expr.is_Float:
+        return expr
+    if expr.is_number:
+        return sp.Float(expr.evalf(20), 17)
+    if expr.is_Pow:
+        return sp.Pow(floats(expr.base), expr.exp, evaluate=False) if expr.exp.is_Integer else \
+            expr.func(floats(expr.base), floats(expr.exp))
+    if expr.args:
+        return expr.func(*[floats(a) for a in expr.args])
+    return expr
+
+
+def eliminate(exprs: list[sp.Expr], prefix: str) -> tuple[list[Assignment], list[sp.Expr]]:
+    """Common-subexpression elimination with stable, block-scoped temporary names."""
+    replacements, reduced = sp.cse(exprs, symbols=sp.numbered_symbols(prefix, real=True), order="canonical")
+    return [Assignment(t, e) for t, e in replacements], list(reduced)
+
+
+def lower(derivation: Derivation) -> Plan:
+    """The IR as a code plan: numbers substituted, CSE per block, nesting depth per block."""
+    params = derivation.parameters
+    blocks: list[Block] = []
+    depth = 0
+    branch_joints = []
+    for number, step in enumerate(derivation.steps, 1):
+        prefix = f"t{number}_"
+        if isinstance(step, Compute):
+            temps, reduced = eliminate([numeric(e, params) for e in step.exprs], prefix)
+            temps += [Assignment(n, e) for n, e in zip(step.names, reduced)]
+            blocks.append(Block("compute", depth, step.purpose, temps=temps))
+        elif isinstance(step, CosSinEquation):
+            exprs = [numeric(e, params) for e in (step.a, step.b, step.c, step.radicand)]
+            norm_value = numeric(step.norm, params)
+            temps, (a, b, c, radicand) = eliminate(exprs, prefix)
+            constant = norm_value.is_number
+            blocks.append(Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
+                                temps=temps, a=a, b=b, c=c, norm=norm_value, radicand=radicand,
+                                threshold=None if constant else step.singular.threshold))
+            depth += 1
+            branch_joints.append(step.joint)
+        elif isinstance(step, LinearPair):
+            forms = []
+            for k, form in enumerate(step.forms):
+                exprs = [numeric(e, params) for e in (form.det, form.cos_num, form.sin_num)]
+                temps, (det, cos_num, sin_num) = eliminate(exprs, f"{prefix}{k}_")
+                constant_det = det.is_number and det != 0
+                forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det))
+                if constant_det:
+                    break          # a constant determinant never vanishes: later forms are unreachable
+            blocks.append(Block("pair", depth, f"joint {step.joint} from a linear pair", joint=step.joint,
+                                forms=forms, free_possible=not forms[-1].constant_det))
+    label_exprs = [numeric(label.measure, params) for label in derivation.labels]
+    final_temps, label_measures = eliminate(label_exprs, "tl_")
+    outputs = []
+    for out in derivation.outputs:
+        zero = float(out.zero)
+        zero = (zero + 3.141592653589793) % 6.283185307179586 - 3.141592653589793
+        scale = float(out.scale)
+        outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale))
+    labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
+    return Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
+                derivation.max_solutions, depth, branch_joints)
+
+
+def symbol_names(joint: int) -> tuple[str, str, str]:
+    return str(cos_symbol(joint)), str(sin_symbol(joint)), str(angle_symbol(joint))
+
+
+def header_lines(arm: Arm, derivation: Derivation) -> list[str]:
+    """Facts every generated file states at its top (sanitised, no dates)."""
+    units = f"lengths in {arm.length_unit}, joint angles in {arm.angle_unit}"
+    convention = {"standard": "standard (distal) DH", "modified": "modified (proximal) DH"}[arm.convention]
+    lines = [f"Arm: {comment_text(arm.name)}"]
+    if arm.description:
+        lines.append(f"Description: {comment_text(arm.description)}")
+    lines += [f"Convention: {convention}; {units}",
+              f"Family: {derivation.family}; at most {derivation.max_solutions} solutions",
+              f"Joints: " + ", ".join(f"{j.index} {comment_text(j.name)}" for j in arm.joints),
+              f"Generated by {GENERATOR} from an arm file with sha256 {arm.digest[:16]}",
+              "Pose input: the tool frame in the world frame, a 4x4 row-major homogeneous matrix "
+              f"(position in {arm.length_unit}); rotation must be orthonormal."]
+    return lines

@@ -1,0 +1,81 @@
+"""Python back-end: one standalone module per arm that imports only ``math``.
+
+The printer is sympy's Python code printer with three changes for speed and exactness: small
+integer powers become products (``x*x`` is faster than ``x**2`` in CPython), floats print as
+their shortest round-trip repr, and math functions are imported by name.
+"""
+
+from __future__ import annotations
+
+import sympy as sp
+from sympy.printing.pycode import PythonCodePrinter
+
+from ..ir import Derivation
+from ..kinematics import link_from_cos_sin
+from ..model import Arm
+from . import common
+
+
+class SolverPythonPrinter(PythonCodePrinter):
+    def __init__(self):
+        super().__init__({"fully_qualified_modules": False, "standard": "python3"})
+
+    def _print_Float(self, expr):
+        return repr(float(expr))
+
+    def _print_Pow(self, expr, rational=False):
+        base, exp = expr.base, expr.exp
+        if exp.is_Integer and 2 <= int(exp) <= 4:
+            factor = self.parenthesize(base, sp.printing.precedence.PRECEDENCE["Mul"] + 1)
+            return "*".join([factor] * int(exp))
+        if exp == -1:
+            return "1.0/" + self.parenthesize(base, sp.printing.precedence.PRECEDENCE["Atom"] - 1)
+        if exp == sp.Rational(1, 2):
+            return f"sqrt({self._print(base)})"
+        return super()._print_Pow(expr, rational)
+
+
+def printer() -> SolverPythonPrinter:
+    return SolverPythonPrinter()
+
+
+def forward_plan(arm: Arm) -> tuple[list[common.Assignment], list[sp.Expr]]:
+    """Tool pose entries (row-major 3x4) as expressions in c1, s1, ... with CSE."""
+    result = sp.Matrix(arm.base)
+    for joint in arm.joints:
+        ct, st = sp.Symbol(f"c{joint.index}", real=True), sp.Symbol(f"s{joint.index}", real=True)
+        result = result * link_from_cos_sin(arm.convention, joint.a, sp.cos(joint.alpha), sp.sin(joint.alpha),
+                                            joint.d, ct, st)
+    result = result * sp.Matrix(arm.tool)
+    entries = [common.floats(result[i, k]) for i in range(3) for k in range(4)]
+    return common.eliminate(entries, "f")
+
+
+def render(arm: Arm, derivation: Derivation) -> str:
+    plan = common.lower(derivation)
+    p = printer()
+    fwd_temps, fwd_entries = forward_plan(arm)
+    template = common.environment().get_template("python_solver.py.j2")
+    return template.render(
+        arm=arm, plan=plan, p=p.doprint, header=common.header_lines(arm, derivation),
+        module_name=common.identifier(arm.name), comment=common.comment_text,
+        joint_names=[common.comment_text(j.name) for j in arm.joints],
+        forward_temps=fwd_temps, forward_entries=fwd_entries,
+        limits=[list(l) for l in arm.limits_in_readings()],
+        joint_zero=[float(j.theta + j.offset) for j in arm.joints],
+        joint_direction=[j.direction for j in arm.joints],
+        joint_scale=[arm.angle_scale for _ in arm.joints],
+        generator=common.GENERATOR, singular_terms=singular_terms(plan))
+
+
+def singular_terms(plan: common.Plan) -> list[str]:
+    """Conditions (in generated names) under which a solution is flagged singular."""
+    terms = []
+    for block in plan.blocks:
+        if block.kind == "cossin":
+            if block.threshold is not None:
+                terms.append(f"free{block.joint}")
+            terms.append(f"root{block.joint} == 0.0")
+        elif block.kind == "pair" and block.free_possible:
+            terms.append(f"free{block.joint}")
+    return terms

@@ -1,0 +1,174 @@
+"""The intermediate representation (IR) of a derivation: the closed-form solution as data.
+
+A ``Derivation`` is an ordered list of steps that every back-end (Python, C, report) walks in
+the same order. Each step computes named quantities from the pose inputs and from earlier
+steps, with sympy expressions in the symbols of the DH table (``a_2``, ``d_4`` ...):
+
+- ``Compute``: named intermediates (``name = expression``).
+- ``CosSinEquation``: one joint angle from ``a cos(th) + b sin(th) = c``; two solutions, a branch
+  point, a domain guard on the radicand, and a singular condition when ``a^2 + b^2`` vanishes.
+- ``LinearPair``: one joint angle from two equations linear in ``cos(th)`` and ``sin(th)``;
+  one solution; ordered alternatives when the first pair's determinant vanishes; the joint is
+  free (singular) when all do.
+- ``Label``: a geometric measure whose sign names a configuration (shoulder front/back ...).
+
+Every joint angle step yields the symbols ``c<j>``, ``s<j>`` (cosine and sine, carried so that
+later steps never call cos/sin again) and ``th<j>`` (the DH angle). Outputs turn DH angles into
+the user's joint readings. ``str(derivation)`` prints the whole thing for debugging.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import sympy as sp
+
+# Relative tolerances shared by every back-end (documented in docs/derivation.md):
+GUARD_TOLERANCE = 1e-9      # a radicand down to -2e-9 * (a^2+b^2) is clamped to 0; below, unreachable
+SINGULAR_TOLERANCE = 1e-18  # a determinant (or a^2+b^2) below 1e-18 * its typical size: singular
+
+
+def cos_symbol(joint: int) -> sp.Symbol:
+    return sp.Symbol(f"c{joint}", real=True)
+
+
+def sin_symbol(joint: int) -> sp.Symbol:
+    return sp.Symbol(f"s{joint}", real=True)
+
+
+def angle_symbol(joint: int) -> sp.Symbol:
+    return sp.Symbol(f"th{joint}", real=True)
+
+
+@dataclass(frozen=True)
+class Compute:
+    """Named intermediates: ``names[i] = exprs[i]``, in order."""
+    names: tuple[sp.Symbol, ...]
+    exprs: tuple[sp.Expr, ...]
+    purpose: str
+
+    def describe(self) -> list[str]:
+        return [f"  {n} = {e}" for n, e in zip(self.names, self.exprs)]
+
+
+@dataclass(frozen=True)
+class BranchPoint:
+    """A two-way choice at a square root: which sign, and what the two choices mean."""
+    name: str                   # "shoulder", "elbow", "wrist" or "branch<j>"
+    sign: sp.Symbol             # +1 or -1 in the formulas
+    meaning: str
+
+
+@dataclass(frozen=True)
+class Singular:
+    """A singular condition: ``measure`` below ``threshold`` means the joint is free."""
+    measure: sp.Expr
+    threshold: float
+    description: str
+    rule: str
+
+
+@dataclass(frozen=True)
+class CosSinEquation:
+    """``a cos(th_j) + b sin(th_j) = c``: th_j = atan2(b c + s a r, a c - s b r) with r = sqrt(radicand)."""
+    joint: int
+    a: sp.Expr
+    b: sp.Expr
+    c: sp.Expr
+    radicand: sp.Expr           # equals a^2 + b^2 - c^2 (in a form chosen for precision)
+    norm: sp.Expr               # a^2 + b^2 (simplified)
+    branch: BranchPoint
+    guard_meaning: str
+    singular: Singular
+    source: str                 # the equation it came from, for the report
+
+    def describe(self) -> list[str]:
+        return [f"  solve {self.a}*c{self.joint} + {self.b}*s{self.joint} = {self.c}   [{self.source}]",
+                f"    radicand {self.radicand} >= 0 (clamped within {GUARD_TOLERANCE:g} * norm)",
+                f"    branch '{self.branch.name}' sign {self.branch.sign}: {self.branch.meaning}",
+                f"    singular when {self.singular.measure} < {self.singular.threshold:.3g}: {self.singular.rule}"]
+
+
+@dataclass(frozen=True)
+class PairForm:
+    """One way to get (cos, sin) from two linear equations: c = cos_num/det, s = sin_num/det."""
+    cos_num: sp.Expr
+    sin_num: sp.Expr
+    det: sp.Expr
+    det_nonnegative: bool       # det >= 0 everywhere: atan2(sin_num, cos_num) needs no sign fix
+    threshold: float            # |det| below it: this form is singular, try the next
+    source: str
+
+
+@dataclass(frozen=True)
+class LinearPair:
+    joint: int
+    forms: tuple[PairForm, ...]
+    singular: Singular
+
+    def describe(self) -> list[str]:
+        lines = [f"  solve th{self.joint} from a linear pair in (c{self.joint}, s{self.joint}):"]
+        for k, f in enumerate(self.forms):
+            lines.append(f"    form {k + 1} [{f.source}]: c = ({f.cos_num})/det, s = ({f.sin_num})/det, "
+                         f"det = {f.det} (singular below {f.threshold:.3g})")
+        lines.append(f"    all singular: {self.singular.rule}")
+        return lines
+
+
+@dataclass(frozen=True)
+class Label:
+    """A configuration label: ``positive`` when ``measure >= 0``, else ``negative``."""
+    name: str                   # "shoulder", "elbow", "wrist"
+    measure: sp.Expr
+    positive: str
+    negative: str
+    meaning: str
+
+
+@dataclass(frozen=True)
+class JointOutput:
+    """reading = wrap(th_j - zero) * direction / scale, with zero = theta + offset (radians)."""
+    joint: int
+    name: str
+    zero: sp.Expr
+    direction: int
+    scale: sp.Expr              # radians per reading unit
+
+
+Step = Compute | CosSinEquation | LinearPair
+
+
+@dataclass
+class Derivation:
+    arm_name: str
+    family: str
+    analysis: list[str]                     # the structure analysis, in words
+    pose_symbols: tuple[sp.Symbol, ...]     # r11 r12 r13 px r21 ... pz (row-major 3x4)
+    parameters: dict[sp.Symbol, sp.Expr]    # DH symbols -> exact values
+    steps: list[Step]
+    labels: list[Label]
+    outputs: list[JointOutput]
+    max_solutions: int
+    length_scale: float
+    notes: list[str] = field(default_factory=list)
+
+    def branch_points(self) -> list[BranchPoint]:
+        return [s.branch for s in self.steps if isinstance(s, CosSinEquation)]
+
+    def solved_joints(self) -> list[int]:
+        return [s.joint for s in self.steps if isinstance(s, (CosSinEquation, LinearPair))]
+
+    def __str__(self) -> str:
+        lines = [f"derivation for '{self.arm_name}' ({self.family}); at most {self.max_solutions} solutions"]
+        lines += [f"# {line}" for line in self.analysis]
+        lines.append("parameters: " + ", ".join(f"{k} = {v}" for k, v in self.parameters.items()))
+        for number, step in enumerate(self.steps, 1):
+            title = step.purpose if isinstance(step, Compute) else f"joint {step.joint}"
+            lines.append(f"step {number}: {title}")
+            lines += step.describe()
+        for label in self.labels:
+            lines.append(f"label {label.name}: {label.positive} if {label.measure} >= 0 else {label.negative}")
+        for out in self.outputs:
+            lines.append(f"output joint {out.joint} '{out.name}': wrap(th{out.joint} - ({out.zero})) "
+                         f"* {out.direction} / {out.scale}")
+        return "\n".join(lines)
