@@ -149,6 +149,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--frames", action="store_true", help="also print every DH frame's origin and z axis")
     p.set_defaults(run=cmd_forward)
 
+    from .commands import add_generation_commands
+    add_generation_commands(sub)
     return parser
 
 

@@ -1,0 +1,108 @@
+"""The generation subcommands of ``ikgen``: generate (with --check) and verify."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+
+from .armfile import load_arm
+from .errors import VerificationError
+from .generate import build, load_module, stale, write
+from .terminal import err, fmt, out, table
+from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, Verification, verify
+
+
+def cmd_generate(args) -> int:
+    arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
+    builds = []
+    for arm in arms:
+        started = time.perf_counter()
+        result = build(arm)
+        builds.append((result, time.perf_counter() - started))
+    if args.check:
+        changed = [path for result, _ in builds for path in stale(result.files, args.out)]
+        for path in changed:
+            err(f"stale: {args.out}/{path}")
+        if changed:
+            err(f"ikgen: {len(changed)} generated file(s) differ from a fresh generation; run without --check")
+            return 1
+        out(f"up to date: {sum(len(r.files) for r, _ in builds)} file(s) in {args.out}")
+        return 0
+    for result, seconds in builds:
+        written = write(result.files, args.out)
+        out(f"{result.arm.name}: {result.derivation.family}, at most {result.derivation.max_solutions} "
+            f"solutions, derived in {seconds:.2f} s")
+        for path in written:
+            out(f"  wrote {path}")
+    return 0
+
+
+def print_verification(report: Verification, unit: str) -> None:
+    out(f"verification of '{report.arm}': {report.samples} samples (seed {report.seed}), {report.seconds:.1f} s")
+    counts = ", ".join(f"{k}: {v}" for k, v in sorted(report.counts.items()))
+    rows = [
+        ["completeness", f"{report.complete}/{report.checked} ({100 * report.completeness:.2f} %)",
+         "100 %", f"samples farther than {SINGULAR_DISTANCE:g} from the singular set"],
+        ["worst position error", f"{report.worst_position:.3g} {unit}", f"{report.position_tolerance:.3g} {unit}",
+         "FK of every returned solution vs the pose"],
+        ["worst rotation error", f"{report.worst_rotation:.3g} rad", f"{ROUND_TRIP_TOLERANCE:g} rad", ""],
+        ["solution counts", counts, "", "number of solutions: number of samples"],
+        ["unreachable poses", f"{report.unreachable_ok}/{report.unreachable_tested} empty", "all", ""],
+    ]
+    for kind, tested in report.singular_tested.items():
+        ok = report.singular_ok.get(kind, 0)
+        rows.append([f"singular: {kind}", f"{ok}/{tested} reproduced" if tested else "none in limits", "all", ""])
+    rows.append(["worst error at singular poses",
+                 f"{report.worst_singular_position:.3g} {unit}, {report.worst_singular_rotation:.3g} rad", "", ""])
+    out(table(["check", "result", "threshold", "note"], rows, "llll"))
+    out("PASSED" if report.passed else "FAILED")
+    for failure in report.failures:
+        out(f"  - {failure}")
+
+
+def cmd_verify(args) -> int:
+    arm = load_arm(args.arm)
+    result = build(arm)
+    if args.out:
+        for path in write(result.files, args.out):
+            out(f"wrote {path}")
+    module = load_module(result.files[result.python_path], result.folder + "_ik")
+    report = verify(arm, module, samples=args.samples, seed=args.seed, progress=not args.quiet and sys.stderr.isatty())
+    print_verification(report, arm.length_unit)
+    if not report.passed:
+        raise VerificationError(f"the generated solver for '{arm.name}' failed verification")
+    return 0
+
+
+def positive(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{value} is not at least 1")
+    return value
+
+
+def add_generation_commands(sub) -> None:
+    p = sub.add_parser("generate", help="derive the closed-form IK and write the solver files",
+                       description="Derive the closed-form inverse kinematics of each arm and write its "
+                                   "generated files to OUT/<arm>/. Nothing is written unless every arm "
+                                   "derives; with --check nothing is written at all.")
+    p.add_argument("arms", nargs="+", metavar="ARM", help="arm description file(s) (.toml or .json)")
+    p.add_argument("-o", "--out", default="generated", help="output folder (default: generated)")
+    p.add_argument("--check", action="store_true",
+                   help="write nothing; exit 1 if the files in OUT differ from a fresh generation")
+    p.set_defaults(run=cmd_generate)
+
+    p = sub.add_parser("verify", help="generate a solver and check it against the forward kinematics",
+                       description="Generate the solver in memory and check it on random joint vectors within "
+                                   "the limits: completeness, round-trip error, solution counts, unreachable "
+                                   "and singular poses. Exits 4 when a threshold fails.")
+    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("-n", "--samples", type=positive, default=10000, help="random samples (default 10000)")
+    p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    p.add_argument("-o", "--out", default=None, help="also write the generated files to this folder")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress display")
+    p.set_defaults(run=cmd_verify)

@@ -1,0 +1,82 @@
+"""From an arm to its generated files: derive once, render every back-end, write atomically.
+
+``build(arm)`` returns {relative path: text} without touching the disk; ``write(outputs, dir)``
+writes them all or nothing (each file goes to a temporary name first, then all are renamed);
+``stale(outputs, dir)`` lists the files that differ from what is on disk (the ``--check`` mode).
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import os
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from .backends import common, python as python_backend
+from .families import derive_arm
+from .ir import Derivation
+from .model import Arm
+
+
+@dataclass
+class Build:
+    arm: Arm
+    derivation: Derivation
+    files: dict[str, str]           # path relative to the output folder -> text
+
+    @property
+    def folder(self) -> str:
+        return common.identifier(self.arm.name)
+
+    @property
+    def python_path(self) -> str:
+        return f"{self.folder}/{self.folder}_ik.py"
+
+
+def build(arm: Arm) -> Build:
+    derivation = derive_arm(arm)
+    folder = common.identifier(arm.name)
+    files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
+             f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
+    return Build(arm, derivation, files)
+
+
+def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
+    """Write every file or none: temporary files first, renamed into place only when all exist."""
+    out_dir = Path(out_dir)
+    staged: list[tuple[Path, Path]] = []
+    try:
+        for relative, text in sorted(files.items()):
+            target = out_dir / relative
+            target.parent.mkdir(parents=True, exist_ok=True)
+            handle, temporary = tempfile.mkstemp(prefix=".ikgen-", dir=target.parent)
+            with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
+                stream.write(text)
+            staged.append((Path(temporary), target))
+    except BaseException:
+        for temporary, _ in staged:
+            temporary.unlink(missing_ok=True)
+        raise
+    for temporary, target in staged:
+        os.replace(temporary, target)
+    return [target for _, target in staged]
+
+
+def stale(files: dict[str, str], out_dir: str | Path) -> list[str]:
+    out_dir = Path(out_dir)
+    changed = []
+    for relative, text in sorted(files.items()):
+        path = out_dir / relative
+        if not path.is_file() or path.read_text(encoding="utf-8") != text:
+            changed.append(relative)
+    return changed
+
+
+def load_module(source: str, name: str):
+    """Import generated Python source as a module without writing it anywhere."""
+    spec = importlib.util.spec_from_loader(name, loader=None)
+    module = importlib.util.module_from_spec(spec)
+    exec(compile(source, f"<generated {name}>", "exec"), module.__dict__)
+    return module

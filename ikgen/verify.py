@@ -1,0 +1,281 @@
+"""Numerical verification of a generated solver against the generic forward kinematics.
+
+Checks, on seeded random joint vectors within the limits:
+- completeness: the source joint vector is among the solutions (angles compared modulo 2 pi),
+  on every sample farther than ``SINGULAR_DISTANCE`` from the singular set (the smallest
+  singular value of the Jacobian, position rows divided by the arm's length scale);
+- round trip: the FK of every returned solution reproduces the pose (position and rotation);
+- the distribution of solution counts;
+- unreachable poses (far outside the workspace) give an empty list;
+- exactly singular poses (found by bisection on a configuration measure that changes sign there)
+  give finite solutions that reproduce the pose.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .kinematics import NumericChain
+from .model import Arm
+from .rotations import rotation_angle_between
+
+SINGULAR_DISTANCE = 1e-6
+ROUND_TRIP_TOLERANCE = 1e-9     # relative to the length scale (position) and in radians (rotation)
+MATCH_TOLERANCE = 1e-6          # radians (or length-scale units) between source and solution
+
+
+@dataclass
+class Verification:
+    arm: str
+    samples: int
+    seed: int
+    checked: int = 0                    # samples farther than SINGULAR_DISTANCE from the singular set
+    complete: int = 0                   # of those, samples whose source joints were found
+    worst_position: float = 0.0         # length unit
+    worst_rotation: float = 0.0         # radians
+    position_tolerance: float = 0.0
+    counts: dict = field(default_factory=dict)
+    unreachable_tested: int = 0
+    unreachable_ok: int = 0
+    singular_tested: dict = field(default_factory=dict)   # kind -> tested
+    singular_ok: dict = field(default_factory=dict)       # kind -> finite and reproducing
+    worst_singular_position: float = 0.0
+    worst_singular_rotation: float = 0.0
+    failures: list = field(default_factory=list)
+    seconds: float = 0.0
+
+    @property
+    def completeness(self) -> float:
+        return self.complete / self.checked if self.checked else 1.0
+
+    @property
+    def passed(self) -> bool:
+        return not self.failures
+
+
+def jacobian_distance(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    """Smallest singular value of the Jacobian (position rows / length scale) per joint vector."""
+    frames = chain.frames(readings)
+    tool = frames[:, -1] @ chain.tool
+    point = tool[:, :3, 3]
+    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
+    z = chosen[:, :, :3, 2]
+    o = chosen[:, :, :3, 3]
+    scale = chain.arm.reach_scale()
+    linear = np.where(chain.revolute[None, :, None], np.cross(z, point[:, None, :] - o) / scale, z)
+    angular = np.where(chain.revolute[None, :, None], z, 0.0)
+    jac = np.concatenate([linear, angular], axis=2)          # (N, dof, 6): columns as rows
+    return np.linalg.svd(jac, compute_uv=False)[:, -1]
+
+
+def angle_gap(a: np.ndarray, b: np.ndarray, arm: Arm) -> np.ndarray:
+    """Per-joint distance between readings, modulo a full turn for revolute joints (internal units)."""
+    delta = (np.asarray(a) - np.asarray(b)) * arm.reading_scales()
+    revolute = np.array([j.revolute for j in arm.joints])
+    wrapped = (delta + math.pi) % (2 * math.pi) - math.pi
+    return np.abs(np.where(revolute, wrapped, delta / arm.reach_scale()))
+
+
+def random_readings(arm: Arm, count: int, rng) -> np.ndarray:
+    limits = arm.limits_in_readings()
+    return limits[:, 0] + rng.random((count, arm.dof)) * (limits[:, 1] - limits[:, 0])
+
+
+def check_round_trip(chain: NumericChain, poses: np.ndarray, solutions: list) -> tuple[np.ndarray, np.ndarray]:
+    """(position errors, rotation errors) of FK(solution) against the pose, for a flat list."""
+    if not solutions:
+        return np.zeros(0), np.zeros(0)
+    joints = np.array([s for s in solutions])
+    achieved = chain.poses(joints)
+    pos = np.linalg.norm(achieved[:, :3, 3] - poses[:, :3, 3], axis=1)
+    rot = rotation_angle_between(achieved[:, :3, :3], poses[:, :3, :3])
+    return pos, rot
+
+
+def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: bool = False) -> Verification:
+    """Verify the solver ``module`` (with ``inverse(pose, current)``) for ``arm``."""
+    started = time.perf_counter()
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(seed)
+    scale = arm.reach_scale()
+    result = Verification(arm=arm.name, samples=samples, seed=seed,
+                          position_tolerance=ROUND_TRIP_TOLERANCE * scale)
+    readings = random_readings(arm, samples, rng)
+    poses = chain.poses(readings)
+    distance = jacobian_distance(chain, readings)
+    all_joints, all_poses = [], []
+    last_report = time.perf_counter()
+    missing_examples = []
+    for index in range(samples):
+        solutions = module.inverse(poses[index])
+        result.counts[len(solutions)] = result.counts.get(len(solutions), 0) + 1
+        joints = [list(s[0]) for s in solutions]
+        all_joints += joints
+        all_poses += [poses[index]] * len(joints)
+        if distance[index] > SINGULAR_DISTANCE:
+            result.checked += 1
+            found = bool(joints) and bool(
+                (angle_gap(np.array(joints), readings[index], arm).max(axis=1) < MATCH_TOLERANCE).any())
+            result.complete += found
+            if not found and len(missing_examples) < 3:
+                missing_examples.append(readings[index])
+        if progress and time.perf_counter() - last_report > 0.5:
+            sys.stderr.write(f"\r  verifying {index + 1}/{samples} samples")
+            sys.stderr.flush()
+            last_report = time.perf_counter()
+    if progress:
+        sys.stderr.write("\r" + " " * 60 + "\r")
+    pos, rot = check_round_trip(chain, np.array(all_poses) if all_poses else np.zeros((0, 4, 4)), all_joints)
+    if len(pos):
+        result.worst_position = float(pos.max())
+        result.worst_rotation = float(rot.max())
+    if result.complete < result.checked:
+        shown = ", ".join("[" + " ".join(f"{v:.6g}" for v in m) + "]" for m in missing_examples)
+        result.failures.append(f"completeness {result.complete}/{result.checked}: source joints not among the "
+                               f"solutions, e.g. {shown}")
+    if result.worst_position > result.position_tolerance:
+        result.failures.append(f"round-trip position error {result.worst_position:.3g} {arm.length_unit} exceeds "
+                               f"{result.position_tolerance:.3g}")
+    if result.worst_rotation > ROUND_TRIP_TOLERANCE:
+        result.failures.append(f"round-trip rotation error {result.worst_rotation:.3g} rad exceeds "
+                               f"{ROUND_TRIP_TOLERANCE:g}")
+    check_unreachable(arm, chain, module, rng, result)
+    check_singular(arm, chain, module, rng, result)
+    result.seconds = time.perf_counter() - started
+    return result
+
+
+def check_unreachable(arm: Arm, chain: NumericChain, module, rng, result: Verification, count: int = 200):
+    """Poses moved three length scales away from a reachable one must give no solution."""
+    readings = random_readings(arm, count, rng)
+    poses = chain.poses(readings)
+    directions = rng.normal(size=(count, 3))
+    directions /= np.linalg.norm(directions, axis=1)[:, None]
+    poses[:, :3, 3] += 3.0 * arm.reach_scale() * directions
+    bad = 0
+    for pose in poses:
+        solutions = module.inverse(pose)
+        bad += bool(solutions)
+    result.unreachable_tested = count
+    result.unreachable_ok = count - bad
+    if bad:
+        result.failures.append(f"{bad} of {count} unreachable poses returned solutions")
+    for pose in (np.full((4, 4), np.nan), np.where(np.eye(4) > 0, np.inf, 0.0)):
+        if module.inverse(pose):
+            result.failures.append("a pose with NaN or infinity returned solutions")
+
+
+# ----------------------------------------------------------------------- singular poses
+
+def wrist_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    origins, _ = None, None
+    frames = chain.frames(readings)
+    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
+    z = chosen[:, :, :3, 2]
+    return np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 4]), z[:, 5])
+
+
+def shoulder_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    """Signed distance of the wrist centre from axis 1, along frame 1's x axis."""
+    frames = chain.frames(readings)
+    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
+    wrist = chosen[:, 3, :3, 3]                               # on axis 4 ...
+    z4 = chosen[:, 3, :3, 2]
+    z5 = chosen[:, 4, :3, 2]
+    # ... at its meeting point with axis 5
+    o4, o5 = chosen[:, 3, :3, 3], chosen[:, 4, :3, 3]
+    b = np.einsum("ni,ni->n", z4, z5)
+    w0 = o4 - o5
+    d, e = np.einsum("ni,ni->n", z4, w0), np.einsum("ni,ni->n", z5, w0)
+    t = (b * e - d) / (1 - b * b)
+    wrist = o4 + t[:, None] * z4
+    axis_point = chosen[:, 0, :3, 3]
+    x1 = frames[:, 1, :3, 0]
+    return np.einsum("ni,ni->n", wrist - axis_point, x1)
+
+
+def elbow_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    """Signed distance of the wrist centre from the fully stretched (or folded) elbow: the
+    sine of the angle at the elbow between the upper arm and the forearm, times lengths."""
+    frames = chain.frames(readings)
+    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
+    z2 = chosen[:, 1, :3, 2]
+    shoulder, elbow = chosen[:, 1, :3, 3], chosen[:, 2, :3, 3]
+    o4, o5 = chosen[:, 3, :3, 3], chosen[:, 4, :3, 3]
+    z4, z5 = chosen[:, 3, :3, 2], chosen[:, 4, :3, 2]
+    b = np.einsum("ni,ni->n", z4, z5)
+    w0 = o4 - o5
+    d, e = np.einsum("ni,ni->n", z4, w0), np.einsum("ni,ni->n", z5, w0)
+    t = (b * e - d) / (1 - b * b)
+    wrist = o4 + t[:, None] * z4
+    upper = elbow - shoulder
+    fore = wrist - elbow
+    return np.einsum("ni,ni->n", np.cross(upper, fore), z2)
+
+
+SINGULAR_KINDS = (("wrist axes 4 and 6 aligned", wrist_measure, 4),
+                  ("wrist centre on axis 1", shoulder_measure, 1),
+                  ("elbow fully stretched or folded", elbow_measure, 2))
+
+
+def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None:
+    """Readings equal to ``base`` but for ``joint`` (0-based), where ``measure`` is exactly 0."""
+    lo_limit, hi_limit = chain.arm.limits_in_readings()[joint]
+    grid = np.linspace(lo_limit, hi_limit, 721)
+    trial = np.repeat(base[None, :], len(grid), axis=0)
+    trial[:, joint] = grid
+    values = measure(chain, trial)
+    changes = np.nonzero(np.sign(values[:-1]) * np.sign(values[1:]) < 0)[0]
+    if len(changes) == 0:
+        return None
+    lo, hi = grid[changes[0]], grid[changes[0] + 1]
+    f_lo = values[changes[0]]
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        point = base.copy()
+        point[joint] = mid
+        f_mid = measure(chain, point[None, :])[0]
+        if f_mid == 0 or hi - lo < 1e-15 * max(1.0, abs(mid)):
+            break
+        if np.sign(f_mid) == np.sign(f_lo):
+            lo, f_lo = mid, f_mid
+        else:
+            hi = mid
+    point = base.copy()
+    point[joint] = 0.5 * (lo + hi)
+    return point
+
+
+def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verification, per_kind: int = 20):
+    for kind, measure, joint in SINGULAR_KINDS:
+        tested = ok = 0
+        for _ in range(per_kind * 3):
+            if tested >= per_kind:
+                break
+            base = random_readings(arm, 1, rng)[0]
+            point = find_root(chain, measure, base, joint)
+            if point is None:
+                continue
+            tested += 1
+            pose = chain.pose(point)
+            solutions = module.inverse(pose, list(point))
+            joints = [list(s[0]) for s in solutions]
+            if not joints or not np.all(np.isfinite(joints)):
+                continue
+            pos, rot = check_round_trip(chain, np.array([pose] * len(joints)), joints)
+            # At a singular pose the elbow's double root and the kept joint can cost accuracy:
+            # allow 1e3 times the regular round-trip tolerance.
+            result.worst_singular_position = max(result.worst_singular_position, float(pos.max()))
+            result.worst_singular_rotation = max(result.worst_singular_rotation, float(rot.max()))
+            if pos.max() <= 1e3 * result.position_tolerance and rot.max() <= 1e3 * ROUND_TRIP_TOLERANCE:
+                ok += 1
+        result.singular_tested[kind] = tested
+        result.singular_ok[kind] = ok
+        if ok < tested:
+            result.failures.append(f"singular poses ({kind}): {tested - ok} of {tested} gave no finite solution "
+                                   "reproducing the pose")
