@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import re
 import sys
 
 import numpy as np
@@ -148,6 +149,10 @@ def build_parser() -> argparse.ArgumentParser:
                    help="one reading per joint, in the arm's units (spaces or commas between them)")
     p.add_argument("--frames", action="store_true", help="also print every DH frame's origin and z axis")
     p.set_defaults(run=cmd_forward)
+    # argparse takes a word that starts with '-' and is not a plain decimal ("-5", "-0.5") for an
+    # option, so readings such as "-1e-3" or "-30,15,40" were refused. This parser has no option
+    # that looks like a number: every word "-<digit>..." or "-.<digit>..." is a value.
+    p._negative_number_matcher = re.compile(r"^-\.?\d")
 
     from .commands import add_generation_commands
     add_generation_commands(sub)

@@ -43,22 +43,31 @@ def trig_pairs(joints) -> list[sp.Symbol]:
 
 
 def reduce_trig(expr: sp.Expr, joints) -> sp.Expr:
-    """Normal form modulo c_j^2 + s_j^2 = 1: every c_j^2 becomes 1 - s_j^2."""
+    """Normal form modulo c_j^2 + s_j^2 = 1: every c_j^2 becomes 1 - s_j^2.
+
+    Works term by term on the expanded sum; only terms with a squared cosine are rewritten (and
+    re-expanded), which keeps this fast on the large expressions of the position equations.
+    """
+    cosines = {cos_symbol(j): sin_symbol(j) for j in joints}
     expr = sp.expand(expr)
-    gens = trig_pairs(joints)
-    present = [g for g in gens if expr.has(g)]
-    if not present:
+    if not any(expr.has(c) for c in cosines):
         return expr
-    for j in joints:
-        c, s = cos_symbol(j), sin_symbol(j)
-        if not expr.has(c):
+    kept, rewritten = [], []
+    for term in sp.Add.make_args(expr):
+        powers = term.as_powers_dict()
+        if not any(c in powers and powers[c].is_Integer and powers[c] >= 2 for c in cosines):
+            kept.append(term)
             continue
-        poly = sp.Poly(expr, c)
-        result = sp.Integer(0)
-        for (power,), coeff in poly.terms():
-            result += coeff * c ** (power % 2) * (1 - s ** 2) ** (power // 2)
-        expr = sp.expand(result)
-    return expr
+        factor = sp.Integer(1)
+        for c, s in cosines.items():
+            power = powers.get(c, 0)
+            if power and power.is_Integer and power >= 2:
+                factor *= (1 - s ** 2) ** (int(power) // 2)
+                term = term / c ** (int(power) - int(power) % 2)
+        rewritten.append(sp.expand(term * factor))
+    if not rewritten:
+        return expr
+    return sp.Add(*kept, *rewritten)
 
 
 def joints_in(expr: sp.Expr, candidates) -> frozenset[int]:
@@ -218,25 +227,29 @@ class GreedySolver:
     def _pair_forms(self, candidates: list[Linear], joint: int) -> list[PairForm]:
         scored = []
         for first, second in itertools.combinations(candidates, 2):
-            # Numeric test first (cheap); symbolic work only for the pairs that survive.
+            # Numeric tests first (cheap); symbolic work only for the pairs that are kept.
             det_values = [a1 * b2 - a2 * b1 for a1, b1, a2, b2 in zip(
                 self.samples.values(first.a), self.samples.values(first.b),
                 self.samples.values(second.a), self.samples.values(second.b))]
             scale = self.samples.magnitude(first.a) * self.samples.magnitude(second.b) + \
                 self.samples.magnitude(second.a) * self.samples.magnitude(first.b)
-            if max(abs(v) for v in det_values) <= ZERO_TOLERANCE * max(scale, 1e-300):
+            largest = max(abs(v) for v in det_values)
+            if largest <= ZERO_TOLERANCE * max(scale, 1e-300):
                 continue
-            det = self.reduce(first.a * second.b - second.a * first.b)
-            same_group = first.equation.group == second.equation.group
             # A determinant that changes sign has zeros that need not be singular poses of the arm;
             # one that keeps its sign (a sum of squares) vanishes only where the joint is undetermined.
-            scored.append(((self.samples.changes_sign(det), not same_group, sp.count_ops(det),
+            changes_sign = min(det_values) < -1e-9 * largest and max(det_values) > 1e-9 * largest
+            same_group = first.equation.group == second.equation.group
+            raw = first.a * second.b - second.a * first.b
+            variables = len(raw.free_symbols - set(self.constant_symbols))
+            scored.append(((changes_sign, not same_group, variables, sp.count_ops(raw),
                             first.equation.source, second.equation.source),
-                           first, second, det, det_values))
+                           first, second, det_values))
         scored.sort(key=lambda item: item[0])
         kept = []
         seen_dets = []
-        for _, first, second, det, det_values in scored:
+        for _, first, second, det_values in scored:
+            det = self.reduce(first.a * second.b - second.a * first.b)
             # One form per distinct determinant, so the alternatives cover different singular sets.
             if any(sp.expand(det - d) == 0 or sp.expand(det + d) == 0 for d in seen_dets):
                 continue

@@ -69,6 +69,25 @@ class Singular:
 
 
 @dataclass(frozen=True)
+class Mirror:
+    """The second branch of a CosSinEquation obtained without solving again.
+
+    When ``b = 0`` the two roots are (c, s) and (c, -s): th' = -th; when ``a = 0`` they are
+    (c, s) and (-c, s): th' = pi - th. If every later step then maps its (cos, sin) to itself
+    (``parity`` +1: same angle) or to its negative (-1: angle + pi), the second solution follows
+    from the first with no atan2 at all (the wrist flip of an orthogonal wrist is the usual case).
+    """
+    kind: str                                   # "negate_sin" or "negate_cos"
+    parities: tuple[tuple[int, int], ...]       # (joint, +1 or -1) for the joints solved after it
+    label_signs: tuple[int, ...]                # per label: +1 same label, -1 the other one
+
+    def describe(self) -> str:
+        first = "th' = -th" if self.kind == "negate_sin" else "th' = pi - th"
+        rest = ", ".join(f"th{j}' = th{j}" + (" + pi" if p < 0 else "") for j, p in self.parities)
+        return f"{first}; {rest}"
+
+
+@dataclass(frozen=True)
 class CosSinEquation:
     """``a cos(th_j) + b sin(th_j) = c``: th_j = atan2(b c + s a r, a c - s b r) with r = sqrt(radicand)."""
     joint: int
@@ -81,12 +100,17 @@ class CosSinEquation:
     guard_meaning: str
     singular: Singular
     source: str                 # the equation it came from, for the report
+    mirror: "Mirror | None" = None
 
     def describe(self) -> list[str]:
-        return [f"  solve {self.a}*c{self.joint} + {self.b}*s{self.joint} = {self.c}   [{self.source}]",
-                f"    radicand {self.radicand} >= 0 (clamped within {GUARD_TOLERANCE:g} * norm)",
-                f"    branch '{self.branch.name}' sign {self.branch.sign}: {self.branch.meaning}",
-                f"    singular when {self.singular.measure} < {self.singular.threshold:.3g}: {self.singular.rule}"]
+        lines = [f"  solve {self.a}*c{self.joint} + {self.b}*s{self.joint} = {self.c}   [{self.source}]",
+                 f"    radicand {self.radicand} >= 0 (clamped within {GUARD_TOLERANCE:g} * norm)",
+                 f"    branch '{self.branch.name}' sign {self.branch.sign}: {self.branch.meaning}",
+                 (f"    singular when {self.singular.measure} < {self.singular.threshold:.3g}: {self.singular.rule}"
+                  if self.singular.threshold > 0 else f"    never singular: {self.norm} is a non-zero constant")]
+        if self.mirror is not None:
+            lines.append(f"    second branch by symmetry: {self.mirror.describe()}")
+        return lines
 
 
 @dataclass(frozen=True)

@@ -219,7 +219,7 @@ def elbow_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
 
 
 SINGULAR_KINDS = (("wrist axes 4 and 6 aligned", wrist_measure, 4),
-                  ("wrist centre on axis 1", shoulder_measure, 1),
+                  ("wrist centre over axis 1 (front/back boundary)", shoulder_measure, 1),
                   ("elbow fully stretched or folded", elbow_measure, 2))
 
 

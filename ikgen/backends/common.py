@@ -102,6 +102,7 @@ class Block:
     # pair
     forms: list[FormPlan] = field(default_factory=list)
     free_possible: bool = True
+    mirrored: bool = False       # cossin: the second root is emitted by symmetry, no loop
 
 
 @dataclass
@@ -121,6 +122,14 @@ class LabelPlan:
 
 
 @dataclass
+class MirrorPlan:
+    joint: int
+    kind: str                    # "negate_sin" or "negate_cos"
+    parities: dict               # joint -> +1 (same angle) or -1 (angle + pi)
+    label_signs: list[int]
+
+
+@dataclass
 class Plan:
     blocks: list[Block]
     final_temps: list[Assignment]
@@ -131,7 +140,28 @@ class Plan:
     max_solutions: int
     depth: int                   # depth of the innermost block (where solutions are emitted)
     branch_joints: list[int]
+    mirror: MirrorPlan | None = None
     guard_tolerance: float = GUARD_TOLERANCE
+
+    @property
+    def bounded_joints(self) -> set[int]:
+        """Joints whose DH angle is always an atan2 result in [-pi, pi] (never a caller's value)."""
+        out = set()
+        for block in self.blocks:
+            if block.kind == "cossin" and block.threshold is None:
+                out.add(block.joint)
+            elif block.kind == "pair" and not block.free_possible:
+                out.add(block.joint)
+        return out
+
+    def mirrored_angle(self, joint: int) -> str:
+        """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
+        m = self.mirror
+        if joint == m.joint:
+            return f"-th{joint}" if m.kind == "negate_sin" else f"_PI - th{joint}"
+        if m.parities.get(joint, 1) < 0:
+            return f"th{joint} + _PI"
+        return f"th{joint}"
 
 
 def numeric(expr: sp.Expr, parameters: dict) -> sp.Expr:
@@ -165,6 +195,7 @@ def lower(derivation: Derivation) -> Plan:
     blocks: list[Block] = []
     depth = 0
     branch_joints = []
+    mirror = None
     for number, step in enumerate(derivation.steps, 1):
         prefix = f"t{number}_"
         if isinstance(step, Compute):
@@ -178,9 +209,14 @@ def lower(derivation: Derivation) -> Plan:
             constant = norm_value.is_number
             blocks.append(Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
                                 temps=temps, a=a, b=b, c=c, norm=norm_value, radicand=radicand,
-                                threshold=None if constant else step.singular.threshold))
-            depth += 1
+                                threshold=None if constant else step.singular.threshold,
+                                mirrored=step.mirror is not None))
             branch_joints.append(step.joint)
+            if step.mirror is not None:
+                mirror = MirrorPlan(step.joint, step.mirror.kind, dict(step.mirror.parities),
+                                    list(step.mirror.label_signs))
+            else:
+                depth += 1
         elif isinstance(step, LinearPair):
             forms = []
             for k, form in enumerate(step.forms):
@@ -202,7 +238,7 @@ def lower(derivation: Derivation) -> Plan:
         outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale))
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
     return Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
-                derivation.max_solutions, depth, branch_joints)
+                derivation.max_solutions, depth, branch_joints, mirror)
 
 
 def symbol_names(joint: int) -> tuple[str, str, str]:

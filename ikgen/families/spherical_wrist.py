@@ -190,6 +190,7 @@ class Builder:
         steps += wrist_steps
 
         labels = self.labels(w_names, c3)
+        steps = attach_mirror(steps, labels)
         outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale)
                    for j in arm.joints]
         branch_count = sum(1 for s in steps if hasattr(s, "branch"))
@@ -325,6 +326,64 @@ def unit_column_radicand(m: sp.Matrix, c: sp.Expr, norm: sp.Expr):
                 others = [m[r, k] for r in range(3) if r != i]
                 return others[0] ** 2 + others[1] ** 2
     return None
+
+
+def attach_mirror(steps: list, labels: list[Label]) -> list:
+    """Give the last branch point a Mirror when its second root follows by symmetry (see ir.Mirror)."""
+    import dataclasses
+
+    from ..equations import reduce_trig
+    from ..ir import CosSinEquation, LinearPair, Mirror
+    positions = [i for i, s in enumerate(steps) if isinstance(s, CosSinEquation)]
+    if not positions:
+        return steps
+    index = positions[-1]
+    step = steps[index]
+    j = step.joint
+    if step.b == 0:
+        kind, mapping = "negate_sin", {sin_symbol(j): -sin_symbol(j)}
+    elif step.a == 0:
+        kind, mapping = "negate_cos", {cos_symbol(j): -cos_symbol(j)}
+    else:
+        return steps
+    joints = range(1, 7)
+
+    def same(x, y):
+        return reduce_trig(sp.expand(x - y), joints) == 0
+
+    parities = []
+    for later in steps[index + 1:]:
+        if not isinstance(later, LinearPair):
+            continue
+        parity = None
+        for form in later.forms:
+            det, cn, sn = (e.xreplace(mapping) for e in (form.det, form.cos_num, form.sin_num))
+            # (cn'/det', sn'/det') against (cn/det, sn/det): equal (+1) or opposite (-1)?
+            for candidate in (1, -1):
+                if same(cn * form.det, candidate * form.cos_num * det) and \
+                        same(sn * form.det, candidate * form.sin_num * det):
+                    break
+            else:
+                return steps
+            if parity not in (None, candidate):
+                return steps
+            parity = candidate
+        parities.append((later.joint, parity))
+        k = later.joint
+        if parity < 0:
+            mapping = {**mapping, cos_symbol(k): -cos_symbol(k), sin_symbol(k): -sin_symbol(k)}
+    signs = []
+    for label in labels:
+        mirrored = label.measure.xreplace(mapping)
+        if same(mirrored, label.measure):
+            signs.append(1)
+        elif same(mirrored, -label.measure):
+            signs.append(-1)
+        else:
+            return steps
+    steps = list(steps)
+    steps[index] = dataclasses.replace(step, mirror=Mirror(kind, tuple(parities), tuple(signs)))
+    return steps
 
 
 def derive(arm: Arm) -> Derivation:
