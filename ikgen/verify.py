@@ -177,7 +177,7 @@ def wrist_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
     frames = chain.frames(readings)
     chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
     z = chosen[:, :, :3, 2]
-    return np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 4]), z[:, 5])
+    return np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 5]), z[:, 4])
 
 
 def shoulder_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:

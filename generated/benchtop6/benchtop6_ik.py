@@ -343,7 +343,7 @@ def inverse(pose, current=None):
 
             lm0 = tl_0 + tl_1
             lm1 = 57200*c1*c2*wx + 13000*c1*s2*wx + 57200*c2*s1*wy + 6500*c2*wz - 1430000*c2 + 13000*s1*s2*wy - 520*s2*tl_0*tl_1 + 260*s2*tl_2*tl_5 - 162500*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy
-            lm2 = -s5
+            lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966

@@ -343,7 +343,7 @@ def inverse(pose, current=None):
 
             lm0 = tl_0 + tl_1
             lm1 = 640*s2*tl_0*tl_1 + tl_0*tl_2 - tl_0*tl_5 + tl_1*tl_2 - tl_1*tl_5 + tl_3*tl_6*wy*wy - tl_4*tl_6 + tl_4
-            lm2 = -s5
+            lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - 1.5707963267948966

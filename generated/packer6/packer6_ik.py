@@ -354,7 +354,7 @@ def inverse(pose, current=None):
 
             lm0 = tl_0 + tl_1
             lm1 = 0.255*c1*s2*wx + 0.1275*c2*wz + 0.255*s1*s2*wy - 1.7*s2*tl_0*tl_1 + 0.85*s2*tl_2*tl_5 - 0.019125*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy
-            lm2 = -s5
+            lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966

@@ -288,9 +288,10 @@ class Builder:
         _, z4 = axis(4)
         _, z5 = axis(5)
         _, z6 = axis(6)
-        flip = reduce_all(z4.cross(z5).dot(z6))
+        flip = reduce_all(z4.cross(z6).dot(z5))
         out.append(Label("wrist", flip, "noflip", "flip",
-                         "noflip: axes 4, 5, 6 form a right-handed triple (z4 x z5) . z6 >= 0"))
+                         "noflip: (z4 x z6) . z5 >= 0 for the directions z4, z5, z6 of the wrist axes "
+                         "(with the usual orthogonal wrist: the middle wrist joint's DH angle in [0, 180] deg)"))
         return out
 
 
