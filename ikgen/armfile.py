@@ -39,11 +39,15 @@ def load_arm(path: str | Path) -> Arm:
     """Read, validate and return the arm described in ``path`` (.toml or .json)."""
     path = Path(path)
     shown = str(path)
-    if not path.exists():
-        raise ArmFileError(shown, "", "file not found", "a path to an existing .toml or .json arm file")
-    if path.is_dir():
-        raise ArmFileError(shown, "", "is a directory", "an arm file (.toml or .json)")
-    raw = path.read_bytes()
+    try:
+        if not path.exists():
+            raise ArmFileError(shown, "", "file not found", "a path to an existing .toml or .json arm file")
+        if path.is_dir():
+            raise ArmFileError(shown, "", "is a directory", "an arm file (.toml or .json)")
+        raw = path.read_bytes()
+    except OSError as exc:  # permission denied, name too long, ...
+        raise ArmFileError(shown, "", f"cannot read the file: {exc.strerror or exc}",
+                           "a readable .toml or .json arm file") from None
     suffix = path.suffix.lower()
     if suffix not in (".toml", ".json"):
         raise ArmFileError(shown, "", f"unknown file type '{path.suffix or '(none)'}'", "a .toml or .json file")
@@ -76,23 +80,40 @@ def _parse_toml(text: str, shown: str) -> dict:
         if match:
             problem += f" at column {match.group(2)}"
         raise ArmFileError(shown, "", f"malformed TOML: {problem}", "valid TOML", line=line) from None
+    except ValueError:  # an integer literal longer than Python converts (4300 digits)
+        raise ArmFileError(shown, "", "a number in the file has too many digits", _DIGITS_EXPECTED) from None
+    except RecursionError:
+        raise ArmFileError(shown, "", "arrays or tables are nested too deeply", _NESTING_EXPECTED) from None
+
+
+_DIGITS_EXPECTED = "numbers of at most 4300 digits"
+_NESTING_EXPECTED = "the nesting of an arm file (a few levels)"
 
 
 def _parse_json(text: str, shown: str) -> dict:
+    # NaN and Infinity (not JSON, but Python's json reads them) become floats here so that the
+    # reader rejects them with the field and line, as it does for TOML's nan and inf.
+    def unique_keys(pairs):
+        seen = set()
+        for key, _ in pairs:
+            if key in seen:
+                raise ArmFileError(shown, "", f"duplicate key '{key}' in one JSON object",
+                                   "each key at most once per object")
+            seen.add(key)
+        return dict(pairs)
+
     try:
-        data = json.loads(text, parse_constant=_reject_json_constant)
+        data = json.loads(text, object_pairs_hook=unique_keys)
     except json.JSONDecodeError as exc:
         raise ArmFileError(shown, "", f"malformed JSON: {exc.msg} at column {exc.colno}", "valid JSON",
                            line=exc.lineno) from None
-    except ValueError as exc:
-        raise ArmFileError(shown, "", f"malformed JSON: {exc}", "finite numbers only") from None
+    except ValueError:  # an integer literal longer than Python converts (4300 digits)
+        raise ArmFileError(shown, "", "a number in the file has too many digits", _DIGITS_EXPECTED) from None
+    except RecursionError:
+        raise ArmFileError(shown, "", "arrays or tables are nested too deeply", _NESTING_EXPECTED) from None
     if not isinstance(data, dict):
         raise ArmFileError(shown, "", f"the top level is a JSON {type(data).__name__}", "a JSON object")
     return data
-
-
-def _reject_json_constant(name: str):
-    raise ValueError(f"{name} is not a finite number")
 
 
 class TomlLocator:
@@ -124,7 +145,8 @@ class TomlLocator:
             if key:
                 name = key.group(1).strip('"')
                 self.lines.setdefault(table + (name,), number)
-                for inner in re.findall(r"([A-Za-z0-9_\-]+)\s*=", stripped[key.end():]):
+                # (?<!...) makes a match start only where a key starts: linear time on long lines
+                for inner in re.findall(r"(?<![A-Za-z0-9_\-])([A-Za-z0-9_\-]+)\s*=", stripped[key.end():]):
                     self.lines.setdefault(table + (name, inner), number)
 
     def __call__(self, path: tuple) -> int | None:
@@ -186,7 +208,7 @@ class _Reader:
             return None
         value = parent[key]
         if not isinstance(value, dict):
-            self.fail(where, place + (key,), f"'{key}' is a {_kind(value)}", "a table of keys")
+            self.fail(where, place + (key,), f"'{key}' is {_a_kind(value)}", "a table of keys")
         return value
 
     def choice(self, table: dict, key: str, options, where: str, place: tuple, default=None, aliases=None):
@@ -196,7 +218,7 @@ class _Reader:
             self.fail(where, place, f"missing field '{key}'", "one of " + ", ".join(options))
         value = table[key]
         if not isinstance(value, str):
-            self.fail(where, place + (key,), f"field '{key}' is a {_kind(value)} ({value!r})",
+            self.fail(where, place + (key,), f"field '{key}' is {_a_kind(value)} ({value!r})",
                       "a string, one of " + ", ".join(options))
         lookup = aliases or {o: o for o in options}
         if value.lower() not in lookup:
@@ -222,14 +244,20 @@ class _Reader:
     def vector(self, table: dict, key: str, size: int, where: str, place: tuple) -> list[sp.Expr]:
         raw = table[key]
         if not isinstance(raw, list) or len(raw) != size:
-            found = f"a list of {len(raw)}" if isinstance(raw, list) else f"a {_kind(raw)}"
+            found = f"a list of {len(raw)}" if isinstance(raw, list) else f"{_a_kind(raw)}"
             self.fail(where, place + (key,), f"field '{key}' is {found}", f"a list of {size} numbers")
         return [self.value(v, f"field '{key}' item {i + 1}", where, place + (key,)) for i, v in enumerate(raw)]
 
 
 def _kind(value) -> str:
     return {bool: "boolean", int: "integer", float: "number", str: "string", list: "list",
-            dict: "table"}.get(type(value), type(value).__name__)
+            dict: "table", type(None): "null"}.get(type(value), type(value).__name__)
+
+
+def _a_kind(value) -> str:
+    """The kind of ``value`` with its article: 'an integer', 'a string'."""
+    kind = _kind(value)
+    return ("an " if kind[0] in "aeiou" else "a ") + kind
 
 
 def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=None) -> Arm:
@@ -241,7 +269,7 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
     name = _read_name(reader, arm_table, "[arm]", ("arm",), default=None)
     description = arm_table.get("description", "")
     if not isinstance(description, str):
-        reader.fail("[arm]", ("arm", "description"), f"field 'description' is a {_kind(description)}", "a string")
+        reader.fail("[arm]", ("arm", "description"), f"field 'description' is {_a_kind(description)}", "a string")
     convention = reader.choice(arm_table, "convention", CONVENTIONS, "[arm]", ("arm",),
                                aliases=CONVENTION_ALIASES)
     length_unit = reader.choice(arm_table, "length_unit", LENGTH_UNITS, "[arm]", ("arm",))
@@ -252,7 +280,7 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
         reader.fail("top level", (), "no joints: missing [[joint]] entries", "at least one [[joint]] table")
     joint_list = data["joint"]
     if not isinstance(joint_list, list):
-        reader.fail("top level", ("joint",), f"'joint' is a {_kind(joint_list)}",
+        reader.fail("top level", ("joint",), f"'joint' is {_a_kind(joint_list)}",
                     "an array of tables ([[joint]] in TOML, a list of objects in JSON)")
     if not joint_list:
         reader.fail("top level", ("joint",), "zero joints", "at least one joint")
@@ -261,7 +289,7 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
     for i, raw in enumerate(joint_list):
         place = ("joint", i)
         if not isinstance(raw, dict):
-            reader.fail(f"joint {i + 1}", place, f"is a {_kind(raw)}", "a table of joint fields")
+            reader.fail(f"joint {i + 1}", place, f"is {_a_kind(raw)}", "a table of joint fields")
         joint = _read_joint(reader, raw, i, place, angle_unit, angle_scale)
         if joint.name in seen_names:
             reader.fail(f"{joint.label}", place + ("name",),
@@ -284,7 +312,7 @@ def _read_name(reader: _Reader, table: dict, where: str, place: tuple, default: 
         return default
     value = table["name"]
     if not isinstance(value, str) or not value.strip():
-        found = f"a {_kind(value)}" if not isinstance(value, str) else "an empty string"
+        found = f"{_a_kind(value)}" if not isinstance(value, str) else "an empty string"
         reader.fail(where, place + ("name",), f"field 'name' is {found}", "a non-empty string")
     if not NAME_PATTERN.match(value):
         reader.fail(where, place + ("name",), f"field 'name' {value!r} holds control characters or is too long",
@@ -301,6 +329,9 @@ def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: st
 
     def angle(key: str, default=None):
         value = reader.number(raw, key, where, place, default)
+        if angle_unit == "deg" and value.has(sp.pi):
+            reader.fail(where, place + (key,), f"field '{key}' uses pi in an arm whose angles are in degrees",
+                        "degrees (write 90, not \"pi/2\"), or angle_unit = \"rad\"")
         value = value * angle_scale
         snapped = snap_radians(value) if angle_unit == "rad" else value
         if snapped != value:
@@ -317,7 +348,8 @@ def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: st
         offset = reader.number(raw, "offset", where, place, sp.Integer(0))
     direction = raw.get("direction", 1)
     if isinstance(direction, bool) or direction not in (1, -1):
-        reader.fail(where, place + ("direction",), f"field 'direction' is {direction!r}", "1 or -1")
+        shown = json.dumps(direction) if isinstance(direction, (bool, int, float, str)) else _a_kind(direction)
+        reader.fail(where, place + ("direction",), f"field 'direction' is {shown}", "1 or -1")
     if "limits" in raw:
         lower, upper = reader.vector(raw, "limits", 2, where, place)
         scale = angle_scale if kind == "revolute" else 1
@@ -351,7 +383,7 @@ def _read_frame(reader: _Reader, data: dict, key: str, angle_scale) -> sp.Immuta
 
 def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale) -> sp.Matrix:
     if not isinstance(table, dict):
-        reader.fail(where, place, f"'rotation' is a {_kind(table)}",
+        reader.fail(where, place, f"'rotation' is {_a_kind(table)}",
                     "a table with angles+axes+frame, or quaternion+order, or matrix")
     reader.check_keys(table, ROTATION_KEYS, where, place)
     forms = [k for k in ("angles", "quaternion", "matrix") if k in table]
@@ -359,6 +391,12 @@ def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale
         found = "none of them" if not forms else " and ".join(forms)
         reader.fail(where, place, f"found {found}", "exactly one of 'angles', 'quaternion' or 'matrix'")
     form = forms[0]
+    belongs = {"angles": ("angles", "axes", "frame"), "quaternion": ("quaternion", "order"), "matrix": ("matrix",)}
+    stray = [k for k in table if k not in belongs[form]]
+    if stray:
+        owner = next(f for f, keys in belongs.items() if stray[0] in keys)
+        reader.fail(where, place + (stray[0],), f"'{stray[0]}' belongs to the '{owner}' form, not to '{form}'",
+                    f"only {', '.join(repr(k) for k in belongs[form])} with '{form}'")
     if form == "angles":
         for needed in ("axes", "frame"):
             if needed not in table:
@@ -370,10 +408,17 @@ def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale
             reader.fail(where, place + ("axes",), f"field 'axes' is {axes!r}",
                         "three letters of x, y, z with no two neighbours equal, such as \"xyz\" or \"zyz\"")
         frame = reader.choice(table, "frame", ("fixed", "moving"), where, place)
-        stray = [k for k in ("order",) if k in table]
-        if stray:
-            reader.fail(where, place + (stray[0],), f"'{stray[0]}' belongs to a quaternion", "no 'order' with angles")
-        angles = [v * angle_scale for v in reader.vector(table, "angles", 3, where, place)]
+        raw_angles = reader.vector(table, "angles", 3, where, place)
+        if angle_scale != 1 and any(v.has(sp.pi) for v in raw_angles):
+            reader.fail(where, place + ("angles",), "'angles' uses pi in an arm whose angles are in degrees",
+                        "degrees (write 90, not \"pi/2\"), or angle_unit = \"rad\"")
+        angles = [v * angle_scale for v in raw_angles]
+        if angle_scale == 1:  # radians: a double's rendering of k*pi/12 means the exact multiple
+            snapped = [snap_radians(v) for v in angles]
+            for k, (before, after) in enumerate(zip(angles, snapped)):
+                if before != after:
+                    reader.notes.append(f"{where}: angle {k + 1} = {float(before)!r} rad read as {after}")
+            angles = snapped
         return from_axis_angles(axes.lower(), angles, frame)
     if form == "quaternion":
         if "order" not in table:

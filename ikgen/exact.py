@@ -46,9 +46,16 @@ def parse_exact(value) -> sp.Expr:
             raise NotANumber("the string is empty")
         try:
             tree = ast.parse(text, mode="eval")
-        except SyntaxError:
+        except (SyntaxError, ValueError):
             raise NotANumber(f"{value!r} is not an arithmetic expression") from None
-        return _evaluate(tree.body, value)
+        except (RecursionError, MemoryError):  # pathologically deep nesting such as 100000 minus signs
+            raise NotANumber(f"the expression ({len(text)} characters) is nested too deeply") from None
+        try:
+            return _evaluate(tree.body, value)
+        except RecursionError:
+            raise NotANumber(f"the expression ({len(text)} characters) is nested too deeply") from None
+    if value is None:
+        raise NotANumber("null (no value) is not a number")
     raise NotANumber(f"{type(value).__name__} {value!r} is not a number")
 
 
@@ -77,6 +84,8 @@ def snap_radians(value: sp.Expr) -> sp.Expr:
     if value.has(sp.pi) or not value.is_Rational:
         return value
     x = float(value)
+    if not math.isfinite(x / (math.pi / 12)):  # too large to be meant as a multiple of pi/12
+        return value
     k = round(x / (math.pi / 12))
     if k != 0 and abs(x - k * math.pi / 12) <= 4 * math.ulp(abs(x)):
         return sp.Rational(k, 12) * sp.pi
