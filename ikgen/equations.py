@@ -261,7 +261,9 @@ class GreedySolver:
                                  f"{first.equation.source} and {second.equation.source}"))
             if len(kept) == 3:
                 break
-        return kept
+        # A form with a constant non-zero determinant never degenerates: it alone is enough.
+        constant = [f for f in kept if f.det.is_number and f.det != 0]
+        return constant[:1] or kept
 
     def _pair_singular(self, joint: int, forms: list[PairForm]) -> Singular:
         return Singular(measure=forms[0].det, threshold=forms[0].threshold,

@@ -14,7 +14,7 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from .backends import common, python as python_backend
+from .backends import c as c_backend, common, python as python_backend
 from .families import derive_arm
 from .ir import Derivation
 from .model import Arm
@@ -40,6 +40,9 @@ def build(arm: Arm) -> Build:
     folder = common.identifier(arm.name)
     files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
              f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
+    for scalar in c_backend.SCALARS:
+        for name, text in c_backend.render(arm, derivation, scalar).items():
+            files[f"{folder}/{name}"] = text
     return Build(arm, derivation, files)
 
 

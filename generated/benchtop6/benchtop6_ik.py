@@ -250,22 +250,15 @@ def inverse(pose, current=None):
             t5_0 = c2*s3
             t5_1 = c3*s2
             t5_2 = s2*s3
-            t5_3 = c1*r11
-            t5_4 = r21*s1
-            t5_5 = c1*r12
-            t5_6 = r22*s1
-            t5_7 = c1*r13
-            t5_8 = r23*s1
-            t5_9 = c2*c3
-            m11 = c1*c2*c3*r11 + c2*c3*r21*s1 - r31*t5_0 - r31*t5_1 - t5_2*t5_3 - t5_2*t5_4
-            m12 = c1*c2*c3*r12 + c2*c3*r22*s1 - r32*t5_0 - r32*t5_1 - t5_2*t5_5 - t5_2*t5_6
-            m13 = c1*c2*c3*r13 + c2*c3*r23*s1 - r33*t5_0 - r33*t5_1 - t5_2*t5_7 - t5_2*t5_8
+            t5_3 = c1*r13
+            t5_4 = r23*s1
+            m11 = c1*c2*c3*r11 - c1*r11*t5_2 + c2*c3*r21*s1 - r21*s1*t5_2 - r31*t5_0 - r31*t5_1
+            m12 = c1*c2*c3*r12 - c1*r12*t5_2 + c2*c3*r22*s1 - r22*s1*t5_2 - r32*t5_0 - r32*t5_1
+            m13 = c1*c2*c3*r13 + c2*c3*r23*s1 - r33*t5_0 - r33*t5_1 - t5_2*t5_3 - t5_2*t5_4
             m21 = -c1*r21 + r11*s1
             m22 = -c1*r22 + r12*s1
             m23 = -c1*r23 + r13*s1
-            m31 = r31*s2*s3 - r31*t5_9 - t5_0*t5_3 - t5_0*t5_4 - t5_1*t5_3 - t5_1*t5_4
-            m32 = r32*s2*s3 - r32*t5_9 - t5_0*t5_5 - t5_0*t5_6 - t5_1*t5_5 - t5_1*t5_6
-            m33 = r33*s2*s3 - r33*t5_9 - t5_0*t5_7 - t5_0*t5_8 - t5_1*t5_7 - t5_1*t5_8
+            m33 = -c2*c3*r33 + r33*s2*s3 - t5_0*t5_3 - t5_0*t5_4 - t5_1*t5_3 - t5_1*t5_4
 
             # joint 5: entry (2,3) of R4^T M = R5 R6
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -283,7 +276,6 @@ def inverse(pose, current=None):
             cn5 = ea5 * ec5 - sg5 * eb5 * root5
             sn5 = eb5 * ec5 + sg5 * ea5 * root5
             th5 = atan2(sn5, cn5)
-            c5 = cn5 / en5
             s5 = sn5 / en5
 
 

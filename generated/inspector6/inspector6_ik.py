@@ -262,8 +262,6 @@ def inverse(pose, current=None):
             m21 = -c1*rc21 + rc11*s1
             m22 = -c1*rc22 + rc12*s1
             m23 = -c1*rc23 + rc13*s1
-            m31 = -rc31*t6_2 + rc31*t6_5 + t6_0*t6_3 + t6_0*t6_4 + t6_1*t6_3 + t6_1*t6_4
-            m32 = -rc32*t6_2 + rc32*t6_5 + t6_0*t6_6 + t6_0*t6_7 + t6_1*t6_6 + t6_1*t6_7
             m33 = -rc33*t6_2 + rc33*t6_5 + t6_0*t6_8 + t6_0*t6_9 + t6_1*t6_8 + t6_1*t6_9
 
             # joint 5: entry (2,3) of R4^T M = R5 R6
@@ -282,7 +280,6 @@ def inverse(pose, current=None):
             cn5 = ea5 * ec5 - sg5 * eb5 * root5
             sn5 = eb5 * ec5 + sg5 * ea5 * root5
             th5 = atan2(sn5, cn5)
-            c5 = cn5 / en5
             s5 = sn5 / en5
 
 

@@ -103,6 +103,8 @@ class Block:
     forms: list[FormPlan] = field(default_factory=list)
     free_possible: bool = True
     mirrored: bool = False       # cossin: the second root is emitted by symmetry, no loop
+    need_cos: bool = True        # cossin: a later expression reads c<j>
+    need_sin: bool = True        # cossin: a later expression reads s<j>
 
 
 @dataclass
@@ -237,8 +239,30 @@ def lower(derivation: Derivation) -> Plan:
         scale = float(out.scale)
         outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale))
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
+    mark_needed_trig(blocks, final_temps, label_measures)
     return Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
                 derivation.max_solutions, depth, branch_joints, mirror)
+
+
+def block_exprs(block: Block) -> list[sp.Expr]:
+    exprs = [a.expr for a in block.temps]
+    exprs += [e for e in (block.a, block.b, block.c, block.norm, block.radicand) if e is not None]
+    for form in block.forms:
+        exprs += [a.expr for a in form.temps] + [form.det, form.cos_num, form.sin_num]
+    return exprs
+
+
+def mark_needed_trig(blocks: list[Block], final_temps, label_measures) -> None:
+    """Set need_cos/need_sin of each cossin block from what later blocks and the labels read."""
+    later: set = set()
+    for e in [a.expr for a in final_temps] + list(label_measures):
+        later |= sp.sympify(e).free_symbols
+    for block in reversed(blocks):
+        if block.kind == "cossin":
+            block.need_cos = cos_symbol(block.joint) in later
+            block.need_sin = sin_symbol(block.joint) in later
+        for e in block_exprs(block):
+            later |= sp.sympify(e).free_symbols
 
 
 def symbol_names(joint: int) -> tuple[str, str, str]:

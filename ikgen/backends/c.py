@@ -1,0 +1,125 @@
+"""C back-end: one header and one source per arm and scalar type; C99, no allocation, no state.
+
+The printer is sympy's C99 printer with these changes: every number is a floating literal of the
+chosen type (``260.0`` / ``260.0f``: no int overflow, no silent promotion to double), floats print
+exactly (17 significant digits for double, 9 for float), small integer powers become products,
+and the float build calls the ``f`` forms (sqrtf, atan2f, fabsf, sinf, cosf).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import sympy as sp
+from sympy.codegen.ast import float32, real
+from sympy.printing.c import C99CodePrinter
+from sympy.printing.precedence import PRECEDENCE
+
+from ..ir import Derivation
+from ..model import Arm
+from . import common
+from .python import forward_plan
+
+
+@dataclass(frozen=True)
+class Scalar:
+    name: str          # "double" or "float"
+    suffix: str        # file and symbol suffix: "" or "_f32"
+    literal: str       # literal suffix: "" or "f"
+    digits: int        # significant digits that round-trip
+
+    def fn(self, name: str) -> str:
+        return name + ("f" if self.name == "float" else "")
+
+
+DOUBLE = Scalar("double", "", "", 17)
+FLOAT = Scalar("float", "_f32", "f", 9)
+SCALARS = (DOUBLE, FLOAT)
+
+
+class SolverCPrinter(C99CodePrinter):
+    def __init__(self, scalar: Scalar):
+        settings = {"type_aliases": {real: float32}} if scalar.name == "float" else {}
+        super().__init__(settings)
+        self.scalar = scalar
+
+    def number(self, value) -> str:
+        value = float(value)
+        text = f"{value:.{self.scalar.digits}g}"
+        if "e" not in text and "." not in text and "inf" not in text and "nan" not in text:
+            text += ".0"
+        return text + self.scalar.literal
+
+    def _print_Float(self, expr):
+        return self.number(expr)
+
+    def _print_Integer(self, expr):
+        return self.number(expr)
+
+    def _print_Rational(self, expr):
+        return self.number(expr)
+
+    def _print_Pow(self, expr, rational=False):
+        base, exp = expr.base, expr.exp
+        if exp.is_Integer and 2 <= int(exp) <= 4:
+            factor = self.parenthesize(base, PRECEDENCE["Mul"] + 1)
+            return "*".join([factor] * int(exp))
+        if exp == -1:
+            return f"{self.number(1)}/" + self.parenthesize(base, PRECEDENCE["Atom"] - 1)
+        if exp == sp.Rational(1, 2):
+            return f"{self.scalar.fn('sqrt')}({self._print(base)})"
+        return super()._print_Pow(expr, rational)
+
+
+def names(arm: Arm, scalar: Scalar) -> dict:
+    base = common.identifier(arm.name)
+    prefix = f"{base}_ik{scalar.suffix}"
+    return {"prefix": prefix, "upper": prefix.upper(), "header": f"{prefix}.h", "source": f"{prefix}.c"}
+
+
+def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[str, str]:
+    """{file name: text} for the header and the source of one scalar type."""
+    plan = common.lower(derivation)
+    printer = SolverCPrinter(scalar)
+    fwd_temps, fwd_entries = forward_plan(arm)
+    env = common.environment()
+    n = names(arm, scalar)
+    context = dict(
+        arm=arm, plan=plan, p=printer.doprint, num=printer.number, fn=scalar.fn, real=scalar.name,
+        header_lines=common.header_lines(arm, derivation), comment=common.comment_text, names=n,
+        joint_names=[common.comment_text(j.name) for j in arm.joints],
+        forward_temps=fwd_temps, forward_entries=fwd_entries,
+        limits=[list(l) for l in arm.limits_in_readings()],
+        joint_zero=[float(j.theta + j.offset) for j in arm.joints],
+        joint_gain=[j.direction * arm.angle_scale for j in arm.joints],
+        singular_terms=singular_terms(plan, printer), generator=common.GENERATOR,
+        label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
+        pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
+        # float rounding (about 6e-8 relative) needs a wider clamp band than double
+        guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5)
+    return {n["header"]: env.get_template("c_header.h.j2").render(**context),
+            n["source"]: env.get_template("c_source.c.j2").render(**context)}
+
+
+def plan_symbols(plan: common.Plan) -> set:
+    """Every symbol an expression of the plan reads."""
+    exprs = []
+    for block in plan.blocks:
+        exprs += common.block_exprs(block)
+    exprs += [a.expr for a in plan.final_temps] + list(plan.label_measures)
+    out = set()
+    for e in exprs:
+        out |= sp.sympify(e).free_symbols
+    return out
+
+
+def singular_terms(plan: common.Plan, printer: SolverCPrinter) -> list[str]:
+    terms = []
+    for block in plan.blocks:
+        if block.kind == "cossin":
+            if block.threshold is not None:
+                terms.append(f"free{block.joint}")
+            terms.append(f"root{block.joint} == {printer.number(0)}")
+        elif block.kind == "pair" and block.free_possible:
+            terms.append(f"free{block.joint}")
+    return terms
