@@ -75,6 +75,23 @@ def cmd_verify(args) -> int:
     return 0
 
 
+def cmd_compile(args) -> int:
+    from .backends.c import DOUBLE, FLOAT
+    from .cbuild import compile_solver
+    arm = load_arm(args.arm)
+    scalar = FLOAT if args.float else DOUBLE
+    started = time.perf_counter()
+    solver = compile_solver(arm, scalar=scalar, folder=args.out)
+    out(f"{arm.name}: compiled the {scalar.name} C solver in {time.perf_counter() - started:.1f} s")
+    for path in sorted(solver.folder.glob("*")):
+        if path.suffix in (".so", ".pyd", ".c", ".h"):
+            out(f"  {path}")
+    module = f"_{solver.prefix}_cffi"
+    out(f"use it from Python: sys.path.insert(0, '{args.out}'); from {module} import lib "
+        f"(lib.{solver.prefix}_inverse ...), or ikgen.cbuild.compile_solver() for a ready wrapper")
+    return 0
+
+
 def positive(text: str) -> int:
     try:
         value = int(text)
@@ -106,3 +123,12 @@ def add_generation_commands(sub) -> None:
     p.add_argument("-o", "--out", default=None, help="also write the generated files to this folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress display")
     p.set_defaults(run=cmd_verify)
+
+    p = sub.add_parser("compile", help="build the generated C solver into a Python extension (cffi)",
+                       description="Render the arm's C solver and compile it with cffi (API mode) into an "
+                                   "importable Python extension in OUT, for planners and scripts that want C "
+                                   "speed without writing C.")
+    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("-o", "--out", required=True, help="folder for the sources and the built extension")
+    p.add_argument("--float", action="store_true", help="build the float (single precision) solver")
+    p.set_defaults(run=cmd_compile)

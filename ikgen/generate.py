@@ -43,6 +43,8 @@ def build(arm: Arm) -> Build:
     for scalar in c_backend.SCALARS:
         for name, text in c_backend.render(arm, derivation, scalar).items():
             files[f"{folder}/{name}"] = text
+        name, text = c_backend.render_selftest(arm, derivation, scalar)
+        files[f"{folder}/{name}"] = text
     return Build(arm, derivation, files)
 
 

@@ -101,6 +101,39 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
             n["source"]: env.get_template("c_source.c.j2").render(**context)}
 
 
+def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, count: int = 200,
+                    seed: int = 20261201) -> tuple[str, str]:
+    """(file name, text) of the self-test: seeded poses away from singular sets, with their sources."""
+    import numpy as np
+
+    from ..kinematics import NumericChain
+    from ..verify import jacobian_distance, random_readings
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(seed)
+    vectors = []
+    while len(vectors) < count:
+        readings = random_readings(arm, 4 * count, rng)
+        keep = readings[jacobian_distance(chain, readings) > 1e-2]
+        poses = chain.poses(keep)
+        for q, pose in zip(keep, poses):
+            if len(vectors) < count:
+                vectors.append(([float(v) for v in pose[:3].reshape(-1)], [float(v) for v in q]))
+    printer = SolverCPrinter(scalar)
+    n = names(arm, scalar)
+    scale = arm.reach_scale()
+    double = scalar.name == "double"
+    context = dict(arm=arm, names=n, real=scalar.name, num=printer.number, fn=scalar.fn,
+                   comment=common.comment_text, vectors=vectors, generator=common.GENERATOR,
+                   turns=[360.0 if arm.angle_unit == "deg" else 2 * np.pi if j.revolute else 0.0
+                          for j in arm.joints],
+                   # float32 carries about 7 significant digits (IEEE 754 binary32)
+                   joint_tolerance=(1e-6 if double else 2e-2) * (180 / np.pi if arm.angle_unit == "deg" else 1.0),
+                   position_tolerance=float(f"{(1e-9 if double else 1e-4) * scale:.3g}"),
+                   rotation_tolerance=1e-9 if double else 1e-4)
+    text = common.environment().get_template("c_selftest.c.j2").render(**context)
+    return f"{n['prefix']}_selftest.c", text
+
+
 def plan_symbols(plan: common.Plan) -> set:
     """Every symbol an expression of the plan reads."""
     exprs = []
