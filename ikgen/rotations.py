@@ -50,12 +50,21 @@ def from_axis_angles(axes: str, angles, frame: str) -> sp.Matrix:
 def from_quaternion(w, x, y, z) -> sp.Matrix:
     """Exact rotation of the unit quaternion ``w + xi + yj + zk`` (normalised exactly first)."""
     norm = sp.sqrt(w * w + x * x + y * y + z * z)
-    w, x, y, z = (sp.nsimplify(c / norm) if norm != 1 else c for c in (w, x, y, z))
+    w, x, y, z = (_tidy(c / norm) if norm != 1 else c for c in (w, x, y, z))
     return sp.Matrix([
         [1 - 2 * (y * y + z * z), 2 * (x * y - z * w), 2 * (x * z + y * w)],
         [2 * (x * y + z * w), 1 - 2 * (x * x + z * z), 2 * (y * z - x * w)],
         [2 * (x * z - y * w), 2 * (y * z + x * w), 1 - 2 * (x * x + y * y)],
     ])
+
+
+def _tidy(value: sp.Expr) -> sp.Expr:
+    """``nsimplify``'s simpler form of an exact value, kept only if it equals the value to 1e-15.
+
+    nsimplify is a heuristic and can be wrong: it turns 1/sqrt(1 + 1e-600) into 0.
+    """
+    simple = sp.nsimplify(value)
+    return simple if abs((simple - value).evalf(30)) <= 1e-15 else value
 
 
 def homogeneous(rotation: sp.Matrix, translation) -> sp.Matrix:
@@ -106,7 +115,12 @@ def matrix_to_fixed_xyz(rotation: np.ndarray) -> np.ndarray:
     pitch = math.atan2(-r[2, 0], math.hypot(r[0, 0], r[1, 0]))
     if math.hypot(r[0, 0], r[1, 0]) < 1e-12:
         return np.array([0.0, pitch, math.atan2(-r[0, 1], r[1, 1])])
-    return np.array([math.atan2(r[2, 1], r[2, 2]), pitch, math.atan2(r[1, 0], r[0, 0])])
+    yaw = math.atan2(r[1, 0], r[0, 0])
+    # Roll from entries of size ~1, not from r[2, 1], r[2, 2] (~cos(pitch), inaccurate near +-90 deg):
+    # the middle row of Rz(yaw)^T R = Ry(pitch) Rx(roll) is (0, cos(roll), -sin(roll)).
+    cy, sy = math.cos(yaw), math.sin(yaw)
+    roll = math.atan2(sy * r[0, 2] - cy * r[1, 2], cy * r[1, 1] - sy * r[0, 1])
+    return np.array([roll, pitch, yaw])
 
 
 def rotation_angle_between(r1: np.ndarray, r2: np.ndarray) -> np.ndarray:

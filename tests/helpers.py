@@ -1,0 +1,60 @@
+"""Small shared helpers for tests: paths of the demo arms and arms built from plain dicts.
+
+``arm_from_data`` (ikgen.armfile) takes the dict a TOML/JSON arm file parses to; these helpers
+only assemble such dicts so that a test can state an arm in a few lines:
+
+    arm = build_arm([joint("r", a=1, alpha=0, d=0), joint("r", a=1, alpha=0, d=0)],
+                    length_unit="m", angle_unit="deg")
+
+Nothing here computes kinematics; the tests' reference values come from their own sources.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from ikgen.armfile import arm_from_data, load_arm
+
+ROOT = Path(__file__).resolve().parent.parent
+EXAMPLES = ROOT / "examples"
+DEMO_FILES = (EXAMPLES / "benchtop6.toml", EXAMPLES / "packer6.toml", EXAMPLES / "inspector6.json")
+
+
+def demo_arm(stem: str):
+    """The demo arm ``stem`` ("benchtop6", "packer6", "inspector6") loaded from examples/."""
+    [path] = [p for p in DEMO_FILES if p.stem == stem]
+    return load_arm(path)
+
+
+def joint(kind: str = "r", a=0, alpha=0, d=0, theta=0, name: str | None = None, **extra) -> dict:
+    """One [[joint]] entry; ``kind`` is "r"/"revolute" or "p"/"prismatic".
+
+    A prismatic joint gets limits [-1000, 1000] unless ``limits`` is passed in ``extra``
+    (the file schema requires them); ``extra`` may also hold offset, direction, limits.
+    """
+    kind = {"r": "revolute", "p": "prismatic"}.get(kind, kind)
+    entry = {"type": kind, "a": a, "alpha": alpha, "d": d, "theta": theta, **extra}
+    if name is not None:
+        entry["name"] = name
+    if kind == "prismatic":
+        entry.setdefault("limits", [-1000, 1000])
+    return entry
+
+
+def arm_data(joints: list[dict], convention: str = "standard", length_unit: str = "m",
+             angle_unit: str = "deg", base: dict | None = None, tool: dict | None = None,
+             name: str = "test_arm") -> dict:
+    """The parsed-file dict of an arm; ``base``/``tool`` are [base]/[tool] tables or None."""
+    data = {"arm": {"name": name, "convention": convention, "length_unit": length_unit,
+                    "angle_unit": angle_unit},
+            "joint": [dict(j) for j in joints]}
+    if base is not None:
+        data["base"] = base
+    if tool is not None:
+        data["tool"] = tool
+    return data
+
+
+def build_arm(joints: list[dict], **kwargs):
+    """``arm_from_data(arm_data(joints, **kwargs))``: a validated ikgen Arm."""
+    return arm_from_data(arm_data(joints, **kwargs))
