@@ -25,7 +25,7 @@ import sympy as sp
 
 # Relative tolerances shared by every back-end (documented in docs/derivation.md):
 GUARD_TOLERANCE = 1e-9      # a radicand down to -2e-9 * (a^2+b^2) is clamped to 0; below, unreachable
-SINGULAR_TOLERANCE = 1e-18  # a determinant (or a^2+b^2) below 1e-18 * its typical size: singular
+SINGULAR_TOLERANCE = 1e-20  # a determinant (or a^2+b^2) below 1e-20 * its typical size: singular
 
 
 def cos_symbol(joint: int) -> sp.Symbol:

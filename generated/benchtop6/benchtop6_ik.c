@@ -122,8 +122,8 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
     const double ec1 = 0.0;
     const double en1 = wx*wx + wy*wy;
     const double er1 = wx*wx + wy*wy;
-    const int free1 = en1 <= 1e-13;
-    if (free1 ? ec1 * ec1 > 1e-13 : er1 < -2.0000000000000001e-09 * en1) {
+    const int free1 = en1 <= 9.9999999999999988e-16;
+    if (free1 ? ec1 * ec1 > 9.9999999999999988e-16 : er1 < -2.0000000000000001e-09 * en1) {
         if (status) *status = BENCHTOP6_IK_UNREACHABLE;
         return 0;
     }
@@ -188,7 +188,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 const double t4_0_6 = 20.0*s3;
 
                 dt2 = 10400.0*c3 - 124800.0*s3 + 125600.0;
-                if (fabs(dt2) > 1e-13) {
+                if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (52300.0*c3 - 20.0*s3*wz + 10400.0*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260.0*t4_0_0 - 240.0*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260.0*t4_0_2 - 6500.0) / dt2;
                     s2 = (10400.0*c3 + 240.0*s3*wz - 52300.0*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20.0*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260.0*wz + 57200.0) / dt2;
                     free2 = 0;
@@ -204,7 +204,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 const double t4_1_6 = 20.0*s3;
 
                 dt2 = 50.0*c1*wx + 50.0*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2.0*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440.0*wz - 49025.0;
-                if (fabs(dt2) > 1e-13) {
+                if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (240.0*c1*s3*wx + 240.0*c3*wz - 52300.0*c3 + 240.0*s1*s3*wy + 20.0*s3*wz - 10400.0*s3 - t4_1_1*t4_1_4 - 260.0*t4_1_1 - t4_1_2*t4_1_4 - 260.0*t4_1_2 + 6500.0) / dt2;
                     s2 = (20.0*c3*wz - 10400.0*c3 - 240.0*s3*wz + 52300.0*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260.0*wz - 57200.0) / dt2;
                     free2 = 0;
@@ -222,7 +222,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 const double t4_2_8 = 20.0*s3;
 
                 dt2 = 520000.0*c3 - 6240000.0*s3 + 6280000.0;
-                if (fabs(dt2) > 1.0000000000000001e-11) {
+                if (fabs(dt2) > 9.999999999999999e-14) {
                     c2 = (-20800.0*c3*wz - 1620500.0*c3 + 104600.0*s3*wz + 51346000.0*s3 + 4992000.0*t4_2_0 - 29744000.0*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260.0*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260.0*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260.0*t4_2_4 - 114400.0*wz - 20442500.0) / dt2;
                     s2 = (104600.0*c3*wz + 18898000.0*c3 + 20800.0*s3*wz - 1083500.0*s3 - 29744000.0*t4_2_0 - 4992000.0*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000.0*wz + 5356000.0) / dt2;
                     free2 = 0;
@@ -280,7 +280,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             {
                 
                 dt4 = s5*s5;
-                if (fabs(dt4) > 1.0000000000000001e-18) {
+                if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -289,7 +289,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             if (free4) {
                 
                 dt4 = m13*m13 + m23*m23;
-                if (fabs(dt4) > 1.0000000000000001e-18) {
+                if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -298,7 +298,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             if (free4) {
                 
                 dt4 = m23*s5;
-                if (fabs(dt4) > 1.0000000000000001e-19) {
+                if (fabs(dt4) > 9.9999999999999991e-22) {
                     c4 = (-m13*m23) / dt4;
                     s4 = (m13*m13 - s5*s5) / dt4;
                     free4 = 0;
@@ -359,28 +359,30 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 out->config = 0u | (lm0 < 0.0 ? BENCHTOP6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? BENCHTOP6_IK_ELBOW_DOWN : 0u) | (lm2 < 0.0 ? BENCHTOP6_IK_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
             }
-            if (root5 > 0.0) if (count < BENCHTOP6_IK_MAX_SOLUTIONS) {
-                benchtop6_ik_solution *out = &solutions[count++];
-                double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
-                double u2 = th2 - -1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
-                double u3 = th3;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
-                double u4 = th4 + 3.1415926535897931;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
-                double u5 = -th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                out->joints[4] = u5 * 57.295779513082323;
-                double u6 = th6 + 3.1415926535897931;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                out->joints[5] = u6 * 57.295779513082323;
-                out->config = 0u | (lm0 < 0.0 ? BENCHTOP6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? BENCHTOP6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? BENCHTOP6_IK_WRIST_FLIP : 0u);
-                out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+            if (root5 > 0.0 && !free4) {
+                if (count < BENCHTOP6_IK_MAX_SOLUTIONS) {
+                    benchtop6_ik_solution *out = &solutions[count++];
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    out->joints[0] = u1 * 57.295779513082323;
+                    double u2 = th2 - -1.5707963267948966;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    out->joints[1] = u2 * 57.295779513082323;
+                    double u3 = th3;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    out->joints[2] = u3 * 57.295779513082323;
+                    double u4 = th4 + 3.1415926535897931;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    out->joints[3] = u4 * 57.295779513082323;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    out->joints[4] = u5 * 57.295779513082323;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    out->joints[5] = u6 * 57.295779513082323;
+                    out->config = 0u | (lm0 < 0.0 ? BENCHTOP6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? BENCHTOP6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? BENCHTOP6_IK_WRIST_FLIP : 0u);
+                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                }
             }
 
         }

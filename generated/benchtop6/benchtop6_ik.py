@@ -146,8 +146,8 @@ def inverse(pose, current=None):
     ec1 = 0
     en1 = wx*wx + wy*wy
     er1 = wx*wx + wy*wy
-    free1 = en1 <= 1e-13
-    if (ec1 * ec1 > 1e-13) if free1 else (er1 < 2e-09 * -en1):
+    free1 = en1 <= 9.999999999999999e-16
+    if (ec1 * ec1 > 9.999999999999999e-16) if free1 else (er1 < 2e-09 * -en1):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -200,7 +200,7 @@ def inverse(pose, current=None):
             t4_0_6 = 20*s3
 
             dt2 = 10400*c3 - 124800*s3 + 125600
-            if abs(dt2) > 1e-13:
+            if abs(dt2) > 9.999999999999999e-16:
                 c2 = (52300*c3 - 20*s3*wz + 10400*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260*t4_0_0 - 240*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260*t4_0_2 - 6500) / dt2
                 s2 = (10400*c3 + 240*s3*wz - 52300*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260*wz + 57200) / dt2
                 free2 = False
@@ -215,7 +215,7 @@ def inverse(pose, current=None):
                 t4_1_6 = 20*s3
 
                 dt2 = 50*c1*wx + 50*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440*wz - 49025
-                if abs(dt2) > 1e-13:
+                if abs(dt2) > 9.999999999999999e-16:
                     c2 = (240*c1*s3*wx + 240*c3*wz - 52300*c3 + 240*s1*s3*wy + 20*s3*wz - 10400*s3 - t4_1_1*t4_1_4 - 260*t4_1_1 - t4_1_2*t4_1_4 - 260*t4_1_2 + 6500) / dt2
                     s2 = (20*c3*wz - 10400*c3 - 240*s3*wz + 52300*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260*wz - 57200) / dt2
                     free2 = False
@@ -232,7 +232,7 @@ def inverse(pose, current=None):
                 t4_2_8 = 20*s3
 
                 dt2 = 520000*c3 - 6240000*s3 + 6280000
-                if abs(dt2) > 1.0000000000000001e-11:
+                if abs(dt2) > 9.999999999999999e-14:
                     c2 = (-20800*c3*wz - 1620500*c3 + 104600*s3*wz + 51346000*s3 + 4992000*t4_2_0 - 29744000*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260*t4_2_4 - 114400*wz - 20442500) / dt2
                     s2 = (104600*c3*wz + 18898000*c3 + 20800*s3*wz - 1083500*s3 - 29744000*t4_2_0 - 4992000*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000*wz + 5356000) / dt2
                     free2 = False
@@ -283,7 +283,7 @@ def inverse(pose, current=None):
             free4 = True
 
             dt4 = s5*s5
-            if abs(dt4) > 1e-18:
+            if abs(dt4) > 1e-20:
                 c4 = (-m13*s5) / dt4
                 s4 = (-m23*s5) / dt4
                 free4 = False
@@ -291,7 +291,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = m13*m13 + m23*m23
-                if abs(dt4) > 1e-18:
+                if abs(dt4) > 1e-20:
                     c4 = (-m13*s5) / dt4
                     s4 = (-m23*s5) / dt4
                     free4 = False
@@ -299,7 +299,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = m23*s5
-                if abs(dt4) > 1.0000000000000001e-19:
+                if abs(dt4) > 1e-21:
                     c4 = (-m13*m23) / dt4
                     s4 = (m13*m13 - s5*s5) / dt4
                     free4 = False
@@ -357,7 +357,7 @@ def inverse(pose, current=None):
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
             ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
-            if root5 > 0.0:
+            if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u5 = -th5

@@ -122,8 +122,8 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
     const float ec1 = 0.0f;
     const float en1 = wx*wx + wy*wy;
     const float er1 = wx*wx + wy*wy;
-    const int free1 = en1 <= 1e-13f;
-    if (free1 ? ec1 * ec1 > 1e-13f : er1 < -2e-05f * en1) {
+    const int free1 = en1 <= 1e-15f;
+    if (free1 ? ec1 * ec1 > 1e-15f : er1 < -2e-05f * en1) {
         if (status) *status = BENCHTOP6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -188,7 +188,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t4_0_6 = 20.0f*s3;
 
                 dt2 = 10400.0f*c3 - 124800.0f*s3 + 125600.0f;
-                if (fabsf(dt2) > 1e-13f) {
+                if (fabsf(dt2) > 1e-15f) {
                     c2 = (52300.0f*c3 - 20.0f*s3*wz + 10400.0f*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260.0f*t4_0_0 - 240.0f*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260.0f*t4_0_2 - 6500.0f) / dt2;
                     s2 = (10400.0f*c3 + 240.0f*s3*wz - 52300.0f*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20.0f*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260.0f*wz + 57200.0f) / dt2;
                     free2 = 0;
@@ -204,7 +204,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t4_1_6 = 20.0f*s3;
 
                 dt2 = 50.0f*c1*wx + 50.0f*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2.0f*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440.0f*wz - 49025.0f;
-                if (fabsf(dt2) > 1e-13f) {
+                if (fabsf(dt2) > 1e-15f) {
                     c2 = (240.0f*c1*s3*wx + 240.0f*c3*wz - 52300.0f*c3 + 240.0f*s1*s3*wy + 20.0f*s3*wz - 10400.0f*s3 - t4_1_1*t4_1_4 - 260.0f*t4_1_1 - t4_1_2*t4_1_4 - 260.0f*t4_1_2 + 6500.0f) / dt2;
                     s2 = (20.0f*c3*wz - 10400.0f*c3 - 240.0f*s3*wz + 52300.0f*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260.0f*wz - 57200.0f) / dt2;
                     free2 = 0;
@@ -222,7 +222,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t4_2_8 = 20.0f*s3;
 
                 dt2 = 520000.0f*c3 - 6240000.0f*s3 + 6280000.0f;
-                if (fabsf(dt2) > 1e-11f) {
+                if (fabsf(dt2) > 1e-13f) {
                     c2 = (-20800.0f*c3*wz - 1620500.0f*c3 + 104600.0f*s3*wz + 51346000.0f*s3 + 4992000.0f*t4_2_0 - 29744000.0f*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260.0f*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260.0f*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260.0f*t4_2_4 - 114400.0f*wz - 20442500.0f) / dt2;
                     s2 = (104600.0f*c3*wz + 18898000.0f*c3 + 20800.0f*s3*wz - 1083500.0f*s3 - 29744000.0f*t4_2_0 - 4992000.0f*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000.0f*wz + 5356000.0f) / dt2;
                     free2 = 0;
@@ -280,7 +280,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             {
                 
                 dt4 = s5*s5;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -289,7 +289,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = m13*m13 + m23*m23;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -298,7 +298,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = m23*s5;
-                if (fabsf(dt4) > 1e-19f) {
+                if (fabsf(dt4) > 1e-21f) {
                     c4 = (-m13*m23) / dt4;
                     s4 = (m13*m13 - s5*s5) / dt4;
                     free4 = 0;
@@ -359,28 +359,30 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 out->config = 0u | (lm0 < 0.0f ? BENCHTOP6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? BENCHTOP6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? BENCHTOP6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
             }
-            if (root5 > 0.0f) if (count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
-                benchtop6_ik_f32_solution *out = &solutions[count++];
-                float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
-                float u2 = th2 - -1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
-                float u3 = th3;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
-                float u4 = th4 + 3.14159265f;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
-                float u5 = -th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * 57.2957795f;
-                float u6 = th6 + 3.14159265f;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                out->joints[5] = u6 * 57.2957795f;
-                out->config = 0u | (lm0 < 0.0f ? BENCHTOP6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? BENCHTOP6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? BENCHTOP6_IK_F32_WRIST_FLIP : 0u);
-                out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+            if (root5 > 0.0f && !free4) {
+                if (count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
+                    benchtop6_ik_f32_solution *out = &solutions[count++];
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    out->joints[0] = u1 * 57.2957795f;
+                    float u2 = th2 - -1.57079633f;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    out->joints[1] = u2 * 57.2957795f;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    out->joints[2] = u3 * 57.2957795f;
+                    float u4 = th4 + 3.14159265f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    out->joints[3] = u4 * 57.2957795f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    out->joints[4] = u5 * 57.2957795f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    out->joints[5] = u6 * 57.2957795f;
+                    out->config = 0u | (lm0 < 0.0f ? BENCHTOP6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? BENCHTOP6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? BENCHTOP6_IK_F32_WRIST_FLIP : 0u);
+                    out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                }
             }
 
         }

@@ -156,8 +156,8 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
         const double ec1 = 0.0;
         const double en1 = wx*wx + wy*wy;
         const double er1 = wx*wx + wy*wy;
-        const int free1 = en1 <= 1e-13;
-        if (free1 ? ec1 * ec1 > 1e-13 : er1 < -2.0000000000000001e-09 * en1) {
+        const int free1 = en1 <= 9.9999999999999988e-16;
+        if (free1 ? ec1 * ec1 > 9.9999999999999988e-16 : er1 < -2.0000000000000001e-09 * en1) {
             continue;
         }
         const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
@@ -189,7 +189,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 const double t5_0_4 = 290.0*c3;
 
                 dt2 = 185600.0*s3 + 186500.0;
-                if (fabs(dt2) > 1e-13) {
+                if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (-c3*t5_0_1 + 52200.0*c3 + t5_0_0*t5_0_3 + 320.0*t5_0_0 + t5_0_2*t5_0_3 + 320.0*t5_0_2) / dt2;
                     s2 = (s3*t5_0_1 - 52200.0*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320.0*wz - 57600.0) / dt2;
                     free2 = 0;
@@ -204,7 +204,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 const double t5_1_5 = 290.0*c3;
 
                 dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2.0*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360.0*wz - 32400.0;
-                if (fabs(dt2) > 1e-13) {
+                if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (290.0*c3*wz - 52200.0*c3 - t5_1_1*t5_1_4 - 320.0*t5_1_1 - t5_1_2*t5_1_4 - 320.0*t5_1_2) / dt2;
                     s2 = (-290.0*s3*wz + 52200.0*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320.0*wz + 57600.0) / dt2;
                     free2 = 0;
@@ -221,7 +221,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 const double t5_2_7 = 290.0*s3;
 
                 dt2 = -66816000.0*s3 - 67140000.0;
-                if (fabs(dt2) > 1e-10) {
+                if (fabs(dt2) > 9.9999999999999998e-13) {
                     c2 = (-53824000.0*c3*s3 + 290.0*c3*t5_2_3 + 290.0*c3*t5_2_4 + 290.0*c3*t5_2_5 - 63481000.0*c3 - t5_2_0*t5_2_2 - 115200.0*t5_2_0 - t5_2_1*t5_2_2 - 115200.0*t5_2_1) / dt2;
                     s2 = (53824000.0*s3*s3 + 122873000.0*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320.0*t5_2_3 - t5_2_4*t5_2_7 - 320.0*t5_2_4 - t5_2_5*t5_2_7 - 320.0*t5_2_5 + 70048000.0) / dt2;
                     free2 = 0;
@@ -284,7 +284,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             {
                 
                 dt4 = s5*s5;
-                if (fabs(dt4) > 1.0000000000000001e-18) {
+                if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (m13*s5) / dt4;
                     s4 = (m23*s5) / dt4;
                     free4 = 0;
@@ -293,7 +293,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             if (free4) {
                 
                 dt4 = -m13*m13 - m23*m23;
-                if (fabs(dt4) > 1.0000000000000001e-18) {
+                if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -302,7 +302,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             if (free4) {
                 
                 dt4 = m13*s5;
-                if (fabs(dt4) > 1.0000000000000001e-19) {
+                if (fabs(dt4) > 9.9999999999999991e-22) {
                     c4 = (m13*m13) / dt4;
                     s4 = (m13*m23) / dt4;
                     free4 = 0;
@@ -366,28 +366,30 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 out->config = 0u | (lm0 < 0.0 ? INSPECTOR6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? INSPECTOR6_IK_ELBOW_DOWN : 0u) | (lm2 < 0.0 ? INSPECTOR6_IK_WRIST_FLIP : 0u);
                 out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
             }
-            if (root5 > 0.0) if (count < INSPECTOR6_IK_MAX_SOLUTIONS) {
-                inspector6_ik_solution *out = &solutions[count++];
-                double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
-                double u2 = th2 - 1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * -57.295779513082323;
-                double u3 = th3 - 1.7889624832941875;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
-                double u4 = th4 + 3.1415926535897931;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
-                double u5 = -th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                out->joints[4] = u5 * -57.295779513082323;
-                double u6 = th6 + 3.1415926535897931;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                out->joints[5] = u6 * 57.295779513082323;
-                out->config = 0u | (lm0 < 0.0 ? INSPECTOR6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? INSPECTOR6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? INSPECTOR6_IK_WRIST_FLIP : 0u);
-                out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+            if (root5 > 0.0 && !free4) {
+                if (count < INSPECTOR6_IK_MAX_SOLUTIONS) {
+                    inspector6_ik_solution *out = &solutions[count++];
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    out->joints[0] = u1 * 57.295779513082323;
+                    double u2 = th2 - 1.5707963267948966;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    out->joints[1] = u2 * -57.295779513082323;
+                    double u3 = th3 - 1.7889624832941875;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    out->joints[2] = u3 * 57.295779513082323;
+                    double u4 = th4 + 3.1415926535897931;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    out->joints[3] = u4 * 57.295779513082323;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    out->joints[4] = u5 * -57.295779513082323;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    out->joints[5] = u6 * 57.295779513082323;
+                    out->config = 0u | (lm0 < 0.0 ? INSPECTOR6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? INSPECTOR6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? INSPECTOR6_IK_WRIST_FLIP : 0u);
+                    out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                }
             }
 
         }

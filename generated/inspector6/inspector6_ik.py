@@ -175,8 +175,8 @@ def inverse(pose, current=None):
         ec1 = 0
         en1 = wx*wx + wy*wy
         er1 = wx*wx + wy*wy
-        free1 = en1 <= 1e-13
-        if (ec1 * ec1 > 1e-13) if free1 else (er1 < 2e-09 * -en1):
+        free1 = en1 <= 9.999999999999999e-16
+        if (ec1 * ec1 > 9.999999999999999e-16) if free1 else (er1 < 2e-09 * -en1):
             continue
         root1 = sqrt(er1) if er1 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -201,7 +201,7 @@ def inverse(pose, current=None):
             t5_0_4 = 290*c3
 
             dt2 = 185600*s3 + 186500
-            if abs(dt2) > 1e-13:
+            if abs(dt2) > 9.999999999999999e-16:
                 c2 = (-c3*t5_0_1 + 52200*c3 + t5_0_0*t5_0_3 + 320*t5_0_0 + t5_0_2*t5_0_3 + 320*t5_0_2) / dt2
                 s2 = (s3*t5_0_1 - 52200*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320*wz - 57600) / dt2
                 free2 = False
@@ -215,7 +215,7 @@ def inverse(pose, current=None):
                 t5_1_5 = 290*c3
 
                 dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360*wz - 32400
-                if abs(dt2) > 1e-13:
+                if abs(dt2) > 9.999999999999999e-16:
                     c2 = (290*c3*wz - 52200*c3 - t5_1_1*t5_1_4 - 320*t5_1_1 - t5_1_2*t5_1_4 - 320*t5_1_2) / dt2
                     s2 = (-290*s3*wz + 52200*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320*wz + 57600) / dt2
                     free2 = False
@@ -231,7 +231,7 @@ def inverse(pose, current=None):
                 t5_2_7 = 290*s3
 
                 dt2 = -66816000*s3 - 67140000
-                if abs(dt2) > 1e-10:
+                if abs(dt2) > 1e-12:
                     c2 = (-53824000*c3*s3 + 290*c3*t5_2_3 + 290*c3*t5_2_4 + 290*c3*t5_2_5 - 63481000*c3 - t5_2_0*t5_2_2 - 115200*t5_2_0 - t5_2_1*t5_2_2 - 115200*t5_2_1) / dt2
                     s2 = (53824000*s3*s3 + 122873000*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320*t5_2_3 - t5_2_4*t5_2_7 - 320*t5_2_4 - t5_2_5*t5_2_7 - 320*t5_2_5 + 70048000) / dt2
                     free2 = False
@@ -287,7 +287,7 @@ def inverse(pose, current=None):
             free4 = True
 
             dt4 = s5*s5
-            if abs(dt4) > 1e-18:
+            if abs(dt4) > 1e-20:
                 c4 = (m13*s5) / dt4
                 s4 = (m23*s5) / dt4
                 free4 = False
@@ -295,7 +295,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = -m13*m13 - m23*m23
-                if abs(dt4) > 1e-18:
+                if abs(dt4) > 1e-20:
                     c4 = (-m13*s5) / dt4
                     s4 = (-m23*s5) / dt4
                     free4 = False
@@ -303,7 +303,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = m13*s5
-                if abs(dt4) > 1.0000000000000001e-19:
+                if abs(dt4) > 1e-21:
                     c4 = (m13*m13) / dt4
                     s4 = (m13*m23) / dt4
                     free4 = False
@@ -363,7 +363,7 @@ def inverse(pose, current=None):
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
             ), root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4)))
-            if root5 > 0.0:
+            if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u5 = -th5

@@ -156,8 +156,8 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
         const float ec1 = 0.0f;
         const float en1 = wx*wx + wy*wy;
         const float er1 = wx*wx + wy*wy;
-        const int free1 = en1 <= 1e-13f;
-        if (free1 ? ec1 * ec1 > 1e-13f : er1 < -2e-05f * en1) {
+        const int free1 = en1 <= 1e-15f;
+        if (free1 ? ec1 * ec1 > 1e-15f : er1 < -2e-05f * en1) {
             continue;
         }
         const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
@@ -189,7 +189,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_0_4 = 290.0f*c3;
 
                 dt2 = 185600.0f*s3 + 186500.0f;
-                if (fabsf(dt2) > 1e-13f) {
+                if (fabsf(dt2) > 1e-15f) {
                     c2 = (-c3*t5_0_1 + 52200.0f*c3 + t5_0_0*t5_0_3 + 320.0f*t5_0_0 + t5_0_2*t5_0_3 + 320.0f*t5_0_2) / dt2;
                     s2 = (s3*t5_0_1 - 52200.0f*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320.0f*wz - 57600.0f) / dt2;
                     free2 = 0;
@@ -204,7 +204,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_1_5 = 290.0f*c3;
 
                 dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2.0f*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360.0f*wz - 32400.0f;
-                if (fabsf(dt2) > 1e-13f) {
+                if (fabsf(dt2) > 1e-15f) {
                     c2 = (290.0f*c3*wz - 52200.0f*c3 - t5_1_1*t5_1_4 - 320.0f*t5_1_1 - t5_1_2*t5_1_4 - 320.0f*t5_1_2) / dt2;
                     s2 = (-290.0f*s3*wz + 52200.0f*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320.0f*wz + 57600.0f) / dt2;
                     free2 = 0;
@@ -221,7 +221,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_2_7 = 290.0f*s3;
 
                 dt2 = -66816000.0f*s3 - 67140000.0f;
-                if (fabsf(dt2) > 1e-10f) {
+                if (fabsf(dt2) > 1e-12f) {
                     c2 = (-53824000.0f*c3*s3 + 290.0f*c3*t5_2_3 + 290.0f*c3*t5_2_4 + 290.0f*c3*t5_2_5 - 63481000.0f*c3 - t5_2_0*t5_2_2 - 115200.0f*t5_2_0 - t5_2_1*t5_2_2 - 115200.0f*t5_2_1) / dt2;
                     s2 = (53824000.0f*s3*s3 + 122873000.0f*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320.0f*t5_2_3 - t5_2_4*t5_2_7 - 320.0f*t5_2_4 - t5_2_5*t5_2_7 - 320.0f*t5_2_5 + 70048000.0f) / dt2;
                     free2 = 0;
@@ -284,7 +284,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             {
                 
                 dt4 = s5*s5;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (m13*s5) / dt4;
                     s4 = (m23*s5) / dt4;
                     free4 = 0;
@@ -293,7 +293,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = -m13*m13 - m23*m23;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (-m13*s5) / dt4;
                     s4 = (-m23*s5) / dt4;
                     free4 = 0;
@@ -302,7 +302,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = m13*s5;
-                if (fabsf(dt4) > 1e-19f) {
+                if (fabsf(dt4) > 1e-21f) {
                     c4 = (m13*m13) / dt4;
                     s4 = (m13*m23) / dt4;
                     free4 = 0;
@@ -366,28 +366,30 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                 out->config = 0u | (lm0 < 0.0f ? INSPECTOR6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? INSPECTOR6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? INSPECTOR6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
             }
-            if (root5 > 0.0f) if (count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
-                inspector6_ik_f32_solution *out = &solutions[count++];
-                float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
-                float u2 = th2 - 1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * -57.2957795f;
-                float u3 = th3 - 1.78896248f;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
-                float u4 = th4 + 3.14159265f;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
-                float u5 = -th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * -57.2957795f;
-                float u6 = th6 + 3.14159265f;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                out->joints[5] = u6 * 57.2957795f;
-                out->config = 0u | (lm0 < 0.0f ? INSPECTOR6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? INSPECTOR6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? INSPECTOR6_IK_F32_WRIST_FLIP : 0u);
-                out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+            if (root5 > 0.0f && !free4) {
+                if (count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
+                    inspector6_ik_f32_solution *out = &solutions[count++];
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    out->joints[0] = u1 * 57.2957795f;
+                    float u2 = th2 - 1.57079633f;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    out->joints[1] = u2 * -57.2957795f;
+                    float u3 = th3 - 1.78896248f;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    out->joints[2] = u3 * 57.2957795f;
+                    float u4 = th4 + 3.14159265f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    out->joints[3] = u4 * 57.2957795f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    out->joints[4] = u5 * -57.2957795f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    out->joints[5] = u6 * 57.2957795f;
+                    out->config = 0u | (lm0 < 0.0f ? INSPECTOR6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? INSPECTOR6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? INSPECTOR6_IK_F32_WRIST_FLIP : 0u);
+                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                }
             }
 
         }

@@ -153,8 +153,8 @@ def inverse(pose, current=None):
     ec1 = 0.12
     en1 = wx*wx + wy*wy
     er1 = wx*wx + wy*wy - 0.0144
-    free1 = en1 <= 1e-18
-    if (ec1 * ec1 > 1e-18) if free1 else (er1 < 2e-09 * -en1):
+    free1 = en1 <= 1e-20
+    if (ec1 * ec1 > 1e-20) if free1 else (er1 < 2e-09 * -en1):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -207,7 +207,7 @@ def inverse(pose, current=None):
             t5_0_7 = 0.11*s3
 
             dt2 = -0.187*c3 + 1.53*s3 - 1.5446
-            if abs(dt2) > 1e-18:
+            if abs(dt2) > 1e-20:
                 c2 = (0.0165*c3 - 0.135*s3 - t5_0_0*t5_0_4 + t5_0_0*t5_0_5 - 0.85*t5_0_0 + 0.9*t5_0_1 - t5_0_2*t5_0_4 + t5_0_2*t5_0_5 - 0.85*t5_0_2 + 0.11*t5_0_3 + 0.1275) / dt2
                 s2 = (-0.135*c3 - 0.0165*s3 + t5_0_0*t5_0_6 + t5_0_0*t5_0_7 + 0.11*t5_0_1 + t5_0_2*t5_0_6 + t5_0_2*t5_0_7 - 0.9*t5_0_3 + 0.85*wz) / dt2
                 free2 = False
@@ -225,7 +225,7 @@ def inverse(pose, current=None):
                 t5_1_9 = 0.11*s3
 
                 dt2 = 0.3*c1*wx + 0.3*s1*wy + t5_1_0*t5_1_3 - t5_1_0 - 2*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz - 0.0225
-                if abs(dt2) > 1e-18:
+                if abs(dt2) > 1e-20:
                     c2 = (0.0165*c3 - 0.135*s3 - t5_1_1*t5_1_6 + t5_1_1*t5_1_7 - 0.85*t5_1_1 - t5_1_2*t5_1_6 + t5_1_2*t5_1_7 - 0.85*t5_1_2 + 0.9*t5_1_4 + 0.11*t5_1_5 + 0.1275) / dt2
                     s2 = (-0.135*c3 - 0.0165*s3 + t5_1_1*t5_1_8 + t5_1_1*t5_1_9 + t5_1_2*t5_1_8 + t5_1_2*t5_1_9 + 0.11*t5_1_4 - 0.9*t5_1_5 + 0.85*wz) / dt2
                     free2 = False
@@ -243,7 +243,7 @@ def inverse(pose, current=None):
                 t5_2_9 = 0.11*s3
 
                 dt2 = 0.0561*c3 - 0.459*s3 + 0.46338
-                if abs(dt2) > 1e-18:
+                if abs(dt2) > 1e-20:
                     c2 = (-0.332915*c3 - 0.033*s3*wz + 2.72385*s3 + 0.3366*t5_2_0 - 0.27*t5_2_1 - 1.35643*t5_2_2 + t5_2_3*t5_2_6 - t5_2_3*t5_2_7 + 0.85*t5_2_3 + t5_2_4*t5_2_6 - t5_2_4*t5_2_7 + 0.85*t5_2_4 + t5_2_5*t5_2_6 - t5_2_5*t5_2_7 + 0.85*t5_2_5 - 1.364845) / dt2
                     s2 = (1.42335*c3 + 0.27*s3*wz + 0.173965*s3 - 1.35643*t5_2_0 - 0.033*t5_2_1 - 0.3366*t5_2_2 - t5_2_3*t5_2_8 - t5_2_3*t5_2_9 - t5_2_4*t5_2_8 - t5_2_4*t5_2_9 - t5_2_5*t5_2_8 - t5_2_5*t5_2_9 - 0.255*wz + 0.1683) / dt2
                     free2 = False
@@ -294,7 +294,7 @@ def inverse(pose, current=None):
             free4 = True
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-18:
+            if abs(dt4) > 1e-20:
                 c4 = (m13*s5) / dt4
                 s4 = (-m33*s5) / dt4
                 free4 = False
@@ -302,7 +302,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = -m13*m13 - m33*m33
-                if abs(dt4) > 1e-18:
+                if abs(dt4) > 1e-20:
                     c4 = (m13*s5) / dt4
                     s4 = (-m33*s5) / dt4
                     free4 = False
@@ -310,7 +310,7 @@ def inverse(pose, current=None):
             if free4:
                 
                 dt4 = m33*s5
-                if abs(dt4) > 1.0000000000000001e-19:
+                if abs(dt4) > 1e-21:
                     c4 = (-m13*m33) / dt4
                     s4 = (-m13*m13 + s5*s5) / dt4
                     free4 = False
@@ -368,7 +368,7 @@ def inverse(pose, current=None):
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
             ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
-            if root5 > 0.0:
+            if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u5 = -th5

@@ -129,8 +129,8 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
     const float ec1 = 0.12f;
     const float en1 = wx*wx + wy*wy;
     const float er1 = wx*wx + wy*wy - 0.0144f;
-    const int free1 = en1 <= 1e-18f;
-    if (free1 ? ec1 * ec1 > 1e-18f : er1 < -2e-05f * en1) {
+    const int free1 = en1 <= 1e-20f;
+    if (free1 ? ec1 * ec1 > 1e-20f : er1 < -2e-05f * en1) {
         if (status) *status = PACKER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -195,7 +195,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_0_7 = 0.11f*s3;
 
                 dt2 = -0.187f*c3 + 1.53f*s3 - 1.5446f;
-                if (fabsf(dt2) > 1e-18f) {
+                if (fabsf(dt2) > 1e-20f) {
                     c2 = (0.0165f*c3 - 0.135f*s3 - t5_0_0*t5_0_4 + t5_0_0*t5_0_5 - 0.85f*t5_0_0 + 0.9f*t5_0_1 - t5_0_2*t5_0_4 + t5_0_2*t5_0_5 - 0.85f*t5_0_2 + 0.11f*t5_0_3 + 0.1275f) / dt2;
                     s2 = (-0.135f*c3 - 0.0165f*s3 + t5_0_0*t5_0_6 + t5_0_0*t5_0_7 + 0.11f*t5_0_1 + t5_0_2*t5_0_6 + t5_0_2*t5_0_7 - 0.9f*t5_0_3 + 0.85f*wz) / dt2;
                     free2 = 0;
@@ -214,7 +214,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_1_9 = 0.11f*s3;
 
                 dt2 = 0.3f*c1*wx + 0.3f*s1*wy + t5_1_0*t5_1_3 - t5_1_0 - 2.0f*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz - 0.0225f;
-                if (fabsf(dt2) > 1e-18f) {
+                if (fabsf(dt2) > 1e-20f) {
                     c2 = (0.0165f*c3 - 0.135f*s3 - t5_1_1*t5_1_6 + t5_1_1*t5_1_7 - 0.85f*t5_1_1 - t5_1_2*t5_1_6 + t5_1_2*t5_1_7 - 0.85f*t5_1_2 + 0.9f*t5_1_4 + 0.11f*t5_1_5 + 0.1275f) / dt2;
                     s2 = (-0.135f*c3 - 0.0165f*s3 + t5_1_1*t5_1_8 + t5_1_1*t5_1_9 + t5_1_2*t5_1_8 + t5_1_2*t5_1_9 + 0.11f*t5_1_4 - 0.9f*t5_1_5 + 0.85f*wz) / dt2;
                     free2 = 0;
@@ -233,7 +233,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 const float t5_2_9 = 0.11f*s3;
 
                 dt2 = 0.0561f*c3 - 0.459f*s3 + 0.46338f;
-                if (fabsf(dt2) > 1e-18f) {
+                if (fabsf(dt2) > 1e-20f) {
                     c2 = (-0.332915f*c3 - 0.033f*s3*wz + 2.72385f*s3 + 0.3366f*t5_2_0 - 0.27f*t5_2_1 - 1.35643f*t5_2_2 + t5_2_3*t5_2_6 - t5_2_3*t5_2_7 + 0.85f*t5_2_3 + t5_2_4*t5_2_6 - t5_2_4*t5_2_7 + 0.85f*t5_2_4 + t5_2_5*t5_2_6 - t5_2_5*t5_2_7 + 0.85f*t5_2_5 - 1.364845f) / dt2;
                     s2 = (1.42335f*c3 + 0.27f*s3*wz + 0.173965f*s3 - 1.35643f*t5_2_0 - 0.033f*t5_2_1 - 0.3366f*t5_2_2 - t5_2_3*t5_2_8 - t5_2_3*t5_2_9 - t5_2_4*t5_2_8 - t5_2_4*t5_2_9 - t5_2_5*t5_2_8 - t5_2_5*t5_2_9 - 0.255f*wz + 0.1683f) / dt2;
                     free2 = 0;
@@ -291,7 +291,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             {
                 
                 dt4 = -s5*s5;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (m13*s5) / dt4;
                     s4 = (-m33*s5) / dt4;
                     free4 = 0;
@@ -300,7 +300,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = -m13*m13 - m33*m33;
-                if (fabsf(dt4) > 1e-18f) {
+                if (fabsf(dt4) > 1e-20f) {
                     c4 = (m13*s5) / dt4;
                     s4 = (-m33*s5) / dt4;
                     free4 = 0;
@@ -309,7 +309,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             if (free4) {
                 
                 dt4 = m33*s5;
-                if (fabsf(dt4) > 1e-19f) {
+                if (fabsf(dt4) > 1e-21f) {
                     c4 = (-m13*m33) / dt4;
                     s4 = (-m13*m13 + s5*s5) / dt4;
                     free4 = 0;
@@ -370,28 +370,30 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 out->config = 0u | (lm0 < 0.0f ? PACKER6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? PACKER6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? PACKER6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
             }
-            if (root5 > 0.0f) if (count < PACKER6_IK_F32_MAX_SOLUTIONS) {
-                packer6_ik_f32_solution *out = &solutions[count++];
-                float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 1.0f;
-                float u2 = th2 - -1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 1.0f;
-                float u3 = th3;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 1.0f;
-                float u4 = th4 + 3.14159265f;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 1.0f;
-                float u5 = -th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * 1.0f;
-                float u6 = th6 + 3.14159265f;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                out->joints[5] = u6 * 1.0f;
-                out->config = 0u | (lm0 < 0.0f ? PACKER6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? PACKER6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? PACKER6_IK_F32_WRIST_FLIP : 0u);
-                out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+            if (root5 > 0.0f && !free4) {
+                if (count < PACKER6_IK_F32_MAX_SOLUTIONS) {
+                    packer6_ik_f32_solution *out = &solutions[count++];
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    out->joints[0] = u1 * 1.0f;
+                    float u2 = th2 - -1.57079633f;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    out->joints[1] = u2 * 1.0f;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    out->joints[2] = u3 * 1.0f;
+                    float u4 = th4 + 3.14159265f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    out->joints[3] = u4 * 1.0f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    out->joints[4] = u5 * 1.0f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    out->joints[5] = u6 * 1.0f;
+                    out->config = 0u | (lm0 < 0.0f ? PACKER6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? PACKER6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? PACKER6_IK_F32_WRIST_FLIP : 0u);
+                    out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                }
             }
 
         }

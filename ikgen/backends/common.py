@@ -146,6 +146,16 @@ class Plan:
     guard_tolerance: float = GUARD_TOLERANCE
 
     @property
+    def mirror_condition(self) -> list[str]:
+        """Terms (generated names) that must all hold to emit the mirrored solution: a real second
+        root, and no later joint left free (at a singular wrist the copy would move the kept joint)."""
+        m = self.mirror
+        terms = [f"root{m.joint} > 0.0"]
+        terms += [f"not free{b.joint}" for b in self.blocks
+                  if b.kind == "pair" and b.free_possible and b.joint in m.parities]
+        return terms
+
+    @property
     def bounded_joints(self) -> set[int]:
         """Joints whose DH angle is always an atan2 result in [-pi, pi] (never a caller's value)."""
         out = set()

@@ -1,0 +1,369 @@
+"""The derivation IR and the generated Python solver: structure, hygiene, edge poses, determinism,
+arms outside the family, and arms with reversed directions, offsets and base/tool frames.
+
+Facts used as expectations (common practice, recalled from memory):
+- Pieper's decoupling of a 6R arm with a spherical wrist (D. L. Pieper, PhD thesis, Stanford,
+  1968): the wrist centre is found from the pose first, the arm joints 1-3 from it, the wrist
+  joints 4-6 from R36; at most 2 (shoulder) x 2 (elbow) x 2 (wrist) = 8 solutions for the arms
+  here (Spong, Hutchinson, Vidyasagar, *Robot Modeling and Control*, 1st ed., 2006, ch. 5).
+- A spherical wrist is singular when its middle joint lines up axes 4 and 6; then only the sum
+  (or difference) of joints 4 and 6 is determined ([SHV] ch. 5, inverse orientation; from memory).
+- An arm without a shoulder offset is singular when the wrist centre lies on axis 1: joint 1 is
+  then undetermined ([SHV] ch. 5, inverse position; from memory).
+"""
+
+from __future__ import annotations
+
+import ast
+import math
+import tomllib
+
+import numpy as np
+import pytest
+
+from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
+from ikgen.armfile import arm_from_data
+from ikgen.errors import StructureError
+from ikgen.generate import build, load_module
+from ikgen.ir import Compute, CosSinEquation
+from ikgen.kinematics import NumericChain
+from ikgen.verify import verify
+
+DEMOS = [p.stem for p in DEMO_FILES]
+
+
+@pytest.fixture(scope="module")
+def demos():
+    """{stem: (arm, Build, module)} for the three demo arms, each derived once."""
+    out = {}
+    for stem in DEMOS:
+        arm = demo_arm(stem)
+        result = build(arm)
+        out[stem] = (arm, result, load_module(result.files[result.python_path], result.folder))
+    return out
+
+
+# --------------------------------------------------------------------------- IR structure
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_ir_structure(demos, stem):
+    arm, result, _ = demos[stem]
+    derivation = result.derivation
+    steps = derivation.steps
+    # The wrist centre comes first, from the pose alone.
+    assert isinstance(steps[0], Compute)
+    assert [str(n) for n in steps[0].names] == ["wx", "wy", "wz"]
+    # Each joint is solved exactly once, the arm joints (1-3) before the wrist joints (4-6).
+    order = derivation.solved_joints()
+    assert sorted(order) == [1, 2, 3, 4, 5, 6]
+    assert max(order.index(j) for j in (1, 2, 3)) < min(order.index(j) for j in (4, 5, 6))
+    # The three two-way choices: shoulder at joint 1, elbow at joint 2 or 3, wrist at joint 5.
+    branches = {s.branch.name: s.joint for s in steps if isinstance(s, CosSinEquation)}
+    assert set(branches) == {"shoulder", "elbow", "wrist"}
+    assert branches["shoulder"] == 1 and branches["elbow"] in (2, 3) and branches["wrist"] == 5
+    assert [b.name for b in derivation.branch_points()] == \
+        [s.branch.name for s in steps if isinstance(s, CosSinEquation)]
+    assert derivation.max_solutions == 8
+    assert any("spherical wrist" in line for line in derivation.analysis)
+    # str() prints every step with its description, and the labels and outputs.
+    text = str(derivation)
+    for number, step in enumerate(steps, 1):
+        assert f"step {number}:" in text
+        for line in step.describe():
+            assert line in text
+    assert f"step {len(steps) + 1}:" not in text
+    for label in derivation.labels:
+        assert f"label {label.name}:" in text
+    for j in arm.joints:
+        assert f"output joint {j.index} '{j.name}'" in text
+    assert result.files[f"{result.folder}/{result.folder}_derivation.txt"] == text + "\n"
+
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_generated_source_imports_only_math_and_has_no_acos_asin(demos, stem):
+    _, result, module = demos[stem]
+    tree = ast.parse(result.files[result.python_path])
+    imports = [node for node in ast.walk(tree) if isinstance(node, (ast.Import, ast.ImportFrom))]
+    assert imports, "the solver must import math"
+    for node in imports:
+        modules = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module]
+        assert modules == ["math"], f"line {node.lineno} imports {modules}"
+    names = {n.id for n in ast.walk(tree) if isinstance(n, ast.Name)} | \
+            {n.attr for n in ast.walk(tree) if isinstance(n, ast.Attribute)} | \
+            {a.name for n in ast.walk(tree) if isinstance(n, ast.ImportFrom) for a in n.names}
+    for banned in ("acos", "asin", "acosh", "asinh", "log", "pow"):
+        assert banned not in names
+    assert "sqrt" in names and "atan2" in names
+    assert module.MAX_SOLUTIONS == 8 and module.JOINT_COUNT == 6
+
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_unreachable_and_non_finite_poses_give_no_solution(demos, stem):
+    arm, _, module = demos[stem]
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(3)
+    limits = arm.limits_in_readings()
+    for _ in range(30):
+        pose = chain.pose(limits[:, 0] + rng.random(6) * (limits[:, 1] - limits[:, 0]))
+        assert module.inverse(pose)                     # reachable as built
+        direction = rng.normal(size=3)
+        pose[:3, 3] += 3.0 * arm.reach_scale() * direction / np.linalg.norm(direction)
+        assert module.inverse(pose) == []
+    good = chain.pose(np.zeros(6))
+    for bad_value in (math.nan, math.inf, -math.inf):
+        for entry in ((0, 0), (1, 3), (2, 2)):
+            pose = good.copy()
+            pose[entry] = bad_value
+            assert module.inverse(pose) == []
+            assert module.inverse(pose, current=[0.0] * 6) == []
+
+
+# ------------------------------------------------------------------------- singular poses
+
+def wrap_reading(value: float, arm) -> float:
+    turn = 2 * math.pi / arm.angle_scale
+    return (value + turn / 2) % turn - turn / 2
+
+
+def assert_reproduces(arm, module, pose, current, tolerance_scale=1e3):
+    """Every solution is finite and reproduces the pose (within 1e3 x the regular round-trip
+    tolerance, as ikgen.verify allows at singular poses); returns the solutions."""
+    chain = NumericChain(arm)
+    solutions = module.inverse(pose, current)
+    assert solutions, "an exactly singular pose within reach gave no solution"
+    for joints, _, _ in solutions:
+        assert np.all(np.isfinite(joints))
+        reached = chain.pose(np.array(joints))
+        assert np.max(np.abs(reached[:3, 3] - pose[:3, 3])) < tolerance_scale * 1e-9 * arm.reach_scale()
+        assert np.max(np.abs(reached[:3, :3] - pose[:3, :3])) < tolerance_scale * 1e-9
+    return solutions
+
+
+def same_readings(p, q, arm, tol=1e-7) -> bool:
+    return all(abs(wrap_reading(a - b, arm)) < tol for a, b in zip(p, q))
+
+
+def free_wrist_joint(derivation) -> int:
+    """The wrist joint (4 or 6) solved first after joint 5: it is the one left free."""
+    order = [j for j in derivation.solved_joints() if j in (4, 6)]
+    return order[0]
+
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_wrist_singularity(demos, stem):
+    arm, result, module = demos[stem]
+    chain = NumericChain(arm)
+    free = free_wrist_joint(result.derivation)
+    j5 = arm.joints[4]
+    rng = np.random.default_rng(46)
+    limits = arm.limits_in_readings()
+    for trial in range(6):
+        q = limits[:, 0] + (0.1 + 0.8 * rng.random(6)) * (limits[:, 1] - limits[:, 0])
+        # joint 5's DH angle is 0 or pi when axes 4 and 6 line up; pick the one that does here
+        for dh_angle in (0.0, math.pi):
+            q[4] = wrap_reading((dh_angle - float(j5.theta) - float(j5.offset)) / j5.direction / arm.angle_scale, arm)
+            _, axes = chain.joint_axes(q)
+            if np.linalg.norm(np.cross(axes[3], axes[5])) < 1e-12:
+                break
+        else:
+            pytest.fail(f"{stem}: no joint 5 reading lines up axes 4 and 6")
+        pose = chain.pose(q)
+        current = q.copy()
+        current[free - 1] = wrap_reading(q[free - 1] + 37.0 * (1 + trial) * math.pi / 180 / arm.angle_scale, arm)
+        for hint, expected in ((list(current), current[free - 1]), (None, 0.0)):   # no hint: 0
+            solutions = assert_reproduces(arm, module, pose, hint)
+            # The source's arm configuration (joints 1-3) is the one whose wrist is singular.
+            at_source = [s for s in solutions if same_readings(s[0][:3], q[:3], arm)]
+            assert at_source, "the source arm configuration is missing"
+            assert all(s[2] is True for s in at_source), "not flagged singular"
+            assert any(abs(wrap_reading(s[0][free - 1] - expected, arm)) < 1e-9 for s in at_source), \
+                (f"joint {free} should keep the reading {expected}; got "
+                 f"{[round(s[0][free - 1], 9) for s in at_source]}")
+
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_near_wrist_singularity_is_accurate_or_flagged(demos, stem):
+    """Joint 5 a small angle away from lining up axes 4 and 6: every solution reproduces the pose
+    to the regular round-trip tolerance (1e-9, as ikgen.verify) or is flagged singular and then
+    still within 1e3 times that (the allowance ikgen.verify makes at singular poses)."""
+    arm, _, module = demos[stem]
+    chain = NumericChain(arm)
+    j5 = arm.joints[4]
+    limits = arm.limits_in_readings()
+    rng = np.random.default_rng(99)
+    for away in (1e-3, 1e-6, 1e-8, 9.9e-10, 5e-10, 1e-11, -1e-9, -1e-13):     # radians
+        for _ in range(5):
+            q = limits[:, 0] + (0.1 + 0.8 * rng.random(6)) * (limits[:, 1] - limits[:, 0])
+            q[4] = (away - float(j5.theta) - float(j5.offset)) / j5.direction / arm.angle_scale
+            pose = chain.pose(q)
+            solutions = module.inverse(pose, list(q))
+            assert any(same_readings(s[0][:3], q[:3], arm) for s in solutions)
+            for joints, _, singular in solutions:
+                reached = chain.pose(np.array(joints))
+                position = np.max(np.abs(reached[:3, 3] - pose[:3, 3])) / arm.reach_scale()
+                rotation = np.max(np.abs(reached[:3, :3] - pose[:3, :3]))
+                limit = 1e-6 if singular else 1e-9
+                assert position < limit and rotation < limit, \
+                    f"{stem}: q5 {away} rad from the singularity: errors {position:.2g}, {rotation:.2g} " \
+                    f"(singular flag {singular})"
+
+
+def on_axis_1(arm, readings: np.ndarray) -> np.ndarray:
+    """Distance of the wrist centre (where axes 4 and 5 meet) from axis 1, per joint vector."""
+    chain = NumericChain(arm)
+    out = []
+    for q in readings:
+        origins, axes = chain.joint_axes(q)
+        # closest points of axes 4 and 5 (they meet at the wrist centre)
+        b = axes[3] @ axes[4]
+        w0 = origins[3] - origins[4]
+        t = (b * (axes[4] @ w0) - axes[3] @ w0) / (1 - b * b)
+        centre = origins[3] + t * axes[3]
+        rel = centre - origins[0]
+        out.append(np.linalg.norm(rel - (rel @ axes[0]) * axes[0]))
+    return np.array(out)
+
+
+@pytest.fixture(scope="module")
+def special_arms():
+    """Arms with reversed directions, zero and non-zero offsets, and base/tool frames, in both
+    conventions (invented dimensions), each derived once: {name: (arm, Build, module)}."""
+    standard = build_arm(
+        [joint(a=0, alpha=90, d=330, direction=-1, limits=[-170, 170]),
+         joint(a=420, alpha=0, d=0, theta=-90, offset=15, limits=[-130, 130]),
+         joint(a=0, alpha=90, d=0, theta=90, direction=-1, limits=[-150, 150]),
+         joint(a=0, alpha=-90, d=390, offset=-30, limits=[-180, 180]),
+         joint(a=0, alpha=90, d=0, direction=-1, limits=[-120, 120]),
+         joint(a=0, alpha=0, d=0, offset=45, limits=[-180, 180])],
+        convention="standard", length_unit="mm", angle_unit="deg", name="reversed_standard",
+        base={"translation": [120, -40, 800], "rotation": {"quaternion": [0.9238795325, 0, 0.3826834324, 0],
+                                                            "order": "wxyz"}},
+        tool={"translation": [0, 15, 110], "rotation": {"axes": "zyx", "frame": "moving", "angles": [30, 0, 90]}})
+    modified = build_arm(
+        [joint(a=0, alpha=0, d=0.25, direction=-1),
+         joint(a=0.08, alpha="-pi/2", d=0, theta="-pi/2", direction=-1),
+         joint(a=0.6, alpha=0, d=-0.09, offset="pi/6"),
+         joint(a=0, alpha="-pi/2", d=0.55, direction=-1),
+         joint(a=0, alpha="pi/2", d=0),
+         joint(a=0, alpha="-pi/2", d=0, theta="pi", direction=-1)],
+        convention="modified", length_unit="m", angle_unit="rad", name="reversed_modified",
+        base={"translation": [0, 0, 2.1], "rotation": {"axes": "xyz", "frame": "fixed", "angles": ["pi", 0, "pi/3"]}},
+        tool={"translation": [0.02, 0, 0.12],
+              "rotation": {"matrix": [[0, 0, 1], [0, 1, 0], [-1, 0, 0]]}})
+    out = {}
+    for arm in (standard, modified):
+        result = build(arm)
+        out[arm.name] = (arm, result, load_module(result.files[result.python_path], result.folder))
+    return out
+
+
+@pytest.mark.parametrize("which", ["inspector6", "reversed_standard"])
+def test_shoulder_singularity(demos, special_arms, which):
+    """Wrist centre exactly on axis 1 (arms without a shoulder offset): joint 1 keeps `current`."""
+    arm, _, module = (demos | special_arms)[which]
+    limits = arm.limits_in_readings()
+    rng = np.random.default_rng(11)
+    found = 0
+    for trial in range(40):
+        if found == 5:
+            break
+        q = limits[:, 0] + (0.1 + 0.8 * rng.random(6)) * (limits[:, 1] - limits[:, 0])
+        # the wrist centre crosses axis 1 as joint 2 turns: find a sign change of the distance
+        # measured along frame 1's in-plane direction, then bisect it to machine precision
+        grid = np.linspace(limits[1, 0], limits[1, 1], 241)
+        trial_q = np.repeat(q[None, :], len(grid), axis=0)
+        trial_q[:, 1] = grid
+        signed = signed_axis_1(arm, trial_q)
+        crossing = np.nonzero(np.sign(signed[:-1]) * np.sign(signed[1:]) < 0)[0]
+        if len(crossing) == 0:
+            continue
+        lo, hi = grid[crossing[0]], grid[crossing[0] + 1]
+        f_lo = signed[crossing[0]]
+        for _ in range(200):
+            mid = 0.5 * (lo + hi)
+            q[1] = mid
+            f_mid = signed_axis_1(arm, q[None, :])[0]
+            if f_mid == 0 or hi - lo <= 4e-16 * max(1.0, abs(mid)):
+                break
+            if np.sign(f_mid) == np.sign(f_lo):
+                lo, f_lo = mid, f_mid
+            else:
+                hi = mid
+        assert on_axis_1(arm, q[None, :])[0] < 1e-12 * arm.reach_scale()
+        found += 1
+        pose = NumericChain(arm).pose(q)
+        current = q.copy()
+        current[0] = wrap_reading(q[0] + 50.0 * math.pi / 180 / arm.angle_scale, arm)
+        for joints, _, singular in assert_reproduces(arm, module, pose, list(current)):
+            assert singular is True
+            assert abs(wrap_reading(joints[0] - current[0], arm)) < 1e-9
+    assert found == 5, f"{which}: found only {found} shoulder-singular poses"
+
+
+def signed_axis_1(arm, readings: np.ndarray) -> np.ndarray:
+    """on_axis_1 with a sign: the component along the horizontal direction of the arm's plane."""
+    chain = NumericChain(arm)
+    out = []
+    for q in readings:
+        origins, axes = chain.joint_axes(q)
+        b = axes[3] @ axes[4]
+        w0 = origins[3] - origins[4]
+        t = (b * (axes[4] @ w0) - axes[3] @ w0) / (1 - b * b)
+        rel = origins[3] + t * axes[3] - origins[0]
+        radial = np.cross(axes[1], axes[0])           # in the arm's plane, perpendicular to axis 1
+        out.append(rel @ radial)
+    return np.array(out)
+
+
+# ---------------------------------------------------------------------------- determinism
+
+def test_building_twice_gives_identical_bytes(demos):
+    arm, first, _ = demos["benchtop6"]
+    second = build(demo_arm("benchtop6"))
+    assert sorted(first.files) == sorted(second.files)
+    for path in first.files:
+        assert first.files[path].encode("utf-8") == second.files[path].encode("utf-8"), path
+
+
+# ------------------------------------------------------------------ arms outside the family
+
+def benchtop_data() -> dict:
+    return tomllib.loads((EXAMPLES / "benchtop6.toml").read_text(encoding="utf-8"))
+
+
+def test_wrist_axes_not_meeting_is_refused_with_the_reason():
+    data = benchtop_data()
+    data["joint"][3]["a"] = 12          # a4 = 12 mm: axes 4 and 5 no longer meet
+    with pytest.raises(StructureError) as caught:
+        build(arm_from_data(data))
+    message = str(caught.value)
+    assert "axes 4 and 5" in message and "12 mm apart" in message
+    assert "do not meet" in message
+    assert caught.value.exit_code == 3
+
+
+def test_five_joints_are_refused():
+    data = benchtop_data()
+    del data["joint"][5]
+    with pytest.raises(StructureError, match=r"5 joints.*needs 6"):
+        build(arm_from_data(data))
+
+
+def test_prismatic_joint_is_refused():
+    data = benchtop_data()
+    data["joint"][2] = joint("p", a=20, alpha=-90, d=0, name="slide", limits=[0, 300])
+    with pytest.raises(StructureError, match=r"joint\(s\) 3 .*prismatic"):
+        build(arm_from_data(data))
+
+
+# ------------------------------------------------------------- special arms verify clean
+
+@pytest.mark.parametrize("name", ["reversed_standard", "reversed_modified"])
+def test_reversed_directions_offsets_and_frames_verify_clean(special_arms, name):
+    arm, result, module = special_arms[name]
+    assert result.derivation.max_solutions == 8
+    report = verify(arm, module, samples=300, seed=7)
+    assert report.passed, report.failures
+    assert report.checked >= 290 and report.complete == report.checked
+    assert sum(report.singular_tested.values()) > 0
+    assert report.unreachable_ok == report.unreachable_tested > 0
