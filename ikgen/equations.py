@@ -29,10 +29,21 @@ ZERO_TOLERANCE = 1e-9   # relative: a coefficient below this on every sample is 
 
 @dataclass(frozen=True)
 class Equation:
-    expr: sp.Expr               # the equation is expr = 0
+    expr: sp.Expr               # the equation is expr = 0, in pose quantities and joint cos/sin
     source: str                 # where it came from, in words
-    joints: frozenset[int]      # joints whose cos/sin appear
+    joints: frozenset[int]      # joints whose cos/sin appear in expr
     group: str = ""             # equations from one vector or matrix equation share a group
+    levels: tuple = ()          # ((m, expr_m), ...): the same equation written with a named
+                                # intermediate that hides joints 1..m (e.g. the wrist centre in frame m)
+
+    def form_for(self, known: set) -> sp.Expr:
+        """The shortest form usable when ``known`` joints are known: the deepest level whose
+        hidden joints 1..m are all known."""
+        best = self.expr
+        for m, expr in self.levels:
+            if set(range(1, m + 1)) <= set(known):
+                best = expr
+        return best
 
 
 def trig_pairs(joints) -> list[sp.Symbol]:
@@ -74,11 +85,15 @@ def joints_in(expr: sp.Expr, candidates) -> frozenset[int]:
     return frozenset(j for j in candidates if expr.has(cos_symbol(j)) or expr.has(sin_symbol(j)))
 
 
-def make_equation(lhs: sp.Expr, rhs: sp.Expr, source: str, joints, group: str = "") -> Equation | None:
+def make_equation(lhs: sp.Expr, rhs: sp.Expr, source: str, joints, group: str = "",
+                  levels: tuple = ()) -> Equation | None:
+    """``lhs = rhs`` as an Equation in the base quantities; ``levels`` holds ((m, lhs_m), ...):
+    the left side rewritten with intermediates that hide joints 1..m."""
     expr = reduce_trig(lhs - rhs, joints)
     if expr == 0:
         return None
-    return Equation(expr, source, joints_in(expr, joints), group)
+    forms = tuple((m, reduce_trig(lhs_m - rhs, joints)) for m, lhs_m in levels)
+    return Equation(expr, source, joints_in(expr, joints), group, forms)
 
 
 class Samples:
@@ -129,9 +144,9 @@ class Linear:
     equation: Equation
 
 
-def as_linear(equation: Equation, joint: int) -> Linear | None:
+def as_linear(equation: Equation, joint: int, known: set = frozenset()) -> Linear | None:
     c, s = cos_symbol(joint), sin_symbol(joint)
-    poly = sp.Poly(equation.expr, c, s)
+    poly = sp.Poly(equation.form_for(known), c, s)
     if poly.total_degree() > 1:
         return None
     a = poly.coeff_monomial(c)
@@ -196,7 +211,7 @@ class GreedySolver:
         for equation in pool:
             if equation.joints - known != {joint}:
                 continue
-            linear = as_linear(equation, joint)
+            linear = as_linear(equation, joint, known)
             if linear is None:
                 continue
             scale = max(self.samples.magnitude(linear.a), self.samples.magnitude(linear.b),

@@ -114,7 +114,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
     const double wy = py - 165.0*r23;
     const double wz = pz - 165.0*r33;
 
-    /* joint 1: y of (A1..A3)^-1 w = c3
+    /* joint 1: y of v3 = (A1..A3)^-1 w = c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
     const double ea1 = -wy;
@@ -145,21 +145,20 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
         }
 
 
-        /* joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        /* wrist centre in DH frame 1 */
+        const double v1x = c1*wx + s1*wy - 25.0;
+        const double v1y = 220.0 - wz;
+        const double v1z = c1*wy - s1*wx;
+
+        /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t3_0 = wx*wx;
-        const double t3_1 = wy*wy;
-        const double t3_2 = wz*wz;
-        const double t3_3 = 440.0*wz;
-        const double t3_4 = 50.0*c1*wx;
-        const double t3_5 = 50.0*s1*wy;
-        const double t3_6 = -t3_0 - t3_1 - t3_2 + t3_3 + t3_4 + t3_5;
+        const double t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
 
         const double ea3 = -10400.0;
         const double eb3 = 124800.0;
-        const double ec3 = t3_6 + 76575.0;
+        const double ec3 = 125600.0 - t4_0;
         const double en3 = 15683200000.0;
-        const double er3 = (t3_6 + 201807.58361943989)*(t3_0 + t3_1 + t3_2 - t3_3 - t3_4 - t3_5 + 48657.583619439873);
+        const double er3 = (250832.58361943989 - t4_0)*(t4_0 - 367.41638056012698);
         if (er3 < -2.0000000000000001e-09 * en3) {
             continue;
         }
@@ -179,52 +178,38 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             double th2, c2 = 0.0, s2 = 0.0, dt2;
             int free2 = 1;
             {
-                const double t4_0_0 = c1*wx;
-                const double t4_0_1 = c3*wz;
-                const double t4_0_2 = s1*wy;
-                const double t4_0_3 = 20.0*c3;
-                const double t4_0_4 = 240.0*s3;
-                const double t4_0_5 = 240.0*c3;
-                const double t4_0_6 = 20.0*s3;
+                const double t5_0_0 = 20.0*v1x;
+                const double t5_0_1 = c3*v1y;
+                const double t5_0_2 = s3*v1y;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabs(dt2) > 9.9999999999999988e-16) {
+                    c2 = (-c3*t5_0_0 + 240.0*s3*v1x - 240.0*t5_0_1 - 20.0*t5_0_2 - 260.0*v1x) / dt2;
+                    s2 = (240.0*c3*v1x + s3*t5_0_0 - 20.0*t5_0_1 + 240.0*t5_0_2 - 260.0*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t5_1_0 = 20.0*v1x;
+                const double t5_1_1 = 240.0*v1x;
+                const double t5_1_2 = s3*v1y;
 
                 dt2 = 10400.0*c3 - 124800.0*s3 + 125600.0;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (52300.0*c3 - 20.0*s3*wz + 10400.0*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260.0*t4_0_0 - 240.0*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260.0*t4_0_2 - 6500.0) / dt2;
-                    s2 = (10400.0*c3 + 240.0*s3*wz - 52300.0*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20.0*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260.0*wz + 57200.0) / dt2;
+                    c2 = (c3*t5_1_0 + 240.0*c3*v1y - s3*t5_1_1 + 20.0*t5_1_2 + 260.0*v1x) / dt2;
+                    s2 = (-c3*t5_1_1 + 20.0*c3*v1y - s3*t5_1_0 - 240.0*t5_1_2 + 260.0*v1y) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const double t4_1_0 = wx*wx;
-                const double t4_1_1 = c1*wx;
-                const double t4_1_2 = s1*wy;
-                const double t4_1_3 = s1*s1;
-                const double t4_1_4 = 20.0*c3;
-                const double t4_1_5 = 240.0*c3;
-                const double t4_1_6 = 20.0*s3;
+                const double t5_2_0 = v1x*v1x;
+                const double t5_2_1 = v1y*v1y;
+                const double t5_2_2 = v1z*v1z;
 
-                dt2 = 50.0*c1*wx + 50.0*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2.0*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440.0*wz - 49025.0;
-                if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (240.0*c1*s3*wx + 240.0*c3*wz - 52300.0*c3 + 240.0*s1*s3*wy + 20.0*s3*wz - 10400.0*s3 - t4_1_1*t4_1_4 - 260.0*t4_1_1 - t4_1_2*t4_1_4 - 260.0*t4_1_2 + 6500.0) / dt2;
-                    s2 = (20.0*c3*wz - 10400.0*c3 - 240.0*s3*wz + 52300.0*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260.0*wz - 57200.0) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const double t4_2_0 = c3*s3;
-                const double t4_2_1 = s3*s3;
-                const double t4_2_2 = wx*wx;
-                const double t4_2_3 = wy*wy;
-                const double t4_2_4 = wz*wz;
-                const double t4_2_5 = 20.0*c3;
-                const double t4_2_6 = 240.0*s3;
-                const double t4_2_7 = 240.0*c3;
-                const double t4_2_8 = 20.0*s3;
-
-                dt2 = 520000.0*c3 - 6240000.0*s3 + 6280000.0;
-                if (fabs(dt2) > 9.999999999999999e-14) {
-                    c2 = (-20800.0*c3*wz - 1620500.0*c3 + 104600.0*s3*wz + 51346000.0*s3 + 4992000.0*t4_2_0 - 29744000.0*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260.0*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260.0*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260.0*t4_2_4 - 114400.0*wz - 20442500.0) / dt2;
-                    s2 = (104600.0*c3*wz + 18898000.0*c3 + 20800.0*s3*wz - 1083500.0*s3 - 29744000.0*t4_2_0 - 4992000.0*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000.0*wz + 5356000.0) / dt2;
+                dt2 = -520.0*t5_2_0 - 520.0*t5_2_1;
+                if (fabs(dt2) > 9.9999999999999998e-13) {
+                    c2 = (-124800.0*c3*v1y - 10400.0*s3*v1y - t5_2_1*v1x - t5_2_2*v1x - v1x*v1x*v1x - 9600.0*v1x) / dt2;
+                    s2 = (124800.0*c3*v1x + 10400.0*s3*v1x - t5_2_0*v1y - t5_2_2*v1y - v1y*v1y*v1y - 9600.0*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -240,18 +225,18 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const double t5_0 = c2*s3;
-            const double t5_1 = c3*s2;
-            const double t5_2 = s2*s3;
-            const double t5_3 = c1*r13;
-            const double t5_4 = r23*s1;
-            const double m11 = c1*c2*c3*r11 - c1*r11*t5_2 + c2*c3*r21*s1 - r21*s1*t5_2 - r31*t5_0 - r31*t5_1;
-            const double m12 = c1*c2*c3*r12 - c1*r12*t5_2 + c2*c3*r22*s1 - r22*s1*t5_2 - r32*t5_0 - r32*t5_1;
-            const double m13 = c1*c2*c3*r13 + c2*c3*r23*s1 - r33*t5_0 - r33*t5_1 - t5_2*t5_3 - t5_2*t5_4;
+            const double t6_0 = c1*r11 + r21*s1;
+            const double t6_1 = c1*r12 + r22*s1;
+            const double t6_2 = c1*r13 + r23*s1;
+            const double t6_3 = c2*t6_2 - r33*s2;
+            const double t6_4 = -c2*r33 - s2*t6_2;
+            const double m11 = c3*(c2*t6_0 - r31*s2) + s3*(-c2*r31 - s2*t6_0);
+            const double m12 = c3*(c2*t6_1 - r32*s2) + s3*(-c2*r32 - s2*t6_1);
+            const double m13 = c3*t6_3 + s3*t6_4;
             const double m21 = -c1*r21 + r11*s1;
             const double m22 = -c1*r22 + r12*s1;
             const double m23 = -c1*r23 + r13*s1;
-            const double m33 = -c2*c3*r33 + r33*s2*s3 - t5_0*t5_3 - t5_0*t5_4 - t5_1*t5_3 - t5_1*t5_4;
+            const double m33 = c3*t6_4 - s3*t6_3;
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -332,15 +317,9 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             th6 = atan2(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const double tl_0 = c1*wx;
-            const double tl_1 = s1*wy;
-            const double tl_2 = wx*wx;
-            const double tl_3 = 260.0*s2;
-            const double tl_4 = 260.0*c2*wz;
-            const double tl_5 = s1*s1;
 
-            const double lm0 = tl_0 + tl_1;
-            const double lm1 = 57200.0*c1*c2*wx + 13000.0*c1*s2*wx + 57200.0*c2*s1*wy + 6500.0*c2*wz - 1430000.0*c2 + 13000.0*s1*s2*wy - 520.0*s2*tl_0*tl_1 + 260.0*s2*tl_2*tl_5 - 162500.0*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy;
+            const double lm0 = v1x + 25.0;
+            const double lm1 = 260.0*v1x*(c2*v1y - s2*v1x);
             const double lm2 = s5;
             if (count < BENCHTOP6_IK_MAX_SOLUTIONS) {
                 benchtop6_ik_solution *out = &solutions[count++];

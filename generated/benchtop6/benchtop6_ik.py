@@ -138,7 +138,7 @@ def inverse(pose, current=None):
     wy = py - 165*r23
     wz = pz - 165*r33
 
-    # joint 1: y of (A1..A3)^-1 w = c3
+    # joint 1: y of v3 = (A1..A3)^-1 w = c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
 
     ea1 = -wy
@@ -163,21 +163,20 @@ def inverse(pose, current=None):
             s1 = sn1 / en1
 
 
-        # joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        # wrist centre in DH frame 1
+        v1x = c1*wx + s1*wy - 25
+        v1y = 220 - wz
+        v1z = c1*wy - s1*wx
+
+        # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t3_0 = wx*wx
-        t3_1 = wy*wy
-        t3_2 = wz*wz
-        t3_3 = 440*wz
-        t3_4 = 50*c1*wx
-        t3_5 = 50*s1*wy
-        t3_6 = -t3_0 - t3_1 - t3_2 + t3_3 + t3_4 + t3_5
+        t4_0 = v1x*v1x + v1y*v1y + v1z*v1z
 
         ea3 = -10400
         eb3 = 124800
-        ec3 = t3_6 + 76575
+        ec3 = 125600 - t4_0
         en3 = 15683200000
-        er3 = (t3_6 + 201807.5836194399)*(t3_0 + t3_1 + t3_2 - t3_3 - t3_4 - t3_5 + 48657.58361943987)
+        er3 = (250832.5836194399 - t4_0)*(t4_0 - 367.416380560127)
         if er3 < 2e-09 * -en3:
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
@@ -191,50 +190,36 @@ def inverse(pose, current=None):
 
             # joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t4_0_0 = c1*wx
-            t4_0_1 = c3*wz
-            t4_0_2 = s1*wy
-            t4_0_3 = 20*c3
-            t4_0_4 = 240*s3
-            t4_0_5 = 240*c3
-            t4_0_6 = 20*s3
+            t5_0_0 = 20*v1x
+            t5_0_1 = c3*v1y
+            t5_0_2 = s3*v1y
 
-            dt2 = 10400*c3 - 124800*s3 + 125600
+            dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (52300*c3 - 20*s3*wz + 10400*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260*t4_0_0 - 240*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260*t4_0_2 - 6500) / dt2
-                s2 = (10400*c3 + 240*s3*wz - 52300*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260*wz + 57200) / dt2
+                c2 = (-c3*t5_0_0 + 240*s3*v1x - 240*t5_0_1 - 20*t5_0_2 - 260*v1x) / dt2
+                s2 = (240*c3*v1x + s3*t5_0_0 - 20*t5_0_1 + 240*t5_0_2 - 260*v1y) / dt2
                 free2 = False
 
             if free2:
-                t4_1_0 = wx*wx
-                t4_1_1 = c1*wx
-                t4_1_2 = s1*wy
-                t4_1_3 = s1*s1
-                t4_1_4 = 20*c3
-                t4_1_5 = 240*c3
-                t4_1_6 = 20*s3
+                t5_1_0 = 20*v1x
+                t5_1_1 = 240*v1x
+                t5_1_2 = s3*v1y
 
-                dt2 = 50*c1*wx + 50*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440*wz - 49025
+                dt2 = 10400*c3 - 124800*s3 + 125600
                 if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (240*c1*s3*wx + 240*c3*wz - 52300*c3 + 240*s1*s3*wy + 20*s3*wz - 10400*s3 - t4_1_1*t4_1_4 - 260*t4_1_1 - t4_1_2*t4_1_4 - 260*t4_1_2 + 6500) / dt2
-                    s2 = (20*c3*wz - 10400*c3 - 240*s3*wz + 52300*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260*wz - 57200) / dt2
+                    c2 = (c3*t5_1_0 + 240*c3*v1y - s3*t5_1_1 + 20*t5_1_2 + 260*v1x) / dt2
+                    s2 = (-c3*t5_1_1 + 20*c3*v1y - s3*t5_1_0 - 240*t5_1_2 + 260*v1y) / dt2
                     free2 = False
 
             if free2:
-                t4_2_0 = c3*s3
-                t4_2_1 = s3*s3
-                t4_2_2 = wx*wx
-                t4_2_3 = wy*wy
-                t4_2_4 = wz*wz
-                t4_2_5 = 20*c3
-                t4_2_6 = 240*s3
-                t4_2_7 = 240*c3
-                t4_2_8 = 20*s3
+                t5_2_0 = v1x*v1x
+                t5_2_1 = v1y*v1y
+                t5_2_2 = v1z*v1z
 
-                dt2 = 520000*c3 - 6240000*s3 + 6280000
-                if abs(dt2) > 9.999999999999999e-14:
-                    c2 = (-20800*c3*wz - 1620500*c3 + 104600*s3*wz + 51346000*s3 + 4992000*t4_2_0 - 29744000*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260*t4_2_4 - 114400*wz - 20442500) / dt2
-                    s2 = (104600*c3*wz + 18898000*c3 + 20800*s3*wz - 1083500*s3 - 29744000*t4_2_0 - 4992000*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000*wz + 5356000) / dt2
+                dt2 = -520*t5_2_0 - 520*t5_2_1
+                if abs(dt2) > 1e-12:
+                    c2 = (-124800*c3*v1y - 10400*s3*v1y - t5_2_1*v1x - t5_2_2*v1x - v1x*v1x*v1x - 9600*v1x) / dt2
+                    s2 = (124800*c3*v1x + 10400*s3*v1x - t5_2_0*v1y - t5_2_2*v1y - v1y*v1y*v1y - 9600*v1y) / dt2
                     free2 = False
 
             if free2:
@@ -247,18 +232,18 @@ def inverse(pose, current=None):
                 th2 = atan2(s2, c2)
 
             # wrist rotation M = R03^T R (the part of the target the wrist must make)
-            t5_0 = c2*s3
-            t5_1 = c3*s2
-            t5_2 = s2*s3
-            t5_3 = c1*r13
-            t5_4 = r23*s1
-            m11 = c1*c2*c3*r11 - c1*r11*t5_2 + c2*c3*r21*s1 - r21*s1*t5_2 - r31*t5_0 - r31*t5_1
-            m12 = c1*c2*c3*r12 - c1*r12*t5_2 + c2*c3*r22*s1 - r22*s1*t5_2 - r32*t5_0 - r32*t5_1
-            m13 = c1*c2*c3*r13 + c2*c3*r23*s1 - r33*t5_0 - r33*t5_1 - t5_2*t5_3 - t5_2*t5_4
+            t6_0 = c1*r11 + r21*s1
+            t6_1 = c1*r12 + r22*s1
+            t6_2 = c1*r13 + r23*s1
+            t6_3 = c2*t6_2 - r33*s2
+            t6_4 = -c2*r33 - s2*t6_2
+            m11 = c3*(c2*t6_0 - r31*s2) + s3*(-c2*r31 - s2*t6_0)
+            m12 = c3*(c2*t6_1 - r32*s2) + s3*(-c2*r32 - s2*t6_1)
+            m13 = c3*t6_3 + s3*t6_4
             m21 = -c1*r21 + r11*s1
             m22 = -c1*r22 + r12*s1
             m23 = -c1*r23 + r13*s1
-            m33 = -c2*c3*r33 + r33*s2*s3 - t5_0*t5_3 - t5_0*t5_4 - t5_1*t5_3 - t5_1*t5_4
+            m33 = c3*t6_4 - s3*t6_3
 
             # joint 5: entry (2,3) of R4^T M = R5 R6
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -326,15 +311,9 @@ def inverse(pose, current=None):
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            tl_0 = c1*wx
-            tl_1 = s1*wy
-            tl_2 = wx*wx
-            tl_3 = 260*s2
-            tl_4 = 260*c2*wz
-            tl_5 = s1*s1
 
-            lm0 = tl_0 + tl_1
-            lm1 = 57200*c1*c2*wx + 13000*c1*s2*wx + 57200*c2*s1*wy + 6500*c2*wz - 1430000*c2 + 13000*s1*s2*wy - 520*s2*tl_0*tl_1 + 260*s2*tl_2*tl_5 - 162500*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy
+            lm0 = v1x + 25
+            lm1 = 260*v1x*(c2*v1y - s2*v1x)
             lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)

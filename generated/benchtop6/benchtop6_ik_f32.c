@@ -114,7 +114,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
     const float wy = py - 165.0f*r23;
     const float wz = pz - 165.0f*r33;
 
-    /* joint 1: y of (A1..A3)^-1 w = c3
+    /* joint 1: y of v3 = (A1..A3)^-1 w = c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
     const float ea1 = -wy;
@@ -145,21 +145,20 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
         }
 
 
-        /* joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        /* wrist centre in DH frame 1 */
+        const float v1x = c1*wx + s1*wy - 25.0f;
+        const float v1y = 220.0f - wz;
+        const float v1z = c1*wy - s1*wx;
+
+        /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t3_0 = wx*wx;
-        const float t3_1 = wy*wy;
-        const float t3_2 = wz*wz;
-        const float t3_3 = 440.0f*wz;
-        const float t3_4 = 50.0f*c1*wx;
-        const float t3_5 = 50.0f*s1*wy;
-        const float t3_6 = -t3_0 - t3_1 - t3_2 + t3_3 + t3_4 + t3_5;
+        const float t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
 
         const float ea3 = -10400.0f;
         const float eb3 = 124800.0f;
-        const float ec3 = t3_6 + 76575.0f;
+        const float ec3 = 125600.0f - t4_0;
         const float en3 = 1.56832e+10f;
-        const float er3 = (t3_6 + 201807.584f)*(t3_0 + t3_1 + t3_2 - t3_3 - t3_4 - t3_5 + 48657.5836f);
+        const float er3 = (250832.584f - t4_0)*(t4_0 - 367.416381f);
         if (er3 < -2e-05f * en3) {
             continue;
         }
@@ -179,52 +178,38 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t4_0_0 = c1*wx;
-                const float t4_0_1 = c3*wz;
-                const float t4_0_2 = s1*wy;
-                const float t4_0_3 = 20.0f*c3;
-                const float t4_0_4 = 240.0f*s3;
-                const float t4_0_5 = 240.0f*c3;
-                const float t4_0_6 = 20.0f*s3;
+                const float t5_0_0 = 20.0f*v1x;
+                const float t5_0_1 = c3*v1y;
+                const float t5_0_2 = s3*v1y;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabsf(dt2) > 1e-15f) {
+                    c2 = (-c3*t5_0_0 + 240.0f*s3*v1x - 240.0f*t5_0_1 - 20.0f*t5_0_2 - 260.0f*v1x) / dt2;
+                    s2 = (240.0f*c3*v1x + s3*t5_0_0 - 20.0f*t5_0_1 + 240.0f*t5_0_2 - 260.0f*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t5_1_0 = 20.0f*v1x;
+                const float t5_1_1 = 240.0f*v1x;
+                const float t5_1_2 = s3*v1y;
 
                 dt2 = 10400.0f*c3 - 124800.0f*s3 + 125600.0f;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (52300.0f*c3 - 20.0f*s3*wz + 10400.0f*s3 + t4_0_0*t4_0_3 - t4_0_0*t4_0_4 + 260.0f*t4_0_0 - 240.0f*t4_0_1 + t4_0_2*t4_0_3 - t4_0_2*t4_0_4 + 260.0f*t4_0_2 - 6500.0f) / dt2;
-                    s2 = (10400.0f*c3 + 240.0f*s3*wz - 52300.0f*s3 - t4_0_0*t4_0_5 - t4_0_0*t4_0_6 - 20.0f*t4_0_1 - t4_0_2*t4_0_5 - t4_0_2*t4_0_6 - 260.0f*wz + 57200.0f) / dt2;
+                    c2 = (c3*t5_1_0 + 240.0f*c3*v1y - s3*t5_1_1 + 20.0f*t5_1_2 + 260.0f*v1x) / dt2;
+                    s2 = (-c3*t5_1_1 + 20.0f*c3*v1y - s3*t5_1_0 - 240.0f*t5_1_2 + 260.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const float t4_1_0 = wx*wx;
-                const float t4_1_1 = c1*wx;
-                const float t4_1_2 = s1*wy;
-                const float t4_1_3 = s1*s1;
-                const float t4_1_4 = 20.0f*c3;
-                const float t4_1_5 = 240.0f*c3;
-                const float t4_1_6 = 20.0f*s3;
+                const float t5_2_0 = v1x*v1x;
+                const float t5_2_1 = v1y*v1y;
+                const float t5_2_2 = v1z*v1z;
 
-                dt2 = 50.0f*c1*wx + 50.0f*s1*wy + t4_1_0*t4_1_3 - t4_1_0 - 2.0f*t4_1_1*t4_1_2 - t4_1_3*wy*wy - wz*wz + 440.0f*wz - 49025.0f;
-                if (fabsf(dt2) > 1e-15f) {
-                    c2 = (240.0f*c1*s3*wx + 240.0f*c3*wz - 52300.0f*c3 + 240.0f*s1*s3*wy + 20.0f*s3*wz - 10400.0f*s3 - t4_1_1*t4_1_4 - 260.0f*t4_1_1 - t4_1_2*t4_1_4 - 260.0f*t4_1_2 + 6500.0f) / dt2;
-                    s2 = (20.0f*c3*wz - 10400.0f*c3 - 240.0f*s3*wz + 52300.0f*s3 + t4_1_1*t4_1_5 + t4_1_1*t4_1_6 + t4_1_2*t4_1_5 + t4_1_2*t4_1_6 + 260.0f*wz - 57200.0f) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const float t4_2_0 = c3*s3;
-                const float t4_2_1 = s3*s3;
-                const float t4_2_2 = wx*wx;
-                const float t4_2_3 = wy*wy;
-                const float t4_2_4 = wz*wz;
-                const float t4_2_5 = 20.0f*c3;
-                const float t4_2_6 = 240.0f*s3;
-                const float t4_2_7 = 240.0f*c3;
-                const float t4_2_8 = 20.0f*s3;
-
-                dt2 = 520000.0f*c3 - 6240000.0f*s3 + 6280000.0f;
-                if (fabsf(dt2) > 1e-13f) {
-                    c2 = (-20800.0f*c3*wz - 1620500.0f*c3 + 104600.0f*s3*wz + 51346000.0f*s3 + 4992000.0f*t4_2_0 - 29744000.0f*t4_2_1 + t4_2_2*t4_2_5 - t4_2_2*t4_2_6 + 260.0f*t4_2_2 + t4_2_3*t4_2_5 - t4_2_3*t4_2_6 + 260.0f*t4_2_3 + t4_2_4*t4_2_5 - t4_2_4*t4_2_6 + 260.0f*t4_2_4 - 114400.0f*wz - 20442500.0f) / dt2;
-                    s2 = (104600.0f*c3*wz + 18898000.0f*c3 + 20800.0f*s3*wz - 1083500.0f*s3 - 29744000.0f*t4_2_0 - 4992000.0f*t4_2_1 - t4_2_2*t4_2_7 - t4_2_2*t4_2_8 - t4_2_3*t4_2_7 - t4_2_3*t4_2_8 - t4_2_4*t4_2_7 - t4_2_4*t4_2_8 - 13000.0f*wz + 5356000.0f) / dt2;
+                dt2 = -520.0f*t5_2_0 - 520.0f*t5_2_1;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (-124800.0f*c3*v1y - 10400.0f*s3*v1y - t5_2_1*v1x - t5_2_2*v1x - v1x*v1x*v1x - 9600.0f*v1x) / dt2;
+                    s2 = (124800.0f*c3*v1x + 10400.0f*s3*v1x - t5_2_0*v1y - t5_2_2*v1y - v1y*v1y*v1y - 9600.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -240,18 +225,18 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const float t5_0 = c2*s3;
-            const float t5_1 = c3*s2;
-            const float t5_2 = s2*s3;
-            const float t5_3 = c1*r13;
-            const float t5_4 = r23*s1;
-            const float m11 = c1*c2*c3*r11 - c1*r11*t5_2 + c2*c3*r21*s1 - r21*s1*t5_2 - r31*t5_0 - r31*t5_1;
-            const float m12 = c1*c2*c3*r12 - c1*r12*t5_2 + c2*c3*r22*s1 - r22*s1*t5_2 - r32*t5_0 - r32*t5_1;
-            const float m13 = c1*c2*c3*r13 + c2*c3*r23*s1 - r33*t5_0 - r33*t5_1 - t5_2*t5_3 - t5_2*t5_4;
+            const float t6_0 = c1*r11 + r21*s1;
+            const float t6_1 = c1*r12 + r22*s1;
+            const float t6_2 = c1*r13 + r23*s1;
+            const float t6_3 = c2*t6_2 - r33*s2;
+            const float t6_4 = -c2*r33 - s2*t6_2;
+            const float m11 = c3*(c2*t6_0 - r31*s2) + s3*(-c2*r31 - s2*t6_0);
+            const float m12 = c3*(c2*t6_1 - r32*s2) + s3*(-c2*r32 - s2*t6_1);
+            const float m13 = c3*t6_3 + s3*t6_4;
             const float m21 = -c1*r21 + r11*s1;
             const float m22 = -c1*r22 + r12*s1;
             const float m23 = -c1*r23 + r13*s1;
-            const float m33 = -c2*c3*r33 + r33*s2*s3 - t5_0*t5_3 - t5_0*t5_4 - t5_1*t5_3 - t5_1*t5_4;
+            const float m33 = c3*t6_4 - s3*t6_3;
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -332,15 +317,9 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             th6 = atan2f(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const float tl_0 = c1*wx;
-            const float tl_1 = s1*wy;
-            const float tl_2 = wx*wx;
-            const float tl_3 = 260.0f*s2;
-            const float tl_4 = 260.0f*c2*wz;
-            const float tl_5 = s1*s1;
 
-            const float lm0 = tl_0 + tl_1;
-            const float lm1 = 57200.0f*c1*c2*wx + 13000.0f*c1*s2*wx + 57200.0f*c2*s1*wy + 6500.0f*c2*wz - 1430000.0f*c2 + 13000.0f*s1*s2*wy - 520.0f*s2*tl_0*tl_1 + 260.0f*s2*tl_2*tl_5 - 162500.0f*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy;
+            const float lm0 = v1x + 25.0f;
+            const float lm1 = 260.0f*v1x*(c2*v1y - s2*v1x);
             const float lm2 = s5;
             if (count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
                 benchtop6_ik_f32_solution *out = &solutions[count++];

@@ -123,7 +123,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
     const double rc32 = -r31;
     const double rc33 = -r33;
 
-    /* joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+    /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz;
 
@@ -148,7 +148,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
         s3 = sn3 / en3;
 
 
-        /* joint 1: y of (A1..A3)^-1 w = c3
+        /* joint 1: y of v3 = (A1..A3)^-1 w = c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
         const double ea1 = -wy;
@@ -178,52 +178,44 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             }
 
 
+            /* wrist centre in DH frame 1 */
+            const double v1x = c1*wx + s1*wy;
+            const double v1y = wz - 180.0;
+            const double v1z = -c1*wy + s1*wx;
+
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2, c2 = 0.0, s2 = 0.0, dt2;
             int free2 = 1;
             {
-                const double t5_0_0 = c1*wx;
-                const double t5_0_1 = 290.0*wz;
-                const double t5_0_2 = s1*wy;
-                const double t5_0_3 = 290.0*s3;
-                const double t5_0_4 = 290.0*c3;
+                const double t6_0_0 = 290.0*v1x;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabs(dt2) > 9.9999999999999988e-16) {
+                    c2 = (290.0*c3*v1y - s3*t6_0_0 - 320.0*v1x) / dt2;
+                    s2 = (-c3*t6_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t6_1_0 = 290.0*c3;
+                const double t6_1_1 = 290.0*s3;
 
                 dt2 = 185600.0*s3 + 186500.0;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (-c3*t5_0_1 + 52200.0*c3 + t5_0_0*t5_0_3 + 320.0*t5_0_0 + t5_0_2*t5_0_3 + 320.0*t5_0_2) / dt2;
-                    s2 = (s3*t5_0_1 - 52200.0*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320.0*wz - 57600.0) / dt2;
+                    c2 = (-t6_1_0*v1y + t6_1_1*v1x + 320.0*v1x) / dt2;
+                    s2 = (t6_1_0*v1x + t6_1_1*v1y + 320.0*v1y) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const double t5_1_0 = wx*wx;
-                const double t5_1_1 = c1*wx;
-                const double t5_1_2 = s1*wy;
-                const double t5_1_3 = s1*s1;
-                const double t5_1_4 = 290.0*s3;
-                const double t5_1_5 = 290.0*c3;
+                const double t6_2_0 = v1x*v1x;
+                const double t6_2_1 = v1y*v1y;
+                const double t6_2_2 = v1z*v1z;
 
-                dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2.0*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360.0*wz - 32400.0;
-                if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (290.0*c3*wz - 52200.0*c3 - t5_1_1*t5_1_4 - 320.0*t5_1_1 - t5_1_2*t5_1_4 - 320.0*t5_1_2) / dt2;
-                    s2 = (-290.0*s3*wz + 52200.0*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320.0*wz + 57600.0) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const double t5_2_0 = c1*wx;
-                const double t5_2_1 = s1*wy;
-                const double t5_2_2 = 104400.0*s3;
-                const double t5_2_3 = wx*wx;
-                const double t5_2_4 = wy*wy;
-                const double t5_2_5 = wz*wz;
-                const double t5_2_6 = 104400.0*c3;
-                const double t5_2_7 = 290.0*s3;
-
-                dt2 = -66816000.0*s3 - 67140000.0;
+                dt2 = -640.0*t6_2_0 - 640.0*t6_2_1;
                 if (fabs(dt2) > 9.9999999999999998e-13) {
-                    c2 = (-53824000.0*c3*s3 + 290.0*c3*t5_2_3 + 290.0*c3*t5_2_4 + 290.0*c3*t5_2_5 - 63481000.0*c3 - t5_2_0*t5_2_2 - 115200.0*t5_2_0 - t5_2_1*t5_2_2 - 115200.0*t5_2_1) / dt2;
-                    s2 = (53824000.0*s3*s3 + 122873000.0*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320.0*t5_2_3 - t5_2_4*t5_2_7 - 320.0*t5_2_4 - t5_2_5*t5_2_7 - 320.0*t5_2_5 + 70048000.0) / dt2;
+                    c2 = (185600.0*c3*v1y - t6_2_1*v1x - t6_2_2*v1x - v1x*v1x*v1x - 18300.0*v1x) / dt2;
+                    s2 = (-185600.0*c3*v1x - t6_2_0*v1y - t6_2_2*v1y - v1y*v1y*v1y - 18300.0*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -239,23 +231,18 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const double t6_0 = c2*s3;
-            const double t6_1 = c3*s2;
-            const double t6_2 = c2*c3;
-            const double t6_3 = c1*rc11;
-            const double t6_4 = rc21*s1;
-            const double t6_5 = s2*s3;
-            const double t6_6 = c1*rc12;
-            const double t6_7 = rc22*s1;
-            const double t6_8 = c1*rc13;
-            const double t6_9 = rc23*s1;
-            const double m11 = rc31*t6_0 + rc31*t6_1 + t6_2*t6_3 + t6_2*t6_4 - t6_3*t6_5 - t6_4*t6_5;
-            const double m12 = rc32*t6_0 + rc32*t6_1 + t6_2*t6_6 + t6_2*t6_7 - t6_5*t6_6 - t6_5*t6_7;
-            const double m13 = rc33*t6_0 + rc33*t6_1 + t6_2*t6_8 + t6_2*t6_9 - t6_5*t6_8 - t6_5*t6_9;
+            const double t7_0 = c1*rc11 + rc21*s1;
+            const double t7_1 = c1*rc12 + rc22*s1;
+            const double t7_2 = c1*rc13 + rc23*s1;
+            const double t7_3 = c2*t7_2 + rc33*s2;
+            const double t7_4 = c2*rc33 - s2*t7_2;
+            const double m11 = c3*(c2*t7_0 + rc31*s2) + s3*(c2*rc31 - s2*t7_0);
+            const double m12 = c3*(c2*t7_1 + rc32*s2) + s3*(c2*rc32 - s2*t7_1);
+            const double m13 = c3*t7_3 + s3*t7_4;
             const double m21 = -c1*rc21 + rc11*s1;
             const double m22 = -c1*rc22 + rc12*s1;
             const double m23 = -c1*rc23 + rc13*s1;
-            const double m33 = -rc33*t6_2 + rc33*t6_5 + t6_0*t6_8 + t6_0*t6_9 + t6_1*t6_8 + t6_1*t6_9;
+            const double m33 = -c3*t7_4 + s3*t7_3;
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -336,16 +323,9 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             th6 = atan2(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const double tl_0 = c1*wx;
-            const double tl_1 = s1*wy;
-            const double tl_2 = 57600.0*c2;
-            const double tl_3 = 320.0*s2;
-            const double tl_4 = tl_3*wx*wx;
-            const double tl_5 = 320.0*c2*wz;
-            const double tl_6 = s1*s1;
 
-            const double lm0 = tl_0 + tl_1;
-            const double lm1 = 640.0*s2*tl_0*tl_1 + tl_0*tl_2 - tl_0*tl_5 + tl_1*tl_2 - tl_1*tl_5 + tl_3*tl_6*wy*wy - tl_4*tl_6 + tl_4;
+            const double lm0 = v1x;
+            const double lm1 = 320.0*v1x*(-c2*v1y + s2*v1x);
             const double lm2 = s5;
             if (count < INSPECTOR6_IK_MAX_SOLUTIONS) {
                 inspector6_ik_solution *out = &solutions[count++];

@@ -147,7 +147,7 @@ def inverse(pose, current=None):
     rc32 = -r31
     rc33 = -r33
 
-    # joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+    # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy + wz*wz - 360*wz
 
@@ -167,7 +167,7 @@ def inverse(pose, current=None):
         s3 = sn3 / en3
 
 
-        # joint 1: y of (A1..A3)^-1 w = c3
+        # joint 1: y of v3 = (A1..A3)^-1 w = c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
 
         ea1 = -wy
@@ -192,48 +192,40 @@ def inverse(pose, current=None):
                 s1 = sn1 / en1
 
 
+            # wrist centre in DH frame 1
+            v1x = c1*wx + s1*wy
+            v1y = wz - 180
+            v1z = -c1*wy + s1*wx
+
             # joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t5_0_0 = c1*wx
-            t5_0_1 = 290*wz
-            t5_0_2 = s1*wy
-            t5_0_3 = 290*s3
-            t5_0_4 = 290*c3
+            t6_0_0 = 290*v1x
 
-            dt2 = 185600*s3 + 186500
+            dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (-c3*t5_0_1 + 52200*c3 + t5_0_0*t5_0_3 + 320*t5_0_0 + t5_0_2*t5_0_3 + 320*t5_0_2) / dt2
-                s2 = (s3*t5_0_1 - 52200*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320*wz - 57600) / dt2
+                c2 = (290*c3*v1y - s3*t6_0_0 - 320*v1x) / dt2
+                s2 = (-c3*t6_0_0 - 290*s3*v1y - 320*v1y) / dt2
                 free2 = False
 
             if free2:
-                t5_1_0 = wx*wx
-                t5_1_1 = c1*wx
-                t5_1_2 = s1*wy
-                t5_1_3 = s1*s1
-                t5_1_4 = 290*s3
-                t5_1_5 = 290*c3
+                t6_1_0 = 290*c3
+                t6_1_1 = 290*s3
 
-                dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360*wz - 32400
+                dt2 = 185600*s3 + 186500
                 if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (290*c3*wz - 52200*c3 - t5_1_1*t5_1_4 - 320*t5_1_1 - t5_1_2*t5_1_4 - 320*t5_1_2) / dt2
-                    s2 = (-290*s3*wz + 52200*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320*wz + 57600) / dt2
+                    c2 = (-t6_1_0*v1y + t6_1_1*v1x + 320*v1x) / dt2
+                    s2 = (t6_1_0*v1x + t6_1_1*v1y + 320*v1y) / dt2
                     free2 = False
 
             if free2:
-                t5_2_0 = c1*wx
-                t5_2_1 = s1*wy
-                t5_2_2 = 104400*s3
-                t5_2_3 = wx*wx
-                t5_2_4 = wy*wy
-                t5_2_5 = wz*wz
-                t5_2_6 = 104400*c3
-                t5_2_7 = 290*s3
+                t6_2_0 = v1x*v1x
+                t6_2_1 = v1y*v1y
+                t6_2_2 = v1z*v1z
 
-                dt2 = -66816000*s3 - 67140000
+                dt2 = -640*t6_2_0 - 640*t6_2_1
                 if abs(dt2) > 1e-12:
-                    c2 = (-53824000*c3*s3 + 290*c3*t5_2_3 + 290*c3*t5_2_4 + 290*c3*t5_2_5 - 63481000*c3 - t5_2_0*t5_2_2 - 115200*t5_2_0 - t5_2_1*t5_2_2 - 115200*t5_2_1) / dt2
-                    s2 = (53824000*s3*s3 + 122873000*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320*t5_2_3 - t5_2_4*t5_2_7 - 320*t5_2_4 - t5_2_5*t5_2_7 - 320*t5_2_5 + 70048000) / dt2
+                    c2 = (185600*c3*v1y - t6_2_1*v1x - t6_2_2*v1x - v1x*v1x*v1x - 18300*v1x) / dt2
+                    s2 = (-185600*c3*v1x - t6_2_0*v1y - t6_2_2*v1y - v1y*v1y*v1y - 18300*v1y) / dt2
                     free2 = False
 
             if free2:
@@ -246,23 +238,18 @@ def inverse(pose, current=None):
                 th2 = atan2(s2, c2)
 
             # wrist rotation M = R03^T R (the part of the target the wrist must make)
-            t6_0 = c2*s3
-            t6_1 = c3*s2
-            t6_2 = c2*c3
-            t6_3 = c1*rc11
-            t6_4 = rc21*s1
-            t6_5 = s2*s3
-            t6_6 = c1*rc12
-            t6_7 = rc22*s1
-            t6_8 = c1*rc13
-            t6_9 = rc23*s1
-            m11 = rc31*t6_0 + rc31*t6_1 + t6_2*t6_3 + t6_2*t6_4 - t6_3*t6_5 - t6_4*t6_5
-            m12 = rc32*t6_0 + rc32*t6_1 + t6_2*t6_6 + t6_2*t6_7 - t6_5*t6_6 - t6_5*t6_7
-            m13 = rc33*t6_0 + rc33*t6_1 + t6_2*t6_8 + t6_2*t6_9 - t6_5*t6_8 - t6_5*t6_9
+            t7_0 = c1*rc11 + rc21*s1
+            t7_1 = c1*rc12 + rc22*s1
+            t7_2 = c1*rc13 + rc23*s1
+            t7_3 = c2*t7_2 + rc33*s2
+            t7_4 = c2*rc33 - s2*t7_2
+            m11 = c3*(c2*t7_0 + rc31*s2) + s3*(c2*rc31 - s2*t7_0)
+            m12 = c3*(c2*t7_1 + rc32*s2) + s3*(c2*rc32 - s2*t7_1)
+            m13 = c3*t7_3 + s3*t7_4
             m21 = -c1*rc21 + rc11*s1
             m22 = -c1*rc22 + rc12*s1
             m23 = -c1*rc23 + rc13*s1
-            m33 = -rc33*t6_2 + rc33*t6_5 + t6_0*t6_8 + t6_0*t6_9 + t6_1*t6_8 + t6_1*t6_9
+            m33 = -c3*t7_4 + s3*t7_3
 
             # joint 5: entry (2,3) of R4^T M = R5 R6
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -330,16 +317,9 @@ def inverse(pose, current=None):
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            tl_0 = c1*wx
-            tl_1 = s1*wy
-            tl_2 = 57600*c2
-            tl_3 = 320*s2
-            tl_4 = tl_3*wx*wx
-            tl_5 = 320*c2*wz
-            tl_6 = s1*s1
 
-            lm0 = tl_0 + tl_1
-            lm1 = 640*s2*tl_0*tl_1 + tl_0*tl_2 - tl_0*tl_5 + tl_1*tl_2 - tl_1*tl_5 + tl_3*tl_6*wy*wy - tl_4*tl_6 + tl_4
+            lm0 = v1x
+            lm1 = 320*v1x*(-c2*v1y + s2*v1x)
             lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)

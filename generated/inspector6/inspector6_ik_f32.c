@@ -123,7 +123,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
     const float rc32 = -r31;
     const float rc33 = -r33;
 
-    /* joint 3: |(A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+    /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy + wz*wz - 360.0f*wz;
 
@@ -148,7 +148,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
         s3 = sn3 / en3;
 
 
-        /* joint 1: y of (A1..A3)^-1 w = c3
+        /* joint 1: y of v3 = (A1..A3)^-1 w = c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
         const float ea1 = -wy;
@@ -178,52 +178,44 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             }
 
 
+            /* wrist centre in DH frame 1 */
+            const float v1x = c1*wx + s1*wy;
+            const float v1y = wz - 180.0f;
+            const float v1z = -c1*wy + s1*wx;
+
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t5_0_0 = c1*wx;
-                const float t5_0_1 = 290.0f*wz;
-                const float t5_0_2 = s1*wy;
-                const float t5_0_3 = 290.0f*s3;
-                const float t5_0_4 = 290.0f*c3;
+                const float t6_0_0 = 290.0f*v1x;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabsf(dt2) > 1e-15f) {
+                    c2 = (290.0f*c3*v1y - s3*t6_0_0 - 320.0f*v1x) / dt2;
+                    s2 = (-c3*t6_0_0 - 290.0f*s3*v1y - 320.0f*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t6_1_0 = 290.0f*c3;
+                const float t6_1_1 = 290.0f*s3;
 
                 dt2 = 185600.0f*s3 + 186500.0f;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (-c3*t5_0_1 + 52200.0f*c3 + t5_0_0*t5_0_3 + 320.0f*t5_0_0 + t5_0_2*t5_0_3 + 320.0f*t5_0_2) / dt2;
-                    s2 = (s3*t5_0_1 - 52200.0f*s3 + t5_0_0*t5_0_4 + t5_0_2*t5_0_4 + 320.0f*wz - 57600.0f) / dt2;
+                    c2 = (-t6_1_0*v1y + t6_1_1*v1x + 320.0f*v1x) / dt2;
+                    s2 = (t6_1_0*v1x + t6_1_1*v1y + 320.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const float t5_1_0 = wx*wx;
-                const float t5_1_1 = c1*wx;
-                const float t5_1_2 = s1*wy;
-                const float t5_1_3 = s1*s1;
-                const float t5_1_4 = 290.0f*s3;
-                const float t5_1_5 = 290.0f*c3;
+                const float t6_2_0 = v1x*v1x;
+                const float t6_2_1 = v1y*v1y;
+                const float t6_2_2 = v1z*v1z;
 
-                dt2 = t5_1_0*t5_1_3 - t5_1_0 - 2.0f*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz + 360.0f*wz - 32400.0f;
-                if (fabsf(dt2) > 1e-15f) {
-                    c2 = (290.0f*c3*wz - 52200.0f*c3 - t5_1_1*t5_1_4 - 320.0f*t5_1_1 - t5_1_2*t5_1_4 - 320.0f*t5_1_2) / dt2;
-                    s2 = (-290.0f*s3*wz + 52200.0f*s3 - t5_1_1*t5_1_5 - t5_1_2*t5_1_5 - 320.0f*wz + 57600.0f) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const float t5_2_0 = c1*wx;
-                const float t5_2_1 = s1*wy;
-                const float t5_2_2 = 104400.0f*s3;
-                const float t5_2_3 = wx*wx;
-                const float t5_2_4 = wy*wy;
-                const float t5_2_5 = wz*wz;
-                const float t5_2_6 = 104400.0f*c3;
-                const float t5_2_7 = 290.0f*s3;
-
-                dt2 = -66816000.0f*s3 - 67140000.0f;
+                dt2 = -640.0f*t6_2_0 - 640.0f*t6_2_1;
                 if (fabsf(dt2) > 1e-12f) {
-                    c2 = (-53824000.0f*c3*s3 + 290.0f*c3*t5_2_3 + 290.0f*c3*t5_2_4 + 290.0f*c3*t5_2_5 - 63481000.0f*c3 - t5_2_0*t5_2_2 - 115200.0f*t5_2_0 - t5_2_1*t5_2_2 - 115200.0f*t5_2_1) / dt2;
-                    s2 = (53824000.0f*s3*s3 + 122873000.0f*s3 - t5_2_0*t5_2_6 - t5_2_1*t5_2_6 - t5_2_3*t5_2_7 - 320.0f*t5_2_3 - t5_2_4*t5_2_7 - 320.0f*t5_2_4 - t5_2_5*t5_2_7 - 320.0f*t5_2_5 + 70048000.0f) / dt2;
+                    c2 = (185600.0f*c3*v1y - t6_2_1*v1x - t6_2_2*v1x - v1x*v1x*v1x - 18300.0f*v1x) / dt2;
+                    s2 = (-185600.0f*c3*v1x - t6_2_0*v1y - t6_2_2*v1y - v1y*v1y*v1y - 18300.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -239,23 +231,18 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const float t6_0 = c2*s3;
-            const float t6_1 = c3*s2;
-            const float t6_2 = c2*c3;
-            const float t6_3 = c1*rc11;
-            const float t6_4 = rc21*s1;
-            const float t6_5 = s2*s3;
-            const float t6_6 = c1*rc12;
-            const float t6_7 = rc22*s1;
-            const float t6_8 = c1*rc13;
-            const float t6_9 = rc23*s1;
-            const float m11 = rc31*t6_0 + rc31*t6_1 + t6_2*t6_3 + t6_2*t6_4 - t6_3*t6_5 - t6_4*t6_5;
-            const float m12 = rc32*t6_0 + rc32*t6_1 + t6_2*t6_6 + t6_2*t6_7 - t6_5*t6_6 - t6_5*t6_7;
-            const float m13 = rc33*t6_0 + rc33*t6_1 + t6_2*t6_8 + t6_2*t6_9 - t6_5*t6_8 - t6_5*t6_9;
+            const float t7_0 = c1*rc11 + rc21*s1;
+            const float t7_1 = c1*rc12 + rc22*s1;
+            const float t7_2 = c1*rc13 + rc23*s1;
+            const float t7_3 = c2*t7_2 + rc33*s2;
+            const float t7_4 = c2*rc33 - s2*t7_2;
+            const float m11 = c3*(c2*t7_0 + rc31*s2) + s3*(c2*rc31 - s2*t7_0);
+            const float m12 = c3*(c2*t7_1 + rc32*s2) + s3*(c2*rc32 - s2*t7_1);
+            const float m13 = c3*t7_3 + s3*t7_4;
             const float m21 = -c1*rc21 + rc11*s1;
             const float m22 = -c1*rc22 + rc12*s1;
             const float m23 = -c1*rc23 + rc13*s1;
-            const float m33 = -rc33*t6_2 + rc33*t6_5 + t6_0*t6_8 + t6_0*t6_9 + t6_1*t6_8 + t6_1*t6_9;
+            const float m33 = -c3*t7_4 + s3*t7_3;
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -336,16 +323,9 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             th6 = atan2f(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const float tl_0 = c1*wx;
-            const float tl_1 = s1*wy;
-            const float tl_2 = 57600.0f*c2;
-            const float tl_3 = 320.0f*s2;
-            const float tl_4 = tl_3*wx*wx;
-            const float tl_5 = 320.0f*c2*wz;
-            const float tl_6 = s1*s1;
 
-            const float lm0 = tl_0 + tl_1;
-            const float lm1 = 640.0f*s2*tl_0*tl_1 + tl_0*tl_2 - tl_0*tl_5 + tl_1*tl_2 - tl_1*tl_5 + tl_3*tl_6*wy*wy - tl_4*tl_6 + tl_4;
+            const float lm0 = v1x;
+            const float lm1 = 320.0f*v1x*(-c2*v1y + s2*v1x);
             const float lm2 = s5;
             if (count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
                 inspector6_ik_f32_solution *out = &solutions[count++];

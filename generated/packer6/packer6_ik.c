@@ -121,7 +121,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
     const double rc32 = r32;
     const double rc33 = -r31;
 
-    /* joint 1: y of (A1..A1)^-1 w = A2 A3 c3
+    /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
     const double ea1 = wy;
@@ -152,20 +152,20 @@ int packer6_ik_inverse(const double pose[16], const double *current,
         }
 
 
-        /* joint 3: |(A1..A2)^-1 w|^2 = |A3 c3|^2
+        /* wrist centre in DH frame 1 */
+        const double v1x = c1*wx + s1*wy;
+        const double v1y = c1*wy - s1*wx;
+        const double v1z = wz;
+
+        /* joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t4_0 = wx*wx;
-        const double t4_1 = wy*wy;
-        const double t4_2 = wz*wz;
-        const double t4_3 = 0.29999999999999999*c1*wx;
-        const double t4_4 = 0.29999999999999999*s1*wy;
-        const double t4_5 = -t4_0 - t4_1 - t4_2 + t4_3 + t4_4;
+        const double t5_0 = v1x*v1x - 0.29999999999999999*v1x + v1y*v1y + v1z*v1z;
 
         const double ea3 = -0.187;
         const double eb3 = 1.53;
-        const double ec3 = t4_5 + 1.5365;
+        const double ec3 = 1.5365 - t5_0;
         const double en3 = 2.3758689999999998;
-        const double er3 = (t4_5 + 3.0778854157867199)*(t4_0 + t4_1 + t4_2 - t4_3 - t4_4 + 0.0048854157867200994);
+        const double er3 = (3.0778854157867199 - t5_0)*(t5_0 + 0.0048854157867200994);
         if (er3 < -2.0000000000000001e-09 * en3) {
             continue;
         }
@@ -185,57 +185,41 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             double th2, c2 = 0.0, s2 = 0.0, dt2;
             int free2 = 1;
             {
-                const double t5_0_0 = c1*wx;
-                const double t5_0_1 = c3*wz;
-                const double t5_0_2 = s1*wy;
-                const double t5_0_3 = s3*wz;
-                const double t5_0_4 = 0.11*c3;
-                const double t5_0_5 = 0.90000000000000002*s3;
-                const double t5_0_6 = 0.90000000000000002*c3;
-                const double t5_0_7 = 0.11*s3;
+                const double t6_0_0 = 0.90000000000000002*c3;
+                const double t6_0_1 = s3*v1x;
+                const double t6_0_2 = 0.11*v1z;
+
+                dt2 = -v1x*v1x + 0.29999999999999999*v1x - v1z*v1z - 0.022499999999999999;
+                if (fabs(dt2) > 9.9999999999999995e-21) {
+                    c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t6_0_2 - 0.13500000000000001*s3 + t6_0_0*v1z + 0.90000000000000002*t6_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
+                    s2 = (c3*t6_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*v1z - 0.016500000000000001*s3 + t6_0_0*v1x + 0.11*t6_0_1 + 0.84999999999999998*v1z) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t6_1_0 = 0.90000000000000002*c3;
+                const double t6_1_1 = s3*v1x;
+                const double t6_1_2 = 0.11*v1z;
 
                 dt2 = -0.187*c3 + 1.53*s3 - 1.5446;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (0.016500000000000001*c3 - 0.13500000000000001*s3 - t5_0_0*t5_0_4 + t5_0_0*t5_0_5 - 0.84999999999999998*t5_0_0 + 0.90000000000000002*t5_0_1 - t5_0_2*t5_0_4 + t5_0_2*t5_0_5 - 0.84999999999999998*t5_0_2 + 0.11*t5_0_3 + 0.1275) / dt2;
-                    s2 = (-0.13500000000000001*c3 - 0.016500000000000001*s3 + t5_0_0*t5_0_6 + t5_0_0*t5_0_7 + 0.11*t5_0_1 + t5_0_2*t5_0_6 + t5_0_2*t5_0_7 - 0.90000000000000002*t5_0_3 + 0.84999999999999998*wz) / dt2;
+                    c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t6_1_2 - 0.13500000000000001*s3 + t6_1_0*v1z + 0.90000000000000002*t6_1_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
+                    s2 = (c3*t6_1_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*v1z - 0.016500000000000001*s3 + t6_1_0*v1x + 0.11*t6_1_1 + 0.84999999999999998*v1z) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const double t5_1_0 = wx*wx;
-                const double t5_1_1 = c1*wx;
-                const double t5_1_2 = s1*wy;
-                const double t5_1_3 = s1*s1;
-                const double t5_1_4 = c3*wz;
-                const double t5_1_5 = s3*wz;
-                const double t5_1_6 = 0.11*c3;
-                const double t5_1_7 = 0.90000000000000002*s3;
-                const double t5_1_8 = 0.90000000000000002*c3;
-                const double t5_1_9 = 0.11*s3;
+                const double t6_2_0 = v1x*v1x;
+                const double t6_2_1 = v1z*v1z;
+                const double t6_2_2 = 1.53*c3;
+                const double t6_2_3 = 0.187*s3;
+                const double t6_2_4 = 0.23999999999999999*v1y;
+                const double t6_2_5 = v1y*v1y;
 
-                dt2 = 0.29999999999999999*c1*wx + 0.29999999999999999*s1*wy + t5_1_0*t5_1_3 - t5_1_0 - 2.0*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz - 0.022499999999999999;
-                if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (0.016500000000000001*c3 - 0.13500000000000001*s3 - t5_1_1*t5_1_6 + t5_1_1*t5_1_7 - 0.84999999999999998*t5_1_1 - t5_1_2*t5_1_6 + t5_1_2*t5_1_7 - 0.84999999999999998*t5_1_2 + 0.90000000000000002*t5_1_4 + 0.11*t5_1_5 + 0.1275) / dt2;
-                    s2 = (-0.13500000000000001*c3 - 0.016500000000000001*s3 + t5_1_1*t5_1_8 + t5_1_1*t5_1_9 + t5_1_2*t5_1_8 + t5_1_2*t5_1_9 + 0.11*t5_1_4 - 0.90000000000000002*t5_1_5 + 0.84999999999999998*wz) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const double t5_2_0 = c3*s3;
-                const double t5_2_1 = c3*wz;
-                const double t5_2_2 = s3*s3;
-                const double t5_2_3 = wx*wx;
-                const double t5_2_4 = wy*wy;
-                const double t5_2_5 = wz*wz;
-                const double t5_2_6 = 0.11*c3;
-                const double t5_2_7 = 0.90000000000000002*s3;
-                const double t5_2_8 = 0.90000000000000002*c3;
-                const double t5_2_9 = 0.11*s3;
-
-                dt2 = 0.056099999999999997*c3 - 0.45900000000000002*s3 + 0.46338000000000001;
-                if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (-0.33291500000000002*c3 - 0.033000000000000002*s3*wz + 2.7238500000000001*s3 + 0.33660000000000001*t5_2_0 - 0.27000000000000002*t5_2_1 - 1.35643*t5_2_2 + t5_2_3*t5_2_6 - t5_2_3*t5_2_7 + 0.84999999999999998*t5_2_3 + t5_2_4*t5_2_6 - t5_2_4*t5_2_7 + 0.84999999999999998*t5_2_4 + t5_2_5*t5_2_6 - t5_2_5*t5_2_7 + 0.84999999999999998*t5_2_5 - 1.3648450000000001) / dt2;
-                    s2 = (1.4233499999999999*c3 + 0.27000000000000002*s3*wz + 0.17396500000000001*s3 - 1.35643*t5_2_0 - 0.033000000000000002*t5_2_1 - 0.33660000000000001*t5_2_2 - t5_2_3*t5_2_8 - t5_2_3*t5_2_9 - t5_2_4*t5_2_8 - t5_2_4*t5_2_9 - t5_2_5*t5_2_8 - t5_2_5*t5_2_9 - 0.255*wz + 0.16830000000000001) / dt2;
+                dt2 = -1.7*t6_2_0 - 1.7*t6_2_1 + 0.51000000000000001*v1x - 0.038249999999999999;
+                if (fabs(dt2) > 9.9999999999999998e-20) {
+                    c2 = (0.45000000000000001*t6_2_0 - t6_2_1*v1x + 0.14999999999999999*t6_2_1 + t6_2_2*v1z + t6_2_3*v1z + t6_2_4*v1x - t6_2_5*v1x + 0.14999999999999999*t6_2_5 - v1x*v1x*v1x + 0.0177*v1x - 0.035999999999999997*v1y - 0.0094050000000000002) / dt2;
+                    s2 = (-0.22950000000000001*c3 - 0.028049999999999999*s3 + t6_2_0*v1z + t6_2_2*v1x + t6_2_3*v1x - t6_2_4*v1z + t6_2_5*v1z - 0.29999999999999999*v1x*v1z + v1z*v1z*v1z - 0.062700000000000006*v1z) / dt2;
                     free2 = 0;
                 }
             }
@@ -251,15 +235,15 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const double t6_0 = c2*s3;
-            const double t6_1 = c3*s2;
-            const double t6_2 = s2*s3;
-            const double t6_3 = c1*rc13;
-            const double t6_4 = rc23*s1;
-            const double m11 = c1*c2*c3*rc11 - c1*rc11*t6_2 + c2*c3*rc21*s1 - rc21*s1*t6_2 - rc31*t6_0 - rc31*t6_1;
-            const double m12 = c1*c2*c3*rc12 - c1*rc12*t6_2 + c2*c3*rc22*s1 - rc22*s1*t6_2 - rc32*t6_0 - rc32*t6_1;
-            const double m13 = c1*c2*c3*rc13 + c2*c3*rc23*s1 - rc33*t6_0 - rc33*t6_1 - t6_2*t6_3 - t6_2*t6_4;
-            const double m23 = -c2*c3*rc33 + rc33*s2*s3 - t6_0*t6_3 - t6_0*t6_4 - t6_1*t6_3 - t6_1*t6_4;
+            const double t7_0 = c1*rc11 + rc21*s1;
+            const double t7_1 = c1*rc12 + rc22*s1;
+            const double t7_2 = c1*rc13 + rc23*s1;
+            const double t7_3 = c2*t7_2 - rc33*s2;
+            const double t7_4 = -c2*rc33 - s2*t7_2;
+            const double m11 = c3*(c2*t7_0 - rc31*s2) + s3*(-c2*rc31 - s2*t7_0);
+            const double m12 = c3*(c2*t7_1 - rc32*s2) + s3*(-c2*rc32 - s2*t7_1);
+            const double m13 = c3*t7_3 + s3*t7_4;
+            const double m23 = c3*t7_4 - s3*t7_3;
             const double m31 = c1*rc21 - rc11*s1;
             const double m32 = c1*rc22 - rc12*s1;
             const double m33 = c1*rc23 - rc13*s1;
@@ -343,15 +327,9 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             th6 = atan2(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const double tl_0 = c1*wx;
-            const double tl_1 = s1*wy;
-            const double tl_2 = wx*wx;
-            const double tl_3 = 0.84999999999999998*s2;
-            const double tl_4 = 0.84999999999999998*c2*wz;
-            const double tl_5 = s1*s1;
 
-            const double lm0 = tl_0 + tl_1;
-            const double lm1 = 0.255*c1*s2*wx + 0.1275*c2*wz + 0.255*s1*s2*wy - 1.7*s2*tl_0*tl_1 + 0.84999999999999998*s2*tl_2*tl_5 - 0.019125*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy;
+            const double lm0 = v1x;
+            const double lm1 = -0.84999999999999998*c2*v1x*v1z + 0.1275*c2*v1z - 0.84999999999999998*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2;
             const double lm2 = s5;
             if (count < PACKER6_IK_MAX_SOLUTIONS) {
                 packer6_ik_solution *out = &solutions[count++];

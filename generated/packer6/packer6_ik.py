@@ -145,7 +145,7 @@ def inverse(pose, current=None):
     rc32 = r32
     rc33 = -r31
 
-    # joint 1: y of (A1..A1)^-1 w = A2 A3 c3
+    # joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
 
     ea1 = wy
@@ -170,20 +170,20 @@ def inverse(pose, current=None):
             s1 = sn1 / en1
 
 
-        # joint 3: |(A1..A2)^-1 w|^2 = |A3 c3|^2
+        # wrist centre in DH frame 1
+        v1x = c1*wx + s1*wy
+        v1y = c1*wy - s1*wx
+        v1z = wz
+
+        # joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t4_0 = wx*wx
-        t4_1 = wy*wy
-        t4_2 = wz*wz
-        t4_3 = 0.3*c1*wx
-        t4_4 = 0.3*s1*wy
-        t4_5 = -t4_0 - t4_1 - t4_2 + t4_3 + t4_4
+        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + v1z*v1z
 
         ea3 = -0.187
         eb3 = 1.53
-        ec3 = t4_5 + 1.5365
+        ec3 = 1.5365 - t5_0
         en3 = 2.375869
-        er3 = (t4_5 + 3.07788541578672)*(t4_0 + t4_1 + t4_2 - t4_3 - t4_4 + 0.004885415786720099)
+        er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
         if er3 < 2e-09 * -en3:
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
@@ -197,55 +197,39 @@ def inverse(pose, current=None):
 
             # joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t5_0_0 = c1*wx
-            t5_0_1 = c3*wz
-            t5_0_2 = s1*wy
-            t5_0_3 = s3*wz
-            t5_0_4 = 0.11*c3
-            t5_0_5 = 0.9*s3
-            t5_0_6 = 0.9*c3
-            t5_0_7 = 0.11*s3
+            t6_0_0 = 0.9*c3
+            t6_0_1 = s3*v1x
+            t6_0_2 = 0.11*v1z
 
-            dt2 = -0.187*c3 + 1.53*s3 - 1.5446
+            dt2 = -v1x*v1x + 0.3*v1x - v1z*v1z - 0.0225
             if abs(dt2) > 1e-20:
-                c2 = (0.0165*c3 - 0.135*s3 - t5_0_0*t5_0_4 + t5_0_0*t5_0_5 - 0.85*t5_0_0 + 0.9*t5_0_1 - t5_0_2*t5_0_4 + t5_0_2*t5_0_5 - 0.85*t5_0_2 + 0.11*t5_0_3 + 0.1275) / dt2
-                s2 = (-0.135*c3 - 0.0165*s3 + t5_0_0*t5_0_6 + t5_0_0*t5_0_7 + 0.11*t5_0_1 + t5_0_2*t5_0_6 + t5_0_2*t5_0_7 - 0.9*t5_0_3 + 0.85*wz) / dt2
+                c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t6_0_2 - 0.135*s3 + t6_0_0*v1z + 0.9*t6_0_1 - 0.85*v1x + 0.1275) / dt2
+                s2 = (c3*t6_0_2 - 0.135*c3 - 0.9*s3*v1z - 0.0165*s3 + t6_0_0*v1x + 0.11*t6_0_1 + 0.85*v1z) / dt2
                 free2 = False
 
             if free2:
-                t5_1_0 = wx*wx
-                t5_1_1 = c1*wx
-                t5_1_2 = s1*wy
-                t5_1_3 = s1*s1
-                t5_1_4 = c3*wz
-                t5_1_5 = s3*wz
-                t5_1_6 = 0.11*c3
-                t5_1_7 = 0.9*s3
-                t5_1_8 = 0.9*c3
-                t5_1_9 = 0.11*s3
+                t6_1_0 = 0.9*c3
+                t6_1_1 = s3*v1x
+                t6_1_2 = 0.11*v1z
 
-                dt2 = 0.3*c1*wx + 0.3*s1*wy + t5_1_0*t5_1_3 - t5_1_0 - 2*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz - 0.0225
+                dt2 = -0.187*c3 + 1.53*s3 - 1.5446
                 if abs(dt2) > 1e-20:
-                    c2 = (0.0165*c3 - 0.135*s3 - t5_1_1*t5_1_6 + t5_1_1*t5_1_7 - 0.85*t5_1_1 - t5_1_2*t5_1_6 + t5_1_2*t5_1_7 - 0.85*t5_1_2 + 0.9*t5_1_4 + 0.11*t5_1_5 + 0.1275) / dt2
-                    s2 = (-0.135*c3 - 0.0165*s3 + t5_1_1*t5_1_8 + t5_1_1*t5_1_9 + t5_1_2*t5_1_8 + t5_1_2*t5_1_9 + 0.11*t5_1_4 - 0.9*t5_1_5 + 0.85*wz) / dt2
+                    c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t6_1_2 - 0.135*s3 + t6_1_0*v1z + 0.9*t6_1_1 - 0.85*v1x + 0.1275) / dt2
+                    s2 = (c3*t6_1_2 - 0.135*c3 - 0.9*s3*v1z - 0.0165*s3 + t6_1_0*v1x + 0.11*t6_1_1 + 0.85*v1z) / dt2
                     free2 = False
 
             if free2:
-                t5_2_0 = c3*s3
-                t5_2_1 = c3*wz
-                t5_2_2 = s3*s3
-                t5_2_3 = wx*wx
-                t5_2_4 = wy*wy
-                t5_2_5 = wz*wz
-                t5_2_6 = 0.11*c3
-                t5_2_7 = 0.9*s3
-                t5_2_8 = 0.9*c3
-                t5_2_9 = 0.11*s3
+                t6_2_0 = v1x*v1x
+                t6_2_1 = v1z*v1z
+                t6_2_2 = 1.53*c3
+                t6_2_3 = 0.187*s3
+                t6_2_4 = 0.24*v1y
+                t6_2_5 = v1y*v1y
 
-                dt2 = 0.0561*c3 - 0.459*s3 + 0.46338
-                if abs(dt2) > 1e-20:
-                    c2 = (-0.332915*c3 - 0.033*s3*wz + 2.72385*s3 + 0.3366*t5_2_0 - 0.27*t5_2_1 - 1.35643*t5_2_2 + t5_2_3*t5_2_6 - t5_2_3*t5_2_7 + 0.85*t5_2_3 + t5_2_4*t5_2_6 - t5_2_4*t5_2_7 + 0.85*t5_2_4 + t5_2_5*t5_2_6 - t5_2_5*t5_2_7 + 0.85*t5_2_5 - 1.364845) / dt2
-                    s2 = (1.42335*c3 + 0.27*s3*wz + 0.173965*s3 - 1.35643*t5_2_0 - 0.033*t5_2_1 - 0.3366*t5_2_2 - t5_2_3*t5_2_8 - t5_2_3*t5_2_9 - t5_2_4*t5_2_8 - t5_2_4*t5_2_9 - t5_2_5*t5_2_8 - t5_2_5*t5_2_9 - 0.255*wz + 0.1683) / dt2
+                dt2 = -1.7*t6_2_0 - 1.7*t6_2_1 + 0.51*v1x - 0.03825
+                if abs(dt2) > 1e-19:
+                    c2 = (0.45*t6_2_0 - t6_2_1*v1x + 0.15*t6_2_1 + t6_2_2*v1z + t6_2_3*v1z + t6_2_4*v1x - t6_2_5*v1x + 0.15*t6_2_5 - v1x*v1x*v1x + 0.0177*v1x - 0.036*v1y - 0.009405) / dt2
+                    s2 = (-0.2295*c3 - 0.02805*s3 + t6_2_0*v1z + t6_2_2*v1x + t6_2_3*v1x - t6_2_4*v1z + t6_2_5*v1z - 0.3*v1x*v1z + v1z*v1z*v1z - 0.0627*v1z) / dt2
                     free2 = False
 
             if free2:
@@ -258,15 +242,15 @@ def inverse(pose, current=None):
                 th2 = atan2(s2, c2)
 
             # wrist rotation M = R03^T R (the part of the target the wrist must make)
-            t6_0 = c2*s3
-            t6_1 = c3*s2
-            t6_2 = s2*s3
-            t6_3 = c1*rc13
-            t6_4 = rc23*s1
-            m11 = c1*c2*c3*rc11 - c1*rc11*t6_2 + c2*c3*rc21*s1 - rc21*s1*t6_2 - rc31*t6_0 - rc31*t6_1
-            m12 = c1*c2*c3*rc12 - c1*rc12*t6_2 + c2*c3*rc22*s1 - rc22*s1*t6_2 - rc32*t6_0 - rc32*t6_1
-            m13 = c1*c2*c3*rc13 + c2*c3*rc23*s1 - rc33*t6_0 - rc33*t6_1 - t6_2*t6_3 - t6_2*t6_4
-            m23 = -c2*c3*rc33 + rc33*s2*s3 - t6_0*t6_3 - t6_0*t6_4 - t6_1*t6_3 - t6_1*t6_4
+            t7_0 = c1*rc11 + rc21*s1
+            t7_1 = c1*rc12 + rc22*s1
+            t7_2 = c1*rc13 + rc23*s1
+            t7_3 = c2*t7_2 - rc33*s2
+            t7_4 = -c2*rc33 - s2*t7_2
+            m11 = c3*(c2*t7_0 - rc31*s2) + s3*(-c2*rc31 - s2*t7_0)
+            m12 = c3*(c2*t7_1 - rc32*s2) + s3*(-c2*rc32 - s2*t7_1)
+            m13 = c3*t7_3 + s3*t7_4
+            m23 = c3*t7_4 - s3*t7_3
             m31 = c1*rc21 - rc11*s1
             m32 = c1*rc22 - rc12*s1
             m33 = c1*rc23 - rc13*s1
@@ -337,15 +321,9 @@ def inverse(pose, current=None):
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            tl_0 = c1*wx
-            tl_1 = s1*wy
-            tl_2 = wx*wx
-            tl_3 = 0.85*s2
-            tl_4 = 0.85*c2*wz
-            tl_5 = s1*s1
 
-            lm0 = tl_0 + tl_1
-            lm1 = 0.255*c1*s2*wx + 0.1275*c2*wz + 0.255*s1*s2*wy - 1.7*s2*tl_0*tl_1 + 0.85*s2*tl_2*tl_5 - 0.019125*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy
+            lm0 = v1x
+            lm1 = -0.85*c2*v1x*v1z + 0.1275*c2*v1z - 0.85*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2
             lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)

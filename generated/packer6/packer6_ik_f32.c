@@ -121,7 +121,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
     const float rc32 = r32;
     const float rc33 = -r31;
 
-    /* joint 1: y of (A1..A1)^-1 w = A2 A3 c3
+    /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
     const float ea1 = wy;
@@ -152,20 +152,20 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
         }
 
 
-        /* joint 3: |(A1..A2)^-1 w|^2 = |A3 c3|^2
+        /* wrist centre in DH frame 1 */
+        const float v1x = c1*wx + s1*wy;
+        const float v1y = c1*wy - s1*wx;
+        const float v1z = wz;
+
+        /* joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t4_0 = wx*wx;
-        const float t4_1 = wy*wy;
-        const float t4_2 = wz*wz;
-        const float t4_3 = 0.3f*c1*wx;
-        const float t4_4 = 0.3f*s1*wy;
-        const float t4_5 = -t4_0 - t4_1 - t4_2 + t4_3 + t4_4;
+        const float t5_0 = v1x*v1x - 0.3f*v1x + v1y*v1y + v1z*v1z;
 
         const float ea3 = -0.187f;
         const float eb3 = 1.53f;
-        const float ec3 = t4_5 + 1.5365f;
+        const float ec3 = 1.5365f - t5_0;
         const float en3 = 2.375869f;
-        const float er3 = (t4_5 + 3.07788542f)*(t4_0 + t4_1 + t4_2 - t4_3 - t4_4 + 0.00488541579f);
+        const float er3 = (3.07788542f - t5_0)*(t5_0 + 0.00488541579f);
         if (er3 < -2e-05f * en3) {
             continue;
         }
@@ -185,57 +185,41 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t5_0_0 = c1*wx;
-                const float t5_0_1 = c3*wz;
-                const float t5_0_2 = s1*wy;
-                const float t5_0_3 = s3*wz;
-                const float t5_0_4 = 0.11f*c3;
-                const float t5_0_5 = 0.9f*s3;
-                const float t5_0_6 = 0.9f*c3;
-                const float t5_0_7 = 0.11f*s3;
+                const float t6_0_0 = 0.9f*c3;
+                const float t6_0_1 = s3*v1x;
+                const float t6_0_2 = 0.11f*v1z;
+
+                dt2 = -v1x*v1x + 0.3f*v1x - v1z*v1z - 0.0225f;
+                if (fabsf(dt2) > 1e-20f) {
+                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t6_0_2 - 0.135f*s3 + t6_0_0*v1z + 0.9f*t6_0_1 - 0.85f*v1x + 0.1275f) / dt2;
+                    s2 = (c3*t6_0_2 - 0.135f*c3 - 0.9f*s3*v1z - 0.0165f*s3 + t6_0_0*v1x + 0.11f*t6_0_1 + 0.85f*v1z) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t6_1_0 = 0.9f*c3;
+                const float t6_1_1 = s3*v1x;
+                const float t6_1_2 = 0.11f*v1z;
 
                 dt2 = -0.187f*c3 + 1.53f*s3 - 1.5446f;
                 if (fabsf(dt2) > 1e-20f) {
-                    c2 = (0.0165f*c3 - 0.135f*s3 - t5_0_0*t5_0_4 + t5_0_0*t5_0_5 - 0.85f*t5_0_0 + 0.9f*t5_0_1 - t5_0_2*t5_0_4 + t5_0_2*t5_0_5 - 0.85f*t5_0_2 + 0.11f*t5_0_3 + 0.1275f) / dt2;
-                    s2 = (-0.135f*c3 - 0.0165f*s3 + t5_0_0*t5_0_6 + t5_0_0*t5_0_7 + 0.11f*t5_0_1 + t5_0_2*t5_0_6 + t5_0_2*t5_0_7 - 0.9f*t5_0_3 + 0.85f*wz) / dt2;
+                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t6_1_2 - 0.135f*s3 + t6_1_0*v1z + 0.9f*t6_1_1 - 0.85f*v1x + 0.1275f) / dt2;
+                    s2 = (c3*t6_1_2 - 0.135f*c3 - 0.9f*s3*v1z - 0.0165f*s3 + t6_1_0*v1x + 0.11f*t6_1_1 + 0.85f*v1z) / dt2;
                     free2 = 0;
                 }
             }
             if (free2) {
-                const float t5_1_0 = wx*wx;
-                const float t5_1_1 = c1*wx;
-                const float t5_1_2 = s1*wy;
-                const float t5_1_3 = s1*s1;
-                const float t5_1_4 = c3*wz;
-                const float t5_1_5 = s3*wz;
-                const float t5_1_6 = 0.11f*c3;
-                const float t5_1_7 = 0.9f*s3;
-                const float t5_1_8 = 0.9f*c3;
-                const float t5_1_9 = 0.11f*s3;
+                const float t6_2_0 = v1x*v1x;
+                const float t6_2_1 = v1z*v1z;
+                const float t6_2_2 = 1.53f*c3;
+                const float t6_2_3 = 0.187f*s3;
+                const float t6_2_4 = 0.24f*v1y;
+                const float t6_2_5 = v1y*v1y;
 
-                dt2 = 0.3f*c1*wx + 0.3f*s1*wy + t5_1_0*t5_1_3 - t5_1_0 - 2.0f*t5_1_1*t5_1_2 - t5_1_3*wy*wy - wz*wz - 0.0225f;
-                if (fabsf(dt2) > 1e-20f) {
-                    c2 = (0.0165f*c3 - 0.135f*s3 - t5_1_1*t5_1_6 + t5_1_1*t5_1_7 - 0.85f*t5_1_1 - t5_1_2*t5_1_6 + t5_1_2*t5_1_7 - 0.85f*t5_1_2 + 0.9f*t5_1_4 + 0.11f*t5_1_5 + 0.1275f) / dt2;
-                    s2 = (-0.135f*c3 - 0.0165f*s3 + t5_1_1*t5_1_8 + t5_1_1*t5_1_9 + t5_1_2*t5_1_8 + t5_1_2*t5_1_9 + 0.11f*t5_1_4 - 0.9f*t5_1_5 + 0.85f*wz) / dt2;
-                    free2 = 0;
-                }
-            }
-            if (free2) {
-                const float t5_2_0 = c3*s3;
-                const float t5_2_1 = c3*wz;
-                const float t5_2_2 = s3*s3;
-                const float t5_2_3 = wx*wx;
-                const float t5_2_4 = wy*wy;
-                const float t5_2_5 = wz*wz;
-                const float t5_2_6 = 0.11f*c3;
-                const float t5_2_7 = 0.9f*s3;
-                const float t5_2_8 = 0.9f*c3;
-                const float t5_2_9 = 0.11f*s3;
-
-                dt2 = 0.0561f*c3 - 0.459f*s3 + 0.46338f;
-                if (fabsf(dt2) > 1e-20f) {
-                    c2 = (-0.332915f*c3 - 0.033f*s3*wz + 2.72385f*s3 + 0.3366f*t5_2_0 - 0.27f*t5_2_1 - 1.35643f*t5_2_2 + t5_2_3*t5_2_6 - t5_2_3*t5_2_7 + 0.85f*t5_2_3 + t5_2_4*t5_2_6 - t5_2_4*t5_2_7 + 0.85f*t5_2_4 + t5_2_5*t5_2_6 - t5_2_5*t5_2_7 + 0.85f*t5_2_5 - 1.364845f) / dt2;
-                    s2 = (1.42335f*c3 + 0.27f*s3*wz + 0.173965f*s3 - 1.35643f*t5_2_0 - 0.033f*t5_2_1 - 0.3366f*t5_2_2 - t5_2_3*t5_2_8 - t5_2_3*t5_2_9 - t5_2_4*t5_2_8 - t5_2_4*t5_2_9 - t5_2_5*t5_2_8 - t5_2_5*t5_2_9 - 0.255f*wz + 0.1683f) / dt2;
+                dt2 = -1.7f*t6_2_0 - 1.7f*t6_2_1 + 0.51f*v1x - 0.03825f;
+                if (fabsf(dt2) > 1e-19f) {
+                    c2 = (0.45f*t6_2_0 - t6_2_1*v1x + 0.15f*t6_2_1 + t6_2_2*v1z + t6_2_3*v1z + t6_2_4*v1x - t6_2_5*v1x + 0.15f*t6_2_5 - v1x*v1x*v1x + 0.0177f*v1x - 0.036f*v1y - 0.009405f) / dt2;
+                    s2 = (-0.2295f*c3 - 0.02805f*s3 + t6_2_0*v1z + t6_2_2*v1x + t6_2_3*v1x - t6_2_4*v1z + t6_2_5*v1z - 0.3f*v1x*v1z + v1z*v1z*v1z - 0.0627f*v1z) / dt2;
                     free2 = 0;
                 }
             }
@@ -251,15 +235,15 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             }
 
             /* wrist rotation M = R03^T R (the part of the target the wrist must make) */
-            const float t6_0 = c2*s3;
-            const float t6_1 = c3*s2;
-            const float t6_2 = s2*s3;
-            const float t6_3 = c1*rc13;
-            const float t6_4 = rc23*s1;
-            const float m11 = c1*c2*c3*rc11 - c1*rc11*t6_2 + c2*c3*rc21*s1 - rc21*s1*t6_2 - rc31*t6_0 - rc31*t6_1;
-            const float m12 = c1*c2*c3*rc12 - c1*rc12*t6_2 + c2*c3*rc22*s1 - rc22*s1*t6_2 - rc32*t6_0 - rc32*t6_1;
-            const float m13 = c1*c2*c3*rc13 + c2*c3*rc23*s1 - rc33*t6_0 - rc33*t6_1 - t6_2*t6_3 - t6_2*t6_4;
-            const float m23 = -c2*c3*rc33 + rc33*s2*s3 - t6_0*t6_3 - t6_0*t6_4 - t6_1*t6_3 - t6_1*t6_4;
+            const float t7_0 = c1*rc11 + rc21*s1;
+            const float t7_1 = c1*rc12 + rc22*s1;
+            const float t7_2 = c1*rc13 + rc23*s1;
+            const float t7_3 = c2*t7_2 - rc33*s2;
+            const float t7_4 = -c2*rc33 - s2*t7_2;
+            const float m11 = c3*(c2*t7_0 - rc31*s2) + s3*(-c2*rc31 - s2*t7_0);
+            const float m12 = c3*(c2*t7_1 - rc32*s2) + s3*(-c2*rc32 - s2*t7_1);
+            const float m13 = c3*t7_3 + s3*t7_4;
+            const float m23 = c3*t7_4 - s3*t7_3;
             const float m31 = c1*rc21 - rc11*s1;
             const float m32 = c1*rc22 - rc12*s1;
             const float m33 = c1*rc23 - rc13*s1;
@@ -343,15 +327,9 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             th6 = atan2f(s6, c6);
 
             /* joint readings, configuration bits, singular flag */
-            const float tl_0 = c1*wx;
-            const float tl_1 = s1*wy;
-            const float tl_2 = wx*wx;
-            const float tl_3 = 0.85f*s2;
-            const float tl_4 = 0.85f*c2*wz;
-            const float tl_5 = s1*s1;
 
-            const float lm0 = tl_0 + tl_1;
-            const float lm1 = 0.255f*c1*s2*wx + 0.1275f*c2*wz + 0.255f*s1*s2*wy - 1.7f*s2*tl_0*tl_1 + 0.85f*s2*tl_2*tl_5 - 0.019125f*s2 - tl_0*tl_4 - tl_1*tl_4 - tl_2*tl_3 - tl_3*tl_5*wy*wy;
+            const float lm0 = v1x;
+            const float lm1 = -0.85f*c2*v1x*v1z + 0.1275f*c2*v1z - 0.85f*s2*v1x*v1x + 0.255f*s2*v1x - 0.019125f*s2;
             const float lm2 = s5;
             if (count < PACKER6_IK_F32_MAX_SOLUTIONS) {
                 packer6_ik_f32_solution *out = &solutions[count++];

@@ -92,7 +92,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         limits=[list(l) for l in arm.limits_in_readings()],
         joint_zero=[float(j.theta + j.offset) for j in arm.joints],
         joint_gain=[j.direction * arm.angle_scale for j in arm.joints],
-        singular_terms=singular_terms(plan, printer), generator=common.GENERATOR,
+        singular_terms=c_terms(plan.singular_terms, printer),
+        mirror_terms=c_terms(plan.mirror_condition, printer) if plan.mirror else [], generator=common.GENERATOR,
         label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
         # float rounding (about 6e-8 relative) needs a wider clamp band than double
@@ -146,13 +147,7 @@ def plan_symbols(plan: common.Plan) -> set:
     return out
 
 
-def singular_terms(plan: common.Plan, printer: SolverCPrinter) -> list[str]:
-    terms = []
-    for block in plan.blocks:
-        if block.kind == "cossin":
-            if block.threshold is not None:
-                terms.append(f"free{block.joint}")
-            terms.append(f"root{block.joint} == {printer.number(0)}")
-        elif block.kind == "pair" and block.free_possible:
-            terms.append(f"free{block.joint}")
-    return terms
+def c_terms(items: list[tuple[str, int]], printer: SolverCPrinter) -> list[str]:
+    zero = printer.number(0)
+    forms = {"free": "free{}", "double": "root{} == " + zero, "root": "root{} > " + zero, "not_free": "!free{}"}
+    return [forms[kind].format(joint) for kind, joint in items]

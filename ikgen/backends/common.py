@@ -19,7 +19,7 @@ import jinja2
 import sympy as sp
 
 from .. import __version__
-from ..ir import (GUARD_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
+from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
                   cos_symbol, sin_symbol)
 from ..model import Arm
 
@@ -105,6 +105,8 @@ class Block:
     mirrored: bool = False       # cossin: the second root is emitted by symmetry, no loop
     need_cos: bool = True        # cossin: a later expression reads c<j>
     need_sin: bool = True        # cossin: a later expression reads s<j>
+    condition_name: str = ""     # cossin: the branch name its conditioning measure is reported under
+    condition_gain: float = 1.0  # cossin: conditioning = root * gain = sqrt(radicand / typical a^2+b^2)
 
 
 @dataclass
@@ -146,13 +148,28 @@ class Plan:
     guard_tolerance: float = GUARD_TOLERANCE
 
     @property
-    def mirror_condition(self) -> list[str]:
-        """Terms (generated names) that must all hold to emit the mirrored solution: a real second
-        root, and no later joint left free (at a singular wrist the copy would move the kept joint)."""
+    def mirror_condition(self) -> list[tuple[str, int]]:
+        """What must hold to emit the mirrored solution, as (kind, joint) terms: ("root", j) a real
+        second root; ("not_free", j) no later joint left free (at a singular wrist the copy would
+        move the kept joint)."""
         m = self.mirror
-        terms = [f"root{m.joint} > 0.0"]
-        terms += [f"not free{b.joint}" for b in self.blocks
+        terms = [("root", m.joint)]
+        terms += [("not_free", b.joint) for b in self.blocks
                   if b.kind == "pair" and b.free_possible and b.joint in m.parities]
+        return terms
+
+    @property
+    def singular_terms(self) -> list[tuple[str, int]]:
+        """What flags a solution singular, as (kind, joint) terms: ("free", j) the joint was free;
+        ("double", j) the branch's radicand was (clamped to) zero."""
+        terms = []
+        for block in self.blocks:
+            if block.kind == "cossin":
+                if block.threshold is not None:
+                    terms.append(("free", block.joint))
+                terms.append(("double", block.joint))
+            elif block.kind == "pair" and block.free_possible:
+                terms.append(("free", block.joint))
         return terms
 
     @property
@@ -166,6 +183,11 @@ class Plan:
                 out.add(block.joint)
         return out
 
+    @property
+    def condition_blocks(self) -> list[Block]:
+        """The cossin blocks, in order: one conditioning measure per branch point."""
+        return [b for b in self.blocks if b.kind == "cossin"]
+
     def mirrored_angle(self, joint: int) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
         m = self.mirror
@@ -174,6 +196,16 @@ class Plan:
         if m.parities.get(joint, 1) < 0:
             return f"th{joint} + _PI"
         return f"th{joint}"
+
+
+def condition_gain(norm: sp.Expr, threshold: float) -> float:
+    """1/sqrt(scale) with scale = a^2 + b^2 when constant, else its typical size on samples.
+
+    root * gain is then |sin| of the angle to the double root (elbow stretched, wrist axes 4 and 6
+    aligned) or, for a norm that varies (wrist centre and axis 1), a distance over the typical one.
+    """
+    scale = float(norm) if norm.is_number else threshold / SINGULAR_TOLERANCE
+    return 1.0 / float(sp.sqrt(sp.Float(scale, 30))) if scale > 0 else 0.0
 
 
 def numeric(expr: sp.Expr, parameters: dict) -> sp.Expr:
@@ -222,7 +254,8 @@ def lower(derivation: Derivation) -> Plan:
             blocks.append(Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
                                 temps=temps, a=a, b=b, c=c, norm=norm_value, radicand=radicand,
                                 threshold=None if constant else step.singular.threshold,
-                                mirrored=step.mirror is not None))
+                                mirrored=step.mirror is not None, condition_name=step.branch.name,
+                                condition_gain=condition_gain(norm_value, step.singular.threshold)))
             branch_joints.append(step.joint)
             if step.mirror is not None:
                 mirror = MirrorPlan(step.joint, step.mirror.kind, dict(step.mirror.parities),

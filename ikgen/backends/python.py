@@ -65,17 +65,13 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_zero=[float(j.theta + j.offset) for j in arm.joints],
         joint_direction=[j.direction for j in arm.joints],
         joint_scale=[arm.angle_scale for _ in arm.joints],
-        generator=common.GENERATOR, singular_terms=singular_terms(plan))
+        generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
+        mirror_terms=terms(plan.mirror_condition) if plan.mirror else [])
 
 
-def singular_terms(plan: common.Plan) -> list[str]:
-    """Conditions (in generated names) under which a solution is flagged singular."""
-    terms = []
-    for block in plan.blocks:
-        if block.kind == "cossin":
-            if block.threshold is not None:
-                terms.append(f"free{block.joint}")
-            terms.append(f"root{block.joint} == 0.0")
-        elif block.kind == "pair" and block.free_possible:
-            terms.append(f"free{block.joint}")
-    return terms
+PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "root": "root{} > 0.0", "not_free": "not free{}"}
+
+
+def terms(items: list[tuple[str, int]], forms: dict = PYTHON_TERMS) -> list[str]:
+    """Structured condition terms of the plan in this language's syntax."""
+    return [forms[kind].format(joint) for kind, joint in items]

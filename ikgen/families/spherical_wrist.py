@@ -109,6 +109,25 @@ class Builder:
         self.length_scale = arm.reach_scale()
         self.pose = sp.symbols(" ".join(POSE_NAMES), real=True)
         self.links = links(arm, self.lengths, lambda j: (cos_symbol(j), sin_symbol(j)))
+        # The wrist centre in DH frame k (k = 1..3): v_k = A_k^-1 v_(k-1), v_0 = w. Named so that
+        # equations stay short once joints 1..k are known; each v_k hides joints 1..k.
+        self.w_names = sp.symbols("wx wy wz", real=True)
+        self.v_names = {k: sp.symbols(f"v{k}x v{k}y v{k}z", real=True) for k in (1, 2, 3)}
+        self.v_defs = {}
+        previous = sp.Matrix(self.w_names)
+        for k in (1, 2, 3):
+            inverse = inverse_transform(self.links[k - 1])
+            self.v_defs[k] = inverse[:3, :3] * previous + inverse[:3, 3]
+            previous = sp.Matrix(self.v_names[k])
+        # v_k written in terms of v_m (m < k; v_0 = w): v_in[(k, m)]
+        self.v_in = {}
+        for k in (1, 2, 3):
+            self.v_in[(k, k)] = sp.Matrix(self.v_names[k])
+            for m in range(k - 1, -1, -1):
+                inner = dict(zip(self.v_names[m + 1], self.v_defs[m + 1]))
+                self.v_in[(k, m)] = self.v_in[(k, m + 1)].xreplace(inner)
+        self.v_full = {k: self.v_in[(k, 0)] for k in (1, 2, 3)}
+
 
     # ------------------------------------------------------------------ samples
     def samples(self, count: int = 24, seed: int = 11) -> Samples:
@@ -150,7 +169,7 @@ class Builder:
         c6_tool = (tool_inv * sp.Matrix([*c6, 1]))[:3, 0]   # wrist centre in the tool frame
         w_world = rotation * c6_tool + position
         w_core = base_inv[:3, :3] * w_world + base_inv[:3, 3]
-        w_names = sp.symbols("wx wy wz", real=True)
+        w_names = self.w_names
         steps.append(Compute(tuple(w_names), tuple(sp.expand(e) for e in w_core),
                              "wrist centre in the DH base frame"))
         core_rotation = base_inv[:3, :3] * rotation * tool_inv[:3, :3]
@@ -171,7 +190,7 @@ class Builder:
         pool = self.position_pool(w, c3h)
         solver = GreedySolver(samples, range(1, 7), self.length_scale, used_names)
         solver.constant_symbols = tuple(self.parameters)
-        steps += solver.solve(pool, [1, 2, 3], set())
+        steps += self.with_frame_vectors(solver.solve(pool, [1, 2, 3], set()))
 
         # Orientation subproblem.
         r03 = (self.links[0] * self.links[1] * self.links[2])[:3, :3]
@@ -183,14 +202,16 @@ class Builder:
         solver.constant_symbols = tuple(self.parameters)
         wrist_steps = solver.solve(pool, [4, 5, 6], {1, 2, 3})
         needed = set().union(*(free_symbols_of(s) for s in wrist_steps))
-        entries = [(m_names[i, k], m_full[i, k]) for i in range(3) for k in range(3) if m_names[i, k] in needed]
-        steps.append(Compute(tuple(n for n, _ in entries),
-                             tuple(solver.reduce(e) for _, e in entries),
+        # Nested (unexpanded) products keep shared factors such as cos(th2 + th3) visible to CSE.
+        m_nested = self.links[2][:3, :3].T * (self.links[1][:3, :3].T * (self.links[0][:3, :3].T * rc))
+        entries = [(m_names[i, k], m_nested[i, k]) for i in range(3) for k in range(3) if m_names[i, k] in needed]
+        steps.append(Compute(tuple(n for n, _ in entries), tuple(e for _, e in entries),
                              "wrist rotation M = R03^T R (the part of the target the wrist must make)"))
         steps += wrist_steps
 
-        labels = self.labels(w_names, c3)
+        labels = self.labels()
         steps = attach_mirror(steps, labels)
+        steps = self.with_frame_vectors(steps, extra=set().union(*(l.measure.free_symbols for l in labels)))
         outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale)
                    for j in arm.joints]
         branch_count = sum(1 for s in steps if hasattr(s, "branch"))
@@ -210,6 +231,9 @@ class Builder:
             env = dict(env)
             for name, value in zip(w_names, w[:3, 0]):
                 env[name] = float(value)
+            for k in (1, 2, 3):
+                for name, value in zip(self.v_names[k], self.v_full[k]):
+                    env[name] = float(value.xreplace({**exact_env, **{n: sp.Float(env[n], 20) for n in w_names}}))
             for name, value in zip(list(rc), list(core[:3, :3])):
                 if isinstance(name, sp.Symbol):
                     env[name] = float(value)
@@ -222,25 +246,54 @@ class Builder:
         return Samples(envs)
 
     def position_pool(self, w: sp.Matrix, c3h: sp.Matrix) -> list[Equation]:
+        """w = A1 A2 A3 c3 split after each joint k: v_k = A(k+1)..A3 c3, components and norms."""
         pool = []
-        a1, a2, a3 = self.links[:3]
-        chains = [sp.eye(4), a1, a1 * a2, a1 * a2 * a3]
-        rests = [a1 * a2 * a3, a2 * a3, a3, sp.eye(4)]
+        rests = [self.links[0] * self.links[1] * self.links[2], self.links[1] * self.links[2], self.links[2],
+                 sp.eye(4)]
         for k in range(4):
-            lhs = inverse_transform(chains[k]) * w
+            lhs = sp.Matrix(self.w_names) if k == 0 else sp.Matrix(self.v_names[k])
             rhs = rests[k] * c3h
-            where = "w" if k == 0 else f"(A1..A{k})^-1 w"
+            where = "w" if k == 0 else f"v{k} = (A1..A{k})^-1 w"
             right = "A1 A2 A3 c3" if k == 0 else ("c3" if k == 3 else " ".join(f"A{i}" for i in range(k + 1, 4)) + " c3")
+            # level m: the left side in terms of v_m (hiding joints 1..m); level 0 is in w
+            level = {m: (sp.Matrix(self.w_names) if k == 0 else self.v_in[(k, m)]) for m in range(0, k + 1)}
             for i, axis in enumerate("xyz"):
-                equation = make_equation(lhs[i], rhs[i], f"{axis} of {where} = {right}", range(1, 7), f"split {k}")
+                equation = make_equation(level[0][i], rhs[i], f"{axis} of {where} = {right}", range(1, 7),
+                                         f"split {k}", tuple((m, level[m][i]) for m in range(1, k + 1)))
                 if equation is not None:
                     pool.append(equation)
-            norm_l = sum(lhs[i] ** 2 for i in range(3))
             norm_r = sum(rhs[i] ** 2 for i in range(3))
-            equation = make_equation(norm_l, norm_r, f"|{where}|^2 = |{right}|^2", range(1, 7), f"norm {k}")
+            equation = make_equation(sum(level[0][i] ** 2 for i in range(3)), norm_r, f"|{where}|^2 = |{right}|^2",
+                                     range(1, 7), f"norm {k}",
+                                     tuple((m, sum(level[m][i] ** 2 for i in range(3))) for m in range(1, k + 1)))
             if equation is not None:
                 pool.append(equation)
         return pool
+
+    def with_frame_vectors(self, steps: list, extra: set = frozenset()) -> list:
+        """Insert a Compute of v_k before the first step (or the labels, ``extra``) that reads it."""
+        emitted = {k for step in steps if isinstance(step, Compute)
+                   for k, names in self.v_names.items() if names[0] in step.names}
+        out = []
+
+        def ensure(k):
+            if k in emitted or k == 0:
+                return
+            ensure(k - 1)
+            out.append(Compute(tuple(self.v_names[k]), tuple(reduce_all(e) for e in self.v_defs[k]),
+                               f"wrist centre in DH frame {k}"))
+            emitted.add(k)
+
+        for step in steps:
+            used = free_symbols_of(step)
+            for k in (1, 2, 3):
+                if used & set(self.v_names[k]):
+                    ensure(k)
+            out.append(step)
+        for k in (1, 2, 3):
+            if extra & set(self.v_names[k]):
+                ensure(k)
+        return out
 
     def orientation_pool(self, m: sp.Matrix) -> list[Equation]:
         r4, r5, r6 = (link[:3, :3] for link in self.links[3:])
@@ -256,10 +309,13 @@ class Builder:
                         pool.append(equation)
         return pool
 
-    def labels(self, w_names, c3) -> list[Label]:
-        """Geometric configuration labels (see docs/derivation.md for what a person sees)."""
+    def labels(self) -> list[Label]:
+        """Geometric configuration labels (see docs/derivation.md for what a person sees).
+
+        Shoulder and elbow are computed in DH frame 1 (lengths are invariant), where the wrist centre
+        is the named v1 and the axes of joints 2 and 3 depend on joints 2 and 3 only.
+        """
         a = self.links
-        w = sp.Matrix(w_names)
         standard = self.arm.convention == "standard"
         frame = [sp.eye(4)]
         for link in a:
@@ -269,19 +325,27 @@ class Builder:
             f = frame[j - 1] if standard else frame[j]
             return f[:3, 3], f[:3, 2]
 
+        to_frame1 = inverse_transform(a[0])
+
+        def in_frame1(point=None, direction=None):
+            if point is not None:
+                return sp.Matrix((to_frame1 * sp.Matrix([*point, 1]))[:3, 0])
+            return sp.Matrix(to_frame1[:3, :3] * direction)
+
         out = []
+        w1 = sp.Matrix(self.v_names[1])
         p1, z1 = axis(1)
-        x1 = frame[1][:3, 0]
-        front = reduce_all((w - p1).dot(x1))
+        front = reduce_all((w1 - in_frame1(point=p1))[0])          # x of frame 1 is link 1's x axis
         out.append(Label("shoulder", front, "front", "back",
                          "front: the wrist centre lies on the side of joint 1's axis that link 1's x axis points to"))
         p2, z2 = axis(2)
         p3, _ = axis(3)
-        u = w - p2
+        p2, z2, p3, z1f = in_frame1(point=p2), in_frame1(direction=z2), in_frame1(point=p3), in_frame1(direction=z1)
+        u = w1 - p2
         v = p3 - p2
         u = u - u.dot(z2) * z2
         v = v - v.dot(z2) * z2
-        up = reduce_all(v.dot(z1) * u.dot(u) - v.dot(u) * u.dot(z1))
+        up = reduce_all(v.dot(z1f) * u.dot(u) - v.dot(u) * u.dot(z1f))
         out.append(Label("elbow", up, "up", "down",
                          "up: the elbow (joint 3's axis) lies on the +z0 side of the line from the shoulder "
                          "(joint 2's axis) to the wrist centre, seen along joint 2's axis"))
