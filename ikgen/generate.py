@@ -14,7 +14,7 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from .backends import c as c_backend, common, python as python_backend
+from .backends import batch as batch_backend, c as c_backend, common, python as python_backend
 from .families import derive_arm
 from .ir import Derivation
 from .model import Arm
@@ -39,6 +39,7 @@ def build(arm: Arm) -> Build:
     derivation = derive_arm(arm)
     folder = common.identifier(arm.name)
     files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
+             f"{folder}/{folder}_ik_batch.py": batch_backend.render(arm, derivation),
              f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
     for scalar in c_backend.SCALARS:
         for name, text in c_backend.render(arm, derivation, scalar).items():

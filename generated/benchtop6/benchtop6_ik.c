@@ -116,18 +116,17 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
 
     /* joint 1: y of v3 = (A1..A3)^-1 w = c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
+    const double t2_0 = wx*wx + wy*wy;
     const double ea1 = -wy;
     const double eb1 = wx;
-    const double ec1 = 0.0;
-    const double en1 = wx*wx + wy*wy;
-    const double er1 = wx*wx + wy*wy;
+    const double en1 = t2_0;
+
     const int free1 = en1 <= 9.9999999999999988e-16;
-    if (free1 ? ec1 * ec1 > 9.9999999999999988e-16 : er1 < -2.0000000000000001e-09 * en1) {
+    if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*en1 < 0.0) {
         if (status) *status = BENCHTOP6_IK_UNREACHABLE;
         return 0;
     }
-    const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+    const double root1 = en1 > 0.0 ? sqrt(en1) : 0.0;
     const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
     for (int k1 = 0; k1 < n1; ++k1) {
         const double sg1 = k1 ? -1.0 : 1.0;
@@ -137,13 +136,13 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = ea1 * ec1 - sg1 * eb1 * root1;
-            const double sn1 = eb1 * ec1 + sg1 * ea1 * root1;
+            const double cn1 = -eb1*root1*sg1;
+            const double sn1 = ea1*root1*sg1;
             th1 = atan2(sn1, cn1);
-            c1 = cn1 / en1;
-            s1 = sn1 / en1;
-        }
+            c1 = cn1/en1;
+            s1 = sn1/en1;
 
+        }
 
         /* wrist centre in DH frame 1 */
         const double v1x = c1*wx + s1*wy - 25.0;
@@ -153,13 +152,10 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
         /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
-
-        const double ea3 = -10400.0;
-        const double eb3 = 124800.0;
         const double ec3 = 125600.0 - t4_0;
-        const double en3 = 15683200000.0;
         const double er3 = (250832.58361943989 - t4_0)*(t4_0 - 367.41638056012698);
-        if (er3 < -2.0000000000000001e-09 * en3) {
+
+        if (er3 + 31.366400000000002 < 0.0) {
             continue;
         }
         const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
@@ -167,12 +163,11 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
         for (int k3 = 0; k3 < n3; ++k3) {
             const double sg3 = k3 ? -1.0 : 1.0;
             double th3, c3, s3;
-            const double cn3 = ea3 * ec3 - sg3 * eb3 * root3;
-            const double sn3 = eb3 * ec3 + sg3 * ea3 * root3;
+            const double cn3 = -10400.0*ec3 - 124800.0*root3*sg3;
+            const double sn3 = 124800.0*ec3 - 10400.0*root3*sg3;
             th3 = atan2(sn3, cn3);
-            c3 = cn3 / en3;
-            s3 = sn3 / en3;
-
+            c3 = 6.3762497449500099e-11*cn3;
+            s3 = 6.3762497449500099e-11*sn3;
 
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2, c2 = 0.0, s2 = 0.0, dt2;
@@ -240,30 +235,26 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-            const double ea5 = -1.0;
-            const double eb5 = 0.0;
             const double ec5 = -m33;
-            const double en5 = 1.0;
             const double er5 = m13*m13 + m23*m23;
-            if (er5 < -2.0000000000000001e-09 * en5) {
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, s5;
-            const double cn5 = ea5 * ec5 - sg5 * eb5 * root5;
-            const double sn5 = eb5 * ec5 + sg5 * ea5 * root5;
+            const double cn5 = -ec5;
+            const double sn5 = -root5*sg5;
             th5 = atan2(sn5, cn5);
-            s5 = sn5 / en5;
-
+            s5 = sn5;
 
             /* joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th4, c4 = 0.0, s4 = 0.0, dt4;
             int free4 = 1;
             {
-                
+
                 dt4 = s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
@@ -272,7 +263,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m13*m13 + m23*m23;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
@@ -281,7 +272,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m23*s5;
                 if (fabs(dt4) > 9.9999999999999991e-22) {
                     c4 = (-m13*m23) / dt4;
@@ -304,7 +295,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             double th6, c6 = 0.0, s6 = 0.0, dt6;
             int free6 = 1;
             {
-                
+
                 dt6 = -1.0;
                 c6 = (-c4*m22 + m12*s4) / dt6;
                 s6 = (-c4*m21 + m11*s4) / dt6;

@@ -36,7 +36,6 @@ ANGLE_UNIT = "deg"
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
-
 class Solution(tuple):
     """One solution: (joints, config, singular)."""
 
@@ -57,9 +56,7 @@ class Solution(tuple):
         """True when the pose is singular for this solution (a joint was free, or a double root)."""
         return self[2]
 
-
 _new = tuple.__new__
-
 
 def forward(joints):
     """Tool pose in the world frame (4x4 nested lists) for joint readings in the arm's units."""
@@ -121,7 +118,6 @@ def forward(joints):
         [0.0, 0.0, 0.0, 1.0],
     ]
 
-
 def inverse(pose, current=None):
     """Every closed-form solution for a tool pose (4x4 or 3x4 row-major, world frame)."""
     if hasattr(pose, "tolist"):
@@ -140,28 +136,26 @@ def inverse(pose, current=None):
 
     # joint 1: y of v3 = (A1..A3)^-1 w = c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
+    t2_0 = wx*wx + wy*wy
     ea1 = -wy
     eb1 = wx
-    ec1 = 0
-    en1 = wx*wx + wy*wy
-    er1 = wx*wx + wy*wy
+    en1 = t2_0
+
     free1 = en1 <= 9.999999999999999e-16
-    if (ec1 * ec1 > 9.999999999999999e-16) if free1 else (er1 < 2e-09 * -en1):
+    if (0 > 9.999999999999999e-16) if free1 else (1.000000002*en1 < 0.0):
         return solutions
-    root1 = sqrt(er1) if er1 > 0.0 else 0.0
+    root1 = sqrt(en1) if en1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
             th1 = 0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0)
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = ea1 * ec1 - sg1 * eb1 * root1
-            sn1 = eb1 * ec1 + sg1 * ea1 * root1
+            cn1 = -eb1*root1*sg1
+            sn1 = ea1*root1*sg1
             th1 = atan2(sn1, cn1)
-            c1 = cn1 / en1
-            s1 = sn1 / en1
-
+            c1 = cn1/en1
+            s1 = sn1/en1
 
         # wrist centre in DH frame 1
         v1x = c1*wx + s1*wy - 25
@@ -171,22 +165,18 @@ def inverse(pose, current=None):
         # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t4_0 = v1x*v1x + v1y*v1y + v1z*v1z
-
-        ea3 = -10400
-        eb3 = 124800
         ec3 = 125600 - t4_0
-        en3 = 15683200000
         er3 = (250832.5836194399 - t4_0)*(t4_0 - 367.416380560127)
-        if er3 < 2e-09 * -en3:
+
+        if er3 + 31.366400000000002 < 0.0:
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-            cn3 = ea3 * ec3 - sg3 * eb3 * root3
-            sn3 = eb3 * ec3 + sg3 * ea3 * root3
+            cn3 = -10400*ec3 - 124800*root3*sg3
+            sn3 = 124800*ec3 - 10400*root3*sg3
             th3 = atan2(sn3, cn3)
-            c3 = cn3 / en3
-            s3 = sn3 / en3
-
+            c3 = 6.37624974495001e-11*cn3
+            s3 = 6.37624974495001e-11*sn3
 
             # joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
@@ -247,22 +237,18 @@ def inverse(pose, current=None):
 
             # joint 5: entry (2,3) of R4^T M = R5 R6
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
-            ea5 = -1
-            eb5 = 0
             ec5 = -m33
-            en5 = 1
             er5 = m13*m13 + m23*m23
-            if er5 < 2e-09 * -en5:
+
+            if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
             sg5 = 1.0
-            cn5 = ea5 * ec5 - sg5 * eb5 * root5
-            sn5 = eb5 * ec5 + sg5 * ea5 * root5
+            cn5 = -ec5
+            sn5 = -root5*sg5
             th5 = atan2(sn5, cn5)
-            s5 = sn5 / en5
-
+            s5 = sn5
 
             # joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -274,7 +260,7 @@ def inverse(pose, current=None):
                 free4 = False
 
             if free4:
-                
+
                 dt4 = m13*m13 + m23*m23
                 if abs(dt4) > 1e-20:
                     c4 = (-m13*s5) / dt4
@@ -282,7 +268,7 @@ def inverse(pose, current=None):
                     free4 = False
 
             if free4:
-                
+
                 dt4 = m23*s5
                 if abs(dt4) > 1e-21:
                     c4 = (-m13*m23) / dt4

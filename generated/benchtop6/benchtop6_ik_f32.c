@@ -116,18 +116,17 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
 
     /* joint 1: y of v3 = (A1..A3)^-1 w = c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
+    const float t2_0 = wx*wx + wy*wy;
     const float ea1 = -wy;
     const float eb1 = wx;
-    const float ec1 = 0.0f;
-    const float en1 = wx*wx + wy*wy;
-    const float er1 = wx*wx + wy*wy;
+    const float en1 = t2_0;
+
     const int free1 = en1 <= 1e-15f;
-    if (free1 ? ec1 * ec1 > 1e-15f : er1 < -2e-05f * en1) {
+    if (free1 ? 0.0f > 1e-15f : 1.0f*en1 < 0.0f) {
         if (status) *status = BENCHTOP6_IK_F32_UNREACHABLE;
         return 0;
     }
-    const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
+    const float root1 = en1 > 0.0f ? sqrtf(en1) : 0.0f;
     const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
     for (int k1 = 0; k1 < n1; ++k1) {
         const float sg1 = k1 ? -1.0f : 1.0f;
@@ -137,13 +136,13 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = ea1 * ec1 - sg1 * eb1 * root1;
-            const float sn1 = eb1 * ec1 + sg1 * ea1 * root1;
+            const float cn1 = -eb1*root1*sg1;
+            const float sn1 = ea1*root1*sg1;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1 / en1;
-            s1 = sn1 / en1;
-        }
+            c1 = cn1/en1;
+            s1 = sn1/en1;
 
+        }
 
         /* wrist centre in DH frame 1 */
         const float v1x = c1*wx + s1*wy - 25.0f;
@@ -153,13 +152,10 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
         /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
-
-        const float ea3 = -10400.0f;
-        const float eb3 = 124800.0f;
         const float ec3 = 125600.0f - t4_0;
-        const float en3 = 1.56832e+10f;
         const float er3 = (250832.584f - t4_0)*(t4_0 - 367.416381f);
-        if (er3 < -2e-05f * en3) {
+
+        if (er3 + 31.3664f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -167,12 +163,11 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
         for (int k3 = 0; k3 < n3; ++k3) {
             const float sg3 = k3 ? -1.0f : 1.0f;
             float th3, c3, s3;
-            const float cn3 = ea3 * ec3 - sg3 * eb3 * root3;
-            const float sn3 = eb3 * ec3 + sg3 * ea3 * root3;
+            const float cn3 = -10400.0f*ec3 - 124800.0f*root3*sg3;
+            const float sn3 = 124800.0f*ec3 - 10400.0f*root3*sg3;
             th3 = atan2f(sn3, cn3);
-            c3 = cn3 / en3;
-            s3 = sn3 / en3;
-
+            c3 = 6.37624974e-11f*cn3;
+            s3 = 6.37624974e-11f*sn3;
 
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
@@ -240,30 +235,26 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-            const float ea5 = -1.0f;
-            const float eb5 = 0.0f;
             const float ec5 = -m33;
-            const float en5 = 1.0f;
             const float er5 = m13*m13 + m23*m23;
-            if (er5 < -2e-05f * en5) {
+
+            if (er5 + 2e-09f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, s5;
-            const float cn5 = ea5 * ec5 - sg5 * eb5 * root5;
-            const float sn5 = eb5 * ec5 + sg5 * ea5 * root5;
+            const float cn5 = -ec5;
+            const float sn5 = -root5*sg5;
             th5 = atan2f(sn5, cn5);
-            s5 = sn5 / en5;
-
+            s5 = sn5;
 
             /* joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th4, c4 = 0.0f, s4 = 0.0f, dt4;
             int free4 = 1;
             {
-                
+
                 dt4 = s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (-m13*s5) / dt4;
@@ -272,7 +263,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m13*m13 + m23*m23;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (-m13*s5) / dt4;
@@ -281,7 +272,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m23*s5;
                 if (fabsf(dt4) > 1e-21f) {
                     c4 = (-m13*m23) / dt4;
@@ -304,7 +295,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             float th6, c6 = 0.0f, s6 = 0.0f, dt6;
             int free6 = 1;
             {
-                
+
                 dt6 = -1.0f;
                 c6 = (-c4*m22 + m12*s4) / dt6;
                 s6 = (-c4*m21 + m11*s4) / dt6;

@@ -126,13 +126,10 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
     /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz;
-
-    const double ea3 = 0.0;
-    const double eb3 = -185600.0;
     const double ec3 = 154100.0 - t3_0;
-    const double en3 = 34447360000.0;
     const double er3 = (339700.0 - t3_0)*(t3_0 + 31500.0);
-    if (er3 < -2.0000000000000001e-09 * en3) {
+
+    if (er3 + 68.894720000000007 < 0.0) {
         if (status) *status = INSPECTOR6_IK_UNREACHABLE;
         return 0;
     }
@@ -141,26 +138,24 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
     for (int k3 = 0; k3 < n3; ++k3) {
         const double sg3 = k3 ? -1.0 : 1.0;
         double th3, c3, s3;
-        const double cn3 = ea3 * ec3 - sg3 * eb3 * root3;
-        const double sn3 = eb3 * ec3 + sg3 * ea3 * root3;
+        const double cn3 = 185600.0*root3*sg3;
+        const double sn3 = -185600.0*ec3;
         th3 = atan2(sn3, cn3);
-        c3 = cn3 / en3;
-        s3 = sn3 / en3;
-
+        c3 = 2.9029800832342449e-11*cn3;
+        s3 = 2.9029800832342449e-11*sn3;
 
         /* joint 1: y of v3 = (A1..A3)^-1 w = c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
+        const double t4_0 = wx*wx + wy*wy;
         const double ea1 = -wy;
         const double eb1 = wx;
-        const double ec1 = 0.0;
-        const double en1 = wx*wx + wy*wy;
-        const double er1 = wx*wx + wy*wy;
+        const double en1 = t4_0;
+
         const int free1 = en1 <= 9.9999999999999988e-16;
-        if (free1 ? ec1 * ec1 > 9.9999999999999988e-16 : er1 < -2.0000000000000001e-09 * en1) {
+        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*en1 < 0.0) {
             continue;
         }
-        const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+        const double root1 = en1 > 0.0 ? sqrt(en1) : 0.0;
         const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
         for (int k1 = 0; k1 < n1; ++k1) {
             const double sg1 = k1 ? -1.0 : 1.0;
@@ -170,13 +165,13 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
-                const double cn1 = ea1 * ec1 - sg1 * eb1 * root1;
-                const double sn1 = eb1 * ec1 + sg1 * ea1 * root1;
+                const double cn1 = -eb1*root1*sg1;
+                const double sn1 = ea1*root1*sg1;
                 th1 = atan2(sn1, cn1);
-                c1 = cn1 / en1;
-                s1 = sn1 / en1;
-            }
+                c1 = cn1/en1;
+                s1 = sn1/en1;
 
+            }
 
             /* wrist centre in DH frame 1 */
             const double v1x = c1*wx + s1*wy;
@@ -246,30 +241,26 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
 
             /* joint 5: entry (2,3) of R4^T M = R5 R6
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-            const double ea5 = 1.0;
-            const double eb5 = 0.0;
             const double ec5 = m33;
-            const double en5 = 1.0;
             const double er5 = m13*m13 + m23*m23;
-            if (er5 < -2.0000000000000001e-09 * en5) {
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, s5;
-            const double cn5 = ea5 * ec5 - sg5 * eb5 * root5;
-            const double sn5 = eb5 * ec5 + sg5 * ea5 * root5;
+            const double cn5 = ec5;
+            const double sn5 = root5*sg5;
             th5 = atan2(sn5, cn5);
-            s5 = sn5 / en5;
-
+            s5 = sn5;
 
             /* joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th4, c4 = 0.0, s4 = 0.0, dt4;
             int free4 = 1;
             {
-                
+
                 dt4 = s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (m13*s5) / dt4;
@@ -278,7 +269,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = -m13*m13 - m23*m23;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-m13*s5) / dt4;
@@ -287,7 +278,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m13*s5;
                 if (fabs(dt4) > 9.9999999999999991e-22) {
                     c4 = (m13*m13) / dt4;
@@ -310,7 +301,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             double th6, c6 = 0.0, s6 = 0.0, dt6;
             int free6 = 1;
             {
-                
+
                 dt6 = -1.0;
                 c6 = (-c4*m22 + m12*s4) / dt6;
                 s6 = (-c4*m21 + m11*s4) / dt6;

@@ -123,14 +123,14 @@ int packer6_ik_inverse(const double pose[16], const double *current,
 
     /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
+    const double t3_0 = wx*wx + wy*wy;
     const double ea1 = wy;
     const double eb1 = -wx;
-    const double ec1 = 0.12;
-    const double en1 = wx*wx + wy*wy;
-    const double er1 = wx*wx + wy*wy - 0.0144;
+    const double en1 = t3_0;
+    const double er1 = t3_0 - 0.0144;
+
     const int free1 = en1 <= 9.9999999999999995e-21;
-    if (free1 ? ec1 * ec1 > 9.9999999999999995e-21 : er1 < -2.0000000000000001e-09 * en1) {
+    if (free1 ? 0.0144 > 9.9999999999999995e-21 : 2.0000000000000001e-09*en1 + er1 < 0.0) {
         if (status) *status = PACKER6_IK_UNREACHABLE;
         return 0;
     }
@@ -144,13 +144,13 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = ea1 * ec1 - sg1 * eb1 * root1;
-            const double sn1 = eb1 * ec1 + sg1 * ea1 * root1;
+            const double cn1 = 0.12*ea1 - eb1*root1*sg1;
+            const double sn1 = ea1*root1*sg1 + 0.12*eb1;
             th1 = atan2(sn1, cn1);
-            c1 = cn1 / en1;
-            s1 = sn1 / en1;
-        }
+            c1 = cn1/en1;
+            s1 = sn1/en1;
 
+        }
 
         /* wrist centre in DH frame 1 */
         const double v1x = c1*wx + s1*wy;
@@ -160,13 +160,10 @@ int packer6_ik_inverse(const double pose[16], const double *current,
         /* joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t5_0 = v1x*v1x - 0.29999999999999999*v1x + v1y*v1y + v1z*v1z;
-
-        const double ea3 = -0.187;
-        const double eb3 = 1.53;
         const double ec3 = 1.5365 - t5_0;
-        const double en3 = 2.3758689999999998;
         const double er3 = (3.0778854157867199 - t5_0)*(t5_0 + 0.0048854157867200994);
-        if (er3 < -2.0000000000000001e-09 * en3) {
+
+        if (er3 + 4.7517380000000002e-09 < 0.0) {
             continue;
         }
         const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
@@ -174,12 +171,11 @@ int packer6_ik_inverse(const double pose[16], const double *current,
         for (int k3 = 0; k3 < n3; ++k3) {
             const double sg3 = k3 ? -1.0 : 1.0;
             double th3, c3, s3;
-            const double cn3 = ea3 * ec3 - sg3 * eb3 * root3;
-            const double sn3 = eb3 * ec3 + sg3 * ea3 * root3;
+            const double cn3 = -0.187*ec3 - 1.53*root3*sg3;
+            const double sn3 = 1.53*ec3 - 0.187*root3*sg3;
             th3 = atan2(sn3, cn3);
-            c3 = cn3 / en3;
-            s3 = sn3 / en3;
-
+            c3 = 0.42089862698658892*cn3;
+            s3 = 0.42089862698658892*sn3;
 
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2, c2 = 0.0, s2 = 0.0, dt2;
@@ -250,30 +246,26 @@ int packer6_ik_inverse(const double pose[16], const double *current,
 
             /* joint 5: entry (2,2) of M R6^T = R4 R5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-            const double ea5 = -1.0;
-            const double eb5 = 0.0;
             const double ec5 = -m23;
-            const double en5 = 1.0;
             const double er5 = m13*m13 + m33*m33;
-            if (er5 < -2.0000000000000001e-09 * en5) {
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, s5;
-            const double cn5 = ea5 * ec5 - sg5 * eb5 * root5;
-            const double sn5 = eb5 * ec5 + sg5 * ea5 * root5;
+            const double cn5 = -ec5;
+            const double sn5 = -root5*sg5;
             th5 = atan2(sn5, cn5);
-            s5 = sn5 / en5;
-
+            s5 = sn5;
 
             /* joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th4, c4 = 0.0, s4 = 0.0, dt4;
             int free4 = 1;
             {
-                
+
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (m13*s5) / dt4;
@@ -282,7 +274,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = -m13*m13 - m33*m33;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (m13*s5) / dt4;
@@ -291,7 +283,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m33*s5;
                 if (fabs(dt4) > 9.9999999999999991e-22) {
                     c4 = (-m13*m33) / dt4;
@@ -314,7 +306,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             double th6, c6 = 0.0, s6 = 0.0, dt6;
             int free6 = 1;
             {
-                
+
                 dt6 = -1.0;
                 c6 = (c4*m32 + m12*s4) / dt6;
                 s6 = (c4*m31 + m11*s4) / dt6;

@@ -36,7 +36,6 @@ ANGLE_UNIT = "rad"
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
-
 class Solution(tuple):
     """One solution: (joints, config, singular)."""
 
@@ -57,9 +56,7 @@ class Solution(tuple):
         """True when the pose is singular for this solution (a joint was free, or a double root)."""
         return self[2]
 
-
 _new = tuple.__new__
-
 
 def forward(joints):
     """Tool pose in the world frame (4x4 nested lists) for joint readings in the arm's units."""
@@ -117,7 +114,6 @@ def forward(joints):
         [0.0, 0.0, 0.0, 1.0],
     ]
 
-
 def inverse(pose, current=None):
     """Every closed-form solution for a tool pose (4x4 or 3x4 row-major, world frame)."""
     if hasattr(pose, "tolist"):
@@ -147,14 +143,14 @@ def inverse(pose, current=None):
 
     # joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
+    t3_0 = wx*wx + wy*wy
     ea1 = wy
     eb1 = -wx
-    ec1 = 0.12
-    en1 = wx*wx + wy*wy
-    er1 = wx*wx + wy*wy - 0.0144
+    en1 = t3_0
+    er1 = t3_0 - 0.0144
+
     free1 = en1 <= 1e-20
-    if (ec1 * ec1 > 1e-20) if free1 else (er1 < 2e-09 * -en1):
+    if (0.0144 > 1e-20) if free1 else (2e-09*en1 + er1 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -163,12 +159,11 @@ def inverse(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = ea1 * ec1 - sg1 * eb1 * root1
-            sn1 = eb1 * ec1 + sg1 * ea1 * root1
+            cn1 = 0.12*ea1 - eb1*root1*sg1
+            sn1 = ea1*root1*sg1 + 0.12*eb1
             th1 = atan2(sn1, cn1)
-            c1 = cn1 / en1
-            s1 = sn1 / en1
-
+            c1 = cn1/en1
+            s1 = sn1/en1
 
         # wrist centre in DH frame 1
         v1x = c1*wx + s1*wy
@@ -178,22 +173,18 @@ def inverse(pose, current=None):
         # joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + v1z*v1z
-
-        ea3 = -0.187
-        eb3 = 1.53
         ec3 = 1.5365 - t5_0
-        en3 = 2.375869
         er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
-        if er3 < 2e-09 * -en3:
+
+        if er3 + 4.751738e-09 < 0.0:
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-            cn3 = ea3 * ec3 - sg3 * eb3 * root3
-            sn3 = eb3 * ec3 + sg3 * ea3 * root3
+            cn3 = -0.187*ec3 - 1.53*root3*sg3
+            sn3 = 1.53*ec3 - 0.187*root3*sg3
             th3 = atan2(sn3, cn3)
-            c3 = cn3 / en3
-            s3 = sn3 / en3
-
+            c3 = 0.4208986269865889*cn3
+            s3 = 0.4208986269865889*sn3
 
             # joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
@@ -257,22 +248,18 @@ def inverse(pose, current=None):
 
             # joint 5: entry (2,2) of M R6^T = R4 R5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
-            ea5 = -1
-            eb5 = 0
             ec5 = -m23
-            en5 = 1
             er5 = m13*m13 + m33*m33
-            if er5 < 2e-09 * -en5:
+
+            if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
             sg5 = 1.0
-            cn5 = ea5 * ec5 - sg5 * eb5 * root5
-            sn5 = eb5 * ec5 + sg5 * ea5 * root5
+            cn5 = -ec5
+            sn5 = -root5*sg5
             th5 = atan2(sn5, cn5)
-            s5 = sn5 / en5
-
+            s5 = sn5
 
             # joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -284,7 +271,7 @@ def inverse(pose, current=None):
                 free4 = False
 
             if free4:
-                
+
                 dt4 = -m13*m13 - m33*m33
                 if abs(dt4) > 1e-20:
                     c4 = (m13*s5) / dt4
@@ -292,7 +279,7 @@ def inverse(pose, current=None):
                     free4 = False
 
             if free4:
-                
+
                 dt4 = m33*s5
                 if abs(dt4) > 1e-21:
                     c4 = (-m13*m33) / dt4

@@ -123,14 +123,14 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
 
     /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
+    const float t3_0 = wx*wx + wy*wy;
     const float ea1 = wy;
     const float eb1 = -wx;
-    const float ec1 = 0.12f;
-    const float en1 = wx*wx + wy*wy;
-    const float er1 = wx*wx + wy*wy - 0.0144f;
+    const float en1 = t3_0;
+    const float er1 = t3_0 - 0.0144f;
+
     const int free1 = en1 <= 1e-20f;
-    if (free1 ? ec1 * ec1 > 1e-20f : er1 < -2e-05f * en1) {
+    if (free1 ? 0.0144f > 1e-20f : 2e-09f*en1 + er1 < 0.0f) {
         if (status) *status = PACKER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -144,13 +144,13 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = ea1 * ec1 - sg1 * eb1 * root1;
-            const float sn1 = eb1 * ec1 + sg1 * ea1 * root1;
+            const float cn1 = 0.12f*ea1 - eb1*root1*sg1;
+            const float sn1 = ea1*root1*sg1 + 0.12f*eb1;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1 / en1;
-            s1 = sn1 / en1;
-        }
+            c1 = cn1/en1;
+            s1 = sn1/en1;
 
+        }
 
         /* wrist centre in DH frame 1 */
         const float v1x = c1*wx + s1*wy;
@@ -160,13 +160,10 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
         /* joint 3: |v2 = (A1..A2)^-1 w|^2 = |A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t5_0 = v1x*v1x - 0.3f*v1x + v1y*v1y + v1z*v1z;
-
-        const float ea3 = -0.187f;
-        const float eb3 = 1.53f;
         const float ec3 = 1.5365f - t5_0;
-        const float en3 = 2.375869f;
         const float er3 = (3.07788542f - t5_0)*(t5_0 + 0.00488541579f);
-        if (er3 < -2e-05f * en3) {
+
+        if (er3 + 4.751738e-09f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -174,12 +171,11 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
         for (int k3 = 0; k3 < n3; ++k3) {
             const float sg3 = k3 ? -1.0f : 1.0f;
             float th3, c3, s3;
-            const float cn3 = ea3 * ec3 - sg3 * eb3 * root3;
-            const float sn3 = eb3 * ec3 + sg3 * ea3 * root3;
+            const float cn3 = -0.187f*ec3 - 1.53f*root3*sg3;
+            const float sn3 = 1.53f*ec3 - 0.187f*root3*sg3;
             th3 = atan2f(sn3, cn3);
-            c3 = cn3 / en3;
-            s3 = sn3 / en3;
-
+            c3 = 0.420898627f*cn3;
+            s3 = 0.420898627f*sn3;
 
             /* joint 2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
@@ -250,30 +246,26 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
 
             /* joint 5: entry (2,2) of M R6^T = R4 R5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-            const float ea5 = -1.0f;
-            const float eb5 = 0.0f;
             const float ec5 = -m23;
-            const float en5 = 1.0f;
             const float er5 = m13*m13 + m33*m33;
-            if (er5 < -2e-05f * en5) {
+
+            if (er5 + 2e-09f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, s5;
-            const float cn5 = ea5 * ec5 - sg5 * eb5 * root5;
-            const float sn5 = eb5 * ec5 + sg5 * ea5 * root5;
+            const float cn5 = -ec5;
+            const float sn5 = -root5*sg5;
             th5 = atan2f(sn5, cn5);
-            s5 = sn5 / en5;
-
+            s5 = sn5;
 
             /* joint 4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th4, c4 = 0.0f, s4 = 0.0f, dt4;
             int free4 = 1;
             {
-                
+
                 dt4 = -s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (m13*s5) / dt4;
@@ -282,7 +274,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = -m13*m13 - m33*m33;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (m13*s5) / dt4;
@@ -291,7 +283,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 }
             }
             if (free4) {
-                
+
                 dt4 = m33*s5;
                 if (fabsf(dt4) > 1e-21f) {
                     c4 = (-m13*m33) / dt4;
@@ -314,7 +306,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             float th6, c6 = 0.0f, s6 = 0.0f, dt6;
             int free6 = 1;
             {
-                
+
                 dt6 = -1.0f;
                 c6 = (c4*m32 + m12*s4) / dt6;
                 s6 = (c4*m31 + m11*s4) / dt6;

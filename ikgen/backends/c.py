@@ -98,8 +98,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
         # float rounding (about 6e-8 relative) needs a wider clamp band than double
         guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5)
-    return {n["header"]: env.get_template("c_header.h.j2").render(**context),
-            n["source"]: env.get_template("c_source.c.j2").render(**context)}
+    return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
+            n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
 
 
 def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, count: int = 200,

@@ -36,6 +36,17 @@ def template_directory() -> Path:
     return Path(str(importlib.resources.files("ikgen.templates")))
 
 
+def tidy(text: str) -> str:
+    """Layout only: no trailing spaces, at most one blank line in a row, one final newline."""
+    lines = [line.rstrip() for line in text.splitlines()]
+    out = []
+    for line in lines:
+        if line == "" and out and out[-1] == "":
+            continue
+        out.append(line)
+    return "\n".join(out).strip("\n") + "\n"
+
+
 def environment() -> jinja2.Environment:
     return jinja2.Environment(loader=jinja2.FileSystemLoader(str(template_directory())),
                               undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
@@ -92,12 +103,15 @@ class Block:
     comment: str
     joint: int = 0
     temps: list[Assignment] = field(default_factory=list)
-    # cossin
-    a: sp.Expr | None = None
-    b: sp.Expr | None = None
+    # cossin (see specialise_cossin)
     c: sp.Expr | None = None
     norm: sp.Expr | None = None
     radicand: sp.Expr | None = None
+    guard: sp.Expr | None = None
+    cn: sp.Expr | None = None
+    sn: sp.Expr | None = None
+    cos_expr: sp.Expr | None = None
+    sin_expr: sp.Expr | None = None
     threshold: float | None = None  # None: a^2+b^2 is a non-zero constant, never singular
     # pair
     forms: list[FormPlan] = field(default_factory=list)
@@ -247,15 +261,15 @@ def lower(derivation: Derivation) -> Plan:
             temps += [Assignment(n, e) for n, e in zip(step.names, reduced)]
             blocks.append(Block("compute", depth, step.purpose, temps=temps))
         elif isinstance(step, CosSinEquation):
-            exprs = [numeric(e, params) for e in (step.a, step.b, step.c, step.radicand)]
-            norm_value = numeric(step.norm, params)
-            temps, (a, b, c, radicand) = eliminate(exprs, prefix)
+            exprs = [numeric(e, params) for e in (step.a, step.b, step.c, step.radicand, step.norm)]
+            temps, (a, b, c, radicand, norm_value) = eliminate(exprs, prefix)
             constant = norm_value.is_number
-            blocks.append(Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
-                                temps=temps, a=a, b=b, c=c, norm=norm_value, radicand=radicand,
-                                threshold=None if constant else step.singular.threshold,
-                                mirrored=step.mirror is not None, condition_name=step.branch.name,
-                                condition_gain=condition_gain(norm_value, step.singular.threshold)))
+            block = Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
+                          temps=temps, threshold=None if constant else step.singular.threshold,
+                          mirrored=step.mirror is not None, condition_name=step.branch.name,
+                          condition_gain=condition_gain(norm_value, step.singular.threshold))
+            specialise_cossin(block, a, b, c, norm_value, radicand)
+            blocks.append(block)
             branch_joints.append(step.joint)
             if step.mirror is not None:
                 mirror = MirrorPlan(step.joint, step.mirror.kind, dict(step.mirror.parities),
@@ -287,9 +301,41 @@ def lower(derivation: Derivation) -> Plan:
                 derivation.max_solutions, depth, branch_joints, mirror)
 
 
+def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
+    """Fill a cossin block with the expressions its code needs, simplified for these a, b, c.
+
+    Coefficients that are numbers are inlined (so a zero b drops its terms and a unit norm its
+    division); others become named variables ea<j>, eb<j>, ec<j>, en<j>. The roots are
+    cn = a c - sg b root, sn = b c + sg a root, with cos = cn / norm and sin = sn / norm.
+    """
+    j = block.joint
+
+    def named(expr, name):
+        if expr.is_number:
+            return expr
+        symbol = sp.Symbol(name, real=True)
+        block.temps.append(Assignment(symbol, expr))
+        return symbol
+
+    a, b, c = named(a, f"ea{j}"), named(b, f"eb{j}"), named(c, f"ec{j}")
+    block.norm = named(norm, f"en{j}")
+    block.radicand = block.norm if sp.expand(radicand - norm) == 0 else named(radicand, f"er{j}")
+    block.c = c
+    sg, root = sp.Symbol(f"sg{j}", real=True), sp.Symbol(f"root{j}", real=True)
+    block.guard = block.radicand + 2 * GUARD_TOLERANCE * block.norm      # < 0: out of reach
+    block.cn = a * c - sg * b * root
+    block.sn = b * c + sg * a * root
+    cn, sn = sp.Symbol(f"cn{j}", real=True), sp.Symbol(f"sn{j}", real=True)
+    block.cos_expr = cn / block.norm if block.norm != 1 else cn
+    block.sin_expr = sn / block.norm if block.norm != 1 else sn
+    if block.norm.is_number and block.norm != 1:
+        inverse = sp.Float(1 / sp.Float(block.norm, 30), 17)
+        block.cos_expr, block.sin_expr = cn * inverse, sn * inverse
+
+
 def block_exprs(block: Block) -> list[sp.Expr]:
     exprs = [a.expr for a in block.temps]
-    exprs += [e for e in (block.a, block.b, block.c, block.norm, block.radicand) if e is not None]
+    exprs += [e for e in (block.norm, block.radicand, block.cn, block.sn) if e is not None]
     for form in block.forms:
         exprs += [a.expr for a in form.temps] + [form.det, form.cos_num, form.sin_num]
     return exprs

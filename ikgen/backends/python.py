@@ -56,7 +56,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
     p = printer()
     fwd_temps, fwd_entries = forward_plan(arm)
     template = common.environment().get_template("python_solver.py.j2")
-    return template.render(
+    return common.tidy(template.render(
         arm=arm, plan=plan, p=p.doprint, header=common.header_lines(arm, derivation),
         module_name=common.identifier(arm.name), comment=common.comment_text,
         joint_names=[common.comment_text(j.name) for j in arm.joints],
@@ -66,7 +66,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_direction=[j.direction for j in arm.joints],
         joint_scale=[arm.angle_scale for _ in arm.joints],
         generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
-        mirror_terms=terms(plan.mirror_condition) if plan.mirror else [])
+        mirror_terms=terms(plan.mirror_condition) if plan.mirror else []))
 
 
 PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "root": "root{} > 0.0", "not_free": "not free{}"}

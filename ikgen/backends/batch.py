@@ -1,0 +1,56 @@
+"""numpy batch back-end: one module per arm that solves N poses at once, fully vectorised.
+
+Each branch point of the plan becomes an array axis of size 2 (sign +1, -1), so every quantity
+broadcasts over (N, 2, 2, ...) with no Python loop over poses or branches; a mirrored branch adds
+a last axis (the solution and its mirror). Invalid branches (out of reach, double roots, the
+copy at a free joint) are masked, in exactly the per-pose solver's order, so the valid entries of
+a row are the per-pose solver's solutions.
+"""
+
+from __future__ import annotations
+
+import sympy as sp
+from sympy.printing.numpy import NumPyPrinter
+from sympy.printing.precedence import PRECEDENCE
+
+from ..ir import Derivation
+from ..model import Arm
+from . import common
+from .python import terms
+
+
+class BatchPrinter(NumPyPrinter):
+    def __init__(self):
+        super().__init__({"fully_qualified_modules": True})
+
+    def _print_Float(self, expr):
+        return repr(float(expr))
+
+    def _print_Pow(self, expr, rational=False):
+        base, exp = expr.base, expr.exp
+        if exp.is_Integer and 2 <= int(exp) <= 4:
+            factor = self.parenthesize(base, PRECEDENCE["Mul"] + 1)
+            return "*".join([factor] * int(exp))
+        if exp == -1:
+            return "1.0/" + self.parenthesize(base, PRECEDENCE["Atom"] - 1)
+        if exp == sp.Rational(1, 2):
+            return f"numpy.sqrt({self._print(base)})"
+        return super()._print_Pow(expr, rational)
+
+
+def render(arm: Arm, derivation: Derivation) -> str:
+    plan = common.lower(derivation)
+    printer = BatchPrinter()
+    axes = plan.depth + (1 if plan.mirror else 0)
+    template = common.environment().get_template("batch_solver.py.j2")
+    return common.tidy(template.render(
+        arm=arm, plan=plan, p=printer.doprint, header=common.header_lines(arm, derivation),
+        module_name=common.identifier(arm.name), comment=common.comment_text,
+        joint_zero=[float(j.theta + j.offset) for j in arm.joints],
+        joint_gain=[j.direction * arm.angle_scale for j in arm.joints],
+        branch_axes=plan.depth, axes=axes, raw_solutions=2 ** axes,
+        singular_terms=terms(plan.singular_terms, BATCH_TERMS),
+        mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else []))
+
+
+BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "root": "(root{} > 0.0)", "not_free": "~free{}"}
