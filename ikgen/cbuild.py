@@ -34,7 +34,10 @@ class CSolver:
         self.prefix = c_backend.names(arm, scalar)["prefix"]
         self.dtype = np.float64 if scalar.name == "double" else np.float32
         self.labels = [(l.positive, l.negative) for l in derivation.labels]
-        self.max_solutions = derivation.max_solutions
+        from .backends.common import lower, max_solutions
+        plan = lower(derivation)
+        self.max_solutions = max_solutions(arm, plan)
+        self.conditions = len(plan.condition_blocks)
         self.dof = arm.dof
         self._forward = getattr(self.lib, f"{self.prefix}_forward")
         self._inverse = getattr(self.lib, f"{self.prefix}_inverse")
@@ -51,29 +54,58 @@ class CSolver:
         self._forward(self._pointer(q), self._pointer(pose))
         return pose.reshape(4, 4).astype(float).tolist()
 
-    def inverse(self, pose, current=None) -> list[tuple]:
+    LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
+
+    def _flat_pose(self, pose) -> np.ndarray:
         flat = np.ascontiguousarray(np.asarray(pose, dtype=self.dtype)[:4].reshape(-1)[:16])
         if flat.size == 12:
             flat = np.concatenate([flat, np.array([0, 0, 0, 1], dtype=self.dtype)])
-        hint = self.ffi.NULL
-        if current is not None:
-            keep = np.ascontiguousarray(current, dtype=self.dtype)
-            hint = self._pointer(keep)
-        count = self._inverse(self._pointer(flat), hint, self._solutions, self._status)
-        out = []
-        for k in range(count):
-            solution = self._solutions[k]
-            joints = tuple(float(solution.joints[i]) for i in range(self.dof))
-            config = tuple(negative if solution.config & (1 << i) else positive
-                           for i, (positive, negative) in enumerate(self.labels))
-            out.append((joints, config, bool(solution.singular)))
-        return out
+        return flat
+
+    def _joints_pointer(self, values):
+        if values is None:
+            return self.ffi.NULL, None
+        keep = np.ascontiguousarray(values, dtype=self.dtype)
+        return self._pointer(keep), keep
+
+    def _tuple(self, solution) -> tuple:
+        joints = tuple(float(solution.joints[i]) for i in range(self.dof))
+        config = tuple(negative if solution.config & (1 << i) else positive
+                       for i, (positive, negative) in enumerate(self.labels))
+        conditioning = tuple(float(solution.conditioning[i]) for i in range(self.conditions))
+        return (joints, config, bool(solution.singular), conditioning, bool(solution.within_limits))
+
+    def inverse(self, pose, current=None, limits="drop") -> list[tuple]:
+        """The Python back-end's inverse(): (joints, config, singular, conditioning, within_limits)."""
+        flat = self._flat_pose(pose)
+        hint, _keep = self._joints_pointer(current)
+        count = self._inverse(self._pointer(flat), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+        return [self._tuple(self._solutions[k]) for k in range(count)]
+
+    def nearest(self, pose, current, weights=None, config_mask: int = 0, config_value: int = 0,
+                limits="drop") -> tuple | None:
+        flat = self._flat_pose(pose)
+        here, _keep1 = self._joints_pointer(current)
+        w, _keep2 = self._joints_pointer(weights)
+        best = self.ffi.new(f"{self.prefix}_solution *")
+        found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), here, w, config_mask, config_value,
+                                                            self.LIMIT_MODES[limits], best, self._status)
+        return self._tuple(best[0]) if found else None
+
+    def sort_nearest(self, pose, current, weights=None, limits="drop") -> list[tuple]:
+        """inverse() then the C sort by distance from ``current``."""
+        flat = self._flat_pose(pose)
+        here, _keep1 = self._joints_pointer(current)
+        w, _keep2 = self._joints_pointer(weights)
+        count = self._inverse(self._pointer(flat), here, self.LIMIT_MODES[limits], self._solutions, self._status)
+        getattr(self.lib, f"{self.prefix}_sort_nearest")(self._solutions, count, here, w)
+        return [self._tuple(self._solutions[k]) for k in range(count)]
 
     def status(self) -> int:
         """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input."""
         return int(self._status[0])
 
-    def inverse_many(self, poses) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def inverse_many(self, poses, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(joints N x max x dof, counts N, config N x max, singular N x max) for N x 4 x 4 poses."""
         poses = np.ascontiguousarray(np.asarray(poses, dtype=self.dtype).reshape(-1, 16))
         n = poses.shape[0]
@@ -81,7 +113,7 @@ class CSolver:
         counts = np.zeros(n, dtype=np.int32)
         config = np.zeros((n, self.max_solutions), dtype=np.uint32)
         singular = np.zeros((n, self.max_solutions), dtype=np.int32)
-        self._many(n, self._pointer(poses), self._pointer(joints),
+        self._many(n, self._pointer(poses), self.LIMIT_MODES[limits], self._pointer(joints),
                    self.ffi.cast("int *", self.ffi.from_buffer(counts)),
                    self.ffi.cast("unsigned *", self.ffi.from_buffer(config)),
                    self.ffi.cast("int *", self.ffi.from_buffer(singular)))
@@ -103,7 +135,10 @@ def compile_solver(arm: Arm, derivation: Derivation | None = None, scalar=c_back
     for name, text in files.items():
         (folder / name).write_text(text, encoding="utf-8")
     names = c_backend.names(arm, scalar)
-    context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": derivation.max_solutions}
+    from .backends.common import joint_turns, lower, max_solutions
+    plan = lower(derivation)
+    context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
+               "conditions": len(plan.condition_blocks)}
     env = environment()
     cdef = env.get_template("c_cffi_cdef.h.j2").render(**context)
     glue = env.get_template("c_cffi_glue.c.j2").render(**context)

@@ -8,7 +8,7 @@ import time
 
 from .armfile import load_arm
 from .errors import VerificationError
-from .generate import build, load_module, stale, write
+from .generate import build, build_report, load_module, stale, write
 from .terminal import err, fmt, out, table
 from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, Verification, verify
 
@@ -75,6 +75,29 @@ def cmd_verify(args) -> int:
     return 0
 
 
+def cmd_explain(args) -> int:
+    arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
+    results = []
+    for arm in arms:                                    # every report rendered before anything is written
+        started = time.perf_counter()
+        results.append((build_report(arm), time.perf_counter() - started))
+    if args.check:
+        changed = [path for result, _ in results for path in stale(result.files, args.out)]
+        for path in changed:
+            err(f"stale: {args.out}/{path}")
+        if changed:
+            err(f"ikgen: {len(changed)} report file(s) differ from a fresh rendering; run without --check")
+            return 1
+        out(f"up to date: {sum(len(r.files) for r, _ in results)} report file(s) in {args.out}")
+        return 0
+    for result, seconds in results:
+        written = write(result.files, args.out)
+        out(f"{result.arm.name}: derivation report rendered in {seconds:.2f} s")
+        for path in written:
+            out(f"  wrote {path}")
+    return 0
+
+
 def cmd_compile(args) -> int:
     from .backends.c import DOUBLE, FLOAT
     from .cbuild import compile_solver
@@ -123,6 +146,20 @@ def add_generation_commands(sub) -> None:
     p.add_argument("-o", "--out", default=None, help="also write the generated files to this folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress display")
     p.set_defaults(run=cmd_verify)
+
+    p = sub.add_parser("explain", help="write only the derivation report (HTML and Markdown) of each arm",
+                       description="Derive each arm's closed-form inverse kinematics and write its derivation "
+                                   "report to OUT/<arm>/: <arm>_report.html (self-contained, works offline: "
+                                   "MathML equations, inline SVG figures, no script), <arm>_report.md (LaTeX "
+                                   "math) and the two SVG figures the Markdown shows. The report holds the DH "
+                                   "table, the structure analysis, every step as an equation, branches, guards "
+                                   "and singular poses, verification figures and one sample pose with every "
+                                   "solution. `ikgen generate` writes the same files beside the solvers.")
+    p.add_argument("arms", nargs="+", metavar="ARM", help="arm description file(s) (.toml or .json)")
+    p.add_argument("-o", "--out", default="generated", help="output folder (default: generated)")
+    p.add_argument("--check", action="store_true",
+                   help="write nothing; exit 1 if the report files in OUT differ from a fresh rendering")
+    p.set_defaults(run=cmd_explain)
 
     p = sub.add_parser("compile", help="build the generated C solver into a Python extension (cffi)",
                        description="Render the arm's C solver and compile it with cffi (API mode) into an "

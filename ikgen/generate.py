@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .backends import batch as batch_backend, c as c_backend, common, python as python_backend
+from .backends import report as report_backend
 from .families import derive_arm
 from .ir import Derivation
 from .model import Arm
@@ -46,7 +47,21 @@ def build(arm: Arm) -> Build:
             files[f"{folder}/{name}"] = text
         name, text = c_backend.render_selftest(arm, derivation, scalar)
         files[f"{folder}/{name}"] = text
+    files.update(report_files(arm, derivation, files[f"{folder}/{folder}_ik.py"]))
     return Build(arm, derivation, files)
+
+
+def report_files(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
+    """The derivation report (HTML, Markdown and its two SVG figures), paths relative to the
+    output folder; the report verifies ``python_source`` (the generated solver) for its figures."""
+    folder = common.identifier(arm.name)
+    return {f"{folder}/{name}": text for name, text in report_backend.render(arm, derivation, python_source).items()}
+
+
+def build_report(arm: Arm) -> Build:
+    """Only the report files of an arm (``ikgen explain``)."""
+    derivation = derive_arm(arm)
+    return Build(arm, derivation, report_files(arm, derivation, python_backend.render(arm, derivation)))
 
 
 def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
@@ -58,6 +73,7 @@ def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
             target = out_dir / relative
             target.parent.mkdir(parents=True, exist_ok=True)
             handle, temporary = tempfile.mkstemp(prefix=".ikgen-", dir=target.parent)
+            os.chmod(temporary, 0o666 & ~_umask())   # mkstemp makes 0600; give the usual file mode
             with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
                 stream.write(text)
             staged.append((Path(temporary), target))
@@ -68,6 +84,12 @@ def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
     for temporary, target in staged:
         os.replace(temporary, target)
     return [target for _, target in staged]
+
+
+def _umask() -> int:
+    current = os.umask(0)
+    os.umask(current)
+    return current
 
 
 def stale(files: dict[str, str], out_dir: str | Path) -> list[str]:

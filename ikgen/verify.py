@@ -230,6 +230,9 @@ def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None
     trial = np.repeat(base[None, :], len(grid), axis=0)
     trial[:, joint] = grid
     values = measure(chain, trial)
+    exact = np.nonzero(values == 0.0)[0]
+    if len(exact):                       # a grid point lies exactly on the singular set
+        return trial[exact[0]].copy()
     changes = np.nonzero(np.sign(values[:-1]) * np.sign(values[1:]) < 0)[0]
     if len(changes) == 0:
         return None

@@ -94,7 +94,12 @@ def test_generated_source_imports_only_math_and_has_no_acos_asin(demos, stem):
     for banned in ("acos", "asin", "acosh", "asinh", "log", "pow"):
         assert banned not in names
     assert "sqrt" in names and "atan2" in names
-    assert module.MAX_SOLUTIONS == 8 and module.JOINT_COUNT == 6
+    # 8 closed-form solutions, times the equivalent readings of each multi-turn joint within its limits
+    multi_turn_readings = 1
+    for multi, (low, high) in zip(module.MULTI_TURN, module.JOINT_LIMITS):
+        if multi:
+            multi_turn_readings *= int((high - low) // 360.0) + 1
+    assert module.MAX_SOLUTIONS == 8 * multi_turn_readings and module.JOINT_COUNT == 6
 
 
 @pytest.mark.parametrize("stem", DEMOS)
@@ -129,9 +134,9 @@ def assert_reproduces(arm, module, pose, current, tolerance_scale=1e3):
     """Every solution is finite and reproduces the pose (within 1e3 x the regular round-trip
     tolerance, as ikgen.verify allows at singular poses); returns the solutions."""
     chain = NumericChain(arm)
-    solutions = module.inverse(pose, current)
+    solutions = module.inverse(pose, current, limits="ignore")
     assert solutions, "an exactly singular pose within reach gave no solution"
-    for joints, _, _ in solutions:
+    for joints, *_ in solutions:
         assert np.all(np.isfinite(joints))
         reached = chain.pose(np.array(joints))
         assert np.max(np.abs(reached[:3, 3] - pose[:3, 3])) < tolerance_scale * 1e-9 * arm.reach_scale()
@@ -196,9 +201,9 @@ def test_near_wrist_singularity_is_accurate_or_flagged(demos, stem):
             q = limits[:, 0] + (0.1 + 0.8 * rng.random(6)) * (limits[:, 1] - limits[:, 0])
             q[4] = (away - float(j5.theta) - float(j5.offset)) / j5.direction / arm.angle_scale
             pose = chain.pose(q)
-            solutions = module.inverse(pose, list(q))
+            solutions = module.inverse(pose, list(q), limits="ignore")
             assert any(same_readings(s[0][:3], q[:3], arm) for s in solutions)
-            for joints, _, singular in solutions:
+            for joints, _, singular, *_ in solutions:
                 reached = chain.pose(np.array(joints))
                 position = np.max(np.abs(reached[:3, 3] - pose[:3, 3])) / arm.reach_scale()
                 rotation = np.max(np.abs(reached[:3, :3] - pose[:3, :3]))
@@ -294,7 +299,7 @@ def test_shoulder_singularity(demos, special_arms, which):
         pose = NumericChain(arm).pose(q)
         current = q.copy()
         current[0] = wrap_reading(q[0] + 50.0 * math.pi / 180 / arm.angle_scale, arm)
-        for joints, _, singular in assert_reproduces(arm, module, pose, list(current)):
+        for joints, _, singular, *_ in assert_reproduces(arm, module, pose, list(current)):
             assert singular is True
             assert abs(wrap_reading(joints[0] - current[0], arm)) < 1e-9
     assert found == 5, f"{which}: found only {found} shoulder-singular poses"

@@ -80,10 +80,10 @@ def test_a_wrong_solution_fails_the_round_trip(good):
     def add_perturbed(pose, solutions):
         if not solutions:
             return solutions
-        joints, config, singular = solutions[0]
+        joints, config, singular, *rest = solutions[0]
         wrong = list(joints)
         wrong[1] += 0.01                       # a hundredth of a degree on joint 2
-        return solutions + [type(solutions[0])((tuple(wrong), config, singular))]
+        return solutions + [type(solutions[0])((tuple(wrong), config, singular, *rest))]
 
     report = verify(arm, Wrapped(module, add_perturbed), samples=SAMPLES, seed=5)
     assert not report.passed

@@ -34,6 +34,7 @@
 #define IK_STATUS CAT(IK_PREFIX, _status)
 #define IK_MAX CAT(IK_UPPER, _MAX_SOLUTIONS)
 #define IK_DOF CAT(IK_UPPER, _JOINTS)
+#define IK_CLOSED_FORM CAT(IK_UPPER, _LIMITS_IGNORE) /* the closed-form solve alone, no limit handling */
 
 #define RECORD 5 /* bytes a pose in COUNTS.bin: atan2, sqrt, sin, cos, solutions */
 
@@ -92,7 +93,7 @@ int main(int argc, char **argv)
     for (size_t i = 0; i < n; ++i) {
         const double *pose = poses + 16 * i;
         bench_atan2_calls = bench_sqrt_calls = bench_sin_calls = bench_cos_calls = 0;
-        int count = IK_INVERSE(pose, NULL, solutions, &status);
+        int count = IK_INVERSE(pose, NULL, IK_CLOSED_FORM, solutions, &status);
         unsigned long calls[4] = {bench_atan2_calls, bench_sqrt_calls, bench_sin_calls, bench_cos_calls};
         for (int k = 0; k < 4; ++k) {
             if (calls[k] > 255) {
@@ -157,7 +158,7 @@ static double solve_pass(const double *poses, size_t n, unsigned long *solution_
     unsigned long total = 0;
     double started = now_ns();
     for (size_t i = 0; i < n; ++i) {
-        int count = IK_INVERSE(poses + 16 * i, NULL, solutions, &status);
+        int count = IK_INVERSE(poses + 16 * i, NULL, IK_CLOSED_FORM, solutions, &status);
         total += (unsigned long)count;
         sink = count ? solutions[count - 1].joints[IK_DOF - 1] : 0.0;
     }

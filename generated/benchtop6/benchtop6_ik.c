@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define BENCHTOP6_IK_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const double LOW[BENCHTOP6_IK_JOINTS] = { -170.00000034000001, -120.00000024000002, -150.00000030000001, -180.00000036, -125.00000025000001, -180.00000036 };
+static const double HIGH[BENCHTOP6_IK_JOINTS] = { 170.00000034000001, 120.00000024000002, 150.00000030000001, 180.00000036, 125.00000025000001, 180.00000036 };
+static const double TURN[BENCHTOP6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
+static const int MULTI[BENCHTOP6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
+
+static int within(const double q[BENCHTOP6_IK_JOINTS])
+{
+    for (int j = 0; j < BENCHTOP6_IK_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void benchtop6_ik_forward(const double joints[BENCHTOP6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -85,9 +104,9 @@ void benchtop6_ik_forward(const double joints[BENCHTOP6_IK_JOINTS], double pose[
     pose[15] = 1.0;
 }
 
-int benchtop6_ik_inverse(const double pose[16], const double *current,
-                    benchtop6_ik_solution solutions[BENCHTOP6_IK_MAX_SOLUTIONS],
-                    benchtop6_ik_status *status)
+static int closed_form(const double pose[16], const double *current,
+                       benchtop6_ik_solution solutions[BENCHTOP6_IK_CLOSED_FORM],
+                       benchtop6_ik_status *status)
 {
     int count = 0;
     const double r11 = pose[0];
@@ -149,7 +168,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
         const double v1y = 220.0 - wz;
         const double v1z = c1*wy - s1*wx;
 
-        /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        /* joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
         const double ec3 = 125600.0 - t4_0;
@@ -312,7 +331,7 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
             const double lm0 = v1x + 25.0;
             const double lm1 = 260.0*v1x*(c2*v1y - s2*v1x);
             const double lm2 = s5;
-            if (count < BENCHTOP6_IK_MAX_SOLUTIONS) {
+            if (count < BENCHTOP6_IK_CLOSED_FORM) {
                 benchtop6_ik_solution *out = &solutions[count++];
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -328,9 +347,13 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                 out->joints[5] = th6 * 57.295779513082323;
                 out->config = 0u | (lm0 < 0.0 ? BENCHTOP6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? BENCHTOP6_IK_ELBOW_DOWN : 0u) | (lm2 < 0.0 ? BENCHTOP6_IK_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                out->conditioning[0] = root1 * 0.003162277660168379;
+                out->conditioning[1] = root3 * 7.9851422936288423e-06;
+                out->conditioning[2] = root5 * 1.0;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0 && !free4) {
-                if (count < BENCHTOP6_IK_MAX_SOLUTIONS) {
+                if (count < BENCHTOP6_IK_CLOSED_FORM) {
                     benchtop6_ik_solution *out = &solutions[count++];
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -352,6 +375,10 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
                     out->joints[5] = u6 * 57.295779513082323;
                     out->config = 0u | (lm0 < 0.0 ? BENCHTOP6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? BENCHTOP6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? BENCHTOP6_IK_WRIST_FLIP : 0u);
                     out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = root1 * 0.003162277660168379;
+                    out->conditioning[1] = root3 * 7.9851422936288423e-06;
+                    out->conditioning[2] = root5 * 1.0;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -361,8 +388,92 @@ int benchtop6_ik_inverse(const double pose[16], const double *current,
     return count;
 }
 
+static int in_limits(double value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const benchtop6_ik_solution *in, benchtop6_ik_solution *out, int room)
+{
+    double values[BENCHTOP6_IK_JOINTS][1];
+    int counts[BENCHTOP6_IK_JOINTS];
+    int total = 1;
+    for (int j = 0; j < BENCHTOP6_IK_JOINTS; ++j) {
+        double v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (double)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (double)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            double first = v + (double)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 1) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = BENCHTOP6_IK_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int benchtop6_ik_inverse(const double pose[16], const double *current, benchtop6_ik_limits limits,
+                    benchtop6_ik_solution solutions[BENCHTOP6_IK_MAX_SOLUTIONS],
+                    benchtop6_ik_status *status)
+{
+    benchtop6_ik_solution raw[BENCHTOP6_IK_CLOSED_FORM];
+    benchtop6_ik_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == BENCHTOP6_IK_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], BENCHTOP6_IK_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == BENCHTOP6_IK_LIMITS_FLAG && count < BENCHTOP6_IK_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == BENCHTOP6_IK_INVALID_INPUT ? closed_status
+                  : (count ? BENCHTOP6_IK_OK : BENCHTOP6_IK_UNREACHABLE);
+    }
+    return count;
+}
+
 int benchtop6_ik_inverse_rp(const double position[3], const double rotation[9],
-                    const double *current,
+                    const double *current, benchtop6_ik_limits limits,
                     benchtop6_ik_solution solutions[BENCHTOP6_IK_MAX_SOLUTIONS],
                     benchtop6_ik_status *status)
 {
@@ -371,5 +482,54 @@ int benchtop6_ik_inverse_rp(const double position[3], const double rotation[9],
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0, 0.0, 0.0, 1.0};
-    return benchtop6_ik_inverse(pose, current, solutions, status);
+    return benchtop6_ik_inverse(pose, current, limits, solutions, status);
+}
+
+double benchtop6_ik_distance(const double a[BENCHTOP6_IK_JOINTS], const double b[BENCHTOP6_IK_JOINTS],
+                    const double *weights)
+{
+    double sum = 0.0;
+    for (int j = 0; j < BENCHTOP6_IK_JOINTS; ++j) {
+        const double d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrt(sum);
+}
+
+void benchtop6_ik_sort_nearest(benchtop6_ik_solution *solutions, int count,
+                    const double current[BENCHTOP6_IK_JOINTS], const double *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const benchtop6_ik_solution item = solutions[i];
+        const double d = benchtop6_ik_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && benchtop6_ik_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int benchtop6_ik_nearest(const double pose[16], const double current[BENCHTOP6_IK_JOINTS],
+                    const double *weights, unsigned config_mask, unsigned config_value,
+                    benchtop6_ik_limits limits, benchtop6_ik_solution *best,
+                    benchtop6_ik_status *status)
+{
+    benchtop6_ik_solution all[BENCHTOP6_IK_MAX_SOLUTIONS];
+    const int count = benchtop6_ik_inverse(pose, current, limits, all, status);
+    int found = 0;
+    double best_distance = 0.0;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const double d = benchtop6_ik_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

@@ -13,10 +13,21 @@ the standard library's math module.
 
 API:
     forward(joints) -> 4x4 tool pose (nested lists, row-major) for joint readings.
-    inverse(pose, current=None) -> list of Solution, every closed-form solution of the pose;
-        an empty list when the pose is out of reach or not finite. ``current`` (joint readings)
-        fills a joint left free at a singular pose; 0 is used when it is None.
-    Solution: a tuple (joints, config, singular); config holds one label per LABEL_NAMES entry.
+    inverse(pose, current=None, limits="drop") -> list of Solution: every closed-form solution of
+        the pose; an empty list when the pose is out of reach or not finite. ``current`` (joint
+        readings) fills a joint that a singular pose leaves free (0 when None). ``limits``:
+        "drop" keeps the solutions within JOINT_LIMITS and gives a joint whose range exceeds a turn
+        every equivalent reading (q + k turns) inside its limits, each as its own solution;
+        "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
+        solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
+        ``current`` (see distance), optionally of a given configuration, or None.
+    sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
+    distance(a, b, weights=None) -> sqrt(sum(w_j * (a_j - b_j)^2)) over joints, in reading units;
+        readings within limits are positions, so the plain difference is the travel.
+    Solution: a tuple (joints, config, singular, conditioning, within_limits); config holds one
+        label per LABEL_NAMES entry; conditioning one measure per CONDITION_NAMES entry (0 at the
+        singular set, larger away from it).
 
 Safety: check every solution in simulation before moving a real arm. Joint limits, collisions
 and cell safety are the integrator's job under the applicable machine-safety standards.
@@ -27,17 +38,20 @@ from math import atan2, cos, sin, sqrt
 ARM_NAME = "benchtop6"
 JOINT_NAMES = ("waist", "shoulder", "elbow", "forearm_roll", "wrist_bend", "flange_roll", )
 JOINT_COUNT = 6
-MAX_SOLUTIONS = 8
+MAX_SOLUTIONS = 8  # 8 closed-form solutions, times the equivalent readings of multi-turn joints
 LABEL_NAMES = ("shoulder", "elbow", "wrist", )
 JOINT_LIMITS = ((-170.0, 170.0), (-120.00000000000001, 120.00000000000001), (-150.0, 150.0), (-180.0, 180.0), (-125.00000000000001, 125.00000000000001), (-180.0, 180.0), )
 LENGTH_UNIT = "mm"
 ANGLE_UNIT = "deg"
+CONDITION_NAMES = ("shoulder", "elbow", "wrist", )
+LABEL_VALUES = (("front", "back"), ("up", "down"), ("noflip", "flip"), )
+MULTI_TURN = (False, False, False, False, False, False, )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
 class Solution(tuple):
-    """One solution: (joints, config, singular)."""
+    """One solution: (joints, config, singular, conditioning, within_limits)."""
 
     __slots__ = ()
 
@@ -56,7 +70,109 @@ class Solution(tuple):
         """True when the pose is singular for this solution (a joint was free, or a double root)."""
         return self[2]
 
+    @property
+    def conditioning(self):
+        """One measure per CONDITION_NAMES entry: 0 at that branch's singular set (for the usual
+        arm: |sin| of the elbow's angle from full stretch, |sin| of the middle wrist joint, the wrist
+        centre's distance from axis 1 over a typical distance); slow down as one nears 0."""
+        return self[3]
+
+    @property
+    def within_limits(self):
+        """True when every reading lies within JOINT_LIMITS."""
+        return self[4]
+
 _new = tuple.__new__
+
+def _turns(value, low, high, turn):
+    """Every value + k * turn (k whole) within [low, high]."""
+    k = -((value - low) // turn)
+    first = value + k * turn
+    out = []
+    while first <= high:
+        out.append(first)
+        first += turn
+    return out
+
+def _expand(q):
+    """The readings within the limits that are equivalent to q (empty when there are none)."""
+    q1, q2, q3, q4, q5, q6 = q
+    if not -170.00000034 <= q1 <= 170.00000034:
+        q1 = q1 + 360.0 if q1 < -170.00000034 else q1 - 360.0
+        if not -170.00000034 <= q1 <= 170.00000034:
+            return ()
+    if not -120.00000024000002 <= q2 <= 120.00000024000002:
+        q2 = q2 + 360.0 if q2 < -120.00000024000002 else q2 - 360.0
+        if not -120.00000024000002 <= q2 <= 120.00000024000002:
+            return ()
+    if not -150.0000003 <= q3 <= 150.0000003:
+        q3 = q3 + 360.0 if q3 < -150.0000003 else q3 - 360.0
+        if not -150.0000003 <= q3 <= 150.0000003:
+            return ()
+    if not -180.00000036 <= q4 <= 180.00000036:
+        q4 = q4 + 360.0 if q4 < -180.00000036 else q4 - 360.0
+        if not -180.00000036 <= q4 <= 180.00000036:
+            return ()
+    if not -125.00000025000001 <= q5 <= 125.00000025000001:
+        q5 = q5 + 360.0 if q5 < -125.00000025000001 else q5 - 360.0
+        if not -125.00000025000001 <= q5 <= 125.00000025000001:
+            return ()
+    if not -180.00000036 <= q6 <= 180.00000036:
+        q6 = q6 + 360.0 if q6 < -180.00000036 else q6 - 360.0
+        if not -180.00000036 <= q6 <= 180.00000036:
+            return ()
+    return ((q1, q2, q3, q4, q5, q6),)
+
+def inverse(pose, current=None, limits="drop"):
+    """Every closed-form solution of a tool pose (4x4 or 3x4 row-major, world frame); see the
+    module docstring for ``current`` and ``limits``."""
+    solutions = _closed_form(pose, current)
+    if limits == "ignore":
+        return solutions
+    if limits not in ("drop", "flag"):
+        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
+    if all(s[4] for s in solutions):
+        return solutions
+    out = []
+    for solution in solutions:
+        q, c, s, k, inside = solution
+        expanded = _expand(q)
+        if expanded:
+            for e in expanded:
+                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+        elif limits == "flag":
+            out.append(solution)
+    return out
+
+def distance(a, b, weights=None):
+    """Weighted Euclidean distance between two joint vectors, in reading units."""
+    if weights is None:
+        return sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
+    return sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
+
+def sort_nearest(solutions, current, weights=None):
+    """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    return sorted(solutions, key=lambda s: distance(s[0], current, weights))
+
+def _matches(config, wanted):
+    if wanted is None:
+        return True
+    if isinstance(wanted, dict):
+        return all(config[LABEL_NAMES.index(name)] == value for name, value in wanted.items())
+    return all(w is None or w == c for c, w in zip(config, wanted))
+
+def nearest(pose, current, weights=None, config=None, limits="drop"):
+    """The solution closest to ``current`` (of configuration ``config`` if given: a dict such as
+    {"elbow": "up"} or a sequence with None for 'any'), or None when there is none."""
+    best = None
+    best_distance = 0.0
+    for solution in inverse(pose, current, limits):
+        if not _matches(solution[1], config):
+            continue
+        d = distance(solution[0], current, weights)
+        if best is None or d < best_distance:
+            best, best_distance = solution, d
+    return best
 
 def forward(joints):
     """Tool pose in the world frame (4x4 nested lists) for joint readings in the arm's units."""
@@ -118,8 +234,8 @@ def forward(joints):
         [0.0, 0.0, 0.0, 1.0],
     ]
 
-def inverse(pose, current=None):
-    """Every closed-form solution for a tool pose (4x4 or 3x4 row-major, world frame)."""
+def _closed_form(pose, current):
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
     r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
@@ -162,7 +278,7 @@ def inverse(pose, current=None):
         v1y = 220 - wz
         v1z = c1*wy - s1*wx
 
-        # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        # joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t4_0 = v1x*v1x + v1y*v1y + v1z*v1z
         ec3 = 125600 - t4_0
@@ -310,18 +426,19 @@ def inverse(pose, current=None):
             u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
             u5 = th5
             u6 = th6
-            solutions.append(_new(Solution, ((
+            q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 u3 * 57.29577951308232,
                 u4 * 57.29577951308232,
                 u5 * 57.29577951308232,
                 u6 * 57.29577951308232,
-            ), (
+            )
+            solutions.append(_new(Solution, (q, (
                 "front" if lm0 >= 0.0 else "back",
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
-            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
+            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, ), -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -180.00000036 <= q[3] <= 180.00000036 and -125.00000025000001 <= q[4] <= 125.00000025000001 and -180.00000036 <= q[5] <= 180.00000036)))
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -329,16 +446,17 @@ def inverse(pose, current=None):
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                solutions.append(_new(Solution, ((
+                q = (
                     u1 * 57.29577951308232,
                     u2 * 57.29577951308232,
                     u3 * 57.29577951308232,
                     u4 * 57.29577951308232,
                     u5 * 57.29577951308232,
                     u6 * 57.29577951308232,
-                ), (
+                )
+                solutions.append(_new(Solution, (q, (
                     "front" if lm0 >= 0.0 else "back",
                     "up" if lm1 >= 0.0 else "down",
                     "flip" if lm2 >= 0.0 else "noflip",
-                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
+                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, ), -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -180.00000036 <= q[3] <= 180.00000036 and -125.00000025000001 <= q[4] <= 125.00000025000001 and -180.00000036 <= q[5] <= 180.00000036)))
     return solutions

@@ -129,7 +129,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_config, out_singular
         v1y = 220 - wz
         v1z = c1*wy - s1*wx
 
-        # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        # joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
         t4_0 = v1x*v1x + v1y*v1y + v1z*v1z
         ec3 = 125600 - t4_0
         er3 = (250832.5836194399 - t4_0)*(t4_0 - 367.416380560127)

@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define BENCHTOP6_IK_F32_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const float LOW[BENCHTOP6_IK_F32_JOINTS] = { -170.0f, -120.0f, -150.0f, -180.0f, -125.0f, -180.0f };
+static const float HIGH[BENCHTOP6_IK_F32_JOINTS] = { 170.0f, 120.0f, 150.0f, 180.0f, 125.0f, 180.0f };
+static const float TURN[BENCHTOP6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
+static const int MULTI[BENCHTOP6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
+
+static int within(const float q[BENCHTOP6_IK_F32_JOINTS])
+{
+    for (int j = 0; j < BENCHTOP6_IK_F32_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void benchtop6_ik_f32_forward(const float joints[BENCHTOP6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -85,9 +104,9 @@ void benchtop6_ik_f32_forward(const float joints[BENCHTOP6_IK_F32_JOINTS], float
     pose[15] = 1.0f;
 }
 
-int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
-                    benchtop6_ik_f32_solution solutions[BENCHTOP6_IK_F32_MAX_SOLUTIONS],
-                    benchtop6_ik_f32_status *status)
+static int closed_form(const float pose[16], const float *current,
+                       benchtop6_ik_f32_solution solutions[BENCHTOP6_IK_F32_CLOSED_FORM],
+                       benchtop6_ik_f32_status *status)
 {
     int count = 0;
     const float r11 = pose[0];
@@ -149,7 +168,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
         const float v1y = 220.0f - wz;
         const float v1z = c1*wy - s1*wx;
 
-        /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        /* joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t4_0 = v1x*v1x + v1y*v1y + v1z*v1z;
         const float ec3 = 125600.0f - t4_0;
@@ -312,7 +331,7 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
             const float lm0 = v1x + 25.0f;
             const float lm1 = 260.0f*v1x*(c2*v1y - s2*v1x);
             const float lm2 = s5;
-            if (count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
+            if (count < BENCHTOP6_IK_F32_CLOSED_FORM) {
                 benchtop6_ik_f32_solution *out = &solutions[count++];
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -328,9 +347,13 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                 out->joints[5] = th6 * 57.2957795f;
                 out->config = 0u | (lm0 < 0.0f ? BENCHTOP6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? BENCHTOP6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? BENCHTOP6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                out->conditioning[0] = root1 * 0.00316227766f;
+                out->conditioning[1] = root3 * 7.98514229e-06f;
+                out->conditioning[2] = root5 * 1.0f;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0f && !free4) {
-                if (count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
+                if (count < BENCHTOP6_IK_F32_CLOSED_FORM) {
                     benchtop6_ik_f32_solution *out = &solutions[count++];
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -352,6 +375,10 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
                     out->joints[5] = u6 * 57.2957795f;
                     out->config = 0u | (lm0 < 0.0f ? BENCHTOP6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? BENCHTOP6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? BENCHTOP6_IK_F32_WRIST_FLIP : 0u);
                     out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = root1 * 0.00316227766f;
+                    out->conditioning[1] = root3 * 7.98514229e-06f;
+                    out->conditioning[2] = root5 * 1.0f;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -361,8 +388,92 @@ int benchtop6_ik_f32_inverse(const float pose[16], const float *current,
     return count;
 }
 
+static int in_limits(float value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const benchtop6_ik_f32_solution *in, benchtop6_ik_f32_solution *out, int room)
+{
+    float values[BENCHTOP6_IK_F32_JOINTS][1];
+    int counts[BENCHTOP6_IK_F32_JOINTS];
+    int total = 1;
+    for (int j = 0; j < BENCHTOP6_IK_F32_JOINTS; ++j) {
+        float v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (float)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (float)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            float first = v + (float)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 1) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0f) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = BENCHTOP6_IK_F32_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int benchtop6_ik_f32_inverse(const float pose[16], const float *current, benchtop6_ik_f32_limits limits,
+                    benchtop6_ik_f32_solution solutions[BENCHTOP6_IK_F32_MAX_SOLUTIONS],
+                    benchtop6_ik_f32_status *status)
+{
+    benchtop6_ik_f32_solution raw[BENCHTOP6_IK_F32_CLOSED_FORM];
+    benchtop6_ik_f32_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == BENCHTOP6_IK_F32_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], BENCHTOP6_IK_F32_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == BENCHTOP6_IK_F32_LIMITS_FLAG && count < BENCHTOP6_IK_F32_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == BENCHTOP6_IK_F32_INVALID_INPUT ? closed_status
+                  : (count ? BENCHTOP6_IK_F32_OK : BENCHTOP6_IK_F32_UNREACHABLE);
+    }
+    return count;
+}
+
 int benchtop6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
-                    const float *current,
+                    const float *current, benchtop6_ik_f32_limits limits,
                     benchtop6_ik_f32_solution solutions[BENCHTOP6_IK_F32_MAX_SOLUTIONS],
                     benchtop6_ik_f32_status *status)
 {
@@ -371,5 +482,54 @@ int benchtop6_ik_f32_inverse_rp(const float position[3], const float rotation[9]
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0f, 0.0f, 0.0f, 1.0f};
-    return benchtop6_ik_f32_inverse(pose, current, solutions, status);
+    return benchtop6_ik_f32_inverse(pose, current, limits, solutions, status);
+}
+
+float benchtop6_ik_f32_distance(const float a[BENCHTOP6_IK_F32_JOINTS], const float b[BENCHTOP6_IK_F32_JOINTS],
+                    const float *weights)
+{
+    float sum = 0.0f;
+    for (int j = 0; j < BENCHTOP6_IK_F32_JOINTS; ++j) {
+        const float d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrtf(sum);
+}
+
+void benchtop6_ik_f32_sort_nearest(benchtop6_ik_f32_solution *solutions, int count,
+                    const float current[BENCHTOP6_IK_F32_JOINTS], const float *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const benchtop6_ik_f32_solution item = solutions[i];
+        const float d = benchtop6_ik_f32_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && benchtop6_ik_f32_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int benchtop6_ik_f32_nearest(const float pose[16], const float current[BENCHTOP6_IK_F32_JOINTS],
+                    const float *weights, unsigned config_mask, unsigned config_value,
+                    benchtop6_ik_f32_limits limits, benchtop6_ik_f32_solution *best,
+                    benchtop6_ik_f32_status *status)
+{
+    benchtop6_ik_f32_solution all[BENCHTOP6_IK_F32_MAX_SOLUTIONS];
+    const int count = benchtop6_ik_f32_inverse(pose, current, limits, all, status);
+    int found = 0;
+    float best_distance = 0.0f;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const float d = benchtop6_ik_f32_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

@@ -444,7 +444,7 @@ int benchtop6_ik_f32_selftest(void)
         pose[14] = 0.0f;
         pose[15] = 1.0f;
         benchtop6_ik_f32_solution solutions[BENCHTOP6_IK_F32_MAX_SOLUTIONS];
-        const int count = benchtop6_ik_f32_inverse(pose, 0, solutions, 0);
+        const int count = benchtop6_ik_f32_inverse(pose, 0, BENCHTOP6_IK_F32_LIMITS_DROP, solutions, 0);
         if (count < 1) {
             ++failures;
             continue;

@@ -444,7 +444,7 @@ int benchtop6_ik_selftest(void)
         pose[14] = 0.0;
         pose[15] = 1.0;
         benchtop6_ik_solution solutions[BENCHTOP6_IK_MAX_SOLUTIONS];
-        const int count = benchtop6_ik_inverse(pose, 0, solutions, 0);
+        const int count = benchtop6_ik_inverse(pose, 0, BENCHTOP6_IK_LIMITS_DROP, solutions, 0);
         if (count < 1) {
             ++failures;
             continue;

@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define INSPECTOR6_IK_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const double LOW[INSPECTOR6_IK_JOINTS] = { -175.00000034999999, -140.00000023999999, -160.00000027999999, -270.00000053999997, -120.00000024000002, -360.00000072 };
+static const double HIGH[INSPECTOR6_IK_JOINTS] = { 175.00000034999999, 100.00000024000001, 120.00000028000001, 270.00000053999997, 120.00000024000002, 360.00000072 };
+static const double TURN[INSPECTOR6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
+static const int MULTI[INSPECTOR6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
+
+static int within(const double q[INSPECTOR6_IK_JOINTS])
+{
+    for (int j = 0; j < INSPECTOR6_IK_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void inspector6_ik_forward(const double joints[INSPECTOR6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -83,9 +102,9 @@ void inspector6_ik_forward(const double joints[INSPECTOR6_IK_JOINTS], double pos
     pose[15] = 1.0;
 }
 
-int inspector6_ik_inverse(const double pose[16], const double *current,
-                    inspector6_ik_solution solutions[INSPECTOR6_IK_MAX_SOLUTIONS],
-                    inspector6_ik_status *status)
+static int closed_form(const double pose[16], const double *current,
+                       inspector6_ik_solution solutions[INSPECTOR6_IK_CLOSED_FORM],
+                       inspector6_ik_status *status)
 {
     int count = 0;
     const double r11 = pose[0];
@@ -123,7 +142,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
     const double rc32 = -r31;
     const double rc33 = -r33;
 
-    /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+    /* joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz;
     const double ec3 = 154100.0 - t3_0;
@@ -318,7 +337,7 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
             const double lm0 = v1x;
             const double lm1 = 320.0*v1x*(-c2*v1y + s2*v1x);
             const double lm2 = s5;
-            if (count < INSPECTOR6_IK_MAX_SOLUTIONS) {
+            if (count < INSPECTOR6_IK_CLOSED_FORM) {
                 inspector6_ik_solution *out = &solutions[count++];
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -336,9 +355,13 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                 out->joints[5] = th6 * 57.295779513082323;
                 out->config = 0u | (lm0 < 0.0 ? INSPECTOR6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? INSPECTOR6_IK_ELBOW_DOWN : 0u) | (lm2 < 0.0 ? INSPECTOR6_IK_WRIST_FLIP : 0u);
                 out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                out->conditioning[0] = root3 * 5.3879310344827582e-06;
+                out->conditioning[1] = root1 * 0.003162277660168379;
+                out->conditioning[2] = root5 * 1.0;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0 && !free4) {
-                if (count < INSPECTOR6_IK_MAX_SOLUTIONS) {
+                if (count < INSPECTOR6_IK_CLOSED_FORM) {
                     inspector6_ik_solution *out = &solutions[count++];
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -360,6 +383,10 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
                     out->joints[5] = u6 * 57.295779513082323;
                     out->config = 0u | (lm0 < 0.0 ? INSPECTOR6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? INSPECTOR6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? INSPECTOR6_IK_WRIST_FLIP : 0u);
                     out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = root3 * 5.3879310344827582e-06;
+                    out->conditioning[1] = root1 * 0.003162277660168379;
+                    out->conditioning[2] = root5 * 1.0;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -369,8 +396,92 @@ int inspector6_ik_inverse(const double pose[16], const double *current,
     return count;
 }
 
+static int in_limits(double value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const inspector6_ik_solution *in, inspector6_ik_solution *out, int room)
+{
+    double values[INSPECTOR6_IK_JOINTS][3];
+    int counts[INSPECTOR6_IK_JOINTS];
+    int total = 1;
+    for (int j = 0; j < INSPECTOR6_IK_JOINTS; ++j) {
+        double v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (double)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (double)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            double first = v + (double)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 3) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = INSPECTOR6_IK_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int inspector6_ik_inverse(const double pose[16], const double *current, inspector6_ik_limits limits,
+                    inspector6_ik_solution solutions[INSPECTOR6_IK_MAX_SOLUTIONS],
+                    inspector6_ik_status *status)
+{
+    inspector6_ik_solution raw[INSPECTOR6_IK_CLOSED_FORM];
+    inspector6_ik_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == INSPECTOR6_IK_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], INSPECTOR6_IK_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == INSPECTOR6_IK_LIMITS_FLAG && count < INSPECTOR6_IK_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == INSPECTOR6_IK_INVALID_INPUT ? closed_status
+                  : (count ? INSPECTOR6_IK_OK : INSPECTOR6_IK_UNREACHABLE);
+    }
+    return count;
+}
+
 int inspector6_ik_inverse_rp(const double position[3], const double rotation[9],
-                    const double *current,
+                    const double *current, inspector6_ik_limits limits,
                     inspector6_ik_solution solutions[INSPECTOR6_IK_MAX_SOLUTIONS],
                     inspector6_ik_status *status)
 {
@@ -379,5 +490,54 @@ int inspector6_ik_inverse_rp(const double position[3], const double rotation[9],
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0, 0.0, 0.0, 1.0};
-    return inspector6_ik_inverse(pose, current, solutions, status);
+    return inspector6_ik_inverse(pose, current, limits, solutions, status);
+}
+
+double inspector6_ik_distance(const double a[INSPECTOR6_IK_JOINTS], const double b[INSPECTOR6_IK_JOINTS],
+                    const double *weights)
+{
+    double sum = 0.0;
+    for (int j = 0; j < INSPECTOR6_IK_JOINTS; ++j) {
+        const double d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrt(sum);
+}
+
+void inspector6_ik_sort_nearest(inspector6_ik_solution *solutions, int count,
+                    const double current[INSPECTOR6_IK_JOINTS], const double *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const inspector6_ik_solution item = solutions[i];
+        const double d = inspector6_ik_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && inspector6_ik_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int inspector6_ik_nearest(const double pose[16], const double current[INSPECTOR6_IK_JOINTS],
+                    const double *weights, unsigned config_mask, unsigned config_value,
+                    inspector6_ik_limits limits, inspector6_ik_solution *best,
+                    inspector6_ik_status *status)
+{
+    inspector6_ik_solution all[INSPECTOR6_IK_MAX_SOLUTIONS];
+    const int count = inspector6_ik_inverse(pose, current, limits, all, status);
+    int found = 0;
+    double best_distance = 0.0;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const double d = inspector6_ik_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

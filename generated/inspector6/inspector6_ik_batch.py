@@ -113,7 +113,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_config, out_singular
         rc32 = -r31
         rc33 = -r33
 
-        # joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+        # joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
         t3_0 = wx*wx + wy*wy + wz*wz - 360*wz
         ec3 = 154100 - t3_0
         er3 = (339700 - t3_0)*(t3_0 + 31500)

@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define INSPECTOR6_IK_F32_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const float LOW[INSPECTOR6_IK_F32_JOINTS] = { -175.0f, -140.0f, -160.0f, -270.000001f, -120.0f, -360.000001f };
+static const float HIGH[INSPECTOR6_IK_F32_JOINTS] = { 175.0f, 100.0f, 120.0f, 270.000001f, 120.0f, 360.000001f };
+static const float TURN[INSPECTOR6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
+static const int MULTI[INSPECTOR6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
+
+static int within(const float q[INSPECTOR6_IK_F32_JOINTS])
+{
+    for (int j = 0; j < INSPECTOR6_IK_F32_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void inspector6_ik_f32_forward(const float joints[INSPECTOR6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -83,9 +102,9 @@ void inspector6_ik_f32_forward(const float joints[INSPECTOR6_IK_F32_JOINTS], flo
     pose[15] = 1.0f;
 }
 
-int inspector6_ik_f32_inverse(const float pose[16], const float *current,
-                    inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_MAX_SOLUTIONS],
-                    inspector6_ik_f32_status *status)
+static int closed_form(const float pose[16], const float *current,
+                       inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_CLOSED_FORM],
+                       inspector6_ik_f32_status *status)
 {
     int count = 0;
     const float r11 = pose[0];
@@ -123,7 +142,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
     const float rc32 = -r31;
     const float rc33 = -r33;
 
-    /* joint 3: |v1 = (A1..A1)^-1 w|^2 = |A2 A3 c3|^2
+    /* joint 3: |v1 = A1^-1 w|^2 = |A2 A3 c3|^2
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy + wz*wz - 360.0f*wz;
     const float ec3 = 154100.0f - t3_0;
@@ -318,7 +337,7 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
             const float lm0 = v1x;
             const float lm1 = 320.0f*v1x*(-c2*v1y + s2*v1x);
             const float lm2 = s5;
-            if (count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
+            if (count < INSPECTOR6_IK_F32_CLOSED_FORM) {
                 inspector6_ik_f32_solution *out = &solutions[count++];
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -336,9 +355,13 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                 out->joints[5] = th6 * 57.2957795f;
                 out->config = 0u | (lm0 < 0.0f ? INSPECTOR6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? INSPECTOR6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? INSPECTOR6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                out->conditioning[0] = root3 * 5.38793103e-06f;
+                out->conditioning[1] = root1 * 0.00316227766f;
+                out->conditioning[2] = root5 * 1.0f;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0f && !free4) {
-                if (count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
+                if (count < INSPECTOR6_IK_F32_CLOSED_FORM) {
                     inspector6_ik_f32_solution *out = &solutions[count++];
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -360,6 +383,10 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
                     out->joints[5] = u6 * 57.2957795f;
                     out->config = 0u | (lm0 < 0.0f ? INSPECTOR6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? INSPECTOR6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? INSPECTOR6_IK_F32_WRIST_FLIP : 0u);
                     out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = root3 * 5.38793103e-06f;
+                    out->conditioning[1] = root1 * 0.00316227766f;
+                    out->conditioning[2] = root5 * 1.0f;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -369,8 +396,92 @@ int inspector6_ik_f32_inverse(const float pose[16], const float *current,
     return count;
 }
 
+static int in_limits(float value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const inspector6_ik_f32_solution *in, inspector6_ik_f32_solution *out, int room)
+{
+    float values[INSPECTOR6_IK_F32_JOINTS][3];
+    int counts[INSPECTOR6_IK_F32_JOINTS];
+    int total = 1;
+    for (int j = 0; j < INSPECTOR6_IK_F32_JOINTS; ++j) {
+        float v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (float)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (float)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            float first = v + (float)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 3) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0f) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = INSPECTOR6_IK_F32_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int inspector6_ik_f32_inverse(const float pose[16], const float *current, inspector6_ik_f32_limits limits,
+                    inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_MAX_SOLUTIONS],
+                    inspector6_ik_f32_status *status)
+{
+    inspector6_ik_f32_solution raw[INSPECTOR6_IK_F32_CLOSED_FORM];
+    inspector6_ik_f32_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == INSPECTOR6_IK_F32_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], INSPECTOR6_IK_F32_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == INSPECTOR6_IK_F32_LIMITS_FLAG && count < INSPECTOR6_IK_F32_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == INSPECTOR6_IK_F32_INVALID_INPUT ? closed_status
+                  : (count ? INSPECTOR6_IK_F32_OK : INSPECTOR6_IK_F32_UNREACHABLE);
+    }
+    return count;
+}
+
 int inspector6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
-                    const float *current,
+                    const float *current, inspector6_ik_f32_limits limits,
                     inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_MAX_SOLUTIONS],
                     inspector6_ik_f32_status *status)
 {
@@ -379,5 +490,54 @@ int inspector6_ik_f32_inverse_rp(const float position[3], const float rotation[9
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0f, 0.0f, 0.0f, 1.0f};
-    return inspector6_ik_f32_inverse(pose, current, solutions, status);
+    return inspector6_ik_f32_inverse(pose, current, limits, solutions, status);
+}
+
+float inspector6_ik_f32_distance(const float a[INSPECTOR6_IK_F32_JOINTS], const float b[INSPECTOR6_IK_F32_JOINTS],
+                    const float *weights)
+{
+    float sum = 0.0f;
+    for (int j = 0; j < INSPECTOR6_IK_F32_JOINTS; ++j) {
+        const float d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrtf(sum);
+}
+
+void inspector6_ik_f32_sort_nearest(inspector6_ik_f32_solution *solutions, int count,
+                    const float current[INSPECTOR6_IK_F32_JOINTS], const float *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const inspector6_ik_f32_solution item = solutions[i];
+        const float d = inspector6_ik_f32_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && inspector6_ik_f32_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int inspector6_ik_f32_nearest(const float pose[16], const float current[INSPECTOR6_IK_F32_JOINTS],
+                    const float *weights, unsigned config_mask, unsigned config_value,
+                    inspector6_ik_f32_limits limits, inspector6_ik_f32_solution *best,
+                    inspector6_ik_f32_status *status)
+{
+    inspector6_ik_f32_solution all[INSPECTOR6_IK_F32_MAX_SOLUTIONS];
+    const int count = inspector6_ik_f32_inverse(pose, current, limits, all, status);
+    int found = 0;
+    float best_distance = 0.0f;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const float d = inspector6_ik_f32_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

@@ -28,39 +28,71 @@ extern "C" {
 #endif
 
 #define INSPECTOR6_IK_F32_JOINTS 6
-#define INSPECTOR6_IK_F32_MAX_SOLUTIONS 8
+/* 8 closed-form solutions, times the equivalent readings of multi-turn joints */
+#define INSPECTOR6_IK_F32_MAX_SOLUTIONS 48
+#define INSPECTOR6_IK_F32_CONDITIONS 3
 
 /* Configuration bits of inspector6_ik_f32_solution.config: a bit is set for the second label. */
 #define INSPECTOR6_IK_F32_SHOULDER_BACK (1u << 0) /* clear: front */
 #define INSPECTOR6_IK_F32_ELBOW_DOWN (1u << 1) /* clear: up */
 #define INSPECTOR6_IK_F32_WRIST_FLIP (1u << 2) /* clear: noflip */
 
+/* Conditioning measures, inspector6_ik_f32_solution.conditioning[k]: 0 at that branch's singular
+ * set, larger away from it (slow down as one nears 0). */
+#define INSPECTOR6_IK_F32_CONDITION_ELBOW 0
+#define INSPECTOR6_IK_F32_CONDITION_SHOULDER 1
+#define INSPECTOR6_IK_F32_CONDITION_WRIST 2
+
 typedef enum {
     INSPECTOR6_IK_F32_OK = 0,           /* at least one solution */
-    INSPECTOR6_IK_F32_UNREACHABLE = 1,  /* the pose is out of reach: no solution */
+    INSPECTOR6_IK_F32_UNREACHABLE = 1,  /* no solution: the pose is out of reach (or out of the limits) */
     INSPECTOR6_IK_F32_INVALID_INPUT = 2 /* a NaN or infinite number in the input */
 } inspector6_ik_f32_status;
 
+typedef enum {
+    INSPECTOR6_IK_F32_LIMITS_DROP = 0,  /* only readings within the limits; multi-turn joints give every
+                                           equivalent reading (q + k turns) inside them */
+    INSPECTOR6_IK_F32_LIMITS_FLAG = 1,  /* as DROP, and also the others with within_limits = 0 */
+    INSPECTOR6_IK_F32_LIMITS_IGNORE = 2 /* the closed-form solutions, revolute readings in one turn */
+} inspector6_ik_f32_limits;
+
 typedef struct {
     float joints[INSPECTOR6_IK_F32_JOINTS]; /* readings in the arm's units, in joint order */
+    float conditioning[INSPECTOR6_IK_F32_CONDITIONS]; /* see above */
     unsigned config;                    /* configuration bits, see above */
     int singular;                       /* 1 when a joint was free (singular pose) or a root was double */
+    int within_limits;                  /* 1 when every reading lies within the joint limits */
 } inspector6_ik_f32_solution;
 
 /* Tool pose (row-major 4x4) for joint readings. */
 void inspector6_ik_f32_forward(const float joints[INSPECTOR6_IK_F32_JOINTS], float pose[16]);
 
-/* Every closed-form solution of a pose. `current` (joint readings, may be NULL) fills a joint
- * that the pose leaves free at a singular pose (0 when NULL). Writes at most
+/* Every closed-form solution of a pose, in branch order. `current` (joint readings, may be NULL)
+ * fills a joint that the pose leaves free at a singular pose (0 when NULL). Writes at most
  * INSPECTOR6_IK_F32_MAX_SOLUTIONS solutions and returns their number; `status` may be NULL. */
-int inspector6_ik_f32_inverse(const float pose[16], const float *current,
+int inspector6_ik_f32_inverse(const float pose[16], const float *current, inspector6_ik_f32_limits limits,
                     inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_MAX_SOLUTIONS],
                     inspector6_ik_f32_status *status);
 
 /* The same with the pose as a position and a row-major 3x3 rotation. */
 int inspector6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
-                    const float *current,
+                    const float *current, inspector6_ik_f32_limits limits,
                     inspector6_ik_f32_solution solutions[INSPECTOR6_IK_F32_MAX_SOLUTIONS],
+                    inspector6_ik_f32_status *status);
+
+/* sqrt(sum_j w_j (a_j - b_j)^2) in reading units; `weights` may be NULL (all 1). */
+float inspector6_ik_f32_distance(const float a[INSPECTOR6_IK_F32_JOINTS], const float b[INSPECTOR6_IK_F32_JOINTS],
+                    const float *weights);
+
+/* Order solutions by distance from `current`, in place; equal distances keep their order. */
+void inspector6_ik_f32_sort_nearest(inspector6_ik_f32_solution *solutions, int count,
+                    const float current[INSPECTOR6_IK_F32_JOINTS], const float *weights);
+
+/* The solution nearest `current` among those whose (config & config_mask) == config_value (mask 0:
+ * any). Returns 1 and fills `best`, or 0 when there is none; `status` as for inverse. */
+int inspector6_ik_f32_nearest(const float pose[16], const float current[INSPECTOR6_IK_F32_JOINTS],
+                    const float *weights, unsigned config_mask, unsigned config_value,
+                    inspector6_ik_f32_limits limits, inspector6_ik_f32_solution *best,
                     inspector6_ik_f32_status *status);
 
 #ifdef __cplusplus

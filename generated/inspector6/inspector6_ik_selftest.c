@@ -444,7 +444,7 @@ int inspector6_ik_selftest(void)
         pose[14] = 0.0;
         pose[15] = 1.0;
         inspector6_ik_solution solutions[INSPECTOR6_IK_MAX_SOLUTIONS];
-        const int count = inspector6_ik_inverse(pose, 0, solutions, 0);
+        const int count = inspector6_ik_inverse(pose, 0, INSPECTOR6_IK_LIMITS_DROP, solutions, 0);
         if (count < 1) {
             ++failures;
             continue;

@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define PACKER6_IK_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const double LOW[PACKER6_IK_JOINTS] = { -3.1415926598729786, -2.356194494904734, -2.6179938832274821, -3.1415926598729786, -2.0943951065819859, -3.1415926598729786 };
+static const double HIGH[PACKER6_IK_JOINTS] = { 3.1415926598729786, 2.356194494904734, 2.6179938832274821, 3.1415926598729786, 2.0943951065819859, 3.1415926598729786 };
+static const double TURN[PACKER6_IK_JOINTS] = { 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862 };
+static const int MULTI[PACKER6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
+
+static int within(const double q[PACKER6_IK_JOINTS])
+{
+    for (int j = 0; j < PACKER6_IK_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void packer6_ik_forward(const double joints[PACKER6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 1.0 * joints[0];
@@ -81,9 +100,9 @@ void packer6_ik_forward(const double joints[PACKER6_IK_JOINTS], double pose[16])
     pose[15] = 1.0;
 }
 
-int packer6_ik_inverse(const double pose[16], const double *current,
-                    packer6_ik_solution solutions[PACKER6_IK_MAX_SOLUTIONS],
-                    packer6_ik_status *status)
+static int closed_form(const double pose[16], const double *current,
+                       packer6_ik_solution solutions[PACKER6_IK_CLOSED_FORM],
+                       packer6_ik_status *status)
 {
     int count = 0;
     const double r11 = pose[0];
@@ -121,7 +140,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
     const double rc32 = r32;
     const double rc33 = -r31;
 
-    /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
+    /* joint 1: y of v1 = A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
     const double ea1 = wy;
@@ -323,7 +342,7 @@ int packer6_ik_inverse(const double pose[16], const double *current,
             const double lm0 = v1x;
             const double lm1 = -0.84999999999999998*c2*v1x*v1z + 0.1275*c2*v1z - 0.84999999999999998*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2;
             const double lm2 = s5;
-            if (count < PACKER6_IK_MAX_SOLUTIONS) {
+            if (count < PACKER6_IK_CLOSED_FORM) {
                 packer6_ik_solution *out = &solutions[count++];
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -339,9 +358,13 @@ int packer6_ik_inverse(const double pose[16], const double *current,
                 out->joints[5] = th6 * 1.0;
                 out->config = 0u | (lm0 < 0.0 ? PACKER6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? PACKER6_IK_ELBOW_DOWN : 0u) | (lm2 < 0.0 ? PACKER6_IK_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                out->conditioning[0] = root1 * 1.0;
+                out->conditioning[1] = root3 * 0.64876700516178298;
+                out->conditioning[2] = root5 * 1.0;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0 && !free4) {
-                if (count < PACKER6_IK_MAX_SOLUTIONS) {
+                if (count < PACKER6_IK_CLOSED_FORM) {
                     packer6_ik_solution *out = &solutions[count++];
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
@@ -363,6 +386,10 @@ int packer6_ik_inverse(const double pose[16], const double *current,
                     out->joints[5] = u6 * 1.0;
                     out->config = 0u | (lm0 < 0.0 ? PACKER6_IK_SHOULDER_BACK : 0u) | (lm1 < 0.0 ? PACKER6_IK_ELBOW_DOWN : 0u) | (lm2 >= 0.0 ? PACKER6_IK_WRIST_FLIP : 0u);
                     out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = root1 * 1.0;
+                    out->conditioning[1] = root3 * 0.64876700516178298;
+                    out->conditioning[2] = root5 * 1.0;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -372,8 +399,92 @@ int packer6_ik_inverse(const double pose[16], const double *current,
     return count;
 }
 
+static int in_limits(double value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const packer6_ik_solution *in, packer6_ik_solution *out, int room)
+{
+    double values[PACKER6_IK_JOINTS][1];
+    int counts[PACKER6_IK_JOINTS];
+    int total = 1;
+    for (int j = 0; j < PACKER6_IK_JOINTS; ++j) {
+        double v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (double)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (double)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            double first = v + (double)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 1) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = PACKER6_IK_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int packer6_ik_inverse(const double pose[16], const double *current, packer6_ik_limits limits,
+                    packer6_ik_solution solutions[PACKER6_IK_MAX_SOLUTIONS],
+                    packer6_ik_status *status)
+{
+    packer6_ik_solution raw[PACKER6_IK_CLOSED_FORM];
+    packer6_ik_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == PACKER6_IK_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], PACKER6_IK_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == PACKER6_IK_LIMITS_FLAG && count < PACKER6_IK_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == PACKER6_IK_INVALID_INPUT ? closed_status
+                  : (count ? PACKER6_IK_OK : PACKER6_IK_UNREACHABLE);
+    }
+    return count;
+}
+
 int packer6_ik_inverse_rp(const double position[3], const double rotation[9],
-                    const double *current,
+                    const double *current, packer6_ik_limits limits,
                     packer6_ik_solution solutions[PACKER6_IK_MAX_SOLUTIONS],
                     packer6_ik_status *status)
 {
@@ -382,5 +493,54 @@ int packer6_ik_inverse_rp(const double position[3], const double rotation[9],
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0, 0.0, 0.0, 1.0};
-    return packer6_ik_inverse(pose, current, solutions, status);
+    return packer6_ik_inverse(pose, current, limits, solutions, status);
+}
+
+double packer6_ik_distance(const double a[PACKER6_IK_JOINTS], const double b[PACKER6_IK_JOINTS],
+                    const double *weights)
+{
+    double sum = 0.0;
+    for (int j = 0; j < PACKER6_IK_JOINTS; ++j) {
+        const double d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrt(sum);
+}
+
+void packer6_ik_sort_nearest(packer6_ik_solution *solutions, int count,
+                    const double current[PACKER6_IK_JOINTS], const double *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const packer6_ik_solution item = solutions[i];
+        const double d = packer6_ik_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && packer6_ik_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int packer6_ik_nearest(const double pose[16], const double current[PACKER6_IK_JOINTS],
+                    const double *weights, unsigned config_mask, unsigned config_value,
+                    packer6_ik_limits limits, packer6_ik_solution *best,
+                    packer6_ik_status *status)
+{
+    packer6_ik_solution all[PACKER6_IK_MAX_SOLUTIONS];
+    const int count = packer6_ik_inverse(pose, current, limits, all, status);
+    int found = 0;
+    double best_distance = 0.0;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const double d = packer6_ik_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

@@ -13,10 +13,21 @@ the standard library's math module.
 
 API:
     forward(joints) -> 4x4 tool pose (nested lists, row-major) for joint readings.
-    inverse(pose, current=None) -> list of Solution, every closed-form solution of the pose;
-        an empty list when the pose is out of reach or not finite. ``current`` (joint readings)
-        fills a joint left free at a singular pose; 0 is used when it is None.
-    Solution: a tuple (joints, config, singular); config holds one label per LABEL_NAMES entry.
+    inverse(pose, current=None, limits="drop") -> list of Solution: every closed-form solution of
+        the pose; an empty list when the pose is out of reach or not finite. ``current`` (joint
+        readings) fills a joint that a singular pose leaves free (0 when None). ``limits``:
+        "drop" keeps the solutions within JOINT_LIMITS and gives a joint whose range exceeds a turn
+        every equivalent reading (q + k turns) inside its limits, each as its own solution;
+        "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
+        solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
+        ``current`` (see distance), optionally of a given configuration, or None.
+    sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
+    distance(a, b, weights=None) -> sqrt(sum(w_j * (a_j - b_j)^2)) over joints, in reading units;
+        readings within limits are positions, so the plain difference is the travel.
+    Solution: a tuple (joints, config, singular, conditioning, within_limits); config holds one
+        label per LABEL_NAMES entry; conditioning one measure per CONDITION_NAMES entry (0 at the
+        singular set, larger away from it).
 
 Safety: check every solution in simulation before moving a real arm. Joint limits, collisions
 and cell safety are the integrator's job under the applicable machine-safety standards.
@@ -27,17 +38,20 @@ from math import atan2, cos, sin, sqrt
 ARM_NAME = "packer6"
 JOINT_NAMES = ("turret", "lower_arm", "upper_arm", "wrist_roll", "wrist_pitch", "wrist_yaw", )
 JOINT_COUNT = 6
-MAX_SOLUTIONS = 8
+MAX_SOLUTIONS = 8  # 8 closed-form solutions, times the equivalent readings of multi-turn joints
 LABEL_NAMES = ("shoulder", "elbow", "wrist", )
 JOINT_LIMITS = ((-3.141592653589793, 3.141592653589793), (-2.356194490192345, 2.356194490192345), (-2.6179938779914944, 2.6179938779914944), (-3.141592653589793, 3.141592653589793), (-2.0943951023931957, 2.0943951023931957), (-3.141592653589793, 3.141592653589793), )
 LENGTH_UNIT = "m"
 ANGLE_UNIT = "rad"
+CONDITION_NAMES = ("shoulder", "elbow", "wrist", )
+LABEL_VALUES = (("front", "back"), ("up", "down"), ("noflip", "flip"), )
+MULTI_TURN = (False, False, False, False, False, False, )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
 class Solution(tuple):
-    """One solution: (joints, config, singular)."""
+    """One solution: (joints, config, singular, conditioning, within_limits)."""
 
     __slots__ = ()
 
@@ -56,7 +70,109 @@ class Solution(tuple):
         """True when the pose is singular for this solution (a joint was free, or a double root)."""
         return self[2]
 
+    @property
+    def conditioning(self):
+        """One measure per CONDITION_NAMES entry: 0 at that branch's singular set (for the usual
+        arm: |sin| of the elbow's angle from full stretch, |sin| of the middle wrist joint, the wrist
+        centre's distance from axis 1 over a typical distance); slow down as one nears 0."""
+        return self[3]
+
+    @property
+    def within_limits(self):
+        """True when every reading lies within JOINT_LIMITS."""
+        return self[4]
+
 _new = tuple.__new__
+
+def _turns(value, low, high, turn):
+    """Every value + k * turn (k whole) within [low, high]."""
+    k = -((value - low) // turn)
+    first = value + k * turn
+    out = []
+    while first <= high:
+        out.append(first)
+        first += turn
+    return out
+
+def _expand(q):
+    """The readings within the limits that are equivalent to q (empty when there are none)."""
+    q1, q2, q3, q4, q5, q6 = q
+    if not -3.1415926598729786 <= q1 <= 3.1415926598729786:
+        q1 = q1 + 6.283185307179586 if q1 < -3.1415926598729786 else q1 - 6.283185307179586
+        if not -3.1415926598729786 <= q1 <= 3.1415926598729786:
+            return ()
+    if not -2.356194494904734 <= q2 <= 2.356194494904734:
+        q2 = q2 + 6.283185307179586 if q2 < -2.356194494904734 else q2 - 6.283185307179586
+        if not -2.356194494904734 <= q2 <= 2.356194494904734:
+            return ()
+    if not -2.617993883227482 <= q3 <= 2.617993883227482:
+        q3 = q3 + 6.283185307179586 if q3 < -2.617993883227482 else q3 - 6.283185307179586
+        if not -2.617993883227482 <= q3 <= 2.617993883227482:
+            return ()
+    if not -3.1415926598729786 <= q4 <= 3.1415926598729786:
+        q4 = q4 + 6.283185307179586 if q4 < -3.1415926598729786 else q4 - 6.283185307179586
+        if not -3.1415926598729786 <= q4 <= 3.1415926598729786:
+            return ()
+    if not -2.094395106581986 <= q5 <= 2.094395106581986:
+        q5 = q5 + 6.283185307179586 if q5 < -2.094395106581986 else q5 - 6.283185307179586
+        if not -2.094395106581986 <= q5 <= 2.094395106581986:
+            return ()
+    if not -3.1415926598729786 <= q6 <= 3.1415926598729786:
+        q6 = q6 + 6.283185307179586 if q6 < -3.1415926598729786 else q6 - 6.283185307179586
+        if not -3.1415926598729786 <= q6 <= 3.1415926598729786:
+            return ()
+    return ((q1, q2, q3, q4, q5, q6),)
+
+def inverse(pose, current=None, limits="drop"):
+    """Every closed-form solution of a tool pose (4x4 or 3x4 row-major, world frame); see the
+    module docstring for ``current`` and ``limits``."""
+    solutions = _closed_form(pose, current)
+    if limits == "ignore":
+        return solutions
+    if limits not in ("drop", "flag"):
+        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
+    if all(s[4] for s in solutions):
+        return solutions
+    out = []
+    for solution in solutions:
+        q, c, s, k, inside = solution
+        expanded = _expand(q)
+        if expanded:
+            for e in expanded:
+                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+        elif limits == "flag":
+            out.append(solution)
+    return out
+
+def distance(a, b, weights=None):
+    """Weighted Euclidean distance between two joint vectors, in reading units."""
+    if weights is None:
+        return sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
+    return sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
+
+def sort_nearest(solutions, current, weights=None):
+    """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    return sorted(solutions, key=lambda s: distance(s[0], current, weights))
+
+def _matches(config, wanted):
+    if wanted is None:
+        return True
+    if isinstance(wanted, dict):
+        return all(config[LABEL_NAMES.index(name)] == value for name, value in wanted.items())
+    return all(w is None or w == c for c, w in zip(config, wanted))
+
+def nearest(pose, current, weights=None, config=None, limits="drop"):
+    """The solution closest to ``current`` (of configuration ``config`` if given: a dict such as
+    {"elbow": "up"} or a sequence with None for 'any'), or None when there is none."""
+    best = None
+    best_distance = 0.0
+    for solution in inverse(pose, current, limits):
+        if not _matches(solution[1], config):
+            continue
+        d = distance(solution[0], current, weights)
+        if best is None or d < best_distance:
+            best, best_distance = solution, d
+    return best
 
 def forward(joints):
     """Tool pose in the world frame (4x4 nested lists) for joint readings in the arm's units."""
@@ -114,8 +230,8 @@ def forward(joints):
         [0.0, 0.0, 0.0, 1.0],
     ]
 
-def inverse(pose, current=None):
-    """Every closed-form solution for a tool pose (4x4 or 3x4 row-major, world frame)."""
+def _closed_form(pose, current):
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
     r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
@@ -141,7 +257,7 @@ def inverse(pose, current=None):
     rc32 = r32
     rc33 = -r31
 
-    # joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
+    # joint 1: y of v1 = A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
     ea1 = wy
@@ -321,18 +437,19 @@ def inverse(pose, current=None):
             u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
             u5 = th5
             u6 = th6
-            solutions.append(_new(Solution, ((
+            q = (
                 u1 * 1.0,
                 u2 * 1.0,
                 u3 * 1.0,
                 u4 * 1.0,
                 u5 * 1.0,
                 u6 * 1.0,
-            ), (
+            )
+            solutions.append(_new(Solution, (q, (
                 "front" if lm0 >= 0.0 else "back",
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
-            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
+            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, ), -3.1415926598729786 <= q[0] <= 3.1415926598729786 and -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -3.1415926598729786 <= q[3] <= 3.1415926598729786 and -2.094395106581986 <= q[4] <= 2.094395106581986 and -3.1415926598729786 <= q[5] <= 3.1415926598729786)))
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -340,16 +457,17 @@ def inverse(pose, current=None):
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                solutions.append(_new(Solution, ((
+                q = (
                     u1 * 1.0,
                     u2 * 1.0,
                     u3 * 1.0,
                     u4 * 1.0,
                     u5 * 1.0,
                     u6 * 1.0,
-                ), (
+                )
+                solutions.append(_new(Solution, (q, (
                     "front" if lm0 >= 0.0 else "back",
                     "up" if lm1 >= 0.0 else "down",
                     "flip" if lm2 >= 0.0 else "noflip",
-                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4)))
+                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, ), -3.1415926598729786 <= q[0] <= 3.1415926598729786 and -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -3.1415926598729786 <= q[3] <= 3.1415926598729786 and -2.094395106581986 <= q[4] <= 2.094395106581986 and -3.1415926598729786 <= q[5] <= 3.1415926598729786)))
     return solutions

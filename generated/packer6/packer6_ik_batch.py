@@ -113,7 +113,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_config, out_singular
         rc32 = r32
         rc33 = -r31
 
-        # joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
+        # joint 1: y of v1 = A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
         ea1 = wy
         eb1 = -wx

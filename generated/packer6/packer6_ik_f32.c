@@ -14,6 +14,25 @@
 
 #include <math.h>
 
+#define PACKER6_IK_F32_CLOSED_FORM 8
+
+/* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
+ * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
+static const float LOW[PACKER6_IK_F32_JOINTS] = { -3.14159266f, -2.35619449f, -2.61799388f, -3.14159266f, -2.09439511f, -3.14159266f };
+static const float HIGH[PACKER6_IK_F32_JOINTS] = { 3.14159266f, 2.35619449f, 2.61799388f, 3.14159266f, 2.09439511f, 3.14159266f };
+static const float TURN[PACKER6_IK_F32_JOINTS] = { 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f };
+static const int MULTI[PACKER6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
+
+static int within(const float q[PACKER6_IK_F32_JOINTS])
+{
+    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
+        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
 void packer6_ik_f32_forward(const float joints[PACKER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 1.0f * joints[0];
@@ -81,9 +100,9 @@ void packer6_ik_f32_forward(const float joints[PACKER6_IK_F32_JOINTS], float pos
     pose[15] = 1.0f;
 }
 
-int packer6_ik_f32_inverse(const float pose[16], const float *current,
-                    packer6_ik_f32_solution solutions[PACKER6_IK_F32_MAX_SOLUTIONS],
-                    packer6_ik_f32_status *status)
+static int closed_form(const float pose[16], const float *current,
+                       packer6_ik_f32_solution solutions[PACKER6_IK_F32_CLOSED_FORM],
+                       packer6_ik_f32_status *status)
 {
     int count = 0;
     const float r11 = pose[0];
@@ -121,7 +140,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
     const float rc32 = r32;
     const float rc33 = -r31;
 
-    /* joint 1: y of v1 = (A1..A1)^-1 w = A2 A3 c3
+    /* joint 1: y of v1 = A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
     const float ea1 = wy;
@@ -323,7 +342,7 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
             const float lm0 = v1x;
             const float lm1 = -0.85f*c2*v1x*v1z + 0.1275f*c2*v1z - 0.85f*s2*v1x*v1x + 0.255f*s2*v1x - 0.019125f*s2;
             const float lm2 = s5;
-            if (count < PACKER6_IK_F32_MAX_SOLUTIONS) {
+            if (count < PACKER6_IK_F32_CLOSED_FORM) {
                 packer6_ik_f32_solution *out = &solutions[count++];
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -339,9 +358,13 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                 out->joints[5] = th6 * 1.0f;
                 out->config = 0u | (lm0 < 0.0f ? PACKER6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? PACKER6_IK_F32_ELBOW_DOWN : 0u) | (lm2 < 0.0f ? PACKER6_IK_F32_WRIST_FLIP : 0u);
                 out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                out->conditioning[0] = root1 * 1.0f;
+                out->conditioning[1] = root3 * 0.648767005f;
+                out->conditioning[2] = root5 * 1.0f;
+                out->within_limits = within(out->joints);
             }
             if (root5 > 0.0f && !free4) {
-                if (count < PACKER6_IK_F32_MAX_SOLUTIONS) {
+                if (count < PACKER6_IK_F32_CLOSED_FORM) {
                     packer6_ik_f32_solution *out = &solutions[count++];
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
@@ -363,6 +386,10 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
                     out->joints[5] = u6 * 1.0f;
                     out->config = 0u | (lm0 < 0.0f ? PACKER6_IK_F32_SHOULDER_BACK : 0u) | (lm1 < 0.0f ? PACKER6_IK_F32_ELBOW_DOWN : 0u) | (lm2 >= 0.0f ? PACKER6_IK_F32_WRIST_FLIP : 0u);
                     out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = root1 * 1.0f;
+                    out->conditioning[1] = root3 * 0.648767005f;
+                    out->conditioning[2] = root5 * 1.0f;
+                    out->within_limits = within(out->joints);
                 }
             }
 
@@ -372,8 +399,92 @@ int packer6_ik_f32_inverse(const float pose[16], const float *current,
     return count;
 }
 
+static int in_limits(float value, int joint)
+{
+    return value >= LOW[joint] && value <= HIGH[joint];
+}
+
+/* The readings within the limits equivalent to `in` (same rules as the Python back-end); returns
+ * how many were written to `out` (at most `room`). */
+static int expand(const packer6_ik_f32_solution *in, packer6_ik_f32_solution *out, int room)
+{
+    float values[PACKER6_IK_F32_JOINTS][1];
+    int counts[PACKER6_IK_F32_JOINTS];
+    int total = 1;
+    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
+        float v = in->joints[j];
+        counts[j] = 0;
+        if (MULTI[j]) {
+            int k = 0;
+            while (v + (float)k * TURN[j] < LOW[j]) {
+                ++k;
+            }
+            while (v + (float)(k - 1) * TURN[j] >= LOW[j]) {
+                --k;
+            }
+            float first = v + (float)k * TURN[j];
+            while (first <= HIGH[j] && counts[j] < 1) {
+                values[j][counts[j]++] = first;
+                first += TURN[j];
+            }
+        } else {
+            if (!in_limits(v, j) && TURN[j] > 0.0f) {
+                v = v < LOW[j] ? v + TURN[j] : v - TURN[j];
+            }
+            if (in_limits(v, j)) {
+                values[j][counts[j]++] = v;
+            }
+        }
+        if (counts[j] == 0) {
+            return 0;
+        }
+        total *= counts[j];
+    }
+    if (total > room) {
+        total = room;
+    }
+    for (int index = 0; index < total; ++index) {
+        int rest = index;
+        out[index] = *in;
+        for (int j = PACKER6_IK_F32_JOINTS - 1; j >= 0; --j) {
+            out[index].joints[j] = values[j][rest % counts[j]];
+            rest /= counts[j];
+        }
+        out[index].within_limits = 1;
+    }
+    return total;
+}
+
+int packer6_ik_f32_inverse(const float pose[16], const float *current, packer6_ik_f32_limits limits,
+                    packer6_ik_f32_solution solutions[PACKER6_IK_F32_MAX_SOLUTIONS],
+                    packer6_ik_f32_status *status)
+{
+    packer6_ik_f32_solution raw[PACKER6_IK_F32_CLOSED_FORM];
+    packer6_ik_f32_status closed_status;
+    const int found = closed_form(pose, current, raw, &closed_status);
+    int count = 0;
+    if (limits == PACKER6_IK_F32_LIMITS_IGNORE) {
+        for (int i = 0; i < found; ++i) {
+            solutions[count++] = raw[i];
+        }
+    } else {
+        for (int i = 0; i < found; ++i) {
+            const int added = expand(&raw[i], &solutions[count], PACKER6_IK_F32_MAX_SOLUTIONS - count);
+            if (added == 0 && limits == PACKER6_IK_F32_LIMITS_FLAG && count < PACKER6_IK_F32_MAX_SOLUTIONS) {
+                solutions[count++] = raw[i];
+            }
+            count += added;
+        }
+    }
+    if (status) {
+        *status = closed_status == PACKER6_IK_F32_INVALID_INPUT ? closed_status
+                  : (count ? PACKER6_IK_F32_OK : PACKER6_IK_F32_UNREACHABLE);
+    }
+    return count;
+}
+
 int packer6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
-                    const float *current,
+                    const float *current, packer6_ik_f32_limits limits,
                     packer6_ik_f32_solution solutions[PACKER6_IK_F32_MAX_SOLUTIONS],
                     packer6_ik_f32_status *status)
 {
@@ -382,5 +493,54 @@ int packer6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
         rotation[3], rotation[4], rotation[5], position[1],
         rotation[6], rotation[7], rotation[8], position[2],
         0.0f, 0.0f, 0.0f, 1.0f};
-    return packer6_ik_f32_inverse(pose, current, solutions, status);
+    return packer6_ik_f32_inverse(pose, current, limits, solutions, status);
+}
+
+float packer6_ik_f32_distance(const float a[PACKER6_IK_F32_JOINTS], const float b[PACKER6_IK_F32_JOINTS],
+                    const float *weights)
+{
+    float sum = 0.0f;
+    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
+        const float d = a[j] - b[j];
+        sum += weights ? weights[j] * d * d : d * d;
+    }
+    return sqrtf(sum);
+}
+
+void packer6_ik_f32_sort_nearest(packer6_ik_f32_solution *solutions, int count,
+                    const float current[PACKER6_IK_F32_JOINTS], const float *weights)
+{
+    for (int i = 1; i < count; ++i) {
+        const packer6_ik_f32_solution item = solutions[i];
+        const float d = packer6_ik_f32_distance(item.joints, current, weights);
+        int k = i;
+        while (k > 0 && packer6_ik_f32_distance(solutions[k - 1].joints, current, weights) > d) {
+            solutions[k] = solutions[k - 1];
+            --k;
+        }
+        solutions[k] = item;
+    }
+}
+
+int packer6_ik_f32_nearest(const float pose[16], const float current[PACKER6_IK_F32_JOINTS],
+                    const float *weights, unsigned config_mask, unsigned config_value,
+                    packer6_ik_f32_limits limits, packer6_ik_f32_solution *best,
+                    packer6_ik_f32_status *status)
+{
+    packer6_ik_f32_solution all[PACKER6_IK_F32_MAX_SOLUTIONS];
+    const int count = packer6_ik_f32_inverse(pose, current, limits, all, status);
+    int found = 0;
+    float best_distance = 0.0f;
+    for (int i = 0; i < count; ++i) {
+        if ((all[i].config & config_mask) != config_value) {
+            continue;
+        }
+        const float d = packer6_ik_f32_distance(all[i].joints, current, weights);
+        if (!found || d < best_distance) {
+            *best = all[i];
+            best_distance = d;
+            found = 1;
+        }
+    }
+    return found;
 }

@@ -97,7 +97,9 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
         # float rounding (about 6e-8 relative) needs a wider clamp band than double
-        guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5)
+        guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5,
+        turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
+        max_turns=max(t.count for t in common.joint_turns(arm)))
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
             n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
 

@@ -10,6 +10,7 @@ per-block temporary names, constants are printed from exact values, and nothing 
 from __future__ import annotations
 
 import importlib.resources
+import math
 import re
 import unicodedata
 from dataclasses import dataclass, field
@@ -63,14 +64,17 @@ def identifier(text: str, fallback: str = "arm") -> str:
     if not name:
         name = fallback
     if name[0].isdigit():
-        name = "_" + name
+        name = f"{fallback}_{name}"   # not "_6...": a leading underscore is reserved at file scope in C
     return name
 
 
 def comment_text(text: str) -> str:
     """User text made safe inside a comment or docstring of any back-end: one line, printable
     ASCII, no comment terminators, no quotes that could close a docstring, no backslashes."""
-    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
+    # Letters without an ASCII form are written as U+XXXX so that no name vanishes.
+    ascii_text = "".join(c if ord(c) < 128 else (unicodedata.normalize("NFKD", c).encode("ascii", "ignore")
+                                                  .decode("ascii") or f"U+{ord(c):04X}")
+                         for c in text)
     flat = re.sub(r"[\x00-\x1f\x7f]+", " ", ascii_text)
     flat = flat.replace("*/", "* /").replace("/*", "/ *").replace("\\", "/")
     flat = flat.replace('"""', "'''").replace('"', "'")
@@ -352,6 +356,38 @@ def mark_needed_trig(blocks: list[Block], final_temps, label_measures) -> None:
             block.need_sin = sin_symbol(block.joint) in later
         for e in block_exprs(block):
             later |= sp.sympify(e).free_symbols
+
+
+@dataclass
+class TurnPlan:
+    """How readings of one joint wrap: a turn in reading units (0 for prismatic joints), the
+    limits widened by a tolerance (1e-9 of the range) and whether the range exceeds a turn."""
+    turn: float
+    low: float
+    high: float
+    multi: bool
+    count: int                   # at most this many equivalent readings within the limits
+
+
+def joint_turns(arm: Arm) -> list[TurnPlan]:
+    out = []
+    for joint, (low, high) in zip(arm.joints, arm.limits_in_readings()):
+        turn = (360.0 if arm.angle_unit == "deg" else 2 * math.pi) if joint.revolute else 0.0
+        eps = 1e-9 * max(1.0, high - low)
+        # a range of exactly one turn (-180..180) is single-turn: its two ends are one position
+        multi = bool(turn) and high - low > turn * (1 + 1e-9)
+        low, high = float(low - eps), float(high + eps)
+        count = int((high - low) // turn) + 1 if multi else 1
+        out.append(TurnPlan(turn, low, high, multi, count))
+    return out
+
+
+def max_solutions(arm: Arm, plan: Plan) -> int:
+    """Closed-form solutions times the equivalent readings of every multi-turn joint."""
+    total = plan.max_solutions
+    for turn in joint_turns(arm):
+        total *= turn.count
+    return total
 
 
 def symbol_names(joint: int) -> tuple[str, str, str]:

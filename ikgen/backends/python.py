@@ -66,7 +66,10 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_direction=[j.direction for j in arm.joints],
         joint_scale=[arm.angle_scale for _ in arm.joints],
         generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
-        mirror_terms=terms(plan.mirror_condition) if plan.mirror else []))
+        mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
+        turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
+        joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
+        within_test=" and ".join(f"{t.low!r} <= q[{k}] <= {t.high!r}" for k, t in enumerate(common.joint_turns(arm)))))
 
 
 PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "root": "root{} > 0.0", "not_free": "not free{}"}

@@ -253,7 +253,7 @@ class Builder:
         for k in range(4):
             lhs = sp.Matrix(self.w_names) if k == 0 else sp.Matrix(self.v_names[k])
             rhs = rests[k] * c3h
-            where = "w" if k == 0 else f"v{k} = (A1..A{k})^-1 w"
+            where = "w" if k == 0 else (f"v{k} = A1^-1 w" if k == 1 else f"v{k} = (A1..A{k})^-1 w")
             right = "A1 A2 A3 c3" if k == 0 else ("c3" if k == 3 else " ".join(f"A{i}" for i in range(k + 1, 4)) + " c3")
             # level m: the left side in terms of v_m (hiding joints 1..m); level 0 is in w
             level = {m: (sp.Matrix(self.w_names) if k == 0 else self.v_in[(k, m)]) for m in range(0, k + 1)}

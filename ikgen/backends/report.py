@@ -1,0 +1,568 @@
+"""Report back-end: the derivation as a readable, auditable document (HTML and Markdown).
+
+The report is rendered from the same IR as the solvers. Every equation it prints is kept as data
+(``Printed``: a key, the left side, the sympy expression, its LaTeX and its MathML), so a test can
+parse the printed LaTeX back and re-run the solution from the text alone. Expressions are shown
+in the symbols of the DH table (``a_2``, ``d_4`` ...) with a table of their values; each is put in
+the shortest of a few equivalent forms (factor, collect, named intermediates) and a form is used
+only when sympy proves it equal to the IR's expression.
+
+Files per arm: ``<arm>_report.html`` (self-contained: MathML from sympy's presentation printer,
+figures as inline SVG, CSS inlined, no script, no external reference), ``<arm>_report.md`` (LaTeX
+math via ``sympy.latex``), and the two figures as SVG files for the Markdown twin. Nothing in the
+output depends on the date or the machine: the verification figures are printed as counts and
+as powers of ten (``below 1e-11 mm``), the figures are deterministic SVG (see ikgen/figures.py).
+"""
+
+from __future__ import annotations
+
+import inspect
+import math
+import re
+from dataclasses import dataclass, field
+
+import jinja2
+import numpy as np
+import sympy as sp
+from markupsafe import Markup
+from sympy.printing.mathml import mathml
+
+from .. import figures
+from ..ir import (GUARD_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
+                  cos_symbol, sin_symbol)
+from ..kinematics import NumericChain
+from ..model import Arm
+from . import common
+
+LATEX_SETTINGS = {"mul_symbol": "dot"}    # explicit products: "a_{2} \cdot \left(...\right)" reads unambiguously
+RELATIONS = {"=": ("=", "="), "maps": (r"\mapsto", "&#8614;")}   # relation -> (LaTeX, MathML operator)
+REPORT_SAMPLES = 2000                     # verification samples for the report's figures
+REPORT_SEED = 2026
+POSE_SEED = 5                             # the invented sample pose
+
+
+# ----------------------------------------------------------------------------- printing
+
+def latex(expr) -> str:
+    return sp.latex(expr, **LATEX_SETTINGS)
+
+
+def mathml_of(expr) -> str:
+    return mathml(expr, printer="presentation")
+
+
+def math_block(inner: str, block: bool = True) -> Markup:
+    shown = ' display="block"' if block else ""
+    return Markup(f"<math{shown}>{inner}</math>")
+
+
+@dataclass(frozen=True)
+class Printed:
+    """One printed equation ``lhs REL rhs`` (display symbols). ``ir`` is the IR expression (IR
+    symbols) that ``rhs`` equals once the report's own names of the same step (P, Q, K ...) are
+    replaced by their definitions; None when the equation is a rule of the report (the root
+    formula, c = U/D, the symmetry maps), which the tests check by re-solving poses."""
+    key: str
+    lhs: sp.Expr
+    relation: str
+    rhs: sp.Expr
+    ir: sp.Expr | None
+
+    @property
+    def latex(self) -> str:
+        return f"{latex(self.lhs)} {RELATIONS[self.relation][0]} {latex(self.rhs)}"
+
+    @property
+    def markdown(self) -> str:
+        return f"$${self.latex}$$"
+
+    @property
+    def mathml(self) -> Markup:
+        operator = RELATIONS[self.relation][1]
+        return math_block(f"<mrow>{mathml_of(self.lhs)}<mo>{operator}</mo>{mathml_of(self.rhs)}</mrow>")
+
+
+# ----------------------------------------------------------------------------- symbols
+
+_NAME_RULES = ((r"th(\d+)", r"theta_\1"), (r"sigma(\d+)", r"sigma_\1"), (r"rc(\d+)", r"R_\1"),
+               (r"([A-Za-z])(\d+)", r"\1_\2"), (r"([A-Za-z])([xyz])", r"\1_\2"),
+               (r"([A-Za-z])(\d+)([xyz])", r"\1_\2\3"))
+
+
+def display_name(name: str) -> str:
+    """The report's name for an IR symbol: th3 -> theta_3, r11 -> r_11, wx -> w_x, rc12 -> R_12."""
+    if "_" in name:
+        return name
+    for pattern, replacement in _NAME_RULES:
+        if re.fullmatch(pattern, name):
+            return re.sub(pattern, replacement, name)
+    return name
+
+
+def report_symbol(kind: str, index: int) -> sp.Symbol:
+    """The report's own names: P, Q, K (the equation), N, Delta, D, U, V, lambda, q."""
+    return sp.Symbol(f"{kind}_{index}", real=True)
+
+
+class Names:
+    """IR symbol -> display symbol, and the meaning of each name for the notation table."""
+
+    def __init__(self):
+        self.map: dict[sp.Symbol, sp.Symbol] = {}
+        self.meaning: dict[sp.Symbol, str] = {}
+        self.order: list[sp.Symbol] = []
+
+    def add(self, ir_symbol: sp.Symbol, meaning: str) -> sp.Symbol:
+        shown = sp.Symbol(display_name(ir_symbol.name), real=True)
+        if ir_symbol in self.map:
+            return self.map[ir_symbol]
+        clash = [k for k, v in self.map.items() if v == shown] or ([shown] if shown in self.meaning else [])
+        if clash:
+            raise ValueError(f"report names clash: {ir_symbol} and {clash[0]} are both shown as {shown}")
+        self.map[ir_symbol] = shown
+        self.meaning[shown] = meaning
+        self.order.append(shown)
+        return shown
+
+    def own(self, symbol: sp.Symbol, meaning: str) -> sp.Symbol:
+        if symbol in self.meaning:
+            return symbol
+        if symbol in self.map.values():
+            raise ValueError(f"report name {symbol} clashes with an IR name")
+        self.meaning[symbol] = meaning
+        self.order.append(symbol)
+        return symbol
+
+    def show(self, expr) -> sp.Expr:
+        expr = sp.sympify(expr)
+        missing = [s for s in expr.free_symbols if s not in self.map and s not in self.meaning]
+        for symbol in sorted(missing, key=str):
+            self.add(symbol, "an intermediate of the derivation")
+        return expr.xreplace(self.map)
+
+
+# ----------------------------------------------------------------------------- simplifying
+
+def proven_equal(candidate, expr) -> bool:
+    try:
+        return sp.expand(candidate - expr) == 0
+    except Exception:       # pragma: no cover - sympy refuses an operation: not proven
+        return False
+
+
+def weight(expr) -> tuple:
+    return (sp.count_ops(expr), len(latex(expr)))
+
+
+def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
+    """The shortest of a few forms of ``expr`` that sympy proves equal to it (expand of the
+    difference is 0): the IR's own, factor_terms, factor, collect in the pose and joint
+    quantities (plain and with factored coefficients), and ``extra`` candidates. (sympy.simplify
+    was tried too; on the demo arms it never gave a shorter form, and it is slow.)"""
+    expr = sp.sympify(expr)
+    if expr.is_Atom:
+        return expr
+    variables = sorted(expr.free_symbols - set(parameters), key=str)
+    makers = [sp.factor_terms, sp.factor,
+              lambda e: sp.collect(sp.expand(e), variables),
+              lambda e: sp.collect(sp.expand(e), variables, func=sp.factor)]
+    candidates = [expr]
+    for make in makers:
+        try:
+            candidate = make(expr)
+        except Exception:   # pragma: no cover - a form sympy cannot make is simply not offered
+            continue
+        if candidate not in candidates and proven_equal(candidate, expr):
+            candidates.append(candidate)
+    for candidate, check in extra or []:
+        if candidate not in candidates and proven_equal(check, expr):
+            candidates.append(candidate)
+    return min(candidates, key=lambda e: (weight(e), candidates.index(e)))
+
+
+# ----------------------------------------------------------------------------- the sheet
+
+@dataclass
+class StepView:
+    kind: str                       # "compute", "cossin", "pair"
+    number: int
+    title: str
+    joint: int = 0
+    source: str = ""
+    equations: list[Printed] = field(default_factory=list)
+    root: list[Printed] = field(default_factory=list)       # cossin: c_j, s_j; pair: c_j, s_j
+    forms: list[dict] = field(default_factory=list)         # pair: {"number", "source", "equations", "threshold", "constant"}
+    mirror: list[Printed] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    branch: dict | None = None
+
+
+@dataclass
+class Sheet:
+    """Everything the report prints about the derivation, as data."""
+    names: Names
+    steps: list[StepView]
+    labels: list[dict]
+    outputs: list[Printed]
+    guards: list[dict]
+
+    def equations(self) -> list[Printed]:
+        out: list[Printed] = []
+        for step in self.steps:
+            out += step.equations
+            for form in step.forms:
+                out += form["equations"]
+            out += step.root + step.mirror
+        out += [label["equation"] for label in self.labels]
+        out += self.outputs
+        return out
+
+
+def number_text(value: float, digits: int = 6) -> str:
+    text = f"{value:.{digits}f}".rstrip("0").rstrip(".")
+    return "0" if text in ("-0", "") else text
+
+
+def threshold_text(value: float) -> str:
+    return f"{value:.0e}".replace("e-0", "e-").replace("e+0", "e")
+
+
+def threshold_latex(value: float) -> str:
+    """1e-15 -> 10^{-15}; 2e-09 -> 2 \\cdot 10^{-9}."""
+    mantissa, exponent = f"{value:.0e}".split("e")
+    power = f"10^{{{int(exponent)}}}"
+    return power if mantissa == "1" else f"{mantissa} \\cdot {power}"
+
+
+def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
+    names = Names()
+    params = derivation.parameters
+    labels_by_name = {label.name: label for label in derivation.labels}
+    pose_meaning = {
+        **{f"r{i}{k}": "entries of the target rotation (the tool frame's axes in the world frame, row i, column k)"
+           for i in range(1, 4) for k in range(1, 4)},
+        **{f"p{axis}": f"target position of the tool point in the world frame ({arm.length_unit})" for axis in "xyz"}}
+    for symbol in derivation.pose_symbols:
+        names.add(symbol, pose_meaning.get(symbol.name, "an entry of the target pose"))
+    for symbol in params:
+        names.add(symbol, f"lengths of the DH table ({arm.length_unit}; values above)")
+    for joint in range(1, arm.dof + 1):
+        names.add(cos_symbol(joint), "cosine of the DH angle of the joint, carried so that later steps need no cos()")
+        names.add(sin_symbol(joint), "sine of the DH angle of the joint, carried so that later steps need no sin()")
+        names.add(angle_symbol(joint), "DH joint angle (radians)")
+
+    steps: list[StepView] = []
+    guards: list[dict] = []
+    for number, step in enumerate(derivation.steps, 1):
+        if isinstance(step, Compute):
+            view = StepView("compute", number, step.purpose[:1].upper() + step.purpose[1:])
+            for name, expr in zip(step.names, step.exprs):
+                shown = names.add(name, step.purpose)
+                form = readable(expr, params)
+                view.equations.append(Printed(f"s{number}.{name}", shown, "=", names.show(form), expr))
+            steps.append(view)
+        elif isinstance(step, CosSinEquation):
+            steps.append(cossin_view(number, step, names, params, labels_by_name, guards))
+        elif isinstance(step, LinearPair):
+            steps.append(pair_view(number, step, names, params, guards))
+
+    label_views = []
+    for index, label in enumerate(derivation.labels, 1):
+        symbol = names.own(report_symbol("lambda", index), "configuration measures: the sign of each names a label")
+        form = readable(label.measure, params)
+        label_views.append({"name": label.name, "positive": label.positive, "negative": label.negative,
+                            "meaning": label.meaning, "symbol": symbol, "symbol_mathml": math_block(mathml_of(symbol), False),
+                            "symbol_latex": latex(symbol),
+                            "equation": Printed(f"label.{label.name}", symbol, "=", names.show(form), label.measure)})
+
+    outputs = []
+    for out in derivation.outputs:
+        reading = names.own(report_symbol("q", out.joint), f"joint readings as the controller shows them ({arm.angle_unit})")
+        expr = (angle_symbol(out.joint) - out.zero) * out.direction / out.scale
+        form = readable(expr, params, extra=[(sp.expand(expr), sp.expand(expr))])
+        outputs.append(Printed(f"out.{out.joint}", reading, "=", names.show(form), expr))
+    return Sheet(names, steps, label_views, outputs, guards)
+
+
+def cossin_view(number: int, step: CosSinEquation, names: Names, params, labels_by_name, guards) -> StepView:
+    j = step.joint
+    P = names.own(report_symbol("P", j), "coefficient of cos(theta_j) in P cos(theta_j) + Q sin(theta_j) = K")
+    Q = names.own(report_symbol("Q", j), "coefficient of sin(theta_j) in P cos(theta_j) + Q sin(theta_j) = K")
+    K = names.own(report_symbol("K", j), "right-hand side of P cos(theta_j) + Q sin(theta_j) = K")
+    N = names.own(report_symbol("N", j), "P^2 + Q^2 of that equation (zero only where the joint is undetermined)")
+    Delta = names.own(report_symbol("Delta", j), "P^2 + Q^2 - K^2, in the form the solver computes it (the radicand)")
+    sigma = names.add(step.branch.sign, "branch signs, +1 or -1")
+    view = StepView("cossin", number, f"Joint {j}: two roots of one equation", joint=j, source=step.source)
+    view.equations = [Printed(f"s{number}.P", P, "=", names.show(readable(step.a, params)), step.a),
+                      Printed(f"s{number}.Q", Q, "=", names.show(readable(step.b, params)), step.b),
+                      Printed(f"s{number}.K", K, "=", names.show(readable(step.c, params)), step.c),
+                      Printed(f"s{number}.N", N, "=", names.show(readable(step.norm, params)), step.norm)]
+    extra = []
+    if not (step.c.is_Atom):
+        named = step.radicand.subs(step.c, K)
+        if named != step.radicand and K in named.free_symbols:
+            extra.append((named, named.xreplace({K: step.c})))
+    radicand = readable(step.radicand, params, extra=extra)
+    view.equations.append(Printed(f"s{number}.Delta", Delta, "=", names.show(radicand), step.radicand))
+    c, s = names.map[cos_symbol(j)], names.map[sin_symbol(j)]
+    root = sp.sqrt(Delta)
+    view.root = [Printed(f"s{number}.c", c, "=", (P * K - sigma * Q * root) / N, None),
+                 Printed(f"s{number}.s", s, "=", (Q * K + sigma * P * root) / N, None)]
+    label = labels_by_name.get(step.branch.name)
+    view.branch = {"name": step.branch.name, "sign": sigma, "meaning": step.branch.meaning,
+                   "positive": label.positive if label else "", "negative": label.negative if label else "",
+                   "sign_mathml": math_block(mathml_of(sigma), False), "sign_latex": latex(sigma),
+                   "joint": j, "mirrored": step.mirror is not None}
+    tolerance = threshold_text(2 * GUARD_TOLERANCE)
+    guards.append({"joint": j, "what": "reach",
+                   "condition": f"Delta_{j} < -{tolerance} N_{j}",
+                   "rule": "this branch has no solution: the pose is out of reach for it"})
+    guards.append({"joint": j, "what": "boundary of reach",
+                   "condition": f"-{tolerance} N_{j} <= Delta_{j} <= 0",
+                   "rule": f"Delta_{j} is taken as 0: one double root, flagged singular"})
+    if step.singular.threshold > 0:
+        limit = threshold_text(step.singular.threshold)
+        view.notes.append(f"Singular when N_{j} <= {limit}: {step.singular.description}. Then, if also "
+                          f"K_{j}^2 <= {limit}, {step.singular.rule}; otherwise there is no solution.")
+        guards.append({"joint": j, "what": "singular", "condition": f"N_{j} <= {limit} and K_{j}^2 <= {limit}",
+                       "rule": step.singular.rule})
+        guards.append({"joint": j, "what": "inconsistent", "condition": f"N_{j} <= {limit} and K_{j}^2 > {limit}",
+                       "rule": "no solution"})
+    else:
+        view.notes.append(f"Never singular: N_{j} is a non-zero constant.")
+    if step.mirror is not None:
+        theta = names.map[angle_symbol(j)]
+        first = -theta if step.mirror.kind == "negate_sin" else sp.pi - theta
+        view.mirror = [Printed(f"s{number}.mirror.{j}", theta, "maps", first, None)]
+        for joint, parity in step.mirror.parities:
+            other = names.map[angle_symbol(joint)]
+            view.mirror.append(Printed(f"s{number}.mirror.{joint}", other, "maps",
+                                       other if parity > 0 else other + sp.pi, None))
+    return view
+
+
+def pair_view(number: int, step: LinearPair, names: Names, params, guards) -> StepView:
+    j = step.joint
+    D = names.own(report_symbol("D", j), "determinant of a linear pair in cos(theta_j), sin(theta_j)")
+    U = names.own(report_symbol("U", j), "numerator of cos(theta_j) in a linear pair: cos(theta_j) = U/D")
+    V = names.own(report_symbol("V", j), "numerator of sin(theta_j) in a linear pair: sin(theta_j) = V/D")
+    view = StepView("pair", number, f"Joint {j}: one root of two linear equations", joint=j)
+    for k, form in enumerate(step.forms, 1):
+        det_value = common.numeric(form.det, params)
+        constant = bool(det_value.is_number and det_value != 0)
+        view.forms.append({
+            "number": k, "source": form.source, "threshold": threshold_text(form.threshold),
+            "threshold_latex": threshold_latex(form.threshold), "constant": constant,
+            "equations": [Printed(f"s{number}.f{k}.D", D, "=", names.show(readable(form.det, params)), form.det),
+                          Printed(f"s{number}.f{k}.U", U, "=", names.show(readable(form.cos_num, params)), form.cos_num),
+                          Printed(f"s{number}.f{k}.V", V, "=", names.show(readable(form.sin_num, params)), form.sin_num)]})
+        if constant:
+            break           # a constant determinant never vanishes: later forms are never used (as in the code)
+    c, s = names.map[cos_symbol(j)], names.map[sin_symbol(j)]
+    view.root = [Printed(f"s{number}.c", c, "=", U / D, None), Printed(f"s{number}.s", s, "=", V / D, None)]
+    if not view.forms[-1]["constant"]:
+        view.notes.append(f"When every form's determinant is below its threshold: {step.singular.rule}.")
+        guards.append({"joint": j, "what": "singular", "condition": f"|D_{j}| below the threshold of every form",
+                       "rule": step.singular.rule})
+    guards.append({"joint": j, "what": "inconsistent", "condition": f"|c_{j}^2 + s_{j}^2 - 1| > 1e-4",
+                   "rule": "no solution from this branch (the pose is not a rigid motion the arm can make)"})
+    return view
+
+
+# ----------------------------------------------------------------------------- evidence
+
+def power_ceiling(value: float) -> str:
+    """The smallest power of ten >= value, as text ('1e-11'); '0' for exactly zero."""
+    if value <= 0:
+        return "0"
+    exponent = math.ceil(math.log10(value) - 1e-12)
+    return f"1e{exponent}"
+
+
+def verification_summary(arm: Arm, module, samples: int = REPORT_SAMPLES, seed: int = REPORT_SEED) -> dict:
+    from ..verify import ROUND_TRIP_TOLERANCE, verify
+    result = verify(arm, module, samples=samples, seed=seed)
+    counts = [{"solutions": k, "poses": v} for k, v in sorted(result.counts.items(), reverse=True)]
+    singular = [{"kind": kind, "tested": tested, "ok": result.singular_ok.get(kind, 0)}
+                for kind, tested in result.singular_tested.items()]
+    return {"samples": result.samples, "seed": result.seed, "checked": result.checked, "complete": result.complete,
+            "position": power_ceiling(result.worst_position), "rotation": power_ceiling(result.worst_rotation),
+            "position_tolerance": f"{result.position_tolerance:.2g}",
+            "rotation_tolerance": f"{ROUND_TRIP_TOLERANCE:g}",
+            "counts": counts, "unreachable_ok": result.unreachable_ok, "unreachable_tested": result.unreachable_tested,
+            "singular": singular, "singular_position": power_ceiling(result.worst_singular_position),
+            "singular_rotation": power_ceiling(result.worst_singular_rotation),
+            "passed": result.passed, "failures": list(result.failures)}
+
+
+def closed_form_solutions(module, pose) -> list:
+    """Every closed-form solution of ``pose``, whatever the joint limits (a solver that filters by
+    limits is asked not to)."""
+    if "limits" in inspect.signature(module.inverse).parameters:
+        return module.inverse(pose, limits="ignore")
+    return module.inverse(pose)
+
+
+def within_limits(arm: Arm, readings) -> bool:
+    """Whether the readings, each taken modulo a full turn for a revolute joint, fit the limits."""
+    limits = arm.limits_in_readings()
+    turn = 360.0 if arm.angle_unit == "deg" else 2 * math.pi
+    for joint, value, (low, high) in zip(arm.joints, readings, limits):
+        if joint.revolute:
+            shifted = value + turn * math.ceil((low - value) / turn - 1e-12)
+            if shifted > high + 1e-9 * turn:
+                return False
+        elif not low <= value <= high:
+            return False
+    return True
+
+
+def sample_pose(arm: Arm, derivation: Derivation, module, seed: int = POSE_SEED, draws: int = 60):
+    """Seeded joint readings (inside the middle of each joint's range), their pose, and every
+    closed-form solution of that pose. Of ``draws`` draws the first with the most solutions, and
+    among those the most within the joint limits, is kept: the picture then shows every branch."""
+    rng = np.random.default_rng(seed)
+    limits = arm.limits_in_readings()
+    chain = NumericChain(arm)
+    best, best_score = None, None
+    for _ in range(draws):
+        readings = limits[:, 0] + (0.2 + 0.6 * rng.random(arm.dof)) * (limits[:, 1] - limits[:, 0])
+        pose = chain.pose(readings)
+        solutions = closed_form_solutions(module, pose)
+        score = (len(solutions), sum(within_limits(arm, s[0]) for s in solutions))
+        if best_score is None or score > best_score:
+            best, best_score = (readings, pose, solutions), score
+    return best
+
+
+def reading_text(value: float, arm: Arm) -> str:
+    return number_text(value, 2 if arm.angle_unit == "deg" else 4)
+
+
+def pose_context(arm: Arm, derivation: Derivation, module) -> dict:
+    readings, pose, solutions = sample_pose(arm, derivation, module)
+    revolute = np.array([j.revolute for j in arm.joints])
+    rows, panels = [], []
+    for index, solution in enumerate(solutions, 1):
+        joints = np.array(solution[0], dtype=float)
+        gap = (joints - readings) * arm.reading_scales()
+        gap = np.where(revolute, (gap + math.pi) % (2 * math.pi) - math.pi, gap)
+        source = bool(np.max(np.abs(gap)) < 1e-6)
+        caption = f"{index}: " + ", ".join(solution[1])
+        rows.append({"index": index, "labels": list(solution[1]), "singular": bool(solution[2]),
+                     "readings": [reading_text(v, arm) for v in joints], "source": source,
+                     "within": within_limits(arm, joints)})
+        panels.append((joints, caption))
+    digits = 1 if arm.length_unit == "mm" else 4
+    return {"readings": [reading_text(v, arm) for v in readings],
+            "position": [number_text(v, digits) for v in pose[:3, 3]],
+            "rotation": [[number_text(v, 4) for v in row[:3]] for row in pose[:3]],
+            "rows": rows, "count": len(solutions), "within": sum(row["within"] for row in rows),
+            "svg": figures.solutions_figure(arm, panels, pose)}
+
+
+# ----------------------------------------------------------------------------- the document
+
+CONVENTION_TEXT = {
+    "standard": ("standard (distal) DH", "A_i = Rot_z(theta_i) Trans_z(d_i) Trans_x(a_i) Rot_x(alpha_i)",
+                 r"A_i = \mathrm{Rot}_z(\theta_i)\,\mathrm{Trans}_z(d_i)\,\mathrm{Trans}_x(a_i)\,\mathrm{Rot}_x(\alpha_i)"),
+    "modified": ("modified (proximal) DH", "A_i = Rot_x(alpha_i) Trans_x(a_i) Rot_z(theta_i) Trans_z(d_i)",
+                 r"A_i = \mathrm{Rot}_x(\alpha_i)\,\mathrm{Trans}_x(a_i)\,\mathrm{Rot}_z(\theta_i)\,\mathrm{Trans}_z(d_i)"),
+}
+
+
+def dh_rows(arm: Arm) -> list[dict]:
+    scale = arm.angle_scale
+    rows = []
+    for j in arm.joints:
+        lo, hi = (v / (scale if j.revolute else 1.0) for v in j.limits)
+        rows.append({"index": j.index, "name": j.name, "kind": j.kind,
+                     "a": number_text(float(j.a)), "alpha": number_text(float(j.alpha) / scale),
+                     "d": number_text(float(j.d)), "theta": number_text(float(j.theta) / scale),
+                     "offset": number_text(float(j.offset) / (scale if j.revolute else 1.0)),
+                     "direction": "+1" if j.direction > 0 else "-1",
+                     "limits": f"{number_text(lo)} .. {number_text(hi)}"})
+    return rows
+
+
+def parameter_rows(arm: Arm, derivation: Derivation, names: Names) -> list[dict]:
+    rows = []
+    for symbol, value in derivation.parameters.items():
+        shown = names.map[symbol]
+        exact = sp.nsimplify(value)
+        decimal = number_text(float(value), 9)
+        kind, joint = symbol.name.split("_", 1)
+        what = "link length a" if kind == "a" else "link offset d"
+        rows.append({"mathml": math_block(mathml_of(shown), False), "latex": latex(shown),
+                     "value": decimal, "exact": "" if str(exact) == decimal else str(exact),
+                     "unit": arm.length_unit, "meaning": f"DH {what} of joint {joint}"})
+    return rows
+
+
+def frame_matrix(matrix) -> dict:
+    rows = [[number_text(float(v), 6) for v in row] for row in np.array(sp.Matrix(matrix).evalf(), dtype=float)]
+    return {"rows": rows, "identity": sp.Matrix(matrix) == sp.eye(4)}
+
+
+def notation_rows(names: Names) -> list[dict]:
+    """One row per meaning (symbols that share a meaning are listed together, in order of use)."""
+    groups: dict[str, list[sp.Symbol]] = {}
+    for symbol in names.order:
+        groups.setdefault(names.meaning[symbol], []).append(symbol)
+    rows = []
+    for meaning, symbols in groups.items():
+        shown = symbols if len(symbols) <= 4 else [symbols[0], symbols[1], None, symbols[-1]]
+        mathml_parts = [mathml_of(s) if s is not None else "<mo>&#8230;</mo>" for s in shown]
+        latex_parts = [latex(s) if s is not None else r"\ldots" for s in shown]
+        rows.append({"mathml": math_block("<mrow>" + "<mo>,</mo>".join(mathml_parts) + "</mrow>", False),
+                     "latex": ", ".join(latex_parts), "meaning": meaning})
+    return rows
+
+
+def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
+    sheet = build_sheet(arm, derivation)
+    arm_svg = figures.arm_zero_figure(arm)
+    pose = pose_context(arm, derivation, module)
+    convention = CONVENTION_TEXT[arm.convention]
+    branch_points = [s.branch for s in sheet.steps if s.branch is not None]
+    return {
+        "arm": arm, "derivation": derivation, "sheet": sheet, "folder": folder,
+        "generator": common.GENERATOR, "digest": arm.digest[:16],
+        "convention_name": convention[0], "convention_text": convention[1], "convention_latex": convention[2],
+        "dh_rows": dh_rows(arm), "parameters": parameter_rows(arm, derivation, sheet.names),
+        "base": frame_matrix(arm.base), "tool": frame_matrix(arm.tool),
+        "notation": notation_rows(sheet.names), "branch_points": branch_points,
+        "verification": verification_summary(arm, module), "pose": pose,
+        "arm_svg_inline": Markup(figures.inline(arm_svg, "zero", f"{arm.name} at its zero reading")),
+        "pose_svg_inline": Markup(figures.inline(pose["svg"], "pose", "every solution of the sample pose")),
+        "arm_svg_file": f"{folder}_report_arm.svg", "pose_svg_file": f"{folder}_report_pose.svg",
+        "arm_svg": figures.standalone(arm_svg), "pose_svg": figures.standalone(pose["svg"]),
+        "guard_tolerance": threshold_text(2 * GUARD_TOLERANCE),
+        "guard_tolerance_latex": threshold_latex(2 * GUARD_TOLERANCE),
+    }
+
+
+def markdown_text(text) -> str:
+    """User or IR text safe in Markdown prose and table cells."""
+    text = re.sub(r"[\x00-\x1f\x7f]+", " ", str(text))
+    return re.sub(r"([\\`*_\[\]<>|#$])", r"\\\1", text)
+
+
+def environment() -> jinja2.Environment:
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(common.template_directory())),
+                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                             keep_trailing_newline=True, autoescape=jinja2.select_autoescape(["html.j2"]))
+    env.filters["md"] = markdown_text
+    return env
+
+
+def render(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
+    """The report files of one arm: {file name: text} (HTML, Markdown and the two SVG figures)."""
+    from ..generate import load_module
+    folder = common.identifier(arm.name)
+    module = load_module(python_source, f"{folder}_ik_for_report")
+    data = context(arm, derivation, module, folder)
+    env = environment()
+    return {f"{folder}_report.html": env.get_template("report.html.j2").render(**data),
+            f"{folder}_report.md": env.get_template("report.md.j2").render(**data),
+            data["arm_svg_file"]: data["arm_svg"], data["pose_svg_file"]: data["pose_svg"]}
