@@ -30,7 +30,7 @@
 #define CAT(a, b) CAT_(a, b)
 #define IK_INVERSE CAT(IK_PREFIX, _inverse)
 #define IK_FORWARD CAT(IK_PREFIX, _forward)
-#define IK_SOLUTION CAT(IK_PREFIX, _solution)
+#define SOLVER_RESULT CAT(IK_PREFIX, _solution)
 #define IK_STATUS CAT(IK_PREFIX, _status)
 #define IK_MAX CAT(IK_UPPER, _MAX_SOLUTIONS)
 #define IK_DOF CAT(IK_UPPER, _JOINTS)
@@ -84,7 +84,7 @@ int main(int argc, char **argv)
     size_t n;
     const double *poses = load_poses(argv[1], &n);
     unsigned char *record = calloc(n, RECORD);
-    IK_SOLUTION solutions[IK_MAX];
+    SOLVER_RESULT solutions[IK_MAX];
     IK_STATUS status;
     unsigned long totals[4] = {0, 0, 0, 0}, maxima[4] = {0, 0, 0, 0}, minima[4] = {~0ul, ~0ul, ~0ul, ~0ul};
     unsigned long solution_total = 0, no_solution = 0, histogram[IK_MAX + 1];
@@ -153,7 +153,7 @@ static double now_ns(void)
 
 static double solve_pass(const double *poses, size_t n, unsigned long *solution_total)
 {
-    IK_SOLUTION solutions[IK_MAX];
+    SOLVER_RESULT solutions[IK_MAX];
     IK_STATUS status;
     unsigned long total = 0;
     double started = now_ns();
