@@ -169,3 +169,6 @@ def add_generation_commands(sub) -> None:
     p.add_argument("-o", "--out", required=True, help="folder for the sources and the built extension")
     p.add_argument("--float", action="store_true", help="build the float (single precision) solver")
     p.set_defaults(run=cmd_compile)
+
+    from .path_command import register
+    register(sub)

@@ -28,7 +28,7 @@ in simulation and then at low speed with nobody inside the arm's reach.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -226,6 +226,8 @@ def parse_path_text(text: str, shown: str = "<path>", length_unit: str | None = 
     field_count = 0
     stated_unit = None
     rows, lines = [], []
+    if text.startswith("\ufeff"):             # a byte-order mark, as some spreadsheets write
+        text = text[1:]
     for number, raw_line in enumerate(text.splitlines(), 1):
         content = raw_line.split("#", 1)[0].strip()
         if not content:

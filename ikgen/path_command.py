@@ -14,7 +14,6 @@ import io
 import math
 import os
 import re
-import sys
 import tempfile
 from pathlib import Path
 
@@ -25,7 +24,7 @@ from .errors import IkgenError
 from .model import Arm
 from .path import (CHANGE_NEEDED, CONFIGURATION_CHANGE, CROSSES_SINGULARITY, LABEL_CHANGE, LARGE_STEP,
                    LEAVES_WORKSPACE,
-                   MAX_POSES, NEAR_SINGULARITY, OUTSIDE_LIMITS, RESUMES, SINGULAR_THRESHOLD, STOPPED,
+                   MAX_POSES, NEAR_SINGULARITY, OUTSIDE_LIMITS, SINGULAR_THRESHOLD, STOPPED,
                    PathResult, describe_config, polyline, pose_quaternion, read_path_file, solve_path)
 from .terminal import err, fmt, out, table
 
@@ -131,6 +130,7 @@ def plot_png(arm: Arm, result: PathResult, title: str) -> bytes:
     from matplotlib.figure import Figure
     from matplotlib.patches import Patch
     from matplotlib.lines import Line2D
+    from matplotlib.ticker import MaxNLocator
 
     from .figures import bundled_font
     font = bundled_font(8.0)
@@ -169,6 +169,7 @@ def plot_png(arm: Arm, result: PathResult, title: str) -> bytes:
                     marked["not solved (stopped)"] = ("#d0d3d8", "band")
             ax.set_ylabel(f"joint reading [{unit}]", fontproperties=font)
             ax.set_xlim(0.5, max(result.count, 1) + 0.5)
+            ax.xaxis.set_major_locator(MaxNLocator(integer=True))
             ax.grid(True, color="#e3e5e8", linewidth=0.6)
             for label in ax.get_xticklabels() + ax.get_yticklabels():
                 label.set_fontproperties(font)

@@ -329,7 +329,7 @@ static int closed_form(const double pose[16], const double *current,
             /* joint readings, configuration bits, singular flag */
 
             const double lm0 = v1x + 25.0;
-            const double lm1 = 260.0*v1x*(c2*v1y - s2*v1x);
+            const double lm1 = 260.0*c2*v1y - 260.0*s2*v1x;
             const double lm2 = s5;
             if (count < BENCHTOP6_IK_CLOSED_FORM) {
                 benchtop6_ik_solution *out = &solutions[count++];

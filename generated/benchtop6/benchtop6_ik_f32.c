@@ -329,7 +329,7 @@ static int closed_form(const float pose[16], const float *current,
             /* joint readings, configuration bits, singular flag */
 
             const float lm0 = v1x + 25.0f;
-            const float lm1 = 260.0f*v1x*(c2*v1y - s2*v1x);
+            const float lm1 = 260.0f*c2*v1y - 260.0f*s2*v1x;
             const float lm2 = s5;
             if (count < BENCHTOP6_IK_F32_CLOSED_FORM) {
                 benchtop6_ik_f32_solution *out = &solutions[count++];

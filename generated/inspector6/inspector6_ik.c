@@ -335,7 +335,7 @@ static int closed_form(const double pose[16], const double *current,
             /* joint readings, configuration bits, singular flag */
 
             const double lm0 = v1x;
-            const double lm1 = 320.0*v1x*(-c2*v1y + s2*v1x);
+            const double lm1 = -320.0*c2*v1y + 320.0*s2*v1x;
             const double lm2 = s5;
             if (count < INSPECTOR6_IK_CLOSED_FORM) {
                 inspector6_ik_solution *out = &solutions[count++];

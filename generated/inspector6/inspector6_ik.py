@@ -417,7 +417,7 @@ def _closed_form(pose, current):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = v1x
-            lm1 = 320*v1x*(-c2*v1y + s2*v1x)
+            lm1 = -320*c2*v1y + 320*s2*v1x
             lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)

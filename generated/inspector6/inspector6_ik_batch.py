@@ -263,7 +263,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_config, out_singular
         # joint readings, configuration bits, singular flag, conditioning
 
         lm0 = v1x
-        lm1 = 320*v1x*(-c2*v1y + s2*v1x)
+        lm1 = -320*c2*v1y + 320*s2*v1x
         lm2 = s5
         u1 = th1
         u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)

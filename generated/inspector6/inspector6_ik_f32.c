@@ -335,7 +335,7 @@ static int closed_form(const float pose[16], const float *current,
             /* joint readings, configuration bits, singular flag */
 
             const float lm0 = v1x;
-            const float lm1 = 320.0f*v1x*(-c2*v1y + s2*v1x);
+            const float lm1 = -320.0f*c2*v1y + 320.0f*s2*v1x;
             const float lm2 = s5;
             if (count < INSPECTOR6_IK_F32_CLOSED_FORM) {
                 inspector6_ik_f32_solution *out = &solutions[count++];

@@ -340,7 +340,7 @@ static int closed_form(const double pose[16], const double *current,
             /* joint readings, configuration bits, singular flag */
 
             const double lm0 = v1x;
-            const double lm1 = -0.84999999999999998*c2*v1x*v1z + 0.1275*c2*v1z - 0.84999999999999998*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2;
+            const double lm1 = -0.84999999999999998*c2*v1z - 0.84999999999999998*s2*v1x + 0.1275*s2;
             const double lm2 = s5;
             if (count < PACKER6_IK_CLOSED_FORM) {
                 packer6_ik_solution *out = &solutions[count++];

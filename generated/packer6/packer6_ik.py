@@ -426,7 +426,7 @@ def _closed_form(pose, current):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = v1x
-            lm1 = -0.85*c2*v1x*v1z + 0.1275*c2*v1z - 0.85*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2
+            lm1 = -0.85*c2*v1z - 0.85*s2*v1x + 0.1275*s2
             lm2 = s5
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)

@@ -270,7 +270,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_config, out_singular
         # joint readings, configuration bits, singular flag, conditioning
 
         lm0 = v1x
-        lm1 = -0.85*c2*v1x*v1z + 0.1275*c2*v1z - 0.85*s2*v1x*v1x + 0.255*s2*v1x - 0.019125*s2
+        lm1 = -0.85*c2*v1z - 0.85*s2*v1x + 0.1275*s2
         lm2 = s5
         u1 = th1
         u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)

@@ -340,7 +340,7 @@ static int closed_form(const float pose[16], const float *current,
             /* joint readings, configuration bits, singular flag */
 
             const float lm0 = v1x;
-            const float lm1 = -0.85f*c2*v1x*v1z + 0.1275f*c2*v1z - 0.85f*s2*v1x*v1x + 0.255f*s2*v1x - 0.019125f*s2;
+            const float lm1 = -0.85f*c2*v1z - 0.85f*s2*v1x + 0.1275f*s2;
             const float lm2 = s5;
             if (count < PACKER6_IK_F32_CLOSED_FORM) {
                 packer6_ik_f32_solution *out = &solutions[count++];

@@ -155,6 +155,7 @@ class Builder:
         if not ok:
             raise StructureError(f"arm '{arm.name}' is outside the family '{FAMILY}': " + "; ".join(wrist_words))
         c3, c6 = wrist_points(arm, self.lengths)
+        self.c3_point = c3
         analysis = describe_axes(arm) + wrist_words
         analysis.append(f"wrist centre: ({', '.join(map(str, c6))}) in the last DH frame, "
                         f"({', '.join(map(str, c3))}) in frame 3")
@@ -309,6 +310,24 @@ class Builder:
                         pool.append(equation)
         return pool
 
+    def orientation_sign(self, measure, reference, front) -> int:
+        """+1 or -1 so that ``measure`` agrees in sign with ``reference`` on most front-shoulder
+        configurations (seeded samples where both are clearly non-zero)."""
+        joint_symbols = [x for j in range(1, 7) for x in (cos_symbol(j), sin_symbol(j))]
+        w = (self.links[0] * self.links[1] * self.links[2] * sp.Matrix([*self.c3_point, 1]))[:3, 0]
+        v1 = self.v_defs[1].xreplace(dict(zip(self.w_names, w)))
+        inner = dict(zip(self.v_names[1], v1))
+        exprs = [e.xreplace(inner).xreplace(self.parameters) for e in (front, measure, reference)]
+        evaluate = sp.lambdify(joint_symbols, exprs, modules="math")
+        rng = np.random.default_rng(3)
+        agree = disagree = 0
+        for angles in rng.uniform(-np.pi, np.pi, (200, 6)):
+            f, m, r = evaluate(*[g(a) for a in angles for g in (np.cos, np.sin)])
+            if f > 0 and abs(m) > 1e-6 * self.length_scale ** 2 and abs(r) > 1e-6 * self.length_scale ** 3:
+                agree += (m > 0) == (r > 0)
+                disagree += (m > 0) != (r > 0)
+        return 1 if agree >= disagree else -1
+
     def labels(self) -> list[Label]:
         """Geometric configuration labels (see docs/derivation.md for what a person sees).
 
@@ -345,10 +364,17 @@ class Builder:
         v = p3 - p2
         u = u - u.dot(z2) * z2
         v = v - v.dot(z2) * z2
-        up = reduce_all(v.dot(z1f) * u.dot(u) - v.dot(u) * u.dot(z1f))
-        out.append(Label("elbow", up, "up", "down",
-                         "up: the elbow (joint 3's axis) lies on the +z0 side of the line from the shoulder "
-                         "(joint 2's axis) to the wrist centre, seen along joint 2's axis"))
+        # The bend: (upper arm x forearm) . z2, seen along joint 2's axis. It is zero only with the
+        # elbow fully stretched or folded (the elbow's singular set), so the label never changes
+        # elsewhere on a path. Its sign is oriented so that "up" is the elbow above the shoulder-to-
+        # wrist-centre line (on the +z0 side) in front-shoulder poses, where that picture is clear.
+        bend = reduce_all(v.cross(u - v).dot(z2))
+        above = v.dot(z1f) * u.dot(u) - v.dot(u) * u.dot(z1f)
+        bend = bend * self.orientation_sign(bend, above, front)
+        out.append(Label("elbow", bend, "up", "down",
+                         "up: the elbow bends the way that puts it above the line from the shoulder (joint 2's "
+                         "axis) to the wrist centre in a front-shoulder pose; the sign of (upper arm x forearm) . "
+                         "z2, which changes only where the elbow is fully stretched or folded"))
         _, z4 = axis(4)
         _, z5 = axis(5)
         _, z6 = axis(6)
@@ -360,6 +386,7 @@ class Builder:
 
 
 def reduce_all(expr):
+    """Expand and reduce modulo cos^2 + sin^2 = 1 over all six joints, then pull out common factors."""
     from ..equations import reduce_trig
     return sp.factor_terms(reduce_trig(expr, range(1, 7)))
 
