@@ -46,7 +46,12 @@ def inverse_batch(poses, current=None, conditioning=True):
     With conditioning=False the conditioning array is not filled (returned as None), which saves
     time when only the solutions are wanted."""
     poses = numpy.asarray(poses, dtype=float)
+    if poses.ndim != 3 or poses.shape[1] not in (3, 4) or poses.shape[2] != 4:
+        raise ValueError(f"poses must have shape (N, 4, 4) or (N, 3, 4), not {poses.shape}")
     n = poses.shape[0]
+    if current is not None and numpy.shape(current) != (n, JOINT_COUNT):
+        raise ValueError(f"current must have shape ({n}, {JOINT_COUNT}) (one reading per joint and pose), "
+                         f"not {numpy.shape(current)}")
     joints = numpy.empty((n, RAW_SOLUTIONS, JOINT_COUNT))
     valid = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
     config = numpy.empty((n, RAW_SOLUTIONS), dtype=numpy.int64)

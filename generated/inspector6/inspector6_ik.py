@@ -72,9 +72,10 @@ class Solution(tuple):
 
     @property
     def conditioning(self):
-        """One measure per CONDITION_NAMES entry: 0 at that branch's singular set (for the usual
-        arm: |sin| of the elbow's angle from full stretch, |sin| of the middle wrist joint, the wrist
-        centre's distance from axis 1 over a typical distance); slow down as one nears 0."""
+        """One measure per CONDITION_NAMES entry: 0 at that branch's singular set, larger away from
+        it (for the usual arm: |sin| of the elbow's angle from full stretch, |sin| of the middle wrist
+        joint, and for the shoulder the wrist centre's coordinate along link 1's x axis measured from
+        axis 1, over a fixed power-of-ten length); slow down as one nears 0."""
         return self[3]
 
     @property

@@ -373,8 +373,9 @@ class Builder:
         bend = bend * self.orientation_sign(bend, above, front)
         out.append(Label("elbow", bend, "up", "down",
                          "up: the elbow bends the way that puts it above the line from the shoulder (joint 2's "
-                         "axis) to the wrist centre in a front-shoulder pose; the sign of (upper arm x forearm) . "
-                         "z2, which changes only where the elbow is fully stretched or folded"))
+                         "axis) to the wrist centre when the wrist centre lies beyond the shoulder joint along link "
+                         "1's x axis; the sign of (upper arm x forearm) . z2, which changes only where the elbow is "
+                         "fully stretched or folded"))
         _, z4 = axis(4)
         _, z5 = axis(5)
         _, z6 = axis(6)
