@@ -22,8 +22,9 @@ from .rotations import matrix_to_fixed_xyz, matrix_to_quaternion
 from .terminal import err, fmt, matrix, out, table
 
 
-def parse_values(arm: Arm, raw: list[str], what: str = "joint values") -> np.ndarray:
-    """Joint readings from command-line words (spaces or commas), checked for count and finiteness."""
+def parse_values(arm: Arm, raw: list[str], what: str = "joint values", minimum: float | None = None) -> np.ndarray:
+    """One number per joint from command-line words (spaces or commas), checked for count,
+    finiteness and, when given, a ``minimum``."""
     words = [w for item in raw for w in item.replace(",", " ").split()]
     values = []
     for position, word in enumerate(words, 1):
@@ -33,6 +34,8 @@ def parse_values(arm: Arm, raw: list[str], what: str = "joint values") -> np.nda
             raise IkgenError(f"{what}: value {position} '{word}' is not a number") from None
         if not math.isfinite(value):
             raise IkgenError(f"{what}: value {position} is {word}; expected a finite number")
+        if minimum is not None and value < minimum:
+            raise IkgenError(f"{what}: value {position} is {word}; expected a number >= {minimum:g}")
         values.append(value)
     if len(values) != arm.dof:
         raise IkgenError(f"{what}: got {len(values)} values, expected {arm.dof} "

@@ -16,6 +16,7 @@ from pathlib import Path
 
 from .backends import batch as batch_backend, c as c_backend, common, python as python_backend
 from .backends import report as report_backend
+from .errors import IkgenError
 from .families import derive_arm
 from .ir import Derivation
 from .model import Arm
@@ -64,19 +65,32 @@ def build_report(arm: Arm) -> Build:
     return Build(arm, derivation, report_files(arm, derivation, python_backend.render(arm, derivation)))
 
 
-def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
-    """Write every file or none: temporary files first, renamed into place only when all exist."""
+def write(files: dict, out_dir: str | Path = ".") -> list[Path]:
+    """Write every file or none: temporary files first, renamed into place only when all exist.
+
+    ``files`` maps a path (relative to ``out_dir``) to text or bytes. A file that cannot be written
+    raises IkgenError naming it, and nothing is left behind.
+    """
     out_dir = Path(out_dir)
     staged: list[tuple[Path, Path]] = []
+    target = out_dir
     try:
-        for relative, text in sorted(files.items()):
+        for relative, data in sorted(files.items(), key=lambda item: str(item[0])):
             target = out_dir / relative
             target.parent.mkdir(parents=True, exist_ok=True)
             handle, temporary = tempfile.mkstemp(prefix=".ikgen-", dir=target.parent)
             os.chmod(temporary, 0o666 & ~_umask())   # mkstemp makes 0600; give the usual file mode
-            with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
-                stream.write(text)
+            if isinstance(data, bytes):
+                with os.fdopen(handle, "wb") as stream:
+                    stream.write(data)
+            else:
+                with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
+                    stream.write(data)
             staged.append((Path(temporary), target))
+    except OSError as exc:
+        for temporary, _ in staged:
+            temporary.unlink(missing_ok=True)
+        raise IkgenError(f"cannot write {target}: {exc.strerror or exc}; expected a writable output path") from None
     except BaseException:
         for temporary, _ in staged:
             temporary.unlink(missing_ok=True)

@@ -12,15 +12,15 @@ import argparse
 import csv
 import io
 import math
-import os
 import re
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from .armfile import load_arm
+from .cli import parse_values
 from .errors import IkgenError
+from .generate import write
 from .model import Arm
 from .path import (CHANGE_NEEDED, CONFIGURATION_CHANGE, CROSSES_SINGULARITY, LABEL_CHANGE, LARGE_STEP,
                    LEAVES_WORKSPACE,
@@ -42,27 +42,6 @@ def solver_module(arm: Arm):
 
 
 # -------------------------------------------------------------------------- option values
-
-def parse_numbers(arm: Arm, text: str, what: str, minimum: float | None = None) -> np.ndarray:
-    """One number per joint from 'a,b,c' (commas or spaces), checked for count and finiteness."""
-    words = text.replace(",", " ").split()
-    values = []
-    for position, word in enumerate(words, 1):
-        try:
-            value = float(word)
-        except ValueError:
-            raise IkgenError(f"{what}: value {position} '{word}' is not a number") from None
-        if not math.isfinite(value):
-            raise IkgenError(f"{what}: value {position} is {word}; expected a finite number")
-        if minimum is not None and value < minimum:
-            raise IkgenError(f"{what}: value {position} is {word}; expected a number >= {minimum:g}")
-        values.append(value)
-    if len(values) != arm.dof:
-        units = ", ".join(f"{j.name} [{arm.reading_unit(j)}]" for j in arm.joints)
-        raise IkgenError(f"{what}: got {len(values)} value(s), expected {arm.dof} (one per joint of "
-                         f"'{arm.name}': {units})")
-    return np.array(values)
-
 
 def line_steps(text: str) -> int:
     try:
@@ -188,29 +167,6 @@ def plot_png(arm: Arm, result: PathResult, title: str) -> bytes:
     return buffer.getvalue()
 
 
-def write_all(files: dict[Path, bytes]) -> list[Path]:
-    """Write every file or none: each to a temporary name in its folder, then all renamed."""
-    staged: list[tuple[Path, Path]] = []
-    try:
-        for target, data in files.items():
-            target.parent.mkdir(parents=True, exist_ok=True)
-            handle, temporary = tempfile.mkstemp(prefix=".ikgen-", dir=target.parent)
-            with os.fdopen(handle, "wb") as stream:
-                stream.write(data)
-            staged.append((Path(temporary), target))
-    except OSError as exc:
-        for temporary, _ in staged:
-            temporary.unlink(missing_ok=True)
-        raise IkgenError(f"cannot write {target}: {exc.strerror or exc}; expected a writable output path") from None
-    except BaseException:
-        for temporary, _ in staged:
-            temporary.unlink(missing_ok=True)
-        raise
-    for temporary, target in staged:
-        os.replace(temporary, target)
-    return [target for _, target in staged]
-
-
 def check_output(path: str | None, option: str, suffix: str) -> Path | None:
     if path is None:
         return None
@@ -313,8 +269,8 @@ def origin_description(path_file, line: int | None) -> str:
 
 def cmd_path(args) -> int:
     arm = load_arm(args.arm)
-    start = parse_numbers(arm, args.start, "--start")
-    weights = parse_numbers(arm, args.weights, "--weights", minimum=0.0) if args.weights else None
+    start = parse_values(arm, [args.start], "--start")
+    weights = parse_values(arm, [args.weights], "--weights", minimum=0.0) if args.weights else None
     if weights is not None and not weights.any():
         raise IkgenError("--weights: every weight is 0; expected at least one weight > 0")
     out_path = check_output(args.out, "--out", ".csv")
@@ -347,7 +303,7 @@ def cmd_path(args) -> int:
         files[plot_path] = plot_png(arm, result, f"{arm.name}: joint path along {Path(args.pathfile).name} "
                                                  f"({result.solved} of {result.count} steps solved)")
     print_summary(arm, result, poses, args.pathfile, origin_description(path_file, args.line))
-    for target in write_all(files):
+    for target in write(files):
         out(f"wrote {target}")
     if result.solved < result.count:
         err(f"ikgen: {result.count - result.solved} of {result.count} step(s) not solved (exit status "

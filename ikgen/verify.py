@@ -180,20 +180,22 @@ def wrist_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
     return np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 5]), z[:, 4])
 
 
-def shoulder_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
-    """Signed distance of the wrist centre from axis 1, along frame 1's x axis."""
-    frames = chain.frames(readings)
-    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
-    wrist = chosen[:, 3, :3, 3]                               # on axis 4 ...
-    z4 = chosen[:, 3, :3, 2]
-    z5 = chosen[:, 4, :3, 2]
-    # ... at its meeting point with axis 5
-    o4, o5 = chosen[:, 3, :3, 3], chosen[:, 4, :3, 3]
+def wrist_centres(axis_frames: np.ndarray) -> np.ndarray:
+    """(N, 3): where axis 4 meets axis 5, from the frames whose z axes are the joint axes."""
+    o4, o5 = axis_frames[:, 3, :3, 3], axis_frames[:, 4, :3, 3]
+    z4, z5 = axis_frames[:, 3, :3, 2], axis_frames[:, 4, :3, 2]
     b = np.einsum("ni,ni->n", z4, z5)
     w0 = o4 - o5
     d, e = np.einsum("ni,ni->n", z4, w0), np.einsum("ni,ni->n", z5, w0)
     t = (b * e - d) / (1 - b * b)
-    wrist = o4 + t[:, None] * z4
+    return o4 + t[:, None] * z4
+
+
+def shoulder_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    """Signed distance of the wrist centre from axis 1, along frame 1's x axis."""
+    frames = chain.frames(readings)
+    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
+    wrist = wrist_centres(chosen)
     axis_point = chosen[:, 0, :3, 3]
     x1 = frames[:, 1, :3, 0]
     return np.einsum("ni,ni->n", wrist - axis_point, x1)
@@ -206,13 +208,7 @@ def elbow_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
     chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
     z2 = chosen[:, 1, :3, 2]
     shoulder, elbow = chosen[:, 1, :3, 3], chosen[:, 2, :3, 3]
-    o4, o5 = chosen[:, 3, :3, 3], chosen[:, 4, :3, 3]
-    z4, z5 = chosen[:, 3, :3, 2], chosen[:, 4, :3, 2]
-    b = np.einsum("ni,ni->n", z4, z5)
-    w0 = o4 - o5
-    d, e = np.einsum("ni,ni->n", z4, w0), np.einsum("ni,ni->n", z5, w0)
-    t = (b * e - d) / (1 - b * b)
-    wrist = o4 + t[:, None] * z4
+    wrist = wrist_centres(chosen)
     upper = elbow - shoulder
     fore = wrist - elbow
     return np.einsum("ni,ni->n", np.cross(upper, fore), z2)

@@ -9,9 +9,7 @@ a row are the per-pose solver's solutions.
 
 from __future__ import annotations
 
-import sympy as sp
 from sympy.printing.numpy import NumPyPrinter
-from sympy.printing.precedence import PRECEDENCE
 
 from ..ir import Derivation
 from ..model import Arm
@@ -19,23 +17,14 @@ from . import common
 from .python import terms
 
 
-class BatchPrinter(NumPyPrinter):
+class BatchPrinter(common.ProductPowers, NumPyPrinter):
+    sqrt_name = "numpy.sqrt"
+
     def __init__(self):
         super().__init__({"fully_qualified_modules": True})
 
     def _print_Float(self, expr):
         return repr(float(expr))
-
-    def _print_Pow(self, expr, rational=False):
-        base, exp = expr.base, expr.exp
-        if exp.is_Integer and 2 <= int(exp) <= 4:
-            factor = self.parenthesize(base, PRECEDENCE["Mul"] + 1)
-            return "*".join([factor] * int(exp))
-        if exp == -1:
-            return "1.0/" + self.parenthesize(base, PRECEDENCE["Atom"] - 1)
-        if exp == sp.Rational(1, 2):
-            return f"numpy.sqrt({self._print(base)})"
-        return super()._print_Pow(expr, rational)
 
 
 def render(arm: Arm, derivation: Derivation) -> str:

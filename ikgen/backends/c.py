@@ -13,7 +13,6 @@ from dataclasses import dataclass
 import sympy as sp
 from sympy.codegen.ast import float32, real
 from sympy.printing.c import C99CodePrinter
-from sympy.printing.precedence import PRECEDENCE
 
 from ..ir import Derivation
 from ..model import Arm
@@ -37,11 +36,13 @@ FLOAT = Scalar("float", "_f32", "f", 9)
 SCALARS = (DOUBLE, FLOAT)
 
 
-class SolverCPrinter(C99CodePrinter):
+class SolverCPrinter(common.ProductPowers, C99CodePrinter):
     def __init__(self, scalar: Scalar):
         settings = {"type_aliases": {real: float32}} if scalar.name == "float" else {}
         super().__init__(settings)
         self.scalar = scalar
+        self.sqrt_name = scalar.fn("sqrt")
+        self.one = self.number(1)
 
     def number(self, value) -> str:
         value = float(value)
@@ -58,17 +59,6 @@ class SolverCPrinter(C99CodePrinter):
 
     def _print_Rational(self, expr):
         return self.number(expr)
-
-    def _print_Pow(self, expr, rational=False):
-        base, exp = expr.base, expr.exp
-        if exp.is_Integer and 2 <= int(exp) <= 4:
-            factor = self.parenthesize(base, PRECEDENCE["Mul"] + 1)
-            return "*".join([factor] * int(exp))
-        if exp == -1:
-            return f"{self.number(1)}/" + self.parenthesize(base, PRECEDENCE["Atom"] - 1)
-        if exp == sp.Rational(1, 2):
-            return f"{self.scalar.fn('sqrt')}({self._print(base)})"
-        return super()._print_Pow(expr, rational)
 
 
 def names(arm: Arm, scalar: Scalar) -> dict:

@@ -16,23 +16,12 @@ from ..model import Arm
 from . import common
 
 
-class SolverPythonPrinter(PythonCodePrinter):
+class SolverPythonPrinter(common.ProductPowers, PythonCodePrinter):
     def __init__(self):
         super().__init__({"fully_qualified_modules": False, "standard": "python3"})
 
     def _print_Float(self, expr):
         return repr(float(expr))
-
-    def _print_Pow(self, expr, rational=False):
-        base, exp = expr.base, expr.exp
-        if exp.is_Integer and 2 <= int(exp) <= 4:
-            factor = self.parenthesize(base, sp.printing.precedence.PRECEDENCE["Mul"] + 1)
-            return "*".join([factor] * int(exp))
-        if exp == -1:
-            return "1.0/" + self.parenthesize(base, sp.printing.precedence.PRECEDENCE["Atom"] - 1)
-        if exp == sp.Rational(1, 2):
-            return f"sqrt({self._print(base)})"
-        return super()._print_Pow(expr, rational)
 
 
 def printer() -> SolverPythonPrinter:
