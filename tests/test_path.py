@@ -543,7 +543,7 @@ BAD_CLI = [
     ("x,y,z,qw,qx,qy,qz\n360,100,nan,0,1,0,0\n", [], ["bad.csv:2:", "column 'z'", "not a finite number"]),
     ("", [], ["bad.csv:", "the file is empty"]),
     ("x,y,z,qw,qx,qy,qz\n360,100,120,0,1,0,0\n", ["--line", "5"], ["--line needs at least two rows"]),
-    ("x,y,z,qw,qx,qy,qz\n360,100,120,0,1,0,0\n", ["--start", "0,30,0,0,60"], ["--start: got 5 value(s), expected 6"]),
+    ("x,y,z,qw,qx,qy,qz\n360,100,120,0,1,0,0\n", ["--start", "0,30,0,0,60"], ["--start: got 5 values, expected 6"]),
     ("x,y,z,qw,qx,qy,qz\n360,100,120,0,1,0,0\n", ["--start", "0,30,x,0,60,0"], ["--start: value 3 'x'"]),
     ("x,y,z,qw,qx,qy,qz\n360,100,120,0,1,0,0\n", ["--weights", "1,1,1,1,1,-1"], ["--weights: value 6", ">= 0"]),
 ]
