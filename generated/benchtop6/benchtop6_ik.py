@@ -418,6 +418,8 @@ def _closed_form(pose, current):
             lm0 = v1x + 25
             lm1 = 260*c2*v1y - 260*s2*v1x
             lm2 = s5
+            singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, )
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966
@@ -439,7 +441,7 @@ def _closed_form(pose, current):
                 "front" if lm0 >= 0.0 else "back",
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
-            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, ), -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -180.00000036 <= q[3] <= 180.00000036 and -125.00000025000001 <= q[4] <= 125.00000025000001 and -180.00000036 <= q[5] <= 180.00000036)))
+            ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -459,5 +461,5 @@ def _closed_form(pose, current):
                     "front" if lm0 >= 0.0 else "back",
                     "up" if lm1 >= 0.0 else "down",
                     "flip" if lm2 >= 0.0 else "noflip",
-                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, ), -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -180.00000036 <= q[3] <= 180.00000036 and -125.00000025000001 <= q[4] <= 125.00000025000001 and -180.00000036 <= q[5] <= 180.00000036)))
+                ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
     return solutions

@@ -420,6 +420,8 @@ def _closed_form(pose, current):
             lm0 = v1x
             lm1 = -320*c2*v1y + 320*s2*v1x
             lm2 = s5
+            singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5 * 1.0, )
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - 1.5707963267948966
@@ -442,7 +444,7 @@ def _closed_form(pose, current):
                 "front" if lm0 >= 0.0 else "back",
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
-            ), root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4, (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5 * 1.0, ), -175.00000035 <= q[0] <= 175.00000035 and -140.00000024 <= q[1] <= 100.00000024 and -160.00000028 <= q[2] <= 120.00000028000001 and -270.00000054 <= q[3] <= 270.00000054 and -120.00000024000002 <= q[4] <= 120.00000024000002 and -360.00000072 <= q[5] <= 360.00000072)))
+            ), singular, conditioning, -175.00000035 <= q[0] <= 175.00000035 and -140.00000024 <= q[1] <= 100.00000024 and -160.00000028 <= q[2] <= 120.00000028000001 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -462,5 +464,5 @@ def _closed_form(pose, current):
                     "front" if lm0 >= 0.0 else "back",
                     "up" if lm1 >= 0.0 else "down",
                     "flip" if lm2 >= 0.0 else "noflip",
-                ), root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4, (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5 * 1.0, ), -175.00000035 <= q[0] <= 175.00000035 and -140.00000024 <= q[1] <= 100.00000024 and -160.00000028 <= q[2] <= 120.00000028000001 and -270.00000054 <= q[3] <= 270.00000054 and -120.00000024000002 <= q[4] <= 120.00000024000002 and -360.00000072 <= q[5] <= 360.00000072)))
+                ), singular, conditioning, -175.00000035 <= q[0] <= 175.00000035 and -140.00000024 <= q[1] <= 100.00000024 and -160.00000028 <= q[2] <= 120.00000028000001 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
     return solutions

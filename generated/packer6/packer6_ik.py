@@ -429,6 +429,8 @@ def _closed_form(pose, current):
             lm0 = v1x
             lm1 = -0.85*c2*v1z - 0.85*s2*v1x + 0.1275*s2
             lm2 = s5
+            singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, )
             u1 = th1
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966
@@ -450,7 +452,7 @@ def _closed_form(pose, current):
                 "front" if lm0 >= 0.0 else "back",
                 "up" if lm1 >= 0.0 else "down",
                 "noflip" if lm2 >= 0.0 else "flip",
-            ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, ), -3.1415926598729786 <= q[0] <= 3.1415926598729786 and -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -3.1415926598729786 <= q[3] <= 3.1415926598729786 and -2.094395106581986 <= q[4] <= 2.094395106581986 and -3.1415926598729786 <= q[5] <= 3.1415926598729786)))
+            ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -470,5 +472,5 @@ def _closed_form(pose, current):
                     "front" if lm0 >= 0.0 else "back",
                     "up" if lm1 >= 0.0 else "down",
                     "flip" if lm2 >= 0.0 else "noflip",
-                ), free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4, (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, ), -3.1415926598729786 <= q[0] <= 3.1415926598729786 and -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -3.1415926598729786 <= q[3] <= 3.1415926598729786 and -2.094395106581986 <= q[4] <= 2.094395106581986 and -3.1415926598729786 <= q[5] <= 3.1415926598729786)))
+                ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
     return solutions

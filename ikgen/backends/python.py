@@ -58,7 +58,15 @@ def render(arm: Arm, derivation: Derivation) -> str:
         mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
-        within_test=" and ".join(f"{t.low!r} <= q[{k}] <= {t.high!r}" for k, t in enumerate(common.joint_turns(arm)))))
+        within_test=within_test(arm)))
+
+
+def within_test(arm: Arm) -> str:
+    """The limits check of a solution ``q`` whose revolute readings lie in one turn: joints whose
+    limits hold the whole turn need no check."""
+    checks = [f"{t.low!r} <= q[{k}] <= {t.high!r}" for k, t in enumerate(common.joint_turns(arm))
+              if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)]
+    return " and ".join(checks) or "True"
 
 
 PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "root": "root{} > 0.0", "not_free": "not free{}"}
