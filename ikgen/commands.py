@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 
@@ -13,29 +14,41 @@ from .terminal import err, fmt, out, table
 from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, Verification, verify
 
 
+def write_or_check(results: list, out_dir: str, check: bool, what: str, fresh: str, describe) -> int:
+    """The tail of generate and explain: with ``check``, list the stale files (exit 1); otherwise
+    write every arm's files in one all-or-nothing step and say what was written."""
+    if check:
+        changed = [path for result, _ in results for path in stale(result.files, out_dir)]
+        for path in changed:
+            err(f"stale: {out_dir}/{path}")
+        if changed:
+            err(f"ikgen: {len(changed)} {what} file(s) differ from a fresh {fresh}; run without --check")
+            return 1
+        out(f"up to date: {sum(len(r.files) for r, _ in results)} {what + ' ' if what != 'generated' else ''}"
+            f"file(s) in {out_dir}")
+        return 0
+    written = write({path: text for result, _ in results for path, text in result.files.items()}, out_dir)
+    for result, seconds in results:
+        out(describe(result, seconds))
+        folder = os.path.join(out_dir, result.folder)
+        for path in written:
+            if os.path.dirname(str(path)) == folder:
+                out(f"  wrote {path}")
+    return 0
+
+
+def timed(make, arm):
+    started = time.perf_counter()
+    result = make(arm)
+    return result, time.perf_counter() - started
+
+
 def cmd_generate(args) -> int:
     arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
-    builds = []
-    for arm in arms:
-        started = time.perf_counter()
-        result = build(arm)
-        builds.append((result, time.perf_counter() - started))
-    if args.check:
-        changed = [path for result, _ in builds for path in stale(result.files, args.out)]
-        for path in changed:
-            err(f"stale: {args.out}/{path}")
-        if changed:
-            err(f"ikgen: {len(changed)} generated file(s) differ from a fresh generation; run without --check")
-            return 1
-        out(f"up to date: {sum(len(r.files) for r, _ in builds)} file(s) in {args.out}")
-        return 0
-    for result, seconds in builds:
-        written = write(result.files, args.out)
-        out(f"{result.arm.name}: {result.derivation.family}, at most {result.derivation.max_solutions} "
-            f"solutions, derived in {seconds:.2f} s")
-        for path in written:
-            out(f"  wrote {path}")
-    return 0
+    results = [timed(build, arm) for arm in arms]       # every arm derived before anything is written
+    return write_or_check(results, args.out, args.check, "generated", "generation",
+                          lambda r, seconds: f"{r.arm.name}: {r.derivation.family}, at most "
+                                             f"{r.derivation.max_solutions} solutions, derived in {seconds:.2f} s")
 
 
 def print_verification(report: Verification, unit: str) -> None:
@@ -77,25 +90,9 @@ def cmd_verify(args) -> int:
 
 def cmd_explain(args) -> int:
     arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
-    results = []
-    for arm in arms:                                    # every report rendered before anything is written
-        started = time.perf_counter()
-        results.append((build_report(arm), time.perf_counter() - started))
-    if args.check:
-        changed = [path for result, _ in results for path in stale(result.files, args.out)]
-        for path in changed:
-            err(f"stale: {args.out}/{path}")
-        if changed:
-            err(f"ikgen: {len(changed)} report file(s) differ from a fresh rendering; run without --check")
-            return 1
-        out(f"up to date: {sum(len(r.files) for r, _ in results)} report file(s) in {args.out}")
-        return 0
-    for result, seconds in results:
-        written = write(result.files, args.out)
-        out(f"{result.arm.name}: derivation report rendered in {seconds:.2f} s")
-        for path in written:
-            out(f"  wrote {path}")
-    return 0
+    results = [timed(build_report, arm) for arm in arms]  # every report rendered before anything is written
+    return write_or_check(results, args.out, args.check, "report", "rendering",
+                          lambda r, seconds: f"{r.arm.name}: derivation report rendered in {seconds:.2f} s")
 
 
 def cmd_compile(args) -> int:
