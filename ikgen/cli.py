@@ -43,6 +43,14 @@ def parse_values(arm: Arm, raw: list[str], what: str = "joint values", minimum: 
     return np.array(values)
 
 
+def warn_outside_limits(arm: Arm, readings, prefix: str = "") -> None:
+    """A warning on stderr for each reading outside its joint's limits."""
+    for j, value, (lo, hi) in zip(arm.joints, readings, arm.limits_in_readings()):
+        if not lo <= value <= hi:
+            err(f"warning: {prefix}{j.label} reading {fmt(value)} {arm.reading_unit(j)} is outside its limits "
+                f"{fmt(lo)} .. {fmt(hi)}")
+
+
 def unit_summary(arm: Arm) -> str:
     kinds = {j.kind for j in arm.joints}
     parts = []
@@ -100,11 +108,7 @@ def cmd_describe(args) -> int:
 def cmd_forward(args) -> int:
     arm = load_arm(args.arm)
     readings = parse_values(arm, args.values)
-    limits = arm.limits_in_readings()
-    for j, value, (lo, hi) in zip(arm.joints, readings, limits):
-        if not lo <= value <= hi:
-            err(f"warning: {j.label} reading {fmt(value)} {arm.reading_unit(j)} is outside its limits "
-                f"{fmt(lo)} .. {fmt(hi)}")
+    warn_outside_limits(arm, readings)
     chain = NumericChain(arm)
     pose = chain.pose(readings)
     L = arm.length_unit

@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from .armfile import load_arm
-from .cli import parse_values
+from .cli import parse_values, warn_outside_limits
 from .errors import IkgenError
 from .generate import write
 from .model import Arm
@@ -287,11 +287,7 @@ def cmd_path(args) -> int:
         if total > MAX_POSES:
             raise IkgenError(f"--line {args.line}: the path would have {total} poses; expected at most {MAX_POSES}")
         poses, _ = polyline(poses, args.line)
-    limits = arm.limits_in_readings()
-    for j, value, (lo, hi) in zip(arm.joints, start, limits):
-        if not lo <= value <= hi:
-            err(f"warning: --start: {j.label} reading {fmt(value)} {arm.reading_unit(j)} is outside its limits "
-                f"{fmt(lo)} .. {fmt(hi)}")
+    warn_outside_limits(arm, start, "--start: ")
     module = solver_module(arm)
     result = solve_path(module, poses, start, weights=weights, singular_threshold=args.near,
                         on_change=args.on_change, max_step=args.max_step,
