@@ -301,3 +301,47 @@ def test_vector_check_rejects_wrong_vectors():
     assert any(p.startswith("vector 0: the double solver") for p in problems), problems
     assert not any(p.startswith("vector 1") for p in problems), problems
     assert any(p.startswith("vector 2: the readings' pose") for p in problems), problems
+
+
+# ------------------------------------------------------------------------------ the benchmark's stack reader
+
+@pytest.fixture(scope="module")
+def cross_tools():
+    try:
+        return firmware.find_tools(need_qemu=False)
+    except firmware.ToolsMissing as missing:
+        pytest.skip(f"cross-compiler checks skipped: {missing}")
+
+
+def bench_mcu():
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import bench_mcu as module
+    return module
+
+
+@pytest.mark.parametrize(("mnemonic", "operands", "bytes_down"), [
+    ("push", "{r4, r5, lr}", 12),                                   # 4 bytes per core register
+    ("stmdb", "sp!, {r4, r5, r6, r7, r8, r9, sl, fp, lr}", 36),
+    ("vpush", "{d8-d15}", 64),                                      # 8 bytes per d register
+    ("vpush", "{s16-s19}", 16),                                     # 4 bytes per s register
+    ("sub", "sp, #364", 364), ("sub.w", "sp, sp, #564", 564),
+    ("str.w", "sl, [sp, #-4]!", 4),                                 # pre-indexed store with write-back
+    ("add", "r3, sp, #360", 0), ("vstmdb", "r0!, {s15}", 0),          # sp read, or another base register
+    ("mov", "sp, r7", None),                                        # sp from a register: no static bound
+])
+def test_bench_frame_reader_on_single_instructions(mnemonic, operands, bytes_down):
+    """How far each instruction moves sp down, by the instruction pages of the ARMv7-M
+    Architecture Reference Manual (PUSH, STMDB, VPUSH, SUB SP minus immediate, STR pre-indexed)."""
+    assert bench_mcu().sp_decrement(mnemonic, operands) == bytes_down
+
+
+@pytest.mark.parametrize("solver", SOLVERS, ids=SOLVER_IDS)
+def test_bench_frame_reader_agrees_with_gcc(cross_tools, solver, tmp_path):
+    """The benchmark sizes library frames from disassembly; on the solver's own object that reader
+    must give exactly gcc's -fstack-usage figure for every function gcc sizes."""
+    bench = bench_mcu()
+    gcc = bench.gcc_call_graph(cross_tools, solver, (), tmp_path)
+    read = bench.disassembly_graph(cross_tools, tmp_path / "graph.o")
+    sized = {bench.bare(name): frame for name, frame in gcc.frames.items() if frame is not None}
+    assert f"{solver.prefix}_inverse" in sized and len(sized) >= 5, sized
+    assert {name: read.frames.get(name) for name in sized} == sized
