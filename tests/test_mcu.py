@@ -10,7 +10,8 @@ newlib's libm, on QEMU's mps2-an386 board (Cortex-M4 with its single-precision F
 for the output and the exit status. Skipped, with the reason, when the toolchain, newlib or QEMU
 is missing (Debian: gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm).
 
-Outside references used here (named again beside each check):
+Outside references used here (named again beside each check; section numbers as recalled, not
+re-checked against a copy):
 - Arm, "ARMv7-M Architecture Reference Manual" (DDI 0403E): B1.5 exceptions (a fault in a
   handler-less configuration escalates to HardFault), B3.2.20 CPACR (the FPU is off until enabled).
 - Arm, "Run-time ABI for the Arm Architecture" / "Addenda to the ABI": the build attributes
@@ -136,7 +137,7 @@ def test_a_fault_on_the_target_is_not_a_pass(tools, tmp_path):
 def test_firmware_uses_the_single_precision_fpu(tools, tmp_path):
     """The build really targets the FPU: the Arm build attributes say VFPv4-D16 with arguments in
     VFP registers (Addenda to the Arm ABI, Tag_FP_arch, Tag_ABI_VFP_args), and no software
-    double-precision helper (__aeabi_d*, Run-time ABI for the Arm Architecture, 4.1.2) is linked:
+    double-precision helper (__aeabi_d*, Run-time ABI for the Arm Architecture) is linked:
     a double promotion in the float solver would pull them in."""
     solver = SOLVERS[0]
     elf = firmware.selftest_firmware(tools, solver, tmp_path)
