@@ -324,7 +324,10 @@ class LinkTree:
             raise ArmFileError(self.checker.shown, "", f"link '{root}' has no joints below it",
                                "a root link with a chain of joints below it")
         if len(leaves) > 1:
-            raise ArmFileError(self.checker.shown, "", f"the tree branches below '{root}': it has "
+            fork = root
+            while len(self.children[fork]) == 1:
+                fork = self.children[fork][0].child
+            raise ArmFileError(self.checker.shown, "", f"the tree below '{root}' branches at link '{fork}': it has "
                                f"{len(leaves)} leaf links ({', '.join(repr(l) for l in leaves)})",
                                "the chain's tip link named with --tip-link, one of those or a link above them")
         return leaves[0]

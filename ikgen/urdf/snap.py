@@ -26,7 +26,7 @@ import sympy as sp
 from ..exact import exact_from_float
 
 SNAP_TOLERANCE = 1e-12
-NEAR_MISS = 1e-6            # radians: closer than this to a multiple of 15 deg, but not within the tolerance
+NEAR_MISS = 1e-3            # radians (0.06 deg): closer than this to a multiple of 15 deg, not within the tolerance
 MAX_DECIMALS = 9
 STEP = math.pi / 12
 
