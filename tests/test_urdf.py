@@ -33,7 +33,6 @@ from scipy.spatial.transform import Rotation  # noqa: E402
 from helpers import EXAMPLES  # noqa: E402
 from ikgen.armfile import load_arm  # noqa: E402
 from ikgen.armsource import load_arm_source  # noqa: E402
-from ikgen.cli import main  # noqa: E402
 from ikgen.errors import ArmFileError, IkgenError  # noqa: E402
 from ikgen.generate import build, load_module  # noqa: E402
 from ikgen.kinematics import NumericChain  # noqa: E402
@@ -428,6 +427,7 @@ def test_bad_limits_are_refused(tmp_path, change, piece):
     ('<axis xyz="0.0 0.0 1.0"/>', '<axis xyz="0 1"/>', 'holds 2 value(s); expected 3 number(s)'),
     ('rpy="0.0 0.0 0.0"', 'rpy="0 0 abc"', "'abc' is not a number"),
     ('xyz="0.0 0.0 0.1"', 'xyz="0 0 inf"', "'inf' is not finite"),
+    ('xyz="0.0 0.0 0.1"', 'xyz="0 0 1e300"', "'1e300' is too large; expected numbers of magnitude at most 1e+06"),
     ('type="revolute"', 'type="hinge"', "has type 'hinge'; expected one of revolute, continuous"),
     ('<parent link="l0"/>', "", 'has no <parent link="...">'),
     ('<joint name="j1"', "<joint", "<joint>: has no 'name' attribute"),

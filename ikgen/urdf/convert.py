@@ -21,7 +21,7 @@ from ..errors import ArmFileError
 from ..kinematics import NumericChain
 from ..model import Arm, Joint
 from ..rotations import from_axis_angles, homogeneous, matrix_to_fixed_xyz
-from .dh import AxisLine, Placement, axis_sign, place_frames
+from .dh import AxisLine, axis_sign, place_frames
 from .reader import Chain, ChainJoint
 from .snap import Snapper, shown
 

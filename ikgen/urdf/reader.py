@@ -25,6 +25,7 @@ import difflib
 import hashlib
 import io
 import math
+import xml.etree.ElementTree as ElementTree
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -35,6 +36,7 @@ from ..errors import ArmFileError, IkgenError
 MAX_URDF_BYTES = 16 * 1024 * 1024   # a URDF holds no meshes; real ones are well below 1 MiB
 JOINT_TYPES = ("revolute", "continuous", "prismatic", "fixed", "floating", "planar")
 CHAIN_TYPES = ("revolute", "continuous", "prismatic", "fixed")
+MAX_MAGNITUDE = 1e6         # origin and axis numbers: metres and radians of any real robot are far below
 EXTRA_HINT = "URDF input needs the optional URDF support: pip install \"ikgen[urdf]\""
 
 
@@ -106,7 +108,6 @@ def read_urdf_bytes(path: Path) -> bytes:
 
 def safe_tree(raw: bytes, shown: str):
     """The element tree of ``raw`` and {id(element): line}, refusing DTDs and entities."""
-    ElementTree = import_extra("xml.etree.ElementTree")
     defused = import_extra("defusedxml.ElementTree")
     common = import_extra("defusedxml.common")
 
@@ -158,7 +159,7 @@ class ElementChecker:
             self.fail(element, f"<{what}>", "has no 'name' attribute", f"<{what} name=\"...\">")
         return value
 
-    def numbers(self, element, attribute: str, where: str, default: str | None) -> None:
+    def numbers(self, element, attribute: str, where: str, default: str | None, bounded: bool = True) -> None:
         text = element.get(attribute, default)
         if text is None:
             self.fail(element, where, f"<{element.tag}> has no '{attribute}' attribute", "a number")
@@ -175,6 +176,9 @@ class ElementChecker:
                 self.fail(element, where, f"{shown}: '{word}' is not a number", "finite numbers")
             if not math.isfinite(value):
                 self.fail(element, where, f"{shown}: '{word}' is not finite", "finite numbers")
+            if bounded and abs(value) > MAX_MAGNITUDE:
+                self.fail(element, where, f"{shown}: '{word}' is too large", f"numbers of magnitude at most "
+                          f"{MAX_MAGNITUDE:g} (metres, radians)")
 
     def robot(self, root) -> None:
         if root.tag != "robot":
@@ -208,7 +212,7 @@ class ElementChecker:
         if limit is not None:
             for attribute in ("lower", "upper"):
                 if limit.get(attribute) is not None:
-                    self.numbers(limit, attribute, where, None)
+                    self.numbers(limit, attribute, where, None, bounded=False)
 
 
 # ------------------------------------------------------------------------------ the library
