@@ -495,6 +495,21 @@ def test_file_over_the_size_cap_is_refused_before_reading(tmp_path):
         load_urdf_arm(path)
 
 
+def test_library_reading_less_than_the_file_holds_is_refused(tmp_path):
+    """A text node over lxml's default 10 MB limit made the library fall back to a recovering
+    parse that dropped elements (seen with yourdfpy 0.0.60, lxml 6.2): refused, or (should a later
+    library read it all) the whole chain, never a shorter robot."""
+    text = DEMO_URDF.read_text(encoding="utf-8").replace(
+        '<link name="bench"/>', '<link name="bench"/>\n  <gazebo>' + "a" * (11 * 1024 * 1024) + "</gazebo>")
+    path = write(tmp_path, text)
+    try:
+        arm = load_urdf_arm(path)
+    except ArmFileError as error:
+        assert "the URDF library read other <link> elements than the file holds" in str(error)
+    else:
+        assert [j.name for j in arm.joints] == [j.name for j in load_urdf_arm(DEMO_URDF).joints]
+
+
 def test_wrong_suffix_and_missing_file(tmp_path):
     with pytest.raises(ArmFileError, match="file not found"):
         load_urdf_arm(tmp_path / "none.urdf")

@@ -24,6 +24,7 @@ from __future__ import annotations
 import difflib
 import hashlib
 import io
+import logging
 import math
 import xml.etree.ElementTree as ElementTree
 from dataclasses import dataclass
@@ -217,15 +218,26 @@ class ElementChecker:
 
 # ------------------------------------------------------------------------------ the library
 
-def library_model(raw: bytes, shown: str):
-    """The URDF library's model of the (already checked) bytes."""
+def library_model(raw: bytes, shown: str, xml_root):
+    """The URDF library's model of the (already checked) bytes, holding the same links and joints
+    as the checked XML (the library falls back to a recovering parser when its own XML parser
+    gives up, for example on a text node beyond its size limit: that must not lose a joint)."""
     yourdfpy = import_extra("yourdfpy")
+    library_log = logging.getLogger("yourdfpy")
+    level = library_log.level
+    library_log.setLevel(logging.CRITICAL)      # its parse errors become our message, not log lines
     try:
         model = yourdfpy.URDF.load(io.BytesIO(raw), build_scene_graph=False, build_collision_scene_graph=False,
                                    load_meshes=False, load_collision_meshes=False)
     except Exception as exc:  # the library's own errors vary: a readable message, never a traceback
         raise ArmFileError(shown, "", f"the URDF library could not read the file ({type(exc).__name__}: {exc})",
                            "a valid URDF robot description") from None
+    finally:
+        library_log.setLevel(level)
+    for tag, parsed in (("link", model.robot.links), ("joint", model.robot.joints)):
+        if sorted(e.get("name") for e in xml_root.findall(tag)) != sorted(item.name for item in parsed):
+            raise ArmFileError(shown, "", f"the URDF library read other <{tag}> elements than the file holds",
+                               "a URDF the library reads completely")
     return model
 
 
@@ -394,7 +406,7 @@ def read_chain(path: str | Path, root: str | None = None, tip: str | None = None
     checker = ElementChecker(shown, lines)
     checker.robot(xml_root)
     elements = {element.get("name"): element for element in xml_root.findall("joint")}
-    model = library_model(raw, shown)
+    model = library_model(raw, shown, xml_root)
     tree = LinkTree(model, elements, checker)
     root = tree.pick_root(root)
     tip = tree.pick_tip(root, tip)
