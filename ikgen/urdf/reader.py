@@ -79,6 +79,18 @@ def import_extra(module: str):
 
 # ------------------------------------------------------------------------------ the bytes
 
+def read_at_most(stream, limit: int) -> bytes:
+    """Up to ``limit`` bytes, in 1 MiB pieces (read(limit) would allocate all of ``limit`` at once)."""
+    chunks, total = [], 0
+    while total < limit:
+        chunk = stream.read(min(1 << 20, limit - total))
+        if not chunk:
+            break
+        chunks.append(chunk)
+        total += len(chunk)
+    return b"".join(chunks)
+
+
 def read_urdf_bytes(path: Path) -> bytes:
     shown = str(path)
     expected = "a readable .urdf file"
@@ -92,7 +104,7 @@ def read_urdf_bytes(path: Path) -> bytes:
             raise ArmFileError(shown, "", f"the file has {size} bytes",
                                f"a URDF of at most {MAX_URDF_BYTES} bytes (16 MiB)")
         with path.open("rb") as stream:
-            raw = stream.read(MAX_URDF_BYTES + 1)   # the file may have grown since stat()
+            raw = read_at_most(stream, MAX_URDF_BYTES + 1)   # the file may have grown since stat()
     except OSError as exc:
         raise ArmFileError(shown, "", f"cannot read the file: {exc.strerror or exc}", expected) from None
     if len(raw) > MAX_URDF_BYTES:
