@@ -14,7 +14,7 @@ import sys
 import numpy as np
 
 from . import __version__
-from .armfile import load_arm
+from .armsource import ARM_HELP, add_arm_source_options, load_arm_source
 from .errors import IkgenError
 from .kinematics import NumericChain
 from .model import Arm
@@ -62,7 +62,7 @@ def unit_summary(arm: Arm) -> str:
 
 
 def cmd_describe(args) -> int:
-    arm = load_arm(args.arm)
+    arm = load_arm_source(args.arm, args)
     convention = {"standard": "standard (distal) DH: A_i = Rz(theta) Tz(d) Tx(a) Rx(alpha)",
                   "modified": "modified (proximal) DH: A_i = Rx(alpha) Tx(a) Rz(theta) Tz(d)"}[arm.convention]
     out(f"arm          {arm.name}")
@@ -106,7 +106,7 @@ def cmd_describe(args) -> int:
 
 
 def cmd_forward(args) -> int:
-    arm = load_arm(args.arm)
+    arm = load_arm_source(args.arm, args)
     readings = parse_values(arm, args.values)
     warn_outside_limits(arm, readings)
     chain = NumericChain(arm)
@@ -145,16 +145,18 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("describe", help="print an arm's DH table, units, conventions and joint axes",
                        description="Print the arm's DH table with units and conventions, each joint's axis "
                                    "in the world frame at the zero reading, and the tool pose there.")
-    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("arm", help=ARM_HELP)
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_describe)
 
     p = sub.add_parser("forward", help="compute the tool pose for given joint readings",
                        description="Forward kinematics: joint readings in the arm's units in, the tool pose "
                                    "in the world frame out (position, fixed-axis xyz angles, quaternion, matrix).")
-    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("arm", help=ARM_HELP)
     p.add_argument("values", nargs="+", metavar="VALUE",
                    help="one reading per joint, in the arm's units (spaces or commas between them)")
     p.add_argument("--frames", action="store_true", help="also print every DH frame's origin and z axis")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_forward)
     # argparse takes a word that starts with '-' and is not a plain decimal ("-5", "-0.5") for an
     # option, so readings such as "-1e-3" or "-30,15,40" were refused. This parser has no option
@@ -163,6 +165,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     from .commands import add_generation_commands
     add_generation_commands(sub)
+    from .urdf_command import register as register_from_urdf
+    register_from_urdf(sub)
     return parser
 
 

@@ -7,7 +7,7 @@ import os
 import sys
 import time
 
-from .armfile import load_arm
+from .armsource import ARM_HELP, add_arm_source_options, load_arm_source, load_arm_sources
 from .errors import VerificationError
 from .generate import build, build_report, load_module, stale, write
 from .terminal import err, fmt, out, table
@@ -44,7 +44,7 @@ def timed(make, arm):
 
 
 def cmd_generate(args) -> int:
-    arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
+    arms = load_arm_sources(args.arms, args)             # every file validated before anything is written
     results = [timed(build, arm) for arm in arms]       # every arm derived before anything is written
     return write_or_check(results, args.out, args.check, "generated", "generation",
                           lambda r, seconds: f"{r.arm.name}: {r.derivation.family}, at most "
@@ -75,7 +75,7 @@ def print_verification(report: Verification, unit: str) -> None:
 
 
 def cmd_verify(args) -> int:
-    arm = load_arm(args.arm)
+    arm = load_arm_source(args.arm, args)
     result = build(arm)
     if args.out:
         for path in write(result.files, args.out):
@@ -89,7 +89,7 @@ def cmd_verify(args) -> int:
 
 
 def cmd_explain(args) -> int:
-    arms = [load_arm(path) for path in args.arms]      # every file validated before anything is written
+    arms = load_arm_sources(args.arms, args)             # every file validated before anything is written
     results = [timed(build_report, arm) for arm in arms]  # every report rendered before anything is written
     return write_or_check(results, args.out, args.check, "report", "rendering",
                           lambda r, seconds: f"{r.arm.name}: derivation report rendered in {seconds:.2f} s")
@@ -98,7 +98,7 @@ def cmd_explain(args) -> int:
 def cmd_compile(args) -> int:
     from .backends.c import DOUBLE, FLOAT
     from .cbuild import compile_solver
-    arm = load_arm(args.arm)
+    arm = load_arm_source(args.arm, args)
     scalar = FLOAT if args.float else DOUBLE
     started = time.perf_counter()
     solver = compile_solver(arm, scalar=scalar, folder=args.out)
@@ -127,21 +127,23 @@ def add_generation_commands(sub) -> None:
                        description="Derive the closed-form inverse kinematics of each arm and write its "
                                    "generated files to OUT/<arm>/. Nothing is written unless every arm "
                                    "derives; with --check nothing is written at all.")
-    p.add_argument("arms", nargs="+", metavar="ARM", help="arm description file(s) (.toml or .json)")
+    p.add_argument("arms", nargs="+", metavar="ARM", help=ARM_HELP)
     p.add_argument("-o", "--out", default="generated", help="output folder (default: generated)")
     p.add_argument("--check", action="store_true",
                    help="write nothing; exit 1 if the files in OUT differ from a fresh generation")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_generate)
 
     p = sub.add_parser("verify", help="generate a solver and check it against the forward kinematics",
                        description="Generate the solver in memory and check it on random joint vectors within "
                                    "the limits: completeness, round-trip error, solution counts, unreachable "
                                    "and singular poses. Exits 4 when a threshold fails.")
-    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("arm", help=ARM_HELP)
     p.add_argument("-n", "--samples", type=positive, default=10000, help="random samples (default 10000)")
     p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
     p.add_argument("-o", "--out", default=None, help="also write the generated files to this folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress display")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_verify)
 
     p = sub.add_parser("explain", help="write only the derivation report (HTML and Markdown) of each arm",
@@ -152,19 +154,21 @@ def add_generation_commands(sub) -> None:
                                    "table, the structure analysis, every step as an equation, branches, guards "
                                    "and singular poses, verification figures and one sample pose with every "
                                    "solution. `ikgen generate` writes the same files beside the solvers.")
-    p.add_argument("arms", nargs="+", metavar="ARM", help="arm description file(s) (.toml or .json)")
+    p.add_argument("arms", nargs="+", metavar="ARM", help=ARM_HELP)
     p.add_argument("-o", "--out", default="generated", help="output folder (default: generated)")
     p.add_argument("--check", action="store_true",
                    help="write nothing; exit 1 if the report files in OUT differ from a fresh rendering")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_explain)
 
     p = sub.add_parser("compile", help="build the generated C solver into a Python extension (cffi)",
                        description="Render the arm's C solver and compile it with cffi (API mode) into an "
                                    "importable Python extension in OUT, for planners and scripts that want C "
                                    "speed without writing C.")
-    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("arm", help=ARM_HELP)
     p.add_argument("-o", "--out", required=True, help="folder for the sources and the built extension")
     p.add_argument("--float", action="store_true", help="build the float (single precision) solver")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_compile)
 
     from .path_command import register

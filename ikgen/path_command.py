@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .armfile import load_arm
+from .armsource import ARM_HELP, add_arm_source_options, load_arm_source
 from .cli import parse_values, warn_outside_limits
 from .errors import IkgenError
 from .generate import write
@@ -268,7 +268,7 @@ def origin_description(path_file, line: int | None) -> str:
 # -------------------------------------------------------------------------------- command
 
 def cmd_path(args) -> int:
-    arm = load_arm(args.arm)
+    arm = load_arm_source(args.arm, args)
     start = parse_values(arm, [args.start], "--start")
     weights = parse_values(arm, [args.weights], "--weights", minimum=0.0) if args.weights else None
     if weights is not None and not weights.any():
@@ -320,7 +320,7 @@ def register(sub) -> argparse.ArgumentParser:
                     "every step is solved, 1 when some are not (the files are still written), 2 for bad "
                     "input (nothing written). Check every joint path in simulation before a real arm "
                     "moves: collisions and speeds are not checked.")
-    p.add_argument("arm", help="arm description file (.toml or .json)")
+    p.add_argument("arm", help=ARM_HELP)
     p.add_argument("pathfile", metavar="PATHFILE", help="path file (CSV: x, y, z, qw, qx, qy, qz per row)")
     p.add_argument("--start", required=True, metavar="Q1,...,QN",
                    help="the joint readings the arm is at before the path, in the arm's units (commas)")
@@ -338,6 +338,7 @@ def register(sub) -> argparse.ArgumentParser:
                    help="per-joint weights of the distance used to pick the nearest solution (default all 1)")
     p.add_argument("--max-step", type=positive_number, metavar="VALUE",
                    help="flag steps where a joint changes by more than VALUE (the joint's unit)")
+    add_arm_source_options(p)
     p.set_defaults(run=cmd_path)
     # readings such as "-30,15,40" start with '-': this parser has no option that looks like a
     # number, so every word "-<digit>..." or "-.<digit>..." is a value (as for `ikgen forward`).
