@@ -3,6 +3,11 @@
 The schema is documented in docs/arm-file.md. Every problem becomes an ``ArmFileError`` that
 names the file, the line when it can be found, the place (joint index and name, field), what
 was found and what was expected; an unknown key suggests the closest known one.
+
+Sizes are bounded so that every number the derivation meets is a finite double far from
+overflow (lengths within 1 km, angles within 100 turns, see ``LENGTH_LIMITS`` and
+``ANGLE_LIMITS``), the number of solutions per pose stays countable
+(``MAX_EQUIVALENT_READINGS``), and the file itself is small (``ARM_FILE_LIMIT``).
 """
 
 from __future__ import annotations
@@ -17,8 +22,9 @@ from pathlib import Path
 
 import sympy as sp
 
-from .errors import ArmFileError
+from .errors import ArmFileError, clip, quote
 from .exact import NotANumber, parse_exact, snap_radians
+from .files import Unreadable, read_limited
 from .model import ANGLE_UNITS, CONVENTIONS, JOINT_KINDS, LENGTH_UNITS, Arm, Joint
 from .rotations import from_axis_angles, from_quaternion, homogeneous
 
@@ -32,7 +38,18 @@ ROTATION_KEYS = ("axes", "frame", "angles", "quaternion", "order", "matrix")
 QUATERNION_ORDERS = ("wxyz", "xyzw")
 UNIT_TOLERANCE = 1e-6  # how far from 1 a quaternion's norm (or a matrix's columns) may be
 
-NAME_PATTERN = re.compile(r"^[^\x00-\x1f\x7f]{1,64}$")
+MAX_NAME = 64                  # characters of an arm or joint name
+MAX_DESCRIPTION = 1000         # characters of the description (it is copied into every output)
+ARM_FILE_LIMIT = 1 << 20       # bytes of an arm file (1 MiB; the demo arms have about 2 KiB)
+# Magnitude bounds, in the file's units: 1 km of length (no arm is longer, and squares of sums of
+# such lengths stay far from overflow, also in float), 100 turns of angle, and 10 for the plain
+# numbers of quaternions and rotation matrices (a unit quaternion's are at most 1).
+LENGTH_LIMITS = {"m": sp.Integer(1000), "mm": sp.Integer(1_000_000)}
+ANGLE_LIMITS = {"deg": sp.Integer(36_000), "rad": 200 * sp.pi}
+PLAIN_LIMIT = sp.Integer(10)
+# Every closed-form solution comes back once per combination of equivalent readings of the
+# joints whose limits exceed a turn; beyond this product the solver's output is not usable.
+MAX_EQUIVALENT_READINGS = 1000
 
 
 def load_arm(path: str | Path) -> Arm:
@@ -40,17 +57,12 @@ def load_arm(path: str | Path) -> Arm:
     path = Path(path)
     shown = str(path)
     try:
-        if not path.exists():
-            raise ArmFileError(shown, "", "file not found", "a path to an existing .toml or .json arm file")
-        if path.is_dir():
-            raise ArmFileError(shown, "", "is a directory", "an arm file (.toml or .json)")
-        raw = path.read_bytes()
-    except OSError as exc:  # permission denied, name too long, ...
-        raise ArmFileError(shown, "", f"cannot read the file: {exc.strerror or exc}",
-                           "a readable .toml or .json arm file") from None
+        raw = read_limited(path, ARM_FILE_LIMIT, "arm file (.toml or .json)")
+    except Unreadable as exc:
+        raise ArmFileError(shown, "", exc.problem, exc.expected) from None
     suffix = path.suffix.lower()
     if suffix not in (".toml", ".json"):
-        raise ArmFileError(shown, "", f"unknown file type '{path.suffix or '(none)'}'", "a .toml or .json file")
+        raise ArmFileError(shown, "", f"unknown file type {quote(path.suffix or '(none)')}", "a .toml or .json file")
     if not raw.strip():
         raise ArmFileError(shown, "", "the file is empty", "an arm description (see docs/arm-file.md)")
     if b"\x00" in raw:
@@ -97,7 +109,7 @@ def _parse_json(text: str, shown: str) -> dict:
         seen = set()
         for key, _ in pairs:
             if key in seen:
-                raise ArmFileError(shown, "", f"duplicate key '{key}' in one JSON object",
+                raise ArmFileError(shown, "", f"duplicate key {quote(key)} in one JSON object",
                                    "each key at most once per object")
             seen.add(key)
         return dict(pairs)
@@ -190,6 +202,8 @@ class _Reader:
         self.path = path
         self.locate = locate
         self.notes: list[str] = []
+        self.length_unit = "mm"       # set once [arm] is read; bounds are in the file's units
+        self.angle_unit = "deg"
 
     def fail(self, where: str, place: tuple, problem: str, expected: str | None = None, hint: str | None = None):
         raise ArmFileError(self.path, where, problem, expected, line=self.locate(place), hint=hint)
@@ -199,7 +213,7 @@ class _Reader:
             if key not in known:
                 close = difflib.get_close_matches(str(key), known, n=1, cutoff=0.5)
                 hint = f"did you mean '{close[0]}'?" if close else None
-                self.fail(where, place + (key,), f"unknown key '{key}'", "one of " + ", ".join(known), hint)
+                self.fail(where, place + (key,), f"unknown key {quote(key)}", "one of " + ", ".join(known), hint)
 
     def table(self, parent: dict, key: str, where: str, place: tuple, required: bool) -> dict | None:
         if key not in parent:
@@ -218,35 +232,59 @@ class _Reader:
             self.fail(where, place, f"missing field '{key}'", "one of " + ", ".join(options))
         value = table[key]
         if not isinstance(value, str):
-            self.fail(where, place + (key,), f"field '{key}' is {_a_kind(value)} ({value!r})",
+            self.fail(where, place + (key,), f"field '{key}' is {_a_kind(value)} ({clip(repr(value))})",
                       "a string, one of " + ", ".join(options))
         lookup = aliases or {o: o for o in options}
         if value.lower() not in lookup:
             close = difflib.get_close_matches(value.lower(), list(lookup), n=1, cutoff=0.5)
-            self.fail(where, place + (key,), f"unknown {key.replace('_', ' ')} '{value}'",
+            self.fail(where, place + (key,), f"unknown {key.replace('_', ' ')} {quote(value)}",
                       "one of " + ", ".join(lookup), f"did you mean '{close[0]}'?" if close else None)
         return lookup[value.lower()]
 
-    def number(self, table: dict, key: str, where: str, place: tuple, default=None) -> sp.Expr:
+    def number(self, table: dict, key: str, where: str, place: tuple, kind: str, default=None) -> sp.Expr:
+        """The exact value of ``table[key]``; ``kind`` ("length", "angle" or "plain") sets its bound."""
         if key not in table:
             if default is not None:
                 return default
             self.fail(where, place, f"missing field '{key}'", "a number")
-        return self.value(table[key], f"field '{key}'", where, place + (key,))
+        return self.value(table[key], f"field '{key}'", where, place + (key,), kind)
 
-    def value(self, raw, what: str, where: str, place: tuple) -> sp.Expr:
+    def value(self, raw, what: str, where: str, place: tuple, kind: str) -> sp.Expr:
         try:
-            return parse_exact(raw)
+            value = parse_exact(raw)
         except NotANumber as exc:
             self.fail(where, place, f"{what}: {exc}",
                       "a finite number, or a string such as \"pi/2\" using numbers, pi, + - * / and parentheses")
+        bound, expected = self.bound(kind)
+        if abs(value) > bound:
+            shown = quote(raw) if isinstance(raw, str) else quote(repr(raw))
+            if isinstance(raw, str) or len(shown) > 20:     # an expression, or too many digits to read
+                shown += f" ({_magnitude(value)})"
+            self.fail(where, place, f"{what} is {shown}, beyond the accepted size", expected)
+        return value
 
-    def vector(self, table: dict, key: str, size: int, where: str, place: tuple) -> list[sp.Expr]:
+    def bound(self, kind: str) -> tuple[sp.Expr, str]:
+        """The largest magnitude of a number of ``kind`` in this file's units, and its wording."""
+        if kind == "length":
+            limit = LENGTH_LIMITS[self.length_unit]
+            return limit, f"a length of at most {int(limit):,} {self.length_unit} (1 km) either way"
+        if kind == "angle":
+            limit = ANGLE_LIMITS[self.angle_unit]
+            shown = f"{int(limit):,}" if limit.is_Integer else str(limit)
+            return limit, f"an angle of at most {shown} {self.angle_unit} (100 turns) either way"
+        return PLAIN_LIMIT, f"a number of at most {PLAIN_LIMIT} either way"
+
+    def vector(self, table: dict, key: str, size: int, where: str, place: tuple, kind: str) -> list[sp.Expr]:
         raw = table[key]
         if not isinstance(raw, list) or len(raw) != size:
             found = f"a list of {len(raw)}" if isinstance(raw, list) else f"{_a_kind(raw)}"
             self.fail(where, place + (key,), f"field '{key}' is {found}", f"a list of {size} numbers")
-        return [self.value(v, f"field '{key}' item {i + 1}", where, place + (key,)) for i, v in enumerate(raw)]
+        return [self.value(v, f"field '{key}' item {i + 1}", where, place + (key,), kind) for i, v in enumerate(raw)]
+
+
+def _magnitude(value: sp.Expr) -> str:
+    """An exact value's size for a message: about 1.00e+600 (the exact digits may be thousands)."""
+    return "about " + str(sp.N(value, 3))
 
 
 def _kind(value) -> str:
@@ -270,10 +308,14 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
     description = arm_table.get("description", "")
     if not isinstance(description, str):
         reader.fail("[arm]", ("arm", "description"), f"field 'description' is {_a_kind(description)}", "a string")
+    if len(description) > MAX_DESCRIPTION:
+        reader.fail("[arm]", ("arm", "description"), f"field 'description' is {len(description):,} characters long",
+                    f"a description of at most {MAX_DESCRIPTION:,} characters")
     convention = reader.choice(arm_table, "convention", CONVENTIONS, "[arm]", ("arm",),
                                aliases=CONVENTION_ALIASES)
     length_unit = reader.choice(arm_table, "length_unit", LENGTH_UNITS, "[arm]", ("arm",))
     angle_unit = reader.choice(arm_table, "angle_unit", ANGLE_UNITS, "[arm]", ("arm",))
+    reader.length_unit, reader.angle_unit = length_unit, angle_unit
     angle_scale = sp.pi / 180 if angle_unit == "deg" else sp.Integer(1)
 
     if "joint" not in data:
@@ -300,9 +342,23 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
 
     base = _read_frame(reader, data, "base", angle_scale)
     tool = _read_frame(reader, data, "tool", angle_scale)
-    return Arm(name=name, description=description, convention=convention, length_unit=length_unit,
-               angle_unit=angle_unit, joints=tuple(joints), base=base, tool=tool, source=path,
-               digest=digest, notes=tuple(reader.notes))
+    arm = Arm(name=name, description=description, convention=convention, length_unit=length_unit,
+              angle_unit=angle_unit, joints=tuple(joints), base=base, tool=tool, source=path,
+              digest=digest, notes=tuple(reader.notes))
+    _check_equivalent_readings(reader, arm)
+    return arm
+
+
+def _check_equivalent_readings(reader: _Reader, arm: Arm) -> None:
+    """Refuse limits that would give every pose more solutions than anyone can use."""
+    counts = arm.equivalent_readings()
+    total = math.prod(counts)
+    if total > MAX_EQUIVALENT_READINGS:
+        wide = ", ".join(f"{j.label} {c}" for j, c in zip(arm.joints, counts) if c > 1)
+        reader.fail("joint limits", ("joint",),
+                    f"the limits allow {total:,} equivalent readings of every closed-form solution ({wide})",
+                    f"at most {MAX_EQUIVALENT_READINGS:,} in all (the product over the joints of the readings "
+                    "within the limits that give one joint angle): narrow the joints that turn more than once")
 
 
 def _read_name(reader: _Reader, table: dict, where: str, place: tuple, default: str | None) -> str:
@@ -314,9 +370,12 @@ def _read_name(reader: _Reader, table: dict, where: str, place: tuple, default: 
     if not isinstance(value, str) or not value.strip():
         found = f"{_a_kind(value)}" if not isinstance(value, str) else "an empty string"
         reader.fail(where, place + ("name",), f"field 'name' is {found}", "a non-empty string")
-    if not NAME_PATTERN.match(value):
-        reader.fail(where, place + ("name",), f"field 'name' {value!r} holds control characters or is too long",
-                    "a printable name of at most 64 characters")
+    if len(value) > MAX_NAME:
+        reader.fail(where, place + ("name",), f"field 'name' {quote(value)} is too long",
+                    f"a printable name of at most {MAX_NAME} characters")
+    if not value.isprintable():
+        reader.fail(where, place + ("name",), f"field 'name' {quote(value)} holds control characters "
+                    "(or other characters that are not printable)", f"a printable name of at most {MAX_NAME} characters")
     return value.strip()
 
 
@@ -328,7 +387,7 @@ def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: st
     kind = reader.choice(raw, "type", JOINT_KINDS, where, place)
 
     def angle(key: str, default=None):
-        value = reader.number(raw, key, where, place, default)
+        value = reader.number(raw, key, where, place, "angle", default)
         if angle_unit == "deg" and value.has(sp.pi):
             reader.fail(where, place + (key,), f"field '{key}' uses pi in an arm whose angles are in degrees",
                         "degrees (write 90, not \"pi/2\"), or angle_unit = \"rad\"")
@@ -338,20 +397,23 @@ def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: st
             reader.notes.append(f"{where}: {key} = {float(value)!r} rad read as {snapped}")
         return snapped
 
-    a = reader.number(raw, "a", where, place)
+    a = reader.number(raw, "a", where, place, "length")
     alpha = angle("alpha")
-    d = reader.number(raw, "d", where, place)
+    d = reader.number(raw, "d", where, place, "length")
     theta = angle("theta")
     if kind == "revolute":
         offset = angle("offset", sp.Integer(0))
     else:
-        offset = reader.number(raw, "offset", where, place, sp.Integer(0))
+        offset = reader.number(raw, "offset", where, place, "length", sp.Integer(0))
     direction = raw.get("direction", 1)
-    if isinstance(direction, bool) or direction not in (1, -1):
-        shown = json.dumps(direction) if isinstance(direction, (bool, int, float, str)) else _a_kind(direction)
-        reader.fail(where, place + ("direction",), f"field 'direction' is {shown}", "1 or -1")
+    if type(direction) is not int or direction not in (1, -1):   # not 1.0, not true
+        shown = (clip(json.dumps(direction)) if isinstance(direction, (bool, int, float, str))
+                 else _a_kind(direction))
+        if type(direction) is float:
+            shown += " (a decimal)"
+        reader.fail(where, place + ("direction",), f"field 'direction' is {shown}", "1 or -1 (an integer)")
     if "limits" in raw:
-        lower, upper = reader.vector(raw, "limits", 2, where, place)
+        lower, upper = reader.vector(raw, "limits", 2, where, place, "angle" if kind == "revolute" else "length")
         scale = angle_scale if kind == "revolute" else 1
         if lower >= upper:
             reader.fail(where, place + ("limits",), f"lower limit {lower} is not below upper limit {upper}",
@@ -373,7 +435,7 @@ def _read_frame(reader: _Reader, data: dict, key: str, angle_scale) -> sp.Immuta
     where = f"[{key}]"
     place = (key,)
     reader.check_keys(table, FRAME_KEYS, where, place)
-    translation = reader.vector(table, "translation", 3, where, place) if "translation" in table else [0, 0, 0]
+    translation = reader.vector(table, "translation", 3, where, place, "length") if "translation" in table else [0, 0, 0]
     rotation = sp.eye(3)
     if "rotation" in table:
         rotation = _read_rotation(reader, table["rotation"], f"[{key}.rotation]", place + ("rotation",),
@@ -405,10 +467,10 @@ def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale
         axes = table["axes"]
         if not isinstance(axes, str) or not re.fullmatch(r"[xyz]{3}", axes.lower()) or \
                 axes[0].lower() == axes[1].lower() or axes[1].lower() == axes[2].lower():
-            reader.fail(where, place + ("axes",), f"field 'axes' is {axes!r}",
+            reader.fail(where, place + ("axes",), f"field 'axes' is {quote(axes) if isinstance(axes, str) else _a_kind(axes)}",
                         "three letters of x, y, z with no two neighbours equal, such as \"xyz\" or \"zyz\"")
         frame = reader.choice(table, "frame", ("fixed", "moving"), where, place)
-        raw_angles = reader.vector(table, "angles", 3, where, place)
+        raw_angles = reader.vector(table, "angles", 3, where, place, "angle")
         if angle_scale != 1 and any(v.has(sp.pi) for v in raw_angles):
             reader.fail(where, place + ("angles",), "'angles' uses pi in an arm whose angles are in degrees",
                         "degrees (write 90, not \"pi/2\"), or angle_unit = \"rad\"")
@@ -425,7 +487,7 @@ def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale
             reader.fail(where, place, "missing field 'order' (the component order must be stated)",
                         "order = \"wxyz\" or \"xyzw\" (w is the scalar part)")
         order = reader.choice(table, "order", QUATERNION_ORDERS, where, place)
-        values = reader.vector(table, "quaternion", 4, where, place)
+        values = reader.vector(table, "quaternion", 4, where, place, "plain")
         w, x, y, z = values if order == "wxyz" else (values[3], values[0], values[1], values[2])
         norm = math.sqrt(float(w * w + x * x + y * y + z * z))
         if abs(norm - 1.0) > UNIT_TOLERANCE:
@@ -435,7 +497,7 @@ def _read_rotation(reader: _Reader, table, where: str, place: tuple, angle_scale
     rows = table["matrix"]
     if not isinstance(rows, list) or len(rows) != 3 or not all(isinstance(r, list) and len(r) == 3 for r in rows):
         reader.fail(where, place + ("matrix",), "field 'matrix' is not 3 rows of 3 numbers", "[[r11, r12, r13], [...], [...]]")
-    matrix = sp.Matrix([[reader.value(v, f"matrix row {r + 1}", where, place + ("matrix",)) for v in row]
+    matrix = sp.Matrix([[reader.value(v, f"matrix row {r + 1}", where, place + ("matrix",), "plain") for v in row]
                         for r, row in enumerate(rows)])
     numeric = sp.matrix2numpy(matrix, dtype=float)
     import numpy as np

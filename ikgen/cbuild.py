@@ -1,14 +1,19 @@
 """Compile a generated C solver into an importable Python extension with cffi (API mode).
 
-``compile_solver(arm)`` renders the C files, builds them into a temporary (or given) folder and
-returns a ``CSolver`` with the same functions as the generated Python module: ``forward(joints)``
-and ``inverse(pose, current=None)`` returning ``(joints, config, singular)`` tuples with the same
-labels and in the same order, plus ``inverse_many(poses)`` that loops in C over N poses.
+``compile_solver(arm)`` renders the C files, builds them in a scratch folder, puts the results in a
+temporary (or given) folder and returns a ``CSolver`` with the same functions as the generated
+Python module: ``forward(joints)`` and ``inverse(pose, current=None)`` returning ``(joints,
+config, singular)`` tuples with the same labels and in the same order, plus ``inverse_many(poses)``
+that loops in C over N poses. Beside the extension it writes a wrapper module that needs neither
+ikgen nor numpy (ikgen/cwrapper.py): ``ikgen compile`` tells users to import that one.
 """
 
 from __future__ import annotations
 
 import importlib.util
+import json
+import math
+import os
 import sys
 import tempfile
 from pathlib import Path
@@ -123,29 +128,55 @@ class CSolver:
 def compile_solver(arm: Arm, derivation: Derivation | None = None, scalar=c_backend.DOUBLE,
                    folder: str | Path | None = None, extra_compile_args: tuple = (),
                    extra_link_args: tuple = (), quiet: bool = True) -> CSolver:
-    """Render, compile and load the C solver of ``arm``; the build lives in ``folder`` (or a temp dir)."""
+    """Render, compile and load the C solver of ``arm``.
+
+    The build runs in a scratch folder that is removed afterwards; ``folder`` (created when
+    missing; a temporary folder when None) receives only the results, all or nothing: the C
+    source and header, the extension, and the wrapper ``<prefix>_c.py`` with its constants in
+    ``<prefix>_c.json`` (see ikgen/cwrapper.py). A relative ``folder`` is taken from the
+    current directory."""
     try:
         import cffi
     except ImportError as exc:  # pragma: no cover - cffi is a runtime dependency
         raise IkgenError("cffi is needed to build C extensions: pip install cffi") from exc
     derivation = derivation or derive_arm(arm)
-    folder = Path(folder) if folder else Path(tempfile.mkdtemp(prefix="ikgen-c-"))
-    folder.mkdir(parents=True, exist_ok=True)
+    folder = Path(folder).resolve() if folder else Path(tempfile.mkdtemp(prefix="ikgen-c-"))
+    names = c_backend.names(arm, scalar)
+    module_name = f"_{names['prefix']}_cffi"
+    with tempfile.TemporaryDirectory(prefix="ikgen-build-") as scratch:
+        library = _build(cffi, arm, derivation, scalar, Path(scratch).resolve(), module_name, extra_compile_args,
+                         extra_link_args, quiet)
+        files = {name: text for name, text in c_backend.render(arm, derivation, scalar).items()}
+        files[library.name] = library.read_bytes()
+        files.update(wrapper_files(arm, derivation, scalar, module_name))
+        from .generate import write
+        write(files, folder)
+    installed = folder / library.name
+    installed.chmod(installed.stat().st_mode | 0o111 & ~_umask())   # a shared object, like the linker makes it
+    spec = importlib.util.spec_from_file_location(module_name, installed)
+    module = importlib.util.module_from_spec(spec)
+    sys.modules.pop(module_name, None)
+    spec.loader.exec_module(module)
+    return CSolver(module, arm, derivation, scalar, folder)
+
+
+def _build(cffi, arm: Arm, derivation: Derivation, scalar, scratch: Path, module_name: str,
+           extra_compile_args: tuple, extra_link_args: tuple, quiet: bool) -> Path:
+    """Compile the solver in ``scratch`` (an absolute folder: cffi changes into it) and return
+    the extension's path there."""
     files = c_backend.render(arm, derivation, scalar)
     for name, text in files.items():
-        (folder / name).write_text(text, encoding="utf-8")
+        (scratch / name).write_text(text, encoding="utf-8")
     names = c_backend.names(arm, scalar)
-    from .backends.common import joint_turns, lower, max_solutions
+    from .backends.common import lower, max_solutions
     plan = lower(derivation)
     context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
                "conditions": len(plan.condition_blocks)}
     env = environment()
-    cdef = env.get_template("c_cffi_cdef.h.j2").render(**context)
-    glue = env.get_template("c_cffi_glue.c.j2").render(**context)
     ffi = cffi.FFI()
-    ffi.cdef(cdef)
-    module_name = f"_{names['prefix']}_cffi"
-    ffi.set_source(module_name, glue, sources=[str(folder / names["source"])], include_dirs=[str(folder)],
+    ffi.cdef(env.get_template("c_cffi_cdef.h.j2").render(**context))
+    ffi.set_source(module_name, env.get_template("c_cffi_glue.c.j2").render(**context),
+                   sources=[str(scratch / names["source"])], include_dirs=[str(scratch)],
                    extra_compile_args=["-O2", "-std=c99", *extra_compile_args],
                    extra_link_args=list(extra_link_args), libraries=["m"])
     try:
@@ -153,13 +184,40 @@ def compile_solver(arm: Arm, derivation: Derivation | None = None, scalar=c_back
             import contextlib
             import io
             with contextlib.redirect_stdout(io.StringIO()):
-                library = ffi.compile(tmpdir=str(folder), verbose=False)
+                library = ffi.compile(tmpdir=str(scratch), verbose=False)
         else:
-            library = ffi.compile(tmpdir=str(folder), verbose=True)
+            library = ffi.compile(tmpdir=str(scratch), verbose=True)
     except Exception as exc:  # the compiler's own message is the useful part
         raise IkgenError(f"compiling the C solver of '{arm.name}' failed: {exc}") from None
-    spec = importlib.util.spec_from_file_location(module_name, library)
-    module = importlib.util.module_from_spec(spec)
-    sys.modules.pop(module_name, None)
-    spec.loader.exec_module(module)
-    return CSolver(module, arm, derivation, scalar, folder)
+    return Path(library)
+
+
+def wrapper_files(arm: Arm, derivation: Derivation, scalar, module_name: str) -> dict[str, str]:
+    """The friendly wrapper (ikgen/cwrapper.py, copied unchanged) and its JSON constants: the
+    public constants of the generated Python solver, so that both modules state the same
+    names, labels and limits."""
+    from .backends import python as python_backend
+    from .backends.common import lower, max_solutions
+    from .generate import load_module
+    python_module = load_module(python_backend.render(arm, derivation), f"{module_name}_constants")
+    spec = {key: value for key, value in vars(python_module).items()
+            if key.isupper() and not key.startswith("_") and _plain(value)}
+    prefix = c_backend.names(arm, scalar)["prefix"]
+    spec.update(prefix=prefix, real=scalar.name, extension=module_name,
+                MAX_SOLUTIONS=max_solutions(arm, lower(derivation)))
+    source = Path(__file__).with_name("cwrapper.py").read_text(encoding="utf-8")
+    return {f"{prefix}_c.py": source,
+            f"{prefix}_c.json": json.dumps(spec, indent=1, ensure_ascii=True) + "\n"}
+
+
+def _plain(value) -> bool:
+    """True for values JSON keeps exactly: text, numbers, booleans and (nested) tuples of them."""
+    if isinstance(value, (str, int, float, bool)):
+        return not isinstance(value, float) or math.isfinite(value)
+    return isinstance(value, (tuple, list)) and all(_plain(v) for v in value)
+
+
+def _umask() -> int:
+    current = os.umask(0)
+    os.umask(current)
+    return current

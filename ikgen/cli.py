@@ -15,7 +15,8 @@ import numpy as np
 
 from . import __version__
 from .armsource import ARM_HELP, add_arm_source_options, load_arm_source
-from .errors import IkgenError
+from .errors import IkgenError, clip, printable, quote, safe_message
+from .exact import plain_decimal
 from .kinematics import NumericChain
 from .model import Arm
 from .rotations import matrix_to_fixed_xyz, matrix_to_quaternion
@@ -28,14 +29,14 @@ def parse_values(arm: Arm, raw: list[str], what: str = "joint values", minimum: 
     words = [w for item in raw for w in item.replace(",", " ").split()]
     values = []
     for position, word in enumerate(words, 1):
-        try:
-            value = float(word)
-        except ValueError:
-            raise IkgenError(f"{what}: value {position} '{word}' is not a number") from None
+        value = plain_decimal(word)
+        if value is None:
+            raise IkgenError(f"{what}: value {position} {quote(word)} is not a number; expected a decimal "
+                             "number such as 12.5 or -0.25")
         if not math.isfinite(value):
-            raise IkgenError(f"{what}: value {position} is {word}; expected a finite number")
+            raise IkgenError(f"{what}: value {position} is {clip(word)}; expected a finite number")
         if minimum is not None and value < minimum:
-            raise IkgenError(f"{what}: value {position} is {word}; expected a number >= {minimum:g}")
+            raise IkgenError(f"{what}: value {position} is {clip(word)}; expected a number >= {minimum:g}")
         values.append(value)
     if len(values) != arm.dof:
         raise IkgenError(f"{what}: got {len(values)} values, expected {arm.dof} "
@@ -67,8 +68,8 @@ def cmd_describe(args) -> int:
                   "modified": "modified (proximal) DH: A_i = Rx(alpha) Tx(a) Rz(theta) Tz(d)"}[arm.convention]
     out(f"arm          {arm.name}")
     if arm.description:
-        out(f"description  {arm.description}")
-    out(f"file         {arm.source}")
+        out(f"description  {printable(arm.description)}")
+    out(f"file         {printable(arm.source)}")
     out(f"convention   {convention}")
     out(f"units        lengths in {arm.length_unit}, angles in {arm.angle_unit}")
     out(f"joints       {arm.dof}")
@@ -133,8 +134,17 @@ def cmd_forward(args) -> int:
     return 0
 
 
+class Parser(argparse.ArgumentParser):
+    """argparse with its usage errors made safe to print: an option value of a million
+    characters or with control characters is shown cut and escaped (errors.safe_message)."""
+
+    def error(self, message: str):
+        self.print_usage(sys.stderr)
+        self.exit(2, f"{self.prog}: error: {safe_message(message, 400)}\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="ikgen",
         description="Closed-form inverse kinematics generator: reads an arm's DH table, derives every "
                     "closed-form solution, and writes standalone, verified solvers.")

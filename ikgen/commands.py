@@ -1,4 +1,4 @@
-"""The generation subcommands of ``ikgen``: generate (with --check) and verify."""
+"""The generation subcommands of ``ikgen``: generate (with --check), verify, explain, compile."""
 
 from __future__ import annotations
 
@@ -6,12 +6,54 @@ import argparse
 import os
 import sys
 import time
+from pathlib import Path
 
 from .armsource import ARM_HELP, add_arm_source_options, load_arm_source, load_arm_sources
-from .errors import VerificationError
+from .backends.common import identifier
+from .errors import PATH_LIMIT, IkgenError, VerificationError, clip, quote
+from .exact import plain_whole
 from .generate import build, build_report, load_module, stale, write
 from .terminal import err, fmt, out, table
-from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, Verification, verify
+from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, SOLUTION_BUDGET, Verification, verify, workload_note
+
+MAX_SAMPLES = 1_000_000     # verification samples (-n): beyond this the poses alone need gigabytes
+
+
+def warn_workload(arm) -> None:
+    """A warning up front when the arm's limits give very many solutions per pose."""
+    note = workload_note(arm)
+    if note:
+        err(f"warning: {note}")
+
+
+def load_checked(path: str, args=None):
+    """The arm of an arm file or URDF (see armsource.py), with the workload warning."""
+    arm = load_arm_source(path, args)
+    warn_workload(arm)
+    return arm
+
+
+def load_arms(paths: list[str], args=None) -> list:
+    """Every arm validated, and refused when two arms would write into one output folder
+    (names are reduced to letters, digits and _ for folder and file names: 'Arm 1' and 'arm-1'
+    are both arm_1), before anything is derived or written."""
+    arms = load_arm_sources(paths, args)
+    for arm in arms:
+        warn_workload(arm)
+    seen: dict[str, int] = {}
+    for index, arm in enumerate(arms):
+        folder = identifier(arm.name)
+        if folder in seen:
+            first = seen[folder]
+            same = Path(paths[first]).resolve() == Path(paths[index]).resolve()
+            raise IkgenError(
+                f"{clip(paths[first], PATH_LIMIT)} and {clip(paths[index], PATH_LIMIT)}: "
+                + ("the same file is named twice" if same else
+                   f"the arm names {quote(arms[first].name)} and {quote(arm.name)} both give the output "
+                   f"folder '{folder}'")
+                + "; expected arms whose names differ in their letters or digits (nothing was written)")
+        seen[folder] = index
+    return arms
 
 
 def write_or_check(results: list, out_dir: str, check: bool, what: str, fresh: str, describe) -> int:
@@ -44,16 +86,30 @@ def timed(make, arm):
 
 
 def cmd_generate(args) -> int:
-    arms = load_arm_sources(args.arms, args)             # every file validated before anything is written
+    arms = load_arms(args.arms, args)                         # every file validated before anything is written
     results = [timed(build, arm) for arm in arms]       # every arm derived before anything is written
     return write_or_check(results, args.out, args.check, "generated", "generation",
                           lambda r, seconds: f"{r.arm.name}: {r.derivation.family}, at most "
                                              f"{r.derivation.max_solutions} solutions, derived in {seconds:.2f} s")
 
 
+def count_summary(counts: dict, shown: int = 12) -> str:
+    """'count: samples' pairs, or, when there are many different counts, their range and the
+    most frequent ones."""
+    pairs = sorted(counts.items())
+    if len(pairs) <= shown:
+        return ", ".join(f"{k}: {v}" for k, v in pairs)
+    common = sorted(pairs, key=lambda kv: (-kv[1], kv[0]))[:3]
+    return (f"{len(pairs)} different counts from {pairs[0][0]} to {pairs[-1][0]}; most frequent "
+            + ", ".join(f"{k}: {v}" for k, v in common))
+
+
 def print_verification(report: Verification, unit: str) -> None:
     out(f"verification of '{report.arm}': {report.samples} samples (seed {report.seed}), {report.seconds:.1f} s")
-    counts = ", ".join(f"{k}: {v}" for k, v in sorted(report.counts.items()))
+    if report.requested > report.samples:
+        out(f"  ({report.samples:,} instead of the default {report.requested:,} samples: a pose can have up to "
+            f"{report.per_pose:,} solutions, and the default work is bounded; -n N runs N samples)")
+    counts = count_summary(report.counts)
     rows = [
         ["completeness", f"{report.complete}/{report.checked} ({100 * report.completeness:.2f} %)",
          "100 %", f"samples farther than {SINGULAR_DISTANCE:g} from the singular set"],
@@ -75,13 +131,15 @@ def print_verification(report: Verification, unit: str) -> None:
 
 
 def cmd_verify(args) -> int:
-    arm = load_arm_source(args.arm, args)
+    arm = load_checked(args.arm, args)
     result = build(arm)
     if args.out:
         for path in write(result.files, args.out):
             out(f"wrote {path}")
     module = load_module(result.files[result.python_path], result.folder + "_ik")
-    report = verify(arm, module, samples=args.samples, seed=args.seed, progress=not args.quiet and sys.stderr.isatty())
+    samples = args.samples or 10000
+    report = verify(arm, module, samples=samples, seed=args.seed, progress=not args.quiet and sys.stderr.isatty(),
+                    budget=None if args.samples else SOLUTION_BUDGET)
     print_verification(report, arm.length_unit)
     if not report.passed:
         raise VerificationError(f"the generated solver for '{arm.name}' failed verification")
@@ -89,7 +147,7 @@ def cmd_verify(args) -> int:
 
 
 def cmd_explain(args) -> int:
-    arms = load_arm_sources(args.arms, args)             # every file validated before anything is written
+    arms = load_arms(args.arms, args)                         # every file validated before anything is written
     results = [timed(build_report, arm) for arm in arms]  # every report rendered before anything is written
     return write_or_check(results, args.out, args.check, "report", "rendering",
                           lambda r, seconds: f"{r.arm.name}: derivation report rendered in {seconds:.2f} s")
@@ -98,27 +156,35 @@ def cmd_explain(args) -> int:
 def cmd_compile(args) -> int:
     from .backends.c import DOUBLE, FLOAT
     from .cbuild import compile_solver
-    arm = load_arm_source(args.arm, args)
+    arm = load_checked(args.arm, args)
     scalar = FLOAT if args.float else DOUBLE
     started = time.perf_counter()
     solver = compile_solver(arm, scalar=scalar, folder=args.out)
     out(f"{arm.name}: compiled the {scalar.name} C solver in {time.perf_counter() - started:.1f} s")
-    for path in sorted(solver.folder.glob("*")):
-        if path.suffix in (".so", ".pyd", ".c", ".h"):
-            out(f"  {path}")
-    module = f"_{solver.prefix}_cffi"
-    out(f"use it from Python: sys.path.insert(0, '{args.out}'); from {module} import lib "
-        f"(lib.{solver.prefix}_inverse ...), or ikgen.cbuild.compile_solver() for a ready wrapper")
+    wrapper = f"{solver.prefix}_c"
+    for path in sorted(solver.folder.iterdir()):
+        if path.name.startswith((solver.prefix, f"_{solver.prefix}_cffi")):
+            out(f"  wrote {path}")
+    out("use it from Python (the same forward, inverse and nearest as the generated Python solver, solving in C):")
+    out(f"  import sys; sys.path.insert(0, {str(solver.folder)!r}); import {wrapper} as ik")
     return 0
 
 
 def positive(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{value} is not at least 1")
+    """A -n value: a whole number from 1 to MAX_SAMPLES."""
+    value = plain_whole(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{quote(text)} is not a whole number")
+    if not 1 <= value <= MAX_SAMPLES:
+        raise argparse.ArgumentTypeError(f"{value} is not between 1 and {MAX_SAMPLES:,}")
+    return value
+
+
+def seed(text: str) -> int:
+    """A --seed value: a whole number from 0 to 2**63 - 1."""
+    value = plain_whole(text)
+    if value is None or not 0 <= value < 2 ** 63:
+        raise argparse.ArgumentTypeError(f"{quote(text)} is not a whole number from 0 to {2 ** 63 - 1}")
     return value
 
 
@@ -139,8 +205,10 @@ def add_generation_commands(sub) -> None:
                                    "the limits: completeness, round-trip error, solution counts, unreachable "
                                    "and singular poses. Exits 4 when a threshold fails.")
     p.add_argument("arm", help=ARM_HELP)
-    p.add_argument("-n", "--samples", type=positive, default=10000, help="random samples (default 10000)")
-    p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    p.add_argument("-n", "--samples", type=positive, default=None,
+                   help="random samples (default 10000, fewer when the arm's limits give very many solutions "
+                        "per pose)")
+    p.add_argument("--seed", type=seed, default=2026, help="random seed (default 2026)")
     p.add_argument("-o", "--out", default=None, help="also write the generated files to this folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress display")
     add_arm_source_options(p)

@@ -1,18 +1,30 @@
-"""Exact numbers from arm files.
+"""Numbers from user text: exact numbers from arm files, strict decimals from words.
 
 Values the user writes are turned into exact sympy numbers so that the symbolic model keeps
 structure: ``alpha = 90`` (degrees) becomes ``pi/2`` and its cosine is exactly 0, never 6.1e-17.
 A decimal literal is read as the exact decimal it shows (``0.1`` is 1/10). Strings may hold a
 small arithmetic expression with ``pi`` (``"pi/2"``, ``"-3*pi/4"``, ``"1/3"``); nothing else is
-evaluated, so an arm file can never run code.
+evaluated, so an arm file can never run code, and every intermediate value of an expression is
+bounded in size (``MAX_BITS``) so that none can make exact arithmetic slow.
+
+Words on the command line and fields of path files are read by ``plain_decimal`` and
+``plain_whole``: plain decimal numbers only (Python's ``float`` and ``int`` would also take
+``3_60`` as 360, and digits of other scripts).
 """
 
 from __future__ import annotations
 
 import ast
 import math
+import re
 
 import sympy as sp
+
+from .errors import quote
+
+MAX_BITS = 4096   # numerator and denominator of an expression's intermediate values (about 1233 digits)
+_DECIMAL = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+_WHOLE = re.compile(r"[+-]?[0-9]+")
 
 _ALLOWED_BINOPS = {ast.Add: lambda a, b: a + b, ast.Sub: lambda a, b: a - b,
                    ast.Mult: lambda a, b: a * b, ast.Div: lambda a, b: a / b}
@@ -47,7 +59,7 @@ def parse_exact(value) -> sp.Expr:
         try:
             tree = ast.parse(text, mode="eval")
         except (SyntaxError, ValueError):
-            raise NotANumber(f"{value!r} is not an arithmetic expression") from None
+            raise NotANumber(f"{quote(value)} is not an arithmetic expression") from None
         except (RecursionError, MemoryError):  # pathologically deep nesting such as 100000 minus signs
             raise NotANumber(f"the expression ({len(text)} characters) is nested too deeply") from None
         try:
@@ -56,12 +68,12 @@ def parse_exact(value) -> sp.Expr:
             raise NotANumber(f"the expression ({len(text)} characters) is nested too deeply") from None
     if value is None:
         raise NotANumber("null (no value) is not a number")
-    raise NotANumber(f"{type(value).__name__} {value!r} is not a number")
+    raise NotANumber(f"{type(value).__name__} {quote(repr(value))} is not a number")
 
 
 def _evaluate(node: ast.AST, source: str) -> sp.Expr:
     if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
-        return parse_exact(node.value)
+        return _bounded(parse_exact(node.value), source)
     if isinstance(node, ast.Name) and node.id == "pi":
         return sp.pi
     if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
@@ -70,9 +82,41 @@ def _evaluate(node: ast.AST, source: str) -> sp.Expr:
     if isinstance(node, ast.BinOp) and type(node.op) in _ALLOWED_BINOPS:
         left, right = _evaluate(node.left, source), _evaluate(node.right, source)
         if isinstance(node.op, ast.Div) and right == 0:
-            raise NotANumber(f"{source!r} divides by zero")
-        return _ALLOWED_BINOPS[type(node.op)](left, right)
-    raise NotANumber(f"{source!r} may only use numbers, pi, + - * / and parentheses")
+            raise NotANumber(f"{quote(source)} divides by zero")
+        return _bounded(_ALLOWED_BINOPS[type(node.op)](left, right), source)
+    raise NotANumber(f"{quote(source)} may only use numbers, pi, + - * / and parentheses")
+
+
+def _bounded(value: sp.Expr, source: str) -> sp.Expr:
+    """``value``, unless one of its exact fractions needs more than MAX_BITS bits: far beyond
+    the range and precision of a double, such a value would only make exact arithmetic slow."""
+    for number in value.atoms(sp.Rational):
+        if max(abs(number.p).bit_length(), number.q.bit_length()) > MAX_BITS:
+            raise NotANumber(f"{quote(source)} reaches an exact value of more than 1,200 digits")
+    return value
+
+
+def plain_decimal(text: str) -> float | None:
+    """The float of a plain decimal number ("12", "-0.25", "1e-3", ".5"), or None when ``text``
+    is something else. Words that Python reads as NaN or infinity ("nan", "inf", "1e400") give
+    that value, so the caller can say it is not finite; "3_60", "0x10" and digits of other
+    scripts give None."""
+    text = text.strip()
+    if _DECIMAL.fullmatch(text):
+        return float(text)
+    try:
+        value = float(text)
+    except (ValueError, OverflowError):
+        return None
+    return value if not math.isfinite(value) else None
+
+
+def plain_whole(text: str) -> int | None:
+    """The int of a plain whole number ("12", "-3"; at most 18 digits), or None."""
+    text = text.strip()
+    if _WHOLE.fullmatch(text) and len(text.lstrip("+-")) <= 18:
+        return int(text)
+    return None
 
 
 def snap_radians(value: sp.Expr) -> sp.Expr:

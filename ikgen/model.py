@@ -91,6 +91,23 @@ class Arm:
         """(dof, 2) array of limits in the user's reading units."""
         return np.array([j.limits for j in self.joints]) / self.reading_scales()[:, None]
 
+    def equivalent_readings(self) -> list[int]:
+        """Per joint, at most how many readings within its limits give one DH joint angle: 1 for a
+        prismatic joint or a revolute range of at most one turn, else the whole turns the range
+        holds plus one. Every closed-form solution of a pose comes back once per combination,
+        so a pose can have up to the product of these times the closed-form solutions. (The
+        rule of the generated solvers' turn tables, backends.common.joint_turns.)"""
+        counts = []
+        for joint, (low, high) in zip(self.joints, self.limits_in_readings()):
+            if not joint.revolute:
+                counts.append(1)
+                continue
+            turn = 360.0 if self.angle_unit == "deg" else 2 * math.pi
+            span = float(high - low)
+            eps = 1e-9 * max(1.0, span)
+            counts.append(int((span + 2 * eps) // turn) + 1 if span > turn * (1 + 1e-9) else 1)
+        return counts
+
     def reach_scale(self) -> float:
         """A length that sets the arm's scale: the sum of |a| and |d| over the chain, plus base and tool offsets."""
         total = sum(abs(float(j.a)) + abs(float(j.d)) + (abs(float(j.offset)) if not j.revolute else 0.0)

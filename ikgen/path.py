@@ -33,7 +33,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import IkgenError
+from .errors import PATH_LIMIT, IkgenError, clip, quote
+from .exact import plain_decimal
+from .files import Unreadable, read_limited
 from .rotations import matrix_to_quaternion
 
 POSITION_COLUMNS = ("x", "y", "z")
@@ -41,6 +43,7 @@ QUATERNION_COLUMNS = ("qw", "qx", "qy", "qz")
 COLUMNS = POSITION_COLUMNS + QUATERNION_COLUMNS
 UNIT_TOLERANCE = 1e-3           # how far from 1 a quaternion's length may be (it is normalised after)
 MAX_POSES = 100_000             # a larger path is refused (solving runs at Python speed)
+PATH_FILE_LIMIT = 32 << 20      # bytes of a path file (32 MiB: 100,000 rows of 7 long numbers and comments)
 SINGULAR_THRESHOLD = 0.01       # default: a conditioning measure below this is "near a singularity"
 CROSSING_WINDOW = 0.1           # a sign change is a crossing when the measure gets below this between steps
 REFINE = 32                     # poses checked between two steps to tell a crossing from a renamed label
@@ -77,7 +80,8 @@ class PathFileError(IkgenError):
                  where: str | None = None, hint: str | None = None):
         self.path, self.problem, self.expected = path, problem, expected
         self.line, self.where, self.hint = line, where, hint
-        text = path if line is None else f"{path}:{line}"
+        shown = clip(path, PATH_LIMIT)
+        text = shown if line is None else f"{shown}:{line}"
         if where:
             text += f": {where}"
         text += f": {problem}"
@@ -203,13 +207,9 @@ def read_path_file(path: str | Path, length_unit: str | None = None) -> PathFile
     path = Path(path)
     shown = str(path)
     try:
-        if not path.exists():
-            raise PathFileError(shown, "file not found", "a path to an existing path file (.csv)")
-        if path.is_dir():
-            raise PathFileError(shown, "is a directory", "a path file (.csv)")
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise PathFileError(shown, f"cannot read the file: {exc.strerror or exc}", "a readable path file") from None
+        raw = read_limited(path, PATH_FILE_LIMIT, "path file (.csv)")
+    except Unreadable as exc:
+        raise PathFileError(shown, exc.problem, exc.expected) from None
     if b"\x00" in raw:
         raise PathFileError(shown, "the file holds binary data (NUL bytes)", "a UTF-8 text file")
     try:
@@ -248,19 +248,18 @@ def parse_path_text(text: str, shown: str = "<path>", length_unit: str | None = 
             where = f"column '{name}' (field {index + 1})"
             if not word:
                 raise PathFileError(shown, "empty field", "a number", line=number, where=where)
-            try:
-                value = float(word)
-            except ValueError:
-                raise PathFileError(shown, f"'{word}' is not a number", "a decimal number such as 12.5 or -0.25",
-                                    line=number, where=where) from None
+            value = plain_decimal(word)
+            if value is None:
+                raise PathFileError(shown, f"{quote(word)} is not a number", "a decimal number such as 12.5 or -0.25",
+                                    line=number, where=where)
             if not math.isfinite(value):
-                raise PathFileError(shown, f"'{word}' is not a finite number", "a finite decimal number",
+                raise PathFileError(shown, f"{quote(word)} is not a finite number", "a finite decimal number",
                                     line=number, where=where)
             values[name] = value
         quaternion = np.array([values[c] for c in QUATERNION_COLUMNS])
         norm = float(np.linalg.norm(quaternion))
         if abs(norm - 1.0) > UNIT_TOLERANCE:
-            shown_q = ", ".join(fields[header[c]] for c in QUATERNION_COLUMNS)
+            shown_q = ", ".join(clip(fields[header[c]], 24) for c in QUATERNION_COLUMNS)
             raise PathFileError(shown, f"the quaternion ({shown_q}) has length {norm:.6g}",
                                 f"a unit quaternion (length 1 within {UNIT_TOLERANCE:g})", line=number,
                                 where="columns qw, qx, qy, qz")
@@ -280,29 +279,25 @@ def parse_path_text(text: str, shown: str = "<path>", length_unit: str | None = 
 
 def _read_header(fields: list[str], shown: str, number: int, length_unit: str | None):
     expected = "a header line naming the columns x, y, z, qw, qx, qy, qz (in any order)"
-    try:
-        float(fields[0])
-    except ValueError:
-        pass
-    else:
-        raise PathFileError(shown, f"the first line holds numbers ('{fields[0]}'), not column names",
+    if plain_decimal(fields[0]) is not None:
+        raise PathFileError(shown, f"the first line holds numbers ({quote(fields[0])}), not column names",
                             expected, line=number)
     header, units = {}, {}
     for index, word in enumerate(fields):
         name, unit = _column_name(word)
         where = f"header field {index + 1}"
         if name not in COLUMNS:
-            raise PathFileError(shown, f"unknown column '{word}'", "one of " + ", ".join(COLUMNS), line=number,
+            raise PathFileError(shown, f"unknown column {quote(word)}", "one of " + ", ".join(COLUMNS), line=number,
                                 where=where, hint=_closest(name, COLUMNS))
         if name in header:
             raise PathFileError(shown, f"column '{name}' is named twice", "each column once", line=number,
                                 where=where)
         if unit is not None:
             if name not in POSITION_COLUMNS:
-                raise PathFileError(shown, f"column '{name}' has a unit [{unit}]",
+                raise PathFileError(shown, f"column '{name}' has a unit [{clip(unit)}]",
                                     "no unit on quaternion columns (they are pure numbers)", line=number, where=where)
             if unit not in ("m", "mm"):
-                raise PathFileError(shown, f"unknown length unit [{unit}]", "[m] or [mm]", line=number, where=where)
+                raise PathFileError(shown, f"unknown length unit [{clip(unit)}]", "[m] or [mm]", line=number, where=where)
             if length_unit is not None and unit != length_unit:
                 raise PathFileError(shown, f"column '{name}' is in [{unit}] but the arm's lengths are in "
                                     f"{length_unit}", f"positions in {length_unit} (convert the file, or "

@@ -19,7 +19,8 @@ import numpy as np
 
 from .armsource import ARM_HELP, add_arm_source_options, load_arm_source
 from .cli import parse_values, warn_outside_limits
-from .errors import IkgenError
+from .errors import PATH_LIMIT, IkgenError, clip, quote
+from .exact import plain_decimal, plain_whole
 from .generate import write
 from .model import Arm
 from .path import (CHANGE_NEEDED, CONFIGURATION_CHANGE, CROSSES_SINGULARITY, LABEL_CHANGE, LARGE_STEP,
@@ -27,6 +28,7 @@ from .path import (CHANGE_NEEDED, CONFIGURATION_CHANGE, CROSSES_SINGULARITY, LAB
                    MAX_POSES, NEAR_SINGULARITY, OUTSIDE_LIMITS, SINGULAR_THRESHOLD, STOPPED,
                    PathResult, describe_config, polyline, pose_quaternion, read_path_file, solve_path)
 from .terminal import err, fmt, out, table
+from .verify import workload_note
 
 EXIT_INCOMPLETE = 1     # the path was solved and written, but not every step is solved
 
@@ -44,22 +46,22 @@ def solver_module(arm: Arm):
 # -------------------------------------------------------------------------- option values
 
 def line_steps(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
+    value = plain_whole(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{quote(text)} is not a whole number")
     if value < 2:
         raise argparse.ArgumentTypeError(f"{value} is less than 2 (a line's poses include both ends)")
+    if value > MAX_POSES:
+        raise argparse.ArgumentTypeError(f"{value} is more than {MAX_POSES} (the most poses of a path)")
     return value
 
 
 def non_negative(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+    value = plain_decimal(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{quote(text)} is not a number")
     if not (math.isfinite(value) and value >= 0):
-        raise argparse.ArgumentTypeError(f"{text} is not a finite number >= 0")
+        raise argparse.ArgumentTypeError(f"{clip(text)} is not a finite number >= 0")
     return value
 
 
@@ -168,13 +170,22 @@ def plot_png(arm: Arm, result: PathResult, title: str) -> bytes:
 
 
 def check_output(path: str | None, option: str, suffix: str) -> Path | None:
+    """The output file ``path`` of ``option``, refused (before anything is computed) when it is a
+    directory, does not end in ``suffix``, or lies in a folder that does not exist: an output
+    never creates folders, so a typo in a folder name cannot scatter files."""
     if path is None:
         return None
     target = Path(path)
+    shown = f"{option} {clip(path, PATH_LIMIT)}"
     if target.is_dir():
-        raise IkgenError(f"{option} {path}: is a directory; expected a file name ending in {suffix}")
+        raise IkgenError(f"{shown}: is a directory; expected a file name ending in {suffix}")
     if target.suffix.lower() != suffix:
-        raise IkgenError(f"{option} {path}: the name does not end in {suffix}; expected a {suffix} file name")
+        raise IkgenError(f"{shown}: the name does not end in {suffix}; expected a {suffix} file name")
+    folder = target.parent
+    if not folder.is_dir():
+        found = "is not a folder" if folder.exists() else "does not exist"
+        raise IkgenError(f"{shown}: the folder {quote(str(folder), PATH_LIMIT)} {found}; expected a file in an "
+                         "existing folder (create the folder first)")
     return target
 
 
@@ -269,6 +280,9 @@ def origin_description(path_file, line: int | None) -> str:
 
 def cmd_path(args) -> int:
     arm = load_arm_source(args.arm, args)
+    note = workload_note(arm)
+    if note:
+        err(f"warning: {note}")
     start = parse_values(arm, [args.start], "--start")
     weights = parse_values(arm, [args.weights], "--weights", minimum=0.0) if args.weights else None
     if weights is not None and not weights.any():
@@ -281,7 +295,7 @@ def cmd_path(args) -> int:
     poses = path_file.poses
     if args.line is not None:
         if len(poses) < 2:
-            raise IkgenError(f"{args.pathfile}: --line needs at least two rows (start and end pose); the file "
+            raise IkgenError(f"{clip(args.pathfile, PATH_LIMIT)}: --line needs at least two rows (start and end pose); the file "
                              f"has {len(poses)}")
         total = (len(poses) - 1) * (args.line - 1) + 1
         if total > MAX_POSES:

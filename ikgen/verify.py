@@ -9,6 +9,11 @@ Checks, on seeded random joint vectors within the limits:
 - unreachable poses (far outside the workspace) give an empty list;
 - exactly singular poses (found by bisection on a configuration measure that changes sign there)
   give finite solutions that reproduce the pose.
+
+The work is bounded: an arm whose limits span several turns per joint can have thousands of
+solutions per pose (``Arm.equivalent_readings``), and every solve returns them all, so the
+samples are cut to keep samples x solutions per pose within ``SOLUTION_BUDGET``
+(``bounded_samples``); the result records both the samples asked for and those run.
 """
 
 from __future__ import annotations
@@ -27,6 +32,9 @@ from .rotations import rotation_angle_between
 SINGULAR_DISTANCE = 1e-6
 ROUND_TRIP_TOLERANCE = 1e-9     # relative to the length scale (position) and in radians (rotation)
 MATCH_TOLERANCE = 1e-6          # radians (or length-scale units) between source and solution
+SOLUTION_BUDGET = 2_000_000     # samples x the most solutions per pose, at most (about 10 s of solving)
+MIN_SAMPLES = 100               # the budget never cuts below this many samples
+MANY_SOLUTIONS = 64             # equivalent readings per closed-form solution from which users are told
 
 
 @dataclass
@@ -48,6 +56,8 @@ class Verification:
     worst_singular_rotation: float = 0.0
     failures: list = field(default_factory=list)
     seconds: float = 0.0
+    requested: int = 0                  # samples asked for (more than ``samples`` when the budget cut them)
+    per_pose: int = 0                   # the most solutions one pose can have (the solver's MAX_SOLUTIONS)
 
     @property
     def completeness(self) -> float:
@@ -97,14 +107,46 @@ def check_round_trip(chain: NumericChain, poses: np.ndarray, solutions: list) ->
     return pos, rot
 
 
-def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: bool = False) -> Verification:
-    """Verify the solver ``module`` (with ``inverse(pose, current)``) for ``arm``."""
+def most_solutions(arm: Arm, module) -> int:
+    """The most solutions one pose can have: the solver's MAX_SOLUTIONS when it states it, else
+    the equivalent readings of the arm's limits (times 1)."""
+    stated = getattr(module, "MAX_SOLUTIONS", None)
+    return int(stated) if isinstance(stated, int) and stated > 0 else math.prod(arm.equivalent_readings())
+
+
+def bounded_samples(samples: int, per_pose: int, budget: int | None = SOLUTION_BUDGET) -> int:
+    """``samples``, cut so that samples x ``per_pose`` stays within ``budget`` (never below
+    MIN_SAMPLES, never above ``samples``); ``budget=None`` cuts nothing."""
+    if budget is None:
+        return samples
+    return min(samples, max(MIN_SAMPLES, budget // max(per_pose, 1)))
+
+
+def workload_note(arm: Arm) -> str | None:
+    """A sentence for the user when the arm's limits give many solutions per pose, else None."""
+    counts = arm.equivalent_readings()
+    total = math.prod(counts)
+    if total < MANY_SOLUTIONS:
+        return None
+    wide = ", ".join(f"{j.index}" for j, c in zip(arm.joints, counts) if c > 1)
+    return (f"arm '{arm.name}': its joint limits allow {total:,} equivalent readings of every closed-form solution "
+            f"(joints {wide} span more than a turn), so one pose can have {total:,} times as many solutions, and "
+            f"every solve returns them all; solving is that much slower, and verification runs fewer samples "
+            f"(at most {SOLUTION_BUDGET:,} solutions in all)")
+
+
+def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: bool = False,
+           budget: int | None = SOLUTION_BUDGET) -> Verification:
+    """Verify the solver ``module`` (with ``inverse(pose, current)``) for ``arm`` on ``samples``
+    random joint vectors, cut to fit ``budget`` (see bounded_samples; None: no cut)."""
     started = time.perf_counter()
     chain = NumericChain(arm)
     rng = np.random.default_rng(seed)
     scale = arm.reach_scale()
+    per_pose = most_solutions(arm, module)
+    requested, samples = samples, bounded_samples(samples, per_pose, budget)
     result = Verification(arm=arm.name, samples=samples, seed=seed,
-                          position_tolerance=ROUND_TRIP_TOLERANCE * scale)
+                          position_tolerance=ROUND_TRIP_TOLERANCE * scale, requested=requested, per_pose=per_pose)
     readings = random_readings(arm, samples, rng)
     poses = chain.poses(readings)
     distance = jacobian_distance(chain, readings)

@@ -28,6 +28,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+
+import ikgen.files
 import sympy as sp
 from scipy.spatial.transform import Rotation
 
@@ -729,7 +731,7 @@ def test_non_utf8_file(tmp_path):
 
 def test_missing_file(tmp_path):
     path = tmp_path / "no_such_arm.toml"
-    check_message(load_error(path), path, ["file not found"], None, "an existing .toml or .json")
+    check_message(load_error(path), path, ["file not found"], None, "an existing arm file (.toml or .json)")
 
 
 def test_path_through_a_file_is_not_found(tmp_path):
@@ -751,18 +753,22 @@ def test_unsupported_extension(tmp_path, name):
 
 
 def test_file_name_too_long(tmp_path):
+    # The name is shown cut, with its length (a message never echoes a value of thousands of characters).
     path = tmp_path / ("a" * 5000 + ".toml")
-    check_message(load_error(path), path, ["cannot read the file"], None, "a readable")
+    error = load_error(path)
+    assert str(error).startswith(str(path)[:200] + "... (" + f"{len(str(path)):,}" + " characters): ")
+    assert "cannot read the file" in str(error) and "a readable" in error.expected
+    assert len(str(error)) < 400
 
 
 def test_unreadable_file(tmp_path, monkeypatch):
     # Permission bits do not stop root, so the denial is simulated at the read.
     path = write(tmp_path, BASE)
 
-    def deny(self):
-        raise PermissionError(13, "Permission denied", str(self))
+    def deny(*args):
+        raise PermissionError(13, "Permission denied", str(path))
 
-    monkeypatch.setattr(pathlib.Path, "read_bytes", deny)
+    monkeypatch.setattr(ikgen.files.os, "open", deny)
     check_message(load_error(path), path, ["cannot read the file", "Permission denied"], None, "a readable")
 
 
@@ -925,7 +931,9 @@ SUBPROCESS_CASES = [
     ("binary", lambda p: write(p, b"\x7fELF\x02\x01\x01\x00\x00\x00"), "binary data"),
     ("deep-expression", lambda p: write(p, in_joint(BASE, 1, "alpha = 90", 'alpha = "' + "-" * 100_000 + '1"')),
      "nested too deeply"),
-    ("huge-radian", lambda p: write(p, in_joint(sub(BASE, '"deg"', '"rad"'), 1, "alpha = 90", "alpha = 1e308")), None),
+    # a finite but huge number is refused at load time (it once overflowed in the derivation)
+    ("huge-radian", lambda p: write(p, in_joint(sub(BASE, '"deg"', '"rad"'), 1, "alpha = 90", "alpha = 1e308")),
+     "beyond the accepted size"),
 ]
 
 

@@ -18,6 +18,7 @@ import sympy as sp
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from ikgen.errors import quote
 from ikgen.exact import NotANumber, exact_from_float, parse_exact, snap_radians
 
 
@@ -156,7 +157,7 @@ def test_non_numbers_are_rejected(value, fragment):
 def test_disallowed_expressions_are_rejected(text):
     with pytest.raises(NotANumber) as info:
         parse_exact(text)
-    assert repr(text) in str(info.value) or "finite" in str(info.value)
+    assert quote(text) in str(info.value) or "finite" in str(info.value)
 
 
 @pytest.mark.parametrize("text, fragment", [

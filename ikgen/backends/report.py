@@ -543,8 +543,11 @@ def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
 
 
 def markdown_text(text) -> str:
-    """User or IR text safe in Markdown prose and table cells."""
+    """User or IR text safe in Markdown prose and table cells. A '<' that could open an HTML tag,
+    comment or autolink (a letter, '/', '!' or '?' follows) becomes the entity &lt;, which every
+    Markdown flavour shows as text (not all of them honour a backslash before '<')."""
     text = re.sub(r"[\x00-\x1f\x7f]+", " ", str(text))
+    text = re.sub(r"<(?=[A-Za-z/!?])", "&lt;", text)
     return re.sub(r"([\\`*_\[\]<>|#$])", r"\\\1", text)
 
 

@@ -1,0 +1,169 @@
+"""A compiled C solver with the generated Python solver's API (forward, inverse, nearest).
+
+``ikgen compile ARM -o DIR`` copies this file, unchanged, into DIR as ``<arm>_ik_c.py`` (or
+``<arm>_ik_f32_c.py`` for the float build) beside the cffi extension it built and a JSON file
+of the same stem that holds the arm's constants. From Python, one line gives the solver:
+
+    import sys; sys.path.insert(0, "DIR"); import packer6_ik_c as ik
+
+and then ``ik.inverse(pose)``, ``ik.nearest(pose, current, config={"elbow": "up"})``,
+``ik.forward(joints)``, ``ik.distance``, ``ik.sort_nearest`` and the constants (JOINT_NAMES,
+LABEL_NAMES, LABEL_VALUES, CONDITION_NAMES, JOINT_LIMITS, MAX_SOLUTIONS, ...) behave as in the
+generated ``<arm>_ik.py``; the solving runs in C. Only the standard library and cffi's
+extension are needed at run time (not ikgen, not numpy). ``lib`` and ``ffi`` give the raw C
+functions.
+
+Inside the ikgen package this module binds nothing (there is no JSON file beside it).
+"""
+
+import importlib.machinery
+import importlib.util
+import json
+import math
+import os
+
+LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
+
+
+class Solution(tuple):
+    """(joints, config, singular, conditioning, within_limits), as in the generated Python solver."""
+
+    __slots__ = ()
+
+    @property
+    def joints(self):
+        return self[0]
+
+    @property
+    def config(self):
+        return self[1]
+
+    @property
+    def singular(self):
+        return self[2]
+
+    @property
+    def conditioning(self):
+        return self[3]
+
+    @property
+    def within_limits(self):
+        return self[4]
+
+
+def _load_extension(folder, name):
+    """The cffi extension module ``name`` from ``folder`` (found by file, so that the folder
+    need not be on sys.path)."""
+    for suffix in importlib.machinery.EXTENSION_SUFFIXES:
+        path = os.path.join(folder, name + suffix)
+        if os.path.isfile(path):
+            spec = importlib.util.spec_from_file_location(name, path)
+            module = importlib.util.module_from_spec(spec)
+            spec.loader.exec_module(module)
+            return module
+    raise ImportError(f"the compiled extension {name} is not in {folder}; run `ikgen compile` again")
+
+
+class CompiledSolver:
+    """The C functions of one compiled solver behind the Python solver's functions."""
+
+    def __init__(self, spec, extension):
+        self.ffi, self.lib = extension.ffi, extension.lib
+        self.spec = spec
+        prefix = spec["prefix"]
+        self.real = spec["real"]
+        self.dof = spec["JOINT_COUNT"]
+        self.most = spec["MAX_SOLUTIONS"]
+        self.labels = [tuple(values) for values in spec["LABEL_VALUES"]]
+        self.conditions = len(spec["CONDITION_NAMES"])
+        self.solution_type = f"{prefix}_solution"
+        self.status_type = f"{prefix}_status *"
+        self._forward = getattr(self.lib, f"{prefix}_forward")
+        self._inverse = getattr(self.lib, f"{prefix}_inverse")
+
+    def _array(self, values, size, what):
+        values = list(values)
+        if len(values) != size:
+            raise ValueError(f"{what} must hold {size} numbers, not {len(values)}")
+        return self.ffi.new(f"{self.real}[{size}]", [float(v) for v in values])
+
+    def _pose(self, pose):
+        rows = [list(row) for row in pose]
+        if len(rows) == 3:
+            rows.append([0.0, 0.0, 0.0, 1.0])
+        if len(rows) != 4 or any(len(row) != 4 for row in rows):
+            raise ValueError("pose must be a 4x4 (or 3x4) row-major homogeneous matrix")
+        return self._array([v for row in rows for v in row], 16, "pose")
+
+    def forward(self, joints):
+        pose = self.ffi.new(f"{self.real}[16]")
+        self._forward(self._array(joints, self.dof, "joints"), pose)
+        return [[float(pose[4 * r + c]) for c in range(4)] for r in range(4)]
+
+    def inverse(self, pose, current=None, limits="drop"):
+        if limits not in LIMIT_MODES:
+            raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
+        hint = self.ffi.NULL if current is None else self._array(current, self.dof, "current")
+        out = self.ffi.new(f"{self.solution_type}[{self.most}]")
+        status = self.ffi.new(self.status_type)
+        count = self._inverse(self._pose(pose), hint, LIMIT_MODES[limits], out, status)
+        return [self._solution(out[k]) for k in range(count)]
+
+    def _solution(self, raw):
+        joints = tuple(float(raw.joints[i]) for i in range(self.dof))
+        config = tuple(negative if raw.config & (1 << i) else positive
+                       for i, (positive, negative) in enumerate(self.labels))
+        conditioning = tuple(float(raw.conditioning[i]) for i in range(self.conditions))
+        return Solution((joints, config, bool(raw.singular), conditioning, bool(raw.within_limits)))
+
+
+def distance(a, b, weights=None):
+    """Weighted Euclidean distance between two joint vectors, in reading units."""
+    if weights is None:
+        return math.sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
+    return math.sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
+
+
+def sort_nearest(solutions, current, weights=None):
+    """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    return sorted(solutions, key=lambda s: distance(s[0], current, weights))
+
+
+def _matches(config, wanted, label_names):
+    if wanted is None:
+        return True
+    if isinstance(wanted, dict):
+        return all(config[label_names.index(name)] == value for name, value in wanted.items())
+    return all(w is None or w == c for c, w in zip(config, wanted))
+
+
+def _bind(namespace, spec_path):
+    """Fill ``namespace`` (this module's globals) with the solver described by ``spec_path``."""
+    with open(spec_path, encoding="utf-8") as stream:
+        spec = json.load(stream)
+    solver = CompiledSolver(spec, _load_extension(os.path.dirname(spec_path), spec["extension"]))
+    label_names = tuple(spec["LABEL_NAMES"])
+
+    def nearest(pose, current, weights=None, config=None, limits="drop"):
+        """The solution closest to ``current`` (of configuration ``config`` if given: a dict such
+        as {"elbow": "up"} or a sequence with None for 'any'), or None when there is none."""
+        best, best_distance = None, 0.0
+        for solution in solver.inverse(pose, current, limits):
+            if not _matches(solution[1], config, label_names):
+                continue
+            d = distance(solution[0], current, weights)
+            if best is None or d < best_distance:
+                best, best_distance = solution, d
+        return best
+
+    for key, value in spec.items():
+        if key.isupper():
+            namespace[key] = tuple(tuple(v) if isinstance(v, list) else v for v in value) \
+                if isinstance(value, list) else value
+    namespace.update(forward=solver.forward, inverse=solver.inverse, nearest=nearest, ffi=solver.ffi,
+                     lib=solver.lib, solver=solver)
+
+
+_SPEC = os.path.splitext(os.path.abspath(__file__))[0] + ".json"
+if os.path.isfile(_SPEC):      # a copy beside a compiled solver; ikgen's own copy binds nothing
+    _bind(globals(), _SPEC)
