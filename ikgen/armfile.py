@@ -361,6 +361,11 @@ def _check_equivalent_readings(reader: _Reader, arm: Arm) -> None:
                     "within the limits that give one joint angle): narrow the joints that turn more than once")
 
 
+def is_valid_name(text: str) -> bool:
+    """A name the arm file accepts: non-empty, printable, at most MAX_NAME characters."""
+    return bool(text and text.strip()) and len(text) <= MAX_NAME and text.isprintable()
+
+
 def _read_name(reader: _Reader, table: dict, where: str, place: tuple, default: str | None) -> str:
     if "name" not in table:
         if default is None:

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import sympy as sp
 
-from ..armfile import NAME_PATTERN
+from ..armfile import MAX_NAME, is_valid_name
 from ..errors import ArmFileError
 from ..kinematics import NumericChain
 from ..model import Arm, Joint
@@ -78,7 +78,7 @@ def joint_limits(joint: ChainJoint) -> tuple[float, float]:
 
 
 def make_joint(index: int, joint: ChainJoint, line: AxisLine, row, snapper: Snapper, shown_file: str) -> Joint:
-    if not NAME_PATTERN.match(joint.name):
+    if not is_valid_name(joint.name):
         raise ArmFileError(shown_file, f"joint '{joint.name[:64]}'", "the name is longer than 64 characters or "
                            "holds control characters", "a printable joint name of at most 64 characters",
                            line=joint.line)
@@ -119,8 +119,8 @@ def chain_notes(chain: Chain, moving: list[ChainJoint], lines: list[AxisLine]) -
 
 
 def arm_name(chain: Chain, shown_file: str) -> str:
-    name = "".join(c if c.isprintable() else "_" for c in chain.robot.strip())[:64].strip()
-    return name if NAME_PATTERN.match(name or "") else Path(shown_file).stem[:64]
+    name = "".join(c if c.isprintable() else "_" for c in chain.robot.strip())[:MAX_NAME].strip()
+    return name if is_valid_name(name) else Path(shown_file).stem[:MAX_NAME]
 
 
 def convert(chain: Chain, convention: str, shown_file: str) -> Converted:
