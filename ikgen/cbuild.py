@@ -23,7 +23,7 @@ import numpy as np
 from .backends import c as c_backend
 from .backends.common import environment
 from .errors import IkgenError
-from .families import derive_arm
+from .engine import derive as derive_arm
 from .ir import Derivation
 from .model import Arm
 
@@ -39,6 +39,8 @@ class CSolver:
         self.prefix = c_backend.names(arm, scalar)["prefix"]
         self.dtype = np.float64 if scalar.name == "double" else np.float32
         self.labels = [(l.positive, l.negative) for l in derivation.labels]
+        self.label_names = [l.name for l in derivation.labels]
+        self.LABEL_NAMES = tuple(self.label_names)      # as in the Python solver (verification reads it)
         from .backends.common import lower, max_solutions
         plan = lower(derivation)
         self.max_solutions = max_solutions(arm, plan)
@@ -75,7 +77,7 @@ class CSolver:
 
     def _tuple(self, solution) -> tuple:
         joints = tuple(float(solution.joints[i]) for i in range(self.dof))
-        config = tuple(negative if solution.config & (1 << i) else positive
+        config = tuple(positive if solution.labels[i] > 0 else negative
                        for i, (positive, negative) in enumerate(self.labels))
         conditioning = tuple(float(solution.conditioning[i]) for i in range(self.conditions))
         return (joints, config, bool(solution.singular), conditioning, bool(solution.within_limits))
@@ -87,13 +89,29 @@ class CSolver:
         count = self._inverse(self._pointer(flat), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
         return [self._tuple(self._solutions[k]) for k in range(count)]
 
-    def nearest(self, pose, current, weights=None, config_mask: int = 0, config_value: int = 0,
-                limits="drop") -> tuple | None:
+    def wanted(self, config) -> object:
+        """The C filter for a configuration: NULL for any, else +1/-1/0 per label. ``config`` as in
+        the Python solver: a dict {label name: value} or a sequence with None for 'any'."""
+        if config is None:
+            return self.ffi.NULL
+        signs = [0] * len(self.labels)
+        items = config.items() if isinstance(config, dict) else zip(self.label_names, config)
+        for name, value in items:
+            if value is None:
+                continue
+            index = self.label_names.index(name)
+            positive, negative = self.labels[index]
+            if value not in (positive, negative):
+                raise ValueError(f"label {name!r} takes {positive!r} or {negative!r}, not {value!r}")
+            signs[index] = 1 if value == positive else -1
+        return self.ffi.new("signed char[]", signs)
+
+    def nearest(self, pose, current, weights=None, config=None, limits="drop") -> tuple | None:
         flat = self._flat_pose(pose)
         here, _keep1 = self._joints_pointer(current)
         w, _keep2 = self._joints_pointer(weights)
         best = self.ffi.new(f"{self.prefix}_solution *")
-        found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), here, w, config_mask, config_value,
+        found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), here, w, self.wanted(config),
                                                             self.LIMIT_MODES[limits], best, self._status)
         return self._tuple(best[0]) if found else None
 
@@ -111,18 +129,18 @@ class CSolver:
         return int(self._status[0])
 
     def inverse_many(self, poses, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """(joints N x max x dof, counts N, config N x max, singular N x max) for N x 4 x 4 poses."""
+        """(joints N x max x dof, counts N, labels N x max x labels (+1/-1), singular N x max) for N x 4 x 4 poses."""
         poses = np.ascontiguousarray(np.asarray(poses, dtype=self.dtype).reshape(-1, 16))
         n = poses.shape[0]
         joints = np.zeros((n, self.max_solutions, self.dof), dtype=self.dtype)
         counts = np.zeros(n, dtype=np.int32)
-        config = np.zeros((n, self.max_solutions), dtype=np.uint32)
+        labels = np.zeros((n, self.max_solutions, max(len(self.labels), 1)), dtype=np.int8)
         singular = np.zeros((n, self.max_solutions), dtype=np.int32)
         self._many(n, self._pointer(poses), self.LIMIT_MODES[limits], self._pointer(joints),
                    self.ffi.cast("int *", self.ffi.from_buffer(counts)),
-                   self.ffi.cast("unsigned *", self.ffi.from_buffer(config)),
+                   self.ffi.cast("signed char *", self.ffi.from_buffer(labels)),
                    self.ffi.cast("int *", self.ffi.from_buffer(singular)))
-        return joints, counts, config, singular
+        return joints, counts, labels, singular
 
 
 def compile_solver(arm: Arm, derivation: Derivation | None = None, scalar=c_backend.DOUBLE,
@@ -171,7 +189,7 @@ def _build(cffi, arm: Arm, derivation: Derivation, scalar, scratch: Path, module
     from .backends.common import lower, max_solutions
     plan = lower(derivation)
     context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
-               "conditions": len(plan.condition_blocks)}
+               "conditions": len(plan.condition_blocks), "labels": max(len(plan.labels), 1)}
     env = environment()
     ffi = cffi.FFI()
     ffi.cdef(env.get_template("c_cffi_cdef.h.j2").render(**context))

@@ -6,7 +6,7 @@ of the same stem that holds the arm's constants. From Python, one line gives the
 
     import sys; sys.path.insert(0, "DIR"); import packer6_ik_c as ik
 
-and then ``ik.inverse(pose)``, ``ik.nearest(pose, current, config={"elbow": "up"})``,
+and then ``ik.inverse(pose)``, ``ik.nearest(pose, current, config={"elbow": "elbow_up"})``,
 ``ik.forward(joints)``, ``ik.distance``, ``ik.sort_nearest`` and the constants (JOINT_NAMES,
 LABEL_NAMES, LABEL_VALUES, CONDITION_NAMES, JOINT_LIMITS, MAX_SOLUTIONS, ...) behave as in the
 generated ``<arm>_ik.py``; the solving runs in C. Only the standard library and cffi's
@@ -111,7 +111,7 @@ class CompiledSolver:
 
     def _solution(self, raw):
         joints = tuple(float(raw.joints[i]) for i in range(self.dof))
-        config = tuple(negative if raw.config & (1 << i) else positive
+        config = tuple(positive if raw.labels[i] > 0 else negative
                        for i, (positive, negative) in enumerate(self.labels))
         conditioning = tuple(float(raw.conditioning[i]) for i in range(self.conditions))
         return Solution((joints, config, bool(raw.singular), conditioning, bool(raw.within_limits)))
@@ -146,7 +146,7 @@ def _bind(namespace, spec_path):
 
     def nearest(pose, current, weights=None, config=None, limits="drop"):
         """The solution closest to ``current`` (of configuration ``config`` if given: a dict such
-        as {"elbow": "up"} or a sequence with None for 'any'), or None when there is none."""
+        as {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
         best, best_distance = None, 0.0
         for solution in solver.inverse(pose, current, limits):
             if not _matches(solution[1], config, label_names):

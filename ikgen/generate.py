@@ -17,7 +17,7 @@ from pathlib import Path
 from .backends import batch as batch_backend, c as c_backend, common, python as python_backend
 from .backends import report as report_backend
 from .errors import IkgenError
-from .families import derive_arm
+from .engine import derive as derive_arm
 from .ir import Derivation
 from .model import Arm
 
@@ -43,10 +43,11 @@ def build(arm: Arm) -> Build:
     files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
              f"{folder}/{folder}_ik_batch.py": batch_backend.render(arm, derivation),
              f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
+    solver = load_module(files[f"{folder}/{folder}_ik.py"], f"{folder}_ik_for_selftest")
     for scalar in c_backend.SCALARS:
         for name, text in c_backend.render(arm, derivation, scalar).items():
             files[f"{folder}/{name}"] = text
-        name, text = c_backend.render_selftest(arm, derivation, scalar)
+        name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver)
         files[f"{folder}/{name}"] = text
     files.update(report_files(arm, derivation, files[f"{folder}/{folder}_ik.py"]))
     return Build(arm, derivation, files)

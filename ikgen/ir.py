@@ -1,20 +1,26 @@
 """The intermediate representation (IR) of a derivation: the closed-form solution as data.
 
-A ``Derivation`` is an ordered list of steps that every back-end (Python, C, report) walks in
-the same order. Each step computes named quantities from the pose inputs and from earlier
+A ``Derivation`` is an ordered list of steps that every back-end (Python, C, batch, report) walks
+in the same order. Each step computes named quantities from the pose inputs and from earlier
 steps, with sympy expressions in the symbols of the DH table (``a_2``, ``d_4`` ...):
 
 - ``Compute``: named intermediates (``name = expression``).
-- ``CosSinEquation``: one joint angle from ``a cos(th) + b sin(th) = c``; two solutions, a branch
-  point, a domain guard on the radicand, and a singular condition when ``a^2 + b^2`` vanishes.
-- ``LinearPair``: one joint angle from two equations linear in ``cos(th)`` and ``sin(th)``;
-  one solution; ordered alternatives when the first pair's determinant vanishes; the joint is
+- ``CosSinEquation``: one unknown angle from ``a cos(th) + b sin(th) = c``; two solutions, a
+  branch point, a domain guard on the radicand, and a singular condition when ``a^2 + b^2``
+  vanishes.
+- ``LinearPair``: one unknown angle from two equations linear in ``cos(th)`` and ``sin(th)``;
+  one solution; ordered alternatives when the first pair's determinant vanishes; the unknown is
   free (singular) when all do.
-- ``Label``: a geometric measure whose sign names a configuration (shoulder front/back ...).
+- ``AngleSum``: an angle that follows from angles already known (th4 = th234 - th2 - th3 for
+  parallel axes), its cosine and sine by the angle-sum rules.
+- ``CirclePolynomial``: one unknown angle from a polynomial of degree two in its cosine and sine
+  (a quartic in tan(th/2)), after eliminating another unknown; up to four solutions.
+- ``Label``: a geometric measure whose sign names a configuration.
 
-Every joint angle step yields the symbols ``c<j>``, ``s<j>`` (cosine and sine, carried so that
-later steps never call cos/sin again) and ``th<j>`` (the DH angle). Outputs turn DH angles into
-the user's joint readings. ``str(derivation)`` prints the whole thing for debugging.
+An unknown is named by a key: a joint's number (``"3"``) or a sum of joint angles (``"p234"``,
+see ``Derivation.unknowns``). Every angle step yields the symbols ``c<key>``, ``s<key>`` (cosine
+and sine, carried so that later steps never call cos/sin again) and ``th<key>`` (the angle).
+Outputs turn DH angles into the user's joint readings. ``str(derivation)`` prints the whole thing.
 """
 
 from __future__ import annotations
@@ -28,16 +34,17 @@ GUARD_TOLERANCE = 1e-9      # a radicand down to -2e-9 * (a^2+b^2) is clamped to
 SINGULAR_TOLERANCE = 1e-20  # a determinant (or a^2+b^2) below 1e-20 * its typical size: singular
 
 
-def cos_symbol(joint: int) -> sp.Symbol:
-    return sp.Symbol(f"c{joint}", real=True)
+def cos_symbol(key) -> sp.Symbol:
+    """The cosine of unknown ``key`` (a joint number or a sum key such as "p234")."""
+    return sp.Symbol(f"c{key}", real=True)
 
 
-def sin_symbol(joint: int) -> sp.Symbol:
-    return sp.Symbol(f"s{joint}", real=True)
+def sin_symbol(key) -> sp.Symbol:
+    return sp.Symbol(f"s{key}", real=True)
 
 
-def angle_symbol(joint: int) -> sp.Symbol:
-    return sp.Symbol(f"th{joint}", real=True)
+def angle_symbol(key) -> sp.Symbol:
+    return sp.Symbol(f"th{key}", real=True)
 
 
 @dataclass(frozen=True)
@@ -78,7 +85,7 @@ class Mirror:
     from the first with no atan2 at all (the wrist flip of an orthogonal wrist is the usual case).
     """
     kind: str                                   # "negate_sin" or "negate_cos"
-    parities: tuple[tuple[int, int], ...]       # (joint, +1 or -1) for the joints solved after it
+    parities: tuple[tuple[str, int], ...]       # (key, +1 or -1) for the unknowns solved after it
     label_signs: tuple[int, ...]                # per label: +1 same label, -1 the other one
 
     def describe(self) -> str:
@@ -89,8 +96,8 @@ class Mirror:
 
 @dataclass(frozen=True)
 class CosSinEquation:
-    """``a cos(th_j) + b sin(th_j) = c``: th_j = atan2(b c + s a r, a c - s b r) with r = sqrt(radicand)."""
-    joint: int
+    """``a cos(th) + b sin(th) = c``: th = atan2(b c + s a r, a c - s b r) with r = sqrt(radicand)."""
+    key: str
     a: sp.Expr
     b: sp.Expr
     c: sp.Expr
@@ -103,7 +110,7 @@ class CosSinEquation:
     mirror: "Mirror | None" = None
 
     def describe(self) -> list[str]:
-        lines = [f"  solve {self.a}*c{self.joint} + {self.b}*s{self.joint} = {self.c}   [{self.source}]",
+        lines = [f"  solve {self.a}*c{self.key} + {self.b}*s{self.key} = {self.c}   [{self.source}]",
                  f"    radicand {self.radicand} >= 0 (clamped within {GUARD_TOLERANCE:g} * norm)",
                  f"    branch '{self.branch.name}' sign {self.branch.sign}: {self.branch.meaning}",
                  (f"    singular when {self.singular.measure} < {self.singular.threshold:.3g}: {self.singular.rule}"
@@ -126,17 +133,58 @@ class PairForm:
 
 @dataclass(frozen=True)
 class LinearPair:
-    joint: int
+    key: str
     forms: tuple[PairForm, ...]
     singular: Singular
 
     def describe(self) -> list[str]:
-        lines = [f"  solve th{self.joint} from a linear pair in (c{self.joint}, s{self.joint}):"]
+        lines = [f"  solve th{self.key} from a linear pair in (c{self.key}, s{self.key}):"]
         for k, f in enumerate(self.forms):
             lines.append(f"    form {k + 1} [{f.source}]: c = ({f.cos_num})/det, s = ({f.sin_num})/det, "
                          f"det = {f.det} (singular below {f.threshold:.3g})")
         lines.append(f"    all singular: {self.singular.rule}")
         return lines
+
+
+@dataclass(frozen=True)
+class AngleSum:
+    """``th<key> = sum(coefficient * th<term>)`` over angles already known; its cosine and sine
+    follow from theirs by the angle-sum rules (no trigonometric call)."""
+    key: str
+    terms: tuple[tuple[str, int], ...]     # (key, +1 or -1)
+    purpose: str
+
+    def describe(self) -> list[str]:
+        total = " ".join(("+ " if k > 0 else "- ") + f"th{key}" for key, k in self.terms).lstrip("+ ")
+        return [f"  th{self.key} = {total}   [{self.purpose}]"]
+
+
+@dataclass(frozen=True)
+class CirclePolynomial:
+    """``k0 + kc c + ks s + kcs c s + kss s^2 = 0`` with (c, s) = (cos th, sin th): up to four roots.
+
+    It comes from two equations linear in the cosine and sine of another unknown (``eliminated``):
+    solving them for that pair and asking that its squares sum to one (the elimination of
+    Pieper's method; Craig, Introduction to Robotics, 3rd ed., sec. 4.6). The generated code finds
+    every real root on the circle (a quartic in tan((th - th0)/2), its real roots bracketed between
+    the roots of its derivatives), and accepts a tangency within ``tolerance`` of the coefficients'
+    size as a double root.
+    """
+    key: str
+    coefficients: tuple[sp.Expr, ...]      # k0, kc, ks, kcs, kss
+    branch: "BranchPoint"
+    singular: Singular                     # every coefficient ~0: the unknown is free
+    tolerance: float
+    eliminated: str
+    sources: tuple[str, str]
+
+    def describe(self) -> list[str]:
+        names = ("1", f"c{self.key}", f"s{self.key}", f"c{self.key}*s{self.key}", f"s{self.key}**2")
+        terms = " + ".join(f"({k})*{n}" for k, n in zip(self.coefficients, names))
+        return [f"  solve {terms} = 0   [eliminating th{self.eliminated} from: {self.sources[0]}; {self.sources[1]}]",
+                f"    up to four roots on the circle; a tangency within {self.tolerance:g} of the coefficients' size is a double root",
+                f"    branch '{self.branch.name}': {self.branch.meaning}",
+                f"    singular when every coefficient < {self.singular.threshold:.3g}: {self.singular.rule}"]
 
 
 @dataclass(frozen=True)
@@ -159,13 +207,14 @@ class JointOutput:
     scale: sp.Expr              # radians per reading unit
 
 
-Step = Compute | CosSinEquation | LinearPair
+Step = Compute | CosSinEquation | LinearPair | AngleSum | CirclePolynomial
+SOLVING_STEPS = (CosSinEquation, LinearPair, AngleSum, CirclePolynomial)
 
 
 @dataclass
 class Derivation:
     arm_name: str
-    family: str
+    family: str                             # the strategies that applied, in words
     analysis: list[str]                     # the structure analysis, in words
     pose_symbols: tuple[sp.Symbol, ...]     # r11 r12 r13 px r21 ... pz (row-major 3x4)
     parameters: dict[sp.Symbol, sp.Expr]    # DH symbols -> exact values
@@ -175,19 +224,24 @@ class Derivation:
     max_solutions: int
     length_scale: float
     notes: list[str] = field(default_factory=list)
+    unknowns: dict[str, tuple[tuple[int, int], ...]] = field(default_factory=dict)  # key -> (joint, sign)...
 
     def branch_points(self) -> list[BranchPoint]:
-        return [s.branch for s in self.steps if isinstance(s, CosSinEquation)]
+        return [s.branch for s in self.steps if isinstance(s, (CosSinEquation, CirclePolynomial))]
+
+    def solved_keys(self) -> list[str]:
+        return [s.key for s in self.steps if isinstance(s, SOLVING_STEPS)]
 
     def solved_joints(self) -> list[int]:
-        return [s.joint for s in self.steps if isinstance(s, (CosSinEquation, LinearPair))]
+        """The joints in the order they are found (sums of angles left out)."""
+        return [int(k) for k in self.solved_keys() if k.isdigit()]
 
     def __str__(self) -> str:
         lines = [f"derivation for '{self.arm_name}' ({self.family}); at most {self.max_solutions} solutions"]
         lines += [f"# {line}" for line in self.analysis]
         lines.append("parameters: " + ", ".join(f"{k} = {v}" for k, v in self.parameters.items()))
         for number, step in enumerate(self.steps, 1):
-            title = step.purpose if isinstance(step, Compute) else f"joint {step.joint}"
+            title = step.purpose if isinstance(step, Compute) else f"th{step.key}"
             lines.append(f"step {number}: {title}")
             lines += step.describe()
         for label in self.labels:

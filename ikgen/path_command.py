@@ -38,7 +38,7 @@ def solver_module(arm: Arm):
     source text ``ikgen generate`` writes as <arm>/<arm>_ik.py (generate.build renders it the same
     way; only the Python back-end is rendered here)."""
     from .backends import common, python as python_backend
-    from .families import derive_arm
+    from .engine import derive as derive_arm
     from .generate import load_module
     return load_module(python_backend.render(arm, derive_arm(arm)), common.identifier(arm.name) + "_ik")
 

@@ -25,6 +25,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .engine.chain import Chain as EngineChain
+from .engine.labels import elbow_orientation, numeric_measures
 from .kinematics import NumericChain
 from .model import Arm
 from .rotations import rotation_angle_between
@@ -214,51 +216,33 @@ def check_unreachable(arm: Arm, chain: NumericChain, module, rng, result: Verifi
 
 # ----------------------------------------------------------------------- singular poses
 
-def wrist_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
-    origins, _ = None, None
-    frames = chain.frames(readings)
-    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
-    z = chosen[:, :, :3, 2]
-    return np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 5]), z[:, 4])
+def dh_angles(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+    """DH joint angles (radians) of readings (N, dof): theta + offset + direction * reading."""
+    q = np.atleast_2d(np.asarray(readings, dtype=float)) * chain.scales
+    return chain.theta + chain.offset + chain.direction * q
 
 
-def wrist_centres(axis_frames: np.ndarray) -> np.ndarray:
-    """(N, 3): where axis 4 meets axis 5, from the frames whose z axes are the joint axes."""
-    o4, o5 = axis_frames[:, 3, :3, 3], axis_frames[:, 4, :3, 3]
-    z4, z5 = axis_frames[:, 3, :3, 2], axis_frames[:, 4, :3, 2]
-    b = np.einsum("ni,ni->n", z4, z5)
-    w0 = o4 - o5
-    d, e = np.einsum("ni,ni->n", z4, w0), np.einsum("ni,ni->n", z5, w0)
-    t = (b * e - d) / (1 - b * b)
-    return o4 + t[:, None] * z4
+def label_measure(name: str, oriented: bool = False):
+    """measure(chain, readings): the configuration label ``name`` measured on the forward
+    kinematics (engine/labels.py gives the definitions); zero on that branch's singular set.
+    ``oriented`` applies the arm's elbow orientation (only the sign of the elbow depends on it)."""
+    def measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
+        engine_chain = chain.__dict__.get("_label_chain")
+        if engine_chain is None:
+            engine_chain = chain.__dict__["_label_chain"] = EngineChain(chain.arm)
+            chain.__dict__["_elbow_sign"] = elbow_orientation(engine_chain) if oriented else 1
+        sign = chain.__dict__["_elbow_sign"] if oriented else 1
+        return numeric_measures(engine_chain, dh_angles(chain, readings), orientation=sign)[name]
+    return measure
 
 
-def shoulder_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
-    """Signed distance of the wrist centre from axis 1, along frame 1's x axis."""
-    frames = chain.frames(readings)
-    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
-    wrist = wrist_centres(chosen)
-    axis_point = chosen[:, 0, :3, 3]
-    x1 = frames[:, 1, :3, 0]
-    return np.einsum("ni,ni->n", wrist - axis_point, x1)
-
-
-def elbow_measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
-    """Signed distance of the wrist centre from the fully stretched (or folded) elbow: the
-    sine of the angle at the elbow between the upper arm and the forearm, times lengths."""
-    frames = chain.frames(readings)
-    chosen = frames[:, :-1] if chain.standard else frames[:, 1:]
-    z2 = chosen[:, 1, :3, 2]
-    shoulder, elbow = chosen[:, 1, :3, 3], chosen[:, 2, :3, 3]
-    wrist = wrist_centres(chosen)
-    upper = elbow - shoulder
-    fore = wrist - elbow
-    return np.einsum("ni,ni->n", np.cross(upper, fore), z2)
-
-
-SINGULAR_KINDS = (("wrist axes 4 and 6 aligned", wrist_measure, 4),
-                  ("wrist centre over axis 1 (front/back boundary)", shoulder_measure, 1),
-                  ("elbow fully stretched or folded", elbow_measure, 2))
+# What each label's singular set is, and which joints (0-based) move a pose onto it, in order of preference.
+SINGULAR_KINDS = {
+    "reach": ("wrist point on the reach boundary (reach_forward / reach_backward)", (1, 2, 0)),
+    "elbow": ("elbow fully stretched or folded", (2, 1)),
+    "wrist_bend": ("wrist axes 4 and 6 aligned", (4, 3, 5)),
+    "base_bend": ("axes 1 and 3 aligned", (1, 0, 2)),
+}
 
 
 def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None:
@@ -293,23 +277,34 @@ def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None
 
 
 def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verification, per_kind: int = 20):
-    for kind, measure, joint in SINGULAR_KINDS:
+    """Poses exactly on each label's singular set (found by bisection along a joint that crosses
+    it) give finite solutions that reproduce the pose."""
+    for name in getattr(module, "LABEL_NAMES", ("reach", "elbow", "wrist_bend")):
+        if name not in SINGULAR_KINDS:
+            continue
+        kind, joints = SINGULAR_KINDS[name]
+        measure = label_measure(name)
         tested = ok = 0
-        for _ in range(per_kind * 3):
+        for attempt in range(per_kind * 3):
             if tested >= per_kind:
                 break
             base = random_readings(arm, 1, rng)[0]
-            point = find_root(chain, measure, base, joint)
+            point = None
+            for joint in joints:
+                if joint < arm.dof:
+                    point = find_root(chain, measure, base, joint)
+                    if point is not None:
+                        break
             if point is None:
                 continue
             tested += 1
             pose = chain.pose(point)
             solutions = module.inverse(pose, list(point))
-            joints = [list(s[0]) for s in solutions]
-            if not joints or not np.all(np.isfinite(joints)):
+            found = [list(s[0]) for s in solutions]
+            if not found or not np.all(np.isfinite(found)):
                 continue
-            pos, rot = check_round_trip(chain, np.array([pose] * len(joints)), joints)
-            # At a singular pose the elbow's double root and the kept joint can cost accuracy:
+            pos, rot = check_round_trip(chain, np.array([pose] * len(found)), found)
+            # At a singular pose the double root and the kept joint can cost accuracy:
             # allow 1e3 times the regular round-trip tolerance.
             result.worst_singular_position = max(result.worst_singular_position, float(pos.max()))
             result.worst_singular_rotation = max(result.worst_singular_rotation, float(rot.max()))

@@ -17,12 +17,16 @@ from ikgen.armfile import arm_from_data, load_arm
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = ROOT / "examples"
+# the three spherical-wrist demos the first release shipped with
 DEMO_FILES = (EXAMPLES / "benchtop6.toml", EXAMPLES / "packer6.toml", EXAMPLES / "inspector6.json")
+# the demos of the structures the derivation engine added: three parallel axes (kitter6), a skewed
+# shoulder solved through a quartic (canted6), the first three axes meeting (gimbal6)
+STRUCTURE_DEMO_FILES = (EXAMPLES / "kitter6.toml", EXAMPLES / "canted6.toml", EXAMPLES / "gimbal6.toml")
 
 
 def demo_arm(stem: str):
-    """The demo arm ``stem`` ("benchtop6", "packer6", "inspector6") loaded from examples/."""
-    [path] = [p for p in DEMO_FILES if p.stem == stem]
+    """The demo arm ``stem`` ("benchtop6", "kitter6", ...) loaded from examples/."""
+    [path] = [p for p in sorted(EXAMPLES.glob(f"{stem}.*")) if p.suffix in (".toml", ".json")]
     return load_arm(path)
 
 

@@ -106,7 +106,7 @@ LONG_NAME = "n" * 100_000
 ARM_CASES = [
     # item 1: finite but huge numbers, refused at load time (exit 2, the line of the field)
     Case("a-1e308", {"arm.toml": arm_with("a = 25", "a = 1e308")}, generate("arm.toml"), 2,
-         ("arm.toml:15: joint 1 'waist': field 'a' is '1e+308'", "beyond the accepted size",
+         ("arm.toml:15: joint 1 'carousel': field 'a' is '1e+308'", "beyond the accepted size",
           "expected a length of at most 1,000,000 mm (1 km)"), output="out"),
     Case("a-overflowing-expression", {"arm.toml": arm_with("a = 25", 'a = "1e300*1e300"')}, generate("arm.toml"), 2,
          ("field 'a' is '1e300*1e300' (about 1.00e+600), beyond the accepted size",), output="out"),
@@ -145,11 +145,11 @@ ARM_CASES = [
     # item 7: long values are cut with their length, control characters escaped
     Case("name-100000", {"arm.toml": arm_with('name = "benchtop6"', f'name = "{LONG_NAME}"')}, describe(), 2,
          ("field 'name' 'nnnn", "(100,000 characters) is too long",)),
-    Case("name-bel", {"arm.toml": arm_with('name = "waist"', 'name = "wa\\u0007ist"')}, describe(), 2,
+    Case("name-bel", {"arm.toml": arm_with('name = "carousel"', 'name = "wa\\u0007ist"')}, describe(), 2,
          ("field 'name' 'wa\\x07ist' holds control characters",)),
-    Case("name-right-to-left-override", {"arm.toml": arm_with('name = "waist"', 'name = "wa\\u202eist"')},
+    Case("name-right-to-left-override", {"arm.toml": arm_with('name = "carousel"', 'name = "wa\\u202eist"')},
          describe(), 2, ("'wa\\u202eist' holds control characters",)),
-    Case("name-c1-control", {"arm.toml": arm_with('name = "waist"', 'name = "wa\\u009bist"')}, describe(), 2,
+    Case("name-c1-control", {"arm.toml": arm_with('name = "carousel"', 'name = "wa\\u009bist"')}, describe(), 2,
          ("'wa\\x9bist' holds control characters",)),
     Case("unknown-key-100000", {"arm.toml": arm_with("a = 25", f"{LONG_NAME} = 25")}, describe(), 2,
          ("unknown key 'nnnn", "(100,000 characters)")),
@@ -369,5 +369,5 @@ def test_subprocess_entry_point_agrees(tmp_path):
     result = subprocess.run([sys.executable, "-m", "ikgen.cli", "describe", "arm.toml"], cwd=tmp_path,
                             capture_output=True, text=True, timeout=120)
     assert result.returncode == 2 and result.stdout == ""
-    assert result.stderr.startswith("ikgen: error: arm.toml:15: joint 1 'waist': field 'a' is '1e+308'")
+    assert result.stderr.startswith("ikgen: error: arm.toml:15: joint 1 'carousel': field 'a' is '1e+308'")
     assert result.stderr.count("\n") == 1

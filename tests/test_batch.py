@@ -7,8 +7,8 @@ documented output shapes and types.
 References: the per-pose solver is the reference here (it is checked against textbook closed
 forms, brute force and numeric FK in tests/test_derivation.py, tests/test_limits_nearest.py and
 tests/test_c_backend.py); the batch module's docstring is the specification of its output
-(RAW_SOLUTIONS entries per pose, the valid entries of a row in the per-pose order, config bit i
-set for the second label of LABEL_NAMES[i], NaN readings where not valid). IEEE 754 (2008,
+(RAW_SOLUTIONS entries per pose, the valid entries of a row in the per-pose order, labels +1 for
+the first value of LABEL_VALUES[i] and -1 for the second, NaN readings where not valid). IEEE 754 (2008,
 sec. 6.2) for NaN and infinity propagating through arithmetic, common practice.
 
 Each demo arm is derived once per module (module-scoped fixture). Demo arms are invented.
@@ -25,7 +25,7 @@ import pytest
 from helpers import demo_arm
 from ikgen.generate import build, load_module
 from ikgen.kinematics import NumericChain
-from ikgen.verify import find_root, shoulder_measure
+from ikgen.verify import find_root, label_measure
 
 DEMOS = ("benchtop6", "packer6", "inspector6")
 SIZES = {"benchtop6": 100_000, "packer6": 20_000, "inspector6": 20_000}
@@ -47,8 +47,8 @@ class Subject:
         free = [j for j in self.build.derivation.solved_joints() if j in (4, 6)][0]
         self.free_wrist = free - 1                      # 0-based: the wrist joint a singular pose leaves free
         values = self.py.LABEL_VALUES
-        self.bits = {combo: sum(1 << i for i, (label, pair) in enumerate(zip(combo, values)) if label == pair[1])
-                     for combo in itertools.product(*values)}
+        self.signs = {combo: tuple(1 if label == pair[0] else -1 for label, pair in zip(combo, values))
+                      for combo in itertools.product(*values)}
 
     def readings(self, count: int, rng, margin: float = 0.0) -> np.ndarray:
         low, high = self.limits[:, 0], self.limits[:, 1]
@@ -116,19 +116,21 @@ def mixed_poses(s: Subject, count: int, rng) -> np.ndarray:
 
 def per_pose(s: Subject, poses: np.ndarray, current: np.ndarray | None):
     """The per-pose solver (limits="ignore") flattened: counts per pose, then per solution the
-    readings, config bits, singular flags and conditioning, in pose and solution order."""
-    counts, joints, bits, singular, conditioning = [], [], [], [], []
+    readings, label signs, singular flags and conditioning, in pose and solution order."""
+    counts, joints, signs, singular, conditioning = [], [], [], [], []
     currents = [None] * len(poses) if current is None else current.tolist()
     for pose, here in zip(poses, currents):
         solutions = s.py.inverse(pose, here, "ignore")
         counts.append(len(solutions))
         for q, config, flag, measures, _ in solutions:
             joints.append(q)
-            bits.append(s.bits[tuple(config)])
+            signs.append(s.signs[tuple(config)])
             singular.append(flag)
             conditioning.append(measures)
     width = len(s.py.CONDITION_NAMES)
-    return (np.array(counts), np.array(joints, dtype=float).reshape(-1, 6), np.array(bits, dtype=np.int64),
+    labels = len(s.py.LABEL_NAMES)
+    return (np.array(counts), np.array(joints, dtype=float).reshape(-1, 6),
+            np.array(signs, dtype=np.int8).reshape(-1, labels),
             np.array(singular, dtype=bool), np.array(conditioning, dtype=float).reshape(-1, width))
 
 
@@ -136,20 +138,22 @@ def per_pose(s: Subject, poses: np.ndarray, current: np.ndarray | None):
 def test_batch_equals_the_per_pose_solver(subjects, stem):
     """Seeded mixed poses (100,000 for benchtop6, 20,000 otherwise) with a random `current` per
     pose: each row has as many valid entries as the per-pose solver (limits="ignore") has
-    solutions, and in the same order the same readings (1e-9), labels (bits -> LABEL_VALUES),
+    solutions, and in the same order the same readings (1e-9), labels (signs -> LABEL_VALUES),
     singular flags and conditioning (1e-9); readings are NaN where not valid."""
     s = subjects(stem)
     rng = np.random.default_rng(7001)
     n = SIZES[stem]
     poses = mixed_poses(s, n, rng)
     current = rng.uniform(-1.5 * s.turn, 1.5 * s.turn, (n, 6))
-    joints, valid, config, singular, conditioning = s.batch.inverse_batch(poses, current)
-    counts, want_joints, want_bits, want_singular, want_conditioning = per_pose(s, poses, current)
+    joints, valid, labels, singular, conditioning = s.batch.inverse_batch(poses, current)
+    counts, want_joints, want_signs, want_singular, want_conditioning = per_pose(s, poses, current)
     rows = np.nonzero(valid.sum(axis=1) != counts)[0]
     assert len(rows) == 0, f"row {rows[0]}: {valid[rows[0]].sum()} valid entries, per-pose {counts[rows[0]]}"
-    joint_gap = np.abs(joints[valid] - want_joints).max()
+    # modulo a turn: numpy's arctan2 and math.atan2 may differ in the last bit, so a reading at the
+    # wrap boundary can come out as +180 in one and -180 in the other (the same angle)
+    joint_gap = np.abs(wrap(joints[valid] - want_joints, s.turn)).max()
     assert joint_gap < 1e-9, f"largest reading difference {joint_gap:.3g}"
-    assert np.array_equal(config[valid], want_bits)
+    assert np.array_equal(labels[valid], want_signs)
     assert np.array_equal(singular[valid], want_singular)
     conditioning_gap = np.abs(conditioning[valid] - want_conditioning).max()
     assert conditioning_gap < 1e-9
@@ -177,14 +181,14 @@ def test_non_finite_poses_give_no_valid_entry(subjects, stem):
         bad.append(np.full((4, 4), value))
     bad = np.array(bad)
     mixed = np.concatenate([good, bad, good])
-    joints, valid, config, singular, conditioning = s.batch.inverse_batch(mixed)
+    joints, valid, labels, singular, conditioning = s.batch.inverse_batch(mixed)
     assert not valid[len(good):len(good) + len(bad)].any()
     assert np.isnan(joints[len(good):len(good) + len(bad)]).all()
     alone = s.batch.inverse_batch(good)
     for part in (slice(0, len(good)), slice(len(good) + len(bad), None)):
         assert np.array_equal(valid[part], alone[1])
         assert np.array_equal(joints[part], alone[0], equal_nan=True)
-        assert np.array_equal(config[part][valid[part]], alone[2][alone[1]])
+        assert np.array_equal(labels[part][valid[part]], alone[2][alone[1]])
     assert alone[1].any(axis=1).all()
 
 
@@ -200,7 +204,7 @@ def test_current_is_honoured_at_singular_poses(subjects, stem):
     readings[:, 4] = s.wrist_singular_reading()
     poses = s.chain.poses(readings)
     current = s.readings(500, rng)
-    wrist = s.py.CONDITION_NAMES.index("wrist")
+    wrist = s.py.CONDITION_NAMES.index("wrist_bend")
     free = s.free_wrist
     for hint, kept in ((current, current[:, free]), (None, np.zeros(500))):
         joints, valid, _, singular, conditioning = s.batch.inverse_batch(poses, hint)
@@ -210,17 +214,18 @@ def test_current_is_honoured_at_singular_poses(subjects, stem):
         gap = np.abs(wrap(joints[:, :, free] - kept[:, None], s.turn))[kept_entries]
         assert gap.max() < 1e-9, gap.max()
         _, want_joints, _, _, _ = per_pose(s, poses, hint)
-        assert np.abs(joints[valid] - want_joints).max() < 1e-9
+        assert np.abs(wrap(joints[valid] - want_joints, s.turn)).max() < 1e-9
 
 
 def test_current_is_honoured_at_shoulder_singular_poses(subjects):
     """inspector6 (no shoulder offset), wrist centre exactly on axis 1 (joint 2 found by bisection
-    on ikgen.verify.shoulder_measure): every valid entry keeps joint 1 at `current` (mod a turn)."""
+    on the reach label's measure, ikgen.verify.label_measure): every valid entry keeps joint 1 at
+    `current` (mod a turn)."""
     s = subjects("inspector6")
     rng = np.random.default_rng(7004)
     points = []
     while len(points) < 20:
-        point = find_root(s.chain, shoulder_measure, s.readings(1, rng, margin=0.1)[0], 1)
+        point = find_root(s.chain, label_measure("reach"), s.readings(1, rng, margin=0.1)[0], 1)
         if point is not None:
             points.append(point)
     poses = s.chain.poses(np.array(points))
@@ -234,7 +239,7 @@ def test_current_is_honoured_at_shoulder_singular_poses(subjects):
 @pytest.mark.parametrize("stem", DEMOS)
 def test_output_shapes_and_types(subjects, stem):
     """As documented: joints (N, RAW_SOLUTIONS, JOINT_COUNT) floats, valid (N, RAW_SOLUTIONS)
-    bool, config integers with bits below 2**len(LABEL_NAMES), singular bool, conditioning
+    bool, labels (N, RAW_SOLUTIONS, len(LABEL_NAMES)) int8 of +1 or -1 (0 where not valid), singular bool, conditioning
     (N, RAW_SOLUTIONS, len(CONDITION_NAMES)) or None with conditioning=False; (N, 3, 4) poses
     give the same as (N, 4, 4); N = 0 and N = 1, and N across the chunk size, work; the names
     match the per-pose module's."""
@@ -248,12 +253,12 @@ def test_output_shapes_and_types(subjects, stem):
     poses = s.chain.poses(s.readings(n, rng))
     current = s.readings(n, rng)
     out = b.inverse_batch(poses, current)
-    joints, valid, config, singular, conditioning = out
+    joints, valid, labels, singular, conditioning = out
     raw = b.RAW_SOLUTIONS
     assert joints.shape == (n, raw, 6) and joints.dtype == np.float64
     assert valid.shape == (n, raw) and valid.dtype == np.bool_
-    assert config.shape == (n, raw) and np.issubdtype(config.dtype, np.integer)
-    assert ((config[valid] >= 0) & (config[valid] < 2 ** len(b.LABEL_NAMES))).all()
+    assert labels.shape == (n, raw, len(b.LABEL_NAMES)) and labels.dtype == np.int8
+    assert np.isin(labels[valid], (-1, 1)).all() and (labels[~valid] == 0).all()
     assert singular.shape == (n, raw) and singular.dtype == np.bool_
     assert conditioning.shape == (n, raw, len(b.CONDITION_NAMES)) and conditioning.dtype == np.float64
     assert (conditioning[valid] >= 0).all()
@@ -266,7 +271,7 @@ def test_output_shapes_and_types(subjects, stem):
         assert np.array_equal(a, c, equal_nan=True)
     for size in (0, 1):
         part = b.inverse_batch(poses[:size], current[:size])
-        assert [x.shape for x in part] == [(size, raw, 6), (size, raw), (size, raw), (size, raw),
+        assert [x.shape for x in part] == [(size, raw, 6), (size, raw), (size, raw, len(b.LABEL_NAMES)), (size, raw),
                                            (size, raw, len(b.CONDITION_NAMES))]
         for a, c in zip(part, out):
             assert np.array_equal(a, c[:size], equal_nan=True)

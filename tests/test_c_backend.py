@@ -158,8 +158,9 @@ def c_list(values, scalar) -> str:
     return "{" + ", ".join(repr(float(v)) + suffix for v in values) + "}"
 
 
-def labels_of(config: int, labels: list[tuple[str, str]]) -> tuple[str, ...]:
-    return tuple(negative if config & (1 << i) else positive for i, (positive, negative) in enumerate(labels))
+def labels_of(signs, labels: list[tuple[str, str]]) -> tuple[str, ...]:
+    """The label words of a solution's signs (+1: a label's first value, -1: its second)."""
+    return tuple(positive if sign > 0 else negative for sign, (positive, negative) in zip(signs, labels))
 
 
 def wrist_singular_reading(arm) -> float:
@@ -275,7 +276,7 @@ def test_source_calls_only_the_allowed_math_functions(demos, stem):
             for function in ("distance", "sort_nearest", "nearest"):
                 body = function_body(code, f"{prefix}_{function}")
                 body_calls = set(CALL.findall(body)) - C_KEYWORDS_CALLED
-                allowed = {scalar.fn("sqrt"), f"{prefix}_distance", f"{prefix}_inverse"}
+                allowed = {scalar.fn("sqrt"), f"{prefix}_distance", f"{prefix}_inverse", "labels_match"}
                 assert body_calls <= allowed, f"{name}: {function} calls {sorted(body_calls - allowed)}"
             assert scalar.fn("sqrt") in CALL.findall(function_body(code, f"{prefix}_distance"))
 
@@ -357,7 +358,7 @@ def test_c_and_python_give_the_same_solutions(demos, stem):
             assert counts[i] == len(expected), \
                 f"{limits}, pose {i} (readings {readings[i]}): C {counts[i]}, Python {len(expected)}"
             for k, (py_joints, py_labels, py_singular, _, _) in enumerate(expected):
-                assert labels_of(int(config[i, k]), solver.labels) == tuple(py_labels), \
+                assert labels_of(config[i, k], solver.labels) == tuple(py_labels), \
                     f"{limits}, pose {i} solution {k}"
                 assert bool(singular[i, k]) == py_singular, f"{limits}, pose {i} solution {k}"
                 worst = max(worst, float(np.abs(joints[i, k] - np.array(py_joints)).max()))
@@ -383,7 +384,7 @@ def test_single_and_batch_entry_points_agree(demos, stem):
             assert len(one) == counts[i]
             for k, (j, labels, flag, conditioning, within) in enumerate(one):
                 assert j == tuple(float(v) for v in joints[i, k])
-                assert labels == labels_of(int(config[i, k]), solver.labels) and flag == bool(singular[i, k])
+                assert labels == labels_of(config[i, k], solver.labels) and flag == bool(singular[i, k])
                 assert len(conditioning) == solver.conditions and isinstance(within, bool)
 
 
@@ -427,7 +428,7 @@ def test_verify_passes_on_the_c_solver(demos, stem):
     assert result.checked >= 1900 and result.complete == result.checked
     assert result.worst_position <= result.position_tolerance
     assert result.unreachable_tested == result.unreachable_ok == 200
-    for kind in ("wrist centre over axis 1 (front/back boundary)", "elbow fully stretched or folded"):
+    for kind in ("wrist point on the reach boundary (reach_forward / reach_backward)", "elbow fully stretched or folded"):
         assert result.singular_tested[kind] > 0 and result.singular_ok[kind] == result.singular_tested[kind]
 
 

@@ -21,7 +21,7 @@ import pytest
 from helpers import EXAMPLES, demo_arm
 from ikgen.backends import python as python_backend
 from ikgen.cli import main
-from ikgen.families import derive_arm
+from ikgen.engine import derive as derive_arm
 
 if not any(__import__("shutil").which(cc) for cc in ("cc", "gcc", "clang")):
     pytest.skip("no C compiler on this machine", allow_module_level=True)
@@ -48,8 +48,8 @@ CHECK = textwrap.dedent('''
             assert s.config == t.config and s.singular == t.singular and s.within_limits == t.within_limits
             worst_joint = max(worst_joint, max(abs(a - b) for a, b in zip(s.joints, t.joints)))
         current = [v + 1.0 for v in q]
-        near_c, near_p = ik.nearest(pose, current, config={{"elbow": "up"}}), py.nearest(pose, current,
-                                                                                      config={{"elbow": "up"}})
+        near_c, near_p = ik.nearest(pose, current, config={{"elbow": "elbow_up"}}), py.nearest(pose, current,
+                                                                                      config={{"elbow": "elbow_up"}})
         assert (near_c is None) == (near_p is None)
         assert near_c is None or near_c.config == near_p.config
         assert ik.inverse(pose, limits="flag") is not None and ik.inverse(pose, limits="ignore") is not None

@@ -157,10 +157,10 @@ def test_forward_frames_and_commas(capsys):
 
 
 def test_forward_warns_outside_limits_but_succeeds(capsys):
-    # benchtop6's waist is limited to -170 .. 170 deg in the file
+    # benchtop6's carousel is limited to -170 .. 170 deg in the file
     assert main(["forward", str(DEMO_FILES[0]), "200", "0", "0", "0", "0", "0"]) == 0
     captured = capsys.readouterr()
-    assert "warning: joint 1 'waist' reading 200 deg is outside its limits -170 .. 170" in captured.err
+    assert "warning: joint 1 'carousel' reading 200 deg is outside its limits -170 .. 170" in captured.err
     assert "position" in captured.out
 
 
@@ -238,5 +238,5 @@ def test_module_entry_point_describe():
     assert result.returncode == 0, result.stderr
     assert result.stderr == ""
     assert re.search(r"^arm\s+benchtop6$", result.stdout, re.M)
-    for name in ("waist", "shoulder", "elbow", "forearm_roll", "wrist_bend", "flange_roll"):
+    for name in ("carousel", "boom", "jib", "jib_roll", "wrist_tilt", "gripper_spin"):
         assert name in result.stdout

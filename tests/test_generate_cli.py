@@ -32,8 +32,8 @@ def bad_arm_file(folder: Path) -> Path:
     """benchtop6 with a4 = 12 mm: the last three axes no longer meet (outside the family)."""
     text = (EXAMPLES / "benchtop6.toml").read_text(encoding="utf-8")
     data = tomllib.loads(text)
-    assert data["joint"][3]["name"] == "forearm_roll" and data["joint"][3]["a"] == 0
-    marker = 'name = "forearm_roll"\ntype = "revolute"\na = 0\n'
+    assert data["joint"][3]["name"] == "jib_roll" and data["joint"][3]["a"] == 0
+    marker = 'name = "jib_roll"\ntype = "revolute"\na = 0\n'
     assert marker in text
     path = folder / "offset_wrist.toml"
     path.write_text(text.replace(marker, marker.replace("a = 0", "a = 12"))

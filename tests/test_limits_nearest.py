@@ -41,7 +41,7 @@ from ikgen.backends import c as c_backend
 from ikgen.cbuild import compile_solver
 from ikgen.generate import build, load_module
 from ikgen.kinematics import NumericChain
-from ikgen.verify import elbow_measure, find_root, jacobian_distance, shoulder_measure, wrist_measure
+from ikgen.verify import find_root, jacobian_distance, label_measure
 
 DEMOS = ("benchtop6", "packer6", "inspector6")
 MODES = ("drop", "flag", "ignore")
@@ -148,7 +148,8 @@ def matches(subject: Subject, config, wanted) -> bool:
 
 
 def mask_to_config(subject: Subject, mask: int, value: int) -> dict:
-    """The C (mask, value) bits as the Python dict form: bit i set = second label of name i."""
+    """A random configuration filter drawn as bits (mask: which labels are required; value: bit i
+    set = the second value of label i), in the solvers' dict form."""
     names, values = subject.py.LABEL_NAMES, subject.py.LABEL_VALUES
     return {names[i]: values[i][1 if value >> i & 1 else 0] for i in range(len(names)) if mask >> i & 1}
 
@@ -475,8 +476,9 @@ def test_python_and_c_make_identical_choices(subjects, stem):
         mask = int(rng.integers(0, 2 ** labels))
         value = int(rng.integers(0, 2 ** labels)) & mask
         mode = MODES[rng.integers(3)]
-        best = py.nearest(pose, here.tolist(), w_list, mask_to_config(s, mask, value), mode)
-        got = c.nearest(pose, here, weights, mask, value, mode)
+        wanted = mask_to_config(s, mask, value)
+        best = py.nearest(pose, here.tolist(), w_list, wanted, mode)
+        got = c.nearest(pose, here, weights, wanted, mode)
         assert got == (None if best is None else plain(best)), f"case {i}: nearest mask {mask} value {value}"
         totals["none"] += got is None
     print(f"{stem}: {count} cases, {totals}")
@@ -489,18 +491,18 @@ def test_python_and_c_make_identical_choices(subjects, stem):
 def test_configuration_labels_match_their_geometric_definitions(subjects, stem):
     """For every raw solution of seeded poses, its labels agree with the definitions of
     docs/derivation.md section 5 evaluated on the FK frames of the solution's own readings
-    (shoulder front/back: [SHV] ch. 5's left/right arm; elbow up/down: [SHV] ch. 5; wrist flip:
+    (reach forward/backward: [SHV] ch. 5's left/right arm; elbow up/down: [SHV] ch. 5; wrist bend:
     the sign of (z4 x z6) . z5):
-    - shoulder front <=> the wrist centre's coordinate along link 1's x axis is >= 0;
-    - elbow: one sign of the bend (upper arm x forearm) . z2 for the arm, oriented so that "up"
+    - reach_forward <=> the wrist centre's coordinate along link 1's x axis is >= 0;
+    - elbow: one sign of the bend (upper arm x forearm) . z2 for the arm, oriented so that "elbow_up"
       is the elbow above the shoulder-to-wrist-centre line (+z0 side) when the wrist centre lies
       beyond the shoulder joint (axis 2) along link 1's x axis, and below it when the wrist centre
       lies behind axis 2 (the same bend seen from the other side);
-    - wrist noflip <=> (z4 x z6) . z5 >= 0.
+    - bend_positive <=> (z4 x z6) . z5 >= 0.
     Cases with a measure within 1e-9 of 0 are skipped (at most 1%).
     (docs/derivation.md says "in front-shoulder poses" for the first elbow case; that holds only
     when axes 1 and 2 meet: with a shoulder offset a1, as benchtop6 and packer6 have, a front
-    wrist centre between axes 1 and 2 puts the "up" elbow below the line; printed below.)"""
+    wrist centre between axes 1 and 2 puts the "elbow_up" elbow below the line; printed below.)"""
     s = subjects(stem)
     py = s.py
     readings = s.readings(1500, np.random.default_rng(6007))
@@ -512,8 +514,8 @@ def test_configuration_labels_match_their_geometric_definitions(subjects, stem):
     joints, configs = np.array(joints), np.array(configs)
     g = geometric_labels(s.chain, joints)
     length = s.arm.reach_scale()
-    front = configs[:, py.LABEL_NAMES.index("shoulder")] == py.LABEL_VALUES[py.LABEL_NAMES.index("shoulder")][0]
-    elbow_up = configs[:, py.LABEL_NAMES.index("elbow")] == "up"
+    front = configs[:, py.LABEL_NAMES.index("reach")] == py.LABEL_VALUES[py.LABEL_NAMES.index("reach")][0]
+    elbow_up = configs[:, py.LABEL_NAMES.index("elbow")] == "elbow_up"
     ahead = g["ahead"] > 1e-9 * length
     behind = g["ahead"] < -1e-9 * length
     # the bend's orientation for this arm: the one that makes "up" the elbow above the line when
@@ -521,11 +523,11 @@ def test_configuration_labels_match_their_geometric_definitions(subjects, stem):
     clear = ahead & (np.abs(g["above"]) > 1e-9 * length) & (np.abs(g["bend"]) > 1e-9 * length ** 2)
     orientation = np.sign(np.sum(np.sign(g["bend"][clear]) * np.where(g["above"][clear] >= 0, 1, -1)))
     assert orientation != 0
-    checks = (("shoulder", g["shoulder"], 1e-9 * length, None),
+    checks = (("reach", g["shoulder"], 1e-9 * length, None),
               ("elbow, wrist centre beyond axis 2: above the line", g["above"], 1e-9 * length, ahead),
               ("elbow, wrist centre behind axis 2: below the line", -g["above"], 1e-9 * length, behind),
               ("elbow: bend", orientation * g["bend"], 1e-9 * length ** 2, None),
-              ("wrist", g["wrist"], 1e-9, None))
+              ("wrist_bend", g["wrist"], 1e-9, None))
     for what, measure, small, subset in checks:
         name = what.split(",")[0].split(":")[0]
         index = py.LABEL_NAMES.index(name)
@@ -660,20 +662,20 @@ def fk_error(s: Subject, solutions, pose) -> tuple[float, float]:
 @pytest.mark.parametrize("stem", DEMOS)
 def test_wrist_singular_pose_keeps_the_current_reading(subjects, stem):
     """Exactly singular wrist ([SHV] sec. 4.9: axes 4 and 6 aligned; joint 5 found by bisection
-    with ikgen.verify.find_root on ikgen.verify.wrist_measure): the free wrist joint equals the
+    with ikgen.verify.find_root on ikgen.verify.label_measure("wrist_bend")): the free wrist joint equals the
     caller's `current` reading (as a reading in "drop" mode, modulo a turn in "ignore" mode; 0
     when current is None), nearest() keeps it, and the FK of every solution reproduces the pose
     (1e-9 of the length scale, 1e-9 per rotation entry)."""
     s = subjects(stem)
     py = s.py
     free = s.free_wrist_joint()
-    wrist_index = py.CONDITION_NAMES.index("wrist")
+    wrist_index = py.CONDITION_NAMES.index("wrist_bend")
     rng = np.random.default_rng(6010)
     done = 0
     for _ in range(40):
         if done == 12:
             break
-        point = find_root(s.chain, wrist_measure, s.readings(1, rng, margin=0.2)[0], 4)
+        point = find_root(s.chain, label_measure("wrist_bend"), s.readings(1, rng, margin=0.2)[0], 4)
         if point is None:
             continue
         done += 1
@@ -708,13 +710,13 @@ def test_shoulder_singular_pose_keeps_the_current_reading(subjects, name):
     with shoulder conditioning ~0, and reproduces the pose."""
     s = subjects(name)
     py = s.py
-    shoulder_index = py.CONDITION_NAMES.index("shoulder")
+    shoulder_index = py.CONDITION_NAMES.index("reach")
     rng = np.random.default_rng(6011)
     done = exact = 0
     for _ in range(40):
         if done == 10:
             break
-        point = find_root(s.chain, shoulder_measure, s.readings(1, rng, margin=0.1)[0], 1)
+        point = find_root(s.chain, label_measure("reach"), s.readings(1, rng, margin=0.1)[0], 1)
         if point is None:
             continue
         done += 1
@@ -763,19 +765,19 @@ def test_conditioning_measures(subjects, stem):
     joints, conditioning = np.array(joints), np.array(conditioning)
     j5 = s.arm.joints[4]
     dh5 = float(j5.theta + j5.offset) + float(j5.direction) * s.rad(joints[:, 4])
-    wrist = conditioning[:, py.CONDITION_NAMES.index("wrist")]
+    wrist = conditioning[:, py.CONDITION_NAMES.index("wrist_bend")]
     assert np.abs(wrist - np.abs(np.sin(dh5))).max() < 1e-9
     g = geometric_labels(s.chain, joints)
     elbow = conditioning[:, py.CONDITION_NAMES.index("elbow")]
     assert np.abs(elbow - g["elbow_sin"]).max() < 1e-9
-    ratio = conditioning[:, py.CONDITION_NAMES.index("shoulder")] / np.abs(g["shoulder"])
+    ratio = conditioning[:, py.CONDITION_NAMES.index("reach")] / np.abs(g["shoulder"])
     assert (ratio.max() - ratio.min()) / ratio.mean() < 1e-9
     assert wrist.min() < 0.05 and elbow.min() < 0.05      # the samples came near both singular sets
 
 
 @pytest.mark.parametrize("stem", DEMOS)
 def test_elbow_measure_goes_to_zero_at_full_stretch(subjects, stem):
-    """Joint 3 at delta from full stretch (found by bisection on ikgen.verify.elbow_measure):
+    """Joint 3 at delta from full stretch (found by bisection on ikgen.verify.label_measure("elbow")):
     the source solution's elbow measure is |sin(delta)| (1e-9), falls monotonically as delta
     shrinks from 10 deg to 1e-3 deg, and is below 1e-7 at the stretched reading itself."""
     s = subjects(stem)
@@ -786,7 +788,7 @@ def test_elbow_measure_goes_to_zero_at_full_stretch(subjects, stem):
     for _ in range(30):
         if done == 5:
             break
-        point = find_root(s.chain, elbow_measure, s.readings(1, rng, margin=0.1)[0], 2)
+        point = find_root(s.chain, label_measure("elbow"), s.readings(1, rng, margin=0.1)[0], 2)
         if point is None:
             continue
         done += 1

@@ -375,10 +375,10 @@ def test_path_through_a_wrist_singularity_is_reported(module):
     result = solve_path(module, poses, source[0], singular_threshold=0.01)
     crossing = int(np.argmax(np.sign(source[:, 4]) != np.sign(source[0, 4])))
     [event] = result.events_of(CROSSES_SINGULARITY)
-    assert event.index == crossing and event.branches == ("wrist",)
+    assert event.index == crossing and event.branches == ("wrist_bend",)
     near = {e.index for e in result.events_of(NEAR_SINGULARITY)}
     assert near == set(np.nonzero(np.abs(np.sin(np.radians(source[:, 4]))) < 0.01)[0])
-    assert all(e.branches == ("wrist",) for e in result.events_of(NEAR_SINGULARITY))
+    assert all(e.branches == ("wrist_bend",) for e in result.events_of(NEAR_SINGULARITY))
     assert result.events_of(CONFIGURATION_CHANGE) == [] and result.events_of(LABEL_CHANGE) == []
     # the configuration is kept: from the crossing on, the wrist's twin solution (q4 and q6 a half
     # turn away, q5 negated), which reproduces the same poses
@@ -532,8 +532,8 @@ def test_cli_wrist_crossing_shows_in_the_summary(tmp_path):
     code, stdout, stderr = run(["path", str(BENCHTOP), str(tmp_path / "wrist.csv"), "--start",
                                 ",".join(str(v) for v in source[0]), "--max-step", "30"])
     assert code == 0, stderr
-    assert "step 13: crosses a singularity (wrist)" in stdout
-    assert "steps 12-13: near a singularity (wrist)" in stdout
+    assert "step 13: crosses a singularity (wrist_bend)" in stdout
+    assert "steps 12-13: near a singularity (wrist_bend)" in stdout
     assert "step 13: large joint step" in stdout
 
 

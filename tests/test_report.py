@@ -40,12 +40,13 @@ from markupsafe import escape
 from helpers import EXAMPLES, ROOT, demo_arm
 from ikgen.backends import python as python_backend, report
 from ikgen.cli import main
-from ikgen.families import derive_arm
+from ikgen.engine import derive as derive_arm
 from ikgen.generate import load_module
-from ikgen.ir import GUARD_TOLERANCE, CosSinEquation, LinearPair, angle_symbol, cos_symbol, sin_symbol
+from ikgen.ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, CosSinEquation, LinearPair, angle_symbol,
+                      cos_symbol, sin_symbol)
 from ikgen.kinematics import NumericChain
 
-DEMOS = ["benchtop6", "packer6", "inspector6"]
+DEMOS = ["benchtop6", "packer6", "inspector6", "kitter6", "canted6"]   # kitter6: a sum of angles; canted6: a polynomial
 ARTIFACTS = ROOT / "test-artifacts"
 DISPLAY = re.compile(r"^\$\$(.+)\$\$$", re.M)
 
@@ -158,12 +159,16 @@ def test_ir_steps_are_all_printed(rendered):
             assert bool(view.mirror) == (step.mirror is not None)
         elif isinstance(step, LinearPair):
             assert view.kind == "pair" and 1 <= len(view.forms) <= len(step.forms)
+        elif isinstance(step, AngleSum):
+            assert view.kind == "sum" and len(view.equations) == 1
+        elif isinstance(step, CirclePolynomial):
+            assert view.kind == "poly" and len(view.equations) == 5 and len(view.root) == 1
         else:
             assert [eq.lhs.name for eq in view.equations] == [report.display_name(n.name) for n in step.names]
     assert len(sheet.labels) == len(derivation.labels) and len(sheet.outputs) == rendered.arm.dof
     for label in derivation.labels:
         assert str(escape(label.meaning)) in rendered.html
-        assert f"{label.positive} or {label.negative}" in rendered.markdown
+        assert report.markdown_text(f"{label.positive} or {label.negative}") in rendered.markdown
 
 
 # ----------------------------------------------------------------------------- the text solves poses
@@ -208,10 +213,25 @@ class TextSolver:
             for eq in view.equations:
                 env[eq.lhs] = self.value(eq.key, env)
             self.walk(index + 1, env, solutions, mirror)
+        elif view.kind == "sum":
+            j = step.key
+            angle = self.value(view.equations[0].key, env)
+            env[self.show[angle_symbol(j)]] = angle
+            env[self.show[cos_symbol(j)]], env[self.show[sin_symbol(j)]] = math.cos(angle), math.sin(angle)
+            self.walk(index + 1, env, solutions, mirror)
+        elif view.kind == "poly":
+            for eq in view.equations:
+                env[eq.lhs] = self.value(eq.key, env)
+            j = step.key
+            for angle in self.circle_roots(view.root[0].key, j, env):
+                branch = dict(env)
+                branch[self.show[angle_symbol(j)]] = angle
+                branch[self.show[cos_symbol(j)]], branch[self.show[sin_symbol(j)]] = math.cos(angle), math.sin(angle)
+                self.walk(index + 1, branch, solutions, mirror)
         elif view.kind == "cossin":
             for eq in view.equations:
                 env[eq.lhs] = self.value(eq.key, env)
-            j = step.joint
+            j = step.key
             norm, radicand = env[view.equations[3].lhs], env[view.equations[4].lhs]
             assert not (step.singular.threshold > 0 and norm <= step.singular.threshold), "random pose is singular"
             if radicand < -2 * GUARD_TOLERANCE * norm:
@@ -227,7 +247,7 @@ class TextSolver:
                 keep = view.mirror if (step.mirror is not None and radicand > 0) else mirror
                 self.walk(index + 1, branch, solutions, keep)
         else:
-            j = step.joint
+            j = step.key
             for form, ir_form in zip(view.forms, step.forms):
                 for eq in form["equations"]:
                     env[eq.lhs] = self.value(eq.key, env)
@@ -241,6 +261,29 @@ class TextSolver:
             env[self.show[cos_symbol(j)]], env[self.show[sin_symbol(j)]] = c, s
             env[self.show[angle_symbol(j)]] = math.atan2(s, c)
             self.walk(index + 1, env, solutions, mirror)
+
+    def circle_roots(self, key: str, j: str, env: dict) -> list[float]:
+        """Every root of the printed polynomial on the circle, found on its own (not with the
+        generated root finder): its sign changes on a grid of 7200 angles, refined by bisection."""
+        def p(angle):
+            point = dict(env)
+            point[self.show[cos_symbol(j)]], point[self.show[sin_symbol(j)]] = math.cos(angle), math.sin(angle)
+            return self.value(key, point)
+        grid = np.linspace(-math.pi, math.pi, 7201)
+        values = [p(a) for a in grid]
+        roots = []
+        for lo, hi, f_lo, f_hi in zip(grid, grid[1:], values, values[1:]):
+            if f_lo == 0.0:
+                roots.append(lo)
+            elif f_lo * f_hi < 0:
+                for _ in range(80):
+                    mid = 0.5 * (lo + hi)
+                    if (p(mid) < 0) == (f_lo < 0):
+                        lo, f_lo = mid, p(mid)
+                    else:
+                        hi = mid
+                roots.append(0.5 * (lo + hi))
+        return roots
 
     def mirrored(self, env: dict, mapping: list) -> dict:
         """The second root by the printed symmetry: each angle as its printed map says; cos and
@@ -324,8 +367,11 @@ def test_report_states_the_table_parameters_and_solution_count(rendered):
     for joint in arm.joints:
         assert joint.name.replace("_", "\\_") in md
     for symbol, value in derivation.parameters.items():
-        row = next(line for line in md.splitlines() if line.startswith(f"| ${sp.latex(symbol)}$ |"))
-        assert float(row.split("|")[2]) == pytest.approx(float(value), rel=1e-12)
+        shown = sp.Symbol(report.display_name(symbol.name))
+        row = next(line for line in md.splitlines() if line.startswith(f"| ${sp.latex(shown)}$ |"))
+        decimal, exact = row.split("|")[2].strip(), row.split("|")[3].strip()
+        assert float(decimal) == pytest.approx(float(value), rel=1e-9)
+        assert sp.sympify(exact or decimal) == value          # the exact value when it is not a short decimal
     for line in derivation.analysis:
         assert report.markdown_text(line) in md
 

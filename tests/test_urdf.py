@@ -288,7 +288,7 @@ def test_demo_values_are_exact_with_a_note_for_each_snap():
     notes = "\n".join(arm.notes)
     assert "joint 1 'turret': a = 0.040000000000000056 read as 0.04" in notes
     assert "theta = 0.5235987755982986 read as pi/6" in notes
-    assert "joint 'elbow': its URDF axis (0 -1 0)" in notes
+    assert "joint 'outreach': its URDF axis (0 -1 0)" in notes
 
 
 def test_a_rounded_right_angle_is_not_snapped_but_noted(tmp_path):

@@ -94,7 +94,7 @@ def test_forward_of_a_urdf_equals_the_library_fk(capsys):
     start = lines.index("matrix") + 1
     printed = np.array([[float(v) for v in line.strip().strip("[]").split()] for line in lines[start:start + 4]])
     model = yourdfpy.URDF.load(DEMO_URDF, load_meshes=False, build_scene_graph=True)
-    model.update_cfg(dict(zip(["turret", "shoulder", "elbow", "forearm_roll", "wrist_bend", "flange_roll"],
+    model.update_cfg(dict(zip(["turret", "lifter", "outreach", "fork_roll", "fork_tilt", "fork_spin"],
                               readings)))
     np.testing.assert_allclose(printed, model.get_transform("fork_tcp", "bench"), atol=1e-6)
 

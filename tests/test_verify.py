@@ -32,6 +32,7 @@ class Wrapped:
     def __init__(self, module, damage):
         self.module = module
         self.damage = damage
+        self.LABEL_NAMES = module.LABEL_NAMES
 
     def inverse(self, pose, current=None):
         return self.damage(np.asarray(pose), list(self.module.inverse(pose, current)))
@@ -108,7 +109,7 @@ def test_solutions_for_unreachable_poses_fail(good):
     arm, module = good
 
     def invent(pose, solutions):
-        return solutions or [((0.0,) * 6, ("front", "up", "noflip"), False)]
+        return solutions or [((0.0,) * 6, ("reach_forward", "elbow_up", "bend_positive"), False)]
 
     report = verify(arm, Wrapped(module, invent), samples=SAMPLES, seed=5)
     assert not report.passed

@@ -30,16 +30,20 @@ class BatchPrinter(common.ProductPowers, NumPyPrinter):
 def render(arm: Arm, derivation: Derivation) -> str:
     plan = common.lower(derivation)
     printer = BatchPrinter()
-    axes = plan.depth + (1 if plan.mirror else 0)
+    sizes = plan.branch_sizes + ([2] if plan.mirror else [])
+    raw = 1
+    for size in sizes:
+        raw *= size
     template = common.environment().get_template("batch_solver.py.j2")
     return common.tidy(template.render(
         arm=arm, plan=plan, p=printer.doprint, header=common.header_lines(arm, derivation),
         module_name=common.identifier(arm.name), comment=common.comment_text,
         joint_zero=[float(j.theta + j.offset) for j in arm.joints],
         joint_gain=[j.direction * arm.angle_scale for j in arm.joints],
-        branch_axes=plan.depth, axes=axes, raw_solutions=2 ** axes,
+        branch_axes=plan.depth, axis_sizes=sizes, raw_solutions=raw,
         singular_terms=terms(plan.singular_terms, BATCH_TERMS),
         mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else []))
 
 
-BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "root": "(root{} > 0.0)", "not_free": "~free{}"}
+BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "double_root": "dbl{}", "root": "(root{} > 0.0)",
+               "not_free": "~free{}"}

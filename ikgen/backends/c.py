@@ -89,27 +89,47 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         # float rounding (about 6e-8 relative) needs a wider clamp band than double
         guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5,
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
-        max_turns=max(t.count for t in common.joint_turns(arm)))
+        max_turns=max(t.count for t in common.joint_turns(arm)),
+        # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
+        poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),
+        root_eps=4e-16 if scalar.name == "double" else 4e-7,
+        # |cos^2 + sin^2 - 1| of a linear pair beyond which the input is inconsistent: float
+        # rounding near a tangency of a polynomial's roots reaches about 2e-3 (measured on canted6)
+        pair_tolerance=1e-4 if scalar.name == "double" else 5e-3)
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
             n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
 
 
+SELFTEST_DISTANCE = 1e-2      # self-test poses: Jacobian distance and every conditioning measure above this
+
+
 def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, count: int = 200,
-                    seed: int = 20261201) -> tuple[str, str]:
-    """(file name, text) of the self-test: seeded poses away from singular sets, with their sources."""
+                    seed: int = 20261201, solver=None) -> tuple[str, str]:
+    """(file name, text) of the self-test: seeded poses away from singular sets, with their sources.
+    ``solver`` (the generated Python module) lets the poses keep away from every branch's singular
+    set too: the source solution's conditioning measures are all above SELFTEST_DISTANCE."""
     import numpy as np
 
     from ..kinematics import NumericChain
-    from ..verify import jacobian_distance, random_readings
+    from ..verify import angle_gap, jacobian_distance, random_readings
     chain = NumericChain(arm)
     rng = np.random.default_rng(seed)
     vectors = []
+
+    def well_conditioned(pose, q) -> bool:
+        if solver is None:
+            return True
+        for solution in solver.inverse(pose, limits="ignore"):
+            if angle_gap(np.array([solution[0]]), q, arm).max() < 1e-6:
+                return min(solution[3], default=1.0) > SELFTEST_DISTANCE
+        return False
+
     while len(vectors) < count:
         readings = random_readings(arm, 4 * count, rng)
-        keep = readings[jacobian_distance(chain, readings) > 1e-2]
+        keep = readings[jacobian_distance(chain, readings) > SELFTEST_DISTANCE]
         poses = chain.poses(keep)
         for q, pose in zip(keep, poses):
-            if len(vectors) < count:
+            if len(vectors) < count and well_conditioned(pose, q):
                 vectors.append(([float(v) for v in pose[:3].reshape(-1)], [float(v) for v in q]))
     printer = SolverCPrinter(scalar)
     n = names(arm, scalar)
@@ -141,5 +161,6 @@ def plan_symbols(plan: common.Plan) -> set:
 
 def c_terms(items: list[tuple[str, int]], printer: SolverCPrinter) -> list[str]:
     zero = printer.number(0)
-    forms = {"free": "free{}", "double": "root{} == " + zero, "root": "root{} > " + zero, "not_free": "!free{}"}
+    forms = {"free": "free{}", "double": "root{} == " + zero, "double_root": "dbl{}", "root": "root{} > " + zero,
+             "not_free": "!free{}"}
     return [forms[kind].format(joint) for kind, joint in items]

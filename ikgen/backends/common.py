@@ -20,8 +20,8 @@ import jinja2
 import sympy as sp
 
 from .. import __version__
-from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
-                  cos_symbol, sin_symbol)
+from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation,
+                  LinearPair, angle_symbol, cos_symbol, sin_symbol)
 from ..model import Arm
 
 GENERATOR = f"ikgen {__version__} (sympy {sp.__version__})"
@@ -124,10 +124,11 @@ class FormPlan:
 
 @dataclass
 class Block:
-    kind: str                    # "compute", "cossin", "pair"
+    kind: str                    # "compute", "cossin", "pair", "sum", "poly"
     depth: int                   # number of enclosing branch loops
     comment: str
-    joint: int = 0
+    key: str = ""                # the unknown a solving block finds ("3", "p234")
+    hint: list = field(default_factory=list)   # (joint, sign): the caller's readings that fill a free unknown
     temps: list[Assignment] = field(default_factory=list)
     # cossin (see specialise_cossin)
     c: sp.Expr | None = None
@@ -142,11 +143,22 @@ class Block:
     # pair
     forms: list[FormPlan] = field(default_factory=list)
     free_possible: bool = True
+    # sum: th<key> = sum(sign * th<term>)
+    terms: list = field(default_factory=list)
+    bound: int = 1               # |th<key>| <= bound * pi
+    # poly: the five coefficients (named or numbers) and the tangency tolerance
+    coefficients: list = field(default_factory=list)
+    tolerance: float = 0.0
+    eliminated: str = ""
     mirrored: bool = False       # cossin: the second root is emitted by symmetry, no loop
-    need_cos: bool = True        # cossin: a later expression reads c<j>
-    need_sin: bool = True        # cossin: a later expression reads s<j>
-    condition_name: str = ""     # cossin: the branch name its conditioning measure is reported under
+    need_cos: bool = True        # a later expression reads c<key>
+    need_sin: bool = True        # a later expression reads s<key>
+    condition_name: str = ""     # cossin/poly: the branch name its conditioning measure is reported under
     condition_gain: float = 1.0  # cossin: conditioning = root * gain = sqrt(radicand / typical a^2+b^2)
+
+    @property
+    def joint(self) -> str:      # the unknown's key (kept for templates that name variables by it)
+        return self.key
 
 
 @dataclass
@@ -156,6 +168,7 @@ class OutputPlan:
     factor: float                # reading per radian times direction
     direction: int
     scale: float                 # radians per reading unit
+    wraps: int = 1               # conditional +-2pi steps that bring the reading into (-pi, pi]
 
 
 @dataclass
@@ -167,9 +180,9 @@ class LabelPlan:
 
 @dataclass
 class MirrorPlan:
-    joint: int
+    joint: str
     kind: str                    # "negate_sin" or "negate_cos"
-    parities: dict               # joint -> +1 (same angle) or -1 (angle + pi)
+    parities: dict               # key -> +1 (same angle) or -1 (angle + pi)
     label_signs: list[int]
 
 
@@ -183,33 +196,46 @@ class Plan:
     pose_symbols: tuple
     max_solutions: int
     depth: int                   # depth of the innermost block (where solutions are emitted)
-    branch_joints: list[int]
+    branch_joints: list[str]
     mirror: MirrorPlan | None = None
     guard_tolerance: float = GUARD_TOLERANCE
 
     @property
-    def mirror_condition(self) -> list[tuple[str, int]]:
-        """What must hold to emit the mirrored solution, as (kind, joint) terms: ("root", j) a real
-        second root; ("not_free", j) no later joint left free (at a singular wrist the copy would
+    def branch_sizes(self) -> list[int]:
+        """Roots per branch loop, outermost first (2 for a cossin, 4 for a polynomial)."""
+        return [4 if b.kind == "poly" else 2 for b in self.blocks
+                if b.kind == "poly" or (b.kind == "cossin" and not b.mirrored)]
+
+    @property
+    def has_poly(self) -> bool:
+        return any(b.kind == "poly" for b in self.blocks)
+
+    @property
+    def mirror_condition(self) -> list[tuple[str, str]]:
+        """What must hold to emit the mirrored solution, as (kind, key) terms: ("root", k) a real
+        second root; ("not_free", k) no later unknown left free (at a singular wrist the copy would
         move the kept joint)."""
         m = self.mirror
         terms = [("root", m.joint)]
-        terms += [("not_free", b.joint) for b in self.blocks
-                  if b.kind == "pair" and b.free_possible and b.joint in m.parities]
+        terms += [("not_free", b.key) for b in self.blocks
+                  if b.kind == "pair" and b.free_possible and b.key in m.parities]
         return terms
 
     @property
-    def singular_terms(self) -> list[tuple[str, int]]:
-        """What flags a solution singular, as (kind, joint) terms: ("free", j) the joint was free;
-        ("double", j) the branch's radicand was (clamped to) zero."""
+    def singular_terms(self) -> list[tuple[str, str]]:
+        """What flags a solution singular, as (kind, key) terms: ("free", k) the unknown was free;
+        ("double", k) the branch's radicand was (clamped to) zero; ("double_root", k) the polynomial's
+        root was a tangency."""
         terms = []
         for block in self.blocks:
             if block.kind == "cossin":
                 if block.threshold is not None:
-                    terms.append(("free", block.joint))
-                terms.append(("double", block.joint))
+                    terms.append(("free", block.key))
+                terms.append(("double", block.key))
             elif block.kind == "pair" and block.free_possible:
-                terms.append(("free", block.joint))
+                terms.append(("free", block.key))
+            elif block.kind == "poly":
+                terms += [("free", block.key), ("double_root", block.key)]
         return terms
 
     @property
@@ -217,25 +243,28 @@ class Plan:
         """Joints whose DH angle is always an atan2 result in [-pi, pi] (never a caller's value)."""
         out = set()
         for block in self.blocks:
+            if not block.key.isdigit():
+                continue
             if block.kind == "cossin" and block.threshold is None:
-                out.add(block.joint)
+                out.add(int(block.key))
             elif block.kind == "pair" and not block.free_possible:
-                out.add(block.joint)
+                out.add(int(block.key))
         return out
 
     @property
     def condition_blocks(self) -> list[Block]:
-        """The cossin blocks, in order: one conditioning measure per branch point."""
-        return [b for b in self.blocks if b.kind == "cossin"]
+        """The branch blocks, in order: one conditioning measure per branch point."""
+        return [b for b in self.blocks if b.kind in ("cossin", "poly")]
 
-    def mirrored_angle(self, joint: int) -> str:
+    def mirrored_angle(self, joint) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
         m = self.mirror
-        if joint == m.joint:
-            return f"-th{joint}" if m.kind == "negate_sin" else f"_PI - th{joint}"
-        if m.parities.get(joint, 1) < 0:
-            return f"th{joint} + _PI"
-        return f"th{joint}"
+        key = str(joint)
+        if key == m.joint:
+            return f"-th{key}" if m.kind == "negate_sin" else f"_PI - th{key}"
+        if m.parities.get(key, 1) < 0:
+            return f"th{key} + _PI"
+        return f"th{key}"
 
 
 def condition_gain(norm: sp.Expr, threshold: float) -> float:
@@ -273,6 +302,15 @@ def eliminate(exprs: list[sp.Expr], prefix: str) -> tuple[list[Assignment], list
     return [Assignment(t, e) for t, e in replacements], list(reduced)
 
 
+def angle_sum_trig(terms: list[tuple[str, int]]) -> tuple[sp.Expr, sp.Expr]:
+    """cos and sin of sum(sign * th_k) in the terms' cosines and sines (angle-sum rules)."""
+    cos_value, sin_value = sp.Integer(1), sp.Integer(0)
+    for key, sign in terms:
+        c, s = cos_symbol(key), sign * sin_symbol(key)
+        cos_value, sin_value = cos_value * c - sin_value * s, sin_value * c + cos_value * s
+    return sp.expand(cos_value), sp.expand(sin_value)
+
+
 def lower(derivation: Derivation) -> Plan:
     """The IR as a code plan: numbers substituted, CSE per block, nesting depth per block."""
     params = derivation.parameters
@@ -280,25 +318,28 @@ def lower(derivation: Derivation) -> Plan:
     depth = 0
     branch_joints = []
     mirror = None
+    bounds: dict[str, int] = {}
     for number, step in enumerate(derivation.steps, 1):
         prefix = f"t{number}_"
         if isinstance(step, Compute):
             temps, reduced = eliminate([numeric(e, params) for e in step.exprs], prefix)
             temps += [Assignment(n, e) for n, e in zip(step.names, reduced)]
             blocks.append(Block("compute", depth, step.purpose, temps=temps))
-        elif isinstance(step, CosSinEquation):
+            continue
+        hint = list(derivation.unknowns.get(step.key) or ((int(step.key), 1),))
+        if isinstance(step, CosSinEquation):
             exprs = [numeric(e, params) for e in (step.a, step.b, step.c, step.radicand, step.norm)]
             temps, (a, b, c, radicand, norm_value) = eliminate(exprs, prefix)
             constant = norm_value.is_number
-            block = Block("cossin", depth, f"joint {step.joint}: {step.source}", joint=step.joint,
+            block = Block("cossin", depth, f"th{step.key}: {step.source}", key=step.key, hint=hint,
                           temps=temps, threshold=None if constant else step.singular.threshold,
                           mirrored=step.mirror is not None, condition_name=step.branch.name,
                           condition_gain=condition_gain(norm_value, step.singular.threshold))
             specialise_cossin(block, a, b, c, norm_value, radicand)
             blocks.append(block)
-            branch_joints.append(step.joint)
+            branch_joints.append(step.key)
             if step.mirror is not None:
-                mirror = MirrorPlan(step.joint, step.mirror.kind, dict(step.mirror.parities),
+                mirror = MirrorPlan(step.key, step.mirror.kind, dict(step.mirror.parities),
                                     list(step.mirror.label_signs))
             else:
                 depth += 1
@@ -311,8 +352,26 @@ def lower(derivation: Derivation) -> Plan:
                 forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det))
                 if constant_det:
                     break          # a constant determinant never vanishes: later forms are unreachable
-            blocks.append(Block("pair", depth, f"joint {step.joint} from a linear pair", joint=step.joint,
+            blocks.append(Block("pair", depth, f"th{step.key} from a linear pair", key=step.key, hint=hint,
                                 forms=forms, free_possible=not forms[-1].constant_det))
+        elif isinstance(step, AngleSum):
+            cos_value, sin_value = angle_sum_trig(list(step.terms))
+            bound = sum(bounds.get(k, 1) for k, _ in step.terms)
+            bounds[step.key] = bound
+            blocks.append(Block("sum", depth, f"th{step.key}: {step.purpose}", key=step.key, hint=hint,
+                                terms=list(step.terms), cos_expr=cos_value, sin_expr=sin_value, bound=bound))
+        elif isinstance(step, CirclePolynomial):
+            exprs = [numeric(e, params) for e in step.coefficients]
+            temps, reduced = eliminate(exprs, prefix)
+            block = Block("poly", depth, f"th{step.key}: the roots of a polynomial in its cosine and sine "
+                                         f"(th{step.eliminated} eliminated)", key=step.key, hint=hint, temps=temps,
+                          threshold=step.singular.threshold, tolerance=step.tolerance, eliminated=step.eliminated,
+                          condition_name=step.branch.name)
+            block.coefficients = [e if e.is_number else _named(block, e, f"ek{i}_{step.key}")
+                                  for i, e in enumerate(reduced)]
+            blocks.append(block)
+            branch_joints.append(step.key)
+            depth += 1
     label_exprs = [numeric(label.measure, params) for label in derivation.labels]
     final_temps, label_measures = eliminate(label_exprs, "tl_")
     outputs = []
@@ -320,28 +379,34 @@ def lower(derivation: Derivation) -> Plan:
         zero = float(out.zero)
         zero = (zero + 3.141592653589793) % 6.283185307179586 - 3.141592653589793
         scale = float(out.scale)
-        outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale))
+        wraps = max(1, (bounds.get(str(out.joint), 1) + 2) // 2)
+        outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale, wraps))
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
-    mark_needed_trig(blocks, final_temps, label_measures)
-    return Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
+    plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
                 derivation.max_solutions, depth, branch_joints, mirror)
+    drop_unused(plan)
+    return plan
+
+
+def _named(block: Block, expr, name: str) -> sp.Symbol:
+    symbol = sp.Symbol(name, real=True)
+    block.temps.append(Assignment(symbol, expr))
+    return symbol
 
 
 def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
     """Fill a cossin block with the expressions its code needs, simplified for these a, b, c.
 
     Coefficients that are numbers are inlined (so a zero b drops its terms and a unit norm its
-    division); others become named variables ea<j>, eb<j>, ec<j>, en<j>. The roots are
+    division); others become named variables ea<k>, eb<k>, ec<k>, en<k>. The roots are
     cn = a c - sg b root, sn = b c + sg a root, with cos = cn / norm and sin = sn / norm.
     """
-    j = block.joint
+    j = block.key
 
     def named(expr, name):
         if expr.is_number:
             return expr
-        symbol = sp.Symbol(name, real=True)
-        block.temps.append(Assignment(symbol, expr))
-        return symbol
+        return _named(block, expr, name)
 
     a, b, c = named(a, f"ea{j}"), named(b, f"eb{j}"), named(c, f"ec{j}")
     block.norm = named(norm, f"en{j}")
@@ -362,22 +427,44 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
 def block_exprs(block: Block) -> list[sp.Expr]:
     exprs = [a.expr for a in block.temps]
     exprs += [e for e in (block.norm, block.radicand, block.cn, block.sn) if e is not None]
+    if block.kind == "sum":
+        exprs += [e for e, needed in ((block.cos_expr, block.need_cos), (block.sin_expr, block.need_sin)) if needed]
+        exprs += [angle_symbol(k) for k, _ in block.terms]
+    if block.kind == "poly":
+        exprs += [e for e in block.coefficients]
     for form in block.forms:
         exprs += [a.expr for a in form.temps] + [form.det, form.cos_num, form.sin_num]
     return exprs
 
 
-def mark_needed_trig(blocks: list[Block], final_temps, label_measures) -> None:
-    """Set need_cos/need_sin of each cossin block from what later blocks and the labels read."""
-    later: set = set()
-    for e in [a.expr for a in final_temps] + list(label_measures):
-        later |= sp.sympify(e).free_symbols
-    for block in reversed(blocks):
-        if block.kind == "cossin":
-            block.need_cos = cos_symbol(block.joint) in later
-            block.need_sin = sin_symbol(block.joint) in later
+def drop_unused(plan: Plan) -> None:
+    """Dead-code elimination, from the end back: an assignment nobody reads is dropped, an empty
+    compute block disappears, and a solving block computes its cosine and sine only if read."""
+    live: set = set()
+    for e in [a.expr for a in plan.final_temps] + list(plan.label_measures):
+        live |= sp.sympify(e).free_symbols
+    live |= {angle_symbol(out.joint) for out in plan.outputs}
+    kept = []
+    for block in reversed(plan.blocks):
+        if block.kind == "compute":
+            temps = []
+            for assignment in reversed(block.temps):
+                if assignment.target in live:
+                    temps.append(assignment)
+                    live |= sp.sympify(assignment.expr).free_symbols
+            block.temps = list(reversed(temps))
+            if block.temps:
+                kept.append(block)
+            continue
+        if block.kind in ("cossin", "sum", "poly", "pair"):
+            block.need_cos = cos_symbol(block.key) in live
+            block.need_sin = sin_symbol(block.key) in live
+        if block.kind == "sum" and not (block.need_cos or block.need_sin or angle_symbol(block.key) in live):
+            continue
         for e in block_exprs(block):
-            later |= sp.sympify(e).free_symbols
+            live |= sp.sympify(e).free_symbols
+        kept.append(block)
+    plan.blocks = list(reversed(kept))
 
 
 @dataclass
@@ -424,7 +511,7 @@ def header_lines(arm: Arm, derivation: Derivation) -> list[str]:
     if arm.description:
         lines.append(f"Description: {comment_text(arm.description)}")
     lines += [f"Convention: {convention}; {units}",
-              f"Family: {derivation.family}; at most {derivation.max_solutions} solutions",
+              f"Structure: {derivation.family}; at most {derivation.max_solutions} solutions",
               f"Joints: " + ", ".join(f"{j.index} {comment_text(j.name)}" for j in arm.joints),
               f"Generated by {GENERATOR} from an arm file with sha256 {arm.digest[:16]}",
               "Pose input: the tool frame in the world frame, a 4x4 row-major homogeneous matrix "

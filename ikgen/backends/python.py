@@ -69,7 +69,8 @@ def within_test(arm: Arm) -> str:
     return " and ".join(checks) or "True"
 
 
-PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "root": "root{} > 0.0", "not_free": "not free{}"}
+PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "double_root": "dbl{}", "root": "root{} > 0.0",
+                "not_free": "not free{}"}
 
 
 def terms(items: list[tuple[str, int]], forms: dict = PYTHON_TERMS) -> list[str]:

@@ -28,8 +28,8 @@ from markupsafe import Markup
 from sympy.printing.mathml import mathml
 
 from .. import figures
-from ..ir import (GUARD_TOLERANCE, Compute, CosSinEquation, Derivation, LinearPair, angle_symbol,
-                  cos_symbol, sin_symbol)
+from ..ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation, LinearPair,
+                  angle_symbol, cos_symbol, sin_symbol)
 from ..kinematics import NumericChain
 from ..model import Arm
 from . import common
@@ -84,13 +84,27 @@ class Printed:
 
 # ----------------------------------------------------------------------------- symbols
 
-_NAME_RULES = ((r"th(\d+)", r"theta_\1"), (r"sigma(\d+)", r"sigma_\1"), (r"rc(\d+)", r"R_\1"),
+_NAME_RULES = ((r"thp(\d\w*)", r"theta_p\1"), (r"([cs])p(\d\w*)", r"\1_p\2"), (r"rho(\w+)", r"rho_\1"),
+               (r"th(\d+)", r"theta_\1"), (r"sigma(\d+)", r"sigma_\1"), (r"rc(\d+)", r"R_\1"),
                (r"([A-Za-z])(\d+)", r"\1_\2"), (r"([A-Za-z])([xyz])", r"\1_\2"),
                (r"([A-Za-z])(\d+)([xyz])", r"\1_\2\3"))
 
 
 def display_name(name: str) -> str:
-    """The report's name for an IR symbol: th3 -> theta_3, r11 -> r_11, wx -> w_x, rc12 -> R_12."""
+    """The report's name for an IR symbol: th3 -> theta_3, r11 -> r_11, wx -> w_x, rc12 -> R_12,
+    pcx -> o_x (the target position with base and tool removed), g16_13 -> g_16_13 (entry (1,3)
+    of the known side with joints 1 and 6 moved over), cp234 -> c_p234 (a sum of angles)."""
+    folded = re.fullmatch(r"([a-z])(\d+)_(\d\d)", name)
+    if folded:
+        letter, split, entry = folded.groups()
+        if split.startswith("0"):       # nothing moved over from the left: h_5_11 (a subscript may not start with 0)
+            letter, split = "h", split[1:]
+        return f"{letter}_{split}_{entry}"
+    if re.fullmatch(r"pc[xyz]", name):
+        return f"o_{name[2]}"
+    twist = re.fullmatch(r"([cs])a_(\d+)", name)
+    if twist:                           # cosine and sine of a twist: c with subscript alpha 2
+        return f"{twist.group(1)}_alpha_{twist.group(2)}"
     if "_" in name:
         return name
     for pattern, replacement in _NAME_RULES:
@@ -245,11 +259,15 @@ def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
     for symbol in derivation.pose_symbols:
         names.add(symbol, pose_meaning.get(symbol.name, "an entry of the target pose"))
     for symbol in params:
-        names.add(symbol, f"lengths of the DH table ({arm.length_unit}; values above)")
-    for joint in range(1, arm.dof + 1):
-        names.add(cos_symbol(joint), "cosine of the DH angle of the joint, carried so that later steps need no cos()")
-        names.add(sin_symbol(joint), "sine of the DH angle of the joint, carried so that later steps need no sin()")
-        names.add(angle_symbol(joint), "DH joint angle (radians)")
+        meaning = (f"cosine and sine of a twist alpha of the DH table (values above)"
+                   if re.fullmatch(r"[cs]a_\d+", symbol.name) else f"lengths of the DH table ({arm.length_unit}; values above)")
+        names.add(symbol, meaning)
+    for key, members in derivation.unknowns.items():
+        what = "the joint" if len(members) == 1 else "the sum " + unknown_words(members)
+        names.add(cos_symbol(key), f"cosine of {what}'s DH angle, carried so that later steps need no cos()")
+        names.add(sin_symbol(key), f"sine of {what}'s DH angle, carried so that later steps need no sin()")
+        names.add(angle_symbol(key), "DH joint angle (radians)" if len(members) == 1 else
+                  f"the sum {unknown_words(members)} of the angles of parallel axes (radians)")
 
     steps: list[StepView] = []
     guards: list[dict] = []
@@ -262,9 +280,13 @@ def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
                 view.equations.append(Printed(f"s{number}.{name}", shown, "=", names.show(form), expr))
             steps.append(view)
         elif isinstance(step, CosSinEquation):
-            steps.append(cossin_view(number, step, names, params, labels_by_name, guards))
+            steps.append(cossin_view(number, step, names, params, labels_by_name, guards, derivation))
         elif isinstance(step, LinearPair):
-            steps.append(pair_view(number, step, names, params, guards))
+            steps.append(pair_view(number, step, names, params, guards, derivation))
+        elif isinstance(step, AngleSum):
+            steps.append(sum_view(number, step, names, derivation))
+        elif isinstance(step, CirclePolynomial):
+            steps.append(poly_view(number, step, names, params, labels_by_name, guards, derivation))
 
     label_views = []
     for index, label in enumerate(derivation.labels, 1):
@@ -284,15 +306,75 @@ def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
     return Sheet(names, steps, label_views, outputs, guards)
 
 
-def cossin_view(number: int, step: CosSinEquation, names: Names, params, labels_by_name, guards) -> StepView:
-    j = step.joint
+def unknown_words(members) -> str:
+    """theta_2 + theta_3 + theta_4 for the members ((2, 1), (3, 1), (4, 1))."""
+    return " ".join(("- " if sign < 0 else ("+ " if k else "")) + f"theta_{j}" for k, (j, sign) in enumerate(members))
+
+
+def title_of(key: str, derivation: Derivation) -> str:
+    members = derivation.unknowns.get(key, ((int(key), 1),) if key.isdigit() else ())
+    return f"Joint {key}" if len(members) == 1 else f"The sum {unknown_words(members)}"
+
+
+def sum_view(number: int, step: AngleSum, names: Names, derivation: Derivation) -> StepView:
+    """An angle that follows from known angles of parallel axes."""
+    theta = names.map[angle_symbol(step.key)]
+    expr = sp.Add(*[sign * angle_symbol(key) for key, sign in step.terms])
+    view = StepView("sum", number, f"{title_of(step.key, derivation)}: from angles already known", joint=step.key,
+                    source=step.purpose)
+    view.equations = [Printed(f"s{number}.theta", theta, "=", names.show(expr), expr)]
+    view.notes.append("Its cosine and sine follow by the angle-sum rules from the cosines and sines already "
+                      "known, with no call to cos() or sin().")
+    return view
+
+
+def poly_view(number: int, step: CirclePolynomial, names: Names, params, labels_by_name, guards,
+              derivation: Derivation) -> StepView:
+    """Up to four roots of a polynomial of degree two in the cosine and sine of one angle."""
+    j = step.key
+    letters = ("A", "B", "C", "E", "F")
+    meanings = ("constant term", "coefficient of cos", "coefficient of sin", "coefficient of cos times sin",
+                "coefficient of sin squared")
+    symbols = [names.own(report_symbol(letter, j), f"{meaning} of the polynomial A + B c + C s + E c s + F s^2 = 0 "
+                         f"in the cosine and sine of an angle (after an elimination)")
+               for letter, meaning in zip(letters, meanings)]
+    view = StepView("poly", number, f"{title_of(j, derivation)}: up to four roots of one polynomial", joint=j,
+                    source=f"{step.sources[0]}; {step.sources[1]}")
+    view.equations = [Printed(f"s{number}.{letter}", symbol, "=", names.show(readable(k, params)), k)
+                      for letter, symbol, k in zip(letters, symbols, step.coefficients)]
+    c, s_ = names.map[cos_symbol(j)], names.map[sin_symbol(j)]
+    A, B, C, E, F = symbols
+    view.root = [Printed(f"s{number}.P", sp.Integer(0), "=", A + B * c + C * s_ + E * c * s_ + F * s_ ** 2, None)]
+    eliminated = names.map[angle_symbol(step.eliminated)]
+    label = labels_by_name.get(step.branch.name)
+    view.branch = {"name": step.branch.name, "meaning": step.branch.meaning, "joint": j, "roots": "up to four",
+                   "sign_latex": "", "sign_mathml": "", "mirrored": False,
+                   "positive": label.positive if label else "", "negative": label.negative if label else "",
+                   "eliminated_latex": latex(eliminated), "eliminated_mathml": math_block(mathml_of(eliminated), False),
+                   "sources": list(step.sources), "tolerance": threshold_text(step.tolerance),
+                   "tolerance_latex": threshold_latex(step.tolerance)}
+    limit = threshold_text(step.singular.threshold)
+    view.notes.append(f"Singular when A^2 + B^2 + C^2 + E^2 + F^2 <= {limit}: {step.singular.rule}.")
+    guards.append({"joint": j, "what": "reach", "condition": "the polynomial has no real root on the circle",
+                   "rule": "no solution from this branch: the pose is out of reach for it"})
+    guards.append({"joint": j, "what": "tangency", "condition": f"a local extremum within {threshold_text(step.tolerance)} "
+                   "x (|A| + |B| + |C| + |E| + |F|) of zero", "rule": "taken as one double root, flagged singular"})
+    guards.append({"joint": j, "what": "singular", "condition": f"A^2 + B^2 + C^2 + E^2 + F^2 <= {limit}",
+                   "rule": step.singular.rule})
+    return view
+
+
+def cossin_view(number: int, step: CosSinEquation, names: Names, params, labels_by_name, guards,
+                derivation: Derivation) -> StepView:
+    j = step.key
     P = names.own(report_symbol("P", j), "coefficient of cos(theta_j) in P cos(theta_j) + Q sin(theta_j) = K")
     Q = names.own(report_symbol("Q", j), "coefficient of sin(theta_j) in P cos(theta_j) + Q sin(theta_j) = K")
     K = names.own(report_symbol("K", j), "right-hand side of P cos(theta_j) + Q sin(theta_j) = K")
     N = names.own(report_symbol("N", j), "P^2 + Q^2 of that equation (zero only where the joint is undetermined)")
     Delta = names.own(report_symbol("Delta", j), "P^2 + Q^2 - K^2, in the form the solver computes it (the radicand)")
     sigma = names.add(step.branch.sign, "branch signs, +1 or -1")
-    view = StepView("cossin", number, f"Joint {j}: two roots of one equation", joint=j, source=step.source)
+    view = StepView("cossin", number, f"{title_of(j, derivation)}: two roots of one equation", joint=j,
+                    source=step.source)
     view.equations = [Printed(f"s{number}.P", P, "=", names.show(readable(step.a, params)), step.a),
                       Printed(f"s{number}.Q", Q, "=", names.show(readable(step.b, params)), step.b),
                       Printed(f"s{number}.K", K, "=", names.show(readable(step.c, params)), step.c),
@@ -312,7 +394,7 @@ def cossin_view(number: int, step: CosSinEquation, names: Names, params, labels_
     view.branch = {"name": step.branch.name, "sign": sigma, "meaning": step.branch.meaning,
                    "positive": label.positive if label else "", "negative": label.negative if label else "",
                    "sign_mathml": math_block(mathml_of(sigma), False), "sign_latex": latex(sigma),
-                   "joint": j, "mirrored": step.mirror is not None}
+                   "joint": j, "mirrored": step.mirror is not None, "roots": "two"}
     tolerance = threshold_text(2 * GUARD_TOLERANCE)
     guards.append({"joint": j, "what": "reach",
                    "condition": f"Delta_{j} < -{tolerance} N_{j}",
@@ -341,12 +423,12 @@ def cossin_view(number: int, step: CosSinEquation, names: Names, params, labels_
     return view
 
 
-def pair_view(number: int, step: LinearPair, names: Names, params, guards) -> StepView:
-    j = step.joint
+def pair_view(number: int, step: LinearPair, names: Names, params, guards, derivation: Derivation) -> StepView:
+    j = step.key
     D = names.own(report_symbol("D", j), "determinant of a linear pair in cos(theta_j), sin(theta_j)")
     U = names.own(report_symbol("U", j), "numerator of cos(theta_j) in a linear pair: cos(theta_j) = U/D")
     V = names.own(report_symbol("V", j), "numerator of sin(theta_j) in a linear pair: sin(theta_j) = V/D")
-    view = StepView("pair", number, f"Joint {j}: one root of two linear equations", joint=j)
+    view = StepView("pair", number, f"{title_of(j, derivation)}: one root of two linear equations", joint=j)
     for k, form in enumerate(step.forms, 1):
         det_value = common.numeric(form.det, params)
         constant = bool(det_value.is_number and det_value != 0)
@@ -492,10 +574,11 @@ def parameter_rows(arm: Arm, derivation: Derivation, names: Names) -> list[dict]
         exact = sp.nsimplify(value)
         decimal = number_text(float(value), 9)
         kind, joint = symbol.name.split("_", 1)
-        what = "link length a" if kind == "a" else "link offset d"
+        what = {"a": "DH link length a", "d": "DH link offset d", "ca": "cosine of the DH twist alpha",
+                "sa": "sine of the DH twist alpha"}[kind]
         rows.append({"mathml": math_block(mathml_of(shown), False), "latex": latex(shown),
                      "value": decimal, "exact": "" if str(exact) == decimal else str(exact),
-                     "unit": arm.length_unit, "meaning": f"DH {what} of joint {joint}"})
+                     "unit": arm.length_unit if kind in ("a", "d") else "", "meaning": f"{what} of joint {joint}"})
     return rows
 
 

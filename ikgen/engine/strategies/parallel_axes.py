@@ -1,0 +1,70 @@
+"""Strategy: three or more consecutive revolute axes are parallel.
+
+Rotations about parallel axes add up: the links after a run of parallel axes turn by the signed
+sum of the run's angles (th2 + th3 + th4 for the usual run 2-3-4). The strategy makes those sums
+unknowns of their own and lets the product side of every split that holds part of the run be
+written in the run's coordinates (its first angle and the partial sums), so that an entry that
+depends on the sum alone shows a single unknown. The engine then solves the sum like a joint
+(usually from rotation entries, once the joints around the run are known), the planar chain
+inside the run by the law of cosines and a linear pair, and the last member from the sum
+(Murray, Li and Sastry, A Mathematical Introduction to Robotic Manipulation, ch. 3, for the
+planar-chain subproblem; common practice for arms whose shoulder, elbow and first wrist axes
+are parallel).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ...analysis import generic_readings, relate
+from ...kinematics import NumericChain
+from ..labels import elbow_label, reach_label, wrist_bend_label
+from ..pool import Coordinates
+from ..symbols import Unknown
+
+MIN_RUN = 3
+
+
+def runs_of_parallel_axes(arm) -> list[tuple[int, int, tuple[int, ...]]]:
+    """(first, last, signs) for every maximal run of >= MIN_RUN consecutive parallel revolute axes."""
+    chain = NumericChain(arm)
+    origins, directions = chain.joint_axes(generic_readings(arm))
+    runs = []
+    start = 1
+    while start <= arm.dof:
+        end = start
+        while end < arm.dof and arm.joints[end - 1].revolute and arm.joints[end].revolute and \
+                relate(arm, end, end + 1, origins, directions).kind in ("parallel", "coincident"):
+            end += 1
+        if end - start + 1 >= MIN_RUN:
+            signs = tuple(int(np.sign(np.dot(directions[j - 1], directions[start - 1]))) for j in range(start, end + 1))
+            runs.append((start, end, signs))
+        start = end + 1
+    return runs
+
+
+class ParallelAxes:
+    NAME = "parallel axes (three or more consecutive axes parallel)"
+
+    def recognise(self, arm):
+        from . import Finding
+        runs = runs_of_parallel_axes(arm)
+        if not runs:
+            return Finding(False, ["no three consecutive revolute axes are parallel"])
+        words = [f"axes {first} to {last} are parallel: their angles add up (signs {', '.join('+' if s > 0 else '-' for s in signs)})"
+                 for first, last, signs in runs]
+        return Finding(True, words, {"runs": runs})
+
+    def contribute(self, setup, finding) -> None:
+        for first, last, signs in finding.data["runs"]:
+            name = f"the coordinates of parallel axes {first}-{last}"
+            setup.pool.coordinates.append(Coordinates(name, first, last, signs))
+            for a in range(first, last + 1):
+                for b in range(a + 1, last + 1):
+                    members = tuple((j, signs[j - first] * signs[a - first]) for j in range(a, b + 1))
+                    setup.extra_unknowns.append(Unknown.sum_of(members))
+        if not setup.labels and setup.arm.dof == 6:
+            setup.labels += [reach_label(setup, None), elbow_label(setup, None), wrist_bend_label(setup)]
+
+
+STRATEGY = ParallelAxes()
