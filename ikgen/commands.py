@@ -13,7 +13,7 @@ from .backends.common import identifier
 from .errors import PATH_LIMIT, IkgenError, VerificationError, clip, quote
 from .exact import plain_whole
 from .generate import build, build_report, load_module, stale, write
-from .terminal import err, fmt, out, table
+from .terminal import err, out, table
 from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, SOLUTION_BUDGET, Verification, verify, workload_note
 
 MAX_SAMPLES = 1_000_000     # verification samples (-n): beyond this the poses alone need gigabytes

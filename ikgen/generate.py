@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import importlib.util
 import os
-import sys
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path

@@ -20,7 +20,6 @@ import dataclasses
 import hashlib
 import json
 import math
-import pathlib
 import re
 import subprocess
 import sys

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import pytest
 
-from helpers import EXAMPLES, ROOT
+from helpers import EXAMPLES
 from ikgen.cli import main
 
 BENCHTOP = (EXAMPLES / "benchtop6.toml").read_text(encoding="utf-8")

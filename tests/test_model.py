@@ -8,8 +8,6 @@ generated solvers' turn tables (backends.common.joint_turns) must count the same
 
 from __future__ import annotations
 
-import math
-import re
 
 import pytest
 

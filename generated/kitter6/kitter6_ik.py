@@ -74,8 +74,9 @@ class Solution(tuple):
     def conditioning(self):
         """One measure per CONDITION_NAMES entry: 0 at that branch's singular set, larger away from
         it (for the usual arm: |sin| of the elbow's angle from full stretch, |sin| of the middle wrist
-        joint, and for the shoulder the wrist centre's coordinate along link 1's x axis measured from
-        axis 1, over a fixed power-of-ten length); slow down as one nears 0."""
+        joint, and for the reach the wrist point's coordinate along link 1's x axis measured from
+        axis 1, over a fixed power-of-ten length; for a polynomial's root, its slope over the size
+        of its coefficients); slow down as one nears 0."""
         return self[3]
 
     @property
@@ -160,7 +161,7 @@ def _matches(config, wanted):
 
 def nearest(pose, current, weights=None, config=None, limits="drop"):
     """The solution closest to ``current`` (of configuration ``config`` if given: a dict such as
-    {"elbow": "up"} or a sequence with None for 'any'), or None when there is none."""
+    {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
     best = None
     best_distance = 0.0
     for solution in inverse(pose, current, limits):

@@ -259,7 +259,7 @@ def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
     for symbol in derivation.pose_symbols:
         names.add(symbol, pose_meaning.get(symbol.name, "an entry of the target pose"))
     for symbol in params:
-        meaning = (f"cosine and sine of a twist alpha of the DH table (values above)"
+        meaning = ("cosine and sine of a twist alpha of the DH table (values above)"
                    if re.fullmatch(r"[cs]a_\d+", symbol.name) else f"lengths of the DH table ({arm.length_unit}; values above)")
         names.add(symbol, meaning)
     for key, members in derivation.unknowns.items():

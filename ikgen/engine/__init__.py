@@ -19,11 +19,10 @@ from ..errors import StructureError
 from ..ir import CirclePolynomial, CosSinEquation, Derivation, JointOutput
 from ..model import Arm
 from .context import make_setup
-from .labels import LABEL_VALUES, MEANINGS
+from .labels import MEANINGS
 from .mirror import attach_mirror
 from .solver import Solver, free_symbols_of
 from .strategies import STRATEGIES
-from .symbols import Unknown
 
 BRANCH_ROLES = {"1": "reach", "3": "elbow", "5": "wrist_bend"}
 

@@ -483,15 +483,14 @@ class Solver:
 
     # ------------------------------------------------------------------ failure
     def stuck_message(self, remaining, closure) -> str:
-        reached = []
-        for equation in self.pool.equations:
-            left = equation.depends - closure
-            if left and len(reached) < 6 and len(left) <= 3:
-                reached.append(f"{equation.source} (unknowns {', '.join('th' + k for k in sorted(left, key=key_order))})")
+        open_equations = sorted(((len(e.depends - closure), e.number, e) for e in self.pool.equations
+                                 if e.depends - closure), key=lambda item: item[:2])
+        reached = [f"{e.source} (unknowns {', '.join('th' + k for k in sorted(e.depends - closure, key=key_order))})"
+                   for _, _, e in open_equations[:4]]
         known = ", ".join("th" + k for k in sorted(closure, key=key_order)) or "none"
         return ("no equation with a single unknown is left for "
                 + ", ".join("th" + k for k in remaining) + f" (known: {known}), and no two equations in two "
-                "unknowns reduce to a polynomial of degree four or less. Equations reached, for example: "
+                "unknowns reduce to a polynomial of degree four or less. The equations with the fewest unknowns: "
                 + "; ".join(reached))
 
 

@@ -43,6 +43,19 @@ def runs_of_parallel_axes(arm) -> list[tuple[int, int, tuple[int, ...]]]:
     return runs
 
 
+def closest_to_parallel(arm) -> str:
+    """Words for the two consecutive pairs of axes nearest to parallel (a run needs 0 deg twice)."""
+    chain = NumericChain(arm)
+    origins, directions = chain.joint_axes(generic_readings(arm))
+    angles = [(float(np.degrees(relate(arm, j, j + 1, origins, directions).angle)), j) for j in range(1, arm.dof)]
+    best = min(((a + b, j) for (a, j), (b, _) in zip(angles, angles[1:])), default=None)
+    if best is None:
+        return "too few joints"
+    j = best[1]
+    return (f"the nearest are axes {j} to {j + 2}, at {angles[j - 1][0]:.4g} and {angles[j][0]:.4g} deg between "
+            "neighbours; parallel axes would be at 0")
+
+
 class ParallelAxes:
     NAME = "parallel axes (three or more consecutive axes parallel)"
 
@@ -50,7 +63,7 @@ class ParallelAxes:
         from . import Finding
         runs = runs_of_parallel_axes(arm)
         if not runs:
-            return Finding(False, ["no three consecutive revolute axes are parallel"])
+            return Finding(False, ["no three consecutive revolute axes are parallel (" + closest_to_parallel(arm) + ")"])
         words = [f"axes {first} to {last} are parallel: their angles add up (signs {', '.join('+' if s > 0 else '-' for s in signs)})"
                  for first, last, signs in runs]
         return Finding(True, words, {"runs": runs})

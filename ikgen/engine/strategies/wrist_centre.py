@@ -38,7 +38,8 @@ class WristCentre:
             return Finding(False, [f"the arm has {arm.dof} joints; three meeting axes need at least 3"])
         first = self.first_axis(arm)
         check = check_wrist(arm, first)
-        words = check.words if check.meets else [f"axes {first}, {first + 1}, {first + 2} do not meet in one point: "
+        words = check.words if check.meets else [f"axes {first}, {first + 1}, {first + 2} do not meet in one point "
+                                                 f"(meeting axes would be 0 {arm.length_unit} apart): "
                                                  + "; ".join(check.words)]
         return Finding(check.meets, words, {"first": first})
 
