@@ -110,6 +110,13 @@ class Arm:
 
     def reach_scale(self) -> float:
         """A length that sets the arm's scale: the sum of |a| and |d| over the chain, plus base and tool offsets."""
+        cached = self.__dict__.get("_reach_scale")
+        if cached is None:
+            cached = self._reach_scale_now()
+            object.__setattr__(self, "_reach_scale", cached)     # frozen: computed once, kept
+        return cached
+
+    def _reach_scale_now(self) -> float:
         total = sum(abs(float(j.a)) + abs(float(j.d)) + (abs(float(j.offset)) if not j.revolute else 0.0)
                     for j in self.joints)
         total += float(sp.Matrix(self.base[:3, 3]).norm()) + float(sp.Matrix(self.tool[:3, 3]).norm())

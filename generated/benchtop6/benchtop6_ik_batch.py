@@ -105,12 +105,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = (total - total) == 0.0
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         rc11 = r11
+        rc12 = r12
         rc13 = r13
         pcx = px - 95*r13
         rc21 = r21
+        rc22 = r22
         rc23 = r23
         pcy = py - 95*r23
         rc31 = r31
+        rc32 = r32
         rc33 = r33
         pcz = pz - 95*r33
 
@@ -162,17 +165,95 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s3 = 6.37624974495001e-11*sn3
         cond3 = root3 * 7.985142293628842e-06
 
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+        g16_11 = c1*rc11 + rc21*s1
+        g16_12 = c1*rc12 + rc22*s1
+        g16_13 = c1*rc13 + rc23*s1
+        g16_14 = c1*pcx + pcy*s1 - 25
+        g16_21 = -rc31
+        g16_22 = -rc32
+        g16_23 = -rc33
+        g16_24 = 220 - pcz
+        g16_31 = c1*rc21 - rc11*s1
+        g16_32 = c1*rc22 - rc12*s1
+        g16_33 = c1*rc23 - rc13*s1
+        g16_34 = c1*pcy - pcx*s1
+
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t6_0_0 = 20*v1x
-        t6_0_1 = c3*v1y
-        t6_0_2 = s3*v1y
+        t7_0_0 = 20*v1x
+        t7_0_1 = c3*v1y
+        t7_0_2 = s3*v1y
 
         dt2 = -v1x*v1x - v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (-c3*t6_0_0 + 240*s3*v1x - 240*t6_0_1 - 20*t6_0_2 - 260*v1x) / dt2
-        s2 = (240*c3*v1x + s3*t6_0_0 - 20*t6_0_1 + 240*t6_0_2 - 260*v1y) / dt2
+        c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
+        s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2
         chosen2 = chosen2 | use
+        if not chosen2.all():
+            t7_1_0 = g16_14*v1x
+            t7_1_1 = g16_14*v1y
+            t7_1_2 = g16_24*v1x
+            t7_1_3 = g16_24*v1y
+            t7_1_4 = 520*c3
+            t7_1_5 = 520*s3
+            t7_1_6 = 124800*g16_14
+            t7_1_7 = 10400*v1y
+            t7_1_8 = c3*v1y
+            t7_1_9 = g16_14*s3
+            t7_1_10 = s3*v1x
+            t7_1_11 = 124800*g16_24
+            t7_1_12 = c3*s3
+            t7_1_13 = 10400*v1x
+            t7_1_14 = s3*s3
+            t7_1_15 = 10400*t7_1_14
+            t7_1_16 = g16_14*g16_14
+            t7_1_17 = g16_24*g16_24
+            t7_1_18 = g16_34*g16_34
+            t7_1_19 = c3*v1x
+            t7_1_20 = s3*v1y
+
+            dt2 = -t7_1_0*t7_1_5 + 480*t7_1_0 + t7_1_1*t7_1_4 + 40*t7_1_1 - t7_1_2*t7_1_4 - 40*t7_1_2 - t7_1_3*t7_1_5 + 480*t7_1_3
+            use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
+            c2 = numpy.where(use, (9600*c3*g16_14 - 136000*c3*g16_24 + 10400*c3*t7_1_9 + 9600*g16_24*s3 + g16_24*t7_1_15 - 20800*g16_24 - 124800*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700*t7_1_8 + 800*t7_1_9) / dt2, c2)
+            s2 = numpy.where(use, (136000*c3*g16_14 + 10400*c3*g16_24*s3 + 9600*c3*g16_24 + 124800*c3*s3*v1x - g16_14*t7_1_15 + 20800*g16_14 + 800*g16_24*s3 + 124800*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400*t7_1_14*v1x + 124800*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700*t7_1_19 - 120700*t7_1_20 - 9600*t7_1_9) / dt2, s2)
+            chosen2 = chosen2 | use
+        if not chosen2.all():
+            t7_2_0 = g16_13*v1x
+            t7_2_1 = g16_14*v1x
+            t7_2_2 = g16_23*v1y
+            t7_2_3 = g16_24*v1y
+            t7_2_4 = 2800*c3
+            t7_2_5 = g16_13*v1y
+            t7_2_6 = 33600*c3
+            t7_2_7 = 40*c3
+            t7_2_8 = 480*c3
+            t7_2_9 = g16_14*v1y
+            t7_2_10 = g16_23*v1x
+            t7_2_11 = g16_24*v1x
+            t7_2_12 = 33600*s3
+            t7_2_13 = 2800*s3
+            t7_2_14 = 480*s3
+            t7_2_15 = 40*s3
+            t7_2_16 = 10400*c3
+            t7_2_17 = g16_14*g16_14
+            t7_2_18 = g16_24*g16_24
+            t7_2_19 = g16_34*g16_34
+            t7_2_20 = c3*s3
+            t7_2_21 = g16_23*t7_2_20
+            t7_2_22 = s3*s3
+            t7_2_23 = g16_13*g16_13
+            t7_2_24 = 4900*v1x
+            t7_2_25 = 114400*t7_2_22
+            t7_2_26 = g16_23*g16_23
+            t7_2_27 = g16_33*g16_33
+            t7_2_28 = 4900*v1y
+
+            dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400*t7_2_2 - t7_2_3*t7_2_7 - 520*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
+            use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
+            c2 = numpy.where(use, (19200*c3*g16_14*s3 + 8736000*c3*g16_23 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 + 140*g16_23*g16_24*v1x + 728000*g16_23*s3 - 1344000*g16_23*t7_2_22 + 672000*g16_23 - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2, c2)
+            s2 = numpy.where(use, (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 + 140*g16_23*g16_24*v1y + 8008000*g16_23*t7_2_22 - 8064000*g16_23 - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2, s2)
+            chosen2 = chosen2 | use
         free2 = ~chosen2
         valid = valid & ~(chosen2 & (numpy.abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4))
         th2 = numpy.arctan2(s2, c2)
@@ -181,28 +262,26 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_13 = c1*rc13 + rc23*s1
-        g16_21 = -rc31
-        g16_23 = -rc33
-        g16_31 = c1*rc21 - rc11*s1
-        g16_33 = c1*rc23 - rc13*s1
-
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         g26_11 = c2*g16_11 + g16_21*s2
+        g26_12 = c2*g16_12 + g16_22*s2
         g26_13 = c2*g16_13 + g16_23*s2
         g26_21 = c2*g16_21 - g16_11*s2
+        g26_22 = c2*g16_22 - g16_12*s2
         g26_23 = c2*g16_23 - g16_13*s2
         g26_31 = g16_31
+        g26_32 = g16_32
         g26_33 = g16_33
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
+        g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
         g36_21 = -g26_31
+        g36_22 = -g26_32
         g36_23 = -g26_33
         g36_31 = c3*g26_21 - g26_11*s3
+        g36_32 = c3*g26_22 - g26_12*s3
         g36_33 = c3*g26_23 - g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
@@ -223,10 +302,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th4 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen4 = numpy.zeros((), dtype=bool)
 
-        dt4 = s5*s5
+        dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
-        c4 = (-g36_13*s5) / dt4
-        s4 = (-g36_23*s5) / dt4
+        c4 = (g36_13*s5) / dt4
+        s4 = (g36_23*s5) / dt4
         chosen4 = chosen4 | use
         free4 = ~chosen4
         valid = valid & ~(chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4))
@@ -238,12 +317,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g36_21*s4
+        g46_12 = c4*g36_12 + g36_22*s4
         g46_21 = g36_31
-        g46_31 = -c4*g36_21 + g36_11*s4
+        g46_22 = g36_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g56_11 = c5*g46_11 + g46_21*s5
-        g56_21 = -g46_31
+        g56_12 = c5*g46_12 + g46_22*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
@@ -251,7 +331,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt6 = 1
         use = ~chosen6
         c6 = (g56_11) / dt6
-        s6 = (g56_21) / dt6
+        s6 = (-g56_12) / dt6
         chosen6 = chosen6 | use
         valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
         th6 = numpy.arctan2(s6, c6)

@@ -110,12 +110,15 @@ static int closed_form(const float pose[16], const float *current,
 {
     int count = 0;
     const float r11 = pose[0];
+    const float r12 = pose[1];
     const float r13 = pose[2];
     const float px = pose[3];
     const float r21 = pose[4];
+    const float r22 = pose[5];
     const float r23 = pose[6];
     const float py = pose[7];
     const float r31 = pose[8];
+    const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
     const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
@@ -127,12 +130,15 @@ static int closed_form(const float pose[16], const float *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = r11;
+    const float rc12 = r12;
     const float rc13 = r13;
     const float pcx = px - 95.0f*r13;
     const float rc21 = r21;
+    const float rc22 = r22;
     const float rc23 = r23;
     const float pcy = py - 95.0f*r23;
     const float rc31 = r31;
+    const float rc32 = r32;
     const float rc33 = r33;
     const float pcz = pz - 95.0f*r33;
 
@@ -196,18 +202,100 @@ static int closed_form(const float pose[16], const float *current,
             c3 = 6.37624974e-11f*cn3;
             s3 = 6.37624974e-11f*sn3;
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const float g16_11 = c1*rc11 + rc21*s1;
+            const float g16_12 = c1*rc12 + rc22*s1;
+            const float g16_13 = c1*rc13 + rc23*s1;
+            const float g16_14 = c1*pcx + pcy*s1 - 25.0f;
+            const float g16_21 = -rc31;
+            const float g16_22 = -rc32;
+            const float g16_23 = -rc33;
+            const float g16_24 = 220.0f - pcz;
+            const float g16_31 = c1*rc21 - rc11*s1;
+            const float g16_32 = c1*rc22 - rc12*s1;
+            const float g16_33 = c1*rc23 - rc13*s1;
+            const float g16_34 = c1*pcy - pcx*s1;
+
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t6_0_0 = 20.0f*v1x;
-                const float t6_0_1 = c3*v1y;
-                const float t6_0_2 = s3*v1y;
+                const float t7_0_0 = 20.0f*v1x;
+                const float t7_0_1 = c3*v1y;
+                const float t7_0_2 = s3*v1y;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (-c3*t6_0_0 + 240.0f*s3*v1x - 240.0f*t6_0_1 - 20.0f*t6_0_2 - 260.0f*v1x) / dt2;
-                    s2 = (240.0f*c3*v1x + s3*t6_0_0 - 20.0f*t6_0_1 + 240.0f*t6_0_2 - 260.0f*v1y) / dt2;
+                    c2 = (-c3*t7_0_0 + 240.0f*s3*v1x - 240.0f*t7_0_1 - 20.0f*t7_0_2 - 260.0f*v1x) / dt2;
+                    s2 = (240.0f*c3*v1x + s3*t7_0_0 - 20.0f*t7_0_1 + 240.0f*t7_0_2 - 260.0f*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_1_0 = g16_14*v1x;
+                const float t7_1_1 = g16_14*v1y;
+                const float t7_1_2 = g16_24*v1x;
+                const float t7_1_3 = g16_24*v1y;
+                const float t7_1_4 = 520.0f*c3;
+                const float t7_1_5 = 520.0f*s3;
+                const float t7_1_6 = 124800.0f*g16_14;
+                const float t7_1_7 = 10400.0f*v1y;
+                const float t7_1_8 = c3*v1y;
+                const float t7_1_9 = g16_14*s3;
+                const float t7_1_10 = s3*v1x;
+                const float t7_1_11 = 124800.0f*g16_24;
+                const float t7_1_12 = c3*s3;
+                const float t7_1_13 = 10400.0f*v1x;
+                const float t7_1_14 = s3*s3;
+                const float t7_1_15 = 10400.0f*t7_1_14;
+                const float t7_1_16 = g16_14*g16_14;
+                const float t7_1_17 = g16_24*g16_24;
+                const float t7_1_18 = g16_34*g16_34;
+                const float t7_1_19 = c3*v1x;
+                const float t7_1_20 = s3*v1y;
+
+                dt2 = -t7_1_0*t7_1_5 + 480.0f*t7_1_0 + t7_1_1*t7_1_4 + 40.0f*t7_1_1 - t7_1_2*t7_1_4 - 40.0f*t7_1_2 - t7_1_3*t7_1_5 + 480.0f*t7_1_3;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (9600.0f*c3*g16_14 - 136000.0f*c3*g16_24 + 10400.0f*c3*t7_1_9 + 9600.0f*g16_24*s3 + g16_24*t7_1_15 - 20800.0f*g16_24 - 124800.0f*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0f*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0f*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0f*t7_1_8 + 800.0f*t7_1_9) / dt2;
+                    s2 = (136000.0f*c3*g16_14 + 10400.0f*c3*g16_24*s3 + 9600.0f*c3*g16_24 + 124800.0f*c3*s3*v1x - g16_14*t7_1_15 + 20800.0f*g16_14 + 800.0f*g16_24*s3 + 124800.0f*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0f*t7_1_14*v1x + 124800.0f*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0f*t7_1_19 - 120700.0f*t7_1_20 - 9600.0f*t7_1_9) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_2_0 = g16_13*v1x;
+                const float t7_2_1 = g16_14*v1x;
+                const float t7_2_2 = g16_23*v1y;
+                const float t7_2_3 = g16_24*v1y;
+                const float t7_2_4 = 2800.0f*c3;
+                const float t7_2_5 = g16_13*v1y;
+                const float t7_2_6 = 33600.0f*c3;
+                const float t7_2_7 = 40.0f*c3;
+                const float t7_2_8 = 480.0f*c3;
+                const float t7_2_9 = g16_14*v1y;
+                const float t7_2_10 = g16_23*v1x;
+                const float t7_2_11 = g16_24*v1x;
+                const float t7_2_12 = 33600.0f*s3;
+                const float t7_2_13 = 2800.0f*s3;
+                const float t7_2_14 = 480.0f*s3;
+                const float t7_2_15 = 40.0f*s3;
+                const float t7_2_16 = 10400.0f*c3;
+                const float t7_2_17 = g16_14*g16_14;
+                const float t7_2_18 = g16_24*g16_24;
+                const float t7_2_19 = g16_34*g16_34;
+                const float t7_2_20 = c3*s3;
+                const float t7_2_21 = g16_23*t7_2_20;
+                const float t7_2_22 = s3*s3;
+                const float t7_2_23 = g16_13*g16_13;
+                const float t7_2_24 = 4900.0f*v1x;
+                const float t7_2_25 = 114400.0f*t7_2_22;
+                const float t7_2_26 = g16_23*g16_23;
+                const float t7_2_27 = g16_33*g16_33;
+                const float t7_2_28 = 4900.0f*v1y;
+
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0f*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0f*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0f*t7_2_2 - t7_2_3*t7_2_7 - 520.0f*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (19200.0f*c3*g16_14*s3 + 8736000.0f*c3*g16_23 + 114400.0f*c3*g16_24*s3 - 124800.0f*c3*g16_24 + 140.0f*g16_13*g16_14*v1x - 1344000.0f*g16_13*t7_2_20 + 8008000.0f*g16_13*t7_2_22 - 8064000.0f*g16_13 - g16_14*t7_2_25 + 115200.0f*g16_14 + 140.0f*g16_23*g16_24*v1x + 728000.0f*g16_23*s3 - 1344000.0f*g16_23*t7_2_22 + 672000.0f*g16_23 - 10400.0f*g16_24*s3 + 19200.0f*g16_24*t7_2_22 - 9600.0f*g16_24 + 140.0f*g16_33*g16_34*v1x + 124800.0f*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0f*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0f*v1x) / dt2;
+                    s2 = (8008000.0f*c3*g16_13*s3 - 8736000.0f*c3*g16_13 + 124800.0f*c3*g16_14 + 19200.0f*c3*g16_24*s3 + 140.0f*g16_13*g16_14*v1y - 728000.0f*g16_13*s3 + 1344000.0f*g16_13*t7_2_22 - 672000.0f*g16_13 + 10400.0f*g16_14*s3 - 114400.0f*g16_14*t7_2_20 - 19200.0f*g16_14*t7_2_22 + 9600.0f*g16_14 + 140.0f*g16_23*g16_24*v1y + 8008000.0f*g16_23*t7_2_22 - 8064000.0f*g16_23 - g16_24*t7_2_25 + 115200.0f*g16_24 + 140.0f*g16_33*g16_34*v1y + 124800.0f*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0f*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -222,28 +310,26 @@ static int closed_form(const float pose[16], const float *current,
                 th2 = atan2f(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + rc21*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
-            const float g16_21 = -rc31;
-            const float g16_23 = -rc33;
-            const float g16_31 = c1*rc21 - rc11*s1;
-            const float g16_33 = c1*rc23 - rc13*s1;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float g26_11 = c2*g16_11 + g16_21*s2;
+            const float g26_12 = c2*g16_12 + g16_22*s2;
             const float g26_13 = c2*g16_13 + g16_23*s2;
             const float g26_21 = c2*g16_21 - g16_11*s2;
+            const float g26_22 = c2*g16_22 - g16_12*s2;
             const float g26_23 = c2*g16_23 - g16_13*s2;
             const float g26_31 = g16_31;
+            const float g26_32 = g16_32;
             const float g26_33 = g16_33;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
+            const float g36_12 = c3*g26_12 + g26_22*s3;
             const float g36_13 = c3*g26_13 + g26_23*s3;
             const float g36_21 = -g26_31;
+            const float g36_22 = -g26_32;
             const float g36_23 = -g26_33;
             const float g36_31 = c3*g26_21 - g26_11*s3;
+            const float g36_32 = c3*g26_22 - g26_12*s3;
             const float g36_33 = c3*g26_23 - g26_13*s3;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
@@ -270,10 +356,10 @@ static int closed_form(const float pose[16], const float *current,
                 int free4 = 1;
                 {
 
-                    dt4 = s5*s5;
+                    dt4 = -s5*s5;
                     if (fabsf(dt4) > 1e-20f) {
-                        c4 = (-g36_13*s5) / dt4;
-                        s4 = (-g36_23*s5) / dt4;
+                        c4 = (g36_13*s5) / dt4;
+                        s4 = (g36_23*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -290,12 +376,13 @@ static int closed_form(const float pose[16], const float *current,
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
                 const float g46_11 = c4*g36_11 + g36_21*s4;
+                const float g46_12 = c4*g36_12 + g36_22*s4;
                 const float g46_21 = g36_31;
-                const float g46_31 = -c4*g36_21 + g36_11*s4;
+                const float g46_22 = g36_32;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
                 const float g56_11 = c5*g46_11 + g46_21*s5;
-                const float g56_21 = -g46_31;
+                const float g56_12 = c5*g46_12 + g46_22*s5;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 float th6, c6 = 0.0f, s6 = 0.0f, dt6;
@@ -304,7 +391,7 @@ static int closed_form(const float pose[16], const float *current,
 
                     dt6 = 1.0f;
                     c6 = (g56_11) / dt6;
-                    s6 = (g56_21) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

@@ -329,12 +329,15 @@ static int closed_form(const double pose[16], const double *current,
 {
     int count = 0;
     const double r11 = pose[0];
+    const double r12 = pose[1];
     const double r13 = pose[2];
     const double px = pose[3];
     const double r21 = pose[4];
+    const double r22 = pose[5];
     const double r23 = pose[6];
     const double py = pose[7];
     const double r31 = pose[8];
+    const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
     const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
@@ -346,12 +349,15 @@ static int closed_form(const double pose[16], const double *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const double rc11 = r11;
+    const double rc12 = r12;
     const double rc13 = r13;
     const double pcx = px - 10.0*r11 - 45.0*r13;
     const double rc21 = r21;
+    const double rc22 = r22;
     const double rc23 = r23;
     const double pcy = py - 10.0*r21 - 45.0*r23;
     const double rc31 = r31;
+    const double rc32 = r32;
     const double rc33 = r33;
     const double pcz = pz - 10.0*r31 - 45.0*r33;
 
@@ -420,24 +426,125 @@ static int closed_form(const double pose[16], const double *current,
             th1 = atan2(s1, c1);
         }
 
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double t5_0 = 0.5*c1;
+        const double t5_1 = 0.5*s1;
+        const double t5_2 = 0.8660254037844386*c1;
+        const double t5_3 = 0.8660254037844386*s1;
+        const double g16_11 = c1*rc11 + rc21*s1;
+        const double g16_12 = c1*rc12 + rc22*s1;
+        const double g16_13 = c1*rc13 + rc23*s1;
+        const double g16_14 = c1*pcx + pcy*s1 - 50.0;
+        const double g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.8660254037844386*rc31;
+        const double g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.8660254037844386*rc32;
+        const double g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.8660254037844386*rc33;
+        const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
+        const double g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5*rc31;
+        const double g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5*rc32;
+        const double g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5*rc33;
+        const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
+
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const double t5_0 = c1*wy;
+        const double t6_0 = c1*wy;
         const double v1x = c1*wx + s1*wy - 50.0;
-        const double v1y = -0.5*s1*wx + 0.5*t5_0 + 0.8660254037844386*wz - 259.8076211353316;
-        const double v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t5_0 + 0.5*wz - 150.0;
+        const double v1y = -0.5*s1*wx + 0.5*t6_0 + 0.8660254037844386*wz - 259.8076211353316;
+        const double v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t6_0 + 0.5*wz - 150.0;
 
         /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th2, c2 = 0.0, s2 = 0.0, dt2;
         int free2 = 1;
         {
-            const double t6_0_0 = 0.8660254037844386*v1z;
-            const double t6_0_1 = 10.0*c3;
-            const double t6_0_2 = 140.0*s3;
+            const double t7_0_0 = 20.0*v1y;
+            const double t7_0_1 = 17.320508075688775*c3;
+            const double t7_0_2 = 242.48711305964281*s3;
+            const double t7_0_3 = 0.5*v1z;
+            const double t7_0_4 = 280.0*c3;
+            const double t7_0_5 = 20.0*v1x;
 
-            dt2 = 0.5*v1x*v1x + 0.5*v1y*v1y;
+            dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y;
             if (fabs(dt2) > 9.9999999999999988e-16) {
-                c2 = (t6_0_0*v1y + t6_0_1*v1x + t6_0_2*v1x + 150.0*v1x - 34.641016151377549*v1y) / dt2;
-                s2 = (-t6_0_0*v1x + t6_0_1*v1y + t6_0_2*v1y + 34.641016151377549*v1x + 150.0*v1y) / dt2;
+                c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2;
+                s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2;
+                free2 = 0;
+            }
+        }
+        if (free2) {
+            const double t7_1_0 = g16_13*v1x;
+            const double t7_1_1 = g16_14*v1x;
+            const double t7_1_2 = g16_23*v1y;
+            const double t7_1_3 = g16_24*v1y;
+            const double t7_1_4 = 2078.4609690826528*c3;
+            const double t7_1_5 = 34.641016151377549*c3;
+            const double t7_1_6 = 29098.453567157139*s3;
+            const double t7_1_7 = 484.97422611928562*s3;
+            const double t7_1_8 = c3*v1y;
+            const double t7_1_9 = c3*v1x;
+            const double t7_1_10 = s3*v1y;
+            const double t7_1_11 = s3*v1x;
+            const double t7_1_12 = 9699.4845223857137*c3;
+            const double t7_1_13 = 692.8203230275509*c3;
+            const double t7_1_14 = 41569.219381653056*s3;
+            const double t7_1_15 = 4156.9219381653056*g16_33;
+            const double t7_1_16 = 146185.08815881325*s3;
+            const double t7_1_17 = c3*v1z;
+            const double t7_1_18 = 14549.22678357857*t7_1_17;
+            const double t7_1_19 = g16_14*s3;
+            const double t7_1_20 = 19398.969044771427*c3;
+            const double t7_1_21 = 242.48711305964281*g16_34;
+            const double t7_1_22 = 17.320508075688775*v1z;
+            const double t7_1_23 = 1039.2304845413264*g16_33;
+            const double t7_1_24 = g16_23*s3;
+            const double t7_1_25 = s3*s3;
+            const double t7_1_26 = g16_13*g16_13;
+            const double t7_1_27 = 3117.6914536239792*v1x;
+            const double t7_1_28 = 135099.96299037244*t7_1_25;
+            const double t7_1_29 = g16_14*g16_14;
+            const double t7_1_30 = 0.8660254037844386*v1x;
+            const double t7_1_31 = g16_23*g16_23;
+            const double t7_1_32 = g16_24*g16_24;
+            const double t7_1_33 = g16_33*g16_33;
+            const double t7_1_34 = g16_34*g16_34;
+            const double t7_1_35 = g16_24*s3;
+            const double t7_1_36 = 3117.6914536239792*v1y;
+            const double t7_1_37 = 0.8660254037844386*v1y;
+
+            dt2 = -1800.0*g16_13*t7_1_10 + 25200.0*g16_13*t7_1_8 + 30.0*g16_14*t7_1_10 - 420.0*g16_14*t7_1_8 + 1800.0*g16_23*t7_1_11 - 25200.0*g16_23*t7_1_9 - 30.0*g16_24*t7_1_11 + 420.0*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.91453623979*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.6152422706632*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.91453623979*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.6152422706632*t7_1_3;
+            if (fabs(dt2) > 9.9999999999999998e-13) {
+                c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.07134314277*c3*g16_13 + 242.48711305964281*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.7794223456*g16_13*t7_1_25 - 8147566.9988039983*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.282032302755098*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2;
+                s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.07134314277*c3*g16_23 + 242.48711305964281*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.7794223456*g16_23*t7_1_25 - 8147566.9988039983*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.282032302755098*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2;
+                free2 = 0;
+            }
+        }
+        if (free2) {
+            const double t7_2_0 = c1*c3;
+            const double t7_2_1 = c1*s3;
+            const double t7_2_2 = c3*s1;
+            const double t7_2_3 = s1*s3;
+            const double t7_2_4 = c3*t7_2_1;
+            const double t7_2_5 = s3*t7_2_2;
+            const double t7_2_6 = s3*s3;
+            const double t7_2_7 = c1*t7_2_6;
+            const double t7_2_8 = s1*t7_2_6;
+            const double t7_2_9 = c3*wx;
+            const double t7_2_10 = s3*wx;
+            const double t7_2_11 = wx*wx;
+            const double t7_2_12 = 150.0*s1;
+            const double t7_2_13 = wy*wy;
+            const double t7_2_14 = wz*wz;
+            const double t7_2_15 = 242.48711305964281*t7_2_0;
+            const double t7_2_16 = 17.320508075688775*t7_2_1;
+            const double t7_2_17 = 10.0*t7_2_2;
+            const double t7_2_18 = 140.0*t7_2_3;
+            const double t7_2_19 = 300.0*c1;
+            const double t7_2_20 = 121.2435565298214*t7_2_2;
+            const double t7_2_21 = 8.6602540378443873*t7_2_3;
+            const double t7_2_22 = 20.0*t7_2_0;
+            const double t7_2_23 = 280.0*t7_2_1;
+
+            dt2 = 77526594.14678295*c1 + 7460000.0*s1 + 6235382.9072479587*t7_2_0 + 87295360.701471418*t7_2_1 + 600000.0*t7_2_2 + 8400000.0*t7_2_3 + 1454922.6783578568*t7_2_4 + 140000.0*t7_2_5 + 10132497.224277932*t7_2_7 + 975000.0*t7_2_8;
+            if (fabs(dt2) > 9.999999999999999e-14) {
+                c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.572526932*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.21702821681*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.956365012*t7_2_4 + 21180000.0*t7_2_5 + 7014805.7706539528*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2;
+                s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.388713367*t7_2_2 + 3922229.0537397228*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.495624591*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2;
                 free2 = 0;
             }
         }
@@ -452,39 +559,33 @@ static int closed_form(const double pose[16], const double *current,
             th2 = atan2(s2, c2);
         }
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const double t7_0 = 0.5*c1;
-        const double t7_1 = 0.5*s1;
-        const double t7_2 = 0.8660254037844386*c1;
-        const double t7_3 = 0.8660254037844386*s1;
-        const double g16_11 = c1*rc11 + rc21*s1;
-        const double g16_13 = c1*rc13 + rc23*s1;
-        const double g16_21 = -rc11*t7_1 + rc21*t7_0 + 0.8660254037844386*rc31;
-        const double g16_23 = -rc13*t7_1 + rc23*t7_0 + 0.8660254037844386*rc33;
-        const double g16_31 = rc11*t7_3 - rc21*t7_2 + 0.5*rc31;
-        const double g16_33 = rc13*t7_3 - rc23*t7_2 + 0.5*rc33;
-
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
         const double t8_0 = 0.8660254037844386*c2;
         const double t8_1 = 0.8660254037844386*s2;
         const double t8_2 = 0.5*c2;
         const double t8_3 = 0.5*s2;
         const double g26_11 = c2*g16_11 + g16_21*s2;
+        const double g26_12 = c2*g16_12 + g16_22*s2;
         const double g26_13 = c2*g16_13 + g16_23*s2;
         const double g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31;
+        const double g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32;
         const double g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33;
         const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
+        const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
         const double g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33;
 
         /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
         const double g36_11 = c3*g26_11 + g26_21*s3;
+        const double g36_12 = c3*g26_12 + g26_22*s3;
         const double g36_13 = c3*g26_13 + g26_23*s3;
         const double g36_21 = g26_31;
+        const double g36_22 = g26_32;
         const double g36_23 = g26_33;
         const double g36_31 = -c3*g26_21 + g26_11*s3;
+        const double g36_32 = -c3*g26_22 + g26_12*s3;
         const double g36_33 = -c3*g26_23 + g26_13*s3;
 
-        /* th5: entry (2,3) A4^-1 A3^-1 A2^-1 A1^-1 T A6^-1 = A5
+        /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double ec5 = g36_33;
         const double er5 = g36_13*g36_13 + g36_23*g36_23;
@@ -508,10 +609,10 @@ static int closed_form(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = s5*s5;
+                dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (g36_13*s5) / dt4;
-                    s4 = (g36_23*s5) / dt4;
+                    c4 = (-g36_13*s5) / dt4;
+                    s4 = (-g36_23*s5) / dt4;
                     free4 = 0;
                 }
             }
@@ -528,12 +629,13 @@ static int closed_form(const double pose[16], const double *current,
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const double g46_11 = c4*g36_11 + g36_21*s4;
+            const double g46_12 = c4*g36_12 + g36_22*s4;
             const double g46_21 = -g36_31;
-            const double g46_31 = c4*g36_21 - g36_11*s4;
+            const double g46_22 = -g36_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const double g56_11 = c5*g46_11 + g46_21*s5;
-            const double g56_21 = g46_31;
+            const double g56_12 = c5*g46_12 + g46_22*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6, c6 = 0.0, s6 = 0.0, dt6;
@@ -542,7 +644,7 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt6 = 1.0;
                 c6 = (g56_11) / dt6;
-                s6 = (g56_21) / dt6;
+                s6 = (-g56_12) / dt6;
                 free6 = 0;
             }
             (void)free6;

@@ -329,12 +329,15 @@ static int closed_form(const float pose[16], const float *current,
 {
     int count = 0;
     const float r11 = pose[0];
+    const float r12 = pose[1];
     const float r13 = pose[2];
     const float px = pose[3];
     const float r21 = pose[4];
+    const float r22 = pose[5];
     const float r23 = pose[6];
     const float py = pose[7];
     const float r31 = pose[8];
+    const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
     const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
@@ -346,12 +349,15 @@ static int closed_form(const float pose[16], const float *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = r11;
+    const float rc12 = r12;
     const float rc13 = r13;
     const float pcx = px - 10.0f*r11 - 45.0f*r13;
     const float rc21 = r21;
+    const float rc22 = r22;
     const float rc23 = r23;
     const float pcy = py - 10.0f*r21 - 45.0f*r23;
     const float rc31 = r31;
+    const float rc32 = r32;
     const float rc33 = r33;
     const float pcz = pz - 10.0f*r31 - 45.0f*r33;
 
@@ -420,24 +426,125 @@ static int closed_form(const float pose[16], const float *current,
             th1 = atan2f(s1, c1);
         }
 
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float t5_0 = 0.5f*c1;
+        const float t5_1 = 0.5f*s1;
+        const float t5_2 = 0.866025404f*c1;
+        const float t5_3 = 0.866025404f*s1;
+        const float g16_11 = c1*rc11 + rc21*s1;
+        const float g16_12 = c1*rc12 + rc22*s1;
+        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_14 = c1*pcx + pcy*s1 - 50.0f;
+        const float g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.866025404f*rc31;
+        const float g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.866025404f*rc32;
+        const float g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.866025404f*rc33;
+        const float g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.866025404f*pcz - 259.807621f;
+        const float g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5f*rc31;
+        const float g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5f*rc32;
+        const float g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5f*rc33;
+        const float g16_34 = 0.866025404f*pcx*s1 - pcy*t5_2 + 0.5f*pcz - 150.0f;
+
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const float t5_0 = c1*wy;
+        const float t6_0 = c1*wy;
         const float v1x = c1*wx + s1*wy - 50.0f;
-        const float v1y = -0.5f*s1*wx + 0.5f*t5_0 + 0.866025404f*wz - 259.807621f;
-        const float v1z = 0.866025404f*s1*wx - 0.866025404f*t5_0 + 0.5f*wz - 150.0f;
+        const float v1y = -0.5f*s1*wx + 0.5f*t6_0 + 0.866025404f*wz - 259.807621f;
+        const float v1z = 0.866025404f*s1*wx - 0.866025404f*t6_0 + 0.5f*wz - 150.0f;
 
         /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         float th2, c2 = 0.0f, s2 = 0.0f, dt2;
         int free2 = 1;
         {
-            const float t6_0_0 = 0.866025404f*v1z;
-            const float t6_0_1 = 10.0f*c3;
-            const float t6_0_2 = 140.0f*s3;
+            const float t7_0_0 = 20.0f*v1y;
+            const float t7_0_1 = 17.3205081f*c3;
+            const float t7_0_2 = 242.487113f*s3;
+            const float t7_0_3 = 0.5f*v1z;
+            const float t7_0_4 = 280.0f*c3;
+            const float t7_0_5 = 20.0f*v1x;
 
-            dt2 = 0.5f*v1x*v1x + 0.5f*v1y*v1y;
+            dt2 = 0.866025404f*v1x*v1x + 0.866025404f*v1y*v1y;
             if (fabsf(dt2) > 1e-15f) {
-                c2 = (t6_0_0*v1y + t6_0_1*v1x + t6_0_2*v1x + 150.0f*v1x - 34.6410162f*v1y) / dt2;
-                s2 = (-t6_0_0*v1x + t6_0_1*v1y + t6_0_2*v1y + 34.6410162f*v1x + 150.0f*v1y) / dt2;
+                c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.807621f*v1x) / dt2;
+                s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.807621f*v1y) / dt2;
+                free2 = 0;
+            }
+        }
+        if (free2) {
+            const float t7_1_0 = g16_13*v1x;
+            const float t7_1_1 = g16_14*v1x;
+            const float t7_1_2 = g16_23*v1y;
+            const float t7_1_3 = g16_24*v1y;
+            const float t7_1_4 = 2078.46097f*c3;
+            const float t7_1_5 = 34.6410162f*c3;
+            const float t7_1_6 = 29098.4536f*s3;
+            const float t7_1_7 = 484.974226f*s3;
+            const float t7_1_8 = c3*v1y;
+            const float t7_1_9 = c3*v1x;
+            const float t7_1_10 = s3*v1y;
+            const float t7_1_11 = s3*v1x;
+            const float t7_1_12 = 9699.48452f*c3;
+            const float t7_1_13 = 692.820323f*c3;
+            const float t7_1_14 = 41569.2194f*s3;
+            const float t7_1_15 = 4156.92194f*g16_33;
+            const float t7_1_16 = 146185.088f*s3;
+            const float t7_1_17 = c3*v1z;
+            const float t7_1_18 = 14549.2268f*t7_1_17;
+            const float t7_1_19 = g16_14*s3;
+            const float t7_1_20 = 19398.969f*c3;
+            const float t7_1_21 = 242.487113f*g16_34;
+            const float t7_1_22 = 17.3205081f*v1z;
+            const float t7_1_23 = 1039.23048f*g16_33;
+            const float t7_1_24 = g16_23*s3;
+            const float t7_1_25 = s3*s3;
+            const float t7_1_26 = g16_13*g16_13;
+            const float t7_1_27 = 3117.69145f*v1x;
+            const float t7_1_28 = 135099.963f*t7_1_25;
+            const float t7_1_29 = g16_14*g16_14;
+            const float t7_1_30 = 0.866025404f*v1x;
+            const float t7_1_31 = g16_23*g16_23;
+            const float t7_1_32 = g16_24*g16_24;
+            const float t7_1_33 = g16_33*g16_33;
+            const float t7_1_34 = g16_34*g16_34;
+            const float t7_1_35 = g16_24*s3;
+            const float t7_1_36 = 3117.69145f*v1y;
+            const float t7_1_37 = 0.866025404f*v1y;
+
+            dt2 = -1800.0f*g16_13*t7_1_10 + 25200.0f*g16_13*t7_1_8 + 30.0f*g16_14*t7_1_10 - 420.0f*g16_14*t7_1_8 + 1800.0f*g16_23*t7_1_11 - 25200.0f*g16_23*t7_1_9 - 30.0f*g16_24*t7_1_11 + 420.0f*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.9145f*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.615242f*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.9145f*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.615242f*t7_1_3;
+            if (fabsf(dt2) > 1e-12f) {
+                c2 = (1163938.14f*c3*g16_13*s3 + 581969.071f*c3*g16_13 + 242.487113f*c3*g16_14*v1z - 10032000.0f*c3*g16_23 + 156000.0f*c3*g16_24*s3 + 20.0f*c3*g16_24*v1z + 167200.0f*c3*g16_24 + 14549.2268f*c3*g16_33*v1x - 9360000.0f*c3*t7_1_24 + 103.923048f*g16_13*g16_14*v1x + 1039.23048f*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.78f*g16_13*t7_1_25 - 8147567.0f*g16_13 + 692.820323f*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.783f*g16_14 + 103.923048f*g16_23*g16_24*v1x + 1392000.0f*g16_23*s3 - 1200.0f*g16_23*t7_1_17 + 1344000.0f*g16_23*t7_1_25 - 18000.0f*g16_23*v1z + 48000.0f*g16_23 + 280.0f*g16_24*s3*v1z - 23200.0f*g16_24*s3 - 22400.0f*g16_24*t7_1_25 + 300.0f*g16_24*v1z - 800.0f*g16_24 + 103.923048f*g16_33*g16_34*v1x + 17.3205081f*g16_34*s3*v1x + 69.2820323f*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0f*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.729f*v1x) / dt2;
+                s2 = (9360000.0f*c3*g16_13*s3 + 1200.0f*c3*g16_13*v1z + 10032000.0f*c3*g16_13 - 167200.0f*c3*g16_14 + 1163938.14f*c3*g16_23*s3 + 581969.071f*c3*g16_23 + 242.487113f*c3*g16_24*v1z + 14549.2268f*c3*g16_33*v1y - 156000.0f*c3*t7_1_19 + 103.923048f*g16_13*g16_14*v1y + 16800.0f*g16_13*s3*v1z - 1392000.0f*g16_13*s3 - 1344000.0f*g16_13*t7_1_25 + 18000.0f*g16_13*v1z - 48000.0f*g16_13 + 23200.0f*g16_14*s3 - 20.0f*g16_14*t7_1_17 + 22400.0f*g16_14*t7_1_25 - 300.0f*g16_14*v1z + 800.0f*g16_14 + 103.923048f*g16_23*g16_24*v1y + 1039.23048f*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.78f*g16_23*t7_1_25 - 8147567.0f*g16_23 + 692.820323f*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.783f*g16_24 + 103.923048f*g16_33*g16_34*v1y + 17.3205081f*g16_34*s3*v1y + 69.2820323f*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0f*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.729f*v1y) / dt2;
+                free2 = 0;
+            }
+        }
+        if (free2) {
+            const float t7_2_0 = c1*c3;
+            const float t7_2_1 = c1*s3;
+            const float t7_2_2 = c3*s1;
+            const float t7_2_3 = s1*s3;
+            const float t7_2_4 = c3*t7_2_1;
+            const float t7_2_5 = s3*t7_2_2;
+            const float t7_2_6 = s3*s3;
+            const float t7_2_7 = c1*t7_2_6;
+            const float t7_2_8 = s1*t7_2_6;
+            const float t7_2_9 = c3*wx;
+            const float t7_2_10 = s3*wx;
+            const float t7_2_11 = wx*wx;
+            const float t7_2_12 = 150.0f*s1;
+            const float t7_2_13 = wy*wy;
+            const float t7_2_14 = wz*wz;
+            const float t7_2_15 = 242.487113f*t7_2_0;
+            const float t7_2_16 = 17.3205081f*t7_2_1;
+            const float t7_2_17 = 10.0f*t7_2_2;
+            const float t7_2_18 = 140.0f*t7_2_3;
+            const float t7_2_19 = 300.0f*c1;
+            const float t7_2_20 = 121.243557f*t7_2_2;
+            const float t7_2_21 = 8.66025404f*t7_2_3;
+            const float t7_2_22 = 20.0f*t7_2_0;
+            const float t7_2_23 = 280.0f*t7_2_1;
+
+            dt2 = 77526594.1f*c1 + 7460000.0f*s1 + 6235382.91f*t7_2_0 + 87295360.7f*t7_2_1 + 600000.0f*t7_2_2 + 8400000.0f*t7_2_3 + 1454922.68f*t7_2_4 + 140000.0f*t7_2_5 + 10132497.2f*t7_2_7 + 975000.0f*t7_2_8;
+            if (fabsf(dt2) > 1e-13f) {
+                c2 = (-17784697.7f*c1 - 42023000.0f*s1 + 64927656.6f*t7_2_0 - 11949418.5f*t7_2_1 + 143760.217f*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0f*t7_2_2 - 70586000.0f*t7_2_3 + 42372891.0f*t7_2_4 + 21180000.0f*t7_2_5 + 7014805.77f*t7_2_7 - 29909000.0f*t7_2_8 + 34641.0162f*t7_2_9 + 155884.573f*wx) / dt2;
+                s2 = (-80146000.0f*c1 + 21068666.0f*s1 + 662000.0f*t7_2_0 - 126662000.0f*t7_2_1 - 37000.0f*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.4f*t7_2_2 + 3922229.05f*t7_2_3 + 8100000.0f*t7_2_4 - 26746328.6f*t7_2_5 - 48928000.0f*t7_2_7 - 18221174.5f*t7_2_8 + 124000.0f*t7_2_9 - 30000.0f*wx) / dt2;
                 free2 = 0;
             }
         }
@@ -452,39 +559,33 @@ static int closed_form(const float pose[16], const float *current,
             th2 = atan2f(s2, c2);
         }
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const float t7_0 = 0.5f*c1;
-        const float t7_1 = 0.5f*s1;
-        const float t7_2 = 0.866025404f*c1;
-        const float t7_3 = 0.866025404f*s1;
-        const float g16_11 = c1*rc11 + rc21*s1;
-        const float g16_13 = c1*rc13 + rc23*s1;
-        const float g16_21 = -rc11*t7_1 + rc21*t7_0 + 0.866025404f*rc31;
-        const float g16_23 = -rc13*t7_1 + rc23*t7_0 + 0.866025404f*rc33;
-        const float g16_31 = rc11*t7_3 - rc21*t7_2 + 0.5f*rc31;
-        const float g16_33 = rc13*t7_3 - rc23*t7_2 + 0.5f*rc33;
-
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
         const float t8_0 = 0.866025404f*c2;
         const float t8_1 = 0.866025404f*s2;
         const float t8_2 = 0.5f*c2;
         const float t8_3 = 0.5f*s2;
         const float g26_11 = c2*g16_11 + g16_21*s2;
+        const float g26_12 = c2*g16_12 + g16_22*s2;
         const float g26_13 = c2*g16_13 + g16_23*s2;
         const float g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5f*g16_31;
+        const float g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5f*g16_32;
         const float g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5f*g16_33;
         const float g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.866025404f*g16_31;
+        const float g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.866025404f*g16_32;
         const float g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.866025404f*g16_33;
 
         /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
         const float g36_11 = c3*g26_11 + g26_21*s3;
+        const float g36_12 = c3*g26_12 + g26_22*s3;
         const float g36_13 = c3*g26_13 + g26_23*s3;
         const float g36_21 = g26_31;
+        const float g36_22 = g26_32;
         const float g36_23 = g26_33;
         const float g36_31 = -c3*g26_21 + g26_11*s3;
+        const float g36_32 = -c3*g26_22 + g26_12*s3;
         const float g36_33 = -c3*g26_23 + g26_13*s3;
 
-        /* th5: entry (2,3) A4^-1 A3^-1 A2^-1 A1^-1 T A6^-1 = A5
+        /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float ec5 = g36_33;
         const float er5 = g36_13*g36_13 + g36_23*g36_23;
@@ -508,10 +609,10 @@ static int closed_form(const float pose[16], const float *current,
             int free4 = 1;
             {
 
-                dt4 = s5*s5;
+                dt4 = -s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
-                    c4 = (g36_13*s5) / dt4;
-                    s4 = (g36_23*s5) / dt4;
+                    c4 = (-g36_13*s5) / dt4;
+                    s4 = (-g36_23*s5) / dt4;
                     free4 = 0;
                 }
             }
@@ -528,12 +629,13 @@ static int closed_form(const float pose[16], const float *current,
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const float g46_11 = c4*g36_11 + g36_21*s4;
+            const float g46_12 = c4*g36_12 + g36_22*s4;
             const float g46_21 = -g36_31;
-            const float g46_31 = c4*g36_21 - g36_11*s4;
+            const float g46_22 = -g36_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const float g56_11 = c5*g46_11 + g46_21*s5;
-            const float g56_21 = g46_31;
+            const float g56_12 = c5*g46_12 + g46_22*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6, c6 = 0.0f, s6 = 0.0f, dt6;
@@ -542,7 +644,7 @@ static int closed_form(const float pose[16], const float *current,
 
                 dt6 = 1.0f;
                 c6 = (g56_11) / dt6;
-                s6 = (g56_21) / dt6;
+                s6 = (-g56_12) / dt6;
                 free6 = 0;
             }
             (void)free6;

@@ -423,13 +423,12 @@ static int closed_form(const double pose[16], const double *current,
         double th5, c5 = 0.0, s5 = 0.0, dt5;
         int free5 = 1;
         {
-            const double t5_0_0 = 0.25*c4;
-            const double t5_0_1 = 0.125*s4;
+            const double t5_0_0 = 0.125*s4;
 
-            dt5 = e1x*e1x + 0.10000000000000001*e1x + e1z*e1z + 0.0025000000000000001;
+            dt5 = -e1x*e1x - 0.10000000000000001*e1x - e1z*e1z - 0.0025000000000000001;
             if (fabs(dt5) > 9.9999999999999991e-22) {
-                c5 = (-0.012500000000000001*c4 - e1x*t5_0_0 - 0.20000000000000001*e1x - e1z*t5_0_1 - 0.043301270189221933*e1z - 0.01) / dt5;
-                s5 = (e1x*t5_0_1 + 0.043301270189221933*e1x - e1z*t5_0_0 - 0.20000000000000001*e1z + 0.0062500000000000003*s4 + 0.0021650635094610966) / dt5;
+                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + e1z*t5_0_0 + 0.043301270189221933*e1z + 0.01) / dt5;
+                s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.043301270189221933*e1x + 0.20000000000000001*e1z - 0.0062500000000000003*s4 - 0.0021650635094610966) / dt5;
                 free5 = 0;
             }
         }
@@ -527,21 +526,22 @@ static int closed_form(const double pose[16], const double *current,
 
             /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
             const double g13_11 = c1*g03_11 + g03_21*s1;
+            const double g13_12 = c1*g03_12 + g03_22*s1;
             const double g13_21 = g03_31;
-            const double g13_31 = -c1*g03_21 + g03_11*s1;
+            const double g13_22 = g03_32;
 
             /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
             const double g23_11 = c2*g13_11 + g13_21*s2;
-            const double g23_21 = -g13_31;
+            const double g23_12 = c2*g13_12 + g13_22*s2;
 
             /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th3, c3 = 0.0, s3 = 0.0, dt3;
             int free3 = 1;
             {
 
-                dt3 = 1.0;
-                c3 = (g23_11) / dt3;
-                s3 = (g23_21) / dt3;
+                dt3 = 0.8660254037844386;
+                c3 = (0.8660254037844386*g23_11) / dt3;
+                s3 = (-g23_12) / dt3;
                 free3 = 0;
             }
             (void)free3;

@@ -262,13 +262,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th5 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen5 = numpy.zeros((), dtype=bool)
-        t5_0_0 = 0.25*c4
-        t5_0_1 = 0.125*s4
+        t5_0_0 = 0.125*s4
 
-        dt5 = e1x*e1x + 0.1*e1x + e1z*e1z + 0.0025
+        dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         use = ~chosen5 & (numpy.abs(dt5) > 1e-21)
-        c5 = (-0.0125*c4 - e1x*t5_0_0 - 0.2*e1x - e1z*t5_0_1 - 0.04330127018922193*e1z - 0.01) / dt5
-        s5 = (e1x*t5_0_1 + 0.04330127018922193*e1x - e1z*t5_0_0 - 0.2*e1z + 0.00625*s4 + 0.0021650635094610966) / dt5
+        c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
+        s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
         chosen5 = chosen5 | use
         free5 = ~chosen5
         valid = valid & ~(chosen5 & (numpy.abs(c5 * c5 + s5 * s5 - 1.0) > 1e-4))
@@ -350,20 +349,21 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1
+        g13_12 = c1*g03_12 + g03_22*s1
         g13_21 = g03_31
-        g13_31 = -c1*g03_21 + g03_11*s1
+        g13_22 = g03_32
 
         # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
         g23_11 = c2*g13_11 + g13_21*s2
-        g23_21 = -g13_31
+        g23_12 = c2*g13_12 + g13_22*s2
 
         # th3 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen3 = numpy.zeros((), dtype=bool)
 
-        dt3 = 1
+        dt3 = 0.8660254037844386
         use = ~chosen3
-        c3 = (g23_11) / dt3
-        s3 = (g23_21) / dt3
+        c3 = (0.8660254037844386*g23_11) / dt3
+        s3 = (-g23_12) / dt3
         chosen3 = chosen3 | use
         valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
         th3 = numpy.arctan2(s3, c3)

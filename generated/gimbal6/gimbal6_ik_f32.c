@@ -423,13 +423,12 @@ static int closed_form(const float pose[16], const float *current,
         float th5, c5 = 0.0f, s5 = 0.0f, dt5;
         int free5 = 1;
         {
-            const float t5_0_0 = 0.25f*c4;
-            const float t5_0_1 = 0.125f*s4;
+            const float t5_0_0 = 0.125f*s4;
 
-            dt5 = e1x*e1x + 0.1f*e1x + e1z*e1z + 0.0025f;
+            dt5 = -e1x*e1x - 0.1f*e1x - e1z*e1z - 0.0025f;
             if (fabsf(dt5) > 1e-21f) {
-                c5 = (-0.0125f*c4 - e1x*t5_0_0 - 0.2f*e1x - e1z*t5_0_1 - 0.0433012702f*e1z - 0.01f) / dt5;
-                s5 = (e1x*t5_0_1 + 0.0433012702f*e1x - e1z*t5_0_0 - 0.2f*e1z + 0.00625f*s4 + 0.00216506351f) / dt5;
+                c5 = (0.25f*c4*e1x + 0.0125f*c4 + 0.2f*e1x + e1z*t5_0_0 + 0.0433012702f*e1z + 0.01f) / dt5;
+                s5 = (0.25f*c4*e1z - e1x*t5_0_0 - 0.0433012702f*e1x + 0.2f*e1z - 0.00625f*s4 - 0.00216506351f) / dt5;
                 free5 = 0;
             }
         }
@@ -527,21 +526,22 @@ static int closed_form(const float pose[16], const float *current,
 
             /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
             const float g13_11 = c1*g03_11 + g03_21*s1;
+            const float g13_12 = c1*g03_12 + g03_22*s1;
             const float g13_21 = g03_31;
-            const float g13_31 = -c1*g03_21 + g03_11*s1;
+            const float g13_22 = g03_32;
 
             /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
             const float g23_11 = c2*g13_11 + g13_21*s2;
-            const float g23_21 = -g13_31;
+            const float g23_12 = c2*g13_12 + g13_22*s2;
 
             /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th3, c3 = 0.0f, s3 = 0.0f, dt3;
             int free3 = 1;
             {
 
-                dt3 = 1.0f;
-                c3 = (g23_11) / dt3;
-                s3 = (g23_21) / dt3;
+                dt3 = 0.866025404f;
+                c3 = (0.866025404f*g23_11) / dt3;
+                s3 = (-g23_12) / dt3;
                 free3 = 0;
             }
             (void)free3;

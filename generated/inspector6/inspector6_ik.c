@@ -128,12 +128,15 @@ static int closed_form(const double pose[16], const double *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const double rc11 = -r12;
+    const double rc12 = r11;
     const double rc13 = r13;
     const double pcx = px - 40.0*r11 - 60.0*r13;
     const double rc21 = r22;
+    const double rc22 = -r21;
     const double rc23 = -r23;
     const double pcy = -py + 40.0*r21 + 60.0*r23;
     const double rc31 = r32;
+    const double rc32 = -r31;
     const double rc33 = -r33;
     const double pcz = -pz + 40.0*r31 + 60.0*r33 + 1800.0;
 
@@ -192,6 +195,20 @@ static int closed_form(const double pose[16], const double *current,
 
             }
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const double g16_11 = c1*rc11 + rc21*s1;
+            const double g16_12 = c1*rc12 + rc22*s1;
+            const double g16_13 = c1*rc13 + rc23*s1;
+            const double g16_14 = c1*pcx + pcy*s1;
+            const double g16_21 = rc31;
+            const double g16_22 = rc32;
+            const double g16_23 = rc33;
+            const double g16_24 = pcz - 180.0;
+            const double g16_31 = -c1*rc21 + rc11*s1;
+            const double g16_32 = -c1*rc22 + rc12*s1;
+            const double g16_33 = -c1*rc23 + rc13*s1;
+            const double g16_34 = -c1*pcy + pcx*s1;
+
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
             const double v1y = wz - 180.0;
@@ -200,13 +217,42 @@ static int closed_form(const double pose[16], const double *current,
             double th2, c2 = 0.0, s2 = 0.0, dt2;
             int free2 = 1;
             {
-                const double t6_0_0 = 290.0*c3;
-                const double t6_0_1 = 290.0*s3;
+                const double t7_0_0 = 290.0*v1x;
 
-                dt2 = 185600.0*s3 + 186500.0;
+                dt2 = -185600.0*s3 - 186500.0;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (-t6_0_0*v1y + t6_0_1*v1x + 320.0*v1x) / dt2;
-                    s2 = (t6_0_0*v1x + t6_0_1*v1y + 320.0*v1y) / dt2;
+                    c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2;
+                    s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t7_1_0 = g16_13*v1x;
+                const double t7_1_1 = g16_14*v1x;
+                const double t7_1_2 = g16_23*v1y;
+                const double t7_1_3 = g16_24*v1y;
+                const double t7_1_4 = c3*v1y;
+                const double t7_1_5 = c3*v1x;
+                const double t7_1_6 = 49300.0*s3;
+                const double t7_1_7 = 580.0*s3;
+                const double t7_1_8 = 185600.0*s3;
+                const double t7_1_9 = g16_14*g16_14;
+                const double t7_1_10 = g16_24*g16_24;
+                const double t7_1_11 = g16_34*g16_34;
+                const double t7_1_12 = 14297000.0*g16_23;
+                const double t7_1_13 = c3*s3;
+                const double t7_1_14 = s3*s3;
+                const double t7_1_15 = g16_13*g16_13;
+                const double t7_1_16 = 7225.0*v1x;
+                const double t7_1_17 = 168200.0*g16_14;
+                const double t7_1_18 = g16_23*g16_23;
+                const double t7_1_19 = g16_33*g16_33;
+                const double t7_1_20 = 7225.0*v1y;
+
+                dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 - 49300.0*g16_23*t7_1_5 + 580.0*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3;
+                if (fabs(dt2) > 9.9999999999999998e-13) {
+                    c2 = (-15776000.0*c3*g16_23 + 168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 + 170.0*g16_23*g16_24*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2;
+                    s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y + 170.0*g16_23*g16_24*v1y + 14297000.0*g16_23*t7_1_14 - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -221,31 +267,29 @@ static int closed_form(const double pose[16], const double *current,
                 th2 = atan2(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const double g16_11 = c1*rc11 + rc21*s1;
-            const double g16_13 = c1*rc13 + rc23*s1;
-            const double g16_21 = rc31;
-            const double g16_23 = rc33;
-            const double g16_31 = -c1*rc21 + rc11*s1;
-            const double g16_33 = -c1*rc23 + rc13*s1;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const double g26_11 = c2*g16_11 + g16_21*s2;
+            const double g26_12 = c2*g16_12 + g16_22*s2;
             const double g26_13 = c2*g16_13 + g16_23*s2;
             const double g26_21 = c2*g16_21 - g16_11*s2;
+            const double g26_22 = c2*g16_22 - g16_12*s2;
             const double g26_23 = c2*g16_23 - g16_13*s2;
             const double g26_31 = g16_31;
+            const double g26_32 = g16_32;
             const double g26_33 = g16_33;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
             const double g36_13 = c3*g26_13 + g26_23*s3;
             const double g36_21 = g26_31;
+            const double g36_22 = g26_32;
             const double g36_23 = g26_33;
             const double g36_31 = -c3*g26_21 + g26_11*s3;
+            const double g36_32 = -c3*g26_22 + g26_12*s3;
             const double g36_33 = -c3*g26_23 + g26_13*s3;
 
-            /* th5: entry (2,3) A4^-1 A3^-1 A2^-1 A1^-1 T A6^-1 = A5
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double ec5 = g36_33;
             const double er5 = g36_13*g36_13 + g36_23*g36_23;
@@ -269,10 +313,10 @@ static int closed_form(const double pose[16], const double *current,
                 int free4 = 1;
                 {
 
-                    dt4 = s5*s5;
+                    dt4 = -s5*s5;
                     if (fabs(dt4) > 9.9999999999999995e-21) {
-                        c4 = (g36_13*s5) / dt4;
-                        s4 = (g36_23*s5) / dt4;
+                        c4 = (-g36_13*s5) / dt4;
+                        s4 = (-g36_23*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -289,12 +333,13 @@ static int closed_form(const double pose[16], const double *current,
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
                 const double g46_11 = c4*g36_11 + g36_21*s4;
+                const double g46_12 = c4*g36_12 + g36_22*s4;
                 const double g46_21 = -g36_31;
-                const double g46_31 = c4*g36_21 - g36_11*s4;
+                const double g46_22 = -g36_32;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
                 const double g56_11 = c5*g46_11 + g46_21*s5;
-                const double g56_21 = g46_31;
+                const double g56_12 = c5*g46_12 + g46_22*s5;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 double th6, c6 = 0.0, s6 = 0.0, dt6;
@@ -303,7 +348,7 @@ static int closed_form(const double pose[16], const double *current,
 
                     dt6 = 1.0;
                     c6 = (g56_11) / dt6;
-                    s6 = (g56_21) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

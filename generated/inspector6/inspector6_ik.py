@@ -243,12 +243,15 @@ def _closed_form(pose, current):
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     rc11 = -r12
+    rc12 = r11
     rc13 = r13
     pcx = px - 40*r11 - 60*r13
     rc21 = r22
+    rc22 = -r21
     rc23 = -r23
     pcy = -py + 40*r21 + 60*r23
     rc31 = r32
+    rc32 = -r31
     rc33 = -r33
     pcz = -pz + 40*r31 + 60*r33 + 1800
 
@@ -296,20 +299,62 @@ def _closed_form(pose, current):
                 c1 = cn1/en1
                 s1 = sn1/en1
 
+            # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+            g16_11 = c1*rc11 + rc21*s1
+            g16_12 = c1*rc12 + rc22*s1
+            g16_13 = c1*rc13 + rc23*s1
+            g16_14 = c1*pcx + pcy*s1
+            g16_21 = rc31
+            g16_22 = rc32
+            g16_23 = rc33
+            g16_24 = pcz - 180
+            g16_31 = -c1*rc21 + rc11*s1
+            g16_32 = -c1*rc22 + rc12*s1
+            g16_33 = -c1*rc23 + rc13*s1
+            g16_34 = -c1*pcy + pcx*s1
+
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
             v1x = c1*wx + s1*wy
             v1y = wz - 180
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t6_0_0 = 290*c3
-            t6_0_1 = 290*s3
+            t7_0_0 = 290*v1x
 
-            dt2 = 185600*s3 + 186500
+            dt2 = -185600*s3 - 186500
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (-t6_0_0*v1y + t6_0_1*v1x + 320*v1x) / dt2
-                s2 = (t6_0_0*v1x + t6_0_1*v1y + 320*v1y) / dt2
+                c2 = (290*c3*v1y - s3*t7_0_0 - 320*v1x) / dt2
+                s2 = (-c3*t7_0_0 - 290*s3*v1y - 320*v1y) / dt2
                 free2 = False
+
+            if free2:
+                t7_1_0 = g16_13*v1x
+                t7_1_1 = g16_14*v1x
+                t7_1_2 = g16_23*v1y
+                t7_1_3 = g16_24*v1y
+                t7_1_4 = c3*v1y
+                t7_1_5 = c3*v1x
+                t7_1_6 = 49300*s3
+                t7_1_7 = 580*s3
+                t7_1_8 = 185600*s3
+                t7_1_9 = g16_14*g16_14
+                t7_1_10 = g16_24*g16_24
+                t7_1_11 = g16_34*g16_34
+                t7_1_12 = 14297000*g16_23
+                t7_1_13 = c3*s3
+                t7_1_14 = s3*s3
+                t7_1_15 = g16_13*g16_13
+                t7_1_16 = 7225*v1x
+                t7_1_17 = 168200*g16_14
+                t7_1_18 = g16_23*g16_23
+                t7_1_19 = g16_33*g16_33
+                t7_1_20 = 7225*v1y
+
+                dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 - 49300*g16_23*t7_1_5 + 580*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+                if abs(dt2) > 1e-12:
+                    c2 = (-15776000*c3*g16_23 + 168200*c3*g16_24*s3 + 185600*c3*g16_24 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_23*g16_24*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2
+                    s2 = (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_23*g16_24*v1y + 14297000*g16_23*t7_1_14 - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2
+                    free2 = False
 
             if free2:
                 th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
@@ -320,31 +365,29 @@ def _closed_form(pose, current):
                     continue
                 th2 = atan2(s2, c2)
 
-            # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-            g16_11 = c1*rc11 + rc21*s1
-            g16_13 = c1*rc13 + rc23*s1
-            g16_21 = rc31
-            g16_23 = rc33
-            g16_31 = -c1*rc21 + rc11*s1
-            g16_33 = -c1*rc23 + rc13*s1
-
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + g16_21*s2
+            g26_12 = c2*g16_12 + g16_22*s2
             g26_13 = c2*g16_13 + g16_23*s2
             g26_21 = c2*g16_21 - g16_11*s2
+            g26_22 = c2*g16_22 - g16_12*s2
             g26_23 = c2*g16_23 - g16_13*s2
             g26_31 = g16_31
+            g26_32 = g16_32
             g26_33 = g16_33
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
             g36_13 = c3*g26_13 + g26_23*s3
             g36_21 = g26_31
+            g36_22 = g26_32
             g36_23 = g26_33
             g36_31 = -c3*g26_21 + g26_11*s3
+            g36_32 = -c3*g26_22 + g26_12*s3
             g36_33 = -c3*g26_23 + g26_13*s3
 
-            # th5: entry (2,3) A4^-1 A3^-1 A2^-1 A1^-1 T A6^-1 = A5
+            # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             ec5 = g36_33
             er5 = g36_13*g36_13 + g36_23*g36_23
@@ -362,10 +405,10 @@ def _closed_form(pose, current):
                 # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
                 free4 = True
 
-                dt4 = s5*s5
+                dt4 = -s5*s5
                 if abs(dt4) > 1e-20:
-                    c4 = (g36_13*s5) / dt4
-                    s4 = (g36_23*s5) / dt4
+                    c4 = (-g36_13*s5) / dt4
+                    s4 = (-g36_23*s5) / dt4
                     free4 = False
 
                 if free4:
@@ -379,19 +422,20 @@ def _closed_form(pose, current):
 
                 # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
                 g46_11 = c4*g36_11 + g36_21*s4
+                g46_12 = c4*g36_12 + g36_22*s4
                 g46_21 = -g36_31
-                g46_31 = c4*g36_21 - g36_11*s4
+                g46_22 = -g36_32
 
                 # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
                 g56_11 = c5*g46_11 + g46_21*s5
-                g56_21 = g46_31
+                g56_12 = c5*g46_12 + g46_22*s5
 
                 # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
                 free6 = True
 
                 dt6 = 1
                 c6 = (g56_11) / dt6
-                s6 = (g56_21) / dt6
+                s6 = (-g56_12) / dt6
                 free6 = False
 
                 if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:

@@ -128,12 +128,15 @@ static int closed_form(const float pose[16], const float *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = -r12;
+    const float rc12 = r11;
     const float rc13 = r13;
     const float pcx = px - 40.0f*r11 - 60.0f*r13;
     const float rc21 = r22;
+    const float rc22 = -r21;
     const float rc23 = -r23;
     const float pcy = -py + 40.0f*r21 + 60.0f*r23;
     const float rc31 = r32;
+    const float rc32 = -r31;
     const float rc33 = -r33;
     const float pcz = -pz + 40.0f*r31 + 60.0f*r33 + 1800.0f;
 
@@ -192,6 +195,20 @@ static int closed_form(const float pose[16], const float *current,
 
             }
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const float g16_11 = c1*rc11 + rc21*s1;
+            const float g16_12 = c1*rc12 + rc22*s1;
+            const float g16_13 = c1*rc13 + rc23*s1;
+            const float g16_14 = c1*pcx + pcy*s1;
+            const float g16_21 = rc31;
+            const float g16_22 = rc32;
+            const float g16_23 = rc33;
+            const float g16_24 = pcz - 180.0f;
+            const float g16_31 = -c1*rc21 + rc11*s1;
+            const float g16_32 = -c1*rc22 + rc12*s1;
+            const float g16_33 = -c1*rc23 + rc13*s1;
+            const float g16_34 = -c1*pcy + pcx*s1;
+
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float v1x = c1*wx + s1*wy;
             const float v1y = wz - 180.0f;
@@ -200,13 +217,42 @@ static int closed_form(const float pose[16], const float *current,
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t6_0_0 = 290.0f*c3;
-                const float t6_0_1 = 290.0f*s3;
+                const float t7_0_0 = 290.0f*v1x;
 
-                dt2 = 185600.0f*s3 + 186500.0f;
+                dt2 = -185600.0f*s3 - 186500.0f;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (-t6_0_0*v1y + t6_0_1*v1x + 320.0f*v1x) / dt2;
-                    s2 = (t6_0_0*v1x + t6_0_1*v1y + 320.0f*v1y) / dt2;
+                    c2 = (290.0f*c3*v1y - s3*t7_0_0 - 320.0f*v1x) / dt2;
+                    s2 = (-c3*t7_0_0 - 290.0f*s3*v1y - 320.0f*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_1_0 = g16_13*v1x;
+                const float t7_1_1 = g16_14*v1x;
+                const float t7_1_2 = g16_23*v1y;
+                const float t7_1_3 = g16_24*v1y;
+                const float t7_1_4 = c3*v1y;
+                const float t7_1_5 = c3*v1x;
+                const float t7_1_6 = 49300.0f*s3;
+                const float t7_1_7 = 580.0f*s3;
+                const float t7_1_8 = 185600.0f*s3;
+                const float t7_1_9 = g16_14*g16_14;
+                const float t7_1_10 = g16_24*g16_24;
+                const float t7_1_11 = g16_34*g16_34;
+                const float t7_1_12 = 14297000.0f*g16_23;
+                const float t7_1_13 = c3*s3;
+                const float t7_1_14 = s3*s3;
+                const float t7_1_15 = g16_13*g16_13;
+                const float t7_1_16 = 7225.0f*v1x;
+                const float t7_1_17 = 168200.0f*g16_14;
+                const float t7_1_18 = g16_23*g16_23;
+                const float t7_1_19 = g16_33*g16_33;
+                const float t7_1_20 = 7225.0f*v1y;
+
+                dt2 = 49300.0f*g16_13*t7_1_4 - 580.0f*g16_14*t7_1_4 - 49300.0f*g16_23*t7_1_5 + 580.0f*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400.0f*t7_1_0 - t7_1_1*t7_1_7 - 640.0f*t7_1_1 + t7_1_2*t7_1_6 + 54400.0f*t7_1_2 - t7_1_3*t7_1_7 - 640.0f*t7_1_3;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (-15776000.0f*c3*g16_23 + 168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 + 170.0f*g16_23*g16_24*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
+                    s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y + 170.0f*g16_23*g16_24*v1y + 14297000.0f*g16_23*t7_1_14 - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
                     free2 = 0;
                 }
             }
@@ -221,31 +267,29 @@ static int closed_form(const float pose[16], const float *current,
                 th2 = atan2f(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + rc21*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
-            const float g16_21 = rc31;
-            const float g16_23 = rc33;
-            const float g16_31 = -c1*rc21 + rc11*s1;
-            const float g16_33 = -c1*rc23 + rc13*s1;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float g26_11 = c2*g16_11 + g16_21*s2;
+            const float g26_12 = c2*g16_12 + g16_22*s2;
             const float g26_13 = c2*g16_13 + g16_23*s2;
             const float g26_21 = c2*g16_21 - g16_11*s2;
+            const float g26_22 = c2*g16_22 - g16_12*s2;
             const float g26_23 = c2*g16_23 - g16_13*s2;
             const float g26_31 = g16_31;
+            const float g26_32 = g16_32;
             const float g26_33 = g16_33;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
+            const float g36_12 = c3*g26_12 + g26_22*s3;
             const float g36_13 = c3*g26_13 + g26_23*s3;
             const float g36_21 = g26_31;
+            const float g36_22 = g26_32;
             const float g36_23 = g26_33;
             const float g36_31 = -c3*g26_21 + g26_11*s3;
+            const float g36_32 = -c3*g26_22 + g26_12*s3;
             const float g36_33 = -c3*g26_23 + g26_13*s3;
 
-            /* th5: entry (2,3) A4^-1 A3^-1 A2^-1 A1^-1 T A6^-1 = A5
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float ec5 = g36_33;
             const float er5 = g36_13*g36_13 + g36_23*g36_23;
@@ -269,10 +313,10 @@ static int closed_form(const float pose[16], const float *current,
                 int free4 = 1;
                 {
 
-                    dt4 = s5*s5;
+                    dt4 = -s5*s5;
                     if (fabsf(dt4) > 1e-20f) {
-                        c4 = (g36_13*s5) / dt4;
-                        s4 = (g36_23*s5) / dt4;
+                        c4 = (-g36_13*s5) / dt4;
+                        s4 = (-g36_23*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -289,12 +333,13 @@ static int closed_form(const float pose[16], const float *current,
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
                 const float g46_11 = c4*g36_11 + g36_21*s4;
+                const float g46_12 = c4*g36_12 + g36_22*s4;
                 const float g46_21 = -g36_31;
-                const float g46_31 = c4*g36_21 - g36_11*s4;
+                const float g46_22 = -g36_32;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
                 const float g56_11 = c5*g46_11 + g46_21*s5;
-                const float g56_21 = g46_31;
+                const float g56_12 = c5*g46_12 + g46_22*s5;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 float th6, c6 = 0.0f, s6 = 0.0f, dt6;
@@ -303,7 +348,7 @@ static int closed_form(const float pose[16], const float *current,
 
                     dt6 = 1.0f;
                     c6 = (g56_11) / dt6;
-                    s6 = (g56_21) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

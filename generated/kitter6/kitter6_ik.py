@@ -254,7 +254,7 @@ def _closed_form(pose, current):
     rc33 = r33
     pcz = pz - 62*r33
 
-    # th1: position z of A2^-1 A1^-1 T A6^-1 = A3 A4 A5
+    # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t2_0 = pcx*pcx - 156*pcx*rc13 + pcy*pcy - 156*pcy*rc23 + 6084*rc13*rc13 + 6084*rc23*rc23
     ea1 = pcy - 78*rc23
@@ -328,24 +328,23 @@ def _closed_form(pose, current):
             g05_22 = rc23
             g05_23 = -c6*rc22 - rc21*s6
             g05_24 = pcy - 78*rc23
-            g05_31 = c6*rc31 - rc32*s6
-            g05_32 = rc33
             g05_33 = -c6*rc32 - rc31*s6
             g05_34 = pcz - 78*rc33
 
             # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
             g04_11 = c5*g05_11 - g05_12*s5
+            g04_12 = -g05_13
             g04_14 = -104*g05_13 + g05_14
             g04_21 = c5*g05_21 - g05_22*s5
+            g04_22 = -g05_23
             g04_24 = -104*g05_23 + g05_24
-            g04_31 = c5*g05_31 - g05_32*s5
             g04_34 = -104*g05_33 + g05_34
 
             # A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one)
             g14_11 = c1*g04_11 + g04_21*s1
+            g14_12 = c1*g04_12 + g04_22*s1
             g14_14 = c1*g04_14 + g04_24*s1
             g14_24 = c1*g04_24 - g04_14*s1
-            g14_31 = g04_31
             g14_34 = g04_34 - 142
 
             # thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
@@ -353,7 +352,7 @@ def _closed_form(pose, current):
 
             dtp234 = 1
             cp234 = (g14_11) / dtp234
-            sp234 = (g14_31) / dtp234
+            sp234 = (-g14_12) / dtp234
             freep234 = False
 
             if abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4:
@@ -378,13 +377,12 @@ def _closed_form(pose, current):
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
                 free2 = True
-                t11_0_0 = 295*g14_14
-                t11_0_1 = 295*g14_34
+                t11_0_0 = 295*c3
 
-                dt2 = 194700*c3 + 195925
+                dt2 = -194700*c3 - 195925
                 if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (c3*t11_0_0 + 330*g14_14 + s3*t11_0_1) / dt2
-                    s2 = (c3*t11_0_1 + 330*g14_34 - s3*t11_0_0) / dt2
+                    c2 = (-g14_14*t11_0_0 - 330*g14_14 - 295*g14_34*s3) / dt2
+                    s2 = (295*g14_14*s3 - g14_34*t11_0_0 - 330*g14_34) / dt2
                     free2 = False
 
                 if free2:

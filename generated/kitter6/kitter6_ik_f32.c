@@ -139,7 +139,7 @@ static int closed_form(const float pose[16], const float *current,
     const float rc33 = r33;
     const float pcz = pz - 62.0f*r33;
 
-    /* th1: position z of A2^-1 A1^-1 T A6^-1 = A3 A4 A5
+    /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t2_0 = pcx*pcx - 156.0f*pcx*rc13 + pcy*pcy - 156.0f*pcy*rc23 + 6084.0f*rc13*rc13 + 6084.0f*rc23*rc23;
     const float ea1 = pcy - 78.0f*rc23;
@@ -229,24 +229,23 @@ static int closed_form(const float pose[16], const float *current,
             const float g05_22 = rc23;
             const float g05_23 = -c6*rc22 - rc21*s6;
             const float g05_24 = pcy - 78.0f*rc23;
-            const float g05_31 = c6*rc31 - rc32*s6;
-            const float g05_32 = rc33;
             const float g05_33 = -c6*rc32 - rc31*s6;
             const float g05_34 = pcz - 78.0f*rc33;
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
             const float g04_11 = c5*g05_11 - g05_12*s5;
+            const float g04_12 = -g05_13;
             const float g04_14 = -104.0f*g05_13 + g05_14;
             const float g04_21 = c5*g05_21 - g05_22*s5;
+            const float g04_22 = -g05_23;
             const float g04_24 = -104.0f*g05_23 + g05_24;
-            const float g04_31 = c5*g05_31 - g05_32*s5;
             const float g04_34 = -104.0f*g05_33 + g05_34;
 
             /* A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one) */
             const float g14_11 = c1*g04_11 + g04_21*s1;
+            const float g14_12 = c1*g04_12 + g04_22*s1;
             const float g14_14 = c1*g04_14 + g04_24*s1;
             const float g14_24 = c1*g04_24 - g04_14*s1;
-            const float g14_31 = g04_31;
             const float g14_34 = g04_34 - 142.0f;
 
             /* thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
@@ -256,7 +255,7 @@ static int closed_form(const float pose[16], const float *current,
 
                 dtp234 = 1.0f;
                 cp234 = (g14_11) / dtp234;
-                sp234 = (g14_31) / dtp234;
+                sp234 = (-g14_12) / dtp234;
                 freep234 = 0;
             }
             (void)freep234;
@@ -289,13 +288,12 @@ static int closed_form(const float pose[16], const float *current,
                 float th2, c2 = 0.0f, s2 = 0.0f, dt2;
                 int free2 = 1;
                 {
-                    const float t11_0_0 = 295.0f*g14_14;
-                    const float t11_0_1 = 295.0f*g14_34;
+                    const float t11_0_0 = 295.0f*c3;
 
-                    dt2 = 194700.0f*c3 + 195925.0f;
+                    dt2 = -194700.0f*c3 - 195925.0f;
                     if (fabsf(dt2) > 1e-15f) {
-                        c2 = (c3*t11_0_0 + 330.0f*g14_14 + s3*t11_0_1) / dt2;
-                        s2 = (c3*t11_0_1 + 330.0f*g14_34 - s3*t11_0_0) / dt2;
+                        c2 = (-g14_14*t11_0_0 - 330.0f*g14_14 - 295.0f*g14_34*s3) / dt2;
+                        s2 = (295.0f*g14_14*s3 - g14_34*t11_0_0 - 330.0f*g14_34) / dt2;
                         free2 = 0;
                     }
                 }

@@ -125,12 +125,15 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const float rc11 = -r13;
     const float rc12 = -r12;
     const float rc13 = r11;
     const float pcx = -px - 0.18f*r11 + 0.06f*r13;
+    const float rc21 = -r23;
     const float rc22 = -r22;
     const float rc23 = r21;
     const float pcy = -py - 0.18f*r21 + 0.06f*r23;
+    const float rc31 = r33;
     const float rc32 = r32;
     const float rc33 = -r31;
     const float pcz = pz + 0.18f*r31 - 0.06f*r33 - 0.45f;
@@ -196,18 +199,134 @@ static int closed_form(const float pose[16], const float *current,
             c3 = 0.420898627f*cn3;
             s3 = 0.420898627f*sn3;
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const float g16_11 = c1*rc11 + rc21*s1;
+            const float g16_12 = c1*rc12 + rc22*s1;
+            const float g16_13 = c1*rc13 + rc23*s1;
+            const float g16_14 = c1*pcx + pcy*s1;
+            const float g16_21 = c1*rc21 - rc11*s1;
+            const float g16_22 = c1*rc22 - rc12*s1;
+            const float g16_23 = c1*rc23 - rc13*s1;
+            const float g16_24 = c1*pcy - pcx*s1;
+            const float g16_31 = rc31;
+            const float g16_32 = rc32;
+            const float g16_33 = rc33;
+            const float g16_34 = pcz;
+
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t6_0_0 = 0.9f*c3;
-                const float t6_0_1 = s3*v1x;
-                const float t6_0_2 = 0.11f*v1z;
+                const float t7_0_0 = 0.9f*c3;
+                const float t7_0_1 = s3*v1x;
+                const float t7_0_2 = 0.11f*v1z;
 
                 dt2 = -v1x*v1x + 0.3f*v1x - v1z*v1z - 0.0225f;
                 if (fabsf(dt2) > 1e-20f) {
-                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t6_0_2 - 0.135f*s3 + t6_0_0*v1z + 0.9f*t6_0_1 - 0.85f*v1x + 0.1275f) / dt2;
-                    s2 = (c3*t6_0_2 - 0.135f*c3 - 0.9f*s3*v1z - 0.0165f*s3 + t6_0_0*v1x + 0.11f*t6_0_1 + 0.85f*v1z) / dt2;
+                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t7_0_2 - 0.135f*s3 + t7_0_0*v1z + 0.9f*t7_0_1 - 0.85f*v1x + 0.1275f) / dt2;
+                    s2 = (c3*t7_0_2 - 0.135f*c3 - 0.9f*s3*v1z - 0.0165f*s3 + t7_0_0*v1x + 0.11f*t7_0_1 + 0.85f*v1z) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_1_0 = c3*g16_33;
+                const float t7_1_1 = 0.255f*c3;
+                const float t7_1_2 = g16_13*s3;
+                const float t7_1_3 = g16_13*v1x;
+                const float t7_1_4 = g16_13*v1z;
+                const float t7_1_5 = 0.255f*s3;
+                const float t7_1_6 = g16_14*v1x;
+                const float t7_1_7 = g16_14*v1z;
+                const float t7_1_8 = g16_33*v1z;
+                const float t7_1_9 = g16_34*v1x;
+                const float t7_1_10 = g16_34*v1z;
+                const float t7_1_11 = c3*t7_1_4;
+                const float t7_1_12 = 1.7f*c3;
+                const float t7_1_13 = 0.238f*s3;
+                const float t7_1_14 = 1.7f*s3;
+                const float t7_1_15 = 0.2142f*g16_13;
+                const float t7_1_16 = 0.187f*v1z;
+                const float t7_1_17 = c3*g16_13;
+                const float t7_1_18 = c3*v1z;
+                const float t7_1_19 = g16_14*s3;
+                const float t7_1_20 = 0.036f*g16_24;
+                const float t7_1_21 = g16_34*s3;
+                const float t7_1_22 = s3*v1x;
+                const float t7_1_23 = 0.0336f*g16_23;
+                const float t7_1_24 = 1.53f*g16_34;
+                const float t7_1_25 = c3*s3;
+                const float t7_1_26 = 0.187f*v1x;
+                const float t7_1_27 = 0.042f*s3;
+                const float t7_1_28 = g16_23*g16_24;
+                const float t7_1_29 = g16_33*s3;
+                const float t7_1_30 = 0.042f*g16_34;
+                const float t7_1_31 = s3*s3;
+                const float t7_1_32 = g16_13*g16_13;
+                const float t7_1_33 = 1.53f*g16_14;
+                const float t7_1_34 = g16_14*g16_14;
+                const float t7_1_35 = g16_23*g16_23;
+                const float t7_1_36 = g16_24*g16_24;
+                const float t7_1_37 = g16_33*g16_33;
+                const float t7_1_38 = 0.187f*t7_1_31;
+                const float t7_1_39 = g16_34*g16_34;
+                const float t7_1_40 = 0.0196f*t7_1_18;
+                const float t7_1_41 = 0.0196f*t7_1_22;
+                const float t7_1_42 = 0.2142f*g16_33;
+                const float t7_1_43 = c3*g16_14;
+                const float t7_1_44 = c3*g16_34;
+                const float t7_1_45 = c3*v1x;
+                const float t7_1_46 = s3*v1z;
+                const float t7_1_47 = 0.042f*c3;
+                const float t7_1_48 = 0.24f*g16_24;
+                const float t7_1_49 = 0.00294f*c3;
+                const float t7_1_50 = 0.15f*c3;
+                const float t7_1_51 = 0.28f*t7_1_28;
+                const float t7_1_52 = 0.0196f*t7_1_45;
+                const float t7_1_53 = 0.0196f*t7_1_46;
+
+                dt2 = 0.0378f*g16_13 + g16_14*t7_1_5 - 0.27f*g16_14 - 0.0308f*g16_33*v1x + 0.00462f*g16_33 - g16_34*t7_1_1 - 0.033f*g16_34 - 0.03825f*s3 - 0.238f*t7_1_0*v1x + 0.0357f*t7_1_0 + t7_1_1*v1z - t7_1_10*t7_1_14 + 1.8f*t7_1_10 + 0.238f*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357f*t7_1_2 - 0.252f*t7_1_3 + 0.0308f*t7_1_4 + t7_1_5*v1x + 1.8f*t7_1_6 - 0.22f*t7_1_7 - 0.252f*t7_1_8 + 0.22f*t7_1_9 - 0.27f*v1x + 0.033f*v1z + 0.0405f;
+                if (fabsf(dt2) > 1e-19f) {
+                    c2 = (0.28f*c3*g16_13*g16_14*v1z + 0.187f*c3*g16_14*s3 + 0.3f*c3*g16_14*v1z + 0.198f*c3*g16_14 + 0.28f*c3*g16_23*g16_24*v1z + 0.24f*c3*g16_24*v1z + 0.28f*c3*g16_33*g16_34*v1z + 0.2142f*c3*g16_33*s3 + 1.4692f*c3*g16_34 + 1.53f*c3*s3*v1z - 0.02618f*c3*t7_1_2 - 0.0297f*c3 + 0.28f*g16_13*g16_14*s3*v1x + 0.002912f*g16_13*s3 + 0.2142f*g16_13*t7_1_31 + 0.3f*g16_14*s3*v1x - 0.042f*g16_14*t7_1_2 + 1.53f*g16_14 + 0.28f*g16_23*g16_24*s3*v1x + 0.00504f*g16_23*s3 + 0.24f*g16_24*s3*v1x + 0.28f*g16_33*g16_34*s3*v1x + 0.02772f*g16_33*s3 + 0.02618f*g16_33*t7_1_31 - 0.05236f*g16_33 - g16_34*t7_1_38 + 0.374f*g16_34 - s3*t7_1_20 + 0.00294f*s3*t7_1_32 + 0.15f*s3*t7_1_34 + 0.00294f*s3*t7_1_35 + 0.15f*s3*t7_1_36 + 0.00294f*s3*t7_1_37 + 0.15f*s3*t7_1_39 + 0.233595f*s3 - 0.205688f*t7_1_0 - 0.042f*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772f*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815f*t7_1_18 - 0.0208f*t7_1_19 - 0.198f*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815f*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53f*t7_1_31*v1x + 0.187f*t7_1_31*v1z - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295f) / dt2;
+                    s2 = (0.00504f*c3*g16_23 - c3*t7_1_20 + 1.53f*c3*t7_1_22 + 0.3f*c3*t7_1_6 + 0.016845f*c3 + 0.02618f*g16_13*t7_1_31 - 0.042f*g16_13*t7_1_43 - 0.05236f*g16_13 - g16_14*t7_1_38 + 0.374f*g16_14 + 0.02618f*s3*t7_1_0 - 0.187f*s3*t7_1_44 - 0.3f*s3*t7_1_7 + 0.0297f*s3 - t7_1_0*t7_1_30 + 0.28f*t7_1_0*t7_1_9 + 0.02772f*t7_1_0 - 0.28f*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28f*t7_1_17*t7_1_6 - 0.199388f*t7_1_17 - 0.28f*t7_1_19*t7_1_4 - 0.198f*t7_1_19 + 0.02772f*t7_1_2 - 0.0242f*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388f*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53f*t7_1_31*v1z + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242f*t7_1_43 - 0.198f*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815f*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815f*t7_1_46 - 0.02805f) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_2_0 = g16_11*g16_32;
+                const float t7_2_1 = g16_12*g16_31;
+                const float t7_2_2 = 0.102f*g16_22;
+                const float t7_2_3 = 0.108f*c3;
+                const float t7_2_4 = g16_11*g16_22;
+                const float t7_2_5 = g16_22*g16_31;
+                const float t7_2_6 = 0.0132f*t7_2_5;
+                const float t7_2_7 = 0.0132f*t7_2_4;
+                const float t7_2_8 = 0.85f*g16_24;
+                const float t7_2_9 = g16_21*g16_32;
+                const float t7_2_10 = 0.108f*s3;
+                const float t7_2_11 = g16_14*t7_2_0;
+                const float t7_2_12 = 0.11f*c3;
+                const float t7_2_13 = 0.9f*c3;
+                const float t7_2_14 = g16_12*g16_21;
+                const float t7_2_15 = g16_24*t7_2_14;
+                const float t7_2_16 = g16_34*t7_2_1;
+                const float t7_2_17 = g16_24*t7_2_12;
+                const float t7_2_18 = 0.9f*s3;
+                const float t7_2_19 = g16_14*t7_2_1;
+                const float t7_2_20 = 0.11f*s3;
+                const float t7_2_21 = g16_24*t7_2_18;
+                const float t7_2_22 = 0.135f*c3;
+                const float t7_2_23 = 0.0132f*g16_21;
+                const float t7_2_24 = 0.85f*g16_34;
+                const float t7_2_25 = 0.0165f*s3;
+                const float t7_2_26 = g16_24*t7_2_4;
+                const float t7_2_27 = g16_34*t7_2_0;
+                const float t7_2_28 = g16_24*t7_2_9;
+                const float t7_2_29 = g16_24*t7_2_5;
+
+                dt2 = 0.187f*c3*g16_12*g16_31 - 0.187f*c3*t7_2_0 + 1.53f*g16_11*g16_32*s3 + 1.5446f*g16_12*g16_31 - 1.53f*s3*t7_2_1 - 1.5446f*t7_2_0;
+                if (fabsf(dt2) > 1e-20f) {
+                    c2 = (0.9f*c3*g16_11*g16_22*g16_24 + 0.9f*c3*g16_11*g16_32*g16_34 + 0.0165f*c3*g16_11*g16_32 + 0.11f*c3*g16_12*g16_14*g16_31 + 0.108f*c3*g16_12*g16_21 + 0.0132f*c3*g16_21*g16_32 + 0.11f*c3*g16_22*g16_24*g16_31 - 0.0165f*c3*t7_2_1 - c3*t7_2_6 + 0.9f*g16_11*g16_14*g16_32*s3 + 0.11f*g16_11*g16_22*g16_24*s3 + 0.11f*g16_11*g16_32*g16_34*s3 + 0.1275f*g16_11*g16_32 + 0.85f*g16_12*g16_14*g16_31 + 0.0132f*g16_12*g16_21*s3 + 0.135f*g16_12*g16_31*s3 - 0.85f*g16_14*t7_2_0 + 0.9f*g16_21*g16_24*g16_32*s3 + 0.102f*g16_21*g16_32 + 0.85f*g16_22*g16_24*g16_31 + 0.108f*g16_22*g16_31*s3 - g16_31*t7_2_2 - 0.135f*s3*t7_2_0 - s3*t7_2_7 - 0.1275f*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2;
+                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102f*g16_12*g16_21 - g16_32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2;
                     free2 = 0;
                 }
             }
@@ -222,27 +341,25 @@ static int closed_form(const float pose[16], const float *current,
                 th2 = atan2f(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_12 = c1*rc12 + rc22*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
-            const float g16_22 = c1*rc22 - rc12*s1;
-            const float g16_23 = c1*rc23 - rc13*s1;
-            const float g16_32 = rc32;
-            const float g16_33 = rc33;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const float g26_11 = c2*g16_11 - g16_31*s2;
             const float g26_12 = c2*g16_12 - g16_32*s2;
             const float g26_13 = c2*g16_13 - g16_33*s2;
+            const float g26_21 = -c2*g16_31 - g16_11*s2;
             const float g26_22 = -c2*g16_32 - g16_12*s2;
             const float g26_23 = -c2*g16_33 - g16_13*s2;
+            const float g26_31 = g16_21;
             const float g26_32 = g16_22;
             const float g26_33 = g16_23;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+            const float g36_11 = c3*g26_11 + g26_21*s3;
             const float g36_12 = c3*g26_12 + g26_22*s3;
             const float g36_13 = c3*g26_13 + g26_23*s3;
+            const float g36_21 = c3*g26_21 - g26_11*s3;
             const float g36_22 = c3*g26_22 - g26_12*s3;
             const float g36_23 = c3*g26_23 - g26_13*s3;
+            const float g36_31 = g26_31;
             const float g36_32 = g26_32;
             const float g36_33 = g26_33;
 
@@ -270,10 +387,10 @@ static int closed_form(const float pose[16], const float *current,
                 int free4 = 1;
                 {
 
-                    dt4 = -s5*s5;
+                    dt4 = s5*s5;
                     if (fabsf(dt4) > 1e-20f) {
-                        c4 = (g36_13*s5) / dt4;
-                        s4 = (-g36_33*s5) / dt4;
+                        c4 = (-g36_13*s5) / dt4;
+                        s4 = (g36_33*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -289,22 +406,23 @@ static int closed_form(const float pose[16], const float *current,
                 }
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+                const float g46_11 = c4*g36_11 - g36_31*s4;
                 const float g46_12 = c4*g36_12 - g36_32*s4;
-                const float g46_22 = -c4*g36_32 - g36_12*s4;
+                const float g46_31 = g36_21;
                 const float g46_32 = g36_22;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+                const float g56_11 = c5*g46_11 + g46_31*s5;
                 const float g56_12 = c5*g46_12 + g46_32*s5;
-                const float g56_32 = -g46_22;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 float th6, c6 = 0.0f, s6 = 0.0f, dt6;
                 int free6 = 1;
                 {
 
-                    dt6 = -1.0f;
-                    c6 = (g56_32) / dt6;
-                    s6 = (g56_12) / dt6;
+                    dt6 = 1.0f;
+                    c6 = (g56_11) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

@@ -109,12 +109,15 @@ static int closed_form(const double pose[16], const double *current,
 {
     int count = 0;
     const double r11 = pose[0];
+    const double r12 = pose[1];
     const double r13 = pose[2];
     const double px = pose[3];
     const double r21 = pose[4];
+    const double r22 = pose[5];
     const double r23 = pose[6];
     const double py = pose[7];
     const double r31 = pose[8];
+    const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
     const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
@@ -126,12 +129,15 @@ static int closed_form(const double pose[16], const double *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const double rc11 = -r11;
+    const double rc12 = -r12;
     const double rc13 = r13;
     const double pcx = px - 0.02*r11 - 0.59999999999999998;
     const double rc21 = -r21;
+    const double rc22 = -r22;
     const double rc23 = r23;
     const double pcy = py - 0.02*r21 - 0.25;
     const double rc31 = -r31;
+    const double rc32 = -r32;
     const double rc33 = r33;
     const double pcz = pz - 0.02*r31;
 
@@ -195,18 +201,91 @@ static int closed_form(const double pose[16], const double *current,
             c3 = 17.479327199720892*cn3;
             s3 = 17.479327199720892*sn3;
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const double g16_11 = c1*rc11 + rc21*s1;
+            const double g16_12 = c1*rc12 + rc22*s1;
+            const double g16_13 = c1*rc13 + rc23*s1;
+            const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
+            const double g16_21 = -rc31;
+            const double g16_22 = -rc32;
+            const double g16_23 = -rc33;
+            const double g16_24 = 0.28999999999999998 - pcz;
+            const double g16_31 = c1*rc21 - rc11*s1;
+            const double g16_32 = c1*rc22 - rc12*s1;
+            const double g16_33 = c1*rc23 - rc13*s1;
+            const double g16_34 = c1*pcy - pcx*s1;
+
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2, c2 = 0.0, s2 = 0.0, dt2;
             int free2 = 1;
             {
-                const double t6_0_0 = c3*v1x;
-                const double t6_0_1 = c3*v1y;
-                const double t6_0_2 = s3*v1y;
+                const double t7_0_0 = c3*v1x;
+                const double t7_0_1 = c3*v1y;
+                const double t7_0_2 = s3*v1y;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
-                    c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t6_0_0 - 0.34999999999999998*t6_0_1 - 0.035000000000000003*t6_0_2 - 0.34000000000000002*v1x) / dt2;
-                    s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t6_0_0 - 0.035000000000000003*t6_0_1 + 0.34999999999999998*t6_0_2 - 0.34000000000000002*v1y) / dt2;
+                    c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t7_0_0 - 0.34999999999999998*t7_0_1 - 0.035000000000000003*t7_0_2 - 0.34000000000000002*v1x) / dt2;
+                    s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t7_0_0 - 0.035000000000000003*t7_0_1 + 0.34999999999999998*t7_0_2 - 0.34000000000000002*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t7_1_0 = g16_13*v1y;
+                const double t7_1_1 = g16_24*v1x;
+                const double t7_1_2 = 0.68000000000000005*s3;
+                const double t7_1_3 = g16_24*v1y;
+                const double t7_1_4 = g16_13*s3;
+                const double t7_1_5 = g16_23*s3;
+                const double t7_1_6 = s3*v1x;
+                const double t7_1_7 = 0.039269999999999999*g16_23;
+                const double t7_1_8 = c3*s3;
+                const double t7_1_9 = 0.023800000000000002*v1x;
+                const double t7_1_10 = c3*v1y;
+                const double t7_1_11 = s3*s3;
+                const double t7_1_12 = 0.23799999999999999*g16_14;
+                const double t7_1_13 = 0.023800000000000002*v1y;
+                const double t7_1_14 = c3*g16_13;
+                const double t7_1_15 = c3*g16_23;
+                const double t7_1_16 = g16_14*g16_14;
+                const double t7_1_17 = g16_24*g16_24;
+                const double t7_1_18 = g16_34*g16_34;
+                const double t7_1_19 = g16_13*g16_13;
+                const double t7_1_20 = g16_23*g16_23;
+                const double t7_1_21 = g16_33*g16_33;
+                const double t7_1_22 = 0.027224999999999999*t7_1_6;
+                const double t7_1_23 = c3*v1x;
+                const double t7_1_24 = s3*v1y;
+                const double t7_1_25 = 0.027224999999999999*t7_1_23;
+                const double t7_1_26 = 0.027224999999999999*t7_1_24;
+
+                dt2 = 0.68000000000000005*c3*g16_14*v1y + 0.11219999999999999*c3*g16_23*v1x - 0.11219999999999999*c3*t7_1_0 - 0.68000000000000005*c3*t7_1_1 + 0.11219999999999999*g16_13*s3*v1x - 0.11550000000000001*g16_13*v1x - g16_14*t7_1_2*v1x + 0.69999999999999996*g16_14*v1x + 0.070000000000000007*g16_14*v1y + 0.11219999999999999*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.11550000000000001*g16_23*v1y + 0.69999999999999996*g16_24*v1y - 0.01155*t7_1_0 - 0.070000000000000007*t7_1_1 - t7_1_2*t7_1_3;
+                if (fabs(dt2) > 9.9999999999999991e-22) {
+                    c2 = (-0.0040425000000000001*c3*g16_13 + 0.023800000000000002*c3*g16_14*s3 + 0.024500000000000001*c3*g16_14 + 0.038552250000000003*c3*g16_23 + 0.23799999999999999*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027224999999999999*c3*t7_1_19*v1y + 0.027224999999999999*c3*t7_1_20*v1y + 0.027224999999999999*c3*t7_1_21*v1y - 0.0039269999999999999*c3*t7_1_4 + 0.23932500000000001*c3*v1y + 0.33000000000000002*g16_13*g16_14*s3*v1x + 0.039269999999999999*g16_13*t7_1_11 - 0.039269999999999999*g16_13 + 0.0024499999999999999*g16_14*s3 - 0.33000000000000002*g16_14*t7_1_14*v1y + 0.23799999999999999*g16_14 + 0.33000000000000002*g16_23*g16_24*s3*v1x - 0.0039269999999999999*g16_23*t7_1_11 + 0.0078539999999999999*g16_23 + 0.024500000000000001*g16_24*s3 + 0.023800000000000002*g16_24*t7_1_11 - 0.047600000000000003*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1x - 0.33000000000000002*g16_33*g16_34*t7_1_10 - 0.23799999999999999*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.23799999999999999*t7_1_11*v1x - 0.33000000000000002*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040424999999999999*t7_1_4 - 0.0040425000000000001*t7_1_5 - 0.23932500000000001*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.023800000000000002*v1y) / dt2;
+                    s2 = (0.33000000000000002*c3*g16_13*g16_14*v1x + 0.039269999999999999*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33000000000000002*c3*g16_23*g16_24*v1x + 0.023800000000000002*c3*g16_24*s3 + 0.024500000000000001*c3*g16_24 + 0.33000000000000002*c3*g16_33*g16_34*v1x + 0.23799999999999999*c3*s3*v1x + 0.33000000000000002*g16_13*g16_14*s3*v1y + 0.0040425000000000001*g16_13*s3 + 0.0039269999999999999*g16_13*t7_1_11 - 0.0078539999999999999*g16_13 - 0.024500000000000001*g16_14*s3 - 0.023800000000000002*g16_14*t7_1_11 + 0.047600000000000003*g16_14 + 0.33000000000000002*g16_23*g16_24*s3*v1y + 0.039269999999999999*g16_23*t7_1_11 + 0.0024499999999999999*g16_24*s3 - 0.23799999999999999*g16_24*t7_1_11 + 0.23799999999999999*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1y - 0.0039269999999999999*s3*t7_1_15 + 0.023800000000000002*t7_1_11*v1x + 0.23799999999999999*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.038552250000000003*t7_1_14 - 0.0040425000000000001*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.23932500000000001*t7_1_23 - 0.23932500000000001*t7_1_24 - 0.00040424999999999999*t7_1_5 - t7_1_7 - t7_1_9) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const double t7_2_0 = c1*c3;
+                const double t7_2_1 = c1*s3;
+                const double t7_2_2 = 0.048300000000000003*wx;
+                const double t7_2_3 = 0.20019999999999999*wx;
+                const double t7_2_4 = c3*t7_2_1;
+                const double t7_2_5 = c1*s3*s3;
+                const double t7_2_6 = wx*wx;
+                const double t7_2_7 = 0.34999999999999998*t7_2_0;
+                const double t7_2_8 = wy*wy;
+                const double t7_2_9 = wz*wz;
+                const double t7_2_10 = 0.035000000000000003*t7_2_1;
+                const double t7_2_11 = 0.34000000000000002*c1;
+                const double t7_2_12 = 0.035000000000000003*t7_2_0;
+                const double t7_2_13 = 0.34999999999999998*t7_2_1;
+
+                dt2 = 0.57999999999999996*c1*(-0.023800000000000002*c3 + 0.23799999999999999*s3 - 0.23932500000000001);
+                if (fabs(dt2) > 9.9999999999999991e-22) {
+                    c2 = (-0.00044200000000000001*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383874999999998*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082466999999999999*t7_2_4 + 0.016660000000000001*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.19719999999999999*wx) / dt2;
+                    s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274674999999999*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.016660000000000001*t7_2_4 - 0.082466999999999999*t7_2_5 - 0.027199999999999998*wx) / dt2;
                     free2 = 0;
                 }
             }
@@ -221,28 +300,26 @@ static int closed_form(const double pose[16], const double *current,
                 th2 = atan2(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const double g16_11 = c1*rc11 + rc21*s1;
-            const double g16_13 = c1*rc13 + rc23*s1;
-            const double g16_21 = -rc31;
-            const double g16_23 = -rc33;
-            const double g16_31 = c1*rc21 - rc11*s1;
-            const double g16_33 = c1*rc23 - rc13*s1;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const double g26_11 = c2*g16_11 + g16_21*s2;
+            const double g26_12 = c2*g16_12 + g16_22*s2;
             const double g26_13 = c2*g16_13 + g16_23*s2;
             const double g26_21 = c2*g16_21 - g16_11*s2;
+            const double g26_22 = c2*g16_22 - g16_12*s2;
             const double g26_23 = c2*g16_23 - g16_13*s2;
             const double g26_31 = g16_31;
+            const double g26_32 = g16_32;
             const double g26_33 = g16_33;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
             const double g36_13 = c3*g26_13 + g26_23*s3;
             const double g36_21 = -g26_31;
+            const double g36_22 = -g26_32;
             const double g36_23 = -g26_33;
             const double g36_31 = c3*g26_21 - g26_11*s3;
+            const double g36_32 = c3*g26_22 - g26_12*s3;
             const double g36_33 = c3*g26_23 - g26_13*s3;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
@@ -269,10 +346,10 @@ static int closed_form(const double pose[16], const double *current,
                 int free4 = 1;
                 {
 
-                    dt4 = s5*s5;
+                    dt4 = -s5*s5;
                     if (fabs(dt4) > 9.9999999999999995e-21) {
-                        c4 = (-g36_13*s5) / dt4;
-                        s4 = (-g36_23*s5) / dt4;
+                        c4 = (g36_13*s5) / dt4;
+                        s4 = (g36_23*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -289,12 +366,13 @@ static int closed_form(const double pose[16], const double *current,
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
                 const double g46_11 = c4*g36_11 + g36_21*s4;
+                const double g46_12 = c4*g36_12 + g36_22*s4;
                 const double g46_21 = g36_31;
-                const double g46_31 = -c4*g36_21 + g36_11*s4;
+                const double g46_22 = g36_32;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
                 const double g56_11 = c5*g46_11 + g46_21*s5;
-                const double g56_21 = -g46_31;
+                const double g56_12 = c5*g46_12 + g46_22*s5;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 double th6, c6 = 0.0, s6 = 0.0, dt6;
@@ -303,7 +381,7 @@ static int closed_form(const double pose[16], const double *current,
 
                     dt6 = 1.0;
                     c6 = (g56_11) / dt6;
-                    s6 = (g56_21) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

@@ -105,12 +105,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = (total - total) == 0.0
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         rc11 = -r11
+        rc12 = -r12
         rc13 = r13
         pcx = px - 0.02*r11 - 0.6
         rc21 = -r21
+        rc22 = -r22
         rc23 = r23
         pcy = py - 0.02*r21 - 0.25
         rc31 = -r31
+        rc32 = -r32
         rc33 = r33
         pcz = pz - 0.02*r31
 
@@ -162,17 +165,86 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s3 = 17.479327199720892*sn3
         cond3 = root3 * 4.180828530294072
 
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+        g16_11 = c1*rc11 + rc21*s1
+        g16_12 = c1*rc12 + rc22*s1
+        g16_13 = c1*rc13 + rc23*s1
+        g16_14 = c1*pcx + pcy*s1 - 0.04
+        g16_21 = -rc31
+        g16_22 = -rc32
+        g16_23 = -rc33
+        g16_24 = 0.29 - pcz
+        g16_31 = c1*rc21 - rc11*s1
+        g16_32 = c1*rc22 - rc12*s1
+        g16_33 = c1*rc23 - rc13*s1
+        g16_34 = c1*pcy - pcx*s1
+
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t6_0_0 = c3*v1x
-        t6_0_1 = c3*v1y
-        t6_0_2 = s3*v1y
+        t7_0_0 = c3*v1x
+        t7_0_1 = c3*v1y
+        t7_0_2 = s3*v1y
 
         dt2 = -v1x*v1x - v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 1e-21)
-        c2 = (0.35*s3*v1x - 0.035*t6_0_0 - 0.35*t6_0_1 - 0.035*t6_0_2 - 0.34*v1x) / dt2
-        s2 = (0.035*s3*v1x + 0.35*t6_0_0 - 0.035*t6_0_1 + 0.35*t6_0_2 - 0.34*v1y) / dt2
+        c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
+        s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
         chosen2 = chosen2 | use
+        if not chosen2.all():
+            t7_1_0 = g16_13*v1y
+            t7_1_1 = g16_24*v1x
+            t7_1_2 = 0.68*s3
+            t7_1_3 = g16_24*v1y
+            t7_1_4 = g16_13*s3
+            t7_1_5 = g16_23*s3
+            t7_1_6 = s3*v1x
+            t7_1_7 = 0.03927*g16_23
+            t7_1_8 = c3*s3
+            t7_1_9 = 0.0238*v1x
+            t7_1_10 = c3*v1y
+            t7_1_11 = s3*s3
+            t7_1_12 = 0.238*g16_14
+            t7_1_13 = 0.0238*v1y
+            t7_1_14 = c3*g16_13
+            t7_1_15 = c3*g16_23
+            t7_1_16 = g16_14*g16_14
+            t7_1_17 = g16_24*g16_24
+            t7_1_18 = g16_34*g16_34
+            t7_1_19 = g16_13*g16_13
+            t7_1_20 = g16_23*g16_23
+            t7_1_21 = g16_33*g16_33
+            t7_1_22 = 0.027225*t7_1_6
+            t7_1_23 = c3*v1x
+            t7_1_24 = s3*v1y
+            t7_1_25 = 0.027225*t7_1_23
+            t7_1_26 = 0.027225*t7_1_24
+
+            dt2 = 0.68*c3*g16_14*v1y + 0.1122*c3*g16_23*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.1122*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.1155*g16_23*v1y + 0.7*g16_24*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
+            use = ~chosen2 & (numpy.abs(dt2) > 1e-21)
+            c2 = numpy.where(use, (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.03855225*c3*g16_23 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 + 0.33*g16_23*g16_24*s3*v1x - 0.003927*g16_23*t7_1_11 + 0.007854*g16_23 + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2, c2)
+            s2 = numpy.where(use, (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33*c3*g16_23*g16_24*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 + 0.33*g16_23*g16_24*s3*v1y + 0.03927*g16_23*t7_1_11 + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2, s2)
+            chosen2 = chosen2 | use
+        if not chosen2.all():
+            t7_2_0 = c1*c3
+            t7_2_1 = c1*s3
+            t7_2_2 = 0.0483*wx
+            t7_2_3 = 0.2002*wx
+            t7_2_4 = c3*t7_2_1
+            t7_2_5 = c1*s3*s3
+            t7_2_6 = wx*wx
+            t7_2_7 = 0.35*t7_2_0
+            t7_2_8 = wy*wy
+            t7_2_9 = wz*wz
+            t7_2_10 = 0.035*t7_2_1
+            t7_2_11 = 0.34*c1
+            t7_2_12 = 0.035*t7_2_0
+            t7_2_13 = 0.35*t7_2_1
+
+            dt2 = 0.58*c1*(-0.0238*c3 + 0.238*s3 - 0.239325)
+            use = ~chosen2 & (numpy.abs(dt2) > 1e-21)
+            c2 = numpy.where(use, (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2, c2)
+            s2 = numpy.where(use, (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2, s2)
+            chosen2 = chosen2 | use
         free2 = ~chosen2
         valid = valid & ~(chosen2 & (numpy.abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4))
         th2 = numpy.arctan2(s2, c2)
@@ -181,28 +253,26 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_13 = c1*rc13 + rc23*s1
-        g16_21 = -rc31
-        g16_23 = -rc33
-        g16_31 = c1*rc21 - rc11*s1
-        g16_33 = c1*rc23 - rc13*s1
-
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         g26_11 = c2*g16_11 + g16_21*s2
+        g26_12 = c2*g16_12 + g16_22*s2
         g26_13 = c2*g16_13 + g16_23*s2
         g26_21 = c2*g16_21 - g16_11*s2
+        g26_22 = c2*g16_22 - g16_12*s2
         g26_23 = c2*g16_23 - g16_13*s2
         g26_31 = g16_31
+        g26_32 = g16_32
         g26_33 = g16_33
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
+        g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
         g36_21 = -g26_31
+        g36_22 = -g26_32
         g36_23 = -g26_33
         g36_31 = c3*g26_21 - g26_11*s3
+        g36_32 = c3*g26_22 - g26_12*s3
         g36_33 = c3*g26_23 - g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
@@ -223,10 +293,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th4 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen4 = numpy.zeros((), dtype=bool)
 
-        dt4 = s5*s5
+        dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
-        c4 = (-g36_13*s5) / dt4
-        s4 = (-g36_23*s5) / dt4
+        c4 = (g36_13*s5) / dt4
+        s4 = (g36_23*s5) / dt4
         chosen4 = chosen4 | use
         free4 = ~chosen4
         valid = valid & ~(chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4))
@@ -238,12 +308,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g36_21*s4
+        g46_12 = c4*g36_12 + g36_22*s4
         g46_21 = g36_31
-        g46_31 = -c4*g36_21 + g36_11*s4
+        g46_22 = g36_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g56_11 = c5*g46_11 + g46_21*s5
-        g56_21 = -g46_31
+        g56_12 = c5*g46_12 + g46_22*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
@@ -251,7 +322,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt6 = 1
         use = ~chosen6
         c6 = (g56_11) / dt6
-        s6 = (g56_21) / dt6
+        s6 = (-g56_12) / dt6
         chosen6 = chosen6 | use
         valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
         th6 = numpy.arctan2(s6, c6)

@@ -109,12 +109,15 @@ static int closed_form(const float pose[16], const float *current,
 {
     int count = 0;
     const float r11 = pose[0];
+    const float r12 = pose[1];
     const float r13 = pose[2];
     const float px = pose[3];
     const float r21 = pose[4];
+    const float r22 = pose[5];
     const float r23 = pose[6];
     const float py = pose[7];
     const float r31 = pose[8];
+    const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
     const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
@@ -126,12 +129,15 @@ static int closed_form(const float pose[16], const float *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = -r11;
+    const float rc12 = -r12;
     const float rc13 = r13;
     const float pcx = px - 0.02f*r11 - 0.6f;
     const float rc21 = -r21;
+    const float rc22 = -r22;
     const float rc23 = r23;
     const float pcy = py - 0.02f*r21 - 0.25f;
     const float rc31 = -r31;
+    const float rc32 = -r32;
     const float rc33 = r33;
     const float pcz = pz - 0.02f*r31;
 
@@ -195,18 +201,91 @@ static int closed_form(const float pose[16], const float *current,
             c3 = 17.4793272f*cn3;
             s3 = 17.4793272f*sn3;
 
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const float g16_11 = c1*rc11 + rc21*s1;
+            const float g16_12 = c1*rc12 + rc22*s1;
+            const float g16_13 = c1*rc13 + rc23*s1;
+            const float g16_14 = c1*pcx + pcy*s1 - 0.04f;
+            const float g16_21 = -rc31;
+            const float g16_22 = -rc32;
+            const float g16_23 = -rc33;
+            const float g16_24 = 0.29f - pcz;
+            const float g16_31 = c1*rc21 - rc11*s1;
+            const float g16_32 = c1*rc22 - rc12*s1;
+            const float g16_33 = c1*rc23 - rc13*s1;
+            const float g16_34 = c1*pcy - pcx*s1;
+
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2;
             int free2 = 1;
             {
-                const float t6_0_0 = c3*v1x;
-                const float t6_0_1 = c3*v1y;
-                const float t6_0_2 = s3*v1y;
+                const float t7_0_0 = c3*v1x;
+                const float t7_0_1 = c3*v1y;
+                const float t7_0_2 = s3*v1y;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabsf(dt2) > 1e-21f) {
-                    c2 = (0.35f*s3*v1x - 0.035f*t6_0_0 - 0.35f*t6_0_1 - 0.035f*t6_0_2 - 0.34f*v1x) / dt2;
-                    s2 = (0.035f*s3*v1x + 0.35f*t6_0_0 - 0.035f*t6_0_1 + 0.35f*t6_0_2 - 0.34f*v1y) / dt2;
+                    c2 = (0.35f*s3*v1x - 0.035f*t7_0_0 - 0.35f*t7_0_1 - 0.035f*t7_0_2 - 0.34f*v1x) / dt2;
+                    s2 = (0.035f*s3*v1x + 0.35f*t7_0_0 - 0.035f*t7_0_1 + 0.35f*t7_0_2 - 0.34f*v1y) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_1_0 = g16_13*v1y;
+                const float t7_1_1 = g16_24*v1x;
+                const float t7_1_2 = 0.68f*s3;
+                const float t7_1_3 = g16_24*v1y;
+                const float t7_1_4 = g16_13*s3;
+                const float t7_1_5 = g16_23*s3;
+                const float t7_1_6 = s3*v1x;
+                const float t7_1_7 = 0.03927f*g16_23;
+                const float t7_1_8 = c3*s3;
+                const float t7_1_9 = 0.0238f*v1x;
+                const float t7_1_10 = c3*v1y;
+                const float t7_1_11 = s3*s3;
+                const float t7_1_12 = 0.238f*g16_14;
+                const float t7_1_13 = 0.0238f*v1y;
+                const float t7_1_14 = c3*g16_13;
+                const float t7_1_15 = c3*g16_23;
+                const float t7_1_16 = g16_14*g16_14;
+                const float t7_1_17 = g16_24*g16_24;
+                const float t7_1_18 = g16_34*g16_34;
+                const float t7_1_19 = g16_13*g16_13;
+                const float t7_1_20 = g16_23*g16_23;
+                const float t7_1_21 = g16_33*g16_33;
+                const float t7_1_22 = 0.027225f*t7_1_6;
+                const float t7_1_23 = c3*v1x;
+                const float t7_1_24 = s3*v1y;
+                const float t7_1_25 = 0.027225f*t7_1_23;
+                const float t7_1_26 = 0.027225f*t7_1_24;
+
+                dt2 = 0.68f*c3*g16_14*v1y + 0.1122f*c3*g16_23*v1x - 0.1122f*c3*t7_1_0 - 0.68f*c3*t7_1_1 + 0.1122f*g16_13*s3*v1x - 0.1155f*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7f*g16_14*v1x + 0.07f*g16_14*v1y + 0.1122f*g16_23*s3*v1y + 0.01155f*g16_23*v1x - 0.1155f*g16_23*v1y + 0.7f*g16_24*v1y - 0.01155f*t7_1_0 - 0.07f*t7_1_1 - t7_1_2*t7_1_3;
+                if (fabsf(dt2) > 1e-21f) {
+                    c2 = (-0.0040425f*c3*g16_13 + 0.0238f*c3*g16_14*s3 + 0.0245f*c3*g16_14 + 0.03855225f*c3*g16_23 + 0.238f*c3*g16_24*s3 - 0.23365f*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225f*c3*t7_1_19*v1y + 0.027225f*c3*t7_1_20*v1y + 0.027225f*c3*t7_1_21*v1y - 0.003927f*c3*t7_1_4 + 0.239325f*c3*v1y + 0.33f*g16_13*g16_14*s3*v1x + 0.03927f*g16_13*t7_1_11 - 0.03927f*g16_13 + 0.00245f*g16_14*s3 - 0.33f*g16_14*t7_1_14*v1y + 0.238f*g16_14 + 0.33f*g16_23*g16_24*s3*v1x - 0.003927f*g16_23*t7_1_11 + 0.007854f*g16_23 + 0.0245f*g16_24*s3 + 0.0238f*g16_24*t7_1_11 - 0.0476f*g16_24 + 0.33f*g16_33*g16_34*s3*v1x - 0.33f*g16_33*g16_34*t7_1_10 - 0.238f*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238f*t7_1_11*v1x - 0.33f*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425f*t7_1_4 - 0.0040425f*t7_1_5 - 0.239325f*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238f*v1y) / dt2;
+                    s2 = (0.33f*c3*g16_13*g16_14*v1x + 0.03927f*c3*g16_13*s3 + 0.23365f*c3*g16_14 + 0.33f*c3*g16_23*g16_24*v1x + 0.0238f*c3*g16_24*s3 + 0.0245f*c3*g16_24 + 0.33f*c3*g16_33*g16_34*v1x + 0.238f*c3*s3*v1x + 0.33f*g16_13*g16_14*s3*v1y + 0.0040425f*g16_13*s3 + 0.003927f*g16_13*t7_1_11 - 0.007854f*g16_13 - 0.0245f*g16_14*s3 - 0.0238f*g16_14*t7_1_11 + 0.0476f*g16_14 + 0.33f*g16_23*g16_24*s3*v1y + 0.03927f*g16_23*t7_1_11 + 0.00245f*g16_24*s3 - 0.238f*g16_24*t7_1_11 + 0.238f*g16_24 + 0.33f*g16_33*g16_34*s3*v1y - 0.003927f*s3*t7_1_15 + 0.0238f*t7_1_11*v1x + 0.238f*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225f*t7_1_14 - 0.0040425f*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325f*t7_1_23 - 0.239325f*t7_1_24 - 0.00040425f*t7_1_5 - t7_1_7 - t7_1_9) / dt2;
+                    free2 = 0;
+                }
+            }
+            if (free2) {
+                const float t7_2_0 = c1*c3;
+                const float t7_2_1 = c1*s3;
+                const float t7_2_2 = 0.0483f*wx;
+                const float t7_2_3 = 0.2002f*wx;
+                const float t7_2_4 = c3*t7_2_1;
+                const float t7_2_5 = c1*s3*s3;
+                const float t7_2_6 = wx*wx;
+                const float t7_2_7 = 0.35f*t7_2_0;
+                const float t7_2_8 = wy*wy;
+                const float t7_2_9 = wz*wz;
+                const float t7_2_10 = 0.035f*t7_2_1;
+                const float t7_2_11 = 0.34f*c1;
+                const float t7_2_12 = 0.035f*t7_2_0;
+                const float t7_2_13 = 0.35f*t7_2_1;
+
+                dt2 = 0.58f*c1*(-0.0238f*c3 + 0.238f*s3 - 0.239325f);
+                if (fabsf(dt2) > 1e-21f) {
+                    c2 = (-0.000442f*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675f*t7_2_0 - 0.019383875f*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467f*t7_2_4 + 0.01666f*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972f*wx) / dt2;
+                    s2 = (-0.1102535f*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875f*t7_2_0 + 0.19274675f*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666f*t7_2_4 - 0.082467f*t7_2_5 - 0.0272f*wx) / dt2;
                     free2 = 0;
                 }
             }
@@ -221,28 +300,26 @@ static int closed_form(const float pose[16], const float *current,
                 th2 = atan2f(s2, c2);
             }
 
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + rc21*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
-            const float g16_21 = -rc31;
-            const float g16_23 = -rc33;
-            const float g16_31 = c1*rc21 - rc11*s1;
-            const float g16_33 = c1*rc23 - rc13*s1;
-
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float g26_11 = c2*g16_11 + g16_21*s2;
+            const float g26_12 = c2*g16_12 + g16_22*s2;
             const float g26_13 = c2*g16_13 + g16_23*s2;
             const float g26_21 = c2*g16_21 - g16_11*s2;
+            const float g26_22 = c2*g16_22 - g16_12*s2;
             const float g26_23 = c2*g16_23 - g16_13*s2;
             const float g26_31 = g16_31;
+            const float g26_32 = g16_32;
             const float g26_33 = g16_33;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
+            const float g36_12 = c3*g26_12 + g26_22*s3;
             const float g36_13 = c3*g26_13 + g26_23*s3;
             const float g36_21 = -g26_31;
+            const float g36_22 = -g26_32;
             const float g36_23 = -g26_33;
             const float g36_31 = c3*g26_21 - g26_11*s3;
+            const float g36_32 = c3*g26_22 - g26_12*s3;
             const float g36_33 = c3*g26_23 - g26_13*s3;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
@@ -269,10 +346,10 @@ static int closed_form(const float pose[16], const float *current,
                 int free4 = 1;
                 {
 
-                    dt4 = s5*s5;
+                    dt4 = -s5*s5;
                     if (fabsf(dt4) > 1e-20f) {
-                        c4 = (-g36_13*s5) / dt4;
-                        s4 = (-g36_23*s5) / dt4;
+                        c4 = (g36_13*s5) / dt4;
+                        s4 = (g36_23*s5) / dt4;
                         free4 = 0;
                     }
                 }
@@ -289,12 +366,13 @@ static int closed_form(const float pose[16], const float *current,
 
                 /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
                 const float g46_11 = c4*g36_11 + g36_21*s4;
+                const float g46_12 = c4*g36_12 + g36_22*s4;
                 const float g46_21 = g36_31;
-                const float g46_31 = -c4*g36_21 + g36_11*s4;
+                const float g46_22 = g36_32;
 
                 /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
                 const float g56_11 = c5*g46_11 + g46_21*s5;
-                const float g56_21 = -g46_31;
+                const float g56_12 = c5*g46_12 + g46_22*s5;
 
                 /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 float th6, c6 = 0.0f, s6 = 0.0f, dt6;
@@ -303,7 +381,7 @@ static int closed_form(const float pose[16], const float *current,
 
                     dt6 = 1.0f;
                     c6 = (g56_11) / dt6;
-                    s6 = (g56_21) / dt6;
+                    s6 = (-g56_12) / dt6;
                     free6 = 0;
                 }
                 (void)free6;

@@ -312,7 +312,15 @@ def angle_sum_trig(terms: list[tuple[str, int]]) -> tuple[sp.Expr, sp.Expr]:
 
 
 def lower(derivation: Derivation) -> Plan:
-    """The IR as a code plan: numbers substituted, CSE per block, nesting depth per block."""
+    """The IR as a code plan: numbers substituted, CSE per block, nesting depth per block. Every
+    back-end lowers the same derivation, so the plan is made once and kept with it."""
+    plan = derivation.__dict__.get("_plan")
+    if plan is None:
+        plan = derivation.__dict__["_plan"] = lower_now(derivation)
+    return plan
+
+
+def lower_now(derivation: Derivation) -> Plan:
     params = derivation.parameters
     blocks: list[Block] = []
     depth = 0

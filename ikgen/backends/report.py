@@ -39,6 +39,7 @@ RELATIONS = {"=": ("=", "="), "maps": (r"\mapsto", "&#8614;")}   # relation -> (
 REPORT_SAMPLES = 2000                     # verification samples for the report's figures
 REPORT_SEED = 2026
 POSE_SEED = 5                             # the invented sample pose
+LARGE_TERMS = 12                          # beyond this many terms readable() does not try factor()
 
 
 # ----------------------------------------------------------------------------- printing
@@ -180,6 +181,8 @@ def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
     makers = [sp.factor_terms, sp.factor,
               lambda e: sp.collect(sp.expand(e), variables),
               lambda e: sp.collect(sp.expand(e), variables, func=sp.factor)]
+    if len(sp.Add.make_args(sp.expand(expr))) > LARGE_TERMS:
+        makers = makers[:1] + makers[2:3]   # factoring a long polynomial costs seconds and never won
     candidates = [expr]
     for make in makers:
         try:

@@ -36,6 +36,7 @@ from .symbols import Unknown, reduce_circles
 ZERO_TOLERANCE = 1e-9   # relative: a coefficient below this on every sample is identically zero
 MAX_PAIR_FORMS = 3
 SYMBOLIC_CANDIDATES = 8  # how many of the numerically best candidates are written out symbolically
+PAIR_BUILDS = 4          # linear pairs written out symbolically to choose each form from
 PROBE_ANGLES = (0.0, math.pi / 2, math.pi, 3 * math.pi / 2, math.pi / 4, 2.0)
 
 
@@ -52,6 +53,12 @@ class NumericLinear:
     a: np.ndarray
     b: np.ndarray
     c: np.ndarray
+
+    def signature(self) -> tuple:
+        """The same for equations that are constant multiples of each other (to 1e-9)."""
+        values = np.concatenate([self.a, self.b, self.c])
+        pivot = values[np.argmax(np.abs(values) > 1e-9 * np.max(np.abs(values)))]
+        return tuple(np.round(values / pivot, 9) + 0.0)
 
 
 @dataclass
@@ -86,6 +93,7 @@ class Solver:
         self._numeric: dict = {}
         self._known_values: dict = {}
         self._express: dict = {}
+        self._known: tuple = (None, set())
         for u in unknowns.values():
             samples.define_unknown(u)
 
@@ -121,7 +129,10 @@ class Solver:
         return {k for k in self.unknowns if self.express(k) is not None}
 
     def known_joints(self) -> set[int]:
-        return {int(k) for k in self.closure() if k.isdigit()}
+        state = tuple(self.solved)
+        if self._known[0] != state:
+            self._known = (state, {int(k) for k in self.closure() if k.isdigit()})
+        return self._known[1]
 
     # ------------------------------------------------------------------ emission
     def emit(self, step) -> None:
@@ -231,17 +242,23 @@ class Solver:
             (1 if equation.coordinates.name else 0)
 
     def candidates(self, closure: set[str]) -> dict[str, list["NumericLinear"]]:
-        """Single-unknown equations linear in that unknown's cosine and sine, per unknown (numeric)."""
-        out: dict[str, list[NumericLinear]] = {}
+        """Single-unknown equations linear in that unknown's cosine and sine, per unknown (numeric).
+        Equations that are multiples of one another on the samples (the same equation reached
+        through different splits) are kept once, in their shortest form."""
+        out: dict[str, dict] = {}
         for equation in self.pool.equations:
             left = equation.depends - closure
             if len(left) != 1:
                 continue
             (key,) = left
             found = self.numeric(equation, key)
-            if found is not None:
-                out.setdefault(key, []).append(found)
-        return out
+            if found is None:
+                continue
+            signature = found.signature()
+            kept = out.setdefault(key, {}).get(signature)
+            if kept is None or (self.size(equation), equation.number) < (self.size(kept.equation), kept.equation.number):
+                out[key][signature] = found
+        return {key: list(found.values()) for key, found in out.items()}
 
     # ------------------------------------------------------------------ one step
     def solve(self, targets: list[str]) -> None:
@@ -300,33 +317,46 @@ class Solver:
                             self.size(first.equation) + self.size(second.equation),
                             first.equation.number, second.equation.number), first, second, det_values))
         scored.sort(key=lambda item: item[0])
-        built = []
-        for score, first, second, det_values in scored[:SYMBOLIC_CANDIDATES]:
-            one, two = self.linear(first.equation, key), self.linear(second.equation, key)
-            if one is None or two is None:
-                continue
-            det = self.reduce(one.a * two.b - two.a * one.b)
-            cos_num = self.reduce(one.c * two.b - two.c * one.b)
-            sin_num = self.reduce(one.a * two.c - two.a * one.c)
-            weight = sp.count_ops(det) + sp.count_ops(cos_num) + sp.count_ops(sin_num)
-            built.append(((score[0], score[1], len(det.free_symbols - self.constant_symbols), weight) + score[2:],
-                          det, cos_num, sin_num, det_values, one, two))
-        built.sort(key=lambda item: item[0])
+        built: dict = {}
         kept, seen = [], []
-        for _, det, cos_num, sin_num, det_values, one, two in built:
-            # One form per singular set: an alternative whose determinant is a constant multiple of
-            # a kept one's (on the samples) vanishes at the same poses and adds nothing.
-            if any(proportional(det_values, d) or divides(old, det) for d, old in seen):
-                continue
+        while len(kept) < MAX_PAIR_FORMS:
+            # one form per singular set: a pair whose determinant is a constant multiple of a kept
+            # one's (on the samples) vanishes at the same poses and adds nothing
+            scored = [item for item in scored if not any(proportional(item[3], d) for d, _ in seen)]
+            options = [self.built_pair(item, key, built) for item in scored[:PAIR_BUILDS]]
+            options = [o for o in options if o is not None and not any(divides(old, o[1]) for _, old in seen)]
+            if not options:
+                break
+            best = min(options, key=lambda o: o[0])
+            _, det, cos_num, sin_num, det_values, one, two, item = best
+            scored.remove(item)
             seen.append((det_values, det))
             typical = float(np.median(np.abs(det_values)))
             kept.append(PairForm(cos_num, sin_num, det, False, SINGULAR_TOLERANCE * power_of_ten(typical),
                                  f"{one.equation.source} and {two.equation.source}"))
-            if len(kept) == MAX_PAIR_FORMS:
+            if det.is_number and det != 0:
                 break
         # A form with a constant non-zero determinant never degenerates: it alone is enough.
         constant = [f for f in kept if f.det.is_number and f.det != 0]
         return constant[:1] or kept
+
+    def built_pair(self, item, key: str, built: dict):
+        """The symbolic form of a scored pair: (rank, det, cos_num, sin_num, det values, the two
+        linear equations, the item), or None when one of them is not linear symbolically."""
+        score, first, second, det_values = item
+        cache_key = (first.equation.number, second.equation.number)
+        if cache_key not in built:
+            one, two = self.linear(first.equation, key), self.linear(second.equation, key)
+            if one is None or two is None:
+                built[cache_key] = None
+            else:
+                det = self.reduce(one.a * two.b - two.a * one.b)
+                cos_num = self.reduce(one.c * two.b - two.c * one.b)
+                sin_num = self.reduce(one.a * two.c - two.a * one.c)
+                weight = sp.count_ops(det) + sp.count_ops(cos_num) + sp.count_ops(sin_num)
+                rank = (score[0], score[1], len(det.free_symbols - self.constant_symbols), weight) + score[2:]
+                built[cache_key] = (rank, det, cos_num, sin_num, det_values, one, two, item)
+        return built[cache_key]
 
     def pair_singular(self, key: str, forms: list[PairForm]) -> Singular:
         what = self.unknowns[key].words()
@@ -505,10 +535,12 @@ def proportional(x: np.ndarray, y: np.ndarray) -> bool:
 
 
 def divides(first: sp.Expr, second: sp.Expr) -> bool:
-    """``second`` is ``first`` times a polynomial: it vanishes wherever ``first`` does."""
-    if first.is_number:
-        return False
-    ratio = sp.cancel(sp.expand(second) / sp.expand(first))
+    """``second`` vanishes wherever ``first`` does: it is the square-free part of ``first`` (s5 for
+    s5^2) times a polynomial."""
+    first = sp.expand(first)
+    if first.is_number or len(sp.Add.make_args(first)) > 6:
+        return False        # a long determinant: the test costs seconds, and such forms are rare
+    ratio = sp.cancel(sp.expand(second) / sp.sqf_part(first))
     return not sp.denom(ratio).free_symbols
 
 
