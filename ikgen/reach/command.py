@@ -26,7 +26,7 @@ from ..errors import PATH_LIMIT, IkgenError, clip, quote
 from ..exact import plain_decimal, plain_whole
 from ..terminal import err, fmt, out, table
 from . import outputs, run
-from .grid import Grid, axis_values
+from .grid import Grid, axis_count, axis_values
 from .maps import ReachMap, compute
 from .orientations import SET_HELP, orientation_sets, read_rotation_file
 from .solvers import ReachJob
@@ -105,11 +105,6 @@ def box_of(args, arm, base: np.ndarray, step: float | None) -> list[tuple[float,
             raise IkgenError(f"--box: the box is empty: {name} runs from {fmt(low)} to {fmt(high)}; expected "
                              f"{name}min <= {name}max (the order is xmin,xmax,ymin,ymax,zmin,zmax)")
     return sides
-
-
-def make_axes(sides, step: float) -> list[np.ndarray]:
-    axes = [axis_values(low, high, step) for low, high in sides]
-    return axes
 
 
 def check_size(positions: int, orientations: int, allow_large: bool) -> None:
@@ -255,9 +250,9 @@ def cmd_reach(args) -> int:
     base = np.array(arm.base.evalf(), dtype=float)[:3, 3]
     sides = box_of(args, arm, base, args.step)
     step = args.step or nice_step(max(high - low for low, high in sides))
-    x, y, z = make_axes(sides, step)
     rotations, names = orientations_of(args)
-    check_size(len(x) * len(y) * len(z), len(names), args.allow_large)
+    check_size(math.prod(axis_count(low, high, step) for low, high in sides), len(names), args.allow_large)
+    x, y, z = (axis_values(low, high, step) for low, high in sides)
     heights = heights_of(args, z, step)
     check_out_folder(args.out)
     grid = Grid(x, y, z, rotations, names)

@@ -50,7 +50,11 @@ class Grid:
         return poses
 
 
+def axis_count(low: float, high: float, step: float) -> int:
+    """How many values axis_values(low, high, step) has (without making them)."""
+    return int(math.floor((high - low) / step + 1e-9)) + 1
+
+
 def axis_values(low: float, high: float, step: float) -> np.ndarray:
     """low, low + step, ... <= high (high included when within 1e-9 steps of a grid value)."""
-    count = int(math.floor((high - low) / step + 1e-9)) + 1
-    return low + step * np.arange(count)
+    return low + step * np.arange(axis_count(low, high, step))

@@ -165,12 +165,10 @@ def _colour_scale(view: str, values: np.ndarray, orientations: int):
         top = orientations if view == "orientations" else int(np.nanmax(values)) if np.isfinite(values).any() else 1
         top = max(top, 1)
         ramp = LinearSegmentedColormap.from_list("reach", REACH_COLOURS)
-        colours = ListedColormap([ramp(k / max(top - 1, 1)) for k in range(top)])
-        colours.set_bad(UNREACHED)
+        colours = ListedColormap([ramp(k / max(top - 1, 1)) for k in range(top)]).with_extremes(bad=UNREACHED)
         ticks = list(range(1, top + 1)) if top <= 12 else list(np.linspace(1, top, 7).round().astype(int))
         return colours, BoundaryNorm(np.arange(0.5, top + 1.5), top), ticks
-    colours = LinearSegmentedColormap.from_list("quality", QUALITY_COLOURS)
-    colours.set_bad(UNREACHED)
+    colours = LinearSegmentedColormap.from_list("quality", QUALITY_COLOURS).with_extremes(bad=UNREACHED)
     if view == "margin":
         return colours, Normalize(0.0, 0.5), [0.0, 0.1, 0.2, 0.3, 0.4, 0.5]
     finite = values[np.isfinite(values)]
