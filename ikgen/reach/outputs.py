@@ -19,6 +19,7 @@ import csv
 import html
 import io
 import json
+import textwrap
 import zipfile
 
 import numpy as np
@@ -264,7 +265,7 @@ def _render(draw, size: tuple[float, float], title: str, legend_note: str) -> by
                    Line2D([0], [0], marker="+", color=BASE_MARK, linestyle="none", markersize=9,
                           markeredgewidth=1.6, label="base of the arm (world position of frame 0)")]
         fig.legend(handles=handles, loc="outside lower center", ncol=2, prop=font, frameon=False,
-                   title=legend_note, title_fontproperties=font)
+                   title=textwrap.fill(legend_note, int(size[0] * 15)), title_fontproperties=font)
         buffer = io.BytesIO()
         fig.savefig(buffer, format="png", metadata={"Software": None})
     return buffer.getvalue()
