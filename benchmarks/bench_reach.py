@@ -6,9 +6,10 @@ along each side, tool straight down at 8 yaws: 26^3 x 8 = 140,608 poses by defau
 - on all local cores as worker threads and as worker processes,
 - on a local Dask cluster of two worker processes (one thread each),
 with the numpy batch solver, and in one process and on threads with the compiled C solver (no
-conditioning figure). Every figure includes the whole run: starting the pool or cluster's work,
-the chunks, and collecting the results (a pool's start-up and a cluster's start are outside, as
-a long run pays them once). Each run's arrays are compared with the single-process run's.
+conditioning figure). Every figure is a whole `compute` call as `ikgen reach` makes it: starting
+a local pool (spawned worker processes import numpy and the solver: about 0.9 s for two here),
+the chunks, and collecting the results; the Dask cluster is started once, before the timing, as a
+long-lived cluster would be. Each run's arrays are compared with the single-process run's.
 
 Run:  python3 benchmarks/bench_reach.py [--steps N] [--yaws N] [--chunk N] [--repeats N]
 """
