@@ -244,7 +244,6 @@ def build_solver(arm, kind: str):
 
 def cmd_reach(args) -> int:
     from ..commands import load_checked
-    from ..kinematics import NumericChain
     check_cluster_options(args)
     arm = load_checked(args.arm, args)
     base = np.array(arm.base.evalf(), dtype=float)[:3, 3]

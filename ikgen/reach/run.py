@@ -192,8 +192,13 @@ def connect(address: str, local_workers: int = 2):
     distributed = dask_modules()
     import logging
     if address == "local":
-        cluster = distributed.LocalCluster(n_workers=local_workers, threads_per_worker=1, processes=True,
-                                           dashboard_address=None, silence_logs=logging.CRITICAL)
+        try:
+            cluster = distributed.LocalCluster(n_workers=local_workers, threads_per_worker=1, processes=True,
+                                               dashboard_address=None, silence_logs=logging.CRITICAL)
+        except (OSError, TimeoutError, RuntimeError) as exc:
+            raise IkgenError(f"could not start a local Dask cluster of {local_workers} worker(s) "
+                             f"({type(exc).__name__}: {clip(str(exc), 200)}); expected a machine where Dask "
+                             "can start worker processes and listen on 127.0.0.1") from None
         return distributed.Client(cluster, set_as_default=False)
     try:
         client = distributed.Client(address, timeout=CONNECT_TIMEOUT, set_as_default=False)
