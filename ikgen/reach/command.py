@@ -219,6 +219,16 @@ def sample_rate(job: ReachJob) -> float:
     return len(poses) / max(time.perf_counter() - started, 1e-9)
 
 
+def estimate(poses: int, rate: float, workers: int, solver: str) -> str:
+    """The time estimate: the sampled one-process rate, on one worker and on all of them (a
+    shared or busy machine lands between the two)."""
+    sample = f"({solver} solver: {rate:,.0f} poses/s in one process on a {min(SAMPLE, poses):,}-pose sample)"
+    if workers == 1:
+        return f"estimated {_duration(poses / rate)} {sample}"
+    return (f"estimated {_duration(poses / (rate * workers))} if all {workers} workers run in parallel, "
+            f"{_duration(poses / rate)} at one worker's speed {sample}")
+
+
 # ------------------------------------------------------------------------------- the command
 
 def execution(args, client) -> tuple[str, int, str]:
@@ -264,8 +274,7 @@ def cmd_reach(args) -> int:
         out(f"{arm.name}: {grid.positions:,} positions (spacing {fmt(step)} {arm.length_unit}) x {len(names)} "
             f"orientation(s) = {grid.size:,} poses in {math.ceil(grid.size / args.chunk)} chunk(s) of at most "
             f"{args.chunk:,}, on {where}")
-        out(f"estimated {_duration(grid.size / (rate * workers))} ({args.solver} solver: {rate:,.0f} poses/s in "
-            f"one process on a {min(SAMPLE, grid.size):,}-pose sample, times {workers} worker(s))")
+        out(estimate(grid.size, rate, workers, args.solver))
         progress = Progress(grid.size, enabled=not args.quiet and sys.stderr.isatty())
         events = run.Events(note=lambda text: (progress.close(), err(f"note: {text}")), progress=progress)
         started = time.perf_counter()
