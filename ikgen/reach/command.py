@@ -34,7 +34,7 @@ from .solvers import ReachJob
 LARGE = 5_000_000           # poses a map may have without --allow-large
 HARD_LIMIT = 200_000_000    # poses a map may have at all (about 20 bytes each stay in memory)
 DEFAULT_CHUNK = 32_768      # poses per chunk (measured: 16k..64k are equally fast with numpy)
-DEFAULT_POOL = "threads"    # local workers (benchmarks/bench_reach.py: threads ran faster here)
+DEFAULT_POOL = "threads"    # local workers (benchmarks/bench_reach.py: threads beat processes in every run)
 SAMPLE = 2_048              # poses timed before the run for the estimate
 MAX_HEIGHTS = 6
 CAUTION = ("A reach map says where the inverse kinematics of the arm file has solutions within its joint "
