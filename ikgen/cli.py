@@ -177,6 +177,8 @@ def build_parser() -> argparse.ArgumentParser:
     add_generation_commands(sub)
     from .urdf_command import register as register_from_urdf
     register_from_urdf(sub)
+    from .reach.command import register as register_reach
+    register_reach(sub)
     return parser
 
 

@@ -243,7 +243,43 @@ NAME_CASES = [
          output="out"),
 ]
 
-CASES = ARM_CASES + PATH_CASES + OPTION_CASES + NAME_CASES
+def reach(*extra: str) -> list:
+    return ["reach", str(EXAMPLES / "benchtop6.toml"), "-q", *extra]
+
+
+BOX = "-300,300,-300,300,0,300"
+REACH_CASES = [
+    # `ikgen reach` (docs/reach.md, "Errors"): refused before any solving, nothing written
+    Case("reach-empty-box", {}, reach("--box", "0,100,50,-50,0,10"), 2,
+         ("--box: the box is empty: y runs from 50 to -50", "expected ymin <= ymax"), output="reach"),
+    Case("reach-box-five-values", {}, reach("--box", "0,100,0,100,0"), 2, ("--box: got 5 values, expected 6",)),
+    Case("reach-too-many-poses", {}, reach("--step", "10"), 2,
+         ("more than 5,000,000; expected --allow-large",), output="reach"),
+    Case("reach-beyond-the-hard-limit", {}, reach("--step", "1", "--allow-large"), 2,
+         ("expected at most 200,000,000",), output="reach"),
+    # a step so fine that the grid's axes alone would not fit in memory: counted, never made
+    Case("reach-tiny-step", {}, reach("--step", "1e-9", "--allow-large"), 2, ("expected at most 200,000,000",)),
+    Case("reach-unknown-orientation-set", {}, reach("--box", BOX, "--orientations", "sideways:30"), 2,
+         ("orientation set 'sideways:30': unknown set 'sideways'",)),
+    Case("reach-zero-step-set", {}, reach("--box", BOX, "--orientations", "down:0"), 2,
+         ("step 0 deg; expected more than 0",)),
+    Case("reach-rotation-file-header", {"r.csv": "name, w, x, y, z\nA, 1, 0, 0, 0\n"},
+         reach("--box", BOX, "--rotations", "{dir}/r.csv"), 2, ("r.csv:1: header", "'name, qw, qx, qy, qz'")),
+    Case("reach-rotation-not-unit", {"r.csv": "name, qw, qx, qy, qz\nA, 1, 1, 0, 0\n"},
+         reach("--box", BOX, "--rotations", "{dir}/r.csv"), 2, ("r.csv:2: the quaternion's length is 1.41421",)),
+    Case("reach-rotation-file-is-a-fifo", {"r.csv": fifo}, reach("--box", BOX, "--rotations", "{dir}/r.csv"), 2,
+         ("is a named pipe (FIFO), not a regular file",)),
+    Case("reach-height-outside-the-box", {}, reach("--box", BOX, "--heights", "900"), 2,
+         ("--heights: 900 lies outside the box's z range",)),
+    Case("reach-out-is-a-file", {"f": "x"}, reach("--box", BOX, "-o", "{dir}/f"), 2, ("is not a folder",)),
+    Case("reach-cluster-address", {}, reach("--box", BOX, "--cluster", "no where"), 2,
+         ("--cluster 'no where': not a scheduler address",)),
+    Case("reach-c-solver-on-a-cluster", {}, reach("--box", BOX, "--cluster", "local", "--solver", "c"), 2,
+         ("--solver c cannot run on a Dask cluster",)),
+    Case("reach-chunk-too-small", {}, reach("--chunk", "10"), 2, ("10 is not between 256 and 10,000,000",)),
+]
+
+CASES = ARM_CASES + PATH_CASES + OPTION_CASES + NAME_CASES + REACH_CASES
 
 
 # ---------------------------------------------------------------------------------- runner
