@@ -25,12 +25,13 @@ import sympy as sp
 from .errors import ArmFileError, clip, quote
 from .exact import NotANumber, parse_exact, snap_radians
 from .files import Unreadable, read_limited
-from .model import ANGLE_UNITS, CONVENTIONS, JOINT_KINDS, LENGTH_UNITS, Arm, Joint
+from .model import ANGLE_UNITS, CONVENTIONS, JOINT_KINDS, LENGTH_UNITS, TARGET_KINDS, Arm, Joint, Target
 from .rotations import from_axis_angles, from_quaternion, homogeneous
 
 CONVENTION_ALIASES = {"standard": "standard", "distal": "standard",
                       "modified": "modified", "proximal": "modified"}
-TOP_KEYS = ("arm", "joint", "base", "tool")
+TOP_KEYS = ("arm", "joint", "base", "tool", "target")
+TARGET_KEYS = ("kind", "axis", "tool_axis")
 ARM_KEYS = ("name", "description", "convention", "length_unit", "angle_unit")
 JOINT_KEYS = ("name", "type", "a", "alpha", "d", "theta", "offset", "direction", "limits")
 FRAME_KEYS = ("translation", "rotation")
@@ -342,9 +343,10 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
 
     base = _read_frame(reader, data, "base", angle_scale)
     tool = _read_frame(reader, data, "tool", angle_scale)
+    target = _read_target(reader, data)
     arm = Arm(name=name, description=description, convention=convention, length_unit=length_unit,
               angle_unit=angle_unit, joints=tuple(joints), base=base, tool=tool, source=path,
-              digest=digest, notes=tuple(reader.notes))
+              digest=digest, notes=tuple(reader.notes), target=target)
     _check_equivalent_readings(reader, arm)
     return arm
 
@@ -431,6 +433,33 @@ def _read_joint(reader: _Reader, raw: dict, i: int, place: tuple, angle_unit: st
                     "[lower, upper] in the length unit")
     return Joint(index=index, name=name, kind=kind, a=a, alpha=alpha, d=d, theta=theta, offset=offset,
                  direction=int(direction), limits=limits)
+
+
+def _read_target(reader: _Reader, data: dict) -> Target | None:
+    """The [target] table: what the arm is asked for (docs/arm-file.md). None when absent."""
+    table = reader.table(data, "target", "top level", (), required=False)
+    if table is None:
+        return None
+    where, place = "[target]", ("target",)
+    reader.check_keys(table, TARGET_KEYS, where, place)
+    kind = reader.choice(table, "kind", TARGET_KINDS, where, place)
+    axis = None
+    if "axis" in table:
+        if kind != "point_and_angle":
+            reader.fail(where, place + ("axis",), f"'axis' is given for a '{kind}' target",
+                        "'axis' only with kind = \"point_and_angle\" (the world axis the angle turns about)")
+        values = reader.vector(table, "axis", 3, where, place, "plain")
+        norm = sp.sqrt(sum(v * v for v in values))
+        if norm == 0:
+            reader.fail(where, place + ("axis",), "'axis' is the zero vector", "a direction such as [0, 0, 1]")
+        axis = tuple(sp.nsimplify(v / norm) if (v / norm).is_Rational else v / norm for v in values)
+    tool_axis = "z"
+    if "tool_axis" in table:
+        if kind != "point_and_direction":
+            reader.fail(where, place + ("tool_axis",), f"'tool_axis' is given for a '{kind}' target",
+                        "'tool_axis' only with kind = \"point_and_direction\" (which tool axis is directed)")
+        tool_axis = reader.choice(table, "tool_axis", ("x", "y", "z"), where, place)
+    return Target(kind, axis, tool_axis, True)
 
 
 def _read_frame(reader: _Reader, data: dict, key: str, angle_scale) -> sp.ImmutableMatrix:

@@ -188,27 +188,74 @@ class CirclePolynomial:
 
 
 @dataclass(frozen=True)
+class LengthForm:
+    """One way to get a displacement from an equation linear in it: l = num / den."""
+    num: sp.Expr
+    den: sp.Expr
+    threshold: float            # |den| below it: this form is singular, try the next
+    source: str
+
+
+@dataclass(frozen=True)
+class LinearLength:
+    """The displacement of a prismatic joint from an equation linear in it: one solution; ordered
+    alternatives for when a denominator vanishes; free (singular) when all do."""
+    key: str
+    forms: tuple[LengthForm, ...]
+    singular: Singular
+
+    def describe(self) -> list[str]:
+        lines = [f"  solve l{self.key} (displacement) from an equation linear in it:"]
+        for k, f in enumerate(self.forms):
+            lines.append(f"    form {k + 1} [{f.source}]: l{self.key} = ({f.num})/({f.den}) (singular below {f.threshold:.3g})")
+        lines.append(f"    all singular: {self.singular.rule}")
+        return lines
+
+
+@dataclass(frozen=True)
+class QuadraticLength:
+    """``a l^2 + b l + c = 0`` for the displacement l of a prismatic joint (a a non-zero constant):
+    two roots ``(-b +- sqrt(b^2 - 4 a c)) / (2 a)``, computed without cancellation; a branch point."""
+    key: str
+    a: sp.Expr
+    b: sp.Expr
+    c: sp.Expr
+    radicand: sp.Expr           # b^2 - 4 a c
+    branch: "BranchPoint"
+    source: str
+
+    def describe(self) -> list[str]:
+        return [f"  solve {self.a}*l{self.key}**2 + ({self.b})*l{self.key} + ({self.c}) = 0   [{self.source}]",
+                f"    radicand {self.radicand} >= 0 (clamped within {GUARD_TOLERANCE:g} * b^2)",
+                f"    branch '{self.branch.name}' sign {self.branch.sign}: {self.branch.meaning}"]
+
+
+@dataclass(frozen=True)
 class Label:
     """A configuration label: ``positive`` when ``measure >= 0``, else ``negative``."""
-    name: str                   # "shoulder", "elbow", "wrist"
+    name: str                   # "reach", "elbow", "wrist_bend", ... (engine/labels.py)
     measure: sp.Expr
     positive: str
     negative: str
     meaning: str
+    geometry: tuple = ()        # engine/labels.py: what the measure is made of (empty: a root label)
 
 
 @dataclass(frozen=True)
 class JointOutput:
-    """reading = wrap(th_j - zero) * direction / scale, with zero = theta + offset (radians)."""
+    """reading = wrap(th_j - zero) * direction / scale, with zero = theta + offset (radians); for a
+    prismatic joint reading = (l_j - zero) * direction with zero = d + offset (no wrap, scale 1)."""
     joint: int
     name: str
     zero: sp.Expr
     direction: int
     scale: sp.Expr              # radians per reading unit
+    prismatic: bool = False
 
 
-Step = Compute | CosSinEquation | LinearPair | AngleSum | CirclePolynomial
-SOLVING_STEPS = (CosSinEquation, LinearPair, AngleSum, CirclePolynomial)
+Step = Compute | CosSinEquation | LinearPair | AngleSum | CirclePolynomial | LinearLength | QuadraticLength
+SOLVING_STEPS = (CosSinEquation, LinearPair, AngleSum, CirclePolynomial, LinearLength, QuadraticLength)
+BRANCHING_STEPS = (CosSinEquation, CirclePolynomial, QuadraticLength)
 
 
 @dataclass
@@ -225,9 +272,11 @@ class Derivation:
     length_scale: float
     notes: list[str] = field(default_factory=list)
     unknowns: dict[str, tuple[tuple[int, int], ...]] = field(default_factory=dict)  # key -> (joint, sign)...
+    strokes: dict[int, tuple[float, float]] = field(default_factory=dict)   # prismatic joint -> widened limits (readings)
+    target: object = None                   # model.Target: what the solver is asked for
 
     def branch_points(self) -> list[BranchPoint]:
-        return [s.branch for s in self.steps if isinstance(s, (CosSinEquation, CirclePolynomial))]
+        return [s.branch for s in self.steps if isinstance(s, BRANCHING_STEPS)]
 
     def solved_keys(self) -> list[str]:
         return [s.key for s in self.steps if isinstance(s, SOLVING_STEPS)]
@@ -241,12 +290,16 @@ class Derivation:
         lines += [f"# {line}" for line in self.analysis]
         lines.append("parameters: " + ", ".join(f"{k} = {v}" for k, v in self.parameters.items()))
         for number, step in enumerate(self.steps, 1):
-            title = step.purpose if isinstance(step, Compute) else f"th{step.key}"
+            title = step.purpose if isinstance(step, Compute) else \
+                (f"l{step.key}" if isinstance(step, (LinearLength, QuadraticLength)) else f"th{step.key}")
             lines.append(f"step {number}: {title}")
             lines += step.describe()
         for label in self.labels:
             lines.append(f"label {label.name}: {label.positive} if {label.measure} >= 0 else {label.negative}")
         for out in self.outputs:
-            lines.append(f"output joint {out.joint} '{out.name}': wrap(th{out.joint} - ({out.zero})) "
-                         f"* {out.direction} / {out.scale}")
+            if out.prismatic:
+                lines.append(f"output joint {out.joint} '{out.name}': (l{out.joint} - ({out.zero})) * {out.direction}")
+            else:
+                lines.append(f"output joint {out.joint} '{out.name}': wrap(th{out.joint} - ({out.zero})) "
+                             f"* {out.direction} / {out.scale}")
         return "\n".join(lines)

@@ -20,6 +20,10 @@ import numpy as np
 import sympy as sp
 
 CONVENTIONS = ("standard", "modified")
+# What the user asks the arm for: the full pose; a point; a point and an angle about a fixed world
+# axis; a point and the direction of one tool axis (docs/arm-file.md, [target]).
+TARGET_KINDS = ("pose", "point", "point_and_angle", "point_and_direction")
+TARGET_FREEDOMS = {"pose": 6, "point": 3, "point_and_angle": 4, "point_and_direction": 5}
 LENGTH_UNITS = ("m", "mm")
 ANGLE_UNITS = ("deg", "rad")
 JOINT_KINDS = ("revolute", "prismatic")
@@ -48,6 +52,21 @@ class Joint:
 
 
 @dataclass(frozen=True)
+class Target:
+    """A target declaration. ``axis``: the world axis of a point_and_angle target (exact, unit), or
+    None for the arm's own (the common direction of its parallel axes); ``tool_axis``: which tool
+    axis a point_and_direction target directs ("x", "y" or "z")."""
+    kind: str
+    axis: tuple | None = None
+    tool_axis: str = "z"
+    declared: bool = True
+
+    @property
+    def freedoms(self) -> int:
+        return TARGET_FREEDOMS[self.kind]
+
+
+@dataclass(frozen=True)
 class Arm:
     name: str
     description: str
@@ -60,6 +79,7 @@ class Arm:
     source: str = ""            # path the arm was read from
     digest: str = ""            # sha256 of the source bytes
     notes: tuple[str, ...] = field(default=())
+    target: Target | None = None   # None: the natural target for the structure (engine/targets.py)
 
     @property
     def dof(self) -> int:

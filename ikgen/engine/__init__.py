@@ -16,37 +16,38 @@ import sympy as sp
 
 from ..analysis import describe_axes
 from ..errors import StructureError
-from ..ir import CirclePolynomial, CosSinEquation, Derivation, JointOutput
+from ..ir import CirclePolynomial, CosSinEquation, Derivation, JointOutput, QuadraticLength
 from ..model import Arm
 from .context import make_setup
-from .labels import MEANINGS
+from .targets import resolve as resolve_target
+from .labels import MEANINGS, build_labels, plan_labels, root_label
 from .mirror import attach_mirror
 from .solver import Solver, free_symbols_of
 from .strategies import STRATEGIES
 
-BRANCH_ROLES = {"1": "reach", "3": "elbow", "5": "wrist_bend"}
-
-
 def derive(arm: Arm) -> Derivation:
-    refuse_unsupported(arm)
-    setup = make_setup(arm)
-    findings = [(strategy, strategy.recognise(arm)) for strategy in STRATEGIES]
+    target = resolve_target(arm)
+    setup = make_setup(arm, target)
+    findings = [(strategy, strategy.recognise(arm, target)) for strategy in STRATEGIES]
     applied = [(s, f) for s, f in findings if f.applies]
     setup.analysis = describe_axes(arm)
     for strategy, finding in applied:
         setup.analysis += finding.words
         strategy.contribute(setup, finding)
         setup.strategies.append(strategy.NAME)
+    specs = plan_labels(arm, target)
+    setup.labels = build_labels(setup, specs)
     setup.pool.build()
     unknowns = {u.key: u for u in setup.chain.unknowns + setup.extra_unknowns}
     solver = Solver(setup.chain, setup.pool, setup.names, setup.samples, unknowns,
-                    branch_namer(arm, setup.labels), constant_symbols=setup.chain.parameters)
+                    branch_namer(specs), constant_symbols=setup.chain.parameters)
     for step in setup.steps:
         solver.steps.append(step)
     try:
         solver.solve([str(j.index) for j in arm.joints])
     except StructureError as exc:
         raise StructureError(refusal(arm, findings, str(exc))) from None
+    setup.labels += root_labels(solver.steps, {l.name for l in setup.labels}, unknowns)
     for label in setup.labels:
         for symbol in sorted(label.measure.free_symbols, key=str):
             solver.ensure(symbol)
@@ -54,10 +55,12 @@ def derive(arm: Arm) -> Derivation:
     steps = attach_mirror(steps, setup.labels, solver.circles)
     solved = {step.key for step in steps if hasattr(step, "key")}
     used = set().union(*(free_symbols_of(s) for s in steps)) | set().union(*(l.measure.free_symbols for l in setup.labels))
-    outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale) for j in arm.joints]
+    outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale) if j.revolute else
+               JointOutput(j.index, j.name, j.d + j.offset, j.direction, sp.Integer(1), prismatic=True)
+               for j in arm.joints]
     solutions = 1
     for step in steps:
-        if isinstance(step, CosSinEquation):
+        if isinstance(step, (CosSinEquation, QuadraticLength)):
             solutions *= 2
         elif isinstance(step, CirclePolynomial):
             solutions *= 4
@@ -66,7 +69,8 @@ def derive(arm: Arm) -> Derivation:
                       parameters=dict(setup.chain.parameters), steps=steps, labels=setup.labels, outputs=outputs,
                       max_solutions=solutions, length_scale=setup.chain.length_scale,
                       unknowns={k: u.members for k, u in unknowns.items()
-                                if u.is_joint or k in solved or used & {u.cos, u.sin, u.angle}})
+                                if u.is_joint or k in solved or used & {u.cos, u.sin, u.angle}},
+                      strokes=strokes(arm), target=target)
 
 
 def first_root_first(step, labels, samples):
@@ -87,14 +91,15 @@ def first_root_first(step, labels, samples):
     return dataclasses.replace(step, a=-step.a, b=-step.b, c=-step.c)
 
 
-def refuse_unsupported(arm: Arm) -> None:
-    if arm.dof != 6:
-        raise StructureError(f"arm '{arm.name}' has {arm.dof} joints; the derivation handles six-joint arms, "
-                             "so nothing was written")
-    prismatic = [j.index for j in arm.joints if not j.revolute]
-    if prismatic:
-        raise StructureError(f"arm '{arm.name}': joint(s) {', '.join(map(str, prismatic))} are prismatic; the "
-                             "derivation handles revolute joints, so nothing was written")
+def strokes(arm: Arm) -> dict[int, tuple[float, float]]:
+    """Each prismatic joint's limits in reading units, widened by 1e-9 of its range against rounding;
+    a displacement outside them is no solution."""
+    out = {}
+    for joint, (low, high) in zip(arm.joints, arm.limits_in_readings()):
+        if not joint.revolute:
+            eps = 1e-9 * max(1.0, float(high - low))
+            out[joint.index] = (float(low - eps), float(high + eps))
+    return out
 
 
 def refusal(arm: Arm, findings, reason: str) -> str:
@@ -104,20 +109,34 @@ def refusal(arm: Arm, findings, reason: str) -> str:
             f"The solver stopped: {reason}")
 
 
-def branch_namer(arm: Arm, labels):
+def branch_namer(specs):
+    """(key, linear) -> (branch name, meaning): the planned label whose keys hold the unknown, once;
+    any other two-way choice is a root label ``root_<key>``."""
     used: set[str] = set()
-    label_names = [l.name for l in labels]
 
     def name(key: str, linear) -> tuple[str, str]:
-        role = BRANCH_ROLES.get(key, "")
-        if role == "wrist_bend" and "wrist_bend" not in label_names and "base_bend" in label_names:
-            role = ""
-        if key == "2" and "base_bend" in label_names:
-            role = "base_bend"
-        if not role or role in used:
-            role = f"th{key}"
-        used.add(role)
-        meaning = MEANINGS.get(role, f"the two (or more) roots of th{key}")
-        return role, meaning
+        for spec in specs:
+            if key in spec.keys and spec.name not in used:
+                used.add(spec.name)
+                return spec.name, MEANINGS[spec.name]
+        return f"root_{key}", f"which of the two roots (no geometric label describes this choice)"
 
     return name
+
+
+def root_labels(steps, named: set[str], unknowns) -> list:
+    """A root label for every two-root step that no planned label names: its measure is the
+    root's sign in the step's own formula (a sin th - b cos th, or 2 a l + b)."""
+    out = []
+    for step in steps:
+        if not isinstance(step, (CosSinEquation, QuadraticLength)) or step.branch.name in named:
+            continue
+        unknown = unknowns[step.key]
+        if isinstance(step, CosSinEquation):
+            c, s_ = sp.Symbol(f"c{step.key}", real=True), sp.Symbol(f"s{step.key}", real=True)
+            measure = step.a * s_ - step.b * c
+        else:
+            measure = 2 * step.a * unknown.length + step.b
+        out.append(root_label(step.key, measure, unknown.words()))
+        named = named | {step.branch.name}
+    return out

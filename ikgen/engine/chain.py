@@ -54,43 +54,77 @@ class Chain:
                 self.parameters[ca], self.parameters[sa] = sp.cos(joint.alpha), sp.sin(joint.alpha)
                 self.parameter_circles.append((ca, sa))
                 self.twists.append((ca, sa))
-        self.unknowns = [Unknown.joint(j.index) for j in arm.joints]
+        self.unknowns = [Unknown.joint(j.index, prismatic=not j.revolute) for j in arm.joints]
         self.length_scale = arm.reach_scale()
         self._a = np.array([float(j.a) for j in arm.joints])
         self._d = np.array([float(j.d) for j in arm.joints])
         self._alpha = np.array([float(j.alpha) for j in arm.joints])
+        self._theta = np.array([float(j.theta) for j in arm.joints])
+        self.prismatic = np.array([not j.revolute for j in arm.joints])
 
     # ------------------------------------------------------------------ symbolic
-    def link(self, joint: int, cos=None, sin=None) -> sp.Matrix:
-        """A_joint with the given cosine and sine of its DH angle (default: its symbols)."""
+    def link(self, joint: int, cos=None, sin=None, length=None) -> sp.Matrix:
+        """A_joint with the given cosine and sine of its DH angle, or for a prismatic joint the given
+        displacement (default: the joint's symbols). ``cos``/``sin`` given for a prismatic joint ask
+        for its reading-0 displacement (d + offset)."""
         u = self.unknowns[joint - 1]
         a, d = self.lengths[joint - 1]
         ca, sa = self.twists[joint - 1]
+        spec = self.arm.joints[joint - 1]
+        if u.prismatic:
+            if length is None:
+                length = (spec.d + spec.offset) if cos is not None else u.length
+            return link_from_cos_sin(self.arm.convention, a, ca, sa, length, sp.cos(spec.theta), sp.sin(spec.theta))
         return link_from_cos_sin(self.arm.convention, a, ca, sa, d,
                                  u.cos if cos is None else cos, u.sin if sin is None else sin)
 
     def factor(self, joint: int, inverse: bool, at_zero: bool = False) -> sp.Matrix:
-        """A_joint or its inverse; ``at_zero`` puts the DH angle at 0 (for a joint that cancels)."""
+        """A_joint or its inverse; ``at_zero`` puts the joint variable at 0 (for a joint that cancels)."""
         key = (joint, inverse, at_zero)
         cache = self.__dict__.setdefault("_factor_cache", {})
         if key not in cache:
-            link = self.link(joint, sp.Integer(1), sp.Integer(0)) if at_zero else self.link(joint)
+            if not at_zero:
+                link = self.link(joint)
+            elif self.unknowns[joint - 1].prismatic:
+                link = self.link(joint, length=sp.Integer(0))
+            else:
+                link = self.link(joint, sp.Integer(1), sp.Integer(0))
             cache[key] = inverse_transform(link) if inverse else link
         return cache[key]
 
     @cached_property
     def circles(self) -> list[tuple[sp.Symbol, sp.Symbol]]:
-        """Every (cos, sin) pair the reduction knows: joints, then symbolic twists."""
-        return [(u.cos, u.sin) for u in self.unknowns] + list(self.parameter_circles)
+        """Every (cos, sin) pair the reduction knows: revolute joints, then symbolic twists."""
+        return [(u.cos, u.sin) for u in self.unknowns if not u.prismatic] + list(self.parameter_circles)
+
+    def stroke(self, joint: int) -> tuple[float, float]:
+        """The DH displacement range of a prismatic joint: d + offset + direction * limits."""
+        spec = self.arm.joints[joint - 1]
+        ends = [float(spec.d + spec.offset) + spec.direction * v for v in spec.limits]
+        return min(ends), max(ends)
 
     # ------------------------------------------------------------------ numeric
+    def random_variables(self, rng, count: int) -> np.ndarray:
+        """(count, n) joint variables: uniform angles, displacements uniform within the stroke."""
+        values = rng.uniform(-np.pi, np.pi, (count, self.n))
+        for j in np.nonzero(self.prismatic)[0]:
+            low, high = self.stroke(j + 1)
+            values[:, j] = rng.uniform(low, high, count)
+        return values
+
+    def step(self, joint: int) -> float:
+        """A change of joint ``joint``'s variable that moves everything that depends on it."""
+        return 0.37 * self.length_scale if self.prismatic[joint - 1] else 0.7
+
     def numeric_links(self, angles: np.ndarray) -> np.ndarray:
-        """(..., n, 4, 4) link transforms for DH angles of shape (..., n)."""
-        angles = np.asarray(angles, dtype=float)
+        """(..., n, 4, 4) link transforms for joint variables of shape (..., n): the DH angle of a
+        revolute joint, the DH displacement d of a prismatic one."""
+        values = np.asarray(angles, dtype=float)
+        angles = np.where(self.prismatic, self._theta, values)
         ct, st = np.cos(angles), np.sin(angles)
         ca, sa = np.cos(self._alpha), np.sin(self._alpha)
         a = np.broadcast_to(self._a, ct.shape)
-        d = np.broadcast_to(self._d, ct.shape)
+        d = np.where(self.prismatic, values, np.broadcast_to(self._d, ct.shape))
         out = np.zeros(ct.shape + (4, 4))
         if self.arm.convention == "standard":
             out[..., 0, 0], out[..., 0, 1], out[..., 0, 2], out[..., 0, 3] = ct, -st * ca, st * sa, a * ct

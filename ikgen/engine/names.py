@@ -27,7 +27,7 @@ class Samples:
 
     def __init__(self, chain: Chain, count: int = 24, seed: int = 11):
         rng = np.random.default_rng(seed)
-        self.angles = rng.uniform(-np.pi, np.pi, (count, chain.n))
+        self.angles = chain.random_variables(rng, count)       # joint variables: angles and displacements
         self.core = chain.numeric_core(self.angles)
         self.columns: dict[sp.Symbol, np.ndarray] = {}
         for symbol, value in chain.parameters.items():
@@ -39,6 +39,9 @@ class Samples:
         self.columns[symbol] = np.broadcast_to(np.asarray(values, dtype=float), (self.count,)).copy()
 
     def define_unknown(self, unknown: Unknown) -> None:
+        if unknown.prismatic:
+            self.define(unknown.length, self.angles[:, int(unknown.key) - 1])
+            return
         if unknown.cos in self.columns:
             return
         angle = sum(sign * self.angles[:, j - 1] for j, sign in unknown.members)
@@ -105,7 +108,7 @@ class Names:
     def symbols_for(self, identity: Identity, i: int, k: int) -> sp.Matrix:
         if identity.is_point:
             names = [sp.Symbol(f"{identity.prefix}{i}{axis}", real=True) for axis in "xyz"]
-            return sp.Matrix([*names, 1])
+            return sp.Matrix([*names, identity.known[3, 0]])       # 1 for a point, 0 for a direction
         rows = [[sp.Symbol(f"{identity.prefix}{i}{k}_{r + 1}{c + 1}", real=True) for c in range(4)] for r in range(3)]
         return sp.Matrix(rows + [[0, 0, 0, 1]])
 

@@ -137,17 +137,37 @@ def entry_value(matrix, entry: Entry, point: bool):
 @dataclass(frozen=True)
 class Coordinates:
     """How the product side's angles are written: joint angles, or for a run of parallel axes
-    (joints ``first..last`` with signs ``signs``) the first angle and the partial sums."""
+    (joints ``first..last``, ``signs`` relative to the first revolute member, 0 for a prismatic
+    member) the first angle and the partial sums of the revolute members."""
     name: str                                   # "" for joint angles
     first: int = 0
     last: int = 0
-    signs: tuple[int, ...] = ()                 # sign of each member relative to the first
+    signs: tuple[int, ...] = ()
+
+    def sign(self, joint: int) -> int:
+        return self.signs[joint - self.first]
+
+    def revolute_members(self) -> list[int]:
+        return [j for j in range(self.first, self.last + 1) if self.sign(j) != 0]
+
+    def previous(self, joint: int) -> int | None:
+        """The revolute member before ``joint`` in the run, or None."""
+        before = [j for j in self.revolute_members() if j < joint]
+        return before[-1] if before else None
+
+    def following(self, joint: int) -> int | None:
+        after = [j for j in self.revolute_members() if j > joint]
+        return after[0] if after else None
 
     def unknown_for(self, joint: int) -> Unknown:
-        if not self.name or not self.first <= joint <= self.last or joint == self.first:
+        if not self.name or not self.first <= joint <= self.last:
             return Unknown.joint(joint)
-        members = [(j, self.signs[j - self.first]) for j in range(self.first, joint + 1)]
-        return Unknown.sum_of(members)
+        if self.sign(joint) == 0:
+            return Unknown.joint(joint, prismatic=True)
+        members = self.revolute_members()
+        if joint == members[0]:
+            return Unknown.joint(joint)
+        return Unknown.sum_of((j, self.sign(j)) for j in members if j <= joint)
 
 
 @dataclass
@@ -191,7 +211,7 @@ class Pool:
         """Enumerate every split and entry, with their dependence found numerically."""
         rng = np.random.default_rng(seed)
         trials = 3
-        angles = rng.uniform(-np.pi, np.pi, (trials, self.chain.n))
+        angles = self.chain.random_variables(rng, trials)
         self.equations = []
         for identity in self.identities:
             known = self._random_known(identity, rng, trials)
@@ -208,18 +228,22 @@ class Pool:
         out = []
         for coords in self.coordinates:
             inside = [j for j in joints if coords.first <= j <= coords.last]
-            if len(inside) >= 2 and not inverse and inside == list(range(inside[0], inside[0] + len(inside))):
-                first = inside[0]
-                out.append(Coordinates(coords.name, first, inside[-1],
-                                       tuple(coords.signs[j - coords.first] * coords.signs[first - coords.first]
-                                             for j in range(first, inside[-1] + 1))))
+            if inverse or not inside or inside != list(range(inside[0], inside[0] + len(inside))):
+                continue
+            revolute = [j for j in inside if coords.sign(j) != 0]
+            if len(revolute) < 2:
+                continue
+            reference = coords.sign(revolute[0])
+            out.append(Coordinates(coords.name, inside[0], inside[-1],
+                                   tuple(coords.sign(j) * reference for j in inside)))
         return out
 
     def _random_known(self, identity: Identity, rng, trials: int) -> np.ndarray:
         scale = self.chain.length_scale
         if identity.is_point:
-            point = np.ones((trials, 4))
-            point[:, :3] = rng.normal(size=(trials, 3)) * scale
+            point = np.zeros((trials, 4))
+            point[:, 3] = float(identity.body[3])        # 1 for a point, 0 for a direction
+            point[:, :3] = rng.normal(size=(trials, 3)) * (scale if point[0, 3] else 1.0)
             return point
         q, _ = np.linalg.qr(rng.normal(size=(trials, 3, 3)))
         known = np.zeros((trials, 4, 4))
@@ -262,7 +286,6 @@ class Pool:
                     for e in entries]
         known_joints = [f.joint for f in identity.factors[:i] + identity.factors[k:]]
         product_joints = [f.joint for f in identity.factors[i:k]]
-        step = 0.7
 
         def changes(function, base_angles, perturbed_angles) -> list[bool]:
             base, moved = function(base_angles), function(perturbed_angles)
@@ -272,19 +295,21 @@ class Pool:
         known_dep = [set() for _ in entries]
         for j in set(known_joints):
             moved = angles.copy()
-            moved[:, j - 1] += step
+            moved[:, j - 1] += self.chain.step(j)
             for e, flag in enumerate(changes(lambda a: self._known_side(identity, split, known, a), angles, moved)):
                 if flag:
                     known_dep[e].add(j)
         product_dep = [set() for _ in entries]
         for j in sorted(set(product_joints)):
             unknown = coordinates.unknown_for(j)
+            step = self.chain.step(j)
             moved = angles.copy()
-            if coordinates.name and coordinates.first <= j <= coordinates.last:
-                # move coordinate x_j alone: th_j = sign_j (x_j - x_(j-1)) and th_(j+1) change
-                moved[:, j - 1] += step * coordinates.signs[j - coordinates.first]
-                if j < coordinates.last:
-                    moved[:, j] -= step * coordinates.signs[j + 1 - coordinates.first]
+            if coordinates.name and coordinates.first <= j <= coordinates.last and coordinates.sign(j) != 0:
+                # move coordinate x_j alone: th_j = sign_j (x_j - x_previous) and the next member change
+                moved[:, j - 1] += step * coordinates.sign(j)
+                following = coordinates.following(j)
+                if following is not None:
+                    moved[:, following - 1] -= step * coordinates.sign(following)
             else:
                 moved[:, j - 1] += step
             for e, flag in enumerate(changes(lambda a: self._product_side(identity, split, a), angles, moved)):
@@ -330,7 +355,7 @@ class Pool:
         coords = equation.coordinates
         value = sp.eye(4)
         for f in identity.factors[i:k]:
-            in_group = bool(coords.name) and coords.first <= f.joint <= coords.last
+            in_group = bool(coords.name) and coords.first <= f.joint <= coords.last and coords.sign(f.joint) != 0
             cancelled = not in_group and coords.unknown_for(f.joint).key not in equation.product_side
             value = value * self.chain.factor(f.joint, f.inverse, at_zero=cancelled)
         if identity.is_point:
@@ -342,24 +367,24 @@ class Pool:
 
 
 def to_group_coordinates(expr: sp.Expr, coords: Coordinates) -> sp.Expr:
-    """Rewrite the members' cos/sin in the coordinates (first angle, partial sums)."""
+    """Rewrite the revolute members' cos/sin in the coordinates (first angle, partial sums)."""
     replacements = {}
-    previous = Unknown.joint(coords.first)
-    for j in range(coords.first + 1, coords.last + 1):
+    members = coords.revolute_members()
+    previous = Unknown.joint(members[0])
+    for j in members[1:]:
         current = coords.unknown_for(j)
-        sign = coords.signs[j - coords.first]
         member = Unknown.joint(j)
-        # th_j = sign * (x_j - x_(j-1))
+        # th_j = sign_j * (x_j - x_previous)
         cos_diff = current.cos * previous.cos + current.sin * previous.sin
         sin_diff = current.sin * previous.cos - current.cos * previous.sin
         replacements[member.cos] = cos_diff
-        replacements[member.sin] = sign * sin_diff
+        replacements[member.sin] = coords.sign(j) * sin_diff
         previous = current
     return sp.expand(expr.xreplace(replacements))
 
 
 def group_circles(coords: Coordinates) -> list:
-    return [(coords.unknown_for(j).cos, coords.unknown_for(j).sin) for j in range(coords.first, coords.last + 1)]
+    return [(coords.unknown_for(j).cos, coords.unknown_for(j).sin) for j in coords.revolute_members()]
 
 
 def equation_expr(pool: Pool, equation: Equation, known: set[int], names, circles) -> sp.Expr:
@@ -404,26 +429,30 @@ def numeric_residual(pool: Pool, equation: Equation, known_values: np.ndarray, a
 
 
 def vary(angles: np.ndarray, equation: Equation, unknown_key: str, value) -> np.ndarray:
-    """DH angles with the unknown ``unknown_key`` (a joint, or a coordinate of the equation's
-    group coordinates) set to ``value`` and every other coordinate kept."""
+    """Joint variables with the unknown ``unknown_key`` (a joint, or a coordinate of the
+    equation's group coordinates) set to ``value`` and every other coordinate kept."""
     out = angles.copy()
     coords = equation.coordinates
+    in_run = bool(coords.name)
     if unknown_key.isdigit():
         j = int(unknown_key)
-        if coords.name and coords.first < j <= coords.last:
+        if in_run and coords.first <= j <= coords.last and coords.sign(j) != 0 and j != coords.revolute_members()[0]:
             raise ValueError("a member inside group coordinates is not a coordinate")
         delta = value - out[:, j - 1]
         out[:, j - 1] = value
-        if coords.name and j == coords.first and j < coords.last:
-            out[:, j] -= delta * coords.signs[1]
+        if in_run and coords.first <= j <= coords.last and coords.sign(j) != 0:
+            following = coords.following(j)
+            if following is not None:
+                out[:, following - 1] -= delta * coords.sign(following)
         return out
-    for j in range(coords.first + 1, coords.last + 1):
+    for j in coords.revolute_members()[1:]:
         if coords.unknown_for(j).key == unknown_key:
-            members = [(m, coords.signs[m - coords.first]) for m in range(coords.first, j + 1)]
-            current = sum(sign * out[:, m - 1] for m, sign in members)
+            members = [m for m in coords.revolute_members() if m <= j]
+            current = sum(coords.sign(m) * out[:, m - 1] for m in members)
             delta = value - current
-            out[:, j - 1] += delta * coords.signs[j - coords.first]
-            if j < coords.last:
-                out[:, j] -= delta * coords.signs[j + 1 - coords.first]
+            out[:, j - 1] += delta * coords.sign(j)
+            following = coords.following(j)
+            if following is not None:
+                out[:, following - 1] -= delta * coords.sign(following)
             return out
     raise ValueError(f"th{unknown_key} is not a coordinate of {equation.source}")

@@ -27,7 +27,7 @@ import sympy as sp
 
 from ..errors import StructureError
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, CirclePolynomial, Compute,
-                  CosSinEquation, LinearPair, PairForm, Singular)
+                  CosSinEquation, LengthForm, LinearLength, LinearPair, PairForm, QuadraticLength, Singular)
 from .chain import Chain
 from .names import Names, Samples
 from .pool import Equation, Pool, entry_scale, equation_expr, numeric_residual, vary
@@ -59,6 +59,25 @@ class NumericLinear:
         values = np.concatenate([self.a, self.b, self.c])
         pivot = values[np.argmax(np.abs(values) > 1e-9 * np.max(np.abs(values)))]
         return tuple(np.round(values / pivot, 9) + 0.0)
+
+
+@dataclass
+class NumericLength:
+    """An equation seen as q2 l^2 + q1 l + q0 = 0 in the displacement l, with q's on the samples."""
+    equation: Equation
+    key: str
+    q2: np.ndarray
+    q1: np.ndarray
+    q0: np.ndarray
+
+    @property
+    def linear(self) -> bool:
+        return not self.q2.any()
+
+    def signature(self) -> tuple:
+        values = np.concatenate([self.q2, self.q1, self.q0])
+        pivot = values[np.argmax(np.abs(values) > 1e-9 * np.max(np.abs(values)))]
+        return ("length",) + tuple(np.round(values / pivot, 9) + 0.0)
 
 
 @dataclass
@@ -111,16 +130,24 @@ class Solver:
     def _express_now(self, key: str) -> list[tuple[str, int]] | None:
         if key in self.solved:
             return [(key, 1)]
-        if not self.solved:
+        if self.unknowns[key].prismatic:
+            return None                 # a displacement is known only once solved
+        angles = [k for k in self.solved if not self.unknowns[k].prismatic]
+        return self._combination(key, angles)
+
+    def _combination(self, key: str, solved: list[str]) -> list[tuple[str, int]] | None:
+        if key in solved:
+            return [(key, 1)]
+        if not solved:
             return None
-        joints = sorted({j for k in self.solved + [key] for j in self.vector(k)})
-        matrix = sp.Matrix([[self.vector(k).get(j, 0) for k in self.solved] for j in joints])
+        joints = sorted({j for k in solved + [key] for j in self.vector(k)})
+        matrix = sp.Matrix([[self.vector(k).get(j, 0) for k in solved] for j in joints])
         target = sp.Matrix([self.vector(key).get(j, 0) for j in joints])
         if matrix.rank() != matrix.row_join(target).rank():
             return None
         solution, params = matrix.gauss_jordan_solve(target)
         solution = solution.xreplace({p: 0 for p in params})
-        terms = [(k, int(v)) for k, v in zip(self.solved, solution) if v != 0]
+        terms = [(k, int(v)) for k, v in zip(solved, solution) if v != 0]
         if any(sp.Integer(v) != coefficient for (_, v), coefficient in zip(terms, [c for c in solution if c != 0])):
             return None
         return terms
@@ -228,6 +255,29 @@ class Solver:
         self._numeric[cache_key] = result
         return result
 
+    def numeric_length(self, equation: Equation, key: str) -> "NumericLength | None":
+        """q2, q1, q0 on the samples for ``equation`` seen in the displacement ``key``, found by
+        setting it to four values; None when it is not of degree 1 or 2 in it."""
+        cache_key = (equation.number, key)
+        if cache_key in self._numeric:
+            return self._numeric[cache_key]
+        angles = self.samples.angles
+        known = self.known_values(equation.identity)
+        scale = entry_scale(equation, self.chain.length_scale)
+        length = self.chain.length_scale
+        points = np.array([-1.0, 0.0, 1.0, 2.0]) * length
+        values = np.array([numeric_residual(self.pool, equation, known, vary(angles, equation, key, v))
+                           for v in points])                              # (4, samples)
+        vandermonde = np.vander(points / length, 4)                       # columns: x^3, x^2, x, 1
+        q3, q2, q1, q0 = np.linalg.solve(vandermonde, values)             # in x = l / length
+        result = None
+        if float(np.max(np.abs(q3))) <= 1e-8 * scale:
+            q2, q1, q0 = (snap(q, scale) for q in (q2 / length ** 2, q1 / length, q0))
+            if q2.any() or q1.any():
+                result = NumericLength(equation, key, q2, q1, q0)
+        self._numeric[cache_key] = result
+        return result
+
     def size(self, equation: Equation) -> int:
         """How long the equation's symbolic form will be, roughly: the factors left unfolded."""
         i, k = equation.split
@@ -251,7 +301,7 @@ class Solver:
             if len(left) != 1:
                 continue
             (key,) = left
-            found = self.numeric(equation, key)
+            found = self.numeric_length(equation, key) if self.unknowns[key].prismatic else self.numeric(equation, key)
             if found is None:
                 continue
             signature = found.signature()
@@ -275,12 +325,22 @@ class Solver:
 
     def pick(self, closure: set[str]):
         candidates = self.candidates(closure)
+        lengths = {k: v for k, v in candidates.items() if self.unknowns[k].prismatic}
+        candidates = {k: v for k, v in candidates.items() if not self.unknowns[k].prismatic}
         for key in sorted(candidates, key=key_order):
             forms = self.pair_forms(candidates[key], key)
             if forms:
                 return LinearPair(key, tuple(forms), self.pair_singular(key, forms))
+        for key in sorted(lengths, key=key_order):
+            step = self.linear_length(key, [n for n in lengths[key] if n.linear])
+            if step is not None:
+                return step
         singles = [n for key in candidates for n in candidates[key]]
         if not singles:
+            for key in sorted(lengths, key=key_order):
+                step = self.quadratic_length(key, [n for n in lengths[key] if not n.linear])
+                if step is not None:
+                    return step
             return None
 
         def constant_norm(n):
@@ -339,6 +399,60 @@ class Solver:
         # A form with a constant non-zero determinant never degenerates: it alone is enough.
         constant = [f for f in kept if f.det.is_number and f.det != 0]
         return constant[:1] or kept
+
+    # ------------------------------------------------------------------ displacements
+    def length_parts(self, equation: Equation, key: str):
+        """(q2, q1, q0) symbolic for ``equation`` in the displacement ``key``, or None."""
+        symbol = self.unknowns[key].length
+        poly = sp.Poly(sp.expand(self.expr(equation)), symbol)
+        if poly.degree() > 2 or poly.degree() < 1:
+            return None
+        return tuple(sp.expand(poly.coeff_monomial(symbol ** p)) for p in (2, 1, 0))
+
+    def linear_length(self, key: str, candidates: list) -> LinearLength | None:
+        """The displacement from equations linear in it: up to three forms with different
+        singular sets, the never-singular (constant denominator) and shortest first."""
+        def constant(n):
+            return float(np.max(n.q1) - np.min(n.q1)) <= 1e-9 * float(np.max(np.abs(n.q1)))
+        ranked = sorted(candidates, key=lambda n: (not constant(n), self.size(n.equation), n.equation.number))
+        forms, seen = [], []
+        for n in ranked[:SYMBOLIC_CANDIDATES]:
+            if any(proportional(n.q1, d) for d in seen):
+                continue
+            parts = self.length_parts(n.equation, key)
+            if parts is None or parts[0] != 0:
+                continue
+            _, den, num = parts
+            seen.append(n.q1)
+            typical = float(np.median(np.abs(n.q1)))
+            forms.append(LengthForm(self.reduce(-num), self.reduce(den), SINGULAR_TOLERANCE * power_of_ten(typical),
+                                    n.equation.source))
+            if constant(n) or len(forms) == MAX_PAIR_FORMS:
+                break
+        if not forms:
+            return None
+        what = self.unknowns[key].words()
+        singular = Singular(measure=forms[0].den, threshold=forms[0].threshold,
+                            description=f"every equation for {what} loses it (its coefficient vanishes)",
+                            rule=f"{what} is free: it keeps the caller's current reading (0 if none is given)")
+        return LinearLength(key, tuple(forms), singular)
+
+    def quadratic_length(self, key: str, candidates: list) -> QuadraticLength | None:
+        """Two roots from an equation of degree two in the displacement with a constant leading
+        coefficient (a squared norm)."""
+        def constant(n):
+            return float(np.max(n.q2) - np.min(n.q2)) <= 1e-9 * float(np.max(np.abs(n.q2)))
+        for n in sorted(candidates, key=lambda n: (self.size(n.equation), n.equation.number)):
+            if not constant(n):
+                continue
+            parts = self.length_parts(n.equation, key)
+            if parts is None or not parts[0].is_number or parts[0] == 0:
+                continue
+            a, b, c = (self.reduce(p) for p in parts)
+            name, meaning = self.branch_namer(key, None)
+            return QuadraticLength(key, a, b, c, self.reduce(b * b - 4 * a * c),
+                                   BranchPoint(name, sp.Symbol(f"sigma{key}"), meaning), n.equation.source)
+        return None
 
     def built_pair(self, item, key: str, built: dict):
         """The symbolic form of a scored pair: (rank, det, cos_num, sin_num, det values, the two
@@ -419,6 +533,8 @@ class Solver:
         for equation in self.pool.equations:
             left = equation.depends - closure
             if len(left) != 2:
+                continue
+            if any(self.unknowns[k].prismatic for k in left):
                 continue
             for u, v in itertools.permutations(sorted(left, key=key_order)):
                 found = self.numeric(equation, u)

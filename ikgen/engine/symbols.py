@@ -23,13 +23,20 @@ from ..ir import angle_symbol, cos_symbol, sin_symbol
 
 @dataclass(frozen=True)
 class Unknown:
-    """An angle to solve: ``sum(sign * th_joint for joint, sign in members)``."""
+    """An angle to solve, ``sum(sign * th_joint for joint, sign in members)``, or the displacement
+    of a prismatic joint (its DH d, symbol ``l<joint>``)."""
     key: str
     members: tuple[tuple[int, int], ...]
+    prismatic: bool = False
 
     @staticmethod
-    def joint(index: int) -> "Unknown":
-        return Unknown(str(index), ((index, 1),))
+    def joint(index: int, prismatic: bool = False) -> "Unknown":
+        return Unknown(str(index), ((index, 1),), prismatic)
+
+    @property
+    def length(self) -> sp.Symbol:
+        """The displacement of a prismatic joint (its DH d, in the arm's length unit)."""
+        return length_symbol(self.key)
 
     @staticmethod
     def sum_of(members) -> "Unknown":
@@ -56,9 +63,13 @@ class Unknown:
 
     def words(self) -> str:
         if self.is_joint:
-            return f"joint {self.key}"
+            return f"joint {self.key}" + (" (its displacement)" if self.prismatic else "")
         terms = " ".join(("+ " if sign > 0 else "- ") + f"th{j}" for j, sign in self.members).lstrip("+ ")
         return f"the sum {terms}"
+
+
+def length_symbol(key) -> sp.Symbol:
+    return sp.Symbol(f"l{key}", real=True)
 
 
 def reduce_circles(expr: sp.Expr, circles) -> sp.Expr:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from . import parallel_axes, wrist_centre
+from . import parallel_axes, tool_axis, wrist_centre
 
 
 @dataclass
@@ -21,4 +21,4 @@ class Finding:
     data: dict = field(default_factory=dict)
 
 
-STRATEGIES = (wrist_centre.LAST, wrist_centre.FIRST, parallel_axes.STRATEGY)
+STRATEGIES = (wrist_centre.LAST, wrist_centre.FIRST, tool_axis.STRATEGY, parallel_axes.STRATEGY)

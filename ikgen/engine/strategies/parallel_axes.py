@@ -18,7 +18,6 @@ import numpy as np
 
 from ...analysis import generic_readings, relate
 from ...kinematics import NumericChain
-from ..labels import elbow_label, reach_label, wrist_bend_label
 from ..pool import Coordinates
 from ..symbols import Unknown
 
@@ -26,18 +25,23 @@ MIN_RUN = 3
 
 
 def runs_of_parallel_axes(arm) -> list[tuple[int, int, tuple[int, ...]]]:
-    """(first, last, signs) for every maximal run of >= MIN_RUN consecutive parallel revolute axes."""
+    """(first, last, signs) for every maximal run of consecutive joints with parallel axes that holds
+    at least MIN_RUN revolute joints; signs relative to the first revolute member, 0 for a prismatic
+    member (a slide along the common direction, as in a SCARA, does not turn the links after it)."""
     chain = NumericChain(arm)
     origins, directions = chain.joint_axes(generic_readings(arm))
     runs = []
     start = 1
     while start <= arm.dof:
         end = start
-        while end < arm.dof and arm.joints[end - 1].revolute and arm.joints[end].revolute and \
-                relate(arm, end, end + 1, origins, directions).kind in ("parallel", "coincident"):
+        while end < arm.dof and relate(arm, end, end + 1, origins, directions).kind in ("parallel", "coincident"):
             end += 1
-        if end - start + 1 >= MIN_RUN:
-            signs = tuple(int(np.sign(np.dot(directions[j - 1], directions[start - 1]))) for j in range(start, end + 1))
+        members = range(start, end + 1)
+        revolute = [j for j in members if arm.joints[j - 1].revolute]
+        if len(revolute) >= MIN_RUN:
+            reference = directions[revolute[0] - 1]
+            signs = tuple(int(np.sign(np.dot(directions[j - 1], reference))) if arm.joints[j - 1].revolute else 0
+                          for j in members)
             runs.append((start, end, signs))
         start = end + 1
     return runs
@@ -59,7 +63,7 @@ def closest_to_parallel(arm) -> str:
 class ParallelAxes:
     NAME = "parallel axes (three or more consecutive axes parallel)"
 
-    def recognise(self, arm):
+    def recognise(self, arm, target):
         from . import Finding
         runs = runs_of_parallel_axes(arm)
         if not runs:
@@ -72,12 +76,11 @@ class ParallelAxes:
         for first, last, signs in finding.data["runs"]:
             name = f"the coordinates of parallel axes {first}-{last}"
             setup.pool.coordinates.append(Coordinates(name, first, last, signs))
-            for a in range(first, last + 1):
-                for b in range(a + 1, last + 1):
-                    members = tuple((j, signs[j - first] * signs[a - first]) for j in range(a, b + 1))
+            revolute = [j for j in range(first, last + 1) if signs[j - first] != 0]
+            for index, a in enumerate(revolute):
+                for b in revolute[index + 1:]:
+                    members = tuple((j, signs[j - first] * signs[a - first]) for j in revolute if a <= j <= b)
                     setup.extra_unknowns.append(Unknown.sum_of(members))
-        if not setup.labels and setup.arm.dof == 6:
-            setup.labels += [reach_label(setup, None), elbow_label(setup, None), wrist_bend_label(setup)]
 
 
 STRATEGY = ParallelAxes()

@@ -20,7 +20,6 @@ from ...analysis import check_wrist
 from ...errors import StructureError
 from ...terminal import fmt
 from ..geometry import meeting_point
-from ..labels import base_bend_label, elbow_label, reach_label, wrist_bend_label
 from ..pool import Factor, Identity
 
 
@@ -32,11 +31,14 @@ class WristCentre:
     def first_axis(self, arm) -> int:
         return arm.dof - 2 if self.at_end else 1
 
-    def recognise(self, arm):
+    def recognise(self, arm, target):
         from . import Finding
-        if arm.dof < 3:
-            return Finding(False, [f"the arm has {arm.dof} joints; three meeting axes need at least 3"])
+        if target.kind not in ("pose", "point_and_angle") or arm.dof != 6:
+            return Finding(False, [f"meeting axes decouple a full pose of a six-joint arm (this target: {target.kind}, "
+                                   f"{arm.dof} joints)"])
         first = self.first_axis(arm)
+        if any(not j.revolute for j in arm.joints[first - 1:first + 2]):
+            return Finding(False, [f"joints {first} to {first + 2} include a prismatic one"])
         check = check_wrist(arm, first)
         words = check.words if check.meets else [f"axes {first}, {first + 1}, {first + 2} do not meet in one point "
                                                  f"(meeting axes would be 0 {arm.length_unit} apart): "
@@ -64,9 +66,9 @@ class WristCentre:
         setup.pool.add_identity(identity)
         setup.analysis.append(f"wrist centre: ({', '.join(map(str, outer))}) in the last DH frame, "
                               f"({', '.join(map(str, inner))}) in frame {first - 1}")
-        if not setup.labels and n == 6:
-            frame1 = setup.names.folded(identity, 1, identity.length) if identity.length >= 1 else None
-            setup.labels += [reach_label(setup, frame1), elbow_label(setup, inner), wrist_bend_label(setup)]
+        if "wrist_in_frame1" not in setup.label_points and identity.length >= 1:
+            setup.label_points["wrist_in_frame1"] = setup.names.folded(identity, 1, identity.length)
+            setup.label_points["inner"] = inner
 
     def _first_three(self, setup) -> None:
         chain, n = setup.chain, setup.arm.dof
@@ -86,8 +88,6 @@ class WristCentre:
         setup.pool.add_identity(identity)
         setup.analysis.append(f"base centre: ({', '.join(map(str, base_point))}) in the DH base frame, "
                               f"({', '.join(map(str, link_point))}) in frame 3")
-        if not setup.labels and n == 6:
-            setup.labels += [base_bend_label(setup), wrist_bend_label(setup)]
 
     @staticmethod
     def _numeric(point, chain) -> np.ndarray:

@@ -1,0 +1,93 @@
+"""What the arm is asked for: the target kind, declared in the arm file or natural for the arm.
+
+| kind | freedoms | the solver reads from a pose |
+|---|---|---|
+| pose | 6 | all of it |
+| point_and_direction | 5 | the position and one column of the rotation (the directed tool axis) |
+| point_and_angle | 4 | the position and the turn about a fixed world axis (all joint axes parallel to it) |
+| point | 3 | the position |
+
+An arm must have exactly as many joints as its target has freedoms (more would leave joints
+undetermined, fewer could not reach every target). When the file declares no target the natural
+one is taken: six joints a pose, five a point and a direction (of the tool's z axis), four a point
+and an angle when every joint axis is parallel, three a point.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import sympy as sp
+
+from ..analysis import generic_readings
+from ..errors import StructureError
+from ..kinematics import NumericChain
+from ..model import TARGET_FREEDOMS, Arm, Target
+
+PARALLEL_TOLERANCE = 1e-9   # radians between joint axes that count as parallel
+
+
+def common_axis(arm: Arm) -> tuple | None:
+    """The world direction every joint axis is parallel to (exact), or None."""
+    chain = NumericChain(arm)
+    _, directions = chain.joint_axes(generic_readings(arm))
+    first = directions[0]
+    if any(np.linalg.norm(np.cross(first, d)) > PARALLEL_TOLERANCE for d in directions[1:]):
+        return None
+    frame = sp.Matrix(arm.base)
+    if arm.convention == "modified":      # axis 1 is z of frame 1: Rx(alpha) z, whatever theta1 is
+        alpha = arm.joints[0].alpha
+        frame = frame * sp.Matrix([[1, 0, 0, 0], [0, sp.cos(alpha), -sp.sin(alpha), 0],
+                                   [0, sp.sin(alpha), sp.cos(alpha), 0], [0, 0, 0, 1]])
+    return tuple(sp.nsimplify(x) if sp.nsimplify(x).is_Rational else x for x in frame[:3, 2])
+
+
+def what_it_serves(arm: Arm) -> str:
+    kinds = {6: "a full pose", 5: "a point and the direction of one tool axis", 3: "a point"}
+    if arm.dof == 4:
+        return ("a point and an angle about the axis all its joints turn or slide along"
+                if common_axis(arm) is not None else
+                "no target: four joints serve a point and an angle only when every joint axis is parallel")
+    return kinds.get(arm.dof, f"no target ikgen handles ({arm.dof} joints; 3 to 6 are handled)")
+
+
+def resolve(arm: Arm) -> Target:
+    """The target the derivation solves for, checked against the arm."""
+    declared = arm.target
+    if declared is None:
+        natural = {6: "pose", 5: "point_and_direction", 4: "point_and_angle", 3: "point"}.get(arm.dof)
+        if natural is None:
+            raise StructureError(f"arm '{arm.name}' has {arm.dof} joints; the derivation handles arms of 3 to 6 "
+                                 "joints (a point, a point and an angle, a point and a direction, or a pose), so "
+                                 "nothing was written")
+        declared = Target(natural, None, "z", declared=False)
+    if TARGET_FREEDOMS[declared.kind] != arm.dof:
+        raise StructureError(
+            f"arm '{arm.name}' has {arm.dof} joints and the target '{declared.kind}' has "
+            f"{TARGET_FREEDOMS[declared.kind]} freedoms; a target needs as many joints as it has freedoms. This arm "
+            f"serves {what_it_serves(arm)}, so nothing was written")
+    if declared.kind == "point_and_angle":
+        axis = common_axis(arm)
+        if axis is None:
+            raise StructureError(f"arm '{arm.name}': a point and an angle about a fixed world axis needs every joint "
+                                 "axis parallel to that axis, and this arm's axes are not all parallel, so nothing "
+                                 "was written")
+        if declared.axis is not None:
+            given = np.array([float(v) for v in declared.axis])
+            if np.linalg.norm(np.cross(given, np.array([float(v) for v in axis]))) > PARALLEL_TOLERANCE:
+                raise StructureError(f"arm '{arm.name}': the target's axis {[float(v) for v in declared.axis]} is not "
+                                     f"the direction its joint axes share ({[round(float(v), 6) for v in axis]}), so "
+                                     "nothing was written")
+            if np.dot(given, np.array([float(v) for v in axis])) < 0:
+                axis = tuple(-v for v in axis)
+        declared = Target(declared.kind, axis, declared.tool_axis, declared.declared)
+    return declared
+
+
+def words(target: Target) -> str:
+    text = {"pose": "the full pose of the tool",
+            "point": "the position of the tool point",
+            "point_and_angle": "the position of the tool point and its turn about the world axis "
+                               f"({', '.join(str(v) for v in (target.axis or ()))})",
+            "point_and_direction": f"the position of the tool point and the direction of the tool's {target.tool_axis} axis"
+            }[target.kind]
+    return text + ("" if target.declared else " (natural for this arm; no [target] in the file)")
