@@ -82,12 +82,42 @@ class CSolver:
         conditioning = tuple(float(solution.conditioning[i]) for i in range(self.conditions))
         return (joints, config, bool(solution.singular), conditioning, bool(solution.within_limits))
 
-    def inverse(self, pose, current=None, limits="drop") -> list[tuple]:
+    STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
+
+    def _answer(self, count, with_status):
+        solutions = [self._tuple(self._solutions[k]) for k in range(count)]
+        return (solutions, self.STATUS_NAMES[self.status()]) if with_status else solutions
+
+    def inverse(self, pose, current=None, limits="drop", with_status=False) -> list[tuple]:
         """The Python back-end's inverse(): (joints, config, singular, conditioning, within_limits)."""
         flat = self._flat_pose(pose)
         hint, _keep = self._joints_pointer(current)
         count = self._inverse(self._pointer(flat), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
-        return [self._tuple(self._solutions[k]) for k in range(count)]
+        return self._answer(count, with_status)
+
+    def _vector(self, values) -> np.ndarray:
+        return np.ascontiguousarray(np.asarray(values, dtype=self.dtype).reshape(3))
+
+    def inverse_point(self, point, current=None, limits="drop", with_status=False):
+        p = self._vector(point)
+        hint, _keep = self._joints_pointer(current)
+        count = getattr(self.lib, f"{self.prefix}_inverse_point")(self._pointer(p), hint, self.LIMIT_MODES[limits],
+                                                                  self._solutions, self._status)
+        return self._answer(count, with_status)
+
+    def inverse_point_angle(self, point, angle, current=None, limits="drop", with_status=False):
+        p = self._vector(point)
+        hint, _keep = self._joints_pointer(current)
+        count = getattr(self.lib, f"{self.prefix}_inverse_point_angle")(
+            self._pointer(p), float(angle), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+        return self._answer(count, with_status)
+
+    def inverse_point_direction(self, point, direction, current=None, limits="drop", with_status=False):
+        p, u = self._vector(point), self._vector(direction)
+        hint, _keep = self._joints_pointer(current)
+        count = getattr(self.lib, f"{self.prefix}_inverse_point_direction")(
+            self._pointer(p), self._pointer(u), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+        return self._answer(count, with_status)
 
     def wanted(self, config) -> object:
         """The C filter for a configuration: NULL for any, else +1/-1/0 per label. ``config`` as in
@@ -125,7 +155,7 @@ class CSolver:
         return [self._tuple(self._solutions[k]) for k in range(count)]
 
     def status(self) -> int:
-        """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input."""
+        """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not realisable."""
         return int(self._status[0])
 
     def inverse_many(self, poses, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -189,7 +219,8 @@ def _build(cffi, arm: Arm, derivation: Derivation, scalar, scratch: Path, module
     from .backends.common import lower, max_solutions
     plan = lower(derivation)
     context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
-               "conditions": len(plan.condition_blocks), "labels": max(len(plan.labels), 1)}
+               "conditions": max(len(plan.condition_blocks), 1), "labels": max(len(plan.labels), 1),
+               "target": derivation.target.kind if derivation.target else "pose"}
     env = environment()
     ffi = cffi.FFI()
     ffi.cdef(env.get_template("c_cffi_cdef.h.j2").render(**context))

@@ -62,6 +62,16 @@ def unit_summary(arm: Arm) -> str:
     return " and ".join(parts)
 
 
+def target_words(arm) -> str:
+    """What the arm is asked for, or why no target fits (describe never fails on that)."""
+    from .engine.targets import resolve, words
+    from .errors import StructureError
+    try:
+        return words(resolve(arm))
+    except StructureError as exc:
+        return f"none: {exc}"
+
+
 def cmd_describe(args) -> int:
     arm = load_arm_source(args.arm, args)
     convention = {"standard": "standard (distal) DH: A_i = Rz(theta) Tz(d) Tx(a) Rx(alpha)",
@@ -73,6 +83,7 @@ def cmd_describe(args) -> int:
     out(f"convention   {convention}")
     out(f"units        lengths in {arm.length_unit}, angles in {arm.angle_unit}")
     out(f"joints       {arm.dof}")
+    out(f"target       {target_words(arm)}")
     out()
     unit = arm.angle_unit
     rows = []

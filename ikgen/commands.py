@@ -89,8 +89,14 @@ def cmd_generate(args) -> int:
     arms = load_arms(args.arms, args)                         # every file validated before anything is written
     results = [timed(build, arm) for arm in arms]       # every arm derived before anything is written
     return write_or_check(results, args.out, args.check, "generated", "generation",
-                          lambda r, seconds: f"{r.arm.name}: {r.derivation.family}, at most "
+                          lambda r, seconds: f"{r.arm.name}: {r.derivation.family}; target: "
+                                             f"{target_words(r.derivation.target)}; at most "
                                              f"{r.derivation.max_solutions} solutions, derived in {seconds:.2f} s")
+
+
+def target_words(target) -> str:
+    from .engine.targets import words
+    return words(target) if target is not None else "the full pose of the tool"
 
 
 def count_summary(counts: dict, shown: int = 12) -> str:

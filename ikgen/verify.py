@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .engine.chain import Chain as EngineChain
-from .engine.labels import elbow_orientation, numeric_measures
+from .engine.labels import numeric_measure, plan_labels
 from .kinematics import NumericChain
 from .model import Arm
 from .rotations import rotation_angle_between
@@ -70,8 +70,18 @@ class Verification:
         return not self.failures
 
 
+def target_of(arm: Arm):
+    """The arm's target (engine/targets.py), cached on the arm object."""
+    if "_target" not in arm.__dict__:
+        from .engine.targets import resolve
+        object.__setattr__(arm, "_target", resolve(arm))     # Arm is frozen
+    return arm.__dict__["_target"]
+
+
 def jacobian_distance(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
-    """Smallest singular value of the Jacobian (position rows / length scale) per joint vector."""
+    """Smallest singular value of the target's Jacobian (position rows / length scale; for a point
+    and an angle the turn about the target's axis, for a point and a direction the rate of the
+    tool's direction, for a pose all three rotation rates) per joint vector."""
     frames = chain.frames(readings)
     tool = frames[:, -1] @ chain.tool
     point = tool[:, :3, 3]
@@ -81,7 +91,17 @@ def jacobian_distance(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
     scale = chain.arm.reach_scale()
     linear = np.where(chain.revolute[None, :, None], np.cross(z, point[:, None, :] - o) / scale, z)
     angular = np.where(chain.revolute[None, :, None], z, 0.0)
-    jac = np.concatenate([linear, angular], axis=2)          # (N, dof, 6): columns as rows
+    target = target_of(chain.arm)
+    if target.kind == "point":
+        jac = linear
+    elif target.kind == "point_and_angle":
+        axis = np.array([float(v) for v in target.axis])
+        jac = np.concatenate([linear, (angular @ axis)[:, :, None]], axis=2)
+    elif target.kind == "point_and_direction":
+        direction = tool[:, :3, "xyz".index(target.tool_axis)]
+        jac = np.concatenate([linear, np.cross(angular, direction[:, None, :])], axis=2)
+    else:
+        jac = np.concatenate([linear, angular], axis=2)      # (N, dof, 6): columns as rows
     return np.linalg.svd(jac, compute_uv=False)[:, -1]
 
 
@@ -99,13 +119,23 @@ def random_readings(arm: Arm, count: int, rng) -> np.ndarray:
 
 
 def check_round_trip(chain: NumericChain, poses: np.ndarray, solutions: list) -> tuple[np.ndarray, np.ndarray]:
-    """(position errors, rotation errors) of FK(solution) against the pose, for a flat list."""
+    """(position errors, rotation errors) of FK(solution) against the pose, for a flat list: the
+    target's parts only (a point: no rotation; a point and a direction: the angle between the
+    directed tool axes)."""
     if not solutions:
         return np.zeros(0), np.zeros(0)
     joints = np.array([s for s in solutions])
     achieved = chain.poses(joints)
     pos = np.linalg.norm(achieved[:, :3, 3] - poses[:, :3, 3], axis=1)
-    rot = rotation_angle_between(achieved[:, :3, :3], poses[:, :3, :3])
+    target = target_of(chain.arm)
+    if target.kind == "point":
+        rot = np.zeros(len(pos))
+    elif target.kind == "point_and_direction":
+        k = "xyz".index(target.tool_axis)
+        a, b = achieved[:, :3, k], poses[:, :3, k]
+        rot = np.arctan2(np.linalg.norm(np.cross(a, b), axis=1), np.einsum("ni,ni->n", a, b))
+    else:
+        rot = rotation_angle_between(achieved[:, :3, :3], poses[:, :3, :3])
     return pos, rot
 
 
@@ -222,27 +252,42 @@ def dh_angles(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
     return chain.theta + chain.offset + chain.direction * q
 
 
-def label_measure(name: str, oriented: bool = False):
+def label_specs(arm: Arm) -> list:
+    """The arm's planned labels (engine/labels.py), cached on the arm object."""
+    if "_label_specs" not in arm.__dict__:
+        from .engine.targets import resolve
+        object.__setattr__(arm, "_label_specs", plan_labels(arm, resolve(arm)))   # Arm is frozen
+    return arm.__dict__["_label_specs"]
+
+
+def label_measure(name: str):
     """measure(chain, readings): the configuration label ``name`` measured on the forward
-    kinematics (engine/labels.py gives the definitions); zero on that branch's singular set.
-    ``oriented`` applies the arm's elbow orientation (only the sign of the elbow depends on it)."""
+    kinematics (engine/labels.py gives the definitions); zero on that branch's singular set."""
     def measure(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
         engine_chain = chain.__dict__.get("_label_chain")
         if engine_chain is None:
             engine_chain = chain.__dict__["_label_chain"] = EngineChain(chain.arm)
-            chain.__dict__["_elbow_sign"] = elbow_orientation(engine_chain) if oriented else 1
-        sign = chain.__dict__["_elbow_sign"] if oriented else 1
-        return numeric_measures(engine_chain, dh_angles(chain, readings), orientation=sign)[name]
+        spec = next((s for s in label_specs(chain.arm) if s.name == name), None)
+        if spec is None:
+            raise ValueError(f"arm '{chain.arm.name}' has no label '{name}' with a geometric measure")
+        return numeric_measure(engine_chain, dh_angles(chain, readings), spec.geometry)
     return measure
 
 
-# What each label's singular set is, and which joints (0-based) move a pose onto it, in order of preference.
-SINGULAR_KINDS = {
-    "reach": ("wrist point on the reach boundary (reach_forward / reach_backward)", (1, 2, 0)),
-    "elbow": ("elbow fully stretched or folded", (2, 1)),
-    "wrist_bend": ("wrist axes 4 and 6 aligned", (4, 3, 5)),
-    "base_bend": ("axes 1 and 3 aligned", (1, 0, 2)),
-}
+def singular_kind(spec) -> tuple[str, tuple[int, ...]]:
+    """What a label's singular set is, and which joints (0-based) move a pose onto it, in order of
+    preference."""
+    kind = spec.geometry[0]
+    if kind == "reach":
+        return "wrist point on the reach boundary (reach_forward / reach_backward)", (1, 2, 0)
+    if kind in ("elbow", "elbow_turn"):
+        s = spec.geometry[1]
+        return "elbow fully stretched or folded", (s, s - 1)
+    _, i, j, k = spec.geometry
+    if spec.name == "base_bend":
+        return "axes 1 and 3 aligned", (j - 1, i - 1, k - 1)
+    other = f"axis {k}" if isinstance(k, int) else f"the tool's {k} axis"
+    return f"wrist axis {i} and {other} aligned", (j - 1, i - 1) + ((k - 1,) if isinstance(k, int) else ())
 
 
 def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None:
@@ -279,11 +324,11 @@ def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None
 def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verification, per_kind: int = 20):
     """Poses exactly on each label's singular set (found by bisection along a joint that crosses
     it) give finite solutions that reproduce the pose."""
-    for name in getattr(module, "LABEL_NAMES", ("reach", "elbow", "wrist_bend")):
-        if name not in SINGULAR_KINDS:
+    for spec in label_specs(arm):
+        if spec.name not in getattr(module, "LABEL_NAMES", ()):
             continue
-        kind, joints = SINGULAR_KINDS[name]
-        measure = label_measure(name)
+        kind, joints = singular_kind(spec)
+        measure = label_measure(spec.name)
         tested = ok = 0
         for attempt in range(per_kind * 3):
             if tested >= per_kind:

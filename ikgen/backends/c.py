@@ -80,8 +80,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
         limits=[list(l) for l in arm.limits_in_readings()],
-        joint_zero=[float(j.theta + j.offset) for j in arm.joints],
-        joint_gain=[j.direction * arm.angle_scale for j in arm.joints],
+        joint_zero=common.joint_zero(arm), joint_gain=common.joint_gain(arm),
+        prismatic=[not j.revolute for j in arm.joints],
         singular_terms=c_terms(plan.singular_terms, printer),
         mirror_terms=c_terms(plan.mirror_condition, printer) if plan.mirror else [], generator=common.GENERATOR,
         label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
@@ -95,7 +95,10 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         root_eps=4e-16 if scalar.name == "double" else 4e-7,
         # |cos^2 + sin^2 - 1| of a linear pair beyond which the input is inconsistent: float
         # rounding near a tangency of a polynomial's roots reaches about 2e-3 (measured on canted6)
-        pair_tolerance=1e-4 if scalar.name == "double" else 5e-3)
+        pair_tolerance=1e-4 if scalar.name == "double" else 5e-3,
+        target=common.target_plan(arm, derivation), angle_scale=float(arm.angle_scale),
+        tolerances={"tilt": common.TILT_TOLERANCE[scalar.name], "roll": common.ROLL_TOLERANCE[scalar.name],
+                    "unit": common.UNIT_TOLERANCE[scalar.name]})
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
             n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
 

@@ -17,11 +17,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import jinja2
+import numpy as np
 import sympy as sp
 
 from .. import __version__
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation,
-                  LinearPair, angle_symbol, cos_symbol, sin_symbol)
+                  LinearLength, LinearPair, QuadraticLength, angle_symbol, cos_symbol, sin_symbol)
 from ..model import Arm
 
 GENERATOR = f"ikgen {__version__} (sympy {sp.__version__})"
@@ -121,10 +122,21 @@ class FormPlan:
     threshold: float
     constant_det: bool
 
+    @property
+    def weak(self) -> float:
+        """Below this |det| (1e-8 of its typical size) a pair whose (cos, sin) come out inconsistent
+        is ill-conditioned rather than unreachable: rounding near a singular pose (the square root
+        of a radicand that is 0 up to rounding) made the determinant tiny but not 0, and the unknown
+        is treated as free."""
+        return 0.0 if self.constant_det else self.threshold * WEAK_FACTOR
+
+
+WEAK_FACTOR = 1e12
+
 
 @dataclass
 class Block:
-    kind: str                    # "compute", "cossin", "pair", "sum", "poly"
+    kind: str                    # "compute", "cossin", "pair", "sum", "poly", "lin", "quad"
     depth: int                   # number of enclosing branch loops
     comment: str
     key: str = ""                # the unknown a solving block finds ("3", "p234")
@@ -147,6 +159,7 @@ class Block:
     terms: list = field(default_factory=list)
     bound: int = 1               # |th<key>| <= bound * pi
     # poly: the five coefficients (named or numbers) and the tangency tolerance
+    # quad: a, b, c of a l^2 + b l + c (named or numbers)
     coefficients: list = field(default_factory=list)
     tolerance: float = 0.0
     eliminated: str = ""
@@ -164,11 +177,14 @@ class Block:
 @dataclass
 class OutputPlan:
     joint: int
-    zero: float                  # radians, reduced into (-pi, pi]
-    factor: float                # reading per radian times direction
+    zero: float                  # radians, reduced into (-pi, pi]; for a prismatic joint d + offset
+    factor: float                # reading per radian times direction (per length unit for a slide)
     direction: int
-    scale: float                 # radians per reading unit
+    scale: float                 # radians per reading unit (1 for a slide)
     wraps: int = 1               # conditional +-2pi steps that bring the reading into (-pi, pi]
+    prismatic: bool = False
+    low: float = 0.0             # a slide's stroke in reading units, widened by 1e-9 of its range:
+    high: float = 0.0            # a displacement outside it is no solution (strokes define reach)
 
 
 @dataclass
@@ -202,9 +218,13 @@ class Plan:
 
     @property
     def branch_sizes(self) -> list[int]:
-        """Roots per branch loop, outermost first (2 for a cossin, 4 for a polynomial)."""
+        """Roots per branch loop, outermost first (2 for a cossin or a quadratic, 4 for a polynomial)."""
         return [4 if b.kind == "poly" else 2 for b in self.blocks
-                if b.kind == "poly" or (b.kind == "cossin" and not b.mirrored)]
+                if b.kind in ("poly", "quad") or (b.kind == "cossin" and not b.mirrored)]
+
+    @property
+    def strokes(self) -> list["OutputPlan"]:
+        return [o for o in self.outputs if o.prismatic]
 
     @property
     def has_poly(self) -> bool:
@@ -236,6 +256,10 @@ class Plan:
                 terms.append(("free", block.key))
             elif block.kind == "poly":
                 terms += [("free", block.key), ("double_root", block.key)]
+            elif block.kind == "lin" and block.free_possible:
+                terms.append(("free", block.key))
+            elif block.kind == "quad":
+                terms.append(("double", block.key))
         return terms
 
     @property
@@ -254,7 +278,7 @@ class Plan:
     @property
     def condition_blocks(self) -> list[Block]:
         """The branch blocks, in order: one conditioning measure per branch point."""
-        return [b for b in self.blocks if b.kind in ("cossin", "poly")]
+        return [b for b in self.blocks if b.kind in ("cossin", "poly", "quad")]
 
     def mirrored_angle(self, joint) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
@@ -380,10 +404,38 @@ def lower_now(derivation: Derivation) -> Plan:
             blocks.append(block)
             branch_joints.append(step.key)
             depth += 1
+        elif isinstance(step, LinearLength):
+            forms = []
+            for k, form in enumerate(step.forms):
+                temps, (num, den) = eliminate([numeric(form.num, params), numeric(form.den, params)], f"{prefix}{k}_")
+                constant_den = den.is_number and den != 0
+                forms.append(FormPlan(temps, den, num, sp.Integer(0), form.threshold, constant_den))
+                if constant_den:
+                    break
+            blocks.append(Block("lin", depth, f"l{step.key}: the displacement from an equation linear in it",
+                                key=step.key, hint=hint, forms=forms, free_possible=not forms[-1].constant_det))
+        elif isinstance(step, QuadraticLength):
+            exprs = [numeric(e, params) for e in (step.a, step.b, step.c, step.radicand)]
+            temps, (a, b, c, radicand) = eliminate(exprs, prefix)
+            block = Block("quad", depth, f"l{step.key}: {step.source}", key=step.key, hint=hint, temps=temps,
+                          condition_name=step.branch.name)
+            block.coefficients = [e if e.is_number else _named(block, e, f"e{letter}{step.key}")
+                                  for letter, e in zip("abc", (a, b, c))]
+            block.radicand = radicand if radicand.is_number else _named(block, radicand, f"er{step.key}")
+            scale = block.coefficients[1] ** 2
+            block.guard = block.radicand + 2 * GUARD_TOLERANCE * scale
+            blocks.append(block)
+            branch_joints.append(step.key)
+            depth += 1
     label_exprs = [numeric(label.measure, params) for label in derivation.labels]
     final_temps, label_measures = eliminate(label_exprs, "tl_")
     outputs = []
     for out in derivation.outputs:
+        if out.prismatic:
+            low, high = derivation.strokes[out.joint]
+            outputs.append(OutputPlan(out.joint, float(out.zero), float(out.direction), out.direction, 1.0, 0,
+                                      True, low, high))
+            continue
         zero = float(out.zero)
         zero = (zero + 3.141592653589793) % 6.283185307179586 - 3.141592653589793
         scale = float(out.scale)
@@ -432,6 +484,10 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
         block.cos_expr, block.sin_expr = cn * inverse, sn * inverse
 
 
+def length_symbol(joint) -> sp.Symbol:
+    return sp.Symbol(f"l{joint}", real=True)
+
+
 def block_exprs(block: Block) -> list[sp.Expr]:
     exprs = [a.expr for a in block.temps]
     exprs += [e for e in (block.norm, block.radicand, block.cn, block.sn) if e is not None]
@@ -451,7 +507,7 @@ def drop_unused(plan: Plan) -> None:
     live: set = set()
     for e in [a.expr for a in plan.final_temps] + list(plan.label_measures):
         live |= sp.sympify(e).free_symbols
-    live |= {angle_symbol(out.joint) for out in plan.outputs}
+    live |= {length_symbol(out.joint) if out.prismatic else angle_symbol(out.joint) for out in plan.outputs}
     kept = []
     for block in reversed(plan.blocks):
         if block.kind == "compute":
@@ -467,6 +523,12 @@ def drop_unused(plan: Plan) -> None:
         if block.kind in ("cossin", "sum", "poly", "pair"):
             block.need_cos = cos_symbol(block.key) in live
             block.need_sin = sin_symbol(block.key) in live
+        if block.kind == "quad":
+            exprs = [a.expr for a in block.temps] + [e for e in block.coefficients] + [block.radicand]
+            for e in exprs:
+                live |= sp.sympify(e).free_symbols
+            kept.append(block)
+            continue
         if block.kind == "sum" and not (block.need_cos or block.need_sin or angle_symbol(block.key) in live):
             continue
         for e in block_exprs(block):
@@ -507,6 +569,16 @@ def max_solutions(arm: Arm, plan: Plan) -> int:
     return total
 
 
+def joint_zero(arm: Arm) -> list[float]:
+    """Per joint, the DH variable at reading 0: theta + offset (radians) or d + offset (length)."""
+    return [float(j.theta + j.offset) if j.revolute else float(j.d + j.offset) for j in arm.joints]
+
+
+def joint_gain(arm: Arm) -> list[float]:
+    """Per joint, the change of the DH variable per reading unit: direction times the unit's size."""
+    return [j.direction * (arm.angle_scale if j.revolute else 1.0) for j in arm.joints]
+
+
 def symbol_names(joint: int) -> tuple[str, str, str]:
     return str(cos_symbol(joint)), str(sin_symbol(joint)), str(angle_symbol(joint))
 
@@ -520,8 +592,53 @@ def header_lines(arm: Arm, derivation: Derivation) -> list[str]:
         lines.append(f"Description: {comment_text(arm.description)}")
     lines += [f"Convention: {convention}; {units}",
               f"Structure: {derivation.family}; at most {derivation.max_solutions} solutions",
+              f"Target: {target_plan(arm, derivation).words}",
               "Joints: " + ", ".join(f"{j.index} {comment_text(j.name)}" for j in arm.joints),
               f"Generated by {GENERATOR} from an arm file with sha256 {arm.digest[:16]}",
               "Pose input: the tool frame in the world frame, a 4x4 row-major homogeneous matrix "
               f"(position in {arm.length_unit}); rotation must be orthonormal."]
     return lines
+
+
+# ------------------------------------------------------------------------------ the target's inputs
+
+TILT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad: a pose turned off the target's axis by more
+ROLL_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad (chord): a pose whose roll the arm cannot take
+UNIT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # |direction| off 1 by more is invalid input
+
+
+@dataclass
+class TargetPlan:
+    """What the generated inverse reads from a pose, and how it builds a pose from natural inputs.
+
+    point_and_angle: every pose the arm reaches is ``Rot(axis, phi) * reference`` (the tool
+    rotation at the zero reading); ``e1``, ``e2`` complete ``axis`` to a right-handed basis.
+    point_and_direction: ``column`` is the tool axis the direction is (0 x, 1 y, 2 z)."""
+    kind: str
+    axis: tuple = ()
+    e1: tuple = ()
+    e2: tuple = ()
+    reference: tuple = ()        # 3x3 rows
+    column: int = 2
+    words: str = ""
+
+
+def target_plan(arm: Arm, derivation: Derivation) -> TargetPlan:
+    from ..engine.targets import words
+    from ..kinematics import NumericChain
+    target = derivation.target
+    kind = target.kind if target is not None else "pose"
+    plan = TargetPlan(kind, words=words(target) if target is not None else "the full pose of the tool")
+    if kind == "point_and_angle":
+        axis = np.array([float(v) for v in target.axis])
+        axis /= np.linalg.norm(axis)
+        helper = np.eye(3)[int(np.argmin(np.abs(axis)))]
+        e1 = helper - np.dot(helper, axis) * axis
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(axis, e1)
+        reference = NumericChain(arm).pose(np.zeros(arm.dof))[:3, :3]
+        plan.axis, plan.e1, plan.e2 = (tuple(float(v) for v in x) for x in (axis, e1, e2))
+        plan.reference = tuple(tuple(float(v) for v in row) for row in reference)
+    elif kind == "point_and_direction":
+        plan.column = "xyz".index(target.tool_axis)
+    return plan

@@ -29,12 +29,17 @@ def printer() -> SolverPythonPrinter:
 
 
 def forward_plan(arm: Arm) -> tuple[list[common.Assignment], list[sp.Expr]]:
-    """Tool pose entries (row-major 3x4) as expressions in c1, s1, ... with CSE."""
+    """Tool pose entries (row-major 3x4) as expressions in c1, s1, ... (l3 for a prismatic joint's
+    displacement) with CSE."""
     result = sp.Matrix(arm.base)
     for joint in arm.joints:
-        ct, st = sp.Symbol(f"c{joint.index}", real=True), sp.Symbol(f"s{joint.index}", real=True)
+        if joint.revolute:
+            ct, st = sp.Symbol(f"c{joint.index}", real=True), sp.Symbol(f"s{joint.index}", real=True)
+            d = joint.d
+        else:
+            ct, st, d = sp.cos(joint.theta), sp.sin(joint.theta), sp.Symbol(f"l{joint.index}", real=True)
         result = result * link_from_cos_sin(arm.convention, joint.a, sp.cos(joint.alpha), sp.sin(joint.alpha),
-                                            joint.d, ct, st)
+                                            d, ct, st)
     result = result * sp.Matrix(arm.tool)
     entries = [common.floats(result[i, k]) for i in range(3) for k in range(4)]
     return common.eliminate(entries, "f")
@@ -51,14 +56,37 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
         limits=[list(l) for l in arm.limits_in_readings()],
-        joint_zero=[float(j.theta + j.offset) for j in arm.joints],
-        joint_direction=[j.direction for j in arm.joints],
-        joint_scale=[arm.angle_scale for _ in arm.joints],
+        joint_zero=common.joint_zero(arm), joint_direction=[j.direction for j in arm.joints],
+        joint_scale=[arm.angle_scale if j.revolute else 1.0 for j in arm.joints],
+        prismatic=[not j.revolute for j in arm.joints],
         generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
         mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
-        within_test=within_test(arm)))
+        within_test=within_test(arm), target=common.target_plan(arm, derivation),
+        angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
+        target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"])))
+
+
+TARGET_API = {
+    "pose": ["TARGET is \"pose\": the whole pose is read."],
+    "point": ["TARGET is \"point\": only the pose's position is read (its rotation is free).",
+              "inverse_point(point, current=None, limits=\"drop\", with_status=False) takes the point."],
+    "point_and_angle": ["TARGET is \"point_and_angle\": the position and the turn about TARGET_AXIS are read;",
+                        "a pose tilted off TARGET_AXIS by more than TILT_TOLERANCE is not realisable.",
+                        "inverse_point_angle(point, angle, current=None, limits=\"drop\", with_status=False)",
+                        "takes them directly (angle: the turn from the tool rotation at the zero reading)."],
+    "point_and_direction": ["TARGET is \"point_and_direction\": the position and the tool's TOOL_AXIS column are",
+                            "read; solutions whose roll about it is off the pose's by more than ROLL_TOLERANCE",
+                            "are dropped (none left: not realisable).",
+                            "inverse_point_direction(point, direction, current=None, limits=\"drop\",",
+                            "with_status=False) takes them directly and leaves the roll to the arm."],
+}
+
+
+def tolerances(real: str) -> dict:
+    return {"tilt": common.TILT_TOLERANCE[real], "roll": common.ROLL_TOLERANCE[real],
+            "unit": common.UNIT_TOLERANCE[real]}
 
 
 def within_test(arm: Arm) -> str:
