@@ -47,8 +47,9 @@ def joint(kind: str = "r", a=0, alpha=0, d=0, theta=0, name: str | None = None, 
 
 def arm_data(joints: list[dict], convention: str = "standard", length_unit: str = "m",
              angle_unit: str = "deg", base: dict | None = None, tool: dict | None = None,
-             name: str = "test_arm") -> dict:
-    """The parsed-file dict of an arm; ``base``/``tool`` are [base]/[tool] tables or None."""
+             name: str = "test_arm", target: dict | None = None) -> dict:
+    """The parsed-file dict of an arm; ``base``/``tool``/``target`` are [base]/[tool]/[target]
+    tables or None."""
     data = {"arm": {"name": name, "convention": convention, "length_unit": length_unit,
                     "angle_unit": angle_unit},
             "joint": [dict(j) for j in joints]}
@@ -56,6 +57,8 @@ def arm_data(joints: list[dict], convention: str = "standard", length_unit: str 
         data["base"] = base
     if tool is not None:
         data["tool"] = tool
+    if target is not None:
+        data["target"] = target
     return data
 
 

@@ -348,18 +348,43 @@ def test_wrist_axes_not_meeting_is_refused_with_the_reason():
     assert caught.value.exit_code == 3
 
 
-def test_five_joints_are_refused():
+def test_five_joints_take_a_point_and_a_direction():
+    """benchtop6 without its last joint: the tool's z axis still passes through the point where
+    axes 4 and 5 meet, so the natural target (a point and a direction) is solved and verifies."""
     data = benchtop_data()
     del data["joint"][5]
-    with pytest.raises(StructureError, match=r"5 joints.*six-joint arms"):
-        build(arm_from_data(data))
+    arm = arm_from_data(data)
+    result = build(arm)
+    assert result.derivation.target.kind == "point_and_direction" and not result.derivation.target.declared
+    module = load_module(result.files[result.python_path], "benchtop5_under_test")
+    report = verify(arm, module, samples=300, seed=7)
+    assert report.passed, report.failures
 
 
-def test_prismatic_joint_is_refused():
+def test_seven_joints_are_refused_with_what_is_handled():
     data = benchtop_data()
-    data["joint"][2] = joint("p", a=20, alpha=-90, d=0, name="slide", limits=[0, 300])
-    with pytest.raises(StructureError, match=r"joint\(s\) 3 .*prismatic"):
+    data["joint"].append(dict(data["joint"][5], name="extra"))
+    with pytest.raises(StructureError, match=r"7 joints; the derivation handles arms of 3 to 6"):
         build(arm_from_data(data))
+
+
+def test_a_declared_pose_for_a_four_joint_arm_is_refused_with_what_it_serves():
+    data = benchtop_data()
+    del data["joint"][4:]
+    data["target"] = {"kind": "pose"}
+    with pytest.raises(StructureError, match=r"4 joints and the target 'pose' has 6 freedoms.*serves no target"):
+        build(arm_from_data(data))
+
+
+def test_a_prismatic_third_joint_with_a_spherical_wrist_is_solved():
+    """The jib replaced by a slide along z2 (an arm with a telescoping joint and a wrist)."""
+    data = benchtop_data()
+    data["joint"][2] = joint("p", a=20, alpha=-90, d=0, name="slide", limits=[100, 300])
+    arm = arm_from_data(data)
+    result = build(arm)
+    module = load_module(result.files[result.python_path], "benchtop_slide_under_test")
+    report = verify(arm, module, samples=300, seed=7)
+    assert report.passed, report.failures
 
 
 # ------------------------------------------------------------- special arms verify clean

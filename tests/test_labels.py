@@ -25,40 +25,72 @@ DEMOS = sorted(p.stem for p in EXAMPLES.iterdir() if p.suffix in (".toml", ".jso
 # The documented vocabulary (docs/derivation.md, section 4): a change here must be deliberate.
 VOCABULARY = {"reach": ("reach_forward", "reach_backward"),
               "elbow": ("elbow_up", "elbow_down"),
+              "elbow_turn": ("counterclockwise", "clockwise"),
               "wrist_bend": ("bend_positive", "bend_negative"),
               "base_bend": ("bend_positive", "bend_negative")}
+ROOT_VALUES = ("root_plus", "root_minus")
 OLD_WORDS = ("front", "back", "noflip", "flip")        # the trio the labels replaced (issue: our own words)
 
 
 def nearest_point(o1, d1, o2, d2):
-    """The point of line 1 nearest line 2."""
+    """The point of line 1 nearest line 2 (o1 itself when they are parallel)."""
     b = np.einsum("ni,ni->n", d1, d2)
     w0 = o1 - o2
     d, e = np.einsum("ni,ni->n", d1, w0), np.einsum("ni,ni->n", d2, w0)
-    t = (b * e - d) / (1 - b * b)
+    parallel = np.abs(1 - b * b) < 1e-12
+    t = np.where(parallel, 0.0, (b * e - d) / np.where(parallel, 1.0, 1 - b * b))
     return o1 + t[:, None] * d1
 
 
-def geometry(chain: NumericChain, readings: np.ndarray) -> dict:
-    """Every label's measure, from FK frames (joint i's axis is z of frame i-1 in the standard
-    convention, of frame i in the modified one)."""
+def parallel(z, i, j):
+    return np.linalg.norm(np.cross(z[0, i - 1], z[0, j - 1])) < 1e-9
+
+
+def geometry(chain: NumericChain, readings: np.ndarray, module) -> dict:
+    """Every label's measure by the rules of docs/derivation.md, section 4, from FK frames (joint
+    i's axis is z of frame i-1 in the standard convention, of frame i in the modified one)."""
     frames = chain.frames(readings)
     axis_frames = frames[:, :-1] if chain.standard else frames[:, 1:]
     o, z = axis_frames[:, :, :3, 3], axis_frames[:, :, :3, 2]
+    tool = frames[:, -1] @ chain.tool
+    n = chain.arm.dof
+    target = module.TARGET
     x1 = frames[:, 1, :3, 0]
-    wrist = nearest_point(o[:, 5], z[:, 5], o[:, 4], z[:, 4])
-    e = nearest_point(o[:, 3], z[:, 3], o[:, 4], z[:, 4])
-    z2 = z[:, 1]
-    u = e - o[:, 1]
-    v = o[:, 2] - o[:, 1]
-    u = u - np.einsum("ni,ni->n", u, z2)[:, None] * z2
-    v = v - np.einsum("ni,ni->n", v, z2)[:, None] * z2
-    above = np.einsum("ni,ni->n", v, z[:, 0]) * np.einsum("ni,ni->n", u, u) - \
-        np.einsum("ni,ni->n", v, u) * np.einsum("ni,ni->n", u, z[:, 0])
-    return {"reach": np.einsum("ni,ni->n", wrist - o[:, 0], x1),
-            "bend": np.einsum("ni,ni->n", np.cross(v, u - v), z2), "above": above,
-            "wrist_bend": np.einsum("ni,ni->n", np.cross(z[:, 3], z[:, 5]), z[:, 4]),
-            "base_bend": np.einsum("ni,ni->n", np.cross(z[:, 0], z[:, 2]), z[:, 1])}
+
+    def meet(a, b):
+        return nearest_point(o[:, a - 1], z[:, a - 1], o[:, b - 1], z[:, b - 1])
+
+    wrist = meet(n, n - 1) if target in ("pose", "point_and_direction") else tool[:, :3, 3]
+    out = {"reach": np.einsum("ni,ni->n", wrist - o[:, 0], x1)}
+    if n == 6 and target == "pose":
+        s = 2
+    else:
+        s = next((k for k in (1, 2) if parallel(z, k, k + 1)), None)
+    if s is None:                     # no elbow pair (e.g. pan, tilt and a boom): no elbow label
+        pass
+    elif target in ("pose", "point_and_direction") and s + 3 <= n:
+        e = meet(s + 2, s + 3)
+    elif target == "point_and_angle":
+        e = meet(n, n - 1)
+    else:
+        e = tool[:, :3, 3]
+    if s is not None:
+        zs = z[:, s - 1]
+        u = e - o[:, s - 1]
+        v = o[:, s] - o[:, s - 1]
+        u = u - np.einsum("ni,ni->n", u, zs)[:, None] * zs
+        v = v - np.einsum("ni,ni->n", v, zs)[:, None] * zs
+        bend = np.cross(v, u - v)
+        out["bend"] = np.einsum("ni,ni->n", bend, zs)
+        out["above"] = np.einsum("ni,ni->n", v, z[:, 0]) * np.einsum("ni,ni->n", u, u) - \
+            np.einsum("ni,ni->n", v, u) * np.einsum("ni,ni->n", u, z[:, 0])
+        if target == "point_and_angle":
+            out["elbow_turn"] = bend @ np.array(module.TARGET_AXIS)   # counterclockwise about the target's axis
+    third = z[:, 5] if n == 6 else tool[:, :3, "xyz".index(getattr(module, "TOOL_AXIS", "z"))]
+    if n >= 5:
+        out["wrist_bend"] = np.einsum("ni,ni->n", np.cross(z[:, 3], third), z[:, 4])
+    out["base_bend"] = np.einsum("ni,ni->n", np.cross(z[:, 0], z[:, 2]), z[:, 1])
+    return out
 
 
 @pytest.fixture(scope="module", params=DEMOS)
@@ -72,7 +104,10 @@ def demo(request, built):
 def test_the_vocabulary_is_the_documented_one(demo):
     arm, module = demo
     for name, values in zip(module.LABEL_NAMES, module.LABEL_VALUES):
-        assert VOCABULARY[name] == tuple(values), name
+        if name.startswith("root_"):
+            assert tuple(values) == ROOT_VALUES and name[5:].isdigit(), name
+        else:
+            assert VOCABULARY[name] == tuple(values), name
         assert not set(values) & set(OLD_WORDS)
 
 
@@ -101,11 +136,14 @@ def test_each_label_follows_its_formula(demo):
             kept.append(q)
     assert len(kept) > 500
     labels, kept = np.array(labels), np.array(kept)
-    g = geometry(chain, kept)
+    g = geometry(chain, kept, module)
     length = arm.reach_scale()
-    small = {"reach": 1e-9 * length, "elbow": 1e-9 * length ** 2, "wrist_bend": 1e-9, "base_bend": 1e-9}
+    small = {"reach": 1e-9 * length, "elbow": 1e-9 * length ** 2, "elbow_turn": 1e-9 * length ** 2,
+             "wrist_bend": 1e-9, "base_bend": 1e-9}
     for index, name in enumerate(module.LABEL_NAMES):
         first, second = module.LABEL_VALUES[index]
+        if name.startswith("root_"):          # no geometric formula: the root's sign in the report
+            continue
         if name == "elbow":
             # the documented orientation: elbow_up is above the line from axis 2 to E when the arm
             # reaches forward; one sign of the bend fits that on (nearly) every such configuration
