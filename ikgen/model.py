@@ -129,7 +129,8 @@ class Arm:
         return counts
 
     def reach_scale(self) -> float:
-        """A length that sets the arm's scale: the sum of |a| and |d| over the chain, plus base and tool offsets."""
+        """A length that sets the arm's scale: the sum of |a| and |d| over the chain (a slide's d at the
+        end of its stroke farther from 0), plus base and tool offsets."""
         cached = self.__dict__.get("_reach_scale")
         if cached is None:
             cached = self._reach_scale_now()
@@ -137,7 +138,9 @@ class Arm:
         return cached
 
     def _reach_scale_now(self) -> float:
-        total = sum(abs(float(j.a)) + abs(float(j.d)) + (abs(float(j.offset)) if not j.revolute else 0.0)
+        total = sum(abs(float(j.a)) + (abs(float(j.d)) if j.revolute else
+                                       max(abs(float(j.d + j.offset) + float(j.direction) * float(end))
+                                           for end in j.limits))
                     for j in self.joints)
         total += float(sp.Matrix(self.base[:3, 3]).norm()) + float(sp.Matrix(self.tool[:3, 3]).norm())
         return total if total > 0 else 1.0
