@@ -373,3 +373,107 @@ def test_the_natural_calls_give_the_same_solutions_in_python_and_c(stem):
             compared += len(py[0])
     assert compared > 40
 
+
+
+@pytest.mark.parametrize("stem", ["mast3", "boardpick4", "engraver5", "kilnreach6"])
+def test_the_batch_solver_gives_the_per_pose_solutions_for_every_target(stem):
+    """The batch module's docstring is the specification: the valid entries of row i, in order,
+    are the per-pose solver's raw solutions (limits ignored) of input i; natural inputs too."""
+    arm = demo_arm(stem)
+    result = build(arm)
+    py = load_module(result.files[result.python_path], f"{stem}_ik_for_batch_targets")
+    batch = load_module(result.files[f"{stem}/{stem}_ik_batch.py"], f"{stem}_ik_batch_targets")
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(5)
+    limits = arm.limits_in_readings()
+    readings = limits[:, 0] + rng.random((400, arm.dof)) * (limits[:, 1] - limits[:, 0])
+    poses = chain.poses(readings)
+    points = poses[:, :3, 3]
+    if py.TARGET == "point":
+        joints, valid, *_ = batch.inverse_batch_point(points)
+        expected = [py.inverse_point(list(p), limits="ignore") for p in points]
+    elif py.TARGET == "point_and_angle":
+        angles = rng.uniform(-180, 180, len(points))
+        joints, valid, *_ = batch.inverse_batch_point_angle(points, angles)
+        expected = [py.inverse_point_angle(list(p), a, limits="ignore") for p, a in zip(points, angles)]
+    elif py.TARGET == "point_and_direction":
+        directions = poses[:, :3, "xyz".index(py.TOOL_AXIS)]
+        joints, valid, *_ = batch.inverse_batch_point_direction(points, directions)
+        expected = [py.inverse_point_direction(list(p), list(d), limits="ignore") for p, d in zip(points, directions)]
+    else:
+        joints, valid, *_ = batch.inverse_batch(poses)
+        expected = [py.inverse(p, limits="ignore") for p in poses]
+    solved = 0
+    for i, solutions in enumerate(expected):
+        got = joints[i][valid[i]]
+        assert len(got) == len(solutions), i
+        if solutions:
+            assert np.abs(got - np.array([q for q, *_ in solutions])).max() < 1e-7
+            solved += 1
+    assert solved > 300
+    if py.TARGET == "point_and_angle":           # a tilted pose: no valid entry (per pose: not realisable)
+        c, s = math.cos(1e-3), math.sin(1e-3)
+        tilted = poses[:1].copy()
+        tilted[0, :3, :3] = np.array([[1, 0, 0], [0, c, -s], [0, s, c]]) @ tilted[0, :3, :3]
+        assert not batch.inverse_batch(tilted)[1].any()
+        assert py.inverse(tilted[0], with_status=True) == ([], "not_realisable")
+    if py.TARGET == "point_and_direction":       # a direction that is not a unit vector: no valid entry
+        assert not batch.inverse_batch_point_direction(points[:1], 1.01 * directions[:1])[1].any()
+
+
+# ---------------------------------------------------------------------------------------------
+# Randomly drawn arms of each kind through `ikgen verify`'s checks (ikgen.verify: completeness
+# against the source joints, round trip through the DH forward kinematics, unreachable and
+# singular poses). Dimensions, directions and zero offsets are drawn; the layouts are the usual
+# positioner kinds of the trade (common practice).
+
+def random_arm(kind: str, rng):
+    def u(lo, hi):
+        return round(float(rng.uniform(lo, hi)), 3)
+
+    def j(t, **k):
+        k.setdefault("direction", int(rng.choice([-1, 1])))
+        if t == "r":
+            k.setdefault("offset", int(rng.integers(-4, 5)) * 15)
+        return joint(t, **k)
+
+    def wrist():
+        return [j("r", a=0, alpha=-90, d=0), j("r", a=0, alpha=90, d=0), j("r", a=0, alpha=0, d=u(.05, .15))]
+    rrp = [j("r", a=u(0, .05), alpha=-90, d=u(.2, .4)), j("r", a=0, alpha=90, d=u(0, .15)),
+           j("p", a=0, alpha=0, theta=0, limits=[u(.05, .2), u(.6, .9)])]
+    rpp = [j("r", a=0, alpha=0, d=u(.1, .3)), j("p", a=0, alpha=-90, theta=0, limits=[0, u(.4, .8)]),
+           j("p", a=0, alpha=0, theta=0, limits=[u(.05, .1), u(.4, .6)])]
+    ppp = [j("p", alpha=-90, theta=0, limits=[0, u(.5, 1)]), j("p", alpha=-90, theta=-90, limits=[0, u(.4, .8)]),
+           j("p", alpha=0, theta=0, limits=[0, u(.2, .5)])]
+    layouts = {
+        "RRR with offsets": ([j("r", a=u(0, .1), alpha=90, d=u(.2, .4)), j("r", a=u(.2, .4), alpha=0, d=u(-.1, .1)),
+                              j("r", a=u(.2, .4), alpha=0, d=0)], {"translation": [u(0, .05), 0, u(0, .05)]}),
+        "RRP": (rrp, None), "RPP": (rpp, None), "PPP": (ppp, None),
+        "RRPR": ([j("r", a=u(.2, .4), alpha=0, d=u(.3, .5)), j("r", a=u(.2, .4), alpha=180, d=0),
+                  j("p", a=0, alpha=0, theta=0, limits=[0, u(.1, .3)]), j("r", a=0, alpha=0, d=u(0, .1))], None),
+        "RRRP": ([j("r", a=u(.2, .4), alpha=0, d=u(.3, .5)), j("r", a=u(.2, .4), alpha=0, d=0),
+                  j("r", a=0, alpha=0, d=0), j("p", a=0, alpha=0, theta=0, limits=[-u(.1, .3), 0])], None),
+        "5R": ([j("r", a=0, alpha=90, d=u(.15, .3)), j("r", a=u(.2, .3), alpha=0, d=0), j("r", a=u(0, .05), alpha=90, d=0),
+                j("r", a=0, alpha=-90, d=u(.15, .3)), j("r", a=0, alpha=90, d=0)], {"translation": [0, 0, u(.05, .1)]}),
+        "RRP + wrist": (rrp + wrist(), None), "RPP + wrist": (rpp + wrist(), None), "PPP + wrist": (ppp + wrist(), None),
+    }
+    joints, tool = layouts[kind]
+    return build_arm(joints, tool=tool, name="drawn")
+
+
+KINDS = {"RRR with offsets": "point", "RRP": "point", "RPP": "point", "PPP": "point", "RRPR": "point_and_angle",
+         "RRRP": "point_and_angle", "5R": "point_and_direction", "RRP + wrist": "pose", "RPP + wrist": "pose",
+         "PPP + wrist": "pose"}
+
+
+@pytest.mark.parametrize("kind", list(KINDS))
+def test_a_randomly_drawn_arm_of_each_kind_passes_verification(kind):
+    from ikgen.verify import verify
+    arm = random_arm(kind, np.random.default_rng(sum(map(ord, kind))))      # a seed per kind
+    result = build(arm)
+    module = load_module(result.files[result.python_path], f"drawn_{sum(map(ord, kind))}")
+    assert result.derivation.target.kind == KINDS[kind]
+    outcome = verify(arm, module, samples=300)
+    assert outcome.failures == [], (kind, outcome.failures)
+    assert outcome.checked >= 290 and outcome.complete == outcome.checked
+    assert outcome.unreachable_ok == outcome.unreachable_tested == 200

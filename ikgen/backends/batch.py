@@ -14,6 +14,7 @@ from sympy.printing.numpy import NumPyPrinter
 from ..ir import Derivation
 from ..model import Arm
 from . import common
+from . import python as python_backend
 from .python import terms
 
 
@@ -42,7 +43,9 @@ def render(arm: Arm, derivation: Derivation) -> str:
         prismatic=[not j.revolute for j in arm.joints],
         branch_axes=plan.depth, axis_sizes=sizes, raw_solutions=raw,
         singular_terms=terms(plan.singular_terms, BATCH_TERMS),
-        mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else []))
+        mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else [],
+        target=common.target_plan(arm, derivation), tolerances=python_backend.tolerances("double"),
+        arm_angle_scale=repr(float(arm.angle_scale))))
 
 
 BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "double_root": "dbl{}", "root": "(root{} > 0.0)",
