@@ -605,6 +605,49 @@ def notation_rows(names: Names) -> list[dict]:
     return rows
 
 
+STRUCTURE_TEXT = {
+    "wrist centre": "The last three axes meet in one point, the wrist centre, so it depends on joints 1 to 3 "
+                    "only: position and orientation separate (Pieper, 1968). Joints 1 to 3 place the wrist "
+                    "centre; the wrist joints then make the remaining rotation.",
+    "base centre": "The first three axes meet in one point, fixed in the base, so seen from the tool the last "
+                   "three joints alone place it (Pieper, 1968, with the chain read backwards): they are solved "
+                   "first, the first three then make the remaining rotation.",
+    "wrist point on the tool axis": "The last two axes meet in a point on the directed tool axis, so that point "
+                                    "follows from the target alone; the first joints place it, the last two "
+                                    "point the tool (Pieper's decoupling, with the tool's axis as the third line).",
+    "parallel axes": "Consecutive parallel axes turn the links after them by the sum of their angles: the sum "
+                     "is solved as one unknown, then each angle.",
+}
+
+
+def structure_sentences(derivation: Derivation) -> list[str]:
+    """Why the recognised structures make the arm solvable, one sentence per strategy used."""
+    return [text for key, text in STRUCTURE_TEXT.items() if key in derivation.family]
+
+
+def target_sentences(arm: Arm, derivation: Derivation) -> list[str]:
+    """What the solver is asked for, whether declared or natural, and what it reads from a pose."""
+    from ..engine.targets import words
+    target = derivation.target
+    kind = target.kind if target is not None else "pose"
+    reads = {"pose": "The solver takes the full tool pose.",
+             "point": "The solver's natural call takes a point (inverse_point); from a full pose it reads the "
+                      "position only.",
+             "point_and_angle": "The solver's natural call takes a point and the turn about the target's axis "
+                                "(inverse_point_angle); a full pose whose tool is tilted off that axis is not "
+                                "realisable (its own status).",
+             "point_and_direction": "The solver's natural call takes a point and a unit direction "
+                                    "(inverse_point_direction); the roll about that direction follows from the "
+                                    "arm, and a full pose with another roll is not realisable (its own status)."}[kind]
+    lines = [f"Target: {words(target) if target is not None else 'the full pose of the tool'}. {reads}"]
+    slides = [j for j in arm.joints if not j.revolute]
+    if slides:
+        names = ", ".join(f"joint {j.index} '{j.name}'" for j in slides)
+        lines.append(f"Prismatic joints ({names}): their strokes define reach; a solution needing a slide "
+                     "outside its stroke is no solution, whatever the limits mode.")
+    return lines
+
+
 def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
     sheet = build_sheet(arm, derivation)
     arm_svg = figures.arm_zero_figure(arm)
@@ -623,6 +666,11 @@ def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
         "pose_svg_inline": Markup(figures.inline(pose["svg"], "pose", "every solution of the sample pose")),
         "arm_svg_file": f"{folder}_report_arm.svg", "pose_svg_file": f"{folder}_report_pose.svg",
         "arm_svg": figures.standalone(arm_svg), "pose_svg": figures.standalone(pose["svg"]),
+        "structure_sentences": structure_sentences(derivation),
+        "target_sentences": target_sentences(arm, derivation),
+        "target_short": (derivation.target.kind.replace("_", " ") + (" (declared)" if derivation.target.declared else
+                                                                     " (natural for the arm)")
+                         if derivation.target is not None else "pose"),
         "guard_tolerance": threshold_text(2 * GUARD_TOLERANCE),
         "guard_tolerance_latex": threshold_latex(2 * GUARD_TOLERANCE),
     }
