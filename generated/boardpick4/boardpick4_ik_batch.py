@@ -19,6 +19,11 @@ API:
         len(LABEL_NAMES)) int8, +1 for the first value of LABEL_VALUES[i], -1 for the second (0 where
         not valid); singular: bool; conditioning: (N, RAW_SOLUTIONS, len(CONDITION_NAMES)). The valid entries of row i, in order, are the per-pose solver's raw
         solutions of pose i (before joint limits).
+    inverse_batch_point_angle(points, angles, current=None, conditioning=True): the same for (N, 3)
+        points and (N,) turns (deg unless the arm's angle unit is rad) about TARGET_AXIS from the
+        tool rotation at the zero reading (TARGET is "point_and_angle"). inverse_batch reads a
+        pose's position and its turn about TARGET_AXIS; a pose tilted off that axis by more than
+        TILT_TOLERANCE (rad) gets no valid solution (the per-pose solvers say "not_realisable").
 
 Safety: check every solution in simulation before moving a real arm. Joint limits, collisions
 and cell safety are the integrator's job under the applicable machine-safety standards.
@@ -39,6 +44,13 @@ _SIGNS = numpy.array([1.0, -1.0])
 _ZERO = numpy.array([0.0, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 1.0, 0.017453292519943295, ])
 
+TARGET = "point_and_angle"  # what the arm is asked for: the position of the tool point and its turn about the world axis (0, 0, 1)
+TARGET_AXIS = numpy.array([0.0, 0.0, 1.0])  # world direction every joint axis is parallel to
+TILT_TOLERANCE = 1e-06  # rad
+_REFERENCE = numpy.array([[1.0, 0.0, 0.0], [0.0, -1.0, -1.2246467991473532e-16], [0.0, 1.2246467991473532e-16, -1.0], ])  # tool rotation at the zero reading
+_E1 = numpy.array([1.0, 0.0, 0.0])
+_E2 = numpy.array([0.0, 1.0, 0.0])
+
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
 def inverse_batch(poses, current=None, conditioning=True):
@@ -53,6 +65,7 @@ def inverse_batch(poses, current=None, conditioning=True):
     if current is not None and numpy.shape(current) != (n, JOINT_COUNT):
         raise ValueError(f"current must have shape ({n}, {JOINT_COUNT}) (one reading per joint and pose), "
                          f"not {numpy.shape(current)}")
+    poses, realisable = _project(poses)
     joints = numpy.empty((n, RAW_SOLUTIONS, JOINT_COUNT))
     valid = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
     labels = numpy.zeros((n, RAW_SOLUTIONS, len(LABEL_NAMES)), dtype=numpy.int8)
@@ -72,9 +85,52 @@ def inverse_batch(poses, current=None, conditioning=True):
                      singular[start:stop].reshape((m,) + axes),
                      conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
                      if want_conditioning else None)
+    valid &= realisable[:, None]
     joints[~valid] = numpy.nan
     labels[~valid] = 0
     return joints, valid, labels, singular, conditioning
+
+def _turned(c, s):
+    """(N, 3, 3): Rot(TARGET_AXIS, phi) times the tool rotation at the zero reading."""
+    a = TARGET_AXIS
+    k = 1.0 - c
+    rot = numpy.empty(c.shape + (3, 3))
+    rot[:, 0, 0] = c + k * a[0] * a[0]
+    rot[:, 0, 1] = k * a[0] * a[1] - s * a[2]
+    rot[:, 0, 2] = k * a[0] * a[2] + s * a[1]
+    rot[:, 1, 0] = k * a[1] * a[0] + s * a[2]
+    rot[:, 1, 1] = c + k * a[1] * a[1]
+    rot[:, 1, 2] = k * a[1] * a[2] - s * a[0]
+    rot[:, 2, 0] = k * a[2] * a[0] - s * a[1]
+    rot[:, 2, 1] = k * a[2] * a[1] + s * a[0]
+    rot[:, 2, 2] = c + k * a[2] * a[2]
+    return rot @ _REFERENCE
+
+def _project(poses):
+    """(poses turned exactly about TARGET_AXIS, realisable mask): as the per-pose solver's _project."""
+    rel = poses[:, :3, :3] @ _REFERENCE.T
+    tilt = numpy.linalg.norm(rel @ TARGET_AXIS - TARGET_AXIS, axis=1)
+    image = rel @ _E1
+    c, s = image @ _E1, image @ _E2
+    norm = numpy.hypot(c, s)
+    ok = (tilt <= TILT_TOLERANCE) & (norm > 0.0)
+    safe = numpy.where(norm > 0.0, norm, 1.0)
+    projected = numpy.array(poses[:, :3, :], dtype=float)
+    projected[:, :, :3] = _turned(c / safe, s / safe)
+    return projected, ok
+
+def inverse_batch_point_angle(points, angles, current=None, conditioning=True):
+    """Every solution that puts the tool point at each of N points with the tool turned by
+    ``angles`` about TARGET_AXIS from its rotation at the zero reading."""
+    points = numpy.asarray(points, dtype=float)
+    angles = numpy.asarray(angles, dtype=float)
+    if points.ndim != 2 or points.shape[1] != 3 or angles.shape != (points.shape[0],):
+        raise ValueError(f"points must have shape (N, 3) and angles (N,), not {points.shape} and {angles.shape}")
+    phi = angles * 0.017453292519943295
+    poses = numpy.empty((points.shape[0], 3, 4))
+    poses[:, :, :3] = _turned(numpy.cos(phi), numpy.sin(phi))
+    poses[:, :, 3] = points
+    return inverse_batch(poses, current, conditioning)
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""

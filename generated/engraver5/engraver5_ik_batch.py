@@ -19,6 +19,11 @@ API:
         len(LABEL_NAMES)) int8, +1 for the first value of LABEL_VALUES[i], -1 for the second (0 where
         not valid); singular: bool; conditioning: (N, RAW_SOLUTIONS, len(CONDITION_NAMES)). The valid entries of row i, in order, are the per-pose solver's raw
         solutions of pose i (before joint limits).
+    inverse_batch_point_direction(points, directions, current=None, conditioning=True): the same
+        for (N, 3) points and (N, 3) unit directions of the tool's TOOL_AXIS (TARGET is
+        "point_and_direction"); a direction off unit length by more than UNIT_TOLERANCE gets no
+        valid solution. inverse_batch reads a pose's position and TOOL_AXIS column only: it does
+        not check the roll (the per-pose solvers do, status "not_realisable").
 
 Safety: check every solution in simulation before moving a real arm. Joint limits, collisions
 and cell safety are the integrator's job under the applicable machine-safety standards.
@@ -38,6 +43,10 @@ _TWO_PI = 6.283185307179586
 _SIGNS = numpy.array([1.0, -1.0])
 _ZERO = numpy.array([0.0, 1.5707963267948966, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, ])
+
+TARGET = "point_and_direction"  # what the arm is asked for: the position of the tool point and the direction of the tool's z axis (natural for this arm; no [target] in the file)
+TOOL_AXIS = "z"  # the tool axis the direction is
+UNIT_TOLERANCE = 1e-06
 
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
@@ -75,6 +84,20 @@ def inverse_batch(poses, current=None, conditioning=True):
     joints[~valid] = numpy.nan
     labels[~valid] = 0
     return joints, valid, labels, singular, conditioning
+
+def inverse_batch_point_direction(points, directions, current=None, conditioning=True):
+    """Every solution that puts the tool point at each of N points with the tool's TOOL_AXIS
+    along ``directions`` (unit vectors, world frame); the roll is the arm's own."""
+    points = numpy.asarray(points, dtype=float)
+    directions = numpy.asarray(directions, dtype=float)
+    if points.ndim != 2 or points.shape[1] != 3 or directions.shape != points.shape:
+        raise ValueError(f"points and directions must have shape (N, 3), not {points.shape} and {directions.shape}")
+    poses = numpy.zeros((points.shape[0], 3, 4))
+    poses[:, :, 2] = directions
+    poses[:, :, 3] = points
+    unit = numpy.abs(numpy.linalg.norm(directions, axis=1) - 1.0) <= UNIT_TOLERANCE
+    poses[~unit] = numpy.nan
+    return inverse_batch(poses, current, conditioning)
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""

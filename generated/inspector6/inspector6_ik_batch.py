@@ -39,6 +39,8 @@ _SIGNS = numpy.array([1.0, -1.0])
 _ZERO = numpy.array([0.0, 1.5707963267948966, 1.7889624832941877, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, -0.017453292519943295, 0.017453292519943295, 0.017453292519943295, -0.017453292519943295, 0.017453292519943295, ])
 
+TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
+
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
 def inverse_batch(poses, current=None, conditioning=True):

@@ -19,6 +19,8 @@ API:
         len(LABEL_NAMES)) int8, +1 for the first value of LABEL_VALUES[i], -1 for the second (0 where
         not valid); singular: bool; conditioning: (N, RAW_SOLUTIONS, len(CONDITION_NAMES)). The valid entries of row i, in order, are the per-pose solver's raw
         solutions of pose i (before joint limits).
+    inverse_batch_point(points, current=None, conditioning=True): the same for (N, 3) points; a
+        pose's rotation is not read (TARGET is "point").
 
 Safety: check every solution in simulation before moving a real arm. Joint limits, collisions
 and cell safety are the integrator's job under the applicable machine-safety standards.
@@ -38,6 +40,8 @@ _TWO_PI = 6.283185307179586
 _SIGNS = numpy.array([1.0, -1.0])
 _ZERO = numpy.array([0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 1.0, ])
+
+TARGET = "point"  # what the arm is asked for: the position of the tool point (natural for this arm; no [target] in the file)
 
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
@@ -75,6 +79,16 @@ def inverse_batch(poses, current=None, conditioning=True):
     joints[~valid] = numpy.nan
     labels[~valid] = 0
     return joints, valid, labels, singular, conditioning
+
+def inverse_batch_point(points, current=None, conditioning=True):
+    """Every solution that puts the tool point at each of N points (world frame)."""
+    points = numpy.asarray(points, dtype=float)
+    if points.ndim != 2 or points.shape[1] != 3:
+        raise ValueError(f"points must have shape (N, 3), not {points.shape}")
+    poses = numpy.zeros((points.shape[0], 3, 4))
+    poses[:, 0, 0] = poses[:, 1, 1] = poses[:, 2, 2] = 1.0
+    poses[:, :, 3] = points
+    return inverse_batch(poses, current, conditioning)
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
