@@ -436,7 +436,7 @@ def test_verify_tests_wrist_singular_poses(demos):
     """ikgen.verify's singular check reaches the wrist kind too (it once missed roots that fall
     exactly on its search grid, as joint 5's DH zero does for symmetric limits)."""
     result = verification(demos("benchtop6"))
-    kind = "wrist axes 4 and 6 aligned"
+    kind = "wrist axis 4 and axis 6 aligned"
     assert result.singular_tested[kind] > 0 and result.singular_ok[kind] == result.singular_tested[kind]
 
 

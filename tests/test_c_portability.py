@@ -97,13 +97,18 @@ def compile_ok(command: list, cwd: Path) -> subprocess.CompletedProcess:
 
 def readings_for(header: Path) -> str:
     """Generic readings (away from the zero reading, where wrists usually align): 0.3 to 0.8 of a
-    radian per joint, in the arm's angle unit, taken with the joint count from the constants of
+    radian per joint, in the arm's angle unit (the middle of the limits where that lies outside
+    them, as for a slide's stroke), taken with the joint count from the constants of
     the arm's committed Python solver (ANGLE_UNIT, JOINT_COUNT; docs/solvers.md)."""
     stem = header.parent.name
     python = load_module((header.parent / f"{stem}_ik.py").read_text(encoding="utf-8"), f"{stem}_constants")
     per_radian = 180.0 / math.pi if python.ANGLE_UNIT == "deg" else 1.0
     suffix = "f" if header.stem.endswith("_f32") else ""
-    return ",".join(f"{(0.3 + 0.1 * j) * per_radian!r}{suffix}" for j in range(python.JOINT_COUNT))
+    values = []
+    for j, (low, high) in enumerate(python.JOINT_LIMITS):
+        value = (0.3 + 0.1 * j) * per_radian
+        values.append(value if low < value < high else 0.5 * (low + high))    # a slide: mid-stroke
+    return ",".join(f"{v!r}{suffix}" for v in values)
 
 
 def test_headers_found():

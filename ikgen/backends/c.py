@@ -138,16 +138,33 @@ def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, c
     n = names(arm, scalar)
     scale = arm.reach_scale()
     double = scalar.name == "double"
+    angle_tolerance = (1e-6 if double else 2e-2) * (180 / np.pi if arm.angle_unit == "deg" else 1.0)
+    slide_tolerance = float(f"{(1e-6 if double else 1e-3) * scale:.3g}")
     context = dict(arm=arm, names=n, real=scalar.name, num=printer.number, fn=scalar.fn,
                    comment=common.comment_text, vectors=vectors, generator=common.GENERATOR,
-                   turns=[360.0 if arm.angle_unit == "deg" else 2 * np.pi if j.revolute else 0.0
+                   turns=[(360.0 if arm.angle_unit == "deg" else 2 * np.pi) if j.revolute else 0.0
                           for j in arm.joints],
                    # float32 carries about 7 significant digits (IEEE 754 binary32)
-                   joint_tolerance=(1e-6 if double else 2e-2) * (180 / np.pi if arm.angle_unit == "deg" else 1.0),
+                   joint_tolerances=[angle_tolerance if j.revolute else slide_tolerance for j in arm.joints],
+                   slide_tolerance=slide_tolerance if any(not j.revolute for j in arm.joints) else 0,
+                   angle_tolerance=angle_tolerance,
+                   checked=checked_entries(derivation), target_words=common.target_plan(arm, derivation).words,
                    position_tolerance=float(f"{(1e-9 if double else 1e-4) * scale:.3g}"),
                    rotation_tolerance=1e-9 if double else 1e-4)
     text = common.environment().get_template("c_selftest.c.j2").render(**context)
     return f"{n['prefix']}_selftest.c", text
+
+
+def checked_entries(derivation: Derivation) -> list[int]:
+    """Indices (row-major 3x4) of the pose entries a solution must reproduce: what the target fixes."""
+    kind = derivation.target.kind if derivation.target is not None else "pose"
+    position = [3, 7, 11]
+    if kind == "point":
+        return position
+    if kind == "point_and_direction":
+        column = "xyz".index(derivation.target.tool_axis)
+        return sorted(position + [column, column + 4, column + 8])
+    return list(range(12))
 
 
 def plan_symbols(plan: common.Plan) -> set:
