@@ -2,7 +2,7 @@
 
 When the last ``CosSinEquation`` has ``b = 0`` (roots th and -th) or ``a = 0`` (th and pi - th)
 and every later step maps its (cos, sin) to itself or to its negative under that change (checked
-symbolically), the second solution is written down from the first with no atan2 at all: for the
+symbolically; a named intermediate may change sign too), the second solution is written down from the first with no atan2 at all: for the
 usual orthogonal wrist, (th4 + pi, -th5, th6 + pi).
 """
 
@@ -36,8 +36,14 @@ def attach_mirror(steps: list, labels: list[Label], circles) -> list:
     parities = []
     for later in steps[index + 1:]:
         if isinstance(later, Compute):
-            if any(e.has(*mapping) for e in later.exprs):
-                return steps
+            # a named intermediate that changes sign under the mapping is mapped to its negative
+            for name, expr in zip(later.names, later.exprs):
+                mirrored = expr.xreplace(mapping)
+                if mirrored == expr or same(mirrored, expr):
+                    continue
+                if not same(mirrored, -expr):
+                    return steps
+                mapping = {**mapping, name: -name}
             continue
         if not isinstance(later, LinearPair):
             return steps
