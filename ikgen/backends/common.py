@@ -445,7 +445,62 @@ def lower_now(derivation: Derivation) -> Plan:
     plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
                 derivation.max_solutions, depth, branch_joints, mirror)
     drop_unused(plan)
+    hoist(plan)
     return plan
+
+
+def opens_loop(block: Block) -> bool:
+    """Whether the block is a branch point whose roots are looped over (its unknown is known only
+    one level deeper)."""
+    return block.kind in ("poly", "quad") or (block.kind == "cossin" and not block.mirrored)
+
+
+def hoist(plan: Plan) -> None:
+    """Loop-invariant hoisting: every named intermediate is computed at the outermost branch
+    level where all its inputs are known (an intermediate that depends only on joint 1 is not
+    recomputed for each elbow root). Levels: pose symbols and constants 0; a block's temps its
+    depth; a loop-opening block's unknown one deeper. A hoisted assignment moves into a compute
+    block placed just before the loop that level opens, in its original order."""
+    level: dict = {}
+    moved: dict[int, list[tuple[str, Assignment]]] = {}
+
+    def level_of(expr) -> int:
+        return max((level.get(symbol, 0) for symbol in sp.sympify(expr).free_symbols), default=0)
+    for block in plan.blocks:
+        if block.kind == "compute":
+            kept = []
+            for assignment in block.temps:
+                target_level = level_of(assignment.expr)
+                if target_level < block.depth:
+                    moved.setdefault(target_level, []).append((block.comment, assignment))
+                else:
+                    kept.append(assignment)
+                    target_level = block.depth
+                level[assignment.target] = target_level
+            block.temps = kept
+            continue
+        for assignment in block.temps:
+            level[assignment.target] = block.depth
+        for form in block.forms:
+            for assignment in form.temps:
+                level[assignment.target] = block.depth
+        if block.key:
+            inner = block.depth + (1 if opens_loop(block) else 0)
+            for symbol in (angle_symbol(block.key), cos_symbol(block.key), sin_symbol(block.key),
+                           length_symbol(block.key)):
+                level[symbol] = inner
+    if not moved:
+        return
+    blocks = []
+    for block in plan.blocks:
+        if opens_loop(block) and block.depth in moved:
+            comments = list(dict.fromkeys(comment for comment, _ in moved[block.depth]))
+            blocks.append(Block("compute", block.depth, "; ".join(comments) + " (computed here, "
+                                "before the loops: no later unknown enters them)", temps=[a for _, a in moved.pop(block.depth)]))
+        if block.kind != "compute" or block.temps:
+            blocks.append(block)
+    assert not moved, "a hoisted intermediate found no loop to move before"
+    plan.blocks = blocks
 
 
 def _named(block: Block, expr, name: str) -> sp.Symbol:
