@@ -89,6 +89,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         # float rounding (about 6e-8 relative) needs a wider clamp band than double
         guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5,
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
+        within_checks=[k for k, t in enumerate(common.joint_turns(arm))
+                       if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)],
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),
