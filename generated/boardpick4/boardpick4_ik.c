@@ -24,16 +24,6 @@ static const double HIGH[BOARDPICK4_IK_JOINTS] = { 140.00000027999999, 150.00000
 static const double TURN[BOARDPICK4_IK_JOINTS] = { 360.0, 360.0, 0.0, 360.0 };
 static const int MULTI[BOARDPICK4_IK_JOINTS] = { 0, 0, 0, 1 };
 
-static int within(const double q[BOARDPICK4_IK_JOINTS])
-{
-    for (int j = 0; j < BOARDPICK4_IK_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void boardpick4_ik_forward(const double joints[BOARDPICK4_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -349,7 +339,9 @@ static int closed_form(const double pose[16], const double *current,
             out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
             out->singular = free3 || root2 == 0.0 || free1;
             out->conditioning[0] = root2 * 5.594405594405594e-06;
-            out->within_limits = within(out->joints);
+            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+             * readings are in one turn here), tested without branches */
+            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
         }
 
     }
@@ -470,7 +462,10 @@ static int solve(const double pose_in[16], const double *current, boardpick4_ik_
                  boardpick4_ik_solution solutions[BOARDPICK4_IK_MAX_SOLUTIONS],
                  boardpick4_ik_status *status, int check)
 {
-    boardpick4_ik_solution raw[BOARDPICK4_IK_CLOSED_FORM];
+    boardpick4_ik_solution staged[BOARDPICK4_IK_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    boardpick4_ik_solution *raw = limits == BOARDPICK4_IK_LIMITS_IGNORE ? solutions : staged;
     boardpick4_ik_status closed_status;
     double pose[16];
     const double finite = pose_in[0] + pose_in[1] + pose_in[2] + pose_in[3] + pose_in[4] + pose_in[5]
@@ -487,9 +482,7 @@ static int solve(const double pose_in[16], const double *current, boardpick4_ik_
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == BOARDPICK4_IK_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], BOARDPICK4_IK_MAX_SOLUTIONS - count);

@@ -24,16 +24,6 @@ static const float HIGH[BOARDPICK4_IK_F32_JOINTS] = { 140.0f, 150.0f, 180.0f, 36
 static const float TURN[BOARDPICK4_IK_F32_JOINTS] = { 360.0f, 360.0f, 0.0f, 360.0f };
 static const int MULTI[BOARDPICK4_IK_F32_JOINTS] = { 0, 0, 0, 1 };
 
-static int within(const float q[BOARDPICK4_IK_F32_JOINTS])
-{
-    for (int j = 0; j < BOARDPICK4_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void boardpick4_ik_f32_forward(const float joints[BOARDPICK4_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -349,7 +339,9 @@ static int closed_form(const float pose[16], const float *current,
             out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
             out->singular = free3 || root2 == 0.0f || free1;
             out->conditioning[0] = root2 * 5.59440559e-06f;
-            out->within_limits = within(out->joints);
+            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+             * readings are in one turn here), tested without branches */
+            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
         }
 
     }
@@ -470,7 +462,10 @@ static int solve(const float pose_in[16], const float *current, boardpick4_ik_f3
                  boardpick4_ik_f32_solution solutions[BOARDPICK4_IK_F32_MAX_SOLUTIONS],
                  boardpick4_ik_f32_status *status, int check)
 {
-    boardpick4_ik_f32_solution raw[BOARDPICK4_IK_F32_CLOSED_FORM];
+    boardpick4_ik_f32_solution staged[BOARDPICK4_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    boardpick4_ik_f32_solution *raw = limits == BOARDPICK4_IK_F32_LIMITS_IGNORE ? solutions : staged;
     boardpick4_ik_f32_status closed_status;
     float pose[16];
     const float finite = pose_in[0] + pose_in[1] + pose_in[2] + pose_in[3] + pose_in[4] + pose_in[5]
@@ -487,9 +482,7 @@ static int solve(const float pose_in[16], const float *current, boardpick4_ik_f3
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == BOARDPICK4_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], BOARDPICK4_IK_F32_MAX_SOLUTIONS - count);

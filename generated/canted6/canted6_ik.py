@@ -615,73 +615,94 @@ def _closed_form(pose, current):
         if er5 + 2e-09 < 0.0:
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
-        for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
-            cn5 = ec5
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+        # the second root follows from this one by symmetry (emitted with the solution below)
+        sg5 = 1.0
+        cn5 = ec5
+        sn5 = root5*sg5
+        th5 = atan2(sn5, cn5)
+        c5 = cn5
+        s5 = sn5
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
+        # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free4 = True
 
-            dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
-                c4 = (-g36_13*s5) / dt4
-                s4 = (-g36_23*s5) / dt4
-                free4 = False
-                wk4 = 1e-08
+        dt4 = -s5*s5
+        if abs(dt4) > 1e-20:
+            c4 = (-g36_13*s5) / dt4
+            s4 = (-g36_23*s5) / dt4
+            free4 = False
+            wk4 = 1e-08
 
-            if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-                if abs(dt4) > wk4:
-                    continue
-                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
-                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
-                c4 = cos(th4)
-                s4 = sin(th4)
-            else:
-                th4 = atan2(s4, c4)
-
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
-            g46_21 = -g36_31
-            g46_22 = -g36_32
-
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
-
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
-
-            dt6 = 1
-            c6 = (g56_11) / dt6
-            s6 = (-g56_12) / dt6
-            free6 = False
-
-            if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+        if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
+            if abs(dt4) > wk4:
                 continue
-            th6 = atan2(s6, c6)
+            free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free4:
+            th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+            c4 = cos(th4)
+            s4 = sin(th4)
+        else:
+            th4 = atan2(s4, c4)
 
-            # Joint readings, configuration labels, singular flag.
+        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+        g46_11 = c4*g36_11 + g36_21*s4
+        g46_12 = c4*g36_12 + g36_22*s4
+        g46_21 = -g36_31
+        g46_22 = -g36_32
 
-            lm0 = v1x + 50
-            lm1 = 72746.13391789285*c3 - 5196.152422706632*s3
-            lm2 = s5
-            singular = free3 or dbl3 or free1 or free2 or root5 == 0.0 or free4
-            conditioning = (cnd3, root5 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
+        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+        g56_11 = c5*g46_11 + g46_21*s5
+        g56_12 = c5*g46_12 + g46_22*s5
+
+        # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free6 = True
+
+        dt6 = 1
+        c6 = (g56_11) / dt6
+        s6 = (-g56_12) / dt6
+        free6 = False
+
+        if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+            continue
+        th6 = atan2(s6, c6)
+
+        # Joint readings, configuration labels, singular flag.
+
+        lm0 = v1x + 50
+        lm1 = 72746.13391789285*c3 - 5196.152422706632*s3
+        lm2 = s5
+        singular = free3 or dbl3 or free1 or free2 or root5 == 0.0 or free4
+        conditioning = (cnd3, root5 * 1.0, )
+        u1 = th1
+        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u2 = th2
+        u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+        u3 = th3
+        u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+        u4 = th4
+        u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+        u5 = th5
+        u6 = th6
+        q = (
+            u1 * 57.29577951308232,
+            u2 * 57.29577951308232,
+            u3 * 57.29577951308232,
+            u4 * 57.29577951308232,
+            u5 * 57.29577951308232,
+            u6 * 57.29577951308232,
+        )
+        solutions.append(_new(Solution, (q, (
+            "reach_forward" if lm0 >= 0.0 else "reach_backward",
+            "elbow_up" if lm1 >= 0.0 else "elbow_down",
+            "bend_positive" if lm2 >= 0.0 else "bend_negative",
+        ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -150.0000003 <= q[1] <= 150.0000003 and -160.00000032 <= q[2] <= 160.00000032 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
+        if root5 > 0.0 and not free4:
+            u4 = th4 + _PI
             u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-            u5 = th5
-            u6 = th6
+            u5 = -th5
+            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u6 = th6 + _PI
+            u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
@@ -693,6 +714,6 @@ def _closed_form(pose, current):
             solutions.append(_new(Solution, (q, (
                 "reach_forward" if lm0 >= 0.0 else "reach_backward",
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
-                "bend_positive" if lm2 >= 0.0 else "bend_negative",
+                "bend_negative" if lm2 >= 0.0 else "bend_positive",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -150.0000003 <= q[1] <= 150.0000003 and -160.00000032 <= q[2] <= 160.00000032 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
     return solutions

@@ -183,7 +183,7 @@ def inverse_batch(poses, current=None, conditioning=True):
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 2
+    shape = (n,) + (1,) * 1
 
     def entry(row, col):
         return poses[:, row, col].reshape(shape)
@@ -239,9 +239,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         free3 = (ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 30471193600000000 + 448363685160000000000) <= 100.0
         th3, c3, s3, found3, dbl3, cnd3 = _circle_roots_axis(
-            ek0_3, ek1_3, ek2_3, 174560000, 21174600000, 1e-09, 1, 3)
+            ek0_3, ek1_3, ek2_3, 174560000, 21174600000, 1e-09, 1, 2)
         if numpy.any(free3):
-            first = numpy.arange(4).reshape(1, 4, 1) == 0
+            first = numpy.arange(4).reshape(1, 4) == 0
             th3 = numpy.where(free3, (hint[2]), th3)
             c3 = numpy.where(free3, numpy.cos(th3), c3)
             s3 = numpy.where(free3, numpy.sin(th3), s3)
@@ -438,8 +438,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = _SIGNS.reshape(1, 1, 2)
-        valid = valid & ~((sg5 < 0.0) & ((root5 == 0.0)))
+        sg5 = 1.0
         cn5 = ec5
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
@@ -506,17 +505,43 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u5 = th5
         u6 = th6
 
-        out_joints[..., 0] = u1 * 57.29577951308232
-        out_joints[..., 1] = u2 * 57.29577951308232
-        out_joints[..., 2] = u3 * 57.29577951308232
-        out_joints[..., 3] = u4 * 57.29577951308232
-        out_joints[..., 4] = u5 * 57.29577951308232
-        out_joints[..., 5] = u6 * 57.29577951308232
-        out_valid[...] = valid
-        out_labels[..., 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 2] = numpy.where(lm2 >= 0.0, 1, -1)
-        out_singular[...] = free3 | dbl3 | free1 | free2 | (root5 == 0.0) | free4
+        out_joints[..., 0, 0] = u1 * 57.29577951308232
+        out_joints[..., 0, 1] = u2 * 57.29577951308232
+        out_joints[..., 0, 2] = u3 * 57.29577951308232
+        out_joints[..., 0, 3] = u4 * 57.29577951308232
+        out_joints[..., 0, 4] = u5 * 57.29577951308232
+        out_joints[..., 0, 5] = u6 * 57.29577951308232
+        out_valid[..., 0] = valid
+        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 0, 2] = numpy.where(lm2 >= 0.0, 1, -1)
+        out_singular[..., 0] = free3 | dbl3 | free1 | free2 | (root5 == 0.0) | free4
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cnd3
-            out_conditioning[..., 1] = cond5
+            out_conditioning[..., 0, 0] = cnd3
+            out_conditioning[..., 0, 1] = cond5
+            out_conditioning[..., 1, :] = out_conditioning[..., 0, :]
+        # the mirrored solution, in the last branch axis
+        out_valid[..., 1] = valid & (root5 > 0.0) & ~free4
+        u1 = th1
+        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u2 = th2
+        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u3 = th3
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u4 = th4 + _PI
+        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u5 = -th5
+        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u6 = th6 + _PI
+        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+
+        out_joints[..., 1, 0] = out_joints[..., 0, 0]
+        out_joints[..., 1, 1] = out_joints[..., 0, 1]
+        out_joints[..., 1, 2] = out_joints[..., 0, 2]
+        out_joints[..., 1, 3] = u4 * 57.29577951308232
+        out_joints[..., 1, 4] = u5 * 57.29577951308232
+        out_joints[..., 1, 5] = u6 * 57.29577951308232
+        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 1, 2] = numpy.where(lm2 >= 0.0, -1, 1)
+        out_singular[..., 1] = out_singular[..., 0]

@@ -227,16 +227,6 @@ static const float HIGH[CANTED6_IK_F32_JOINTS] = { 170.0f, 150.0f, 160.0f, 200.0
 static const float TURN[CANTED6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[CANTED6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
-static int within(const float q[CANTED6_IK_F32_JOINTS])
-{
-    for (int j = 0; j < CANTED6_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void canted6_ik_f32_forward(const float joints[CANTED6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -605,75 +595,101 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
-        const int n5 = (root5 == 0.0f) ? 1 : 2;
-        for (int k5 = 0; k5 < n5; ++k5) {
-            const float sg5 = k5 ? -1.0f : 1.0f;
-            float th5, c5, s5;
-            const float cn5 = ec5;
-            const float sn5 = root5*sg5;
-            th5 = atan2f(sn5, cn5);
-            c5 = cn5;
-            s5 = sn5;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        const float sg5 = 1.0f;
+        float th5, c5, s5;
+        const float cn5 = ec5;
+        const float sn5 = root5*sg5;
+        th5 = atan2f(sn5, cn5);
+        c5 = cn5;
+        s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
-            int free4 = 1;
-            {
+        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+        int free4 = 1;
+        {
 
-                dt4 = -s5*s5;
-                if (fabsf(dt4) > 1e-20f) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g36_23*s5) / dt4;
-                    free4 = 0;
-                    wk4 = 1e-08f;
-                }
+            dt4 = -s5*s5;
+            if (fabsf(dt4) > 1e-20f) {
+                c4 = (-g36_13*s5) / dt4;
+                s4 = (-g36_23*s5) / dt4;
+                free4 = 0;
+                wk4 = 1e-08f;
             }
-            if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
-                if (fabsf(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free4) {
-                th4 = (0.0f + 0.0174532925f * (current ? current[3] : 0.0f));
-                c4 = cosf(th4);
-                s4 = sinf(th4);
-            } else {
-                th4 = atan2f(s4, c4);
-            }
-
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g46_11 = c4*g36_11 + g36_21*s4;
-            const float g46_12 = c4*g36_12 + g36_22*s4;
-            const float g46_21 = -g36_31;
-            const float g46_22 = -g36_32;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 + g46_21*s5;
-            const float g56_12 = c5*g46_12 + g46_22*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
-            int free6 = 1;
-            {
-
-                dt6 = 1.0f;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
-                free6 = 0;
-            }
-            (void)free6;
-            (void)wk6;
-            if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+        }
+        if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+            if (fabsf(dt4) > wk4) {
                 continue;
             }
-            th6 = atan2f(s6, c6);
+            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free4) {
+            th4 = (0.0f + 0.0174532925f * (current ? current[3] : 0.0f));
+            c4 = cosf(th4);
+            s4 = sinf(th4);
+        } else {
+            th4 = atan2f(s4, c4);
+        }
 
-            /* joint readings, configuration labels, singular flag */
+        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+        const float g46_11 = c4*g36_11 + g36_21*s4;
+        const float g46_12 = c4*g36_12 + g36_22*s4;
+        const float g46_21 = -g36_31;
+        const float g46_22 = -g36_32;
 
-            const float lm0 = v1x + 50.0f;
-            const float lm1 = 72746.1339f*c3 - 5196.15242f*s3;
-            const float lm2 = s5;
+        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+        const float g56_11 = c5*g46_11 + g46_21*s5;
+        const float g56_12 = c5*g46_12 + g46_22*s5;
+
+        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+        int free6 = 1;
+        {
+
+            dt6 = 1.0f;
+            c6 = (g56_11) / dt6;
+            s6 = (-g56_12) / dt6;
+            free6 = 0;
+        }
+        (void)free6;
+        (void)wk6;
+        if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+            continue;
+        }
+        th6 = atan2f(s6, c6);
+
+        /* joint readings, configuration labels, singular flag */
+
+        const float lm0 = v1x + 50.0f;
+        const float lm1 = 72746.1339f*c3 - 5196.15242f*s3;
+        const float lm2 = s5;
+        if (count < CANTED6_IK_F32_CLOSED_FORM) {
+            canted6_ik_f32_solution *out = &solutions[count++];
+            float u1 = th1;
+            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            out->joints[0] = u1 * 57.2957795f;
+            float u2 = th2;
+            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+            out->joints[1] = u2 * 57.2957795f;
+            float u3 = th3;
+            u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+            out->joints[2] = u3 * 57.2957795f;
+            float u4 = th4;
+            u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+            out->joints[3] = u4 * 57.2957795f;
+            out->joints[4] = th5 * 57.2957795f;
+            out->joints[5] = th6 * 57.2957795f;
+            out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+            out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
+            out->conditioning[0] = cnd3;
+            out->conditioning[1] = root5 * 1.0f;
+            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+             * readings are in one turn here), tested without branches */
+            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+        }
+        if (root5 > 0.0f && !free4) {
             if (count < CANTED6_IK_F32_CLOSED_FORM) {
                 canted6_ik_f32_solution *out = &solutions[count++];
                 float u1 = th1;
@@ -685,21 +701,27 @@ static int closed_form(const float pose[16], const float *current,
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
                 out->joints[2] = u3 * 57.2957795f;
-                float u4 = th4;
+                float u4 = th4 + 3.14159265f;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                 out->joints[3] = u4 * 57.2957795f;
-                out->joints[4] = th5 * 57.2957795f;
-                out->joints[5] = th6 * 57.2957795f;
+                float u5 = -th5;
+                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                out->joints[4] = u5 * 57.2957795f;
+                float u6 = th6 + 3.14159265f;
+                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                out->joints[5] = u6 * 57.2957795f;
                 out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
                 out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
                 out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
                 out->conditioning[0] = cnd3;
                 out->conditioning[1] = root5 * 1.0f;
-                out->within_limits = within(out->joints);
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
             }
-
         }
+
     }
     if (status) *status = count ? CANTED6_IK_F32_OK : CANTED6_IK_F32_UNREACHABLE;
     return count;
@@ -767,16 +789,17 @@ static int solve(const float pose_in[16], const float *current, canted6_ik_f32_l
                  canted6_ik_f32_solution solutions[CANTED6_IK_F32_MAX_SOLUTIONS],
                  canted6_ik_f32_status *status, int check)
 {
-    canted6_ik_f32_solution raw[CANTED6_IK_F32_CLOSED_FORM];
+    canted6_ik_f32_solution staged[CANTED6_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    canted6_ik_f32_solution *raw = limits == CANTED6_IK_F32_LIMITS_IGNORE ? solutions : staged;
     canted6_ik_f32_status closed_status;
     const float *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == CANTED6_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], CANTED6_IK_F32_MAX_SOLUTIONS - count);

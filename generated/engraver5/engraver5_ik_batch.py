@@ -132,6 +132,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = py - 60*r23
         wz = pz - 60*r33
 
+        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        q1y = pz - 160
+        v1y = wz - 160
+        n1y = r33
+
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t2_0 = wx*wx + wy*wy + wz*wz - 320*wz
         ec3 = 50900 - t2_0
@@ -172,12 +177,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
-        q1y = pz - 160
         q1z = -c1*py + px*s1
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
-        v1y = wz - 160
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
@@ -294,7 +297,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one)
         n1x = c1*r13 + r23*s1
-        n1y = r33
         n1z = -c1*r23 + r13*s1
 
         # A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one)

@@ -24,16 +24,6 @@ static const float HIGH[ENGRAVER5_IK_F32_JOINTS] = { 170.0f, 100.0f, 135.0f, 180
 static const float TURN[ENGRAVER5_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[ENGRAVER5_IK_F32_JOINTS] = { 0, 0, 0, 0, 0 };
 
-static int within(const float q[ENGRAVER5_IK_F32_JOINTS])
-{
-    for (int j = 0; j < ENGRAVER5_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void engraver5_ik_f32_forward(const float joints[ENGRAVER5_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -118,6 +108,11 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = py - 60.0f*r23;
     const float wz = pz - 60.0f*r33;
 
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float q1y = pz - 160.0f;
+    const float v1y = wz - 160.0f;
+    const float n1y = r33;
+
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t2_0 = wx*wx + wy*wy + wz*wz - 320.0f*wz;
@@ -170,12 +165,10 @@ static int closed_form(const float pose[16], const float *current,
 
             /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float q1x = c1*px + py*s1;
-            const float q1y = pz - 160.0f;
             const float q1z = -c1*py + px*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float v1x = c1*wx + s1*wy;
-            const float v1y = wz - 160.0f;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
@@ -312,7 +305,6 @@ static int closed_form(const float pose[16], const float *current,
 
             /* A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float n1x = c1*r13 + r23*s1;
-            const float n1y = r33;
             const float n1z = -c1*r23 + r13*s1;
 
             /* A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -349,7 +341,9 @@ static int closed_form(const float pose[16], const float *current,
                 out->conditioning[0] = root3 * 1.30855981e-05f;
                 out->conditioning[1] = root1 * 0.00316227766f;
                 out->conditioning[2] = root5 * 0.0166666667f;
-                out->within_limits = within(out->joints);
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
             }
             if (root5 > 0.0f && !free4) {
                 if (count < ENGRAVER5_IK_F32_CLOSED_FORM) {
@@ -376,7 +370,9 @@ static int closed_form(const float pose[16], const float *current,
                     out->conditioning[0] = root3 * 1.30855981e-05f;
                     out->conditioning[1] = root1 * 0.00316227766f;
                     out->conditioning[2] = root5 * 0.0166666667f;
-                    out->within_limits = within(out->joints);
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
                 }
             }
 
@@ -465,7 +461,10 @@ static int solve(const float pose_in[16], const float *current, engraver5_ik_f32
                  engraver5_ik_f32_solution solutions[ENGRAVER5_IK_F32_MAX_SOLUTIONS],
                  engraver5_ik_f32_status *status, int check)
 {
-    engraver5_ik_f32_solution raw[ENGRAVER5_IK_F32_CLOSED_FORM];
+    engraver5_ik_f32_solution staged[ENGRAVER5_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    engraver5_ik_f32_solution *raw = limits == ENGRAVER5_IK_F32_LIMITS_IGNORE ? solutions : staged;
     engraver5_ik_f32_status closed_status;
     const float *pose = pose_in;
     (void)check;
@@ -485,9 +484,7 @@ static int solve(const float pose_in[16], const float *current, engraver5_ik_f32
     }
     int count = 0;
     if (limits == ENGRAVER5_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], ENGRAVER5_IK_F32_MAX_SOLUTIONS - count);

@@ -227,16 +227,6 @@ static const double HIGH[GIMBAL6_IK_JOINTS] = { 170.00000034000001, 120.00000024
 static const double TURN[GIMBAL6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
 static const int MULTI[GIMBAL6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
-static int within(const double q[GIMBAL6_IK_JOINTS])
-{
-    for (int j = 0; j < GIMBAL6_IK_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void gimbal6_ik_forward(const double joints[GIMBAL6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -357,6 +347,12 @@ static int closed_form(const double pose[16], const double *current,
     const double by = -px*r12 - py*r22 - pz*r32 + 0.29999999999999999*r32;
     const double bz = -px*r13 - py*r23 - pz*r33 + 0.29999999999999999*r33;
 
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double e1z = bz + 0.10000000000000001;
+    const double g05_13 = r13;
+    const double g05_23 = r23;
+    const double g05_33 = r33;
+
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
     const double t2_0 = bx*by;
@@ -402,7 +398,6 @@ static int closed_form(const double pose[16], const double *current,
         /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) */
         const double e1x = bx*c6 - by*s6;
         const double e1y = bx*s6 + by*c6;
-        const double e1z = bz + 0.10000000000000001;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
@@ -452,13 +447,10 @@ static int closed_form(const double pose[16], const double *current,
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
         const double g05_11 = c6*r11 - r12*s6;
         const double g05_12 = c6*r12 + r11*s6;
-        const double g05_13 = r13;
         const double g05_21 = c6*r21 - r22*s6;
         const double g05_22 = c6*r22 + r21*s6;
-        const double g05_23 = r23;
         const double g05_31 = c6*r31 - r32*s6;
         const double g05_32 = c6*r32 + r31*s6;
-        const double g05_33 = r33;
 
         /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
         const double g04_11 = c5*g05_11 + g05_13*s5;
@@ -497,97 +489,128 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
-        const int n2 = (root2 == 0.0) ? 1 : 2;
-        for (int k2 = 0; k2 < n2; ++k2) {
-            const double sg2 = k2 ? -1.0 : 1.0;
-            double th2, c2, s2;
-            const double cn2 = ec2;
-            const double sn2 = root2*sg2;
-            th2 = atan2(sn2, cn2);
-            c2 = cn2;
-            s2 = sn2;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        const double sg2 = 1.0;
+        double th2, c2, s2;
+        const double cn2 = ec2;
+        const double sn2 = root2*sg2;
+        th2 = atan2(sn2, cn2);
+        c2 = cn2;
+        s2 = sn2;
 
-            /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
-            int free1 = 1;
-            {
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        int free1 = 1;
+        {
 
-                dt1 = s2*s2;
-                if (fabs(dt1) > 9.9999999999999995e-21) {
-                    c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1;
-                    s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1;
-                    free1 = 0;
-                    wk1 = 1e-08;
-                }
+            dt1 = s2*s2;
+            if (fabs(dt1) > 9.9999999999999995e-21) {
+                c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1;
+                s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1;
+                free1 = 0;
+                wk1 = 1e-08;
             }
-            if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
-                if (fabs(dt1) > wk1) {
-                    continue;
-                }
-                free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current ? current[0] : 0.0));
-                c1 = cos(th1);
-                s1 = sin(th1);
-            } else {
-                th1 = atan2(s1, c1);
-            }
-
-            /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
-            const double g13_11 = c1*g03_11 + g03_21*s1;
-            const double g13_12 = c1*g03_12 + g03_22*s1;
-            const double g13_21 = g03_31;
-            const double g13_22 = g03_32;
-
-            /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-            const double g23_11 = c2*g13_11 + g13_21*s2;
-            const double g23_12 = c2*g13_12 + g13_22*s2;
-
-            /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
-            int free3 = 1;
-            {
-
-                dt3 = 0.8660254037844386;
-                c3 = (0.8660254037844386*g23_11) / dt3;
-                s3 = (-g23_12) / dt3;
-                free3 = 0;
-            }
-            (void)free3;
-            (void)wk3;
-            if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
+        }
+        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
+            if (fabs(dt1) > wk1) {
                 continue;
             }
-            th3 = atan2(s3, c3);
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            th1 = atan2(s1, c1);
+        }
 
-            /* joint readings, configuration labels, singular flag */
+        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
+        const double g13_11 = c1*g03_11 + g03_21*s1;
+        const double g13_12 = c1*g03_12 + g03_22*s1;
+        const double g13_21 = g03_31;
+        const double g13_22 = g03_32;
 
-            const double lm0 = s2;
-            const double lm1 = 0.8660254037844386*s5;
+        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
+        const double g23_11 = c2*g13_11 + g13_21*s2;
+        const double g23_12 = c2*g13_12 + g13_22*s2;
+
+        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
+        int free3 = 1;
+        {
+
+            dt3 = 0.8660254037844386;
+            c3 = (0.8660254037844386*g23_11) / dt3;
+            s3 = (-g23_12) / dt3;
+            free3 = 0;
+        }
+        (void)free3;
+        (void)wk3;
+        if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
+            continue;
+        }
+        th3 = atan2(s3, c3);
+
+        /* joint readings, configuration labels, singular flag */
+
+        const double lm0 = s2;
+        const double lm1 = 0.8660254037844386*s5;
+        if (count < GIMBAL6_IK_CLOSED_FORM) {
+            gimbal6_ik_solution *out = &solutions[count++];
+            double u1 = th1;
+            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            out->joints[0] = u1 * 57.295779513082323;
+            out->joints[1] = th2 * 57.295779513082323;
+            out->joints[2] = th3 * 57.295779513082323;
+            out->joints[3] = th4 * 57.295779513082323;
+            double u5 = th5;
+            u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+            out->joints[4] = u5 * 57.295779513082323;
+            double u6 = th6;
+            u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+            out->joints[5] = u6 * 57.295779513082323;
+            out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+            out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+            out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
+            out->conditioning[0] = cnd6;
+            out->conditioning[1] = root2 * 1.0;
+            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+             * readings are in one turn here), tested without branches */
+            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+        }
+        if (root2 > 0.0 && !free1) {
             if (count < GIMBAL6_IK_CLOSED_FORM) {
                 gimbal6_ik_solution *out = &solutions[count++];
-                double u1 = th1;
+                double u1 = th1 + 3.1415926535897931;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
                 out->joints[0] = u1 * 57.295779513082323;
-                out->joints[1] = th2 * 57.295779513082323;
-                out->joints[2] = th3 * 57.295779513082323;
-                out->joints[3] = th4 * 57.295779513082323;
+                double u2 = -th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                out->joints[1] = u2 * 57.295779513082323;
+                double u3 = th3 + 3.1415926535897931;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                out->joints[2] = u3 * 57.295779513082323;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                out->joints[3] = u4 * 57.295779513082323;
                 double u5 = th5;
                 u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
                 out->joints[4] = u5 * 57.295779513082323;
                 double u6 = th6;
                 u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
                 out->joints[5] = u6 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                out->labels[0] = (signed char)(lm0 >= 0.0 ? -1 : 1);
                 out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
                 out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
                 out->conditioning[0] = cnd6;
                 out->conditioning[1] = root2 * 1.0;
-                out->within_limits = within(out->joints);
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
             }
-
         }
+
     }
     if (status) *status = count ? GIMBAL6_IK_OK : GIMBAL6_IK_UNREACHABLE;
     return count;
@@ -655,16 +678,17 @@ static int solve(const double pose_in[16], const double *current, gimbal6_ik_lim
                  gimbal6_ik_solution solutions[GIMBAL6_IK_MAX_SOLUTIONS],
                  gimbal6_ik_status *status, int check)
 {
-    gimbal6_ik_solution raw[GIMBAL6_IK_CLOSED_FORM];
+    gimbal6_ik_solution staged[GIMBAL6_IK_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    gimbal6_ik_solution *raw = limits == GIMBAL6_IK_LIMITS_IGNORE ? solutions : staged;
     gimbal6_ik_status closed_status;
     const double *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == GIMBAL6_IK_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], GIMBAL6_IK_MAX_SOLUTIONS - count);

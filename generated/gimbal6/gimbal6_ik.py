@@ -399,6 +399,12 @@ def _closed_form(pose, current):
     by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
     bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
+    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+    e1z = bz + 0.1
+    g05_13 = r13
+    g05_23 = r23
+    g05_33 = r33
+
     # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
     t2_0 = bx*by
@@ -431,7 +437,6 @@ def _closed_form(pose, current):
         # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one)
         e1x = bx*c6 - by*s6
         e1y = bx*s6 + by*c6
-        e1z = bz + 0.1
 
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         free4 = True
@@ -470,13 +475,10 @@ def _closed_form(pose, current):
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
         g05_12 = c6*r12 + r11*s6
-        g05_13 = r13
         g05_21 = c6*r21 - r22*s6
         g05_22 = c6*r22 + r21*s6
-        g05_23 = r23
         g05_31 = c6*r31 - r32*s6
         g05_32 = c6*r32 + r31*s6
-        g05_33 = r33
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
         g04_11 = c5*g05_11 + g05_13*s5
@@ -514,71 +516,91 @@ def _closed_form(pose, current):
         if er2 + 2e-09 < 0.0:
             continue
         root2 = sqrt(er2) if er2 > 0.0 else 0.0
-        for sg2 in ((1.0,) if root2 == 0.0 else (1.0, -1.0)):
-            cn2 = ec2
-            sn2 = root2*sg2
-            th2 = atan2(sn2, cn2)
-            c2 = cn2
-            s2 = sn2
+        # the second root follows from this one by symmetry (emitted with the solution below)
+        sg2 = 1.0
+        cn2 = ec2
+        sn2 = root2*sg2
+        th2 = atan2(sn2, cn2)
+        c2 = cn2
+        s2 = sn2
 
-            # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free1 = True
+        # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free1 = True
 
-            dt1 = s2*s2
-            if abs(dt1) > 1e-20:
-                c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
-                s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
-                free1 = False
-                wk1 = 1e-08
+        dt1 = s2*s2
+        if abs(dt1) > 1e-20:
+            c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
+            s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
+            free1 = False
+            wk1 = 1e-08
 
-            if not free1 and abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4:
-                if abs(dt1) > wk1:
-                    continue
-                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free1:
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
-                c1 = cos(th1)
-                s1 = sin(th1)
-            else:
-                th1 = atan2(s1, c1)
-
-            # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
-            g13_11 = c1*g03_11 + g03_21*s1
-            g13_12 = c1*g03_12 + g03_22*s1
-            g13_21 = g03_31
-            g13_22 = g03_32
-
-            # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-            g23_11 = c2*g13_11 + g13_21*s2
-            g23_12 = c2*g13_12 + g13_22*s2
-
-            # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free3 = True
-
-            dt3 = 0.8660254037844386
-            c3 = (0.8660254037844386*g23_11) / dt3
-            s3 = (-g23_12) / dt3
-            free3 = False
-
-            if abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4:
+        if not free1 and abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4:
+            if abs(dt1) > wk1:
                 continue
-            th3 = atan2(s3, c3)
+            free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            th1 = atan2(s1, c1)
 
-            # Joint readings, configuration labels, singular flag.
+        # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
+        g13_11 = c1*g03_11 + g03_21*s1
+        g13_12 = c1*g03_12 + g03_22*s1
+        g13_21 = g03_31
+        g13_22 = g03_32
 
-            lm0 = s2
-            lm1 = 0.8660254037844386*s5
-            singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
-            conditioning = (cnd6, root2 * 1.0, )
-            u1 = th1
+        # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
+        g23_11 = c2*g13_11 + g13_21*s2
+        g23_12 = c2*g13_12 + g13_22*s2
+
+        # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free3 = True
+
+        dt3 = 0.8660254037844386
+        c3 = (0.8660254037844386*g23_11) / dt3
+        s3 = (-g23_12) / dt3
+        free3 = False
+
+        if abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4:
+            continue
+        th3 = atan2(s3, c3)
+
+        # Joint readings, configuration labels, singular flag.
+
+        lm0 = s2
+        lm1 = 0.8660254037844386*s5
+        singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
+        conditioning = (cnd6, root2 * 1.0, )
+        u1 = th1
+        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u2 = th2
+        u3 = th3
+        u4 = th4
+        u5 = th5
+        u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+        u6 = th6
+        u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+        q = (
+            u1 * 57.29577951308232,
+            u2 * 57.29577951308232,
+            u3 * 57.29577951308232,
+            u4 * 57.29577951308232,
+            u5 * 57.29577951308232,
+            u6 * 57.29577951308232,
+        )
+        solutions.append(_new(Solution, (q, (
+            "bend_positive" if lm0 >= 0.0 else "bend_negative",
+            "bend_positive" if lm1 >= 0.0 else "bend_negative",
+        ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+        if root2 > 0.0 and not free1:
+            u1 = th1 + _PI
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u3 = th3
-            u4 = th4
-            u5 = th5
-            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-            u6 = th6
-            u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+            u2 = -th2
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = th3 + _PI
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
@@ -588,7 +610,7 @@ def _closed_form(pose, current):
                 u6 * 57.29577951308232,
             )
             solutions.append(_new(Solution, (q, (
-                "bend_positive" if lm0 >= 0.0 else "bend_negative",
+                "bend_negative" if lm0 >= 0.0 else "bend_positive",
                 "bend_positive" if lm1 >= 0.0 else "bend_negative",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
     return solutions

@@ -183,7 +183,7 @@ def inverse_batch(poses, current=None, conditioning=True):
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 2
+    shape = (n,) + (1,) * 1
 
     def entry(row, col):
         return poses[:, row, col].reshape(shape)
@@ -213,6 +213,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
         bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
+        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+        e1z = bz + 0.1
+        g05_13 = r13
+        g05_23 = r23
+        g05_33 = r33
+
         # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
         t2_0 = bx*by
         t2_1 = bx*bx
@@ -236,9 +242,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         free6 = (ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6) <= 1e-24
         th6, c6, s6, found6, dbl6, cnd6 = _circle_roots_axis(
-            ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09, 1, 3)
+            ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09, 1, 2)
         if numpy.any(free6):
-            first = numpy.arange(4).reshape(1, 4, 1) == 0
+            first = numpy.arange(4).reshape(1, 4) == 0
             th6 = numpy.where(free6, (hint[5]), th6)
             c6 = numpy.where(free6, numpy.cos(th6), c6)
             s6 = numpy.where(free6, numpy.sin(th6), s6)
@@ -250,7 +256,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one)
         e1x = bx*c6 - by*s6
         e1y = bx*s6 + by*c6
-        e1z = bz + 0.1
 
         # th4 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen4 = numpy.zeros((), dtype=bool)
@@ -289,13 +294,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
         g05_12 = c6*r12 + r11*s6
-        g05_13 = r13
         g05_21 = c6*r21 - r22*s6
         g05_22 = c6*r22 + r21*s6
-        g05_23 = r23
         g05_31 = c6*r31 - r32*s6
         g05_32 = c6*r32 + r31*s6
-        g05_33 = r33
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
         g04_11 = c5*g05_11 + g05_13*s5
@@ -331,8 +333,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er2 + 2e-09 < 0.0)
         root2 = numpy.sqrt(numpy.maximum(er2, 0.0))
-        sg2 = _SIGNS.reshape(1, 1, 2)
-        valid = valid & ~((sg2 < 0.0) & ((root2 == 0.0)))
+        sg2 = 1.0
         cn2 = ec2
         sn2 = root2*sg2
         th2 = numpy.arctan2(sn2, cn2)
@@ -397,16 +398,41 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u6 = th6
         u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
 
-        out_joints[..., 0] = u1 * 57.29577951308232
-        out_joints[..., 1] = u2 * 57.29577951308232
-        out_joints[..., 2] = u3 * 57.29577951308232
-        out_joints[..., 3] = u4 * 57.29577951308232
-        out_joints[..., 4] = u5 * 57.29577951308232
-        out_joints[..., 5] = u6 * 57.29577951308232
-        out_valid[...] = valid
-        out_labels[..., 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_singular[...] = free6 | dbl6 | free5 | (root2 == 0.0) | free1
+        out_joints[..., 0, 0] = u1 * 57.29577951308232
+        out_joints[..., 0, 1] = u2 * 57.29577951308232
+        out_joints[..., 0, 2] = u3 * 57.29577951308232
+        out_joints[..., 0, 3] = u4 * 57.29577951308232
+        out_joints[..., 0, 4] = u5 * 57.29577951308232
+        out_joints[..., 0, 5] = u6 * 57.29577951308232
+        out_valid[..., 0] = valid
+        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_singular[..., 0] = free6 | dbl6 | free5 | (root2 == 0.0) | free1
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cnd6
-            out_conditioning[..., 1] = cond2
+            out_conditioning[..., 0, 0] = cnd6
+            out_conditioning[..., 0, 1] = cond2
+            out_conditioning[..., 1, :] = out_conditioning[..., 0, :]
+        # the mirrored solution, in the last branch axis
+        out_valid[..., 1] = valid & (root2 > 0.0) & ~free1
+        u1 = th1 + _PI
+        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u2 = -th2
+        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u3 = th3 + _PI
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u4 = th4
+        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u5 = th5
+        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u6 = th6
+        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+
+        out_joints[..., 1, 0] = u1 * 57.29577951308232
+        out_joints[..., 1, 1] = u2 * 57.29577951308232
+        out_joints[..., 1, 2] = u3 * 57.29577951308232
+        out_joints[..., 1, 3] = out_joints[..., 0, 3]
+        out_joints[..., 1, 4] = out_joints[..., 0, 4]
+        out_joints[..., 1, 5] = out_joints[..., 0, 5]
+        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, -1, 1)
+        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_singular[..., 1] = out_singular[..., 0]

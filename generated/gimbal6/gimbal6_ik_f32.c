@@ -227,16 +227,6 @@ static const float HIGH[GIMBAL6_IK_F32_JOINTS] = { 170.0f, 120.0f, 170.0f, 170.0
 static const float TURN[GIMBAL6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[GIMBAL6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
-static int within(const float q[GIMBAL6_IK_F32_JOINTS])
-{
-    for (int j = 0; j < GIMBAL6_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void gimbal6_ik_f32_forward(const float joints[GIMBAL6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -357,6 +347,12 @@ static int closed_form(const float pose[16], const float *current,
     const float by = -px*r12 - py*r22 - pz*r32 + 0.3f*r32;
     const float bz = -px*r13 - py*r23 - pz*r33 + 0.3f*r33;
 
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float e1z = bz + 0.1f;
+    const float g05_13 = r13;
+    const float g05_23 = r23;
+    const float g05_33 = r33;
+
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
     const float t2_0 = bx*by;
@@ -402,7 +398,6 @@ static int closed_form(const float pose[16], const float *current,
         /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) */
         const float e1x = bx*c6 - by*s6;
         const float e1y = bx*s6 + by*c6;
-        const float e1z = bz + 0.1f;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
@@ -452,13 +447,10 @@ static int closed_form(const float pose[16], const float *current,
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
         const float g05_11 = c6*r11 - r12*s6;
         const float g05_12 = c6*r12 + r11*s6;
-        const float g05_13 = r13;
         const float g05_21 = c6*r21 - r22*s6;
         const float g05_22 = c6*r22 + r21*s6;
-        const float g05_23 = r23;
         const float g05_31 = c6*r31 - r32*s6;
         const float g05_32 = c6*r32 + r31*s6;
-        const float g05_33 = r33;
 
         /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
         const float g04_11 = c5*g05_11 + g05_13*s5;
@@ -497,97 +489,128 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
-        const int n2 = (root2 == 0.0f) ? 1 : 2;
-        for (int k2 = 0; k2 < n2; ++k2) {
-            const float sg2 = k2 ? -1.0f : 1.0f;
-            float th2, c2, s2;
-            const float cn2 = ec2;
-            const float sn2 = root2*sg2;
-            th2 = atan2f(sn2, cn2);
-            c2 = cn2;
-            s2 = sn2;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        const float sg2 = 1.0f;
+        float th2, c2, s2;
+        const float cn2 = ec2;
+        const float sn2 = root2*sg2;
+        th2 = atan2f(sn2, cn2);
+        c2 = cn2;
+        s2 = sn2;
 
-            /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
-            int free1 = 1;
-            {
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
+        int free1 = 1;
+        {
 
-                dt1 = s2*s2;
-                if (fabsf(dt1) > 1e-20f) {
-                    c1 = (-s2*(0.5f*g03_12 + 0.866025404f*g03_13)) / dt1;
-                    s1 = (-s2*(0.5f*g03_22 + 0.866025404f*g03_23)) / dt1;
-                    free1 = 0;
-                    wk1 = 1e-08f;
-                }
+            dt1 = s2*s2;
+            if (fabsf(dt1) > 1e-20f) {
+                c1 = (-s2*(0.5f*g03_12 + 0.866025404f*g03_13)) / dt1;
+                s1 = (-s2*(0.5f*g03_22 + 0.866025404f*g03_23)) / dt1;
+                free1 = 0;
+                wk1 = 1e-08f;
             }
-            if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
-                if (fabsf(dt1) > wk1) {
-                    continue;
-                }
-                free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free1) {
-                th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
-                c1 = cosf(th1);
-                s1 = sinf(th1);
-            } else {
-                th1 = atan2f(s1, c1);
-            }
-
-            /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
-            const float g13_11 = c1*g03_11 + g03_21*s1;
-            const float g13_12 = c1*g03_12 + g03_22*s1;
-            const float g13_21 = g03_31;
-            const float g13_22 = g03_32;
-
-            /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-            const float g23_11 = c2*g13_11 + g13_21*s2;
-            const float g23_12 = c2*g13_12 + g13_22*s2;
-
-            /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th3, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
-            int free3 = 1;
-            {
-
-                dt3 = 0.866025404f;
-                c3 = (0.866025404f*g23_11) / dt3;
-                s3 = (-g23_12) / dt3;
-                free3 = 0;
-            }
-            (void)free3;
-            (void)wk3;
-            if (fabsf(c3 * c3 + s3 * s3 - 1.0f) > 0.005f) {
+        }
+        if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
+            if (fabsf(dt1) > wk1) {
                 continue;
             }
-            th3 = atan2f(s3, c3);
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            th1 = atan2f(s1, c1);
+        }
 
-            /* joint readings, configuration labels, singular flag */
+        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
+        const float g13_11 = c1*g03_11 + g03_21*s1;
+        const float g13_12 = c1*g03_12 + g03_22*s1;
+        const float g13_21 = g03_31;
+        const float g13_22 = g03_32;
 
-            const float lm0 = s2;
-            const float lm1 = 0.866025404f*s5;
+        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
+        const float g23_11 = c2*g13_11 + g13_21*s2;
+        const float g23_12 = c2*g13_12 + g13_22*s2;
+
+        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th3, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
+        int free3 = 1;
+        {
+
+            dt3 = 0.866025404f;
+            c3 = (0.866025404f*g23_11) / dt3;
+            s3 = (-g23_12) / dt3;
+            free3 = 0;
+        }
+        (void)free3;
+        (void)wk3;
+        if (fabsf(c3 * c3 + s3 * s3 - 1.0f) > 0.005f) {
+            continue;
+        }
+        th3 = atan2f(s3, c3);
+
+        /* joint readings, configuration labels, singular flag */
+
+        const float lm0 = s2;
+        const float lm1 = 0.866025404f*s5;
+        if (count < GIMBAL6_IK_F32_CLOSED_FORM) {
+            gimbal6_ik_f32_solution *out = &solutions[count++];
+            float u1 = th1;
+            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            out->joints[0] = u1 * 57.2957795f;
+            out->joints[1] = th2 * 57.2957795f;
+            out->joints[2] = th3 * 57.2957795f;
+            out->joints[3] = th4 * 57.2957795f;
+            float u5 = th5;
+            u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+            out->joints[4] = u5 * 57.2957795f;
+            float u6 = th6;
+            u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+            out->joints[5] = u6 * 57.2957795f;
+            out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
+            out->conditioning[0] = cnd6;
+            out->conditioning[1] = root2 * 1.0f;
+            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+             * readings are in one turn here), tested without branches */
+            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+        }
+        if (root2 > 0.0f && !free1) {
             if (count < GIMBAL6_IK_F32_CLOSED_FORM) {
                 gimbal6_ik_f32_solution *out = &solutions[count++];
-                float u1 = th1;
+                float u1 = th1 + 3.14159265f;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
                 out->joints[0] = u1 * 57.2957795f;
-                out->joints[1] = th2 * 57.2957795f;
-                out->joints[2] = th3 * 57.2957795f;
-                out->joints[3] = th4 * 57.2957795f;
+                float u2 = -th2;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                out->joints[1] = u2 * 57.2957795f;
+                float u3 = th3 + 3.14159265f;
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                out->joints[2] = u3 * 57.2957795f;
+                float u4 = th4;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                out->joints[3] = u4 * 57.2957795f;
                 float u5 = th5;
                 u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
                 out->joints[4] = u5 * 57.2957795f;
                 float u6 = th6;
                 u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
                 out->joints[5] = u6 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                out->labels[0] = (signed char)(lm0 >= 0.0f ? -1 : 1);
                 out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
                 out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
                 out->conditioning[0] = cnd6;
                 out->conditioning[1] = root2 * 1.0f;
-                out->within_limits = within(out->joints);
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
             }
-
         }
+
     }
     if (status) *status = count ? GIMBAL6_IK_F32_OK : GIMBAL6_IK_F32_UNREACHABLE;
     return count;
@@ -655,16 +678,17 @@ static int solve(const float pose_in[16], const float *current, gimbal6_ik_f32_l
                  gimbal6_ik_f32_solution solutions[GIMBAL6_IK_F32_MAX_SOLUTIONS],
                  gimbal6_ik_f32_status *status, int check)
 {
-    gimbal6_ik_f32_solution raw[GIMBAL6_IK_F32_CLOSED_FORM];
+    gimbal6_ik_f32_solution staged[GIMBAL6_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    gimbal6_ik_f32_solution *raw = limits == GIMBAL6_IK_F32_LIMITS_IGNORE ? solutions : staged;
     gimbal6_ik_f32_status closed_status;
     const float *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == GIMBAL6_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], GIMBAL6_IK_F32_MAX_SOLUTIONS - count);

@@ -24,16 +24,6 @@ static const double HIGH[INSPECTOR6_IK_JOINTS] = { 175.00000034999999, 100.00000
 static const double TURN[INSPECTOR6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
 static const int MULTI[INSPECTOR6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
-static int within(const double q[INSPECTOR6_IK_JOINTS])
-{
-    for (int j = 0; j < INSPECTOR6_IK_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void inspector6_ik_forward(const double joints[INSPECTOR6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -146,6 +136,13 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 85.0*rc23;
     const double wz = pcz - 85.0*rc33;
 
+    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double g16_21 = rc31;
+    const double g16_22 = rc32;
+    const double g16_23 = rc33;
+    const double g16_24 = pcz - 180.0;
+    const double v1y = wz - 180.0;
+
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz;
@@ -201,10 +198,6 @@ static int closed_form(const double pose[16], const double *current,
             const double g16_12 = c1*rc12 + rc22*s1;
             const double g16_13 = c1*rc13 + rc23*s1;
             const double g16_14 = c1*pcx + pcy*s1;
-            const double g16_21 = rc31;
-            const double g16_22 = rc32;
-            const double g16_23 = rc33;
-            const double g16_24 = pcz - 180.0;
             const double g16_31 = -c1*rc21 + rc11*s1;
             const double g16_32 = -c1*rc22 + rc12*s1;
             const double g16_33 = -c1*rc23 + rc13*s1;
@@ -212,7 +205,6 @@ static int closed_form(const double pose[16], const double *current,
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
-            const double v1y = wz - 180.0;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
@@ -304,75 +296,102 @@ static int closed_form(const double pose[16], const double *current,
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
-            const int n5 = (root5 == 0.0) ? 1 : 2;
-            for (int k5 = 0; k5 < n5; ++k5) {
-                const double sg5 = k5 ? -1.0 : 1.0;
-                double th5, c5, s5;
-                const double cn5 = ec5;
-                const double sn5 = root5*sg5;
-                th5 = atan2(sn5, cn5);
-                c5 = cn5;
-                s5 = sn5;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            const double sg5 = 1.0;
+            double th5, c5, s5;
+            const double cn5 = ec5;
+            const double sn5 = root5*sg5;
+            th5 = atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
 
-                /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-                double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
-                int free4 = 1;
-                {
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            int free4 = 1;
+            {
 
-                    dt4 = -s5*s5;
-                    if (fabs(dt4) > 9.9999999999999995e-21) {
-                        c4 = (-g36_13*s5) / dt4;
-                        s4 = (-g36_23*s5) / dt4;
-                        free4 = 0;
-                        wk4 = 1e-08;
-                    }
+                dt4 = -s5*s5;
+                if (fabs(dt4) > 9.9999999999999995e-21) {
+                    c4 = (-g36_13*s5) / dt4;
+                    s4 = (-g36_23*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08;
                 }
-                if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
-                    if (fabs(dt4) > wk4) {
-                        continue;
-                    }
-                    free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-                }
-                if (free4) {
-                    th4 = (0.0 + 0.017453292519943295 * (current ? current[3] : 0.0));
-                    c4 = cos(th4);
-                    s4 = sin(th4);
-                } else {
-                    th4 = atan2(s4, c4);
-                }
-
-                /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-                const double g46_11 = c4*g36_11 + g36_21*s4;
-                const double g46_12 = c4*g36_12 + g36_22*s4;
-                const double g46_21 = -g36_31;
-                const double g46_22 = -g36_32;
-
-                /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-                const double g56_11 = c5*g46_11 + g46_21*s5;
-                const double g56_12 = c5*g46_12 + g46_22*s5;
-
-                /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-                double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
-                int free6 = 1;
-                {
-
-                    dt6 = 1.0;
-                    c6 = (g56_11) / dt6;
-                    s6 = (-g56_12) / dt6;
-                    free6 = 0;
-                }
-                (void)free6;
-                (void)wk6;
-                if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            }
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+                if (fabs(dt4) > wk4) {
                     continue;
                 }
-                th6 = atan2(s6, c6);
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0 + 0.017453292519943295 * (current ? current[3] : 0.0));
+                c4 = cos(th4);
+                s4 = sin(th4);
+            } else {
+                th4 = atan2(s4, c4);
+            }
 
-                /* joint readings, configuration labels, singular flag */
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const double g46_11 = c4*g36_11 + g36_21*s4;
+            const double g46_12 = c4*g36_12 + g36_22*s4;
+            const double g46_21 = -g36_31;
+            const double g46_22 = -g36_32;
 
-                const double lm0 = v1x;
-                const double lm1 = 92800.0*c3;
-                const double lm2 = s5;
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const double g56_11 = c5*g46_11 + g46_21*s5;
+            const double g56_12 = c5*g46_12 + g46_22*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+                continue;
+            }
+            th6 = atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+
+            const double lm0 = v1x;
+            const double lm1 = 92800.0*c3;
+            const double lm2 = s5;
+            if (count < INSPECTOR6_IK_CLOSED_FORM) {
+                inspector6_ik_solution *out = &solutions[count++];
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                out->joints[0] = u1 * 57.295779513082323;
+                double u2 = th2 - 1.5707963267948966;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                out->joints[1] = u2 * -57.295779513082323;
+                double u3 = th3 - 1.7889624832941875;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                out->joints[2] = u3 * 57.295779513082323;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                out->joints[3] = u4 * 57.295779513082323;
+                out->joints[4] = th5 * -57.295779513082323;
+                out->joints[5] = th6 * 57.295779513082323;
+                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                out->conditioning[0] = root3 * 5.3879310344827582e-06;
+                out->conditioning[1] = root1 * 0.003162277660168379;
+                out->conditioning[2] = root5 * 1.0;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+            }
+            if (root5 > 0.0 && !free4) {
                 if (count < INSPECTOR6_IK_CLOSED_FORM) {
                     inspector6_ik_solution *out = &solutions[count++];
                     double u1 = th1;
@@ -384,22 +403,28 @@ static int closed_form(const double pose[16], const double *current,
                     double u3 = th3 - 1.7889624832941875;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                     out->joints[2] = u3 * 57.295779513082323;
-                    double u4 = th4;
+                    double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     out->joints[3] = u4 * 57.295779513082323;
-                    out->joints[4] = th5 * -57.295779513082323;
-                    out->joints[5] = th6 * 57.295779513082323;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    out->joints[4] = u5 * -57.295779513082323;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    out->joints[5] = u6 * 57.295779513082323;
                     out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
                     out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
                     out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
                     out->conditioning[0] = root3 * 5.3879310344827582e-06;
                     out->conditioning[1] = root1 * 0.003162277660168379;
                     out->conditioning[2] = root5 * 1.0;
-                    out->within_limits = within(out->joints);
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
                 }
-
             }
+
         }
     }
     if (status) *status = count ? INSPECTOR6_IK_OK : INSPECTOR6_IK_UNREACHABLE;
@@ -468,16 +493,17 @@ static int solve(const double pose_in[16], const double *current, inspector6_ik_
                  inspector6_ik_solution solutions[INSPECTOR6_IK_MAX_SOLUTIONS],
                  inspector6_ik_status *status, int check)
 {
-    inspector6_ik_solution raw[INSPECTOR6_IK_CLOSED_FORM];
+    inspector6_ik_solution staged[INSPECTOR6_IK_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    inspector6_ik_solution *raw = limits == INSPECTOR6_IK_LIMITS_IGNORE ? solutions : staged;
     inspector6_ik_status closed_status;
     const double *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == INSPECTOR6_IK_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], INSPECTOR6_IK_MAX_SOLUTIONS - count);

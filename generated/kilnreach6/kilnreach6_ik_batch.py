@@ -81,7 +81,7 @@ def inverse_batch(poses, current=None, conditioning=True):
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 3
+    shape = (n,) + (1,) * 2
 
     def entry(row, col):
         return poses[:, row, col].reshape(shape)
@@ -125,6 +125,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 110*rc23
         wz = pcz - 110*rc33
 
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        v1y = 900 - wz
+        g16_21 = -rc31
+        g16_22 = -rc32
+        g16_23 = -rc33
+
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
         ea1 = wy
@@ -135,7 +141,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free1 = en1 <= 1e-14
         valid = valid & ~numpy.where(free1, 22500 > 1e-14, 2e-09*en1 + er1 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
-        sg1 = _SIGNS.reshape(1, 2, 1, 1)
+        sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = 150*ea1 - eb1*root1*sg1
         sn1 = ea1*root1*sg1 + 150*eb1
@@ -150,7 +156,20 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
-        v1y = 900 - wz
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*rc11 + rc21*s1
+        g16_12 = c1*rc12 + rc22*s1
+        g16_13 = c1*rc13 + rc23*s1
+        g16_31 = c1*rc21 - rc11*s1
+        g16_32 = c1*rc22 - rc12*s1
+        g16_33 = c1*rc23 - rc13*s1
+        g26_21 = g16_31
+        g26_22 = g16_32
+        g26_23 = g16_33
+        g36_21 = g26_21
+        g36_22 = g26_22
+        g36_23 = g26_23
 
         # th2: x of A2^-1 A1^-1 w = A3 c3
         t5_0 = v1x*v1x + v1y*v1y
@@ -161,7 +180,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free2 = en2 <= 1e-14
         valid = valid & ~numpy.where(free2, 0 > 1e-14, 1.000000002*en2 < 0.0)
         root2 = numpy.sqrt(numpy.maximum(en2, 0.0))
-        sg2 = _SIGNS.reshape(1, 1, 2, 1)
+        sg2 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg2 < 0.0) & (free2 | (root2 == 0.0)))
         cn2 = -eb2*root2*sg2
         sn2 = ea2*root2*sg2
@@ -185,24 +204,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         l3 = (-v2z) / dn3
         chosen3 = chosen3 | use
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
-        g16_21 = -rc31
-        g16_22 = -rc32
-        g16_23 = -rc33
-        g16_31 = c1*rc21 - rc11*s1
-        g16_32 = c1*rc22 - rc12*s1
-        g16_33 = c1*rc23 - rc13*s1
-
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         g26_11 = c2*g16_11 + g16_21*s2
         g26_12 = c2*g16_12 + g16_22*s2
         g26_13 = c2*g16_13 + g16_23*s2
-        g26_21 = g16_31
-        g26_22 = g16_32
-        g26_23 = g16_33
         g26_31 = -c2*g16_21 + g16_11*s2
         g26_32 = -c2*g16_22 + g16_12*s2
         g26_33 = -c2*g16_23 + g16_13*s2
@@ -211,9 +216,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_11 = g26_11
         g36_12 = g26_12
         g36_13 = g26_13
-        g36_21 = g26_21
-        g36_22 = g26_22
-        g36_23 = g26_23
         g36_31 = g26_31
         g36_32 = g26_32
         g36_33 = g26_33
@@ -224,8 +226,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = _SIGNS.reshape(1, 1, 1, 2)
-        valid = valid & ~((sg5 < 0.0) & ((root5 == 0.0)))
+        sg5 = 1.0
         cn5 = ec5
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
@@ -292,18 +293,42 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u6 = th6
 
         valid = valid & (499.9999989 <= u3) & (u3 <= 1600.0000011)  # strokes define reach
-        out_joints[..., 0] = u1 * 57.29577951308232
-        out_joints[..., 1] = u2 * 57.29577951308232
-        out_joints[..., 2] = u3
-        out_joints[..., 3] = u4 * 57.29577951308232
-        out_joints[..., 4] = u5 * 57.29577951308232
-        out_joints[..., 5] = u6 * 57.29577951308232
-        out_valid[...] = valid
-        out_labels[..., 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 2] = numpy.where(lm2 >= 0.0, 1, -1)
-        out_singular[...] = free1 | (root1 == 0.0) | free2 | (root2 == 0.0) | (root5 == 0.0) | free4
+        out_joints[..., 0, 0] = u1 * 57.29577951308232
+        out_joints[..., 0, 1] = u2 * 57.29577951308232
+        out_joints[..., 0, 2] = u3
+        out_joints[..., 0, 3] = u4 * 57.29577951308232
+        out_joints[..., 0, 4] = u5 * 57.29577951308232
+        out_joints[..., 0, 5] = u6 * 57.29577951308232
+        out_valid[..., 0] = valid
+        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 0, 2] = numpy.where(lm2 >= 0.0, 1, -1)
+        out_singular[..., 0] = free1 | (root1 == 0.0) | free2 | (root2 == 0.0) | (root5 == 0.0) | free4
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cond1
-            out_conditioning[..., 1] = cond2
-            out_conditioning[..., 2] = cond5
+            out_conditioning[..., 0, 0] = cond1
+            out_conditioning[..., 0, 1] = cond2
+            out_conditioning[..., 0, 2] = cond5
+            out_conditioning[..., 1, :] = out_conditioning[..., 0, :]
+        # the mirrored solution, in the last branch axis
+        out_valid[..., 1] = valid & (root5 > 0.0) & ~free4
+        u1 = th1
+        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u2 = th2
+        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u4 = th4 + _PI
+        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u5 = -th5
+        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u6 = th6 + _PI
+        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+
+        out_joints[..., 1, 0] = out_joints[..., 0, 0]
+        out_joints[..., 1, 1] = out_joints[..., 0, 1]
+        out_joints[..., 1, 2] = out_joints[..., 0, 2]
+        out_joints[..., 1, 3] = u4 * 57.29577951308232
+        out_joints[..., 1, 4] = u5 * 57.29577951308232
+        out_joints[..., 1, 5] = u6 * 57.29577951308232
+        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, -1, 1)
+        out_labels[..., 1, 2] = numpy.where(lm2 >= 0.0, 1, -1)
+        out_singular[..., 1] = out_singular[..., 0]

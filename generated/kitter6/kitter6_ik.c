@@ -24,16 +24,6 @@ static const double HIGH[KITTER6_IK_JOINTS] = { 270.00000053999997, 175.00000034
 static const double TURN[KITTER6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
 static const int MULTI[KITTER6_IK_JOINTS] = { 1, 0, 0, 0, 0, 1 };
 
-static int within(const double q[KITTER6_IK_JOINTS])
-{
-    for (int j = 0; j < KITTER6_IK_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void kitter6_ik_forward(const double joints[KITTER6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -140,6 +130,14 @@ static int closed_form(const double pose[16], const double *current,
     const double rc33 = r33;
     const double pcz = pz - 62.0*r33;
 
+    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double g16_33 = rc33;
+    const double g05_12 = rc13;
+    const double g05_14 = pcx - 78.0*rc13;
+    const double g05_22 = rc23;
+    const double g05_24 = pcy - 78.0*rc23;
+    const double g05_34 = pcz - 78.0*rc33;
+
     /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t2_0 = pcx*pcx - 156.0*pcx*rc13 + pcy*pcy - 156.0*pcy*rc23 + 6084.0*rc13*rc13 + 6084.0*rc23*rc23;
@@ -177,7 +175,6 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_21 = c1*rc21 - rc11*s1;
         const double g16_22 = c1*rc22 - rc12*s1;
         const double g16_23 = c1*rc23 - rc13*s1;
-        const double g16_33 = rc33;
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -227,15 +224,10 @@ static int closed_form(const double pose[16], const double *current,
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
             const double g05_11 = c6*rc11 - rc12*s6;
-            const double g05_12 = rc13;
             const double g05_13 = -c6*rc12 - rc11*s6;
-            const double g05_14 = pcx - 78.0*rc13;
             const double g05_21 = c6*rc21 - rc22*s6;
-            const double g05_22 = rc23;
             const double g05_23 = -c6*rc22 - rc21*s6;
-            const double g05_24 = pcy - 78.0*rc23;
             const double g05_33 = -c6*rc32 - rc31*s6;
-            const double g05_34 = pcz - 78.0*rc33;
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
             const double g04_11 = c5*g05_11 - g05_12*s5;
@@ -350,7 +342,9 @@ static int closed_form(const double pose[16], const double *current,
                     out->conditioning[0] = root1 * 0.003162277660168379;
                     out->conditioning[1] = root5 * 1.0;
                     out->conditioning[2] = root3 * 5.1361068310220853e-06;
-                    out->within_limits = within(out->joints);
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
                 }
 
             }
@@ -422,16 +416,17 @@ static int solve(const double pose_in[16], const double *current, kitter6_ik_lim
                  kitter6_ik_solution solutions[KITTER6_IK_MAX_SOLUTIONS],
                  kitter6_ik_status *status, int check)
 {
-    kitter6_ik_solution raw[KITTER6_IK_CLOSED_FORM];
+    kitter6_ik_solution staged[KITTER6_IK_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    kitter6_ik_solution *raw = limits == KITTER6_IK_LIMITS_IGNORE ? solutions : staged;
     kitter6_ik_status closed_status;
     const double *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == KITTER6_IK_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], KITTER6_IK_MAX_SOLUTIONS - count);

@@ -278,6 +278,14 @@ def _closed_form(pose, current):
     rc33 = r33
     pcz = pz - 62*r33
 
+    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+    g16_33 = rc33
+    g05_12 = rc13
+    g05_14 = pcx - 78*rc13
+    g05_22 = rc23
+    g05_24 = pcy - 78*rc23
+    g05_34 = pcz - 78*rc33
+
     # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t2_0 = pcx*pcx - 156*pcx*rc13 + pcy*pcy - 156*pcy*rc23 + 6084*rc13*rc13 + 6084*rc23*rc23
@@ -308,7 +316,6 @@ def _closed_form(pose, current):
         g16_21 = c1*rc21 - rc11*s1
         g16_22 = c1*rc22 - rc12*s1
         g16_23 = c1*rc23 - rc13*s1
-        g16_33 = rc33
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -348,15 +355,10 @@ def _closed_form(pose, current):
 
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
             g05_11 = c6*rc11 - rc12*s6
-            g05_12 = rc13
             g05_13 = -c6*rc12 - rc11*s6
-            g05_14 = pcx - 78*rc13
             g05_21 = c6*rc21 - rc22*s6
-            g05_22 = rc23
             g05_23 = -c6*rc22 - rc21*s6
-            g05_24 = pcy - 78*rc23
             g05_33 = -c6*rc32 - rc31*s6
-            g05_34 = pcz - 78*rc33
 
             # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
             g04_11 = c5*g05_11 - g05_12*s5

@@ -24,16 +24,6 @@ static const float HIGH[KITTER6_IK_F32_JOINTS] = { 270.000001f, 175.0f, 160.0f, 
 static const float TURN[KITTER6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[KITTER6_IK_F32_JOINTS] = { 1, 0, 0, 0, 0, 1 };
 
-static int within(const float q[KITTER6_IK_F32_JOINTS])
-{
-    for (int j = 0; j < KITTER6_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void kitter6_ik_f32_forward(const float joints[KITTER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -140,6 +130,14 @@ static int closed_form(const float pose[16], const float *current,
     const float rc33 = r33;
     const float pcz = pz - 62.0f*r33;
 
+    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float g16_33 = rc33;
+    const float g05_12 = rc13;
+    const float g05_14 = pcx - 78.0f*rc13;
+    const float g05_22 = rc23;
+    const float g05_24 = pcy - 78.0f*rc23;
+    const float g05_34 = pcz - 78.0f*rc33;
+
     /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t2_0 = pcx*pcx - 156.0f*pcx*rc13 + pcy*pcy - 156.0f*pcy*rc23 + 6084.0f*rc13*rc13 + 6084.0f*rc23*rc23;
@@ -177,7 +175,6 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_21 = c1*rc21 - rc11*s1;
         const float g16_22 = c1*rc22 - rc12*s1;
         const float g16_23 = c1*rc23 - rc13*s1;
-        const float g16_33 = rc33;
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -227,15 +224,10 @@ static int closed_form(const float pose[16], const float *current,
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
             const float g05_11 = c6*rc11 - rc12*s6;
-            const float g05_12 = rc13;
             const float g05_13 = -c6*rc12 - rc11*s6;
-            const float g05_14 = pcx - 78.0f*rc13;
             const float g05_21 = c6*rc21 - rc22*s6;
-            const float g05_22 = rc23;
             const float g05_23 = -c6*rc22 - rc21*s6;
-            const float g05_24 = pcy - 78.0f*rc23;
             const float g05_33 = -c6*rc32 - rc31*s6;
-            const float g05_34 = pcz - 78.0f*rc33;
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
             const float g04_11 = c5*g05_11 - g05_12*s5;
@@ -350,7 +342,9 @@ static int closed_form(const float pose[16], const float *current,
                     out->conditioning[0] = root1 * 0.00316227766f;
                     out->conditioning[1] = root5 * 1.0f;
                     out->conditioning[2] = root3 * 5.13610683e-06f;
-                    out->within_limits = within(out->joints);
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
                 }
 
             }
@@ -422,16 +416,17 @@ static int solve(const float pose_in[16], const float *current, kitter6_ik_f32_l
                  kitter6_ik_f32_solution solutions[KITTER6_IK_F32_MAX_SOLUTIONS],
                  kitter6_ik_f32_status *status, int check)
 {
-    kitter6_ik_f32_solution raw[KITTER6_IK_F32_CLOSED_FORM];
+    kitter6_ik_f32_solution staged[KITTER6_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    kitter6_ik_f32_solution *raw = limits == KITTER6_IK_F32_LIMITS_IGNORE ? solutions : staged;
     kitter6_ik_f32_status closed_status;
     const float *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == KITTER6_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], KITTER6_IK_F32_MAX_SOLUTIONS - count);

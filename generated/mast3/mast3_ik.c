@@ -24,16 +24,6 @@ static const double HIGH[MAST3_IK_JOINTS] = { 170.00000034000001, 120.0000002400
 static const double TURN[MAST3_IK_JOINTS] = { 360.0, 360.0, 0.0 };
 static const int MULTI[MAST3_IK_JOINTS] = { 0, 0, 0 };
 
-static int within(const double q[MAST3_IK_JOINTS])
-{
-    for (int j = 0; j < MAST3_IK_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void mast3_ik_forward(const double joints[MAST3_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -78,6 +68,9 @@ static int closed_form(const double pose[16], const double *current,
         if (status) *status = MAST3_IK_INVALID_INPUT;
         return 0;
     }
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double q1y = 1500.0 - pz;
+
     /* th1: z of A1^-1 p = A2 A3 t
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t1_0 = px*px + py*py;
@@ -111,7 +104,6 @@ static int closed_form(const double pose[16], const double *current,
 
         /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double q1x = c1*px + py*s1;
-        const double q1y = 1500.0 - pz;
 
         /* th2: x of A2^-1 A1^-1 p = A3 t
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -181,7 +173,9 @@ static int closed_form(const double pose[16], const double *current,
                 out->singular = free1 || root1 == 0.0 || free2 || root2 == 0.0;
                 out->conditioning[0] = root1 * 0.001;
                 out->conditioning[1] = root2 * 0.001;
-                out->within_limits = within(out->joints);
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
             }
 
         }
@@ -252,16 +246,17 @@ static int solve(const double pose_in[16], const double *current, mast3_ik_limit
                  mast3_ik_solution solutions[MAST3_IK_MAX_SOLUTIONS],
                  mast3_ik_status *status, int check)
 {
-    mast3_ik_solution raw[MAST3_IK_CLOSED_FORM];
+    mast3_ik_solution staged[MAST3_IK_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    mast3_ik_solution *raw = limits == MAST3_IK_LIMITS_IGNORE ? solutions : staged;
     mast3_ik_status closed_status;
     const double *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == MAST3_IK_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], MAST3_IK_MAX_SOLUTIONS - count);

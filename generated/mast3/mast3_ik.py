@@ -223,6 +223,9 @@ def _closed_form(pose, current):
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
         return solutions
+    # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    q1y = 1500 - pz
+
     # th1: z of A1^-1 p = A2 A3 t
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t1_0 = px*px + py*py
@@ -249,7 +252,6 @@ def _closed_form(pose, current):
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
-        q1y = 1500 - pz
 
         # th2: x of A2^-1 A1^-1 p = A3 t
         # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)

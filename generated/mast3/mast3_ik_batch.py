@@ -118,6 +118,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
     with numpy.errstate(all="ignore"):
         total = poses[:, :3, :].sum(axis=(1, 2)).reshape(shape)
         valid = (total - total) == 0.0
+        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        q1y = 1500 - pz
+
         # th1: z of A1^-1 p = A2 A3 t
         t1_0 = px*px + py*py
         ea1 = py
@@ -143,7 +146,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
-        q1y = 1500 - pz
 
         # th2: x of A2^-1 A1^-1 p = A3 t
         t3_0 = q1x*q1x + q1y*q1y

@@ -81,7 +81,7 @@ def inverse_batch(poses, current=None, conditioning=True):
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
     """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 3
+    shape = (n,) + (1,) * 2
 
     def entry(row, col):
         return poses[:, row, col].reshape(shape)
@@ -125,6 +125,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 0.14*rc23
         wz = pcz - 0.14*rc33
 
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        v1z = wz
+        g16_31 = rc31
+        g16_32 = rc32
+        g16_33 = rc33
+        g16_34 = pcz
+
         # th1: y of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
         ea1 = wy
@@ -135,7 +142,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free1 = en1 <= 1e-20
         valid = valid & ~numpy.where(free1, 0.0144 > 1e-20, 2e-09*en1 + er1 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
-        sg1 = _SIGNS.reshape(1, 2, 1, 1)
+        sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = 0.12*ea1 - eb1*root1*sg1
         sn1 = ea1*root1*sg1 + 0.12*eb1
@@ -151,25 +158,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
-        v1z = wz
 
-        # th3: squared norm of A2^-1 A1^-1 w = A3 c3
-        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + v1z*v1z
-        ec3 = t5_0 - 1.5365
-        er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
-
-        valid = valid & ~(er3 + 4.751738e-09 < 0.0)
-        root3 = numpy.sqrt(numpy.maximum(er3, 0.0))
-        sg3 = _SIGNS.reshape(1, 1, 2, 1)
-        valid = valid & ~((sg3 < 0.0) & ((root3 == 0.0)))
-        cn3 = 0.187*ec3 + 1.53*root3*sg3
-        sn3 = -1.53*ec3 + 0.187*root3*sg3
-        th3 = numpy.arctan2(sn3, cn3)
-        c3 = 0.4208986269865889*cn3
-        s3 = 0.4208986269865889*sn3
-        cond3 = root3 * 0.648767005161783
-
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*rc11 + rc21*s1
         g16_12 = c1*rc12 + rc22*s1
         g16_13 = c1*rc13 + rc23*s1
@@ -178,10 +168,28 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_22 = c1*rc22 - rc12*s1
         g16_23 = c1*rc23 - rc13*s1
         g16_24 = c1*pcy - pcx*s1
-        g16_31 = rc31
-        g16_32 = rc32
-        g16_33 = rc33
-        g16_34 = pcz
+        g26_31 = g16_21
+        g26_32 = g16_22
+        g26_33 = g16_23
+        g36_31 = g26_31
+        g36_32 = g26_32
+        g36_33 = g26_33
+
+        # th3: squared norm of A2^-1 A1^-1 w = A3 c3
+        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + v1z*v1z
+        ec3 = t5_0 - 1.5365
+        er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
+
+        valid = valid & ~(er3 + 4.751738e-09 < 0.0)
+        root3 = numpy.sqrt(numpy.maximum(er3, 0.0))
+        sg3 = _SIGNS.reshape(1, 1, 2)
+        valid = valid & ~((sg3 < 0.0) & ((root3 == 0.0)))
+        cn3 = 0.187*ec3 + 1.53*root3*sg3
+        sn3 = -1.53*ec3 + 0.187*root3*sg3
+        th3 = numpy.arctan2(sn3, cn3)
+        c3 = 0.4208986269865889*cn3
+        s3 = 0.4208986269865889*sn3
+        cond3 = root3 * 0.648767005161783
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
@@ -315,9 +323,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g26_21 = -c2*g16_31 - g16_11*s2
         g26_22 = -c2*g16_32 - g16_12*s2
         g26_23 = -c2*g16_33 - g16_13*s2
-        g26_31 = g16_21
-        g26_32 = g16_22
-        g26_33 = g16_23
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
@@ -326,9 +331,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_21 = c3*g26_21 - g26_11*s3
         g36_22 = c3*g26_22 - g26_12*s3
         g36_23 = c3*g26_23 - g26_13*s3
-        g36_31 = g26_31
-        g36_32 = g26_32
-        g36_33 = g26_33
 
         # th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
         ec5 = g36_23
@@ -336,8 +338,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = _SIGNS.reshape(1, 1, 1, 2)
-        valid = valid & ~((sg5 < 0.0) & ((root5 == 0.0)))
+        sg5 = 1.0
         cn5 = ec5
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
@@ -403,18 +404,44 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u5 = th5
         u6 = th6
 
-        out_joints[..., 0] = u1 * 1.0
-        out_joints[..., 1] = u2 * 1.0
-        out_joints[..., 2] = u3 * 1.0
-        out_joints[..., 3] = u4 * 1.0
-        out_joints[..., 4] = u5 * 1.0
-        out_joints[..., 5] = u6 * 1.0
-        out_valid[...] = valid
-        out_labels[..., 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 2] = numpy.where(lm2 >= 0.0, 1, -1)
-        out_singular[...] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
+        out_joints[..., 0, 0] = u1 * 1.0
+        out_joints[..., 0, 1] = u2 * 1.0
+        out_joints[..., 0, 2] = u3 * 1.0
+        out_joints[..., 0, 3] = u4 * 1.0
+        out_joints[..., 0, 4] = u5 * 1.0
+        out_joints[..., 0, 5] = u6 * 1.0
+        out_valid[..., 0] = valid
+        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 0, 2] = numpy.where(lm2 >= 0.0, 1, -1)
+        out_singular[..., 0] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cond1
-            out_conditioning[..., 1] = cond3
-            out_conditioning[..., 2] = cond5
+            out_conditioning[..., 0, 0] = cond1
+            out_conditioning[..., 0, 1] = cond3
+            out_conditioning[..., 0, 2] = cond5
+            out_conditioning[..., 1, :] = out_conditioning[..., 0, :]
+        # the mirrored solution, in the last branch axis
+        out_valid[..., 1] = valid & (root5 > 0.0) & ~free4
+        u1 = th1
+        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u2 = th2 - -1.5707963267948966
+        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u3 = th3
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u4 = th4 + _PI
+        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u5 = -th5
+        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u6 = th6 + _PI
+        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+
+        out_joints[..., 1, 0] = out_joints[..., 0, 0]
+        out_joints[..., 1, 1] = out_joints[..., 0, 1]
+        out_joints[..., 1, 2] = out_joints[..., 0, 2]
+        out_joints[..., 1, 3] = u4 * 1.0
+        out_joints[..., 1, 4] = u5 * 1.0
+        out_joints[..., 1, 5] = u6 * 1.0
+        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 1, 2] = numpy.where(lm2 >= 0.0, -1, 1)
+        out_singular[..., 1] = out_singular[..., 0]

@@ -24,16 +24,6 @@ static const float HIGH[PACKER6_IK_F32_JOINTS] = { 3.14159266f, 2.35619449f, 2.6
 static const float TURN[PACKER6_IK_F32_JOINTS] = { 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f };
 static const int MULTI[PACKER6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
-static int within(const float q[PACKER6_IK_F32_JOINTS])
-{
-    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
-        if (!(q[j] >= LOW[j] && q[j] <= HIGH[j])) {
-            return 0;
-        }
-    }
-    return 1;
-}
-
 void packer6_ik_f32_forward(const float joints[PACKER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 1.0f * joints[0];
@@ -144,6 +134,13 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 0.14f*rc23;
     const float wz = pcz - 0.14f*rc33;
 
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float v1z = wz;
+    const float g16_31 = rc31;
+    const float g16_32 = rc32;
+    const float g16_33 = rc33;
+    const float g16_34 = pcz;
+
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
@@ -178,7 +175,22 @@ static int closed_form(const float pose[16], const float *current,
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy;
         const float v1y = c1*wy - s1*wx;
-        const float v1z = wz;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const float g16_11 = c1*rc11 + rc21*s1;
+        const float g16_12 = c1*rc12 + rc22*s1;
+        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_14 = c1*pcx + pcy*s1;
+        const float g16_21 = c1*rc21 - rc11*s1;
+        const float g16_22 = c1*rc22 - rc12*s1;
+        const float g16_23 = c1*rc23 - rc13*s1;
+        const float g16_24 = c1*pcy - pcx*s1;
+        const float g26_31 = g16_21;
+        const float g26_32 = g16_22;
+        const float g26_33 = g16_23;
+        const float g36_31 = g26_31;
+        const float g36_32 = g26_32;
+        const float g36_33 = g26_33;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -199,20 +211,6 @@ static int closed_form(const float pose[16], const float *current,
             th3 = atan2f(sn3, cn3);
             c3 = 0.420898627f*cn3;
             s3 = 0.420898627f*sn3;
-
-            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + rc21*s1;
-            const float g16_12 = c1*rc12 + rc22*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
-            const float g16_14 = c1*pcx + pcy*s1;
-            const float g16_21 = c1*rc21 - rc11*s1;
-            const float g16_22 = c1*rc22 - rc12*s1;
-            const float g16_23 = c1*rc23 - rc13*s1;
-            const float g16_24 = c1*pcy - pcx*s1;
-            const float g16_31 = rc31;
-            const float g16_32 = rc32;
-            const float g16_33 = rc33;
-            const float g16_34 = pcz;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
@@ -355,9 +353,6 @@ static int closed_form(const float pose[16], const float *current,
             const float g26_21 = -c2*g16_31 - g16_11*s2;
             const float g26_22 = -c2*g16_32 - g16_12*s2;
             const float g26_23 = -c2*g16_33 - g16_13*s2;
-            const float g26_31 = g16_21;
-            const float g26_32 = g16_22;
-            const float g26_33 = g16_23;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
@@ -366,9 +361,6 @@ static int closed_form(const float pose[16], const float *current,
             const float g36_21 = c3*g26_21 - g26_11*s3;
             const float g36_22 = c3*g26_22 - g26_12*s3;
             const float g36_23 = c3*g26_23 - g26_13*s3;
-            const float g36_31 = g26_31;
-            const float g36_32 = g26_32;
-            const float g36_33 = g26_33;
 
             /* th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -379,75 +371,100 @@ static int closed_form(const float pose[16], const float *current,
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
-            const int n5 = (root5 == 0.0f) ? 1 : 2;
-            for (int k5 = 0; k5 < n5; ++k5) {
-                const float sg5 = k5 ? -1.0f : 1.0f;
-                float th5, c5, s5;
-                const float cn5 = ec5;
-                const float sn5 = root5*sg5;
-                th5 = atan2f(sn5, cn5);
-                c5 = cn5;
-                s5 = sn5;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            const float sg5 = 1.0f;
+            float th5, c5, s5;
+            const float cn5 = ec5;
+            const float sn5 = root5*sg5;
+            th5 = atan2f(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
 
-                /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-                float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
-                int free4 = 1;
-                {
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+            int free4 = 1;
+            {
 
-                    dt4 = s5*s5;
-                    if (fabsf(dt4) > 1e-20f) {
-                        c4 = (-g36_13*s5) / dt4;
-                        s4 = (g36_33*s5) / dt4;
-                        free4 = 0;
-                        wk4 = 1e-08f;
-                    }
+                dt4 = s5*s5;
+                if (fabsf(dt4) > 1e-20f) {
+                    c4 = (-g36_13*s5) / dt4;
+                    s4 = (g36_33*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08f;
                 }
-                if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
-                    if (fabsf(dt4) > wk4) {
-                        continue;
-                    }
-                    free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-                }
-                if (free4) {
-                    th4 = (0.0f + 1.0f * (current ? current[3] : 0.0f));
-                    c4 = cosf(th4);
-                    s4 = sinf(th4);
-                } else {
-                    th4 = atan2f(s4, c4);
-                }
-
-                /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-                const float g46_11 = c4*g36_11 - g36_31*s4;
-                const float g46_12 = c4*g36_12 - g36_32*s4;
-                const float g46_31 = g36_21;
-                const float g46_32 = g36_22;
-
-                /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-                const float g56_11 = c5*g46_11 + g46_31*s5;
-                const float g56_12 = c5*g46_12 + g46_32*s5;
-
-                /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-                float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
-                int free6 = 1;
-                {
-
-                    dt6 = 1.0f;
-                    c6 = (g56_11) / dt6;
-                    s6 = (-g56_12) / dt6;
-                    free6 = 0;
-                }
-                (void)free6;
-                (void)wk6;
-                if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+            }
+            if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+                if (fabsf(dt4) > wk4) {
                     continue;
                 }
-                th6 = atan2f(s6, c6);
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0f + 1.0f * (current ? current[3] : 0.0f));
+                c4 = cosf(th4);
+                s4 = sinf(th4);
+            } else {
+                th4 = atan2f(s4, c4);
+            }
 
-                /* joint readings, configuration labels, singular flag */
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const float g46_11 = c4*g36_11 - g36_31*s4;
+            const float g46_12 = c4*g36_12 - g36_32*s4;
+            const float g46_31 = g36_21;
+            const float g46_32 = g36_22;
 
-                const float lm0 = v1x;
-                const float lm1 = 0.765f*c3 + 0.0935f*s3;
-                const float lm2 = s5;
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const float g56_11 = c5*g46_11 + g46_31*s5;
+            const float g56_12 = c5*g46_12 + g46_32*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0f;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+                continue;
+            }
+            th6 = atan2f(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+
+            const float lm0 = v1x;
+            const float lm1 = 0.765f*c3 + 0.0935f*s3;
+            const float lm2 = s5;
+            if (count < PACKER6_IK_F32_CLOSED_FORM) {
+                packer6_ik_f32_solution *out = &solutions[count++];
+                float u1 = th1;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                out->joints[0] = u1 * 1.0f;
+                float u2 = th2 - -1.57079633f;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                out->joints[1] = u2 * 1.0f;
+                out->joints[2] = th3 * 1.0f;
+                float u4 = th4;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                out->joints[3] = u4 * 1.0f;
+                out->joints[4] = th5 * 1.0f;
+                out->joints[5] = th6 * 1.0f;
+                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                out->conditioning[0] = root1 * 1.0f;
+                out->conditioning[1] = root3 * 0.648767005f;
+                out->conditioning[2] = root5 * 1.0f;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+            }
+            if (root5 > 0.0f && !free4) {
                 if (count < PACKER6_IK_F32_CLOSED_FORM) {
                     packer6_ik_f32_solution *out = &solutions[count++];
                     float u1 = th1;
@@ -456,23 +473,31 @@ static int closed_form(const float pose[16], const float *current,
                     float u2 = th2 - -1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
                     out->joints[1] = u2 * 1.0f;
-                    out->joints[2] = th3 * 1.0f;
-                    float u4 = th4;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    out->joints[2] = u3 * 1.0f;
+                    float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     out->joints[3] = u4 * 1.0f;
-                    out->joints[4] = th5 * 1.0f;
-                    out->joints[5] = th6 * 1.0f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    out->joints[4] = u5 * 1.0f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    out->joints[5] = u6 * 1.0f;
                     out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
                     out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
                     out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
                     out->conditioning[0] = root1 * 1.0f;
                     out->conditioning[1] = root3 * 0.648767005f;
                     out->conditioning[2] = root5 * 1.0f;
-                    out->within_limits = within(out->joints);
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
                 }
-
             }
+
         }
     }
     if (status) *status = count ? PACKER6_IK_F32_OK : PACKER6_IK_F32_UNREACHABLE;
@@ -541,16 +566,17 @@ static int solve(const float pose_in[16], const float *current, packer6_ik_f32_l
                  packer6_ik_f32_solution solutions[PACKER6_IK_F32_MAX_SOLUTIONS],
                  packer6_ik_f32_status *status, int check)
 {
-    packer6_ik_f32_solution raw[PACKER6_IK_F32_CLOSED_FORM];
+    packer6_ik_f32_solution staged[PACKER6_IK_F32_CLOSED_FORM];
+    /* limits ignored: the closed-form solutions go straight into the caller's array (it holds
+     * MAX_SOLUTIONS >= CLOSED_FORM); otherwise they are staged and expanded within the limits */
+    packer6_ik_f32_solution *raw = limits == PACKER6_IK_F32_LIMITS_IGNORE ? solutions : staged;
     packer6_ik_f32_status closed_status;
     const float *pose = pose_in;
     (void)check;
     int found = closed_form(pose, current, raw, &closed_status);
     int count = 0;
     if (limits == PACKER6_IK_F32_LIMITS_IGNORE) {
-        for (int i = 0; i < found; ++i) {
-            solutions[count++] = raw[i];
-        }
+        count = found;
     } else {
         for (int i = 0; i < found; ++i) {
             const int added = expand(&raw[i], &solutions[count], PACKER6_IK_F32_MAX_SOLUTIONS - count);
