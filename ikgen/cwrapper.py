@@ -21,6 +21,7 @@ import importlib.util
 import json
 import math
 import os
+import struct
 
 LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
 
@@ -65,10 +66,15 @@ def _load_extension(folder, name):
 
 
 class CompiledSolver:
-    """The C functions of one compiled solver behind the Python solver's functions."""
+    """The C functions of one compiled solver behind the Python solver's functions.
+
+    Per call it allocates only the C arrays it passes (types are resolved once, so a call is
+    safe from several threads) and reads the solutions back with ``ffi.unpack``; configurations
+    come from a table built once."""
 
     def __init__(self, spec, extension):
-        self.ffi, self.lib = extension.ffi, extension.lib
+        ffi = self.ffi = extension.ffi
+        self.lib = extension.lib
         self.spec = spec
         prefix = spec["prefix"]
         self.real = spec["real"]
@@ -76,10 +82,41 @@ class CompiledSolver:
         self.most = spec["MAX_SOLUTIONS"]
         self.labels = [tuple(values) for values in spec["LABEL_VALUES"]]
         self.conditions = len(spec["CONDITION_NAMES"])
-        self.solution_type = f"{prefix}_solution"
-        self.status_type = f"{prefix}_status *"
+        self.status_names = tuple(spec.get("STATUS_NAMES", ("ok", "unreachable", "invalid_input")))
+        self._pose_type = ffi.typeof(f"{self.real}[16]")
+        self._vector_type = ffi.typeof(f"{self.real}[3]")
+        self._joints_type = ffi.typeof(f"{self.real}[{self.dof}]")
+        self._out_type = ffi.typeof(f"{prefix}_solution[{self.most}]")
+        self._status_type = ffi.typeof(f"{prefix}_status *")
         self._forward = getattr(self.lib, f"{prefix}_forward")
         self._inverse = getattr(self.lib, f"{prefix}_inverse")
+        self._natural = {name: getattr(self.lib, f"{prefix}_{name}", None)
+                         for name in ("inverse_point", "inverse_point_angle", "inverse_point_direction")}
+        # one solution struct as a struct-module format (its fields at their offsets, padding
+        # skipped), so that all solutions are read back in one pass over the C array's bytes
+        self._record = struct.Struct(self._layout(f"{prefix}_solution"))
+        # every sign pattern of the labels (+1/-1 per label) and its words
+        self._configs = {}
+        patterns = [()]
+        for positive, negative in self.labels:
+            patterns = [p + (v,) for p in patterns for v in ((1, positive), (-1, negative))]
+        for pattern in patterns:
+            self._configs[tuple(sign for sign, _ in pattern)] = tuple(word for _, word in pattern)
+
+    def _layout(self, type_name):
+        ffi = self.ffi
+        real = "d" if self.real == "double" else "f"
+        fields = [("joints", real * self.dof), ("labels", "b" * len(self.labels)),
+                  ("singular", "i"), ("conditioning", real * self.conditions), ("within_limits", "i")]
+        layout, at, index = "=", 0, 0
+        self._slices = {}                 # field -> its slice of an unpacked record
+        for name, codes in sorted(fields, key=lambda f: ffi.offsetof(type_name, f[0])):
+            offset = ffi.offsetof(type_name, name)
+            layout += "x" * (offset - at) + codes
+            at = offset + struct.calcsize("=" + codes)
+            self._slices[name] = slice(index, index + len(codes))
+            index += len(codes)
+        return layout + "x" * (ffi.sizeof(type_name) - at)
 
     def _array(self, values, size, what):
         values = list(values)
@@ -88,33 +125,66 @@ class CompiledSolver:
         return self.ffi.new(f"{self.real}[{size}]", [float(v) for v in values])
 
     def _pose(self, pose):
-        rows = [list(row) for row in pose]
-        if len(rows) == 3:
-            rows.append([0.0, 0.0, 0.0, 1.0])
-        if len(rows) != 4 or any(len(row) != 4 for row in rows):
-            raise ValueError("pose must be a 4x4 (or 3x4) row-major homogeneous matrix")
-        return self._array([v for row in rows for v in row], 16, "pose")
+        if hasattr(pose, "tolist"):
+            pose = pose.tolist()
+        buffer = self.ffi.new(self._pose_type)
+        try:
+            if len(pose) not in (3, 4):
+                raise ValueError
+            buffer[0:4] = pose[0]
+            buffer[4:8] = pose[1]
+            buffer[8:12] = pose[2]
+            buffer[12:16] = pose[3] if len(pose) == 4 else (0.0, 0.0, 0.0, 1.0)
+        except (TypeError, ValueError, IndexError):
+            raise ValueError("pose must be a 4x4 (or 3x4) row-major homogeneous matrix of numbers") from None
+        return buffer
+
+    def _current(self, current):
+        return self.ffi.NULL if current is None else self._array(current, self.dof, "current")
 
     def forward(self, joints):
-        pose = self.ffi.new(f"{self.real}[16]")
+        pose = self.ffi.new(self._pose_type)
         self._forward(self._array(joints, self.dof, "joints"), pose)
-        return [[float(pose[4 * r + c]) for c in range(4)] for r in range(4)]
+        values = self.ffi.unpack(pose, 16)
+        return [values[0:4], values[4:8], values[8:12], values[12:16]]
 
-    def inverse(self, pose, current=None, limits="drop"):
+    def _run(self, call, args, current, limits, with_status):
         if limits not in LIMIT_MODES:
             raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
-        hint = self.ffi.NULL if current is None else self._array(current, self.dof, "current")
-        out = self.ffi.new(f"{self.solution_type}[{self.most}]")
-        status = self.ffi.new(self.status_type)
-        count = self._inverse(self._pose(pose), hint, LIMIT_MODES[limits], out, status)
-        return [self._solution(out[k]) for k in range(count)]
+        out = self.ffi.new(self._out_type)
+        status = self.ffi.new(self._status_type)
+        count = call(*args, self._current(current), LIMIT_MODES[limits], out, status)
+        solutions = [self._solution(values) for values in
+                     self._record.iter_unpack(self.ffi.buffer(out, count * self._record.size))]
+        return (solutions, self.status_names[status[0]]) if with_status else solutions
 
-    def _solution(self, raw):
-        joints = tuple(float(raw.joints[i]) for i in range(self.dof))
-        config = tuple(positive if raw.labels[i] > 0 else negative
-                       for i, (positive, negative) in enumerate(self.labels))
-        conditioning = tuple(float(raw.conditioning[i]) for i in range(self.conditions))
-        return Solution((joints, config, bool(raw.singular), conditioning, bool(raw.within_limits)))
+    def inverse(self, pose, current=None, limits="drop", with_status=False):
+        return self._run(self._inverse, (self._pose(pose),), current, limits, with_status)
+
+    def _vector(self, values, what):
+        values = list(values)
+        if len(values) != 3:
+            raise ValueError(f"{what} must hold 3 numbers, not {len(values)}")
+        return self.ffi.new(self._vector_type, [float(v) for v in values])
+
+    def inverse_point(self, point, current=None, limits="drop", with_status=False):
+        return self._run(self._natural["inverse_point"], (self._vector(point, "point"),), current, limits,
+                         with_status)
+
+    def inverse_point_angle(self, point, angle, current=None, limits="drop", with_status=False):
+        return self._run(self._natural["inverse_point_angle"], (self._vector(point, "point"), float(angle)),
+                         current, limits, with_status)
+
+    def inverse_point_direction(self, point, direction, current=None, limits="drop", with_status=False):
+        return self._run(self._natural["inverse_point_direction"],
+                         (self._vector(point, "point"), self._vector(direction, "direction")), current, limits,
+                         with_status)
+
+    def _solution(self, values):
+        part = self._slices
+        config = self._configs[tuple(1 if v > 0 else -1 for v in values[part["labels"]])]
+        return Solution((values[part["joints"]], config, bool(values[part["singular"]][0]),
+                         values[part["conditioning"]], bool(values[part["within_limits"]][0])))
 
 
 def distance(a, b, weights=None):
@@ -162,6 +232,9 @@ def _bind(namespace, spec_path):
                 if isinstance(value, list) else value
     namespace.update(forward=solver.forward, inverse=solver.inverse, nearest=nearest, ffi=solver.ffi,
                      lib=solver.lib, solver=solver)
+    for name, function in solver._natural.items():      # the target's own inputs, where the C has them
+        if function is not None:
+            namespace[name] = getattr(solver, name)
 
 
 _SPEC = os.path.splitext(os.path.abspath(__file__))[0] + ".json"
