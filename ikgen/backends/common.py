@@ -9,6 +9,7 @@ per-block temporary names, constants are printed from exact values, and nothing 
 
 from __future__ import annotations
 
+import functools
 import importlib.resources
 import math
 import re
@@ -71,7 +72,10 @@ def tidy(text: str) -> str:
     return "\n".join(out).strip("\n") + "\n"
 
 
+@functools.lru_cache(maxsize=None)
 def environment() -> jinja2.Environment:
+    """The templates' environment, made once per process so that each template is compiled once
+    (jinja2 caches compiled templates per environment)."""
     return jinja2.Environment(loader=jinja2.FileSystemLoader(str(template_directory())),
                               undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
                               keep_trailing_newline=True, autoescape=False)

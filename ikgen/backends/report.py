@@ -16,6 +16,7 @@ as powers of ten (``below 1e-11 mm``), the figures are deterministic SVG (see ik
 
 from __future__ import annotations
 
+import functools
 import inspect
 import math
 import re
@@ -685,6 +686,7 @@ def markdown_text(text) -> str:
     return re.sub(r"([\\`*_\[\]<>|#$])", r"\\\1", text)
 
 
+@functools.lru_cache(maxsize=None)
 def environment() -> jinja2.Environment:
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(common.template_directory())),
                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
