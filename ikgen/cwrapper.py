@@ -23,6 +23,97 @@ import math
 import os
 
 LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
+POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
+
+
+# Input checks, the same as the generated Python solver's: wrong shapes and types raise ValueError
+# saying what is expected (docs/solvers.md, "Bad input").
+
+def shown(value):
+    """What a value is, briefly, for an error message."""
+    if hasattr(value, "shape"):
+        return f"an array of shape {tuple(value.shape)}"
+    if isinstance(value, (list, tuple)):
+        return f"a {type(value).__name__} of {len(value)} items"
+    return f"an object of type {type(value).__name__}"
+
+
+def real(value, what):
+    """``value`` as a float; ValueError unless it is a real number (int, float or a numpy real)."""
+    if isinstance(value, float):
+        return float(value)
+    if (isinstance(value, int) and not isinstance(value, bool)) or \
+            getattr(getattr(value, "dtype", None), "kind", None) in ("f", "i", "u"):
+        try:
+            return float(value)
+        except OverflowError:      # an integer beyond the float range
+            return math.inf if value > 0 else -math.inf
+    raise ValueError(f"{what} must be real numbers (int or float), not {shown(value)}")
+
+
+def vector(values, size, what):
+    """``values`` as a list of ``size`` floats; ValueError unless a sequence of that many real numbers."""
+    if hasattr(values, "tolist"):
+        values = values.tolist()
+    if not isinstance(values, (list, tuple)) or len(values) != size:
+        raise ValueError(f"{what} must be a sequence of {size} real numbers, not {shown(values)}")
+    return [real(v, what) for v in values]
+
+
+def size_of(values):
+    """The length of a list, tuple or one-dimensional array (-1 for anything else); the functions
+    below use it where no arm is bound (JOINT_COUNT comes from the JSON file beside a copy)."""
+    if hasattr(values, "tolist"):
+        values = values.tolist()
+    return len(values) if isinstance(values, (list, tuple)) else -1
+
+
+def pose_entries(pose):
+    """The 16 entries of a 4x4 (or 3x4, completed) pose, row-major; ValueError unless the shape and
+    types are right."""
+    what = shown(pose)
+    if hasattr(pose, "tolist"):
+        pose = pose.tolist()
+    if not isinstance(pose, (list, tuple)) or len(pose) not in (3, 4) or \
+            not all(isinstance(row, (list, tuple)) and len(row) == 4 for row in pose):
+        raise ValueError(f"pose must be {POSE_FORM}, not {what}")
+    rows = [[real(v, "pose entries") for v in row] for row in pose[:3]]
+    return [v for row in rows for v in row] + [0.0, 0.0, 0.0, 1.0]
+
+
+def limits_mode(limits):
+    """The C limits mode; ValueError unless 'drop', 'flag' or 'ignore'."""
+    if not isinstance(limits, str) or limits not in LIMIT_MODES:
+        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
+    return LIMIT_MODES[limits]
+
+
+def readings(current, size):
+    """Readings for ``current``: ValueError unless a sequence of ``size`` real numbers; a NaN or
+    infinite entry counts as no reading (0), as in C."""
+    if current is None:
+        raise ValueError(f"current must be a sequence of {size} real numbers, not None")
+    return [v if v - v == 0.0 else 0.0 for v in vector(current, size, "current")]
+
+
+def wanted_config(config, label_names, label_values):
+    """``config`` checked: None, a dict {label name: value} or a sequence of values (None: any)."""
+    if config is None:
+        return None
+    if isinstance(config, dict):
+        items = list(config.items())
+    elif isinstance(config, (list, tuple)) and len(config) == len(label_names):
+        items = [(name, value) for name, value in zip(label_names, config) if value is not None]
+    else:
+        raise ValueError(f"config must be a dict (label name: value) or a sequence of {len(label_names)} values "
+                         f"(None for any), not {shown(config)}")
+    for name, value in items:
+        if name not in label_names:
+            raise ValueError(f"config names a label {name!r:.80}; the labels are {', '.join(label_names)}")
+        values = tuple(label_values[label_names.index(name)])
+        if value not in values:
+            raise ValueError(f"label {name!r} takes one of {values}, not {value!r:.80}")
+    return config
 
 
 class Solution(tuple):
@@ -82,31 +173,23 @@ class CompiledSolver:
         self._inverse = getattr(self.lib, f"{prefix}_inverse")
 
     def _array(self, values, size, what):
-        values = list(values)
-        if len(values) != size:
-            raise ValueError(f"{what} must hold {size} numbers, not {len(values)}")
-        return self.ffi.new(f"{self.real}[{size}]", [float(v) for v in values])
-
-    def _pose(self, pose):
-        rows = [list(row) for row in pose]
-        if len(rows) == 3:
-            rows.append([0.0, 0.0, 0.0, 1.0])
-        if len(rows) != 4 or any(len(row) != 4 for row in rows):
-            raise ValueError("pose must be a 4x4 (or 3x4) row-major homogeneous matrix")
-        return self._array([v for row in rows for v in row], 16, "pose")
+        return self.ffi.new(f"{self.real}[{size}]", vector(values, size, what))
 
     def forward(self, joints):
+        joints = vector(joints, self.dof, "joints")
+        if sum(joints) - sum(joints) != 0.0:
+            raise ValueError(f"joints must be finite numbers, not {joints}")
         pose = self.ffi.new(f"{self.real}[16]")
         self._forward(self._array(joints, self.dof, "joints"), pose)
         return [[float(pose[4 * r + c]) for c in range(4)] for r in range(4)]
 
     def inverse(self, pose, current=None, limits="drop"):
-        if limits not in LIMIT_MODES:
-            raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
+        entries = self.ffi.new(f"{self.real}[16]", pose_entries(pose))
+        mode = limits_mode(limits)
         hint = self.ffi.NULL if current is None else self._array(current, self.dof, "current")
         out = self.ffi.new(f"{self.solution_type}[{self.most}]")
         status = self.ffi.new(self.status_type)
-        count = self._inverse(self._pose(pose), hint, LIMIT_MODES[limits], out, status)
+        count = self._inverse(entries, hint, mode, out, status)
         return [self._solution(out[k]) for k in range(count)]
 
     def _solution(self, raw):
@@ -118,7 +201,12 @@ class CompiledSolver:
 
 
 def distance(a, b, weights=None):
-    """Weighted Euclidean distance between two joint vectors, in reading units."""
+    """Weighted Euclidean distance between two joint vectors, in reading units (ValueError unless
+    both, and ``weights``, are sequences of real numbers of the same length)."""
+    a = vector(a, globals().get("JOINT_COUNT", size_of(a)), "joint vectors")
+    b = vector(b, len(a), "joint vectors")
+    if weights is not None:
+        weights = vector(weights, len(a), "weights")
     if weights is None:
         return math.sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
     return math.sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
@@ -126,6 +214,9 @@ def distance(a, b, weights=None):
 
 def sort_nearest(solutions, current, weights=None):
     """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, tuple) and len(s) == 5 for s in solutions):
+        raise ValueError(f"solutions must be a list of Solution (as inverse returns), not {shown(solutions)}")
+    current = readings(current, globals().get("JOINT_COUNT", size_of(current)))
     return sorted(solutions, key=lambda s: distance(s[0], current, weights))
 
 
@@ -147,6 +238,10 @@ def _bind(namespace, spec_path):
     def nearest(pose, current, weights=None, config=None, limits="drop"):
         """The solution closest to ``current`` (of configuration ``config`` if given: a dict such
         as {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
+        current = readings(current, solver.dof)
+        config = wanted_config(config, label_names, spec["LABEL_VALUES"])
+        if weights is not None:
+            weights = vector(weights, solver.dof, "weights")
         best, best_distance = None, 0.0
         for solution in solver.inverse(pose, current, limits):
             if not _matches(solution[1], config, label_names):
