@@ -237,6 +237,31 @@ static int within(const float q[GIMBAL6_IK_F32_JOINTS])
     return 1;
 }
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const gimbal6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < GIMBAL6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < GIMBAL6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void gimbal6_ik_f32_forward(const float joints[GIMBAL6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -345,10 +370,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = GIMBAL6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -383,7 +406,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24f;
     if (free6) {
-        rt6[0] = (0.0f + 0.0174532925f * (current ? current[5] : 0.0f));
+        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
         rc6[0] = cosf(rt6[0]);
         rs6[0] = sinf(rt6[0]);
         rd6[0] = 0;
@@ -442,7 +465,7 @@ static int closed_form(const float pose[16], const float *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0f + 0.0174532925f * (current ? current[4] : 0.0f));
+            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? current[4] : 0.0f));
             c5 = cosf(th5);
             s5 = sinf(th5);
         } else {
@@ -493,7 +516,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec2 = 0.5f*g03_32 + 0.866025404f*g03_33;
         const float er2 = g03_31*g03_31 + (-0.866025404f*g03_32 + 0.5f*g03_33)*(-0.866025404f*g03_32 + 0.5f*g03_33);
 
-        if (er2 + 2e-09f < 0.0f) {
+        if (er2 + 2e-05f < 0.0f) {
             continue;
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
@@ -527,7 +550,7 @@ static int closed_form(const float pose[16], const float *current,
                 free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free1) {
-                th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+                th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
@@ -585,6 +608,9 @@ static int closed_form(const float pose[16], const float *current,
                 out->conditioning[0] = cnd6;
                 out->conditioning[1] = root2 * 1.0f;
                 out->within_limits = within(out->joints);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
 
         }

@@ -34,6 +34,31 @@ static int within(const float q[MAST3_IK_F32_JOINTS])
     return 1;
 }
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const mast3_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < MAST3_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < MAST3_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void mast3_ik_f32_forward(const float joints[MAST3_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -71,10 +96,8 @@ static int closed_form(const float pose[16], const float *current,
     const float px = pose[3];
     const float py = pose[7];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = MAST3_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -87,7 +110,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t1_0 - 14400.0f;
 
     const int free1 = en1 <= 1e-14f;
-    if (free1 ? 14400.0f > 1e-14f : 2e-09f*en1 + er1 < 0.0f) {
+    if (free1 ? 14400.0f > 1e-14f : 2e-05f*en1 + er1 < 0.0f) {
         if (status) *status = MAST3_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -97,7 +120,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -121,7 +144,7 @@ static int closed_form(const float pose[16], const float *current,
         const float en2 = t3_0;
 
         const int free2 = en2 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.0f*en2 < 0.0f) {
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*en2 < 0.0f) {
             continue;
         }
         const float root2 = en2 > 0.0f ? sqrtf(en2) : 0.0f;
@@ -130,7 +153,7 @@ static int closed_form(const float pose[16], const float *current,
             const float sg2 = k2 ? -1.0f : 1.0f;
             float th2, c2, s2;
             if (free2) {
-                th2 = (0.0f + 0.0174532925f * (current ? current[1] : 0.0f));
+                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -182,6 +205,9 @@ static int closed_form(const float pose[16], const float *current,
                 out->conditioning[0] = root1 * 0.001f;
                 out->conditioning[1] = root2 * 0.001f;
                 out->within_limits = within(out->joints);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
 
         }

@@ -34,6 +34,31 @@ static int within(const double q[SEEDLING6_IK_JOINTS])
     return 1;
 }
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 9.9999999999999998e+149
+
+static int valid_pose(const double pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const seedling6_ik_solution *s)
+{
+    double total = 0.0;
+    for (int j = 0; j < SEEDLING6_IK_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < SEEDLING6_IK_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0;
+}
+
 void seedling6_ik_forward(const double joints[SEEDLING6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.52359877559829893 + 1.0 * joints[0];
@@ -121,10 +146,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
-    const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose)) {
         if (status) *status = SEEDLING6_IK_INVALID_INPUT;
         return 0;
     }
@@ -165,7 +188,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.52359877559829893 + 1.0 * (current ? current[0] : 0.0));
+            th1 = (0.52359877559829893 + 1.0 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -300,7 +323,7 @@ static int closed_form(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.5707963267948966 + 1.0 * (current ? current[1] : 0.0));
+                th2 = (-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -368,7 +391,7 @@ static int closed_form(const double pose[16], const double *current,
                     free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free4) {
-                    th4 = (0.0 + 1.0 * (current ? current[3] : 0.0));
+                    th4 = (0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
                     c4 = cos(th4);
                     s4 = sin(th4);
                 } else {
@@ -429,6 +452,9 @@ static int closed_form(const double pose[16], const double *current,
                     out->conditioning[1] = root3 * 4.1808285302940718;
                     out->conditioning[2] = root5 * 1.0;
                     out->within_limits = within(out->joints);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
 
             }

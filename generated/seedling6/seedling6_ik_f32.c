@@ -34,6 +34,31 @@ static int within(const float q[SEEDLING6_IK_F32_JOINTS])
     return 1;
 }
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const seedling6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < SEEDLING6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < SEEDLING6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void seedling6_ik_f32_forward(const float joints[SEEDLING6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.523598776f + 1.0f * joints[0];
@@ -121,10 +146,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = SEEDLING6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -155,7 +178,7 @@ static int closed_form(const float pose[16], const float *current,
     const float en1 = t3_0;
 
     const int free1 = en1 <= 1e-21f;
-    if (free1 ? 0.0f > 1e-21f : 1.0f*en1 < 0.0f) {
+    if (free1 ? 0.0f > 1e-21f : 1.00002f*en1 < 0.0f) {
         if (status) *status = SEEDLING6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -165,7 +188,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.523598776f + 1.0f * (current ? current[0] : 0.0f));
+            th1 = (0.523598776f + 1.0f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -188,7 +211,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec3 = t5_0 - 0.239325f;
         const float er3 = (0.47851204f - t5_0)*(t5_0 - 0.000137960217f);
 
-        if (er3 + 1.1442088e-10f < 0.0f) {
+        if (er3 + 1.1442088e-06f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -300,7 +323,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.57079633f + 1.0f * (current ? current[1] : 0.0f));
+                th2 = (-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -334,7 +357,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec5 = g36_33;
             const float er5 = g36_13*g36_13 + g36_23*g36_23;
 
-            if (er5 + 2e-09f < 0.0f) {
+            if (er5 + 2e-05f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -368,7 +391,7 @@ static int closed_form(const float pose[16], const float *current,
                     free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free4) {
-                    th4 = (0.0f + 1.0f * (current ? current[3] : 0.0f));
+                    th4 = (0.0f + 1.0f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
                     c4 = cosf(th4);
                     s4 = sinf(th4);
                 } else {
@@ -429,6 +452,9 @@ static int closed_form(const float pose[16], const float *current,
                     out->conditioning[1] = root3 * 4.18082853f;
                     out->conditioning[2] = root5 * 1.0f;
                     out->within_limits = within(out->joints);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
 
             }
