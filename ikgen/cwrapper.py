@@ -214,8 +214,8 @@ def distance(a, b, weights=None):
 
 def sort_nearest(solutions, current, weights=None):
     """The solutions ordered by distance from ``current`` (ties keep their order)."""
-    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, tuple) and len(s) == 5 for s in solutions):
-        raise ValueError(f"solutions must be a list of Solution (as inverse returns), not {shown(solutions)}")
+    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, (tuple, list)) and s for s in solutions):
+        raise ValueError(f"solutions must be a list of solutions (tuples whose first item is the readings), not {shown(solutions)}")
     current = readings(current, globals().get("JOINT_COUNT", size_of(current)))
     return sorted(solutions, key=lambda s: distance(s[0], current, weights))
 

@@ -282,7 +282,7 @@ def test_wrong_options_raise_value_error(arms, stem):
         raises_clearly(lambda: solver.nearest(POSE, [0.0] * dof, None, {first: "sideways"}), "takes one of")
         raises_clearly(lambda: solver.nearest(POSE, [0.0] * dof, None, "elbow_up"), "config")
     raises_clearly(lambda: entry.python.forward([math.nan] * dof), "finite")
-    raises_clearly(lambda: entry.python.sort_nearest(None, [0.0] * dof), "list of Solution")
+    raises_clearly(lambda: entry.python.sort_nearest(None, [0.0] * dof), "list of solutions")
     natural = {"point_and_direction": "inverse_point_direction", "point_and_angle": "inverse_point_angle"}
     if entry.target.kind in natural:
         call = natural[entry.target.kind]

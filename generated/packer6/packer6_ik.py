@@ -236,8 +236,8 @@ def sort_nearest(solutions, current, weights=None):
     if current is None:
         raise ValueError(f"current must be a sequence of {JOINT_COUNT} real numbers, not None")
     current = _readings(current)
-    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, tuple) and len(s) == 5 for s in solutions):
-        raise ValueError(f"solutions must be a list of Solution (as inverse returns), not {_shown(solutions)}")
+    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, (tuple, list)) and s for s in solutions):
+        raise ValueError(f"solutions must be a list of solutions (tuples whose first item is the readings), not {_shown(solutions)}")
     return sorted(solutions, key=lambda s: distance(s[0], current, weights))
 
 def _wanted(config):
