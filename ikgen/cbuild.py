@@ -22,6 +22,7 @@ import numpy as np
 
 from .backends import c as c_backend
 from .backends.common import environment
+from .cwrapper import limits_mode, pose_entries, real, vector, wanted_config
 from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
@@ -56,7 +57,7 @@ class CSolver:
         return self.ffi.cast(f"{self.scalar.name} *", self.ffi.from_buffer(array))
 
     def forward(self, joints) -> list[list[float]]:
-        q = np.ascontiguousarray(joints, dtype=self.dtype)
+        q = np.array(vector(joints, self.dof, "joints"), dtype=self.dtype)
         pose = np.zeros(16, dtype=self.dtype)
         self._forward(self._pointer(q), self._pointer(pose))
         return pose.reshape(4, 4).astype(float).tolist()
@@ -64,15 +65,16 @@ class CSolver:
     LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
 
     def _flat_pose(self, pose) -> np.ndarray:
-        flat = np.ascontiguousarray(np.asarray(pose, dtype=self.dtype)[:4].reshape(-1)[:16])
-        if flat.size == 12:
-            flat = np.concatenate([flat, np.array([0, 0, 0, 1], dtype=self.dtype)])
-        return flat
+        """The 16 entries of a pose; ValueError (ikgen/cwrapper.py) for a wrong shape or type."""
+        if isinstance(pose, np.ndarray) and pose.dtype.kind == "f" and pose.shape in ((4, 4), (3, 4)):
+            flat = np.ascontiguousarray(pose[:3], dtype=self.dtype).reshape(-1)       # the common case, fast
+            return np.concatenate([flat, np.array([0, 0, 0, 1], dtype=self.dtype)])
+        return np.array(pose_entries(pose), dtype=self.dtype)
 
-    def _joints_pointer(self, values):
+    def _joints_pointer(self, values, what="current"):
         if values is None:
             return self.ffi.NULL, None
-        keep = np.ascontiguousarray(values, dtype=self.dtype)
+        keep = np.array(vector(values, self.dof, what), dtype=self.dtype)
         return self._pointer(keep), keep
 
     def _tuple(self, solution) -> tuple:
@@ -92,16 +94,16 @@ class CSolver:
         """The Python back-end's inverse(): (joints, config, singular, conditioning, within_limits)."""
         flat = self._flat_pose(pose)
         hint, _keep = self._joints_pointer(current)
-        count = self._inverse(self._pointer(flat), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+        count = self._inverse(self._pointer(flat), hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
 
-    def _vector(self, values) -> np.ndarray:
-        return np.ascontiguousarray(np.asarray(values, dtype=self.dtype).reshape(3))
+    def _vector(self, values, what="point") -> np.ndarray:
+        return np.array(vector(values, 3, what), dtype=self.dtype)
 
     def inverse_point(self, point, current=None, limits="drop", with_status=False):
         p = self._vector(point)
         hint, _keep = self._joints_pointer(current)
-        count = getattr(self.lib, f"{self.prefix}_inverse_point")(self._pointer(p), hint, self.LIMIT_MODES[limits],
+        count = getattr(self.lib, f"{self.prefix}_inverse_point")(self._pointer(p), hint, limits_mode(limits),
                                                                   self._solutions, self._status)
         return self._answer(count, with_status)
 
@@ -109,20 +111,20 @@ class CSolver:
         p = self._vector(point)
         hint, _keep = self._joints_pointer(current)
         count = getattr(self.lib, f"{self.prefix}_inverse_point_angle")(
-            self._pointer(p), float(angle), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+            self._pointer(p), real(angle, "angle"), hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
 
     def inverse_point_direction(self, point, direction, current=None, limits="drop", with_status=False):
-        p, u = self._vector(point), self._vector(direction)
+        p, u = self._vector(point), self._vector(direction, "direction")
         hint, _keep = self._joints_pointer(current)
         count = getattr(self.lib, f"{self.prefix}_inverse_point_direction")(
-            self._pointer(p), self._pointer(u), hint, self.LIMIT_MODES[limits], self._solutions, self._status)
+            self._pointer(p), self._pointer(u), hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
 
     def wanted(self, config) -> object:
         """The C filter for a configuration: NULL for any, else +1/-1/0 per label. ``config`` as in
         the Python solver: a dict {label name: value} or a sequence with None for 'any'."""
-        if config is None:
+        if wanted_config(config, self.label_names, self.labels) is None:
             return self.ffi.NULL
         signs = [0] * len(self.labels)
         items = config.items() if isinstance(config, dict) else zip(self.label_names, config)
@@ -138,19 +140,23 @@ class CSolver:
 
     def nearest(self, pose, current, weights=None, config=None, limits="drop") -> tuple | None:
         flat = self._flat_pose(pose)
+        if current is None:
+            raise ValueError(f"current must be a sequence of {self.dof} real numbers, not None")
         here, _keep1 = self._joints_pointer(current)
-        w, _keep2 = self._joints_pointer(weights)
+        w, _keep2 = self._joints_pointer(weights, "weights")
         best = self.ffi.new(f"{self.prefix}_solution *")
         found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), here, w, self.wanted(config),
-                                                            self.LIMIT_MODES[limits], best, self._status)
+                                                            limits_mode(limits), best, self._status)
         return self._tuple(best[0]) if found else None
 
     def sort_nearest(self, pose, current, weights=None, limits="drop") -> list[tuple]:
         """inverse() then the C sort by distance from ``current``."""
         flat = self._flat_pose(pose)
+        if current is None:
+            raise ValueError(f"current must be a sequence of {self.dof} real numbers, not None")
         here, _keep1 = self._joints_pointer(current)
-        w, _keep2 = self._joints_pointer(weights)
-        count = self._inverse(self._pointer(flat), here, self.LIMIT_MODES[limits], self._solutions, self._status)
+        w, _keep2 = self._joints_pointer(weights, "weights")
+        count = self._inverse(self._pointer(flat), here, limits_mode(limits), self._solutions, self._status)
         getattr(self.lib, f"{self.prefix}_sort_nearest")(self._solutions, count, here, w)
         return [self._tuple(self._solutions[k]) for k in range(count)]
 
@@ -166,7 +172,7 @@ class CSolver:
         counts = np.zeros(n, dtype=np.int32)
         labels = np.zeros((n, self.max_solutions, max(len(self.labels), 1)), dtype=np.int8)
         singular = np.zeros((n, self.max_solutions), dtype=np.int32)
-        self._many(n, self._pointer(poses), self.LIMIT_MODES[limits], self._pointer(joints),
+        self._many(n, self._pointer(poses), limits_mode(limits), self._pointer(joints),
                    self.ffi.cast("int *", self.ffi.from_buffer(counts)),
                    self.ffi.cast("signed char *", self.ffi.from_buffer(labels)),
                    self.ffi.cast("int *", self.ffi.from_buffer(singular)))

@@ -24,6 +24,97 @@ import os
 import struct
 
 LIMIT_MODES = {"drop": 0, "flag": 1, "ignore": 2}
+POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
+
+
+# Input checks, the same as the generated Python solver's: wrong shapes and types raise ValueError
+# saying what is expected (docs/solvers.md, "Bad input").
+
+def shown(value):
+    """What a value is, briefly, for an error message."""
+    if hasattr(value, "shape"):
+        return f"an array of shape {tuple(value.shape)}"
+    if isinstance(value, (list, tuple)):
+        return f"a {type(value).__name__} of {len(value)} items"
+    return f"an object of type {type(value).__name__}"
+
+
+def real(value, what):
+    """``value`` as a float; ValueError unless it is a real number (int, float or a numpy real)."""
+    if isinstance(value, float):
+        return float(value)
+    if (isinstance(value, int) and not isinstance(value, bool)) or \
+            getattr(getattr(value, "dtype", None), "kind", None) in ("f", "i", "u"):
+        try:
+            return float(value)
+        except OverflowError:      # an integer beyond the float range
+            return math.inf if value > 0 else -math.inf
+    raise ValueError(f"{what} must be real numbers (int or float), not {shown(value)}")
+
+
+def vector(values, size, what):
+    """``values`` as a list of ``size`` floats; ValueError unless a sequence of that many real numbers."""
+    if hasattr(values, "tolist"):
+        values = values.tolist()
+    if not isinstance(values, (list, tuple)) or len(values) != size:
+        raise ValueError(f"{what} must be a sequence of {size} real numbers, not {shown(values)}")
+    return [real(v, what) for v in values]
+
+
+def size_of(values):
+    """The length of a list, tuple or one-dimensional array (-1 for anything else); the functions
+    below use it where no arm is bound (JOINT_COUNT comes from the JSON file beside a copy)."""
+    if hasattr(values, "tolist"):
+        values = values.tolist()
+    return len(values) if isinstance(values, (list, tuple)) else -1
+
+
+def pose_entries(pose):
+    """The 16 entries of a 4x4 (or 3x4, completed) pose, row-major; ValueError unless the shape and
+    types are right."""
+    what = shown(pose)
+    if hasattr(pose, "tolist"):
+        pose = pose.tolist()
+    if not isinstance(pose, (list, tuple)) or len(pose) not in (3, 4) or \
+            not all(isinstance(row, (list, tuple)) and len(row) == 4 for row in pose):
+        raise ValueError(f"pose must be {POSE_FORM}, not {what}")
+    rows = [[real(v, "pose entries") for v in row] for row in pose[:3]]
+    return [v for row in rows for v in row] + [0.0, 0.0, 0.0, 1.0]
+
+
+def limits_mode(limits):
+    """The C limits mode; ValueError unless 'drop', 'flag' or 'ignore'."""
+    if not isinstance(limits, str) or limits not in LIMIT_MODES:
+        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
+    return LIMIT_MODES[limits]
+
+
+def readings(current, size):
+    """Readings for ``current``: ValueError unless a sequence of ``size`` real numbers; a NaN or
+    infinite entry counts as no reading (0), as in C."""
+    if current is None:
+        raise ValueError(f"current must be a sequence of {size} real numbers, not None")
+    return [v if v - v == 0.0 else 0.0 for v in vector(current, size, "current")]
+
+
+def wanted_config(config, label_names, label_values):
+    """``config`` checked: None, a dict {label name: value} or a sequence of values (None: any)."""
+    if config is None:
+        return None
+    if isinstance(config, dict):
+        items = list(config.items())
+    elif isinstance(config, (list, tuple)) and len(config) == len(label_names):
+        items = [(name, value) for name, value in zip(label_names, config) if value is not None]
+    else:
+        raise ValueError(f"config must be a dict (label name: value) or a sequence of {len(label_names)} values "
+                         f"(None for any), not {shown(config)}")
+    for name, value in items:
+        if name not in label_names:
+            raise ValueError(f"config names a label {name!r:.80}; the labels are {', '.join(label_names)}")
+        values = tuple(label_values[label_names.index(name)])
+        if value not in values:
+            raise ValueError(f"label {name!r} takes one of {values}, not {value!r:.80}")
+    return config
 
 
 class Solution(tuple):
@@ -119,41 +210,28 @@ class CompiledSolver:
         return layout + "x" * (ffi.sizeof(type_name) - at)
 
     def _array(self, values, size, what):
-        values = list(values)
-        if len(values) != size:
-            raise ValueError(f"{what} must hold {size} numbers, not {len(values)}")
-        return self.ffi.new(f"{self.real}[{size}]", [float(v) for v in values])
+        return self.ffi.new(f"{self.real}[{size}]", vector(values, size, what))
 
     def _pose(self, pose):
-        if hasattr(pose, "tolist"):
-            pose = pose.tolist()
-        buffer = self.ffi.new(self._pose_type)
-        try:
-            if len(pose) not in (3, 4):
-                raise ValueError
-            buffer[0:4] = pose[0]
-            buffer[4:8] = pose[1]
-            buffer[8:12] = pose[2]
-            buffer[12:16] = pose[3] if len(pose) == 4 else (0.0, 0.0, 0.0, 1.0)
-        except (TypeError, ValueError, IndexError):
-            raise ValueError("pose must be a 4x4 (or 3x4) row-major homogeneous matrix of numbers") from None
-        return buffer
+        return self.ffi.new(self._pose_type, pose_entries(pose))
 
     def _current(self, current):
         return self.ffi.NULL if current is None else self._array(current, self.dof, "current")
 
     def forward(self, joints):
+        joints = vector(joints, self.dof, "joints")
+        if sum(joints) - sum(joints) != 0.0:
+            raise ValueError(f"joints must be finite numbers, not {joints}")
         pose = self.ffi.new(self._pose_type)
         self._forward(self._array(joints, self.dof, "joints"), pose)
         values = self.ffi.unpack(pose, 16)
         return [values[0:4], values[4:8], values[8:12], values[12:16]]
 
     def _run(self, call, args, current, limits, with_status):
-        if limits not in LIMIT_MODES:
-            raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
+        mode = limits_mode(limits)
         out = self.ffi.new(self._out_type)
         status = self.ffi.new(self._status_type)
-        count = call(*args, self._current(current), LIMIT_MODES[limits], out, status)
+        count = call(*args, self._current(current), mode, out, status)
         solutions = [self._solution(values) for values in
                      self._record.iter_unpack(self.ffi.buffer(out, count * self._record.size))]
         return (solutions, self.status_names[status[0]]) if with_status else solutions
@@ -162,17 +240,14 @@ class CompiledSolver:
         return self._run(self._inverse, (self._pose(pose),), current, limits, with_status)
 
     def _vector(self, values, what):
-        values = list(values)
-        if len(values) != 3:
-            raise ValueError(f"{what} must hold 3 numbers, not {len(values)}")
-        return self.ffi.new(self._vector_type, [float(v) for v in values])
+        return self.ffi.new(self._vector_type, vector(values, 3, what))
 
     def inverse_point(self, point, current=None, limits="drop", with_status=False):
         return self._run(self._natural["inverse_point"], (self._vector(point, "point"),), current, limits,
                          with_status)
 
     def inverse_point_angle(self, point, angle, current=None, limits="drop", with_status=False):
-        return self._run(self._natural["inverse_point_angle"], (self._vector(point, "point"), float(angle)),
+        return self._run(self._natural["inverse_point_angle"], (self._vector(point, "point"), real(angle, "angle")),
                          current, limits, with_status)
 
     def inverse_point_direction(self, point, direction, current=None, limits="drop", with_status=False):
@@ -188,7 +263,12 @@ class CompiledSolver:
 
 
 def distance(a, b, weights=None):
-    """Weighted Euclidean distance between two joint vectors, in reading units."""
+    """Weighted Euclidean distance between two joint vectors, in reading units (ValueError unless
+    both, and ``weights``, are sequences of real numbers of the same length)."""
+    a = vector(a, globals().get("JOINT_COUNT", size_of(a)), "joint vectors")
+    b = vector(b, len(a), "joint vectors")
+    if weights is not None:
+        weights = vector(weights, len(a), "weights")
     if weights is None:
         return math.sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
     return math.sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
@@ -196,6 +276,9 @@ def distance(a, b, weights=None):
 
 def sort_nearest(solutions, current, weights=None):
     """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, (tuple, list)) and s for s in solutions):
+        raise ValueError(f"solutions must be a list of solutions (tuples whose first item is the readings), not {shown(solutions)}")
+    current = readings(current, globals().get("JOINT_COUNT", size_of(current)))
     return sorted(solutions, key=lambda s: distance(s[0], current, weights))
 
 
@@ -217,6 +300,10 @@ def _bind(namespace, spec_path):
     def nearest(pose, current, weights=None, config=None, limits="drop"):
         """The solution closest to ``current`` (of configuration ``config`` if given: a dict such
         as {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
+        current = readings(current, solver.dof)
+        config = wanted_config(config, label_names, spec["LABEL_VALUES"])
+        if weights is not None:
+            weights = vector(weights, solver.dof, "weights")
         best, best_distance = None, 0.0
         for solution in solver.inverse(pose, current, limits):
             if not _matches(solution[1], config, label_names):

@@ -24,6 +24,31 @@ static const float HIGH[BENCHTOP6_IK_F32_JOINTS] = { 170.0f, 120.0f, 150.0f, 180
 static const float TURN[BENCHTOP6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[BENCHTOP6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const benchtop6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < BENCHTOP6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < BENCHTOP6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void benchtop6_ik_f32_forward(const float joints[BENCHTOP6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -112,10 +137,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = BENCHTOP6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -153,7 +176,7 @@ static int closed_form(const float pose[16], const float *current,
     const float en1 = t3_0;
 
     const int free1 = en1 <= 1e-15f;
-    if (free1 ? 0.0f > 1e-15f : 1.0f*en1 < 0.0f) {
+    if (free1 ? 0.0f > 1e-15f : 1.00002f*en1 < 0.0f) {
         if (status) *status = BENCHTOP6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -163,7 +186,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -201,7 +224,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec3 = t5_0 - 125600.0f;
         const float er3 = (250832.584f - t5_0)*(t5_0 - 367.416381f);
 
-        if (er3 + 31.3664f < 0.0f) {
+        if (er3 + 313664.0f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -308,7 +331,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.57079633f + 0.0174532925f * (current ? current[1] : 0.0f));
+                th2 = (-1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -336,7 +359,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec5 = g36_33;
             const float er5 = g36_13*g36_13 + g36_23*g36_23;
 
-            if (er5 + 2e-09f < 0.0f) {
+            if (er5 + 2e-05f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -369,7 +392,7 @@ static int closed_form(const float pose[16], const float *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0f + 0.0174532925f * (current ? current[3] : 0.0f));
+                th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
@@ -432,6 +455,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
             if (root5 > 0.0f && !free4) {
                 if (count < BENCHTOP6_IK_F32_CLOSED_FORM) {
@@ -464,6 +490,9 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
             }
 

@@ -24,6 +24,31 @@ static const double HIGH[BOARDPICK4_IK_JOINTS] = { 140.00000027999999, 150.00000
 static const double TURN[BOARDPICK4_IK_JOINTS] = { 360.0, 360.0, 0.0, 360.0 };
 static const int MULTI[BOARDPICK4_IK_JOINTS] = { 0, 0, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 9.9999999999999998e+149
+
+static int valid_pose(const double pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const boardpick4_ik_solution *s)
+{
+    double total = 0.0;
+    for (int j = 0; j < BOARDPICK4_IK_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < BOARDPICK4_IK_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0;
+}
+
 void boardpick4_ik_forward(const double joints[BOARDPICK4_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -78,10 +103,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r31 = pose[8];
     const double r33 = pose[10];
     const double pz = pose[11];
-    const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose)) {
         if (status) *status = BOARDPICK4_IK_INVALID_INPUT;
         return 0;
     }
@@ -130,7 +153,7 @@ static int closed_form(const double pose[16], const double *current,
         }
     }
     if (free3) {
-        l3 = (0.0 + 1.0 * (current ? current[2] : 0.0));
+        l3 = (0.0 + 1.0 * (current && current[2] - current[2] == 0.0 ? current[2] : 0.0));
     }
 
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
@@ -305,7 +328,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -342,6 +365,9 @@ static int closed_form(const double pose[16], const double *current,
             /* within the limits: only joints whose limits do not hold a whole turn can fail (the
              * readings are in one turn here), tested without branches */
             out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
+            if (!finite_solution(out)) {
+                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            }
         }
 
     }
@@ -468,9 +494,7 @@ static int solve(const double pose_in[16], const double *current, boardpick4_ik_
     boardpick4_ik_solution *raw = limits == BOARDPICK4_IK_LIMITS_IGNORE ? solutions : staged;
     boardpick4_ik_status closed_status;
     double pose[16];
-    const double finite = pose_in[0] + pose_in[1] + pose_in[2] + pose_in[3] + pose_in[4] + pose_in[5]
-                    + pose_in[6] + pose_in[7] + pose_in[8] + pose_in[9] + pose_in[10] + pose_in[11];
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose_in)) {
         if (status) *status = BOARDPICK4_IK_INVALID_INPUT;
         return 0;
     }

@@ -24,6 +24,31 @@ static const float HIGH[BOARDPICK4_IK_F32_JOINTS] = { 140.0f, 150.0f, 180.0f, 36
 static const float TURN[BOARDPICK4_IK_F32_JOINTS] = { 360.0f, 360.0f, 0.0f, 360.0f };
 static const int MULTI[BOARDPICK4_IK_F32_JOINTS] = { 0, 0, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const boardpick4_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < BOARDPICK4_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < BOARDPICK4_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void boardpick4_ik_f32_forward(const float joints[BOARDPICK4_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -78,10 +103,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r31 = pose[8];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = BOARDPICK4_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -130,7 +153,7 @@ static int closed_form(const float pose[16], const float *current,
         }
     }
     if (free3) {
-        l3 = (0.0f + 1.0f * (current ? current[2] : 0.0f));
+        l3 = (0.0f + 1.0f * (current && current[2] - current[2] == 0.0f ? current[2] : 0.0f));
     }
 
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
@@ -148,7 +171,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ec2 = t4_9 - 325650.0f;
     const float er2 = (504400.0f - t4_9)*(t4_9 - 146900.0f);
 
-    if (er2 + 63.903125f < 0.0f) {
+    if (er2 + 639031.25f < 0.0f) {
         if (status) *status = BOARDPICK4_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -305,7 +328,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -342,6 +365,9 @@ static int closed_form(const float pose[16], const float *current,
             /* within the limits: only joints whose limits do not hold a whole turn can fail (the
              * readings are in one turn here), tested without branches */
             out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
+            if (!finite_solution(out)) {
+                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            }
         }
 
     }
@@ -468,9 +494,7 @@ static int solve(const float pose_in[16], const float *current, boardpick4_ik_f3
     boardpick4_ik_f32_solution *raw = limits == BOARDPICK4_IK_F32_LIMITS_IGNORE ? solutions : staged;
     boardpick4_ik_f32_status closed_status;
     float pose[16];
-    const float finite = pose_in[0] + pose_in[1] + pose_in[2] + pose_in[3] + pose_in[4] + pose_in[5]
-                    + pose_in[6] + pose_in[7] + pose_in[8] + pose_in[9] + pose_in[10] + pose_in[11];
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose_in)) {
         if (status) *status = BOARDPICK4_IK_F32_INVALID_INPUT;
         return 0;
     }

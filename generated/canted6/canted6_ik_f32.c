@@ -227,6 +227,31 @@ static const float HIGH[CANTED6_IK_F32_JOINTS] = { 170.0f, 150.0f, 160.0f, 200.0
 static const float TURN[CANTED6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[CANTED6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const canted6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < CANTED6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < CANTED6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void canted6_ik_f32_forward(const float joints[CANTED6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -331,10 +356,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = CANTED6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -372,7 +395,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd3[4], n3;
     const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16f + 4.48363685e+20f <= 100.0f;
     if (free3) {
-        rt3[0] = (0.0f + 0.0174532925f * (current ? current[2] : 0.0f));
+        rt3[0] = (0.0f + 0.0174532925f * (current && current[2] - current[2] == 0.0f ? current[2] : 0.0f));
         rc3[0] = cosf(rt3[0]);
         rs3[0] = sinf(rt3[0]);
         rd3[0] = 0;
@@ -414,7 +437,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -553,7 +576,7 @@ static int closed_form(const float pose[16], const float *current,
             free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free2) {
-            th2 = (0.0f + 0.0174532925f * (current ? current[1] : 0.0f));
+            th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
             c2 = cosf(th2);
             s2 = sinf(th2);
         } else {
@@ -591,7 +614,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec5 = g36_33;
         const float er5 = g36_13*g36_13 + g36_23*g36_23;
 
-        if (er5 + 2e-09f < 0.0f) {
+        if (er5 + 2e-05f < 0.0f) {
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -624,7 +647,7 @@ static int closed_form(const float pose[16], const float *current,
             free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free4) {
-            th4 = (0.0f + 0.0174532925f * (current ? current[3] : 0.0f));
+            th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
             c4 = cosf(th4);
             s4 = sinf(th4);
         } else {
@@ -688,6 +711,9 @@ static int closed_form(const float pose[16], const float *current,
             /* within the limits: only joints whose limits do not hold a whole turn can fail (the
              * readings are in one turn here), tested without branches */
             out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+            if (!finite_solution(out)) {
+                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            }
         }
         if (root5 > 0.0f && !free4) {
             if (count < CANTED6_IK_F32_CLOSED_FORM) {
@@ -719,6 +745,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
         }
 

@@ -48,6 +48,7 @@ TARGET = "point_and_direction"  # what the arm is asked for: the position of the
 TOOL_AXIS = "z"  # the tool axis the direction is
 UNIT_TOLERANCE = 1e-06
 
+LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
 def inverse_batch(poses, current=None, conditioning=True):
@@ -70,6 +71,7 @@ def inverse_batch(poses, current=None, conditioning=True):
     conditioning = numpy.empty((n, RAW_SOLUTIONS, len(CONDITION_NAMES))) if want_conditioning else None
     if current is not None:
         current = numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
+        current = numpy.where(numpy.isfinite(current), current, 0.0)   # NaN or infinite: as no reading
     axes = (2, 2, 2)
     for start in range(0, n, CHUNK):
         stop = min(start + CHUNK, n)
@@ -81,6 +83,10 @@ def inverse_batch(poses, current=None, conditioning=True):
                      singular[start:stop].reshape((m,) + axes),
                      conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
                      if want_conditioning else None)
+    with numpy.errstate(invalid="ignore"):   # overflow from a huge input gives no solution
+        valid &= numpy.isfinite(joints).all(axis=-1)
+        if want_conditioning:
+            valid &= numpy.isfinite(conditioning).all(axis=-1)
     joints[~valid] = numpy.nan
     labels[~valid] = 0
     return joints, valid, labels, singular, conditioning
@@ -125,8 +131,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dh = _ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
         hint = [dh[:, k].reshape(shape) for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
-        total = poses[:, :3, :].sum(axis=(1, 2)).reshape(shape)
-        valid = (total - total) == 0.0
+        # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
+        valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # wrist point in the DH base frame: p - lam u, on the tool's axis
         wx = px - 60*r13
         wy = py - 60*r23

@@ -24,6 +24,31 @@ static const float HIGH[ENGRAVER5_IK_F32_JOINTS] = { 170.0f, 100.0f, 135.0f, 180
 static const float TURN[ENGRAVER5_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[ENGRAVER5_IK_F32_JOINTS] = { 0, 0, 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const engraver5_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < ENGRAVER5_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void engraver5_ik_f32_forward(const float joints[ENGRAVER5_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -96,10 +121,8 @@ static int closed_form(const float pose[16], const float *current,
     const float py = pose[7];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = ENGRAVER5_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -119,7 +142,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ec3 = 50900.0f - t2_0;
     const float er3 = (127319.893f - t2_0)*(t2_0 + 25519.8927f);
 
-    if (er3 + 11.68f < 0.0f) {
+    if (er3 + 116800.0f < 0.0f) {
         if (status) *status = ENGRAVER5_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -142,7 +165,7 @@ static int closed_form(const float pose[16], const float *current,
         const float en1 = t3_0;
 
         const int free1 = en1 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.0f*en1 < 0.0f) {
+        if (free1 ? 0.0f > 1e-15f : 1.00002f*en1 < 0.0f) {
             continue;
         }
         const float root1 = en1 > 0.0f ? sqrtf(en1) : 0.0f;
@@ -151,7 +174,7 @@ static int closed_form(const float pose[16], const float *current,
             const float sg1 = k1 ? -1.0f : 1.0f;
             float th1, c1, s1;
             if (free1) {
-                th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+                th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
@@ -241,7 +264,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (1.57079633f + 0.0174532925f * (current ? current[1] : 0.0f));
+                th2 = (1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -263,7 +286,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec5 = q3z - 190.0f;
             const float er5 = (250.0f - q3z)*(q3z - 130.0f);
 
-            if (er5 + 7.2e-06f < 0.0f) {
+            if (er5 + 0.072f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -296,7 +319,7 @@ static int closed_form(const float pose[16], const float *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0f + 0.0174532925f * (current ? current[3] : 0.0f));
+                th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
@@ -344,6 +367,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
             if (root5 > 0.0f && !free4) {
                 if (count < ENGRAVER5_IK_F32_CLOSED_FORM) {
@@ -373,6 +399,9 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
             }
 

@@ -227,6 +227,31 @@ static const double HIGH[GIMBAL6_IK_JOINTS] = { 170.00000034000001, 120.00000024
 static const double TURN[GIMBAL6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
 static const int MULTI[GIMBAL6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 9.9999999999999998e+149
+
+static int valid_pose(const double pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const gimbal6_ik_solution *s)
+{
+    double total = 0.0;
+    for (int j = 0; j < GIMBAL6_IK_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < GIMBAL6_IK_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0;
+}
+
 void gimbal6_ik_forward(const double joints[GIMBAL6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -335,10 +360,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
-    const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose)) {
         if (status) *status = GIMBAL6_IK_INVALID_INPUT;
         return 0;
     }
@@ -379,7 +402,7 @@ static int closed_form(const double pose[16], const double *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
     if (free6) {
-        rt6[0] = (0.0 + 0.017453292519943295 * (current ? current[5] : 0.0));
+        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
         rc6[0] = cos(rt6[0]);
         rs6[0] = sin(rt6[0]);
         rd6[0] = 0;
@@ -437,7 +460,7 @@ static int closed_form(const double pose[16], const double *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0 + 0.017453292519943295 * (current ? current[4] : 0.0));
+            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
@@ -518,7 +541,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -578,6 +601,9 @@ static int closed_form(const double pose[16], const double *current,
             /* within the limits: only joints whose limits do not hold a whole turn can fail (the
              * readings are in one turn here), tested without branches */
             out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+            if (!finite_solution(out)) {
+                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            }
         }
         if (root2 > 0.0 && !free1) {
             if (count < GIMBAL6_IK_CLOSED_FORM) {
@@ -608,6 +634,9 @@ static int closed_form(const double pose[16], const double *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
         }
 

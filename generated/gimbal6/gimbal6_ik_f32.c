@@ -227,6 +227,31 @@ static const float HIGH[GIMBAL6_IK_F32_JOINTS] = { 170.0f, 120.0f, 170.0f, 170.0
 static const float TURN[GIMBAL6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[GIMBAL6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const gimbal6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < GIMBAL6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < GIMBAL6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void gimbal6_ik_f32_forward(const float joints[GIMBAL6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -335,10 +360,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = GIMBAL6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -379,7 +402,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24f;
     if (free6) {
-        rt6[0] = (0.0f + 0.0174532925f * (current ? current[5] : 0.0f));
+        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
         rc6[0] = cosf(rt6[0]);
         rs6[0] = sinf(rt6[0]);
         rd6[0] = 0;
@@ -437,7 +460,7 @@ static int closed_form(const float pose[16], const float *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0f + 0.0174532925f * (current ? current[4] : 0.0f));
+            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? current[4] : 0.0f));
             c5 = cosf(th5);
             s5 = sinf(th5);
         } else {
@@ -485,7 +508,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec2 = 0.5f*g03_32 + 0.866025404f*g03_33;
         const float er2 = g03_31*g03_31 + (-0.866025404f*g03_32 + 0.5f*g03_33)*(-0.866025404f*g03_32 + 0.5f*g03_33);
 
-        if (er2 + 2e-09f < 0.0f) {
+        if (er2 + 2e-05f < 0.0f) {
             continue;
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
@@ -518,7 +541,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -578,6 +601,9 @@ static int closed_form(const float pose[16], const float *current,
             /* within the limits: only joints whose limits do not hold a whole turn can fail (the
              * readings are in one turn here), tested without branches */
             out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+            if (!finite_solution(out)) {
+                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            }
         }
         if (root2 > 0.0f && !free1) {
             if (count < GIMBAL6_IK_F32_CLOSED_FORM) {
@@ -608,6 +634,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
         }
 

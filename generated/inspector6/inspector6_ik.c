@@ -24,6 +24,31 @@ static const double HIGH[INSPECTOR6_IK_JOINTS] = { 175.00000034999999, 100.00000
 static const double TURN[INSPECTOR6_IK_JOINTS] = { 360.0, 360.0, 360.0, 360.0, 360.0, 360.0 };
 static const int MULTI[INSPECTOR6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 9.9999999999999998e+149
+
+static int valid_pose(const double pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const inspector6_ik_solution *s)
+{
+    double total = 0.0;
+    for (int j = 0; j < INSPECTOR6_IK_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < INSPECTOR6_IK_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0;
+}
+
 void inspector6_ik_forward(const double joints[INSPECTOR6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -110,10 +135,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
-    const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose)) {
         if (status) *status = INSPECTOR6_IK_INVALID_INPUT;
         return 0;
     }
@@ -181,7 +204,7 @@ static int closed_form(const double pose[16], const double *current,
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current ? current[0] : 0.0));
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -258,7 +281,7 @@ static int closed_form(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (1.5707963267948966 + -0.017453292519943295 * (current ? current[1] : 0.0));
+                th2 = (1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -325,7 +348,7 @@ static int closed_form(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current ? current[3] : 0.0));
+                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
@@ -390,6 +413,9 @@ static int closed_form(const double pose[16], const double *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
             if (root5 > 0.0 && !free4) {
                 if (count < INSPECTOR6_IK_CLOSED_FORM) {
@@ -422,6 +448,9 @@ static int closed_form(const double pose[16], const double *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
             }
 

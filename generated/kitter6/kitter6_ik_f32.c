@@ -24,6 +24,31 @@ static const float HIGH[KITTER6_IK_F32_JOINTS] = { 270.000001f, 175.0f, 160.0f, 
 static const float TURN[KITTER6_IK_F32_JOINTS] = { 360.0f, 360.0f, 360.0f, 360.0f, 360.0f, 360.0f };
 static const int MULTI[KITTER6_IK_F32_JOINTS] = { 1, 0, 0, 0, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const kitter6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < KITTER6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < KITTER6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void kitter6_ik_f32_forward(const float joints[KITTER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -109,10 +134,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = KITTER6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -147,7 +170,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t2_0 - 14641.0f;
 
     const int free1 = en1 <= 1e-15f;
-    if (free1 ? 14641.0f > 1e-15f : 2e-09f*en1 + er1 < 0.0f) {
+    if (free1 ? 14641.0f > 1e-15f : 2e-05f*en1 + er1 < 0.0f) {
         if (status) *status = KITTER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -157,7 +180,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -181,7 +204,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec5 = -g16_23;
         const float er5 = g16_13*g16_13 + g16_33*g16_33;
 
-        if (er5 + 2e-09f < 0.0f) {
+        if (er5 + 2e-05f < 0.0f) {
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -215,7 +238,7 @@ static int closed_form(const float pose[16], const float *current,
                 free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free6) {
-                th6 = (0.0f + 0.0174532925f * (current ? current[5] : 0.0f));
+                th6 = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
                 c6 = cosf(th6);
                 s6 = sinf(th6);
             } else {
@@ -268,7 +291,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec3 = 210566.0f - t10_0;
             const float er3 = (405266.0f - t10_0)*(t10_0 - 15866.0f);
 
-            if (er3 + 75.81618f < 0.0f) {
+            if (er3 + 758161.8f < 0.0f) {
                 continue;
             }
             const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -303,7 +326,7 @@ static int closed_form(const float pose[16], const float *current,
                     free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free2) {
-                    th2 = (1.57079633f + 0.0174532925f * (current ? current[1] : 0.0f));
+                    th2 = (1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                     c2 = cosf(th2);
                     s2 = sinf(th2);
                 } else {
@@ -345,6 +368,9 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
 
             }

@@ -24,6 +24,31 @@ static const float HIGH[MAST3_IK_F32_JOINTS] = { 170.0f, 120.0f, 2000.0f };
 static const float TURN[MAST3_IK_F32_JOINTS] = { 360.0f, 360.0f, 0.0f };
 static const int MULTI[MAST3_IK_F32_JOINTS] = { 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const mast3_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < MAST3_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < MAST3_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void mast3_ik_f32_forward(const float joints[MAST3_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -61,10 +86,8 @@ static int closed_form(const float pose[16], const float *current,
     const float px = pose[3];
     const float py = pose[7];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = MAST3_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -80,7 +103,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t1_0 - 14400.0f;
 
     const int free1 = en1 <= 1e-14f;
-    if (free1 ? 14400.0f > 1e-14f : 2e-09f*en1 + er1 < 0.0f) {
+    if (free1 ? 14400.0f > 1e-14f : 2e-05f*en1 + er1 < 0.0f) {
         if (status) *status = MAST3_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -90,7 +113,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -113,7 +136,7 @@ static int closed_form(const float pose[16], const float *current,
         const float en2 = t3_0;
 
         const int free2 = en2 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.0f*en2 < 0.0f) {
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*en2 < 0.0f) {
             continue;
         }
         const float root2 = en2 > 0.0f ? sqrtf(en2) : 0.0f;
@@ -122,7 +145,7 @@ static int closed_form(const float pose[16], const float *current,
             const float sg2 = k2 ? -1.0f : 1.0f;
             float th2, c2, s2;
             if (free2) {
-                th2 = (0.0f + 0.0174532925f * (current ? current[1] : 0.0f));
+                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -176,6 +199,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
 
         }

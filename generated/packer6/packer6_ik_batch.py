@@ -41,6 +41,7 @@ _GAIN = numpy.array([1.0, 1.0, 1.0, 1.0, 1.0, 1.0, ])
 
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
 
+LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
 CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
 
 def inverse_batch(poses, current=None, conditioning=True):
@@ -63,6 +64,7 @@ def inverse_batch(poses, current=None, conditioning=True):
     conditioning = numpy.empty((n, RAW_SOLUTIONS, len(CONDITION_NAMES))) if want_conditioning else None
     if current is not None:
         current = numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
+        current = numpy.where(numpy.isfinite(current), current, 0.0)   # NaN or infinite: as no reading
     axes = (2, 2, 2)
     for start in range(0, n, CHUNK):
         stop = min(start + CHUNK, n)
@@ -74,6 +76,10 @@ def inverse_batch(poses, current=None, conditioning=True):
                      singular[start:stop].reshape((m,) + axes),
                      conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
                      if want_conditioning else None)
+    with numpy.errstate(invalid="ignore"):   # overflow from a huge input gives no solution
+        valid &= numpy.isfinite(joints).all(axis=-1)
+        if want_conditioning:
+            valid &= numpy.isfinite(conditioning).all(axis=-1)
     joints[~valid] = numpy.nan
     labels[~valid] = 0
     return joints, valid, labels, singular, conditioning
@@ -104,8 +110,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dh = _ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
         hint = [dh[:, k].reshape(shape) for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
-        total = poses[:, :3, :].sum(axis=(1, 2)).reshape(shape)
-        valid = (total - total) == 0.0
+        # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
+        valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         rc11 = -r13
         rc12 = -r12

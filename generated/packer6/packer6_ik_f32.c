@@ -24,6 +24,31 @@ static const float HIGH[PACKER6_IK_F32_JOINTS] = { 3.14159266f, 2.35619449f, 2.6
 static const float TURN[PACKER6_IK_F32_JOINTS] = { 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f, 6.28318531f };
 static const int MULTI[PACKER6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 1e+18f
+
+static int valid_pose(const float pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const packer6_ik_f32_solution *s)
+{
+    float total = 0.0f;
+    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < PACKER6_IK_F32_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0f;
+}
+
 void packer6_ik_f32_forward(const float joints[PACKER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 1.0f * joints[0];
@@ -108,10 +133,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r32 = pose[9];
     const float r33 = pose[10];
     const float pz = pose[11];
-    const float finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0f) {
+    if (!valid_pose(pose)) {
         if (status) *status = PACKER6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -150,7 +173,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t3_0 - 0.0144f;
 
     const int free1 = en1 <= 1e-20f;
-    if (free1 ? 0.0144f > 1e-20f : 2e-09f*en1 + er1 < 0.0f) {
+    if (free1 ? 0.0144f > 1e-20f : 2e-05f*en1 + er1 < 0.0f) {
         if (status) *status = PACKER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -160,7 +183,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 1.0f * (current ? current[0] : 0.0f));
+            th1 = (0.0f + 1.0f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -198,7 +221,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec3 = t5_0 - 1.5365f;
         const float er3 = (3.07788542f - t5_0)*(t5_0 + 0.00488541579f);
 
-        if (er3 + 4.751738e-09f < 0.0f) {
+        if (er3 + 4.751738e-05f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -339,7 +362,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.57079633f + 1.0f * (current ? current[1] : 0.0f));
+                th2 = (-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -367,7 +390,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec5 = g36_23;
             const float er5 = g36_13*g36_13 + g36_33*g36_33;
 
-            if (er5 + 2e-09f < 0.0f) {
+            if (er5 + 2e-05f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -400,7 +423,7 @@ static int closed_form(const float pose[16], const float *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0f + 1.0f * (current ? current[3] : 0.0f));
+                th4 = (0.0f + 1.0f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
@@ -463,6 +486,9 @@ static int closed_form(const float pose[16], const float *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
             if (root5 > 0.0f && !free4) {
                 if (count < PACKER6_IK_F32_CLOSED_FORM) {
@@ -495,6 +521,9 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
             }
 

@@ -24,6 +24,31 @@ static const double HIGH[SEEDLING6_IK_JOINTS] = { 2.9000000057999999, 1.90000000
 static const double TURN[SEEDLING6_IK_JOINTS] = { 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862, 6.2831853071795862 };
 static const int MULTI[SEEDLING6_IK_JOINTS] = { 0, 0, 0, 0, 0, 1 };
 
+/* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
+#define LARGEST_ENTRY 9.9999999999999998e+149
+
+static int valid_pose(const double pose[16])
+{
+    for (int k = 0; k < 12; ++k) {
+        if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+static int finite_solution(const seedling6_ik_solution *s)
+{
+    double total = 0.0;
+    for (int j = 0; j < SEEDLING6_IK_JOINTS; ++j) {
+        total += s->joints[j];
+    }
+    for (int k = 0; k < SEEDLING6_IK_CONDITIONS; ++k) {
+        total += s->conditioning[k];
+    }
+    return total - total == 0.0;
+}
+
 void seedling6_ik_forward(const double joints[SEEDLING6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.52359877559829893 + 1.0 * joints[0];
@@ -111,10 +136,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r32 = pose[9];
     const double r33 = pose[10];
     const double pz = pose[11];
-    const double finite = pose[0] + pose[1] + pose[2] + pose[3] + pose[4] + pose[5] + pose[6] + pose[7]
-                    + pose[8] + pose[9] + pose[10] + pose[11];
     (void)current;
-    if (finite - finite != 0.0) {
+    if (!valid_pose(pose)) {
         if (status) *status = SEEDLING6_IK_INVALID_INPUT;
         return 0;
     }
@@ -162,7 +185,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.52359877559829893 + 1.0 * (current ? current[0] : 0.0));
+            th1 = (0.52359877559829893 + 1.0 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -298,7 +321,7 @@ static int closed_form(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.5707963267948966 + 1.0 * (current ? current[1] : 0.0));
+                th2 = (-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -359,7 +382,7 @@ static int closed_form(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 1.0 * (current ? current[3] : 0.0));
+                th4 = (0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
@@ -422,6 +445,9 @@ static int closed_form(const double pose[16], const double *current,
                 /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                  * readings are in one turn here), tested without branches */
                 out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                if (!finite_solution(out)) {
+                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                }
             }
             if (root5 > 0.0 && !free4) {
                 if (count < SEEDLING6_IK_CLOSED_FORM) {
@@ -454,6 +480,9 @@ static int closed_form(const double pose[16], const double *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
+                    if (!finite_solution(out)) {
+                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    }
                 }
             }
 

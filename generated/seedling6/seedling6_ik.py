@@ -93,6 +93,58 @@ class Solution(tuple):
         return self[4]
 
 _new = tuple.__new__
+LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
+_POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
+
+def _shown(value):
+    """What a value is, briefly, for an error message."""
+    if hasattr(value, "shape"):
+        return f"an array of shape {tuple(value.shape)}"
+    if isinstance(value, (list, tuple)):
+        return f"a {type(value).__name__} of {len(value)} items"
+    return f"an object of type {type(value).__name__}"
+
+def _real(value, what):
+    """``value`` as a float; ValueError unless it is a real number (int, float or a numpy real)."""
+    if isinstance(value, float):
+        return float(value)
+    if (isinstance(value, int) and not isinstance(value, bool)) or \
+            getattr(getattr(value, "dtype", None), "kind", None) in ("f", "i", "u"):
+        try:
+            return float(value)
+        except OverflowError:  # an integer beyond the float range
+            return float("inf") if value > 0 else float("-inf")
+    raise ValueError(f"{what} must be real numbers (int or float), not {_shown(value)}")
+
+def _vector(values, size, what):
+    """``values`` as a tuple of ``size`` floats; ValueError unless a sequence of that many real numbers."""
+    if hasattr(values, "tolist"):
+        values = values.tolist()
+    if not isinstance(values, (list, tuple)) or len(values) != size:
+        raise ValueError(f"{what} must be a sequence of {size} real numbers, not {_shown(values)}")
+    return tuple(_real(v, what) for v in values)
+
+def _readings(current):
+    """The caller's readings for free joints: None, or JOINT_COUNT floats with a NaN or infinite
+    entry taken as 0 (as if no reading were given for that joint)."""
+    if current is None:
+        return None
+    return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
+
+def _pose_rows(pose):
+    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    shown = _shown(pose)
+    if hasattr(pose, "tolist"):
+        pose = pose.tolist()
+    if not isinstance(pose, (list, tuple)) or len(pose) not in (3, 4) or \
+            not all(isinstance(row, (list, tuple)) and len(row) == 4 for row in pose):
+        raise ValueError(f"pose must be {_POSE_FORM}, not {shown}")
+    return tuple(tuple(_real(v, "pose entries") for v in row) for row in pose[:3])
+
+def _finite(solution):
+    """True when no reading or conditioning measure of a solution is NaN or infinite."""
+    total = sum(solution[0]) + sum(solution[3])
+    return total - total == 0.0
 
 def _turns(value, low, high, turn):
     """Every value + k * turn (k whole) within [low, high]."""
@@ -138,21 +190,21 @@ def inverse(pose, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True)
     return (solutions, status) if with_status else solutions
 
+def _check(limits, current):
+    """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
+    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
+    return _readings(current)
+
 def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    if limits not in ("drop", "flag", "ignore"):
-        raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r}")
-    if len(pose) not in (3, 4) or any(len(pose[i]) != 4 for i in range(3)):
-        raise ValueError("pose must be a 4x4 or 3x4 row-major matrix (nested sequences)")
-    total = 0.0
-    for i in range(3):
-        for j in range(4):
-            total += pose[i][j]
-    if total - total != 0.0:
-        return [], "invalid_input"
+    pose = _pose_rows(pose)
+    current = _check(limits, current)
+    for row in pose:
+        for v in row:
+            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
+                return [], "invalid_input"
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -169,13 +221,39 @@ def _solve(pose, current, limits, check):
 
 def distance(a, b, weights=None):
     """Weighted Euclidean distance between two joint vectors, in reading units."""
+    a, b = _vector(a, JOINT_COUNT, "joint vectors"), _vector(b, JOINT_COUNT, "joint vectors")
+    if weights is not None:
+        weights = _vector(weights, JOINT_COUNT, "weights")
     if weights is None:
         return sqrt(sum((x - y) * (x - y) for x, y in zip(a, b)))
     return sqrt(sum(w * (x - y) * (x - y) for x, y, w in zip(a, b, weights)))
 
 def sort_nearest(solutions, current, weights=None):
     """The solutions ordered by distance from ``current`` (ties keep their order)."""
+    if current is None:
+        raise ValueError(f"current must be a sequence of {JOINT_COUNT} real numbers, not None")
+    current = _readings(current)
+    if not isinstance(solutions, (list, tuple)) or not all(isinstance(s, (tuple, list)) and s for s in solutions):
+        raise ValueError(f"solutions must be a list of solutions (tuples whose first item is the readings), not {_shown(solutions)}")
     return sorted(solutions, key=lambda s: distance(s[0], current, weights))
+
+def _wanted(config):
+    """``config`` checked: None, a dict {label name: value} or a sequence of values (None: any)."""
+    if config is None:
+        return None
+    if isinstance(config, dict):
+        items = list(config.items())
+    elif isinstance(config, (list, tuple)) and len(config) == len(LABEL_NAMES):
+        items = [(name, value) for name, value in zip(LABEL_NAMES, config) if value is not None]
+    else:
+        raise ValueError(f"config must be a dict (label name: value) or a sequence of {len(LABEL_NAMES)} values "
+                         f"(None for any), not {_shown(config)}")
+    for name, value in items:
+        if name not in LABEL_NAMES:
+            raise ValueError(f"config names a label {name!r:.80}; the labels are {', '.join(LABEL_NAMES)}")
+        if value not in LABEL_VALUES[LABEL_NAMES.index(name)]:
+            raise ValueError(f"label {name!r} takes one of {LABEL_VALUES[LABEL_NAMES.index(name)]}, not {value!r:.80}")
+    return config
 
 def _matches(config, wanted):
     if wanted is None:
@@ -187,6 +265,12 @@ def _matches(config, wanted):
 def nearest(pose, current, weights=None, config=None, limits="drop"):
     """The solution closest to ``current`` (of configuration ``config`` if given: a dict such as
     {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
+    if current is None:
+        raise ValueError(f"current must be a sequence of {JOINT_COUNT} real numbers, not None")
+    current = _readings(current)
+    config = _wanted(config)
+    if weights is not None:
+        weights = _vector(weights, JOINT_COUNT, "weights")
     best = None
     best_distance = 0.0
     for solution in inverse(pose, current, limits):
@@ -199,6 +283,9 @@ def nearest(pose, current, weights=None, config=None, limits="drop"):
 
 def forward(joints):
     """Tool pose in the world frame (4x4 nested lists) for joint readings in the arm's units."""
+    joints = _vector(joints, JOINT_COUNT, "joints")
+    if sum(joints) - sum(joints) != 0.0:
+        raise ValueError(f"joints must be finite numbers, not {joints}")
     th1 = 0.5235987755982989 + 1.0 * joints[0]
     c1 = cos(th1)
     s1 = sin(th1)
@@ -559,4 +646,4 @@ def _closed_form(pose, current):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
                 ), singular, conditioning, -2.9000000058 <= q[0] <= 2.9000000058 and -1.9000000038 <= q[1] <= 1.9000000038 and -2.4000000048 <= q[2] <= 2.4000000048 and -3.1000000062 <= q[3] <= 3.1000000062 and -2.1000000042 <= q[4] <= 2.1000000042)))
-    return solutions
+    return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution

@@ -61,6 +61,24 @@ class SolverCPrinter(common.ProductPowers, C99CodePrinter):
         return self.number(expr)
 
 
+# The reach guard of a square root (radicand + 2 * tolerance * its typical size < 0: no solution)
+# follows the scalar type. Float rounds at about 6e-8 relative (IEEE 754 binary32), and a pose
+# rounded to float is itself a slightly different pose, so a reachable pose near a branch boundary
+# (elbow stretch, the reach boundary) gives a float radicand down to a few -1e-6 of its typical
+# size. Measured on benchtop6 within 1e-4..0.04 deg of elbow stretch: with 1e-9 (the double
+# build's GUARD_TOLERANCE) 8-25 % of such poses came back empty, with 1e-6 0.1 %, with 1e-5 none
+# (tests/test_c_backend_float.py). The band admits poses beyond reach by about 1e-5 of the
+# radicand's scale, well within the float build's accuracy.
+FLOAT_GUARD_TOLERANCE = 1e-5
+
+
+def reach_guard(block, scalar: Scalar):
+    """The guard expression of a cossin or quadratic block for this scalar type."""
+    if scalar.name == "double" or block.guard_scale is None:
+        return block.guard
+    return block.radicand + 2 * FLOAT_GUARD_TOLERANCE * block.guard_scale
+
+
 def names(arm: Arm, scalar: Scalar) -> dict:
     base = common.identifier(arm.name)
     prefix = f"{base}_ik{scalar.suffix}"
@@ -86,8 +104,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         mirror_terms=c_terms(plan.mirror_condition, printer) if plan.mirror else [], generator=common.GENERATOR,
         label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
-        # float rounding (about 6e-8 relative) needs a wider clamp band than double
-        guard_tolerance=plan.guard_tolerance if scalar.name == "double" else 1e-5,
+        guard=lambda block: reach_guard(block, scalar),
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=[k for k, t in enumerate(common.joint_turns(arm))
                        if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)],

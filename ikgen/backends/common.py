@@ -151,6 +151,7 @@ class Block:
     norm: sp.Expr | None = None
     radicand: sp.Expr | None = None
     guard: sp.Expr | None = None
+    guard_scale: sp.Expr | None = None   # the guard is radicand + 2 * tolerance * guard_scale
     cn: sp.Expr | None = None
     sn: sp.Expr | None = None
     cos_expr: sp.Expr | None = None
@@ -428,6 +429,7 @@ def lower_now(derivation: Derivation) -> Plan:
             block.radicand = radicand if radicand.is_number else _named(block, radicand, f"er{step.key}")
             scale = block.coefficients[1] ** 2
             block.guard = block.radicand + 2 * GUARD_TOLERANCE * scale
+            block.guard_scale = scale
             blocks.append(block)
             branch_joints.append(step.key)
             depth += 1
@@ -533,6 +535,7 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
     block.c = c
     sg, root = sp.Symbol(f"sg{j}", real=True), sp.Symbol(f"root{j}", real=True)
     block.guard = block.radicand + 2 * GUARD_TOLERANCE * block.norm      # < 0: out of reach
+    block.guard_scale = block.norm
     block.cn = a * c - sg * b * root
     block.sn = b * c + sg * a * root
     cn, sn = sp.Symbol(f"cn{j}", real=True), sp.Symbol(f"sn{j}", real=True)
