@@ -82,3 +82,20 @@ def test_r10_round_trip_near_the_wrist_centre_on_axis_2(r10, solver):
         assert conditioning < 2e-5, (step, conditioning)               # the pose is near the set
         pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
         assert pos.max() <= 1e-9 * arm.reach_scale() and rot.max() <= 1e-9, (step, conditioning, pos.max(), rot.max())
+
+
+# ----------------------------------------------------------------------------- the seeded sweep
+
+from arm_draws import STRUCTURES, Draw, arm_text, outcome  # noqa: E402
+
+
+@pytest.mark.parametrize("structure", list(STRUCTURES))
+def test_a_random_arm_of_each_structure_is_verified_or_refused(structure):
+    """One arm per structure (a seed per structure): generated and verified against the contract, or
+    refused with a structure diagnosis; never a generated solver that fails verification.
+    benchmarks/sweep_arms.py runs the same on hundreds of arms."""
+    arm = STRUCTURES[structure](Draw(np.random.default_rng(1600 + sum(map(ord, structure)))))
+    kind, sentence, _ = outcome(arm, samples=200)
+    assert kind in ("accepted", "refused"), f"{sentence}\n{arm_text(arm)}"
+    if kind == "refused":
+        assert arm.name in sentence and "structure" in sentence.lower(), sentence
