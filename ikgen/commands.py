@@ -14,7 +14,8 @@ from .errors import PATH_LIMIT, IkgenError, VerificationError, clip, quote
 from .exact import plain_whole
 from .generate import build, build_report, load_module, stale, write
 from .terminal import err, out, table
-from .verify import ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, SOLUTION_BUDGET, Verification, verify, workload_note
+from .verify import (ROUND_TRIP_TOLERANCE, SINGULAR_DISTANCE, SOLUTION_BUDGET, Verification, band_rows, verify,
+                     workload_note)
 
 MAX_SAMPLES = 1_000_000     # verification samples (-n): beyond this the poses alone need gigabytes
 
@@ -130,6 +131,7 @@ def print_verification(report: Verification, unit: str) -> None:
         rows.append([f"singular: {kind}", f"{ok}/{tested} reproduced" if tested else "none in limits", "all", ""])
     rows.append(["worst error at singular poses",
                  f"{report.worst_singular_position:.3g} {unit}, {report.worst_singular_rotation:.3g} rad", "", ""])
+    rows += band_rows(report, unit)
     out(table(["check", "result", "threshold", "note"], rows, "llll"))
     out("PASSED" if report.passed else "FAILED")
     for failure in report.failures:
