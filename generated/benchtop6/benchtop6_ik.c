@@ -336,6 +336,16 @@ static int closed_form(const double pose[16], const double *current,
                 s2 = sin(th2);
             } else {
                 th2 = atan2(s2, c2);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq2 = c2 * c2 + s2 * s2;
+                    if (fabs(hq2 - 1.0) > 9.9999999999999998e-13) {
+                        const double hn2 = 1.0 / sqrt(hq2);
+                        c2 = c2 * hn2;
+                        s2 = s2 * hn2;
+                    }
+                }
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -397,6 +407,16 @@ static int closed_form(const double pose[16], const double *current,
                 s4 = sin(th4);
             } else {
                 th4 = atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq4 = c4 * c4 + s4 * s4;
+                    if (fabs(hq4 - 1.0) > 9.9999999999999998e-13) {
+                        const double hn4 = 1.0 / sqrt(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
@@ -425,6 +445,16 @@ static int closed_form(const double pose[16], const double *current,
                 continue;
             }
             th6 = atan2(s6, c6);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq6 = c6 * c6 + s6 * s6;
+                if (fabs(hq6 - 1.0) > 9.9999999999999998e-13) {
+                    const double hn6 = 1.0 / sqrt(hq6);
+                    c6 = c6 * hn6;
+                    s6 = s6 * hn6;
+                }
+            }
 
             /* joint readings, configuration labels, singular flag */
 

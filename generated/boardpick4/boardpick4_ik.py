@@ -384,6 +384,12 @@ def _closed_form(pose, current):
     if abs(cp12m4 * cp12m4 + sp12m4 * sp12m4 - 1.0) > 1e-4:
         return solutions
     thp12m4 = atan2(sp12m4, cp12m4)
+    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+    hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
+    if abs(hqp12m4 - 1.0) > 1e-12:
+        hnp12m4 = 1.0 / sqrt(hqp12m4)
+        cp12m4 = cp12m4 * hnp12m4
+        sp12m4 = sp12m4 * hnp12m4
 
     # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
     free3 = True
@@ -563,6 +569,12 @@ def _closed_form(pose, current):
             s1 = sin(th1)
         else:
             th1 = atan2(s1, c1)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-12:
+                hn1 = 1.0 / sqrt(hq1)
+                c1 = c1 * hn1
+                s1 = s1 * hn1
 
         # th4: from the sum of parallel-axis angles
         th4 =  - thp12m4 + th2 + th1

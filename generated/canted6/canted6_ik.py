@@ -536,6 +536,12 @@ def _closed_form(pose, current):
             s1 = sin(th1)
         else:
             th1 = atan2(s1, c1)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-12:
+                hn1 = 1.0 / sqrt(hq1)
+                c1 = c1 * hn1
+                s1 = s1 * hn1
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
         t5_0 = 0.5*c1
@@ -667,6 +673,12 @@ def _closed_form(pose, current):
             s2 = sin(th2)
         else:
             th2 = atan2(s2, c2)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq2 = c2 * c2 + s2 * s2
+            if abs(hq2 - 1.0) > 1e-12:
+                hn2 = 1.0 / sqrt(hq2)
+                c2 = c2 * hn2
+                s2 = s2 * hn2
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         t8_0 = 0.8660254037844386*c2
@@ -730,6 +742,12 @@ def _closed_form(pose, current):
             s4 = sin(th4)
         else:
             th4 = atan2(s4, c4)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq4 = c4 * c4 + s4 * s4
+            if abs(hq4 - 1.0) > 1e-12:
+                hn4 = 1.0 / sqrt(hq4)
+                c4 = c4 * hn4
+                s4 = s4 * hn4
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g36_21*s4
@@ -752,6 +770,12 @@ def _closed_form(pose, current):
         if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
             continue
         th6 = atan2(s6, c6)
+        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+        hq6 = c6 * c6 + s6 * s6
+        if abs(hq6 - 1.0) > 1e-12:
+            hn6 = 1.0 / sqrt(hq6)
+            c6 = c6 * hn6
+            s6 = s6 * hn6
 
         # Joint readings, configuration labels, singular flag.
 

@@ -442,6 +442,16 @@ static int closed_form(const float pose[16], const float *current,
             s1 = sinf(th1);
         } else {
             th1 = atan2f(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq1 = c1 * c1 + s1 * s1;
+                if (fabsf(hq1 - 1.0f) > 1e-06f) {
+                    const float hn1 = 1.0f / sqrtf(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -581,6 +591,16 @@ static int closed_form(const float pose[16], const float *current,
             s2 = sinf(th2);
         } else {
             th2 = atan2f(s2, c2);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq2 = c2 * c2 + s2 * s2;
+                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                    const float hn2 = 1.0f / sqrtf(hq2);
+                    c2 = c2 * hn2;
+                    s2 = s2 * hn2;
+                }
+            }
         }
 
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -652,6 +672,16 @@ static int closed_form(const float pose[16], const float *current,
             s4 = sinf(th4);
         } else {
             th4 = atan2f(s4, c4);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq4 = c4 * c4 + s4 * s4;
+                if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                    const float hn4 = 1.0f / sqrtf(hq4);
+                    c4 = c4 * hn4;
+                    s4 = s4 * hn4;
+                }
+            }
         }
 
         /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
@@ -680,6 +710,16 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         th6 = atan2f(s6, c6);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const float hq6 = c6 * c6 + s6 * s6;
+            if (fabsf(hq6 - 1.0f) > 1e-06f) {
+                const float hn6 = 1.0f / sqrtf(hq6);
+                c6 = c6 * hn6;
+                s6 = s6 * hn6;
+            }
+        }
 
         /* joint readings, configuration labels, singular flag */
 

@@ -499,6 +499,12 @@ def _closed_form(pose, current):
                 s2 = sin(th2)
             else:
                 th2 = atan2(s2, c2)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-12:
+                    hn2 = 1.0 / sqrt(hq2)
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2x = c2*q1x + q1y*s2 - 200
@@ -546,6 +552,12 @@ def _closed_form(pose, current):
                 s4 = sin(th4)
             else:
                 th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-12:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
 
             # A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one)
             n1x = c1*r13 + r23*s1

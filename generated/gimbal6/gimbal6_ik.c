@@ -438,6 +438,16 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         th4 = atan2(s4, c4);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const double hq4 = c4 * c4 + s4 * s4;
+            if (fabs(hq4 - 1.0) > 9.9999999999999998e-13) {
+                const double hn4 = 1.0 / sqrt(hq4);
+                c4 = c4 * hn4;
+                s4 = s4 * hn4;
+            }
+        }
 
         /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
@@ -465,6 +475,16 @@ static int closed_form(const double pose[16], const double *current,
             s5 = sin(th5);
         } else {
             th5 = atan2(s5, c5);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq5 = c5 * c5 + s5 * s5;
+                if (fabs(hq5 - 1.0) > 9.9999999999999998e-13) {
+                    const double hn5 = 1.0 / sqrt(hq5);
+                    c5 = c5 * hn5;
+                    s5 = s5 * hn5;
+                }
+            }
         }
 
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -546,6 +566,16 @@ static int closed_form(const double pose[16], const double *current,
             s1 = sin(th1);
         } else {
             th1 = atan2(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq1 = c1 * c1 + s1 * s1;
+                if (fabs(hq1 - 1.0) > 9.9999999999999998e-13) {
+                    const double hn1 = 1.0 / sqrt(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
         }
 
         /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
@@ -574,6 +604,16 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         th3 = atan2(s3, c3);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const double hq3 = c3 * c3 + s3 * s3;
+            if (fabs(hq3 - 1.0) > 9.9999999999999998e-13) {
+                const double hn3 = 1.0 / sqrt(hq3);
+                c3 = c3 * hn3;
+                s3 = s3 * hn3;
+            }
+        }
 
         /* joint readings, configuration labels, singular flag */
 

@@ -536,6 +536,12 @@ def _closed_form(pose, current):
         if abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
             continue
         th4 = atan2(s4, c4)
+        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+        hq4 = c4 * c4 + s4 * s4
+        if abs(hq4 - 1.0) > 1e-12:
+            hn4 = 1.0 / sqrt(hq4)
+            c4 = c4 * hn4
+            s4 = s4 * hn4
 
         # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         free5 = True
@@ -558,6 +564,12 @@ def _closed_form(pose, current):
             s5 = sin(th5)
         else:
             th5 = atan2(s5, c5)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq5 = c5 * c5 + s5 * s5
+            if abs(hq5 - 1.0) > 1e-12:
+                hn5 = 1.0 / sqrt(hq5)
+                c5 = c5 * hn5
+                s5 = s5 * hn5
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
@@ -631,6 +643,12 @@ def _closed_form(pose, current):
             s1 = sin(th1)
         else:
             th1 = atan2(s1, c1)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-12:
+                hn1 = 1.0 / sqrt(hq1)
+                c1 = c1 * hn1
+                s1 = s1 * hn1
 
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1
@@ -653,6 +671,12 @@ def _closed_form(pose, current):
         if abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4:
             continue
         th3 = atan2(s3, c3)
+        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+        hq3 = c3 * c3 + s3 * s3
+        if abs(hq3 - 1.0) > 1e-12:
+            hn3 = 1.0 / sqrt(hq3)
+            c3 = c3 * hn3
+            s3 = s3 * hn3
 
         # Joint readings, configuration labels, singular flag.
 

@@ -275,6 +275,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = chosen4 | use
         valid = valid & ~(numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
         th4 = numpy.arctan2(s4, c4)
+        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
+        hq4 = c4 * c4 + s4 * s4
+        off4 = numpy.abs(hq4 - 1.0) > 1e-12
+        if off4.any():
+            hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
+            c4 = c4 * hn4
+            s4 = s4 * hn4
 
         # th5 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen5 = numpy.zeros((), dtype=bool)
@@ -292,6 +299,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free5 = ~chosen5 | weak5
         valid = valid & ~(bad5 & ~weak5)
         th5 = numpy.arctan2(s5, c5)
+        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
+        hq5 = c5 * c5 + s5 * s5
+        off5 = numpy.abs(hq5 - 1.0) > 1e-12
+        if off5.any():
+            hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
+            c5 = c5 * hn5
+            s5 = s5 * hn5
         if free5.any():
             th5 = numpy.where(free5, (hint[4]), th5)
             c5 = numpy.where(free5, numpy.cos((hint[4])), c5)
@@ -362,6 +376,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free1 = ~chosen1 | weak1
         valid = valid & ~(bad1 & ~weak1)
         th1 = numpy.arctan2(s1, c1)
+        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
+        hq1 = c1 * c1 + s1 * s1
+        off1 = numpy.abs(hq1 - 1.0) > 1e-12
+        if off1.any():
+            hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
+            c1 = c1 * hn1
+            s1 = s1 * hn1
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -389,6 +410,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen3 = chosen3 | use
         valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
         th3 = numpy.arctan2(s3, c3)
+        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
+        hq3 = c3 * c3 + s3 * s3
+        off3 = numpy.abs(hq3 - 1.0) > 1e-12
+        if off3.any():
+            hn3 = numpy.where(off3, 1.0 / numpy.sqrt(numpy.where(off3, hq3, 1.0)), 1.0)
+            c3 = c3 * hn3
+            s3 = s3 * hn3
 
         # joint readings, configuration labels, singular flag, conditioning
 

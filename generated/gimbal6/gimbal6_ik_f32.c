@@ -438,6 +438,16 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         th4 = atan2f(s4, c4);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const float hq4 = c4 * c4 + s4 * s4;
+            if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                const float hn4 = 1.0f / sqrtf(hq4);
+                c4 = c4 * hn4;
+                s4 = s4 * hn4;
+            }
+        }
 
         /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         float th5, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
@@ -465,6 +475,16 @@ static int closed_form(const float pose[16], const float *current,
             s5 = sinf(th5);
         } else {
             th5 = atan2f(s5, c5);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq5 = c5 * c5 + s5 * s5;
+                if (fabsf(hq5 - 1.0f) > 1e-06f) {
+                    const float hn5 = 1.0f / sqrtf(hq5);
+                    c5 = c5 * hn5;
+                    s5 = s5 * hn5;
+                }
+            }
         }
 
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -546,6 +566,16 @@ static int closed_form(const float pose[16], const float *current,
             s1 = sinf(th1);
         } else {
             th1 = atan2f(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq1 = c1 * c1 + s1 * s1;
+                if (fabsf(hq1 - 1.0f) > 1e-06f) {
+                    const float hn1 = 1.0f / sqrtf(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
         }
 
         /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
@@ -574,6 +604,16 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         th3 = atan2f(s3, c3);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const float hq3 = c3 * c3 + s3 * s3;
+            if (fabsf(hq3 - 1.0f) > 1e-06f) {
+                const float hn3 = 1.0f / sqrtf(hq3);
+                c3 = c3 * hn3;
+                s3 = s3 * hn3;
+            }
+        }
 
         /* joint readings, configuration labels, singular flag */
 

@@ -439,6 +439,12 @@ def _closed_form(pose, current):
                 s6 = sin(th6)
             else:
                 th6 = atan2(s6, c6)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                hq6 = c6 * c6 + s6 * s6
+                if abs(hq6 - 1.0) > 1e-12:
+                    hn6 = 1.0 / sqrt(hq6)
+                    c6 = c6 * hn6
+                    s6 = s6 * hn6
 
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
             g05_11 = c6*rc11 - rc12*s6
@@ -474,6 +480,12 @@ def _closed_form(pose, current):
             if abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4:
                 continue
             thp234 = atan2(sp234, cp234)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hqp234 = cp234 * cp234 + sp234 * sp234
+            if abs(hqp234 - 1.0) > 1e-12:
+                hnp234 = 1.0 / sqrt(hqp234)
+                cp234 = cp234 * hnp234
+                sp234 = sp234 * hnp234
 
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -512,6 +524,12 @@ def _closed_form(pose, current):
                     s2 = sin(th2)
                 else:
                     th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    hq2 = c2 * c2 + s2 * s2
+                    if abs(hq2 - 1.0) > 1e-12:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
 
                 # th4: from the sum of parallel-axis angles
                 th4 = thp234 - th3 - th2

@@ -565,6 +565,12 @@ def _closed_form(pose, current):
                 s2 = sin(th2)
             else:
                 th2 = atan2(s2, c2)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-12:
+                    hn2 = 1.0 / sqrt(hq2)
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 - g16_31*s2
@@ -618,6 +624,12 @@ def _closed_form(pose, current):
                 s4 = sin(th4)
             else:
                 th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-12:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 - g36_31*s4
@@ -640,6 +652,12 @@ def _closed_form(pose, current):
             if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-12:
+                hn6 = 1.0 / sqrt(hq6)
+                c6 = c6 * hn6
+                s6 = s6 * hn6
 
             # Joint readings, configuration labels, singular flag.
 
