@@ -18,7 +18,7 @@ the hand solvers' solution sets and round trips in full.
 The generated files are read from generated/benchtop6/ (as committed or as the lead regenerated
 them), or, with --fresh, generated now by ikgen.generate.build into a temporary folder.
 
-Run:  python3 benchmarks/bench_speed.py [--poses 50000] [--rounds 15] [--python-rounds 5] [--fresh]
+Run:  python3 benchmarks/bench_speed.py [--poses 50000] [--rounds 25] [--python-rounds 5] [--fresh]
 Figures depend on the machine and its load (printed beside them): quote them with care.
 """
 
@@ -87,21 +87,34 @@ def solver_files(arm, fresh: bool, work: Path) -> tuple[Path, str, str]:
             f"--fresh: ikgen.generate.build now ({seconds:.1f} s wall, all files and report)")
 
 
-def compile_harness(cc: str, arm, sources: Path, work: Path) -> Path:
-    """The speed harness linked with the generated double and float solvers and the hand solver."""
+BUILDS = {  # variant: (flags for the two double solvers, flags for the harness, extra objects)
+    "time": ([], [], []),
+    "count": (["-include", str(ROOT / "benchmarks" / "c" / "count_math.h")], ["-DIK_COUNTING"], ["counters.o"]),
+    "stub": (["-include", str(ROOT / "benchmarks" / "c" / "stub_atan2.h")], [], []),
+}
+
+
+def compile_harness(cc: str, arm, sources: Path, work: Path, variant: str) -> Path:
+    """The speed harness linked with the generated double and float solvers and the hand solver:
+    ``time`` as they are; ``count`` with the double solvers' atan2 and sqrt calls counted
+    (benchmarks/c/count_math.h); ``stub`` with their atan2 replaced by a cheap inline stand-in
+    (benchmarks/c/stub_atan2.h), to time what the solvers cost apart from atan2."""
     double, single = c_backend.names(arm, c_backend.DOUBLE), c_backend.names(arm, c_backend.FLOAT)
+    solver_flags, harness_flags, extra = BUILDS[variant]
     include = [f"-I{sources}", f"-I{HAND}"]
     macros = [f'-DIK_HEADER="{double["header"]}"', f"-DIK_PREFIX={double['prefix']}", f"-DIK_UPPER={double['upper']}",
               f'-DIK32_HEADER="{single["header"]}"', f"-DIK32_PREFIX={single['prefix']}",
               f"-DIK32_UPPER={single['upper']}"]
-    units = {"generated.o": [*include, str(sources / double["source"])],
-             "generated_f32.o": [*include, str(sources / single["source"])],
-             "hand.o": [*include, str(HAND / "benchtop6_hand.c")],
-             "harness.o": [*include, *macros, str(HAND / "speed_harness.c")]}
+    units = {f"generated_{variant}.o": [*solver_flags, *include, str(sources / double["source"])],
+             f"generated_f32_{variant}.o": [*include, str(sources / single["source"])],
+             f"hand_{variant}.o": [*solver_flags, *include, str(HAND / "benchtop6_hand.c")],
+             f"harness_{variant}.o": [*harness_flags, *include, *macros, str(HAND / "speed_harness.c")]}
+    if extra:
+        units["counters.o"] = [str(ROOT / "benchmarks" / "c" / "counters.c")]
     for target, args in units.items():
         run([cc, *CFLAGS, "-c", *args, "-o", target], work)
-    run([cc, *units.keys(), "-lm", "-o", "speed_harness"], work)
-    return work / "speed_harness"
+    run([cc, *units.keys(), "-lm", "-o", f"speed_{variant}"], work)
+    return work / f"speed_{variant}"
 
 
 def key_values(text: str) -> dict[str, float]:
@@ -110,13 +123,17 @@ def key_values(text: str) -> dict[str, float]:
 
 
 def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Path) -> dict[str, float]:
-    binary = compile_harness(cc, arm, sources, work)
+    """Key figures of the C solvers: timing rounds, maths calls per pose, timing with atan2 stubbed."""
+    binaries = {variant: compile_harness(cc, arm, sources, work, variant) for variant in BUILDS}
     pose_file = work / "poses.bin"
     np.ascontiguousarray(poses.reshape(-1, 16), dtype=np.float64).tofile(pose_file)
-    figures = key_values(run([str(binary), str(pose_file), str(rounds)], work))
+    figures = key_values(run([str(binaries["count"]), str(pose_file), "1"], work))
     if figures["count_mismatches"]:
         raise BenchError(f"the generated and hand-written C solvers disagree on the number of solutions "
                          f"on {int(figures['count_mismatches'])} poses: fix that before timing them")
+    figures.update(key_values(run([str(binaries["time"]), str(pose_file), str(rounds)], work)))
+    stubbed = key_values(run([str(binaries["stub"]), str(pose_file), str(rounds)], work))
+    figures.update({f"stub_{key}": value for key, value in stubbed.items()})
     return figures
 
 
@@ -185,6 +202,12 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
         cffi = py["cffi"]
         line("cffi per-pose call vs pure Python, us", f"{cffi[0]:.2f}", f"{gen[0]:.2f}", cffi[0] / gen[0],
              GOALS["cffi"])
+    line("C double, atan2 calls per full solve", f"{c['generated_atan2_calls']:.2f}", f"{c['hand_atan2_calls']:.2f}",
+         c["generated_atan2_calls"] / c["hand_atan2_calls"])
+    line("C double, sqrt calls per full solve", f"{c['generated_sqrt_calls']:.2f}", f"{c['hand_sqrt_calls']:.2f}",
+         c["generated_sqrt_calls"] / c["hand_sqrt_calls"])
+    line("C double, atan2 stubbed, ns (best)", f"{c['stub_generated_best_ns']:.0f}", f"{c['stub_hand_best_ns']:.0f}",
+         c["stub_generated_best_ns"] / c["stub_hand_best_ns"])
     line("float build vs double, ns per solve", f"{c['float_best_ns']:.0f}", f"{c['generated_best_ns']:.0f}",
          c["float_best_ns"] / c["generated_best_ns"], GOALS["float"])
     poses = c["poses"]
@@ -194,6 +217,9 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     print(f"C: {int(poses)} poses, {rounds[0]} interleaved rounds (order rotating), best and median round; "
           f"solutions per pose {c['generated_solutions'] / poses:.3f} generated, {c['hand_solutions'] / poses:.3f} "
           f"hand-written, {c['float_solutions'] / poses:.3f} float build.")
+    print("atan2 stubbed: a diagnostic build of both double solvers with every atan2 an inline y + 0.5*x "
+          "(benchmarks/c/stub_atan2.h): what each costs apart from its atan2 calls. Calls are counted at "
+          "source level (benchmarks/c/count_math.h); gcc -O2 inlines sqrt as one instruction.")
     print(f"Python: {counts[0]} poses as nested lists, {rounds[1]} interleaved rounds; solution counts of the "
           f"generated and hand-written solvers compared on the first {counts[1]} poses (all equal).")
 
@@ -201,7 +227,7 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
 def parse_args(argv):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--poses", type=int, default=50_000, help="seeded poses for every solver (default 50000)")
-    parser.add_argument("--rounds", type=int, default=15, help="interleaved rounds of the C solvers")
+    parser.add_argument("--rounds", type=int, default=25, help="interleaved rounds of the C solvers")
     parser.add_argument("--python-rounds", type=int, default=5, help="interleaved rounds of the Python solvers")
     parser.add_argument("--python-poses", type=int, default=None, help="poses for Python (default: all)")
     parser.add_argument("--check-poses", type=int, default=2000, help="Python count check before timing")

@@ -12,6 +12,9 @@
  * generated and hand solvers must find the same number of solutions on every pose), then ROUNDS
  * rounds, each one timed pass of every solver over all poses, the order of the solvers rotating
  * from round to round. Prints key=value lines: best and median ns per pose of each solver.
+ * Built with -DIK_COUNTING (the double solvers compiled with -include ../c/count_math.h and linked
+ * with ../c/counters.c), it prints instead the atan2 and sqrt calls per pose of the generated and
+ * hand-written double solvers, after the checking pass.
  */
 #define _POSIX_C_SOURCE 199309L
 
@@ -93,6 +96,28 @@ static double pass(int solver, const double *poses, const float *poses32, long c
     return elapsed;
 }
 
+#ifdef IK_COUNTING
+extern unsigned long bench_atan2_calls, bench_sqrt_calls;
+
+/* Prints the maths-library calls per pose of the two double solvers (source-level calls). */
+static void count_calls(const double *poses, long count)
+{
+    GEN_SOLUTION generated[GEN_MAX];
+    double hand[BENCHTOP6_HAND_MAX][6];
+    for (int solver = GENERATED; solver <= HAND; ++solver) {
+        bench_atan2_calls = bench_sqrt_calls = 0;
+        for (long i = 0; i < count; ++i) {
+            if (solver == GENERATED)
+                GEN_INVERSE(poses + 16 * i, NULL, GEN_IGNORE, generated, NULL);
+            else
+                benchtop6_hand_inverse(poses + 16 * i, hand);
+        }
+        printf("%s_atan2_calls=%.4f\n%s_sqrt_calls=%.4f\n", NAMES[solver], (double)bench_atan2_calls / (double)count,
+               NAMES[solver], (double)bench_sqrt_calls / (double)count);
+    }
+}
+#endif
+
 static int by_value(const void *a, const void *b)
 {
     const double x = *(const double *)a, y = *(const double *)b;
@@ -128,6 +153,11 @@ int main(int argc, char **argv)
         mismatched += g != h;
     }
 
+#ifdef IK_COUNTING
+    printf("poses=%ld\ncount_mismatches=%ld\n", count, mismatched);
+    count_calls(poses, count);
+    return 0;
+#endif
     for (int r = 0; r < rounds; ++r)
         for (int k = 0; k < SOLVERS; ++k) {
             const int solver = (r + k) % SOLVERS;
