@@ -46,7 +46,7 @@
 #define PHI_DEG 85.236358309273826      /* atan2(240, 20) in degrees */
 #define L3_SQ 58000.0                   /* 20^2 + 240^2 */
 #define INV_L3_SQ (1.0 / 58000.0)
-#define REACH_SLACK (1e-9 * L3_SQ)       /* S^2 this far below 0 is rounding: the elbow is straight */
+#define REACH_SLACK (1e-9 * L3_SQ)      /* S^2 this far below 0 is rounding: arm stretched or folded */
 #define WRIST_FREE 1e-12                /* sin(th5) below this: joints 4 and 6 share one axis */
 
 static double wrap(double q)

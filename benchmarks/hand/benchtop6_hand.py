@@ -21,7 +21,7 @@ from math import atan2, sqrt
 R2D = 57.295779513082321          # 180 / pi
 PHI_DEG = 85.236358309273826      # atan2(240, 20) in degrees: the elbow offset a3 = 20 against d4 = 240
 L3_SQ = 58000.0                   # 20^2 + 240^2
-REACH_SLACK = 1e-9 * L3_SQ        # S^2 this far below 0 is rounding: the elbow is straight
+REACH_SLACK = 1e-9 * L3_SQ        # S^2 this far below 0 is rounding: arm stretched or folded
 WRIST_FREE = 1e-12                # sin(th5) below this: joints 4 and 6 share one axis
 
 
