@@ -22,7 +22,7 @@ import numpy as np
 
 from .backends import c as c_backend
 from .backends.common import environment
-from .cwrapper import limits_mode, pose_entries, real, vector, wanted_config
+from .cwrapper import SolutionReader, limits_mode, pose_entries, real, vector, wanted_config
 from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
@@ -52,6 +52,8 @@ class CSolver:
         self._many = getattr(self.lib, f"{self.prefix}_inverse_many")
         self._solutions = self.ffi.new(f"{self.prefix}_solution[{self.max_solutions}]")
         self._status = self.ffi.new(f"{self.prefix}_status *")
+        self._reader = SolutionReader(self.ffi, f"{self.prefix}_solution", scalar.name, self.dof, self.labels,
+                                      self.conditions)
 
     def _pointer(self, array: np.ndarray):
         return self.ffi.cast(f"{self.scalar.name} *", self.ffi.from_buffer(array))
@@ -71,6 +73,12 @@ class CSolver:
             return np.concatenate([flat, np.array([0, 0, 0, 1], dtype=self.dtype)])
         return np.array(pose_entries(pose), dtype=self.dtype)
 
+    def _pose_array(self, pose):
+        """The pose as a C array: nested lists go straight in (no numpy on that path)."""
+        if isinstance(pose, np.ndarray):
+            return self._pointer(self._flat_pose(pose)), pose
+        return self.ffi.new(f"{self.scalar.name}[16]", pose_entries(pose)), None
+
     def _joints_pointer(self, values, what="current"):
         if values is None:
             return self.ffi.NULL, None
@@ -87,14 +95,14 @@ class CSolver:
     STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 
     def _answer(self, count, with_status):
-        solutions = [self._tuple(self._solutions[k]) for k in range(count)]
+        solutions = self._reader.read(self._solutions, count)
         return (solutions, self.STATUS_NAMES[self.status()]) if with_status else solutions
 
     def inverse(self, pose, current=None, limits="drop", with_status=False) -> list[tuple]:
         """The Python back-end's inverse(): (joints, config, singular, conditioning, within_limits)."""
-        flat = self._flat_pose(pose)
+        flat, _keep_pose = self._pose_array(pose)
         hint, _keep = self._joints_pointer(current)
-        count = self._inverse(self._pointer(flat), hint, limits_mode(limits), self._solutions, self._status)
+        count = self._inverse(flat, hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
 
     def _vector(self, values, what="point") -> np.ndarray:

@@ -69,9 +69,20 @@ def size_of(values):
     return len(values) if isinstance(values, (list, tuple)) else -1
 
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
+
 def pose_entries(pose):
     """The 16 entries of a 4x4 (or 3x4, completed) pose, row-major; ValueError unless the shape and
     types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):          # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
+            flat = [*r0, *r1, *r2]
+            if set(map(type, flat)) == _FLOATS:
+                flat += (0.0, 0.0, 0.0, 1.0)
+                return flat
     what = shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -156,6 +167,41 @@ def _load_extension(folder, name):
     raise ImportError(f"the compiled extension {name} is not in {folder}; run `ikgen compile` again")
 
 
+class SolutionReader:
+    """Reads solutions back from a C array of ``<prefix>_solution`` in one pass: the struct as a
+    struct-module format (its fields at their offsets, padding skipped), and the configuration of
+    every sign pattern of the labels from a table built once."""
+
+    def __init__(self, ffi, type_name, real_name, dof, labels, conditions, make=tuple):
+        self.ffi, self.make = ffi, make
+        code = "d" if real_name == "double" else "f"
+        fields = [("joints", code * dof), ("labels", "b" * len(labels)), ("singular", "i"),
+                  ("conditioning", code * conditions), ("within_limits", "i")]
+        layout, at, index, slices = "=", 0, 0, {}
+        for name, codes in sorted(fields, key=lambda f: ffi.offsetof(type_name, f[0])):
+            offset = ffi.offsetof(type_name, name)
+            layout += "x" * (offset - at) + codes
+            at = offset + struct.calcsize("=" + codes)
+            slices[name] = slice(index, index + len(codes))
+            index += len(codes)
+        self.record = struct.Struct(layout + "x" * (ffi.sizeof(type_name) - at))
+        self.joints, self.labels, self.conditioning = slices["joints"], slices["labels"], slices["conditioning"]
+        self.singular, self.within = slices["singular"].start, slices["within_limits"].start
+        patterns = [()]
+        for positive, negative in labels:
+            patterns = [p + (v,) for p in patterns for v in ((1, positive), (-1, negative))]
+        self.configs = {tuple(sign for sign, _ in p): tuple(word for _, word in p) for p in patterns}
+
+    def read(self, array, count):
+        configs, make = self.configs, self.make
+        out = []
+        for values in self.record.iter_unpack(self.ffi.buffer(array, count * self.record.size)):
+            config = configs[tuple(1 if v > 0 else -1 for v in values[self.labels])]
+            out.append(make((values[self.joints], config, bool(values[self.singular]),
+                             values[self.conditioning], bool(values[self.within]))))
+        return out
+
+
 class CompiledSolver:
     """The C functions of one compiled solver behind the Python solver's functions.
 
@@ -183,31 +229,8 @@ class CompiledSolver:
         self._inverse = getattr(self.lib, f"{prefix}_inverse")
         self._natural = {name: getattr(self.lib, f"{prefix}_{name}", None)
                          for name in ("inverse_point", "inverse_point_angle", "inverse_point_direction")}
-        # one solution struct as a struct-module format (its fields at their offsets, padding
-        # skipped), so that all solutions are read back in one pass over the C array's bytes
-        self._record = struct.Struct(self._layout(f"{prefix}_solution"))
-        # every sign pattern of the labels (+1/-1 per label) and its words
-        self._configs = {}
-        patterns = [()]
-        for positive, negative in self.labels:
-            patterns = [p + (v,) for p in patterns for v in ((1, positive), (-1, negative))]
-        for pattern in patterns:
-            self._configs[tuple(sign for sign, _ in pattern)] = tuple(word for _, word in pattern)
-
-    def _layout(self, type_name):
-        ffi = self.ffi
-        real = "d" if self.real == "double" else "f"
-        fields = [("joints", real * self.dof), ("labels", "b" * len(self.labels)),
-                  ("singular", "i"), ("conditioning", real * self.conditions), ("within_limits", "i")]
-        layout, at, index = "=", 0, 0
-        self._slices = {}                 # field -> its slice of an unpacked record
-        for name, codes in sorted(fields, key=lambda f: ffi.offsetof(type_name, f[0])):
-            offset = ffi.offsetof(type_name, name)
-            layout += "x" * (offset - at) + codes
-            at = offset + struct.calcsize("=" + codes)
-            self._slices[name] = slice(index, index + len(codes))
-            index += len(codes)
-        return layout + "x" * (ffi.sizeof(type_name) - at)
+        self._reader = SolutionReader(ffi, f"{prefix}_solution", self.real, self.dof, self.labels,
+                                      self.conditions, Solution)
 
     def _array(self, values, size, what):
         return self.ffi.new(f"{self.real}[{size}]", vector(values, size, what))
@@ -232,8 +255,7 @@ class CompiledSolver:
         out = self.ffi.new(self._out_type)
         status = self.ffi.new(self._status_type)
         count = call(*args, self._current(current), mode, out, status)
-        solutions = [self._solution(values) for values in
-                     self._record.iter_unpack(self.ffi.buffer(out, count * self._record.size))]
+        solutions = self._reader.read(out, count)
         return (solutions, self.status_names[status[0]]) if with_status else solutions
 
     def inverse(self, pose, current=None, limits="drop", with_status=False):
@@ -254,12 +276,6 @@ class CompiledSolver:
         return self._run(self._natural["inverse_point_direction"],
                          (self._vector(point, "point"), self._vector(direction, "direction")), current, limits,
                          with_status)
-
-    def _solution(self, values):
-        part = self._slices
-        config = self._configs[tuple(1 if v > 0 else -1 for v in values[part["labels"]])]
-        return Solution((values[part["joints"]], config, bool(values[part["singular"]][0]),
-                         values[part["conditioning"]], bool(values[part["within_limits"]][0])))
 
 
 def distance(a, b, weights=None):

@@ -109,15 +109,8 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = r11;
-    const double rc12 = r12;
-    const double rc13 = r13;
     const double pcx = px - 30.0*r13;
-    const double rc21 = r21;
-    const double rc23 = r23;
     const double pcy = py - 30.0*r23;
-    const double rc31 = r31;
-    const double rc33 = r33;
     const double pcz = pz - 30.0*r33;
 
     /* thp12m4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
@@ -126,8 +119,8 @@ static int closed_form(const double pose[16], const double *current,
     {
 
         dtp12m4 = 1.0;
-        cp12m4 = (rc11) / dtp12m4;
-        sp12m4 = (rc12) / dtp12m4;
+        cp12m4 = (r11) / dtp12m4;
+        sp12m4 = (r12) / dtp12m4;
         freep12m4 = 0;
     }
     (void)freep12m4;
@@ -152,13 +145,13 @@ static int closed_form(const double pose[16], const double *current,
     double l3 = 0.0, dn3;
     int free3 = 1;
     {
-        const double t3_0_0 = rc13*rc13;
-        const double t3_0_1 = rc23*rc23;
-        const double t3_0_2 = rc33*rc33;
+        const double t3_0_0 = r13*r13;
+        const double t3_0_1 = r23*r23;
+        const double t3_0_2 = r33*r33;
 
         dn3 = -t3_0_0 - t3_0_1 - t3_0_2;
         if (fabs(dn3) > 9.9999999999999995e-21) {
-            l3 = (-pcx*rc13 - pcy*rc23 - pcz*rc33 + 275.0*rc11*rc13 + 275.0*rc21*rc23 + 275.0*rc31*rc33 + 45.0*t3_0_0 + 45.0*t3_0_1 + 45.0*t3_0_2 - 380.0) / dn3;
+            l3 = (-pcx*r13 - pcy*r23 - pcz*r33 + 275.0*r11*r13 + 275.0*r21*r23 + 275.0*r31*r33 + 45.0*t3_0_0 + 45.0*t3_0_1 + 45.0*t3_0_2 - 380.0) / dn3;
             free3 = 0;
         }
     }
@@ -168,13 +161,13 @@ static int closed_form(const double pose[16], const double *current,
 
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
      * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-    const double t4_0 = rc13*rc13;
-    const double t4_1 = rc23*rc23;
-    const double t4_2 = rc33*rc33;
+    const double t4_0 = r13*r13;
+    const double t4_1 = r23*r23;
+    const double t4_2 = r33*r33;
     const double t4_3 = l3*l3;
-    const double t4_4 = pcx*rc13;
-    const double t4_5 = pcy*rc23;
-    const double t4_6 = pcz*rc33;
+    const double t4_4 = pcx*r13;
+    const double t4_5 = pcy*r23;
+    const double t4_6 = pcz*r33;
     const double t4_7 = 90.0*l3;
     const double t4_8 = 2.0*l3;
     const double t4_9 = pcx*pcx + pcy*pcy + pcz*pcz + t4_0*t4_3 + t4_0*t4_7 + 2025.0*t4_0 + t4_1*t4_3 + t4_1*t4_7 + 2025.0*t4_1 + t4_2*t4_3 + t4_2*t4_7 + 2025.0*t4_2 - t4_4*t4_8 - 90.0*t4_4 - t4_5*t4_8 - 90.0*t4_5 - t4_6*t4_8 - 90.0*t4_6;
@@ -207,8 +200,8 @@ static int closed_form(const double pose[16], const double *current,
 
             dt1 = 178750.0*c2 + 181250.0;
             if (fabs(dt1) > 9.9999999999999988e-16) {
-                c1 = (275.0*c2*pcx + 325.0*pcx + 275.0*pcy*s2 - rc13*t5_0_0 - rc13*t5_0_1 - rc13*t5_0_3 - 14625.0*rc13 - rc23*s2*t5_0_2 - 12375.0*rc23*s2) / dt1;
-                s1 = (275.0*c2*pcy + 275.0*l3*rc13*s2 - 275.0*pcx*s2 + 325.0*pcy + 12375.0*rc13*s2 - rc23*t5_0_0 - rc23*t5_0_1 - rc23*t5_0_3 - 14625.0*rc23) / dt1;
+                c1 = (275.0*c2*pcx + 325.0*pcx + 275.0*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625.0*r13 - r23*s2*t5_0_2 - 12375.0*r23*s2) / dt1;
+                s1 = (275.0*c2*pcy + 275.0*l3*r13*s2 - 275.0*pcx*s2 + 325.0*pcy + 12375.0*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625.0*r23) / dt1;
                 free1 = 0;
                 wk1 = 0.0009999999999999998;
             }
@@ -216,62 +209,62 @@ static int closed_form(const double pose[16], const double *current,
         if (free1) {
             const double t5_1_0 = pcx*pcx;
             const double t5_1_1 = pcy*pcy;
-            const double t5_1_2 = rc13*rc13;
-            const double t5_1_3 = rc23*rc23;
+            const double t5_1_2 = r13*r13;
+            const double t5_1_3 = r23*r23;
             const double t5_1_4 = 550.0*c2;
             const double t5_1_5 = 1113750.0*c2;
             const double t5_1_6 = 29250.0*l3;
-            const double t5_1_7 = l3*rc23;
+            const double t5_1_7 = l3*r23;
             const double t5_1_8 = 24750.0*c2*l3;
             const double t5_1_9 = 178750.0*c2;
-            const double t5_1_10 = 8043750.0*rc13;
-            const double t5_1_11 = l3*rc13;
+            const double t5_1_10 = 8043750.0*r13;
+            const double t5_1_11 = l3*r13;
             const double t5_1_12 = 760.0*pcz;
-            const double t5_1_13 = 34200.0*rc33;
+            const double t5_1_13 = 34200.0*r33;
             const double t5_1_14 = 178750.0*s2;
             const double t5_1_15 = 34200.0*pcz;
-            const double t5_1_16 = 1539000.0*rc33;
-            const double t5_1_17 = 8043750.0*rc23;
-            const double t5_1_18 = rc13*rc13*rc13;
+            const double t5_1_16 = 1539000.0*r33;
+            const double t5_1_17 = 8043750.0*r23;
+            const double t5_1_18 = r13*r13*r13;
             const double t5_1_19 = l3*l3;
             const double t5_1_20 = c2*s2;
             const double t5_1_21 = 151250.0*t5_1_20;
             const double t5_1_22 = 6806250.0*t5_1_20;
-            const double t5_1_23 = pcy*rc23;
+            const double t5_1_23 = pcy*r23;
             const double t5_1_24 = 90.0*pcx;
-            const double t5_1_25 = pcz*rc33;
-            const double t5_1_26 = 4050.0*rc13;
+            const double t5_1_25 = pcz*r33;
+            const double t5_1_26 = 4050.0*r13;
             const double t5_1_27 = 2025.0*l3;
-            const double t5_1_28 = 45.0*rc13;
+            const double t5_1_28 = 45.0*r13;
             const double t5_1_29 = l3*l3*l3;
             const double t5_1_30 = pcz*pcz;
             const double t5_1_31 = pcx*t5_1_2;
             const double t5_1_32 = 2025.0*pcx;
-            const double t5_1_33 = rc33*rc33;
+            const double t5_1_33 = r33*r33;
             const double t5_1_34 = s2*s2;
             const double t5_1_35 = 151250.0*t5_1_34;
-            const double t5_1_36 = rc13*t5_1_0;
-            const double t5_1_37 = 91125.0*rc13;
+            const double t5_1_36 = r13*t5_1_0;
+            const double t5_1_37 = 91125.0*r13;
             const double t5_1_38 = 6806250.0*t5_1_34;
             const double t5_1_39 = 90.0*t5_1_11;
             const double t5_1_40 = 90.0*l3;
-            const double t5_1_41 = rc13*t5_1_27;
-            const double t5_1_42 = rc23*rc23*rc23;
-            const double t5_1_43 = pcx*rc13;
+            const double t5_1_41 = r13*t5_1_27;
+            const double t5_1_42 = r23*r23*r23;
+            const double t5_1_43 = pcx*r13;
             const double t5_1_44 = 90.0*pcy;
-            const double t5_1_45 = 4050.0*rc23;
-            const double t5_1_46 = 45.0*rc23;
+            const double t5_1_45 = 4050.0*r23;
+            const double t5_1_46 = 45.0*r23;
             const double t5_1_47 = 2025.0*pcy;
             const double t5_1_48 = pcy*t5_1_3;
-            const double t5_1_49 = rc23*t5_1_1;
-            const double t5_1_50 = 91125.0*rc23;
+            const double t5_1_49 = r23*t5_1_1;
+            const double t5_1_50 = 91125.0*r23;
             const double t5_1_51 = 90.0*t5_1_7;
-            const double t5_1_52 = rc23*t5_1_27;
+            const double t5_1_52 = r23*t5_1_27;
 
-            dt1 = 550.0*c2*l3*pcx*rc13 + 550.0*c2*l3*pcy*rc23 + 49500.0*c2*pcx*rc13 + 49500.0*c2*pcy*rc23 + 650.0*l3*pcx*rc13 + 550.0*l3*pcy*rc13*s2 + 650.0*l3*pcy*rc23 + 58500.0*pcx*rc13 - 550.0*pcx*s2*t5_1_7 + 58500.0*pcy*rc23 - t5_1_0*t5_1_4 - 650.0*t5_1_0 - t5_1_1*t5_1_4 - 650.0*t5_1_1 - t5_1_2*t5_1_5 - t5_1_2*t5_1_6 - t5_1_2*t5_1_8 - 1316250.0*t5_1_2 - t5_1_3*t5_1_5 - t5_1_3*t5_1_6 - t5_1_3*t5_1_8 - 1316250.0*t5_1_3;
+            dt1 = 550.0*c2*l3*pcx*r13 + 550.0*c2*l3*pcy*r23 + 49500.0*c2*pcx*r13 + 49500.0*c2*pcy*r23 + 650.0*l3*pcx*r13 + 550.0*l3*pcy*r13*s2 + 650.0*l3*pcy*r23 + 58500.0*pcx*r13 - 550.0*pcx*s2*t5_1_7 + 58500.0*pcy*r23 - t5_1_0*t5_1_4 - 650.0*t5_1_0 - t5_1_1*t5_1_4 - 650.0*t5_1_1 - t5_1_2*t5_1_5 - t5_1_2*t5_1_6 - t5_1_2*t5_1_8 - 1316250.0*t5_1_2 - t5_1_3*t5_1_5 - t5_1_3*t5_1_6 - t5_1_3*t5_1_8 - 1316250.0*t5_1_3;
             if (fabs(dt1) > 9.9999999999999998e-13) {
-                c1 = (c2*t5_1_10 + l3*t5_1_36 - pcx*pcx*pcx - pcx*t5_1_1 + pcx*t5_1_12 - pcx*t5_1_13 + pcx*t5_1_19 - pcx*t5_1_30 + pcx*t5_1_35 - pcx*t5_1_9 - 325650.0*pcx - pcy*t5_1_14 - pcy*t5_1_21 - rc13*t5_1_15 + rc13*t5_1_16 - rc13*t5_1_29 - rc13*t5_1_38 + 14654250.0*rc13 + rc23*t5_1_22 + s2*t5_1_17 + t5_1_1*t5_1_11 + t5_1_1*t5_1_28 - t5_1_11*t5_1_12 + t5_1_11*t5_1_13 + t5_1_11*t5_1_30 + t5_1_11*t5_1_9 + 325650.0*t5_1_11 + t5_1_18*t5_1_27 + 91125.0*t5_1_18 - t5_1_19*t5_1_28 + t5_1_23*t5_1_24 - t5_1_23*t5_1_26 - t5_1_23*t5_1_39 + t5_1_24*t5_1_25 - t5_1_25*t5_1_26 - t5_1_25*t5_1_39 + t5_1_28*t5_1_30 - t5_1_3*t5_1_32 + t5_1_3*t5_1_37 + t5_1_3*t5_1_41 - t5_1_31*t5_1_40 - 6075.0*t5_1_31 - t5_1_32*t5_1_33 + t5_1_33*t5_1_37 + t5_1_33*t5_1_41 + 135.0*t5_1_36) / dt1;
-                s1 = (c2*t5_1_17 + l3*t5_1_49 + pcx*t5_1_14 + pcx*t5_1_21 - pcy*pcy*pcy - pcy*t5_1_0 + pcy*t5_1_12 - pcy*t5_1_13 + pcy*t5_1_19 - pcy*t5_1_30 + pcy*t5_1_35 - pcy*t5_1_9 - 325650.0*pcy - rc13*t5_1_22 - rc23*t5_1_15 + rc23*t5_1_16 - rc23*t5_1_29 - rc23*t5_1_38 + 14654250.0*rc23 - s2*t5_1_10 + t5_1_0*t5_1_46 + t5_1_0*t5_1_7 - t5_1_12*t5_1_7 + t5_1_13*t5_1_7 - t5_1_19*t5_1_46 - t5_1_2*t5_1_47 + t5_1_2*t5_1_50 + t5_1_2*t5_1_52 + t5_1_25*t5_1_44 - t5_1_25*t5_1_45 - t5_1_25*t5_1_51 + t5_1_27*t5_1_42 + t5_1_30*t5_1_46 + t5_1_30*t5_1_7 - t5_1_33*t5_1_47 + t5_1_33*t5_1_50 + t5_1_33*t5_1_52 - t5_1_40*t5_1_48 + 91125.0*t5_1_42 + t5_1_43*t5_1_44 - t5_1_43*t5_1_45 - t5_1_43*t5_1_51 - 6075.0*t5_1_48 + 135.0*t5_1_49 + t5_1_7*t5_1_9 + 325650.0*t5_1_7) / dt1;
+                c1 = (c2*t5_1_10 + l3*t5_1_36 - pcx*pcx*pcx - pcx*t5_1_1 + pcx*t5_1_12 - pcx*t5_1_13 + pcx*t5_1_19 - pcx*t5_1_30 + pcx*t5_1_35 - pcx*t5_1_9 - 325650.0*pcx - pcy*t5_1_14 - pcy*t5_1_21 - r13*t5_1_15 + r13*t5_1_16 - r13*t5_1_29 - r13*t5_1_38 + 14654250.0*r13 + r23*t5_1_22 + s2*t5_1_17 + t5_1_1*t5_1_11 + t5_1_1*t5_1_28 - t5_1_11*t5_1_12 + t5_1_11*t5_1_13 + t5_1_11*t5_1_30 + t5_1_11*t5_1_9 + 325650.0*t5_1_11 + t5_1_18*t5_1_27 + 91125.0*t5_1_18 - t5_1_19*t5_1_28 + t5_1_23*t5_1_24 - t5_1_23*t5_1_26 - t5_1_23*t5_1_39 + t5_1_24*t5_1_25 - t5_1_25*t5_1_26 - t5_1_25*t5_1_39 + t5_1_28*t5_1_30 - t5_1_3*t5_1_32 + t5_1_3*t5_1_37 + t5_1_3*t5_1_41 - t5_1_31*t5_1_40 - 6075.0*t5_1_31 - t5_1_32*t5_1_33 + t5_1_33*t5_1_37 + t5_1_33*t5_1_41 + 135.0*t5_1_36) / dt1;
+                s1 = (c2*t5_1_17 + l3*t5_1_49 + pcx*t5_1_14 + pcx*t5_1_21 - pcy*pcy*pcy - pcy*t5_1_0 + pcy*t5_1_12 - pcy*t5_1_13 + pcy*t5_1_19 - pcy*t5_1_30 + pcy*t5_1_35 - pcy*t5_1_9 - 325650.0*pcy - r13*t5_1_22 - r23*t5_1_15 + r23*t5_1_16 - r23*t5_1_29 - r23*t5_1_38 + 14654250.0*r23 - s2*t5_1_10 + t5_1_0*t5_1_46 + t5_1_0*t5_1_7 - t5_1_12*t5_1_7 + t5_1_13*t5_1_7 - t5_1_19*t5_1_46 - t5_1_2*t5_1_47 + t5_1_2*t5_1_50 + t5_1_2*t5_1_52 + t5_1_25*t5_1_44 - t5_1_25*t5_1_45 - t5_1_25*t5_1_51 + t5_1_27*t5_1_42 + t5_1_30*t5_1_46 + t5_1_30*t5_1_7 - t5_1_33*t5_1_47 + t5_1_33*t5_1_50 + t5_1_33*t5_1_52 - t5_1_40*t5_1_48 + 91125.0*t5_1_42 + t5_1_43*t5_1_44 - t5_1_43*t5_1_45 - t5_1_43*t5_1_51 - 6075.0*t5_1_48 + 135.0*t5_1_49 + t5_1_7*t5_1_9 + 325650.0*t5_1_7) / dt1;
                 free1 = 0;
                 wk1 = 1.0;
             }
@@ -279,54 +272,54 @@ static int closed_form(const double pose[16], const double *current,
         if (free1) {
             const double t5_2_0 = pcx*pcx;
             const double t5_2_1 = pcy*pcy;
-            const double t5_2_2 = rc13*rc13;
+            const double t5_2_2 = r13*r13;
             const double t5_2_3 = 2025.0*t5_2_2;
-            const double t5_2_4 = rc23*rc23;
+            const double t5_2_4 = r23*r23;
             const double t5_2_5 = 2025.0*t5_2_4;
             const double t5_2_6 = c2*pcy;
             const double t5_2_7 = pcx*s2;
             const double t5_2_8 = pcx*pcx*pcx;
             const double t5_2_9 = 760.0*pcz;
-            const double t5_2_10 = c2*rc23;
-            const double t5_2_11 = 1539000.0*rc33;
-            const double t5_2_12 = 34200.0*rc33;
-            const double t5_2_13 = rc13*s2;
+            const double t5_2_10 = c2*r23;
+            const double t5_2_11 = 1539000.0*r33;
+            const double t5_2_12 = 34200.0*r33;
+            const double t5_2_13 = r13*s2;
             const double t5_2_14 = 34200.0*pcz;
             const double t5_2_15 = pcy*pcy*pcy;
-            const double t5_2_16 = rc23*rc23*rc23;
+            const double t5_2_16 = r23*r23*r23;
             const double t5_2_17 = 91125.0*c2;
-            const double t5_2_18 = rc13*rc13*rc13;
+            const double t5_2_18 = r13*r13*r13;
             const double t5_2_19 = l3*l3;
             const double t5_2_20 = pcz*pcz;
             const double t5_2_21 = 90.0*pcx;
-            const double t5_2_22 = rc13*t5_2_21;
-            const double t5_2_23 = pcz*rc33;
+            const double t5_2_22 = r13*t5_2_21;
+            const double t5_2_23 = pcz*r33;
             const double t5_2_24 = 90.0*t5_2_23;
-            const double t5_2_25 = pcy*rc23;
+            const double t5_2_25 = pcy*r23;
             const double t5_2_26 = 4050.0*t5_2_13;
             const double t5_2_27 = 45.0*t5_2_10;
-            const double t5_2_28 = rc33*rc33;
+            const double t5_2_28 = r33*r33;
             const double t5_2_29 = 135.0*t5_2_1;
-            const double t5_2_30 = rc23*t5_2_17;
+            const double t5_2_30 = r23*t5_2_17;
             const double t5_2_31 = 6075.0*t5_2_2;
             const double t5_2_32 = 2025.0*t5_2_28;
             const double t5_2_33 = c2*pcx;
             const double t5_2_34 = pcy*s2;
-            const double t5_2_35 = c2*rc13;
-            const double t5_2_36 = rc23*s2;
+            const double t5_2_35 = c2*r13;
+            const double t5_2_36 = r23*s2;
             const double t5_2_37 = 91125.0*s2;
             const double t5_2_38 = c2*t5_2_21;
             const double t5_2_39 = 4050.0*t5_2_23;
             const double t5_2_40 = 45.0*t5_2_19;
             const double t5_2_41 = 45.0*t5_2_35;
-            const double t5_2_42 = rc13*t5_2_17;
+            const double t5_2_42 = r13*t5_2_17;
             const double t5_2_43 = 45.0*t5_2_36;
-            const double t5_2_44 = rc23*t5_2_37;
+            const double t5_2_44 = r23*t5_2_37;
 
-            dt1 = 650.0*s2*(90.0*pcx*rc13 + 90.0*pcy*rc23 - t5_2_0 - t5_2_1 - t5_2_3 - t5_2_5);
+            dt1 = 650.0*s2*(90.0*pcx*r13 + 90.0*pcy*r23 - t5_2_0 - t5_2_1 - t5_2_3 - t5_2_5);
             if (fabs(dt1) > 9.9999999999999998e-13) {
-                c1 = (4050.0*c2*pcx*rc13*rc23 + 34200.0*c2*pcy*rc33 + c2*pcy*t5_2_0 + 2025.0*c2*pcy*t5_2_2 + c2*pcy*t5_2_20 + 2025.0*c2*pcy*t5_2_28 + 6075.0*c2*pcy*t5_2_4 + 4050.0*c2*pcz*rc23*rc33 + 34200.0*c2*pcz*rc23 + 45.0*c2*rc23*t5_2_19 + 1658250.0*c2*rc23 + c2*t5_2_15 + 90.0*pcx*pcy*rc23*s2 + 90.0*pcx*pcz*rc33*s2 + 760.0*pcx*pcz*s2 + pcx*s2*t5_2_19 - 178750.0*pcy + 1539000.0*rc13*rc33*s2 + 135.0*rc13*s2*t5_2_0 + 45.0*rc13*s2*t5_2_1 + 45.0*rc13*s2*t5_2_20 + 91125.0*rc13*s2*t5_2_28 + 91125.0*rc13*s2*t5_2_4 + 7848000.0*rc13*s2 + 8043750.0*rc23 + 91125.0*s2*t5_2_18 - s2*t5_2_8 - t5_2_0*t5_2_27 - t5_2_1*t5_2_7 - t5_2_10*t5_2_11 - t5_2_10*t5_2_29 - t5_2_12*t5_2_7 - t5_2_13*t5_2_14 - 45.0*t5_2_13*t5_2_19 - t5_2_16*t5_2_17 - t5_2_19*t5_2_6 - t5_2_2*t5_2_30 - t5_2_20*t5_2_27 - t5_2_20*t5_2_7 - t5_2_22*t5_2_6 - t5_2_23*t5_2_26 - t5_2_24*t5_2_6 - t5_2_25*t5_2_26 - t5_2_28*t5_2_30 - t5_2_31*t5_2_7 - t5_2_32*t5_2_7 - t5_2_5*t5_2_7 - t5_2_6*t5_2_9 - 36850.0*t5_2_6 - 174400.0*t5_2_7) / dt1;
-                s1 = (-1658250.0*c2*rc13 - c2*t5_2_8 + 178750.0*pcx - 4050.0*rc13*rc23*t5_2_7 - 8043750.0*rc13 + 7848000.0*rc23*s2 - s2*t5_2_15 - t5_2_0*t5_2_34 + 135.0*t5_2_0*t5_2_35 + t5_2_0*t5_2_43 - t5_2_1*t5_2_33 + t5_2_1*t5_2_41 + t5_2_11*t5_2_35 + t5_2_11*t5_2_36 - t5_2_12*t5_2_33 - t5_2_12*t5_2_34 - t5_2_14*t5_2_35 - t5_2_14*t5_2_36 + t5_2_16*t5_2_37 + t5_2_17*t5_2_18 + t5_2_19*t5_2_33 + t5_2_19*t5_2_34 + t5_2_2*t5_2_44 - t5_2_20*t5_2_33 - t5_2_20*t5_2_34 + t5_2_20*t5_2_41 + t5_2_20*t5_2_43 + t5_2_22*t5_2_34 + t5_2_23*t5_2_38 + t5_2_24*t5_2_34 - 4050.0*t5_2_25*t5_2_35 + t5_2_25*t5_2_38 + t5_2_28*t5_2_42 + t5_2_28*t5_2_44 + t5_2_29*t5_2_36 - t5_2_3*t5_2_34 - t5_2_31*t5_2_33 - t5_2_32*t5_2_33 - t5_2_32*t5_2_34 - t5_2_33*t5_2_5 + t5_2_33*t5_2_9 + 36850.0*t5_2_33 - 6075.0*t5_2_34*t5_2_4 + t5_2_34*t5_2_9 - 174400.0*t5_2_34 - t5_2_35*t5_2_39 - t5_2_35*t5_2_40 - t5_2_36*t5_2_39 - t5_2_36*t5_2_40 + t5_2_4*t5_2_42) / dt1;
+                c1 = (4050.0*c2*pcx*r13*r23 + 34200.0*c2*pcy*r33 + c2*pcy*t5_2_0 + 2025.0*c2*pcy*t5_2_2 + c2*pcy*t5_2_20 + 2025.0*c2*pcy*t5_2_28 + 6075.0*c2*pcy*t5_2_4 + 4050.0*c2*pcz*r23*r33 + 34200.0*c2*pcz*r23 + 45.0*c2*r23*t5_2_19 + 1658250.0*c2*r23 + c2*t5_2_15 + 90.0*pcx*pcy*r23*s2 + 90.0*pcx*pcz*r33*s2 + 760.0*pcx*pcz*s2 + pcx*s2*t5_2_19 - 178750.0*pcy + 1539000.0*r13*r33*s2 + 135.0*r13*s2*t5_2_0 + 45.0*r13*s2*t5_2_1 + 45.0*r13*s2*t5_2_20 + 91125.0*r13*s2*t5_2_28 + 91125.0*r13*s2*t5_2_4 + 7848000.0*r13*s2 + 8043750.0*r23 + 91125.0*s2*t5_2_18 - s2*t5_2_8 - t5_2_0*t5_2_27 - t5_2_1*t5_2_7 - t5_2_10*t5_2_11 - t5_2_10*t5_2_29 - t5_2_12*t5_2_7 - t5_2_13*t5_2_14 - 45.0*t5_2_13*t5_2_19 - t5_2_16*t5_2_17 - t5_2_19*t5_2_6 - t5_2_2*t5_2_30 - t5_2_20*t5_2_27 - t5_2_20*t5_2_7 - t5_2_22*t5_2_6 - t5_2_23*t5_2_26 - t5_2_24*t5_2_6 - t5_2_25*t5_2_26 - t5_2_28*t5_2_30 - t5_2_31*t5_2_7 - t5_2_32*t5_2_7 - t5_2_5*t5_2_7 - t5_2_6*t5_2_9 - 36850.0*t5_2_6 - 174400.0*t5_2_7) / dt1;
+                s1 = (-1658250.0*c2*r13 - c2*t5_2_8 + 178750.0*pcx - 4050.0*r13*r23*t5_2_7 - 8043750.0*r13 + 7848000.0*r23*s2 - s2*t5_2_15 - t5_2_0*t5_2_34 + 135.0*t5_2_0*t5_2_35 + t5_2_0*t5_2_43 - t5_2_1*t5_2_33 + t5_2_1*t5_2_41 + t5_2_11*t5_2_35 + t5_2_11*t5_2_36 - t5_2_12*t5_2_33 - t5_2_12*t5_2_34 - t5_2_14*t5_2_35 - t5_2_14*t5_2_36 + t5_2_16*t5_2_37 + t5_2_17*t5_2_18 + t5_2_19*t5_2_33 + t5_2_19*t5_2_34 + t5_2_2*t5_2_44 - t5_2_20*t5_2_33 - t5_2_20*t5_2_34 + t5_2_20*t5_2_41 + t5_2_20*t5_2_43 + t5_2_22*t5_2_34 + t5_2_23*t5_2_38 + t5_2_24*t5_2_34 - 4050.0*t5_2_25*t5_2_35 + t5_2_25*t5_2_38 + t5_2_28*t5_2_42 + t5_2_28*t5_2_44 + t5_2_29*t5_2_36 - t5_2_3*t5_2_34 - t5_2_31*t5_2_33 - t5_2_32*t5_2_33 - t5_2_32*t5_2_34 - t5_2_33*t5_2_5 + t5_2_33*t5_2_9 + 36850.0*t5_2_33 - 6075.0*t5_2_34*t5_2_4 + t5_2_34*t5_2_9 - 174400.0*t5_2_34 - t5_2_35*t5_2_39 - t5_2_35*t5_2_40 - t5_2_36*t5_2_39 - t5_2_36*t5_2_40 + t5_2_4*t5_2_42) / dt1;
                 free1 = 0;
                 wk1 = 1.0;
             }

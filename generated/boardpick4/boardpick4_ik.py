@@ -139,8 +139,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -236,10 +244,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     pose, tilt = _project(pose)
     if check and not tilt <= TILT_TOLERANCE:
         return [], "not_realisable"
@@ -352,40 +360,29 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = r11
-    rc12 = r12
-    rc13 = r13
     pcx = px - 30*r13
-    rc21 = r21
-    rc23 = r23
     pcy = py - 30*r23
-    rc31 = r31
-    rc33 = r33
     pcz = pz - 30*r33
 
     # thp12m4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
     freep12m4 = True
 
     dtp12m4 = 1
-    cp12m4 = (rc11) / dtp12m4
-    sp12m4 = (rc12) / dtp12m4
+    cp12m4 = (r11) / dtp12m4
+    sp12m4 = (r12) / dtp12m4
     freep12m4 = False
 
-    if abs(cp12m4 * cp12m4 + sp12m4 * sp12m4 - 1.0) > 1e-4:
+    hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
+    if abs(hqp12m4 - 1.0) > 1e-4:
         return solutions
     thp12m4 = atan2(sp12m4, cp12m4)
     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-    hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
     if abs(hqp12m4 - 1.0) > 1e-12:
         hnp12m4 = 1.0 / sqrt(hqp12m4)
         cp12m4 = cp12m4 * hnp12m4
@@ -393,26 +390,26 @@ def _closed_form(pose, current):
 
     # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
     free3 = True
-    t3_0_0 = rc13*rc13
-    t3_0_1 = rc23*rc23
-    t3_0_2 = rc33*rc33
+    t3_0_0 = r13*r13
+    t3_0_1 = r23*r23
+    t3_0_2 = r33*r33
 
     dn3 = -t3_0_0 - t3_0_1 - t3_0_2
     if abs(dn3) > 1e-20:
-        l3 = (-pcx*rc13 - pcy*rc23 - pcz*rc33 + 275*rc11*rc13 + 275*rc21*rc23 + 275*rc31*rc33 + 45*t3_0_0 + 45*t3_0_1 + 45*t3_0_2 - 380) / dn3
+        l3 = (-pcx*r13 - pcy*r23 - pcz*r33 + 275*r11*r13 + 275*r21*r23 + 275*r31*r33 + 45*t3_0_0 + 45*t3_0_1 + 45*t3_0_2 - 380) / dn3
         free3 = False
     if free3:
         l3 = (0.0 + 1.0 * (current[2] if current is not None else 0.0))
 
     # th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
     # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t4_0 = rc13*rc13
-    t4_1 = rc23*rc23
-    t4_2 = rc33*rc33
+    t4_0 = r13*r13
+    t4_1 = r23*r23
+    t4_2 = r33*r33
     t4_3 = l3*l3
-    t4_4 = pcx*rc13
-    t4_5 = pcy*rc23
-    t4_6 = pcz*rc33
+    t4_4 = pcx*r13
+    t4_5 = pcy*r23
+    t4_6 = pcz*r33
     t4_7 = 90*l3
     t4_8 = 2*l3
     t4_9 = pcx*pcx + pcy*pcy + pcz*pcz + t4_0*t4_3 + t4_0*t4_7 + 2025*t4_0 + t4_1*t4_3 + t4_1*t4_7 + 2025*t4_1 + t4_2*t4_3 + t4_2*t4_7 + 2025*t4_2 - t4_4*t4_8 - 90*t4_4 - t4_5*t4_8 - 90*t4_5 - t4_6*t4_8 - 90*t4_6
@@ -438,131 +435,133 @@ def _closed_form(pose, current):
 
         dt1 = 178750*c2 + 181250
         if abs(dt1) > 9.999999999999999e-16:
-            c1 = (275*c2*pcx + 325*pcx + 275*pcy*s2 - rc13*t5_0_0 - rc13*t5_0_1 - rc13*t5_0_3 - 14625*rc13 - rc23*s2*t5_0_2 - 12375*rc23*s2) / dt1
-            s1 = (275*c2*pcy + 275*l3*rc13*s2 - 275*pcx*s2 + 325*pcy + 12375*rc13*s2 - rc23*t5_0_0 - rc23*t5_0_1 - rc23*t5_0_3 - 14625*rc23) / dt1
+            c1 = (275*c2*pcx + 325*pcx + 275*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625*r13 - r23*s2*t5_0_2 - 12375*r23*s2) / dt1
+            s1 = (275*c2*pcy + 275*l3*r13*s2 - 275*pcx*s2 + 325*pcy + 12375*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625*r23) / dt1
             free1 = False
             wk1 = 0.0009999999999999998
 
         if free1:
             t5_1_0 = pcx*pcx
             t5_1_1 = pcy*pcy
-            t5_1_2 = rc13*rc13
-            t5_1_3 = rc23*rc23
+            t5_1_2 = r13*r13
+            t5_1_3 = r23*r23
             t5_1_4 = 550*c2
             t5_1_5 = 1113750*c2
             t5_1_6 = 29250*l3
-            t5_1_7 = l3*rc23
+            t5_1_7 = l3*r23
             t5_1_8 = 24750*c2*l3
             t5_1_9 = 178750*c2
-            t5_1_10 = 8043750*rc13
-            t5_1_11 = l3*rc13
+            t5_1_10 = 8043750*r13
+            t5_1_11 = l3*r13
             t5_1_12 = 760*pcz
-            t5_1_13 = 34200*rc33
+            t5_1_13 = 34200*r33
             t5_1_14 = 178750*s2
             t5_1_15 = 34200*pcz
-            t5_1_16 = 1539000*rc33
-            t5_1_17 = 8043750*rc23
-            t5_1_18 = rc13*rc13*rc13
+            t5_1_16 = 1539000*r33
+            t5_1_17 = 8043750*r23
+            t5_1_18 = r13*r13*r13
             t5_1_19 = l3*l3
             t5_1_20 = c2*s2
             t5_1_21 = 151250*t5_1_20
             t5_1_22 = 6806250*t5_1_20
-            t5_1_23 = pcy*rc23
+            t5_1_23 = pcy*r23
             t5_1_24 = 90*pcx
-            t5_1_25 = pcz*rc33
-            t5_1_26 = 4050*rc13
+            t5_1_25 = pcz*r33
+            t5_1_26 = 4050*r13
             t5_1_27 = 2025*l3
-            t5_1_28 = 45*rc13
+            t5_1_28 = 45*r13
             t5_1_29 = l3*l3*l3
             t5_1_30 = pcz*pcz
             t5_1_31 = pcx*t5_1_2
             t5_1_32 = 2025*pcx
-            t5_1_33 = rc33*rc33
+            t5_1_33 = r33*r33
             t5_1_34 = s2*s2
             t5_1_35 = 151250*t5_1_34
-            t5_1_36 = rc13*t5_1_0
-            t5_1_37 = 91125*rc13
+            t5_1_36 = r13*t5_1_0
+            t5_1_37 = 91125*r13
             t5_1_38 = 6806250*t5_1_34
             t5_1_39 = 90*t5_1_11
             t5_1_40 = 90*l3
-            t5_1_41 = rc13*t5_1_27
-            t5_1_42 = rc23*rc23*rc23
-            t5_1_43 = pcx*rc13
+            t5_1_41 = r13*t5_1_27
+            t5_1_42 = r23*r23*r23
+            t5_1_43 = pcx*r13
             t5_1_44 = 90*pcy
-            t5_1_45 = 4050*rc23
-            t5_1_46 = 45*rc23
+            t5_1_45 = 4050*r23
+            t5_1_46 = 45*r23
             t5_1_47 = 2025*pcy
             t5_1_48 = pcy*t5_1_3
-            t5_1_49 = rc23*t5_1_1
-            t5_1_50 = 91125*rc23
+            t5_1_49 = r23*t5_1_1
+            t5_1_50 = 91125*r23
             t5_1_51 = 90*t5_1_7
-            t5_1_52 = rc23*t5_1_27
+            t5_1_52 = r23*t5_1_27
 
-            dt1 = 550*c2*l3*pcx*rc13 + 550*c2*l3*pcy*rc23 + 49500*c2*pcx*rc13 + 49500*c2*pcy*rc23 + 650*l3*pcx*rc13 + 550*l3*pcy*rc13*s2 + 650*l3*pcy*rc23 + 58500*pcx*rc13 - 550*pcx*s2*t5_1_7 + 58500*pcy*rc23 - t5_1_0*t5_1_4 - 650*t5_1_0 - t5_1_1*t5_1_4 - 650*t5_1_1 - t5_1_2*t5_1_5 - t5_1_2*t5_1_6 - t5_1_2*t5_1_8 - 1316250*t5_1_2 - t5_1_3*t5_1_5 - t5_1_3*t5_1_6 - t5_1_3*t5_1_8 - 1316250*t5_1_3
+            dt1 = 550*c2*l3*pcx*r13 + 550*c2*l3*pcy*r23 + 49500*c2*pcx*r13 + 49500*c2*pcy*r23 + 650*l3*pcx*r13 + 550*l3*pcy*r13*s2 + 650*l3*pcy*r23 + 58500*pcx*r13 - 550*pcx*s2*t5_1_7 + 58500*pcy*r23 - t5_1_0*t5_1_4 - 650*t5_1_0 - t5_1_1*t5_1_4 - 650*t5_1_1 - t5_1_2*t5_1_5 - t5_1_2*t5_1_6 - t5_1_2*t5_1_8 - 1316250*t5_1_2 - t5_1_3*t5_1_5 - t5_1_3*t5_1_6 - t5_1_3*t5_1_8 - 1316250*t5_1_3
             if abs(dt1) > 1e-12:
-                c1 = (c2*t5_1_10 + l3*t5_1_36 - pcx*pcx*pcx - pcx*t5_1_1 + pcx*t5_1_12 - pcx*t5_1_13 + pcx*t5_1_19 - pcx*t5_1_30 + pcx*t5_1_35 - pcx*t5_1_9 - 325650*pcx - pcy*t5_1_14 - pcy*t5_1_21 - rc13*t5_1_15 + rc13*t5_1_16 - rc13*t5_1_29 - rc13*t5_1_38 + 14654250*rc13 + rc23*t5_1_22 + s2*t5_1_17 + t5_1_1*t5_1_11 + t5_1_1*t5_1_28 - t5_1_11*t5_1_12 + t5_1_11*t5_1_13 + t5_1_11*t5_1_30 + t5_1_11*t5_1_9 + 325650*t5_1_11 + t5_1_18*t5_1_27 + 91125*t5_1_18 - t5_1_19*t5_1_28 + t5_1_23*t5_1_24 - t5_1_23*t5_1_26 - t5_1_23*t5_1_39 + t5_1_24*t5_1_25 - t5_1_25*t5_1_26 - t5_1_25*t5_1_39 + t5_1_28*t5_1_30 - t5_1_3*t5_1_32 + t5_1_3*t5_1_37 + t5_1_3*t5_1_41 - t5_1_31*t5_1_40 - 6075*t5_1_31 - t5_1_32*t5_1_33 + t5_1_33*t5_1_37 + t5_1_33*t5_1_41 + 135*t5_1_36) / dt1
-                s1 = (c2*t5_1_17 + l3*t5_1_49 + pcx*t5_1_14 + pcx*t5_1_21 - pcy*pcy*pcy - pcy*t5_1_0 + pcy*t5_1_12 - pcy*t5_1_13 + pcy*t5_1_19 - pcy*t5_1_30 + pcy*t5_1_35 - pcy*t5_1_9 - 325650*pcy - rc13*t5_1_22 - rc23*t5_1_15 + rc23*t5_1_16 - rc23*t5_1_29 - rc23*t5_1_38 + 14654250*rc23 - s2*t5_1_10 + t5_1_0*t5_1_46 + t5_1_0*t5_1_7 - t5_1_12*t5_1_7 + t5_1_13*t5_1_7 - t5_1_19*t5_1_46 - t5_1_2*t5_1_47 + t5_1_2*t5_1_50 + t5_1_2*t5_1_52 + t5_1_25*t5_1_44 - t5_1_25*t5_1_45 - t5_1_25*t5_1_51 + t5_1_27*t5_1_42 + t5_1_30*t5_1_46 + t5_1_30*t5_1_7 - t5_1_33*t5_1_47 + t5_1_33*t5_1_50 + t5_1_33*t5_1_52 - t5_1_40*t5_1_48 + 91125*t5_1_42 + t5_1_43*t5_1_44 - t5_1_43*t5_1_45 - t5_1_43*t5_1_51 - 6075*t5_1_48 + 135*t5_1_49 + t5_1_7*t5_1_9 + 325650*t5_1_7) / dt1
+                c1 = (c2*t5_1_10 + l3*t5_1_36 - pcx*pcx*pcx - pcx*t5_1_1 + pcx*t5_1_12 - pcx*t5_1_13 + pcx*t5_1_19 - pcx*t5_1_30 + pcx*t5_1_35 - pcx*t5_1_9 - 325650*pcx - pcy*t5_1_14 - pcy*t5_1_21 - r13*t5_1_15 + r13*t5_1_16 - r13*t5_1_29 - r13*t5_1_38 + 14654250*r13 + r23*t5_1_22 + s2*t5_1_17 + t5_1_1*t5_1_11 + t5_1_1*t5_1_28 - t5_1_11*t5_1_12 + t5_1_11*t5_1_13 + t5_1_11*t5_1_30 + t5_1_11*t5_1_9 + 325650*t5_1_11 + t5_1_18*t5_1_27 + 91125*t5_1_18 - t5_1_19*t5_1_28 + t5_1_23*t5_1_24 - t5_1_23*t5_1_26 - t5_1_23*t5_1_39 + t5_1_24*t5_1_25 - t5_1_25*t5_1_26 - t5_1_25*t5_1_39 + t5_1_28*t5_1_30 - t5_1_3*t5_1_32 + t5_1_3*t5_1_37 + t5_1_3*t5_1_41 - t5_1_31*t5_1_40 - 6075*t5_1_31 - t5_1_32*t5_1_33 + t5_1_33*t5_1_37 + t5_1_33*t5_1_41 + 135*t5_1_36) / dt1
+                s1 = (c2*t5_1_17 + l3*t5_1_49 + pcx*t5_1_14 + pcx*t5_1_21 - pcy*pcy*pcy - pcy*t5_1_0 + pcy*t5_1_12 - pcy*t5_1_13 + pcy*t5_1_19 - pcy*t5_1_30 + pcy*t5_1_35 - pcy*t5_1_9 - 325650*pcy - r13*t5_1_22 - r23*t5_1_15 + r23*t5_1_16 - r23*t5_1_29 - r23*t5_1_38 + 14654250*r23 - s2*t5_1_10 + t5_1_0*t5_1_46 + t5_1_0*t5_1_7 - t5_1_12*t5_1_7 + t5_1_13*t5_1_7 - t5_1_19*t5_1_46 - t5_1_2*t5_1_47 + t5_1_2*t5_1_50 + t5_1_2*t5_1_52 + t5_1_25*t5_1_44 - t5_1_25*t5_1_45 - t5_1_25*t5_1_51 + t5_1_27*t5_1_42 + t5_1_30*t5_1_46 + t5_1_30*t5_1_7 - t5_1_33*t5_1_47 + t5_1_33*t5_1_50 + t5_1_33*t5_1_52 - t5_1_40*t5_1_48 + 91125*t5_1_42 + t5_1_43*t5_1_44 - t5_1_43*t5_1_45 - t5_1_43*t5_1_51 - 6075*t5_1_48 + 135*t5_1_49 + t5_1_7*t5_1_9 + 325650*t5_1_7) / dt1
                 free1 = False
                 wk1 = 1.0
 
         if free1:
             t5_2_0 = pcx*pcx
             t5_2_1 = pcy*pcy
-            t5_2_2 = rc13*rc13
+            t5_2_2 = r13*r13
             t5_2_3 = 2025*t5_2_2
-            t5_2_4 = rc23*rc23
+            t5_2_4 = r23*r23
             t5_2_5 = 2025*t5_2_4
             t5_2_6 = c2*pcy
             t5_2_7 = pcx*s2
             t5_2_8 = pcx*pcx*pcx
             t5_2_9 = 760*pcz
-            t5_2_10 = c2*rc23
-            t5_2_11 = 1539000*rc33
-            t5_2_12 = 34200*rc33
-            t5_2_13 = rc13*s2
+            t5_2_10 = c2*r23
+            t5_2_11 = 1539000*r33
+            t5_2_12 = 34200*r33
+            t5_2_13 = r13*s2
             t5_2_14 = 34200*pcz
             t5_2_15 = pcy*pcy*pcy
-            t5_2_16 = rc23*rc23*rc23
+            t5_2_16 = r23*r23*r23
             t5_2_17 = 91125*c2
-            t5_2_18 = rc13*rc13*rc13
+            t5_2_18 = r13*r13*r13
             t5_2_19 = l3*l3
             t5_2_20 = pcz*pcz
             t5_2_21 = 90*pcx
-            t5_2_22 = rc13*t5_2_21
-            t5_2_23 = pcz*rc33
+            t5_2_22 = r13*t5_2_21
+            t5_2_23 = pcz*r33
             t5_2_24 = 90*t5_2_23
-            t5_2_25 = pcy*rc23
+            t5_2_25 = pcy*r23
             t5_2_26 = 4050*t5_2_13
             t5_2_27 = 45*t5_2_10
-            t5_2_28 = rc33*rc33
+            t5_2_28 = r33*r33
             t5_2_29 = 135*t5_2_1
-            t5_2_30 = rc23*t5_2_17
+            t5_2_30 = r23*t5_2_17
             t5_2_31 = 6075*t5_2_2
             t5_2_32 = 2025*t5_2_28
             t5_2_33 = c2*pcx
             t5_2_34 = pcy*s2
-            t5_2_35 = c2*rc13
-            t5_2_36 = rc23*s2
+            t5_2_35 = c2*r13
+            t5_2_36 = r23*s2
             t5_2_37 = 91125*s2
             t5_2_38 = c2*t5_2_21
             t5_2_39 = 4050*t5_2_23
             t5_2_40 = 45*t5_2_19
             t5_2_41 = 45*t5_2_35
-            t5_2_42 = rc13*t5_2_17
+            t5_2_42 = r13*t5_2_17
             t5_2_43 = 45*t5_2_36
-            t5_2_44 = rc23*t5_2_37
+            t5_2_44 = r23*t5_2_37
 
-            dt1 = 650*s2*(90*pcx*rc13 + 90*pcy*rc23 - t5_2_0 - t5_2_1 - t5_2_3 - t5_2_5)
+            dt1 = 650*s2*(90*pcx*r13 + 90*pcy*r23 - t5_2_0 - t5_2_1 - t5_2_3 - t5_2_5)
             if abs(dt1) > 1e-12:
-                c1 = (4050*c2*pcx*rc13*rc23 + 34200*c2*pcy*rc33 + c2*pcy*t5_2_0 + 2025*c2*pcy*t5_2_2 + c2*pcy*t5_2_20 + 2025*c2*pcy*t5_2_28 + 6075*c2*pcy*t5_2_4 + 4050*c2*pcz*rc23*rc33 + 34200*c2*pcz*rc23 + 45*c2*rc23*t5_2_19 + 1658250*c2*rc23 + c2*t5_2_15 + 90*pcx*pcy*rc23*s2 + 90*pcx*pcz*rc33*s2 + 760*pcx*pcz*s2 + pcx*s2*t5_2_19 - 178750*pcy + 1539000*rc13*rc33*s2 + 135*rc13*s2*t5_2_0 + 45*rc13*s2*t5_2_1 + 45*rc13*s2*t5_2_20 + 91125*rc13*s2*t5_2_28 + 91125*rc13*s2*t5_2_4 + 7848000*rc13*s2 + 8043750*rc23 + 91125*s2*t5_2_18 - s2*t5_2_8 - t5_2_0*t5_2_27 - t5_2_1*t5_2_7 - t5_2_10*t5_2_11 - t5_2_10*t5_2_29 - t5_2_12*t5_2_7 - t5_2_13*t5_2_14 - 45*t5_2_13*t5_2_19 - t5_2_16*t5_2_17 - t5_2_19*t5_2_6 - t5_2_2*t5_2_30 - t5_2_20*t5_2_27 - t5_2_20*t5_2_7 - t5_2_22*t5_2_6 - t5_2_23*t5_2_26 - t5_2_24*t5_2_6 - t5_2_25*t5_2_26 - t5_2_28*t5_2_30 - t5_2_31*t5_2_7 - t5_2_32*t5_2_7 - t5_2_5*t5_2_7 - t5_2_6*t5_2_9 - 36850*t5_2_6 - 174400*t5_2_7) / dt1
-                s1 = (-1658250*c2*rc13 - c2*t5_2_8 + 178750*pcx - 4050*rc13*rc23*t5_2_7 - 8043750*rc13 + 7848000*rc23*s2 - s2*t5_2_15 - t5_2_0*t5_2_34 + 135*t5_2_0*t5_2_35 + t5_2_0*t5_2_43 - t5_2_1*t5_2_33 + t5_2_1*t5_2_41 + t5_2_11*t5_2_35 + t5_2_11*t5_2_36 - t5_2_12*t5_2_33 - t5_2_12*t5_2_34 - t5_2_14*t5_2_35 - t5_2_14*t5_2_36 + t5_2_16*t5_2_37 + t5_2_17*t5_2_18 + t5_2_19*t5_2_33 + t5_2_19*t5_2_34 + t5_2_2*t5_2_44 - t5_2_20*t5_2_33 - t5_2_20*t5_2_34 + t5_2_20*t5_2_41 + t5_2_20*t5_2_43 + t5_2_22*t5_2_34 + t5_2_23*t5_2_38 + t5_2_24*t5_2_34 - 4050*t5_2_25*t5_2_35 + t5_2_25*t5_2_38 + t5_2_28*t5_2_42 + t5_2_28*t5_2_44 + t5_2_29*t5_2_36 - t5_2_3*t5_2_34 - t5_2_31*t5_2_33 - t5_2_32*t5_2_33 - t5_2_32*t5_2_34 - t5_2_33*t5_2_5 + t5_2_33*t5_2_9 + 36850*t5_2_33 - 6075*t5_2_34*t5_2_4 + t5_2_34*t5_2_9 - 174400*t5_2_34 - t5_2_35*t5_2_39 - t5_2_35*t5_2_40 - t5_2_36*t5_2_39 - t5_2_36*t5_2_40 + t5_2_4*t5_2_42) / dt1
+                c1 = (4050*c2*pcx*r13*r23 + 34200*c2*pcy*r33 + c2*pcy*t5_2_0 + 2025*c2*pcy*t5_2_2 + c2*pcy*t5_2_20 + 2025*c2*pcy*t5_2_28 + 6075*c2*pcy*t5_2_4 + 4050*c2*pcz*r23*r33 + 34200*c2*pcz*r23 + 45*c2*r23*t5_2_19 + 1658250*c2*r23 + c2*t5_2_15 + 90*pcx*pcy*r23*s2 + 90*pcx*pcz*r33*s2 + 760*pcx*pcz*s2 + pcx*s2*t5_2_19 - 178750*pcy + 1539000*r13*r33*s2 + 135*r13*s2*t5_2_0 + 45*r13*s2*t5_2_1 + 45*r13*s2*t5_2_20 + 91125*r13*s2*t5_2_28 + 91125*r13*s2*t5_2_4 + 7848000*r13*s2 + 8043750*r23 + 91125*s2*t5_2_18 - s2*t5_2_8 - t5_2_0*t5_2_27 - t5_2_1*t5_2_7 - t5_2_10*t5_2_11 - t5_2_10*t5_2_29 - t5_2_12*t5_2_7 - t5_2_13*t5_2_14 - 45*t5_2_13*t5_2_19 - t5_2_16*t5_2_17 - t5_2_19*t5_2_6 - t5_2_2*t5_2_30 - t5_2_20*t5_2_27 - t5_2_20*t5_2_7 - t5_2_22*t5_2_6 - t5_2_23*t5_2_26 - t5_2_24*t5_2_6 - t5_2_25*t5_2_26 - t5_2_28*t5_2_30 - t5_2_31*t5_2_7 - t5_2_32*t5_2_7 - t5_2_5*t5_2_7 - t5_2_6*t5_2_9 - 36850*t5_2_6 - 174400*t5_2_7) / dt1
+                s1 = (-1658250*c2*r13 - c2*t5_2_8 + 178750*pcx - 4050*r13*r23*t5_2_7 - 8043750*r13 + 7848000*r23*s2 - s2*t5_2_15 - t5_2_0*t5_2_34 + 135*t5_2_0*t5_2_35 + t5_2_0*t5_2_43 - t5_2_1*t5_2_33 + t5_2_1*t5_2_41 + t5_2_11*t5_2_35 + t5_2_11*t5_2_36 - t5_2_12*t5_2_33 - t5_2_12*t5_2_34 - t5_2_14*t5_2_35 - t5_2_14*t5_2_36 + t5_2_16*t5_2_37 + t5_2_17*t5_2_18 + t5_2_19*t5_2_33 + t5_2_19*t5_2_34 + t5_2_2*t5_2_44 - t5_2_20*t5_2_33 - t5_2_20*t5_2_34 + t5_2_20*t5_2_41 + t5_2_20*t5_2_43 + t5_2_22*t5_2_34 + t5_2_23*t5_2_38 + t5_2_24*t5_2_34 - 4050*t5_2_25*t5_2_35 + t5_2_25*t5_2_38 + t5_2_28*t5_2_42 + t5_2_28*t5_2_44 + t5_2_29*t5_2_36 - t5_2_3*t5_2_34 - t5_2_31*t5_2_33 - t5_2_32*t5_2_33 - t5_2_32*t5_2_34 - t5_2_33*t5_2_5 + t5_2_33*t5_2_9 + 36850*t5_2_33 - 6075*t5_2_34*t5_2_4 + t5_2_34*t5_2_9 - 174400*t5_2_34 - t5_2_35*t5_2_39 - t5_2_35*t5_2_40 - t5_2_36*t5_2_39 - t5_2_36*t5_2_40 + t5_2_4*t5_2_42) / dt1
                 free1 = False
                 wk1 = 1.0
 
-        if not free1 and abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4:
-            if abs(dt1) > wk1:
-                continue
-            free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free1:
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-4:
+                if abs(dt1) > wk1:
+                    continue
+                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free1:
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
@@ -570,7 +569,6 @@ def _closed_form(pose, current):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq1 = c1 * c1 + s1 * s1
             if abs(hq1 - 1.0) > 1e-12:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1

@@ -362,23 +362,14 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = r11;
-    const double rc12 = r12;
-    const double rc13 = r13;
     const double pcx = px - 10.0*r11 - 45.0*r13;
-    const double rc21 = r21;
-    const double rc22 = r22;
-    const double rc23 = r23;
     const double pcy = py - 10.0*r21 - 45.0*r23;
-    const double rc31 = r31;
-    const double rc32 = r32;
-    const double rc33 = r33;
     const double pcz = pz - 10.0*r31 - 45.0*r33;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const double wx = pcx - 60.0*rc13;
-    const double wy = pcy - 60.0*rc23;
-    const double wz = pcz - 60.0*rc33;
+    const double wx = pcx - 60.0*r13;
+    const double wy = pcy - 60.0*r23;
+    const double wz = pcz - 60.0*r33;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -459,17 +450,17 @@ static int closed_form(const double pose[16], const double *current,
         const double t5_1 = 0.5*s1;
         const double t5_2 = 0.8660254037844386*c1;
         const double t5_3 = 0.8660254037844386*s1;
-        const double g16_11 = c1*rc11 + rc21*s1;
-        const double g16_12 = c1*rc12 + rc22*s1;
-        const double g16_13 = c1*rc13 + rc23*s1;
+        const double g16_11 = c1*r11 + r21*s1;
+        const double g16_12 = c1*r12 + r22*s1;
+        const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1 - 50.0;
-        const double g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.8660254037844386*rc31;
-        const double g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.8660254037844386*rc32;
-        const double g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.8660254037844386*rc33;
+        const double g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31;
+        const double g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32;
+        const double g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33;
         const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
-        const double g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5*rc31;
-        const double g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5*rc32;
-        const double g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5*rc33;
+        const double g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31;
+        const double g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32;
+        const double g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33;
         const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -622,17 +613,13 @@ static int closed_form(const double pose[16], const double *current,
         const double g36_11 = c3*g26_11 + g26_21*s3;
         const double g36_12 = c3*g26_12 + g26_22*s3;
         const double g36_13 = c3*g26_13 + g26_23*s3;
-        const double g36_21 = g26_31;
-        const double g36_22 = g26_32;
-        const double g36_23 = g26_33;
         const double g36_31 = -c3*g26_21 + g26_11*s3;
         const double g36_32 = -c3*g26_22 + g26_12*s3;
         const double g36_33 = -c3*g26_23 + g26_13*s3;
 
         /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double ec5 = g36_33;
-        const double er5 = g36_13*g36_13 + g36_23*g36_23;
+        const double er5 = g26_33*g26_33 + g36_13*g36_13;
 
         if (er5 + 2.0000000000000001e-09 < 0.0) {
             continue;
@@ -641,7 +628,7 @@ static int closed_form(const double pose[16], const double *current,
         /* the second root follows from this one by symmetry (emitted with the solution below) */
         const double sg5 = 1.0;
         double th5, c5, s5;
-        const double cn5 = ec5;
+        const double cn5 = g36_33;
         const double sn5 = root5*sg5;
         th5 = atan2(sn5, cn5);
         c5 = cn5;
@@ -655,7 +642,7 @@ static int closed_form(const double pose[16], const double *current,
             dt4 = -s5*s5;
             if (fabs(dt4) > 9.9999999999999995e-21) {
                 c4 = (-g36_13*s5) / dt4;
-                s4 = (-g36_23*s5) / dt4;
+                s4 = (-g26_33*s5) / dt4;
                 free4 = 0;
                 wk4 = 1e-08;
             }
@@ -685,8 +672,8 @@ static int closed_form(const double pose[16], const double *current,
         }
 
         /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-        const double g46_11 = c4*g36_11 + g36_21*s4;
-        const double g46_12 = c4*g36_12 + g36_22*s4;
+        const double g46_11 = c4*g36_11 + g26_31*s4;
+        const double g46_12 = c4*g36_12 + g26_32*s4;
         const double g46_21 = -g36_31;
         const double g46_22 = -g36_32;
 

@@ -234,8 +234,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -303,10 +311,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -464,33 +472,20 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = r11
-    rc12 = r12
-    rc13 = r13
     pcx = px - 10*r11 - 45*r13
-    rc21 = r21
-    rc22 = r22
-    rc23 = r23
     pcy = py - 10*r21 - 45*r23
-    rc31 = r31
-    rc32 = r32
-    rc33 = r33
     pcz = pz - 10*r31 - 45*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 60*rc13
-    wy = pcy - 60*rc23
-    wz = pcz - 60*rc33
+    wx = pcx - 60*r13
+    wy = pcy - 60*r23
+    wz = pcz - 60*r33
 
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -526,10 +521,12 @@ def _closed_form(pose, current):
             free1 = False
             wk1 = 0.09999999999999999
 
-        if not free1 and abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4:
-            if abs(dt1) > wk1:
-                continue
-            free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free1:
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-4:
+                if abs(dt1) > wk1:
+                    continue
+                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free1:
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
@@ -537,7 +534,6 @@ def _closed_form(pose, current):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq1 = c1 * c1 + s1 * s1
             if abs(hq1 - 1.0) > 1e-12:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1
@@ -548,17 +544,17 @@ def _closed_form(pose, current):
         t5_1 = 0.5*s1
         t5_2 = 0.8660254037844386*c1
         t5_3 = 0.8660254037844386*s1
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 50
-        g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.8660254037844386*rc31
-        g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.8660254037844386*rc32
-        g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.8660254037844386*rc33
+        g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31
+        g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32
+        g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33
         g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
-        g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5*rc31
-        g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5*rc32
-        g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5*rc33
+        g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31
+        g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32
+        g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33
         g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -663,10 +659,12 @@ def _closed_form(pose, current):
                 free2 = False
                 wk2 = 0.09999999999999999
 
-        if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-            if abs(dt2) > wk2:
-                continue
-            free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free2:
+            hq2 = c2 * c2 + s2 * s2
+            if abs(hq2 - 1.0) > 1e-4:
+                if abs(dt2) > wk2:
+                    continue
+                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free2:
             th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
             c2 = cos(th2)
@@ -674,7 +672,6 @@ def _closed_form(pose, current):
         else:
             th2 = atan2(s2, c2)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq2 = c2 * c2 + s2 * s2
             if abs(hq2 - 1.0) > 1e-12:
                 hn2 = 1.0 / sqrt(hq2)
                 c2 = c2 * hn2
@@ -699,24 +696,20 @@ def _closed_form(pose, current):
         g36_11 = c3*g26_11 + g26_21*s3
         g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
-        g36_21 = g26_31
-        g36_22 = g26_32
-        g36_23 = g26_33
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
         g36_33 = -c3*g26_23 + g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        ec5 = g36_33
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g26_33*g26_33 + g36_13*g36_13
 
         if er5 + 2e-09 < 0.0:
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
         # the second root follows from this one by symmetry (emitted with the solution below)
         sg5 = 1.0
-        cn5 = ec5
+        cn5 = g36_33
         sn5 = root5*sg5
         th5 = atan2(sn5, cn5)
         c5 = cn5
@@ -728,14 +721,16 @@ def _closed_form(pose, current):
         dt4 = -s5*s5
         if abs(dt4) > 1e-20:
             c4 = (-g36_13*s5) / dt4
-            s4 = (-g36_23*s5) / dt4
+            s4 = (-g26_33*s5) / dt4
             free4 = False
             wk4 = 1e-08
 
-        if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-            if abs(dt4) > wk4:
-                continue
-            free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free4:
+            hq4 = c4 * c4 + s4 * s4
+            if abs(hq4 - 1.0) > 1e-4:
+                if abs(dt4) > wk4:
+                    continue
+                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free4:
             th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
             c4 = cos(th4)
@@ -743,15 +738,14 @@ def _closed_form(pose, current):
         else:
             th4 = atan2(s4, c4)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq4 = c4 * c4 + s4 * s4
             if abs(hq4 - 1.0) > 1e-12:
                 hn4 = 1.0 / sqrt(hq4)
                 c4 = c4 * hn4
                 s4 = s4 * hn4
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
+        g46_11 = c4*g36_11 + g26_31*s4
+        g46_12 = c4*g36_12 + g26_32*s4
         g46_21 = -g36_31
         g46_22 = -g36_32
 
@@ -767,11 +761,11 @@ def _closed_form(pose, current):
         s6 = (-g56_12) / dt6
         free6 = False
 
-        if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+        hq6 = c6 * c6 + s6 * s6
+        if abs(hq6 - 1.0) > 1e-4:
             continue
         th6 = atan2(s6, c6)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        hq6 = c6 * c6 + s6 * s6
         if abs(hq6 - 1.0) > 1e-12:
             hn6 = 1.0 / sqrt(hq6)
             c6 = c6 * hn6

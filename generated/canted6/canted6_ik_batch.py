@@ -215,23 +215,14 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-        rc11 = r11
-        rc12 = r12
-        rc13 = r13
         pcx = px - 10*r11 - 45*r13
-        rc21 = r21
-        rc22 = r22
-        rc23 = r23
         pcy = py - 10*r21 - 45*r23
-        rc31 = r31
-        rc32 = r32
-        rc33 = r33
         pcz = pz - 10*r31 - 45*r33
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-        wx = pcx - 60*rc13
-        wy = pcy - 60*rc23
-        wz = pcz - 60*rc33
+        wx = pcx - 60*r13
+        wy = pcy - 60*r23
+        wz = pcz - 60*r33
 
         # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
         t3_0 = wx*wx
@@ -294,17 +285,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         t5_1 = 0.5*s1
         t5_2 = 0.8660254037844386*c1
         t5_3 = 0.8660254037844386*s1
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 50
-        g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.8660254037844386*rc31
-        g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.8660254037844386*rc32
-        g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.8660254037844386*rc33
+        g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31
+        g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32
+        g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33
         g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
-        g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5*rc31
-        g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5*rc32
-        g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5*rc33
+        g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31
+        g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32
+        g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33
         g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -445,21 +436,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_11 = c3*g26_11 + g26_21*s3
         g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
-        g36_21 = g26_31
-        g36_22 = g26_32
-        g36_23 = g26_33
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
         g36_33 = -c3*g26_23 + g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        ec5 = g36_33
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g26_33*g26_33 + g36_13*g36_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
         sg5 = 1.0
-        cn5 = ec5
+        cn5 = g36_33
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
@@ -472,7 +459,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
         c4 = (-g36_13*s5) / dt4
-        s4 = (-g36_23*s5) / dt4
+        s4 = (-g26_33*s5) / dt4
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -494,8 +481,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
+        g46_11 = c4*g36_11 + g26_31*s4
+        g46_12 = c4*g36_12 + g26_32*s4
         g46_21 = -g36_31
         g46_22 = -g36_32
 

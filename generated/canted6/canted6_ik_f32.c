@@ -362,23 +362,14 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const float rc11 = r11;
-    const float rc12 = r12;
-    const float rc13 = r13;
     const float pcx = px - 10.0f*r11 - 45.0f*r13;
-    const float rc21 = r21;
-    const float rc22 = r22;
-    const float rc23 = r23;
     const float pcy = py - 10.0f*r21 - 45.0f*r23;
-    const float rc31 = r31;
-    const float rc32 = r32;
-    const float rc33 = r33;
     const float pcz = pz - 10.0f*r31 - 45.0f*r33;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const float wx = pcx - 60.0f*rc13;
-    const float wy = pcy - 60.0f*rc23;
-    const float wz = pcz - 60.0f*rc33;
+    const float wx = pcx - 60.0f*r13;
+    const float wy = pcy - 60.0f*r23;
+    const float wz = pcz - 60.0f*r33;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -459,17 +450,17 @@ static int closed_form(const float pose[16], const float *current,
         const float t5_1 = 0.5f*s1;
         const float t5_2 = 0.866025404f*c1;
         const float t5_3 = 0.866025404f*s1;
-        const float g16_11 = c1*rc11 + rc21*s1;
-        const float g16_12 = c1*rc12 + rc22*s1;
-        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_11 = c1*r11 + r21*s1;
+        const float g16_12 = c1*r12 + r22*s1;
+        const float g16_13 = c1*r13 + r23*s1;
         const float g16_14 = c1*pcx + pcy*s1 - 50.0f;
-        const float g16_21 = -rc11*t5_1 + rc21*t5_0 + 0.866025404f*rc31;
-        const float g16_22 = -rc12*t5_1 + rc22*t5_0 + 0.866025404f*rc32;
-        const float g16_23 = -rc13*t5_1 + rc23*t5_0 + 0.866025404f*rc33;
+        const float g16_21 = -r11*t5_1 + r21*t5_0 + 0.866025404f*r31;
+        const float g16_22 = -r12*t5_1 + r22*t5_0 + 0.866025404f*r32;
+        const float g16_23 = -r13*t5_1 + r23*t5_0 + 0.866025404f*r33;
         const float g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.866025404f*pcz - 259.807621f;
-        const float g16_31 = rc11*t5_3 - rc21*t5_2 + 0.5f*rc31;
-        const float g16_32 = rc12*t5_3 - rc22*t5_2 + 0.5f*rc32;
-        const float g16_33 = rc13*t5_3 - rc23*t5_2 + 0.5f*rc33;
+        const float g16_31 = r11*t5_3 - r21*t5_2 + 0.5f*r31;
+        const float g16_32 = r12*t5_3 - r22*t5_2 + 0.5f*r32;
+        const float g16_33 = r13*t5_3 - r23*t5_2 + 0.5f*r33;
         const float g16_34 = 0.866025404f*pcx*s1 - pcy*t5_2 + 0.5f*pcz - 150.0f;
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -622,17 +613,13 @@ static int closed_form(const float pose[16], const float *current,
         const float g36_11 = c3*g26_11 + g26_21*s3;
         const float g36_12 = c3*g26_12 + g26_22*s3;
         const float g36_13 = c3*g26_13 + g26_23*s3;
-        const float g36_21 = g26_31;
-        const float g36_22 = g26_32;
-        const float g36_23 = g26_33;
         const float g36_31 = -c3*g26_21 + g26_11*s3;
         const float g36_32 = -c3*g26_22 + g26_12*s3;
         const float g36_33 = -c3*g26_23 + g26_13*s3;
 
         /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float ec5 = g36_33;
-        const float er5 = g36_13*g36_13 + g36_23*g36_23;
+        const float er5 = g26_33*g26_33 + g36_13*g36_13;
 
         if (er5 + 2e-05f < 0.0f) {
             continue;
@@ -641,7 +628,7 @@ static int closed_form(const float pose[16], const float *current,
         /* the second root follows from this one by symmetry (emitted with the solution below) */
         const float sg5 = 1.0f;
         float th5, c5, s5;
-        const float cn5 = ec5;
+        const float cn5 = g36_33;
         const float sn5 = root5*sg5;
         th5 = atan2f(sn5, cn5);
         c5 = cn5;
@@ -655,7 +642,7 @@ static int closed_form(const float pose[16], const float *current,
             dt4 = -s5*s5;
             if (fabsf(dt4) > 1e-20f) {
                 c4 = (-g36_13*s5) / dt4;
-                s4 = (-g36_23*s5) / dt4;
+                s4 = (-g26_33*s5) / dt4;
                 free4 = 0;
                 wk4 = 1e-08f;
             }
@@ -685,8 +672,8 @@ static int closed_form(const float pose[16], const float *current,
         }
 
         /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-        const float g46_11 = c4*g36_11 + g36_21*s4;
-        const float g46_12 = c4*g36_12 + g36_22*s4;
+        const float g46_11 = c4*g36_11 + g26_31*s4;
+        const float g46_12 = c4*g36_12 + g26_32*s4;
         const float g46_21 = -g36_31;
         const float g46_22 = -g36_32;
 

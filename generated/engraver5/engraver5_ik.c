@@ -131,10 +131,9 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = py - 60.0*r23;
     const double wz = pz - 60.0*r33;
 
-    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double q1y = pz - 160.0;
     const double v1y = wz - 160.0;
-    const double n1y = r33;
 
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -160,15 +159,13 @@ static int closed_form(const double pose[16], const double *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t3_0 = wx*wx + wy*wy;
-        const double ea1 = wy;
         const double eb1 = -wx;
-        const double en1 = t3_0;
 
-        const int free1 = en1 <= 9.9999999999999988e-16;
-        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*en1 < 0.0) {
+        const int free1 = t3_0 <= 9.9999999999999988e-16;
+        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
             continue;
         }
-        const double root1 = en1 > 0.0 ? sqrt(en1) : 0.0;
+        const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
         const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
         for (int k1 = 0; k1 < n1; ++k1) {
             const double sg1 = k1 ? -1.0 : 1.0;
@@ -179,10 +176,10 @@ static int closed_form(const double pose[16], const double *current,
                 s1 = sin(th1);
             } else {
                 const double cn1 = -eb1*root1*sg1;
-                const double sn1 = ea1*root1*sg1;
+                const double sn1 = root1*sg1*wy;
                 th1 = atan2(sn1, cn1);
-                c1 = cn1/en1;
-                s1 = sn1/en1;
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
 
             }
 
@@ -284,11 +281,9 @@ static int closed_form(const double pose[16], const double *current,
             /* A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const double q2x = c2*q1x + q1y*s2 - 200.0;
             const double q2y = c2*q1y - q1x*s2;
-            const double q2z = q1z;
 
             /* A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double q3x = c3*q2x + q2y*s3 - 20.0;
-            const double q3y = q2z;
             const double q3z = -c3*q2y + q2x*s3;
 
             /* th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
@@ -317,7 +312,7 @@ static int closed_form(const double pose[16], const double *current,
                 dt4 = -3600.0*s5*s5;
                 if (fabs(dt4) > 9.9999999999999992e-18) {
                     c4 = (-q3x*t10_0_0) / dt4;
-                    s4 = (-q3y*t10_0_0) / dt4;
+                    s4 = (-q1z*t10_0_0) / dt4;
                     free4 = 0;
                     wk4 = 9.9999999999999991e-06;
                 }
@@ -351,19 +346,17 @@ static int closed_form(const double pose[16], const double *current,
             const double n1z = -c1*r23 + r13*s1;
 
             /* A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double n2x = c2*n1x + n1y*s2;
-            const double n2y = c2*n1y - n1x*s2;
-            const double n2z = n1z;
+            const double n2x = c2*n1x + r33*s2;
+            const double n2y = c2*r33 - n1x*s2;
 
             /* A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double n3x = c3*n2x + n2y*s3;
-            const double n3y = n2z;
 
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3;
             const double lm1 = 38000.0*c3 - 4000.0*s3;
-            const double lm2 = c4*n3x + n3y*s4;
+            const double lm2 = c4*n3x + n1z*s4;
             if (count < ENGRAVER5_IK_CLOSED_FORM) {
                 engraver5_ik_solution *out = &solutions[count++];
                 double u1 = th1;

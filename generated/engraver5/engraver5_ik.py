@@ -138,8 +138,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -224,10 +232,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if check and solutions:
         solutions = [s for s in solutions if _roll_gap(s[0], pose) <= ROLL_TOLERANCE]
@@ -365,11 +373,7 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
@@ -379,10 +383,9 @@ def _closed_form(pose, current):
     wy = py - 60*r23
     wz = pz - 60*r33
 
-    # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     q1y = pz - 160
     v1y = wz - 160
-    n1y = r33
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -403,14 +406,12 @@ def _closed_form(pose, current):
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t3_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t3_0
 
-        free1 = en1 <= 9.999999999999999e-16
-        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*en1 < 0.0):
+        free1 = t3_0 <= 9.999999999999999e-16
+        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
             continue
-        root1 = sqrt(en1) if en1 > 0.0 else 0.0
+        root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
                 th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
@@ -418,10 +419,10 @@ def _closed_form(pose, current):
                 s1 = sin(th1)
             else:
                 cn1 = -eb1*root1*sg1
-                sn1 = ea1*root1*sg1
+                sn1 = root1*sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/en1
-                s1 = sn1/en1
+                c1 = cn1/t3_0
+                s1 = sn1/t3_0
 
             # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
             q1x = c1*px + py*s1
@@ -489,10 +490,12 @@ def _closed_form(pose, current):
                     free2 = False
                     wk2 = 9.999999999999999e-05
 
-            if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-                if abs(dt2) > wk2:
-                    continue
-                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free2:
                 th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
@@ -500,7 +503,6 @@ def _closed_form(pose, current):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-12:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
@@ -509,11 +511,9 @@ def _closed_form(pose, current):
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2x = c2*q1x + q1y*s2 - 200
             q2y = c2*q1y - q1x*s2
-            q2z = q1z
 
             # A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             q3x = c3*q2x + q2y*s3 - 20
-            q3y = q2z
             q3z = -c3*q2y + q2x*s3
 
             # th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
@@ -538,14 +538,16 @@ def _closed_form(pose, current):
             dt4 = -3600*s5*s5
             if abs(dt4) > 9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
-                s4 = (-q3y*t10_0_0) / dt4
+                s4 = (-q1z*t10_0_0) / dt4
                 free4 = False
                 wk4 = 9.999999999999999e-06
 
-            if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-                if abs(dt4) > wk4:
-                    continue
-                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free4:
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
@@ -553,7 +555,6 @@ def _closed_form(pose, current):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-12:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
@@ -564,19 +565,17 @@ def _closed_form(pose, current):
             n1z = -c1*r23 + r13*s1
 
             # A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            n2x = c2*n1x + n1y*s2
-            n2y = c2*n1y - n1x*s2
-            n2z = n1z
+            n2x = c2*n1x + r33*s2
+            n2y = c2*r33 - n1x*s2
 
             # A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             n3x = c3*n2x + n2y*s3
-            n3y = n2z
 
             # Joint readings, configuration labels, singular flag.
 
             lm0 = 20*c2*c3 + 190*c2*s3 + 200*c2 + 190*c3*s2 - 20*s2*s3
             lm1 = 38000*c3 - 4000*s3
-            lm2 = c4*n3x + n3y*s4
+            lm2 = c4*n3x + n1z*s4
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
             u1 = th1

@@ -138,10 +138,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = py - 60*r23
         wz = pz - 60*r33
 
-        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         q1y = pz - 160
         v1y = wz - 160
-        n1y = r33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t2_0 = wx*wx + wy*wy + wz*wz - 320*wz
@@ -161,20 +160,18 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t3_0
 
-        free1 = en1 <= 9.999999999999999e-16
-        valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*en1 < 0.0)
-        root1 = numpy.sqrt(numpy.maximum(en1, 0.0))
+        free1 = t3_0 <= 9.999999999999999e-16
+        valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t3_0 < 0.0)
+        root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg1 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = -eb1*root1*sg1
-        sn1 = ea1*root1*sg1
+        sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t3_0
+        s1 = sn1/t3_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -267,11 +264,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         q2x = c2*q1x + q1y*s2 - 200
         q2y = c2*q1y - q1x*s2
-        q2z = q1z
 
         # A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         q3x = c3*q2x + q2y*s3 - 20
-        q3y = q2z
         q3z = -c3*q2y + q2x*s3
 
         # th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
@@ -294,7 +289,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt4 = -3600*s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 9.999999999999999e-18)
         c4 = (-q3x*t10_0_0) / dt4
-        s4 = (-q3y*t10_0_0) / dt4
+        s4 = (-q1z*t10_0_0) / dt4
         wk4 = numpy.where(use, 9.999999999999999e-06, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -320,19 +315,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         n1z = -c1*r23 + r13*s1
 
         # A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        n2x = c2*n1x + n1y*s2
-        n2y = c2*n1y - n1x*s2
-        n2z = n1z
+        n2x = c2*n1x + r33*s2
+        n2y = c2*r33 - n1x*s2
 
         # A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         n3x = c3*n2x + n2y*s3
-        n3y = n2z
 
         # joint readings, configuration labels, singular flag, conditioning
 
         lm0 = 20*c2*c3 + 190*c2*s3 + 200*c2 + 190*c3*s2 - 20*s2*s3
         lm1 = 38000*c3 - 4000*s3
-        lm2 = c4*n3x + n3y*s4
+        lm2 = c4*n3x + n1z*s4
         u1 = th1
         u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - 1.5707963267948966

@@ -131,10 +131,9 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = py - 60.0f*r23;
     const float wz = pz - 60.0f*r33;
 
-    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float q1y = pz - 160.0f;
     const float v1y = wz - 160.0f;
-    const float n1y = r33;
 
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -160,15 +159,13 @@ static int closed_form(const float pose[16], const float *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t3_0 = wx*wx + wy*wy;
-        const float ea1 = wy;
         const float eb1 = -wx;
-        const float en1 = t3_0;
 
-        const int free1 = en1 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.00002f*en1 < 0.0f) {
+        const int free1 = t3_0 <= 1e-15f;
+        if (free1 ? 0.0f > 1e-15f : 1.00002f*t3_0 < 0.0f) {
             continue;
         }
-        const float root1 = en1 > 0.0f ? sqrtf(en1) : 0.0f;
+        const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
         const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
         for (int k1 = 0; k1 < n1; ++k1) {
             const float sg1 = k1 ? -1.0f : 1.0f;
@@ -179,10 +176,10 @@ static int closed_form(const float pose[16], const float *current,
                 s1 = sinf(th1);
             } else {
                 const float cn1 = -eb1*root1*sg1;
-                const float sn1 = ea1*root1*sg1;
+                const float sn1 = root1*sg1*wy;
                 th1 = atan2f(sn1, cn1);
-                c1 = cn1/en1;
-                s1 = sn1/en1;
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
 
             }
 
@@ -284,11 +281,9 @@ static int closed_form(const float pose[16], const float *current,
             /* A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float q2x = c2*q1x + q1y*s2 - 200.0f;
             const float q2y = c2*q1y - q1x*s2;
-            const float q2z = q1z;
 
             /* A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float q3x = c3*q2x + q2y*s3 - 20.0f;
-            const float q3y = q2z;
             const float q3z = -c3*q2y + q2x*s3;
 
             /* th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
@@ -317,7 +312,7 @@ static int closed_form(const float pose[16], const float *current,
                 dt4 = -3600.0f*s5*s5;
                 if (fabsf(dt4) > 1e-17f) {
                     c4 = (-q3x*t10_0_0) / dt4;
-                    s4 = (-q3y*t10_0_0) / dt4;
+                    s4 = (-q1z*t10_0_0) / dt4;
                     free4 = 0;
                     wk4 = 1e-05f;
                 }
@@ -351,19 +346,17 @@ static int closed_form(const float pose[16], const float *current,
             const float n1z = -c1*r23 + r13*s1;
 
             /* A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const float n2x = c2*n1x + n1y*s2;
-            const float n2y = c2*n1y - n1x*s2;
-            const float n2z = n1z;
+            const float n2x = c2*n1x + r33*s2;
+            const float n2y = c2*r33 - n1x*s2;
 
             /* A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float n3x = c3*n2x + n2y*s3;
-            const float n3y = n2z;
 
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = 20.0f*c2*c3 + 190.0f*c2*s3 + 200.0f*c2 + 190.0f*c3*s2 - 20.0f*s2*s3;
             const float lm1 = 38000.0f*c3 - 4000.0f*s3;
-            const float lm2 = c4*n3x + n3y*s4;
+            const float lm2 = c4*n3x + n1z*s4;
             if (count < ENGRAVER5_IK_F32_CLOSED_FORM) {
                 engraver5_ik_f32_solution *out = &solutions[count++];
                 float u1 = th1;

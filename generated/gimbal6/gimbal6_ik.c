@@ -370,11 +370,8 @@ static int closed_form(const double pose[16], const double *current,
     const double by = -px*r12 - py*r22 - pz*r32 + 0.29999999999999999*r32;
     const double bz = -px*r13 - py*r23 - pz*r33 + 0.29999999999999999*r33;
 
-    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double e1z = bz + 0.10000000000000001;
-    const double g05_13 = r13;
-    const double g05_23 = r23;
-    const double g05_33 = r33;
 
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -496,32 +493,29 @@ static int closed_form(const double pose[16], const double *current,
         const double g05_32 = c6*r32 + r31*s6;
 
         /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
-        const double g04_11 = c5*g05_11 + g05_13*s5;
-        const double g04_12 = -c5*g05_13 + g05_11*s5;
-        const double g04_13 = g05_12;
-        const double g04_21 = c5*g05_21 + g05_23*s5;
-        const double g04_22 = -c5*g05_23 + g05_21*s5;
-        const double g04_23 = g05_22;
-        const double g04_31 = c5*g05_31 + g05_33*s5;
-        const double g04_32 = -c5*g05_33 + g05_31*s5;
-        const double g04_33 = g05_32;
+        const double g04_11 = c5*g05_11 + r13*s5;
+        const double g04_12 = -c5*r13 + g05_11*s5;
+        const double g04_21 = c5*g05_21 + r23*s5;
+        const double g04_22 = -c5*r23 + g05_21*s5;
+        const double g04_31 = c5*g05_31 + r33*s5;
+        const double g04_32 = -c5*r33 + g05_31*s5;
 
         /* T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one) */
         const double t8_0 = 0.5*g04_12;
-        const double t8_1 = 0.8660254037844386*g04_13;
+        const double t8_1 = 0.8660254037844386*g05_12;
         const double t8_2 = 0.5*g04_22;
-        const double t8_3 = 0.8660254037844386*g04_23;
+        const double t8_3 = 0.8660254037844386*g05_22;
         const double t8_4 = 0.5*g04_32;
-        const double t8_5 = 0.8660254037844386*g04_33;
+        const double t8_5 = 0.8660254037844386*g05_32;
         const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
         const double g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
-        const double g03_13 = -0.8660254037844386*g04_12 + 0.5*g04_13;
+        const double g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12;
         const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
         const double g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
-        const double g03_23 = -0.8660254037844386*g04_22 + 0.5*g04_23;
+        const double g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22;
         const double g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
         const double g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4;
-        const double g03_33 = -0.8660254037844386*g04_32 + 0.5*g04_33;
+        const double g03_33 = -0.8660254037844386*g04_32 + 0.5*g05_32;
 
         /* th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -581,12 +575,10 @@ static int closed_form(const double pose[16], const double *current,
         /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
         const double g13_11 = c1*g03_11 + g03_21*s1;
         const double g13_12 = c1*g03_12 + g03_22*s1;
-        const double g13_21 = g03_31;
-        const double g13_22 = g03_32;
 
         /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-        const double g23_11 = c2*g13_11 + g13_21*s2;
-        const double g23_12 = c2*g13_12 + g13_22*s2;
+        const double g23_11 = c2*g13_11 + g03_31*s2;
+        const double g23_12 = c2*g13_12 + g03_32*s2;
 
         /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;

@@ -234,8 +234,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -305,10 +313,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -472,11 +480,7 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
@@ -486,11 +490,8 @@ def _closed_form(pose, current):
     by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
     bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
-    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     e1z = bz + 0.1
-    g05_13 = r13
-    g05_23 = r23
-    g05_33 = r33
 
     # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -533,11 +534,11 @@ def _closed_form(pose, current):
         s4 = (-0.1*e1y - 0.0055) / dt4
         free4 = False
 
-        if abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
+        hq4 = c4 * c4 + s4 * s4
+        if abs(hq4 - 1.0) > 1e-4:
             continue
         th4 = atan2(s4, c4)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        hq4 = c4 * c4 + s4 * s4
         if abs(hq4 - 1.0) > 1e-12:
             hn4 = 1.0 / sqrt(hq4)
             c4 = c4 * hn4
@@ -554,10 +555,12 @@ def _closed_form(pose, current):
             free5 = False
             wk5 = 9.999999999999999e-10
 
-        if not free5 and abs(c5 * c5 + s5 * s5 - 1.0) > 1e-4:
-            if abs(dt5) > wk5:
-                continue
-            free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free5:
+            hq5 = c5 * c5 + s5 * s5
+            if abs(hq5 - 1.0) > 1e-4:
+                if abs(dt5) > wk5:
+                    continue
+                free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free5:
             th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
             c5 = cos(th5)
@@ -565,7 +568,6 @@ def _closed_form(pose, current):
         else:
             th5 = atan2(s5, c5)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq5 = c5 * c5 + s5 * s5
             if abs(hq5 - 1.0) > 1e-12:
                 hn5 = 1.0 / sqrt(hq5)
                 c5 = c5 * hn5
@@ -580,32 +582,29 @@ def _closed_form(pose, current):
         g05_32 = c6*r32 + r31*s6
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
-        g04_11 = c5*g05_11 + g05_13*s5
-        g04_12 = -c5*g05_13 + g05_11*s5
-        g04_13 = g05_12
-        g04_21 = c5*g05_21 + g05_23*s5
-        g04_22 = -c5*g05_23 + g05_21*s5
-        g04_23 = g05_22
-        g04_31 = c5*g05_31 + g05_33*s5
-        g04_32 = -c5*g05_33 + g05_31*s5
-        g04_33 = g05_32
+        g04_11 = c5*g05_11 + r13*s5
+        g04_12 = -c5*r13 + g05_11*s5
+        g04_21 = c5*g05_21 + r23*s5
+        g04_22 = -c5*r23 + g05_21*s5
+        g04_31 = c5*g05_31 + r33*s5
+        g04_32 = -c5*r33 + g05_31*s5
 
         # T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one)
         t8_0 = 0.5*g04_12
-        t8_1 = 0.8660254037844386*g04_13
+        t8_1 = 0.8660254037844386*g05_12
         t8_2 = 0.5*g04_22
-        t8_3 = 0.8660254037844386*g04_23
+        t8_3 = 0.8660254037844386*g05_22
         t8_4 = 0.5*g04_32
-        t8_5 = 0.8660254037844386*g04_33
+        t8_5 = 0.8660254037844386*g05_32
         g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
         g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
-        g03_13 = -0.8660254037844386*g04_12 + 0.5*g04_13
+        g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
         g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
         g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
-        g03_23 = -0.8660254037844386*g04_22 + 0.5*g04_23
+        g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
         g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
         g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4
-        g03_33 = -0.8660254037844386*g04_32 + 0.5*g04_33
+        g03_33 = -0.8660254037844386*g04_32 + 0.5*g05_32
 
         # th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
         # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -633,10 +632,12 @@ def _closed_form(pose, current):
             free1 = False
             wk1 = 1e-08
 
-        if not free1 and abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4:
-            if abs(dt1) > wk1:
-                continue
-            free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if not free1:
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-4:
+                if abs(dt1) > wk1:
+                    continue
+                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
         if free1:
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
@@ -644,7 +645,6 @@ def _closed_form(pose, current):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq1 = c1 * c1 + s1 * s1
             if abs(hq1 - 1.0) > 1e-12:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1
@@ -653,12 +653,10 @@ def _closed_form(pose, current):
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1
         g13_12 = c1*g03_12 + g03_22*s1
-        g13_21 = g03_31
-        g13_22 = g03_32
 
         # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-        g23_11 = c2*g13_11 + g13_21*s2
-        g23_12 = c2*g13_12 + g13_22*s2
+        g23_11 = c2*g13_11 + g03_31*s2
+        g23_12 = c2*g13_12 + g03_32*s2
 
         # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         free3 = True
@@ -668,11 +666,11 @@ def _closed_form(pose, current):
         s3 = (-g23_12) / dt3
         free3 = False
 
-        if abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4:
+        hq3 = c3 * c3 + s3 * s3
+        if abs(hq3 - 1.0) > 1e-4:
             continue
         th3 = atan2(s3, c3)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        hq3 = c3 * c3 + s3 * s3
         if abs(hq3 - 1.0) > 1e-12:
             hn3 = 1.0 / sqrt(hq3)
             c3 = c3 * hn3

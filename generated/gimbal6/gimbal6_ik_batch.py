@@ -219,11 +219,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
         bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
-        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         e1z = bz + 0.1
-        g05_13 = r13
-        g05_23 = r23
-        g05_33 = r33
 
         # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
         t2_0 = bx*by
@@ -320,32 +317,29 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g05_32 = c6*r32 + r31*s6
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
-        g04_11 = c5*g05_11 + g05_13*s5
-        g04_12 = -c5*g05_13 + g05_11*s5
-        g04_13 = g05_12
-        g04_21 = c5*g05_21 + g05_23*s5
-        g04_22 = -c5*g05_23 + g05_21*s5
-        g04_23 = g05_22
-        g04_31 = c5*g05_31 + g05_33*s5
-        g04_32 = -c5*g05_33 + g05_31*s5
-        g04_33 = g05_32
+        g04_11 = c5*g05_11 + r13*s5
+        g04_12 = -c5*r13 + g05_11*s5
+        g04_21 = c5*g05_21 + r23*s5
+        g04_22 = -c5*r23 + g05_21*s5
+        g04_31 = c5*g05_31 + r33*s5
+        g04_32 = -c5*r33 + g05_31*s5
 
         # T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one)
         t8_0 = 0.5*g04_12
-        t8_1 = 0.8660254037844386*g04_13
+        t8_1 = 0.8660254037844386*g05_12
         t8_2 = 0.5*g04_22
-        t8_3 = 0.8660254037844386*g04_23
+        t8_3 = 0.8660254037844386*g05_22
         t8_4 = 0.5*g04_32
-        t8_5 = 0.8660254037844386*g04_33
+        t8_5 = 0.8660254037844386*g05_32
         g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
         g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
-        g03_13 = -0.8660254037844386*g04_12 + 0.5*g04_13
+        g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
         g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
         g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
-        g03_23 = -0.8660254037844386*g04_22 + 0.5*g04_23
+        g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
         g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
         g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4
-        g03_33 = -0.8660254037844386*g04_32 + 0.5*g04_33
+        g03_33 = -0.8660254037844386*g04_32 + 0.5*g05_32
 
         # th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
         ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33
@@ -391,12 +385,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1
         g13_12 = c1*g03_12 + g03_22*s1
-        g13_21 = g03_31
-        g13_22 = g03_32
 
         # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-        g23_11 = c2*g13_11 + g13_21*s2
-        g23_12 = c2*g13_12 + g13_22*s2
+        g23_11 = c2*g13_11 + g03_31*s2
+        g23_12 = c2*g13_12 + g03_32*s2
 
         # th3 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen3 = numpy.zeros((), dtype=bool)

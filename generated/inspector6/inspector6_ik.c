@@ -142,27 +142,20 @@ static int closed_form(const double pose[16], const double *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const double rc11 = -r12;
-    const double rc12 = r11;
-    const double rc13 = r13;
     const double pcx = px - 40.0*r11 - 60.0*r13;
-    const double rc21 = r22;
     const double rc22 = -r21;
     const double rc23 = -r23;
     const double pcy = -py + 40.0*r21 + 60.0*r23;
-    const double rc31 = r32;
     const double rc32 = -r31;
     const double rc33 = -r33;
     const double pcz = -pz + 40.0*r31 + 60.0*r33 + 1800.0;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const double wx = pcx - 85.0*rc13;
+    const double wx = pcx - 85.0*r13;
     const double wy = pcy - 85.0*rc23;
     const double wz = pcz - 85.0*rc33;
 
     /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-    const double g16_21 = rc31;
-    const double g16_22 = rc32;
-    const double g16_23 = rc33;
     const double g16_24 = pcz - 180.0;
     const double v1y = wz - 180.0;
 
@@ -190,15 +183,13 @@ static int closed_form(const double pose[16], const double *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t4_0 = wx*wx + wy*wy;
-        const double ea1 = wy;
         const double eb1 = -wx;
-        const double en1 = t4_0;
 
-        const int free1 = en1 <= 9.9999999999999988e-16;
-        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*en1 < 0.0) {
+        const int free1 = t4_0 <= 9.9999999999999988e-16;
+        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t4_0 < 0.0) {
             continue;
         }
-        const double root1 = en1 > 0.0 ? sqrt(en1) : 0.0;
+        const double root1 = t4_0 > 0.0 ? sqrt(t4_0) : 0.0;
         const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
         for (int k1 = 0; k1 < n1; ++k1) {
             const double sg1 = k1 ? -1.0 : 1.0;
@@ -209,21 +200,21 @@ static int closed_form(const double pose[16], const double *current,
                 s1 = sin(th1);
             } else {
                 const double cn1 = -eb1*root1*sg1;
-                const double sn1 = ea1*root1*sg1;
+                const double sn1 = root1*sg1*wy;
                 th1 = atan2(sn1, cn1);
-                c1 = cn1/en1;
-                s1 = sn1/en1;
+                c1 = cn1/t4_0;
+                s1 = sn1/t4_0;
 
             }
 
             /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const double g16_11 = c1*rc11 + rc21*s1;
-            const double g16_12 = c1*rc12 + rc22*s1;
-            const double g16_13 = c1*rc13 + rc23*s1;
+            const double g16_11 = c1*rc11 + r22*s1;
+            const double g16_12 = c1*r11 + rc22*s1;
+            const double g16_13 = c1*r13 + rc23*s1;
             const double g16_14 = c1*pcx + pcy*s1;
-            const double g16_31 = -c1*rc21 + rc11*s1;
-            const double g16_32 = -c1*rc22 + rc12*s1;
-            const double g16_33 = -c1*rc23 + rc13*s1;
+            const double g16_31 = -c1*r22 + rc11*s1;
+            const double g16_32 = -c1*rc22 + r11*s1;
+            const double g16_33 = -c1*rc23 + r13*s1;
             const double g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -246,7 +237,7 @@ static int closed_form(const double pose[16], const double *current,
             if (free2) {
                 const double t7_1_0 = g16_13*v1x;
                 const double t7_1_1 = g16_14*v1x;
-                const double t7_1_2 = g16_23*v1y;
+                const double t7_1_2 = rc33*v1y;
                 const double t7_1_3 = g16_24*v1y;
                 const double t7_1_4 = c3*v1y;
                 const double t7_1_5 = c3*v1x;
@@ -256,20 +247,20 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_9 = g16_14*g16_14;
                 const double t7_1_10 = g16_24*g16_24;
                 const double t7_1_11 = g16_34*g16_34;
-                const double t7_1_12 = 14297000.0*g16_23;
+                const double t7_1_12 = 14297000.0*rc33;
                 const double t7_1_13 = c3*s3;
                 const double t7_1_14 = s3*s3;
                 const double t7_1_15 = g16_13*g16_13;
                 const double t7_1_16 = 7225.0*v1x;
                 const double t7_1_17 = 168200.0*g16_14;
-                const double t7_1_18 = g16_23*g16_23;
+                const double t7_1_18 = rc33*rc33;
                 const double t7_1_19 = g16_33*g16_33;
                 const double t7_1_20 = 7225.0*v1y;
 
-                dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 - 49300.0*g16_23*t7_1_5 + 580.0*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3;
+                dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 + 580.0*g16_24*t7_1_5 - 49300.0*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3;
                 if (fabs(dt2) > 9.9999999999999998e-13) {
-                    c2 = (-15776000.0*c3*g16_23 + 168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 + 170.0*g16_23*g16_24*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2;
-                    s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y + 170.0*g16_23*g16_24*v1y + 14297000.0*g16_23*t7_1_14 - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2;
+                    c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 - 15776000.0*c3*rc33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 + 170.0*g16_24*rc33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2;
+                    s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y + 170.0*g16_24*rc33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y + 14297000.0*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2;
                     free2 = 0;
                     wk2 = 1.0;
                 }
@@ -299,31 +290,24 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g26_11 = c2*g16_11 + g16_21*s2;
-            const double g26_12 = c2*g16_12 + g16_22*s2;
-            const double g26_13 = c2*g16_13 + g16_23*s2;
-            const double g26_21 = c2*g16_21 - g16_11*s2;
-            const double g26_22 = c2*g16_22 - g16_12*s2;
-            const double g26_23 = c2*g16_23 - g16_13*s2;
-            const double g26_31 = g16_31;
-            const double g26_32 = g16_32;
-            const double g26_33 = g16_33;
+            const double g26_11 = c2*g16_11 + r32*s2;
+            const double g26_12 = c2*g16_12 + rc32*s2;
+            const double g26_13 = c2*g16_13 + rc33*s2;
+            const double g26_21 = c2*r32 - g16_11*s2;
+            const double g26_22 = c2*rc32 - g16_12*s2;
+            const double g26_23 = c2*rc33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
             const double g36_12 = c3*g26_12 + g26_22*s3;
             const double g36_13 = c3*g26_13 + g26_23*s3;
-            const double g36_21 = g26_31;
-            const double g36_22 = g26_32;
-            const double g36_23 = g26_33;
             const double g36_31 = -c3*g26_21 + g26_11*s3;
             const double g36_32 = -c3*g26_22 + g26_12*s3;
             const double g36_33 = -c3*g26_23 + g26_13*s3;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const double ec5 = g36_33;
-            const double er5 = g36_13*g36_13 + g36_23*g36_23;
+            const double er5 = g16_33*g16_33 + g36_13*g36_13;
 
             if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
@@ -332,7 +316,7 @@ static int closed_form(const double pose[16], const double *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, c5, s5;
-            const double cn5 = ec5;
+            const double cn5 = g36_33;
             const double sn5 = root5*sg5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
@@ -346,7 +330,7 @@ static int closed_form(const double pose[16], const double *current,
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g36_23*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -376,8 +360,8 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 + g36_21*s4;
-            const double g46_12 = c4*g36_12 + g36_22*s4;
+            const double g46_11 = c4*g36_11 + g16_31*s4;
+            const double g46_12 = c4*g36_12 + g16_32*s4;
             const double g46_21 = -g36_31;
             const double g46_22 = -g36_32;
 

@@ -131,8 +131,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -200,10 +208,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -343,38 +351,27 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     rc11 = -r12
-    rc12 = r11
-    rc13 = r13
     pcx = px - 40*r11 - 60*r13
-    rc21 = r22
     rc22 = -r21
     rc23 = -r23
     pcy = -py + 40*r21 + 60*r23
-    rc31 = r32
     rc32 = -r31
     rc33 = -r33
     pcz = -pz + 40*r31 + 60*r33 + 1800
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 85*rc13
+    wx = pcx - 85*r13
     wy = pcy - 85*rc23
     wz = pcz - 85*rc33
 
     # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    g16_21 = rc31
-    g16_22 = rc32
-    g16_23 = rc33
     g16_24 = pcz - 180
     v1y = wz - 180
 
@@ -397,14 +394,12 @@ def _closed_form(pose, current):
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t4_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t4_0
 
-        free1 = en1 <= 9.999999999999999e-16
-        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*en1 < 0.0):
+        free1 = t4_0 <= 9.999999999999999e-16
+        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
             continue
-        root1 = sqrt(en1) if en1 > 0.0 else 0.0
+        root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
                 th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
@@ -412,19 +407,19 @@ def _closed_form(pose, current):
                 s1 = sin(th1)
             else:
                 cn1 = -eb1*root1*sg1
-                sn1 = ea1*root1*sg1
+                sn1 = root1*sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/en1
-                s1 = sn1/en1
+                c1 = cn1/t4_0
+                s1 = sn1/t4_0
 
             # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-            g16_11 = c1*rc11 + rc21*s1
-            g16_12 = c1*rc12 + rc22*s1
-            g16_13 = c1*rc13 + rc23*s1
+            g16_11 = c1*rc11 + r22*s1
+            g16_12 = c1*r11 + rc22*s1
+            g16_13 = c1*r13 + rc23*s1
             g16_14 = c1*pcx + pcy*s1
-            g16_31 = -c1*rc21 + rc11*s1
-            g16_32 = -c1*rc22 + rc12*s1
-            g16_33 = -c1*rc23 + rc13*s1
+            g16_31 = -c1*r22 + rc11*s1
+            g16_32 = -c1*rc22 + r11*s1
+            g16_33 = -c1*rc23 + r13*s1
             g16_34 = -c1*pcy + pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -444,7 +439,7 @@ def _closed_form(pose, current):
             if free2:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
-                t7_1_2 = g16_23*v1y
+                t7_1_2 = rc33*v1y
                 t7_1_3 = g16_24*v1y
                 t7_1_4 = c3*v1y
                 t7_1_5 = c3*v1x
@@ -454,27 +449,29 @@ def _closed_form(pose, current):
                 t7_1_9 = g16_14*g16_14
                 t7_1_10 = g16_24*g16_24
                 t7_1_11 = g16_34*g16_34
-                t7_1_12 = 14297000*g16_23
+                t7_1_12 = 14297000*rc33
                 t7_1_13 = c3*s3
                 t7_1_14 = s3*s3
                 t7_1_15 = g16_13*g16_13
                 t7_1_16 = 7225*v1x
                 t7_1_17 = 168200*g16_14
-                t7_1_18 = g16_23*g16_23
+                t7_1_18 = rc33*rc33
                 t7_1_19 = g16_33*g16_33
                 t7_1_20 = 7225*v1y
 
-                dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 - 49300*g16_23*t7_1_5 + 580*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+                dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 - 49300*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
                 if abs(dt2) > 1e-12:
-                    c2 = (-15776000*c3*g16_23 + 168200*c3*g16_24*s3 + 185600*c3*g16_24 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_23*g16_24*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2
-                    s2 = (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_23*g16_24*v1y + 14297000*g16_23*t7_1_14 - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2
+                    c2 = (168200*c3*g16_24*s3 + 185600*c3*g16_24 - 15776000*c3*rc33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_24*rc33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2
+                    s2 = (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_24*rc33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y + 14297000*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2
                     free2 = False
                     wk2 = 1.0
 
-            if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-                if abs(dt2) > wk2:
-                    continue
-                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free2:
                 th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
@@ -482,45 +479,37 @@ def _closed_form(pose, current):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-12:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_21 = c2*g16_21 - g16_11*s2
-            g26_22 = c2*g16_22 - g16_12*s2
-            g26_23 = c2*g16_23 - g16_13*s2
-            g26_31 = g16_31
-            g26_32 = g16_32
-            g26_33 = g16_33
+            g26_11 = c2*g16_11 + r32*s2
+            g26_12 = c2*g16_12 + rc32*s2
+            g26_13 = c2*g16_13 + rc33*s2
+            g26_21 = c2*r32 - g16_11*s2
+            g26_22 = c2*rc32 - g16_12*s2
+            g26_23 = c2*rc33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
             g36_12 = c3*g26_12 + g26_22*s3
             g36_13 = c3*g26_13 + g26_23*s3
-            g36_21 = g26_31
-            g36_22 = g26_32
-            g36_23 = g26_33
             g36_31 = -c3*g26_21 + g26_11*s3
             g36_32 = -c3*g26_22 + g26_12*s3
             g36_33 = -c3*g26_23 + g26_13*s3
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            ec5 = g36_33
-            er5 = g36_13*g36_13 + g36_23*g36_23
+            er5 = g16_33*g16_33 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
             sg5 = 1.0
-            cn5 = ec5
+            cn5 = g36_33
             sn5 = root5*sg5
             th5 = atan2(sn5, cn5)
             c5 = cn5
@@ -532,14 +521,16 @@ def _closed_form(pose, current):
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
-                s4 = (-g36_23*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
-            if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-                if abs(dt4) > wk4:
-                    continue
-                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free4:
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
@@ -547,15 +538,14 @@ def _closed_form(pose, current):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-12:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
+            g46_11 = c4*g36_11 + g16_31*s4
+            g46_12 = c4*g36_12 + g16_32*s4
             g46_21 = -g36_31
             g46_22 = -g36_32
 
@@ -571,11 +561,11 @@ def _closed_form(pose, current):
             s6 = (-g56_12) / dt6
             free6 = False
 
-            if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-12:
                 hn6 = 1.0 / sqrt(hq6)
                 c6 = c6 * hn6

@@ -114,27 +114,20 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         rc11 = -r12
-        rc12 = r11
-        rc13 = r13
         pcx = px - 40*r11 - 60*r13
-        rc21 = r22
         rc22 = -r21
         rc23 = -r23
         pcy = -py + 40*r21 + 60*r23
-        rc31 = r32
         rc32 = -r31
         rc33 = -r33
         pcz = -pz + 40*r31 + 60*r33 + 1800
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-        wx = pcx - 85*rc13
+        wx = pcx - 85*r13
         wy = pcy - 85*rc23
         wz = pcz - 85*rc33
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_21 = rc31
-        g16_22 = rc32
-        g16_23 = rc33
         g16_24 = pcz - 180
         v1y = wz - 180
 
@@ -156,20 +149,18 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 w = A2 A3 c3
         t4_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t4_0
 
-        free1 = en1 <= 9.999999999999999e-16
-        valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*en1 < 0.0)
-        root1 = numpy.sqrt(numpy.maximum(en1, 0.0))
+        free1 = t4_0 <= 9.999999999999999e-16
+        valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t4_0 < 0.0)
+        root1 = numpy.sqrt(numpy.maximum(t4_0, 0.0))
         sg1 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = -eb1*root1*sg1
-        sn1 = ea1*root1*sg1
+        sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t4_0
+        s1 = sn1/t4_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -177,13 +168,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_11 = c1*rc11 + r22*s1
+        g16_12 = c1*r11 + rc22*s1
+        g16_13 = c1*r13 + rc23*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_31 = -c1*rc21 + rc11*s1
-        g16_32 = -c1*rc22 + rc12*s1
-        g16_33 = -c1*rc23 + rc13*s1
+        g16_31 = -c1*r22 + rc11*s1
+        g16_32 = -c1*rc22 + r11*s1
+        g16_33 = -c1*rc23 + r13*s1
         g16_34 = -c1*pcy + pcx*s1
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -203,7 +194,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         if not chosen2.all():
             t7_1_0 = g16_13*v1x
             t7_1_1 = g16_14*v1x
-            t7_1_2 = g16_23*v1y
+            t7_1_2 = rc33*v1y
             t7_1_3 = g16_24*v1y
             t7_1_4 = c3*v1y
             t7_1_5 = c3*v1x
@@ -213,20 +204,20 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_1_9 = g16_14*g16_14
             t7_1_10 = g16_24*g16_24
             t7_1_11 = g16_34*g16_34
-            t7_1_12 = 14297000*g16_23
+            t7_1_12 = 14297000*rc33
             t7_1_13 = c3*s3
             t7_1_14 = s3*s3
             t7_1_15 = g16_13*g16_13
             t7_1_16 = 7225*v1x
             t7_1_17 = 168200*g16_14
-            t7_1_18 = g16_23*g16_23
+            t7_1_18 = rc33*rc33
             t7_1_19 = g16_33*g16_33
             t7_1_20 = 7225*v1y
 
-            dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 - 49300*g16_23*t7_1_5 + 580*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+            dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 - 49300*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
             use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
-            c2 = numpy.where(use, (-15776000*c3*g16_23 + 168200*c3*g16_24*s3 + 185600*c3*g16_24 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_23*g16_24*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2, c2)
-            s2 = numpy.where(use, (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_23*g16_24*v1y + 14297000*g16_23*t7_1_14 - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2, s2)
+            c2 = numpy.where(use, (168200*c3*g16_24*s3 + 185600*c3*g16_24 - 15776000*c3*rc33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_24*rc33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2, c2)
+            s2 = numpy.where(use, (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_24*rc33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y + 14297000*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2, s2)
             wk2 = numpy.where(use, 1.0, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
@@ -248,35 +239,28 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        g26_11 = c2*g16_11 + g16_21*s2
-        g26_12 = c2*g16_12 + g16_22*s2
-        g26_13 = c2*g16_13 + g16_23*s2
-        g26_21 = c2*g16_21 - g16_11*s2
-        g26_22 = c2*g16_22 - g16_12*s2
-        g26_23 = c2*g16_23 - g16_13*s2
-        g26_31 = g16_31
-        g26_32 = g16_32
-        g26_33 = g16_33
+        g26_11 = c2*g16_11 + r32*s2
+        g26_12 = c2*g16_12 + rc32*s2
+        g26_13 = c2*g16_13 + rc33*s2
+        g26_21 = c2*r32 - g16_11*s2
+        g26_22 = c2*rc32 - g16_12*s2
+        g26_23 = c2*rc33 - g16_13*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
         g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
-        g36_21 = g26_31
-        g36_22 = g26_32
-        g36_23 = g26_33
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
         g36_33 = -c3*g26_23 + g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        ec5 = g36_33
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g16_33*g16_33 + g36_13*g36_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
         sg5 = 1.0
-        cn5 = ec5
+        cn5 = g36_33
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
@@ -289,7 +273,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
         c4 = (-g36_13*s5) / dt4
-        s4 = (-g36_23*s5) / dt4
+        s4 = (-g16_33*s5) / dt4
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -311,8 +295,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
+        g46_11 = c4*g36_11 + g16_31*s4
+        g46_12 = c4*g36_12 + g16_32*s4
         g46_21 = -g36_31
         g46_22 = -g36_32
 

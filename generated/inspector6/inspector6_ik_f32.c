@@ -142,27 +142,20 @@ static int closed_form(const float pose[16], const float *current,
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = -r12;
-    const float rc12 = r11;
-    const float rc13 = r13;
     const float pcx = px - 40.0f*r11 - 60.0f*r13;
-    const float rc21 = r22;
     const float rc22 = -r21;
     const float rc23 = -r23;
     const float pcy = -py + 40.0f*r21 + 60.0f*r23;
-    const float rc31 = r32;
     const float rc32 = -r31;
     const float rc33 = -r33;
     const float pcz = -pz + 40.0f*r31 + 60.0f*r33 + 1800.0f;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const float wx = pcx - 85.0f*rc13;
+    const float wx = pcx - 85.0f*r13;
     const float wy = pcy - 85.0f*rc23;
     const float wz = pcz - 85.0f*rc33;
 
     /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-    const float g16_21 = rc31;
-    const float g16_22 = rc32;
-    const float g16_23 = rc33;
     const float g16_24 = pcz - 180.0f;
     const float v1y = wz - 180.0f;
 
@@ -190,15 +183,13 @@ static int closed_form(const float pose[16], const float *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t4_0 = wx*wx + wy*wy;
-        const float ea1 = wy;
         const float eb1 = -wx;
-        const float en1 = t4_0;
 
-        const int free1 = en1 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.00002f*en1 < 0.0f) {
+        const int free1 = t4_0 <= 1e-15f;
+        if (free1 ? 0.0f > 1e-15f : 1.00002f*t4_0 < 0.0f) {
             continue;
         }
-        const float root1 = en1 > 0.0f ? sqrtf(en1) : 0.0f;
+        const float root1 = t4_0 > 0.0f ? sqrtf(t4_0) : 0.0f;
         const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
         for (int k1 = 0; k1 < n1; ++k1) {
             const float sg1 = k1 ? -1.0f : 1.0f;
@@ -209,21 +200,21 @@ static int closed_form(const float pose[16], const float *current,
                 s1 = sinf(th1);
             } else {
                 const float cn1 = -eb1*root1*sg1;
-                const float sn1 = ea1*root1*sg1;
+                const float sn1 = root1*sg1*wy;
                 th1 = atan2f(sn1, cn1);
-                c1 = cn1/en1;
-                s1 = sn1/en1;
+                c1 = cn1/t4_0;
+                s1 = sn1/t4_0;
 
             }
 
             /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + rc21*s1;
-            const float g16_12 = c1*rc12 + rc22*s1;
-            const float g16_13 = c1*rc13 + rc23*s1;
+            const float g16_11 = c1*rc11 + r22*s1;
+            const float g16_12 = c1*r11 + rc22*s1;
+            const float g16_13 = c1*r13 + rc23*s1;
             const float g16_14 = c1*pcx + pcy*s1;
-            const float g16_31 = -c1*rc21 + rc11*s1;
-            const float g16_32 = -c1*rc22 + rc12*s1;
-            const float g16_33 = -c1*rc23 + rc13*s1;
+            const float g16_31 = -c1*r22 + rc11*s1;
+            const float g16_32 = -c1*rc22 + r11*s1;
+            const float g16_33 = -c1*rc23 + r13*s1;
             const float g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -246,7 +237,7 @@ static int closed_form(const float pose[16], const float *current,
             if (free2) {
                 const float t7_1_0 = g16_13*v1x;
                 const float t7_1_1 = g16_14*v1x;
-                const float t7_1_2 = g16_23*v1y;
+                const float t7_1_2 = rc33*v1y;
                 const float t7_1_3 = g16_24*v1y;
                 const float t7_1_4 = c3*v1y;
                 const float t7_1_5 = c3*v1x;
@@ -256,20 +247,20 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_9 = g16_14*g16_14;
                 const float t7_1_10 = g16_24*g16_24;
                 const float t7_1_11 = g16_34*g16_34;
-                const float t7_1_12 = 14297000.0f*g16_23;
+                const float t7_1_12 = 14297000.0f*rc33;
                 const float t7_1_13 = c3*s3;
                 const float t7_1_14 = s3*s3;
                 const float t7_1_15 = g16_13*g16_13;
                 const float t7_1_16 = 7225.0f*v1x;
                 const float t7_1_17 = 168200.0f*g16_14;
-                const float t7_1_18 = g16_23*g16_23;
+                const float t7_1_18 = rc33*rc33;
                 const float t7_1_19 = g16_33*g16_33;
                 const float t7_1_20 = 7225.0f*v1y;
 
-                dt2 = 49300.0f*g16_13*t7_1_4 - 580.0f*g16_14*t7_1_4 - 49300.0f*g16_23*t7_1_5 + 580.0f*g16_24*t7_1_5 + t7_1_0*t7_1_6 + 54400.0f*t7_1_0 - t7_1_1*t7_1_7 - 640.0f*t7_1_1 + t7_1_2*t7_1_6 + 54400.0f*t7_1_2 - t7_1_3*t7_1_7 - 640.0f*t7_1_3;
+                dt2 = 49300.0f*g16_13*t7_1_4 - 580.0f*g16_14*t7_1_4 + 580.0f*g16_24*t7_1_5 - 49300.0f*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0f*t7_1_0 - t7_1_1*t7_1_7 - 640.0f*t7_1_1 + t7_1_2*t7_1_6 + 54400.0f*t7_1_2 - t7_1_3*t7_1_7 - 640.0f*t7_1_3;
                 if (fabsf(dt2) > 1e-12f) {
-                    c2 = (-15776000.0f*c3*g16_23 + 168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 + 170.0f*g16_23*g16_24*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
-                    s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y + 170.0f*g16_23*g16_24*v1y + 14297000.0f*g16_23*t7_1_14 - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
+                    c2 = (168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 - 15776000.0f*c3*rc33 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 + 170.0f*g16_24*rc33*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
+                    s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y + 170.0f*g16_24*rc33*v1y - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y + 14297000.0f*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
                     free2 = 0;
                     wk2 = 1.0f;
                 }
@@ -299,31 +290,24 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const float g26_11 = c2*g16_11 + g16_21*s2;
-            const float g26_12 = c2*g16_12 + g16_22*s2;
-            const float g26_13 = c2*g16_13 + g16_23*s2;
-            const float g26_21 = c2*g16_21 - g16_11*s2;
-            const float g26_22 = c2*g16_22 - g16_12*s2;
-            const float g26_23 = c2*g16_23 - g16_13*s2;
-            const float g26_31 = g16_31;
-            const float g26_32 = g16_32;
-            const float g26_33 = g16_33;
+            const float g26_11 = c2*g16_11 + r32*s2;
+            const float g26_12 = c2*g16_12 + rc32*s2;
+            const float g26_13 = c2*g16_13 + rc33*s2;
+            const float g26_21 = c2*r32 - g16_11*s2;
+            const float g26_22 = c2*rc32 - g16_12*s2;
+            const float g26_23 = c2*rc33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
             const float g36_12 = c3*g26_12 + g26_22*s3;
             const float g36_13 = c3*g26_13 + g26_23*s3;
-            const float g36_21 = g26_31;
-            const float g36_22 = g26_32;
-            const float g36_23 = g26_33;
             const float g36_31 = -c3*g26_21 + g26_11*s3;
             const float g36_32 = -c3*g26_22 + g26_12*s3;
             const float g36_33 = -c3*g26_23 + g26_13*s3;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const float ec5 = g36_33;
-            const float er5 = g36_13*g36_13 + g36_23*g36_23;
+            const float er5 = g16_33*g16_33 + g36_13*g36_13;
 
             if (er5 + 2e-05f < 0.0f) {
                 continue;
@@ -332,7 +316,7 @@ static int closed_form(const float pose[16], const float *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, c5, s5;
-            const float cn5 = ec5;
+            const float cn5 = g36_33;
             const float sn5 = root5*sg5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
@@ -346,7 +330,7 @@ static int closed_form(const float pose[16], const float *current,
                 dt4 = -s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g36_23*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
@@ -376,8 +360,8 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g46_11 = c4*g36_11 + g36_21*s4;
-            const float g46_12 = c4*g36_12 + g36_22*s4;
+            const float g46_11 = c4*g36_11 + g16_31*s4;
+            const float g46_12 = c4*g36_12 + g16_32*s4;
             const float g46_21 = -g36_31;
             const float g46_22 = -g36_32;
 

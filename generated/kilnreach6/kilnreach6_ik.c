@@ -129,40 +129,29 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = r11;
-    const double rc12 = r12;
-    const double rc13 = r13;
     const double pcx = px - 140.0*r13;
-    const double rc21 = r21;
-    const double rc22 = r22;
-    const double rc23 = r23;
     const double pcy = py - 140.0*r23;
-    const double rc31 = r31;
-    const double rc32 = r32;
-    const double rc33 = r33;
     const double pcz = pz - 140.0*r33;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const double wx = pcx - 110.0*rc13;
-    const double wy = pcy - 110.0*rc23;
-    const double wz = pcz - 110.0*rc33;
+    const double wx = pcx - 110.0*r13;
+    const double wy = pcy - 110.0*r23;
+    const double wz = pcz - 110.0*r33;
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double v1y = 900.0 - wz;
-    const double g16_21 = -rc31;
-    const double g16_22 = -rc32;
-    const double g16_23 = -rc33;
+    const double g16_21 = -r31;
+    const double g16_22 = -r32;
+    const double g16_23 = -r33;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
-    const double ea1 = wy;
     const double eb1 = -wx;
-    const double en1 = t3_0;
     const double er1 = t3_0 - 22500.0;
 
-    const int free1 = en1 <= 1e-14;
-    if (free1 ? 22500.0 > 1e-14 : 2.0000000000000001e-09*en1 + er1 < 0.0) {
+    const int free1 = t3_0 <= 1e-14;
+    if (free1 ? 22500.0 > 1e-14 : er1 + 2.0000000000000001e-09*t3_0 < 0.0) {
         if (status) *status = KILNREACH6_IK_UNREACHABLE;
         return 0;
     }
@@ -176,43 +165,34 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = 150.0*ea1 - eb1*root1*sg1;
-            const double sn1 = ea1*root1*sg1 + 150.0*eb1;
+            const double cn1 = -eb1*root1*sg1 + 150.0*wy;
+            const double sn1 = 150.0*eb1 + root1*sg1*wy;
             th1 = atan2(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
 
         }
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-        const double g16_11 = c1*rc11 + rc21*s1;
-        const double g16_12 = c1*rc12 + rc22*s1;
-        const double g16_13 = c1*rc13 + rc23*s1;
-        const double g16_31 = c1*rc21 - rc11*s1;
-        const double g16_32 = c1*rc22 - rc12*s1;
-        const double g16_33 = c1*rc23 - rc13*s1;
-        const double g26_21 = g16_31;
-        const double g26_22 = g16_32;
-        const double g26_23 = g16_33;
-        const double g36_21 = g26_21;
-        const double g36_22 = g26_22;
-        const double g36_23 = g26_23;
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const double g16_11 = c1*r11 + r21*s1;
+        const double g16_12 = c1*r12 + r22*s1;
+        const double g16_13 = c1*r13 + r23*s1;
+        const double g16_31 = c1*r21 - r11*s1;
+        const double g16_32 = c1*r22 - r12*s1;
+        const double g16_33 = c1*r23 - r13*s1;
 
         /* th2: x of A2^-1 A1^-1 w = A3 c3
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t5_0 = v1x*v1x + v1y*v1y;
-        const double ea2 = v1x;
-        const double eb2 = v1y;
-        const double en2 = t5_0;
 
-        const int free2 = en2 <= 1e-14;
-        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*en2 < 0.0) {
+        const int free2 = t5_0 <= 1e-14;
+        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*t5_0 < 0.0) {
             continue;
         }
-        const double root2 = en2 > 0.0 ? sqrt(en2) : 0.0;
+        const double root2 = t5_0 > 0.0 ? sqrt(t5_0) : 0.0;
         const int n2 = (free2 || root2 == 0.0) ? 1 : 2;
         for (int k2 = 0; k2 < n2; ++k2) {
             const double sg2 = k2 ? -1.0 : 1.0;
@@ -222,11 +202,11 @@ static int closed_form(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                const double cn2 = -eb2*root2*sg2;
-                const double sn2 = ea2*root2*sg2;
+                const double cn2 = -root2*sg2*v1y;
+                const double sn2 = root2*sg2*v1x;
                 th2 = atan2(sn2, cn2);
-                c2 = cn2/en2;
-                s2 = sn2/en2;
+                c2 = cn2/t5_0;
+                s2 = sn2/t5_0;
 
             }
 
@@ -252,18 +232,9 @@ static int closed_form(const double pose[16], const double *current,
             const double g26_32 = -c2*g16_22 + g16_12*s2;
             const double g26_33 = -c2*g16_23 + g16_13*s2;
 
-            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
-            const double g36_11 = g26_11;
-            const double g36_12 = g26_12;
-            const double g36_13 = g26_13;
-            const double g36_31 = g26_31;
-            const double g36_32 = g26_32;
-            const double g36_33 = g26_33;
-
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const double ec5 = g36_33;
-            const double er5 = g36_13*g36_13 + g36_23*g36_23;
+            const double er5 = g16_33*g16_33 + g26_13*g26_13;
 
             if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
@@ -272,7 +243,7 @@ static int closed_form(const double pose[16], const double *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, c5, s5;
-            const double cn5 = ec5;
+            const double cn5 = g26_33;
             const double sn5 = root5*sg5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
@@ -285,8 +256,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g36_23*s5) / dt4;
+                    c4 = (-g26_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -316,10 +287,10 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 + g36_21*s4;
-            const double g46_12 = c4*g36_12 + g36_22*s4;
-            const double g46_21 = -g36_31;
-            const double g46_22 = -g36_32;
+            const double g46_11 = c4*g26_11 + g16_31*s4;
+            const double g46_12 = c4*g26_12 + g16_32*s4;
+            const double g46_21 = -g26_31;
+            const double g46_22 = -g26_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const double g56_11 = c5*g46_11 + g46_21*s5;

@@ -113,47 +113,36 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-        rc11 = r11
-        rc12 = r12
-        rc13 = r13
         pcx = px - 140*r13
-        rc21 = r21
-        rc22 = r22
-        rc23 = r23
         pcy = py - 140*r23
-        rc31 = r31
-        rc32 = r32
-        rc33 = r33
         pcz = pz - 140*r33
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-        wx = pcx - 110*rc13
-        wy = pcy - 110*rc23
-        wz = pcz - 110*rc33
+        wx = pcx - 110*r13
+        wy = pcy - 110*r23
+        wz = pcz - 110*r33
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         v1y = 900 - wz
-        g16_21 = -rc31
-        g16_22 = -rc32
-        g16_23 = -rc33
+        g16_21 = -r31
+        g16_22 = -r32
+        g16_23 = -r33
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t3_0
         er1 = t3_0 - 22500
 
-        free1 = en1 <= 1e-14
-        valid = valid & ~numpy.where(free1, 22500 > 1e-14, 2e-09*en1 + er1 < 0.0)
+        free1 = t3_0 <= 1e-14
+        valid = valid & ~numpy.where(free1, 22500 > 1e-14, er1 + 2e-09*t3_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = 150*ea1 - eb1*root1*sg1
-        sn1 = ea1*root1*sg1 + 150*eb1
+        cn1 = -eb1*root1*sg1 + 150*wy
+        sn1 = 150*eb1 + root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t3_0
+        s1 = sn1/t3_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -163,36 +152,27 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
-        g16_31 = c1*rc21 - rc11*s1
-        g16_32 = c1*rc22 - rc12*s1
-        g16_33 = c1*rc23 - rc13*s1
-        g26_21 = g16_31
-        g26_22 = g16_32
-        g26_23 = g16_33
-        g36_21 = g26_21
-        g36_22 = g26_22
-        g36_23 = g26_23
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
+        g16_31 = c1*r21 - r11*s1
+        g16_32 = c1*r22 - r12*s1
+        g16_33 = c1*r23 - r13*s1
 
         # th2: x of A2^-1 A1^-1 w = A3 c3
         t5_0 = v1x*v1x + v1y*v1y
-        ea2 = v1x
-        eb2 = v1y
-        en2 = t5_0
 
-        free2 = en2 <= 1e-14
-        valid = valid & ~numpy.where(free2, 0 > 1e-14, 1.000000002*en2 < 0.0)
-        root2 = numpy.sqrt(numpy.maximum(en2, 0.0))
+        free2 = t5_0 <= 1e-14
+        valid = valid & ~numpy.where(free2, 0 > 1e-14, 1.000000002*t5_0 < 0.0)
+        root2 = numpy.sqrt(numpy.maximum(t5_0, 0.0))
         sg2 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg2 < 0.0) & (free2 | (root2 == 0.0)))
-        cn2 = -eb2*root2*sg2
-        sn2 = ea2*root2*sg2
+        cn2 = -root2*sg2*v1y
+        sn2 = root2*sg2*v1x
         th2 = numpy.arctan2(sn2, cn2)
-        c2 = cn2/en2
-        s2 = sn2/en2
+        c2 = cn2/t5_0
+        s2 = sn2/t5_0
         if free2.any():
             th2 = numpy.where(free2, (hint[1]), th2)
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
@@ -218,22 +198,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g26_32 = -c2*g16_22 + g16_12*s2
         g26_33 = -c2*g16_23 + g16_13*s2
 
-        # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-        g36_11 = g26_11
-        g36_12 = g26_12
-        g36_13 = g26_13
-        g36_31 = g26_31
-        g36_32 = g26_32
-        g36_33 = g26_33
-
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        ec5 = g36_33
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g16_33*g16_33 + g26_13*g26_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
         sg5 = 1.0
-        cn5 = ec5
+        cn5 = g26_33
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
@@ -245,8 +216,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
-        c4 = (-g36_13*s5) / dt4
-        s4 = (-g36_23*s5) / dt4
+        c4 = (-g26_13*s5) / dt4
+        s4 = (-g16_33*s5) / dt4
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -268,10 +239,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
-        g46_21 = -g36_31
-        g46_22 = -g36_32
+        g46_11 = c4*g26_11 + g16_31*s4
+        g46_12 = c4*g26_12 + g16_32*s4
+        g46_21 = -g26_31
+        g46_22 = -g26_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g56_11 = c5*g46_11 + g46_21*s5

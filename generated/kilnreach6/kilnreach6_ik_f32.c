@@ -129,40 +129,29 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const float rc11 = r11;
-    const float rc12 = r12;
-    const float rc13 = r13;
     const float pcx = px - 140.0f*r13;
-    const float rc21 = r21;
-    const float rc22 = r22;
-    const float rc23 = r23;
     const float pcy = py - 140.0f*r23;
-    const float rc31 = r31;
-    const float rc32 = r32;
-    const float rc33 = r33;
     const float pcz = pz - 140.0f*r33;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const float wx = pcx - 110.0f*rc13;
-    const float wy = pcy - 110.0f*rc23;
-    const float wz = pcz - 110.0f*rc33;
+    const float wx = pcx - 110.0f*r13;
+    const float wy = pcy - 110.0f*r23;
+    const float wz = pcz - 110.0f*r33;
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float v1y = 900.0f - wz;
-    const float g16_21 = -rc31;
-    const float g16_22 = -rc32;
-    const float g16_23 = -rc33;
+    const float g16_21 = -r31;
+    const float g16_22 = -r32;
+    const float g16_23 = -r33;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
-    const float ea1 = wy;
     const float eb1 = -wx;
-    const float en1 = t3_0;
     const float er1 = t3_0 - 22500.0f;
 
-    const int free1 = en1 <= 1e-14f;
-    if (free1 ? 22500.0f > 1e-14f : 2e-05f*en1 + er1 < 0.0f) {
+    const int free1 = t3_0 <= 1e-14f;
+    if (free1 ? 22500.0f > 1e-14f : er1 + 2e-05f*t3_0 < 0.0f) {
         if (status) *status = KILNREACH6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -176,43 +165,34 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = 150.0f*ea1 - eb1*root1*sg1;
-            const float sn1 = ea1*root1*sg1 + 150.0f*eb1;
+            const float cn1 = -eb1*root1*sg1 + 150.0f*wy;
+            const float sn1 = 150.0f*eb1 + root1*sg1*wy;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
 
         }
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-        const float g16_11 = c1*rc11 + rc21*s1;
-        const float g16_12 = c1*rc12 + rc22*s1;
-        const float g16_13 = c1*rc13 + rc23*s1;
-        const float g16_31 = c1*rc21 - rc11*s1;
-        const float g16_32 = c1*rc22 - rc12*s1;
-        const float g16_33 = c1*rc23 - rc13*s1;
-        const float g26_21 = g16_31;
-        const float g26_22 = g16_32;
-        const float g26_23 = g16_33;
-        const float g36_21 = g26_21;
-        const float g36_22 = g26_22;
-        const float g36_23 = g26_23;
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const float g16_11 = c1*r11 + r21*s1;
+        const float g16_12 = c1*r12 + r22*s1;
+        const float g16_13 = c1*r13 + r23*s1;
+        const float g16_31 = c1*r21 - r11*s1;
+        const float g16_32 = c1*r22 - r12*s1;
+        const float g16_33 = c1*r23 - r13*s1;
 
         /* th2: x of A2^-1 A1^-1 w = A3 c3
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t5_0 = v1x*v1x + v1y*v1y;
-        const float ea2 = v1x;
-        const float eb2 = v1y;
-        const float en2 = t5_0;
 
-        const int free2 = en2 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.00002f*en2 < 0.0f) {
+        const int free2 = t5_0 <= 1e-14f;
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*t5_0 < 0.0f) {
             continue;
         }
-        const float root2 = en2 > 0.0f ? sqrtf(en2) : 0.0f;
+        const float root2 = t5_0 > 0.0f ? sqrtf(t5_0) : 0.0f;
         const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
         for (int k2 = 0; k2 < n2; ++k2) {
             const float sg2 = k2 ? -1.0f : 1.0f;
@@ -222,11 +202,11 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                const float cn2 = -eb2*root2*sg2;
-                const float sn2 = ea2*root2*sg2;
+                const float cn2 = -root2*sg2*v1y;
+                const float sn2 = root2*sg2*v1x;
                 th2 = atan2f(sn2, cn2);
-                c2 = cn2/en2;
-                s2 = sn2/en2;
+                c2 = cn2/t5_0;
+                s2 = sn2/t5_0;
 
             }
 
@@ -252,18 +232,9 @@ static int closed_form(const float pose[16], const float *current,
             const float g26_32 = -c2*g16_22 + g16_12*s2;
             const float g26_33 = -c2*g16_23 + g16_13*s2;
 
-            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
-            const float g36_11 = g26_11;
-            const float g36_12 = g26_12;
-            const float g36_13 = g26_13;
-            const float g36_31 = g26_31;
-            const float g36_32 = g26_32;
-            const float g36_33 = g26_33;
-
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const float ec5 = g36_33;
-            const float er5 = g36_13*g36_13 + g36_23*g36_23;
+            const float er5 = g16_33*g16_33 + g26_13*g26_13;
 
             if (er5 + 2e-05f < 0.0f) {
                 continue;
@@ -272,7 +243,7 @@ static int closed_form(const float pose[16], const float *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, c5, s5;
-            const float cn5 = ec5;
+            const float cn5 = g26_33;
             const float sn5 = root5*sg5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
@@ -285,8 +256,8 @@ static int closed_form(const float pose[16], const float *current,
 
                 dt4 = -s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g36_23*s5) / dt4;
+                    c4 = (-g26_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
@@ -316,10 +287,10 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g46_11 = c4*g36_11 + g36_21*s4;
-            const float g46_12 = c4*g36_12 + g36_22*s4;
-            const float g46_21 = -g36_31;
-            const float g46_22 = -g36_32;
+            const float g46_11 = c4*g26_11 + g16_31*s4;
+            const float g46_12 = c4*g26_12 + g16_32*s4;
+            const float g46_21 = -g26_31;
+            const float g46_22 = -g26_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const float g56_11 = c5*g46_11 + g46_21*s5;

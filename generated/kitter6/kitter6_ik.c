@@ -140,37 +140,24 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = r11;
-    const double rc12 = r12;
-    const double rc13 = r13;
     const double pcx = px - 62.0*r13;
-    const double rc21 = r21;
-    const double rc22 = r22;
-    const double rc23 = r23;
     const double pcy = py - 62.0*r23;
-    const double rc31 = r31;
-    const double rc32 = r32;
-    const double rc33 = r33;
     const double pcz = pz - 62.0*r33;
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
-    const double g16_33 = rc33;
-    const double g05_12 = rc13;
-    const double g05_14 = pcx - 78.0*rc13;
-    const double g05_22 = rc23;
-    const double g05_24 = pcy - 78.0*rc23;
-    const double g05_34 = pcz - 78.0*rc33;
+    /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double g05_14 = pcx - 78.0*r13;
+    const double g05_24 = pcy - 78.0*r23;
+    const double g05_34 = pcz - 78.0*r33;
 
     /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-    const double t2_0 = pcx*pcx - 156.0*pcx*rc13 + pcy*pcy - 156.0*pcy*rc23 + 6084.0*rc13*rc13 + 6084.0*rc23*rc23;
-    const double ea1 = pcy - 78.0*rc23;
-    const double eb1 = -pcx + 78.0*rc13;
-    const double en1 = t2_0;
+    const double t2_0 = pcx*pcx - 156.0*pcx*r13 + pcy*pcy - 156.0*pcy*r23 + 6084.0*r13*r13 + 6084.0*r23*r23;
+    const double ea1 = pcy - 78.0*r23;
+    const double eb1 = -pcx + 78.0*r13;
     const double er1 = t2_0 - 14641.0;
 
-    const int free1 = en1 <= 9.9999999999999988e-16;
-    if (free1 ? 14641.0 > 9.9999999999999988e-16 : 2.0000000000000001e-09*en1 + er1 < 0.0) {
+    const int free1 = t2_0 <= 9.9999999999999988e-16;
+    if (free1 ? 14641.0 > 9.9999999999999988e-16 : er1 + 2.0000000000000001e-09*t2_0 < 0.0) {
         if (status) *status = KITTER6_IK_UNREACHABLE;
         return 0;
     }
@@ -187,22 +174,22 @@ static int closed_form(const double pose[16], const double *current,
             const double cn1 = -121.0*ea1 - eb1*root1*sg1;
             const double sn1 = ea1*root1*sg1 - 121.0*eb1;
             th1 = atan2(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t2_0;
+            s1 = sn1/t2_0;
 
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const double g16_13 = c1*rc13 + rc23*s1;
+        const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1;
-        const double g16_21 = c1*rc21 - rc11*s1;
-        const double g16_22 = c1*rc22 - rc12*s1;
-        const double g16_23 = c1*rc23 - rc13*s1;
+        const double g16_21 = c1*r21 - r11*s1;
+        const double g16_22 = c1*r22 - r12*s1;
+        const double g16_23 = c1*r23 - r13*s1;
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double ec5 = -g16_23;
-        const double er5 = g16_13*g16_13 + g16_33*g16_33;
+        const double er5 = g16_13*g16_13 + r33*r33;
 
         if (er5 + 2.0000000000000001e-09 < 0.0) {
             continue;
@@ -256,17 +243,17 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
-            const double g05_11 = c6*rc11 - rc12*s6;
-            const double g05_13 = -c6*rc12 - rc11*s6;
-            const double g05_21 = c6*rc21 - rc22*s6;
-            const double g05_23 = -c6*rc22 - rc21*s6;
-            const double g05_33 = -c6*rc32 - rc31*s6;
+            const double g05_11 = c6*r11 - r12*s6;
+            const double g05_13 = -c6*r12 - r11*s6;
+            const double g05_21 = c6*r21 - r22*s6;
+            const double g05_23 = -c6*r22 - r21*s6;
+            const double g05_33 = -c6*r32 - r31*s6;
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
-            const double g04_11 = c5*g05_11 - g05_12*s5;
+            const double g04_11 = c5*g05_11 - r13*s5;
             const double g04_12 = -g05_13;
             const double g04_14 = -104.0*g05_13 + g05_14;
-            const double g04_21 = c5*g05_21 - g05_22*s5;
+            const double g04_21 = c5*g05_21 - r23*s5;
             const double g04_22 = -g05_23;
             const double g04_24 = -104.0*g05_23 + g05_24;
             const double g04_34 = -104.0*g05_33 + g05_34;

@@ -131,8 +131,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -200,10 +208,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -342,47 +350,30 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = r11
-    rc12 = r12
-    rc13 = r13
     pcx = px - 62*r13
-    rc21 = r21
-    rc22 = r22
-    rc23 = r23
     pcy = py - 62*r23
-    rc31 = r31
-    rc32 = r32
-    rc33 = r33
     pcz = pz - 62*r33
 
-    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
-    g16_33 = rc33
-    g05_12 = rc13
-    g05_14 = pcx - 78*rc13
-    g05_22 = rc23
-    g05_24 = pcy - 78*rc23
-    g05_34 = pcz - 78*rc33
+    # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+    g05_14 = pcx - 78*r13
+    g05_24 = pcy - 78*r23
+    g05_34 = pcz - 78*r33
 
     # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t2_0 = pcx*pcx - 156*pcx*rc13 + pcy*pcy - 156*pcy*rc23 + 6084*rc13*rc13 + 6084*rc23*rc23
-    ea1 = pcy - 78*rc23
-    eb1 = -pcx + 78*rc13
-    en1 = t2_0
+    t2_0 = pcx*pcx - 156*pcx*r13 + pcy*pcy - 156*pcy*r23 + 6084*r13*r13 + 6084*r23*r23
+    ea1 = pcy - 78*r23
+    eb1 = -pcx + 78*r13
     er1 = t2_0 - 14641
 
-    free1 = en1 <= 9.999999999999999e-16
-    if (14641 > 9.999999999999999e-16) if free1 else (2e-09*en1 + er1 < 0.0):
+    free1 = t2_0 <= 9.999999999999999e-16
+    if (14641 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -394,20 +385,20 @@ def _closed_form(pose, current):
             cn1 = -121*ea1 - eb1*root1*sg1
             sn1 = ea1*root1*sg1 - 121*eb1
             th1 = atan2(sn1, cn1)
-            c1 = cn1/en1
-            s1 = sn1/en1
+            c1 = cn1/t2_0
+            s1 = sn1/t2_0
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_13 = c1*rc13 + rc23*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_21 = c1*rc21 - rc11*s1
-        g16_22 = c1*rc22 - rc12*s1
-        g16_23 = c1*rc23 - rc13*s1
+        g16_21 = c1*r21 - r11*s1
+        g16_22 = c1*r22 - r12*s1
+        g16_23 = c1*r23 - r13*s1
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         ec5 = -g16_23
-        er5 = g16_13*g16_13 + g16_33*g16_33
+        er5 = g16_13*g16_13 + r33*r33
 
         if er5 + 2e-09 < 0.0:
             continue
@@ -429,10 +420,12 @@ def _closed_form(pose, current):
                 free6 = False
                 wk6 = 1e-08
 
-            if not free6 and abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
-                if abs(dt6) > wk6:
-                    continue
-                free6 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free6:
+                hq6 = c6 * c6 + s6 * s6
+                if abs(hq6 - 1.0) > 1e-4:
+                    if abs(dt6) > wk6:
+                        continue
+                    free6 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free6:
                 th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
                 c6 = cos(th6)
@@ -440,24 +433,23 @@ def _closed_form(pose, current):
             else:
                 th6 = atan2(s6, c6)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq6 = c6 * c6 + s6 * s6
                 if abs(hq6 - 1.0) > 1e-12:
                     hn6 = 1.0 / sqrt(hq6)
                     c6 = c6 * hn6
                     s6 = s6 * hn6
 
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
-            g05_11 = c6*rc11 - rc12*s6
-            g05_13 = -c6*rc12 - rc11*s6
-            g05_21 = c6*rc21 - rc22*s6
-            g05_23 = -c6*rc22 - rc21*s6
-            g05_33 = -c6*rc32 - rc31*s6
+            g05_11 = c6*r11 - r12*s6
+            g05_13 = -c6*r12 - r11*s6
+            g05_21 = c6*r21 - r22*s6
+            g05_23 = -c6*r22 - r21*s6
+            g05_33 = -c6*r32 - r31*s6
 
             # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
-            g04_11 = c5*g05_11 - g05_12*s5
+            g04_11 = c5*g05_11 - r13*s5
             g04_12 = -g05_13
             g04_14 = -104*g05_13 + g05_14
-            g04_21 = c5*g05_21 - g05_22*s5
+            g04_21 = c5*g05_21 - r23*s5
             g04_22 = -g05_23
             g04_24 = -104*g05_23 + g05_24
             g04_34 = -104*g05_33 + g05_34
@@ -477,11 +469,11 @@ def _closed_form(pose, current):
             sp234 = (-g14_12) / dtp234
             freep234 = False
 
-            if abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4:
+            hqp234 = cp234 * cp234 + sp234 * sp234
+            if abs(hqp234 - 1.0) > 1e-4:
                 continue
             thp234 = atan2(sp234, cp234)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-12:
                 hnp234 = 1.0 / sqrt(hqp234)
                 cp234 = cp234 * hnp234
@@ -514,10 +506,12 @@ def _closed_form(pose, current):
                     free2 = False
                     wk2 = 0.0009999999999999998
 
-                if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+                if not free2:
+                    hq2 = c2 * c2 + s2 * s2
+                    if abs(hq2 - 1.0) > 1e-4:
+                        if abs(dt2) > wk2:
+                            continue
+                        free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
                 if free2:
                     th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                     c2 = cos(th2)
@@ -525,7 +519,6 @@ def _closed_form(pose, current):
                 else:
                     th2 = atan2(s2, c2)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    hq2 = c2 * c2 + s2 * s2
                     if abs(hq2 - 1.0) > 1e-12:
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2

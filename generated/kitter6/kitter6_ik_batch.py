@@ -113,44 +113,31 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-        rc11 = r11
-        rc12 = r12
-        rc13 = r13
         pcx = px - 62*r13
-        rc21 = r21
-        rc22 = r22
-        rc23 = r23
         pcy = py - 62*r23
-        rc31 = r31
-        rc32 = r32
-        rc33 = r33
         pcz = pz - 62*r33
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_33 = rc33
-        g05_12 = rc13
-        g05_14 = pcx - 78*rc13
-        g05_22 = rc23
-        g05_24 = pcy - 78*rc23
-        g05_34 = pcz - 78*rc33
+        # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+        g05_14 = pcx - 78*r13
+        g05_24 = pcy - 78*r23
+        g05_34 = pcz - 78*r33
 
         # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
-        t2_0 = pcx*pcx - 156*pcx*rc13 + pcy*pcy - 156*pcy*rc23 + 6084*rc13*rc13 + 6084*rc23*rc23
-        ea1 = pcy - 78*rc23
-        eb1 = -pcx + 78*rc13
-        en1 = t2_0
+        t2_0 = pcx*pcx - 156*pcx*r13 + pcy*pcy - 156*pcy*r23 + 6084*r13*r13 + 6084*r23*r23
+        ea1 = pcy - 78*r23
+        eb1 = -pcx + 78*r13
         er1 = t2_0 - 14641
 
-        free1 = en1 <= 9.999999999999999e-16
-        valid = valid & ~numpy.where(free1, 14641 > 9.999999999999999e-16, 2e-09*en1 + er1 < 0.0)
+        free1 = t2_0 <= 9.999999999999999e-16
+        valid = valid & ~numpy.where(free1, 14641 > 9.999999999999999e-16, er1 + 2e-09*t2_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = -121*ea1 - eb1*root1*sg1
         sn1 = ea1*root1*sg1 - 121*eb1
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t2_0
+        s1 = sn1/t2_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -158,15 +145,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_13 = c1*rc13 + rc23*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_21 = c1*rc21 - rc11*s1
-        g16_22 = c1*rc22 - rc12*s1
-        g16_23 = c1*rc23 - rc13*s1
+        g16_21 = c1*r21 - r11*s1
+        g16_22 = c1*r22 - r12*s1
+        g16_23 = c1*r23 - r13*s1
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         ec5 = -g16_23
-        er5 = g16_13*g16_13 + g16_33*g16_33
+        er5 = g16_13*g16_13 + r33*r33
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
@@ -207,17 +194,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s6 = numpy.where(free6, numpy.sin((hint[5])), s6)
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
-        g05_11 = c6*rc11 - rc12*s6
-        g05_13 = -c6*rc12 - rc11*s6
-        g05_21 = c6*rc21 - rc22*s6
-        g05_23 = -c6*rc22 - rc21*s6
-        g05_33 = -c6*rc32 - rc31*s6
+        g05_11 = c6*r11 - r12*s6
+        g05_13 = -c6*r12 - r11*s6
+        g05_21 = c6*r21 - r22*s6
+        g05_23 = -c6*r22 - r21*s6
+        g05_33 = -c6*r32 - r31*s6
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
-        g04_11 = c5*g05_11 - g05_12*s5
+        g04_11 = c5*g05_11 - r13*s5
         g04_12 = -g05_13
         g04_14 = -104*g05_13 + g05_14
-        g04_21 = c5*g05_21 - g05_22*s5
+        g04_21 = c5*g05_21 - r23*s5
         g04_22 = -g05_23
         g04_24 = -104*g05_23 + g05_24
         g04_34 = -104*g05_33 + g05_34

@@ -140,37 +140,24 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const float rc11 = r11;
-    const float rc12 = r12;
-    const float rc13 = r13;
     const float pcx = px - 62.0f*r13;
-    const float rc21 = r21;
-    const float rc22 = r22;
-    const float rc23 = r23;
     const float pcy = py - 62.0f*r23;
-    const float rc31 = r31;
-    const float rc32 = r32;
-    const float rc33 = r33;
     const float pcz = pz - 62.0f*r33;
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
-    const float g16_33 = rc33;
-    const float g05_12 = rc13;
-    const float g05_14 = pcx - 78.0f*rc13;
-    const float g05_22 = rc23;
-    const float g05_24 = pcy - 78.0f*rc23;
-    const float g05_34 = pcz - 78.0f*rc33;
+    /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float g05_14 = pcx - 78.0f*r13;
+    const float g05_24 = pcy - 78.0f*r23;
+    const float g05_34 = pcz - 78.0f*r33;
 
     /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-    const float t2_0 = pcx*pcx - 156.0f*pcx*rc13 + pcy*pcy - 156.0f*pcy*rc23 + 6084.0f*rc13*rc13 + 6084.0f*rc23*rc23;
-    const float ea1 = pcy - 78.0f*rc23;
-    const float eb1 = -pcx + 78.0f*rc13;
-    const float en1 = t2_0;
+    const float t2_0 = pcx*pcx - 156.0f*pcx*r13 + pcy*pcy - 156.0f*pcy*r23 + 6084.0f*r13*r13 + 6084.0f*r23*r23;
+    const float ea1 = pcy - 78.0f*r23;
+    const float eb1 = -pcx + 78.0f*r13;
     const float er1 = t2_0 - 14641.0f;
 
-    const int free1 = en1 <= 1e-15f;
-    if (free1 ? 14641.0f > 1e-15f : 2e-05f*en1 + er1 < 0.0f) {
+    const int free1 = t2_0 <= 1e-15f;
+    if (free1 ? 14641.0f > 1e-15f : er1 + 2e-05f*t2_0 < 0.0f) {
         if (status) *status = KITTER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -187,22 +174,22 @@ static int closed_form(const float pose[16], const float *current,
             const float cn1 = -121.0f*ea1 - eb1*root1*sg1;
             const float sn1 = ea1*root1*sg1 - 121.0f*eb1;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t2_0;
+            s1 = sn1/t2_0;
 
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_13 = c1*r13 + r23*s1;
         const float g16_14 = c1*pcx + pcy*s1;
-        const float g16_21 = c1*rc21 - rc11*s1;
-        const float g16_22 = c1*rc22 - rc12*s1;
-        const float g16_23 = c1*rc23 - rc13*s1;
+        const float g16_21 = c1*r21 - r11*s1;
+        const float g16_22 = c1*r22 - r12*s1;
+        const float g16_23 = c1*r23 - r13*s1;
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float ec5 = -g16_23;
-        const float er5 = g16_13*g16_13 + g16_33*g16_33;
+        const float er5 = g16_13*g16_13 + r33*r33;
 
         if (er5 + 2e-05f < 0.0f) {
             continue;
@@ -256,17 +243,17 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
-            const float g05_11 = c6*rc11 - rc12*s6;
-            const float g05_13 = -c6*rc12 - rc11*s6;
-            const float g05_21 = c6*rc21 - rc22*s6;
-            const float g05_23 = -c6*rc22 - rc21*s6;
-            const float g05_33 = -c6*rc32 - rc31*s6;
+            const float g05_11 = c6*r11 - r12*s6;
+            const float g05_13 = -c6*r12 - r11*s6;
+            const float g05_21 = c6*r21 - r22*s6;
+            const float g05_23 = -c6*r22 - r21*s6;
+            const float g05_33 = -c6*r32 - r31*s6;
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
-            const float g04_11 = c5*g05_11 - g05_12*s5;
+            const float g04_11 = c5*g05_11 - r13*s5;
             const float g04_12 = -g05_13;
             const float g04_14 = -104.0f*g05_13 + g05_14;
-            const float g04_21 = c5*g05_21 - g05_22*s5;
+            const float g04_21 = c5*g05_21 - r23*s5;
             const float g04_22 = -g05_23;
             const float g04_24 = -104.0f*g05_23 + g05_24;
             const float g04_34 = -104.0f*g05_33 + g05_34;

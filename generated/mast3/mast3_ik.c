@@ -97,13 +97,11 @@ static int closed_form(const double pose[16], const double *current,
     /* th1: z of A1^-1 p = A2 A3 t
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t1_0 = px*px + py*py;
-    const double ea1 = py;
     const double eb1 = -px;
-    const double en1 = t1_0;
     const double er1 = t1_0 - 14400.0;
 
-    const int free1 = en1 <= 1e-14;
-    if (free1 ? 14400.0 > 1e-14 : 2.0000000000000001e-09*en1 + er1 < 0.0) {
+    const int free1 = t1_0 <= 1e-14;
+    if (free1 ? 14400.0 > 1e-14 : er1 + 2.0000000000000001e-09*t1_0 < 0.0) {
         if (status) *status = MAST3_IK_UNREACHABLE;
         return 0;
     }
@@ -117,11 +115,11 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = 120.0*ea1 - eb1*root1*sg1;
-            const double sn1 = ea1*root1*sg1 + 120.0*eb1;
+            const double cn1 = -eb1*root1*sg1 + 120.0*py;
+            const double sn1 = 120.0*eb1 + py*root1*sg1;
             th1 = atan2(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t1_0;
+            s1 = sn1/t1_0;
 
         }
 
@@ -131,15 +129,12 @@ static int closed_form(const double pose[16], const double *current,
         /* th2: x of A2^-1 A1^-1 p = A3 t
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t3_0 = q1x*q1x + q1y*q1y;
-        const double ea2 = q1x;
-        const double eb2 = q1y;
-        const double en2 = t3_0;
 
-        const int free2 = en2 <= 1e-14;
-        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*en2 < 0.0) {
+        const int free2 = t3_0 <= 1e-14;
+        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*t3_0 < 0.0) {
             continue;
         }
-        const double root2 = en2 > 0.0 ? sqrt(en2) : 0.0;
+        const double root2 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
         const int n2 = (free2 || root2 == 0.0) ? 1 : 2;
         for (int k2 = 0; k2 < n2; ++k2) {
             const double sg2 = k2 ? -1.0 : 1.0;
@@ -149,11 +144,11 @@ static int closed_form(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                const double cn2 = -eb2*root2*sg2;
-                const double sn2 = ea2*root2*sg2;
+                const double cn2 = -q1y*root2*sg2;
+                const double sn2 = q1x*root2*sg2;
                 th2 = atan2(sn2, cn2);
-                c2 = cn2/en2;
-                s2 = sn2/en2;
+                c2 = cn2/t3_0;
+                s2 = sn2/t3_0;
 
             }
 

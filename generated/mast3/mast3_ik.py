@@ -132,8 +132,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -196,10 +204,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -301,11 +309,7 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
@@ -316,13 +320,11 @@ def _closed_form(pose, current):
     # th1: z of A1^-1 p = A2 A3 t
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t1_0 = px*px + py*py
-    ea1 = py
     eb1 = -px
-    en1 = t1_0
     er1 = t1_0 - 14400
 
-    free1 = en1 <= 1e-14
-    if (14400 > 1e-14) if free1 else (2e-09*en1 + er1 < 0.0):
+    free1 = t1_0 <= 1e-14
+    if (14400 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -331,11 +333,11 @@ def _closed_form(pose, current):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = 120*ea1 - eb1*root1*sg1
-            sn1 = ea1*root1*sg1 + 120*eb1
+            cn1 = -eb1*root1*sg1 + 120*py
+            sn1 = 120*eb1 + py*root1*sg1
             th1 = atan2(sn1, cn1)
-            c1 = cn1/en1
-            s1 = sn1/en1
+            c1 = cn1/t1_0
+            s1 = sn1/t1_0
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
@@ -343,25 +345,22 @@ def _closed_form(pose, current):
         # th2: x of A2^-1 A1^-1 p = A3 t
         # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t3_0 = q1x*q1x + q1y*q1y
-        ea2 = q1x
-        eb2 = q1y
-        en2 = t3_0
 
-        free2 = en2 <= 1e-14
-        if (0 > 1e-14) if free2 else (1.000000002*en2 < 0.0):
+        free2 = t3_0 <= 1e-14
+        if (0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
             continue
-        root2 = sqrt(en2) if en2 > 0.0 else 0.0
+        root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
                 th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
-                cn2 = -eb2*root2*sg2
-                sn2 = ea2*root2*sg2
+                cn2 = -q1y*root2*sg2
+                sn2 = q1x*root2*sg2
                 th2 = atan2(sn2, cn2)
-                c2 = cn2/en2
-                s2 = sn2/en2
+                c2 = cn2/t3_0
+                s2 = sn2/t3_0
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2z = -c2*q1y + q1x*s2

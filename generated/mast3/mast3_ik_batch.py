@@ -129,21 +129,19 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 p = A2 A3 t
         t1_0 = px*px + py*py
-        ea1 = py
         eb1 = -px
-        en1 = t1_0
         er1 = t1_0 - 14400
 
-        free1 = en1 <= 1e-14
-        valid = valid & ~numpy.where(free1, 14400 > 1e-14, 2e-09*en1 + er1 < 0.0)
+        free1 = t1_0 <= 1e-14
+        valid = valid & ~numpy.where(free1, 14400 > 1e-14, er1 + 2e-09*t1_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = 120*ea1 - eb1*root1*sg1
-        sn1 = ea1*root1*sg1 + 120*eb1
+        cn1 = -eb1*root1*sg1 + 120*py
+        sn1 = 120*eb1 + py*root1*sg1
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t1_0
+        s1 = sn1/t1_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -155,20 +153,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2: x of A2^-1 A1^-1 p = A3 t
         t3_0 = q1x*q1x + q1y*q1y
-        ea2 = q1x
-        eb2 = q1y
-        en2 = t3_0
 
-        free2 = en2 <= 1e-14
-        valid = valid & ~numpy.where(free2, 0 > 1e-14, 1.000000002*en2 < 0.0)
-        root2 = numpy.sqrt(numpy.maximum(en2, 0.0))
+        free2 = t3_0 <= 1e-14
+        valid = valid & ~numpy.where(free2, 0 > 1e-14, 1.000000002*t3_0 < 0.0)
+        root2 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg2 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg2 < 0.0) & (free2 | (root2 == 0.0)))
-        cn2 = -eb2*root2*sg2
-        sn2 = ea2*root2*sg2
+        cn2 = -q1y*root2*sg2
+        sn2 = q1x*root2*sg2
         th2 = numpy.arctan2(sn2, cn2)
-        c2 = cn2/en2
-        s2 = sn2/en2
+        c2 = cn2/t3_0
+        s2 = sn2/t3_0
         if free2.any():
             th2 = numpy.where(free2, (hint[1]), th2)
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)

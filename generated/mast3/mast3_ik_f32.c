@@ -97,13 +97,11 @@ static int closed_form(const float pose[16], const float *current,
     /* th1: z of A1^-1 p = A2 A3 t
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t1_0 = px*px + py*py;
-    const float ea1 = py;
     const float eb1 = -px;
-    const float en1 = t1_0;
     const float er1 = t1_0 - 14400.0f;
 
-    const int free1 = en1 <= 1e-14f;
-    if (free1 ? 14400.0f > 1e-14f : 2e-05f*en1 + er1 < 0.0f) {
+    const int free1 = t1_0 <= 1e-14f;
+    if (free1 ? 14400.0f > 1e-14f : er1 + 2e-05f*t1_0 < 0.0f) {
         if (status) *status = MAST3_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -117,11 +115,11 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = 120.0f*ea1 - eb1*root1*sg1;
-            const float sn1 = ea1*root1*sg1 + 120.0f*eb1;
+            const float cn1 = -eb1*root1*sg1 + 120.0f*py;
+            const float sn1 = 120.0f*eb1 + py*root1*sg1;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t1_0;
+            s1 = sn1/t1_0;
 
         }
 
@@ -131,15 +129,12 @@ static int closed_form(const float pose[16], const float *current,
         /* th2: x of A2^-1 A1^-1 p = A3 t
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t3_0 = q1x*q1x + q1y*q1y;
-        const float ea2 = q1x;
-        const float eb2 = q1y;
-        const float en2 = t3_0;
 
-        const int free2 = en2 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.00002f*en2 < 0.0f) {
+        const int free2 = t3_0 <= 1e-14f;
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*t3_0 < 0.0f) {
             continue;
         }
-        const float root2 = en2 > 0.0f ? sqrtf(en2) : 0.0f;
+        const float root2 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
         const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
         for (int k2 = 0; k2 < n2; ++k2) {
             const float sg2 = k2 ? -1.0f : 1.0f;
@@ -149,11 +144,11 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                const float cn2 = -eb2*root2*sg2;
-                const float sn2 = ea2*root2*sg2;
+                const float cn2 = -q1y*root2*sg2;
+                const float sn2 = q1x*root2*sg2;
                 th2 = atan2f(sn2, cn2);
-                c2 = cn2/en2;
-                s2 = sn2/en2;
+                c2 = cn2/t3_0;
+                s2 = sn2/t3_0;
 
             }
 

@@ -131,8 +131,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -202,10 +210,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -345,11 +353,7 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
@@ -357,39 +361,26 @@ def _closed_form(pose, current):
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     rc11 = -r13
     rc12 = -r12
-    rc13 = r11
     pcx = -px - 0.18*r11 + 0.06*r13
     rc21 = -r23
     rc22 = -r22
-    rc23 = r21
     pcy = -py - 0.18*r21 + 0.06*r23
-    rc31 = r33
-    rc32 = r32
     rc33 = -r31
     pcz = pz + 0.18*r31 - 0.06*r33 - 0.45
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 0.14*rc13
-    wy = pcy - 0.14*rc23
+    wx = pcx - 0.14*r11
+    wy = pcy - 0.14*r21
     wz = pcz - 0.14*rc33
-
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    v1z = wz
-    g16_31 = rc31
-    g16_32 = rc32
-    g16_33 = rc33
-    g16_34 = pcz
 
     # th1: y of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    ea1 = wy
     eb1 = -wx
-    en1 = t3_0
     er1 = t3_0 - 0.0144
 
-    free1 = en1 <= 1e-20
-    if (0.0144 > 1e-20) if free1 else (2e-09*en1 + er1 < 0.0):
+    free1 = t3_0 <= 1e-20
+    if (0.0144 > 1e-20) if free1 else (er1 + 2e-09*t3_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -398,35 +389,29 @@ def _closed_form(pose, current):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = 0.12*ea1 - eb1*root1*sg1
-            sn1 = ea1*root1*sg1 + 0.12*eb1
+            cn1 = -eb1*root1*sg1 + 0.12*wy
+            sn1 = 0.12*eb1 + root1*sg1*wy
             th1 = atan2(sn1, cn1)
-            c1 = cn1/en1
-            s1 = sn1/en1
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*rc11 + rc21*s1
         g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_13 = c1*r11 + r21*s1
         g16_14 = c1*pcx + pcy*s1
         g16_21 = c1*rc21 - rc11*s1
         g16_22 = c1*rc22 - rc12*s1
-        g16_23 = c1*rc23 - rc13*s1
+        g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
-        g26_31 = g16_21
-        g26_32 = g16_22
-        g26_33 = g16_23
-        g36_31 = g26_31
-        g36_32 = g26_32
-        g36_33 = g26_33
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + v1z*v1z
+        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + wz*wz
         ec3 = t5_0 - 1.5365
         er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
 
@@ -444,63 +429,63 @@ def _closed_form(pose, current):
             free2 = True
             t7_0_0 = 0.9*c3
             t7_0_1 = s3*v1x
-            t7_0_2 = 0.11*v1z
+            t7_0_2 = 0.11*wz
 
-            dt2 = -v1x*v1x + 0.3*v1x - v1z*v1z - 0.0225
+            dt2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
             if abs(dt2) > 1e-20:
-                c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*v1z + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
-                s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*v1z - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*v1z) / dt2
+                c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
+                s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2
                 free2 = False
                 wk2 = 1e-08
 
             if free2:
-                t7_1_0 = c3*g16_33
+                t7_1_0 = c3*rc33
                 t7_1_1 = 0.255*c3
                 t7_1_2 = g16_13*s3
                 t7_1_3 = g16_13*v1x
-                t7_1_4 = g16_13*v1z
+                t7_1_4 = g16_13*wz
                 t7_1_5 = 0.255*s3
                 t7_1_6 = g16_14*v1x
-                t7_1_7 = g16_14*v1z
-                t7_1_8 = g16_33*v1z
-                t7_1_9 = g16_34*v1x
-                t7_1_10 = g16_34*v1z
+                t7_1_7 = g16_14*wz
+                t7_1_8 = rc33*wz
+                t7_1_9 = pcz*v1x
+                t7_1_10 = pcz*wz
                 t7_1_11 = c3*t7_1_4
                 t7_1_12 = 1.7*c3
                 t7_1_13 = 0.238*s3
                 t7_1_14 = 1.7*s3
                 t7_1_15 = 0.2142*g16_13
-                t7_1_16 = 0.187*v1z
+                t7_1_16 = 0.187*wz
                 t7_1_17 = c3*g16_13
-                t7_1_18 = c3*v1z
+                t7_1_18 = c3*wz
                 t7_1_19 = g16_14*s3
                 t7_1_20 = 0.036*g16_24
-                t7_1_21 = g16_34*s3
+                t7_1_21 = pcz*s3
                 t7_1_22 = s3*v1x
                 t7_1_23 = 0.0336*g16_23
-                t7_1_24 = 1.53*g16_34
+                t7_1_24 = 1.53*pcz
                 t7_1_25 = c3*s3
                 t7_1_26 = 0.187*v1x
                 t7_1_27 = 0.042*s3
                 t7_1_28 = g16_23*g16_24
-                t7_1_29 = g16_33*s3
-                t7_1_30 = 0.042*g16_34
+                t7_1_29 = rc33*s3
+                t7_1_30 = 0.042*pcz
                 t7_1_31 = s3*s3
                 t7_1_32 = g16_13*g16_13
                 t7_1_33 = 1.53*g16_14
                 t7_1_34 = g16_14*g16_14
                 t7_1_35 = g16_23*g16_23
                 t7_1_36 = g16_24*g16_24
-                t7_1_37 = g16_33*g16_33
+                t7_1_37 = rc33*rc33
                 t7_1_38 = 0.187*t7_1_31
-                t7_1_39 = g16_34*g16_34
+                t7_1_39 = pcz*pcz
                 t7_1_40 = 0.0196*t7_1_18
                 t7_1_41 = 0.0196*t7_1_22
-                t7_1_42 = 0.2142*g16_33
+                t7_1_42 = 0.2142*rc33
                 t7_1_43 = c3*g16_14
-                t7_1_44 = c3*g16_34
+                t7_1_44 = c3*pcz
                 t7_1_45 = c3*v1x
-                t7_1_46 = s3*v1z
+                t7_1_46 = s3*wz
                 t7_1_47 = 0.042*c3
                 t7_1_48 = 0.24*g16_24
                 t7_1_49 = 0.00294*c3
@@ -509,31 +494,31 @@ def _closed_form(pose, current):
                 t7_1_52 = 0.0196*t7_1_45
                 t7_1_53 = 0.0196*t7_1_46
 
-                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - 0.0308*g16_33*v1x + 0.00462*g16_33 - g16_34*t7_1_1 - 0.033*g16_34 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*v1z - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*v1z + 0.0405
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz - 0.0308*rc33*v1x + 0.00462*rc33 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
                 if abs(dt2) > 1e-19:
-                    c2 = (0.28*c3*g16_13*g16_14*v1z + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*v1z + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*v1z + 0.24*c3*g16_24*v1z + 0.28*c3*g16_33*g16_34*v1z + 0.2142*c3*g16_33*s3 + 1.4692*c3*g16_34 + 1.53*c3*s3*v1z - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x + 0.28*g16_33*g16_34*s3*v1x + 0.02772*g16_33*s3 + 0.02618*g16_33*t7_1_31 - 0.05236*g16_33 - g16_34*t7_1_38 + 0.374*g16_34 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*v1z - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
-                    s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*v1z + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
+                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz + 0.28*c3*pcz*rc33*wz + 1.4692*c3*pcz + 0.2142*c3*rc33*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x + 0.28*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374*pcz + 0.02772*rc33*s3 + 0.02618*rc33*t7_1_31 - 0.05236*rc33 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
+                    s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     free2 = False
                     wk2 = 1e-07
 
             if free2:
-                t7_2_0 = g16_11*g16_32
-                t7_2_1 = g16_12*g16_31
+                t7_2_0 = g16_11*r32
+                t7_2_1 = g16_12*r33
                 t7_2_2 = 0.102*g16_22
                 t7_2_3 = 0.108*c3
                 t7_2_4 = g16_11*g16_22
-                t7_2_5 = g16_22*g16_31
+                t7_2_5 = g16_22*r33
                 t7_2_6 = 0.0132*t7_2_5
                 t7_2_7 = 0.0132*t7_2_4
                 t7_2_8 = 0.85*g16_24
-                t7_2_9 = g16_21*g16_32
+                t7_2_9 = g16_21*r32
                 t7_2_10 = 0.108*s3
                 t7_2_11 = g16_14*t7_2_0
                 t7_2_12 = 0.11*c3
                 t7_2_13 = 0.9*c3
                 t7_2_14 = g16_12*g16_21
                 t7_2_15 = g16_24*t7_2_14
-                t7_2_16 = g16_34*t7_2_1
+                t7_2_16 = pcz*t7_2_1
                 t7_2_17 = g16_24*t7_2_12
                 t7_2_18 = 0.9*s3
                 t7_2_19 = g16_14*t7_2_1
@@ -541,24 +526,26 @@ def _closed_form(pose, current):
                 t7_2_21 = g16_24*t7_2_18
                 t7_2_22 = 0.135*c3
                 t7_2_23 = 0.0132*g16_21
-                t7_2_24 = 0.85*g16_34
+                t7_2_24 = 0.85*pcz
                 t7_2_25 = 0.0165*s3
                 t7_2_26 = g16_24*t7_2_4
-                t7_2_27 = g16_34*t7_2_0
+                t7_2_27 = pcz*t7_2_0
                 t7_2_28 = g16_24*t7_2_9
                 t7_2_29 = g16_24*t7_2_5
 
-                dt2 = 0.187*c3*g16_12*g16_31 - 0.187*c3*t7_2_0 + 1.53*g16_11*g16_32*s3 + 1.5446*g16_12*g16_31 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0
+                dt2 = 0.187*c3*g16_12*r33 - 0.187*c3*t7_2_0 + 1.53*g16_11*r32*s3 + 1.5446*g16_12*r33 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0
                 if abs(dt2) > 1e-20:
-                    c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*g16_32*g16_34 + 0.0165*c3*g16_11*g16_32 + 0.11*c3*g16_12*g16_14*g16_31 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*g16_32 + 0.11*c3*g16_22*g16_24*g16_31 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*g16_32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*g16_32*g16_34*s3 + 0.1275*g16_11*g16_32 + 0.85*g16_12*g16_14*g16_31 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*g16_31*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*g16_32*s3 + 0.102*g16_21*g16_32 + 0.85*g16_22*g16_24*g16_31 + 0.108*g16_22*g16_31*s3 - g16_31*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
-                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - g16_32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
+                    c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
+                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
                     free2 = False
                     wk2 = 1e-08
 
-            if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-                if abs(dt2) > wk2:
-                    continue
-                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free2:
                 th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
@@ -566,19 +553,18 @@ def _closed_form(pose, current):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-12:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 - g16_31*s2
-            g26_12 = c2*g16_12 - g16_32*s2
-            g26_13 = c2*g16_13 - g16_33*s2
-            g26_21 = -c2*g16_31 - g16_11*s2
-            g26_22 = -c2*g16_32 - g16_12*s2
-            g26_23 = -c2*g16_33 - g16_13*s2
+            g26_11 = c2*g16_11 - r33*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - rc33*s2
+            g26_21 = -c2*r33 - g16_11*s2
+            g26_22 = -c2*r32 - g16_12*s2
+            g26_23 = -c2*rc33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -590,15 +576,14 @@ def _closed_form(pose, current):
 
             # th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            ec5 = g36_23
-            er5 = g36_13*g36_13 + g36_33*g36_33
+            er5 = g16_23*g16_23 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
             sg5 = 1.0
-            cn5 = ec5
+            cn5 = g36_23
             sn5 = root5*sg5
             th5 = atan2(sn5, cn5)
             c5 = cn5
@@ -610,14 +595,16 @@ def _closed_form(pose, current):
             dt4 = s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
-                s4 = (g36_33*s5) / dt4
+                s4 = (g16_23*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
-            if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-                if abs(dt4) > wk4:
-                    continue
-                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free4:
                 th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
@@ -625,21 +612,18 @@ def _closed_form(pose, current):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-12:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 - g36_31*s4
-            g46_12 = c4*g36_12 - g36_32*s4
-            g46_31 = g36_21
-            g46_32 = g36_22
+            g46_11 = c4*g36_11 - g16_21*s4
+            g46_12 = c4*g36_12 - g16_22*s4
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_31*s5
-            g56_12 = c5*g46_12 + g46_32*s5
+            g56_11 = c5*g46_11 + g36_21*s5
+            g56_12 = c5*g46_12 + g36_22*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free6 = True
@@ -649,11 +633,11 @@ def _closed_form(pose, current):
             s6 = (-g56_12) / dt6
             free6 = False
 
-            if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-12:
                 hn6 = 1.0 / sqrt(hq6)
                 c6 = c6 * hn6

@@ -141,39 +141,26 @@ static int closed_form(const float pose[16], const float *current,
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = -r13;
     const float rc12 = -r12;
-    const float rc13 = r11;
     const float pcx = -px - 0.18f*r11 + 0.06f*r13;
     const float rc21 = -r23;
     const float rc22 = -r22;
-    const float rc23 = r21;
     const float pcy = -py - 0.18f*r21 + 0.06f*r23;
-    const float rc31 = r33;
-    const float rc32 = r32;
     const float rc33 = -r31;
     const float pcz = pz + 0.18f*r31 - 0.06f*r33 - 0.45f;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const float wx = pcx - 0.14f*rc13;
-    const float wy = pcy - 0.14f*rc23;
+    const float wx = pcx - 0.14f*r11;
+    const float wy = pcy - 0.14f*r21;
     const float wz = pcz - 0.14f*rc33;
-
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-    const float v1z = wz;
-    const float g16_31 = rc31;
-    const float g16_32 = rc32;
-    const float g16_33 = rc33;
-    const float g16_34 = pcz;
 
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
-    const float ea1 = wy;
     const float eb1 = -wx;
-    const float en1 = t3_0;
     const float er1 = t3_0 - 0.0144f;
 
-    const int free1 = en1 <= 1e-20f;
-    if (free1 ? 0.0144f > 1e-20f : 2e-05f*en1 + er1 < 0.0f) {
+    const int free1 = t3_0 <= 1e-20f;
+    if (free1 ? 0.0144f > 1e-20f : er1 + 2e-05f*t3_0 < 0.0f) {
         if (status) *status = PACKER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -187,11 +174,11 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = 0.12f*ea1 - eb1*root1*sg1;
-            const float sn1 = ea1*root1*sg1 + 0.12f*eb1;
+            const float cn1 = -eb1*root1*sg1 + 0.12f*wy;
+            const float sn1 = 0.12f*eb1 + root1*sg1*wy;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
 
         }
 
@@ -199,25 +186,19 @@ static int closed_form(const float pose[16], const float *current,
         const float v1x = c1*wx + s1*wy;
         const float v1y = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = c1*rc11 + rc21*s1;
         const float g16_12 = c1*rc12 + rc22*s1;
-        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_13 = c1*r11 + r21*s1;
         const float g16_14 = c1*pcx + pcy*s1;
         const float g16_21 = c1*rc21 - rc11*s1;
         const float g16_22 = c1*rc22 - rc12*s1;
-        const float g16_23 = c1*rc23 - rc13*s1;
+        const float g16_23 = c1*r21 - r11*s1;
         const float g16_24 = c1*pcy - pcx*s1;
-        const float g26_31 = g16_21;
-        const float g26_32 = g16_22;
-        const float g26_33 = g16_23;
-        const float g36_31 = g26_31;
-        const float g36_32 = g26_32;
-        const float g36_33 = g26_33;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t5_0 = v1x*v1x - 0.3f*v1x + v1y*v1y + v1z*v1z;
+        const float t5_0 = v1x*v1x - 0.3f*v1x + v1y*v1y + wz*wz;
         const float ec3 = t5_0 - 1.5365f;
         const float er3 = (3.07788542f - t5_0)*(t5_0 + 0.00488541579f);
 
@@ -241,64 +222,64 @@ static int closed_form(const float pose[16], const float *current,
             {
                 const float t7_0_0 = 0.9f*c3;
                 const float t7_0_1 = s3*v1x;
-                const float t7_0_2 = 0.11f*v1z;
+                const float t7_0_2 = 0.11f*wz;
 
-                dt2 = -v1x*v1x + 0.3f*v1x - v1z*v1z - 0.0225f;
+                dt2 = -v1x*v1x + 0.3f*v1x - wz*wz - 0.0225f;
                 if (fabsf(dt2) > 1e-20f) {
-                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t7_0_2 - 0.135f*s3 + t7_0_0*v1z + 0.9f*t7_0_1 - 0.85f*v1x + 0.1275f) / dt2;
-                    s2 = (c3*t7_0_2 - 0.135f*c3 - 0.9f*s3*v1z - 0.0165f*s3 + t7_0_0*v1x + 0.11f*t7_0_1 + 0.85f*v1z) / dt2;
+                    c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t7_0_2 - 0.135f*s3 + t7_0_0*wz + 0.9f*t7_0_1 - 0.85f*v1x + 0.1275f) / dt2;
+                    s2 = (c3*t7_0_2 - 0.135f*c3 - 0.9f*s3*wz - 0.0165f*s3 + t7_0_0*v1x + 0.11f*t7_0_1 + 0.85f*wz) / dt2;
                     free2 = 0;
                     wk2 = 1e-08f;
                 }
             }
             if (free2) {
-                const float t7_1_0 = c3*g16_33;
+                const float t7_1_0 = c3*rc33;
                 const float t7_1_1 = 0.255f*c3;
                 const float t7_1_2 = g16_13*s3;
                 const float t7_1_3 = g16_13*v1x;
-                const float t7_1_4 = g16_13*v1z;
+                const float t7_1_4 = g16_13*wz;
                 const float t7_1_5 = 0.255f*s3;
                 const float t7_1_6 = g16_14*v1x;
-                const float t7_1_7 = g16_14*v1z;
-                const float t7_1_8 = g16_33*v1z;
-                const float t7_1_9 = g16_34*v1x;
-                const float t7_1_10 = g16_34*v1z;
+                const float t7_1_7 = g16_14*wz;
+                const float t7_1_8 = rc33*wz;
+                const float t7_1_9 = pcz*v1x;
+                const float t7_1_10 = pcz*wz;
                 const float t7_1_11 = c3*t7_1_4;
                 const float t7_1_12 = 1.7f*c3;
                 const float t7_1_13 = 0.238f*s3;
                 const float t7_1_14 = 1.7f*s3;
                 const float t7_1_15 = 0.2142f*g16_13;
-                const float t7_1_16 = 0.187f*v1z;
+                const float t7_1_16 = 0.187f*wz;
                 const float t7_1_17 = c3*g16_13;
-                const float t7_1_18 = c3*v1z;
+                const float t7_1_18 = c3*wz;
                 const float t7_1_19 = g16_14*s3;
                 const float t7_1_20 = 0.036f*g16_24;
-                const float t7_1_21 = g16_34*s3;
+                const float t7_1_21 = pcz*s3;
                 const float t7_1_22 = s3*v1x;
                 const float t7_1_23 = 0.0336f*g16_23;
-                const float t7_1_24 = 1.53f*g16_34;
+                const float t7_1_24 = 1.53f*pcz;
                 const float t7_1_25 = c3*s3;
                 const float t7_1_26 = 0.187f*v1x;
                 const float t7_1_27 = 0.042f*s3;
                 const float t7_1_28 = g16_23*g16_24;
-                const float t7_1_29 = g16_33*s3;
-                const float t7_1_30 = 0.042f*g16_34;
+                const float t7_1_29 = rc33*s3;
+                const float t7_1_30 = 0.042f*pcz;
                 const float t7_1_31 = s3*s3;
                 const float t7_1_32 = g16_13*g16_13;
                 const float t7_1_33 = 1.53f*g16_14;
                 const float t7_1_34 = g16_14*g16_14;
                 const float t7_1_35 = g16_23*g16_23;
                 const float t7_1_36 = g16_24*g16_24;
-                const float t7_1_37 = g16_33*g16_33;
+                const float t7_1_37 = rc33*rc33;
                 const float t7_1_38 = 0.187f*t7_1_31;
-                const float t7_1_39 = g16_34*g16_34;
+                const float t7_1_39 = pcz*pcz;
                 const float t7_1_40 = 0.0196f*t7_1_18;
                 const float t7_1_41 = 0.0196f*t7_1_22;
-                const float t7_1_42 = 0.2142f*g16_33;
+                const float t7_1_42 = 0.2142f*rc33;
                 const float t7_1_43 = c3*g16_14;
-                const float t7_1_44 = c3*g16_34;
+                const float t7_1_44 = c3*pcz;
                 const float t7_1_45 = c3*v1x;
-                const float t7_1_46 = s3*v1z;
+                const float t7_1_46 = s3*wz;
                 const float t7_1_47 = 0.042f*c3;
                 const float t7_1_48 = 0.24f*g16_24;
                 const float t7_1_49 = 0.00294f*c3;
@@ -307,32 +288,32 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_52 = 0.0196f*t7_1_45;
                 const float t7_1_53 = 0.0196f*t7_1_46;
 
-                dt2 = 0.0378f*g16_13 + g16_14*t7_1_5 - 0.27f*g16_14 - 0.0308f*g16_33*v1x + 0.00462f*g16_33 - g16_34*t7_1_1 - 0.033f*g16_34 - 0.03825f*s3 - 0.238f*t7_1_0*v1x + 0.0357f*t7_1_0 + t7_1_1*v1z - t7_1_10*t7_1_14 + 1.8f*t7_1_10 + 0.238f*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357f*t7_1_2 - 0.252f*t7_1_3 + 0.0308f*t7_1_4 + t7_1_5*v1x + 1.8f*t7_1_6 - 0.22f*t7_1_7 - 0.252f*t7_1_8 + 0.22f*t7_1_9 - 0.27f*v1x + 0.033f*v1z + 0.0405f;
+                dt2 = 0.0378f*g16_13 + g16_14*t7_1_5 - 0.27f*g16_14 - pcz*t7_1_1 - 0.033f*pcz - 0.0308f*rc33*v1x + 0.00462f*rc33 - 0.03825f*s3 - 0.238f*t7_1_0*v1x + 0.0357f*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8f*t7_1_10 + 0.238f*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357f*t7_1_2 - 0.252f*t7_1_3 + 0.0308f*t7_1_4 + t7_1_5*v1x + 1.8f*t7_1_6 - 0.22f*t7_1_7 - 0.252f*t7_1_8 + 0.22f*t7_1_9 - 0.27f*v1x + 0.033f*wz + 0.0405f;
                 if (fabsf(dt2) > 1e-19f) {
-                    c2 = (0.28f*c3*g16_13*g16_14*v1z + 0.187f*c3*g16_14*s3 + 0.3f*c3*g16_14*v1z + 0.198f*c3*g16_14 + 0.28f*c3*g16_23*g16_24*v1z + 0.24f*c3*g16_24*v1z + 0.28f*c3*g16_33*g16_34*v1z + 0.2142f*c3*g16_33*s3 + 1.4692f*c3*g16_34 + 1.53f*c3*s3*v1z - 0.02618f*c3*t7_1_2 - 0.0297f*c3 + 0.28f*g16_13*g16_14*s3*v1x + 0.002912f*g16_13*s3 + 0.2142f*g16_13*t7_1_31 + 0.3f*g16_14*s3*v1x - 0.042f*g16_14*t7_1_2 + 1.53f*g16_14 + 0.28f*g16_23*g16_24*s3*v1x + 0.00504f*g16_23*s3 + 0.24f*g16_24*s3*v1x + 0.28f*g16_33*g16_34*s3*v1x + 0.02772f*g16_33*s3 + 0.02618f*g16_33*t7_1_31 - 0.05236f*g16_33 - g16_34*t7_1_38 + 0.374f*g16_34 - s3*t7_1_20 + 0.00294f*s3*t7_1_32 + 0.15f*s3*t7_1_34 + 0.00294f*s3*t7_1_35 + 0.15f*s3*t7_1_36 + 0.00294f*s3*t7_1_37 + 0.15f*s3*t7_1_39 + 0.233595f*s3 - 0.205688f*t7_1_0 - 0.042f*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772f*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815f*t7_1_18 - 0.0208f*t7_1_19 - 0.198f*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815f*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53f*t7_1_31*v1x + 0.187f*t7_1_31*v1z - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295f) / dt2;
-                    s2 = (0.00504f*c3*g16_23 - c3*t7_1_20 + 1.53f*c3*t7_1_22 + 0.3f*c3*t7_1_6 + 0.016845f*c3 + 0.02618f*g16_13*t7_1_31 - 0.042f*g16_13*t7_1_43 - 0.05236f*g16_13 - g16_14*t7_1_38 + 0.374f*g16_14 + 0.02618f*s3*t7_1_0 - 0.187f*s3*t7_1_44 - 0.3f*s3*t7_1_7 + 0.0297f*s3 - t7_1_0*t7_1_30 + 0.28f*t7_1_0*t7_1_9 + 0.02772f*t7_1_0 - 0.28f*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28f*t7_1_17*t7_1_6 - 0.199388f*t7_1_17 - 0.28f*t7_1_19*t7_1_4 - 0.198f*t7_1_19 + 0.02772f*t7_1_2 - 0.0242f*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388f*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53f*t7_1_31*v1z + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242f*t7_1_43 - 0.198f*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815f*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815f*t7_1_46 - 0.02805f) / dt2;
+                    c2 = (0.28f*c3*g16_13*g16_14*wz + 0.187f*c3*g16_14*s3 + 0.3f*c3*g16_14*wz + 0.198f*c3*g16_14 + 0.28f*c3*g16_23*g16_24*wz + 0.24f*c3*g16_24*wz + 0.28f*c3*pcz*rc33*wz + 1.4692f*c3*pcz + 0.2142f*c3*rc33*s3 + 1.53f*c3*s3*wz - 0.02618f*c3*t7_1_2 - 0.0297f*c3 + 0.28f*g16_13*g16_14*s3*v1x + 0.002912f*g16_13*s3 + 0.2142f*g16_13*t7_1_31 + 0.3f*g16_14*s3*v1x - 0.042f*g16_14*t7_1_2 + 1.53f*g16_14 + 0.28f*g16_23*g16_24*s3*v1x + 0.00504f*g16_23*s3 + 0.24f*g16_24*s3*v1x + 0.28f*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374f*pcz + 0.02772f*rc33*s3 + 0.02618f*rc33*t7_1_31 - 0.05236f*rc33 - s3*t7_1_20 + 0.00294f*s3*t7_1_32 + 0.15f*s3*t7_1_34 + 0.00294f*s3*t7_1_35 + 0.15f*s3*t7_1_36 + 0.00294f*s3*t7_1_37 + 0.15f*s3*t7_1_39 + 0.233595f*s3 - 0.205688f*t7_1_0 - 0.042f*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772f*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815f*t7_1_18 - 0.0208f*t7_1_19 - 0.198f*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815f*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53f*t7_1_31*v1x + 0.187f*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295f) / dt2;
+                    s2 = (0.00504f*c3*g16_23 - c3*t7_1_20 + 1.53f*c3*t7_1_22 + 0.3f*c3*t7_1_6 + 0.016845f*c3 + 0.02618f*g16_13*t7_1_31 - 0.042f*g16_13*t7_1_43 - 0.05236f*g16_13 - g16_14*t7_1_38 + 0.374f*g16_14 + 0.02618f*s3*t7_1_0 - 0.187f*s3*t7_1_44 - 0.3f*s3*t7_1_7 + 0.0297f*s3 - t7_1_0*t7_1_30 + 0.28f*t7_1_0*t7_1_9 + 0.02772f*t7_1_0 - 0.28f*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28f*t7_1_17*t7_1_6 - 0.199388f*t7_1_17 - 0.28f*t7_1_19*t7_1_4 - 0.198f*t7_1_19 + 0.02772f*t7_1_2 - 0.0242f*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388f*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53f*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242f*t7_1_43 - 0.198f*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815f*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815f*t7_1_46 - 0.02805f) / dt2;
                     free2 = 0;
                     wk2 = 1e-07f;
                 }
             }
             if (free2) {
-                const float t7_2_0 = g16_11*g16_32;
-                const float t7_2_1 = g16_12*g16_31;
+                const float t7_2_0 = g16_11*r32;
+                const float t7_2_1 = g16_12*r33;
                 const float t7_2_2 = 0.102f*g16_22;
                 const float t7_2_3 = 0.108f*c3;
                 const float t7_2_4 = g16_11*g16_22;
-                const float t7_2_5 = g16_22*g16_31;
+                const float t7_2_5 = g16_22*r33;
                 const float t7_2_6 = 0.0132f*t7_2_5;
                 const float t7_2_7 = 0.0132f*t7_2_4;
                 const float t7_2_8 = 0.85f*g16_24;
-                const float t7_2_9 = g16_21*g16_32;
+                const float t7_2_9 = g16_21*r32;
                 const float t7_2_10 = 0.108f*s3;
                 const float t7_2_11 = g16_14*t7_2_0;
                 const float t7_2_12 = 0.11f*c3;
                 const float t7_2_13 = 0.9f*c3;
                 const float t7_2_14 = g16_12*g16_21;
                 const float t7_2_15 = g16_24*t7_2_14;
-                const float t7_2_16 = g16_34*t7_2_1;
+                const float t7_2_16 = pcz*t7_2_1;
                 const float t7_2_17 = g16_24*t7_2_12;
                 const float t7_2_18 = 0.9f*s3;
                 const float t7_2_19 = g16_14*t7_2_1;
@@ -340,17 +321,17 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_2_21 = g16_24*t7_2_18;
                 const float t7_2_22 = 0.135f*c3;
                 const float t7_2_23 = 0.0132f*g16_21;
-                const float t7_2_24 = 0.85f*g16_34;
+                const float t7_2_24 = 0.85f*pcz;
                 const float t7_2_25 = 0.0165f*s3;
                 const float t7_2_26 = g16_24*t7_2_4;
-                const float t7_2_27 = g16_34*t7_2_0;
+                const float t7_2_27 = pcz*t7_2_0;
                 const float t7_2_28 = g16_24*t7_2_9;
                 const float t7_2_29 = g16_24*t7_2_5;
 
-                dt2 = 0.187f*c3*g16_12*g16_31 - 0.187f*c3*t7_2_0 + 1.53f*g16_11*g16_32*s3 + 1.5446f*g16_12*g16_31 - 1.53f*s3*t7_2_1 - 1.5446f*t7_2_0;
+                dt2 = 0.187f*c3*g16_12*r33 - 0.187f*c3*t7_2_0 + 1.53f*g16_11*r32*s3 + 1.5446f*g16_12*r33 - 1.53f*s3*t7_2_1 - 1.5446f*t7_2_0;
                 if (fabsf(dt2) > 1e-20f) {
-                    c2 = (0.9f*c3*g16_11*g16_22*g16_24 + 0.9f*c3*g16_11*g16_32*g16_34 + 0.0165f*c3*g16_11*g16_32 + 0.11f*c3*g16_12*g16_14*g16_31 + 0.108f*c3*g16_12*g16_21 + 0.0132f*c3*g16_21*g16_32 + 0.11f*c3*g16_22*g16_24*g16_31 - 0.0165f*c3*t7_2_1 - c3*t7_2_6 + 0.9f*g16_11*g16_14*g16_32*s3 + 0.11f*g16_11*g16_22*g16_24*s3 + 0.11f*g16_11*g16_32*g16_34*s3 + 0.1275f*g16_11*g16_32 + 0.85f*g16_12*g16_14*g16_31 + 0.0132f*g16_12*g16_21*s3 + 0.135f*g16_12*g16_31*s3 - 0.85f*g16_14*t7_2_0 + 0.9f*g16_21*g16_24*g16_32*s3 + 0.102f*g16_21*g16_32 + 0.85f*g16_22*g16_24*g16_31 + 0.108f*g16_22*g16_31*s3 - g16_31*t7_2_2 - 0.135f*s3*t7_2_0 - s3*t7_2_7 - 0.1275f*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2;
-                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102f*g16_12*g16_21 - g16_32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2;
+                    c2 = (0.9f*c3*g16_11*g16_22*g16_24 + 0.9f*c3*g16_11*pcz*r32 + 0.0165f*c3*g16_11*r32 + 0.11f*c3*g16_12*g16_14*r33 + 0.108f*c3*g16_12*g16_21 + 0.0132f*c3*g16_21*r32 + 0.11f*c3*g16_22*g16_24*r33 - 0.0165f*c3*t7_2_1 - c3*t7_2_6 + 0.9f*g16_11*g16_14*r32*s3 + 0.11f*g16_11*g16_22*g16_24*s3 + 0.11f*g16_11*pcz*r32*s3 + 0.1275f*g16_11*r32 + 0.85f*g16_12*g16_14*r33 + 0.0132f*g16_12*g16_21*s3 + 0.135f*g16_12*r33*s3 - 0.85f*g16_14*t7_2_0 + 0.9f*g16_21*g16_24*r32*s3 + 0.102f*g16_21*r32 + 0.85f*g16_22*g16_24*r33 + 0.108f*g16_22*r33*s3 - r33*t7_2_2 - 0.135f*s3*t7_2_0 - s3*t7_2_7 - 0.1275f*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2;
+                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102f*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2;
                     free2 = 0;
                     wk2 = 1e-08f;
                 }
@@ -380,12 +361,12 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const float g26_11 = c2*g16_11 - g16_31*s2;
-            const float g26_12 = c2*g16_12 - g16_32*s2;
-            const float g26_13 = c2*g16_13 - g16_33*s2;
-            const float g26_21 = -c2*g16_31 - g16_11*s2;
-            const float g26_22 = -c2*g16_32 - g16_12*s2;
-            const float g26_23 = -c2*g16_33 - g16_13*s2;
+            const float g26_11 = c2*g16_11 - r33*s2;
+            const float g26_12 = c2*g16_12 - r32*s2;
+            const float g26_13 = c2*g16_13 - rc33*s2;
+            const float g26_21 = -c2*r33 - g16_11*s2;
+            const float g26_22 = -c2*r32 - g16_12*s2;
+            const float g26_23 = -c2*rc33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
@@ -397,8 +378,7 @@ static int closed_form(const float pose[16], const float *current,
 
             /* th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const float ec5 = g36_23;
-            const float er5 = g36_13*g36_13 + g36_33*g36_33;
+            const float er5 = g16_23*g16_23 + g36_13*g36_13;
 
             if (er5 + 2e-05f < 0.0f) {
                 continue;
@@ -407,7 +387,7 @@ static int closed_form(const float pose[16], const float *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, c5, s5;
-            const float cn5 = ec5;
+            const float cn5 = g36_23;
             const float sn5 = root5*sg5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
@@ -421,7 +401,7 @@ static int closed_form(const float pose[16], const float *current,
                 dt4 = s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
                     c4 = (-g36_13*s5) / dt4;
-                    s4 = (g36_33*s5) / dt4;
+                    s4 = (g16_23*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
@@ -451,14 +431,12 @@ static int closed_form(const float pose[16], const float *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g46_11 = c4*g36_11 - g36_31*s4;
-            const float g46_12 = c4*g36_12 - g36_32*s4;
-            const float g46_31 = g36_21;
-            const float g46_32 = g36_22;
+            const float g46_11 = c4*g36_11 - g16_21*s4;
+            const float g46_12 = c4*g36_12 - g16_22*s4;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 + g46_31*s5;
-            const float g56_12 = c5*g46_12 + g46_32*s5;
+            const float g56_11 = c5*g46_11 + g36_21*s5;
+            const float g56_12 = c5*g46_12 + g36_22*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;

@@ -144,42 +144,37 @@ static int closed_form(const double pose[16], const double *current,
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const double rc11 = -r11;
     const double rc12 = -r12;
-    const double rc13 = r13;
     const double pcx = px - 0.02*r11 - 0.59999999999999998;
     const double rc21 = -r21;
     const double rc22 = -r22;
-    const double rc23 = r23;
     const double pcy = py - 0.02*r21 - 0.25;
     const double rc31 = -r31;
     const double rc32 = -r32;
-    const double rc33 = r33;
     const double pcz = pz - 0.02*r31;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const double wx = pcx - 0.16500000000000001*rc13;
-    const double wy = pcy - 0.16500000000000001*rc23;
-    const double wz = pcz - 0.16500000000000001*rc33;
+    const double wx = pcx - 0.16500000000000001*r13;
+    const double wy = pcy - 0.16500000000000001*r23;
+    const double wz = pcz - 0.16500000000000001*r33;
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
     const double g16_21 = -rc31;
     const double g16_22 = -rc32;
-    const double g16_23 = -rc33;
+    const double g16_23 = -r33;
     const double g16_24 = 0.28999999999999998 - pcz;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
-    const double ea1 = wy;
     const double eb1 = -wx;
-    const double en1 = t3_0;
 
-    const int free1 = en1 <= 9.9999999999999991e-22;
-    if (free1 ? 0.0 > 9.9999999999999991e-22 : 1.0000000019999999*en1 < 0.0) {
+    const int free1 = t3_0 <= 9.9999999999999991e-22;
+    if (free1 ? 0.0 > 9.9999999999999991e-22 : 1.0000000019999999*t3_0 < 0.0) {
         if (status) *status = SEEDLING6_IK_UNREACHABLE;
         return 0;
     }
-    const double root1 = en1 > 0.0 ? sqrt(en1) : 0.0;
+    const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
     const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
     for (int k1 = 0; k1 < n1; ++k1) {
         const double sg1 = k1 ? -1.0 : 1.0;
@@ -190,10 +185,10 @@ static int closed_form(const double pose[16], const double *current,
             s1 = sin(th1);
         } else {
             const double cn1 = -eb1*root1*sg1;
-            const double sn1 = ea1*root1*sg1;
+            const double sn1 = root1*sg1*wy;
             th1 = atan2(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
 
         }
 
@@ -201,21 +196,18 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*rc11 + rc21*s1;
         const double g16_12 = c1*rc12 + rc22*s1;
-        const double g16_13 = c1*rc13 + rc23*s1;
+        const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
         const double g16_31 = c1*rc21 - rc11*s1;
         const double g16_32 = c1*rc22 - rc12*s1;
-        const double g16_33 = c1*rc23 - rc13*s1;
+        const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
-        const double g26_31 = g16_31;
-        const double g26_32 = g16_32;
-        const double g26_33 = g16_33;
-        const double g36_21 = -g26_31;
-        const double g36_22 = -g26_32;
-        const double g36_23 = -g26_33;
+        const double g36_21 = -g16_31;
+        const double g36_22 = -g16_32;
+        const double g36_23 = -g16_33;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -356,7 +348,6 @@ static int closed_form(const double pose[16], const double *current,
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const double ec5 = g36_33;
             const double er5 = g36_13*g36_13 + g36_23*g36_23;
 
             if (er5 + 2.0000000000000001e-09 < 0.0) {
@@ -366,7 +357,7 @@ static int closed_form(const double pose[16], const double *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const double sg5 = 1.0;
             double th5, c5, s5;
-            const double cn5 = ec5;
+            const double cn5 = g36_33;
             const double sn5 = root5*sg5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
@@ -412,12 +403,10 @@ static int closed_form(const double pose[16], const double *current,
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const double g46_11 = c4*g36_11 + g36_21*s4;
             const double g46_12 = c4*g36_12 + g36_22*s4;
-            const double g46_21 = g36_31;
-            const double g46_22 = g36_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 + g46_21*s5;
-            const double g56_12 = c5*g46_12 + g46_22*s5;
+            const double g56_11 = c5*g46_11 + g36_31*s5;
+            const double g56_12 = c5*g46_12 + g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;

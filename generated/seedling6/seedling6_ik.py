@@ -131,8 +131,16 @@ def _readings(current):
         return None
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
+_ROWS = (list, tuple)
+_FLOATS = {float}
+
 def _pose_rows(pose):
-    """The pose's first three rows as tuples of floats; ValueError unless the shape and types are right."""
+    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
+        r0, r1, r2 = pose[0], pose[1], pose[2]
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
+                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
+            return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -201,10 +209,10 @@ def _solve(pose, current, limits, check):
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
     current = _check(limits, current)
-    for row in pose:
-        for v in row:
-            if not -LARGEST_ENTRY <= v <= LARGEST_ENTRY:   # NaN, infinite, or its square overflows
-                return [], "invalid_input"
+    r0, r1, r2 = pose
+    total = sum(r0) + sum(r1) + sum(r2)
+    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+        return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
@@ -345,11 +353,7 @@ def forward(joints):
 
 def _closed_form(pose, current):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
-    if hasattr(pose, "tolist"):
-        pose = pose.tolist()
-    r11, r12, r13, px = pose[0][0], pose[0][1], pose[0][2], pose[0][3]
-    r21, r22, r23, py = pose[1][0], pose[1][1], pose[1][2], pose[1][3]
-    r31, r32, r33, pz = pose[2][0], pose[2][1], pose[2][2], pose[2][3]
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
     finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
     if finite - finite != 0.0:
@@ -357,40 +361,35 @@ def _closed_form(pose, current):
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     rc11 = -r11
     rc12 = -r12
-    rc13 = r13
     pcx = px - 0.02*r11 - 0.6
     rc21 = -r21
     rc22 = -r22
-    rc23 = r23
     pcy = py - 0.02*r21 - 0.25
     rc31 = -r31
     rc32 = -r32
-    rc33 = r33
     pcz = pz - 0.02*r31
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 0.165*rc13
-    wy = pcy - 0.165*rc23
-    wz = pcz - 0.165*rc33
+    wx = pcx - 0.165*r13
+    wy = pcy - 0.165*r23
+    wz = pcz - 0.165*r33
 
     # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     v1y = 0.29 - wz
     g16_21 = -rc31
     g16_22 = -rc32
-    g16_23 = -rc33
+    g16_23 = -r33
     g16_24 = 0.29 - pcz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    ea1 = wy
     eb1 = -wx
-    en1 = t3_0
 
-    free1 = en1 <= 1e-21
-    if (0 > 1e-21) if free1 else (1.000000002*en1 < 0.0):
+    free1 = t3_0 <= 1e-21
+    if (0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
         return solutions
-    root1 = sqrt(en1) if en1 > 0.0 else 0.0
+    root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
             th1 = (0.5235987755982989 + 1.0 * (current[0] if current is not None else 0.0))
@@ -398,30 +397,27 @@ def _closed_form(pose, current):
             s1 = sin(th1)
         else:
             cn1 = -eb1*root1*sg1
-            sn1 = ea1*root1*sg1
+            sn1 = root1*sg1*wy
             th1 = atan2(sn1, cn1)
-            c1 = cn1/en1
-            s1 = sn1/en1
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*rc11 + rc21*s1
         g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
         g16_31 = c1*rc21 - rc11*s1
         g16_32 = c1*rc22 - rc12*s1
-        g16_33 = c1*rc23 - rc13*s1
+        g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g26_31 = g16_31
-        g26_32 = g16_32
-        g26_33 = g16_33
-        g36_21 = -g26_31
-        g36_22 = -g26_32
-        g36_23 = -g26_33
+        g36_21 = -g16_31
+        g36_22 = -g16_32
+        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -511,10 +507,12 @@ def _closed_form(pose, current):
                     free2 = False
                     wk2 = 9.999999999999999e-10
 
-            if not free2 and abs(c2 * c2 + s2 * s2 - 1.0) > 1e-4:
-                if abs(dt2) > wk2:
-                    continue
-                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free2:
                 th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
@@ -522,7 +520,6 @@ def _closed_form(pose, current):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-12:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
@@ -546,7 +543,6 @@ def _closed_form(pose, current):
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            ec5 = g36_33
             er5 = g36_13*g36_13 + g36_23*g36_23
 
             if er5 + 2e-09 < 0.0:
@@ -554,7 +550,7 @@ def _closed_form(pose, current):
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
             sg5 = 1.0
-            cn5 = ec5
+            cn5 = g36_33
             sn5 = root5*sg5
             th5 = atan2(sn5, cn5)
             c5 = cn5
@@ -570,10 +566,12 @@ def _closed_form(pose, current):
                 free4 = False
                 wk4 = 1e-08
 
-            if not free4 and abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4:
-                if abs(dt4) > wk4:
-                    continue
-                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
             if free4:
                 th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
@@ -581,7 +579,6 @@ def _closed_form(pose, current):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-12:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
@@ -590,12 +587,10 @@ def _closed_form(pose, current):
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 + g36_21*s4
             g46_12 = c4*g36_12 + g36_22*s4
-            g46_21 = g36_31
-            g46_22 = g36_32
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
+            g56_11 = c5*g46_11 + g36_31*s5
+            g56_12 = c5*g46_12 + g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free6 = True
@@ -605,11 +600,11 @@ def _closed_form(pose, current):
             s6 = (-g56_12) / dt6
             free6 = False
 
-            if abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4:
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-12:
                 hn6 = 1.0 / sqrt(hq6)
                 c6 = c6 * hn6

@@ -115,45 +115,40 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         rc11 = -r11
         rc12 = -r12
-        rc13 = r13
         pcx = px - 0.02*r11 - 0.6
         rc21 = -r21
         rc22 = -r22
-        rc23 = r23
         pcy = py - 0.02*r21 - 0.25
         rc31 = -r31
         rc32 = -r32
-        rc33 = r33
         pcz = pz - 0.02*r31
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-        wx = pcx - 0.165*rc13
-        wy = pcy - 0.165*rc23
-        wz = pcz - 0.165*rc33
+        wx = pcx - 0.165*r13
+        wy = pcy - 0.165*r23
+        wz = pcz - 0.165*r33
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         v1y = 0.29 - wz
         g16_21 = -rc31
         g16_22 = -rc32
-        g16_23 = -rc33
+        g16_23 = -r33
         g16_24 = 0.29 - pcz
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        ea1 = wy
         eb1 = -wx
-        en1 = t3_0
 
-        free1 = en1 <= 1e-21
-        valid = valid & ~numpy.where(free1, 0 > 1e-21, 1.000000002*en1 < 0.0)
-        root1 = numpy.sqrt(numpy.maximum(en1, 0.0))
+        free1 = t3_0 <= 1e-21
+        valid = valid & ~numpy.where(free1, 0 > 1e-21, 1.000000002*t3_0 < 0.0)
+        root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = -eb1*root1*sg1
-        sn1 = ea1*root1*sg1
+        sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/en1
-        s1 = sn1/en1
+        c1 = cn1/t3_0
+        s1 = sn1/t3_0
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -164,21 +159,18 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*rc11 + rc21*s1
         g16_12 = c1*rc12 + rc22*s1
-        g16_13 = c1*rc13 + rc23*s1
+        g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
         g16_31 = c1*rc21 - rc11*s1
         g16_32 = c1*rc22 - rc12*s1
-        g16_33 = c1*rc23 - rc13*s1
+        g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g26_31 = g16_31
-        g26_32 = g16_32
-        g26_33 = g16_33
-        g36_21 = -g26_31
-        g36_22 = -g26_32
-        g36_23 = -g26_33
+        g36_21 = -g16_31
+        g36_22 = -g16_32
+        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -302,13 +294,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_33 = c3*g26_23 - g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        ec5 = g36_33
         er5 = g36_13*g36_13 + g36_23*g36_23
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
         sg5 = 1.0
-        cn5 = ec5
+        cn5 = g36_33
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
@@ -345,12 +336,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g36_21*s4
         g46_12 = c4*g36_12 + g36_22*s4
-        g46_21 = g36_31
-        g46_22 = g36_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 + g46_21*s5
-        g56_12 = c5*g46_12 + g46_22*s5
+        g56_11 = c5*g46_11 + g36_31*s5
+        g56_12 = c5*g46_12 + g36_32*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)

@@ -144,42 +144,37 @@ static int closed_form(const float pose[16], const float *current,
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
     const float rc11 = -r11;
     const float rc12 = -r12;
-    const float rc13 = r13;
     const float pcx = px - 0.02f*r11 - 0.6f;
     const float rc21 = -r21;
     const float rc22 = -r22;
-    const float rc23 = r23;
     const float pcy = py - 0.02f*r21 - 0.25f;
     const float rc31 = -r31;
     const float rc32 = -r32;
-    const float rc33 = r33;
     const float pcz = pz - 0.02f*r31;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
-    const float wx = pcx - 0.165f*rc13;
-    const float wy = pcy - 0.165f*rc23;
-    const float wz = pcz - 0.165f*rc33;
+    const float wx = pcx - 0.165f*r13;
+    const float wy = pcy - 0.165f*r23;
+    const float wz = pcz - 0.165f*r33;
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float v1y = 0.29f - wz;
     const float g16_21 = -rc31;
     const float g16_22 = -rc32;
-    const float g16_23 = -rc33;
+    const float g16_23 = -r33;
     const float g16_24 = 0.29f - pcz;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
-    const float ea1 = wy;
     const float eb1 = -wx;
-    const float en1 = t3_0;
 
-    const int free1 = en1 <= 1e-21f;
-    if (free1 ? 0.0f > 1e-21f : 1.00002f*en1 < 0.0f) {
+    const int free1 = t3_0 <= 1e-21f;
+    if (free1 ? 0.0f > 1e-21f : 1.00002f*t3_0 < 0.0f) {
         if (status) *status = SEEDLING6_IK_F32_UNREACHABLE;
         return 0;
     }
-    const float root1 = en1 > 0.0f ? sqrtf(en1) : 0.0f;
+    const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
     const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
     for (int k1 = 0; k1 < n1; ++k1) {
         const float sg1 = k1 ? -1.0f : 1.0f;
@@ -190,10 +185,10 @@ static int closed_form(const float pose[16], const float *current,
             s1 = sinf(th1);
         } else {
             const float cn1 = -eb1*root1*sg1;
-            const float sn1 = ea1*root1*sg1;
+            const float sn1 = root1*sg1*wy;
             th1 = atan2f(sn1, cn1);
-            c1 = cn1/en1;
-            s1 = sn1/en1;
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
 
         }
 
@@ -201,21 +196,18 @@ static int closed_form(const float pose[16], const float *current,
         const float v1x = c1*wx + s1*wy - 0.04f;
         const float v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = c1*rc11 + rc21*s1;
         const float g16_12 = c1*rc12 + rc22*s1;
-        const float g16_13 = c1*rc13 + rc23*s1;
+        const float g16_13 = c1*r13 + r23*s1;
         const float g16_14 = c1*pcx + pcy*s1 - 0.04f;
         const float g16_31 = c1*rc21 - rc11*s1;
         const float g16_32 = c1*rc22 - rc12*s1;
-        const float g16_33 = c1*rc23 - rc13*s1;
+        const float g16_33 = c1*r23 - r13*s1;
         const float g16_34 = c1*pcy - pcx*s1;
-        const float g26_31 = g16_31;
-        const float g26_32 = g16_32;
-        const float g26_33 = g16_33;
-        const float g36_21 = -g26_31;
-        const float g36_22 = -g26_32;
-        const float g36_23 = -g26_33;
+        const float g36_21 = -g16_31;
+        const float g36_22 = -g16_32;
+        const float g36_23 = -g16_33;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -356,7 +348,6 @@ static int closed_form(const float pose[16], const float *current,
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const float ec5 = g36_33;
             const float er5 = g36_13*g36_13 + g36_23*g36_23;
 
             if (er5 + 2e-05f < 0.0f) {
@@ -366,7 +357,7 @@ static int closed_form(const float pose[16], const float *current,
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             const float sg5 = 1.0f;
             float th5, c5, s5;
-            const float cn5 = ec5;
+            const float cn5 = g36_33;
             const float sn5 = root5*sg5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
@@ -412,12 +403,10 @@ static int closed_form(const float pose[16], const float *current,
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const float g46_11 = c4*g36_11 + g36_21*s4;
             const float g46_12 = c4*g36_12 + g36_22*s4;
-            const float g46_21 = g36_31;
-            const float g46_22 = g36_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 + g46_21*s5;
-            const float g56_12 = c5*g46_12 + g46_22*s5;
+            const float g56_11 = c5*g46_11 + g36_31*s5;
+            const float g56_12 = c5*g46_12 + g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;

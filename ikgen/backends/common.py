@@ -451,8 +451,40 @@ def lower_now(derivation: Derivation) -> Plan:
     plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
                 derivation.max_solutions, depth, branch_joints, mirror)
     drop_unused(plan)
+    propagate_aliases(plan)
     hoist(plan)
     return plan
+
+
+def propagate_aliases(plan: Plan) -> None:
+    """Copy propagation: an intermediate that only renames another symbol (``rc11 = r11``,
+    ``g26_31 = g16_31``) is not assigned; every later expression reads the original."""
+    aliases: dict = {}
+
+    def swap(expr):
+        return expr.xreplace(aliases) if aliases and isinstance(expr, sp.Basic) else expr
+
+    def keep(assignments):
+        kept = []
+        for assignment in assignments:
+            expr = swap(assignment.expr)
+            if isinstance(expr, sp.Symbol):
+                aliases[assignment.target] = expr
+            else:
+                kept.append(Assignment(assignment.target, expr))
+        return kept
+    for block in plan.blocks:
+        block.temps = keep(block.temps)
+        for name in ("c", "norm", "radicand", "guard", "guard_scale", "cn", "sn", "cos_expr", "sin_expr"):
+            if getattr(block, name, None) is not None:
+                setattr(block, name, swap(getattr(block, name)))
+        block.coefficients = [swap(e) for e in block.coefficients]
+        for form in block.forms:
+            form.temps = keep(form.temps)
+            form.det, form.cos_num, form.sin_num = swap(form.det), swap(form.cos_num), swap(form.sin_num)
+    plan.final_temps = keep(plan.final_temps)
+    plan.label_measures = [swap(e) for e in plan.label_measures]
+    plan.blocks = [b for b in plan.blocks if b.kind != "compute" or b.temps]
 
 
 def opens_loop(block: Block) -> bool:
