@@ -33,8 +33,8 @@ C99 = ["-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Werror"]
 # (C++ compiler, the C compiler whose objects it links against)
 PAIRS = {"g++": "gcc", "clang++": "clang"}
 
-# A C++17 caller of the C solver. Readings are passed in (-DIK_READINGS=...), the solver's names
-# are built from IK_PREFIX and IK_UPPER; it exits 0 when inverse(forward(q)) finds a solution whose
+# A C++17 caller of the C solver. Readings are passed in (-DCALLER_READINGS=...), the solver's names
+# are built from CALLER_PREFIX and CALLER_UPPER; it exits 0 when inverse(forward(q)) finds a solution whose
 # own forward pose matches within 1e-3 (relative to the largest position entry).
 CXX_CALLER = r"""
 #include HEADER_FILE
@@ -43,28 +43,28 @@ CXX_CALLER = r"""
 #include <cmath>
 #include <cstdio>
 
-#define IK_CAT_(a, b) a##b
-#define IK_CAT(a, b) IK_CAT_(a, b)
-#define IK_NAME(suffix) IK_CAT(IK_PREFIX, suffix)
-#define IK_MACRO(suffix) IK_CAT(IK_UPPER, suffix)
+#define CALLER_JOIN(a, b) a##b
+#define CALLER_CAT(a, b) CALLER_JOIN(a, b)
+#define CALLER_NAME(suffix) CALLER_CAT(CALLER_PREFIX, suffix)
+#define CALLER_MACRO(suffix) CALLER_CAT(CALLER_UPPER, suffix)
 
-using real = IK_REAL;
+using real = CALLER_SCALAR;
 
 int main()
 {
-    const std::array<real, IK_MACRO(_JOINTS)> readings{IK_READINGS};
+    const std::array<real, CALLER_MACRO(_JOINTS)> readings{CALLER_READINGS};
     std::array<real, 16> pose{};
-    IK_NAME(_forward)(readings.data(), pose.data());
-    std::array<IK_NAME(_solution), IK_MACRO(_MAX_SOLUTIONS)> solutions{};
-    IK_NAME(_status) status{};
-    const int count = IK_NAME(_inverse)(pose.data(), nullptr, IK_MACRO(_LIMITS_IGNORE), solutions.data(), &status);
+    CALLER_NAME(_forward)(readings.data(), pose.data());
+    std::array<CALLER_NAME(_solution), CALLER_MACRO(_MAX_SOLUTIONS)> solutions{};
+    CALLER_NAME(_status) status{};
+    const int count = CALLER_NAME(_inverse)(pose.data(), nullptr, CALLER_MACRO(_LIMITS_IGNORE), solutions.data(), &status);
     real scale = 1;
     for (int k = 3; k < 12; k += 4) {
         scale = std::fmax(scale, std::fabs(pose[static_cast<std::size_t>(k)]));
     }
     for (int s = 0; s < count; ++s) {
         std::array<real, 16> again{};
-        IK_NAME(_forward)(solutions[static_cast<std::size_t>(s)].joints, again.data());
+        CALLER_NAME(_forward)(solutions[static_cast<std::size_t>(s)].joints, again.data());
         real worst = 0;
         for (std::size_t k = 0; k < 12; ++k) {
             worst = std::fmax(worst, std::fabs(again[k] - pose[k]) / (k % 4 == 3 ? scale : real(1)));
@@ -127,8 +127,8 @@ def test_cxx17_program_calls_the_c_solver(header, cxx, tmp_path):
     caller.write_text(CXX_CALLER, encoding="utf-8")
     real = "float" if prefix.endswith("_f32") else "double"
     compile_ok([cxx_path, *CXX17, "-O2", "-I", header.parent, f'-DHEADER_FILE="{header.name}"',
-                f"-DIK_PREFIX={prefix}", f"-DIK_UPPER={prefix.upper()}", f"-DIK_REAL={real}",
-                f"-DIK_READINGS={readings_for(header)}", "-c", caller, "-o", "caller.o"], tmp_path)
+                f"-DCALLER_PREFIX={prefix}", f"-DCALLER_UPPER={prefix.upper()}", f"-DCALLER_SCALAR={real}",
+                f"-DCALLER_READINGS={readings_for(header)}", "-c", caller, "-o", "caller.o"], tmp_path)
     compile_ok([cxx_path, "caller.o", "solver.o", "-lm", "-o", "caller"], tmp_path)
     ran = subprocess.run([tmp_path / "caller"], capture_output=True, text=True, timeout=60)
     assert ran.returncode == 0 and "round trip ok" in ran.stdout, ran.stdout + ran.stderr
