@@ -8,13 +8,14 @@ prints per structure how many were accepted (generated and verified), refused (a
 diagnosis, ikgen.errors.StructureError) and failed (a generated solver that fails verification, or
 an error), with the time spent. Failed arms are printed in full to reproduce them.
 
-Run:  python3 benchmarks/sweep_arms.py [--arms 220] [--samples 300] [--seed 16]
+Run:  python3 benchmarks/sweep_arms.py [--arms 220] [--samples 300] [--seed 16] [--limit 180]
 The time depends on the machine and its load (each arm's derivation takes seconds).
 """
 
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 import time
 from collections import defaultdict
@@ -29,11 +30,34 @@ sys.path.insert(0, str(ROOT / "tests"))
 from arm_draws import STRUCTURES, Draw, arm_text, outcome  # noqa: E402
 
 
+class TooLong(BaseException):        # not an Exception: outcome() must not catch it
+    pass
+
+
+def timed_outcome(arm, samples: int, limit: int):
+    """outcome() of one arm, or a failure when it takes more than ``limit`` seconds (a derivation
+    that does not finish is a finding too, and must not stop the sweep)."""
+    def expire(signum, frame):
+        raise TooLong()
+    previous = signal.signal(signal.SIGALRM, expire)
+    signal.alarm(limit)
+    started = time.perf_counter()
+    try:
+        return outcome(arm, samples)
+    except TooLong:
+        return "failed", f"did not finish within {limit} s", time.perf_counter() - started
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, previous)
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--arms", type=int, default=220, help="arms in all, spread evenly over the structures")
     parser.add_argument("--samples", type=int, default=300, help="verification samples per arm")
     parser.add_argument("--seed", type=int, default=16)
+    parser.add_argument("--limit", type=int, default=180,
+                        help="seconds an arm may take (derivation and verification) before it counts as failed")
     args = parser.parse_args(argv)
     rng = np.random.default_rng(args.seed)
     names = list(STRUCTURES)
@@ -43,7 +67,7 @@ def main(argv=None) -> int:
     for index in range(args.arms):
         name = names[index % len(names)]
         arm = STRUCTURES[name](Draw(rng))
-        kind, sentence, seconds = outcome(arm, args.samples)
+        kind, sentence, seconds = timed_outcome(arm, args.samples, args.limit)
         counts[name][kind] += 1
         counts[name]["seconds"] += seconds
         if kind == "failed":
