@@ -368,6 +368,20 @@ def test_seven_joints_are_refused_with_what_is_handled():
         build(arm_from_data(data))
 
 
+def test_two_joints_making_the_same_motion_are_refused():
+    """Two consecutive revolute joints about one axis (a1 = 0 and alpha1 = 0 make axes 1 and 2 one
+    line), or two slides along parallel directions, leave fewer independent motions than joints
+    (a fact of kinematics, common practice): refused, nothing derived."""
+    wrist = [joint("r", alpha=-90), joint("r", alpha=90), joint("r", d=0.1)]
+    same_axis = build_arm([joint("r", a=0, alpha=0, d=0), joint("r", alpha=-90), joint("r", a=0.4, alpha=-90)] + wrist)
+    with pytest.raises(StructureError, match=r"joints 1 'j1' and 2 'j2' turn about the same axis"):
+        build(same_axis)
+    parallel_slides = build_arm([joint("r", alpha=0, d=0.3), joint("p", a=0.2, alpha=0, limits=[0, 0.5]),
+                                 joint("p", a=0.1, alpha=0, limits=[0, 0.5])])
+    with pytest.raises(StructureError, match=r"slide along parallel directions"):
+        build(parallel_slides)
+
+
 def test_a_declared_pose_for_a_four_joint_arm_is_refused_with_what_it_serves():
     data = benchtop_data()
     del data["joint"][4:]

@@ -19,7 +19,7 @@ from ..errors import StructureError
 from ..ir import CirclePolynomial, CosSinEquation, Derivation, JointOutput, QuadraticLength
 from ..model import Arm
 from .context import make_setup
-from .targets import resolve as resolve_target
+from .targets import check_independent, resolve as resolve_target
 from .labels import MEANINGS, build_labels, plan_labels, root_label
 from .mirror import attach_mirror
 from .solver import Solver, free_symbols_of
@@ -27,6 +27,7 @@ from .strategies import STRATEGIES
 
 def derive(arm: Arm) -> Derivation:
     target = resolve_target(arm)
+    check_independent(arm)
     setup = make_setup(arm, target)
     findings = [(strategy, strategy.recognise(arm, target)) for strategy in STRATEGIES]
     applied = [(s, f) for s, f in findings if f.applies]

@@ -18,7 +18,7 @@ from __future__ import annotations
 import numpy as np
 import sympy as sp
 
-from ..analysis import generic_readings
+from ..analysis import generic_readings, relate
 from ..errors import StructureError
 from ..kinematics import NumericChain
 from ..model import TARGET_FREEDOMS, Arm, Target
@@ -91,3 +91,23 @@ def words(target: Target) -> str:
             "point_and_direction": f"the position of the tool point and the direction of the tool's {target.tool_axis} axis"
             }[target.kind]
     return text + ("" if target.declared else " (natural for this arm; no [target] in the file)")
+
+
+def check_independent(arm: Arm) -> None:
+    """Refuse an arm two of whose consecutive joints make the same motion: two revolute joints about
+    one axis, or two slides along parallel directions. Such an arm has fewer independent motions
+    than joints, so a target has infinitely many solutions or none."""
+    chain = NumericChain(arm)
+    origins, directions = chain.joint_axes(generic_readings(arm))
+    for first, second in zip(arm.joints, arm.joints[1:]):
+        relation = relate(arm, first.index, second.index, origins, directions)
+        if first.revolute and second.revolute and relation.kind == "coincident":
+            same = "turn about the same axis"
+        elif not first.revolute and not second.revolute and relation.kind in ("parallel", "coincident"):
+            same = "slide along parallel directions"
+        else:
+            continue
+        raise StructureError(f"arm '{arm.name}': joints {first.index} '{first.name}' and {second.index} "
+                             f"'{second.name}' {same}, so the arm has fewer independent motions than joints and "
+                             "a target has no finite set of solutions; nothing was written")
+
