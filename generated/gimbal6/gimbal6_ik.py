@@ -197,6 +197,7 @@ class Solution(tuple):
 
 _new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
+SAFE_ENTRY = 1e10  # every entry within this: the solver's expressions (degree far below 30) cannot overflow, no filter
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
 
 def _shown(value):
@@ -315,9 +316,10 @@ def _solve(pose, current, limits, check):
     current = _check(limits, current)
     r0, r1, r2 = pose
     total = sum(r0) + sum(r1) + sum(r2)
-    if total - total != 0.0 or max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2))) > LARGEST_ENTRY:
+    biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
+    if total - total != 0.0 or biggest > LARGEST_ENTRY:
         return [], "invalid_input"                         # NaN, infinite, or its square overflows
-    solutions = _closed_form(pose, current)
+    solutions = _closed_form(pose, current, biggest > SAFE_ENTRY)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
     if all(s[4] for s in solutions):
@@ -478,7 +480,7 @@ def forward(joints):
         [0.0, 0.0, 0.0, 1.0],
     ]
 
-def _closed_form(pose, current):
+def _closed_form(pose, current, check_finite=True):
     """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
@@ -722,4 +724,6 @@ def _closed_form(pose, current):
                 "bend_negative" if lm0 >= 0.0 else "bend_positive",
                 "bend_positive" if lm1 >= 0.0 else "bend_negative",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+    if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
