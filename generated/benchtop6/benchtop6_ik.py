@@ -428,10 +428,11 @@ def _closed_form(pose, current, check_finite=True):
         if er3 + 31.366400000000002 < 0.0:
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
+        dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
             cn3 = 10400*ec3 + 124800*root3*sg3
             sn3 = -124800*ec3 + 10400*root3*sg3
-            th3 = atan2(sn3, cn3)
+            th3 = -1.4876550949064553 + sg3 * dl3
             c3 = 6.37624974495001e-11*cn3
             s3 = 6.37624974495001e-11*sn3
 
@@ -631,6 +632,8 @@ def _closed_form(pose, current, check_finite=True):
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
             u3 = th3
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
             u4 = th4
             u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
             u5 = th5

@@ -421,10 +421,11 @@ def _closed_form(pose, current, check_finite=True):
     if er2 + 63.903125 < 0.0:
         return solutions
     root2 = sqrt(er2) if er2 > 0.0 else 0.0
+    dl2 = atan2(root2, ec2)  # th = gamma + sg * dl
     for sg2 in ((1.0,) if root2 == 0.0 else (1.0, -1.0)):
         cn2 = 178750*ec2
         sn2 = 178750*root2*sg2
-        th2 = atan2(sn2, cn2)
+        th2 = 0.0 + sg2 * dl2
         c2 = 3.129737395471661e-11*cn2
         s2 = 3.129737395471661e-11*sn2
 
@@ -590,8 +591,11 @@ def _closed_form(pose, current, check_finite=True):
         u1 = th1
         u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
         u2 = th2
+        u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+        u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
         u3 = (l3 - 0.0) * 1.0
         u4 = th4
+        u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
         u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
         u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
         q = (

@@ -179,13 +179,14 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
+    const float dl2 = atan2f(root2, ec2);   /* th = gamma + sg * dl */
     const int n2 = (root2 == 0.0f) ? 1 : 2;
     for (int k2 = 0; k2 < n2; ++k2) {
         const float sg2 = k2 ? -1.0f : 1.0f;
         float th2, c2, s2;
         const float cn2 = 178750.0f*ec2;
         const float sn2 = 178750.0f*root2*sg2;
-        th2 = atan2f(sn2, cn2);
+        th2 = 0.0f + sg2 * dl2;
         c2 = 3.1297374e-11f*cn2;
         s2 = 3.1297374e-11f*sn2;
 
@@ -366,9 +367,13 @@ static int closed_form(const float pose[16], const float *current,
             float u1 = th1;
             u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
             out->joints[0] = u1 * 57.2957795f;
-            out->joints[1] = th2 * 57.2957795f;
+            float u2 = th2;
+            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+            out->joints[1] = u2 * 57.2957795f;
             out->joints[2] = (l3 - 0.0f) * 1.0f;
             float u4 = th4;
+            u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             out->joints[3] = u4 * 57.2957795f;

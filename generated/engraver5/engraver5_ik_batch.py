@@ -331,6 +331,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - 1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
@@ -357,6 +359,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - 1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
+        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)

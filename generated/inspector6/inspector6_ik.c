@@ -170,13 +170,14 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
+    const double dl3 = atan2(root3, ec3);   /* th = gamma + sg * dl */
     const int n3 = (root3 == 0.0) ? 1 : 2;
     for (int k3 = 0; k3 < n3; ++k3) {
         const double sg3 = k3 ? -1.0 : 1.0;
         double th3, c3, s3;
         const double cn3 = 185600.0*root3*sg3;
         const double sn3 = -185600.0*ec3;
-        th3 = atan2(sn3, cn3);
+        th3 = -1.5707963267948966 + sg3 * dl3;
         c3 = 2.9029800832342449e-11*cn3;
         s3 = 2.9029800832342449e-11*sn3;
 
@@ -411,6 +412,7 @@ static int closed_form(const double pose[16], const double *current,
                 out->joints[1] = u2 * -57.295779513082323;
                 double u3 = th3 - 1.7889624832941875;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                 out->joints[2] = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
@@ -441,6 +443,7 @@ static int closed_form(const double pose[16], const double *current,
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
                     out->joints[1] = u2 * -57.295779513082323;
                     double u3 = th3 - 1.7889624832941875;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                     out->joints[2] = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;

@@ -195,13 +195,14 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+        const double dl5 = atan2(root5, ec5);   /* th = gamma + sg * dl */
         const int n5 = (root5 == 0.0) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const double sg5 = k5 ? -1.0 : 1.0;
             double th5, c5, s5;
             const double cn5 = ec5;
             const double sn5 = root5*sg5;
-            th5 = atan2(sn5, cn5);
+            th5 = 0.0 + sg5 * dl5;
             c5 = cn5;
             s5 = sn5;
 
@@ -302,13 +303,14 @@ static int closed_form(const double pose[16], const double *current,
                 continue;
             }
             const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
+            const double dl3 = atan2(root3, ec3);   /* th = gamma + sg * dl */
             const int n3 = (root3 == 0.0) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const double sg3 = k3 ? -1.0 : 1.0;
                 double th3, c3, s3;
                 const double cn3 = -194700.0*ec3;
                 const double sn3 = -194700.0*root3*sg3;
-                th3 = atan2(sn3, cn3);
+                th3 = 3.1415926535897931 + sg3 * dl3;
                 c3 = 2.6379593379671728e-11*cn3;
                 s3 = 2.6379593379671728e-11*sn3;
 
@@ -366,12 +368,19 @@ static int closed_form(const double pose[16], const double *current,
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
                     out->joints[1] = u2 * 57.295779513082323;
-                    out->joints[2] = th3 * 57.295779513082323;
+                    double u3 = th3;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    out->joints[2] = u3 * 57.295779513082323;
                     double u4 = th4 - -1.5707963267948966;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     out->joints[3] = u4 * 57.295779513082323;
-                    out->joints[4] = th5 * 57.295779513082323;
+                    double u5 = th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    out->joints[4] = u5 * 57.295779513082323;
                     double u6 = th6;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
                     out->joints[5] = u6 * 57.295779513082323;

@@ -405,10 +405,11 @@ def _closed_form(pose, current, check_finite=True):
         if er5 + 2e-09 < 0.0:
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        dl5 = atan2(root5, ec5)  # th = gamma + sg * dl
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
             cn5 = ec5
             sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
+            th5 = 0.0 + sg5 * dl5
             c5 = cn5
             s5 = sn5
 
@@ -490,10 +491,11 @@ def _closed_form(pose, current, check_finite=True):
             if er3 + 75.81618 < 0.0:
                 continue
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
+            dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
                 cn3 = -194700*ec3
                 sn3 = -194700*root3*sg3
-                th3 = atan2(sn3, cn3)
+                th3 = 3.141592653589793 + sg3 * dl3
                 c3 = 2.6379593379671728e-11*cn3
                 s3 = 2.6379593379671728e-11*sn3
 
@@ -541,10 +543,15 @@ def _closed_form(pose, current, check_finite=True):
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
                 u3 = th3
+                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u5 = th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
                 u6 = th6
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
                 q = (

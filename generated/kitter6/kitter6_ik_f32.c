@@ -195,13 +195,14 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+        const float dl5 = atan2f(root5, ec5);   /* th = gamma + sg * dl */
         const int n5 = (root5 == 0.0f) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const float sg5 = k5 ? -1.0f : 1.0f;
             float th5, c5, s5;
             const float cn5 = ec5;
             const float sn5 = root5*sg5;
-            th5 = atan2f(sn5, cn5);
+            th5 = 0.0f + sg5 * dl5;
             c5 = cn5;
             s5 = sn5;
 
@@ -302,13 +303,14 @@ static int closed_form(const float pose[16], const float *current,
                 continue;
             }
             const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
+            const float dl3 = atan2f(root3, ec3);   /* th = gamma + sg * dl */
             const int n3 = (root3 == 0.0f) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const float sg3 = k3 ? -1.0f : 1.0f;
                 float th3, c3, s3;
                 const float cn3 = -194700.0f*ec3;
                 const float sn3 = -194700.0f*root3*sg3;
-                th3 = atan2f(sn3, cn3);
+                th3 = 3.14159265f + sg3 * dl3;
                 c3 = 2.63795934e-11f*cn3;
                 s3 = 2.63795934e-11f*sn3;
 
@@ -366,12 +368,19 @@ static int closed_form(const float pose[16], const float *current,
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
                     out->joints[1] = u2 * 57.2957795f;
-                    out->joints[2] = th3 * 57.2957795f;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    out->joints[2] = u3 * 57.2957795f;
                     float u4 = th4 - -1.57079633f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     out->joints[3] = u4 * 57.2957795f;
-                    out->joints[4] = th5 * 57.2957795f;
+                    float u5 = th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    out->joints[4] = u5 * 57.2957795f;
                     float u6 = th6;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
                     out->joints[5] = u6 * 57.2957795f;

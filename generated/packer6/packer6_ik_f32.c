@@ -206,13 +206,14 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
+        const float dl3 = atan2f(root3, ec3);   /* th = gamma + sg * dl */
         const int n3 = (root3 == 0.0f) ? 1 : 2;
         for (int k3 = 0; k3 < n3; ++k3) {
             const float sg3 = k3 ? -1.0f : 1.0f;
             float th3, c3, s3;
             const float cn3 = 0.187f*ec3 + 1.53f*root3*sg3;
             const float sn3 = -1.53f*ec3 + 0.187f*root3*sg3;
-            th3 = atan2f(sn3, cn3);
+            th3 = -1.4491773f + sg3 * dl3;
             c3 = 0.420898627f*cn3;
             s3 = 0.420898627f*sn3;
 
@@ -478,7 +479,10 @@ static int closed_form(const float pose[16], const float *current,
                 float u2 = th2 - -1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
                 out->joints[1] = u2 * 1.0f;
-                out->joints[2] = th3 * 1.0f;
+                float u3 = th3;
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                out->joints[2] = u3 * 1.0f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                 out->joints[3] = u4 * 1.0f;
@@ -508,6 +512,7 @@ static int closed_form(const float pose[16], const float *current,
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
                     out->joints[1] = u2 * 1.0f;
                     float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
                     u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
                     out->joints[2] = u3 * 1.0f;
                     float u4 = th4 + 3.14159265f;

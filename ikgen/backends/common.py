@@ -156,6 +156,7 @@ class Block:
     sn: sp.Expr | None = None
     cos_expr: sp.Expr | None = None
     sin_expr: sp.Expr | None = None
+    gamma: float | None = None   # cossin with constant a, b: th = gamma + sg * atan2(root, c), one atan2 for both roots
     threshold: float | None = None  # None: a^2+b^2 is a non-zero constant, never singular
     # pair
     forms: list[FormPlan] = field(default_factory=list)
@@ -269,12 +270,13 @@ class Plan:
 
     @property
     def bounded_joints(self) -> set[int]:
-        """Joints whose DH angle is always an atan2 result in [-pi, pi] (never a caller's value)."""
+        """Joints whose DH angle is always one atan2 result in [-pi, pi] (never a caller's value, nor
+        gamma + sg * delta)."""
         out = set()
         for block in self.blocks:
             if not block.key.isdigit():
                 continue
-            if block.kind == "cossin" and block.threshold is None:
+            if block.kind == "cossin" and block.threshold is None and block.gamma is None:
                 out.add(int(block.key))
             elif block.kind == "pair" and not block.free_possible:
                 out.add(int(block.key))
@@ -373,6 +375,8 @@ def lower_now(derivation: Derivation) -> Plan:
                           mirrored=step.mirror is not None, condition_name=step.branch.name,
                           condition_gain=condition_gain(norm_value, step.singular.threshold))
             specialise_cossin(block, a, b, c, norm_value, radicand)
+            if block.gamma is not None:
+                bounds[step.key] = 2         # gamma + sg * delta lies within two half-turns of 0
             blocks.append(block)
             branch_joints.append(step.key)
             if step.mirror is not None:
@@ -571,6 +575,10 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
     block.cn = a * c - sg * b * root
     block.sn = b * c + sg * a * root
     cn, sn = sp.Symbol(f"cn{j}", real=True), sp.Symbol(f"sn{j}", real=True)
+    if a.is_number and b.is_number and not block.mirrored:
+        # a = n cos(gamma), b = n sin(gamma): a cos th + b sin th = n cos(th - gamma) = c, so
+        # th = gamma + sg * atan2(root, c): the two roots share one atan2 call
+        block.gamma = float(sp.atan2(b, a).evalf(30))
     block.cos_expr = cn / block.norm if block.norm != 1 else cn
     block.sin_expr = sn / block.norm if block.norm != 1 else sn
     if block.norm.is_number and block.norm != 1:
