@@ -31,7 +31,7 @@ from .rotations import from_axis_angles, from_quaternion, homogeneous
 CONVENTION_ALIASES = {"standard": "standard", "distal": "standard",
                       "modified": "modified", "proximal": "modified"}
 TOP_KEYS = ("arm", "joint", "base", "tool", "target")
-TARGET_KEYS = ("kind", "axis", "tool_axis")
+TARGET_KEYS = ("kind", "axis", "tool_axis", "given_joint")
 ARM_KEYS = ("name", "description", "convention", "length_unit", "angle_unit")
 JOINT_KEYS = ("name", "type", "a", "alpha", "d", "theta", "offset", "direction", "limits")
 FRAME_KEYS = ("translation", "rotation")
@@ -344,9 +344,10 @@ def arm_from_data(data: dict, path: str = "<data>", digest: str = "", locate=Non
     base = _read_frame(reader, data, "base", angle_scale)
     tool = _read_frame(reader, data, "tool", angle_scale)
     target = _read_target(reader, data)
+    given = _read_given_joint(reader, data, joints)
     arm = Arm(name=name, description=description, convention=convention, length_unit=length_unit,
               angle_unit=angle_unit, joints=tuple(joints), base=base, tool=tool, source=path,
-              digest=digest, notes=tuple(reader.notes), target=target)
+              digest=digest, notes=tuple(reader.notes), target=target, given_joint=given)
     _check_equivalent_readings(reader, arm)
     return arm
 
@@ -442,6 +443,8 @@ def _read_target(reader: _Reader, data: dict) -> Target | None:
         return None
     where, place = "[target]", ("target",)
     reader.check_keys(table, TARGET_KEYS, where, place)
+    if "kind" not in table and "given_joint" in table:
+        return None                       # only a given joint: the natural target of the other joints
     kind = reader.choice(table, "kind", TARGET_KINDS, where, place)
     axis = None
     if "axis" in table:
@@ -460,6 +463,28 @@ def _read_target(reader: _Reader, data: dict) -> Target | None:
                         "'tool_axis' only with kind = \"point_and_direction\" (which tool axis is directed)")
         tool_axis = reader.choice(table, "tool_axis", ("x", "y", "z"), where, place)
     return Target(kind, axis, tool_axis, True)
+
+
+def _read_given_joint(reader: _Reader, data: dict, joints: list[Joint]) -> int | None:
+    """[target] given_joint: the joint whose reading the caller gives (its number from 1, or its
+    name); None when absent."""
+    table = data.get("target")
+    if not isinstance(table, dict) or "given_joint" not in table:
+        return None
+    raw = table["given_joint"]
+    place = ("target", "given_joint")
+    names = {j.name: j.index for j in joints}
+    if isinstance(raw, bool) or not isinstance(raw, (int, str)):
+        reader.fail("[target]", place, f"'given_joint' is {_a_kind(raw)}",
+                    f"a joint number from 1 to {len(joints)} or a joint name")
+    if isinstance(raw, str):
+        if raw not in names:
+            reader.fail("[target]", place, f"'given_joint' names no joint ({quote(raw)})",
+                        "one of the joint names: " + ", ".join(names))
+        return names[raw]
+    if not 1 <= raw <= len(joints):
+        reader.fail("[target]", place, f"'given_joint' is {raw}", f"a joint number from 1 to {len(joints)}")
+    return raw
 
 
 def _read_frame(reader: _Reader, data: dict, key: str, angle_scale) -> sp.ImmutableMatrix:

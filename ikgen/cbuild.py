@@ -22,7 +22,7 @@ import numpy as np
 
 from .backends import c as c_backend
 from .backends.common import environment
-from .cwrapper import SolutionReader, limits_mode, pose_entries, real, vector, wanted_config
+from .cwrapper import CRITERIA, SolutionReader, given_arguments, limits_mode, pose_entries, real, vector, wanted_config
 from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
@@ -47,6 +47,8 @@ class CSolver:
         self.max_solutions = max_solutions(arm, plan)
         self.conditions = len(plan.condition_blocks)
         self.dof = arm.dof
+        self.given = arm.given_joint
+        self.given_step = c_backend.common.given_plan(arm).step if arm.given_joint else None
         self._forward = getattr(self.lib, f"{self.prefix}_forward")
         self._inverse = getattr(self.lib, f"{self.prefix}_inverse")
         self._many = getattr(self.lib, f"{self.prefix}_inverse_many")
@@ -98,12 +100,35 @@ class CSolver:
         solutions = self._reader.read(self._solutions, count)
         return (solutions, self.STATUS_NAMES[self.status()]) if with_status else solutions
 
-    def inverse(self, pose, current=None, limits="drop", with_status=False) -> list[tuple]:
-        """The Python back-end's inverse(): (joints, config, singular, conditioning, within_limits)."""
+    def inverse(self, pose, *args, **kwargs) -> list[tuple]:
+        """The Python back-end's inverse(pose, [given,] current=None, limits="drop", with_status=False):
+        (joints, config, singular, conditioning, within_limits) per solution."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        return self._inverse_pose(pose, given, *args, **kwargs)
+
+    def _inverse_pose(self, pose, given, current=None, limits="drop", with_status=False) -> list[tuple]:
         flat, _keep_pose = self._pose_array(pose)
         hint, _keep = self._joints_pointer(current)
-        count = self._inverse(flat, hint, limits_mode(limits), self._solutions, self._status)
+        count = self._inverse(flat, *given, hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
+
+    def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
+                     limits="drop"):
+        """The C choose_given: (reading, solution) best by ``criterion``, or None."""
+        if criterion not in CRITERIA:
+            raise ValueError(f"criterion must be one of {', '.join(CRITERIA)}, not {criterion!r:.80}")
+        if criterion == "nearest" and current is None:
+            raise ValueError(f"criterion 'nearest' needs current: a sequence of {self.dof} real numbers")
+        step = self.given_step if step is None else real(step, "step")
+        flat = self._flat_pose(pose)
+        here, _keep1 = self._joints_pointer(current)
+        w, _keep2 = self._joints_pointer(weights, "weights")
+        best = self.ffi.new(f"{self.prefix}_solution *")
+        value = self.ffi.new(f"{self.scalar.name} *")
+        found = getattr(self.lib, f"{self.prefix}_choose_given")(
+            self._pointer(flat), here, w, self.wanted(config), CRITERIA.index(criterion), step, limits_mode(limits),
+            best, value, self._status)
+        return (float(value[0]), self._reader.read(best, 1)[0]) if found else None
 
     def _vector(self, values, what="point") -> np.ndarray:
         return np.array(vector(values, 3, what), dtype=self.dtype)
@@ -146,25 +171,35 @@ class CSolver:
             signs[index] = 1 if value == positive else -1
         return self.ffi.new("signed char[]", signs)
 
-    def nearest(self, pose, current, weights=None, config=None, limits="drop") -> tuple | None:
+    def nearest(self, pose, *args, **kwargs) -> tuple | None:
+        """nearest(pose, [given,] current, weights=None, config=None, limits="drop")."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        return self._nearest(pose, given, *args, **kwargs)
+
+    def _nearest(self, pose, given, current, weights=None, config=None, limits="drop") -> tuple | None:
         flat = self._flat_pose(pose)
         if current is None:
             raise ValueError(f"current must be a sequence of {self.dof} real numbers, not None")
         here, _keep1 = self._joints_pointer(current)
         w, _keep2 = self._joints_pointer(weights, "weights")
         best = self.ffi.new(f"{self.prefix}_solution *")
-        found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), here, w, self.wanted(config),
+        found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), *given, here, w, self.wanted(config),
                                                             limits_mode(limits), best, self._status)
         return self._tuple(best[0]) if found else None
 
-    def sort_nearest(self, pose, current, weights=None, limits="drop") -> list[tuple]:
-        """inverse() then the C sort by distance from ``current``."""
+    def sort_nearest(self, pose, *args, **kwargs) -> list[tuple]:
+        """inverse() then the C sort by distance from ``current``: sort_nearest(pose, [given,] current,
+        weights=None, limits="drop")."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        return self._sort_nearest(pose, given, *args, **kwargs)
+
+    def _sort_nearest(self, pose, given, current, weights=None, limits="drop") -> list[tuple]:
         flat = self._flat_pose(pose)
         if current is None:
             raise ValueError(f"current must be a sequence of {self.dof} real numbers, not None")
         here, _keep1 = self._joints_pointer(current)
         w, _keep2 = self._joints_pointer(weights, "weights")
-        count = self._inverse(self._pointer(flat), here, limits_mode(limits), self._solutions, self._status)
+        count = self._inverse(self._pointer(flat), *given, here, limits_mode(limits), self._solutions, self._status)
         getattr(self.lib, f"{self.prefix}_sort_nearest")(self._solutions, count, here, w)
         return [self._tuple(self._solutions[k]) for k in range(count)]
 
@@ -172,15 +207,22 @@ class CSolver:
         """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not realisable."""
         return int(self._status[0])
 
-    def inverse_many(self, poses, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """(joints N x max x dof, counts N, labels N x max x labels (+1/-1), singular N x max) for N x 4 x 4 poses."""
+    def inverse_many(self, poses, given=None, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """(joints N x max x dof, counts N, labels N x max x labels (+1/-1), singular N x max) for N x 4 x 4
+        poses (and N readings of the given joint, for an arm that has one)."""
         poses = np.ascontiguousarray(np.asarray(poses, dtype=self.dtype).reshape(-1, 16))
         n = poses.shape[0]
+        extra = ()
+        if self.given is not None:
+            if given is None:
+                raise ValueError(f"given must be {n} readings of the given joint {self.given}, not None")
+            values = np.ascontiguousarray(np.broadcast_to(np.asarray(given, dtype=self.dtype), (n,)))
+            extra = (self._pointer(values),)
         joints = np.zeros((n, self.max_solutions, self.dof), dtype=self.dtype)
         counts = np.zeros(n, dtype=np.int32)
         labels = np.zeros((n, self.max_solutions, max(len(self.labels), 1)), dtype=np.int8)
         singular = np.zeros((n, self.max_solutions), dtype=np.int32)
-        self._many(n, self._pointer(poses), limits_mode(limits), self._pointer(joints),
+        self._many(n, self._pointer(poses), *extra, limits_mode(limits), self._pointer(joints),
                    self.ffi.cast("int *", self.ffi.from_buffer(counts)),
                    self.ffi.cast("signed char *", self.ffi.from_buffer(labels)),
                    self.ffi.cast("int *", self.ffi.from_buffer(singular)))
@@ -233,6 +275,7 @@ def _build(cffi, arm: Arm, derivation: Derivation, scalar, scratch: Path, module
     from .backends.common import lower, max_solutions
     plan = lower(derivation)
     context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
+               "GP": f"{scalar.name} given, " if arm.given_joint else "",
                "conditions": max(len(plan.condition_blocks), 1), "labels": max(len(plan.labels), 1),
                "target": derivation.target.kind if derivation.target else "pose"}
     env = environment()

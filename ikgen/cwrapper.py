@@ -93,6 +93,22 @@ def pose_entries(pose):
     return [v for row in rows for v in row] + [0.0, 0.0, 0.0, 1.0]
 
 
+def given_arguments(has_given, args, kwargs):
+    """(given, args, kwargs): a solver of an arm with a given joint takes that joint's reading right
+    after the pose (positionally or as ``given=``); the rest of the call is returned unchanged."""
+    if not has_given:
+        return (), args, kwargs
+    if args:
+        return (real(args[0], "given"),), args[1:], kwargs
+    if "given" in kwargs:
+        kwargs = dict(kwargs)
+        return (real(kwargs.pop("given"), "given"),), args, kwargs
+    raise ValueError("given must be the given joint's reading (a real number), right after the pose")
+
+
+CRITERIA = ("nearest", "limits", "conditioning")
+
+
 def limits_mode(limits):
     """The C limits mode; ValueError unless 'drop', 'flag' or 'ignore'."""
     if not isinstance(limits, str) or limits not in LIMIT_MODES:
@@ -220,6 +236,7 @@ class CompiledSolver:
         self.labels = [tuple(values) for values in spec["LABEL_VALUES"]]
         self.conditions = len(spec["CONDITION_NAMES"])
         self.status_names = tuple(spec.get("STATUS_NAMES", ("ok", "unreachable", "invalid_input")))
+        self.given = spec.get("GIVEN_JOINT")
         self._pose_type = ffi.typeof(f"{self.real}[16]")
         self._vector_type = ffi.typeof(f"{self.real}[3]")
         self._joints_type = ffi.typeof(f"{self.real}[{self.dof}]")
@@ -258,8 +275,32 @@ class CompiledSolver:
         solutions = self._reader.read(out, count)
         return (solutions, self.status_names[status[0]]) if with_status else solutions
 
-    def inverse(self, pose, current=None, limits="drop", with_status=False):
-        return self._run(self._inverse, (self._pose(pose),), current, limits, with_status)
+    def inverse(self, pose, *args, **kwargs):
+        """inverse(pose, [given,] current=None, limits="drop", with_status=False)."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        return self._inverse_pose(pose, given, *args, **kwargs)
+
+    def _inverse_pose(self, pose, given, current=None, limits="drop", with_status=False):
+        return self._run(self._inverse, (self._pose(pose), *given), current, limits, with_status)
+
+    def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
+                     limits="drop", wanted=None):
+        """(reading, Solution) best by ``criterion`` (the generated Python solver's choose_given), or None."""
+        if criterion not in CRITERIA:
+            raise ValueError(f"criterion must be one of {', '.join(CRITERIA)}, not {criterion!r:.80}")
+        if criterion == "nearest" and current is None:
+            raise ValueError(f"criterion 'nearest' needs current: a sequence of {self.dof} real numbers")
+        step = self.spec["GIVEN_STEP"] if step is None else real(step, "step")
+        if not 0.0 < step < math.inf:
+            raise ValueError(f"step must be a positive finite number, not {step!r:.80}")
+        best = self.ffi.new(f"{self.spec['prefix']}_solution *")
+        value = self.ffi.new(f"{self.real} *")
+        status = self.ffi.new(self._status_type)
+        weights = self.ffi.NULL if weights is None else self._array(weights, self.dof, "weights")
+        found = getattr(self.lib, f"{self.spec['prefix']}_choose_given")(
+            self._pose(pose), self._current(current), weights, wanted if wanted is not None else self.ffi.NULL,
+            CRITERIA.index(criterion), step, limits_mode(limits), best, value, status)
+        return (float(value[0]), self._reader.read(best, 1)[0]) if found else None
 
     def _vector(self, values, what):
         return self.ffi.new(self._vector_type, vector(values, 3, what))
@@ -313,7 +354,12 @@ def _bind(namespace, spec_path):
     solver = CompiledSolver(spec, _load_extension(os.path.dirname(spec_path), spec["extension"]))
     label_names = tuple(spec["LABEL_NAMES"])
 
-    def nearest(pose, current, weights=None, config=None, limits="drop"):
+    def nearest(pose, *args, **kwargs):
+        """nearest(pose, [given,] current, weights=None, config=None, limits="drop")."""
+        given, args, kwargs = given_arguments(solver.given, args, kwargs)
+        return _nearest(pose, given, *args, **kwargs)
+
+    def _nearest(pose, given, current, weights=None, config=None, limits="drop"):
         """The solution closest to ``current`` (of configuration ``config`` if given: a dict such
         as {"elbow": "elbow_up"} or a sequence with None for 'any'), or None when there is none."""
         current = readings(current, solver.dof)
@@ -321,7 +367,7 @@ def _bind(namespace, spec_path):
         if weights is not None:
             weights = vector(weights, solver.dof, "weights")
         best, best_distance = None, 0.0
-        for solution in solver.inverse(pose, current, limits):
+        for solution in solver.inverse(pose, *given, current, limits):
             if not _matches(solution[1], config, label_names):
                 continue
             d = distance(solution[0], current, weights)
@@ -335,6 +381,21 @@ def _bind(namespace, spec_path):
                 if isinstance(value, list) else value
     namespace.update(forward=solver.forward, inverse=solver.inverse, nearest=nearest, ffi=solver.ffi,
                      lib=solver.lib, solver=solver)
+    if solver.given is not None:
+        def choose_given(pose, current=None, criterion="nearest", weights=None, config=None, step=None, limits="drop"):
+            """(reading, Solution): the given joint's reading and solution best by ``criterion`` (see
+            the generated Python solver), or None."""
+            config = wanted_config(config, label_names, spec["LABEL_VALUES"])
+            wanted = None
+            if config is not None:
+                items = config.items() if isinstance(config, dict) else zip(label_names, config)
+                signs = [0] * len(label_names)
+                for name, value in items:
+                    if value is not None:
+                        signs[label_names.index(name)] = 1 if value == spec["LABEL_VALUES"][label_names.index(name)][0] else -1
+                wanted = solver.ffi.new("signed char[]", signs)
+            return solver.choose_given(pose, current, criterion, weights, None, step, limits, wanted)
+        namespace["choose_given"] = choose_given
     for name, function in solver._natural.items():      # the target's own inputs, where the C has them
         if function is not None:
             namespace[name] = getattr(solver, name)

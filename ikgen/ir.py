@@ -251,6 +251,12 @@ class JointOutput:
     direction: int
     scale: sp.Expr              # radians per reading unit
     prismatic: bool = False
+    given: bool = False         # the caller gives this joint's reading (GIVEN_SYMBOL); it is returned as given
+
+
+# The reading of a given joint (an arm with one joint more than its target's freedoms) in the
+# generated code: an input beside the pose.
+GIVEN_SYMBOL = sp.Symbol("given", real=True)
 
 
 Step = Compute | CosSinEquation | LinearPair | AngleSum | CirclePolynomial | LinearLength | QuadraticLength
@@ -297,7 +303,9 @@ class Derivation:
         for label in self.labels:
             lines.append(f"label {label.name}: {label.positive} if {label.measure} >= 0 else {label.negative}")
         for out in self.outputs:
-            if out.prismatic:
+            if out.given:
+                lines.append(f"output joint {out.joint} '{out.name}': the given reading")
+            elif out.prismatic:
                 lines.append(f"output joint {out.joint} '{out.name}': (l{out.joint} - ({out.zero})) * {out.direction}")
             else:
                 lines.append(f"output joint {out.joint} '{out.name}': wrap(th{out.joint} - ({out.zero})) "

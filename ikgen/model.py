@@ -80,6 +80,13 @@ class Arm:
     digest: str = ""            # sha256 of the source bytes
     notes: tuple[str, ...] = field(default=())
     target: Target | None = None   # None: the natural target for the structure (engine/targets.py)
+    given_joint: int | None = None  # a joint whose reading the caller gives (an arm with one joint more
+                                    # than its target has freedoms); None: every joint is solved for
+
+    @property
+    def solved_joints(self) -> tuple[Joint, ...]:
+        """The joints the solver finds (every joint but the given one)."""
+        return tuple(j for j in self.joints if j.index != self.given_joint)
 
     @property
     def dof(self) -> int:
@@ -119,8 +126,8 @@ class Arm:
         rule of the generated solvers' turn tables, backends.common.joint_turns.)"""
         counts = []
         for joint, (low, high) in zip(self.joints, self.limits_in_readings()):
-            if not joint.revolute:
-                counts.append(1)
+            if not joint.revolute or joint.index == self.given_joint:
+                counts.append(1)          # a slide, or a reading the caller gives (kept as given)
                 continue
             turn = 360.0 if self.angle_unit == "deg" else 2 * math.pi
             span = float(high - low)

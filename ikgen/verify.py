@@ -169,7 +169,17 @@ def jacobian_distance(chain: NumericChain, readings: np.ndarray) -> np.ndarray:
         jac = np.concatenate([linear, np.cross(angular, direction[:, None, :])], axis=2)
     else:
         jac = np.concatenate([linear, angular], axis=2)      # (N, dof, 6): columns as rows
+    if chain.arm.given_joint is not None:                    # the given joint does not move: its column goes
+        jac = np.delete(jac, chain.arm.given_joint - 1, axis=1)
     return np.linalg.svd(jac, compute_uv=False)[:, -1]
+
+
+def given_of(arm: Arm, readings) -> tuple:
+    """The arguments a solver takes beside the pose: the given joint's reading from ``readings``
+    (a joint vector), or nothing when the arm has no given joint."""
+    if arm.given_joint is None:
+        return ()
+    return (float(readings[arm.given_joint - 1]),)
 
 
 def angle_gap(a: np.ndarray, b: np.ndarray, arm: Arm) -> np.ndarray:
@@ -253,7 +263,7 @@ def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: b
     last_report = time.perf_counter()
     missing_examples = []
     for index in range(samples):
-        solutions = module.inverse(poses[index])
+        solutions = module.inverse(poses[index], *given_of(arm, readings[index]))
         result.counts[len(solutions)] = result.counts.get(len(solutions), 0) + 1
         joints = [list(s[0]) for s in solutions]
         all_joints += joints
@@ -346,15 +356,15 @@ def check_unreachable(arm: Arm, chain: NumericChain, module, rng, result: Verifi
     directions /= np.linalg.norm(directions, axis=1)[:, None]
     poses[:, :3, 3] += 3.0 * arm.reach_scale() * directions
     bad = 0
-    for pose in poses:
-        solutions = module.inverse(pose)
+    for pose, source in zip(poses, readings):
+        solutions = module.inverse(pose, *given_of(arm, source))
         bad += bool(solutions)
     result.unreachable_tested = count
     result.unreachable_ok = count - bad
     if bad:
         result.failures.append(f"{bad} of {count} unreachable poses returned solutions")
     for pose in (np.full((4, 4), np.nan), np.where(np.eye(4) > 0, np.inf, 0.0)):
-        if module.inverse(pose):
+        if module.inverse(pose, *given_of(arm, readings[0])):
             result.failures.append("a pose with NaN or infinity returned solutions")
 
 
@@ -398,6 +408,8 @@ def singular_kind(spec) -> tuple[str, tuple[int, ...]]:
         s = spec.geometry[1]
         return "elbow fully stretched or folded", (s, s - 1)
     _, i, j, k = spec.geometry
+    if spec.name == "elbow_bend":
+        return "elbow fully stretched or folded (axes 3 and 5 aligned)", (j - 1, i - 1, k - 1)
     if spec.name == "base_bend":
         return "axes 1 and 3 aligned", (j - 1, i - 1, k - 1)
     other = f"axis {k}" if isinstance(k, int) else f"the tool's {k} axis"
@@ -444,7 +456,7 @@ def check_near_singular(arm: Arm, chain: NumericChain, module, result: Verificat
         moved = point.copy()
         moved[joint] += step * unit / arm.reading_scales()[joint]
         pose = chain.pose(moved)
-        solutions = [s for s in module.inverse(pose, list(moved)) if np.all(np.isfinite(s[0]))]
+        solutions = [s for s in module.inverse(pose, *given_of(arm, moved), list(moved)) if np.all(np.isfinite(s[0]))]
         if solutions:
             pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
             record_round_trips(result, [smallest_measure(s) for s in solutions], pos, rot, arm.reach_scale())
@@ -475,7 +487,7 @@ def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verificat
             check_near_singular(arm, chain, module, result, point, crossing)
             tested += 1
             pose = chain.pose(point)
-            solutions = module.inverse(pose, list(point))
+            solutions = module.inverse(pose, *given_of(arm, point), list(point))
             found = [list(s[0]) for s in solutions]
             if not found or not np.all(np.isfinite(found)):
                 continue

@@ -45,7 +45,8 @@ def render(arm: Arm, derivation: Derivation) -> str:
         singular_terms=terms(plan.singular_terms, BATCH_TERMS),
         mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else [],
         target=common.target_plan(arm, derivation), tolerances=python_backend.tolerances("double"),
-        arm_angle_scale=repr(float(arm.angle_scale))))
+        arm_angle_scale=repr(float(arm.angle_scale)), given=common.given_plan(arm),
+        ga=", given" if arm.given_joint else ""))
 
 
 BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "double_root": "dbl{}", "root": "(root{} > 0.0)",

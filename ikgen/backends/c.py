@@ -118,6 +118,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         # rounding near a tangency of a polynomial's roots reaches about 2e-3 (measured on canted6)
         pair_tolerance=1e-4 if scalar.name == "double" else 5e-3,
         target=common.target_plan(arm, derivation), angle_scale=float(arm.angle_scale),
+        given=common.given_plan(arm), GP=f"{scalar.name} given, " if arm.given_joint else "",
+        GA="given, " if arm.given_joint else "",
         tolerances={"tilt": common.TILT_TOLERANCE[scalar.name], "roll": common.ROLL_TOLERANCE[scalar.name],
                     "unit": common.UNIT_TOLERANCE[scalar.name]})
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
@@ -136,7 +138,7 @@ def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, c
     import numpy as np
 
     from ..kinematics import NumericChain
-    from ..verify import angle_gap, jacobian_distance, random_readings
+    from ..verify import angle_gap, given_of, jacobian_distance, random_readings
     chain = NumericChain(arm)
     rng = np.random.default_rng(seed)
     vectors = []
@@ -145,7 +147,7 @@ def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, c
         """The smallest conditioning measure of the solution equal to the source (-1: not found)."""
         if solver is None:
             return 1.0
-        for solution in solver.inverse(pose, limits="ignore"):
+        for solution in solver.inverse(pose, *given_of(arm, q), limits="ignore"):
             if angle_gap(np.array([solution[0]]), q, arm).max() < 1e-6:
                 return min(solution[3], default=1.0)
         return -1.0
@@ -179,6 +181,7 @@ def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, c
     slide_tolerance = float(f"{(1e-6 if double else 1e-3) * scale:.3g}")
     context = dict(arm=arm, names=n, real=scalar.name, num=printer.number, fn=scalar.fn,
                    comment=common.comment_text, vectors=vectors, generator=common.GENERATOR,
+                   given=common.given_plan(arm),
                    turns=[(360.0 if arm.angle_unit == "deg" else 2 * np.pi) if j.revolute else 0.0
                           for j in arm.joints],
                    # float32 carries about 7 significant digits (IEEE 754 binary32)

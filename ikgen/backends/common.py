@@ -191,6 +191,7 @@ class OutputPlan:
     prismatic: bool = False
     low: float = 0.0             # a slide's stroke in reading units, widened by 1e-9 of its range:
     high: float = 0.0            # a displacement outside it is no solution (strokes define reach)
+    given: bool = False          # the caller's reading (GIVEN_SYMBOL) is returned as it is
 
 
 @dataclass
@@ -230,7 +231,12 @@ class Plan:
 
     @property
     def strokes(self) -> list["OutputPlan"]:
-        return [o for o in self.outputs if o.prismatic]
+        return [o for o in self.outputs if o.prismatic and not o.given]
+
+    @property
+    def given(self) -> "OutputPlan | None":
+        """The output of the joint whose reading the caller gives, or None."""
+        return next((o for o in self.outputs if o.given), None)
 
     @property
     def has_poly(self) -> bool:
@@ -441,6 +447,10 @@ def lower_now(derivation: Derivation) -> Plan:
     final_temps, label_measures = eliminate(label_exprs, "tl_")
     outputs = []
     for out in derivation.outputs:
+        if out.given:
+            outputs.append(OutputPlan(out.joint, float(out.zero), 1.0, out.direction, float(out.scale), 0,
+                                      out.prismatic, given=True))
+            continue
         if out.prismatic:
             low, high = derivation.strokes[out.joint]
             outputs.append(OutputPlan(out.joint, float(out.zero), float(out.direction), out.direction, 1.0, 0,
@@ -609,7 +619,8 @@ def drop_unused(plan: Plan) -> None:
     live: set = set()
     for e in [a.expr for a in plan.final_temps] + list(plan.label_measures):
         live |= sp.sympify(e).free_symbols
-    live |= {length_symbol(out.joint) if out.prismatic else angle_symbol(out.joint) for out in plan.outputs}
+    live |= {length_symbol(out.joint) if out.prismatic else angle_symbol(out.joint) for out in plan.outputs
+             if not out.given}
     kept = []
     for block in reversed(plan.blocks):
         if block.kind == "compute":
@@ -654,6 +665,8 @@ def joint_turns(arm: Arm) -> list[TurnPlan]:
     out = []
     for joint, (low, high) in zip(arm.joints, arm.limits_in_readings()):
         turn = (360.0 if arm.angle_unit == "deg" else 2 * math.pi) if joint.revolute else 0.0
+        if joint.index == arm.given_joint:
+            turn = 0.0           # the caller's reading is kept as given: only its limits are checked
         eps = 1e-9 * max(1.0, high - low)
         # a range of exactly one turn (-180..180) is single-turn: its two ends are one position
         multi = bool(turn) and high - low > turn * (1 + 1e-9)
@@ -661,6 +674,30 @@ def joint_turns(arm: Arm) -> list[TurnPlan]:
         count = int((high - low) // turn) + 1 if multi else 1
         out.append(TurnPlan(turn, low, high, multi, count))
     return out
+
+
+@dataclass
+class GivenPlan:
+    """The joint whose reading the caller gives: its number, name, reading unit and the choice
+    helpers' default scan step (1 degree, or a hundredth of a slide's stroke)."""
+    joint: int
+    name: str
+    unit: str
+    step: float
+    low: float
+    high: float
+
+
+def given_plan(arm: Arm) -> GivenPlan | None:
+    if arm.given_joint is None:
+        return None
+    joint = arm.joints[arm.given_joint - 1]
+    low, high = (float(v) for v in arm.limits_in_readings()[joint.index - 1])
+    if joint.revolute:
+        step = 1.0 if arm.angle_unit == "deg" else math.pi / 180
+    else:
+        step = (high - low) / 100
+    return GivenPlan(joint.index, comment_text(joint.name), arm.reading_unit(joint), step, low, high)
 
 
 def max_solutions(arm: Arm, plan: Plan) -> int:

@@ -65,7 +65,8 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
         within_test=within_test(arm), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
-        target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"])))
+        target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
+        given=common.given_plan(arm), ga=", given" if arm.given_joint else ""))
 
 
 TARGET_API = {

@@ -481,12 +481,12 @@ def verification_summary(arm: Arm, module, samples: int = REPORT_SAMPLES, seed: 
             "passed": result.passed, "failures": list(result.failures)}
 
 
-def closed_form_solutions(module, pose) -> list:
-    """Every closed-form solution of ``pose``, whatever the joint limits (a solver that filters by
-    limits is asked not to)."""
+def closed_form_solutions(module, pose, given: tuple = ()) -> list:
+    """Every closed-form solution of ``pose`` (with the given joint's reading, for an arm that has
+    one), whatever the joint limits (a solver that filters by limits is asked not to)."""
     if "limits" in inspect.signature(module.inverse).parameters:
-        return module.inverse(pose, limits="ignore")
-    return module.inverse(pose)
+        return module.inverse(pose, *given, limits="ignore")
+    return module.inverse(pose, *given)
 
 
 def within_limits(arm: Arm, readings) -> bool:
@@ -514,7 +514,8 @@ def sample_pose(arm: Arm, derivation: Derivation, module, seed: int = POSE_SEED,
     for _ in range(draws):
         readings = limits[:, 0] + (0.2 + 0.6 * rng.random(arm.dof)) * (limits[:, 1] - limits[:, 0])
         pose = chain.pose(readings)
-        solutions = closed_form_solutions(module, pose)
+        from ..verify import given_of
+        solutions = closed_form_solutions(module, pose, given_of(arm, readings))
         score = (len(solutions), sum(within_limits(arm, s[0]) for s in solutions))
         if best_score is None or score > best_score:
             best, best_score = (readings, pose, solutions), score

@@ -16,10 +16,10 @@ import sympy as sp
 
 from ..analysis import describe_axes
 from ..errors import StructureError
-from ..ir import CirclePolynomial, CosSinEquation, Derivation, JointOutput, QuadraticLength
+from ..ir import GIVEN_SYMBOL, CirclePolynomial, Compute, CosSinEquation, Derivation, JointOutput, QuadraticLength
 from ..model import Arm
 from .context import make_setup
-from .targets import check_independent, resolve as resolve_target
+from .targets import check_given, check_independent, resolve as resolve_target
 from .labels import MEANINGS, build_labels, plan_labels, root_label
 from .mirror import attach_mirror
 from .solver import Solver, free_symbols_of
@@ -28,6 +28,7 @@ from .strategies import STRATEGIES
 def derive(arm: Arm) -> Derivation:
     target = resolve_target(arm)
     check_independent(arm)
+    check_given(arm, target)
     setup = make_setup(arm, target)
     findings = [(strategy, strategy.recognise(arm, target)) for strategy in STRATEGIES]
     applied = [(s, f) for s, f in findings if f.applies]
@@ -44,8 +45,12 @@ def derive(arm: Arm) -> Derivation:
                     branch_namer(specs), constant_symbols=setup.chain.parameters)
     for step in setup.steps:
         solver.steps.append(step)
+    if arm.given_joint is not None:
+        solver.steps.append(given_step(arm, setup))
+        solver.solved.append(str(arm.given_joint))
+        solver.emitted.add(str(arm.given_joint))
     try:
-        solver.solve([str(j.index) for j in arm.joints])
+        solver.solve([str(j.index) for j in arm.solved_joints])
     except StructureError as exc:
         raise StructureError(refusal(arm, findings, str(exc))) from None
     setup.labels += root_labels(solver.steps, {l.name for l in setup.labels}, unknowns)
@@ -56,8 +61,10 @@ def derive(arm: Arm) -> Derivation:
     steps = attach_mirror(steps, setup.labels, solver.circles)
     solved = {step.key for step in steps if hasattr(step, "key")}
     used = set().union(*(free_symbols_of(s) for s in steps)) | set().union(*(l.measure.free_symbols for l in setup.labels))
-    outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale) if j.revolute else
-               JointOutput(j.index, j.name, j.d + j.offset, j.direction, sp.Integer(1), prismatic=True)
+    outputs = [JointOutput(j.index, j.name, j.theta + j.offset, j.direction, arm.exact_angle_scale,
+                           given=j.index == arm.given_joint) if j.revolute else
+               JointOutput(j.index, j.name, j.d + j.offset, j.direction, sp.Integer(1), prismatic=True,
+                           given=j.index == arm.given_joint)
                for j in arm.joints]
     solutions = 1
     for step in steps:
@@ -72,6 +79,22 @@ def derive(arm: Arm) -> Derivation:
                       unknowns={k: u.members for k, u in unknowns.items()
                                 if u.is_joint or k in solved or used & {u.cos, u.sin, u.angle}},
                       strokes=strokes(arm), target=target)
+
+
+def given_step(arm: Arm, setup) -> Compute:
+    """The given joint's DH variable (angle with its cosine and sine, or displacement) from the
+    caller's reading GIVEN_SYMBOL; every later step reads it as known."""
+    joint = arm.joints[arm.given_joint - 1]
+    unknown = setup.chain.unknowns[joint.index - 1]
+    zero = joint.theta + joint.offset if joint.revolute else joint.d + joint.offset
+    gain = joint.direction * (arm.exact_angle_scale if joint.revolute else 1)
+    readings = (setup.samples.angles[:, joint.index - 1] - float(zero)) / float(gain)
+    setup.samples.define(GIVEN_SYMBOL, readings)
+    words = f"joint {joint.index} '{joint.name}' is given: its DH variable from the caller's reading"
+    if not joint.revolute:
+        return Compute((unknown.length,), (zero + gain * GIVEN_SYMBOL,), words)
+    return Compute((unknown.angle, unknown.cos, unknown.sin),
+                   (zero + gain * GIVEN_SYMBOL, sp.cos(unknown.angle), sp.sin(unknown.angle)), words)
 
 
 def first_root_first(step, labels, samples):

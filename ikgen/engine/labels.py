@@ -47,6 +47,7 @@ LABEL_VALUES = {"reach": ("reach_forward", "reach_backward"),
                 "elbow": ("elbow_up", "elbow_down"),
                 "elbow_turn": ("counterclockwise", "clockwise"),
                 "wrist_bend": ("bend_positive", "bend_negative"),
+                "elbow_bend": ("bend_positive", "bend_negative"),
                 "base_bend": ("bend_positive", "bend_negative")}
 ROOT_VALUES = ("root_plus", "root_minus")
 
@@ -66,6 +67,9 @@ MEANINGS = {
                   "tool's direction in place of axis 6 on a five-joint arm); with the usual orthogonal wrist, the "
                   "sign of the middle wrist joint's sine",
     "base_bend": "bend_positive: (z1 x z3) . z2 >= 0 for the directions of axes 1, 2, 3",
+    "elbow_bend": "bend_positive: (z3 x z5) . z4 >= 0 for the directions of axes 3, 4, 5 of a seven-joint arm (the "
+                  "elbow between the upper arm's and the forearm's axes); it changes only where axes 3 and 5 are "
+                  "parallel (the elbow fully stretched or folded)",
 }
 
 
@@ -96,6 +100,8 @@ def plan_labels(arm, target) -> list[LabelSpec]:
         return relate(arm, i, j, origins, directions).kind in ("parallel", "coincident")
 
     specs: list[LabelSpec] = []
+    if target.kind == "pose" and n == 7:
+        return _seven_joint_labels(arm, revolute)
     if target.kind == "pose" and n == 6:
         if not check_wrist(arm, 4).meets and all(revolute[:3]) and check_wrist(arm, 1).meets:
             specs.append(LabelSpec("base_bend", ("bend", 1, 2, 3), ("2",)))
@@ -115,6 +121,20 @@ def plan_labels(arm, target) -> list[LabelSpec]:
             break
     if target.kind == "point_and_direction" and n == 5 and revolute[3] and revolute[4]:
         specs.append(LabelSpec("wrist_bend", ("bend", 4, 5, target.tool_axis), ("5", "4")))
+    return specs
+
+
+def _seven_joint_labels(arm, revolute) -> list[LabelSpec]:
+    """A seven-joint arm with one joint given: the bends of its shoulder (axes 1-3 meeting), elbow
+    (joint 4 between axes 3 and 5) and wrist (axes 5-7 meeting) where those joints are solved for."""
+    given = str(arm.given_joint)
+    specs = []
+    if all(revolute[:3]) and check_wrist(arm, 1).meets and given != "2":
+        specs.append(LabelSpec("base_bend", ("bend", 1, 2, 3), tuple(k for k in ("2", "1", "3") if k != given)))
+    if revolute[3] and given != "4":
+        specs.append(LabelSpec("elbow_bend", ("bend", 3, 4, 5), ("4",)))
+    if all(revolute[4:]) and check_wrist(arm, 5).meets and given != "6":
+        specs.append(LabelSpec("wrist_bend", ("bend", 5, 6, 7), tuple(k for k in ("6", "5", "7") if k != given)))
     return specs
 
 

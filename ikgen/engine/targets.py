@@ -43,26 +43,36 @@ def common_axis(arm: Arm) -> tuple | None:
 
 def what_it_serves(arm: Arm) -> str:
     kinds = {6: "a full pose", 5: "a point and the direction of one tool axis", 3: "a point"}
-    if arm.dof == 4:
+    solved = len(arm.solved_joints)
+    if solved == 4:
         return ("a point and an angle about the axis all its joints turn or slide along"
                 if common_axis(arm) is not None else
                 "no target: four joints serve a point and an angle only when every joint axis is parallel")
-    return kinds.get(arm.dof, f"no target ikgen handles ({arm.dof} joints; 3 to 6 are handled)")
+    if solved == 7:
+        return "a full pose once one joint is given (the [target] key given_joint)"
+    return kinds.get(solved, f"no target ikgen handles ({solved} joints solved for; 3 to 6 are handled)")
 
 
 def resolve(arm: Arm) -> Target:
-    """The target the derivation solves for, checked against the arm."""
+    """The target the derivation solves for, checked against the arm (a given joint is not solved
+    for, so the target's freedoms must match the other joints)."""
     declared = arm.target
+    solved = len(arm.solved_joints)
+    given = "" if arm.given_joint is None else f" besides the given joint {arm.given_joint}"
     if declared is None:
-        natural = {6: "pose", 5: "point_and_direction", 4: "point_and_angle", 3: "point"}.get(arm.dof)
+        natural = {6: "pose", 5: "point_and_direction", 4: "point_and_angle", 3: "point"}.get(solved)
         if natural is None:
-            raise StructureError(f"arm '{arm.name}' has {arm.dof} joints; the derivation handles arms of 3 to 6 "
-                                 "joints (a point, a point and an angle, a point and a direction, or a pose), so "
+            if solved == 7:
+                raise StructureError(f"arm '{arm.name}' has 7 joints: a pose leaves one of them free, so one joint's "
+                                     "reading must be given by the caller ([target] given_joint = <number or name>, or "
+                                     "--given-joint); nothing was written")
+            raise StructureError(f"arm '{arm.name}' has {solved} joints{given} to solve for; the derivation handles 3 to "
+                                 "6 (a point, a point and an angle, a point and a direction, or a pose), so "
                                  "nothing was written")
         declared = Target(natural, None, "z", declared=False)
-    if TARGET_FREEDOMS[declared.kind] != arm.dof:
+    if TARGET_FREEDOMS[declared.kind] != solved:
         raise StructureError(
-            f"arm '{arm.name}' has {arm.dof} joints and the target '{declared.kind}' has "
+            f"arm '{arm.name}' has {solved} joints{given} to solve for and the target '{declared.kind}' has "
             f"{TARGET_FREEDOMS[declared.kind]} freedoms; a target needs as many joints as it has freedoms. This arm "
             f"serves {what_it_serves(arm)}, so nothing was written")
     if declared.kind == "point_and_angle":
@@ -111,3 +121,44 @@ def check_independent(arm: Arm) -> None:
                              f"'{second.name}' {same}, so the arm has fewer independent motions than joints and "
                              "a target has no finite set of solutions; nothing was written")
 
+
+
+def check_given(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> None:
+    """Refuse a given joint that leaves joints the target cannot be reached with: the Jacobian of
+    the other joints (columns of the target's freedoms) must have full rank at some generic
+    readings, else a pose's change in some direction needs the given joint and a generic pose has
+    no solution for most of its readings."""
+    rows = {"pose": slice(0, 6), "point": slice(0, 3)}.get(target.kind)
+    if arm.given_joint is None or rows is None:
+        return
+    chain = NumericChain(arm)
+    others = [j.index - 1 for j in arm.solved_joints]
+    best = 0.0
+    for k in range(samples):
+        readings = generic_readings(arm, seed + k)
+        jacobian = jacobian_of(chain, readings, arm.reach_scale())[rows, others]
+        values = np.linalg.svd(jacobian, compute_uv=False)
+        best = max(best, float(values[-1] / values[0]))
+    if best < 1e-9:
+        raise StructureError(f"arm '{arm.name}': with joint {arm.given_joint} given, the other joints cannot move the "
+                             "tool in every direction of the target (their Jacobian is rank-deficient at every "
+                             "sampled reading: a generic pose has no solution for most readings of the given "
+                             "joint), so nothing was written. Choose another given joint; `ikgen describe` lists "
+                             "the choices that work")
+
+
+def jacobian_of(chain: NumericChain, readings, length: float) -> np.ndarray:
+    """The 6 x n geometric Jacobian of the tool point (rows: linear velocity, then angular) at joint
+    readings, by differences of the forward kinematics (every joint kind alike)."""
+    pose = chain.pose(readings)
+    columns = []
+    step = 1e-6
+    for k in range(len(readings)):
+        moved = np.array(readings, dtype=float)
+        moved[k] += step
+        other = chain.pose(moved)
+        linear = (other[:3, 3] - pose[:3, 3]) / step
+        turn = (other[:3, :3] @ pose[:3, :3].T - np.eye(3)) / step
+        angular = np.array([turn[2, 1], turn[0, 2], turn[1, 0]])
+        columns.append(np.concatenate([linear / length, angular]))
+    return np.array(columns).T

@@ -33,9 +33,10 @@ class WristCentre:
 
     def recognise(self, arm, target):
         from . import Finding
-        if target.kind not in ("pose", "point_and_angle") or arm.dof != 6:
-            return Finding(False, [f"meeting axes decouple a full pose of a six-joint arm (this target: {target.kind}, "
-                                   f"{arm.dof} joints)"])
+        solved = len(arm.solved_joints)
+        if target.kind not in ("pose", "point_and_angle") or solved != 6:
+            return Finding(False, [f"meeting axes decouple a full pose of six joints to solve for (this target: "
+                                   f"{target.kind}, {solved} joints)"])
         first = self.first_axis(arm)
         if any(not j.revolute for j in arm.joints[first - 1:first + 2]):
             return Finding(False, [f"joints {first} to {first + 2} include a prismatic one"])
