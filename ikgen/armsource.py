@@ -13,7 +13,7 @@ import argparse
 from pathlib import Path
 
 from .armfile import load_arm
-from .errors import IkgenError
+from .errors import IkgenError, quote
 from .model import CONVENTIONS, Arm
 
 URDF_SUFFIX = ".urdf"
@@ -29,6 +29,10 @@ def add_arm_source_options(parser: argparse.ArgumentParser) -> None:
                        help="the link the chain ends at (default: the only leaf link below the root)")
     group.add_argument("--dh-convention", choices=CONVENTIONS, default=None,
                        help="DH convention of the converted table (default: standard)")
+    parser.add_argument("--given-joint", metavar="JOINT", default=None,
+                        help="the joint whose reading the caller gives (a number from 1, a joint name, or 'auto' "
+                             "for the first joint the derivation can take as given); for arms with one joint more "
+                             "than their target's freedoms, such as seven-axis arms; overrides [target] given_joint")
 
 
 def is_urdf(path: str | Path) -> bool:
@@ -55,7 +59,30 @@ def load_arm_sources(paths: list[str], args=None) -> list[Arm]:
                                       getattr(args, "dh_convention", None) or "standard"))
         else:
             arms.append(load_arm(path))
+    choice = getattr(args, "given_joint", None)
+    if choice is not None:
+        arms = [with_given_joint(arm, choice) for arm in arms]
     return arms
+
+
+def with_given_joint(arm: Arm, choice: str) -> Arm:
+    """``arm`` with the given joint chosen on the command line: a number, a joint name or 'auto'."""
+    import dataclasses
+    if choice == "auto":
+        from .engine import given_choices
+        good = [k for k, reason in given_choices(arm) if reason is None]
+        if not good:
+            raise IkgenError(f"--given-joint auto: no joint of arm '{arm.name}' can be given (the derivation refuses "
+                             "every choice; see `ikgen describe`); expected an arm with one joint more than its "
+                             "target's freedoms")
+        return dataclasses.replace(arm, given_joint=good[0])
+    names = {j.name: j.index for j in arm.joints}
+    if choice in names:
+        return dataclasses.replace(arm, given_joint=names[choice])
+    if choice.isdigit() and 1 <= int(choice) <= arm.dof:
+        return dataclasses.replace(arm, given_joint=int(choice))
+    raise IkgenError(f"--given-joint {quote(choice)}: arm '{arm.name}' has no such joint; expected a number from 1 to "
+                     f"{arm.dof}, a joint name ({', '.join(names)}) or 'auto'")
 
 
 def load_arm_source(path: str, args=None) -> Arm:

@@ -84,6 +84,12 @@ def cmd_describe(args) -> int:
     out(f"units        lengths in {arm.length_unit}, angles in {arm.angle_unit}")
     out(f"joints       {arm.dof}")
     out(f"target       {target_words(arm)}")
+    if arm.given_joint is not None or arm.dof == 7:
+        from .engine import choices_words, given_choices
+        given = (f"{arm.given_joint} '{arm.joints[arm.given_joint - 1].name}' (its reading is an input beside the "
+                 "pose)") if arm.given_joint is not None else "none chosen"
+        out(f"given joint  {given}")
+        out(f"choices      {choices_words(arm, given_choices(arm))}")
     out()
     unit = arm.angle_unit
     rows = []

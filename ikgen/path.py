@@ -413,6 +413,82 @@ def _distance(a, b, weights) -> float:
     return float(np.sqrt(np.sum(d * d if weights is None else weights * d * d)))
 
 
+GIVEN_WINDOW = 20   # reading units of the given joint searched on either side of its last reading
+GIVEN_SAMPLES = 21  # readings sampled in that window before a golden-section refinement
+
+
+class GivenFollower:
+    """The solver of an arm with a given joint (a seven-axis arm, say), for path solving: at each
+    pose the given joint's reading is the one whose nearest solution is closest to ``current``,
+    searched within ``window`` of its reading in ``current`` (a scan of GIVEN_SAMPLES readings,
+    then a golden-section refinement within one sample spacing), so the given joint moves
+    continuously and nothing else of path solving changes. When no reading in the window has a
+    solution, the whole range is scanned (choose_given), which may jump; the path then reports the
+    large step or the configuration change as usual. Other names are the module's."""
+
+    def __init__(self, module, window: float = GIVEN_WINDOW):
+        self.module = module
+        self.window = window
+        self.joint = module.GIVEN_JOINT - 1
+        self.low, self.high = module.JOINT_LIMITS[self.joint]
+
+    def __getattr__(self, name):
+        return getattr(self.module, name)
+
+    def nearest_at(self, pose, value, current, limits):
+        best = None
+        for solution in self.module.inverse(pose, value, current, limits):
+            d = _distance(solution[0], current, None)
+            if best is None or d < best:
+                best = d
+        return best
+
+    def choose(self, pose, current, limits) -> float | None:
+        """The given joint's reading for ``pose`` near ``current`` (None: no solution at all); a
+        best reading at the window's edge moves the window on (the best lies beyond it)."""
+        centre = float(current[self.joint])
+        for _ in range(20):
+            value = self.choose_within(pose, current, limits, centre)
+            edge = value is not None and (value <= centre - self.window + 1e-9 or value >= centre + self.window - 1e-9)
+            if not edge or not self.low < value < self.high:
+                return value
+            centre = value
+        return value
+
+    def choose_within(self, pose, current, limits, centre: float) -> float | None:
+        low, high = max(self.low, centre - self.window), min(self.high, centre + self.window)
+        if low > high:
+            low = high = min(max(centre, self.low), self.high)
+        grid = np.linspace(low, high, GIVEN_SAMPLES)
+        scores = [self.nearest_at(pose, float(g), current, limits) for g in grid]
+        found = [(d, float(g)) for d, g in zip(scores, grid) if d is not None]
+        if not found:
+            chosen = self.module.choose_given(pose, current, "nearest", limits=limits)
+            return None if chosen is None else chosen[0]
+        best_d, best_g = min(found)
+        spacing = (high - low) / (GIVEN_SAMPLES - 1)
+        a, b = max(low, best_g - spacing), min(high, best_g + spacing)
+        ratio = 0.6180339887498949
+        for _ in range(30):
+            x1, x2 = b - ratio * (b - a), a + ratio * (b - a)
+            d1, d2 = (self.nearest_at(pose, x, current, limits) for x in (x1, x2))
+            d1 = math.inf if d1 is None else d1
+            d2 = math.inf if d2 is None else d2
+            for d, x in ((d1, x1), (d2, x2)):
+                if d < best_d:
+                    best_d, best_g = d, x
+            if d1 <= d2:
+                b = x2
+            else:
+                a = x1
+        return best_g
+
+    def inverse(self, pose, current, limits="drop"):
+        """Every solution of ``pose`` at the given joint's reading chosen near ``current``."""
+        value = self.choose(pose, current, limits)
+        return [] if value is None else self.module.inverse(pose, value, current, limits)
+
+
 def solve_path(module, poses, start, weights=None, singular_threshold: float = SINGULAR_THRESHOLD,
                on_change: str = "stop", max_step: float | None = None, limits: str = "drop",
                joint_units=None, crossing_window: float = CROSSING_WINDOW) -> PathResult:

@@ -40,7 +40,11 @@ def solver_module(arm: Arm):
     from .backends import common, python as python_backend
     from .engine import derive as derive_arm
     from .generate import load_module
-    return load_module(python_backend.render(arm, derive_arm(arm)), common.identifier(arm.name) + "_ik")
+    module = load_module(python_backend.render(arm, derive_arm(arm)), common.identifier(arm.name) + "_ik")
+    if arm.given_joint is not None:
+        from .path import GivenFollower
+        return GivenFollower(module)
+    return module
 
 
 # -------------------------------------------------------------------------- option values

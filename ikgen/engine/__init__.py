@@ -26,6 +26,8 @@ from .solver import Solver, free_symbols_of
 from .strategies import STRATEGIES
 
 def derive(arm: Arm) -> Derivation:
+    if arm.given_joint is None and arm.dof == 7 and (arm.target is None or arm.target.kind == "pose"):
+        raise StructureError(seven_joint_refusal(arm))
     target = resolve_target(arm)
     check_independent(arm)
     check_given(arm, target)
@@ -79,6 +81,31 @@ def derive(arm: Arm) -> Derivation:
                       unknowns={k: u.members for k, u in unknowns.items()
                                 if u.is_joint or k in solved or used & {u.cos, u.sin, u.angle}},
                       strokes=strokes(arm), target=target)
+
+
+def given_choices(arm: Arm) -> list[tuple[int, str | None]]:
+    """For each joint k: (k, None) when the engine derives the arm with joint k given, else (k, the
+    first sentence of the refusal). Derives the arm once per joint (seconds each)."""
+    out = []
+    for joint in arm.joints:
+        try:
+            derive(dataclasses.replace(arm, given_joint=joint.index))
+            out.append((joint.index, None))
+        except StructureError as exc:
+            out.append((joint.index, str(exc).split(", so nothing")[0].split(". ")[0]))
+    return out
+
+
+def choices_words(arm: Arm, choices) -> str:
+    good = [f"{k} '{arm.joints[k - 1].name}'" for k, reason in choices if reason is None]
+    return ("joints that can be given: " + ", ".join(good)) if good else "no joint can be given"
+
+
+def seven_joint_refusal(arm: Arm) -> str:
+    choices = given_choices(arm)
+    return (f"arm '{arm.name}' has 7 joints: a pose leaves one of them free, so the caller must give one joint's "
+            f"reading ([target] given_joint = <number or name> in the arm file, or --given-joint N, or "
+            f"--given-joint auto for the first that works); {choices_words(arm, choices)}; nothing was written")
 
 
 def given_step(arm: Arm, setup) -> Compute:

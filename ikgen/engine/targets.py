@@ -148,17 +148,18 @@ def check_given(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> No
 
 
 def jacobian_of(chain: NumericChain, readings, length: float) -> np.ndarray:
-    """The 6 x n geometric Jacobian of the tool point (rows: linear velocity, then angular) at joint
-    readings, by differences of the forward kinematics (every joint kind alike)."""
-    pose = chain.pose(readings)
+    """The 6 x n geometric Jacobian of the tool point at joint readings (rows: linear velocity over
+    ``length``, then angular velocity; a revolute column is (z x (p - o), z), a prismatic one (z, 0)),
+    per unit of the joint's DH variable (Siciliano et al., Robotics: Modelling, Planning and Control,
+    2009, sec. 3.1.3)."""
+    frames = chain.frames(np.asarray(readings, dtype=float)[None, :])[0]
+    point = (frames[-1] @ chain.tool)[:3, 3]
+    chosen = frames[:-1] if chain.standard else frames[1:]
     columns = []
-    step = 1e-6
-    for k in range(len(readings)):
-        moved = np.array(readings, dtype=float)
-        moved[k] += step
-        other = chain.pose(moved)
-        linear = (other[:3, 3] - pose[:3, 3]) / step
-        turn = (other[:3, :3] @ pose[:3, :3].T - np.eye(3)) / step
-        angular = np.array([turn[2, 1], turn[0, 2], turn[1, 0]])
-        columns.append(np.concatenate([linear / length, angular]))
+    for k, frame in enumerate(chosen):
+        z, o = frame[:3, 2], frame[:3, 3]
+        if chain.revolute[k]:
+            columns.append(np.concatenate([np.cross(z, point - o) / length, z]))
+        else:
+            columns.append(np.concatenate([z / length, np.zeros(3)]))
     return np.array(columns).T
