@@ -16,6 +16,8 @@ as powers of ten (``below 1e-11 mm``), the figures are deterministic SVG (see ik
 
 from __future__ import annotations
 
+import dataclasses
+
 import functools
 import inspect
 import math
@@ -642,12 +644,31 @@ def target_sentences(arm: Arm, derivation: Derivation) -> list[str]:
                                     "(inverse_point_direction); the roll about that direction follows from the "
                                     "arm, and a full pose with another roll is not realisable (its own status)."}[kind]
     lines = [f"Target: {words(target) if target is not None else 'the full pose of the tool'}. {reads}"]
+    if arm.given_joint is not None:
+        lines += given_sentences(arm)
     slides = [j for j in arm.joints if not j.revolute]
     if slides:
         names = ", ".join(f"joint {j.index} '{j.name}'" for j in slides)
         lines.append(f"Prismatic joints ({names}): their strokes define reach; a solution needing a slide "
                      "outside its stroke is no solution, whatever the limits mode.")
     return lines
+
+
+def given_sentences(arm: Arm) -> list[str]:
+    """What a given joint is, why the arm needs one, and which joints the derivation can take as given."""
+    from ..engine import given_choices
+    joint = arm.joints[arm.given_joint - 1]
+    solved = len(arm.solved_joints)
+    tried = "; ".join(f"{k} '{arm.joints[k - 1].name}': " + ("yes" if reason is None else f"no ({reason})")
+                      for k, reason in given_choices(dataclasses.replace(arm, given_joint=None)))
+    return [f"Given joint: joint {joint.index} '{joint.name}'. The arm has {arm.dof} joints and its target "
+            f"{solved} freedoms, so a target has infinitely many solutions (the arm can move without moving the "
+            "tool); the solvers take this joint's reading as an input beside the pose, return it unchanged in every "
+            f"solution, and return every solution of the other {solved} joints. The helper choose_given picks the "
+            "reading by a stated criterion (nearest to the current joints, largest margin from the joint limits, or "
+            "largest conditioning measure), and `ikgen path` moves it continuously along a path.",
+            f"Which joints the derivation can take as given (each one tried): {tried}. Joint {joint.index} was chosen "
+            "in the arm file ([target] given_joint) or on the command line (--given-joint)."]
 
 
 def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:

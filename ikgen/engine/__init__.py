@@ -170,7 +170,7 @@ def branch_namer(specs):
             if key in spec.keys and spec.name not in used:
                 used.add(spec.name)
                 return spec.name, MEANINGS[spec.name]
-        return f"root_{key}", f"which of the two roots (no geometric label describes this choice)"
+        return f"root_{key}", "which of the two roots (no geometric label describes this choice)"
 
     return name
 
