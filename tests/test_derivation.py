@@ -362,9 +362,14 @@ def test_five_joints_take_a_point_and_a_direction():
 
 
 def test_seven_joints_are_refused_with_what_is_handled():
+    """Without a given joint a seven-joint arm is refused, naming the joints that could be given
+    (here none: the extra joint turns about the last joint's axis)."""
     data = benchtop_data()
     data["joint"].append(dict(data["joint"][5], name="extra"))
-    with pytest.raises(StructureError, match=r"7 joints; the derivation handles arms of 3 to 6"):
+    with pytest.raises(StructureError, match=r"7 joints: a pose leaves one of them free.*no joint can be given"):
+        build(arm_from_data(data))
+    data["joint"].append(dict(data["joint"][5], name="extra2"))
+    with pytest.raises(StructureError, match=r"8 joints to solve for; the derivation handles 3 to 6"):
         build(arm_from_data(data))
 
 

@@ -18,7 +18,7 @@ import pytest
 
 from helpers import EXAMPLES, ROOT
 from ikgen.kinematics import NumericChain
-from ikgen.verify import angle_gap
+from ikgen.verify import angle_gap, given_of
 
 DEMOS = sorted(p.stem for p in EXAMPLES.iterdir() if p.suffix in (".toml", ".json"))
 
@@ -27,7 +27,8 @@ VOCABULARY = {"reach": ("reach_forward", "reach_backward"),
               "elbow": ("elbow_up", "elbow_down"),
               "elbow_turn": ("counterclockwise", "clockwise"),
               "wrist_bend": ("bend_positive", "bend_negative"),
-              "base_bend": ("bend_positive", "bend_negative")}
+              "base_bend": ("bend_positive", "bend_negative"),
+              "elbow_bend": ("bend_positive", "bend_negative")}
 ROOT_VALUES = ("root_plus", "root_minus")
 OLD_WORDS = ("front", "back", "noflip", "flip")        # the trio the labels replaced (issue: our own words)
 
@@ -56,6 +57,11 @@ def geometry(chain: NumericChain, readings: np.ndarray, module) -> dict:
     n = chain.arm.dof
     target = module.TARGET
     x1 = frames[:, 1, :3, 0]
+
+    def bend(i, j, k):
+        return np.einsum("ni,ni->n", np.cross(z[:, i - 1], z[:, k - 1]), z[:, j - 1])
+    if n == 7:                        # a seven-axis arm with a given joint: the three bends
+        return {"base_bend": bend(1, 2, 3), "elbow_bend": bend(3, 4, 5), "wrist_bend": bend(5, 6, 7)}
 
     def meet(a, b):
         return nearest_point(o[:, a - 1], z[:, a - 1], o[:, b - 1], z[:, b - 1])
@@ -129,7 +135,7 @@ def test_each_label_follows_its_formula(demo):
     readings = limits[:, 0] + rng.random((600, arm.dof)) * (limits[:, 1] - limits[:, 0])
     labels, kept = [], []
     for q, pose in zip(readings, chain.poses(readings)):
-        solutions = module.inverse(pose, limits="ignore")
+        solutions = module.inverse(pose, *given_of(arm, q), limits="ignore")
         matches = [s for s in solutions if angle_gap(np.array([s[0]]), q, arm).max() < 1e-6]
         if matches:
             labels.append(matches[0][1])
@@ -139,7 +145,7 @@ def test_each_label_follows_its_formula(demo):
     g = geometry(chain, kept, module)
     length = arm.reach_scale()
     small = {"reach": 1e-9 * length, "elbow": 1e-9 * length ** 2, "elbow_turn": 1e-9 * length ** 2,
-             "wrist_bend": 1e-9, "base_bend": 1e-9}
+             "wrist_bend": 1e-9, "base_bend": 1e-9, "elbow_bend": 1e-9}
     for index, name in enumerate(module.LABEL_NAMES):
         first, second = module.LABEL_VALUES[index]
         if name.startswith("root_"):          # no geometric formula: the root's sign in the report

@@ -58,7 +58,7 @@ def resolve(arm: Arm) -> Target:
     for, so the target's freedoms must match the other joints)."""
     declared = arm.target
     solved = len(arm.solved_joints)
-    given = "" if arm.given_joint is None else f" besides the given joint {arm.given_joint}"
+    given = "" if arm.given_joint is None else f" to solve for (besides the given joint {arm.given_joint})"
     if declared is None:
         natural = {6: "pose", 5: "point_and_direction", 4: "point_and_angle", 3: "point"}.get(solved)
         if natural is None:
@@ -72,7 +72,7 @@ def resolve(arm: Arm) -> Target:
         declared = Target(natural, None, "z", declared=False)
     if TARGET_FREEDOMS[declared.kind] != solved:
         raise StructureError(
-            f"arm '{arm.name}' has {solved} joints{given} to solve for and the target '{declared.kind}' has "
+            f"arm '{arm.name}' has {solved} joints{given} and the target '{declared.kind}' has "
             f"{TARGET_FREEDOMS[declared.kind]} freedoms; a target needs as many joints as it has freedoms. This arm "
             f"serves {what_it_serves(arm)}, so nothing was written")
     if declared.kind == "point_and_angle":
