@@ -488,7 +488,7 @@ class Solver:
                 root = sp.sqrt(norm)
                 radicand = (root - c) * (root + c)
             else:
-                radicand = self.reduce(norm - c * c)
+                radicand = self.plain_or_reduced(norm, c)
         name, meaning = self.branch_namer(key, linear)
         what = self.unknowns[key].words()
         singular = Singular(
@@ -501,6 +501,20 @@ class Solver:
                               guard_meaning=f"{what} has a real solution only if a^2 + b^2 >= c^2 "
                                             "(else the pose is out of reach for this branch)",
                               singular=singular, source=linear.equation.source)
+
+    def plain_or_reduced(self, norm: sp.Expr, c: sp.Expr) -> sp.Expr:
+        """a^2 + b^2 - c^2 as computed with the least rounding: its reduced polynomial (where terms
+        cancel exactly) or ``norm - c*c`` from the two computed values, whichever adds up smaller
+        magnitudes on the samples (rounding error grows with the sum of |terms| added, and near a
+        double root the difference is tiny). The reduced form is kept unless the plain one is at
+        least 16 times smaller there (median over the samples)."""
+        reduced = self.reduce(norm - c * c)
+        plain_cost = self.samples.values(sp.Abs(norm)) + self.samples.values(c * c)
+        terms = sp.Add.make_args(sp.expand(reduced))
+        reduced_cost = sum(np.abs(self.samples.values(t)) for t in terms)
+        if float(np.median(plain_cost / np.maximum(reduced_cost, 1e-300))) * 16 <= 1.0:
+            return norm - c * c
+        return reduced
 
     def unit_radicand(self, c: sp.Expr, norm: sp.Expr):
         """For ``+-cos = g`` with a^2 + b^2 = 1 and g an entry of a named rotation: 1 - g^2 is the
