@@ -16,6 +16,7 @@ are the judges. Skipped with a reason when clang/clang++ are not installed (apt-
 from __future__ import annotations
 
 import math
+import re
 import shutil
 import subprocess
 from pathlib import Path
@@ -57,7 +58,7 @@ int main()
     CALLER_NAME(_forward)(readings.data(), pose.data());
     std::array<CALLER_NAME(_solution), CALLER_MACRO(_MAX_SOLUTIONS)> solutions{};
     CALLER_NAME(_status) status{};
-    const int count = CALLER_NAME(_inverse)(pose.data(), nullptr, CALLER_MACRO(_LIMITS_IGNORE), solutions.data(), &status);
+    const int count = CALLER_NAME(_inverse)(pose.data(), CALLER_GIVEN nullptr, CALLER_MACRO(_LIMITS_IGNORE), solutions.data(), &status);
     real scale = 1;
     for (int k = 3; k < 12; k += 4) {
         scale = std::fmax(scale, std::fabs(pose[static_cast<std::size_t>(k)]));
@@ -111,6 +112,13 @@ def readings_for(header: Path) -> str:
     return ",".join(f"{v!r}{suffix}" for v in values)
 
 
+def given_argument(header: Path) -> str:
+    """The argument a solver of an arm with a given joint takes after the pose (that joint's reading
+    from the caller's readings, docs/solvers.md), or nothing."""
+    found = re.search(r"#define \w+_GIVEN_JOINT (\d+)", header.read_text(encoding="utf-8"))
+    return f"readings[{int(found.group(1)) - 1}]," if found else ""
+
+
 def test_headers_found():
     assert len(HEADERS) >= 6, f"expected double and float headers of the demo arms under {GENERATED}"
 
@@ -128,7 +136,8 @@ def test_cxx17_program_calls_the_c_solver(header, cxx, tmp_path):
     real = "float" if prefix.endswith("_f32") else "double"
     compile_ok([cxx_path, *CXX17, "-O2", "-I", header.parent, f'-DHEADER_FILE="{header.name}"',
                 f"-DCALLER_PREFIX={prefix}", f"-DCALLER_UPPER={prefix.upper()}", f"-DCALLER_SCALAR={real}",
-                f"-DCALLER_READINGS={readings_for(header)}", "-c", caller, "-o", "caller.o"], tmp_path)
+                f"-DCALLER_READINGS={readings_for(header)}", f"-DCALLER_GIVEN={given_argument(header)}",
+                "-c", caller, "-o", "caller.o"], tmp_path)
     compile_ok([cxx_path, "caller.o", "solver.o", "-lm", "-o", "caller"], tmp_path)
     ran = subprocess.run([tmp_path / "caller"], capture_output=True, text=True, timeout=60)
     assert ran.returncode == 0 and "round trip ok" in ran.stdout, ran.stdout + ran.stderr

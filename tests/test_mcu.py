@@ -35,6 +35,7 @@ import pytest
 from scipy.spatial.transform import Rotation
 
 from helpers import EXAMPLES, ROOT
+from ikgen.verify import given_of
 from ikgen.armfile import load_arm
 from ikgen.backends.common import identifier
 from ikgen.errors import IkgenError
@@ -250,7 +251,7 @@ def vector_problems(arm, double, poses: np.ndarray, readings: np.ndarray) -> tup
         if position > VECTOR_BOUND or rotation > VECTOR_BOUND:
             problems.append(f"vector {i}: the readings' pose is {position:.3g} of the scale and "
                             f"{rotation:.3g} per rotation entry from the embedded pose")
-        solutions = double.inverse(pose.tolist())
+        solutions = double.inverse(pose.tolist(), *given_of(arm, wanted))
         if not solutions:
             problems.append(f"vector {i}: the double solver finds no solution of the embedded pose")
             continue

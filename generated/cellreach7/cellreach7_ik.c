@@ -779,7 +779,7 @@ int cellreach7_ik_choose_given(const double pose[16], const double *current, con
     double best_score = 0.0, best_value = 0.0;
     int found = 0;
     if ((criterion == CELLREACH7_IK_CHOOSE_NEAREST && !current) || !(step > 0.0) ||
-            !(step - step == 0.0) || (int)criterion < 0 || (int)criterion > 2 || !valid_pose(pose)) {
+            !(step - step == 0.0) || (unsigned)criterion > 2u || !valid_pose(pose)) {
         if (status) *status = CELLREACH7_IK_INVALID_INPUT;
         return 0;
     }

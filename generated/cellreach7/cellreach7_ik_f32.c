@@ -779,7 +779,7 @@ int cellreach7_ik_f32_choose_given(const float pose[16], const float *current, c
     float best_score = 0.0f, best_value = 0.0f;
     int found = 0;
     if ((criterion == CELLREACH7_IK_F32_CHOOSE_NEAREST && !current) || !(step > 0.0f) ||
-            !(step - step == 0.0f) || (int)criterion < 0 || (int)criterion > 2 || !valid_pose(pose)) {
+            !(step - step == 0.0f) || (unsigned)criterion > 2u || !valid_pose(pose)) {
         if (status) *status = CELLREACH7_IK_F32_INVALID_INPUT;
         return 0;
     }
