@@ -281,3 +281,28 @@ def test_given_joint_by_number_and_command_line():
     assert with_given_joint(arm, "auto").given_joint == 1          # the first joint that can be given
     with pytest.raises(IkgenError, match="expected a number from 1 to 7"):
         with_given_joint(arm, "0")
+
+
+def test_the_compiled_wrapper_takes_the_given_reading(tmp_path):
+    """`ikgen compile`'s wrapper module (ikgen/cwrapper.py beside the extension) has the Python
+    solver's API for a given joint: inverse, nearest and choose_given agree with it."""
+    import importlib
+    arm, module, _, _, _ = solvers()
+    compile_solver(arm, folder=tmp_path)
+    sys.path.insert(0, str(tmp_path))
+    try:
+        wrapper = importlib.import_module("cellreach7_ik_c")
+    finally:
+        sys.path.remove(str(tmp_path))
+    q = [10.0, 30.0, 20.0, 70.0, 10.0, 40.0, 0.0]
+    pose = module.forward(q)
+    assert wrapper.GIVEN_JOINT == 3
+    assert np.allclose([s[0] for s in wrapper.inverse(pose, 20.0)], [s[0] for s in module.inverse(pose, 20.0)],
+                       atol=1e-9)
+    assert wrapper.nearest(pose, 20.0, q)[0] == pytest.approx(q, abs=1e-9)
+    for criterion in ("nearest", "limits", "conditioning"):
+        reading, solution = wrapper.choose_given(pose, q, criterion)
+        expected, _ = module.choose_given(pose, q, criterion)
+        assert reading == pytest.approx(expected, abs=1e-6)
+    with pytest.raises(ValueError, match="given"):
+        wrapper.inverse(pose)
