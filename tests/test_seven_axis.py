@@ -306,3 +306,21 @@ def test_the_compiled_wrapper_takes_the_given_reading(tmp_path):
         assert reading == pytest.approx(expected, abs=1e-6)
     with pytest.raises(ValueError, match="given"):
         wrapper.inverse(pose)
+
+
+def test_a_reach_map_takes_the_best_over_readings_of_the_given_joint():
+    """Each reach figure is the best over the readings tried: a pose reached at one of them counts,
+    with the per-reading count checked against the generated Python solver (docs/reach.md)."""
+    from ikgen.reach.solvers import batch_solver, given_readings
+    arm, module, _, _, _ = solvers()
+    solver = batch_solver(arm)
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(76)
+    poses = chain.poses(random_readings(arm, rng, 40))
+    poses[::4, :3, 3] += 5000.0                                 # every fourth far out of reach
+    figures = solver.figures(poses)
+    readings = given_readings(solver.windows[2])
+    for i, pose in enumerate(poses):
+        counts = [len(module.inverse(pose, float(v))) for v in readings]
+        assert figures["count"][i] == max(counts)
+        assert (figures["count"][i] == 0) == bool(i % 4 == 0)

@@ -48,8 +48,13 @@ class BatchSolver:
     threads_only: bool = False
 
     def figures(self, poses: np.ndarray) -> dict[str, np.ndarray]:
-        joints, valid, _labels, _singular, conditioning = _module(self.source, self.name).inverse_batch(poses)
-        return figures_from_batch(joints, valid, conditioning, self.windows)
+        module = _module(self.source, self.name)
+        if getattr(module, "GIVEN_JOINT", None) is None:
+            joints, valid, _labels, _singular, conditioning = module.inverse_batch(poses)
+            return figures_from_batch(joints, valid, conditioning, self.windows)
+        window = self.windows[module.GIVEN_JOINT - 1]
+        return best_over_given([figures_from_batch(*_batch(module, poses, value), self.windows)
+                                for value in given_readings(window)])
 
     @property
     def condition_names(self) -> tuple[str, ...]:
@@ -68,8 +73,39 @@ class CompiledSolver:
         self.windows = windows
 
     def figures(self, poses: np.ndarray) -> dict[str, np.ndarray]:
-        joints, counts, _labels, _singular = self.solver.inverse_many(poses, limits="drop")
-        return figures_from_listed(joints, counts, self.windows)
+        given = self.solver.given
+        if given is None:
+            joints, counts, _labels, _singular = self.solver.inverse_many(poses, limits="drop")
+            return figures_from_listed(joints, counts, self.windows)
+        out = []
+        for value in given_readings(self.windows[given - 1]):
+            joints, counts, _labels, _singular = self.solver.inverse_many(poses, np.full(len(poses), value), "drop")
+            out.append(figures_from_listed(joints, counts, self.windows))
+        return best_over_given(out)
+
+
+GIVEN_SAMPLES = 13   # readings of a given joint tried per pose, evenly over its limits (both ends)
+
+
+def given_readings(window: JointWindow) -> np.ndarray:
+    """The readings of a given joint a reach map tries (the map shows the best of them)."""
+    return np.linspace(window.lower, window.upper, GIVEN_SAMPLES)
+
+
+def _batch(module, poses, value):
+    joints, valid, _labels, _singular, conditioning = module.inverse_batch(poses, value)
+    return joints, valid, conditioning
+
+
+def best_over_given(figures: list[dict]) -> dict[str, np.ndarray]:
+    """Per pose, the best figures over the readings of a given joint tried: the most solutions at
+    one reading, the largest margin and the largest conditioning (NaN where none reached)."""
+    out = {"count": np.max([f["count"] for f in figures], axis=0)}
+    for key in ("margin", "conditioning"):
+        stack = np.array([f[key] for f in figures])
+        out[key] = np.where(np.isnan(stack).all(axis=0), np.nan,
+                            np.nanmax(np.where(np.isnan(stack), -np.inf, stack), axis=0))
+    return out
 
 
 def batch_solver(arm, derivation=None) -> BatchSolver:
