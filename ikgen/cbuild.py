@@ -87,13 +87,6 @@ class CSolver:
         keep = np.array(vector(values, self.dof, what), dtype=self.dtype)
         return self._pointer(keep), keep
 
-    def _tuple(self, solution) -> tuple:
-        joints = tuple(float(solution.joints[i]) for i in range(self.dof))
-        config = tuple(positive if solution.labels[i] > 0 else negative
-                       for i, (positive, negative) in enumerate(self.labels))
-        conditioning = tuple(float(solution.conditioning[i]) for i in range(self.conditions))
-        return (joints, config, bool(solution.singular), conditioning, bool(solution.within_limits))
-
     STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 
     def _answer(self, count, with_status):
@@ -185,7 +178,7 @@ class CSolver:
         best = self.ffi.new(f"{self.prefix}_solution *")
         found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), *given, here, w, self.wanted(config),
                                                             limits_mode(limits), best, self._status)
-        return self._tuple(best[0]) if found else None
+        return self._reader.read(best, 1)[0] if found else None
 
     def sort_nearest(self, pose, *args, **kwargs) -> list[tuple]:
         """inverse() then the C sort by distance from ``current``: sort_nearest(pose, [given,] current,
@@ -201,7 +194,7 @@ class CSolver:
         w, _keep2 = self._joints_pointer(weights, "weights")
         count = self._inverse(self._pointer(flat), *given, here, limits_mode(limits), self._solutions, self._status)
         getattr(self.lib, f"{self.prefix}_sort_nearest")(self._solutions, count, here, w)
-        return [self._tuple(self._solutions[k]) for k in range(count)]
+        return self._reader.read(self._solutions, count)
 
     def status(self) -> int:
         """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not realisable."""
