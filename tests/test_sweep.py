@@ -91,6 +91,72 @@ def test_r10_round_trip_near_the_wrist_centre_on_axis_2(r10, solver):
             assert pos.max() <= 1e-9 * arm.reach_scale() and rot.max() <= 1e-9, (step, conditioning, pos.max())
 
 
+# ----------------------------------------------------------------------------- the random-arm sweep's findings
+
+def wrist_bend_arm():
+    """An invented five-joint point-and-direction arm drawn by the 220-arm sweep (seed 16, arm 154):
+    at joint 5 1e-5 rad off its wrist's singular reading the direction came back 7.1e-9 rad off."""
+    return build_arm([
+        joint("r", a=0, alpha=90, d=0.77, theta=60, direction=-1, limits=[-180, 180]),
+        joint("r", a=0.573, alpha=0, d=0, theta=-60, direction=-1, limits=[-200, 200]),
+        joint("r", a=0.029, alpha=90, d=0, theta=60, direction=1, limits=[-180, 180]),
+        joint("r", a=0, alpha=-90, d=0.587, theta=0, direction=-1, limits=[-170, 170]),
+        joint("r", a=0, alpha=90, d=0, theta=-90, direction=1, limits=[-200, 200]),
+    ], base={"translation": [0.164, 0, 0.015], "rotation": {"axes": "zyx", "frame": "moving",
+                                                             "angles": [-94.0, -49.6, 81.9]}}, name="wrist_bend")
+
+
+# readings whose joint 5 (90 deg) puts axis 4 along the tool's z axis (the wrist's singular set)
+ON_WRIST_SET = np.array([-126.99224916274721, 173.77787072180666, -155.53546007894647, -159.68562508621247, 90.0])
+
+
+def batch_inverse(module):
+    """inverse(pose) through the numpy batch solver: [(joints, ..., conditioning)] of one pose."""
+    def inverse(pose):
+        joints, valid, _, _, conditioning = module.inverse_batch(np.array([pose]))
+        return [(tuple(joints[0, k]), None, None, tuple(conditioning[0, k])) for k in np.nonzero(valid[0])[0]]
+    return inverse
+
+
+@pytest.fixture(scope="module")
+def wrist_bend():
+    arm = wrist_bend_arm()
+    result = build(arm)
+    folder = result.folder
+    solvers = {"python": load_module(result.files[result.python_path], "wrist_bend_ik_under_test").inverse,
+               "batch": batch_inverse(load_module(result.files[f"{folder}/{folder}_ik_batch.py"], "wrist_bend_batch")),
+               "c": compile_solver(arm, result.derivation).inverse}
+    return arm, solvers
+
+
+@pytest.mark.parametrize("solver", ["python", "c", "batch"])
+def test_wrist_bend_near_its_singular_set_keeps_the_contract(wrist_bend, solver):
+    """Cause: joint 2's linear pair came out of unit length by 1.4e-13, under the old renormalising
+    slack (1e-12), so the direction in frame 3 was 1.4e-13 too long and joint 5, taken from its
+    cosine near 1 (sqrt((1 - c)(1 + c))), lost 7e-9 rad at sin = 1e-5. The slack is now 1e-15."""
+    arm, solvers = wrist_bend
+    chain = NumericChain(arm)
+    for step in (1e-3, 1e-4, 1e-5):                          # radians on joint 5, off the singular reading
+        readings = ON_WRIST_SET.copy()
+        readings[4] += np.degrees(step)
+        pose = chain.pose(readings)
+        solutions = solvers[solver](pose)
+        assert solutions, step
+        # the wrist bend's angle as geometry sees it (common practice): the angle between joint 4's
+        # axis and the tool's z axis, from the forward kinematics' frames, is |joint 5 - 90 deg|
+        frames = chain.frames(readings[None, :])[0]
+        axis4, tool_z = frames[3][:3, 2], (frames[-1] @ chain.tool)[:3, 2]
+        assert np.arctan2(np.linalg.norm(np.cross(axis4, tool_z)), axis4 @ tool_z) == pytest.approx(step, rel=1e-6)
+        pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
+        for solution, p, r in zip(solutions, pos, rot):
+            m = min(solution[3])
+            bound = 1e-9 + 1e-14 / m if m >= 1e-6 else 1e-9 + 10 * max(m, 1e-8)   # docs/derivation.md sec. 6
+            assert p <= bound * arm.reach_scale() and r <= bound, (step, m, p, r)
+        # the solution that continues the source readings has joint 5 within 1e-10 rad of it (was 7.1e-9)
+        gaps = [abs(np.radians(s[0][4] - readings[4])) for s in solutions if abs(s[0][0] - readings[0]) < 1e-6]
+        assert gaps and min(gaps) < 1e-10, (step, gaps)
+
+
 # ----------------------------------------------------------------------------- the seeded sweep
 
 from arm_draws import STRUCTURES, Draw, arm_text, outcome  # noqa: E402

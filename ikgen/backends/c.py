@@ -95,7 +95,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
     context = dict(
         arm=arm, plan=plan, p=printer.doprint, num=printer.number, fn=scalar.fn, real=scalar.name,
         # a pair's cos^2 + sin^2 off 1 by more than rounding of the scalar type is renormalised
-        unit_slack=1e-12 if scalar.name == "double" else 1e-6,
+        unit_slack=common.UNIT_SLACK[scalar.name],
         header_lines=common.header_lines(arm, derivation), comment=common.comment_text, names=n,
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,

@@ -707,6 +707,12 @@ def header_lines(arm: Arm, derivation: Derivation) -> list[str]:
 TILT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad: a pose turned off the target's axis by more
 ROLL_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad (chord): a pose whose roll the arm cannot take
 UNIT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # |direction| off 1 by more is invalid input
+# A linear pair's cos^2 + sin^2 off 1 by more than this is renormalised before later steps use the
+# pair: a later step may take a small angle from a cosine near 1 (sqrt((1 - c)(1 + c))), where a scale
+# drift of d costs about d / m in the angle (m its conditioning measure), so the slack must stay below
+# the precision contract's 1e-14 / m (docs/derivation.md section 6): about 4.5 ulp of 1 in double
+# (1e-12 let a drift of 1.4e-13 through and cost 7e-9 rad at m = 1e-5).
+UNIT_SLACK = {"double": 1e-15, "float": 1e-6}
 
 
 @dataclass
