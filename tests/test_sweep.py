@@ -157,6 +157,65 @@ def test_wrist_bend_near_its_singular_set_keeps_the_contract(wrist_bend, solver)
         assert gaps and min(gaps) < 1e-10, (step, gaps)
 
 
+def folded_elbow_arms():
+    """Two invented five-joint point-and-direction arms drawn by the 220-arm sweep (seed 16, arms 99
+    and 187), each with readings that put its elbow exactly folded (the two-root step's radicand 0
+    to rounding): there inverse(pose) once called the pose not_realisable."""
+    first = build_arm([
+        joint("r", a=0, alpha=90, d=0.956, theta=-60, direction=-1, limits=[-270, 270]),
+        joint("r", a=0.514, alpha=0, d=0, theta=60, direction=-1, limits=[-170, 170]),
+        joint("r", a=0.011, alpha=90, d=0, theta=-30, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=-90, d=0.421, theta=-30, direction=-1, limits=[-170, 170]),
+        joint("r", a=0, alpha=90, d=0, theta=-60, direction=-1, limits=[-180, 180]),
+    ], tool={"translation": [0, 0, -0.161]}, name="folded_a")
+    second = build_arm([
+        joint("r", a=0, alpha=90, d=0.599, theta=60, direction=1, limits=[-200, 200]),
+        joint("r", a=0.877, alpha=0, d=0, theta=120, direction=-1, limits=[-200, 200]),
+        joint("r", a=0, alpha=90, d=0, theta=60, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=-90, d=0.859, theta=120, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=90, d=0, theta=-90, direction=-1, limits=[-180, 180]),
+    ], base={"translation": [0, 0.063, 0], "rotation": {"axes": "zyx", "frame": "moving",
+                                                        "angles": [27.6, -173.7, -175.6]}}, name="folded_b")
+    return [(first, np.array([-100.41244733381942, 160.67240057423828, -61.49669883975896,
+                              -75.26412759225707, 123.78186819625455])),
+            (second, np.array([172.3140926419302, -48.406334599918125, -150.00000000000006,
+                               134.16680231808942, -70.16977442549955]))]
+
+
+@pytest.fixture(scope="module")
+def folded():
+    cases = []
+    for arm, readings in folded_elbow_arms():
+        result = build(arm)
+        cases.append((arm, readings, {"python": load_module(result.files[result.python_path], f"{arm.name}_ik_test"),
+                                      "c": compile_solver(arm, result.derivation)}))
+    return cases
+
+
+@pytest.mark.parametrize("solver", ["python", "c"])
+def test_a_folded_elbow_pose_is_realisable_and_a_turned_roll_is_not(folded, solver):
+    """Cause: the roll check's tolerance was fixed (1e-6), but at a folded elbow the point and the
+    direction fix the elbow angle only to about sqrt(rounding) (1e-8 rad), and the arm's own roll,
+    which follows the elbow (amplified by the shoulder's compensation), came out 1.1e-6 and 1.3e-6
+    off: the pose of readings inside the limits was called not_realisable. The tolerance now widens
+    like 1/m (m the solution's smallest conditioning measure, floored at 1e-8)."""
+    from scipy.spatial.transform import Rotation
+    for arm, readings, solvers in folded:
+        module = solvers[solver]
+        chain = NumericChain(arm)
+        assert abs(label_measure("elbow")(chain, readings[None, :])[0]) < 1e-15     # on the set
+        pose = chain.pose(readings)
+        solutions, status = module.inverse(pose, with_status=True)
+        assert status == "ok" and solutions, (arm.name, status)
+        pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
+        assert pos.max() <= 1e-6 * arm.reach_scale() and rot.max() <= 1e-6        # verify's singular-pose bound
+        # the same pose turned 1e-3 rad about its tool z axis (scipy's Rotation composes the turn) is
+        # one no reading takes: still not realisable
+        turned = pose.copy()
+        turned[:3, :3] = (Rotation.from_matrix(pose[:3, :3]) * Rotation.from_rotvec([0, 0, 1e-3])).as_matrix()
+        assert module.inverse(turned, with_status=True) == ([], "not_realisable"), arm.name
+
+
 # ----------------------------------------------------------------------------- the seeded sweep
 
 from arm_draws import STRUCTURES, Draw, arm_text, outcome  # noqa: E402

@@ -119,6 +119,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         pair_tolerance=1e-4 if scalar.name == "double" else 5e-3,
         target=common.target_plan(arm, derivation), angle_scale=float(arm.angle_scale),
         tolerances={"tilt": common.TILT_TOLERANCE[scalar.name], "roll": common.ROLL_TOLERANCE[scalar.name],
+                    "roll_gain": common.ROLL_GAIN[scalar.name], "roll_floor": common.ROLL_FLOOR[scalar.name],
                     "unit": common.UNIT_TOLERANCE[scalar.name]})
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
             n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
