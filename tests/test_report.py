@@ -521,3 +521,47 @@ def test_html_renders_in_headless_chromium_with_real_math_layout():
     dark = sum(image.histogram()[:128]) / (image.size[0] * image.size[1])
     assert dark > 0.005, "almost no text on the page"
     print(f"screenshot of the report: {shot}")
+
+
+# ------------------------------------------------------------------ factoring with a bounded cost
+
+def reach_radicand_in_nine_symbols():
+    """The radicand a three-parallel-axes arm drawn by the random-arm sweep (seed 16, arm 36) put
+    through readable(): irreducible, quadratic, in 9 symbols; sympy.factor took 0.02 s from most of
+    its random seeds and minutes from 4 of 30 (sympy.core.random.seed(1), (4), (14), (17))."""
+    a2, a3, d4 = sp.symbols("a_2 a_3 d_4", real=True)
+    g = {k: sp.Symbol(f"g14_{k}", real=True) for k in ("12", "14", "22", "24", "32", "34")}
+    return (a2**2 + a3**2 - d4**2 * (g["12"]**2 + g["22"]**2 + g["32"]**2)
+            + 2 * d4 * (g["12"] * g["14"] + g["22"] * g["24"] + g["32"] * g["34"])
+            - g["14"]**2 - g["24"]**2 - g["34"]**2)
+
+
+def test_bounded_factor_leaves_a_polynomial_in_many_symbols_alone(monkeypatch):
+    """Cause of a sweep arm's 120 s timeout: readable() called sympy.factor on the radicand above.
+    Beyond FACTOR_SYMBOLS symbols it is now returned as it is, without factoring."""
+    expr = reach_radicand_in_nine_symbols()
+    assert len(expr.free_symbols) == 9 > report.FACTOR_SYMBOLS
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("sympy.factor called on a polynomial in 9 symbols")
+    monkeypatch.setattr(report.sp, "factor", refuse)
+    assert report.bounded_factor(expr) == expr
+    assert report.readable(expr, []) is not None                     # every form but factor() is still tried
+
+
+def test_bounded_factor_is_sympys_factor_from_a_fixed_seed_and_keeps_sympys_random_state():
+    """Up to FACTOR_SYMBOLS symbols: the same factors as sympy.factor (reference: sympy itself, and
+    the product expands back to the input), whatever sympy's random state, which it leaves as found."""
+    import sympy.core.random as sympy_random
+    x, y, z, w = sp.symbols("x y z w", real=True)
+    expr = sp.expand((x * y - z + 2 * w) * (x + y * z - w) * (3 * x - y))
+    results = []
+    for seed in (1, 4, 14, 17):
+        sympy_random.seed(seed)
+        before = sympy_random.rng.getstate()
+        results.append(report.bounded_factor(expr))
+        assert sympy_random.rng.getstate() == before, seed
+    assert all(r == results[0] for r in results)
+    assert results[0] == sp.factor(expr)
+    assert sp.expand(results[0] - expr) == 0
+    assert len(sp.Mul.make_args(results[0])) == 3

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import jinja2
 import numpy as np
 import sympy as sp
+import sympy.core.random as sympy_random
 from markupsafe import Markup
 from sympy.printing.mathml import mathml
 
@@ -41,6 +42,12 @@ REPORT_SAMPLES = 2000                     # verification samples for the report'
 REPORT_SEED = 2026
 POSE_SEED = 5                             # the invented sample pose
 LARGE_TERMS = 12                          # beyond this many terms readable() does not try factor()
+# sympy factors a polynomial in several symbols from random evaluation points (Wang's method); on an
+# irreducible quadratic in 9 symbols (a three-parallel-axes arm's reach radicand) 4 of 30 random
+# seeds ran for minutes instead of 0.02 s, 1 of 30 with 8 symbols, none with 7 or fewer. So factor()
+# is tried only up to FACTOR_SYMBOLS symbols, and always from FACTOR_SEED (the same time on every run).
+FACTOR_SYMBOLS = 6
+FACTOR_SEED = 0
 
 
 # ----------------------------------------------------------------------------- printing
@@ -170,6 +177,20 @@ def weight(expr) -> tuple:
     return (sp.count_ops(expr), len(latex(expr)))
 
 
+def bounded_factor(expr) -> sp.Expr:
+    """sympy.factor with sympy's random draws fixed (restored afterwards); ``expr`` itself beyond
+    FACTOR_SYMBOLS symbols, where factoring's running time has a long random tail."""
+    expr = sp.sympify(expr)
+    if len(expr.free_symbols) > FACTOR_SYMBOLS:
+        return expr
+    state = sympy_random.rng.getstate()
+    sympy_random.rng.seed(FACTOR_SEED)
+    try:
+        return sp.factor(expr)
+    finally:
+        sympy_random.rng.setstate(state)
+
+
 def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
     """The shortest of a few forms of ``expr`` that sympy proves equal to it (expand of the
     difference is 0): the IR's own, factor_terms, factor, collect in the pose and joint
@@ -179,9 +200,9 @@ def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
     if expr.is_Atom:
         return expr
     variables = sorted(expr.free_symbols - set(parameters), key=str)
-    makers = [sp.factor_terms, sp.factor,
+    makers = [sp.factor_terms, bounded_factor,
               lambda e: sp.collect(sp.expand(e), variables),
-              lambda e: sp.collect(sp.expand(e), variables, func=sp.factor)]
+              lambda e: sp.collect(sp.expand(e), variables, func=bounded_factor)]
     if len(sp.Add.make_args(sp.expand(expr))) > LARGE_TERMS:
         makers = makers[:1] + makers[2:3]   # factoring a long polynomial costs seconds and never won
     candidates = [expr]
