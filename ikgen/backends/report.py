@@ -26,6 +26,7 @@ import jinja2
 import numpy as np
 import sympy as sp
 import sympy.core.random as sympy_random
+from sympy.polys import polyconfig
 from markupsafe import Markup
 from sympy.printing.mathml import mathml
 
@@ -42,11 +43,13 @@ REPORT_SAMPLES = 2000                     # verification samples for the report'
 REPORT_SEED = 2026
 POSE_SEED = 5                             # the invented sample pose
 LARGE_TERMS = 12                          # beyond this many terms readable() does not try factor()
-# sympy factors a polynomial in several symbols from random evaluation points (Wang's method); on an
-# irreducible quadratic in 9 symbols (a three-parallel-axes arm's reach radicand) 4 of 30 random
-# seeds ran for minutes instead of 0.02 s, 1 of 30 with 8 symbols, none with 7 or fewer. So factor()
-# is tried only up to FACTOR_SYMBOLS symbols, and always from FACTOR_SEED (the same time on every run).
-FACTOR_SYMBOLS = 6
+# sympy factors a polynomial in several symbols from random evaluation points (Wang's method): it
+# reduces the polynomial to one variable at a few points (EEZ_NUMBER_OF_CONFIGS, 3 by default) and
+# stops at once when one image is irreducible; when all happen to factor, it lifts a factorisation
+# that does not exist. On an irreducible quadratic in 9 symbols (a three-parallel-axes arm's reach
+# radicand) 4 of 40 random seeds ran for minutes that way instead of 0.02 s; with 6 or 10 points,
+# none of 40. So factor() runs with FACTOR_CONFIGS points, from FACTOR_SEED (the same time every run).
+FACTOR_CONFIGS = 10
 FACTOR_SEED = 0
 
 
@@ -178,15 +181,13 @@ def weight(expr) -> tuple:
 
 
 def bounded_factor(expr) -> sp.Expr:
-    """sympy.factor with sympy's random draws fixed (restored afterwards); ``expr`` itself beyond
-    FACTOR_SYMBOLS symbols, where factoring's running time has a long random tail."""
-    expr = sp.sympify(expr)
-    if len(expr.free_symbols) > FACTOR_SYMBOLS:
-        return expr
+    """sympy.factor from FACTOR_CONFIGS evaluation points, with sympy's random draws fixed (its
+    random state restored afterwards): the same factors, without the long random tail of its time."""
     state = sympy_random.rng.getstate()
     sympy_random.rng.seed(FACTOR_SEED)
     try:
-        return sp.factor(expr)
+        with polyconfig.using(EEZ_NUMBER_OF_CONFIGS=FACTOR_CONFIGS):
+            return sp.factor(expr)
     finally:
         sympy_random.rng.setstate(state)
 
