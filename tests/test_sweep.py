@@ -91,6 +91,131 @@ def test_r10_round_trip_near_the_wrist_centre_on_axis_2(r10, solver):
             assert pos.max() <= 1e-9 * arm.reach_scale() and rot.max() <= 1e-9, (step, conditioning, pos.max())
 
 
+# ----------------------------------------------------------------------------- the random-arm sweep's findings
+
+def wrist_bend_arm():
+    """An invented five-joint point-and-direction arm drawn by the 220-arm sweep (seed 16, arm 154):
+    at joint 5 1e-5 rad off its wrist's singular reading the direction came back 7.1e-9 rad off."""
+    return build_arm([
+        joint("r", a=0, alpha=90, d=0.77, theta=60, direction=-1, limits=[-180, 180]),
+        joint("r", a=0.573, alpha=0, d=0, theta=-60, direction=-1, limits=[-200, 200]),
+        joint("r", a=0.029, alpha=90, d=0, theta=60, direction=1, limits=[-180, 180]),
+        joint("r", a=0, alpha=-90, d=0.587, theta=0, direction=-1, limits=[-170, 170]),
+        joint("r", a=0, alpha=90, d=0, theta=-90, direction=1, limits=[-200, 200]),
+    ], base={"translation": [0.164, 0, 0.015], "rotation": {"axes": "zyx", "frame": "moving",
+                                                             "angles": [-94.0, -49.6, 81.9]}}, name="wrist_bend")
+
+
+# readings whose joint 5 (90 deg) puts axis 4 along the tool's z axis (the wrist's singular set)
+ON_WRIST_SET = np.array([-126.99224916274721, 173.77787072180666, -155.53546007894647, -159.68562508621247, 90.0])
+
+
+def batch_inverse(module):
+    """inverse(pose) through the numpy batch solver: [(joints, ..., conditioning)] of one pose."""
+    def inverse(pose):
+        joints, valid, _, _, conditioning = module.inverse_batch(np.array([pose]))
+        return [(tuple(joints[0, k]), None, None, tuple(conditioning[0, k])) for k in np.nonzero(valid[0])[0]]
+    return inverse
+
+
+@pytest.fixture(scope="module")
+def wrist_bend():
+    arm = wrist_bend_arm()
+    result = build(arm)
+    folder = result.folder
+    solvers = {"python": load_module(result.files[result.python_path], "wrist_bend_ik_under_test").inverse,
+               "batch": batch_inverse(load_module(result.files[f"{folder}/{folder}_ik_batch.py"], "wrist_bend_batch")),
+               "c": compile_solver(arm, result.derivation).inverse}
+    return arm, solvers
+
+
+@pytest.mark.parametrize("solver", ["python", "c", "batch"])
+def test_wrist_bend_near_its_singular_set_keeps_the_contract(wrist_bend, solver):
+    """Cause: joint 2's linear pair came out of unit length by 1.4e-13, under the old renormalising
+    slack (1e-12), so the direction in frame 3 was 1.4e-13 too long and joint 5, taken from its
+    cosine near 1 (sqrt((1 - c)(1 + c))), lost 7e-9 rad at sin = 1e-5. The slack is now 1e-15."""
+    arm, solvers = wrist_bend
+    chain = NumericChain(arm)
+    for step in (1e-3, 1e-4, 1e-5):                          # radians on joint 5, off the singular reading
+        readings = ON_WRIST_SET.copy()
+        readings[4] += np.degrees(step)
+        pose = chain.pose(readings)
+        solutions = solvers[solver](pose)
+        assert solutions, step
+        # the wrist bend's angle as geometry sees it (common practice): the angle between joint 4's
+        # axis and the tool's z axis, from the forward kinematics' frames, is |joint 5 - 90 deg|
+        frames = chain.frames(readings[None, :])[0]
+        axis4, tool_z = frames[3][:3, 2], (frames[-1] @ chain.tool)[:3, 2]
+        assert np.arctan2(np.linalg.norm(np.cross(axis4, tool_z)), axis4 @ tool_z) == pytest.approx(step, rel=1e-6)
+        pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
+        for solution, p, r in zip(solutions, pos, rot):
+            m = min(solution[3])
+            bound = 1e-9 + 1e-14 / m if m >= 1e-6 else 1e-9 + 10 * max(m, 1e-8)   # docs/derivation.md sec. 6
+            assert p <= bound * arm.reach_scale() and r <= bound, (step, m, p, r)
+        # the solution that continues the source readings has joint 5 within 1e-10 rad of it (was 7.1e-9)
+        gaps = [abs(np.radians(s[0][4] - readings[4])) for s in solutions if abs(s[0][0] - readings[0]) < 1e-6]
+        assert gaps and min(gaps) < 1e-10, (step, gaps)
+
+
+def folded_elbow_arms():
+    """Two invented five-joint point-and-direction arms drawn by the 220-arm sweep (seed 16, arms 99
+    and 187), each with readings that put its elbow exactly folded (the two-root step's radicand 0
+    to rounding): there inverse(pose) once called the pose not_realisable."""
+    first = build_arm([
+        joint("r", a=0, alpha=90, d=0.956, theta=-60, direction=-1, limits=[-270, 270]),
+        joint("r", a=0.514, alpha=0, d=0, theta=60, direction=-1, limits=[-170, 170]),
+        joint("r", a=0.011, alpha=90, d=0, theta=-30, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=-90, d=0.421, theta=-30, direction=-1, limits=[-170, 170]),
+        joint("r", a=0, alpha=90, d=0, theta=-60, direction=-1, limits=[-180, 180]),
+    ], tool={"translation": [0, 0, -0.161]}, name="folded_a")
+    second = build_arm([
+        joint("r", a=0, alpha=90, d=0.599, theta=60, direction=1, limits=[-200, 200]),
+        joint("r", a=0.877, alpha=0, d=0, theta=120, direction=-1, limits=[-200, 200]),
+        joint("r", a=0, alpha=90, d=0, theta=60, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=-90, d=0.859, theta=120, direction=1, limits=[-200, 200]),
+        joint("r", a=0, alpha=90, d=0, theta=-90, direction=-1, limits=[-180, 180]),
+    ], base={"translation": [0, 0.063, 0], "rotation": {"axes": "zyx", "frame": "moving",
+                                                        "angles": [27.6, -173.7, -175.6]}}, name="folded_b")
+    return [(first, np.array([-100.41244733381942, 160.67240057423828, -61.49669883975896,
+                              -75.26412759225707, 123.78186819625455])),
+            (second, np.array([172.3140926419302, -48.406334599918125, -150.00000000000006,
+                               134.16680231808942, -70.16977442549955]))]
+
+
+@pytest.fixture(scope="module")
+def folded():
+    cases = []
+    for arm, readings in folded_elbow_arms():
+        result = build(arm)
+        cases.append((arm, readings, {"python": load_module(result.files[result.python_path], f"{arm.name}_ik_test"),
+                                      "c": compile_solver(arm, result.derivation)}))
+    return cases
+
+
+@pytest.mark.parametrize("solver", ["python", "c"])
+def test_a_folded_elbow_pose_is_realisable_and_a_turned_roll_is_not(folded, solver):
+    """Cause: the roll check's tolerance was fixed (1e-6), but at a folded elbow the point and the
+    direction fix the elbow angle only to about sqrt(rounding) (1e-8 rad), and the arm's own roll,
+    which follows the elbow (amplified by the shoulder's compensation), came out 1.1e-6 and 1.3e-6
+    off: the pose of readings inside the limits was called not_realisable. The tolerance now widens
+    like 1/m (m the solution's smallest conditioning measure, floored at 1e-8)."""
+    from scipy.spatial.transform import Rotation
+    for arm, readings, solvers in folded:
+        module = solvers[solver]
+        chain = NumericChain(arm)
+        assert abs(label_measure("elbow")(chain, readings[None, :])[0]) < 1e-15     # on the set
+        pose = chain.pose(readings)
+        solutions, status = module.inverse(pose, with_status=True)
+        assert status == "ok" and solutions, (arm.name, status)
+        pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
+        assert pos.max() <= 1e-6 * arm.reach_scale() and rot.max() <= 1e-6        # verify's singular-pose bound
+        # the same pose turned 1e-3 rad about its tool z axis (scipy's Rotation composes the turn) is
+        # one no reading takes: still not realisable
+        turned = pose.copy()
+        turned[:3, :3] = (Rotation.from_matrix(pose[:3, :3]) * Rotation.from_rotvec([0, 0, 1e-3])).as_matrix()
+        assert module.inverse(turned, with_status=True) == ([], "not_realisable"), arm.name
+
+
 # ----------------------------------------------------------------------------- the seeded sweep
 
 from arm_draws import STRUCTURES, Draw, arm_text, outcome  # noqa: E402

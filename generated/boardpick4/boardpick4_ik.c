@@ -134,7 +134,7 @@ static int closed_form(const double pose[16], const double *current,
      * (elsewhere it is 1 to rounding, and the test is all it costs) */
     {
         const double hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4;
-        if (fabs(hqp12m4 - 1.0) > 9.9999999999999998e-13) {
+        if (fabs(hqp12m4 - 1.0) > 1.0000000000000001e-15) {
             const double hnp12m4 = 1.0 / sqrt(hqp12m4);
             cp12m4 = cp12m4 * hnp12m4;
             sp12m4 = sp12m4 * hnp12m4;
@@ -341,7 +341,7 @@ static int closed_form(const double pose[16], const double *current,
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
                 const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 9.9999999999999998e-13) {
+                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
                     const double hn1 = 1.0 / sqrt(hq1);
                     c1 = c1 * hn1;
                     s1 = s1 * hn1;

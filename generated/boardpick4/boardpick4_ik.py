@@ -385,7 +385,7 @@ def _closed_form(pose, current, check_finite=True):
         return solutions
     thp12m4 = atan2(sp12m4, cp12m4)
     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-    if abs(hqp12m4 - 1.0) > 1e-12:
+    if abs(hqp12m4 - 1.0) > 1e-15:
         hnp12m4 = 1.0 / sqrt(hqp12m4)
         cp12m4 = cp12m4 * hnp12m4
         sp12m4 = sp12m4 * hnp12m4
@@ -572,7 +572,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-12:
+            if abs(hq1 - 1.0) > 1e-15:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1
                 s1 = s1 * hn1

@@ -185,7 +185,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         thp12m4 = numpy.arctan2(sp12m4, cp12m4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
-        offp12m4 = numpy.abs(hqp12m4 - 1.0) > 1e-12
+        offp12m4 = numpy.abs(hqp12m4 - 1.0) > 1e-15
         if offp12m4.any():
             hnp12m4 = numpy.where(offp12m4, 1.0 / numpy.sqrt(numpy.where(offp12m4, hqp12m4, 1.0)), 1.0)
             cp12m4 = cp12m4 * hnp12m4
@@ -367,7 +367,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th1 = numpy.arctan2(s1, c1)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq1 = c1 * c1 + s1 * s1
-        off1 = numpy.abs(hq1 - 1.0) > 1e-12
+        off1 = numpy.abs(hq1 - 1.0) > 1e-15
         if off1.any():
             hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
             c1 = c1 * hn1

@@ -536,7 +536,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-12:
+            if abs(hq1 - 1.0) > 1e-15:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1
                 s1 = s1 * hn1
@@ -674,7 +674,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th2 = atan2(s2, c2)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq2 - 1.0) > 1e-12:
+            if abs(hq2 - 1.0) > 1e-15:
                 hn2 = 1.0 / sqrt(hq2)
                 c2 = c2 * hn2
                 s2 = s2 * hn2
@@ -740,7 +740,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th4 = atan2(s4, c4)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq4 - 1.0) > 1e-12:
+            if abs(hq4 - 1.0) > 1e-15:
                 hn4 = 1.0 / sqrt(hq4)
                 c4 = c4 * hn4
                 s4 = s4 * hn4
@@ -768,7 +768,7 @@ def _closed_form(pose, current, check_finite=True):
             continue
         th6 = atan2(s6, c6)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq6 - 1.0) > 1e-12:
+        if abs(hq6 - 1.0) > 1e-15:
             hn6 = 1.0 / sqrt(hq6)
             c6 = c6 * hn6
             s6 = s6 * hn6

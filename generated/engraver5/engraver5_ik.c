@@ -271,7 +271,7 @@ static int closed_form(const double pose[16], const double *current,
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
@@ -334,7 +334,7 @@ static int closed_form(const double pose[16], const double *current,
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
                         const double hn4 = 1.0 / sqrt(hq4);
                         c4 = c4 * hn4;
                         s4 = s4 * hn4;
@@ -502,6 +502,19 @@ static double roll_gap(const double joints[ENGRAVER5_IK_JOINTS], const double po
     return gap;
 }
 
+/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
+ * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
+static double roll_allowance(const engraver5_ik_solution *solution)
+{
+    double m = 1.0;
+    for (int k = 0; k < ENGRAVER5_IK_CONDITIONS; ++k) {
+        if (k == 0 || solution->conditioning[k] < m) {
+            m = solution->conditioning[k];
+        }
+    }
+    return ENGRAVER5_IK_ROLL_TOLERANCE + ENGRAVER5_IK_ROLL_GAIN / (m > ENGRAVER5_IK_ROLL_FLOOR ? m : ENGRAVER5_IK_ROLL_FLOOR);
+}
+
 /* Every solution of a pose; `check` applies the test that the pose is one this arm can take in
  * kind (tilt or roll), which the natural inputs pass by construction. */
 static int solve(const double pose_in[16], const double *current, engraver5_ik_limits limits,
@@ -519,7 +532,7 @@ static int solve(const double pose_in[16], const double *current, engraver5_ik_l
     if (check && found > 0) {
         int kept = 0;
         for (int i = 0; i < found; ++i) {
-            if (roll_gap(raw[i].joints, pose) <= ENGRAVER5_IK_ROLL_TOLERANCE) {
+            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i])) {
                 raw[kept++] = raw[i];
             }
         }

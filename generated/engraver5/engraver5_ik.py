@@ -60,6 +60,8 @@ TARGET = "point_and_direction"  # what the arm is asked for: the position of the
 STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 TOOL_AXIS = "z"  # the tool axis the direction is
 ROLL_TOLERANCE = 1e-06  # rad: a pose whose roll about TOOL_AXIS the arm cannot take (by more) is not realisable
+ROLL_GAIN = 1e-12  # ... by more than ROLL_TOLERANCE + ROLL_GAIN / max(m, ROLL_FLOOR), m the solution's
+ROLL_FLOOR = 1e-08  # smallest conditioning measure: near a singular set the arm's own roll is that uncertain
 UNIT_TOLERANCE = 1e-06  # a direction whose length is off 1 by more is invalid input
 
 _PI = 3.141592653589793
@@ -222,6 +224,13 @@ def _roll_gap(q, pose):
     f = forward(q)
     return max(abs(f[i][j] - pose[i][j]) for i in range(3) for j in range(3) if j != 2)
 
+def _roll_allowance(conditioning):
+    """The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m the
+    smallest conditioning measure, at least ROLL_FLOOR), where the pose's point and direction fix the
+    joints, and so the arm's own roll, only that well."""
+    m = min(conditioning) if conditioning else 1.0
+    return ROLL_TOLERANCE + ROLL_GAIN / (m if m > ROLL_FLOOR else ROLL_FLOOR)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
     if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
@@ -240,7 +249,7 @@ def _solve(pose, current, limits, check):
         return [], "invalid_input"                         # NaN, infinite, or its square overflows
     solutions = _closed_form(pose, current, biggest > SAFE_ENTRY)
     if check and solutions:
-        solutions = [s for s in solutions if _roll_gap(s[0], pose) <= ROLL_TOLERANCE]
+        solutions = [s for s in solutions if _roll_gap(s[0], pose) <= _roll_allowance(s[3])]
         if not solutions:
             return [], "not_realisable"
     if limits == "ignore":
@@ -506,7 +515,7 @@ def _closed_form(pose, current, check_finite=True):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-12:
+                if abs(hq2 - 1.0) > 1e-15:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
@@ -558,7 +567,7 @@ def _closed_form(pose, current, check_finite=True):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-12:
+                if abs(hq4 - 1.0) > 1e-15:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4

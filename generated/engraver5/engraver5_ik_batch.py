@@ -251,7 +251,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th2 = numpy.arctan2(s2, c2)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq2 = c2 * c2 + s2 * s2
-        off2 = numpy.abs(hq2 - 1.0) > 1e-12
+        off2 = numpy.abs(hq2 - 1.0) > 1e-15
         if off2.any():
             hn2 = numpy.where(off2, 1.0 / numpy.sqrt(numpy.where(off2, hq2, 1.0)), 1.0)
             c2 = c2 * hn2
@@ -300,7 +300,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th4 = numpy.arctan2(s4, c4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq4 = c4 * c4 + s4 * s4
-        off4 = numpy.abs(hq4 - 1.0) > 1e-12
+        off4 = numpy.abs(hq4 - 1.0) > 1e-15
         if off4.any():
             hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
             c4 = c4 * hn4

@@ -502,6 +502,19 @@ static float roll_gap(const float joints[ENGRAVER5_IK_F32_JOINTS], const float p
     return gap;
 }
 
+/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
+ * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
+static float roll_allowance(const engraver5_ik_f32_solution *solution)
+{
+    float m = 1.0f;
+    for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
+        if (k == 0 || solution->conditioning[k] < m) {
+            m = solution->conditioning[k];
+        }
+    }
+    return ENGRAVER5_IK_F32_ROLL_TOLERANCE + ENGRAVER5_IK_F32_ROLL_GAIN / (m > ENGRAVER5_IK_F32_ROLL_FLOOR ? m : ENGRAVER5_IK_F32_ROLL_FLOOR);
+}
+
 /* Every solution of a pose; `check` applies the test that the pose is one this arm can take in
  * kind (tilt or roll), which the natural inputs pass by construction. */
 static int solve(const float pose_in[16], const float *current, engraver5_ik_f32_limits limits,
@@ -519,7 +532,7 @@ static int solve(const float pose_in[16], const float *current, engraver5_ik_f32
     if (check && found > 0) {
         int kept = 0;
         for (int i = 0; i < found; ++i) {
-            if (roll_gap(raw[i].joints, pose) <= ENGRAVER5_IK_F32_ROLL_TOLERANCE) {
+            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i])) {
                 raw[kept++] = raw[i];
             }
         }

@@ -55,10 +55,13 @@ typedef enum {
 
 /* Target: the position of the tool point and the direction of the tool's z axis (natural for this arm; no [target] in the file). */
 /* The position and the tool's z axis (column 2 of the rotation) are read; solutions whose
- * roll about it is off the pose's by more than ROLL_TOLERANCE (rad, chord) are dropped, and with none
- * left the status is NOT_REALISABLE. engraver5_ik_f32_inverse_point_direction takes a point and a unit
+ * roll about it is off the pose's by more than ROLL_TOLERANCE + ROLL_GAIN / max(m, ROLL_FLOOR) (rad,
+ * chord; m the solution's smallest conditioning measure: near a singular set the arm's own roll is
+ * only that well fixed) are dropped, and with none left the status is NOT_REALISABLE. engraver5_ik_f32_inverse_point_direction takes a point and a unit
  * direction (off unit length by more than UNIT_TOLERANCE: INVALID_INPUT) and leaves the roll to the arm. */
 #define ENGRAVER5_IK_F32_ROLL_TOLERANCE 0.0001f
+#define ENGRAVER5_IK_F32_ROLL_GAIN 0.0f
+#define ENGRAVER5_IK_F32_ROLL_FLOOR 0.0001f
 #define ENGRAVER5_IK_F32_UNIT_TOLERANCE 0.0001f
 
 typedef enum {

@@ -439,7 +439,7 @@ static int closed_form(const double pose[16], const double *current,
          * (elsewhere it is 1 to rounding, and the test is all it costs) */
         {
             const double hq4 = c4 * c4 + s4 * s4;
-            if (fabs(hq4 - 1.0) > 9.9999999999999998e-13) {
+            if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
                 const double hn4 = 1.0 / sqrt(hq4);
                 c4 = c4 * hn4;
                 s4 = s4 * hn4;
@@ -476,7 +476,7 @@ static int closed_form(const double pose[16], const double *current,
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
                 const double hq5 = c5 * c5 + s5 * s5;
-                if (fabs(hq5 - 1.0) > 9.9999999999999998e-13) {
+                if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
                     const double hn5 = 1.0 / sqrt(hq5);
                     c5 = c5 * hn5;
                     s5 = s5 * hn5;
@@ -564,7 +564,7 @@ static int closed_form(const double pose[16], const double *current,
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
                 const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 9.9999999999999998e-13) {
+                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
                     const double hn1 = 1.0 / sqrt(hq1);
                     c1 = c1 * hn1;
                     s1 = s1 * hn1;
@@ -600,7 +600,7 @@ static int closed_form(const double pose[16], const double *current,
          * (elsewhere it is 1 to rounding, and the test is all it costs) */
         {
             const double hq3 = c3 * c3 + s3 * s3;
-            if (fabs(hq3 - 1.0) > 9.9999999999999998e-13) {
+            if (fabs(hq3 - 1.0) > 1.0000000000000001e-15) {
                 const double hn3 = 1.0 / sqrt(hq3);
                 c3 = c3 * hn3;
                 s3 = s3 * hn3;

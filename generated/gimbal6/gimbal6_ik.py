@@ -541,7 +541,7 @@ def _closed_form(pose, current, check_finite=True):
             continue
         th4 = atan2(s4, c4)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq4 - 1.0) > 1e-12:
+        if abs(hq4 - 1.0) > 1e-15:
             hn4 = 1.0 / sqrt(hq4)
             c4 = c4 * hn4
             s4 = s4 * hn4
@@ -570,7 +570,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th5 = atan2(s5, c5)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq5 - 1.0) > 1e-12:
+            if abs(hq5 - 1.0) > 1e-15:
                 hn5 = 1.0 / sqrt(hq5)
                 c5 = c5 * hn5
                 s5 = s5 * hn5
@@ -647,7 +647,7 @@ def _closed_form(pose, current, check_finite=True):
         else:
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-12:
+            if abs(hq1 - 1.0) > 1e-15:
                 hn1 = 1.0 / sqrt(hq1)
                 c1 = c1 * hn1
                 s1 = s1 * hn1
@@ -673,7 +673,7 @@ def _closed_form(pose, current, check_finite=True):
             continue
         th3 = atan2(s3, c3)
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq3 - 1.0) > 1e-12:
+        if abs(hq3 - 1.0) > 1e-15:
             hn3 = 1.0 / sqrt(hq3)
             c3 = c3 * hn3
             s3 = s3 * hn3

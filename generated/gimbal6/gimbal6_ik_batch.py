@@ -274,7 +274,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th4 = numpy.arctan2(s4, c4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq4 = c4 * c4 + s4 * s4
-        off4 = numpy.abs(hq4 - 1.0) > 1e-12
+        off4 = numpy.abs(hq4 - 1.0) > 1e-15
         if off4.any():
             hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
             c4 = c4 * hn4
@@ -298,7 +298,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th5 = numpy.arctan2(s5, c5)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq5 = c5 * c5 + s5 * s5
-        off5 = numpy.abs(hq5 - 1.0) > 1e-12
+        off5 = numpy.abs(hq5 - 1.0) > 1e-15
         if off5.any():
             hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
             c5 = c5 * hn5
@@ -372,7 +372,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th1 = numpy.arctan2(s1, c1)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq1 = c1 * c1 + s1 * s1
-        off1 = numpy.abs(hq1 - 1.0) > 1e-12
+        off1 = numpy.abs(hq1 - 1.0) > 1e-15
         if off1.any():
             hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
             c1 = c1 * hn1
@@ -404,7 +404,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th3 = numpy.arctan2(s3, c3)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq3 = c3 * c3 + s3 * s3
-        off3 = numpy.abs(hq3 - 1.0) > 1e-12
+        off3 = numpy.abs(hq3 - 1.0) > 1e-15
         if off3.any():
             hn3 = numpy.where(off3, 1.0 / numpy.sqrt(numpy.where(off3, hq3, 1.0)), 1.0)
             c3 = c3 * hn3

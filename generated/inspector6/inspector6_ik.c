@@ -282,7 +282,7 @@ static int closed_form(const double pose[16], const double *current,
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
@@ -352,7 +352,7 @@ static int closed_form(const double pose[16], const double *current,
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
                         const double hn4 = 1.0 / sqrt(hq4);
                         c4 = c4 * hn4;
                         s4 = s4 * hn4;
@@ -390,7 +390,7 @@ static int closed_form(const double pose[16], const double *current,
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
                 const double hq6 = c6 * c6 + s6 * s6;
-                if (fabs(hq6 - 1.0) > 9.9999999999999998e-13) {
+                if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
                     const double hn6 = 1.0 / sqrt(hq6);
                     c6 = c6 * hn6;
                     s6 = s6 * hn6;

@@ -473,7 +473,7 @@ def _closed_form(pose, current, check_finite=True):
             else:
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-12:
+                if abs(hq4 - 1.0) > 1e-15:
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4
@@ -501,7 +501,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             th6 = atan2(s6, c6)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq6 - 1.0) > 1e-12:
+            if abs(hq6 - 1.0) > 1e-15:
                 hn6 = 1.0 / sqrt(hq6)
                 c6 = c6 * hn6
                 s6 = s6 * hn6

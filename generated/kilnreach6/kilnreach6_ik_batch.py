@@ -228,7 +228,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th4 = numpy.arctan2(s4, c4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq4 = c4 * c4 + s4 * s4
-        off4 = numpy.abs(hq4 - 1.0) > 1e-12
+        off4 = numpy.abs(hq4 - 1.0) > 1e-15
         if off4.any():
             hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
             c4 = c4 * hn4
@@ -262,7 +262,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         th6 = numpy.arctan2(s6, c6)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq6 = c6 * c6 + s6 * s6
-        off6 = numpy.abs(hq6 - 1.0) > 1e-12
+        off6 = numpy.abs(hq6 - 1.0) > 1e-15
         if off6.any():
             hn6 = numpy.where(off6, 1.0 / numpy.sqrt(numpy.where(off6, hq6, 1.0)), 1.0)
             c6 = c6 * hn6

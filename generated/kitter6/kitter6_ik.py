@@ -436,7 +436,7 @@ def _closed_form(pose, current, check_finite=True):
             else:
                 th6 = atan2(s6, c6)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq6 - 1.0) > 1e-12:
+                if abs(hq6 - 1.0) > 1e-15:
                     hn6 = 1.0 / sqrt(hq6)
                     c6 = c6 * hn6
                     s6 = s6 * hn6
@@ -477,7 +477,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             thp234 = atan2(sp234, cp234)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hqp234 - 1.0) > 1e-12:
+            if abs(hqp234 - 1.0) > 1e-15:
                 hnp234 = 1.0 / sqrt(hqp234)
                 cp234 = cp234 * hnp234
                 sp234 = sp234 * hnp234
@@ -523,7 +523,7 @@ def _closed_form(pose, current, check_finite=True):
                 else:
                     th2 = atan2(s2, c2)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-12:
+                    if abs(hq2 - 1.0) > 1e-15:
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2

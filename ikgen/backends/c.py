@@ -95,7 +95,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
     context = dict(
         arm=arm, plan=plan, p=printer.doprint, num=printer.number, fn=scalar.fn, real=scalar.name,
         # a pair's cos^2 + sin^2 off 1 by more than rounding of the scalar type is renormalised
-        unit_slack=1e-12 if scalar.name == "double" else 1e-6,
+        unit_slack=common.UNIT_SLACK[scalar.name],
         header_lines=common.header_lines(arm, derivation), comment=common.comment_text, names=n,
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
@@ -121,6 +121,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         given=common.given_plan(arm), GP=f"{scalar.name} given, " if arm.given_joint else "",
         GA="given, " if arm.given_joint else "",
         tolerances={"tilt": common.TILT_TOLERANCE[scalar.name], "roll": common.ROLL_TOLERANCE[scalar.name],
+                    "roll_gain": common.ROLL_GAIN[scalar.name], "roll_floor": common.ROLL_FLOOR[scalar.name],
                     "unit": common.UNIT_TOLERANCE[scalar.name]})
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
             n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}

@@ -743,7 +743,23 @@ def header_lines(arm: Arm, derivation: Derivation) -> list[str]:
 
 TILT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad: a pose turned off the target's axis by more
 ROLL_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad (chord): a pose whose roll the arm cannot take
+# ... widened near a singular set to ROLL_TOLERANCE + ROLL_GAIN / max(m, ROLL_FLOOR), m the solution's
+# smallest conditioning measure: there the pose's point and direction fix the joints, hence the
+# arm's own roll, only to about (rounding) / m (to sqrt(rounding) on the set, where m reads 0 up to
+# ROLL_FLOOR), so a fixed tolerance called realisable poses not_realisable (at an elbow folded to
+# 1e-17 the true solution's roll came out 1.1e-6 to 1.6e-5 off; the random-arm sweep's five-joint
+# arms reach roll gap x max(m, 1e-8) = 1.6e-13 at worst, 6 times below the double gain). The float
+# build keeps the fixed tolerance (gain 0) until its own gaps are measured: its known roll losses
+# (tests/test_c_backend_float.py) come at measures of 0.05 to 0.6, which no 1/m law explains.
+ROLL_GAIN = {"double": 1e-12, "float": 0.0}
+ROLL_FLOOR = {"double": 1e-8, "float": 1e-4}
 UNIT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # |direction| off 1 by more is invalid input
+# A linear pair's cos^2 + sin^2 off 1 by more than this is renormalised before later steps use the
+# pair: a later step may take a small angle from a cosine near 1 (sqrt((1 - c)(1 + c))), where a scale
+# drift of d costs about d / m in the angle (m its conditioning measure), so the slack must stay below
+# the precision contract's 1e-14 / m (docs/derivation.md section 6): about 4.5 ulp of 1 in double
+# (1e-12 let a drift of 1.4e-13 through and cost 7e-9 rad at m = 1e-5).
+UNIT_SLACK = {"double": 1e-15, "float": 1e-6}
 
 
 @dataclass

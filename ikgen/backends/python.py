@@ -87,7 +87,8 @@ TARGET_API = {
 
 def tolerances(real: str) -> dict:
     return {"tilt": common.TILT_TOLERANCE[real], "roll": common.ROLL_TOLERANCE[real],
-            "unit": common.UNIT_TOLERANCE[real]}
+            "roll_gain": common.ROLL_GAIN[real], "roll_floor": common.ROLL_FLOOR[real],
+            "unit": common.UNIT_TOLERANCE[real], "slack": common.UNIT_SLACK[real]}
 
 
 def within_test(arm: Arm) -> str:
