@@ -343,7 +343,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
@@ -424,7 +424,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
                     const double hq5 = c5 * c5 + s5 * s5;
-                    if (fabs(hq5 - 1.0) > 9.9999999999999998e-13) {
+                    if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
                         const double hn5 = 1.0 / sqrt(hq5);
                         c5 = c5 * hn5;
                         s5 = s5 * hn5;
@@ -462,7 +462,7 @@ static int closed_form(const double pose[16], double given, const double *curren
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
                 const double hq7 = c7 * c7 + s7 * s7;
-                if (fabs(hq7 - 1.0) > 9.9999999999999998e-13) {
+                if (fabs(hq7 - 1.0) > 1.0000000000000001e-15) {
                     const double hn7 = 1.0 / sqrt(hq7);
                     c7 = c7 * hn7;
                     s7 = s7 * hn7;

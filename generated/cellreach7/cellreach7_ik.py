@@ -623,7 +623,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             else:
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-12:
+                if abs(hq2 - 1.0) > 1e-15:
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
@@ -693,7 +693,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             else:
                 th5 = atan2(s5, c5)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq5 - 1.0) > 1e-12:
+                if abs(hq5 - 1.0) > 1e-15:
                     hn5 = 1.0 / sqrt(hq5)
                     c5 = c5 * hn5
                     s5 = s5 * hn5
@@ -721,7 +721,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 continue
             th7 = atan2(s7, c7)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq7 - 1.0) > 1e-12:
+            if abs(hq7 - 1.0) > 1e-15:
                 hn7 = 1.0 / sqrt(hq7)
                 c7 = c7 * hn7
                 s7 = s7 * hn7

@@ -282,7 +282,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         th2 = numpy.arctan2(s2, c2)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq2 = c2 * c2 + s2 * s2
-        off2 = numpy.abs(hq2 - 1.0) > 1e-12
+        off2 = numpy.abs(hq2 - 1.0) > 1e-15
         if off2.any():
             hn2 = numpy.where(off2, 1.0 / numpy.sqrt(numpy.where(off2, hq2, 1.0)), 1.0)
             c2 = c2 * hn2
@@ -349,7 +349,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         th5 = numpy.arctan2(s5, c5)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq5 = c5 * c5 + s5 * s5
-        off5 = numpy.abs(hq5 - 1.0) > 1e-12
+        off5 = numpy.abs(hq5 - 1.0) > 1e-15
         if off5.any():
             hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
             c5 = c5 * hn5
@@ -383,7 +383,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         th7 = numpy.arctan2(s7, c7)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq7 = c7 * c7 + s7 * s7
-        off7 = numpy.abs(hq7 - 1.0) > 1e-12
+        off7 = numpy.abs(hq7 - 1.0) > 1e-15
         if off7.any():
             hn7 = numpy.where(off7, 1.0 / numpy.sqrt(numpy.where(off7, hq7, 1.0)), 1.0)
             c7 = c7 * hn7
