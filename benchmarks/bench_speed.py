@@ -7,7 +7,8 @@ joint limits ignored:
   hand-written benchmarks/hand/benchtop6_hand.c, ns per full solve and their ratio (goal <= 1.05x);
   the generated float build (<arm>_ik_f32.c) against the double one (goal <= 1.0x). One harness
   (benchmarks/hand/speed_harness.c) times them in interleaved rounds and keeps each one's best;
-- Python: the generated <arm>_ik.py, inverse(pose, limits="ignore"), against the hand-written
+- Python: the generated <arm>_ik.py, inverse(pose, limits="ignore") and the readings-only
+  inverse_joints(pose) (the same output as the hand-written solver's), against the hand-written
   benchmarks/hand/benchtop6_hand.py, us per full solve and their ratio (goal <= 1.5x);
 - the generated C called once per pose through cffi (ikgen.cbuild.compile_solver(arm).inverse,
   rendered by the installed generator) against the generated pure-Python solver (goal <= 1.0x).
@@ -140,6 +141,8 @@ def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Pa
 def check_python(generated, hand, poses: list) -> None:
     for index, pose in enumerate(poses):
         want, got = len(generated.inverse(pose, limits="ignore")), len(hand.inverse(pose))
+        if hasattr(generated, "inverse_joints") and len(generated.inverse_joints(pose)) != want:
+            raise BenchError(f"pose {index}: inverse_joints and inverse disagree on the number of solutions")
         if want != got:
             raise BenchError(f"pose {index}: the generated Python solver finds {want} solutions, "
                              f"the hand-written one {got}: fix that before timing them")
@@ -198,6 +201,10 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     gen, hand = py["generated"], py["hand"]
     line("Python, us per full solve (best)", f"{gen[0]:.2f}", f"{hand[0]:.2f}", gen[0] / hand[0], GOALS["python"])
     line("  (median round)", f"{gen[1]:.2f}", f"{hand[1]:.2f}", gen[1] / hand[1])
+    if "readings" in py:
+        lean = py["readings"]
+        line("Python inverse_joints (readings only), us", f"{lean[0]:.2f}", f"{hand[0]:.2f}", lean[0] / hand[0],
+             GOALS["python"])
     if "cffi" in py:
         cffi = py["cffi"]
         line("cffi per-pose call vs pure Python, us", f"{cffi[0]:.2f}", f"{gen[0]:.2f}", cffi[0] / gen[0],
@@ -254,6 +261,8 @@ def measure(args, cc: str, work: Path) -> None:
     nested = [p.tolist() for p in poses[:args.python_poses or len(poses)]]
     check_python(generated, hand, nested[:args.check_poses])
     solvers = {"generated": lambda pose: generated.inverse(pose, limits="ignore"), "hand": hand.inverse}
+    if hasattr(generated, "inverse_joints"):          # readings only, as the hand-written solver returns
+        solvers["readings"] = generated.inverse_joints
     if not args.no_cffi:
         from ikgen.cbuild import compile_solver
         compiled = compile_solver(arm, folder=work / "cffi")

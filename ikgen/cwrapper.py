@@ -379,8 +379,14 @@ def _bind(namespace, spec_path):
         if key.isupper():
             namespace[key] = tuple(tuple(v) if isinstance(v, list) else v for v in value) \
                 if isinstance(value, list) else value
+    def inverse_joints(pose, *args, **kwargs):
+        """inverse_joints(pose, [given,] current=None): the readings of every closed-form solution."""
+        given, args, kwargs = given_arguments(solver.given, args, kwargs)
+        current = kwargs.pop("current", args[0] if args else None)
+        return [s[0] for s in solver.inverse(pose, *given, current, "ignore")]
+
     namespace.update(forward=solver.forward, inverse=solver.inverse, nearest=nearest, ffi=solver.ffi,
-                     lib=solver.lib, solver=solver)
+                     lib=solver.lib, solver=solver, inverse_joints=inverse_joints)
     if solver.given is not None:
         def choose_given(pose, current=None, criterion="nearest", weights=None, config=None, step=None, limits="drop"):
             """(reading, Solution): the given joint's reading and solution best by ``criterion`` (see

@@ -304,6 +304,7 @@ def test_the_compiled_wrapper_takes_the_given_reading(tmp_path):
         reading, solution = wrapper.choose_given(pose, q, criterion)
         expected, _ = module.choose_given(pose, q, criterion)
         assert reading == pytest.approx(expected, abs=1e-6)
+    assert np.allclose(wrapper.inverse_joints(pose, 20.0), module.inverse_joints(pose, 20.0), atol=1e-9)
     with pytest.raises(ValueError, match="given"):
         wrapper.inverse(pose)
 

@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -606,19 +609,14 @@ def _closed_form(pose, current, check_finite=True):
             free6 = True
 
             dt6 = 1
-            c6 = (g56_11) / dt6
-            s6 = (-g56_12) / dt6
+            c6 = g56_11
+            s6 = -g56_12
             free6 = False
 
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq6 - 1.0) > 1e-15:
-                hn6 = 1.0 / sqrt(hq6)
-                c6 = c6 * hn6
-                s6 = s6 * hn6
 
             # Joint readings, configuration labels, singular flag.
 
@@ -651,6 +649,7 @@ def _closed_form(pose, current, check_finite=True):
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
                 "bend_positive" if lm2 >= 0.0 else "bend_negative",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
+
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -671,6 +670,315 @@ def _closed_form(pose, current, check_finite=True):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
                 ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    pcx = px - 95*r13
+    pcy = py - 95*r23
+    pcz = pz - 95*r33
+
+    # wrist centre in the DH base frame: T c, with c its place in the last DH frame
+    wx = pcx - 70*r13
+    wy = pcy - 70*r23
+    wz = pcz - 70*r33
+
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    v1y = 220 - wz
+    g16_21 = -r31
+    g16_22 = -r32
+    g16_23 = -r33
+    g16_24 = 220 - pcz
+
+    # th1: z of A1^-1 w = A2 A3 c3
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t3_0 = wx*wx + wy*wy
+    eb1 = -wx
+
+    free1 = t3_0 <= 9.999999999999999e-16
+    if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
+        return solutions
+    root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -eb1*root1*sg1
+            sn1 = root1*sg1*wy
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
+
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
+        v1x = c1*wx + s1*wy - 25
+        v1z = c1*wy - s1*wx
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
+        g16_14 = c1*pcx + pcy*s1 - 25
+        g16_31 = c1*r21 - r11*s1
+        g16_32 = c1*r22 - r12*s1
+        g16_33 = c1*r23 - r13*s1
+        g16_34 = c1*pcy - pcx*s1
+        g36_21 = -g16_31
+        g36_22 = -g16_32
+        g36_23 = -g16_33
+
+        # th3: squared norm of A1^-1 w = A2 A3 c3
+        # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
+        ec3 = t5_0 - 125600
+        er3 = (250832.5836194399 - t5_0)*(t5_0 - 367.416380560127)
+
+        if er3 + 31.366400000000002 < 0.0:
+            continue
+        root3 = sqrt(er3) if er3 > 0.0 else 0.0
+        dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+        for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
+            cn3 = 10400*ec3 + 124800*root3*sg3
+            sn3 = -124800*ec3 + 10400*root3*sg3
+            th3 = -1.4876550949064553 + sg3 * dl3
+            c3 = 6.37624974495001e-11*cn3
+            s3 = 6.37624974495001e-11*sn3
+
+            # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free2 = True
+            t7_0_0 = 20*v1x
+            t7_0_1 = c3*v1y
+            t7_0_2 = s3*v1y
+
+            dt2 = -v1x*v1x - v1y*v1y
+            if abs(dt2) > 9.999999999999999e-16:
+                c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
+                s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2
+                free2 = False
+                wk2 = 0.0009999999999999998
+
+            if free2:
+                t7_1_0 = g16_14*v1x
+                t7_1_1 = g16_14*v1y
+                t7_1_2 = g16_24*v1x
+                t7_1_3 = g16_24*v1y
+                t7_1_4 = 520*c3
+                t7_1_5 = 520*s3
+                t7_1_6 = 124800*g16_14
+                t7_1_7 = 10400*v1y
+                t7_1_8 = c3*v1y
+                t7_1_9 = g16_14*s3
+                t7_1_10 = s3*v1x
+                t7_1_11 = 124800*g16_24
+                t7_1_12 = c3*s3
+                t7_1_13 = 10400*v1x
+                t7_1_14 = s3*s3
+                t7_1_15 = 10400*t7_1_14
+                t7_1_16 = g16_14*g16_14
+                t7_1_17 = g16_24*g16_24
+                t7_1_18 = g16_34*g16_34
+                t7_1_19 = c3*v1x
+                t7_1_20 = s3*v1y
+
+                dt2 = -t7_1_0*t7_1_5 + 480*t7_1_0 + t7_1_1*t7_1_4 + 40*t7_1_1 - t7_1_2*t7_1_4 - 40*t7_1_2 - t7_1_3*t7_1_5 + 480*t7_1_3
+                if abs(dt2) > 1e-12:
+                    c2 = (9600*c3*g16_14 - 136000*c3*g16_24 + 10400*c3*t7_1_9 + 9600*g16_24*s3 + g16_24*t7_1_15 - 20800*g16_24 - 124800*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700*t7_1_8 + 800*t7_1_9) / dt2
+                    s2 = (136000*c3*g16_14 + 10400*c3*g16_24*s3 + 9600*c3*g16_24 + 124800*c3*s3*v1x - g16_14*t7_1_15 + 20800*g16_14 + 800*g16_24*s3 + 124800*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400*t7_1_14*v1x + 124800*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700*t7_1_19 - 120700*t7_1_20 - 9600*t7_1_9) / dt2
+                    free2 = False
+                    wk2 = 1.0
+
+            if free2:
+                t7_2_0 = g16_13*v1x
+                t7_2_1 = g16_14*v1x
+                t7_2_2 = g16_23*v1y
+                t7_2_3 = g16_24*v1y
+                t7_2_4 = 2800*c3
+                t7_2_5 = g16_13*v1y
+                t7_2_6 = 33600*c3
+                t7_2_7 = 40*c3
+                t7_2_8 = 480*c3
+                t7_2_9 = g16_14*v1y
+                t7_2_10 = g16_23*v1x
+                t7_2_11 = g16_24*v1x
+                t7_2_12 = 33600*s3
+                t7_2_13 = 2800*s3
+                t7_2_14 = 480*s3
+                t7_2_15 = 40*s3
+                t7_2_16 = 10400*c3
+                t7_2_17 = g16_14*g16_14
+                t7_2_18 = g16_24*g16_24
+                t7_2_19 = g16_34*g16_34
+                t7_2_20 = c3*s3
+                t7_2_21 = g16_23*t7_2_20
+                t7_2_22 = s3*s3
+                t7_2_23 = g16_13*g16_13
+                t7_2_24 = 4900*v1x
+                t7_2_25 = 114400*t7_2_22
+                t7_2_26 = g16_23*g16_23
+                t7_2_27 = g16_33*g16_33
+                t7_2_28 = 4900*v1y
+
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400*t7_2_2 - t7_2_3*t7_2_7 - 520*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
+                if abs(dt2) > 1e-12:
+                    c2 = (19200*c3*g16_14*s3 + 8736000*c3*g16_23 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 + 140*g16_23*g16_24*v1x + 728000*g16_23*s3 - 1344000*g16_23*t7_2_22 + 672000*g16_23 - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2
+                    s2 = (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 + 140*g16_23*g16_24*v1y + 8008000*g16_23*t7_2_22 - 8064000*g16_23 - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2
+                    free2 = False
+                    wk2 = 1.0
+
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free2:
+                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                c2 = cos(th2)
+                s2 = sin(th2)
+            else:
+                th2 = atan2(s2, c2)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq2 - 1.0) > 1e-15:
+                    hn2 = 1.0 / sqrt(hq2)
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
+
+            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            g26_11 = c2*g16_11 + g16_21*s2
+            g26_12 = c2*g16_12 + g16_22*s2
+            g26_13 = c2*g16_13 + g16_23*s2
+            g26_21 = c2*g16_21 - g16_11*s2
+            g26_22 = c2*g16_22 - g16_12*s2
+            g26_23 = c2*g16_23 - g16_13*s2
+
+            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g36_13 = c3*g26_13 + g26_23*s3
+            g36_31 = c3*g26_21 - g26_11*s3
+            g36_32 = c3*g26_22 - g26_12*s3
+            g36_33 = c3*g26_23 - g26_13*s3
+
+            # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+            # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+            er5 = g36_13*g36_13 + g36_23*g36_23
+
+            if er5 + 2e-09 < 0.0:
+                continue
+            root5 = sqrt(er5) if er5 > 0.0 else 0.0
+            # the second root follows from this one by symmetry (emitted with the solution below)
+            sg5 = 1.0
+            cn5 = g36_33
+            sn5 = root5*sg5
+            th5 = atan2(sn5, cn5)
+            c5 = cn5
+            s5 = sn5
+
+            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free4 = True
+
+            dt4 = -s5*s5
+            if abs(dt4) > 1e-20:
+                c4 = (g36_13*s5) / dt4
+                s4 = (g36_23*s5) / dt4
+                free4 = False
+                wk4 = 1e-08
+
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free4:
+                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                c4 = cos(th4)
+                s4 = sin(th4)
+            else:
+                th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq4 - 1.0) > 1e-15:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
+
+            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+            g46_11 = c4*g36_11 + g36_21*s4
+            g46_12 = c4*g36_12 + g36_22*s4
+
+            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+            g56_11 = c5*g46_11 + g36_31*s5
+            g56_12 = c5*g46_12 + g36_32*s5
+
+            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free6 = True
+
+            dt6 = 1
+            c6 = g56_11
+            s6 = -g56_12
+            free6 = False
+
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
+                continue
+            th6 = atan2(s6, c6)
+
+            # Joint readings, configuration labels, singular flag.
+            u1 = th1
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = th2 - -1.5707963267948966
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = th3
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u4 = th4
+            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u5 = th5
+            u6 = th6
+            q = (
+                u1 * 57.29577951308232,
+                u2 * 57.29577951308232,
+                u3 * 57.29577951308232,
+                u4 * 57.29577951308232,
+                u5 * 57.29577951308232,
+                u6 * 57.29577951308232,
+            )
+            solutions.append(q)
+
+            if root5 > 0.0 and not free4:
+                u4 = th4 + _PI
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u5 = -th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u6 = th6 + _PI
+                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                q = (
+                    u1 * 57.29577951308232,
+                    u2 * 57.29577951308232,
+                    u3 * 57.29577951308232,
+                    u4 * 57.29577951308232,
+                    u5 * 57.29577951308232,
+                    u6 * 57.29577951308232,
+                )
+                solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -130,16 +130,6 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     thp12m4 = atan2(sp12m4, cp12m4);
-    /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-     * (elsewhere it is 1 to rounding, and the test is all it costs) */
-    {
-        const double hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4;
-        if (fabs(hqp12m4 - 1.0) > 1.0000000000000001e-15) {
-            const double hnp12m4 = 1.0 / sqrt(hqp12m4);
-            cp12m4 = cp12m4 * hnp12m4;
-            sp12m4 = sp12m4 * hnp12m4;
-        }
-    }
 
     /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
     double l3 = 0.0, dn3;
@@ -337,16 +327,6 @@ static int closed_form(const double pose[16], const double *current,
             s1 = sin(th1);
         } else {
             th1 = atan2(s1, c1);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn1 = 1.0 / sqrt(hq1);
-                    c1 = c1 * hn1;
-                    s1 = s1 * hn1;
-                }
-            }
         }
 
         /* th4: from the sum of parallel-axis angles */

@@ -29,6 +29,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -376,19 +379,14 @@ def _closed_form(pose, current, check_finite=True):
     freep12m4 = True
 
     dtp12m4 = 1
-    cp12m4 = (r11) / dtp12m4
-    sp12m4 = (r12) / dtp12m4
+    cp12m4 = r11
+    sp12m4 = r12
     freep12m4 = False
 
     hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
     if abs(hqp12m4 - 1.0) > 1e-4:
         return solutions
     thp12m4 = atan2(sp12m4, cp12m4)
-    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-    if abs(hqp12m4 - 1.0) > 1e-15:
-        hnp12m4 = 1.0 / sqrt(hqp12m4)
-        cp12m4 = cp12m4 * hnp12m4
-        sp12m4 = sp12m4 * hnp12m4
 
     # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
     free3 = True
@@ -571,11 +569,6 @@ def _closed_form(pose, current, check_finite=True):
             s1 = sin(th1)
         else:
             th1 = atan2(s1, c1)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-15:
-                hn1 = 1.0 / sqrt(hq1)
-                c1 = c1 * hn1
-                s1 = s1 * hn1
 
         # th4: from the sum of parallel-axis angles
         th4 =  - thp12m4 + th2 + th1
@@ -607,6 +600,16 @@ def _closed_form(pose, current, check_finite=True):
         solutions.append(_new(Solution, (q, (
             "counterclockwise" if lm0 >= 0.0 else "clockwise",
         ), singular, conditioning, -140.00000028 <= q[0] <= 140.00000028 and -150.0000003 <= q[1] <= 150.0000003 and -1.8000000000000002e-07 <= q[2] <= 180.00000018)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    # this target's pose is projected (tilt) or its solutions checked (roll) first: inverse does it
+    return [s[0] for s in _solve(pose, current, "ignore", True)[0]]

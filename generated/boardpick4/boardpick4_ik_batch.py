@@ -183,13 +183,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosenp12m4 = chosenp12m4 | use
         valid = valid & ~(numpy.abs(cp12m4 * cp12m4 + sp12m4 * sp12m4 - 1.0) > 1e-4)
         thp12m4 = numpy.arctan2(sp12m4, cp12m4)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4
-        offp12m4 = numpy.abs(hqp12m4 - 1.0) > 1e-15
-        if offp12m4.any():
-            hnp12m4 = numpy.where(offp12m4, 1.0 / numpy.sqrt(numpy.where(offp12m4, hqp12m4, 1.0)), 1.0)
-            cp12m4 = cp12m4 * hnp12m4
-            sp12m4 = sp12m4 * hnp12m4
 
         # l3: the displacement from an equation linear in it: the first form whose denominator is not ~0 (later forms only where needed)
         chosen3 = numpy.zeros((), dtype=bool)
@@ -365,13 +358,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free1 = ~chosen1 | weak1
         valid = valid & ~(bad1 & ~weak1)
         th1 = numpy.arctan2(s1, c1)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq1 = c1 * c1 + s1 * s1
-        off1 = numpy.abs(hq1 - 1.0) > 1e-15
-        if off1.any():
-            hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
-            c1 = c1 * hn1
-            s1 = s1 * hn1
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)

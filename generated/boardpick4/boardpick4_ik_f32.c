@@ -130,16 +130,6 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     thp12m4 = atan2f(sp12m4, cp12m4);
-    /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-     * (elsewhere it is 1 to rounding, and the test is all it costs) */
-    {
-        const float hqp12m4 = cp12m4 * cp12m4 + sp12m4 * sp12m4;
-        if (fabsf(hqp12m4 - 1.0f) > 1e-06f) {
-            const float hnp12m4 = 1.0f / sqrtf(hqp12m4);
-            cp12m4 = cp12m4 * hnp12m4;
-            sp12m4 = sp12m4 * hnp12m4;
-        }
-    }
 
     /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
     float l3 = 0.0f, dn3;
@@ -337,16 +327,6 @@ static int closed_form(const float pose[16], const float *current,
             s1 = sinf(th1);
         } else {
             th1 = atan2f(s1, c1);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq1 = c1 * c1 + s1 * s1;
-                if (fabsf(hq1 - 1.0f) > 1e-06f) {
-                    const float hn1 = 1.0f / sqrtf(hq1);
-                    c1 = c1 * hn1;
-                    s1 = s1 * hn1;
-                }
-            }
         }
 
         /* th4: from the sum of parallel-axis angles */

@@ -697,16 +697,6 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         th6 = atan2(s6, c6);
-        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-         * (elsewhere it is 1 to rounding, and the test is all it costs) */
-        {
-            const double hq6 = c6 * c6 + s6 * s6;
-            if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
-                const double hn6 = 1.0 / sqrt(hq6);
-                c6 = c6 * hn6;
-                s6 = s6 * hn6;
-            }
-        }
 
         /* joint readings, configuration labels, singular flag */
 

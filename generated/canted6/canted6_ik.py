@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -759,19 +762,14 @@ def _closed_form(pose, current, check_finite=True):
         free6 = True
 
         dt6 = 1
-        c6 = (g56_11) / dt6
-        s6 = (-g56_12) / dt6
+        c6 = g56_11
+        s6 = -g56_12
         free6 = False
 
         hq6 = c6 * c6 + s6 * s6
         if abs(hq6 - 1.0) > 1e-4:
             continue
         th6 = atan2(s6, c6)
-        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq6 - 1.0) > 1e-15:
-            hn6 = 1.0 / sqrt(hq6)
-            c6 = c6 * hn6
-            s6 = s6 * hn6
 
         # Joint readings, configuration labels, singular flag.
 
@@ -803,6 +801,7 @@ def _closed_form(pose, current, check_finite=True):
             "elbow_up" if lm1 >= 0.0 else "elbow_down",
             "bend_positive" if lm2 >= 0.0 else "bend_negative",
         ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -150.0000003 <= q[1] <= 150.0000003 and -160.00000032 <= q[2] <= 160.00000032 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
+
         if root5 > 0.0 and not free4:
             u4 = th4 + _PI
             u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -823,6 +822,352 @@ def _closed_form(pose, current, check_finite=True):
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
                 "bend_negative" if lm2 >= 0.0 else "bend_positive",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -150.0000003 <= q[1] <= 150.0000003 and -160.00000032 <= q[2] <= 160.00000032 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    pcx = px - 10*r11 - 45*r13
+    pcy = py - 10*r21 - 45*r23
+    pcz = pz - 10*r31 - 45*r33
+
+    # wrist centre in the DH base frame: T c, with c its place in the last DH frame
+    wx = pcx - 60*r13
+    wy = pcy - 60*r23
+    wz = pcz - 60*r33
+
+    # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
+    # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
+    t3_0 = wx*wx
+    t3_1 = wy*wy
+    t3_2 = wz*wz
+    t3_3 = 900*wz
+    t3_4 = 1.5*t3_0
+    ek0_3 = -t3_0*t3_3 - 124350*t3_0 + 1.5*t3_1*t3_2 - t3_1*t3_3 + t3_1*t3_4 - 124350*t3_1 + t3_2*t3_4 + 155650*t3_2 + 0.75*wx*wx*wx*wx + 0.75*wy*wy*wy*wy + 0.75*wz*wz*wz*wz - 900*wz*wz*wz + 68210000*wz + 5108787500
+    ek1_3 = -1200*t3_0 - 1200*t3_1 - 1200*t3_2 + 2120000*wz - 438520000
+    ek2_3 = -253200*t3_0 - 253200*t3_1 - 253200*t3_2 + 151820000*wz + 19762280000
+
+    free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 30471193600000000 + 448363685160000000000 <= 100.0
+    if free3:
+        th3 = (0.0 + 0.017453292519943295 * (current[2] if current is not None else 0.0))
+        roots3 = ((th3, cos(th3), sin(th3), False, 0.0),)
+    else:
+        roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000, 21174600000, 1e-09)
+    for th3, c3, s3, dbl3, cnd3 in roots3:
+        # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free1 = True
+        t4_0_0 = wx*wx
+        t4_0_1 = wy*wy
+        t4_0_2 = 692.8203230275509*c3
+        t4_0_3 = 146185.08815881325*s3
+        t4_0_4 = 519.6152422706632*wz
+        t4_0_5 = wz*wz
+
+        dt1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+        if abs(dt1) > 9.999999999999999e-14:
+            c1 = (14000*c3*wy - 1000*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50*wy*wz - 19000*wy) / dt1
+            s1 = (-14000*c3*wx + 1000*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50*wx*wz + 19000*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
+            free1 = False
+            wk1 = 0.09999999999999999
+
+        if not free1:
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-4:
+                if abs(dt1) > wk1:
+                    continue
+                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            th1 = atan2(s1, c1)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            if abs(hq1 - 1.0) > 1e-15:
+                hn1 = 1.0 / sqrt(hq1)
+                c1 = c1 * hn1
+                s1 = s1 * hn1
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+        t5_0 = 0.5*c1
+        t5_1 = 0.5*s1
+        t5_2 = 0.8660254037844386*c1
+        t5_3 = 0.8660254037844386*s1
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
+        g16_14 = c1*pcx + pcy*s1 - 50
+        g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31
+        g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32
+        g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33
+        g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
+        g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31
+        g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32
+        g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33
+        g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150
+
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
+        t6_0 = c1*wy
+        v1x = c1*wx + s1*wy - 50
+        v1y = -0.5*s1*wx + 0.5*t6_0 + 0.8660254037844386*wz - 259.8076211353316
+        v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t6_0 + 0.5*wz - 150
+
+        # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free2 = True
+        t7_0_0 = 20*v1y
+        t7_0_1 = 17.320508075688775*c3
+        t7_0_2 = 242.4871130596428*s3
+        t7_0_3 = 0.5*v1z
+        t7_0_4 = 280*c3
+        t7_0_5 = 20*v1x
+
+        dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y
+        if abs(dt2) > 9.999999999999999e-16:
+            c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
+            s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
+            free2 = False
+            wk2 = 0.0009999999999999998
+
+        if free2:
+            t7_1_0 = g16_13*v1x
+            t7_1_1 = g16_14*v1x
+            t7_1_2 = g16_23*v1y
+            t7_1_3 = g16_24*v1y
+            t7_1_4 = 2078.460969082653*c3
+            t7_1_5 = 34.64101615137755*c3
+            t7_1_6 = 29098.45356715714*s3
+            t7_1_7 = 484.9742261192856*s3
+            t7_1_8 = c3*v1y
+            t7_1_9 = c3*v1x
+            t7_1_10 = s3*v1y
+            t7_1_11 = s3*v1x
+            t7_1_12 = 9699.484522385714*c3
+            t7_1_13 = 692.8203230275509*c3
+            t7_1_14 = 41569.219381653056*s3
+            t7_1_15 = 4156.921938165306*g16_33
+            t7_1_16 = 146185.08815881325*s3
+            t7_1_17 = c3*v1z
+            t7_1_18 = 14549.22678357857*t7_1_17
+            t7_1_19 = g16_14*s3
+            t7_1_20 = 19398.969044771427*c3
+            t7_1_21 = 242.4871130596428*g16_34
+            t7_1_22 = 17.320508075688775*v1z
+            t7_1_23 = 1039.2304845413264*g16_33
+            t7_1_24 = g16_23*s3
+            t7_1_25 = s3*s3
+            t7_1_26 = g16_13*g16_13
+            t7_1_27 = 3117.691453623979*v1x
+            t7_1_28 = 135099.96299037244*t7_1_25
+            t7_1_29 = g16_14*g16_14
+            t7_1_30 = 0.8660254037844386*v1x
+            t7_1_31 = g16_23*g16_23
+            t7_1_32 = g16_24*g16_24
+            t7_1_33 = g16_33*g16_33
+            t7_1_34 = g16_34*g16_34
+            t7_1_35 = g16_24*s3
+            t7_1_36 = 3117.691453623979*v1y
+            t7_1_37 = 0.8660254037844386*v1y
+
+            dt2 = -1800*g16_13*t7_1_10 + 25200*g16_13*t7_1_8 + 30*g16_14*t7_1_10 - 420*g16_14*t7_1_8 + 1800*g16_23*t7_1_11 - 25200*g16_23*t7_1_9 - 30*g16_24*t7_1_11 + 420*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.91453623979*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.6152422706632*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.91453623979*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.6152422706632*t7_1_3
+            if abs(dt2) > 1e-12:
+                c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.0713431428*c3*g16_13 + 242.4871130596428*c3*g16_14*v1z - 10032000*c3*g16_23 + 156000*c3*g16_24*s3 + 20*c3*g16_24*v1z + 167200*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.779422346*g16_13*t7_1_25 - 8147566.998803998*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000*g16_23*s3 - 1200*g16_23*t7_1_17 + 1344000*g16_23*t7_1_25 - 18000*g16_23*v1z + 48000*g16_23 + 280*g16_24*s3*v1z - 23200*g16_24*s3 - 22400*g16_24*t7_1_25 + 300*g16_24*v1z - 800*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.2820323027551*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2
+                s2 = (9360000*c3*g16_13*s3 + 1200*c3*g16_13*v1z + 10032000*c3*g16_13 - 167200*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.0713431428*c3*g16_23 + 242.4871130596428*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800*g16_13*s3*v1z - 1392000*g16_13*s3 - 1344000*g16_13*t7_1_25 + 18000*g16_13*v1z - 48000*g16_13 + 23200*g16_14*s3 - 20*g16_14*t7_1_17 + 22400*g16_14*t7_1_25 - 300*g16_14*v1z + 800*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.779422346*g16_23*t7_1_25 - 8147566.998803998*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.2820323027551*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2
+                free2 = False
+                wk2 = 1.0
+
+        if free2:
+            t7_2_0 = c1*c3
+            t7_2_1 = c1*s3
+            t7_2_2 = c3*s1
+            t7_2_3 = s1*s3
+            t7_2_4 = c3*t7_2_1
+            t7_2_5 = s3*t7_2_2
+            t7_2_6 = s3*s3
+            t7_2_7 = c1*t7_2_6
+            t7_2_8 = s1*t7_2_6
+            t7_2_9 = c3*wx
+            t7_2_10 = s3*wx
+            t7_2_11 = wx*wx
+            t7_2_12 = 150*s1
+            t7_2_13 = wy*wy
+            t7_2_14 = wz*wz
+            t7_2_15 = 242.4871130596428*t7_2_0
+            t7_2_16 = 17.320508075688775*t7_2_1
+            t7_2_17 = 10*t7_2_2
+            t7_2_18 = 140*t7_2_3
+            t7_2_19 = 300*c1
+            t7_2_20 = 121.2435565298214*t7_2_2
+            t7_2_21 = 8.660254037844387*t7_2_3
+            t7_2_22 = 20*t7_2_0
+            t7_2_23 = 280*t7_2_1
+
+            dt2 = 77526594.14678295*c1 + 7460000*s1 + 6235382.907247959*t7_2_0 + 87295360.70147142*t7_2_1 + 600000*t7_2_2 + 8400000*t7_2_3 + 1454922.6783578568*t7_2_4 + 140000*t7_2_5 + 10132497.224277932*t7_2_7 + 975000*t7_2_8
+            if abs(dt2) > 9.999999999999999e-14:
+                c2 = (-17784697.692117233*c1 - 42023000*s1 + 64927656.57252693*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.2170282168*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000*t7_2_2 - 70586000*t7_2_3 + 42372890.95636501*t7_2_4 + 21180000*t7_2_5 + 7014805.770653953*t7_2_7 - 29909000*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2
+                s2 = (-80146000*c1 + 21068666.023267824*s1 + 662000*t7_2_0 - 126662000*t7_2_1 - 37000*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.38871337*t7_2_2 + 3922229.053739723*t7_2_3 + 8100000*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000*t7_2_7 - 18221174.49562459*t7_2_8 + 124000*t7_2_9 - 30000*wx) / dt2
+                free2 = False
+                wk2 = 0.09999999999999999
+
+        if not free2:
+            hq2 = c2 * c2 + s2 * s2
+            if abs(hq2 - 1.0) > 1e-4:
+                if abs(dt2) > wk2:
+                    continue
+                free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free2:
+            th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+            c2 = cos(th2)
+            s2 = sin(th2)
+        else:
+            th2 = atan2(s2, c2)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            if abs(hq2 - 1.0) > 1e-15:
+                hn2 = 1.0 / sqrt(hq2)
+                c2 = c2 * hn2
+                s2 = s2 * hn2
+
+        # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+        t8_0 = 0.8660254037844386*c2
+        t8_1 = 0.8660254037844386*s2
+        t8_2 = 0.5*c2
+        t8_3 = 0.5*s2
+        g26_11 = c2*g16_11 + g16_21*s2
+        g26_12 = c2*g16_12 + g16_22*s2
+        g26_13 = c2*g16_13 + g16_23*s2
+        g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31
+        g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32
+        g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33
+        g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
+        g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
+        g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33
+
+        # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
+        g36_11 = c3*g26_11 + g26_21*s3
+        g36_12 = c3*g26_12 + g26_22*s3
+        g36_13 = c3*g26_13 + g26_23*s3
+        g36_31 = -c3*g26_21 + g26_11*s3
+        g36_32 = -c3*g26_22 + g26_12*s3
+        g36_33 = -c3*g26_23 + g26_13*s3
+
+        # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+        # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        er5 = g26_33*g26_33 + g36_13*g36_13
+
+        if er5 + 2e-09 < 0.0:
+            continue
+        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        # the second root follows from this one by symmetry (emitted with the solution below)
+        sg5 = 1.0
+        cn5 = g36_33
+        sn5 = root5*sg5
+        th5 = atan2(sn5, cn5)
+        c5 = cn5
+        s5 = sn5
+
+        # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free4 = True
+
+        dt4 = -s5*s5
+        if abs(dt4) > 1e-20:
+            c4 = (-g36_13*s5) / dt4
+            s4 = (-g26_33*s5) / dt4
+            free4 = False
+            wk4 = 1e-08
+
+        if not free4:
+            hq4 = c4 * c4 + s4 * s4
+            if abs(hq4 - 1.0) > 1e-4:
+                if abs(dt4) > wk4:
+                    continue
+                free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free4:
+            th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+            c4 = cos(th4)
+            s4 = sin(th4)
+        else:
+            th4 = atan2(s4, c4)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            if abs(hq4 - 1.0) > 1e-15:
+                hn4 = 1.0 / sqrt(hq4)
+                c4 = c4 * hn4
+                s4 = s4 * hn4
+
+        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+        g46_11 = c4*g36_11 + g26_31*s4
+        g46_12 = c4*g36_12 + g26_32*s4
+        g46_21 = -g36_31
+        g46_22 = -g36_32
+
+        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+        g56_11 = c5*g46_11 + g46_21*s5
+        g56_12 = c5*g46_12 + g46_22*s5
+
+        # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free6 = True
+
+        dt6 = 1
+        c6 = g56_11
+        s6 = -g56_12
+        free6 = False
+
+        hq6 = c6 * c6 + s6 * s6
+        if abs(hq6 - 1.0) > 1e-4:
+            continue
+        th6 = atan2(s6, c6)
+
+        # Joint readings, configuration labels, singular flag.
+        u1 = th1
+        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u2 = th2
+        u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+        u3 = th3
+        u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+        u4 = th4
+        u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+        u5 = th5
+        u6 = th6
+        q = (
+            u1 * 57.29577951308232,
+            u2 * 57.29577951308232,
+            u3 * 57.29577951308232,
+            u4 * 57.29577951308232,
+            u5 * 57.29577951308232,
+            u6 * 57.29577951308232,
+        )
+        solutions.append(q)
+
+        if root5 > 0.0 and not free4:
+            u4 = th4 + _PI
+            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u5 = -th5
+            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u6 = th6 + _PI
+            u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+            q = (
+                u1 * 57.29577951308232,
+                u2 * 57.29577951308232,
+                u3 * 57.29577951308232,
+                u4 * 57.29577951308232,
+                u5 * 57.29577951308232,
+                u6 * 57.29577951308232,
+            )
+            solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

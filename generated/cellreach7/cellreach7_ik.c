@@ -458,16 +458,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                 continue;
             }
             th7 = atan2(s7, c7);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq7 = c7 * c7 + s7 * s7;
-                if (fabs(hq7 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn7 = 1.0 / sqrt(hq7);
-                    c7 = c7 * hn7;
-                    s7 = s7 * hn7;
-                }
-            }
 
             /* joint readings, configuration labels, singular flag */
 

@@ -381,13 +381,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         chosen7 = chosen7 | use
         valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - 1.0) > 1e-4)
         th7 = numpy.arctan2(s7, c7)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq7 = c7 * c7 + s7 * s7
-        off7 = numpy.abs(hq7 - 1.0) > 1e-15
-        if off7.any():
-            hn7 = numpy.where(off7, 1.0 / numpy.sqrt(numpy.where(off7, hq7, 1.0)), 1.0)
-            c7 = c7 * hn7
-            s7 = s7 * hn7
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -458,16 +458,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                 continue;
             }
             th7 = atan2f(s7, c7);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq7 = c7 * c7 + s7 * s7;
-                if (fabsf(hq7 - 1.0f) > 1e-06f) {
-                    const float hn7 = 1.0f / sqrtf(hq7);
-                    c7 = c7 * hn7;
-                    s7 = s7 * hn7;
-                }
-            }
 
             /* joint readings, configuration labels, singular flag */
 

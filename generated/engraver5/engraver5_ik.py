@@ -30,6 +30,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -612,6 +615,7 @@ def _closed_form(pose, current, check_finite=True):
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
                 "bend_positive" if lm2 >= 0.0 else "bend_negative",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and -135.00000027 <= q[2] <= 135.00000027 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
+
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -629,6 +633,16 @@ def _closed_form(pose, current, check_finite=True):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
                 ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and -135.00000027 <= q[2] <= 135.00000027 and -120.00000024000002 <= q[4] <= 120.00000024000002)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    # this target's pose is projected (tilt) or its solutions checked (roll) first: inverse does it
+    return [s[0] for s in _solve(pose, current, "ignore", True)[0]]

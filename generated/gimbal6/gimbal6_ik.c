@@ -596,16 +596,6 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         th3 = atan2(s3, c3);
-        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-         * (elsewhere it is 1 to rounding, and the test is all it costs) */
-        {
-            const double hq3 = c3 * c3 + s3 * s3;
-            if (fabs(hq3 - 1.0) > 1.0000000000000001e-15) {
-                const double hn3 = 1.0 / sqrt(hq3);
-                c3 = c3 * hn3;
-                s3 = s3 * hn3;
-            }
-        }
 
         /* joint readings, configuration labels, singular flag */
 

@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -672,11 +675,6 @@ def _closed_form(pose, current, check_finite=True):
         if abs(hq3 - 1.0) > 1e-4:
             continue
         th3 = atan2(s3, c3)
-        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq3 - 1.0) > 1e-15:
-            hn3 = 1.0 / sqrt(hq3)
-            c3 = c3 * hn3
-            s3 = s3 * hn3
 
         # Joint readings, configuration labels, singular flag.
 
@@ -705,6 +703,7 @@ def _closed_form(pose, current, check_finite=True):
             "bend_positive" if lm0 >= 0.0 else "bend_negative",
             "bend_positive" if lm1 >= 0.0 else "bend_negative",
         ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+
         if root2 > 0.0 and not free1:
             u1 = th1 + _PI
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
@@ -724,6 +723,248 @@ def _closed_form(pose, current, check_finite=True):
                 "bend_negative" if lm0 >= 0.0 else "bend_positive",
                 "bend_positive" if lm1 >= 0.0 else "bend_negative",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # base centre (where axes 1, 2, 3 meet) seen from the last DH frame: T^-1 b0
+    bx = -px*r11 - py*r21 - pz*r31 + 0.3*r31
+    by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
+    bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
+
+    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    e1z = bz + 0.1
+
+    # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
+    # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
+    t2_0 = bx*by
+    t2_1 = bx*bx
+    t2_2 = by*by
+    t2_3 = bz*bz
+    t2_4 = 0.3*bz
+    t2_5 = 1.5*t2_1
+    t2_6 = 0.03*bz
+    t2_7 = 0.018*bz
+    t2_8 = bx*bx*bx
+    t2_9 = by*by*by
+    t2_10 = 0.15*bx
+    t2_11 = 0.09*by
+    t2_12 = 0.09*bx
+    t2_13 = 0.15*by
+    ek0_6 = 0.75*bx*bx*bx*bx + 0.75*by*by*by*by + 0.75*bz*bz*bz*bz + 0.3*bz*bz*bz - 0.02748*bz + 0.009*t2_0 + t2_1*t2_4 - 0.1299*t2_1 + 1.5*t2_2*t2_3 + t2_2*t2_4 + t2_2*t2_5 + 0.0253*t2_2 + t2_3*t2_5 - 0.1074*t2_3 - 0.00072308
+    ek1_6 = bx*t2_6 - 0.01374*bx + by*t2_7 + 0.009356*by + t2_1*t2_11 + t2_10*t2_2 + t2_10*t2_3 + t2_11*t2_3 + 0.15*t2_8 + 0.09*t2_9
+    ek2_6 = bx*t2_7 + 0.009356*bx - by*t2_6 + 0.01374*by - t2_1*t2_13 + t2_12*t2_2 + t2_12*t2_3 - t2_13*t2_3 + 0.09*t2_8 - 0.15*t2_9
+    ek3_6 = 0.3104*t2_0 + 0.009*t2_1 - 0.009*t2_2
+    ek4_6 = -0.018*t2_0 + 0.1552*t2_1 - 0.1552*t2_2
+
+    free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24
+    if free6:
+        th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+        roots6 = ((th6, cos(th6), sin(th6), False, 0.0),)
+    else:
+        roots6 = _circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09)
+    for th6, c6, s6, dbl6, cnd6 in roots6:
+        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one)
+        e1x = bx*c6 - by*s6
+        e1y = bx*s6 + by*c6
+
+        # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free4 = True
+
+        dt4 = -0.021650635094610966
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4
+        s4 = (-0.1*e1y - 0.0055) / dt4
+        free4 = False
+
+        hq4 = c4 * c4 + s4 * s4
+        if abs(hq4 - 1.0) > 1e-4:
+            continue
+        th4 = atan2(s4, c4)
+        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+        if abs(hq4 - 1.0) > 1e-15:
+            hn4 = 1.0 / sqrt(hq4)
+            c4 = c4 * hn4
+            s4 = s4 * hn4
+
+        # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free5 = True
+        t5_0_0 = 0.125*s4
+
+        dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
+        if abs(dt5) > 1e-21:
+            c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
+            s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
+            free5 = False
+            wk5 = 9.999999999999999e-10
+
+        if not free5:
+            hq5 = c5 * c5 + s5 * s5
+            if abs(hq5 - 1.0) > 1e-4:
+                if abs(dt5) > wk5:
+                    continue
+                free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free5:
+            th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+            c5 = cos(th5)
+            s5 = sin(th5)
+        else:
+            th5 = atan2(s5, c5)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            if abs(hq5 - 1.0) > 1e-15:
+                hn5 = 1.0 / sqrt(hq5)
+                c5 = c5 * hn5
+                s5 = s5 * hn5
+
+        # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
+        g05_11 = c6*r11 - r12*s6
+        g05_12 = c6*r12 + r11*s6
+        g05_21 = c6*r21 - r22*s6
+        g05_22 = c6*r22 + r21*s6
+        g05_31 = c6*r31 - r32*s6
+        g05_32 = c6*r32 + r31*s6
+
+        # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
+        g04_11 = c5*g05_11 + r13*s5
+        g04_12 = -c5*r13 + g05_11*s5
+        g04_21 = c5*g05_21 + r23*s5
+        g04_22 = -c5*r23 + g05_21*s5
+        g04_31 = c5*g05_31 + r33*s5
+        g04_32 = -c5*r33 + g05_31*s5
+
+        # T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one)
+        t8_0 = 0.5*g04_12
+        t8_1 = 0.8660254037844386*g05_12
+        t8_2 = 0.5*g04_22
+        t8_3 = 0.8660254037844386*g05_22
+        t8_4 = 0.5*g04_32
+        t8_5 = 0.8660254037844386*g05_32
+        g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
+        g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
+        g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
+        g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
+        g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
+        g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
+        g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
+        g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4
+        g03_33 = -0.8660254037844386*g04_32 + 0.5*g05_32
+
+        # th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
+        # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33
+        er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33)
+
+        if er2 + 2e-09 < 0.0:
+            continue
+        root2 = sqrt(er2) if er2 > 0.0 else 0.0
+        # the second root follows from this one by symmetry (emitted with the solution below)
+        sg2 = 1.0
+        cn2 = ec2
+        sn2 = root2*sg2
+        th2 = atan2(sn2, cn2)
+        c2 = cn2
+        s2 = sn2
+
+        # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free1 = True
+
+        dt1 = s2*s2
+        if abs(dt1) > 1e-20:
+            c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
+            s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
+            free1 = False
+            wk1 = 1e-08
+
+        if not free1:
+            hq1 = c1 * c1 + s1 * s1
+            if abs(hq1 - 1.0) > 1e-4:
+                if abs(dt1) > wk1:
+                    continue
+                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            th1 = atan2(s1, c1)
+            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+            if abs(hq1 - 1.0) > 1e-15:
+                hn1 = 1.0 / sqrt(hq1)
+                c1 = c1 * hn1
+                s1 = s1 * hn1
+
+        # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
+        g13_11 = c1*g03_11 + g03_21*s1
+        g13_12 = c1*g03_12 + g03_22*s1
+
+        # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
+        g23_11 = c2*g13_11 + g03_31*s2
+        g23_12 = c2*g13_12 + g03_32*s2
+
+        # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        free3 = True
+
+        dt3 = 0.8660254037844386
+        c3 = (0.8660254037844386*g23_11) / dt3
+        s3 = (-g23_12) / dt3
+        free3 = False
+
+        hq3 = c3 * c3 + s3 * s3
+        if abs(hq3 - 1.0) > 1e-4:
+            continue
+        th3 = atan2(s3, c3)
+
+        # Joint readings, configuration labels, singular flag.
+        u1 = th1
+        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u2 = th2
+        u3 = th3
+        u4 = th4
+        u5 = th5
+        u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+        u6 = th6
+        u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+        q = (
+            u1 * 57.29577951308232,
+            u2 * 57.29577951308232,
+            u3 * 57.29577951308232,
+            u4 * 57.29577951308232,
+            u5 * 57.29577951308232,
+            u6 * 57.29577951308232,
+        )
+        solutions.append(q)
+
+        if root2 > 0.0 and not free1:
+            u1 = th1 + _PI
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = -th2
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = th3 + _PI
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            q = (
+                u1 * 57.29577951308232,
+                u2 * 57.29577951308232,
+                u3 * 57.29577951308232,
+                u4 * 57.29577951308232,
+                u5 * 57.29577951308232,
+                u6 * 57.29577951308232,
+            )
+            solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -402,13 +402,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen3 = chosen3 | use
         valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
         th3 = numpy.arctan2(s3, c3)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq3 = c3 * c3 + s3 * s3
-        off3 = numpy.abs(hq3 - 1.0) > 1e-15
-        if off3.any():
-            hn3 = numpy.where(off3, 1.0 / numpy.sqrt(numpy.where(off3, hq3, 1.0)), 1.0)
-            c3 = c3 * hn3
-            s3 = s3 * hn3
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -596,16 +596,6 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         th3 = atan2f(s3, c3);
-        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-         * (elsewhere it is 1 to rounding, and the test is all it costs) */
-        {
-            const float hq3 = c3 * c3 + s3 * s3;
-            if (fabsf(hq3 - 1.0f) > 1e-06f) {
-                const float hn3 = 1.0f / sqrtf(hq3);
-                c3 = c3 * hn3;
-                s3 = s3 * hn3;
-            }
-        }
 
         /* joint readings, configuration labels, singular flag */
 

@@ -316,13 +316,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen6 = chosen6 | use
         valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
         th6 = numpy.arctan2(s6, c6)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq6 = c6 * c6 + s6 * s6
-        off6 = numpy.abs(hq6 - 1.0) > 1e-15
-        if off6.any():
-            hn6 = numpy.where(off6, 1.0 / numpy.sqrt(numpy.where(off6, hq6, 1.0)), 1.0)
-            c6 = c6 * hn6
-            s6 = s6 * hn6
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -492,19 +495,14 @@ def _closed_form(pose, current, check_finite=True):
             free6 = True
 
             dt6 = 1
-            c6 = (g56_11) / dt6
-            s6 = (-g56_12) / dt6
+            c6 = g56_11
+            s6 = -g56_12
             free6 = False
 
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq6 - 1.0) > 1e-15:
-                hn6 = 1.0 / sqrt(hq6)
-                c6 = c6 * hn6
-                s6 = s6 * hn6
 
             # Joint readings, configuration labels, singular flag.
             # a displacement outside its joint's stroke is no solution (strokes define reach)
@@ -538,6 +536,7 @@ def _closed_form(pose, current, check_finite=True):
                 "bend_positive" if lm1 >= 0.0 else "bend_negative",
                 "root_plus" if lm2 >= 0.0 else "root_minus",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and 499.9999989 <= q[2] <= 1600.0000011 and -115.00000023 <= q[4] <= 115.00000023)))
+
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -558,6 +557,218 @@ def _closed_form(pose, current, check_finite=True):
                     "bend_negative" if lm1 >= 0.0 else "bend_positive",
                     "root_plus" if lm2 >= 0.0 else "root_minus",
                 ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and 499.9999989 <= q[2] <= 1600.0000011 and -115.00000023 <= q[4] <= 115.00000023)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    pcx = px - 140*r13
+    pcy = py - 140*r23
+    pcz = pz - 140*r33
+
+    # wrist centre in the DH base frame: T c, with c its place in the last DH frame
+    wx = pcx - 110*r13
+    wy = pcy - 110*r23
+    wz = pcz - 110*r33
+
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    v1y = 900 - wz
+    g16_21 = -r31
+    g16_22 = -r32
+    g16_23 = -r33
+
+    # th1: z of A1^-1 w = A2 A3 c3
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t3_0 = wx*wx + wy*wy
+    eb1 = -wx
+    er1 = t3_0 - 22500
+
+    free1 = t3_0 <= 1e-14
+    if (22500 > 1e-14) if free1 else (er1 + 2e-09*t3_0 < 0.0):
+        return solutions
+    root1 = sqrt(er1) if er1 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -eb1*root1*sg1 + 150*wy
+            sn1 = 150*eb1 + root1*sg1*wy
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
+
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
+        v1x = c1*wx + s1*wy
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*r11 + r21*s1
+        g16_12 = c1*r12 + r22*s1
+        g16_13 = c1*r13 + r23*s1
+        g16_31 = c1*r21 - r11*s1
+        g16_32 = c1*r22 - r12*s1
+        g16_33 = c1*r23 - r13*s1
+
+        # th2: x of A2^-1 A1^-1 w = A3 c3
+        # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        t5_0 = v1x*v1x + v1y*v1y
+
+        free2 = t5_0 <= 1e-14
+        if (0 > 1e-14) if free2 else (1.000000002*t5_0 < 0.0):
+            continue
+        root2 = sqrt(t5_0) if t5_0 > 0.0 else 0.0
+        for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
+            if free2:
+                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                c2 = cos(th2)
+                s2 = sin(th2)
+            else:
+                cn2 = -root2*sg2*v1y
+                sn2 = root2*sg2*v1x
+                th2 = atan2(sn2, cn2)
+                c2 = cn2/t5_0
+                s2 = sn2/t5_0
+
+            # A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            v2z = -c2*v1y + s2*v1x
+
+            # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
+            free3 = True
+
+            dn3 = -1
+            l3 = (-v2z) / dn3
+            free3 = False
+
+            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            g26_11 = c2*g16_11 + g16_21*s2
+            g26_12 = c2*g16_12 + g16_22*s2
+            g26_13 = c2*g16_13 + g16_23*s2
+            g26_31 = -c2*g16_21 + g16_11*s2
+            g26_32 = -c2*g16_22 + g16_12*s2
+            g26_33 = -c2*g16_23 + g16_13*s2
+
+            # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+            # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+            er5 = g16_33*g16_33 + g26_13*g26_13
+
+            if er5 + 2e-09 < 0.0:
+                continue
+            root5 = sqrt(er5) if er5 > 0.0 else 0.0
+            # the second root follows from this one by symmetry (emitted with the solution below)
+            sg5 = 1.0
+            cn5 = g26_33
+            sn5 = root5*sg5
+            th5 = atan2(sn5, cn5)
+            c5 = cn5
+            s5 = sn5
+
+            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free4 = True
+
+            dt4 = -s5*s5
+            if abs(dt4) > 1e-20:
+                c4 = (-g26_13*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
+                free4 = False
+                wk4 = 1e-08
+
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free4:
+                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                c4 = cos(th4)
+                s4 = sin(th4)
+            else:
+                th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq4 - 1.0) > 1e-15:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
+
+            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+            g46_11 = c4*g26_11 + g16_31*s4
+            g46_12 = c4*g26_12 + g16_32*s4
+            g46_21 = -g26_31
+            g46_22 = -g26_32
+
+            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+            g56_11 = c5*g46_11 + g46_21*s5
+            g56_12 = c5*g46_12 + g46_22*s5
+
+            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free6 = True
+
+            dt6 = 1
+            c6 = g56_11
+            s6 = -g56_12
+            free6 = False
+
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
+                continue
+            th6 = atan2(s6, c6)
+
+            # Joint readings, configuration labels, singular flag.
+            # a displacement outside its joint's stroke is no solution (strokes define reach)
+            if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
+                continue
+            u1 = th1
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = th2
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = (l3 - 0.0) * 1.0
+            u4 = th4
+            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u5 = th5
+            u6 = th6
+            q = (
+                u1 * 57.29577951308232,
+                u2 * 57.29577951308232,
+                u3,
+                u4 * 57.29577951308232,
+                u5 * 57.29577951308232,
+                u6 * 57.29577951308232,
+            )
+            solutions.append(q)
+
+            if root5 > 0.0 and not free4:
+                u4 = th4 + _PI
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u5 = -th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u6 = th6 + _PI
+                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                q = (
+                    u1 * 57.29577951308232,
+                    u2 * 57.29577951308232,
+                    u3,
+                    u4 * 57.29577951308232,
+                    u5 * 57.29577951308232,
+                    u6 * 57.29577951308232,
+                )
+                solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -282,16 +282,6 @@ static int closed_form(const double pose[16], const double *current,
                 continue;
             }
             thp234 = atan2(sp234, cp234);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hqp234 = cp234 * cp234 + sp234 * sp234;
-                if (fabs(hqp234 - 1.0) > 1.0000000000000001e-15) {
-                    const double hnp234 = 1.0 / sqrt(hqp234);
-                    cp234 = cp234 * hnp234;
-                    sp234 = sp234 * hnp234;
-                }
-            }
 
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -340,16 +330,6 @@ static int closed_form(const double pose[16], const double *current,
                     s2 = sin(th2);
                 } else {
                     th2 = atan2(s2, c2);
-                    /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                     * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                    {
-                        const double hq2 = c2 * c2 + s2 * s2;
-                        if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
-                            const double hn2 = 1.0 / sqrt(hq2);
-                            c2 = c2 * hn2;
-                            s2 = s2 * hn2;
-                        }
-                    }
                 }
 
                 /* th4: from the sum of parallel-axis angles */

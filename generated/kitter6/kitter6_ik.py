@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -468,19 +471,14 @@ def _closed_form(pose, current, check_finite=True):
             freep234 = True
 
             dtp234 = 1
-            cp234 = (g14_11) / dtp234
-            sp234 = (-g14_12) / dtp234
+            cp234 = g14_11
+            sp234 = -g14_12
             freep234 = False
 
             hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-4:
                 continue
             thp234 = atan2(sp234, cp234)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hqp234 - 1.0) > 1e-15:
-                hnp234 = 1.0 / sqrt(hqp234)
-                cp234 = cp234 * hnp234
-                sp234 = sp234 * hnp234
 
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -522,11 +520,6 @@ def _closed_form(pose, current, check_finite=True):
                     s2 = sin(th2)
                 else:
                     th2 = atan2(s2, c2)
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
 
                 # th4: from the sum of parallel-axis angles
                 th4 = thp234 - th3 - th2
@@ -567,6 +560,216 @@ def _closed_form(pose, current, check_finite=True):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_positive" if lm2 >= 0.0 else "bend_negative",
                 ), singular, conditioning, -175.00000035 <= q[1] <= 175.00000035 and -160.00000032 <= q[2] <= 160.00000032 and -175.00000035 <= q[3] <= 175.00000035 and -175.00000035 <= q[4] <= 175.00000035)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    pcx = px - 62*r13
+    pcy = py - 62*r23
+    pcz = pz - 62*r33
+
+    # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
+    g05_14 = pcx - 78*r13
+    g05_24 = pcy - 78*r23
+    g05_34 = pcz - 78*r33
+
+    # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t2_0 = pcx*pcx - 156*pcx*r13 + pcy*pcy - 156*pcy*r23 + 6084*r13*r13 + 6084*r23*r23
+    ea1 = pcy - 78*r23
+    eb1 = -pcx + 78*r13
+    er1 = t2_0 - 14641
+
+    free1 = t2_0 <= 9.999999999999999e-16
+    if (14641 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
+        return solutions
+    root1 = sqrt(er1) if er1 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -121*ea1 - eb1*root1*sg1
+            sn1 = ea1*root1*sg1 - 121*eb1
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t2_0
+            s1 = sn1/t2_0
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
+        g16_13 = c1*r13 + r23*s1
+        g16_14 = c1*pcx + pcy*s1
+        g16_21 = c1*r21 - r11*s1
+        g16_22 = c1*r22 - r12*s1
+        g16_23 = c1*r23 - r13*s1
+
+        # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
+        # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        ec5 = -g16_23
+        er5 = g16_13*g16_13 + r33*r33
+
+        if er5 + 2e-09 < 0.0:
+            continue
+        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        dl5 = atan2(root5, ec5)  # th = gamma + sg * dl
+        for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
+            cn5 = ec5
+            sn5 = root5*sg5
+            th5 = 0.0 + sg5 * dl5
+            c5 = cn5
+            s5 = sn5
+
+            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free6 = True
+
+            dt6 = -s5*s5
+            if abs(dt6) > 1e-20:
+                c6 = (g16_21*s5) / dt6
+                s6 = (-g16_22*s5) / dt6
+                free6 = False
+                wk6 = 1e-08
+
+            if not free6:
+                hq6 = c6 * c6 + s6 * s6
+                if abs(hq6 - 1.0) > 1e-4:
+                    if abs(dt6) > wk6:
+                        continue
+                    free6 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free6:
+                th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                c6 = cos(th6)
+                s6 = sin(th6)
+            else:
+                th6 = atan2(s6, c6)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq6 - 1.0) > 1e-15:
+                    hn6 = 1.0 / sqrt(hq6)
+                    c6 = c6 * hn6
+                    s6 = s6 * hn6
+
+            # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
+            g05_11 = c6*r11 - r12*s6
+            g05_13 = -c6*r12 - r11*s6
+            g05_21 = c6*r21 - r22*s6
+            g05_23 = -c6*r22 - r21*s6
+            g05_33 = -c6*r32 - r31*s6
+
+            # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
+            g04_11 = c5*g05_11 - r13*s5
+            g04_12 = -g05_13
+            g04_14 = -104*g05_13 + g05_14
+            g04_21 = c5*g05_21 - r23*s5
+            g04_22 = -g05_23
+            g04_24 = -104*g05_23 + g05_24
+            g04_34 = -104*g05_33 + g05_34
+
+            # A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one)
+            g14_11 = c1*g04_11 + g04_21*s1
+            g14_12 = c1*g04_12 + g04_22*s1
+            g14_14 = c1*g04_14 + g04_24*s1
+            g14_24 = c1*g04_24 - g04_14*s1
+            g14_34 = g04_34 - 142
+
+            # thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            freep234 = True
+
+            dtp234 = 1
+            cp234 = g14_11
+            sp234 = -g14_12
+            freep234 = False
+
+            hqp234 = cp234 * cp234 + sp234 * sp234
+            if abs(hqp234 - 1.0) > 1e-4:
+                continue
+            thp234 = atan2(sp234, cp234)
+
+            # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
+            # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+            t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
+            ec3 = 210566 - t10_0
+            er3 = (405266 - t10_0)*(t10_0 - 15866)
+
+            if er3 + 75.81618 < 0.0:
+                continue
+            root3 = sqrt(er3) if er3 > 0.0 else 0.0
+            dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+            for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
+                cn3 = -194700*ec3
+                sn3 = -194700*root3*sg3
+                th3 = 3.141592653589793 + sg3 * dl3
+                c3 = 2.6379593379671728e-11*cn3
+                s3 = 2.6379593379671728e-11*sn3
+
+                # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+                free2 = True
+                t11_0_0 = 295*c3
+
+                dt2 = -194700*c3 - 195925
+                if abs(dt2) > 9.999999999999999e-16:
+                    c2 = (-g14_14*t11_0_0 - 330*g14_14 - 295*g14_34*s3) / dt2
+                    s2 = (295*g14_14*s3 - g14_34*t11_0_0 - 330*g14_34) / dt2
+                    free2 = False
+                    wk2 = 0.0009999999999999998
+
+                if not free2:
+                    hq2 = c2 * c2 + s2 * s2
+                    if abs(hq2 - 1.0) > 1e-4:
+                        if abs(dt2) > wk2:
+                            continue
+                        free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+                if free2:
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
+                else:
+                    th2 = atan2(s2, c2)
+
+                # th4: from the sum of parallel-axis angles
+                th4 = thp234 - th3 - th2
+
+                # Joint readings, configuration labels, singular flag.
+                u1 = th1
+                u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+                u2 = th2 - 1.5707963267948966
+                u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+                u3 = th3
+                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+                u4 = th4 - -1.5707963267948966
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u5 = th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u6 = th6
+                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                q = (
+                    u1 * 57.29577951308232,
+                    u2 * 57.29577951308232,
+                    u3 * 57.29577951308232,
+                    u4 * 57.29577951308232,
+                    u5 * 57.29577951308232,
+                    u6 * 57.29577951308232,
+                )
+                solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

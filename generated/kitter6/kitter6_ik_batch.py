@@ -228,13 +228,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosenp234 = chosenp234 | use
         valid = valid & ~(numpy.abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4)
         thp234 = numpy.arctan2(sp234, cp234)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hqp234 = cp234 * cp234 + sp234 * sp234
-        offp234 = numpy.abs(hqp234 - 1.0) > 1e-15
-        if offp234.any():
-            hnp234 = numpy.where(offp234, 1.0 / numpy.sqrt(numpy.where(offp234, hqp234, 1.0)), 1.0)
-            cp234 = cp234 * hnp234
-            sp234 = sp234 * hnp234
 
         # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
         t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
@@ -268,13 +261,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free2 = ~chosen2 | weak2
         valid = valid & ~(bad2 & ~weak2)
         th2 = numpy.arctan2(s2, c2)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq2 = c2 * c2 + s2 * s2
-        off2 = numpy.abs(hq2 - 1.0) > 1e-15
-        if off2.any():
-            hn2 = numpy.where(off2, 1.0 / numpy.sqrt(numpy.where(off2, hq2, 1.0)), 1.0)
-            c2 = c2 * hn2
-            s2 = s2 * hn2
         if free2.any():
             th2 = numpy.where(free2, (hint[1]), th2)
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)

@@ -282,16 +282,6 @@ static int closed_form(const float pose[16], const float *current,
                 continue;
             }
             thp234 = atan2f(sp234, cp234);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hqp234 = cp234 * cp234 + sp234 * sp234;
-                if (fabsf(hqp234 - 1.0f) > 1e-06f) {
-                    const float hnp234 = 1.0f / sqrtf(hqp234);
-                    cp234 = cp234 * hnp234;
-                    sp234 = sp234 * hnp234;
-                }
-            }
 
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -340,16 +330,6 @@ static int closed_form(const float pose[16], const float *current,
                     s2 = sinf(th2);
                 } else {
                     th2 = atan2f(s2, c2);
-                    /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                     * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                    {
-                        const float hq2 = c2 * c2 + s2 * s2;
-                        if (fabsf(hq2 - 1.0f) > 1e-06f) {
-                            const float hn2 = 1.0f / sqrtf(hq2);
-                            c2 = c2 * hn2;
-                            s2 = s2 * hn2;
-                        }
-                    }
                 }
 
                 /* th4: from the sum of parallel-axis angles */

@@ -27,6 +27,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -397,6 +400,99 @@ def _closed_form(pose, current, check_finite=True):
                 "reach_forward" if lm0 >= 0.0 else "reach_backward",
                 "root_plus" if lm1 >= 0.0 else "root_minus",
             ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and 399.9999984 <= q[2] <= 2000.0000016)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    q1y = 1500 - pz
+
+    # th1: z of A1^-1 p = A2 A3 t
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t1_0 = px*px + py*py
+    eb1 = -px
+    er1 = t1_0 - 14400
+
+    free1 = t1_0 <= 1e-14
+    if (14400 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
+        return solutions
+    root1 = sqrt(er1) if er1 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -eb1*root1*sg1 + 120*py
+            sn1 = 120*eb1 + py*root1*sg1
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t1_0
+            s1 = sn1/t1_0
+
+        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
+        q1x = c1*px + py*s1
+
+        # th2: x of A2^-1 A1^-1 p = A3 t
+        # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        t3_0 = q1x*q1x + q1y*q1y
+
+        free2 = t3_0 <= 1e-14
+        if (0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
+            continue
+        root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
+        for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
+            if free2:
+                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                c2 = cos(th2)
+                s2 = sin(th2)
+            else:
+                cn2 = -q1y*root2*sg2
+                sn2 = q1x*root2*sg2
+                th2 = atan2(sn2, cn2)
+                c2 = cn2/t3_0
+                s2 = sn2/t3_0
+
+            # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            q2z = -c2*q1y + q1x*s2
+
+            # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
+            free3 = True
+
+            dn3 = -1
+            l3 = (90 - q2z) / dn3
+            free3 = False
+
+            # Joint readings, configuration labels, singular flag.
+            # a displacement outside its joint's stroke is no solution (strokes define reach)
+            if not 399.9999984 <= (l3 - 0.0) * 1.0 <= 2000.0000016:
+                continue
+            u1 = th1
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = th2
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = (l3 - 0.0) * 1.0
+            q = (
+                u1 * 57.29577951308232,
+                u2 * 57.29577951308232,
+                u3,
+            )
+            solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -632,19 +635,14 @@ def _closed_form(pose, current, check_finite=True):
             free6 = True
 
             dt6 = 1
-            c6 = (g56_11) / dt6
-            s6 = (-g56_12) / dt6
+            c6 = g56_11
+            s6 = -g56_12
             free6 = False
 
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq6 - 1.0) > 1e-15:
-                hn6 = 1.0 / sqrt(hq6)
-                c6 = c6 * hn6
-                s6 = s6 * hn6
 
             # Joint readings, configuration labels, singular flag.
 
@@ -677,6 +675,7 @@ def _closed_form(pose, current, check_finite=True):
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
                 "bend_positive" if lm2 >= 0.0 else "bend_negative",
             ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
+
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -697,6 +696,345 @@ def _closed_form(pose, current, check_finite=True):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
                 ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    rc11 = -r13
+    rc12 = -r12
+    pcx = -px - 0.18*r11 + 0.06*r13
+    rc21 = -r23
+    rc22 = -r22
+    pcy = -py - 0.18*r21 + 0.06*r23
+    rc33 = -r31
+    pcz = pz + 0.18*r31 - 0.06*r33 - 0.45
+
+    # wrist centre in the DH base frame: T c, with c its place in the last DH frame
+    wx = pcx - 0.14*r11
+    wy = pcy - 0.14*r21
+    wz = pcz - 0.14*rc33
+
+    # th1: y of A1^-1 w = A2 A3 c3
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t3_0 = wx*wx + wy*wy
+    eb1 = -wx
+    er1 = t3_0 - 0.0144
+
+    free1 = t3_0 <= 1e-20
+    if (0.0144 > 1e-20) if free1 else (er1 + 2e-09*t3_0 < 0.0):
+        return solutions
+    root1 = sqrt(er1) if er1 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.0 + 1.0 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -eb1*root1*sg1 + 0.12*wy
+            sn1 = 0.12*eb1 + root1*sg1*wy
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
+
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
+        v1x = c1*wx + s1*wy
+        v1y = c1*wy - s1*wx
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*rc11 + rc21*s1
+        g16_12 = c1*rc12 + rc22*s1
+        g16_13 = c1*r11 + r21*s1
+        g16_14 = c1*pcx + pcy*s1
+        g16_21 = c1*rc21 - rc11*s1
+        g16_22 = c1*rc22 - rc12*s1
+        g16_23 = c1*r21 - r11*s1
+        g16_24 = c1*pcy - pcx*s1
+
+        # th3: squared norm of A2^-1 A1^-1 w = A3 c3
+        # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + wz*wz
+        ec3 = t5_0 - 1.5365
+        er3 = (3.07788541578672 - t5_0)*(t5_0 + 0.004885415786720099)
+
+        if er3 + 4.751738e-09 < 0.0:
+            continue
+        root3 = sqrt(er3) if er3 > 0.0 else 0.0
+        dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+        for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
+            cn3 = 0.187*ec3 + 1.53*root3*sg3
+            sn3 = -1.53*ec3 + 0.187*root3*sg3
+            th3 = -1.44917730353355 + sg3 * dl3
+            c3 = 0.4208986269865889*cn3
+            s3 = 0.4208986269865889*sn3
+
+            # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free2 = True
+            t7_0_0 = 0.9*c3
+            t7_0_1 = s3*v1x
+            t7_0_2 = 0.11*wz
+
+            dt2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+            if abs(dt2) > 1e-20:
+                c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
+                s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2
+                free2 = False
+                wk2 = 1e-08
+
+            if free2:
+                t7_1_0 = c3*rc33
+                t7_1_1 = 0.255*c3
+                t7_1_2 = g16_13*s3
+                t7_1_3 = g16_13*v1x
+                t7_1_4 = g16_13*wz
+                t7_1_5 = 0.255*s3
+                t7_1_6 = g16_14*v1x
+                t7_1_7 = g16_14*wz
+                t7_1_8 = rc33*wz
+                t7_1_9 = pcz*v1x
+                t7_1_10 = pcz*wz
+                t7_1_11 = c3*t7_1_4
+                t7_1_12 = 1.7*c3
+                t7_1_13 = 0.238*s3
+                t7_1_14 = 1.7*s3
+                t7_1_15 = 0.2142*g16_13
+                t7_1_16 = 0.187*wz
+                t7_1_17 = c3*g16_13
+                t7_1_18 = c3*wz
+                t7_1_19 = g16_14*s3
+                t7_1_20 = 0.036*g16_24
+                t7_1_21 = pcz*s3
+                t7_1_22 = s3*v1x
+                t7_1_23 = 0.0336*g16_23
+                t7_1_24 = 1.53*pcz
+                t7_1_25 = c3*s3
+                t7_1_26 = 0.187*v1x
+                t7_1_27 = 0.042*s3
+                t7_1_28 = g16_23*g16_24
+                t7_1_29 = rc33*s3
+                t7_1_30 = 0.042*pcz
+                t7_1_31 = s3*s3
+                t7_1_32 = g16_13*g16_13
+                t7_1_33 = 1.53*g16_14
+                t7_1_34 = g16_14*g16_14
+                t7_1_35 = g16_23*g16_23
+                t7_1_36 = g16_24*g16_24
+                t7_1_37 = rc33*rc33
+                t7_1_38 = 0.187*t7_1_31
+                t7_1_39 = pcz*pcz
+                t7_1_40 = 0.0196*t7_1_18
+                t7_1_41 = 0.0196*t7_1_22
+                t7_1_42 = 0.2142*rc33
+                t7_1_43 = c3*g16_14
+                t7_1_44 = c3*pcz
+                t7_1_45 = c3*v1x
+                t7_1_46 = s3*wz
+                t7_1_47 = 0.042*c3
+                t7_1_48 = 0.24*g16_24
+                t7_1_49 = 0.00294*c3
+                t7_1_50 = 0.15*c3
+                t7_1_51 = 0.28*t7_1_28
+                t7_1_52 = 0.0196*t7_1_45
+                t7_1_53 = 0.0196*t7_1_46
+
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz - 0.0308*rc33*v1x + 0.00462*rc33 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
+                if abs(dt2) > 1e-19:
+                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz + 0.28*c3*pcz*rc33*wz + 1.4692*c3*pcz + 0.2142*c3*rc33*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x + 0.28*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374*pcz + 0.02772*rc33*s3 + 0.02618*rc33*t7_1_31 - 0.05236*rc33 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
+                    s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
+                    free2 = False
+                    wk2 = 1e-07
+
+            if free2:
+                t7_2_0 = g16_11*r32
+                t7_2_1 = g16_12*r33
+                t7_2_2 = 0.102*g16_22
+                t7_2_3 = 0.108*c3
+                t7_2_4 = g16_11*g16_22
+                t7_2_5 = g16_22*r33
+                t7_2_6 = 0.0132*t7_2_5
+                t7_2_7 = 0.0132*t7_2_4
+                t7_2_8 = 0.85*g16_24
+                t7_2_9 = g16_21*r32
+                t7_2_10 = 0.108*s3
+                t7_2_11 = g16_14*t7_2_0
+                t7_2_12 = 0.11*c3
+                t7_2_13 = 0.9*c3
+                t7_2_14 = g16_12*g16_21
+                t7_2_15 = g16_24*t7_2_14
+                t7_2_16 = pcz*t7_2_1
+                t7_2_17 = g16_24*t7_2_12
+                t7_2_18 = 0.9*s3
+                t7_2_19 = g16_14*t7_2_1
+                t7_2_20 = 0.11*s3
+                t7_2_21 = g16_24*t7_2_18
+                t7_2_22 = 0.135*c3
+                t7_2_23 = 0.0132*g16_21
+                t7_2_24 = 0.85*pcz
+                t7_2_25 = 0.0165*s3
+                t7_2_26 = g16_24*t7_2_4
+                t7_2_27 = pcz*t7_2_0
+                t7_2_28 = g16_24*t7_2_9
+                t7_2_29 = g16_24*t7_2_5
+
+                dt2 = 0.187*c3*g16_12*r33 - 0.187*c3*t7_2_0 + 1.53*g16_11*r32*s3 + 1.5446*g16_12*r33 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0
+                if abs(dt2) > 1e-20:
+                    c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
+                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
+                    free2 = False
+                    wk2 = 1e-08
+
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free2:
+                th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                c2 = cos(th2)
+                s2 = sin(th2)
+            else:
+                th2 = atan2(s2, c2)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq2 - 1.0) > 1e-15:
+                    hn2 = 1.0 / sqrt(hq2)
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
+
+            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            g26_11 = c2*g16_11 - r33*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - rc33*s2
+            g26_21 = -c2*r33 - g16_11*s2
+            g26_22 = -c2*r32 - g16_12*s2
+            g26_23 = -c2*rc33 - g16_13*s2
+
+            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g36_13 = c3*g26_13 + g26_23*s3
+            g36_21 = c3*g26_21 - g26_11*s3
+            g36_22 = c3*g26_22 - g26_12*s3
+            g36_23 = c3*g26_23 - g26_13*s3
+
+            # th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+            # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+            er5 = g16_23*g16_23 + g36_13*g36_13
+
+            if er5 + 2e-09 < 0.0:
+                continue
+            root5 = sqrt(er5) if er5 > 0.0 else 0.0
+            # the second root follows from this one by symmetry (emitted with the solution below)
+            sg5 = 1.0
+            cn5 = g36_23
+            sn5 = root5*sg5
+            th5 = atan2(sn5, cn5)
+            c5 = cn5
+            s5 = sn5
+
+            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free4 = True
+
+            dt4 = s5*s5
+            if abs(dt4) > 1e-20:
+                c4 = (-g36_13*s5) / dt4
+                s4 = (g16_23*s5) / dt4
+                free4 = False
+                wk4 = 1e-08
+
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free4:
+                th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                c4 = cos(th4)
+                s4 = sin(th4)
+            else:
+                th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq4 - 1.0) > 1e-15:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
+
+            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+            g46_11 = c4*g36_11 - g16_21*s4
+            g46_12 = c4*g36_12 - g16_22*s4
+
+            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+            g56_11 = c5*g46_11 + g36_21*s5
+            g56_12 = c5*g46_12 + g36_22*s5
+
+            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free6 = True
+
+            dt6 = 1
+            c6 = g56_11
+            s6 = -g56_12
+            free6 = False
+
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
+                continue
+            th6 = atan2(s6, c6)
+
+            # Joint readings, configuration labels, singular flag.
+            u1 = th1
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = th2 - -1.5707963267948966
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = th3
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u4 = th4
+            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u5 = th5
+            u6 = th6
+            q = (
+                u1 * 1.0,
+                u2 * 1.0,
+                u3 * 1.0,
+                u4 * 1.0,
+                u5 * 1.0,
+                u6 * 1.0,
+            )
+            solutions.append(q)
+
+            if root5 > 0.0 and not free4:
+                u4 = th4 + _PI
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u5 = -th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u6 = th6 + _PI
+                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                q = (
+                    u1 * 1.0,
+                    u2 * 1.0,
+                    u3 * 1.0,
+                    u4 * 1.0,
+                    u5 * 1.0,
+                    u6 * 1.0,
+                )
+                solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -26,6 +26,9 @@ API:
         every equivalent reading (q + k turns) inside its limits, each as its own solution;
         "flag" also keeps the others, with within_limits False; "ignore" returns the closed-form
         solutions with revolute readings in one turn (-180, 180] deg or (-pi, pi] rad.
+    inverse_joints(pose, current=None) -> the readings of every closed-form solution (a tuple
+        each), as inverse(pose, current, limits="ignore") gives them, without labels, conditioning
+        or flags: the fastest call.
     nearest(pose, current, weights=None, config=None, limits="drop") -> the Solution closest to
         ``current`` (see distance), optionally of a given configuration, or None.
     sort_nearest(solutions, current, weights=None) -> the solutions ordered by distance (stable).
@@ -599,19 +602,14 @@ def _closed_form(pose, current, check_finite=True):
             free6 = True
 
             dt6 = 1
-            c6 = (g56_11) / dt6
-            s6 = (-g56_12) / dt6
+            c6 = g56_11
+            s6 = -g56_12
             free6 = False
 
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq6 - 1.0) > 1e-15:
-                hn6 = 1.0 / sqrt(hq6)
-                c6 = c6 * hn6
-                s6 = s6 * hn6
 
             # Joint readings, configuration labels, singular flag.
 
@@ -644,6 +642,7 @@ def _closed_form(pose, current, check_finite=True):
                 "elbow_up" if lm1 >= 0.0 else "elbow_down",
                 "bend_positive" if lm2 >= 0.0 else "bend_negative",
             ), singular, conditioning, -2.9000000058 <= q[0] <= 2.9000000058 and -1.9000000038 <= q[1] <= 1.9000000038 and -2.4000000048 <= q[2] <= 2.4000000048 and -3.1000000062 <= q[3] <= 3.1000000062 and -2.1000000042 <= q[4] <= 2.1000000042)))
+
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
@@ -664,6 +663,312 @@ def _closed_form(pose, current, check_finite=True):
                     "elbow_up" if lm1 >= 0.0 else "elbow_down",
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
                 ), singular, conditioning, -2.9000000058 <= q[0] <= 2.9000000058 and -1.9000000038 <= q[1] <= 1.9000000038 and -2.4000000048 <= q[2] <= 2.4000000048 and -3.1000000062 <= q[3] <= 3.1000000062 and -2.1000000042 <= q[4] <= 2.1000000042)))
+
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+
+def inverse_joints(pose, current=None):
+    """Every closed-form solution's readings, a tuple per solution in joint order: what
+    inverse(pose, current, limits="ignore") returns as each solution's joints, in the same order,
+    without labels, conditioning or flags (joint limits ignored, revolute readings in one turn).
+    The fastest call. ``pose`` as for inverse; an empty list when it is out of reach, or not finite
+    or beyond LARGEST_ENTRY (no status: use inverse for why)."""
+    (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
+    if current is not None:
+        current = _readings(current)
+    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
+            + r33 * r33 + px * px + py * py + pz * pz)
+    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+        return []
+    solutions = []
+    # target in the DH base frame (base and tool removed): base^-1 T tool^-1
+    rc11 = -r11
+    rc12 = -r12
+    pcx = px - 0.02*r11 - 0.6
+    rc21 = -r21
+    rc22 = -r22
+    pcy = py - 0.02*r21 - 0.25
+    rc31 = -r31
+    rc32 = -r32
+    pcz = pz - 0.02*r31
+
+    # wrist centre in the DH base frame: T c, with c its place in the last DH frame
+    wx = pcx - 0.165*r13
+    wy = pcy - 0.165*r23
+    wz = pcz - 0.165*r33
+
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    v1y = 0.29 - wz
+    g16_21 = -rc31
+    g16_22 = -rc32
+    g16_23 = -r33
+    g16_24 = 0.29 - pcz
+
+    # th1: z of A1^-1 w = A2 A3 c3
+    # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+    t3_0 = wx*wx + wy*wy
+    eb1 = -wx
+
+    free1 = t3_0 <= 1e-21
+    if (0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
+        return solutions
+    root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
+    for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
+        if free1:
+            th1 = (0.5235987755982989 + 1.0 * (current[0] if current is not None else 0.0))
+            c1 = cos(th1)
+            s1 = sin(th1)
+        else:
+            cn1 = -eb1*root1*sg1
+            sn1 = root1*sg1*wy
+            th1 = atan2(sn1, cn1)
+            c1 = cn1/t3_0
+            s1 = sn1/t3_0
+
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
+        v1x = c1*wx + s1*wy - 0.04
+        v1z = c1*wy - s1*wx
+
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = c1*rc11 + rc21*s1
+        g16_12 = c1*rc12 + rc22*s1
+        g16_13 = c1*r13 + r23*s1
+        g16_14 = c1*pcx + pcy*s1 - 0.04
+        g16_31 = c1*rc21 - rc11*s1
+        g16_32 = c1*rc22 - rc12*s1
+        g16_33 = c1*r23 - r13*s1
+        g16_34 = c1*pcy - pcx*s1
+        g36_21 = -g16_31
+        g36_22 = -g16_32
+        g36_23 = -g16_33
+
+        # th3: squared norm of A1^-1 w = A2 A3 c3
+        # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+        t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
+        ec3 = t5_0 - 0.239325
+        er3 = (0.4785120397826772 - t5_0)*(t5_0 - 0.00013796021732281156)
+
+        if er3 + 1.1442088000000001e-10 < 0.0:
+            continue
+        root3 = sqrt(er3) if er3 > 0.0 else 0.0
+        dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+        for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
+            cn3 = 0.0238*ec3 + 0.238*root3*sg3
+            sn3 = -0.238*ec3 + 0.0238*root3*sg3
+            th3 = -1.4711276743037347 + sg3 * dl3
+            c3 = 17.479327199720892*cn3
+            s3 = 17.479327199720892*sn3
+
+            # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free2 = True
+            t7_0_0 = c3*v1x
+            t7_0_1 = c3*v1y
+            t7_0_2 = s3*v1y
+
+            dt2 = -v1x*v1x - v1y*v1y
+            if abs(dt2) > 1e-21:
+                c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
+                s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
+                free2 = False
+                wk2 = 9.999999999999999e-10
+
+            if free2:
+                t7_1_0 = g16_13*v1y
+                t7_1_1 = g16_24*v1x
+                t7_1_2 = 0.68*s3
+                t7_1_3 = g16_24*v1y
+                t7_1_4 = g16_13*s3
+                t7_1_5 = g16_23*s3
+                t7_1_6 = s3*v1x
+                t7_1_7 = 0.03927*g16_23
+                t7_1_8 = c3*s3
+                t7_1_9 = 0.0238*v1x
+                t7_1_10 = c3*v1y
+                t7_1_11 = s3*s3
+                t7_1_12 = 0.238*g16_14
+                t7_1_13 = 0.0238*v1y
+                t7_1_14 = c3*g16_13
+                t7_1_15 = c3*g16_23
+                t7_1_16 = g16_14*g16_14
+                t7_1_17 = g16_24*g16_24
+                t7_1_18 = g16_34*g16_34
+                t7_1_19 = g16_13*g16_13
+                t7_1_20 = g16_23*g16_23
+                t7_1_21 = g16_33*g16_33
+                t7_1_22 = 0.027225*t7_1_6
+                t7_1_23 = c3*v1x
+                t7_1_24 = s3*v1y
+                t7_1_25 = 0.027225*t7_1_23
+                t7_1_26 = 0.027225*t7_1_24
+
+                dt2 = 0.68*c3*g16_14*v1y + 0.1122*c3*g16_23*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.1122*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.1155*g16_23*v1y + 0.7*g16_24*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
+                if abs(dt2) > 1e-21:
+                    c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.03855225*c3*g16_23 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 + 0.33*g16_23*g16_24*s3*v1x - 0.003927*g16_23*t7_1_11 + 0.007854*g16_23 + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
+                    s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33*c3*g16_23*g16_24*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 + 0.33*g16_23*g16_24*s3*v1y + 0.03927*g16_23*t7_1_11 + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
+                    free2 = False
+                    wk2 = 9.999999999999999e-10
+
+            if free2:
+                t7_2_0 = c1*c3
+                t7_2_1 = c1*s3
+                t7_2_2 = 0.0483*wx
+                t7_2_3 = 0.2002*wx
+                t7_2_4 = c3*t7_2_1
+                t7_2_5 = c1*s3*s3
+                t7_2_6 = wx*wx
+                t7_2_7 = 0.35*t7_2_0
+                t7_2_8 = wy*wy
+                t7_2_9 = wz*wz
+                t7_2_10 = 0.035*t7_2_1
+                t7_2_11 = 0.34*c1
+                t7_2_12 = 0.035*t7_2_0
+                t7_2_13 = 0.35*t7_2_1
+
+                dt2 = 0.58*c1*(-0.0238*c3 + 0.238*s3 - 0.239325)
+                if abs(dt2) > 1e-21:
+                    c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
+                    s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
+                    free2 = False
+                    wk2 = 9.999999999999999e-10
+
+            if not free2:
+                hq2 = c2 * c2 + s2 * s2
+                if abs(hq2 - 1.0) > 1e-4:
+                    if abs(dt2) > wk2:
+                        continue
+                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free2:
+                th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                c2 = cos(th2)
+                s2 = sin(th2)
+            else:
+                th2 = atan2(s2, c2)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq2 - 1.0) > 1e-15:
+                    hn2 = 1.0 / sqrt(hq2)
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
+
+            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
+            g26_11 = c2*g16_11 + g16_21*s2
+            g26_12 = c2*g16_12 + g16_22*s2
+            g26_13 = c2*g16_13 + g16_23*s2
+            g26_21 = c2*g16_21 - g16_11*s2
+            g26_22 = c2*g16_22 - g16_12*s2
+            g26_23 = c2*g16_23 - g16_13*s2
+
+            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g36_13 = c3*g26_13 + g26_23*s3
+            g36_31 = c3*g26_21 - g26_11*s3
+            g36_32 = c3*g26_22 - g26_12*s3
+            g36_33 = c3*g26_23 - g26_13*s3
+
+            # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+            # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
+            er5 = g36_13*g36_13 + g36_23*g36_23
+
+            if er5 + 2e-09 < 0.0:
+                continue
+            root5 = sqrt(er5) if er5 > 0.0 else 0.0
+            # the second root follows from this one by symmetry (emitted with the solution below)
+            sg5 = 1.0
+            cn5 = g36_33
+            sn5 = root5*sg5
+            th5 = atan2(sn5, cn5)
+            c5 = cn5
+            s5 = sn5
+
+            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free4 = True
+
+            dt4 = -s5*s5
+            if abs(dt4) > 1e-20:
+                c4 = (g36_13*s5) / dt4
+                s4 = (g36_23*s5) / dt4
+                free4 = False
+                wk4 = 1e-08
+
+            if not free4:
+                hq4 = c4 * c4 + s4 * s4
+                if abs(hq4 - 1.0) > 1e-4:
+                    if abs(dt4) > wk4:
+                        continue
+                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
+            if free4:
+                th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                c4 = cos(th4)
+                s4 = sin(th4)
+            else:
+                th4 = atan2(s4, c4)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq4 - 1.0) > 1e-15:
+                    hn4 = 1.0 / sqrt(hq4)
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
+
+            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
+            g46_11 = c4*g36_11 + g36_21*s4
+            g46_12 = c4*g36_12 + g36_22*s4
+
+            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
+            g56_11 = c5*g46_11 + g36_31*s5
+            g56_12 = c5*g46_12 + g36_32*s5
+
+            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            free6 = True
+
+            dt6 = 1
+            c6 = g56_11
+            s6 = -g56_12
+            free6 = False
+
+            hq6 = c6 * c6 + s6 * s6
+            if abs(hq6 - 1.0) > 1e-4:
+                continue
+            th6 = atan2(s6, c6)
+
+            # Joint readings, configuration labels, singular flag.
+            u1 = th1 - 0.5235987755982991
+            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u2 = th2 - -1.5707963267948966
+            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u3 = th3
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u4 = th4
+            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u5 = th5
+            u6 = th6
+            q = (
+                u1 * 1.0,
+                u2 * 1.0,
+                u3 * -1.0,
+                u4 * 1.0,
+                u5 * 1.0,
+                u6 * 1.0,
+            )
+            solutions.append(q)
+
+            if root5 > 0.0 and not free4:
+                u4 = th4 + _PI
+                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u5 = -th5
+                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u6 = th6 + _PI
+                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                q = (
+                    u1 * 1.0,
+                    u2 * 1.0,
+                    u3 * -1.0,
+                    u4 * 1.0,
+                    u5 * 1.0,
+                    u6 * 1.0,
+                )
+                solutions.append(q)
+
+    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+        return solutions
+    return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -425,16 +425,6 @@ static int closed_form(const float pose[16], const float *current,
                 continue;
             }
             th6 = atan2f(s6, c6);
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq6 = c6 * c6 + s6 * s6;
-                if (fabsf(hq6 - 1.0f) > 1e-06f) {
-                    const float hn6 = 1.0f / sqrtf(hq6);
-                    c6 = c6 * hn6;
-                    s6 = s6 * hn6;
-                }
-            }
 
             /* joint readings, configuration labels, singular flag */
 
