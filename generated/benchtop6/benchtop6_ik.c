@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const benchtop6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < BENCHTOP6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < BENCHTOP6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void benchtop6_ik_forward(const double joints[BENCHTOP6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -154,15 +142,11 @@ static int closed_form(const double pose[16], const double *current,
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double v1y = 220.0 - wz;
-    const double g16_21 = -r31;
-    const double g16_22 = -r32;
-    const double g16_23 = -r33;
     const double g16_24 = 220.0 - pcz;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
-    const double eb1 = -wx;
 
     const int free1 = t3_0 <= 9.9999999999999988e-16;
     if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
@@ -171,6 +155,7 @@ static int closed_form(const double pose[16], const double *current,
     }
     const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
     const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    double ta1 = 0.0, ca1 = 0.0, sa1 = 0.0;   /* the first root, for the second */
     for (int k1 = 0; k1 < n1; ++k1) {
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
@@ -179,11 +164,21 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = -eb1*root1*sg1;
-            const double sn1 = root1*sg1*wy;
-            th1 = atan2(sn1, cn1);
-            c1 = cn1/t3_0;
-            s1 = sn1/t3_0;
+            if (k1) {   /* the second root: the first turned by half a turn */
+                th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
+                c1 = -ca1;
+                s1 = -sa1;
+            } else {
+                const double cn1 = root1*sg1*wx;
+                const double sn1 = root1*sg1*wy;
+                th1 = atan2(sn1, cn1);
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
+
+                ta1 = th1;
+                ca1 = c1;
+                sa1 = s1;
+            }
 
         }
 
@@ -191,7 +186,7 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
@@ -200,9 +195,6 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_32 = c1*r22 - r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
-        const double g36_21 = -g16_31;
-        const double g36_22 = -g16_32;
-        const double g36_23 = -g16_33;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -275,7 +267,7 @@ static int closed_form(const double pose[16], const double *current,
             if (free2) {
                 const double t7_2_0 = g16_13*v1x;
                 const double t7_2_1 = g16_14*v1x;
-                const double t7_2_2 = g16_23*v1y;
+                const double t7_2_2 = -r33*v1y;
                 const double t7_2_3 = g16_24*v1y;
                 const double t7_2_4 = 2800.0*c3;
                 const double t7_2_5 = g16_13*v1y;
@@ -283,7 +275,7 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_2_7 = 40.0*c3;
                 const double t7_2_8 = 480.0*c3;
                 const double t7_2_9 = g16_14*v1y;
-                const double t7_2_10 = g16_23*v1x;
+                const double t7_2_10 = -r33*v1x;
                 const double t7_2_11 = g16_24*v1x;
                 const double t7_2_12 = 33600.0*s3;
                 const double t7_2_13 = 2800.0*s3;
@@ -294,19 +286,19 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_2_18 = g16_24*g16_24;
                 const double t7_2_19 = g16_34*g16_34;
                 const double t7_2_20 = c3*s3;
-                const double t7_2_21 = g16_23*t7_2_20;
+                const double t7_2_21 = -r33*t7_2_20;
                 const double t7_2_22 = s3*s3;
                 const double t7_2_23 = g16_13*g16_13;
                 const double t7_2_24 = 4900.0*v1x;
                 const double t7_2_25 = 114400.0*t7_2_22;
-                const double t7_2_26 = g16_23*g16_23;
+                const double t7_2_26 = r33*r33;
                 const double t7_2_27 = g16_33*g16_33;
                 const double t7_2_28 = 4900.0*v1y;
 
                 dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9;
                 if (fabs(dt2) > 9.9999999999999998e-13) {
-                    c2 = (19200.0*c3*g16_14*s3 + 8736000.0*c3*g16_23 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 + 140.0*g16_23*g16_24*v1x + 728000.0*g16_23*s3 - 1344000.0*g16_23*t7_2_22 + 672000.0*g16_23 - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2;
-                    s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 + 140.0*g16_23*g16_24*v1y + 8008000.0*g16_23*t7_2_22 - 8064000.0*g16_23 - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2;
+                    c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2;
+                    s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2;
                     free2 = 0;
                     wk2 = 1.0;
                 }
@@ -336,12 +328,12 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g26_11 = c2*g16_11 + g16_21*s2;
-            const double g26_12 = c2*g16_12 + g16_22*s2;
-            const double g26_13 = c2*g16_13 + g16_23*s2;
-            const double g26_21 = c2*g16_21 - g16_11*s2;
-            const double g26_22 = c2*g16_22 - g16_12*s2;
-            const double g26_23 = c2*g16_23 - g16_13*s2;
+            const double g26_11 = c2*g16_11 - r31*s2;
+            const double g26_12 = c2*g16_12 - r32*s2;
+            const double g26_13 = c2*g16_13 - r33*s2;
+            const double g26_21 = -c2*r31 - g16_11*s2;
+            const double g26_22 = -c2*r32 - g16_12*s2;
+            const double g26_23 = -c2*r33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
@@ -353,17 +345,16 @@ static int closed_form(const double pose[16], const double *current,
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const double er5 = g36_13*g36_13 + g36_23*g36_23;
+            const double er5 = g16_33*g16_33 + g36_13*g36_13;
 
             if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const double sg5 = 1.0;
             double th5, c5, s5;
             const double cn5 = g36_33;
-            const double sn5 = root5*sg5;
+            const double sn5 = root5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -376,7 +367,7 @@ static int closed_form(const double pose[16], const double *current,
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (g36_13*s5) / dt4;
-                    s4 = (g36_23*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -406,8 +397,8 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 + g36_21*s4;
-            const double g46_12 = c4*g36_12 + g36_22*s4;
+            const double g46_11 = c4*g36_11 - g16_31*s4;
+            const double g46_12 = c4*g36_12 - g16_32*s4;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const double g56_11 = c5*g46_11 + g36_31*s5;
@@ -435,71 +426,89 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = v1x + 25.0;
             const double lm1 = 62400.0*c3 + 5200.0*s3;
             const double lm2 = s5;
-            if (count < BENCHTOP6_IK_CLOSED_FORM) {
-                benchtop6_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
+                const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
+                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
-                out->joints[4] = th5 * 57.295779513082323;
-                out->joints[5] = th6 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                out->conditioning[0] = root1 * 0.003162277660168379;
-                out->conditioning[1] = root3 * 7.9851422936288423e-06;
-                out->conditioning[2] = root5 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv4 = u4 * 57.295779513082323;
+                const double jv5 = th5 * 57.295779513082323;
+                const double jv6 = th6 * 57.295779513082323;
+                const double cv0 = root1 * 0.003162277660168379;
+                const double cv1 = root3 * 7.9851422936288423e-06;
+                const double cv2 = root5 * 1.0;
+                if (fine && count < BENCHTOP6_IK_CLOSED_FORM) {
+                    benchtop6_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0 && !free4) {
-                if (count < BENCHTOP6_IK_CLOSED_FORM) {
-                    benchtop6_ik_solution *out = &solutions[count++];
+                {
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 57.295779513082323;
+                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 57.295779513082323;
+                    const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    out->joints[2] = u3 * 57.295779513082323;
+                    const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 57.295779513082323;
+                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = -th5;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 57.295779513082323;
+                    const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6 + 3.1415926535897931;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                    out->joints[5] = u6 * 57.295779513082323;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                    out->conditioning[0] = root1 * 0.003162277660168379;
-                    out->conditioning[1] = root3 * 7.9851422936288423e-06;
-                    out->conditioning[2] = root5 * 1.0;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv6 = u6 * 57.295779513082323;
+                    const double cv0 = root1 * 0.003162277660168379;
+                    const double cv1 = root3 * 7.9851422936288423e-06;
+                    const double cv2 = root5 * 1.0;
+                    if (fine && count < BENCHTOP6_IK_CLOSED_FORM) {
+                        benchtop6_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                        out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

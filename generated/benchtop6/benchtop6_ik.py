@@ -335,7 +335,7 @@ def forward(joints):
     f12 = c5*f11 + f10*s5
     f13 = c5*f10
     f14 = f11*s5
-    f15 = 260*c2
+    f15 = 260.0*c2
     f16 = f0*s1
     f17 = f2*s1
     f18 = f16 - f17
@@ -354,9 +354,9 @@ def forward(joints):
     f31 = c5*f30 + f29*s5
     f32 = f30*s5
     return [
-        [c6*f12 + f5*s6, c6*f5 - f12*s6, f13 - f14, c1*f15 + 25*c1 + 20*f1 + 165*f13 - 165*f14 - 20*f3 - 240*f7 - 240*f9],
-        [c6*f24 + f19*s6, c6*f19 - f24*s6, f25 - f26, f15*s1 + 20*f16 - 20*f17 - 240*f20 - 240*f21 + 165*f25 - 165*f26 + 25*s1],
-        [c6*f31 - f28*s6, -c6*f28 - f31*s6, c5*f29 - f32, 165*c5*f29 - 240*f0 - 165*f32 - 20*f6 - 20*f8 + 240*s2*s3 - 260*s2 + 220],
+        [c6*f12 + f5*s6, c6*f5 - f12*s6, f13 - f14, c1*f15 + 25.0*c1 + 20.0*f1 + 165.0*f13 - 165.0*f14 - 20.0*f3 - 240.0*f7 - 240.0*f9],
+        [c6*f24 + f19*s6, c6*f19 - f24*s6, f25 - f26, f15*s1 + 20.0*f16 - 20.0*f17 - 240.0*f20 - 240.0*f21 + 165.0*f25 - 165.0*f26 + 25.0*s1],
+        [c6*f31 - f28*s6, -c6*f28 - f31*s6, c5*f29 - f32, 165.0*c5*f29 - 240.0*f0 - 165.0*f32 - 20.0*f6 - 20.0*f8 + 240.0*s2*s3 - 260.0*s2 + 220.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -368,29 +368,25 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 95*r13
-    pcy = py - 95*r23
-    pcz = pz - 95*r33
+    pcx = px - 95.0*r13
+    pcy = py - 95.0*r23
+    pcz = pz - 95.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 70*r13
-    wy = pcy - 70*r23
-    wz = pcz - 70*r33
+    wx = pcx - 70.0*r13
+    wy = pcy - 70.0*r23
+    wz = pcz - 70.0*r33
 
     # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    v1y = 220 - wz
-    g16_21 = -r31
-    g16_22 = -r32
-    g16_23 = -r33
-    g16_24 = 220 - pcz
+    v1y = 220.0 - wz
+    g16_24 = 220.0 - pcz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
 
     free1 = t3_0 <= 9.999999999999999e-16
-    if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
+    if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
         return solutions
     root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -399,33 +395,35 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1
-            sn1 = root1*sg1*wy
-            th1 = atan2(sn1, cn1)
-            c1 = cn1/t3_0
-            s1 = sn1/t3_0
+            if sg1 < 0.0:  # the second root: the first turned by half a turn
+                th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                c1 = -c1
+                s1 = -s1
+            else:
+                cn1 = root1*sg1*wx
+                sn1 = root1*sg1*wy
+                th1 = atan2(sn1, cn1)
+                c1 = cn1/t3_0
+                s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
-        v1x = c1*wx + s1*wy - 25
+        v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 25
+        g16_14 = c1*pcx + pcy*s1 - 25.0
         g16_31 = c1*r21 - r11*s1
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
-        ec3 = t5_0 - 125600
+        ec3 = t5_0 - 125600.0
         er3 = (250832.5836194399 - t5_0)*(t5_0 - 367.416380560127)
 
         if er3 + 31.366400000000002 < 0.0:
@@ -433,22 +431,22 @@ def _closed_form(pose, current, check_finite=True):
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-            cn3 = 10400*ec3 + 124800*root3*sg3
-            sn3 = -124800*ec3 + 10400*root3*sg3
+            cn3 = 10400.0*ec3 + 124800.0*root3*sg3
+            sn3 = -124800.0*ec3 + 10400.0*root3*sg3
             th3 = -1.4876550949064553 + sg3 * dl3
             c3 = 6.37624974495001e-11*cn3
             s3 = 6.37624974495001e-11*sn3
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t7_0_0 = 20*v1x
+            t7_0_0 = 20.0*v1x
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
             dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
-                s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2
+                c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
+                s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
@@ -457,66 +455,66 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_1 = g16_14*v1y
                 t7_1_2 = g16_24*v1x
                 t7_1_3 = g16_24*v1y
-                t7_1_4 = 520*c3
-                t7_1_5 = 520*s3
-                t7_1_6 = 124800*g16_14
-                t7_1_7 = 10400*v1y
+                t7_1_4 = 520.0*c3
+                t7_1_5 = 520.0*s3
+                t7_1_6 = 124800.0*g16_14
+                t7_1_7 = 10400.0*v1y
                 t7_1_8 = c3*v1y
                 t7_1_9 = g16_14*s3
                 t7_1_10 = s3*v1x
-                t7_1_11 = 124800*g16_24
+                t7_1_11 = 124800.0*g16_24
                 t7_1_12 = c3*s3
-                t7_1_13 = 10400*v1x
+                t7_1_13 = 10400.0*v1x
                 t7_1_14 = s3*s3
-                t7_1_15 = 10400*t7_1_14
+                t7_1_15 = 10400.0*t7_1_14
                 t7_1_16 = g16_14*g16_14
                 t7_1_17 = g16_24*g16_24
                 t7_1_18 = g16_34*g16_34
                 t7_1_19 = c3*v1x
                 t7_1_20 = s3*v1y
 
-                dt2 = -t7_1_0*t7_1_5 + 480*t7_1_0 + t7_1_1*t7_1_4 + 40*t7_1_1 - t7_1_2*t7_1_4 - 40*t7_1_2 - t7_1_3*t7_1_5 + 480*t7_1_3
+                dt2 = -t7_1_0*t7_1_5 + 480.0*t7_1_0 + t7_1_1*t7_1_4 + 40.0*t7_1_1 - t7_1_2*t7_1_4 - 40.0*t7_1_2 - t7_1_3*t7_1_5 + 480.0*t7_1_3
                 if abs(dt2) > 1e-12:
-                    c2 = (9600*c3*g16_14 - 136000*c3*g16_24 + 10400*c3*t7_1_9 + 9600*g16_24*s3 + g16_24*t7_1_15 - 20800*g16_24 - 124800*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700*t7_1_8 + 800*t7_1_9) / dt2
-                    s2 = (136000*c3*g16_14 + 10400*c3*g16_24*s3 + 9600*c3*g16_24 + 124800*c3*s3*v1x - g16_14*t7_1_15 + 20800*g16_14 + 800*g16_24*s3 + 124800*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400*t7_1_14*v1x + 124800*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700*t7_1_19 - 120700*t7_1_20 - 9600*t7_1_9) / dt2
+                    c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
+                    s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     free2 = False
                     wk2 = 1.0
 
             if free2:
                 t7_2_0 = g16_13*v1x
                 t7_2_1 = g16_14*v1x
-                t7_2_2 = g16_23*v1y
+                t7_2_2 = -r33*v1y
                 t7_2_3 = g16_24*v1y
-                t7_2_4 = 2800*c3
+                t7_2_4 = 2800.0*c3
                 t7_2_5 = g16_13*v1y
-                t7_2_6 = 33600*c3
-                t7_2_7 = 40*c3
-                t7_2_8 = 480*c3
+                t7_2_6 = 33600.0*c3
+                t7_2_7 = 40.0*c3
+                t7_2_8 = 480.0*c3
                 t7_2_9 = g16_14*v1y
-                t7_2_10 = g16_23*v1x
+                t7_2_10 = -r33*v1x
                 t7_2_11 = g16_24*v1x
-                t7_2_12 = 33600*s3
-                t7_2_13 = 2800*s3
-                t7_2_14 = 480*s3
-                t7_2_15 = 40*s3
-                t7_2_16 = 10400*c3
+                t7_2_12 = 33600.0*s3
+                t7_2_13 = 2800.0*s3
+                t7_2_14 = 480.0*s3
+                t7_2_15 = 40.0*s3
+                t7_2_16 = 10400.0*c3
                 t7_2_17 = g16_14*g16_14
                 t7_2_18 = g16_24*g16_24
                 t7_2_19 = g16_34*g16_34
                 t7_2_20 = c3*s3
-                t7_2_21 = g16_23*t7_2_20
+                t7_2_21 = -r33*t7_2_20
                 t7_2_22 = s3*s3
                 t7_2_23 = g16_13*g16_13
-                t7_2_24 = 4900*v1x
-                t7_2_25 = 114400*t7_2_22
-                t7_2_26 = g16_23*g16_23
+                t7_2_24 = 4900.0*v1x
+                t7_2_25 = 114400.0*t7_2_22
+                t7_2_26 = r33*r33
                 t7_2_27 = g16_33*g16_33
-                t7_2_28 = 4900*v1y
+                t7_2_28 = 4900.0*v1y
 
-                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400*t7_2_2 - t7_2_3*t7_2_7 - 520*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
                 if abs(dt2) > 1e-12:
-                    c2 = (19200*c3*g16_14*s3 + 8736000*c3*g16_23 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 + 140*g16_23*g16_24*v1x + 728000*g16_23*s3 - 1344000*g16_23*t7_2_22 + 672000*g16_23 - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2
-                    s2 = (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 + 140*g16_23*g16_24*v1y + 8008000*g16_23*t7_2_22 - 8064000*g16_23 - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2
+                    c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
+                    s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                     free2 = False
                     wk2 = 1.0
 
@@ -539,12 +537,12 @@ def _closed_form(pose, current, check_finite=True):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_21 = c2*g16_21 - g16_11*s2
-            g26_22 = c2*g16_22 - g16_12*s2
-            g26_23 = c2*g16_23 - g16_13*s2
+            g26_11 = c2*g16_11 - r31*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_21 = -c2*r31 - g16_11*s2
+            g26_22 = -c2*r32 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -556,18 +554,15 @@ def _closed_form(pose, current, check_finite=True):
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            er5 = g36_13*g36_13 + g36_23*g36_23
+            er5 = g16_33*g16_33 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -575,7 +570,7 @@ def _closed_form(pose, current, check_finite=True):
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
-                s4 = (g36_23*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
@@ -598,21 +593,17 @@ def _closed_form(pose, current, check_finite=True):
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
+            g46_11 = c4*g36_11 - g16_31*s4
+            g46_12 = c4*g36_12 - g16_32*s4
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g56_11 = c5*g46_11 + g36_31*s5
             g56_12 = c5*g46_12 + g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -620,20 +611,16 @@ def _closed_form(pose, current, check_finite=True):
 
             # Joint readings, configuration labels, singular flag.
 
-            lm0 = v1x + 25
-            lm1 = 62400*c3 + 5200*s3
+            lm0 = v1x + 25.0
+            lm1 = 62400.0*c3 + 5200.0*s3
             lm2 = s5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (
@@ -690,29 +677,25 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 95*r13
-    pcy = py - 95*r23
-    pcz = pz - 95*r33
+    pcx = px - 95.0*r13
+    pcy = py - 95.0*r23
+    pcz = pz - 95.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 70*r13
-    wy = pcy - 70*r23
-    wz = pcz - 70*r33
+    wx = pcx - 70.0*r13
+    wy = pcy - 70.0*r23
+    wz = pcz - 70.0*r33
 
     # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    v1y = 220 - wz
-    g16_21 = -r31
-    g16_22 = -r32
-    g16_23 = -r33
-    g16_24 = 220 - pcz
+    v1y = 220.0 - wz
+    g16_24 = 220.0 - pcz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
 
     free1 = t3_0 <= 9.999999999999999e-16
-    if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
+    if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
         return solutions
     root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -721,33 +704,35 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1
-            sn1 = root1*sg1*wy
-            th1 = atan2(sn1, cn1)
-            c1 = cn1/t3_0
-            s1 = sn1/t3_0
+            if sg1 < 0.0:  # the second root: the first turned by half a turn
+                th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                c1 = -c1
+                s1 = -s1
+            else:
+                cn1 = root1*sg1*wx
+                sn1 = root1*sg1*wy
+                th1 = atan2(sn1, cn1)
+                c1 = cn1/t3_0
+                s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
-        v1x = c1*wx + s1*wy - 25
+        v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 25
+        g16_14 = c1*pcx + pcy*s1 - 25.0
         g16_31 = c1*r21 - r11*s1
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
-        ec3 = t5_0 - 125600
+        ec3 = t5_0 - 125600.0
         er3 = (250832.5836194399 - t5_0)*(t5_0 - 367.416380560127)
 
         if er3 + 31.366400000000002 < 0.0:
@@ -755,22 +740,22 @@ def inverse_joints(pose, current=None):
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-            cn3 = 10400*ec3 + 124800*root3*sg3
-            sn3 = -124800*ec3 + 10400*root3*sg3
+            cn3 = 10400.0*ec3 + 124800.0*root3*sg3
+            sn3 = -124800.0*ec3 + 10400.0*root3*sg3
             th3 = -1.4876550949064553 + sg3 * dl3
             c3 = 6.37624974495001e-11*cn3
             s3 = 6.37624974495001e-11*sn3
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t7_0_0 = 20*v1x
+            t7_0_0 = 20.0*v1x
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
             dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
-                s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2
+                c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
+                s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
@@ -779,66 +764,66 @@ def inverse_joints(pose, current=None):
                 t7_1_1 = g16_14*v1y
                 t7_1_2 = g16_24*v1x
                 t7_1_3 = g16_24*v1y
-                t7_1_4 = 520*c3
-                t7_1_5 = 520*s3
-                t7_1_6 = 124800*g16_14
-                t7_1_7 = 10400*v1y
+                t7_1_4 = 520.0*c3
+                t7_1_5 = 520.0*s3
+                t7_1_6 = 124800.0*g16_14
+                t7_1_7 = 10400.0*v1y
                 t7_1_8 = c3*v1y
                 t7_1_9 = g16_14*s3
                 t7_1_10 = s3*v1x
-                t7_1_11 = 124800*g16_24
+                t7_1_11 = 124800.0*g16_24
                 t7_1_12 = c3*s3
-                t7_1_13 = 10400*v1x
+                t7_1_13 = 10400.0*v1x
                 t7_1_14 = s3*s3
-                t7_1_15 = 10400*t7_1_14
+                t7_1_15 = 10400.0*t7_1_14
                 t7_1_16 = g16_14*g16_14
                 t7_1_17 = g16_24*g16_24
                 t7_1_18 = g16_34*g16_34
                 t7_1_19 = c3*v1x
                 t7_1_20 = s3*v1y
 
-                dt2 = -t7_1_0*t7_1_5 + 480*t7_1_0 + t7_1_1*t7_1_4 + 40*t7_1_1 - t7_1_2*t7_1_4 - 40*t7_1_2 - t7_1_3*t7_1_5 + 480*t7_1_3
+                dt2 = -t7_1_0*t7_1_5 + 480.0*t7_1_0 + t7_1_1*t7_1_4 + 40.0*t7_1_1 - t7_1_2*t7_1_4 - 40.0*t7_1_2 - t7_1_3*t7_1_5 + 480.0*t7_1_3
                 if abs(dt2) > 1e-12:
-                    c2 = (9600*c3*g16_14 - 136000*c3*g16_24 + 10400*c3*t7_1_9 + 9600*g16_24*s3 + g16_24*t7_1_15 - 20800*g16_24 - 124800*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700*t7_1_8 + 800*t7_1_9) / dt2
-                    s2 = (136000*c3*g16_14 + 10400*c3*g16_24*s3 + 9600*c3*g16_24 + 124800*c3*s3*v1x - g16_14*t7_1_15 + 20800*g16_14 + 800*g16_24*s3 + 124800*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400*t7_1_14*v1x + 124800*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700*t7_1_19 - 120700*t7_1_20 - 9600*t7_1_9) / dt2
+                    c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
+                    s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     free2 = False
                     wk2 = 1.0
 
             if free2:
                 t7_2_0 = g16_13*v1x
                 t7_2_1 = g16_14*v1x
-                t7_2_2 = g16_23*v1y
+                t7_2_2 = -r33*v1y
                 t7_2_3 = g16_24*v1y
-                t7_2_4 = 2800*c3
+                t7_2_4 = 2800.0*c3
                 t7_2_5 = g16_13*v1y
-                t7_2_6 = 33600*c3
-                t7_2_7 = 40*c3
-                t7_2_8 = 480*c3
+                t7_2_6 = 33600.0*c3
+                t7_2_7 = 40.0*c3
+                t7_2_8 = 480.0*c3
                 t7_2_9 = g16_14*v1y
-                t7_2_10 = g16_23*v1x
+                t7_2_10 = -r33*v1x
                 t7_2_11 = g16_24*v1x
-                t7_2_12 = 33600*s3
-                t7_2_13 = 2800*s3
-                t7_2_14 = 480*s3
-                t7_2_15 = 40*s3
-                t7_2_16 = 10400*c3
+                t7_2_12 = 33600.0*s3
+                t7_2_13 = 2800.0*s3
+                t7_2_14 = 480.0*s3
+                t7_2_15 = 40.0*s3
+                t7_2_16 = 10400.0*c3
                 t7_2_17 = g16_14*g16_14
                 t7_2_18 = g16_24*g16_24
                 t7_2_19 = g16_34*g16_34
                 t7_2_20 = c3*s3
-                t7_2_21 = g16_23*t7_2_20
+                t7_2_21 = -r33*t7_2_20
                 t7_2_22 = s3*s3
                 t7_2_23 = g16_13*g16_13
-                t7_2_24 = 4900*v1x
-                t7_2_25 = 114400*t7_2_22
-                t7_2_26 = g16_23*g16_23
+                t7_2_24 = 4900.0*v1x
+                t7_2_25 = 114400.0*t7_2_22
+                t7_2_26 = r33*r33
                 t7_2_27 = g16_33*g16_33
-                t7_2_28 = 4900*v1y
+                t7_2_28 = 4900.0*v1y
 
-                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400*t7_2_2 - t7_2_3*t7_2_7 - 520*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
                 if abs(dt2) > 1e-12:
-                    c2 = (19200*c3*g16_14*s3 + 8736000*c3*g16_23 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 + 140*g16_23*g16_24*v1x + 728000*g16_23*s3 - 1344000*g16_23*t7_2_22 + 672000*g16_23 - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2
-                    s2 = (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 + 140*g16_23*g16_24*v1y + 8008000*g16_23*t7_2_22 - 8064000*g16_23 - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2
+                    c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
+                    s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                     free2 = False
                     wk2 = 1.0
 
@@ -861,12 +846,12 @@ def inverse_joints(pose, current=None):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_21 = c2*g16_21 - g16_11*s2
-            g26_22 = c2*g16_22 - g16_12*s2
-            g26_23 = c2*g16_23 - g16_13*s2
+            g26_11 = c2*g16_11 - r31*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_21 = -c2*r31 - g16_11*s2
+            g26_22 = -c2*r32 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -878,18 +863,15 @@ def inverse_joints(pose, current=None):
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            er5 = g36_13*g36_13 + g36_23*g36_23
+            er5 = g16_33*g16_33 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -897,7 +879,7 @@ def inverse_joints(pose, current=None):
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
-                s4 = (g36_23*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
@@ -920,36 +902,28 @@ def inverse_joints(pose, current=None):
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
+            g46_11 = c4*g36_11 - g16_31*s4
+            g46_12 = c4*g36_12 - g16_32*s4
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g56_11 = c5*g46_11 + g36_31*s5
             g56_12 = c5*g46_12 + g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (

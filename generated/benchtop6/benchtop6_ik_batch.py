@@ -124,21 +124,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         v1y = 220 - wz
-        g16_21 = -r31
-        g16_22 = -r32
-        g16_23 = -r33
         g16_24 = 220 - pcz
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t3_0 <= 9.999999999999999e-16
         valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t3_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1
+        cn1 = root1*sg1*wx
         sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t3_0
@@ -153,7 +149,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy - 25
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -162,9 +158,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -228,7 +221,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         if not chosen2.all():
             t7_2_0 = g16_13*v1x
             t7_2_1 = g16_14*v1x
-            t7_2_2 = g16_23*v1y
+            t7_2_2 = -r33*v1y
             t7_2_3 = g16_24*v1y
             t7_2_4 = 2800*c3
             t7_2_5 = g16_13*v1y
@@ -236,7 +229,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_2_7 = 40*c3
             t7_2_8 = 480*c3
             t7_2_9 = g16_14*v1y
-            t7_2_10 = g16_23*v1x
+            t7_2_10 = -r33*v1x
             t7_2_11 = g16_24*v1x
             t7_2_12 = 33600*s3
             t7_2_13 = 2800*s3
@@ -247,19 +240,19 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_2_18 = g16_24*g16_24
             t7_2_19 = g16_34*g16_34
             t7_2_20 = c3*s3
-            t7_2_21 = g16_23*t7_2_20
+            t7_2_21 = -r33*t7_2_20
             t7_2_22 = s3*s3
             t7_2_23 = g16_13*g16_13
             t7_2_24 = 4900*v1x
             t7_2_25 = 114400*t7_2_22
-            t7_2_26 = g16_23*g16_23
+            t7_2_26 = r33*r33
             t7_2_27 = g16_33*g16_33
             t7_2_28 = 4900*v1y
 
             dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400*t7_2_2 - t7_2_3*t7_2_7 - 520*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
             use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
-            c2 = numpy.where(use, (19200*c3*g16_14*s3 + 8736000*c3*g16_23 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 + 140*g16_23*g16_24*v1x + 728000*g16_23*s3 - 1344000*g16_23*t7_2_22 + 672000*g16_23 - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2, c2)
-            s2 = numpy.where(use, (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 + 140*g16_23*g16_24*v1y + 8008000*g16_23*t7_2_22 - 8064000*g16_23 - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2, s2)
+            c2 = numpy.where(use, (19200*c3*g16_14*s3 + 114400*c3*g16_24*s3 - 124800*c3*g16_24 - 8736000*c3*r33 + 140*g16_13*g16_14*v1x - 1344000*g16_13*t7_2_20 + 8008000*g16_13*t7_2_22 - 8064000*g16_13 - g16_14*t7_2_25 + 115200*g16_14 - 140*g16_24*r33*v1x - 10400*g16_24*s3 + 19200*g16_24*t7_2_22 - 9600*g16_24 + 140*g16_33*g16_34*v1x - 728000*r33*s3 + 1344000*r33*t7_2_22 - 672000*r33 + 124800*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600*v1x) / dt2, c2)
+            s2 = numpy.where(use, (8008000*c3*g16_13*s3 - 8736000*c3*g16_13 + 124800*c3*g16_14 + 19200*c3*g16_24*s3 + 140*g16_13*g16_14*v1y - 728000*g16_13*s3 + 1344000*g16_13*t7_2_22 - 672000*g16_13 + 10400*g16_14*s3 - 114400*g16_14*t7_2_20 - 19200*g16_14*t7_2_22 + 9600*g16_14 - 140*g16_24*r33*v1y - g16_24*t7_2_25 + 115200*g16_24 + 140*g16_33*g16_34*v1y - 8008000*r33*t7_2_22 + 8064000*r33 + 124800*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600*v1y) / dt2, s2)
             wk2 = numpy.where(use, 1.0, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
@@ -281,12 +274,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        g26_11 = c2*g16_11 + g16_21*s2
-        g26_12 = c2*g16_12 + g16_22*s2
-        g26_13 = c2*g16_13 + g16_23*s2
-        g26_21 = c2*g16_21 - g16_11*s2
-        g26_22 = c2*g16_22 - g16_12*s2
-        g26_23 = c2*g16_23 - g16_13*s2
+        g26_11 = c2*g16_11 - r31*s2
+        g26_12 = c2*g16_12 - r32*s2
+        g26_13 = c2*g16_13 - r33*s2
+        g26_21 = -c2*r31 - g16_11*s2
+        g26_22 = -c2*r32 - g16_12*s2
+        g26_23 = -c2*r33 - g16_13*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
@@ -297,13 +290,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_33 = c3*g26_23 - g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g16_33*g16_33 + g36_13*g36_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = g36_33
-        sn5 = root5*sg5
+        sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
         s5 = sn5
@@ -315,7 +307,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
         c4 = (g36_13*s5) / dt4
-        s4 = (g36_23*s5) / dt4
+        s4 = (-g16_33*s5) / dt4
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -337,8 +329,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
+        g46_11 = c4*g36_11 - g16_31*s4
+        g46_12 = c4*g36_12 - g16_32*s4
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g56_11 = c5*g46_11 + g36_31*s5
@@ -368,7 +360,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
@@ -397,7 +388,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - -1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)

@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const boardpick4_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < BOARDPICK4_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < BOARDPICK4_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void boardpick4_ik_forward(const double joints[BOARDPICK4_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -342,29 +330,35 @@ static int closed_form(const double pose[16], const double *current,
         }
 
         const double lm0 = 89375.0*s2;
-        if (count < BOARDPICK4_IK_CLOSED_FORM) {
-            boardpick4_ik_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const double probe = ((th1 + th2) + l3) + (th4 + root2);
+        const int fine = probe - probe == 0.0;
+        {
             double u1 = th1;
             u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-            out->joints[0] = u1 * 57.295779513082323;
+            const double jv1 = u1 * 57.295779513082323;
             double u2 = th2;
             u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-            u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-            out->joints[1] = u2 * 57.295779513082323;
-            out->joints[2] = (l3 - 0.0) * 1.0;
+            const double jv2 = u2 * 57.295779513082323;
+            const double jv3 = (l3 - 0.0) * 1.0;
             double u4 = th4;
             u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
             u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-            u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-            out->joints[3] = u4 * 57.295779513082323;
-            out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            out->singular = free3 || root2 == 0.0 || free1;
-            out->conditioning[0] = root2 * 5.594405594405594e-06;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const double jv4 = u4 * 57.295779513082323;
+            const double cv0 = root2 * 5.594405594405594e-06;
+            if (fine && count < BOARDPICK4_IK_CLOSED_FORM) {
+                boardpick4_ik_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                out->singular = free3 || root2 == 0.0 || free1;
+                out->conditioning[0] = cv0;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             }
         }
 

@@ -373,10 +373,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
         u2 = th2
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = (l3 - 0.0) * 1.0
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
 

@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const boardpick4_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < BOARDPICK4_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < BOARDPICK4_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void boardpick4_ik_f32_forward(const float joints[BOARDPICK4_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -342,29 +330,35 @@ static int closed_form(const float pose[16], const float *current,
         }
 
         const float lm0 = 89375.0f*s2;
-        if (count < BOARDPICK4_IK_F32_CLOSED_FORM) {
-            boardpick4_ik_f32_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const float probe = ((th1 + th2) + l3) + (th4 + root2);
+        const int fine = probe - probe == 0.0f;
+        {
             float u1 = th1;
             u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-            out->joints[0] = u1 * 57.2957795f;
+            const float jv1 = u1 * 57.2957795f;
             float u2 = th2;
             u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-            out->joints[1] = u2 * 57.2957795f;
-            out->joints[2] = (l3 - 0.0f) * 1.0f;
+            const float jv2 = u2 * 57.2957795f;
+            const float jv3 = (l3 - 0.0f) * 1.0f;
             float u4 = th4;
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-            u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-            out->joints[3] = u4 * 57.2957795f;
-            out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            out->singular = free3 || root2 == 0.0f || free1;
-            out->conditioning[0] = root2 * 5.59440559e-06f;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const float jv4 = u4 * 57.2957795f;
+            const float cv0 = root2 * 5.59440559e-06f;
+            if (fine && count < BOARDPICK4_IK_F32_CLOSED_FORM) {
+                boardpick4_ik_f32_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                out->singular = free3 || root2 == 0.0f || free1;
+                out->conditioning[0] = cv0;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             }
         }
 

@@ -240,18 +240,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const canted6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < CANTED6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < CANTED6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void canted6_ik_forward(const double joints[CANTED6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -626,10 +614,9 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        const double sg5 = 1.0;
         double th5, c5, s5;
         const double cn5 = g36_33;
-        const double sn5 = root5*sg5;
+        const double sn5 = root5;
         th5 = atan2(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
@@ -674,12 +661,10 @@ static int closed_form(const double pose[16], const double *current,
         /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
         const double g46_11 = c4*g36_11 + g26_31*s4;
         const double g46_12 = c4*g36_12 + g26_32*s4;
-        const double g46_21 = -g36_31;
-        const double g46_22 = -g36_32;
 
         /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-        const double g56_11 = c5*g46_11 + g46_21*s5;
-        const double g56_12 = c5*g46_12 + g46_22*s5;
+        const double g56_11 = c5*g46_11 - g36_31*s5;
+        const double g56_12 = c5*g46_12 - g36_32*s5;
 
         /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
@@ -703,67 +688,85 @@ static int closed_form(const double pose[16], const double *current,
         const double lm0 = v1x + 50.0;
         const double lm1 = 72746.133917892847*c3 - 5196.152422706632*s3;
         const double lm2 = s5;
-        if (count < CANTED6_IK_CLOSED_FORM) {
-            canted6_ik_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
+        const int fine = probe - probe == 0.0;
+        {
             double u1 = th1;
             u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-            out->joints[0] = u1 * 57.295779513082323;
+            const double jv1 = u1 * 57.295779513082323;
             double u2 = th2;
             u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-            out->joints[1] = u2 * 57.295779513082323;
+            const double jv2 = u2 * 57.295779513082323;
             double u3 = th3;
             u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-            out->joints[2] = u3 * 57.295779513082323;
+            const double jv3 = u3 * 57.295779513082323;
             double u4 = th4;
             u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-            out->joints[3] = u4 * 57.295779513082323;
-            out->joints[4] = th5 * 57.295779513082323;
-            out->joints[5] = th6 * 57.295779513082323;
-            out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0 || free4;
-            out->conditioning[0] = cnd3;
-            out->conditioning[1] = root5 * 1.0;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const double jv4 = u4 * 57.295779513082323;
+            const double jv5 = th5 * 57.295779513082323;
+            const double jv6 = th6 * 57.295779513082323;
+            const double cv0 = cnd3;
+            const double cv1 = root5 * 1.0;
+            if (fine && count < CANTED6_IK_CLOSED_FORM) {
+                canted6_ik_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->joints[4] = jv5;
+                out->joints[5] = jv6;
+                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0 || free4;
+                out->conditioning[0] = cv0;
+                out->conditioning[1] = cv1;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
             }
         }
         if (root5 > 0.0 && !free4) {
-            if (count < CANTED6_IK_CLOSED_FORM) {
-                canted6_ik_solution *out = &solutions[count++];
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
+                const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
+                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4 + 3.1415926535897931;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
+                const double jv4 = u4 * 57.295779513082323;
                 double u5 = -th5;
                 u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                out->joints[4] = u5 * 57.295779513082323;
+                const double jv5 = u5 * 57.295779513082323;
                 double u6 = th6 + 3.1415926535897931;
                 u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                out->joints[5] = u6 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0 || free4;
-                out->conditioning[0] = cnd3;
-                out->conditioning[1] = root5 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv6 = u6 * 57.295779513082323;
+                const double cv0 = cnd3;
+                const double cv1 = root5 * 1.0;
+                if (fine && count < CANTED6_IK_CLOSED_FORM) {
+                    canted6_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                    out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
         }

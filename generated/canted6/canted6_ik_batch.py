@@ -445,9 +445,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = g36_33
-        sn5 = root5*sg5
+        sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
         s5 = sn5
@@ -483,12 +482,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g26_31*s4
         g46_12 = c4*g36_12 + g26_32*s4
-        g46_21 = -g36_31
-        g46_22 = -g36_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 + g46_21*s5
-        g56_12 = c5*g46_12 + g46_22*s5
+        g56_11 = c5*g46_11 - g36_31*s5
+        g56_12 = c5*g46_12 - g36_32*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)

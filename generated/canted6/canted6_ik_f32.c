@@ -240,18 +240,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const canted6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < CANTED6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < CANTED6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void canted6_ik_f32_forward(const float joints[CANTED6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -626,10 +614,9 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        const float sg5 = 1.0f;
         float th5, c5, s5;
         const float cn5 = g36_33;
-        const float sn5 = root5*sg5;
+        const float sn5 = root5;
         th5 = atan2f(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
@@ -674,12 +661,10 @@ static int closed_form(const float pose[16], const float *current,
         /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
         const float g46_11 = c4*g36_11 + g26_31*s4;
         const float g46_12 = c4*g36_12 + g26_32*s4;
-        const float g46_21 = -g36_31;
-        const float g46_22 = -g36_32;
 
         /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-        const float g56_11 = c5*g46_11 + g46_21*s5;
-        const float g56_12 = c5*g46_12 + g46_22*s5;
+        const float g56_11 = c5*g46_11 - g36_31*s5;
+        const float g56_12 = c5*g46_12 - g36_32*s5;
 
         /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
@@ -703,67 +688,85 @@ static int closed_form(const float pose[16], const float *current,
         const float lm0 = v1x + 50.0f;
         const float lm1 = 72746.1339f*c3 - 5196.15242f*s3;
         const float lm2 = s5;
-        if (count < CANTED6_IK_F32_CLOSED_FORM) {
-            canted6_ik_f32_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
+        const int fine = probe - probe == 0.0f;
+        {
             float u1 = th1;
             u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-            out->joints[0] = u1 * 57.2957795f;
+            const float jv1 = u1 * 57.2957795f;
             float u2 = th2;
             u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-            out->joints[1] = u2 * 57.2957795f;
+            const float jv2 = u2 * 57.2957795f;
             float u3 = th3;
             u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-            out->joints[2] = u3 * 57.2957795f;
+            const float jv3 = u3 * 57.2957795f;
             float u4 = th4;
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-            out->joints[3] = u4 * 57.2957795f;
-            out->joints[4] = th5 * 57.2957795f;
-            out->joints[5] = th6 * 57.2957795f;
-            out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
-            out->conditioning[0] = cnd3;
-            out->conditioning[1] = root5 * 1.0f;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const float jv4 = u4 * 57.2957795f;
+            const float jv5 = th5 * 57.2957795f;
+            const float jv6 = th6 * 57.2957795f;
+            const float cv0 = cnd3;
+            const float cv1 = root5 * 1.0f;
+            if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {
+                canted6_ik_f32_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->joints[4] = jv5;
+                out->joints[5] = jv6;
+                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
+                out->conditioning[0] = cv0;
+                out->conditioning[1] = cv1;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
             }
         }
         if (root5 > 0.0f && !free4) {
-            if (count < CANTED6_IK_F32_CLOSED_FORM) {
-                canted6_ik_f32_solution *out = &solutions[count++];
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
+                const float jv2 = u2 * 57.2957795f;
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
+                const float jv3 = u3 * 57.2957795f;
                 float u4 = th4 + 3.14159265f;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
+                const float jv4 = u4 * 57.2957795f;
                 float u5 = -th5;
                 u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * 57.2957795f;
+                const float jv5 = u5 * 57.2957795f;
                 float u6 = th6 + 3.14159265f;
                 u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                out->joints[5] = u6 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
-                out->conditioning[0] = cnd3;
-                out->conditioning[1] = root5 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv6 = u6 * 57.2957795f;
+                const float cv0 = cnd3;
+                const float cv1 = root5 * 1.0f;
+                if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {
+                    canted6_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
+                    out->singular = free3 || dbl3 || free1 || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
         }

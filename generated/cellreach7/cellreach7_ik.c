@@ -40,18 +40,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const cellreach7_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < CELLREACH7_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < CELLREACH7_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void cellreach7_ik_forward(const double joints[CELLREACH7_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -170,9 +158,6 @@ static int closed_form(const double pose[16], double given, const double *curren
     const double s3 = sin(th3);
 
     /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-    const double g17_21 = -r31;
-    const double g17_22 = -r32;
-    const double g17_23 = -r33;
     const double g17_24 = 322.0 - pcz;
     const double v1y = 322.0 - wz;
 
@@ -201,7 +186,6 @@ static int closed_form(const double pose[16], double given, const double *curren
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t6_0 = wx*wx + wy*wy;
-        const double eb1 = -wx;
         const double ec1 = 372.0*s3*s4;
         const double er1 = -138384.0*s3*s3*s4*s4 + t6_0;
 
@@ -219,8 +203,8 @@ static int closed_form(const double pose[16], double given, const double *curren
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
-                const double cn1 = -eb1*root1*sg1 + ec1*wy;
-                const double sn1 = eb1*ec1 + root1*sg1*wy;
+                const double cn1 = ec1*wy + root1*sg1*wx;
+                const double sn1 = -ec1*wx + root1*sg1*wy;
                 th1 = atan2(sn1, cn1);
                 c1 = cn1/t6_0;
                 s1 = sn1/t6_0;
@@ -269,8 +253,8 @@ static int closed_form(const double pose[16], double given, const double *curren
                 const double t9_1_11 = 9216.0*v1y;
                 const double t9_1_12 = s4*s4;
                 const double t9_1_13 = 26569728.0*t9_1_12;
-                const double t9_1_14 = g17_23*t9_1_13;
-                const double t9_1_15 = g17_23*g17_23;
+                const double t9_1_14 = -r33*t9_1_13;
+                const double t9_1_15 = r33*r33;
                 const double t9_1_16 = 276768.0*t9_1_12;
                 const double t9_1_17 = g17_24*t9_1_16;
                 const double t9_1_18 = g17_33*g17_33;
@@ -281,17 +265,17 @@ static int closed_form(const double pose[16], double given, const double *curren
                 const double t9_1_23 = s3*s3;
                 const double t9_1_24 = 9216.0*v1x;
 
-                dt2 = 744.0*c3*g17_14*s4*v1y + 71424.0*c3*g17_23*s4*v1x + 71424.0*c4*g17_13*v1x + 71424.0*c4*g17_23*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x + 79680.0*g17_23*v1y - 744.0*g17_24*t9_1_3*v1x - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1;
+                dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1;
                 if (fabs(dt2) > 9.9999999999999998e-13) {
-                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - 192.0*g17_23*t9_1_1 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2;
-                    s2 = (26569728.0*c3*c4*g17_23*s4 + 29640960.0*c3*g17_23*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 + 192.0*g17_23*g17_24*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2;
+                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2;
+                    s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2;
                     free2 = 0;
                     wk2 = 1.0;
                 }
             }
             if (free2) {
-                const double t9_2_0 = g17_11*g17_22;
-                const double t9_2_1 = g17_12*g17_21;
+                const double t9_2_0 = -g17_11*r32;
+                const double t9_2_1 = -g17_12*r31;
                 const double t9_2_2 = 308760.0*c4;
                 const double t9_2_3 = 138384.0*s4*s4;
                 const double t9_2_4 = s3*s3*t9_2_3;
@@ -308,9 +292,9 @@ static int closed_form(const double pose[16], double given, const double *curren
                 const double t9_2_15 = 372.0*s4;
                 const double t9_2_16 = c3*t9_2_15;
                 const double t9_2_17 = g17_14*t9_2_16;
-                const double t9_2_18 = g17_21*g17_32;
+                const double t9_2_18 = -g17_32*r31;
                 const double t9_2_19 = g17_34*t9_2_16;
-                const double t9_2_20 = g17_22*g17_31;
+                const double t9_2_20 = -g17_31*r32;
                 const double t9_2_21 = c3*t9_2_20;
                 const double t9_2_22 = 138384.0*c4*t9_2_13;
                 const double t9_2_23 = s3*t9_2_3;
@@ -322,7 +306,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2;
-                    s2 = (g17_22*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
+                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -352,31 +336,28 @@ static int closed_form(const double pose[16], double given, const double *curren
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g27_11 = c2*g17_11 + g17_21*s2;
-            const double g27_12 = c2*g17_12 + g17_22*s2;
-            const double g27_13 = c2*g17_13 + g17_23*s2;
-            const double g27_31 = -c2*g17_21 + g17_11*s2;
-            const double g27_32 = -c2*g17_22 + g17_12*s2;
-            const double g27_33 = -c2*g17_23 + g17_13*s2;
+            const double g27_11 = c2*g17_11 - r31*s2;
+            const double g27_12 = c2*g17_12 - r32*s2;
+            const double g27_13 = c2*g17_13 - r33*s2;
+            const double g27_31 = c2*r31 + g17_11*s2;
+            const double g27_32 = c2*r32 + g17_12*s2;
+            const double g27_33 = c2*r33 + g17_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g37_11 = c3*g27_11 + g17_31*s3;
             const double g37_12 = c3*g27_12 + g17_32*s3;
             const double g37_13 = c3*g27_13 + g17_33*s3;
-            const double g37_21 = -g27_31;
-            const double g37_22 = -g27_32;
-            const double g37_23 = -g27_33;
             const double g37_31 = c3*g17_31 - g27_11*s3;
             const double g37_32 = c3*g17_32 - g27_12*s3;
             const double g37_33 = c3*g17_33 - g27_13*s3;
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g47_11 = c4*g37_11 + g37_21*s4;
-            const double g47_12 = c4*g37_12 + g37_22*s4;
-            const double g47_13 = c4*g37_13 + g37_23*s4;
-            const double g47_31 = -c4*g37_21 + g37_11*s4;
-            const double g47_32 = -c4*g37_22 + g37_12*s4;
-            const double g47_33 = -c4*g37_23 + g37_13*s4;
+            const double g47_11 = c4*g37_11 - g27_31*s4;
+            const double g47_12 = c4*g37_12 - g27_32*s4;
+            const double g47_13 = c4*g37_13 - g27_33*s4;
+            const double g47_31 = c4*g27_31 + g37_11*s4;
+            const double g47_32 = c4*g27_32 + g37_12*s4;
+            const double g47_33 = c4*g27_33 + g37_13*s4;
 
             /* th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -387,10 +368,9 @@ static int closed_form(const double pose[16], double given, const double *curren
             }
             const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const double sg6 = 1.0;
             double th6, c6, s6;
             const double cn6 = g47_33;
-            const double sn6 = root6*sg6;
+            const double sn6 = root6;
             th6 = atan2(sn6, cn6);
             c6 = cn6;
             s6 = sn6;
@@ -435,12 +415,10 @@ static int closed_form(const double pose[16], double given, const double *curren
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const double g57_11 = c5*g47_11 + g37_31*s5;
             const double g57_12 = c5*g47_12 + g37_32*s5;
-            const double g57_21 = -g47_31;
-            const double g57_22 = -g47_32;
 
             /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
-            const double g67_11 = c6*g57_11 + g57_21*s6;
-            const double g67_12 = c6*g57_12 + g57_22*s6;
+            const double g67_11 = c6*g57_11 - g47_31*s6;
+            const double g67_12 = c6*g57_12 - g47_32*s6;
 
             /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th7, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
@@ -464,73 +442,93 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double lm0 = s2;
             const double lm1 = s4;
             const double lm2 = s6;
-            if (count < CELLREACH7_IK_CLOSED_FORM) {
-                cellreach7_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
-                out->joints[2] = given;
+                const double jv2 = u2 * 57.295779513082323;
+                const double jv3 = given;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
+                const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
                 u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                out->joints[4] = u5 * 57.295779513082323;
-                out->joints[5] = th6 * 57.295779513082323;
-                out->joints[6] = th7 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
-                out->conditioning[0] = root4 * 3.2387614976033164e-06;
-                out->conditioning[1] = root1 * 0.003162277660168379;
-                out->conditioning[2] = root6 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv5 = u5 * 57.295779513082323;
+                const double jv6 = th6 * 57.295779513082323;
+                const double jv7 = th7 * 57.295779513082323;
+                const double cv0 = root4 * 3.2387614976033164e-06;
+                const double cv1 = root1 * 0.003162277660168379;
+                const double cv2 = root6 * 1.0;
+                if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
+                    cellreach7_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->joints[6] = jv7;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                 }
             }
             if (root6 > 0.0 && !free5) {
-                if (count < CELLREACH7_IK_CLOSED_FORM) {
-                    cellreach7_ik_solution *out = &solutions[count++];
+                {
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 57.295779513082323;
+                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 57.295779513082323;
-                    out->joints[2] = given;
+                    const double jv2 = u2 * 57.295779513082323;
+                    const double jv3 = given;
                     double u4 = th4;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 57.295779513082323;
+                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5 + 3.1415926535897931;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 57.295779513082323;
+                    const double jv5 = u5 * 57.295779513082323;
                     double u6 = -th6;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                    out->joints[5] = u6 * 57.295779513082323;
+                    const double jv6 = u6 * 57.295779513082323;
                     double u7 = th7 + 3.1415926535897931;
                     u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : (u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7);
-                    out->joints[6] = u7 * 57.295779513082323;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                    out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
-                    out->conditioning[0] = root4 * 3.2387614976033164e-06;
-                    out->conditioning[1] = root1 * 0.003162277660168379;
-                    out->conditioning[2] = root6 * 1.0;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv7 = u7 * 57.295779513082323;
+                    const double cv0 = root4 * 3.2387614976033164e-06;
+                    const double cv1 = root1 * 0.003162277660168379;
+                    const double cv2 = root6 * 1.0;
+                    if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
+                        cellreach7_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->joints[6] = jv7;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                        out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                     }
                 }
             }

@@ -443,9 +443,9 @@ def forward(joints):
     f33 = c6*f32 + f31*s6
     f34 = c6*f31
     return [
-        [c7*f13 + f8*s7, c7*f8 - f13*s7, f12*s6 - f14, 372*f10 + 230*f12*s6 - 230*f14 + 415*f3 + 372*f9],
-        [c7*f24 + f19*s7, c7*f19 - f24*s7, f23*s6 - f25, 415*f16 + 372*f20 + 372*f21 + 230*f23*s6 - 230*f25],
-        [c7*f33 + f29*s7, c7*f29 - f33*s7, f32*s6 - f34, 415*c2 - 372*f27*s4 + 372*f30 + 230*f32*s6 - 230*f34 + 322],
+        [c7*f13 + f8*s7, c7*f8 - f13*s7, f12*s6 - f14, 372.0*f10 + 230.0*f12*s6 - 230.0*f14 + 415.0*f3 + 372.0*f9],
+        [c7*f24 + f19*s7, c7*f19 - f24*s7, f23*s6 - f25, 415.0*f16 + 372.0*f20 + 372.0*f21 + 230.0*f23*s6 - 230.0*f25],
+        [c7*f33 + f29*s7, c7*f29 - f33*s7, f32*s6 - f34, 415.0*c2 - 372.0*f27*s4 + 372.0*f30 + 230.0*f32*s6 - 230.0*f34 + 322.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -457,14 +457,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 134*r13
-    pcy = py - 134*r23
-    pcz = pz - 134*r33
+    pcx = px - 134.0*r13
+    pcy = py - 134.0*r23
+    pcz = pz - 134.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 96*r13
-    wy = pcy - 96*r23
-    wz = pcz - 96*r33
+    wx = pcx - 96.0*r13
+    wy = pcy - 96.0*r23
+    wz = pcz - 96.0*r33
 
     # joint 3 'upper_roll' is given: its DH variable from the caller's reading
     th3 = 0.017453292519943295*given
@@ -472,25 +472,22 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
     s3 = sin(th3)
 
     # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    g17_21 = -r31
-    g17_22 = -r32
-    g17_23 = -r33
-    g17_24 = 322 - pcz
-    v1y = 322 - wz
+    g17_24 = 322.0 - pcz
+    v1y = 322.0 - wz
 
     # th4: squared norm of A1^-1 w = A2 A3 A4 c4
     # a*cos(th4) + b*sin(th4) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t5_0 = wx*wx + wy*wy + wz*wz - 644*wz
-    ec4 = t5_0 - 206925
-    er4 = (515685 - t5_0)*(t5_0 + 101835)
+    t5_0 = wx*wx + wy*wy + wz*wz - 644.0*wz
+    ec4 = t5_0 - 206925.0
+    er4 = (515685.0 - t5_0)*(t5_0 + 101835.0)
 
     if er4 + 190.6654752 < 0.0:
         return solutions
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
-        cn4 = 308760*ec4
-        sn4 = 308760*root4*sg4
+        cn4 = 308760.0*ec4
+        sn4 = 308760.0*root4*sg4
         th4 = 0.0 + sg4 * dl4
         c4 = 1.0489576038357677e-11*cn4
         s4 = 1.0489576038357677e-11*sn4
@@ -498,9 +495,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t6_0 = wx*wx + wy*wy
-        eb1 = -wx
-        ec1 = 372*s3*s4
-        er1 = -138384*s3*s3*s4*s4 + t6_0
+        ec1 = 372.0*s3*s4
+        er1 = -138384.0*s3*s3*s4*s4 + t6_0
 
         free1 = t6_0 <= 9.999999999999999e-16
         if (ec1*ec1 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t6_0 < 0.0):
@@ -512,8 +508,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
-                cn1 = -eb1*root1*sg1 + ec1*wy
-                sn1 = eb1*ec1 + root1*sg1*wy
+                cn1 = ec1*wy + root1*sg1*wx
+                sn1 = -ec1*wx + root1*sg1*wy
                 th1 = atan2(sn1, cn1)
                 c1 = cn1/t6_0
                 s1 = sn1/t6_0
@@ -533,83 +529,83 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t9_0_0 = 372*c4
+            t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (372*c3*s4*v1x - t9_0_0*v1y - 415*v1y) / dt2
-                s2 = (372*c3*s4*v1y + t9_0_0*v1x + 415*v1x) / dt2
+                c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
+                s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
             if free2:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
-                t9_1_2 = 744*c4
+                t9_1_2 = 744.0*c4
                 t9_1_3 = c3*s4
-                t9_1_4 = 308760*c4
+                t9_1_4 = 308760.0*c4
                 t9_1_5 = g17_14*g17_14
                 t9_1_6 = g17_24*g17_24
                 t9_1_7 = g17_34*g17_34
-                t9_1_8 = 308760*t9_1_3
-                t9_1_9 = 192*v1y
+                t9_1_8 = 308760.0*t9_1_3
+                t9_1_9 = 192.0*v1y
                 t9_1_10 = g17_13*g17_13
-                t9_1_11 = 9216*v1y
+                t9_1_11 = 9216.0*v1y
                 t9_1_12 = s4*s4
-                t9_1_13 = 26569728*t9_1_12
-                t9_1_14 = g17_23*t9_1_13
-                t9_1_15 = g17_23*g17_23
-                t9_1_16 = 276768*t9_1_12
+                t9_1_13 = 26569728.0*t9_1_12
+                t9_1_14 = -r33*t9_1_13
+                t9_1_15 = r33*r33
+                t9_1_16 = 276768.0*t9_1_12
                 t9_1_17 = g17_24*t9_1_16
                 t9_1_18 = g17_33*g17_33
                 t9_1_19 = c4*t9_1_3
-                t9_1_20 = 276768*t9_1_19
+                t9_1_20 = 276768.0*t9_1_19
                 t9_1_21 = s3*s4
                 t9_1_22 = t9_1_21*v1y
                 t9_1_23 = s3*s3
-                t9_1_24 = 9216*v1x
+                t9_1_24 = 9216.0*v1x
 
-                dt2 = 744*c3*g17_14*s4*v1y + 71424*c3*g17_23*s4*v1x + 71424*c4*g17_13*v1x + 71424*c4*g17_23*v1y - 71424*g17_13*t9_1_3*v1y + 79680*g17_13*v1x + 79680*g17_23*v1y - 744*g17_24*t9_1_3*v1x - t9_1_0*t9_1_2 - 830*t9_1_0 - t9_1_1*t9_1_2 - 830*t9_1_1
+                dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1
                 if abs(dt2) > 1e-12:
-                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728*g17_13*t9_1_19 + 29640960*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - 192*g17_23*t9_1_1 - g17_33*g17_34*t9_1_9 + 71424*g17_33*t9_1_22 - 744*g17_34*t9_1_22 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609*v1y) / dt2
-                    s2 = (26569728*c3*c4*g17_23*s4 + 29640960*c3*g17_23*s4 + 192*g17_13*g17_14*v1x + 26569728*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 + 192*g17_23*g17_24*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192*g17_33*g17_34*v1x - 71424*g17_33*t9_1_21*v1x + 744*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609*v1x) / dt2
+                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
+                    s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     free2 = False
                     wk2 = 1.0
 
             if free2:
-                t9_2_0 = g17_11*g17_22
-                t9_2_1 = g17_12*g17_21
-                t9_2_2 = 308760*c4
-                t9_2_3 = 138384*s4*s4
+                t9_2_0 = -g17_11*r32
+                t9_2_1 = -g17_12*r31
+                t9_2_2 = 308760.0*c4
+                t9_2_3 = 138384.0*s4*s4
                 t9_2_4 = s3*s3*t9_2_3
-                t9_2_5 = 415*g17_24
-                t9_2_6 = 415*g17_34
+                t9_2_5 = 415.0*g17_24
+                t9_2_6 = 415.0*g17_34
                 t9_2_7 = g17_11*g17_32
                 t9_2_8 = g17_31*t9_2_6
-                t9_2_9 = 372*c4
+                t9_2_9 = 372.0*c4
                 t9_2_10 = g17_24*t9_2_9
                 t9_2_11 = g17_34*t9_2_9
                 t9_2_12 = g17_12*g17_31
                 t9_2_13 = s3*s4
-                t9_2_14 = 154380*t9_2_13
-                t9_2_15 = 372*s4
+                t9_2_14 = 154380.0*t9_2_13
+                t9_2_15 = 372.0*s4
                 t9_2_16 = c3*t9_2_15
                 t9_2_17 = g17_14*t9_2_16
-                t9_2_18 = g17_21*g17_32
+                t9_2_18 = -g17_32*r31
                 t9_2_19 = g17_34*t9_2_16
-                t9_2_20 = g17_22*g17_31
+                t9_2_20 = -g17_31*r32
                 t9_2_21 = c3*t9_2_20
-                t9_2_22 = 138384*c4*t9_2_13
+                t9_2_22 = 138384.0*c4*t9_2_13
                 t9_2_23 = s3*t9_2_3
                 t9_2_24 = c3*t9_2_23
-                t9_2_25 = 415*g17_14
+                t9_2_25 = 415.0*g17_14
                 t9_2_26 = g17_14*t9_2_9
                 t9_2_27 = g17_24*t9_2_16
 
-                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609*t9_2_1
+                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
-                    s2 = (g17_22*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
+                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                     free2 = False
                     wk2 = 0.0009999999999999998
 
@@ -632,31 +628,28 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g27_11 = c2*g17_11 + g17_21*s2
-            g27_12 = c2*g17_12 + g17_22*s2
-            g27_13 = c2*g17_13 + g17_23*s2
-            g27_31 = -c2*g17_21 + g17_11*s2
-            g27_32 = -c2*g17_22 + g17_12*s2
-            g27_33 = -c2*g17_23 + g17_13*s2
+            g27_11 = c2*g17_11 - r31*s2
+            g27_12 = c2*g17_12 - r32*s2
+            g27_13 = c2*g17_13 - r33*s2
+            g27_31 = c2*r31 + g17_11*s2
+            g27_32 = c2*r32 + g17_12*s2
+            g27_33 = c2*r33 + g17_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g37_11 = c3*g27_11 + g17_31*s3
             g37_12 = c3*g27_12 + g17_32*s3
             g37_13 = c3*g27_13 + g17_33*s3
-            g37_21 = -g27_31
-            g37_22 = -g27_32
-            g37_23 = -g27_33
             g37_31 = c3*g17_31 - g27_11*s3
             g37_32 = c3*g17_32 - g27_12*s3
             g37_33 = c3*g17_33 - g27_13*s3
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g47_11 = c4*g37_11 + g37_21*s4
-            g47_12 = c4*g37_12 + g37_22*s4
-            g47_13 = c4*g37_13 + g37_23*s4
-            g47_31 = -c4*g37_21 + g37_11*s4
-            g47_32 = -c4*g37_22 + g37_12*s4
-            g47_33 = -c4*g37_23 + g37_13*s4
+            g47_11 = c4*g37_11 - g27_31*s4
+            g47_12 = c4*g37_12 - g27_32*s4
+            g47_13 = c4*g37_13 - g27_33*s4
+            g47_31 = c4*g27_31 + g37_11*s4
+            g47_32 = c4*g27_32 + g37_12*s4
+            g47_33 = c4*g27_33 + g37_13*s4
 
             # th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
             # a*cos(th6) + b*sin(th6) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -666,12 +659,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 continue
             root6 = sqrt(er6) if er6 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg6 = 1.0
-            cn6 = g47_33
-            sn6 = root6*sg6
-            th6 = atan2(sn6, cn6)
-            c6 = cn6
-            s6 = sn6
+            c6 = g47_33
+            s6 = root6
+            th6 = atan2(s6, c6)
 
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free5 = True
@@ -704,21 +694,15 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g57_11 = c5*g47_11 + g37_31*s5
             g57_12 = c5*g47_12 + g37_32*s5
-            g57_21 = -g47_31
-            g57_22 = -g47_32
 
             # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-            g67_11 = c6*g57_11 + g57_21*s6
-            g67_12 = c6*g57_12 + g57_22*s6
+            g67_11 = c6*g57_11 - g47_31*s6
+            g67_12 = c6*g57_12 - g47_32*s6
 
             # th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free7 = True
 
-            dt7 = 1
             c7 = g67_11
             s7 = -g67_12
-            free7 = False
-
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue
@@ -731,15 +715,10 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             lm2 = s6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-            u5 = th5
-            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
             u6 = th6
             u7 = th7
             q = (
@@ -801,14 +780,14 @@ def inverse_joints(pose, given, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 134*r13
-    pcy = py - 134*r23
-    pcz = pz - 134*r33
+    pcx = px - 134.0*r13
+    pcy = py - 134.0*r23
+    pcz = pz - 134.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 96*r13
-    wy = pcy - 96*r23
-    wz = pcz - 96*r33
+    wx = pcx - 96.0*r13
+    wy = pcy - 96.0*r23
+    wz = pcz - 96.0*r33
 
     # joint 3 'upper_roll' is given: its DH variable from the caller's reading
     th3 = 0.017453292519943295*given
@@ -816,25 +795,22 @@ def inverse_joints(pose, given, current=None):
     s3 = sin(th3)
 
     # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    g17_21 = -r31
-    g17_22 = -r32
-    g17_23 = -r33
-    g17_24 = 322 - pcz
-    v1y = 322 - wz
+    g17_24 = 322.0 - pcz
+    v1y = 322.0 - wz
 
     # th4: squared norm of A1^-1 w = A2 A3 A4 c4
     # a*cos(th4) + b*sin(th4) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t5_0 = wx*wx + wy*wy + wz*wz - 644*wz
-    ec4 = t5_0 - 206925
-    er4 = (515685 - t5_0)*(t5_0 + 101835)
+    t5_0 = wx*wx + wy*wy + wz*wz - 644.0*wz
+    ec4 = t5_0 - 206925.0
+    er4 = (515685.0 - t5_0)*(t5_0 + 101835.0)
 
     if er4 + 190.6654752 < 0.0:
         return solutions
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
-        cn4 = 308760*ec4
-        sn4 = 308760*root4*sg4
+        cn4 = 308760.0*ec4
+        sn4 = 308760.0*root4*sg4
         th4 = 0.0 + sg4 * dl4
         c4 = 1.0489576038357677e-11*cn4
         s4 = 1.0489576038357677e-11*sn4
@@ -842,9 +818,8 @@ def inverse_joints(pose, given, current=None):
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t6_0 = wx*wx + wy*wy
-        eb1 = -wx
-        ec1 = 372*s3*s4
-        er1 = -138384*s3*s3*s4*s4 + t6_0
+        ec1 = 372.0*s3*s4
+        er1 = -138384.0*s3*s3*s4*s4 + t6_0
 
         free1 = t6_0 <= 9.999999999999999e-16
         if (ec1*ec1 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t6_0 < 0.0):
@@ -856,8 +831,8 @@ def inverse_joints(pose, given, current=None):
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
-                cn1 = -eb1*root1*sg1 + ec1*wy
-                sn1 = eb1*ec1 + root1*sg1*wy
+                cn1 = ec1*wy + root1*sg1*wx
+                sn1 = -ec1*wx + root1*sg1*wy
                 th1 = atan2(sn1, cn1)
                 c1 = cn1/t6_0
                 s1 = sn1/t6_0
@@ -877,83 +852,83 @@ def inverse_joints(pose, given, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t9_0_0 = 372*c4
+            t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (372*c3*s4*v1x - t9_0_0*v1y - 415*v1y) / dt2
-                s2 = (372*c3*s4*v1y + t9_0_0*v1x + 415*v1x) / dt2
+                c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
+                s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
             if free2:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
-                t9_1_2 = 744*c4
+                t9_1_2 = 744.0*c4
                 t9_1_3 = c3*s4
-                t9_1_4 = 308760*c4
+                t9_1_4 = 308760.0*c4
                 t9_1_5 = g17_14*g17_14
                 t9_1_6 = g17_24*g17_24
                 t9_1_7 = g17_34*g17_34
-                t9_1_8 = 308760*t9_1_3
-                t9_1_9 = 192*v1y
+                t9_1_8 = 308760.0*t9_1_3
+                t9_1_9 = 192.0*v1y
                 t9_1_10 = g17_13*g17_13
-                t9_1_11 = 9216*v1y
+                t9_1_11 = 9216.0*v1y
                 t9_1_12 = s4*s4
-                t9_1_13 = 26569728*t9_1_12
-                t9_1_14 = g17_23*t9_1_13
-                t9_1_15 = g17_23*g17_23
-                t9_1_16 = 276768*t9_1_12
+                t9_1_13 = 26569728.0*t9_1_12
+                t9_1_14 = -r33*t9_1_13
+                t9_1_15 = r33*r33
+                t9_1_16 = 276768.0*t9_1_12
                 t9_1_17 = g17_24*t9_1_16
                 t9_1_18 = g17_33*g17_33
                 t9_1_19 = c4*t9_1_3
-                t9_1_20 = 276768*t9_1_19
+                t9_1_20 = 276768.0*t9_1_19
                 t9_1_21 = s3*s4
                 t9_1_22 = t9_1_21*v1y
                 t9_1_23 = s3*s3
-                t9_1_24 = 9216*v1x
+                t9_1_24 = 9216.0*v1x
 
-                dt2 = 744*c3*g17_14*s4*v1y + 71424*c3*g17_23*s4*v1x + 71424*c4*g17_13*v1x + 71424*c4*g17_23*v1y - 71424*g17_13*t9_1_3*v1y + 79680*g17_13*v1x + 79680*g17_23*v1y - 744*g17_24*t9_1_3*v1x - t9_1_0*t9_1_2 - 830*t9_1_0 - t9_1_1*t9_1_2 - 830*t9_1_1
+                dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1
                 if abs(dt2) > 1e-12:
-                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728*g17_13*t9_1_19 + 29640960*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - 192*g17_23*t9_1_1 - g17_33*g17_34*t9_1_9 + 71424*g17_33*t9_1_22 - 744*g17_34*t9_1_22 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609*v1y) / dt2
-                    s2 = (26569728*c3*c4*g17_23*s4 + 29640960*c3*g17_23*s4 + 192*g17_13*g17_14*v1x + 26569728*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 + 192*g17_23*g17_24*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192*g17_33*g17_34*v1x - 71424*g17_33*t9_1_21*v1x + 744*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609*v1x) / dt2
+                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
+                    s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     free2 = False
                     wk2 = 1.0
 
             if free2:
-                t9_2_0 = g17_11*g17_22
-                t9_2_1 = g17_12*g17_21
-                t9_2_2 = 308760*c4
-                t9_2_3 = 138384*s4*s4
+                t9_2_0 = -g17_11*r32
+                t9_2_1 = -g17_12*r31
+                t9_2_2 = 308760.0*c4
+                t9_2_3 = 138384.0*s4*s4
                 t9_2_4 = s3*s3*t9_2_3
-                t9_2_5 = 415*g17_24
-                t9_2_6 = 415*g17_34
+                t9_2_5 = 415.0*g17_24
+                t9_2_6 = 415.0*g17_34
                 t9_2_7 = g17_11*g17_32
                 t9_2_8 = g17_31*t9_2_6
-                t9_2_9 = 372*c4
+                t9_2_9 = 372.0*c4
                 t9_2_10 = g17_24*t9_2_9
                 t9_2_11 = g17_34*t9_2_9
                 t9_2_12 = g17_12*g17_31
                 t9_2_13 = s3*s4
-                t9_2_14 = 154380*t9_2_13
-                t9_2_15 = 372*s4
+                t9_2_14 = 154380.0*t9_2_13
+                t9_2_15 = 372.0*s4
                 t9_2_16 = c3*t9_2_15
                 t9_2_17 = g17_14*t9_2_16
-                t9_2_18 = g17_21*g17_32
+                t9_2_18 = -g17_32*r31
                 t9_2_19 = g17_34*t9_2_16
-                t9_2_20 = g17_22*g17_31
+                t9_2_20 = -g17_31*r32
                 t9_2_21 = c3*t9_2_20
-                t9_2_22 = 138384*c4*t9_2_13
+                t9_2_22 = 138384.0*c4*t9_2_13
                 t9_2_23 = s3*t9_2_3
                 t9_2_24 = c3*t9_2_23
-                t9_2_25 = 415*g17_14
+                t9_2_25 = 415.0*g17_14
                 t9_2_26 = g17_14*t9_2_9
                 t9_2_27 = g17_24*t9_2_16
 
-                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609*t9_2_1
+                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
-                    s2 = (g17_22*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
+                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                     free2 = False
                     wk2 = 0.0009999999999999998
 
@@ -976,31 +951,28 @@ def inverse_joints(pose, given, current=None):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g27_11 = c2*g17_11 + g17_21*s2
-            g27_12 = c2*g17_12 + g17_22*s2
-            g27_13 = c2*g17_13 + g17_23*s2
-            g27_31 = -c2*g17_21 + g17_11*s2
-            g27_32 = -c2*g17_22 + g17_12*s2
-            g27_33 = -c2*g17_23 + g17_13*s2
+            g27_11 = c2*g17_11 - r31*s2
+            g27_12 = c2*g17_12 - r32*s2
+            g27_13 = c2*g17_13 - r33*s2
+            g27_31 = c2*r31 + g17_11*s2
+            g27_32 = c2*r32 + g17_12*s2
+            g27_33 = c2*r33 + g17_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g37_11 = c3*g27_11 + g17_31*s3
             g37_12 = c3*g27_12 + g17_32*s3
             g37_13 = c3*g27_13 + g17_33*s3
-            g37_21 = -g27_31
-            g37_22 = -g27_32
-            g37_23 = -g27_33
             g37_31 = c3*g17_31 - g27_11*s3
             g37_32 = c3*g17_32 - g27_12*s3
             g37_33 = c3*g17_33 - g27_13*s3
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g47_11 = c4*g37_11 + g37_21*s4
-            g47_12 = c4*g37_12 + g37_22*s4
-            g47_13 = c4*g37_13 + g37_23*s4
-            g47_31 = -c4*g37_21 + g37_11*s4
-            g47_32 = -c4*g37_22 + g37_12*s4
-            g47_33 = -c4*g37_23 + g37_13*s4
+            g47_11 = c4*g37_11 - g27_31*s4
+            g47_12 = c4*g37_12 - g27_32*s4
+            g47_13 = c4*g37_13 - g27_33*s4
+            g47_31 = c4*g27_31 + g37_11*s4
+            g47_32 = c4*g27_32 + g37_12*s4
+            g47_33 = c4*g27_33 + g37_13*s4
 
             # th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
             # a*cos(th6) + b*sin(th6) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -1010,12 +982,9 @@ def inverse_joints(pose, given, current=None):
                 continue
             root6 = sqrt(er6) if er6 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg6 = 1.0
-            cn6 = g47_33
-            sn6 = root6*sg6
-            th6 = atan2(sn6, cn6)
-            c6 = cn6
-            s6 = sn6
+            c6 = g47_33
+            s6 = root6
+            th6 = atan2(s6, c6)
 
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free5 = True
@@ -1048,36 +1017,25 @@ def inverse_joints(pose, given, current=None):
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g57_11 = c5*g47_11 + g37_31*s5
             g57_12 = c5*g47_12 + g37_32*s5
-            g57_21 = -g47_31
-            g57_22 = -g47_32
 
             # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-            g67_11 = c6*g57_11 + g57_21*s6
-            g67_12 = c6*g57_12 + g57_22*s6
+            g67_11 = c6*g57_11 - g47_31*s6
+            g67_12 = c6*g57_12 - g47_32*s6
 
             # th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free7 = True
 
-            dt7 = 1
             c7 = g67_11
             s7 = -g67_12
-            free7 = False
-
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue
             th7 = atan2(s7, c7)
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-            u5 = th5
-            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
             u6 = th6
             u7 = th7
             q = (

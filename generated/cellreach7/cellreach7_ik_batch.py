@@ -136,9 +136,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         s3 = numpy.sin(th3)
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g17_21 = -r31
-        g17_22 = -r32
-        g17_23 = -r33
         g17_24 = 322 - pcz
         v1y = 322 - wz
 
@@ -160,7 +157,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         t6_0 = wx*wx + wy*wy
-        eb1 = -wx
         ec1 = 372*s3*s4
         er1 = -138384*s3*s3*s4*s4 + t6_0
 
@@ -169,8 +165,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1 + ec1*wy
-        sn1 = eb1*ec1 + root1*sg1*wy
+        cn1 = ec1*wy + root1*sg1*wx
+        sn1 = -ec1*wx + root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t6_0
         s1 = sn1/t6_0
@@ -219,8 +215,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             t9_1_11 = 9216*v1y
             t9_1_12 = s4*s4
             t9_1_13 = 26569728*t9_1_12
-            t9_1_14 = g17_23*t9_1_13
-            t9_1_15 = g17_23*g17_23
+            t9_1_14 = -r33*t9_1_13
+            t9_1_15 = r33*r33
             t9_1_16 = 276768*t9_1_12
             t9_1_17 = g17_24*t9_1_16
             t9_1_18 = g17_33*g17_33
@@ -231,16 +227,16 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             t9_1_23 = s3*s3
             t9_1_24 = 9216*v1x
 
-            dt2 = 744*c3*g17_14*s4*v1y + 71424*c3*g17_23*s4*v1x + 71424*c4*g17_13*v1x + 71424*c4*g17_23*v1y - 71424*g17_13*t9_1_3*v1y + 79680*g17_13*v1x + 79680*g17_23*v1y - 744*g17_24*t9_1_3*v1x - t9_1_0*t9_1_2 - 830*t9_1_0 - t9_1_1*t9_1_2 - 830*t9_1_1
+            dt2 = 744*c3*g17_14*s4*v1y - 71424*c3*r33*s4*v1x + 71424*c4*g17_13*v1x - 71424*c4*r33*v1y - 71424*g17_13*t9_1_3*v1y + 79680*g17_13*v1x - 744*g17_24*t9_1_3*v1x - 79680*r33*v1y - t9_1_0*t9_1_2 - 830*t9_1_0 - t9_1_1*t9_1_2 - 830*t9_1_1
             use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
-            c2 = numpy.where(use, (-g17_13*g17_14*t9_1_9 + 26569728*g17_13*t9_1_19 + 29640960*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - 192*g17_23*t9_1_1 - g17_33*g17_34*t9_1_9 + 71424*g17_33*t9_1_22 - 744*g17_34*t9_1_22 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609*v1y) / dt2, c2)
-            s2 = numpy.where(use, (26569728*c3*c4*g17_23*s4 + 29640960*c3*g17_23*s4 + 192*g17_13*g17_14*v1x + 26569728*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 + 192*g17_23*g17_24*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192*g17_33*g17_34*v1x - 71424*g17_33*t9_1_21*v1x + 744*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609*v1x) / dt2, s2)
+            c2 = numpy.where(use, (-g17_13*g17_14*t9_1_9 + 26569728*g17_13*t9_1_19 + 29640960*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424*g17_33*t9_1_22 - 744*g17_34*t9_1_22 + 192*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609*v1y) / dt2, c2)
+            s2 = numpy.where(use, (-26569728*c3*c4*r33*s4 - 29640960*c3*r33*s4 + 192*g17_13*g17_14*v1x + 26569728*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192*g17_33*g17_34*v1x - 71424*g17_33*t9_1_21*v1x + 744*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609*v1x) / dt2, s2)
             wk2 = numpy.where(use, 1.0, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
         if not chosen2.all():
-            t9_2_0 = g17_11*g17_22
-            t9_2_1 = g17_12*g17_21
+            t9_2_0 = -g17_11*r32
+            t9_2_1 = -g17_12*r31
             t9_2_2 = 308760*c4
             t9_2_3 = 138384*s4*s4
             t9_2_4 = s3*s3*t9_2_3
@@ -257,9 +253,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             t9_2_15 = 372*s4
             t9_2_16 = c3*t9_2_15
             t9_2_17 = g17_14*t9_2_16
-            t9_2_18 = g17_21*g17_32
+            t9_2_18 = -g17_32*r31
             t9_2_19 = g17_34*t9_2_16
-            t9_2_20 = g17_22*g17_31
+            t9_2_20 = -g17_31*r32
             t9_2_21 = c3*t9_2_20
             t9_2_22 = 138384*c4*t9_2_13
             t9_2_23 = s3*t9_2_3
@@ -271,7 +267,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609*t9_2_1
             use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
             c2 = numpy.where(use, (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2, c2)
-            s2 = numpy.where(use, (g17_22*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2, s2)
+            s2 = numpy.where(use, (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2, s2)
             wk2 = numpy.where(use, 0.0009999999999999998, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
@@ -293,40 +289,36 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        g27_11 = c2*g17_11 + g17_21*s2
-        g27_12 = c2*g17_12 + g17_22*s2
-        g27_13 = c2*g17_13 + g17_23*s2
-        g27_31 = -c2*g17_21 + g17_11*s2
-        g27_32 = -c2*g17_22 + g17_12*s2
-        g27_33 = -c2*g17_23 + g17_13*s2
+        g27_11 = c2*g17_11 - r31*s2
+        g27_12 = c2*g17_12 - r32*s2
+        g27_13 = c2*g17_13 - r33*s2
+        g27_31 = c2*r31 + g17_11*s2
+        g27_32 = c2*r32 + g17_12*s2
+        g27_33 = c2*r33 + g17_13*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g37_11 = c3*g27_11 + g17_31*s3
         g37_12 = c3*g27_12 + g17_32*s3
         g37_13 = c3*g27_13 + g17_33*s3
-        g37_21 = -g27_31
-        g37_22 = -g27_32
-        g37_23 = -g27_33
         g37_31 = c3*g17_31 - g27_11*s3
         g37_32 = c3*g17_32 - g27_12*s3
         g37_33 = c3*g17_33 - g27_13*s3
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g47_11 = c4*g37_11 + g37_21*s4
-        g47_12 = c4*g37_12 + g37_22*s4
-        g47_13 = c4*g37_13 + g37_23*s4
-        g47_31 = -c4*g37_21 + g37_11*s4
-        g47_32 = -c4*g37_22 + g37_12*s4
-        g47_33 = -c4*g37_23 + g37_13*s4
+        g47_11 = c4*g37_11 - g27_31*s4
+        g47_12 = c4*g37_12 - g27_32*s4
+        g47_13 = c4*g37_13 - g27_33*s4
+        g47_31 = c4*g27_31 + g37_11*s4
+        g47_32 = c4*g27_32 + g37_12*s4
+        g47_33 = c4*g27_33 + g37_13*s4
 
         # th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
         er6 = g37_33*g37_33 + g47_13*g47_13
 
         valid = valid & ~(er6 + 2e-09 < 0.0)
         root6 = numpy.sqrt(numpy.maximum(er6, 0.0))
-        sg6 = 1.0
         cn6 = g47_33
-        sn6 = root6*sg6
+        sn6 = root6
         th6 = numpy.arctan2(sn6, cn6)
         c6 = cn6
         s6 = sn6
@@ -362,12 +354,10 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g57_11 = c5*g47_11 + g37_31*s5
         g57_12 = c5*g47_12 + g37_32*s5
-        g57_21 = -g47_31
-        g57_22 = -g47_32
 
         # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-        g67_11 = c6*g57_11 + g57_21*s6
-        g67_12 = c6*g57_12 + g57_22*s6
+        g67_11 = c6*g57_11 - g47_31*s6
+        g67_12 = c6*g57_12 - g47_32*s6
 
         # th7 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen7 = numpy.zeros((), dtype=bool)
@@ -393,7 +383,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = given
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
         u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
@@ -424,7 +413,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         u2 = th2
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5 + _PI
         u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)

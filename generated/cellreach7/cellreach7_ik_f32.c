@@ -40,18 +40,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const cellreach7_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < CELLREACH7_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < CELLREACH7_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void cellreach7_ik_f32_forward(const float joints[CELLREACH7_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -170,9 +158,6 @@ static int closed_form(const float pose[16], float given, const float *current,
     const float s3 = sinf(th3);
 
     /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-    const float g17_21 = -r31;
-    const float g17_22 = -r32;
-    const float g17_23 = -r33;
     const float g17_24 = 322.0f - pcz;
     const float v1y = 322.0f - wz;
 
@@ -201,7 +186,6 @@ static int closed_form(const float pose[16], float given, const float *current,
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t6_0 = wx*wx + wy*wy;
-        const float eb1 = -wx;
         const float ec1 = 372.0f*s3*s4;
         const float er1 = -138384.0f*s3*s3*s4*s4 + t6_0;
 
@@ -219,8 +203,8 @@ static int closed_form(const float pose[16], float given, const float *current,
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
-                const float cn1 = -eb1*root1*sg1 + ec1*wy;
-                const float sn1 = eb1*ec1 + root1*sg1*wy;
+                const float cn1 = ec1*wy + root1*sg1*wx;
+                const float sn1 = -ec1*wx + root1*sg1*wy;
                 th1 = atan2f(sn1, cn1);
                 c1 = cn1/t6_0;
                 s1 = sn1/t6_0;
@@ -269,8 +253,8 @@ static int closed_form(const float pose[16], float given, const float *current,
                 const float t9_1_11 = 9216.0f*v1y;
                 const float t9_1_12 = s4*s4;
                 const float t9_1_13 = 26569728.0f*t9_1_12;
-                const float t9_1_14 = g17_23*t9_1_13;
-                const float t9_1_15 = g17_23*g17_23;
+                const float t9_1_14 = -r33*t9_1_13;
+                const float t9_1_15 = r33*r33;
                 const float t9_1_16 = 276768.0f*t9_1_12;
                 const float t9_1_17 = g17_24*t9_1_16;
                 const float t9_1_18 = g17_33*g17_33;
@@ -281,17 +265,17 @@ static int closed_form(const float pose[16], float given, const float *current,
                 const float t9_1_23 = s3*s3;
                 const float t9_1_24 = 9216.0f*v1x;
 
-                dt2 = 744.0f*c3*g17_14*s4*v1y + 71424.0f*c3*g17_23*s4*v1x + 71424.0f*c4*g17_13*v1x + 71424.0f*c4*g17_23*v1y - 71424.0f*g17_13*t9_1_3*v1y + 79680.0f*g17_13*v1x + 79680.0f*g17_23*v1y - 744.0f*g17_24*t9_1_3*v1x - t9_1_0*t9_1_2 - 830.0f*t9_1_0 - t9_1_1*t9_1_2 - 830.0f*t9_1_1;
+                dt2 = 744.0f*c3*g17_14*s4*v1y - 71424.0f*c3*r33*s4*v1x + 71424.0f*c4*g17_13*v1x - 71424.0f*c4*r33*v1y - 71424.0f*g17_13*t9_1_3*v1y + 79680.0f*g17_13*v1x - 744.0f*g17_24*t9_1_3*v1x - 79680.0f*r33*v1y - t9_1_0*t9_1_2 - 830.0f*t9_1_0 - t9_1_1*t9_1_2 - 830.0f*t9_1_1;
                 if (fabsf(dt2) > 1e-12f) {
-                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0f*g17_13*t9_1_19 + 29640960.0f*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - 192.0f*g17_23*t9_1_1 - g17_33*g17_34*t9_1_9 + 71424.0f*g17_33*t9_1_22 - 744.0f*g17_34*t9_1_22 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0f*v1y) / dt2;
-                    s2 = (26569728.0f*c3*c4*g17_23*s4 + 29640960.0f*c3*g17_23*s4 + 192.0f*g17_13*g17_14*v1x + 26569728.0f*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0f*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 + 192.0f*g17_23*g17_24*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0f*g17_33*g17_34*v1x - 71424.0f*g17_33*t9_1_21*v1x + 744.0f*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0f*v1x) / dt2;
+                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0f*g17_13*t9_1_19 + 29640960.0f*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0f*g17_33*t9_1_22 - 744.0f*g17_34*t9_1_22 + 192.0f*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0f*v1y) / dt2;
+                    s2 = (-26569728.0f*c3*c4*r33*s4 - 29640960.0f*c3*r33*s4 + 192.0f*g17_13*g17_14*v1x + 26569728.0f*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0f*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0f*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0f*g17_33*g17_34*v1x - 71424.0f*g17_33*t9_1_21*v1x + 744.0f*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0f*v1x) / dt2;
                     free2 = 0;
                     wk2 = 1.0f;
                 }
             }
             if (free2) {
-                const float t9_2_0 = g17_11*g17_22;
-                const float t9_2_1 = g17_12*g17_21;
+                const float t9_2_0 = -g17_11*r32;
+                const float t9_2_1 = -g17_12*r31;
                 const float t9_2_2 = 308760.0f*c4;
                 const float t9_2_3 = 138384.0f*s4*s4;
                 const float t9_2_4 = s3*s3*t9_2_3;
@@ -308,9 +292,9 @@ static int closed_form(const float pose[16], float given, const float *current,
                 const float t9_2_15 = 372.0f*s4;
                 const float t9_2_16 = c3*t9_2_15;
                 const float t9_2_17 = g17_14*t9_2_16;
-                const float t9_2_18 = g17_21*g17_32;
+                const float t9_2_18 = -g17_32*r31;
                 const float t9_2_19 = g17_34*t9_2_16;
-                const float t9_2_20 = g17_22*g17_31;
+                const float t9_2_20 = -g17_31*r32;
                 const float t9_2_21 = c3*t9_2_20;
                 const float t9_2_22 = 138384.0f*c4*t9_2_13;
                 const float t9_2_23 = s3*t9_2_3;
@@ -322,7 +306,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                 dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0f*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0f*t9_2_1;
                 if (fabsf(dt2) > 1e-15f) {
                     c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2;
-                    s2 = (g17_22*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
+                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
                     free2 = 0;
                     wk2 = 0.001f;
                 }
@@ -352,31 +336,28 @@ static int closed_form(const float pose[16], float given, const float *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const float g27_11 = c2*g17_11 + g17_21*s2;
-            const float g27_12 = c2*g17_12 + g17_22*s2;
-            const float g27_13 = c2*g17_13 + g17_23*s2;
-            const float g27_31 = -c2*g17_21 + g17_11*s2;
-            const float g27_32 = -c2*g17_22 + g17_12*s2;
-            const float g27_33 = -c2*g17_23 + g17_13*s2;
+            const float g27_11 = c2*g17_11 - r31*s2;
+            const float g27_12 = c2*g17_12 - r32*s2;
+            const float g27_13 = c2*g17_13 - r33*s2;
+            const float g27_31 = c2*r31 + g17_11*s2;
+            const float g27_32 = c2*r32 + g17_12*s2;
+            const float g27_33 = c2*r33 + g17_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g37_11 = c3*g27_11 + g17_31*s3;
             const float g37_12 = c3*g27_12 + g17_32*s3;
             const float g37_13 = c3*g27_13 + g17_33*s3;
-            const float g37_21 = -g27_31;
-            const float g37_22 = -g27_32;
-            const float g37_23 = -g27_33;
             const float g37_31 = c3*g17_31 - g27_11*s3;
             const float g37_32 = c3*g17_32 - g27_12*s3;
             const float g37_33 = c3*g17_33 - g27_13*s3;
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g47_11 = c4*g37_11 + g37_21*s4;
-            const float g47_12 = c4*g37_12 + g37_22*s4;
-            const float g47_13 = c4*g37_13 + g37_23*s4;
-            const float g47_31 = -c4*g37_21 + g37_11*s4;
-            const float g47_32 = -c4*g37_22 + g37_12*s4;
-            const float g47_33 = -c4*g37_23 + g37_13*s4;
+            const float g47_11 = c4*g37_11 - g27_31*s4;
+            const float g47_12 = c4*g37_12 - g27_32*s4;
+            const float g47_13 = c4*g37_13 - g27_33*s4;
+            const float g47_31 = c4*g27_31 + g37_11*s4;
+            const float g47_32 = c4*g27_32 + g37_12*s4;
+            const float g47_33 = c4*g27_33 + g37_13*s4;
 
             /* th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -387,10 +368,9 @@ static int closed_form(const float pose[16], float given, const float *current,
             }
             const float root6 = er6 > 0.0f ? sqrtf(er6) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const float sg6 = 1.0f;
             float th6, c6, s6;
             const float cn6 = g47_33;
-            const float sn6 = root6*sg6;
+            const float sn6 = root6;
             th6 = atan2f(sn6, cn6);
             c6 = cn6;
             s6 = sn6;
@@ -435,12 +415,10 @@ static int closed_form(const float pose[16], float given, const float *current,
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const float g57_11 = c5*g47_11 + g37_31*s5;
             const float g57_12 = c5*g47_12 + g37_32*s5;
-            const float g57_21 = -g47_31;
-            const float g57_22 = -g47_32;
 
             /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
-            const float g67_11 = c6*g57_11 + g57_21*s6;
-            const float g67_12 = c6*g57_12 + g57_22*s6;
+            const float g67_11 = c6*g57_11 - g47_31*s6;
+            const float g67_12 = c6*g57_12 - g47_32*s6;
 
             /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th7, c7 = 0.0f, s7 = 0.0f, dt7, wk7 = 0.0f;
@@ -464,73 +442,93 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float lm0 = s2;
             const float lm1 = s4;
             const float lm2 = s6;
-            if (count < CELLREACH7_IK_F32_CLOSED_FORM) {
-                cellreach7_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
-                out->joints[2] = given;
+                const float jv2 = u2 * 57.2957795f;
+                const float jv3 = given;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
+                const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
                 u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * 57.2957795f;
-                out->joints[5] = th6 * 57.2957795f;
-                out->joints[6] = th7 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
-                out->conditioning[0] = root4 * 3.2387615e-06f;
-                out->conditioning[1] = root1 * 0.00316227766f;
-                out->conditioning[2] = root6 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv5 = u5 * 57.2957795f;
+                const float jv6 = th6 * 57.2957795f;
+                const float jv7 = th7 * 57.2957795f;
+                const float cv0 = root4 * 3.2387615e-06f;
+                const float cv1 = root1 * 0.00316227766f;
+                const float cv2 = root6 * 1.0f;
+                if (fine && count < CELLREACH7_IK_F32_CLOSED_FORM) {
+                    cellreach7_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->joints[6] = jv7;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                 }
             }
             if (root6 > 0.0f && !free5) {
-                if (count < CELLREACH7_IK_F32_CLOSED_FORM) {
-                    cellreach7_ik_f32_solution *out = &solutions[count++];
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 57.2957795f;
+                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * 57.2957795f;
-                    out->joints[2] = given;
+                    const float jv2 = u2 * 57.2957795f;
+                    const float jv3 = given;
                     float u4 = th4;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 57.2957795f;
+                    const float jv4 = u4 * 57.2957795f;
                     float u5 = th5 + 3.14159265f;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * 57.2957795f;
+                    const float jv5 = u5 * 57.2957795f;
                     float u6 = -th6;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                    out->joints[5] = u6 * 57.2957795f;
+                    const float jv6 = u6 * 57.2957795f;
                     float u7 = th7 + 3.14159265f;
                     u7 = u7 > 3.14159265f ? u7 - 6.28318531f : (u7 <= -3.14159265f ? u7 + 6.28318531f : u7);
-                    out->joints[6] = u7 * 57.2957795f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                    out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
-                    out->conditioning[0] = root4 * 3.2387615e-06f;
-                    out->conditioning[1] = root1 * 0.00316227766f;
-                    out->conditioning[2] = root6 * 1.0f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv7 = u7 * 57.2957795f;
+                    const float cv0 = root4 * 3.2387615e-06f;
+                    const float cv1 = root1 * 0.00316227766f;
+                    const float cv2 = root6 * 1.0f;
+                    if (fine && count < CELLREACH7_IK_F32_CLOSED_FORM) {
+                        cellreach7_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->joints[6] = jv7;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
+                        out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                     }
                 }
             }

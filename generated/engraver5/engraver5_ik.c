@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const engraver5_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < ENGRAVER5_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < ENGRAVER5_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void engraver5_ik_forward(const double joints[ENGRAVER5_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -160,7 +148,6 @@ static int closed_form(const double pose[16], const double *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t3_0 = wx*wx + wy*wy;
-        const double eb1 = -wx;
 
         const int free1 = t3_0 <= 9.9999999999999988e-16;
         if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
@@ -168,6 +155,7 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
         const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+        double ta1 = 0.0, ca1 = 0.0, sa1 = 0.0;   /* the first root, for the second */
         for (int k1 = 0; k1 < n1; ++k1) {
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
@@ -176,11 +164,21 @@ static int closed_form(const double pose[16], const double *current,
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
-                const double cn1 = -eb1*root1*sg1;
-                const double sn1 = root1*sg1*wy;
-                th1 = atan2(sn1, cn1);
-                c1 = cn1/t3_0;
-                s1 = sn1/t3_0;
+                if (k1) {   /* the second root: the first turned by half a turn */
+                    th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
+                    c1 = -ca1;
+                    s1 = -sa1;
+                } else {
+                    const double cn1 = root1*sg1*wx;
+                    const double sn1 = root1*sg1*wy;
+                    th1 = atan2(sn1, cn1);
+                    c1 = cn1/t3_0;
+                    s1 = sn1/t3_0;
+
+                    ta1 = th1;
+                    ca1 = c1;
+                    sa1 = s1;
+                }
 
             }
 
@@ -297,10 +295,9 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const double sg5 = 1.0;
             double th5, s5;
             const double cn5 = 60.0*ec5;
-            const double sn5 = 60.0*root5*sg5;
+            const double sn5 = 60.0*root5;
             th5 = atan2(sn5, cn5);
             s5 = 0.00027777777777777778*sn5;
 
@@ -358,67 +355,83 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3;
             const double lm1 = 38000.0*c3 - 4000.0*s3;
             const double lm2 = c4*n3x + n1z*s4;
-            if (count < ENGRAVER5_IK_CLOSED_FORM) {
-                engraver5_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + root3) + (root1 + root5));
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - 1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
+                const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
+                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
-                out->joints[4] = th5 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
-                out->conditioning[0] = root3 * 1.3085598064755344e-05;
-                out->conditioning[1] = root1 * 0.003162277660168379;
-                out->conditioning[2] = root5 * 0.016666666666666666;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv4 = u4 * 57.295779513082323;
+                const double jv5 = th5 * 57.295779513082323;
+                const double cv0 = root3 * 1.3085598064755344e-05;
+                const double cv1 = root1 * 0.003162277660168379;
+                const double cv2 = root5 * 0.016666666666666666;
+                if (fine && count < ENGRAVER5_IK_CLOSED_FORM) {
+                    engraver5_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0 && !free4) {
-                if (count < ENGRAVER5_IK_CLOSED_FORM) {
-                    engraver5_ik_solution *out = &solutions[count++];
+                {
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 57.295779513082323;
+                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 57.295779513082323;
+                    const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    out->joints[2] = u3 * 57.295779513082323;
+                    const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 57.295779513082323;
+                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = -th5;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 57.295779513082323;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                    out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
-                    out->conditioning[0] = root3 * 1.3085598064755344e-05;
-                    out->conditioning[1] = root1 * 0.003162277660168379;
-                    out->conditioning[2] = root5 * 0.016666666666666666;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv5 = u5 * 57.295779513082323;
+                    const double cv0 = root3 * 1.3085598064755344e-05;
+                    const double cv1 = root1 * 0.003162277660168379;
+                    const double cv2 = root5 * 0.016666666666666666;
+                    if (fine && count < ENGRAVER5_IK_CLOSED_FORM) {
+                        engraver5_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                        out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

@@ -364,7 +364,7 @@ def forward(joints):
     f9 = f6 - f8
     f10 = c4*f9 + s1*s4
     f11 = c5*f4
-    f12 = 200*c2
+    f12 = 200.0*c2
     f13 = f0*s1
     f14 = f2*s1
     f15 = -f13 - f14
@@ -379,9 +379,9 @@ def forward(joints):
     f24 = f23*s5
     f25 = c5*f21
     return [
-        [c5*f10 + f4*s5, c4*s1 - f9*s4, f10*s5 - f11, c1*f12 + 190*f1 + 60*f10*s5 - 60*f11 + 190*f3 + 20*f6 - 20*f8],
-        [c5*f19 + f15*s5, -c1*c4 - f18*s4, f19*s5 - f20, f12*s1 + 190*f13 + 190*f14 + 20*f16 - 20*f17 + 60*f19*s5 - 60*f20],
-        [c5*f23 + f21*s5, -f22*s4, f24 - f25, 20*f0 + 20*f2 + 60*f24 - 60*f25 - 190*f5 + 190*f7 + 200*s2 + 160],
+        [c5*f10 + f4*s5, c4*s1 - f9*s4, f10*s5 - f11, c1*f12 + 190.0*f1 + 60.0*f10*s5 - 60.0*f11 + 190.0*f3 + 20.0*f6 - 20.0*f8],
+        [c5*f19 + f15*s5, -c1*c4 - f18*s4, f19*s5 - f20, f12*s1 + 190.0*f13 + 190.0*f14 + 20.0*f16 - 20.0*f17 + 60.0*f19*s5 - 60.0*f20],
+        [c5*f23 + f21*s5, -f22*s4, f24 - f25, 20.0*f0 + 20.0*f2 + 60.0*f24 - 60.0*f25 - 190.0*f5 + 190.0*f7 + 200.0*s2 + 160.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -393,18 +393,18 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # wrist point in the DH base frame: p - lam u, on the tool's axis
-    wx = px - 60*r13
-    wy = py - 60*r23
-    wz = pz - 60*r33
+    wx = px - 60.0*r13
+    wy = py - 60.0*r23
+    wz = pz - 60.0*r33
 
     # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    q1y = pz - 160
-    v1y = wz - 160
+    q1y = pz - 160.0
+    v1y = wz - 160.0
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t2_0 = wx*wx + wy*wy + wz*wz - 320*wz
-    ec3 = 50900 - t2_0
+    t2_0 = wx*wx + wy*wy + wz*wz - 320.0*wz
+    ec3 = 50900.0 - t2_0
     er3 = (127319.8926981712 - t2_0)*(t2_0 + 25519.8926981712)
 
     if er3 + 11.680000000000001 < 0.0:
@@ -412,8 +412,8 @@ def _closed_form(pose, current, check_finite=True):
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = -8000*ec3 + 76000*root3*sg3
-        sn3 = -76000*ec3 - 8000*root3*sg3
+        cn3 = -8000.0*ec3 + 76000.0*root3*sg3
+        sn3 = -76000.0*ec3 - 8000.0*root3*sg3
         th3 = -1.6756732655251305 + sg3 * dl3
         c3 = 1.7123287671232877e-10*cn3
         s3 = 1.7123287671232877e-10*sn3
@@ -421,10 +421,9 @@ def _closed_form(pose, current, check_finite=True):
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t3_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t3_0 <= 9.999999999999999e-16
-        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
+        if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
             continue
         root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -433,11 +432,16 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
-                cn1 = -eb1*root1*sg1
-                sn1 = root1*sg1*wy
-                th1 = atan2(sn1, cn1)
-                c1 = cn1/t3_0
-                s1 = sn1/t3_0
+                if sg1 < 0.0:  # the second root: the first turned by half a turn
+                    th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                    c1 = -c1
+                    s1 = -s1
+                else:
+                    cn1 = root1*sg1*wx
+                    sn1 = root1*sg1*wy
+                    th1 = atan2(sn1, cn1)
+                    c1 = cn1/t3_0
+                    s1 = sn1/t3_0
 
             # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
             q1x = c1*px + py*s1
@@ -448,14 +452,14 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t6_0_0 = 20*c3
-            t6_0_1 = 190*v1x
+            t6_0_0 = 20.0*c3
+            t6_0_1 = 190.0*v1x
             t6_0_2 = s3*v1y
 
             dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (190*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20*t6_0_2 - 200*v1x) / dt2
-                s2 = (-c3*t6_0_1 + 20*s3*v1x - t6_0_0*v1y - 190*t6_0_2 - 200*v1y) / dt2
+                c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2
+                s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
@@ -464,33 +468,33 @@ def _closed_form(pose, current, check_finite=True):
                 t6_1_1 = q1x*v1y
                 t6_1_2 = q1y*v1x
                 t6_1_3 = q1y*v1y
-                t6_1_4 = 400*c3
-                t6_1_5 = 400*s3
-                t6_1_6 = 76000*q1x
-                t6_1_7 = 8000*v1y
+                t6_1_4 = 400.0*c3
+                t6_1_5 = 400.0*s3
+                t6_1_6 = 76000.0*q1x
+                t6_1_7 = 8000.0*v1y
                 t6_1_8 = c3*q1x
                 t6_1_9 = c3*q1y
                 t6_1_10 = c3*v1y
                 t6_1_11 = q1x*s3
                 t6_1_12 = q1y*s3
                 t6_1_13 = s3*v1x
-                t6_1_14 = 8000*c3
-                t6_1_15 = 76000*q1y
+                t6_1_14 = 8000.0*c3
+                t6_1_15 = 76000.0*q1y
                 t6_1_16 = c3*s3
-                t6_1_17 = 8000*v1x
+                t6_1_17 = 8000.0*v1x
                 t6_1_18 = s3*s3
-                t6_1_19 = 8000*t6_1_18
-                t6_1_20 = 76000*t6_1_18
+                t6_1_19 = 8000.0*t6_1_18
+                t6_1_20 = 76000.0*t6_1_18
                 t6_1_21 = q1x*q1x
                 t6_1_22 = q1y*q1y
                 t6_1_23 = q1z*q1z
                 t6_1_24 = c3*v1x
                 t6_1_25 = s3*v1y
 
-                dt2 = t6_1_0*t6_1_5 + 380*t6_1_0 - t6_1_1*t6_1_4 - 40*t6_1_1 + t6_1_2*t6_1_4 + 40*t6_1_2 + t6_1_3*t6_1_5 + 380*t6_1_3
+                dt2 = t6_1_0*t6_1_5 + 380.0*t6_1_0 - t6_1_1*t6_1_4 - 40.0*t6_1_1 + t6_1_2*t6_1_4 + 40.0*t6_1_2 + t6_1_3*t6_1_5 + 380.0*t6_1_3
                 if abs(dt2) > 9.999999999999999e-14:
-                    c2 = (-q1y*t6_1_19 + 16000*q1y - 76000*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900*t6_1_10 - t6_1_11*t6_1_14 - 800*t6_1_11 + 7600*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600*t6_1_8 + 80800*t6_1_9) / dt2
-                    s2 = (76000*c3*t6_1_13 + q1x*t6_1_19 - 16000*q1x - 7600*t6_1_11 - t6_1_12*t6_1_14 - 800*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900*t6_1_24 + 72900*t6_1_25 - 80800*t6_1_8 + 7600*t6_1_9) / dt2
+                    c2 = (-q1y*t6_1_19 + 16000.0*q1y - 76000.0*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900.0*t6_1_10 - t6_1_11*t6_1_14 - 800.0*t6_1_11 + 7600.0*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900.0*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600.0*t6_1_8 + 80800.0*t6_1_9) / dt2
+                    s2 = (76000.0*c3*t6_1_13 + q1x*t6_1_19 - 16000.0*q1x - 7600.0*t6_1_11 - t6_1_12*t6_1_14 - 800.0*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900.0*t6_1_24 + 72900.0*t6_1_25 - 80800.0*t6_1_8 + 7600.0*t6_1_9) / dt2
                     free2 = False
                     wk2 = 0.09999999999999999
 
@@ -498,10 +502,10 @@ def _closed_form(pose, current, check_finite=True):
                 t6_2_0 = c3*s3
                 t6_2_1 = s3*s3
 
-                dt2 = 190*c3*v1x - 20*c3*v1y - 20*s3*v1x - 190*s3*v1y - 200*v1y
+                dt2 = 190.0*c3*v1x - 20.0*c3*v1y - 20.0*s3*v1x - 190.0*s3*v1y - 200.0*v1y
                 if abs(dt2) > 1e-16:
-                    c2 = (38000*c3 - 4000*s3 + 35700*t6_2_0 - 7600*t6_2_1 - v1x*v1y + 3800) / dt2
-                    s2 = (-8000*c3 - 76000*s3 - 7600*t6_2_0 - 35700*t6_2_1 + v1x*v1x - 40400) / dt2
+                    c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
+                    s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
                     free2 = False
                     wk2 = 9.999999999999999e-05
 
@@ -524,33 +528,32 @@ def _closed_form(pose, current, check_finite=True):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            q2x = c2*q1x + q1y*s2 - 200
+            q2x = c2*q1x + q1y*s2 - 200.0
             q2y = c2*q1y - q1x*s2
 
             # A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-            q3x = c3*q2x + q2y*s3 - 20
+            q3x = c3*q2x + q2y*s3 - 20.0
             q3z = -c3*q2y + q2x*s3
 
             # th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            ec5 = q3z - 190
-            er5 = (250 - q3z)*(q3z - 130)
+            ec5 = q3z - 190.0
+            er5 = (250.0 - q3z)*(q3z - 130.0)
 
             if er5 + 7.2000000000000005e-06 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = 60*ec5
-            sn5 = 60*root5*sg5
+            cn5 = 60.0*ec5
+            sn5 = 60.0*root5
             th5 = atan2(sn5, cn5)
             s5 = 0.0002777777777777778*sn5
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
-            t10_0_0 = 60*s5
+            t10_0_0 = 60.0*s5
 
-            dt4 = -3600*s5*s5
+            dt4 = -3600.0*s5*s5
             if abs(dt4) > 9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
@@ -588,20 +591,16 @@ def _closed_form(pose, current, check_finite=True):
 
             # Joint readings, configuration labels, singular flag.
 
-            lm0 = 20*c2*c3 + 190*c2*s3 + 200*c2 + 190*c3*s2 - 20*s2*s3
-            lm1 = 38000*c3 - 4000*s3
+            lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3
+            lm1 = 38000.0*c3 - 4000.0*s3
             lm2 = c4*n3x + n1z*s4
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - 1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             q = (
                 u1 * 57.29577951308232,

@@ -160,14 +160,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t3_0 <= 9.999999999999999e-16
         valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t3_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg1 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1
+        cn1 = root1*sg1*wx
         sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t3_0
@@ -275,9 +274,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 7.2000000000000005e-06 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = 60*ec5
-        sn5 = 60*root5*sg5
+        sn5 = 60*root5
         th5 = numpy.arctan2(sn5, cn5)
         s5 = 0.0002777777777777778*sn5
         cond5 = root5 * 0.016666666666666666
@@ -332,7 +330,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
@@ -359,7 +356,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - 1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)

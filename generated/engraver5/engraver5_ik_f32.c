@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const engraver5_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < ENGRAVER5_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void engraver5_ik_f32_forward(const float joints[ENGRAVER5_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -160,7 +148,6 @@ static int closed_form(const float pose[16], const float *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t3_0 = wx*wx + wy*wy;
-        const float eb1 = -wx;
 
         const int free1 = t3_0 <= 1e-15f;
         if (free1 ? 0.0f > 1e-15f : 1.00002f*t3_0 < 0.0f) {
@@ -168,6 +155,7 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
         const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+        float ta1 = 0.0f, ca1 = 0.0f, sa1 = 0.0f;   /* the first root, for the second */
         for (int k1 = 0; k1 < n1; ++k1) {
             const float sg1 = k1 ? -1.0f : 1.0f;
             float th1, c1, s1;
@@ -176,11 +164,21 @@ static int closed_form(const float pose[16], const float *current,
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
-                const float cn1 = -eb1*root1*sg1;
-                const float sn1 = root1*sg1*wy;
-                th1 = atan2f(sn1, cn1);
-                c1 = cn1/t3_0;
-                s1 = sn1/t3_0;
+                if (k1) {   /* the second root: the first turned by half a turn */
+                    th1 = ta1 > 0.0f ? ta1 - 3.14159265f : ta1 + 3.14159265f;
+                    c1 = -ca1;
+                    s1 = -sa1;
+                } else {
+                    const float cn1 = root1*sg1*wx;
+                    const float sn1 = root1*sg1*wy;
+                    th1 = atan2f(sn1, cn1);
+                    c1 = cn1/t3_0;
+                    s1 = sn1/t3_0;
+
+                    ta1 = th1;
+                    ca1 = c1;
+                    sa1 = s1;
+                }
 
             }
 
@@ -297,10 +295,9 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const float sg5 = 1.0f;
             float th5, s5;
             const float cn5 = 60.0f*ec5;
-            const float sn5 = 60.0f*root5*sg5;
+            const float sn5 = 60.0f*root5;
             th5 = atan2f(sn5, cn5);
             s5 = 0.000277777778f*sn5;
 
@@ -358,67 +355,83 @@ static int closed_form(const float pose[16], const float *current,
             const float lm0 = 20.0f*c2*c3 + 190.0f*c2*s3 + 200.0f*c2 + 190.0f*c3*s2 - 20.0f*s2*s3;
             const float lm1 = 38000.0f*c3 - 4000.0f*s3;
             const float lm2 = c4*n3x + n1z*s4;
-            if (count < ENGRAVER5_IK_F32_CLOSED_FORM) {
-                engraver5_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + root3) + (root1 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2 - 1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
+                const float jv2 = u2 * 57.2957795f;
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
+                const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
-                out->joints[4] = th5 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
-                out->conditioning[0] = root3 * 1.30855981e-05f;
-                out->conditioning[1] = root1 * 0.00316227766f;
-                out->conditioning[2] = root5 * 0.0166666667f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv4 = u4 * 57.2957795f;
+                const float jv5 = th5 * 57.2957795f;
+                const float cv0 = root3 * 1.30855981e-05f;
+                const float cv1 = root1 * 0.00316227766f;
+                const float cv2 = root5 * 0.0166666667f;
+                if (fine && count < ENGRAVER5_IK_F32_CLOSED_FORM) {
+                    engraver5_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0f && !free4) {
-                if (count < ENGRAVER5_IK_F32_CLOSED_FORM) {
-                    engraver5_ik_f32_solution *out = &solutions[count++];
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 57.2957795f;
+                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * 57.2957795f;
+                    const float jv2 = u2 * 57.2957795f;
                     float u3 = th3;
                     u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    out->joints[2] = u3 * 57.2957795f;
+                    const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 57.2957795f;
+                    const float jv4 = u4 * 57.2957795f;
                     float u5 = -th5;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * 57.2957795f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
-                    out->conditioning[0] = root3 * 1.30855981e-05f;
-                    out->conditioning[1] = root1 * 0.00316227766f;
-                    out->conditioning[2] = root5 * 0.0166666667f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv5 = u5 * 57.2957795f;
+                    const float cv0 = root3 * 1.30855981e-05f;
+                    const float cv1 = root1 * 0.00316227766f;
+                    const float cv2 = root5 * 0.0166666667f;
+                    if (fine && count < ENGRAVER5_IK_F32_CLOSED_FORM) {
+                        engraver5_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
+                        out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

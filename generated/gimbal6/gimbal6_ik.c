@@ -240,18 +240,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const gimbal6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < GIMBAL6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < GIMBAL6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void gimbal6_ik_forward(const double joints[GIMBAL6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -527,10 +515,9 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        const double sg2 = 1.0;
         double th2, c2, s2;
         const double cn2 = ec2;
-        const double sn2 = root2*sg2;
+        const double sn2 = root2;
         th2 = atan2(sn2, cn2);
         c2 = cn2;
         s2 = sn2;
@@ -601,63 +588,81 @@ static int closed_form(const double pose[16], const double *current,
 
         const double lm0 = s2;
         const double lm1 = 0.8660254037844386*s5;
-        if (count < GIMBAL6_IK_CLOSED_FORM) {
-            gimbal6_ik_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
+        const int fine = probe - probe == 0.0;
+        {
             double u1 = th1;
             u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-            out->joints[0] = u1 * 57.295779513082323;
-            out->joints[1] = th2 * 57.295779513082323;
-            out->joints[2] = th3 * 57.295779513082323;
-            out->joints[3] = th4 * 57.295779513082323;
+            const double jv1 = u1 * 57.295779513082323;
+            const double jv2 = th2 * 57.295779513082323;
+            const double jv3 = th3 * 57.295779513082323;
+            const double jv4 = th4 * 57.295779513082323;
             double u5 = th5;
             u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-            out->joints[4] = u5 * 57.295779513082323;
+            const double jv5 = u5 * 57.295779513082323;
             double u6 = th6;
             u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-            out->joints[5] = u6 * 57.295779513082323;
-            out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
-            out->conditioning[0] = cnd6;
-            out->conditioning[1] = root2 * 1.0;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const double jv6 = u6 * 57.295779513082323;
+            const double cv0 = cnd6;
+            const double cv1 = root2 * 1.0;
+            if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
+                gimbal6_ik_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->joints[4] = jv5;
+                out->joints[5] = jv6;
+                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
+                out->conditioning[0] = cv0;
+                out->conditioning[1] = cv1;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
             }
         }
         if (root2 > 0.0 && !free1) {
-            if (count < GIMBAL6_IK_CLOSED_FORM) {
-                gimbal6_ik_solution *out = &solutions[count++];
+            {
                 double u1 = th1 + 3.1415926535897931;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = -th2;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
+                const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3 + 3.1415926535897931;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 57.295779513082323;
+                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 57.295779513082323;
+                const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
                 u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                out->joints[4] = u5 * 57.295779513082323;
+                const double jv5 = u5 * 57.295779513082323;
                 double u6 = th6;
                 u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                out->joints[5] = u6 * 57.295779513082323;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? -1 : 1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
-                out->conditioning[0] = cnd6;
-                out->conditioning[1] = root2 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv6 = u6 * 57.295779513082323;
+                const double cv0 = cnd6;
+                const double cv1 = root2 * 1.0;
+                if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
+                    gimbal6_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? -1 : 1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                 }
             }
         }

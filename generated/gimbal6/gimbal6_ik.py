@@ -532,13 +532,9 @@ def _closed_form(pose, current, check_finite=True):
         e1y = bx*s6 + by*c6
 
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free4 = True
 
-        dt4 = -0.021650635094610966
-        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4
-        s4 = (-0.1*e1y - 0.0055) / dt4
-        free4 = False
-
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
+        s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
         hq4 = c4 * c4 + s4 * s4
         if abs(hq4 - 1.0) > 1e-4:
             continue
@@ -620,12 +616,9 @@ def _closed_form(pose, current, check_finite=True):
             continue
         root2 = sqrt(er2) if er2 > 0.0 else 0.0
         # the second root follows from this one by symmetry (emitted with the solution below)
-        sg2 = 1.0
-        cn2 = ec2
-        sn2 = root2*sg2
-        th2 = atan2(sn2, cn2)
-        c2 = cn2
-        s2 = sn2
+        c2 = ec2
+        s2 = root2
+        th2 = atan2(s2, c2)
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         free1 = True
@@ -664,13 +657,9 @@ def _closed_form(pose, current, check_finite=True):
         g23_12 = c2*g13_12 + g03_32*s2
 
         # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free3 = True
 
-        dt3 = 0.8660254037844386
-        c3 = (0.8660254037844386*g23_11) / dt3
-        s3 = (-g23_12) / dt3
-        free3 = False
-
+        c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
+        s3 = (-g23_12) / 0.8660254037844386
         hq3 = c3 * c3 + s3 * s3
         if abs(hq3 - 1.0) > 1e-4:
             continue
@@ -682,15 +671,12 @@ def _closed_form(pose, current, check_finite=True):
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2 * 1.0, )
-        u1 = th1
-        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
         u2 = th2
         u3 = th3
         u4 = th4
-        u5 = th5
-        u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-        u6 = th6
-        u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+        u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
         q = (
             u1 * 57.29577951308232,
             u2 * 57.29577951308232,
@@ -784,13 +770,9 @@ def inverse_joints(pose, current=None):
         e1y = bx*s6 + by*c6
 
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free4 = True
 
-        dt4 = -0.021650635094610966
-        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4
-        s4 = (-0.1*e1y - 0.0055) / dt4
-        free4 = False
-
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
+        s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
         hq4 = c4 * c4 + s4 * s4
         if abs(hq4 - 1.0) > 1e-4:
             continue
@@ -872,12 +854,9 @@ def inverse_joints(pose, current=None):
             continue
         root2 = sqrt(er2) if er2 > 0.0 else 0.0
         # the second root follows from this one by symmetry (emitted with the solution below)
-        sg2 = 1.0
-        cn2 = ec2
-        sn2 = root2*sg2
-        th2 = atan2(sn2, cn2)
-        c2 = cn2
-        s2 = sn2
+        c2 = ec2
+        s2 = root2
+        th2 = atan2(s2, c2)
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         free1 = True
@@ -916,28 +895,21 @@ def inverse_joints(pose, current=None):
         g23_12 = c2*g13_12 + g03_32*s2
 
         # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free3 = True
 
-        dt3 = 0.8660254037844386
-        c3 = (0.8660254037844386*g23_11) / dt3
-        s3 = (-g23_12) / dt3
-        free3 = False
-
+        c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
+        s3 = (-g23_12) / 0.8660254037844386
         hq3 = c3 * c3 + s3 * s3
         if abs(hq3 - 1.0) > 1e-4:
             continue
         th3 = atan2(s3, c3)
 
         # Joint readings, configuration labels, singular flag.
-        u1 = th1
-        u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
         u2 = th2
         u3 = th3
         u4 = th4
-        u5 = th5
-        u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-        u6 = th6
-        u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+        u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
         q = (
             u1 * 57.29577951308232,
             u2 * 57.29577951308232,

@@ -347,9 +347,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er2 + 2e-09 < 0.0)
         root2 = numpy.sqrt(numpy.maximum(er2, 0.0))
-        sg2 = 1.0
         cn2 = ec2
-        sn2 = root2*sg2
+        sn2 = root2
         th2 = numpy.arctan2(sn2, cn2)
         c2 = cn2
         s2 = sn2

@@ -240,18 +240,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const gimbal6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < GIMBAL6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < GIMBAL6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void gimbal6_ik_f32_forward(const float joints[GIMBAL6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -527,10 +515,9 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        const float sg2 = 1.0f;
         float th2, c2, s2;
         const float cn2 = ec2;
-        const float sn2 = root2*sg2;
+        const float sn2 = root2;
         th2 = atan2f(sn2, cn2);
         c2 = cn2;
         s2 = sn2;
@@ -601,63 +588,81 @@ static int closed_form(const float pose[16], const float *current,
 
         const float lm0 = s2;
         const float lm1 = 0.866025404f*s5;
-        if (count < GIMBAL6_IK_F32_CLOSED_FORM) {
-            gimbal6_ik_f32_solution *out = &solutions[count++];
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
+        const int fine = probe - probe == 0.0f;
+        {
             float u1 = th1;
             u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-            out->joints[0] = u1 * 57.2957795f;
-            out->joints[1] = th2 * 57.2957795f;
-            out->joints[2] = th3 * 57.2957795f;
-            out->joints[3] = th4 * 57.2957795f;
+            const float jv1 = u1 * 57.2957795f;
+            const float jv2 = th2 * 57.2957795f;
+            const float jv3 = th3 * 57.2957795f;
+            const float jv4 = th4 * 57.2957795f;
             float u5 = th5;
             u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-            out->joints[4] = u5 * 57.2957795f;
+            const float jv5 = u5 * 57.2957795f;
             float u6 = th6;
             u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-            out->joints[5] = u6 * 57.2957795f;
-            out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
-            out->conditioning[0] = cnd6;
-            out->conditioning[1] = root2 * 1.0f;
-            /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-             * readings are in one turn here), tested without branches */
-            out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-            if (!finite_solution(out)) {
-                --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+            const float jv6 = u6 * 57.2957795f;
+            const float cv0 = cnd6;
+            const float cv1 = root2 * 1.0f;
+            if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
+                gimbal6_ik_f32_solution *out = &solutions[count++];
+                out->joints[0] = jv1;
+                out->joints[1] = jv2;
+                out->joints[2] = jv3;
+                out->joints[3] = jv4;
+                out->joints[4] = jv5;
+                out->joints[5] = jv6;
+                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
+                out->conditioning[0] = cv0;
+                out->conditioning[1] = cv1;
+                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                 * readings are in one turn here), tested without branches */
+                out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
             }
         }
         if (root2 > 0.0f && !free1) {
-            if (count < GIMBAL6_IK_F32_CLOSED_FORM) {
-                gimbal6_ik_f32_solution *out = &solutions[count++];
+            {
                 float u1 = th1 + 3.14159265f;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = -th2;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
+                const float jv2 = u2 * 57.2957795f;
                 float u3 = th3 + 3.14159265f;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
+                const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
+                const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
                 u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                out->joints[4] = u5 * 57.2957795f;
+                const float jv5 = u5 * 57.2957795f;
                 float u6 = th6;
                 u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                out->joints[5] = u6 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? -1 : 1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
-                out->conditioning[0] = cnd6;
-                out->conditioning[1] = root2 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]) & (out->joints[5] >= LOW[5]) & (out->joints[5] <= HIGH[5]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv6 = u6 * 57.2957795f;
+                const float cv0 = cnd6;
+                const float cv1 = root2 * 1.0f;
+                if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
+                    gimbal6_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? -1 : 1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
                 }
             }
         }

@@ -330,7 +330,7 @@ def forward(joints):
     f11 = c5*f10 + f9*s5
     f12 = f11*s6
     f13 = c5*f9
-    f14 = 320*c2
+    f14 = 320.0*c2
     f15 = -f0*s1 + s1*s2*s3
     f16 = c1*c4 - f15*s4
     f17 = f5*s1
@@ -348,9 +348,9 @@ def forward(joints):
     f29 = f28*s6
     f30 = c5*f26
     return [
-        [-f12 + f4, -c6*f11 - f3*s6, f10*s5 - f13, c1*f14 + 145*f10*s5 - 40*f12 - 145*f13 + 40*f4 + 290*f6 + 290*f8],
-        [c6*f16 - f22, -c6*f21 - f16*s6, f20*s5 - f23, 40*c6*f16 - f14*s1 - 290*f17 - 290*f18 + 145*f20*s5 - 40*f22 - 145*f23],
-        [-f25 - f29, -c6*f28 + f24*s4*s6, f27*s5 - f30, 290*c2*c3 + 145*c4*f24*s5 - 290*f1 - 40*f25 - 40*f29 - 145*f30 - 320*s2 + 1620],
+        [-f12 + f4, -c6*f11 - f3*s6, f10*s5 - f13, c1*f14 + 145.0*f10*s5 - 40.0*f12 - 145.0*f13 + 40.0*f4 + 290.0*f6 + 290.0*f8],
+        [c6*f16 - f22, -c6*f21 - f16*s6, f20*s5 - f23, 40.0*c6*f16 - f14*s1 - 290.0*f17 - 290.0*f18 + 145.0*f20*s5 - 40.0*f22 - 145.0*f23],
+        [-f25 - f29, -c6*f28 + f24*s4*s6, f27*s5 - f30, 290.0*c2*c3 + 145.0*c4*f24*s5 - 290.0*f1 - 40.0*f25 - 40.0*f29 - 145.0*f30 - 320.0*s2 + 1620.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -362,37 +362,32 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r12
-    pcx = px - 40*r11 - 60*r13
-    rc22 = -r21
-    rc23 = -r23
-    pcy = -py + 40*r21 + 60*r23
-    rc32 = -r31
-    rc33 = -r33
-    pcz = -pz + 40*r31 + 60*r33 + 1800
+    pcx = px - 40.0*r11 - 60.0*r13
+    pcy = -py + 40.0*r21 + 60.0*r23
+    pcz = -pz + 40.0*r31 + 60.0*r33 + 1800.0
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 85*r13
-    wy = pcy - 85*rc23
-    wz = pcz - 85*rc33
+    wx = pcx - 85.0*r13
+    wy = pcy + 85.0*r23
+    wz = pcz + 85.0*r33
 
     # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    g16_24 = pcz - 180
-    v1y = wz - 180
+    g16_24 = pcz - 180.0
+    v1y = wz - 180.0
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t3_0 = wx*wx + wy*wy + wz*wz - 360*wz
-    ec3 = 154100 - t3_0
-    er3 = (339700 - t3_0)*(t3_0 + 31500)
+    t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz
+    ec3 = 154100.0 - t3_0
+    er3 = (339700.0 - t3_0)*(t3_0 + 31500.0)
 
     if er3 + 68.89472 < 0.0:
         return solutions
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = 185600*root3*sg3
-        sn3 = -185600*ec3
+        cn3 = 185600.0*root3*sg3
+        sn3 = -185600.0*ec3
         th3 = -1.5707963267948966 + sg3 * dl3
         c3 = 2.902980083234245e-11*cn3
         s3 = 2.902980083234245e-11*sn3
@@ -400,10 +395,9 @@ def _closed_form(pose, current, check_finite=True):
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t4_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t4_0 <= 9.999999999999999e-16
-        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
+        if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
             continue
         root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -412,20 +406,25 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
-                cn1 = -eb1*root1*sg1
-                sn1 = root1*sg1*wy
-                th1 = atan2(sn1, cn1)
-                c1 = cn1/t4_0
-                s1 = sn1/t4_0
+                if sg1 < 0.0:  # the second root: the first turned by half a turn
+                    th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                    c1 = -c1
+                    s1 = -s1
+                else:
+                    cn1 = root1*sg1*wx
+                    sn1 = root1*sg1*wy
+                    th1 = atan2(sn1, cn1)
+                    c1 = cn1/t4_0
+                    s1 = sn1/t4_0
 
             # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-            g16_11 = c1*rc11 + r22*s1
-            g16_12 = c1*r11 + rc22*s1
-            g16_13 = c1*r13 + rc23*s1
+            g16_11 = -c1*r12 + r22*s1
+            g16_12 = c1*r11 - r21*s1
+            g16_13 = c1*r13 - r23*s1
             g16_14 = c1*pcx + pcy*s1
-            g16_31 = -c1*r22 + rc11*s1
-            g16_32 = -c1*rc22 + r11*s1
-            g16_33 = -c1*rc23 + r13*s1
+            g16_31 = -c1*r22 - r12*s1
+            g16_32 = c1*r21 + r11*s1
+            g16_33 = c1*r23 + r13*s1
             g16_34 = -c1*pcy + pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -433,42 +432,42 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t7_0_0 = 290*v1x
+            t7_0_0 = 290.0*v1x
 
-            dt2 = -185600*s3 - 186500
+            dt2 = -185600.0*s3 - 186500.0
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (290*c3*v1y - s3*t7_0_0 - 320*v1x) / dt2
-                s2 = (-c3*t7_0_0 - 290*s3*v1y - 320*v1y) / dt2
+                c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
+                s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
             if free2:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
-                t7_1_2 = rc33*v1y
+                t7_1_2 = -r33*v1y
                 t7_1_3 = g16_24*v1y
                 t7_1_4 = c3*v1y
                 t7_1_5 = c3*v1x
-                t7_1_6 = 49300*s3
-                t7_1_7 = 580*s3
-                t7_1_8 = 185600*s3
+                t7_1_6 = 49300.0*s3
+                t7_1_7 = 580.0*s3
+                t7_1_8 = 185600.0*s3
                 t7_1_9 = g16_14*g16_14
                 t7_1_10 = g16_24*g16_24
                 t7_1_11 = g16_34*g16_34
-                t7_1_12 = 14297000*rc33
+                t7_1_12 = -14297000.0*r33
                 t7_1_13 = c3*s3
                 t7_1_14 = s3*s3
                 t7_1_15 = g16_13*g16_13
-                t7_1_16 = 7225*v1x
-                t7_1_17 = 168200*g16_14
-                t7_1_18 = rc33*rc33
+                t7_1_16 = 7225.0*v1x
+                t7_1_17 = 168200.0*g16_14
+                t7_1_18 = r33*r33
                 t7_1_19 = g16_33*g16_33
-                t7_1_20 = 7225*v1y
+                t7_1_20 = 7225.0*v1y
 
-                dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 - 49300*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+                dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 + 580.0*g16_24*t7_1_5 + 49300.0*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3
                 if abs(dt2) > 1e-12:
-                    c2 = (168200*c3*g16_24*s3 + 185600*c3*g16_24 - 15776000*c3*rc33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_24*rc33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2
-                    s2 = (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_24*rc33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y + 14297000*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2
+                    c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
+                    s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     free2 = False
                     wk2 = 1.0
 
@@ -492,11 +491,11 @@ def _closed_form(pose, current, check_finite=True):
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r32*s2
-            g26_12 = c2*g16_12 + rc32*s2
-            g26_13 = c2*g16_13 + rc33*s2
+            g26_12 = c2*g16_12 - r31*s2
+            g26_13 = c2*g16_13 - r33*s2
             g26_21 = c2*r32 - g16_11*s2
-            g26_22 = c2*rc32 - g16_12*s2
-            g26_23 = c2*rc33 - g16_13*s2
+            g26_22 = -c2*r31 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -514,12 +513,9 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -552,21 +548,15 @@ def _closed_form(pose, current, check_finite=True):
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 + g16_31*s4
             g46_12 = c4*g36_12 + g16_32*s4
-            g46_21 = -g36_31
-            g46_22 = -g36_32
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
+            g56_11 = c5*g46_11 - g36_31*s5
+            g56_12 = c5*g46_12 - g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -575,19 +565,16 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = v1x
-            lm1 = 92800*c3
+            lm1 = 92800.0*c3
             lm2 = s5
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - 1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
             u3 = th3 - 1.7889624832941875
             u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (
@@ -644,37 +631,32 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r12
-    pcx = px - 40*r11 - 60*r13
-    rc22 = -r21
-    rc23 = -r23
-    pcy = -py + 40*r21 + 60*r23
-    rc32 = -r31
-    rc33 = -r33
-    pcz = -pz + 40*r31 + 60*r33 + 1800
+    pcx = px - 40.0*r11 - 60.0*r13
+    pcy = -py + 40.0*r21 + 60.0*r23
+    pcz = -pz + 40.0*r31 + 60.0*r33 + 1800.0
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 85*r13
-    wy = pcy - 85*rc23
-    wz = pcz - 85*rc33
+    wx = pcx - 85.0*r13
+    wy = pcy + 85.0*r23
+    wz = pcz + 85.0*r33
 
     # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    g16_24 = pcz - 180
-    v1y = wz - 180
+    g16_24 = pcz - 180.0
+    v1y = wz - 180.0
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t3_0 = wx*wx + wy*wy + wz*wz - 360*wz
-    ec3 = 154100 - t3_0
-    er3 = (339700 - t3_0)*(t3_0 + 31500)
+    t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz
+    ec3 = 154100.0 - t3_0
+    er3 = (339700.0 - t3_0)*(t3_0 + 31500.0)
 
     if er3 + 68.89472 < 0.0:
         return solutions
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = 185600*root3*sg3
-        sn3 = -185600*ec3
+        cn3 = 185600.0*root3*sg3
+        sn3 = -185600.0*ec3
         th3 = -1.5707963267948966 + sg3 * dl3
         c3 = 2.902980083234245e-11*cn3
         s3 = 2.902980083234245e-11*sn3
@@ -682,10 +664,9 @@ def inverse_joints(pose, current=None):
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t4_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t4_0 <= 9.999999999999999e-16
-        if (0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
+        if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
             continue
         root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -694,20 +675,25 @@ def inverse_joints(pose, current=None):
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
-                cn1 = -eb1*root1*sg1
-                sn1 = root1*sg1*wy
-                th1 = atan2(sn1, cn1)
-                c1 = cn1/t4_0
-                s1 = sn1/t4_0
+                if sg1 < 0.0:  # the second root: the first turned by half a turn
+                    th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                    c1 = -c1
+                    s1 = -s1
+                else:
+                    cn1 = root1*sg1*wx
+                    sn1 = root1*sg1*wy
+                    th1 = atan2(sn1, cn1)
+                    c1 = cn1/t4_0
+                    s1 = sn1/t4_0
 
             # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-            g16_11 = c1*rc11 + r22*s1
-            g16_12 = c1*r11 + rc22*s1
-            g16_13 = c1*r13 + rc23*s1
+            g16_11 = -c1*r12 + r22*s1
+            g16_12 = c1*r11 - r21*s1
+            g16_13 = c1*r13 - r23*s1
             g16_14 = c1*pcx + pcy*s1
-            g16_31 = -c1*r22 + rc11*s1
-            g16_32 = -c1*rc22 + r11*s1
-            g16_33 = -c1*rc23 + r13*s1
+            g16_31 = -c1*r22 - r12*s1
+            g16_32 = c1*r21 + r11*s1
+            g16_33 = c1*r23 + r13*s1
             g16_34 = -c1*pcy + pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -715,42 +701,42 @@ def inverse_joints(pose, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free2 = True
-            t7_0_0 = 290*v1x
+            t7_0_0 = 290.0*v1x
 
-            dt2 = -185600*s3 - 186500
+            dt2 = -185600.0*s3 - 186500.0
             if abs(dt2) > 9.999999999999999e-16:
-                c2 = (290*c3*v1y - s3*t7_0_0 - 320*v1x) / dt2
-                s2 = (-c3*t7_0_0 - 290*s3*v1y - 320*v1y) / dt2
+                c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
+                s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
                 free2 = False
                 wk2 = 0.0009999999999999998
 
             if free2:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
-                t7_1_2 = rc33*v1y
+                t7_1_2 = -r33*v1y
                 t7_1_3 = g16_24*v1y
                 t7_1_4 = c3*v1y
                 t7_1_5 = c3*v1x
-                t7_1_6 = 49300*s3
-                t7_1_7 = 580*s3
-                t7_1_8 = 185600*s3
+                t7_1_6 = 49300.0*s3
+                t7_1_7 = 580.0*s3
+                t7_1_8 = 185600.0*s3
                 t7_1_9 = g16_14*g16_14
                 t7_1_10 = g16_24*g16_24
                 t7_1_11 = g16_34*g16_34
-                t7_1_12 = 14297000*rc33
+                t7_1_12 = -14297000.0*r33
                 t7_1_13 = c3*s3
                 t7_1_14 = s3*s3
                 t7_1_15 = g16_13*g16_13
-                t7_1_16 = 7225*v1x
-                t7_1_17 = 168200*g16_14
-                t7_1_18 = rc33*rc33
+                t7_1_16 = 7225.0*v1x
+                t7_1_17 = 168200.0*g16_14
+                t7_1_18 = r33*r33
                 t7_1_19 = g16_33*g16_33
-                t7_1_20 = 7225*v1y
+                t7_1_20 = 7225.0*v1y
 
-                dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 - 49300*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+                dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 + 580.0*g16_24*t7_1_5 + 49300.0*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3
                 if abs(dt2) > 1e-12:
-                    c2 = (168200*c3*g16_24*s3 + 185600*c3*g16_24 - 15776000*c3*rc33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_24*rc33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2
-                    s2 = (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_24*rc33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y + 14297000*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2
+                    c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
+                    s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     free2 = False
                     wk2 = 1.0
 
@@ -774,11 +760,11 @@ def inverse_joints(pose, current=None):
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r32*s2
-            g26_12 = c2*g16_12 + rc32*s2
-            g26_13 = c2*g16_13 + rc33*s2
+            g26_12 = c2*g16_12 - r31*s2
+            g26_13 = c2*g16_13 - r33*s2
             g26_21 = c2*r32 - g16_11*s2
-            g26_22 = c2*rc32 - g16_12*s2
-            g26_23 = c2*rc33 - g16_13*s2
+            g26_22 = -c2*r31 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -796,12 +782,9 @@ def inverse_joints(pose, current=None):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -834,36 +817,27 @@ def inverse_joints(pose, current=None):
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 + g16_31*s4
             g46_12 = c4*g36_12 + g16_32*s4
-            g46_21 = -g36_31
-            g46_22 = -g36_32
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
+            g56_11 = c5*g46_11 - g36_31*s5
+            g56_12 = c5*g46_12 - g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - 1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
             u3 = th3 - 1.7889624832941875
             u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (

@@ -113,19 +113,14 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-        rc11 = -r12
         pcx = px - 40*r11 - 60*r13
-        rc22 = -r21
-        rc23 = -r23
         pcy = -py + 40*r21 + 60*r23
-        rc32 = -r31
-        rc33 = -r33
         pcz = -pz + 40*r31 + 60*r33 + 1800
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
         wx = pcx - 85*r13
-        wy = pcy - 85*rc23
-        wz = pcz - 85*rc33
+        wy = pcy + 85*r23
+        wz = pcz + 85*r33
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         g16_24 = pcz - 180
@@ -149,14 +144,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 w = A2 A3 c3
         t4_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t4_0 <= 9.999999999999999e-16
         valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t4_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(t4_0, 0.0))
         sg1 = _SIGNS.reshape(1, 1, 2)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1
+        cn1 = root1*sg1*wx
         sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t4_0
@@ -168,13 +162,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
-        g16_11 = c1*rc11 + r22*s1
-        g16_12 = c1*r11 + rc22*s1
-        g16_13 = c1*r13 + rc23*s1
+        g16_11 = -c1*r12 + r22*s1
+        g16_12 = c1*r11 - r21*s1
+        g16_13 = c1*r13 - r23*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_31 = -c1*r22 + rc11*s1
-        g16_32 = -c1*rc22 + r11*s1
-        g16_33 = -c1*rc23 + r13*s1
+        g16_31 = -c1*r22 - r12*s1
+        g16_32 = c1*r21 + r11*s1
+        g16_33 = c1*r23 + r13*s1
         g16_34 = -c1*pcy + pcx*s1
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -194,7 +188,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         if not chosen2.all():
             t7_1_0 = g16_13*v1x
             t7_1_1 = g16_14*v1x
-            t7_1_2 = rc33*v1y
+            t7_1_2 = -r33*v1y
             t7_1_3 = g16_24*v1y
             t7_1_4 = c3*v1y
             t7_1_5 = c3*v1x
@@ -204,20 +198,20 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_1_9 = g16_14*g16_14
             t7_1_10 = g16_24*g16_24
             t7_1_11 = g16_34*g16_34
-            t7_1_12 = 14297000*rc33
+            t7_1_12 = -14297000*r33
             t7_1_13 = c3*s3
             t7_1_14 = s3*s3
             t7_1_15 = g16_13*g16_13
             t7_1_16 = 7225*v1x
             t7_1_17 = 168200*g16_14
-            t7_1_18 = rc33*rc33
+            t7_1_18 = r33*r33
             t7_1_19 = g16_33*g16_33
             t7_1_20 = 7225*v1y
 
-            dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 - 49300*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
+            dt2 = 49300*g16_13*t7_1_4 - 580*g16_14*t7_1_4 + 580*g16_24*t7_1_5 + 49300*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400*t7_1_0 - t7_1_1*t7_1_7 - 640*t7_1_1 + t7_1_2*t7_1_6 + 54400*t7_1_2 - t7_1_3*t7_1_7 - 640*t7_1_3
             use = ~chosen2 & (numpy.abs(dt2) > 1e-12)
-            c2 = numpy.where(use, (168200*c3*g16_24*s3 + 185600*c3*g16_24 - 15776000*c3*rc33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 + 170*g16_24*rc33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2, c2)
-            s2 = numpy.where(use, (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y + 170*g16_24*rc33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y + 14297000*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2, s2)
+            c2 = numpy.where(use, (168200*c3*g16_24*s3 + 185600*c3*g16_24 + 15776000*c3*r33 + 170*g16_13*g16_14*v1x + 14297000*g16_13*t7_1_14 - 14297000*g16_13 + 168200*g16_14 - 170*g16_24*r33*v1x + 170*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500*v1x) / dt2, c2)
+            s2 = numpy.where(use, (14297000*c3*g16_13*s3 + 15776000*c3*g16_13 - 185600*c3*g16_14 + 170*g16_13*g16_14*v1y - 170*g16_24*r33*v1y - 168200*g16_24*t7_1_14 + 168200*g16_24 + 170*g16_33*g16_34*v1y - 14297000*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500*v1y) / dt2, s2)
             wk2 = numpy.where(use, 1.0, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
@@ -240,11 +234,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         g26_11 = c2*g16_11 + r32*s2
-        g26_12 = c2*g16_12 + rc32*s2
-        g26_13 = c2*g16_13 + rc33*s2
+        g26_12 = c2*g16_12 - r31*s2
+        g26_13 = c2*g16_13 - r33*s2
         g26_21 = c2*r32 - g16_11*s2
-        g26_22 = c2*rc32 - g16_12*s2
-        g26_23 = c2*rc33 - g16_13*s2
+        g26_22 = -c2*r31 - g16_12*s2
+        g26_23 = -c2*r33 - g16_13*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
@@ -259,9 +253,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = g36_33
-        sn5 = root5*sg5
+        sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
         s5 = sn5
@@ -297,12 +290,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g16_31*s4
         g46_12 = c4*g36_12 + g16_32*s4
-        g46_21 = -g36_31
-        g46_22 = -g36_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 + g46_21*s5
-        g56_12 = c5*g46_12 + g46_22*s5
+        g56_11 = c5*g46_11 - g36_31*s5
+        g56_12 = c5*g46_12 - g36_32*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
@@ -327,7 +318,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - 1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3 - 1.7889624832941875
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
@@ -357,7 +347,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - 1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3 - 1.7889624832941875
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)

@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const inspector6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < INSPECTOR6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < INSPECTOR6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void inspector6_ik_f32_forward(const float joints[INSPECTOR6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -141,19 +129,14 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const float rc11 = -r12;
     const float pcx = px - 40.0f*r11 - 60.0f*r13;
-    const float rc22 = -r21;
-    const float rc23 = -r23;
     const float pcy = -py + 40.0f*r21 + 60.0f*r23;
-    const float rc32 = -r31;
-    const float rc33 = -r33;
     const float pcz = -pz + 40.0f*r31 + 60.0f*r33 + 1800.0f;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
     const float wx = pcx - 85.0f*r13;
-    const float wy = pcy - 85.0f*rc23;
-    const float wz = pcz - 85.0f*rc33;
+    const float wy = pcy + 85.0f*r23;
+    const float wz = pcz + 85.0f*r33;
 
     /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float g16_24 = pcz - 180.0f;
@@ -184,7 +167,6 @@ static int closed_form(const float pose[16], const float *current,
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float t4_0 = wx*wx + wy*wy;
-        const float eb1 = -wx;
 
         const int free1 = t4_0 <= 1e-15f;
         if (free1 ? 0.0f > 1e-15f : 1.00002f*t4_0 < 0.0f) {
@@ -192,6 +174,7 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root1 = t4_0 > 0.0f ? sqrtf(t4_0) : 0.0f;
         const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+        float ta1 = 0.0f, ca1 = 0.0f, sa1 = 0.0f;   /* the first root, for the second */
         for (int k1 = 0; k1 < n1; ++k1) {
             const float sg1 = k1 ? -1.0f : 1.0f;
             float th1, c1, s1;
@@ -200,22 +183,32 @@ static int closed_form(const float pose[16], const float *current,
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
-                const float cn1 = -eb1*root1*sg1;
-                const float sn1 = root1*sg1*wy;
-                th1 = atan2f(sn1, cn1);
-                c1 = cn1/t4_0;
-                s1 = sn1/t4_0;
+                if (k1) {   /* the second root: the first turned by half a turn */
+                    th1 = ta1 > 0.0f ? ta1 - 3.14159265f : ta1 + 3.14159265f;
+                    c1 = -ca1;
+                    s1 = -sa1;
+                } else {
+                    const float cn1 = root1*sg1*wx;
+                    const float sn1 = root1*sg1*wy;
+                    th1 = atan2f(sn1, cn1);
+                    c1 = cn1/t4_0;
+                    s1 = sn1/t4_0;
+
+                    ta1 = th1;
+                    ca1 = c1;
+                    sa1 = s1;
+                }
 
             }
 
             /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
-            const float g16_11 = c1*rc11 + r22*s1;
-            const float g16_12 = c1*r11 + rc22*s1;
-            const float g16_13 = c1*r13 + rc23*s1;
+            const float g16_11 = -c1*r12 + r22*s1;
+            const float g16_12 = c1*r11 - r21*s1;
+            const float g16_13 = c1*r13 - r23*s1;
             const float g16_14 = c1*pcx + pcy*s1;
-            const float g16_31 = -c1*r22 + rc11*s1;
-            const float g16_32 = -c1*rc22 + r11*s1;
-            const float g16_33 = -c1*rc23 + r13*s1;
+            const float g16_31 = -c1*r22 - r12*s1;
+            const float g16_32 = c1*r21 + r11*s1;
+            const float g16_33 = c1*r23 + r13*s1;
             const float g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -238,7 +231,7 @@ static int closed_form(const float pose[16], const float *current,
             if (free2) {
                 const float t7_1_0 = g16_13*v1x;
                 const float t7_1_1 = g16_14*v1x;
-                const float t7_1_2 = rc33*v1y;
+                const float t7_1_2 = -r33*v1y;
                 const float t7_1_3 = g16_24*v1y;
                 const float t7_1_4 = c3*v1y;
                 const float t7_1_5 = c3*v1x;
@@ -248,20 +241,20 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_9 = g16_14*g16_14;
                 const float t7_1_10 = g16_24*g16_24;
                 const float t7_1_11 = g16_34*g16_34;
-                const float t7_1_12 = 14297000.0f*rc33;
+                const float t7_1_12 = -14297000.0f*r33;
                 const float t7_1_13 = c3*s3;
                 const float t7_1_14 = s3*s3;
                 const float t7_1_15 = g16_13*g16_13;
                 const float t7_1_16 = 7225.0f*v1x;
                 const float t7_1_17 = 168200.0f*g16_14;
-                const float t7_1_18 = rc33*rc33;
+                const float t7_1_18 = r33*r33;
                 const float t7_1_19 = g16_33*g16_33;
                 const float t7_1_20 = 7225.0f*v1y;
 
-                dt2 = 49300.0f*g16_13*t7_1_4 - 580.0f*g16_14*t7_1_4 + 580.0f*g16_24*t7_1_5 - 49300.0f*rc33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0f*t7_1_0 - t7_1_1*t7_1_7 - 640.0f*t7_1_1 + t7_1_2*t7_1_6 + 54400.0f*t7_1_2 - t7_1_3*t7_1_7 - 640.0f*t7_1_3;
+                dt2 = 49300.0f*g16_13*t7_1_4 - 580.0f*g16_14*t7_1_4 + 580.0f*g16_24*t7_1_5 + 49300.0f*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0f*t7_1_0 - t7_1_1*t7_1_7 - 640.0f*t7_1_1 + t7_1_2*t7_1_6 + 54400.0f*t7_1_2 - t7_1_3*t7_1_7 - 640.0f*t7_1_3;
                 if (fabsf(dt2) > 1e-12f) {
-                    c2 = (168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 - 15776000.0f*c3*rc33 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 + 170.0f*g16_24*rc33*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
-                    s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y + 170.0f*g16_24*rc33*v1y - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y + 14297000.0f*rc33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
+                    c2 = (168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 + 15776000.0f*c3*r33 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 - 170.0f*g16_24*r33*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
+                    s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y - 170.0f*g16_24*r33*v1y - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y - 14297000.0f*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
                     free2 = 0;
                     wk2 = 1.0f;
                 }
@@ -292,11 +285,11 @@ static int closed_form(const float pose[16], const float *current,
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float g26_11 = c2*g16_11 + r32*s2;
-            const float g26_12 = c2*g16_12 + rc32*s2;
-            const float g26_13 = c2*g16_13 + rc33*s2;
+            const float g26_12 = c2*g16_12 - r31*s2;
+            const float g26_13 = c2*g16_13 - r33*s2;
             const float g26_21 = c2*r32 - g16_11*s2;
-            const float g26_22 = c2*rc32 - g16_12*s2;
-            const float g26_23 = c2*rc33 - g16_13*s2;
+            const float g26_22 = -c2*r31 - g16_12*s2;
+            const float g26_23 = -c2*r33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
@@ -315,10 +308,9 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const float sg5 = 1.0f;
             float th5, c5, s5;
             const float cn5 = g36_33;
-            const float sn5 = root5*sg5;
+            const float sn5 = root5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -363,12 +355,10 @@ static int closed_form(const float pose[16], const float *current,
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const float g46_11 = c4*g36_11 + g16_31*s4;
             const float g46_12 = c4*g36_12 + g16_32*s4;
-            const float g46_21 = -g36_31;
-            const float g46_22 = -g36_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 + g46_21*s5;
-            const float g56_12 = c5*g46_12 + g46_22*s5;
+            const float g56_11 = c5*g46_11 - g36_31*s5;
+            const float g56_12 = c5*g46_12 - g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
@@ -392,71 +382,89 @@ static int closed_form(const float pose[16], const float *current,
             const float lm0 = v1x;
             const float lm1 = 92800.0f*c3;
             const float lm2 = s5;
-            if (count < INSPECTOR6_IK_F32_CLOSED_FORM) {
-                inspector6_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2 - 1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * -57.2957795f;
+                const float jv2 = u2 * -57.2957795f;
                 float u3 = th3 - 1.78896248f;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 57.2957795f;
+                const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
-                out->joints[4] = th5 * -57.2957795f;
-                out->joints[5] = th6 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
-                out->conditioning[0] = root3 * 5.38793103e-06f;
-                out->conditioning[1] = root1 * 0.00316227766f;
-                out->conditioning[2] = root5 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv4 = u4 * 57.2957795f;
+                const float jv5 = th5 * -57.2957795f;
+                const float jv6 = th6 * 57.2957795f;
+                const float cv0 = root3 * 5.38793103e-06f;
+                const float cv1 = root1 * 0.00316227766f;
+                const float cv2 = root5 * 1.0f;
+                if (fine && count < INSPECTOR6_IK_F32_CLOSED_FORM) {
+                    inspector6_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0f && !free4) {
-                if (count < INSPECTOR6_IK_F32_CLOSED_FORM) {
-                    inspector6_ik_f32_solution *out = &solutions[count++];
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 57.2957795f;
+                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * -57.2957795f;
+                    const float jv2 = u2 * -57.2957795f;
                     float u3 = th3 - 1.78896248f;
                     u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    out->joints[2] = u3 * 57.2957795f;
+                    const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 57.2957795f;
+                    const float jv4 = u4 * 57.2957795f;
                     float u5 = -th5;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * -57.2957795f;
+                    const float jv5 = u5 * -57.2957795f;
                     float u6 = th6 + 3.14159265f;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                    out->joints[5] = u6 * 57.2957795f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
-                    out->conditioning[0] = root3 * 5.38793103e-06f;
-                    out->conditioning[1] = root1 * 0.00316227766f;
-                    out->conditioning[2] = root5 * 1.0f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv6 = u6 * 57.2957795f;
+                    const float cv0 = root3 * 5.38793103e-06f;
+                    const float cv1 = root1 * 0.00316227766f;
+                    const float cv2 = root5 * 1.0f;
+                    if (fine && count < INSPECTOR6_IK_F32_CLOSED_FORM) {
+                        inspector6_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
+                        out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

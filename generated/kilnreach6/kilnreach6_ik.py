@@ -338,9 +338,9 @@ def forward(joints):
     f19 = c2*c5
     f20 = f17*s5
     return [
-        [c6*f7 + f2*s6, c6*f2 - f7*s6, f8 + f9, f3*l3 + 250*f8 + 250*f9 - 150*s1],
-        [c6*f13 + f10*s6, c6*f10 - f13*s6, f14 + f15, 150*c1 + f11*l3 + 250*f14 + 250*f15],
-        [c6*f18 + f16*s6, c6*f16 - f18*s6, f19 - f20, c2*l3 + 250*f19 - 250*f20 + 900],
+        [c6*f7 + f2*s6, c6*f2 - f7*s6, f8 + f9, f3*l3 + 250.0*f8 + 250.0*f9 - 150.0*s1],
+        [c6*f13 + f10*s6, c6*f10 - f13*s6, f14 + f15, 150.0*c1 + f11*l3 + 250.0*f14 + 250.0*f15],
+        [c6*f18 + f16*s6, c6*f16 - f18*s6, f19 - f20, c2*l3 + 250.0*f19 - 250.0*f20 + 900.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -352,29 +352,25 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 140*r13
-    pcy = py - 140*r23
-    pcz = pz - 140*r33
+    pcx = px - 140.0*r13
+    pcy = py - 140.0*r23
+    pcz = pz - 140.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 110*r13
-    wy = pcy - 110*r23
-    wz = pcz - 110*r33
+    wx = pcx - 110.0*r13
+    wy = pcy - 110.0*r23
+    wz = pcz - 110.0*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    v1y = 900 - wz
-    g16_21 = -r31
-    g16_22 = -r32
-    g16_23 = -r33
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    v1y = 900.0 - wz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
-    er1 = t3_0 - 22500
+    er1 = t3_0 - 22500.0
 
     free1 = t3_0 <= 1e-14
-    if (22500 > 1e-14) if free1 else (er1 + 2e-09*t3_0 < 0.0):
+    if (22500.0 > 1e-14) if free1 else (er1 + 2e-09*t3_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -383,8 +379,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 150*wy
-            sn1 = 150*eb1 + root1*sg1*wy
+            cn1 = root1*sg1*wx + 150.0*wy
+            sn1 = root1*sg1*wy - 150.0*wx
             th1 = atan2(sn1, cn1)
             c1 = cn1/t3_0
             s1 = sn1/t3_0
@@ -405,7 +401,7 @@ def _closed_form(pose, current, check_finite=True):
         t5_0 = v1x*v1x + v1y*v1y
 
         free2 = t5_0 <= 1e-14
-        if (0 > 1e-14) if free2 else (1.000000002*t5_0 < 0.0):
+        if (0.0 > 1e-14) if free2 else (1.000000002*t5_0 < 0.0):
             continue
         root2 = sqrt(t5_0) if t5_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
@@ -414,11 +410,16 @@ def _closed_form(pose, current, check_finite=True):
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
-                cn2 = -root2*sg2*v1y
-                sn2 = root2*sg2*v1x
-                th2 = atan2(sn2, cn2)
-                c2 = cn2/t5_0
-                s2 = sn2/t5_0
+                if sg2 < 0.0:  # the second root: the first turned by half a turn
+                    th2 = th2 - _PI if th2 > 0.0 else th2 + _PI
+                    c2 = -c2
+                    s2 = -s2
+                else:
+                    cn2 = -root2*sg2*v1y
+                    sn2 = root2*sg2*v1x
+                    th2 = atan2(sn2, cn2)
+                    c2 = cn2/t5_0
+                    s2 = sn2/t5_0
 
             # A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             v2z = -c2*v1y + s2*v1x
@@ -426,17 +427,17 @@ def _closed_form(pose, current, check_finite=True):
             # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
             free3 = True
 
-            dn3 = -1
+            dn3 = -1.0
             l3 = (-v2z) / dn3
             free3 = False
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_31 = -c2*g16_21 + g16_11*s2
-            g26_32 = -c2*g16_22 + g16_12*s2
-            g26_33 = -c2*g16_23 + g16_13*s2
+            g26_11 = c2*g16_11 - r31*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_31 = c2*r31 + g16_11*s2
+            g26_32 = c2*r32 + g16_12*s2
+            g26_33 = c2*r33 + g16_13*s2
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -446,12 +447,9 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g26_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g26_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -484,21 +482,15 @@ def _closed_form(pose, current, check_finite=True):
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g26_11 + g16_31*s4
             g46_12 = c4*g26_12 + g16_32*s4
-            g46_21 = -g26_31
-            g46_22 = -g26_32
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
+            g56_11 = c5*g46_11 - g26_31*s5
+            g56_12 = c5*g46_12 - g26_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -514,13 +506,10 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (
@@ -577,29 +566,25 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 140*r13
-    pcy = py - 140*r23
-    pcz = pz - 140*r33
+    pcx = px - 140.0*r13
+    pcy = py - 140.0*r23
+    pcz = pz - 140.0*r33
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
-    wx = pcx - 110*r13
-    wy = pcy - 110*r23
-    wz = pcz - 110*r33
+    wx = pcx - 110.0*r13
+    wy = pcy - 110.0*r23
+    wz = pcz - 110.0*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    v1y = 900 - wz
-    g16_21 = -r31
-    g16_22 = -r32
-    g16_23 = -r33
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    v1y = 900.0 - wz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
-    er1 = t3_0 - 22500
+    er1 = t3_0 - 22500.0
 
     free1 = t3_0 <= 1e-14
-    if (22500 > 1e-14) if free1 else (er1 + 2e-09*t3_0 < 0.0):
+    if (22500.0 > 1e-14) if free1 else (er1 + 2e-09*t3_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -608,8 +593,8 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 150*wy
-            sn1 = 150*eb1 + root1*sg1*wy
+            cn1 = root1*sg1*wx + 150.0*wy
+            sn1 = root1*sg1*wy - 150.0*wx
             th1 = atan2(sn1, cn1)
             c1 = cn1/t3_0
             s1 = sn1/t3_0
@@ -630,7 +615,7 @@ def inverse_joints(pose, current=None):
         t5_0 = v1x*v1x + v1y*v1y
 
         free2 = t5_0 <= 1e-14
-        if (0 > 1e-14) if free2 else (1.000000002*t5_0 < 0.0):
+        if (0.0 > 1e-14) if free2 else (1.000000002*t5_0 < 0.0):
             continue
         root2 = sqrt(t5_0) if t5_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
@@ -639,11 +624,16 @@ def inverse_joints(pose, current=None):
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
-                cn2 = -root2*sg2*v1y
-                sn2 = root2*sg2*v1x
-                th2 = atan2(sn2, cn2)
-                c2 = cn2/t5_0
-                s2 = sn2/t5_0
+                if sg2 < 0.0:  # the second root: the first turned by half a turn
+                    th2 = th2 - _PI if th2 > 0.0 else th2 + _PI
+                    c2 = -c2
+                    s2 = -s2
+                else:
+                    cn2 = -root2*sg2*v1y
+                    sn2 = root2*sg2*v1x
+                    th2 = atan2(sn2, cn2)
+                    c2 = cn2/t5_0
+                    s2 = sn2/t5_0
 
             # A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             v2z = -c2*v1y + s2*v1x
@@ -651,17 +641,17 @@ def inverse_joints(pose, current=None):
             # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
             free3 = True
 
-            dn3 = -1
+            dn3 = -1.0
             l3 = (-v2z) / dn3
             free3 = False
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_31 = -c2*g16_21 + g16_11*s2
-            g26_32 = -c2*g16_22 + g16_12*s2
-            g26_33 = -c2*g16_23 + g16_13*s2
+            g26_11 = c2*g16_11 - r31*s2
+            g26_12 = c2*g16_12 - r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_31 = c2*r31 + g16_11*s2
+            g26_32 = c2*r32 + g16_12*s2
+            g26_33 = c2*r33 + g16_13*s2
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -671,12 +661,9 @@ def inverse_joints(pose, current=None):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g26_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g26_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -709,21 +696,15 @@ def inverse_joints(pose, current=None):
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g26_11 + g16_31*s4
             g46_12 = c4*g26_12 + g16_32*s4
-            g46_21 = -g26_31
-            g46_22 = -g26_32
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g46_21*s5
-            g56_12 = c5*g46_12 + g46_22*s5
+            g56_11 = c5*g46_11 - g26_31*s5
+            g56_12 = c5*g46_12 - g26_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -733,13 +714,10 @@ def inverse_joints(pose, current=None):
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
                 continue
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (

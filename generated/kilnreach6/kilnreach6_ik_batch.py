@@ -122,15 +122,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 110*r23
         wz = pcz - 110*r33
 
-        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         v1y = 900 - wz
-        g16_21 = -r31
-        g16_22 = -r32
-        g16_23 = -r33
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        eb1 = -wx
         er1 = t3_0 - 22500
 
         free1 = t3_0 <= 1e-14
@@ -138,8 +134,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1 + 150*wy
-        sn1 = 150*eb1 + root1*sg1*wy
+        cn1 = root1*sg1*wx + 150*wy
+        sn1 = root1*sg1*wy - 150*wx
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t3_0
         s1 = sn1/t3_0
@@ -191,21 +187,20 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen3 = chosen3 | use
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        g26_11 = c2*g16_11 + g16_21*s2
-        g26_12 = c2*g16_12 + g16_22*s2
-        g26_13 = c2*g16_13 + g16_23*s2
-        g26_31 = -c2*g16_21 + g16_11*s2
-        g26_32 = -c2*g16_22 + g16_12*s2
-        g26_33 = -c2*g16_23 + g16_13*s2
+        g26_11 = c2*g16_11 - r31*s2
+        g26_12 = c2*g16_12 - r32*s2
+        g26_13 = c2*g16_13 - r33*s2
+        g26_31 = c2*r31 + g16_11*s2
+        g26_32 = c2*r32 + g16_12*s2
+        g26_33 = c2*r33 + g16_13*s2
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
         er5 = g16_33*g16_33 + g26_13*g26_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = g26_33
-        sn5 = root5*sg5
+        sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
         s5 = sn5
@@ -241,12 +236,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g26_11 + g16_31*s4
         g46_12 = c4*g26_12 + g16_32*s4
-        g46_21 = -g26_31
-        g46_22 = -g26_32
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 + g46_21*s5
-        g56_12 = c5*g46_12 + g46_22*s5
+        g56_11 = c5*g46_11 - g26_31*s5
+        g56_12 = c5*g46_12 - g26_32*s5
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)

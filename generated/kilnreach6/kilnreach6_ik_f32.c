@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const kilnreach6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < KILNREACH6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < KILNREACH6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void kilnreach6_ik_f32_forward(const float joints[KILNREACH6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -138,16 +126,12 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 110.0f*r23;
     const float wz = pcz - 110.0f*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float v1y = 900.0f - wz;
-    const float g16_21 = -r31;
-    const float g16_22 = -r32;
-    const float g16_23 = -r33;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
-    const float eb1 = -wx;
     const float er1 = t3_0 - 22500.0f;
 
     const int free1 = t3_0 <= 1e-14f;
@@ -165,8 +149,8 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = -eb1*root1*sg1 + 150.0f*wy;
-            const float sn1 = 150.0f*eb1 + root1*sg1*wy;
+            const float cn1 = root1*sg1*wx + 150.0f*wy;
+            const float sn1 = root1*sg1*wy - 150.0f*wx;
             th1 = atan2f(sn1, cn1);
             c1 = cn1/t3_0;
             s1 = sn1/t3_0;
@@ -194,6 +178,7 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root2 = t5_0 > 0.0f ? sqrtf(t5_0) : 0.0f;
         const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
+        float ta2 = 0.0f, ca2 = 0.0f, sa2 = 0.0f;   /* the first root, for the second */
         for (int k2 = 0; k2 < n2; ++k2) {
             const float sg2 = k2 ? -1.0f : 1.0f;
             float th2, c2, s2;
@@ -202,11 +187,21 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                const float cn2 = -root2*sg2*v1y;
-                const float sn2 = root2*sg2*v1x;
-                th2 = atan2f(sn2, cn2);
-                c2 = cn2/t5_0;
-                s2 = sn2/t5_0;
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0f ? ta2 - 3.14159265f : ta2 + 3.14159265f;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const float cn2 = -root2*sg2*v1y;
+                    const float sn2 = root2*sg2*v1x;
+                    th2 = atan2f(sn2, cn2);
+                    c2 = cn2/t5_0;
+                    s2 = sn2/t5_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
 
             }
 
@@ -225,12 +220,12 @@ static int closed_form(const float pose[16], const float *current,
             (void)free3;
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const float g26_11 = c2*g16_11 + g16_21*s2;
-            const float g26_12 = c2*g16_12 + g16_22*s2;
-            const float g26_13 = c2*g16_13 + g16_23*s2;
-            const float g26_31 = -c2*g16_21 + g16_11*s2;
-            const float g26_32 = -c2*g16_22 + g16_12*s2;
-            const float g26_33 = -c2*g16_23 + g16_13*s2;
+            const float g26_11 = c2*g16_11 - r31*s2;
+            const float g26_12 = c2*g16_12 - r32*s2;
+            const float g26_13 = c2*g16_13 - r33*s2;
+            const float g26_31 = c2*r31 + g16_11*s2;
+            const float g26_32 = c2*r32 + g16_12*s2;
+            const float g26_33 = c2*r33 + g16_13*s2;
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -241,10 +236,9 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const float sg5 = 1.0f;
             float th5, c5, s5;
             const float cn5 = g26_33;
-            const float sn5 = root5*sg5;
+            const float sn5 = root5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -289,12 +283,10 @@ static int closed_form(const float pose[16], const float *current,
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
             const float g46_11 = c4*g26_11 + g16_31*s4;
             const float g46_12 = c4*g26_12 + g16_32*s4;
-            const float g46_21 = -g26_31;
-            const float g46_22 = -g26_32;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 + g46_21*s5;
-            const float g56_12 = c5*g46_12 + g46_22*s5;
+            const float g56_11 = c5*g46_11 - g26_31*s5;
+            const float g56_12 = c5*g46_12 - g26_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
@@ -325,65 +317,85 @@ static int closed_form(const float pose[16], const float *current,
             const float lm0 = v1x;
             const float lm1 = s5;
             const float lm2 = -c2*v1y + s2*v1x;
-            if (count < KILNREACH6_IK_F32_CLOSED_FORM) {
-                kilnreach6_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
-                out->joints[2] = (l3 - 0.0f) * 1.0f;
+                const float jv2 = u2 * 57.2957795f;
+                const float jv3 = (l3 - 0.0f) * 1.0f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 57.2957795f;
-                out->joints[4] = th5 * 57.2957795f;
-                out->joints[5] = th6 * 57.2957795f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f || root5 == 0.0f || free4;
-                out->conditioning[0] = root1 * 0.001f;
-                out->conditioning[1] = root2 * 0.001f;
-                out->conditioning[2] = root5 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv4 = u4 * 57.2957795f;
+                const float jv5 = th5 * 57.2957795f;
+                const float jv6 = th6 * 57.2957795f;
+                const float cv0 = root1 * 0.001f;
+                const float cv1 = root2 * 0.001f;
+                const float cv2 = root5 * 1.0f;
+                if (fine && count < KILNREACH6_IK_F32_CLOSED_FORM) {
+                    kilnreach6_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f || root5 == 0.0f || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0f && !free4) {
-                if (count < KILNREACH6_IK_F32_CLOSED_FORM) {
-                    kilnreach6_ik_f32_solution *out = &solutions[count++];
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 57.2957795f;
+                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * 57.2957795f;
-                    out->joints[2] = (l3 - 0.0f) * 1.0f;
+                    const float jv2 = u2 * 57.2957795f;
+                    const float jv3 = (l3 - 0.0f) * 1.0f;
                     float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 57.2957795f;
+                    const float jv4 = u4 * 57.2957795f;
                     float u5 = -th5;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * 57.2957795f;
+                    const float jv5 = u5 * 57.2957795f;
                     float u6 = th6 + 3.14159265f;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                    out->joints[5] = u6 * 57.2957795f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? -1 : 1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f || root5 == 0.0f || free4;
-                    out->conditioning[0] = root1 * 0.001f;
-                    out->conditioning[1] = root2 * 0.001f;
-                    out->conditioning[2] = root5 * 1.0f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv6 = u6 * 57.2957795f;
+                    const float cv0 = root1 * 0.001f;
+                    const float cv1 = root2 * 0.001f;
+                    const float cv2 = root5 * 1.0f;
+                    if (fine && count < KILNREACH6_IK_F32_CLOSED_FORM) {
+                        kilnreach6_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? -1 : 1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                        out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f || root5 == 0.0f || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const kitter6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < KITTER6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < KITTER6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void kitter6_ik_forward(const double joints[KITTER6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -188,19 +176,18 @@ static int closed_form(const double pose[16], const double *current,
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double ec5 = -g16_23;
         const double er5 = g16_13*g16_13 + r33*r33;
 
         if (er5 + 2.0000000000000001e-09 < 0.0) {
             continue;
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
-        const double dl5 = atan2(root5, ec5);   /* th = gamma + sg * dl */
+        const double dl5 = atan2(root5, -g16_23);   /* th = gamma + sg * dl */
         const int n5 = (root5 == 0.0) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const double sg5 = k5 ? -1.0 : 1.0;
             double th5, c5, s5;
-            const double cn5 = ec5;
+            const double cn5 = -g16_23;
             const double sn5 = root5*sg5;
             th5 = 0.0 + sg5 * dl5;
             c5 = cn5;
@@ -252,16 +239,14 @@ static int closed_form(const double pose[16], const double *current,
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
             const double g04_11 = c5*g05_11 - r13*s5;
-            const double g04_12 = -g05_13;
             const double g04_14 = -104.0*g05_13 + g05_14;
             const double g04_21 = c5*g05_21 - r23*s5;
-            const double g04_22 = -g05_23;
             const double g04_24 = -104.0*g05_23 + g05_24;
             const double g04_34 = -104.0*g05_33 + g05_34;
 
             /* A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one) */
             const double g14_11 = c1*g04_11 + g04_21*s1;
-            const double g14_12 = c1*g04_12 + g04_22*s1;
+            const double g14_12 = -c1*g05_13 - g05_23*s1;
             const double g14_14 = c1*g04_14 + g04_24*s1;
             const double g14_24 = c1*g04_24 - g04_14*s1;
             const double g14_34 = g04_34 - 142.0;
@@ -340,42 +325,51 @@ static int closed_form(const double pose[16], const double *current,
                 const double lm0 = -78.0*g16_13 + g16_14;
                 const double lm1 = -97350.0*s3;
                 const double lm2 = s5;
-                if (count < KITTER6_IK_CLOSED_FORM) {
-                    kitter6_ik_solution *out = &solutions[count++];
+                /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+                 * mirrored solution's values follow from these) */
+                const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
+                const int fine = probe - probe == 0.0;
+                {
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 57.295779513082323;
+                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 57.295779513082323;
+                    const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    out->joints[2] = u3 * 57.295779513082323;
+                    const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 - -1.5707963267948966;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 57.295779513082323;
+                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 57.295779513082323;
+                    const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                    out->joints[5] = u6 * 57.295779513082323;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0 || root5 == 0.0 || free6 || root3 == 0.0 || free2;
-                    out->conditioning[0] = root1 * 0.003162277660168379;
-                    out->conditioning[1] = root5 * 1.0;
-                    out->conditioning[2] = root3 * 5.1361068310220853e-06;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv6 = u6 * 57.295779513082323;
+                    const double cv0 = root1 * 0.003162277660168379;
+                    const double cv1 = root5 * 1.0;
+                    const double cv2 = root3 * 5.1361068310220853e-06;
+                    if (fine && count < KITTER6_IK_CLOSED_FORM) {
+                        kitter6_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                        out->singular = free1 || root1 == 0.0 || root5 == 0.0 || free6 || root3 == 0.0 || free2;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
 

@@ -347,9 +347,9 @@ def forward(joints):
     f28 = f23*s4 - f27
     f29 = f25*s5
     return [
-        [c6*f11 - f9*s6, -c6*f9 - f11*s6, f12 - f13, 330*c1*c2 + 140*f12 - 140*f13 - 104*f3 + 295*f5 - 295*f7 + 104*f8*s4 + 121*s1],
-        [c6*f20 - f18*s6, -c6*f18 - f20*s6, -f21 - f22, -121*c1 + 295*c2*c3*s1 + 330*c2*s1 - 104*f15 - 295*f16 + 104*f17*s4 - 140*f21 - 140*f22],
-        [c6*f26 - f28*s6, -c6*f28 - f26*s6, -f29, 295*f0 + 295*f1 + 104*f23*s4 - 104*f27 - 140*f29 + 330*s2 + 142],
+        [c6*f11 - f9*s6, -c6*f9 - f11*s6, f12 - f13, 330.0*c1*c2 + 140.0*f12 - 140.0*f13 - 104.0*f3 + 295.0*f5 - 295.0*f7 + 104.0*f8*s4 + 121.0*s1],
+        [c6*f20 - f18*s6, -c6*f18 - f20*s6, -f21 - f22, -121.0*c1 + 295.0*c2*c3*s1 + 330.0*c2*s1 - 104.0*f15 - 295.0*f16 + 104.0*f17*s4 - 140.0*f21 - 140.0*f22],
+        [c6*f26 - f28*s6, -c6*f28 - f26*s6, -f29, 295.0*f0 + 295.0*f1 + 104.0*f23*s4 - 104.0*f27 - 140.0*f29 + 330.0*s2 + 142.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -361,24 +361,24 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 62*r13
-    pcy = py - 62*r23
-    pcz = pz - 62*r33
+    pcx = px - 62.0*r13
+    pcy = py - 62.0*r23
+    pcz = pz - 62.0*r33
 
     # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
-    g05_14 = pcx - 78*r13
-    g05_24 = pcy - 78*r23
-    g05_34 = pcz - 78*r33
+    g05_14 = pcx - 78.0*r13
+    g05_24 = pcy - 78.0*r23
+    g05_34 = pcz - 78.0*r33
 
     # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t2_0 = pcx*pcx - 156*pcx*r13 + pcy*pcy - 156*pcy*r23 + 6084*r13*r13 + 6084*r23*r23
-    ea1 = pcy - 78*r23
-    eb1 = -pcx + 78*r13
-    er1 = t2_0 - 14641
+    t2_0 = pcx*pcx - 156.0*pcx*r13 + pcy*pcy - 156.0*pcy*r23 + 6084.0*r13*r13 + 6084.0*r23*r23
+    ea1 = pcy - 78.0*r23
+    eb1 = -pcx + 78.0*r13
+    er1 = t2_0 - 14641.0
 
     free1 = t2_0 <= 9.999999999999999e-16
-    if (14641 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
+    if (14641.0 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -387,8 +387,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -121*ea1 - eb1*root1*sg1
-            sn1 = ea1*root1*sg1 - 121*eb1
+            cn1 = -121.0*ea1 - eb1*root1*sg1
+            sn1 = ea1*root1*sg1 - 121.0*eb1
             th1 = atan2(sn1, cn1)
             c1 = cn1/t2_0
             s1 = sn1/t2_0
@@ -402,15 +402,14 @@ def _closed_form(pose, current, check_finite=True):
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        ec5 = -g16_23
         er5 = g16_13*g16_13 + r33*r33
 
         if er5 + 2e-09 < 0.0:
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
-        dl5 = atan2(root5, ec5)  # th = gamma + sg * dl
+        dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
-            cn5 = ec5
+            cn5 = -g16_23
             sn5 = root5*sg5
             th5 = 0.0 + sg5 * dl5
             c5 = cn5
@@ -453,28 +452,22 @@ def _closed_form(pose, current, check_finite=True):
 
             # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
             g04_11 = c5*g05_11 - r13*s5
-            g04_12 = -g05_13
-            g04_14 = -104*g05_13 + g05_14
+            g04_14 = -104.0*g05_13 + g05_14
             g04_21 = c5*g05_21 - r23*s5
-            g04_22 = -g05_23
-            g04_24 = -104*g05_23 + g05_24
-            g04_34 = -104*g05_33 + g05_34
+            g04_24 = -104.0*g05_23 + g05_24
+            g04_34 = -104.0*g05_33 + g05_34
 
             # A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one)
             g14_11 = c1*g04_11 + g04_21*s1
-            g14_12 = c1*g04_12 + g04_22*s1
+            g14_12 = -c1*g05_13 - g05_23*s1
             g14_14 = c1*g04_14 + g04_24*s1
             g14_24 = c1*g04_24 - g04_14*s1
-            g14_34 = g04_34 - 142
+            g14_34 = g04_34 - 142.0
 
             # thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            freep234 = True
 
-            dtp234 = 1
             cp234 = g14_11
             sp234 = -g14_12
-            freep234 = False
-
             hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-4:
                 continue
@@ -483,28 +476,28 @@ def _closed_form(pose, current, check_finite=True):
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
-            ec3 = 210566 - t10_0
-            er3 = (405266 - t10_0)*(t10_0 - 15866)
+            ec3 = 210566.0 - t10_0
+            er3 = (405266.0 - t10_0)*(t10_0 - 15866.0)
 
             if er3 + 75.81618 < 0.0:
                 continue
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-                cn3 = -194700*ec3
-                sn3 = -194700*root3*sg3
+                cn3 = -194700.0*ec3
+                sn3 = -194700.0*root3*sg3
                 th3 = 3.141592653589793 + sg3 * dl3
                 c3 = 2.6379593379671728e-11*cn3
                 s3 = 2.6379593379671728e-11*sn3
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
                 free2 = True
-                t11_0_0 = 295*c3
+                t11_0_0 = 295.0*c3
 
-                dt2 = -194700*c3 - 195925
+                dt2 = -194700.0*c3 - 195925.0
                 if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (-g14_14*t11_0_0 - 330*g14_14 - 295*g14_34*s3) / dt2
-                    s2 = (295*g14_14*s3 - g14_34*t11_0_0 - 330*g14_34) / dt2
+                    c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
+                    s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
                     free2 = False
                     wk2 = 0.0009999999999999998
 
@@ -526,27 +519,20 @@ def _closed_form(pose, current, check_finite=True):
 
                 # Joint readings, configuration labels, singular flag.
 
-                lm0 = -78*g16_13 + g16_14
-                lm1 = -97350*s3
+                lm0 = -78.0*g16_13 + g16_14
+                lm1 = -97350.0*s3
                 lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5 * 1.0, root3 * 5.136106831022085e-06, )
-                u1 = th1
-                u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+                u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-                u3 = th3
-                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+                u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u5 = th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-                u6 = th6
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
                 q = (
                     u1 * 57.29577951308232,
                     u2 * 57.29577951308232,
@@ -580,24 +566,24 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    pcx = px - 62*r13
-    pcy = py - 62*r23
-    pcz = pz - 62*r33
+    pcx = px - 62.0*r13
+    pcy = py - 62.0*r23
+    pcz = pz - 62.0*r33
 
     # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them)
-    g05_14 = pcx - 78*r13
-    g05_24 = pcy - 78*r23
-    g05_34 = pcz - 78*r33
+    g05_14 = pcx - 78.0*r13
+    g05_24 = pcy - 78.0*r23
+    g05_34 = pcz - 78.0*r33
 
     # th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-    t2_0 = pcx*pcx - 156*pcx*r13 + pcy*pcy - 156*pcy*r23 + 6084*r13*r13 + 6084*r23*r23
-    ea1 = pcy - 78*r23
-    eb1 = -pcx + 78*r13
-    er1 = t2_0 - 14641
+    t2_0 = pcx*pcx - 156.0*pcx*r13 + pcy*pcy - 156.0*pcy*r23 + 6084.0*r13*r13 + 6084.0*r23*r23
+    ea1 = pcy - 78.0*r23
+    eb1 = -pcx + 78.0*r13
+    er1 = t2_0 - 14641.0
 
     free1 = t2_0 <= 9.999999999999999e-16
-    if (14641 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
+    if (14641.0 > 9.999999999999999e-16) if free1 else (er1 + 2e-09*t2_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -606,8 +592,8 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -121*ea1 - eb1*root1*sg1
-            sn1 = ea1*root1*sg1 - 121*eb1
+            cn1 = -121.0*ea1 - eb1*root1*sg1
+            sn1 = ea1*root1*sg1 - 121.0*eb1
             th1 = atan2(sn1, cn1)
             c1 = cn1/t2_0
             s1 = sn1/t2_0
@@ -621,15 +607,14 @@ def inverse_joints(pose, current=None):
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        ec5 = -g16_23
         er5 = g16_13*g16_13 + r33*r33
 
         if er5 + 2e-09 < 0.0:
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
-        dl5 = atan2(root5, ec5)  # th = gamma + sg * dl
+        dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
-            cn5 = ec5
+            cn5 = -g16_23
             sn5 = root5*sg5
             th5 = 0.0 + sg5 * dl5
             c5 = cn5
@@ -672,28 +657,22 @@ def inverse_joints(pose, current=None):
 
             # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
             g04_11 = c5*g05_11 - r13*s5
-            g04_12 = -g05_13
-            g04_14 = -104*g05_13 + g05_14
+            g04_14 = -104.0*g05_13 + g05_14
             g04_21 = c5*g05_21 - r23*s5
-            g04_22 = -g05_23
-            g04_24 = -104*g05_23 + g05_24
-            g04_34 = -104*g05_33 + g05_34
+            g04_24 = -104.0*g05_23 + g05_24
+            g04_34 = -104.0*g05_33 + g05_34
 
             # A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one)
             g14_11 = c1*g04_11 + g04_21*s1
-            g14_12 = c1*g04_12 + g04_22*s1
+            g14_12 = -c1*g05_13 - g05_23*s1
             g14_14 = c1*g04_14 + g04_24*s1
             g14_24 = c1*g04_24 - g04_14*s1
-            g14_34 = g04_34 - 142
+            g14_34 = g04_34 - 142.0
 
             # thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            freep234 = True
 
-            dtp234 = 1
             cp234 = g14_11
             sp234 = -g14_12
-            freep234 = False
-
             hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-4:
                 continue
@@ -702,28 +681,28 @@ def inverse_joints(pose, current=None):
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
-            ec3 = 210566 - t10_0
-            er3 = (405266 - t10_0)*(t10_0 - 15866)
+            ec3 = 210566.0 - t10_0
+            er3 = (405266.0 - t10_0)*(t10_0 - 15866.0)
 
             if er3 + 75.81618 < 0.0:
                 continue
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-                cn3 = -194700*ec3
-                sn3 = -194700*root3*sg3
+                cn3 = -194700.0*ec3
+                sn3 = -194700.0*root3*sg3
                 th3 = 3.141592653589793 + sg3 * dl3
                 c3 = 2.6379593379671728e-11*cn3
                 s3 = 2.6379593379671728e-11*sn3
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
                 free2 = True
-                t11_0_0 = 295*c3
+                t11_0_0 = 295.0*c3
 
-                dt2 = -194700*c3 - 195925
+                dt2 = -194700.0*c3 - 195925.0
                 if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (-g14_14*t11_0_0 - 330*g14_14 - 295*g14_34*s3) / dt2
-                    s2 = (295*g14_14*s3 - g14_34*t11_0_0 - 330*g14_34) / dt2
+                    c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
+                    s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
                     free2 = False
                     wk2 = 0.0009999999999999998
 
@@ -744,22 +723,15 @@ def inverse_joints(pose, current=None):
                 th4 = thp234 - th3 - th2
 
                 # Joint readings, configuration labels, singular flag.
-                u1 = th1
-                u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+                u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-                u3 = th3
-                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-                u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+                u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u5 = th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
-                u6 = th6
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
                 q = (
                     u1 * 57.29577951308232,
                     u2 * 57.29577951308232,

@@ -152,14 +152,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_23 = c1*r23 - r13*s1
 
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
-        ec5 = -g16_23
         er5 = g16_13*g16_13 + r33*r33
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
         sg5 = _SIGNS.reshape(1, 1, 2, 1)
         valid = valid & ~((sg5 < 0.0) & ((root5 == 0.0)))
-        cn5 = ec5
+        cn5 = -g16_23
         sn5 = root5*sg5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
@@ -202,16 +201,14 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one)
         g04_11 = c5*g05_11 - r13*s5
-        g04_12 = -g05_13
         g04_14 = -104*g05_13 + g05_14
         g04_21 = c5*g05_21 - r23*s5
-        g04_22 = -g05_23
         g04_24 = -104*g05_23 + g05_24
         g04_34 = -104*g05_33 + g05_34
 
         # A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one)
         g14_11 = c1*g04_11 + g04_21*s1
-        g14_12 = c1*g04_12 + g04_22*s1
+        g14_12 = -c1*g05_13 - g05_23*s1
         g14_14 = c1*g04_14 + g04_24*s1
         g14_24 = c1*g04_24 - g04_14*s1
         g14_34 = g04_34 - 142
@@ -280,13 +277,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 - -1.5707963267948966
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
         u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
         u6 = th6
         u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)

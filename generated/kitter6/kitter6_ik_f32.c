@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const kitter6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < KITTER6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < KITTER6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void kitter6_ik_f32_forward(const float joints[KITTER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -188,19 +176,18 @@ static int closed_form(const float pose[16], const float *current,
 
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float ec5 = -g16_23;
         const float er5 = g16_13*g16_13 + r33*r33;
 
         if (er5 + 2e-05f < 0.0f) {
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
-        const float dl5 = atan2f(root5, ec5);   /* th = gamma + sg * dl */
+        const float dl5 = atan2f(root5, -g16_23);   /* th = gamma + sg * dl */
         const int n5 = (root5 == 0.0f) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const float sg5 = k5 ? -1.0f : 1.0f;
             float th5, c5, s5;
-            const float cn5 = ec5;
+            const float cn5 = -g16_23;
             const float sn5 = root5*sg5;
             th5 = 0.0f + sg5 * dl5;
             c5 = cn5;
@@ -252,16 +239,14 @@ static int closed_form(const float pose[16], const float *current,
 
             /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
             const float g04_11 = c5*g05_11 - r13*s5;
-            const float g04_12 = -g05_13;
             const float g04_14 = -104.0f*g05_13 + g05_14;
             const float g04_21 = c5*g05_21 - r23*s5;
-            const float g04_22 = -g05_23;
             const float g04_24 = -104.0f*g05_23 + g05_24;
             const float g04_34 = -104.0f*g05_33 + g05_34;
 
             /* A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one) */
             const float g14_11 = c1*g04_11 + g04_21*s1;
-            const float g14_12 = c1*g04_12 + g04_22*s1;
+            const float g14_12 = -c1*g05_13 - g05_23*s1;
             const float g14_14 = c1*g04_14 + g04_24*s1;
             const float g14_24 = c1*g04_24 - g04_14*s1;
             const float g14_34 = g04_34 - 142.0f;
@@ -340,42 +325,51 @@ static int closed_form(const float pose[16], const float *current,
                 const float lm0 = -78.0f*g16_13 + g16_14;
                 const float lm1 = -97350.0f*s3;
                 const float lm2 = s5;
-                if (count < KITTER6_IK_F32_CLOSED_FORM) {
-                    kitter6_ik_f32_solution *out = &solutions[count++];
+                /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+                 * mirrored solution's values follow from these) */
+                const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
+                const int fine = probe - probe == 0.0f;
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 57.2957795f;
+                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * 57.2957795f;
+                    const float jv2 = u2 * 57.2957795f;
                     float u3 = th3;
                     u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    out->joints[2] = u3 * 57.2957795f;
+                    const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 - -1.57079633f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 57.2957795f;
+                    const float jv4 = u4 * 57.2957795f;
                     float u5 = th5;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * 57.2957795f;
+                    const float jv5 = u5 * 57.2957795f;
                     float u6 = th6;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                    out->joints[5] = u6 * 57.2957795f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0f || root5 == 0.0f || free6 || root3 == 0.0f || free2;
-                    out->conditioning[0] = root1 * 0.00316227766f;
-                    out->conditioning[1] = root5 * 1.0f;
-                    out->conditioning[2] = root3 * 5.13610683e-06f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv6 = u6 * 57.2957795f;
+                    const float cv0 = root1 * 0.00316227766f;
+                    const float cv1 = root5 * 1.0f;
+                    const float cv2 = root3 * 5.13610683e-06f;
+                    if (fine && count < KITTER6_IK_F32_CLOSED_FORM) {
+                        kitter6_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                        out->singular = free1 || root1 == 0.0f || root5 == 0.0f || free6 || root3 == 0.0f || free2;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
 

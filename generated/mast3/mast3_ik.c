@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const mast3_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < MAST3_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < MAST3_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void mast3_ik_forward(const double joints[MAST3_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 0.017453292519943295 * joints[0];
@@ -97,7 +85,6 @@ static int closed_form(const double pose[16], const double *current,
     /* th1: z of A1^-1 p = A2 A3 t
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t1_0 = px*px + py*py;
-    const double eb1 = -px;
     const double er1 = t1_0 - 14400.0;
 
     const int free1 = t1_0 <= 1e-14;
@@ -115,8 +102,8 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = -eb1*root1*sg1 + 120.0*py;
-            const double sn1 = 120.0*eb1 + py*root1*sg1;
+            const double cn1 = px*root1*sg1 + 120.0*py;
+            const double sn1 = -120.0*px + py*root1*sg1;
             th1 = atan2(sn1, cn1);
             c1 = cn1/t1_0;
             s1 = sn1/t1_0;
@@ -136,6 +123,7 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root2 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
         const int n2 = (free2 || root2 == 0.0) ? 1 : 2;
+        double ta2 = 0.0, ca2 = 0.0, sa2 = 0.0;   /* the first root, for the second */
         for (int k2 = 0; k2 < n2; ++k2) {
             const double sg2 = k2 ? -1.0 : 1.0;
             double th2, c2, s2;
@@ -144,11 +132,21 @@ static int closed_form(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                const double cn2 = -q1y*root2*sg2;
-                const double sn2 = q1x*root2*sg2;
-                th2 = atan2(sn2, cn2);
-                c2 = cn2/t3_0;
-                s2 = sn2/t3_0;
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0 ? ta2 - 3.1415926535897931 : ta2 + 3.1415926535897931;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const double cn2 = -q1y*root2*sg2;
+                    const double sn2 = q1x*root2*sg2;
+                    th2 = atan2(sn2, cn2);
+                    c2 = cn2/t3_0;
+                    s2 = sn2/t3_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
 
             }
 
@@ -177,25 +175,33 @@ static int closed_form(const double pose[16], const double *current,
 
             const double lm0 = q1x;
             const double lm1 = -c2*q1y + q1x*s2;
-            if (count < MAST3_IK_CLOSED_FORM) {
-                mast3_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = ((th1 + th2) + l3) + (root1 + root2);
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 57.295779513082323;
+                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 57.295779513082323;
-                out->joints[2] = (l3 - 0.0) * 1.0;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->singular = free1 || root1 == 0.0 || free2 || root2 == 0.0;
-                out->conditioning[0] = root1 * 0.001;
-                out->conditioning[1] = root2 * 0.001;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv2 = u2 * 57.295779513082323;
+                const double jv3 = (l3 - 0.0) * 1.0;
+                const double cv0 = root1 * 0.001;
+                const double cv1 = root2 * 0.001;
+                if (fine && count < MAST3_IK_CLOSED_FORM) {
+                    mast3_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0 || free2 || root2 == 0.0;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
                 }
             }
 

@@ -306,9 +306,9 @@ def forward(joints):
     f0 = c1*s2
     f1 = s1*s2
     return [
-        [c1*c2, -s1, f0, f0*l3 + 90*f0 - 120*s1],
-        [c2*s1, c1, f1, 120*c1 + f1*l3 + 90*f1],
-        [-s2, 0, c2, c2*l3 + 90*c2 + 1500],
+        [c1*c2, -s1, f0, f0*l3 + 90.0*f0 - 120.0*s1],
+        [c2*s1, c1, f1, 120.0*c1 + f1*l3 + 90.0*f1],
+        [-s2, 0.0, c2, c2*l3 + 90.0*c2 + 1500.0],
         [0.0, 0.0, 0.0, 1.0],
     ]
 
@@ -320,16 +320,15 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    q1y = 1500 - pz
+    q1y = 1500.0 - pz
 
     # th1: z of A1^-1 p = A2 A3 t
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t1_0 = px*px + py*py
-    eb1 = -px
-    er1 = t1_0 - 14400
+    er1 = t1_0 - 14400.0
 
     free1 = t1_0 <= 1e-14
-    if (14400 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
+    if (14400.0 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -338,8 +337,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 120*py
-            sn1 = 120*eb1 + py*root1*sg1
+            cn1 = px*root1*sg1 + 120.0*py
+            sn1 = -120.0*px + py*root1*sg1
             th1 = atan2(sn1, cn1)
             c1 = cn1/t1_0
             s1 = sn1/t1_0
@@ -352,7 +351,7 @@ def _closed_form(pose, current, check_finite=True):
         t3_0 = q1x*q1x + q1y*q1y
 
         free2 = t3_0 <= 1e-14
-        if (0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
+        if (0.0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
             continue
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
@@ -361,11 +360,16 @@ def _closed_form(pose, current, check_finite=True):
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
-                cn2 = -q1y*root2*sg2
-                sn2 = q1x*root2*sg2
-                th2 = atan2(sn2, cn2)
-                c2 = cn2/t3_0
-                s2 = sn2/t3_0
+                if sg2 < 0.0:  # the second root: the first turned by half a turn
+                    th2 = th2 - _PI if th2 > 0.0 else th2 + _PI
+                    c2 = -c2
+                    s2 = -s2
+                else:
+                    cn2 = -q1y*root2*sg2
+                    sn2 = q1x*root2*sg2
+                    th2 = atan2(sn2, cn2)
+                    c2 = cn2/t3_0
+                    s2 = sn2/t3_0
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2z = -c2*q1y + q1x*s2
@@ -373,8 +377,8 @@ def _closed_form(pose, current, check_finite=True):
             # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
             free3 = True
 
-            dn3 = -1
-            l3 = (90 - q2z) / dn3
+            dn3 = -1.0
+            l3 = (90.0 - q2z) / dn3
             free3 = False
 
             # Joint readings, configuration labels, singular flag.
@@ -386,10 +390,8 @@ def _closed_form(pose, current, check_finite=True):
             lm1 = -c2*q1y + q1x*s2
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0
             conditioning = (root1 * 0.001, root2 * 0.001, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
             q = (
                 u1 * 57.29577951308232,
@@ -420,16 +422,15 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-    q1y = 1500 - pz
+    q1y = 1500.0 - pz
 
     # th1: z of A1^-1 p = A2 A3 t
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t1_0 = px*px + py*py
-    eb1 = -px
-    er1 = t1_0 - 14400
+    er1 = t1_0 - 14400.0
 
     free1 = t1_0 <= 1e-14
-    if (14400 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
+    if (14400.0 > 1e-14) if free1 else (er1 + 2e-09*t1_0 < 0.0):
         return solutions
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -438,8 +439,8 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 120*py
-            sn1 = 120*eb1 + py*root1*sg1
+            cn1 = px*root1*sg1 + 120.0*py
+            sn1 = -120.0*px + py*root1*sg1
             th1 = atan2(sn1, cn1)
             c1 = cn1/t1_0
             s1 = sn1/t1_0
@@ -452,7 +453,7 @@ def inverse_joints(pose, current=None):
         t3_0 = q1x*q1x + q1y*q1y
 
         free2 = t3_0 <= 1e-14
-        if (0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
+        if (0.0 > 1e-14) if free2 else (1.000000002*t3_0 < 0.0):
             continue
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
@@ -461,11 +462,16 @@ def inverse_joints(pose, current=None):
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
-                cn2 = -q1y*root2*sg2
-                sn2 = q1x*root2*sg2
-                th2 = atan2(sn2, cn2)
-                c2 = cn2/t3_0
-                s2 = sn2/t3_0
+                if sg2 < 0.0:  # the second root: the first turned by half a turn
+                    th2 = th2 - _PI if th2 > 0.0 else th2 + _PI
+                    c2 = -c2
+                    s2 = -s2
+                else:
+                    cn2 = -q1y*root2*sg2
+                    sn2 = q1x*root2*sg2
+                    th2 = atan2(sn2, cn2)
+                    c2 = cn2/t3_0
+                    s2 = sn2/t3_0
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2z = -c2*q1y + q1x*s2
@@ -473,18 +479,16 @@ def inverse_joints(pose, current=None):
             # l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0)
             free3 = True
 
-            dn3 = -1
-            l3 = (90 - q2z) / dn3
+            dn3 = -1.0
+            l3 = (90.0 - q2z) / dn3
             free3 = False
 
             # Joint readings, configuration labels, singular flag.
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 399.9999984 <= (l3 - 0.0) * 1.0 <= 2000.0000016:
                 continue
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
-            u2 = th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
             q = (
                 u1 * 57.29577951308232,

@@ -129,7 +129,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1: z of A1^-1 p = A2 A3 t
         t1_0 = px*px + py*py
-        eb1 = -px
         er1 = t1_0 - 14400
 
         free1 = t1_0 <= 1e-14
@@ -137,8 +136,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         root1 = numpy.sqrt(numpy.maximum(er1, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1 + 120*py
-        sn1 = 120*eb1 + py*root1*sg1
+        cn1 = px*root1*sg1 + 120*py
+        sn1 = -120*px + py*root1*sg1
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t1_0
         s1 = sn1/t1_0

@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const mast3_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < MAST3_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < MAST3_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void mast3_ik_f32_forward(const float joints[MAST3_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 0.0174532925f * joints[0];
@@ -97,7 +85,6 @@ static int closed_form(const float pose[16], const float *current,
     /* th1: z of A1^-1 p = A2 A3 t
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t1_0 = px*px + py*py;
-    const float eb1 = -px;
     const float er1 = t1_0 - 14400.0f;
 
     const int free1 = t1_0 <= 1e-14f;
@@ -115,8 +102,8 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = -eb1*root1*sg1 + 120.0f*py;
-            const float sn1 = 120.0f*eb1 + py*root1*sg1;
+            const float cn1 = px*root1*sg1 + 120.0f*py;
+            const float sn1 = -120.0f*px + py*root1*sg1;
             th1 = atan2f(sn1, cn1);
             c1 = cn1/t1_0;
             s1 = sn1/t1_0;
@@ -136,6 +123,7 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root2 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
         const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
+        float ta2 = 0.0f, ca2 = 0.0f, sa2 = 0.0f;   /* the first root, for the second */
         for (int k2 = 0; k2 < n2; ++k2) {
             const float sg2 = k2 ? -1.0f : 1.0f;
             float th2, c2, s2;
@@ -144,11 +132,21 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                const float cn2 = -q1y*root2*sg2;
-                const float sn2 = q1x*root2*sg2;
-                th2 = atan2f(sn2, cn2);
-                c2 = cn2/t3_0;
-                s2 = sn2/t3_0;
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0f ? ta2 - 3.14159265f : ta2 + 3.14159265f;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const float cn2 = -q1y*root2*sg2;
+                    const float sn2 = q1x*root2*sg2;
+                    th2 = atan2f(sn2, cn2);
+                    c2 = cn2/t3_0;
+                    s2 = sn2/t3_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
 
             }
 
@@ -177,25 +175,33 @@ static int closed_form(const float pose[16], const float *current,
 
             const float lm0 = q1x;
             const float lm1 = -c2*q1y + q1x*s2;
-            if (count < MAST3_IK_F32_CLOSED_FORM) {
-                mast3_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = ((th1 + th2) + l3) + (root1 + root2);
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 57.2957795f;
+                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 57.2957795f;
-                out->joints[2] = (l3 - 0.0f) * 1.0f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f;
-                out->conditioning[0] = root1 * 0.001f;
-                out->conditioning[1] = root2 * 0.001f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv2 = u2 * 57.2957795f;
+                const float jv3 = (l3 - 0.0f) * 1.0f;
+                const float cv0 = root1 * 0.001f;
+                const float cv1 = root2 * 0.001f;
+                if (fine && count < MAST3_IK_F32_CLOSED_FORM) {
+                    mast3_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
                 }
             }
 

@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const packer6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < PACKER6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < PACKER6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void packer6_ik_forward(const double joints[PACKER6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.0 + 1.0 * joints[0];
@@ -139,24 +127,18 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = -r13;
-    const double rc12 = -r12;
     const double pcx = -px - 0.17999999999999999*r11 + 0.059999999999999998*r13;
-    const double rc21 = -r23;
-    const double rc22 = -r22;
     const double pcy = -py - 0.17999999999999999*r21 + 0.059999999999999998*r23;
-    const double rc33 = -r31;
     const double pcz = pz + 0.17999999999999999*r31 - 0.059999999999999998*r33 - 0.45000000000000001;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
     const double wx = pcx - 0.14000000000000001*r11;
     const double wy = pcy - 0.14000000000000001*r21;
-    const double wz = pcz - 0.14000000000000001*rc33;
+    const double wz = pcz + 0.14000000000000001*r31;
 
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
-    const double eb1 = -wx;
     const double er1 = t3_0 - 0.0144;
 
     const int free1 = t3_0 <= 9.9999999999999995e-21;
@@ -174,8 +156,8 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = -eb1*root1*sg1 + 0.12*wy;
-            const double sn1 = 0.12*eb1 + root1*sg1*wy;
+            const double cn1 = root1*sg1*wx + 0.12*wy;
+            const double sn1 = root1*sg1*wy - 0.12*wx;
             th1 = atan2(sn1, cn1);
             c1 = cn1/t3_0;
             s1 = sn1/t3_0;
@@ -187,12 +169,12 @@ static int closed_form(const double pose[16], const double *current,
         const double v1y = c1*wy - s1*wx;
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-        const double g16_11 = c1*rc11 + rc21*s1;
-        const double g16_12 = c1*rc12 + rc22*s1;
+        const double g16_11 = -c1*r13 - r23*s1;
+        const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r11 + r21*s1;
         const double g16_14 = c1*pcx + pcy*s1;
-        const double g16_21 = c1*rc21 - rc11*s1;
-        const double g16_22 = c1*rc22 - rc12*s1;
+        const double g16_21 = -c1*r23 + r13*s1;
+        const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
         const double g16_24 = c1*pcy - pcx*s1;
 
@@ -234,7 +216,7 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
-                const double t7_1_0 = c3*rc33;
+                const double t7_1_0 = -c3*r31;
                 const double t7_1_1 = 0.255*c3;
                 const double t7_1_2 = g16_13*s3;
                 const double t7_1_3 = g16_13*v1x;
@@ -242,7 +224,7 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_5 = 0.255*s3;
                 const double t7_1_6 = g16_14*v1x;
                 const double t7_1_7 = g16_14*wz;
-                const double t7_1_8 = rc33*wz;
+                const double t7_1_8 = -r31*wz;
                 const double t7_1_9 = pcz*v1x;
                 const double t7_1_10 = pcz*wz;
                 const double t7_1_11 = c3*t7_1_4;
@@ -263,7 +245,7 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_26 = 0.187*v1x;
                 const double t7_1_27 = 0.042000000000000003*s3;
                 const double t7_1_28 = g16_23*g16_24;
-                const double t7_1_29 = rc33*s3;
+                const double t7_1_29 = -r31*s3;
                 const double t7_1_30 = 0.042000000000000003*pcz;
                 const double t7_1_31 = s3*s3;
                 const double t7_1_32 = g16_13*g16_13;
@@ -271,12 +253,12 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_34 = g16_14*g16_14;
                 const double t7_1_35 = g16_23*g16_23;
                 const double t7_1_36 = g16_24*g16_24;
-                const double t7_1_37 = rc33*rc33;
+                const double t7_1_37 = r31*r31;
                 const double t7_1_38 = 0.187*t7_1_31;
                 const double t7_1_39 = pcz*pcz;
                 const double t7_1_40 = 0.019599999999999999*t7_1_18;
                 const double t7_1_41 = 0.019599999999999999*t7_1_22;
-                const double t7_1_42 = 0.2142*rc33;
+                const double t7_1_42 = -0.2142*r31;
                 const double t7_1_43 = c3*g16_14;
                 const double t7_1_44 = c3*pcz;
                 const double t7_1_45 = c3*v1x;
@@ -289,9 +271,9 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_52 = 0.019599999999999999*t7_1_45;
                 const double t7_1_53 = 0.019599999999999999*t7_1_46;
 
-                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27000000000000002*g16_14 - pcz*t7_1_1 - 0.033000000000000002*pcz - 0.030800000000000001*rc33*v1x + 0.00462*rc33 - 0.038249999999999999*s3 - 0.23799999999999999*t7_1_0*v1x + 0.035700000000000003*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.23799999999999999*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.035700000000000003*t7_1_2 - 0.252*t7_1_3 + 0.030800000000000001*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27000000000000002*v1x + 0.033000000000000002*wz + 0.040500000000000001;
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27000000000000002*g16_14 - pcz*t7_1_1 - 0.033000000000000002*pcz + 0.030800000000000001*r31*v1x - 0.00462*r31 - 0.038249999999999999*s3 - 0.23799999999999999*t7_1_0*v1x + 0.035700000000000003*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.23799999999999999*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.035700000000000003*t7_1_2 - 0.252*t7_1_3 + 0.030800000000000001*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27000000000000002*v1x + 0.033000000000000002*wz + 0.040500000000000001;
                 if (fabs(dt2) > 9.9999999999999998e-20) {
-                    c2 = (0.28000000000000003*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.29999999999999999*c3*g16_14*wz + 0.19800000000000001*c3*g16_14 + 0.28000000000000003*c3*g16_23*g16_24*wz + 0.23999999999999999*c3*g16_24*wz + 0.28000000000000003*c3*pcz*rc33*wz + 1.4692000000000001*c3*pcz + 0.2142*c3*rc33*s3 + 1.53*c3*s3*wz - 0.026179999999999998*c3*t7_1_2 - 0.029700000000000001*c3 + 0.28000000000000003*g16_13*g16_14*s3*v1x + 0.0029120000000000001*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.29999999999999999*g16_14*s3*v1x - 0.042000000000000003*g16_14*t7_1_2 + 1.53*g16_14 + 0.28000000000000003*g16_23*g16_24*s3*v1x + 0.0050400000000000002*g16_23*s3 + 0.23999999999999999*g16_24*s3*v1x + 0.28000000000000003*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374*pcz + 0.027720000000000002*rc33*s3 + 0.026179999999999998*rc33*t7_1_31 - 0.052359999999999997*rc33 - s3*t7_1_20 + 0.0029399999999999999*s3*t7_1_32 + 0.14999999999999999*s3*t7_1_34 + 0.0029399999999999999*s3*t7_1_35 + 0.14999999999999999*s3*t7_1_36 + 0.0029399999999999999*s3*t7_1_37 + 0.14999999999999999*s3*t7_1_39 + 0.233595*s3 - 0.20568800000000001*t7_1_0 - 0.042000000000000003*t7_1_11 - t7_1_15 - t7_1_16 - 0.027720000000000002*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5814999999999999*t7_1_18 - 0.020799999999999999*t7_1_19 - 0.19800000000000001*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5814999999999999*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.22950000000000001) / dt2;
+                    c2 = (0.28000000000000003*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.29999999999999999*c3*g16_14*wz + 0.19800000000000001*c3*g16_14 + 0.28000000000000003*c3*g16_23*g16_24*wz + 0.23999999999999999*c3*g16_24*wz - 0.28000000000000003*c3*pcz*r31*wz + 1.4692000000000001*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.026179999999999998*c3*t7_1_2 - 0.029700000000000001*c3 + 0.28000000000000003*g16_13*g16_14*s3*v1x + 0.0029120000000000001*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.29999999999999999*g16_14*s3*v1x - 0.042000000000000003*g16_14*t7_1_2 + 1.53*g16_14 + 0.28000000000000003*g16_23*g16_24*s3*v1x + 0.0050400000000000002*g16_23*s3 + 0.23999999999999999*g16_24*s3*v1x - 0.28000000000000003*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.027720000000000002*r31*s3 - 0.026179999999999998*r31*t7_1_31 + 0.052359999999999997*r31 - s3*t7_1_20 + 0.0029399999999999999*s3*t7_1_32 + 0.14999999999999999*s3*t7_1_34 + 0.0029399999999999999*s3*t7_1_35 + 0.14999999999999999*s3*t7_1_36 + 0.0029399999999999999*s3*t7_1_37 + 0.14999999999999999*s3*t7_1_39 + 0.233595*s3 - 0.20568800000000001*t7_1_0 - 0.042000000000000003*t7_1_11 - t7_1_15 - t7_1_16 - 0.027720000000000002*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5814999999999999*t7_1_18 - 0.020799999999999999*t7_1_19 - 0.19800000000000001*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5814999999999999*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.22950000000000001) / dt2;
                     s2 = (0.0050400000000000002*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.29999999999999999*c3*t7_1_6 + 0.016844999999999999*c3 + 0.026179999999999998*g16_13*t7_1_31 - 0.042000000000000003*g16_13*t7_1_43 - 0.052359999999999997*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.026179999999999998*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.29999999999999999*s3*t7_1_7 + 0.029700000000000001*s3 - t7_1_0*t7_1_30 + 0.28000000000000003*t7_1_0*t7_1_9 + 0.027720000000000002*t7_1_0 - 0.28000000000000003*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28000000000000003*t7_1_17*t7_1_6 - 0.19938800000000001*t7_1_17 - 0.28000000000000003*t7_1_19*t7_1_4 - 0.19800000000000001*t7_1_19 + 0.027720000000000002*t7_1_2 - 0.024199999999999999*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4241999999999999*t7_1_43 - 0.19800000000000001*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5814999999999999*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5814999999999999*t7_1_46 - 0.028049999999999999) / dt2;
                     free2 = 0;
                     wk2 = 9.9999999999999995e-08;
@@ -364,10 +346,10 @@ static int closed_form(const double pose[16], const double *current,
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const double g26_11 = c2*g16_11 - r33*s2;
             const double g26_12 = c2*g16_12 - r32*s2;
-            const double g26_13 = c2*g16_13 - rc33*s2;
+            const double g26_13 = c2*g16_13 + r31*s2;
             const double g26_21 = -c2*r33 - g16_11*s2;
             const double g26_22 = -c2*r32 - g16_12*s2;
-            const double g26_23 = -c2*rc33 - g16_13*s2;
+            const double g26_23 = c2*r31 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
@@ -386,10 +368,9 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const double sg5 = 1.0;
             double th5, c5, s5;
             const double cn5 = g36_23;
-            const double sn5 = root5*sg5;
+            const double sn5 = root5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -461,71 +442,89 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = v1x;
             const double lm1 = 0.76500000000000001*c3 + 0.0935*s3;
             const double lm2 = s5;
-            if (count < PACKER6_IK_CLOSED_FORM) {
-                packer6_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 1.0;
+                const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 1.0;
+                const double jv2 = u2 * 1.0;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * 1.0;
+                const double jv3 = u3 * 1.0;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 1.0;
-                out->joints[4] = th5 * 1.0;
-                out->joints[5] = th6 * 1.0;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                out->conditioning[0] = root1 * 1.0;
-                out->conditioning[1] = root3 * 0.64876700516178298;
-                out->conditioning[2] = root5 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv4 = u4 * 1.0;
+                const double jv5 = th5 * 1.0;
+                const double jv6 = th6 * 1.0;
+                const double cv0 = root1 * 1.0;
+                const double cv1 = root3 * 0.64876700516178298;
+                const double cv2 = root5 * 1.0;
+                if (fine && count < PACKER6_IK_CLOSED_FORM) {
+                    packer6_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0 && !free4) {
-                if (count < PACKER6_IK_CLOSED_FORM) {
-                    packer6_ik_solution *out = &solutions[count++];
+                {
                     double u1 = th1;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 1.0;
+                    const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 1.0;
+                    const double jv2 = u2 * 1.0;
                     double u3 = th3;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    out->joints[2] = u3 * 1.0;
+                    const double jv3 = u3 * 1.0;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 1.0;
+                    const double jv4 = u4 * 1.0;
                     double u5 = -th5;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 1.0;
+                    const double jv5 = u5 * 1.0;
                     double u6 = th6 + 3.1415926535897931;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                    out->joints[5] = u6 * 1.0;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                    out->conditioning[0] = root1 * 1.0;
-                    out->conditioning[1] = root3 * 0.64876700516178298;
-                    out->conditioning[2] = root5 * 1.0;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv6 = u6 * 1.0;
+                    const double cv0 = root1 * 1.0;
+                    const double cv1 = root3 * 0.64876700516178298;
+                    const double cv2 = root5 * 1.0;
+                    if (fine && count < PACKER6_IK_CLOSED_FORM) {
+                        packer6_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                        out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

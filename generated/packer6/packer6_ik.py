@@ -364,24 +364,18 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r13
-    rc12 = -r12
     pcx = -px - 0.18*r11 + 0.06*r13
-    rc21 = -r23
-    rc22 = -r22
     pcy = -py - 0.18*r21 + 0.06*r23
-    rc33 = -r31
     pcz = pz + 0.18*r31 - 0.06*r33 - 0.45
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
     wx = pcx - 0.14*r11
     wy = pcy - 0.14*r21
-    wz = pcz - 0.14*rc33
+    wz = pcz + 0.14*r31
 
     # th1: y of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
     er1 = t3_0 - 0.0144
 
     free1 = t3_0 <= 1e-20
@@ -394,8 +388,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 0.12*wy
-            sn1 = 0.12*eb1 + root1*sg1*wy
+            cn1 = root1*sg1*wx + 0.12*wy
+            sn1 = root1*sg1*wy - 0.12*wx
             th1 = atan2(sn1, cn1)
             c1 = cn1/t3_0
             s1 = sn1/t3_0
@@ -405,12 +399,12 @@ def _closed_form(pose, current, check_finite=True):
         v1y = c1*wy - s1*wx
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
+        g16_11 = -c1*r13 - r23*s1
+        g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_21 = c1*rc21 - rc11*s1
-        g16_22 = c1*rc22 - rc12*s1
+        g16_21 = -c1*r23 + r13*s1
+        g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
 
@@ -445,7 +439,7 @@ def _closed_form(pose, current, check_finite=True):
                 wk2 = 1e-08
 
             if free2:
-                t7_1_0 = c3*rc33
+                t7_1_0 = -c3*r31
                 t7_1_1 = 0.255*c3
                 t7_1_2 = g16_13*s3
                 t7_1_3 = g16_13*v1x
@@ -453,7 +447,7 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_5 = 0.255*s3
                 t7_1_6 = g16_14*v1x
                 t7_1_7 = g16_14*wz
-                t7_1_8 = rc33*wz
+                t7_1_8 = -r31*wz
                 t7_1_9 = pcz*v1x
                 t7_1_10 = pcz*wz
                 t7_1_11 = c3*t7_1_4
@@ -474,7 +468,7 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_26 = 0.187*v1x
                 t7_1_27 = 0.042*s3
                 t7_1_28 = g16_23*g16_24
-                t7_1_29 = rc33*s3
+                t7_1_29 = -r31*s3
                 t7_1_30 = 0.042*pcz
                 t7_1_31 = s3*s3
                 t7_1_32 = g16_13*g16_13
@@ -482,12 +476,12 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_34 = g16_14*g16_14
                 t7_1_35 = g16_23*g16_23
                 t7_1_36 = g16_24*g16_24
-                t7_1_37 = rc33*rc33
+                t7_1_37 = r31*r31
                 t7_1_38 = 0.187*t7_1_31
                 t7_1_39 = pcz*pcz
                 t7_1_40 = 0.0196*t7_1_18
                 t7_1_41 = 0.0196*t7_1_22
-                t7_1_42 = 0.2142*rc33
+                t7_1_42 = -0.2142*r31
                 t7_1_43 = c3*g16_14
                 t7_1_44 = c3*pcz
                 t7_1_45 = c3*v1x
@@ -500,9 +494,9 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_52 = 0.0196*t7_1_45
                 t7_1_53 = 0.0196*t7_1_46
 
-                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz - 0.0308*rc33*v1x + 0.00462*rc33 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz + 0.0308*r31*v1x - 0.00462*r31 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
                 if abs(dt2) > 1e-19:
-                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz + 0.28*c3*pcz*rc33*wz + 1.4692*c3*pcz + 0.2142*c3*rc33*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x + 0.28*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374*pcz + 0.02772*rc33*s3 + 0.02618*rc33*t7_1_31 - 0.05236*rc33 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
+                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     free2 = False
                     wk2 = 1e-07
@@ -567,10 +561,10 @@ def _closed_form(pose, current, check_finite=True):
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 - r33*s2
             g26_12 = c2*g16_12 - r32*s2
-            g26_13 = c2*g16_13 - rc33*s2
+            g26_13 = c2*g16_13 + r31*s2
             g26_21 = -c2*r33 - g16_11*s2
             g26_22 = -c2*r32 - g16_12*s2
-            g26_23 = -c2*rc33 - g16_13*s2
+            g26_23 = c2*r31 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -588,12 +582,9 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_23
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_23
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -632,13 +623,9 @@ def _closed_form(pose, current, check_finite=True):
             g56_12 = c5*g46_12 + g36_22*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -651,15 +638,11 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = s5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 1.0, root3 * 0.648767005161783, root5 * 1.0, )
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (
@@ -716,24 +699,18 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r13
-    rc12 = -r12
     pcx = -px - 0.18*r11 + 0.06*r13
-    rc21 = -r23
-    rc22 = -r22
     pcy = -py - 0.18*r21 + 0.06*r23
-    rc33 = -r31
     pcz = pz + 0.18*r31 - 0.06*r33 - 0.45
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
     wx = pcx - 0.14*r11
     wy = pcy - 0.14*r21
-    wz = pcz - 0.14*rc33
+    wz = pcz + 0.14*r31
 
     # th1: y of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
     er1 = t3_0 - 0.0144
 
     free1 = t3_0 <= 1e-20
@@ -746,8 +723,8 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1 + 0.12*wy
-            sn1 = 0.12*eb1 + root1*sg1*wy
+            cn1 = root1*sg1*wx + 0.12*wy
+            sn1 = root1*sg1*wy - 0.12*wx
             th1 = atan2(sn1, cn1)
             c1 = cn1/t3_0
             s1 = sn1/t3_0
@@ -757,12 +734,12 @@ def inverse_joints(pose, current=None):
         v1y = c1*wy - s1*wx
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
+        g16_11 = -c1*r13 - r23*s1
+        g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
         g16_14 = c1*pcx + pcy*s1
-        g16_21 = c1*rc21 - rc11*s1
-        g16_22 = c1*rc22 - rc12*s1
+        g16_21 = -c1*r23 + r13*s1
+        g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
 
@@ -797,7 +774,7 @@ def inverse_joints(pose, current=None):
                 wk2 = 1e-08
 
             if free2:
-                t7_1_0 = c3*rc33
+                t7_1_0 = -c3*r31
                 t7_1_1 = 0.255*c3
                 t7_1_2 = g16_13*s3
                 t7_1_3 = g16_13*v1x
@@ -805,7 +782,7 @@ def inverse_joints(pose, current=None):
                 t7_1_5 = 0.255*s3
                 t7_1_6 = g16_14*v1x
                 t7_1_7 = g16_14*wz
-                t7_1_8 = rc33*wz
+                t7_1_8 = -r31*wz
                 t7_1_9 = pcz*v1x
                 t7_1_10 = pcz*wz
                 t7_1_11 = c3*t7_1_4
@@ -826,7 +803,7 @@ def inverse_joints(pose, current=None):
                 t7_1_26 = 0.187*v1x
                 t7_1_27 = 0.042*s3
                 t7_1_28 = g16_23*g16_24
-                t7_1_29 = rc33*s3
+                t7_1_29 = -r31*s3
                 t7_1_30 = 0.042*pcz
                 t7_1_31 = s3*s3
                 t7_1_32 = g16_13*g16_13
@@ -834,12 +811,12 @@ def inverse_joints(pose, current=None):
                 t7_1_34 = g16_14*g16_14
                 t7_1_35 = g16_23*g16_23
                 t7_1_36 = g16_24*g16_24
-                t7_1_37 = rc33*rc33
+                t7_1_37 = r31*r31
                 t7_1_38 = 0.187*t7_1_31
                 t7_1_39 = pcz*pcz
                 t7_1_40 = 0.0196*t7_1_18
                 t7_1_41 = 0.0196*t7_1_22
-                t7_1_42 = 0.2142*rc33
+                t7_1_42 = -0.2142*r31
                 t7_1_43 = c3*g16_14
                 t7_1_44 = c3*pcz
                 t7_1_45 = c3*v1x
@@ -852,9 +829,9 @@ def inverse_joints(pose, current=None):
                 t7_1_52 = 0.0196*t7_1_45
                 t7_1_53 = 0.0196*t7_1_46
 
-                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz - 0.0308*rc33*v1x + 0.00462*rc33 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz + 0.0308*r31*v1x - 0.00462*r31 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
                 if abs(dt2) > 1e-19:
-                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz + 0.28*c3*pcz*rc33*wz + 1.4692*c3*pcz + 0.2142*c3*rc33*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x + 0.28*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374*pcz + 0.02772*rc33*s3 + 0.02618*rc33*t7_1_31 - 0.05236*rc33 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
+                    c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     free2 = False
                     wk2 = 1e-07
@@ -919,10 +896,10 @@ def inverse_joints(pose, current=None):
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 - r33*s2
             g26_12 = c2*g16_12 - r32*s2
-            g26_13 = c2*g16_13 - rc33*s2
+            g26_13 = c2*g16_13 + r31*s2
             g26_21 = -c2*r33 - g16_11*s2
             g26_22 = -c2*r32 - g16_12*s2
-            g26_23 = -c2*rc33 - g16_13*s2
+            g26_23 = c2*r31 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -940,12 +917,9 @@ def inverse_joints(pose, current=None):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_23
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_23
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -984,28 +958,20 @@ def inverse_joints(pose, current=None):
             g56_12 = c5*g46_12 + g36_22*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
             th6 = atan2(s6, c6)
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (

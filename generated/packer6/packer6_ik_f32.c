@@ -37,18 +37,6 @@ static int valid_pose(const float pose[16])
     return 1;
 }
 
-static int finite_solution(const packer6_ik_f32_solution *s)
-{
-    float total = 0.0f;
-    for (int j = 0; j < PACKER6_IK_F32_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < PACKER6_IK_F32_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0f;
-}
-
 void packer6_ik_f32_forward(const float joints[PACKER6_IK_F32_JOINTS], float pose[16])
 {
     const float th1 = 0.0f + 1.0f * joints[0];
@@ -139,24 +127,18 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const float rc11 = -r13;
-    const float rc12 = -r12;
     const float pcx = -px - 0.18f*r11 + 0.06f*r13;
-    const float rc21 = -r23;
-    const float rc22 = -r22;
     const float pcy = -py - 0.18f*r21 + 0.06f*r23;
-    const float rc33 = -r31;
     const float pcz = pz + 0.18f*r31 - 0.06f*r33 - 0.45f;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
     const float wx = pcx - 0.14f*r11;
     const float wy = pcy - 0.14f*r21;
-    const float wz = pcz - 0.14f*rc33;
+    const float wz = pcz + 0.14f*r31;
 
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
-    const float eb1 = -wx;
     const float er1 = t3_0 - 0.0144f;
 
     const int free1 = t3_0 <= 1e-20f;
@@ -174,8 +156,8 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            const float cn1 = -eb1*root1*sg1 + 0.12f*wy;
-            const float sn1 = 0.12f*eb1 + root1*sg1*wy;
+            const float cn1 = root1*sg1*wx + 0.12f*wy;
+            const float sn1 = root1*sg1*wy - 0.12f*wx;
             th1 = atan2f(sn1, cn1);
             c1 = cn1/t3_0;
             s1 = sn1/t3_0;
@@ -187,12 +169,12 @@ static int closed_form(const float pose[16], const float *current,
         const float v1y = c1*wy - s1*wx;
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-        const float g16_11 = c1*rc11 + rc21*s1;
-        const float g16_12 = c1*rc12 + rc22*s1;
+        const float g16_11 = -c1*r13 - r23*s1;
+        const float g16_12 = -c1*r12 - r22*s1;
         const float g16_13 = c1*r11 + r21*s1;
         const float g16_14 = c1*pcx + pcy*s1;
-        const float g16_21 = c1*rc21 - rc11*s1;
-        const float g16_22 = c1*rc22 - rc12*s1;
+        const float g16_21 = -c1*r23 + r13*s1;
+        const float g16_22 = -c1*r22 + r12*s1;
         const float g16_23 = c1*r21 - r11*s1;
         const float g16_24 = c1*pcy - pcx*s1;
 
@@ -234,7 +216,7 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
-                const float t7_1_0 = c3*rc33;
+                const float t7_1_0 = -c3*r31;
                 const float t7_1_1 = 0.255f*c3;
                 const float t7_1_2 = g16_13*s3;
                 const float t7_1_3 = g16_13*v1x;
@@ -242,7 +224,7 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_5 = 0.255f*s3;
                 const float t7_1_6 = g16_14*v1x;
                 const float t7_1_7 = g16_14*wz;
-                const float t7_1_8 = rc33*wz;
+                const float t7_1_8 = -r31*wz;
                 const float t7_1_9 = pcz*v1x;
                 const float t7_1_10 = pcz*wz;
                 const float t7_1_11 = c3*t7_1_4;
@@ -263,7 +245,7 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_26 = 0.187f*v1x;
                 const float t7_1_27 = 0.042f*s3;
                 const float t7_1_28 = g16_23*g16_24;
-                const float t7_1_29 = rc33*s3;
+                const float t7_1_29 = -r31*s3;
                 const float t7_1_30 = 0.042f*pcz;
                 const float t7_1_31 = s3*s3;
                 const float t7_1_32 = g16_13*g16_13;
@@ -271,12 +253,12 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_34 = g16_14*g16_14;
                 const float t7_1_35 = g16_23*g16_23;
                 const float t7_1_36 = g16_24*g16_24;
-                const float t7_1_37 = rc33*rc33;
+                const float t7_1_37 = r31*r31;
                 const float t7_1_38 = 0.187f*t7_1_31;
                 const float t7_1_39 = pcz*pcz;
                 const float t7_1_40 = 0.0196f*t7_1_18;
                 const float t7_1_41 = 0.0196f*t7_1_22;
-                const float t7_1_42 = 0.2142f*rc33;
+                const float t7_1_42 = -0.2142f*r31;
                 const float t7_1_43 = c3*g16_14;
                 const float t7_1_44 = c3*pcz;
                 const float t7_1_45 = c3*v1x;
@@ -289,9 +271,9 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_1_52 = 0.0196f*t7_1_45;
                 const float t7_1_53 = 0.0196f*t7_1_46;
 
-                dt2 = 0.0378f*g16_13 + g16_14*t7_1_5 - 0.27f*g16_14 - pcz*t7_1_1 - 0.033f*pcz - 0.0308f*rc33*v1x + 0.00462f*rc33 - 0.03825f*s3 - 0.238f*t7_1_0*v1x + 0.0357f*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8f*t7_1_10 + 0.238f*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357f*t7_1_2 - 0.252f*t7_1_3 + 0.0308f*t7_1_4 + t7_1_5*v1x + 1.8f*t7_1_6 - 0.22f*t7_1_7 - 0.252f*t7_1_8 + 0.22f*t7_1_9 - 0.27f*v1x + 0.033f*wz + 0.0405f;
+                dt2 = 0.0378f*g16_13 + g16_14*t7_1_5 - 0.27f*g16_14 - pcz*t7_1_1 - 0.033f*pcz + 0.0308f*r31*v1x - 0.00462f*r31 - 0.03825f*s3 - 0.238f*t7_1_0*v1x + 0.0357f*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8f*t7_1_10 + 0.238f*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357f*t7_1_2 - 0.252f*t7_1_3 + 0.0308f*t7_1_4 + t7_1_5*v1x + 1.8f*t7_1_6 - 0.22f*t7_1_7 - 0.252f*t7_1_8 + 0.22f*t7_1_9 - 0.27f*v1x + 0.033f*wz + 0.0405f;
                 if (fabsf(dt2) > 1e-19f) {
-                    c2 = (0.28f*c3*g16_13*g16_14*wz + 0.187f*c3*g16_14*s3 + 0.3f*c3*g16_14*wz + 0.198f*c3*g16_14 + 0.28f*c3*g16_23*g16_24*wz + 0.24f*c3*g16_24*wz + 0.28f*c3*pcz*rc33*wz + 1.4692f*c3*pcz + 0.2142f*c3*rc33*s3 + 1.53f*c3*s3*wz - 0.02618f*c3*t7_1_2 - 0.0297f*c3 + 0.28f*g16_13*g16_14*s3*v1x + 0.002912f*g16_13*s3 + 0.2142f*g16_13*t7_1_31 + 0.3f*g16_14*s3*v1x - 0.042f*g16_14*t7_1_2 + 1.53f*g16_14 + 0.28f*g16_23*g16_24*s3*v1x + 0.00504f*g16_23*s3 + 0.24f*g16_24*s3*v1x + 0.28f*pcz*rc33*s3*v1x - pcz*t7_1_38 + 0.374f*pcz + 0.02772f*rc33*s3 + 0.02618f*rc33*t7_1_31 - 0.05236f*rc33 - s3*t7_1_20 + 0.00294f*s3*t7_1_32 + 0.15f*s3*t7_1_34 + 0.00294f*s3*t7_1_35 + 0.15f*s3*t7_1_36 + 0.00294f*s3*t7_1_37 + 0.15f*s3*t7_1_39 + 0.233595f*s3 - 0.205688f*t7_1_0 - 0.042f*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772f*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815f*t7_1_18 - 0.0208f*t7_1_19 - 0.198f*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815f*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53f*t7_1_31*v1x + 0.187f*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295f) / dt2;
+                    c2 = (0.28f*c3*g16_13*g16_14*wz + 0.187f*c3*g16_14*s3 + 0.3f*c3*g16_14*wz + 0.198f*c3*g16_14 + 0.28f*c3*g16_23*g16_24*wz + 0.24f*c3*g16_24*wz - 0.28f*c3*pcz*r31*wz + 1.4692f*c3*pcz - 0.2142f*c3*r31*s3 + 1.53f*c3*s3*wz - 0.02618f*c3*t7_1_2 - 0.0297f*c3 + 0.28f*g16_13*g16_14*s3*v1x + 0.002912f*g16_13*s3 + 0.2142f*g16_13*t7_1_31 + 0.3f*g16_14*s3*v1x - 0.042f*g16_14*t7_1_2 + 1.53f*g16_14 + 0.28f*g16_23*g16_24*s3*v1x + 0.00504f*g16_23*s3 + 0.24f*g16_24*s3*v1x - 0.28f*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374f*pcz - 0.02772f*r31*s3 - 0.02618f*r31*t7_1_31 + 0.05236f*r31 - s3*t7_1_20 + 0.00294f*s3*t7_1_32 + 0.15f*s3*t7_1_34 + 0.00294f*s3*t7_1_35 + 0.15f*s3*t7_1_36 + 0.00294f*s3*t7_1_37 + 0.15f*s3*t7_1_39 + 0.233595f*s3 - 0.205688f*t7_1_0 - 0.042f*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772f*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815f*t7_1_18 - 0.0208f*t7_1_19 - 0.198f*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815f*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53f*t7_1_31*v1x + 0.187f*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295f) / dt2;
                     s2 = (0.00504f*c3*g16_23 - c3*t7_1_20 + 1.53f*c3*t7_1_22 + 0.3f*c3*t7_1_6 + 0.016845f*c3 + 0.02618f*g16_13*t7_1_31 - 0.042f*g16_13*t7_1_43 - 0.05236f*g16_13 - g16_14*t7_1_38 + 0.374f*g16_14 + 0.02618f*s3*t7_1_0 - 0.187f*s3*t7_1_44 - 0.3f*s3*t7_1_7 + 0.0297f*s3 - t7_1_0*t7_1_30 + 0.28f*t7_1_0*t7_1_9 + 0.02772f*t7_1_0 - 0.28f*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28f*t7_1_17*t7_1_6 - 0.199388f*t7_1_17 - 0.28f*t7_1_19*t7_1_4 - 0.198f*t7_1_19 + 0.02772f*t7_1_2 - 0.0242f*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388f*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53f*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242f*t7_1_43 - 0.198f*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815f*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815f*t7_1_46 - 0.02805f) / dt2;
                     free2 = 0;
                     wk2 = 1e-07f;
@@ -364,10 +346,10 @@ static int closed_form(const float pose[16], const float *current,
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
             const float g26_11 = c2*g16_11 - r33*s2;
             const float g26_12 = c2*g16_12 - r32*s2;
-            const float g26_13 = c2*g16_13 - rc33*s2;
+            const float g26_13 = c2*g16_13 + r31*s2;
             const float g26_21 = -c2*r33 - g16_11*s2;
             const float g26_22 = -c2*r32 - g16_12*s2;
-            const float g26_23 = -c2*rc33 - g16_13*s2;
+            const float g26_23 = c2*r31 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const float g36_11 = c3*g26_11 + g26_21*s3;
@@ -386,10 +368,9 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const float sg5 = 1.0f;
             float th5, c5, s5;
             const float cn5 = g36_23;
-            const float sn5 = root5*sg5;
+            const float sn5 = root5;
             th5 = atan2f(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -461,71 +442,89 @@ static int closed_form(const float pose[16], const float *current,
             const float lm0 = v1x;
             const float lm1 = 0.765f*c3 + 0.0935f*s3;
             const float lm2 = s5;
-            if (count < PACKER6_IK_F32_CLOSED_FORM) {
-                packer6_ik_f32_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
                 float u1 = th1;
                 u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                out->joints[0] = u1 * 1.0f;
+                const float jv1 = u1 * 1.0f;
                 float u2 = th2 - -1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                out->joints[1] = u2 * 1.0f;
+                const float jv2 = u2 * 1.0f;
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                out->joints[2] = u3 * 1.0f;
+                const float jv3 = u3 * 1.0f;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                out->joints[3] = u4 * 1.0f;
-                out->joints[4] = th5 * 1.0f;
-                out->joints[5] = th6 * 1.0f;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
-                out->conditioning[0] = root1 * 1.0f;
-                out->conditioning[1] = root3 * 0.648767005f;
-                out->conditioning[2] = root5 * 1.0f;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const float jv4 = u4 * 1.0f;
+                const float jv5 = th5 * 1.0f;
+                const float jv6 = th6 * 1.0f;
+                const float cv0 = root1 * 1.0f;
+                const float cv1 = root3 * 0.648767005f;
+                const float cv2 = root5 * 1.0f;
+                if (fine && count < PACKER6_IK_F32_CLOSED_FORM) {
+                    packer6_ik_f32_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0f && !free4) {
-                if (count < PACKER6_IK_F32_CLOSED_FORM) {
-                    packer6_ik_f32_solution *out = &solutions[count++];
+                {
                     float u1 = th1;
                     u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
-                    out->joints[0] = u1 * 1.0f;
+                    const float jv1 = u1 * 1.0f;
                     float u2 = th2 - -1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
-                    out->joints[1] = u2 * 1.0f;
+                    const float jv2 = u2 * 1.0f;
                     float u3 = th3;
                     u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
-                    out->joints[2] = u3 * 1.0f;
+                    const float jv3 = u3 * 1.0f;
                     float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    out->joints[3] = u4 * 1.0f;
+                    const float jv4 = u4 * 1.0f;
                     float u5 = -th5;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    out->joints[4] = u5 * 1.0f;
+                    const float jv5 = u5 * 1.0f;
                     float u6 = th6 + 3.14159265f;
                     u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                    out->joints[5] = u6 * 1.0f;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                    out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
-                    out->conditioning[0] = root1 * 1.0f;
-                    out->conditioning[1] = root3 * 0.648767005f;
-                    out->conditioning[2] = root5 * 1.0f;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const float jv6 = u6 * 1.0f;
+                    const float cv0 = root1 * 1.0f;
+                    const float cv1 = root3 * 0.648767005f;
+                    const float cv2 = root5 * 1.0f;
+                    if (fine && count < PACKER6_IK_F32_CLOSED_FORM) {
+                        packer6_ik_f32_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
+                        out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

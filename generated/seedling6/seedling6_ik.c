@@ -37,18 +37,6 @@ static int valid_pose(const double pose[16])
     return 1;
 }
 
-static int finite_solution(const seedling6_ik_solution *s)
-{
-    double total = 0.0;
-    for (int j = 0; j < SEEDLING6_IK_JOINTS; ++j) {
-        total += s->joints[j];
-    }
-    for (int k = 0; k < SEEDLING6_IK_CONDITIONS; ++k) {
-        total += s->conditioning[k];
-    }
-    return total - total == 0.0;
-}
-
 void seedling6_ik_forward(const double joints[SEEDLING6_IK_JOINTS], double pose[16])
 {
     const double th1 = 0.52359877559829893 + 1.0 * joints[0];
@@ -142,14 +130,8 @@ static int closed_form(const double pose[16], const double *current,
         return 0;
     }
     /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
-    const double rc11 = -r11;
-    const double rc12 = -r12;
     const double pcx = px - 0.02*r11 - 0.59999999999999998;
-    const double rc21 = -r21;
-    const double rc22 = -r22;
     const double pcy = py - 0.02*r21 - 0.25;
-    const double rc31 = -r31;
-    const double rc32 = -r32;
     const double pcz = pz - 0.02*r31;
 
     /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
@@ -159,15 +141,11 @@ static int closed_form(const double pose[16], const double *current,
 
     /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
-    const double g16_21 = -rc31;
-    const double g16_22 = -rc32;
-    const double g16_23 = -r33;
     const double g16_24 = 0.28999999999999998 - pcz;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
-    const double eb1 = -wx;
 
     const int free1 = t3_0 <= 9.9999999999999991e-22;
     if (free1 ? 0.0 > 9.9999999999999991e-22 : 1.0000000019999999*t3_0 < 0.0) {
@@ -176,6 +154,7 @@ static int closed_form(const double pose[16], const double *current,
     }
     const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
     const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    double ta1 = 0.0, ca1 = 0.0, sa1 = 0.0;   /* the first root, for the second */
     for (int k1 = 0; k1 < n1; ++k1) {
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
@@ -184,11 +163,21 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            const double cn1 = -eb1*root1*sg1;
-            const double sn1 = root1*sg1*wy;
-            th1 = atan2(sn1, cn1);
-            c1 = cn1/t3_0;
-            s1 = sn1/t3_0;
+            if (k1) {   /* the second root: the first turned by half a turn */
+                th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
+                c1 = -ca1;
+                s1 = -sa1;
+            } else {
+                const double cn1 = root1*sg1*wx;
+                const double sn1 = root1*sg1*wy;
+                th1 = atan2(sn1, cn1);
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
+
+                ta1 = th1;
+                ca1 = c1;
+                sa1 = s1;
+            }
 
         }
 
@@ -196,18 +185,15 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
-        const double g16_11 = c1*rc11 + rc21*s1;
-        const double g16_12 = c1*rc12 + rc22*s1;
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const double g16_11 = -c1*r11 - r21*s1;
+        const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
-        const double g16_31 = c1*rc21 - rc11*s1;
-        const double g16_32 = c1*rc22 - rc12*s1;
+        const double g16_31 = -c1*r21 + r11*s1;
+        const double g16_32 = -c1*r22 + r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
-        const double g36_21 = -g16_31;
-        const double g36_22 = -g16_32;
-        const double g36_23 = -g16_33;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -252,9 +238,9 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_2 = 0.68000000000000005*s3;
                 const double t7_1_3 = g16_24*v1y;
                 const double t7_1_4 = g16_13*s3;
-                const double t7_1_5 = g16_23*s3;
+                const double t7_1_5 = -r33*s3;
                 const double t7_1_6 = s3*v1x;
-                const double t7_1_7 = 0.039269999999999999*g16_23;
+                const double t7_1_7 = -0.039269999999999999*r33;
                 const double t7_1_8 = c3*s3;
                 const double t7_1_9 = 0.023800000000000002*v1x;
                 const double t7_1_10 = c3*v1y;
@@ -262,12 +248,12 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_12 = 0.23799999999999999*g16_14;
                 const double t7_1_13 = 0.023800000000000002*v1y;
                 const double t7_1_14 = c3*g16_13;
-                const double t7_1_15 = c3*g16_23;
+                const double t7_1_15 = -c3*r33;
                 const double t7_1_16 = g16_14*g16_14;
                 const double t7_1_17 = g16_24*g16_24;
                 const double t7_1_18 = g16_34*g16_34;
                 const double t7_1_19 = g16_13*g16_13;
-                const double t7_1_20 = g16_23*g16_23;
+                const double t7_1_20 = r33*r33;
                 const double t7_1_21 = g16_33*g16_33;
                 const double t7_1_22 = 0.027224999999999999*t7_1_6;
                 const double t7_1_23 = c3*v1x;
@@ -275,10 +261,10 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_1_25 = 0.027224999999999999*t7_1_23;
                 const double t7_1_26 = 0.027224999999999999*t7_1_24;
 
-                dt2 = 0.68000000000000005*c3*g16_14*v1y + 0.11219999999999999*c3*g16_23*v1x - 0.11219999999999999*c3*t7_1_0 - 0.68000000000000005*c3*t7_1_1 + 0.11219999999999999*g16_13*s3*v1x - 0.11550000000000001*g16_13*v1x - g16_14*t7_1_2*v1x + 0.69999999999999996*g16_14*v1x + 0.070000000000000007*g16_14*v1y + 0.11219999999999999*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.11550000000000001*g16_23*v1y + 0.69999999999999996*g16_24*v1y - 0.01155*t7_1_0 - 0.070000000000000007*t7_1_1 - t7_1_2*t7_1_3;
+                dt2 = 0.68000000000000005*c3*g16_14*v1y - 0.11219999999999999*c3*r33*v1x - 0.11219999999999999*c3*t7_1_0 - 0.68000000000000005*c3*t7_1_1 + 0.11219999999999999*g16_13*s3*v1x - 0.11550000000000001*g16_13*v1x - g16_14*t7_1_2*v1x + 0.69999999999999996*g16_14*v1x + 0.070000000000000007*g16_14*v1y + 0.69999999999999996*g16_24*v1y - 0.11219999999999999*r33*s3*v1y - 0.01155*r33*v1x + 0.11550000000000001*r33*v1y - 0.01155*t7_1_0 - 0.070000000000000007*t7_1_1 - t7_1_2*t7_1_3;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
-                    c2 = (-0.0040425000000000001*c3*g16_13 + 0.023800000000000002*c3*g16_14*s3 + 0.024500000000000001*c3*g16_14 + 0.038552250000000003*c3*g16_23 + 0.23799999999999999*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027224999999999999*c3*t7_1_19*v1y + 0.027224999999999999*c3*t7_1_20*v1y + 0.027224999999999999*c3*t7_1_21*v1y - 0.0039269999999999999*c3*t7_1_4 + 0.23932500000000001*c3*v1y + 0.33000000000000002*g16_13*g16_14*s3*v1x + 0.039269999999999999*g16_13*t7_1_11 - 0.039269999999999999*g16_13 + 0.0024499999999999999*g16_14*s3 - 0.33000000000000002*g16_14*t7_1_14*v1y + 0.23799999999999999*g16_14 + 0.33000000000000002*g16_23*g16_24*s3*v1x - 0.0039269999999999999*g16_23*t7_1_11 + 0.0078539999999999999*g16_23 + 0.024500000000000001*g16_24*s3 + 0.023800000000000002*g16_24*t7_1_11 - 0.047600000000000003*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1x - 0.33000000000000002*g16_33*g16_34*t7_1_10 - 0.23799999999999999*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.23799999999999999*t7_1_11*v1x - 0.33000000000000002*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040424999999999999*t7_1_4 - 0.0040425000000000001*t7_1_5 - 0.23932500000000001*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.023800000000000002*v1y) / dt2;
-                    s2 = (0.33000000000000002*c3*g16_13*g16_14*v1x + 0.039269999999999999*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33000000000000002*c3*g16_23*g16_24*v1x + 0.023800000000000002*c3*g16_24*s3 + 0.024500000000000001*c3*g16_24 + 0.33000000000000002*c3*g16_33*g16_34*v1x + 0.23799999999999999*c3*s3*v1x + 0.33000000000000002*g16_13*g16_14*s3*v1y + 0.0040425000000000001*g16_13*s3 + 0.0039269999999999999*g16_13*t7_1_11 - 0.0078539999999999999*g16_13 - 0.024500000000000001*g16_14*s3 - 0.023800000000000002*g16_14*t7_1_11 + 0.047600000000000003*g16_14 + 0.33000000000000002*g16_23*g16_24*s3*v1y + 0.039269999999999999*g16_23*t7_1_11 + 0.0024499999999999999*g16_24*s3 - 0.23799999999999999*g16_24*t7_1_11 + 0.23799999999999999*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1y - 0.0039269999999999999*s3*t7_1_15 + 0.023800000000000002*t7_1_11*v1x + 0.23799999999999999*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.038552250000000003*t7_1_14 - 0.0040425000000000001*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.23932500000000001*t7_1_23 - 0.23932500000000001*t7_1_24 - 0.00040424999999999999*t7_1_5 - t7_1_7 - t7_1_9) / dt2;
+                    c2 = (-0.0040425000000000001*c3*g16_13 + 0.023800000000000002*c3*g16_14*s3 + 0.024500000000000001*c3*g16_14 + 0.23799999999999999*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.038552250000000003*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027224999999999999*c3*t7_1_19*v1y + 0.027224999999999999*c3*t7_1_20*v1y + 0.027224999999999999*c3*t7_1_21*v1y - 0.0039269999999999999*c3*t7_1_4 + 0.23932500000000001*c3*v1y + 0.33000000000000002*g16_13*g16_14*s3*v1x + 0.039269999999999999*g16_13*t7_1_11 - 0.039269999999999999*g16_13 + 0.0024499999999999999*g16_14*s3 - 0.33000000000000002*g16_14*t7_1_14*v1y + 0.23799999999999999*g16_14 - 0.33000000000000002*g16_24*r33*s3*v1x + 0.024500000000000001*g16_24*s3 + 0.023800000000000002*g16_24*t7_1_11 - 0.047600000000000003*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1x - 0.33000000000000002*g16_33*g16_34*t7_1_10 + 0.0039269999999999999*r33*t7_1_11 - 0.0078539999999999999*r33 - 0.23799999999999999*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.23799999999999999*t7_1_11*v1x - 0.33000000000000002*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040424999999999999*t7_1_4 - 0.0040425000000000001*t7_1_5 - 0.23932500000000001*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.023800000000000002*v1y) / dt2;
+                    s2 = (0.33000000000000002*c3*g16_13*g16_14*v1x + 0.039269999999999999*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33000000000000002*c3*g16_24*r33*v1x + 0.023800000000000002*c3*g16_24*s3 + 0.024500000000000001*c3*g16_24 + 0.33000000000000002*c3*g16_33*g16_34*v1x + 0.23799999999999999*c3*s3*v1x + 0.33000000000000002*g16_13*g16_14*s3*v1y + 0.0040425000000000001*g16_13*s3 + 0.0039269999999999999*g16_13*t7_1_11 - 0.0078539999999999999*g16_13 - 0.024500000000000001*g16_14*s3 - 0.023800000000000002*g16_14*t7_1_11 + 0.047600000000000003*g16_14 - 0.33000000000000002*g16_24*r33*s3*v1y + 0.0024499999999999999*g16_24*s3 - 0.23799999999999999*g16_24*t7_1_11 + 0.23799999999999999*g16_24 + 0.33000000000000002*g16_33*g16_34*s3*v1y - 0.039269999999999999*r33*t7_1_11 - 0.0039269999999999999*s3*t7_1_15 + 0.023800000000000002*t7_1_11*v1x + 0.23799999999999999*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.038552250000000003*t7_1_14 - 0.0040425000000000001*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.23932500000000001*t7_1_23 - 0.23932500000000001*t7_1_24 - 0.00040424999999999999*t7_1_5 - t7_1_7 - t7_1_9) / dt2;
                     free2 = 0;
                     wk2 = 9.9999999999999986e-10;
                 }
@@ -332,12 +318,12 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g26_11 = c2*g16_11 + g16_21*s2;
-            const double g26_12 = c2*g16_12 + g16_22*s2;
-            const double g26_13 = c2*g16_13 + g16_23*s2;
-            const double g26_21 = c2*g16_21 - g16_11*s2;
-            const double g26_22 = c2*g16_22 - g16_12*s2;
-            const double g26_23 = c2*g16_23 - g16_13*s2;
+            const double g26_11 = c2*g16_11 + r31*s2;
+            const double g26_12 = c2*g16_12 + r32*s2;
+            const double g26_13 = c2*g16_13 - r33*s2;
+            const double g26_21 = c2*r31 - g16_11*s2;
+            const double g26_22 = c2*r32 - g16_12*s2;
+            const double g26_23 = -c2*r33 - g16_13*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
             const double g36_11 = c3*g26_11 + g26_21*s3;
@@ -349,17 +335,16 @@ static int closed_form(const double pose[16], const double *current,
 
             /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-            const double er5 = g36_13*g36_13 + g36_23*g36_23;
+            const double er5 = g16_33*g16_33 + g36_13*g36_13;
 
             if (er5 + 2.0000000000000001e-09 < 0.0) {
                 continue;
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            const double sg5 = 1.0;
             double th5, c5, s5;
             const double cn5 = g36_33;
-            const double sn5 = root5*sg5;
+            const double sn5 = root5;
             th5 = atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
@@ -372,7 +357,7 @@ static int closed_form(const double pose[16], const double *current,
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
                     c4 = (g36_13*s5) / dt4;
-                    s4 = (g36_23*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -402,8 +387,8 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 + g36_21*s4;
-            const double g46_12 = c4*g36_12 + g36_22*s4;
+            const double g46_11 = c4*g36_11 - g16_31*s4;
+            const double g46_12 = c4*g36_12 - g16_32*s4;
 
             /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
             const double g56_11 = c5*g46_11 + g36_31*s5;
@@ -431,71 +416,89 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = v1x + 0.040000000000000001;
             const double lm1 = 0.11899999999999999*c3 + 0.011900000000000001*s3;
             const double lm2 = s5;
-            if (count < SEEDLING6_IK_CLOSED_FORM) {
-                seedling6_ik_solution *out = &solutions[count++];
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0;
+            {
                 double u1 = th1 - 0.52359877559829915;
                 u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                out->joints[0] = u1 * 1.0;
+                const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                out->joints[1] = u2 * 1.0;
+                const double jv2 = u2 * 1.0;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                out->joints[2] = u3 * -1.0;
+                const double jv3 = u3 * -1.0;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                out->joints[3] = u4 * 1.0;
-                out->joints[4] = th5 * 1.0;
-                out->joints[5] = th6 * 1.0;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                out->conditioning[0] = root1 * 3.1622776601683791;
-                out->conditioning[1] = root3 * 4.1808285302940718;
-                out->conditioning[2] = root5 * 1.0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches */
-                out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                if (!finite_solution(out)) {
-                    --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                const double jv4 = u4 * 1.0;
+                const double jv5 = th5 * 1.0;
+                const double jv6 = th6 * 1.0;
+                const double cv0 = root1 * 3.1622776601683791;
+                const double cv1 = root3 * 4.1808285302940718;
+                const double cv2 = root5 * 1.0;
+                if (fine && count < SEEDLING6_IK_CLOSED_FORM) {
+                    seedling6_ik_solution *out = &solutions[count++];
+                    out->joints[0] = jv1;
+                    out->joints[1] = jv2;
+                    out->joints[2] = jv3;
+                    out->joints[3] = jv4;
+                    out->joints[4] = jv5;
+                    out->joints[5] = jv6;
+                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->conditioning[0] = cv0;
+                    out->conditioning[1] = cv1;
+                    out->conditioning[2] = cv2;
+                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                     * readings are in one turn here), tested without branches */
+                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                 }
             }
             if (root5 > 0.0 && !free4) {
-                if (count < SEEDLING6_IK_CLOSED_FORM) {
-                    seedling6_ik_solution *out = &solutions[count++];
+                {
                     double u1 = th1 - 0.52359877559829915;
                     u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
-                    out->joints[0] = u1 * 1.0;
+                    const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
-                    out->joints[1] = u2 * 1.0;
+                    const double jv2 = u2 * 1.0;
                     double u3 = th3;
                     u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
-                    out->joints[2] = u3 * -1.0;
+                    const double jv3 = u3 * -1.0;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    out->joints[3] = u4 * 1.0;
+                    const double jv4 = u4 * 1.0;
                     double u5 = -th5;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    out->joints[4] = u5 * 1.0;
+                    const double jv5 = u5 * 1.0;
                     double u6 = th6 + 3.1415926535897931;
                     u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                    out->joints[5] = u6 * 1.0;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                    out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
-                    out->conditioning[0] = root1 * 3.1622776601683791;
-                    out->conditioning[1] = root3 * 4.1808285302940718;
-                    out->conditioning[2] = root5 * 1.0;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (out->joints[0] >= LOW[0]) & (out->joints[0] <= HIGH[0]) & (out->joints[1] >= LOW[1]) & (out->joints[1] <= HIGH[1]) & (out->joints[2] >= LOW[2]) & (out->joints[2] <= HIGH[2]) & (out->joints[3] >= LOW[3]) & (out->joints[3] <= HIGH[3]) & (out->joints[4] >= LOW[4]) & (out->joints[4] <= HIGH[4]);
-                    if (!finite_solution(out)) {
-                        --count;   /* overflow from a huge input: no solution holds a NaN or an infinity */
+                    const double jv6 = u6 * 1.0;
+                    const double cv0 = root1 * 3.1622776601683791;
+                    const double cv1 = root3 * 4.1808285302940718;
+                    const double cv2 = root5 * 1.0;
+                    if (fine && count < SEEDLING6_IK_CLOSED_FORM) {
+                        seedling6_ik_solution *out = &solutions[count++];
+                        out->joints[0] = jv1;
+                        out->joints[1] = jv2;
+                        out->joints[2] = jv3;
+                        out->joints[3] = jv4;
+                        out->joints[4] = jv5;
+                        out->joints[5] = jv6;
+                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
+                        out->singular = free1 || root1 == 0.0 || root3 == 0.0 || free2 || root5 == 0.0 || free4;
+                        out->conditioning[0] = cv0;
+                        out->conditioning[1] = cv1;
+                        out->conditioning[2] = cv2;
+                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
+                         * readings are in one turn here), tested without branches */
+                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
                     }
                 }
             }

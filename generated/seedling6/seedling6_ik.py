@@ -364,14 +364,8 @@ def _closed_form(pose, current, check_finite=True):
     if finite - finite != 0.0:
         return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r11
-    rc12 = -r12
     pcx = px - 0.02*r11 - 0.6
-    rc21 = -r21
-    rc22 = -r22
     pcy = py - 0.02*r21 - 0.25
-    rc31 = -r31
-    rc32 = -r32
     pcz = pz - 0.02*r31
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
@@ -381,18 +375,14 @@ def _closed_form(pose, current, check_finite=True):
 
     # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     v1y = 0.29 - wz
-    g16_21 = -rc31
-    g16_22 = -rc32
-    g16_23 = -r33
     g16_24 = 0.29 - pcz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
 
     free1 = t3_0 <= 1e-21
-    if (0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
+    if (0.0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
         return solutions
     root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -401,28 +391,30 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1
-            sn1 = root1*sg1*wy
-            th1 = atan2(sn1, cn1)
-            c1 = cn1/t3_0
-            s1 = sn1/t3_0
+            if sg1 < 0.0:  # the second root: the first turned by half a turn
+                th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                c1 = -c1
+                s1 = -s1
+            else:
+                cn1 = root1*sg1*wx
+                sn1 = root1*sg1*wy
+                th1 = atan2(sn1, cn1)
+                c1 = cn1/t3_0
+                s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = -c1*r11 - r21*s1
+        g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
-        g16_31 = c1*rc21 - rc11*s1
-        g16_32 = c1*rc22 - rc12*s1
+        g16_31 = -c1*r21 + r11*s1
+        g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -460,9 +452,9 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_2 = 0.68*s3
                 t7_1_3 = g16_24*v1y
                 t7_1_4 = g16_13*s3
-                t7_1_5 = g16_23*s3
+                t7_1_5 = -r33*s3
                 t7_1_6 = s3*v1x
-                t7_1_7 = 0.03927*g16_23
+                t7_1_7 = -0.03927*r33
                 t7_1_8 = c3*s3
                 t7_1_9 = 0.0238*v1x
                 t7_1_10 = c3*v1y
@@ -470,12 +462,12 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_12 = 0.238*g16_14
                 t7_1_13 = 0.0238*v1y
                 t7_1_14 = c3*g16_13
-                t7_1_15 = c3*g16_23
+                t7_1_15 = -c3*r33
                 t7_1_16 = g16_14*g16_14
                 t7_1_17 = g16_24*g16_24
                 t7_1_18 = g16_34*g16_34
                 t7_1_19 = g16_13*g16_13
-                t7_1_20 = g16_23*g16_23
+                t7_1_20 = r33*r33
                 t7_1_21 = g16_33*g16_33
                 t7_1_22 = 0.027225*t7_1_6
                 t7_1_23 = c3*v1x
@@ -483,10 +475,10 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_25 = 0.027225*t7_1_23
                 t7_1_26 = 0.027225*t7_1_24
 
-                dt2 = 0.68*c3*g16_14*v1y + 0.1122*c3*g16_23*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.1122*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.1155*g16_23*v1y + 0.7*g16_24*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
+                dt2 = 0.68*c3*g16_14*v1y - 0.1122*c3*r33*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.7*g16_24*v1y - 0.1122*r33*s3*v1y - 0.01155*r33*v1x + 0.1155*r33*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
                 if abs(dt2) > 1e-21:
-                    c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.03855225*c3*g16_23 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 + 0.33*g16_23*g16_24*s3*v1x - 0.003927*g16_23*t7_1_11 + 0.007854*g16_23 + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
-                    s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33*c3*g16_23*g16_24*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 + 0.33*g16_23*g16_24*s3*v1y + 0.03927*g16_23*t7_1_11 + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
+                    c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
+                    s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     free2 = False
                     wk2 = 9.999999999999999e-10
 
@@ -532,12 +524,12 @@ def _closed_form(pose, current, check_finite=True):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_21 = c2*g16_21 - g16_11*s2
-            g26_22 = c2*g16_22 - g16_12*s2
-            g26_23 = c2*g16_23 - g16_13*s2
+            g26_11 = c2*g16_11 + r31*s2
+            g26_12 = c2*g16_12 + r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_21 = c2*r31 - g16_11*s2
+            g26_22 = c2*r32 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -549,18 +541,15 @@ def _closed_form(pose, current, check_finite=True):
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            er5 = g36_13*g36_13 + g36_23*g36_23
+            er5 = g16_33*g16_33 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -568,7 +557,7 @@ def _closed_form(pose, current, check_finite=True):
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
-                s4 = (g36_23*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
@@ -591,21 +580,17 @@ def _closed_form(pose, current, check_finite=True):
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
+            g46_11 = c4*g36_11 - g16_31*s4
+            g46_12 = c4*g36_12 - g16_32*s4
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g56_11 = c5*g46_11 + g36_31*s5
             g56_12 = c5*g46_12 + g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -622,11 +607,8 @@ def _closed_form(pose, current, check_finite=True):
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (
@@ -683,14 +665,8 @@ def inverse_joints(pose, current=None):
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-    rc11 = -r11
-    rc12 = -r12
     pcx = px - 0.02*r11 - 0.6
-    rc21 = -r21
-    rc22 = -r22
     pcy = py - 0.02*r21 - 0.25
-    rc31 = -r31
-    rc32 = -r32
     pcz = pz - 0.02*r31
 
     # wrist centre in the DH base frame: T c, with c its place in the last DH frame
@@ -700,18 +676,14 @@ def inverse_joints(pose, current=None):
 
     # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     v1y = 0.29 - wz
-    g16_21 = -rc31
-    g16_22 = -rc32
-    g16_23 = -r33
     g16_24 = 0.29 - pcz
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
-    eb1 = -wx
 
     free1 = t3_0 <= 1e-21
-    if (0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
+    if (0.0 > 1e-21) if free1 else (1.000000002*t3_0 < 0.0):
         return solutions
     root1 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
@@ -720,28 +692,30 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
         else:
-            cn1 = -eb1*root1*sg1
-            sn1 = root1*sg1*wy
-            th1 = atan2(sn1, cn1)
-            c1 = cn1/t3_0
-            s1 = sn1/t3_0
+            if sg1 < 0.0:  # the second root: the first turned by half a turn
+                th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
+                c1 = -c1
+                s1 = -s1
+            else:
+                cn1 = root1*sg1*wx
+                sn1 = root1*sg1*wy
+                th1 = atan2(sn1, cn1)
+                c1 = cn1/t3_0
+                s1 = sn1/t3_0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = -c1*r11 - r21*s1
+        g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
-        g16_31 = c1*rc21 - rc11*s1
-        g16_32 = c1*rc22 - rc12*s1
+        g16_31 = -c1*r21 + r11*s1
+        g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -779,9 +753,9 @@ def inverse_joints(pose, current=None):
                 t7_1_2 = 0.68*s3
                 t7_1_3 = g16_24*v1y
                 t7_1_4 = g16_13*s3
-                t7_1_5 = g16_23*s3
+                t7_1_5 = -r33*s3
                 t7_1_6 = s3*v1x
-                t7_1_7 = 0.03927*g16_23
+                t7_1_7 = -0.03927*r33
                 t7_1_8 = c3*s3
                 t7_1_9 = 0.0238*v1x
                 t7_1_10 = c3*v1y
@@ -789,12 +763,12 @@ def inverse_joints(pose, current=None):
                 t7_1_12 = 0.238*g16_14
                 t7_1_13 = 0.0238*v1y
                 t7_1_14 = c3*g16_13
-                t7_1_15 = c3*g16_23
+                t7_1_15 = -c3*r33
                 t7_1_16 = g16_14*g16_14
                 t7_1_17 = g16_24*g16_24
                 t7_1_18 = g16_34*g16_34
                 t7_1_19 = g16_13*g16_13
-                t7_1_20 = g16_23*g16_23
+                t7_1_20 = r33*r33
                 t7_1_21 = g16_33*g16_33
                 t7_1_22 = 0.027225*t7_1_6
                 t7_1_23 = c3*v1x
@@ -802,10 +776,10 @@ def inverse_joints(pose, current=None):
                 t7_1_25 = 0.027225*t7_1_23
                 t7_1_26 = 0.027225*t7_1_24
 
-                dt2 = 0.68*c3*g16_14*v1y + 0.1122*c3*g16_23*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.1122*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.1155*g16_23*v1y + 0.7*g16_24*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
+                dt2 = 0.68*c3*g16_14*v1y - 0.1122*c3*r33*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.7*g16_24*v1y - 0.1122*r33*s3*v1y - 0.01155*r33*v1x + 0.1155*r33*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
                 if abs(dt2) > 1e-21:
-                    c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.03855225*c3*g16_23 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 + 0.33*g16_23*g16_24*s3*v1x - 0.003927*g16_23*t7_1_11 + 0.007854*g16_23 + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
-                    s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33*c3*g16_23*g16_24*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 + 0.33*g16_23*g16_24*s3*v1y + 0.03927*g16_23*t7_1_11 + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
+                    c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
+                    s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     free2 = False
                     wk2 = 9.999999999999999e-10
 
@@ -851,12 +825,12 @@ def inverse_joints(pose, current=None):
                     s2 = s2 * hn2
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + g16_21*s2
-            g26_12 = c2*g16_12 + g16_22*s2
-            g26_13 = c2*g16_13 + g16_23*s2
-            g26_21 = c2*g16_21 - g16_11*s2
-            g26_22 = c2*g16_22 - g16_12*s2
-            g26_23 = c2*g16_23 - g16_13*s2
+            g26_11 = c2*g16_11 + r31*s2
+            g26_12 = c2*g16_12 + r32*s2
+            g26_13 = c2*g16_13 - r33*s2
+            g26_21 = c2*r31 - g16_11*s2
+            g26_22 = c2*r32 - g16_12*s2
+            g26_23 = -c2*r33 - g16_13*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
             g36_11 = c3*g26_11 + g26_21*s3
@@ -868,18 +842,15 @@ def inverse_joints(pose, current=None):
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-            er5 = g36_13*g36_13 + g36_23*g36_23
+            er5 = g16_33*g16_33 + g36_13*g36_13
 
             if er5 + 2e-09 < 0.0:
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            sg5 = 1.0
-            cn5 = g36_33
-            sn5 = root5*sg5
-            th5 = atan2(sn5, cn5)
-            c5 = cn5
-            s5 = sn5
+            c5 = g36_33
+            s5 = root5
+            th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             free4 = True
@@ -887,7 +858,7 @@ def inverse_joints(pose, current=None):
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
-                s4 = (g36_23*s5) / dt4
+                s4 = (-g16_33*s5) / dt4
                 free4 = False
                 wk4 = 1e-08
 
@@ -910,21 +881,17 @@ def inverse_joints(pose, current=None):
                     s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g36_21*s4
-            g46_12 = c4*g36_12 + g36_22*s4
+            g46_11 = c4*g36_11 - g16_31*s4
+            g46_12 = c4*g36_12 - g16_32*s4
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g56_11 = c5*g46_11 + g36_31*s5
             g56_12 = c5*g46_12 + g36_32*s5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
-            dt6 = 1
             c6 = g56_11
             s6 = -g56_12
-            free6 = False
-
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -935,11 +902,8 @@ def inverse_joints(pose, current=None):
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
-            u3 = th3
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            u4 = th4
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5
             u6 = th6
             q = (

@@ -113,14 +113,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
         valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
-        rc11 = -r11
-        rc12 = -r12
         pcx = px - 0.02*r11 - 0.6
-        rc21 = -r21
-        rc22 = -r22
         pcy = py - 0.02*r21 - 0.25
-        rc31 = -r31
-        rc32 = -r32
         pcz = pz - 0.02*r31
 
         # wrist centre in the DH base frame: T c, with c its place in the last DH frame
@@ -130,21 +124,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         v1y = 0.29 - wz
-        g16_21 = -rc31
-        g16_22 = -rc32
-        g16_23 = -r33
         g16_24 = 0.29 - pcz
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
-        eb1 = -wx
 
         free1 = t3_0 <= 1e-21
         valid = valid & ~numpy.where(free1, 0 > 1e-21, 1.000000002*t3_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = -eb1*root1*sg1
+        cn1 = root1*sg1*wx
         sn1 = root1*sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
         c1 = cn1/t3_0
@@ -159,18 +149,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
-        g16_11 = c1*rc11 + rc21*s1
-        g16_12 = c1*rc12 + rc22*s1
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        g16_11 = -c1*r11 - r21*s1
+        g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
-        g16_31 = c1*rc21 - rc11*s1
-        g16_32 = c1*rc22 - rc12*s1
+        g16_31 = -c1*r21 + r11*s1
+        g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        g36_21 = -g16_31
-        g36_22 = -g16_32
-        g36_23 = -g16_33
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -207,9 +194,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_1_2 = 0.68*s3
             t7_1_3 = g16_24*v1y
             t7_1_4 = g16_13*s3
-            t7_1_5 = g16_23*s3
+            t7_1_5 = -r33*s3
             t7_1_6 = s3*v1x
-            t7_1_7 = 0.03927*g16_23
+            t7_1_7 = -0.03927*r33
             t7_1_8 = c3*s3
             t7_1_9 = 0.0238*v1x
             t7_1_10 = c3*v1y
@@ -217,12 +204,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_1_12 = 0.238*g16_14
             t7_1_13 = 0.0238*v1y
             t7_1_14 = c3*g16_13
-            t7_1_15 = c3*g16_23
+            t7_1_15 = -c3*r33
             t7_1_16 = g16_14*g16_14
             t7_1_17 = g16_24*g16_24
             t7_1_18 = g16_34*g16_34
             t7_1_19 = g16_13*g16_13
-            t7_1_20 = g16_23*g16_23
+            t7_1_20 = r33*r33
             t7_1_21 = g16_33*g16_33
             t7_1_22 = 0.027225*t7_1_6
             t7_1_23 = c3*v1x
@@ -230,10 +217,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             t7_1_25 = 0.027225*t7_1_23
             t7_1_26 = 0.027225*t7_1_24
 
-            dt2 = 0.68*c3*g16_14*v1y + 0.1122*c3*g16_23*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.1122*g16_23*s3*v1y + 0.01155*g16_23*v1x - 0.1155*g16_23*v1y + 0.7*g16_24*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
+            dt2 = 0.68*c3*g16_14*v1y - 0.1122*c3*r33*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.7*g16_24*v1y - 0.1122*r33*s3*v1y - 0.01155*r33*v1x + 0.1155*r33*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
             use = ~chosen2 & (numpy.abs(dt2) > 1e-21)
-            c2 = numpy.where(use, (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.03855225*c3*g16_23 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 + 0.33*g16_23*g16_24*s3*v1x - 0.003927*g16_23*t7_1_11 + 0.007854*g16_23 + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2, c2)
-            s2 = numpy.where(use, (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 + 0.33*c3*g16_23*g16_24*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 + 0.33*g16_23*g16_24*s3*v1y + 0.03927*g16_23*t7_1_11 + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2, s2)
+            c2 = numpy.where(use, (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2, c2)
+            s2 = numpy.where(use, (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2, s2)
             wk2 = numpy.where(use, 9.999999999999999e-10, wk2)
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
@@ -278,12 +265,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-        g26_11 = c2*g16_11 + g16_21*s2
-        g26_12 = c2*g16_12 + g16_22*s2
-        g26_13 = c2*g16_13 + g16_23*s2
-        g26_21 = c2*g16_21 - g16_11*s2
-        g26_22 = c2*g16_22 - g16_12*s2
-        g26_23 = c2*g16_23 - g16_13*s2
+        g26_11 = c2*g16_11 + r31*s2
+        g26_12 = c2*g16_12 + r32*s2
+        g26_13 = c2*g16_13 - r33*s2
+        g26_21 = c2*r31 - g16_11*s2
+        g26_22 = c2*r32 - g16_12*s2
+        g26_23 = -c2*r33 - g16_13*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
         g36_11 = c3*g26_11 + g26_21*s3
@@ -294,13 +281,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g36_33 = c3*g26_23 - g26_13*s3
 
         # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
-        er5 = g36_13*g36_13 + g36_23*g36_23
+        er5 = g16_33*g16_33 + g36_13*g36_13
 
         valid = valid & ~(er5 + 2e-09 < 0.0)
         root5 = numpy.sqrt(numpy.maximum(er5, 0.0))
-        sg5 = 1.0
         cn5 = g36_33
-        sn5 = root5*sg5
+        sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
         c5 = cn5
         s5 = sn5
@@ -312,7 +298,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
         c4 = (g36_13*s5) / dt4
-        s4 = (g36_23*s5) / dt4
+        s4 = (-g16_33*s5) / dt4
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -334,8 +320,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g36_21*s4
-        g46_12 = c4*g36_12 + g36_22*s4
+        g46_11 = c4*g36_11 - g16_31*s4
+        g46_12 = c4*g36_12 - g16_32*s4
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g56_11 = c5*g46_11 + g36_31*s5
@@ -365,7 +351,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
@@ -394,7 +379,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u2 = th2 - -1.5707963267948966
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)

@@ -170,6 +170,7 @@ class Block:
     tolerance: float = 0.0
     eliminated: str = ""
     mirrored: bool = False       # cossin: the second root is emitted by symmetry, no loop
+    antipodal: bool = False      # cossin with c = 0: the second root is the first plus half a turn
     need_cos: bool = True        # a later expression reads c<key>
     need_sin: bool = True        # a later expression reads s<key>
     condition_name: str = ""     # cossin/poly: the branch name its conditioning measure is reported under
@@ -459,7 +460,10 @@ def lower_now(derivation: Derivation) -> Plan:
         zero = float(out.zero)
         zero = (zero + 3.141592653589793) % 6.283185307179586 - 3.141592653589793
         scale = float(out.scale)
-        wraps = max(1, (bounds.get(str(out.joint), 1) + 2) // 2)
+        # |th| <= bound half-turns and |zero| <= one, so |u| <= k half-turns; each conditional
+        # +-2 pi step takes (pi, k pi] into (-pi, (k - 2) pi]: k // 2 steps reach (-pi, pi]
+        reach = bounds.get(str(out.joint), 1) + (1 if zero != 0.0 else 0)
+        wraps = max(1, reach // 2)
         outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale, wraps))
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
     plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
@@ -471,8 +475,9 @@ def lower_now(derivation: Derivation) -> Plan:
 
 
 def propagate_aliases(plan: Plan) -> None:
-    """Copy propagation: an intermediate that only renames another symbol (``rc11 = r11``,
-    ``g26_31 = g16_31``) is not assigned; every later expression reads the original."""
+    """Copy propagation: an intermediate that only renames another symbol or negates it (``rc11 =
+    r11``, ``g26_31 = g16_31``, ``g36_21 = -g16_31``) is not assigned; every later expression
+    reads the original (a negation costs nothing where it is read)."""
     aliases: dict = {}
 
     def swap(expr):
@@ -482,8 +487,8 @@ def propagate_aliases(plan: Plan) -> None:
         kept = []
         for assignment in assignments:
             expr = swap(assignment.expr)
-            if isinstance(expr, sp.Symbol):
-                aliases[assignment.target] = expr
+            if isinstance(expr, sp.Symbol) or (isinstance(-expr, sp.Symbol) and expr.could_extract_minus_sign()):
+                aliases[assignment.target] = expr     # a name or its negation: read in place
             else:
                 kept.append(Assignment(assignment.target, expr))
         return kept
@@ -584,11 +589,16 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
     block.guard_scale = block.norm
     block.cn = a * c - sg * b * root
     block.sn = b * c + sg * a * root
+    if block.mirrored:               # only the first root is computed (sg = 1); the mirror gives the other
+        block.cn, block.sn = block.cn.subs(sg, 1), block.sn.subs(sg, 1)
     cn, sn = sp.Symbol(f"cn{j}", real=True), sp.Symbol(f"sn{j}", real=True)
     if a.is_number and b.is_number and not block.mirrored:
         # a = n cos(gamma), b = n sin(gamma): a cos th + b sin th = n cos(th - gamma) = c, so
         # th = gamma + sg * atan2(root, c): the two roots share one atan2 call
         block.gamma = float(sp.atan2(b, a).evalf(30))
+    elif c.is_number and c == 0 and not block.mirrored:
+        # c = 0: (cn, sn) of the second root are those of the first negated (one atan2 for both)
+        block.antipodal = True
     block.cos_expr = cn / block.norm if block.norm != 1 else cn
     block.sin_expr = sn / block.norm if block.norm != 1 else sn
     if block.norm.is_number and block.norm != 1:
