@@ -78,12 +78,9 @@ def inverse_batch(poses, current=None, conditioning=True):
                      singular[start:stop].reshape((m,) + axes),
                      conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
                      if want_conditioning else None)
-    with numpy.errstate(invalid="ignore"):   # overflow from a huge input gives no solution
-        valid &= numpy.isfinite(joints).all(axis=-1)
-        if want_conditioning:
-            valid &= numpy.isfinite(conditioning).all(axis=-1)
-    joints[~valid] = numpy.nan
-    labels[~valid] = 0
+    invalid = ~valid[..., None]
+    numpy.copyto(joints, numpy.nan, where=invalid)
+    numpy.copyto(labels, 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def inverse_batch_point(points, current=None, conditioning=True):
@@ -191,6 +188,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u3 = (l3 - 0.0) * 1.0
 
         valid = valid & (399.9999984 <= u3) & (u3 <= 2000.0000016)  # strokes define reach
+        # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
+        # (their sum is one then; the mirrored solution's values follow from these)
+        valid = valid & numpy.isfinite(((u1 + u2) + u3) + (cond1 + cond2))
         out_joints[..., 0] = u1 * 57.29577951308232
         out_joints[..., 1] = u2 * 57.29577951308232
         out_joints[..., 2] = u3

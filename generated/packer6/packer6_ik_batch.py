@@ -76,12 +76,9 @@ def inverse_batch(poses, current=None, conditioning=True):
                      singular[start:stop].reshape((m,) + axes),
                      conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
                      if want_conditioning else None)
-    with numpy.errstate(invalid="ignore"):   # overflow from a huge input gives no solution
-        valid &= numpy.isfinite(joints).all(axis=-1)
-        if want_conditioning:
-            valid &= numpy.isfinite(conditioning).all(axis=-1)
-    joints[~valid] = numpy.nan
-    labels[~valid] = 0
+    invalid = ~valid[..., None]
+    numpy.copyto(joints, numpy.nan, where=invalid)
+    numpy.copyto(labels, 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
@@ -396,6 +393,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u5 = th5
         u6 = th6
 
+        # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
+        # (their sum is one then; the mirrored solution's values follow from these)
+        valid = valid & numpy.isfinite((((u1 + u2) + u3) + (u4 + u5)) + ((u6 + cond1) + (cond3 + cond5)))
         out_joints[..., 0, 0] = u1 * 1.0
         out_joints[..., 0, 1] = u2 * 1.0
         out_joints[..., 0, 2] = u3 * 1.0
@@ -408,18 +408,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_labels[..., 0, 2] = numpy.where(lm2 >= 0.0, 1, -1)
         out_singular[..., 0] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
         if out_conditioning is not None:
-            out_conditioning[..., 0, 0] = cond1
-            out_conditioning[..., 0, 1] = cond3
-            out_conditioning[..., 0, 2] = cond5
-            out_conditioning[..., 1, :] = out_conditioning[..., 0, :]
+            out_conditioning[..., 0] = cond1[..., None]   # both mirrored solutions
+            out_conditioning[..., 1] = cond3[..., None]   # both mirrored solutions
+            out_conditioning[..., 2] = cond5[..., None]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
         out_valid[..., 1] = valid & (root5 > 0.0) & ~free4
-        u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
-        u2 = th2 - -1.5707963267948966
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
-        u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = -th5

@@ -42,7 +42,9 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_zero=common.joint_zero(arm), joint_gain=common.joint_gain(arm),
         prismatic=[not j.revolute for j in arm.joints],
         branch_axes=plan.depth, axis_sizes=sizes, raw_solutions=raw,
-        singular_terms=terms(plan.singular_terms, BATCH_TERMS),
+        singular_terms=terms(plan.singular_terms, BATCH_TERMS), balanced_sum=common.balanced_sum,
+        probe_terms=[f"u{out.joint}" for out in plan.outputs]
+        + [f"{'cnd' if b.kind == 'poly' else 'cond'}{b.key}" for b in plan.condition_blocks],
         mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else [],
         target=common.target_plan(arm, derivation), tolerances=python_backend.tolerances("double"),
         arm_angle_scale=repr(float(arm.angle_scale)), given=common.given_plan(arm),

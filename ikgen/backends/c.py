@@ -110,7 +110,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=[k for k, t in enumerate(common.joint_turns(arm))
                        if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)],
-        probe_terms=probe_terms(plan), balanced_sum=balanced_sum,
+        probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),
@@ -134,18 +134,6 @@ def probe_terms(plan) -> list[str]:
     terms = [f"l{out.joint}" if out.prismatic else f"th{out.joint}" for out in plan.outputs if not out.given]
     terms += [f"cnd{b.key}" if b.kind == "poly" else f"root{b.key}" for b in plan.condition_blocks]
     return terms
-
-
-def balanced_sum(terms: list[str]) -> str:
-    """``terms`` added as a balanced tree: the compiler keeps the parentheses (floating-point
-    addition is not associative), so the chain of dependent additions is log2(n) long, not n."""
-    def tree(part: list[str]) -> str:
-        if len(part) == 1:
-            return part[0]
-        half = (len(part) + 1) // 2
-        return f"({tree(part[:half])} + {tree(part[half:])})"
-    text = tree(terms)
-    return text[1:-1] if len(terms) > 1 else text
 
 
 SELFTEST_DISTANCE = 1e-2      # self-test poses: Jacobian distance and every conditioning measure above this

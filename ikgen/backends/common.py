@@ -474,6 +474,18 @@ def lower_now(derivation: Derivation) -> Plan:
     return plan
 
 
+def balanced_sum(terms: list[str]) -> str:
+    """``terms`` added as a balanced tree: the compiler keeps the parentheses (floating-point
+    addition is not associative), so the chain of dependent additions is log2(n) long, not n."""
+    def tree(part: list[str]) -> str:
+        if len(part) == 1:
+            return part[0]
+        half = (len(part) + 1) // 2
+        return f"({tree(part[:half])} + {tree(part[half:])})"
+    text = tree(terms)
+    return text[1:-1] if len(terms) > 1 else text
+
+
 def propagate_aliases(plan: Plan) -> None:
     """Copy propagation: an intermediate that only renames another symbol or negates it (``rc11 =
     r11``, ``g26_31 = g16_31``, ``g36_21 = -g16_31``) is not assigned; every later expression
