@@ -16,6 +16,7 @@ import math
 import os
 import sys
 import tempfile
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -27,6 +28,9 @@ from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
 from .model import Arm
+
+
+MANY_PER_THREAD = 20_000   # inverse_many: poses a thread must have before another one pays off
 
 
 class CSolver:
@@ -200,25 +204,44 @@ class CSolver:
         """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not realisable."""
         return int(self._status[0])
 
-    def inverse_many(self, poses, given=None, limits="drop") -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def inverse_many(self, poses, given=None, limits="drop", threads=None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(joints N x max x dof, counts N, labels N x max x labels (+1/-1), singular N x max) for N x 4 x 4
-        poses (and N readings of the given joint, for an arm that has one)."""
+        poses (and N readings of the given joint, for an arm that has one).
+
+        The loop runs in C. ``threads`` (default: one per CPU for at least MANY_PER_THREAD poses a
+        thread, else one) splits the poses into that many contiguous parts solved at once: cffi
+        releases the GIL during a C call and the solver keeps no state, so the parts are independent
+        and the result is the same for any number of threads."""
         poses = np.ascontiguousarray(np.asarray(poses, dtype=self.dtype).reshape(-1, 16))
         n = poses.shape[0]
-        extra = ()
+        values = None
         if self.given is not None:
             if given is None:
                 raise ValueError(f"given must be {n} readings of the given joint {self.given}, not None")
             values = np.ascontiguousarray(np.broadcast_to(np.asarray(given, dtype=self.dtype), (n,)))
-            extra = (self._pointer(values),)
+        mode = limits_mode(limits)
+        if threads is None:
+            threads = max(1, min(os.cpu_count() or 1, n // MANY_PER_THREAD))
+        elif not isinstance(threads, int) or isinstance(threads, bool) or threads < 1:
+            raise ValueError(f"threads must be a whole number of at least 1, not {threads!r:.40}")
         joints = np.zeros((n, self.max_solutions, self.dof), dtype=self.dtype)
         counts = np.zeros(n, dtype=np.int32)
         labels = np.zeros((n, self.max_solutions, max(len(self.labels), 1)), dtype=np.int8)
         singular = np.zeros((n, self.max_solutions), dtype=np.int32)
-        self._many(n, self._pointer(poses), *extra, limits_mode(limits), self._pointer(joints),
-                   self.ffi.cast("int *", self.ffi.from_buffer(counts)),
-                   self.ffi.cast("signed char *", self.ffi.from_buffer(labels)),
-                   self.ffi.cast("int *", self.ffi.from_buffer(singular)))
+
+        def solve(start: int, stop: int) -> None:
+            extra = () if values is None else (self._pointer(values[start:stop]),)
+            self._many(stop - start, self._pointer(poses[start:stop]), *extra, mode, self._pointer(joints[start:stop]),
+                       self.ffi.cast("int *", self.ffi.from_buffer(counts[start:stop])),
+                       self.ffi.cast("signed char *", self.ffi.from_buffer(labels[start:stop])),
+                       self.ffi.cast("int *", self.ffi.from_buffer(singular[start:stop])))
+        bounds = [n * k // threads for k in range(threads + 1)]
+        if threads == 1:
+            solve(0, n)
+        else:
+            with ThreadPoolExecutor(max_workers=threads) as pool:
+                for done in [pool.submit(solve, a, b) for a, b in zip(bounds, bounds[1:]) if b > a]:
+                    done.result()
         return joints, counts, labels, singular
 
 
