@@ -486,11 +486,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
-        cn4 = 308760.0*ec4
-        sn4 = 308760.0*root4*sg4
         th4 = 0.0 + sg4 * dl4
-        c4 = 1.0489576038357677e-11*cn4
-        s4 = 1.0489576038357677e-11*sn4
+        c4 = 1.0489576038357677e-11*(308760.0*ec4)
+        s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -528,17 +526,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free2 = True
             t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
-                free2 = False
                 wk2 = 0.0009999999999999998
-
-            if free2:
+            else:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
                 t9_1_2 = 744.0*c4
@@ -569,57 +564,58 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 if abs(dt2) > 1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
-                    free2 = False
                     wk2 = 1.0
+                else:
+                    t9_2_0 = -g17_11*r32
+                    t9_2_1 = -g17_12*r31
+                    t9_2_2 = 308760.0*c4
+                    t9_2_3 = 138384.0*s4*s4
+                    t9_2_4 = s3*s3*t9_2_3
+                    t9_2_5 = 415.0*g17_24
+                    t9_2_6 = 415.0*g17_34
+                    t9_2_7 = g17_11*g17_32
+                    t9_2_8 = g17_31*t9_2_6
+                    t9_2_9 = 372.0*c4
+                    t9_2_10 = g17_24*t9_2_9
+                    t9_2_11 = g17_34*t9_2_9
+                    t9_2_12 = g17_12*g17_31
+                    t9_2_13 = s3*s4
+                    t9_2_14 = 154380.0*t9_2_13
+                    t9_2_15 = 372.0*s4
+                    t9_2_16 = c3*t9_2_15
+                    t9_2_17 = g17_14*t9_2_16
+                    t9_2_18 = -g17_32*r31
+                    t9_2_19 = g17_34*t9_2_16
+                    t9_2_20 = -g17_31*r32
+                    t9_2_21 = c3*t9_2_20
+                    t9_2_22 = 138384.0*c4*t9_2_13
+                    t9_2_23 = s3*t9_2_3
+                    t9_2_24 = c3*t9_2_23
+                    t9_2_25 = 415.0*g17_14
+                    t9_2_26 = g17_14*t9_2_9
+                    t9_2_27 = g17_24*t9_2_16
 
-            if free2:
-                t9_2_0 = -g17_11*r32
-                t9_2_1 = -g17_12*r31
-                t9_2_2 = 308760.0*c4
-                t9_2_3 = 138384.0*s4*s4
-                t9_2_4 = s3*s3*t9_2_3
-                t9_2_5 = 415.0*g17_24
-                t9_2_6 = 415.0*g17_34
-                t9_2_7 = g17_11*g17_32
-                t9_2_8 = g17_31*t9_2_6
-                t9_2_9 = 372.0*c4
-                t9_2_10 = g17_24*t9_2_9
-                t9_2_11 = g17_34*t9_2_9
-                t9_2_12 = g17_12*g17_31
-                t9_2_13 = s3*s4
-                t9_2_14 = 154380.0*t9_2_13
-                t9_2_15 = 372.0*s4
-                t9_2_16 = c3*t9_2_15
-                t9_2_17 = g17_14*t9_2_16
-                t9_2_18 = -g17_32*r31
-                t9_2_19 = g17_34*t9_2_16
-                t9_2_20 = -g17_31*r32
-                t9_2_21 = c3*t9_2_20
-                t9_2_22 = 138384.0*c4*t9_2_13
-                t9_2_23 = s3*t9_2_3
-                t9_2_24 = c3*t9_2_23
-                t9_2_25 = 415.0*g17_14
-                t9_2_26 = g17_14*t9_2_9
-                t9_2_27 = g17_24*t9_2_16
+                    dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
+                    if abs(dt2) > 9.999999999999999e-16:
+                        c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
+                        s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
+                        wk2 = 0.0009999999999999998
+                    else:
+                        wk2 = None  # no form applies: the pair leaves th2 free
 
-                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
-                if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
-                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
-                    free2 = False
-                    wk2 = 0.0009999999999999998
-
-            if not free2:
+            if wk2 is not None:
                 hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-4:
                     if abs(dt2) > wk2:
                         continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free2:
+                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk2 is None:
+                free2 = True
                 th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
+                free2 = False
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq2 - 1.0) > 1e-15:
@@ -664,26 +660,28 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             th6 = atan2(s6, c6)
 
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free5 = True
 
             dt5 = -s6*s6
             if abs(dt5) > 1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
-                free5 = False
                 wk5 = 1e-08
+            else:
+                wk5 = None  # no form applies: the pair leaves th5 free
 
-            if not free5:
+            if wk5 is not None:
                 hq5 = c5 * c5 + s5 * s5
                 if abs(hq5 - 1.0) > 1e-4:
                     if abs(dt5) > wk5:
                         continue
-                    free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free5:
+                    wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk5 is None:
+                free5 = True
                 th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
             else:
+                free5 = False
                 th5 = atan2(s5, c5)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq5 - 1.0) > 1e-15:
@@ -703,6 +701,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             c7 = g67_11
             s7 = -g67_12
+
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue
@@ -714,7 +713,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             lm1 = s4
             lm2 = s6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
-            conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6 * 1.0, )
+            conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
@@ -809,11 +808,9 @@ def inverse_joints(pose, given, current=None):
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
-        cn4 = 308760.0*ec4
-        sn4 = 308760.0*root4*sg4
         th4 = 0.0 + sg4 * dl4
-        c4 = 1.0489576038357677e-11*cn4
-        s4 = 1.0489576038357677e-11*sn4
+        c4 = 1.0489576038357677e-11*(308760.0*ec4)
+        s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -851,17 +848,14 @@ def inverse_joints(pose, given, current=None):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free2 = True
             t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
-                free2 = False
                 wk2 = 0.0009999999999999998
-
-            if free2:
+            else:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
                 t9_1_2 = 744.0*c4
@@ -892,57 +886,58 @@ def inverse_joints(pose, given, current=None):
                 if abs(dt2) > 1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
-                    free2 = False
                     wk2 = 1.0
+                else:
+                    t9_2_0 = -g17_11*r32
+                    t9_2_1 = -g17_12*r31
+                    t9_2_2 = 308760.0*c4
+                    t9_2_3 = 138384.0*s4*s4
+                    t9_2_4 = s3*s3*t9_2_3
+                    t9_2_5 = 415.0*g17_24
+                    t9_2_6 = 415.0*g17_34
+                    t9_2_7 = g17_11*g17_32
+                    t9_2_8 = g17_31*t9_2_6
+                    t9_2_9 = 372.0*c4
+                    t9_2_10 = g17_24*t9_2_9
+                    t9_2_11 = g17_34*t9_2_9
+                    t9_2_12 = g17_12*g17_31
+                    t9_2_13 = s3*s4
+                    t9_2_14 = 154380.0*t9_2_13
+                    t9_2_15 = 372.0*s4
+                    t9_2_16 = c3*t9_2_15
+                    t9_2_17 = g17_14*t9_2_16
+                    t9_2_18 = -g17_32*r31
+                    t9_2_19 = g17_34*t9_2_16
+                    t9_2_20 = -g17_31*r32
+                    t9_2_21 = c3*t9_2_20
+                    t9_2_22 = 138384.0*c4*t9_2_13
+                    t9_2_23 = s3*t9_2_3
+                    t9_2_24 = c3*t9_2_23
+                    t9_2_25 = 415.0*g17_14
+                    t9_2_26 = g17_14*t9_2_9
+                    t9_2_27 = g17_24*t9_2_16
 
-            if free2:
-                t9_2_0 = -g17_11*r32
-                t9_2_1 = -g17_12*r31
-                t9_2_2 = 308760.0*c4
-                t9_2_3 = 138384.0*s4*s4
-                t9_2_4 = s3*s3*t9_2_3
-                t9_2_5 = 415.0*g17_24
-                t9_2_6 = 415.0*g17_34
-                t9_2_7 = g17_11*g17_32
-                t9_2_8 = g17_31*t9_2_6
-                t9_2_9 = 372.0*c4
-                t9_2_10 = g17_24*t9_2_9
-                t9_2_11 = g17_34*t9_2_9
-                t9_2_12 = g17_12*g17_31
-                t9_2_13 = s3*s4
-                t9_2_14 = 154380.0*t9_2_13
-                t9_2_15 = 372.0*s4
-                t9_2_16 = c3*t9_2_15
-                t9_2_17 = g17_14*t9_2_16
-                t9_2_18 = -g17_32*r31
-                t9_2_19 = g17_34*t9_2_16
-                t9_2_20 = -g17_31*r32
-                t9_2_21 = c3*t9_2_20
-                t9_2_22 = 138384.0*c4*t9_2_13
-                t9_2_23 = s3*t9_2_3
-                t9_2_24 = c3*t9_2_23
-                t9_2_25 = 415.0*g17_14
-                t9_2_26 = g17_14*t9_2_9
-                t9_2_27 = g17_24*t9_2_16
+                    dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
+                    if abs(dt2) > 9.999999999999999e-16:
+                        c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
+                        s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
+                        wk2 = 0.0009999999999999998
+                    else:
+                        wk2 = None  # no form applies: the pair leaves th2 free
 
-                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
-                if abs(dt2) > 9.999999999999999e-16:
-                    c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
-                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
-                    free2 = False
-                    wk2 = 0.0009999999999999998
-
-            if not free2:
+            if wk2 is not None:
                 hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-4:
                     if abs(dt2) > wk2:
                         continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free2:
+                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk2 is None:
+                free2 = True
                 th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
+                free2 = False
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq2 - 1.0) > 1e-15:
@@ -987,26 +982,28 @@ def inverse_joints(pose, given, current=None):
             th6 = atan2(s6, c6)
 
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free5 = True
 
             dt5 = -s6*s6
             if abs(dt5) > 1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
-                free5 = False
                 wk5 = 1e-08
+            else:
+                wk5 = None  # no form applies: the pair leaves th5 free
 
-            if not free5:
+            if wk5 is not None:
                 hq5 = c5 * c5 + s5 * s5
                 if abs(hq5 - 1.0) > 1e-4:
                     if abs(dt5) > wk5:
                         continue
-                    free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free5:
+                    wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk5 is None:
+                free5 = True
                 th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
             else:
+                free5 = False
                 th5 = atan2(s5, c5)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq5 - 1.0) > 1e-15:
@@ -1026,6 +1023,7 @@ def inverse_joints(pose, given, current=None):
 
             c7 = g67_11
             s7 = -g67_12
+
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue

@@ -412,11 +412,9 @@ def _closed_form(pose, current, check_finite=True):
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = -8000.0*ec3 + 76000.0*root3*sg3
-        sn3 = -76000.0*ec3 - 8000.0*root3*sg3
         th3 = -1.6756732655251305 + sg3 * dl3
-        c3 = 1.7123287671232877e-10*cn3
-        s3 = 1.7123287671232877e-10*sn3
+        c3 = 1.7123287671232877e-10*(-8000.0*ec3 + 76000.0*root3*sg3)
+        s3 = 1.7123287671232877e-10*(-76000.0*ec3 - 8000.0*root3*sg3)
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -451,7 +449,6 @@ def _closed_form(pose, current, check_finite=True):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free2 = True
             t6_0_0 = 20.0*c3
             t6_0_1 = 190.0*v1x
             t6_0_2 = s3*v1y
@@ -460,10 +457,8 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2
                 s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2
-                free2 = False
                 wk2 = 0.0009999999999999998
-
-            if free2:
+            else:
                 t6_1_0 = q1x*v1x
                 t6_1_1 = q1x*v1y
                 t6_1_2 = q1y*v1x
@@ -495,31 +490,32 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 9.999999999999999e-14:
                     c2 = (-q1y*t6_1_19 + 16000.0*q1y - 76000.0*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900.0*t6_1_10 - t6_1_11*t6_1_14 - 800.0*t6_1_11 + 7600.0*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900.0*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600.0*t6_1_8 + 80800.0*t6_1_9) / dt2
                     s2 = (76000.0*c3*t6_1_13 + q1x*t6_1_19 - 16000.0*q1x - 7600.0*t6_1_11 - t6_1_12*t6_1_14 - 800.0*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900.0*t6_1_24 + 72900.0*t6_1_25 - 80800.0*t6_1_8 + 7600.0*t6_1_9) / dt2
-                    free2 = False
                     wk2 = 0.09999999999999999
+                else:
+                    t6_2_0 = c3*s3
+                    t6_2_1 = s3*s3
 
-            if free2:
-                t6_2_0 = c3*s3
-                t6_2_1 = s3*s3
+                    dt2 = 190.0*c3*v1x - 20.0*c3*v1y - 20.0*s3*v1x - 190.0*s3*v1y - 200.0*v1y
+                    if abs(dt2) > 1e-16:
+                        c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
+                        s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
+                        wk2 = 9.999999999999999e-05
+                    else:
+                        wk2 = None  # no form applies: the pair leaves th2 free
 
-                dt2 = 190.0*c3*v1x - 20.0*c3*v1y - 20.0*s3*v1x - 190.0*s3*v1y - 200.0*v1y
-                if abs(dt2) > 1e-16:
-                    c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
-                    s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
-                    free2 = False
-                    wk2 = 9.999999999999999e-05
-
-            if not free2:
+            if wk2 is not None:
                 hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-4:
                     if abs(dt2) > wk2:
                         continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free2:
+                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk2 is None:
+                free2 = True
                 th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
+                free2 = False
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq2 - 1.0) > 1e-15:
@@ -550,27 +546,29 @@ def _closed_form(pose, current, check_finite=True):
             s5 = 0.0002777777777777778*sn5
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
             t10_0_0 = 60.0*s5
 
             dt4 = -3600.0*s5*s5
             if abs(dt4) > 9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
-                free4 = False
                 wk4 = 9.999999999999999e-06
+            else:
+                wk4 = None  # no form applies: the pair leaves th4 free
 
-            if not free4:
+            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-4:
                     if abs(dt4) > wk4:
                         continue
-                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
+                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk4 is None:
+                free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
             else:
+                free4 = False
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq4 - 1.0) > 1e-15:

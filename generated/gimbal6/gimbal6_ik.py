@@ -535,6 +535,7 @@ def _closed_form(pose, current, check_finite=True):
 
         c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
         s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
+
         hq4 = c4 * c4 + s4 * s4
         if abs(hq4 - 1.0) > 1e-4:
             continue
@@ -546,27 +547,29 @@ def _closed_form(pose, current, check_finite=True):
             s4 = s4 * hn4
 
         # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free5 = True
         t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         if abs(dt5) > 1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
-            free5 = False
             wk5 = 9.999999999999999e-10
+        else:
+            wk5 = None  # no form applies: the pair leaves th5 free
 
-        if not free5:
+        if wk5 is not None:
             hq5 = c5 * c5 + s5 * s5
             if abs(hq5 - 1.0) > 1e-4:
                 if abs(dt5) > wk5:
                     continue
-                free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
-        if free5:
+                wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
+        if wk5 is None:
+            free5 = True
             th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
         else:
+            free5 = False
             th5 = atan2(s5, c5)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
             if abs(hq5 - 1.0) > 1e-15:
@@ -621,26 +624,28 @@ def _closed_form(pose, current, check_finite=True):
         th2 = atan2(s2, c2)
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free1 = True
 
         dt1 = s2*s2
         if abs(dt1) > 1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
-            free1 = False
             wk1 = 1e-08
+        else:
+            wk1 = None  # no form applies: the pair leaves th1 free
 
-        if not free1:
+        if wk1 is not None:
             hq1 = c1 * c1 + s1 * s1
             if abs(hq1 - 1.0) > 1e-4:
                 if abs(dt1) > wk1:
                     continue
-                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
-        if free1:
+                wk1 = None  # ill-conditioned near a singular pose: the pair does not fix it
+        if wk1 is None:
+            free1 = True
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
+            free1 = False
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
             if abs(hq1 - 1.0) > 1e-15:
@@ -660,6 +665,7 @@ def _closed_form(pose, current, check_finite=True):
 
         c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
         s3 = (-g23_12) / 0.8660254037844386
+
         hq3 = c3 * c3 + s3 * s3
         if abs(hq3 - 1.0) > 1e-4:
             continue
@@ -670,7 +676,7 @@ def _closed_form(pose, current, check_finite=True):
         lm0 = s2
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
-        conditioning = (cnd6, root2 * 1.0, )
+        conditioning = (cnd6, root2, )
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
         u2 = th2
         u3 = th3
@@ -773,6 +779,7 @@ def inverse_joints(pose, current=None):
 
         c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
         s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
+
         hq4 = c4 * c4 + s4 * s4
         if abs(hq4 - 1.0) > 1e-4:
             continue
@@ -784,27 +791,29 @@ def inverse_joints(pose, current=None):
             s4 = s4 * hn4
 
         # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free5 = True
         t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         if abs(dt5) > 1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
-            free5 = False
             wk5 = 9.999999999999999e-10
+        else:
+            wk5 = None  # no form applies: the pair leaves th5 free
 
-        if not free5:
+        if wk5 is not None:
             hq5 = c5 * c5 + s5 * s5
             if abs(hq5 - 1.0) > 1e-4:
                 if abs(dt5) > wk5:
                     continue
-                free5 = True  # ill-conditioned near a singular pose: the pair does not fix it
-        if free5:
+                wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
+        if wk5 is None:
+            free5 = True
             th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
         else:
+            free5 = False
             th5 = atan2(s5, c5)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
             if abs(hq5 - 1.0) > 1e-15:
@@ -859,26 +868,28 @@ def inverse_joints(pose, current=None):
         th2 = atan2(s2, c2)
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        free1 = True
 
         dt1 = s2*s2
         if abs(dt1) > 1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
-            free1 = False
             wk1 = 1e-08
+        else:
+            wk1 = None  # no form applies: the pair leaves th1 free
 
-        if not free1:
+        if wk1 is not None:
             hq1 = c1 * c1 + s1 * s1
             if abs(hq1 - 1.0) > 1e-4:
                 if abs(dt1) > wk1:
                     continue
-                free1 = True  # ill-conditioned near a singular pose: the pair does not fix it
-        if free1:
+                wk1 = None  # ill-conditioned near a singular pose: the pair does not fix it
+        if wk1 is None:
+            free1 = True
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
+            free1 = False
             th1 = atan2(s1, c1)
             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
             if abs(hq1 - 1.0) > 1e-15:
@@ -898,6 +909,7 @@ def inverse_joints(pose, current=None):
 
         c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
         s3 = (-g23_12) / 0.8660254037844386
+
         hq3 = c3 * c3 + s3 * s3
         if abs(hq3 - 1.0) > 1e-4:
             continue

@@ -386,11 +386,9 @@ def _closed_form(pose, current, check_finite=True):
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = 185600.0*root3*sg3
-        sn3 = -185600.0*ec3
         th3 = -1.5707963267948966 + sg3 * dl3
-        c3 = 2.902980083234245e-11*cn3
-        s3 = 2.902980083234245e-11*sn3
+        c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
+        s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -431,17 +429,14 @@ def _closed_form(pose, current, check_finite=True):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free2 = True
             t7_0_0 = 290.0*v1x
 
             dt2 = -185600.0*s3 - 186500.0
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
-                free2 = False
                 wk2 = 0.0009999999999999998
-
-            if free2:
+            else:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
                 t7_1_2 = -r33*v1y
@@ -468,20 +463,23 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
-                    free2 = False
                     wk2 = 1.0
+                else:
+                    wk2 = None  # no form applies: the pair leaves th2 free
 
-            if not free2:
+            if wk2 is not None:
                 hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-4:
                     if abs(dt2) > wk2:
                         continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free2:
+                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk2 is None:
+                free2 = True
                 th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
+                free2 = False
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq2 - 1.0) > 1e-15:
@@ -518,26 +516,28 @@ def _closed_form(pose, current, check_finite=True):
             th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
 
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                free4 = False
                 wk4 = 1e-08
+            else:
+                wk4 = None  # no form applies: the pair leaves th4 free
 
-            if not free4:
+            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-4:
                     if abs(dt4) > wk4:
                         continue
-                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
+                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk4 is None:
+                free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
             else:
+                free4 = False
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq4 - 1.0) > 1e-15:
@@ -557,6 +557,7 @@ def _closed_form(pose, current, check_finite=True):
 
             c6 = g56_11
             s6 = -g56_12
+
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -568,7 +569,7 @@ def _closed_form(pose, current, check_finite=True):
             lm1 = 92800.0*c3
             lm2 = s5
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
-            conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5 * 1.0, )
+            conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - 1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
@@ -655,11 +656,9 @@ def inverse_joints(pose, current=None):
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-        cn3 = 185600.0*root3*sg3
-        sn3 = -185600.0*ec3
         th3 = -1.5707963267948966 + sg3 * dl3
-        c3 = 2.902980083234245e-11*cn3
-        s3 = 2.902980083234245e-11*sn3
+        c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
+        s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -700,17 +699,14 @@ def inverse_joints(pose, current=None):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free2 = True
             t7_0_0 = 290.0*v1x
 
             dt2 = -185600.0*s3 - 186500.0
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
-                free2 = False
                 wk2 = 0.0009999999999999998
-
-            if free2:
+            else:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
                 t7_1_2 = -r33*v1y
@@ -737,20 +733,23 @@ def inverse_joints(pose, current=None):
                 if abs(dt2) > 1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
-                    free2 = False
                     wk2 = 1.0
+                else:
+                    wk2 = None  # no form applies: the pair leaves th2 free
 
-            if not free2:
+            if wk2 is not None:
                 hq2 = c2 * c2 + s2 * s2
                 if abs(hq2 - 1.0) > 1e-4:
                     if abs(dt2) > wk2:
                         continue
-                    free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free2:
+                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk2 is None:
+                free2 = True
                 th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
+                free2 = False
                 th2 = atan2(s2, c2)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq2 - 1.0) > 1e-15:
@@ -787,26 +786,28 @@ def inverse_joints(pose, current=None):
             th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
 
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                free4 = False
                 wk4 = 1e-08
+            else:
+                wk4 = None  # no form applies: the pair leaves th4 free
 
-            if not free4:
+            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-4:
                     if abs(dt4) > wk4:
                         continue
-                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
+                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk4 is None:
+                free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
             else:
+                free4 = False
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq4 - 1.0) > 1e-15:
@@ -826,6 +827,7 @@ def inverse_joints(pose, current=None):
 
             c6 = g56_11
             s6 = -g56_12
+
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue

@@ -452,26 +452,28 @@ def _closed_form(pose, current, check_finite=True):
             th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
 
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                free4 = False
                 wk4 = 1e-08
+            else:
+                wk4 = None  # no form applies: the pair leaves th4 free
 
-            if not free4:
+            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-4:
                     if abs(dt4) > wk4:
                         continue
-                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
+                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk4 is None:
+                free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
             else:
+                free4 = False
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq4 - 1.0) > 1e-15:
@@ -491,6 +493,7 @@ def _closed_form(pose, current, check_finite=True):
 
             c6 = g56_11
             s6 = -g56_12
+
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue
@@ -505,7 +508,7 @@ def _closed_form(pose, current, check_finite=True):
             lm1 = s5
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
-            conditioning = (root1 * 0.001, root2 * 0.001, root5 * 1.0, )
+            conditioning = (root1 * 0.001, root2 * 0.001, root5, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
@@ -666,26 +669,28 @@ def inverse_joints(pose, current=None):
             th5 = atan2(s5, c5)
 
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free4 = True
 
             dt4 = -s5*s5
             if abs(dt4) > 1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                free4 = False
                 wk4 = 1e-08
+            else:
+                wk4 = None  # no form applies: the pair leaves th4 free
 
-            if not free4:
+            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
                 if abs(hq4 - 1.0) > 1e-4:
                     if abs(dt4) > wk4:
                         continue
-                    free4 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free4:
+                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk4 is None:
+                free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
             else:
+                free4 = False
                 th4 = atan2(s4, c4)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq4 - 1.0) > 1e-15:
@@ -705,6 +710,7 @@ def inverse_joints(pose, current=None):
 
             c6 = g56_11
             s6 = -g56_12
+
             hq6 = c6 * c6 + s6 * s6
             if abs(hq6 - 1.0) > 1e-4:
                 continue

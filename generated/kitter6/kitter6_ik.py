@@ -409,33 +409,33 @@ def _closed_form(pose, current, check_finite=True):
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
-            cn5 = -g16_23
-            sn5 = root5*sg5
             th5 = 0.0 + sg5 * dl5
-            c5 = cn5
-            s5 = sn5
+            c5 = (-g16_23)
+            s5 = (root5*sg5)
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
             dt6 = -s5*s5
             if abs(dt6) > 1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
-                free6 = False
                 wk6 = 1e-08
+            else:
+                wk6 = None  # no form applies: the pair leaves th6 free
 
-            if not free6:
+            if wk6 is not None:
                 hq6 = c6 * c6 + s6 * s6
                 if abs(hq6 - 1.0) > 1e-4:
                     if abs(dt6) > wk6:
                         continue
-                    free6 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free6:
+                    wk6 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk6 is None:
+                free6 = True
                 th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
             else:
+                free6 = False
                 th6 = atan2(s6, c6)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq6 - 1.0) > 1e-15:
@@ -468,6 +468,7 @@ def _closed_form(pose, current, check_finite=True):
 
             cp234 = g14_11
             sp234 = -g14_12
+
             hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-4:
                 continue
@@ -484,34 +485,34 @@ def _closed_form(pose, current, check_finite=True):
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-                cn3 = -194700.0*ec3
-                sn3 = -194700.0*root3*sg3
                 th3 = 3.141592653589793 + sg3 * dl3
-                c3 = 2.6379593379671728e-11*cn3
-                s3 = 2.6379593379671728e-11*sn3
+                c3 = 2.6379593379671728e-11*(-194700.0*ec3)
+                s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-                free2 = True
                 t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
-                    free2 = False
                     wk2 = 0.0009999999999999998
+                else:
+                    wk2 = None  # no form applies: the pair leaves th2 free
 
-                if not free2:
+                if wk2 is not None:
                     hq2 = c2 * c2 + s2 * s2
                     if abs(hq2 - 1.0) > 1e-4:
                         if abs(dt2) > wk2:
                             continue
-                        free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-                if free2:
+                        wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+                if wk2 is None:
+                    free2 = True
                     th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
                 else:
+                    free2 = False
                     th2 = atan2(s2, c2)
 
                 # th4: from the sum of parallel-axis angles
@@ -523,7 +524,7 @@ def _closed_form(pose, current, check_finite=True):
                 lm1 = -97350.0*s3
                 lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
-                conditioning = (root1 * 0.003162277660168379, root5 * 1.0, root3 * 5.136106831022085e-06, )
+                conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
                 u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
@@ -614,33 +615,33 @@ def inverse_joints(pose, current=None):
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
-            cn5 = -g16_23
-            sn5 = root5*sg5
             th5 = 0.0 + sg5 * dl5
-            c5 = cn5
-            s5 = sn5
+            c5 = (-g16_23)
+            s5 = (root5*sg5)
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            free6 = True
 
             dt6 = -s5*s5
             if abs(dt6) > 1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
-                free6 = False
                 wk6 = 1e-08
+            else:
+                wk6 = None  # no form applies: the pair leaves th6 free
 
-            if not free6:
+            if wk6 is not None:
                 hq6 = c6 * c6 + s6 * s6
                 if abs(hq6 - 1.0) > 1e-4:
                     if abs(dt6) > wk6:
                         continue
-                    free6 = True  # ill-conditioned near a singular pose: the pair does not fix it
-            if free6:
+                    wk6 = None  # ill-conditioned near a singular pose: the pair does not fix it
+            if wk6 is None:
+                free6 = True
                 th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
             else:
+                free6 = False
                 th6 = atan2(s6, c6)
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                 if abs(hq6 - 1.0) > 1e-15:
@@ -673,6 +674,7 @@ def inverse_joints(pose, current=None):
 
             cp234 = g14_11
             sp234 = -g14_12
+
             hqp234 = cp234 * cp234 + sp234 * sp234
             if abs(hqp234 - 1.0) > 1e-4:
                 continue
@@ -689,34 +691,34 @@ def inverse_joints(pose, current=None):
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
-                cn3 = -194700.0*ec3
-                sn3 = -194700.0*root3*sg3
                 th3 = 3.141592653589793 + sg3 * dl3
-                c3 = 2.6379593379671728e-11*cn3
-                s3 = 2.6379593379671728e-11*sn3
+                c3 = 2.6379593379671728e-11*(-194700.0*ec3)
+                s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-                free2 = True
                 t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
-                    free2 = False
                     wk2 = 0.0009999999999999998
+                else:
+                    wk2 = None  # no form applies: the pair leaves th2 free
 
-                if not free2:
+                if wk2 is not None:
                     hq2 = c2 * c2 + s2 * s2
                     if abs(hq2 - 1.0) > 1e-4:
                         if abs(dt2) > wk2:
                             continue
-                        free2 = True  # ill-conditioned near a singular pose: the pair does not fix it
-                if free2:
+                        wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
+                if wk2 is None:
+                    free2 = True
                     th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
                 else:
+                    free2 = False
                     th2 = atan2(s2, c2)
 
                 # th4: from the sum of parallel-axis angles

@@ -9,6 +9,7 @@ name.
 
 from __future__ import annotations
 
+import re
 import sympy as sp
 from sympy.printing.pycode import PythonCodePrinter
 
@@ -51,13 +52,22 @@ def forward_plan(arm: Arm) -> tuple[list[common.Assignment], list[sp.Expr]]:
     return common.eliminate(entries, "f")
 
 
+def in_place(block: common.Block, expr) -> str:
+    """``expr`` printed with a cossin block's cn<k>, sn<k> replaced by their formulas in
+    parentheses (one statement less each where nothing else reads them; the arithmetic, and so
+    every rounding, stays that of the other back-ends, which name them)."""
+    j, p = block.key, printer()
+    formulas = {f"cn{j}": f"({p.doprint(block.cn)})", f"sn{j}": f"({p.doprint(block.sn)})"}
+    return re.sub(rf"\b(cn{j}|sn{j})\b", lambda m: formulas[m.group(1)], p.doprint(expr))
+
+
 def render(arm: Arm, derivation: Derivation) -> str:
     plan = common.lower(derivation)
     p = printer()
     fwd_temps, fwd_entries = forward_plan(arm)
     template = common.environment().get_template("python_solver.py.j2")
     return common.tidy(template.render(
-        arm=arm, plan=plan, p=p.doprint, header=common.header_lines(arm, derivation),
+        arm=arm, plan=plan, p=p.doprint, in_place=in_place, header=common.header_lines(arm, derivation),
         module_name=common.identifier(arm.name), comment=common.comment_text,
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
