@@ -125,7 +125,13 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
                     "roll_gain": common.ROLL_GAIN[scalar.name], "roll_floor": common.ROLL_FLOOR[scalar.name],
                     "unit": common.UNIT_TOLERANCE[scalar.name]})
     return {n["header"]: common.tidy(env.get_template("c_header.h.j2").render(**context)),
-            n["source"]: common.tidy(env.get_template("c_source.c.j2").render(**context))}
+            n["source"]: common.tidy(env.get_template("c_source.c.j2").render({**context, **source_functions(scalar, n)}))}
+
+
+def source_functions(scalar: Scalar, n: dict) -> dict:
+    """The source's ``fn``: every atan2 goes through <prefix>_atan2 (templates/c_atan2.c.j2: the
+    maths library's, or the kernel's when the user compiles with IKGEN_FAST_ATAN2 defined)."""
+    return {"fn": lambda name: f"{n['prefix']}_atan2" if name == "atan2" else scalar.fn(name)}
 
 
 def probe_terms(plan) -> list[str]:
