@@ -17,6 +17,58 @@
 
 #define BENCHTOP6_IK_F32_CLOSED_FORM 8
 
+#ifdef IKGEN_FAST_ATAN2
+/* atan2 without the maths library's atan2f (opt-in: compile with -DIKGEN_FAST_ATAN2). The
+ * quotient t = y / x or -x / y whichever is at most 1 in magnitude (one division) gives
+ * atan2 = K + atan(t) with K = 0, pi or +-pi/2; atan(t) = t + t s P(s), s = t^2, P a minimax
+ * polynomial (Remez exchange, tools/atan2/remez.py); K is added as a high and a low part. One
+ * region and no table of regions: on a single-precision core each costs instructions. Special
+ * cases as C99 Annex F.9.1.4 (signed zeros, infinities, NaN). Measured error: docs/solvers.md,
+ * "A faster atan2". */
+static float benchtop6_ik_f32_atan2_unusual(float y, float x)
+{
+    if (x != x || y != y) {
+        return x + y;
+    }
+    /* both zero: +-0 or +-pi by the sign of x; both infinite: +-pi/4 or +-3 pi/4 */
+    const float angle = x == 0.0f ? (signbit(x) ? 3.14159274f : 0.0f) : (x < 0.0f ? 2.3561945f : 0.785398185f);
+    return signbit(y) ? -angle : angle;
+}
+
+static float benchtop6_ik_f32_atan2_kernel(float y, float x)
+{
+    static const float POLY[8] = /* float POLY */ { -0.333331525f, 0.199937731f, -0.142110556f, 0.106660046f, -0.0755221471f, 0.0432118662f, -0.0163679309f, 0.00292069302f };
+    /* K by (swap, x negative): 0, pi/2, pi, pi/2 */
+    static const float BASE_HIGH[4] = /* float BASE_HIGH */ { 0.0f, 1.57079637f, 3.14159274f, 1.57079637f };
+    /* K's low part is K times (pi - pi_high) / pi_high: one constant instead of a second table */
+    static const float LOW_RATIO[1] = /* float LOW_RATIO */ { -2.78275341e-08f };
+    const float ay = fabsf(y);
+    const int swap = ay > fabsf(x);
+    /* atan2(|y|, x) = atan(|y| / x) (+ pi for x < 0), or pi/2 + atan(-x / |y|) */
+    const float t = (swap ? -x : ay) / (swap ? ay : x);
+    if (t != t) {
+        return benchtop6_ik_f32_atan2_unusual(y, x);     /* NaN in, 0 / 0 or inf / inf */
+    }
+    const int quadrant = swap + 2 * (signbit(x) != 0);
+    const float s = t * t;
+    const float p = s * (POLY[0] + s * (POLY[1] + s * (POLY[2] + s * (POLY[3] + s * (POLY[4] + s * (POLY[5]
+                    + s * (POLY[6] + s * POLY[7])))))));
+    /* K + atan(t) >= 0: the small terms first, the high part of K last; then the sign of y */
+    const float angle = BASE_HIGH[quadrant] + (t + (t * p + BASE_HIGH[quadrant] * LOW_RATIO[0]));
+    return signbit(y) ? -angle : angle;
+}
+#endif
+
+/* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
+static inline float benchtop6_ik_f32_atan2(float y, float x)
+{
+#ifdef IKGEN_FAST_ATAN2
+    return benchtop6_ik_f32_atan2_kernel(y, x);
+#else
+    return atan2f(y, x);
+#endif
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const float LOW[BENCHTOP6_IK_F32_JOINTS] = { -170.0f, -120.0f, -150.0f, -180.0f, -125.0f, -180.0f };
@@ -171,7 +223,7 @@ static int closed_form(const float pose[16], const float *current,
             } else {
                 const float cn1 = root1*sg1*wx;
                 const float sn1 = root1*sg1*wy;
-                th1 = atan2f(sn1, cn1);
+                th1 = benchtop6_ik_f32_atan2(sn1, cn1);
                 c1 = cn1/t3_0;
                 s1 = sn1/t3_0;
 
@@ -206,7 +258,7 @@ static int closed_form(const float pose[16], const float *current,
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
-        const float dl3 = atan2f(root3, ec3);   /* th = gamma + sg * dl */
+        const float dl3 = benchtop6_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
         const int n3 = (root3 == 0.0f) ? 1 : 2;
         for (int k3 = 0; k3 < n3; ++k3) {
             const float sg3 = k3 ? -1.0f : 1.0f;
@@ -314,7 +366,7 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                th2 = atan2f(s2, c2);
+                th2 = benchtop6_ik_f32_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -355,7 +407,7 @@ static int closed_form(const float pose[16], const float *current,
             float th5, c5, s5;
             const float cn5 = g36_33;
             const float sn5 = root5;
-            th5 = atan2f(sn5, cn5);
+            th5 = benchtop6_ik_f32_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
@@ -383,7 +435,7 @@ static int closed_form(const float pose[16], const float *current,
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
-                th4 = atan2f(s4, c4);
+                th4 = benchtop6_ik_f32_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -419,7 +471,7 @@ static int closed_form(const float pose[16], const float *current,
             if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
                 continue;
             }
-            th6 = atan2f(s6, c6);
+            th6 = benchtop6_ik_f32_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
 

@@ -17,6 +17,58 @@
 
 #define BOARDPICK4_IK_F32_CLOSED_FORM 2
 
+#ifdef IKGEN_FAST_ATAN2
+/* atan2 without the maths library's atan2f (opt-in: compile with -DIKGEN_FAST_ATAN2). The
+ * quotient t = y / x or -x / y whichever is at most 1 in magnitude (one division) gives
+ * atan2 = K + atan(t) with K = 0, pi or +-pi/2; atan(t) = t + t s P(s), s = t^2, P a minimax
+ * polynomial (Remez exchange, tools/atan2/remez.py); K is added as a high and a low part. One
+ * region and no table of regions: on a single-precision core each costs instructions. Special
+ * cases as C99 Annex F.9.1.4 (signed zeros, infinities, NaN). Measured error: docs/solvers.md,
+ * "A faster atan2". */
+static float boardpick4_ik_f32_atan2_unusual(float y, float x)
+{
+    if (x != x || y != y) {
+        return x + y;
+    }
+    /* both zero: +-0 or +-pi by the sign of x; both infinite: +-pi/4 or +-3 pi/4 */
+    const float angle = x == 0.0f ? (signbit(x) ? 3.14159274f : 0.0f) : (x < 0.0f ? 2.3561945f : 0.785398185f);
+    return signbit(y) ? -angle : angle;
+}
+
+static float boardpick4_ik_f32_atan2_kernel(float y, float x)
+{
+    static const float POLY[8] = /* float POLY */ { -0.333331525f, 0.199937731f, -0.142110556f, 0.106660046f, -0.0755221471f, 0.0432118662f, -0.0163679309f, 0.00292069302f };
+    /* K by (swap, x negative): 0, pi/2, pi, pi/2 */
+    static const float BASE_HIGH[4] = /* float BASE_HIGH */ { 0.0f, 1.57079637f, 3.14159274f, 1.57079637f };
+    /* K's low part is K times (pi - pi_high) / pi_high: one constant instead of a second table */
+    static const float LOW_RATIO[1] = /* float LOW_RATIO */ { -2.78275341e-08f };
+    const float ay = fabsf(y);
+    const int swap = ay > fabsf(x);
+    /* atan2(|y|, x) = atan(|y| / x) (+ pi for x < 0), or pi/2 + atan(-x / |y|) */
+    const float t = (swap ? -x : ay) / (swap ? ay : x);
+    if (t != t) {
+        return boardpick4_ik_f32_atan2_unusual(y, x);     /* NaN in, 0 / 0 or inf / inf */
+    }
+    const int quadrant = swap + 2 * (signbit(x) != 0);
+    const float s = t * t;
+    const float p = s * (POLY[0] + s * (POLY[1] + s * (POLY[2] + s * (POLY[3] + s * (POLY[4] + s * (POLY[5]
+                    + s * (POLY[6] + s * POLY[7])))))));
+    /* K + atan(t) >= 0: the small terms first, the high part of K last; then the sign of y */
+    const float angle = BASE_HIGH[quadrant] + (t + (t * p + BASE_HIGH[quadrant] * LOW_RATIO[0]));
+    return signbit(y) ? -angle : angle;
+}
+#endif
+
+/* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
+static inline float boardpick4_ik_f32_atan2(float y, float x)
+{
+#ifdef IKGEN_FAST_ATAN2
+    return boardpick4_ik_f32_atan2_kernel(y, x);
+#else
+    return atan2f(y, x);
+#endif
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const float LOW[BOARDPICK4_IK_F32_JOINTS] = { -140.0f, -150.0f, -1.8e-07f, -360.000001f };
@@ -117,7 +169,7 @@ static int closed_form(const float pose[16], const float *current,
         if (status) *status = BOARDPICK4_IK_F32_UNREACHABLE;
         return 0;
     }
-    thp12m4 = atan2f(sp12m4, cp12m4);
+    thp12m4 = boardpick4_ik_f32_atan2(sp12m4, cp12m4);
 
     /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
     float l3 = 0.0f, dn3;
@@ -157,7 +209,7 @@ static int closed_form(const float pose[16], const float *current,
         return 0;
     }
     const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
-    const float dl2 = atan2f(root2, ec2);   /* th = gamma + sg * dl */
+    const float dl2 = boardpick4_ik_f32_atan2(root2, ec2);   /* th = gamma + sg * dl */
     const int n2 = (root2 == 0.0f) ? 1 : 2;
     for (int k2 = 0; k2 < n2; ++k2) {
         const float sg2 = k2 ? -1.0f : 1.0f;
@@ -314,7 +366,7 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            th1 = atan2f(s1, c1);
+            th1 = boardpick4_ik_f32_atan2(s1, c1);
         }
 
         /* th4: from the sum of parallel-axis angles */

@@ -17,6 +17,89 @@
 
 #define CANTED6_IK_CLOSED_FORM 8
 
+#ifdef IKGEN_FAST_ATAN2
+/* atan2 without the maths library's atan2 (opt-in: compile with -DIKGEN_FAST_ATAN2). With
+ * lo = min(|x|, |y|) and hi = max(|x|, |y|), atan(lo / hi) = atan(c) + atan(t) with
+ * t = (lo - c hi) / (hi + c lo) and c = 0, 1/2 or 1 by the ratio (|t| <= 0.2554; both
+ * differences exact, Sterbenz); atan(t) = t + t s P(s), s = t^2, P a minimax polynomial (Remez
+ * exchange, tools/atan2/remez.py); the octant's base angle K + S atan(c) is added as a high and a
+ * low part. Special cases as C99 Annex F.9.1.4 (signed zeros, infinities, NaN). Measured error:
+ * docs/solvers.md, "A faster atan2". */
+static inline double canted6_ik_atan2_finish(double t, int entry, double y)
+{
+    static const double POLY[9] = /* double POLY */ { -0.33333333333333315, 0.1999999999998808, -0.14285714283175699, 0.11111110845748942, -0.090908933694665794, 0.076917433921642561, -0.066541188044622557, 0.057123152465279367, -0.039534165339001628 };
+    static const double BASE_HIGH[12] = /* double BASE_HIGH */ { 0.0, 0.46364760900080609, 0.78539816339744828, 1.5707963267948966, 1.1071487177940904, 0.78539816339744828, 3.1415926535897931, 2.677945044588987, 2.3561944901923448, 1.5707963267948966, 2.0344439357957027, 2.3561944901923448 };
+    static const double BASE_LOW[12] = /* double BASE_LOW */ { 0.0, 2.2698777452961687e-17, 3.061616997868383e-17, 6.123233995736766e-17, 9.4044713735663794e-17, 3.061616997868383e-17, 1.2246467991473532e-16, 1.5527705369303147e-16, 9.1848509936051484e-17, 6.123233995736766e-17, 2.841996617907152e-17, 9.1848509936051484e-17 };
+    static const double SIGN[12] = /* double SIGN */ { 1.0, 1.0, 1.0, -1.0, -1.0, -1.0, -1.0, -1.0, -1.0, 1.0, 1.0, 1.0 };
+    const double s = t * t;
+    const double s2 = s * s;
+    const double s4 = s2 * s2;
+    /* P(s) by Estrin's scheme: shorter dependency chains than Horner's */
+    const double p01 = POLY[0] + s * POLY[1];
+    const double p23 = POLY[2] + s * POLY[3];
+    const double p45 = POLY[4] + s * POLY[5];
+    const double p67 = POLY[6] + s * POLY[7];
+    const double p = s * ((p01 + s2 * p23) + s4 * ((p45 + s2 * p67) + s4 * POLY[8]));
+    /* K + S (atan(c) + atan(t)): the small terms first, the high part of the base angle last */
+    const double w = SIGN[entry] * t;
+    return copysign(BASE_HIGH[entry] + (w + (w * p + BASE_LOW[entry])), y);
+}
+
+/* lo <= hi, both finite, hi normal and far from overflow: the region, its t, the result. */
+static inline double canted6_ik_atan2_reduce(double lo, double hi, int octant, double y)
+{
+    static const double SPLIT[2] = /* double SPLIT */ { 0.25534192122103627, 0.72075922005612647 };
+    static const double CENTRE[3] = /* double CENTRE */ { 0.0, 0.5, 1.0 };
+    const int region = (lo >= SPLIT[0] * hi) + (lo >= SPLIT[1] * hi);
+    const double c = CENTRE[region];
+    return canted6_ik_atan2_finish((lo - c * hi) / (hi + c * lo), octant + region, y);
+}
+
+/* NaN, infinities, both zero, and magnitudes where c hi could round or hi + c lo overflow. */
+static double canted6_ik_atan2_unusual(double y, double x, double lo, double hi, int octant)
+{
+    if (x != x || y != y) {
+        return x + y;
+    }
+    if (hi > 1.7976931348623157e308) {
+        /* 0, pi/2 or pi; pi/4 or 3 pi/4 when both are infinite (region 2 with t = 0) */
+        return canted6_ik_atan2_finish(0.0, lo == hi ? octant + 2 : octant, y);
+    }
+    if (hi == 0.0) {
+        return canted6_ik_atan2_finish(0.0, octant, y);       /* +-0 or +-pi by the sign of x */
+    }
+    /* a power of two brings hi near 1 exactly; lo may underflow only where lo / hi does */
+    const double scale = hi > 1.0 ? 2.4099198651028841e-181 : 4.149515568880993e+180;
+    return canted6_ik_atan2_reduce(lo * scale, hi * scale, octant, y);
+}
+
+static double canted6_ik_atan2_kernel(double y, double x)
+{
+    /* hi and lo picked by index, not by a conditional: compilers turn the latter into a branch
+     * that random arguments mispredict half the time */
+    const double both[2] = { fabs(x), fabs(y) };
+    const int swap = both[1] > both[0];
+    const double hi = both[swap];
+    const double lo = both[1 - swap];
+    /* 3 entries (regions) per octant pair: no swap / swap, x positive / negative (signed zero) */
+    const int octant = 3 * (swap + 2 * (signbit(x) != 0));
+    if (hi < 1.0715086071862673e+301 && hi > 9.3326361850321888e-302) {
+        return canted6_ik_atan2_reduce(lo, hi, octant, y);
+    }
+    return canted6_ik_atan2_unusual(y, x, lo, hi, octant);
+}
+#endif
+
+/* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
+static inline double canted6_ik_atan2(double y, double x)
+{
+#ifdef IKGEN_FAST_ATAN2
+    return canted6_ik_atan2_kernel(y, x);
+#else
+    return atan2(y, x);
+#endif
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -212,7 +295,7 @@ static int ik_circle_roots(double k0, double k1, double k2, double k3, double k4
         const double cp = (1.0 - u[i] * u[i]) / w, sp = 2.0 * u[i] / w;
         const double cc = c0 * cp - s0 * sp, ss = s0 * cp + c0 * sp;
         const double slope = -k1 * ss + k2 * cc + k3 * (cc * cc - ss * ss) + 2.0 * k4 * ss * cc;
-        th[i] = atan2(ss, cc);
+        th[i] = canted6_ik_atan2(ss, cc);
         c[i] = cc;
         s[i] = ss;
         conditioning[i] = twice[i] ? 0.0 : fabs(slope) / scale;
@@ -420,7 +503,7 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            th1 = atan2(s1, c1);
+            th1 = canted6_ik_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -569,7 +652,7 @@ static int closed_form(const double pose[16], const double *current,
             c2 = cos(th2);
             s2 = sin(th2);
         } else {
-            th2 = atan2(s2, c2);
+            th2 = canted6_ik_atan2(s2, c2);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -617,7 +700,7 @@ static int closed_form(const double pose[16], const double *current,
         double th5, c5, s5;
         const double cn5 = g36_33;
         const double sn5 = root5;
-        th5 = atan2(sn5, cn5);
+        th5 = canted6_ik_atan2(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
 
@@ -645,7 +728,7 @@ static int closed_form(const double pose[16], const double *current,
             c4 = cos(th4);
             s4 = sin(th4);
         } else {
-            th4 = atan2(s4, c4);
+            th4 = canted6_ik_atan2(s4, c4);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -681,7 +764,7 @@ static int closed_form(const double pose[16], const double *current,
         if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
             continue;
         }
-        th6 = atan2(s6, c6);
+        th6 = canted6_ik_atan2(s6, c6);
 
         /* joint readings, configuration labels, singular flag */
 

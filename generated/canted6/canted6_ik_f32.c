@@ -17,6 +17,58 @@
 
 #define CANTED6_IK_F32_CLOSED_FORM 8
 
+#ifdef IKGEN_FAST_ATAN2
+/* atan2 without the maths library's atan2f (opt-in: compile with -DIKGEN_FAST_ATAN2). The
+ * quotient t = y / x or -x / y whichever is at most 1 in magnitude (one division) gives
+ * atan2 = K + atan(t) with K = 0, pi or +-pi/2; atan(t) = t + t s P(s), s = t^2, P a minimax
+ * polynomial (Remez exchange, tools/atan2/remez.py); K is added as a high and a low part. One
+ * region and no table of regions: on a single-precision core each costs instructions. Special
+ * cases as C99 Annex F.9.1.4 (signed zeros, infinities, NaN). Measured error: docs/solvers.md,
+ * "A faster atan2". */
+static float canted6_ik_f32_atan2_unusual(float y, float x)
+{
+    if (x != x || y != y) {
+        return x + y;
+    }
+    /* both zero: +-0 or +-pi by the sign of x; both infinite: +-pi/4 or +-3 pi/4 */
+    const float angle = x == 0.0f ? (signbit(x) ? 3.14159274f : 0.0f) : (x < 0.0f ? 2.3561945f : 0.785398185f);
+    return signbit(y) ? -angle : angle;
+}
+
+static float canted6_ik_f32_atan2_kernel(float y, float x)
+{
+    static const float POLY[8] = /* float POLY */ { -0.333331525f, 0.199937731f, -0.142110556f, 0.106660046f, -0.0755221471f, 0.0432118662f, -0.0163679309f, 0.00292069302f };
+    /* K by (swap, x negative): 0, pi/2, pi, pi/2 */
+    static const float BASE_HIGH[4] = /* float BASE_HIGH */ { 0.0f, 1.57079637f, 3.14159274f, 1.57079637f };
+    /* K's low part is K times (pi - pi_high) / pi_high: one constant instead of a second table */
+    static const float LOW_RATIO[1] = /* float LOW_RATIO */ { -2.78275341e-08f };
+    const float ay = fabsf(y);
+    const int swap = ay > fabsf(x);
+    /* atan2(|y|, x) = atan(|y| / x) (+ pi for x < 0), or pi/2 + atan(-x / |y|) */
+    const float t = (swap ? -x : ay) / (swap ? ay : x);
+    if (t != t) {
+        return canted6_ik_f32_atan2_unusual(y, x);     /* NaN in, 0 / 0 or inf / inf */
+    }
+    const int quadrant = swap + 2 * (signbit(x) != 0);
+    const float s = t * t;
+    const float p = s * (POLY[0] + s * (POLY[1] + s * (POLY[2] + s * (POLY[3] + s * (POLY[4] + s * (POLY[5]
+                    + s * (POLY[6] + s * POLY[7])))))));
+    /* K + atan(t) >= 0: the small terms first, the high part of K last; then the sign of y */
+    const float angle = BASE_HIGH[quadrant] + (t + (t * p + BASE_HIGH[quadrant] * LOW_RATIO[0]));
+    return signbit(y) ? -angle : angle;
+}
+#endif
+
+/* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
+static inline float canted6_ik_f32_atan2(float y, float x)
+{
+#ifdef IKGEN_FAST_ATAN2
+    return canted6_ik_f32_atan2_kernel(y, x);
+#else
+    return atan2f(y, x);
+#endif
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -212,7 +264,7 @@ static int ik_circle_roots(float k0, float k1, float k2, float k3, float k4, flo
         const float cp = (1.0f - u[i] * u[i]) / w, sp = 2.0f * u[i] / w;
         const float cc = c0 * cp - s0 * sp, ss = s0 * cp + c0 * sp;
         const float slope = -k1 * ss + k2 * cc + k3 * (cc * cc - ss * ss) + 2.0f * k4 * ss * cc;
-        th[i] = atan2f(ss, cc);
+        th[i] = canted6_ik_f32_atan2(ss, cc);
         c[i] = cc;
         s[i] = ss;
         conditioning[i] = twice[i] ? 0.0f : fabsf(slope) / scale;
@@ -420,7 +472,7 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            th1 = atan2f(s1, c1);
+            th1 = canted6_ik_f32_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -569,7 +621,7 @@ static int closed_form(const float pose[16], const float *current,
             c2 = cosf(th2);
             s2 = sinf(th2);
         } else {
-            th2 = atan2f(s2, c2);
+            th2 = canted6_ik_f32_atan2(s2, c2);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -617,7 +669,7 @@ static int closed_form(const float pose[16], const float *current,
         float th5, c5, s5;
         const float cn5 = g36_33;
         const float sn5 = root5;
-        th5 = atan2f(sn5, cn5);
+        th5 = canted6_ik_f32_atan2(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
 
@@ -645,7 +697,7 @@ static int closed_form(const float pose[16], const float *current,
             c4 = cosf(th4);
             s4 = sinf(th4);
         } else {
-            th4 = atan2f(s4, c4);
+            th4 = canted6_ik_f32_atan2(s4, c4);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -681,7 +733,7 @@ static int closed_form(const float pose[16], const float *current,
         if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
             continue;
         }
-        th6 = atan2f(s6, c6);
+        th6 = canted6_ik_f32_atan2(s6, c6);
 
         /* joint readings, configuration labels, singular flag */
 

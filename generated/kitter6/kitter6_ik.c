@@ -17,6 +17,89 @@
 
 #define KITTER6_IK_CLOSED_FORM 8
 
+#ifdef IKGEN_FAST_ATAN2
+/* atan2 without the maths library's atan2 (opt-in: compile with -DIKGEN_FAST_ATAN2). With
+ * lo = min(|x|, |y|) and hi = max(|x|, |y|), atan(lo / hi) = atan(c) + atan(t) with
+ * t = (lo - c hi) / (hi + c lo) and c = 0, 1/2 or 1 by the ratio (|t| <= 0.2554; both
+ * differences exact, Sterbenz); atan(t) = t + t s P(s), s = t^2, P a minimax polynomial (Remez
+ * exchange, tools/atan2/remez.py); the octant's base angle K + S atan(c) is added as a high and a
+ * low part. Special cases as C99 Annex F.9.1.4 (signed zeros, infinities, NaN). Measured error:
+ * docs/solvers.md, "A faster atan2". */
+static inline double kitter6_ik_atan2_finish(double t, int entry, double y)
+{
+    static const double POLY[9] = /* double POLY */ { -0.33333333333333315, 0.1999999999998808, -0.14285714283175699, 0.11111110845748942, -0.090908933694665794, 0.076917433921642561, -0.066541188044622557, 0.057123152465279367, -0.039534165339001628 };
+    static const double BASE_HIGH[12] = /* double BASE_HIGH */ { 0.0, 0.46364760900080609, 0.78539816339744828, 1.5707963267948966, 1.1071487177940904, 0.78539816339744828, 3.1415926535897931, 2.677945044588987, 2.3561944901923448, 1.5707963267948966, 2.0344439357957027, 2.3561944901923448 };
+    static const double BASE_LOW[12] = /* double BASE_LOW */ { 0.0, 2.2698777452961687e-17, 3.061616997868383e-17, 6.123233995736766e-17, 9.4044713735663794e-17, 3.061616997868383e-17, 1.2246467991473532e-16, 1.5527705369303147e-16, 9.1848509936051484e-17, 6.123233995736766e-17, 2.841996617907152e-17, 9.1848509936051484e-17 };
+    static const double SIGN[12] = /* double SIGN */ { 1.0, 1.0, 1.0, -1.0, -1.0, -1.0, -1.0, -1.0, -1.0, 1.0, 1.0, 1.0 };
+    const double s = t * t;
+    const double s2 = s * s;
+    const double s4 = s2 * s2;
+    /* P(s) by Estrin's scheme: shorter dependency chains than Horner's */
+    const double p01 = POLY[0] + s * POLY[1];
+    const double p23 = POLY[2] + s * POLY[3];
+    const double p45 = POLY[4] + s * POLY[5];
+    const double p67 = POLY[6] + s * POLY[7];
+    const double p = s * ((p01 + s2 * p23) + s4 * ((p45 + s2 * p67) + s4 * POLY[8]));
+    /* K + S (atan(c) + atan(t)): the small terms first, the high part of the base angle last */
+    const double w = SIGN[entry] * t;
+    return copysign(BASE_HIGH[entry] + (w + (w * p + BASE_LOW[entry])), y);
+}
+
+/* lo <= hi, both finite, hi normal and far from overflow: the region, its t, the result. */
+static inline double kitter6_ik_atan2_reduce(double lo, double hi, int octant, double y)
+{
+    static const double SPLIT[2] = /* double SPLIT */ { 0.25534192122103627, 0.72075922005612647 };
+    static const double CENTRE[3] = /* double CENTRE */ { 0.0, 0.5, 1.0 };
+    const int region = (lo >= SPLIT[0] * hi) + (lo >= SPLIT[1] * hi);
+    const double c = CENTRE[region];
+    return kitter6_ik_atan2_finish((lo - c * hi) / (hi + c * lo), octant + region, y);
+}
+
+/* NaN, infinities, both zero, and magnitudes where c hi could round or hi + c lo overflow. */
+static double kitter6_ik_atan2_unusual(double y, double x, double lo, double hi, int octant)
+{
+    if (x != x || y != y) {
+        return x + y;
+    }
+    if (hi > 1.7976931348623157e308) {
+        /* 0, pi/2 or pi; pi/4 or 3 pi/4 when both are infinite (region 2 with t = 0) */
+        return kitter6_ik_atan2_finish(0.0, lo == hi ? octant + 2 : octant, y);
+    }
+    if (hi == 0.0) {
+        return kitter6_ik_atan2_finish(0.0, octant, y);       /* +-0 or +-pi by the sign of x */
+    }
+    /* a power of two brings hi near 1 exactly; lo may underflow only where lo / hi does */
+    const double scale = hi > 1.0 ? 2.4099198651028841e-181 : 4.149515568880993e+180;
+    return kitter6_ik_atan2_reduce(lo * scale, hi * scale, octant, y);
+}
+
+static double kitter6_ik_atan2_kernel(double y, double x)
+{
+    /* hi and lo picked by index, not by a conditional: compilers turn the latter into a branch
+     * that random arguments mispredict half the time */
+    const double both[2] = { fabs(x), fabs(y) };
+    const int swap = both[1] > both[0];
+    const double hi = both[swap];
+    const double lo = both[1 - swap];
+    /* 3 entries (regions) per octant pair: no swap / swap, x positive / negative (signed zero) */
+    const int octant = 3 * (swap + 2 * (signbit(x) != 0));
+    if (hi < 1.0715086071862673e+301 && hi > 9.3326361850321888e-302) {
+        return kitter6_ik_atan2_reduce(lo, hi, octant, y);
+    }
+    return kitter6_ik_atan2_unusual(y, x, lo, hi, octant);
+}
+#endif
+
+/* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
+static inline double kitter6_ik_atan2(double y, double x)
+{
+#ifdef IKGEN_FAST_ATAN2
+    return kitter6_ik_atan2_kernel(y, x);
+#else
+    return atan2(y, x);
+#endif
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[KITTER6_IK_JOINTS] = { -270.00000053999997, -175.00000034999999, -160.00000032, -175.00000034999999, -175.00000034999999, -270.00000053999997 };
@@ -161,7 +244,7 @@ static int closed_form(const double pose[16], const double *current,
         } else {
             const double cn1 = -121.0*ea1 - eb1*root1*sg1;
             const double sn1 = ea1*root1*sg1 - 121.0*eb1;
-            th1 = atan2(sn1, cn1);
+            th1 = kitter6_ik_atan2(sn1, cn1);
             c1 = cn1/t2_0;
             s1 = sn1/t2_0;
 
@@ -182,7 +265,7 @@ static int closed_form(const double pose[16], const double *current,
             continue;
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
-        const double dl5 = atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
         const int n5 = (root5 == 0.0) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const double sg5 = k5 ? -1.0 : 1.0;
@@ -217,7 +300,7 @@ static int closed_form(const double pose[16], const double *current,
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
-                th6 = atan2(s6, c6);
+                th6 = kitter6_ik_atan2(s6, c6);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -266,7 +349,7 @@ static int closed_form(const double pose[16], const double *current,
             if (fabs(cp234 * cp234 + sp234 * sp234 - 1.0) > 0.0001) {
                 continue;
             }
-            thp234 = atan2(sp234, cp234);
+            thp234 = kitter6_ik_atan2(sp234, cp234);
 
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -278,7 +361,7 @@ static int closed_form(const double pose[16], const double *current,
                 continue;
             }
             const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
-            const double dl3 = atan2(root3, ec3);   /* th = gamma + sg * dl */
+            const double dl3 = kitter6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
             const int n3 = (root3 == 0.0) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const double sg3 = k3 ? -1.0 : 1.0;
@@ -314,7 +397,7 @@ static int closed_form(const double pose[16], const double *current,
                     c2 = cos(th2);
                     s2 = sin(th2);
                 } else {
-                    th2 = atan2(s2, c2);
+                    th2 = kitter6_ik_atan2(s2, c2);
                 }
 
                 /* th4: from the sum of parallel-axis angles */
