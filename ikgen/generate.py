@@ -19,6 +19,7 @@ from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
 from .model import Arm
+from .stopwatch import Stopwatch
 
 
 @dataclass
@@ -36,27 +37,37 @@ class Build:
         return f"{self.folder}/{self.folder}_ik.py"
 
 
-def build(arm: Arm) -> Build:
-    derivation = derive_arm(arm)
+def build(arm: Arm, timings: dict | None = None) -> Build:
+    """Derive once and render every file. ``timings`` (optional) receives each phase's seconds
+    (derive, python, batch, c, selftest, report and the report's own phases; see stopwatch.py)."""
+    watch = Stopwatch(timings)
+    with watch("derive"):
+        derivation = derive_arm(arm)
     folder = common.identifier(arm.name)
-    files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
-             f"{folder}/{folder}_ik_batch.py": batch_backend.render(arm, derivation),
-             f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
+    with watch("python"):
+        files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation)}
+    with watch("batch"):
+        files[f"{folder}/{folder}_ik_batch.py"] = batch_backend.render(arm, derivation)
+    files[f"{folder}/{folder}_derivation.txt"] = str(derivation) + "\n"
     solver = load_module(files[f"{folder}/{folder}_ik.py"], f"{folder}_ik_for_selftest")
     for scalar in c_backend.SCALARS:
-        for name, text in c_backend.render(arm, derivation, scalar).items():
-            files[f"{folder}/{name}"] = text
-        name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver)
+        with watch("c"):
+            for name, text in c_backend.render(arm, derivation, scalar).items():
+                files[f"{folder}/{name}"] = text
+        with watch("selftest"):
+            name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver)
         files[f"{folder}/{name}"] = text
-    files.update(report_files(arm, derivation, files[f"{folder}/{folder}_ik.py"]))
+    with watch("report"):
+        files.update(report_files(arm, derivation, files[f"{folder}/{folder}_ik.py"], timings=timings))
     return Build(arm, derivation, files)
 
 
-def report_files(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
+def report_files(arm: Arm, derivation: Derivation, python_source: str, timings: dict | None = None) -> dict[str, str]:
     """The derivation report (HTML, Markdown and its two SVG figures), paths relative to the
     output folder; the report verifies ``python_source`` (the generated solver) for its figures."""
     folder = common.identifier(arm.name)
-    return {f"{folder}/{name}": text for name, text in report_backend.render(arm, derivation, python_source).items()}
+    return {f"{folder}/{name}": text
+            for name, text in report_backend.render(arm, derivation, python_source, timings=timings).items()}
 
 
 def build_report(arm: Arm) -> Build:

@@ -37,6 +37,7 @@ from ..ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEq
                   angle_symbol, cos_symbol, sin_symbol)
 from ..kinematics import NumericChain
 from ..model import Arm
+from ..stopwatch import Stopwatch
 from . import common
 
 LATEX_SETTINGS = {"mul_symbol": "dot"}    # explicit products: "a_{2} \cdot \left(...\right)" reads unambiguously
@@ -693,10 +694,16 @@ def given_sentences(arm: Arm) -> list[str]:
             "in the arm file ([target] given_joint) or on the command line (--given-joint)."]
 
 
-def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
-    sheet = build_sheet(arm, derivation)
-    arm_svg = figures.arm_zero_figure(arm)
-    pose = pose_context(arm, derivation, module)
+def context(arm: Arm, derivation: Derivation, module, folder: str, timings: dict | None = None) -> dict:
+    watch = Stopwatch(timings)
+    with watch("report: sheet"):
+        sheet = build_sheet(arm, derivation)
+    with watch("report: figures"):
+        arm_svg = figures.arm_zero_figure(arm)
+    with watch("report: sample pose"):
+        pose = pose_context(arm, derivation, module)
+    with watch("report: verification"):
+        verification = verification_summary(arm, module)
     convention = CONVENTION_TEXT[arm.convention]
     branch_points = [s.branch for s in sheet.steps if s.branch is not None]
     return {
@@ -706,7 +713,7 @@ def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
         "dh_rows": dh_rows(arm), "parameters": parameter_rows(arm, derivation, sheet.names),
         "base": frame_matrix(arm.base), "tool": frame_matrix(arm.tool),
         "notation": notation_rows(sheet.names), "branch_points": branch_points,
-        "verification": verification_summary(arm, module), "pose": pose,
+        "verification": verification, "pose": pose,
         "arm_svg_inline": Markup(figures.inline(arm_svg, "zero", f"{arm.name} at its zero reading")),
         "pose_svg_inline": Markup(figures.inline(pose["svg"], "pose", "every solution of the sample pose")),
         "arm_svg_file": f"{folder}_report_arm.svg", "pose_svg_file": f"{folder}_report_pose.svg",
@@ -739,13 +746,15 @@ def environment() -> jinja2.Environment:
     return env
 
 
-def render(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
-    """The report files of one arm: {file name: text} (HTML, Markdown and the two SVG figures)."""
+def render(arm: Arm, derivation: Derivation, python_source: str, timings: dict | None = None) -> dict[str, str]:
+    """The report files of one arm: {file name: text} (HTML, Markdown and the two SVG figures).
+    ``timings`` (optional) receives the seconds of the report's phases (see stopwatch.py)."""
     from ..generate import load_module
     folder = common.identifier(arm.name)
     module = load_module(python_source, f"{folder}_ik_for_report")
-    data = context(arm, derivation, module, folder)
+    data = context(arm, derivation, module, folder, timings)
     env = environment()
-    return {f"{folder}_report.html": env.get_template("report.html.j2").render(**data),
-            f"{folder}_report.md": env.get_template("report.md.j2").render(**data),
-            data["arm_svg_file"]: data["arm_svg"], data["pose_svg_file"]: data["pose_svg"]}
+    with Stopwatch(timings)("report: documents"):
+        return {f"{folder}_report.html": env.get_template("report.html.j2").render(**data),
+                f"{folder}_report.md": env.get_template("report.md.j2").render(**data),
+                data["arm_svg_file"]: data["arm_svg"], data["pose_svg_file"]: data["pose_svg"]}
