@@ -38,6 +38,7 @@ from ..ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEq
 from ..kinematics import NumericChain
 from ..model import Arm
 from ..stopwatch import Stopwatch
+from ..templatecache import template_cache
 from . import common
 
 LATEX_SETTINGS = {"mul_symbol": "dot"}    # explicit products: "a_{2} \cdot \left(...\right)" reads unambiguously
@@ -179,13 +180,22 @@ def proven_equal(candidate, expr) -> bool:
         return False
 
 
-def weight(expr) -> tuple:
-    return (sp.count_ops(expr), len(latex(expr)))
+def lightest(candidates: list) -> sp.Expr:
+    """The first candidate of least weight: fewest operations (sympy.count_ops), then the shortest
+    LaTeX. The LaTeX, the costly part, is printed only for the candidates tied on operations."""
+    if len(candidates) == 1:
+        return candidates[0]
+    operations = [sp.count_ops(c) for c in candidates]
+    tied = [c for c, ops in zip(candidates, operations) if ops == min(operations)]
+    return tied[0] if len(tied) == 1 else min(tied, key=lambda c: len(latex(c)))   # min keeps the first of equals
 
 
 def bounded_factor(expr) -> sp.Expr:
     """sympy.factor from FACTOR_CONFIGS evaluation points, with sympy's random draws fixed (its
-    random state restored afterwards): the same factors, without the long random tail of its time."""
+    random state restored afterwards): the same factors, without the long random tail of its time.
+    An atom (a symbol or a number, most of what collect() hands over) is its own factorisation."""
+    if expr.is_Atom:
+        return expr
     state = sympy_random.rng.getstate()
     sympy_random.rng.seed(FACTOR_SEED)
     try:
@@ -220,7 +230,7 @@ def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
     for candidate, check in extra or []:
         if candidate not in candidates and proven_equal(check, expr):
             candidates.append(candidate)
-    return min(candidates, key=lambda e: (weight(e), candidates.index(e)))
+    return lightest(candidates)
 
 
 # ----------------------------------------------------------------------------- the sheet
@@ -741,7 +751,9 @@ def markdown_text(text) -> str:
 def environment() -> jinja2.Environment:
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(common.template_directory())),
                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                             keep_trailing_newline=True, autoescape=jinja2.select_autoescape(["html.j2"]))
+                             keep_trailing_newline=True, autoescape=jinja2.select_autoescape(["html.j2"]),
+                             bytecode_cache=template_cache("report: strict, trim, lstrip, keep newline, "
+                                                           "autoescape html.j2, filter md"))
     env.filters["md"] = markdown_text
     return env
 
