@@ -1,18 +1,22 @@
 """Benchmark: how long `ikgen generate` takes for one arm, whole and phase by phase.
 
 For each demo arm it runs, in fresh processes (so every run pays what a user's run pays: imports,
-template compilation, first use of matplotlib):
-- the command itself, `python -m ikgen.cli generate ARM -o TMP`, wall time (the median of --runs);
+first use of matplotlib; compiled templates come from jinja2's cache after the first run):
+- the command itself, `python -m ikgen.cli generate ARM -o TMP`: wall time (median and fastest of
+  --runs), CPU time (user + system of the command and its helper processes), and the wall time
+  with no helper process (IKGEN_HELPERS=0, everything in one process);
 - the same work in one process with each phase timed (generate.build's ``timings``): import of the
   command's modules, derive, render per back-end (Python, numpy batch, C double and float, the C
-  self-tests), and the report (its equation sheet, figures, sample pose, verification, documents).
+  self-tests), and the report: its equation sheet, figures, sample pose, verification, documents,
+  and how long the main process waited for the helpers that make the figures and documents.
 
 It prints one table, a row per arm, with the goal (3 s for a six-axis arm, all files and report)
 beside the wall time. Optionally a random arm from tests/arm_draws.py (--sweep-seed: the structure
 "three parallel axes, offset wrist", the slowest kind to render) is timed in-process too.
 
 Run:  python3 benchmarks/bench_generate.py [--arms benchtop6 packer6 kitter6] [--runs 3] [--sweep-seed 16]
-Figures depend on the machine and its load (`uptime` is printed beside them): quote them with care.
+Figures depend on the machine and its load (the load average is printed beside them): quote them
+with care; on a busy machine the CPU column is the steadier figure.
 """
 
 from __future__ import annotations
@@ -20,6 +24,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -31,17 +36,21 @@ ROOT = Path(__file__).resolve().parents[1]
 GOAL_SECONDS = 3.0          # issue 11, goal 5: a six-axis arm, all files and report
 DEFAULT_ARMS = ["benchtop6", "packer6", "kitter6"]
 COLUMNS = ["import", "derive", "python", "batch", "c", "selftest", "report: sheet", "report: figures",
-           "report: sample pose", "report: verification", "report: documents"]
+           "report: sample pose", "report: verification", "report: documents", "report: waiting for helpers"]
 
 
-def phases_in_process(arm_path: str | None, sweep_seed: int | None) -> dict:
-    """Phase seconds of one generation in this (fresh) process, as a dict."""
+def phases_in_process(arm_path: str | None, sweep_seed: int | None, clock: str) -> dict:
+    """Phase seconds of one generation in this (fresh) process, as a dict; ``clock`` "cpu" times
+    the phases in CPU seconds of the process that runs each (the import is always wall time)."""
     started = time.perf_counter()
     sys.path.insert(0, str(ROOT))
     import ikgen.cli  # noqa: F401  (what the command imports before it runs)
     import ikgen.commands  # noqa: F401
+    import ikgen.stopwatch
     from ikgen.generate import build
     timings = {"import": time.perf_counter() - started}
+    if clock == "cpu":
+        ikgen.stopwatch.clock = time.process_time
     if sweep_seed is not None:
         import numpy as np
         sys.path.insert(0, str(ROOT / "tests"))
@@ -57,23 +66,28 @@ def phases_in_process(arm_path: str | None, sweep_seed: int | None) -> dict:
     return timings
 
 
-def child_phases(arm_path: str | None, sweep_seed: int | None) -> dict:
-    command = [sys.executable, __file__, "--child"]
+def child_phases(arm_path: str | None, sweep_seed: int | None, clock: str) -> dict:
+    command = [sys.executable, __file__, "--child", "--clock", clock]
     command += ["--sweep-seed", str(sweep_seed)] if sweep_seed is not None else ["--arm", arm_path]
     done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT, check=True)
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
-def command_wall(arm_path: str, runs: int) -> list[float]:
-    """Wall seconds of `python -m ikgen.cli generate ARM -o TMP`, one per run."""
-    walls = []
+def command_runs(arm_path: str, runs: int, helpers: bool = True) -> tuple[list[float], list[float]]:
+    """(wall seconds, CPU seconds) of `python -m ikgen.cli generate ARM -o TMP`, one per run. The CPU
+    time (user + system, the command and its helper processes) says more than the wall time when
+    the machine is busy with other work."""
+    walls, cpus = [], []
     for _ in range(runs):
         with tempfile.TemporaryDirectory() as out:
+            before = resource.getrusage(resource.RUSAGE_CHILDREN)
             started = time.perf_counter()
             subprocess.run([sys.executable, "-m", "ikgen.cli", "generate", arm_path, "-o", out],
-                           capture_output=True, check=True, cwd=ROOT)
+                           capture_output=True, check=True, cwd=ROOT, env={**os.environ, "IKGEN_HELPERS": str(int(helpers))})
             walls.append(time.perf_counter() - started)
-    return walls
+            after = resource.getrusage(resource.RUSAGE_CHILDREN)
+            cpus.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
+    return walls, cpus
 
 
 def load_average() -> str:
@@ -89,11 +103,14 @@ def main(argv=None) -> int:
     parser.add_argument("--runs", type=int, default=3, help="command runs per arm (the median is shown)")
     parser.add_argument("--sweep-seed", type=int, default=None,
                         help="also time a random 'three parallel axes, offset wrist' arm of this seed")
+    parser.add_argument("--clock", choices=("wall", "cpu"), default="wall",
+                        help="the phases' clock: wall seconds, or CPU seconds of the process that runs each "
+                             "(steadier on a busy machine)")
     parser.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
     parser.add_argument("--arm", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
-        print(json.dumps(phases_in_process(args.arm, args.sweep_seed)))
+        print(json.dumps(phases_in_process(args.arm, args.sweep_seed, args.clock)))
         return 0
 
     print(f"ikgen generate, one arm per run; load average before: {load_average()}; "
@@ -101,21 +118,29 @@ def main(argv=None) -> int:
     rows = []
     for name in args.arms:
         path = str(next(p for p in (ROOT / "examples").iterdir() if p.stem == name and p.suffix in (".toml", ".json")))
-        walls = command_wall(path, args.runs)
-        rows.append((name, statistics.median(walls), min(walls), child_phases(path, None)))
+        walls, cpus = command_runs(path, args.runs)
+        alone, _ = command_runs(path, args.runs, helpers=False)
+        rows.append((name, (statistics.median(walls), min(walls), statistics.median(cpus), statistics.median(alone)),
+                     child_phases(path, None, args.clock)))
     if args.sweep_seed is not None:
-        rows.append((f"sweep seed {args.sweep_seed}", None, None, child_phases(None, args.sweep_seed)))
+        rows.append((f"sweep seed {args.sweep_seed}", None, child_phases(None, args.sweep_seed, args.clock)))
 
-    shown = ["import", "derive", "python", "batch", "c", "selftest", "sheet", "figures", "pose", "verify", "docs"]
-    header = f"{'arm':<16} {'wall':>6} {'min':>6} {'goal':>5} " + " ".join(f"{c:>8}" for c in shown) + f" {'total':>7}"
+    shown = ["import", "derive", "python", "batch", "c", "selftest", "sheet", "figures", "pose", "verify", "docs",
+             "waited"]
+    header = (f"{'arm':<16} {'wall':>6} {'min':>6} {'cpu':>6} {'alone':>6} {'goal':>5} " + " ".join(f"{c:>7}" for c in shown)
+              + f" {'total':>7}")
     print()
-    print("seconds; wall = median of the command's runs, min = its fastest; the other columns are one")
-    print("in-process run's phases (report phases: sheet, figures, sample pose with its figure, verification,")
-    print("HTML and Markdown documents); total = import + build in that run")
+    print("seconds. wall: median of the command's runs; min: the fastest; cpu: median user + system time of")
+    print("the command and its helpers; alone: median wall with no helper process (IKGEN_HELPERS=0).")
+    print(f"Then one in-process run's phases in {args.clock} seconds (generate.build's timings): the")
+    print("report's sheet, figures and documents run in helper processes beside the rest where allowed")
+    print("(ikgen/sidejobs.py), so the phases can add up to more than the total; waited: the time the main")
+    print("process waited for them; total: import + build in that run")
     print(header)
-    for name, wall, fastest, phases in rows:
-        wall_text = f"{wall:6.2f} {fastest:6.2f}" if wall is not None else f"{'-':>6} {'-':>6}"
-        cells = " ".join(f"{phases.get(c, 0.0):8.2f}" for c in COLUMNS)
+    for name, command, phases in rows:
+        wall_text = ("{:6.2f} {:6.2f} {:6.2f} {:6.2f}".format(*command) if command is not None
+                     else " ".join(f"{'-':>6}" for _ in range(4)))
+        cells = " ".join(f"{phases.get(c, 0.0):7.2f}" for c in COLUMNS)
         print(f"{name:<16} {wall_text} {GOAL_SECONDS:5.1f} {cells} {phases['total']:7.2f}")
     print(f"load average after: {load_average()}")
     return 0

@@ -464,6 +464,8 @@ def bisect_roots(chain, measure, brackets: list[Bracket]) -> list[np.ndarray]:
     """The readings where ``measure`` is 0 in each bracket, by bisection to 1e-15 relative (or an
     exact zero, or 200 halvings). All brackets are halved in step, the measure evaluated on the
     open ones at once: the same arithmetic per bracket as one at a time, in one numpy call per step."""
+    if not brackets:
+        return []
     lo = np.array([b.lo for b in brackets], dtype=float)
     hi = np.array([b.hi for b in brackets], dtype=float)
     f_lo = np.array([b.f_lo for b in brackets], dtype=float)
@@ -553,5 +555,5 @@ def singular_points(arm: Arm, chain: NumericChain, measure, joints, rng, per_kin
                     found.append((root, joint))
                     break
     brackets = [root for root, _ in found if isinstance(root, Bracket)]
-    bisected = iter(bisect_roots(chain, measure, brackets) if brackets else [])
+    bisected = iter(bisect_roots(chain, measure, brackets))
     return [(next(bisected) if isinstance(root, Bracket) else root, joint) for root, joint in found]
