@@ -11,10 +11,11 @@ first use of matplotlib; compiled templates come from jinja2's cache after the f
   and how long the main process waited for the helpers that make the figures and documents.
 
 It prints one table, a row per arm, with the goal (3 s for a six-axis arm, all files and report)
-beside the wall time. Optionally a random arm from tests/arm_draws.py (--sweep-seed: the structure
-"three parallel axes, offset wrist", the slowest kind to render) is timed in-process too.
+beside the wall time. Optionally an arm of the random-arm sweep (--sweep-arm SEED NUMBER, drawn as
+benchmarks/sweep_arms.py draws it, from tests/arm_draws.py) is timed in-process too.
 
-Run:  python3 benchmarks/bench_generate.py [--arms benchtop6 packer6 kitter6] [--runs 3] [--sweep-seed 16]
+Run:  python3 benchmarks/bench_generate.py [--arms benchtop6 packer6 kitter6] [--runs 3] [--sweep-arm 16 36]
+      [--clock cpu]
 Figures depend on the machine and its load (the load average is printed beside them): quote them
 with care; on a busy machine the CPU column is the steadier figure.
 """
@@ -39,7 +40,19 @@ COLUMNS = ["import", "derive", "python", "batch", "c", "selftest", "report: shee
            "report: sample pose", "report: verification", "report: documents", "report: waiting for helpers"]
 
 
-def phases_in_process(arm_path: str | None, sweep_seed: int | None, clock: str) -> dict:
+def sweep_draw(seed: int, number: int):
+    """Arm ``number`` (1-based, as benchmarks/sweep_arms.py prints it) of the random-arm sweep with ``seed``:
+    the same draws in the same order (tests/arm_draws.py)."""
+    import numpy as np
+    sys.path.insert(0, str(ROOT / "tests"))
+    from arm_draws import STRUCTURES, Draw
+    rng, names = np.random.default_rng(seed), list(STRUCTURES)
+    for index in range(number):
+        arm = STRUCTURES[names[index % len(names)]](Draw(rng))
+    return arm
+
+
+def phases_in_process(arm_path: str | None, sweep_arm: tuple[int, int] | None, clock: str) -> dict:
     """Phase seconds of one generation in this (fresh) process, as a dict; ``clock`` "cpu" times
     the phases in CPU seconds of the process that runs each (the import is always wall time)."""
     started = time.perf_counter()
@@ -51,11 +64,8 @@ def phases_in_process(arm_path: str | None, sweep_seed: int | None, clock: str) 
     timings = {"import": time.perf_counter() - started}
     if clock == "cpu":
         ikgen.stopwatch.clock = time.process_time
-    if sweep_seed is not None:
-        import numpy as np
-        sys.path.insert(0, str(ROOT / "tests"))
-        from arm_draws import Draw, parallel_offset_wrist
-        arm = parallel_offset_wrist(Draw(np.random.default_rng(sweep_seed)))
+    if sweep_arm is not None:
+        arm = sweep_draw(*sweep_arm)
     else:
         from ikgen.armsource import load_arm_source
         arm = load_arm_source(arm_path)
@@ -66,9 +76,9 @@ def phases_in_process(arm_path: str | None, sweep_seed: int | None, clock: str) 
     return timings
 
 
-def child_phases(arm_path: str | None, sweep_seed: int | None, clock: str) -> dict:
+def child_phases(arm_path: str | None, sweep_arm: tuple[int, int] | None, clock: str) -> dict:
     command = [sys.executable, __file__, "--child", "--clock", clock]
-    command += ["--sweep-seed", str(sweep_seed)] if sweep_seed is not None else ["--arm", arm_path]
+    command += ["--sweep-arm", *map(str, sweep_arm)] if sweep_arm is not None else ["--arm", arm_path]
     done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT, check=True)
     return json.loads(done.stdout.strip().splitlines()[-1])
 
@@ -101,8 +111,9 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--arms", nargs="+", default=DEFAULT_ARMS, help="demo arm names under examples/")
     parser.add_argument("--runs", type=int, default=3, help="command runs per arm (the median is shown)")
-    parser.add_argument("--sweep-seed", type=int, default=None,
-                        help="also time a random 'three parallel axes, offset wrist' arm of this seed")
+    parser.add_argument("--sweep-arm", type=int, nargs=2, metavar=("SEED", "NUMBER"), default=None,
+                        help="also time arm NUMBER of benchmarks/sweep_arms.py --seed SEED (36 and 179 of seed 16 "
+                             "are 'three parallel axes, offset wrist' arms, the slowest kind to render)")
     parser.add_argument("--clock", choices=("wall", "cpu"), default="wall",
                         help="the phases' clock: wall seconds, or CPU seconds of the process that runs each "
                              "(steadier on a busy machine)")
@@ -110,7 +121,7 @@ def main(argv=None) -> int:
     parser.add_argument("--arm", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
-        print(json.dumps(phases_in_process(args.arm, args.sweep_seed, args.clock)))
+        print(json.dumps(phases_in_process(args.arm, args.sweep_arm, args.clock)))
         return 0
 
     print(f"ikgen generate, one arm per run; load average before: {load_average()}; "
@@ -122,8 +133,9 @@ def main(argv=None) -> int:
         alone, _ = command_runs(path, args.runs, helpers=False)
         rows.append((name, (statistics.median(walls), min(walls), statistics.median(cpus), statistics.median(alone)),
                      child_phases(path, None, args.clock)))
-    if args.sweep_seed is not None:
-        rows.append((f"sweep seed {args.sweep_seed}", None, child_phases(None, args.sweep_seed, args.clock)))
+    if args.sweep_arm is not None:
+        seed, number = args.sweep_arm
+        rows.append((f"sweep {seed}/{number}", None, child_phases(None, (seed, number), args.clock)))
 
     shown = ["import", "derive", "python", "batch", "c", "selftest", "sheet", "figures", "pose", "verify", "docs",
              "waited"]

@@ -82,12 +82,14 @@ def code_files(arm: Arm, derivation: Derivation, python_source: str, solver, wat
     with watch("batch"):
         files[f"{folder}/{folder}_ik_batch.py"] = batch_backend.render(arm, derivation)
     files[f"{folder}/{folder}_derivation.txt"] = str(derivation) + "\n"
+    with watch("selftest"):
+        vectors = c_backend.selftest_vectors(arm, solver=solver)     # the same poses for both scalar types
     for scalar in c_backend.SCALARS:
         with watch("c"):
             for name, text in c_backend.render(arm, derivation, scalar).items():
                 files[f"{folder}/{name}"] = text
         with watch("selftest"):
-            name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver)
+            name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver, vectors=vectors)
         files[f"{folder}/{name}"] = text
     return files
 
