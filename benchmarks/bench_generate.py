@@ -79,21 +79,41 @@ def phases_in_process(arm_path: str | None, sweep_arm: tuple[int, int] | None, c
 def child_phases(arm_path: str | None, sweep_arm: tuple[int, int] | None, clock: str) -> dict:
     command = [sys.executable, __file__, "--child", "--clock", clock]
     command += ["--sweep-arm", *map(str, sweep_arm)] if sweep_arm is not None else ["--arm", arm_path]
-    done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT, check=True)
+    done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT, check=True, env=warm_environment())
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
+def warm_environment(**extra) -> dict:
+    """The environment of a user's run: Python keeps its bytecode caches (PYTHONDONTWRITEBYTECODE,
+    set on some development machines, is dropped), plus ``extra``."""
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+    return {**env, **extra}
+
+
+def cold_wall(arm_path: str) -> float:
+    """Wall seconds of a first run: no compiled template kept (a fresh temporary folder for jinja2's
+    cache) and ikgen's own modules compiled from source (no bytecode written or read)."""
+    with tempfile.TemporaryDirectory() as scratch, tempfile.TemporaryDirectory() as out:
+        env = {**warm_environment(TMPDIR=scratch), "PYTHONDONTWRITEBYTECODE": "1", "PYTHONPYCACHEPREFIX": scratch}
+        started = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "ikgen.cli", "generate", arm_path, "-o", out],
+                       capture_output=True, check=True, cwd=ROOT, env=env)
+        return time.perf_counter() - started
+
+
 def command_runs(arm_path: str, runs: int, helpers: bool = True) -> tuple[list[float], list[float]]:
-    """(wall seconds, CPU seconds) of `python -m ikgen.cli generate ARM -o TMP`, one per run. The CPU
-    time (user + system, the command and its helper processes) says more than the wall time when
-    the machine is busy with other work."""
+    """(wall seconds, CPU seconds) of `python -m ikgen.cli generate ARM -o TMP`, one per run, after
+    an untimed run that fills the caches. The CPU time (user + system, the command and its helper
+    processes) says more than the wall time when the machine is busy with other work."""
     walls, cpus = [], []
-    for _ in range(runs):
+    for run in range(runs + 1):
         with tempfile.TemporaryDirectory() as out:
             before = resource.getrusage(resource.RUSAGE_CHILDREN)
             started = time.perf_counter()
             subprocess.run([sys.executable, "-m", "ikgen.cli", "generate", arm_path, "-o", out],
-                           capture_output=True, check=True, cwd=ROOT, env={**os.environ, "IKGEN_HELPERS": str(int(helpers))})
+                           capture_output=True, check=True, cwd=ROOT, env=warm_environment(IKGEN_HELPERS=str(int(helpers))))
+            if run == 0:
+                continue
             walls.append(time.perf_counter() - started)
             after = resource.getrusage(resource.RUSAGE_CHILDREN)
             cpus.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
@@ -131,27 +151,29 @@ def main(argv=None) -> int:
         path = str(next(p for p in (ROOT / "examples").iterdir() if p.stem == name and p.suffix in (".toml", ".json")))
         walls, cpus = command_runs(path, args.runs)
         alone, _ = command_runs(path, args.runs, helpers=False)
-        rows.append((name, (statistics.median(walls), min(walls), statistics.median(cpus), statistics.median(alone)),
-                     child_phases(path, None, args.clock)))
+        rows.append((name, (statistics.median(walls), min(walls), statistics.median(cpus), statistics.median(alone),
+                            cold_wall(path)), child_phases(path, None, args.clock)))
     if args.sweep_arm is not None:
         seed, number = args.sweep_arm
         rows.append((f"sweep {seed}/{number}", None, child_phases(None, (seed, number), args.clock)))
 
     shown = ["import", "derive", "python", "batch", "c", "selftest", "sheet", "figures", "pose", "verify", "docs",
              "waited"]
-    header = (f"{'arm':<16} {'wall':>6} {'min':>6} {'cpu':>6} {'alone':>6} {'goal':>5} " + " ".join(f"{c:>7}" for c in shown)
+    header = (f"{'arm':<16} {'wall':>6} {'min':>6} {'cpu':>6} {'alone':>6} {'cold':>6} {'goal':>5} " + " ".join(f"{c:>7}" for c in shown)
               + f" {'total':>7}")
     print()
     print("seconds. wall: median of the command's runs; min: the fastest; cpu: median user + system time of")
-    print("the command and its helpers; alone: median wall with no helper process (IKGEN_HELPERS=0).")
+    print("the command and its helpers; alone: median wall with no helper process (IKGEN_HELPERS=0); cold: a")
+    print("first run's wall (templates compiled, ikgen's modules compiled from source); the timed runs follow an")
+    print("untimed one, with Python's bytecode caches and jinja2's template cache as a user's runs have them.")
     print(f"Then one in-process run's phases in {args.clock} seconds (generate.build's timings): the")
     print("report's sheet, figures and documents run in helper processes beside the rest where allowed")
     print("(ikgen/sidejobs.py), so the phases can add up to more than the total; waited: the time the main")
     print("process waited for them; total: import + build in that run")
     print(header)
     for name, command, phases in rows:
-        wall_text = ("{:6.2f} {:6.2f} {:6.2f} {:6.2f}".format(*command) if command is not None
-                     else " ".join(f"{'-':>6}" for _ in range(4)))
+        wall_text = ("{:6.2f} {:6.2f} {:6.2f} {:6.2f} {:6.2f}".format(*command) if command is not None
+                     else " ".join(f"{'-':>6}" for _ in range(5)))
         cells = " ".join(f"{phases.get(c, 0.0):7.2f}" for c in COLUMNS)
         print(f"{name:<16} {wall_text} {GOAL_SECONDS:5.1f} {cells} {phases['total']:7.2f}")
     print(f"load average after: {load_average()}")
