@@ -5,8 +5,11 @@ from __future__ import annotations
 
 import os
 import signal
+import subprocess
+import sys
 import threading
 import time
+from pathlib import Path
 
 import pytest
 
@@ -14,8 +17,18 @@ from ikgen import sidejobs
 from ikgen.sidejobs import SideJob
 
 PARENT = os.getpid()
-needs_helpers = pytest.mark.skipif(not sidejobs.helpers_allowed(),
-                                   reason="helper processes need Linux, fork, two or more CPUs and one thread")
+TESTS = Path(__file__).resolve().parent
+needs_fork = pytest.mark.skipif(not sys.platform.startswith("linux") or (os.cpu_count() or 1) < 2,
+                                reason="helper processes need Linux (fork) and two or more CPUs")
+
+
+def in_fresh_process(scenario) -> None:
+    """Run ``scenario`` (a function of this module) in a new Python process: helpers are forked only
+    from a process with one thread, and a long test session may have left threads running here."""
+    code = f"import sys; sys.path[:0] = [{str(TESTS)!r}, {str(TESTS.parent)!r}]; import test_sidejobs as t; t.{scenario.__name__}()"
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300,
+                          env={k: v for k, v in os.environ.items() if k != "IKGEN_HELPERS"})
+    assert done.returncode == 0, done.stderr[-3000:]
 
 
 def two_messages(receive, phases):
@@ -26,8 +39,12 @@ def two_messages(receive, phases):
     return (first, second, os.getpid() != PARENT)
 
 
-@needs_helpers
+@needs_fork
 def test_a_helper_receives_the_messages_in_order_and_returns_its_value():
+    in_fresh_process(receives_in_order)
+
+
+def receives_in_order():
     job = SideJob(two_messages)
     try:
         assert job.process is not None
@@ -55,9 +72,14 @@ def failing_in_helper(receive, phases):
     return receive() * 2
 
 
-@needs_helpers
+@needs_fork
 def test_a_failing_helper_leaves_the_work_to_this_process():
+    in_fresh_process(failing_helper)
+
+
+def failing_helper():
     job = SideJob(failing_in_helper)
+    assert job.process is not None
     job.send(21)
     assert job.result() == 42
     assert job.process is None                   # the helper is gone
@@ -79,16 +101,25 @@ def slow_unless_here(receive, phases):
     return "done here"
 
 
-@needs_helpers
+@needs_fork
 def test_a_killed_helper_leaves_the_work_to_this_process():
+    in_fresh_process(killed_helper)
+
+
+def killed_helper():
     job = SideJob(slow_unless_here)
     os.kill(job.process.pid, signal.SIGKILL)
     assert job.result() == "done here"
 
 
-@needs_helpers
+@needs_fork
 def test_a_value_that_cannot_come_back_is_made_here():
+    in_fresh_process(unpicklable_value)
+
+
+def unpicklable_value():
     job = SideJob(lambda receive, phases: (lambda: 1) if os.getpid() != PARENT else "here")
+    assert job.process is not None
     assert job.result() == "here"
 
 
