@@ -7,6 +7,8 @@ the outlines do not depend on the machine), no date or creator metadata, fixed f
 view angles. No pyplot and no interactive back-end is involved: each figure is a plain
 ``matplotlib.figure.Figure`` written by matplotlib's SVG back-end inside an ``rc_context``, so
 importing or using this module changes no global matplotlib state (a non-GUI, headless path).
+matplotlib is imported on first use (about 0.4 s): the SVG helpers (``inline``, ``standalone``) and
+the commands that draw nothing do not pay for it.
 """
 
 from __future__ import annotations
@@ -16,15 +18,16 @@ import io
 import math
 import os
 import re
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-import matplotlib
-from matplotlib.figure import Figure
-from matplotlib.font_manager import FontProperties
-
 from .kinematics import NumericChain
 from .model import Arm
+
+if TYPE_CHECKING:                       # only for the annotations: matplotlib is imported on first use
+    from matplotlib.figure import Figure
+    from matplotlib.font_manager import FontProperties
 
 STYLE = {
     "svg.hashsalt": "ikgen-report",     # element ids from a fixed salt, not a random one
@@ -44,6 +47,8 @@ TARGET = "#c08a1e"       # the target tool frame in the pose figure
 
 def bundled_font(size: float = 8.0, bold: bool = False) -> FontProperties:
     """DejaVu Sans from matplotlib's own data folder (same outlines on every machine)."""
+    import matplotlib
+    from matplotlib.font_manager import FontProperties
     name = "DejaVuSans-Bold.ttf" if bold else "DejaVuSans.ttf"
     return FontProperties(fname=os.path.join(matplotlib.get_data_path(), "fonts", "ttf", name), size=size)
 
@@ -162,6 +167,8 @@ def save_svg(fig: Figure) -> str:
 
 def arm_zero_figure(arm: Arm) -> str:
     """SVG: the arm at its zero reading, every DH frame as an x/y/z triad, the tool frame."""
+    import matplotlib
+    from matplotlib.figure import Figure
     with matplotlib.rc_context(STYLE):
         chain = NumericChain(arm)
         zero = np.zeros(arm.dof)
@@ -207,6 +214,8 @@ def arm_zero_figure(arm: Arm) -> str:
 def solutions_figure(arm: Arm, solutions: list[tuple[list[float], str]], target: np.ndarray) -> str:
     """SVG small multiples: one panel per solution (joint readings, caption), same view and scale,
     with the target tool frame drawn in every panel."""
+    import matplotlib
+    from matplotlib.figure import Figure
     with matplotlib.rc_context(STYLE):
         chain = NumericChain(arm)
         shapes = [skeleton(chain, readings) for readings, _ in solutions]

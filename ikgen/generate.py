@@ -19,6 +19,8 @@ from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
 from .model import Arm
+from .sidejobs import SideJob
+from .stopwatch import Stopwatch
 
 
 @dataclass
@@ -36,27 +38,85 @@ class Build:
         return f"{self.folder}/{self.folder}_ik.py"
 
 
-def build(arm: Arm) -> Build:
-    derivation = derive_arm(arm)
+def build(arm: Arm, timings: dict | None = None) -> Build:
+    """Derive once and render every file. ``timings`` (optional) receives each phase's seconds
+    (derive, python, batch, c, selftest and the report's phases; see stopwatch.py).
+
+    The report's figures and documents are made by two side jobs (sidejobs.py: forked helper
+    processes where that is allowed, else here, with the same result): the figures' job starts
+    before the derivation (matplotlib's import and the arm at its zero reading need only the arm),
+    the documents' job as soon as the sample pose is known (the equation sheet needs only the
+    derivation); meanwhile this process renders the code and runs the report's verification."""
+    watch = Stopwatch(timings)
     folder = common.identifier(arm.name)
-    files = {f"{folder}/{folder}_ik.py": python_backend.render(arm, derivation),
-             f"{folder}/{folder}_ik_batch.py": batch_backend.render(arm, derivation),
-             f"{folder}/{folder}_derivation.txt": str(derivation) + "\n"}
-    solver = load_module(files[f"{folder}/{folder}_ik.py"], f"{folder}_ik_for_selftest")
-    for scalar in c_backend.SCALARS:
-        for name, text in c_backend.render(arm, derivation, scalar).items():
-            files[f"{folder}/{name}"] = text
-        name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver)
-        files[f"{folder}/{name}"] = text
-    files.update(report_files(arm, derivation, files[f"{folder}/{folder}_ik.py"]))
+    figures_job = SideJob(lambda receive, phases: figure_work(arm, receive, phases))
+    try:
+        with watch("derive"):
+            derivation = derive_arm(arm)
+        with watch("python"):
+            python_source = python_backend.render(arm, derivation)
+        solver = load_module(python_source, f"{folder}_ik_for_selftest")
+        with watch("report: sample pose"):
+            pose, panels, target = report_backend.sample_evidence(arm, derivation, solver)
+        figures_job.send((panels, target))
+        documents_job = SideJob(lambda receive, phases: document_work(arm, derivation, pose, receive, phases))
+        try:
+            files = code_files(arm, derivation, python_source, solver, watch)
+            with watch("report: verification"):
+                verification = report_backend.verification_summary(arm, solver)
+            with watch("report: waiting for helpers"):
+                documents_job.send((verification, figures_job.result(timings)))
+                report = documents_job.result(timings)
+        finally:
+            documents_job.close()
+    finally:
+        figures_job.close()
+    files.update({f"{folder}/{name}": text for name, text in report.items()})
     return Build(arm, derivation, files)
 
 
-def report_files(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
+def code_files(arm: Arm, derivation: Derivation, python_source: str, solver, watch: Stopwatch) -> dict[str, str]:
+    """The solvers' files and the derivation's text, paths relative to the output folder."""
+    folder = common.identifier(arm.name)
+    files = {f"{folder}/{folder}_ik.py": python_source}
+    with watch("batch"):
+        files[f"{folder}/{folder}_ik_batch.py"] = batch_backend.render(arm, derivation)
+    files[f"{folder}/{folder}_derivation.txt"] = str(derivation) + "\n"
+    with watch("selftest"):
+        vectors = c_backend.selftest_vectors(arm, solver=solver)     # the same poses for both scalar types
+    for scalar in c_backend.SCALARS:
+        with watch("c"):
+            for name, text in c_backend.render(arm, derivation, scalar).items():
+                files[f"{folder}/{name}"] = text
+        with watch("selftest"):
+            name, text = c_backend.render_selftest(arm, derivation, scalar, solver=solver, vectors=vectors)
+        files[f"{folder}/{name}"] = text
+    return files
+
+
+def figure_work(arm: Arm, receive, phases: dict) -> tuple[str, str]:
+    """The report's two figures (a side job: the sample pose's panels arrive by ``receive``)."""
+    return report_backend.figure_texts(arm, receive, phases)
+
+
+def document_work(arm: Arm, derivation: Derivation, pose: dict, receive, phases: dict) -> dict[str, str]:
+    """The report's files (a side job): the equation sheet first, then, with the verification
+    summary and the figures from ``receive``, the HTML and Markdown documents."""
+    watch = Stopwatch(phases)
+    with watch("report: sheet"):
+        data = report_backend.sheet_context(arm, derivation, common.identifier(arm.name))
+    verification, svgs = receive()
+    data = report_backend.evidence_context(data, pose, verification, svgs)
+    with watch("report: documents"):
+        return report_backend.documents(data)
+
+
+def report_files(arm: Arm, derivation: Derivation, python_source: str, timings: dict | None = None) -> dict[str, str]:
     """The derivation report (HTML, Markdown and its two SVG figures), paths relative to the
     output folder; the report verifies ``python_source`` (the generated solver) for its figures."""
     folder = common.identifier(arm.name)
-    return {f"{folder}/{name}": text for name, text in report_backend.render(arm, derivation, python_source).items()}
+    return {f"{folder}/{name}": text
+            for name, text in report_backend.render(arm, derivation, python_source, timings=timings).items()}
 
 
 def build_report(arm: Arm) -> Build:

@@ -259,30 +259,23 @@ def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: b
     readings = random_readings(arm, samples, rng)
     poses = chain.poses(readings)
     distance = jacobian_distance(chain, readings)
-    all_joints, all_poses, all_measures = [], [], []
+    all_joints, all_measures = [], []
+    per_sample = np.zeros(samples, dtype=int)
     last_report = time.perf_counter()
-    missing_examples = []
     for index in range(samples):
         solutions = module.inverse(poses[index], *given_of(arm, readings[index]))
         result.counts[len(solutions)] = result.counts.get(len(solutions), 0) + 1
-        joints = [list(s[0]) for s in solutions]
-        all_joints += joints
-        all_poses += [poses[index]] * len(joints)
+        per_sample[index] = len(solutions)
+        all_joints += [list(s[0]) for s in solutions]
         all_measures += [smallest_measure(s) for s in solutions]
-        if distance[index] > SINGULAR_DISTANCE:
-            result.checked += 1
-            found = bool(joints) and bool(
-                (angle_gap(np.array(joints), readings[index], arm).max(axis=1) < MATCH_TOLERANCE).any())
-            result.complete += found
-            if not found and len(missing_examples) < 3:
-                missing_examples.append(readings[index])
         if progress and time.perf_counter() - last_report > 0.5:
             sys.stderr.write(f"\r  verifying {index + 1}/{samples} samples")
             sys.stderr.flush()
             last_report = time.perf_counter()
     if progress:
         sys.stderr.write("\r" + " " * 60 + "\r")
-    pos, rot = check_round_trip(chain, np.array(all_poses) if all_poses else np.zeros((0, 4, 4)), all_joints)
+    missing_examples = check_completeness(arm, result, readings, distance, all_joints, per_sample)
+    pos, rot = check_round_trip(chain, np.repeat(poses, per_sample, axis=0), all_joints)
     record_round_trips(result, all_measures, pos, rot, scale)
     measures = np.array(all_measures, dtype=float)
     strict = measures >= CONTRACT_MEASURE
@@ -309,6 +302,24 @@ def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: b
     check_bands(arm, result)
     result.seconds = time.perf_counter() - started
     return result
+
+
+def check_completeness(arm: Arm, result: Verification, readings: np.ndarray, distance: np.ndarray,
+                       all_joints: list, per_sample: np.ndarray) -> list:
+    """Counts the samples farther than SINGULAR_DISTANCE from the singular set (``checked``) and those
+    whose source readings are among their solutions (``complete``), all samples at once; returns up
+    to three source readings that were missed, in sample order."""
+    checked = distance > SINGULAR_DISTANCE
+    found = np.zeros(len(readings), dtype=bool)
+    if all_joints:
+        sources = np.repeat(readings, per_sample, axis=0)
+        match = angle_gap(np.array(all_joints), sources, arm).max(axis=1) < MATCH_TOLERANCE
+        starts = np.cumsum(per_sample) - per_sample
+        solved = per_sample > 0
+        found[solved] = np.logical_or.reduceat(match, starts[solved])
+    result.checked += int(checked.sum())
+    result.complete += int((checked & found).sum())
+    return [readings[k] for k in np.nonzero(checked & ~found)[0][:3]]
 
 
 def check_bands(arm: Arm, result: Verification) -> None:
@@ -418,6 +429,23 @@ def singular_kind(spec) -> tuple[str, tuple[int, ...]]:
 
 def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None:
     """Readings equal to ``base`` but for ``joint`` (0-based), where ``measure`` is exactly 0."""
+    found = bracket_root(chain, measure, base, joint)
+    return found if found is None or isinstance(found, np.ndarray) else bisect_roots(chain, measure, [found])[0]
+
+
+@dataclass
+class Bracket:
+    """A sign change of a measure between two readings of one joint, the rest of ``base`` fixed."""
+    base: np.ndarray
+    joint: int
+    lo: float
+    hi: float
+    f_lo: float
+
+
+def bracket_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | Bracket | None:
+    """Where along ``joint`` (0-based) from ``base`` the measure is 0: readings exactly on a grid
+    point, a Bracket of the first sign change on a grid over the joint's limits, or None."""
     lo_limit, hi_limit = chain.arm.limits_in_readings()[joint]
     grid = np.linspace(lo_limit, hi_limit, 721)
     trial = np.repeat(base[None, :], len(grid), axis=0)
@@ -429,22 +457,40 @@ def find_root(chain, measure, base: np.ndarray, joint: int) -> np.ndarray | None
     changes = np.nonzero(np.sign(values[:-1]) * np.sign(values[1:]) < 0)[0]
     if len(changes) == 0:
         return None
-    lo, hi = grid[changes[0]], grid[changes[0] + 1]
-    f_lo = values[changes[0]]
+    return Bracket(base, joint, grid[changes[0]], grid[changes[0] + 1], values[changes[0]])
+
+
+def bisect_roots(chain, measure, brackets: list[Bracket]) -> list[np.ndarray]:
+    """The readings where ``measure`` is 0 in each bracket, by bisection to 1e-15 relative (or an
+    exact zero, or 200 halvings). All brackets are halved in step, the measure evaluated on the
+    open ones at once: the same arithmetic per bracket as one at a time, in one numpy call per step."""
+    if not brackets:
+        return []
+    lo = np.array([b.lo for b in brackets], dtype=float)
+    hi = np.array([b.hi for b in brackets], dtype=float)
+    f_lo = np.array([b.f_lo for b in brackets], dtype=float)
+    bases = np.array([b.base for b in brackets], dtype=float).reshape(len(brackets), -1)
+    joints = np.array([b.joint for b in brackets], dtype=int)
+    rows = np.arange(len(brackets))
+    open_ = np.ones(len(brackets), dtype=bool)
     for _ in range(200):
-        mid = 0.5 * (lo + hi)
-        point = base.copy()
-        point[joint] = mid
-        f_mid = measure(chain, point[None, :])[0]
-        if f_mid == 0 or hi - lo < 1e-15 * max(1.0, abs(mid)):
+        if not open_.any():
             break
-        if np.sign(f_mid) == np.sign(f_lo):
-            lo, f_lo = mid, f_mid
-        else:
-            hi = mid
-    point = base.copy()
-    point[joint] = 0.5 * (lo + hi)
-    return point
+        k = rows[open_]
+        mid = 0.5 * (lo[k] + hi[k])
+        points = bases[k].copy()
+        points[np.arange(len(k)), joints[k]] = mid
+        f_mid = measure(chain, points)
+        finished = (f_mid == 0) | (hi[k] - lo[k] < 1e-15 * np.maximum(1.0, np.abs(mid)))
+        open_[k[finished]] = False
+        go = ~finished
+        same = np.sign(f_mid) == np.sign(f_lo[k])
+        up, down = k[go & same], k[go & ~same]
+        lo[up], f_lo[up] = mid[go & same], f_mid[go & same]
+        hi[down] = mid[go & ~same]
+    points = bases.copy()
+    points[rows, joints] = 0.5 * (lo + hi)
+    return list(points)
 
 
 def check_near_singular(arm: Arm, chain: NumericChain, module, result: Verification, point: np.ndarray,
@@ -471,19 +517,7 @@ def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verificat
         kind, joints = singular_kind(spec)
         measure = label_measure(spec.name)
         tested = ok = 0
-        for attempt in range(per_kind * 3):
-            if tested >= per_kind:
-                break
-            base = random_readings(arm, 1, rng)[0]
-            point = crossing = None
-            for joint in joints:
-                if joint < arm.dof:
-                    point = find_root(chain, measure, base, joint)
-                    if point is not None:
-                        crossing = joint
-                        break
-            if point is None:
-                continue
+        for point, crossing in singular_points(arm, chain, measure, joints, rng, per_kind):
             check_near_singular(arm, chain, module, result, point, crossing)
             tested += 1
             pose = chain.pose(point)
@@ -503,3 +537,23 @@ def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verificat
         if ok < tested:
             result.failures.append(f"singular poses ({kind}): {tested - ok} of {tested} gave no finite solution "
                                    "reproducing the pose")
+
+
+def singular_points(arm: Arm, chain: NumericChain, measure, joints, rng, per_kind: int) -> list:
+    """Up to ``per_kind`` (readings exactly on the measure's zero set, the joint that crossed it), from
+    at most 3 x per_kind seeded random readings: each tries ``joints`` in order for a sign change of
+    the measure on a grid (bracket_root), and the brackets are then bisected together."""
+    found: list = []
+    for attempt in range(per_kind * 3):
+        if len(found) >= per_kind:
+            break
+        base = random_readings(arm, 1, rng)[0]
+        for joint in joints:
+            if joint < arm.dof:
+                root = bracket_root(chain, measure, base, joint)
+                if root is not None:
+                    found.append((root, joint))
+                    break
+    brackets = [root for root, _ in found if isinstance(root, Bracket)]
+    bisected = iter(bisect_roots(chain, measure, brackets))
+    return [(next(bisected) if isinstance(root, Bracket) else root, joint) for root, joint in found]

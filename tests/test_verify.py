@@ -136,3 +136,66 @@ def test_non_finite_answers_at_singular_poses_fail(good):
 
     report = verify(arm, Wrapped(module, nan_when_singular), samples=SAMPLES, seed=5)
     assert "singular poses" in kinds(report)
+
+
+def scalar_bisection(chain, measure, base, joint):
+    """The one-bracket-at-a-time bisection (as verify did it before the brackets were halved in
+    step): the reference for bisect_roots."""
+    from ikgen.verify import bracket_root
+    found = bracket_root(chain, measure, base, joint)
+    if found is None or isinstance(found, np.ndarray):
+        return found
+    lo, hi, f_lo = found.lo, found.hi, found.f_lo
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        point = base.copy()
+        point[joint] = mid
+        f_mid = measure(chain, point[None, :])[0]
+        if f_mid == 0 or hi - lo < 1e-15 * max(1.0, abs(mid)):
+            break
+        if np.sign(f_mid) == np.sign(f_lo):
+            lo, f_lo = mid, f_mid
+        else:
+            hi = mid
+    point = base.copy()
+    point[joint] = 0.5 * (lo + hi)
+    return point
+
+
+def test_brackets_halved_in_step_give_bitwise_the_roots_of_one_at_a_time(good):
+    """bisect_roots evaluates the measure on every open bracket in one numpy call per halving; each
+    bracket's arithmetic is the scalar bisection's, so the roots agree to the last bit."""
+    from ikgen.kinematics import NumericChain
+    from ikgen.verify import Bracket, bisect_roots, bracket_root, label_measure, label_specs, random_readings, singular_kind
+    arm, _ = good
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(7)
+    compared = 0
+    for spec in label_specs(arm):      # wrist_bend's zero lies on the grid (joint 5 at 0): no bracket to halve
+        joint = singular_kind(spec)[1][0]          # the joint verify moves first onto this singular set
+        measure = label_measure(spec.name)
+        bases = random_readings(arm, 30, rng)
+        brackets = [b for b in (bracket_root(chain, measure, base, joint) for base in bases) if isinstance(b, Bracket)]
+        compared += len(brackets)
+        together = bisect_roots(chain, measure, brackets)
+        for bracket, root in zip(brackets, together):
+            assert np.array_equal(root, scalar_bisection(chain, measure, bracket.base, joint))
+            assert abs(measure(chain, root[None, :])[0]) < 1e-9 * arm.reach_scale() ** 2
+    assert compared >= 50
+
+
+def test_completeness_is_counted_over_all_samples_at_once(good):
+    """check_completeness on made-up solutions: a sample whose source is found, one whose source is
+    missing, one with no solution, one too near the singular set to count; a revolute reading off by
+    a full turn still matches (angles modulo 2 pi)."""
+    from ikgen.verify import Verification, check_completeness
+    arm, _ = good
+    readings = np.array([[10.0, 20, 30, 40, 50, 60], [1.0, 2, 3, 4, 5, 6], [5.0] * 6, [7.0] * 6])
+    distance = np.array([1.0, 1.0, 1.0, 1e-9])
+    joints = [[10.0 + 360, 20, 30, 40, 50, 60], [0.0] * 6,            # sample 0: found (a turn away)
+              [1.0, 2, 3, 4, 5, 7], [9.0] * 6,                      # sample 1: missing (joint 6 off)
+              [0.0] * 6]                                            # sample 3: near singular, not counted
+    result = Verification(arm=arm.name, samples=4, seed=0)
+    missing = check_completeness(arm, result, readings, distance, joints, np.array([2, 2, 0, 1]))
+    assert (result.checked, result.complete) == (3, 1)
+    assert [list(m) for m in missing] == [list(readings[1]), list(readings[2])]

@@ -147,10 +147,39 @@ SELFTEST_ROUNDS = 20          # rounds of 4 x count seeded readings before the b
 
 
 def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, count: int = 200,
-                    seed: int = 20261201, solver=None) -> tuple[str, str]:
+                    seed: int = 20261201, solver=None, vectors: list | None = None) -> tuple[str, str]:
     """(file name, text) of the self-test: seeded poses away from singular sets, with their sources.
     ``solver`` (the generated Python module) lets the poses keep away from every branch's singular
-    set too: the source solution's conditioning measures are all above SELFTEST_DISTANCE."""
+    set too: the source solution's conditioning measures are all above SELFTEST_DISTANCE.
+    ``vectors``: selftest_vectors(arm, count, seed, solver) when already found (for another scalar)."""
+    import numpy as np
+    if vectors is None:
+        vectors = selftest_vectors(arm, count, seed, solver)
+    printer = SolverCPrinter(scalar)
+    n = names(arm, scalar)
+    scale = arm.reach_scale()
+    double = scalar.name == "double"
+    angle_tolerance = (1e-6 if double else 2e-2) * (180 / np.pi if arm.angle_unit == "deg" else 1.0)
+    slide_tolerance = float(f"{(1e-6 if double else 1e-3) * scale:.3g}")
+    context = dict(arm=arm, names=n, real=scalar.name, num=printer.number, fn=scalar.fn,
+                   comment=common.comment_text, vectors=vectors, generator=common.GENERATOR,
+                   given=common.given_plan(arm),
+                   turns=[(360.0 if arm.angle_unit == "deg" else 2 * np.pi) if j.revolute else 0.0
+                          for j in arm.joints],
+                   # float32 carries about 7 significant digits (IEEE 754 binary32)
+                   joint_tolerances=[angle_tolerance if j.revolute else slide_tolerance for j in arm.joints],
+                   slide_tolerance=slide_tolerance if any(not j.revolute for j in arm.joints) else 0,
+                   angle_tolerance=angle_tolerance,
+                   checked=checked_entries(derivation), target_words=common.target_plan(arm, derivation).words,
+                   position_tolerance=float(f"{(1e-9 if double else 1e-4) * scale:.3g}"),
+                   rotation_tolerance=1e-9 if double else 1e-4)
+    text = common.environment().get_template("c_selftest.c.j2").render(**context)
+    return f"{n['prefix']}_selftest.c", text
+
+
+def selftest_vectors(arm: Arm, count: int = 200, seed: int = 20261201, solver=None) -> list:
+    """The self-test's (pose rows, source readings) pairs, the same for every scalar type: seeded
+    readings whose Jacobian distance and source measures exceed SELFTEST_DISTANCE (see render_selftest)."""
     import numpy as np
 
     from ..kinematics import NumericChain
@@ -188,27 +217,7 @@ def render_selftest(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE, c
         if len(vectors) == count:
             break
     fallback.sort(key=lambda item: (-item[0], item[1]))
-    vectors += [entry for _, _, entry in fallback[:count - len(vectors)]]
-    printer = SolverCPrinter(scalar)
-    n = names(arm, scalar)
-    scale = arm.reach_scale()
-    double = scalar.name == "double"
-    angle_tolerance = (1e-6 if double else 2e-2) * (180 / np.pi if arm.angle_unit == "deg" else 1.0)
-    slide_tolerance = float(f"{(1e-6 if double else 1e-3) * scale:.3g}")
-    context = dict(arm=arm, names=n, real=scalar.name, num=printer.number, fn=scalar.fn,
-                   comment=common.comment_text, vectors=vectors, generator=common.GENERATOR,
-                   given=common.given_plan(arm),
-                   turns=[(360.0 if arm.angle_unit == "deg" else 2 * np.pi) if j.revolute else 0.0
-                          for j in arm.joints],
-                   # float32 carries about 7 significant digits (IEEE 754 binary32)
-                   joint_tolerances=[angle_tolerance if j.revolute else slide_tolerance for j in arm.joints],
-                   slide_tolerance=slide_tolerance if any(not j.revolute for j in arm.joints) else 0,
-                   angle_tolerance=angle_tolerance,
-                   checked=checked_entries(derivation), target_words=common.target_plan(arm, derivation).words,
-                   position_tolerance=float(f"{(1e-9 if double else 1e-4) * scale:.3g}"),
-                   rotation_tolerance=1e-9 if double else 1e-4)
-    text = common.environment().get_template("c_selftest.c.j2").render(**context)
-    return f"{n['prefix']}_selftest.c", text
+    return vectors + [entry for _, _, entry in fallback[:count - len(vectors)]]
 
 
 def checked_entries(derivation: Derivation) -> list[int]:

@@ -25,6 +25,7 @@ from .. import __version__
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation,
                   LinearLength, LinearPair, QuadraticLength, angle_symbol, cos_symbol, sin_symbol)
 from ..model import Arm
+from ..templatecache import template_cache
 
 GENERATOR = f"ikgen {__version__} (sympy {sp.__version__})"
 
@@ -78,7 +79,8 @@ def environment() -> jinja2.Environment:
     (jinja2 caches compiled templates per environment)."""
     return jinja2.Environment(loader=jinja2.FileSystemLoader(str(template_directory())),
                               undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                              keep_trailing_newline=True, autoescape=False)
+                              keep_trailing_newline=True, autoescape=False,
+                              bytecode_cache=template_cache("code: strict, trim, lstrip, keep newline, no autoescape"))
 
 
 # ------------------------------------------------------------------------------ sanitising

@@ -37,7 +37,13 @@ def printer() -> SolverPythonPrinter:
 
 def forward_plan(arm: Arm) -> tuple[list[common.Assignment], list[sp.Expr]]:
     """Tool pose entries (row-major 3x4) as expressions in c1, s1, ... (l3 for a prismatic joint's
-    displacement) with CSE."""
+    displacement) with CSE; made once per arm and kept on it (the C back-ends print the same)."""
+    if "_forward_plan" not in arm.__dict__:
+        object.__setattr__(arm, "_forward_plan", forward_plan_now(arm))     # Arm is frozen
+    return arm.__dict__["_forward_plan"]
+
+
+def forward_plan_now(arm: Arm) -> tuple[list[common.Assignment], list[sp.Expr]]:
     result = sp.Matrix(arm.base)
     for joint in arm.joints:
         if joint.revolute:

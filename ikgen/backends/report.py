@@ -37,6 +37,8 @@ from ..ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEq
                   angle_symbol, cos_symbol, sin_symbol)
 from ..kinematics import NumericChain
 from ..model import Arm
+from ..stopwatch import Stopwatch
+from ..templatecache import template_cache
 from . import common
 
 LATEX_SETTINGS = {"mul_symbol": "dot"}    # explicit products: "a_{2} \cdot \left(...\right)" reads unambiguously
@@ -178,13 +180,22 @@ def proven_equal(candidate, expr) -> bool:
         return False
 
 
-def weight(expr) -> tuple:
-    return (sp.count_ops(expr), len(latex(expr)))
+def lightest(candidates: list) -> sp.Expr:
+    """The first candidate of least weight: fewest operations (sympy.count_ops), then the shortest
+    LaTeX. The LaTeX, the costly part, is printed only for the candidates tied on operations."""
+    if len(candidates) == 1:
+        return candidates[0]
+    operations = [sp.count_ops(c) for c in candidates]
+    tied = [c for c, ops in zip(candidates, operations) if ops == min(operations)]
+    return tied[0] if len(tied) == 1 else min(tied, key=lambda c: len(latex(c)))   # min keeps the first of equals
 
 
 def bounded_factor(expr) -> sp.Expr:
     """sympy.factor from FACTOR_CONFIGS evaluation points, with sympy's random draws fixed (its
-    random state restored afterwards): the same factors, without the long random tail of its time."""
+    random state restored afterwards): the same factors, without the long random tail of its time.
+    An atom (a symbol or a number, most of what collect() hands over) is its own factorisation."""
+    if expr.is_Atom:
+        return expr
     state = sympy_random.rng.getstate()
     sympy_random.rng.seed(FACTOR_SEED)
     try:
@@ -219,7 +230,7 @@ def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
     for candidate, check in extra or []:
         if candidate not in candidates and proven_equal(check, expr):
             candidates.append(candidate)
-    return min(candidates, key=lambda e: (weight(e), candidates.index(e)))
+    return lightest(candidates)
 
 
 # ----------------------------------------------------------------------------- the sheet
@@ -550,7 +561,9 @@ def reading_text(value: float, arm: Arm) -> str:
     return number_text(value, 2 if arm.angle_unit == "deg" else 4)
 
 
-def pose_context(arm: Arm, derivation: Derivation, module) -> dict:
+def sample_evidence(arm: Arm, derivation: Derivation, module) -> tuple[dict, list, np.ndarray]:
+    """The sample pose for the report: its table (readings, position, rotation, a row per solution),
+    the figure's panels (readings, caption) and the pose matrix the figure draws as the target."""
     readings, pose, solutions = sample_pose(arm, derivation, module)
     revolute = np.array([j.revolute for j in arm.joints])
     rows, panels = [], []
@@ -565,11 +578,23 @@ def pose_context(arm: Arm, derivation: Derivation, module) -> dict:
                      "within": within_limits(arm, joints)})
         panels.append((joints, caption))
     digits = 1 if arm.length_unit == "mm" else 4
-    return {"readings": [reading_text(v, arm) for v in readings],
-            "position": [number_text(v, digits) for v in pose[:3, 3]],
-            "rotation": [[number_text(v, 4) for v in row[:3]] for row in pose[:3]],
-            "rows": rows, "count": len(solutions), "within": sum(row["within"] for row in rows),
-            "svg": figures.solutions_figure(arm, panels, pose)}
+    table = {"readings": [reading_text(v, arm) for v in readings],
+             "position": [number_text(v, digits) for v in pose[:3, 3]],
+             "rotation": [[number_text(v, 4) for v in row[:3]] for row in pose[:3]],
+             "rows": rows, "count": len(solutions), "within": sum(row["within"] for row in rows)}
+    return table, panels, pose
+
+
+def figure_texts(arm: Arm, receive_sample, timings: dict | None = None) -> tuple[str, str]:
+    """(the arm at its zero reading, every solution of the sample pose) as SVG. The first figure is
+    drawn before ``receive_sample()`` is asked for the second's (panels, pose): a helper process can
+    draw it (and import matplotlib) while the derivation runs (generate.build)."""
+    watch = Stopwatch(timings)
+    with watch("report: figures"):
+        arm_svg = figures.arm_zero_figure(arm)
+    panels, pose = receive_sample()
+    with watch("report: figures"):
+        return arm_svg, figures.solutions_figure(arm, panels, pose)
 
 
 # ----------------------------------------------------------------------------- the document
@@ -693,10 +718,23 @@ def given_sentences(arm: Arm) -> list[str]:
             "in the arm file ([target] given_joint) or on the command line (--given-joint)."]
 
 
-def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
+def context(arm: Arm, derivation: Derivation, module, folder: str, timings: dict | None = None) -> dict:
+    """Everything the report's templates read, made in one process (render; generate.build makes
+    the same parts in helper processes)."""
+    watch = Stopwatch(timings)
+    with watch("report: sample pose"):
+        pose, panels, target = sample_evidence(arm, derivation, module)
+    svgs = figure_texts(arm, lambda: (panels, target), timings)
+    with watch("report: verification"):
+        verification = verification_summary(arm, module)
+    with watch("report: sheet"):
+        data = sheet_context(arm, derivation, folder)
+    return evidence_context(data, pose, verification, svgs)
+
+
+def sheet_context(arm: Arm, derivation: Derivation, folder: str) -> dict:
+    """The report's parts that come from the derivation alone: the equation sheet and the tables."""
     sheet = build_sheet(arm, derivation)
-    arm_svg = figures.arm_zero_figure(arm)
-    pose = pose_context(arm, derivation, module)
     convention = CONVENTION_TEXT[arm.convention]
     branch_points = [s.branch for s in sheet.steps if s.branch is not None]
     return {
@@ -706,11 +744,7 @@ def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
         "dh_rows": dh_rows(arm), "parameters": parameter_rows(arm, derivation, sheet.names),
         "base": frame_matrix(arm.base), "tool": frame_matrix(arm.tool),
         "notation": notation_rows(sheet.names), "branch_points": branch_points,
-        "verification": verification_summary(arm, module), "pose": pose,
-        "arm_svg_inline": Markup(figures.inline(arm_svg, "zero", f"{arm.name} at its zero reading")),
-        "pose_svg_inline": Markup(figures.inline(pose["svg"], "pose", "every solution of the sample pose")),
         "arm_svg_file": f"{folder}_report_arm.svg", "pose_svg_file": f"{folder}_report_pose.svg",
-        "arm_svg": figures.standalone(arm_svg), "pose_svg": figures.standalone(pose["svg"]),
         "structure_sentences": structure_sentences(derivation),
         "target_sentences": target_sentences(arm, derivation),
         "target_short": (derivation.target.kind.replace("_", " ") + (" (declared)" if derivation.target.declared else
@@ -719,6 +753,24 @@ def context(arm: Arm, derivation: Derivation, module, folder: str) -> dict:
         "guard_tolerance": threshold_text(2 * GUARD_TOLERANCE),
         "guard_tolerance_latex": threshold_latex(2 * GUARD_TOLERANCE),
     }
+
+
+def evidence_context(data: dict, pose: dict, verification: dict, svgs: tuple[str, str]) -> dict:
+    """``data`` (sheet_context) completed with the numeric evidence: the sample pose's table, the
+    verification summary and the two figures (inline for the HTML, standalone for the Markdown)."""
+    arm_svg, pose_svg = svgs
+    return {**data, "verification": verification, "pose": {**pose, "svg": pose_svg},
+            "arm_svg_inline": Markup(figures.inline(arm_svg, "zero", f"{data['arm'].name} at its zero reading")),
+            "pose_svg_inline": Markup(figures.inline(pose_svg, "pose", "every solution of the sample pose")),
+            "arm_svg": figures.standalone(arm_svg), "pose_svg": figures.standalone(pose_svg)}
+
+
+def documents(data: dict) -> dict[str, str]:
+    """The report files from the complete context: {file name: text} (HTML, Markdown, two SVGs)."""
+    env = environment()
+    return {f"{data['folder']}_report.html": env.get_template("report.html.j2").render(**data),
+            f"{data['folder']}_report.md": env.get_template("report.md.j2").render(**data),
+            data["arm_svg_file"]: data["arm_svg"], data["pose_svg_file"]: data["pose_svg"]}
 
 
 def markdown_text(text) -> str:
@@ -734,18 +786,21 @@ def markdown_text(text) -> str:
 def environment() -> jinja2.Environment:
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(common.template_directory())),
                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                             keep_trailing_newline=True, autoescape=jinja2.select_autoescape(["html.j2"]))
+                             keep_trailing_newline=True, autoescape=jinja2.select_autoescape(["html.j2"]),
+                             bytecode_cache=template_cache("report: strict, trim, lstrip, keep newline, "
+                                                           "autoescape html.j2, filter md"))
     env.filters["md"] = markdown_text
     return env
 
 
-def render(arm: Arm, derivation: Derivation, python_source: str) -> dict[str, str]:
-    """The report files of one arm: {file name: text} (HTML, Markdown and the two SVG figures)."""
-    from ..generate import load_module
-    folder = common.identifier(arm.name)
-    module = load_module(python_source, f"{folder}_ik_for_report")
-    data = context(arm, derivation, module, folder)
-    env = environment()
-    return {f"{folder}_report.html": env.get_template("report.html.j2").render(**data),
-            f"{folder}_report.md": env.get_template("report.md.j2").render(**data),
-            data["arm_svg_file"]: data["arm_svg"], data["pose_svg_file"]: data["pose_svg"]}
+def render(arm: Arm, derivation: Derivation, python_source: str, timings: dict | None = None,
+           module=None) -> dict[str, str]:
+    """The report files of one arm: {file name: text} (HTML, Markdown and the two SVG figures).
+    ``module``: the generated solver already loaded from ``python_source`` (else it is loaded here);
+    ``timings`` (optional) receives the seconds of the report's phases (see stopwatch.py)."""
+    if module is None:
+        from ..generate import load_module
+        module = load_module(python_source, f"{common.identifier(arm.name)}_ik_for_report")
+    data = context(arm, derivation, module, common.identifier(arm.name), timings)
+    with Stopwatch(timings)("report: documents"):
+        return documents(data)
