@@ -27,6 +27,9 @@ def helpers_allowed() -> bool:
             and (os.cpu_count() or 1) > 1 and threading.active_count() == 1)
 
 
+HELPER_LIMIT = 900.0   # seconds a helper may take (the biggest reports took minutes under load)
+
+
 class SideJob:
     """One call of ``work``, in a forked helper when allowed (see the module docstring), else here."""
 
@@ -64,7 +67,12 @@ class SideJob:
         """The work's value; ``timings`` receives the work's phases (as measured where it ran)."""
         if self.connection is not None:
             try:
-                status, value, phases = self.connection.recv()
+                # a helper that neither answers nor dies within the limit is ended and its work
+                # done here (the same result): generate never waits on a stuck helper for ever
+                if self.connection.poll(HELPER_LIMIT):
+                    status, value, phases = self.connection.recv()
+                else:
+                    status = "failed"
             except (EOFError, OSError, ValueError):
                 status = "failed"
             self._abandon()
