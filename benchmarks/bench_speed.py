@@ -5,7 +5,9 @@ within the limits, NumericChain.poses), every solver returning every closed-form
 joint limits ignored:
 - C, gcc -O2: the generated double solver (<arm>_ik.c, BENCHTOP6_IK_LIMITS_IGNORE) against the
   hand-written benchmarks/hand/benchtop6_hand.c, ns per full solve and their ratio (goal <= 1.05x);
-  the generated float build (<arm>_ik_f32.c) against the double one (goal <= 1.0x). One harness
+  the generated float build (<arm>_ik_f32.c) against the double one (goal <= 1.0x); and the same
+  two rows with the generated solvers built with their opt-in atan2 kernel (-DIKGEN_FAST_ATAN2;
+  the hand-written solver keeps the maths library's atan2). One harness
   (benchmarks/hand/speed_harness.c) times them in interleaved rounds and keeps each one's best;
 - Python: the generated <arm>_ik.py, inverse(pose, limits="ignore") and the readings-only
   inverse_joints(pose) (the same output as the hand-written solver's), against the hand-written
@@ -88,10 +90,12 @@ def solver_files(arm, fresh: bool, work: Path) -> tuple[Path, str, str]:
             f"--fresh: ikgen.generate.build now ({seconds:.1f} s wall, all files and report)")
 
 
-BUILDS = {  # variant: (flags for the two double solvers, flags for the harness, extra objects)
-    "time": ([], [], []),
-    "count": (["-include", str(ROOT / "benchmarks" / "c" / "count_math.h")], ["-DIK_COUNTING"], ["counters.o"]),
-    "stub": (["-include", str(ROOT / "benchmarks" / "c" / "stub_atan2.h")], [], []),
+BUILDS = {  # variant: (flags for the two double solvers, flags for the harness, extra objects, flags for the float build)
+    "time": ([], [], [], []),
+    "count": (["-include", str(ROOT / "benchmarks" / "c" / "count_math.h")], ["-DIK_COUNTING"], ["counters.o"], []),
+    "stub": (["-include", str(ROOT / "benchmarks" / "c" / "stub_atan2.h")], [], [], []),
+    # the generated solvers with their opt-in atan2 kernel (the hand-written one keeps the library's)
+    "kernel": (["-DIKGEN_FAST_ATAN2"], [], [], ["-DIKGEN_FAST_ATAN2"]),
 }
 
 
@@ -101,13 +105,13 @@ def compile_harness(cc: str, arm, sources: Path, work: Path, variant: str) -> Pa
     (benchmarks/c/count_math.h); ``stub`` with their atan2 replaced by a cheap inline stand-in
     (benchmarks/c/stub_atan2.h), to time what the solvers cost apart from atan2."""
     double, single = c_backend.names(arm, c_backend.DOUBLE), c_backend.names(arm, c_backend.FLOAT)
-    solver_flags, harness_flags, extra = BUILDS[variant]
+    solver_flags, harness_flags, extra, float_flags = BUILDS[variant]
     include = [f"-I{sources}", f"-I{HAND}"]
     macros = [f'-DIK_HEADER="{double["header"]}"', f"-DIK_PREFIX={double['prefix']}", f"-DIK_UPPER={double['upper']}",
               f'-DIK32_HEADER="{single["header"]}"', f"-DIK32_PREFIX={single['prefix']}",
               f"-DIK32_UPPER={single['upper']}"]
     units = {f"generated_{variant}.o": [*solver_flags, *include, str(sources / double["source"])],
-             f"generated_f32_{variant}.o": [*include, str(sources / single["source"])],
+             f"generated_f32_{variant}.o": [*float_flags, *include, str(sources / single["source"])],
              f"hand_{variant}.o": [*solver_flags, *include, str(HAND / "benchtop6_hand.c")],
              f"harness_{variant}.o": [*harness_flags, *include, *macros, str(HAND / "speed_harness.c")]}
     if extra:
@@ -135,6 +139,8 @@ def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Pa
     figures.update(key_values(run([str(binaries["time"]), str(pose_file), str(rounds)], work)))
     stubbed = key_values(run([str(binaries["stub"]), str(pose_file), str(rounds)], work))
     figures.update({f"stub_{key}": value for key, value in stubbed.items()})
+    kernel = key_values(run([str(binaries["kernel"]), str(pose_file), str(rounds)], work))
+    figures.update({f"kernel_{key}": value for key, value in kernel.items()})
     return figures
 
 
@@ -217,6 +223,11 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
          c["stub_generated_best_ns"] / c["stub_hand_best_ns"])
     line("float build vs double, ns per solve", f"{c['float_best_ns']:.0f}", f"{c['generated_best_ns']:.0f}",
          c["float_best_ns"] / c["generated_best_ns"], GOALS["float"])
+    line("with IKGEN_FAST_ATAN2: C double, ns", f"{c['kernel_generated_best_ns']:.0f}",
+         f"{c['kernel_hand_best_ns']:.0f}", c["kernel_generated_best_ns"] / c["kernel_hand_best_ns"])
+    line("with IKGEN_FAST_ATAN2: float vs double, ns", f"{c['kernel_float_best_ns']:.0f}",
+         f"{c['kernel_generated_best_ns']:.0f}", c["kernel_float_best_ns"] / c["kernel_generated_best_ns"],
+         GOALS["float"])
     poses = c["poses"]
     print("-" * 92)
     print(f"reference column: hand-written C / hand-written Python (benchmarks/hand/); for the cffi row the "
@@ -227,6 +238,8 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     print("atan2 stubbed: a diagnostic build of both double solvers with every atan2 an inline y + 0.5*x "
           "(benchmarks/c/stub_atan2.h): what each costs apart from its atan2 calls. Calls are counted at "
           "source level (benchmarks/c/count_math.h); gcc -O2 inlines sqrt as one instruction.")
+    print("IKGEN_FAST_ATAN2: the generated double and float solvers built with their opt-in atan2 kernel "
+          "(docs/solvers.md), the hand-written one with the maths library's atan2 as always.")
     print(f"Python: {counts[0]} poses as nested lists, {rounds[1]} interleaved rounds; solution counts of the "
           f"generated and hand-written solvers compared on the first {counts[1]} poses (all equal).")
 
