@@ -21,6 +21,7 @@ import tomllib
 import numpy as np
 import pytest
 
+import shared
 from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
 from ikgen.armfile import arm_from_data
 from ikgen.errors import StructureError
@@ -34,11 +35,11 @@ DEMOS = [p.stem for p in DEMO_FILES]
 
 @pytest.fixture(scope="module")
 def demos():
-    """{stem: (arm, Build, module)} for the three demo arms, each derived once."""
+    """{stem: (arm, Build, module)} for the three demo arms, each derived once per session."""
     out = {}
     for stem in DEMOS:
         arm = demo_arm(stem)
-        result = build(arm)
+        result = shared.built(arm)
         out[stem] = (arm, result, load_module(result.files[result.python_path], result.folder))
     return out
 
