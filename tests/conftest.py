@@ -2,7 +2,9 @@
 
 ``built(path)`` returns ikgen.generate.build(load_arm(path)) for an arm file, from the session
 caches of tests/shared.py, so the tests that need a demo's generated files (golden files,
-back-ends, report) pay for its derivation once.
+back-ends, report) pay for its derivation once. ikgen's own calls of the engine are routed
+through the same memo before any test module is imported (tests/shared.py says why that keeps
+every check: a derivation is a deterministic function of the arm).
 """
 
 from __future__ import annotations
@@ -10,6 +12,8 @@ from __future__ import annotations
 import pytest
 
 import shared
+
+shared.remember_derivations()
 
 
 def build_once(path) -> object:

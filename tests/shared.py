@@ -5,10 +5,18 @@ Each of these is deterministic (same arm, same derivation, same bytes: DEVELOPER
 "Determinism"), so a test that only *uses* the result may take it from here instead of doing the
 work again; each arm is then derived once per test process (once per pytest-xdist worker), its
 C solver compiled once per scalar type. The key is ``repr(arm)``: the frozen dataclass's full repr,
-every DH value exact, limits, base, tool, target, given joint, source path and digest.
+every DH value exact, limits, base, tool, target, given joint, source path and digest (a
+derivation's key leaves the path and digest out).
 
-Tests *about* these steps (a derivation twice gives the same bytes, a refused structure raises,
-``compile_solver`` writes its folder all or nothing) call ikgen directly, not this module.
+``remember_derivations()`` (called by tests/conftest.py before any test module is imported) puts
+the same memo behind ``ikgen.engine.derive`` where ikgen itself calls it (generate.build,
+cbuild.compile_solver, the commands run in-process, given_choices), so an in-process ``ikgen
+generate``/``verify``/``explain`` of a demo arm does not derive it again. Only successful
+derivations are kept; a refusal is raised afresh each time. ``real_derive`` is the engine's own
+function, for the tests of determinism (``fresh_build``: derived and rendered from scratch).
+
+Derivations are not shared between processes through files: a pickled derivation comes back with
+some products re-evaluated (``-(a + b)`` as ``-a - b``), which changes its printed text.
 
 The results are shared objects: a test must not change them (no test does; a derivation, a built
 file set, a loaded solver are read-only to the tests).
@@ -17,16 +25,18 @@ file set, a loaded solver are read-only to the tests).
 from __future__ import annotations
 
 import atexit
+import dataclasses
 import shutil
 import tempfile
 from pathlib import Path
 from unittest import mock
 
+import ikgen.cbuild
+import ikgen.engine
 import ikgen.generate
 from ikgen.armfile import load_arm
 from ikgen.backends import batch as batch_backend, c as c_backend, python as python_backend
 from ikgen.cbuild import compile_solver
-from ikgen.engine import derive
 from ikgen.generate import build
 
 _DERIVATIONS: dict[str, object] = {}
@@ -36,6 +46,8 @@ _BATCH_SOURCES: dict[str, str] = {}
 _C_SOLVERS: dict[tuple, object] = {}
 _ARMS: dict[Path, object] = {}
 _SCRATCH: list[Path] = []
+
+real_derive = ikgen.engine.derive
 
 
 def key(arm) -> str:
@@ -51,21 +63,35 @@ def arm_at(path):
 
 
 def derivation(arm):
-    """engine.derive(arm), once per arm (a build's derivation counts)."""
-    k = key(arm)
+    """engine.derive(arm), once per arm. The key leaves out where the arm was read from (its path
+    and digest): the engine never reads them, and many tests write a demo's text to a file of
+    their own."""
+    k = key(dataclasses.replace(arm, source="", digest=""))
     if k not in _DERIVATIONS:
-        _DERIVATIONS[k] = derive(arm)
+        _DERIVATIONS[k] = real_derive(arm)
     return _DERIVATIONS[k]
 
 
+def remember_derivations() -> None:
+    """Route ikgen's own calls of engine.derive through ``derivation`` for the whole session."""
+    ikgen.engine.derive = derivation
+    ikgen.generate.derive_arm = derivation
+    ikgen.cbuild.derive_arm = derivation
+
+
 def built(arm):
-    """generate.build(arm), once per arm; its derivation is this module's (derived at most once)."""
+    """generate.build(arm), once per arm (its derivation from ``derivation``)."""
     k = key(arm)
     if k not in _BUILDS:
         with mock.patch.object(ikgen.generate, "derive_arm", derivation):
             _BUILDS[k] = build(arm)
-        _DERIVATIONS.setdefault(k, _BUILDS[k].derivation)
     return _BUILDS[k]
+
+
+def fresh_build(arm):
+    """generate.build(arm) from scratch: derived by the engine itself, not taken from the memo."""
+    with mock.patch.object(ikgen.generate, "derive_arm", real_derive):
+        return build(arm)
 
 
 def python_source(arm) -> str:
