@@ -22,8 +22,9 @@ import math
 import numpy as np
 import pytest
 
+import shared
 from helpers import demo_arm
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 from ikgen.verify import find_root, label_measure
 
@@ -36,7 +37,7 @@ class Subject:
 
     def __init__(self, stem: str):
         self.arm = demo_arm(stem)
-        self.build = build(self.arm)
+        self.build = shared.built(self.arm)
         folder = self.build.folder
         self.py = load_module(self.build.files[self.build.python_path], f"{folder}_ik_for_batch_test")
         self.batch = load_module(self.build.files[f"{folder}/{folder}_ik_batch.py"], f"{folder}_ik_batch_under_test")

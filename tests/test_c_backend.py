@@ -13,8 +13,8 @@ Outside references used here (named again beside each check):
   symbols an object file defines and needs, and gcc's AddressSanitizer/UndefinedBehaviorSanitizer.
 - scipy.spatial.transform.Rotation for rotation angles between a pose and its round trip.
 
-Demo arms are invented (examples/). Each arm is derived once per module (about 2 s each); every
-build goes to a tmp_path_factory folder. C mains live in tests/c_harness/.
+Demo arms are invented (examples/). Each arm is derived and its C solver compiled once per test
+session (tests/shared.py); the strict-compile files go to a tmp_path_factory folder. C mains live in tests/c_harness/.
 """
 
 from __future__ import annotations
@@ -31,6 +31,7 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
+import shared
 from helpers import EXAMPLES, demo_arm
 from ikgen.armfile import arm_from_data, load_arm
 from ikgen.backends import c as c_backend
@@ -182,7 +183,7 @@ class Demo:
         self.stem = stem
         self.factory = factory
         self.arm = demo_arm(stem)
-        self.build = build(self.arm)
+        self.build = shared.built(self.arm)
         self.derivation = self.build.derivation
         root = factory.mktemp(f"{stem}-files")
         write(self.build.files, root)
@@ -194,8 +195,7 @@ class Demo:
 
     def solver(self, scalar=c_backend.DOUBLE):
         if scalar.name not in self._solvers:
-            folder = self.factory.mktemp(f"{self.stem}-cffi-{scalar.name}")
-            self._solvers[scalar.name] = compile_solver(self.arm, self.derivation, scalar, folder)
+            self._solvers[scalar.name] = shared.c_solver(self.arm, scalar)
         return self._solvers[scalar.name]
 
     def prefix(self, scalar) -> str:

@@ -22,10 +22,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+import shared
 from helpers import demo_arm
 from ikgen.backends import c as c_backend
-from ikgen.cbuild import compile_solver
-from ikgen.engine import derive
 from ikgen.kinematics import NumericChain
 from ikgen.verify import check_round_trip, find_root, label_measure, label_specs, random_readings, singular_kind, target_of
 
@@ -47,16 +46,13 @@ ROTATION_BOUND = 3e-3      # rad
 
 
 @pytest.fixture(scope="module")
-def builds(tmp_path_factory):
+def builds():
     cache = {}
 
     def get(stem):
         if stem not in cache:
             arm = demo_arm(stem)
-            derivation = derive(arm)
-            solvers = {scalar.name: compile_solver(arm, derivation, scalar,
-                                                   tmp_path_factory.mktemp(f"{stem}-{scalar.name}"))
-                       for scalar in (c_backend.DOUBLE, c_backend.FLOAT)}
+            solvers = {scalar.name: shared.c_solver(arm, scalar) for scalar in (c_backend.DOUBLE, c_backend.FLOAT)}
             cache[stem] = (arm, NumericChain(arm), solvers)
         return cache[stem]
 

@@ -34,9 +34,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import shared
 from helpers import demo_arm
-from ikgen.cbuild import compile_solver
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 from ikgen.verify import check_round_trip, target_of
 
@@ -50,13 +50,12 @@ SETTINGS = settings(max_examples=60, deadline=None, derandomize=True,
 class Solvers:
     """One demo arm: its generated Python module, its C solver (cffi) and the C wrapper module."""
 
-    def __init__(self, stem: str, folder):
+    def __init__(self, stem: str):
         self.arm = demo_arm(stem)
         self.chain = NumericChain(self.arm)
-        made = build(self.arm)
-        self.python = load_module(made.files[made.python_path], f"{stem}_ik_fuzzed")
-        self.c = compile_solver(self.arm, made.derivation, folder=folder)
-        wrapper = folder / f"{self.c.prefix}_c.py"
+        self.python = load_module(shared.python_source(self.arm), f"{stem}_ik_fuzzed")
+        self.c = shared.c_solver(self.arm)
+        wrapper = self.c.folder / f"{self.c.prefix}_c.py"
         spec = importlib.util.spec_from_file_location(f"{stem}_ik_c_fuzzed", wrapper)
         self.wrapper = importlib.util.module_from_spec(spec)
         spec.loader.exec_module(self.wrapper)
@@ -68,12 +67,12 @@ class Solvers:
 
 
 @pytest.fixture(scope="module")
-def arms(tmp_path_factory):
+def arms():
     cache = {}
 
     def get(stem):
         if stem not in cache:
-            cache[stem] = Solvers(stem, tmp_path_factory.mktemp(f"{stem}-c"))
+            cache[stem] = Solvers(stem)
         return cache[stem]
 
     return get

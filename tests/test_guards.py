@@ -23,10 +23,10 @@ import mpmath
 import pytest
 import sympy as sp
 
+import shared
 from helpers import build_arm, joint
-from ikgen.cbuild import compile_solver
 from ikgen.exact import parse_exact, snap_radians
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 
 D1, A2, A3, D2 = 0.4, 0.35, 0.3, 0.1
 GUARD = 2e-9                                    # docs/derivation.md section 5
@@ -38,8 +38,7 @@ def elbow():
     at least |A2 - A3|, and the point must lie at least D2 from axis 1."""
     arm = build_arm([joint("r", a=0, alpha=90, d=D1), joint("r", a=A2, alpha=0, d=D2), joint("r", a=A3, alpha=0, d=0)],
                     name="guard3")
-    result = build(arm)
-    return arm, load_module(result.files[result.python_path], "guard3_ik_under_test")
+    return arm, load_module(shared.python_source(arm), "guard3_ik_under_test")
 
 
 def point_at(planar: mpmath.mpf, radial: mpmath.mpf):
@@ -147,8 +146,7 @@ def high_for(reading: float, low: float) -> float:
 def slide_reading():
     """A pose and the slide's reading the solvers compute for it (a stroke far wider than needed)."""
     arm = slide_arm(0.0, 2.0)
-    result = build(arm)
-    module = load_module(result.files[result.python_path], "slide3_wide")
+    module = load_module(shared.python_source(arm), "slide3_wide")
     pose = module.forward([30.0, 40.0, 0.6543210987])
     readings = sorted(s[0][2] for s in module.inverse(pose, limits="ignore"))
     return pose, readings[-1]
@@ -160,11 +158,10 @@ def test_a_reading_exactly_at_the_widened_limit(slide_reading, solver, beyond):
     pose, reading = slide_reading
     limit = reading if not beyond else math.nextafter(reading, -math.inf)     # the reading 1 ulp beyond it
     arm = slide_arm(0.0, high_for(limit, 0.0))
-    result = build(arm)
     if solver == "python":
-        module = load_module(result.files[result.python_path], f"slide3_{int(beyond)}")
+        module = load_module(shared.python_source(arm), f"slide3_{int(beyond)}")
     else:
-        module = compile_solver(arm, result.derivation)
+        module = shared.c_solver(arm)
     found = [s[0][2] for s in module.inverse(pose)]
     if beyond:
         assert reading not in found

@@ -36,10 +36,10 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
+import shared
 from helpers import build_arm, demo_arm, joint
 from ikgen.backends import c as c_backend
-from ikgen.cbuild import compile_solver
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 from ikgen.verify import find_root, jacobian_distance, label_measure
 
@@ -55,7 +55,7 @@ class Subject:
     def __init__(self, arm, factory):
         self.arm = arm
         self.factory = factory
-        self.build = build(arm)
+        self.build = shared.built(arm)
         self.derivation = self.build.derivation
         self.py = load_module(self.build.files[self.build.python_path], f"{self.build.folder}_issue6")
         self.chain = NumericChain(arm)
@@ -70,8 +70,7 @@ class Subject:
     @property
     def c(self):
         if self._c is None:
-            folder = self.factory.mktemp(f"{self.build.folder}-cffi")
-            self._c = compile_solver(self.arm, self.derivation, c_backend.DOUBLE, folder)
+            self._c = shared.c_solver(self.arm, c_backend.DOUBLE)
         return self._c
 
     def readings(self, count: int, rng, margin: float = 0.0) -> np.ndarray:

@@ -27,8 +27,9 @@ import pytest
 from scipy.optimize import least_squares
 from scipy.spatial.transform import Rotation
 
+import shared
 from helpers import DEMO_FILES, build_arm, demo_arm, joint
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 
 TWO_PI = 2.0 * math.pi
@@ -143,8 +144,8 @@ def spong_generic(q: np.ndarray, offset: float) -> bool:
 
 @pytest.fixture(scope="module")
 def spong_solvers():
-    return {offset: load_module(b.files[b.python_path], b.folder)
-            for offset in (0.0, OFFSET) for b in [build(spong_arm(offset))]}
+    return {offset: load_module(shared.python_source(arm), f"{arm.name}_ik")
+            for offset in (0.0, OFFSET) for arm in [spong_arm(offset)]}
 
 
 @pytest.mark.parametrize("offset", [0.0, OFFSET], ids=["no_offset", "shoulder_offset"])
@@ -221,8 +222,8 @@ def craig_solutions(pose: np.ndarray) -> list[np.ndarray]:
 
 @pytest.fixture(scope="module")
 def craig_solver():
-    b = build(craig_arm())
-    return load_module(b.files[b.python_path], b.folder)
+    arm = craig_arm()
+    return load_module(shared.python_source(arm), f"{arm.name}_ik")
 
 
 def test_six_axis_arm_matches_craig_closed_form(craig_solver):
@@ -287,8 +288,7 @@ MATCH = 1e-5               # radians, modulo 2 pi
 @pytest.fixture(scope="module", params=[p.stem for p in DEMO_FILES])
 def demo(request):
     arm = demo_arm(request.param)
-    b = build(arm)
-    return arm, load_module(b.files[b.python_path], b.folder)
+    return arm, load_module(shared.python_source(arm), f"{arm.name}_ik")
 
 
 def test_no_numerical_solution_is_missed(demo):

@@ -37,10 +37,10 @@ import pytest
 import sympy as sp
 from markupsafe import escape
 
+import shared
 from helpers import EXAMPLES, ROOT, demo_arm
-from ikgen.backends import python as python_backend, report
+from ikgen.backends import report
 from ikgen.cli import main
-from ikgen.engine import derive as derive_arm
 from ikgen.generate import load_module
 from ikgen.ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, CosSinEquation, LinearPair, angle_symbol,
                       cos_symbol, sin_symbol)
@@ -54,15 +54,27 @@ DISPLAY = re.compile(r"^\$\$(.+)\$\$$", re.M)
 # ----------------------------------------------------------------------------- fixtures
 
 class Rendered:
+    """A demo's derivation, Python solver and report, from the session's build of the demo
+    (tests/shared.py: generate.build renders the report with report.render from the same
+    derivation and Python source)."""
+
     def __init__(self, stem: str):
         self.arm = demo_arm(stem)
-        self.derivation = derive_arm(self.arm)
-        self.python = python_backend.render(self.arm, self.derivation)
+        made = shared.built(self.arm)
+        self.derivation = made.derivation
+        self.python = made.files[made.python_path]
         self.module = load_module(self.python, f"{stem}_under_test")
-        self.files = report.render(self.arm, self.derivation, self.python)
+        self.files = {path.split("/", 1)[1]: text for path, text in made.files.items() if "_report" in path}
         self.html = self.files[f"{stem}_report.html"]
         self.markdown = self.files[f"{stem}_report.md"]
         self.sheet = report.build_sheet(self.arm, self.derivation)
+        self._read_back = None
+
+    def read_back(self) -> dict:
+        """read_back(self), parsed once (two tests read the same text)."""
+        if self._read_back is None:
+            self._read_back = read_back(self)
+        return self._read_back
 
 
 @pytest.fixture(scope="module", params=DEMOS)
@@ -117,7 +129,7 @@ def test_display_equations_are_exactly_the_kept_equations(rendered):
 
 
 def test_printed_latex_parses_back_to_the_kept_expression(rendered):
-    parsed = read_back(rendered)
+    parsed = rendered.read_back()
     rng = np.random.default_rng(3)
     for eq in rendered.sheet.equations():
         back = parsed[eq.key]
@@ -181,7 +193,7 @@ class TextSolver:
         self.r = rendered
         self.sheet = rendered.sheet
         self.show = rendered.sheet.names.map
-        parsed = read_back(rendered)
+        parsed = rendered.read_back()
         self.fn = {}
         for key, expr in parsed.items():
             symbols = sorted(expr.free_symbols - {sp.pi}, key=str)

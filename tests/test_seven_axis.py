@@ -25,13 +25,14 @@ import sys
 import numpy as np
 import pytest
 
+import shared
 from helpers import ROOT, demo_arm
 from ikgen.backends import c as c_backend
 from ikgen.cbuild import compile_solver
 from ikgen.engine import derive, given_choices
 from ikgen.engine.targets import jacobian_of
 from ikgen.errors import StructureError
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 from ikgen.verify import verify
 
@@ -42,12 +43,10 @@ def solvers(given: int = 3):
     """(arm, Python module, batch module, C double, C float) with joint ``given`` given, built once."""
     if given not in _CACHE:
         arm = dataclasses.replace(demo_arm("cellreach7"), given_joint=given)
-        result = build(arm)
-        folder = result.folder
-        module = load_module(result.files[result.python_path], f"cellreach7_g{given}_ik")
-        batch = load_module(result.files[f"{folder}/{folder}_ik_batch.py"], f"cellreach7_g{given}_batch")
-        c_double = compile_solver(arm, result.derivation) if given == 3 else None
-        c_float = compile_solver(arm, result.derivation, scalar=c_backend.FLOAT) if given == 3 else None
+        module = load_module(shared.python_source(arm), f"cellreach7_g{given}_ik")
+        batch = load_module(shared.batch_source(arm), f"cellreach7_g{given}_batch")
+        c_double = shared.c_solver(arm) if given == 3 else None
+        c_float = shared.c_solver(arm, c_backend.FLOAT) if given == 3 else None
         _CACHE[given] = (arm, module, batch, c_double, c_float)
     return _CACHE[given]
 
@@ -288,7 +287,7 @@ def test_the_compiled_wrapper_takes_the_given_reading(tmp_path):
     solver's API for a given joint: inverse, nearest and choose_given agree with it."""
     import importlib
     arm, module, _, _, _ = solvers()
-    compile_solver(arm, folder=tmp_path)
+    compile_solver(arm, shared.derivation(arm), folder=tmp_path)
     sys.path.insert(0, str(tmp_path))
     try:
         wrapper = importlib.import_module("cellreach7_ik_c")

@@ -25,9 +25,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+import shared
 from helpers import build_arm, joint
-from ikgen.cbuild import compile_solver
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 from ikgen.verify import check_round_trip, find_root, label_measure, verify
 
@@ -48,9 +48,8 @@ def r10_arm():
 @pytest.fixture(scope="module")
 def r10():
     arm = r10_arm()
-    result = build(arm)
-    module = load_module(result.files[result.python_path], "r10_ik_under_test")
-    return arm, module, compile_solver(arm, result.derivation)
+    module = load_module(shared.python_source(arm), "r10_ik_under_test")
+    return arm, module, shared.c_solver(arm)
 
 
 def test_r10_passes_the_verification_that_once_failed(r10):
@@ -121,11 +120,9 @@ def batch_inverse(module):
 @pytest.fixture(scope="module")
 def wrist_bend():
     arm = wrist_bend_arm()
-    result = build(arm)
-    folder = result.folder
-    solvers = {"python": load_module(result.files[result.python_path], "wrist_bend_ik_under_test").inverse,
-               "batch": batch_inverse(load_module(result.files[f"{folder}/{folder}_ik_batch.py"], "wrist_bend_batch")),
-               "c": compile_solver(arm, result.derivation).inverse}
+    solvers = {"python": load_module(shared.python_source(arm), "wrist_bend_ik_under_test").inverse,
+               "batch": batch_inverse(load_module(shared.batch_source(arm), "wrist_bend_batch")),
+               "c": shared.c_solver(arm).inverse}
     return arm, solvers
 
 
@@ -186,9 +183,8 @@ def folded_elbow_arms():
 def folded():
     cases = []
     for arm, readings in folded_elbow_arms():
-        result = build(arm)
-        cases.append((arm, readings, {"python": load_module(result.files[result.python_path], f"{arm.name}_ik_test"),
-                                      "c": compile_solver(arm, result.derivation)}))
+        cases.append((arm, readings, {"python": load_module(shared.python_source(arm), f"{arm.name}_ik_test"),
+                                      "c": shared.c_solver(arm)}))
     return cases
 
 

@@ -22,8 +22,8 @@ import math
 import numpy as np
 import pytest
 
+import shared
 from helpers import build_arm, demo_arm, joint
-from ikgen.cbuild import compile_solver
 from ikgen.generate import build, load_module
 from ikgen.kinematics import NumericChain
 
@@ -33,9 +33,8 @@ _CACHE: dict[str, tuple] = {}
 def generated(name: str, arm):
     """(Python module, C solver, arm) of an arm, built once per test session."""
     if name not in _CACHE:
-        result = build(arm)
-        module = load_module(result.files[result.python_path], f"{name}_ik_under_test")
-        _CACHE[name] = (module, compile_solver(arm, result.derivation), arm)
+        module = load_module(shared.python_source(arm), f"{name}_ik_under_test")
+        _CACHE[name] = (module, shared.c_solver(arm), arm)
     return _CACHE[name]
 
 

@@ -30,11 +30,12 @@ yourdfpy = pytest.importorskip("yourdfpy", reason="the urdf extra (yourdfpy) is 
 pytest.importorskip("defusedxml", reason="the urdf extra (defusedxml) is not installed")
 from scipy.spatial.transform import Rotation  # noqa: E402
 
+import shared  # noqa: E402
 from helpers import EXAMPLES  # noqa: E402
 from ikgen.armfile import load_arm  # noqa: E402
 from ikgen.armsource import load_arm_source  # noqa: E402
 from ikgen.errors import ArmFileError, IkgenError  # noqa: E402
-from ikgen.generate import build, load_module  # noqa: E402
+from ikgen.generate import load_module  # noqa: E402
 from ikgen.kinematics import NumericChain  # noqa: E402
 from ikgen.urdf import convert_urdf, load_urdf_arm, reader  # noqa: E402
 from ikgen.urdf.armtext import arm_file_text  # noqa: E402
@@ -323,8 +324,7 @@ def test_example_arm_file_is_the_fresh_conversion_of_the_example_urdf():
 def test_demo_urdf_verifies_in_both_conventions():
     for convention in CONVENTIONS:
         arm = load_urdf_arm(DEMO_URDF, convention=convention)
-        result = build(arm)
-        module = load_module(result.files[result.python_path], result.folder + "_ik_urdf_" + convention)
+        module = load_module(shared.python_source(arm), arm.name + "_ik_urdf_" + convention)
         report = verify(arm, module, samples=1000, seed=5)
         assert report.passed, report.failures
         assert report.completeness == 1.0

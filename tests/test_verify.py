@@ -12,8 +12,9 @@ import math
 import numpy as np
 import pytest
 
+import shared
 from helpers import demo_arm
-from ikgen.generate import build, load_module
+from ikgen.generate import load_module
 from ikgen.verify import verify
 
 SAMPLES = 300
@@ -22,8 +23,7 @@ SAMPLES = 300
 @pytest.fixture(scope="module")
 def good():
     arm = demo_arm("benchtop6")
-    result = build(arm)
-    return arm, load_module(result.files[result.python_path], result.folder)
+    return arm, load_module(shared.python_source(arm), "benchtop6_ik")
 
 
 class Wrapped:
