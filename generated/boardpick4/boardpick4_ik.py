@@ -45,7 +45,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, sin, sqrt
+from math import atan2, cos, hypot, sin, sqrt
 
 ARM_NAME = "boardpick4"
 JOINT_NAMES = ("inner_arm", "outer_arm", "quill", "nozzle", )
@@ -249,14 +249,18 @@ def _solve(pose, current, limits, check):
     pose = _pose_rows(pose)
     current = _check(limits, current)
     r0, r1, r2 = pose
-    total = sum(r0) + sum(r1) + sum(r2)
-    biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
-    if total - total != 0.0 or biggest > LARGEST_ENTRY:
-        return [], "invalid_input"                         # NaN, infinite, or its square overflows
+    if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
+        large = False                                      # infinite or beyond SAFE_ENTRY
+    else:
+        total = sum(r0) + sum(r1) + sum(r2)
+        biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
+        if total - total != 0.0 or biggest > LARGEST_ENTRY:
+            return [], "invalid_input"                     # NaN, infinite, or its square overflows
+        large = biggest > SAFE_ENTRY
     pose, tilt = _project(pose)
     if check and not tilt <= TILT_TOLERANCE:
         return [], "not_realisable"
-    solutions = _closed_form(pose, current, biggest > SAFE_ENTRY)
+    solutions = _closed_form(pose, current, large)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
     out = []

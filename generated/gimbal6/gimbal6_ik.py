@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, sin, sqrt
+from math import atan2, cos, hypot, sin, sqrt
 
 # Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
 # The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
@@ -318,11 +318,15 @@ def _solve(pose, current, limits, check):
     pose = _pose_rows(pose)
     current = _check(limits, current)
     r0, r1, r2 = pose
-    total = sum(r0) + sum(r1) + sum(r2)
-    biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
-    if total - total != 0.0 or biggest > LARGEST_ENTRY:
-        return [], "invalid_input"                         # NaN, infinite, or its square overflows
-    solutions = _closed_form(pose, current, biggest > SAFE_ENTRY)
+    if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
+        large = False                                      # infinite or beyond SAFE_ENTRY
+    else:
+        total = sum(r0) + sum(r1) + sum(r2)
+        biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
+        if total - total != 0.0 or biggest > LARGEST_ENTRY:
+            return [], "invalid_input"                     # NaN, infinite, or its square overflows
+        large = biggest > SAFE_ENTRY
+    solutions = _closed_form(pose, current, large)
     if limits == "ignore":
         return solutions, "ok" if solutions else "unreachable"
     if all(s[4] for s in solutions):
