@@ -23,7 +23,7 @@ import numpy as np
 
 from .backends import c as c_backend
 from .backends.common import environment
-from .cwrapper import CRITERIA, SolutionReader, given_arguments, limits_mode, pose_entries, real, vector, wanted_config
+from .cwrapper import CRITERIA, SolutionReader, check_criterion, given_arguments, limits_mode, pose_entries, real, vector, wanted_config
 from .errors import IkgenError
 from .engine import derive as derive_arm
 from .ir import Derivation
@@ -112,10 +112,7 @@ class CSolver:
     def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
                      limits="drop"):
         """The C choose_given: (reading, solution) best by ``criterion``, or None."""
-        if criterion not in CRITERIA:
-            raise ValueError(f"criterion must be one of {', '.join(CRITERIA)}, not {criterion!r:.80}")
-        if criterion == "nearest" and current is None:
-            raise ValueError(f"criterion 'nearest' needs current: a sequence of {self.dof} real numbers")
+        check_criterion(criterion, current, self.dof)
         step = self.given_step if step is None else real(step, "step")
         flat = self._flat_pose(pose)
         here, _keep1 = self._joints_pointer(current)

@@ -109,6 +109,14 @@ def given_arguments(has_given, args, kwargs):
 CRITERIA = ("nearest", "limits", "conditioning")
 
 
+def check_criterion(criterion, current, dof: int) -> None:
+    """choose_given's criterion, and the current reading the 'nearest' one needs: ValueError if wrong."""
+    if criterion not in CRITERIA:
+        raise ValueError(f"criterion must be one of {', '.join(CRITERIA)}, not {criterion!r:.80}")
+    if criterion == "nearest" and current is None:
+        raise ValueError(f"criterion 'nearest' needs current: a sequence of {dof} real numbers")
+
+
 def limits_mode(limits):
     """The C limits mode; ValueError unless 'drop', 'flag' or 'ignore'."""
     if not isinstance(limits, str) or limits not in LIMIT_MODES:
@@ -286,10 +294,7 @@ class CompiledSolver:
     def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
                      limits="drop", wanted=None):
         """(reading, Solution) best by ``criterion`` (the generated Python solver's choose_given), or None."""
-        if criterion not in CRITERIA:
-            raise ValueError(f"criterion must be one of {', '.join(CRITERIA)}, not {criterion!r:.80}")
-        if criterion == "nearest" and current is None:
-            raise ValueError(f"criterion 'nearest' needs current: a sequence of {self.dof} real numbers")
+        check_criterion(criterion, current, self.dof)
         step = self.spec["GIVEN_STEP"] if step is None else real(step, "step")
         if not 0.0 < step < math.inf:
             raise ValueError(f"step must be a positive finite number, not {step!r:.80}")
