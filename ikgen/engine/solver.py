@@ -359,30 +359,45 @@ class Solver:
         built.sort(key=lambda item: item[:4])
         return self.cos_sin(built[0][4], built[0][5])
 
-    def pair_forms(self, candidates: list["NumericLinear"], key: str) -> list[PairForm]:
-        scored = []
+    def scored_pairs(self, candidates: list["NumericLinear"]) -> list:
+        """Every two candidates whose determinant is not identically zero, with their rank:
+        (score, first, second, determinant on the samples), the best first. All pairs at once in
+        numpy (an unknown can have a hundred candidates: thousands of pairs)."""
+        if len(candidates) < 2:
+            return []
         length = self.chain.length_scale
-        for first, second in itertools.combinations(candidates, 2):
-            det_values = first.a * second.b - second.a * first.b
-            scale = entry_scale(first.equation, length) * entry_scale(second.equation, length)
-            largest = float(np.max(np.abs(det_values)))
-            if largest <= ZERO_TOLERANCE * scale:
-                continue
-            # A determinant that changes sign has zeros that need not be singular poses of the arm;
-            # one that keeps its sign (a sum of squares) vanishes only where the angle is undetermined.
-            changes_sign = det_values.min() < -1e-9 * largest and det_values.max() > 1e-9 * largest
-            constant = float(np.max(det_values) - np.min(det_values)) <= 1e-9 * largest
-            same_group = first.equation.group == second.equation.group
-            scored.append(((changes_sign, not constant, not same_group,
-                            self.size(first.equation) + self.size(second.equation),
-                            first.equation.number, second.equation.number), first, second, det_values))
+        a = np.array([n.a for n in candidates])
+        b = np.array([n.b for n in candidates])
+        scales = np.array([entry_scale(n.equation, length) for n in candidates])
+        sizes = [self.size(n.equation) for n in candidates]
+        first, second = np.triu_indices(len(candidates), 1)      # the order of itertools.combinations
+        det = a[first] * b[second] - a[second] * b[first]
+        largest = np.max(np.abs(det), axis=1)
+        usable = largest > ZERO_TOLERANCE * (scales[first] * scales[second])
+        # A determinant that changes sign has zeros that need not be singular poses of the arm;
+        # one that keeps its sign (a sum of squares) vanishes only where the angle is undetermined.
+        low, high = det.min(axis=1), det.max(axis=1)
+        changes_sign = (low < -1e-9 * largest) & (high > 1e-9 * largest)
+        constant = (high - low) <= 1e-9 * largest
+        scored = []
+        for p in np.flatnonzero(usable):
+            one, two = candidates[first[p]], candidates[second[p]]
+            scored.append(((bool(changes_sign[p]), not constant[p], one.equation.group != two.equation.group,
+                            sizes[first[p]] + sizes[second[p]], one.equation.number, two.equation.number),
+                           one, two, det[p]))
         scored.sort(key=lambda item: item[0])
+        return scored
+
+    def pair_forms(self, candidates: list["NumericLinear"], key: str) -> list[PairForm]:
+        scored = self.scored_pairs(candidates)
         built: dict = {}
         kept, seen = [], []
         while len(kept) < MAX_PAIR_FORMS:
             # one form per singular set: a pair whose determinant is a constant multiple of a kept
             # one's (on the samples) vanishes at the same poses and adds nothing
-            scored = [item for item in scored if not any(proportional(item[3], d) for d, _ in seen)]
+            if seen:
+                scored = [item for item, same in zip(scored, proportional_rows([i[3] for i in scored], seen[-1][0]))
+                          if not same]
             options = [self.built_pair(item, key, built) for item in scored[:PAIR_BUILDS]]
             options = [o for o in options if o is not None and not any(divides(old, o[1]) for _, old in seen)]
             if not options:
@@ -662,6 +677,19 @@ def proportional(x: np.ndarray, y: np.ndarray) -> bool:
         return False
     ratio = x[usable] / y[usable]
     return float(np.max(ratio) - np.min(ratio)) <= 1e-7 * max(float(np.max(np.abs(ratio))), 1e-300)
+
+
+def proportional_rows(rows: list, y: np.ndarray) -> np.ndarray:
+    """``proportional(x, y)`` for every x of ``rows`` at once (the same arithmetic, row by row)."""
+    if not rows:
+        return np.zeros(0, dtype=bool)
+    scale = float(np.max(np.abs(y)))
+    usable = np.abs(y) > 1e-6 * scale
+    if not usable.any():
+        return np.zeros(len(rows), dtype=bool)
+    ratio = np.array(rows)[:, usable] / y[usable]
+    spread = np.max(ratio, axis=1) - np.min(ratio, axis=1)
+    return spread <= 1e-7 * np.maximum(np.max(np.abs(ratio), axis=1), 1e-300)
 
 
 def divides(first: sp.Expr, second: sp.Expr) -> bool:
