@@ -137,6 +137,9 @@ def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Pa
         raise BenchError(f"the generated and hand-written C solvers disagree on the number of solutions "
                          f"on {int(figures['count_mismatches'])} poses: fix that before timing them")
     figures.update(key_values(run([str(binaries["time"]), str(pose_file), str(rounds)], work)))
+    if figures["readings_mismatches"]:
+        raise BenchError(f"the generated C solver's readings-only entry and its full one differ on "
+                         f"{int(figures['readings_mismatches'])} poses: fix that before timing them")
     stubbed = key_values(run([str(binaries["stub"]), str(pose_file), str(rounds)], work))
     figures.update({f"stub_{key}": value for key, value in stubbed.items()})
     kernel = key_values(run([str(binaries["kernel"]), str(pose_file), str(rounds)], work))
@@ -204,6 +207,10 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
          ratio, GOALS["c"])
     line("  (median round)", f"{c['generated_median_ns']:.0f}", f"{c['hand_median_ns']:.0f}",
          c["generated_median_ns"] / c["hand_median_ns"])
+    line("C double inverse_joints (readings only), ns", f"{c['readings_best_ns']:.0f}", f"{c['hand_best_ns']:.0f}",
+         c["readings_best_ns"] / c["hand_best_ns"], GOALS["c"])
+    line("  (median round)", f"{c['readings_median_ns']:.0f}", f"{c['hand_median_ns']:.0f}",
+         c["readings_median_ns"] / c["hand_median_ns"])
     gen, hand = py["generated"], py["hand"]
     line("Python, us per full solve (best)", f"{gen[0]:.2f}", f"{hand[0]:.2f}", gen[0] / hand[0], GOALS["python"])
     line("  (median round)", f"{gen[1]:.2f}", f"{hand[1]:.2f}", gen[1] / hand[1])

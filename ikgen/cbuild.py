@@ -56,6 +56,9 @@ class CSolver:
         self._forward = getattr(self.lib, f"{self.prefix}_forward")
         self._inverse = getattr(self.lib, f"{self.prefix}_inverse")
         self._many = getattr(self.lib, f"{self.prefix}_inverse_many")
+        self._readings = getattr(self.lib, f"{self.prefix}_inverse_joints", None)
+        self._rows = np.zeros((self.max_solutions, self.dof), dtype=self.dtype) if self._readings else None
+        self._rows_type = self.ffi.typeof(f"{self.scalar.name}(*)[{self.dof}]")
         self._solutions = self.ffi.new(f"{self.prefix}_solution[{self.max_solutions}]")
         self._status = self.ffi.new(f"{self.prefix}_status *")
         self._reader = SolutionReader(self.ffi, f"{self.prefix}_solution", scalar.name, self.dof, self.labels,
@@ -108,6 +111,19 @@ class CSolver:
         hint, _keep = self._joints_pointer(current)
         count = self._inverse(flat, *given, hint, limits_mode(limits), self._solutions, self._status)
         return self._answer(count, with_status)
+
+    def inverse_joints(self, pose, *args, **kwargs) -> list[tuple]:
+        """The Python back-end's inverse_joints(pose, [given,] current=None): the readings of every
+        closed-form solution, from the C readings-only entry (the full call with limits ignored for
+        a solver without one)."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        current = kwargs.pop("current", args[0] if args else None)
+        if self._readings is None:
+            return [s[0] for s in self._inverse_pose(pose, given, current, "ignore")]
+        flat, _keep_pose = self._pose_array(pose)
+        hint, _keep = self._joints_pointer(current)
+        count = self._readings(flat, *given, hint, self.ffi.cast(self._rows_type, self.ffi.from_buffer(self._rows)))
+        return [tuple(row) for row in self._rows[:count].tolist()]
 
     def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
                      limits="drop"):

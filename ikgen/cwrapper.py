@@ -252,6 +252,10 @@ class CompiledSolver:
         self._status_type = ffi.typeof(f"{prefix}_status *")
         self._forward = getattr(self.lib, f"{prefix}_forward")
         self._inverse = getattr(self.lib, f"{prefix}_inverse")
+        # the readings-only entry (solvers whose target is the whole pose or a point have it)
+        self._readings = getattr(self.lib, f"{prefix}_inverse_joints", None)
+        self._rows_type = ffi.typeof(f"{self.real}[{self.most}][{self.dof}]")
+        self._flat_type = ffi.typeof(f"{self.real} *")
         self._natural = {name: getattr(self.lib, f"{prefix}_{name}", None)
                          for name in ("inverse_point", "inverse_point_angle", "inverse_point_direction")}
         self._reader = SolutionReader(ffi, f"{prefix}_solution", self.real, self.dof, self.labels,
@@ -290,6 +294,19 @@ class CompiledSolver:
 
     def _inverse_pose(self, pose, given, current=None, limits="drop", with_status=False):
         return self._run(self._inverse, (self._pose(pose), *given), current, limits, with_status)
+
+    def inverse_joints(self, pose, *args, **kwargs):
+        """inverse_joints(pose, [given,] current=None): the readings of every closed-form solution,
+        a tuple each, from the C readings-only entry (the full call with limits ignored where the
+        solver has none)."""
+        given, args, kwargs = given_arguments(self.given, args, kwargs)
+        current = kwargs.pop("current", args[0] if args else None)
+        if self._readings is None:
+            return [s[0] for s in self._inverse_pose(pose, given, current, "ignore")]
+        rows = self.ffi.new(self._rows_type)
+        count = self._readings(self._pose(pose), *given, self._current(current), rows)
+        values, dof = self.ffi.unpack(self.ffi.cast(self._flat_type, rows), count * self.dof), self.dof
+        return [tuple(values[k * dof:(k + 1) * dof]) for k in range(count)]
 
     def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
                      limits="drop", wanted=None):
@@ -384,14 +401,8 @@ def _bind(namespace, spec_path):
         if key.isupper():
             namespace[key] = tuple(tuple(v) if isinstance(v, list) else v for v in value) \
                 if isinstance(value, list) else value
-    def inverse_joints(pose, *args, **kwargs):
-        """inverse_joints(pose, [given,] current=None): the readings of every closed-form solution."""
-        given, args, kwargs = given_arguments(solver.given, args, kwargs)
-        current = kwargs.pop("current", args[0] if args else None)
-        return [s[0] for s in solver.inverse(pose, *given, current, "ignore")]
-
     namespace.update(forward=solver.forward, inverse=solver.inverse, nearest=nearest, ffi=solver.ffi,
-                     lib=solver.lib, solver=solver, inverse_joints=inverse_joints)
+                     lib=solver.lib, solver=solver, inverse_joints=solver.inverse_joints)
     if solver.given is not None:
         def choose_given(pose, current=None, criterion="nearest", weights=None, config=None, step=None, limits="drop"):
             """(reading, Solution): the given joint's reading and solution best by ``criterion`` (see

@@ -53,13 +53,18 @@ CHECK = textwrap.dedent('''
         assert (near_c is None) == (near_p is None)
         assert near_c is None or near_c.config == near_p.config
         assert ik.inverse(pose, limits="flag") is not None and ik.inverse(pose, limits="ignore") is not None
+        # the readings-only C entry: the full call's readings bit for bit, the Python solver's to rounding
+        lean, lean_py = ik.inverse_joints(pose), py.inverse_joints(pose)
+        assert lean == [s.joints for s in ik.inverse(pose, limits="ignore")]
+        assert len(lean) == len(lean_py) and all(abs(a - b) <= 1e-9 for s, t in zip(lean, lean_py)
+                                                 for a, b in zip(s, t))
         poses += 1
     same = all(getattr(ik, k) == getattr(py, k) for k in
                ("JOINT_NAMES", "LABEL_NAMES", "LABEL_VALUES", "CONDITION_NAMES", "JOINT_LIMITS", "MAX_SOLUTIONS",
                 "ARM_NAME", "LENGTH_UNIT", "ANGLE_UNIT"))
     nan_pose = [[float("nan")] * 4 for _ in range(4)]
     print(json.dumps({{"poses": poses, "forward": worst_forward, "joint": worst_joint, "same_constants": same,
-                      "nan_pose": len(ik.inverse(nan_pose))}}))
+                      "nan_pose": len(ik.inverse(nan_pose)) + len(ik.inverse_joints(nan_pose))}}))
 ''')
 
 
@@ -123,3 +128,38 @@ def test_compile_into_a_file_is_refused(tmp_path, capsys, monkeypatch):
     captured = capsys.readouterr()
     assert code == 2 and re.match(r"ikgen: error: cannot write ", captured.err), captured.err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["taken"]
+
+
+DEMOS = sorted(p for p in EXAMPLES.iterdir() if p.suffix in (".toml", ".json"))
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
+def test_readings_only_entry_returns_the_full_calls_readings(path):
+    """CSolver.inverse_joints (the C <prefix>_inverse_joints, rendered from the same closed form
+    without labels, conditioning, flags or limits) against the same solver's inverse with limits
+    ignored: the same readings, bit for bit, in the same order. Poses from the arm's forward
+    kinematics (ikgen.kinematics, checked against Craig, Introduction to Robotics, 3rd ed., sec. 3.4
+    in tests/test_kinematics.py), a tenth moved out of reach."""
+    import numpy as np
+    import shared
+    from ikgen.kinematics import NumericChain
+    from ikgen.verify import given_of, random_readings
+    arm = shared.arm_at(path)
+    solver = shared.c_solver(arm)
+    target = shared.derivation(arm).target
+    kind = target.kind if target is not None else "pose"
+    assert (solver._readings is not None) == (kind in ("pose", "point"))
+    readings = random_readings(arm, 300, np.random.default_rng(37))
+    poses = NumericChain(arm).poses(readings)
+    poses[::10, :3, 3] += 10.0 * arm.reach_scale()
+    found = 0
+    for source, pose in zip(readings, poses):
+        given = given_of(arm, source)
+        full = [tuple(s[0]) for s in solver.inverse(pose.tolist(), *given, limits="ignore")]
+        assert solver.inverse_joints(pose.tolist(), *given) == full
+        assert solver.inverse_joints(pose, *given, current=[0.0] * arm.dof) == \
+            [tuple(s[0]) for s in solver.inverse(pose, *given, [0.0] * arm.dof, "ignore")]
+        found += bool(full)
+    assert found >= 0.98 * 270          # the 270 poses in reach: solved (no vacuous comparison of empty lists)
+    for bad in (np.full((4, 4), np.nan), np.where(np.eye(4) > 0, 1e200, 0.0)):
+        assert solver.inverse_joints(bad.tolist(), *given_of(arm, readings[0])) == []

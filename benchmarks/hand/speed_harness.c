@@ -1,7 +1,7 @@
 /*
  * Timing harness for benchmarks/bench_speed.py: the generated C solver (double and float builds,
- * limits ignored, every solution) against the hand-written one (benchtop6_hand.c), same poses,
- * interleaved rounds.
+ * limits ignored, every solution; and the double build's readings-only entry _inverse_joints)
+ * against the hand-written one (benchtop6_hand.c), same poses, interleaved rounds.
  *
  * Compiled with -DIK_HEADER='"<arm>_ik.h"' -DIK_PREFIX=<arm>_ik -DIK_UPPER=<ARM>_IK and the same
  * three for the float build (IK32_HEADER, IK32_PREFIX, IK32_UPPER); each solver is its own
@@ -9,7 +9,8 @@
  *
  *   speed_harness POSES.bin ROUNDS
  * POSES.bin: raw native-endian doubles, 16 a pose (row-major 4x4). First one checking pass (the
- * generated and hand solvers must find the same number of solutions on every pose), then ROUNDS
+ * generated and hand solvers must find the same number of solutions on every pose, and the
+ * readings-only entry the same readings as the full one, bit for bit), then ROUNDS
  * rounds, each one timed pass of every solver over all poses, the order of the solvers rotating
  * from round to round. Prints key=value lines: best and median ns per pose of each solver.
  * Built with -DIK_COUNTING (the double solvers compiled with -include ../c/count_math.h and linked
@@ -29,6 +30,8 @@
 #define CAT_(a, b) a##b
 #define CAT(a, b) CAT_(a, b)
 #define GEN_INVERSE CAT(IK_PREFIX, _inverse)
+#define GEN_JOINTS CAT(IK_PREFIX, _inverse_joints)
+#define GEN_DOF CAT(IK_UPPER, _JOINTS)
 #define GEN_SOLUTION CAT(IK_PREFIX, _solution)
 #define GEN_MAX CAT(IK_UPPER, _MAX_SOLUTIONS)
 #define GEN_IGNORE CAT(IK_UPPER, _LIMITS_IGNORE)
@@ -37,8 +40,8 @@
 #define F32_MAX CAT(IK32_UPPER, _MAX_SOLUTIONS)
 #define F32_IGNORE CAT(IK32_UPPER, _LIMITS_IGNORE)
 
-enum { GENERATED, HAND, FLOAT_BUILD, SOLVERS };
-static const char *const NAMES[SOLVERS] = { "generated", "hand", "float" };
+enum { GENERATED, HAND, FLOAT_BUILD, READINGS, SOLVERS };
+static const char *const NAMES[SOLVERS] = { "generated", "hand", "float", "readings" };
 
 static volatile double sink; /* keeps every pass's results alive */
 
@@ -75,6 +78,7 @@ static double pass(int solver, const double *poses, const float *poses32, long c
     GEN_SOLUTION generated[GEN_MAX];
     F32_SOLUTION single[F32_MAX];
     double hand[BENCHTOP6_HAND_MAX][6];
+    double readings[GEN_MAX][GEN_DOF];
     double total = 0.0;
     const double started = now_ns();
     for (long i = 0; i < count; ++i) {
@@ -85,6 +89,9 @@ static double pass(int solver, const double *poses, const float *poses32, long c
         } else if (solver == HAND) {
             n = benchtop6_hand_inverse(poses + 16 * i, hand);
             total += n ? hand[n - 1][5] : 0.0;
+        } else if (solver == READINGS) {
+            n = GEN_JOINTS(poses + 16 * i, NULL, readings);
+            total += n ? readings[n - 1][5] : 0.0;
         } else {
             n = F32_INVERSE(poses32 + 16 * i, NULL, F32_IGNORE, single, NULL);
             total += n ? single[n - 1].joints[5] : 0.0;
@@ -143,7 +150,8 @@ int main(int argc, char **argv)
     GEN_SOLUTION generated[GEN_MAX];
     F32_SOLUTION single[F32_MAX];
     double hand[BENCHTOP6_HAND_MAX][6];
-    long mismatched = 0, solutions[SOLVERS] = { 0, 0, 0 };
+    double readings[GEN_MAX][GEN_DOF];
+    long mismatched = 0, readings_differ = 0, solutions[SOLVERS] = { 0, 0, 0, 0 };
     for (long i = 0; i < count; ++i) {
         const int g = GEN_INVERSE(poses + 16 * i, NULL, GEN_IGNORE, generated, NULL);
         const int h = benchtop6_hand_inverse(poses + 16 * i, hand);
@@ -151,6 +159,13 @@ int main(int argc, char **argv)
         solutions[HAND] += h;
         solutions[FLOAT_BUILD] += F32_INVERSE(poses32 + 16 * i, NULL, F32_IGNORE, single, NULL);
         mismatched += g != h;
+        const int q = GEN_JOINTS(poses + 16 * i, NULL, readings);
+        solutions[READINGS] += q;
+        int differ = q != g;
+        for (int k = 0; k < q && k < g; ++k)
+            for (int j = 0; j < GEN_DOF; ++j)
+                differ |= readings[k][j] != generated[k].joints[j];
+        readings_differ += differ;
     }
 
 #ifdef IK_COUNTING
@@ -164,7 +179,8 @@ int main(int argc, char **argv)
             times[solver * rounds + r] = pass(solver, poses, poses32, count);
         }
 
-    printf("poses=%ld\nrounds=%d\ncount_mismatches=%ld\n", count, rounds, mismatched);
+    printf("poses=%ld\nrounds=%d\ncount_mismatches=%ld\nreadings_mismatches=%ld\n", count, rounds, mismatched,
+           readings_differ);
     for (int s = 0; s < SOLVERS; ++s) {
         qsort(times + s * rounds, (size_t)rounds, sizeof(double), by_value);
         printf("%s_solutions=%ld\n", NAMES[s], solutions[s]);

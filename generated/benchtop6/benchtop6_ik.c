@@ -112,6 +112,14 @@ static const int MULTI[BENCHTOP6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -592,6 +600,394 @@ static int closed_form(const double pose[16], const double *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? BENCHTOP6_IK_OK : BENCHTOP6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[BENCHTOP6_IK_MAX_SOLUTIONS][BENCHTOP6_IK_JOINTS])
+{
+    benchtop6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = BENCHTOP6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = px - 95.0*r13;
+    const double pcy = py - 95.0*r23;
+    const double pcz = pz - 95.0*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const double wx = pcx - 70.0*r13;
+    const double wy = pcy - 70.0*r23;
+    const double wz = pcz - 70.0*r33;
+
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double v1y = 220.0 - wz;
+    const double g16_24 = 220.0 - pcz;
+
+    /* th1: z of A1^-1 w = A2 A3 c3
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t3_0 = wx*wx + wy*wy;
+
+    const int free1 = t3_0 <= 9.9999999999999988e-16;
+    if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
+        if (status) *status = BENCHTOP6_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    double ta1 = 0.0, ca1 = 0.0, sa1 = 0.0;   /* the first root, for the second */
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const double sg1 = k1 ? -1.0 : 1.0;
+        double th1, c1, s1;
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            if (k1) {   /* the second root: the first turned by half a turn */
+                th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
+                c1 = -ca1;
+                s1 = -sa1;
+            } else {
+                const double cn1 = root1*sg1*wx;
+                const double sn1 = root1*sg1*wy;
+                th1 = benchtop6_ik_atan2(sn1, cn1);
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
+
+                ta1 = th1;
+                ca1 = c1;
+                sa1 = s1;
+            }
+
+        }
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double v1x = c1*wx + s1*wy - 25.0;
+        const double v1z = c1*wy - s1*wx;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const double g16_11 = c1*r11 + r21*s1;
+        const double g16_12 = c1*r12 + r22*s1;
+        const double g16_13 = c1*r13 + r23*s1;
+        const double g16_14 = c1*pcx + pcy*s1 - 25.0;
+        const double g16_31 = c1*r21 - r11*s1;
+        const double g16_32 = c1*r22 - r12*s1;
+        const double g16_33 = c1*r23 - r13*s1;
+        const double g16_34 = c1*pcy - pcx*s1;
+
+        /* th3: squared norm of A1^-1 w = A2 A3 c3
+         * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double t5_0 = v1x*v1x + v1y*v1y + v1z*v1z;
+        const double ec3 = t5_0 - 125600.0;
+        const double er3 = (250832.58361943989 - t5_0)*(t5_0 - 367.41638056012698);
+
+        if (er3 + 31.366400000000002 < 0.0) {
+            continue;
+        }
+        const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
+        const double dl3 = benchtop6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        const int n3 = (root3 == 0.0) ? 1 : 2;
+        for (int k3 = 0; k3 < n3; ++k3) {
+            const double sg3 = k3 ? -1.0 : 1.0;
+            double th3, c3, s3;
+            const double cn3 = 10400.0*ec3 + 124800.0*root3*sg3;
+            const double sn3 = -124800.0*ec3 + 10400.0*root3*sg3;
+            th3 = -1.4876550949064553 + sg3 * dl3;
+            c3 = 6.3762497449500099e-11*cn3;
+            s3 = 6.3762497449500099e-11*sn3;
+
+            /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            int free2 = 1;
+            {
+                const double t7_0_0 = 20.0*v1x;
+                const double t7_0_1 = c3*v1y;
+                const double t7_0_2 = s3*v1y;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabs(dt2) > 9.9999999999999988e-16) {
+                    c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2;
+                    s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2;
+                    free2 = 0;
+                    wk2 = 0.0009999999999999998;
+                }
+            }
+            if (free2) {
+                const double t7_1_0 = g16_14*v1x;
+                const double t7_1_1 = g16_14*v1y;
+                const double t7_1_2 = g16_24*v1x;
+                const double t7_1_3 = g16_24*v1y;
+                const double t7_1_4 = 520.0*c3;
+                const double t7_1_5 = 520.0*s3;
+                const double t7_1_6 = 124800.0*g16_14;
+                const double t7_1_7 = 10400.0*v1y;
+                const double t7_1_8 = c3*v1y;
+                const double t7_1_9 = g16_14*s3;
+                const double t7_1_10 = s3*v1x;
+                const double t7_1_11 = 124800.0*g16_24;
+                const double t7_1_12 = c3*s3;
+                const double t7_1_13 = 10400.0*v1x;
+                const double t7_1_14 = s3*s3;
+                const double t7_1_15 = 10400.0*t7_1_14;
+                const double t7_1_16 = g16_14*g16_14;
+                const double t7_1_17 = g16_24*g16_24;
+                const double t7_1_18 = g16_34*g16_34;
+                const double t7_1_19 = c3*v1x;
+                const double t7_1_20 = s3*v1y;
+
+                dt2 = -t7_1_0*t7_1_5 + 480.0*t7_1_0 + t7_1_1*t7_1_4 + 40.0*t7_1_1 - t7_1_2*t7_1_4 - 40.0*t7_1_2 - t7_1_3*t7_1_5 + 480.0*t7_1_3;
+                if (fabs(dt2) > 9.9999999999999998e-13) {
+                    c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2;
+                    s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2;
+                    free2 = 0;
+                    wk2 = 1.0;
+                }
+            }
+            if (free2) {
+                const double t7_2_0 = g16_13*v1x;
+                const double t7_2_1 = g16_14*v1x;
+                const double t7_2_2 = -r33*v1y;
+                const double t7_2_3 = g16_24*v1y;
+                const double t7_2_4 = 2800.0*c3;
+                const double t7_2_5 = g16_13*v1y;
+                const double t7_2_6 = 33600.0*c3;
+                const double t7_2_7 = 40.0*c3;
+                const double t7_2_8 = 480.0*c3;
+                const double t7_2_9 = g16_14*v1y;
+                const double t7_2_10 = -r33*v1x;
+                const double t7_2_11 = g16_24*v1x;
+                const double t7_2_12 = 33600.0*s3;
+                const double t7_2_13 = 2800.0*s3;
+                const double t7_2_14 = 480.0*s3;
+                const double t7_2_15 = 40.0*s3;
+                const double t7_2_16 = 10400.0*c3;
+                const double t7_2_17 = g16_14*g16_14;
+                const double t7_2_18 = g16_24*g16_24;
+                const double t7_2_19 = g16_34*g16_34;
+                const double t7_2_20 = c3*s3;
+                const double t7_2_21 = -r33*t7_2_20;
+                const double t7_2_22 = s3*s3;
+                const double t7_2_23 = g16_13*g16_13;
+                const double t7_2_24 = 4900.0*v1x;
+                const double t7_2_25 = 114400.0*t7_2_22;
+                const double t7_2_26 = r33*r33;
+                const double t7_2_27 = g16_33*g16_33;
+                const double t7_2_28 = 4900.0*v1y;
+
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9;
+                if (fabs(dt2) > 9.9999999999999998e-13) {
+                    c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2;
+                    s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2;
+                    free2 = 0;
+                    wk2 = 1.0;
+                }
+            }
+            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
+                if (fabs(dt2) > wk2) {
+                    continue;
+                }
+                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free2) {
+                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                c2 = cos(th2);
+                s2 = sin(th2);
+            } else {
+                th2 = benchtop6_ik_atan2(s2, c2);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq2 = c2 * c2 + s2 * s2;
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn2 = 1.0 / sqrt(hq2);
+                        c2 = c2 * hn2;
+                        s2 = s2 * hn2;
+                    }
+                }
+            }
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double g26_11 = c2*g16_11 - r31*s2;
+            const double g26_12 = c2*g16_12 - r32*s2;
+            const double g26_13 = c2*g16_13 - r33*s2;
+            const double g26_21 = -c2*r31 - g16_11*s2;
+            const double g26_22 = -c2*r32 - g16_12*s2;
+            const double g26_23 = -c2*r33 - g16_13*s2;
+
+            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+            const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
+            const double g36_13 = c3*g26_13 + g26_23*s3;
+            const double g36_31 = c3*g26_21 - g26_11*s3;
+            const double g36_32 = c3*g26_22 - g26_12*s3;
+            const double g36_33 = c3*g26_23 - g26_13*s3;
+
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+             * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const double er5 = g16_33*g16_33 + g36_13*g36_13;
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
+                continue;
+            }
+            const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            double th5, c5, s5;
+            const double cn5 = g36_33;
+            const double sn5 = root5;
+            th5 = benchtop6_ik_atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            int free4 = 1;
+            {
+
+                dt4 = -s5*s5;
+                if (fabs(dt4) > 9.9999999999999995e-21) {
+                    c4 = (g36_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08;
+                }
+            }
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+                if (fabs(dt4) > wk4) {
+                    continue;
+                }
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+                c4 = cos(th4);
+                s4 = sin(th4);
+            } else {
+                th4 = benchtop6_ik_atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq4 = c4 * c4 + s4 * s4;
+                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn4 = 1.0 / sqrt(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
+            }
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const double g46_11 = c4*g36_11 - g16_31*s4;
+            const double g46_12 = c4*g36_12 - g16_32*s4;
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const double g56_11 = c5*g46_11 + g36_31*s5;
+            const double g56_12 = c5*g46_12 + g36_32*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+                continue;
+            }
+            th6 = benchtop6_ik_atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+            /* read only by the labels, which this entry does not compute */
+            (void)c3;
+            (void)s3;
+            (void)s5;
+            (void)v1x;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0;
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = th2 - -1.5707963267948966;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                double u3 = th3;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                const double jv3 = u3 * 57.295779513082323;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 57.295779513082323;
+                const double jv5 = th5 * 57.295779513082323;
+                const double jv6 = th6 * 57.295779513082323;
+                if (fine && count < BENCHTOP6_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                }
+            }
+            if (root5 > 0.0 && !free4) {
+                {
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    const double jv1 = u1 * 57.295779513082323;
+                    double u2 = th2 - -1.5707963267948966;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    const double jv2 = u2 * 57.295779513082323;
+                    double u3 = th3;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    const double jv3 = u3 * 57.295779513082323;
+                    double u4 = th4 + 3.1415926535897931;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    const double jv4 = u4 * 57.295779513082323;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    const double jv5 = u5 * 57.295779513082323;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    const double jv6 = u6 * 57.295779513082323;
+                    if (fine && count < BENCHTOP6_IK_CLOSED_FORM) {
+                        double *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
             }

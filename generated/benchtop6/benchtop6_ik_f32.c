@@ -81,6 +81,14 @@ static const int MULTI[BENCHTOP6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -561,6 +569,394 @@ static int closed_form(const float pose[16], const float *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? BENCHTOP6_IK_F32_OK : BENCHTOP6_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int benchtop6_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[BENCHTOP6_IK_F32_MAX_SOLUTIONS][BENCHTOP6_IK_F32_JOINTS])
+{
+    benchtop6_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float r11 = pose[0];
+    const float r12 = pose[1];
+    const float r13 = pose[2];
+    const float px = pose[3];
+    const float r21 = pose[4];
+    const float r22 = pose[5];
+    const float r23 = pose[6];
+    const float py = pose[7];
+    const float r31 = pose[8];
+    const float r32 = pose[9];
+    const float r33 = pose[10];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = BENCHTOP6_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const float pcx = px - 95.0f*r13;
+    const float pcy = py - 95.0f*r23;
+    const float pcz = pz - 95.0f*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const float wx = pcx - 70.0f*r13;
+    const float wy = pcy - 70.0f*r23;
+    const float wz = pcz - 70.0f*r33;
+
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float v1y = 220.0f - wz;
+    const float g16_24 = 220.0f - pcz;
+
+    /* th1: z of A1^-1 w = A2 A3 c3
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const float t3_0 = wx*wx + wy*wy;
+
+    const int free1 = t3_0 <= 1e-15f;
+    if (free1 ? 0.0f > 1e-15f : 1.00002f*t3_0 < 0.0f) {
+        if (status) *status = BENCHTOP6_IK_F32_UNREACHABLE;
+        return 0;
+    }
+    const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
+    const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+    float ta1 = 0.0f, ca1 = 0.0f, sa1 = 0.0f;   /* the first root, for the second */
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const float sg1 = k1 ? -1.0f : 1.0f;
+        float th1, c1, s1;
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            if (k1) {   /* the second root: the first turned by half a turn */
+                th1 = ta1 > 0.0f ? ta1 - 3.14159265f : ta1 + 3.14159265f;
+                c1 = -ca1;
+                s1 = -sa1;
+            } else {
+                const float cn1 = root1*sg1*wx;
+                const float sn1 = root1*sg1*wy;
+                th1 = benchtop6_ik_f32_atan2(sn1, cn1);
+                c1 = cn1/t3_0;
+                s1 = sn1/t3_0;
+
+                ta1 = th1;
+                ca1 = c1;
+                sa1 = s1;
+            }
+
+        }
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float v1x = c1*wx + s1*wy - 25.0f;
+        const float v1z = c1*wy - s1*wx;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const float g16_11 = c1*r11 + r21*s1;
+        const float g16_12 = c1*r12 + r22*s1;
+        const float g16_13 = c1*r13 + r23*s1;
+        const float g16_14 = c1*pcx + pcy*s1 - 25.0f;
+        const float g16_31 = c1*r21 - r11*s1;
+        const float g16_32 = c1*r22 - r12*s1;
+        const float g16_33 = c1*r23 - r13*s1;
+        const float g16_34 = c1*pcy - pcx*s1;
+
+        /* th3: squared norm of A1^-1 w = A2 A3 c3
+         * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float t5_0 = v1x*v1x + v1y*v1y + v1z*v1z;
+        const float ec3 = t5_0 - 125600.0f;
+        const float er3 = (250832.584f - t5_0)*(t5_0 - 367.416381f);
+
+        if (er3 + 313664.0f < 0.0f) {
+            continue;
+        }
+        const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
+        const float dl3 = benchtop6_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        const int n3 = (root3 == 0.0f) ? 1 : 2;
+        for (int k3 = 0; k3 < n3; ++k3) {
+            const float sg3 = k3 ? -1.0f : 1.0f;
+            float th3, c3, s3;
+            const float cn3 = 10400.0f*ec3 + 124800.0f*root3*sg3;
+            const float sn3 = -124800.0f*ec3 + 10400.0f*root3*sg3;
+            th3 = -1.48765509f + sg3 * dl3;
+            c3 = 6.37624974e-11f*cn3;
+            s3 = 6.37624974e-11f*sn3;
+
+            /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+            int free2 = 1;
+            {
+                const float t7_0_0 = 20.0f*v1x;
+                const float t7_0_1 = c3*v1y;
+                const float t7_0_2 = s3*v1y;
+
+                dt2 = -v1x*v1x - v1y*v1y;
+                if (fabsf(dt2) > 1e-15f) {
+                    c2 = (-c3*t7_0_0 + 240.0f*s3*v1x - 240.0f*t7_0_1 - 20.0f*t7_0_2 - 260.0f*v1x) / dt2;
+                    s2 = (240.0f*c3*v1x + s3*t7_0_0 - 20.0f*t7_0_1 + 240.0f*t7_0_2 - 260.0f*v1y) / dt2;
+                    free2 = 0;
+                    wk2 = 0.001f;
+                }
+            }
+            if (free2) {
+                const float t7_1_0 = g16_14*v1x;
+                const float t7_1_1 = g16_14*v1y;
+                const float t7_1_2 = g16_24*v1x;
+                const float t7_1_3 = g16_24*v1y;
+                const float t7_1_4 = 520.0f*c3;
+                const float t7_1_5 = 520.0f*s3;
+                const float t7_1_6 = 124800.0f*g16_14;
+                const float t7_1_7 = 10400.0f*v1y;
+                const float t7_1_8 = c3*v1y;
+                const float t7_1_9 = g16_14*s3;
+                const float t7_1_10 = s3*v1x;
+                const float t7_1_11 = 124800.0f*g16_24;
+                const float t7_1_12 = c3*s3;
+                const float t7_1_13 = 10400.0f*v1x;
+                const float t7_1_14 = s3*s3;
+                const float t7_1_15 = 10400.0f*t7_1_14;
+                const float t7_1_16 = g16_14*g16_14;
+                const float t7_1_17 = g16_24*g16_24;
+                const float t7_1_18 = g16_34*g16_34;
+                const float t7_1_19 = c3*v1x;
+                const float t7_1_20 = s3*v1y;
+
+                dt2 = -t7_1_0*t7_1_5 + 480.0f*t7_1_0 + t7_1_1*t7_1_4 + 40.0f*t7_1_1 - t7_1_2*t7_1_4 - 40.0f*t7_1_2 - t7_1_3*t7_1_5 + 480.0f*t7_1_3;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (9600.0f*c3*g16_14 - 136000.0f*c3*g16_24 + 10400.0f*c3*t7_1_9 + 9600.0f*g16_24*s3 + g16_24*t7_1_15 - 20800.0f*g16_24 - 124800.0f*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0f*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0f*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0f*t7_1_8 + 800.0f*t7_1_9) / dt2;
+                    s2 = (136000.0f*c3*g16_14 + 10400.0f*c3*g16_24*s3 + 9600.0f*c3*g16_24 + 124800.0f*c3*s3*v1x - g16_14*t7_1_15 + 20800.0f*g16_14 + 800.0f*g16_24*s3 + 124800.0f*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0f*t7_1_14*v1x + 124800.0f*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0f*t7_1_19 - 120700.0f*t7_1_20 - 9600.0f*t7_1_9) / dt2;
+                    free2 = 0;
+                    wk2 = 1.0f;
+                }
+            }
+            if (free2) {
+                const float t7_2_0 = g16_13*v1x;
+                const float t7_2_1 = g16_14*v1x;
+                const float t7_2_2 = -r33*v1y;
+                const float t7_2_3 = g16_24*v1y;
+                const float t7_2_4 = 2800.0f*c3;
+                const float t7_2_5 = g16_13*v1y;
+                const float t7_2_6 = 33600.0f*c3;
+                const float t7_2_7 = 40.0f*c3;
+                const float t7_2_8 = 480.0f*c3;
+                const float t7_2_9 = g16_14*v1y;
+                const float t7_2_10 = -r33*v1x;
+                const float t7_2_11 = g16_24*v1x;
+                const float t7_2_12 = 33600.0f*s3;
+                const float t7_2_13 = 2800.0f*s3;
+                const float t7_2_14 = 480.0f*s3;
+                const float t7_2_15 = 40.0f*s3;
+                const float t7_2_16 = 10400.0f*c3;
+                const float t7_2_17 = g16_14*g16_14;
+                const float t7_2_18 = g16_24*g16_24;
+                const float t7_2_19 = g16_34*g16_34;
+                const float t7_2_20 = c3*s3;
+                const float t7_2_21 = -r33*t7_2_20;
+                const float t7_2_22 = s3*s3;
+                const float t7_2_23 = g16_13*g16_13;
+                const float t7_2_24 = 4900.0f*v1x;
+                const float t7_2_25 = 114400.0f*t7_2_22;
+                const float t7_2_26 = r33*r33;
+                const float t7_2_27 = g16_33*g16_33;
+                const float t7_2_28 = 4900.0f*v1y;
+
+                dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0f*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0f*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0f*t7_2_2 - t7_2_3*t7_2_7 - 520.0f*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9;
+                if (fabsf(dt2) > 1e-12f) {
+                    c2 = (19200.0f*c3*g16_14*s3 + 114400.0f*c3*g16_24*s3 - 124800.0f*c3*g16_24 - 8736000.0f*c3*r33 + 140.0f*g16_13*g16_14*v1x - 1344000.0f*g16_13*t7_2_20 + 8008000.0f*g16_13*t7_2_22 - 8064000.0f*g16_13 - g16_14*t7_2_25 + 115200.0f*g16_14 - 140.0f*g16_24*r33*v1x - 10400.0f*g16_24*s3 + 19200.0f*g16_24*t7_2_22 - 9600.0f*g16_24 + 140.0f*g16_33*g16_34*v1x - 728000.0f*r33*s3 + 1344000.0f*r33*t7_2_22 - 672000.0f*r33 + 124800.0f*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0f*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0f*v1x) / dt2;
+                    s2 = (8008000.0f*c3*g16_13*s3 - 8736000.0f*c3*g16_13 + 124800.0f*c3*g16_14 + 19200.0f*c3*g16_24*s3 + 140.0f*g16_13*g16_14*v1y - 728000.0f*g16_13*s3 + 1344000.0f*g16_13*t7_2_22 - 672000.0f*g16_13 + 10400.0f*g16_14*s3 - 114400.0f*g16_14*t7_2_20 - 19200.0f*g16_14*t7_2_22 + 9600.0f*g16_14 - 140.0f*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0f*g16_24 + 140.0f*g16_33*g16_34*v1y - 8008000.0f*r33*t7_2_22 + 8064000.0f*r33 + 124800.0f*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0f*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0f*v1y) / dt2;
+                    free2 = 0;
+                    wk2 = 1.0f;
+                }
+            }
+            if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
+                if (fabsf(dt2) > wk2) {
+                    continue;
+                }
+                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free2) {
+                th2 = (-1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
+            } else {
+                th2 = benchtop6_ik_f32_atan2(s2, c2);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const float hq2 = c2 * c2 + s2 * s2;
+                    if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                        const float hn2 = 1.0f / sqrtf(hq2);
+                        c2 = c2 * hn2;
+                        s2 = s2 * hn2;
+                    }
+                }
+            }
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const float g26_11 = c2*g16_11 - r31*s2;
+            const float g26_12 = c2*g16_12 - r32*s2;
+            const float g26_13 = c2*g16_13 - r33*s2;
+            const float g26_21 = -c2*r31 - g16_11*s2;
+            const float g26_22 = -c2*r32 - g16_12*s2;
+            const float g26_23 = -c2*r33 - g16_13*s2;
+
+            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+            const float g36_11 = c3*g26_11 + g26_21*s3;
+            const float g36_12 = c3*g26_12 + g26_22*s3;
+            const float g36_13 = c3*g26_13 + g26_23*s3;
+            const float g36_31 = c3*g26_21 - g26_11*s3;
+            const float g36_32 = c3*g26_22 - g26_12*s3;
+            const float g36_33 = c3*g26_23 - g26_13*s3;
+
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+             * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const float er5 = g16_33*g16_33 + g36_13*g36_13;
+
+            if (er5 + 2e-05f < 0.0f) {
+                continue;
+            }
+            const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            float th5, c5, s5;
+            const float cn5 = g36_33;
+            const float sn5 = root5;
+            th5 = benchtop6_ik_f32_atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+            int free4 = 1;
+            {
+
+                dt4 = -s5*s5;
+                if (fabsf(dt4) > 1e-20f) {
+                    c4 = (g36_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08f;
+                }
+            }
+            if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+                if (fabsf(dt4) > wk4) {
+                    continue;
+                }
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
+                c4 = cosf(th4);
+                s4 = sinf(th4);
+            } else {
+                th4 = benchtop6_ik_f32_atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const float hq4 = c4 * c4 + s4 * s4;
+                    if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                        const float hn4 = 1.0f / sqrtf(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
+            }
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const float g46_11 = c4*g36_11 - g16_31*s4;
+            const float g46_12 = c4*g36_12 - g16_32*s4;
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const float g56_11 = c5*g46_11 + g36_31*s5;
+            const float g56_12 = c5*g46_12 + g36_32*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0f;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+                continue;
+            }
+            th6 = benchtop6_ik_f32_atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+            /* read only by the labels, which this entry does not compute */
+            (void)c3;
+            (void)s3;
+            (void)s5;
+            (void)v1x;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
+                float u1 = th1;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                const float jv1 = u1 * 57.2957795f;
+                float u2 = th2 - -1.57079633f;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                const float jv2 = u2 * 57.2957795f;
+                float u3 = th3;
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                const float jv3 = u3 * 57.2957795f;
+                float u4 = th4;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                const float jv4 = u4 * 57.2957795f;
+                const float jv5 = th5 * 57.2957795f;
+                const float jv6 = th6 * 57.2957795f;
+                if (fine && count < BENCHTOP6_IK_F32_CLOSED_FORM) {
+                    float *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                }
+            }
+            if (root5 > 0.0f && !free4) {
+                {
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    const float jv1 = u1 * 57.2957795f;
+                    float u2 = th2 - -1.57079633f;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    const float jv2 = u2 * 57.2957795f;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    const float jv3 = u3 * 57.2957795f;
+                    float u4 = th4 + 3.14159265f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    const float jv4 = u4 * 57.2957795f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    const float jv5 = u5 * 57.2957795f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    const float jv6 = u6 * 57.2957795f;
+                    if (fine && count < BENCHTOP6_IK_F32_CLOSED_FORM) {
+                        float *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
             }

@@ -112,6 +112,14 @@ static const int MULTI[BOARDPICK4_IK_JOINTS] = { 0, 0, 0, 1 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;

@@ -81,6 +81,14 @@ static const int MULTI[BOARDPICK4_IK_F32_JOINTS] = { 0, 0, 0, 1 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;

@@ -315,6 +315,14 @@ static const int MULTI[CANTED6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -850,6 +858,438 @@ static int closed_form(const double pose[16], const double *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                }
+            }
+        }
+
+    }
+    if (status) *status = count ? CANTED6_IK_OK : CANTED6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int canted6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[CANTED6_IK_MAX_SOLUTIONS][CANTED6_IK_JOINTS])
+{
+    canted6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = CANTED6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = px - 10.0*r11 - 45.0*r13;
+    const double pcy = py - 10.0*r21 - 45.0*r23;
+    const double pcz = pz - 10.0*r31 - 45.0*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const double wx = pcx - 60.0*r13;
+    const double wy = pcy - 60.0*r23;
+    const double wz = pcz - 60.0*r33;
+
+    /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
+     * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
+    const double t3_0 = wx*wx;
+    const double t3_1 = wy*wy;
+    const double t3_2 = wz*wz;
+    const double t3_3 = 900.0*wz;
+    const double t3_4 = 1.5*t3_0;
+    const double ek0_3 = -t3_0*t3_3 - 124350.0*t3_0 + 1.5*t3_1*t3_2 - t3_1*t3_3 + t3_1*t3_4 - 124350.0*t3_1 + t3_2*t3_4 + 155650.0*t3_2 + 0.75*wx*wx*wx*wx + 0.75*wy*wy*wy*wy + 0.75*wz*wz*wz*wz - 900.0*wz*wz*wz + 68210000.0*wz + 5108787500.0;
+    const double ek1_3 = -1200.0*t3_0 - 1200.0*t3_1 - 1200.0*t3_2 + 2120000.0*wz - 438520000.0;
+    const double ek2_3 = -253200.0*t3_0 - 253200.0*t3_1 - 253200.0*t3_2 + 151820000.0*wz + 19762280000.0;
+
+    double rt3[4], rc3[4], rs3[4], rk3[4];
+    int rd3[4], n3;
+    const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 30471193600000000.0 + 4.4836368516000003e+20 <= 100.0;
+    if (free3) {
+        rt3[0] = (0.0 + 0.017453292519943295 * (current && current[2] - current[2] == 0.0 ? current[2] : 0.0));
+        rc3[0] = cos(rt3[0]);
+        rs3[0] = sin(rt3[0]);
+        rd3[0] = 0;
+        rk3[0] = 0.0;
+        n3 = 1;
+    } else {
+        n3 = ik_circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1.0000000000000001e-09,
+                                   rt3, rc3, rs3, rd3, rk3);
+    }
+    for (int k3 = 0; k3 < n3; ++k3) {
+        const double th3 = rt3[k3];
+        const double c3 = rc3[k3];
+        const double s3 = rs3[k3];
+        const int dbl3 = rd3[k3];
+        const double cnd3 = rk3[k3];
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        int free1 = 1;
+        {
+            const double t4_0_0 = wx*wx;
+            const double t4_0_1 = wy*wy;
+            const double t4_0_2 = 692.8203230275509*c3;
+            const double t4_0_3 = 146185.08815881325*s3;
+            const double t4_0_4 = 519.6152422706632*wz;
+            const double t4_0_5 = wz*wz;
+
+            dt1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+            if (fabs(dt1) > 9.999999999999999e-14) {
+                c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy) / dt1;
+                s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.378954807777*wy) / dt1;
+                free1 = 0;
+                wk1 = 0.099999999999999992;
+            }
+        }
+        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
+            if (fabs(dt1) > wk1) {
+                continue;
+            }
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            th1 = canted6_ik_atan2(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq1 = c1 * c1 + s1 * s1;
+                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+                    const double hn1 = 1.0 / sqrt(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
+        }
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double t5_0 = 0.5*c1;
+        const double t5_1 = 0.5*s1;
+        const double t5_2 = 0.8660254037844386*c1;
+        const double t5_3 = 0.8660254037844386*s1;
+        const double g16_11 = c1*r11 + r21*s1;
+        const double g16_12 = c1*r12 + r22*s1;
+        const double g16_13 = c1*r13 + r23*s1;
+        const double g16_14 = c1*pcx + pcy*s1 - 50.0;
+        const double g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31;
+        const double g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32;
+        const double g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33;
+        const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
+        const double g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31;
+        const double g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32;
+        const double g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33;
+        const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double t6_0 = c1*wy;
+        const double v1x = c1*wx + s1*wy - 50.0;
+        const double v1y = -0.5*s1*wx + 0.5*t6_0 + 0.8660254037844386*wz - 259.8076211353316;
+        const double v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t6_0 + 0.5*wz - 150.0;
+
+        /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+        int free2 = 1;
+        {
+            const double t7_0_0 = 20.0*v1y;
+            const double t7_0_1 = 17.320508075688775*c3;
+            const double t7_0_2 = 242.48711305964281*s3;
+            const double t7_0_3 = 0.5*v1z;
+            const double t7_0_4 = 280.0*c3;
+            const double t7_0_5 = 20.0*v1x;
+
+            dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y;
+            if (fabs(dt2) > 9.9999999999999988e-16) {
+                c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2;
+                s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2;
+                free2 = 0;
+                wk2 = 0.0009999999999999998;
+            }
+        }
+        if (free2) {
+            const double t7_1_0 = g16_13*v1x;
+            const double t7_1_1 = g16_14*v1x;
+            const double t7_1_2 = g16_23*v1y;
+            const double t7_1_3 = g16_24*v1y;
+            const double t7_1_4 = 2078.4609690826528*c3;
+            const double t7_1_5 = 34.641016151377549*c3;
+            const double t7_1_6 = 29098.453567157139*s3;
+            const double t7_1_7 = 484.97422611928562*s3;
+            const double t7_1_8 = c3*v1y;
+            const double t7_1_9 = c3*v1x;
+            const double t7_1_10 = s3*v1y;
+            const double t7_1_11 = s3*v1x;
+            const double t7_1_12 = 9699.4845223857137*c3;
+            const double t7_1_13 = 692.8203230275509*c3;
+            const double t7_1_14 = 41569.219381653056*s3;
+            const double t7_1_15 = 4156.9219381653056*g16_33;
+            const double t7_1_16 = 146185.08815881325*s3;
+            const double t7_1_17 = c3*v1z;
+            const double t7_1_18 = 14549.22678357857*t7_1_17;
+            const double t7_1_19 = g16_14*s3;
+            const double t7_1_20 = 19398.969044771427*c3;
+            const double t7_1_21 = 242.48711305964281*g16_34;
+            const double t7_1_22 = 17.320508075688775*v1z;
+            const double t7_1_23 = 1039.2304845413264*g16_33;
+            const double t7_1_24 = g16_23*s3;
+            const double t7_1_25 = s3*s3;
+            const double t7_1_26 = g16_13*g16_13;
+            const double t7_1_27 = 3117.6914536239792*v1x;
+            const double t7_1_28 = 135099.96299037244*t7_1_25;
+            const double t7_1_29 = g16_14*g16_14;
+            const double t7_1_30 = 0.8660254037844386*v1x;
+            const double t7_1_31 = g16_23*g16_23;
+            const double t7_1_32 = g16_24*g16_24;
+            const double t7_1_33 = g16_33*g16_33;
+            const double t7_1_34 = g16_34*g16_34;
+            const double t7_1_35 = g16_24*s3;
+            const double t7_1_36 = 3117.6914536239792*v1y;
+            const double t7_1_37 = 0.8660254037844386*v1y;
+
+            dt2 = -1800.0*g16_13*t7_1_10 + 25200.0*g16_13*t7_1_8 + 30.0*g16_14*t7_1_10 - 420.0*g16_14*t7_1_8 + 1800.0*g16_23*t7_1_11 - 25200.0*g16_23*t7_1_9 - 30.0*g16_24*t7_1_11 + 420.0*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.91453623979*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.6152422706632*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.91453623979*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.6152422706632*t7_1_3;
+            if (fabs(dt2) > 9.9999999999999998e-13) {
+                c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.07134314277*c3*g16_13 + 242.48711305964281*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.7794223456*g16_13*t7_1_25 - 8147566.9988039983*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.282032302755098*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2;
+                s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.07134314277*c3*g16_23 + 242.48711305964281*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.7794223456*g16_23*t7_1_25 - 8147566.9988039983*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.282032302755098*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2;
+                free2 = 0;
+                wk2 = 1.0;
+            }
+        }
+        if (free2) {
+            const double t7_2_0 = c1*c3;
+            const double t7_2_1 = c1*s3;
+            const double t7_2_2 = c3*s1;
+            const double t7_2_3 = s1*s3;
+            const double t7_2_4 = c3*t7_2_1;
+            const double t7_2_5 = s3*t7_2_2;
+            const double t7_2_6 = s3*s3;
+            const double t7_2_7 = c1*t7_2_6;
+            const double t7_2_8 = s1*t7_2_6;
+            const double t7_2_9 = c3*wx;
+            const double t7_2_10 = s3*wx;
+            const double t7_2_11 = wx*wx;
+            const double t7_2_12 = 150.0*s1;
+            const double t7_2_13 = wy*wy;
+            const double t7_2_14 = wz*wz;
+            const double t7_2_15 = 242.48711305964281*t7_2_0;
+            const double t7_2_16 = 17.320508075688775*t7_2_1;
+            const double t7_2_17 = 10.0*t7_2_2;
+            const double t7_2_18 = 140.0*t7_2_3;
+            const double t7_2_19 = 300.0*c1;
+            const double t7_2_20 = 121.2435565298214*t7_2_2;
+            const double t7_2_21 = 8.6602540378443873*t7_2_3;
+            const double t7_2_22 = 20.0*t7_2_0;
+            const double t7_2_23 = 280.0*t7_2_1;
+
+            dt2 = 77526594.14678295*c1 + 7460000.0*s1 + 6235382.9072479587*t7_2_0 + 87295360.701471418*t7_2_1 + 600000.0*t7_2_2 + 8400000.0*t7_2_3 + 1454922.6783578568*t7_2_4 + 140000.0*t7_2_5 + 10132497.224277932*t7_2_7 + 975000.0*t7_2_8;
+            if (fabs(dt2) > 9.999999999999999e-14) {
+                c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.572526932*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.21702821681*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.956365012*t7_2_4 + 21180000.0*t7_2_5 + 7014805.7706539528*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2;
+                s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.388713367*t7_2_2 + 3922229.0537397228*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.495624591*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2;
+                free2 = 0;
+                wk2 = 0.099999999999999992;
+            }
+        }
+        if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
+            if (fabs(dt2) > wk2) {
+                continue;
+            }
+            free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free2) {
+            th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+            c2 = cos(th2);
+            s2 = sin(th2);
+        } else {
+            th2 = canted6_ik_atan2(s2, c2);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    const double hn2 = 1.0 / sqrt(hq2);
+                    c2 = c2 * hn2;
+                    s2 = s2 * hn2;
+                }
+            }
+        }
+
+        /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+        const double t8_0 = 0.8660254037844386*c2;
+        const double t8_1 = 0.8660254037844386*s2;
+        const double t8_2 = 0.5*c2;
+        const double t8_3 = 0.5*s2;
+        const double g26_11 = c2*g16_11 + g16_21*s2;
+        const double g26_12 = c2*g16_12 + g16_22*s2;
+        const double g26_13 = c2*g16_13 + g16_23*s2;
+        const double g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31;
+        const double g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32;
+        const double g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33;
+        const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
+        const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
+        const double g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33;
+
+        /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+        const double g36_11 = c3*g26_11 + g26_21*s3;
+        const double g36_12 = c3*g26_12 + g26_22*s3;
+        const double g36_13 = c3*g26_13 + g26_23*s3;
+        const double g36_31 = -c3*g26_21 + g26_11*s3;
+        const double g36_32 = -c3*g26_22 + g26_12*s3;
+        const double g36_33 = -c3*g26_23 + g26_13*s3;
+
+        /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+         * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double er5 = g26_33*g26_33 + g36_13*g36_13;
+
+        if (er5 + 2.0000000000000001e-09 < 0.0) {
+            continue;
+        }
+        const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        double th5, c5, s5;
+        const double cn5 = g36_33;
+        const double sn5 = root5;
+        th5 = canted6_ik_atan2(sn5, cn5);
+        c5 = cn5;
+        s5 = sn5;
+
+        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        int free4 = 1;
+        {
+
+            dt4 = -s5*s5;
+            if (fabs(dt4) > 9.9999999999999995e-21) {
+                c4 = (-g36_13*s5) / dt4;
+                s4 = (-g26_33*s5) / dt4;
+                free4 = 0;
+                wk4 = 1e-08;
+            }
+        }
+        if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (fabs(dt4) > wk4) {
+                continue;
+            }
+            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free4) {
+            th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+            c4 = cos(th4);
+            s4 = sin(th4);
+        } else {
+            th4 = canted6_ik_atan2(s4, c4);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq4 = c4 * c4 + s4 * s4;
+                if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
+                    const double hn4 = 1.0 / sqrt(hq4);
+                    c4 = c4 * hn4;
+                    s4 = s4 * hn4;
+                }
+            }
+        }
+
+        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+        const double g46_11 = c4*g36_11 + g26_31*s4;
+        const double g46_12 = c4*g36_12 + g26_32*s4;
+
+        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+        const double g56_11 = c5*g46_11 - g36_31*s5;
+        const double g56_12 = c5*g46_12 - g36_32*s5;
+
+        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+        int free6 = 1;
+        {
+
+            dt6 = 1.0;
+            c6 = (g56_11) / dt6;
+            s6 = (-g56_12) / dt6;
+            free6 = 0;
+        }
+        (void)free6;
+        (void)wk6;
+        if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            continue;
+        }
+        th6 = canted6_ik_atan2(s6, c6);
+
+        /* joint readings, configuration labels, singular flag */
+        /* read only by the labels, which this entry does not compute */
+        (void)c3;
+        (void)s3;
+        (void)s5;
+        (void)v1x;
+        (void)dbl3;
+        (void)cnd3;
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
+        const int fine = probe - probe == 0.0;
+        {
+            double u1 = th1;
+            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            const double jv1 = u1 * 57.295779513082323;
+            double u2 = th2;
+            u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+            const double jv2 = u2 * 57.295779513082323;
+            double u3 = th3;
+            u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+            const double jv3 = u3 * 57.295779513082323;
+            double u4 = th4;
+            u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+            const double jv4 = u4 * 57.295779513082323;
+            const double jv5 = th5 * 57.295779513082323;
+            const double jv6 = th6 * 57.295779513082323;
+            if (fine && count < CANTED6_IK_CLOSED_FORM) {
+                double *row = joints[count++];
+                row[0] = jv1;
+                row[1] = jv2;
+                row[2] = jv3;
+                row[3] = jv4;
+                row[4] = jv5;
+                row[5] = jv6;
+            }
+        }
+        if (root5 > 0.0 && !free4) {
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                double u3 = th3;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                const double jv3 = u3 * 57.295779513082323;
+                double u4 = th4 + 3.1415926535897931;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 57.295779513082323;
+                double u5 = -th5;
+                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                const double jv5 = u5 * 57.295779513082323;
+                double u6 = th6 + 3.1415926535897931;
+                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                const double jv6 = u6 * 57.295779513082323;
+                if (fine && count < CANTED6_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
                 }
             }
         }

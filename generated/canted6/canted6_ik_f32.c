@@ -284,6 +284,14 @@ static const int MULTI[CANTED6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -819,6 +827,438 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                }
+            }
+        }
+
+    }
+    if (status) *status = count ? CANTED6_IK_F32_OK : CANTED6_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int canted6_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[CANTED6_IK_F32_MAX_SOLUTIONS][CANTED6_IK_F32_JOINTS])
+{
+    canted6_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float r11 = pose[0];
+    const float r12 = pose[1];
+    const float r13 = pose[2];
+    const float px = pose[3];
+    const float r21 = pose[4];
+    const float r22 = pose[5];
+    const float r23 = pose[6];
+    const float py = pose[7];
+    const float r31 = pose[8];
+    const float r32 = pose[9];
+    const float r33 = pose[10];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = CANTED6_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const float pcx = px - 10.0f*r11 - 45.0f*r13;
+    const float pcy = py - 10.0f*r21 - 45.0f*r23;
+    const float pcz = pz - 10.0f*r31 - 45.0f*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const float wx = pcx - 60.0f*r13;
+    const float wy = pcy - 60.0f*r23;
+    const float wz = pcz - 60.0f*r33;
+
+    /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
+     * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
+    const float t3_0 = wx*wx;
+    const float t3_1 = wy*wy;
+    const float t3_2 = wz*wz;
+    const float t3_3 = 900.0f*wz;
+    const float t3_4 = 1.5f*t3_0;
+    const float ek0_3 = -t3_0*t3_3 - 124350.0f*t3_0 + 1.5f*t3_1*t3_2 - t3_1*t3_3 + t3_1*t3_4 - 124350.0f*t3_1 + t3_2*t3_4 + 155650.0f*t3_2 + 0.75f*wx*wx*wx*wx + 0.75f*wy*wy*wy*wy + 0.75f*wz*wz*wz*wz - 900.0f*wz*wz*wz + 68210000.0f*wz + 5.1087875e+09f;
+    const float ek1_3 = -1200.0f*t3_0 - 1200.0f*t3_1 - 1200.0f*t3_2 + 2120000.0f*wz - 438520000.0f;
+    const float ek2_3 = -253200.0f*t3_0 - 253200.0f*t3_1 - 253200.0f*t3_2 + 151820000.0f*wz + 1.976228e+10f;
+
+    float rt3[4], rc3[4], rs3[4], rk3[4];
+    int rd3[4], n3;
+    const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16f + 4.48363685e+20f <= 100.0f;
+    if (free3) {
+        rt3[0] = (0.0f + 0.0174532925f * (current && current[2] - current[2] == 0.0f ? current[2] : 0.0f));
+        rc3[0] = cosf(rt3[0]);
+        rs3[0] = sinf(rt3[0]);
+        rd3[0] = 0;
+        rk3[0] = 0.0f;
+        n3 = 1;
+    } else {
+        n3 = ik_circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0f, 2.11746e+10f, 1e-05f,
+                                   rt3, rc3, rs3, rd3, rk3);
+    }
+    for (int k3 = 0; k3 < n3; ++k3) {
+        const float th3 = rt3[k3];
+        const float c3 = rc3[k3];
+        const float s3 = rs3[k3];
+        const int dbl3 = rd3[k3];
+        const float cnd3 = rk3[k3];
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
+        int free1 = 1;
+        {
+            const float t4_0_0 = wx*wx;
+            const float t4_0_1 = wy*wy;
+            const float t4_0_2 = 692.820323f*c3;
+            const float t4_0_3 = 146185.088f*s3;
+            const float t4_0_4 = 519.615242f*wz;
+            const float t4_0_5 = wz*wz;
+
+            dt1 = 86.6025404f*t4_0_0 + 86.6025404f*t4_0_1;
+            if (fabsf(dt1) > 1e-13f) {
+                c1 = (14000.0f*c3*wy - 1000.0f*s3*wy + 0.866025404f*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.866025404f*t4_0_5*wx + 0.866025404f*wx*wx*wx - 67463.379f*wx + 50.0f*wy*wz - 19000.0f*wy) / dt1;
+                s1 = (-14000.0f*c3*wx + 1000.0f*s3*wx + 0.866025404f*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.866025404f*t4_0_5*wy - 50.0f*wx*wz + 19000.0f*wx + 0.866025404f*wy*wy*wy - 67463.379f*wy) / dt1;
+                free1 = 0;
+                wk1 = 0.1f;
+            }
+        }
+        if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
+            if (fabsf(dt1) > wk1) {
+                continue;
+            }
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            th1 = canted6_ik_f32_atan2(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq1 = c1 * c1 + s1 * s1;
+                if (fabsf(hq1 - 1.0f) > 1e-06f) {
+                    const float hn1 = 1.0f / sqrtf(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
+        }
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float t5_0 = 0.5f*c1;
+        const float t5_1 = 0.5f*s1;
+        const float t5_2 = 0.866025404f*c1;
+        const float t5_3 = 0.866025404f*s1;
+        const float g16_11 = c1*r11 + r21*s1;
+        const float g16_12 = c1*r12 + r22*s1;
+        const float g16_13 = c1*r13 + r23*s1;
+        const float g16_14 = c1*pcx + pcy*s1 - 50.0f;
+        const float g16_21 = -r11*t5_1 + r21*t5_0 + 0.866025404f*r31;
+        const float g16_22 = -r12*t5_1 + r22*t5_0 + 0.866025404f*r32;
+        const float g16_23 = -r13*t5_1 + r23*t5_0 + 0.866025404f*r33;
+        const float g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.866025404f*pcz - 259.807621f;
+        const float g16_31 = r11*t5_3 - r21*t5_2 + 0.5f*r31;
+        const float g16_32 = r12*t5_3 - r22*t5_2 + 0.5f*r32;
+        const float g16_33 = r13*t5_3 - r23*t5_2 + 0.5f*r33;
+        const float g16_34 = 0.866025404f*pcx*s1 - pcy*t5_2 + 0.5f*pcz - 150.0f;
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float t6_0 = c1*wy;
+        const float v1x = c1*wx + s1*wy - 50.0f;
+        const float v1y = -0.5f*s1*wx + 0.5f*t6_0 + 0.866025404f*wz - 259.807621f;
+        const float v1z = 0.866025404f*s1*wx - 0.866025404f*t6_0 + 0.5f*wz - 150.0f;
+
+        /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+        int free2 = 1;
+        {
+            const float t7_0_0 = 20.0f*v1y;
+            const float t7_0_1 = 17.3205081f*c3;
+            const float t7_0_2 = 242.487113f*s3;
+            const float t7_0_3 = 0.5f*v1z;
+            const float t7_0_4 = 280.0f*c3;
+            const float t7_0_5 = 20.0f*v1x;
+
+            dt2 = 0.866025404f*v1x*v1x + 0.866025404f*v1y*v1y;
+            if (fabsf(dt2) > 1e-15f) {
+                c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.807621f*v1x) / dt2;
+                s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.807621f*v1y) / dt2;
+                free2 = 0;
+                wk2 = 0.001f;
+            }
+        }
+        if (free2) {
+            const float t7_1_0 = g16_13*v1x;
+            const float t7_1_1 = g16_14*v1x;
+            const float t7_1_2 = g16_23*v1y;
+            const float t7_1_3 = g16_24*v1y;
+            const float t7_1_4 = 2078.46097f*c3;
+            const float t7_1_5 = 34.6410162f*c3;
+            const float t7_1_6 = 29098.4536f*s3;
+            const float t7_1_7 = 484.974226f*s3;
+            const float t7_1_8 = c3*v1y;
+            const float t7_1_9 = c3*v1x;
+            const float t7_1_10 = s3*v1y;
+            const float t7_1_11 = s3*v1x;
+            const float t7_1_12 = 9699.48452f*c3;
+            const float t7_1_13 = 692.820323f*c3;
+            const float t7_1_14 = 41569.2194f*s3;
+            const float t7_1_15 = 4156.92194f*g16_33;
+            const float t7_1_16 = 146185.088f*s3;
+            const float t7_1_17 = c3*v1z;
+            const float t7_1_18 = 14549.2268f*t7_1_17;
+            const float t7_1_19 = g16_14*s3;
+            const float t7_1_20 = 19398.969f*c3;
+            const float t7_1_21 = 242.487113f*g16_34;
+            const float t7_1_22 = 17.3205081f*v1z;
+            const float t7_1_23 = 1039.23048f*g16_33;
+            const float t7_1_24 = g16_23*s3;
+            const float t7_1_25 = s3*s3;
+            const float t7_1_26 = g16_13*g16_13;
+            const float t7_1_27 = 3117.69145f*v1x;
+            const float t7_1_28 = 135099.963f*t7_1_25;
+            const float t7_1_29 = g16_14*g16_14;
+            const float t7_1_30 = 0.866025404f*v1x;
+            const float t7_1_31 = g16_23*g16_23;
+            const float t7_1_32 = g16_24*g16_24;
+            const float t7_1_33 = g16_33*g16_33;
+            const float t7_1_34 = g16_34*g16_34;
+            const float t7_1_35 = g16_24*s3;
+            const float t7_1_36 = 3117.69145f*v1y;
+            const float t7_1_37 = 0.866025404f*v1y;
+
+            dt2 = -1800.0f*g16_13*t7_1_10 + 25200.0f*g16_13*t7_1_8 + 30.0f*g16_14*t7_1_10 - 420.0f*g16_14*t7_1_8 + 1800.0f*g16_23*t7_1_11 - 25200.0f*g16_23*t7_1_9 - 30.0f*g16_24*t7_1_11 + 420.0f*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.9145f*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.615242f*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.9145f*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.615242f*t7_1_3;
+            if (fabsf(dt2) > 1e-12f) {
+                c2 = (1163938.14f*c3*g16_13*s3 + 581969.071f*c3*g16_13 + 242.487113f*c3*g16_14*v1z - 10032000.0f*c3*g16_23 + 156000.0f*c3*g16_24*s3 + 20.0f*c3*g16_24*v1z + 167200.0f*c3*g16_24 + 14549.2268f*c3*g16_33*v1x - 9360000.0f*c3*t7_1_24 + 103.923048f*g16_13*g16_14*v1x + 1039.23048f*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.78f*g16_13*t7_1_25 - 8147567.0f*g16_13 + 692.820323f*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.783f*g16_14 + 103.923048f*g16_23*g16_24*v1x + 1392000.0f*g16_23*s3 - 1200.0f*g16_23*t7_1_17 + 1344000.0f*g16_23*t7_1_25 - 18000.0f*g16_23*v1z + 48000.0f*g16_23 + 280.0f*g16_24*s3*v1z - 23200.0f*g16_24*s3 - 22400.0f*g16_24*t7_1_25 + 300.0f*g16_24*v1z - 800.0f*g16_24 + 103.923048f*g16_33*g16_34*v1x + 17.3205081f*g16_34*s3*v1x + 69.2820323f*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0f*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.729f*v1x) / dt2;
+                s2 = (9360000.0f*c3*g16_13*s3 + 1200.0f*c3*g16_13*v1z + 10032000.0f*c3*g16_13 - 167200.0f*c3*g16_14 + 1163938.14f*c3*g16_23*s3 + 581969.071f*c3*g16_23 + 242.487113f*c3*g16_24*v1z + 14549.2268f*c3*g16_33*v1y - 156000.0f*c3*t7_1_19 + 103.923048f*g16_13*g16_14*v1y + 16800.0f*g16_13*s3*v1z - 1392000.0f*g16_13*s3 - 1344000.0f*g16_13*t7_1_25 + 18000.0f*g16_13*v1z - 48000.0f*g16_13 + 23200.0f*g16_14*s3 - 20.0f*g16_14*t7_1_17 + 22400.0f*g16_14*t7_1_25 - 300.0f*g16_14*v1z + 800.0f*g16_14 + 103.923048f*g16_23*g16_24*v1y + 1039.23048f*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.78f*g16_23*t7_1_25 - 8147567.0f*g16_23 + 692.820323f*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.783f*g16_24 + 103.923048f*g16_33*g16_34*v1y + 17.3205081f*g16_34*s3*v1y + 69.2820323f*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0f*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.729f*v1y) / dt2;
+                free2 = 0;
+                wk2 = 1.0f;
+            }
+        }
+        if (free2) {
+            const float t7_2_0 = c1*c3;
+            const float t7_2_1 = c1*s3;
+            const float t7_2_2 = c3*s1;
+            const float t7_2_3 = s1*s3;
+            const float t7_2_4 = c3*t7_2_1;
+            const float t7_2_5 = s3*t7_2_2;
+            const float t7_2_6 = s3*s3;
+            const float t7_2_7 = c1*t7_2_6;
+            const float t7_2_8 = s1*t7_2_6;
+            const float t7_2_9 = c3*wx;
+            const float t7_2_10 = s3*wx;
+            const float t7_2_11 = wx*wx;
+            const float t7_2_12 = 150.0f*s1;
+            const float t7_2_13 = wy*wy;
+            const float t7_2_14 = wz*wz;
+            const float t7_2_15 = 242.487113f*t7_2_0;
+            const float t7_2_16 = 17.3205081f*t7_2_1;
+            const float t7_2_17 = 10.0f*t7_2_2;
+            const float t7_2_18 = 140.0f*t7_2_3;
+            const float t7_2_19 = 300.0f*c1;
+            const float t7_2_20 = 121.243557f*t7_2_2;
+            const float t7_2_21 = 8.66025404f*t7_2_3;
+            const float t7_2_22 = 20.0f*t7_2_0;
+            const float t7_2_23 = 280.0f*t7_2_1;
+
+            dt2 = 77526594.1f*c1 + 7460000.0f*s1 + 6235382.91f*t7_2_0 + 87295360.7f*t7_2_1 + 600000.0f*t7_2_2 + 8400000.0f*t7_2_3 + 1454922.68f*t7_2_4 + 140000.0f*t7_2_5 + 10132497.2f*t7_2_7 + 975000.0f*t7_2_8;
+            if (fabsf(dt2) > 1e-13f) {
+                c2 = (-17784697.7f*c1 - 42023000.0f*s1 + 64927656.6f*t7_2_0 - 11949418.5f*t7_2_1 + 143760.217f*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0f*t7_2_2 - 70586000.0f*t7_2_3 + 42372891.0f*t7_2_4 + 21180000.0f*t7_2_5 + 7014805.77f*t7_2_7 - 29909000.0f*t7_2_8 + 34641.0162f*t7_2_9 + 155884.573f*wx) / dt2;
+                s2 = (-80146000.0f*c1 + 21068666.0f*s1 + 662000.0f*t7_2_0 - 126662000.0f*t7_2_1 - 37000.0f*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.4f*t7_2_2 + 3922229.05f*t7_2_3 + 8100000.0f*t7_2_4 - 26746328.6f*t7_2_5 - 48928000.0f*t7_2_7 - 18221174.5f*t7_2_8 + 124000.0f*t7_2_9 - 30000.0f*wx) / dt2;
+                free2 = 0;
+                wk2 = 0.1f;
+            }
+        }
+        if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
+            if (fabsf(dt2) > wk2) {
+                continue;
+            }
+            free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free2) {
+            th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+            c2 = cosf(th2);
+            s2 = sinf(th2);
+        } else {
+            th2 = canted6_ik_f32_atan2(s2, c2);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq2 = c2 * c2 + s2 * s2;
+                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                    const float hn2 = 1.0f / sqrtf(hq2);
+                    c2 = c2 * hn2;
+                    s2 = s2 * hn2;
+                }
+            }
+        }
+
+        /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+        const float t8_0 = 0.866025404f*c2;
+        const float t8_1 = 0.866025404f*s2;
+        const float t8_2 = 0.5f*c2;
+        const float t8_3 = 0.5f*s2;
+        const float g26_11 = c2*g16_11 + g16_21*s2;
+        const float g26_12 = c2*g16_12 + g16_22*s2;
+        const float g26_13 = c2*g16_13 + g16_23*s2;
+        const float g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5f*g16_31;
+        const float g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5f*g16_32;
+        const float g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5f*g16_33;
+        const float g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.866025404f*g16_31;
+        const float g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.866025404f*g16_32;
+        const float g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.866025404f*g16_33;
+
+        /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+        const float g36_11 = c3*g26_11 + g26_21*s3;
+        const float g36_12 = c3*g26_12 + g26_22*s3;
+        const float g36_13 = c3*g26_13 + g26_23*s3;
+        const float g36_31 = -c3*g26_21 + g26_11*s3;
+        const float g36_32 = -c3*g26_22 + g26_12*s3;
+        const float g36_33 = -c3*g26_23 + g26_13*s3;
+
+        /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+         * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float er5 = g26_33*g26_33 + g36_13*g36_13;
+
+        if (er5 + 2e-05f < 0.0f) {
+            continue;
+        }
+        const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        float th5, c5, s5;
+        const float cn5 = g36_33;
+        const float sn5 = root5;
+        th5 = canted6_ik_f32_atan2(sn5, cn5);
+        c5 = cn5;
+        s5 = sn5;
+
+        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+        int free4 = 1;
+        {
+
+            dt4 = -s5*s5;
+            if (fabsf(dt4) > 1e-20f) {
+                c4 = (-g36_13*s5) / dt4;
+                s4 = (-g26_33*s5) / dt4;
+                free4 = 0;
+                wk4 = 1e-08f;
+            }
+        }
+        if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+            if (fabsf(dt4) > wk4) {
+                continue;
+            }
+            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free4) {
+            th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
+            c4 = cosf(th4);
+            s4 = sinf(th4);
+        } else {
+            th4 = canted6_ik_f32_atan2(s4, c4);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq4 = c4 * c4 + s4 * s4;
+                if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                    const float hn4 = 1.0f / sqrtf(hq4);
+                    c4 = c4 * hn4;
+                    s4 = s4 * hn4;
+                }
+            }
+        }
+
+        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+        const float g46_11 = c4*g36_11 + g26_31*s4;
+        const float g46_12 = c4*g36_12 + g26_32*s4;
+
+        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+        const float g56_11 = c5*g46_11 - g36_31*s5;
+        const float g56_12 = c5*g46_12 - g36_32*s5;
+
+        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+        int free6 = 1;
+        {
+
+            dt6 = 1.0f;
+            c6 = (g56_11) / dt6;
+            s6 = (-g56_12) / dt6;
+            free6 = 0;
+        }
+        (void)free6;
+        (void)wk6;
+        if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+            continue;
+        }
+        th6 = canted6_ik_f32_atan2(s6, c6);
+
+        /* joint readings, configuration labels, singular flag */
+        /* read only by the labels, which this entry does not compute */
+        (void)c3;
+        (void)s3;
+        (void)s5;
+        (void)v1x;
+        (void)dbl3;
+        (void)cnd3;
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
+        const int fine = probe - probe == 0.0f;
+        {
+            float u1 = th1;
+            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            const float jv1 = u1 * 57.2957795f;
+            float u2 = th2;
+            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+            const float jv2 = u2 * 57.2957795f;
+            float u3 = th3;
+            u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+            const float jv3 = u3 * 57.2957795f;
+            float u4 = th4;
+            u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+            const float jv4 = u4 * 57.2957795f;
+            const float jv5 = th5 * 57.2957795f;
+            const float jv6 = th6 * 57.2957795f;
+            if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {
+                float *row = joints[count++];
+                row[0] = jv1;
+                row[1] = jv2;
+                row[2] = jv3;
+                row[3] = jv4;
+                row[4] = jv5;
+                row[5] = jv6;
+            }
+        }
+        if (root5 > 0.0f && !free4) {
+            {
+                float u1 = th1;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                const float jv1 = u1 * 57.2957795f;
+                float u2 = th2;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                const float jv2 = u2 * 57.2957795f;
+                float u3 = th3;
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                const float jv3 = u3 * 57.2957795f;
+                float u4 = th4 + 3.14159265f;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                const float jv4 = u4 * 57.2957795f;
+                float u5 = -th5;
+                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                const float jv5 = u5 * 57.2957795f;
+                float u6 = th6 + 3.14159265f;
+                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                const float jv6 = u6 * 57.2957795f;
+                if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {
+                    float *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
                 }
             }
         }

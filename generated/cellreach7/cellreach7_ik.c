@@ -115,6 +115,14 @@ static const double LIMIT_HIGH[CELLREACH7_IK_JOINTS] = { 165.0, 115.0, 165.0, 12
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -612,6 +620,405 @@ static int closed_form(const double pose[16], double given, const double *curren
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? CELLREACH7_IK_OK : CELLREACH7_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int cellreach7_ik_inverse_joints(const double pose[16], double given, const double *current,
+                    double joints[CELLREACH7_IK_MAX_SOLUTIONS][CELLREACH7_IK_JOINTS])
+{
+    cellreach7_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!(given - given == 0.0)) {
+        if (status) *status = CELLREACH7_IK_INVALID_INPUT;
+        return 0;
+    }
+    if (!valid_pose(pose)) {
+        if (status) *status = CELLREACH7_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = px - 134.0*r13;
+    const double pcy = py - 134.0*r23;
+    const double pcz = pz - 134.0*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const double wx = pcx - 96.0*r13;
+    const double wy = pcy - 96.0*r23;
+    const double wz = pcz - 96.0*r33;
+
+    /* joint 3 'upper_roll' is given: its DH variable from the caller's reading */
+    const double th3 = 0.017453292519943295*given;
+    const double c3 = cos(th3);
+    const double s3 = sin(th3);
+
+    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double g17_24 = 322.0 - pcz;
+    const double v1y = 322.0 - wz;
+
+    /* th4: squared norm of A1^-1 w = A2 A3 A4 c4
+     * a*cos(th4) + b*sin(th4) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t5_0 = wx*wx + wy*wy + wz*wz - 644.0*wz;
+    const double ec4 = t5_0 - 206925.0;
+    const double er4 = (515685.0 - t5_0)*(t5_0 + 101835.0);
+
+    if (er4 + 190.6654752 < 0.0) {
+        if (status) *status = CELLREACH7_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root4 = er4 > 0.0 ? sqrt(er4) : 0.0;
+    const double dl4 = cellreach7_ik_atan2(root4, ec4);   /* th = gamma + sg * dl */
+    const int n4 = (root4 == 0.0) ? 1 : 2;
+    for (int k4 = 0; k4 < n4; ++k4) {
+        const double sg4 = k4 ? -1.0 : 1.0;
+        double th4, c4, s4;
+        const double cn4 = 308760.0*ec4;
+        const double sn4 = 308760.0*root4*sg4;
+        th4 = 0.0 + sg4 * dl4;
+        c4 = 1.0489576038357677e-11*cn4;
+        s4 = 1.0489576038357677e-11*sn4;
+
+        /* th1: z of A1^-1 w = A2 A3 A4 c4
+         * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double t6_0 = wx*wx + wy*wy;
+        const double ec1 = 372.0*s3*s4;
+        const double er1 = -138384.0*s3*s3*s4*s4 + t6_0;
+
+        const int free1 = t6_0 <= 9.9999999999999988e-16;
+        if (free1 ? ec1*ec1 > 9.9999999999999988e-16 : er1 + 2.0000000000000001e-09*t6_0 < 0.0) {
+            continue;
+        }
+        const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+        const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+        for (int k1 = 0; k1 < n1; ++k1) {
+            const double sg1 = k1 ? -1.0 : 1.0;
+            double th1, c1, s1;
+            if (free1) {
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+                c1 = cos(th1);
+                s1 = sin(th1);
+            } else {
+                const double cn1 = ec1*wy + root1*sg1*wx;
+                const double sn1 = -ec1*wx + root1*sg1*wy;
+                th1 = cellreach7_ik_atan2(sn1, cn1);
+                c1 = cn1/t6_0;
+                s1 = sn1/t6_0;
+
+            }
+
+            /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const double g17_11 = c1*r11 + r21*s1;
+            const double g17_12 = c1*r12 + r22*s1;
+            const double g17_13 = c1*r13 + r23*s1;
+            const double g17_14 = c1*pcx + pcy*s1;
+            const double g17_31 = c1*r21 - r11*s1;
+            const double g17_32 = c1*r22 - r12*s1;
+            const double g17_33 = c1*r23 - r13*s1;
+            const double g17_34 = c1*pcy - pcx*s1;
+
+            /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+            const double v1x = c1*wx + s1*wy;
+
+            /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            int free2 = 1;
+            {
+                const double t9_0_0 = 372.0*c4;
+
+                dt2 = v1x*v1x + v1y*v1y;
+                if (fabs(dt2) > 9.9999999999999988e-16) {
+                    c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2;
+                    s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2;
+                    free2 = 0;
+                    wk2 = 0.0009999999999999998;
+                }
+            }
+            if (free2) {
+                const double t9_1_0 = g17_14*v1x;
+                const double t9_1_1 = g17_24*v1y;
+                const double t9_1_2 = 744.0*c4;
+                const double t9_1_3 = c3*s4;
+                const double t9_1_4 = 308760.0*c4;
+                const double t9_1_5 = g17_14*g17_14;
+                const double t9_1_6 = g17_24*g17_24;
+                const double t9_1_7 = g17_34*g17_34;
+                const double t9_1_8 = 308760.0*t9_1_3;
+                const double t9_1_9 = 192.0*v1y;
+                const double t9_1_10 = g17_13*g17_13;
+                const double t9_1_11 = 9216.0*v1y;
+                const double t9_1_12 = s4*s4;
+                const double t9_1_13 = 26569728.0*t9_1_12;
+                const double t9_1_14 = -r33*t9_1_13;
+                const double t9_1_15 = r33*r33;
+                const double t9_1_16 = 276768.0*t9_1_12;
+                const double t9_1_17 = g17_24*t9_1_16;
+                const double t9_1_18 = g17_33*g17_33;
+                const double t9_1_19 = c4*t9_1_3;
+                const double t9_1_20 = 276768.0*t9_1_19;
+                const double t9_1_21 = s3*s4;
+                const double t9_1_22 = t9_1_21*v1y;
+                const double t9_1_23 = s3*s3;
+                const double t9_1_24 = 9216.0*v1x;
+
+                dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1;
+                if (fabs(dt2) > 9.9999999999999998e-13) {
+                    c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2;
+                    s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2;
+                    free2 = 0;
+                    wk2 = 1.0;
+                }
+            }
+            if (free2) {
+                const double t9_2_0 = -g17_11*r32;
+                const double t9_2_1 = -g17_12*r31;
+                const double t9_2_2 = 308760.0*c4;
+                const double t9_2_3 = 138384.0*s4*s4;
+                const double t9_2_4 = s3*s3*t9_2_3;
+                const double t9_2_5 = 415.0*g17_24;
+                const double t9_2_6 = 415.0*g17_34;
+                const double t9_2_7 = g17_11*g17_32;
+                const double t9_2_8 = g17_31*t9_2_6;
+                const double t9_2_9 = 372.0*c4;
+                const double t9_2_10 = g17_24*t9_2_9;
+                const double t9_2_11 = g17_34*t9_2_9;
+                const double t9_2_12 = g17_12*g17_31;
+                const double t9_2_13 = s3*s4;
+                const double t9_2_14 = 154380.0*t9_2_13;
+                const double t9_2_15 = 372.0*s4;
+                const double t9_2_16 = c3*t9_2_15;
+                const double t9_2_17 = g17_14*t9_2_16;
+                const double t9_2_18 = -g17_32*r31;
+                const double t9_2_19 = g17_34*t9_2_16;
+                const double t9_2_20 = -g17_31*r32;
+                const double t9_2_21 = c3*t9_2_20;
+                const double t9_2_22 = 138384.0*c4*t9_2_13;
+                const double t9_2_23 = s3*t9_2_3;
+                const double t9_2_24 = c3*t9_2_23;
+                const double t9_2_25 = 415.0*g17_14;
+                const double t9_2_26 = g17_14*t9_2_9;
+                const double t9_2_27 = g17_24*t9_2_16;
+
+                dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1;
+                if (fabs(dt2) > 9.9999999999999988e-16) {
+                    c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2;
+                    s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
+                    free2 = 0;
+                    wk2 = 0.0009999999999999998;
+                }
+            }
+            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
+                if (fabs(dt2) > wk2) {
+                    continue;
+                }
+                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free2) {
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                c2 = cos(th2);
+                s2 = sin(th2);
+            } else {
+                th2 = cellreach7_ik_atan2(s2, c2);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq2 = c2 * c2 + s2 * s2;
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn2 = 1.0 / sqrt(hq2);
+                        c2 = c2 * hn2;
+                        s2 = s2 * hn2;
+                    }
+                }
+            }
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double g27_11 = c2*g17_11 - r31*s2;
+            const double g27_12 = c2*g17_12 - r32*s2;
+            const double g27_13 = c2*g17_13 - r33*s2;
+            const double g27_31 = c2*r31 + g17_11*s2;
+            const double g27_32 = c2*r32 + g17_12*s2;
+            const double g27_33 = c2*r33 + g17_13*s2;
+
+            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+            const double g37_11 = c3*g27_11 + g17_31*s3;
+            const double g37_12 = c3*g27_12 + g17_32*s3;
+            const double g37_13 = c3*g27_13 + g17_33*s3;
+            const double g37_31 = c3*g17_31 - g27_11*s3;
+            const double g37_32 = c3*g17_32 - g27_12*s3;
+            const double g37_33 = c3*g17_33 - g27_13*s3;
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const double g47_11 = c4*g37_11 - g27_31*s4;
+            const double g47_12 = c4*g37_12 - g27_32*s4;
+            const double g47_13 = c4*g37_13 - g27_33*s4;
+            const double g47_31 = c4*g27_31 + g37_11*s4;
+            const double g47_32 = c4*g27_32 + g37_12*s4;
+            const double g47_33 = c4*g27_33 + g37_13*s4;
+
+            /* th6: entry (3,3) A4^-1 A3^-1 A2^-1 A1^-1 T A7^-1 = A5 A6
+             * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const double er6 = g37_33*g37_33 + g47_13*g47_13;
+
+            if (er6 + 2.0000000000000001e-09 < 0.0) {
+                continue;
+            }
+            const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            double th6, c6, s6;
+            const double cn6 = g47_33;
+            const double sn6 = root6;
+            th6 = cellreach7_ik_atan2(sn6, cn6);
+            c6 = cn6;
+            s6 = sn6;
+
+            /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+            int free5 = 1;
+            {
+
+                dt5 = -s6*s6;
+                if (fabs(dt5) > 9.9999999999999995e-21) {
+                    c5 = (-g47_13*s6) / dt5;
+                    s5 = (-g37_33*s6) / dt5;
+                    free5 = 0;
+                    wk5 = 1e-08;
+                }
+            }
+            if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
+                if (fabs(dt5) > wk5) {
+                    continue;
+                }
+                free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free5) {
+                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+                c5 = cos(th5);
+                s5 = sin(th5);
+            } else {
+                th5 = cellreach7_ik_atan2(s5, c5);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq5 = c5 * c5 + s5 * s5;
+                    if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn5 = 1.0 / sqrt(hq5);
+                        c5 = c5 * hn5;
+                        s5 = s5 * hn5;
+                    }
+                }
+            }
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const double g57_11 = c5*g47_11 + g37_31*s5;
+            const double g57_12 = c5*g47_12 + g37_32*s5;
+
+            /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
+            const double g67_11 = c6*g57_11 - g47_31*s6;
+            const double g67_12 = c6*g57_12 - g47_32*s6;
+
+            /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th7, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
+            int free7 = 1;
+            {
+
+                dt7 = 1.0;
+                c7 = (g67_11) / dt7;
+                s7 = (-g67_12) / dt7;
+                free7 = 0;
+            }
+            (void)free7;
+            (void)wk7;
+            if (fabs(c7 * c7 + s7 * s7 - 1.0) > 0.0001) {
+                continue;
+            }
+            th7 = cellreach7_ik_atan2(s7, c7);
+
+            /* joint readings, configuration labels, singular flag */
+            /* read only by the labels, which this entry does not compute */
+            (void)s2;
+            (void)s4;
+            (void)s6;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
+            const int fine = probe - probe == 0.0;
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                const double jv3 = given;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 57.295779513082323;
+                double u5 = th5;
+                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                const double jv5 = u5 * 57.295779513082323;
+                const double jv6 = th6 * 57.295779513082323;
+                const double jv7 = th7 * 57.295779513082323;
+                if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                    row[6] = jv7;
+                }
+            }
+            if (root6 > 0.0 && !free5) {
+                {
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    const double jv1 = u1 * 57.295779513082323;
+                    double u2 = th2;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    const double jv2 = u2 * 57.295779513082323;
+                    const double jv3 = given;
+                    double u4 = th4;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    const double jv4 = u4 * 57.295779513082323;
+                    double u5 = th5 + 3.1415926535897931;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    const double jv5 = u5 * 57.295779513082323;
+                    double u6 = -th6;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    const double jv6 = u6 * 57.295779513082323;
+                    double u7 = th7 + 3.1415926535897931;
+                    u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : (u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7);
+                    const double jv7 = u7 * 57.295779513082323;
+                    if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
+                        double *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
+                        row[6] = jv7;
                     }
                 }
             }

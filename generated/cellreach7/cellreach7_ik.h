@@ -93,6 +93,13 @@ int cellreach7_ik_inverse_rp(const double position[3], const double rotation[9],
                     cellreach7_ik_solution solutions[CELLREACH7_IK_MAX_SOLUTIONS],
                     cellreach7_ik_status *status);
 
+/* The readings of every closed-form solution and nothing else, in the order of _inverse with
+ * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
+ * call. Writes at most CELLREACH7_IK_MAX_SOLUTIONS rows and returns their number; 0 when the pose
+ * is out of reach or invalid (use _inverse for the status). */
+int cellreach7_ik_inverse_joints(const double pose[16], double given, const double *current,
+                    double joints[CELLREACH7_IK_MAX_SOLUTIONS][CELLREACH7_IK_JOINTS]);
+
 /* sqrt(sum_j w_j (a_j - b_j)^2) in reading units; `weights` may be NULL (all 1). */
 double cellreach7_ik_distance(const double a[CELLREACH7_IK_JOINTS], const double b[CELLREACH7_IK_JOINTS],
                     const double *weights);

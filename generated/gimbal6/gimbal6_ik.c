@@ -315,6 +315,14 @@ static const int MULTI[GIMBAL6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -746,6 +754,331 @@ static int closed_form(const double pose[16], const double *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
+                }
+            }
+        }
+
+    }
+    if (status) *status = count ? GIMBAL6_IK_OK : GIMBAL6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[GIMBAL6_IK_MAX_SOLUTIONS][GIMBAL6_IK_JOINTS])
+{
+    gimbal6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = GIMBAL6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* base centre (where axes 1, 2, 3 meet) seen from the last DH frame: T^-1 b0 */
+    const double bx = -px*r11 - py*r21 - pz*r31 + 0.29999999999999999*r31;
+    const double by = -px*r12 - py*r22 - pz*r32 + 0.29999999999999999*r32;
+    const double bz = -px*r13 - py*r23 - pz*r33 + 0.29999999999999999*r33;
+
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double e1z = bz + 0.10000000000000001;
+
+    /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
+     * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
+    const double t2_0 = bx*by;
+    const double t2_1 = bx*bx;
+    const double t2_2 = by*by;
+    const double t2_3 = bz*bz;
+    const double t2_4 = 0.29999999999999999*bz;
+    const double t2_5 = 1.5*t2_1;
+    const double t2_6 = 0.029999999999999999*bz;
+    const double t2_7 = 0.017999999999999999*bz;
+    const double t2_8 = bx*bx*bx;
+    const double t2_9 = by*by*by;
+    const double t2_10 = 0.14999999999999999*bx;
+    const double t2_11 = 0.089999999999999997*by;
+    const double t2_12 = 0.089999999999999997*bx;
+    const double t2_13 = 0.14999999999999999*by;
+    const double ek0_6 = 0.75*bx*bx*bx*bx + 0.75*by*by*by*by + 0.75*bz*bz*bz*bz + 0.29999999999999999*bz*bz*bz - 0.027480000000000001*bz + 0.0089999999999999993*t2_0 + t2_1*t2_4 - 0.12989999999999999*t2_1 + 1.5*t2_2*t2_3 + t2_2*t2_4 + t2_2*t2_5 + 0.0253*t2_2 + t2_3*t2_5 - 0.1074*t2_3 - 0.00072307999999999997;
+    const double ek1_6 = bx*t2_6 - 0.01374*bx + by*t2_7 + 0.0093559999999999997*by + t2_1*t2_11 + t2_10*t2_2 + t2_10*t2_3 + t2_11*t2_3 + 0.14999999999999999*t2_8 + 0.089999999999999997*t2_9;
+    const double ek2_6 = bx*t2_7 + 0.0093559999999999997*bx - by*t2_6 + 0.01374*by - t2_1*t2_13 + t2_12*t2_2 + t2_12*t2_3 - t2_13*t2_3 + 0.089999999999999997*t2_8 - 0.14999999999999999*t2_9;
+    const double ek3_6 = 0.31040000000000001*t2_0 + 0.0089999999999999993*t2_1 - 0.0089999999999999993*t2_2;
+    const double ek4_6 = -0.017999999999999999*t2_0 + 0.1552*t2_1 - 0.1552*t2_2;
+
+    double rt6[4], rc6[4], rs6[4], rk6[4];
+    int rd6[4], n6;
+    const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
+    if (free6) {
+        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+        rc6[0] = cos(rt6[0]);
+        rs6[0] = sin(rt6[0]);
+        rd6[0] = 0;
+        rk6[0] = 0.0;
+        n6 = 1;
+    } else {
+        n6 = ik_circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1.0000000000000001e-09,
+                                   rt6, rc6, rs6, rd6, rk6);
+    }
+    for (int k6 = 0; k6 < n6; ++k6) {
+        const double th6 = rt6[k6];
+        const double c6 = rc6[k6];
+        const double s6 = rs6[k6];
+        const int dbl6 = rd6[k6];
+        const double cnd6 = rk6[k6];
+        /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) */
+        const double e1x = bx*c6 - by*s6;
+        const double e1y = bx*s6 + by*c6;
+
+        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        int free4 = 1;
+        {
+
+            dt4 = -0.021650635094610966;
+            c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4;
+            s4 = (-0.10000000000000001*e1y - 0.0054999999999999997) / dt4;
+            free4 = 0;
+        }
+        (void)free4;
+        (void)wk4;
+        if (fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            continue;
+        }
+        th4 = gimbal6_ik_atan2(s4, c4);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const double hq4 = c4 * c4 + s4 * s4;
+            if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
+                const double hn4 = 1.0 / sqrt(hq4);
+                c4 = c4 * hn4;
+                s4 = s4 * hn4;
+            }
+        }
+
+        /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+        int free5 = 1;
+        {
+            const double t5_0_0 = 0.125*s4;
+
+            dt5 = -e1x*e1x - 0.10000000000000001*e1x - e1z*e1z - 0.0025000000000000001;
+            if (fabs(dt5) > 9.9999999999999991e-22) {
+                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + e1z*t5_0_0 + 0.043301270189221933*e1z + 0.01) / dt5;
+                s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.043301270189221933*e1x + 0.20000000000000001*e1z - 0.0062500000000000003*s4 - 0.0021650635094610966) / dt5;
+                free5 = 0;
+                wk5 = 9.9999999999999986e-10;
+            }
+        }
+        if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
+            if (fabs(dt5) > wk5) {
+                continue;
+            }
+            free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free5) {
+            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+            c5 = cos(th5);
+            s5 = sin(th5);
+        } else {
+            th5 = gimbal6_ik_atan2(s5, c5);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq5 = c5 * c5 + s5 * s5;
+                if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+                    const double hn5 = 1.0 / sqrt(hq5);
+                    c5 = c5 * hn5;
+                    s5 = s5 * hn5;
+                }
+            }
+        }
+
+        /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
+        const double g05_11 = c6*r11 - r12*s6;
+        const double g05_12 = c6*r12 + r11*s6;
+        const double g05_21 = c6*r21 - r22*s6;
+        const double g05_22 = c6*r22 + r21*s6;
+        const double g05_31 = c6*r31 - r32*s6;
+        const double g05_32 = c6*r32 + r31*s6;
+
+        /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
+        const double g04_11 = c5*g05_11 + r13*s5;
+        const double g04_12 = -c5*r13 + g05_11*s5;
+        const double g04_21 = c5*g05_21 + r23*s5;
+        const double g04_22 = -c5*r23 + g05_21*s5;
+        const double g04_31 = c5*g05_31 + r33*s5;
+        const double g04_32 = -c5*r33 + g05_31*s5;
+
+        /* T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one) */
+        const double t8_0 = 0.5*g04_12;
+        const double t8_1 = 0.8660254037844386*g05_12;
+        const double t8_2 = 0.5*g04_22;
+        const double t8_3 = 0.8660254037844386*g05_22;
+        const double t8_4 = 0.5*g04_32;
+        const double t8_5 = 0.8660254037844386*g05_32;
+        const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
+        const double g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
+        const double g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12;
+        const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
+        const double g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
+        const double g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22;
+        const double g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
+        const double g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4;
+        const double g03_33 = -0.8660254037844386*g04_32 + 0.5*g05_32;
+
+        /* th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33;
+        const double er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33);
+
+        if (er2 + 2.0000000000000001e-09 < 0.0) {
+            continue;
+        }
+        const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        double th2, c2, s2;
+        const double cn2 = ec2;
+        const double sn2 = root2;
+        th2 = gimbal6_ik_atan2(sn2, cn2);
+        c2 = cn2;
+        s2 = sn2;
+
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        int free1 = 1;
+        {
+
+            dt1 = s2*s2;
+            if (fabs(dt1) > 9.9999999999999995e-21) {
+                c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1;
+                s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1;
+                free1 = 0;
+                wk1 = 1e-08;
+            }
+        }
+        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
+            if (fabs(dt1) > wk1) {
+                continue;
+            }
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            th1 = gimbal6_ik_atan2(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const double hq1 = c1 * c1 + s1 * s1;
+                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+                    const double hn1 = 1.0 / sqrt(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
+        }
+
+        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
+        const double g13_11 = c1*g03_11 + g03_21*s1;
+        const double g13_12 = c1*g03_12 + g03_22*s1;
+
+        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
+        const double g23_11 = c2*g13_11 + g03_31*s2;
+        const double g23_12 = c2*g13_12 + g03_32*s2;
+
+        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
+        int free3 = 1;
+        {
+
+            dt3 = 0.8660254037844386;
+            c3 = (0.8660254037844386*g23_11) / dt3;
+            s3 = (-g23_12) / dt3;
+            free3 = 0;
+        }
+        (void)free3;
+        (void)wk3;
+        if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
+            continue;
+        }
+        th3 = gimbal6_ik_atan2(s3, c3);
+
+        /* joint readings, configuration labels, singular flag */
+        /* read only by the labels, which this entry does not compute */
+        (void)s2;
+        (void)s5;
+        (void)dbl6;
+        (void)cnd6;
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
+        const int fine = probe - probe == 0.0;
+        {
+            double u1 = th1;
+            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            const double jv1 = u1 * 57.295779513082323;
+            const double jv2 = th2 * 57.295779513082323;
+            const double jv3 = th3 * 57.295779513082323;
+            const double jv4 = th4 * 57.295779513082323;
+            double u5 = th5;
+            u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+            const double jv5 = u5 * 57.295779513082323;
+            double u6 = th6;
+            u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+            const double jv6 = u6 * 57.295779513082323;
+            if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
+                double *row = joints[count++];
+                row[0] = jv1;
+                row[1] = jv2;
+                row[2] = jv3;
+                row[3] = jv4;
+                row[4] = jv5;
+                row[5] = jv6;
+            }
+        }
+        if (root2 > 0.0 && !free1) {
+            {
+                double u1 = th1 + 3.1415926535897931;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = -th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                double u3 = th3 + 3.1415926535897931;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                const double jv3 = u3 * 57.295779513082323;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 57.295779513082323;
+                double u5 = th5;
+                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                const double jv5 = u5 * 57.295779513082323;
+                double u6 = th6;
+                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                const double jv6 = u6 * 57.295779513082323;
+                if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
                 }
             }
         }

@@ -284,6 +284,14 @@ static const int MULTI[GIMBAL6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -715,6 +723,331 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]) & (jv6 >= LOW[5]) & (jv6 <= HIGH[5]);
+                }
+            }
+        }
+
+    }
+    if (status) *status = count ? GIMBAL6_IK_F32_OK : GIMBAL6_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int gimbal6_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[GIMBAL6_IK_F32_MAX_SOLUTIONS][GIMBAL6_IK_F32_JOINTS])
+{
+    gimbal6_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float r11 = pose[0];
+    const float r12 = pose[1];
+    const float r13 = pose[2];
+    const float px = pose[3];
+    const float r21 = pose[4];
+    const float r22 = pose[5];
+    const float r23 = pose[6];
+    const float py = pose[7];
+    const float r31 = pose[8];
+    const float r32 = pose[9];
+    const float r33 = pose[10];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = GIMBAL6_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* base centre (where axes 1, 2, 3 meet) seen from the last DH frame: T^-1 b0 */
+    const float bx = -px*r11 - py*r21 - pz*r31 + 0.3f*r31;
+    const float by = -px*r12 - py*r22 - pz*r32 + 0.3f*r32;
+    const float bz = -px*r13 - py*r23 - pz*r33 + 0.3f*r33;
+
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float e1z = bz + 0.1f;
+
+    /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
+     * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
+    const float t2_0 = bx*by;
+    const float t2_1 = bx*bx;
+    const float t2_2 = by*by;
+    const float t2_3 = bz*bz;
+    const float t2_4 = 0.3f*bz;
+    const float t2_5 = 1.5f*t2_1;
+    const float t2_6 = 0.03f*bz;
+    const float t2_7 = 0.018f*bz;
+    const float t2_8 = bx*bx*bx;
+    const float t2_9 = by*by*by;
+    const float t2_10 = 0.15f*bx;
+    const float t2_11 = 0.09f*by;
+    const float t2_12 = 0.09f*bx;
+    const float t2_13 = 0.15f*by;
+    const float ek0_6 = 0.75f*bx*bx*bx*bx + 0.75f*by*by*by*by + 0.75f*bz*bz*bz*bz + 0.3f*bz*bz*bz - 0.02748f*bz + 0.009f*t2_0 + t2_1*t2_4 - 0.1299f*t2_1 + 1.5f*t2_2*t2_3 + t2_2*t2_4 + t2_2*t2_5 + 0.0253f*t2_2 + t2_3*t2_5 - 0.1074f*t2_3 - 0.00072308f;
+    const float ek1_6 = bx*t2_6 - 0.01374f*bx + by*t2_7 + 0.009356f*by + t2_1*t2_11 + t2_10*t2_2 + t2_10*t2_3 + t2_11*t2_3 + 0.15f*t2_8 + 0.09f*t2_9;
+    const float ek2_6 = bx*t2_7 + 0.009356f*bx - by*t2_6 + 0.01374f*by - t2_1*t2_13 + t2_12*t2_2 + t2_12*t2_3 - t2_13*t2_3 + 0.09f*t2_8 - 0.15f*t2_9;
+    const float ek3_6 = 0.3104f*t2_0 + 0.009f*t2_1 - 0.009f*t2_2;
+    const float ek4_6 = -0.018f*t2_0 + 0.1552f*t2_1 - 0.1552f*t2_2;
+
+    float rt6[4], rc6[4], rs6[4], rk6[4];
+    int rd6[4], n6;
+    const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24f;
+    if (free6) {
+        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
+        rc6[0] = cosf(rt6[0]);
+        rs6[0] = sinf(rt6[0]);
+        rd6[0] = 0;
+        rk6[0] = 0.0f;
+        n6 = 1;
+    } else {
+        n6 = ik_circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-05f,
+                                   rt6, rc6, rs6, rd6, rk6);
+    }
+    for (int k6 = 0; k6 < n6; ++k6) {
+        const float th6 = rt6[k6];
+        const float c6 = rc6[k6];
+        const float s6 = rs6[k6];
+        const int dbl6 = rd6[k6];
+        const float cnd6 = rk6[k6];
+        /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) */
+        const float e1x = bx*c6 - by*s6;
+        const float e1y = bx*s6 + by*c6;
+
+        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+        int free4 = 1;
+        {
+
+            dt4 = -0.0216506351f;
+            c4 = (-0.216506351f*e1x*e1x - 0.0216506351f*e1x - 0.216506351f*e1y*e1y - 0.0129903811f*e1y - 0.216506351f*e1z*e1z + 0.0219970453f) / dt4;
+            s4 = (-0.1f*e1y - 0.0055f) / dt4;
+            free4 = 0;
+        }
+        (void)free4;
+        (void)wk4;
+        if (fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+            continue;
+        }
+        th4 = gimbal6_ik_f32_atan2(s4, c4);
+        /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+         * (elsewhere it is 1 to rounding, and the test is all it costs) */
+        {
+            const float hq4 = c4 * c4 + s4 * s4;
+            if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                const float hn4 = 1.0f / sqrtf(hq4);
+                c4 = c4 * hn4;
+                s4 = s4 * hn4;
+            }
+        }
+
+        /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th5, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
+        int free5 = 1;
+        {
+            const float t5_0_0 = 0.125f*s4;
+
+            dt5 = -e1x*e1x - 0.1f*e1x - e1z*e1z - 0.0025f;
+            if (fabsf(dt5) > 1e-21f) {
+                c5 = (0.25f*c4*e1x + 0.0125f*c4 + 0.2f*e1x + e1z*t5_0_0 + 0.0433012702f*e1z + 0.01f) / dt5;
+                s5 = (0.25f*c4*e1z - e1x*t5_0_0 - 0.0433012702f*e1x + 0.2f*e1z - 0.00625f*s4 - 0.00216506351f) / dt5;
+                free5 = 0;
+                wk5 = 1e-09f;
+            }
+        }
+        if (!free5 && fabsf(c5 * c5 + s5 * s5 - 1.0f) > 0.005f) {
+            if (fabsf(dt5) > wk5) {
+                continue;
+            }
+            free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free5) {
+            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? current[4] : 0.0f));
+            c5 = cosf(th5);
+            s5 = sinf(th5);
+        } else {
+            th5 = gimbal6_ik_f32_atan2(s5, c5);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq5 = c5 * c5 + s5 * s5;
+                if (fabsf(hq5 - 1.0f) > 1e-06f) {
+                    const float hn5 = 1.0f / sqrtf(hq5);
+                    c5 = c5 * hn5;
+                    s5 = s5 * hn5;
+                }
+            }
+        }
+
+        /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
+        const float g05_11 = c6*r11 - r12*s6;
+        const float g05_12 = c6*r12 + r11*s6;
+        const float g05_21 = c6*r21 - r22*s6;
+        const float g05_22 = c6*r22 + r21*s6;
+        const float g05_31 = c6*r31 - r32*s6;
+        const float g05_32 = c6*r32 + r31*s6;
+
+        /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
+        const float g04_11 = c5*g05_11 + r13*s5;
+        const float g04_12 = -c5*r13 + g05_11*s5;
+        const float g04_21 = c5*g05_21 + r23*s5;
+        const float g04_22 = -c5*r23 + g05_21*s5;
+        const float g04_31 = c5*g05_31 + r33*s5;
+        const float g04_32 = -c5*r33 + g05_31*s5;
+
+        /* T A6^-1 A5^-1 A4^-1: the known side with joints 4, 5, 6 moved over (times A4^-1 the previous one) */
+        const float t8_0 = 0.5f*g04_12;
+        const float t8_1 = 0.866025404f*g05_12;
+        const float t8_2 = 0.5f*g04_22;
+        const float t8_3 = 0.866025404f*g05_22;
+        const float t8_4 = 0.5f*g04_32;
+        const float t8_5 = 0.866025404f*g05_32;
+        const float g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
+        const float g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
+        const float g03_13 = -0.866025404f*g04_12 + 0.5f*g05_12;
+        const float g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
+        const float g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
+        const float g03_23 = -0.866025404f*g04_22 + 0.5f*g05_22;
+        const float g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
+        const float g03_32 = c4*t8_4 + c4*t8_5 + g04_31*s4;
+        const float g03_33 = -0.866025404f*g04_32 + 0.5f*g05_32;
+
+        /* th2: entry (3,3) T A6^-1 A5^-1 A4^-1 A3^-1 = A1 A2
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float ec2 = 0.5f*g03_32 + 0.866025404f*g03_33;
+        const float er2 = g03_31*g03_31 + (-0.866025404f*g03_32 + 0.5f*g03_33)*(-0.866025404f*g03_32 + 0.5f*g03_33);
+
+        if (er2 + 2e-05f < 0.0f) {
+            continue;
+        }
+        const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
+        /* the second root follows from this one by symmetry (emitted with the solution below) */
+        float th2, c2, s2;
+        const float cn2 = ec2;
+        const float sn2 = root2;
+        th2 = gimbal6_ik_f32_atan2(sn2, cn2);
+        c2 = cn2;
+        s2 = sn2;
+
+        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
+        int free1 = 1;
+        {
+
+            dt1 = s2*s2;
+            if (fabsf(dt1) > 1e-20f) {
+                c1 = (-s2*(0.5f*g03_12 + 0.866025404f*g03_13)) / dt1;
+                s1 = (-s2*(0.5f*g03_22 + 0.866025404f*g03_23)) / dt1;
+                free1 = 0;
+                wk1 = 1e-08f;
+            }
+        }
+        if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
+            if (fabsf(dt1) > wk1) {
+                continue;
+            }
+            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+        }
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            th1 = gimbal6_ik_f32_atan2(s1, c1);
+            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+             * (elsewhere it is 1 to rounding, and the test is all it costs) */
+            {
+                const float hq1 = c1 * c1 + s1 * s1;
+                if (fabsf(hq1 - 1.0f) > 1e-06f) {
+                    const float hn1 = 1.0f / sqrtf(hq1);
+                    c1 = c1 * hn1;
+                    s1 = s1 * hn1;
+                }
+            }
+        }
+
+        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
+        const float g13_11 = c1*g03_11 + g03_21*s1;
+        const float g13_12 = c1*g03_12 + g03_22*s1;
+
+        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
+        const float g23_11 = c2*g13_11 + g03_31*s2;
+        const float g23_12 = c2*g13_12 + g03_32*s2;
+
+        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        float th3, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
+        int free3 = 1;
+        {
+
+            dt3 = 0.866025404f;
+            c3 = (0.866025404f*g23_11) / dt3;
+            s3 = (-g23_12) / dt3;
+            free3 = 0;
+        }
+        (void)free3;
+        (void)wk3;
+        if (fabsf(c3 * c3 + s3 * s3 - 1.0f) > 0.005f) {
+            continue;
+        }
+        th3 = gimbal6_ik_f32_atan2(s3, c3);
+
+        /* joint readings, configuration labels, singular flag */
+        /* read only by the labels, which this entry does not compute */
+        (void)s2;
+        (void)s5;
+        (void)dbl6;
+        (void)cnd6;
+        /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+         * mirrored solution's values follow from these) */
+        const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
+        const int fine = probe - probe == 0.0f;
+        {
+            float u1 = th1;
+            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            const float jv1 = u1 * 57.2957795f;
+            const float jv2 = th2 * 57.2957795f;
+            const float jv3 = th3 * 57.2957795f;
+            const float jv4 = th4 * 57.2957795f;
+            float u5 = th5;
+            u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+            const float jv5 = u5 * 57.2957795f;
+            float u6 = th6;
+            u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+            const float jv6 = u6 * 57.2957795f;
+            if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
+                float *row = joints[count++];
+                row[0] = jv1;
+                row[1] = jv2;
+                row[2] = jv3;
+                row[3] = jv4;
+                row[4] = jv5;
+                row[5] = jv6;
+            }
+        }
+        if (root2 > 0.0f && !free1) {
+            {
+                float u1 = th1 + 3.14159265f;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                const float jv1 = u1 * 57.2957795f;
+                float u2 = -th2;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                const float jv2 = u2 * 57.2957795f;
+                float u3 = th3 + 3.14159265f;
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                const float jv3 = u3 * 57.2957795f;
+                float u4 = th4;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                const float jv4 = u4 * 57.2957795f;
+                float u5 = th5;
+                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                const float jv5 = u5 * 57.2957795f;
+                float u6 = th6;
+                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                const float jv6 = u6 * 57.2957795f;
+                if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
+                    float *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
                 }
             }
         }

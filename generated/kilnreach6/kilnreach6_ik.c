@@ -112,6 +112,14 @@ static const int MULTI[KILNREACH6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -479,6 +487,296 @@ static int closed_form(const double pose[16], const double *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? KILNREACH6_IK_OK : KILNREACH6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[KILNREACH6_IK_MAX_SOLUTIONS][KILNREACH6_IK_JOINTS])
+{
+    kilnreach6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = KILNREACH6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = px - 140.0*r13;
+    const double pcy = py - 140.0*r23;
+    const double pcz = pz - 140.0*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const double wx = pcx - 110.0*r13;
+    const double wy = pcy - 110.0*r23;
+    const double wz = pcz - 110.0*r33;
+
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double v1y = 900.0 - wz;
+
+    /* th1: z of A1^-1 w = A2 A3 c3
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t3_0 = wx*wx + wy*wy;
+    const double er1 = t3_0 - 22500.0;
+
+    const int free1 = t3_0 <= 1e-14;
+    if (free1 ? 22500.0 > 1e-14 : er1 + 2.0000000000000001e-09*t3_0 < 0.0) {
+        if (status) *status = KILNREACH6_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const double sg1 = k1 ? -1.0 : 1.0;
+        double th1, c1, s1;
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            const double cn1 = root1*sg1*wx + 150.0*wy;
+            const double sn1 = root1*sg1*wy - 150.0*wx;
+            th1 = kilnreach6_ik_atan2(sn1, cn1);
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
+
+        }
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double v1x = c1*wx + s1*wy;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const double g16_11 = c1*r11 + r21*s1;
+        const double g16_12 = c1*r12 + r22*s1;
+        const double g16_13 = c1*r13 + r23*s1;
+        const double g16_31 = c1*r21 - r11*s1;
+        const double g16_32 = c1*r22 - r12*s1;
+        const double g16_33 = c1*r23 - r13*s1;
+
+        /* th2: x of A2^-1 A1^-1 w = A3 c3
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double t5_0 = v1x*v1x + v1y*v1y;
+
+        const int free2 = t5_0 <= 1e-14;
+        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*t5_0 < 0.0) {
+            continue;
+        }
+        const double root2 = t5_0 > 0.0 ? sqrt(t5_0) : 0.0;
+        const int n2 = (free2 || root2 == 0.0) ? 1 : 2;
+        double ta2 = 0.0, ca2 = 0.0, sa2 = 0.0;   /* the first root, for the second */
+        for (int k2 = 0; k2 < n2; ++k2) {
+            const double sg2 = k2 ? -1.0 : 1.0;
+            double th2, c2, s2;
+            if (free2) {
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                c2 = cos(th2);
+                s2 = sin(th2);
+            } else {
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0 ? ta2 - 3.1415926535897931 : ta2 + 3.1415926535897931;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const double cn2 = -root2*sg2*v1y;
+                    const double sn2 = root2*sg2*v1x;
+                    th2 = kilnreach6_ik_atan2(sn2, cn2);
+                    c2 = cn2/t5_0;
+                    s2 = sn2/t5_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
+
+            }
+
+            /* A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double v2z = -c2*v1y + s2*v1x;
+
+            /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
+            double l3 = 0.0, dn3;
+            int free3 = 1;
+            {
+
+                dn3 = -1.0;
+                l3 = (-v2z) / dn3;
+                free3 = 0;
+            }
+            (void)free3;
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double g26_11 = c2*g16_11 - r31*s2;
+            const double g26_12 = c2*g16_12 - r32*s2;
+            const double g26_13 = c2*g16_13 - r33*s2;
+            const double g26_31 = c2*r31 + g16_11*s2;
+            const double g26_32 = c2*r32 + g16_12*s2;
+            const double g26_33 = c2*r33 + g16_13*s2;
+
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+             * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const double er5 = g16_33*g16_33 + g26_13*g26_13;
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
+                continue;
+            }
+            const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            double th5, c5, s5;
+            const double cn5 = g26_33;
+            const double sn5 = root5;
+            th5 = kilnreach6_ik_atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            int free4 = 1;
+            {
+
+                dt4 = -s5*s5;
+                if (fabs(dt4) > 9.9999999999999995e-21) {
+                    c4 = (-g26_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08;
+                }
+            }
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+                if (fabs(dt4) > wk4) {
+                    continue;
+                }
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+                c4 = cos(th4);
+                s4 = sin(th4);
+            } else {
+                th4 = kilnreach6_ik_atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq4 = c4 * c4 + s4 * s4;
+                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn4 = 1.0 / sqrt(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
+            }
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const double g46_11 = c4*g26_11 + g16_31*s4;
+            const double g46_12 = c4*g26_12 + g16_32*s4;
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const double g56_11 = c5*g46_11 - g26_31*s5;
+            const double g56_12 = c5*g46_12 - g26_32*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+                continue;
+            }
+            th6 = kilnreach6_ik_atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+            /* a displacement outside its joint's stroke is no solution (strokes define reach) */
+            {
+                const double v3 = (l3 - 0.0) * 1.0;
+                if (!(v3 >= 499.99999889999998 && v3 <= 1600.0000011)) {
+                    continue;
+                }
+            }
+            /* read only by the labels, which this entry does not compute */
+            (void)c2;
+            (void)s2;
+            (void)s5;
+            (void)v1x;
+            (void)v1y;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
+            const int fine = probe - probe == 0.0;
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                const double jv3 = (l3 - 0.0) * 1.0;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 57.295779513082323;
+                const double jv5 = th5 * 57.295779513082323;
+                const double jv6 = th6 * 57.295779513082323;
+                if (fine && count < KILNREACH6_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                }
+            }
+            if (root5 > 0.0 && !free4) {
+                {
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    const double jv1 = u1 * 57.295779513082323;
+                    double u2 = th2;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    const double jv2 = u2 * 57.295779513082323;
+                    const double jv3 = (l3 - 0.0) * 1.0;
+                    double u4 = th4 + 3.1415926535897931;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    const double jv4 = u4 * 57.295779513082323;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    const double jv5 = u5 * 57.295779513082323;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    const double jv6 = u6 * 57.295779513082323;
+                    if (fine && count < KILNREACH6_IK_CLOSED_FORM) {
+                        double *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
             }

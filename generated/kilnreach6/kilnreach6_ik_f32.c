@@ -81,6 +81,14 @@ static const int MULTI[KILNREACH6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -448,6 +456,296 @@ static int closed_form(const float pose[16], const float *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? KILNREACH6_IK_F32_OK : KILNREACH6_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int kilnreach6_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[KILNREACH6_IK_F32_MAX_SOLUTIONS][KILNREACH6_IK_F32_JOINTS])
+{
+    kilnreach6_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float r11 = pose[0];
+    const float r12 = pose[1];
+    const float r13 = pose[2];
+    const float px = pose[3];
+    const float r21 = pose[4];
+    const float r22 = pose[5];
+    const float r23 = pose[6];
+    const float py = pose[7];
+    const float r31 = pose[8];
+    const float r32 = pose[9];
+    const float r33 = pose[10];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = KILNREACH6_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const float pcx = px - 140.0f*r13;
+    const float pcy = py - 140.0f*r23;
+    const float pcz = pz - 140.0f*r33;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const float wx = pcx - 110.0f*r13;
+    const float wy = pcy - 110.0f*r23;
+    const float wz = pcz - 110.0f*r33;
+
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float v1y = 900.0f - wz;
+
+    /* th1: z of A1^-1 w = A2 A3 c3
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const float t3_0 = wx*wx + wy*wy;
+    const float er1 = t3_0 - 22500.0f;
+
+    const int free1 = t3_0 <= 1e-14f;
+    if (free1 ? 22500.0f > 1e-14f : er1 + 2e-05f*t3_0 < 0.0f) {
+        if (status) *status = KILNREACH6_IK_F32_UNREACHABLE;
+        return 0;
+    }
+    const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
+    const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const float sg1 = k1 ? -1.0f : 1.0f;
+        float th1, c1, s1;
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            const float cn1 = root1*sg1*wx + 150.0f*wy;
+            const float sn1 = root1*sg1*wy - 150.0f*wx;
+            th1 = kilnreach6_ik_f32_atan2(sn1, cn1);
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
+
+        }
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float v1x = c1*wx + s1*wy;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const float g16_11 = c1*r11 + r21*s1;
+        const float g16_12 = c1*r12 + r22*s1;
+        const float g16_13 = c1*r13 + r23*s1;
+        const float g16_31 = c1*r21 - r11*s1;
+        const float g16_32 = c1*r22 - r12*s1;
+        const float g16_33 = c1*r23 - r13*s1;
+
+        /* th2: x of A2^-1 A1^-1 w = A3 c3
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float t5_0 = v1x*v1x + v1y*v1y;
+
+        const int free2 = t5_0 <= 1e-14f;
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*t5_0 < 0.0f) {
+            continue;
+        }
+        const float root2 = t5_0 > 0.0f ? sqrtf(t5_0) : 0.0f;
+        const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
+        float ta2 = 0.0f, ca2 = 0.0f, sa2 = 0.0f;   /* the first root, for the second */
+        for (int k2 = 0; k2 < n2; ++k2) {
+            const float sg2 = k2 ? -1.0f : 1.0f;
+            float th2, c2, s2;
+            if (free2) {
+                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
+            } else {
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0f ? ta2 - 3.14159265f : ta2 + 3.14159265f;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const float cn2 = -root2*sg2*v1y;
+                    const float sn2 = root2*sg2*v1x;
+                    th2 = kilnreach6_ik_f32_atan2(sn2, cn2);
+                    c2 = cn2/t5_0;
+                    s2 = sn2/t5_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
+
+            }
+
+            /* A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const float v2z = -c2*v1y + s2*v1x;
+
+            /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
+            float l3 = 0.0f, dn3;
+            int free3 = 1;
+            {
+
+                dn3 = -1.0f;
+                l3 = (-v2z) / dn3;
+                free3 = 0;
+            }
+            (void)free3;
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const float g26_11 = c2*g16_11 - r31*s2;
+            const float g26_12 = c2*g16_12 - r32*s2;
+            const float g26_13 = c2*g16_13 - r33*s2;
+            const float g26_31 = c2*r31 + g16_11*s2;
+            const float g26_32 = c2*r32 + g16_12*s2;
+            const float g26_33 = c2*r33 + g16_13*s2;
+
+            /* th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+             * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const float er5 = g16_33*g16_33 + g26_13*g26_13;
+
+            if (er5 + 2e-05f < 0.0f) {
+                continue;
+            }
+            const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            float th5, c5, s5;
+            const float cn5 = g26_33;
+            const float sn5 = root5;
+            th5 = kilnreach6_ik_f32_atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+            int free4 = 1;
+            {
+
+                dt4 = -s5*s5;
+                if (fabsf(dt4) > 1e-20f) {
+                    c4 = (-g26_13*s5) / dt4;
+                    s4 = (-g16_33*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08f;
+                }
+            }
+            if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+                if (fabsf(dt4) > wk4) {
+                    continue;
+                }
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
+                c4 = cosf(th4);
+                s4 = sinf(th4);
+            } else {
+                th4 = kilnreach6_ik_f32_atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const float hq4 = c4 * c4 + s4 * s4;
+                    if (fabsf(hq4 - 1.0f) > 1e-06f) {
+                        const float hn4 = 1.0f / sqrtf(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
+            }
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const float g46_11 = c4*g26_11 + g16_31*s4;
+            const float g46_12 = c4*g26_12 + g16_32*s4;
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const float g56_11 = c5*g46_11 - g26_31*s5;
+            const float g56_12 = c5*g46_12 - g26_32*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0f;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+                continue;
+            }
+            th6 = kilnreach6_ik_f32_atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+            /* a displacement outside its joint's stroke is no solution (strokes define reach) */
+            {
+                const float v3 = (l3 - 0.0f) * 1.0f;
+                if (!(v3 >= 499.999999f && v3 <= 1600.0f)) {
+                    continue;
+                }
+            }
+            /* read only by the labels, which this entry does not compute */
+            (void)c2;
+            (void)s2;
+            (void)s5;
+            (void)v1x;
+            (void)v1y;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
+            const int fine = probe - probe == 0.0f;
+            {
+                float u1 = th1;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                const float jv1 = u1 * 57.2957795f;
+                float u2 = th2;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                const float jv2 = u2 * 57.2957795f;
+                const float jv3 = (l3 - 0.0f) * 1.0f;
+                float u4 = th4;
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                const float jv4 = u4 * 57.2957795f;
+                const float jv5 = th5 * 57.2957795f;
+                const float jv6 = th6 * 57.2957795f;
+                if (fine && count < KILNREACH6_IK_F32_CLOSED_FORM) {
+                    float *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                }
+            }
+            if (root5 > 0.0f && !free4) {
+                {
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    const float jv1 = u1 * 57.2957795f;
+                    float u2 = th2;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    const float jv2 = u2 * 57.2957795f;
+                    const float jv3 = (l3 - 0.0f) * 1.0f;
+                    float u4 = th4 + 3.14159265f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    const float jv4 = u4 * 57.2957795f;
+                    float u5 = -th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    const float jv5 = u5 * 57.2957795f;
+                    float u6 = th6 + 3.14159265f;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    const float jv6 = u6 * 57.2957795f;
+                    if (fine && count < KILNREACH6_IK_F32_CLOSED_FORM) {
+                        float *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
             }

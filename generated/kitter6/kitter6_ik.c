@@ -112,6 +112,14 @@ static const int MULTI[KITTER6_IK_JOINTS] = { 1, 0, 0, 0, 0, 1 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -453,6 +461,271 @@ static int closed_form(const double pose[16], const double *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+
+            }
+        }
+    }
+    if (status) *status = count ? KITTER6_IK_OK : KITTER6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int kitter6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[KITTER6_IK_MAX_SOLUTIONS][KITTER6_IK_JOINTS])
+{
+    kitter6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = KITTER6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = px - 62.0*r13;
+    const double pcy = py - 62.0*r23;
+    const double pcz = pz - 62.0*r33;
+
+    /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double g05_14 = pcx - 78.0*r13;
+    const double g05_24 = pcy - 78.0*r23;
+    const double g05_34 = pcz - 78.0*r33;
+
+    /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t2_0 = pcx*pcx - 156.0*pcx*r13 + pcy*pcy - 156.0*pcy*r23 + 6084.0*r13*r13 + 6084.0*r23*r23;
+    const double ea1 = pcy - 78.0*r23;
+    const double eb1 = -pcx + 78.0*r13;
+    const double er1 = t2_0 - 14641.0;
+
+    const int free1 = t2_0 <= 9.9999999999999988e-16;
+    if (free1 ? 14641.0 > 9.9999999999999988e-16 : er1 + 2.0000000000000001e-09*t2_0 < 0.0) {
+        if (status) *status = KITTER6_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const double sg1 = k1 ? -1.0 : 1.0;
+        double th1, c1, s1;
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            const double cn1 = -121.0*ea1 - eb1*root1*sg1;
+            const double sn1 = ea1*root1*sg1 - 121.0*eb1;
+            th1 = kitter6_ik_atan2(sn1, cn1);
+            c1 = cn1/t2_0;
+            s1 = sn1/t2_0;
+
+        }
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double g16_13 = c1*r13 + r23*s1;
+        const double g16_14 = c1*pcx + pcy*s1;
+        const double g16_21 = c1*r21 - r11*s1;
+        const double g16_22 = c1*r22 - r12*s1;
+        const double g16_23 = c1*r23 - r13*s1;
+
+        /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
+         * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double er5 = g16_13*g16_13 + r33*r33;
+
+        if (er5 + 2.0000000000000001e-09 < 0.0) {
+            continue;
+        }
+        const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+        const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        const int n5 = (root5 == 0.0) ? 1 : 2;
+        for (int k5 = 0; k5 < n5; ++k5) {
+            const double sg5 = k5 ? -1.0 : 1.0;
+            double th5, c5, s5;
+            const double cn5 = -g16_23;
+            const double sn5 = root5*sg5;
+            th5 = 0.0 + sg5 * dl5;
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            int free6 = 1;
+            {
+
+                dt6 = -s5*s5;
+                if (fabs(dt6) > 9.9999999999999995e-21) {
+                    c6 = (g16_21*s5) / dt6;
+                    s6 = (-g16_22*s5) / dt6;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (!free6 && fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+                if (fabs(dt6) > wk6) {
+                    continue;
+                }
+                free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free6) {
+                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+                c6 = cos(th6);
+                s6 = sin(th6);
+            } else {
+                th6 = kitter6_ik_atan2(s6, c6);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq6 = c6 * c6 + s6 * s6;
+                    if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn6 = 1.0 / sqrt(hq6);
+                        c6 = c6 * hn6;
+                        s6 = s6 * hn6;
+                    }
+                }
+            }
+
+            /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
+            const double g05_11 = c6*r11 - r12*s6;
+            const double g05_13 = -c6*r12 - r11*s6;
+            const double g05_21 = c6*r21 - r22*s6;
+            const double g05_23 = -c6*r22 - r21*s6;
+            const double g05_33 = -c6*r32 - r31*s6;
+
+            /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
+            const double g04_11 = c5*g05_11 - r13*s5;
+            const double g04_14 = -104.0*g05_13 + g05_14;
+            const double g04_21 = c5*g05_21 - r23*s5;
+            const double g04_24 = -104.0*g05_23 + g05_24;
+            const double g04_34 = -104.0*g05_33 + g05_34;
+
+            /* A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one) */
+            const double g14_11 = c1*g04_11 + g04_21*s1;
+            const double g14_12 = -c1*g05_13 - g05_23*s1;
+            const double g14_14 = c1*g04_14 + g04_24*s1;
+            const double g14_24 = c1*g04_24 - g04_14*s1;
+            const double g14_34 = g04_34 - 142.0;
+
+            /* thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double thp234, cp234 = 0.0, sp234 = 0.0, dtp234, wkp234 = 0.0;
+            int freep234 = 1;
+            {
+
+                dtp234 = 1.0;
+                cp234 = (g14_11) / dtp234;
+                sp234 = (-g14_12) / dtp234;
+                freep234 = 0;
+            }
+            (void)freep234;
+            (void)wkp234;
+            if (fabs(cp234 * cp234 + sp234 * sp234 - 1.0) > 0.0001) {
+                continue;
+            }
+            thp234 = kitter6_ik_atan2(sp234, cp234);
+
+            /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
+             * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const double t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34;
+            const double ec3 = 210566.0 - t10_0;
+            const double er3 = (405266.0 - t10_0)*(t10_0 - 15866.0);
+
+            if (er3 + 75.816180000000003 < 0.0) {
+                continue;
+            }
+            const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
+            const double dl3 = kitter6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+            const int n3 = (root3 == 0.0) ? 1 : 2;
+            for (int k3 = 0; k3 < n3; ++k3) {
+                const double sg3 = k3 ? -1.0 : 1.0;
+                double th3, c3, s3;
+                const double cn3 = -194700.0*ec3;
+                const double sn3 = -194700.0*root3*sg3;
+                th3 = 3.1415926535897931 + sg3 * dl3;
+                c3 = 2.6379593379671728e-11*cn3;
+                s3 = 2.6379593379671728e-11*sn3;
+
+                /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+                double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+                int free2 = 1;
+                {
+                    const double t11_0_0 = 295.0*c3;
+
+                    dt2 = -194700.0*c3 - 195925.0;
+                    if (fabs(dt2) > 9.9999999999999988e-16) {
+                        c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2;
+                        s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2;
+                        free2 = 0;
+                        wk2 = 0.0009999999999999998;
+                    }
+                }
+                if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
+                    if (fabs(dt2) > wk2) {
+                        continue;
+                    }
+                    free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                }
+                if (free2) {
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                    c2 = cos(th2);
+                    s2 = sin(th2);
+                } else {
+                    th2 = kitter6_ik_atan2(s2, c2);
+                }
+
+                /* th4: from the sum of parallel-axis angles */
+                const double th4 = thp234 - th3 - th2;
+
+                /* joint readings, configuration labels, singular flag */
+                /* read only by the labels, which this entry does not compute */
+                (void)g16_13;
+                (void)g16_14;
+                (void)s3;
+                (void)s5;
+                /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+                 * mirrored solution's values follow from these) */
+                const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
+                const int fine = probe - probe == 0.0;
+                {
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    const double jv1 = u1 * 57.295779513082323;
+                    double u2 = th2 - 1.5707963267948966;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    const double jv2 = u2 * 57.295779513082323;
+                    double u3 = th3;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    const double jv3 = u3 * 57.295779513082323;
+                    double u4 = th4 - -1.5707963267948966;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    const double jv4 = u4 * 57.295779513082323;
+                    double u5 = th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    const double jv5 = u5 * 57.295779513082323;
+                    double u6 = th6;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    const double jv6 = u6 * 57.295779513082323;
+                    if (fine && count < KITTER6_IK_CLOSED_FORM) {
+                        double *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
 

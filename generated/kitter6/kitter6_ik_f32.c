@@ -81,6 +81,14 @@ static const int MULTI[KITTER6_IK_F32_JOINTS] = { 1, 0, 0, 0, 0, 1 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -422,6 +430,271 @@ static int closed_form(const float pose[16], const float *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+
+            }
+        }
+    }
+    if (status) *status = count ? KITTER6_IK_F32_OK : KITTER6_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int kitter6_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[KITTER6_IK_F32_MAX_SOLUTIONS][KITTER6_IK_F32_JOINTS])
+{
+    kitter6_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float r11 = pose[0];
+    const float r12 = pose[1];
+    const float r13 = pose[2];
+    const float px = pose[3];
+    const float r21 = pose[4];
+    const float r22 = pose[5];
+    const float r23 = pose[6];
+    const float py = pose[7];
+    const float r31 = pose[8];
+    const float r32 = pose[9];
+    const float r33 = pose[10];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = KITTER6_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const float pcx = px - 62.0f*r13;
+    const float pcy = py - 62.0f*r23;
+    const float pcz = pz - 62.0f*r33;
+
+    /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float g05_14 = pcx - 78.0f*r13;
+    const float g05_24 = pcy - 78.0f*r23;
+    const float g05_34 = pcz - 78.0f*r33;
+
+    /* th1: position y of A1^-1 T A6^-1 = A2 A3 A4 A5
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const float t2_0 = pcx*pcx - 156.0f*pcx*r13 + pcy*pcy - 156.0f*pcy*r23 + 6084.0f*r13*r13 + 6084.0f*r23*r23;
+    const float ea1 = pcy - 78.0f*r23;
+    const float eb1 = -pcx + 78.0f*r13;
+    const float er1 = t2_0 - 14641.0f;
+
+    const int free1 = t2_0 <= 1e-15f;
+    if (free1 ? 14641.0f > 1e-15f : er1 + 2e-05f*t2_0 < 0.0f) {
+        if (status) *status = KITTER6_IK_F32_UNREACHABLE;
+        return 0;
+    }
+    const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
+    const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const float sg1 = k1 ? -1.0f : 1.0f;
+        float th1, c1, s1;
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            const float cn1 = -121.0f*ea1 - eb1*root1*sg1;
+            const float sn1 = ea1*root1*sg1 - 121.0f*eb1;
+            th1 = kitter6_ik_f32_atan2(sn1, cn1);
+            c1 = cn1/t2_0;
+            s1 = sn1/t2_0;
+
+        }
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float g16_13 = c1*r13 + r23*s1;
+        const float g16_14 = c1*pcx + pcy*s1;
+        const float g16_21 = c1*r21 - r11*s1;
+        const float g16_22 = c1*r22 - r12*s1;
+        const float g16_23 = c1*r23 - r13*s1;
+
+        /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
+         * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float er5 = g16_13*g16_13 + r33*r33;
+
+        if (er5 + 2e-05f < 0.0f) {
+            continue;
+        }
+        const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+        const float dl5 = kitter6_ik_f32_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        const int n5 = (root5 == 0.0f) ? 1 : 2;
+        for (int k5 = 0; k5 < n5; ++k5) {
+            const float sg5 = k5 ? -1.0f : 1.0f;
+            float th5, c5, s5;
+            const float cn5 = -g16_23;
+            const float sn5 = root5*sg5;
+            th5 = 0.0f + sg5 * dl5;
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            int free6 = 1;
+            {
+
+                dt6 = -s5*s5;
+                if (fabsf(dt6) > 1e-20f) {
+                    c6 = (g16_21*s5) / dt6;
+                    s6 = (-g16_22*s5) / dt6;
+                    free6 = 0;
+                    wk6 = 1e-08f;
+                }
+            }
+            if (!free6 && fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+                if (fabsf(dt6) > wk6) {
+                    continue;
+                }
+                free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free6) {
+                th6 = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
+                c6 = cosf(th6);
+                s6 = sinf(th6);
+            } else {
+                th6 = kitter6_ik_f32_atan2(s6, c6);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const float hq6 = c6 * c6 + s6 * s6;
+                    if (fabsf(hq6 - 1.0f) > 1e-06f) {
+                        const float hn6 = 1.0f / sqrtf(hq6);
+                        c6 = c6 * hn6;
+                        s6 = s6 * hn6;
+                    }
+                }
+            }
+
+            /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
+            const float g05_11 = c6*r11 - r12*s6;
+            const float g05_13 = -c6*r12 - r11*s6;
+            const float g05_21 = c6*r21 - r22*s6;
+            const float g05_23 = -c6*r22 - r21*s6;
+            const float g05_33 = -c6*r32 - r31*s6;
+
+            /* T A6^-1 A5^-1: the known side with joints 5, 6 moved over (times A5^-1 the previous one) */
+            const float g04_11 = c5*g05_11 - r13*s5;
+            const float g04_14 = -104.0f*g05_13 + g05_14;
+            const float g04_21 = c5*g05_21 - r23*s5;
+            const float g04_24 = -104.0f*g05_23 + g05_24;
+            const float g04_34 = -104.0f*g05_33 + g05_34;
+
+            /* A1^-1 T A6^-1 A5^-1: the known side with joints 1, 5, 6 moved over (A1^-1 times the previous one) */
+            const float g14_11 = c1*g04_11 + g04_21*s1;
+            const float g14_12 = -c1*g05_13 - g05_23*s1;
+            const float g14_14 = c1*g04_14 + g04_24*s1;
+            const float g14_24 = c1*g04_24 - g04_14*s1;
+            const float g14_34 = g04_34 - 142.0f;
+
+            /* thp234 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            float thp234, cp234 = 0.0f, sp234 = 0.0f, dtp234, wkp234 = 0.0f;
+            int freep234 = 1;
+            {
+
+                dtp234 = 1.0f;
+                cp234 = (g14_11) / dtp234;
+                sp234 = (-g14_12) / dtp234;
+                freep234 = 0;
+            }
+            (void)freep234;
+            (void)wkp234;
+            if (fabsf(cp234 * cp234 + sp234 * sp234 - 1.0f) > 0.005f) {
+                continue;
+            }
+            thp234 = kitter6_ik_f32_atan2(sp234, cp234);
+
+            /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
+             * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const float t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34;
+            const float ec3 = 210566.0f - t10_0;
+            const float er3 = (405266.0f - t10_0)*(t10_0 - 15866.0f);
+
+            if (er3 + 758161.8f < 0.0f) {
+                continue;
+            }
+            const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
+            const float dl3 = kitter6_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
+            const int n3 = (root3 == 0.0f) ? 1 : 2;
+            for (int k3 = 0; k3 < n3; ++k3) {
+                const float sg3 = k3 ? -1.0f : 1.0f;
+                float th3, c3, s3;
+                const float cn3 = -194700.0f*ec3;
+                const float sn3 = -194700.0f*root3*sg3;
+                th3 = 3.14159265f + sg3 * dl3;
+                c3 = 2.63795934e-11f*cn3;
+                s3 = 2.63795934e-11f*sn3;
+
+                /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+                float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+                int free2 = 1;
+                {
+                    const float t11_0_0 = 295.0f*c3;
+
+                    dt2 = -194700.0f*c3 - 195925.0f;
+                    if (fabsf(dt2) > 1e-15f) {
+                        c2 = (-g14_14*t11_0_0 - 330.0f*g14_14 - 295.0f*g14_34*s3) / dt2;
+                        s2 = (295.0f*g14_14*s3 - g14_34*t11_0_0 - 330.0f*g14_34) / dt2;
+                        free2 = 0;
+                        wk2 = 0.001f;
+                    }
+                }
+                if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
+                    if (fabsf(dt2) > wk2) {
+                        continue;
+                    }
+                    free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                }
+                if (free2) {
+                    th2 = (1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                    c2 = cosf(th2);
+                    s2 = sinf(th2);
+                } else {
+                    th2 = kitter6_ik_f32_atan2(s2, c2);
+                }
+
+                /* th4: from the sum of parallel-axis angles */
+                const float th4 = thp234 - th3 - th2;
+
+                /* joint readings, configuration labels, singular flag */
+                /* read only by the labels, which this entry does not compute */
+                (void)g16_13;
+                (void)g16_14;
+                (void)s3;
+                (void)s5;
+                /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+                 * mirrored solution's values follow from these) */
+                const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
+                const int fine = probe - probe == 0.0f;
+                {
+                    float u1 = th1;
+                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    const float jv1 = u1 * 57.2957795f;
+                    float u2 = th2 - 1.57079633f;
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    const float jv2 = u2 * 57.2957795f;
+                    float u3 = th3;
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    const float jv3 = u3 * 57.2957795f;
+                    float u4 = th4 - -1.57079633f;
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    const float jv4 = u4 * 57.2957795f;
+                    float u5 = th5;
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    const float jv5 = u5 * 57.2957795f;
+                    float u6 = th6;
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    const float jv6 = u6 * 57.2957795f;
+                    if (fine && count < KITTER6_IK_F32_CLOSED_FORM) {
+                        float *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
 

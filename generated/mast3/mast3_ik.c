@@ -112,6 +112,14 @@ static const int MULTI[MAST3_IK_JOINTS] = { 0, 0, 0 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -285,6 +293,145 @@ static int closed_form(const double pose[16], const double *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? MAST3_IK_OK : MAST3_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int mast3_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[MAST3_IK_MAX_SOLUTIONS][MAST3_IK_JOINTS])
+{
+    mast3_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double px = pose[3];
+    const double py = pose[7];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = MAST3_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double q1y = 1500.0 - pz;
+
+    /* th1: z of A1^-1 p = A2 A3 t
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t1_0 = px*px + py*py;
+    const double er1 = t1_0 - 14400.0;
+
+    const int free1 = t1_0 <= 1e-14;
+    if (free1 ? 14400.0 > 1e-14 : er1 + 2.0000000000000001e-09*t1_0 < 0.0) {
+        if (status) *status = MAST3_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const double sg1 = k1 ? -1.0 : 1.0;
+        double th1, c1, s1;
+        if (free1) {
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            const double cn1 = px*root1*sg1 + 120.0*py;
+            const double sn1 = -120.0*px + py*root1*sg1;
+            th1 = mast3_ik_atan2(sn1, cn1);
+            c1 = cn1/t1_0;
+            s1 = sn1/t1_0;
+
+        }
+
+        /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double q1x = c1*px + py*s1;
+
+        /* th2: x of A2^-1 A1^-1 p = A3 t
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double t3_0 = q1x*q1x + q1y*q1y;
+
+        const int free2 = t3_0 <= 1e-14;
+        if (free2 ? 0.0 > 1e-14 : 1.0000000019999999*t3_0 < 0.0) {
+            continue;
+        }
+        const double root2 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
+        const int n2 = (free2 || root2 == 0.0) ? 1 : 2;
+        double ta2 = 0.0, ca2 = 0.0, sa2 = 0.0;   /* the first root, for the second */
+        for (int k2 = 0; k2 < n2; ++k2) {
+            const double sg2 = k2 ? -1.0 : 1.0;
+            double th2, c2, s2;
+            if (free2) {
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                c2 = cos(th2);
+                s2 = sin(th2);
+            } else {
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0 ? ta2 - 3.1415926535897931 : ta2 + 3.1415926535897931;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const double cn2 = -q1y*root2*sg2;
+                    const double sn2 = q1x*root2*sg2;
+                    th2 = mast3_ik_atan2(sn2, cn2);
+                    c2 = cn2/t3_0;
+                    s2 = sn2/t3_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
+
+            }
+
+            /* A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double q2z = -c2*q1y + q1x*s2;
+
+            /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
+            double l3 = 0.0, dn3;
+            int free3 = 1;
+            {
+
+                dn3 = -1.0;
+                l3 = (90.0 - q2z) / dn3;
+                free3 = 0;
+            }
+            (void)free3;
+
+            /* joint readings, configuration labels, singular flag */
+            /* a displacement outside its joint's stroke is no solution (strokes define reach) */
+            {
+                const double v3 = (l3 - 0.0) * 1.0;
+                if (!(v3 >= 399.99999839999998 && v3 <= 2000.0000015999999)) {
+                    continue;
+                }
+            }
+            /* read only by the labels, which this entry does not compute */
+            (void)c2;
+            (void)q1x;
+            (void)q1y;
+            (void)s2;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = ((th1 + th2) + l3) + (root1 + root2);
+            const int fine = probe - probe == 0.0;
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 57.295779513082323;
+                double u2 = th2;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 57.295779513082323;
+                const double jv3 = (l3 - 0.0) * 1.0;
+                if (fine && count < MAST3_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
                 }
             }
 

@@ -81,6 +81,14 @@ static const int MULTI[MAST3_IK_F32_JOINTS] = { 0, 0, 0 };
 
 static int valid_pose(const float pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
+        + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
+        + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabsf(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -254,6 +262,145 @@ static int closed_form(const float pose[16], const float *current,
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                      * readings are in one turn here), tested without branches */
                     out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? MAST3_IK_F32_OK : MAST3_IK_F32_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int mast3_ik_f32_inverse_joints(const float pose[16], const float *current,
+                    float joints[MAST3_IK_F32_MAX_SOLUTIONS][MAST3_IK_F32_JOINTS])
+{
+    mast3_ik_f32_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const float px = pose[3];
+    const float py = pose[7];
+    const float pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = MAST3_IK_F32_INVALID_INPUT;
+        return 0;
+    }
+    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float q1y = 1500.0f - pz;
+
+    /* th1: z of A1^-1 p = A2 A3 t
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const float t1_0 = px*px + py*py;
+    const float er1 = t1_0 - 14400.0f;
+
+    const int free1 = t1_0 <= 1e-14f;
+    if (free1 ? 14400.0f > 1e-14f : er1 + 2e-05f*t1_0 < 0.0f) {
+        if (status) *status = MAST3_IK_F32_UNREACHABLE;
+        return 0;
+    }
+    const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
+    const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const float sg1 = k1 ? -1.0f : 1.0f;
+        float th1, c1, s1;
+        if (free1) {
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
+        } else {
+            const float cn1 = px*root1*sg1 + 120.0f*py;
+            const float sn1 = -120.0f*px + py*root1*sg1;
+            th1 = mast3_ik_f32_atan2(sn1, cn1);
+            c1 = cn1/t1_0;
+            s1 = sn1/t1_0;
+
+        }
+
+        /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const float q1x = c1*px + py*s1;
+
+        /* th2: x of A2^-1 A1^-1 p = A3 t
+         * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const float t3_0 = q1x*q1x + q1y*q1y;
+
+        const int free2 = t3_0 <= 1e-14f;
+        if (free2 ? 0.0f > 1e-14f : 1.00002f*t3_0 < 0.0f) {
+            continue;
+        }
+        const float root2 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
+        const int n2 = (free2 || root2 == 0.0f) ? 1 : 2;
+        float ta2 = 0.0f, ca2 = 0.0f, sa2 = 0.0f;   /* the first root, for the second */
+        for (int k2 = 0; k2 < n2; ++k2) {
+            const float sg2 = k2 ? -1.0f : 1.0f;
+            float th2, c2, s2;
+            if (free2) {
+                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
+            } else {
+                if (k2) {   /* the second root: the first turned by half a turn */
+                    th2 = ta2 > 0.0f ? ta2 - 3.14159265f : ta2 + 3.14159265f;
+                    c2 = -ca2;
+                    s2 = -sa2;
+                } else {
+                    const float cn2 = -q1y*root2*sg2;
+                    const float sn2 = q1x*root2*sg2;
+                    th2 = mast3_ik_f32_atan2(sn2, cn2);
+                    c2 = cn2/t3_0;
+                    s2 = sn2/t3_0;
+
+                    ta2 = th2;
+                    ca2 = c2;
+                    sa2 = s2;
+                }
+
+            }
+
+            /* A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const float q2z = -c2*q1y + q1x*s2;
+
+            /* l3: the displacement from an equation linear in it: l = num/den (the first form whose den is not ~0) */
+            float l3 = 0.0f, dn3;
+            int free3 = 1;
+            {
+
+                dn3 = -1.0f;
+                l3 = (90.0f - q2z) / dn3;
+                free3 = 0;
+            }
+            (void)free3;
+
+            /* joint readings, configuration labels, singular flag */
+            /* a displacement outside its joint's stroke is no solution (strokes define reach) */
+            {
+                const float v3 = (l3 - 0.0f) * 1.0f;
+                if (!(v3 >= 399.999998f && v3 <= 2000.0f)) {
+                    continue;
+                }
+            }
+            /* read only by the labels, which this entry does not compute */
+            (void)c2;
+            (void)q1x;
+            (void)q1y;
+            (void)s2;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const float probe = ((th1 + th2) + l3) + (root1 + root2);
+            const int fine = probe - probe == 0.0f;
+            {
+                float u1 = th1;
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                const float jv1 = u1 * 57.2957795f;
+                float u2 = th2;
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                const float jv2 = u2 * 57.2957795f;
+                const float jv3 = (l3 - 0.0f) * 1.0f;
+                if (fine && count < MAST3_IK_F32_CLOSED_FORM) {
+                    float *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
                 }
             }
 

@@ -112,6 +112,14 @@ static const int MULTI[PACKER6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 static int valid_pose(const double pose[16])
 {
+    /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
+     * only a pose that fails it is looked at entry by entry */
+    const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
+        + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
+        + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= LARGEST_ENTRY) {
+        return 1;
+    }
     for (int k = 0; k < 12; ++k) {
         if (!(fabs(pose[k]) <= LARGEST_ENTRY)) {
             return 0;
@@ -608,6 +616,414 @@ static int closed_form(const double pose[16], const double *current,
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
                          * readings are in one turn here), tested without branches */
                         out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                    }
+                }
+            }
+
+        }
+    }
+    if (status) *status = count ? PACKER6_IK_OK : PACKER6_IK_UNREACHABLE;
+    return count;
+}
+
+/* The readings of every closed-form solution, nothing else: the closed-form search below without
+ * labels, conditioning, flags or limits work (the same readings in the same order). */
+int packer6_ik_inverse_joints(const double pose[16], const double *current,
+                    double joints[PACKER6_IK_MAX_SOLUTIONS][PACKER6_IK_JOINTS])
+{
+    packer6_ik_status *const status = 0;   /* this entry reports no status */
+    int count = 0;
+    const double r11 = pose[0];
+    const double r12 = pose[1];
+    const double r13 = pose[2];
+    const double px = pose[3];
+    const double r21 = pose[4];
+    const double r22 = pose[5];
+    const double r23 = pose[6];
+    const double py = pose[7];
+    const double r31 = pose[8];
+    const double r32 = pose[9];
+    const double r33 = pose[10];
+    const double pz = pose[11];
+    (void)current;
+    if (!valid_pose(pose)) {
+        if (status) *status = PACKER6_IK_INVALID_INPUT;
+        return 0;
+    }
+    /* target in the DH base frame (base and tool removed): base^-1 T tool^-1 */
+    const double pcx = -px - 0.17999999999999999*r11 + 0.059999999999999998*r13;
+    const double pcy = -py - 0.17999999999999999*r21 + 0.059999999999999998*r23;
+    const double pcz = pz + 0.17999999999999999*r31 - 0.059999999999999998*r33 - 0.45000000000000001;
+
+    /* wrist centre in the DH base frame: T c, with c its place in the last DH frame */
+    const double wx = pcx - 0.14000000000000001*r11;
+    const double wy = pcy - 0.14000000000000001*r21;
+    const double wz = pcz + 0.14000000000000001*r31;
+
+    /* th1: y of A1^-1 w = A2 A3 c3
+     * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+    const double t3_0 = wx*wx + wy*wy;
+    const double er1 = t3_0 - 0.0144;
+
+    const int free1 = t3_0 <= 9.9999999999999995e-21;
+    if (free1 ? 0.0144 > 9.9999999999999995e-21 : er1 + 2.0000000000000001e-09*t3_0 < 0.0) {
+        if (status) *status = PACKER6_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = er1 > 0.0 ? sqrt(er1) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    for (int k1 = 0; k1 < n1; ++k1) {
+        const double sg1 = k1 ? -1.0 : 1.0;
+        double th1, c1, s1;
+        if (free1) {
+            th1 = (0.0 + 1.0 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            c1 = cos(th1);
+            s1 = sin(th1);
+        } else {
+            const double cn1 = root1*sg1*wx + 0.12*wy;
+            const double sn1 = root1*sg1*wy - 0.12*wx;
+            th1 = packer6_ik_atan2(sn1, cn1);
+            c1 = cn1/t3_0;
+            s1 = sn1/t3_0;
+
+        }
+
+        /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
+        const double v1x = c1*wx + s1*wy;
+        const double v1y = c1*wy - s1*wx;
+
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        const double g16_11 = -c1*r13 - r23*s1;
+        const double g16_12 = -c1*r12 - r22*s1;
+        const double g16_13 = c1*r11 + r21*s1;
+        const double g16_14 = c1*pcx + pcy*s1;
+        const double g16_21 = -c1*r23 + r13*s1;
+        const double g16_22 = -c1*r22 + r12*s1;
+        const double g16_23 = c1*r21 - r11*s1;
+        const double g16_24 = c1*pcy - pcx*s1;
+
+        /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
+         * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+        const double t5_0 = v1x*v1x - 0.29999999999999999*v1x + v1y*v1y + wz*wz;
+        const double ec3 = t5_0 - 1.5365;
+        const double er3 = (3.0778854157867199 - t5_0)*(t5_0 + 0.0048854157867200994);
+
+        if (er3 + 4.7517380000000002e-09 < 0.0) {
+            continue;
+        }
+        const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
+        const double dl3 = packer6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        const int n3 = (root3 == 0.0) ? 1 : 2;
+        for (int k3 = 0; k3 < n3; ++k3) {
+            const double sg3 = k3 ? -1.0 : 1.0;
+            double th3, c3, s3;
+            const double cn3 = 0.187*ec3 + 1.53*root3*sg3;
+            const double sn3 = -1.53*ec3 + 0.187*root3*sg3;
+            th3 = -1.44917730353355 + sg3 * dl3;
+            c3 = 0.42089862698658892*cn3;
+            s3 = 0.42089862698658892*sn3;
+
+            /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            int free2 = 1;
+            {
+                const double t7_0_0 = 0.90000000000000002*c3;
+                const double t7_0_1 = s3*v1x;
+                const double t7_0_2 = 0.11*wz;
+
+                dt2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
+                if (fabs(dt2) > 9.9999999999999995e-21) {
+                    c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t7_0_2 - 0.13500000000000001*s3 + t7_0_0*wz + 0.90000000000000002*t7_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
+                    s2 = (c3*t7_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*wz - 0.016500000000000001*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.84999999999999998*wz) / dt2;
+                    free2 = 0;
+                    wk2 = 1e-08;
+                }
+            }
+            if (free2) {
+                const double t7_1_0 = -c3*r31;
+                const double t7_1_1 = 0.255*c3;
+                const double t7_1_2 = g16_13*s3;
+                const double t7_1_3 = g16_13*v1x;
+                const double t7_1_4 = g16_13*wz;
+                const double t7_1_5 = 0.255*s3;
+                const double t7_1_6 = g16_14*v1x;
+                const double t7_1_7 = g16_14*wz;
+                const double t7_1_8 = -r31*wz;
+                const double t7_1_9 = pcz*v1x;
+                const double t7_1_10 = pcz*wz;
+                const double t7_1_11 = c3*t7_1_4;
+                const double t7_1_12 = 1.7*c3;
+                const double t7_1_13 = 0.23799999999999999*s3;
+                const double t7_1_14 = 1.7*s3;
+                const double t7_1_15 = 0.2142*g16_13;
+                const double t7_1_16 = 0.187*wz;
+                const double t7_1_17 = c3*g16_13;
+                const double t7_1_18 = c3*wz;
+                const double t7_1_19 = g16_14*s3;
+                const double t7_1_20 = 0.035999999999999997*g16_24;
+                const double t7_1_21 = pcz*s3;
+                const double t7_1_22 = s3*v1x;
+                const double t7_1_23 = 0.033599999999999998*g16_23;
+                const double t7_1_24 = 1.53*pcz;
+                const double t7_1_25 = c3*s3;
+                const double t7_1_26 = 0.187*v1x;
+                const double t7_1_27 = 0.042000000000000003*s3;
+                const double t7_1_28 = g16_23*g16_24;
+                const double t7_1_29 = -r31*s3;
+                const double t7_1_30 = 0.042000000000000003*pcz;
+                const double t7_1_31 = s3*s3;
+                const double t7_1_32 = g16_13*g16_13;
+                const double t7_1_33 = 1.53*g16_14;
+                const double t7_1_34 = g16_14*g16_14;
+                const double t7_1_35 = g16_23*g16_23;
+                const double t7_1_36 = g16_24*g16_24;
+                const double t7_1_37 = r31*r31;
+                const double t7_1_38 = 0.187*t7_1_31;
+                const double t7_1_39 = pcz*pcz;
+                const double t7_1_40 = 0.019599999999999999*t7_1_18;
+                const double t7_1_41 = 0.019599999999999999*t7_1_22;
+                const double t7_1_42 = -0.2142*r31;
+                const double t7_1_43 = c3*g16_14;
+                const double t7_1_44 = c3*pcz;
+                const double t7_1_45 = c3*v1x;
+                const double t7_1_46 = s3*wz;
+                const double t7_1_47 = 0.042000000000000003*c3;
+                const double t7_1_48 = 0.23999999999999999*g16_24;
+                const double t7_1_49 = 0.0029399999999999999*c3;
+                const double t7_1_50 = 0.14999999999999999*c3;
+                const double t7_1_51 = 0.28000000000000003*t7_1_28;
+                const double t7_1_52 = 0.019599999999999999*t7_1_45;
+                const double t7_1_53 = 0.019599999999999999*t7_1_46;
+
+                dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27000000000000002*g16_14 - pcz*t7_1_1 - 0.033000000000000002*pcz + 0.030800000000000001*r31*v1x - 0.00462*r31 - 0.038249999999999999*s3 - 0.23799999999999999*t7_1_0*v1x + 0.035700000000000003*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.23799999999999999*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.035700000000000003*t7_1_2 - 0.252*t7_1_3 + 0.030800000000000001*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27000000000000002*v1x + 0.033000000000000002*wz + 0.040500000000000001;
+                if (fabs(dt2) > 9.9999999999999998e-20) {
+                    c2 = (0.28000000000000003*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.29999999999999999*c3*g16_14*wz + 0.19800000000000001*c3*g16_14 + 0.28000000000000003*c3*g16_23*g16_24*wz + 0.23999999999999999*c3*g16_24*wz - 0.28000000000000003*c3*pcz*r31*wz + 1.4692000000000001*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.026179999999999998*c3*t7_1_2 - 0.029700000000000001*c3 + 0.28000000000000003*g16_13*g16_14*s3*v1x + 0.0029120000000000001*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.29999999999999999*g16_14*s3*v1x - 0.042000000000000003*g16_14*t7_1_2 + 1.53*g16_14 + 0.28000000000000003*g16_23*g16_24*s3*v1x + 0.0050400000000000002*g16_23*s3 + 0.23999999999999999*g16_24*s3*v1x - 0.28000000000000003*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.027720000000000002*r31*s3 - 0.026179999999999998*r31*t7_1_31 + 0.052359999999999997*r31 - s3*t7_1_20 + 0.0029399999999999999*s3*t7_1_32 + 0.14999999999999999*s3*t7_1_34 + 0.0029399999999999999*s3*t7_1_35 + 0.14999999999999999*s3*t7_1_36 + 0.0029399999999999999*s3*t7_1_37 + 0.14999999999999999*s3*t7_1_39 + 0.233595*s3 - 0.20568800000000001*t7_1_0 - 0.042000000000000003*t7_1_11 - t7_1_15 - t7_1_16 - 0.027720000000000002*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5814999999999999*t7_1_18 - 0.020799999999999999*t7_1_19 - 0.19800000000000001*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5814999999999999*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.22950000000000001) / dt2;
+                    s2 = (0.0050400000000000002*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.29999999999999999*c3*t7_1_6 + 0.016844999999999999*c3 + 0.026179999999999998*g16_13*t7_1_31 - 0.042000000000000003*g16_13*t7_1_43 - 0.052359999999999997*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.026179999999999998*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.29999999999999999*s3*t7_1_7 + 0.029700000000000001*s3 - t7_1_0*t7_1_30 + 0.28000000000000003*t7_1_0*t7_1_9 + 0.027720000000000002*t7_1_0 - 0.28000000000000003*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28000000000000003*t7_1_17*t7_1_6 - 0.19938800000000001*t7_1_17 - 0.28000000000000003*t7_1_19*t7_1_4 - 0.19800000000000001*t7_1_19 + 0.027720000000000002*t7_1_2 - 0.024199999999999999*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4241999999999999*t7_1_43 - 0.19800000000000001*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5814999999999999*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5814999999999999*t7_1_46 - 0.028049999999999999) / dt2;
+                    free2 = 0;
+                    wk2 = 9.9999999999999995e-08;
+                }
+            }
+            if (free2) {
+                const double t7_2_0 = g16_11*r32;
+                const double t7_2_1 = g16_12*r33;
+                const double t7_2_2 = 0.10199999999999999*g16_22;
+                const double t7_2_3 = 0.108*c3;
+                const double t7_2_4 = g16_11*g16_22;
+                const double t7_2_5 = g16_22*r33;
+                const double t7_2_6 = 0.0132*t7_2_5;
+                const double t7_2_7 = 0.0132*t7_2_4;
+                const double t7_2_8 = 0.84999999999999998*g16_24;
+                const double t7_2_9 = g16_21*r32;
+                const double t7_2_10 = 0.108*s3;
+                const double t7_2_11 = g16_14*t7_2_0;
+                const double t7_2_12 = 0.11*c3;
+                const double t7_2_13 = 0.90000000000000002*c3;
+                const double t7_2_14 = g16_12*g16_21;
+                const double t7_2_15 = g16_24*t7_2_14;
+                const double t7_2_16 = pcz*t7_2_1;
+                const double t7_2_17 = g16_24*t7_2_12;
+                const double t7_2_18 = 0.90000000000000002*s3;
+                const double t7_2_19 = g16_14*t7_2_1;
+                const double t7_2_20 = 0.11*s3;
+                const double t7_2_21 = g16_24*t7_2_18;
+                const double t7_2_22 = 0.13500000000000001*c3;
+                const double t7_2_23 = 0.0132*g16_21;
+                const double t7_2_24 = 0.84999999999999998*pcz;
+                const double t7_2_25 = 0.016500000000000001*s3;
+                const double t7_2_26 = g16_24*t7_2_4;
+                const double t7_2_27 = pcz*t7_2_0;
+                const double t7_2_28 = g16_24*t7_2_9;
+                const double t7_2_29 = g16_24*t7_2_5;
+
+                dt2 = 0.187*c3*g16_12*r33 - 0.187*c3*t7_2_0 + 1.53*g16_11*r32*s3 + 1.5446*g16_12*r33 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0;
+                if (fabs(dt2) > 9.9999999999999995e-21) {
+                    c2 = (0.90000000000000002*c3*g16_11*g16_22*g16_24 + 0.90000000000000002*c3*g16_11*pcz*r32 + 0.016500000000000001*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.016500000000000001*c3*t7_2_1 - c3*t7_2_6 + 0.90000000000000002*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.84999999999999998*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.13500000000000001*g16_12*r33*s3 - 0.84999999999999998*g16_14*t7_2_0 + 0.90000000000000002*g16_21*g16_24*r32*s3 + 0.10199999999999999*g16_21*r32 + 0.84999999999999998*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.13500000000000001*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2;
+                    s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.10199999999999999*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2;
+                    free2 = 0;
+                    wk2 = 1e-08;
+                }
+            }
+            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
+                if (fabs(dt2) > wk2) {
+                    continue;
+                }
+                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free2) {
+                th2 = (-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                c2 = cos(th2);
+                s2 = sin(th2);
+            } else {
+                th2 = packer6_ik_atan2(s2, c2);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq2 = c2 * c2 + s2 * s2;
+                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn2 = 1.0 / sqrt(hq2);
+                        c2 = c2 * hn2;
+                        s2 = s2 * hn2;
+                    }
+                }
+            }
+
+            /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
+            const double g26_11 = c2*g16_11 - r33*s2;
+            const double g26_12 = c2*g16_12 - r32*s2;
+            const double g26_13 = c2*g16_13 + r31*s2;
+            const double g26_21 = -c2*r33 - g16_11*s2;
+            const double g26_22 = -c2*r32 - g16_12*s2;
+            const double g26_23 = c2*r31 - g16_13*s2;
+
+            /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
+            const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
+            const double g36_13 = c3*g26_13 + g26_23*s3;
+            const double g36_21 = c3*g26_21 - g26_11*s3;
+            const double g36_22 = c3*g26_22 - g26_12*s3;
+            const double g36_23 = c3*g26_23 - g26_13*s3;
+
+            /* th5: entry (2,2) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
+             * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
+            const double er5 = g16_23*g16_23 + g36_13*g36_13;
+
+            if (er5 + 2.0000000000000001e-09 < 0.0) {
+                continue;
+            }
+            const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+            /* the second root follows from this one by symmetry (emitted with the solution below) */
+            double th5, c5, s5;
+            const double cn5 = g36_23;
+            const double sn5 = root5;
+            th5 = packer6_ik_atan2(sn5, cn5);
+            c5 = cn5;
+            s5 = sn5;
+
+            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            int free4 = 1;
+            {
+
+                dt4 = s5*s5;
+                if (fabs(dt4) > 9.9999999999999995e-21) {
+                    c4 = (-g36_13*s5) / dt4;
+                    s4 = (g16_23*s5) / dt4;
+                    free4 = 0;
+                    wk4 = 1e-08;
+                }
+            }
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+                if (fabs(dt4) > wk4) {
+                    continue;
+                }
+                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+            }
+            if (free4) {
+                th4 = (0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+                c4 = cos(th4);
+                s4 = sin(th4);
+            } else {
+                th4 = packer6_ik_atan2(s4, c4);
+                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
+                {
+                    const double hq4 = c4 * c4 + s4 * s4;
+                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
+                        const double hn4 = 1.0 / sqrt(hq4);
+                        c4 = c4 * hn4;
+                        s4 = s4 * hn4;
+                    }
+                }
+            }
+
+            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
+            const double g46_11 = c4*g36_11 - g16_21*s4;
+            const double g46_12 = c4*g36_12 - g16_22*s4;
+
+            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
+            const double g56_11 = c5*g46_11 + g36_21*s5;
+            const double g56_12 = c5*g46_12 + g36_22*s5;
+
+            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            int free6 = 1;
+            {
+
+                dt6 = 1.0;
+                c6 = (g56_11) / dt6;
+                s6 = (-g56_12) / dt6;
+                free6 = 0;
+            }
+            (void)free6;
+            (void)wk6;
+            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+                continue;
+            }
+            th6 = packer6_ik_atan2(s6, c6);
+
+            /* joint readings, configuration labels, singular flag */
+            /* read only by the labels, which this entry does not compute */
+            (void)c3;
+            (void)s3;
+            (void)s5;
+            (void)v1x;
+            /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
+             * mirrored solution's values follow from these) */
+            const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
+            const int fine = probe - probe == 0.0;
+            {
+                double u1 = th1;
+                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                const double jv1 = u1 * 1.0;
+                double u2 = th2 - -1.5707963267948966;
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                const double jv2 = u2 * 1.0;
+                double u3 = th3;
+                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                const double jv3 = u3 * 1.0;
+                double u4 = th4;
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                const double jv4 = u4 * 1.0;
+                const double jv5 = th5 * 1.0;
+                const double jv6 = th6 * 1.0;
+                if (fine && count < PACKER6_IK_CLOSED_FORM) {
+                    double *row = joints[count++];
+                    row[0] = jv1;
+                    row[1] = jv2;
+                    row[2] = jv3;
+                    row[3] = jv4;
+                    row[4] = jv5;
+                    row[5] = jv6;
+                }
+            }
+            if (root5 > 0.0 && !free4) {
+                {
+                    double u1 = th1;
+                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    const double jv1 = u1 * 1.0;
+                    double u2 = th2 - -1.5707963267948966;
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    const double jv2 = u2 * 1.0;
+                    double u3 = th3;
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    const double jv3 = u3 * 1.0;
+                    double u4 = th4 + 3.1415926535897931;
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    const double jv4 = u4 * 1.0;
+                    double u5 = -th5;
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    const double jv5 = u5 * 1.0;
+                    double u6 = th6 + 3.1415926535897931;
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    const double jv6 = u6 * 1.0;
+                    if (fine && count < PACKER6_IK_CLOSED_FORM) {
+                        double *row = joints[count++];
+                        row[0] = jv1;
+                        row[1] = jv2;
+                        row[2] = jv3;
+                        row[3] = jv4;
+                        row[4] = jv5;
+                        row[5] = jv6;
                     }
                 }
             }

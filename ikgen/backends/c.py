@@ -110,7 +110,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=[k for k, t in enumerate(common.joint_turns(arm))
                        if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)],
-        probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
+        probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum, label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),
@@ -242,6 +242,16 @@ def plan_symbols(plan: common.Plan) -> set:
     for e in exprs:
         out |= sp.sympify(e).free_symbols
     return out
+
+
+def label_inputs(plan: common.Plan) -> list[str]:
+    """The names the labels read (the readings-only entry computes no labels and marks these used,
+    so strict compilers see no unused variable)."""
+    targets = {str(a.target) for a in plan.final_temps}
+    names = set()
+    for e in [a.expr for a in plan.final_temps] + list(plan.label_measures):
+        names |= {str(s) for s in sp.sympify(e).free_symbols}
+    return sorted(names - targets)
 
 
 def c_terms(items: list[tuple[str, int]], printer: SolverCPrinter) -> list[str]:
