@@ -238,7 +238,7 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     poses = c["poses"]
     print("-" * 92)
     print("reference column: hand-written C / hand-written Python (benchmarks/hand/); for the cffi row the "
-          f"generated pure-Python solver; for the float row the generated double build.")
+          "generated pure-Python solver; for the float row the generated double build.")
     print(f"C: {int(poses)} poses, {rounds[0]} interleaved rounds (order rotating), best and median round; "
           f"solutions per pose {c['generated_solutions'] / poses:.3f} generated, {c['hand_solutions'] / poses:.3f} "
           f"hand-written, {c['float_solutions'] / poses:.3f} float build.")
