@@ -448,7 +448,22 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_14*v1x
                 t7_1_1 = g16_14*v1y
@@ -476,7 +491,22 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 1e-12:
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
-                    wk2 = 1.0
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t7_2_0 = g16_13*v1x
                     t7_2_1 = g16_14*v1x
@@ -512,29 +542,28 @@ def _closed_form(pose, current, check_finite=True):
                     if abs(dt2) > 1e-12:
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
-                        wk2 = 1.0
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 1.0:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 - r31*s2
@@ -570,29 +599,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 - g16_31*s4
@@ -756,7 +784,22 @@ def inverse_joints(pose, current=None):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_14*v1x
                 t7_1_1 = g16_14*v1y
@@ -784,7 +827,22 @@ def inverse_joints(pose, current=None):
                 if abs(dt2) > 1e-12:
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
-                    wk2 = 1.0
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t7_2_0 = g16_13*v1x
                     t7_2_1 = g16_14*v1x
@@ -820,29 +878,28 @@ def inverse_joints(pose, current=None):
                     if abs(dt2) > 1e-12:
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
-                        wk2 = 1.0
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 1.0:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 - r31*s2
@@ -878,29 +935,28 @@ def inverse_joints(pose, current=None):
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 - g16_31*s4

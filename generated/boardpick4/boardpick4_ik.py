@@ -436,7 +436,17 @@ def _closed_form(pose, current, check_finite=True):
         if abs(dt1) > 9.999999999999999e-16:
             c1 = (275.0*c2*pcx + 325.0*pcx + 275.0*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625.0*r13 - r23*s2*t5_0_2 - 12375.0*r23*s2) / dt1
             s1 = (275.0*c2*pcy + 275.0*l3*r13*s2 - 275.0*pcx*s2 + 325.0*pcy + 12375.0*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625.0*r23) / dt1
-            wk1 = 0.0009999999999999998
+            hq1 = c1 * c1 + s1 * s1
+            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                free1 = False
+                th1 = atan2(s1, c1)
+            elif abs(dt1) > 0.0009999999999999998:
+                continue
+            else:  # ill-conditioned near a singular pose: the pair does not fix it
+                free1 = True
+                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                c1 = cos(th1)
+                s1 = sin(th1)
         else:
             t5_1_0 = pcx*pcx
             t5_1_1 = pcy*pcy
@@ -496,7 +506,17 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt1) > 1e-12:
                 c1 = (c2*t5_1_10 + l3*t5_1_36 - pcx*pcx*pcx - pcx*t5_1_1 + pcx*t5_1_12 - pcx*t5_1_13 + pcx*t5_1_19 - pcx*t5_1_30 + pcx*t5_1_35 - pcx*t5_1_9 - 325650.0*pcx - pcy*t5_1_14 - pcy*t5_1_21 - r13*t5_1_15 + r13*t5_1_16 - r13*t5_1_29 - r13*t5_1_38 + 14654250.0*r13 + r23*t5_1_22 + s2*t5_1_17 + t5_1_1*t5_1_11 + t5_1_1*t5_1_28 - t5_1_11*t5_1_12 + t5_1_11*t5_1_13 + t5_1_11*t5_1_30 + t5_1_11*t5_1_9 + 325650.0*t5_1_11 + t5_1_18*t5_1_27 + 91125.0*t5_1_18 - t5_1_19*t5_1_28 + t5_1_23*t5_1_24 - t5_1_23*t5_1_26 - t5_1_23*t5_1_39 + t5_1_24*t5_1_25 - t5_1_25*t5_1_26 - t5_1_25*t5_1_39 + t5_1_28*t5_1_30 - t5_1_3*t5_1_32 + t5_1_3*t5_1_37 + t5_1_3*t5_1_41 - t5_1_31*t5_1_40 - 6075.0*t5_1_31 - t5_1_32*t5_1_33 + t5_1_33*t5_1_37 + t5_1_33*t5_1_41 + 135.0*t5_1_36) / dt1
                 s1 = (c2*t5_1_17 + l3*t5_1_49 + pcx*t5_1_14 + pcx*t5_1_21 - pcy*pcy*pcy - pcy*t5_1_0 + pcy*t5_1_12 - pcy*t5_1_13 + pcy*t5_1_19 - pcy*t5_1_30 + pcy*t5_1_35 - pcy*t5_1_9 - 325650.0*pcy - r13*t5_1_22 - r23*t5_1_15 + r23*t5_1_16 - r23*t5_1_29 - r23*t5_1_38 + 14654250.0*r23 - s2*t5_1_10 + t5_1_0*t5_1_46 + t5_1_0*t5_1_7 - t5_1_12*t5_1_7 + t5_1_13*t5_1_7 - t5_1_19*t5_1_46 - t5_1_2*t5_1_47 + t5_1_2*t5_1_50 + t5_1_2*t5_1_52 + t5_1_25*t5_1_44 - t5_1_25*t5_1_45 - t5_1_25*t5_1_51 + t5_1_27*t5_1_42 + t5_1_30*t5_1_46 + t5_1_30*t5_1_7 - t5_1_33*t5_1_47 + t5_1_33*t5_1_50 + t5_1_33*t5_1_52 - t5_1_40*t5_1_48 + 91125.0*t5_1_42 + t5_1_43*t5_1_44 - t5_1_43*t5_1_45 - t5_1_43*t5_1_51 - 6075.0*t5_1_48 + 135.0*t5_1_49 + t5_1_7*t5_1_9 + 325650.0*t5_1_7) / dt1
-                wk1 = 1.0
+                hq1 = c1 * c1 + s1 * s1
+                if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free1 = False
+                    th1 = atan2(s1, c1)
+                elif abs(dt1) > 1.0:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free1 = True
+                    th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                    c1 = cos(th1)
+                    s1 = sin(th1)
             else:
                 t5_2_0 = pcx*pcx
                 t5_2_1 = pcy*pcy
@@ -548,24 +568,23 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt1) > 1e-12:
                     c1 = (4050.0*c2*pcx*r13*r23 + 34200.0*c2*pcy*r33 + c2*pcy*t5_2_0 + 2025.0*c2*pcy*t5_2_2 + c2*pcy*t5_2_20 + 2025.0*c2*pcy*t5_2_28 + 6075.0*c2*pcy*t5_2_4 + 4050.0*c2*pcz*r23*r33 + 34200.0*c2*pcz*r23 + 45.0*c2*r23*t5_2_19 + 1658250.0*c2*r23 + c2*t5_2_15 + 90.0*pcx*pcy*r23*s2 + 90.0*pcx*pcz*r33*s2 + 760.0*pcx*pcz*s2 + pcx*s2*t5_2_19 - 178750.0*pcy + 1539000.0*r13*r33*s2 + 135.0*r13*s2*t5_2_0 + 45.0*r13*s2*t5_2_1 + 45.0*r13*s2*t5_2_20 + 91125.0*r13*s2*t5_2_28 + 91125.0*r13*s2*t5_2_4 + 7848000.0*r13*s2 + 8043750.0*r23 + 91125.0*s2*t5_2_18 - s2*t5_2_8 - t5_2_0*t5_2_27 - t5_2_1*t5_2_7 - t5_2_10*t5_2_11 - t5_2_10*t5_2_29 - t5_2_12*t5_2_7 - t5_2_13*t5_2_14 - 45.0*t5_2_13*t5_2_19 - t5_2_16*t5_2_17 - t5_2_19*t5_2_6 - t5_2_2*t5_2_30 - t5_2_20*t5_2_27 - t5_2_20*t5_2_7 - t5_2_22*t5_2_6 - t5_2_23*t5_2_26 - t5_2_24*t5_2_6 - t5_2_25*t5_2_26 - t5_2_28*t5_2_30 - t5_2_31*t5_2_7 - t5_2_32*t5_2_7 - t5_2_5*t5_2_7 - t5_2_6*t5_2_9 - 36850.0*t5_2_6 - 174400.0*t5_2_7) / dt1
                     s1 = (-1658250.0*c2*r13 - c2*t5_2_8 + 178750.0*pcx - 4050.0*r13*r23*t5_2_7 - 8043750.0*r13 + 7848000.0*r23*s2 - s2*t5_2_15 - t5_2_0*t5_2_34 + 135.0*t5_2_0*t5_2_35 + t5_2_0*t5_2_43 - t5_2_1*t5_2_33 + t5_2_1*t5_2_41 + t5_2_11*t5_2_35 + t5_2_11*t5_2_36 - t5_2_12*t5_2_33 - t5_2_12*t5_2_34 - t5_2_14*t5_2_35 - t5_2_14*t5_2_36 + t5_2_16*t5_2_37 + t5_2_17*t5_2_18 + t5_2_19*t5_2_33 + t5_2_19*t5_2_34 + t5_2_2*t5_2_44 - t5_2_20*t5_2_33 - t5_2_20*t5_2_34 + t5_2_20*t5_2_41 + t5_2_20*t5_2_43 + t5_2_22*t5_2_34 + t5_2_23*t5_2_38 + t5_2_24*t5_2_34 - 4050.0*t5_2_25*t5_2_35 + t5_2_25*t5_2_38 + t5_2_28*t5_2_42 + t5_2_28*t5_2_44 + t5_2_29*t5_2_36 - t5_2_3*t5_2_34 - t5_2_31*t5_2_33 - t5_2_32*t5_2_33 - t5_2_32*t5_2_34 - t5_2_33*t5_2_5 + t5_2_33*t5_2_9 + 36850.0*t5_2_33 - 6075.0*t5_2_34*t5_2_4 + t5_2_34*t5_2_9 - 174400.0*t5_2_34 - t5_2_35*t5_2_39 - t5_2_35*t5_2_40 - t5_2_36*t5_2_39 - t5_2_36*t5_2_40 + t5_2_4*t5_2_42) / dt1
-                    wk1 = 1.0
+                    hq1 = c1 * c1 + s1 * s1
+                    if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free1 = False
+                        th1 = atan2(s1, c1)
+                    elif abs(dt1) > 1.0:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free1 = True
+                        th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                        c1 = cos(th1)
+                        s1 = sin(th1)
                 else:
-                    wk1 = None  # no form applies: the pair leaves th1 free
-
-        if wk1 is not None:
-            hq1 = c1 * c1 + s1 * s1
-            if abs(hq1 - 1.0) > 1e-4:
-                if abs(dt1) > wk1:
-                    continue
-                wk1 = None  # ill-conditioned near a singular pose: the pair does not fix it
-        if wk1 is None:
-            free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
-            c1 = cos(th1)
-            s1 = sin(th1)
-        else:
-            free1 = False
-            th1 = atan2(s1, c1)
+                    # no form applies: the pair leaves th1 free
+                    free1 = True
+                    th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                    c1 = cos(th1)
+                    s1 = sin(th1)
 
         # th4: from the sum of parallel-axis angles
         th4 =  - thp12m4 + th2 + th1

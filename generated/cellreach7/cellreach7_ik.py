@@ -536,7 +536,22 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
@@ -568,7 +583,22 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 if abs(dt2) > 1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
-                    wk2 = 1.0
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t9_2_0 = -g17_11*r32
                     t9_2_1 = -g17_12*r31
@@ -603,29 +633,28 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     if abs(dt2) > 9.999999999999999e-16:
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
-                        wk2 = 0.0009999999999999998
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 0.0009999999999999998:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g27_11 = c2*g17_11 - r31*s2
@@ -669,29 +698,28 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             if abs(dt5) > 1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
-                wk5 = 1e-08
-            else:
-                wk5 = None  # no form applies: the pair leaves th5 free
-
-            if wk5 is not None:
                 hq5 = c5 * c5 + s5 * s5
-                if abs(hq5 - 1.0) > 1e-4:
-                    if abs(dt5) > wk5:
-                        continue
-                    wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk5 is None:
+                if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free5 = False
+                    th5 = atan2(s5, c5)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq5 - 1.0) > 1e-15:
+                        hn5 = 1.0 / sqrt(hq5)
+                        c5 = c5 * hn5
+                        s5 = s5 * hn5
+                elif abs(dt5) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free5 = True
+                    th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                    c5 = cos(th5)
+                    s5 = sin(th5)
+            else:
+                # no form applies: the pair leaves th5 free
                 free5 = True
                 th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
-            else:
-                free5 = False
-                th5 = atan2(s5, c5)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq5 - 1.0) > 1e-15:
-                    hn5 = 1.0 / sqrt(hq5)
-                    c5 = c5 * hn5
-                    s5 = s5 * hn5
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g57_11 = c5*g47_11 + g37_31*s5
@@ -858,7 +886,22 @@ def inverse_joints(pose, given, current=None):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
@@ -890,7 +933,22 @@ def inverse_joints(pose, given, current=None):
                 if abs(dt2) > 1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
-                    wk2 = 1.0
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t9_2_0 = -g17_11*r32
                     t9_2_1 = -g17_12*r31
@@ -925,29 +983,28 @@ def inverse_joints(pose, given, current=None):
                     if abs(dt2) > 9.999999999999999e-16:
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
-                        wk2 = 0.0009999999999999998
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 0.0009999999999999998:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g27_11 = c2*g17_11 - r31*s2
@@ -991,29 +1048,28 @@ def inverse_joints(pose, given, current=None):
             if abs(dt5) > 1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
-                wk5 = 1e-08
-            else:
-                wk5 = None  # no form applies: the pair leaves th5 free
-
-            if wk5 is not None:
                 hq5 = c5 * c5 + s5 * s5
-                if abs(hq5 - 1.0) > 1e-4:
-                    if abs(dt5) > wk5:
-                        continue
-                    wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk5 is None:
+                if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free5 = False
+                    th5 = atan2(s5, c5)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq5 - 1.0) > 1e-15:
+                        hn5 = 1.0 / sqrt(hq5)
+                        c5 = c5 * hn5
+                        s5 = s5 * hn5
+                elif abs(dt5) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free5 = True
+                    th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                    c5 = cos(th5)
+                    s5 = sin(th5)
+            else:
+                # no form applies: the pair leaves th5 free
                 free5 = True
                 th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
-            else:
-                free5 = False
-                th5 = atan2(s5, c5)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq5 - 1.0) > 1e-15:
-                    hn5 = 1.0 / sqrt(hq5)
-                    c5 = c5 * hn5
-                    s5 = s5 * hn5
 
             # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
             g57_11 = c5*g47_11 + g37_31*s5

@@ -461,7 +461,22 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2
                 s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t6_1_0 = q1x*v1x
                 t6_1_1 = q1x*v1y
@@ -494,7 +509,22 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 9.999999999999999e-14:
                     c2 = (-q1y*t6_1_19 + 16000.0*q1y - 76000.0*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900.0*t6_1_10 - t6_1_11*t6_1_14 - 800.0*t6_1_11 + 7600.0*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900.0*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600.0*t6_1_8 + 80800.0*t6_1_9) / dt2
                     s2 = (76000.0*c3*t6_1_13 + q1x*t6_1_19 - 16000.0*q1x - 7600.0*t6_1_11 - t6_1_12*t6_1_14 - 800.0*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900.0*t6_1_24 + 72900.0*t6_1_25 - 80800.0*t6_1_8 + 7600.0*t6_1_9) / dt2
-                    wk2 = 0.09999999999999999
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 0.09999999999999999:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t6_2_0 = c3*s3
                     t6_2_1 = s3*s3
@@ -503,29 +533,28 @@ def _closed_form(pose, current, check_finite=True):
                     if abs(dt2) > 1e-16:
                         c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
                         s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
-                        wk2 = 9.999999999999999e-05
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 9.999999999999999e-05:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2x = c2*q1x + q1y*s2 - 200.0
@@ -556,29 +585,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt4) > 9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
-                wk4 = 9.999999999999999e-06
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 9.999999999999999e-06:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one)
             n1x = c1*r13 + r23*s1

@@ -557,29 +557,28 @@ def _closed_form(pose, current, check_finite=True):
         if abs(dt5) > 1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
-            wk5 = 9.999999999999999e-10
-        else:
-            wk5 = None  # no form applies: the pair leaves th5 free
-
-        if wk5 is not None:
             hq5 = c5 * c5 + s5 * s5
-            if abs(hq5 - 1.0) > 1e-4:
-                if abs(dt5) > wk5:
-                    continue
-                wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
-        if wk5 is None:
+            if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                free5 = False
+                th5 = atan2(s5, c5)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq5 - 1.0) > 1e-15:
+                    hn5 = 1.0 / sqrt(hq5)
+                    c5 = c5 * hn5
+                    s5 = s5 * hn5
+            elif abs(dt5) > 9.999999999999999e-10:
+                continue
+            else:  # ill-conditioned near a singular pose: the pair does not fix it
+                free5 = True
+                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                c5 = cos(th5)
+                s5 = sin(th5)
+        else:
+            # no form applies: the pair leaves th5 free
             free5 = True
             th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
-        else:
-            free5 = False
-            th5 = atan2(s5, c5)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq5 - 1.0) > 1e-15:
-                hn5 = 1.0 / sqrt(hq5)
-                c5 = c5 * hn5
-                s5 = s5 * hn5
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
@@ -633,29 +632,28 @@ def _closed_form(pose, current, check_finite=True):
         if abs(dt1) > 1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
-            wk1 = 1e-08
-        else:
-            wk1 = None  # no form applies: the pair leaves th1 free
-
-        if wk1 is not None:
             hq1 = c1 * c1 + s1 * s1
-            if abs(hq1 - 1.0) > 1e-4:
-                if abs(dt1) > wk1:
-                    continue
-                wk1 = None  # ill-conditioned near a singular pose: the pair does not fix it
-        if wk1 is None:
+            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                free1 = False
+                th1 = atan2(s1, c1)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq1 - 1.0) > 1e-15:
+                    hn1 = 1.0 / sqrt(hq1)
+                    c1 = c1 * hn1
+                    s1 = s1 * hn1
+            elif abs(dt1) > 1e-08:
+                continue
+            else:  # ill-conditioned near a singular pose: the pair does not fix it
+                free1 = True
+                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                c1 = cos(th1)
+                s1 = sin(th1)
+        else:
+            # no form applies: the pair leaves th1 free
             free1 = True
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
-        else:
-            free1 = False
-            th1 = atan2(s1, c1)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-15:
-                hn1 = 1.0 / sqrt(hq1)
-                c1 = c1 * hn1
-                s1 = s1 * hn1
 
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1
@@ -801,29 +799,28 @@ def inverse_joints(pose, current=None):
         if abs(dt5) > 1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
-            wk5 = 9.999999999999999e-10
-        else:
-            wk5 = None  # no form applies: the pair leaves th5 free
-
-        if wk5 is not None:
             hq5 = c5 * c5 + s5 * s5
-            if abs(hq5 - 1.0) > 1e-4:
-                if abs(dt5) > wk5:
-                    continue
-                wk5 = None  # ill-conditioned near a singular pose: the pair does not fix it
-        if wk5 is None:
+            if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                free5 = False
+                th5 = atan2(s5, c5)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq5 - 1.0) > 1e-15:
+                    hn5 = 1.0 / sqrt(hq5)
+                    c5 = c5 * hn5
+                    s5 = s5 * hn5
+            elif abs(dt5) > 9.999999999999999e-10:
+                continue
+            else:  # ill-conditioned near a singular pose: the pair does not fix it
+                free5 = True
+                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                c5 = cos(th5)
+                s5 = sin(th5)
+        else:
+            # no form applies: the pair leaves th5 free
             free5 = True
             th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
-        else:
-            free5 = False
-            th5 = atan2(s5, c5)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq5 - 1.0) > 1e-15:
-                hn5 = 1.0 / sqrt(hq5)
-                c5 = c5 * hn5
-                s5 = s5 * hn5
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
@@ -877,29 +874,28 @@ def inverse_joints(pose, current=None):
         if abs(dt1) > 1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
-            wk1 = 1e-08
-        else:
-            wk1 = None  # no form applies: the pair leaves th1 free
-
-        if wk1 is not None:
             hq1 = c1 * c1 + s1 * s1
-            if abs(hq1 - 1.0) > 1e-4:
-                if abs(dt1) > wk1:
-                    continue
-                wk1 = None  # ill-conditioned near a singular pose: the pair does not fix it
-        if wk1 is None:
+            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                free1 = False
+                th1 = atan2(s1, c1)
+                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                if abs(hq1 - 1.0) > 1e-15:
+                    hn1 = 1.0 / sqrt(hq1)
+                    c1 = c1 * hn1
+                    s1 = s1 * hn1
+            elif abs(dt1) > 1e-08:
+                continue
+            else:  # ill-conditioned near a singular pose: the pair does not fix it
+                free1 = True
+                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                c1 = cos(th1)
+                s1 = sin(th1)
+        else:
+            # no form applies: the pair leaves th1 free
             free1 = True
             th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
-        else:
-            free1 = False
-            th1 = atan2(s1, c1)
-            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-            if abs(hq1 - 1.0) > 1e-15:
-                hn1 = 1.0 / sqrt(hq1)
-                c1 = c1 * hn1
-                s1 = s1 * hn1
 
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1

@@ -439,7 +439,22 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
@@ -467,29 +482,28 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
-                    wk2 = 1.0
-                else:
-                    wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
                         continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
+                else:
+                    # no form applies: the pair leaves th2 free
+                    free2 = True
+                    th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r32*s2
@@ -525,29 +539,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 + g16_31*s4
@@ -709,7 +722,22 @@ def inverse_joints(pose, current=None):
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
-                wk2 = 0.0009999999999999998
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 0.0009999999999999998:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
@@ -737,29 +765,28 @@ def inverse_joints(pose, current=None):
                 if abs(dt2) > 1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
-                    wk2 = 1.0
-                else:
-                    wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 1.0:
                         continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
+                else:
+                    # no form applies: the pair leaves th2 free
+                    free2 = True
+                    th2 = (1.5707963267948966 + -0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r32*s2
@@ -795,29 +822,28 @@ def inverse_joints(pose, current=None):
             if abs(dt4) > 1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 + g16_31*s4

@@ -461,29 +461,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt4) > 1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g26_11 + g16_31*s4
@@ -678,29 +677,28 @@ def inverse_joints(pose, current=None):
             if abs(dt4) > 1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g26_11 + g16_31*s4

@@ -423,29 +423,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt6) > 1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
-                wk6 = 1e-08
-            else:
-                wk6 = None  # no form applies: the pair leaves th6 free
-
-            if wk6 is not None:
                 hq6 = c6 * c6 + s6 * s6
-                if abs(hq6 - 1.0) > 1e-4:
-                    if abs(dt6) > wk6:
-                        continue
-                    wk6 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk6 is None:
+                if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free6 = False
+                    th6 = atan2(s6, c6)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq6 - 1.0) > 1e-15:
+                        hn6 = 1.0 / sqrt(hq6)
+                        c6 = c6 * hn6
+                        s6 = s6 * hn6
+                elif abs(dt6) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free6 = True
+                    th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                    c6 = cos(th6)
+                    s6 = sin(th6)
+            else:
+                # no form applies: the pair leaves th6 free
                 free6 = True
                 th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
-            else:
-                free6 = False
-                th6 = atan2(s6, c6)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq6 - 1.0) > 1e-15:
-                    hn6 = 1.0 / sqrt(hq6)
-                    c6 = c6 * hn6
-                    s6 = s6 * hn6
 
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
             g05_11 = c6*r11 - r12*s6
@@ -500,24 +499,23 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
-                    wk2 = 0.0009999999999999998
-                else:
-                    wk2 = None  # no form applies: the pair leaves th2 free
-
-                if wk2 is not None:
                     hq2 = c2 * c2 + s2 * s2
-                    if abs(hq2 - 1.0) > 1e-4:
-                        if abs(dt2) > wk2:
-                            continue
-                        wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-                if wk2 is None:
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                    elif abs(dt2) > 0.0009999999999999998:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
+                else:
+                    # no form applies: the pair leaves th2 free
                     free2 = True
                     th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
-                else:
-                    free2 = False
-                    th2 = atan2(s2, c2)
 
                 # th4: from the sum of parallel-axis angles
                 th4 = thp234 - th3 - th2
@@ -629,29 +627,28 @@ def inverse_joints(pose, current=None):
             if abs(dt6) > 1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
-                wk6 = 1e-08
-            else:
-                wk6 = None  # no form applies: the pair leaves th6 free
-
-            if wk6 is not None:
                 hq6 = c6 * c6 + s6 * s6
-                if abs(hq6 - 1.0) > 1e-4:
-                    if abs(dt6) > wk6:
-                        continue
-                    wk6 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk6 is None:
+                if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free6 = False
+                    th6 = atan2(s6, c6)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq6 - 1.0) > 1e-15:
+                        hn6 = 1.0 / sqrt(hq6)
+                        c6 = c6 * hn6
+                        s6 = s6 * hn6
+                elif abs(dt6) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free6 = True
+                    th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                    c6 = cos(th6)
+                    s6 = sin(th6)
+            else:
+                # no form applies: the pair leaves th6 free
                 free6 = True
                 th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
-            else:
-                free6 = False
-                th6 = atan2(s6, c6)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq6 - 1.0) > 1e-15:
-                    hn6 = 1.0 / sqrt(hq6)
-                    c6 = c6 * hn6
-                    s6 = s6 * hn6
 
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
             g05_11 = c6*r11 - r12*s6
@@ -706,24 +703,23 @@ def inverse_joints(pose, current=None):
                 if abs(dt2) > 9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
-                    wk2 = 0.0009999999999999998
-                else:
-                    wk2 = None  # no form applies: the pair leaves th2 free
-
-                if wk2 is not None:
                     hq2 = c2 * c2 + s2 * s2
-                    if abs(hq2 - 1.0) > 1e-4:
-                        if abs(dt2) > wk2:
-                            continue
-                        wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-                if wk2 is None:
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                    elif abs(dt2) > 0.0009999999999999998:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
+                else:
+                    # no form applies: the pair leaves th2 free
                     free2 = True
                     th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
-                else:
-                    free2 = False
-                    th2 = atan2(s2, c2)
 
                 # th4: from the sum of parallel-axis angles
                 th4 = thp234 - th3 - th2

@@ -444,7 +444,22 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt2) > 1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
-                wk2 = 9.999999999999999e-10
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 9.999999999999999e-10:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_13*v1y
                 t7_1_1 = g16_24*v1x
@@ -478,7 +493,22 @@ def _closed_form(pose, current, check_finite=True):
                 if abs(dt2) > 1e-21:
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
-                    wk2 = 9.999999999999999e-10
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 9.999999999999999e-10:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t7_2_0 = c1*c3
                     t7_2_1 = c1*s3
@@ -499,29 +529,28 @@ def _closed_form(pose, current, check_finite=True):
                     if abs(dt2) > 1e-21:
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
-                        wk2 = 9.999999999999999e-10
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 9.999999999999999e-10:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r31*s2
@@ -557,29 +586,28 @@ def _closed_form(pose, current, check_finite=True):
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 - g16_31*s4
@@ -744,7 +772,22 @@ def inverse_joints(pose, current=None):
             if abs(dt2) > 1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
-                wk2 = 9.999999999999999e-10
+                hq2 = c2 * c2 + s2 * s2
+                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free2 = False
+                    th2 = atan2(s2, c2)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq2 - 1.0) > 1e-15:
+                        hn2 = 1.0 / sqrt(hq2)
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
+                elif abs(dt2) > 9.999999999999999e-10:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free2 = True
+                    th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                    c2 = cos(th2)
+                    s2 = sin(th2)
             else:
                 t7_1_0 = g16_13*v1y
                 t7_1_1 = g16_24*v1x
@@ -778,7 +821,22 @@ def inverse_joints(pose, current=None):
                 if abs(dt2) > 1e-21:
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
-                    wk2 = 9.999999999999999e-10
+                    hq2 = c2 * c2 + s2 * s2
+                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        free2 = False
+                        th2 = atan2(s2, c2)
+                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                        if abs(hq2 - 1.0) > 1e-15:
+                            hn2 = 1.0 / sqrt(hq2)
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
+                    elif abs(dt2) > 9.999999999999999e-10:
+                        continue
+                    else:  # ill-conditioned near a singular pose: the pair does not fix it
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
                 else:
                     t7_2_0 = c1*c3
                     t7_2_1 = c1*s3
@@ -799,29 +857,28 @@ def inverse_joints(pose, current=None):
                     if abs(dt2) > 1e-21:
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
-                        wk2 = 9.999999999999999e-10
+                        hq2 = c2 * c2 + s2 * s2
+                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                            free2 = False
+                            th2 = atan2(s2, c2)
+                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                            if abs(hq2 - 1.0) > 1e-15:
+                                hn2 = 1.0 / sqrt(hq2)
+                                c2 = c2 * hn2
+                                s2 = s2 * hn2
+                        elif abs(dt2) > 9.999999999999999e-10:
+                            continue
+                        else:  # ill-conditioned near a singular pose: the pair does not fix it
+                            free2 = True
+                            th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                            c2 = cos(th2)
+                            s2 = sin(th2)
                     else:
-                        wk2 = None  # no form applies: the pair leaves th2 free
-
-            if wk2 is not None:
-                hq2 = c2 * c2 + s2 * s2
-                if abs(hq2 - 1.0) > 1e-4:
-                    if abs(dt2) > wk2:
-                        continue
-                    wk2 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk2 is None:
-                free2 = True
-                th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
-                c2 = cos(th2)
-                s2 = sin(th2)
-            else:
-                free2 = False
-                th2 = atan2(s2, c2)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                        # no form applies: the pair leaves th2 free
+                        free2 = True
+                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        c2 = cos(th2)
+                        s2 = sin(th2)
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             g26_11 = c2*g16_11 + r31*s2
@@ -857,29 +914,28 @@ def inverse_joints(pose, current=None):
             if abs(dt4) > 1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
-                wk4 = 1e-08
-            else:
-                wk4 = None  # no form applies: the pair leaves th4 free
-
-            if wk4 is not None:
                 hq4 = c4 * c4 + s4 * s4
-                if abs(hq4 - 1.0) > 1e-4:
-                    if abs(dt4) > wk4:
-                        continue
-                    wk4 = None  # ill-conditioned near a singular pose: the pair does not fix it
-            if wk4 is None:
+                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    free4 = False
+                    th4 = atan2(s4, c4)
+                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
+                    if abs(hq4 - 1.0) > 1e-15:
+                        hn4 = 1.0 / sqrt(hq4)
+                        c4 = c4 * hn4
+                        s4 = s4 * hn4
+                elif abs(dt4) > 1e-08:
+                    continue
+                else:  # ill-conditioned near a singular pose: the pair does not fix it
+                    free4 = True
+                    th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                    c4 = cos(th4)
+                    s4 = sin(th4)
+            else:
+                # no form applies: the pair leaves th4 free
                 free4 = True
                 th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
-            else:
-                free4 = False
-                th4 = atan2(s4, c4)
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
             g46_11 = c4*g36_11 - g16_31*s4
