@@ -85,13 +85,6 @@ int canted6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
                     canted6_ik_f32_solution solutions[CANTED6_IK_F32_MAX_SOLUTIONS],
                     canted6_ik_f32_status *status);
 
-/* The readings of every closed-form solution and nothing else, in the order of _inverse with
- * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
- * call. Writes at most CANTED6_IK_F32_MAX_SOLUTIONS rows and returns their number; 0 when the pose
- * is out of reach or invalid (use _inverse for the status). */
-int canted6_ik_f32_inverse_joints(const float pose[16], const float *current,
-                    float joints[CANTED6_IK_F32_MAX_SOLUTIONS][CANTED6_IK_F32_JOINTS]);
-
 /* sqrt(sum_j w_j (a_j - b_j)^2) in reading units; `weights` may be NULL (all 1). */
 float canted6_ik_f32_distance(const float a[CANTED6_IK_F32_JOINTS], const float b[CANTED6_IK_F32_JOINTS],
                     const float *weights);

@@ -93,13 +93,6 @@ int cellreach7_ik_f32_inverse_rp(const float position[3], const float rotation[9
                     cellreach7_ik_f32_solution solutions[CELLREACH7_IK_F32_MAX_SOLUTIONS],
                     cellreach7_ik_f32_status *status);
 
-/* The readings of every closed-form solution and nothing else, in the order of _inverse with
- * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
- * call. Writes at most CELLREACH7_IK_F32_MAX_SOLUTIONS rows and returns their number; 0 when the pose
- * is out of reach or invalid (use _inverse for the status). */
-int cellreach7_ik_f32_inverse_joints(const float pose[16], float given, const float *current,
-                    float joints[CELLREACH7_IK_F32_MAX_SOLUTIONS][CELLREACH7_IK_F32_JOINTS]);
-
 /* sqrt(sum_j w_j (a_j - b_j)^2) in reading units; `weights` may be NULL (all 1). */
 float cellreach7_ik_f32_distance(const float a[CELLREACH7_IK_F32_JOINTS], const float b[CELLREACH7_IK_F32_JOINTS],
                     const float *weights);

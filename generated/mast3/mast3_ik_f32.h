@@ -85,13 +85,6 @@ int mast3_ik_f32_inverse_rp(const float position[3], const float rotation[9],
                     mast3_ik_f32_solution solutions[MAST3_IK_F32_MAX_SOLUTIONS],
                     mast3_ik_f32_status *status);
 
-/* The readings of every closed-form solution and nothing else, in the order of _inverse with
- * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
- * call. Writes at most MAST3_IK_F32_MAX_SOLUTIONS rows and returns their number; 0 when the pose
- * is out of reach or invalid (use _inverse for the status). */
-int mast3_ik_f32_inverse_joints(const float pose[16], const float *current,
-                    float joints[MAST3_IK_F32_MAX_SOLUTIONS][MAST3_IK_F32_JOINTS]);
-
 /* The same for a point (world frame). */
 int mast3_ik_f32_inverse_point(const float point[3], const float *current, mast3_ik_f32_limits limits,
                     mast3_ik_f32_solution solutions[MAST3_IK_F32_MAX_SOLUTIONS],

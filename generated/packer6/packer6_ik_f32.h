@@ -86,13 +86,6 @@ int packer6_ik_f32_inverse_rp(const float position[3], const float rotation[9],
                     packer6_ik_f32_solution solutions[PACKER6_IK_F32_MAX_SOLUTIONS],
                     packer6_ik_f32_status *status);
 
-/* The readings of every closed-form solution and nothing else, in the order of _inverse with
- * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
- * call. Writes at most PACKER6_IK_F32_MAX_SOLUTIONS rows and returns their number; 0 when the pose
- * is out of reach or invalid (use _inverse for the status). */
-int packer6_ik_f32_inverse_joints(const float pose[16], const float *current,
-                    float joints[PACKER6_IK_F32_MAX_SOLUTIONS][PACKER6_IK_F32_JOINTS]);
-
 /* sqrt(sum_j w_j (a_j - b_j)^2) in reading units; `weights` may be NULL (all 1). */
 float packer6_ik_f32_distance(const float a[PACKER6_IK_F32_JOINTS], const float b[PACKER6_IK_F32_JOINTS],
                     const float *weights);

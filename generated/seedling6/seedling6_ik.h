@@ -89,7 +89,8 @@ int seedling6_ik_inverse_rp(const double position[3], const double rotation[9],
 /* The readings of every closed-form solution and nothing else, in the order of _inverse with
  * LIMITS_IGNORE (the same values): no labels, conditioning, flags or limits work, the fastest
  * call. Writes at most SEEDLING6_IK_MAX_SOLUTIONS rows and returns their number; 0 when the pose
- * is out of reach or invalid (use _inverse for the status). */
+ * is out of reach or invalid (use _inverse for the status). Double builds only: the float build,
+ * made for microcontrollers, keeps its flash to the full call. */
 int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                     double joints[SEEDLING6_IK_MAX_SOLUTIONS][SEEDLING6_IK_JOINTS]);
 
