@@ -398,10 +398,13 @@ class Solver:
             if seen:
                 scored = [item for item, same in zip(scored, proportional_rows([i[3] for i in scored], seen[-1][0]))
                           if not same]
-            options = [self.built_pair(item, key, built) for item in scored[:PAIR_BUILDS]]
-            options = [o for o in options if o is not None and not any(divides(old, o[1]) for _, old in seen)]
-            if not options:
+            # the numerators (the costly part) only for the pairs that tie on the rank's prefix
+            heads = [(item, self.pair_determinant(item, key, built)) for item in scored[:PAIR_BUILDS]]
+            heads = [(item, h) for item, h in heads if h is not None and not any(divides(old, h[1]) for _, old in seen)]
+            if not heads:
                 break
+            leading = min(h[0] for _, h in heads)
+            options = [self.built_pair(item, key, built) for item, h in heads if h[0] == leading]
             best = min(options, key=lambda o: o[0])
             _, det, cos_num, sin_num, det_values, one, two, item = best
             scored.remove(item)
@@ -469,21 +472,36 @@ class Solver:
                                    BranchPoint(name, sp.Symbol(f"sigma{key}"), meaning), n.equation.source)
         return None
 
-    def built_pair(self, item, key: str, built: dict):
-        """The symbolic form of a scored pair: (rank, det, cos_num, sin_num, det values, the two
-        linear equations, the item), or None when one of them is not linear symbolically."""
-        score, first, second, det_values = item
-        cache_key = (first.equation.number, second.equation.number)
+    def pair_determinant(self, item, key: str, built: dict):
+        """The first part of a scored pair's symbolic form: (rank prefix, det, the two linear
+        equations), or None when one of them is not linear symbolically. The prefix orders pairs
+        as the full rank does, up to the numerators' weight."""
+        score, first, second, _ = item
+        cache_key = ("det", first.equation.number, second.equation.number)
         if cache_key not in built:
             one, two = self.linear(first.equation, key), self.linear(second.equation, key)
             if one is None or two is None:
                 built[cache_key] = None
             else:
                 det = self.reduce(one.a * two.b - two.a * one.b)
+                built[cache_key] = ((score[0], score[1], len(det.free_symbols - self.constant_symbols)), det, one, two)
+        return built[cache_key]
+
+    def built_pair(self, item, key: str, built: dict):
+        """The symbolic form of a scored pair: (rank, det, cos_num, sin_num, det values, the two
+        linear equations, the item), or None when one of them is not linear symbolically."""
+        score, first, second, det_values = item
+        cache_key = (first.equation.number, second.equation.number)
+        if cache_key not in built:
+            found = self.pair_determinant(item, key, built)
+            if found is None:
+                built[cache_key] = None
+            else:
+                prefix, det, one, two = found
                 cos_num = self.reduce(one.c * two.b - two.c * one.b)
                 sin_num = self.reduce(one.a * two.c - two.a * one.c)
                 weight = sp.count_ops(det) + sp.count_ops(cos_num) + sp.count_ops(sin_num)
-                rank = (score[0], score[1], len(det.free_symbols - self.constant_symbols), weight) + score[2:]
+                rank = prefix + (weight,) + score[2:]
                 built[cache_key] = (rank, det, cos_num, sin_num, det_values, one, two, item)
         return built[cache_key]
 
