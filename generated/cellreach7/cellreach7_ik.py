@@ -750,16 +750,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
-            u6 = th6
-            u7 = th7
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 given,
                 u4 * 57.29577951308232,
                 u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
-                u7 * 57.29577951308232,
+                th6 * 57.29577951308232,
+                th7 * 57.29577951308232,
             )
             solutions.append(_new(Solution, (q, (
                 "bend_positive" if lm0 >= 0.0 else "bend_negative",
@@ -1094,16 +1092,14 @@ def inverse_joints(pose, given, current=None):
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
             u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
-            u6 = th6
-            u7 = th7
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 given,
                 u4 * 57.29577951308232,
                 u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
-                u7 * 57.29577951308232,
+                th6 * 57.29577951308232,
+                th7 * 57.29577951308232,
             )
             solutions.append(q)
 

@@ -680,16 +680,13 @@ def _closed_form(pose, current, check_finite=True):
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
-        u2 = th2
-        u3 = th3
-        u4 = th4
         u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
         u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
         q = (
             u1 * 57.29577951308232,
-            u2 * 57.29577951308232,
-            u3 * 57.29577951308232,
-            u4 * 57.29577951308232,
+            th2 * 57.29577951308232,
+            th3 * 57.29577951308232,
+            th4 * 57.29577951308232,
             u5 * 57.29577951308232,
             u6 * 57.29577951308232,
         )
@@ -709,7 +706,7 @@ def _closed_form(pose, current, check_finite=True):
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 u3 * 57.29577951308232,
-                u4 * 57.29577951308232,
+                th4 * 57.29577951308232,
                 u5 * 57.29577951308232,
                 u6 * 57.29577951308232,
             )
@@ -917,16 +914,13 @@ def inverse_joints(pose, current=None):
 
         # Joint readings, configuration labels, singular flag.
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
-        u2 = th2
-        u3 = th3
-        u4 = th4
         u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
         u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
         q = (
             u1 * 57.29577951308232,
-            u2 * 57.29577951308232,
-            u3 * 57.29577951308232,
-            u4 * 57.29577951308232,
+            th2 * 57.29577951308232,
+            th3 * 57.29577951308232,
+            th4 * 57.29577951308232,
             u5 * 57.29577951308232,
             u6 * 57.29577951308232,
         )
@@ -943,7 +937,7 @@ def inverse_joints(pose, current=None):
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 u3 * 57.29577951308232,
-                u4 * 57.29577951308232,
+                th4 * 57.29577951308232,
                 u5 * 57.29577951308232,
                 u6 * 57.29577951308232,
             )

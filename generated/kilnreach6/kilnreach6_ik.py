@@ -516,15 +516,13 @@ def _closed_form(pose, current, check_finite=True):
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            u5 = th5
-            u6 = th6
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 u3,
                 u4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
+                th5 * 57.29577951308232,
+                th6 * 57.29577951308232,
             )
             solutions.append(_new(Solution, (q, (
                 "reach_forward" if lm0 >= 0.0 else "reach_backward",
@@ -726,15 +724,13 @@ def inverse_joints(pose, current=None):
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
             u3 = (l3 - 0.0) * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            u5 = th5
-            u6 = th6
             q = (
                 u1 * 57.29577951308232,
                 u2 * 57.29577951308232,
                 u3,
                 u4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
+                th5 * 57.29577951308232,
+                th6 * 57.29577951308232,
             )
             solutions.append(q)
 

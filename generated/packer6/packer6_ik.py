@@ -674,15 +674,13 @@ def _closed_form(pose, current, check_finite=True):
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            u5 = th5
-            u6 = th6
             q = (
                 u1 * 1.0,
                 u2 * 1.0,
                 u3 * 1.0,
                 u4 * 1.0,
-                u5 * 1.0,
-                u6 * 1.0,
+                th5 * 1.0,
+                th6 * 1.0,
             )
             solutions.append(_new(Solution, (q, (
                 "reach_forward" if lm0 >= 0.0 else "reach_backward",
@@ -1030,15 +1028,13 @@ def inverse_joints(pose, current=None):
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            u5 = th5
-            u6 = th6
             q = (
                 u1 * 1.0,
                 u2 * 1.0,
                 u3 * 1.0,
                 u4 * 1.0,
-                u5 * 1.0,
-                u6 * 1.0,
+                th5 * 1.0,
+                th6 * 1.0,
             )
             solutions.append(q)
 
