@@ -4,7 +4,8 @@ For each demo arm: poses per second of
 - the generated numpy batch module (inverse_batch on N poses at once, with and without the
   conditioning measures),
 - the generated C solver through its cffi extension looping in C (inverse_many), on one thread
-  and split over one thread per CPU (threads=None; cffi releases the GIL in the C call),
+  and split over one thread per CPU (threads=None; cffi releases the GIL in the C call), with new
+  output arrays each call and refilling the arrays of an earlier call (out=),
 - the generated pure-Python solver called once per pose,
 all on the same seeded poses, all returning every closed-form solution (no joint-limit handling).
 The goal for the batch solver is at least 1,000,000 poses per second for the six-axis offset arm.
@@ -63,16 +64,23 @@ def main() -> None:
         bare_rate = best_rate(lambda: batch.inverse_batch(poses, conditioning=False), len(poses))
         c_rate = best_rate(lambda: solver.inverse_many(poses, limits="ignore", threads=1), len(poses))
         threaded_rate = best_rate(lambda: solver.inverse_many(poses, limits="ignore"), len(poses))
+        arrays = solver.inverse_many(poses, limits="ignore")
+        reused_rate = best_rate(lambda: solver.inverse_many(poses, limits="ignore", threads=1, out=arrays), len(poses))
+        reused_threads = best_rate(lambda: solver.inverse_many(poses, limits="ignore", out=arrays), len(poses))
         python_rate = best_rate(lambda: [module.inverse(p, limits="ignore") for p in lists], len(lists))
-        rows.append((arm.name, batch_rate, bare_rate, c_rate, threaded_rate, python_rate))
+        rows.append((arm.name, batch_rate, bare_rate, c_rate, threaded_rate, reused_rate, reused_threads,
+                     python_rate))
     cpus = os.cpu_count() or 1
     print(f"{'arm':<12} {'numpy batch':>13} {'batch, no cond.':>16} {'C loop (cffi)':>14} "
-          f"{f'C, {cpus} threads':>14} {'Python per pose':>16} {'batch/Python':>13} {'C/batch':>8}")
-    for name, batch_rate, bare_rate, c_rate, threaded_rate, python_rate in rows:
+          f"{f'C, {cpus} threads':>14} {'C, out=':>11} {f'C, {cpus} thr., out=':>17} {'Python per pose':>16} "
+          f"{'batch/Python':>13} {'C/batch':>8}")
+    for name, batch_rate, bare_rate, c_rate, threaded_rate, reused_rate, reused_threads, python_rate in rows:
         print(f"{name:<12} {batch_rate:>13,.0f} {bare_rate:>16,.0f} {c_rate:>14,.0f} {threaded_rate:>14,.0f} "
-              f"{python_rate:>16,.0f} {batch_rate / python_rate:>12.0f}x {c_rate / batch_rate:>7.1f}x")
+              f"{reused_rate:>11,.0f} {reused_threads:>17,.0f} {python_rate:>16,.0f} "
+              f"{batch_rate / python_rate:>12.0f}x {c_rate / batch_rate:>7.1f}x")
     print(f"poses per second (best of 3), {args.poses} seeded poses ({args.python_poses} for Python per pose); "
-          "every closed-form solution, no joint-limit handling; goals: numpy batch 1,000,000 poses/s, "
+          "every closed-form solution, no joint-limit handling; out=: inverse_many refilling the arrays of an "
+          "earlier call (new arrays cost a first touch of every page); goals: numpy batch 1,000,000 poses/s, "
           "cffi inverse_many 3,000,000 poses/s.")
     print(f"load average after: {os.getloadavg()[0]:.2f}")
 

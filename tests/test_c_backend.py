@@ -412,6 +412,27 @@ def test_inverse_many_threads_give_the_same_arrays(demos):
             solver.inverse_many(poses[:3], threads=bad)
 
 
+def test_inverse_many_refills_the_arrays_it_is_given(demos):
+    """inverse_many(..., out=arrays) writes into those arrays (the same objects come back) exactly
+    what a call with new arrays returns, every slot: stale values from a pose with more solutions
+    are zeroed. Arrays of another shape or type are a clear ValueError."""
+    demo = demos(DEMOS[0])
+    solver = demo.solver()
+    poses = demo.chain.poses(demo.regular_readings(500, seed=9))
+    poses[::7, :3, 3] += 10.0 * demo.arm.reach_scale()          # out of reach: rows of zeros
+    fresh = solver.inverse_many(poses, limits="ignore")
+    assert (fresh[1] == 0).sum() > 50 and fresh[1].sum() > 500
+    stale = tuple(np.full_like(a, 7) for a in fresh)
+    again = solver.inverse_many(poses, limits="ignore", out=stale)
+    assert all(a is b for a, b in zip(again, stale))
+    for a, b in zip(fresh, again):
+        assert np.array_equal(a, b)
+    for bad in (fresh[:3], fresh[0], (fresh[0][:10],) + fresh[1:], (fresh[0].astype(np.float32),) + fresh[1:],
+                (np.asfortranarray(fresh[0]),) + fresh[1:]):
+        with pytest.raises(ValueError, match="out"):
+            solver.inverse_many(poses, limits="ignore", out=bad)
+
+
 @pytest.mark.parametrize("stem", DEMOS)
 def test_c_and_python_agree_at_wrist_singular_poses(demos, stem):
     """Poses with joint 5 at its DH zero (wrist axes 4 and 6 aligned, a singular set, common
