@@ -144,7 +144,7 @@ _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 0.0174532925199
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
-CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
+CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (1024 to 16384 measured alike)
 
 def inverse_batch(poses, current=None, conditioning=True):
     """Every closed-form solution of N poses at once; see the module docstring.
@@ -160,7 +160,7 @@ def inverse_batch(poses, current=None, conditioning=True):
                          f"not {numpy.shape(current)}")
     joints = numpy.empty((n, RAW_SOLUTIONS, JOINT_COUNT))
     valid = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
-    labels = numpy.zeros((n, RAW_SOLUTIONS, len(LABEL_NAMES)), dtype=numpy.int8)
+    labels = numpy.empty((n, RAW_SOLUTIONS, len(LABEL_NAMES)), dtype=numpy.int8)
     singular = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
     want_conditioning = conditioning
     conditioning = numpy.empty((n, RAW_SOLUTIONS, len(CONDITION_NAMES))) if want_conditioning else None
@@ -171,46 +171,50 @@ def inverse_batch(poses, current=None, conditioning=True):
     for start in range(0, n, CHUNK):
         stop = min(start + CHUNK, n)
         m = stop - start
+        # the chunk's out_ arrays as views with the pose axis last (see _solve_chunk)
         _solve_chunk(poses[start:stop], None if current is None else current[start:stop],
-                     joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)),
-                     valid[start:stop].reshape((m,) + axes),
-                     labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)),
-                     singular[start:stop].reshape((m,) + axes),
-                     conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
+                     numpy.moveaxis(joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)), 0, -1),
+                     numpy.moveaxis(valid[start:stop].reshape((m,) + axes), 0, -1),
+                     numpy.moveaxis(labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)), 0, -1),
+                     numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
+                     numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
                      if want_conditioning else None)
-    invalid = ~valid[..., None]
-    numpy.copyto(joints, numpy.nan, where=invalid)
-    numpy.copyto(labels, 0, where=invalid)
+        ok = valid[start:stop]
+        if not ok.all():   # NaN readings and 0 labels where not valid (while the chunk is in cache)
+            invalid = ~ok[..., None]
+            numpy.copyto(joints[start:stop], numpy.nan, where=invalid)
+            numpy.copyto(labels[start:stop], 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
-    """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
+    """Fill the out_ arrays, views shaped (2, ..., 2[, k], n), for one chunk of n poses.
+
+    Every working array has the branch axes first and the pose axis last, (2, ..., 2, n) or a
+    broadcastable part of it: numpy's inner loops then run along the poses (with the poses first,
+    an operation that broadcasts over a branch axis of size 2 loops in steps of two, several
+    times slower)."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 1
-
-    def entry(row, col):
-        return poses[:, row, col].reshape(shape)
-
-    r11 = entry(0, 0)
-    r12 = entry(0, 1)
-    r13 = entry(0, 2)
-    px = entry(0, 3)
-    r21 = entry(1, 0)
-    r22 = entry(1, 1)
-    r23 = entry(1, 2)
-    py = entry(1, 3)
-    r31 = entry(2, 0)
-    r32 = entry(2, 1)
-    r33 = entry(2, 2)
-    pz = entry(2, 3)
+    entries = numpy.moveaxis(poses[:, :3, :], 0, -1).copy()   # (3, 4, n): each entry's n values contiguous
+    r11 = entries[0, 0]
+    r12 = entries[0, 1]
+    r13 = entries[0, 2]
+    px = entries[0, 3]
+    r21 = entries[1, 0]
+    r22 = entries[1, 1]
+    r23 = entries[1, 2]
+    py = entries[1, 3]
+    r31 = entries[2, 0]
+    r32 = entries[2, 1]
+    r33 = entries[2, 2]
+    pz = entries[2, 3]
     if current is None:
         hint = [float(z) for z in _ZERO]
     else:
-        dh = _ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
-        hint = [dh[:, k].reshape(shape) for k in range(JOINT_COUNT)]
+        dh = (_ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)).T.copy()
+        hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
-        valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
+        valid = numpy.abs(entries).max(axis=(0, 1)) <= LARGEST_ENTRY
         # base centre (where axes 1, 2, 3 meet) seen from the last DH frame: T^-1 b0
         bx = -px*r11 - py*r21 - pz*r31 + 0.3*r31
         by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
@@ -242,9 +246,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         free6 = (ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6) <= 1e-24
         th6, c6, s6, found6, dbl6, cnd6 = _circle_roots_axis(
-            ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09, 1, 2)
+            ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09, 0, 2)
         if numpy.any(free6):
-            first = numpy.arange(4).reshape(1, 4) == 0
+            first = numpy.arange(4).reshape(4, 1) == 0
             th6 = numpy.where(free6, (hint[5]), th6)
             c6 = numpy.where(free6, numpy.cos(th6), c6)
             s6 = numpy.where(free6, numpy.sin(th6), s6)
@@ -416,21 +420,27 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
         valid = valid & numpy.isfinite(((u1 + u2) + (u3 + u4)) + ((u5 + u6) + (cnd6 + cond2)))
-        out_joints[..., 0, 0] = u1 * 57.29577951308232
-        out_joints[..., 0, 1] = u2 * 57.29577951308232
-        out_joints[..., 0, 2] = u3 * 57.29577951308232
-        out_joints[..., 0, 3] = u4 * 57.29577951308232
-        out_joints[..., 0, 4] = u5 * 57.29577951308232
-        out_joints[..., 0, 5] = u6 * 57.29577951308232
-        out_valid[..., 0] = valid
-        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_singular[..., 0] = free6 | dbl6 | free5 | (root2 == 0.0) | free1
+        numpy.multiply(u1, 57.29577951308232, out=out_joints[..., 0, 0, :])
+
+        numpy.multiply(u2, 57.29577951308232, out=out_joints[..., 0, 1, :])
+
+        numpy.multiply(u3, 57.29577951308232, out=out_joints[..., 0, 2, :])
+
+        numpy.multiply(u4, 57.29577951308232, out=out_joints[..., 0, 3, :])
+
+        numpy.multiply(u5, 57.29577951308232, out=out_joints[..., 0, 4, :])
+
+        numpy.multiply(u6, 57.29577951308232, out=out_joints[..., 0, 5, :])
+
+        out_valid[..., 0, :] = valid
+        out_labels[..., 0, 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_singular[..., 0, :] = free6 | dbl6 | free5 | (root2 == 0.0) | free1
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cnd6[..., None]   # both mirrored solutions
-            out_conditioning[..., 1] = cond2[..., None]   # both mirrored solutions
+            out_conditioning[..., 0, :] = cnd6[..., None, :]   # both mirrored solutions
+            out_conditioning[..., 1, :] = cond2[..., None, :]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
-        out_valid[..., 1] = valid & (root2 > 0.0) & ~free1
+        out_valid[..., 1, :] = valid & (root2 > 0.0) & ~free1
         u1 = th1 + _PI
         u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
         u2 = -th2
@@ -438,12 +448,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u3 = th3 + _PI
         u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
 
-        out_joints[..., 1, 0] = u1 * 57.29577951308232
-        out_joints[..., 1, 1] = u2 * 57.29577951308232
-        out_joints[..., 1, 2] = u3 * 57.29577951308232
-        out_joints[..., 1, 3] = out_joints[..., 0, 3]
-        out_joints[..., 1, 4] = out_joints[..., 0, 4]
-        out_joints[..., 1, 5] = out_joints[..., 0, 5]
-        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, -1, 1)
-        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_singular[..., 1] = out_singular[..., 0]
+        numpy.multiply(u1, 57.29577951308232, out=out_joints[..., 1, 0, :])
+        numpy.multiply(u2, 57.29577951308232, out=out_joints[..., 1, 1, :])
+        numpy.multiply(u3, 57.29577951308232, out=out_joints[..., 1, 2, :])
+        out_joints[..., 1, 3, :] = out_joints[..., 0, 3, :]
+        out_joints[..., 1, 4, :] = out_joints[..., 0, 4, :]
+        out_joints[..., 1, 5, :] = out_joints[..., 0, 5, :]
+        out_labels[..., 1, 0, :] = numpy.where(lm0 >= 0.0, -1, 1)
+        out_labels[..., 1, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_singular[..., 1, :] = out_singular[..., 0, :]

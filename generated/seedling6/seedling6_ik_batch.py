@@ -42,7 +42,7 @@ _GAIN = numpy.array([1.0, 1.0, -1.0, 1.0, 1.0, 1.0, ])
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
-CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (measured best of 256..4096)
+CHUNK = 4096  # poses per vectorised pass: the working arrays stay in cache (1024 to 16384 measured alike)
 
 def inverse_batch(poses, current=None, conditioning=True):
     """Every closed-form solution of N poses at once; see the module docstring.
@@ -58,7 +58,7 @@ def inverse_batch(poses, current=None, conditioning=True):
                          f"not {numpy.shape(current)}")
     joints = numpy.empty((n, RAW_SOLUTIONS, JOINT_COUNT))
     valid = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
-    labels = numpy.zeros((n, RAW_SOLUTIONS, len(LABEL_NAMES)), dtype=numpy.int8)
+    labels = numpy.empty((n, RAW_SOLUTIONS, len(LABEL_NAMES)), dtype=numpy.int8)
     singular = numpy.empty((n, RAW_SOLUTIONS), dtype=bool)
     want_conditioning = conditioning
     conditioning = numpy.empty((n, RAW_SOLUTIONS, len(CONDITION_NAMES))) if want_conditioning else None
@@ -69,46 +69,50 @@ def inverse_batch(poses, current=None, conditioning=True):
     for start in range(0, n, CHUNK):
         stop = min(start + CHUNK, n)
         m = stop - start
+        # the chunk's out_ arrays as views with the pose axis last (see _solve_chunk)
         _solve_chunk(poses[start:stop], None if current is None else current[start:stop],
-                     joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)),
-                     valid[start:stop].reshape((m,) + axes),
-                     labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)),
-                     singular[start:stop].reshape((m,) + axes),
-                     conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),))
+                     numpy.moveaxis(joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)), 0, -1),
+                     numpy.moveaxis(valid[start:stop].reshape((m,) + axes), 0, -1),
+                     numpy.moveaxis(labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)), 0, -1),
+                     numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
+                     numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
                      if want_conditioning else None)
-    invalid = ~valid[..., None]
-    numpy.copyto(joints, numpy.nan, where=invalid)
-    numpy.copyto(labels, 0, where=invalid)
+        ok = valid[start:stop]
+        if not ok.all():   # NaN readings and 0 labels where not valid (while the chunk is in cache)
+            invalid = ~ok[..., None]
+            numpy.copyto(joints[start:stop], numpy.nan, where=invalid)
+            numpy.copyto(labels[start:stop], 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
-    """Fill the out_ arrays (shaped (n, 2, ..., 2[, k])) for one chunk of poses."""
+    """Fill the out_ arrays, views shaped (2, ..., 2[, k], n), for one chunk of n poses.
+
+    Every working array has the branch axes first and the pose axis last, (2, ..., 2, n) or a
+    broadcastable part of it: numpy's inner loops then run along the poses (with the poses first,
+    an operation that broadcasts over a branch axis of size 2 loops in steps of two, several
+    times slower)."""
     n = poses.shape[0]
-    shape = (n,) + (1,) * 2
-
-    def entry(row, col):
-        return poses[:, row, col].reshape(shape)
-
-    r11 = entry(0, 0)
-    r12 = entry(0, 1)
-    r13 = entry(0, 2)
-    px = entry(0, 3)
-    r21 = entry(1, 0)
-    r22 = entry(1, 1)
-    r23 = entry(1, 2)
-    py = entry(1, 3)
-    r31 = entry(2, 0)
-    r32 = entry(2, 1)
-    r33 = entry(2, 2)
-    pz = entry(2, 3)
+    entries = numpy.moveaxis(poses[:, :3, :], 0, -1).copy()   # (3, 4, n): each entry's n values contiguous
+    r11 = entries[0, 0]
+    r12 = entries[0, 1]
+    r13 = entries[0, 2]
+    px = entries[0, 3]
+    r21 = entries[1, 0]
+    r22 = entries[1, 1]
+    r23 = entries[1, 2]
+    py = entries[1, 3]
+    r31 = entries[2, 0]
+    r32 = entries[2, 1]
+    r33 = entries[2, 2]
+    pz = entries[2, 3]
     if current is None:
         hint = [float(z) for z in _ZERO]
     else:
-        dh = _ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
-        hint = [dh[:, k].reshape(shape) for k in range(JOINT_COUNT)]
+        dh = (_ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)).T.copy()
+        hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
-        valid = (numpy.abs(poses[:, :3, :]).max(axis=(1, 2)) <= LARGEST_ENTRY).reshape(shape)
+        valid = numpy.abs(entries).max(axis=(0, 1)) <= LARGEST_ENTRY
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         pcx = px - 0.02*r11 - 0.6
         pcy = py - 0.02*r21 - 0.25
@@ -129,7 +133,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         free1 = t3_0 <= 1e-21
         valid = valid & ~numpy.where(free1, 0 > 1e-21, 1.000000002*t3_0 < 0.0)
         root1 = numpy.sqrt(numpy.maximum(t3_0, 0.0))
-        sg1 = _SIGNS.reshape(1, 2, 1)
+        sg1 = _SIGNS.reshape(2, 1, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
         cn1 = root1*sg1*wx
         sn1 = root1*sg1*wy
@@ -163,7 +167,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         valid = valid & ~(er3 + 1.1442088000000001e-10 < 0.0)
         root3 = numpy.sqrt(numpy.maximum(er3, 0.0))
-        sg3 = _SIGNS.reshape(1, 1, 2)
+        sg3 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg3 < 0.0) & ((root3 == 0.0)))
         cn3 = 0.0238*ec3 + 0.238*root3*sg3
         sn3 = -0.238*ec3 + 0.0238*root3*sg3
@@ -356,23 +360,29 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
         valid = valid & numpy.isfinite((((u1 + u2) + u3) + (u4 + u5)) + ((u6 + cond1) + (cond3 + cond5)))
-        out_joints[..., 0, 0] = u1 * 1.0
-        out_joints[..., 0, 1] = u2 * 1.0
-        out_joints[..., 0, 2] = u3 * -1.0
-        out_joints[..., 0, 3] = u4 * 1.0
-        out_joints[..., 0, 4] = u5 * 1.0
-        out_joints[..., 0, 5] = u6 * 1.0
-        out_valid[..., 0] = valid
-        out_labels[..., 0, 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 0, 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 0, 2] = numpy.where(lm2 >= 0.0, 1, -1)
-        out_singular[..., 0] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
+        numpy.multiply(u1, 1.0, out=out_joints[..., 0, 0, :])
+
+        numpy.multiply(u2, 1.0, out=out_joints[..., 0, 1, :])
+
+        numpy.multiply(u3, -1.0, out=out_joints[..., 0, 2, :])
+
+        numpy.multiply(u4, 1.0, out=out_joints[..., 0, 3, :])
+
+        numpy.multiply(u5, 1.0, out=out_joints[..., 0, 4, :])
+
+        numpy.multiply(u6, 1.0, out=out_joints[..., 0, 5, :])
+
+        out_valid[..., 0, :] = valid
+        out_labels[..., 0, 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 0, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 0, 2, :] = numpy.where(lm2 >= 0.0, 1, -1)
+        out_singular[..., 0, :] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
         if out_conditioning is not None:
-            out_conditioning[..., 0] = cond1[..., None]   # both mirrored solutions
-            out_conditioning[..., 1] = cond3[..., None]   # both mirrored solutions
-            out_conditioning[..., 2] = cond5[..., None]   # both mirrored solutions
+            out_conditioning[..., 0, :] = cond1[..., None, :]   # both mirrored solutions
+            out_conditioning[..., 1, :] = cond3[..., None, :]   # both mirrored solutions
+            out_conditioning[..., 2, :] = cond5[..., None, :]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
-        out_valid[..., 1] = valid & (root5 > 0.0) & ~free4
+        out_valid[..., 1, :] = valid & (root5 > 0.0) & ~free4
         u4 = th4 + _PI
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = -th5
@@ -380,13 +390,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         u6 = th6 + _PI
         u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
 
-        out_joints[..., 1, 0] = out_joints[..., 0, 0]
-        out_joints[..., 1, 1] = out_joints[..., 0, 1]
-        out_joints[..., 1, 2] = out_joints[..., 0, 2]
-        out_joints[..., 1, 3] = u4 * 1.0
-        out_joints[..., 1, 4] = u5 * 1.0
-        out_joints[..., 1, 5] = u6 * 1.0
-        out_labels[..., 1, 0] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1, 1] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 1, 2] = numpy.where(lm2 >= 0.0, -1, 1)
-        out_singular[..., 1] = out_singular[..., 0]
+        out_joints[..., 1, 0, :] = out_joints[..., 0, 0, :]
+        out_joints[..., 1, 1, :] = out_joints[..., 0, 1, :]
+        out_joints[..., 1, 2, :] = out_joints[..., 0, 2, :]
+        numpy.multiply(u4, 1.0, out=out_joints[..., 1, 3, :])
+        numpy.multiply(u5, 1.0, out=out_joints[..., 1, 4, :])
+        numpy.multiply(u6, 1.0, out=out_joints[..., 1, 5, :])
+        out_labels[..., 1, 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
+        out_labels[..., 1, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
+        out_labels[..., 1, 2, :] = numpy.where(lm2 >= 0.0, -1, 1)
+        out_singular[..., 1, :] = out_singular[..., 0, :]
