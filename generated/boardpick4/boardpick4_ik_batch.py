@@ -179,8 +179,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         use = ~chosenp12m4
         cp12m4 = (r11) / dtp12m4
         sp12m4 = (r12) / dtp12m4
-        wkp12m4 = numpy.where(use, 0.0, 0.0)
-        dkp12m4 = dtp12m4
         chosenp12m4 = chosenp12m4 | use
         valid = valid & ~(numpy.abs(cp12m4 * cp12m4 + sp12m4 * sp12m4 - 1.0) > 1e-4)
         thp12m4 = numpy.arctan2(sp12m4, cp12m4)

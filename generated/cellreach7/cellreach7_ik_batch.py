@@ -367,8 +367,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         use = ~chosen7
         c7 = (g67_11) / dt7
         s7 = (-g67_12) / dt7
-        wk7 = numpy.where(use, 0.0, 0.0)
-        dk7 = dt7
         chosen7 = chosen7 | use
         valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - 1.0) > 1e-4)
         th7 = numpy.arctan2(s7, c7)

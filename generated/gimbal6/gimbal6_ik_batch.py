@@ -268,8 +268,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         use = ~chosen4
         c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4
         s4 = (-0.1*e1y - 0.0055) / dt4
-        wk4 = numpy.where(use, 0.0, 0.0)
-        dk4 = dt4
         chosen4 = chosen4 | use
         valid = valid & ~(numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
         th4 = numpy.arctan2(s4, c4)
@@ -397,8 +395,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         use = ~chosen3
         c3 = (0.8660254037844386*g23_11) / dt3
         s3 = (-g23_12) / dt3
-        wk3 = numpy.where(use, 0.0, 0.0)
-        dk3 = dt3
         chosen3 = chosen3 | use
         valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
         th3 = numpy.arctan2(s3, c3)

@@ -221,8 +221,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         use = ~chosenp234
         cp234 = (g14_11) / dtp234
         sp234 = (-g14_12) / dtp234
-        wkp234 = numpy.where(use, 0.0, 0.0)
-        dkp234 = dtp234
         chosenp234 = chosenp234 | use
         valid = valid & ~(numpy.abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4)
         thp234 = numpy.arctan2(sp234, cp234)

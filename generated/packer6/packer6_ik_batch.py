@@ -375,8 +375,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         use = ~chosen6
         c6 = (g56_11) / dt6
         s6 = (-g56_12) / dt6
-        wk6 = numpy.where(use, 0.0, 0.0)
-        dk6 = dt6
         chosen6 = chosen6 | use
         valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
         th6 = numpy.arctan2(s6, c6)
