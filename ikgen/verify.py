@@ -108,6 +108,14 @@ def contract_bound(measure: float) -> float:
     return ROUND_TRIP_TOLERANCE + NEAR_FACTOR * max(measure, NEAR_FLOOR)
 
 
+def contract_bounds(measures: np.ndarray) -> np.ndarray:
+    """contract_bound of each measure at once (the same arithmetic)."""
+    m = np.asarray(measures, dtype=float)
+    with np.errstate(divide="ignore"):
+        far = ROUND_TRIP_TOLERANCE + FAR_GAIN / m
+    return np.where(m >= CONTRACT_MEASURE, far, ROUND_TRIP_TOLERANCE + NEAR_FACTOR * np.maximum(m, NEAR_FLOOR))
+
+
 def band_of(measure: float) -> str:
     return next(label for label, low in BANDS if measure >= low)
 
@@ -123,17 +131,40 @@ def smallest_measure(solution) -> float:
     return min(values) if values else math.inf
 
 
+def smallest_measures(solutions: list) -> list:
+    """smallest_measure of each solution; one numpy reduction when every solution states the same
+    number of measures (a generated solver's always do), else solution by solution."""
+    if solutions and all(len(s) > 3 for s in solutions):
+        try:
+            table = np.array([s[3] for s in solutions], dtype=float)
+        except (TypeError, ValueError):
+            table = None
+        if table is not None and table.ndim == 2 and table.shape[1] > 0:
+            return table.min(axis=1).tolist()
+    return [smallest_measure(s) for s in solutions]
+
+
 def record_round_trips(result: "Verification", measures, pos, rot, scale: float) -> np.ndarray:
     """Enter round-trip errors into the bands; returns each error over its bound (the larger of
     position and rotation)."""
-    bounds = np.array([contract_bound(m) for m in measures])
-    share = np.maximum(np.asarray(pos) / (bounds * scale), np.asarray(rot) / bounds) if len(bounds) else np.zeros(0)
-    for m, p, r, k in zip(measures, pos, rot, share):
-        band = result.bands.setdefault(band_of(m), Band())
-        band.solutions += 1
-        band.worst_position = max(band.worst_position, float(p))
-        band.worst_rotation = max(band.worst_rotation, float(r))
-        band.worst_share = max(band.worst_share, float(k))
+    m = np.asarray(measures, dtype=float).reshape(-1)
+    if not len(m):
+        return np.zeros(0)
+    pos, rot = np.asarray(pos, dtype=float), np.asarray(rot, dtype=float)
+    bounds = contract_bounds(m)
+    share = np.maximum(pos / (bounds * scale), rot / bounds)
+    left = np.ones(len(m), dtype=bool)
+    for label, low in BANDS:                # each solution in the first band whose floor it reaches
+        inside = left & (m >= low)
+        left &= ~inside
+        if inside.any():
+            band = result.bands.setdefault(label, Band())
+            band.solutions += int(inside.sum())
+            band.worst_position = max(band.worst_position, float(pos[inside].max()))
+            band.worst_rotation = max(band.worst_rotation, float(rot[inside].max()))
+            band.worst_share = max(band.worst_share, float(share[inside].max()))
+    if left.any():                          # NaN: as band_of, no band takes it
+        raise ValueError("a conditioning measure is NaN")
     return share
 
 
@@ -267,7 +298,7 @@ def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: b
         result.counts[len(solutions)] = result.counts.get(len(solutions), 0) + 1
         per_sample[index] = len(solutions)
         all_joints += [list(s[0]) for s in solutions]
-        all_measures += [smallest_measure(s) for s in solutions]
+        all_measures += smallest_measures(solutions)
         if progress and time.perf_counter() - last_report > 0.5:
             sys.stderr.write(f"\r  verifying {index + 1}/{samples} samples")
             sys.stderr.flush()
@@ -282,7 +313,7 @@ def verify(arm: Arm, module, samples: int = 10000, seed: int = 2026, progress: b
     if strict.any():            # the headline figures: the solutions at m >= CONTRACT_MEASURE
         result.worst_position = float(pos[strict].max())
         result.worst_rotation = float(rot[strict].max())
-        bounds = np.array([contract_bound(m) for m in measures[strict]])
+        bounds = contract_bounds(measures[strict])
         position_over = bool((pos[strict] > bounds * scale).any())
         rotation_over = bool((rot[strict] > bounds).any())
     else:
@@ -505,7 +536,7 @@ def check_near_singular(arm: Arm, chain: NumericChain, module, result: Verificat
         solutions = [s for s in module.inverse(pose, *given_of(arm, moved), list(moved)) if np.all(np.isfinite(s[0]))]
         if solutions:
             pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
-            record_round_trips(result, [smallest_measure(s) for s in solutions], pos, rot, arm.reach_scale())
+            record_round_trips(result, smallest_measures(solutions), pos, rot, arm.reach_scale())
 
 
 def check_singular(arm: Arm, chain: NumericChain, module, rng, result: Verification, per_kind: int = 20):

@@ -199,3 +199,33 @@ def test_completeness_is_counted_over_all_samples_at_once(good):
     missing = check_completeness(arm, result, readings, distance, joints, np.array([2, 2, 0, 1]))
     assert (result.checked, result.complete) == (3, 1)
     assert [list(m) for m in missing] == [list(readings[1]), list(readings[2])]
+
+
+def test_band_bookkeeping_at_once_equals_solution_by_solution():
+    """record_round_trips and smallest_measures work on whole arrays; entered one solution at a
+    time with the scalar rules (contract_bound, band_of, smallest_measure) the bands are the same,
+    measures on every band floor and the contract's switch included."""
+    from ikgen.verify import (Band, Verification, band_of, contract_bound, record_round_trips,
+                              smallest_measure, smallest_measures)
+    rng = np.random.default_rng(5)
+    edges = [0.0, 1e-9, 1e-8, 1e-6, 1e-3, math.inf, 5e-7, 2e-3]
+    measures = np.concatenate([edges, 10.0 ** rng.uniform(-12, 1, 500)])
+    pos, rot = rng.uniform(0, 1e-6, len(measures)), rng.uniform(0, 1e-9, len(measures))
+    result = Verification(arm="a", samples=1, seed=0, position_tolerance=1e-7)
+    share = record_round_trips(result, list(measures), pos, rot, 100.0)
+    bands: dict = {}
+    for m, p, r in zip(measures, pos, rot):
+        bound = contract_bound(m)
+        k = max(p / (bound * 100.0), r / bound)
+        band = bands.setdefault(band_of(m), Band())
+        band.solutions += 1
+        band.worst_position = max(band.worst_position, p)
+        band.worst_rotation = max(band.worst_rotation, r)
+        band.worst_share = max(band.worst_share, k)
+    assert result.bands == bands and len(bands) == 4
+    assert share.tolist() == [max(p / (contract_bound(m) * 100.0), r / contract_bound(m))
+                              for m, p, r in zip(measures, pos, rot)]
+    solutions = [((0.0,), (), False, (a, b)) for a, b in rng.uniform(0, 1, (20, 2))]
+    assert smallest_measures(solutions) == [smallest_measure(s) for s in solutions]
+    odd = [((0.0,), (), False, ()), ((0.0,), (), False), ((0.0,), (), False, (0.5,))]
+    assert smallest_measures(odd) == [math.inf, math.inf, 0.5]
