@@ -41,6 +41,7 @@ CONDITION_NAMES = ("elbow_turn", )
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 _SIGNS = numpy.array([1.0, -1.0])
+_PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 1.0, 0.017453292519943295, ])
 
@@ -52,6 +53,7 @@ _E1 = numpy.array([1.0, 0.0, 0.0])
 _E2 = numpy.array([0.0, 1.0, 0.0])
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
+SAFE_ENTRY = 1e10  # as the per-pose solver's: a pose within this (norm of its entries) cannot overflow
 CHUNK = 2048  # poses per vectorised pass: the working arrays stay in cache (CPU time, 200,000 poses of benchtop6: 2,048 best, 1,024 and 4,096 5-10 % slower)
 
 def inverse_batch(poses, current=None, conditioning=True):
@@ -88,12 +90,11 @@ def inverse_batch(poses, current=None, conditioning=True):
                      numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
                      numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
                      if want_conditioning else None)
-        valid[start:stop] &= realisable[start:stop, None]
-        ok = valid[start:stop]
-        if not ok.all():   # NaN readings and 0 labels where not valid (while the chunk is in cache)
-            invalid = ~ok[..., None]
-            numpy.copyto(joints[start:stop], numpy.nan, where=invalid)
-            numpy.copyto(labels[start:stop], 0, where=invalid)
+        lost = ~realisable[start:stop]
+        if lost.any():   # a pose tilted off TARGET_AXIS: no valid solution
+            valid[start:stop][lost] = False
+            joints[start:stop][lost] = numpy.nan
+            labels[start:stop][lost] = 0
     return joints, valid, labels, singular, conditioning
 
 def _turned(c, s):
@@ -166,7 +167,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
-        valid = numpy.abs(entries).max(axis=(0, 1)) <= LARGEST_ENTRY
+        size = numpy.abs(entries).max(axis=(0, 1))
+        valid = size <= LARGEST_ENTRY
+        # every entry within SAFE_ENTRY / 4, so every pose's norm within SAFE_ENTRY (12 entries):
+        # as in the per-pose solver, no intermediate can overflow and the finite test below is skipped
+        safe = bool(size.max() <= 0.25 * SAFE_ENTRY) if n else True
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
         pcx = px - 30*r13
         pcy = py - 30*r23
@@ -380,17 +385,25 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = valid & (-1.8000000000000002e-07 <= u3) & (u3 <= 180.00000018)  # strokes define reach
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
-        valid = valid & numpy.isfinite(((u1 + u2) + u3) + (u4 + cond2))
-        numpy.multiply(u1, 57.29577951308232, out=out_joints[..., 0, :])
-
-        numpy.multiply(u2, 57.29577951308232, out=out_joints[..., 1, :])
-
-        out_joints[..., 2, :] = u3
-
-        numpy.multiply(u4, 57.29577951308232, out=out_joints[..., 3, :])
-
+        if not safe:
+            valid = valid & numpy.isfinite(((u1 + u2) + u3) + (u4 + cond2))
+        # readings written with blank added: -0.0 where valid (x + -0.0 is x, bit for bit, signed zeros
+        # included), NaN where not; labels times valid (0 where not valid)
+        blank = numpy.where(valid, -0.0, numpy.nan)
+        col = out_joints[..., 0, :]
+        numpy.multiply(u1, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 1, :]
+        numpy.multiply(u2, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 2, :]
+        numpy.add(u3, blank, out=col)
+        col = out_joints[..., 3, :]
+        numpy.multiply(u4, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
         out_valid[...] = valid
-        out_labels[..., 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
+        lab0 = numpy.where(lm0 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab0, valid, out=out_labels[..., 0, :])
         out_singular[...] = free3 | (root2 == 0.0) | free1
         if out_conditioning is not None:
             out_conditioning[..., 0, :] = cond2

@@ -39,12 +39,14 @@ GIVEN_JOINT = 3  # the joint whose readings the caller gives (1-based)
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 _SIGNS = numpy.array([1.0, -1.0])
+_PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, ])
 
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
+SAFE_ENTRY = 1e10  # as the per-pose solver's: a pose within this (norm of its entries) cannot overflow
 CHUNK = 2048  # poses per vectorised pass: the working arrays stay in cache (CPU time, 200,000 poses of benchtop6: 2,048 best, 1,024 and 4,096 5-10 % slower)
 
 def inverse_batch(poses, given, current=None, conditioning=True):
@@ -83,11 +85,6 @@ def inverse_batch(poses, given, current=None, conditioning=True):
                      numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
                      numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
                      if want_conditioning else None)
-        ok = valid[start:stop]
-        if not ok.all():   # NaN readings and 0 labels where not valid (while the chunk is in cache)
-            invalid = ~ok[..., None]
-            numpy.copyto(joints[start:stop], numpy.nan, where=invalid)
-            numpy.copyto(labels[start:stop], 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
@@ -118,7 +115,11 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
-        valid = numpy.abs(entries).max(axis=(0, 1)) <= LARGEST_ENTRY
+        size = numpy.abs(entries).max(axis=(0, 1))
+        valid = size <= LARGEST_ENTRY
+        # every entry within SAFE_ENTRY / 4, so every pose's norm within SAFE_ENTRY (12 entries):
+        # as in the per-pose solver, no intermediate can overflow and the finite test below is skipped
+        safe = bool(size.max() <= 0.25 * SAFE_ENTRY) if n else True
         given = numpy.ascontiguousarray(given)
         valid = valid & numpy.isfinite(given)   # a NaN or infinite reading of the given joint: no solution
         # target in the DH base frame (base and tool removed): base^-1 T tool^-1
@@ -390,32 +391,48 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
-        valid = valid & numpy.isfinite((((u1 + u2) + u3) + (u4 + u5)) + (((u6 + u7) + cond4) + (cond1 + cond6)))
-        numpy.multiply(u1, 57.29577951308232, out=out_joints[..., 0, 0, :])
-
-        numpy.multiply(u2, 57.29577951308232, out=out_joints[..., 0, 1, :])
-
-        numpy.multiply(u3, 1.0, out=out_joints[..., 0, 2, :])
-
-        numpy.multiply(u4, 57.29577951308232, out=out_joints[..., 0, 3, :])
-
-        numpy.multiply(u5, 57.29577951308232, out=out_joints[..., 0, 4, :])
-
-        numpy.multiply(u6, 57.29577951308232, out=out_joints[..., 0, 5, :])
-
-        numpy.multiply(u7, 57.29577951308232, out=out_joints[..., 0, 6, :])
-
+        if not safe:
+            valid = valid & numpy.isfinite((((u1 + u2) + u3) + (u4 + u5)) + (((u6 + u7) + cond4) + (cond1 + cond6)))
+        # readings written with blank added: -0.0 where valid (x + -0.0 is x, bit for bit, signed zeros
+        # included), NaN where not; labels times valid (0 where not valid)
+        blank = numpy.where(valid, -0.0, numpy.nan)
+        col = out_joints[..., 0, 0, :]
+        numpy.multiply(u1, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 1, :]
+        numpy.multiply(u2, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 2, :]
+        numpy.multiply(u3, 1.0, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 3, :]
+        numpy.multiply(u4, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 4, :]
+        numpy.multiply(u5, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 5, :]
+        numpy.multiply(u6, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 0, 6, :]
+        numpy.multiply(u7, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
         out_valid[..., 0, :] = valid
-        out_labels[..., 0, 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 0, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 0, 2, :] = numpy.where(lm2 >= 0.0, 1, -1)
+        lab0 = numpy.where(lm0 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab0, valid, out=out_labels[..., 0, 0, :])
+        lab1 = numpy.where(lm1 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab1, valid, out=out_labels[..., 0, 1, :])
+        lab2 = numpy.where(lm2 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab2, valid, out=out_labels[..., 0, 2, :])
         out_singular[..., 0, :] = (root4 == 0.0) | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5
         if out_conditioning is not None:
             out_conditioning[..., 0, :] = cond4[..., None, :]   # both mirrored solutions
             out_conditioning[..., 1, :] = cond1[..., None, :]   # both mirrored solutions
             out_conditioning[..., 2, :] = cond6[..., None, :]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
-        out_valid[..., 1, :] = valid & (root6 > 0.0) & ~free5
+        valid = valid & (root6 > 0.0) & ~free5
+        out_valid[..., 1, :] = valid
+        blank = numpy.where(valid, -0.0, numpy.nan)
         u5 = th5 + _PI
         u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
         u6 = -th6
@@ -423,14 +440,25 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         u7 = th7 + _PI
         u7 = u7 - _TWO_PI * (u7 > _PI) + _TWO_PI * (u7 <= -_PI)
 
-        out_joints[..., 1, 0, :] = out_joints[..., 0, 0, :]
-        out_joints[..., 1, 1, :] = out_joints[..., 0, 1, :]
-        out_joints[..., 1, 2, :] = out_joints[..., 0, 2, :]
-        out_joints[..., 1, 3, :] = out_joints[..., 0, 3, :]
-        numpy.multiply(u5, 57.29577951308232, out=out_joints[..., 1, 4, :])
-        numpy.multiply(u6, 57.29577951308232, out=out_joints[..., 1, 5, :])
-        numpy.multiply(u7, 57.29577951308232, out=out_joints[..., 1, 6, :])
-        out_labels[..., 1, 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1, 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
-        out_labels[..., 1, 2, :] = numpy.where(lm2 >= 0.0, -1, 1)
+        col = out_joints[..., 1, 0, :]
+        numpy.add(out_joints[..., 0, 0, :], blank, out=col)
+        col = out_joints[..., 1, 1, :]
+        numpy.add(out_joints[..., 0, 1, :], blank, out=col)
+        col = out_joints[..., 1, 2, :]
+        numpy.add(out_joints[..., 0, 2, :], blank, out=col)
+        col = out_joints[..., 1, 3, :]
+        numpy.add(out_joints[..., 0, 3, :], blank, out=col)
+        col = out_joints[..., 1, 4, :]
+        numpy.multiply(u5, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 1, 5, :]
+        numpy.multiply(u6, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 1, 6, :]
+        numpy.multiply(u7, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        numpy.multiply(lab0, valid, out=out_labels[..., 1, 0, :])
+        numpy.multiply(lab1, valid, out=out_labels[..., 1, 1, :])
+        numpy.multiply(lab2, valid, out=out_labels[..., 1, 2, :])
+        numpy.negative(out_labels[..., 1, 2, :], out=out_labels[..., 1, 2, :])
         out_singular[..., 1, :] = out_singular[..., 0, :]

@@ -38,12 +38,14 @@ CONDITION_NAMES = ("reach", "root_2", )
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 _SIGNS = numpy.array([1.0, -1.0])
+_PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, 0.017453292519943295, 1.0, ])
 
 TARGET = "point"  # what the arm is asked for: the position of the tool point (natural for this arm; no [target] in the file)
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
+SAFE_ENTRY = 1e10  # as the per-pose solver's: a pose within this (norm of its entries) cannot overflow
 CHUNK = 2048  # poses per vectorised pass: the working arrays stay in cache (CPU time, 200,000 poses of benchtop6: 2,048 best, 1,024 and 4,096 5-10 % slower)
 
 def inverse_batch(poses, current=None, conditioning=True):
@@ -79,11 +81,6 @@ def inverse_batch(poses, current=None, conditioning=True):
                      numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
                      numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
                      if want_conditioning else None)
-        ok = valid[start:stop]
-        if not ok.all():   # NaN readings and 0 labels where not valid (while the chunk is in cache)
-            invalid = ~ok[..., None]
-            numpy.copyto(joints[start:stop], numpy.nan, where=invalid)
-            numpy.copyto(labels[start:stop], 0, where=invalid)
     return joints, valid, labels, singular, conditioning
 
 def inverse_batch_point(points, current=None, conditioning=True):
@@ -124,7 +121,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow
-        valid = numpy.abs(entries).max(axis=(0, 1)) <= LARGEST_ENTRY
+        size = numpy.abs(entries).max(axis=(0, 1))
+        valid = size <= LARGEST_ENTRY
+        # every entry within SAFE_ENTRY / 4, so every pose's norm within SAFE_ENTRY (12 entries):
+        # as in the per-pose solver, no intermediate can overflow and the finite test below is skipped
+        safe = bool(size.max() <= 0.25 * SAFE_ENTRY) if n else True
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         q1y = 1500 - pz
 
@@ -194,16 +195,24 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = valid & (399.9999984 <= u3) & (u3 <= 2000.0000016)  # strokes define reach
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
-        valid = valid & numpy.isfinite(((u1 + u2) + u3) + (cond1 + cond2))
-        numpy.multiply(u1, 57.29577951308232, out=out_joints[..., 0, :])
-
-        numpy.multiply(u2, 57.29577951308232, out=out_joints[..., 1, :])
-
-        out_joints[..., 2, :] = u3
-
+        if not safe:
+            valid = valid & numpy.isfinite(((u1 + u2) + u3) + (cond1 + cond2))
+        # readings written with blank added: -0.0 where valid (x + -0.0 is x, bit for bit, signed zeros
+        # included), NaN where not; labels times valid (0 where not valid)
+        blank = numpy.where(valid, -0.0, numpy.nan)
+        col = out_joints[..., 0, :]
+        numpy.multiply(u1, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 1, :]
+        numpy.multiply(u2, 57.29577951308232, out=col)
+        numpy.add(col, blank, out=col)
+        col = out_joints[..., 2, :]
+        numpy.add(u3, blank, out=col)
         out_valid[...] = valid
-        out_labels[..., 0, :] = numpy.where(lm0 >= 0.0, 1, -1)
-        out_labels[..., 1, :] = numpy.where(lm1 >= 0.0, 1, -1)
+        lab0 = numpy.where(lm0 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab0, valid, out=out_labels[..., 0, :])
+        lab1 = numpy.where(lm1 >= 0.0, _PLUS, _MINUS)
+        numpy.multiply(lab1, valid, out=out_labels[..., 1, :])
         out_singular[...] = free1 | (root1 == 0.0) | free2 | (root2 == 0.0)
         if out_conditioning is not None:
             out_conditioning[..., 0, :] = cond1
