@@ -15,8 +15,15 @@ generate``/``verify``/``explain`` of a demo arm does not derive it again. Only s
 derivations are kept; a refusal is raised afresh each time. ``real_derive`` is the engine's own
 function, for the tests of determinism (``fresh_build``: derived and rendered from scratch).
 
-Derivations are not shared between processes through files: a pickled derivation comes back with
-some products re-evaluated (``-(a + b)`` as ``-a - b``), which changes its printed text.
+The test processes of one session (pytest-xdist's workers) share derivations and builds through
+pickle files in the folder named by IKGEN_TESTS_SHARE (tests/conftest.py makes it in the main
+process and removes it at the end): the first process to need an arm derives it and writes the
+file; another reads it instead of deriving again (if both need it at the same moment, both
+derive: nobody waits). Files are read with sympy's automatic evaluation off, so that every
+expression comes back exactly as it was stored: read with evaluation on, some products came back
+re-evaluated (``-(a + b)`` as ``-a - b``), which changed the report's printed text. With
+evaluation off, all the files of eight demo arms built from a read-back derivation were byte for
+byte those built from the original.
 
 The results are shared objects: a test must not change them (no test does; a derivation, a built
 file set, a loaded solver are read-only to the tests).
@@ -26,10 +33,15 @@ from __future__ import annotations
 
 import atexit
 import dataclasses
+import hashlib
+import os
+import pickle
 import shutil
 import tempfile
 from pathlib import Path
 from unittest import mock
+
+from sympy.core.parameters import evaluate
 
 import ikgen.cbuild
 import ikgen.engine
@@ -48,6 +60,39 @@ _ARMS: dict[Path, object] = {}
 _SCRATCH: list[Path] = []
 
 real_derive = ikgen.engine.derive
+SHARE_ENV = "IKGEN_TESTS_SHARE"     # the folder this session's test processes share (tests/conftest.py)
+
+
+def _share_file(kind: str, k: str) -> Path | None:
+    folder = os.environ.get(SHARE_ENV)
+    if not folder or not Path(folder).is_dir():
+        return None
+    return Path(folder) / f"{kind}-{hashlib.sha256(k.encode()).hexdigest()[:32]}.pickle"
+
+
+def _shared(kind: str, k: str, make):
+    """make(), or what another test process of this session stored for the same key."""
+    path = _share_file(kind, k)
+    if path is None:
+        return make()
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        data = None
+    if data is not None:
+        with evaluate(False):           # every sympy expression rebuilt as stored (see above)
+            return pickle.loads(data)
+    try:                                # the first process to claim the key writes it
+        os.close(os.open(f"{path}.lock", os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+        claimed = True
+    except FileExistsError:
+        claimed = False
+    value = make()
+    if claimed:
+        part = path.with_name(f"{path.name}.{os.getpid()}.part")
+        part.write_bytes(pickle.dumps(value))
+        os.replace(part, path)          # whole or absent: a reader never sees half a file
+    return value
 
 
 def key(arm) -> str:
@@ -68,7 +113,7 @@ def derivation(arm):
     their own."""
     k = key(dataclasses.replace(arm, source="", digest=""))
     if k not in _DERIVATIONS:
-        _DERIVATIONS[k] = real_derive(arm)
+        _DERIVATIONS[k] = _shared("derivation", k, lambda: real_derive(arm))
     return _DERIVATIONS[k]
 
 
@@ -83,8 +128,11 @@ def built(arm):
     """generate.build(arm), once per arm (its derivation from ``derivation``)."""
     k = key(arm)
     if k not in _BUILDS:
-        with mock.patch.object(ikgen.generate, "derive_arm", derivation):
-            _BUILDS[k] = build(arm)
+        def make():
+            with mock.patch.object(ikgen.generate, "derive_arm", derivation):
+                return build(arm)
+        _BUILDS[k] = _shared("build", k, make)
+        _DERIVATIONS.setdefault(key(dataclasses.replace(arm, source="", digest="")), _BUILDS[k].derivation)
     return _BUILDS[k]
 
 
