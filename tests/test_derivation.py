@@ -332,6 +332,24 @@ def test_building_twice_gives_identical_bytes(demos):
         assert first.files[path].encode("utf-8") == second.files[path].encode("utf-8"), path
 
 
+def test_a_derivation_read_back_with_evaluation_off_builds_the_same_bytes(demos):
+    """tests/shared.py shares derivations between the test processes as pickle files read with
+    sympy's evaluation off; what it reads must build every file byte for byte as the original."""
+    import pickle
+    from unittest import mock
+
+    import ikgen.generate
+    from sympy.core.parameters import evaluate
+    arm, first, _ = demos["packer6"]
+    with evaluate(False):
+        again = pickle.loads(pickle.dumps(first.derivation))
+    with mock.patch.object(ikgen.generate, "derive_arm", lambda _arm: again):
+        second = build(arm)
+    assert sorted(first.files) == sorted(second.files)
+    for path in first.files:
+        assert first.files[path] == second.files[path], path
+
+
 # ------------------------------------------------------------------ arms outside the family
 
 def benchtop_data() -> dict:
