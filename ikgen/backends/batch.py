@@ -3,10 +3,10 @@
 Each branch point of the plan becomes an array axis of size 2 (sign +1, -1), so every quantity
 broadcasts over (2, 2, ..., N) with no Python loop over poses or branches: the branch axes first,
 the pose axis last, so that numpy's inner loops run along the poses (with the poses first, every
-operation that broadcasts over a branch axis loops in steps of two: measured 1.4x slower over the
-whole solve). A mirrored branch adds an output axis (the solution and its mirror). Invalid branches (out of reach, double roots, the
-copy at a free joint) are masked, in exactly the per-pose solver's order, so the valid entries of
-a row are the per-pose solver's solutions.
+operation that broadcasts over a branch axis loops in steps of two; the whole solve took about 1.4x
+as long). A mirrored branch adds an output axis (the solution and its mirror). Invalid branches
+(out of reach, double roots, the copy at a free joint) are masked, in exactly the per-pose
+solver's order, so the valid entries of a row are the per-pose solver's solutions.
 """
 
 from __future__ import annotations
