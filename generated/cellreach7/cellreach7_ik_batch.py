@@ -74,17 +74,24 @@ def inverse_batch(poses, given, current=None, conditioning=True):
         current = numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)
         current = numpy.where(numpy.isfinite(current), current, 0.0)   # NaN or infinite: as no reading
     axes = (2, 2, 2)
-    for start in range(0, n, CHUNK):
-        stop = min(start + CHUNK, n)
-        m = stop - start
-        # the chunk's out_ arrays as views with the pose axis last (see _solve_chunk)
-        _solve_chunk(poses[start:stop], given[start:stop], None if current is None else current[start:stop],
-                     numpy.moveaxis(joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)), 0, -1),
-                     numpy.moveaxis(valid[start:stop].reshape((m,) + axes), 0, -1),
-                     numpy.moveaxis(labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)), 0, -1),
-                     numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
-                     numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
-                     if want_conditioning else None)
+    # ufunc buffers no longer than a chunk's pose axis: an operation whose operands broadcast then
+    # runs along each row of poses as it lies, where numpy's default buffer (8,192 values) made it
+    # copy the operands first (10 % of the instructions of a call); the caller's size is restored
+    previous = numpy.setbufsize(CHUNK)
+    try:
+        for start in range(0, n, CHUNK):
+            stop = min(start + CHUNK, n)
+            m = stop - start
+            # the chunk's out_ arrays as views with the pose axis last (see _solve_chunk)
+            _solve_chunk(poses[start:stop], given[start:stop], None if current is None else current[start:stop],
+                         numpy.moveaxis(joints[start:stop].reshape((m,) + axes + (JOINT_COUNT,)), 0, -1),
+                         numpy.moveaxis(valid[start:stop].reshape((m,) + axes), 0, -1),
+                         numpy.moveaxis(labels[start:stop].reshape((m,) + axes + (len(LABEL_NAMES),)), 0, -1),
+                         numpy.moveaxis(singular[start:stop].reshape((m,) + axes), 0, -1),
+                         numpy.moveaxis(conditioning[start:stop].reshape((m,) + axes + (len(CONDITION_NAMES),)), 0, -1)
+                         if want_conditioning else None)
+    finally:
+        numpy.setbufsize(previous)
     return joints, valid, labels, singular, conditioning
 
 def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_singular, out_conditioning):
