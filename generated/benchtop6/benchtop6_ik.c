@@ -309,7 +309,7 @@ static int closed_form(const double pose[16], const double *current,
             s3 = 6.3762497449500099e-11*sn3;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
                 const double t7_0_0 = 20.0*v1x;
@@ -405,7 +405,6 @@ static int closed_form(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                th2 = benchtop6_ik_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -443,15 +442,14 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5, c5, s5;
+            double th5 = 0.0, c5, s5;
             const double cn5 = g36_33;
             const double sn5 = root5;
-            th5 = benchtop6_ik_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
@@ -474,7 +472,6 @@ static int closed_form(const double pose[16], const double *current,
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
-                th4 = benchtop6_ik_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -496,7 +493,7 @@ static int closed_form(const double pose[16], const double *current,
             const double g56_12 = c5*g46_12 + g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -510,13 +507,17 @@ static int closed_form(const double pose[16], const double *current,
             if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
                 continue;
             }
-            th6 = benchtop6_ik_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = v1x + 25.0;
             const double lm1 = 62400.0*c3 + 5200.0*s3;
             const double lm2 = s5;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = benchtop6_ik_atan2(s2, c2);
+            th5 = benchtop6_ik_atan2(sn5, cn5);
+            if (!free4) th4 = benchtop6_ik_atan2(s4, c4);
+            th6 = benchtop6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
@@ -722,7 +723,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             s3 = 6.3762497449500099e-11*sn3;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
                 const double t7_0_0 = 20.0*v1x;
@@ -818,7 +819,6 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                th2 = benchtop6_ik_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -856,15 +856,14 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5, c5, s5;
+            double th5 = 0.0, c5, s5;
             const double cn5 = g36_33;
             const double sn5 = root5;
-            th5 = benchtop6_ik_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
@@ -887,7 +886,6 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
-                th4 = benchtop6_ik_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -909,7 +907,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             const double g56_12 = c5*g46_12 + g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -923,7 +921,6 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
                 continue;
             }
-            th6 = benchtop6_ik_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */
@@ -931,6 +928,11 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             (void)s3;
             (void)s5;
             (void)v1x;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = benchtop6_ik_atan2(s2, c2);
+            th5 = benchtop6_ik_atan2(sn5, cn5);
+            if (!free4) th4 = benchtop6_ik_atan2(s4, c4);
+            th6 = benchtop6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));

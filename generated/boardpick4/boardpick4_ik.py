@@ -144,15 +144,17 @@ def _readings(current):
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
 _ROWS = (list, tuple)
-_FLOATS = {float}
 
 def _pose_rows(pose):
     """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
     if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
         r0, r1, r2 = pose[0], pose[1], pose[2]
-        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
-                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
-            return (r0, r1, r2)
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
+            (a, b, c, d), (e, f, g, h), (i, j, k, m) = r0, r1, r2
+            # twelve identity tests: cheaper than a set of the entries' types
+            if type(a) is type(b) is type(c) is type(d) is type(e) is type(f) is type(g) is type(h) is \
+                    type(i) is type(j) is type(k) is type(m) is float:
+                return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()

@@ -482,7 +482,7 @@ static int closed_form(const double pose[16], const double *current,
         const int dbl3 = rd3[k3];
         const double cnd3 = rk3[k3];
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
             const double t4_0_0 = wx*wx;
@@ -511,7 +511,6 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            th1 = canted6_ik_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -549,7 +548,7 @@ static int closed_form(const double pose[16], const double *current,
         const double v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t6_0 + 0.5*wz - 150.0;
 
         /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+        double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
         int free2 = 1;
         {
             const double t7_0_0 = 20.0*v1y;
@@ -660,7 +659,6 @@ static int closed_form(const double pose[16], const double *current,
             c2 = cos(th2);
             s2 = sin(th2);
         } else {
-            th2 = canted6_ik_atan2(s2, c2);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -705,15 +703,14 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th5, c5, s5;
+        double th5 = 0.0, c5, s5;
         const double cn5 = g36_33;
         const double sn5 = root5;
-        th5 = canted6_ik_atan2(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
@@ -736,7 +733,6 @@ static int closed_form(const double pose[16], const double *current,
             c4 = cos(th4);
             s4 = sin(th4);
         } else {
-            th4 = canted6_ik_atan2(s4, c4);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -758,7 +754,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g56_12 = c5*g46_12 - g36_32*s5;
 
         /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+        double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
         int free6 = 1;
         {
 
@@ -772,13 +768,18 @@ static int closed_form(const double pose[16], const double *current,
         if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
             continue;
         }
-        th6 = canted6_ik_atan2(s6, c6);
 
         /* joint readings, configuration labels, singular flag */
 
         const double lm0 = v1x + 50.0;
         const double lm1 = 72746.133917892847*c3 - 5196.152422706632*s3;
         const double lm2 = s5;
+        /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+        if (!free1) th1 = canted6_ik_atan2(s1, c1);
+        if (!free2) th2 = canted6_ik_atan2(s2, c2);
+        th5 = canted6_ik_atan2(sn5, cn5);
+        if (!free4) th4 = canted6_ik_atan2(s4, c4);
+        th6 = canted6_ik_atan2(s6, c6);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
@@ -933,7 +934,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const int dbl3 = rd3[k3];
         const double cnd3 = rk3[k3];
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
             const double t4_0_0 = wx*wx;
@@ -962,7 +963,6 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            th1 = canted6_ik_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -1000,7 +1000,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const double v1z = 0.8660254037844386*s1*wx - 0.8660254037844386*t6_0 + 0.5*wz - 150.0;
 
         /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+        double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
         int free2 = 1;
         {
             const double t7_0_0 = 20.0*v1y;
@@ -1111,7 +1111,6 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             c2 = cos(th2);
             s2 = sin(th2);
         } else {
-            th2 = canted6_ik_atan2(s2, c2);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -1156,15 +1155,14 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th5, c5, s5;
+        double th5 = 0.0, c5, s5;
         const double cn5 = g36_33;
         const double sn5 = root5;
-        th5 = canted6_ik_atan2(sn5, cn5);
         c5 = cn5;
         s5 = sn5;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
@@ -1187,7 +1185,6 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             c4 = cos(th4);
             s4 = sin(th4);
         } else {
-            th4 = canted6_ik_atan2(s4, c4);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -1209,7 +1206,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const double g56_12 = c5*g46_12 - g36_32*s5;
 
         /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+        double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
         int free6 = 1;
         {
 
@@ -1223,7 +1220,6 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
             continue;
         }
-        th6 = canted6_ik_atan2(s6, c6);
 
         /* joint readings, configuration labels, singular flag */
         /* read only by the labels, which this entry does not compute */
@@ -1233,6 +1229,12 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         (void)v1x;
         (void)dbl3;
         (void)cnd3;
+        /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+        if (!free1) th1 = canted6_ik_atan2(s1, c1);
+        if (!free2) th2 = canted6_ik_atan2(s2, c2);
+        th5 = canted6_ik_atan2(sn5, cn5);
+        if (!free4) th4 = canted6_ik_atan2(s4, c4);
+        th6 = canted6_ik_atan2(s6, c6);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));

@@ -316,7 +316,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
                 const double t9_0_0 = 372.0*c4;
@@ -413,7 +413,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                th2 = cellreach7_ik_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -459,15 +458,14 @@ static int closed_form(const double pose[16], double given, const double *curren
             }
             const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th6, c6, s6;
+            double th6 = 0.0, c6, s6;
             const double cn6 = g47_33;
             const double sn6 = root6;
-            th6 = cellreach7_ik_atan2(sn6, cn6);
             c6 = cn6;
             s6 = sn6;
 
             /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+            double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
             int free5 = 1;
             {
 
@@ -490,7 +488,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {
-                th5 = cellreach7_ik_atan2(s5, c5);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -512,7 +509,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double g67_12 = c6*g57_12 - g47_32*s6;
 
             /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th7, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
+            double th7 = 0.0, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
             int free7 = 1;
             {
 
@@ -526,13 +523,17 @@ static int closed_form(const double pose[16], double given, const double *curren
             if (fabs(c7 * c7 + s7 * s7 - 1.0) > 0.0001) {
                 continue;
             }
-            th7 = cellreach7_ik_atan2(s7, c7);
 
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = s2;
             const double lm1 = s4;
             const double lm2 = s6;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = cellreach7_ik_atan2(s2, c2);
+            th6 = cellreach7_ik_atan2(sn6, cn6);
+            if (!free5) th5 = cellreach7_ik_atan2(s5, c5);
+            th7 = cellreach7_ik_atan2(s7, c7);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
@@ -741,7 +742,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
                 const double t9_0_0 = 372.0*c4;
@@ -838,7 +839,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                th2 = cellreach7_ik_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -884,15 +884,14 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             }
             const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th6, c6, s6;
+            double th6 = 0.0, c6, s6;
             const double cn6 = g47_33;
             const double sn6 = root6;
-            th6 = cellreach7_ik_atan2(sn6, cn6);
             c6 = cn6;
             s6 = sn6;
 
             /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+            double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
             int free5 = 1;
             {
 
@@ -915,7 +914,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {
-                th5 = cellreach7_ik_atan2(s5, c5);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -937,7 +935,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double g67_12 = c6*g57_12 - g47_32*s6;
 
             /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th7, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
+            double th7 = 0.0, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
             int free7 = 1;
             {
 
@@ -951,13 +949,17 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             if (fabs(c7 * c7 + s7 * s7 - 1.0) > 0.0001) {
                 continue;
             }
-            th7 = cellreach7_ik_atan2(s7, c7);
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */
             (void)s2;
             (void)s4;
             (void)s6;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = cellreach7_ik_atan2(s2, c2);
+            th6 = cellreach7_ik_atan2(sn6, cn6);
+            if (!free5) th5 = cellreach7_ik_atan2(s5, c5);
+            th7 = cellreach7_ik_atan2(s7, c7);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));

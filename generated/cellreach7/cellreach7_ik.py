@@ -143,15 +143,17 @@ def _readings(current):
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
 _ROWS = (list, tuple)
-_FLOATS = {float}
 
 def _pose_rows(pose):
     """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
     if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
         r0, r1, r2 = pose[0], pose[1], pose[2]
-        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
-                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
-            return (r0, r1, r2)
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
+            (a, b, c, d), (e, f, g, h), (i, j, k, m) = r0, r1, r2
+            # twelve identity tests: cheaper than a set of the entries' types
+            if type(a) is type(b) is type(c) is type(d) is type(e) is type(f) is type(g) is type(h) is \
+                    type(i) is type(j) is type(k) is type(m) is float:
+                return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -539,12 +541,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 hq2 = c2 * c2 + s2 * s2
                 if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free2 = False
-                    th2 = atan2(s2, c2)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq2 - 1.0) > 1e-15:
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
+                    th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif abs(dt2) > 0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -586,12 +588,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     hq2 = c2 * c2 + s2 * s2
                     if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                         free2 = False
-                        th2 = atan2(s2, c2)
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                         if abs(hq2 - 1.0) > 1e-15:
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
+                        th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif abs(dt2) > 1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -636,12 +638,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                         hq2 = c2 * c2 + s2 * s2
                         if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                             free2 = False
-                            th2 = atan2(s2, c2)
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                             if abs(hq2 - 1.0) > 1e-15:
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
+                            th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif abs(dt2) > 0.0009999999999999998:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -701,12 +703,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 hq5 = c5 * c5 + s5 * s5
                 if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free5 = False
-                    th5 = atan2(s5, c5)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq5 - 1.0) > 1e-15:
                         hn5 = 1.0 / sqrt(hq5)
                         c5 = c5 * hn5
                         s5 = s5 * hn5
+                    th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
                 elif abs(dt5) > 1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -737,7 +739,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue
-            th7 = atan2(s7, c7)
+            th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
 
@@ -803,9 +805,8 @@ def inverse_joints(pose, given, current=None):
     given = _real(given, "given")
     if given - given != 0.0:
         return []
-    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
-            + r33 * r33 + px * px + py * py + pz * pz)
-    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+    size = hypot(r11, r12, r13, px, r21, r22, r23, py, r31, r32, r33, pz)   # one call, no overflow
+    if not size <= 1e150:           # NaN, infinite, or beyond LARGEST_ENTRY
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
@@ -887,12 +888,12 @@ def inverse_joints(pose, given, current=None):
                 hq2 = c2 * c2 + s2 * s2
                 if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free2 = False
-                    th2 = atan2(s2, c2)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq2 - 1.0) > 1e-15:
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
+                    th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif abs(dt2) > 0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -934,12 +935,12 @@ def inverse_joints(pose, given, current=None):
                     hq2 = c2 * c2 + s2 * s2
                     if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                         free2 = False
-                        th2 = atan2(s2, c2)
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                         if abs(hq2 - 1.0) > 1e-15:
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
+                        th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif abs(dt2) > 1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -984,12 +985,12 @@ def inverse_joints(pose, given, current=None):
                         hq2 = c2 * c2 + s2 * s2
                         if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                             free2 = False
-                            th2 = atan2(s2, c2)
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                             if abs(hq2 - 1.0) > 1e-15:
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
+                            th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif abs(dt2) > 0.0009999999999999998:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -1049,12 +1050,12 @@ def inverse_joints(pose, given, current=None):
                 hq5 = c5 * c5 + s5 * s5
                 if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free5 = False
-                    th5 = atan2(s5, c5)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq5 - 1.0) > 1e-15:
                         hn5 = 1.0 / sqrt(hq5)
                         c5 = c5 * hn5
                         s5 = s5 * hn5
+                    th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
                 elif abs(dt5) > 1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -1085,7 +1086,7 @@ def inverse_joints(pose, given, current=None):
             hq7 = c7 * c7 + s7 * s7
             if abs(hq7 - 1.0) > 1e-4:
                 continue
-            th7 = atan2(s7, c7)
+            th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
@@ -1121,6 +1122,6 @@ def inverse_joints(pose, given, current=None):
                 )
                 solutions.append(q)
 
-    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+    if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [q for q in solutions if sum(q) - sum(q) == 0.0]

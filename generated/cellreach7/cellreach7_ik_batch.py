@@ -284,7 +284,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         weak2 = bad2 & (numpy.abs(dk2) <= wk2)  # ill-conditioned near a singular pose: free
         free2 = ~chosen2 | weak2
         valid = valid & ~(bad2 & ~weak2)
-        th2 = numpy.arctan2(s2, c2)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq2 = c2 * c2 + s2 * s2
         off2 = numpy.abs(hq2 - 1.0) > 1e-15
@@ -292,6 +291,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             hn2 = numpy.where(off2, 1.0 / numpy.sqrt(numpy.where(off2, hq2, 1.0)), 1.0)
             c2 = c2 * hn2
             s2 = s2 * hn2
+        th2 = numpy.arctan2(s2, c2)   # after the unit scaling, as the per-pose solvers
         if free2.any():
             th2 = numpy.where(free2, (hint[1]), th2)
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
@@ -347,7 +347,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         weak5 = bad5 & (numpy.abs(dk5) <= wk5)  # ill-conditioned near a singular pose: free
         free5 = ~chosen5 | weak5
         valid = valid & ~(bad5 & ~weak5)
-        th5 = numpy.arctan2(s5, c5)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq5 = c5 * c5 + s5 * s5
         off5 = numpy.abs(hq5 - 1.0) > 1e-15
@@ -355,6 +354,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
             c5 = c5 * hn5
             s5 = s5 * hn5
+        th5 = numpy.arctan2(s5, c5)   # after the unit scaling, as the per-pose solvers
         if free5.any():
             th5 = numpy.where(free5, (hint[4]), th5)
             c5 = numpy.where(free5, numpy.cos((hint[4])), c5)
@@ -377,7 +377,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         s7 = (-g67_12) / dt7
         chosen7 = chosen7 | use
         valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - 1.0) > 1e-4)
-        th7 = numpy.arctan2(s7, c7)
+        th7 = numpy.arctan2(s7, c7)   # after the unit scaling, as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -285,7 +285,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+            float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
                 const float t9_0_0 = 372.0f*c4;
@@ -382,7 +382,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                th2 = cellreach7_ik_f32_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -428,15 +427,14 @@ static int closed_form(const float pose[16], float given, const float *current,
             }
             const float root6 = er6 > 0.0f ? sqrtf(er6) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            float th6, c6, s6;
+            float th6 = 0.0f, c6, s6;
             const float cn6 = g47_33;
             const float sn6 = root6;
-            th6 = cellreach7_ik_f32_atan2(sn6, cn6);
             c6 = cn6;
             s6 = sn6;
 
             /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th5, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
+            float th5 = 0.0f, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
             int free5 = 1;
             {
 
@@ -459,7 +457,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                 c5 = cosf(th5);
                 s5 = sinf(th5);
             } else {
-                th5 = cellreach7_ik_f32_atan2(s5, c5);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -481,7 +478,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float g67_12 = c6*g57_12 - g47_32*s6;
 
             /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th7, c7 = 0.0f, s7 = 0.0f, dt7, wk7 = 0.0f;
+            float th7 = 0.0f, c7 = 0.0f, s7 = 0.0f, dt7, wk7 = 0.0f;
             int free7 = 1;
             {
 
@@ -495,13 +492,17 @@ static int closed_form(const float pose[16], float given, const float *current,
             if (fabsf(c7 * c7 + s7 * s7 - 1.0f) > 0.005f) {
                 continue;
             }
-            th7 = cellreach7_ik_f32_atan2(s7, c7);
 
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = s2;
             const float lm1 = s4;
             const float lm2 = s6;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = cellreach7_ik_f32_atan2(s2, c2);
+            th6 = cellreach7_ik_f32_atan2(sn6, cn6);
+            if (!free5) th5 = cellreach7_ik_f32_atan2(s5, c5);
+            th7 = cellreach7_ik_f32_atan2(s7, c7);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const float probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));

@@ -281,7 +281,7 @@ static int closed_form(const double pose[16], const double *current,
             const double v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
+            double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
                 const double t6_0_0 = 20.0*c3;
@@ -355,7 +355,6 @@ static int closed_form(const double pose[16], const double *current,
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
-                th2 = engraver5_ik_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -386,14 +385,13 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5, s5;
+            double th5 = 0.0, s5;
             const double cn5 = 60.0*ec5;
             const double sn5 = 60.0*root5;
-            th5 = engraver5_ik_atan2(sn5, cn5);
             s5 = 0.00027777777777777778*sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
                 const double t10_0_0 = 60.0*s5;
@@ -417,7 +415,6 @@ static int closed_form(const double pose[16], const double *current,
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
-                th4 = engraver5_ik_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -446,6 +443,10 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3;
             const double lm1 = 38000.0*c3 - 4000.0*s3;
             const double lm2 = c4*n3x + n1z*s4;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = engraver5_ik_atan2(s2, c2);
+            th5 = engraver5_ik_atan2(sn5, cn5);
+            if (!free4) th4 = engraver5_ik_atan2(s4, c4);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + root3) + (root1 + root5));

@@ -145,15 +145,17 @@ def _readings(current):
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
 _ROWS = (list, tuple)
-_FLOATS = {float}
 
 def _pose_rows(pose):
     """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
     if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
         r0, r1, r2 = pose[0], pose[1], pose[2]
-        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
-                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
-            return (r0, r1, r2)
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
+            (a, b, c, d), (e, f, g, h), (i, j, k, m) = r0, r1, r2
+            # twelve identity tests: cheaper than a set of the entries' types
+            if type(a) is type(b) is type(c) is type(d) is type(e) is type(f) is type(g) is type(h) is \
+                    type(i) is type(j) is type(k) is type(m) is float:
+                return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -464,12 +466,12 @@ def _closed_form(pose, current, check_finite=True):
                 hq2 = c2 * c2 + s2 * s2
                 if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free2 = False
-                    th2 = atan2(s2, c2)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq2 - 1.0) > 1e-15:
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
+                    th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif abs(dt2) > 0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -512,12 +514,12 @@ def _closed_form(pose, current, check_finite=True):
                     hq2 = c2 * c2 + s2 * s2
                     if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                         free2 = False
-                        th2 = atan2(s2, c2)
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                         if abs(hq2 - 1.0) > 1e-15:
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
+                        th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif abs(dt2) > 0.09999999999999999:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -536,12 +538,12 @@ def _closed_form(pose, current, check_finite=True):
                         hq2 = c2 * c2 + s2 * s2
                         if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                             free2 = False
-                            th2 = atan2(s2, c2)
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                             if abs(hq2 - 1.0) > 1e-15:
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
+                            th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif abs(dt2) > 9.999999999999999e-05:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -588,12 +590,12 @@ def _closed_form(pose, current, check_finite=True):
                 hq4 = c4 * c4 + s4 * s4
                 if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free4 = False
-                    th4 = atan2(s4, c4)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq4 - 1.0) > 1e-15:
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
+                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
                 elif abs(dt4) > 9.999999999999999e-06:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it

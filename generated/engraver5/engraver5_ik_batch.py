@@ -256,7 +256,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         weak2 = bad2 & (numpy.abs(dk2) <= wk2)  # ill-conditioned near a singular pose: free
         free2 = ~chosen2 | weak2
         valid = valid & ~(bad2 & ~weak2)
-        th2 = numpy.arctan2(s2, c2)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq2 = c2 * c2 + s2 * s2
         off2 = numpy.abs(hq2 - 1.0) > 1e-15
@@ -264,6 +263,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn2 = numpy.where(off2, 1.0 / numpy.sqrt(numpy.where(off2, hq2, 1.0)), 1.0)
             c2 = c2 * hn2
             s2 = s2 * hn2
+        th2 = numpy.arctan2(s2, c2)   # after the unit scaling, as the per-pose solvers
         if free2.any():
             th2 = numpy.where(free2, (hint[1]), th2)
             c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
@@ -304,7 +304,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         weak4 = bad4 & (numpy.abs(dk4) <= wk4)  # ill-conditioned near a singular pose: free
         free4 = ~chosen4 | weak4
         valid = valid & ~(bad4 & ~weak4)
-        th4 = numpy.arctan2(s4, c4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq4 = c4 * c4 + s4 * s4
         off4 = numpy.abs(hq4 - 1.0) > 1e-15
@@ -312,6 +311,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
             c4 = c4 * hn4
             s4 = s4 * hn4
+        th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
         if free4.any():
             th4 = numpy.where(free4, (hint[3]), th4)
             c4 = numpy.where(free4, numpy.cos((hint[3])), c4)

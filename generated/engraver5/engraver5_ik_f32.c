@@ -250,7 +250,7 @@ static int closed_form(const float pose[16], const float *current,
             const float v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+            float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
                 const float t6_0_0 = 20.0f*c3;
@@ -324,7 +324,6 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                th2 = engraver5_ik_f32_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -355,14 +354,13 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            float th5, s5;
+            float th5 = 0.0f, s5;
             const float cn5 = 60.0f*ec5;
             const float sn5 = 60.0f*root5;
-            th5 = engraver5_ik_f32_atan2(sn5, cn5);
             s5 = 0.000277777778f*sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+            float th4 = 0.0f, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
             int free4 = 1;
             {
                 const float t10_0_0 = 60.0f*s5;
@@ -386,7 +384,6 @@ static int closed_form(const float pose[16], const float *current,
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
-                th4 = engraver5_ik_f32_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -415,6 +412,10 @@ static int closed_form(const float pose[16], const float *current,
             const float lm0 = 20.0f*c2*c3 + 190.0f*c2*s3 + 200.0f*c2 + 190.0f*c3*s2 - 20.0f*s2*s3;
             const float lm1 = 38000.0f*c3 - 4000.0f*s3;
             const float lm2 = c4*n3x + n1z*s4;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = engraver5_ik_f32_atan2(s2, c2);
+            th5 = engraver5_ik_f32_atan2(sn5, cn5);
+            if (!free4) th4 = engraver5_ik_f32_atan2(s4, c4);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + root3) + (root1 + root5));

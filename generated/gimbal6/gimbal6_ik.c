@@ -499,7 +499,7 @@ static int closed_form(const double pose[16], const double *current,
         const double e1y = bx*s6 + by*c6;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
@@ -513,7 +513,6 @@ static int closed_form(const double pose[16], const double *current,
         if (fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
             continue;
         }
-        th4 = gimbal6_ik_atan2(s4, c4);
         /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
          * (elsewhere it is 1 to rounding, and the test is all it costs) */
         {
@@ -526,7 +525,7 @@ static int closed_form(const double pose[16], const double *current,
         }
 
         /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+        double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
         int free5 = 1;
         {
             const double t5_0_0 = 0.125*s4;
@@ -550,7 +549,6 @@ static int closed_form(const double pose[16], const double *current,
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
-            th5 = gimbal6_ik_atan2(s5, c5);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -606,15 +604,14 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th2, c2, s2;
+        double th2 = 0.0, c2, s2;
         const double cn2 = ec2;
         const double sn2 = root2;
-        th2 = gimbal6_ik_atan2(sn2, cn2);
         c2 = cn2;
         s2 = sn2;
 
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
 
@@ -637,7 +634,6 @@ static int closed_form(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            th1 = gimbal6_ik_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -659,7 +655,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g23_12 = c2*g13_12 + g03_32*s2;
 
         /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
+        double th3 = 0.0, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
         int free3 = 1;
         {
 
@@ -673,12 +669,17 @@ static int closed_form(const double pose[16], const double *current,
         if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
             continue;
         }
-        th3 = gimbal6_ik_atan2(s3, c3);
 
         /* joint readings, configuration labels, singular flag */
 
         const double lm0 = s2;
         const double lm1 = 0.8660254037844386*s5;
+        /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+        th4 = gimbal6_ik_atan2(s4, c4);
+        if (!free5) th5 = gimbal6_ik_atan2(s5, c5);
+        th2 = gimbal6_ik_atan2(sn2, cn2);
+        if (!free1) th1 = gimbal6_ik_atan2(s1, c1);
+        th3 = gimbal6_ik_atan2(s3, c3);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
@@ -842,7 +843,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         const double e1y = bx*s6 + by*c6;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+        double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
@@ -856,7 +857,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         if (fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
             continue;
         }
-        th4 = gimbal6_ik_atan2(s4, c4);
         /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
          * (elsewhere it is 1 to rounding, and the test is all it costs) */
         {
@@ -869,7 +869,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         }
 
         /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th5, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
+        double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
         int free5 = 1;
         {
             const double t5_0_0 = 0.125*s4;
@@ -893,7 +893,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
-            th5 = gimbal6_ik_atan2(s5, c5);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -949,15 +948,14 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th2, c2, s2;
+        double th2 = 0.0, c2, s2;
         const double cn2 = ec2;
         const double sn2 = root2;
-        th2 = gimbal6_ik_atan2(sn2, cn2);
         c2 = cn2;
         s2 = sn2;
 
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
+        double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
 
@@ -980,7 +978,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
-            th1 = gimbal6_ik_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -1002,7 +999,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         const double g23_12 = c2*g13_12 + g03_32*s2;
 
         /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        double th3, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
+        double th3 = 0.0, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
         int free3 = 1;
         {
 
@@ -1016,7 +1013,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
             continue;
         }
-        th3 = gimbal6_ik_atan2(s3, c3);
 
         /* joint readings, configuration labels, singular flag */
         /* read only by the labels, which this entry does not compute */
@@ -1024,6 +1020,12 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         (void)s5;
         (void)dbl6;
         (void)cnd6;
+        /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+        th4 = gimbal6_ik_atan2(s4, c4);
+        if (!free5) th5 = gimbal6_ik_atan2(s5, c5);
+        th2 = gimbal6_ik_atan2(sn2, cn2);
+        if (!free1) th1 = gimbal6_ik_atan2(s1, c1);
+        th3 = gimbal6_ik_atan2(s3, c3);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));

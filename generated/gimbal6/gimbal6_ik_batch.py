@@ -278,7 +278,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s4 = (-0.1*e1y - 0.0055) / dt4
         chosen4 = chosen4 | use
         valid = valid & ~(numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
-        th4 = numpy.arctan2(s4, c4)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq4 = c4 * c4 + s4 * s4
         off4 = numpy.abs(hq4 - 1.0) > 1e-15
@@ -286,6 +285,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
             c4 = c4 * hn4
             s4 = s4 * hn4
+        th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
 
         # th5 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen5 = numpy.zeros((), dtype=bool)
@@ -302,7 +302,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         weak5 = bad5 & (numpy.abs(dk5) <= wk5)  # ill-conditioned near a singular pose: free
         free5 = ~chosen5 | weak5
         valid = valid & ~(bad5 & ~weak5)
-        th5 = numpy.arctan2(s5, c5)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq5 = c5 * c5 + s5 * s5
         off5 = numpy.abs(hq5 - 1.0) > 1e-15
@@ -310,6 +309,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
             c5 = c5 * hn5
             s5 = s5 * hn5
+        th5 = numpy.arctan2(s5, c5)   # after the unit scaling, as the per-pose solvers
         if free5.any():
             th5 = numpy.where(free5, (hint[4]), th5)
             c5 = numpy.where(free5, numpy.cos((hint[4])), c5)
@@ -375,7 +375,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         weak1 = bad1 & (numpy.abs(dk1) <= wk1)  # ill-conditioned near a singular pose: free
         free1 = ~chosen1 | weak1
         valid = valid & ~(bad1 & ~weak1)
-        th1 = numpy.arctan2(s1, c1)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq1 = c1 * c1 + s1 * s1
         off1 = numpy.abs(hq1 - 1.0) > 1e-15
@@ -383,6 +382,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
             c1 = c1 * hn1
             s1 = s1 * hn1
+        th1 = numpy.arctan2(s1, c1)   # after the unit scaling, as the per-pose solvers
         if free1.any():
             th1 = numpy.where(free1, (hint[0]), th1)
             c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
@@ -405,7 +405,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s3 = (-g23_12) / dt3
         chosen3 = chosen3 | use
         valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
-        th3 = numpy.arctan2(s3, c3)
+        th3 = numpy.arctan2(s3, c3)   # after the unit scaling, as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

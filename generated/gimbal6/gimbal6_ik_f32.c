@@ -468,7 +468,7 @@ static int closed_form(const float pose[16], const float *current,
         const float e1y = bx*s6 + by*c6;
 
         /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+        float th4 = 0.0f, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
         int free4 = 1;
         {
 
@@ -482,7 +482,6 @@ static int closed_form(const float pose[16], const float *current,
         if (fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
             continue;
         }
-        th4 = gimbal6_ik_f32_atan2(s4, c4);
         /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
          * (elsewhere it is 1 to rounding, and the test is all it costs) */
         {
@@ -495,7 +494,7 @@ static int closed_form(const float pose[16], const float *current,
         }
 
         /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        float th5, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
+        float th5 = 0.0f, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
         int free5 = 1;
         {
             const float t5_0_0 = 0.125f*s4;
@@ -519,7 +518,6 @@ static int closed_form(const float pose[16], const float *current,
             c5 = cosf(th5);
             s5 = sinf(th5);
         } else {
-            th5 = gimbal6_ik_f32_atan2(s5, c5);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -575,15 +573,14 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        float th2, c2, s2;
+        float th2 = 0.0f, c2, s2;
         const float cn2 = ec2;
         const float sn2 = root2;
-        th2 = gimbal6_ik_f32_atan2(sn2, cn2);
         c2 = cn2;
         s2 = sn2;
 
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
+        float th1 = 0.0f, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
         int free1 = 1;
         {
 
@@ -606,7 +603,6 @@ static int closed_form(const float pose[16], const float *current,
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
-            th1 = gimbal6_ik_f32_atan2(s1, c1);
             /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
              * (elsewhere it is 1 to rounding, and the test is all it costs) */
             {
@@ -628,7 +624,7 @@ static int closed_form(const float pose[16], const float *current,
         const float g23_12 = c2*g13_12 + g03_32*s2;
 
         /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-        float th3, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
+        float th3 = 0.0f, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
         int free3 = 1;
         {
 
@@ -642,12 +638,17 @@ static int closed_form(const float pose[16], const float *current,
         if (fabsf(c3 * c3 + s3 * s3 - 1.0f) > 0.005f) {
             continue;
         }
-        th3 = gimbal6_ik_f32_atan2(s3, c3);
 
         /* joint readings, configuration labels, singular flag */
 
         const float lm0 = s2;
         const float lm1 = 0.866025404f*s5;
+        /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+        th4 = gimbal6_ik_f32_atan2(s4, c4);
+        if (!free5) th5 = gimbal6_ik_f32_atan2(s5, c5);
+        th2 = gimbal6_ik_f32_atan2(sn2, cn2);
+        if (!free1) th1 = gimbal6_ik_f32_atan2(s1, c1);
+        th3 = gimbal6_ik_f32_atan2(s3, c3);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
          * mirrored solution's values follow from these) */
         const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));

@@ -275,7 +275,7 @@ static int closed_form(const float pose[16], const float *current,
             const float v1x = c1*wx + s1*wy;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
+            float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
                 const float t7_0_0 = 290.0f*v1x;
@@ -330,7 +330,6 @@ static int closed_form(const float pose[16], const float *current,
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
-                th2 = inspector6_ik_f32_atan2(s2, c2);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -368,15 +367,14 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            float th5, c5, s5;
+            float th5 = 0.0f, c5, s5;
             const float cn5 = g36_33;
             const float sn5 = root5;
-            th5 = inspector6_ik_f32_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th4, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
+            float th4 = 0.0f, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
             int free4 = 1;
             {
 
@@ -399,7 +397,6 @@ static int closed_form(const float pose[16], const float *current,
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {
-                th4 = inspector6_ik_f32_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -421,7 +418,7 @@ static int closed_form(const float pose[16], const float *current,
             const float g56_12 = c5*g46_12 - g36_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
             int free6 = 1;
             {
 
@@ -435,13 +432,17 @@ static int closed_form(const float pose[16], const float *current,
             if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
                 continue;
             }
-            th6 = inspector6_ik_f32_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = v1x;
             const float lm1 = 92800.0f*c3;
             const float lm2 = s5;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            if (!free2) th2 = inspector6_ik_f32_atan2(s2, c2);
+            th5 = inspector6_ik_f32_atan2(sn5, cn5);
+            if (!free4) th4 = inspector6_ik_f32_atan2(s4, c4);
+            th6 = inspector6_ik_f32_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));

@@ -327,15 +327,14 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5, c5, s5;
+            double th5 = 0.0, c5, s5;
             const double cn5 = g26_33;
             const double sn5 = root5;
-            th5 = kilnreach6_ik_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
@@ -358,7 +357,6 @@ static int closed_form(const double pose[16], const double *current,
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
-                th4 = kilnreach6_ik_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -380,7 +378,7 @@ static int closed_form(const double pose[16], const double *current,
             const double g56_12 = c5*g46_12 - g26_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -394,7 +392,6 @@ static int closed_form(const double pose[16], const double *current,
             if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
                 continue;
             }
-            th6 = kilnreach6_ik_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
             /* a displacement outside its joint's stroke is no solution (strokes define reach) */
@@ -408,6 +405,10 @@ static int closed_form(const double pose[16], const double *current,
             const double lm0 = v1x;
             const double lm1 = s5;
             const double lm2 = -c2*v1y + s2*v1x;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            th5 = kilnreach6_ik_atan2(sn5, cn5);
+            if (!free4) th4 = kilnreach6_ik_atan2(s4, c4);
+            th6 = kilnreach6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
@@ -641,15 +642,14 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5, c5, s5;
+            double th5 = 0.0, c5, s5;
             const double cn5 = g26_33;
             const double sn5 = root5;
-            th5 = kilnreach6_ik_atan2(sn5, cn5);
             c5 = cn5;
             s5 = sn5;
 
             /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th4, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
+            double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
@@ -672,7 +672,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
-                th4 = kilnreach6_ik_atan2(s4, c4);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -694,7 +693,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             const double g56_12 = c5*g46_12 - g26_32*s5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -708,7 +707,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
                 continue;
             }
-            th6 = kilnreach6_ik_atan2(s6, c6);
 
             /* joint readings, configuration labels, singular flag */
             /* a displacement outside its joint's stroke is no solution (strokes define reach) */
@@ -724,6 +722,10 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             (void)s5;
             (void)v1x;
             (void)v1y;
+            /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+            th5 = kilnreach6_ik_atan2(sn5, cn5);
+            if (!free4) th4 = kilnreach6_ik_atan2(s4, c4);
+            th6 = kilnreach6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));

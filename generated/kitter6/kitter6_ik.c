@@ -285,7 +285,7 @@ static int closed_form(const double pose[16], const double *current,
             s5 = sn5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -308,7 +308,6 @@ static int closed_form(const double pose[16], const double *current,
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
-                th6 = kitter6_ik_atan2(s6, c6);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -416,6 +415,8 @@ static int closed_form(const double pose[16], const double *current,
                 const double lm0 = -78.0*g16_13 + g16_14;
                 const double lm1 = -97350.0*s3;
                 const double lm2 = s5;
+                /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+                if (!free6) th6 = kitter6_ik_atan2(s6, c6);
                 /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
                  * mirrored solution's values follow from these) */
                 const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
@@ -562,7 +563,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
             s5 = sn5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            double th6, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
+            double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
@@ -585,7 +586,6 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
-                th6 = kitter6_ik_atan2(s6, c6);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -694,6 +694,8 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 (void)g16_14;
                 (void)s3;
                 (void)s5;
+                /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+                if (!free6) th6 = kitter6_ik_atan2(s6, c6);
                 /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
                  * mirrored solution's values follow from these) */
                 const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));

@@ -136,15 +136,17 @@ def _readings(current):
     return tuple(v if v - v == 0.0 else 0.0 for v in _vector(current, JOINT_COUNT, "current"))
 
 _ROWS = (list, tuple)
-_FLOATS = {float}
 
 def _pose_rows(pose):
     """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
     if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
         r0, r1, r2 = pose[0], pose[1], pose[2]
-        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and \
-                len(r0) == 4 and len(r1) == 4 and len(r2) == 4 and {*map(type, r0), *map(type, r1), *map(type, r2)} == _FLOATS:
-            return (r0, r1, r2)
+        if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
+            (a, b, c, d), (e, f, g, h), (i, j, k, m) = r0, r1, r2
+            # twelve identity tests: cheaper than a set of the entries' types
+            if type(a) is type(b) is type(c) is type(d) is type(e) is type(f) is type(g) is type(h) is \
+                    type(i) is type(j) is type(k) is type(m) is float:
+                return (r0, r1, r2)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
@@ -426,12 +428,12 @@ def _closed_form(pose, current, check_finite=True):
                 hq6 = c6 * c6 + s6 * s6
                 if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free6 = False
-                    th6 = atan2(s6, c6)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq6 - 1.0) > 1e-15:
                         hn6 = 1.0 / sqrt(hq6)
                         c6 = c6 * hn6
                         s6 = s6 * hn6
+                    th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
                 elif abs(dt6) > 1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -563,9 +565,8 @@ def inverse_joints(pose, current=None):
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = _pose_rows(pose)
     if current is not None:
         current = _readings(current)
-    size = (r11 * r11 + r12 * r12 + r13 * r13 + r21 * r21 + r22 * r22 + r23 * r23 + r31 * r31 + r32 * r32
-            + r33 * r33 + px * px + py * py + pz * pz)
-    if not size <= 1e300:           # NaN, infinite, or an entry near LARGEST_ENTRY (its square overflows)
+    size = hypot(r11, r12, r13, px, r21, r22, r23, py, r31, r32, r33, pz)   # one call, no overflow
+    if not size <= 1e150:           # NaN, infinite, or beyond LARGEST_ENTRY
         return []
     solutions = []
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
@@ -630,12 +631,12 @@ def inverse_joints(pose, current=None):
                 hq6 = c6 * c6 + s6 * s6
                 if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
                     free6 = False
-                    th6 = atan2(s6, c6)
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                     if abs(hq6 - 1.0) > 1e-15:
                         hn6 = 1.0 / sqrt(hq6)
                         c6 = c6 * hn6
                         s6 = s6 * hn6
+                    th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
                 elif abs(dt6) > 1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -744,6 +745,6 @@ def inverse_joints(pose, current=None):
                 )
                 solutions.append(q)
 
-    if size <= 1e20:                # every entry within SAFE_ENTRY: no intermediate can overflow
+    if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [q for q in solutions if sum(q) - sum(q) == 0.0]

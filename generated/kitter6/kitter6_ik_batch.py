@@ -188,7 +188,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         weak6 = bad6 & (numpy.abs(dk6) <= wk6)  # ill-conditioned near a singular pose: free
         free6 = ~chosen6 | weak6
         valid = valid & ~(bad6 & ~weak6)
-        th6 = numpy.arctan2(s6, c6)
         # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
         hq6 = c6 * c6 + s6 * s6
         off6 = numpy.abs(hq6 - 1.0) > 1e-15
@@ -196,6 +195,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             hn6 = numpy.where(off6, 1.0 / numpy.sqrt(numpy.where(off6, hq6, 1.0)), 1.0)
             c6 = c6 * hn6
             s6 = s6 * hn6
+        th6 = numpy.arctan2(s6, c6)   # after the unit scaling, as the per-pose solvers
         if free6.any():
             th6 = numpy.where(free6, (hint[5]), th6)
             c6 = numpy.where(free6, numpy.cos((hint[5])), c6)

@@ -254,7 +254,7 @@ static int closed_form(const float pose[16], const float *current,
             s5 = sn5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
-            float th6, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
+            float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
             int free6 = 1;
             {
 
@@ -277,7 +277,6 @@ static int closed_form(const float pose[16], const float *current,
                 c6 = cosf(th6);
                 s6 = sinf(th6);
             } else {
-                th6 = kitter6_ik_f32_atan2(s6, c6);
                 /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
                  * (elsewhere it is 1 to rounding, and the test is all it costs) */
                 {
@@ -385,6 +384,8 @@ static int closed_form(const float pose[16], const float *current,
                 const float lm0 = -78.0f*g16_13 + g16_14;
                 const float lm1 = -97350.0f*s3;
                 const float lm2 = s5;
+                /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
+                if (!free6) th6 = kitter6_ik_f32_atan2(s6, c6);
                 /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
                  * mirrored solution's values follow from these) */
                 const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));

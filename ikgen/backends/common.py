@@ -177,6 +177,9 @@ class Block:
     need_sin: bool = True        # a later expression reads s<key>
     condition_name: str = ""     # cossin/poly: the branch name its conditioning measure is reported under
     condition_gain: float = 1.0  # cossin: conditioning = root * gain = sqrt(radicand / typical a^2+b^2)
+    late_angle: bool = False     # pair, or cossin with one atan2 per root and no free case: no later
+                                 # block reads th<key>, so a back-end may defer its atan2 to where the
+                                 # solution is written (fewer values live across the call)
 
     @property
     def joint(self) -> str:      # the unknown's key (kept for templates that name variables by it)
@@ -473,7 +476,24 @@ def lower_now(derivation: Derivation) -> Plan:
     drop_unused(plan)
     propagate_aliases(plan)
     hoist(plan)
+    mark_late_angles(plan)
     return plan
+
+
+def mark_late_angles(plan: Plan) -> None:
+    """A pair block (or a cossin block whose roots are one atan2 each, never free) whose angle no
+    later block, label or conditioning measure reads gets ``late_angle``: only the written solution
+    needs it, so its atan2 can wait until then (the cosine and sine that later steps read are
+    computed where they were)."""
+    read: set = set()
+    for e in [a.expr for a in plan.final_temps] + list(plan.label_measures):
+        read |= sp.sympify(e).free_symbols
+    for block in reversed(plan.blocks):
+        if block.kind == "pair" or (block.kind == "cossin" and block.gamma is None and not block.antipodal
+                                    and block.threshold is None):
+            block.late_angle = angle_symbol(block.key) not in read
+        for e in block_exprs(block):
+            read |= sp.sympify(e).free_symbols
 
 
 def balanced_sum(terms: list[str]) -> str:
