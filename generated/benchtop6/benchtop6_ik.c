@@ -277,7 +277,7 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
@@ -286,6 +286,8 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_32 = c1*r22 - r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double t7_0_0 = 20.0*v1x;
+        const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -312,11 +314,10 @@ static int closed_form(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = 20.0*v1x;
                 const double t7_0_1 = c3*v1y;
                 const double t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2;
                     s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2;
@@ -691,7 +692,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
@@ -700,6 +701,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_32 = c1*r22 - r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double t7_0_0 = 20.0*v1x;
+        const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -726,11 +729,10 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = 20.0*v1x;
                 const double t7_0_1 = c3*v1y;
                 const double t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2;
                     s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2;

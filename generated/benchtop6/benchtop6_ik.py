@@ -416,7 +416,7 @@ def _closed_form(pose, current, check_finite=True):
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -425,6 +425,8 @@ def _closed_form(pose, current, check_finite=True):
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        t7_0_0 = 20.0*v1x
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -442,11 +444,10 @@ def _closed_form(pose, current, check_finite=True):
             s3 = 6.37624974495001e-11*(-124800.0*ec3 + 10400.0*root3*sg3)
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = 20.0*v1x
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
-            dt2 = -v1x*v1x - v1y*v1y
+            dt2 = dq2
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
@@ -749,7 +750,7 @@ def inverse_joints(pose, current=None):
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -758,6 +759,8 @@ def inverse_joints(pose, current=None):
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        t7_0_0 = 20.0*v1x
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -775,11 +778,10 @@ def inverse_joints(pose, current=None):
             s3 = 6.37624974495001e-11*(-124800.0*ec3 + 10400.0*root3*sg3)
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = 20.0*v1x
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
-            dt2 = -v1x*v1x - v1y*v1y
+            dt2 = dq2
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2

@@ -158,7 +158,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy - 25
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -167,6 +167,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        t7_0_0 = 20*v1x
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -186,11 +188,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t7_0_0 = 20*v1x
         t7_0_1 = c3*v1y
         t7_0_2 = s3*v1y
 
-        dt2 = -v1x*v1x - v1y*v1y
+        dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
         c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
         s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2

@@ -246,7 +246,7 @@ static int closed_form(const float pose[16], const float *current,
         const float v1x = c1*wx + s1*wy - 25.0f;
         const float v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = c1*r11 + r21*s1;
         const float g16_12 = c1*r12 + r22*s1;
         const float g16_13 = c1*r13 + r23*s1;
@@ -255,6 +255,8 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_32 = c1*r22 - r12*s1;
         const float g16_33 = c1*r23 - r13*s1;
         const float g16_34 = c1*pcy - pcx*s1;
+        const float t7_0_0 = 20.0f*v1x;
+        const float dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -281,11 +283,10 @@ static int closed_form(const float pose[16], const float *current,
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
-                const float t7_0_0 = 20.0f*v1x;
                 const float t7_0_1 = c3*v1y;
                 const float t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabsf(dt2) > 1e-15f) {
                     c2 = (-c3*t7_0_0 + 240.0f*s3*v1x - 240.0f*t7_0_1 - 20.0f*t7_0_2 - 260.0f*v1x) / dt2;
                     s2 = (240.0f*c3*v1x + s3*t7_0_0 - 20.0f*t7_0_1 + 240.0f*t7_0_2 - 260.0f*v1y) / dt2;

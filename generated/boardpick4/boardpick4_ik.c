@@ -228,6 +228,10 @@ static int closed_form(const double pose[16], const double *current,
         l3 = (0.0 + 1.0 * (current && current[2] - current[2] == 0.0 ? current[2] : 0.0));
     }
 
+    /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const double t5_0_1 = 325.0*l3;
+    const double t5_0_2 = 275.0*l3;
+
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
      * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t4_0 = r13*r13;
@@ -264,8 +268,6 @@ static int closed_form(const double pose[16], const double *current,
         int free1 = 1;
         {
             const double t5_0_0 = 12375.0*c2;
-            const double t5_0_1 = 325.0*l3;
-            const double t5_0_2 = 275.0*l3;
             const double t5_0_3 = c2*t5_0_2;
 
             dt1 = 178750.0*c2 + 181250.0;

@@ -404,6 +404,10 @@ def _closed_form(pose, current, check_finite=True):
     if free3:
         l3 = (0.0 + 1.0 * (current[2] if current is not None else 0.0))
 
+    # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
+    t5_0_1 = 325.0*l3
+    t5_0_2 = 275.0*l3
+
     # th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
     # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t4_0 = r13*r13
@@ -430,8 +434,6 @@ def _closed_form(pose, current, check_finite=True):
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
         t5_0_0 = 12375.0*c2
-        t5_0_1 = 325.0*l3
-        t5_0_2 = 275.0*l3
         t5_0_3 = c2*t5_0_2
 
         dt1 = 178750.0*c2 + 181250.0

@@ -209,6 +209,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         if free3.any():
             l3 = numpy.where(free3, (hint[2]), l3)
 
+        # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t5_0_1 = 325*l3
+        t5_0_2 = 275*l3
+
         # th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
         t4_0 = r13*r13
         t4_1 = r23*r23
@@ -237,8 +241,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th1 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen1 = numpy.zeros((), dtype=bool)
         t5_0_0 = 12375*c2
-        t5_0_1 = 325*l3
-        t5_0_2 = 275*l3
         t5_0_3 = c2*t5_0_2
 
         dt1 = 178750*c2 + 181250

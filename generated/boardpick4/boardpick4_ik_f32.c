@@ -197,6 +197,10 @@ static int closed_form(const float pose[16], const float *current,
         l3 = (0.0f + 1.0f * (current && current[2] - current[2] == 0.0f ? current[2] : 0.0f));
     }
 
+    /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const float t5_0_1 = 325.0f*l3;
+    const float t5_0_2 = 275.0f*l3;
+
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
      * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t4_0 = r13*r13;
@@ -233,8 +237,6 @@ static int closed_form(const float pose[16], const float *current,
         int free1 = 1;
         {
             const float t5_0_0 = 12375.0f*c2;
-            const float t5_0_1 = 325.0f*l3;
-            const float t5_0_2 = 275.0f*l3;
             const float t5_0_3 = c2*t5_0_2;
 
             dt1 = 178750.0f*c2 + 181250.0f;

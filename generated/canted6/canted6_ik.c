@@ -450,6 +450,13 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 60.0*r23;
     const double wz = pcz - 60.0*r33;
 
+    /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const double t4_0_0 = wx*wx;
+    const double t4_0_1 = wy*wy;
+    const double t4_0_4 = 519.6152422706632*wz;
+    const double t4_0_5 = wz*wz;
+    const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
     const double t3_0 = wx*wx;
@@ -485,14 +492,10 @@ static int closed_form(const double pose[16], const double *current,
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
-            const double t4_0_0 = wx*wx;
-            const double t4_0_1 = wy*wy;
             const double t4_0_2 = 692.8203230275509*c3;
             const double t4_0_3 = 146185.08815881325*s3;
-            const double t4_0_4 = 519.6152422706632*wz;
-            const double t4_0_5 = wz*wz;
 
-            dt1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+            dt1 = dq1;
             if (fabs(dt1) > 9.999999999999999e-14) {
                 c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy) / dt1;
                 s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.378954807777*wy) / dt1;
@@ -902,6 +905,13 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy - 60.0*r23;
     const double wz = pcz - 60.0*r33;
 
+    /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const double t4_0_0 = wx*wx;
+    const double t4_0_1 = wy*wy;
+    const double t4_0_4 = 519.6152422706632*wz;
+    const double t4_0_5 = wz*wz;
+    const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
     const double t3_0 = wx*wx;
@@ -937,14 +947,10 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
-            const double t4_0_0 = wx*wx;
-            const double t4_0_1 = wy*wy;
             const double t4_0_2 = 692.8203230275509*c3;
             const double t4_0_3 = 146185.08815881325*s3;
-            const double t4_0_4 = 519.6152422706632*wz;
-            const double t4_0_5 = wz*wz;
 
-            dt1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+            dt1 = dq1;
             if (fabs(dt1) > 9.999999999999999e-14) {
                 c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy) / dt1;
                 s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.378954807777*wy) / dt1;

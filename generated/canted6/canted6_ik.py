@@ -498,6 +498,13 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy - 60.0*r23
     wz = pcz - 60.0*r33
 
+    # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
+    t4_0_0 = wx*wx
+    t4_0_1 = wy*wy
+    t4_0_4 = 519.6152422706632*wz
+    t4_0_5 = wz*wz
+    dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
     t3_0 = wx*wx
@@ -517,14 +524,10 @@ def _closed_form(pose, current, check_finite=True):
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t4_0_0 = wx*wx
-        t4_0_1 = wy*wy
         t4_0_2 = 692.8203230275509*c3
         t4_0_3 = 146185.08815881325*s3
-        t4_0_4 = 519.6152422706632*wz
-        t4_0_5 = wz*wz
 
-        dt1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+        dt1 = dq1
         if abs(dt1) > 9.999999999999999e-14:
             c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
             s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
@@ -871,6 +874,13 @@ def inverse_joints(pose, current=None):
     wy = pcy - 60.0*r23
     wz = pcz - 60.0*r33
 
+    # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
+    t4_0_0 = wx*wx
+    t4_0_1 = wy*wy
+    t4_0_4 = 519.6152422706632*wz
+    t4_0_5 = wz*wz
+    dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
     t3_0 = wx*wx
@@ -890,14 +900,10 @@ def inverse_joints(pose, current=None):
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t4_0_0 = wx*wx
-        t4_0_1 = wy*wy
         t4_0_2 = 692.8203230275509*c3
         t4_0_3 = 146185.08815881325*s3
-        t4_0_4 = 519.6152422706632*wz
-        t4_0_5 = wz*wz
 
-        dt1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+        dt1 = dq1
         if abs(dt1) > 9.999999999999999e-14:
             c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
             s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1

@@ -233,6 +233,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 60*r23
         wz = pcz - 60*r33
 
+        # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t4_0_0 = wx*wx
+        t4_0_1 = wy*wy
+        t4_0_4 = 519.6152422706632*wz
+        t4_0_5 = wz*wz
+        dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+
         # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
         t3_0 = wx*wx
         t3_1 = wy*wy
@@ -258,14 +265,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen1 = numpy.zeros((), dtype=bool)
-        t4_0_0 = wx*wx
-        t4_0_1 = wy*wy
         t4_0_2 = 692.8203230275509*c3
         t4_0_3 = 146185.08815881325*s3
-        t4_0_4 = 519.6152422706632*wz
-        t4_0_5 = wz*wz
 
-        dt1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+        dt1 = dq1
         use = ~chosen1 & (numpy.abs(dt1) > 9.999999999999999e-14)
         c1 = (14000*c3*wy - 1000*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50*wy*wz - 19000*wy) / dt1
         s1 = (-14000*c3*wx + 1000*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50*wx*wz + 19000*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1

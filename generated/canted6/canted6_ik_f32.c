@@ -419,6 +419,13 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 60.0f*r23;
     const float wz = pcz - 60.0f*r33;
 
+    /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const float t4_0_0 = wx*wx;
+    const float t4_0_1 = wy*wy;
+    const float t4_0_4 = 519.615242f*wz;
+    const float t4_0_5 = wz*wz;
+    const float dq1 = 86.6025404f*t4_0_0 + 86.6025404f*t4_0_1;
+
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
     const float t3_0 = wx*wx;
@@ -454,14 +461,10 @@ static int closed_form(const float pose[16], const float *current,
         float th1 = 0.0f, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
         int free1 = 1;
         {
-            const float t4_0_0 = wx*wx;
-            const float t4_0_1 = wy*wy;
             const float t4_0_2 = 692.820323f*c3;
             const float t4_0_3 = 146185.088f*s3;
-            const float t4_0_4 = 519.615242f*wz;
-            const float t4_0_5 = wz*wz;
 
-            dt1 = 86.6025404f*t4_0_0 + 86.6025404f*t4_0_1;
+            dt1 = dq1;
             if (fabsf(dt1) > 1e-13f) {
                 c1 = (14000.0f*c3*wy - 1000.0f*s3*wy + 0.866025404f*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.866025404f*t4_0_5*wx + 0.866025404f*wx*wx*wx - 67463.379f*wx + 50.0f*wy*wz - 19000.0f*wy) / dt1;
                 s1 = (-14000.0f*c3*wx + 1000.0f*s3*wx + 0.866025404f*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.866025404f*t4_0_5*wy - 50.0f*wx*wz + 19000.0f*wx + 0.866025404f*wy*wy*wy - 67463.379f*wy) / dt1;

@@ -248,7 +248,8 @@ static int closed_form(const double pose[16], double given, const double *curren
     const double c3 = cos(th3);
     const double s3 = sin(th3);
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double t6_0 = wx*wx + wy*wy;
     const double g17_24 = 322.0 - pcz;
     const double v1y = 322.0 - wz;
 
@@ -274,9 +275,11 @@ static int closed_form(const double pose[16], double given, const double *curren
         c4 = 1.0489576038357677e-11*cn4;
         s4 = 1.0489576038357677e-11*sn4;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const double t9_0_0 = 372.0*c4;
+
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t6_0 = wx*wx + wy*wy;
         const double ec1 = 372.0*s3*s4;
         const double er1 = -138384.0*s3*s3*s4*s4 + t6_0;
 
@@ -319,7 +322,6 @@ static int closed_form(const double pose[16], double given, const double *curren
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t9_0_0 = 372.0*c4;
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
@@ -674,7 +676,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
     const double c3 = cos(th3);
     const double s3 = sin(th3);
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double t6_0 = wx*wx + wy*wy;
     const double g17_24 = 322.0 - pcz;
     const double v1y = 322.0 - wz;
 
@@ -700,9 +703,11 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
         c4 = 1.0489576038357677e-11*cn4;
         s4 = 1.0489576038357677e-11*sn4;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const double t9_0_0 = 372.0*c4;
+
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t6_0 = wx*wx + wy*wy;
         const double ec1 = 372.0*s3*s4;
         const double er1 = -138384.0*s3*s3*s4*s4 + t6_0;
 
@@ -745,7 +750,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t9_0_0 = 372.0*c4;
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {

@@ -477,7 +477,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
     c3 = cos(th3)
     s3 = sin(th3)
 
-    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    t6_0 = wx*wx + wy*wy
     g17_24 = 322.0 - pcz
     v1y = 322.0 - wz
 
@@ -496,9 +497,11 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         c4 = 1.0489576038357677e-11*(308760.0*ec4)
         s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t9_0_0 = 372.0*c4
+
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t6_0 = wx*wx + wy*wy
         ec1 = 372.0*s3*s4
         er1 = -138384.0*s3*s3*s4*s4 + t6_0
 
@@ -532,7 +535,6 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:
@@ -824,7 +826,8 @@ def inverse_joints(pose, given, current=None):
     c3 = cos(th3)
     s3 = sin(th3)
 
-    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    t6_0 = wx*wx + wy*wy
     g17_24 = 322.0 - pcz
     v1y = 322.0 - wz
 
@@ -843,9 +846,11 @@ def inverse_joints(pose, given, current=None):
         c4 = 1.0489576038357677e-11*(308760.0*ec4)
         s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t9_0_0 = 372.0*c4
+
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t6_0 = wx*wx + wy*wy
         ec1 = 372.0*s3*s4
         er1 = -138384.0*s3*s3*s4*s4 + t6_0
 
@@ -879,7 +884,6 @@ def inverse_joints(pose, given, current=None):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t9_0_0 = 372.0*c4
 
             dt2 = v1x*v1x + v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:

@@ -144,7 +144,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         c3 = numpy.cos(th3)
         s3 = numpy.sin(th3)
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        t6_0 = wx*wx + wy*wy
         g17_24 = 322 - pcz
         v1y = 322 - wz
 
@@ -164,8 +165,10 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         s4 = 1.0489576038357677e-11*sn4
         cond4 = root4 * 3.2387614976033164e-06
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t9_0_0 = 372*c4
+
         # th1: z of A1^-1 w = A2 A3 A4 c4
-        t6_0 = wx*wx + wy*wy
         ec1 = 372*s3*s4
         er1 = -138384*s3*s3*s4*s4 + t6_0
 
@@ -200,7 +203,6 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t9_0_0 = 372*c4
 
         dt2 = v1x*v1x + v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)

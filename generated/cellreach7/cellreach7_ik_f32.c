@@ -217,7 +217,8 @@ static int closed_form(const float pose[16], float given, const float *current,
     const float c3 = cosf(th3);
     const float s3 = sinf(th3);
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float t6_0 = wx*wx + wy*wy;
     const float g17_24 = 322.0f - pcz;
     const float v1y = 322.0f - wz;
 
@@ -243,9 +244,11 @@ static int closed_form(const float pose[16], float given, const float *current,
         c4 = 1.0489576e-11f*cn4;
         s4 = 1.0489576e-11f*sn4;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const float t9_0_0 = 372.0f*c4;
+
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t6_0 = wx*wx + wy*wy;
         const float ec1 = 372.0f*s3*s4;
         const float er1 = -138384.0f*s3*s3*s4*s4 + t6_0;
 
@@ -288,7 +291,6 @@ static int closed_form(const float pose[16], float given, const float *current,
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
-                const float t9_0_0 = 372.0f*c4;
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabsf(dt2) > 1e-15f) {

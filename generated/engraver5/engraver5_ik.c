@@ -210,7 +210,8 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = py - 60.0*r23;
     const double wz = pz - 60.0*r33;
 
-    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double t3_0 = wx*wx + wy*wy;
     const double q1y = pz - 160.0;
     const double v1y = wz - 160.0;
 
@@ -236,9 +237,12 @@ static int closed_form(const double pose[16], const double *current,
         c3 = 1.7123287671232877e-10*cn3;
         s3 = 1.7123287671232877e-10*sn3;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const double t6_0_0 = 20.0*c3;
+        const double t6_0_2 = s3*v1y;
+
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t3_0 = wx*wx + wy*wy;
 
         const int free1 = t3_0 <= 9.9999999999999988e-16;
         if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
@@ -284,9 +288,7 @@ static int closed_form(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t6_0_0 = 20.0*c3;
                 const double t6_0_1 = 190.0*v1x;
-                const double t6_0_2 = s3*v1y;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {

@@ -403,7 +403,8 @@ def _closed_form(pose, current, check_finite=True):
     wy = py - 60.0*r23
     wz = pz - 60.0*r33
 
-    # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    t3_0 = wx*wx + wy*wy
     q1y = pz - 160.0
     v1y = wz - 160.0
 
@@ -422,9 +423,12 @@ def _closed_form(pose, current, check_finite=True):
         c3 = 1.7123287671232877e-10*(-8000.0*ec3 + 76000.0*root3*sg3)
         s3 = 1.7123287671232877e-10*(-76000.0*ec3 - 8000.0*root3*sg3)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t6_0_0 = 20.0*c3
+        t6_0_2 = s3*v1y
+
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t3_0 = wx*wx + wy*wy
 
         free1 = t3_0 <= 9.999999999999999e-16
         if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t3_0 < 0.0):
@@ -455,9 +459,7 @@ def _closed_form(pose, current, check_finite=True):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t6_0_0 = 20.0*c3
             t6_0_1 = 190.0*v1x
-            t6_0_2 = s3*v1y
 
             dt2 = -v1x*v1x - v1y*v1y
             if abs(dt2) > 9.999999999999999e-16:

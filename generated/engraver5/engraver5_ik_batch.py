@@ -147,7 +147,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = py - 60*r23
         wz = pz - 60*r33
 
-        # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # th1: z of A1^-1 w = A2 A3 c3; A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        t3_0 = wx*wx + wy*wy
         q1y = pz - 160
         v1y = wz - 160
 
@@ -167,8 +168,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s3 = 1.7123287671232877e-10*sn3
         cond3 = root3 * 1.3085598064755344e-05
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t6_0_0 = 20*c3
+        t6_0_2 = s3*v1y
+
         # th1: z of A1^-1 w = A2 A3 c3
-        t3_0 = wx*wx + wy*wy
 
         free1 = t3_0 <= 9.999999999999999e-16
         valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t3_0 < 0.0)
@@ -195,9 +199,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t6_0_0 = 20*c3
         t6_0_1 = 190*v1x
-        t6_0_2 = s3*v1y
 
         dt2 = -v1x*v1x - v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)

@@ -179,7 +179,8 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = py - 60.0f*r23;
     const float wz = pz - 60.0f*r33;
 
-    /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float t3_0 = wx*wx + wy*wy;
     const float q1y = pz - 160.0f;
     const float v1y = wz - 160.0f;
 
@@ -205,9 +206,12 @@ static int closed_form(const float pose[16], const float *current,
         c3 = 1.71232877e-10f*cn3;
         s3 = 1.71232877e-10f*sn3;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const float t6_0_0 = 20.0f*c3;
+        const float t6_0_2 = s3*v1y;
+
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t3_0 = wx*wx + wy*wy;
 
         const int free1 = t3_0 <= 1e-15f;
         if (free1 ? 0.0f > 1e-15f : 1.00002f*t3_0 < 0.0f) {
@@ -253,9 +257,7 @@ static int closed_form(const float pose[16], const float *current,
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
-                const float t6_0_0 = 20.0f*c3;
                 const float t6_0_1 = 190.0f*v1x;
-                const float t6_0_2 = s3*v1y;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabsf(dt2) > 1e-15f) {

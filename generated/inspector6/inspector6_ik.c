@@ -229,7 +229,8 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy + 85.0*r23;
     const double wz = pcz + 85.0*r33;
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double t4_0 = wx*wx + wy*wy;
     const double g16_24 = pcz - 180.0;
     const double v1y = wz - 180.0;
 
@@ -255,9 +256,11 @@ static int closed_form(const double pose[16], const double *current,
         c3 = 2.9029800832342449e-11*cn3;
         s3 = 2.9029800832342449e-11*sn3;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const double dq2 = -185600.0*s3 - 186500.0;
+
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t4_0 = wx*wx + wy*wy;
 
         const int free1 = t4_0 <= 9.9999999999999988e-16;
         if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t4_0 < 0.0) {
@@ -311,7 +314,7 @@ static int closed_form(const double pose[16], const double *current,
             {
                 const double t7_0_0 = 290.0*v1x;
 
-                dt2 = -185600.0*s3 - 186500.0;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2;
                     s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2;
@@ -601,7 +604,8 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy + 85.0*r23;
     const double wz = pcz + 85.0*r33;
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const double t4_0 = wx*wx + wy*wy;
     const double g16_24 = pcz - 180.0;
     const double v1y = wz - 180.0;
 
@@ -627,9 +631,11 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
         c3 = 2.9029800832342449e-11*cn3;
         s3 = 2.9029800832342449e-11*sn3;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const double dq2 = -185600.0*s3 - 186500.0;
+
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const double t4_0 = wx*wx + wy*wy;
 
         const int free1 = t4_0 <= 9.9999999999999988e-16;
         if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t4_0 < 0.0) {
@@ -683,7 +689,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             {
                 const double t7_0_0 = 290.0*v1x;
 
-                dt2 = -185600.0*s3 - 186500.0;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
                     c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2;
                     s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2;

@@ -377,7 +377,8 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy + 85.0*r23
     wz = pcz + 85.0*r33
 
-    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    t4_0 = wx*wx + wy*wy
     g16_24 = pcz - 180.0
     v1y = wz - 180.0
 
@@ -396,9 +397,11 @@ def _closed_form(pose, current, check_finite=True):
         c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
         s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        dq2 = -185600.0*s3 - 186500.0
+
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t4_0 = wx*wx + wy*wy
 
         free1 = t4_0 <= 9.999999999999999e-16
         if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
@@ -437,7 +440,7 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             t7_0_0 = 290.0*v1x
 
-            dt2 = -185600.0*s3 - 186500.0
+            dt2 = dq2
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
@@ -657,7 +660,8 @@ def inverse_joints(pose, current=None):
     wy = pcy + 85.0*r23
     wz = pcz + 85.0*r33
 
-    # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    t4_0 = wx*wx + wy*wy
     g16_24 = pcz - 180.0
     v1y = wz - 180.0
 
@@ -676,9 +680,11 @@ def inverse_joints(pose, current=None):
         c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
         s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        dq2 = -185600.0*s3 - 186500.0
+
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-        t4_0 = wx*wx + wy*wy
 
         free1 = t4_0 <= 9.999999999999999e-16
         if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
@@ -717,7 +723,7 @@ def inverse_joints(pose, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             t7_0_0 = 290.0*v1x
 
-            dt2 = -185600.0*s3 - 186500.0
+            dt2 = dq2
             if abs(dt2) > 9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2

@@ -131,7 +131,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy + 85*r23
         wz = pcz + 85*r33
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        t4_0 = wx*wx + wy*wy
         g16_24 = pcz - 180
         v1y = wz - 180
 
@@ -151,8 +152,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s3 = 2.902980083234245e-11*sn3
         cond3 = root3 * 5.387931034482758e-06
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        dq2 = -185600*s3 - 186500
+
         # th1: z of A1^-1 w = A2 A3 c3
-        t4_0 = wx*wx + wy*wy
 
         free1 = t4_0 <= 9.999999999999999e-16
         valid = valid & ~numpy.where(free1, 0 > 9.999999999999999e-16, 1.000000002*t4_0 < 0.0)
@@ -187,7 +190,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen2 = numpy.zeros((), dtype=bool)
         t7_0_0 = 290*v1x
 
-        dt2 = -185600*s3 - 186500
+        dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
         c2 = (290*c3*v1y - s3*t7_0_0 - 320*v1x) / dt2
         s2 = (-c3*t7_0_0 - 290*s3*v1y - 320*v1y) / dt2

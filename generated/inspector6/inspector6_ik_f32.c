@@ -198,7 +198,8 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy + 85.0f*r23;
     const float wz = pcz + 85.0f*r33;
 
-    /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    const float t4_0 = wx*wx + wy*wy;
     const float g16_24 = pcz - 180.0f;
     const float v1y = wz - 180.0f;
 
@@ -224,9 +225,11 @@ static int closed_form(const float pose[16], const float *current,
         c3 = 2.90298008e-11f*cn3;
         s3 = 2.90298008e-11f*sn3;
 
+        /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const float dq2 = -185600.0f*s3 - 186500.0f;
+
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-        const float t4_0 = wx*wx + wy*wy;
 
         const int free1 = t4_0 <= 1e-15f;
         if (free1 ? 0.0f > 1e-15f : 1.00002f*t4_0 < 0.0f) {
@@ -280,7 +283,7 @@ static int closed_form(const float pose[16], const float *current,
             {
                 const float t7_0_0 = 290.0f*v1x;
 
-                dt2 = -185600.0f*s3 - 186500.0f;
+                dt2 = dq2;
                 if (fabsf(dt2) > 1e-15f) {
                     c2 = (290.0f*c3*v1y - s3*t7_0_0 - 320.0f*v1x) / dt2;
                     s2 = (-c3*t7_0_0 - 290.0f*s3*v1y - 320.0f*v1y) / dt2;

@@ -227,6 +227,9 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 0.14000000000000001*r21;
     const double wz = pcz + 0.14000000000000001*r31;
 
+    /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const double t7_0_2 = 0.11*wz;
+
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
@@ -259,7 +262,7 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy;
         const double v1y = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = -c1*r13 - r23*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r11 + r21*s1;
@@ -268,6 +271,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
         const double g16_24 = c1*pcy - pcx*s1;
+        const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -296,9 +300,8 @@ static int closed_form(const double pose[16], const double *current,
             {
                 const double t7_0_0 = 0.90000000000000002*c3;
                 const double t7_0_1 = s3*v1x;
-                const double t7_0_2 = 0.11*wz;
 
-                dt2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
                     c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t7_0_2 - 0.13500000000000001*s3 + t7_0_0*wz + 0.90000000000000002*t7_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
                     s2 = (c3*t7_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*wz - 0.016500000000000001*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.84999999999999998*wz) / dt2;
@@ -661,6 +664,9 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy - 0.14000000000000001*r21;
     const double wz = pcz + 0.14000000000000001*r31;
 
+    /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const double t7_0_2 = 0.11*wz;
+
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t3_0 = wx*wx + wy*wy;
@@ -693,7 +699,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy;
         const double v1y = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = -c1*r13 - r23*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r11 + r21*s1;
@@ -702,6 +708,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
         const double g16_24 = c1*pcy - pcx*s1;
+        const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -730,9 +737,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             {
                 const double t7_0_0 = 0.90000000000000002*c3;
                 const double t7_0_1 = s3*v1x;
-                const double t7_0_2 = 0.11*wz;
 
-                dt2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
                     c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t7_0_2 - 0.13500000000000001*s3 + t7_0_0*wz + 0.90000000000000002*t7_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
                     s2 = (c3*t7_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*wz - 0.016500000000000001*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.84999999999999998*wz) / dt2;

@@ -379,6 +379,9 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy - 0.14*r21
     wz = pcz + 0.14*r31
 
+    # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+    t7_0_2 = 0.11*wz
+
     # th1: y of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
@@ -404,7 +407,7 @@ def _closed_form(pose, current, check_finite=True):
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r13 - r23*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
@@ -413,6 +416,7 @@ def _closed_form(pose, current, check_finite=True):
         g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -432,9 +436,8 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             t7_0_0 = 0.9*c3
             t7_0_1 = s3*v1x
-            t7_0_2 = 0.11*wz
 
-            dt2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+            dt2 = dq2
             if abs(dt2) > 1e-20:
                 c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
                 s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2
@@ -738,6 +741,9 @@ def inverse_joints(pose, current=None):
     wy = pcy - 0.14*r21
     wz = pcz + 0.14*r31
 
+    # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+    t7_0_2 = 0.11*wz
+
     # th1: y of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy
@@ -763,7 +769,7 @@ def inverse_joints(pose, current=None):
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r13 - r23*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
@@ -772,6 +778,7 @@ def inverse_joints(pose, current=None):
         g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -791,9 +798,8 @@ def inverse_joints(pose, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
             t7_0_0 = 0.9*c3
             t7_0_1 = s3*v1x
-            t7_0_2 = 0.11*wz
 
-            dt2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+            dt2 = dq2
             if abs(dt2) > 1e-20:
                 c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
                 s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2

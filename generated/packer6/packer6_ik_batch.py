@@ -131,6 +131,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 0.14*r21
         wz = pcz + 0.14*r31
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        t7_0_2 = 0.11*wz
+
         # th1: y of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
         er1 = t3_0 - 0.0144
@@ -155,7 +158,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r13 - r23*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
@@ -164,6 +167,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
         g16_24 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + wz*wz
@@ -185,9 +189,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen2 = numpy.zeros((), dtype=bool)
         t7_0_0 = 0.9*c3
         t7_0_1 = s3*v1x
-        t7_0_2 = 0.11*wz
 
-        dt2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+        dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 1e-20)
         c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
         s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2

@@ -196,6 +196,9 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 0.14f*r21;
     const float wz = pcz + 0.14f*r31;
 
+    /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    const float t7_0_2 = 0.11f*wz;
+
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t3_0 = wx*wx + wy*wy;
@@ -228,7 +231,7 @@ static int closed_form(const float pose[16], const float *current,
         const float v1x = c1*wx + s1*wy;
         const float v1y = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = -c1*r13 - r23*s1;
         const float g16_12 = -c1*r12 - r22*s1;
         const float g16_13 = c1*r11 + r21*s1;
@@ -237,6 +240,7 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_22 = -c1*r22 + r12*s1;
         const float g16_23 = c1*r21 - r11*s1;
         const float g16_24 = c1*pcy - pcx*s1;
+        const float dq2 = -v1x*v1x + 0.3f*v1x - wz*wz - 0.0225f;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -265,9 +269,8 @@ static int closed_form(const float pose[16], const float *current,
             {
                 const float t7_0_0 = 0.9f*c3;
                 const float t7_0_1 = s3*v1x;
-                const float t7_0_2 = 0.11f*wz;
 
-                dt2 = -v1x*v1x + 0.3f*v1x - wz*wz - 0.0225f;
+                dt2 = dq2;
                 if (fabsf(dt2) > 1e-20f) {
                     c2 = (-0.11f*c3*v1x + 0.0165f*c3 + s3*t7_0_2 - 0.135f*s3 + t7_0_0*wz + 0.9f*t7_0_1 - 0.85f*v1x + 0.1275f) / dt2;
                     s2 = (c3*t7_0_2 - 0.135f*c3 - 0.9f*s3*wz - 0.0165f*s3 + t7_0_0*v1x + 0.11f*t7_0_1 + 0.85f*wz) / dt2;

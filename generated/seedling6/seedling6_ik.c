@@ -276,7 +276,7 @@ static int closed_form(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = -c1*r11 - r21*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
@@ -285,6 +285,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_32 = -c1*r22 + r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -315,7 +316,7 @@ static int closed_form(const double pose[16], const double *current,
                 const double t7_0_1 = c3*v1y;
                 const double t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
                     c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t7_0_0 - 0.34999999999999998*t7_0_1 - 0.035000000000000003*t7_0_2 - 0.34000000000000002*v1x) / dt2;
                     s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t7_0_0 - 0.035000000000000003*t7_0_1 + 0.34999999999999998*t7_0_2 - 0.34000000000000002*v1y) / dt2;
@@ -681,7 +682,7 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = -c1*r11 - r21*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
@@ -690,6 +691,7 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_32 = -c1*r22 + r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -720,7 +722,7 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                 const double t7_0_1 = c3*v1y;
                 const double t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
                     c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t7_0_0 - 0.34999999999999998*t7_0_1 - 0.035000000000000003*t7_0_2 - 0.34000000000000002*v1x) / dt2;
                     s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t7_0_0 - 0.035000000000000003*t7_0_1 + 0.34999999999999998*t7_0_2 - 0.34000000000000002*v1y) / dt2;

@@ -412,7 +412,7 @@ def _closed_form(pose, current, check_finite=True):
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r11 - r21*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -421,6 +421,7 @@ def _closed_form(pose, current, check_finite=True):
         g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -442,7 +443,7 @@ def _closed_form(pose, current, check_finite=True):
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
-            dt2 = -v1x*v1x - v1y*v1y
+            dt2 = dq2
             if abs(dt2) > 1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
@@ -737,7 +738,7 @@ def inverse_joints(pose, current=None):
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r11 - r21*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -746,6 +747,7 @@ def inverse_joints(pose, current=None):
         g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -767,7 +769,7 @@ def inverse_joints(pose, current=None):
             t7_0_1 = c3*v1y
             t7_0_2 = s3*v1y
 
-            dt2 = -v1x*v1x - v1y*v1y
+            dt2 = dq2
             if abs(dt2) > 1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2

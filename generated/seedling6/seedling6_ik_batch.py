@@ -158,7 +158,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
 
-        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r11 - r21*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
@@ -167,6 +167,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -190,7 +191,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         t7_0_1 = c3*v1y
         t7_0_2 = s3*v1y
 
-        dt2 = -v1x*v1x - v1y*v1y
+        dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 1e-21)
         c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
         s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2

@@ -245,7 +245,7 @@ static int closed_form(const float pose[16], const float *current,
         const float v1x = c1*wx + s1*wy - 0.04f;
         const float v1z = c1*wy - s1*wx;
 
-        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+        /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = -c1*r11 - r21*s1;
         const float g16_12 = -c1*r12 - r22*s1;
         const float g16_13 = c1*r13 + r23*s1;
@@ -254,6 +254,7 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_32 = -c1*r22 + r12*s1;
         const float g16_33 = c1*r23 - r13*s1;
         const float g16_34 = c1*pcy - pcx*s1;
+        const float dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -284,7 +285,7 @@ static int closed_form(const float pose[16], const float *current,
                 const float t7_0_1 = c3*v1y;
                 const float t7_0_2 = s3*v1y;
 
-                dt2 = -v1x*v1x - v1y*v1y;
+                dt2 = dq2;
                 if (fabsf(dt2) > 1e-21f) {
                     c2 = (0.35f*s3*v1x - 0.035f*t7_0_0 - 0.35f*t7_0_1 - 0.035f*t7_0_2 - 0.34f*v1x) / dt2;
                     s2 = (0.035f*s3*v1x + 0.35f*t7_0_0 - 0.035f*t7_0_1 + 0.35f*t7_0_2 - 0.34f*v1y) / dt2;

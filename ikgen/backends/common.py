@@ -22,7 +22,7 @@ import numpy as np
 import sympy as sp
 
 from .. import __version__
-from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation,
+from ..ir import (GIVEN_SYMBOL, GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation,
                   LinearLength, LinearPair, QuadraticLength, angle_symbol, cos_symbol, sin_symbol)
 from ..model import Arm
 from ..templatecache import template_cache
@@ -550,31 +550,53 @@ def hoist(plan: Plan) -> None:
     """Loop-invariant hoisting: every named intermediate is computed at the outermost branch
     level where all its inputs are known (an intermediate that depends only on joint 1 is not
     recomputed for each elbow root). Levels: pose symbols and constants 0; a block's temps its
-    depth; a loop-opening block's unknown one deeper. A hoisted assignment moves into a compute
-    block placed just before the loop that level opens, in its original order."""
-    level: dict = {}
+    depth; a loop-opening block's unknown one deeper. Compute blocks, the temps of every solving
+    block and those of a linear pair's first form (always evaluated; later forms run only where the
+    first is singular, so theirs stay), and that form's determinant (named dq<key> when it moves)
+    are candidates; only polynomial expressions move (no division, root or function that could fail
+    on a branch that was never taken). A hoisted assignment moves into a compute block placed just
+    before the loop that level opens, in its original order."""
+    level: dict = {symbol: 0 for symbol in plan.pose_symbols}
+    level[GIVEN_SYMBOL] = 0
     moved: dict[int, list[tuple[str, Assignment]]] = {}
 
-    def level_of(expr) -> int:
-        return max((level.get(symbol, 0) for symbol in sp.sympify(expr).free_symbols), default=0)
+    def level_of(expr, depth: int) -> int:
+        """The deepest level among the inputs; a symbol defined nowhere the plan tracks (a root, a
+        branch sign) pins the expression where it is."""
+        found = 0
+        for symbol in sp.sympify(expr).free_symbols:
+            if symbol not in level:
+                return depth
+            found = max(found, level[symbol])
+        return found
+
+    def polynomial(expr) -> bool:
+        return not any(isinstance(node, sp.Function) or
+                       (isinstance(node, sp.Pow) and not (node.exp.is_Integer and node.exp > 0))
+                       for node in sp.preorder_traversal(expr))
+
+    def stays(assignment: Assignment, depth: int, comment: str) -> bool:
+        target = level_of(assignment.expr, depth)
+        if target < depth and polynomial(assignment.expr):
+            moved.setdefault(target, []).append((comment, assignment))
+            level[assignment.target] = target
+            return False
+        level[assignment.target] = depth
+        return True
     for block in plan.blocks:
+        block.temps = [a for a in block.temps if stays(a, block.depth, block.comment)]
         if block.kind == "compute":
-            kept = []
-            for assignment in block.temps:
-                target_level = level_of(assignment.expr)
-                if target_level < block.depth:
-                    moved.setdefault(target_level, []).append((block.comment, assignment))
-                else:
-                    kept.append(assignment)
-                    target_level = block.depth
-                level[assignment.target] = target_level
-            block.temps = kept
             continue
-        for assignment in block.temps:
-            level[assignment.target] = block.depth
-        for form in block.forms:
-            for assignment in form.temps:
-                level[assignment.target] = block.depth
+        for index, form in enumerate(block.forms):
+            if index:
+                for assignment in form.temps:
+                    level[assignment.target] = block.depth
+                continue
+            form.temps = [a for a in form.temps if stays(a, block.depth, block.comment)]
+            if not sp.sympify(form.det).is_number:
+                named = Assignment(sp.Symbol(f"dq{block.key}", real=True), form.det)
+                if not stays(named, block.depth, block.comment):
+                    form.det = named.target
         if block.key:
             inner = block.depth + (1 if opens_loop(block) else 0)
             for symbol in (angle_symbol(block.key), cos_symbol(block.key), sin_symbol(block.key),
