@@ -35,3 +35,30 @@ def test_inverse_joints_returns_the_readings_of_inverse(path, built):
         assert module.inverse_joints(pose.tolist(), *given) == full
     for bad in (np.full((4, 4), np.nan), np.where(np.eye(4) > 0, 1e200, 0.0)):
         assert module.inverse_joints(bad.tolist(), *given_of(arm, readings[0])) == []
+
+
+@pytest.mark.parametrize("tolerance", [1e-4, 5e-3, 1e-6, 1e-15])
+def test_unit_band_is_the_abs_test_exactly(tolerance):
+    """The generated Python tests `hq < lo or hq > hi` where the C solver tests
+    `fabs(hq - 1) > tolerance`; the two must agree on every float, or the two solvers would
+    normalise or reject different pairs (they are compared bit for bit in test_limits_nearest.py).
+    Checked here on every float within 200 steps of each bound, of 1 -+ tolerance, of 0.5 and 2
+    (where hq - 1 stops being exact: Sterbenz's lemma, Goldberg, "What every computer scientist
+    should know about floating-point arithmetic", ACM Computing Surveys 23(1), 1991, theorem 11),
+    on far values and on NaN and the infinities, against the abs() test evaluated by Python."""
+    import math
+
+    from ikgen.backends.python import unit_band
+    lo, hi = (float(x) for x in unit_band(tolerance))
+    assert lo < 1.0 < hi
+    checked = 0
+    for anchor in (lo, hi, 1.0 - tolerance, 1.0 + tolerance, 0.5, 2.0, 1.0):
+        for direction in (math.inf, -math.inf):
+            value = anchor
+            for _ in range(200):
+                assert (abs(value - 1.0) > tolerance) == (value < lo or value > hi), value
+                value = math.nextafter(value, direction)
+                checked += 1
+    for value in (0.0, -0.0, -1.0, 3.0, 1e300, -1e300, math.inf, -math.inf, math.nan, 5e-324):
+        assert (abs(value - 1.0) > tolerance) == (value < lo or value > hi), value
+    assert checked == 7 * 2 * 200

@@ -448,19 +448,19 @@ def _closed_form(pose, current, check_finite=True):
             t7_0_2 = s3*v1y
 
             dt2 = dq2
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -491,19 +491,19 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_20 = s3*v1y
 
                 dt2 = -t7_1_0*t7_1_5 + 480.0*t7_1_0 + t7_1_1*t7_1_4 + 40.0*t7_1_1 - t7_1_2*t7_1_4 - 40.0*t7_1_2 - t7_1_3*t7_1_5 + 480.0*t7_1_3
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -542,19 +542,19 @@ def _closed_form(pose, current, check_finite=True):
                     t7_2_28 = 4900.0*v1y
 
                     dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
-                    if abs(dt2) > 1e-12:
+                    if dt2 > 1e-12 or dt2 < -1e-12:
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 1.0:
+                        elif dt2 > 1.0 or dt2 < -1.0:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -599,19 +599,19 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -639,7 +639,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -782,19 +782,19 @@ def inverse_joints(pose, current=None):
             t7_0_2 = s3*v1y
 
             dt2 = dq2
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (-c3*t7_0_0 + 240.0*s3*v1x - 240.0*t7_0_1 - 20.0*t7_0_2 - 260.0*v1x) / dt2
                 s2 = (240.0*c3*v1x + s3*t7_0_0 - 20.0*t7_0_1 + 240.0*t7_0_2 - 260.0*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -825,19 +825,19 @@ def inverse_joints(pose, current=None):
                 t7_1_20 = s3*v1y
 
                 dt2 = -t7_1_0*t7_1_5 + 480.0*t7_1_0 + t7_1_1*t7_1_4 + 40.0*t7_1_1 - t7_1_2*t7_1_4 - 40.0*t7_1_2 - t7_1_3*t7_1_5 + 480.0*t7_1_3
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -876,19 +876,19 @@ def inverse_joints(pose, current=None):
                     t7_2_28 = 4900.0*v1y
 
                     dt2 = -t7_2_0*t7_2_12 + t7_2_0*t7_2_4 + 36400.0*t7_2_0 + t7_2_1*t7_2_14 - t7_2_1*t7_2_7 - 520.0*t7_2_1 + t7_2_10*t7_2_13 + t7_2_10*t7_2_6 - t7_2_11*t7_2_15 - t7_2_11*t7_2_8 - t7_2_12*t7_2_2 - t7_2_13*t7_2_5 + t7_2_14*t7_2_3 + t7_2_15*t7_2_9 + t7_2_2*t7_2_4 + 36400.0*t7_2_2 - t7_2_3*t7_2_7 - 520.0*t7_2_3 - t7_2_5*t7_2_6 + t7_2_8*t7_2_9
-                    if abs(dt2) > 1e-12:
+                    if dt2 > 1e-12 or dt2 < -1e-12:
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 1.0:
+                        elif dt2 > 1.0 or dt2 < -1.0:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -933,19 +933,19 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -973,7 +973,7 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

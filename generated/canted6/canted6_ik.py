@@ -528,19 +528,19 @@ def _closed_form(pose, current, check_finite=True):
         t4_0_3 = 146185.08815881325*s3
 
         dt1 = dq1
-        if abs(dt1) > 9.999999999999999e-14:
+        if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
             c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
             s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
             hq1 = c1 * c1 + s1 * s1
-            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq1 - 1.0) > 1e-15:
+                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn1 = 1.0 / sqrt(hq1)
                     c1 = c1 * hn1
                     s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif abs(dt1) > 0.09999999999999999:
+            elif dt1 > 0.09999999999999999 or dt1 < -0.09999999999999999:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -587,19 +587,19 @@ def _closed_form(pose, current, check_finite=True):
         t7_0_5 = 20.0*v1x
 
         dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y
-        if abs(dt2) > 9.999999999999999e-16:
+        if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
-            if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free2 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
+                if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
                 th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-            elif abs(dt2) > 0.0009999999999999998:
+            elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
@@ -647,19 +647,19 @@ def _closed_form(pose, current, check_finite=True):
             t7_1_37 = 0.8660254037844386*v1y
 
             dt2 = -1800.0*g16_13*t7_1_10 + 25200.0*g16_13*t7_1_8 + 30.0*g16_14*t7_1_10 - 420.0*g16_14*t7_1_8 + 1800.0*g16_23*t7_1_11 - 25200.0*g16_23*t7_1_9 - 30.0*g16_24*t7_1_11 + 420.0*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.91453623979*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.6152422706632*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.91453623979*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.6152422706632*t7_1_3
-            if abs(dt2) > 1e-12:
+            if dt2 > 1e-12 or dt2 < -1e-12:
                 c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.0713431428*c3*g16_13 + 242.4871130596428*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.779422346*g16_13*t7_1_25 - 8147566.998803998*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.2820323027551*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2
                 s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.0713431428*c3*g16_23 + 242.4871130596428*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.779422346*g16_23*t7_1_25 - 8147566.998803998*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.2820323027551*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 1.0:
+                elif dt2 > 1.0 or dt2 < -1.0:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -693,19 +693,19 @@ def _closed_form(pose, current, check_finite=True):
                 t7_2_23 = 280.0*t7_2_1
 
                 dt2 = 77526594.14678295*c1 + 7460000.0*s1 + 6235382.907247959*t7_2_0 + 87295360.70147142*t7_2_1 + 600000.0*t7_2_2 + 8400000.0*t7_2_3 + 1454922.6783578568*t7_2_4 + 140000.0*t7_2_5 + 10132497.224277932*t7_2_7 + 975000.0*t7_2_8
-                if abs(dt2) > 9.999999999999999e-14:
+                if dt2 > 9.999999999999999e-14 or dt2 < -9.999999999999999e-14:
                     c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.57252693*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.2170282168*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.95636501*t7_2_4 + 21180000.0*t7_2_5 + 7014805.770653953*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2
                     s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.38871337*t7_2_2 + 3922229.053739723*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.49562459*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 0.09999999999999999:
+                    elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -757,19 +757,19 @@ def _closed_form(pose, current, check_finite=True):
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt4 = -s5*s5
-        if abs(dt4) > 1e-20:
+        if dt4 > 1e-20 or dt4 < -1e-20:
             c4 = (-g36_13*s5) / dt4
             s4 = (-g26_33*s5) / dt4
             hq4 = c4 * c4 + s4 * s4
-            if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free4 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
+                if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4
                 th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-            elif abs(dt4) > 1e-08:
+            elif dt4 > 1e-08 or dt4 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
@@ -797,7 +797,7 @@ def _closed_form(pose, current, check_finite=True):
         s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if abs(hq6 - 1.0) > 1e-4:
+        if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -904,19 +904,19 @@ def inverse_joints(pose, current=None):
         t4_0_3 = 146185.08815881325*s3
 
         dt1 = dq1
-        if abs(dt1) > 9.999999999999999e-14:
+        if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
             c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
             s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
             hq1 = c1 * c1 + s1 * s1
-            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq1 - 1.0) > 1e-15:
+                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn1 = 1.0 / sqrt(hq1)
                     c1 = c1 * hn1
                     s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif abs(dt1) > 0.09999999999999999:
+            elif dt1 > 0.09999999999999999 or dt1 < -0.09999999999999999:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -963,19 +963,19 @@ def inverse_joints(pose, current=None):
         t7_0_5 = 20.0*v1x
 
         dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y
-        if abs(dt2) > 9.999999999999999e-16:
+        if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
-            if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free2 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq2 - 1.0) > 1e-15:
+                if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn2 = 1.0 / sqrt(hq2)
                     c2 = c2 * hn2
                     s2 = s2 * hn2
                 th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-            elif abs(dt2) > 0.0009999999999999998:
+            elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
@@ -1023,19 +1023,19 @@ def inverse_joints(pose, current=None):
             t7_1_37 = 0.8660254037844386*v1y
 
             dt2 = -1800.0*g16_13*t7_1_10 + 25200.0*g16_13*t7_1_8 + 30.0*g16_14*t7_1_10 - 420.0*g16_14*t7_1_8 + 1800.0*g16_23*t7_1_11 - 25200.0*g16_23*t7_1_9 - 30.0*g16_24*t7_1_11 + 420.0*g16_24*t7_1_9 + t7_1_0*t7_1_4 + t7_1_0*t7_1_6 + 31176.91453623979*t7_1_0 - t7_1_1*t7_1_5 - t7_1_1*t7_1_7 - 519.6152422706632*t7_1_1 + t7_1_2*t7_1_4 + t7_1_2*t7_1_6 + 31176.91453623979*t7_1_2 - t7_1_3*t7_1_5 - t7_1_3*t7_1_7 - 519.6152422706632*t7_1_3
-            if abs(dt2) > 1e-12:
+            if dt2 > 1e-12 or dt2 < -1e-12:
                 c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.0713431428*c3*g16_13 + 242.4871130596428*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.779422346*g16_13*t7_1_25 - 8147566.998803998*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.2820323027551*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2
                 s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.0713431428*c3*g16_23 + 242.4871130596428*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.779422346*g16_23*t7_1_25 - 8147566.998803998*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.2820323027551*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 1.0:
+                elif dt2 > 1.0 or dt2 < -1.0:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -1069,19 +1069,19 @@ def inverse_joints(pose, current=None):
                 t7_2_23 = 280.0*t7_2_1
 
                 dt2 = 77526594.14678295*c1 + 7460000.0*s1 + 6235382.907247959*t7_2_0 + 87295360.70147142*t7_2_1 + 600000.0*t7_2_2 + 8400000.0*t7_2_3 + 1454922.6783578568*t7_2_4 + 140000.0*t7_2_5 + 10132497.224277932*t7_2_7 + 975000.0*t7_2_8
-                if abs(dt2) > 9.999999999999999e-14:
+                if dt2 > 9.999999999999999e-14 or dt2 < -9.999999999999999e-14:
                     c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.57252693*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.2170282168*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.95636501*t7_2_4 + 21180000.0*t7_2_5 + 7014805.770653953*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2
                     s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.38871337*t7_2_2 + 3922229.053739723*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.49562459*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 0.09999999999999999:
+                    elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -1133,19 +1133,19 @@ def inverse_joints(pose, current=None):
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt4 = -s5*s5
-        if abs(dt4) > 1e-20:
+        if dt4 > 1e-20 or dt4 < -1e-20:
             c4 = (-g36_13*s5) / dt4
             s4 = (-g26_33*s5) / dt4
             hq4 = c4 * c4 + s4 * s4
-            if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free4 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq4 - 1.0) > 1e-15:
+                if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn4 = 1.0 / sqrt(hq4)
                     c4 = c4 * hn4
                     s4 = s4 * hn4
                 th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-            elif abs(dt4) > 1e-08:
+            elif dt4 > 1e-08 or dt4 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
@@ -1173,7 +1173,7 @@ def inverse_joints(pose, current=None):
         s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if abs(hq6 - 1.0) > 1e-4:
+        if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

@@ -537,19 +537,19 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = v1x*v1x + v1y*v1y
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -584,19 +584,19 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 t9_1_24 = 9216.0*v1x
 
                 dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -634,19 +634,19 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     t9_2_27 = g17_24*t9_2_16
 
                     dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
-                    if abs(dt2) > 9.999999999999999e-16:
+                    if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 0.0009999999999999998:
+                        elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -699,19 +699,19 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt5 = -s6*s6
-            if abs(dt5) > 1e-20:
+            if dt5 > 1e-20 or dt5 < -1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
                 hq5 = c5 * c5 + s5 * s5
-                if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free5 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq5 - 1.0) > 1e-15:
+                    if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn5 = 1.0 / sqrt(hq5)
                         c5 = c5 * hn5
                         s5 = s5 * hn5
                     th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
-                elif abs(dt5) > 1e-08:
+                elif dt5 > 1e-08 or dt5 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
@@ -739,7 +739,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if abs(hq7 - 1.0) > 1e-4:
+            if hq7 < 0.9999 or hq7 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
 
@@ -886,19 +886,19 @@ def inverse_joints(pose, given, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = v1x*v1x + v1y*v1y
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
                 s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -933,19 +933,19 @@ def inverse_joints(pose, given, current=None):
                 t9_1_24 = 9216.0*v1x
 
                 dt2 = 744.0*c3*g17_14*s4*v1y - 71424.0*c3*r33*s4*v1x + 71424.0*c4*g17_13*v1x - 71424.0*c4*r33*v1y - 71424.0*g17_13*t9_1_3*v1y + 79680.0*g17_13*v1x - 744.0*g17_24*t9_1_3*v1x - 79680.0*r33*v1y - t9_1_0*t9_1_2 - 830.0*t9_1_0 - t9_1_1*t9_1_2 - 830.0*t9_1_1
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -983,19 +983,19 @@ def inverse_joints(pose, given, current=None):
                     t9_2_27 = g17_24*t9_2_16
 
                     dt2 = t9_2_0*t9_2_2 - t9_2_0*t9_2_4 + 310609.0*t9_2_0 - t9_2_1*t9_2_2 + t9_2_1*t9_2_4 - 310609.0*t9_2_1
-                    if abs(dt2) > 9.999999999999999e-16:
+                    if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 0.0009999999999999998:
+                        elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -1048,19 +1048,19 @@ def inverse_joints(pose, given, current=None):
             # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt5 = -s6*s6
-            if abs(dt5) > 1e-20:
+            if dt5 > 1e-20 or dt5 < -1e-20:
                 c5 = (-g47_13*s6) / dt5
                 s5 = (-g37_33*s6) / dt5
                 hq5 = c5 * c5 + s5 * s5
-                if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free5 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq5 - 1.0) > 1e-15:
+                    if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn5 = 1.0 / sqrt(hq5)
                         c5 = c5 * hn5
                         s5 = s5 * hn5
                     th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
-                elif abs(dt5) > 1e-08:
+                elif dt5 > 1e-08 or dt5 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
@@ -1088,7 +1088,7 @@ def inverse_joints(pose, given, current=None):
             s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if abs(hq7 - 1.0) > 1e-4:
+            if hq7 < 0.9999 or hq7 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
 

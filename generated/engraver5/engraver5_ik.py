@@ -462,19 +462,19 @@ def _closed_form(pose, current, check_finite=True):
             t6_0_1 = 190.0*v1x
 
             dt2 = -v1x*v1x - v1y*v1y
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2
                 s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -510,19 +510,19 @@ def _closed_form(pose, current, check_finite=True):
                 t6_1_25 = s3*v1y
 
                 dt2 = t6_1_0*t6_1_5 + 380.0*t6_1_0 - t6_1_1*t6_1_4 - 40.0*t6_1_1 + t6_1_2*t6_1_4 + 40.0*t6_1_2 + t6_1_3*t6_1_5 + 380.0*t6_1_3
-                if abs(dt2) > 9.999999999999999e-14:
+                if dt2 > 9.999999999999999e-14 or dt2 < -9.999999999999999e-14:
                     c2 = (-q1y*t6_1_19 + 16000.0*q1y - 76000.0*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900.0*t6_1_10 - t6_1_11*t6_1_14 - 800.0*t6_1_11 + 7600.0*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900.0*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600.0*t6_1_8 + 80800.0*t6_1_9) / dt2
                     s2 = (76000.0*c3*t6_1_13 + q1x*t6_1_19 - 16000.0*q1x - 7600.0*t6_1_11 - t6_1_12*t6_1_14 - 800.0*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900.0*t6_1_24 + 72900.0*t6_1_25 - 80800.0*t6_1_8 + 7600.0*t6_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 0.09999999999999999:
+                    elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -534,19 +534,19 @@ def _closed_form(pose, current, check_finite=True):
                     t6_2_1 = s3*s3
 
                     dt2 = 190.0*c3*v1x - 20.0*c3*v1y - 20.0*s3*v1x - 190.0*s3*v1y - 200.0*v1y
-                    if abs(dt2) > 1e-16:
+                    if dt2 > 1e-16 or dt2 < -1e-16:
                         c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
                         s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 9.999999999999999e-05:
+                        elif dt2 > 9.999999999999999e-05 or dt2 < -9.999999999999999e-05:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -586,19 +586,19 @@ def _closed_form(pose, current, check_finite=True):
             t10_0_0 = 60.0*s5
 
             dt4 = -3600.0*s5*s5
-            if abs(dt4) > 9.999999999999999e-18:
+            if dt4 > 9.999999999999999e-18 or dt4 < -9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 9.999999999999999e-06:
+                elif dt4 > 9.999999999999999e-06 or dt4 < -9.999999999999999e-06:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True

@@ -543,10 +543,10 @@ def _closed_form(pose, current, check_finite=True):
         s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
 
         hq4 = c4 * c4 + s4 * s4
-        if abs(hq4 - 1.0) > 1e-4:
+        if hq4 < 0.9999 or hq4 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq4 - 1.0) > 1e-15:
+        if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
             hn4 = 1.0 / sqrt(hq4)
             c4 = c4 * hn4
             s4 = s4 * hn4
@@ -556,19 +556,19 @@ def _closed_form(pose, current, check_finite=True):
         t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
-        if abs(dt5) > 1e-21:
+        if dt5 > 1e-21 or dt5 < -1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
             hq5 = c5 * c5 + s5 * s5
-            if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free5 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq5 - 1.0) > 1e-15:
+                if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn5 = 1.0 / sqrt(hq5)
                     c5 = c5 * hn5
                     s5 = s5 * hn5
                 th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
-            elif abs(dt5) > 9.999999999999999e-10:
+            elif dt5 > 9.999999999999999e-10 or dt5 < -9.999999999999999e-10:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
@@ -631,19 +631,19 @@ def _closed_form(pose, current, check_finite=True):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt1 = s2*s2
-        if abs(dt1) > 1e-20:
+        if dt1 > 1e-20 or dt1 < -1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
             hq1 = c1 * c1 + s1 * s1
-            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq1 - 1.0) > 1e-15:
+                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn1 = 1.0 / sqrt(hq1)
                     c1 = c1 * hn1
                     s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif abs(dt1) > 1e-08:
+            elif dt1 > 1e-08 or dt1 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -671,7 +671,7 @@ def _closed_form(pose, current, check_finite=True):
         s3 = (-g23_12) / 0.8660254037844386
 
         hq3 = c3 * c3 + s3 * s3
-        if abs(hq3 - 1.0) > 1e-4:
+        if hq3 < 0.9999 or hq3 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         th3 = atan2(s3, c3)   # after the unit scaling, as the C solver computes it
 
@@ -781,10 +781,10 @@ def inverse_joints(pose, current=None):
         s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
 
         hq4 = c4 * c4 + s4 * s4
-        if abs(hq4 - 1.0) > 1e-4:
+        if hq4 < 0.9999 or hq4 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-        if abs(hq4 - 1.0) > 1e-15:
+        if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
             hn4 = 1.0 / sqrt(hq4)
             c4 = c4 * hn4
             s4 = s4 * hn4
@@ -794,19 +794,19 @@ def inverse_joints(pose, current=None):
         t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
-        if abs(dt5) > 1e-21:
+        if dt5 > 1e-21 or dt5 < -1e-21:
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
             s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
             hq5 = c5 * c5 + s5 * s5
-            if not abs(hq5 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free5 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq5 - 1.0) > 1e-15:
+                if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn5 = 1.0 / sqrt(hq5)
                     c5 = c5 * hn5
                     s5 = s5 * hn5
                 th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
-            elif abs(dt5) > 9.999999999999999e-10:
+            elif dt5 > 9.999999999999999e-10 or dt5 < -9.999999999999999e-10:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
@@ -869,19 +869,19 @@ def inverse_joints(pose, current=None):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt1 = s2*s2
-        if abs(dt1) > 1e-20:
+        if dt1 > 1e-20 or dt1 < -1e-20:
             c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
             s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
             hq1 = c1 * c1 + s1 * s1
-            if not abs(hq1 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if abs(hq1 - 1.0) > 1e-15:
+                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                     hn1 = 1.0 / sqrt(hq1)
                     c1 = c1 * hn1
                     s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif abs(dt1) > 1e-08:
+            elif dt1 > 1e-08 or dt1 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -909,7 +909,7 @@ def inverse_joints(pose, current=None):
         s3 = (-g23_12) / 0.8660254037844386
 
         hq3 = c3 * c3 + s3 * s3
-        if abs(hq3 - 1.0) > 1e-4:
+        if hq3 < 0.9999 or hq3 > 1.0001:   # abs(hq - 1) > 1e-4
             continue
         th3 = atan2(s3, c3)   # after the unit scaling, as the C solver computes it
 

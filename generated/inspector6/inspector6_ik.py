@@ -441,19 +441,19 @@ def _closed_form(pose, current, check_finite=True):
             t7_0_0 = 290.0*v1x
 
             dt2 = dq2
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -484,19 +484,19 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_20 = 7225.0*v1y
 
                 dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 + 580.0*g16_24*t7_1_5 + 49300.0*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -541,19 +541,19 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -581,7 +581,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -724,19 +724,19 @@ def inverse_joints(pose, current=None):
             t7_0_0 = 290.0*v1x
 
             dt2 = dq2
-            if abs(dt2) > 9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                 c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
                 s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 0.0009999999999999998:
+                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -767,19 +767,19 @@ def inverse_joints(pose, current=None):
                 t7_1_20 = 7225.0*v1y
 
                 dt2 = 49300.0*g16_13*t7_1_4 - 580.0*g16_14*t7_1_4 + 580.0*g16_24*t7_1_5 + 49300.0*r33*t7_1_5 + t7_1_0*t7_1_6 + 54400.0*t7_1_0 - t7_1_1*t7_1_7 - 640.0*t7_1_1 + t7_1_2*t7_1_6 + 54400.0*t7_1_2 - t7_1_3*t7_1_7 - 640.0*t7_1_3
-                if abs(dt2) > 1e-12:
+                if dt2 > 1e-12 or dt2 < -1e-12:
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1.0:
+                    elif dt2 > 1.0 or dt2 < -1.0:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -824,19 +824,19 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -864,7 +864,7 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

@@ -460,19 +460,19 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -500,7 +500,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -673,19 +673,19 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g26_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -713,7 +713,7 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

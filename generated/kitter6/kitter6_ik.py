@@ -422,19 +422,19 @@ def _closed_form(pose, current, check_finite=True):
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
-            if abs(dt6) > 1e-20:
+            if dt6 > 1e-20 or dt6 < -1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
-                if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free6 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq6 - 1.0) > 1e-15:
+                    if hq6 < 0.999999999999999 or hq6 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn6 = 1.0 / sqrt(hq6)
                         c6 = c6 * hn6
                         s6 = s6 * hn6
                     th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
-                elif abs(dt6) > 1e-08:
+                elif dt6 > 1e-08 or dt6 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
@@ -475,7 +475,7 @@ def _closed_form(pose, current, check_finite=True):
             sp234 = -g14_12
 
             hqp234 = cp234 * cp234 + sp234 * sp234
-            if abs(hqp234 - 1.0) > 1e-4:
+            if hqp234 < 0.9999 or hqp234 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             thp234 = atan2(sp234, cp234)
 
@@ -498,14 +498,14 @@ def _closed_form(pose, current, check_finite=True):
                 t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
-                if abs(dt2) > 9.999999999999999e-16:
+                if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         th2 = atan2(s2, c2)
-                    elif abs(dt2) > 0.0009999999999999998:
+                    elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -625,19 +625,19 @@ def inverse_joints(pose, current=None):
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
-            if abs(dt6) > 1e-20:
+            if dt6 > 1e-20 or dt6 < -1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
-                if not abs(hq6 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free6 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq6 - 1.0) > 1e-15:
+                    if hq6 < 0.999999999999999 or hq6 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn6 = 1.0 / sqrt(hq6)
                         c6 = c6 * hn6
                         s6 = s6 * hn6
                     th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
-                elif abs(dt6) > 1e-08:
+                elif dt6 > 1e-08 or dt6 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
@@ -678,7 +678,7 @@ def inverse_joints(pose, current=None):
             sp234 = -g14_12
 
             hqp234 = cp234 * cp234 + sp234 * sp234
-            if abs(hqp234 - 1.0) > 1e-4:
+            if hqp234 < 0.9999 or hqp234 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             thp234 = atan2(sp234, cp234)
 
@@ -701,14 +701,14 @@ def inverse_joints(pose, current=None):
                 t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
-                if abs(dt2) > 9.999999999999999e-16:
+                if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
                     c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
                     s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         th2 = atan2(s2, c2)
-                    elif abs(dt2) > 0.0009999999999999998:
+                    elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True

@@ -438,19 +438,19 @@ def _closed_form(pose, current, check_finite=True):
             t7_0_1 = s3*v1x
 
             dt2 = dq2
-            if abs(dt2) > 1e-20:
+            if dt2 > 1e-20 or dt2 < -1e-20:
                 c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
                 s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 1e-08:
+                elif dt2 > 1e-08 or dt2 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -514,19 +514,19 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_53 = 0.0196*t7_1_46
 
                 dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz + 0.0308*r31*v1x - 0.00462*r31 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
-                if abs(dt2) > 1e-19:
+                if dt2 > 1e-19 or dt2 < -1e-19:
                     c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1e-07:
+                    elif dt2 > 1e-07 or dt2 < -1e-07:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -566,19 +566,19 @@ def _closed_form(pose, current, check_finite=True):
                     t7_2_29 = g16_24*t7_2_5
 
                     dt2 = 0.187*c3*g16_12*r33 - 0.187*c3*t7_2_0 + 1.53*g16_11*r32*s3 + 1.5446*g16_12*r33 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0
-                    if abs(dt2) > 1e-20:
+                    if dt2 > 1e-20 or dt2 < -1e-20:
                         c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
                         s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 1e-08:
+                        elif dt2 > 1e-08 or dt2 < -1e-08:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -623,19 +623,19 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (g16_23*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -663,7 +663,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -800,19 +800,19 @@ def inverse_joints(pose, current=None):
             t7_0_1 = s3*v1x
 
             dt2 = dq2
-            if abs(dt2) > 1e-20:
+            if dt2 > 1e-20 or dt2 < -1e-20:
                 c2 = (-0.11*c3*v1x + 0.0165*c3 + s3*t7_0_2 - 0.135*s3 + t7_0_0*wz + 0.9*t7_0_1 - 0.85*v1x + 0.1275) / dt2
                 s2 = (c3*t7_0_2 - 0.135*c3 - 0.9*s3*wz - 0.0165*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.85*wz) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 1e-08:
+                elif dt2 > 1e-08 or dt2 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -876,19 +876,19 @@ def inverse_joints(pose, current=None):
                 t7_1_53 = 0.0196*t7_1_46
 
                 dt2 = 0.0378*g16_13 + g16_14*t7_1_5 - 0.27*g16_14 - pcz*t7_1_1 - 0.033*pcz + 0.0308*r31*v1x - 0.00462*r31 - 0.03825*s3 - 0.238*t7_1_0*v1x + 0.0357*t7_1_0 + t7_1_1*wz - t7_1_10*t7_1_14 + 1.8*t7_1_10 + 0.238*t7_1_11 - t7_1_12*t7_1_7 + t7_1_12*t7_1_9 + t7_1_13*t7_1_3 + t7_1_13*t7_1_8 - t7_1_14*t7_1_6 - 0.0357*t7_1_2 - 0.252*t7_1_3 + 0.0308*t7_1_4 + t7_1_5*v1x + 1.8*t7_1_6 - 0.22*t7_1_7 - 0.252*t7_1_8 + 0.22*t7_1_9 - 0.27*v1x + 0.033*wz + 0.0405
-                if abs(dt2) > 1e-19:
+                if dt2 > 1e-19 or dt2 < -1e-19:
                     c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 1e-07:
+                    elif dt2 > 1e-07 or dt2 < -1e-07:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -928,19 +928,19 @@ def inverse_joints(pose, current=None):
                     t7_2_29 = g16_24*t7_2_5
 
                     dt2 = 0.187*c3*g16_12*r33 - 0.187*c3*t7_2_0 + 1.53*g16_11*r32*s3 + 1.5446*g16_12*r33 - 1.53*s3*t7_2_1 - 1.5446*t7_2_0
-                    if abs(dt2) > 1e-20:
+                    if dt2 > 1e-20 or dt2 < -1e-20:
                         c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
                         s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 1e-08:
+                        elif dt2 > 1e-08 or dt2 < -1e-08:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -985,19 +985,19 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (-g36_13*s5) / dt4
                 s4 = (g16_23*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -1025,7 +1025,7 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

@@ -444,19 +444,19 @@ def _closed_form(pose, current, check_finite=True):
             t7_0_2 = s3*v1y
 
             dt2 = dq2
-            if abs(dt2) > 1e-21:
+            if dt2 > 1e-21 or dt2 < -1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 9.999999999999999e-10:
+                elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -493,19 +493,19 @@ def _closed_form(pose, current, check_finite=True):
                 t7_1_26 = 0.027225*t7_1_24
 
                 dt2 = 0.68*c3*g16_14*v1y - 0.1122*c3*r33*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.7*g16_24*v1y - 0.1122*r33*s3*v1y - 0.01155*r33*v1x + 0.1155*r33*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
-                if abs(dt2) > 1e-21:
+                if dt2 > 1e-21 or dt2 < -1e-21:
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 9.999999999999999e-10:
+                    elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -529,19 +529,19 @@ def _closed_form(pose, current, check_finite=True):
                     t7_2_13 = 0.35*t7_2_1
 
                     dt2 = 0.58*c1*(-0.0238*c3 + 0.238*s3 - 0.239325)
-                    if abs(dt2) > 1e-21:
+                    if dt2 > 1e-21 or dt2 < -1e-21:
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 9.999999999999999e-10:
+                        elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -586,19 +586,19 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -626,7 +626,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 
@@ -770,19 +770,19 @@ def inverse_joints(pose, current=None):
             t7_0_2 = s3*v1y
 
             dt2 = dq2
-            if abs(dt2) > 1e-21:
+            if dt2 > 1e-21 or dt2 < -1e-21:
                 c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
                 s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq2 - 1.0) > 1e-15:
+                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn2 = 1.0 / sqrt(hq2)
                         c2 = c2 * hn2
                         s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif abs(dt2) > 9.999999999999999e-10:
+                elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -819,19 +819,19 @@ def inverse_joints(pose, current=None):
                 t7_1_26 = 0.027225*t7_1_24
 
                 dt2 = 0.68*c3*g16_14*v1y - 0.1122*c3*r33*v1x - 0.1122*c3*t7_1_0 - 0.68*c3*t7_1_1 + 0.1122*g16_13*s3*v1x - 0.1155*g16_13*v1x - g16_14*t7_1_2*v1x + 0.7*g16_14*v1x + 0.07*g16_14*v1y + 0.7*g16_24*v1y - 0.1122*r33*s3*v1y - 0.01155*r33*v1x + 0.1155*r33*v1y - 0.01155*t7_1_0 - 0.07*t7_1_1 - t7_1_2*t7_1_3
-                if abs(dt2) > 1e-21:
+                if dt2 > 1e-21 or dt2 < -1e-21:
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
                         # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if abs(hq2 - 1.0) > 1e-15:
+                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                             hn2 = 1.0 / sqrt(hq2)
                             c2 = c2 * hn2
                             s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                    elif abs(dt2) > 9.999999999999999e-10:
+                    elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
@@ -855,19 +855,19 @@ def inverse_joints(pose, current=None):
                     t7_2_13 = 0.35*t7_2_1
 
                     dt2 = 0.58*c1*(-0.0238*c3 + 0.238*s3 - 0.239325)
-                    if abs(dt2) > 1e-21:
+                    if dt2 > 1e-21 or dt2 < -1e-21:
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not abs(hq2 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                             free2 = False
                             # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if abs(hq2 - 1.0) > 1e-15:
+                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                                 hn2 = 1.0 / sqrt(hq2)
                                 c2 = c2 * hn2
                                 s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                        elif abs(dt2) > 9.999999999999999e-10:
+                        elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
@@ -912,19 +912,19 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt4 = -s5*s5
-            if abs(dt4) > 1e-20:
+            if dt4 > 1e-20 or dt4 < -1e-20:
                 c4 = (g36_13*s5) / dt4
                 s4 = (-g16_33*s5) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not abs(hq4 - 1.0) > 1e-4:     # (a NaN goes on as before: the finite test drops it)
+                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
                     # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if abs(hq4 - 1.0) > 1e-15:
+                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
                         hn4 = 1.0 / sqrt(hq4)
                         c4 = c4 * hn4
                         s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
-                elif abs(dt4) > 1e-08:
+                elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
@@ -952,7 +952,7 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if abs(hq6 - 1.0) > 1e-4:
+            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
 

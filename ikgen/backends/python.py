@@ -9,7 +9,10 @@ name.
 
 from __future__ import annotations
 
+import math
 import re
+from fractions import Fraction
+
 import sympy as sp
 from sympy.printing.pycode import PythonCodePrinter
 
@@ -107,10 +110,31 @@ TARGET_API = {
 }
 
 
+PAIR_TOLERANCE = 1e-4   # a linear pair whose (cos, sin) is off the unit circle by more is inconsistent (C: the same)
+
+
+def unit_band(tolerance: float) -> tuple[str, str]:
+    """(lo, hi) as Python literals such that, for every float ``hq``, ``hq < lo or hq > hi`` holds
+    exactly when ``abs(hq - 1.0) > tolerance`` does (the C solver's test): within [0.5, 2] the
+    difference hq - 1.0 is exact (Sterbenz's lemma), so the test is hq > 1 + tolerance or
+    hq < 1 - tolerance in exact arithmetic, and lo, hi are the floats nearest those bounds on
+    the inside; outside [0.5, 2] both tests hold. A NaN passes both, as before. Two comparisons
+    cost the interpreter less than a call to abs()."""
+    bound = Fraction(tolerance)                  # the float's exact value
+    hi = float(1 + bound)
+    if Fraction(hi) > 1 + bound:
+        hi = math.nextafter(hi, 0.0)
+    lo = float(1 - bound)
+    if Fraction(lo) < 1 - bound:
+        lo = math.nextafter(lo, 2.0)
+    return repr(lo), repr(hi)
+
+
 def tolerances(real: str) -> dict:
     return {"tilt": common.TILT_TOLERANCE[real], "roll": common.ROLL_TOLERANCE[real],
             "roll_gain": common.ROLL_GAIN[real], "roll_floor": common.ROLL_FLOOR[real],
-            "unit": common.UNIT_TOLERANCE[real], "slack": common.UNIT_SLACK[real]}
+            "unit": common.UNIT_TOLERANCE[real], "slack": common.UNIT_SLACK[real],
+            "slack_band": unit_band(common.UNIT_SLACK[real]), "pair_band": unit_band(PAIR_TOLERANCE)}
 
 
 def within_test(arm: Arm) -> str:
