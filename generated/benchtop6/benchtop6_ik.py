@@ -651,44 +651,41 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 57.29577951308232
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * 57.29577951308232
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3 * 57.29577951308232,
-                u4 * 57.29577951308232,
-                th5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-            )
-            solutions.append(_new(Solution, (q, (
-                "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                "elbow_up" if lm1 >= 0.0 else "elbow_down",
-                "bend_positive" if lm2 >= 0.0 else "bend_negative",
-            ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
+            v4 = u4 * 57.29577951308232
+            v5 = th5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
+            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
+            inside = -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -150.0000003 <= v3 <= 150.0000003   # the readings the mirrored twin shares
+            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                la0,
+                la1,
+                la2,
+            ), singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3 * 57.29577951308232,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                    "elbow_up" if lm1 >= 0.0 else "elbow_down",
+                v6 = u6 * 57.29577951308232
+                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                    la0,
+                    la1,
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -150.0000003 <= q[2] <= 150.0000003 and -125.00000025000001 <= q[4] <= 125.00000025000001)))
+                ), singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -979,36 +976,29 @@ def inverse_joints(pose, current=None):
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 57.29577951308232
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * 57.29577951308232
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3 * 57.29577951308232,
-                u4 * 57.29577951308232,
-                th5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-            )
-            solutions.append(q)
+            v4 = u4 * 57.29577951308232
+            v5 = th5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3 * 57.29577951308232,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(q)
+                v6 = u6 * 57.29577951308232
+                solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

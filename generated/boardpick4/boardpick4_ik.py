@@ -602,19 +602,17 @@ def _closed_form(pose, current, check_finite=True):
         singular = free3 or root2 == 0.0 or free1
         conditioning = (root2 * 5.594405594405594e-06, )
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        v1 = u1 * 57.29577951308232
         u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
-        u3 = (l3 - 0.0) * 1.0
+        v2 = u2 * 57.29577951308232
+        v3 = (l3 - 0.0) * 1.0
         u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
         u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-        q = (
-            u1 * 57.29577951308232,
-            u2 * 57.29577951308232,
-            u3,
-            u4 * 57.29577951308232,
-        )
-        solutions.append(_new(Solution, (q, (
-            "counterclockwise" if lm0 >= 0.0 else "clockwise",
-        ), singular, conditioning, -140.00000028 <= q[0] <= 140.00000028 and -150.0000003 <= q[1] <= 150.0000003 and -1.8000000000000002e-07 <= q[2] <= 180.00000018)))
+        v4 = u4 * 57.29577951308232
+        la0 = "counterclockwise" if lm0 >= 0.0 else "clockwise"
+        solutions.append(_new(Solution, ((v1, v2, v3, v4, ), (
+            la0,
+        ), singular, conditioning, -140.00000028 <= v1 <= 140.00000028 and -150.0000003 <= v2 <= 150.0000003 and -1.8000000000000002e-07 <= v3 <= 180.00000018)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -751,45 +751,40 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            v2 = u2 * 57.29577951308232
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            v4 = u4 * 57.29577951308232
             u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                given,
-                u4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-                th7 * 57.29577951308232,
-            )
-            solutions.append(_new(Solution, (q, (
-                "bend_positive" if lm0 >= 0.0 else "bend_negative",
-                "bend_positive" if lm1 >= 0.0 else "bend_negative",
-                "bend_positive" if lm2 >= 0.0 else "bend_negative",
-            ), singular, conditioning, -165.00000033 <= q[0] <= 165.00000033 and -115.00000023 <= q[1] <= 115.00000023 and -165.00000033 <= q[2] <= 165.00000033 and -125.00000025000001 <= q[3] <= 125.00000025000001 and -165.00000033 <= q[4] <= 165.00000033 and -115.00000023 <= q[5] <= 115.00000023)))
+            v5 = u5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            v7 = th7 * 57.29577951308232
+            la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
+            la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
+            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
+            inside = -165.00000033 <= v1 <= 165.00000033 and -115.00000023 <= v2 <= 115.00000023 and -165.00000033 <= given <= 165.00000033 and -125.00000025000001 <= v4 <= 125.00000025000001   # the readings the mirrored twin shares
+            solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
+                la0,
+                la1,
+                la2,
+            ), singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
             if root6 > 0.0 and not free5:
                 u5 = th5 + _PI
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = -th6
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                v6 = u6 * 57.29577951308232
                 u7 = th7 + _PI
                 u7 = u7 - _TWO_PI if u7 > _PI else (u7 + _TWO_PI if u7 <= -_PI else u7)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    given,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                    u7 * 57.29577951308232,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "bend_positive" if lm0 >= 0.0 else "bend_negative",
-                    "bend_positive" if lm1 >= 0.0 else "bend_negative",
+                v7 = u7 * 57.29577951308232
+                solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
+                    la0,
+                    la1,
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, -165.00000033 <= q[0] <= 165.00000033 and -115.00000023 <= q[1] <= 115.00000023 and -165.00000033 <= q[2] <= 165.00000033 and -125.00000025000001 <= q[3] <= 125.00000025000001 and -165.00000033 <= q[4] <= 165.00000033 and -115.00000023 <= q[5] <= 115.00000023)))
+                ), singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -1094,37 +1089,28 @@ def inverse_joints(pose, given, current=None):
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            v2 = u2 * 57.29577951308232
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            v4 = u4 * 57.29577951308232
             u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                given,
-                u4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-                th7 * 57.29577951308232,
-            )
-            solutions.append(q)
+            v5 = u5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            v7 = th7 * 57.29577951308232
+            solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
             if root6 > 0.0 and not free5:
                 u5 = th5 + _PI
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = -th6
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                v6 = u6 * 57.29577951308232
                 u7 = th7 + _PI
                 u7 = u7 - _TWO_PI if u7 > _PI else (u7 + _TWO_PI if u7 <= -_PI else u7)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    given,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                    u7 * 57.29577951308232,
-                )
-                solutions.append(q)
+                v7 = u7 * 57.29577951308232
+                solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -682,40 +682,36 @@ def _closed_form(pose, current, check_finite=True):
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        v1 = u1 * 57.29577951308232
+        v2 = th2 * 57.29577951308232
+        v3 = th3 * 57.29577951308232
+        v4 = th4 * 57.29577951308232
         u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        v5 = u5 * 57.29577951308232
         u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
-        q = (
-            u1 * 57.29577951308232,
-            th2 * 57.29577951308232,
-            th3 * 57.29577951308232,
-            th4 * 57.29577951308232,
-            u5 * 57.29577951308232,
-            u6 * 57.29577951308232,
-        )
-        solutions.append(_new(Solution, (q, (
-            "bend_positive" if lm0 >= 0.0 else "bend_negative",
-            "bend_positive" if lm1 >= 0.0 else "bend_negative",
-        ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+        v6 = u6 * 57.29577951308232
+        la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
+        la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
+        inside = -170.00000034 <= v4 <= 170.00000034 and -170.00000034 <= v5 <= 170.00000034 and -170.00000034 <= v6 <= 170.00000034   # the readings the mirrored twin shares
+        solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+            la0,
+            la1,
+        ), singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
         if root2 > 0.0 and not free1:
             u1 = th1 + _PI
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            v1 = u1 * 57.29577951308232
             u2 = -th2
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 57.29577951308232
             u3 = th3 + _PI
             u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3 * 57.29577951308232,
-                th4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
-            )
-            solutions.append(_new(Solution, (q, (
+            v3 = u3 * 57.29577951308232
+            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                 "bend_negative" if lm0 >= 0.0 else "bend_positive",
-                "bend_positive" if lm1 >= 0.0 else "bend_negative",
-            ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and -170.00000034 <= q[2] <= 170.00000034 and -170.00000034 <= q[3] <= 170.00000034 and -170.00000034 <= q[4] <= 170.00000034 and -170.00000034 <= q[5] <= 170.00000034)))
+                la1,
+            ), singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -915,34 +911,27 @@ def inverse_joints(pose, current=None):
 
         # Joint readings, configuration labels, singular flag.
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        v1 = u1 * 57.29577951308232
+        v2 = th2 * 57.29577951308232
+        v3 = th3 * 57.29577951308232
+        v4 = th4 * 57.29577951308232
         u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        v5 = u5 * 57.29577951308232
         u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
-        q = (
-            u1 * 57.29577951308232,
-            th2 * 57.29577951308232,
-            th3 * 57.29577951308232,
-            th4 * 57.29577951308232,
-            u5 * 57.29577951308232,
-            u6 * 57.29577951308232,
-        )
-        solutions.append(q)
+        v6 = u6 * 57.29577951308232
+        solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root2 > 0.0 and not free1:
             u1 = th1 + _PI
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            v1 = u1 * 57.29577951308232
             u2 = -th2
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 57.29577951308232
             u3 = th3 + _PI
             u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3 * 57.29577951308232,
-                th4 * 57.29577951308232,
-                u5 * 57.29577951308232,
-                u6 * 57.29577951308232,
-            )
-            solutions.append(q)
+            v3 = u3 * 57.29577951308232
+            solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -515,43 +515,39 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
-            u3 = (l3 - 0.0) * 1.0
+            v2 = u2 * 57.29577951308232
+            v3 = (l3 - 0.0) * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3,
-                u4 * 57.29577951308232,
-                th5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-            )
-            solutions.append(_new(Solution, (q, (
-                "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                "bend_positive" if lm1 >= 0.0 else "bend_negative",
-                "root_plus" if lm2 >= 0.0 else "root_minus",
-            ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and 499.9999989 <= q[2] <= 1600.0000011 and -115.00000023 <= q[4] <= 115.00000023)))
+            v4 = u4 * 57.29577951308232
+            v5 = th5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+            la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
+            la2 = "root_plus" if lm2 >= 0.0 else "root_minus"
+            inside = -170.00000034 <= v1 <= 170.00000034 and -100.0000002 <= v2 <= 100.0000002 and 499.9999989 <= v3 <= 1600.0000011   # the readings the mirrored twin shares
+            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                la0,
+                la1,
+                la2,
+            ), singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "reach_forward" if lm0 >= 0.0 else "reach_backward",
+                v6 = u6 * 57.29577951308232
+                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                    la0,
                     "bend_negative" if lm1 >= 0.0 else "bend_positive",
-                    "root_plus" if lm2 >= 0.0 else "root_minus",
-                ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -100.0000002 <= q[1] <= 100.0000002 and 499.9999989 <= q[2] <= 1600.0000011 and -115.00000023 <= q[4] <= 115.00000023)))
+                    la2,
+                ), singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -722,35 +718,27 @@ def inverse_joints(pose, current=None):
             if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
                 continue
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
-            u3 = (l3 - 0.0) * 1.0
+            v2 = u2 * 57.29577951308232
+            v3 = (l3 - 0.0) * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3,
-                u4 * 57.29577951308232,
-                th5 * 57.29577951308232,
-                th6 * 57.29577951308232,
-            )
-            solutions.append(q)
+            v4 = u4 * 57.29577951308232
+            v5 = th5 * 57.29577951308232
+            v6 = th6 * 57.29577951308232
+            solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(q)
+                v6 = u6 * 57.29577951308232
+                solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -530,27 +530,28 @@ def _closed_form(pose, current, check_finite=True):
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
                 u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+                v1 = u1 * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+                v2 = u2 * 57.29577951308232
                 u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+                v3 = u3 * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3 * 57.29577951308232,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                    "elbow_up" if lm1 >= 0.0 else "elbow_down",
-                    "bend_positive" if lm2 >= 0.0 else "bend_negative",
-                ), singular, conditioning, -175.00000035 <= q[1] <= 175.00000035 and -160.00000032 <= q[2] <= 160.00000032 and -175.00000035 <= q[3] <= 175.00000035 and -175.00000035 <= q[4] <= 175.00000035)))
+                v6 = u6 * 57.29577951308232
+                la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+                la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
+                la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
+                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                    la0,
+                    la1,
+                    la2,
+                ), singular, conditioning, -175.00000035 <= v2 <= 175.00000035 and -160.00000032 <= v3 <= 160.00000032 and -175.00000035 <= v4 <= 175.00000035 and -175.00000035 <= v5 <= 175.00000035)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -727,23 +728,21 @@ def inverse_joints(pose, current=None):
 
                 # Joint readings, configuration labels, singular flag.
                 u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+                v1 = u1 * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
                 u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+                v2 = u2 * 57.29577951308232
                 u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+                v3 = u3 * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 57.29577951308232
                 u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                v5 = u5 * 57.29577951308232
                 u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
-                q = (
-                    u1 * 57.29577951308232,
-                    u2 * 57.29577951308232,
-                    u3 * 57.29577951308232,
-                    u4 * 57.29577951308232,
-                    u5 * 57.29577951308232,
-                    u6 * 57.29577951308232,
-                )
-                solutions.append(q)
+                v6 = u6 * 57.29577951308232
+                solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

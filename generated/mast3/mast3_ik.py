@@ -397,17 +397,16 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0
             conditioning = (root1 * 0.001, root2 * 0.001, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
-            u3 = (l3 - 0.0) * 1.0
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3,
-            )
-            solutions.append(_new(Solution, (q, (
-                "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                "root_plus" if lm1 >= 0.0 else "root_minus",
-            ), singular, conditioning, -170.00000034 <= q[0] <= 170.00000034 and -120.00000024000002 <= q[1] <= 120.00000024000002 and 399.9999984 <= q[2] <= 2000.0000016)))
+            v2 = u2 * 57.29577951308232
+            v3 = (l3 - 0.0) * 1.0
+            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+            la1 = "root_plus" if lm1 >= 0.0 else "root_minus"
+            solutions.append(_new(Solution, ((v1, v2, v3, ), (
+                la0,
+                la1,
+            ), singular, conditioning, -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and 399.9999984 <= v3 <= 2000.0000016)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -493,14 +492,11 @@ def inverse_joints(pose, current=None):
             if not 399.9999984 <= (l3 - 0.0) * 1.0 <= 2000.0000016:
                 continue
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 57.29577951308232
             u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
-            u3 = (l3 - 0.0) * 1.0
-            q = (
-                u1 * 57.29577951308232,
-                u2 * 57.29577951308232,
-                u3,
-            )
-            solutions.append(q)
+            v2 = u2 * 57.29577951308232
+            v3 = (l3 - 0.0) * 1.0
+            solutions.append((v1, v2, v3, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

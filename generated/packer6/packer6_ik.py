@@ -675,44 +675,41 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1, root3 * 0.648767005161783, root5, )
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 1.0
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 1.0,
-                u2 * 1.0,
-                u3 * 1.0,
-                u4 * 1.0,
-                th5 * 1.0,
-                th6 * 1.0,
-            )
-            solutions.append(_new(Solution, (q, (
-                "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                "elbow_up" if lm1 >= 0.0 else "elbow_down",
-                "bend_positive" if lm2 >= 0.0 else "bend_negative",
-            ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
+            v4 = u4 * 1.0
+            v5 = th5 * 1.0
+            v6 = th6 * 1.0
+            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
+            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
+            inside = -2.356194494904734 <= v2 <= 2.356194494904734 and -2.617993883227482 <= v3 <= 2.617993883227482   # the readings the mirrored twin shares
+            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                la0,
+                la1,
+                la2,
+            ), singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 1.0
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 1.0
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 1.0,
-                    u2 * 1.0,
-                    u3 * 1.0,
-                    u4 * 1.0,
-                    u5 * 1.0,
-                    u6 * 1.0,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                    "elbow_up" if lm1 >= 0.0 else "elbow_down",
+                v6 = u6 * 1.0
+                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                    la0,
+                    la1,
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, -2.356194494904734 <= q[1] <= 2.356194494904734 and -2.617993883227482 <= q[2] <= 2.617993883227482 and -2.094395106581986 <= q[4] <= 2.094395106581986)))
+                ), singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -1031,36 +1028,29 @@ def inverse_joints(pose, current=None):
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 1.0
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * 1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 1.0,
-                u2 * 1.0,
-                u3 * 1.0,
-                u4 * 1.0,
-                th5 * 1.0,
-                th6 * 1.0,
-            )
-            solutions.append(q)
+            v4 = u4 * 1.0
+            v5 = th5 * 1.0
+            v6 = th6 * 1.0
+            solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 1.0
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 1.0
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 1.0,
-                    u2 * 1.0,
-                    u3 * 1.0,
-                    u4 * 1.0,
-                    u5 * 1.0,
-                    u6 * 1.0,
-                )
-                solutions.append(q)
+                v6 = u6 * 1.0
+                solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

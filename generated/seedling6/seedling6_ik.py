@@ -639,44 +639,41 @@ def _closed_form(pose, current, check_finite=True):
             conditioning = (root1 * 3.162277660168379, root3 * 4.180828530294072, root5, )
             u1 = th1 - 0.5235987755982991
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 1.0
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * -1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 1.0,
-                u2 * 1.0,
-                u3 * -1.0,
-                u4 * 1.0,
-                th5 * 1.0,
-                th6 * 1.0,
-            )
-            solutions.append(_new(Solution, (q, (
-                "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                "elbow_up" if lm1 >= 0.0 else "elbow_down",
-                "bend_positive" if lm2 >= 0.0 else "bend_negative",
-            ), singular, conditioning, -2.9000000058 <= q[0] <= 2.9000000058 and -1.9000000038 <= q[1] <= 1.9000000038 and -2.4000000048 <= q[2] <= 2.4000000048 and -3.1000000062 <= q[3] <= 3.1000000062 and -2.1000000042 <= q[4] <= 2.1000000042)))
+            v4 = u4 * 1.0
+            v5 = th5 * 1.0
+            v6 = th6 * 1.0
+            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
+            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
+            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
+            inside = -2.9000000058 <= v1 <= 2.9000000058 and -1.9000000038 <= v2 <= 1.9000000038 and -2.4000000048 <= v3 <= 2.4000000048   # the readings the mirrored twin shares
+            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                la0,
+                la1,
+                la2,
+            ), singular, conditioning, inside and -3.1000000062 <= v4 <= 3.1000000062 and -2.1000000042 <= v5 <= 2.1000000042)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 1.0
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 1.0
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 1.0,
-                    u2 * 1.0,
-                    u3 * -1.0,
-                    u4 * 1.0,
-                    u5 * 1.0,
-                    u6 * 1.0,
-                )
-                solutions.append(_new(Solution, (q, (
-                    "reach_forward" if lm0 >= 0.0 else "reach_backward",
-                    "elbow_up" if lm1 >= 0.0 else "elbow_down",
+                v6 = u6 * 1.0
+                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
+                    la0,
+                    la1,
                     "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, -2.9000000058 <= q[0] <= 2.9000000058 and -1.9000000038 <= q[1] <= 1.9000000038 and -2.4000000048 <= q[2] <= 2.4000000048 and -3.1000000062 <= q[3] <= 3.1000000062 and -2.1000000042 <= q[4] <= 2.1000000042)))
+                ), singular, conditioning, inside and -3.1000000062 <= v4 <= 3.1000000062 and -2.1000000042 <= v5 <= 2.1000000042)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
@@ -959,36 +956,29 @@ def inverse_joints(pose, current=None):
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - 0.5235987755982991
             u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
             u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            v2 = u2 * 1.0
             u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            v3 = u3 * -1.0
             u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-            q = (
-                u1 * 1.0,
-                u2 * 1.0,
-                u3 * -1.0,
-                u4 * 1.0,
-                th5 * 1.0,
-                th6 * 1.0,
-            )
-            solutions.append(q)
+            v4 = u4 * 1.0
+            v5 = th5 * 1.0
+            v6 = th6 * 1.0
+            solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + _PI
                 u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                v4 = u4 * 1.0
                 u5 = -th5
                 u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                v5 = u5 * 1.0
                 u6 = th6 + _PI
                 u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
-                q = (
-                    u1 * 1.0,
-                    u2 * 1.0,
-                    u3 * -1.0,
-                    u4 * 1.0,
-                    u5 * 1.0,
-                    u6 * 1.0,
-                )
-                solutions.append(q)
+                v6 = u6 * 1.0
+                solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -88,7 +88,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
-        within_test=within_test(arm), target=common.target_plan(arm, derivation),
+        within_parts=within_parts(arm, plan), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else ""))
@@ -137,12 +137,21 @@ def tolerances(real: str) -> dict:
             "slack_band": unit_band(common.UNIT_SLACK[real]), "pair_band": unit_band(PAIR_TOLERANCE)}
 
 
-def within_test(arm: Arm) -> str:
-    """The limits check of a solution ``q`` whose revolute readings lie in one turn: joints whose
-    limits hold the whole turn need no check."""
-    checks = [f"{t.low!r} <= q[{k}] <= {t.high!r}" for k, t in enumerate(common.joint_turns(arm))
-              if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)]
-    return " and ".join(checks) or "True"
+def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
+    """The limits check of a solution whose revolute readings lie in one turn, as expressions in
+    its readings (v<j>, or ``given`` for the caller's joint); joints whose limits hold the whole
+    turn need no check. Split in two: the checks of readings a mirrored twin shares with its first
+    solution (tested once for both) and the rest (all of them when the plan has no mirror)."""
+    kept, changed = [], []
+    for k, turn in enumerate(common.joint_turns(arm)):
+        if turn.turn and turn.low <= -turn.turn / 2 and turn.high >= turn.turn / 2:
+            continue
+        joint = k + 1
+        out = next(o for o in plan.outputs if o.joint == joint)
+        check = f"{turn.low!r} <= {'given' if out.given else f'v{joint}'} <= {turn.high!r}"
+        shared = plan.mirror is not None and (out.prismatic or out.given or plan.mirrored_angle(joint) == f"th{joint}")
+        (kept if shared else changed).append(check)
+    return kept, changed
 
 
 PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "double_root": "dbl{}", "root": "root{} > 0.0",
