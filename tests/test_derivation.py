@@ -436,3 +436,29 @@ def test_reversed_directions_offsets_and_frames_verify_clean(special_arms, name)
     assert report.checked >= 290 and report.complete == report.checked
     assert sum(report.singular_tested.values()) > 0
     assert report.unreachable_ok == report.unreachable_tested > 0
+
+
+def test_parallel_neighbours_are_moved_over_as_one_turn():
+    """benchtop6's axes 2 and 3 are parallel (a3 = 0 twist between them): the known side with
+    joints 1-3 moved over is written with the cosine and sine of th2 + th3, defined by the angle
+    sum identities cos(a + b) = cos a cos b - sin a sin b, sin(a + b) = sin a cos b + cos a sin b
+    (common practice; checked here by sympy's trigonometric expansion), and its rotation entries
+    read no cosine or sine of th2 or th3 alone. The angle sum is exact: the round trips of the
+    solver are checked in tests/test_verify.py and everywhere else."""
+    import sympy as sp
+    derivation = shared.derivation(demo_arm("benchtop6"))
+    computes = [s for s in derivation.steps if isinstance(s, Compute)]
+    [sums] = [s for s in computes if [str(n) for n in s.names] == ["c23", "s23"]]
+    a, b = sp.symbols("a b", real=True)
+    on_angles = {sp.Symbol("c2", real=True): sp.cos(a), sp.Symbol("s2", real=True): sp.sin(a),
+                 sp.Symbol("c3", real=True): sp.cos(b), sp.Symbol("s3", real=True): sp.sin(b)}
+    cos_sum, sin_sum = (e.xreplace(on_angles) for e in sums.exprs)
+    assert sp.simplify(cos_sum - sp.expand_trig(sp.cos(a + b))) == 0
+    assert sp.simplify(sin_sum - sp.expand_trig(sp.sin(a + b))) == 0
+    [moved] = [s for s in computes if any(str(n) == "g36_11" for n in s.names)]
+    alone = {sp.Symbol(n, real=True) for n in ("c2", "s2", "c3", "s3")}
+    for name, expr in zip(moved.names, moved.exprs):
+        if name.name[-2] != "4" and name.name[-1] != "4":         # rotation entries (r, c) with r, c < 4
+            assert not (expr.free_symbols & alone), (name, expr)
+    # joints 1 and 2 of benchtop6 are not parallel (twist -90 deg): no such sum for them
+    assert not any([str(n) for n in s.names] == ["c12", "s12"] for s in computes)

@@ -560,13 +560,13 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = cos(th2)
                         s2 = sin(th2)
 
-            # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            q2x = c2*q1x + q1y*s2 - 200.0
-            q2y = c2*q1y - q1x*s2
+            # cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add)
+            c23 = c2*c3 - s2*s3
+            s23 = c2*s3 + c3*s2
 
-            # A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-            q3x = c3*q2x + q2y*s3 - 20.0
-            q3z = -c3*q2y + q2x*s3
+            # A3^-1 A2^-1 A1^-1 p: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
+            q3x = c23*q1x - 200.0*c3 + q1y*s23 - 20.0
+            q3z = -c23*q1y + q1x*s23 - 200.0*s3
 
             # th5: z of A3^-1 A2^-1 A1^-1 p = A4 A5 t
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -616,12 +616,8 @@ def _closed_form(pose, current, check_finite=True):
             n1x = c1*r13 + r23*s1
             n1z = -c1*r23 + r13*s1
 
-            # A2^-1 A1^-1 u: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            n2x = c2*n1x + r33*s2
-            n2y = c2*r33 - n1x*s2
-
-            # A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-            n3x = c3*n2x + n2y*s3
+            # A3^-1 A2^-1 A1^-1 u: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
+            n3x = c23*n1x + r33*s23
 
             # Joint readings, configuration labels, singular flag.
 

@@ -510,21 +510,17 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = cos(th2)
                     s2 = sin(th2)
 
-            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + r32*s2
-            g26_12 = c2*g16_12 - r31*s2
-            g26_13 = c2*g16_13 - r33*s2
-            g26_21 = c2*r32 - g16_11*s2
-            g26_22 = -c2*r31 - g16_12*s2
-            g26_23 = -c2*r33 - g16_13*s2
+            # cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add)
+            c23 = c2*c3 - s2*s3
+            s23 = c2*s3 + c3*s2
 
-            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-            g36_11 = c3*g26_11 + g26_21*s3
-            g36_12 = c3*g26_12 + g26_22*s3
-            g36_13 = c3*g26_13 + g26_23*s3
-            g36_31 = -c3*g26_21 + g26_11*s3
-            g36_32 = -c3*g26_22 + g26_12*s3
-            g36_33 = -c3*g26_23 + g26_13*s3
+            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
+            g36_11 = c23*g16_11 + r32*s23
+            g36_12 = c23*g16_12 - r31*s23
+            g36_13 = c23*g16_13 - r33*s23
+            g36_31 = -c23*r32 + g16_11*s23
+            g36_32 = c23*r31 + g16_12*s23
+            g36_33 = c23*r33 + g16_13*s23
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -790,21 +786,17 @@ def inverse_joints(pose, current=None):
                     c2 = cos(th2)
                     s2 = sin(th2)
 
-            # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 + r32*s2
-            g26_12 = c2*g16_12 - r31*s2
-            g26_13 = c2*g16_13 - r33*s2
-            g26_21 = c2*r32 - g16_11*s2
-            g26_22 = -c2*r31 - g16_12*s2
-            g26_23 = -c2*r33 - g16_13*s2
+            # cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add)
+            c23 = c2*c3 - s2*s3
+            s23 = c2*s3 + c3*s2
 
-            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-            g36_11 = c3*g26_11 + g26_21*s3
-            g36_12 = c3*g26_12 + g26_22*s3
-            g36_13 = c3*g26_13 + g26_23*s3
-            g36_31 = -c3*g26_21 + g26_11*s3
-            g36_32 = -c3*g26_22 + g26_12*s3
-            g36_33 = -c3*g26_23 + g26_13*s3
+            # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
+            g36_11 = c23*g16_11 + r32*s23
+            g36_12 = c23*g16_12 - r31*s23
+            g36_13 = c23*g16_13 - r33*s23
+            g36_31 = -c23*r32 + g16_11*s23
+            g36_32 = c23*r31 + g16_12*s23
+            g36_33 = c23*r33 + g16_13*s23
 
             # th5: entry (3,3) A3^-1 A2^-1 A1^-1 T A6^-1 = A4 A5
             # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)

@@ -88,6 +88,8 @@ class Names:
         self.rotation_entries: dict[sp.Symbol, tuple[tuple, int, int]] = {}
         self.matrices: dict[tuple, sp.Matrix] = {}
         self.order: list[tuple] = []
+        self.sums: dict[tuple, tuple[sp.Symbol, sp.Symbol]] = {}   # ("angle sum", j, j+1) -> (cos, sin)
+        self._together: dict[int, bool] = {}
 
     def register_known(self, identity: Identity) -> None:
         """The known object of an identity (its values on the samples, its unit rows and columns)."""
@@ -124,7 +126,13 @@ class Names:
     def _define(self, identity: Identity, i: int, k: int) -> None:
         m = identity.length
         left_parent = (identity.name, i - 1, k) in self.definitions or (i - 1, k) == (0, m)
-        if i > 0 and (left_parent or k == m or not ((identity.name, i, k + 1) in self.definitions)):
+        if i > 1 and self.turns_together(identity.factors[i - 2], identity.factors[i - 1]):
+            # two parallel axes in a row: (A_j A_j+1)^-1 rotates by -(th_j + th_j+1) as one step
+            first, second = identity.factors[i - 2], identity.factors[i - 1]
+            parent = self.folded(identity, i - 2, k)
+            value = self.sum_factor(first.joint) * parent
+            how = f"{first.words()}^-1 and {second.words()}^-1 together (parallel axes: their turns add) times"
+        elif i > 0 and (left_parent or k == m or not ((identity.name, i, k + 1) in self.definitions)):
             parent = self.folded(identity, i - 1, k)
             factor = identity.factors[i - 1]
             value = self.chain.factor(factor.joint, not factor.inverse) * parent
@@ -138,10 +146,11 @@ class Names:
         rows = 3
         names, exprs = [], []
         columns = 1 if identity.is_point else 4
+        circles = self.chain.circles + list(self.sums.values())
         for r in range(rows):
             for c in range(columns):
                 names.append(symbols[r, c])
-                exprs.append(tidy(value[r, c], self.chain.circles))
+                exprs.append(tidy(value[r, c], circles))
         lhs, _ = identity.words((i, k))
         purpose = f"{lhs}: the known side with joints {', '.join(str(f.joint) for f in identity.factors[:i] + identity.factors[k:])} " \
                   f"moved over ({how} the previous one)"
@@ -154,6 +163,60 @@ class Names:
                 for c in range(3):
                     self.rotation_entries[symbols[r, c]] = ((identity.name, i, k), r, c)
         self._numeric(identity, i, k, symbols)
+
+    def turns_together(self, first, second) -> bool:
+        """Whether two factors of an identity are A_j A_j+1 (neither inverted) of two revolute joints
+        whose rotations add: the rotation of A_j A_j+1 depends on th_j + th_j+1 alone (parallel axes
+        pointing the same way), checked on the samples."""
+        j = first.joint
+        if first.inverse or second.inverse or second.joint != j + 1:
+            return False
+        if j in self._together:
+            return self._together[j]
+        unknowns = self.chain.unknowns
+        together = not (unknowns[j - 1].prismatic or unknowns[j].prismatic)
+        if together:
+            angles = self.samples.angles
+            shifted = angles.copy()
+            shift = np.linspace(0.3, 2.9, len(angles))
+            shifted[:, j - 1] += shift
+            shifted[:, j] -= shift
+            def rotation(values):
+                links = self.chain.numeric_links(values)
+                return (links[:, j - 1] @ links[:, j])[:, :3, :3]
+            together = bool(np.allclose(rotation(angles), rotation(shifted), rtol=0.0, atol=1e-12))
+        self._together[j] = together
+        return together
+
+    def sum_factor(self, j: int) -> sp.Matrix:
+        """(A_j A_j+1)^-1 with th_j written as (th_j + th_j+1) - th_j+1: its rotation in the cosine
+        and sine of the sum only (c<j><j+1>, s<j><j+1>, a named intermediate), its translation in
+        those and th_j+1's."""
+        cos_sum, sin_sum = self.sum_symbols(j)
+        nxt = self.chain.unknowns[j]
+        here = self.chain.unknowns[j - 1]
+        product = self.chain.factor(j + 1, True) * self.chain.factor(j, True)
+        product = product.xreplace({here.cos: cos_sum * nxt.cos + sin_sum * nxt.sin,
+                                    here.sin: sin_sum * nxt.cos - cos_sum * nxt.sin})
+        circles = self.chain.circles + [(cos_sum, sin_sum)]
+        return product.applyfunc(lambda e: tidy(sp.expand(e), circles))
+
+    def sum_symbols(self, j: int) -> tuple[sp.Symbol, sp.Symbol]:
+        """The cosine and sine of th_j + th_j+1 as a named intermediate (defined on first use)."""
+        key = ("angle sum", j, j + 1)
+        if key not in self.definitions:
+            here, nxt = self.chain.unknowns[j - 1], self.chain.unknowns[j]
+            cos_sum = sp.Symbol(f"c{j}{j + 1}", real=True)
+            sin_sum = sp.Symbol(f"s{j}{j + 1}", real=True)
+            exprs = (here.cos * nxt.cos - here.sin * nxt.sin, here.sin * nxt.cos + here.cos * nxt.sin)
+            step = Compute((cos_sum, sin_sum), exprs,
+                           f"cosine and sine of th{j} + th{j + 1} (axes {j} and {j + 1} parallel: their turns add)")
+            self.definitions[key] = (sp.Matrix([cos_sum, sin_sum]), step, None)
+            total = self.samples.angles[:, j - 1] + self.samples.angles[:, j]
+            self.samples.define(cos_sum, np.cos(total))
+            self.samples.define(sin_sum, np.sin(total))
+            self.sums[key] = (cos_sum, sin_sum)
+        return self.sums[key]
 
     def _numeric(self, identity: Identity, i: int, k: int, symbols: sp.Matrix) -> None:
         samples = self.samples
