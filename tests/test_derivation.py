@@ -439,7 +439,7 @@ def test_reversed_directions_offsets_and_frames_verify_clean(special_arms, name)
 
 
 def test_parallel_neighbours_are_moved_over_as_one_turn():
-    """benchtop6's axes 2 and 3 are parallel (a3 = 0 twist between them): the known side with
+    """benchtop6's axes 2 and 3 are parallel (no twist between them): the known side with
     joints 1-3 moved over is written with the cosine and sine of th2 + th3, defined by the angle
     sum identities cos(a + b) = cos a cos b - sin a sin b, sin(a + b) = sin a cos b + cos a sin b
     (common practice; checked here by sympy's trigonometric expansion), and its rotation entries
