@@ -108,16 +108,13 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
         guard=lambda block: reach_guard(block, scalar),
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
-        within_checks=[k for k, t in enumerate(common.joint_turns(arm))
-                       if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)],
+        within_checks=common.limit_checked(common.joint_turns(arm)),
         probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum, label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),
         root_eps=4e-16 if scalar.name == "double" else 4e-7,
-        # |cos^2 + sin^2 - 1| of a linear pair beyond which the input is inconsistent: float
-        # rounding near a tangency of a polynomial's roots reaches about 2e-3 (measured on canted6)
-        pair_tolerance=1e-4 if scalar.name == "double" else 5e-3,
+        pair_tolerance=common.PAIR_TOLERANCE[scalar.name],
         target=common.target_plan(arm, derivation), angle_scale=float(arm.angle_scale),
         given=common.given_plan(arm), GP=f"{scalar.name} given, " if arm.given_joint else "",
         GA="given, " if arm.given_joint else "",

@@ -727,6 +727,12 @@ class TurnPlan:
     count: int                   # at most this many equivalent readings within the limits
 
 
+def limit_checked(turns: list[TurnPlan]) -> list[int]:
+    """Joints (0-based) whose limits a solution with revolute readings in one turn can break: those
+    whose limits do not hold the whole turn."""
+    return [k for k, t in enumerate(turns) if not (t.turn and t.low <= -t.turn / 2 and t.high >= t.turn / 2)]
+
+
 def joint_turns(arm: Arm) -> list[TurnPlan]:
     out = []
     for joint, (low, high) in zip(arm.joints, arm.limits_in_readings()):
@@ -826,6 +832,9 @@ UNIT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # |direction| off 1 by more
 # the precision contract's 1e-14 / m (docs/derivation.md section 6): about 4.5 ulp of 1 in double
 # (1e-12 let a drift of 1.4e-13 through and cost 7e-9 rad at m = 1e-5).
 UNIT_SLACK = {"double": 1e-15, "float": 1e-6}
+# |cos^2 + sin^2 - 1| of a linear pair beyond which the input is inconsistent: float rounding near a
+# tangency of a polynomial's roots reaches about 2e-3 (measured on canted6)
+PAIR_TOLERANCE = {"double": 1e-4, "float": 5e-3}
 
 
 @dataclass

@@ -110,9 +110,6 @@ TARGET_API = {
 }
 
 
-PAIR_TOLERANCE = 1e-4   # a linear pair whose (cos, sin) is off the unit circle by more is inconsistent (C: the same)
-
-
 def unit_band(tolerance: float) -> tuple[str, str]:
     """(lo, hi) as Python literals such that, for every float ``hq``, ``hq < lo or hq > hi`` holds
     exactly when ``abs(hq - 1.0) > tolerance`` does (the C solver's test): within [0.5, 2] the
@@ -134,7 +131,7 @@ def tolerances(real: str) -> dict:
     return {"tilt": common.TILT_TOLERANCE[real], "roll": common.ROLL_TOLERANCE[real],
             "roll_gain": common.ROLL_GAIN[real], "roll_floor": common.ROLL_FLOOR[real],
             "unit": common.UNIT_TOLERANCE[real], "slack": common.UNIT_SLACK[real],
-            "slack_band": unit_band(common.UNIT_SLACK[real]), "pair_band": unit_band(PAIR_TOLERANCE)}
+            "slack_band": unit_band(common.UNIT_SLACK[real]), "pair_band": unit_band(common.PAIR_TOLERANCE[real])}
 
 
 def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
@@ -143,10 +140,9 @@ def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
     turn need no check. Split in two: the checks of readings a mirrored twin shares with its first
     solution (tested once for both) and the rest (all of them when the plan has no mirror)."""
     kept, changed = [], []
-    for k, turn in enumerate(common.joint_turns(arm)):
-        if turn.turn and turn.low <= -turn.turn / 2 and turn.high >= turn.turn / 2:
-            continue
-        joint = k + 1
+    turns = common.joint_turns(arm)
+    for k in common.limit_checked(turns):
+        turn, joint = turns[k], k + 1
         out = next(o for o in plan.outputs if o.joint == joint)
         check = f"{turn.low!r} <= {'given' if out.given else f'v{joint}'} <= {turn.high!r}"
         shared = plan.mirror is not None and (out.prismatic or out.given or plan.mirrored_angle(joint) == f"th{joint}")
