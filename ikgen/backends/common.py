@@ -330,13 +330,20 @@ def floats(expr: sp.Expr) -> sp.Expr:
     if expr.is_Integer or expr.is_Float:
         return expr
     if expr.is_number:
-        return sp.Float(expr.evalf(20), 17)
+        return _float_of(expr)
     if expr.is_Pow:
         return sp.Pow(floats(expr.base), expr.exp, evaluate=False) if expr.exp.is_Integer else \
             expr.func(floats(expr.base), floats(expr.exp))
     if expr.args:
         return expr.func(*[floats(a) for a in expr.args])
     return expr
+
+
+@functools.lru_cache(maxsize=4096)
+def _float_of(number: sp.Expr) -> sp.Float:
+    """A numeric subtree as a 17-digit Float (evaluated at 20 digits), once per distinct subtree:
+    the same constant (a twist's cosine, its square, a product of them) recurs in many terms."""
+    return sp.Float(number.evalf(20), 17)
 
 
 def eliminate(exprs: list[sp.Expr], prefix: str) -> tuple[list[Assignment], list[sp.Expr]]:

@@ -18,12 +18,15 @@ the alternatives; thresholds are powers of ten of typical sizes, so they are det
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 from dataclasses import dataclass
 
 import numpy as np
 import sympy as sp
+from sympy.polys.domains import QQ
+from sympy.polys.polyerrors import CoercionFailed
 
 from ..errors import StructureError
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, CirclePolynomial, Compute,
@@ -31,7 +34,7 @@ from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, Ci
 from .chain import Chain
 from .names import Names, Samples
 from .pool import Equation, Pool, entry_scale, equation_expr, numeric_residual, vary
-from .symbols import Unknown, reduce_circles
+from .symbols import Unknown, integer_ring, reduce_circles, tidy
 
 ZERO_TOLERANCE = 1e-9   # relative: a coefficient below this on every sample is identically zero
 MAX_PAIR_FORMS = 3
@@ -220,7 +223,7 @@ class Solver:
         return Linear(a, b, -constant, equation)
 
     def reduce(self, expr) -> sp.Expr:
-        return sp.factor_terms(reduce_circles(expr, self.circles))
+        return tidy(expr, self.circles)
 
     def known_values(self, identity) -> np.ndarray:
         if identity.name not in self._known_values:
@@ -712,12 +715,37 @@ def proportional_rows(rows: list, y: np.ndarray) -> np.ndarray:
 
 def divides(first: sp.Expr, second: sp.Expr) -> bool:
     """``second`` vanishes wherever ``first`` does: it is the square-free part of ``first`` (s5 for
-    s5^2) times a polynomial."""
-    first = sp.expand(first)
-    if first.is_number or len(sp.Add.make_args(first)) > 6:
+    s5^2) times a polynomial.
+
+    For integer polynomials (every symbolic DH table's) the test runs in sympy's polynomial ring
+    over the rationals: ``first`` itself dividing ``second`` settles it without the square-free
+    part, which is computed once per ``first``; the remainder of the division by one polynomial is
+    zero exactly when it divides (one polynomial is a Groebner basis of the ideal it makes).
+    Other expressions take sympy's ``cancel`` on the quotient."""
+    symbols = tuple(sorted(sp.sympify(first).free_symbols | sp.sympify(second).free_symbols,
+                           key=sp.default_sort_key))
+    ring = integer_ring(symbols) if symbols else None
+    try:
+        f, g = ring.from_expr(first), ring.from_expr(second)
+    except (AttributeError, ValueError, TypeError, CoercionFailed):
+        first = sp.expand(first)
+        if first.is_number or len(sp.Add.make_args(first)) > 6:
+            return False
+        ratio = sp.cancel(sp.expand(second) / sp.sqf_part(first))
+        return not sp.denom(ratio).free_symbols
+    if f.is_ground or len(f) > 6:
         return False        # a long determinant: the test costs seconds, and such forms are rare
-    ratio = sp.cancel(sp.expand(second) / sp.sqf_part(first))
-    return not sp.denom(ratio).free_symbols
+    rational = ring.clone(domain=QQ)
+    g = g.set_ring(rational)
+    if not g.rem(f.set_ring(rational)):
+        return True
+    return not g.rem(_square_free_part(first, symbols).set_ring(rational))
+
+
+@functools.lru_cache(maxsize=256)
+def _square_free_part(first: sp.Expr, symbols: tuple):
+    ring = integer_ring(symbols)
+    return ring.from_expr(first).sqf_part()
 
 
 def snap(values: np.ndarray, scale: float) -> np.ndarray:

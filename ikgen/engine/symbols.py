@@ -14,9 +14,16 @@ syntactic questions.
 
 from __future__ import annotations
 
+import functools
+import math
 from dataclasses import dataclass
 
 import sympy as sp
+from sympy.core.exprtools import _keep_coeff
+from sympy.polys.domains import ZZ
+from sympy.polys.orderings import lex
+from sympy.polys.polyerrors import CoercionFailed
+from sympy.polys.rings import PolyRing
 
 from ..ir import angle_symbol, cos_symbol, sin_symbol
 
@@ -74,11 +81,22 @@ def length_symbol(key) -> sp.Symbol:
 
 def reduce_circles(expr: sp.Expr, circles) -> sp.Expr:
     """Normal form modulo c^2 + s^2 = 1 for each (c, s) in ``circles``: every c^k with k >= 2
-    becomes c^(k mod 2) (1 - s^2)^(k div 2).
+    becomes c^(k mod 2) (1 - s^2)^(k div 2), on the expanded expression.
 
-    Works term by term on the expanded sum; only terms with a squared cosine are rewritten (and
-    re-expanded), which keeps this fast on the large expressions of the position equations.
+    A polynomial with integer coefficients (every expression of a symbolic DH table) is expanded
+    and rewritten in sympy's sparse polynomial ring (``ring_form``), several times faster than
+    sympy's expression tree and the same expression in the end (sympy's canonical sum of products);
+    anything else (square roots of exact twists, rationals) takes the expression-tree path.
     """
+    ring = ring_form(expr, circles)
+    if ring is not None:
+        return _ring_reduced(ring, circles).as_expr()
+    return _reduce_circles_tree(expr, circles)
+
+
+def _reduce_circles_tree(expr: sp.Expr, circles) -> sp.Expr:
+    """reduce_circles on sympy's expression tree: term by term on the expanded sum; only terms
+    with a squared cosine are rewritten (and re-expanded)."""
     cosines = dict(circles)
     expr = sp.expand(expr)
     if not any(expr.has(c) for c in cosines):
@@ -102,5 +120,69 @@ def reduce_circles(expr: sp.Expr, circles) -> sp.Expr:
 
 
 def tidy(expr: sp.Expr, circles) -> sp.Expr:
-    """Reduced and with common factors pulled out (the form steps keep)."""
-    return sp.factor_terms(reduce_circles(expr, circles))
+    """Reduced and with common factors pulled out (the form steps keep): exactly
+    ``sp.factor_terms(reduce_circles(expr, circles))``, computed from the polynomial ring's
+    coefficients and exponents when the expression is an integer polynomial."""
+    ring = ring_form(expr, circles)
+    if ring is None:
+        return sp.factor_terms(_reduce_circles_tree(expr, circles))
+    return _common_factors_out(_ring_reduced(ring, circles))
+
+
+@functools.lru_cache(maxsize=256)
+def integer_ring(symbols: tuple) -> PolyRing:
+    return PolyRing(symbols, ZZ, lex)
+
+
+def ring_form(expr: sp.Expr, circles=()):
+    """``expr`` as an element of the ring of integer polynomials in its symbols (and the sines of
+    the circles whose cosine it has), or None when it is a constant or not such a polynomial."""
+    free = expr.free_symbols
+    if not free:
+        return None
+    free |= {s for c, s in circles if c in free}
+    ring = integer_ring(tuple(sorted(free, key=sp.default_sort_key)))
+    try:
+        return ring.from_expr(expr)
+    except (ValueError, TypeError, CoercionFailed):
+        return None
+
+
+def _ring_reduced(p, circles):
+    """reduce_circles on a ring element: each monomial with c^k (k >= 2) becomes
+    c^(k mod 2) (1 - s^2)^(k div 2) times the rest of the monomial."""
+    ring = p.ring
+    where = {symbol: i for i, symbol in enumerate(ring.symbols)}
+    for c, s in circles:
+        i = where.get(c)
+        if i is None or not any(m[i] >= 2 for m in p):
+            continue
+        one_minus = ring.one - ring.gens[where[s]] ** 2
+        kept, rewritten = {}, ring.zero
+        for monomial, coefficient in p.items():
+            k = monomial[i]
+            if k < 2:
+                kept[monomial] = coefficient
+            else:
+                rest = monomial[:i] + (k % 2,) + monomial[i + 1:]
+                rewritten += ring({rest: coefficient}) * one_minus ** (k // 2)
+        p = ring(kept) + rewritten
+    return p
+
+
+def _common_factors_out(p) -> sp.Expr:
+    """``sp.factor_terms(p.as_expr())`` for an integer polynomial ``p``, built directly: the
+    integer content (negative when every coefficient is: factor_terms takes the sign out then)
+    times the lowest power of each symbol that every term has, times the sum of the quotients,
+    kept as one product as factor_terms keeps it (sympy.core.exprtools._keep_coeff with its
+    arguments there). tests/test_engine_algebra.py checks the equality on random polynomials."""
+    if len(p) < 2:
+        return p.as_expr()
+    coefficients = [int(c) for c in p.values()]
+    content = functools.reduce(math.gcd, (abs(c) for c in coefficients))
+    if all(c < 0 for c in coefficients):
+        content = -content
+    lowest = [min(m[i] for m in p) for i in range(p.ring.ngens)]
+    quotient = p.ring({tuple(e - low for e, low in zip(m, lowest)): c // content for m, c in p.items()})
+    common = sp.Mul(*[symbol ** low for symbol, low in zip(p.ring.symbols, lowest) if low])
+    return _keep_coeff(sp.Integer(content), sp.Mul(common, quotient.as_expr()), clear=False, sign=True)
