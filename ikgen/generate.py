@@ -45,27 +45,27 @@ def build(arm: Arm, timings: dict | None = None) -> Build:
     The report's figures and documents are made by two side jobs (sidejobs.py: forked helper
     processes where that is allowed, else here, with the same result): the figures' job starts
     before the derivation (matplotlib's import and the arm at its zero reading need only the arm),
-    the documents' job as soon as the sample pose is known (the equation sheet needs only the
-    derivation); meanwhile this process renders the code and runs the report's verification."""
+    the documents' job as soon as the derivation is done (the equation sheet needs nothing else;
+    the sample pose, the verification and the figures follow it by message); meanwhile this process renders the code and runs the report's verification."""
     watch = Stopwatch(timings)
     folder = common.identifier(arm.name)
     figures_job = SideJob(lambda receive, phases: figure_work(arm, receive, phases))
     try:
         with watch("derive"):
             derivation = derive_arm(arm)
-        with watch("python"):
-            python_source = python_backend.render(arm, derivation)
-        solver = load_module(python_source, f"{folder}_ik_for_selftest")
-        with watch("report: sample pose"):
-            pose, panels, target = report_backend.sample_evidence(arm, derivation, solver)
-        figures_job.send((panels, target))
-        documents_job = SideJob(lambda receive, phases: document_work(arm, derivation, pose, receive, phases))
+        documents_job = SideJob(lambda receive, phases: document_work(arm, derivation, receive, phases))
         try:
+            with watch("python"):
+                python_source = python_backend.render(arm, derivation)
+            solver = load_module(python_source, f"{folder}_ik_for_selftest")
+            with watch("report: sample pose"):
+                pose, panels, target = report_backend.sample_evidence(arm, derivation, solver)
+            figures_job.send((panels, target))
             files = code_files(arm, derivation, python_source, solver, watch)
             with watch("report: verification"):
                 verification = report_backend.verification_summary(arm, solver)
             with watch("report: waiting for helpers"):
-                documents_job.send((verification, figures_job.result(timings)))
+                documents_job.send((pose, verification, figures_job.result(timings)))
                 report = documents_job.result(timings)
         finally:
             documents_job.close()
@@ -99,13 +99,14 @@ def figure_work(arm: Arm, receive, phases: dict) -> tuple[str, str]:
     return report_backend.figure_texts(arm, receive, phases)
 
 
-def document_work(arm: Arm, derivation: Derivation, pose: dict, receive, phases: dict) -> dict[str, str]:
-    """The report's files (a side job): the equation sheet first, then, with the verification
-    summary and the figures from ``receive``, the HTML and Markdown documents."""
+def document_work(arm: Arm, derivation: Derivation, receive, phases: dict) -> dict[str, str]:
+    """The report's files (a side job): the equation sheet first, then, with the sample pose's
+    table, the verification summary and the figures from ``receive``, the HTML and Markdown
+    documents."""
     watch = Stopwatch(phases)
     with watch("report: sheet"):
         data = report_backend.sheet_context(arm, derivation, common.identifier(arm.name))
-    verification, svgs = receive()
+    pose, verification, svgs = receive()
     data = report_backend.evidence_context(data, pose, verification, svgs)
     with watch("report: documents"):
         return report_backend.documents(data)

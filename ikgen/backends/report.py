@@ -35,6 +35,7 @@ from sympy.printing.mathml import mathml
 from .. import figures
 from ..ir import (GUARD_TOLERANCE, AngleSum, CirclePolynomial, Compute, CosSinEquation, Derivation, LinearPair,
                   angle_symbol, cos_symbol, sin_symbol)
+from ..engine.symbols import expanded
 from ..kinematics import NumericChain
 from ..model import Arm
 from ..stopwatch import Stopwatch
@@ -175,7 +176,7 @@ class Names:
 
 def proven_equal(candidate, expr) -> bool:
     try:
-        return sp.expand(candidate - expr) == 0
+        return expanded(candidate - expr) == 0
     except Exception:       # pragma: no cover - sympy refuses an operation: not proven
         return False
 
@@ -215,9 +216,9 @@ def readable(expr, parameters, extra: list | None = None) -> sp.Expr:
         return expr
     variables = sorted(expr.free_symbols - set(parameters), key=str)
     makers = [sp.factor_terms, bounded_factor,
-              lambda e: sp.collect(sp.expand(e), variables),
-              lambda e: sp.collect(sp.expand(e), variables, func=bounded_factor)]
-    if len(sp.Add.make_args(sp.expand(expr))) > LARGE_TERMS:
+              lambda e: sp.collect(expanded(e), variables),
+              lambda e: sp.collect(expanded(e), variables, func=bounded_factor)]
+    if len(sp.Add.make_args(expanded(expr))) > LARGE_TERMS:
         makers = makers[:1] + makers[2:3]   # factoring a long polynomial costs seconds and never won
     candidates = [expr]
     for make in makers:
@@ -340,7 +341,7 @@ def build_sheet(arm: Arm, derivation: Derivation) -> Sheet:
     for out in derivation.outputs:
         reading = names.own(report_symbol("q", out.joint), f"joint readings as the controller shows them ({arm.angle_unit})")
         expr = (angle_symbol(out.joint) - out.zero) * out.direction / out.scale
-        form = readable(expr, params, extra=[(sp.expand(expr), sp.expand(expr))])
+        form = readable(expr, params, extra=[(expanded(expr), expanded(expr))])
         outputs.append(Printed(f"out.{out.joint}", reading, "=", names.show(form), expr))
     return Sheet(names, steps, label_views, outputs, guards)
 

@@ -119,6 +119,13 @@ def _reduce_circles_tree(expr: sp.Expr, circles) -> sp.Expr:
     return sp.Add(*kept, *rewritten)
 
 
+def expanded(expr: sp.Expr) -> sp.Expr:
+    """``sp.expand(expr)``, through the polynomial ring when ``expr`` is an integer polynomial (the
+    same canonical sum of products, several times faster on long products)."""
+    ring = ring_form(expr)
+    return ring.as_expr() if ring is not None else sp.expand(expr)
+
+
 def tidy(expr: sp.Expr, circles) -> sp.Expr:
     """Reduced and with common factors pulled out (the form steps keep): exactly
     ``sp.factor_terms(reduce_circles(expr, circles))``, computed from the polynomial ring's
