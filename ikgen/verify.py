@@ -230,9 +230,9 @@ def check_round_trip(chain: NumericChain, poses: np.ndarray, solutions: list) ->
     """(position errors, rotation errors) of FK(solution) against the pose, for a flat list: the
     target's parts only (a point: no rotation; a point and a direction: the angle between the
     directed tool axes)."""
-    if not solutions:
+    if len(solutions) == 0:
         return np.zeros(0), np.zeros(0)
-    joints = np.array([s for s in solutions])
+    joints = np.asarray(solutions, dtype=float)
     achieved = chain.poses(joints)
     pos = np.linalg.norm(achieved[:, :3, 3] - poses[:, :3, 3], axis=1)
     target = target_of(chain.arm)
@@ -533,9 +533,14 @@ def check_near_singular(arm: Arm, chain: NumericChain, module, result: Verificat
         moved = point.copy()
         moved[joint] += step * unit / arm.reading_scales()[joint]
         pose = chain.pose(moved)
-        solutions = [s for s in module.inverse(pose, *given_of(arm, moved), list(moved)) if np.all(np.isfinite(s[0]))]
+        solutions = module.inverse(pose, *given_of(arm, moved), list(moved))
+        if not solutions:
+            continue
+        joints = np.array([s[0] for s in solutions], dtype=float).reshape(len(solutions), -1)
+        finite = np.isfinite(joints).all(axis=1)          # one test for every solution at once
+        solutions = [s for s, keep in zip(solutions, finite.tolist()) if keep]
         if solutions:
-            pos, rot = check_round_trip(chain, np.array([pose] * len(solutions)), [list(s[0]) for s in solutions])
+            pos, rot = check_round_trip(chain, np.repeat(pose[None], len(solutions), axis=0), joints[finite])
             record_round_trips(result, smallest_measures(solutions), pos, rot, arm.reach_scale())
 
 
