@@ -65,3 +65,29 @@ def arm_data(joints: list[dict], convention: str = "standard", length_unit: str 
 def build_arm(joints: list[dict], **kwargs):
     """``arm_from_data(arm_data(joints, **kwargs))``: a validated ikgen Arm."""
     return arm_from_data(arm_data(joints, **kwargs))
+
+
+def pose_error_functions(chain, target, scale: float):
+    """(fun, jac) for scipy.optimize.least_squares on the pose error of ``chain`` (an
+    ikgen.kinematics.NumericChain) against the 4x4 ``target``: fun(q) is the 12-vector of position
+    error over ``scale`` and rotation-entry errors; jac(q) is its forward-difference Jacobian with
+    scipy's own default step for '2-point' (sqrt(machine epsilon) * max(1, |q_k|), signed like q_k),
+    the dof + 1 poses it needs computed in one batched forward-kinematics call instead of dof + 1
+    calls (the searches' time is the per-call overhead of the FK, not the arithmetic)."""
+    import numpy as np
+    step = np.sqrt(np.finfo(float).eps)
+
+    def errors(poses):
+        return np.concatenate([(poses[:, :3, 3] - target[:3, 3]) / scale,
+                               (poses[:, :3, :3] - target[:3, :3]).reshape(len(poses), 9)], axis=1)
+
+    def fun(q):
+        return errors(chain.poses(np.asarray(q, dtype=float)[None, :]))[0]
+
+    def jac(q):
+        q = np.asarray(q, dtype=float)
+        h = step * np.where(q >= 0, 1.0, -1.0) * np.maximum(1.0, np.abs(q))
+        h = (q + h) - q                                    # the step as represented (as scipy does)
+        e = errors(chain.poses(np.vstack([q, q + np.diag(h)])))
+        return ((e[1:] - e[0]) / h[:, None]).T
+    return fun, jac

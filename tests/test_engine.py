@@ -32,7 +32,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import least_squares
 
-from helpers import build_arm, joint
+from helpers import build_arm, joint, pose_error_functions
 from ikgen.backends import python as python_backend
 from ikgen.engine import derive
 from ikgen.errors import StructureError
@@ -109,19 +109,14 @@ def general_arm(rng, convention: str):
 
 # ----------------------------------------------------------------------------- the reference
 
-def pose_error(chain: NumericChain, readings, target, scale: float) -> np.ndarray:
-    pose = chain.pose(readings)
-    return np.concatenate([(pose[:3, 3] - target[:3, 3]) / scale, (pose[:3, :3] - target[:3, :3]).ravel()])
-
-
 def least_squares_solutions(chain: NumericChain, target, rng, starts: int = 40) -> list[np.ndarray]:
     """Every distinct joint vector (degrees, one turn) that scipy's least_squares reaches from random
-    starts with a residual below 1e-12."""
+    starts with a residual below 1e-12 (its Jacobian by forward differences, helpers.pose_error_functions)."""
     scale = chain.arm.reach_scale()
+    fun, jac = pose_error_functions(chain, target, scale)
     found: list[np.ndarray] = []
     for start in rng.uniform(-180, 180, (starts, chain.arm.dof)):
-        fit = least_squares(lambda q: pose_error(chain, q, target, scale), start, xtol=1e-15, ftol=1e-15,
-                            gtol=1e-15, max_nfev=400)
+        fit = least_squares(fun, start, jac=jac, xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=400)
         if np.max(np.abs(fit.fun)) > 1e-9:
             continue
         q = (fit.x + 180.0) % 360.0 - 180.0
@@ -142,7 +137,9 @@ def check_against_reference(arm, derivation, samples: int = 300, poses: int = 2,
         target = chain.pose(readings)
         ours = np.array([s[0] for s in module.inverse(target, limits="ignore")])
         assert len(ours), f"no solution for the pose of {readings}"
-        for q in least_squares_solutions(chain, target, rng):
+        found = least_squares_solutions(chain, target, rng)
+        assert found, "the numerical reference found no solution of a reachable pose"
+        for q in found:
             gap = angle_gap(ours, q, arm).max(axis=1).min()
             assert gap < 1e-5, f"least_squares found {q}, {math.degrees(gap):.3g} deg from every closed-form solution"
 

@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 from scipy.optimize import least_squares
 
-from helpers import EXAMPLES
+from helpers import EXAMPLES, pose_error_functions
 from ikgen.armfile import load_arm
 from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
@@ -189,12 +189,9 @@ def search_finds_solution(arm, chain, target, rng, starts: int = 12) -> bool:
     limits = arm.limits_in_readings()
     scale = arm.reach_scale()
 
-    def error(q):
-        pose = chain.pose(q)
-        return np.concatenate([(pose[:3, 3] - target[:3, 3]) / scale, (pose[:3, :3] - target[:3, :3]).ravel()])
-
+    error, jacobian = pose_error_functions(chain, target, scale)   # the Jacobian by forward differences
     for start in rng.uniform(limits[:, 0], limits[:, 1], size=(starts, arm.dof)):
-        fit = least_squares(error, start, bounds=(limits[:, 0], limits[:, 1]), xtol=1e-12, ftol=1e-12)
+        fit = least_squares(error, start, jac=jacobian, bounds=(limits[:, 0], limits[:, 1]), xtol=1e-12, ftol=1e-12)
         pose = chain.pose(fit.x)
         if (np.linalg.norm(pose[:3, 3] - target[:3, 3]) < 1e-6 * scale and
                 rotation_angle_between(pose[:3, :3], target[:3, :3]) < 1e-6):
