@@ -420,12 +420,21 @@ def numeric_residual(pool: Pool, equation: Equation, known_values: np.ndarray, a
     left = numeric_inverse(product(identity.factors[:i]))
     if point:
         known = np.einsum("nij,nj->ni", left, known_values)
-        body = np.array([float(v) for v in identity.body.xreplace(pool.chain.parameters)])
+        body = _numeric_body(pool, identity)
         made = np.einsum("nij,j->ni", product(identity.factors[i:k]), body)
     else:
         known = left @ known_values @ numeric_inverse(product(identity.factors[k:]))
         made = product(identity.factors[i:k])
     return entry_value(known, equation.entry, point) - entry_value(made, equation.entry, point)
+
+
+def _numeric_body(pool: Pool, identity) -> np.ndarray:
+    """A point identity's body point with the DH values in, as floats (once per identity)."""
+    cache = pool.__dict__.setdefault("_numeric_bodies", {})
+    key = id(identity)          # the pool keeps its identities, so the id is not reused meanwhile
+    if key not in cache:
+        cache[key] = np.array([float(v) for v in identity.body.xreplace(pool.chain.parameters)])
+    return cache[key]
 
 
 def vary(angles: np.ndarray, equation: Equation, unknown_key: str, value) -> np.ndarray:

@@ -240,8 +240,10 @@ class Solver:
         angles = self.samples.angles
         known = self.known_values(equation.identity)
         try:
-            values = [numeric_residual(self.pool, equation, known, vary(angles, equation, key, phi))
-                      for phi in PROBE_ANGLES]
+            # every probe angle in one batched evaluation (rows are independent: the same numbers)
+            varied = np.concatenate([vary(angles, equation, key, phi) for phi in PROBE_ANGLES])
+            repeated = np.concatenate([known] * len(PROBE_ANGLES))
+            values = np.split(numeric_residual(self.pool, equation, repeated, varied), len(PROBE_ANGLES))
         except ValueError:
             values = None
         result = None
@@ -269,8 +271,9 @@ class Solver:
         scale = entry_scale(equation, self.chain.length_scale)
         length = self.chain.length_scale
         points = np.array([-1.0, 0.0, 1.0, 2.0]) * length
-        values = np.array([numeric_residual(self.pool, equation, known, vary(angles, equation, key, v))
-                           for v in points])                              # (4, samples)
+        varied = np.concatenate([vary(angles, equation, key, v) for v in points])
+        values = numeric_residual(self.pool, equation, np.concatenate([known] * len(points)), varied)
+        values = values.reshape(len(points), len(angles))                 # (4, samples)
         vandermonde = np.vander(points / length, 4)                       # columns: x^3, x^2, x, 1
         q3, q2, q1, q0 = np.linalg.solve(vandermonde, values)             # in x = l / length
         result = None
