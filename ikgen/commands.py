@@ -140,11 +140,16 @@ def print_verification(report: Verification, unit: str) -> None:
 
 def cmd_verify(args) -> int:
     arm = load_checked(args.arm, args)
-    result = build(arm)
     if args.out:
+        result = build(arm)
         for path in write(result.files, args.out):
             out(f"wrote {path}")
-    module = load_module(result.files[result.python_path], result.folder + "_ik")
+        source, folder = result.files[result.python_path], result.folder
+    else:   # only the Python solver is checked: the other back-ends and the report are not made
+        from .backends import python as python_backend
+        from .engine import derive as derive_arm
+        source, folder = python_backend.render(arm, derive_arm(arm)), identifier(arm.name)
+    module = load_module(source, folder + "_ik")
     samples = args.samples or 10000
     report = verify(arm, module, samples=samples, seed=args.seed, progress=not args.quiet and sys.stderr.isatty(),
                     budget=None if args.samples else SOLUTION_BUDGET)
