@@ -24,6 +24,8 @@ import pytest
 import shared
 from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
 from ikgen.armfile import arm_from_data
+from ikgen.backends import python as python_backend
+from ikgen.engine import derive
 from ikgen.errors import StructureError
 from ikgen.generate import build, load_module
 from ikgen.ir import Compute, CosSinEquation
@@ -234,7 +236,7 @@ def on_axis_1(arm, readings: np.ndarray) -> np.ndarray:
 @pytest.fixture(scope="module")
 def special_arms():
     """Arms with reversed directions, zero and non-zero offsets, and base/tool frames, in both
-    conventions (invented dimensions), each derived once: {name: (arm, Build, module)}."""
+    conventions (invented dimensions), each derived once: {name: (arm, derivation, module)}."""
     standard = build_arm(
         [joint(a=0, alpha=90, d=330, direction=-1, limits=[-170, 170]),
          joint(a=420, alpha=0, d=0, theta=-90, offset=15, limits=[-130, 130]),
@@ -257,11 +259,14 @@ def special_arms():
         base={"translation": [0, 0, 2.1], "rotation": {"axes": "xyz", "frame": "fixed", "angles": ["pi", 0, "pi/3"]}},
         tool={"translation": [0.02, 0, 0.12],
               "rotation": {"matrix": [[0, 0, 1], [0, 1, 0], [-1, 0, 0]]}})
-    out = {}
-    for arm in (standard, modified):
-        result = build(arm)
-        out[arm.name] = (arm, result, load_module(result.files[result.python_path], result.folder))
-    return out
+    return {arm.name: (arm, *derived_solver(arm, arm.name)) for arm in (standard, modified)}
+
+
+def derived_solver(arm, module_name: str):
+    """(derivation, the generated Python solver) of ``arm``: only the Python back-end is rendered
+    (generate.build renders it the same way), not the other files or the report."""
+    derivation = derive(arm)
+    return derivation, load_module(python_backend.render(arm, derivation), module_name)
 
 
 @pytest.mark.parametrize("which", ["inspector6", "reversed_standard"])
@@ -373,9 +378,8 @@ def test_five_joints_take_a_point_and_a_direction():
     data = benchtop_data()
     del data["joint"][5]
     arm = arm_from_data(data)
-    result = build(arm)
-    assert result.derivation.target.kind == "point_and_direction" and not result.derivation.target.declared
-    module = load_module(result.files[result.python_path], "benchtop5_under_test")
+    derivation, module = derived_solver(arm, "benchtop5_under_test")
+    assert derivation.target.kind == "point_and_direction" and not derivation.target.declared
     report = verify(arm, module, samples=300, seed=7)
     assert report.passed, report.failures
 
@@ -419,8 +423,7 @@ def test_a_prismatic_third_joint_with_a_spherical_wrist_is_solved():
     data = benchtop_data()
     data["joint"][2] = joint("p", a=20, alpha=-90, d=0, name="slide", limits=[100, 300])
     arm = arm_from_data(data)
-    result = build(arm)
-    module = load_module(result.files[result.python_path], "benchtop_slide_under_test")
+    _, module = derived_solver(arm, "benchtop_slide_under_test")
     report = verify(arm, module, samples=300, seed=7)
     assert report.passed, report.failures
 
@@ -429,8 +432,8 @@ def test_a_prismatic_third_joint_with_a_spherical_wrist_is_solved():
 
 @pytest.mark.parametrize("name", ["reversed_standard", "reversed_modified"])
 def test_reversed_directions_offsets_and_frames_verify_clean(special_arms, name):
-    arm, result, module = special_arms[name]
-    assert result.derivation.max_solutions == 8
+    arm, derivation, module = special_arms[name]
+    assert derivation.max_solutions == 8
     report = verify(arm, module, samples=300, seed=7)
     assert report.passed, report.failures
     assert report.checked >= 290 and report.complete == report.checked
