@@ -28,9 +28,9 @@ import pytest
 from scipy.spatial.transform import Rotation
 
 from helpers import ROOT, demo_arm
+import shared
 from ikgen.backends import c as c_backend
 from ikgen.cbuild import compile_solver
-from ikgen.generate import build
 from ikgen.kinematics import NumericChain
 from ikgen.verify import jacobian_distance, random_readings
 
@@ -182,7 +182,7 @@ def test_polynomial_relative_error(real, t_max, bound):
 @pytest.fixture(scope="module")
 def benchtop6(tmp_path_factory):
     arm = demo_arm("benchtop6")
-    result = build(arm)
+    result = shared.built(arm)          # the session's one build of the demo (tests/shared.py)
     root = tmp_path_factory.mktemp("benchtop6-kernel")
     for relative, text in result.files.items():
         target = root / relative

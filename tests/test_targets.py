@@ -24,7 +24,9 @@ import pytest
 
 import shared
 from helpers import build_arm, demo_arm, joint
-from ikgen.generate import build, load_module
+from ikgen.backends import python as python_backend
+from ikgen.engine import derive
+from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
 
 _CACHE: dict[str, tuple] = {}
@@ -379,7 +381,7 @@ def test_the_batch_solver_gives_the_per_pose_solutions_for_every_target(stem):
     """The batch module's docstring is the specification: the valid entries of row i, in order,
     are the per-pose solver's raw solutions (limits ignored) of input i; natural inputs too."""
     arm = demo_arm(stem)
-    result = build(arm)
+    result = shared.built(arm)          # the session's one build of the demo (tests/shared.py)
     py = load_module(result.files[result.python_path], f"{stem}_ik_for_batch_targets")
     batch = load_module(result.files[f"{stem}/{stem}_ik_batch.py"], f"{stem}_ik_batch_targets")
     chain = NumericChain(arm)
@@ -469,9 +471,9 @@ KINDS = {"RRR with offsets": "point", "RRP": "point", "RPP": "point", "PPP": "po
 def test_a_randomly_drawn_arm_of_each_kind_passes_verification(kind):
     from ikgen.verify import verify
     arm = random_arm(kind, np.random.default_rng(sum(map(ord, kind))))      # a seed per kind
-    result = build(arm)
-    module = load_module(result.files[result.python_path], f"drawn_{sum(map(ord, kind))}")
-    assert result.derivation.target.kind == KINDS[kind]
+    derivation = derive(arm)            # only the Python solver is checked here: no other file, no report
+    module = load_module(python_backend.render(arm, derivation), f"drawn_{sum(map(ord, kind))}")
+    assert derivation.target.kind == KINDS[kind]
     outcome = verify(arm, module, samples=300)
     assert outcome.failures == [], (kind, outcome.failures)
     assert outcome.checked >= 290 and outcome.complete == outcome.checked
