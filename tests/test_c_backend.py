@@ -59,6 +59,9 @@ MATH_FLOAT = {name + "f" for name in MATH_DOUBLE}
 # The opt-in atan2 kernel (#ifdef IKGEN_FAST_ATAN2, templates/c_atan2.c.j2) also reads signs:
 # C99 7.12.3.6 signbit, 7.12.11.1 copysign. Allowed in that block only (tests/test_atan2_kernel.py).
 KERNEL_BLOCK = re.compile(r"^#ifdef IKGEN_FAST_ATAN2\n(?:(?!^#else).)*?^#endif\n", re.M | re.S)
+# The float build's one widened call: the library's atan2 on double arguments, in the branch that
+# IKGEN_ATAN2_IN_DOUBLE selects (templates/c_atan2.c.j2: cores with double-precision hardware).
+WIDENED_ATAN2 = re.compile(r"^#elif IKGEN_ATAN2_IN_DOUBLE\n\s*return \(float\)atan2\(\(double\)y, \(double\)x\);\n", re.M)
 C_KEYWORDS_CALLED = {"if", "for", "while", "switch", "return", "sizeof"}
 
 
@@ -259,6 +262,9 @@ def test_source_calls_only_the_allowed_math_functions(demos, stem):
     for name, (text, scalar) in files.items():
         code, _ = split_comments(text)
         code = KERNEL_BLOCK.sub("", code)
+        widened = len(WIDENED_ATAN2.findall(code))
+        assert widened == (1 if scalar is c_backend.FLOAT and name.endswith(".c") and "selftest" not in name else 0), name
+        code = WIDENED_ATAN2.sub("", code)
         calls = set(CALL.findall(re.sub(r"^\s*#.*$", "", code, flags=re.M)))   # not '#define X (1u)'
         allowed_math = MATH_FLOAT if scalar is c_backend.FLOAT else MATH_DOUBLE
         own = {n for n in calls if n.startswith(demo.prefix(scalar) + "_")}
@@ -294,6 +300,7 @@ def test_float_build_has_only_float_constants(demos, stem):
     checked = 0
     for name, (text, scalar) in generated_c(demo).items():
         code, _ = split_comments(text)
+        code = WIDENED_ATAN2.sub("", code)        # the one widened atan2 (test_source_calls_only_...)
         constants = FLOAT_CONSTANT.findall(code)
         if scalar is c_backend.FLOAT:
             bad = [value + suffix for value, suffix in constants if suffix not in ("f", "F")]
@@ -312,11 +319,14 @@ def test_float_build_has_only_float_constants(demos, stem):
 def test_objects_need_only_libm_and_hold_no_mutable_data(demos, stem, tmp_path):
     """binutils nm on objects built at -O0 -fno-builtin (every call stays a call): the undefined
     symbols are the allowed <math.h> functions; no data in .data/.bss/common (types D d B b C G g
-    S s); the solver exports exactly its six functions, the self-test one function."""
+    S s); the solver exports exactly its six functions, the self-test one function. The float
+    build is compiled as on a single-precision core (IKGEN_ATAN2_IN_DOUBLE=0: float functions
+    only); its widened atan2 is checked in tests/test_atan2_kernel.py."""
     demo = demos(stem)
     need_compiler("gcc")
     sources = sorted(demo.folder.glob("*.c"))
-    result = run(["gcc", "-std=c99", "-O0", "-fno-builtin", "-I", demo.folder, "-c", *sources], cwd=tmp_path)
+    result = run(["gcc", "-std=c99", "-O0", "-fno-builtin", "-DIKGEN_ATAN2_IN_DOUBLE=0", "-I", demo.folder, "-c",
+                  *sources], cwd=tmp_path)
     assert result.returncode == 0, result.stderr
     mutable = set("DdBbCGgSs")
     for source in sources:

@@ -59,11 +59,26 @@ static float packer6_ik_f32_atan2_kernel(float y, float x)
 }
 #endif
 
+/* Without the kernel, the float build takes the maths library's atan2 on its arguments widened to
+ * double where the core computes in double precision in hardware (x86-64, 64-bit Arm: there the
+ * library's atan2 is faster than its atan2f, and the float result is at least as accurate), and
+ * its atan2f elsewhere (a Cortex-M4F's FPU is single precision only). Define IKGEN_ATAN2_IN_DOUBLE
+ * to 0 or 1 to choose. */
+#ifndef IKGEN_ATAN2_IN_DOUBLE
+#if defined(__x86_64__) || defined(_M_X64) || defined(__aarch64__) || defined(_M_ARM64)
+#define IKGEN_ATAN2_IN_DOUBLE 1
+#else
+#define IKGEN_ATAN2_IN_DOUBLE 0
+#endif
+#endif
+
 /* Every atan2 of this solver: the kernel above when IKGEN_FAST_ATAN2 is defined, else the library's. */
 static inline float packer6_ik_f32_atan2(float y, float x)
 {
 #ifdef IKGEN_FAST_ATAN2
     return packer6_ik_f32_atan2_kernel(y, x);
+#elif IKGEN_ATAN2_IN_DOUBLE
+    return (float)atan2((double)y, (double)x);
 #else
     return atan2f(y, x);
 #endif

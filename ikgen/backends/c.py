@@ -3,7 +3,8 @@
 The printer is sympy's C99 printer with these changes: every number is a floating literal of the
 chosen type (``260.0`` / ``260.0f``: no int overflow, no silent promotion to double), floats print
 exactly (17 significant digits for double, 9 for float), small integer powers become products,
-and the float build calls the ``f`` forms (sqrtf, atan2f, fabsf, sinf, cosf).
+and the float build calls the ``f`` forms (sqrtf, atan2f, fabsf, sinf, cosf; atan2 on widened
+arguments where the core has double-precision hardware, templates/c_atan2.c.j2).
 """
 
 from __future__ import annotations
