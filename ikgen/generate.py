@@ -75,6 +75,15 @@ def build(arm: Arm, timings: dict | None = None) -> Build:
     return Build(arm, derivation, files)
 
 
+def build_code(arm: Arm) -> Build:
+    """``build`` without the report: the solvers' files and the derivation's text only (the same
+    bytes as build's), for callers that compile or load the code and never read the report."""
+    derivation = derive_arm(arm)
+    python_source = python_backend.render(arm, derivation)
+    solver = load_module(python_source, f"{common.identifier(arm.name)}_ik_for_selftest")
+    return Build(arm, derivation, code_files(arm, derivation, python_source, solver, Stopwatch(None)))
+
+
 def code_files(arm: Arm, derivation: Derivation, python_source: str, solver, watch: Stopwatch) -> dict[str, str]:
     """The solvers' files and the derivation's text, paths relative to the output folder."""
     folder = common.identifier(arm.name)

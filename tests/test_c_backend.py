@@ -37,7 +37,7 @@ from ikgen.armfile import arm_from_data, load_arm
 from ikgen.backends import c as c_backend
 from ikgen.cbuild import compile_solver
 from ikgen.errors import ArmFileError
-from ikgen.generate import build, load_module, write
+from ikgen.generate import build_code, load_module, write
 from ikgen.kinematics import NumericChain
 from ikgen.verify import jacobian_distance, random_readings, verify
 
@@ -767,7 +767,7 @@ def hostile(demos, tmp_path_factory):
     def get(kind: str):
         if kind not in cache:
             arm = hostile_arm(kind)
-            result = build(arm)
+            result = build_code(arm)       # every code file (the report's escaping: tests/test_report.py)
             root = tmp_path_factory.mktemp(f"hostile-{kind}")
             write(result.files, root)
             cache[kind] = (arm, result, root / result.folder)

@@ -14,7 +14,7 @@ import pytest
 
 from helpers import demo_arm
 from ikgen.backends import report
-from ikgen.generate import build
+from ikgen.generate import build, build_code
 
 TESTS = Path(__file__).resolve().parent
 needs_fork = pytest.mark.skipif(not sys.platform.startswith("linux") or (os.cpu_count() or 1) < 2,
@@ -86,3 +86,12 @@ def test_the_report_of_build_is_the_report_of_render(monkeypatch):
     rendered = report.render(arm, result.derivation, result.files[result.python_path])
     for name, text in rendered.items():
         assert result.files[f"{result.folder}/{name}"] == text, name
+
+
+def test_build_code_gives_builds_code_files_and_no_report():
+    """generate.build_code (the solvers without the report): exactly build's files but the report's."""
+    arm = demo_arm("mast3")
+    whole, code = build(arm).files, build_code(arm).files
+    report_files = {name for name in whole if name.endswith(("_report.html", "_report.md", ".svg"))}
+    assert report_files and set(code) == set(whole) - report_files
+    assert all(code[name] == whole[name] for name in code)
