@@ -54,7 +54,7 @@ COMPILE_VARIANTS = {"gcc-O0": ("gcc", STRICT_C + ["-O0"]), "gcc-O2": ("gcc", STR
                     "clang-O2": ("clang", STRICT_C + ["-O2"]), "g++-O2": ("g++", STRICT_CXX + ["-O2"])}
 
 # C99 7.12: the <math.h> functions the generated code may call (the f forms in the float build).
-MATH_DOUBLE = {"sqrt", "atan2", "sin", "cos", "fabs"}
+MATH_DOUBLE = {"sqrt", "atan2", "sin", "cos", "fabs", "fmod"}   # fmod: a free joint's reading (C99 7.12.10.1)
 MATH_FLOAT = {name + "f" for name in MATH_DOUBLE}
 # The opt-in atan2 kernel (#ifdef IKGEN_FAST_ATAN2, templates/c_atan2.c.j2) also reads signs:
 # C99 7.12.3.6 signbit, 7.12.11.1 copysign. Allowed in that block only (tests/test_atan2_kernel.py).
@@ -222,6 +222,28 @@ def demos(tmp_path_factory):
         return cache[stem]
 
     return get
+
+
+def test_a_free_joint_keeps_the_callers_reading_within_one_turn(demos):
+    """The wrist centre on axis 1 leaves joint 1 free: it keeps the caller's reading, reduced by
+    whole turns into one turn (fmod, exact: C99 7.12.10.1), the same bit for bit in C and Python, and
+    within rounding in the numpy batch. A reading turns away once came back beyond a turn (1000 deg gave 640)."""
+    demo = demos("benchtop6")
+    arm = demo.arm
+    tool_reach = float(arm.tool[2, 3]) + float(arm.joints[5].d)       # tool point to wrist centre, along z
+    pose = np.array([[0.0, 0.0, 1.0, tool_reach], [0.0, -1.0, 0.0, 0.0], [1.0, 0.0, 0.0, 600.0], [0, 0, 0, 1.0]])
+    assert np.allclose(pose[:3, 3] - tool_reach * pose[:3, 2], [0.0, 0.0, 600.0])
+    batch = load_module(demo.build.files[f"{demo.build.folder}/{demo.build.folder}_ik_batch.py"], "benchtop6_free_batch")
+    for first in (30.0, 179.0, 540.0, 1000.0, -1000.0, 1e6 + 0.25):
+        current = [first, 0.0, 0.0, 0.0, 0.0, 0.0]
+        expected = 180.0 - (180.0 - first) % 360.0        # the reading in (-180, 180]
+        py = demo.python.inverse_joints(pose.tolist(), current)
+        assert py and all(abs(q[0] - expected) < 1e-9 for q in py), (first, [q[0] for q in py])
+        assert [tuple(q) for q in demo.solver().inverse_joints(pose, current)] == [tuple(q) for q in py]
+        joints, valid, *_ = batch.inverse_batch(pose[None], np.array([current]))
+        rows = joints[0][valid[0]]                # the batch's own arithmetic: equal within rounding
+        assert len(rows) == len(py) and all(np.abs(rows - np.array(q)).max(axis=1).min() < 1e-9 for q in py)
+    assert any(s[2] for s in demo.python.inverse(pose.tolist(), [1000.0, 0, 0, 0, 0, 0], limits="ignore"))
 
 
 # ------------------------------------------------------------------------------ 1. strict compilation

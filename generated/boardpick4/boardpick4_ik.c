@@ -403,7 +403,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {

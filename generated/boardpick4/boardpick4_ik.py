@@ -45,7 +45,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "boardpick4"
 JOINT_NAMES = ("inner_arm", "outer_arm", "quill", "nozzle", )
@@ -448,7 +448,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
@@ -518,7 +518,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free1 = True
-                    th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                    th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                     c1 = cos(th1)
                     s1 = sin(th1)
             else:
@@ -580,13 +580,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free1 = True
-                        th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                        th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                         c1 = cos(th1)
                         s1 = sin(th1)
                 else:
                     # no form applies: the pair leaves th1 free
                     free1 = True
-                    th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                    th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                     c1 = cos(th1)
                     s1 = sin(th1)
 

@@ -387,7 +387,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {

@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 # Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
 # The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
@@ -518,7 +518,7 @@ def _closed_form(pose, current, check_finite=True):
 
     free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16 + 4.4836368516e+20 <= 100.0
     if free3:
-        th3 = (0.0 + 0.017453292519943295 * (current[2] if current is not None else 0.0))
+        th3 = (0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0))
         roots3 = ((th3, cos(th3), sin(th3), False, 0.0),)
     else:
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
@@ -544,13 +544,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -603,7 +603,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
@@ -663,7 +663,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -709,13 +709,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -773,13 +773,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
-            th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+            th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
             c4 = cos(th4)
             s4 = sin(th4)
 
@@ -891,7 +891,7 @@ def inverse_joints(pose, current=None):
 
     free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16 + 4.4836368516e+20 <= 100.0
     if free3:
-        th3 = (0.0 + 0.017453292519943295 * (current[2] if current is not None else 0.0))
+        th3 = (0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0))
         roots3 = ((th3, cos(th3), sin(th3), False, 0.0),)
     else:
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
@@ -917,13 +917,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -976,7 +976,7 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
@@ -1036,7 +1036,7 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -1082,13 +1082,13 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -1146,13 +1146,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
-            th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+            th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
             c4 = cos(th4)
             s4 = sin(th4)
 

@@ -293,7 +293,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -411,7 +411,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -486,7 +486,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free5) {
-                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {
@@ -721,7 +721,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -839,7 +839,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -914,7 +914,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free5) {
-                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {

@@ -46,7 +46,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "cellreach7"
 JOINT_NAMES = ("base_turn", "shoulder_pitch", "upper_roll", "elbow", "forearm_roll", "wrist_pitch", "flange_roll", )
@@ -511,7 +511,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         root1 = sqrt(er1) if er1 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -553,7 +553,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -600,7 +600,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -650,13 +650,13 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -715,13 +715,13 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
-                    th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                    th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                     c5 = cos(th5)
                     s5 = sin(th5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
 
@@ -855,7 +855,7 @@ def inverse_joints(pose, given, current=None):
         root1 = sqrt(er1) if er1 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -897,7 +897,7 @@ def inverse_joints(pose, given, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -944,7 +944,7 @@ def inverse_joints(pose, given, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -994,13 +994,13 @@ def inverse_joints(pose, given, current=None):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                            th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -1059,13 +1059,13 @@ def inverse_joints(pose, given, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
-                    th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                    th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                     c5 = cos(th5)
                     s5 = sin(th5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
 

@@ -277,7 +277,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float sg1 = k1 ? -1.0f : 1.0f;
             float th1, c1, s1;
             if (free1) {
-                th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+                th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
                 c1 = cosf(th1);
                 s1 = sinf(th1);
             } else {
@@ -395,7 +395,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -470,7 +470,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                 free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free5) {
-                th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? current[4] : 0.0f));
+                th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f));
                 c5 = cosf(th5);
                 s5 = sinf(th5);
             } else {

@@ -478,7 +478,7 @@ static int closed_form(const double pose[16], const double *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
     if (free6) {
-        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
         rc6[0] = cos(rt6[0]);
         rs6[0] = sin(rt6[0]);
         rd6[0] = 0;
@@ -545,7 +545,7 @@ static int closed_form(const double pose[16], const double *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
@@ -630,7 +630,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -822,7 +822,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
     if (free6) {
-        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
         rc6[0] = cos(rt6[0]);
         rs6[0] = sin(rt6[0]);
         rd6[0] = 0;
@@ -889,7 +889,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? current[4] : 0.0));
+            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
@@ -974,7 +974,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {

@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 # Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
 # The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
@@ -528,7 +528,7 @@ def _closed_form(pose, current, check_finite=True):
 
     free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24
     if free6:
-        th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+        th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
         roots6 = ((th6, cos(th6), sin(th6), False, 0.0),)
     else:
         roots6 = _circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09)
@@ -572,13 +572,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
         else:
             # no form applies: the pair leaves th5 free
             free5 = True
-            th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+            th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
 
@@ -647,13 +647,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -762,7 +762,7 @@ def inverse_joints(pose, current=None):
 
     free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24
     if free6:
-        th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+        th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
         roots6 = ((th6, cos(th6), sin(th6), False, 0.0),)
     else:
         roots6 = _circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09)
@@ -806,13 +806,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
                 c5 = cos(th5)
                 s5 = sin(th5)
         else:
             # no form applies: the pair leaves th5 free
             free5 = True
-            th5 = (0.0 + 0.017453292519943295 * (current[4] if current is not None else 0.0))
+            th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
             c5 = cos(th5)
             s5 = sin(th5)
 
@@ -881,13 +881,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
 

@@ -462,7 +462,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24f;
     if (free6) {
-        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? current[5] : 0.0f));
+        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? fmodf(current[5], 360.0f) : 0.0f));
         rc6[0] = cosf(rt6[0]);
         rs6[0] = sinf(rt6[0]);
         rd6[0] = 0;
@@ -529,7 +529,7 @@ static int closed_form(const float pose[16], const float *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? current[4] : 0.0f));
+            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f));
             c5 = cosf(th5);
             s5 = sinf(th5);
         } else {
@@ -614,7 +614,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {

@@ -273,7 +273,7 @@ static int closed_form(const double pose[16], const double *current,
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -360,7 +360,7 @@ static int closed_form(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -423,7 +423,7 @@ static int closed_form(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
@@ -644,7 +644,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -731,7 +731,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -794,7 +794,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? current[3] : 0.0));
+                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {

@@ -39,6 +39,9 @@ _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 1.5707963267948966, 1.7889624832941877, 0.0, 0.0, 0.0, ])
 _GAIN = numpy.array([0.017453292519943295, -0.017453292519943295, 0.017453292519943295, 0.017453292519943295, -0.017453292519943295, 0.017453292519943295, ])
+# a turn in reading units (revolute) or inf (prismatic: fmod(x, inf) is x): a free joint keeps the
+# caller's reading reduced to less than a turn, as in the per-pose solver
+_TURN = numpy.array([360.0, 360.0, 360.0, 360.0, 360.0, 360.0, ])
 
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
 
@@ -112,7 +115,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
     if current is None:
         hint = [float(z) for z in _ZERO]
     else:
-        dh = (_ZERO + _GAIN * numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT)).T.copy()
+        dh = (_ZERO + _GAIN * numpy.fmod(numpy.asarray(current, dtype=float).reshape(n, JOINT_COUNT), _TURN)).T.copy()
         hint = [dh[k] for k in range(JOINT_COUNT)]
     with numpy.errstate(all="ignore"):
         # an entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow

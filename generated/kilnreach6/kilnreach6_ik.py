@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "kilnreach6"
 JOINT_NAMES = ("swivel", "luff", "boom", "wrist_roll", "wrist_pitch", "fork_turn", )
@@ -381,7 +381,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -412,7 +412,7 @@ def _closed_form(pose, current, check_finite=True):
         root2 = sqrt(t5_0) if t5_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
@@ -476,13 +476,13 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
 
@@ -590,7 +590,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -621,7 +621,7 @@ def inverse_joints(pose, current=None):
         root2 = sqrt(t5_0) if t5_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
@@ -685,13 +685,13 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                    th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
 

@@ -246,7 +246,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -304,7 +304,7 @@ static int closed_form(const double pose[16], const double *current,
                 free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free6) {
-                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
@@ -400,7 +400,7 @@ static int closed_form(const double pose[16], const double *current,
                     free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free2) {
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                     c2 = cos(th2);
                     s2 = sin(th2);
                 } else {
@@ -524,7 +524,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -582,7 +582,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free6) {
-                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? current[5] : 0.0));
+                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
@@ -678,7 +678,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                     free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free2) {
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                     c2 = cos(th2);
                     s2 = sin(th2);
                 } else {

@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "kitter6"
 JOINT_NAMES = ("swivel", "raise", "fold", "nod", "turn", "spin", )
@@ -389,7 +389,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -438,13 +438,13 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
-                    th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                    th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
                     c6 = cos(th6)
                     s6 = sin(th6)
             else:
                 # no form applies: the pair leaves th6 free
                 free6 = True
-                th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
 
@@ -509,13 +509,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -593,7 +593,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -642,13 +642,13 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
-                    th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                    th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
                     c6 = cos(th6)
                     s6 = sin(th6)
             else:
                 # no form applies: the pair leaves th6 free
                 free6 = True
-                th6 = (0.0 + 0.017453292519943295 * (current[5] if current is not None else 0.0))
+                th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
                 c6 = cos(th6)
                 s6 = sin(th6)
 
@@ -713,13 +713,13 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                        th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                    th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
 

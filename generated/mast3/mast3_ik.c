@@ -189,7 +189,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -219,7 +219,7 @@ static int closed_form(const double pose[16], const double *current,
             const double sg2 = k2 ? -1.0 : 1.0;
             double th2, c2, s2;
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -336,7 +336,7 @@ int mast3_ik_inverse_joints(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? current[0] : 0.0));
+            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -366,7 +366,7 @@ int mast3_ik_inverse_joints(const double pose[16], const double *current,
             const double sg2 = k2 ? -1.0 : 1.0;
             double th2, c2, s2;
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? current[1] : 0.0));
+                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {

@@ -43,7 +43,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "mast3"
 JOINT_NAMES = ("pan", "tilt", "boom", )
@@ -339,7 +339,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -362,7 +362,7 @@ def _closed_form(pose, current, check_finite=True):
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
@@ -439,7 +439,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -462,7 +462,7 @@ def inverse_joints(pose, current=None):
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (current[1] if current is not None else 0.0))
+                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:

@@ -42,7 +42,7 @@ Safety: check every solution in simulation before moving a real arm. Joint limit
 and cell safety are the integrator's job under the applicable machine-safety standards.
 """
 
-from math import atan2, cos, hypot, sin, sqrt
+from math import atan2, cos, fmod, hypot, sin, sqrt
 
 ARM_NAME = "packer6"
 JOINT_NAMES = ("turret", "lift_link", "reach_link", "head_roll", "head_tilt", "cup_spin", )
@@ -393,7 +393,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 1.0 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 1.0 * (fmod(current[0], 6.283185307179586) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -454,7 +454,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                    th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -530,7 +530,7 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -582,13 +582,13 @@ def _closed_form(pose, current, check_finite=True):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                            th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -635,13 +635,13 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                    th4 = (0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
 
@@ -748,7 +748,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 1.0 * (current[0] if current is not None else 0.0))
+            th1 = (0.0 + 1.0 * (fmod(current[0], 6.283185307179586) if current is not None else 0.0))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -809,7 +809,7 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                    th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -885,7 +885,7 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -937,13 +937,13 @@ def inverse_joints(pose, current=None):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                            th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (-1.5707963267948966 + 1.0 * (current[1] if current is not None else 0.0))
+                        th2 = (-1.5707963267948966 + 1.0 * (fmod(current[1], 6.283185307179586) if current is not None else 0.0))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -990,13 +990,13 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                    th4 = (0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 1.0 * (current[3] if current is not None else 0.0))
+                th4 = (0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0))
                 c4 = cos(th4)
                 s4 = sin(th4)
 

@@ -230,7 +230,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 1.0f * (current && current[0] - current[0] == 0.0f ? current[0] : 0.0f));
+            th1 = (0.0f + 1.0f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 6.28318531f) : 0.0f));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -404,7 +404,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? current[1] : 0.0f));
+                th2 = (-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 6.28318531f) : 0.0f));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -467,7 +467,7 @@ static int closed_form(const float pose[16], const float *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0f + 1.0f * (current && current[3] - current[3] == 0.0f ? current[3] : 0.0f));
+                th4 = (0.0f + 1.0f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 6.28318531f) : 0.0f));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {

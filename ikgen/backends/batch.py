@@ -41,7 +41,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
     return common.tidy(template.render(
         arm=arm, plan=plan, p=printer.doprint, header=common.header_lines(arm, derivation),
         module_name=common.identifier(arm.name), comment=common.comment_text,
-        joint_zero=common.joint_zero(arm), joint_gain=common.joint_gain(arm),
+        joint_zero=common.joint_zero(arm), joint_turn=common.joint_turn(arm), joint_gain=common.joint_gain(arm),
         prismatic=[not j.revolute for j in arm.joints],
         branch_axes=plan.depth, axis_sizes=sizes, raw_solutions=raw,
         singular_terms=terms(plan.singular_terms, BATCH_TERMS), balanced_sum=common.balanced_sum,

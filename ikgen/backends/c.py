@@ -101,7 +101,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
         limits=[list(l) for l in arm.limits_in_readings()],
-        joint_zero=common.joint_zero(arm), joint_gain=common.joint_gain(arm),
+        joint_zero=common.joint_zero(arm), joint_turn=common.joint_turn(arm), joint_gain=common.joint_gain(arm),
         prismatic=[not j.revolute for j in arm.joints],
         singular_terms=c_terms(plan.singular_terms, printer),
         mirror_terms=c_terms(plan.mirror_condition, printer) if plan.mirror else [], generator=common.GENERATOR,

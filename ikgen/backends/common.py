@@ -797,6 +797,15 @@ def joint_gain(arm: Arm) -> list[float]:
     return [j.direction * (arm.angle_scale if j.revolute else 1.0) for j in arm.joints]
 
 
+def joint_turn(arm: Arm) -> list[float]:
+    """Per joint, one full turn in reading units (360.0 for degrees, 2 pi for radians) for a
+    revolute joint, 0.0 for a prismatic one. A joint a pose leaves free keeps the caller's reading
+    reduced to less than a turn (fmod, exact in every back-end), so that the readings the solver
+    returns are within the turns its wrap steps assume."""
+    turn = float(2 * sp.pi / arm.exact_angle_scale)
+    return [turn if j.revolute else 0.0 for j in arm.joints]
+
+
 def symbol_names(joint: int) -> tuple[str, str, str]:
     return str(cos_symbol(joint)), str(sin_symbol(joint)), str(angle_symbol(joint))
 

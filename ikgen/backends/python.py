@@ -81,7 +81,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_names=[common.comment_text(j.name) for j in arm.joints],
         forward_temps=fwd_temps, forward_entries=fwd_entries,
         limits=[list(l) for l in arm.limits_in_readings()],
-        joint_zero=common.joint_zero(arm), joint_direction=[j.direction for j in arm.joints],
+        joint_zero=common.joint_zero(arm), joint_turn=common.joint_turn(arm), joint_direction=[j.direction for j in arm.joints],
         joint_scale=[arm.angle_scale if j.revolute else 1.0 for j in arm.joints],
         prismatic=[not j.revolute for j in arm.joints],
         generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
