@@ -20,6 +20,7 @@ session (tests/shared.py); the strict-compile files go to a tmp_path_factory fol
 from __future__ import annotations
 
 import ast
+import math
 import os
 import re
 import shutil
@@ -137,7 +138,7 @@ PREPROCESSOR = re.compile(r"^#(include|define|ifndef|ifdef|if|endif|else|elif)\b
 
 def functions_defined(code: str) -> set[str]:
     """Names of functions this file defines (a type, the name, a parameter list, then '{')."""
-    return set(re.findall(r"^(?:static\s+)?(?:const\s+)?[A-Za-z_]\w*\s+\*?([A-Za-z_]\w*)\s*\([^;{}]*\)\s*\{",
+    return set(re.findall(r"^(?:static\s+)?(?:inline\s+)?(?:const\s+)?[A-Za-z_]\w*\s+\*?([A-Za-z_]\w*)\s*\([^;{}]*\)\s*\{",
                           code, re.M))
 
 
@@ -244,6 +245,24 @@ def test_a_free_joint_keeps_the_callers_reading_within_one_turn(demos):
         rows = joints[0][valid[0]]                # the batch's own arithmetic: equal within rounding
         assert len(rows) == len(py) and all(np.abs(rows - np.array(q)).max(axis=1).min() < 1e-9 for q in py)
     assert any(s[2] for s in demo.python.inverse(pose.tolist(), [1000.0, 0, 0, 0, 0, 0], limits="ignore"))
+
+
+def test_a_free_angle_is_taken_into_one_turn(demos):
+    """A free joint's angle (or a free sum of parallel-axis angles, the sum of its members'
+    readings) enters the later steps in (-pi, pi], so the wrap counts of the readings hold: the
+    generated helper (fmod, exact, then one conditional turn) against the IEEE remainder of C99
+    7.12.10.2 (math.remainder), and the batch module's helper equal to it bit for bit."""
+    demo = demos("benchtop6")
+    batch = load_module(demo.build.files[f"{demo.build.folder}/{demo.build.folder}_ik_batch.py"], "benchtop6_turn_batch")
+    rng = np.random.default_rng(3)
+    values = [0.0, -0.0, math.pi, -math.pi, 2 * math.pi, -2 * math.pi, 3 * math.pi, -3 * math.pi, 17.45, -17.45,
+              1e3, -1e3, 1e6 + 0.3] + list(rng.uniform(-40.0, 40.0, 200))
+    for x in values:
+        got = demo.python._one_turn(x)
+        assert -math.pi < got <= math.pi, (x, got)
+        reference = math.remainder(x, 2 * math.pi)
+        assert abs(got - reference) < 1e-12 or abs(abs(got - reference) - 2 * math.pi) < 1e-12, (x, got, reference)
+    assert batch._one_turn(np.array(values)).tolist() == [demo.python._one_turn(x) for x in values]
 
 
 # ------------------------------------------------------------------------------ 1. strict compilation

@@ -100,6 +100,14 @@ static inline double benchtop6_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[BENCHTOP6_IK_JOINTS] = { -170.00000034000001, -120.00000024000002, -150.00000030000001, -180.00000036, -125.00000025000001, -180.00000036 };
@@ -251,7 +259,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -402,7 +410,7 @@ static int closed_form(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -465,7 +473,7 @@ static int closed_form(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+                th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
@@ -662,7 +670,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -813,7 +821,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -876,7 +884,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+                th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {

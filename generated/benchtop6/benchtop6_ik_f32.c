@@ -84,6 +84,14 @@ static inline float benchtop6_ik_f32_atan2(float y, float x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline float one_turn(float angle)
+{
+    const float r = fmodf(angle, 6.28318531f);
+    return r > 3.14159265f ? r - 6.28318531f : (r <= -3.14159265f ? r + 6.28318531f : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const float LOW[BENCHTOP6_IK_F32_JOINTS] = { -170.0f, -120.0f, -150.0f, -180.0f, -125.0f, -180.0f };
@@ -235,7 +243,7 @@ static int closed_form(const float pose[16], const float *current,
         const float sg1 = k1 ? -1.0f : 1.0f;
         float th1, c1, s1;
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
+            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -386,7 +394,7 @@ static int closed_form(const float pose[16], const float *current,
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (-1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f));
+                th2 = one_turn((-1.57079633f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
                 c2 = cosf(th2);
                 s2 = sinf(th2);
             } else {
@@ -449,7 +457,7 @@ static int closed_form(const float pose[16], const float *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f));
+                th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
             } else {

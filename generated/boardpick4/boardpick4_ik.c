@@ -100,6 +100,14 @@ static inline double boardpick4_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[BOARDPICK4_IK_JOINTS] = { -140.00000027999999, -150.00000030000001, -1.8000000000000002e-07, -360.00000072 };
@@ -403,7 +411,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {

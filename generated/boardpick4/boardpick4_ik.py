@@ -69,6 +69,12 @@ _E2 = (0.0, 1.0, 0.0)
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -448,7 +454,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
@@ -518,7 +524,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free1 = True
-                    th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                    th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                     c1 = cos(th1)
                     s1 = sin(th1)
             else:
@@ -580,13 +586,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free1 = True
-                        th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                        th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                         c1 = cos(th1)
                         s1 = sin(th1)
                 else:
                     # no form applies: the pair leaves th1 free
                     free1 = True
-                    th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                    th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                     c1 = cos(th1)
                     s1 = sin(th1)
 

@@ -40,6 +40,12 @@ CONDITION_NAMES = ("elbow_turn", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, 0.0, ])
@@ -375,9 +381,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = valid & ~(bad1 & ~weak1)
         th1 = numpy.arctan2(s1, c1)
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
 
         # th4: from the sum of parallel-axis angles
         th4 =  - thp12m4 + th2 + th1

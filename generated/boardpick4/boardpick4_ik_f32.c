@@ -84,6 +84,14 @@ static inline float boardpick4_ik_f32_atan2(float y, float x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline float one_turn(float angle)
+{
+    const float r = fmodf(angle, 6.28318531f);
+    return r > 3.14159265f ? r - 6.28318531f : (r <= -3.14159265f ? r + 6.28318531f : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const float LOW[BOARDPICK4_IK_F32_JOINTS] = { -140.0f, -150.0f, -1.8e-07f, -360.000001f };
@@ -387,7 +395,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
+            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {

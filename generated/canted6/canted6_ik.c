@@ -100,6 +100,14 @@ static inline double canted6_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -472,7 +480,7 @@ static int closed_form(const double pose[16], const double *current,
     int rd3[4], n3;
     const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 30471193600000000.0 + 4.4836368516000003e+20 <= 100.0;
     if (free3) {
-        rt3[0] = (0.0 + 0.017453292519943295 * (current && current[2] - current[2] == 0.0 ? fmod(current[2], 360.0) : 0.0));
+        rt3[0] = one_turn((0.0 + 0.017453292519943295 * (current && current[2] - current[2] == 0.0 ? fmod(current[2], 360.0) : 0.0)));
         rc3[0] = cos(rt3[0]);
         rs3[0] = sin(rt3[0]);
         rd3[0] = 0;
@@ -510,7 +518,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -658,7 +666,7 @@ static int closed_form(const double pose[16], const double *current,
             free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free2) {
-            th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
             c2 = cos(th2);
             s2 = sin(th2);
         } else {
@@ -732,7 +740,7 @@ static int closed_form(const double pose[16], const double *current,
             free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free4) {
-            th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+            th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
             s4 = sin(th4);
         } else {
@@ -927,7 +935,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
     int rd3[4], n3;
     const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 30471193600000000.0 + 4.4836368516000003e+20 <= 100.0;
     if (free3) {
-        rt3[0] = (0.0 + 0.017453292519943295 * (current && current[2] - current[2] == 0.0 ? fmod(current[2], 360.0) : 0.0));
+        rt3[0] = one_turn((0.0 + 0.017453292519943295 * (current && current[2] - current[2] == 0.0 ? fmod(current[2], 360.0) : 0.0)));
         rc3[0] = cos(rt3[0]);
         rs3[0] = sin(rt3[0]);
         rd3[0] = 0;
@@ -965,7 +973,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -1113,7 +1121,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free2) {
-            th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
             c2 = cos(th2);
             s2 = sin(th2);
         } else {
@@ -1187,7 +1195,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free4) {
-            th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+            th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
             s4 = sin(th4);
         } else {

@@ -164,6 +164,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -518,7 +524,7 @@ def _closed_form(pose, current, check_finite=True):
 
     free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16 + 4.4836368516e+20 <= 100.0
     if free3:
-        th3 = (0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0))
+        th3 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0)))
         roots3 = ((th3, cos(th3), sin(th3), False, 0.0),)
     else:
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
@@ -544,13 +550,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -603,7 +609,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
@@ -663,7 +669,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -709,13 +715,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -773,13 +779,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                 c4 = cos(th4)
                 s4 = sin(th4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
-            th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+            th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
             c4 = cos(th4)
             s4 = sin(th4)
 
@@ -891,7 +897,7 @@ def inverse_joints(pose, current=None):
 
     free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16 + 4.4836368516e+20 <= 100.0
     if free3:
-        th3 = (0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0))
+        th3 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[2], 360.0) if current is not None else 0.0)))
         roots3 = ((th3, cos(th3), sin(th3), False, 0.0),)
     else:
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
@@ -917,13 +923,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -976,7 +982,7 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free2 = True
-                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
@@ -1036,7 +1042,7 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -1082,13 +1088,13 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -1146,13 +1152,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                 c4 = cos(th4)
                 s4 = sin(th4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
-            th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+            th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
             c4 = cos(th4)
             s4 = sin(th4)
 

@@ -35,6 +35,12 @@ CONDITION_NAMES = ("elbow", "wrist_bend", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 # Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2, vectorised: the
@@ -258,7 +264,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             ek0_3, ek1_3, ek2_3, 174560000, 21174600000, 1e-09, 0, 2)
         if numpy.any(free3):
             first = numpy.arange(4).reshape(4, 1) == 0
-            th3 = numpy.where(free3, (hint[2]), th3)
+            th3 = numpy.where(free3, _one_turn((hint[2])), th3)
             c3 = numpy.where(free3, numpy.cos(th3), c3)
             s3 = numpy.where(free3, numpy.sin(th3), s3)
             found3 = numpy.where(free3, first, found3)
@@ -291,9 +297,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s1 = s1 * hn1
         th1 = numpy.arctan2(s1, c1)   # after the unit scaling, as the per-pose solvers
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
         t5_0 = 0.5*c1
@@ -428,9 +434,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s2 = s2 * hn2
         th2 = numpy.arctan2(s2, c2)   # after the unit scaling, as the per-pose solvers
         if free2.any():
-            th2 = numpy.where(free2, (hint[1]), th2)
-            c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
-            s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
+            th2 = numpy.where(free2, _one_turn((hint[1])), th2)
+            c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)
+            s2 = numpy.where(free2, numpy.sin(_one_turn((hint[1]))), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         t8_0 = 0.8660254037844386*c2
@@ -490,9 +496,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = s4 * hn4
         th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
         if free4.any():
-            th4 = numpy.where(free4, (hint[3]), th4)
-            c4 = numpy.where(free4, numpy.cos((hint[3])), c4)
-            s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
+            th4 = numpy.where(free4, _one_turn((hint[3])), th4)
+            c4 = numpy.where(free4, numpy.cos(_one_turn((hint[3]))), c4)
+            s4 = numpy.where(free4, numpy.sin(_one_turn((hint[3]))), s4)
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
         g46_11 = c4*g36_11 + g26_31*s4

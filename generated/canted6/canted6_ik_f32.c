@@ -84,6 +84,14 @@ static inline float canted6_ik_f32_atan2(float y, float x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline float one_turn(float angle)
+{
+    const float r = fmodf(angle, 6.28318531f);
+    return r > 3.14159265f ? r - 6.28318531f : (r <= -3.14159265f ? r + 6.28318531f : r);
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -456,7 +464,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd3[4], n3;
     const int free3 = ek0_3*ek0_3 + ek1_3*ek1_3 + ek2_3*ek2_3 + 3.04711936e+16f + 4.48363685e+20f <= 100.0f;
     if (free3) {
-        rt3[0] = (0.0f + 0.0174532925f * (current && current[2] - current[2] == 0.0f ? fmodf(current[2], 360.0f) : 0.0f));
+        rt3[0] = one_turn((0.0f + 0.0174532925f * (current && current[2] - current[2] == 0.0f ? fmodf(current[2], 360.0f) : 0.0f)));
         rc3[0] = cosf(rt3[0]);
         rs3[0] = sinf(rt3[0]);
         rd3[0] = 0;
@@ -494,7 +502,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
+            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {
@@ -642,7 +650,7 @@ static int closed_form(const float pose[16], const float *current,
             free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free2) {
-            th2 = (0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f));
+            th2 = one_turn((0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
             c2 = cosf(th2);
             s2 = sinf(th2);
         } else {
@@ -716,7 +724,7 @@ static int closed_form(const float pose[16], const float *current,
             free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free4) {
-            th4 = (0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f));
+            th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
             c4 = cosf(th4);
             s4 = sinf(th4);
         } else {

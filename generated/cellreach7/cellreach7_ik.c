@@ -100,6 +100,14 @@ static inline double cellreach7_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[CELLREACH7_IK_JOINTS] = { -165.00000033000001, -115.00000023, -165.00000033000001, -125.00000025000001, -165.00000033000001, -115.00000023, -270.00000053999997 };
@@ -293,7 +301,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+                th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -411,7 +419,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -486,7 +494,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free5) {
-                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
+                th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {
@@ -721,7 +729,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
             if (free1) {
-                th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+                th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
                 c1 = cos(th1);
                 s1 = sin(th1);
             } else {
@@ -839,7 +847,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -914,7 +922,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free5) {
-                th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
+                th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
                 s5 = sin(th5);
             } else {

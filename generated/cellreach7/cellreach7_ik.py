@@ -68,6 +68,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -511,7 +517,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         root1 = sqrt(er1) if er1 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -553,7 +559,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -600,7 +606,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -650,13 +656,13 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                            th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -715,13 +721,13 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
-                    th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                    th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                     c5 = cos(th5)
                     s5 = sin(th5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                 c5 = cos(th5)
                 s5 = sin(th5)
 
@@ -855,7 +861,7 @@ def inverse_joints(pose, given, current=None):
         root1 = sqrt(er1) if er1 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -897,7 +903,7 @@ def inverse_joints(pose, given, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -944,7 +950,7 @@ def inverse_joints(pose, given, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
@@ -994,13 +1000,13 @@ def inverse_joints(pose, given, current=None):
                             continue
                         else:  # ill-conditioned near a singular pose: the pair does not fix it
                             free2 = True
-                            th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                            th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                             c2 = cos(th2)
                             s2 = sin(th2)
                     else:
                         # no form applies: the pair leaves th2 free
                         free2 = True
-                        th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
 
@@ -1059,13 +1065,13 @@ def inverse_joints(pose, given, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free5 = True
-                    th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                    th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                     c5 = cos(th5)
                     s5 = sin(th5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                 c5 = cos(th5)
                 s5 = sin(th5)
 

@@ -38,6 +38,12 @@ GIVEN_JOINT = 3  # the joint whose readings the caller gives (1-based)
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, ])
@@ -186,9 +192,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         c1 = cn1/t6_0
         s1 = sn1/t6_0
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -298,9 +304,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             s2 = s2 * hn2
         th2 = numpy.arctan2(s2, c2)   # after the unit scaling, as the per-pose solvers
         if free2.any():
-            th2 = numpy.where(free2, (hint[1]), th2)
-            c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
-            s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
+            th2 = numpy.where(free2, _one_turn((hint[1])), th2)
+            c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)
+            s2 = numpy.where(free2, numpy.sin(_one_turn((hint[1]))), s2)
 
         # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
         g27_11 = c2*g17_11 - r31*s2
@@ -361,9 +367,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             s5 = s5 * hn5
         th5 = numpy.arctan2(s5, c5)   # after the unit scaling, as the per-pose solvers
         if free5.any():
-            th5 = numpy.where(free5, (hint[4]), th5)
-            c5 = numpy.where(free5, numpy.cos((hint[4])), c5)
-            s5 = numpy.where(free5, numpy.sin((hint[4])), s5)
+            th5 = numpy.where(free5, _one_turn((hint[4])), th5)
+            c5 = numpy.where(free5, numpy.cos(_one_turn((hint[4]))), c5)
+            s5 = numpy.where(free5, numpy.sin(_one_turn((hint[4]))), s5)
 
         # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
         g57_11 = c5*g47_11 + g37_31*s5

@@ -40,6 +40,12 @@ CONDITION_NAMES = ("elbow", "reach", "wrist_bend", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 1.5707963267948966, 0.0, 0.0, 0.0, ])
@@ -188,9 +194,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         c1 = cn1/t3_0
         s1 = sn1/t3_0
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -270,9 +276,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s2 = s2 * hn2
         th2 = numpy.arctan2(s2, c2)   # after the unit scaling, as the per-pose solvers
         if free2.any():
-            th2 = numpy.where(free2, (hint[1]), th2)
-            c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
-            s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
+            th2 = numpy.where(free2, _one_turn((hint[1])), th2)
+            c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)
+            s2 = numpy.where(free2, numpy.sin(_one_turn((hint[1]))), s2)
 
         # cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add)
         c23 = c2*c3 - s2*s3
@@ -318,9 +324,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s4 = s4 * hn4
         th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
         if free4.any():
-            th4 = numpy.where(free4, (hint[3]), th4)
-            c4 = numpy.where(free4, numpy.cos((hint[3])), c4)
-            s4 = numpy.where(free4, numpy.sin((hint[3])), s4)
+            th4 = numpy.where(free4, _one_turn((hint[3])), th4)
+            c4 = numpy.where(free4, numpy.cos(_one_turn((hint[3]))), c4)
+            s4 = numpy.where(free4, numpy.sin(_one_turn((hint[3]))), s4)
 
         # A1^-1 u: the known side with joints 1 moved over (A1^-1 times the previous one)
         n1x = c1*r13 + r23*s1

@@ -100,6 +100,14 @@ static inline double gimbal6_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -478,7 +486,7 @@ static int closed_form(const double pose[16], const double *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
     if (free6) {
-        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
+        rt6[0] = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
         rc6[0] = cos(rt6[0]);
         rs6[0] = sin(rt6[0]);
         rd6[0] = 0;
@@ -545,7 +553,7 @@ static int closed_form(const double pose[16], const double *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
+            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
@@ -630,7 +638,7 @@ static int closed_form(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -822,7 +830,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 9.9999999999999992e-25;
     if (free6) {
-        rt6[0] = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
+        rt6[0] = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
         rc6[0] = cos(rt6[0]);
         rs6[0] = sin(rt6[0]);
         rd6[0] = 0;
@@ -889,7 +897,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0));
+            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
             c5 = cos(th5);
             s5 = sin(th5);
         } else {
@@ -974,7 +982,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {

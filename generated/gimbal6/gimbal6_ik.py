@@ -164,6 +164,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -528,7 +534,7 @@ def _closed_form(pose, current, check_finite=True):
 
     free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24
     if free6:
-        th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+        th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
         roots6 = ((th6, cos(th6), sin(th6), False, 0.0),)
     else:
         roots6 = _circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09)
@@ -572,13 +578,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                 c5 = cos(th5)
                 s5 = sin(th5)
         else:
             # no form applies: the pair leaves th5 free
             free5 = True
-            th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+            th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
             c5 = cos(th5)
             s5 = sin(th5)
 
@@ -647,13 +653,13 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
 
@@ -762,7 +768,7 @@ def inverse_joints(pose, current=None):
 
     free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24
     if free6:
-        th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+        th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
         roots6 = ((th6, cos(th6), sin(th6), False, 0.0),)
     else:
         roots6 = _circle_roots(ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09)
@@ -806,13 +812,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free5 = True
-                th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+                th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
                 c5 = cos(th5)
                 s5 = sin(th5)
         else:
             # no form applies: the pair leaves th5 free
             free5 = True
-            th5 = (0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0))
+            th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
             c5 = cos(th5)
             s5 = sin(th5)
 
@@ -881,13 +887,13 @@ def inverse_joints(pose, current=None):
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
         else:
             # no form applies: the pair leaves th1 free
             free1 = True
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
 

@@ -35,6 +35,12 @@ CONDITION_NAMES = ("root_6", "base_bend", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 # Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2, vectorised: the
@@ -260,7 +266,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             ek0_6, ek1_6, ek2_6, ek3_6, ek4_6, 1e-09, 0, 2)
         if numpy.any(free6):
             first = numpy.arange(4).reshape(4, 1) == 0
-            th6 = numpy.where(free6, (hint[5]), th6)
+            th6 = numpy.where(free6, _one_turn((hint[5])), th6)
             c6 = numpy.where(free6, numpy.cos(th6), c6)
             s6 = numpy.where(free6, numpy.sin(th6), s6)
             found6 = numpy.where(free6, first, found6)
@@ -314,9 +320,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s5 = s5 * hn5
         th5 = numpy.arctan2(s5, c5)   # after the unit scaling, as the per-pose solvers
         if free5.any():
-            th5 = numpy.where(free5, (hint[4]), th5)
-            c5 = numpy.where(free5, numpy.cos((hint[4])), c5)
-            s5 = numpy.where(free5, numpy.sin((hint[4])), s5)
+            th5 = numpy.where(free5, _one_turn((hint[4])), th5)
+            c5 = numpy.where(free5, numpy.cos(_one_turn((hint[4]))), c5)
+            s5 = numpy.where(free5, numpy.sin(_one_turn((hint[4]))), s5)
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
@@ -387,9 +393,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s1 = s1 * hn1
         th1 = numpy.arctan2(s1, c1)   # after the unit scaling, as the per-pose solvers
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
 
         # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
         g13_11 = c1*g03_11 + g03_21*s1

@@ -84,6 +84,14 @@ static inline float gimbal6_ik_f32_atan2(float y, float x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline float one_turn(float angle)
+{
+    const float r = fmodf(angle, 6.28318531f);
+    return r > 3.14159265f ? r - 6.28318531f : (r <= -3.14159265f ? r + 6.28318531f : r);
+}
+
 /* Real roots on the unit circle of P(c, s) = k0 + k1 c + k2 s + k3 c s + k4 s^2 (c^2 + s^2 = 1).
  * The circle is opened at the direction of the eight at 45 deg steps where |P| is largest, so the
  * quartic in u = tan(phi / 2) keeps its leading coefficient away from 0; its real roots are
@@ -462,7 +470,7 @@ static int closed_form(const float pose[16], const float *current,
     int rd6[4], n6;
     const int free6 = ek0_6*ek0_6 + ek1_6*ek1_6 + ek2_6*ek2_6 + ek3_6*ek3_6 + ek4_6*ek4_6 <= 1e-24f;
     if (free6) {
-        rt6[0] = (0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? fmodf(current[5], 360.0f) : 0.0f));
+        rt6[0] = one_turn((0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? fmodf(current[5], 360.0f) : 0.0f)));
         rc6[0] = cosf(rt6[0]);
         rs6[0] = sinf(rt6[0]);
         rd6[0] = 0;
@@ -529,7 +537,7 @@ static int closed_form(const float pose[16], const float *current,
             free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free5) {
-            th5 = (0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f));
+            th5 = one_turn((0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f)));
             c5 = cosf(th5);
             s5 = sinf(th5);
         } else {
@@ -614,7 +622,7 @@ static int closed_form(const float pose[16], const float *current,
             free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
         }
         if (free1) {
-            th1 = (0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f));
+            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
             c1 = cosf(th1);
             s1 = sinf(th1);
         } else {

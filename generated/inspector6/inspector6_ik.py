@@ -61,6 +61,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -409,7 +415,7 @@ def _closed_form(pose, current, check_finite=True):
         root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -457,7 +463,7 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -500,13 +506,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -553,13 +559,13 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                 c4 = cos(th4)
                 s4 = sin(th4)
 
@@ -685,7 +691,7 @@ def inverse_joints(pose, current=None):
         root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
         for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
             if free1:
-                th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
                 c1 = cos(th1)
                 s1 = sin(th1)
             else:
@@ -733,7 +739,7 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
-                    th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
@@ -776,13 +782,13 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + -0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -829,13 +835,13 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free4 = True
-                    th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                     c4 = cos(th4)
                     s4 = sin(th4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
-                th4 = (0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0))
+                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
                 c4 = cos(th4)
                 s4 = sin(th4)
 

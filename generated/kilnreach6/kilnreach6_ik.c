@@ -100,6 +100,14 @@ static inline double kilnreach6_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[KILNREACH6_IK_JOINTS] = { -170.00000034000001, -100.0000002, 499.99999889999998, -180.00000036, -115.00000023, -180.00000036 };
@@ -236,7 +244,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -274,7 +282,7 @@ static int closed_form(const double pose[16], const double *current,
             const double sg2 = k2 ? -1.0 : 1.0;
             double th2, c2, s2;
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -353,7 +361,7 @@ static int closed_form(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+                th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {
@@ -551,7 +559,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -589,7 +597,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             const double sg2 = k2 ? -1.0 : 1.0;
             double th2, c2, s2;
             if (free2) {
-                th2 = (0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                 c2 = cos(th2);
                 s2 = sin(th2);
             } else {
@@ -668,7 +676,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free4) {
-                th4 = (0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0));
+                th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
             } else {

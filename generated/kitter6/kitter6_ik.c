@@ -100,6 +100,14 @@ static inline double kitter6_ik_atan2(double y, double x)
 #endif
 }
 
+/* A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+ * wrap counts assume one turn. */
+static inline double one_turn(double angle)
+{
+    const double r = fmod(angle, 6.2831853071795862);
+    return r > 3.1415926535897931 ? r - 6.2831853071795862 : (r <= -3.1415926535897931 ? r + 6.2831853071795862 : r);
+}
+
 /* Limits in reading units widened by 1e-9 of their range; a turn in reading units (0: prismatic);
  * whether a joint's range exceeds a turn (every equivalent reading is then a solution). */
 static const double LOW[KITTER6_IK_JOINTS] = { -270.00000053999997, -175.00000034999999, -160.00000032, -175.00000034999999, -175.00000034999999, -270.00000053999997 };
@@ -246,7 +254,7 @@ static int closed_form(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -304,7 +312,7 @@ static int closed_form(const double pose[16], const double *current,
                 free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free6) {
-                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
+                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
@@ -400,7 +408,7 @@ static int closed_form(const double pose[16], const double *current,
                     free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free2) {
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                    th2 = one_turn((1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                     c2 = cos(th2);
                     s2 = sin(th2);
                 } else {
@@ -524,7 +532,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
         const double sg1 = k1 ? -1.0 : 1.0;
         double th1, c1, s1;
         if (free1) {
-            th1 = (0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0));
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
         } else {
@@ -582,7 +590,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
             }
             if (free6) {
-                th6 = (0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0));
+                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
                 c6 = cos(th6);
                 s6 = sin(th6);
             } else {
@@ -678,7 +686,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                     free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
                 }
                 if (free2) {
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0));
+                    th2 = one_turn((1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
                     c2 = cos(th2);
                     s2 = sin(th2);
                 } else {

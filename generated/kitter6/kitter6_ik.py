@@ -61,6 +61,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -389,7 +395,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -438,13 +444,13 @@ def _closed_form(pose, current, check_finite=True):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
-                    th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+                    th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
                     c6 = cos(th6)
                     s6 = sin(th6)
             else:
                 # no form applies: the pair leaves th6 free
                 free6 = True
-                th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+                th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
                 c6 = cos(th6)
                 s6 = sin(th6)
 
@@ -509,13 +515,13 @@ def _closed_form(pose, current, check_finite=True):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 
@@ -593,7 +599,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -642,13 +648,13 @@ def inverse_joints(pose, current=None):
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free6 = True
-                    th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+                    th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
                     c6 = cos(th6)
                     s6 = sin(th6)
             else:
                 # no form applies: the pair leaves th6 free
                 free6 = True
-                th6 = (0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0))
+                th6 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[5], 360.0) if current is not None else 0.0)))
                 c6 = cos(th6)
                 s6 = sin(th6)
 
@@ -713,13 +719,13 @@ def inverse_joints(pose, current=None):
                         continue
                     else:  # ill-conditioned near a singular pose: the pair does not fix it
                         free2 = True
-                        th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                        th2 = _one_turn((1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
                     # no form applies: the pair leaves th2 free
                     free2 = True
-                    th2 = (1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                    th2 = _one_turn((1.5707963267948966 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                     c2 = cos(th2)
                     s2 = sin(th2)
 

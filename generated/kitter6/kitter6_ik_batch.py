@@ -35,6 +35,12 @@ CONDITION_NAMES = ("reach", "wrist_bend", "elbow", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 1.5707963267948966, 0.0, -1.5707963267948966, 0.0, 0.0, ])
@@ -151,9 +157,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         c1 = cn1/t2_0
         s1 = sn1/t2_0
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
         cond1 = root1 * 0.003162277660168379
 
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -200,9 +206,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s6 = s6 * hn6
         th6 = numpy.arctan2(s6, c6)   # after the unit scaling, as the per-pose solvers
         if free6.any():
-            th6 = numpy.where(free6, (hint[5]), th6)
-            c6 = numpy.where(free6, numpy.cos((hint[5])), c6)
-            s6 = numpy.where(free6, numpy.sin((hint[5])), s6)
+            th6 = numpy.where(free6, _one_turn((hint[5])), th6)
+            c6 = numpy.where(free6, numpy.cos(_one_turn((hint[5]))), c6)
+            s6 = numpy.where(free6, numpy.sin(_one_turn((hint[5]))), s6)
 
         # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
         g05_11 = c6*r11 - r12*s6
@@ -269,9 +275,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = valid & ~(bad2 & ~weak2)
         th2 = numpy.arctan2(s2, c2)
         if free2.any():
-            th2 = numpy.where(free2, (hint[1]), th2)
-            c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
-            s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
+            th2 = numpy.where(free2, _one_turn((hint[1])), th2)
+            c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)
+            s2 = numpy.where(free2, numpy.sin(_one_turn((hint[1]))), s2)
 
         # th4: from the sum of parallel-axis angles
         th4 = thp234 - th3 - th2

@@ -62,6 +62,12 @@ STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
 
+def _one_turn(angle):
+    """A free joint's angle (the caller's reading) in (-pi, pi] (fmod is exact): the later steps'
+    wrap counts assume one turn."""
+    r = fmod(angle, _TWO_PI)
+    return r - _TWO_PI if r > _PI else (r + _TWO_PI if r <= -_PI else r)
+
 class Solution(tuple):
     """One solution: (joints, config, singular, conditioning, within_limits)."""
 
@@ -339,7 +345,7 @@ def _closed_form(pose, current, check_finite=True):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -362,7 +368,7 @@ def _closed_form(pose, current, check_finite=True):
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:
@@ -439,7 +445,7 @@ def inverse_joints(pose, current=None):
     root1 = sqrt(er1) if er1 > 0.0 else 0.0
     for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
         if free1:
-            th1 = (0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0))
+            th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
             c1 = cos(th1)
             s1 = sin(th1)
         else:
@@ -462,7 +468,7 @@ def inverse_joints(pose, current=None):
         root2 = sqrt(t3_0) if t3_0 > 0.0 else 0.0
         for sg2 in ((1.0,) if free2 or root2 == 0.0 else (1.0, -1.0)):
             if free2:
-                th2 = (0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0))
+                th2 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[1], 360.0) if current is not None else 0.0)))
                 c2 = cos(th2)
                 s2 = sin(th2)
             else:

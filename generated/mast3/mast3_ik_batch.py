@@ -37,6 +37,12 @@ CONDITION_NAMES = ("reach", "root_2", )
 
 _PI = 3.141592653589793
 _TWO_PI = 6.283185307179586
+
+def _one_turn(angle):
+    """Free joints' angles (the callers' readings) in (-pi, pi] (fmod is exact), as the per-pose
+    solver takes them."""
+    r = numpy.fmod(angle, _TWO_PI)
+    return numpy.where(r > _PI, r - _TWO_PI, numpy.where(r <= -_PI, r + _TWO_PI, r))
 _SIGNS = numpy.array([1.0, -1.0])
 _PLUS, _MINUS = numpy.int8(1), numpy.int8(-1)  # label values (int8 like the labels array)
 _ZERO = numpy.array([0.0, 0.0, 0.0, ])
@@ -154,9 +160,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         c1 = cn1/t1_0
         s1 = sn1/t1_0
         if free1.any():
-            th1 = numpy.where(free1, (hint[0]), th1)
-            c1 = numpy.where(free1, numpy.cos((hint[0])), c1)
-            s1 = numpy.where(free1, numpy.sin((hint[0])), s1)
+            th1 = numpy.where(free1, _one_turn((hint[0])), th1)
+            c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
+            s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
         cond1 = root1 * 0.001
 
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
@@ -176,9 +182,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         c2 = cn2/t3_0
         s2 = sn2/t3_0
         if free2.any():
-            th2 = numpy.where(free2, (hint[1]), th2)
-            c2 = numpy.where(free2, numpy.cos((hint[1])), c2)
-            s2 = numpy.where(free2, numpy.sin((hint[1])), s2)
+            th2 = numpy.where(free2, _one_turn((hint[1])), th2)
+            c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)
+            s2 = numpy.where(free2, numpy.sin(_one_turn((hint[1]))), s2)
         cond2 = root2 * 0.001
 
         # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
