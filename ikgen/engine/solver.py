@@ -727,15 +727,14 @@ def divides(first: sp.Expr, second: sp.Expr) -> bool:
     Other expressions take sympy's ``cancel`` on the quotient."""
     symbols = tuple(sorted(sp.sympify(first).free_symbols | sp.sympify(second).free_symbols,
                            key=sp.default_sort_key))
-    ring = integer_ring(symbols) if symbols else None
-    try:
-        f, g = ring.from_expr(first), ring.from_expr(second)
-    except (AttributeError, ValueError, TypeError, CoercionFailed):
+    pair = _in_ring(symbols, first, second) if symbols else None
+    if pair is None:
         first = sp.expand(first)
         if first.is_number or len(sp.Add.make_args(first)) > 6:
             return False
         ratio = sp.cancel(sp.expand(second) / sp.sqf_part(first))
         return not sp.denom(ratio).free_symbols
+    ring, f, g = pair
     if f.is_ground or len(f) > 6:
         return False        # a long determinant: the test costs seconds, and such forms are rare
     rational = ring.clone(domain=QQ)
@@ -743,6 +742,16 @@ def divides(first: sp.Expr, second: sp.Expr) -> bool:
     if not g.rem(f.set_ring(rational)):
         return True
     return not g.rem(_square_free_part(first, symbols).set_ring(rational))
+
+
+def _in_ring(symbols: tuple, first: sp.Expr, second: sp.Expr):
+    """(ring, first, second) in the ring of integer polynomials in ``symbols``, or None when one of
+    them is not such a polynomial."""
+    ring = integer_ring(symbols)
+    try:
+        return ring, ring.from_expr(first), ring.from_expr(second)
+    except (ValueError, TypeError, CoercionFailed):
+        return None
 
 
 @functools.lru_cache(maxsize=256)
