@@ -26,7 +26,6 @@ from dataclasses import dataclass
 import numpy as np
 import sympy as sp
 from sympy.polys.domains import QQ
-from sympy.polys.polyerrors import CoercionFailed
 
 from ..errors import StructureError
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, CirclePolynomial, Compute,
@@ -34,7 +33,7 @@ from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, Ci
 from .chain import Chain
 from .names import Names, Samples
 from .pool import Equation, Pool, entry_scale, equation_expr, numeric_residual, vary
-from .symbols import Unknown, integer_ring, reduce_circles, tidy
+from .symbols import Unknown, reduce_circles, ring_forms, tidy
 
 ZERO_TOLERANCE = 1e-9   # relative: a coefficient below this on every sample is identically zero
 MAX_PAIR_FORMS = 3
@@ -725,38 +724,26 @@ def divides(first: sp.Expr, second: sp.Expr) -> bool:
     part, which is computed once per ``first``; the remainder of the division by one polynomial is
     zero exactly when it divides (one polynomial is a Groebner basis of the ideal it makes).
     Other expressions take sympy's ``cancel`` on the quotient."""
-    symbols = tuple(sorted(sp.sympify(first).free_symbols | sp.sympify(second).free_symbols,
-                           key=sp.default_sort_key))
-    pair = _in_ring(symbols, first, second) if symbols else None
+    constants = not (sp.sympify(first).free_symbols or sp.sympify(second).free_symbols)
+    pair = None if constants else ring_forms([first, second])
     if pair is None:
         first = sp.expand(first)
         if first.is_number or len(sp.Add.make_args(first)) > 6:
             return False
         ratio = sp.cancel(sp.expand(second) / sp.sqf_part(first))
         return not sp.denom(ratio).free_symbols
-    ring, f, g = pair
+    f, g = pair
     if f.is_ground or len(f) > 6:
         return False        # a long determinant: the test costs seconds, and such forms are rare
-    rational = ring.clone(domain=QQ)
+    rational = f.ring.clone(domain=QQ)
     g = g.set_ring(rational)
     if not g.rem(f.set_ring(rational)):
         return True
-    return not g.rem(_square_free_part(first, symbols).set_ring(rational))
-
-
-def _in_ring(symbols: tuple, first: sp.Expr, second: sp.Expr):
-    """(ring, first, second) in the ring of integer polynomials in ``symbols``, or None when one of
-    them is not such a polynomial."""
-    ring = integer_ring(symbols)
-    try:
-        return ring, ring.from_expr(first), ring.from_expr(second)
-    except (ValueError, TypeError, CoercionFailed):
-        return None
+    return not g.rem(_square_free_part(first, f.ring).set_ring(rational))
 
 
 @functools.lru_cache(maxsize=256)
-def _square_free_part(first: sp.Expr, symbols: tuple):
-    ring = integer_ring(symbols)
+def _square_free_part(first: sp.Expr, ring):
     return ring.from_expr(first).sqf_part()
 
 

@@ -145,12 +145,17 @@ def ring_form(expr: sp.Expr, circles=()):
     """``expr`` as an element of the ring of integer polynomials in its symbols (and the sines of
     the circles whose cosine it has), or None when it is a constant or not such a polynomial."""
     free = expr.free_symbols
-    if not free:
-        return None
-    free |= {s for c, s in circles if c in free}
-    ring = integer_ring(tuple(sorted(free, key=sp.default_sort_key)))
+    found = ring_forms([expr], {s for c, s in circles if c in free}) if free else None
+    return found[0] if found else None
+
+
+def ring_forms(exprs, extra=()):
+    """The expressions as elements of one ring of integer polynomials in all their symbols (and
+    ``extra``), or None when one of them is not such a polynomial."""
+    symbols = set(extra).union(*(sp.sympify(e).free_symbols for e in exprs))
+    ring = integer_ring(tuple(sorted(symbols, key=sp.default_sort_key)))
     try:
-        return ring.from_expr(expr)
+        return [ring.from_expr(e) for e in exprs]
     except (ValueError, TypeError, CoercionFailed):
         return None
 
