@@ -68,9 +68,12 @@ def test_exact_from_float_matches_parse_exact_and_rejects_non_finite():
 @given(st.floats(allow_nan=False, allow_infinity=False))
 def test_property_exact_value_rounds_back_to_the_same_float(x):
     # Python tutorial, "Floating Point Arithmetic: Issues and Limitations": repr(x) reads back as x.
+    # The exact value is rounded by int true division, which CPython rounds correctly (its
+    # long_true_divide; from memory): sympy's float() of a Rational can be one ulp off for
+    # subnormal values (hypothesis found 1.247455891682445e-308 coming back as ...447e-308).
     result = parse_exact(x)
     assert result.is_Rational
-    assert float(result) == x
+    assert int(result.p) / int(result.q) == x
 
 
 @settings(max_examples=300, deadline=None)
