@@ -26,9 +26,7 @@ from __future__ import annotations
 
 import argparse
 import os
-import re
 import shutil
-import statistics
 import subprocess
 import sys
 import tempfile

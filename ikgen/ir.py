@@ -129,6 +129,9 @@ class PairForm:
     det_nonnegative: bool       # det >= 0 everywhere: atan2(sin_num, cos_num) needs no sign fix
     threshold: float            # |det| below it: this form is singular, try the next
     source: str
+    after: str = ""             # a sibling unknown solved just before by a linear pair of its own: this
+                                # form reads the quantities that fixed that sibling but not its angle,
+                                # and is tried only where the sibling was not left free
 
 
 @dataclass(frozen=True)
@@ -141,7 +144,8 @@ class LinearPair:
         lines = [f"  solve th{self.key} from a linear pair in (c{self.key}, s{self.key}):"]
         for k, f in enumerate(self.forms):
             lines.append(f"    form {k + 1} [{f.source}]: c = ({f.cos_num})/det, s = ({f.sin_num})/det, "
-                         f"det = {f.det} (singular below {f.threshold:.3g})")
+                         f"det = {f.det} (singular below {f.threshold:.3g}"
+                         + (f"; only where th{f.after} was not left free)" if f.after else ")"))
         lines.append(f"    all singular: {self.singular.rule}")
         return lines
 

@@ -17,8 +17,6 @@ from __future__ import annotations
 import time
 import traceback
 
-import numpy as np
-
 from helpers import build_arm, joint
 from ikgen.errors import StructureError
 from ikgen.generate import build, load_module

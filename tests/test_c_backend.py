@@ -247,6 +247,40 @@ def test_a_free_joint_keeps_the_callers_reading_within_one_turn(demos):
     assert any(s[2] for s in demo.python.inverse(pose.tolist(), [1000.0, 0, 0, 0, 0, 0], limits="ignore"))
 
 
+@pytest.mark.parametrize("bend", [30.0, 1.0, 1e-2, 5e-3, 1e-4, 1e-7, 0.0])
+def test_the_wrist_angles_round_trip_on_either_side_of_the_direct_form(demos, bend):
+    """Once joint 5 is known, joints 4 and 6 each come from one pair of equations without the other
+    (the usual path) only where the bend is well conditioned (|det| = sin(th5)^2 above 1e-8, a bend
+    above about 6e-3 deg); nearer the aligned wrist joint 6 reads joint 4's angle, so their sum stays
+    exact where each alone is ill determined, and at the aligned wrist joint 4 is free. On both
+    sides of that band, and on it: every solution is the pose (rotation error by scipy's
+    Rotation), the C and Python solvers agree bit for bit, and one solution is the readings we
+    started from (near the aligned wrist: but for the sum of joints 4 and 6). The tolerances are the
+    double build's round trip of tests/test_atan2_kernel.py."""
+    demo = demos("benchtop6")
+    arm, chain = demo.arm, demo.chain
+    step = next(s for s in demo.derivation.steps if getattr(s, "key", None) == "6")
+    assert step.forms[0].after == "4" and not {str(x) for x in step.forms[0].cos_num.free_symbols} & {"c4", "s4"}
+    readings = demo.regular_readings(20, seed=41)
+    readings[:, 4] = wrist_singular_reading(arm) + bend
+    poses = chain.poses(readings)
+    reach = arm.reach_scale()
+    for reading, pose in zip(readings, poses):
+        py = demo.python.inverse_joints(pose.tolist())
+        assert [tuple(q) for q in demo.solver().inverse_joints(pose, None)] == [tuple(q) for q in py]
+        assert py, reading
+        got = np.array(py)
+        achieved = chain.poses(got)
+        position = np.linalg.norm(achieved[:, :3, 3] - pose[:3, 3], axis=1) / reach
+        rotation = Rotation.from_matrix(np.einsum("ji,njk->nik", pose[:3, :3], achieved[:, :3, :3])).magnitude()
+        assert position.max() < 1e-9 and rotation.max() < 1e-9, (bend, position.max(), rotation.max())
+        gap = np.abs((got - reading + 180.0) % 360.0 - 180.0)
+        if bend < 1e-2:       # joints 4 and 6 alone are ill determined here (by about 1e-16 / sin(th5))
+            together = (got[:, 3] + got[:, 5]) - (reading[3] + reading[5])
+            gap[:, 3] = gap[:, 5] = np.abs((together + 180.0) % 360.0 - 180.0)
+        assert gap.max(axis=1).min() < 1e-6, (bend, gap.max(axis=1).min())
+
+
 def test_a_free_angle_is_taken_into_one_turn(demos):
     """A free joint's angle (or a free sum of parallel-axis angles, the sum of its members'
     readings) enters the later steps in (-pi, pi], so the wrap counts of the readings hold: the

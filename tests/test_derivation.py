@@ -24,11 +24,12 @@ import pytest
 import shared
 from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
 from ikgen.armfile import arm_from_data
+from ikgen.backends import common
 from ikgen.backends import python as python_backend
 from ikgen.engine import derive
 from ikgen.errors import StructureError
 from ikgen.generate import build, load_module
-from ikgen.ir import Compute, CosSinEquation
+from ikgen.ir import Compute, CosSinEquation, LinearPair, cos_symbol, sin_symbol
 from ikgen.kinematics import NumericChain
 from ikgen.verify import verify
 
@@ -47,6 +48,26 @@ def demos():
 
 
 # --------------------------------------------------------------------------- IR structure
+
+def test_a_wrist_takes_joint_6_without_joint_4_where_nothing_else_needs_joint_4():
+    """Joints 4 and 6 of a wrist with joint 5 known: joint 6's first form does without joint 4
+    (PairForm.after), so in the lowered plan nothing but joint 6's fallback reads joint 4's cosine
+    and sine, and both pairs keep only the direction of (cos, sin) (no division, no unit scaling).
+    Where joint 4's (cos, sin) are read anyway (kitter6: the position of the wrist point needs joint
+    6's, solved first there), the engine keeps the derivation it had: no such form."""
+    derivation = shared.built(demo_arm("benchtop6")).derivation
+    six = next(s for s in derivation.steps if isinstance(s, LinearPair) and s.key == "6")
+    assert six.forms[0].after == "4" and len(six.forms) == 2 and six.forms[1].det == 1
+    assert not (six.forms[0].cos_num.free_symbols | six.forms[0].sin_num.free_symbols) & {cos_symbol("4"), sin_symbol("4")}
+    plan = common.lower(derivation)
+    pairs = {b.key: b for b in plan.blocks if b.kind == "pair"}
+    assert pairs["4"].scale_free and pairs["6"].scale_free and not pairs["2"].scale_free
+    readers = [a for b in plan.blocks for f in b.forms[1:] for a in f.temps
+               if a.expr.free_symbols & {cos_symbol("4"), sin_symbol("4")}]
+    assert [str(a.target) for a in readers] == ["un4", "uc4", "us4"]
+    kitter = shared.built(demo_arm("kitter6")).derivation
+    assert not any(f.after for s in kitter.steps if isinstance(s, LinearPair) for f in s.forms)
+
 
 @pytest.mark.parametrize("stem", DEMOS)
 def test_ir_structure(demos, stem):

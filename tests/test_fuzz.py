@@ -27,7 +27,6 @@ from __future__ import annotations
 import decimal
 import importlib.util
 import math
-import sys
 
 import numpy as np
 import pytest

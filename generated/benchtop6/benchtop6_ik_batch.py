@@ -140,9 +140,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 70*r23
         wz = pcz - 70*r33
 
-        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         v1y = 220 - wz
         g16_24 = 220 - pcz
+        ks2_3 = -260*v1y
 
         # th1: z of A1^-1 w = A2 A3 c3
         t3_0 = wx*wx + wy*wy
@@ -172,11 +173,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 25
-        g16_31 = c1*r21 - r11*s1
-        g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
-        t7_0_0 = 20*v1x
+        kc2_0 = -20*v1x - 240*v1y
+        kc2_1 = 240*v1x - 20*v1y
+        kc2_2 = -260*v1x
         dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -197,13 +198,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t7_0_1 = c3*v1y
-        t7_0_2 = s3*v1y
 
         dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (-c3*t7_0_0 + 240*s3*v1x - 240*t7_0_1 - 20*t7_0_2 - 260*v1x) / dt2
-        s2 = (240*c3*v1x + s3*t7_0_0 - 20*t7_0_1 + 240*t7_0_2 - 260*v1y) / dt2
+        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use
@@ -297,8 +296,6 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         s23 = c2*s3 + c3*s2
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
-        g36_11 = c23*g16_11 - r31*s23
-        g36_12 = c23*g16_12 - r32*s23
         g36_13 = c23*g16_13 - r33*s23
         g36_31 = -c23*r31 - g16_11*s23
         g36_32 = -c23*r32 - g16_12*s23
@@ -321,46 +318,51 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
-        c4 = (g36_13*s5) / dt4
-        s4 = (-g16_33*s5) / dt4
+        c4 = -g36_13*s5
+        s4 = g16_33*s5
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
-        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
+        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - dk4 * dk4) > 1e-4 * (dk4 * dk4))
         weak4 = bad4 & (numpy.abs(dk4) <= wk4)  # ill-conditioned near a singular pose: free
         free4 = ~chosen4 | weak4
         valid = valid & ~(bad4 & ~weak4)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq4 = c4 * c4 + s4 * s4
-        off4 = numpy.abs(hq4 - 1.0) > 1e-15
-        if off4.any():
-            hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
-            c4 = c4 * hn4
-            s4 = s4 * hn4
-        th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
+        th4 = numpy.arctan2(s4, c4)   # as the per-pose solvers
         if free4.any():
             th4 = numpy.where(free4, _one_turn((hint[3])), th4)
             c4 = numpy.where(free4, numpy.cos(_one_turn((hint[3]))), c4)
             s4 = numpy.where(free4, numpy.sin(_one_turn((hint[3]))), s4)
 
-        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 - g16_31*s4
-        g46_12 = c4*g36_12 - g16_32*s4
-
-        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 + g36_31*s5
-        g56_12 = c5*g46_12 + g36_32*s5
-
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
 
-        dt6 = 1
-        use = ~chosen6
-        c6 = (g56_11) / dt6
-        s6 = (-g56_12) / dt6
+        dt6 = numpy.where(free4, 0.0, -s5*s5)
+        use = ~chosen6 & (numpy.abs(dt6) > 1e-08)
+        c6 = g36_31*s5
+        s6 = -g36_32*s5
+        dk6 = dt6
         chosen6 = chosen6 | use
-        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
-        th6 = numpy.arctan2(s6, c6)   # after the unit scaling, as the per-pose solvers
+        if not chosen6.all():
+            un4 = 1.0/numpy.sqrt(c4*c4 + s4*s4)
+            uc4 = c4*un4
+            us4 = s4*un4
+            g16_31 = c1*r21 - r11*s1
+            g16_32 = c1*r22 - r12*s1
+            g36_11 = c23*g16_11 - r31*s23
+            g36_12 = c23*g16_12 - r32*s23
+            g46_11 = -g16_31*us4 + g36_11*uc4
+            g46_12 = -g16_32*us4 + g36_12*uc4
+            g56_11 = c5*g46_11 + g36_31*s5
+            g56_12 = c5*g46_12 + g36_32*s5
+
+            dt6 = 1
+            use = ~chosen6
+            c6 = numpy.where(use, g56_11, c6)
+            s6 = numpy.where(use, -g56_12, s6)
+            dk6 = numpy.where(use, dt6, dk6)
+            chosen6 = chosen6 | use
+        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6))
+        th6 = numpy.arctan2(s6, c6)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

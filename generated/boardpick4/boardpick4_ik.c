@@ -237,8 +237,10 @@ static int closed_form(const double pose[16], const double *current,
     }
 
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
-    const double t5_0_1 = 325.0*l3;
-    const double t5_0_2 = 275.0*l3;
+    const double kc1_0 = -275.0*l3*r13 + 275.0*pcx - 12375.0*r13;
+    const double kc1_1 = -275.0*l3*r23 + 275.0*pcy - 12375.0*r23;
+    const double kc1_2 = -325.0*l3*r13 + 325.0*pcx - 14625.0*r13;
+    const double ks1_3 = -325.0*l3*r23 + 325.0*pcy - 14625.0*r23;
 
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
      * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -275,13 +277,11 @@ static int closed_form(const double pose[16], const double *current,
         double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
-            const double t5_0_0 = 12375.0*c2;
-            const double t5_0_3 = c2*t5_0_2;
 
             dt1 = 178750.0*c2 + 181250.0;
             if (fabs(dt1) > 9.9999999999999988e-16) {
-                c1 = (275.0*c2*pcx + 325.0*pcx + 275.0*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625.0*r13 - r23*s2*t5_0_2 - 12375.0*r23*s2) / dt1;
-                s1 = (275.0*c2*pcy + 275.0*l3*r13*s2 - 275.0*pcx*s2 + 325.0*pcy + 12375.0*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625.0*r23) / dt1;
+                c1 = (c2*kc1_0 + kc1_1*s2 + kc1_2) / dt1;
+                s1 = (c2*kc1_1 - kc1_0*s2 + ks1_3) / dt1;
                 free1 = 0;
                 wk1 = 0.0009999999999999998;
             }

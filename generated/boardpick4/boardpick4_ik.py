@@ -411,8 +411,10 @@ def _closed_form(pose, current, check_finite=True):
         l3 = (0.0 + 1.0 * (current[2] if current is not None else 0.0))
 
     # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
-    t5_0_1 = 325.0*l3
-    t5_0_2 = 275.0*l3
+    kc1_0 = -275.0*l3*r13 + 275.0*pcx - 12375.0*r13
+    kc1_1 = -275.0*l3*r23 + 275.0*pcy - 12375.0*r23
+    kc1_2 = -325.0*l3*r13 + 325.0*pcx - 14625.0*r13
+    ks1_3 = -325.0*l3*r23 + 325.0*pcy - 14625.0*r23
 
     # th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
     # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -439,13 +441,11 @@ def _closed_form(pose, current, check_finite=True):
         s2 = 3.129737395471661e-11*(178750.0*root2*sg2)
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t5_0_0 = 12375.0*c2
-        t5_0_3 = c2*t5_0_2
 
         dt1 = 178750.0*c2 + 181250.0
         if dt1 > 9.999999999999999e-16 or dt1 < -9.999999999999999e-16:
-            c1 = (275.0*c2*pcx + 325.0*pcx + 275.0*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625.0*r13 - r23*s2*t5_0_2 - 12375.0*r23*s2) / dt1
-            s1 = (275.0*c2*pcy + 275.0*l3*r13*s2 - 275.0*pcx*s2 + 325.0*pcy + 12375.0*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625.0*r23) / dt1
+            c1 = (c2*kc1_0 + kc1_1*s2 + kc1_2) / dt1
+            s1 = (c2*kc1_1 - kc1_0*s2 + ks1_3) / dt1
             hq1 = c1 * c1 + s1 * s1
             if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False

@@ -219,8 +219,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             l3 = numpy.where(free3, (hint[2]), l3)
 
         # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t5_0_1 = 325*l3
-        t5_0_2 = 275*l3
+        kc1_0 = -275*l3*r13 + 275*pcx - 12375*r13
+        kc1_1 = -275*l3*r23 + 275*pcy - 12375*r23
+        kc1_2 = -325*l3*r13 + 325*pcx - 14625*r13
+        ks1_3 = -325*l3*r23 + 325*pcy - 14625*r23
 
         # th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
         t4_0 = r13*r13
@@ -249,13 +251,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen1 = numpy.zeros((), dtype=bool)
-        t5_0_0 = 12375*c2
-        t5_0_3 = c2*t5_0_2
 
         dt1 = 178750*c2 + 181250
         use = ~chosen1 & (numpy.abs(dt1) > 9.999999999999999e-16)
-        c1 = (275*c2*pcx + 325*pcx + 275*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625*r13 - r23*s2*t5_0_2 - 12375*r23*s2) / dt1
-        s1 = (275*c2*pcy + 275*l3*r13*s2 - 275*pcx*s2 + 325*pcy + 12375*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625*r23) / dt1
+        c1 = (c2*kc1_0 + kc1_1*s2 + kc1_2) / dt1
+        s1 = (c2*kc1_1 - kc1_0*s2 + ks1_3) / dt1
         wk1 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk1 = dt1
         chosen1 = chosen1 | use

@@ -221,8 +221,10 @@ static int closed_form(const float pose[16], const float *current,
     }
 
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
-    const float t5_0_1 = 325.0f*l3;
-    const float t5_0_2 = 275.0f*l3;
+    const float kc1_0 = -275.0f*l3*r13 + 275.0f*pcx - 12375.0f*r13;
+    const float kc1_1 = -275.0f*l3*r23 + 275.0f*pcy - 12375.0f*r23;
+    const float kc1_2 = -325.0f*l3*r13 + 325.0f*pcx - 14625.0f*r13;
+    const float ks1_3 = -325.0f*l3*r23 + 325.0f*pcy - 14625.0f*r23;
 
     /* th2: squared norm of the position of T A4^-1 A3^-1 = A1 A2
      * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -259,13 +261,11 @@ static int closed_form(const float pose[16], const float *current,
         float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
         int free1 = 1;
         {
-            const float t5_0_0 = 12375.0f*c2;
-            const float t5_0_3 = c2*t5_0_2;
 
             dt1 = 178750.0f*c2 + 181250.0f;
             if (fabsf(dt1) > 1e-15f) {
-                c1 = (275.0f*c2*pcx + 325.0f*pcx + 275.0f*pcy*s2 - r13*t5_0_0 - r13*t5_0_1 - r13*t5_0_3 - 14625.0f*r13 - r23*s2*t5_0_2 - 12375.0f*r23*s2) / dt1;
-                s1 = (275.0f*c2*pcy + 275.0f*l3*r13*s2 - 275.0f*pcx*s2 + 325.0f*pcy + 12375.0f*r13*s2 - r23*t5_0_0 - r23*t5_0_1 - r23*t5_0_3 - 14625.0f*r23) / dt1;
+                c1 = (c2*kc1_0 + kc1_1*s2 + kc1_2) / dt1;
+                s1 = (c2*kc1_1 - kc1_0*s2 + ks1_3) / dt1;
                 free1 = 0;
                 wk1 = 0.001f;
             }

@@ -461,8 +461,12 @@ static int closed_form(const double pose[16], const double *current,
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double t4_0_0 = wx*wx;
     const double t4_0_1 = wy*wy;
-    const double t4_0_4 = 519.6152422706632*wz;
-    const double t4_0_5 = wz*wz;
+    const double kc1_0 = -692.8203230275509*wx + 14000.0*wy;
+    const double kc1_1 = -146185.08815881325*wx - 1000.0*wy;
+    const double kc1_2 = 0.8660254037844386*wx*wx*wx + 0.8660254037844386*wx*wy*wy + 0.8660254037844386*wx*wz*wz - 519.6152422706632*wx*wz - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy;
+    const double ks1_3 = -14000.0*wx - 692.8203230275509*wy;
+    const double ks1_4 = 1000.0*wx - 146185.08815881325*wy;
+    const double ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.378954807777*wy;
     const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -500,13 +504,11 @@ static int closed_form(const double pose[16], const double *current,
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
-            const double t4_0_2 = 692.8203230275509*c3;
-            const double t4_0_3 = 146185.08815881325*s3;
 
             dt1 = dq1;
             if (fabs(dt1) > 9.999999999999999e-14) {
-                c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy) / dt1;
-                s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.378954807777*wy) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
                 wk1 = 0.099999999999999992;
             }
@@ -693,13 +695,9 @@ static int closed_form(const double pose[16], const double *current,
         const double g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31;
         const double g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32;
         const double g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33;
-        const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
-        const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
         const double g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33;
 
         /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
-        const double g36_11 = c3*g26_11 + g26_21*s3;
-        const double g36_12 = c3*g26_12 + g26_22*s3;
         const double g36_13 = c3*g26_13 + g26_23*s3;
         const double g36_31 = -c3*g26_21 + g26_11*s3;
         const double g36_32 = -c3*g26_22 + g26_12*s3;
@@ -720,20 +718,21 @@ static int closed_form(const double pose[16], const double *current,
         c5 = cn5;
         s5 = sn5;
 
-        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
             dt4 = -s5*s5;
             if (fabs(dt4) > 9.9999999999999995e-21) {
-                c4 = (-g36_13*s5) / dt4;
-                s4 = (-g26_33*s5) / dt4;
+                c4 = g36_13*s5;
+                s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
-        if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+        if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
             if (fabs(dt4) > wk4) {
                 continue;
             }
@@ -743,40 +742,43 @@ static int closed_form(const double pose[16], const double *current,
             th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
             s4 = sin(th4);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq4 = c4 * c4 + s4 * s4;
-                if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn4 = 1.0 / sqrt(hq4);
-                    c4 = c4 * hn4;
-                    s4 = s4 * hn4;
-                }
-            }
         }
 
-        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-        const double g46_11 = c4*g36_11 + g26_31*s4;
-        const double g46_12 = c4*g36_12 + g26_32*s4;
-
-        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-        const double g56_11 = c5*g46_11 - g36_31*s5;
-        const double g56_12 = c5*g46_12 - g36_32*s5;
-
-        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
         int free6 = 1;
         {
 
+            dt6 = free4 ? 0.0 : -s5*s5;
+            if (fabs(dt6) > 1e-08) {
+                c6 = -g36_31*s5;
+                s6 = g36_32*s5;
+                free6 = 0;
+                wk6 = 1e-08;
+            }
+        }
+        if (free6) {
+            const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+            const double uc4 = c4*un4;
+            const double us4 = s4*un4;
+            const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
+            const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
+            const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
+            const double g46_11 = g26_31*us4 + g36_11*uc4;
+            const double g46_12 = g26_32*us4 + g36_12*uc4;
+            const double g56_11 = c5*g46_11 - g36_31*s5;
+            const double g56_12 = c5*g46_12 - g36_32*s5;
+
             dt6 = 1.0;
-            c6 = (g56_11) / dt6;
-            s6 = (-g56_12) / dt6;
+            c6 = g56_11;
+            s6 = -g56_12;
             free6 = 0;
         }
         (void)free6;
         (void)wk6;
-        if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+        if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
             continue;
         }
 
@@ -916,8 +918,12 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double t4_0_0 = wx*wx;
     const double t4_0_1 = wy*wy;
-    const double t4_0_4 = 519.6152422706632*wz;
-    const double t4_0_5 = wz*wz;
+    const double kc1_0 = -692.8203230275509*wx + 14000.0*wy;
+    const double kc1_1 = -146185.08815881325*wx - 1000.0*wy;
+    const double kc1_2 = 0.8660254037844386*wx*wx*wx + 0.8660254037844386*wx*wy*wy + 0.8660254037844386*wx*wz*wz - 519.6152422706632*wx*wz - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy;
+    const double ks1_3 = -14000.0*wx - 692.8203230275509*wy;
+    const double ks1_4 = 1000.0*wx - 146185.08815881325*wy;
+    const double ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.378954807777*wy;
     const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -955,13 +961,11 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
-            const double t4_0_2 = 692.8203230275509*c3;
-            const double t4_0_3 = 146185.08815881325*s3;
 
             dt1 = dq1;
             if (fabs(dt1) > 9.999999999999999e-14) {
-                c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.378954807777*wx + 50.0*wy*wz - 19000.0*wy) / dt1;
-                s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.378954807777*wy) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
                 wk1 = 0.099999999999999992;
             }
@@ -1148,13 +1152,9 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const double g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31;
         const double g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32;
         const double g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33;
-        const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
-        const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
         const double g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33;
 
         /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
-        const double g36_11 = c3*g26_11 + g26_21*s3;
-        const double g36_12 = c3*g26_12 + g26_22*s3;
         const double g36_13 = c3*g26_13 + g26_23*s3;
         const double g36_31 = -c3*g26_21 + g26_11*s3;
         const double g36_32 = -c3*g26_22 + g26_12*s3;
@@ -1175,20 +1175,21 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         c5 = cn5;
         s5 = sn5;
 
-        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
         int free4 = 1;
         {
 
             dt4 = -s5*s5;
             if (fabs(dt4) > 9.9999999999999995e-21) {
-                c4 = (-g36_13*s5) / dt4;
-                s4 = (-g26_33*s5) / dt4;
+                c4 = g36_13*s5;
+                s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
-        if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+        if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
             if (fabs(dt4) > wk4) {
                 continue;
             }
@@ -1198,40 +1199,43 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
             s4 = sin(th4);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq4 = c4 * c4 + s4 * s4;
-                if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn4 = 1.0 / sqrt(hq4);
-                    c4 = c4 * hn4;
-                    s4 = s4 * hn4;
-                }
-            }
         }
 
-        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-        const double g46_11 = c4*g36_11 + g26_31*s4;
-        const double g46_12 = c4*g36_12 + g26_32*s4;
-
-        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-        const double g56_11 = c5*g46_11 - g36_31*s5;
-        const double g56_12 = c5*g46_12 - g36_32*s5;
-
-        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
         int free6 = 1;
         {
 
+            dt6 = free4 ? 0.0 : -s5*s5;
+            if (fabs(dt6) > 1e-08) {
+                c6 = -g36_31*s5;
+                s6 = g36_32*s5;
+                free6 = 0;
+                wk6 = 1e-08;
+            }
+        }
+        if (free6) {
+            const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+            const double uc4 = c4*un4;
+            const double us4 = s4*un4;
+            const double g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31;
+            const double g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32;
+            const double g36_11 = c3*g26_11 + g26_21*s3;
+            const double g36_12 = c3*g26_12 + g26_22*s3;
+            const double g46_11 = g26_31*us4 + g36_11*uc4;
+            const double g46_12 = g26_32*us4 + g36_12*uc4;
+            const double g56_11 = c5*g46_11 - g36_31*s5;
+            const double g56_12 = c5*g46_12 - g36_32*s5;
+
             dt6 = 1.0;
-            c6 = (g56_11) / dt6;
-            s6 = (-g56_12) / dt6;
+            c6 = g56_11;
+            s6 = -g56_12;
             free6 = 0;
         }
         (void)free6;
         (void)wk6;
-        if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+        if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
             continue;
         }
 

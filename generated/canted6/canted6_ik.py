@@ -507,8 +507,12 @@ def _closed_form(pose, current, check_finite=True):
     # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
     t4_0_0 = wx*wx
     t4_0_1 = wy*wy
-    t4_0_4 = 519.6152422706632*wz
-    t4_0_5 = wz*wz
+    kc1_0 = -692.8203230275509*wx + 14000.0*wy
+    kc1_1 = -146185.08815881325*wx - 1000.0*wy
+    kc1_2 = 0.8660254037844386*wx*wx*wx + 0.8660254037844386*wx*wy*wy + 0.8660254037844386*wx*wz*wz - 519.6152422706632*wx*wz - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy
+    ks1_3 = -14000.0*wx - 692.8203230275509*wy
+    ks1_4 = 1000.0*wx - 146185.08815881325*wy
+    ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
     dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
 
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -530,13 +534,11 @@ def _closed_form(pose, current, check_finite=True):
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t4_0_2 = 692.8203230275509*c3
-        t4_0_3 = 146185.08815881325*s3
 
         dt1 = dq1
         if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
-            c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
-            s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
             hq1 = c1 * c1 + s1 * s1
             if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
@@ -736,13 +738,9 @@ def _closed_form(pose, current, check_finite=True):
         g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31
         g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32
         g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33
-        g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
-        g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
         g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-        g36_11 = c3*g26_11 + g26_21*s3
-        g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
@@ -760,21 +758,17 @@ def _closed_form(pose, current, check_finite=True):
         s5 = root5
         th5 = atan2(s5, c5)
 
-        # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
         dt4 = -s5*s5
         if dt4 > 1e-20 or dt4 < -1e-20:
-            c4 = (-g36_13*s5) / dt4
-            s4 = (-g26_33*s5) / dt4
+            c4 = g36_13*s5
+            s4 = g26_33*s5
             hq4 = c4 * c4 + s4 * s4
-            if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free4 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
-                th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                th4 = atan2(s4, c4)   # as the C solver computes it
             elif dt4 > 1e-08 or dt4 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -789,23 +783,34 @@ def _closed_form(pose, current, check_finite=True):
             c4 = cos(th4)
             s4 = sin(th4)
 
-        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g26_31*s4
-        g46_12 = c4*g36_12 + g26_32*s4
+        # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
-        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 - g36_31*s5
-        g56_12 = c5*g46_12 - g36_32*s5
+        dt6 = 0.0 if free4 else -s5*s5
+        if dt6 > 1e-08 or dt6 < -1e-08:
+            c6 = -g36_31*s5
+            s6 = g36_32*s5
+        else:
+            un4 = 1.0/sqrt(c4*c4 + s4*s4)
+            uc4 = c4*un4
+            us4 = s4*un4
+            g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
+            g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g46_11 = g26_31*us4 + g36_11*uc4
+            g46_12 = g26_32*us4 + g36_12*uc4
+            g56_11 = c5*g46_11 - g36_31*s5
+            g56_12 = c5*g46_12 - g36_32*s5
 
-        # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-        c6 = g56_11
-        s6 = -g56_12
+            dt6 = 1.0
+            c6 = g56_11
+            s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+        if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
             continue
-        th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+        th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
 
@@ -880,8 +885,12 @@ def inverse_joints(pose, current=None):
     # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
     t4_0_0 = wx*wx
     t4_0_1 = wy*wy
-    t4_0_4 = 519.6152422706632*wz
-    t4_0_5 = wz*wz
+    kc1_0 = -692.8203230275509*wx + 14000.0*wy
+    kc1_1 = -146185.08815881325*wx - 1000.0*wy
+    kc1_2 = 0.8660254037844386*wx*wx*wx + 0.8660254037844386*wx*wy*wy + 0.8660254037844386*wx*wz*wz - 519.6152422706632*wx*wz - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy
+    ks1_3 = -14000.0*wx - 692.8203230275509*wy
+    ks1_4 = 1000.0*wx - 146185.08815881325*wy
+    ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
     dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
 
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -903,13 +912,11 @@ def inverse_joints(pose, current=None):
         roots3 = _circle_roots(ek0_3, ek1_3, ek2_3, 174560000.0, 21174600000.0, 1e-09)
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t4_0_2 = 692.8203230275509*c3
-        t4_0_3 = 146185.08815881325*s3
 
         dt1 = dq1
         if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
-            c1 = (14000.0*c3*wy - 1000.0*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy) / dt1
-            s1 = (-14000.0*c3*wx + 1000.0*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
             hq1 = c1 * c1 + s1 * s1
             if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
@@ -1109,13 +1116,9 @@ def inverse_joints(pose, current=None):
         g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31
         g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32
         g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33
-        g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
-        g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
         g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-        g36_11 = c3*g26_11 + g26_21*s3
-        g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
@@ -1133,21 +1136,17 @@ def inverse_joints(pose, current=None):
         s5 = root5
         th5 = atan2(s5, c5)
 
-        # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
         dt4 = -s5*s5
         if dt4 > 1e-20 or dt4 < -1e-20:
-            c4 = (-g36_13*s5) / dt4
-            s4 = (-g26_33*s5) / dt4
+            c4 = g36_13*s5
+            s4 = g26_33*s5
             hq4 = c4 * c4 + s4 * s4
-            if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free4 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn4 = 1.0 / sqrt(hq4)
-                    c4 = c4 * hn4
-                    s4 = s4 * hn4
-                th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                th4 = atan2(s4, c4)   # as the C solver computes it
             elif dt4 > 1e-08 or dt4 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -1162,23 +1161,34 @@ def inverse_joints(pose, current=None):
             c4 = cos(th4)
             s4 = sin(th4)
 
-        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g26_31*s4
-        g46_12 = c4*g36_12 + g26_32*s4
+        # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
-        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 - g36_31*s5
-        g56_12 = c5*g46_12 - g36_32*s5
+        dt6 = 0.0 if free4 else -s5*s5
+        if dt6 > 1e-08 or dt6 < -1e-08:
+            c6 = -g36_31*s5
+            s6 = g36_32*s5
+        else:
+            un4 = 1.0/sqrt(c4*c4 + s4*s4)
+            uc4 = c4*un4
+            us4 = s4*un4
+            g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
+            g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g46_11 = g26_31*us4 + g36_11*uc4
+            g46_12 = g26_32*us4 + g36_12*uc4
+            g56_11 = c5*g46_11 - g36_31*s5
+            g56_12 = c5*g46_12 - g36_32*s5
 
-        # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-        c6 = g56_11
-        s6 = -g56_12
+            dt6 = 1.0
+            c6 = g56_11
+            s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+        if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
             continue
-        th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+        th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)

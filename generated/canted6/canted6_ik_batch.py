@@ -245,8 +245,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
         t4_0_0 = wx*wx
         t4_0_1 = wy*wy
-        t4_0_4 = 519.6152422706632*wz
-        t4_0_5 = wz*wz
+        kc1_0 = -692.8203230275509*wx + 14000.0*wy
+        kc1_1 = -146185.08815881325*wx - 1000.0*wy
+        kc1_2 = 0.8660254037844386*wx*wx*wx + 0.8660254037844386*wx*wy*wy + 0.8660254037844386*wx*wz*wz - 519.6152422706632*wx*wz - 67463.37895480778*wx + 50.0*wy*wz - 19000.0*wy
+        ks1_3 = -14000.0*wx - 692.8203230275509*wy
+        ks1_4 = 1000.0*wx - 146185.08815881325*wy
+        ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
         dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
 
         # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -274,13 +278,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th1 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen1 = numpy.zeros((), dtype=bool)
-        t4_0_2 = 692.8203230275509*c3
-        t4_0_3 = 146185.08815881325*s3
 
         dt1 = dq1
         use = ~chosen1 & (numpy.abs(dt1) > 9.999999999999999e-14)
-        c1 = (14000*c3*wy - 1000*s3*wy + 0.8660254037844386*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.8660254037844386*t4_0_5*wx + 0.8660254037844386*wx*wx*wx - 67463.37895480778*wx + 50*wy*wz - 19000*wy) / dt1
-        s1 = (-14000*c3*wx + 1000*s3*wx + 0.8660254037844386*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.8660254037844386*t4_0_5*wy - 50*wx*wz + 19000*wx + 0.8660254037844386*wy*wy*wy - 67463.37895480778*wy) / dt1
+        c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
+        s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
         wk1 = numpy.where(use, 0.09999999999999999, 0.0)
         dk1 = dt1
         chosen1 = chosen1 | use
@@ -449,13 +451,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5*g16_31
         g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5*g16_32
         g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5*g16_33
-        g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
-        g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
         g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.8660254037844386*g16_33
 
         # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one)
-        g36_11 = c3*g26_11 + g26_21*s3
-        g36_12 = c3*g26_12 + g26_22*s3
         g36_13 = c3*g26_13 + g26_23*s3
         g36_31 = -c3*g26_21 + g26_11*s3
         g36_32 = -c3*g26_22 + g26_12*s3
@@ -478,46 +476,51 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -s5*s5
         use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
-        c4 = (-g36_13*s5) / dt4
-        s4 = (-g26_33*s5) / dt4
+        c4 = g36_13*s5
+        s4 = g26_33*s5
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
-        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
+        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - dk4 * dk4) > 1e-4 * (dk4 * dk4))
         weak4 = bad4 & (numpy.abs(dk4) <= wk4)  # ill-conditioned near a singular pose: free
         free4 = ~chosen4 | weak4
         valid = valid & ~(bad4 & ~weak4)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq4 = c4 * c4 + s4 * s4
-        off4 = numpy.abs(hq4 - 1.0) > 1e-15
-        if off4.any():
-            hn4 = numpy.where(off4, 1.0 / numpy.sqrt(numpy.where(off4, hq4, 1.0)), 1.0)
-            c4 = c4 * hn4
-            s4 = s4 * hn4
-        th4 = numpy.arctan2(s4, c4)   # after the unit scaling, as the per-pose solvers
+        th4 = numpy.arctan2(s4, c4)   # as the per-pose solvers
         if free4.any():
             th4 = numpy.where(free4, _one_turn((hint[3])), th4)
             c4 = numpy.where(free4, numpy.cos(_one_turn((hint[3]))), c4)
             s4 = numpy.where(free4, numpy.sin(_one_turn((hint[3]))), s4)
 
-        # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g46_11 = c4*g36_11 + g26_31*s4
-        g46_12 = c4*g36_12 + g26_32*s4
-
-        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g56_11 = c5*g46_11 - g36_31*s5
-        g56_12 = c5*g46_12 - g36_32*s5
-
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
 
-        dt6 = 1
-        use = ~chosen6
-        c6 = (g56_11) / dt6
-        s6 = (-g56_12) / dt6
+        dt6 = numpy.where(free4, 0.0, -s5*s5)
+        use = ~chosen6 & (numpy.abs(dt6) > 1e-08)
+        c6 = -g36_31*s5
+        s6 = g36_32*s5
+        dk6 = dt6
         chosen6 = chosen6 | use
-        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - 1.0) > 1e-4)
-        th6 = numpy.arctan2(s6, c6)   # after the unit scaling, as the per-pose solvers
+        if not chosen6.all():
+            un4 = 1.0/numpy.sqrt(c4*c4 + s4*s4)
+            uc4 = c4*un4
+            us4 = s4*un4
+            g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.8660254037844386*g16_31
+            g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.8660254037844386*g16_32
+            g36_11 = c3*g26_11 + g26_21*s3
+            g36_12 = c3*g26_12 + g26_22*s3
+            g46_11 = g26_31*us4 + g36_11*uc4
+            g46_12 = g26_32*us4 + g36_12*uc4
+            g56_11 = c5*g46_11 - g36_31*s5
+            g56_12 = c5*g46_12 - g36_32*s5
+
+            dt6 = 1
+            use = ~chosen6
+            c6 = numpy.where(use, g56_11, c6)
+            s6 = numpy.where(use, -g56_12, s6)
+            dk6 = numpy.where(use, dt6, dk6)
+            chosen6 = chosen6 | use
+        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6))
+        th6 = numpy.arctan2(s6, c6)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -445,8 +445,12 @@ static int closed_form(const float pose[16], const float *current,
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const float t4_0_0 = wx*wx;
     const float t4_0_1 = wy*wy;
-    const float t4_0_4 = 519.615242f*wz;
-    const float t4_0_5 = wz*wz;
+    const float kc1_0 = -692.820323f*wx + 14000.0f*wy;
+    const float kc1_1 = -146185.088f*wx - 1000.0f*wy;
+    const float kc1_2 = 0.866025404f*wx*wx*wx + 0.866025404f*wx*wy*wy + 0.866025404f*wx*wz*wz - 519.615242f*wx*wz - 67463.379f*wx + 50.0f*wy*wz - 19000.0f*wy;
+    const float ks1_3 = -14000.0f*wx - 692.820323f*wy;
+    const float ks1_4 = 1000.0f*wx - 146185.088f*wy;
+    const float ks1_5 = 0.866025404f*wx*wx*wy - 50.0f*wx*wz + 19000.0f*wx + 0.866025404f*wy*wy*wy + 0.866025404f*wy*wz*wz - 519.615242f*wy*wz - 67463.379f*wy;
     const float dq1 = 86.6025404f*t4_0_0 + 86.6025404f*t4_0_1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
@@ -484,13 +488,11 @@ static int closed_form(const float pose[16], const float *current,
         float th1 = 0.0f, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
         int free1 = 1;
         {
-            const float t4_0_2 = 692.820323f*c3;
-            const float t4_0_3 = 146185.088f*s3;
 
             dt1 = dq1;
             if (fabsf(dt1) > 1e-13f) {
-                c1 = (14000.0f*c3*wy - 1000.0f*s3*wy + 0.866025404f*t4_0_1*wx - t4_0_2*wx - t4_0_3*wx - t4_0_4*wx + 0.866025404f*t4_0_5*wx + 0.866025404f*wx*wx*wx - 67463.379f*wx + 50.0f*wy*wz - 19000.0f*wy) / dt1;
-                s1 = (-14000.0f*c3*wx + 1000.0f*s3*wx + 0.866025404f*t4_0_0*wy - t4_0_2*wy - t4_0_3*wy - t4_0_4*wy + 0.866025404f*t4_0_5*wy - 50.0f*wx*wz + 19000.0f*wx + 0.866025404f*wy*wy*wy - 67463.379f*wy) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
                 wk1 = 0.1f;
             }
@@ -677,13 +679,9 @@ static int closed_form(const float pose[16], const float *current,
         const float g26_21 = -g16_11*t8_1 + g16_21*t8_0 + 0.5f*g16_31;
         const float g26_22 = -g16_12*t8_1 + g16_22*t8_0 + 0.5f*g16_32;
         const float g26_23 = -g16_13*t8_1 + g16_23*t8_0 + 0.5f*g16_33;
-        const float g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.866025404f*g16_31;
-        const float g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.866025404f*g16_32;
         const float g26_33 = g16_13*t8_3 - g16_23*t8_2 + 0.866025404f*g16_33;
 
         /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A3^-1 times the previous one) */
-        const float g36_11 = c3*g26_11 + g26_21*s3;
-        const float g36_12 = c3*g26_12 + g26_22*s3;
         const float g36_13 = c3*g26_13 + g26_23*s3;
         const float g36_31 = -c3*g26_21 + g26_11*s3;
         const float g36_32 = -c3*g26_22 + g26_12*s3;
@@ -704,20 +702,21 @@ static int closed_form(const float pose[16], const float *current,
         c5 = cn5;
         s5 = sn5;
 
-        /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         float th4 = 0.0f, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
         int free4 = 1;
         {
 
             dt4 = -s5*s5;
             if (fabsf(dt4) > 1e-20f) {
-                c4 = (-g36_13*s5) / dt4;
-                s4 = (-g26_33*s5) / dt4;
+                c4 = g36_13*s5;
+                s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08f;
             }
         }
-        if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+        if (!free4 && fabsf(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.005f * (dt4 * dt4)) {
             if (fabsf(dt4) > wk4) {
                 continue;
             }
@@ -727,40 +726,43 @@ static int closed_form(const float pose[16], const float *current,
             th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
             c4 = cosf(th4);
             s4 = sinf(th4);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq4 = c4 * c4 + s4 * s4;
-                if (fabsf(hq4 - 1.0f) > 1e-06f) {
-                    const float hn4 = 1.0f / sqrtf(hq4);
-                    c4 = c4 * hn4;
-                    s4 = s4 * hn4;
-                }
-            }
         }
 
-        /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-        const float g46_11 = c4*g36_11 + g26_31*s4;
-        const float g46_12 = c4*g36_12 + g26_32*s4;
-
-        /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-        const float g56_11 = c5*g46_11 - g36_31*s5;
-        const float g56_12 = c5*g46_12 - g36_32*s5;
-
-        /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
         int free6 = 1;
         {
 
+            dt6 = free4 ? 0.0f : -s5*s5;
+            if (fabsf(dt6) > 0.001f) {
+                c6 = -g36_31*s5;
+                s6 = g36_32*s5;
+                free6 = 0;
+                wk6 = 1e-08f;
+            }
+        }
+        if (free6) {
+            const float un4 = 1.0f/sqrtf(c4*c4 + s4*s4);
+            const float uc4 = c4*un4;
+            const float us4 = s4*un4;
+            const float g26_31 = g16_11*t8_3 - g16_21*t8_2 + 0.866025404f*g16_31;
+            const float g26_32 = g16_12*t8_3 - g16_22*t8_2 + 0.866025404f*g16_32;
+            const float g36_11 = c3*g26_11 + g26_21*s3;
+            const float g36_12 = c3*g26_12 + g26_22*s3;
+            const float g46_11 = g26_31*us4 + g36_11*uc4;
+            const float g46_12 = g26_32*us4 + g36_12*uc4;
+            const float g56_11 = c5*g46_11 - g36_31*s5;
+            const float g56_12 = c5*g46_12 - g36_32*s5;
+
             dt6 = 1.0f;
-            c6 = (g56_11) / dt6;
-            s6 = (-g56_12) / dt6;
+            c6 = g56_11;
+            s6 = -g56_12;
             free6 = 0;
         }
         (void)free6;
         (void)wk6;
-        if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+        if (fabsf(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.005f * (dt6 * dt6)) {
             continue;
         }
 

@@ -284,7 +284,10 @@ static int closed_form(const double pose[16], double given, const double *curren
         s4 = 1.0489576038357677e-11*sn4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-        const double t9_0_0 = 372.0*c4;
+        const double kc2_0 = 372.0*c3*s4;
+        const double kc2_1 = -372.0*c4*v1y - 415.0*v1y;
+        const double ks2_2 = 372.0*c4 + 415.0;
+        const double ks2_3 = 372.0*c3*s4*v1y;
 
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -333,8 +336,8 @@ static int closed_form(const double pose[16], double given, const double *curren
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2;
-                    s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -447,13 +450,9 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double g37_11 = c3*g27_11 + g17_31*s3;
             const double g37_12 = c3*g27_12 + g17_32*s3;
             const double g37_13 = c3*g27_13 + g17_33*s3;
-            const double g37_31 = c3*g17_31 - g27_11*s3;
-            const double g37_32 = c3*g17_32 - g27_12*s3;
             const double g37_33 = c3*g17_33 - g27_13*s3;
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g47_11 = c4*g37_11 - g27_31*s4;
-            const double g47_12 = c4*g37_12 - g27_32*s4;
             const double g47_13 = c4*g37_13 - g27_33*s4;
             const double g47_31 = c4*g27_31 + g37_11*s4;
             const double g47_32 = c4*g27_32 + g37_12*s4;
@@ -474,20 +473,21 @@ static int closed_form(const double pose[16], double given, const double *curren
             c6 = cn6;
             s6 = sn6;
 
-            /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
             int free5 = 1;
             {
 
                 dt5 = -s6*s6;
                 if (fabs(dt5) > 9.9999999999999995e-21) {
-                    c5 = (-g47_13*s6) / dt5;
-                    s5 = (-g37_33*s6) / dt5;
+                    c5 = g47_13*s6;
+                    s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
-            if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
+            if (!free5 && fabs(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.0001 * (dt5 * dt5)) {
                 if (fabs(dt5) > wk5) {
                     continue;
                 }
@@ -497,40 +497,43 @@ static int closed_form(const double pose[16], double given, const double *curren
                 th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
                 s5 = sin(th5);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq5 = c5 * c5 + s5 * s5;
-                    if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn5 = 1.0 / sqrt(hq5);
-                        c5 = c5 * hn5;
-                        s5 = s5 * hn5;
-                    }
-                }
             }
 
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g57_11 = c5*g47_11 + g37_31*s5;
-            const double g57_12 = c5*g47_12 + g37_32*s5;
-
-            /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
-            const double g67_11 = c6*g57_11 - g47_31*s6;
-            const double g67_12 = c6*g57_12 - g47_32*s6;
-
-            /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th7 = 0.0, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
             int free7 = 1;
             {
 
+                dt7 = free5 ? 0.0 : -s6*s6;
+                if (fabs(dt7) > 1e-08) {
+                    c7 = -g47_31*s6;
+                    s7 = g47_32*s6;
+                    free7 = 0;
+                    wk7 = 1e-08;
+                }
+            }
+            if (free7) {
+                const double un5 = 1.0/sqrt(c5*c5 + s5*s5);
+                const double uc5 = c5*un5;
+                const double us5 = s5*un5;
+                const double g37_31 = c3*g17_31 - g27_11*s3;
+                const double g37_32 = c3*g17_32 - g27_12*s3;
+                const double g47_11 = c4*g37_11 - g27_31*s4;
+                const double g47_12 = c4*g37_12 - g27_32*s4;
+                const double g57_11 = g37_31*us5 + g47_11*uc5;
+                const double g57_12 = g37_32*us5 + g47_12*uc5;
+                const double g67_11 = c6*g57_11 - g47_31*s6;
+                const double g67_12 = c6*g57_12 - g47_32*s6;
+
                 dt7 = 1.0;
-                c7 = (g67_11) / dt7;
-                s7 = (-g67_12) / dt7;
+                c7 = g67_11;
+                s7 = -g67_12;
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabs(c7 * c7 + s7 * s7 - 1.0) > 0.0001) {
+            if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
                 continue;
             }
 
@@ -712,7 +715,10 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
         s4 = 1.0489576038357677e-11*sn4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-        const double t9_0_0 = 372.0*c4;
+        const double kc2_0 = 372.0*c3*s4;
+        const double kc2_1 = -372.0*c4*v1y - 415.0*v1y;
+        const double ks2_2 = 372.0*c4 + 415.0;
+        const double ks2_3 = 372.0*c3*s4*v1y;
 
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -761,8 +767,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2;
-                    s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -875,13 +881,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double g37_11 = c3*g27_11 + g17_31*s3;
             const double g37_12 = c3*g27_12 + g17_32*s3;
             const double g37_13 = c3*g27_13 + g17_33*s3;
-            const double g37_31 = c3*g17_31 - g27_11*s3;
-            const double g37_32 = c3*g17_32 - g27_12*s3;
             const double g37_33 = c3*g17_33 - g27_13*s3;
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g47_11 = c4*g37_11 - g27_31*s4;
-            const double g47_12 = c4*g37_12 - g27_32*s4;
             const double g47_13 = c4*g37_13 - g27_33*s4;
             const double g47_31 = c4*g27_31 + g37_11*s4;
             const double g47_32 = c4*g27_32 + g37_12*s4;
@@ -902,20 +904,21 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             c6 = cn6;
             s6 = sn6;
 
-            /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
             int free5 = 1;
             {
 
                 dt5 = -s6*s6;
                 if (fabs(dt5) > 9.9999999999999995e-21) {
-                    c5 = (-g47_13*s6) / dt5;
-                    s5 = (-g37_33*s6) / dt5;
+                    c5 = g47_13*s6;
+                    s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
-            if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
+            if (!free5 && fabs(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.0001 * (dt5 * dt5)) {
                 if (fabs(dt5) > wk5) {
                     continue;
                 }
@@ -925,40 +928,43 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
                 s5 = sin(th5);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq5 = c5 * c5 + s5 * s5;
-                    if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn5 = 1.0 / sqrt(hq5);
-                        c5 = c5 * hn5;
-                        s5 = s5 * hn5;
-                    }
-                }
             }
 
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g57_11 = c5*g47_11 + g37_31*s5;
-            const double g57_12 = c5*g47_12 + g37_32*s5;
-
-            /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
-            const double g67_11 = c6*g57_11 - g47_31*s6;
-            const double g67_12 = c6*g57_12 - g47_32*s6;
-
-            /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th7 = 0.0, c7 = 0.0, s7 = 0.0, dt7, wk7 = 0.0;
             int free7 = 1;
             {
 
+                dt7 = free5 ? 0.0 : -s6*s6;
+                if (fabs(dt7) > 1e-08) {
+                    c7 = -g47_31*s6;
+                    s7 = g47_32*s6;
+                    free7 = 0;
+                    wk7 = 1e-08;
+                }
+            }
+            if (free7) {
+                const double un5 = 1.0/sqrt(c5*c5 + s5*s5);
+                const double uc5 = c5*un5;
+                const double us5 = s5*un5;
+                const double g37_31 = c3*g17_31 - g27_11*s3;
+                const double g37_32 = c3*g17_32 - g27_12*s3;
+                const double g47_11 = c4*g37_11 - g27_31*s4;
+                const double g47_12 = c4*g37_12 - g27_32*s4;
+                const double g57_11 = g37_31*us5 + g47_11*uc5;
+                const double g57_12 = g37_32*us5 + g47_12*uc5;
+                const double g67_11 = c6*g57_11 - g47_31*s6;
+                const double g67_12 = c6*g57_12 - g47_32*s6;
+
                 dt7 = 1.0;
-                c7 = (g67_11) / dt7;
-                s7 = (-g67_12) / dt7;
+                c7 = g67_11;
+                s7 = -g67_12;
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabs(c7 * c7 + s7 * s7 - 1.0) > 0.0001) {
+            if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
                 continue;
             }
 

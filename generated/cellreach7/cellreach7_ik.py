@@ -504,7 +504,10 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t9_0_0 = 372.0*c4
+        kc2_0 = 372.0*c3*s4
+        kc2_1 = -372.0*c4*v1y - 415.0*v1y
+        ks2_2 = 372.0*c4 + 415.0
+        ks2_3 = 372.0*c3*s4*v1y
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -544,8 +547,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             dt2 = v1x*v1x + v1y*v1y
             if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
-                s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
+                c2 = (kc2_0*v1x + kc2_1) / dt2
+                s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -678,13 +681,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             g37_11 = c3*g27_11 + g17_31*s3
             g37_12 = c3*g27_12 + g17_32*s3
             g37_13 = c3*g27_13 + g17_33*s3
-            g37_31 = c3*g17_31 - g27_11*s3
-            g37_32 = c3*g17_32 - g27_12*s3
             g37_33 = c3*g17_33 - g27_13*s3
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g47_11 = c4*g37_11 - g27_31*s4
-            g47_12 = c4*g37_12 - g27_32*s4
             g47_13 = c4*g37_13 - g27_33*s4
             g47_31 = c4*g27_31 + g37_11*s4
             g47_32 = c4*g27_32 + g37_12*s4
@@ -702,21 +701,17 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             s6 = root6
             th6 = atan2(s6, c6)
 
-            # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt5 = -s6*s6
             if dt5 > 1e-20 or dt5 < -1e-20:
-                c5 = (-g47_13*s6) / dt5
-                s5 = (-g37_33*s6) / dt5
+                c5 = g47_13*s6
+                s5 = g37_33*s6
                 hq5 = c5 * c5 + s5 * s5
-                if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq5 < 0.9999 * (dt5 * dt5) or hq5 > 1.0001 * (dt5 * dt5)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free5 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn5 = 1.0 / sqrt(hq5)
-                        c5 = c5 * hn5
-                        s5 = s5 * hn5
-                    th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
+                    th5 = atan2(s5, c5)   # as the C solver computes it
                 elif dt5 > 1e-08 or dt5 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -731,23 +726,34 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 c5 = cos(th5)
                 s5 = sin(th5)
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g57_11 = c5*g47_11 + g37_31*s5
-            g57_12 = c5*g47_12 + g37_32*s5
+            # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-            g67_11 = c6*g57_11 - g47_31*s6
-            g67_12 = c6*g57_12 - g47_32*s6
+            dt7 = 0.0 if free5 else -s6*s6
+            if dt7 > 1e-08 or dt7 < -1e-08:
+                c7 = -g47_31*s6
+                s7 = g47_32*s6
+            else:
+                un5 = 1.0/sqrt(c5*c5 + s5*s5)
+                uc5 = c5*un5
+                us5 = s5*un5
+                g37_31 = c3*g17_31 - g27_11*s3
+                g37_32 = c3*g17_32 - g27_12*s3
+                g47_11 = c4*g37_11 - g27_31*s4
+                g47_12 = c4*g37_12 - g27_32*s4
+                g57_11 = g37_31*us5 + g47_11*uc5
+                g57_12 = g37_32*us5 + g47_12*uc5
+                g67_11 = c6*g57_11 - g47_31*s6
+                g67_12 = c6*g57_12 - g47_32*s6
 
-            # th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c7 = g67_11
-            s7 = -g67_12
+                dt7 = 1.0
+                c7 = g67_11
+                s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if hq7 < 0.9999 or hq7 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq7 < 0.9999 * (dt7 * dt7) or hq7 > 1.0001 * (dt7 * dt7):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
+            th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
 
@@ -848,7 +854,10 @@ def inverse_joints(pose, given, current=None):
         s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t9_0_0 = 372.0*c4
+        kc2_0 = 372.0*c3*s4
+        kc2_1 = -372.0*c4*v1y - 415.0*v1y
+        ks2_2 = 372.0*c4 + 415.0
+        ks2_3 = 372.0*c3*s4*v1y
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -888,8 +897,8 @@ def inverse_joints(pose, given, current=None):
 
             dt2 = v1x*v1x + v1y*v1y
             if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (372.0*c3*s4*v1x - t9_0_0*v1y - 415.0*v1y) / dt2
-                s2 = (372.0*c3*s4*v1y + t9_0_0*v1x + 415.0*v1x) / dt2
+                c2 = (kc2_0*v1x + kc2_1) / dt2
+                s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -1022,13 +1031,9 @@ def inverse_joints(pose, given, current=None):
             g37_11 = c3*g27_11 + g17_31*s3
             g37_12 = c3*g27_12 + g17_32*s3
             g37_13 = c3*g27_13 + g17_33*s3
-            g37_31 = c3*g17_31 - g27_11*s3
-            g37_32 = c3*g17_32 - g27_12*s3
             g37_33 = c3*g17_33 - g27_13*s3
 
             # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g47_11 = c4*g37_11 - g27_31*s4
-            g47_12 = c4*g37_12 - g27_32*s4
             g47_13 = c4*g37_13 - g27_33*s4
             g47_31 = c4*g27_31 + g37_11*s4
             g47_32 = c4*g27_32 + g37_12*s4
@@ -1046,21 +1051,17 @@ def inverse_joints(pose, given, current=None):
             s6 = root6
             th6 = atan2(s6, c6)
 
-            # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt5 = -s6*s6
             if dt5 > 1e-20 or dt5 < -1e-20:
-                c5 = (-g47_13*s6) / dt5
-                s5 = (-g37_33*s6) / dt5
+                c5 = g47_13*s6
+                s5 = g37_33*s6
                 hq5 = c5 * c5 + s5 * s5
-                if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq5 < 0.9999 * (dt5 * dt5) or hq5 > 1.0001 * (dt5 * dt5)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free5 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn5 = 1.0 / sqrt(hq5)
-                        c5 = c5 * hn5
-                        s5 = s5 * hn5
-                    th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
+                    th5 = atan2(s5, c5)   # as the C solver computes it
                 elif dt5 > 1e-08 or dt5 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -1075,23 +1076,34 @@ def inverse_joints(pose, given, current=None):
                 c5 = cos(th5)
                 s5 = sin(th5)
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g57_11 = c5*g47_11 + g37_31*s5
-            g57_12 = c5*g47_12 + g37_32*s5
+            # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-            g67_11 = c6*g57_11 - g47_31*s6
-            g67_12 = c6*g57_12 - g47_32*s6
+            dt7 = 0.0 if free5 else -s6*s6
+            if dt7 > 1e-08 or dt7 < -1e-08:
+                c7 = -g47_31*s6
+                s7 = g47_32*s6
+            else:
+                un5 = 1.0/sqrt(c5*c5 + s5*s5)
+                uc5 = c5*un5
+                us5 = s5*un5
+                g37_31 = c3*g17_31 - g27_11*s3
+                g37_32 = c3*g17_32 - g27_12*s3
+                g47_11 = c4*g37_11 - g27_31*s4
+                g47_12 = c4*g37_12 - g27_32*s4
+                g57_11 = g37_31*us5 + g47_11*uc5
+                g57_12 = g37_32*us5 + g47_12*uc5
+                g67_11 = c6*g57_11 - g47_31*s6
+                g67_12 = c6*g57_12 - g47_32*s6
 
-            # th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c7 = g67_11
-            s7 = -g67_12
+                dt7 = 1.0
+                c7 = g67_11
+                s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if hq7 < 0.9999 or hq7 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq7 < 0.9999 * (dt7 * dt7) or hq7 > 1.0001 * (dt7 * dt7):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th7 = atan2(s7, c7)   # after the unit scaling, as the C solver computes it
+            th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)

@@ -175,7 +175,10 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         cond4 = root4 * 3.2387614976033164e-06
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t9_0_0 = 372*c4
+        kc2_0 = 372*c3*s4
+        kc2_1 = -372*c4*v1y - 415*v1y
+        ks2_2 = 372*c4 + 415
+        ks2_3 = 372*c3*s4*v1y
 
         # th1: z of A1^-1 w = A2 A3 A4 c4
         ec1 = 372*s3*s4
@@ -215,8 +218,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         dt2 = v1x*v1x + v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (372*c3*s4*v1x - t9_0_0*v1y - 415*v1y) / dt2
-        s2 = (372*c3*s4*v1y + t9_0_0*v1x + 415*v1x) / dt2
+        c2 = (kc2_0*v1x + kc2_1) / dt2
+        s2 = (ks2_2*v1x + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use
@@ -320,13 +323,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         g37_11 = c3*g27_11 + g17_31*s3
         g37_12 = c3*g27_12 + g17_32*s3
         g37_13 = c3*g27_13 + g17_33*s3
-        g37_31 = c3*g17_31 - g27_11*s3
-        g37_32 = c3*g17_32 - g27_12*s3
         g37_33 = c3*g17_33 - g27_13*s3
 
         # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-        g47_11 = c4*g37_11 - g27_31*s4
-        g47_12 = c4*g37_12 - g27_32*s4
         g47_13 = c4*g37_13 - g27_33*s4
         g47_31 = c4*g27_31 + g37_11*s4
         g47_32 = c4*g27_32 + g37_12*s4
@@ -349,46 +348,51 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         dt5 = -s6*s6
         use = ~chosen5 & (numpy.abs(dt5) > 1e-20)
-        c5 = (-g47_13*s6) / dt5
-        s5 = (-g37_33*s6) / dt5
+        c5 = g47_13*s6
+        s5 = g37_33*s6
         wk5 = numpy.where(use, 1e-08, 0.0)
         dk5 = dt5
         chosen5 = chosen5 | use
-        bad5 = chosen5 & (numpy.abs(c5 * c5 + s5 * s5 - 1.0) > 1e-4)
+        bad5 = chosen5 & (numpy.abs(c5 * c5 + s5 * s5 - dk5 * dk5) > 1e-4 * (dk5 * dk5))
         weak5 = bad5 & (numpy.abs(dk5) <= wk5)  # ill-conditioned near a singular pose: free
         free5 = ~chosen5 | weak5
         valid = valid & ~(bad5 & ~weak5)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq5 = c5 * c5 + s5 * s5
-        off5 = numpy.abs(hq5 - 1.0) > 1e-15
-        if off5.any():
-            hn5 = numpy.where(off5, 1.0 / numpy.sqrt(numpy.where(off5, hq5, 1.0)), 1.0)
-            c5 = c5 * hn5
-            s5 = s5 * hn5
-        th5 = numpy.arctan2(s5, c5)   # after the unit scaling, as the per-pose solvers
+        th5 = numpy.arctan2(s5, c5)   # as the per-pose solvers
         if free5.any():
             th5 = numpy.where(free5, _one_turn((hint[4])), th5)
             c5 = numpy.where(free5, numpy.cos(_one_turn((hint[4]))), c5)
             s5 = numpy.where(free5, numpy.sin(_one_turn((hint[4]))), s5)
 
-        # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-        g57_11 = c5*g47_11 + g37_31*s5
-        g57_12 = c5*g47_12 + g37_32*s5
-
-        # A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one)
-        g67_11 = c6*g57_11 - g47_31*s6
-        g67_12 = c6*g57_12 - g47_32*s6
-
         # th7 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen7 = numpy.zeros((), dtype=bool)
 
-        dt7 = 1
-        use = ~chosen7
-        c7 = (g67_11) / dt7
-        s7 = (-g67_12) / dt7
+        dt7 = numpy.where(free5, 0.0, -s6*s6)
+        use = ~chosen7 & (numpy.abs(dt7) > 1e-08)
+        c7 = -g47_31*s6
+        s7 = g47_32*s6
+        dk7 = dt7
         chosen7 = chosen7 | use
-        valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - 1.0) > 1e-4)
-        th7 = numpy.arctan2(s7, c7)   # after the unit scaling, as the per-pose solvers
+        if not chosen7.all():
+            un5 = 1.0/numpy.sqrt(c5*c5 + s5*s5)
+            uc5 = c5*un5
+            us5 = s5*un5
+            g37_31 = c3*g17_31 - g27_11*s3
+            g37_32 = c3*g17_32 - g27_12*s3
+            g47_11 = c4*g37_11 - g27_31*s4
+            g47_12 = c4*g37_12 - g27_32*s4
+            g57_11 = g37_31*us5 + g47_11*uc5
+            g57_12 = g37_32*us5 + g47_12*uc5
+            g67_11 = c6*g57_11 - g47_31*s6
+            g67_12 = c6*g57_12 - g47_32*s6
+
+            dt7 = 1
+            use = ~chosen7
+            c7 = numpy.where(use, g67_11, c7)
+            s7 = numpy.where(use, -g67_12, s7)
+            dk7 = numpy.where(use, dt7, dk7)
+            chosen7 = chosen7 | use
+        valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - dk7 * dk7) > 1e-4 * (dk7 * dk7))
+        th7 = numpy.arctan2(s7, c7)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

@@ -268,7 +268,10 @@ static int closed_form(const float pose[16], float given, const float *current,
         s4 = 1.0489576e-11f*sn4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-        const float t9_0_0 = 372.0f*c4;
+        const float kc2_0 = 372.0f*c3*s4;
+        const float kc2_1 = -372.0f*c4*v1y - 415.0f*v1y;
+        const float ks2_2 = 372.0f*c4 + 415.0f;
+        const float ks2_3 = 372.0f*c3*s4*v1y;
 
         /* th1: z of A1^-1 w = A2 A3 A4 c4
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -317,8 +320,8 @@ static int closed_form(const float pose[16], float given, const float *current,
 
                 dt2 = v1x*v1x + v1y*v1y;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (372.0f*c3*s4*v1x - t9_0_0*v1y - 415.0f*v1y) / dt2;
-                    s2 = (372.0f*c3*s4*v1y + t9_0_0*v1x + 415.0f*v1x) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.001f;
                 }
@@ -431,13 +434,9 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float g37_11 = c3*g27_11 + g17_31*s3;
             const float g37_12 = c3*g27_12 + g17_32*s3;
             const float g37_13 = c3*g27_13 + g17_33*s3;
-            const float g37_31 = c3*g17_31 - g27_11*s3;
-            const float g37_32 = c3*g17_32 - g27_12*s3;
             const float g37_33 = c3*g17_33 - g27_13*s3;
 
             /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g47_11 = c4*g37_11 - g27_31*s4;
-            const float g47_12 = c4*g37_12 - g27_32*s4;
             const float g47_13 = c4*g37_13 - g27_33*s4;
             const float g47_31 = c4*g27_31 + g37_11*s4;
             const float g47_32 = c4*g27_32 + g37_12*s4;
@@ -458,20 +457,21 @@ static int closed_form(const float pose[16], float given, const float *current,
             c6 = cn6;
             s6 = sn6;
 
-            /* th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             float th5 = 0.0f, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
             int free5 = 1;
             {
 
                 dt5 = -s6*s6;
                 if (fabsf(dt5) > 1e-20f) {
-                    c5 = (-g47_13*s6) / dt5;
-                    s5 = (-g37_33*s6) / dt5;
+                    c5 = g47_13*s6;
+                    s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08f;
                 }
             }
-            if (!free5 && fabsf(c5 * c5 + s5 * s5 - 1.0f) > 0.005f) {
+            if (!free5 && fabsf(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.005f * (dt5 * dt5)) {
                 if (fabsf(dt5) > wk5) {
                     continue;
                 }
@@ -481,40 +481,43 @@ static int closed_form(const float pose[16], float given, const float *current,
                 th5 = one_turn((0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f)));
                 c5 = cosf(th5);
                 s5 = sinf(th5);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq5 = c5 * c5 + s5 * s5;
-                    if (fabsf(hq5 - 1.0f) > 1e-06f) {
-                        const float hn5 = 1.0f / sqrtf(hq5);
-                        c5 = c5 * hn5;
-                        s5 = s5 * hn5;
-                    }
-                }
             }
 
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g57_11 = c5*g47_11 + g37_31*s5;
-            const float g57_12 = c5*g47_12 + g37_32*s5;
-
-            /* A6^-1 A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5, 6 moved over (A6^-1 times the previous one) */
-            const float g67_11 = c6*g57_11 - g47_31*s6;
-            const float g67_12 = c6*g57_12 - g47_32*s6;
-
-            /* th7 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             float th7 = 0.0f, c7 = 0.0f, s7 = 0.0f, dt7, wk7 = 0.0f;
             int free7 = 1;
             {
 
+                dt7 = free5 ? 0.0f : -s6*s6;
+                if (fabsf(dt7) > 0.001f) {
+                    c7 = -g47_31*s6;
+                    s7 = g47_32*s6;
+                    free7 = 0;
+                    wk7 = 1e-08f;
+                }
+            }
+            if (free7) {
+                const float un5 = 1.0f/sqrtf(c5*c5 + s5*s5);
+                const float uc5 = c5*un5;
+                const float us5 = s5*un5;
+                const float g37_31 = c3*g17_31 - g27_11*s3;
+                const float g37_32 = c3*g17_32 - g27_12*s3;
+                const float g47_11 = c4*g37_11 - g27_31*s4;
+                const float g47_12 = c4*g37_12 - g27_32*s4;
+                const float g57_11 = g37_31*us5 + g47_11*uc5;
+                const float g57_12 = g37_32*us5 + g47_12*uc5;
+                const float g67_11 = c6*g57_11 - g47_31*s6;
+                const float g67_12 = c6*g57_12 - g47_32*s6;
+
                 dt7 = 1.0f;
-                c7 = (g67_11) / dt7;
-                s7 = (-g67_12) / dt7;
+                c7 = g67_11;
+                s7 = -g67_12;
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabsf(c7 * c7 + s7 * s7 - 1.0f) > 0.005f) {
+            if (fabsf(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.005f * (dt7 * dt7)) {
                 continue;
             }
 

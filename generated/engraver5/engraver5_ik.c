@@ -246,8 +246,10 @@ static int closed_form(const double pose[16], const double *current,
         s3 = 1.7123287671232877e-10*sn3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-        const double t6_0_0 = 20.0*c3;
-        const double t6_0_2 = s3*v1y;
+        const double kc2_0 = -20.0*c3 - 190.0*s3 - 200.0;
+        const double kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y;
+        const double ks2_2 = -190.0*c3 + 20.0*s3;
+        const double ks2_3 = -20.0*c3*v1y - 190.0*s3*v1y - 200.0*v1y;
 
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -296,12 +298,11 @@ static int closed_form(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t6_0_1 = 190.0*v1x;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2;
-                    s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }

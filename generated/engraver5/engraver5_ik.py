@@ -430,8 +430,10 @@ def _closed_form(pose, current, check_finite=True):
         s3 = 1.7123287671232877e-10*(-76000.0*ec3 - 8000.0*root3*sg3)
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t6_0_0 = 20.0*c3
-        t6_0_2 = s3*v1y
+        kc2_0 = -20.0*c3 - 190.0*s3 - 200.0
+        kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y
+        ks2_2 = -190.0*c3 + 20.0*s3
+        ks2_3 = -20.0*c3*v1y - 190.0*s3*v1y - 200.0*v1y
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -465,12 +467,11 @@ def _closed_form(pose, current, check_finite=True):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t6_0_1 = 190.0*v1x
 
             dt2 = -v1x*v1x - v1y*v1y
             if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (190.0*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0*t6_0_2 - 200.0*v1x) / dt2
-                s2 = (-c3*t6_0_1 + 20.0*s3*v1x - t6_0_0*v1y - 190.0*t6_0_2 - 200.0*v1y) / dt2
+                c2 = (kc2_0*v1x + kc2_1) / dt2
+                s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False

@@ -178,8 +178,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cond3 = root3 * 1.3085598064755344e-05
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
-        t6_0_0 = 20*c3
-        t6_0_2 = s3*v1y
+        kc2_0 = -20*c3 - 190*s3 - 200
+        kc2_1 = 190*c3*v1y - 20*s3*v1y
+        ks2_2 = -190*c3 + 20*s3
+        ks2_3 = -20*c3*v1y - 190*s3*v1y - 200*v1y
 
         # th1: z of A1^-1 w = A2 A3 c3
 
@@ -208,12 +210,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t6_0_1 = 190*v1x
 
         dt2 = -v1x*v1x - v1y*v1y
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (190*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20*t6_0_2 - 200*v1x) / dt2
-        s2 = (-c3*t6_0_1 + 20*s3*v1x - t6_0_0*v1y - 190*t6_0_2 - 200*v1y) / dt2
+        c2 = (kc2_0*v1x + kc2_1) / dt2
+        s2 = (ks2_2*v1x + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use

@@ -230,8 +230,10 @@ static int closed_form(const float pose[16], const float *current,
         s3 = 1.71232877e-10f*sn3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-        const float t6_0_0 = 20.0f*c3;
-        const float t6_0_2 = s3*v1y;
+        const float kc2_0 = -20.0f*c3 - 190.0f*s3 - 200.0f;
+        const float kc2_1 = 190.0f*c3*v1y - 20.0f*s3*v1y;
+        const float ks2_2 = -190.0f*c3 + 20.0f*s3;
+        const float ks2_3 = -20.0f*c3*v1y - 190.0f*s3*v1y - 200.0f*v1y;
 
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -280,12 +282,11 @@ static int closed_form(const float pose[16], const float *current,
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
-                const float t6_0_1 = 190.0f*v1x;
 
                 dt2 = -v1x*v1x - v1y*v1y;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (190.0f*c3*v1y - s3*t6_0_1 - t6_0_0*v1x - 20.0f*t6_0_2 - 200.0f*v1x) / dt2;
-                    s2 = (-c3*t6_0_1 + 20.0f*s3*v1x - t6_0_0*v1y - 190.0f*t6_0_2 - 200.0f*v1y) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.001f;
                 }

@@ -457,8 +457,13 @@ static int closed_form(const double pose[16], const double *current,
     const double by = -px*r12 - py*r22 - pz*r32 + 0.29999999999999999*r32;
     const double bz = -px*r13 - py*r23 - pz*r33 + 0.29999999999999999*r33;
 
-    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double e1z = bz + 0.10000000000000001;
+    const double kc4_0 = 0.021997045256124743 - 0.21650635094610965*e1z*e1z;
+    const double kc5_0 = 0.125*e1z;
+    const double kc5_1 = 0.043301270189221933*e1z + 0.01;
+    const double ks5_2 = 0.25*e1z;
+    const double ks5_3 = 0.20000000000000001*e1z - 0.0021650635094610966;
 
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -512,7 +517,7 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt4 = -0.021650635094610966;
-            c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4;
+            c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y + kc4_0) / dt4;
             s4 = (-0.10000000000000001*e1y - 0.0054999999999999997) / dt4;
             free4 = 0;
         }
@@ -536,12 +541,11 @@ static int closed_form(const double pose[16], const double *current,
         double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
         int free5 = 1;
         {
-            const double t5_0_0 = 0.125*s4;
 
             dt5 = -e1x*e1x - 0.10000000000000001*e1x - e1z*e1z - 0.0025000000000000001;
             if (fabs(dt5) > 9.9999999999999991e-22) {
-                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + e1z*t5_0_0 + 0.043301270189221933*e1z + 0.01) / dt5;
-                s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.043301270189221933*e1x + 0.20000000000000001*e1z - 0.0062500000000000003*s4 - 0.0021650635094610966) / dt5;
+                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + kc5_0*s4 + kc5_1) / dt5;
+                s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.043301270189221933*e1x + ks5_3 - 0.0062500000000000003*s4) / dt5;
                 free5 = 0;
                 wk5 = 9.9999999999999986e-10;
             }
@@ -592,10 +596,8 @@ static int closed_form(const double pose[16], const double *current,
         const double t8_3 = 0.8660254037844386*g05_22;
         const double t8_4 = 0.5*g04_32;
         const double t8_5 = 0.8660254037844386*g05_32;
-        const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
         const double g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
         const double g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12;
-        const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
         const double g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
         const double g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22;
         const double g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
@@ -618,20 +620,21 @@ static int closed_form(const double pose[16], const double *current,
         c2 = cn2;
         s2 = sn2;
 
-        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
 
             dt1 = s2*s2;
             if (fabs(dt1) > 9.9999999999999995e-21) {
-                c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1;
-                s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1;
+                c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13);
+                s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23);
                 free1 = 0;
                 wk1 = 1e-08;
             }
         }
-        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
+        if (!free1 && fabs(c1 * c1 + s1 * s1 - dt1 * dt1) > 0.0001 * (dt1 * dt1)) {
             if (fabs(dt1) > wk1) {
                 continue;
             }
@@ -641,40 +644,41 @@ static int closed_form(const double pose[16], const double *current,
             th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn1 = 1.0 / sqrt(hq1);
-                    c1 = c1 * hn1;
-                    s1 = s1 * hn1;
-                }
-            }
         }
 
-        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
-        const double g13_11 = c1*g03_11 + g03_21*s1;
-        const double g13_12 = c1*g03_12 + g03_22*s1;
-
-        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-        const double g23_11 = c2*g13_11 + g03_31*s2;
-        const double g23_12 = c2*g13_12 + g03_32*s2;
-
-        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th3 = 0.0, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
         int free3 = 1;
         {
 
+            dt3 = free1 ? 0.0 : -0.8660254037844386*s2*s2;
+            if (fabs(dt3) > 1e-08) {
+                c3 = 0.8660254037844386*g03_31*s2;
+                s3 = -s2*(-0.5*c2 + g03_32);
+                free3 = 0;
+                wk3 = 1e-08;
+            }
+        }
+        if (free3) {
+            const double un1 = 1.0/sqrt(c1*c1 + s1*s1);
+            const double uc1 = c1*un1;
+            const double us1 = s1*un1;
+            const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
+            const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
+            const double g13_11 = g03_11*uc1 + g03_21*us1;
+            const double g13_12 = g03_12*uc1 + g03_22*us1;
+            const double g23_11 = c2*g13_11 + g03_31*s2;
+            const double g23_12 = c2*g13_12 + g03_32*s2;
+
             dt3 = 0.8660254037844386;
-            c3 = (0.8660254037844386*g23_11) / dt3;
-            s3 = (-g23_12) / dt3;
+            c3 = 0.8660254037844386*g23_11;
+            s3 = -g23_12;
             free3 = 0;
         }
         (void)free3;
         (void)wk3;
-        if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
+        if (fabs(c3 * c3 + s3 * s3 - dt3 * dt3) > 0.0001 * (dt3 * dt3)) {
             continue;
         }
 
@@ -801,8 +805,13 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
     const double by = -px*r12 - py*r22 - pz*r32 + 0.29999999999999999*r32;
     const double bz = -px*r13 - py*r23 - pz*r33 + 0.29999999999999999*r33;
 
-    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double e1z = bz + 0.10000000000000001;
+    const double kc4_0 = 0.021997045256124743 - 0.21650635094610965*e1z*e1z;
+    const double kc5_0 = 0.125*e1z;
+    const double kc5_1 = 0.043301270189221933*e1z + 0.01;
+    const double ks5_2 = 0.25*e1z;
+    const double ks5_3 = 0.20000000000000001*e1z - 0.0021650635094610966;
 
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -856,7 +865,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt4 = -0.021650635094610966;
-            c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4;
+            c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y + kc4_0) / dt4;
             s4 = (-0.10000000000000001*e1y - 0.0054999999999999997) / dt4;
             free4 = 0;
         }
@@ -880,12 +889,11 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         double th5 = 0.0, c5 = 0.0, s5 = 0.0, dt5, wk5 = 0.0;
         int free5 = 1;
         {
-            const double t5_0_0 = 0.125*s4;
 
             dt5 = -e1x*e1x - 0.10000000000000001*e1x - e1z*e1z - 0.0025000000000000001;
             if (fabs(dt5) > 9.9999999999999991e-22) {
-                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + e1z*t5_0_0 + 0.043301270189221933*e1z + 0.01) / dt5;
-                s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.043301270189221933*e1x + 0.20000000000000001*e1z - 0.0062500000000000003*s4 - 0.0021650635094610966) / dt5;
+                c5 = (0.25*c4*e1x + 0.012500000000000001*c4 + 0.20000000000000001*e1x + kc5_0*s4 + kc5_1) / dt5;
+                s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.043301270189221933*e1x + ks5_3 - 0.0062500000000000003*s4) / dt5;
                 free5 = 0;
                 wk5 = 9.9999999999999986e-10;
             }
@@ -936,10 +944,8 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         const double t8_3 = 0.8660254037844386*g05_22;
         const double t8_4 = 0.5*g04_32;
         const double t8_5 = 0.8660254037844386*g05_32;
-        const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
         const double g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
         const double g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12;
-        const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
         const double g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
         const double g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22;
         const double g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
@@ -962,20 +968,21 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         c2 = cn2;
         s2 = sn2;
 
-        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th1 = 0.0, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
         int free1 = 1;
         {
 
             dt1 = s2*s2;
             if (fabs(dt1) > 9.9999999999999995e-21) {
-                c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1;
-                s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1;
+                c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13);
+                s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23);
                 free1 = 0;
                 wk1 = 1e-08;
             }
         }
-        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
+        if (!free1 && fabs(c1 * c1 + s1 * s1 - dt1 * dt1) > 0.0001 * (dt1 * dt1)) {
             if (fabs(dt1) > wk1) {
                 continue;
             }
@@ -985,40 +992,41 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
             c1 = cos(th1);
             s1 = sin(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
-                    const double hn1 = 1.0 / sqrt(hq1);
-                    c1 = c1 * hn1;
-                    s1 = s1 * hn1;
-                }
-            }
         }
 
-        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
-        const double g13_11 = c1*g03_11 + g03_21*s1;
-        const double g13_12 = c1*g03_12 + g03_22*s1;
-
-        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-        const double g23_11 = c2*g13_11 + g03_31*s2;
-        const double g23_12 = c2*g13_12 + g03_32*s2;
-
-        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         double th3 = 0.0, c3 = 0.0, s3 = 0.0, dt3, wk3 = 0.0;
         int free3 = 1;
         {
 
+            dt3 = free1 ? 0.0 : -0.8660254037844386*s2*s2;
+            if (fabs(dt3) > 1e-08) {
+                c3 = 0.8660254037844386*g03_31*s2;
+                s3 = -s2*(-0.5*c2 + g03_32);
+                free3 = 0;
+                wk3 = 1e-08;
+            }
+        }
+        if (free3) {
+            const double un1 = 1.0/sqrt(c1*c1 + s1*s1);
+            const double uc1 = c1*un1;
+            const double us1 = s1*un1;
+            const double g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
+            const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
+            const double g13_11 = g03_11*uc1 + g03_21*us1;
+            const double g13_12 = g03_12*uc1 + g03_22*us1;
+            const double g23_11 = c2*g13_11 + g03_31*s2;
+            const double g23_12 = c2*g13_12 + g03_32*s2;
+
             dt3 = 0.8660254037844386;
-            c3 = (0.8660254037844386*g23_11) / dt3;
-            s3 = (-g23_12) / dt3;
+            c3 = 0.8660254037844386*g23_11;
+            s3 = -g23_12;
             free3 = 0;
         }
         (void)free3;
         (void)wk3;
-        if (fabs(c3 * c3 + s3 * s3 - 1.0) > 0.0001) {
+        if (fabs(c3 * c3 + s3 * s3 - dt3 * dt3) > 0.0001 * (dt3 * dt3)) {
             continue;
         }
 

@@ -507,8 +507,13 @@ def _closed_form(pose, current, check_finite=True):
     by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
     bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
-    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them)
     e1z = bz + 0.1
+    kc4_0 = 0.021997045256124743 - 0.21650635094610965*e1z*e1z
+    kc5_0 = 0.125*e1z
+    kc5_1 = 0.04330127018922193*e1z + 0.01
+    ks5_2 = 0.25*e1z
+    ks5_3 = 0.2*e1z - 0.0021650635094610966
 
     # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -545,8 +550,9 @@ def _closed_form(pose, current, check_finite=True):
 
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
-        s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
+        dt4 = -0.021650635094610966
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y + kc4_0) / dt4
+        s4 = (-0.1*e1y - 0.0055) / dt4
 
         hq4 = c4 * c4 + s4 * s4
         if hq4 < 0.9999 or hq4 > 1.0001:   # abs(hq - 1) > 1e-4
@@ -559,12 +565,11 @@ def _closed_form(pose, current, check_finite=True):
         th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
 
         # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         if dt5 > 1e-21 or dt5 < -1e-21:
-            c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
-            s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
+            c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + kc5_0*s4 + kc5_1) / dt5
+            s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.04330127018922193*e1x + ks5_3 - 0.00625*s4) / dt5
             hq5 = c5 * c5 + s5 * s5
             if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free5 = False
@@ -611,10 +616,8 @@ def _closed_form(pose, current, check_finite=True):
         t8_3 = 0.8660254037844386*g05_22
         t8_4 = 0.5*g04_32
         t8_5 = 0.8660254037844386*g05_32
-        g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
         g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
         g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
-        g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
         g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
         g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
         g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
@@ -634,21 +637,17 @@ def _closed_form(pose, current, check_finite=True):
         s2 = root2
         th2 = atan2(s2, c2)
 
-        # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        # th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
         dt1 = s2*s2
         if dt1 > 1e-20 or dt1 < -1e-20:
-            c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
-            s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
+            c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+            s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (hq1 < 0.9999 * (dt1 * dt1) or hq1 > 1.0001 * (dt1 * dt1)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn1 = 1.0 / sqrt(hq1)
-                    c1 = c1 * hn1
-                    s1 = s1 * hn1
-                th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
+                th1 = atan2(s1, c1)   # as the C solver computes it
             elif dt1 > 1e-08 or dt1 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -663,23 +662,32 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cos(th1)
             s1 = sin(th1)
 
-        # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
-        g13_11 = c1*g03_11 + g03_21*s1
-        g13_12 = c1*g03_12 + g03_22*s1
+        # th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
-        # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-        g23_11 = c2*g13_11 + g03_31*s2
-        g23_12 = c2*g13_12 + g03_32*s2
+        dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
+        if dt3 > 1e-08 or dt3 < -1e-08:
+            c3 = 0.8660254037844386*g03_31*s2
+            s3 = -s2*(-0.5*c2 + g03_32)
+        else:
+            un1 = 1.0/sqrt(c1*c1 + s1*s1)
+            uc1 = c1*un1
+            us1 = s1*un1
+            g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
+            g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
+            g13_11 = g03_11*uc1 + g03_21*us1
+            g13_12 = g03_12*uc1 + g03_22*us1
+            g23_11 = c2*g13_11 + g03_31*s2
+            g23_12 = c2*g13_12 + g03_32*s2
 
-        # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-        c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
-        s3 = (-g23_12) / 0.8660254037844386
+            dt3 = 0.8660254037844386
+            c3 = 0.8660254037844386*g23_11
+            s3 = -g23_12
 
         hq3 = c3 * c3 + s3 * s3
-        if hq3 < 0.9999 or hq3 > 1.0001:   # abs(hq - 1) > 1e-4
+        if hq3 < 0.9999 * (dt3 * dt3) or hq3 > 1.0001 * (dt3 * dt3):   # abs(hq / det^2 - 1) > 1e-4
             continue
-        th3 = atan2(s3, c3)   # after the unit scaling, as the C solver computes it
+        th3 = atan2(s3, c3)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
 
@@ -741,8 +749,13 @@ def inverse_joints(pose, current=None):
     by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
     bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
-    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them)
     e1z = bz + 0.1
+    kc4_0 = 0.021997045256124743 - 0.21650635094610965*e1z*e1z
+    kc5_0 = 0.125*e1z
+    kc5_1 = 0.04330127018922193*e1z + 0.01
+    ks5_2 = 0.25*e1z
+    ks5_3 = 0.2*e1z - 0.0021650635094610966
 
     # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -779,8 +792,9 @@ def inverse_joints(pose, current=None):
 
         # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / -0.021650635094610966
-        s4 = (-0.1*e1y - 0.0055) / -0.021650635094610966
+        dt4 = -0.021650635094610966
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y + kc4_0) / dt4
+        s4 = (-0.1*e1y - 0.0055) / dt4
 
         hq4 = c4 * c4 + s4 * s4
         if hq4 < 0.9999 or hq4 > 1.0001:   # abs(hq - 1) > 1e-4
@@ -793,12 +807,11 @@ def inverse_joints(pose, current=None):
         th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
 
         # th5 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-        t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         if dt5 > 1e-21 or dt5 < -1e-21:
-            c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
-            s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
+            c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + kc5_0*s4 + kc5_1) / dt5
+            s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.04330127018922193*e1x + ks5_3 - 0.00625*s4) / dt5
             hq5 = c5 * c5 + s5 * s5
             if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free5 = False
@@ -845,10 +858,8 @@ def inverse_joints(pose, current=None):
         t8_3 = 0.8660254037844386*g05_22
         t8_4 = 0.5*g04_32
         t8_5 = 0.8660254037844386*g05_32
-        g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
         g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
         g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
-        g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
         g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
         g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
         g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
@@ -868,21 +879,17 @@ def inverse_joints(pose, current=None):
         s2 = root2
         th2 = atan2(s2, c2)
 
-        # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+        # th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
         dt1 = s2*s2
         if dt1 > 1e-20 or dt1 < -1e-20:
-            c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
-            s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
+            c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+            s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (hq1 < 0.9999 * (dt1 * dt1) or hq1 > 1.0001 * (dt1 * dt1)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn1 = 1.0 / sqrt(hq1)
-                    c1 = c1 * hn1
-                    s1 = s1 * hn1
-                th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
+                th1 = atan2(s1, c1)   # as the C solver computes it
             elif dt1 > 1e-08 or dt1 < -1e-08:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -897,23 +904,32 @@ def inverse_joints(pose, current=None):
             c1 = cos(th1)
             s1 = sin(th1)
 
-        # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
-        g13_11 = c1*g03_11 + g03_21*s1
-        g13_12 = c1*g03_12 + g03_22*s1
+        # th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+        # ~0); no later step reads them, atan2 needs only their direction
 
-        # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-        g23_11 = c2*g13_11 + g03_31*s2
-        g23_12 = c2*g13_12 + g03_32*s2
+        dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
+        if dt3 > 1e-08 or dt3 < -1e-08:
+            c3 = 0.8660254037844386*g03_31*s2
+            s3 = -s2*(-0.5*c2 + g03_32)
+        else:
+            un1 = 1.0/sqrt(c1*c1 + s1*s1)
+            uc1 = c1*un1
+            us1 = s1*un1
+            g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
+            g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
+            g13_11 = g03_11*uc1 + g03_21*us1
+            g13_12 = g03_12*uc1 + g03_22*us1
+            g23_11 = c2*g13_11 + g03_31*s2
+            g23_12 = c2*g13_12 + g03_32*s2
 
-        # th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-        c3 = (0.8660254037844386*g23_11) / 0.8660254037844386
-        s3 = (-g23_12) / 0.8660254037844386
+            dt3 = 0.8660254037844386
+            c3 = 0.8660254037844386*g23_11
+            s3 = -g23_12
 
         hq3 = c3 * c3 + s3 * s3
-        if hq3 < 0.9999 or hq3 > 1.0001:   # abs(hq - 1) > 1e-4
+        if hq3 < 0.9999 * (dt3 * dt3) or hq3 > 1.0001 * (dt3 * dt3):   # abs(hq / det^2 - 1) > 1e-4
             continue
-        th3 = atan2(s3, c3)   # after the unit scaling, as the C solver computes it
+        th3 = atan2(s3, c3)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
         u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)

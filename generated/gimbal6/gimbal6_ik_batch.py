@@ -237,8 +237,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
         bz = -px*r13 - py*r23 - pz*r33 + 0.3*r33
 
-        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them)
         e1z = bz + 0.1
+        kc4_0 = 0.021997045256124743 - 0.21650635094610965*e1z*e1z
+        kc5_0 = 0.125*e1z
+        kc5_1 = 0.04330127018922193*e1z + 0.01
+        ks5_2 = 0.25*e1z
+        ks5_3 = 0.2*e1z - 0.0021650635094610966
 
         # th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
         t2_0 = bx*by
@@ -283,7 +288,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -0.021650635094610966
         use = ~chosen4
-        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y - 0.21650635094610965*e1z*e1z + 0.021997045256124743) / dt4
+        c4 = (-0.21650635094610965*e1x*e1x - 0.021650635094610966*e1x - 0.21650635094610965*e1y*e1y - 0.01299038105676658*e1y + kc4_0) / dt4
         s4 = (-0.1*e1y - 0.0055) / dt4
         chosen4 = chosen4 | use
         valid = valid & ~(numpy.abs(c4 * c4 + s4 * s4 - 1.0) > 1e-4)
@@ -298,12 +303,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th5 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen5 = numpy.zeros((), dtype=bool)
-        t5_0_0 = 0.125*s4
 
         dt5 = -e1x*e1x - 0.1*e1x - e1z*e1z - 0.0025
         use = ~chosen5 & (numpy.abs(dt5) > 1e-21)
-        c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + e1z*t5_0_0 + 0.04330127018922193*e1z + 0.01) / dt5
-        s5 = (0.25*c4*e1z - e1x*t5_0_0 - 0.04330127018922193*e1x + 0.2*e1z - 0.00625*s4 - 0.0021650635094610966) / dt5
+        c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + kc5_0*s4 + kc5_1) / dt5
+        s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.04330127018922193*e1x + ks5_3 - 0.00625*s4) / dt5
         wk5 = numpy.where(use, 9.999999999999999e-10, 0.0)
         dk5 = dt5
         chosen5 = chosen5 | use
@@ -347,10 +351,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         t8_3 = 0.8660254037844386*g05_22
         t8_4 = 0.5*g04_32
         t8_5 = 0.8660254037844386*g05_32
-        g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
         g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4
         g03_13 = -0.8660254037844386*g04_12 + 0.5*g05_12
-        g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
         g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4
         g03_23 = -0.8660254037844386*g04_22 + 0.5*g05_22
         g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5
@@ -375,46 +377,49 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt1 = s2*s2
         use = ~chosen1 & (numpy.abs(dt1) > 1e-20)
-        c1 = (-s2*(0.5*g03_12 + 0.8660254037844386*g03_13)) / dt1
-        s1 = (-s2*(0.5*g03_22 + 0.8660254037844386*g03_23)) / dt1
+        c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+        s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
         wk1 = numpy.where(use, 1e-08, 0.0)
         dk1 = dt1
         chosen1 = chosen1 | use
-        bad1 = chosen1 & (numpy.abs(c1 * c1 + s1 * s1 - 1.0) > 1e-4)
+        bad1 = chosen1 & (numpy.abs(c1 * c1 + s1 * s1 - dk1 * dk1) > 1e-4 * (dk1 * dk1))
         weak1 = bad1 & (numpy.abs(dk1) <= wk1)  # ill-conditioned near a singular pose: free
         free1 = ~chosen1 | weak1
         valid = valid & ~(bad1 & ~weak1)
-        # unit (cos, sin) for the later steps, as the per-pose solver (only where the scale drifted)
-        hq1 = c1 * c1 + s1 * s1
-        off1 = numpy.abs(hq1 - 1.0) > 1e-15
-        if off1.any():
-            hn1 = numpy.where(off1, 1.0 / numpy.sqrt(numpy.where(off1, hq1, 1.0)), 1.0)
-            c1 = c1 * hn1
-            s1 = s1 * hn1
-        th1 = numpy.arctan2(s1, c1)   # after the unit scaling, as the per-pose solvers
+        th1 = numpy.arctan2(s1, c1)   # as the per-pose solvers
         if free1.any():
             th1 = numpy.where(free1, _one_turn((hint[0])), th1)
             c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)
             s1 = numpy.where(free1, numpy.sin(_one_turn((hint[0]))), s1)
 
-        # A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one)
-        g13_11 = c1*g03_11 + g03_21*s1
-        g13_12 = c1*g03_12 + g03_22*s1
-
-        # A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one)
-        g23_11 = c2*g13_11 + g03_31*s2
-        g23_12 = c2*g13_12 + g03_32*s2
-
         # th3 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen3 = numpy.zeros((), dtype=bool)
 
-        dt3 = 0.8660254037844386
-        use = ~chosen3
-        c3 = (0.8660254037844386*g23_11) / dt3
-        s3 = (-g23_12) / dt3
+        dt3 = numpy.where(free1, 0.0, -0.8660254037844386*s2*s2)
+        use = ~chosen3 & (numpy.abs(dt3) > 1e-08)
+        c3 = 0.8660254037844386*g03_31*s2
+        s3 = -s2*(-0.5*c2 + g03_32)
+        dk3 = dt3
         chosen3 = chosen3 | use
-        valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - 1.0) > 1e-4)
-        th3 = numpy.arctan2(s3, c3)   # after the unit scaling, as the per-pose solvers
+        if not chosen3.all():
+            un1 = 1.0/numpy.sqrt(c1*c1 + s1*s1)
+            uc1 = c1*un1
+            us1 = s1*un1
+            g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1
+            g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
+            g13_11 = g03_11*uc1 + g03_21*us1
+            g13_12 = g03_12*uc1 + g03_22*us1
+            g23_11 = c2*g13_11 + g03_31*s2
+            g23_12 = c2*g13_12 + g03_32*s2
+
+            dt3 = 0.8660254037844386
+            use = ~chosen3
+            c3 = numpy.where(use, 0.8660254037844386*g23_11, c3)
+            s3 = numpy.where(use, -g23_12, s3)
+            dk3 = numpy.where(use, dt3, dk3)
+            chosen3 = chosen3 | use
+        valid = valid & ~(numpy.abs(c3 * c3 + s3 * s3 - dk3 * dk3) > 1e-4 * (dk3 * dk3))
+        th3 = numpy.arctan2(s3, c3)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning
 

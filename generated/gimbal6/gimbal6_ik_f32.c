@@ -441,8 +441,13 @@ static int closed_form(const float pose[16], const float *current,
     const float by = -px*r12 - py*r22 - pz*r32 + 0.3f*r32;
     const float bz = -px*r13 - py*r23 - pz*r33 + 0.3f*r33;
 
-    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A6 b: the known side with joints 6 moved over (A6^-1^-1 times the previous one); th4 from a linear pair; th5 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const float e1z = bz + 0.1f;
+    const float kc4_0 = 0.0219970453f - 0.216506351f*e1z*e1z;
+    const float kc5_0 = 0.125f*e1z;
+    const float kc5_1 = 0.0433012702f*e1z + 0.01f;
+    const float ks5_2 = 0.25f*e1z;
+    const float ks5_3 = 0.2f*e1z - 0.00216506351f;
 
     /* th6: the roots of a polynomial in its cosine and sine (th4 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -496,7 +501,7 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt4 = -0.0216506351f;
-            c4 = (-0.216506351f*e1x*e1x - 0.0216506351f*e1x - 0.216506351f*e1y*e1y - 0.0129903811f*e1y - 0.216506351f*e1z*e1z + 0.0219970453f) / dt4;
+            c4 = (-0.216506351f*e1x*e1x - 0.0216506351f*e1x - 0.216506351f*e1y*e1y - 0.0129903811f*e1y + kc4_0) / dt4;
             s4 = (-0.1f*e1y - 0.0055f) / dt4;
             free4 = 0;
         }
@@ -520,12 +525,11 @@ static int closed_form(const float pose[16], const float *current,
         float th5 = 0.0f, c5 = 0.0f, s5 = 0.0f, dt5, wk5 = 0.0f;
         int free5 = 1;
         {
-            const float t5_0_0 = 0.125f*s4;
 
             dt5 = -e1x*e1x - 0.1f*e1x - e1z*e1z - 0.0025f;
             if (fabsf(dt5) > 1e-21f) {
-                c5 = (0.25f*c4*e1x + 0.0125f*c4 + 0.2f*e1x + e1z*t5_0_0 + 0.0433012702f*e1z + 0.01f) / dt5;
-                s5 = (0.25f*c4*e1z - e1x*t5_0_0 - 0.0433012702f*e1x + 0.2f*e1z - 0.00625f*s4 - 0.00216506351f) / dt5;
+                c5 = (0.25f*c4*e1x + 0.0125f*c4 + 0.2f*e1x + kc5_0*s4 + kc5_1) / dt5;
+                s5 = (c4*ks5_2 - 0.125f*e1x*s4 - 0.0433012702f*e1x + ks5_3 - 0.00625f*s4) / dt5;
                 free5 = 0;
                 wk5 = 1e-09f;
             }
@@ -576,10 +580,8 @@ static int closed_form(const float pose[16], const float *current,
         const float t8_3 = 0.866025404f*g05_22;
         const float t8_4 = 0.5f*g04_32;
         const float t8_5 = 0.866025404f*g05_32;
-        const float g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
         const float g03_12 = c4*t8_0 + c4*t8_1 + g04_11*s4;
         const float g03_13 = -0.866025404f*g04_12 + 0.5f*g05_12;
-        const float g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
         const float g03_22 = c4*t8_2 + c4*t8_3 + g04_21*s4;
         const float g03_23 = -0.866025404f*g04_22 + 0.5f*g05_22;
         const float g03_31 = c4*g04_31 - s4*t8_4 - s4*t8_5;
@@ -602,20 +604,21 @@ static int closed_form(const float pose[16], const float *current,
         c2 = cn2;
         s2 = sn2;
 
-        /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         float th1 = 0.0f, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
         int free1 = 1;
         {
 
             dt1 = s2*s2;
             if (fabsf(dt1) > 1e-20f) {
-                c1 = (-s2*(0.5f*g03_12 + 0.866025404f*g03_13)) / dt1;
-                s1 = (-s2*(0.5f*g03_22 + 0.866025404f*g03_23)) / dt1;
+                c1 = -s2*(0.5f*g03_12 + 0.866025404f*g03_13);
+                s1 = -s2*(0.5f*g03_22 + 0.866025404f*g03_23);
                 free1 = 0;
                 wk1 = 1e-08f;
             }
         }
-        if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
+        if (!free1 && fabsf(c1 * c1 + s1 * s1 - dt1 * dt1) > 0.005f * (dt1 * dt1)) {
             if (fabsf(dt1) > wk1) {
                 continue;
             }
@@ -625,40 +628,41 @@ static int closed_form(const float pose[16], const float *current,
             th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
             c1 = cosf(th1);
             s1 = sinf(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq1 = c1 * c1 + s1 * s1;
-                if (fabsf(hq1 - 1.0f) > 1e-06f) {
-                    const float hn1 = 1.0f / sqrtf(hq1);
-                    c1 = c1 * hn1;
-                    s1 = s1 * hn1;
-                }
-            }
         }
 
-        /* A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 4, 5, 6 moved over (A1^-1 times the previous one) */
-        const float g13_11 = c1*g03_11 + g03_21*s1;
-        const float g13_12 = c1*g03_12 + g03_22*s1;
-
-        /* A2^-1 A1^-1 T A6^-1 A5^-1 A4^-1: the known side with joints 1, 2, 4, 5, 6 moved over (A2^-1 times the previous one) */
-        const float g23_11 = c2*g13_11 + g03_31*s2;
-        const float g23_12 = c2*g13_12 + g03_32*s2;
-
-        /* th3 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+        /* th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+         * no later step reads them, atan2 needs only their direction */
         float th3 = 0.0f, c3 = 0.0f, s3 = 0.0f, dt3, wk3 = 0.0f;
         int free3 = 1;
         {
 
+            dt3 = free1 ? 0.0f : -0.866025404f*s2*s2;
+            if (fabsf(dt3) > 0.001f) {
+                c3 = 0.866025404f*g03_31*s2;
+                s3 = -s2*(-0.5f*c2 + g03_32);
+                free3 = 0;
+                wk3 = 1e-08f;
+            }
+        }
+        if (free3) {
+            const float un1 = 1.0f/sqrtf(c1*c1 + s1*s1);
+            const float uc1 = c1*un1;
+            const float us1 = s1*un1;
+            const float g03_11 = c4*g04_11 - s4*t8_0 - s4*t8_1;
+            const float g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
+            const float g13_11 = g03_11*uc1 + g03_21*us1;
+            const float g13_12 = g03_12*uc1 + g03_22*us1;
+            const float g23_11 = c2*g13_11 + g03_31*s2;
+            const float g23_12 = c2*g13_12 + g03_32*s2;
+
             dt3 = 0.866025404f;
-            c3 = (0.866025404f*g23_11) / dt3;
-            s3 = (-g23_12) / dt3;
+            c3 = 0.866025404f*g23_11;
+            s3 = -g23_12;
             free3 = 0;
         }
         (void)free3;
         (void)wk3;
-        if (fabsf(c3 * c3 + s3 * s3 - 1.0f) > 0.005f) {
+        if (fabsf(c3 * c3 + s3 * s3 - dt3 * dt3) > 0.005f * (dt3 * dt3)) {
             continue;
         }
 

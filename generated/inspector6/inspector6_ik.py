@@ -404,6 +404,10 @@ def _closed_form(pose, current, check_finite=True):
         s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        kc2_0 = -290.0*s3 - 320.0
+        kc2_1 = 290.0*c3*v1y
+        ks2_2 = -290.0*c3
+        ks2_3 = -290.0*s3*v1y - 320.0*v1y
         dq2 = -185600.0*s3 - 186500.0
 
         # th1: z of A1^-1 w = A2 A3 c3
@@ -435,8 +439,6 @@ def _closed_form(pose, current, check_finite=True):
             g16_12 = c1*r11 - r21*s1
             g16_13 = c1*r13 - r23*s1
             g16_14 = c1*pcx + pcy*s1
-            g16_31 = -c1*r22 - r12*s1
-            g16_32 = c1*r21 + r11*s1
             g16_33 = c1*r23 + r13*s1
             g16_34 = -c1*pcy + pcx*s1
 
@@ -444,12 +446,11 @@ def _closed_form(pose, current, check_finite=True):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = 290.0*v1x
 
             dt2 = dq2
             if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
-                s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
+                c2 = (kc2_0*v1x + kc2_1) / dt2
+                s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -521,8 +522,6 @@ def _closed_form(pose, current, check_finite=True):
             s23 = c2*s3 + c3*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
-            g36_11 = c23*g16_11 + r32*s23
-            g36_12 = c23*g16_12 - r31*s23
             g36_13 = c23*g16_13 - r33*s23
             g36_31 = -c23*r32 + g16_11*s23
             g36_32 = c23*r31 + g16_12*s23
@@ -540,21 +539,17 @@ def _closed_form(pose, current, check_finite=True):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (-g36_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = g36_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -569,23 +564,34 @@ def _closed_form(pose, current, check_finite=True):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g16_31*s4
-            g46_12 = c4*g36_12 + g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 - g36_31*s5
-            g56_12 = c5*g46_12 - g36_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = -g36_31*s5
+                s6 = g36_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = -c1*r22 - r12*s1
+                g16_32 = c1*r21 + r11*s1
+                g36_11 = c23*g16_11 + r32*s23
+                g36_12 = c23*g16_12 - r31*s23
+                g46_11 = g16_31*us4 + g36_11*uc4
+                g46_12 = g16_32*us4 + g36_12*uc4
+                g56_11 = c5*g46_11 - g36_31*s5
+                g56_12 = c5*g46_12 - g36_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
 
@@ -680,6 +686,10 @@ def inverse_joints(pose, current=None):
         s3 = 2.902980083234245e-11*(-185600.0*ec3)
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        kc2_0 = -290.0*s3 - 320.0
+        kc2_1 = 290.0*c3*v1y
+        ks2_2 = -290.0*c3
+        ks2_3 = -290.0*s3*v1y - 320.0*v1y
         dq2 = -185600.0*s3 - 186500.0
 
         # th1: z of A1^-1 w = A2 A3 c3
@@ -711,8 +721,6 @@ def inverse_joints(pose, current=None):
             g16_12 = c1*r11 - r21*s1
             g16_13 = c1*r13 - r23*s1
             g16_14 = c1*pcx + pcy*s1
-            g16_31 = -c1*r22 - r12*s1
-            g16_32 = c1*r21 + r11*s1
             g16_33 = c1*r23 + r13*s1
             g16_34 = -c1*pcy + pcx*s1
 
@@ -720,12 +728,11 @@ def inverse_joints(pose, current=None):
             v1x = c1*wx + s1*wy
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = 290.0*v1x
 
             dt2 = dq2
             if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (290.0*c3*v1y - s3*t7_0_0 - 320.0*v1x) / dt2
-                s2 = (-c3*t7_0_0 - 290.0*s3*v1y - 320.0*v1y) / dt2
+                c2 = (kc2_0*v1x + kc2_1) / dt2
+                s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -797,8 +804,6 @@ def inverse_joints(pose, current=None):
             s23 = c2*s3 + c3*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
-            g36_11 = c23*g16_11 + r32*s23
-            g36_12 = c23*g16_12 - r31*s23
             g36_13 = c23*g16_13 - r33*s23
             g36_31 = -c23*r32 + g16_11*s23
             g36_32 = c23*r31 + g16_12*s23
@@ -816,21 +821,17 @@ def inverse_joints(pose, current=None):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (-g36_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = g36_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -845,23 +846,34 @@ def inverse_joints(pose, current=None):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 + g16_31*s4
-            g46_12 = c4*g36_12 + g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 - g36_31*s5
-            g56_12 = c5*g46_12 - g36_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = -g36_31*s5
+                s6 = g36_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = -c1*r22 - r12*s1
+                g16_32 = c1*r21 + r11*s1
+                g36_11 = c23*g16_11 + r32*s23
+                g36_12 = c23*g16_12 - r31*s23
+                g46_11 = g16_31*us4 + g36_11*uc4
+                g46_12 = g16_32*us4 + g36_12*uc4
+                g56_11 = c5*g46_11 - g36_31*s5
+                g56_12 = c5*g46_12 - g36_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)

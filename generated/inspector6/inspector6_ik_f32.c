@@ -249,6 +249,10 @@ static int closed_form(const float pose[16], const float *current,
         s3 = 2.90298008e-11f*sn3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+        const float kc2_0 = -290.0f*s3 - 320.0f;
+        const float kc2_1 = 290.0f*c3*v1y;
+        const float ks2_2 = -290.0f*c3;
+        const float ks2_3 = -290.0f*s3*v1y - 320.0f*v1y;
         const float dq2 = -185600.0f*s3 - 186500.0f;
 
         /* th1: z of A1^-1 w = A2 A3 c3
@@ -292,8 +296,6 @@ static int closed_form(const float pose[16], const float *current,
             const float g16_12 = c1*r11 - r21*s1;
             const float g16_13 = c1*r13 - r23*s1;
             const float g16_14 = c1*pcx + pcy*s1;
-            const float g16_31 = -c1*r22 - r12*s1;
-            const float g16_32 = c1*r21 + r11*s1;
             const float g16_33 = c1*r23 + r13*s1;
             const float g16_34 = -c1*pcy + pcx*s1;
 
@@ -304,12 +306,11 @@ static int closed_form(const float pose[16], const float *current,
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
             int free2 = 1;
             {
-                const float t7_0_0 = 290.0f*v1x;
 
                 dt2 = dq2;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (290.0f*c3*v1y - s3*t7_0_0 - 320.0f*v1x) / dt2;
-                    s2 = (-c3*t7_0_0 - 290.0f*s3*v1y - 320.0f*v1y) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) / dt2;
+                    s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 0.001f;
                 }
@@ -373,8 +374,6 @@ static int closed_form(const float pose[16], const float *current,
             const float s23 = c2*s3 + c3*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one) */
-            const float g36_11 = c23*g16_11 + r32*s23;
-            const float g36_12 = c23*g16_12 - r31*s23;
             const float g36_13 = c23*g16_13 - r33*s23;
             const float g36_31 = -c23*r32 + g16_11*s23;
             const float g36_32 = c23*r31 + g16_12*s23;
@@ -395,20 +394,21 @@ static int closed_form(const float pose[16], const float *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             float th4 = 0.0f, c4 = 0.0f, s4 = 0.0f, dt4, wk4 = 0.0f;
             int free4 = 1;
             {
 
                 dt4 = -s5*s5;
                 if (fabsf(dt4) > 1e-20f) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (-g16_33*s5) / dt4;
+                    c4 = g36_13*s5;
+                    s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
             }
-            if (!free4 && fabsf(c4 * c4 + s4 * s4 - 1.0f) > 0.005f) {
+            if (!free4 && fabsf(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.005f * (dt4 * dt4)) {
                 if (fabsf(dt4) > wk4) {
                     continue;
                 }
@@ -418,40 +418,43 @@ static int closed_form(const float pose[16], const float *current,
                 th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
                 c4 = cosf(th4);
                 s4 = sinf(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq4 = c4 * c4 + s4 * s4;
-                    if (fabsf(hq4 - 1.0f) > 1e-06f) {
-                        const float hn4 = 1.0f / sqrtf(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const float g46_11 = c4*g36_11 + g16_31*s4;
-            const float g46_12 = c4*g36_12 + g16_32*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const float g56_11 = c5*g46_11 - g36_31*s5;
-            const float g56_12 = c5*g46_12 - g36_32*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0f : -s5*s5;
+                if (fabsf(dt6) > 0.001f) {
+                    c6 = -g36_31*s5;
+                    s6 = g36_32*s5;
+                    free6 = 0;
+                    wk6 = 1e-08f;
+                }
+            }
+            if (free6) {
+                const float un4 = 1.0f/sqrtf(c4*c4 + s4*s4);
+                const float uc4 = c4*un4;
+                const float us4 = s4*un4;
+                const float g16_31 = -c1*r22 - r12*s1;
+                const float g16_32 = c1*r21 + r11*s1;
+                const float g36_11 = c23*g16_11 + r32*s23;
+                const float g36_12 = c23*g16_12 - r31*s23;
+                const float g46_11 = g16_31*us4 + g36_11*uc4;
+                const float g46_12 = g16_32*us4 + g36_12*uc4;
+                const float g56_11 = c5*g46_11 - g36_31*s5;
+                const float g56_12 = c5*g46_12 - g36_32*s5;
+
                 dt6 = 1.0f;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
+            if (fabsf(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.005f * (dt6 * dt6)) {
                 continue;
             }
 

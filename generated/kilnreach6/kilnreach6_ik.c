@@ -263,8 +263,6 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_31 = c1*r21 - r11*s1;
-        const double g16_32 = c1*r22 - r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
 
         /* th2: x of A2^-1 A1^-1 w = A3 c3
@@ -319,8 +317,6 @@ static int closed_form(const double pose[16], const double *current,
             (void)free3;
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g26_11 = c2*g16_11 - r31*s2;
-            const double g26_12 = c2*g16_12 - r32*s2;
             const double g26_13 = c2*g16_13 - r33*s2;
             const double g26_31 = c2*r31 + g16_11*s2;
             const double g26_32 = c2*r32 + g16_12*s2;
@@ -341,20 +337,21 @@ static int closed_form(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (-g26_13*s5) / dt4;
-                    s4 = (-g16_33*s5) / dt4;
+                    c4 = g26_13*s5;
+                    s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -364,40 +361,43 @@ static int closed_form(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g26_11 + g16_31*s4;
-            const double g46_12 = c4*g26_12 + g16_32*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 - g26_31*s5;
-            const double g56_12 = c5*g46_12 - g26_32*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = -g26_31*s5;
+                    s6 = g26_32*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g16_31 = c1*r21 - r11*s1;
+                const double g16_32 = c1*r22 - r12*s1;
+                const double g26_11 = c2*g16_11 - r31*s2;
+                const double g26_12 = c2*g16_12 - r32*s2;
+                const double g46_11 = g16_31*us4 + g26_11*uc4;
+                const double g46_12 = g16_32*us4 + g26_12*uc4;
+                const double g56_11 = c5*g46_11 - g26_31*s5;
+                const double g56_12 = c5*g46_12 - g26_32*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 
@@ -578,8 +578,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_31 = c1*r21 - r11*s1;
-        const double g16_32 = c1*r22 - r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
 
         /* th2: x of A2^-1 A1^-1 w = A3 c3
@@ -634,8 +632,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             (void)free3;
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
-            const double g26_11 = c2*g16_11 - r31*s2;
-            const double g26_12 = c2*g16_12 - r32*s2;
             const double g26_13 = c2*g16_13 - r33*s2;
             const double g26_31 = c2*r31 + g16_11*s2;
             const double g26_32 = c2*r32 + g16_12*s2;
@@ -656,20 +652,21 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (-g26_13*s5) / dt4;
-                    s4 = (-g16_33*s5) / dt4;
+                    c4 = g26_13*s5;
+                    s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -679,40 +676,43 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g26_11 + g16_31*s4;
-            const double g46_12 = c4*g26_12 + g16_32*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 - g26_31*s5;
-            const double g56_12 = c5*g46_12 - g26_32*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = -g26_31*s5;
+                    s6 = g26_32*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g16_31 = c1*r21 - r11*s1;
+                const double g16_32 = c1*r22 - r12*s1;
+                const double g26_11 = c2*g16_11 - r31*s2;
+                const double g26_12 = c2*g16_12 - r32*s2;
+                const double g46_11 = g16_31*us4 + g26_11*uc4;
+                const double g46_12 = g16_32*us4 + g26_12*uc4;
+                const double g56_11 = c5*g46_11 - g26_31*s5;
+                const double g56_12 = c5*g46_12 - g26_32*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 

@@ -404,8 +404,6 @@ def _closed_form(pose, current, check_finite=True):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_31 = c1*r21 - r11*s1
-        g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
 
         # th2: x of A2^-1 A1^-1 w = A3 c3
@@ -444,8 +442,6 @@ def _closed_form(pose, current, check_finite=True):
             free3 = False
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 - r31*s2
-            g26_12 = c2*g16_12 - r32*s2
             g26_13 = c2*g16_13 - r33*s2
             g26_31 = c2*r31 + g16_11*s2
             g26_32 = c2*r32 + g16_12*s2
@@ -463,21 +459,17 @@ def _closed_form(pose, current, check_finite=True):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (-g26_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = g26_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -492,23 +484,34 @@ def _closed_form(pose, current, check_finite=True):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g26_11 + g16_31*s4
-            g46_12 = c4*g26_12 + g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 - g26_31*s5
-            g56_12 = c5*g46_12 - g26_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = -g26_31*s5
+                s6 = g26_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = c1*r21 - r11*s1
+                g16_32 = c1*r22 - r12*s1
+                g26_11 = c2*g16_11 - r31*s2
+                g26_12 = c2*g16_12 - r32*s2
+                g46_11 = g16_31*us4 + g26_11*uc4
+                g46_12 = g16_32*us4 + g26_12*uc4
+                g56_11 = c5*g46_11 - g26_31*s5
+                g56_12 = c5*g46_12 - g26_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             # a displacement outside its joint's stroke is no solution (strokes define reach)
@@ -613,8 +616,6 @@ def inverse_joints(pose, current=None):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_31 = c1*r21 - r11*s1
-        g16_32 = c1*r22 - r12*s1
         g16_33 = c1*r23 - r13*s1
 
         # th2: x of A2^-1 A1^-1 w = A3 c3
@@ -653,8 +654,6 @@ def inverse_joints(pose, current=None):
             free3 = False
 
             # A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
-            g26_11 = c2*g16_11 - r31*s2
-            g26_12 = c2*g16_12 - r32*s2
             g26_13 = c2*g16_13 - r33*s2
             g26_31 = c2*r31 + g16_11*s2
             g26_32 = c2*r32 + g16_12*s2
@@ -672,21 +671,17 @@ def inverse_joints(pose, current=None):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (-g26_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = g26_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -701,23 +696,34 @@ def inverse_joints(pose, current=None):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g26_11 + g16_31*s4
-            g46_12 = c4*g26_12 + g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 - g26_31*s5
-            g56_12 = c5*g46_12 - g26_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = -g26_31*s5
+                s6 = g26_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = c1*r21 - r11*s1
+                g16_32 = c1*r22 - r12*s1
+                g26_11 = c2*g16_11 - r31*s2
+                g26_12 = c2*g16_12 - r32*s2
+                g46_11 = g16_31*us4 + g26_11*uc4
+                g46_12 = g16_32*us4 + g26_12*uc4
+                g56_11 = c5*g46_11 - g26_31*s5
+                g56_12 = c5*g46_12 - g26_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             # a displacement outside its joint's stroke is no solution (strokes define reach)

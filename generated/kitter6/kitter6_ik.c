@@ -366,6 +366,12 @@ static int closed_form(const double pose[16], const double *current,
             }
             thp234 = kitter6_ik_atan2(sp234, cp234);
 
+            /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+            const double kc2_0 = -295.0*g14_14;
+            const double kc2_1 = -295.0*g14_34;
+            const double kc2_2 = -330.0*g14_14;
+            const double ks2_3 = -330.0*g14_34;
+
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34;
@@ -391,12 +397,11 @@ static int closed_form(const double pose[16], const double *current,
                 double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
                 int free2 = 1;
                 {
-                    const double t11_0_0 = 295.0*c3;
 
                     dt2 = -194700.0*c3 - 195925.0;
                     if (fabs(dt2) > 9.9999999999999988e-16) {
-                        c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2;
-                        s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2;
+                        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                         free2 = 0;
                         wk2 = 0.0009999999999999998;
                     }
@@ -644,6 +649,12 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
             }
             thp234 = kitter6_ik_atan2(sp234, cp234);
 
+            /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+            const double kc2_0 = -295.0*g14_14;
+            const double kc2_1 = -295.0*g14_34;
+            const double kc2_2 = -330.0*g14_14;
+            const double ks2_3 = -330.0*g14_34;
+
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34;
@@ -669,12 +680,11 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
                 int free2 = 1;
                 {
-                    const double t11_0_0 = 295.0*c3;
 
                     dt2 = -194700.0*c3 - 195925.0;
                     if (fabs(dt2) > 9.9999999999999988e-16) {
-                        c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2;
-                        s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2;
+                        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                         free2 = 0;
                         wk2 = 0.0009999999999999998;
                     }

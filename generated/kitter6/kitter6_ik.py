@@ -485,6 +485,12 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             thp234 = atan2(sp234, cp234)
 
+            # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+            kc2_0 = -295.0*g14_14
+            kc2_1 = -295.0*g14_34
+            kc2_2 = -330.0*g14_14
+            ks2_3 = -330.0*g14_34
+
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
@@ -501,12 +507,11 @@ def _closed_form(pose, current, check_finite=True):
                 s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-                t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
                 if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                    c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
-                    s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                     hq2 = c2 * c2 + s2 * s2
                     if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False
@@ -689,6 +694,12 @@ def inverse_joints(pose, current=None):
                 continue
             thp234 = atan2(sp234, cp234)
 
+            # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+            kc2_0 = -295.0*g14_14
+            kc2_1 = -295.0*g14_34
+            kc2_2 = -330.0*g14_14
+            ks2_3 = -330.0*g14_34
+
             # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
             # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
@@ -705,12 +716,11 @@ def inverse_joints(pose, current=None):
                 s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-                t11_0_0 = 295.0*c3
 
                 dt2 = -194700.0*c3 - 195925.0
                 if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                    c2 = (-g14_14*t11_0_0 - 330.0*g14_14 - 295.0*g14_34*s3) / dt2
-                    s2 = (295.0*g14_14*s3 - g14_34*t11_0_0 - 330.0*g14_34) / dt2
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                     hq2 = c2 * c2 + s2 * s2
                     if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                         free2 = False

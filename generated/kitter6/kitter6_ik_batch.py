@@ -242,6 +242,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         valid = valid & ~(numpy.abs(cp234 * cp234 + sp234 * sp234 - 1.0) > 1e-4)
         thp234 = numpy.arctan2(sp234, cp234)
 
+        # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        kc2_0 = -295*g14_14
+        kc2_1 = -295*g14_34
+        kc2_2 = -330*g14_14
+        ks2_3 = -330*g14_34
+
         # th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
         t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34
         ec3 = 210566 - t10_0
@@ -260,12 +266,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th2 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen2 = numpy.zeros((), dtype=bool)
-        t11_0_0 = 295*c3
 
         dt2 = -194700*c3 - 195925
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (-g14_14*t11_0_0 - 330*g14_14 - 295*g14_34*s3) / dt2
-        s2 = (295*g14_14*s3 - g14_34*t11_0_0 - 330*g14_34) / dt2
+        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use

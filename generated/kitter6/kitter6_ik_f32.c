@@ -350,6 +350,12 @@ static int closed_form(const float pose[16], const float *current,
             }
             thp234 = kitter6_ik_f32_atan2(sp234, cp234);
 
+            /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+            const float kc2_0 = -295.0f*g14_14;
+            const float kc2_1 = -295.0f*g14_34;
+            const float kc2_2 = -330.0f*g14_14;
+            const float ks2_3 = -330.0f*g14_34;
+
             /* th3: squared norm of the position of A1^-1 T A6^-1 A5^-1 = A2 A3 A4
              * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float t10_0 = g14_14*g14_14 + g14_24*g14_24 + g14_34*g14_34;
@@ -375,12 +381,11 @@ static int closed_form(const float pose[16], const float *current,
                 float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
                 int free2 = 1;
                 {
-                    const float t11_0_0 = 295.0f*c3;
 
                     dt2 = -194700.0f*c3 - 195925.0f;
                     if (fabsf(dt2) > 1e-15f) {
-                        c2 = (-g14_14*t11_0_0 - 330.0f*g14_14 - 295.0f*g14_34*s3) / dt2;
-                        s2 = (295.0f*g14_14*s3 - g14_34*t11_0_0 - 330.0f*g14_34) / dt2;
+                        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                         free2 = 0;
                         wk2 = 0.001f;
                     }

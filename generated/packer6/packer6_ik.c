@@ -236,7 +236,7 @@ static int closed_form(const double pose[16], const double *current,
     const double wz = pcz + 0.14000000000000001*r31;
 
     /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-    const double t7_0_2 = 0.11*wz;
+    const double ks2_3 = 0.84999999999999998*wz;
 
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -279,6 +279,9 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
         const double g16_24 = c1*pcy - pcx*s1;
+        const double kc2_0 = -0.11*v1x + 0.90000000000000002*wz + 0.016500000000000001;
+        const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
+        const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
         const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
@@ -306,13 +309,11 @@ static int closed_form(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = 0.90000000000000002*c3;
-                const double t7_0_1 = s3*v1x;
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t7_0_2 - 0.13500000000000001*s3 + t7_0_0*wz + 0.90000000000000002*t7_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
-                    s2 = (c3*t7_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*wz - 0.016500000000000001*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.84999999999999998*wz) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 1e-08;
                 }
@@ -449,8 +450,6 @@ static int closed_form(const double pose[16], const double *current,
             const double s23 = c2*s3 + c3*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one) */
-            const double g36_11 = c23*g16_11 - r33*s23;
-            const double g36_12 = c23*g16_12 - r32*s23;
             const double g36_13 = c23*g16_13 + r31*s23;
             const double g36_21 = -c23*r33 - g16_11*s23;
             const double g36_22 = -c23*r32 - g16_12*s23;
@@ -471,20 +470,21 @@ static int closed_form(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (g16_23*s5) / dt4;
+                    c4 = -g36_13*s5;
+                    s4 = g16_23*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -494,40 +494,41 @@ static int closed_form(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 - g16_21*s4;
-            const double g46_12 = c4*g36_12 - g16_22*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 + g36_21*s5;
-            const double g56_12 = c5*g46_12 + g36_22*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = g36_21*s5;
+                    s6 = -g36_22*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g36_11 = c23*g16_11 - r33*s23;
+                const double g36_12 = c23*g16_12 - r32*s23;
+                const double g46_11 = -g16_21*us4 + g36_11*uc4;
+                const double g46_12 = -g16_22*us4 + g36_12*uc4;
+                const double g56_11 = c5*g46_11 + g36_21*s5;
+                const double g56_12 = c5*g46_12 + g36_22*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 
@@ -669,7 +670,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
     const double wz = pcz + 0.14000000000000001*r31;
 
     /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
-    const double t7_0_2 = 0.11*wz;
+    const double ks2_3 = 0.84999999999999998*wz;
 
     /* th1: y of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -712,6 +713,9 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
         const double g16_24 = c1*pcy - pcx*s1;
+        const double kc2_0 = -0.11*v1x + 0.90000000000000002*wz + 0.016500000000000001;
+        const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
+        const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
         const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
@@ -739,13 +743,11 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = 0.90000000000000002*c3;
-                const double t7_0_1 = s3*v1x;
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (-0.11*c3*v1x + 0.016500000000000001*c3 + s3*t7_0_2 - 0.13500000000000001*s3 + t7_0_0*wz + 0.90000000000000002*t7_0_1 - 0.84999999999999998*v1x + 0.1275) / dt2;
-                    s2 = (c3*t7_0_2 - 0.13500000000000001*c3 - 0.90000000000000002*s3*wz - 0.016500000000000001*s3 + t7_0_0*v1x + 0.11*t7_0_1 + 0.84999999999999998*wz) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 1e-08;
                 }
@@ -882,8 +884,6 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             const double s23 = c2*s3 + c3*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one) */
-            const double g36_11 = c23*g16_11 - r33*s23;
-            const double g36_12 = c23*g16_12 - r32*s23;
             const double g36_13 = c23*g16_13 + r31*s23;
             const double g36_21 = -c23*r33 - g16_11*s23;
             const double g36_22 = -c23*r32 - g16_12*s23;
@@ -904,20 +904,21 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (-g36_13*s5) / dt4;
-                    s4 = (g16_23*s5) / dt4;
+                    c4 = -g36_13*s5;
+                    s4 = g16_23*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -927,40 +928,41 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 - g16_21*s4;
-            const double g46_12 = c4*g36_12 - g16_22*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 + g36_21*s5;
-            const double g56_12 = c5*g46_12 + g36_22*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = g36_21*s5;
+                    s6 = -g36_22*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g36_11 = c23*g16_11 - r33*s23;
+                const double g36_12 = c23*g16_12 - r32*s23;
+                const double g46_11 = -g16_21*us4 + g36_11*uc4;
+                const double g46_12 = -g16_22*us4 + g36_12*uc4;
+                const double g56_11 = c5*g46_11 + g36_21*s5;
+                const double g56_12 = c5*g46_12 + g36_22*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 

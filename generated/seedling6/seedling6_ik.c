@@ -238,9 +238,10 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 0.16500000000000001*r23;
     const double wz = pcz - 0.16500000000000001*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
     const double g16_24 = 0.28999999999999998 - pcz;
+    const double ks2_3 = -0.34000000000000002*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -289,10 +290,11 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
-        const double g16_31 = -c1*r21 + r11*s1;
-        const double g16_32 = -c1*r22 + r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double kc2_0 = -0.035000000000000003*v1x - 0.34999999999999998*v1y;
+        const double kc2_1 = 0.34999999999999998*v1x - 0.035000000000000003*v1y;
+        const double kc2_2 = -0.34000000000000002*v1x;
         const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
@@ -320,14 +322,11 @@ static int closed_form(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = c3*v1x;
-                const double t7_0_1 = c3*v1y;
-                const double t7_0_2 = s3*v1y;
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
-                    c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t7_0_0 - 0.34999999999999998*t7_0_1 - 0.035000000000000003*t7_0_2 - 0.34000000000000002*v1x) / dt2;
-                    s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t7_0_0 - 0.035000000000000003*t7_0_1 + 0.34999999999999998*t7_0_2 - 0.34000000000000002*v1y) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 9.9999999999999986e-10;
                 }
@@ -421,8 +420,6 @@ static int closed_form(const double pose[16], const double *current,
             const double s23 = c2*s3 + c3*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one) */
-            const double g36_11 = c23*g16_11 + r31*s23;
-            const double g36_12 = c23*g16_12 + r32*s23;
             const double g36_13 = c23*g16_13 - r33*s23;
             const double g36_31 = c23*r31 - g16_11*s23;
             const double g36_32 = c23*r32 - g16_12*s23;
@@ -443,20 +440,21 @@ static int closed_form(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (g36_13*s5) / dt4;
-                    s4 = (-g16_33*s5) / dt4;
+                    c4 = -g36_13*s5;
+                    s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -466,40 +464,43 @@ static int closed_form(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 - g16_31*s4;
-            const double g46_12 = c4*g36_12 - g16_32*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 + g36_31*s5;
-            const double g56_12 = c5*g46_12 + g36_32*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = g36_31*s5;
+                    s6 = -g36_32*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g16_31 = -c1*r21 + r11*s1;
+                const double g16_32 = -c1*r22 + r12*s1;
+                const double g36_11 = c23*g16_11 + r31*s23;
+                const double g36_12 = c23*g16_12 + r32*s23;
+                const double g46_11 = -g16_31*us4 + g36_11*uc4;
+                const double g46_12 = -g16_32*us4 + g36_12*uc4;
+                const double g56_11 = c5*g46_11 + g36_31*s5;
+                const double g56_12 = c5*g46_12 + g36_32*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 
@@ -640,9 +641,10 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy - 0.16500000000000001*r23;
     const double wz = pcz - 0.16500000000000001*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
     const double g16_24 = 0.28999999999999998 - pcz;
+    const double ks2_3 = -0.34000000000000002*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
      * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -691,10 +693,11 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
-        const double g16_31 = -c1*r21 + r11*s1;
-        const double g16_32 = -c1*r22 + r12*s1;
         const double g16_33 = c1*r23 - r13*s1;
         const double g16_34 = c1*pcy - pcx*s1;
+        const double kc2_0 = -0.035000000000000003*v1x - 0.34999999999999998*v1y;
+        const double kc2_1 = 0.34999999999999998*v1x - 0.035000000000000003*v1y;
+        const double kc2_2 = -0.34000000000000002*v1x;
         const double dq2 = -v1x*v1x - v1y*v1y;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
@@ -722,14 +725,11 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
             int free2 = 1;
             {
-                const double t7_0_0 = c3*v1x;
-                const double t7_0_1 = c3*v1y;
-                const double t7_0_2 = s3*v1y;
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999991e-22) {
-                    c2 = (0.34999999999999998*s3*v1x - 0.035000000000000003*t7_0_0 - 0.34999999999999998*t7_0_1 - 0.035000000000000003*t7_0_2 - 0.34000000000000002*v1x) / dt2;
-                    s2 = (0.035000000000000003*s3*v1x + 0.34999999999999998*t7_0_0 - 0.035000000000000003*t7_0_1 + 0.34999999999999998*t7_0_2 - 0.34000000000000002*v1y) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                     free2 = 0;
                     wk2 = 9.9999999999999986e-10;
                 }
@@ -823,8 +823,6 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
             const double s23 = c2*s3 + c3*s2;
 
             /* A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one) */
-            const double g36_11 = c23*g16_11 + r31*s23;
-            const double g36_12 = c23*g16_12 + r32*s23;
             const double g36_13 = c23*g16_13 - r33*s23;
             const double g36_31 = c23*r31 - g16_11*s23;
             const double g36_32 = c23*r32 - g16_12*s23;
@@ -845,20 +843,21 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
             c5 = cn5;
             s5 = sn5;
 
-            /* th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th4 = 0.0, c4 = 0.0, s4 = 0.0, dt4, wk4 = 0.0;
             int free4 = 1;
             {
 
                 dt4 = -s5*s5;
                 if (fabs(dt4) > 9.9999999999999995e-21) {
-                    c4 = (g36_13*s5) / dt4;
-                    s4 = (-g16_33*s5) / dt4;
+                    c4 = -g36_13*s5;
+                    s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - 1.0) > 0.0001) {
+            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
                 if (fabs(dt4) > wk4) {
                     continue;
                 }
@@ -868,40 +867,43 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
                 s4 = sin(th4);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq4 = c4 * c4 + s4 * s4;
-                    if (fabs(hq4 - 1.0) > 1.0000000000000001e-15) {
-                        const double hn4 = 1.0 / sqrt(hq4);
-                        c4 = c4 * hn4;
-                        s4 = s4 * hn4;
-                    }
-                }
             }
 
-            /* A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one) */
-            const double g46_11 = c4*g36_11 - g16_31*s4;
-            const double g46_12 = c4*g36_12 - g16_32*s4;
-
-            /* A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one) */
-            const double g56_11 = c5*g46_11 + g36_31*s5;
-            const double g56_12 = c5*g46_12 + g36_32*s5;
-
-            /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
+            /* th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
+             * no later step reads them, atan2 needs only their direction */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
             {
 
+                dt6 = free4 ? 0.0 : -s5*s5;
+                if (fabs(dt6) > 1e-08) {
+                    c6 = g36_31*s5;
+                    s6 = -g36_32*s5;
+                    free6 = 0;
+                    wk6 = 1e-08;
+                }
+            }
+            if (free6) {
+                const double un4 = 1.0/sqrt(c4*c4 + s4*s4);
+                const double uc4 = c4*un4;
+                const double us4 = s4*un4;
+                const double g16_31 = -c1*r21 + r11*s1;
+                const double g16_32 = -c1*r22 + r12*s1;
+                const double g36_11 = c23*g16_11 + r31*s23;
+                const double g36_12 = c23*g16_12 + r32*s23;
+                const double g46_11 = -g16_31*us4 + g36_11*uc4;
+                const double g46_12 = -g16_32*us4 + g36_12*uc4;
+                const double g56_11 = c5*g46_11 + g36_31*s5;
+                const double g56_12 = c5*g46_12 + g36_32*s5;
+
                 dt6 = 1.0;
-                c6 = (g56_11) / dt6;
-                s6 = (-g56_12) / dt6;
+                c6 = g56_11;
+                s6 = -g56_12;
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
                 continue;
             }
 

@@ -385,9 +385,10 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy - 0.165*r23
     wz = pcz - 0.165*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
     v1y = 0.29 - wz
     g16_24 = 0.29 - pcz
+    ks2_3 = -0.34*v1y
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -423,10 +424,11 @@ def _closed_form(pose, current, check_finite=True):
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
-        g16_31 = -c1*r21 + r11*s1
-        g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        kc2_0 = -0.035*v1x - 0.35*v1y
+        kc2_1 = 0.35*v1x - 0.035*v1y
+        kc2_2 = -0.34*v1x
         dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -445,14 +447,11 @@ def _closed_form(pose, current, check_finite=True):
             s3 = 17.479327199720892*(-0.238*ec3 + 0.0238*root3*sg3)
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = c3*v1x
-            t7_0_1 = c3*v1y
-            t7_0_2 = s3*v1y
 
             dt2 = dq2
             if dt2 > 1e-21 or dt2 < -1e-21:
-                c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
-                s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -566,8 +565,6 @@ def _closed_form(pose, current, check_finite=True):
             s23 = c2*s3 + c3*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
-            g36_11 = c23*g16_11 + r31*s23
-            g36_12 = c23*g16_12 + r32*s23
             g36_13 = c23*g16_13 - r33*s23
             g36_31 = c23*r31 - g16_11*s23
             g36_32 = c23*r32 - g16_12*s23
@@ -585,21 +582,17 @@ def _closed_form(pose, current, check_finite=True):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (g36_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = -g36_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -614,23 +607,34 @@ def _closed_form(pose, current, check_finite=True):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 - g16_31*s4
-            g46_12 = c4*g36_12 - g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g36_31*s5
-            g56_12 = c5*g46_12 + g36_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = g36_31*s5
+                s6 = -g36_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = -c1*r21 + r11*s1
+                g16_32 = -c1*r22 + r12*s1
+                g36_11 = c23*g16_11 + r31*s23
+                g36_12 = c23*g16_12 + r32*s23
+                g46_11 = -g16_31*us4 + g36_11*uc4
+                g46_12 = -g16_32*us4 + g36_12*uc4
+                g56_11 = c5*g46_11 + g36_31*s5
+                g56_12 = c5*g46_12 + g36_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
 
@@ -704,9 +708,10 @@ def inverse_joints(pose, current=None):
     wy = pcy - 0.165*r23
     wz = pcz - 0.165*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
     v1y = 0.29 - wz
     g16_24 = 0.29 - pcz
+    ks2_3 = -0.34*v1y
 
     # th1: z of A1^-1 w = A2 A3 c3
     # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -742,10 +747,11 @@ def inverse_joints(pose, current=None):
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1 - 0.04
-        g16_31 = -c1*r21 + r11*s1
-        g16_32 = -c1*r22 + r12*s1
         g16_33 = c1*r23 - r13*s1
         g16_34 = c1*pcy - pcx*s1
+        kc2_0 = -0.035*v1x - 0.35*v1y
+        kc2_1 = 0.35*v1x - 0.035*v1y
+        kc2_2 = -0.34*v1x
         dq2 = -v1x*v1x - v1y*v1y
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -764,14 +770,11 @@ def inverse_joints(pose, current=None):
             s3 = 17.479327199720892*(-0.238*ec3 + 0.0238*root3*sg3)
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-            t7_0_0 = c3*v1x
-            t7_0_1 = c3*v1y
-            t7_0_2 = s3*v1y
 
             dt2 = dq2
             if dt2 > 1e-21 or dt2 < -1e-21:
-                c2 = (0.35*s3*v1x - 0.035*t7_0_0 - 0.35*t7_0_1 - 0.035*t7_0_2 - 0.34*v1x) / dt2
-                s2 = (0.035*s3*v1x + 0.35*t7_0_0 - 0.035*t7_0_1 + 0.35*t7_0_2 - 0.34*v1y) / dt2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
                 if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free2 = False
@@ -885,8 +888,6 @@ def inverse_joints(pose, current=None):
             s23 = c2*s3 + c3*s2
 
             # A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3 moved over (A2^-1 and A3^-1 together (parallel axes: their turns add) times the previous one)
-            g36_11 = c23*g16_11 + r31*s23
-            g36_12 = c23*g16_12 + r32*s23
             g36_13 = c23*g16_13 - r33*s23
             g36_31 = c23*r31 - g16_11*s23
             g36_32 = c23*r32 - g16_12*s23
@@ -904,21 +905,17 @@ def inverse_joints(pose, current=None):
             s5 = root5
             th5 = atan2(s5, c5)
 
-            # th4 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
+            # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
             if dt4 > 1e-20 or dt4 < -1e-20:
-                c4 = (g36_13*s5) / dt4
-                s4 = (-g16_33*s5) / dt4
+                c4 = -g36_13*s5
+                s4 = g16_33*s5
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
-                    th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
+                    th4 = atan2(s4, c4)   # as the C solver computes it
                 elif dt4 > 1e-08 or dt4 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
@@ -933,23 +930,34 @@ def inverse_joints(pose, current=None):
                 c4 = cos(th4)
                 s4 = sin(th4)
 
-            # A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4 moved over (A4^-1 times the previous one)
-            g46_11 = c4*g36_11 - g16_31*s4
-            g46_12 = c4*g36_12 - g16_32*s4
+            # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
+            # ~0); no later step reads them, atan2 needs only their direction
 
-            # A5^-1 A4^-1 A3^-1 A2^-1 A1^-1 T: the known side with joints 1, 2, 3, 4, 5 moved over (A5^-1 times the previous one)
-            g56_11 = c5*g46_11 + g36_31*s5
-            g56_12 = c5*g46_12 + g36_32*s5
+            dt6 = 0.0 if free4 else -s5*s5
+            if dt6 > 1e-08 or dt6 < -1e-08:
+                c6 = g36_31*s5
+                s6 = -g36_32*s5
+            else:
+                un4 = 1.0/sqrt(c4*c4 + s4*s4)
+                uc4 = c4*un4
+                us4 = s4*un4
+                g16_31 = -c1*r21 + r11*s1
+                g16_32 = -c1*r22 + r12*s1
+                g36_11 = c23*g16_11 + r31*s23
+                g36_12 = c23*g16_12 + r32*s23
+                g46_11 = -g16_31*us4 + g36_11*uc4
+                g46_12 = -g16_32*us4 + g36_12*uc4
+                g56_11 = c5*g46_11 + g36_31*s5
+                g56_12 = c5*g46_12 + g36_32*s5
 
-            # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
-
-            c6 = g56_11
-            s6 = -g56_12
+                dt6 = 1.0
+                c6 = g56_11
+                s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 or hq6 > 1.0001:   # abs(hq - 1) > 1e-4
+            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
                 continue
-            th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
+            th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - 0.5235987755982991

@@ -34,7 +34,7 @@ GENERATOR = f"ikgen {__version__} (sympy {sp.__version__})"
 
 class ProductPowers:
     """Printer mix-in: x**2..x**4 as products (faster than pow in every target), x**-1 as a
-    division and x**(1/2) as the target's square root. Set ``sqrt_name`` and ``one``."""
+    division, x**(1/2) as the target's square root and x**(-1/2) as one over it. Set ``sqrt_name`` and ``one``."""
 
     sqrt_name = "sqrt"
     one = "1.0"
@@ -49,6 +49,8 @@ class ProductPowers:
             return f"{self.one}/" + self.parenthesize(base, PRECEDENCE["Atom"] - 1)
         if exp == sp.Rational(1, 2):
             return f"{self.sqrt_name}({self._print(base)})"
+        if exp == sp.Rational(-1, 2):
+            return f"{self.one}/{self.sqrt_name}({self._print(base)})"
         return super()._print_Pow(expr, rational)
 
 
@@ -119,6 +121,14 @@ class Assignment:
     expr: sp.Expr
 
 
+def form_limit(threshold: float, after: str, real: str) -> float:
+    """|det| above which a pair's form is used (FormPlan.limit)."""
+    if not after:
+        return threshold
+    typical = 10.0 ** round(math.log10(threshold / SINGULAR_TOLERANCE))
+    return max(threshold, typical * DIRECT_FLOOR[real])
+
+
 @dataclass
 class FormPlan:
     temps: list[Assignment]
@@ -127,6 +137,25 @@ class FormPlan:
     sin_num: sp.Expr
     threshold: float
     constant_det: bool
+    after: str = ""              # tried only where this sibling pair's unknown was not left free
+
+    def limit(self, real: str) -> float:
+        """|det| above which this form is used. A form that does without its sibling (``after``) is
+        used only where it is well conditioned: its cosine and sine come from quantities of the
+        order of det, so rounding turns its angle by about eps / |det| relative, and unlike the
+        sibling's own fallback (which reads the sibling's angle and so makes up for its error) the
+        two angles' errors add in the pose. DIRECT_FLOOR (relative to the determinant's typical
+        size) bounds that: below it the fallback is used."""
+        return form_limit(self.threshold, self.after, real)
+
+    @property
+    def det_sign(self) -> int:
+        """+1 or -1 when the determinant's sign is known from its form (a square, minus a square;
+        its inputs are real), else 0: a scale-free pair then needs no sign test."""
+        det = sp.sympify(self.det)
+        if det.is_number:
+            return 1 if det > 0 else -1
+        return 1 if det.is_nonnegative else (-1 if det.is_nonpositive else 0)
 
     @property
     def weak(self) -> float:
@@ -180,6 +209,9 @@ class Block:
     late_angle: bool = False     # pair, or cossin with one atan2 per root and no free case: no later
                                  # block reads th<key>, so a back-end may defer its atan2 to where the
                                  # solution is written (fewer values live across the call)
+    scale_free: bool = False     # pair whose cosine and sine nothing later reads: they are kept as the
+                                 # numerators with the determinant's sign (c = +-cos_num, s = +-sin_num),
+                                 # which is all atan2 needs: no division, no unit scaling
 
     @property
     def joint(self) -> str:      # the unknown's key (kept for templates that name variables by it)
@@ -409,8 +441,8 @@ def lower_now(derivation: Derivation) -> Plan:
                 exprs = [numeric(e, params) for e in (form.det, form.cos_num, form.sin_num)]
                 temps, (det, cos_num, sin_num) = eliminate(exprs, f"{prefix}{k}_")
                 constant_det = det.is_number and det != 0
-                forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det))
-                if constant_det:
+                forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det, form.after))
+                if constant_det and not form.after:
                     break          # a constant determinant never vanishes: later forms are unreachable
             blocks.append(Block("pair", depth, f"th{step.key} from a linear pair", key=step.key, hint=hint,
                                 forms=forms, free_possible=not forms[-1].constant_det))
@@ -480,11 +512,100 @@ def lower_now(derivation: Derivation) -> Plan:
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
     plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
                 derivation.max_solutions, depth, branch_joints, mirror)
+    separate_siblings(plan)
     drop_unused(plan)
+    mark_scale_free(plan)
     propagate_aliases(plan)
     hoist(plan)
     mark_late_angles(plan)
     return plan
+
+
+def separate_siblings(plan: Plan) -> None:
+    """Where a pair's first form does without the sibling pair solved just before it (``after``),
+    only its later forms (the fallback) read the sibling's cosine and sine: the named intermediates
+    of the same loop body that nothing but the fallback reads move into the fallback forms, and
+    there the sibling's (cos, sin) are read scaled to unit length (the sibling may keep them as
+    numerators, see mark_scale_free). Then nothing on the usual path reads the sibling's cosine
+    and sine. A form's guard is dropped when the sibling can never be free."""
+    for index, block in enumerate(plan.blocks):
+        if block.kind != "pair" or not block.forms or not block.forms[0].after:
+            continue
+        sibling = block.forms[0].after
+        start = next(i for i in range(index - 1, -1, -1) if plan.blocks[i].key == sibling)
+        if plan.blocks[start].kind != "pair":
+            block.forms[0].after = ""
+            continue
+        if not plan.blocks[start].free_possible:
+            block.forms[0].after = ""          # the sibling is always determined: no guard needed
+        kept_reads: set = {angle_symbol(out.joint) for out in plan.outputs}   # what all but the fallback reads
+        for e in [a.expr for a in plan.final_temps] + list(plan.label_measures) + \
+                [e for other in plan.blocks[index + 1:] for e in block_exprs(other)] + \
+                [a.expr for a in block.temps + block.forms[0].temps] + \
+                [block.forms[0].det, block.forms[0].cos_num, block.forms[0].sin_num]:
+            kept_reads |= sp.sympify(e).free_symbols
+        sunk: list[Assignment] = []
+        first = start
+        while first > 0 and plan.blocks[first - 1].depth == block.depth:
+            first -= 1                         # the same loop body: a value read there is the same
+        for between in reversed(plan.blocks[first:index]):
+            if between.kind != "compute":
+                for e in block_exprs(between):
+                    kept_reads |= sp.sympify(e).free_symbols
+                continue
+            stay = []
+            for assignment in reversed(between.temps):
+                if assignment.target in kept_reads:
+                    stay.append(assignment)
+                    kept_reads |= sp.sympify(assignment.expr).free_symbols
+                else:
+                    sunk.append(assignment)
+            between.temps = list(reversed(stay))
+        sunk.reverse()
+        cos_k, sin_k = cos_symbol(sibling), sin_symbol(sibling)
+        scale = sp.Symbol(f"un{sibling}", real=True)
+        unit = {cos_k: sp.Symbol(f"uc{sibling}", real=True), sin_k: sp.Symbol(f"us{sibling}", real=True)}
+        head = [Assignment(scale, 1 / sp.sqrt(cos_k ** 2 + sin_k ** 2)),
+                Assignment(unit[cos_k], cos_k * scale), Assignment(unit[sin_k], sin_k * scale)]
+        for form in block.forms[1:]:
+            needed: set = set()
+            for e in [a.expr for a in form.temps] + [form.det, form.cos_num, form.sin_num]:
+                needed |= sp.sympify(e).free_symbols
+            temps = []
+            for assignment in reversed(sunk):
+                if assignment.target in needed:
+                    temps.append(assignment)
+                    needed |= sp.sympify(assignment.expr).free_symbols
+            temps = [Assignment(a.target, a.expr.xreplace(unit)) for a in reversed(temps)]
+            if needed & {cos_k, sin_k}:
+                temps = head + temps
+            form.temps = temps + [Assignment(a.target, a.expr.xreplace(unit)) for a in form.temps]
+            form.det, form.cos_num, form.sin_num = (sp.sympify(e).xreplace(unit)
+                                                    for e in (form.det, form.cos_num, form.sin_num))
+    plan.blocks = [b for b in plan.blocks if b.kind != "compute" or b.temps]
+
+
+def mark_scale_free(plan: Plan) -> None:
+    """A pair block whose cosine and sine no later step reads (but for a fallback that scales them
+    to unit length itself, see separate_siblings) only needs their direction: see
+    Block.scale_free."""
+    tail = [a.expr for a in plan.final_temps] + list(plan.label_measures)
+    for index, block in enumerate(plan.blocks):
+        if block.kind != "pair":
+            continue
+        own = {cos_symbol(block.key), sin_symbol(block.key)}
+        scaling = {sp.Symbol(f"{prefix}{block.key}", real=True) for prefix in ("un", "uc", "us")}
+        exprs = list(tail)
+        for later in plan.blocks[index + 1:]:
+            exprs += [a.expr for a in later.temps]
+            exprs += [e for e in (later.norm, later.radicand, later.cn, later.sn) if e is not None]
+            exprs += list(later.coefficients)
+            if later.kind == "sum":
+                exprs += [later.cos_expr, later.sin_expr]
+            for form in later.forms:
+                exprs += [a.expr for a in form.temps if a.target not in scaling]
+                exprs += [form.det, form.cos_num, form.sin_num]
+        block.scale_free = not any(own & sp.sympify(e).free_symbols for e in exprs)
 
 
 def mark_late_angles(plan: Plan) -> None:
@@ -599,6 +720,8 @@ def hoist(plan: Plan) -> None:
                 for assignment in form.temps:
                     level[assignment.target] = block.depth
                 continue
+            if block.kind == "pair":
+                collect_invariants(block, form, level)
             form.temps = [a for a in form.temps if stays(a, block.depth, block.comment)]
             if not sp.sympify(form.det).is_number:
                 named = Assignment(sp.Symbol(f"dq{block.key}", real=True), form.det)
@@ -621,6 +744,55 @@ def hoist(plan: Plan) -> None:
             blocks.append(block)
     assert not moved, "a hoisted intermediate found no loop to move before"
     plan.blocks = blocks
+
+
+def collect_invariants(block: Block, form: FormPlan, level: dict) -> None:
+    """A pair's numerators as polynomials in the quantities of its own loop level, with coefficients
+    made of outer ones (named kc/ks<key>_<i>, so hoist moves them before the loop): for an elbow
+    loop, cos_num = k0 c3 + k1 s3 + k2 costs two products a root instead of a dozen. Only where some
+    coefficient is not a plain number and the numerators are polynomials."""
+    local = {a.target: a.expr for a in form.temps}
+
+    def expanded(expr):
+        expr = sp.sympify(expr)
+        while local and expr.free_symbols & local.keys():
+            expr = expr.xreplace(local)
+        return expr
+    parts = [expanded(form.cos_num), expanded(form.sin_num)]
+    inner = sorted({symbol for e in parts for symbol in e.free_symbols if level.get(symbol, block.depth) >= block.depth},
+                   key=str)
+    outer = {symbol for e in parts for symbol in e.free_symbols} - set(inner)
+    if not inner or not outer or any(isinstance(node, sp.Function) or (isinstance(node, sp.Pow) and not
+                                     (node.exp.is_Integer and node.exp > 0)) for e in parts for node in sp.preorder_traversal(e)):
+        return
+    names: dict = {}                  # coefficient -> its name (a negated one reads the name negated)
+    temps: list[Assignment] = []
+
+    def coefficient(expr, letter):
+        expr = sp.expand(expr)
+        if expr.is_number or isinstance(expr, sp.Symbol) or isinstance(-expr, sp.Symbol):
+            return expr                   # nothing to compute ahead
+        if expr in names:
+            return names[expr]
+        if -expr in names:
+            return -names[-expr]
+        name = sp.Symbol(f"k{letter}{block.key}_{len(temps)}", real=True)
+        names[expr] = name
+        temps.append(Assignment(name, expr))
+        return name
+    collected = []
+    for e, letter in zip(parts, "cs"):
+        poly = sp.Poly(sp.expand(e), *inner)
+        collected.append(sp.Add(*[coefficient(c, letter) * sp.Mul(*[v ** p for v, p in zip(inner, m)])
+                                  for m, c in poly.terms()]))
+    if not temps:
+        return
+    form.cos_num, form.sin_num = collected
+    needed = set(sp.sympify(form.det).free_symbols)      # the local temps the determinant still reads
+    for assignment in reversed(form.temps):
+        if assignment.target in needed:
+            needed |= assignment.expr.free_symbols
+    form.temps = [a for a in form.temps if a.target in needed] + temps
 
 
 def _named(block: Block, expr, name: str) -> sp.Symbol:
@@ -842,6 +1014,11 @@ ROLL_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # rad (chord): a pose whose
 ROLL_GAIN = {"double": 1e-12, "float": 0.0}
 ROLL_FLOOR = {"double": 1e-8, "float": 1e-4}
 UNIT_TOLERANCE = {"double": 1e-6, "float": 1e-4}     # |direction| off 1 by more is invalid input
+# A form that does without its sibling pair (FormPlan.limit) is used where |det| exceeds this much of
+# its typical size; below, the fallback that reads the sibling's angle. For a wrist (det = -s5^2) that is
+# s5 > 1e-4 in double (the two angles then err by at most about 1e-12 rad together) and s5 > 0.03 in
+# float (about 2e-6 rad, within the float build's round-trip bound of 2e-5).
+DIRECT_FLOOR = {"double": 1e-8, "float": 1e-3}
 # A linear pair's cos^2 + sin^2 off 1 by more than this is renormalised before later steps use the
 # pair: a later step may take a small angle from a cosine near 1 (sqrt((1 - c)(1 + c))), where a scale
 # drift of d costs about d / m in the angle (m its conditioning measure), so the slack must stay below

@@ -472,13 +472,16 @@ def pair_view(number: int, step: LinearPair, names: Names, params, guards, deriv
     for k, form in enumerate(step.forms, 1):
         det_value = common.numeric(form.det, params)
         constant = bool(det_value.is_number and det_value != 0)
+        limit = common.form_limit(form.threshold, form.after, "double")
         view.forms.append({
-            "number": k, "source": form.source, "threshold": threshold_text(form.threshold),
-            "threshold_latex": threshold_latex(form.threshold), "constant": constant,
+            "number": k, "source": form.source, "threshold": threshold_text(limit),
+            "threshold_latex": threshold_latex(limit), "constant": constant and not form.after,
+            "after": form.after, "float_threshold": threshold_text(common.form_limit(form.threshold, form.after, "float")),
+            "float_threshold_latex": threshold_latex(common.form_limit(form.threshold, form.after, "float")),
             "equations": [Printed(f"s{number}.f{k}.D", D, "=", names.show(readable(form.det, params)), form.det),
                           Printed(f"s{number}.f{k}.U", U, "=", names.show(readable(form.cos_num, params)), form.cos_num),
                           Printed(f"s{number}.f{k}.V", V, "=", names.show(readable(form.sin_num, params)), form.sin_num)]})
-        if constant:
+        if constant and not form.after:
             break           # a constant determinant never vanishes: later forms are never used (as in the code)
     c, s = names.map[cos_symbol(j)], names.map[sin_symbol(j)]
     view.root = [Printed(f"s{number}.c", c, "=", U / D, None), Printed(f"s{number}.s", s, "=", V / D, None)]

@@ -22,7 +22,7 @@ from .context import make_setup
 from .targets import check_given, check_independent, resolve as resolve_target
 from .labels import MEANINGS, build_labels, plan_labels, root_label
 from .mirror import attach_mirror
-from .solver import Solver, free_symbols_of
+from .solver import Solver, drop_idle_sibling_forms, free_symbols_of
 from .strategies import STRATEGIES
 
 def derive(arm: Arm) -> Derivation:
@@ -59,7 +59,8 @@ def derive(arm: Arm) -> Derivation:
     for label in setup.labels:
         for symbol in sorted(label.measure.free_symbols, key=str):
             solver.ensure(symbol)
-    steps = [first_root_first(step, setup.labels, setup.samples) for step in solver.steps]
+    steps = drop_idle_sibling_forms(solver.steps, setup.labels)
+    steps = [first_root_first(step, setup.labels, setup.samples) for step in steps]
     steps = attach_mirror(steps, setup.labels, solver.circles)
     solved = {step.key for step in steps if hasattr(step, "key")}
     used = set().union(*(free_symbols_of(s) for s in steps)) | set().union(*(l.measure.free_symbols for l in setup.labels))

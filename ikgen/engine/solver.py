@@ -18,6 +18,7 @@ the alternatives; thresholds are powers of ten of typical sizes, so they are det
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import itertools
 import math
@@ -335,7 +336,8 @@ class Solver:
         for key in sorted(candidates, key=key_order):
             forms = self.pair_forms(candidates[key], key)
             if forms:
-                return LinearPair(key, tuple(forms), self.pair_singular(key, forms))
+                direct = self.sibling_form(key, candidates[key], forms)
+                return LinearPair(key, tuple(direct + forms), self.pair_singular(key, forms))
         for key in sorted(lengths, key=key_order):
             step = self.linear_length(key, [n for n in lengths[key] if n.linear])
             if step is not None:
@@ -363,6 +365,30 @@ class Solver:
             return None
         built.sort(key=lambda item: item[:4])
         return self.cos_sin(built[0][4], built[0][5])
+
+    def sibling_form(self, key: str, candidates: list["NumericLinear"], forms: list[PairForm]) -> list[PairForm]:
+        """A first form for ``key`` that does without the unknown solved just before it, when that
+        one came from a linear pair too (the two are siblings: the joints 4 and 6 of a wrist once
+        joint 5 is known). Its best pair would read the sibling's cosine and sine (a constant
+        determinant, after moving the sibling's transform over); the form from the equations
+        without the sibling is tried first, only where the sibling was not left free. Then
+        nothing but the fallback reads the sibling's cosine and sine, and a back-end can leave both
+        angles as one atan2 each of quantities known before either (no division, no unit scaling,
+        no product through the sibling's transform). Empty when there is no such form or the best
+        forms already do without the sibling."""
+        if not self.solved or self.solved[-1] == key:
+            return []
+        sibling = self.solved[-1]
+        if not any(isinstance(step, LinearPair) and step.key == sibling for step in self.steps):
+            return []
+        own = [n for n in candidates if sibling not in n.equation.depends]
+        if len(own) == len(candidates):
+            return []           # no candidate reads the sibling: the usual forms already do without it
+        direct = self.pair_forms(own, key)
+        if not direct or (direct[0].det, direct[0].cos_num, direct[0].sin_num) == \
+                (forms[0].det, forms[0].cos_num, forms[0].sin_num):
+            return []
+        return [dataclasses.replace(direct[0], after=sibling)]
 
     def scored_pairs(self, candidates: list["NumericLinear"]) -> list:
         """Every two candidates whose determinant is not identically zero, with their rank:
@@ -793,6 +819,40 @@ def strip_free_factors(residual: sp.Expr, det: sp.Expr, unknown: Unknown) -> sp.
                 break
             residual = quotient.as_expr()
     return sp.expand(residual)
+
+
+def drop_idle_sibling_forms(steps: list, labels: list) -> list:
+    """A pair's form that does without its sibling (PairForm.after) pays off only when nothing else
+    reads the sibling's cosine and sine: then no step needs them scaled to unit length. Where a
+    later step, a label, or an intermediate they feed reads them anyway, the form is dropped (the
+    pair's other forms stay as they were), and with it the intermediates written out only for it."""
+    steps = list(steps)
+    label_reads = set().union(*(label.measure.free_symbols for label in labels))
+    for index, step in enumerate(steps):
+        if not isinstance(step, LinearPair) or not step.forms[0].after:
+            continue
+        sibling = step.forms[0].after
+        start = next(i for i in range(index - 1, -1, -1)
+                     if isinstance(steps[i], LinearPair) and steps[i].key == sibling)
+        direct = step.forms[0]
+        reads = label_reads | direct.det.free_symbols | direct.cos_num.free_symbols | direct.sin_num.free_symbols
+        for other in steps[start + 1:]:
+            if other is not step and not isinstance(other, Compute):
+                reads |= free_symbols_of(other)
+        for other in reversed(steps):     # what the intermediates read hold the readers read
+            if isinstance(other, Compute):
+                for name, expr in zip(other.names, other.exprs):
+                    if name in reads:
+                        reads |= expr.free_symbols
+        if not reads & {sp.Symbol(f"c{sibling}", real=True), sp.Symbol(f"s{sibling}", real=True)}:
+            continue
+        steps[index] = dataclasses.replace(step, forms=step.forms[1:])
+        for between in range(index - 1, start, -1):
+            if isinstance(steps[between], Compute):
+                others = set().union(label_reads, *(free_symbols_of(o) for k, o in enumerate(steps) if k != between))
+                if not set(steps[between].names) & others:
+                    steps[between] = Compute((), (), "")      # read by nothing now: removed below
+    return [s for s in steps if not (isinstance(s, Compute) and not s.names)]
 
 
 def free_symbols_of(step) -> set:
