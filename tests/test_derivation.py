@@ -31,7 +31,7 @@ from ikgen.errors import StructureError
 from ikgen.generate import build, load_module
 from ikgen.ir import Compute, CosSinEquation, LinearPair, cos_symbol, sin_symbol
 from ikgen.kinematics import NumericChain
-from ikgen.verify import verify
+from ikgen.verify import random_readings, verify
 
 DEMOS = [p.stem for p in DEMO_FILES]
 
@@ -48,6 +48,33 @@ def demos():
 
 
 # --------------------------------------------------------------------------- IR structure
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_readings_stay_in_one_turn_with_one_sided_wraps(demos, stem):
+    """A reading is wrapped into (-half turn, half turn] by conditional turns; the plan leaves out a
+    side its DH angle cannot reach (Plan.wrap_sides: an atan2 result lies in [-pi, pi], C99 F.9.1.4
+    and Python's math.atan2; a mirrored twin's angle + pi in [0, 2 pi]). Seeded poses and poses
+    whose readings sit exactly on a half turn (where a missing side would show as -180 deg instead
+    of 180 deg, or beyond): every revolute reading of every solution stays in one turn."""
+    arm, result, module = demos[stem]
+    if arm.dof != 6 or arm.given_joint is not None or not hasattr(module, "inverse_joints"):
+        pytest.skip("a six-joint arm solved from the pose alone")
+    chain = NumericChain(arm)
+    half = math.pi / float(arm.angle_scale)
+    readings = random_readings(arm, 300, np.random.default_rng(7))
+    edges = np.repeat(readings[:12], 2, axis=0)
+    for k, row in enumerate(edges):
+        j = (k // 2) % 6
+        if arm.joints[j].revolute:
+            row[j] = half if k % 2 == 0 else -half + 1e-9 * half
+    plan = common.lower(result.derivation)
+    assert any(plan.wrap_sides(out, False) not in (None, (True, True)) for out in plan.outputs if not out.prismatic)
+    revolute = [j for j in range(6) if arm.joints[j].revolute]
+    for pose in chain.poses(np.vstack([readings, edges])):
+        for solution in module.inverse_joints(pose.tolist()):
+            values = np.array(solution)[revolute]
+            assert np.all(values > -half) and np.all(values <= half), solution
+
 
 def test_a_wrist_takes_joint_6_without_joint_4_where_nothing_else_needs_joint_4():
     """Joints 4 and 6 of a wrist with joint 5 known: joint 6's first form does without joint 4

@@ -200,7 +200,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen2 = numpy.zeros((), dtype=bool)
 
         dt2 = dq2
-        use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
+        use = ~chosen2 & (dt2 < -9.999999999999999e-16)
         c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
         s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
@@ -317,7 +317,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = -s5*s5
-        use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
+        use = ~chosen4 & (dt4 < -1e-20)
         c4 = -g36_13*s5
         s4 = g16_33*s5
         wk4 = numpy.where(use, 1e-08, 0.0)
@@ -337,7 +337,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -s5*s5)
-        use = ~chosen6 & (numpy.abs(dt6) > 1e-08)
+        use = ~chosen6 & (dt6 < -1e-08)
         c6 = g36_31*s5
         s6 = -g36_32*s5
         dk6 = dt6
@@ -370,15 +370,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm1 = 62400*c3 + 5200*s3
         lm2 = s5
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - -1.5707963267948966
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 - _TWO_PI * (u2 > _PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 + _TWO_PI * (u3 <= -_PI)
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 + _TWO_PI * (u4 <= -_PI)
         u5 = th5
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
@@ -422,11 +424,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u4 = th4 + _PI
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 - _TWO_PI * (u4 > _PI)
         u5 = -th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6 + _PI
-        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+        u6 = u6 - _TWO_PI * (u6 > _PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.add(out_joints[..., 0, 0, :], blank, out=col)

@@ -263,15 +263,17 @@ static int closed_form(const double pose[16], const double *current,
     }
     const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
     const double dl2 = boardpick4_ik_atan2(root2, ec2);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double pc2 = 5.594405594405594e-06*ec2;
+    const double qs2 = 5.594405594405594e-06*root2;
+
     const int n2 = (root2 == 0.0) ? 1 : 2;
     for (int k2 = 0; k2 < n2; ++k2) {
         const double sg2 = k2 ? -1.0 : 1.0;
         double th2, c2, s2;
-        const double cn2 = 178750.0*ec2;
-        const double sn2 = 178750.0*root2*sg2;
         th2 = 0.0 + sg2 * dl2;
-        c2 = 3.1297373954716612e-11*cn2;
-        s2 = 3.1297373954716612e-11*sn2;
+        c2 = pc2;
+        s2 = qs2*sg2;
 
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         double th1, c1 = 0.0, s1 = 0.0, dt1, wk1 = 0.0;
@@ -437,7 +439,7 @@ static int closed_form(const double pose[16], const double *current,
         const int fine = probe - probe == 0.0;
         {
             double u1 = th1;
-            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
             const double jv1 = u1 * 57.295779513082323;
             double u2 = th2;
             u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);

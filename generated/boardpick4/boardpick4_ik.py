@@ -435,10 +435,14 @@ def _closed_form(pose, current, check_finite=True):
         return solutions
     root2 = sqrt(er2) if er2 > 0.0 else 0.0
     dl2 = atan2(root2, ec2)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    pc2 = 5.594405594405594e-06*ec2
+    qs2 = 5.594405594405594e-06*root2
+
     for sg2 in ((1.0,) if root2 == 0.0 else (1.0, -1.0)):
         th2 = 0.0 + sg2 * dl2
-        c2 = 3.129737395471661e-11*(178750.0*ec2)
-        s2 = 3.129737395471661e-11*(178750.0*root2*sg2)
+        c2 = pc2
+        s2 = qs2*sg2
 
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
@@ -607,13 +611,13 @@ def _closed_form(pose, current, check_finite=True):
         lm0 = 89375.0*s2
         singular = free3 or root2 == 0.0 or free1
         conditioning = (root2 * 5.594405594405594e-06, )
-        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
         v1 = u1 * 57.29577951308232
-        u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+        u2 = th2 - 6.283185307179586 if th2 > 3.141592653589793 else (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2)
         v2 = u2 * 57.29577951308232
         v3 = (l3 - 0.0) * 1.0
-        u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
-        u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+        u4 = th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)
+        u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
         v4 = u4 * 57.29577951308232
         la0 = "counterclockwise" if lm0 >= 0.0 else "clockwise"
         solutions.append(_new(Solution, ((v1, v2, v3, v4, ), (

@@ -392,7 +392,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         lm0 = 89375*s2
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2
         u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
         u3 = (l3 - 0.0) * 1.0

@@ -247,15 +247,17 @@ static int closed_form(const float pose[16], const float *current,
     }
     const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
     const float dl2 = boardpick4_ik_f32_atan2(root2, ec2);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const float pc2 = 5.59440559e-06f*ec2;
+    const float qs2 = 5.59440559e-06f*root2;
+
     const int n2 = (root2 == 0.0f) ? 1 : 2;
     for (int k2 = 0; k2 < n2; ++k2) {
         const float sg2 = k2 ? -1.0f : 1.0f;
         float th2, c2, s2;
-        const float cn2 = 178750.0f*ec2;
-        const float sn2 = 178750.0f*root2*sg2;
         th2 = 0.0f + sg2 * dl2;
-        c2 = 3.1297374e-11f*cn2;
-        s2 = 3.1297374e-11f*sn2;
+        c2 = pc2;
+        s2 = qs2*sg2;
 
         /* th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
         float th1, c1 = 0.0f, s1 = 0.0f, dt1, wk1 = 0.0f;
@@ -421,7 +423,7 @@ static int closed_form(const float pose[16], const float *current,
         const int fine = probe - probe == 0.0f;
         {
             float u1 = th1;
-            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
             const float jv1 = u1 * 57.2957795f;
             float u2 = th2;
             u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);

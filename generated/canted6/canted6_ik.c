@@ -506,7 +506,7 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt1 = dq1;
-            if (fabs(dt1) > 9.999999999999999e-14) {
+            if (dt1 > 9.999999999999999e-14) {
                 c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
                 s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
@@ -572,7 +572,7 @@ static int closed_form(const double pose[16], const double *current,
             const double t7_0_5 = 20.0*v1x;
 
             dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y;
-            if (fabs(dt2) > 9.9999999999999988e-16) {
+            if (dt2 > 9.9999999999999988e-16) {
                 c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2;
                 s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2;
                 free2 = 0;
@@ -725,19 +725,15 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt4 = -s5*s5;
-            if (fabs(dt4) > 9.9999999999999995e-21) {
+            if (dt4 < -9.9999999999999995e-21) {
                 c4 = g36_13*s5;
                 s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
-        if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-            if (fabs(dt4) > wk4) {
-                continue;
-            }
-            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
+        /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+        (void)wk4;
         if (free4) {
             th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
@@ -751,7 +747,7 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt6 = free4 ? 0.0 : -s5*s5;
-            if (fabs(dt6) > 1e-08) {
+            if (dt6 < -1e-08) {
                 c6 = -g36_31*s5;
                 s6 = g36_32*s5;
                 free6 = 0;
@@ -799,19 +795,23 @@ static int closed_form(const double pose[16], const double *current,
         const int fine = probe - probe == 0.0;
         {
             double u1 = th1;
-            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
             const double jv1 = u1 * 57.295779513082323;
             double u2 = th2;
-            u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+            u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
             const double jv2 = u2 * 57.295779513082323;
             double u3 = th3;
             u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
             const double jv3 = u3 * 57.295779513082323;
             double u4 = th4;
-            u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+            u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
             const double jv4 = u4 * 57.295779513082323;
-            const double jv5 = th5 * 57.295779513082323;
-            const double jv6 = th6 * 57.295779513082323;
+            double u5 = th5;
+            u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+            const double jv5 = u5 * 57.295779513082323;
+            double u6 = th6;
+            u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+            const double jv6 = u6 * 57.295779513082323;
             const double cv0 = cnd3;
             const double cv1 = root5 * 1.0;
             if (fine && count < CANTED6_IK_CLOSED_FORM) {
@@ -836,22 +836,22 @@ static int closed_form(const double pose[16], const double *current,
         if (root5 > 0.0 && !free4) {
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                 const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4 + 3.1415926535897931;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
                 double u5 = -th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
                 double u6 = th6 + 3.1415926535897931;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                 const double jv6 = u6 * 57.295779513082323;
                 const double cv0 = cnd3;
                 const double cv1 = root5 * 1.0;
@@ -963,7 +963,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt1 = dq1;
-            if (fabs(dt1) > 9.999999999999999e-14) {
+            if (dt1 > 9.999999999999999e-14) {
                 c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
                 s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
@@ -1029,7 +1029,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             const double t7_0_5 = 20.0*v1x;
 
             dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y;
-            if (fabs(dt2) > 9.9999999999999988e-16) {
+            if (dt2 > 9.9999999999999988e-16) {
                 c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2;
                 s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2;
                 free2 = 0;
@@ -1182,19 +1182,15 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt4 = -s5*s5;
-            if (fabs(dt4) > 9.9999999999999995e-21) {
+            if (dt4 < -9.9999999999999995e-21) {
                 c4 = g36_13*s5;
                 s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
-        if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-            if (fabs(dt4) > wk4) {
-                continue;
-            }
-            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
+        /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+        (void)wk4;
         if (free4) {
             th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
             c4 = cos(th4);
@@ -1208,7 +1204,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt6 = free4 ? 0.0 : -s5*s5;
-            if (fabs(dt6) > 1e-08) {
+            if (dt6 < -1e-08) {
                 c6 = -g36_31*s5;
                 s6 = g36_32*s5;
                 free6 = 0;
@@ -1259,19 +1255,23 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const int fine = probe - probe == 0.0;
         {
             double u1 = th1;
-            u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
             const double jv1 = u1 * 57.295779513082323;
             double u2 = th2;
-            u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+            u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
             const double jv2 = u2 * 57.295779513082323;
             double u3 = th3;
             u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
             const double jv3 = u3 * 57.295779513082323;
             double u4 = th4;
-            u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+            u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
             const double jv4 = u4 * 57.295779513082323;
-            const double jv5 = th5 * 57.295779513082323;
-            const double jv6 = th6 * 57.295779513082323;
+            double u5 = th5;
+            u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+            const double jv5 = u5 * 57.295779513082323;
+            double u6 = th6;
+            u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+            const double jv6 = u6 * 57.295779513082323;
             if (fine && count < CANTED6_IK_CLOSED_FORM) {
                 double *row = joints[count++];
                 row[0] = jv1;
@@ -1285,22 +1285,22 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         if (root5 > 0.0 && !free4) {
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
                 u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
                 const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4 + 3.1415926535897931;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
                 double u5 = -th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
                 double u6 = th6 + 3.1415926535897931;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                 const double jv6 = u6 * 57.295779513082323;
                 if (fine && count < CANTED6_IK_CLOSED_FORM) {
                     double *row = joints[count++];

@@ -536,7 +536,7 @@ def _closed_form(pose, current, check_finite=True):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt1 = dq1
-        if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
+        if dt1 > 9.999999999999999e-14:
             c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
             s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
             hq1 = c1 * c1 + s1 * s1
@@ -595,7 +595,7 @@ def _closed_form(pose, current, check_finite=True):
         t7_0_5 = 20.0*v1x
 
         dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y
-        if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
+        if dt2 > 9.999999999999999e-16:
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
@@ -762,20 +762,12 @@ def _closed_form(pose, current, check_finite=True):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt4 = -s5*s5
-        if dt4 > 1e-20 or dt4 < -1e-20:
+        if dt4 < -1e-20:
             c4 = g36_13*s5
             s4 = g26_33*s5
-            hq4 = c4 * c4 + s4 * s4
-            if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                free4 = False
-                th4 = atan2(s4, c4)   # as the C solver computes it
-            elif dt4 > 1e-08 or dt4 < -1e-08:
-                continue
-            else:  # ill-conditioned near a singular pose: the pair does not fix it
-                free4 = True
-                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                c4 = cos(th4)
-                s4 = sin(th4)
+            # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+            free4 = False
+            th4 = atan2(s4, c4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
@@ -787,7 +779,7 @@ def _closed_form(pose, current, check_finite=True):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt6 = 0.0 if free4 else -s5*s5
-        if dt6 > 1e-08 or dt6 < -1e-08:
+        if dt6 < -1e-08:
             c6 = -g36_31*s5
             s6 = g36_32*s5
         else:
@@ -819,16 +811,18 @@ def _closed_form(pose, current, check_finite=True):
         lm2 = s5
         singular = free3 or dbl3 or free1 or free2 or root5 == 0.0 or free4
         conditioning = (cnd3, root5, )
-        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
         v1 = u1 * 57.29577951308232
-        u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
         v2 = u2 * 57.29577951308232
-        u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+        u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3)
         v3 = u3 * 57.29577951308232
-        u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
         v4 = u4 * 57.29577951308232
-        v5 = th5 * 57.29577951308232
-        v6 = th6 * 57.29577951308232
+        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+        v5 = u5 * 57.29577951308232
+        u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+        v6 = u6 * 57.29577951308232
         la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
         la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
         la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -840,14 +834,14 @@ def _closed_form(pose, current, check_finite=True):
         ), singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
         if root5 > 0.0 and not free4:
-            u4 = th4 + _PI
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 + 3.141592653589793
+            u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
             v4 = u4 * 57.29577951308232
             u5 = -th5
-            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
             v5 = u5 * 57.29577951308232
-            u6 = th6 + _PI
-            u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+            u6 = th6 + 3.141592653589793
+            u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
             v6 = u6 * 57.29577951308232
             solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                 la0,
@@ -914,7 +908,7 @@ def inverse_joints(pose, current=None):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         dt1 = dq1
-        if dt1 > 9.999999999999999e-14 or dt1 < -9.999999999999999e-14:
+        if dt1 > 9.999999999999999e-14:
             c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
             s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
             hq1 = c1 * c1 + s1 * s1
@@ -973,7 +967,7 @@ def inverse_joints(pose, current=None):
         t7_0_5 = 20.0*v1x
 
         dt2 = 0.8660254037844386*v1x*v1x + 0.8660254037844386*v1y*v1y
-        if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
+        if dt2 > 9.999999999999999e-16:
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
@@ -1140,20 +1134,12 @@ def inverse_joints(pose, current=None):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt4 = -s5*s5
-        if dt4 > 1e-20 or dt4 < -1e-20:
+        if dt4 < -1e-20:
             c4 = g36_13*s5
             s4 = g26_33*s5
-            hq4 = c4 * c4 + s4 * s4
-            if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                free4 = False
-                th4 = atan2(s4, c4)   # as the C solver computes it
-            elif dt4 > 1e-08 or dt4 < -1e-08:
-                continue
-            else:  # ill-conditioned near a singular pose: the pair does not fix it
-                free4 = True
-                th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                c4 = cos(th4)
-                s4 = sin(th4)
+            # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+            free4 = False
+            th4 = atan2(s4, c4)
         else:
             # no form applies: the pair leaves th4 free
             free4 = True
@@ -1165,7 +1151,7 @@ def inverse_joints(pose, current=None):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt6 = 0.0 if free4 else -s5*s5
-        if dt6 > 1e-08 or dt6 < -1e-08:
+        if dt6 < -1e-08:
             c6 = -g36_31*s5
             s6 = g36_32*s5
         else:
@@ -1191,27 +1177,29 @@ def inverse_joints(pose, current=None):
         th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
-        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
         v1 = u1 * 57.29577951308232
-        u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
         v2 = u2 * 57.29577951308232
-        u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+        u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3)
         v3 = u3 * 57.29577951308232
-        u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
         v4 = u4 * 57.29577951308232
-        v5 = th5 * 57.29577951308232
-        v6 = th6 * 57.29577951308232
+        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+        v5 = u5 * 57.29577951308232
+        u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+        v6 = u6 * 57.29577951308232
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root5 > 0.0 and not free4:
-            u4 = th4 + _PI
-            u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+            u4 = th4 + 3.141592653589793
+            u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
             v4 = u4 * 57.29577951308232
             u5 = -th5
-            u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+            u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
             v5 = u5 * 57.29577951308232
-            u6 = th6 + _PI
-            u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+            u6 = th6 + 3.141592653589793
+            u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
             v6 = u6 * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 

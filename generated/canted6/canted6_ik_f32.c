@@ -490,7 +490,7 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt1 = dq1;
-            if (fabsf(dt1) > 1e-13f) {
+            if (dt1 > 1e-13f) {
                 c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
                 s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
                 free1 = 0;
@@ -556,7 +556,7 @@ static int closed_form(const float pose[16], const float *current,
             const float t7_0_5 = 20.0f*v1x;
 
             dt2 = 0.866025404f*v1x*v1x + 0.866025404f*v1y*v1y;
-            if (fabsf(dt2) > 1e-15f) {
+            if (dt2 > 1e-15f) {
                 c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.807621f*v1x) / dt2;
                 s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.807621f*v1y) / dt2;
                 free2 = 0;
@@ -709,19 +709,15 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt4 = -s5*s5;
-            if (fabsf(dt4) > 1e-20f) {
+            if (dt4 < -1e-20f) {
                 c4 = g36_13*s5;
                 s4 = g26_33*s5;
                 free4 = 0;
                 wk4 = 1e-08f;
             }
         }
-        if (!free4 && fabsf(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.005f * (dt4 * dt4)) {
-            if (fabsf(dt4) > wk4) {
-                continue;
-            }
-            free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
+        /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+        (void)wk4;
         if (free4) {
             th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
             c4 = cosf(th4);
@@ -735,7 +731,7 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt6 = free4 ? 0.0f : -s5*s5;
-            if (fabsf(dt6) > 0.001f) {
+            if (dt6 < -0.001f) {
                 c6 = -g36_31*s5;
                 s6 = g36_32*s5;
                 free6 = 0;
@@ -783,19 +779,23 @@ static int closed_form(const float pose[16], const float *current,
         const int fine = probe - probe == 0.0f;
         {
             float u1 = th1;
-            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
             const float jv1 = u1 * 57.2957795f;
             float u2 = th2;
-            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+            u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
             const float jv2 = u2 * 57.2957795f;
             float u3 = th3;
             u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
             const float jv3 = u3 * 57.2957795f;
             float u4 = th4;
-            u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+            u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
             const float jv4 = u4 * 57.2957795f;
-            const float jv5 = th5 * 57.2957795f;
-            const float jv6 = th6 * 57.2957795f;
+            float u5 = th5;
+            u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
+            const float jv5 = u5 * 57.2957795f;
+            float u6 = th6;
+            u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
+            const float jv6 = u6 * 57.2957795f;
             const float cv0 = cnd3;
             const float cv1 = root5 * 1.0f;
             if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {
@@ -820,22 +820,22 @@ static int closed_form(const float pose[16], const float *current,
         if (root5 > 0.0f && !free4) {
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
                 const float jv3 = u3 * 57.2957795f;
                 float u4 = th4 + 3.14159265f;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
                 float u5 = -th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
                 float u6 = th6 + 3.14159265f;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : u6;
                 const float jv6 = u6 * 57.2957795f;
                 const float cv0 = cnd3;
                 const float cv1 = root5 * 1.0f;

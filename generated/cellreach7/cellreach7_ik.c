@@ -273,15 +273,17 @@ static int closed_form(const double pose[16], double given, const double *curren
     }
     const double root4 = er4 > 0.0 ? sqrt(er4) : 0.0;
     const double dl4 = cellreach7_ik_atan2(root4, ec4);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double pc4 = 3.2387614976033164e-06*ec4;
+    const double qs4 = 3.2387614976033164e-06*root4;
+
     const int n4 = (root4 == 0.0) ? 1 : 2;
     for (int k4 = 0; k4 < n4; ++k4) {
         const double sg4 = k4 ? -1.0 : 1.0;
         double th4, c4, s4;
-        const double cn4 = 308760.0*ec4;
-        const double sn4 = 308760.0*root4*sg4;
         th4 = 0.0 + sg4 * dl4;
-        c4 = 1.0489576038357677e-11*cn4;
-        s4 = 1.0489576038357677e-11*sn4;
+        c4 = pc4;
+        s4 = qs4*sg4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = 372.0*c3*s4;
@@ -335,7 +337,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             {
 
                 dt2 = v1x*v1x + v1y*v1y;
-                if (fabs(dt2) > 9.9999999999999988e-16) {
+                if (dt2 > 9.9999999999999988e-16) {
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
@@ -480,19 +482,15 @@ static int closed_form(const double pose[16], double given, const double *curren
             {
 
                 dt5 = -s6*s6;
-                if (fabs(dt5) > 9.9999999999999995e-21) {
+                if (dt5 < -9.9999999999999995e-21) {
                     c5 = g47_13*s6;
                     s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
-            if (!free5 && fabs(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.0001 * (dt5 * dt5)) {
-                if (fabs(dt5) > wk5) {
-                    continue;
-                }
-                free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk5;
             if (free5) {
                 th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
@@ -506,7 +504,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             {
 
                 dt7 = free5 ? 0.0 : -s6*s6;
-                if (fabs(dt7) > 1e-08) {
+                if (dt7 < -1e-08) {
                     c7 = -g47_31*s6;
                     s7 = g47_32*s6;
                     free7 = 0;
@@ -553,20 +551,24 @@ static int closed_form(const double pose[16], double given, const double *curren
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = given;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                 const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
-                const double jv6 = th6 * 57.295779513082323;
-                const double jv7 = th7 * 57.295779513082323;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 57.295779513082323;
+                double u7 = th7;
+                u7 = u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7;
+                const double jv7 = u7 * 57.295779513082323;
                 const double cv0 = root4 * 3.2387614976033164e-06;
                 const double cv1 = root1 * 0.003162277660168379;
                 const double cv2 = root6 * 1.0;
@@ -594,23 +596,23 @@ static int closed_form(const double pose[16], double given, const double *curren
             if (root6 > 0.0 && !free5) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     const double jv3 = given;
                     double u4 = th4;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5 + 3.1415926535897931;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * 57.295779513082323;
                     double u6 = -th6;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     double u7 = th7 + 3.1415926535897931;
-                    u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : (u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7);
+                    u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : u7;
                     const double jv7 = u7 * 57.295779513082323;
                     const double cv0 = root4 * 3.2387614976033164e-06;
                     const double cv1 = root1 * 0.003162277660168379;
@@ -704,15 +706,17 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
     }
     const double root4 = er4 > 0.0 ? sqrt(er4) : 0.0;
     const double dl4 = cellreach7_ik_atan2(root4, ec4);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double pc4 = 3.2387614976033164e-06*ec4;
+    const double qs4 = 3.2387614976033164e-06*root4;
+
     const int n4 = (root4 == 0.0) ? 1 : 2;
     for (int k4 = 0; k4 < n4; ++k4) {
         const double sg4 = k4 ? -1.0 : 1.0;
         double th4, c4, s4;
-        const double cn4 = 308760.0*ec4;
-        const double sn4 = 308760.0*root4*sg4;
         th4 = 0.0 + sg4 * dl4;
-        c4 = 1.0489576038357677e-11*cn4;
-        s4 = 1.0489576038357677e-11*sn4;
+        c4 = pc4;
+        s4 = qs4*sg4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = 372.0*c3*s4;
@@ -766,7 +770,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             {
 
                 dt2 = v1x*v1x + v1y*v1y;
-                if (fabs(dt2) > 9.9999999999999988e-16) {
+                if (dt2 > 9.9999999999999988e-16) {
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
@@ -911,19 +915,15 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             {
 
                 dt5 = -s6*s6;
-                if (fabs(dt5) > 9.9999999999999995e-21) {
+                if (dt5 < -9.9999999999999995e-21) {
                     c5 = g47_13*s6;
                     s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
-            if (!free5 && fabs(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.0001 * (dt5 * dt5)) {
-                if (fabs(dt5) > wk5) {
-                    continue;
-                }
-                free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk5;
             if (free5) {
                 th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
                 c5 = cos(th5);
@@ -937,7 +937,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             {
 
                 dt7 = free5 ? 0.0 : -s6*s6;
-                if (fabs(dt7) > 1e-08) {
+                if (dt7 < -1e-08) {
                     c7 = -g47_31*s6;
                     s7 = g47_32*s6;
                     free7 = 0;
@@ -984,20 +984,24 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = given;
                 double u4 = th4;
                 u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                 const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
-                u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
-                const double jv6 = th6 * 57.295779513082323;
-                const double jv7 = th7 * 57.295779513082323;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 57.295779513082323;
+                double u7 = th7;
+                u7 = u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7;
+                const double jv7 = u7 * 57.295779513082323;
                 if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
                     double *row = joints[count++];
                     row[0] = jv1;
@@ -1012,23 +1016,23 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             if (root6 > 0.0 && !free5) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     const double jv3 = given;
                     double u4 = th4;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5 + 3.1415926535897931;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * 57.295779513082323;
                     double u6 = -th6;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     double u7 = th7 + 3.1415926535897931;
-                    u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : (u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7);
+                    u7 = u7 > 3.1415926535897931 ? u7 - 6.2831853071795862 : u7;
                     const double jv7 = u7 * 57.295779513082323;
                     if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
                         double *row = joints[count++];

@@ -498,10 +498,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         return solutions
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    pc4 = 3.2387614976033164e-06*ec4
+    qs4 = 3.2387614976033164e-06*root4
+
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
         th4 = 0.0 + sg4 * dl4
-        c4 = 1.0489576038357677e-11*(308760.0*ec4)
-        s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
+        c4 = pc4
+        s4 = qs4*sg4
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
@@ -546,7 +550,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = v1x*v1x + v1y*v1y
-            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16:
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
@@ -705,20 +709,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt5 = -s6*s6
-            if dt5 > 1e-20 or dt5 < -1e-20:
+            if dt5 < -1e-20:
                 c5 = g47_13*s6
                 s5 = g37_33*s6
-                hq5 = c5 * c5 + s5 * s5
-                if not (hq5 < 0.9999 * (dt5 * dt5) or hq5 > 1.0001 * (dt5 * dt5)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free5 = False
-                    th5 = atan2(s5, c5)   # as the C solver computes it
-                elif dt5 > 1e-08 or dt5 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free5 = True
-                    th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
-                    c5 = cos(th5)
-                    s5 = sin(th5)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free5 = False
+                th5 = atan2(s5, c5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
@@ -730,7 +726,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt7 = 0.0 if free5 else -s6*s6
-            if dt7 > 1e-08 or dt7 < -1e-08:
+            if dt7 < -1e-08:
                 c7 = -g47_31*s6
                 s7 = g47_32*s6
             else:
@@ -762,16 +758,18 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             lm2 = s6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
-            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
             v2 = u2 * 57.29577951308232
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)
             v4 = u4 * 57.29577951308232
-            u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
             v5 = u5 * 57.29577951308232
-            v6 = th6 * 57.29577951308232
-            v7 = th7 * 57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
+            u7 = th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7
+            v7 = u7 * 57.29577951308232
             la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
             la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -783,14 +781,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             ), singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
             if root6 > 0.0 and not free5:
-                u5 = th5 + _PI
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = th5 + 3.141592653589793
+                u5 = u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5
                 v5 = u5 * 57.29577951308232
                 u6 = -th6
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
-                u7 = th7 + _PI
-                u7 = u7 - _TWO_PI if u7 > _PI else (u7 + _TWO_PI if u7 <= -_PI else u7)
+                u7 = th7 + 3.141592653589793
+                u7 = u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7
                 v7 = u7 * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
                     la0,
@@ -848,10 +846,14 @@ def inverse_joints(pose, given, current=None):
         return solutions
     root4 = sqrt(er4) if er4 > 0.0 else 0.0
     dl4 = atan2(root4, ec4)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    pc4 = 3.2387614976033164e-06*ec4
+    qs4 = 3.2387614976033164e-06*root4
+
     for sg4 in ((1.0,) if root4 == 0.0 else (1.0, -1.0)):
         th4 = 0.0 + sg4 * dl4
-        c4 = 1.0489576038357677e-11*(308760.0*ec4)
-        s4 = 1.0489576038357677e-11*(308760.0*root4*sg4)
+        c4 = pc4
+        s4 = qs4*sg4
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
@@ -896,7 +898,7 @@ def inverse_joints(pose, given, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = v1x*v1x + v1y*v1y
-            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
+            if dt2 > 9.999999999999999e-16:
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
@@ -1055,20 +1057,12 @@ def inverse_joints(pose, given, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt5 = -s6*s6
-            if dt5 > 1e-20 or dt5 < -1e-20:
+            if dt5 < -1e-20:
                 c5 = g47_13*s6
                 s5 = g37_33*s6
-                hq5 = c5 * c5 + s5 * s5
-                if not (hq5 < 0.9999 * (dt5 * dt5) or hq5 > 1.0001 * (dt5 * dt5)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free5 = False
-                    th5 = atan2(s5, c5)   # as the C solver computes it
-                elif dt5 > 1e-08 or dt5 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free5 = True
-                    th5 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[4], 360.0) if current is not None else 0.0)))
-                    c5 = cos(th5)
-                    s5 = sin(th5)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free5 = False
+                th5 = atan2(s5, c5)
             else:
                 # no form applies: the pair leaves th5 free
                 free5 = True
@@ -1080,7 +1074,7 @@ def inverse_joints(pose, given, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt7 = 0.0 if free5 else -s6*s6
-            if dt7 > 1e-08 or dt7 < -1e-08:
+            if dt7 < -1e-08:
                 c7 = -g47_31*s6
                 s7 = g47_32*s6
             else:
@@ -1106,27 +1100,29 @@ def inverse_joints(pose, given, current=None):
             th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
-            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
             v2 = u2 * 57.29577951308232
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)
             v4 = u4 * 57.29577951308232
-            u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
             v5 = u5 * 57.29577951308232
-            v6 = th6 * 57.29577951308232
-            v7 = th7 * 57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
+            u7 = th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7
+            v7 = u7 * 57.29577951308232
             solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
             if root6 > 0.0 and not free5:
-                u5 = th5 + _PI
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = th5 + 3.141592653589793
+                u5 = u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5
                 v5 = u5 * 57.29577951308232
                 u6 = -th6
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
-                u7 = th7 + _PI
-                u7 = u7 - _TWO_PI if u7 > _PI else (u7 + _TWO_PI if u7 <= -_PI else u7)
+                u7 = th7 + 3.141592653589793
+                u7 = u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7
                 v7 = u7 * 57.29577951308232
                 solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 

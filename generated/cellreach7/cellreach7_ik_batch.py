@@ -217,7 +217,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         chosen2 = numpy.zeros((), dtype=bool)
 
         dt2 = v1x*v1x + v1y*v1y
-        use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
+        use = ~chosen2 & (dt2 > 9.999999999999999e-16)
         c2 = (kc2_0*v1x + kc2_1) / dt2
         s2 = (ks2_2*v1x + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
@@ -347,7 +347,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         chosen5 = numpy.zeros((), dtype=bool)
 
         dt5 = -s6*s6
-        use = ~chosen5 & (numpy.abs(dt5) > 1e-20)
+        use = ~chosen5 & (dt5 < -1e-20)
         c5 = g47_13*s6
         s5 = g37_33*s6
         wk5 = numpy.where(use, 1e-08, 0.0)
@@ -367,7 +367,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         chosen7 = numpy.zeros((), dtype=bool)
 
         dt7 = numpy.where(free5, 0.0, -s6*s6)
-        use = ~chosen7 & (numpy.abs(dt7) > 1e-08)
+        use = ~chosen7 & (dt7 < -1e-08)
         c7 = -g47_31*s6
         s7 = g47_32*s6
         dk7 = dt7
@@ -400,16 +400,18 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         lm1 = s4
         lm2 = s6
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = given
         u4 = th4
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
         u7 = th7
+        u7 = u7 + _TWO_PI * (u7 <= -_PI)
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
@@ -456,11 +458,11 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u5 = th5 + _PI
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 - _TWO_PI * (u5 > _PI)
         u6 = -th6
-        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
         u7 = th7 + _PI
-        u7 = u7 - _TWO_PI * (u7 > _PI) + _TWO_PI * (u7 <= -_PI)
+        u7 = u7 - _TWO_PI * (u7 > _PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.add(out_joints[..., 0, 0, :], blank, out=col)

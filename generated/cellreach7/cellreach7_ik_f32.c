@@ -257,15 +257,17 @@ static int closed_form(const float pose[16], float given, const float *current,
     }
     const float root4 = er4 > 0.0f ? sqrtf(er4) : 0.0f;
     const float dl4 = cellreach7_ik_f32_atan2(root4, ec4);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const float pc4 = 3.2387615e-06f*ec4;
+    const float qs4 = 3.2387615e-06f*root4;
+
     const int n4 = (root4 == 0.0f) ? 1 : 2;
     for (int k4 = 0; k4 < n4; ++k4) {
         const float sg4 = k4 ? -1.0f : 1.0f;
         float th4, c4, s4;
-        const float cn4 = 308760.0f*ec4;
-        const float sn4 = 308760.0f*root4*sg4;
         th4 = 0.0f + sg4 * dl4;
-        c4 = 1.0489576e-11f*cn4;
-        s4 = 1.0489576e-11f*sn4;
+        c4 = pc4;
+        s4 = qs4*sg4;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = 372.0f*c3*s4;
@@ -319,7 +321,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             {
 
                 dt2 = v1x*v1x + v1y*v1y;
-                if (fabsf(dt2) > 1e-15f) {
+                if (dt2 > 1e-15f) {
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
@@ -464,19 +466,15 @@ static int closed_form(const float pose[16], float given, const float *current,
             {
 
                 dt5 = -s6*s6;
-                if (fabsf(dt5) > 1e-20f) {
+                if (dt5 < -1e-20f) {
                     c5 = g47_13*s6;
                     s5 = g37_33*s6;
                     free5 = 0;
                     wk5 = 1e-08f;
                 }
             }
-            if (!free5 && fabsf(c5 * c5 + s5 * s5 - dt5 * dt5) > 0.005f * (dt5 * dt5)) {
-                if (fabsf(dt5) > wk5) {
-                    continue;
-                }
-                free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk5;
             if (free5) {
                 th5 = one_turn((0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f)));
                 c5 = cosf(th5);
@@ -490,7 +488,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             {
 
                 dt7 = free5 ? 0.0f : -s6*s6;
-                if (fabsf(dt7) > 0.001f) {
+                if (dt7 < -0.001f) {
                     c7 = -g47_31*s6;
                     s7 = g47_32*s6;
                     free7 = 0;
@@ -537,20 +535,24 @@ static int closed_form(const float pose[16], float given, const float *current,
             const int fine = probe - probe == 0.0f;
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 const float jv3 = given;
                 float u4 = th4;
                 u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                 const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
-                const float jv6 = th6 * 57.2957795f;
-                const float jv7 = th7 * 57.2957795f;
+                float u6 = th6;
+                u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
+                const float jv6 = u6 * 57.2957795f;
+                float u7 = th7;
+                u7 = u7 <= -3.14159265f ? u7 + 6.28318531f : u7;
+                const float jv7 = u7 * 57.2957795f;
                 const float cv0 = root4 * 3.2387615e-06f;
                 const float cv1 = root1 * 0.00316227766f;
                 const float cv2 = root6 * 1.0f;
@@ -578,23 +580,23 @@ static int closed_form(const float pose[16], float given, const float *current,
             if (root6 > 0.0f && !free5) {
                 {
                     float u1 = th1;
-                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                     const float jv1 = u1 * 57.2957795f;
                     float u2 = th2;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
                     const float jv3 = given;
                     float u4 = th4;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     const float jv4 = u4 * 57.2957795f;
                     float u5 = th5 + 3.14159265f;
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : u5;
                     const float jv5 = u5 * 57.2957795f;
                     float u6 = -th6;
-                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                     const float jv6 = u6 * 57.2957795f;
                     float u7 = th7 + 3.14159265f;
-                    u7 = u7 > 3.14159265f ? u7 - 6.28318531f : (u7 <= -3.14159265f ? u7 + 6.28318531f : u7);
+                    u7 = u7 > 3.14159265f ? u7 - 6.28318531f : u7;
                     const float jv7 = u7 * 57.2957795f;
                     const float cv0 = root4 * 3.2387615e-06f;
                     const float cv1 = root1 * 0.00316227766f;

@@ -235,15 +235,19 @@ static int closed_form(const double pose[16], const double *current,
     }
     const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
     const double dl3 = engraver5_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double pc3 = -1.3698630136986302e-06*ec3;
+    const double qc3 = 1.3013698630136986e-05*root3;
+    const double ps3 = -1.3013698630136986e-05*ec3;
+    const double qs3 = -1.3698630136986302e-06*root3;
+
     const int n3 = (root3 == 0.0) ? 1 : 2;
     for (int k3 = 0; k3 < n3; ++k3) {
         const double sg3 = k3 ? -1.0 : 1.0;
         double th3, c3, s3;
-        const double cn3 = -8000.0*ec3 + 76000.0*root3*sg3;
-        const double sn3 = -76000.0*ec3 - 8000.0*root3*sg3;
         th3 = -1.6756732655251305 + sg3 * dl3;
-        c3 = 1.7123287671232877e-10*cn3;
-        s3 = 1.7123287671232877e-10*sn3;
+        c3 = pc3 + qc3*sg3;
+        s3 = ps3 + qs3*sg3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -20.0*c3 - 190.0*s3 - 200.0;
@@ -300,7 +304,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt2 = -v1x*v1x - v1y*v1y;
-                if (fabs(dt2) > 9.9999999999999988e-16) {
+                if (dt2 < -9.9999999999999988e-16) {
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
@@ -408,7 +412,7 @@ static int closed_form(const double pose[16], const double *current,
                 const double t10_0_0 = 60.0*s5;
 
                 dt4 = -3600.0*s5*s5;
-                if (fabs(dt4) > 9.9999999999999992e-18) {
+                if (dt4 < -9.9999999999999992e-18) {
                     c4 = (-q3x*t10_0_0) / dt4;
                     s4 = (-q1z*t10_0_0) / dt4;
                     free4 = 0;
@@ -460,18 +464,20 @@ static int closed_form(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - 1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 double u3 = th3;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
-                const double jv5 = th5 * 57.295779513082323;
+                double u5 = th5;
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+                const double jv5 = u5 * 57.295779513082323;
                 const double cv0 = root3 * 1.3085598064755344e-05;
                 const double cv1 = root1 * 0.003162277660168379;
                 const double cv2 = root5 * 0.016666666666666666;
@@ -497,19 +503,19 @@ static int closed_form(const double pose[16], const double *current,
             if (root5 > 0.0 && !free4) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                     const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 57.295779513082323;
                     double u5 = -th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                     const double jv5 = u5 * 57.295779513082323;
                     const double cv0 = root3 * 1.3085598064755344e-05;
                     const double cv1 = root1 * 0.003162277660168379;

@@ -424,10 +424,16 @@ def _closed_form(pose, current, check_finite=True):
         return solutions
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    pc3 = -1.3698630136986302e-06*ec3
+    qc3 = 1.3013698630136986e-05*root3
+    ps3 = -1.3013698630136986e-05*ec3
+    qs3 = -1.3698630136986302e-06*root3
+
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
         th3 = -1.6756732655251305 + sg3 * dl3
-        c3 = 1.7123287671232877e-10*(-8000.0*ec3 + 76000.0*root3*sg3)
-        s3 = 1.7123287671232877e-10*(-76000.0*ec3 - 8000.0*root3*sg3)
+        c3 = pc3 + qc3*sg3
+        s3 = ps3 + qs3*sg3
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -20.0*c3 - 190.0*s3 - 200.0
@@ -469,7 +475,7 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = -v1x*v1x - v1y*v1y
-            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
+            if dt2 < -9.999999999999999e-16:
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
@@ -593,7 +599,7 @@ def _closed_form(pose, current, check_finite=True):
             t10_0_0 = 60.0*s5
 
             dt4 = -3600.0*s5*s5
-            if dt4 > 9.999999999999999e-18 or dt4 < -9.999999999999999e-18:
+            if dt4 < -9.999999999999999e-18:
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
                 hq4 = c4 * c4 + s4 * s4
@@ -633,16 +639,17 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = c4*n3x + n1z*s4
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
             v2 = u2 * 57.29577951308232
-            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
             v3 = u3 * 57.29577951308232
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 57.29577951308232
-            v5 = th5 * 57.29577951308232
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+            v5 = u5 * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -654,11 +661,11 @@ def _closed_form(pose, current, check_finite=True):
             ), singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
                 v5 = u5 * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, ), (
                     la0,

@@ -212,7 +212,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen2 = numpy.zeros((), dtype=bool)
 
         dt2 = -v1x*v1x - v1y*v1y
-        use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
+        use = ~chosen2 & (dt2 < -9.999999999999999e-16)
         c2 = (kc2_0*v1x + kc2_1) / dt2
         s2 = (ks2_2*v1x + ks2_3) / dt2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
@@ -306,7 +306,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         t10_0_0 = 60*s5
 
         dt4 = -3600*s5*s5
-        use = ~chosen4 & (numpy.abs(dt4) > 9.999999999999999e-18)
+        use = ~chosen4 & (dt4 < -9.999999999999999e-18)
         c4 = (-q3x*t10_0_0) / dt4
         s4 = (-q1z*t10_0_0) / dt4
         wk4 = numpy.where(use, 9.999999999999999e-06, 0.0)
@@ -342,14 +342,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm1 = 38000*c3 - 4000*s3
         lm2 = c4*n3x + n1z*s4
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - 1.5707963267948966
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 + _TWO_PI * (u3 <= -_PI)
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 + _TWO_PI * (u4 <= -_PI)
         u5 = th5
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
@@ -390,9 +391,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u4 = th4 + _PI
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 - _TWO_PI * (u4 > _PI)
         u5 = -th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.add(out_joints[..., 0, 0, :], blank, out=col)

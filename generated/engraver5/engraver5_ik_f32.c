@@ -219,15 +219,19 @@ static int closed_form(const float pose[16], const float *current,
     }
     const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
     const float dl3 = engraver5_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const float pc3 = -1.36986301e-06f*ec3;
+    const float qc3 = 1.30136986e-05f*root3;
+    const float ps3 = -1.30136986e-05f*ec3;
+    const float qs3 = -1.36986301e-06f*root3;
+
     const int n3 = (root3 == 0.0f) ? 1 : 2;
     for (int k3 = 0; k3 < n3; ++k3) {
         const float sg3 = k3 ? -1.0f : 1.0f;
         float th3, c3, s3;
-        const float cn3 = -8000.0f*ec3 + 76000.0f*root3*sg3;
-        const float sn3 = -76000.0f*ec3 - 8000.0f*root3*sg3;
         th3 = -1.67567327f + sg3 * dl3;
-        c3 = 1.71232877e-10f*cn3;
-        s3 = 1.71232877e-10f*sn3;
+        c3 = pc3 + qc3*sg3;
+        s3 = ps3 + qs3*sg3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = -20.0f*c3 - 190.0f*s3 - 200.0f;
@@ -284,7 +288,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt2 = -v1x*v1x - v1y*v1y;
-                if (fabsf(dt2) > 1e-15f) {
+                if (dt2 < -1e-15f) {
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
@@ -392,7 +396,7 @@ static int closed_form(const float pose[16], const float *current,
                 const float t10_0_0 = 60.0f*s5;
 
                 dt4 = -3600.0f*s5*s5;
-                if (fabsf(dt4) > 1e-17f) {
+                if (dt4 < -1e-17f) {
                     c4 = (-q3x*t10_0_0) / dt4;
                     s4 = (-q1z*t10_0_0) / dt4;
                     free4 = 0;
@@ -444,18 +448,20 @@ static int closed_form(const float pose[16], const float *current,
             const int fine = probe - probe == 0.0f;
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = th2 - 1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 float u3 = th3;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
                 const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
-                const float jv5 = th5 * 57.2957795f;
+                float u5 = th5;
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
+                const float jv5 = u5 * 57.2957795f;
                 const float cv0 = root3 * 1.30855981e-05f;
                 const float cv1 = root1 * 0.00316227766f;
                 const float cv2 = root5 * 0.0166666667f;
@@ -481,19 +487,19 @@ static int closed_form(const float pose[16], const float *current,
             if (root5 > 0.0f && !free4) {
                 {
                     float u1 = th1;
-                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                     const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
                     float u3 = th3;
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
                     const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 + 3.14159265f;
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
                     const float jv4 = u4 * 57.2957795f;
                     float u5 = -th5;
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                     const float jv5 = u5 * 57.2957795f;
                     const float cv0 = root3 * 1.30855981e-05f;
                     const float cv1 = root1 * 0.00316227766f;

@@ -641,7 +641,7 @@ def _closed_form(pose, current, check_finite=True):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt1 = s2*s2
-        if dt1 > 1e-20 or dt1 < -1e-20:
+        if dt1 > 1e-20:
             c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
             s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
@@ -666,7 +666,7 @@ def _closed_form(pose, current, check_finite=True):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
-        if dt3 > 1e-08 or dt3 < -1e-08:
+        if dt3 < -1e-08:
             c3 = 0.8660254037844386*g03_31*s2
             s3 = -s2*(-0.5*c2 + g03_32)
         else:
@@ -695,14 +695,17 @@ def _closed_form(pose, current, check_finite=True):
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
-        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
         v1 = u1 * 57.29577951308232
-        v2 = th2 * 57.29577951308232
-        v3 = th3 * 57.29577951308232
-        v4 = th4 * 57.29577951308232
-        u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
+        v2 = u2 * 57.29577951308232
+        u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
+        v3 = u3 * 57.29577951308232
+        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
+        v4 = u4 * 57.29577951308232
+        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
         v5 = u5 * 57.29577951308232
-        u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
+        u6 = th6 - 6.283185307179586 if th6 > 3.141592653589793 else (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6)
         v6 = u6 * 57.29577951308232
         la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
         la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
@@ -713,14 +716,14 @@ def _closed_form(pose, current, check_finite=True):
         ), singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
         if root2 > 0.0 and not free1:
-            u1 = th1 + _PI
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 + 3.141592653589793
+            u1 = u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1
             v1 = u1 * 57.29577951308232
             u2 = -th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
             v2 = u2 * 57.29577951308232
-            u3 = th3 + _PI
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = th3 + 3.141592653589793
+            u3 = u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3
             v3 = u3 * 57.29577951308232
             solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                 "bend_negative" if lm0 >= 0.0 else "bend_positive",
@@ -883,7 +886,7 @@ def inverse_joints(pose, current=None):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt1 = s2*s2
-        if dt1 > 1e-20 or dt1 < -1e-20:
+        if dt1 > 1e-20:
             c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
             s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
@@ -908,7 +911,7 @@ def inverse_joints(pose, current=None):
         # ~0); no later step reads them, atan2 needs only their direction
 
         dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
-        if dt3 > 1e-08 or dt3 < -1e-08:
+        if dt3 < -1e-08:
             c3 = 0.8660254037844386*g03_31*s2
             s3 = -s2*(-0.5*c2 + g03_32)
         else:
@@ -932,26 +935,29 @@ def inverse_joints(pose, current=None):
         th3 = atan2(s3, c3)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
-        u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
         v1 = u1 * 57.29577951308232
-        v2 = th2 * 57.29577951308232
-        v3 = th3 * 57.29577951308232
-        v4 = th4 * 57.29577951308232
-        u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
+        v2 = u2 * 57.29577951308232
+        u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
+        v3 = u3 * 57.29577951308232
+        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
+        v4 = u4 * 57.29577951308232
+        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
         v5 = u5 * 57.29577951308232
-        u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
+        u6 = th6 - 6.283185307179586 if th6 > 3.141592653589793 else (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6)
         v6 = u6 * 57.29577951308232
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root2 > 0.0 and not free1:
-            u1 = th1 + _PI
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = th1 + 3.141592653589793
+            u1 = u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1
             v1 = u1 * 57.29577951308232
             u2 = -th2
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
             v2 = u2 * 57.29577951308232
-            u3 = th3 + _PI
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = th3 + 3.141592653589793
+            u3 = u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3
             v3 = u3 * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 

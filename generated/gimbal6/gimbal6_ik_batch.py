@@ -376,7 +376,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen1 = numpy.zeros((), dtype=bool)
 
         dt1 = s2*s2
-        use = ~chosen1 & (numpy.abs(dt1) > 1e-20)
+        use = ~chosen1 & (dt1 > 1e-20)
         c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
         s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
         wk1 = numpy.where(use, 1e-08, 0.0)
@@ -396,7 +396,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen3 = numpy.zeros((), dtype=bool)
 
         dt3 = numpy.where(free1, 0.0, -0.8660254037844386*s2*s2)
-        use = ~chosen3 & (numpy.abs(dt3) > 1e-08)
+        use = ~chosen3 & (dt3 < -1e-08)
         c3 = 0.8660254037844386*g03_31*s2
         s3 = -s2*(-0.5*c2 + g03_32)
         dk3 = dt3
@@ -426,12 +426,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm0 = s2
         lm1 = 0.8660254037844386*s5
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = th3
+        u3 = u3 + _TWO_PI * (u3 <= -_PI)
         u4 = th4
+        u4 = u4 + _TWO_PI * (u4 <= -_PI)
         u5 = th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6
         u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
 
@@ -474,11 +477,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u1 = th1 + _PI
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 - _TWO_PI * (u1 > _PI)
         u2 = -th2
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = th3 + _PI
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 - _TWO_PI * (u3 > _PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.multiply(u1, 57.29577951308232, out=col)

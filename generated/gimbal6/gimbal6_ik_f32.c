@@ -611,7 +611,7 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt1 = s2*s2;
-            if (fabsf(dt1) > 1e-20f) {
+            if (dt1 > 1e-20f) {
                 c1 = -s2*(0.5f*g03_12 + 0.866025404f*g03_13);
                 s1 = -s2*(0.5f*g03_22 + 0.866025404f*g03_23);
                 free1 = 0;
@@ -637,7 +637,7 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt3 = free1 ? 0.0f : -0.866025404f*s2*s2;
-            if (fabsf(dt3) > 0.001f) {
+            if (dt3 < -0.001f) {
                 c3 = 0.866025404f*g03_31*s2;
                 s3 = -s2*(-0.5f*c2 + g03_32);
                 free3 = 0;
@@ -682,13 +682,19 @@ static int closed_form(const float pose[16], const float *current,
         const int fine = probe - probe == 0.0f;
         {
             float u1 = th1;
-            u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+            u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
             const float jv1 = u1 * 57.2957795f;
-            const float jv2 = th2 * 57.2957795f;
-            const float jv3 = th3 * 57.2957795f;
-            const float jv4 = th4 * 57.2957795f;
+            float u2 = th2;
+            u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
+            const float jv2 = u2 * 57.2957795f;
+            float u3 = th3;
+            u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
+            const float jv3 = u3 * 57.2957795f;
+            float u4 = th4;
+            u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
+            const float jv4 = u4 * 57.2957795f;
             float u5 = th5;
-            u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+            u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
             const float jv5 = u5 * 57.2957795f;
             float u6 = th6;
             u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
@@ -716,19 +722,19 @@ static int closed_form(const float pose[16], const float *current,
         if (root2 > 0.0f && !free1) {
             {
                 float u1 = th1 + 3.14159265f;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = -th2;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 float u3 = th3 + 3.14159265f;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : u3;
                 const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
-                u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
                 float u6 = th6;
                 u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);

@@ -254,15 +254,17 @@ static int closed_form(const double pose[16], const double *current,
     }
     const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
     const double dl3 = inspector6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double qc3 = 5.3879310344827582e-06*root3;
+    const double ps3 = -5.3879310344827582e-06*ec3;
+
     const int n3 = (root3 == 0.0) ? 1 : 2;
     for (int k3 = 0; k3 < n3; ++k3) {
         const double sg3 = k3 ? -1.0 : 1.0;
         double th3, c3, s3;
-        const double cn3 = 185600.0*root3*sg3;
-        const double sn3 = -185600.0*ec3;
         th3 = -1.5707963267948966 + sg3 * dl3;
-        c3 = 2.9029800832342449e-11*cn3;
-        s3 = 2.9029800832342449e-11*sn3;
+        c3 = qc3*sg3;
+        s3 = ps3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -290.0*s3 - 320.0;
@@ -417,19 +419,15 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt4 = -s5*s5;
-                if (fabs(dt4) > 9.9999999999999995e-21) {
+                if (dt4 < -9.9999999999999995e-21) {
                     c4 = g36_13*s5;
                     s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-                if (fabs(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
@@ -443,7 +441,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -s5*s5;
-                if (fabs(dt6) > 1e-08) {
+                if (dt6 < -1e-08) {
                     c6 = -g36_31*s5;
                     s6 = g36_32*s5;
                     free6 = 0;
@@ -490,19 +488,23 @@ static int closed_form(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - 1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * -57.295779513082323;
                 double u3 = th3 - 1.7889624832941875;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
-                const double jv5 = th5 * -57.295779513082323;
-                const double jv6 = th6 * 57.295779513082323;
+                double u5 = th5;
+                u5 = u5 >= 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
+                const double jv5 = u5 * -57.295779513082323;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 57.295779513082323;
                 const double cv0 = root3 * 5.3879310344827582e-06;
                 const double cv1 = root1 * 0.003162277660168379;
                 const double cv2 = root5 * 1.0;
@@ -529,22 +531,22 @@ static int closed_form(const double pose[16], const double *current,
             if (root5 > 0.0 && !free4) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * -57.295779513082323;
                     double u3 = th3 - 1.7889624832941875;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                     const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 57.295779513082323;
                     double u5 = -th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 >= 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * -57.295779513082323;
                     double u6 = th6 + 3.1415926535897931;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     const double cv0 = root3 * 5.3879310344827582e-06;
                     const double cv1 = root1 * 0.003162277660168379;
@@ -628,15 +630,17 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
     }
     const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
     const double dl3 = inspector6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+    /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+    const double qc3 = 5.3879310344827582e-06*root3;
+    const double ps3 = -5.3879310344827582e-06*ec3;
+
     const int n3 = (root3 == 0.0) ? 1 : 2;
     for (int k3 = 0; k3 < n3; ++k3) {
         const double sg3 = k3 ? -1.0 : 1.0;
         double th3, c3, s3;
-        const double cn3 = 185600.0*root3*sg3;
-        const double sn3 = -185600.0*ec3;
         th3 = -1.5707963267948966 + sg3 * dl3;
-        c3 = 2.9029800832342449e-11*cn3;
-        s3 = 2.9029800832342449e-11*sn3;
+        c3 = qc3*sg3;
+        s3 = ps3;
 
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -290.0*s3 - 320.0;
@@ -791,19 +795,15 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt4 = -s5*s5;
-                if (fabs(dt4) > 9.9999999999999995e-21) {
+                if (dt4 < -9.9999999999999995e-21) {
                     c4 = g36_13*s5;
                     s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-                if (fabs(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0 + 0.017453292519943295 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 360.0) : 0.0)));
                 c4 = cos(th4);
@@ -817,7 +817,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -s5*s5;
-                if (fabs(dt6) > 1e-08) {
+                if (dt6 < -1e-08) {
                     c6 = -g36_31*s5;
                     s6 = g36_32*s5;
                     free6 = 0;
@@ -864,19 +864,23 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - 1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * -57.295779513082323;
                 double u3 = th3 - 1.7889624832941875;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
-                const double jv5 = th5 * -57.295779513082323;
-                const double jv6 = th6 * 57.295779513082323;
+                double u5 = th5;
+                u5 = u5 >= 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
+                const double jv5 = u5 * -57.295779513082323;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 57.295779513082323;
                 if (fine && count < INSPECTOR6_IK_CLOSED_FORM) {
                     double *row = joints[count++];
                     row[0] = jv1;
@@ -890,22 +894,22 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             if (root5 > 0.0 && !free4) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * -57.295779513082323;
                     double u3 = th3 - 1.7889624832941875;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                     const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 57.295779513082323;
                     double u5 = -th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 >= 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * -57.295779513082323;
                     double u6 = th6 + 3.1415926535897931;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     if (fine && count < INSPECTOR6_IK_CLOSED_FORM) {
                         double *row = joints[count++];

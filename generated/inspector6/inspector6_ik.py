@@ -398,10 +398,14 @@ def _closed_form(pose, current, check_finite=True):
         return solutions
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    qc3 = 5.387931034482758e-06*root3
+    ps3 = -5.387931034482758e-06*ec3
+
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
         th3 = -1.5707963267948966 + sg3 * dl3
-        c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
-        s3 = 2.902980083234245e-11*(-185600.0*ec3)
+        c3 = qc3*sg3
+        s3 = ps3
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -290.0*s3 - 320.0
@@ -543,20 +547,12 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = g36_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -568,7 +564,7 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = -g36_31*s5
                 s6 = g36_32*s5
             else:
@@ -600,18 +596,20 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = s5
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5, )
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2
             v2 = u2 * -57.29577951308232
             u3 = th3 - 1.7889624832941875
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3
             v3 = u3 * 57.29577951308232
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 57.29577951308232
-            v5 = th5 * -57.29577951308232
-            v6 = th6 * 57.29577951308232
+            u5 = th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5
+            v5 = u5 * -57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -623,14 +621,14 @@ def _closed_form(pose, current, check_finite=True):
             ), singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5
                 v5 = u5 * -57.29577951308232
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
@@ -680,10 +678,14 @@ def inverse_joints(pose, current=None):
         return solutions
     root3 = sqrt(er3) if er3 > 0.0 else 0.0
     dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+    # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+    qc3 = 5.387931034482758e-06*root3
+    ps3 = -5.387931034482758e-06*ec3
+
     for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
         th3 = -1.5707963267948966 + sg3 * dl3
-        c3 = 2.902980083234245e-11*(185600.0*root3*sg3)
-        s3 = 2.902980083234245e-11*(-185600.0*ec3)
+        c3 = qc3*sg3
+        s3 = ps3
 
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -290.0*s3 - 320.0
@@ -825,20 +827,12 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = g36_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -850,7 +844,7 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = -g36_31*s5
                 s6 = g36_32*s5
             else:
@@ -876,29 +870,31 @@ def inverse_joints(pose, current=None):
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2
             v2 = u2 * -57.29577951308232
             u3 = th3 - 1.7889624832941875
-            u3 = u3 - _TWO_PI if u3 > _PI else (u3 + _TWO_PI if u3 <= -_PI else u3)
+            u3 = u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3
             v3 = u3 * 57.29577951308232
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 57.29577951308232
-            v5 = th5 * -57.29577951308232
-            v6 = th6 * 57.29577951308232
+            u5 = th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5
+            v5 = u5 * -57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5
                 v5 = u5 * -57.29577951308232
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 

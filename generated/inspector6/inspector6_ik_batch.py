@@ -280,7 +280,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = -s5*s5
-        use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
+        use = ~chosen4 & (dt4 < -1e-20)
         c4 = g36_13*s5
         s4 = g16_33*s5
         wk4 = numpy.where(use, 1e-08, 0.0)
@@ -300,7 +300,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -s5*s5)
-        use = ~chosen6 & (numpy.abs(dt6) > 1e-08)
+        use = ~chosen6 & (dt6 < -1e-08)
         c6 = -g36_31*s5
         s6 = g36_32*s5
         dk6 = dt6
@@ -333,15 +333,17 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm1 = 92800*c3
         lm2 = s5
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - 1.5707963267948966
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 < -_PI)
         u3 = th3 - 1.7889624832941875
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 + _TWO_PI * (u3 <= -_PI)
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 + _TWO_PI * (u4 <= -_PI)
         u5 = th5
+        u5 = u5 - _TWO_PI * (u5 >= _PI)
         u6 = th6
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)
@@ -385,11 +387,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u4 = th4 + _PI
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 - _TWO_PI * (u4 > _PI)
         u5 = -th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 - _TWO_PI * (u5 >= _PI)
         u6 = th6 + _PI
-        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+        u6 = u6 - _TWO_PI * (u6 > _PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.add(out_joints[..., 0, 0, :], blank, out=col)

@@ -463,20 +463,12 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = g26_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -488,7 +480,7 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = -g26_31*s5
                 s6 = g26_32*s5
             else:
@@ -523,15 +515,17 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5, )
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
-            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
             v2 = u2 * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 57.29577951308232
-            v5 = th5 * 57.29577951308232
-            v6 = th6 * 57.29577951308232
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+            v5 = u5 * 57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
             la2 = "root_plus" if lm2 >= 0.0 else "root_minus"
@@ -543,14 +537,14 @@ def _closed_form(pose, current, check_finite=True):
             ), singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
                 v5 = u5 * 57.29577951308232
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
@@ -675,20 +669,12 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = g26_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[3], 360.0) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -700,7 +686,7 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = -g26_31*s5
                 s6 = g26_32*s5
             else:
@@ -729,26 +715,28 @@ def inverse_joints(pose, current=None):
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
                 continue
-            u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
             v1 = u1 * 57.29577951308232
-            u2 = th2 - _TWO_PI if th2 > _PI else (th2 + _TWO_PI if th2 <= -_PI else th2)
+            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
             v2 = u2 * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 57.29577951308232
-            v5 = th5 * 57.29577951308232
-            v6 = th6 * 57.29577951308232
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+            v5 = u5 * 57.29577951308232
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
                 v5 = u5 * 57.29577951308232
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 

@@ -224,7 +224,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = -s5*s5
-        use = ~chosen4 & (numpy.abs(dt4) > 1e-20)
+        use = ~chosen4 & (dt4 < -1e-20)
         c4 = g26_13*s5
         s4 = g16_33*s5
         wk4 = numpy.where(use, 1e-08, 0.0)
@@ -244,7 +244,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -s5*s5)
-        use = ~chosen6 & (numpy.abs(dt6) > 1e-08)
+        use = ~chosen6 & (dt6 < -1e-08)
         c6 = -g26_31*s5
         s6 = g26_32*s5
         dk6 = dt6
@@ -277,14 +277,16 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm1 = s5
         lm2 = -c2*v1y + s2*v1x
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = (l3 - 0.0) * 1.0
         u4 = th4
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 + _TWO_PI * (u4 <= -_PI)
         u5 = th5
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
 
         valid = valid & (499.9999989 <= u3) & (u3 <= 1600.0000011)  # strokes define reach
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
@@ -328,11 +330,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u4 = th4 + _PI
-        u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
+        u4 = u4 - _TWO_PI * (u4 > _PI)
         u5 = -th5
-        u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
+        u5 = u5 + _TWO_PI * (u5 <= -_PI)
         u6 = th6 + _PI
-        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+        u6 = u6 - _TWO_PI * (u6 > _PI)
 
         col = out_joints[..., 1, 0, :]
         numpy.add(out_joints[..., 0, 0, :], blank, out=col)

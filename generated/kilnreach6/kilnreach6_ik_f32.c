@@ -328,19 +328,15 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt4 = -s5*s5;
-                if (fabsf(dt4) > 1e-20f) {
+                if (dt4 < -1e-20f) {
                     c4 = g26_13*s5;
                     s4 = g16_33*s5;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
             }
-            if (!free4 && fabsf(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.005f * (dt4 * dt4)) {
-                if (fabsf(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0f + 0.0174532925f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 360.0f) : 0.0f)));
                 c4 = cosf(th4);
@@ -354,7 +350,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt6 = free4 ? 0.0f : -s5*s5;
-                if (fabsf(dt6) > 0.001f) {
+                if (dt6 < -0.001f) {
                     c6 = -g26_31*s5;
                     s6 = g26_32*s5;
                     free6 = 0;
@@ -407,17 +403,21 @@ static int closed_form(const float pose[16], const float *current,
             const int fine = probe - probe == 0.0f;
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 const float jv3 = (l3 - 0.0f) * 1.0f;
                 float u4 = th4;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
-                const float jv5 = th5 * 57.2957795f;
-                const float jv6 = th6 * 57.2957795f;
+                float u5 = th5;
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
+                const float jv5 = u5 * 57.2957795f;
+                float u6 = th6;
+                u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
+                const float jv6 = u6 * 57.2957795f;
                 const float cv0 = root1 * 0.001f;
                 const float cv1 = root2 * 0.001f;
                 const float cv2 = root5 * 1.0f;
@@ -444,20 +444,20 @@ static int closed_form(const float pose[16], const float *current,
             if (root5 > 0.0f && !free4) {
                 {
                     float u1 = th1;
-                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                     const float jv1 = u1 * 57.2957795f;
                     float u2 = th2;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
                     const float jv3 = (l3 - 0.0f) * 1.0f;
                     float u4 = th4 + 3.14159265f;
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
                     const float jv4 = u4 * 57.2957795f;
                     float u5 = -th5;
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                     const float jv5 = u5 * 57.2957795f;
                     float u6 = th6 + 3.14159265f;
-                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : u6;
                     const float jv6 = u6 * 57.2957795f;
                     const float cv0 = root1 * 0.001f;
                     const float cv1 = root2 * 0.001f;

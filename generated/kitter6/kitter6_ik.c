@@ -282,15 +282,17 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const double pc5 = -g16_23;
+        const double qs5 = root5;
+
         const int n5 = (root5 == 0.0) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const double sg5 = k5 ? -1.0 : 1.0;
             double th5, c5, s5;
-            const double cn5 = -g16_23;
-            const double sn5 = root5*sg5;
             th5 = 0.0 + sg5 * dl5;
-            c5 = cn5;
-            s5 = sn5;
+            c5 = pc5;
+            s5 = qs5*sg5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
@@ -298,7 +300,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt6 = -s5*s5;
-                if (fabs(dt6) > 9.9999999999999995e-21) {
+                if (dt6 < -9.9999999999999995e-21) {
                     c6 = (g16_21*s5) / dt6;
                     s6 = (-g16_22*s5) / dt6;
                     free6 = 0;
@@ -383,15 +385,17 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
             const double dl3 = kitter6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+            /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+            const double pc3 = -5.1361068310220853e-06*ec3;
+            const double qs3 = -5.1361068310220853e-06*root3;
+
             const int n3 = (root3 == 0.0) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const double sg3 = k3 ? -1.0 : 1.0;
                 double th3, c3, s3;
-                const double cn3 = -194700.0*ec3;
-                const double sn3 = -194700.0*root3*sg3;
                 th3 = 3.1415926535897931 + sg3 * dl3;
-                c3 = 2.6379593379671728e-11*cn3;
-                s3 = 2.6379593379671728e-11*sn3;
+                c3 = pc3;
+                s3 = qs3*sg3;
 
                 /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
@@ -436,13 +440,13 @@ static int closed_form(const double pose[16], const double *current,
                 const int fine = probe - probe == 0.0;
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : u3;
                     const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 - -1.5707963267948966;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
@@ -452,7 +456,7 @@ static int closed_form(const double pose[16], const double *current,
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
                     const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     const double cv0 = root1 * 0.003162277660168379;
                     const double cv1 = root5 * 1.0;
@@ -565,15 +569,17 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const double pc5 = -g16_23;
+        const double qs5 = root5;
+
         const int n5 = (root5 == 0.0) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const double sg5 = k5 ? -1.0 : 1.0;
             double th5, c5, s5;
-            const double cn5 = -g16_23;
-            const double sn5 = root5*sg5;
             th5 = 0.0 + sg5 * dl5;
-            c5 = cn5;
-            s5 = sn5;
+            c5 = pc5;
+            s5 = qs5*sg5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
@@ -581,7 +587,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt6 = -s5*s5;
-                if (fabs(dt6) > 9.9999999999999995e-21) {
+                if (dt6 < -9.9999999999999995e-21) {
                     c6 = (g16_21*s5) / dt6;
                     s6 = (-g16_22*s5) / dt6;
                     free6 = 0;
@@ -666,15 +672,17 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
             const double dl3 = kitter6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+            /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+            const double pc3 = -5.1361068310220853e-06*ec3;
+            const double qs3 = -5.1361068310220853e-06*root3;
+
             const int n3 = (root3 == 0.0) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const double sg3 = k3 ? -1.0 : 1.0;
                 double th3, c3, s3;
-                const double cn3 = -194700.0*ec3;
-                const double sn3 = -194700.0*root3*sg3;
                 th3 = 3.1415926535897931 + sg3 * dl3;
-                c3 = 2.6379593379671728e-11*cn3;
-                s3 = 2.6379593379671728e-11*sn3;
+                c3 = pc3;
+                s3 = qs3*sg3;
 
                 /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 double th2, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
@@ -720,13 +728,13 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 const int fine = probe - probe == 0.0;
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     double u3 = th3;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : u3;
                     const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 - -1.5707963267948966;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
@@ -736,7 +744,7 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
                     const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
                     if (fine && count < KITTER6_IK_CLOSED_FORM) {
                         double *row = joints[count++];

@@ -420,15 +420,19 @@ def _closed_form(pose, current, check_finite=True):
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
+        # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+        pc5 = -g16_23
+        qs5 = root5
+
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
             th5 = 0.0 + sg5 * dl5
-            c5 = (-g16_23)
-            s5 = (root5*sg5)
+            c5 = pc5
+            s5 = qs5*sg5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
-            if dt6 > 1e-20 or dt6 < -1e-20:
+            if dt6 < -1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
@@ -501,10 +505,14 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+            # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+            pc3 = -5.136106831022085e-06*ec3
+            qs3 = -5.136106831022085e-06*root3
+
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
                 th3 = 3.141592653589793 + sg3 * dl3
-                c3 = 2.6379593379671728e-11*(-194700.0*ec3)
-                s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
+                c3 = pc3
+                s3 = qs3*sg3
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
@@ -540,20 +548,20 @@ def _closed_form(pose, current, check_finite=True):
                 lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
-                u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+                u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
                 v1 = u1 * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
-                u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+                u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
                 v2 = u2 * 57.29577951308232
-                u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+                u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3
                 v3 = u3 * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                u5 = th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)
                 v5 = u5 * 57.29577951308232
-                u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
+                u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
                 v6 = u6 * 57.29577951308232
                 la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
                 la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
@@ -629,15 +637,19 @@ def inverse_joints(pose, current=None):
             continue
         root5 = sqrt(er5) if er5 > 0.0 else 0.0
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
+        # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+        pc5 = -g16_23
+        qs5 = root5
+
         for sg5 in ((1.0,) if root5 == 0.0 else (1.0, -1.0)):
             th5 = 0.0 + sg5 * dl5
-            c5 = (-g16_23)
-            s5 = (root5*sg5)
+            c5 = pc5
+            s5 = qs5*sg5
 
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
-            if dt6 > 1e-20 or dt6 < -1e-20:
+            if dt6 < -1e-20:
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
@@ -710,10 +722,14 @@ def inverse_joints(pose, current=None):
                 continue
             root3 = sqrt(er3) if er3 > 0.0 else 0.0
             dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+            # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+            pc3 = -5.136106831022085e-06*ec3
+            qs3 = -5.136106831022085e-06*root3
+
             for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
                 th3 = 3.141592653589793 + sg3 * dl3
-                c3 = 2.6379593379671728e-11*(-194700.0*ec3)
-                s3 = 2.6379593379671728e-11*(-194700.0*root3*sg3)
+                c3 = pc3
+                s3 = qs3*sg3
 
                 # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
@@ -743,20 +759,20 @@ def inverse_joints(pose, current=None):
                 th4 = thp234 - th3 - th2
 
                 # Joint readings, configuration labels, singular flag.
-                u1 = th1 - _TWO_PI if th1 > _PI else (th1 + _TWO_PI if th1 <= -_PI else th1)
+                u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
                 v1 = u1 * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
-                u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+                u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
                 v2 = u2 * 57.29577951308232
-                u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+                u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3
                 v3 = u3 * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                u5 = th5 - _TWO_PI if th5 > _PI else (th5 + _TWO_PI if th5 <= -_PI else th5)
+                u5 = th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)
                 v5 = u5 * 57.29577951308232
-                u6 = th6 - _TWO_PI if th6 > _PI else (th6 + _TWO_PI if th6 <= -_PI else th6)
+                u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
                 v6 = u6 * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 

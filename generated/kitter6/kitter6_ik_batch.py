@@ -187,7 +187,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen6 = numpy.zeros((), dtype=bool)
 
         dt6 = -s5*s5
-        use = ~chosen6 & (numpy.abs(dt6) > 1e-20)
+        use = ~chosen6 & (dt6 < -1e-20)
         c6 = (g16_21*s5) / dt6
         s6 = (-g16_22*s5) / dt6
         wk6 = numpy.where(use, 1e-08, 0.0)
@@ -293,18 +293,18 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm1 = -97350*s3
         lm2 = s5
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - 1.5707963267948966
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = th3
-        u3 = u3 - _TWO_PI * (u3 > _PI) + _TWO_PI * (u3 <= -_PI)
+        u3 = u3 - _TWO_PI * (u3 > _PI)
         u4 = th4 - -1.5707963267948966
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u4 = u4 - _TWO_PI * (u4 > _PI) + _TWO_PI * (u4 <= -_PI)
         u5 = th5
         u5 = u5 - _TWO_PI * (u5 > _PI) + _TWO_PI * (u5 <= -_PI)
         u6 = th6
-        u6 = u6 - _TWO_PI * (u6 > _PI) + _TWO_PI * (u6 <= -_PI)
+        u6 = u6 + _TWO_PI * (u6 <= -_PI)
 
         # overflow from a huge input gives no solution: no reading or measure may be NaN or infinite
         # (their sum is one then; the mirrored solution's values follow from these)

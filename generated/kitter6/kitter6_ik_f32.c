@@ -266,15 +266,17 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
         const float dl5 = kitter6_ik_f32_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const float pc5 = -g16_23;
+        const float qs5 = root5;
+
         const int n5 = (root5 == 0.0f) ? 1 : 2;
         for (int k5 = 0; k5 < n5; ++k5) {
             const float sg5 = k5 ? -1.0f : 1.0f;
             float th5, c5, s5;
-            const float cn5 = -g16_23;
-            const float sn5 = root5*sg5;
             th5 = 0.0f + sg5 * dl5;
-            c5 = cn5;
-            s5 = sn5;
+            c5 = pc5;
+            s5 = qs5*sg5;
 
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
@@ -282,7 +284,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt6 = -s5*s5;
-                if (fabsf(dt6) > 1e-20f) {
+                if (dt6 < -1e-20f) {
                     c6 = (g16_21*s5) / dt6;
                     s6 = (-g16_22*s5) / dt6;
                     free6 = 0;
@@ -367,15 +369,17 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
             const float dl3 = kitter6_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
+            /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+            const float pc3 = -5.13610683e-06f*ec3;
+            const float qs3 = -5.13610683e-06f*root3;
+
             const int n3 = (root3 == 0.0f) ? 1 : 2;
             for (int k3 = 0; k3 < n3; ++k3) {
                 const float sg3 = k3 ? -1.0f : 1.0f;
                 float th3, c3, s3;
-                const float cn3 = -194700.0f*ec3;
-                const float sn3 = -194700.0f*root3*sg3;
                 th3 = 3.14159265f + sg3 * dl3;
-                c3 = 2.63795934e-11f*cn3;
-                s3 = 2.63795934e-11f*sn3;
+                c3 = pc3;
+                s3 = qs3*sg3;
 
                 /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
                 float th2, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
@@ -420,13 +424,13 @@ static int closed_form(const float pose[16], const float *current,
                 const int fine = probe - probe == 0.0f;
                 {
                     float u1 = th1;
-                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                     const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
                     float u3 = th3;
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : u3;
                     const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 - -1.57079633f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
@@ -436,7 +440,7 @@ static int closed_form(const float pose[16], const float *current,
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
                     const float jv5 = u5 * 57.2957795f;
                     float u6 = th6;
-                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                     const float jv6 = u6 * 57.2957795f;
                     const float cv0 = root1 * 0.00316227766f;
                     const float cv1 = root5 * 1.0f;

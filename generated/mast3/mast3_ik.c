@@ -280,10 +280,10 @@ static int closed_form(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = (l3 - 0.0) * 1.0;
                 const double cv0 = root1 * 0.001;
@@ -429,10 +429,10 @@ int mast3_ik_inverse_joints(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = (l3 - 0.0) * 1.0;
                 if (fine && count < MAST3_IK_CLOSED_FORM) {

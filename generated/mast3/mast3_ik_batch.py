@@ -203,9 +203,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         lm0 = q1x
         lm1 = -c2*q1y + q1x*s2
         u1 = th1
-        u1 = u1 - _TWO_PI * (u1 > _PI) + _TWO_PI * (u1 <= -_PI)
+        u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2
-        u2 = u2 - _TWO_PI * (u2 > _PI) + _TWO_PI * (u2 <= -_PI)
+        u2 = u2 + _TWO_PI * (u2 <= -_PI)
         u3 = (l3 - 0.0) * 1.0
 
         valid = valid & (399.9999984 <= u3) & (u3 <= 2000.0000016)  # strokes define reach

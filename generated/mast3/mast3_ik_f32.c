@@ -264,10 +264,10 @@ static int closed_form(const float pose[16], const float *current,
             const int fine = probe - probe == 0.0f;
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 const float jv3 = (l3 - 0.0f) * 1.0f;
                 const float cv0 = root1 * 0.001f;

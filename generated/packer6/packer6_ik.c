@@ -295,15 +295,19 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
         const double dl3 = packer6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const double pc3 = 0.078708043246492124*ec3;
+        const double qc3 = 0.64397489928948104*root3;
+        const double ps3 = -0.64397489928948104*ec3;
+        const double qs3 = 0.078708043246492124*root3;
+
         const int n3 = (root3 == 0.0) ? 1 : 2;
         for (int k3 = 0; k3 < n3; ++k3) {
             const double sg3 = k3 ? -1.0 : 1.0;
             double th3, c3, s3;
-            const double cn3 = 0.187*ec3 + 1.53*root3*sg3;
-            const double sn3 = -1.53*ec3 + 0.187*root3*sg3;
             th3 = -1.44917730353355 + sg3 * dl3;
-            c3 = 0.42089862698658892*cn3;
-            s3 = 0.42089862698658892*sn3;
+            c3 = pc3 + qc3*sg3;
+            s3 = ps3 + qs3*sg3;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
@@ -477,19 +481,15 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt4 = s5*s5;
-                if (fabs(dt4) > 9.9999999999999995e-21) {
+                if (dt4 > 9.9999999999999995e-21) {
                     c4 = -g36_13*s5;
                     s4 = g16_23*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-                if (fabs(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
@@ -503,7 +503,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -s5*s5;
-                if (fabs(dt6) > 1e-08) {
+                if (dt6 < -1e-08) {
                     c6 = g36_21*s5;
                     s6 = -g36_22*s5;
                     free6 = 0;
@@ -548,19 +548,23 @@ static int closed_form(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 1.0;
                 double u3 = th3;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jv3 = u3 * 1.0;
                 double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 1.0;
-                const double jv5 = th5 * 1.0;
-                const double jv6 = th6 * 1.0;
+                double u5 = th5;
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+                const double jv5 = u5 * 1.0;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 1.0;
                 const double cv0 = root1 * 1.0;
                 const double cv1 = root3 * 0.64876700516178298;
                 const double cv2 = root5 * 1.0;
@@ -587,22 +591,22 @@ static int closed_form(const double pose[16], const double *current,
             if (root5 > 0.0 && !free4) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 1.0;
                     double u3 = th3;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                     const double jv3 = u3 * 1.0;
                     double u4 = th4 + 3.1415926535897931;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 1.0;
                     double u5 = -th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                     const double jv5 = u5 * 1.0;
                     double u6 = th6 + 3.1415926535897931;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                     const double jv6 = u6 * 1.0;
                     const double cv0 = root1 * 1.0;
                     const double cv1 = root3 * 0.64876700516178298;
@@ -729,15 +733,19 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root3 = er3 > 0.0 ? sqrt(er3) : 0.0;
         const double dl3 = packer6_ik_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const double pc3 = 0.078708043246492124*ec3;
+        const double qc3 = 0.64397489928948104*root3;
+        const double ps3 = -0.64397489928948104*ec3;
+        const double qs3 = 0.078708043246492124*root3;
+
         const int n3 = (root3 == 0.0) ? 1 : 2;
         for (int k3 = 0; k3 < n3; ++k3) {
             const double sg3 = k3 ? -1.0 : 1.0;
             double th3, c3, s3;
-            const double cn3 = 0.187*ec3 + 1.53*root3*sg3;
-            const double sn3 = -1.53*ec3 + 0.187*root3*sg3;
             th3 = -1.44917730353355 + sg3 * dl3;
-            c3 = 0.42089862698658892*cn3;
-            s3 = 0.42089862698658892*sn3;
+            c3 = pc3 + qc3*sg3;
+            s3 = ps3 + qs3*sg3;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th2 = 0.0, c2 = 0.0, s2 = 0.0, dt2, wk2 = 0.0;
@@ -911,19 +919,15 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt4 = s5*s5;
-                if (fabs(dt4) > 9.9999999999999995e-21) {
+                if (dt4 > 9.9999999999999995e-21) {
                     c4 = -g36_13*s5;
                     s4 = g16_23*s5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
-            if (!free4 && fabs(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.0001 * (dt4 * dt4)) {
-                if (fabs(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0 + 1.0 * (current && current[3] - current[3] == 0.0 ? fmod(current[3], 6.2831853071795862) : 0.0)));
                 c4 = cos(th4);
@@ -937,7 +941,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -s5*s5;
-                if (fabs(dt6) > 1e-08) {
+                if (dt6 < -1e-08) {
                     c6 = g36_21*s5;
                     s6 = -g36_22*s5;
                     free6 = 0;
@@ -983,19 +987,23 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                 const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
-                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 1.0;
                 double u3 = th3;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jv3 = u3 * 1.0;
                 double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 1.0;
-                const double jv5 = th5 * 1.0;
-                const double jv6 = th6 * 1.0;
+                double u5 = th5;
+                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+                const double jv5 = u5 * 1.0;
+                double u6 = th6;
+                u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
+                const double jv6 = u6 * 1.0;
                 if (fine && count < PACKER6_IK_CLOSED_FORM) {
                     double *row = joints[count++];
                     row[0] = jv1;
@@ -1009,22 +1017,22 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             if (root5 > 0.0 && !free4) {
                 {
                     double u1 = th1;
-                    u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : (u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1);
+                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
                     const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
-                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : (u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2);
+                    u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 1.0;
                     double u3 = th3;
-                    u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : (u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3);
+                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                     const double jv3 = u3 * 1.0;
                     double u4 = th4 + 3.1415926535897931;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 1.0;
                     double u5 = -th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+                    u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                     const double jv5 = u5 * 1.0;
                     double u6 = th6 + 3.1415926535897931;
-                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+                    u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : u6;
                     const double jv6 = u6 * 1.0;
                     if (fine && count < PACKER6_IK_CLOSED_FORM) {
                         double *row = joints[count++];

@@ -279,15 +279,19 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
         const float dl3 = packer6_ik_f32_atan2(root3, ec3);   /* th = gamma + sg * dl */
+        /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
+        const float pc3 = 0.0787080432f*ec3;
+        const float qc3 = 0.643974899f*root3;
+        const float ps3 = -0.643974899f*ec3;
+        const float qs3 = 0.0787080432f*root3;
+
         const int n3 = (root3 == 0.0f) ? 1 : 2;
         for (int k3 = 0; k3 < n3; ++k3) {
             const float sg3 = k3 ? -1.0f : 1.0f;
             float th3, c3, s3;
-            const float cn3 = 0.187f*ec3 + 1.53f*root3*sg3;
-            const float sn3 = -1.53f*ec3 + 0.187f*root3*sg3;
             th3 = -1.4491773f + sg3 * dl3;
-            c3 = 0.420898627f*cn3;
-            s3 = 0.420898627f*sn3;
+            c3 = pc3 + qc3*sg3;
+            s3 = ps3 + qs3*sg3;
 
             /* th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th2 = 0.0f, c2 = 0.0f, s2 = 0.0f, dt2, wk2 = 0.0f;
@@ -461,19 +465,15 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt4 = s5*s5;
-                if (fabsf(dt4) > 1e-20f) {
+                if (dt4 > 1e-20f) {
                     c4 = -g36_13*s5;
                     s4 = g16_23*s5;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
             }
-            if (!free4 && fabsf(c4 * c4 + s4 * s4 - dt4 * dt4) > 0.005f * (dt4 * dt4)) {
-                if (fabsf(dt4) > wk4) {
-                    continue;
-                }
-                free4 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
+            /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
+            (void)wk4;
             if (free4) {
                 th4 = one_turn((0.0f + 1.0f * (current && current[3] - current[3] == 0.0f ? fmodf(current[3], 6.28318531f) : 0.0f)));
                 c4 = cosf(th4);
@@ -487,7 +487,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt6 = free4 ? 0.0f : -s5*s5;
-                if (fabsf(dt6) > 0.001f) {
+                if (dt6 < -0.001f) {
                     c6 = g36_21*s5;
                     s6 = -g36_22*s5;
                     free6 = 0;
@@ -532,19 +532,23 @@ static int closed_form(const float pose[16], const float *current,
             const int fine = probe - probe == 0.0f;
             {
                 float u1 = th1;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                 const float jv1 = u1 * 1.0f;
                 float u2 = th2 - -1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
                 const float jv2 = u2 * 1.0f;
                 float u3 = th3;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
                 const float jv3 = u3 * 1.0f;
                 float u4 = th4;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 1.0f;
-                const float jv5 = th5 * 1.0f;
-                const float jv6 = th6 * 1.0f;
+                float u5 = th5;
+                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
+                const float jv5 = u5 * 1.0f;
+                float u6 = th6;
+                u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
+                const float jv6 = u6 * 1.0f;
                 const float cv0 = root1 * 1.0f;
                 const float cv1 = root3 * 0.648767005f;
                 const float cv2 = root5 * 1.0f;
@@ -571,22 +575,22 @@ static int closed_form(const float pose[16], const float *current,
             if (root5 > 0.0f && !free4) {
                 {
                     float u1 = th1;
-                    u1 = u1 > 3.14159265f ? u1 - 6.28318531f : (u1 <= -3.14159265f ? u1 + 6.28318531f : u1);
+                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
                     const float jv1 = u1 * 1.0f;
                     float u2 = th2 - -1.57079633f;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : (u2 <= -3.14159265f ? u2 + 6.28318531f : u2);
+                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
                     const float jv2 = u2 * 1.0f;
                     float u3 = th3;
-                    u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
+                    u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
                     const float jv3 = u3 * 1.0f;
                     float u4 = th4 + 3.14159265f;
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
                     const float jv4 = u4 * 1.0f;
                     float u5 = -th5;
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+                    u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                     const float jv5 = u5 * 1.0f;
                     float u6 = th6 + 3.14159265f;
-                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+                    u6 = u6 > 3.14159265f ? u6 - 6.28318531f : u6;
                     const float jv6 = u6 * 1.0f;
                     const float cv0 = root1 * 1.0f;
                     const float cv1 = root3 * 0.648767005f;

@@ -441,15 +441,21 @@ def _closed_form(pose, current, check_finite=True):
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+        # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+        pc3 = 0.4160079873533572*ec3
+        qc3 = 4.160079873533572*root3
+        ps3 = -4.160079873533572*ec3
+        qs3 = 0.4160079873533572*root3
+
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
             th3 = -1.4711276743037347 + sg3 * dl3
-            c3 = 17.479327199720892*(0.0238*ec3 + 0.238*root3*sg3)
-            s3 = 17.479327199720892*(-0.238*ec3 + 0.0238*root3*sg3)
+            c3 = pc3 + qc3*sg3
+            s3 = ps3 + qs3*sg3
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = dq2
-            if dt2 > 1e-21 or dt2 < -1e-21:
+            if dt2 < -1e-21:
                 c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
                 s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
@@ -586,20 +592,12 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = -g36_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -611,7 +609,7 @@ def _closed_form(pose, current, check_finite=True):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = g36_31*s5
                 s6 = -g36_32*s5
             else:
@@ -644,17 +642,19 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 3.162277660168379, root3 * 4.180828530294072, root5, )
             u1 = th1 - 0.5235987755982991
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1
             v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
             v2 = u2 * 1.0
-            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u3 = th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3
             v3 = u3 * -1.0
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 1.0
-            v5 = th5 * 1.0
-            v6 = th6 * 1.0
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+            v5 = u5 * 1.0
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 1.0
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -666,14 +666,14 @@ def _closed_form(pose, current, check_finite=True):
             ), singular, conditioning, inside and -3.1000000062 <= v4 <= 3.1000000062 and -2.1000000042 <= v5 <= 2.1000000042)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 1.0
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
                 v5 = u5 * 1.0
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 1.0
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
@@ -764,15 +764,21 @@ def inverse_joints(pose, current=None):
             continue
         root3 = sqrt(er3) if er3 > 0.0 else 0.0
         dl3 = atan2(root3, ec3)  # th = gamma + sg * dl
+        # cosine and sine of the roots: A + B * sg, the same A and B for both roots
+        pc3 = 0.4160079873533572*ec3
+        qc3 = 4.160079873533572*root3
+        ps3 = -4.160079873533572*ec3
+        qs3 = 0.4160079873533572*root3
+
         for sg3 in ((1.0,) if root3 == 0.0 else (1.0, -1.0)):
             th3 = -1.4711276743037347 + sg3 * dl3
-            c3 = 17.479327199720892*(0.0238*ec3 + 0.238*root3*sg3)
-            s3 = 17.479327199720892*(-0.238*ec3 + 0.0238*root3*sg3)
+            c3 = pc3 + qc3*sg3
+            s3 = ps3 + qs3*sg3
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt2 = dq2
-            if dt2 > 1e-21 or dt2 < -1e-21:
+            if dt2 < -1e-21:
                 c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
                 s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
@@ -909,20 +915,12 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt4 = -s5*s5
-            if dt4 > 1e-20 or dt4 < -1e-20:
+            if dt4 < -1e-20:
                 c4 = -g36_13*s5
                 s4 = g16_33*s5
-                hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 * (dt4 * dt4) or hq4 > 1.0001 * (dt4 * dt4)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
-                    free4 = False
-                    th4 = atan2(s4, c4)   # as the C solver computes it
-                elif dt4 > 1e-08 or dt4 < -1e-08:
-                    continue
-                else:  # ill-conditioned near a singular pose: the pair does not fix it
-                    free4 = True
-                    th4 = _one_turn((0.0 + 1.0 * (fmod(current[3], 6.283185307179586) if current is not None else 0.0)))
-                    c4 = cos(th4)
-                    s4 = sin(th4)
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
+                free4 = False
+                th4 = atan2(s4, c4)
             else:
                 # no form applies: the pair leaves th4 free
                 free4 = True
@@ -934,7 +932,7 @@ def inverse_joints(pose, current=None):
             # ~0); no later step reads them, atan2 needs only their direction
 
             dt6 = 0.0 if free4 else -s5*s5
-            if dt6 > 1e-08 or dt6 < -1e-08:
+            if dt6 < -1e-08:
                 c6 = g36_31*s5
                 s6 = -g36_32*s5
             else:
@@ -961,28 +959,30 @@ def inverse_joints(pose, current=None):
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - 0.5235987755982991
-            u1 = u1 - _TWO_PI if u1 > _PI else (u1 + _TWO_PI if u1 <= -_PI else u1)
+            u1 = u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1
             v1 = u1 * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - _TWO_PI if u2 > _PI else (u2 + _TWO_PI if u2 <= -_PI else u2)
+            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
             v2 = u2 * 1.0
-            u3 = th3 - _TWO_PI if th3 > _PI else (th3 + _TWO_PI if th3 <= -_PI else th3)
+            u3 = th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3
             v3 = u3 * -1.0
-            u4 = th4 - _TWO_PI if th4 > _PI else (th4 + _TWO_PI if th4 <= -_PI else th4)
+            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
             v4 = u4 * 1.0
-            v5 = th5 * 1.0
-            v6 = th6 * 1.0
+            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
+            v5 = u5 * 1.0
+            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
+            v6 = u6 * 1.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + _PI
-                u4 = u4 - _TWO_PI if u4 > _PI else (u4 + _TWO_PI if u4 <= -_PI else u4)
+                u4 = th4 + 3.141592653589793
+                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
                 v4 = u4 * 1.0
                 u5 = -th5
-                u5 = u5 - _TWO_PI if u5 > _PI else (u5 + _TWO_PI if u5 <= -_PI else u5)
+                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
                 v5 = u5 * 1.0
-                u6 = th6 + _PI
-                u6 = u6 - _TWO_PI if u6 > _PI else (u6 + _TWO_PI if u6 <= -_PI else u6)
+                u6 = th6 + 3.141592653589793
+                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
                 v6 = u6 * 1.0
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 

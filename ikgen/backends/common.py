@@ -121,6 +121,16 @@ class Assignment:
     expr: sp.Expr
 
 
+def known_sign(det) -> int:
+    """+1 or -1 when a determinant's sign is known from its form (a constant, a square, minus a sum
+    of squares: its inputs are real), else 0. A scale-free pair then needs no sign test, and the
+    test of |det| against a threshold one comparison."""
+    det = sp.sympify(det)
+    if det.is_number:
+        return 1 if det > 0 else (-1 if det < 0 else 0)
+    return 1 if det.is_nonnegative else (-1 if det.is_nonpositive else 0)
+
+
 def form_limit(threshold: float, after: str, real: str) -> float:
     """|det| above which a pair's form is used (FormPlan.limit)."""
     if not after:
@@ -138,6 +148,8 @@ class FormPlan:
     threshold: float
     constant_det: bool
     after: str = ""              # tried only where this sibling pair's unknown was not left free
+    det_sign: int = 0            # +1 or -1 when the determinant's sign is known from its form, else 0
+    consistent: bool = False     # cos_num^2 + sin_num^2 = det^2 holds in the code's own quantities
 
     def limit(self, real: str) -> float:
         """|det| above which this form is used. A form that does without its sibling (``after``) is
@@ -149,15 +161,6 @@ class FormPlan:
         return form_limit(self.threshold, self.after, real)
 
     @property
-    def det_sign(self) -> int:
-        """+1 or -1 when the determinant's sign is known from its form (a square, minus a square;
-        its inputs are real), else 0: a scale-free pair then needs no sign test."""
-        det = sp.sympify(self.det)
-        if det.is_number:
-            return 1 if det > 0 else -1
-        return 1 if det.is_nonnegative else (-1 if det.is_nonpositive else 0)
-
-    @property
     def weak(self) -> float:
         """Below this |det| (1e-8 of its typical size) a pair whose (cos, sin) come out inconsistent
         is ill-conditioned rather than unreachable: rounding near a singular pose (the square root
@@ -167,6 +170,7 @@ class FormPlan:
 
 
 WEAK_FACTOR = 1e12
+PI = 3.141592653589793          # the double nearest pi: atan2's results lie in [-PI, PI]
 
 
 @dataclass
@@ -217,6 +221,35 @@ class Block:
     def joint(self) -> str:      # the unknown's key (kept for templates that name variables by it)
         return self.key
 
+    @property
+    def checked(self) -> bool:
+        """Whether a pair's (cos, sin) are tested for consistency: not when every form is consistent
+        by construction (FormPlan.consistent)."""
+        return not (self.forms and all(form.consistent for form in self.forms))
+
+    def root_parts(self) -> tuple[list[Assignment], sp.Expr | None, sp.Expr | None]:
+        """For a cossin block with constant a and b (gamma): its cosine and sine per root as
+        A + B sg, with A and B named before the loop over the roots (they read the radicand's root
+        and c, which do not change from root to root): (those assignments, cos, sin)."""
+        j = self.key
+        sg = sp.Symbol(f"sg{j}", real=True)
+        named = {sp.Symbol(f"cn{j}", real=True): self.cn, sp.Symbol(f"sn{j}", real=True): self.sn}
+        before, per_root = [], []
+        for expr, letter, needed in ((self.cos_expr, "c", self.need_cos), (self.sin_expr, "s", self.need_sin)):
+            if not needed:
+                per_root.append(None)
+                continue
+            expr = sp.expand(sp.sympify(expr).xreplace(named))
+            parts = []
+            for index, part in enumerate((expr.subs(sg, 0), expr.coeff(sg))):
+                if not part.is_number:
+                    name = sp.Symbol(f"{'pq'[index]}{letter}{j}", real=True)
+                    before.append(Assignment(name, part))
+                    part = name
+                parts.append(part)
+            per_root.append(parts[0] + parts[1] * sg)
+        return before, per_root[0], per_root[1]
+
 
 @dataclass
 class OutputPlan:
@@ -260,6 +293,44 @@ class Plan:
     branch_joints: list[str]
     mirror: MirrorPlan | None = None
     guard_tolerance: float = GUARD_TOLERANCE
+    ranges: dict = field(default_factory=dict)   # key -> (low, high, exact): where the DH angle can lie
+
+    @staticmethod
+    def wrap_tests(out: "OutputPlan") -> tuple[str, str]:
+        """The comparisons of a wrap step, (above, below): u above pi loses a turn, u below -pi
+        gains one. A reading is u times the direction, so u goes into (-pi, pi] for a joint that
+        counts along the DH angle and into [-pi, pi) for one that counts against it: either way
+        the reading lies in (-half turn, half turn]."""
+        return (">", "<=") if out.direction > 0 else (">=", "<")
+
+    def wrap_sides(self, out: "OutputPlan", mirrored: bool):
+        """Which of the two conditional steps of a one-step wrap a reading needs: (above pi, at or
+        below -pi), from where its DH angle can lie (an atan2 result or a free angle is in
+        [-PI, PI] with PI the double nearest pi, gamma + sg * delta within half a turn of gamma);
+        None when the range is unknown or the reading needs more than one step (both steps then,
+        as many times as OutputPlan.wraps says). A side whose range keeps within 1e-9 of the bound
+        keeps its step unless the range is exact (an atan2 result read as it is)."""
+        key = str(out.joint)
+        if out.wraps != 1 or key not in self.ranges:
+            return None
+        low, high, exact = self.ranges[key]
+        if mirrored and self.mirror is not None:
+            if key == self.mirror.joint:
+                if self.mirror.kind == "negate_sin":
+                    low, high = -high, -low
+                else:
+                    low, high, exact = PI - high, PI - low, False
+            elif self.mirror.parities.get(key, 1) < 0:
+                low, high, exact = low + PI, high + PI, False
+        if out.direction < 0:         # the reading is -u: u is taken into [-pi, pi) (wrap_tests)
+            if exact and out.zero == 0.0:
+                return high >= PI, low < -PI
+            low, high = low - out.zero, high - out.zero
+            return high >= PI - 1e-9, low < -PI + 1e-9
+        if exact and out.zero == 0.0:
+            return high > PI, low <= -PI
+        low, high = low - out.zero, high - out.zero
+        return high > PI - 1e-9, low <= -PI + 1e-9
 
     @property
     def branch_sizes(self) -> list[int]:
@@ -311,20 +382,6 @@ class Plan:
             elif block.kind == "quad":
                 terms.append(("double", block.key))
         return terms
-
-    @property
-    def bounded_joints(self) -> set[int]:
-        """Joints whose DH angle is always one atan2 result in [-pi, pi] (never a caller's value, nor
-        gamma + sg * delta)."""
-        out = set()
-        for block in self.blocks:
-            if not block.key.isdigit():
-                continue
-            if block.kind == "cossin" and block.threshold is None and block.gamma is None:
-                out.add(int(block.key))
-            elif block.kind == "pair" and not block.free_possible:
-                out.add(int(block.key))
-        return out
 
     @property
     def condition_blocks(self) -> list[Block]:
@@ -409,6 +466,7 @@ def lower_now(derivation: Derivation) -> Plan:
     branch_joints = []
     mirror = None
     bounds: dict[str, int] = {}
+    ranges: dict[str, tuple[float, float, bool]] = {}
     for number, step in enumerate(derivation.steps, 1):
         prefix = f"t{number}_"
         if isinstance(step, Compute):
@@ -426,8 +484,10 @@ def lower_now(derivation: Derivation) -> Plan:
                           mirrored=step.mirror is not None, condition_name=step.branch.name,
                           condition_gain=condition_gain(norm_value, step.singular.threshold))
             specialise_cossin(block, a, b, c, norm_value, radicand)
+            ranges[step.key] = (-PI, PI, True)       # one atan2 a root, or a free angle in one turn
             if block.gamma is not None:
                 bounds[step.key] = 2         # gamma + sg * delta lies within two half-turns of 0
+                ranges[step.key] = (block.gamma - PI, block.gamma + PI, False)
             blocks.append(block)
             branch_joints.append(step.key)
             if step.mirror is not None:
@@ -441,15 +501,20 @@ def lower_now(derivation: Derivation) -> Plan:
                 exprs = [numeric(e, params) for e in (form.det, form.cos_num, form.sin_num)]
                 temps, (det, cos_num, sin_num) = eliminate(exprs, f"{prefix}{k}_")
                 constant_det = det.is_number and det != 0
-                forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det, form.after))
+                forms.append(FormPlan(temps, det, cos_num, sin_num, form.threshold, constant_det, form.after,
+                                      known_sign(numeric(form.det, params))))
                 if constant_det and not form.after:
                     break          # a constant determinant never vanishes: later forms are unreachable
             blocks.append(Block("pair", depth, f"th{step.key} from a linear pair", key=step.key, hint=hint,
                                 forms=forms, free_possible=not forms[-1].constant_det))
+            ranges[step.key] = (-PI, PI, True)
         elif isinstance(step, AngleSum):
             cos_value, sin_value = angle_sum_trig(list(step.terms))
             bound = sum(bounds.get(k, 1) for k, _ in step.terms)
             bounds[step.key] = bound
+            if all(k in ranges for k, _ in step.terms):
+                ranges[step.key] = (sum(ranges[k][0] if sign > 0 else -ranges[k][1] for k, sign in step.terms),
+                                    sum(ranges[k][1] if sign > 0 else -ranges[k][0] for k, sign in step.terms), False)
             blocks.append(Block("sum", depth, f"th{step.key}: {step.purpose}", key=step.key, hint=hint,
                                 terms=list(step.terms), cos_expr=cos_value, sin_expr=sin_value, bound=bound))
         elif isinstance(step, CirclePolynomial):
@@ -511,10 +576,11 @@ def lower_now(derivation: Derivation) -> Plan:
         outputs.append(OutputPlan(out.joint, zero, out.direction / scale, out.direction, scale, wraps))
     labels = [LabelPlan(l.name, l.positive, l.negative) for l in derivation.labels]
     plan = Plan(blocks, final_temps, label_measures, labels, outputs, derivation.pose_symbols,
-                derivation.max_solutions, depth, branch_joints, mirror)
+                derivation.max_solutions, depth, branch_joints, mirror, ranges=ranges)
     separate_siblings(plan)
     drop_unused(plan)
     mark_scale_free(plan)
+    mark_consistent(plan)
     propagate_aliases(plan)
     hoist(plan)
     mark_late_angles(plan)
@@ -583,6 +649,39 @@ def separate_siblings(plan: Plan) -> None:
             form.det, form.cos_num, form.sin_num = (sp.sympify(e).xreplace(unit)
                                                     for e in (form.det, form.cos_num, form.sin_num))
     plan.blocks = [b for b in plan.blocks if b.kind != "compute" or b.temps]
+
+
+def mark_consistent(plan: Plan) -> None:
+    """A scale-free pair's form whose cos_num^2 + sin_num^2 - det^2 is identically 0 in the code's
+    own quantities (each root's square its radicand, each unit-norm root's cosine and sine its cn
+    and sn, each named radicand its formula), with cos_num, sin_num and det single products (no
+    sum that could cancel; other named quantities taken as they are), is consistent whatever the
+    pose: rounding moves the test by a few ulp
+    of det^2, never by 1e-4, so the test is left out (FormPlan.consistent). The wrist's joint 4
+    once joint 5 is known is the usual case: (-g s5, h s5) with det -s5^2 and s5^2 = g^2 + h^2."""
+    trig: dict = {}
+    roots: list = []
+    for block in plan.blocks:
+        if block.kind == "cossin":
+            root = sp.Symbol(f"root{block.key}", real=True)
+            definitions = {a.target: a.expr for a in block.temps}
+            roots.append((root, sp.sympify(block.radicand).xreplace(definitions)))
+            if block.norm == 1 and block.gamma is None:
+                trig[cos_symbol(block.key)] = block.cn
+                trig[sin_symbol(block.key)] = block.sn
+        if block.kind != "pair" or not block.scale_free:
+            continue
+        for form in block.forms:
+            parts = [sp.expand(sp.sympify(e)) for e in (form.cos_num, form.sin_num, form.det)]
+            if any(isinstance(e, sp.Add) for e in parts) or form.temps:
+                continue
+            gap = sp.expand((parts[0] ** 2 + parts[1] ** 2 - parts[2] ** 2).xreplace(trig))
+            for root, radicand in roots:
+                if gap.has(root):
+                    gap = sp.expand(sp.rem(sp.Poly(gap, root), sp.Poly(root ** 2 - radicand, root)).as_expr())
+            for sign in {s for s in gap.free_symbols if s.name.startswith("sg")}:
+                gap = sp.expand(sp.rem(sp.Poly(gap, sign), sp.Poly(sign ** 2 - 1, sign)).as_expr())
+            form.consistent = gap == 0
 
 
 def mark_scale_free(plan: Plan) -> None:
