@@ -458,20 +458,20 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 < -9.999999999999999e-16:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 < -9.999999999999999e-16:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
+                elif dq2 > 0.0009999999999999998 or dq2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -506,13 +506,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -557,13 +558,14 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 1.0 or dt2 < -1.0:
                             continue
@@ -643,7 +645,7 @@ def _closed_form(pose, current, check_finite=True):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -654,19 +656,13 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = s5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 57.29577951308232
-            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-            v3 = u3 * 57.29577951308232
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
+            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -679,14 +675,11 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
                     la1,
@@ -789,20 +782,20 @@ def inverse_joints(pose, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 < -9.999999999999999e-16:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 < -9.999999999999999e-16:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
+                elif dq2 > 0.0009999999999999998 or dq2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -837,13 +830,14 @@ def inverse_joints(pose, current=None):
                     c2 = (9600.0*c3*g16_14 - 136000.0*c3*g16_24 + 10400.0*c3*t7_1_9 + 9600.0*g16_24*s3 + g16_24*t7_1_15 - 20800.0*g16_24 - 124800.0*s3*t7_1_8 - t7_1_10*t7_1_16 - t7_1_10*t7_1_17 - t7_1_10*t7_1_18 - 120700.0*t7_1_10 + t7_1_11*t7_1_12 - t7_1_12*t7_1_13 - t7_1_14*t7_1_6 - t7_1_14*t7_1_7 + 124800.0*t7_1_14*v1x + t7_1_16*t7_1_8 + t7_1_17*t7_1_8 + t7_1_18*t7_1_8 + t7_1_6 + t7_1_7 + 120700.0*t7_1_8 + 800.0*t7_1_9) / dt2
                     s2 = (136000.0*c3*g16_14 + 10400.0*c3*g16_24*s3 + 9600.0*c3*g16_24 + 124800.0*c3*s3*v1x - g16_14*t7_1_15 + 20800.0*g16_14 + 800.0*g16_24*s3 + 124800.0*g16_24 - t7_1_11*t7_1_14 - t7_1_12*t7_1_6 - t7_1_12*t7_1_7 - t7_1_13 + 10400.0*t7_1_14*v1x + 124800.0*t7_1_14*v1y - t7_1_16*t7_1_19 - t7_1_16*t7_1_20 - t7_1_17*t7_1_19 - t7_1_17*t7_1_20 - t7_1_18*t7_1_19 - t7_1_18*t7_1_20 - 120700.0*t7_1_19 - 120700.0*t7_1_20 - 9600.0*t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -888,13 +882,14 @@ def inverse_joints(pose, current=None):
                         c2 = (19200.0*c3*g16_14*s3 + 114400.0*c3*g16_24*s3 - 124800.0*c3*g16_24 - 8736000.0*c3*r33 + 140.0*g16_13*g16_14*v1x - 1344000.0*g16_13*t7_2_20 + 8008000.0*g16_13*t7_2_22 - 8064000.0*g16_13 - g16_14*t7_2_25 + 115200.0*g16_14 - 140.0*g16_24*r33*v1x - 10400.0*g16_24*s3 + 19200.0*g16_24*t7_2_22 - 9600.0*g16_24 + 140.0*g16_33*g16_34*v1x - 728000.0*r33*s3 + 1344000.0*r33*t7_2_22 - 672000.0*r33 + 124800.0*s3*v1x - t7_2_16*v1x - t7_2_17*v1x - t7_2_18*v1x - t7_2_19*v1x - 8008000.0*t7_2_21 - t7_2_23*t7_2_24 - t7_2_24*t7_2_26 - t7_2_24*t7_2_27 - 125600.0*v1x) / dt2
                         s2 = (8008000.0*c3*g16_13*s3 - 8736000.0*c3*g16_13 + 124800.0*c3*g16_14 + 19200.0*c3*g16_24*s3 + 140.0*g16_13*g16_14*v1y - 728000.0*g16_13*s3 + 1344000.0*g16_13*t7_2_22 - 672000.0*g16_13 + 10400.0*g16_14*s3 - 114400.0*g16_14*t7_2_20 - 19200.0*g16_14*t7_2_22 + 9600.0*g16_14 - 140.0*g16_24*r33*v1y - g16_24*t7_2_25 + 115200.0*g16_24 + 140.0*g16_33*g16_34*v1y - 8008000.0*r33*t7_2_22 + 8064000.0*r33 + 124800.0*s3*v1y - t7_2_16*v1y - t7_2_17*v1y - t7_2_18*v1y - t7_2_19*v1y - 1344000.0*t7_2_21 - t7_2_23*t7_2_28 - t7_2_26*t7_2_28 - t7_2_27*t7_2_28 - 125600.0*v1y) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 1.0 or dt2 < -1.0:
                             continue
@@ -974,36 +969,27 @@ def inverse_joints(pose, current=None):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 57.29577951308232
-            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-            v3 = u3 * 57.29577951308232
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
+            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -535,20 +535,20 @@ def _closed_form(pose, current, check_finite=True):
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-        dt1 = dq1
-        if dt1 > 9.999999999999999e-14:
-            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
-            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
+        if dq1 > 9.999999999999999e-14:
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dq1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dq1
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq1 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free1 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn1 = 1.0 / sqrt(hq1)
-                    c1 = c1 * hn1
-                    s1 = s1 * hn1
+                th1 = atan2(s1, c1)
+            elif not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free1 = False
+                hn1 = 1.0 / sqrt(hq1)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c1 = c1 * hn1
+                s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif dt1 > 0.09999999999999999 or dt1 < -0.09999999999999999:
+            elif dq1 > 0.09999999999999999 or dq1 < -0.09999999999999999:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -599,13 +599,14 @@ def _closed_form(pose, current, check_finite=True):
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
-            if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free2 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                th2 = atan2(s2, c2)
+            elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free2 = False
+                hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c2 = c2 * hn2
+                s2 = s2 * hn2
                 th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
             elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                 continue
@@ -659,13 +660,14 @@ def _closed_form(pose, current, check_finite=True):
                 c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.0713431428*c3*g16_13 + 242.4871130596428*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.779422346*g16_13*t7_1_25 - 8147566.998803998*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.2820323027551*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2
                 s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.0713431428*c3*g16_23 + 242.4871130596428*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.779422346*g16_23*t7_1_25 - 8147566.998803998*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.2820323027551*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif dt2 > 1.0 or dt2 < -1.0:
                     continue
@@ -705,13 +707,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.57252693*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.2170282168*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.95636501*t7_2_4 + 21180000.0*t7_2_5 + 7014805.770653953*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2
                     s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.38871337*t7_2_2 + 3922229.053739723*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.49562459*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
@@ -800,7 +803,7 @@ def _closed_form(pose, current, check_finite=True):
             s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+        if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
             continue
         th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -811,18 +814,13 @@ def _closed_form(pose, current, check_finite=True):
         lm2 = s5
         singular = free3 or dbl3 or free1 or free2 or root5 == 0.0 or free4
         conditioning = (cnd3, root5, )
-        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-        v1 = u1 * 57.29577951308232
-        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-        v2 = u2 * 57.29577951308232
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
         u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3)
         v3 = u3 * 57.29577951308232
-        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-        v4 = u4 * 57.29577951308232
-        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-        v5 = u5 * 57.29577951308232
-        u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-        v6 = u6 * 57.29577951308232
+        v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+        v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+        v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
         la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
         la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
         la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -835,14 +833,11 @@ def _closed_form(pose, current, check_finite=True):
 
         if root5 > 0.0 and not free4:
             u4 = th4 + 3.141592653589793
-            u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-            v4 = u4 * 57.29577951308232
+            v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
             u5 = -th5
-            u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-            v5 = u5 * 57.29577951308232
+            v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
             u6 = th6 + 3.141592653589793
-            u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-            v6 = u6 * 57.29577951308232
+            v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
             solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                 la0,
                 la1,
@@ -907,20 +902,20 @@ def inverse_joints(pose, current=None):
     for th3, c3, s3, dbl3, cnd3 in roots3:
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-        dt1 = dq1
-        if dt1 > 9.999999999999999e-14:
-            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
-            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
+        if dq1 > 9.999999999999999e-14:
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dq1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dq1
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq1 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free1 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq1 < 0.999999999999999 or hq1 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn1 = 1.0 / sqrt(hq1)
-                    c1 = c1 * hn1
-                    s1 = s1 * hn1
+                th1 = atan2(s1, c1)
+            elif not (hq1 < 0.9999 or hq1 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free1 = False
+                hn1 = 1.0 / sqrt(hq1)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c1 = c1 * hn1
+                s1 = s1 * hn1
                 th1 = atan2(s1, c1)   # after the unit scaling, as the C solver computes it
-            elif dt1 > 0.09999999999999999 or dt1 < -0.09999999999999999:
+            elif dq1 > 0.09999999999999999 or dq1 < -0.09999999999999999:
                 continue
             else:  # ill-conditioned near a singular pose: the pair does not fix it
                 free1 = True
@@ -971,13 +966,14 @@ def inverse_joints(pose, current=None):
             c2 = (s3*t7_0_0 + t7_0_0 + t7_0_1*v1x + t7_0_2*v1x - t7_0_3*v1y - t7_0_4*v1y + 259.8076211353316*v1x) / dt2
             s2 = (-s3*t7_0_5 + t7_0_1*v1y + t7_0_2*v1y + t7_0_3*v1x + t7_0_4*v1x - t7_0_5 + 259.8076211353316*v1y) / dt2
             hq2 = c2 * c2 + s2 * s2
-            if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free2 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn2 = 1.0 / sqrt(hq2)
-                    c2 = c2 * hn2
-                    s2 = s2 * hn2
+                th2 = atan2(s2, c2)
+            elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free2 = False
+                hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c2 = c2 * hn2
+                s2 = s2 * hn2
                 th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
             elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                 continue
@@ -1031,13 +1027,14 @@ def inverse_joints(pose, current=None):
                 c2 = (1163938.1426862855*c3*g16_13*s3 + 581969.0713431428*c3*g16_13 + 242.4871130596428*c3*g16_14*v1z - 10032000.0*c3*g16_23 + 156000.0*c3*g16_24*s3 + 20.0*c3*g16_24*v1z + 167200.0*c3*g16_24 + 14549.22678357857*c3*g16_33*v1x - 9360000.0*c3*t7_1_24 + 103.92304845413264*g16_13*g16_14*v1x + 1039.2304845413264*g16_13*s3*v1z - g16_13*t7_1_14 - g16_13*t7_1_18 + 8105997.779422346*g16_13*t7_1_25 - 8147566.998803998*g16_13 + 692.8203230275509*g16_14*s3 - g16_14*t7_1_12 - g16_14*t7_1_28 + 135792.78331339997*g16_14 + 103.92304845413264*g16_23*g16_24*v1x + 1392000.0*g16_23*s3 - 1200.0*g16_23*t7_1_17 + 1344000.0*g16_23*t7_1_25 - 18000.0*g16_23*v1z + 48000.0*g16_23 + 280.0*g16_24*s3*v1z - 23200.0*g16_24*s3 - 22400.0*g16_24*t7_1_25 + 300.0*g16_24*v1z - 800.0*g16_24 + 103.92304845413264*g16_33*g16_34*v1x + 17.320508075688775*g16_34*s3*v1x + 69.2820323027551*g16_34*v1x - t7_1_11*t7_1_23 - t7_1_13*v1x - t7_1_15*v1x - t7_1_16*v1x - t7_1_19*t7_1_20 - t7_1_19*t7_1_22 - t7_1_21*t7_1_9 - 16800.0*t7_1_24*v1z - t7_1_26*t7_1_27 - t7_1_27*t7_1_31 - t7_1_27*t7_1_33 - t7_1_29*t7_1_30 - t7_1_30*t7_1_32 - t7_1_30*t7_1_34 - 147570.72880486835*v1x) / dt2
                 s2 = (9360000.0*c3*g16_13*s3 + 1200.0*c3*g16_13*v1z + 10032000.0*c3*g16_13 - 167200.0*c3*g16_14 + 1163938.1426862855*c3*g16_23*s3 + 581969.0713431428*c3*g16_23 + 242.4871130596428*c3*g16_24*v1z + 14549.22678357857*c3*g16_33*v1y - 156000.0*c3*t7_1_19 + 103.92304845413264*g16_13*g16_14*v1y + 16800.0*g16_13*s3*v1z - 1392000.0*g16_13*s3 - 1344000.0*g16_13*t7_1_25 + 18000.0*g16_13*v1z - 48000.0*g16_13 + 23200.0*g16_14*s3 - 20.0*g16_14*t7_1_17 + 22400.0*g16_14*t7_1_25 - 300.0*g16_14*v1z + 800.0*g16_14 + 103.92304845413264*g16_23*g16_24*v1y + 1039.2304845413264*g16_23*s3*v1z - g16_23*t7_1_14 - g16_23*t7_1_18 + 8105997.779422346*g16_23*t7_1_25 - 8147566.998803998*g16_23 + 692.8203230275509*g16_24*s3 - g16_24*t7_1_12 - g16_24*t7_1_28 + 135792.78331339997*g16_24 + 103.92304845413264*g16_33*g16_34*v1y + 17.320508075688775*g16_34*s3*v1y + 69.2820323027551*g16_34*v1y - t7_1_10*t7_1_23 - t7_1_13*v1y - t7_1_15*v1y - t7_1_16*v1y - 280.0*t7_1_19*v1z - t7_1_20*t7_1_35 - t7_1_21*t7_1_8 - t7_1_22*t7_1_35 - t7_1_26*t7_1_36 - t7_1_29*t7_1_37 - t7_1_31*t7_1_36 - t7_1_32*t7_1_37 - t7_1_33*t7_1_36 - t7_1_34*t7_1_37 - 147570.72880486835*v1y) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif dt2 > 1.0 or dt2 < -1.0:
                     continue
@@ -1077,13 +1074,14 @@ def inverse_joints(pose, current=None):
                     c2 = (-17784697.692117233*c1 - 42023000.0*s1 + 64927656.57252693*t7_2_0 - 11949418.521417685*t7_2_1 + 143760.2170282168*t7_2_10 + t7_2_11*t7_2_12 - t7_2_11*t7_2_15 + t7_2_11*t7_2_16 + t7_2_11*t7_2_17 + t7_2_11*t7_2_18 + t7_2_12*t7_2_13 + t7_2_12*t7_2_14 - t7_2_13*t7_2_15 + t7_2_13*t7_2_16 + t7_2_13*t7_2_17 + t7_2_13*t7_2_18 - t7_2_14*t7_2_15 + t7_2_14*t7_2_16 + t7_2_14*t7_2_17 + t7_2_14*t7_2_18 + 21131000.0*t7_2_2 - 70586000.0*t7_2_3 + 42372890.95636501*t7_2_4 + 21180000.0*t7_2_5 + 7014805.770653953*t7_2_7 - 29909000.0*t7_2_8 + 34641.016151377546*t7_2_9 + 155884.57268119894*wx) / dt2
                     s2 = (-80146000.0*c1 + 21068666.023267824*s1 + 662000.0*t7_2_0 - 126662000.0*t7_2_1 - 37000.0*t7_2_10 + t7_2_11*t7_2_19 + t7_2_11*t7_2_20 - t7_2_11*t7_2_21 + t7_2_11*t7_2_22 + t7_2_11*t7_2_23 + t7_2_13*t7_2_19 + t7_2_13*t7_2_20 - t7_2_13*t7_2_21 + t7_2_13*t7_2_22 + t7_2_13*t7_2_23 + t7_2_14*t7_2_19 + t7_2_14*t7_2_20 - t7_2_14*t7_2_21 + t7_2_14*t7_2_22 + t7_2_14*t7_2_23 - 41262646.38871337*t7_2_2 + 3922229.053739723*t7_2_3 + 8100000.0*t7_2_4 - 26746328.570478603*t7_2_5 - 48928000.0*t7_2_7 - 18221174.49562459*t7_2_8 + 124000.0*t7_2_9 - 30000.0*wx) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
@@ -1172,35 +1170,27 @@ def inverse_joints(pose, current=None):
             s6 = -g56_12
 
         hq6 = c6 * c6 + s6 * s6
-        if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+        if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
             continue
         th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
-        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-        v1 = u1 * 57.29577951308232
-        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-        v2 = u2 * 57.29577951308232
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
         u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3)
         v3 = u3 * 57.29577951308232
-        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-        v4 = u4 * 57.29577951308232
-        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-        v5 = u5 * 57.29577951308232
-        u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-        v6 = u6 * 57.29577951308232
+        v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+        v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+        v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root5 > 0.0 and not free4:
             u4 = th4 + 3.141592653589793
-            u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-            v4 = u4 * 57.29577951308232
+            v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
             u5 = -th5
-            u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-            v5 = u5 * 57.29577951308232
+            v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
             u6 = th6 + 3.141592653589793
-            u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-            v6 = u6 * 57.29577951308232
+            v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -554,13 +554,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
@@ -601,13 +602,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -651,13 +653,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                             continue
@@ -747,7 +750,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if hq7 < 0.9999 * (dt7 * dt7) or hq7 > 1.0001 * (dt7 * dt7):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th7 = atan2(s7, c7)   # as the C solver computes it
 
@@ -758,18 +761,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             lm2 = s6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
-            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-            v2 = u2 * 57.29577951308232
-            u4 = th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
-            u7 = th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7
-            v7 = u7 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+            v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
+            v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
+            v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
             la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
             la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -782,14 +779,11 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             if root6 > 0.0 and not free5:
                 u5 = th5 + 3.141592653589793
-                u5 = u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5) * 57.29577951308232
                 u6 = -th6
-                u6 = u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6) * 57.29577951308232
                 u7 = th7 + 3.141592653589793
-                u7 = u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7
-                v7 = u7 * 57.29577951308232
+                v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
                     la0,
                     la1,
@@ -902,13 +896,14 @@ def inverse_joints(pose, given, current=None):
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
@@ -949,13 +944,14 @@ def inverse_joints(pose, given, current=None):
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0*g17_13*t9_1_19 + 29640960.0*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0*g17_33*t9_1_22 - 744.0*g17_34*t9_1_22 + 192.0*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0*v1y) / dt2
                     s2 = (-26569728.0*c3*c4*r33*s4 - 29640960.0*c3*r33*s4 + 192.0*g17_13*g17_14*v1x + 26569728.0*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0*g17_33*g17_34*v1x - 71424.0*g17_33*t9_1_21*v1x + 744.0*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0*v1x) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -999,13 +995,14 @@ def inverse_joints(pose, given, current=None):
                         c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2
                         s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                             continue
@@ -1095,35 +1092,26 @@ def inverse_joints(pose, given, current=None):
                 s7 = -g67_12
 
             hq7 = c7 * c7 + s7 * s7
-            if hq7 < 0.9999 * (dt7 * dt7) or hq7 > 1.0001 * (dt7 * dt7):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
-            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-            v2 = u2 * 57.29577951308232
-            u4 = th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
-            u7 = th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7
-            v7 = u7 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+            v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
+            v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
+            v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
             solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
             if root6 > 0.0 and not free5:
                 u5 = th5 + 3.141592653589793
-                u5 = u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5) * 57.29577951308232
                 u6 = -th6
-                u6 = u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6) * 57.29577951308232
                 u7 = th7 + 3.141592653589793
-                u7 = u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7
-                v7 = u7 * 57.29577951308232
+                v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
                 solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

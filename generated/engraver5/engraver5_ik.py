@@ -479,13 +479,14 @@ def _closed_form(pose, current, check_finite=True):
                 c2 = (kc2_0*v1x + kc2_1) / dt2
                 s2 = (ks2_2*v1x + ks2_3) / dt2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                 elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
                     continue
@@ -527,13 +528,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (-q1y*t6_1_19 + 16000.0*q1y - 76000.0*s3*t6_1_10 - t6_1_10*t6_1_21 - t6_1_10*t6_1_22 - t6_1_10*t6_1_23 - 72900.0*t6_1_10 - t6_1_11*t6_1_14 - 800.0*t6_1_11 + 7600.0*t6_1_12 + t6_1_13*t6_1_21 + t6_1_13*t6_1_22 + t6_1_13*t6_1_23 + 72900.0*t6_1_13 + t6_1_15*t6_1_16 + t6_1_16*t6_1_17 - t6_1_18*t6_1_6 + t6_1_18*t6_1_7 + t6_1_20*v1x + t6_1_6 - t6_1_7 + 7600.0*t6_1_8 + 80800.0*t6_1_9) / dt2
                     s2 = (76000.0*c3*t6_1_13 + q1x*t6_1_19 - 16000.0*q1x - 7600.0*t6_1_11 - t6_1_12*t6_1_14 - 800.0*t6_1_12 - t6_1_15*t6_1_18 + t6_1_15 - t6_1_16*t6_1_6 + t6_1_16*t6_1_7 - t6_1_17*t6_1_18 + t6_1_17 + t6_1_20*v1y + t6_1_21*t6_1_24 + t6_1_21*t6_1_25 + t6_1_22*t6_1_24 + t6_1_22*t6_1_25 + t6_1_23*t6_1_24 + t6_1_23*t6_1_25 + 72900.0*t6_1_24 + 72900.0*t6_1_25 - 80800.0*t6_1_8 + 7600.0*t6_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 0.09999999999999999 or dt2 < -0.09999999999999999:
                         continue
@@ -551,13 +553,14 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = (38000.0*c3 - 4000.0*s3 + 35700.0*t6_2_0 - 7600.0*t6_2_1 - v1x*v1y + 3800.0) / dt2
                         s2 = (-8000.0*c3 - 76000.0*s3 - 7600.0*t6_2_0 - 35700.0*t6_2_1 + v1x*v1x - 40400.0) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 9.999999999999999e-05 or dt2 < -9.999999999999999e-05:
                             continue
@@ -603,13 +606,14 @@ def _closed_form(pose, current, check_finite=True):
                 c4 = (-q3x*t10_0_0) / dt4
                 s4 = (-q1z*t10_0_0) / dt4
                 hq4 = c4 * c4 + s4 * s4
-                if not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq4 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free4 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq4 < 0.999999999999999 or hq4 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn4 = 1.0 / sqrt(hq4)
-                        c4 = c4 * hn4
-                        s4 = s4 * hn4
+                    th4 = atan2(s4, c4)
+                elif not (hq4 < 0.9999 or hq4 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free4 = False
+                    hn4 = 1.0 / sqrt(hq4)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c4 = c4 * hn4
+                    s4 = s4 * hn4
                     th4 = atan2(s4, c4)   # after the unit scaling, as the C solver computes it
                 elif dt4 > 9.999999999999999e-06 or dt4 < -9.999999999999999e-06:
                     continue
@@ -639,17 +643,12 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = c4*n3x + n1z*s4
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
-            v2 = u2 * 57.29577951308232
-            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-            v3 = u3 * 57.29577951308232
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
+            v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
+            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -662,11 +661,9 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, ), (
                     la0,
                     la1,

@@ -571,13 +571,14 @@ def _closed_form(pose, current, check_finite=True):
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + kc5_0*s4 + kc5_1) / dt5
             s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.04330127018922193*e1x + ks5_3 - 0.00625*s4) / dt5
             hq5 = c5 * c5 + s5 * s5
-            if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq5 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free5 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn5 = 1.0 / sqrt(hq5)
-                    c5 = c5 * hn5
-                    s5 = s5 * hn5
+                th5 = atan2(s5, c5)
+            elif not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free5 = False
+                hn5 = 1.0 / sqrt(hq5)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c5 = c5 * hn5
+                s5 = s5 * hn5
                 th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
             elif dt5 > 9.999999999999999e-10 or dt5 < -9.999999999999999e-10:
                 continue
@@ -645,7 +646,7 @@ def _closed_form(pose, current, check_finite=True):
             c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
             s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 * (dt1 * dt1) or hq1 > 1.0001 * (dt1 * dt1)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (not (0.9999 * (dt1 * dt1) <= hq1 <= 1.0001 * (dt1 * dt1))):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 th1 = atan2(s1, c1)   # as the C solver computes it
             elif dt1 > 1e-08 or dt1 < -1e-08:
@@ -685,7 +686,7 @@ def _closed_form(pose, current, check_finite=True):
             s3 = -g23_12
 
         hq3 = c3 * c3 + s3 * s3
-        if hq3 < 0.9999 * (dt3 * dt3) or hq3 > 1.0001 * (dt3 * dt3):   # abs(hq / det^2 - 1) > 1e-4
+        if not (0.9999 * (dt3 * dt3) <= hq3 <= 1.0001 * (dt3 * dt3)):   # abs(hq / det^2 - 1) > 1e-4
             continue
         th3 = atan2(s3, c3)   # as the C solver computes it
 
@@ -695,16 +696,11 @@ def _closed_form(pose, current, check_finite=True):
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
-        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-        v1 = u1 * 57.29577951308232
-        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-        v2 = u2 * 57.29577951308232
-        u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-        v3 = u3 * 57.29577951308232
-        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-        v4 = u4 * 57.29577951308232
-        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-        v5 = u5 * 57.29577951308232
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
+        v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+        v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+        v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
         u6 = th6 - 6.283185307179586 if th6 > 3.141592653589793 else (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6)
         v6 = u6 * 57.29577951308232
         la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
@@ -717,14 +713,11 @@ def _closed_form(pose, current, check_finite=True):
 
         if root2 > 0.0 and not free1:
             u1 = th1 + 3.141592653589793
-            u1 = u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1
-            v1 = u1 * 57.29577951308232
+            v1 = (u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1) * 57.29577951308232
             u2 = -th2
-            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
-            v2 = u2 * 57.29577951308232
+            v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
             u3 = th3 + 3.141592653589793
-            u3 = u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3
-            v3 = u3 * 57.29577951308232
+            v3 = (u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3) * 57.29577951308232
             solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                 "bend_negative" if lm0 >= 0.0 else "bend_positive",
                 la1,
@@ -816,13 +809,14 @@ def inverse_joints(pose, current=None):
             c5 = (0.25*c4*e1x + 0.0125*c4 + 0.2*e1x + kc5_0*s4 + kc5_1) / dt5
             s5 = (c4*ks5_2 - 0.125*e1x*s4 - 0.04330127018922193*e1x + ks5_3 - 0.00625*s4) / dt5
             hq5 = c5 * c5 + s5 * s5
-            if not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if 0.999999999999999 <= hq5 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free5 = False
-                # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                if hq5 < 0.999999999999999 or hq5 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                    hn5 = 1.0 / sqrt(hq5)
-                    c5 = c5 * hn5
-                    s5 = s5 * hn5
+                th5 = atan2(s5, c5)
+            elif not (hq5 < 0.9999 or hq5 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                free5 = False
+                hn5 = 1.0 / sqrt(hq5)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                c5 = c5 * hn5
+                s5 = s5 * hn5
                 th5 = atan2(s5, c5)   # after the unit scaling, as the C solver computes it
             elif dt5 > 9.999999999999999e-10 or dt5 < -9.999999999999999e-10:
                 continue
@@ -890,7 +884,7 @@ def inverse_joints(pose, current=None):
             c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
             s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
-            if not (hq1 < 0.9999 * (dt1 * dt1) or hq1 > 1.0001 * (dt1 * dt1)):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+            if not (not (0.9999 * (dt1 * dt1) <= hq1 <= 1.0001 * (dt1 * dt1))):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
                 th1 = atan2(s1, c1)   # as the C solver computes it
             elif dt1 > 1e-08 or dt1 < -1e-08:
@@ -930,35 +924,27 @@ def inverse_joints(pose, current=None):
             s3 = -g23_12
 
         hq3 = c3 * c3 + s3 * s3
-        if hq3 < 0.9999 * (dt3 * dt3) or hq3 > 1.0001 * (dt3 * dt3):   # abs(hq / det^2 - 1) > 1e-4
+        if not (0.9999 * (dt3 * dt3) <= hq3 <= 1.0001 * (dt3 * dt3)):   # abs(hq / det^2 - 1) > 1e-4
             continue
         th3 = atan2(s3, c3)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
-        u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-        v1 = u1 * 57.29577951308232
-        u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-        v2 = u2 * 57.29577951308232
-        u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-        v3 = u3 * 57.29577951308232
-        u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-        v4 = u4 * 57.29577951308232
-        u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-        v5 = u5 * 57.29577951308232
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
+        v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+        v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+        v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
         u6 = th6 - 6.283185307179586 if th6 > 3.141592653589793 else (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6)
         v6 = u6 * 57.29577951308232
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root2 > 0.0 and not free1:
             u1 = th1 + 3.141592653589793
-            u1 = u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1
-            v1 = u1 * 57.29577951308232
+            v1 = (u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1) * 57.29577951308232
             u2 = -th2
-            u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
-            v2 = u2 * 57.29577951308232
+            v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
             u3 = th3 + 3.141592653589793
-            u3 = u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3
-            v3 = u3 * 57.29577951308232
+            v3 = (u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -451,20 +451,20 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (kc2_0*v1x + kc2_1) / dt2
-                s2 = (ks2_2*v1x + ks2_3) / dt2
+            if dq2 > 9.999999999999999e-16 or dq2 < -9.999999999999999e-16:
+                c2 = (kc2_0*v1x + kc2_1) / dq2
+                s2 = (ks2_2*v1x + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
+                elif dq2 > 0.0009999999999999998 or dq2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -499,13 +499,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -585,7 +586,7 @@ def _closed_form(pose, current, check_finite=True):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -596,20 +597,14 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = s5
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2
-            v2 = u2 * -57.29577951308232
+            v2 = (u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2) * -57.29577951308232
             u3 = th3 - 1.7889624832941875
-            u3 = u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3
-            v3 = u3 * 57.29577951308232
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5
-            v5 = u5 * -57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5) * -57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -622,14 +617,11 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5
-                v5 = u5 * -57.29577951308232
+                v5 = (u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5) * -57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
                     la1,
@@ -731,20 +723,20 @@ def inverse_joints(pose, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 > 9.999999999999999e-16 or dt2 < -9.999999999999999e-16:
-                c2 = (kc2_0*v1x + kc2_1) / dt2
-                s2 = (ks2_2*v1x + ks2_3) / dt2
+            if dq2 > 9.999999999999999e-16 or dq2 < -9.999999999999999e-16:
+                c2 = (kc2_0*v1x + kc2_1) / dq2
+                s2 = (ks2_2*v1x + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 0.0009999999999999998 or dt2 < -0.0009999999999999998:
+                elif dq2 > 0.0009999999999999998 or dq2 < -0.0009999999999999998:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -779,13 +771,14 @@ def inverse_joints(pose, current=None):
                     c2 = (168200.0*c3*g16_24*s3 + 185600.0*c3*g16_24 + 15776000.0*c3*r33 + 170.0*g16_13*g16_14*v1x + 14297000.0*g16_13*t7_1_14 - 14297000.0*g16_13 + 168200.0*g16_14 - 170.0*g16_24*r33*v1x + 170.0*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0*v1x) / dt2
                     s2 = (14297000.0*c3*g16_13*s3 + 15776000.0*c3*g16_13 - 185600.0*c3*g16_14 + 170.0*g16_13*g16_14*v1y - 170.0*g16_24*r33*v1y - 168200.0*g16_24*t7_1_14 + 168200.0*g16_24 + 170.0*g16_33*g16_34*v1y - 14297000.0*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0*v1y) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1.0 or dt2 < -1.0:
                         continue
@@ -865,37 +858,28 @@ def inverse_joints(pose, current=None):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
-            u2 = u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2
-            v2 = u2 * -57.29577951308232
+            v2 = (u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2) * -57.29577951308232
             u3 = th3 - 1.7889624832941875
-            u3 = u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3
-            v3 = u3 * 57.29577951308232
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5
-            v5 = u5 * -57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5) * -57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5
-                v5 = u5 * -57.29577951308232
+                v5 = (u5 - 6.283185307179586 if u5 >= 3.141592653589793 else u5) * -57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

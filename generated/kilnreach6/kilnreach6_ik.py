@@ -501,7 +501,7 @@ def _closed_form(pose, current, check_finite=True):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -515,17 +515,12 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
-            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-            v2 = u2 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+            v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
             la2 = "root_plus" if lm2 >= 0.0 else "root_minus"
@@ -538,14 +533,11 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
                     "bend_negative" if lm1 >= 0.0 else "bend_positive",
@@ -707,7 +699,7 @@ def inverse_joints(pose, current=None):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -715,29 +707,21 @@ def inverse_joints(pose, current=None):
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
                 continue
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 57.29577951308232
-            u2 = th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2
-            v2 = u2 * 57.29577951308232
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+            v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 57.29577951308232
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 57.29577951308232
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 57.29577951308232
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 57.29577951308232
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 57.29577951308232
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 57.29577951308232
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -436,13 +436,14 @@ def _closed_form(pose, current, check_finite=True):
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
-                if not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq6 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free6 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq6 < 0.999999999999999 or hq6 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn6 = 1.0 / sqrt(hq6)
-                        c6 = c6 * hn6
-                        s6 = s6 * hn6
+                    th6 = atan2(s6, c6)
+                elif not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free6 = False
+                    hn6 = 1.0 / sqrt(hq6)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c6 = c6 * hn6
+                    s6 = s6 * hn6
                     th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
                 elif dt6 > 1e-08 or dt6 < -1e-08:
                     continue
@@ -548,21 +549,16 @@ def _closed_form(pose, current, check_finite=True):
                 lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
-                u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-                v1 = u1 * 57.29577951308232
+                v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
-                u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
-                v2 = u2 * 57.29577951308232
-                u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3
-                v3 = u3 * 57.29577951308232
+                v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
+                v3 = (th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3) * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                u5 = th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)
-                v5 = u5 * 57.29577951308232
-                u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-                v6 = u6 * 57.29577951308232
+                v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
+                v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
                 la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
                 la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
                 la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -653,13 +649,14 @@ def inverse_joints(pose, current=None):
                 c6 = (g16_21*s5) / dt6
                 s6 = (-g16_22*s5) / dt6
                 hq6 = c6 * c6 + s6 * s6
-                if not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq6 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free6 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq6 < 0.999999999999999 or hq6 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn6 = 1.0 / sqrt(hq6)
-                        c6 = c6 * hn6
-                        s6 = s6 * hn6
+                    th6 = atan2(s6, c6)
+                elif not (hq6 < 0.9999 or hq6 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free6 = False
+                    hn6 = 1.0 / sqrt(hq6)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c6 = c6 * hn6
+                    s6 = s6 * hn6
                     th6 = atan2(s6, c6)   # after the unit scaling, as the C solver computes it
                 elif dt6 > 1e-08 or dt6 < -1e-08:
                     continue
@@ -759,21 +756,16 @@ def inverse_joints(pose, current=None):
                 th4 = thp234 - th3 - th2
 
                 # Joint readings, configuration labels, singular flag.
-                u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-                v1 = u1 * 57.29577951308232
+                v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
-                u2 = u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2
-                v2 = u2 * 57.29577951308232
-                u3 = th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3
-                v3 = u3 * 57.29577951308232
+                v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
+                v3 = (th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3) * 57.29577951308232
                 u4 = th4 - -1.5707963267948966
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                u5 = th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)
-                v5 = u5 * 57.29577951308232
-                u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-                v6 = u6 * 57.29577951308232
+                v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
+                v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

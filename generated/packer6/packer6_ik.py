@@ -450,20 +450,20 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 > 1e-20 or dt2 < -1e-20:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 > 1e-20 or dq2 < -1e-20:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 1e-08 or dt2 < -1e-08:
+                elif dq2 > 1e-08 or dq2 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -531,13 +531,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1e-07 or dt2 < -1e-07:
                         continue
@@ -583,13 +584,14 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
                         s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 1e-08 or dt2 < -1e-08:
                             continue
@@ -667,7 +669,7 @@ def _closed_form(pose, current, check_finite=True):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -678,19 +680,13 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = s5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1, root3 * 0.648767005161783, root5, )
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 1.0
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 1.0
-            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-            v3 = u3 * 1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 1.0
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 1.0
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 1.0
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
+            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 1.0
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -703,14 +699,11 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 1.0
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 1.0
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 1.0
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
                     la1,
@@ -809,20 +802,20 @@ def inverse_joints(pose, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 > 1e-20 or dt2 < -1e-20:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 > 1e-20 or dq2 < -1e-20:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 1e-08 or dt2 < -1e-08:
+                elif dq2 > 1e-08 or dq2 < -1e-08:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -890,13 +883,14 @@ def inverse_joints(pose, current=None):
                     c2 = (0.28*c3*g16_13*g16_14*wz + 0.187*c3*g16_14*s3 + 0.3*c3*g16_14*wz + 0.198*c3*g16_14 + 0.28*c3*g16_23*g16_24*wz + 0.24*c3*g16_24*wz - 0.28*c3*pcz*r31*wz + 1.4692*c3*pcz - 0.2142*c3*r31*s3 + 1.53*c3*s3*wz - 0.02618*c3*t7_1_2 - 0.0297*c3 + 0.28*g16_13*g16_14*s3*v1x + 0.002912*g16_13*s3 + 0.2142*g16_13*t7_1_31 + 0.3*g16_14*s3*v1x - 0.042*g16_14*t7_1_2 + 1.53*g16_14 + 0.28*g16_23*g16_24*s3*v1x + 0.00504*g16_23*s3 + 0.24*g16_24*s3*v1x - 0.28*pcz*r31*s3*v1x - pcz*t7_1_38 + 0.374*pcz - 0.02772*r31*s3 - 0.02618*r31*t7_1_31 + 0.05236*r31 - s3*t7_1_20 + 0.00294*s3*t7_1_32 + 0.15*s3*t7_1_34 + 0.00294*s3*t7_1_35 + 0.15*s3*t7_1_36 + 0.00294*s3*t7_1_37 + 0.15*s3*t7_1_39 + 0.233595*s3 - 0.205688*t7_1_0 - 0.042*t7_1_11 - t7_1_15 - t7_1_16 - 0.02772*t7_1_17 - t7_1_18*t7_1_23 - t7_1_18*t7_1_34 - t7_1_18*t7_1_36 - t7_1_18*t7_1_39 - 1.5815*t7_1_18 - 0.0208*t7_1_19 - 0.198*t7_1_21 - t7_1_22*t7_1_23 - t7_1_22*t7_1_34 - t7_1_22*t7_1_36 - t7_1_22*t7_1_39 - 1.5815*t7_1_22 - t7_1_24*t7_1_25 - t7_1_25*t7_1_26 - t7_1_27*t7_1_28 - t7_1_27*t7_1_3 - t7_1_29*t7_1_30 - t7_1_31*t7_1_33 + 1.53*t7_1_31*v1x + 0.187*t7_1_31*wz - t7_1_32*t7_1_40 - t7_1_32*t7_1_41 - t7_1_35*t7_1_40 - t7_1_35*t7_1_41 - t7_1_37*t7_1_40 - t7_1_37*t7_1_41 - 0.2295) / dt2
                     s2 = (0.00504*c3*g16_23 - c3*t7_1_20 + 1.53*c3*t7_1_22 + 0.3*c3*t7_1_6 + 0.016845*c3 + 0.02618*g16_13*t7_1_31 - 0.042*g16_13*t7_1_43 - 0.05236*g16_13 - g16_14*t7_1_38 + 0.374*g16_14 + 0.02618*s3*t7_1_0 - 0.187*s3*t7_1_44 - 0.3*s3*t7_1_7 + 0.0297*s3 - t7_1_0*t7_1_30 + 0.28*t7_1_0*t7_1_9 + 0.02772*t7_1_0 - 0.28*t7_1_10*t7_1_29 + t7_1_15*t7_1_25 + t7_1_16*t7_1_25 + 0.28*t7_1_17*t7_1_6 - 0.199388*t7_1_17 - 0.28*t7_1_19*t7_1_4 - 0.198*t7_1_19 + 0.02772*t7_1_2 - 0.0242*t7_1_21 - t7_1_23*t7_1_45 + t7_1_23*t7_1_46 + t7_1_24*t7_1_31 - t7_1_24 - t7_1_25*t7_1_33 + t7_1_26*t7_1_31 - t7_1_26 + t7_1_27*t7_1_4 - t7_1_28*t7_1_47 + 0.003388*t7_1_29 - t7_1_3*t7_1_47 - t7_1_31*t7_1_42 - 1.53*t7_1_31*wz + t7_1_32*t7_1_49 - t7_1_32*t7_1_52 + t7_1_32*t7_1_53 - t7_1_34*t7_1_45 + t7_1_34*t7_1_46 + t7_1_34*t7_1_50 + t7_1_35*t7_1_49 - t7_1_35*t7_1_52 + t7_1_35*t7_1_53 - t7_1_36*t7_1_45 + t7_1_36*t7_1_46 + t7_1_36*t7_1_50 + t7_1_37*t7_1_49 - t7_1_37*t7_1_52 + t7_1_37*t7_1_53 - t7_1_39*t7_1_45 + t7_1_39*t7_1_46 + t7_1_39*t7_1_50 + t7_1_42 + 1.4242*t7_1_43 - 0.198*t7_1_44 + t7_1_45*t7_1_48 + t7_1_45*t7_1_51 - 1.5815*t7_1_45 - t7_1_46*t7_1_48 - t7_1_46*t7_1_51 + 1.5815*t7_1_46 - 0.02805) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 1e-07 or dt2 < -1e-07:
                         continue
@@ -942,13 +936,14 @@ def inverse_joints(pose, current=None):
                         c2 = (0.9*c3*g16_11*g16_22*g16_24 + 0.9*c3*g16_11*pcz*r32 + 0.0165*c3*g16_11*r32 + 0.11*c3*g16_12*g16_14*r33 + 0.108*c3*g16_12*g16_21 + 0.0132*c3*g16_21*r32 + 0.11*c3*g16_22*g16_24*r33 - 0.0165*c3*t7_2_1 - c3*t7_2_6 + 0.9*g16_11*g16_14*r32*s3 + 0.11*g16_11*g16_22*g16_24*s3 + 0.11*g16_11*pcz*r32*s3 + 0.1275*g16_11*r32 + 0.85*g16_12*g16_14*r33 + 0.0132*g16_12*g16_21*s3 + 0.135*g16_12*r33*s3 - 0.85*g16_14*t7_2_0 + 0.9*g16_21*g16_24*r32*s3 + 0.102*g16_21*r32 + 0.85*g16_22*g16_24*r33 + 0.108*g16_22*r33*s3 - r33*t7_2_2 - 0.135*s3*t7_2_0 - s3*t7_2_7 - 0.1275*t7_2_1 - t7_2_10*t7_2_9 - t7_2_11*t7_2_12 - t7_2_13*t7_2_15 - t7_2_13*t7_2_16 - t7_2_15*t7_2_20 - t7_2_16*t7_2_20 - t7_2_17*t7_2_9 - t7_2_18*t7_2_19 - t7_2_21*t7_2_5 - t7_2_3*t7_2_4 - t7_2_8*t7_2_9) / dt2
                         s2 = (c3*g16_12*t7_2_23 - c3*t7_2_7 - g16_11*t7_2_2 + 0.102*g16_12*g16_21 - r32*s3*t7_2_23 + s3*t7_2_6 - t7_2_0*t7_2_22 + t7_2_0*t7_2_24 - t7_2_0*t7_2_25 + t7_2_1*t7_2_22 - t7_2_1*t7_2_24 + t7_2_1*t7_2_25 - t7_2_10*t7_2_14 + t7_2_10*t7_2_4 + t7_2_11*t7_2_13 + t7_2_11*t7_2_20 - t7_2_12*t7_2_16 + t7_2_12*t7_2_26 + t7_2_12*t7_2_27 - t7_2_13*t7_2_19 + t7_2_13*t7_2_28 - t7_2_13*t7_2_29 - t7_2_14*t7_2_17 + t7_2_14*t7_2_21 - t7_2_14*t7_2_8 + t7_2_16*t7_2_18 - t7_2_18*t7_2_26 - t7_2_18*t7_2_27 - t7_2_19*t7_2_20 + t7_2_20*t7_2_28 - t7_2_20*t7_2_29 + t7_2_3*t7_2_5 - t7_2_3*t7_2_9 + t7_2_4*t7_2_8) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 1e-08 or dt2 < -1e-08:
                             continue
@@ -1026,36 +1021,27 @@ def inverse_joints(pose, current=None):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1
-            v1 = u1 * 1.0
+            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 1.0
-            u3 = th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3
-            v3 = u3 * 1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 1.0
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 1.0
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 1.0
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
+            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 1.0
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 1.0
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 1.0
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 1.0
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow

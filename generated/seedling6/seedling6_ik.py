@@ -454,20 +454,20 @@ def _closed_form(pose, current, check_finite=True):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 < -1e-21:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 < -1e-21:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
+                elif dq2 > 9.999999999999999e-10 or dq2 < -9.999999999999999e-10:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -508,13 +508,14 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                         continue
@@ -544,13 +545,14 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                             continue
@@ -630,7 +632,7 @@ def _closed_form(pose, current, check_finite=True):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
@@ -642,19 +644,13 @@ def _closed_form(pose, current, check_finite=True):
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 3.162277660168379, root3 * 4.180828530294072, root5, )
             u1 = th1 - 0.5235987755982991
-            u1 = u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1
-            v1 = u1 * 1.0
+            v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 1.0
-            u3 = th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3
-            v3 = u3 * -1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 1.0
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 1.0
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 1.0
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
+            v3 = (th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3) * -1.0
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
             la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
             la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
@@ -667,14 +663,11 @@ def _closed_form(pose, current, check_finite=True):
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 1.0
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 1.0
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 1.0
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
                 solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
                     la0,
                     la1,
@@ -777,20 +770,20 @@ def inverse_joints(pose, current=None):
 
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
-            dt2 = dq2
-            if dt2 < -1e-21:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+            if dq2 < -1e-21:
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
                 hq2 = c2 * c2 + s2 * s2
-                if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
-                    # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                    if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                        hn2 = 1.0 / sqrt(hq2)
-                        c2 = c2 * hn2
-                        s2 = s2 * hn2
+                    th2 = atan2(s2, c2)
+                elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    free2 = False
+                    hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                    c2 = c2 * hn2
+                    s2 = s2 * hn2
                     th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
-                elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
+                elif dq2 > 9.999999999999999e-10 or dq2 < -9.999999999999999e-10:
                     continue
                 else:  # ill-conditioned near a singular pose: the pair does not fix it
                     free2 = True
@@ -831,13 +824,14 @@ def inverse_joints(pose, current=None):
                     c2 = (-0.0040425*c3*g16_13 + 0.0238*c3*g16_14*s3 + 0.0245*c3*g16_14 + 0.238*c3*g16_24*s3 - 0.23365*c3*g16_24 - 0.03855225*c3*r33 + c3*t7_1_16*v1y + c3*t7_1_17*v1y + c3*t7_1_18*v1y + 0.027225*c3*t7_1_19*v1y + 0.027225*c3*t7_1_20*v1y + 0.027225*c3*t7_1_21*v1y - 0.003927*c3*t7_1_4 + 0.239325*c3*v1y + 0.33*g16_13*g16_14*s3*v1x + 0.03927*g16_13*t7_1_11 - 0.03927*g16_13 + 0.00245*g16_14*s3 - 0.33*g16_14*t7_1_14*v1y + 0.238*g16_14 - 0.33*g16_24*r33*s3*v1x + 0.0245*g16_24*s3 + 0.0238*g16_24*t7_1_11 - 0.0476*g16_24 + 0.33*g16_33*g16_34*s3*v1x - 0.33*g16_33*g16_34*t7_1_10 + 0.003927*r33*t7_1_11 - 0.007854*r33 - 0.238*s3*t7_1_10 - t7_1_11*t7_1_12 - t7_1_11*t7_1_13 + 0.238*t7_1_11*v1x - 0.33*t7_1_15*t7_1_3 - t7_1_16*t7_1_6 - t7_1_17*t7_1_6 - t7_1_18*t7_1_6 - t7_1_19*t7_1_22 - t7_1_20*t7_1_22 - t7_1_21*t7_1_22 - 0.00040425*t7_1_4 - 0.0040425*t7_1_5 - 0.239325*t7_1_6 - t7_1_7*t7_1_8 - t7_1_8*t7_1_9 + 0.0238*v1y) / dt2
                     s2 = (0.33*c3*g16_13*g16_14*v1x + 0.03927*c3*g16_13*s3 + 0.23365*c3*g16_14 - 0.33*c3*g16_24*r33*v1x + 0.0238*c3*g16_24*s3 + 0.0245*c3*g16_24 + 0.33*c3*g16_33*g16_34*v1x + 0.238*c3*s3*v1x + 0.33*g16_13*g16_14*s3*v1y + 0.0040425*g16_13*s3 + 0.003927*g16_13*t7_1_11 - 0.007854*g16_13 - 0.0245*g16_14*s3 - 0.0238*g16_14*t7_1_11 + 0.0476*g16_14 - 0.33*g16_24*r33*s3*v1y + 0.00245*g16_24*s3 - 0.238*g16_24*t7_1_11 + 0.238*g16_24 + 0.33*g16_33*g16_34*s3*v1y - 0.03927*r33*t7_1_11 - 0.003927*s3*t7_1_15 + 0.0238*t7_1_11*v1x + 0.238*t7_1_11*v1y - t7_1_12*t7_1_8 - t7_1_13*t7_1_8 - 0.03855225*t7_1_14 - 0.0040425*t7_1_15 - t7_1_16*t7_1_23 - t7_1_16*t7_1_24 - t7_1_17*t7_1_23 - t7_1_17*t7_1_24 - t7_1_18*t7_1_23 - t7_1_18*t7_1_24 - t7_1_19*t7_1_25 - t7_1_19*t7_1_26 - t7_1_20*t7_1_25 - t7_1_20*t7_1_26 - t7_1_21*t7_1_25 - t7_1_21*t7_1_26 - 0.239325*t7_1_23 - 0.239325*t7_1_24 - 0.00040425*t7_1_5 - t7_1_7 - t7_1_9) / dt2
                     hq2 = c2 * c2 + s2 * s2
-                    if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                    if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                         free2 = False
-                        # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                        if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                            hn2 = 1.0 / sqrt(hq2)
-                            c2 = c2 * hn2
-                            s2 = s2 * hn2
+                        th2 = atan2(s2, c2)
+                    elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        free2 = False
+                        hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                        c2 = c2 * hn2
+                        s2 = s2 * hn2
                         th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                     elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                         continue
@@ -867,13 +861,14 @@ def inverse_joints(pose, current=None):
                         c2 = (-0.000442*c1 - c3*t7_2_2 + s3*t7_2_3 - 0.11182675*t7_2_0 - 0.019383875*t7_2_1 + t7_2_10*t7_2_6 + t7_2_10*t7_2_8 + t7_2_10*t7_2_9 + 0.082467*t7_2_4 + 0.01666*t7_2_5 + t7_2_6*t7_2_7 + t7_2_7*t7_2_8 + t7_2_7*t7_2_9 - 0.1972*wx) / dt2
                         s2 = (-0.1102535*c1 + c3*t7_2_3 + s3*t7_2_2 - 0.027475875*t7_2_0 + 0.19274675*t7_2_1 + t7_2_11*t7_2_6 + t7_2_11*t7_2_8 + t7_2_11*t7_2_9 + t7_2_12*t7_2_6 + t7_2_12*t7_2_8 + t7_2_12*t7_2_9 - t7_2_13*t7_2_6 - t7_2_13*t7_2_8 - t7_2_13*t7_2_9 + 0.01666*t7_2_4 - 0.082467*t7_2_5 - 0.0272*wx) / dt2
                         hq2 = c2 * c2 + s2 * s2
-                        if not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                        if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                             free2 = False
-                            # unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                            if hq2 < 0.999999999999999 or hq2 > 1.0000000000000009:   # abs(hq - 1) > 1e-15
-                                hn2 = 1.0 / sqrt(hq2)
-                                c2 = c2 * hn2
-                                s2 = s2 * hn2
+                            th2 = atan2(s2, c2)
+                        elif not (hq2 < 0.9999 or hq2 > 1.0001):   # abs(hq - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
+                            free2 = False
+                            hn2 = 1.0 / sqrt(hq2)   # unit (cos, sin) for the later steps: the pair's scale drifted past rounding
+                            c2 = c2 * hn2
+                            s2 = s2 * hn2
                             th2 = atan2(s2, c2)   # after the unit scaling, as the C solver computes it
                         elif dt2 > 9.999999999999999e-10 or dt2 < -9.999999999999999e-10:
                             continue
@@ -953,37 +948,28 @@ def inverse_joints(pose, current=None):
                 s6 = -g56_12
 
             hq6 = c6 * c6 + s6 * s6
-            if hq6 < 0.9999 * (dt6 * dt6) or hq6 > 1.0001 * (dt6 * dt6):   # abs(hq / det^2 - 1) > 1e-4
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
                 continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
             u1 = th1 - 0.5235987755982991
-            u1 = u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1
-            v1 = u1 * 1.0
+            v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
             u2 = th2 - -1.5707963267948966
-            u2 = u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2
-            v2 = u2 * 1.0
-            u3 = th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3
-            v3 = u3 * -1.0
-            u4 = th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4
-            v4 = u4 * 1.0
-            u5 = th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5
-            v5 = u5 * 1.0
-            u6 = th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6
-            v6 = u6 * 1.0
+            v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
+            v3 = (th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3) * -1.0
+            v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
+            v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
+            v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
-                u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4
-                v4 = u4 * 1.0
+                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
                 u5 = -th5
-                u5 = u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5
-                v5 = u5 * 1.0
+                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
                 u6 = th6 + 3.141592653589793
-                u6 = u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6
-                v6 = u6 * 1.0
+                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
