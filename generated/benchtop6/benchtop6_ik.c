@@ -448,11 +448,9 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g36_33;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -460,10 +458,10 @@ static int closed_form(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = -s5*s5;
+                dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*s5;
-                    s4 = g16_33*s5;
+                    c4 = -g36_13*root5;
+                    s4 = g16_33*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -482,10 +480,10 @@ static int closed_form(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*s5;
-                    s6 = -g36_32*s5;
+                    c6 = g36_31*root5;
+                    s6 = -g36_32*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -500,8 +498,8 @@ static int closed_form(const double pose[16], const double *current,
                 const double g36_12 = c23*g16_12 - r32*s23;
                 const double g46_11 = -g16_31*us4 + g36_11*uc4;
                 const double g46_12 = -g16_32*us4 + g36_12*uc4;
-                const double g56_11 = c5*g46_11 + g36_31*s5;
-                const double g56_12 = c5*g46_12 + g36_32*s5;
+                const double g56_11 = g36_31*root5 + g36_33*g46_11;
+                const double g56_12 = g36_32*root5 + g36_33*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -518,7 +516,7 @@ static int closed_form(const double pose[16], const double *current,
 
             const double lm0 = v1x + 25.0;
             const double lm1 = 62400.0*c3 + 5200.0*s3;
-            const double lm2 = s5;
+            const double lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = benchtop6_ik_atan2(s2, c2);
             th5 = benchtop6_ik_atan2(sn5, cn5);
@@ -864,11 +862,9 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g36_33;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -876,10 +872,10 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = -s5*s5;
+                dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*s5;
-                    s4 = g16_33*s5;
+                    c4 = -g36_13*root5;
+                    s4 = g16_33*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -898,10 +894,10 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*s5;
-                    s6 = -g36_32*s5;
+                    c6 = g36_31*root5;
+                    s6 = -g36_32*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -916,8 +912,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 const double g36_12 = c23*g16_12 - r32*s23;
                 const double g46_11 = -g16_31*us4 + g36_11*uc4;
                 const double g46_12 = -g16_32*us4 + g36_12*uc4;
-                const double g56_11 = c5*g46_11 + g36_31*s5;
-                const double g56_12 = c5*g46_12 + g36_32*s5;
+                const double g56_11 = g36_31*root5 + g36_33*g46_11;
+                const double g56_12 = g36_32*root5 + g36_33*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -933,8 +929,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */
             (void)c3;
+            (void)root5;
             (void)s3;
-            (void)s5;
             (void)v1x;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = benchtop6_ik_atan2(s2, c2);

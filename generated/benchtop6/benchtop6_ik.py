@@ -599,17 +599,15 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c5 = g36_33
-            s5 = root5
-            th5 = atan2(s5, c5)
+            th5 = atan2(root5, g36_33)
 
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -s5*s5
+            dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = -g36_13*s5
-                s4 = g16_33*s5
+                c4 = -g36_13*root5
+                s4 = g16_33*root5
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -623,10 +621,10 @@ def _closed_form(pose, current, check_finite=True):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -s5*s5
+            dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = g36_31*s5
-                s6 = -g36_32*s5
+                c6 = g36_31*root5
+                s6 = -g36_32*root5
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -637,8 +635,8 @@ def _closed_form(pose, current, check_finite=True):
                 g36_12 = c23*g16_12 - r32*s23
                 g46_11 = -g16_31*us4 + g36_11*uc4
                 g46_12 = -g16_32*us4 + g36_12*uc4
-                g56_11 = c5*g46_11 + g36_31*s5
-                g56_12 = c5*g46_12 + g36_32*s5
+                g56_11 = g36_31*root5 + g36_33*g46_11
+                g56_12 = g36_32*root5 + g36_33*g46_12
 
                 dt6 = 1.0
                 c6 = g56_11
@@ -653,7 +651,7 @@ def _closed_form(pose, current, check_finite=True):
 
             lm0 = v1x + 25.0
             lm1 = 62400.0*c3 + 5200.0*s3
-            lm2 = s5
+            lm2 = root5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
@@ -923,17 +921,15 @@ def inverse_joints(pose, current=None):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c5 = g36_33
-            s5 = root5
-            th5 = atan2(s5, c5)
+            th5 = atan2(root5, g36_33)
 
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -s5*s5
+            dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = -g36_13*s5
-                s4 = g16_33*s5
+                c4 = -g36_13*root5
+                s4 = g16_33*root5
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -947,10 +943,10 @@ def inverse_joints(pose, current=None):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -s5*s5
+            dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = g36_31*s5
-                s6 = -g36_32*s5
+                c6 = g36_31*root5
+                s6 = -g36_32*root5
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -961,8 +957,8 @@ def inverse_joints(pose, current=None):
                 g36_12 = c23*g16_12 - r32*s23
                 g46_11 = -g16_31*us4 + g36_11*uc4
                 g46_12 = -g16_32*us4 + g36_12*uc4
-                g56_11 = c5*g46_11 + g36_31*s5
-                g56_12 = c5*g46_12 + g36_32*s5
+                g56_11 = g36_31*root5 + g36_33*g46_11
+                g56_12 = g36_32*root5 + g36_33*g46_12
 
                 dt6 = 1.0
                 c6 = g56_11

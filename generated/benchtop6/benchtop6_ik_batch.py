@@ -309,17 +309,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cn5 = g36_33
         sn5 = root5
         th5 = numpy.arctan2(sn5, cn5)
-        c5 = cn5
-        s5 = sn5
         cond5 = root5 * 1.0
 
         # th4 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen4 = numpy.zeros((), dtype=bool)
 
-        dt4 = -s5*s5
+        dt4 = -root5*root5
         use = ~chosen4 & (dt4 < -1e-20)
-        c4 = -g36_13*s5
-        s4 = g16_33*s5
+        c4 = -g36_13*root5
+        s4 = g16_33*root5
         wk4 = numpy.where(use, 1e-08, 0.0)
         dk4 = dt4
         chosen4 = chosen4 | use
@@ -336,10 +334,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
 
-        dt6 = numpy.where(free4, 0.0, -s5*s5)
+        dt6 = numpy.where(free4, 0.0, -root5*root5)
         use = ~chosen6 & (dt6 < -1e-08)
-        c6 = g36_31*s5
-        s6 = -g36_32*s5
+        c6 = g36_31*root5
+        s6 = -g36_32*root5
         dk6 = dt6
         chosen6 = chosen6 | use
         if not chosen6.all():
@@ -352,8 +350,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             g36_12 = c23*g16_12 - r32*s23
             g46_11 = -g16_31*us4 + g36_11*uc4
             g46_12 = -g16_32*us4 + g36_12*uc4
-            g56_11 = c5*g46_11 + g36_31*s5
-            g56_12 = c5*g46_12 + g36_32*s5
+            g56_11 = g36_31*root5 + g36_33*g46_11
+            g56_12 = g36_32*root5 + g36_33*g46_12
 
             dt6 = 1
             use = ~chosen6
@@ -368,7 +366,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         lm0 = v1x + 25
         lm1 = 62400*c3 + 5200*s3
-        lm2 = s5
+        lm2 = root5
         u1 = th1
         u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2 - -1.5707963267948966

@@ -712,11 +712,9 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th5 = 0.0, c5, s5;
+        double th5 = 0.0;
         const double cn5 = g36_33;
         const double sn5 = root5;
-        c5 = cn5;
-        s5 = sn5;
 
         /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
          * no later step reads them, atan2 needs only their direction */
@@ -724,10 +722,10 @@ static int closed_form(const double pose[16], const double *current,
         int free4 = 1;
         {
 
-            dt4 = -s5*s5;
+            dt4 = -root5*root5;
             if (dt4 < -9.9999999999999995e-21) {
-                c4 = g36_13*s5;
-                s4 = g26_33*s5;
+                c4 = g36_13*root5;
+                s4 = g26_33*root5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
@@ -746,10 +744,10 @@ static int closed_form(const double pose[16], const double *current,
         int free6 = 1;
         {
 
-            dt6 = free4 ? 0.0 : -s5*s5;
+            dt6 = free4 ? 0.0 : -root5*root5;
             if (dt6 < -1e-08) {
-                c6 = -g36_31*s5;
-                s6 = g36_32*s5;
+                c6 = -g36_31*root5;
+                s6 = g36_32*root5;
                 free6 = 0;
                 wk6 = 1e-08;
             }
@@ -764,8 +762,8 @@ static int closed_form(const double pose[16], const double *current,
             const double g36_12 = c3*g26_12 + g26_22*s3;
             const double g46_11 = g26_31*us4 + g36_11*uc4;
             const double g46_12 = g26_32*us4 + g36_12*uc4;
-            const double g56_11 = c5*g46_11 - g36_31*s5;
-            const double g56_12 = c5*g46_12 - g36_32*s5;
+            const double g56_11 = -g36_31*root5 + g36_33*g46_11;
+            const double g56_12 = -g36_32*root5 + g36_33*g46_12;
 
             dt6 = 1.0;
             c6 = g56_11;
@@ -782,7 +780,7 @@ static int closed_form(const double pose[16], const double *current,
 
         const double lm0 = v1x + 50.0;
         const double lm1 = 72746.133917892847*c3 - 5196.152422706632*s3;
-        const double lm2 = s5;
+        const double lm2 = root5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         if (!free1) th1 = canted6_ik_atan2(s1, c1);
         if (!free2) th2 = canted6_ik_atan2(s2, c2);
@@ -1169,11 +1167,9 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th5 = 0.0, c5, s5;
+        double th5 = 0.0;
         const double cn5 = g36_33;
         const double sn5 = root5;
-        c5 = cn5;
-        s5 = sn5;
 
         /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
          * no later step reads them, atan2 needs only their direction */
@@ -1181,10 +1177,10 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         int free4 = 1;
         {
 
-            dt4 = -s5*s5;
+            dt4 = -root5*root5;
             if (dt4 < -9.9999999999999995e-21) {
-                c4 = g36_13*s5;
-                s4 = g26_33*s5;
+                c4 = g36_13*root5;
+                s4 = g26_33*root5;
                 free4 = 0;
                 wk4 = 1e-08;
             }
@@ -1203,10 +1199,10 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         int free6 = 1;
         {
 
-            dt6 = free4 ? 0.0 : -s5*s5;
+            dt6 = free4 ? 0.0 : -root5*root5;
             if (dt6 < -1e-08) {
-                c6 = -g36_31*s5;
-                s6 = g36_32*s5;
+                c6 = -g36_31*root5;
+                s6 = g36_32*root5;
                 free6 = 0;
                 wk6 = 1e-08;
             }
@@ -1221,8 +1217,8 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             const double g36_12 = c3*g26_12 + g26_22*s3;
             const double g46_11 = g26_31*us4 + g36_11*uc4;
             const double g46_12 = g26_32*us4 + g36_12*uc4;
-            const double g56_11 = c5*g46_11 - g36_31*s5;
-            const double g56_12 = c5*g46_12 - g36_32*s5;
+            const double g56_11 = -g36_31*root5 + g36_33*g46_11;
+            const double g56_12 = -g36_32*root5 + g36_33*g46_12;
 
             dt6 = 1.0;
             c6 = g56_11;
@@ -1238,8 +1234,8 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         /* joint readings, configuration labels, singular flag */
         /* read only by the labels, which this entry does not compute */
         (void)c3;
+        (void)root5;
         (void)s3;
-        (void)s5;
         (void)v1x;
         (void)dbl3;
         (void)cnd3;

@@ -469,11 +469,9 @@ static int closed_form(const double pose[16], double given, const double *curren
             }
             const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th6 = 0.0, c6, s6;
+            double th6 = 0.0;
             const double cn6 = g47_33;
             const double sn6 = root6;
-            c6 = cn6;
-            s6 = sn6;
 
             /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -481,10 +479,10 @@ static int closed_form(const double pose[16], double given, const double *curren
             int free5 = 1;
             {
 
-                dt5 = -s6*s6;
+                dt5 = -root6*root6;
                 if (dt5 < -9.9999999999999995e-21) {
-                    c5 = g47_13*s6;
-                    s5 = g37_33*s6;
+                    c5 = g47_13*root6;
+                    s5 = g37_33*root6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
@@ -503,10 +501,10 @@ static int closed_form(const double pose[16], double given, const double *curren
             int free7 = 1;
             {
 
-                dt7 = free5 ? 0.0 : -s6*s6;
+                dt7 = free5 ? 0.0 : -root6*root6;
                 if (dt7 < -1e-08) {
-                    c7 = -g47_31*s6;
-                    s7 = g47_32*s6;
+                    c7 = -g47_31*root6;
+                    s7 = g47_32*root6;
                     free7 = 0;
                     wk7 = 1e-08;
                 }
@@ -521,8 +519,8 @@ static int closed_form(const double pose[16], double given, const double *curren
                 const double g47_12 = c4*g37_12 - g27_32*s4;
                 const double g57_11 = g37_31*us5 + g47_11*uc5;
                 const double g57_12 = g37_32*us5 + g47_12*uc5;
-                const double g67_11 = c6*g57_11 - g47_31*s6;
-                const double g67_12 = c6*g57_12 - g47_32*s6;
+                const double g67_11 = -g47_31*root6 + g47_33*g57_11;
+                const double g67_12 = -g47_32*root6 + g47_33*g57_12;
 
                 dt7 = 1.0;
                 c7 = g67_11;
@@ -539,7 +537,7 @@ static int closed_form(const double pose[16], double given, const double *curren
 
             const double lm0 = s2;
             const double lm1 = s4;
-            const double lm2 = s6;
+            const double lm2 = root6;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = cellreach7_ik_atan2(s2, c2);
             th6 = cellreach7_ik_atan2(sn6, cn6);
@@ -902,11 +900,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             }
             const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th6 = 0.0, c6, s6;
+            double th6 = 0.0;
             const double cn6 = g47_33;
             const double sn6 = root6;
-            c6 = cn6;
-            s6 = sn6;
 
             /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -914,10 +910,10 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             int free5 = 1;
             {
 
-                dt5 = -s6*s6;
+                dt5 = -root6*root6;
                 if (dt5 < -9.9999999999999995e-21) {
-                    c5 = g47_13*s6;
-                    s5 = g37_33*s6;
+                    c5 = g47_13*root6;
+                    s5 = g37_33*root6;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
@@ -936,10 +932,10 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             int free7 = 1;
             {
 
-                dt7 = free5 ? 0.0 : -s6*s6;
+                dt7 = free5 ? 0.0 : -root6*root6;
                 if (dt7 < -1e-08) {
-                    c7 = -g47_31*s6;
-                    s7 = g47_32*s6;
+                    c7 = -g47_31*root6;
+                    s7 = g47_32*root6;
                     free7 = 0;
                     wk7 = 1e-08;
                 }
@@ -954,8 +950,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 const double g47_12 = c4*g37_12 - g27_32*s4;
                 const double g57_11 = g37_31*us5 + g47_11*uc5;
                 const double g57_12 = g37_32*us5 + g47_12*uc5;
-                const double g67_11 = c6*g57_11 - g47_31*s6;
-                const double g67_12 = c6*g57_12 - g47_32*s6;
+                const double g67_11 = -g47_31*root6 + g47_33*g57_11;
+                const double g67_12 = -g47_32*root6 + g47_33*g57_12;
 
                 dt7 = 1.0;
                 c7 = g67_11;
@@ -970,9 +966,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */
+            (void)root6;
             (void)s2;
             (void)s4;
-            (void)s6;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = cellreach7_ik_atan2(s2, c2);
             th6 = cellreach7_ik_atan2(sn6, cn6);

@@ -704,17 +704,15 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 continue
             root6 = sqrt(er6) if er6 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c6 = g47_33
-            s6 = root6
-            th6 = atan2(s6, c6)
+            th6 = atan2(root6, g47_33)
 
             # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt5 = -s6*s6
+            dt5 = -root6*root6
             if dt5 < -1e-20:
-                c5 = g47_13*s6
-                s5 = g37_33*s6
+                c5 = g47_13*root6
+                s5 = g37_33*root6
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free5 = False
                 th5 = atan2(s5, c5)
@@ -728,10 +726,10 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt7 = 0.0 if free5 else -s6*s6
+            dt7 = 0.0 if free5 else -root6*root6
             if dt7 < -1e-08:
-                c7 = -g47_31*s6
-                s7 = g47_32*s6
+                c7 = -g47_31*root6
+                s7 = g47_32*root6
             else:
                 un5 = 1.0/sqrt(c5*c5 + s5*s5)
                 uc5 = c5*un5
@@ -742,8 +740,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 g47_12 = c4*g37_12 - g27_32*s4
                 g57_11 = g37_31*us5 + g47_11*uc5
                 g57_12 = g37_32*us5 + g47_12*uc5
-                g67_11 = c6*g57_11 - g47_31*s6
-                g67_12 = c6*g57_12 - g47_32*s6
+                g67_11 = -g47_31*root6 + g47_33*g57_11
+                g67_12 = -g47_32*root6 + g47_33*g57_12
 
                 dt7 = 1.0
                 c7 = g67_11
@@ -758,7 +756,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             lm0 = s2
             lm1 = s4
-            lm2 = s6
+            lm2 = root6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
@@ -1046,17 +1044,15 @@ def inverse_joints(pose, given, current=None):
                 continue
             root6 = sqrt(er6) if er6 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c6 = g47_33
-            s6 = root6
-            th6 = atan2(s6, c6)
+            th6 = atan2(root6, g47_33)
 
             # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt5 = -s6*s6
+            dt5 = -root6*root6
             if dt5 < -1e-20:
-                c5 = g47_13*s6
-                s5 = g37_33*s6
+                c5 = g47_13*root6
+                s5 = g37_33*root6
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free5 = False
                 th5 = atan2(s5, c5)
@@ -1070,10 +1066,10 @@ def inverse_joints(pose, given, current=None):
             # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt7 = 0.0 if free5 else -s6*s6
+            dt7 = 0.0 if free5 else -root6*root6
             if dt7 < -1e-08:
-                c7 = -g47_31*s6
-                s7 = g47_32*s6
+                c7 = -g47_31*root6
+                s7 = g47_32*root6
             else:
                 un5 = 1.0/sqrt(c5*c5 + s5*s5)
                 uc5 = c5*un5
@@ -1084,8 +1080,8 @@ def inverse_joints(pose, given, current=None):
                 g47_12 = c4*g37_12 - g27_32*s4
                 g57_11 = g37_31*us5 + g47_11*uc5
                 g57_12 = g37_32*us5 + g47_12*uc5
-                g67_11 = c6*g57_11 - g47_31*s6
-                g67_12 = c6*g57_12 - g47_32*s6
+                g67_11 = -g47_31*root6 + g47_33*g57_11
+                g67_12 = -g47_32*root6 + g47_33*g57_12
 
                 dt7 = 1.0
                 c7 = g67_11

@@ -339,17 +339,15 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         cn6 = g47_33
         sn6 = root6
         th6 = numpy.arctan2(sn6, cn6)
-        c6 = cn6
-        s6 = sn6
         cond6 = root6 * 1.0
 
         # th5 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen5 = numpy.zeros((), dtype=bool)
 
-        dt5 = -s6*s6
+        dt5 = -root6*root6
         use = ~chosen5 & (dt5 < -1e-20)
-        c5 = g47_13*s6
-        s5 = g37_33*s6
+        c5 = g47_13*root6
+        s5 = g37_33*root6
         wk5 = numpy.where(use, 1e-08, 0.0)
         dk5 = dt5
         chosen5 = chosen5 | use
@@ -366,10 +364,10 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         # th7 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen7 = numpy.zeros((), dtype=bool)
 
-        dt7 = numpy.where(free5, 0.0, -s6*s6)
+        dt7 = numpy.where(free5, 0.0, -root6*root6)
         use = ~chosen7 & (dt7 < -1e-08)
-        c7 = -g47_31*s6
-        s7 = g47_32*s6
+        c7 = -g47_31*root6
+        s7 = g47_32*root6
         dk7 = dt7
         chosen7 = chosen7 | use
         if not chosen7.all():
@@ -382,8 +380,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             g47_12 = c4*g37_12 - g27_32*s4
             g57_11 = g37_31*us5 + g47_11*uc5
             g57_12 = g37_32*us5 + g47_12*uc5
-            g67_11 = c6*g57_11 - g47_31*s6
-            g67_12 = c6*g57_12 - g47_32*s6
+            g67_11 = -g47_31*root6 + g47_33*g57_11
+            g67_12 = -g47_32*root6 + g47_33*g57_12
 
             dt7 = 1
             use = ~chosen7
@@ -398,7 +396,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         lm0 = s2
         lm1 = s4
-        lm2 = s6
+        lm2 = root6
         u1 = th1
         u1 = u1 + _TWO_PI * (u1 <= -_PI)
         u2 = th2

@@ -453,11 +453,9 @@ static int closed_form(const float pose[16], float given, const float *current,
             }
             const float root6 = er6 > 0.0f ? sqrtf(er6) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            float th6 = 0.0f, c6, s6;
+            float th6 = 0.0f;
             const float cn6 = g47_33;
             const float sn6 = root6;
-            c6 = cn6;
-            s6 = sn6;
 
             /* th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -465,10 +463,10 @@ static int closed_form(const float pose[16], float given, const float *current,
             int free5 = 1;
             {
 
-                dt5 = -s6*s6;
+                dt5 = -root6*root6;
                 if (dt5 < -1e-20f) {
-                    c5 = g47_13*s6;
-                    s5 = g37_33*s6;
+                    c5 = g47_13*root6;
+                    s5 = g37_33*root6;
                     free5 = 0;
                     wk5 = 1e-08f;
                 }
@@ -487,10 +485,10 @@ static int closed_form(const float pose[16], float given, const float *current,
             int free7 = 1;
             {
 
-                dt7 = free5 ? 0.0f : -s6*s6;
+                dt7 = free5 ? 0.0f : -root6*root6;
                 if (dt7 < -0.001f) {
-                    c7 = -g47_31*s6;
-                    s7 = g47_32*s6;
+                    c7 = -g47_31*root6;
+                    s7 = g47_32*root6;
                     free7 = 0;
                     wk7 = 1e-08f;
                 }
@@ -505,8 +503,8 @@ static int closed_form(const float pose[16], float given, const float *current,
                 const float g47_12 = c4*g37_12 - g27_32*s4;
                 const float g57_11 = g37_31*us5 + g47_11*uc5;
                 const float g57_12 = g37_32*us5 + g47_12*uc5;
-                const float g67_11 = c6*g57_11 - g47_31*s6;
-                const float g67_12 = c6*g57_12 - g47_32*s6;
+                const float g67_11 = -g47_31*root6 + g47_33*g57_11;
+                const float g67_12 = -g47_32*root6 + g47_33*g57_12;
 
                 dt7 = 1.0f;
                 c7 = g67_11;
@@ -523,7 +521,7 @@ static int closed_form(const float pose[16], float given, const float *current,
 
             const float lm0 = s2;
             const float lm1 = s4;
-            const float lm2 = s6;
+            const float lm2 = root6;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = cellreach7_ik_f32_atan2(s2, c2);
             th6 = cellreach7_ik_f32_atan2(sn6, cn6);

@@ -614,11 +614,9 @@ static int closed_form(const double pose[16], const double *current,
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th2 = 0.0, c2, s2;
+        double th2 = 0.0;
         const double cn2 = ec2;
         const double sn2 = root2;
-        c2 = cn2;
-        s2 = sn2;
 
         /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
          * no later step reads them, atan2 needs only their direction */
@@ -626,10 +624,10 @@ static int closed_form(const double pose[16], const double *current,
         int free1 = 1;
         {
 
-            dt1 = s2*s2;
+            dt1 = root2*root2;
             if (dt1 > 9.9999999999999995e-21) {
-                c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13);
-                s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23);
+                c1 = -root2*(0.5*g03_12 + 0.8660254037844386*g03_13);
+                s1 = -root2*(0.5*g03_22 + 0.8660254037844386*g03_23);
                 free1 = 0;
                 wk1 = 1e-08;
             }
@@ -652,10 +650,10 @@ static int closed_form(const double pose[16], const double *current,
         int free3 = 1;
         {
 
-            dt3 = free1 ? 0.0 : -0.8660254037844386*s2*s2;
+            dt3 = free1 ? 0.0 : -0.8660254037844386*root2*root2;
             if (dt3 < -1e-08) {
-                c3 = 0.8660254037844386*g03_31*s2;
-                s3 = -s2*(-0.5*c2 + g03_32);
+                c3 = 0.8660254037844386*g03_31*root2;
+                s3 = -root2*(-0.5*ec2 + g03_32);
                 free3 = 0;
                 wk3 = 1e-08;
             }
@@ -668,8 +666,8 @@ static int closed_form(const double pose[16], const double *current,
             const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
             const double g13_11 = g03_11*uc1 + g03_21*us1;
             const double g13_12 = g03_12*uc1 + g03_22*us1;
-            const double g23_11 = c2*g13_11 + g03_31*s2;
-            const double g23_12 = c2*g13_12 + g03_32*s2;
+            const double g23_11 = ec2*g13_11 + g03_31*root2;
+            const double g23_12 = ec2*g13_12 + g03_32*root2;
 
             dt3 = 0.8660254037844386;
             c3 = 0.8660254037844386*g23_11;
@@ -684,7 +682,7 @@ static int closed_form(const double pose[16], const double *current,
 
         /* joint readings, configuration labels, singular flag */
 
-        const double lm0 = s2;
+        const double lm0 = root2;
         const double lm1 = 0.8660254037844386*s5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         th4 = gimbal6_ik_atan2(s4, c4);
@@ -968,11 +966,9 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         }
         const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        double th2 = 0.0, c2, s2;
+        double th2 = 0.0;
         const double cn2 = ec2;
         const double sn2 = root2;
-        c2 = cn2;
-        s2 = sn2;
 
         /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
          * no later step reads them, atan2 needs only their direction */
@@ -980,10 +976,10 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         int free1 = 1;
         {
 
-            dt1 = s2*s2;
+            dt1 = root2*root2;
             if (dt1 > 9.9999999999999995e-21) {
-                c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13);
-                s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23);
+                c1 = -root2*(0.5*g03_12 + 0.8660254037844386*g03_13);
+                s1 = -root2*(0.5*g03_22 + 0.8660254037844386*g03_23);
                 free1 = 0;
                 wk1 = 1e-08;
             }
@@ -1006,10 +1002,10 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         int free3 = 1;
         {
 
-            dt3 = free1 ? 0.0 : -0.8660254037844386*s2*s2;
+            dt3 = free1 ? 0.0 : -0.8660254037844386*root2*root2;
             if (dt3 < -1e-08) {
-                c3 = 0.8660254037844386*g03_31*s2;
-                s3 = -s2*(-0.5*c2 + g03_32);
+                c3 = 0.8660254037844386*g03_31*root2;
+                s3 = -root2*(-0.5*ec2 + g03_32);
                 free3 = 0;
                 wk3 = 1e-08;
             }
@@ -1022,8 +1018,8 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             const double g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
             const double g13_11 = g03_11*uc1 + g03_21*us1;
             const double g13_12 = g03_12*uc1 + g03_22*us1;
-            const double g23_11 = c2*g13_11 + g03_31*s2;
-            const double g23_12 = c2*g13_12 + g03_32*s2;
+            const double g23_11 = ec2*g13_11 + g03_31*root2;
+            const double g23_12 = ec2*g13_12 + g03_32*root2;
 
             dt3 = 0.8660254037844386;
             c3 = 0.8660254037844386*g23_11;
@@ -1038,7 +1034,7 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
 
         /* joint readings, configuration labels, singular flag */
         /* read only by the labels, which this entry does not compute */
-        (void)s2;
+        (void)root2;
         (void)s5;
         (void)dbl6;
         (void)cnd6;

@@ -634,17 +634,15 @@ def _closed_form(pose, current, check_finite=True):
             continue
         root2 = sqrt(er2) if er2 > 0.0 else 0.0
         # the second root follows from this one by symmetry (emitted with the solution below)
-        c2 = ec2
-        s2 = root2
-        th2 = atan2(s2, c2)
+        th2 = atan2(root2, ec2)
 
         # th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt1 = s2*s2
+        dt1 = root2*root2
         if dt1 > 1e-20:
-            c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
-            s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
+            c1 = -root2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+            s1 = -root2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
             if not (not (0.9999 * (dt1 * dt1) <= hq1 <= 1.0001 * (dt1 * dt1))):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
@@ -666,10 +664,10 @@ def _closed_form(pose, current, check_finite=True):
         # th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
+        dt3 = 0.0 if free1 else -0.8660254037844386*root2*root2
         if dt3 < -1e-08:
-            c3 = 0.8660254037844386*g03_31*s2
-            s3 = -s2*(-0.5*c2 + g03_32)
+            c3 = 0.8660254037844386*g03_31*root2
+            s3 = -root2*(-0.5*ec2 + g03_32)
         else:
             un1 = 1.0/sqrt(c1*c1 + s1*s1)
             uc1 = c1*un1
@@ -678,8 +676,8 @@ def _closed_form(pose, current, check_finite=True):
             g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
             g13_11 = g03_11*uc1 + g03_21*us1
             g13_12 = g03_12*uc1 + g03_22*us1
-            g23_11 = c2*g13_11 + g03_31*s2
-            g23_12 = c2*g13_12 + g03_32*s2
+            g23_11 = ec2*g13_11 + g03_31*root2
+            g23_12 = ec2*g13_12 + g03_32*root2
 
             dt3 = 0.8660254037844386
             c3 = 0.8660254037844386*g23_11
@@ -692,7 +690,7 @@ def _closed_form(pose, current, check_finite=True):
 
         # Joint readings, configuration labels, singular flag.
 
-        lm0 = s2
+        lm0 = root2
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
@@ -872,17 +870,15 @@ def inverse_joints(pose, current=None):
             continue
         root2 = sqrt(er2) if er2 > 0.0 else 0.0
         # the second root follows from this one by symmetry (emitted with the solution below)
-        c2 = ec2
-        s2 = root2
-        th2 = atan2(s2, c2)
+        th2 = atan2(root2, ec2)
 
         # th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt1 = s2*s2
+        dt1 = root2*root2
         if dt1 > 1e-20:
-            c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
-            s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
+            c1 = -root2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+            s1 = -root2*(0.5*g03_22 + 0.8660254037844386*g03_23)
             hq1 = c1 * c1 + s1 * s1
             if not (not (0.9999 * (dt1 * dt1) <= hq1 <= 1.0001 * (dt1 * dt1))):   # abs(hq / det^2 - 1) <= 1e-4 (a NaN goes on: the finite test drops it)
                 free1 = False
@@ -904,10 +900,10 @@ def inverse_joints(pose, current=None):
         # th3 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt3 = 0.0 if free1 else -0.8660254037844386*s2*s2
+        dt3 = 0.0 if free1 else -0.8660254037844386*root2*root2
         if dt3 < -1e-08:
-            c3 = 0.8660254037844386*g03_31*s2
-            s3 = -s2*(-0.5*c2 + g03_32)
+            c3 = 0.8660254037844386*g03_31*root2
+            s3 = -root2*(-0.5*ec2 + g03_32)
         else:
             un1 = 1.0/sqrt(c1*c1 + s1*s1)
             uc1 = c1*un1
@@ -916,8 +912,8 @@ def inverse_joints(pose, current=None):
             g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
             g13_11 = g03_11*uc1 + g03_21*us1
             g13_12 = g03_12*uc1 + g03_22*us1
-            g23_11 = c2*g13_11 + g03_31*s2
-            g23_12 = c2*g13_12 + g03_32*s2
+            g23_11 = ec2*g13_11 + g03_31*root2
+            g23_12 = ec2*g13_12 + g03_32*root2
 
             dt3 = 0.8660254037844386
             c3 = 0.8660254037844386*g23_11

@@ -368,17 +368,15 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         cn2 = ec2
         sn2 = root2
         th2 = numpy.arctan2(sn2, cn2)
-        c2 = cn2
-        s2 = sn2
         cond2 = root2 * 1.0
 
         # th1 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen1 = numpy.zeros((), dtype=bool)
 
-        dt1 = s2*s2
+        dt1 = root2*root2
         use = ~chosen1 & (dt1 > 1e-20)
-        c1 = -s2*(0.5*g03_12 + 0.8660254037844386*g03_13)
-        s1 = -s2*(0.5*g03_22 + 0.8660254037844386*g03_23)
+        c1 = -root2*(0.5*g03_12 + 0.8660254037844386*g03_13)
+        s1 = -root2*(0.5*g03_22 + 0.8660254037844386*g03_23)
         wk1 = numpy.where(use, 1e-08, 0.0)
         dk1 = dt1
         chosen1 = chosen1 | use
@@ -395,10 +393,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         # th3 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen3 = numpy.zeros((), dtype=bool)
 
-        dt3 = numpy.where(free1, 0.0, -0.8660254037844386*s2*s2)
+        dt3 = numpy.where(free1, 0.0, -0.8660254037844386*root2*root2)
         use = ~chosen3 & (dt3 < -1e-08)
-        c3 = 0.8660254037844386*g03_31*s2
-        s3 = -s2*(-0.5*c2 + g03_32)
+        c3 = 0.8660254037844386*g03_31*root2
+        s3 = -root2*(-0.5*ec2 + g03_32)
         dk3 = dt3
         chosen3 = chosen3 | use
         if not chosen3.all():
@@ -409,8 +407,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3
             g13_11 = g03_11*uc1 + g03_21*us1
             g13_12 = g03_12*uc1 + g03_22*us1
-            g23_11 = c2*g13_11 + g03_31*s2
-            g23_12 = c2*g13_12 + g03_32*s2
+            g23_11 = ec2*g13_11 + g03_31*root2
+            g23_12 = ec2*g13_12 + g03_32*root2
 
             dt3 = 0.8660254037844386
             use = ~chosen3
@@ -423,7 +421,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # joint readings, configuration labels, singular flag, conditioning
 
-        lm0 = s2
+        lm0 = root2
         lm1 = 0.8660254037844386*s5
         u1 = th1
         u1 = u1 + _TWO_PI * (u1 <= -_PI)

@@ -598,11 +598,9 @@ static int closed_form(const float pose[16], const float *current,
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
         /* the second root follows from this one by symmetry (emitted with the solution below) */
-        float th2 = 0.0f, c2, s2;
+        float th2 = 0.0f;
         const float cn2 = ec2;
         const float sn2 = root2;
-        c2 = cn2;
-        s2 = sn2;
 
         /* th1 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
          * no later step reads them, atan2 needs only their direction */
@@ -610,10 +608,10 @@ static int closed_form(const float pose[16], const float *current,
         int free1 = 1;
         {
 
-            dt1 = s2*s2;
+            dt1 = root2*root2;
             if (dt1 > 1e-20f) {
-                c1 = -s2*(0.5f*g03_12 + 0.866025404f*g03_13);
-                s1 = -s2*(0.5f*g03_22 + 0.866025404f*g03_23);
+                c1 = -root2*(0.5f*g03_12 + 0.866025404f*g03_13);
+                s1 = -root2*(0.5f*g03_22 + 0.866025404f*g03_23);
                 free1 = 0;
                 wk1 = 1e-08f;
             }
@@ -636,10 +634,10 @@ static int closed_form(const float pose[16], const float *current,
         int free3 = 1;
         {
 
-            dt3 = free1 ? 0.0f : -0.866025404f*s2*s2;
+            dt3 = free1 ? 0.0f : -0.866025404f*root2*root2;
             if (dt3 < -0.001f) {
-                c3 = 0.866025404f*g03_31*s2;
-                s3 = -s2*(-0.5f*c2 + g03_32);
+                c3 = 0.866025404f*g03_31*root2;
+                s3 = -root2*(-0.5f*ec2 + g03_32);
                 free3 = 0;
                 wk3 = 1e-08f;
             }
@@ -652,8 +650,8 @@ static int closed_form(const float pose[16], const float *current,
             const float g03_21 = c4*g04_21 - s4*t8_2 - s4*t8_3;
             const float g13_11 = g03_11*uc1 + g03_21*us1;
             const float g13_12 = g03_12*uc1 + g03_22*us1;
-            const float g23_11 = c2*g13_11 + g03_31*s2;
-            const float g23_12 = c2*g13_12 + g03_32*s2;
+            const float g23_11 = ec2*g13_11 + g03_31*root2;
+            const float g23_12 = ec2*g13_12 + g03_32*root2;
 
             dt3 = 0.866025404f;
             c3 = 0.866025404f*g23_11;
@@ -668,7 +666,7 @@ static int closed_form(const float pose[16], const float *current,
 
         /* joint readings, configuration labels, singular flag */
 
-        const float lm0 = s2;
+        const float lm0 = root2;
         const float lm1 = 0.866025404f*s5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         th4 = gimbal6_ik_f32_atan2(s4, c4);

@@ -390,11 +390,9 @@ static int closed_form(const float pose[16], const float *current,
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            float th5 = 0.0f, c5, s5;
+            float th5 = 0.0f;
             const float cn5 = g36_33;
             const float sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -402,10 +400,10 @@ static int closed_form(const float pose[16], const float *current,
             int free4 = 1;
             {
 
-                dt4 = -s5*s5;
+                dt4 = -root5*root5;
                 if (dt4 < -1e-20f) {
-                    c4 = g36_13*s5;
-                    s4 = g16_33*s5;
+                    c4 = g36_13*root5;
+                    s4 = g16_33*root5;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
@@ -424,10 +422,10 @@ static int closed_form(const float pose[16], const float *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0f : -s5*s5;
+                dt6 = free4 ? 0.0f : -root5*root5;
                 if (dt6 < -0.001f) {
-                    c6 = -g36_31*s5;
-                    s6 = g36_32*s5;
+                    c6 = -g36_31*root5;
+                    s6 = g36_32*root5;
                     free6 = 0;
                     wk6 = 1e-08f;
                 }
@@ -442,8 +440,8 @@ static int closed_form(const float pose[16], const float *current,
                 const float g36_12 = c23*g16_12 - r31*s23;
                 const float g46_11 = g16_31*us4 + g36_11*uc4;
                 const float g46_12 = g16_32*us4 + g36_12*uc4;
-                const float g56_11 = c5*g46_11 - g36_31*s5;
-                const float g56_12 = c5*g46_12 - g36_32*s5;
+                const float g56_11 = -g36_31*root5 + g36_33*g46_11;
+                const float g56_12 = -g36_32*root5 + g36_33*g46_12;
 
                 dt6 = 1.0f;
                 c6 = g56_11;
@@ -460,7 +458,7 @@ static int closed_form(const float pose[16], const float *current,
 
             const float lm0 = v1x;
             const float lm1 = 92800.0f*c3;
-            const float lm2 = s5;
+            const float lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = inspector6_ik_f32_atan2(s2, c2);
             th5 = inspector6_ik_f32_atan2(sn5, cn5);

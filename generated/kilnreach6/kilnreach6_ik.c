@@ -331,11 +331,9 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g26_33;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -343,10 +341,10 @@ static int closed_form(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = -s5*s5;
+                dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = g26_13*s5;
-                    s4 = g16_33*s5;
+                    c4 = g26_13*root5;
+                    s4 = g16_33*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -365,10 +363,10 @@ static int closed_form(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = -g26_31*s5;
-                    s6 = g26_32*s5;
+                    c6 = -g26_31*root5;
+                    s6 = g26_32*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -383,8 +381,8 @@ static int closed_form(const double pose[16], const double *current,
                 const double g26_12 = c2*g16_12 - r32*s2;
                 const double g46_11 = g16_31*us4 + g26_11*uc4;
                 const double g46_12 = g16_32*us4 + g26_12*uc4;
-                const double g56_11 = c5*g46_11 - g26_31*s5;
-                const double g56_12 = c5*g46_12 - g26_32*s5;
+                const double g56_11 = -g26_31*root5 + g26_33*g46_11;
+                const double g56_12 = -g26_32*root5 + g26_33*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -407,7 +405,7 @@ static int closed_form(const double pose[16], const double *current,
             }
 
             const double lm0 = v1x;
-            const double lm1 = s5;
+            const double lm1 = root5;
             const double lm2 = -c2*v1y + s2*v1x;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             th5 = kilnreach6_ik_atan2(sn5, cn5);
@@ -646,11 +644,9 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g26_33;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -658,10 +654,10 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = -s5*s5;
+                dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = g26_13*s5;
-                    s4 = g16_33*s5;
+                    c4 = g26_13*root5;
+                    s4 = g16_33*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -680,10 +676,10 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = -g26_31*s5;
-                    s6 = g26_32*s5;
+                    c6 = -g26_31*root5;
+                    s6 = g26_32*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -698,8 +694,8 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 const double g26_12 = c2*g16_12 - r32*s2;
                 const double g46_11 = g16_31*us4 + g26_11*uc4;
                 const double g46_12 = g16_32*us4 + g26_12*uc4;
-                const double g56_11 = c5*g46_11 - g26_31*s5;
-                const double g56_12 = c5*g46_12 - g26_32*s5;
+                const double g56_11 = -g26_31*root5 + g26_33*g46_11;
+                const double g56_12 = -g26_32*root5 + g26_33*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -722,8 +718,8 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             }
             /* read only by the labels, which this entry does not compute */
             (void)c2;
+            (void)root5;
             (void)s2;
-            (void)s5;
             (void)v1x;
             (void)v1y;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */

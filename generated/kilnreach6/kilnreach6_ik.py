@@ -455,17 +455,15 @@ def _closed_form(pose, current, check_finite=True):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c5 = g26_33
-            s5 = root5
-            th5 = atan2(s5, c5)
+            th5 = atan2(root5, g26_33)
 
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -s5*s5
+            dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = g26_13*s5
-                s4 = g16_33*s5
+                c4 = g26_13*root5
+                s4 = g16_33*root5
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -479,10 +477,10 @@ def _closed_form(pose, current, check_finite=True):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -s5*s5
+            dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = -g26_31*s5
-                s6 = g26_32*s5
+                c6 = -g26_31*root5
+                s6 = g26_32*root5
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -493,8 +491,8 @@ def _closed_form(pose, current, check_finite=True):
                 g26_12 = c2*g16_12 - r32*s2
                 g46_11 = g16_31*us4 + g26_11*uc4
                 g46_12 = g16_32*us4 + g26_12*uc4
-                g56_11 = c5*g46_11 - g26_31*s5
-                g56_12 = c5*g46_12 - g26_32*s5
+                g56_11 = -g26_31*root5 + g26_33*g46_11
+                g56_12 = -g26_32*root5 + g26_33*g46_12
 
                 dt6 = 1.0
                 c6 = g56_11
@@ -511,7 +509,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
 
             lm0 = v1x
-            lm1 = s5
+            lm1 = root5
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5, )
@@ -653,17 +651,15 @@ def inverse_joints(pose, current=None):
                 continue
             root5 = sqrt(er5) if er5 > 0.0 else 0.0
             # the second root follows from this one by symmetry (emitted with the solution below)
-            c5 = g26_33
-            s5 = root5
-            th5 = atan2(s5, c5)
+            th5 = atan2(root5, g26_33)
 
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -s5*s5
+            dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = g26_13*s5
-                s4 = g16_33*s5
+                c4 = g26_13*root5
+                s4 = g16_33*root5
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -677,10 +673,10 @@ def inverse_joints(pose, current=None):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -s5*s5
+            dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = -g26_31*s5
-                s6 = g26_32*s5
+                c6 = -g26_31*root5
+                s6 = g26_32*root5
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -691,8 +687,8 @@ def inverse_joints(pose, current=None):
                 g26_12 = c2*g16_12 - r32*s2
                 g46_11 = g16_31*us4 + g26_11*uc4
                 g46_12 = g16_32*us4 + g26_12*uc4
-                g56_11 = c5*g46_11 - g26_31*s5
-                g56_12 = c5*g46_12 - g26_32*s5
+                g56_11 = -g26_31*root5 + g26_33*g46_11
+                g56_12 = -g26_32*root5 + g26_33*g46_12
 
                 dt6 = 1.0
                 c6 = g56_11

@@ -468,11 +468,9 @@ static int closed_form(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g36_23;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -480,10 +478,10 @@ static int closed_form(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = s5*s5;
+                dt4 = root5*root5;
                 if (dt4 > 9.9999999999999995e-21) {
-                    c4 = -g36_13*s5;
-                    s4 = g16_23*s5;
+                    c4 = -g36_13*root5;
+                    s4 = g16_23*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -502,10 +500,10 @@ static int closed_form(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_21*s5;
-                    s6 = -g36_22*s5;
+                    c6 = g36_21*root5;
+                    s6 = -g36_22*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -518,8 +516,8 @@ static int closed_form(const double pose[16], const double *current,
                 const double g36_12 = c23*g16_12 - r32*s23;
                 const double g46_11 = -g16_21*us4 + g36_11*uc4;
                 const double g46_12 = -g16_22*us4 + g36_12*uc4;
-                const double g56_11 = c5*g46_11 + g36_21*s5;
-                const double g56_12 = c5*g46_12 + g36_22*s5;
+                const double g56_11 = g36_21*root5 + g36_23*g46_11;
+                const double g56_12 = g36_22*root5 + g36_23*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -536,7 +534,7 @@ static int closed_form(const double pose[16], const double *current,
 
             const double lm0 = v1x;
             const double lm1 = 0.76500000000000001*c3 + 0.0935*s3;
-            const double lm2 = s5;
+            const double lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = packer6_ik_atan2(s2, c2);
             th5 = packer6_ik_atan2(sn5, cn5);
@@ -906,11 +904,9 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             }
             const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
             /* the second root follows from this one by symmetry (emitted with the solution below) */
-            double th5 = 0.0, c5, s5;
+            double th5 = 0.0;
             const double cn5 = g36_23;
             const double sn5 = root5;
-            c5 = cn5;
-            s5 = sn5;
 
             /* th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not ~0);
              * no later step reads them, atan2 needs only their direction */
@@ -918,10 +914,10 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             int free4 = 1;
             {
 
-                dt4 = s5*s5;
+                dt4 = root5*root5;
                 if (dt4 > 9.9999999999999995e-21) {
-                    c4 = -g36_13*s5;
-                    s4 = g16_23*s5;
+                    c4 = -g36_13*root5;
+                    s4 = g16_23*root5;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -940,10 +936,10 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             int free6 = 1;
             {
 
-                dt6 = free4 ? 0.0 : -s5*s5;
+                dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_21*s5;
-                    s6 = -g36_22*s5;
+                    c6 = g36_21*root5;
+                    s6 = -g36_22*root5;
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -956,8 +952,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                 const double g36_12 = c23*g16_12 - r32*s23;
                 const double g46_11 = -g16_21*us4 + g36_11*uc4;
                 const double g46_12 = -g16_22*us4 + g36_12*uc4;
-                const double g56_11 = c5*g46_11 + g36_21*s5;
-                const double g56_12 = c5*g46_12 + g36_22*s5;
+                const double g56_11 = g36_21*root5 + g36_23*g46_11;
+                const double g56_12 = g36_22*root5 + g36_23*g46_12;
 
                 dt6 = 1.0;
                 c6 = g56_11;
@@ -973,8 +969,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */
             (void)c3;
+            (void)root5;
             (void)s3;
-            (void)s5;
             (void)v1x;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = packer6_ik_atan2(s2, c2);

@@ -738,11 +738,15 @@ def balanced_sum(terms: list[str]) -> str:
 def propagate_aliases(plan: Plan) -> None:
     """Copy propagation: an intermediate that only renames another symbol or negates it (``rc11 =
     r11``, ``g26_31 = g16_31``, ``g36_21 = -g16_31``) is not assigned; every later expression
-    reads the original (a negation costs nothing where it is read)."""
+    reads the original (a negation costs nothing where it is read). The same for the cosine and
+    sine of a unit-norm root that are a name each (a wrist's middle joint: c5 = g36_33, s5 = root5)."""
     aliases: dict = {}
 
     def swap(expr):
         return expr.xreplace(aliases) if aliases and isinstance(expr, sp.Basic) else expr
+
+    def plain(expr):
+        return isinstance(expr, sp.Symbol) or (isinstance(-expr, sp.Symbol) and expr.could_extract_minus_sign())
 
     def keep(assignments):
         kept = []
@@ -759,6 +763,11 @@ def propagate_aliases(plan: Plan) -> None:
             if getattr(block, name, None) is not None:
                 setattr(block, name, swap(getattr(block, name)))
         block.coefficients = [swap(e) for e in block.coefficients]
+        if block.kind == "cossin" and block.norm == 1 and block.gamma is None and block.threshold is None \
+                and not block.antipodal and all(plain(e) for e in (block.cn, block.sn)):
+            # a root whose cosine and sine are a name each (or a negated one): read them in place
+            aliases[cos_symbol(block.key)], aliases[sin_symbol(block.key)] = block.cn, block.sn
+            block.need_cos = block.need_sin = False
         for form in block.forms:
             form.temps = keep(form.temps)
             form.det, form.cos_num, form.sin_num = swap(form.det), swap(form.cos_num), swap(form.sin_num)
