@@ -170,7 +170,7 @@ class FormPlan:
 
 
 WEAK_FACTOR = 1e12
-PI = 3.141592653589793          # the double nearest pi: atan2's results lie in [-PI, PI]
+PI = math.pi                    # the double nearest pi: atan2's results lie in [-PI, PI]
 
 
 @dataclass

@@ -30,7 +30,8 @@ from sympy.polys.domains import QQ
 
 from ..errors import StructureError
 from ..ir import (GUARD_TOLERANCE, SINGULAR_TOLERANCE, AngleSum, BranchPoint, CirclePolynomial, Compute,
-                  CosSinEquation, LengthForm, LinearLength, LinearPair, PairForm, QuadraticLength, Singular)
+                  CosSinEquation, LengthForm, LinearLength, LinearPair, PairForm, QuadraticLength, Singular,
+                  cos_symbol, sin_symbol)
 from .chain import Chain
 from .names import Names, Samples
 from .pool import Equation, Pool, entry_scale, equation_expr, numeric_residual, vary
@@ -844,7 +845,7 @@ def drop_idle_sibling_forms(steps: list, labels: list) -> list:
                 for name, expr in zip(other.names, other.exprs):
                     if name in reads:
                         reads |= expr.free_symbols
-        if not reads & {sp.Symbol(f"c{sibling}", real=True), sp.Symbol(f"s{sibling}", real=True)}:
+        if not reads & {cos_symbol(sibling), sin_symbol(sibling)}:
             continue
         steps[index] = dataclasses.replace(step, forms=step.forms[1:])
         for between in range(index - 1, start, -1):
