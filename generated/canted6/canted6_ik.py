@@ -764,8 +764,8 @@ def _closed_form(pose, current, check_finite=True):
 
         dt4 = -root5*root5
         if dt4 < -1e-20:
-            c4 = g36_13*root5
-            s4 = g26_33*root5
+            c4 = g36_13
+            s4 = g26_33
             # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
             free4 = False
             th4 = atan2(s4, c4)
@@ -1129,8 +1129,8 @@ def inverse_joints(pose, current=None):
 
         dt4 = -root5*root5
         if dt4 < -1e-20:
-            c4 = g36_13*root5
-            s4 = g26_33*root5
+            c4 = g36_13
+            s4 = g26_33
             # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
             free4 = False
             th4 = atan2(s4, c4)

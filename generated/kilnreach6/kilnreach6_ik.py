@@ -462,8 +462,8 @@ def _closed_form(pose, current, check_finite=True):
 
             dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = g26_13*root5
-                s4 = g16_33*root5
+                c4 = g26_13
+                s4 = g16_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -479,8 +479,9 @@ def _closed_form(pose, current, check_finite=True):
 
             dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = -g26_31*root5
-                s6 = g26_32*root5
+                c6 = -g26_31
+                s6 = g26_32
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -497,10 +498,10 @@ def _closed_form(pose, current, check_finite=True):
                 dt6 = 1.0
                 c6 = g56_11
                 s6 = -g56_12
+                hq6 = c6 * c6 + s6 * s6
+                if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
+                    continue
 
-            hq6 = c6 * c6 + s6 * s6
-            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
-                continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
@@ -658,8 +659,8 @@ def inverse_joints(pose, current=None):
 
             dt4 = -root5*root5
             if dt4 < -1e-20:
-                c4 = g26_13*root5
-                s4 = g16_33*root5
+                c4 = g26_13
+                s4 = g16_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
                 free4 = False
                 th4 = atan2(s4, c4)
@@ -675,8 +676,9 @@ def inverse_joints(pose, current=None):
 
             dt6 = 0.0 if free4 else -root5*root5
             if dt6 < -1e-08:
-                c6 = -g26_31*root5
-                s6 = g26_32*root5
+                c6 = -g26_31
+                s6 = g26_32
+                # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
             else:
                 un4 = 1.0/sqrt(c4*c4 + s4*s4)
                 uc4 = c4*un4
@@ -693,10 +695,10 @@ def inverse_joints(pose, current=None):
                 dt6 = 1.0
                 c6 = g56_11
                 s6 = -g56_12
+                hq6 = c6 * c6 + s6 * s6
+                if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
+                    continue
 
-            hq6 = c6 * c6 + s6 * s6
-            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
-                continue
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.

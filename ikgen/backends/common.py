@@ -12,6 +12,7 @@ from __future__ import annotations
 import functools
 import importlib.resources
 import math
+import random
 import re
 import unicodedata
 from dataclasses import dataclass, field
@@ -226,6 +227,13 @@ class Block:
         """Whether a pair's (cos, sin) are tested for consistency: not when every form is consistent
         by construction (FormPlan.consistent)."""
         return not (self.forms and all(form.consistent for form in self.forms))
+
+    @property
+    def per_form_test(self) -> bool:
+        """A pair with consistent and other forms (one that never leaves its angle free: see
+        mark_consistent) tests only the (cos, sin) of the forms that are not consistent, where
+        they are computed."""
+        return self.checked and any(form.consistent for form in self.forms)
 
     def root_parts(self) -> tuple[list[Assignment], sp.Expr | None, sp.Expr | None]:
         """For a cossin block with constant a and b (gamma): its cosine and sine per root as
@@ -653,35 +661,137 @@ def separate_siblings(plan: Plan) -> None:
 
 def mark_consistent(plan: Plan) -> None:
     """A scale-free pair's form whose cos_num^2 + sin_num^2 - det^2 is identically 0 in the code's
-    own quantities (each root's square its radicand, each unit-norm root's cosine and sine its cn
-    and sn, each named radicand its formula), with cos_num, sin_num and det single products (no
-    sum that could cancel; other named quantities taken as they are), is consistent whatever the
-    pose: rounding moves the test by a few ulp
-    of det^2, never by 1e-4, so the test is left out (FormPlan.consistent). The wrist's joint 4
-    once joint 5 is known is the usual case: (-g s5, h s5) with det -s5^2 and s5^2 = g^2 + h^2."""
+    own quantities, with cos_num, sin_num and det single products (no sum that could cancel), is
+    consistent whatever the pose: rounding moves the test by a few ulp of det^2, never by 1e-4,
+    so the test is left out (FormPlan.consistent). "Identically" is read in two steps. First as
+    polynomials: each root's square is its radicand, each unit-norm root's cosine and sine its cn
+    and sn, each named radicand its formula, other named quantities taken as they are (the
+    wrist's joint 4 once joint 5 is known: (-g s5, h s5) with det -s5^2 and s5^2 = g^2 + h^2).
+    Failing that, on the rotations (_holds_on_rotations): whatever unit cosine and sine each
+    solved angle has and whatever rotation the pose holds (the wrist's last joint once joint 5 is
+    known: g31^2 + g32^2 = g13^2 + g23^2, a row and a column of one rotation). A pose whose
+    rotation part is not orthonormal is the caller's mistake (docs/solvers.md). A consistent
+    form's numerators then lose a common factor of known positive sign (drop_positive_factor)."""
     trig: dict = {}
     roots: list = []
+    program: list = []           # (symbol, expression) in the code's order
+    pairs: list = []
     for block in plan.blocks:
+        program += [(a.target, a.expr) for a in block.temps]
+        if block.kind in ("cossin", "pair", "sum", "poly"):
+            pairs.append((cos_symbol(block.key), sin_symbol(block.key)))
         if block.kind == "cossin":
             root = sp.Symbol(f"root{block.key}", real=True)
-            definitions = {a.target: a.expr for a in block.temps}
-            roots.append((root, sp.sympify(block.radicand).xreplace(definitions)))
+            named = {a.target: a.expr for a in block.temps}
+            roots.append((root, sp.sympify(block.radicand).xreplace(named)))
+            program.append((root, sp.sqrt(sp.sympify(block.radicand))))
             if block.norm == 1 and block.gamma is None:
                 trig[cos_symbol(block.key)] = block.cn
                 trig[sin_symbol(block.key)] = block.sn
+                program += [(cos_symbol(block.key), block.cn), (sin_symbol(block.key), block.sn)]
         if block.kind != "pair" or not block.scale_free:
             continue
         for form in block.forms:
-            parts = [sp.expand(sp.sympify(e)) for e in (form.cos_num, form.sin_num, form.det)]
-            if any(isinstance(e, sp.Add) for e in parts) or form.temps:
-                continue
-            gap = sp.expand((parts[0] ** 2 + parts[1] ** 2 - parts[2] ** 2).xreplace(trig))
-            for root, radicand in roots:
-                if gap.has(root):
-                    gap = sp.expand(sp.rem(sp.Poly(gap, root), sp.Poly(root ** 2 - radicand, root)).as_expr())
-            for sign in {s for s in gap.free_symbols if s.name.startswith("sg")}:
-                gap = sp.expand(sp.rem(sp.Poly(gap, sign), sp.Poly(sign ** 2 - 1, sign)).as_expr())
-            form.consistent = gap == 0
+            form.consistent = _form_consistent(form, trig, roots, program, pairs, plan.pose_symbols)
+        if block.free_possible and block.checked:
+            # a pair that may leave its angle free tests whichever form it used (see the templates):
+            # partly consistent forms are tested all the same
+            for form in block.forms:
+                form.consistent = False
+        positive = [root for root, _ in roots]          # never negative: a square root ...
+        positive += [symbol for symbol, e in trig.items() if e in positive]   # ... or a sine read as one
+        for form in block.forms:
+            if form.consistent and form.det_sign:
+                drop_positive_factor(form, positive)
+
+
+def _form_consistent(form: FormPlan, trig: dict, roots: list, program: list, pairs: list, pose: tuple) -> bool:
+    """Whether cos_num^2 + sin_num^2 = det^2 holds by construction for one form (mark_consistent)."""
+    parts = [sp.expand(sp.sympify(e)) for e in (form.cos_num, form.sin_num, form.det)]
+    if any(isinstance(e, sp.Add) for e in parts):
+        return False
+    if not form.temps:
+        gap = sp.expand((parts[0] ** 2 + parts[1] ** 2 - parts[2] ** 2).xreplace(trig))
+        for root, radicand in roots:
+            if gap.has(root):
+                gap = sp.expand(sp.rem(sp.Poly(gap, root), sp.Poly(root ** 2 - radicand, root)).as_expr())
+        for sign in sorted({s for s in gap.free_symbols if s.name.startswith("sg")}, key=str):
+            gap = sp.expand(sp.rem(sp.Poly(gap, sign), sp.Poly(sign ** 2 - 1, sign)).as_expr())
+        if gap == 0:
+            return True
+    program = program + [(a.target, a.expr) for a in form.temps]
+    return _holds_on_rotations(parts, program, pairs, pose)
+
+
+CONSISTENCY_DIGITS = 50          # working precision of _holds_on_rotations
+CONSISTENCY_GAP = 1e-30          # |c^2 + s^2 - det^2| / (c^2 + s^2 + det^2) below this: 0 (rounding at 50 digits)
+
+
+def _holds_on_rotations(parts: list, program: list, pairs: list, pose: tuple) -> bool:
+    """Whether cos_num^2 + sin_num^2 = det^2 (``parts``) holds at every point where each pair in
+    ``pairs`` is a unit (cos, sin), the pose's rotation entries form a rotation, the pose's
+    position and every other input quantity are anything, and the named quantities are what
+    ``program`` (the code's assignments in order, roots included) makes of them. Tested at four
+    seeded random points of that set in 50-digit arithmetic: the unit pairs from random angles,
+    the rotation from a random unit quaternion (Euler-Rodrigues formula, common practice), branch
+    signs +-1 at random; a root of a negative radicand is imaginary there (an identity of the
+    algebra holds for either branch and over the complex numbers). An expression that is not 0 on
+    that set is far from 0 at a random point but for a set of measure zero (the Schwartz-Zippel
+    argument); the fixed seed gives the same answer on every run. A constant held as a float
+    that is not exactly the intended number makes the test fail: the form then keeps its test
+    (the safe side)."""
+    rng = random.Random(20261204)
+
+    def number() -> sp.Float:
+        return sp.Float(rng.uniform(-3.0, 3.0), CONSISTENCY_DIGITS)
+
+    for _ in range(4):
+        point: dict = {}
+        for c, s in pairs:
+            angle = sp.Float(rng.uniform(-math.pi, math.pi), CONSISTENCY_DIGITS)
+            point[c], point[s] = sp.cos(angle), sp.sin(angle)
+        q = [number() for _ in range(4)]
+        n = sum(x * x for x in q)
+        a, b, c, d = (x / sp.sqrt(n) for x in q)
+        rotation = [[a * a + b * b - c * c - d * d, 2 * (b * c - a * d), 2 * (b * d + a * c)],
+                    [2 * (b * c + a * d), a * a - b * b + c * c - d * d, 2 * (c * d - a * b)],
+                    [2 * (b * d - a * c), 2 * (c * d + a * b), a * a - b * b - c * c + d * d]]
+        for row in range(3):
+            for column in range(4):
+                point[pose[4 * row + column]] = rotation[row][column] if column < 3 else number()
+
+        def value(expr):
+            expr = sp.sympify(expr)
+            for symbol in sorted(expr.free_symbols - point.keys(), key=str):
+                point[symbol] = sp.Integer(rng.choice((-1, 1))) if symbol.name.startswith("sg") else number()
+            return sp.N(expr.xreplace(point), CONSISTENCY_DIGITS)
+
+        for target, expr in program:     # a unit-norm root's cosine and sine replace the random pair
+            point[target] = value(expr)
+        c, s, det = (value(e) for e in parts)
+        scale = abs(c) ** 2 + abs(s) ** 2 + abs(det) ** 2
+        if not scale > 0 or not abs(c * c + s * s - det * det) <= CONSISTENCY_GAP * scale:
+            return False
+    return True
+
+
+def drop_positive_factor(form: FormPlan, positive: list) -> None:
+    """A consistent scale-free form needs only the direction of (cos_num, sin_num): a common factor
+    of the two that is a product of roots (never negative) each dividing det (so not 0 where the
+    form's |det| test passes) is left out of both, which keeps their direction. The wrist's
+    joints 4 and 6 once joint 5 is known: (-g s5, h s5) becomes (-g, h) (s5 is root5 there).
+    ``positive``: the symbols known never to be negative."""
+    cos_num, sin_num = sp.sympify(form.cos_num), sp.sympify(form.sin_num)
+    det = sp.expand(sp.sympify(form.det))
+    factor = sp.Integer(1)
+    for root in positive:
+        while True:
+            c, s = sp.cancel(cos_num / root), sp.cancel(sin_num / root)
+            d = sp.cancel(det / (factor * root))
+            if not all(sp.fraction(e)[1] == 1 for e in (c, s, d)):
+                break
+            cos_num, sin_num, factor = c, s, factor * root
+    form.cos_num, form.sin_num = sp.expand(cos_num), sp.expand(sin_num)
 
 
 def mark_scale_free(plan: Plan) -> None:
