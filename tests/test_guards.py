@@ -167,3 +167,27 @@ def test_a_reading_exactly_at_the_widened_limit(slide_reading, solver, beyond):
         assert reading not in found
     else:
         assert reading in found
+
+
+def test_the_wrist_centre_on_joint_2s_axis_reads_no_reciprocal_of_zero():
+    """benchtop6's elbow pair divides by minus the squared distance of the wrist centre from joint
+    2's axis, through a reciprocal computed once per joint-1 root, before the elbow's reach test
+    (hoist, docs/derivation.md section 3). With the wrist centre exactly on that axis the
+    distance is 0: the arm cannot reach there (the law of cosines needs a distance of at least
+    |a2 - sqrt(a3^2 + d4^2)| = 260 - sqrt(20^2 + 240^2) > 0 from joint 2; common practice), and
+    the Python solver must say so without dividing by 0 (Python raises there), the C solver
+    alike. Identity rotation: the wrist centre is the position less 70 + 95 mm along z, and with
+    joint 1 at 0 it sits at a1 = 25 mm out and d1 = 220 mm up: the position (25, 0, 385). Joint 1
+    turned by half a turn puts joint 2's axis 50 mm from it, within reach: only those solutions
+    come back, and they take the arm to the pose."""
+    from helpers import demo_arm
+    arm = demo_arm("benchtop6")
+    pose = [[1.0, 0.0, 0.0, 25.0], [0.0, 1.0, 0.0, 0.0], [0.0, 0.0, 1.0, 385.0], [0.0, 0.0, 0.0, 1.0]]
+    assert 260.0 - math.hypot(20.0, 240.0) < 50.0
+    module = load_module(shared.python_source(arm), "benchtop6_ik_reciprocal")
+    found = module.inverse_joints(pose)
+    assert found and all(abs(q[0]) == 180.0 for q in found)
+    for q in found:
+        reached = module.forward(q)
+        assert max(abs(reached[i][k] - pose[i][k]) for i in range(3) for k in range(4)) < 1e-9
+    assert shared.c_solver(arm).inverse_joints(pose) == found

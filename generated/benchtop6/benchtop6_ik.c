@@ -117,7 +117,10 @@ static const int MULTI[BENCHTOP6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
+/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
+#define SAFE_ENTRY 10000000000.0
 
+/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
 static int valid_pose(const double pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -125,6 +128,9 @@ static int valid_pose(const double pose[16])
     const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
         + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
         + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= SAFE_ENTRY) {
+        return 2;
+    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -225,7 +231,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = BENCHTOP6_IK_INVALID_INPUT;
         return 0;
     }
@@ -297,6 +304,7 @@ static int closed_form(const double pose[16], const double *current,
         const double kc2_1 = 240.0*v1x - 20.0*v1y;
         const double kc2_2 = -260.0*v1x;
         const double dq2 = -v1x*v1x - v1y*v1y;
+        const double iq2 = 1.0/dq2;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -330,8 +338,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (dt2 < -9.9999999999999988e-16) {
-                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
-                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -524,9 +532,10 @@ static int closed_form(const double pose[16], const double *current,
             if (!free4) th4 = benchtop6_ik_atan2(s4, c4);
             th6 = benchtop6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -640,7 +649,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = BENCHTOP6_IK_INVALID_INPUT;
         return 0;
     }
@@ -712,6 +722,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
         const double kc2_1 = 240.0*v1x - 20.0*v1y;
         const double kc2_2 = -260.0*v1x;
         const double dq2 = -v1x*v1x - v1y*v1y;
+        const double iq2 = 1.0/dq2;
 
         /* th3: squared norm of A1^-1 w = A2 A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -745,8 +756,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (dt2 < -9.9999999999999988e-16) {
-                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
-                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -940,9 +951,10 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             if (!free4) th4 = benchtop6_ik_atan2(s4, c4);
             th6 = benchtop6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;

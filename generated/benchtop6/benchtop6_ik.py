@@ -434,6 +434,7 @@ def _closed_form(pose, current, check_finite=True):
         kc2_1 = 240.0*v1x - 20.0*v1y
         kc2_2 = -260.0*v1x
         dq2 = -v1x*v1x - v1y*v1y
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -459,8 +460,8 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 < -9.999999999999999e-16:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
@@ -757,6 +758,7 @@ def inverse_joints(pose, current=None):
         kc2_1 = 240.0*v1x - 20.0*v1y
         kc2_2 = -260.0*v1x
         dq2 = -v1x*v1x - v1y*v1y
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -782,8 +784,8 @@ def inverse_joints(pose, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 < -9.999999999999999e-16:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False

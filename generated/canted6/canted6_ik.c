@@ -320,7 +320,10 @@ static const int MULTI[CANTED6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
+/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
+#define SAFE_ENTRY 10000000000.0
 
+/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
 static int valid_pose(const double pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -328,6 +331,9 @@ static int valid_pose(const double pose[16])
     const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
         + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
         + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= SAFE_ENTRY) {
+        return 2;
+    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -444,7 +450,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = CANTED6_IK_INVALID_INPUT;
         return 0;
     }
@@ -468,6 +475,7 @@ static int closed_form(const double pose[16], const double *current,
     const double ks1_4 = 1000.0*wx - 146185.08815881325*wy;
     const double ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.378954807777*wy;
     const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+    const double iq1 = 1.0/dq1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -507,8 +515,8 @@ static int closed_form(const double pose[16], const double *current,
 
             dt1 = dq1;
             if (dt1 > 9.999999999999999e-14) {
-                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
-                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1;
                 free1 = 0;
                 wk1 = 0.099999999999999992;
             }
@@ -788,9 +796,10 @@ static int closed_form(const double pose[16], const double *current,
         if (!free4) th4 = canted6_ik_atan2(s4, c4);
         th6 = canted6_ik_atan2(s6, c6);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-         * mirrored solution's values follow from these) */
+         * mirrored solution's values follow from these); with every entry within
+         * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
-        const int fine = probe - probe == 0.0;
+        const int fine = entries == 2 || probe - probe == 0.0;
         {
             double u1 = th1;
             u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -899,7 +908,8 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = CANTED6_IK_INVALID_INPUT;
         return 0;
     }
@@ -923,6 +933,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
     const double ks1_4 = 1000.0*wx - 146185.08815881325*wy;
     const double ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.378954807777*wy;
     const double dq1 = 86.602540378443862*t4_0_0 + 86.602540378443862*t4_0_1;
+    const double iq1 = 1.0/dq1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -962,8 +973,8 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
 
             dt1 = dq1;
             if (dt1 > 9.999999999999999e-14) {
-                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
-                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1;
                 free1 = 0;
                 wk1 = 0.099999999999999992;
             }
@@ -1246,9 +1257,10 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         if (!free4) th4 = canted6_ik_atan2(s4, c4);
         th6 = canted6_ik_atan2(s6, c6);
         /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-         * mirrored solution's values follow from these) */
+         * mirrored solution's values follow from these); with every entry within
+         * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd3 + root5));
-        const int fine = probe - probe == 0.0;
+        const int fine = entries == 2 || probe - probe == 0.0;
         {
             double u1 = th1;
             u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;

@@ -514,6 +514,7 @@ def _closed_form(pose, current, check_finite=True):
     ks1_4 = 1000.0*wx - 146185.08815881325*wy
     ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
     dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+    iq1 = (1.0/dq1 if dq1 else 0.0)
 
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -536,8 +537,8 @@ def _closed_form(pose, current, check_finite=True):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         if dq1 > 9.999999999999999e-14:
-            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dq1
-            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dq1
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1
             hq1 = c1 * c1 + s1 * s1
             if 0.999999999999999 <= hq1 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free1 = False
@@ -879,6 +880,7 @@ def inverse_joints(pose, current=None):
     ks1_4 = 1000.0*wx - 146185.08815881325*wy
     ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
     dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+    iq1 = (1.0/dq1 if dq1 else 0.0)
 
     # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
     # k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots
@@ -901,8 +903,8 @@ def inverse_joints(pose, current=None):
         # th1 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
         if dq1 > 9.999999999999999e-14:
-            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dq1
-            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dq1
+            c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1
+            s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1
             hq1 = c1 * c1 + s1 * s1
             if 0.999999999999999 <= hq1 <= 1.0000000000000009:   # unit to rounding: the usual case
                 free1 = False

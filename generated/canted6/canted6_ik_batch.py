@@ -252,6 +252,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         ks1_4 = 1000.0*wx - 146185.08815881325*wy
         ks1_5 = 0.8660254037844386*wx*wx*wy - 50.0*wx*wz + 19000.0*wx + 0.8660254037844386*wy*wy*wy + 0.8660254037844386*wy*wz*wz - 519.6152422706632*wy*wz - 67463.37895480778*wy
         dq1 = 86.60254037844386*t4_0_0 + 86.60254037844386*t4_0_1
+        iq1 = 1.0/dq1
 
         # th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
         t3_0 = wx*wx
@@ -281,8 +282,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt1 = dq1
         use = ~chosen1 & (dt1 > 9.999999999999999e-14)
-        c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1
-        s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1
+        c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1
+        s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1
         wk1 = numpy.where(use, 0.09999999999999999, 0.0)
         dk1 = dt1
         chosen1 = chosen1 | use

@@ -305,6 +305,7 @@ static const int MULTI[CANTED6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
 
+/* 0: invalid input; 1: valid */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -428,7 +429,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r33 = pose[10];
     const float pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = CANTED6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -452,6 +454,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ks1_4 = 1000.0f*wx - 146185.088f*wy;
     const float ks1_5 = 0.866025404f*wx*wx*wy - 50.0f*wx*wz + 19000.0f*wx + 0.866025404f*wy*wy*wy + 0.866025404f*wy*wz*wz - 519.615242f*wy*wz - 67463.379f*wy;
     const float dq1 = 86.6025404f*t4_0_0 + 86.6025404f*t4_0_1;
+    const float iq1 = 1.0f/dq1;
 
     /* th3: the roots of a polynomial in its cosine and sine (th1 eliminated)
      * k0 + k1*c + k2*s + k3*c*s + k4*s*s = 0 on the circle: up to four roots */
@@ -491,8 +494,8 @@ static int closed_form(const float pose[16], const float *current,
 
             dt1 = dq1;
             if (dt1 > 1e-13f) {
-                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) / dt1;
-                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) / dt1;
+                c1 = (c3*kc1_0 + kc1_1*s3 + kc1_2) * iq1;
+                s1 = (c3*ks1_3 + ks1_4*s3 + ks1_5) * iq1;
                 free1 = 0;
                 wk1 = 0.1f;
             }

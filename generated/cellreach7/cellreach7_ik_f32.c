@@ -105,6 +105,7 @@ static const float LIMIT_HIGH[CELLREACH7_IK_F32_JOINTS] = { 165.0f, 115.0f, 165.
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
 
+/* 0: invalid input; 1: valid */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -221,7 +222,8 @@ static int closed_form(const float pose[16], float given, const float *current,
         if (status) *status = CELLREACH7_IK_F32_INVALID_INPUT;
         return 0;
     }
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = CELLREACH7_IK_F32_INVALID_INPUT;
         return 0;
     }

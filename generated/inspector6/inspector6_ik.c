@@ -117,7 +117,10 @@ static const int MULTI[INSPECTOR6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
+/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
+#define SAFE_ENTRY 10000000000.0
 
+/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
 static int valid_pose(const double pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -125,6 +128,9 @@ static int valid_pose(const double pose[16])
     const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
         + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
         + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= SAFE_ENTRY) {
+        return 2;
+    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -223,7 +229,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = INSPECTOR6_IK_INVALID_INPUT;
         return 0;
     }
@@ -272,6 +279,7 @@ static int closed_form(const double pose[16], const double *current,
         const double ks2_2 = -290.0*c3;
         const double ks2_3 = -290.0*s3*v1y - 320.0*v1y;
         const double dq2 = -185600.0*s3 - 186500.0;
+        const double iq2 = 1.0/dq2;
 
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -327,8 +335,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (kc2_0*v1x + kc2_1) / dt2;
-                    s2 = (ks2_2*v1x + ks2_3) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) * iq2;
+                    s2 = (ks2_2*v1x + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -482,9 +490,10 @@ static int closed_form(const double pose[16], const double *current,
             if (!free4) th4 = inspector6_ik_atan2(s4, c4);
             th6 = inspector6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -598,7 +607,8 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = INSPECTOR6_IK_INVALID_INPUT;
         return 0;
     }
@@ -647,6 +657,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
         const double ks2_2 = -290.0*c3;
         const double ks2_3 = -290.0*s3*v1y - 320.0*v1y;
         const double dq2 = -185600.0*s3 - 186500.0;
+        const double iq2 = 1.0/dq2;
 
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -702,8 +713,8 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999988e-16) {
-                    c2 = (kc2_0*v1x + kc2_1) / dt2;
-                    s2 = (ks2_2*v1x + ks2_3) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) * iq2;
+                    s2 = (ks2_2*v1x + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 0.0009999999999999998;
                 }
@@ -857,9 +868,10 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             if (!free4) th4 = inspector6_ik_atan2(s4, c4);
             th6 = inspector6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;

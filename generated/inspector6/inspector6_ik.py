@@ -413,6 +413,7 @@ def _closed_form(pose, current, check_finite=True):
         ks2_2 = -290.0*c3
         ks2_3 = -290.0*s3*v1y - 320.0*v1y
         dq2 = -185600.0*s3 - 186500.0
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -452,8 +453,8 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 > 9.999999999999999e-16 or dq2 < -9.999999999999999e-16:
-                c2 = (kc2_0*v1x + kc2_1) / dq2
-                s2 = (ks2_2*v1x + ks2_3) / dq2
+                c2 = (kc2_0*v1x + kc2_1) * iq2
+                s2 = (ks2_2*v1x + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
@@ -684,6 +685,7 @@ def inverse_joints(pose, current=None):
         ks2_2 = -290.0*c3
         ks2_3 = -290.0*s3*v1y - 320.0*v1y
         dq2 = -185600.0*s3 - 186500.0
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th1: z of A1^-1 w = A2 A3 c3
         # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -723,8 +725,8 @@ def inverse_joints(pose, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 > 9.999999999999999e-16 or dq2 < -9.999999999999999e-16:
-                c2 = (kc2_0*v1x + kc2_1) / dq2
-                s2 = (ks2_2*v1x + ks2_3) / dq2
+                c2 = (kc2_0*v1x + kc2_1) * iq2
+                s2 = (ks2_2*v1x + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False

@@ -167,6 +167,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         ks2_2 = -290*c3
         ks2_3 = -290*s3*v1y - 320*v1y
         dq2 = -185600*s3 - 186500
+        iq2 = 1.0/dq2
 
         # th1: z of A1^-1 w = A2 A3 c3
 
@@ -202,8 +203,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 9.999999999999999e-16)
-        c2 = (kc2_0*v1x + kc2_1) / dt2
-        s2 = (ks2_2*v1x + ks2_3) / dt2
+        c2 = (kc2_0*v1x + kc2_1) * iq2
+        s2 = (ks2_2*v1x + ks2_3) * iq2
         wk2 = numpy.where(use, 0.0009999999999999998, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use

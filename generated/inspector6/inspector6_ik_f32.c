@@ -102,6 +102,7 @@ static const int MULTI[INSPECTOR6_IK_F32_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
 
+/* 0: invalid input; 1: valid */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -207,7 +208,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r33 = pose[10];
     const float pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = INSPECTOR6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -256,6 +258,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ks2_2 = -290.0f*c3;
         const float ks2_3 = -290.0f*s3*v1y - 320.0f*v1y;
         const float dq2 = -185600.0f*s3 - 186500.0f;
+        const float iq2 = 1.0f/dq2;
 
         /* th1: z of A1^-1 w = A2 A3 c3
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -311,8 +314,8 @@ static int closed_form(const float pose[16], const float *current,
 
                 dt2 = dq2;
                 if (fabsf(dt2) > 1e-15f) {
-                    c2 = (kc2_0*v1x + kc2_1) / dt2;
-                    s2 = (ks2_2*v1x + ks2_3) / dt2;
+                    c2 = (kc2_0*v1x + kc2_1) * iq2;
+                    s2 = (ks2_2*v1x + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 0.001f;
                 }

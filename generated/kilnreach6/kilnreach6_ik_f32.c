@@ -102,6 +102,7 @@ static const int MULTI[KILNREACH6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
 
+/* 0: invalid input; 1: valid */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -195,7 +196,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r33 = pose[10];
     const float pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = KILNREACH6_IK_F32_INVALID_INPUT;
         return 0;
     }

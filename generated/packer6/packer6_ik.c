@@ -117,7 +117,10 @@ static const int MULTI[PACKER6_IK_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
+/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
+#define SAFE_ENTRY 10000000000.0
 
+/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
 static int valid_pose(const double pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -125,6 +128,9 @@ static int valid_pose(const double pose[16])
     const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
         + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
         + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
+    if (size <= SAFE_ENTRY) {
+        return 2;
+    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -221,7 +227,8 @@ static int closed_form(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = PACKER6_IK_INVALID_INPUT;
         return 0;
     }
@@ -283,6 +290,7 @@ static int closed_form(const double pose[16], const double *current,
         const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
         const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
         const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
+        const double iq2 = 1.0/dq2;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -316,8 +324,8 @@ static int closed_form(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
-                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 1e-08;
                 }
@@ -542,9 +550,10 @@ static int closed_form(const double pose[16], const double *current,
             if (!free4) th4 = packer6_ik_atan2(s4, c4);
             th6 = packer6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -658,7 +667,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
     const double r33 = pose[10];
     const double pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = PACKER6_IK_INVALID_INPUT;
         return 0;
     }
@@ -720,6 +730,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
         const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
         const double dq2 = -v1x*v1x + 0.29999999999999999*v1x - wz*wz - 0.022499999999999999;
+        const double iq2 = 1.0/dq2;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -753,8 +764,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
 
                 dt2 = dq2;
                 if (fabs(dt2) > 9.9999999999999995e-21) {
-                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
-                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 1e-08;
                 }
@@ -980,9 +991,10 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             if (!free4) th4 = packer6_ik_atan2(s4, c4);
             th6 = packer6_ik_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
-            const int fine = probe - probe == 0.0;
+            const int fine = entries == 2 || probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;

@@ -426,6 +426,7 @@ def _closed_form(pose, current, check_finite=True):
         kc2_1 = 0.9*v1x + 0.11*wz - 0.135
         kc2_2 = 0.1275 - 0.85*v1x
         dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -451,8 +452,8 @@ def _closed_form(pose, current, check_finite=True):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 > 1e-20 or dq2 < -1e-20:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False
@@ -777,6 +778,7 @@ def inverse_joints(pose, current=None):
         kc2_1 = 0.9*v1x + 0.11*wz - 0.135
         kc2_2 = 0.1275 - 0.85*v1x
         dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+        iq2 = (1.0/dq2 if dq2 else 0.0)
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
@@ -802,8 +804,8 @@ def inverse_joints(pose, current=None):
             # th2 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             if dq2 > 1e-20 or dq2 < -1e-20:
-                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dq2
-                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dq2
+                c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+                s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
                 hq2 = c2 * c2 + s2 * s2
                 if 0.999999999999999 <= hq2 <= 1.0000000000000009:   # unit to rounding: the usual case
                     free2 = False

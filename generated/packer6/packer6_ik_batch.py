@@ -180,6 +180,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         kc2_1 = 0.9*v1x + 0.11*wz - 0.135
         kc2_2 = 0.1275 - 0.85*v1x
         dq2 = -v1x*v1x + 0.3*v1x - wz*wz - 0.0225
+        iq2 = 1.0/dq2
 
         # th3: squared norm of A2^-1 A1^-1 w = A3 c3
         t5_0 = v1x*v1x - 0.3*v1x + v1y*v1y + wz*wz
@@ -202,8 +203,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt2 = dq2
         use = ~chosen2 & (numpy.abs(dt2) > 1e-20)
-        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
         wk2 = numpy.where(use, 1e-08, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use

@@ -102,6 +102,7 @@ static const int MULTI[PACKER6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
 
+/* 0: invalid input; 1: valid */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -205,7 +206,8 @@ static int closed_form(const float pose[16], const float *current,
     const float r33 = pose[10];
     const float pz = pose[11];
     (void)current;
-    if (!valid_pose(pose)) {
+    const int entries = valid_pose(pose);
+    if (!entries) {
         if (status) *status = PACKER6_IK_F32_INVALID_INPUT;
         return 0;
     }
@@ -267,6 +269,7 @@ static int closed_form(const float pose[16], const float *current,
         const float kc2_1 = 0.9f*v1x + 0.11f*wz - 0.135f;
         const float kc2_2 = 0.1275f - 0.85f*v1x;
         const float dq2 = -v1x*v1x + 0.3f*v1x - wz*wz - 0.0225f;
+        const float iq2 = 1.0f/dq2;
 
         /* th3: squared norm of A2^-1 A1^-1 w = A3 c3
          * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
@@ -300,8 +303,8 @@ static int closed_form(const float pose[16], const float *current,
 
                 dt2 = dq2;
                 if (fabsf(dt2) > 1e-20f) {
-                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
-                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
+                    c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2;
+                    s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2;
                     free2 = 0;
                     wk2 = 1e-08f;
                 }

@@ -179,6 +179,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         kc2_1 = 0.35*v1x - 0.035*v1y
         kc2_2 = -0.34*v1x
         dq2 = -v1x*v1x - v1y*v1y
+        iq2 = 1.0/dq2
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
         t5_0 = v1x*v1x + v1y*v1y + v1z*v1z
@@ -201,8 +202,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         dt2 = dq2
         use = ~chosen2 & (dt2 < -1e-21)
-        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2
-        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2
+        c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) * iq2
+        s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) * iq2
         wk2 = numpy.where(use, 9.999999999999999e-10, 0.0)
         dk2 = dt2
         chosen2 = chosen2 | use

@@ -54,6 +54,17 @@ class ProductPowers:
             return f"{self.one}/{self.sqrt_name}({self._print(base)})"
         return super()._print_Pow(expr, rational)
 
+    def _print_Reciprocal(self, expr):
+        from sympy.printing.precedence import PRECEDENCE
+        return f"{self.one}/" + self.parenthesize(expr.args[0], PRECEDENCE["Atom"] - 1)
+
+
+class Reciprocal(sp.Function):
+    """1/x computed ahead of the test that decides whether it is read (a pair's determinant hoisted
+    out of a loop, see hoist): in C and numpy a zero x gives an infinity that is never read; the
+    Python printer guards it (a zero divisor raises there)."""
+    nargs = 1
+
 
 # ------------------------------------------------------------------------------ templates
 
@@ -151,6 +162,7 @@ class FormPlan:
     after: str = ""              # tried only where this sibling pair's unknown was not left free
     det_sign: int = 0            # +1 or -1 when the determinant's sign is known from its form, else 0
     consistent: bool = False     # cos_num^2 + sin_num^2 = det^2 holds in the code's own quantities
+    inverse: sp.Symbol | None = None   # 1/det computed before the loop (hoist): c = cos_num * inverse
 
     def limit(self, real: str) -> float:
         """|det| above which this form is used. A form that does without its sibling (``after``) is
@@ -945,6 +957,12 @@ def hoist(plan: Plan) -> None:
                 named = Assignment(sp.Symbol(f"dq{block.key}", real=True), form.det)
                 if not stays(named, block.depth, block.comment):
                     form.det = named.target
+                    if block.kind == "pair" and not block.scale_free:
+                        # one division before the loop instead of two a root in it
+                        inverse = Assignment(sp.Symbol(f"iq{block.key}", real=True), Reciprocal(named.target))
+                        moved[level[named.target]].append((block.comment, inverse))
+                        level[inverse.target] = level[named.target]
+                        form.inverse = inverse.target
         if block.key:
             inner = block.depth + (1 if opens_loop(block) else 0)
             for symbol in (angle_symbol(block.key), cos_symbol(block.key), sin_symbol(block.key),

@@ -33,6 +33,11 @@ class SolverPythonPrinter(common.ProductPowers, PythonCodePrinter):
         # a float literal: CPython specialises float * float, not int * float (about 7 % of a solve)
         return repr(float(expr))
 
+    def _print_Reciprocal(self, expr):
+        # read only where the divisor passed its test; a zero divisor would raise here
+        x = self._print(expr.args[0])
+        return f"(1.0/{x} if {x} else 0.0)"
+
 
 def printer() -> SolverPythonPrinter:
     return SolverPythonPrinter()
