@@ -112,6 +112,11 @@ def test_the_wrist_pairs_hold_by_construction_on_rotations_and_keep_their_direct
         numerators = sp.sympify(form.cos_num).free_symbols | sp.sympify(form.sin_num).free_symbols
         assert not {s for s in numerators if s.name in ("root5", "s5")}
         assert form.det_sign == -1
+        # det = -root5^2: |det| > limit tested as root5 > sqrt(limit) (mark_root_tests)
+        assert str(form.root_symbol) == "root5" and form.root_scale == 1.0
+        for real in ("double", "float"):
+            assert form.root_bound(real) == math.sqrt(form.limit(real))
+    assert six.forms[1].root_symbol is None
 
 
 def test_the_rotation_identity_check_tells_identities_from_near_misses():

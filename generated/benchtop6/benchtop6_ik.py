@@ -605,8 +605,7 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -root5*root5
-            if dt4 < -1e-20:
+            if root5 > 1e-10:
                 c4 = -g36_13
                 s4 = g16_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -622,8 +621,7 @@ def _closed_form(pose, current, check_finite=True):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -root5*root5
-            if dt6 < -1e-08:
+            if not free4 and root5 > 0.0001:
                 c6 = g36_31
                 s6 = -g36_32
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
@@ -929,8 +927,7 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = -root5*root5
-            if dt4 < -1e-20:
+            if root5 > 1e-10:
                 c4 = -g36_13
                 s4 = g16_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -946,8 +943,7 @@ def inverse_joints(pose, current=None):
             # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt6 = 0.0 if free4 else -root5*root5
-            if dt6 < -1e-08:
+            if not free4 and root5 > 0.0001:
                 c6 = g36_31
                 s6 = -g36_32
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)

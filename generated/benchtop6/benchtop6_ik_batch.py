@@ -316,7 +316,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = -root5*root5
-        use = ~chosen4 & (dt4 < -1e-20)
+        use = ~chosen4 & (root5 > 1e-10)
         c4 = -g36_13
         s4 = g16_33
         chosen4 = chosen4 | use
@@ -332,7 +332,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         tested6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -root5*root5)
-        use = ~chosen6 & (dt6 < -1e-08)
+        use = ~chosen6 & (~free4 & (root5 > 0.0001))
         c6 = g36_31
         s6 = -g36_32
         dk6 = dt6

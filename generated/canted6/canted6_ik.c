@@ -731,13 +731,14 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt4 = -root5*root5;
-            if (dt4 < -9.9999999999999995e-21) {
+            if (root5 > 1e-10) {
                 c4 = g36_13;
                 s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
+        (void)dt4;   /* a form tested through its root does not read it */
         /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
         (void)wk4;
         if (free4) {
@@ -1189,13 +1190,14 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt4 = -root5*root5;
-            if (dt4 < -9.9999999999999995e-21) {
+            if (root5 > 1e-10) {
                 c4 = g36_13;
                 s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08;
             }
         }
+        (void)dt4;   /* a form tested through its root does not read it */
         /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
         (void)wk4;
         if (free4) {

@@ -763,8 +763,7 @@ def _closed_form(pose, current, check_finite=True):
         # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt4 = -root5*root5
-        if dt4 < -1e-20:
+        if root5 > 1e-10:
             c4 = g36_13
             s4 = g26_33
             # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -1129,8 +1128,7 @@ def inverse_joints(pose, current=None):
         # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt4 = -root5*root5
-        if dt4 < -1e-20:
+        if root5 > 1e-10:
             c4 = g36_13
             s4 = g26_33
             # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)

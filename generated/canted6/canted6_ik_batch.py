@@ -474,7 +474,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = -root5*root5
-        use = ~chosen4 & (dt4 < -1e-20)
+        use = ~chosen4 & (root5 > 1e-10)
         c4 = g36_13
         s4 = g26_33
         chosen4 = chosen4 | use

@@ -710,13 +710,14 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt4 = -root5*root5;
-            if (dt4 < -1e-20f) {
+            if (root5 > 1e-10f) {
                 c4 = g36_13;
                 s4 = g26_33;
                 free4 = 0;
                 wk4 = 1e-08f;
             }
         }
+        (void)dt4;   /* a form tested through its root does not read it */
         /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
         (void)wk4;
         if (free4) {

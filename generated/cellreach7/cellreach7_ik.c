@@ -487,13 +487,14 @@ static int closed_form(const double pose[16], double given, const double *curren
             {
 
                 dt5 = -root6*root6;
-                if (dt5 < -9.9999999999999995e-21) {
+                if (root6 > 1e-10) {
                     c5 = g47_13;
                     s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
+            (void)dt5;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk5;
             if (free5) {
@@ -509,7 +510,7 @@ static int closed_form(const double pose[16], double given, const double *curren
             {
 
                 dt7 = free5 ? 0.0 : -root6*root6;
-                if (dt7 < -1e-08) {
+                if (!free5 && root6 > 0.0001) {
                     c7 = -g47_31;
                     s7 = g47_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -538,6 +539,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                 }
                 free7 = 0;
             }
+            (void)dt7;   /* a form tested through its root does not read it */
             (void)free7;
             (void)wk7;
 
@@ -921,13 +923,14 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             {
 
                 dt5 = -root6*root6;
-                if (dt5 < -9.9999999999999995e-21) {
+                if (root6 > 1e-10) {
                     c5 = g47_13;
                     s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08;
                 }
             }
+            (void)dt5;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk5;
             if (free5) {
@@ -943,7 +946,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             {
 
                 dt7 = free5 ? 0.0 : -root6*root6;
-                if (dt7 < -1e-08) {
+                if (!free5 && root6 > 0.0001) {
                     c7 = -g47_31;
                     s7 = g47_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -972,6 +975,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 }
                 free7 = 0;
             }
+            (void)dt7;   /* a form tested through its root does not read it */
             (void)free7;
             (void)wk7;
 

@@ -709,8 +709,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt5 = -root6*root6
-            if dt5 < -1e-20:
+            if root6 > 1e-10:
                 c5 = g47_13
                 s5 = g37_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -726,8 +725,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt7 = 0.0 if free5 else -root6*root6
-            if dt7 < -1e-08:
+            if not free5 and root6 > 0.0001:
                 c7 = -g47_31
                 s7 = g47_32
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
@@ -1050,8 +1048,7 @@ def inverse_joints(pose, given, current=None):
             # th5 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt5 = -root6*root6
-            if dt5 < -1e-20:
+            if root6 > 1e-10:
                 c5 = g47_13
                 s5 = g37_33
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -1067,8 +1064,7 @@ def inverse_joints(pose, given, current=None):
             # th7 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt7 = 0.0 if free5 else -root6*root6
-            if dt7 < -1e-08:
+            if not free5 and root6 > 0.0001:
                 c7 = -g47_31
                 s7 = g47_32
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)

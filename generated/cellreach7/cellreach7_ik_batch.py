@@ -345,7 +345,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         chosen5 = numpy.zeros((), dtype=bool)
 
         dt5 = -root6*root6
-        use = ~chosen5 & (dt5 < -1e-20)
+        use = ~chosen5 & (root6 > 1e-10)
         c5 = g47_13
         s5 = g37_33
         chosen5 = chosen5 | use
@@ -361,7 +361,7 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         tested7 = numpy.zeros((), dtype=bool)
 
         dt7 = numpy.where(free5, 0.0, -root6*root6)
-        use = ~chosen7 & (dt7 < -1e-08)
+        use = ~chosen7 & (~free5 & (root6 > 0.0001))
         c7 = -g47_31
         s7 = g47_32
         dk7 = dt7

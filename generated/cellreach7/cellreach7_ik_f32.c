@@ -466,13 +466,14 @@ static int closed_form(const float pose[16], float given, const float *current,
             {
 
                 dt5 = -root6*root6;
-                if (dt5 < -1e-20f) {
+                if (root6 > 1e-10f) {
                     c5 = g47_13;
                     s5 = g37_33;
                     free5 = 0;
                     wk5 = 1e-08f;
                 }
             }
+            (void)dt5;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk5;
             if (free5) {
@@ -488,7 +489,7 @@ static int closed_form(const float pose[16], float given, const float *current,
             {
 
                 dt7 = free5 ? 0.0f : -root6*root6;
-                if (dt7 < -0.001f) {
+                if (!free5 && root6 > 0.0316227766f) {
                     c7 = -g47_31;
                     s7 = g47_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -517,6 +518,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                 }
                 free7 = 0;
             }
+            (void)dt7;   /* a form tested through its root does not read it */
             (void)free7;
             (void)wk7;
 

@@ -349,13 +349,14 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt4 = -root5*root5;
-                if (dt4 < -9.9999999999999995e-21) {
+                if (root5 > 1e-10) {
                     c4 = g26_13;
                     s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -371,7 +372,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -root5*root5;
-                if (dt6 < -1e-08) {
+                if (!free4 && root5 > 0.0001) {
                     c6 = -g26_31;
                     s6 = g26_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -400,6 +401,7 @@ static int closed_form(const double pose[16], const double *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 
@@ -665,13 +667,14 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt4 = -root5*root5;
-                if (dt4 < -9.9999999999999995e-21) {
+                if (root5 > 1e-10) {
                     c4 = g26_13;
                     s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -687,7 +690,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -root5*root5;
-                if (dt6 < -1e-08) {
+                if (!free4 && root5 > 0.0001) {
                     c6 = -g26_31;
                     s6 = g26_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -716,6 +719,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 

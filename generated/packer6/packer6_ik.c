@@ -509,7 +509,7 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -root5*root5;
-                if (dt6 < -1e-08) {
+                if (!free4 && root5 > 0.0001) {
                     c6 = g36_21;
                     s6 = -g36_22;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -536,6 +536,7 @@ static int closed_form(const double pose[16], const double *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 
@@ -949,7 +950,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt6 = free4 ? 0.0 : -root5*root5;
-                if (dt6 < -1e-08) {
+                if (!free4 && root5 > 0.0001) {
                     c6 = g36_21;
                     s6 = -g36_22;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -976,6 +977,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 

@@ -367,7 +367,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         tested6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -root5*root5)
-        use = ~chosen6 & (dt6 < -1e-08)
+        use = ~chosen6 & (~free4 & (root5 > 0.0001))
         c6 = g36_21
         s6 = -g36_22
         dk6 = dt6

@@ -488,7 +488,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt6 = free4 ? 0.0f : -root5*root5;
-                if (dt6 < -0.001f) {
+                if (!free4 && root5 > 0.0316227766f) {
                     c6 = g36_21;
                     s6 = -g36_22;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -515,6 +515,7 @@ static int closed_form(const float pose[16], const float *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 

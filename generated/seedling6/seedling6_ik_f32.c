@@ -436,13 +436,14 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt4 = -root5*root5;
-                if (dt4 < -1e-20f) {
+                if (root5 > 1e-10f) {
                     c4 = -g36_13;
                     s4 = g16_33;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -458,7 +459,7 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt6 = free4 ? 0.0f : -root5*root5;
-                if (dt6 < -0.001f) {
+                if (!free4 && root5 > 0.0316227766f) {
                     c6 = g36_31;
                     s6 = -g36_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
@@ -487,6 +488,7 @@ static int closed_form(const float pose[16], const float *current,
                 }
                 free6 = 0;
             }
+            (void)dt6;   /* a form tested through its root does not read it */
             (void)free6;
             (void)wk6;
 

@@ -163,6 +163,12 @@ class FormPlan:
     det_sign: int = 0            # +1 or -1 when the determinant's sign is known from its form, else 0
     consistent: bool = False     # cos_num^2 + sin_num^2 = det^2 holds in the code's own quantities
     inverse: sp.Symbol | None = None   # 1/det computed before the loop (hoist): c = cos_num * inverse
+    root_symbol: sp.Symbol | None = None   # det = -+root_scale * root^2 with root a square root (never
+    root_scale: float = 1.0                # negative): |det| > limit tested as root > root_bound
+
+    def root_bound(self, real: str) -> float:
+        """The root above which |det| = root_scale * root^2 exceeds limit(real) (mark_root_tests)."""
+        return math.sqrt(self.limit(real) / self.root_scale)
 
     def limit(self, real: str) -> float:
         """|det| above which this form is used. A form that does without its sibling (``after``) is
@@ -602,6 +608,7 @@ def lower_now(derivation: Derivation) -> Plan:
     mark_scale_free(plan)
     mark_consistent(plan)
     propagate_aliases(plan)
+    mark_root_tests(plan)
     hoist(plan)
     mark_late_angles(plan)
     return plan
@@ -804,6 +811,22 @@ def drop_positive_factor(form: FormPlan, positive: list) -> None:
                 break
             cos_num, sin_num, factor = c, s, factor * root
     form.cos_num, form.sin_num = sp.expand(cos_num), sp.expand(sin_num)
+
+
+def mark_root_tests(plan: Plan) -> None:
+    """A consistent form's determinant that is a constant times the square of a root (the wrist's
+    -root5^2) is tested through the root: |det| > limit is root > sqrt(limit / |constant|), one
+    comparison and no product; nothing else reads such a form's determinant (no consistency test
+    follows it). Every back-end prints the same test."""
+    for block in plan.blocks:
+        for form in block.forms:
+            det = sp.sympify(form.det)
+            if not form.consistent or not isinstance(det, sp.Mul):
+                continue
+            scale, rest = det.as_coeff_Mul()
+            if (isinstance(rest, sp.Pow) and rest.exp == 2 and isinstance(rest.base, sp.Symbol)
+                    and rest.base.name.startswith("root") and scale.is_number and scale != 0):
+                form.root_symbol, form.root_scale = rest.base, float(abs(scale))
 
 
 def mark_scale_free(plan: Plan) -> None:
