@@ -289,6 +289,10 @@ static int closed_form(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
@@ -414,27 +418,27 @@ static int closed_form(const double pose[16], const double *current,
                     wk2 = 1.0;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -539,9 +543,6 @@ static int closed_form(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
@@ -582,9 +583,6 @@ static int closed_form(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
@@ -709,6 +707,10 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
@@ -834,27 +836,27 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                     wk2 = 1.0;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((-1.5707963267948966 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -960,9 +962,6 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
@@ -990,9 +989,6 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;

@@ -419,6 +419,8 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = cn1/t3_0
                 s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
@@ -654,7 +656,6 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = root5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
             v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
@@ -741,6 +742,8 @@ def inverse_joints(pose, current=None):
                 c1 = cn1/t3_0
                 s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
@@ -970,7 +973,6 @@ def inverse_joints(pose, current=None):
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
             v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232

@@ -521,27 +521,27 @@ static int closed_form(const double pose[16], const double *current,
                 wk1 = 0.099999999999999992;
             }
         }
-        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
-            if (fabs(dt1) > wk1) {
-                continue;
-            }
-            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free1) {
-            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
-            c1 = cos(th1);
-            s1 = sin(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+        if (!free1) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq1 = c1 * c1 + s1 * s1;
+            if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq1 - 1.0) > 0.0001) {
+                    if (fabs(dt1) > wk1) {
+                        continue;
+                    }
+                    free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn1 = 1.0 / sqrt(hq1);
                     c1 = c1 * hn1;
                     s1 = s1 * hn1;
                 }
             }
+        }
+        if (free1) {
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
+            c1 = cos(th1);
+            s1 = sin(th1);
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -669,27 +669,27 @@ static int closed_form(const double pose[16], const double *current,
                 wk2 = 0.099999999999999992;
             }
         }
-        if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-            if (fabs(dt2) > wk2) {
-                continue;
-            }
-            free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free2) {
-            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-            c2 = cos(th2);
-            s2 = sin(th2);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq2 = c2 * c2 + s2 * s2;
-                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+        if (!free2) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq2 = c2 * c2 + s2 * s2;
+            if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq2 - 1.0) > 0.0001) {
+                    if (fabs(dt2) > wk2) {
+                        continue;
+                    }
+                    free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn2 = 1.0 / sqrt(hq2);
                     c2 = c2 * hn2;
                     s2 = s2 * hn2;
                 }
             }
+        }
+        if (free2) {
+            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+            c2 = cos(th2);
+            s2 = sin(th2);
         }
 
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -980,27 +980,27 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
                 wk1 = 0.099999999999999992;
             }
         }
-        if (!free1 && fabs(c1 * c1 + s1 * s1 - 1.0) > 0.0001) {
-            if (fabs(dt1) > wk1) {
-                continue;
-            }
-            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free1) {
-            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
-            c1 = cos(th1);
-            s1 = sin(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq1 = c1 * c1 + s1 * s1;
-                if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+        if (!free1) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq1 = c1 * c1 + s1 * s1;
+            if (fabs(hq1 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq1 - 1.0) > 0.0001) {
+                    if (fabs(dt1) > wk1) {
+                        continue;
+                    }
+                    free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn1 = 1.0 / sqrt(hq1);
                     c1 = c1 * hn1;
                     s1 = s1 * hn1;
                 }
             }
+        }
+        if (free1) {
+            th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
+            c1 = cos(th1);
+            s1 = sin(th1);
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -1128,27 +1128,27 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
                 wk2 = 0.099999999999999992;
             }
         }
-        if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-            if (fabs(dt2) > wk2) {
-                continue;
-            }
-            free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free2) {
-            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-            c2 = cos(th2);
-            s2 = sin(th2);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq2 = c2 * c2 + s2 * s2;
-                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+        if (!free2) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq2 = c2 * c2 + s2 * s2;
+            if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq2 - 1.0) > 0.0001) {
+                    if (fabs(dt2) > wk2) {
+                        continue;
+                    }
+                    free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn2 = 1.0 / sqrt(hq2);
                     c2 = c2 * hn2;
                     s2 = s2 * hn2;
                 }
             }
+        }
+        if (free2) {
+            th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+            c2 = cos(th2);
+            s2 = sin(th2);
         }
 
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */

@@ -500,27 +500,27 @@ static int closed_form(const float pose[16], const float *current,
                 wk1 = 0.1f;
             }
         }
-        if (!free1 && fabsf(c1 * c1 + s1 * s1 - 1.0f) > 0.005f) {
-            if (fabsf(dt1) > wk1) {
-                continue;
-            }
-            free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free1) {
-            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
-            c1 = cosf(th1);
-            s1 = sinf(th1);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq1 = c1 * c1 + s1 * s1;
-                if (fabsf(hq1 - 1.0f) > 1e-06f) {
+        if (!free1) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const float hq1 = c1 * c1 + s1 * s1;
+            if (fabsf(hq1 - 1.0f) > 1e-06f) {
+                if (fabsf(hq1 - 1.0f) > 0.005f) {
+                    if (fabsf(dt1) > wk1) {
+                        continue;
+                    }
+                    free1 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const float hn1 = 1.0f / sqrtf(hq1);
                     c1 = c1 * hn1;
                     s1 = s1 * hn1;
                 }
             }
+        }
+        if (free1) {
+            th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
+            c1 = cosf(th1);
+            s1 = sinf(th1);
         }
 
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
@@ -648,27 +648,27 @@ static int closed_form(const float pose[16], const float *current,
                 wk2 = 0.1f;
             }
         }
-        if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
-            if (fabsf(dt2) > wk2) {
-                continue;
-            }
-            free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free2) {
-            th2 = one_turn((0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
-            c2 = cosf(th2);
-            s2 = sinf(th2);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq2 = c2 * c2 + s2 * s2;
-                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+        if (!free2) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const float hq2 = c2 * c2 + s2 * s2;
+            if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                if (fabsf(hq2 - 1.0f) > 0.005f) {
+                    if (fabsf(dt2) > wk2) {
+                        continue;
+                    }
+                    free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const float hn2 = 1.0f / sqrtf(hq2);
                     c2 = c2 * hn2;
                     s2 = s2 * hn2;
                 }
             }
+        }
+        if (free2) {
+            th2 = one_turn((0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
+            c2 = cosf(th2);
+            s2 = sinf(th2);
         }
 
         /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */

@@ -292,6 +292,10 @@ static int closed_form(const double pose[16], double given, const double *curren
         c4 = pc4;
         s4 = qs4*sg4;
 
+        /* joint 4's reading: once here, not once per inner root */
+        double u4 = th4;
+        u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+        const double jv4 = u4 * 57.295779513082323;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = 372.0*c3*s4;
         const double kc2_1 = -372.0*c4*v1y - 415.0*v1y;
@@ -424,27 +428,27 @@ static int closed_form(const double pose[16], double given, const double *curren
                     wk2 = 0.0009999999999999998;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -566,9 +570,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = given;
-                double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
                 u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
@@ -611,9 +612,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     const double jv3 = given;
-                    double u4 = th4;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5 + 3.1415926535897931;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * 57.295779513082323;
@@ -728,6 +726,10 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
         c4 = pc4;
         s4 = qs4*sg4;
 
+        /* joint 4's reading: once here, not once per inner root */
+        double u4 = th4;
+        u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
+        const double jv4 = u4 * 57.295779513082323;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = 372.0*c3*s4;
         const double kc2_1 = -372.0*c4*v1y - 415.0*v1y;
@@ -860,27 +862,27 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                     wk2 = 0.0009999999999999998;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((0.0 + 0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -1002,9 +1004,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = given;
-                double u4 = th4;
-                u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                const double jv4 = u4 * 57.295779513082323;
                 double u5 = th5;
                 u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
@@ -1034,9 +1033,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
                     const double jv3 = given;
-                    double u4 = th4;
-                    u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
-                    const double jv4 = u4 * 57.295779513082323;
                     double u5 = th5 + 3.1415926535897931;
                     u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : u5;
                     const double jv5 = u5 * 57.295779513082323;

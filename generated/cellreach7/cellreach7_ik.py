@@ -507,6 +507,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         c4 = pc4
         s4 = qs4*sg4
 
+        # joint 4's reading: once here, not once per inner root
+        v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
         kc2_1 = -372.0*c4*v1y - 415.0*v1y
@@ -760,7 +762,6 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
-            v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
@@ -846,6 +847,8 @@ def inverse_joints(pose, given, current=None):
         c4 = pc4
         s4 = qs4*sg4
 
+        # joint 4's reading: once here, not once per inner root
+        v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
         kc2_1 = -372.0*c4*v1y - 415.0*v1y
@@ -1093,7 +1096,6 @@ def inverse_joints(pose, given, current=None):
             # Joint readings, configuration labels, singular flag.
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
-            v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232

@@ -271,6 +271,10 @@ static int closed_form(const float pose[16], float given, const float *current,
         c4 = pc4;
         s4 = qs4*sg4;
 
+        /* joint 4's reading: once here, not once per inner root */
+        float u4 = th4;
+        u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
+        const float jv4 = u4 * 57.2957795f;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = 372.0f*c3*s4;
         const float kc2_1 = -372.0f*c4*v1y - 415.0f*v1y;
@@ -403,27 +407,27 @@ static int closed_form(const float pose[16], float given, const float *current,
                     wk2 = 0.001f;
                 }
             }
-            if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
-                if (fabsf(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
-                c2 = cosf(th2);
-                s2 = sinf(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq2 = c2 * c2 + s2 * s2;
-                    if (fabsf(hq2 - 1.0f) > 1e-06f) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const float hq2 = c2 * c2 + s2 * s2;
+                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                    if (fabsf(hq2 - 1.0f) > 0.005f) {
+                        if (fabsf(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const float hn2 = 1.0f / sqrtf(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((0.0f + 0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
             }
 
             /* A2^-1 A1^-1 T: the known side with joints 1, 2 moved over (A2^-1 times the previous one) */
@@ -544,9 +548,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                 u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 const float jv3 = given;
-                float u4 = th4;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
                 u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
@@ -589,9 +590,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                     u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
                     const float jv3 = given;
-                    float u4 = th4;
-                    u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
-                    const float jv4 = u4 * 57.2957795f;
                     float u5 = th5 + 3.14159265f;
                     u5 = u5 > 3.14159265f ? u5 - 6.28318531f : u5;
                     const float jv5 = u5 * 57.2957795f;

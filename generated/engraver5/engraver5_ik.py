@@ -435,6 +435,8 @@ def _closed_form(pose, current, check_finite=True):
         c3 = pc3 + qc3*sg3
         s3 = ps3 + qs3*sg3
 
+        # joint 3's reading: once here, not once per inner root
+        v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -20.0*c3 - 190.0*s3 - 200.0
         kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y
@@ -646,7 +648,6 @@ def _closed_form(pose, current, check_finite=True):
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
             v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
-            v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"

@@ -557,27 +557,27 @@ static int closed_form(const double pose[16], const double *current,
                 wk5 = 9.9999999999999986e-10;
             }
         }
-        if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
-            if (fabs(dt5) > wk5) {
-                continue;
-            }
-            free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free5) {
-            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
-            c5 = cos(th5);
-            s5 = sin(th5);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq5 = c5 * c5 + s5 * s5;
-                if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+        if (!free5) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq5 = c5 * c5 + s5 * s5;
+            if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq5 - 1.0) > 0.0001) {
+                    if (fabs(dt5) > wk5) {
+                        continue;
+                    }
+                    free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn5 = 1.0 / sqrt(hq5);
                     c5 = c5 * hn5;
                     s5 = s5 * hn5;
                 }
             }
+        }
+        if (free5) {
+            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
+            c5 = cos(th5);
+            s5 = sin(th5);
         }
 
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -911,27 +911,27 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
                 wk5 = 9.9999999999999986e-10;
             }
         }
-        if (!free5 && fabs(c5 * c5 + s5 * s5 - 1.0) > 0.0001) {
-            if (fabs(dt5) > wk5) {
-                continue;
-            }
-            free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free5) {
-            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
-            c5 = cos(th5);
-            s5 = sin(th5);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const double hq5 = c5 * c5 + s5 * s5;
-                if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+        if (!free5) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const double hq5 = c5 * c5 + s5 * s5;
+            if (fabs(hq5 - 1.0) > 1.0000000000000001e-15) {
+                if (fabs(hq5 - 1.0) > 0.0001) {
+                    if (fabs(dt5) > wk5) {
+                        continue;
+                    }
+                    free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const double hn5 = 1.0 / sqrt(hq5);
                     c5 = c5 * hn5;
                     s5 = s5 * hn5;
                 }
             }
+        }
+        if (free5) {
+            th5 = one_turn((0.0 + 0.017453292519943295 * (current && current[4] - current[4] == 0.0 ? fmod(current[4], 360.0) : 0.0)));
+            c5 = cos(th5);
+            s5 = sin(th5);
         }
 
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */

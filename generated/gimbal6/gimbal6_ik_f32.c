@@ -536,27 +536,27 @@ static int closed_form(const float pose[16], const float *current,
                 wk5 = 1e-09f;
             }
         }
-        if (!free5 && fabsf(c5 * c5 + s5 * s5 - 1.0f) > 0.005f) {
-            if (fabsf(dt5) > wk5) {
-                continue;
-            }
-            free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-        }
-        if (free5) {
-            th5 = one_turn((0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f)));
-            c5 = cosf(th5);
-            s5 = sinf(th5);
-        } else {
-            /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-             * (elsewhere it is 1 to rounding, and the test is all it costs) */
-            {
-                const float hq5 = c5 * c5 + s5 * s5;
-                if (fabsf(hq5 - 1.0f) > 1e-06f) {
+        if (!free5) {
+            /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+             * and scaled to unit length for the later steps, or inconsistent */
+            const float hq5 = c5 * c5 + s5 * s5;
+            if (fabsf(hq5 - 1.0f) > 1e-06f) {
+                if (fabsf(hq5 - 1.0f) > 0.005f) {
+                    if (fabsf(dt5) > wk5) {
+                        continue;
+                    }
+                    free5 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                } else {
                     const float hn5 = 1.0f / sqrtf(hq5);
                     c5 = c5 * hn5;
                     s5 = s5 * hn5;
                 }
             }
+        }
+        if (free5) {
+            th5 = one_turn((0.0f + 0.0174532925f * (current && current[4] - current[4] == 0.0f ? fmodf(current[4], 360.0f) : 0.0f)));
+            c5 = cosf(th5);
+            s5 = sinf(th5);
         }
 
         /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */

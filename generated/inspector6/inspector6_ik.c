@@ -273,6 +273,10 @@ static int closed_form(const double pose[16], const double *current,
         c3 = qc3*sg3;
         s3 = ps3;
 
+        /* joint 3's reading: once here, not once per inner root */
+        double u3 = th3 - 1.7889624832941875;
+        u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
+        const double jv3 = u3 * 57.295779513082323;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -290.0*s3 - 320.0;
         const double kc2_1 = 290.0*c3*v1y;
@@ -372,27 +376,27 @@ static int closed_form(const double pose[16], const double *current,
                     wk2 = 1.0;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -503,9 +507,6 @@ static int closed_form(const double pose[16], const double *current,
                 double u2 = th2 - 1.5707963267948966;
                 u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * -57.295779513082323;
-                double u3 = th3 - 1.7889624832941875;
-                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
-                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
@@ -546,9 +547,6 @@ static int closed_form(const double pose[16], const double *current,
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * -57.295779513082323;
-                    double u3 = th3 - 1.7889624832941875;
-                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
-                    const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 57.295779513082323;
@@ -653,6 +651,10 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
         c3 = qc3*sg3;
         s3 = ps3;
 
+        /* joint 3's reading: once here, not once per inner root */
+        double u3 = th3 - 1.7889624832941875;
+        u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
+        const double jv3 = u3 * 57.295779513082323;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -290.0*s3 - 320.0;
         const double kc2_1 = 290.0*c3*v1y;
@@ -752,27 +754,27 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                     wk2 = 1.0;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((1.5707963267948966 + -0.017453292519943295 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 360.0) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -883,9 +885,6 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                 double u2 = th2 - 1.5707963267948966;
                 u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * -57.295779513082323;
-                double u3 = th3 - 1.7889624832941875;
-                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
-                const double jv3 = u3 * 57.295779513082323;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
@@ -913,9 +912,6 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * -57.295779513082323;
-                    double u3 = th3 - 1.7889624832941875;
-                    u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
-                    const double jv3 = u3 * 57.295779513082323;
                     double u4 = th4 + 3.1415926535897931;
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : u4;
                     const double jv4 = u4 * 57.295779513082323;

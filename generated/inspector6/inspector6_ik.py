@@ -407,6 +407,9 @@ def _closed_form(pose, current, check_finite=True):
         c3 = qc3*sg3
         s3 = ps3
 
+        # joint 3's reading: once here, not once per inner root
+        u3 = th3 - 1.7889624832941875
+        v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -290.0*s3 - 320.0
         kc2_1 = 290.0*c3*v1y
@@ -598,8 +601,6 @@ def _closed_form(pose, current, check_finite=True):
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
             v2 = (u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2) * -57.29577951308232
-            u3 = th3 - 1.7889624832941875
-            v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5) * -57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
@@ -677,6 +678,9 @@ def inverse_joints(pose, current=None):
         c3 = qc3*sg3
         s3 = ps3
 
+        # joint 3's reading: once here, not once per inner root
+        u3 = th3 - 1.7889624832941875
+        v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -290.0*s3 - 320.0
         kc2_1 = 290.0*c3*v1y
@@ -862,8 +866,6 @@ def inverse_joints(pose, current=None):
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
             v2 = (u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2) * -57.29577951308232
-            u3 = th3 - 1.7889624832941875
-            v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5) * -57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232

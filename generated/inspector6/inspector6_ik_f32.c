@@ -252,6 +252,10 @@ static int closed_form(const float pose[16], const float *current,
         c3 = qc3*sg3;
         s3 = ps3;
 
+        /* joint 3's reading: once here, not once per inner root */
+        float u3 = th3 - 1.78896248f;
+        u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
+        const float jv3 = u3 * 57.2957795f;
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = -290.0f*s3 - 320.0f;
         const float kc2_1 = 290.0f*c3*v1y;
@@ -351,27 +355,27 @@ static int closed_form(const float pose[16], const float *current,
                     wk2 = 1.0f;
                 }
             }
-            if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
-                if (fabsf(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((1.57079633f + -0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
-                c2 = cosf(th2);
-                s2 = sinf(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq2 = c2 * c2 + s2 * s2;
-                    if (fabsf(hq2 - 1.0f) > 1e-06f) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const float hq2 = c2 * c2 + s2 * s2;
+                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                    if (fabsf(hq2 - 1.0f) > 0.005f) {
+                        if (fabsf(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const float hn2 = 1.0f / sqrtf(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((1.57079633f + -0.0174532925f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 360.0f) : 0.0f)));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -481,9 +485,6 @@ static int closed_form(const float pose[16], const float *current,
                 float u2 = th2 - 1.57079633f;
                 u2 = u2 < -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * -57.2957795f;
-                float u3 = th3 - 1.78896248f;
-                u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
-                const float jv3 = u3 * 57.2957795f;
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
@@ -524,9 +525,6 @@ static int closed_form(const float pose[16], const float *current,
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 < -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * -57.2957795f;
-                    float u3 = th3 - 1.78896248f;
-                    u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
-                    const float jv3 = u3 * 57.2957795f;
                     float u4 = th4 + 3.14159265f;
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
                     const float jv4 = u4 * 57.2957795f;

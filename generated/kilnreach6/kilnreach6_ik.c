@@ -263,6 +263,10 @@ static int closed_form(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy;
 
@@ -427,9 +431,6 @@ static int closed_form(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
@@ -468,9 +469,6 @@ static int closed_form(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2;
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
@@ -581,6 +579,10 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy;
 
@@ -747,9 +749,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + l3) + (th4 + th5)) + ((th6 + root1) + (root2 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
@@ -775,9 +774,6 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2;
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;

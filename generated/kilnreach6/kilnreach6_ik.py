@@ -397,6 +397,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cn1/t3_0
             s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
 
@@ -512,7 +514,6 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = -c2*v1y + s2*v1x
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
             conditioning = (root1 * 0.001, root2 * 0.001, root5, )
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
@@ -592,6 +593,8 @@ def inverse_joints(pose, current=None):
             c1 = cn1/t3_0
             s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
 
@@ -701,7 +704,6 @@ def inverse_joints(pose, current=None):
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 499.9999989 <= (l3 - 0.0) * 1.0 <= 1600.0000011:
                 continue
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232

@@ -273,6 +273,10 @@ static int closed_form(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1;
@@ -301,6 +305,10 @@ static int closed_form(const double pose[16], const double *current,
             c5 = pc5;
             s5 = qs5*sg5;
 
+            /* joint 5's reading: once here, not once per inner root */
+            double u5 = th5;
+            u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+            const double jv5 = u5 * 57.295779513082323;
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
@@ -314,27 +322,27 @@ static int closed_form(const double pose[16], const double *current,
                     wk6 = 1e-08;
                 }
             }
-            if (!free6 && fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
-                if (fabs(dt6) > wk6) {
-                    continue;
-                }
-                free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free6) {
-                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
-                c6 = cos(th6);
-                s6 = sin(th6);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq6 = c6 * c6 + s6 * s6;
-                    if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
+            if (!free6) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq6 = c6 * c6 + s6 * s6;
+                if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq6 - 1.0) > 0.0001) {
+                        if (fabs(dt6) > wk6) {
+                            continue;
+                        }
+                        free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn6 = 1.0 / sqrt(hq6);
                         c6 = c6 * hn6;
                         s6 = s6 * hn6;
                     }
                 }
+            }
+            if (free6) {
+                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
+                c6 = cos(th6);
+                s6 = sin(th6);
             }
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -447,9 +455,6 @@ static int closed_form(const double pose[16], const double *current,
                 const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
                 const int fine = entries == 2 || probe - probe == 0.0;
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
@@ -460,9 +465,6 @@ static int closed_form(const double pose[16], const double *current,
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     const double jv4 = u4 * 57.295779513082323;
-                    double u5 = th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6;
                     u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
@@ -562,6 +564,10 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1;
@@ -590,6 +596,10 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
             c5 = pc5;
             s5 = qs5*sg5;
 
+            /* joint 5's reading: once here, not once per inner root */
+            double u5 = th5;
+            u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
+            const double jv5 = u5 * 57.295779513082323;
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
@@ -603,27 +613,27 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                     wk6 = 1e-08;
                 }
             }
-            if (!free6 && fabs(c6 * c6 + s6 * s6 - 1.0) > 0.0001) {
-                if (fabs(dt6) > wk6) {
-                    continue;
-                }
-                free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free6) {
-                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
-                c6 = cos(th6);
-                s6 = sin(th6);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq6 = c6 * c6 + s6 * s6;
-                    if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
+            if (!free6) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq6 = c6 * c6 + s6 * s6;
+                if (fabs(hq6 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq6 - 1.0) > 0.0001) {
+                        if (fabs(dt6) > wk6) {
+                            continue;
+                        }
+                        free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn6 = 1.0 / sqrt(hq6);
                         c6 = c6 * hn6;
                         s6 = s6 * hn6;
                     }
                 }
+            }
+            if (free6) {
+                th6 = one_turn((0.0 + 0.017453292519943295 * (current && current[5] - current[5] == 0.0 ? fmod(current[5], 360.0) : 0.0)));
+                c6 = cos(th6);
+                s6 = sin(th6);
             }
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -737,9 +747,6 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                 const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
                 const int fine = entries == 2 || probe - probe == 0.0;
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                     const double jv2 = u2 * 57.295779513082323;
@@ -750,9 +757,6 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
                     const double jv4 = u4 * 57.295779513082323;
-                    double u5 = th5;
-                    u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
-                    const double jv5 = u5 * 57.295779513082323;
                     double u6 = th6;
                     u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;

@@ -405,6 +405,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cn1/t2_0
             s1 = sn1/t2_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1
@@ -429,6 +431,8 @@ def _closed_form(pose, current, check_finite=True):
             c5 = pc5
             s5 = qs5*sg5
 
+            # joint 5's reading: once here, not once per inner root
+            v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
@@ -549,7 +553,6 @@ def _closed_form(pose, current, check_finite=True):
                 lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
-                v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
                 v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
                 v3 = (th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3) * 57.29577951308232
@@ -557,7 +560,6 @@ def _closed_form(pose, current, check_finite=True):
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
                 v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
                 la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
                 la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
@@ -618,6 +620,8 @@ def inverse_joints(pose, current=None):
             c1 = cn1/t2_0
             s1 = sn1/t2_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1
@@ -642,6 +646,8 @@ def inverse_joints(pose, current=None):
             c5 = pc5
             s5 = qs5*sg5
 
+            # joint 5's reading: once here, not once per inner root
+            v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
@@ -756,7 +762,6 @@ def inverse_joints(pose, current=None):
                 th4 = thp234 - th3 - th2
 
                 # Joint readings, configuration labels, singular flag.
-                v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
                 u2 = th2 - 1.5707963267948966
                 v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
                 v3 = (th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3) * 57.29577951308232
@@ -764,7 +769,6 @@ def inverse_joints(pose, current=None):
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
-                v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
                 v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 

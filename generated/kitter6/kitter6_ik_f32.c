@@ -252,6 +252,10 @@ static int closed_form(const float pose[16], const float *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        float u1 = th1;
+        u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+        const float jv1 = u1 * 57.2957795f;
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float g16_13 = c1*r13 + r23*s1;
         const float g16_14 = c1*pcx + pcy*s1;
@@ -280,6 +284,10 @@ static int closed_form(const float pose[16], const float *current,
             c5 = pc5;
             s5 = qs5*sg5;
 
+            /* joint 5's reading: once here, not once per inner root */
+            float u5 = th5;
+            u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
+            const float jv5 = u5 * 57.2957795f;
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
             int free6 = 1;
@@ -293,27 +301,27 @@ static int closed_form(const float pose[16], const float *current,
                     wk6 = 1e-08f;
                 }
             }
-            if (!free6 && fabsf(c6 * c6 + s6 * s6 - 1.0f) > 0.005f) {
-                if (fabsf(dt6) > wk6) {
-                    continue;
-                }
-                free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free6) {
-                th6 = one_turn((0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? fmodf(current[5], 360.0f) : 0.0f)));
-                c6 = cosf(th6);
-                s6 = sinf(th6);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq6 = c6 * c6 + s6 * s6;
-                    if (fabsf(hq6 - 1.0f) > 1e-06f) {
+            if (!free6) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const float hq6 = c6 * c6 + s6 * s6;
+                if (fabsf(hq6 - 1.0f) > 1e-06f) {
+                    if (fabsf(hq6 - 1.0f) > 0.005f) {
+                        if (fabsf(dt6) > wk6) {
+                            continue;
+                        }
+                        free6 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const float hn6 = 1.0f / sqrtf(hq6);
                         c6 = c6 * hn6;
                         s6 = s6 * hn6;
                     }
                 }
+            }
+            if (free6) {
+                th6 = one_turn((0.0f + 0.0174532925f * (current && current[5] - current[5] == 0.0f ? fmodf(current[5], 360.0f) : 0.0f)));
+                c6 = cosf(th6);
+                s6 = sinf(th6);
             }
 
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
@@ -425,9 +433,6 @@ static int closed_form(const float pose[16], const float *current,
                 const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
                 const int fine = probe - probe == 0.0f;
                 {
-                    float u1 = th1;
-                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                    const float jv1 = u1 * 57.2957795f;
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                     const float jv2 = u2 * 57.2957795f;
@@ -438,9 +443,6 @@ static int closed_form(const float pose[16], const float *current,
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
                     const float jv4 = u4 * 57.2957795f;
-                    float u5 = th5;
-                    u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
-                    const float jv5 = u5 * 57.2957795f;
                     float u6 = th6;
                     u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                     const float jv6 = u6 * 57.2957795f;

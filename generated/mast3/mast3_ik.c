@@ -216,6 +216,10 @@ static int closed_form(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double q1x = c1*px + py*s1;
 
@@ -287,9 +291,6 @@ static int closed_form(const double pose[16], const double *current,
             const double probe = ((th1 + th2) + l3) + (root1 + root2);
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
@@ -365,6 +366,10 @@ int mast3_ik_inverse_joints(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 57.295779513082323;
         /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double q1x = c1*px + py*s1;
 
@@ -438,9 +443,6 @@ int mast3_ik_inverse_joints(const double pose[16], const double *current,
             const double probe = ((th1 + th2) + l3) + (root1 + root2);
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
                 double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;

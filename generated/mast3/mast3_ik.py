@@ -355,6 +355,8 @@ def _closed_form(pose, current, check_finite=True):
             c1 = cn1/t1_0
             s1 = sn1/t1_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
 
@@ -402,7 +404,6 @@ def _closed_form(pose, current, check_finite=True):
             lm1 = -c2*q1y + q1x*s2
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0
             conditioning = (root1 * 0.001, root2 * 0.001, )
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
@@ -453,6 +454,8 @@ def inverse_joints(pose, current=None):
             c1 = cn1/t1_0
             s1 = sn1/t1_0
 
+        # joint 1's reading: once here, not once per inner root
+        v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
 
@@ -495,7 +498,6 @@ def inverse_joints(pose, current=None):
             # a displacement outside its joint's stroke is no solution (strokes define reach)
             if not 399.9999984 <= (l3 - 0.0) * 1.0 <= 2000.0000016:
                 continue
-            v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             solutions.append((v1, v2, v3, ))

@@ -195,6 +195,10 @@ static int closed_form(const float pose[16], const float *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        float u1 = th1;
+        u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+        const float jv1 = u1 * 57.2957795f;
         /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float q1x = c1*px + py*s1;
 
@@ -265,9 +269,6 @@ static int closed_form(const float pose[16], const float *current,
             const float probe = ((th1 + th2) + l3) + (root1 + root2);
             const int fine = probe - probe == 0.0f;
             {
-                float u1 = th1;
-                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                const float jv1 = u1 * 57.2957795f;
                 float u2 = th2;
                 u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;

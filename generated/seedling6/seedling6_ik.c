@@ -288,6 +288,10 @@ static int closed_form(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1 - 0.52359877559829915;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 1.0;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
@@ -404,27 +408,27 @@ static int closed_form(const double pose[16], const double *current,
                     wk2 = 9.9999999999999986e-10;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 6.2831853071795862) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 6.2831853071795862) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -529,9 +533,6 @@ static int closed_form(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1 - 0.52359877559829915;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 1.0;
@@ -572,9 +573,6 @@ static int closed_form(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1 - 0.52359877559829915;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 1.0;
@@ -699,6 +697,10 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        double u1 = th1 - 0.52359877559829915;
+        u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+        const double jv1 = u1 * 1.0;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy - 0.040000000000000001;
         const double v1z = c1*wy - s1*wx;
@@ -815,27 +817,27 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                     wk2 = 9.9999999999999986e-10;
                 }
             }
-            if (!free2 && fabs(c2 * c2 + s2 * s2 - 1.0) > 0.0001) {
-                if (fabs(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 6.2831853071795862) : 0.0)));
-                c2 = cos(th2);
-                s2 = sin(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const double hq2 = c2 * c2 + s2 * s2;
-                    if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const double hq2 = c2 * c2 + s2 * s2;
+                if (fabs(hq2 - 1.0) > 1.0000000000000001e-15) {
+                    if (fabs(hq2 - 1.0) > 0.0001) {
+                        if (fabs(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const double hn2 = 1.0 / sqrt(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((-1.5707963267948966 + 1.0 * (current && current[1] - current[1] == 0.0 ? fmod(current[1], 6.2831853071795862) : 0.0)));
+                c2 = cos(th2);
+                s2 = sin(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -941,9 +943,6 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
             {
-                double u1 = th1 - 0.52359877559829915;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 1.0;
                 double u2 = th2 - -1.5707963267948966;
                 u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                 const double jv2 = u2 * 1.0;
@@ -971,9 +970,6 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1 - 0.52359877559829915;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 1.0;
                     double u2 = th2 - -1.5707963267948966;
                     u2 = u2 > 3.1415926535897931 ? u2 - 6.2831853071795862 : u2;
                     const double jv2 = u2 * 1.0;

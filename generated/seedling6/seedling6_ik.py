@@ -415,6 +415,9 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = cn1/t3_0
                 s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        u1 = th1 - 0.5235987755982991
+        v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
@@ -641,8 +644,6 @@ def _closed_form(pose, current, check_finite=True):
             lm2 = root5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 3.162277660168379, root3 * 4.180828530294072, root5, )
-            u1 = th1 - 0.5235987755982991
-            v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
             v3 = (th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3) * -1.0
@@ -729,6 +730,9 @@ def inverse_joints(pose, current=None):
                 c1 = cn1/t3_0
                 s1 = sn1/t3_0
 
+        # joint 1's reading: once here, not once per inner root
+        u1 = th1 - 0.5235987755982991
+        v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
@@ -949,8 +953,6 @@ def inverse_joints(pose, current=None):
             th6 = atan2(s6, c6)   # as the C solver computes it
 
             # Joint readings, configuration labels, singular flag.
-            u1 = th1 - 0.5235987755982991
-            v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
             v3 = (th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3) * -1.0

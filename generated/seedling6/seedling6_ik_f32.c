@@ -267,6 +267,10 @@ static int closed_form(const float pose[16], const float *current,
 
         }
 
+        /* joint 1's reading: once here, not once per inner root */
+        float u1 = th1 - 0.523598776f;
+        u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+        const float jv1 = u1 * 1.0f;
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy - 0.04f;
         const float v1z = c1*wy - s1*wx;
@@ -383,27 +387,27 @@ static int closed_form(const float pose[16], const float *current,
                     wk2 = 1e-09f;
                 }
             }
-            if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {
-                if (fabsf(dt2) > wk2) {
-                    continue;
-                }
-                free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
-            }
-            if (free2) {
-                th2 = one_turn((-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 6.28318531f) : 0.0f)));
-                c2 = cosf(th2);
-                s2 = sinf(th2);
-            } else {
-                /* unit (cos, sin) for the later steps: near a singular set the pair's scale drifts past rounding
-                 * (elsewhere it is 1 to rounding, and the test is all it costs) */
-                {
-                    const float hq2 = c2 * c2 + s2 * s2;
-                    if (fabsf(hq2 - 1.0f) > 1e-06f) {
+            if (!free2) {
+                /* the usual case in one test: (cos, sin) of unit length to rounding; else off by at most 1e-4
+                 * and scaled to unit length for the later steps, or inconsistent */
+                const float hq2 = c2 * c2 + s2 * s2;
+                if (fabsf(hq2 - 1.0f) > 1e-06f) {
+                    if (fabsf(hq2 - 1.0f) > 0.005f) {
+                        if (fabsf(dt2) > wk2) {
+                            continue;
+                        }
+                        free2 = 1; /* ill-conditioned near a singular pose: the pair does not fix it */
+                    } else {
                         const float hn2 = 1.0f / sqrtf(hq2);
                         c2 = c2 * hn2;
                         s2 = s2 * hn2;
                     }
                 }
+            }
+            if (free2) {
+                th2 = one_turn((-1.57079633f + 1.0f * (current && current[1] - current[1] == 0.0f ? fmodf(current[1], 6.28318531f) : 0.0f)));
+                c2 = cosf(th2);
+                s2 = sinf(th2);
             }
 
             /* cosine and sine of th2 + th3 (axes 2 and 3 parallel: their turns add) */
@@ -507,9 +511,6 @@ static int closed_form(const float pose[16], const float *current,
             const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = probe - probe == 0.0f;
             {
-                float u1 = th1 - 0.523598776f;
-                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                const float jv1 = u1 * 1.0f;
                 float u2 = th2 - -1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
                 const float jv2 = u2 * 1.0f;
@@ -550,9 +551,6 @@ static int closed_form(const float pose[16], const float *current,
             }
             if (root5 > 0.0f && !free4) {
                 {
-                    float u1 = th1 - 0.523598776f;
-                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                    const float jv1 = u1 * 1.0f;
                     float u2 = th2 - -1.57079633f;
                     u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
                     const float jv2 = u2 * 1.0f;

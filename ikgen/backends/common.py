@@ -414,6 +414,24 @@ class Plan:
         """The branch blocks, in order: one conditioning measure per branch point."""
         return [b for b in self.blocks if b.kind in ("cossin", "poly", "quad")]
 
+    def early_outputs(self, block: "Block") -> list:
+        """The readings converted right after ``block`` rather than where each solution is
+        written: an output whose joint this cossin or pair block solves above the innermost
+        level (its angle fixed there: no deferred atan2, and a mirrored twin reads the same
+        angle) is converted once per root of its own loop, not once per inner root (the reach's
+        joint 1 of a six-axis arm: once per reach root, not once per elbow and wrist root)."""
+        inner = block.depth + (1 if opens_loop(block) else 0)
+        if block.kind not in ("cossin", "pair") or block.late_angle or inner >= self.depth:
+            return []
+        return [out for out in self.outputs
+                if str(out.joint) == block.key and not out.given and not out.prismatic
+                and (self.mirror is None or self.mirrored_angle(out.joint) == f"th{out.joint}")]
+
+    @property
+    def early_joints(self) -> set:
+        """The joints of every early output (see early_outputs)."""
+        return {out.joint for block in self.blocks for out in self.early_outputs(block)}
+
     def mirrored_angle(self, joint) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
         m = self.mirror
