@@ -119,6 +119,22 @@ def test_the_wrist_pairs_hold_by_construction_on_rotations_and_keep_their_direct
     assert six.forms[1].root_symbol is None
 
 
+def test_a_reading_fixed_by_an_outer_loop_is_converted_once_there():
+    """Joint 1's reading depends on the reach root alone: the plan converts it right after joint
+    1's block (Plan.early_outputs), and the generated C and Python convert it once per reach root,
+    before the elbow loop, not in the code that writes each solution. The readings themselves are
+    checked bit for bit between C and Python and by round trips elsewhere."""
+    arm = demo_arm("benchtop6")
+    plan = common.lower(shared.built(arm).derivation)
+    assert plan.early_joints == {1}
+    one = next(b for b in plan.blocks if b.key == "1")
+    assert [o.joint for o in plan.early_outputs(one)] == [1]
+    python = shared.python_source(arm)
+    lean = python[python.index("def inverse_joints("):]
+    assert lean.count("v1 = ") == 1
+    assert lean.index("v1 = ") < lean.index("for sg3 in ")
+
+
 def test_the_rotation_identity_check_tells_identities_from_near_misses():
     """_holds_on_rotations against identities of rotation matrices (common practice: the columns
     and rows of a rotation are unit vectors; rotating about z keeps the z component and the length
