@@ -12,7 +12,7 @@ solution, limits ignored). Printed side by side:
   value of the Jacobian, lengths over the reach) among the solutions of either build, and the
   largest of those over the poses: the width of the band in which the float build may lose or gain
   a solution (at a branch's reach boundary the float build admits poses beyond reach by about
-  1e-5 of the radicand's scale, ikgen/backends/c.py FLOAT_GUARD_TOLERANCE);
+  3e-6 of the radicand's scale, ikgen/backends/c.py FLOAT_GUARD_TOLERANCE);
 - the float solutions farther than 1e-6 from their pose, and the largest Jacobian distance among them.
 The float build reads the pose rounded to float, so part of its gap is the pose's own rounding.
 

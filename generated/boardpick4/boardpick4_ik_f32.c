@@ -243,7 +243,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ec2 = t4_9 - 325650.0f;
     const float er2 = (504400.0f - t4_9)*(t4_9 - 146900.0f);
 
-    if (er2 + 639031.25f < 0.0f) {
+    if (er2 + 191709.375f < 0.0f) {
         if (status) *status = BOARDPICK4_IK_F32_UNREACHABLE;
         return 0;
     }

@@ -694,7 +694,7 @@ static int closed_form(const float pose[16], const float *current,
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float er5 = g26_33*g26_33 + g36_13*g36_13;
 
-        if (er5 + 2e-05f < 0.0f) {
+        if (er5 + 6e-06f < 0.0f) {
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;

@@ -253,7 +253,7 @@ static int closed_form(const float pose[16], float given, const float *current,
     const float ec4 = t5_0 - 206925.0f;
     const float er4 = (515685.0f - t5_0)*(t5_0 + 101835.0f);
 
-    if (er4 + 1906654.75f < 0.0f) {
+    if (er4 + 571996.426f < 0.0f) {
         if (status) *status = CELLREACH7_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -287,7 +287,7 @@ static int closed_form(const float pose[16], float given, const float *current,
         const float er1 = -138384.0f*s3*s3*s4*s4 + t6_0;
 
         const int free1 = t6_0 <= 1e-15f;
-        if (free1 ? ec1*ec1 > 1e-15f : er1 + 2e-05f*t6_0 < 0.0f) {
+        if (free1 ? ec1*ec1 > 1e-15f : er1 + 6e-06f*t6_0 < 0.0f) {
             continue;
         }
         const float root1 = er1 > 0.0f ? sqrtf(er1) : 0.0f;
@@ -454,7 +454,7 @@ static int closed_form(const float pose[16], float given, const float *current,
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er6 = g37_33*g37_33 + g47_13*g47_13;
 
-            if (er6 + 2e-05f < 0.0f) {
+            if (er6 + 6e-06f < 0.0f) {
                 continue;
             }
             const float root6 = er6 > 0.0f ? sqrtf(er6) : 0.0f;

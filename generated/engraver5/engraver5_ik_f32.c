@@ -215,7 +215,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ec3 = 50900.0f - t2_0;
     const float er3 = (127319.893f - t2_0)*(t2_0 + 25519.8927f);
 
-    if (er3 + 116800.0f < 0.0f) {
+    if (er3 + 35040.0f < 0.0f) {
         if (status) *status = ENGRAVER5_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -249,7 +249,7 @@ static int closed_form(const float pose[16], const float *current,
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
         const int free1 = t3_0 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.00002f*t3_0 < 0.0f) {
+        if (free1 ? 0.0f > 1e-15f : 1.000006f*t3_0 < 0.0f) {
             continue;
         }
         const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
@@ -385,7 +385,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec5 = q3z - 190.0f;
             const float er5 = (250.0f - q3z)*(q3z - 130.0f);
 
-            if (er5 + 0.072f < 0.0f) {
+            if (er5 + 0.0216f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;

@@ -595,7 +595,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec2 = 0.5f*g03_32 + 0.866025404f*g03_33;
         const float er2 = g03_31*g03_31 + (-0.866025404f*g03_32 + 0.5f*g03_33)*(-0.866025404f*g03_32 + 0.5f*g03_33);
 
-        if (er2 + 2e-05f < 0.0f) {
+        if (er2 + 6e-06f < 0.0f) {
             continue;
         }
         const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;

@@ -234,7 +234,7 @@ static int closed_form(const float pose[16], const float *current,
     const float ec3 = 154100.0f - t3_0;
     const float er3 = (339700.0f - t3_0)*(t3_0 + 31500.0f);
 
-    if (er3 + 688947.2f < 0.0f) {
+    if (er3 + 206684.16f < 0.0f) {
         if (status) *status = INSPECTOR6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -268,7 +268,7 @@ static int closed_form(const float pose[16], const float *current,
          * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
 
         const int free1 = t4_0 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.00002f*t4_0 < 0.0f) {
+        if (free1 ? 0.0f > 1e-15f : 1.000006f*t4_0 < 0.0f) {
             continue;
         }
         const float root1 = t4_0 > 0.0f ? sqrtf(t4_0) : 0.0f;
@@ -392,7 +392,7 @@ static int closed_form(const float pose[16], const float *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er5 = g16_33*g16_33 + g36_13*g36_13;
 
-            if (er5 + 2e-05f < 0.0f) {
+            if (er5 + 6e-06f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;

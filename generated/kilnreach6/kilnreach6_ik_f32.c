@@ -220,7 +220,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t3_0 - 22500.0f;
 
     const int free1 = t3_0 <= 1e-14f;
-    if (free1 ? 22500.0f > 1e-14f : er1 + 2e-05f*t3_0 < 0.0f) {
+    if (free1 ? 22500.0f > 1e-14f : er1 + 6e-06f*t3_0 < 0.0f) {
         if (status) *status = KILNREACH6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -260,7 +260,7 @@ static int closed_form(const float pose[16], const float *current,
         const float t5_0 = v1x*v1x + v1y*v1y;
 
         const int free2 = t5_0 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.00002f*t5_0 < 0.0f) {
+        if (free2 ? 0.0f > 1e-14f : 1.000006f*t5_0 < 0.0f) {
             continue;
         }
         const float root2 = t5_0 > 0.0f ? sqrtf(t5_0) : 0.0f;
@@ -316,7 +316,7 @@ static int closed_form(const float pose[16], const float *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er5 = g16_33*g16_33 + g26_13*g26_13;
 
-            if (er5 + 2e-05f < 0.0f) {
+            if (er5 + 6e-06f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;

@@ -230,7 +230,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t2_0 - 14641.0f;
 
     const int free1 = t2_0 <= 1e-15f;
-    if (free1 ? 14641.0f > 1e-15f : er1 + 2e-05f*t2_0 < 0.0f) {
+    if (free1 ? 14641.0f > 1e-15f : er1 + 6e-06f*t2_0 < 0.0f) {
         if (status) *status = KITTER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -267,7 +267,7 @@ static int closed_form(const float pose[16], const float *current,
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float er5 = g16_13*g16_13 + r33*r33;
 
-        if (er5 + 2e-05f < 0.0f) {
+        if (er5 + 6e-06f < 0.0f) {
             continue;
         }
         const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
@@ -374,7 +374,7 @@ static int closed_form(const float pose[16], const float *current,
             const float ec3 = 210566.0f - t10_0;
             const float er3 = (405266.0f - t10_0)*(t10_0 - 15866.0f);
 
-            if (er3 + 758161.8f < 0.0f) {
+            if (er3 + 227448.54f < 0.0f) {
                 continue;
             }
             const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;

@@ -173,7 +173,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t1_0 - 14400.0f;
 
     const int free1 = t1_0 <= 1e-14f;
-    if (free1 ? 14400.0f > 1e-14f : er1 + 2e-05f*t1_0 < 0.0f) {
+    if (free1 ? 14400.0f > 1e-14f : er1 + 6e-06f*t1_0 < 0.0f) {
         if (status) *status = MAST3_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -207,7 +207,7 @@ static int closed_form(const float pose[16], const float *current,
         const float t3_0 = q1x*q1x + q1y*q1y;
 
         const int free2 = t3_0 <= 1e-14f;
-        if (free2 ? 0.0f > 1e-14f : 1.00002f*t3_0 < 0.0f) {
+        if (free2 ? 0.0f > 1e-14f : 1.000006f*t3_0 < 0.0f) {
             continue;
         }
         const float root2 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;

@@ -230,7 +230,7 @@ static int closed_form(const float pose[16], const float *current,
     const float er1 = t3_0 - 0.0144f;
 
     const int free1 = t3_0 <= 1e-20f;
-    if (free1 ? 0.0144f > 1e-20f : er1 + 2e-05f*t3_0 < 0.0f) {
+    if (free1 ? 0.0144f > 1e-20f : er1 + 6e-06f*t3_0 < 0.0f) {
         if (status) *status = PACKER6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -281,7 +281,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec3 = t5_0 - 1.5365f;
         const float er3 = (3.07788542f - t5_0)*(t5_0 + 0.00488541579f);
 
-        if (er3 + 4.751738e-05f < 0.0f) {
+        if (er3 + 1.4255214e-05f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -454,7 +454,7 @@ static int closed_form(const float pose[16], const float *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er5 = g16_23*g16_23 + g36_13*g36_13;
 
-            if (er5 + 2e-05f < 0.0f) {
+            if (er5 + 6e-06f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;

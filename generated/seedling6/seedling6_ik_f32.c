@@ -234,7 +234,7 @@ static int closed_form(const float pose[16], const float *current,
     const float t3_0 = wx*wx + wy*wy;
 
     const int free1 = t3_0 <= 1e-21f;
-    if (free1 ? 0.0f > 1e-21f : 1.00002f*t3_0 < 0.0f) {
+    if (free1 ? 0.0f > 1e-21f : 1.000006f*t3_0 < 0.0f) {
         if (status) *status = SEEDLING6_IK_F32_UNREACHABLE;
         return 0;
     }
@@ -294,7 +294,7 @@ static int closed_form(const float pose[16], const float *current,
         const float ec3 = t5_0 - 0.239325f;
         const float er3 = (0.47851204f - t5_0)*(t5_0 - 0.000137960217f);
 
-        if (er3 + 1.1442088e-06f < 0.0f) {
+        if (er3 + 3.4326264e-07f < 0.0f) {
             continue;
         }
         const float root3 = er3 > 0.0f ? sqrtf(er3) : 0.0f;
@@ -424,7 +424,7 @@ static int closed_form(const float pose[16], const float *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er5 = g16_33*g16_33 + g36_13*g36_13;
 
-            if (er5 + 2e-05f < 0.0f) {
+            if (er5 + 6e-06f < 0.0f) {
                 continue;
             }
             const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
