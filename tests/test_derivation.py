@@ -117,6 +117,9 @@ def test_the_wrist_pairs_hold_by_construction_on_rotations_and_keep_their_direct
         for real in ("double", "float"):
             assert form.root_bound(real) == math.sqrt(form.limit(real))
     assert six.forms[1].root_symbol is None
+    # joint 5's radicand is a sum of squares (never negative: no reach guard); the elbow's is not
+    cossins = {b.key: b for b in plan.blocks if b.kind == "cossin"}
+    assert cossins["5"].nonnegative and not cossins["3"].nonnegative
 
 
 def test_a_reading_fixed_by_an_outer_loop_is_converted_once_there():

@@ -455,10 +455,8 @@ static int closed_form(const double pose[16], const double *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double er5 = g16_33*g16_33 + g36_13*g36_13;
 
-            if (er5 + 2.0000000000000001e-09 < 0.0) {
-                continue;
-            }
-            const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const double root5 = sqrt(er5);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             double th5 = 0.0;
             const double cn5 = g36_33;
@@ -873,10 +871,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double er5 = g16_33*g16_33 + g36_13*g36_13;
 
-            if (er5 + 2.0000000000000001e-09 < 0.0) {
-                continue;
-            }
-            const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const double root5 = sqrt(er5);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             double th5 = 0.0;
             const double cn5 = g36_33;

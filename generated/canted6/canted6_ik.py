@@ -754,9 +754,8 @@ def _closed_form(pose, current, check_finite=True):
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         er5 = g26_33*g26_33 + g36_13*g36_13
 
-        if er5 + 2e-09 < 0.0:
-            continue
-        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root5 = sqrt(er5)
         # the second root follows from this one by symmetry (emitted with the solution below)
         th5 = atan2(root5, g36_33)
 
@@ -1119,9 +1118,8 @@ def inverse_joints(pose, current=None):
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         er5 = g26_33*g26_33 + g36_13*g36_13
 
-        if er5 + 2e-09 < 0.0:
-            continue
-        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root5 = sqrt(er5)
         # the second root follows from this one by symmetry (emitted with the solution below)
         th5 = atan2(root5, g36_33)
 

@@ -475,10 +475,8 @@ static int closed_form(const double pose[16], double given, const double *curren
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double er6 = g37_33*g37_33 + g47_13*g47_13;
 
-            if (er6 + 2.0000000000000001e-09 < 0.0) {
-                continue;
-            }
-            const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const double root6 = sqrt(er6);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             double th6 = 0.0;
             const double cn6 = g47_33;
@@ -909,10 +907,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const double er6 = g37_33*g37_33 + g47_13*g47_13;
 
-            if (er6 + 2.0000000000000001e-09 < 0.0) {
-                continue;
-            }
-            const double root6 = er6 > 0.0 ? sqrt(er6) : 0.0;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const double root6 = sqrt(er6);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             double th6 = 0.0;
             const double cn6 = g47_33;

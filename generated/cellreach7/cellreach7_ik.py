@@ -702,9 +702,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # a*cos(th6) + b*sin(th6) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             er6 = g37_33*g37_33 + g47_13*g47_13
 
-            if er6 + 2e-09 < 0.0:
-                continue
-            root6 = sqrt(er6) if er6 > 0.0 else 0.0
+            # the radicand is a sum of squares: never negative, no reach guard
+            root6 = sqrt(er6)
             # the second root follows from this one by symmetry (emitted with the solution below)
             th6 = atan2(root6, g47_33)
 
@@ -1042,9 +1041,8 @@ def inverse_joints(pose, given, current=None):
             # a*cos(th6) + b*sin(th6) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
             er6 = g37_33*g37_33 + g47_13*g47_13
 
-            if er6 + 2e-09 < 0.0:
-                continue
-            root6 = sqrt(er6) if er6 > 0.0 else 0.0
+            # the radicand is a sum of squares: never negative, no reach guard
+            root6 = sqrt(er6)
             # the second root follows from this one by symmetry (emitted with the solution below)
             th6 = atan2(root6, g47_33)
 

@@ -454,10 +454,8 @@ static int closed_form(const float pose[16], float given, const float *current,
              * a*cos(th6) + b*sin(th6) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er6 = g37_33*g37_33 + g47_13*g47_13;
 
-            if (er6 + 6e-06f < 0.0f) {
-                continue;
-            }
-            const float root6 = er6 > 0.0f ? sqrtf(er6) : 0.0f;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const float root6 = sqrtf(er6);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             float th6 = 0.0f;
             const float cn6 = g47_33;

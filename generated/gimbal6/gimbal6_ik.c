@@ -616,10 +616,8 @@ static int closed_form(const double pose[16], const double *current,
         const double ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33;
         const double er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33);
 
-        if (er2 + 2.0000000000000001e-09 < 0.0) {
-            continue;
-        }
-        const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const double root2 = sqrt(er2);
         /* the second root follows from this one by symmetry (emitted with the solution below) */
         double th2 = 0.0;
         const double cn2 = ec2;
@@ -970,10 +968,8 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         const double ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33;
         const double er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33);
 
-        if (er2 + 2.0000000000000001e-09 < 0.0) {
-            continue;
-        }
-        const double root2 = er2 > 0.0 ? sqrt(er2) : 0.0;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const double root2 = sqrt(er2);
         /* the second root follows from this one by symmetry (emitted with the solution below) */
         double th2 = 0.0;
         const double cn2 = ec2;

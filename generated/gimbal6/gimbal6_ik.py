@@ -630,9 +630,8 @@ def _closed_form(pose, current, check_finite=True):
         ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33
         er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33)
 
-        if er2 + 2e-09 < 0.0:
-            continue
-        root2 = sqrt(er2) if er2 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root2 = sqrt(er2)
         # the second root follows from this one by symmetry (emitted with the solution below)
         th2 = atan2(root2, ec2)
 
@@ -866,9 +865,8 @@ def inverse_joints(pose, current=None):
         ec2 = 0.5*g03_32 + 0.8660254037844386*g03_33
         er2 = g03_31*g03_31 + (-0.8660254037844386*g03_32 + 0.5*g03_33)*(-0.8660254037844386*g03_32 + 0.5*g03_33)
 
-        if er2 + 2e-09 < 0.0:
-            continue
-        root2 = sqrt(er2) if er2 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root2 = sqrt(er2)
         # the second root follows from this one by symmetry (emitted with the solution below)
         th2 = atan2(root2, ec2)
 

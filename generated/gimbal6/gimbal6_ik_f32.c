@@ -595,10 +595,8 @@ static int closed_form(const float pose[16], const float *current,
         const float ec2 = 0.5f*g03_32 + 0.866025404f*g03_33;
         const float er2 = g03_31*g03_31 + (-0.866025404f*g03_32 + 0.5f*g03_33)*(-0.866025404f*g03_32 + 0.5f*g03_33);
 
-        if (er2 + 6e-06f < 0.0f) {
-            continue;
-        }
-        const float root2 = er2 > 0.0f ? sqrtf(er2) : 0.0f;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const float root2 = sqrtf(er2);
         /* the second root follows from this one by symmetry (emitted with the solution below) */
         float th2 = 0.0f;
         const float cn2 = ec2;

@@ -316,10 +316,8 @@ static int closed_form(const float pose[16], const float *current,
              * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
             const float er5 = g16_33*g16_33 + g26_13*g26_13;
 
-            if (er5 + 6e-06f < 0.0f) {
-                continue;
-            }
-            const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+            /* the radicand is a sum of squares: never negative, no reach guard */
+            const float root5 = sqrtf(er5);
             /* the second root follows from this one by symmetry (emitted with the solution below) */
             float th5 = 0.0f;
             const float cn5 = g26_33;

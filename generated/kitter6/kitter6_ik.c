@@ -288,10 +288,8 @@ static int closed_form(const double pose[16], const double *current,
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double er5 = g16_13*g16_13 + r33*r33;
 
-        if (er5 + 2.0000000000000001e-09 < 0.0) {
-            continue;
-        }
-        const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const double root5 = sqrt(er5);
         const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
         /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
         const double pc5 = -g16_23;
@@ -579,10 +577,8 @@ int kitter6_ik_inverse_joints(const double pose[16], const double *current,
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double er5 = g16_13*g16_13 + r33*r33;
 
-        if (er5 + 2.0000000000000001e-09 < 0.0) {
-            continue;
-        }
-        const double root5 = er5 > 0.0 ? sqrt(er5) : 0.0;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const double root5 = sqrt(er5);
         const double dl5 = kitter6_ik_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
         /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
         const double pc5 = -g16_23;

@@ -418,9 +418,8 @@ def _closed_form(pose, current, check_finite=True):
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         er5 = g16_13*g16_13 + r33*r33
 
-        if er5 + 2e-09 < 0.0:
-            continue
-        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root5 = sqrt(er5)
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         # cosine and sine of the roots: A + B * sg, the same A and B for both roots
         pc5 = -g16_23
@@ -633,9 +632,8 @@ def inverse_joints(pose, current=None):
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         er5 = g16_13*g16_13 + r33*r33
 
-        if er5 + 2e-09 < 0.0:
-            continue
-        root5 = sqrt(er5) if er5 > 0.0 else 0.0
+        # the radicand is a sum of squares: never negative, no reach guard
+        root5 = sqrt(er5)
         dl5 = atan2(root5, -g16_23)  # th = gamma + sg * dl
         # cosine and sine of the roots: A + B * sg, the same A and B for both roots
         pc5 = -g16_23

@@ -267,10 +267,8 @@ static int closed_form(const float pose[16], const float *current,
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float er5 = g16_13*g16_13 + r33*r33;
 
-        if (er5 + 6e-06f < 0.0f) {
-            continue;
-        }
-        const float root5 = er5 > 0.0f ? sqrtf(er5) : 0.0f;
+        /* the radicand is a sum of squares: never negative, no reach guard */
+        const float root5 = sqrtf(er5);
         const float dl5 = kitter6_ik_f32_atan2(root5, -g16_23);   /* th = gamma + sg * dl */
         /* cosine and sine of the roots: A + B * sg, the same A and B for both roots */
         const float pc5 = -g16_23;

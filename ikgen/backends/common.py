@@ -206,6 +206,8 @@ class Block:
     radicand: sp.Expr | None = None
     guard: sp.Expr | None = None
     guard_scale: sp.Expr | None = None   # the guard is radicand + 2 * tolerance * guard_scale
+    nonnegative: bool = False    # cossin: the radicand as computed can never be negative (a sum of
+                                 # squares): no reach guard, its root without a test
     cn: sp.Expr | None = None
     sn: sp.Expr | None = None
     cos_expr: sp.Expr | None = None
@@ -626,6 +628,7 @@ def lower_now(derivation: Derivation) -> Plan:
     mark_scale_free(plan)
     mark_consistent(plan)
     propagate_aliases(plan)
+    mark_nonnegative_radicands(plan)
     mark_root_tests(plan)
     hoist(plan)
     mark_late_angles(plan)
@@ -829,6 +832,21 @@ def drop_positive_factor(form: FormPlan, positive: list) -> None:
                 break
             cos_num, sin_num, factor = c, s, factor * root
     form.cos_num, form.sin_num = sp.expand(cos_num), sp.expand(sin_num)
+
+
+def mark_nonnegative_radicands(plan: Plan) -> None:
+    """A cossin block whose radicand, as the code computes it, is a sum of products of squares and
+    positive numbers (sympy's sign rules on its printed expression: the wrist's g^2 + h^2) can
+    never be negative in floating point either (a square rounds to a number >= 0, and sums and
+    products of such stay >= 0): its reach guard can never fail and its root needs no test
+    (a NaN input still gives a NaN root, which the finite-solution guard drops)."""
+    for block in plan.blocks:
+        if block.kind != "cossin" or block.threshold is not None:
+            continue
+        radicand = sp.sympify(block.radicand)
+        named = {a.target: a.expr for a in block.temps}
+        expr = named.get(radicand, radicand)
+        block.nonnegative = expr.free_symbols.isdisjoint(named) and sp.sympify(expr).is_nonnegative is True
 
 
 def mark_root_tests(plan: Plan) -> None:
