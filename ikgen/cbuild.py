@@ -16,8 +16,10 @@ import math
 import os
 import sys
 import tempfile
+import threading
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 
@@ -31,6 +33,14 @@ from .model import Arm
 
 
 MANY_PER_THREAD = 20_000   # inverse_many: poses a thread must have before another one pays off
+
+
+class _Buffers(NamedTuple):
+    """One thread's buffers for CSolver's per-pose calls."""
+    pose: object          # <real>[16]
+    solutions: object     # <prefix>_solution[max_solutions]
+    status: object        # <prefix>_status *
+    rows: np.ndarray | None   # readings of the readings-only entry
 
 
 class CSolver:
@@ -57,12 +67,23 @@ class CSolver:
         self._inverse = getattr(self.lib, f"{self.prefix}_inverse")
         self._many = getattr(self.lib, f"{self.prefix}_inverse_many")
         self._readings = getattr(self.lib, f"{self.prefix}_inverse_joints", None)
-        self._rows = np.zeros((self.max_solutions, self.dof), dtype=self.dtype) if self._readings else None
         self._rows_type = self.ffi.typeof(f"{self.scalar.name}(*)[{self.dof}]")
-        self._solutions = self.ffi.new(f"{self.prefix}_solution[{self.max_solutions}]")
-        self._status = self.ffi.new(f"{self.prefix}_status *")
+        self._local = threading.local()
         self._reader = SolutionReader(self.ffi, f"{self.prefix}_solution", scalar.name, self.dof, self.labels,
                                       self.conditions)
+
+    def _buffers(self) -> "_Buffers":
+        """This thread's buffers for the per-pose calls, made on its first call: cffi releases the
+        GIL during a call, so calls from several threads at once must not share them."""
+        try:
+            return self._local.buffers
+        except AttributeError:
+            self._local.buffers = _Buffers(
+                self.ffi.new(f"{self.scalar.name}[16]"),
+                self.ffi.new(f"{self.prefix}_solution[{self.max_solutions}]"),
+                self.ffi.new(f"{self.prefix}_status *"),
+                np.zeros((self.max_solutions, self.dof), dtype=self.dtype) if self._readings else None)
+            return self._local.buffers
 
     def _pointer(self, array: np.ndarray):
         return self.ffi.cast(f"{self.scalar.name} *", self.ffi.from_buffer(array))
@@ -82,12 +103,14 @@ class CSolver:
             return np.concatenate([flat, np.array([0, 0, 0, 1], dtype=self.dtype)])
         return np.array(pose_entries(pose), dtype=self.dtype)
 
-    def _pose_array(self, pose):
-        """The pose as a C array: nested lists go straight in (no numpy on that path)."""
+    def _pose_array(self, pose, buffers: "_Buffers"):
+        """The pose as a C array: nested lists are copied into this thread's pose buffer (no numpy
+        on that path)."""
         if isinstance(pose, np.ndarray):
             flat = self._flat_pose(pose)     # returned too: the caller keeps it alive during the call
             return self._pointer(flat), flat
-        return self.ffi.new(f"{self.scalar.name}[16]", pose_entries(pose)), None
+        buffers.pose[0:16] = pose_entries(pose)
+        return buffers.pose, None
 
     def _joints_pointer(self, values, what="current"):
         if values is None:
@@ -97,9 +120,9 @@ class CSolver:
 
     STATUS_NAMES = ("ok", "unreachable", "invalid_input", "not_realisable")
 
-    def _answer(self, count, with_status):
-        solutions = self._reader.read(self._solutions, count)
-        return (solutions, self.STATUS_NAMES[self.status()]) if with_status else solutions
+    def _answer(self, count, with_status, buffers: "_Buffers"):
+        solutions = self._reader.read(buffers.solutions, count)
+        return (solutions, self.STATUS_NAMES[buffers.status[0]]) if with_status else solutions
 
     def inverse(self, pose, *args, **kwargs) -> list[tuple]:
         """The Python back-end's inverse(pose, [given,] current=None, limits="drop", with_status=False):
@@ -108,10 +131,11 @@ class CSolver:
         return self._inverse_pose(pose, given, *args, **kwargs)
 
     def _inverse_pose(self, pose, given, current=None, limits="drop", with_status=False) -> list[tuple]:
-        flat, _keep_pose = self._pose_array(pose)
+        b = self._buffers()
+        flat, _keep_pose = self._pose_array(pose, b)
         hint, _keep = self._joints_pointer(current)
-        count = self._inverse(flat, *given, hint, limits_mode(limits), self._solutions, self._status)
-        return self._answer(count, with_status)
+        count = self._inverse(flat, *given, hint, limits_mode(limits), b.solutions, b.status)
+        return self._answer(count, with_status, b)
 
     def inverse_joints(self, pose, *args, **kwargs) -> list[tuple]:
         """The Python back-end's inverse_joints(pose, [given,] current=None): the readings of every
@@ -121,10 +145,11 @@ class CSolver:
         current = kwargs.pop("current", args[0] if args else None)
         if self._readings is None:
             return [s[0] for s in self._inverse_pose(pose, given, current, "ignore")]
-        flat, _keep_pose = self._pose_array(pose)
+        b = self._buffers()
+        flat, _keep_pose = self._pose_array(pose, b)
         hint, _keep = self._joints_pointer(current)
-        count = self._readings(flat, *given, hint, self.ffi.cast(self._rows_type, self.ffi.from_buffer(self._rows)))
-        return [tuple(row) for row in self._rows[:count].tolist()]
+        count = self._readings(flat, *given, hint, self.ffi.cast(self._rows_type, self.ffi.from_buffer(b.rows)))
+        return [tuple(row) for row in b.rows[:count].tolist()]
 
     def choose_given(self, pose, current=None, criterion="nearest", weights=None, config=None, step=None,
                      limits="drop"):
@@ -138,7 +163,7 @@ class CSolver:
         value = self.ffi.new(f"{self.scalar.name} *")
         found = getattr(self.lib, f"{self.prefix}_choose_given")(
             self._pointer(flat), here, w, self.wanted(config), CRITERIA.index(criterion), step, limits_mode(limits),
-            best, value, self._status)
+            best, value, self._buffers().status)
         return (float(value[0]), self._reader.read(best, 1)[0]) if found else None
 
     def _vector(self, values, what="point") -> np.ndarray:
@@ -147,23 +172,26 @@ class CSolver:
     def inverse_point(self, point, current=None, limits="drop", with_status=False):
         p = self._vector(point)
         hint, _keep = self._joints_pointer(current)
+        b = self._buffers()
         count = getattr(self.lib, f"{self.prefix}_inverse_point")(self._pointer(p), hint, limits_mode(limits),
-                                                                  self._solutions, self._status)
-        return self._answer(count, with_status)
+                                                                  b.solutions, b.status)
+        return self._answer(count, with_status, b)
 
     def inverse_point_angle(self, point, angle, current=None, limits="drop", with_status=False):
         p = self._vector(point)
         hint, _keep = self._joints_pointer(current)
+        b = self._buffers()
         count = getattr(self.lib, f"{self.prefix}_inverse_point_angle")(
-            self._pointer(p), real(angle, "angle"), hint, limits_mode(limits), self._solutions, self._status)
-        return self._answer(count, with_status)
+            self._pointer(p), real(angle, "angle"), hint, limits_mode(limits), b.solutions, b.status)
+        return self._answer(count, with_status, b)
 
     def inverse_point_direction(self, point, direction, current=None, limits="drop", with_status=False):
         p, u = self._vector(point), self._vector(direction, "direction")
         hint, _keep = self._joints_pointer(current)
+        b = self._buffers()
         count = getattr(self.lib, f"{self.prefix}_inverse_point_direction")(
-            self._pointer(p), self._pointer(u), hint, limits_mode(limits), self._solutions, self._status)
-        return self._answer(count, with_status)
+            self._pointer(p), self._pointer(u), hint, limits_mode(limits), b.solutions, b.status)
+        return self._answer(count, with_status, b)
 
     def wanted(self, config) -> object:
         """The C filter for a configuration: NULL for any, else +1/-1/0 per label. ``config`` as in
@@ -195,7 +223,7 @@ class CSolver:
         w, _keep2 = self._joints_pointer(weights, "weights")
         best = self.ffi.new(f"{self.prefix}_solution *")
         found = getattr(self.lib, f"{self.prefix}_nearest")(self._pointer(flat), *given, here, w, self.wanted(config),
-                                                            limits_mode(limits), best, self._status)
+                                                            limits_mode(limits), best, self._buffers().status)
         return self._reader.read(best, 1)[0] if found else None
 
     def sort_nearest(self, pose, *args, **kwargs) -> list[tuple]:
@@ -210,13 +238,15 @@ class CSolver:
             raise ValueError(f"current must be a sequence of {self.dof} real numbers, not None")
         here, _keep1 = self._joints_pointer(current)
         w, _keep2 = self._joints_pointer(weights, "weights")
-        count = self._inverse(self._pointer(flat), *given, here, limits_mode(limits), self._solutions, self._status)
-        getattr(self.lib, f"{self.prefix}_sort_nearest")(self._solutions, count, here, w)
-        return self._reader.read(self._solutions, count)
+        b = self._buffers()
+        count = self._inverse(self._pointer(flat), *given, here, limits_mode(limits), b.solutions, b.status)
+        getattr(self.lib, f"{self.prefix}_sort_nearest")(b.solutions, count, here, w)
+        return self._reader.read(b.solutions, count)
 
     def status(self) -> int:
-        """Status of the last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not realisable."""
-        return int(self._status[0])
+        """Status of this thread's last inverse() call: 0 ok, 1 unreachable, 2 invalid input, 3 not
+        realisable."""
+        return int(self._buffers().status[0])
 
     def inverse_many(self, poses, given=None, limits="drop", threads=None,
                      out=None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:

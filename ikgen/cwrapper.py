@@ -217,13 +217,14 @@ class SolutionReader:
         self.configs = {tuple(sign for sign, _ in p): tuple(word for _, word in p) for p in patterns}
 
     def read(self, array, count):
-        configs, make = self.configs, self.make
+        configs, labels, joints, conditioning = self.configs, self.labels, self.joints, self.conditioning
+        singular, within = self.singular, self.within
         out = []
         for values in self.record.iter_unpack(self.ffi.buffer(array, count * self.record.size)):
-            config = configs[tuple(1 if v > 0 else -1 for v in values[self.labels])]
-            out.append(make((values[self.joints], config, bool(values[self.singular]),
-                             values[self.conditioning], bool(values[self.within]))))
-        return out
+            signs = values[labels]       # the solver writes each label as +1 or -1: the table's keys
+            config = configs[signs] if signs in configs else configs[tuple(1 if v > 0 else -1 for v in signs)]
+            out.append((values[joints], config, values[singular] != 0, values[conditioning], values[within] != 0))
+        return out if self.make is tuple else [self.make(solution) for solution in out]
 
 
 class CompiledSolver:

@@ -497,6 +497,37 @@ def test_inverse_many_threads_give_the_same_arrays(demos):
             solver.inverse_many(poses[:3], threads=bad)
 
 
+def test_per_pose_calls_from_several_threads_do_not_share_buffers(demos):
+    """The wrapper's per-pose calls (inverse, inverse_joints, status) from several threads at once
+    on one solver give what one thread gets: cffi releases the GIL during the C call, and each
+    thread has its own pose, solution and status buffers (CSolver._buffers). Two threads solve
+    different poses, each many times over, and every answer is compared with the one-thread one."""
+    import threading
+    demo = demos(DEMOS[0])
+    solver = demo.solver()
+    poses = [p.tolist() for p in demo.chain.poses(demo.regular_readings(40, seed=11))]
+    far = [[1.0, 0.0, 0.0, 10.0 * demo.arm.reach_scale()], [0.0, 1.0, 0.0, 0.0], [0.0, 0.0, 1.0, 0.0]]
+    expected = {i: (solver.inverse(p, limits="ignore"), solver.inverse_joints(p)) for i, p in enumerate(poses)}
+    assert solver.inverse(far, limits="ignore") == [] and solver.status() == 1
+    wrong: list = []
+
+    def work(part):
+        for _ in range(60):
+            for i in part:
+                full, readings = expected[i]
+                if solver.inverse(poses[i], limits="ignore") != full or solver.status() != 0 \
+                        or solver.inverse_joints(poses[i]) != readings:
+                    wrong.append(i)
+                if solver.inverse(far, limits="ignore") or solver.status() != 1:
+                    wrong.append(("far", i))
+    threads = [threading.Thread(target=work, args=(range(k, len(poses), 2),)) for k in (0, 1)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert sum(len(full) for full, _ in expected.values()) > 40 and not wrong, wrong[:10]
+
+
 def test_inverse_many_refills_the_arrays_it_is_given(demos):
     """inverse_many(..., out=arrays) writes into those arrays (the same objects come back) exactly
     what a call with new arrays returns, every slot: stale values from a pose with more solutions
