@@ -752,9 +752,10 @@ static int closed_form(const double pose[16], const double *current,
         {
 
             dt6 = free4 ? 0.0 : -root5*root5;
-            if (dt6 < -1e-08) {
-                c6 = -g36_31*root5;
-                s6 = g36_32*root5;
+            if (!free4 && root5 > 0.0001) {
+                c6 = -g36_31;
+                s6 = g36_32;
+                /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                 free6 = 0;
                 wk6 = 1e-08;
             }
@@ -775,13 +776,14 @@ static int closed_form(const double pose[16], const double *current,
             dt6 = 1.0;
             c6 = g56_11;
             s6 = -g56_12;
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                continue;
+            }
             free6 = 0;
         }
+        (void)dt6;   /* a form tested through its root does not read it */
         (void)free6;
         (void)wk6;
-        if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-            continue;
-        }
 
         /* joint readings, configuration labels, singular flag */
 
@@ -1209,9 +1211,10 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         {
 
             dt6 = free4 ? 0.0 : -root5*root5;
-            if (dt6 < -1e-08) {
-                c6 = -g36_31*root5;
-                s6 = g36_32*root5;
+            if (!free4 && root5 > 0.0001) {
+                c6 = -g36_31;
+                s6 = g36_32;
+                /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                 free6 = 0;
                 wk6 = 1e-08;
             }
@@ -1232,13 +1235,14 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             dt6 = 1.0;
             c6 = g56_11;
             s6 = -g56_12;
+            if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
+                continue;
+            }
             free6 = 0;
         }
+        (void)dt6;   /* a form tested through its root does not read it */
         (void)free6;
         (void)wk6;
-        if (fabs(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.0001 * (dt6 * dt6)) {
-            continue;
-        }
 
         /* joint readings, configuration labels, singular flag */
         /* read only by the labels, which this entry does not compute */

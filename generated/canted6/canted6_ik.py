@@ -778,10 +778,10 @@ def _closed_form(pose, current, check_finite=True):
         # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt6 = 0.0 if free4 else -root5*root5
-        if dt6 < -1e-08:
-            c6 = -g36_31*root5
-            s6 = g36_32*root5
+        if not free4 and root5 > 0.0001:
+            c6 = -g36_31
+            s6 = g36_32
+            # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
         else:
             un4 = 1.0/sqrt(c4*c4 + s4*s4)
             uc4 = c4*un4
@@ -798,10 +798,10 @@ def _closed_form(pose, current, check_finite=True):
             dt6 = 1.0
             c6 = g56_11
             s6 = -g56_12
+            hq6 = c6 * c6 + s6 * s6
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
+                continue
 
-        hq6 = c6 * c6 + s6 * s6
-        if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
-            continue
         th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.
@@ -1142,10 +1142,10 @@ def inverse_joints(pose, current=None):
         # th6 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
         # ~0); no later step reads them, atan2 needs only their direction
 
-        dt6 = 0.0 if free4 else -root5*root5
-        if dt6 < -1e-08:
-            c6 = -g36_31*root5
-            s6 = g36_32*root5
+        if not free4 and root5 > 0.0001:
+            c6 = -g36_31
+            s6 = g36_32
+            # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form)
         else:
             un4 = 1.0/sqrt(c4*c4 + s4*s4)
             uc4 = c4*un4
@@ -1162,10 +1162,10 @@ def inverse_joints(pose, current=None):
             dt6 = 1.0
             c6 = g56_11
             s6 = -g56_12
+            hq6 = c6 * c6 + s6 * s6
+            if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
+                continue
 
-        hq6 = c6 * c6 + s6 * s6
-        if not (0.9999 * (dt6 * dt6) <= hq6 <= 1.0001 * (dt6 * dt6)):   # abs(hq / det^2 - 1) > 1e-4
-            continue
         th6 = atan2(s6, c6)   # as the C solver computes it
 
         # Joint readings, configuration labels, singular flag.

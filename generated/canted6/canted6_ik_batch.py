@@ -487,11 +487,12 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
 
         # th6 from a linear pair: the first form whose determinant is not ~0 (later forms only where needed)
         chosen6 = numpy.zeros((), dtype=bool)
+        tested6 = numpy.zeros((), dtype=bool)
 
         dt6 = numpy.where(free4, 0.0, -root5*root5)
-        use = ~chosen6 & (dt6 < -1e-08)
-        c6 = -g36_31*root5
-        s6 = g36_32*root5
+        use = ~chosen6 & (~free4 & (root5 > 0.0001))
+        c6 = -g36_31
+        s6 = g36_32
         dk6 = dt6
         chosen6 = chosen6 | use
         if not chosen6.all():
@@ -513,7 +514,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             s6 = numpy.where(use, -g56_12, s6)
             dk6 = numpy.where(use, dt6, dk6)
             chosen6 = chosen6 | use
-        valid = valid & ~(numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6))
+            tested6 = tested6 | use   # this form's (cos, sin) are tested (the others' hold by construction)
+        valid = valid & ~(tested6 & (numpy.abs(c6 * c6 + s6 * s6 - dk6 * dk6) > 1e-4 * (dk6 * dk6)))
         th6 = numpy.arctan2(s6, c6)   # as the per-pose solvers
 
         # joint readings, configuration labels, singular flag, conditioning

@@ -731,9 +731,10 @@ static int closed_form(const float pose[16], const float *current,
         {
 
             dt6 = free4 ? 0.0f : -root5*root5;
-            if (dt6 < -0.001f) {
-                c6 = -g36_31*root5;
-                s6 = g36_32*root5;
+            if (!free4 && root5 > 0.0316227766f) {
+                c6 = -g36_31;
+                s6 = g36_32;
+                /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                 free6 = 0;
                 wk6 = 1e-08f;
             }
@@ -754,13 +755,14 @@ static int closed_form(const float pose[16], const float *current,
             dt6 = 1.0f;
             c6 = g56_11;
             s6 = -g56_12;
+            if (fabsf(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.005f * (dt6 * dt6)) {
+                continue;
+            }
             free6 = 0;
         }
+        (void)dt6;   /* a form tested through its root does not read it */
         (void)free6;
         (void)wk6;
-        if (fabsf(c6 * c6 + s6 * s6 - dt6 * dt6) > 0.005f * (dt6 * dt6)) {
-            continue;
-        }
 
         /* joint readings, configuration labels, singular flag */
 
