@@ -138,6 +138,25 @@ def test_a_reading_fixed_by_an_outer_loop_is_converted_once_there():
     assert lean.index("v1 = ") < lean.index("for sg3 in ")
 
 
+def test_intermediates_only_a_fallback_reads_are_computed_there():
+    """benchtop6's elbow pair (joint 2) has later forms for where its first form's determinant is
+    ~0; the entries of A1^-1 T that only they read move into them (sink_into_fallbacks): no compute
+    block of the plan assigns them, each later form computes what it reads, and the usual path of
+    the generated Python does not."""
+    arm = demo_arm("benchtop6")
+    plan = common.lower(shared.built(arm).derivation)
+    computed = {str(a.target) for b in plan.blocks if b.kind == "compute" for a in b.temps}
+    two = next(b for b in plan.blocks if b.kind == "pair" and b.key == "2")
+    moved = {"g16_14", "g16_24", "g16_34"}
+    assert not computed & moved
+    for form in two.forms[1:]:
+        assert moved <= {str(a.target) for a in form.temps}
+    python = shared.python_source(arm)
+    lean = python[python.index("def inverse_joints("):]
+    usual = lean[:lean.index("# th2 from a linear pair")] + lean[lean.index("# cosine and sine of th2 + th3"):]
+    assert "g16_14 =" not in usual and "g16_14 =" in lean
+
+
 def test_the_rotation_identity_check_tells_identities_from_near_misses():
     """_holds_on_rotations against identities of rotation matrices (common practice: the columns
     and rows of a rotation are unit vectors; rotating about z keeps the z component and the length

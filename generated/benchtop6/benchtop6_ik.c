@@ -246,9 +246,8 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 70.0*r23;
     const double wz = pcz - 70.0*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 220.0 - wz;
-    const double g16_24 = 220.0 - pcz;
     const double ks2_3 = -260.0*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -301,9 +300,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 25.0;
         const double g16_33 = c1*r23 - r13*s1;
-        const double g16_34 = c1*pcy - pcx*s1;
         const double kc2_0 = -20.0*v1x - 240.0*v1y;
         const double kc2_1 = 240.0*v1x - 20.0*v1y;
         const double kc2_2 = -260.0*v1x;
@@ -349,6 +346,9 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 25.0;
+                const double g16_24 = 220.0 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_1_0 = g16_14*v1x;
                 const double t7_1_1 = g16_14*v1y;
                 const double t7_1_2 = g16_24*v1x;
@@ -380,6 +380,9 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 25.0;
+                const double g16_24 = 220.0 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_2_0 = g16_13*v1x;
                 const double t7_2_1 = g16_14*v1x;
                 const double t7_2_2 = -r33*v1y;
@@ -662,9 +665,8 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy - 70.0*r23;
     const double wz = pcz - 70.0*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 220.0 - wz;
-    const double g16_24 = 220.0 - pcz;
     const double ks2_3 = -260.0*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -717,9 +719,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 25.0;
         const double g16_33 = c1*r23 - r13*s1;
-        const double g16_34 = c1*pcy - pcx*s1;
         const double kc2_0 = -20.0*v1x - 240.0*v1y;
         const double kc2_1 = 240.0*v1x - 20.0*v1y;
         const double kc2_2 = -260.0*v1x;
@@ -765,6 +765,9 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 25.0;
+                const double g16_24 = 220.0 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_1_0 = g16_14*v1x;
                 const double t7_1_1 = g16_14*v1y;
                 const double t7_1_2 = g16_24*v1x;
@@ -796,6 +799,9 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 25.0;
+                const double g16_24 = 220.0 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_2_0 = g16_13*v1x;
                 const double t7_2_1 = g16_14*v1x;
                 const double t7_2_2 = -r33*v1y;

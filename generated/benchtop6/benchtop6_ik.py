@@ -389,9 +389,8 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy - 70.0*r23
     wz = pcz - 70.0*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
     v1y = 220.0 - wz
-    g16_24 = 220.0 - pcz
     ks2_3 = -260.0*v1y
 
     # th1: z of A1^-1 w = A2 A3 c3
@@ -429,9 +428,7 @@ def _closed_form(pose, current, check_finite=True):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 25.0
         g16_33 = c1*r23 - r13*s1
-        g16_34 = c1*pcy - pcx*s1
         kc2_0 = -20.0*v1x - 240.0*v1y
         kc2_1 = 240.0*v1x - 20.0*v1y
         kc2_2 = -260.0*v1x
@@ -482,6 +479,9 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g16_14 = c1*pcx + pcy*s1 - 25.0
+                g16_24 = 220.0 - pcz
+                g16_34 = c1*pcy - pcx*s1
                 t7_1_0 = g16_14*v1x
                 t7_1_1 = g16_14*v1y
                 t7_1_2 = g16_24*v1x
@@ -526,6 +526,9 @@ def _closed_form(pose, current, check_finite=True):
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
+                    g16_14 = c1*pcx + pcy*s1 - 25.0
+                    g16_24 = 220.0 - pcz
+                    g16_34 = c1*pcy - pcx*s1
                     t7_2_0 = g16_13*v1x
                     t7_2_1 = g16_14*v1x
                     t7_2_2 = -r33*v1y
@@ -711,9 +714,8 @@ def inverse_joints(pose, current=None):
     wy = pcy - 70.0*r23
     wz = pcz - 70.0*r33
 
-    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+    # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
     v1y = 220.0 - wz
-    g16_24 = 220.0 - pcz
     ks2_3 = -260.0*v1y
 
     # th1: z of A1^-1 w = A2 A3 c3
@@ -751,9 +753,7 @@ def inverse_joints(pose, current=None):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 25.0
         g16_33 = c1*r23 - r13*s1
-        g16_34 = c1*pcy - pcx*s1
         kc2_0 = -20.0*v1x - 240.0*v1y
         kc2_1 = 240.0*v1x - 20.0*v1y
         kc2_2 = -260.0*v1x
@@ -804,6 +804,9 @@ def inverse_joints(pose, current=None):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g16_14 = c1*pcx + pcy*s1 - 25.0
+                g16_24 = 220.0 - pcz
+                g16_34 = c1*pcy - pcx*s1
                 t7_1_0 = g16_14*v1x
                 t7_1_1 = g16_14*v1y
                 t7_1_2 = g16_24*v1x
@@ -848,6 +851,9 @@ def inverse_joints(pose, current=None):
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
+                    g16_14 = c1*pcx + pcy*s1 - 25.0
+                    g16_24 = 220.0 - pcz
+                    g16_34 = c1*pcy - pcx*s1
                     t7_2_0 = g16_13*v1x
                     t7_2_1 = g16_14*v1x
                     t7_2_2 = -r33*v1y

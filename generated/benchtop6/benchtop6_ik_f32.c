@@ -225,9 +225,8 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 70.0f*r23;
     const float wz = pcz - 70.0f*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const float v1y = 220.0f - wz;
-    const float g16_24 = 220.0f - pcz;
     const float ks2_3 = -260.0f*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -280,9 +279,7 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_11 = c1*r11 + r21*s1;
         const float g16_12 = c1*r12 + r22*s1;
         const float g16_13 = c1*r13 + r23*s1;
-        const float g16_14 = c1*pcx + pcy*s1 - 25.0f;
         const float g16_33 = c1*r23 - r13*s1;
-        const float g16_34 = c1*pcy - pcx*s1;
         const float kc2_0 = -20.0f*v1x - 240.0f*v1y;
         const float kc2_1 = 240.0f*v1x - 20.0f*v1y;
         const float kc2_2 = -260.0f*v1x;
@@ -328,6 +325,9 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1 - 25.0f;
+                const float g16_24 = 220.0f - pcz;
+                const float g16_34 = c1*pcy - pcx*s1;
                 const float t7_1_0 = g16_14*v1x;
                 const float t7_1_1 = g16_14*v1y;
                 const float t7_1_2 = g16_24*v1x;
@@ -359,6 +359,9 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1 - 25.0f;
+                const float g16_24 = 220.0f - pcz;
+                const float g16_34 = c1*pcy - pcx*s1;
                 const float t7_2_0 = g16_13*v1x;
                 const float t7_2_1 = g16_14*v1x;
                 const float t7_2_2 = -r33*v1y;

@@ -552,15 +552,12 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 50.0;
         const double g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31;
         const double g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32;
         const double g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33;
-        const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
         const double g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31;
         const double g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32;
         const double g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33;
-        const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double t6_0 = c1*wy;
@@ -588,6 +585,9 @@ static int closed_form(const double pose[16], const double *current,
             }
         }
         if (free2) {
+            const double g16_14 = c1*pcx + pcy*s1 - 50.0;
+            const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
+            const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
             const double t7_1_0 = g16_13*v1x;
             const double t7_1_1 = g16_14*v1x;
             const double t7_1_2 = g16_23*v1y;
@@ -1011,15 +1011,12 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 50.0;
         const double g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31;
         const double g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32;
         const double g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33;
-        const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
         const double g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31;
         const double g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32;
         const double g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33;
-        const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double t6_0 = c1*wy;
@@ -1047,6 +1044,9 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
             }
         }
         if (free2) {
+            const double g16_14 = c1*pcx + pcy*s1 - 50.0;
+            const double g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316;
+            const double g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0;
             const double t7_1_0 = g16_13*v1x;
             const double t7_1_1 = g16_14*v1x;
             const double t7_1_2 = g16_23*v1y;

@@ -571,15 +571,12 @@ def _closed_form(pose, current, check_finite=True):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 50.0
         g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31
         g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32
         g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33
-        g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
         g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31
         g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32
         g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33
-        g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         t6_0 = c1*wy
@@ -617,6 +614,9 @@ def _closed_form(pose, current, check_finite=True):
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
+            g16_14 = c1*pcx + pcy*s1 - 50.0
+            g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
+            g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0
             t7_1_0 = g16_13*v1x
             t7_1_1 = g16_14*v1x
             t7_1_2 = g16_23*v1y
@@ -935,15 +935,12 @@ def inverse_joints(pose, current=None):
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 50.0
         g16_21 = -r11*t5_1 + r21*t5_0 + 0.8660254037844386*r31
         g16_22 = -r12*t5_1 + r22*t5_0 + 0.8660254037844386*r32
         g16_23 = -r13*t5_1 + r23*t5_0 + 0.8660254037844386*r33
-        g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
         g16_31 = r11*t5_3 - r21*t5_2 + 0.5*r31
         g16_32 = r12*t5_3 - r22*t5_2 + 0.5*r32
         g16_33 = r13*t5_3 - r23*t5_2 + 0.5*r33
-        g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         t6_0 = c1*wy
@@ -981,6 +978,9 @@ def inverse_joints(pose, current=None):
                 c2 = cos(th2)
                 s2 = sin(th2)
         else:
+            g16_14 = c1*pcx + pcy*s1 - 50.0
+            g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.8660254037844386*pcz - 259.8076211353316
+            g16_34 = 0.8660254037844386*pcx*s1 - pcy*t5_2 + 0.5*pcz - 150.0
             t7_1_0 = g16_13*v1x
             t7_1_1 = g16_14*v1x
             t7_1_2 = g16_23*v1y

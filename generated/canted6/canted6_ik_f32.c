@@ -531,15 +531,12 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_11 = c1*r11 + r21*s1;
         const float g16_12 = c1*r12 + r22*s1;
         const float g16_13 = c1*r13 + r23*s1;
-        const float g16_14 = c1*pcx + pcy*s1 - 50.0f;
         const float g16_21 = -r11*t5_1 + r21*t5_0 + 0.866025404f*r31;
         const float g16_22 = -r12*t5_1 + r22*t5_0 + 0.866025404f*r32;
         const float g16_23 = -r13*t5_1 + r23*t5_0 + 0.866025404f*r33;
-        const float g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.866025404f*pcz - 259.807621f;
         const float g16_31 = r11*t5_3 - r21*t5_2 + 0.5f*r31;
         const float g16_32 = r12*t5_3 - r22*t5_2 + 0.5f*r32;
         const float g16_33 = r13*t5_3 - r23*t5_2 + 0.5f*r33;
-        const float g16_34 = 0.866025404f*pcx*s1 - pcy*t5_2 + 0.5f*pcz - 150.0f;
 
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float t6_0 = c1*wy;
@@ -567,6 +564,9 @@ static int closed_form(const float pose[16], const float *current,
             }
         }
         if (free2) {
+            const float g16_14 = c1*pcx + pcy*s1 - 50.0f;
+            const float g16_24 = -pcx*t5_1 + pcy*t5_0 + 0.866025404f*pcz - 259.807621f;
+            const float g16_34 = 0.866025404f*pcx*s1 - pcy*t5_2 + 0.5f*pcz - 150.0f;
             const float t7_1_0 = g16_13*v1x;
             const float t7_1_1 = g16_14*v1x;
             const float t7_1_2 = g16_23*v1y;

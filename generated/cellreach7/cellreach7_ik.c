@@ -263,9 +263,8 @@ static int closed_form(const double pose[16], double given, const double *curren
     const double c3 = cos(th3);
     const double s3 = sin(th3);
 
-    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double t6_0 = wx*wx + wy*wy;
-    const double g17_24 = 322.0 - pcz;
     const double v1y = 322.0 - wz;
 
     /* th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -333,11 +332,9 @@ static int closed_form(const double pose[16], double given, const double *curren
             const double g17_11 = c1*r11 + r21*s1;
             const double g17_12 = c1*r12 + r22*s1;
             const double g17_13 = c1*r13 + r23*s1;
-            const double g17_14 = c1*pcx + pcy*s1;
             const double g17_31 = c1*r21 - r11*s1;
             const double g17_32 = c1*r22 - r12*s1;
             const double g17_33 = c1*r23 - r13*s1;
-            const double g17_34 = c1*pcy - pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
@@ -356,6 +353,9 @@ static int closed_form(const double pose[16], double given, const double *curren
                 }
             }
             if (free2) {
+                const double g17_14 = c1*pcx + pcy*s1;
+                const double g17_24 = 322.0 - pcz;
+                const double g17_34 = c1*pcy - pcx*s1;
                 const double t9_1_0 = g17_14*v1x;
                 const double t9_1_1 = g17_24*v1y;
                 const double t9_1_2 = 744.0*c4;
@@ -391,6 +391,9 @@ static int closed_form(const double pose[16], double given, const double *curren
                 }
             }
             if (free2) {
+                const double g17_14 = c1*pcx + pcy*s1;
+                const double g17_24 = 322.0 - pcz;
+                const double g17_34 = c1*pcy - pcx*s1;
                 const double t9_2_0 = -g17_11*r32;
                 const double t9_2_1 = -g17_12*r31;
                 const double t9_2_2 = 308760.0*c4;
@@ -695,9 +698,8 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
     const double c3 = cos(th3);
     const double s3 = sin(th3);
 
-    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double t6_0 = wx*wx + wy*wy;
-    const double g17_24 = 322.0 - pcz;
     const double v1y = 322.0 - wz;
 
     /* th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -765,11 +767,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             const double g17_11 = c1*r11 + r21*s1;
             const double g17_12 = c1*r12 + r22*s1;
             const double g17_13 = c1*r13 + r23*s1;
-            const double g17_14 = c1*pcx + pcy*s1;
             const double g17_31 = c1*r21 - r11*s1;
             const double g17_32 = c1*r22 - r12*s1;
             const double g17_33 = c1*r23 - r13*s1;
-            const double g17_34 = c1*pcy - pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
@@ -788,6 +788,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 }
             }
             if (free2) {
+                const double g17_14 = c1*pcx + pcy*s1;
+                const double g17_24 = 322.0 - pcz;
+                const double g17_34 = c1*pcy - pcx*s1;
                 const double t9_1_0 = g17_14*v1x;
                 const double t9_1_1 = g17_24*v1y;
                 const double t9_1_2 = 744.0*c4;
@@ -823,6 +826,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                 }
             }
             if (free2) {
+                const double g17_14 = c1*pcx + pcy*s1;
+                const double g17_24 = 322.0 - pcz;
+                const double g17_34 = c1*pcy - pcx*s1;
                 const double t9_2_0 = -g17_11*r32;
                 const double t9_2_1 = -g17_12*r31;
                 const double t9_2_2 = 308760.0*c4;

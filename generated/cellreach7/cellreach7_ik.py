@@ -483,9 +483,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
     c3 = cos(th3)
     s3 = sin(th3)
 
-    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     t6_0 = wx*wx + wy*wy
-    g17_24 = 322.0 - pcz
     v1y = 322.0 - wz
 
     # th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -540,11 +539,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             g17_11 = c1*r11 + r21*s1
             g17_12 = c1*r12 + r22*s1
             g17_13 = c1*r13 + r23*s1
-            g17_14 = c1*pcx + pcy*s1
             g17_31 = c1*r21 - r11*s1
             g17_32 = c1*r22 - r12*s1
             g17_33 = c1*r23 - r13*s1
-            g17_34 = c1*pcy - pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
             v1x = c1*wx + s1*wy
@@ -573,6 +570,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g17_14 = c1*pcx + pcy*s1
+                g17_24 = 322.0 - pcz
+                g17_34 = c1*pcy - pcx*s1
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
                 t9_1_2 = 744.0*c4
@@ -621,6 +621,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
+                    g17_14 = c1*pcx + pcy*s1
+                    g17_24 = 322.0 - pcz
+                    g17_34 = c1*pcy - pcx*s1
                     t9_2_0 = -g17_11*r32
                     t9_2_1 = -g17_12*r31
                     t9_2_2 = 308760.0*c4
@@ -822,9 +825,8 @@ def inverse_joints(pose, given, current=None):
     c3 = cos(th3)
     s3 = sin(th3)
 
-    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     t6_0 = wx*wx + wy*wy
-    g17_24 = 322.0 - pcz
     v1y = 322.0 - wz
 
     # th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -879,11 +881,9 @@ def inverse_joints(pose, given, current=None):
             g17_11 = c1*r11 + r21*s1
             g17_12 = c1*r12 + r22*s1
             g17_13 = c1*r13 + r23*s1
-            g17_14 = c1*pcx + pcy*s1
             g17_31 = c1*r21 - r11*s1
             g17_32 = c1*r22 - r12*s1
             g17_33 = c1*r23 - r13*s1
-            g17_34 = c1*pcy - pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
             v1x = c1*wx + s1*wy
@@ -912,6 +912,9 @@ def inverse_joints(pose, given, current=None):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g17_14 = c1*pcx + pcy*s1
+                g17_24 = 322.0 - pcz
+                g17_34 = c1*pcy - pcx*s1
                 t9_1_0 = g17_14*v1x
                 t9_1_1 = g17_24*v1y
                 t9_1_2 = 744.0*c4
@@ -960,6 +963,9 @@ def inverse_joints(pose, given, current=None):
                         c2 = cos(th2)
                         s2 = sin(th2)
                 else:
+                    g17_14 = c1*pcx + pcy*s1
+                    g17_24 = 322.0 - pcz
+                    g17_34 = c1*pcy - pcx*s1
                     t9_2_0 = -g17_11*r32
                     t9_2_1 = -g17_12*r31
                     t9_2_2 = 308760.0*c4

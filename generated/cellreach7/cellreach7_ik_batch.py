@@ -153,9 +153,8 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         c3 = numpy.cos(th3)
         s3 = numpy.sin(th3)
 
-        # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         t6_0 = wx*wx + wy*wy
-        g17_24 = 322 - pcz
         v1y = 322 - wz
 
         # th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -204,11 +203,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         g17_11 = c1*r11 + r21*s1
         g17_12 = c1*r12 + r22*s1
         g17_13 = c1*r13 + r23*s1
-        g17_14 = c1*pcx + pcy*s1
         g17_31 = c1*r21 - r11*s1
         g17_32 = c1*r22 - r12*s1
         g17_33 = c1*r23 - r13*s1
-        g17_34 = c1*pcy - pcx*s1
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
@@ -224,6 +221,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         dk2 = dt2
         chosen2 = chosen2 | use
         if not chosen2.all():
+            g17_14 = c1*pcx + pcy*s1
+            g17_24 = 322 - pcz
+            g17_34 = c1*pcy - pcx*s1
             t9_1_0 = g17_14*v1x
             t9_1_1 = g17_24*v1y
             t9_1_2 = 744*c4
@@ -258,6 +258,9 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
         if not chosen2.all():
+            g17_14 = c1*pcx + pcy*s1
+            g17_24 = 322 - pcz
+            g17_34 = c1*pcy - pcx*s1
             t9_2_0 = -g17_11*r32
             t9_2_1 = -g17_12*r31
             t9_2_2 = 308760*c4

@@ -242,9 +242,8 @@ static int closed_form(const float pose[16], float given, const float *current,
     const float c3 = cosf(th3);
     const float s3 = sinf(th3);
 
-    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 A4 c4; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float t6_0 = wx*wx + wy*wy;
-    const float g17_24 = 322.0f - pcz;
     const float v1y = 322.0f - wz;
 
     /* th4: squared norm of A1^-1 w = A2 A3 A4 c4
@@ -312,11 +311,9 @@ static int closed_form(const float pose[16], float given, const float *current,
             const float g17_11 = c1*r11 + r21*s1;
             const float g17_12 = c1*r12 + r22*s1;
             const float g17_13 = c1*r13 + r23*s1;
-            const float g17_14 = c1*pcx + pcy*s1;
             const float g17_31 = c1*r21 - r11*s1;
             const float g17_32 = c1*r22 - r12*s1;
             const float g17_33 = c1*r23 - r13*s1;
-            const float g17_34 = c1*pcy - pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float v1x = c1*wx + s1*wy;
@@ -335,6 +332,9 @@ static int closed_form(const float pose[16], float given, const float *current,
                 }
             }
             if (free2) {
+                const float g17_14 = c1*pcx + pcy*s1;
+                const float g17_24 = 322.0f - pcz;
+                const float g17_34 = c1*pcy - pcx*s1;
                 const float t9_1_0 = g17_14*v1x;
                 const float t9_1_1 = g17_24*v1y;
                 const float t9_1_2 = 744.0f*c4;
@@ -370,6 +370,9 @@ static int closed_form(const float pose[16], float given, const float *current,
                 }
             }
             if (free2) {
+                const float g17_14 = c1*pcx + pcy*s1;
+                const float g17_24 = 322.0f - pcz;
+                const float g17_34 = c1*pcy - pcx*s1;
                 const float t9_2_0 = -g17_11*r32;
                 const float t9_2_1 = -g17_12*r31;
                 const float t9_2_2 = 308760.0f*c4;

@@ -244,9 +244,8 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy + 85.0*r23;
     const double wz = pcz + 85.0*r33;
 
-    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double t4_0 = wx*wx + wy*wy;
-    const double g16_24 = pcz - 180.0;
     const double v1y = wz - 180.0;
 
     /* th3: squared norm of A1^-1 w = A2 A3 c3
@@ -325,9 +324,7 @@ static int closed_form(const double pose[16], const double *current,
             const double g16_11 = -c1*r12 + r22*s1;
             const double g16_12 = c1*r11 - r21*s1;
             const double g16_13 = c1*r13 - r23*s1;
-            const double g16_14 = c1*pcx + pcy*s1;
             const double g16_33 = c1*r23 + r13*s1;
-            const double g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
@@ -346,6 +343,9 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = pcz - 180.0;
+                const double g16_34 = -c1*pcy + pcx*s1;
                 const double t7_1_0 = g16_13*v1x;
                 const double t7_1_1 = g16_14*v1x;
                 const double t7_1_2 = -r33*v1y;
@@ -620,9 +620,8 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy + 85.0*r23;
     const double wz = pcz + 85.0*r33;
 
-    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const double t4_0 = wx*wx + wy*wy;
-    const double g16_24 = pcz - 180.0;
     const double v1y = wz - 180.0;
 
     /* th3: squared norm of A1^-1 w = A2 A3 c3
@@ -701,9 +700,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             const double g16_11 = -c1*r12 + r22*s1;
             const double g16_12 = c1*r11 - r21*s1;
             const double g16_13 = c1*r13 - r23*s1;
-            const double g16_14 = c1*pcx + pcy*s1;
             const double g16_33 = c1*r23 + r13*s1;
-            const double g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const double v1x = c1*wx + s1*wy;
@@ -722,6 +719,9 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = pcz - 180.0;
+                const double g16_34 = -c1*pcy + pcx*s1;
                 const double t7_1_0 = g16_13*v1x;
                 const double t7_1_1 = g16_14*v1x;
                 const double t7_1_2 = -r33*v1y;

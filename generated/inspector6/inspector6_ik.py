@@ -383,9 +383,8 @@ def _closed_form(pose, current, check_finite=True):
     wy = pcy + 85.0*r23
     wz = pcz + 85.0*r33
 
-    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     t4_0 = wx*wx + wy*wy
-    g16_24 = pcz - 180.0
     v1y = wz - 180.0
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -446,9 +445,7 @@ def _closed_form(pose, current, check_finite=True):
             g16_11 = -c1*r12 + r22*s1
             g16_12 = c1*r11 - r21*s1
             g16_13 = c1*r13 - r23*s1
-            g16_14 = c1*pcx + pcy*s1
             g16_33 = c1*r23 + r13*s1
-            g16_34 = -c1*pcy + pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
             v1x = c1*wx + s1*wy
@@ -476,6 +473,9 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g16_14 = c1*pcx + pcy*s1
+                g16_24 = pcz - 180.0
+                g16_34 = -c1*pcy + pcx*s1
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
                 t7_1_2 = -r33*v1y
@@ -653,9 +653,8 @@ def inverse_joints(pose, current=None):
     wy = pcy + 85.0*r23
     wz = pcz + 85.0*r33
 
-    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+    # th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     t4_0 = wx*wx + wy*wy
-    g16_24 = pcz - 180.0
     v1y = wz - 180.0
 
     # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -716,9 +715,7 @@ def inverse_joints(pose, current=None):
             g16_11 = -c1*r12 + r22*s1
             g16_12 = c1*r11 - r21*s1
             g16_13 = c1*r13 - r23*s1
-            g16_14 = c1*pcx + pcy*s1
             g16_33 = c1*r23 + r13*s1
-            g16_34 = -c1*pcy + pcx*s1
 
             # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
             v1x = c1*wx + s1*wy
@@ -746,6 +743,9 @@ def inverse_joints(pose, current=None):
                     c2 = cos(th2)
                     s2 = sin(th2)
             else:
+                g16_14 = c1*pcx + pcy*s1
+                g16_24 = pcz - 180.0
+                g16_34 = -c1*pcy + pcx*s1
                 t7_1_0 = g16_13*v1x
                 t7_1_1 = g16_14*v1x
                 t7_1_2 = -r33*v1y

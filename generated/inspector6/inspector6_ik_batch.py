@@ -140,9 +140,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy + 85*r23
         wz = pcz + 85*r33
 
-        # th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
+        # th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
         t4_0 = wx*wx + wy*wy
-        g16_24 = pcz - 180
         v1y = wz - 180
 
         # th3: squared norm of A1^-1 w = A2 A3 c3
@@ -191,9 +190,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_11 = -c1*r12 + r22*s1
         g16_12 = c1*r11 - r21*s1
         g16_13 = c1*r13 - r23*s1
-        g16_14 = c1*pcx + pcy*s1
         g16_33 = c1*r23 + r13*s1
-        g16_34 = -c1*pcy + pcx*s1
 
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
@@ -209,6 +206,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dk2 = dt2
         chosen2 = chosen2 | use
         if not chosen2.all():
+            g16_14 = c1*pcx + pcy*s1
+            g16_24 = pcz - 180
+            g16_34 = -c1*pcy + pcx*s1
             t7_1_0 = g16_13*v1x
             t7_1_1 = g16_14*v1x
             t7_1_2 = -r33*v1y

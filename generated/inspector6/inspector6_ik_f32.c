@@ -223,9 +223,8 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy + 85.0f*r23;
     const float wz = pcz + 85.0f*r33;
 
-    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
+    /* th1: z of A1^-1 w = A2 A3 c3; A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
     const float t4_0 = wx*wx + wy*wy;
-    const float g16_24 = pcz - 180.0f;
     const float v1y = wz - 180.0f;
 
     /* th3: squared norm of A1^-1 w = A2 A3 c3
@@ -304,9 +303,7 @@ static int closed_form(const float pose[16], const float *current,
             const float g16_11 = -c1*r12 + r22*s1;
             const float g16_12 = c1*r11 - r21*s1;
             const float g16_13 = c1*r13 - r23*s1;
-            const float g16_14 = c1*pcx + pcy*s1;
             const float g16_33 = c1*r23 + r13*s1;
-            const float g16_34 = -c1*pcy + pcx*s1;
 
             /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
             const float v1x = c1*wx + s1*wy;
@@ -325,6 +322,9 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1;
+                const float g16_24 = pcz - 180.0f;
+                const float g16_34 = -c1*pcy + pcx*s1;
                 const float t7_1_0 = g16_13*v1x;
                 const float t7_1_1 = g16_14*v1x;
                 const float t7_1_2 = -r33*v1y;

@@ -285,11 +285,9 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_11 = -c1*r13 - r23*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r11 + r21*s1;
-        const double g16_14 = c1*pcx + pcy*s1;
         const double g16_21 = -c1*r23 + r13*s1;
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
-        const double g16_24 = c1*pcy - pcx*s1;
         const double kc2_0 = -0.11*v1x + 0.90000000000000002*wz + 0.016500000000000001;
         const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
         const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
@@ -335,6 +333,8 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = c1*pcy - pcx*s1;
                 const double t7_1_0 = -c3*r31;
                 const double t7_1_1 = 0.255*c3;
                 const double t7_1_2 = g16_13*s3;
@@ -399,6 +399,8 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = c1*pcy - pcx*s1;
                 const double t7_2_0 = g16_11*r32;
                 const double t7_2_1 = g16_12*r33;
                 const double t7_2_2 = 0.10199999999999999*g16_22;
@@ -722,11 +724,9 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_11 = -c1*r13 - r23*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r11 + r21*s1;
-        const double g16_14 = c1*pcx + pcy*s1;
         const double g16_21 = -c1*r23 + r13*s1;
         const double g16_22 = -c1*r22 + r12*s1;
         const double g16_23 = c1*r21 - r11*s1;
-        const double g16_24 = c1*pcy - pcx*s1;
         const double kc2_0 = -0.11*v1x + 0.90000000000000002*wz + 0.016500000000000001;
         const double kc2_1 = 0.90000000000000002*v1x + 0.11*wz - 0.13500000000000001;
         const double kc2_2 = 0.1275 - 0.84999999999999998*v1x;
@@ -772,6 +772,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = c1*pcy - pcx*s1;
                 const double t7_1_0 = -c3*r31;
                 const double t7_1_1 = 0.255*c3;
                 const double t7_1_2 = g16_13*s3;
@@ -836,6 +838,8 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1;
+                const double g16_24 = c1*pcy - pcx*s1;
                 const double t7_2_0 = g16_11*r32;
                 const double t7_2_1 = g16_12*r33;
                 const double t7_2_2 = 0.10199999999999999*g16_22;

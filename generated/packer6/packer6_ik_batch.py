@@ -171,11 +171,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_11 = -c1*r13 - r23*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r11 + r21*s1
-        g16_14 = c1*pcx + pcy*s1
         g16_21 = -c1*r23 + r13*s1
         g16_22 = -c1*r22 + r12*s1
         g16_23 = c1*r21 - r11*s1
-        g16_24 = c1*pcy - pcx*s1
         kc2_0 = -0.11*v1x + 0.9*wz + 0.0165
         kc2_1 = 0.9*v1x + 0.11*wz - 0.135
         kc2_2 = 0.1275 - 0.85*v1x
@@ -209,6 +207,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dk2 = dt2
         chosen2 = chosen2 | use
         if not chosen2.all():
+            g16_14 = c1*pcx + pcy*s1
+            g16_24 = c1*pcy - pcx*s1
             t7_1_0 = -c3*r31
             t7_1_1 = 0.255*c3
             t7_1_2 = g16_13*s3
@@ -272,6 +272,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
             dk2 = numpy.where(use, dt2, dk2)
             chosen2 = chosen2 | use
         if not chosen2.all():
+            g16_14 = c1*pcx + pcy*s1
+            g16_24 = c1*pcy - pcx*s1
             t7_2_0 = g16_11*r32
             t7_2_1 = g16_12*r33
             t7_2_2 = 0.102*g16_22

@@ -264,11 +264,9 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_11 = -c1*r13 - r23*s1;
         const float g16_12 = -c1*r12 - r22*s1;
         const float g16_13 = c1*r11 + r21*s1;
-        const float g16_14 = c1*pcx + pcy*s1;
         const float g16_21 = -c1*r23 + r13*s1;
         const float g16_22 = -c1*r22 + r12*s1;
         const float g16_23 = c1*r21 - r11*s1;
-        const float g16_24 = c1*pcy - pcx*s1;
         const float kc2_0 = -0.11f*v1x + 0.9f*wz + 0.0165f;
         const float kc2_1 = 0.9f*v1x + 0.11f*wz - 0.135f;
         const float kc2_2 = 0.1275f - 0.85f*v1x;
@@ -314,6 +312,8 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1;
+                const float g16_24 = c1*pcy - pcx*s1;
                 const float t7_1_0 = -c3*r31;
                 const float t7_1_1 = 0.255f*c3;
                 const float t7_1_2 = g16_13*s3;
@@ -378,6 +378,8 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1;
+                const float g16_24 = c1*pcy - pcx*s1;
                 const float t7_2_0 = g16_11*r32;
                 const float t7_2_1 = g16_12*r33;
                 const float t7_2_2 = 0.102f*g16_22;

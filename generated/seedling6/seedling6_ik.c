@@ -245,9 +245,8 @@ static int closed_form(const double pose[16], const double *current,
     const double wy = pcy - 0.16500000000000001*r23;
     const double wz = pcz - 0.16500000000000001*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
-    const double g16_24 = 0.28999999999999998 - pcz;
     const double ks2_3 = -0.34000000000000002*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -300,9 +299,7 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_11 = -c1*r11 - r21*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
         const double g16_33 = c1*r23 - r13*s1;
-        const double g16_34 = c1*pcy - pcx*s1;
         const double kc2_0 = -0.035000000000000003*v1x - 0.34999999999999998*v1y;
         const double kc2_1 = 0.34999999999999998*v1x - 0.035000000000000003*v1y;
         const double kc2_2 = -0.34000000000000002*v1x;
@@ -348,6 +345,9 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
+                const double g16_24 = 0.28999999999999998 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_1_0 = g16_13*v1y;
                 const double t7_1_1 = g16_24*v1x;
                 const double t7_1_2 = 0.68000000000000005*s3;
@@ -652,9 +652,8 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
     const double wy = pcy - 0.16500000000000001*r23;
     const double wz = pcz - 0.16500000000000001*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double v1y = 0.28999999999999998 - wz;
-    const double g16_24 = 0.28999999999999998 - pcz;
     const double ks2_3 = -0.34000000000000002*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -707,9 +706,7 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
         const double g16_11 = -c1*r11 - r21*s1;
         const double g16_12 = -c1*r12 - r22*s1;
         const double g16_13 = c1*r13 + r23*s1;
-        const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
         const double g16_33 = c1*r23 - r13*s1;
-        const double g16_34 = c1*pcy - pcx*s1;
         const double kc2_0 = -0.035000000000000003*v1x - 0.34999999999999998*v1y;
         const double kc2_1 = 0.34999999999999998*v1x - 0.035000000000000003*v1y;
         const double kc2_2 = -0.34000000000000002*v1x;
@@ -755,6 +752,9 @@ int seedling6_ik_inverse_joints(const double pose[16], const double *current,
                 }
             }
             if (free2) {
+                const double g16_14 = c1*pcx + pcy*s1 - 0.040000000000000001;
+                const double g16_24 = 0.28999999999999998 - pcz;
+                const double g16_34 = c1*pcy - pcx*s1;
                 const double t7_1_0 = g16_13*v1y;
                 const double t7_1_1 = g16_24*v1x;
                 const double t7_1_2 = 0.68000000000000005*s3;

@@ -140,9 +140,8 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         wy = pcy - 0.165*r23
         wz = pcz - 0.165*r33
 
-        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
+        # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         v1y = 0.29 - wz
-        g16_24 = 0.29 - pcz
         ks2_3 = -0.34*v1y
 
         # th1: z of A1^-1 w = A2 A3 c3
@@ -172,9 +171,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         g16_11 = -c1*r11 - r21*s1
         g16_12 = -c1*r12 - r22*s1
         g16_13 = c1*r13 + r23*s1
-        g16_14 = c1*pcx + pcy*s1 - 0.04
         g16_33 = c1*r23 - r13*s1
-        g16_34 = c1*pcy - pcx*s1
         kc2_0 = -0.035*v1x - 0.35*v1y
         kc2_1 = 0.35*v1x - 0.035*v1y
         kc2_2 = -0.34*v1x
@@ -208,6 +205,9 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         dk2 = dt2
         chosen2 = chosen2 | use
         if not chosen2.all():
+            g16_14 = c1*pcx + pcy*s1 - 0.04
+            g16_24 = 0.29 - pcz
+            g16_34 = c1*pcy - pcx*s1
             t7_1_0 = g16_13*v1y
             t7_1_1 = g16_24*v1x
             t7_1_2 = 0.68*s3

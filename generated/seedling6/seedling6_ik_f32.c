@@ -224,9 +224,8 @@ static int closed_form(const float pose[16], const float *current,
     const float wy = pcy - 0.165f*r23;
     const float wz = pcz - 0.165f*r33;
 
-    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
+    /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const float v1y = 0.29f - wz;
-    const float g16_24 = 0.29f - pcz;
     const float ks2_3 = -0.34f*v1y;
 
     /* th1: z of A1^-1 w = A2 A3 c3
@@ -279,9 +278,7 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_11 = -c1*r11 - r21*s1;
         const float g16_12 = -c1*r12 - r22*s1;
         const float g16_13 = c1*r13 + r23*s1;
-        const float g16_14 = c1*pcx + pcy*s1 - 0.04f;
         const float g16_33 = c1*r23 - r13*s1;
-        const float g16_34 = c1*pcy - pcx*s1;
         const float kc2_0 = -0.035f*v1x - 0.35f*v1y;
         const float kc2_1 = 0.35f*v1x - 0.035f*v1y;
         const float kc2_2 = -0.34f*v1x;
@@ -327,6 +324,9 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
             if (free2) {
+                const float g16_14 = c1*pcx + pcy*s1 - 0.04f;
+                const float g16_24 = 0.29f - pcz;
+                const float g16_34 = c1*pcy - pcx*s1;
                 const float t7_1_0 = g16_13*v1y;
                 const float t7_1_1 = g16_24*v1x;
                 const float t7_1_2 = 0.68f*s3;

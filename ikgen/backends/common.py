@@ -625,6 +625,7 @@ def lower_now(derivation: Derivation) -> Plan:
                 derivation.max_solutions, depth, branch_joints, mirror, ranges=ranges)
     separate_siblings(plan)
     drop_unused(plan)
+    sink_into_fallbacks(plan)
     mark_scale_free(plan)
     mark_consistent(plan)
     propagate_aliases(plan)
@@ -633,6 +634,53 @@ def lower_now(derivation: Derivation) -> Plan:
     hoist(plan)
     mark_late_angles(plan)
     return plan
+
+
+def sink_into_fallbacks(plan: Plan) -> None:
+    """A named intermediate that only a pair's later forms read (they run only where the first
+    form's determinant is ~0) moves into those forms: the usual path no longer computes it (for
+    the elbow pair of a six-axis arm, two entries of A1^-1 T once per reach root). Each later form
+    that needs it computes it itself, after its own inputs, which are all known by then (the pair
+    comes after every block that defines them)."""
+    def reads_of(exprs) -> set:
+        found: set = set()
+        for e in exprs:
+            found |= sp.sympify(e).free_symbols
+        return found
+    for index, block in enumerate(plan.blocks):
+        if block.kind != "pair" or len(block.forms) < 2:
+            continue
+        first = block.forms[0]
+        kept = reads_of([a.expr for a in plan.final_temps] + list(plan.label_measures))
+        kept |= {length_symbol(out.joint) if out.prismatic else angle_symbol(out.joint) for out in plan.outputs
+                 if not out.given}
+        kept |= reads_of([a.expr for a in block.temps + first.temps] + [first.det, first.cos_num, first.sin_num])
+        for position, other in enumerate(plan.blocks):
+            if other is not block and (other.kind != "compute" or position > index):
+                kept |= reads_of(block_exprs(other))
+        sunk: list[Assignment] = []                      # latest first
+        for earlier in reversed(plan.blocks[:index]):
+            if earlier.kind != "compute":
+                continue
+            stay = []
+            for assignment in reversed(earlier.temps):
+                if assignment.target in kept:
+                    stay.append(assignment)
+                    kept |= sp.sympify(assignment.expr).free_symbols
+                else:
+                    sunk.append(assignment)
+            earlier.temps = list(reversed(stay))
+        if not sunk:
+            continue
+        for form in block.forms[1:]:
+            needed = reads_of([a.expr for a in form.temps] + [form.det, form.cos_num, form.sin_num])
+            temps = []
+            for assignment in sunk:                      # latest first: its inputs come after it here
+                if assignment.target in needed:
+                    temps.append(assignment)
+                    needed |= sp.sympify(assignment.expr).free_symbols
+            form.temps = list(reversed(temps)) + form.temps
+        plan.blocks = [b for b in plan.blocks if b.kind != "compute" or b.temps]
 
 
 def separate_siblings(plan: Plan) -> None:
