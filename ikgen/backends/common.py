@@ -639,7 +639,7 @@ def lower_now(derivation: Derivation) -> Plan:
 def sink_into_fallbacks(plan: Plan) -> None:
     """A named intermediate that only a pair's later forms read (they run only where the first
     form's determinant is ~0) moves into those forms: the usual path no longer computes it (for
-    the elbow pair of a six-axis arm, two entries of A1^-1 T once per reach root). Each later form
+    the elbow pair of a six-axis arm, three entries of A1^-1 T once per reach root). Each later form
     that needs it computes it itself, after its own inputs, which are all known by then (the pair
     comes after every block that defines them)."""
     def reads_of(exprs) -> set:
