@@ -636,6 +636,27 @@ def lower_now(derivation: Derivation) -> Plan:
     return plan
 
 
+def take_unread(blocks: list, kept: set) -> list[Assignment]:
+    """Walks ``blocks`` back to front: an assignment of a compute block stays where ``kept`` (what
+    the rest of the code reads, grown by what stays) holds its target, else it is taken out; the
+    reads of every other block join ``kept``. Returns what was taken out, latest first."""
+    taken: list[Assignment] = []
+    for block in reversed(blocks):
+        if block.kind != "compute":
+            for e in block_exprs(block):
+                kept |= sp.sympify(e).free_symbols
+            continue
+        stay = []
+        for assignment in reversed(block.temps):
+            if assignment.target in kept:
+                stay.append(assignment)
+                kept |= sp.sympify(assignment.expr).free_symbols
+            else:
+                taken.append(assignment)
+        block.temps = list(reversed(stay))
+    return taken
+
+
 def sink_into_fallbacks(plan: Plan) -> None:
     """A named intermediate that only a pair's later forms read (they run only where the first
     form's determinant is ~0) moves into those forms: the usual path no longer computes it (for
@@ -658,18 +679,7 @@ def sink_into_fallbacks(plan: Plan) -> None:
         for position, other in enumerate(plan.blocks):
             if other is not block and (other.kind != "compute" or position > index):
                 kept |= reads_of(block_exprs(other))
-        sunk: list[Assignment] = []                      # latest first
-        for earlier in reversed(plan.blocks[:index]):
-            if earlier.kind != "compute":
-                continue
-            stay = []
-            for assignment in reversed(earlier.temps):
-                if assignment.target in kept:
-                    stay.append(assignment)
-                    kept |= sp.sympify(assignment.expr).free_symbols
-                else:
-                    sunk.append(assignment)
-            earlier.temps = list(reversed(stay))
+        sunk = take_unread(plan.blocks[:index], kept)   # latest first
         if not sunk:
             continue
         for form in block.forms[1:]:
@@ -706,23 +716,10 @@ def separate_siblings(plan: Plan) -> None:
                 [a.expr for a in block.temps + block.forms[0].temps] + \
                 [block.forms[0].det, block.forms[0].cos_num, block.forms[0].sin_num]:
             kept_reads |= sp.sympify(e).free_symbols
-        sunk: list[Assignment] = []
         first = start
         while first > 0 and plan.blocks[first - 1].depth == block.depth:
             first -= 1                         # the same loop body: a value read there is the same
-        for between in reversed(plan.blocks[first:index]):
-            if between.kind != "compute":
-                for e in block_exprs(between):
-                    kept_reads |= sp.sympify(e).free_symbols
-                continue
-            stay = []
-            for assignment in reversed(between.temps):
-                if assignment.target in kept_reads:
-                    stay.append(assignment)
-                    kept_reads |= sp.sympify(assignment.expr).free_symbols
-                else:
-                    sunk.append(assignment)
-            between.temps = list(reversed(stay))
+        sunk = take_unread(plan.blocks[first:index], kept_reads)
         sunk.reverse()
         cos_k, sin_k = cos_symbol(sibling), sin_symbol(sibling)
         scale = sp.Symbol(f"un{sibling}", real=True)
