@@ -101,8 +101,11 @@ static const int MULTI[BENCHTOP6_IK_F32_JOINTS] = { 0, 0, 0, 0, 0, 0 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 1e+18f
+/* Every entry within SAFE_ENTRY: no intermediate of this solver can overflow (a bound on the magnitude
+ * of every expression, proved when it was generated: ikgen/backends/bounds.py). */
+#define SAFE_ENTRY 1000000.0f
 
-/* 0: invalid input; 1: valid */
+/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
 static int valid_pose(const float pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -110,6 +113,9 @@ static int valid_pose(const float pose[16])
     const float size = ((fabsf(pose[0]) + fabsf(pose[1])) + (fabsf(pose[2]) + fabsf(pose[3])))
         + ((fabsf(pose[4]) + fabsf(pose[5])) + (fabsf(pose[6]) + fabsf(pose[7])))
         + ((fabsf(pose[8]) + fabsf(pose[9])) + (fabsf(pose[10]) + fabsf(pose[11])));
+    if (size <= SAFE_ENTRY) {
+        return 2;
+    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -518,9 +524,10 @@ static int closed_form(const float pose[16], const float *current,
             if (!free4) th4 = benchtop6_ik_f32_atan2(s4, c4);
             th6 = benchtop6_ik_f32_atan2(s6, c6);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these) */
+             * mirrored solution's values follow from these); with every entry within
+             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
-            const int fine = probe - probe == 0.0f;
+            const int fine = entries == 2 || probe - probe == 0.0f;
             {
                 float u2 = th2 - -1.57079633f;
                 u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;

@@ -120,10 +120,10 @@ static const double LIMIT_HIGH[CELLREACH7_IK_JOINTS] = { 165.0, 115.0, 165.0, 12
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
-/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
-#define SAFE_ENTRY 10000000000.0
+/* No SAFE_ENTRY: the generator proves no overflow bound for this solver (docs/solvers.md), so every
+ * solution is tested for NaN and infinity. */
 
-/* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */
+/* 0: invalid input; 1: valid */
 static int valid_pose(const double pose[16])
 {
     /* the usual pose in one test: the sum of the magnitudes is within LARGEST_ENTRY (and not NaN);
@@ -131,9 +131,6 @@ static int valid_pose(const double pose[16])
     const double size = ((fabs(pose[0]) + fabs(pose[1])) + (fabs(pose[2]) + fabs(pose[3])))
         + ((fabs(pose[4]) + fabs(pose[5])) + (fabs(pose[6]) + fabs(pose[7])))
         + ((fabs(pose[8]) + fabs(pose[9])) + (fabs(pose[10]) + fabs(pose[11])));
-    if (size <= SAFE_ENTRY) {
-        return 2;
-    }
     if (size <= LARGEST_ENTRY) {
         return 1;
     }
@@ -559,10 +556,9 @@ static int closed_form(const double pose[16], double given, const double *curren
             if (!free5) th5 = cellreach7_ik_atan2(s5, c5);
             th7 = cellreach7_ik_atan2(s7, c7);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these); with every entry within
-             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
+             * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
-            const int fine = entries == 2 || probe - probe == 0.0;
+            const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -994,10 +990,9 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             if (!free5) th5 = cellreach7_ik_atan2(s5, c5);
             th7 = cellreach7_ik_atan2(s7, c7);
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
-             * mirrored solution's values follow from these); with every entry within
-             * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
+             * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
-            const int fine = entries == 2 || probe - probe == 0.0;
+            const int fine = probe - probe == 0.0;
             {
                 double u1 = th1;
                 u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;

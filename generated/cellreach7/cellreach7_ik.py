@@ -110,7 +110,7 @@ class Solution(tuple):
 
 _new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
-SAFE_ENTRY = 1e10  # every entry within this: the solver's expressions (degree far below 30) cannot overflow, no filter
+SAFE_ENTRY = 0.0  # no overflow bound was proved for this solver: every solution is tested for NaN and infinity
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
 
 def _shown(value):
@@ -234,8 +234,8 @@ def _solve(pose, current, limits, check, given):
     if given - given != 0.0:
         return [], "invalid_input"
     r0, r1, r2 = pose
-    if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
-        large = False                                      # infinite or beyond SAFE_ENTRY
+    if hypot(*r0, *r1, *r2) <= LARGEST_ENTRY:              # the usual case, one call: no entry is NaN,
+        large = True                                       # infinite or beyond LARGEST_ENTRY (no SAFE_ENTRY)
     else:
         total = sum(r0) + sum(r1) + sum(r2)
         biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
@@ -792,7 +792,12 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
-    return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+    # overflow from a huge input gives no solution; the usual case in one sum over every solution,
+    # each solution on its own only when that sum is not finite
+    total = sum([sum(s[0]) + sum(s[3]) for s in solutions])
+    if total - total == 0.0:
+        return solutions
+    return [s for s in solutions if _finite(s)]
 
 def inverse_joints(pose, given, current=None):
     """Every closed-form solution's readings, a tuple per solution in joint order: what
@@ -1114,6 +1119,6 @@ def inverse_joints(pose, given, current=None):
                 v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
                 solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
-    if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
+    if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [q for q in solutions if sum(q) - sum(q) == 0.0]

@@ -117,7 +117,8 @@ static const int MULTI[INSPECTOR6_IK_JOINTS] = { 0, 0, 0, 1, 0, 1 };
 
 /* A pose entry beyond LARGEST_ENTRY (or NaN, infinite) is invalid input: its square would overflow. */
 #define LARGEST_ENTRY 9.9999999999999998e+149
-/* Every entry within SAFE_ENTRY: the solver's expressions (degree far below 30) cannot overflow. */
+/* Every entry within SAFE_ENTRY: no intermediate of this solver can overflow (a bound on the magnitude
+ * of every expression, proved when it was generated: ikgen/backends/bounds.py). */
 #define SAFE_ENTRY 10000000000.0
 
 /* 0: invalid input; 1: valid; 2: valid and every entry within SAFE_ENTRY */

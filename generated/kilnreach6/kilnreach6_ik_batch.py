@@ -52,7 +52,7 @@ _TURN = numpy.array([360.0, 360.0, numpy.inf, 360.0, 360.0, 360.0, ])
 TARGET = "pose"  # what the arm is asked for: the full pose of the tool (natural for this arm; no [target] in the file)
 
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input
-SAFE_ENTRY = 1e10  # as the per-pose solver's: a pose within this (norm of its entries) cannot overflow
+SAFE_ENTRY = 1e+10  # as the per-pose solver's: a pose within this (norm of its entries) cannot overflow
 CHUNK = 2048  # poses per vectorised pass: the working arrays stay in cache (CPU time, 200,000 poses of benchtop6: 2,048 best, 1,024 and 4,096 5-10 % slower)
 
 def inverse_batch(poses, current=None, conditioning=True):

@@ -104,7 +104,7 @@ class Solution(tuple):
 
 _new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
-SAFE_ENTRY = 1e10  # every entry within this: the solver's expressions (degree far below 30) cannot overflow, no filter
+SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
 
 def _shown(value):
@@ -415,7 +415,12 @@ def _closed_form(pose, current, check_finite=True):
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
-    return [s for s in solutions if _finite(s)]  # overflow from a huge input gives no solution
+    # overflow from a huge input gives no solution; the usual case in one sum over every solution,
+    # each solution on its own only when that sum is not finite
+    total = sum([sum(s[0]) + sum(s[3]) for s in solutions])
+    if total - total == 0.0:
+        return solutions
+    return [s for s in solutions if _finite(s)]
 
 def inverse_joints(pose, current=None):
     """Every closed-form solution's readings, a tuple per solution in joint order: what
@@ -502,6 +507,6 @@ def inverse_joints(pose, current=None):
             v3 = (l3 - 0.0) * 1.0
             solutions.append((v1, v2, v3, ))
 
-    if size <= 1e10:                # every entry within SAFE_ENTRY: no intermediate can overflow
+    if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions
     return [q for q in solutions if sum(q) - sum(q) == 0.0]

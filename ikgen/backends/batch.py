@@ -15,7 +15,7 @@ from sympy.printing.numpy import NumPyPrinter
 
 from ..ir import Derivation
 from ..model import Arm
-from . import common
+from . import bounds, common
 from . import python as python_backend
 from .python import terms
 
@@ -50,7 +50,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         mirror_terms=terms(plan.mirror_condition, BATCH_TERMS) if plan.mirror else [],
         target=common.target_plan(arm, derivation), tolerances=python_backend.tolerances("double"),
         arm_angle_scale=repr(float(arm.angle_scale)), given=common.given_plan(arm),
-        ga=", given" if arm.given_joint else ""))
+        ga=", given" if arm.given_joint else "", safe_entry=bounds.safe_entry(plan, "double")))
 
 
 BATCH_TERMS = {"free": "free{}", "double": "(root{} == 0.0)", "double_root": "dbl{}", "root": "(root{} > 0.0)",

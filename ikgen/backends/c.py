@@ -17,7 +17,7 @@ from sympy.printing.c import C99CodePrinter
 
 from ..ir import Derivation
 from ..model import Arm
-from . import common
+from . import bounds, common
 from .python import forward_plan
 
 
@@ -114,7 +114,8 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         guard=lambda block: reach_guard(block, scalar),
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=common.limit_checked(common.joint_turns(arm)),
-        probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum, label_inputs=label_inputs(plan),
+        probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
+        safe_entry=bounds.safe_entry(plan, scalar.name), label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),

@@ -19,7 +19,7 @@ from sympy.printing.pycode import PythonCodePrinter
 from ..ir import Derivation
 from ..kinematics import link_from_cos_sin
 from ..model import Arm
-from . import common
+from . import bounds, common
 
 
 class SolverPythonPrinter(common.ProductPowers, PythonCodePrinter):
@@ -96,7 +96,8 @@ def render(arm: Arm, derivation: Derivation) -> str:
         within_parts=within_parts(arm, plan), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
-        given=common.given_plan(arm), ga=", given" if arm.given_joint else ""))
+        given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
+        safe_entry=bounds.safe_entry(plan, "double")))
 
 
 TARGET_API = {

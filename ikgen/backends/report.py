@@ -40,7 +40,7 @@ from ..kinematics import NumericChain
 from ..model import Arm
 from ..stopwatch import Stopwatch
 from ..templatecache import template_cache
-from . import common
+from . import bounds, common
 
 LATEX_SETTINGS = {"mul_symbol": "dot"}    # explicit products: "a_{2} \cdot \left(...\right)" reads unambiguously
 RELATIONS = {"=": ("=", "="), "maps": (r"\mapsto", "&#8614;")}   # relation -> (LaTeX, MathML operator)
@@ -756,7 +756,21 @@ def sheet_context(arm: Arm, derivation: Derivation, folder: str) -> dict:
                          if derivation.target is not None else "pose"),
         "guard_tolerance": threshold_text(2 * GUARD_TOLERANCE),
         "guard_tolerance_latex": threshold_latex(2 * GUARD_TOLERANCE),
+        "overflow_rule": overflow_rule(common.lower(derivation)),
     }
+
+
+def overflow_rule(plan) -> str:
+    """The guards table's last row: where the solvers skip their finite-solution test (bounds.py)."""
+    double, single = (bounds.safe_entry(plan, real) for real in ("double", "float"))
+    if not double:
+        return ("dropped (every solution is tested: the generator proves no overflow bound where a solver "
+                "finds polynomial roots or a displacement's two roots, leaves a displacement to the caller's "
+                "reading, or reads a given joint)")
+    float_part = f"{single:.0e} in the float build" if single else "the float build always tests"
+    return (f"dropped; not tested for a pose whose entries lie within {double:.0e} (double; {float_part}), "
+            "checked in one comparison of their summed magnitudes or norm: no intermediate can overflow there "
+            "(a bound on every expression, proved at generation)")
 
 
 def evidence_context(data: dict, pose: dict, verification: dict, svgs: tuple[str, str]) -> dict:
