@@ -412,11 +412,11 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = -c1
                 s1 = -s1
             else:
-                cn1 = root1*sg1*wx
-                sn1 = root1*sg1*wy
+                cn1 = sg1*wx
+                sn1 = sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/t3_0
-                s1 = sn1/t3_0
+                c1 = cn1/root1
+                s1 = sn1/root1
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
@@ -742,11 +742,11 @@ def inverse_joints(pose, current=None):
                 c1 = -c1
                 s1 = -s1
             else:
-                cn1 = root1*sg1*wx
-                sn1 = root1*sg1*wy
+                cn1 = sg1*wx
+                sn1 = sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/t3_0
-                s1 = sn1/t3_0
+                c1 = cn1/root1
+                s1 = sn1/root1
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232

@@ -260,11 +260,11 @@ static int closed_form(const float pose[16], const float *current,
                 c1 = -ca1;
                 s1 = -sa1;
             } else {
-                const float cn1 = root1*sg1*wx;
-                const float sn1 = root1*sg1*wy;
+                const float cn1 = sg1*wx;
+                const float sn1 = sg1*wy;
                 th1 = benchtop6_ik_f32_atan2(sn1, cn1);
-                c1 = cn1/t3_0;
-                s1 = sn1/t3_0;
+                c1 = cn1/root1;
+                s1 = sn1/root1;
 
                 ta1 = th1;
                 ca1 = c1;

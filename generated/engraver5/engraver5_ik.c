@@ -290,11 +290,11 @@ static int closed_form(const double pose[16], const double *current,
                     c1 = -ca1;
                     s1 = -sa1;
                 } else {
-                    const double cn1 = root1*sg1*wx;
-                    const double sn1 = root1*sg1*wy;
+                    const double cn1 = sg1*wx;
+                    const double sn1 = sg1*wy;
                     th1 = engraver5_ik_atan2(sn1, cn1);
-                    c1 = cn1/t3_0;
-                    s1 = sn1/t3_0;
+                    c1 = cn1/root1;
+                    s1 = sn1/root1;
 
                     ta1 = th1;
                     ca1 = c1;

@@ -461,11 +461,11 @@ def _closed_form(pose, current, check_finite=True):
                     c1 = -c1
                     s1 = -s1
                 else:
-                    cn1 = root1*sg1*wx
-                    sn1 = root1*sg1*wy
+                    cn1 = sg1*wx
+                    sn1 = sg1*wy
                     th1 = atan2(sn1, cn1)
-                    c1 = cn1/t3_0
-                    s1 = sn1/t3_0
+                    c1 = cn1/root1
+                    s1 = sn1/root1
 
             # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
             q1x = c1*px + py*s1

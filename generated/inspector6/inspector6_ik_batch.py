@@ -175,11 +175,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         root1 = numpy.sqrt(numpy.maximum(t4_0, 0.0))
         sg1 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg1 < 0.0) & (free1 | (root1 == 0.0)))
-        cn1 = root1*sg1*wx
-        sn1 = root1*sg1*wy
+        cn1 = sg1*wx
+        sn1 = sg1*wy
         th1 = numpy.arctan2(sn1, cn1)
-        c1 = cn1/t4_0
-        s1 = sn1/t4_0
+        c1 = cn1/root1
+        s1 = sn1/root1
         if free1.any():
             th1 = numpy.where(free1, _one_turn((hint[0])), th1)
             c1 = numpy.where(free1, numpy.cos(_one_turn((hint[0]))), c1)

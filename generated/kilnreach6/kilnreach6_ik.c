@@ -301,11 +301,11 @@ static int closed_form(const double pose[16], const double *current,
                     c2 = -ca2;
                     s2 = -sa2;
                 } else {
-                    const double cn2 = -root2*sg2*v1y;
-                    const double sn2 = root2*sg2*v1x;
+                    const double cn2 = -sg2*v1y;
+                    const double sn2 = sg2*v1x;
                     th2 = kilnreach6_ik_atan2(sn2, cn2);
-                    c2 = cn2/t5_0;
-                    s2 = sn2/t5_0;
+                    c2 = cn2/root2;
+                    s2 = sn2/root2;
 
                     ta2 = th2;
                     ca2 = c2;
@@ -615,11 +615,11 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                     c2 = -ca2;
                     s2 = -sa2;
                 } else {
-                    const double cn2 = -root2*sg2*v1y;
-                    const double sn2 = root2*sg2*v1x;
+                    const double cn2 = -sg2*v1y;
+                    const double sn2 = sg2*v1x;
                     th2 = kilnreach6_ik_atan2(sn2, cn2);
-                    c2 = cn2/t5_0;
-                    s2 = sn2/t5_0;
+                    c2 = cn2/root2;
+                    s2 = sn2/root2;
 
                     ta2 = th2;
                     ca2 = c2;

@@ -427,11 +427,11 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = -c2
                     s2 = -s2
                 else:
-                    cn2 = -root2*sg2*v1y
-                    sn2 = root2*sg2*v1x
+                    cn2 = -sg2*v1y
+                    sn2 = sg2*v1x
                     th2 = atan2(sn2, cn2)
-                    c2 = cn2/t5_0
-                    s2 = sn2/t5_0
+                    c2 = cn2/root2
+                    s2 = sn2/root2
 
             # A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             v2z = -c2*v1y + s2*v1x
@@ -627,11 +627,11 @@ def inverse_joints(pose, current=None):
                     c2 = -c2
                     s2 = -s2
                 else:
-                    cn2 = -root2*sg2*v1y
-                    sn2 = root2*sg2*v1x
+                    cn2 = -sg2*v1y
+                    sn2 = sg2*v1x
                     th2 = atan2(sn2, cn2)
-                    c2 = cn2/t5_0
-                    s2 = sn2/t5_0
+                    c2 = cn2/root2
+                    s2 = sn2/root2
 
             # A2^-1 A1^-1 w: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             v2z = -c2*v1y + s2*v1x

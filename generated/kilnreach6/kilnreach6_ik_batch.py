@@ -180,11 +180,11 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         root2 = numpy.sqrt(numpy.maximum(t5_0, 0.0))
         sg2 = _SIGNS.reshape(1, 2, 1)
         valid = valid & ~((sg2 < 0.0) & (free2 | (root2 == 0.0)))
-        cn2 = -root2*sg2*v1y
-        sn2 = root2*sg2*v1x
+        cn2 = -sg2*v1y
+        sn2 = sg2*v1x
         th2 = numpy.arctan2(sn2, cn2)
-        c2 = cn2/t5_0
-        s2 = sn2/t5_0
+        c2 = cn2/root2
+        s2 = sn2/root2
         if free2.any():
             th2 = numpy.where(free2, _one_turn((hint[1])), th2)
             c2 = numpy.where(free2, numpy.cos(_one_turn((hint[1]))), c2)

@@ -285,11 +285,11 @@ static int closed_form(const float pose[16], const float *current,
                     c2 = -ca2;
                     s2 = -sa2;
                 } else {
-                    const float cn2 = -root2*sg2*v1y;
-                    const float sn2 = root2*sg2*v1x;
+                    const float cn2 = -sg2*v1y;
+                    const float sn2 = sg2*v1x;
                     th2 = kilnreach6_ik_f32_atan2(sn2, cn2);
-                    c2 = cn2/t5_0;
-                    s2 = sn2/t5_0;
+                    c2 = cn2/root2;
+                    s2 = sn2/root2;
 
                     ta2 = th2;
                     ca2 = c2;

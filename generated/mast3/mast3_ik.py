@@ -379,11 +379,11 @@ def _closed_form(pose, current, check_finite=True):
                     c2 = -c2
                     s2 = -s2
                 else:
-                    cn2 = -q1y*root2*sg2
-                    sn2 = q1x*root2*sg2
+                    cn2 = -q1y*sg2
+                    sn2 = q1x*sg2
                     th2 = atan2(sn2, cn2)
-                    c2 = cn2/t3_0
-                    s2 = sn2/t3_0
+                    c2 = cn2/root2
+                    s2 = sn2/root2
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2z = -c2*q1y + q1x*s2
@@ -483,11 +483,11 @@ def inverse_joints(pose, current=None):
                     c2 = -c2
                     s2 = -s2
                 else:
-                    cn2 = -q1y*root2*sg2
-                    sn2 = q1x*root2*sg2
+                    cn2 = -q1y*sg2
+                    sn2 = q1x*sg2
                     th2 = atan2(sn2, cn2)
-                    c2 = cn2/t3_0
-                    s2 = sn2/t3_0
+                    c2 = cn2/root2
+                    s2 = sn2/root2
 
             # A2^-1 A1^-1 p: the known side with joints 1, 2 moved over (A2^-1 times the previous one)
             q2z = -c2*q1y + q1x*s2

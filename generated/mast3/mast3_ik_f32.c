@@ -232,11 +232,11 @@ static int closed_form(const float pose[16], const float *current,
                     c2 = -ca2;
                     s2 = -sa2;
                 } else {
-                    const float cn2 = -q1y*root2*sg2;
-                    const float sn2 = q1x*root2*sg2;
+                    const float cn2 = -q1y*sg2;
+                    const float sn2 = q1x*sg2;
                     th2 = mast3_ik_f32_atan2(sn2, cn2);
-                    c2 = cn2/t3_0;
-                    s2 = sn2/t3_0;
+                    c2 = cn2/root2;
+                    s2 = sn2/root2;
 
                     ta2 = th2;
                     ca2 = c2;

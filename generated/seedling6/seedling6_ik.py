@@ -408,11 +408,11 @@ def _closed_form(pose, current, check_finite=True):
                 c1 = -c1
                 s1 = -s1
             else:
-                cn1 = root1*sg1*wx
-                sn1 = root1*sg1*wy
+                cn1 = sg1*wx
+                sn1 = sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/t3_0
-                s1 = sn1/t3_0
+                c1 = cn1/root1
+                s1 = sn1/root1
 
         # joint 1's reading: once here, not once per inner root
         u1 = th1 - 0.5235987755982991
@@ -727,11 +727,11 @@ def inverse_joints(pose, current=None):
                 c1 = -c1
                 s1 = -s1
             else:
-                cn1 = root1*sg1*wx
-                sn1 = root1*sg1*wy
+                cn1 = sg1*wx
+                sn1 = sg1*wy
                 th1 = atan2(sn1, cn1)
-                c1 = cn1/t3_0
-                s1 = sn1/t3_0
+                c1 = cn1/root1
+                s1 = sn1/root1
 
         # joint 1's reading: once here, not once per inner root
         u1 = th1 - 0.5235987755982991

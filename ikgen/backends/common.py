@@ -1179,6 +1179,13 @@ def specialise_cossin(block: Block, a, b, c, norm, radicand) -> None:
     elif c.is_number and c == 0 and not block.mirrored:
         # c = 0: (cn, sn) of the second root are those of the first negated (one atan2 for both)
         block.antipodal = True
+    if c.is_number and c == 0 and block.radicand == block.norm and block.norm != 1:
+        # c = 0 and root = sqrt(norm) > 0 (where not free): (cn, sn) = root (-sg b, sg a), and atan2
+        # needs only their direction, so the root factor goes (atan2 waits for no square root, and
+        # no product by it); cos and sin are then (cn, sn) / root, a division instead of one by norm
+        block.cn, block.sn = (sp.expand(e / root) for e in (block.cn, block.sn))
+        block.cos_expr, block.sin_expr = cn / root, sn / root
+        return
     block.cos_expr = cn / block.norm if block.norm != 1 else cn
     block.sin_expr = sn / block.norm if block.norm != 1 else sn
     if block.norm.is_number and block.norm != 1:
