@@ -187,7 +187,9 @@ class _Walk:
                 continue
             cos_j, sin_j, th_j = cos_symbol(j), sin_symbol(j), angle_symbol(j)
             if block.kind == "cossin":
-                for expr in (block.c, block.norm, block.guard_scale):
+                for expr in (block.c, block.norm, block.guard):     # the guard's tolerance is the
+                    # double build's; the float build's (FLOAT_GUARD_TOLERANCE, 3e-6) is larger but its
+                    # term, 6e-6 times the norm, changes the sum by far less than MARGIN
                     if expr is not None:
                         self.value(expr)
                 radicand = self.value(block.radicand)
