@@ -59,6 +59,7 @@ class CSolver:
         from .backends.common import lower, max_solutions
         plan = lower(derivation)
         self.max_solutions = max_solutions(arm, plan)
+        self.closed_form = plan.max_solutions        # solutions before multi-turn joints' equivalents
         self.conditions = len(plan.condition_blocks)
         self.dof = arm.dof
         self.given = arm.given_joint
@@ -250,9 +251,10 @@ class CSolver:
 
     def inverse_many(self, poses, given=None, limits="drop", threads=None,
                      out=None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """(joints N x max x dof, counts N, labels N x max x labels (+1/-1), singular N x max) for N x 4 x 4
-        poses (and N readings of the given joint, for an arm that has one); the slots after a pose's
-        count hold zeros.
+        """(joints N x slots x dof, counts N, labels N x slots x labels (+1/-1), singular N x slots) for
+        N x 4 x 4 poses (and N readings of the given joint, for an arm that has one); the slots after a
+        pose's count hold zeros. slots: the most solutions a pose can have in the mode, the closed-form
+        count with limits="ignore" (no multi-turn equivalents), else MAX_SOLUTIONS.
 
         The loop runs in C. ``threads`` (default: one per CPU for at least MANY_PER_THREAD poses a
         thread, else one) splits the poses into that many contiguous parts solved at once: cffi
@@ -272,7 +274,8 @@ class CSolver:
             threads = max(1, min(os.cpu_count() or 1, n // MANY_PER_THREAD))
         elif not isinstance(threads, int) or isinstance(threads, bool) or threads < 1:
             raise ValueError(f"threads must be a whole number of at least 1, not {threads!r:.40}")
-        joints, counts, labels, singular = self._many_arrays(n, out)
+        width = self.closed_form if limits == "ignore" else self.max_solutions
+        joints, counts, labels, singular = self._many_arrays(n, out, width)
 
         def solve(start: int, stop: int) -> None:
             extra = () if values is None else (self._pointer(values[start:stop]),)
@@ -290,11 +293,11 @@ class CSolver:
         return joints, counts, labels, singular
 
 
-    def _many_arrays(self, n: int, out) -> tuple:
-        """inverse_many's four output arrays: new ones (the C loop writes every slot), or ``out``
-        checked to be what a call with n poses returns."""
-        shapes = [((n, self.max_solutions, self.dof), self.dtype), ((n,), np.int32),
-                  ((n, self.max_solutions, max(len(self.labels), 1)), np.int8), ((n, self.max_solutions), np.int32)]
+    def _many_arrays(self, n: int, out, width: int) -> tuple:
+        """inverse_many's four output arrays, ``width`` slots a pose: new ones (the C loop writes every
+        slot), or ``out`` checked to be what a call with n poses in this limits mode returns."""
+        shapes = [((n, width, self.dof), self.dtype), ((n,), np.int32),
+                  ((n, width, max(len(self.labels), 1)), np.int8), ((n, width), np.int32)]
         if out is None:
             return tuple(np.empty(shape, dtype=dtype) for shape, dtype in shapes)
         names = ("joints", "counts", "labels", "singular")
@@ -306,7 +309,7 @@ class CSolver:
                     and array.flags.c_contiguous and array.flags.writeable):
                 got = f"{array.dtype} {array.shape}" if isinstance(array, np.ndarray) else type(array).__name__
                 raise ValueError(f"out's {name} must be a writeable C-contiguous {np.dtype(dtype)} array of shape "
-                                 f"{shape} (as inverse_many returns for {n} poses), not {got}")
+                                 f"{shape} (as inverse_many returns for {n} poses in this limits mode), not {got}")
         return tuple(out)
 
 
@@ -356,6 +359,7 @@ def _build(cffi, arm: Arm, derivation: Derivation, scalar, scratch: Path, module
     from .backends.common import lower, max_solutions
     plan = lower(derivation)
     context = {"names": names, "real": scalar.name, "dof": arm.dof, "max": max_solutions(arm, plan),
+               "closed": plan.max_solutions,
                "GP": f"{scalar.name} given, " if arm.given_joint else "",
                "conditions": max(len(plan.condition_blocks), 1), "labels": max(len(plan.labels), 1),
                "target": derivation.target.kind if derivation.target else "pose"}

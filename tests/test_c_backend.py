@@ -471,6 +471,10 @@ def test_single_and_batch_entry_points_agree(demos, stem):
     poses = demo.chain.poses(readings)
     for limits in LIMIT_MODES:
         joints, counts, config, singular = solver.inverse_many(poses, limits=limits)
+        # a pose's row: every solution the mode can give (no multi-turn equivalents when ignored)
+        slots = solver.closed_form if limits == "ignore" else solver.max_solutions
+        assert joints.shape == (len(poses), slots, solver.dof) and singular.shape == (len(poses), slots)
+        assert config.shape[:2] == (len(poses), slots) and counts.max() <= slots
         for i, pose in enumerate(poses):
             one = solver.inverse(pose, limits=limits)
             assert len(one) == counts[i]
