@@ -208,3 +208,25 @@ def test_float_ladder_stops_at_the_reach_radicand():
     walk = bounds.majorants(plan, 1e6, "float")
     radicand = walk[sp.Symbol("er3", real=True)]
     assert 1e33 < radicand < bounds.LARGEST["float"] / bounds.MARGIN
+
+
+def test_walk_rules_on_small_expressions():
+    """The majorant rules on expressions whose bound is known by hand (triangle inequality,
+    |ab| = |a||b|, sqrt monotone, |atan2| <= pi); a quotient by a quantity with no lower bound, or
+    a value past the type's range over MARGIN, is refused."""
+    from types import SimpleNamespace
+    x, y = sp.symbols("x y", real=True)
+    plan = SimpleNamespace(pose_symbols=(x, y), blocks=[], final_temps=[], label_measures=[])
+    walk = bounds._Walk(plan, 10.0, "double")
+    assert walk.value(3 * x * y - 2 * x + 5) == 3 * 100 + 2 * 10 + 5
+    assert walk.value(sp.sqrt(x ** 2 + y ** 2)) == pytest.approx(np.sqrt(200.0), rel=1e-15)
+    assert walk.value(sp.Function("atan2")(y, x) * x) == pytest.approx(10 * np.pi, rel=1e-15)
+    with pytest.raises(bounds.Unbounded, match="quotient"):
+        walk.value(x / (x + y))
+    # 1e-3 x^2 y^2 at E = 1e2 is 1e5, but the code may form x^2 y^2 = 1e8 first: that is noted too
+    walk = bounds._Walk(plan, 100.0, "double")
+    walk.value(sp.Float(1e-3) * x ** 2 * y ** 2)
+    assert walk.peak == pytest.approx(1e8)
+    walk = bounds._Walk(plan, 1e10, "float")
+    with pytest.raises(bounds.Unbounded, match="may reach"):
+        walk.value(x ** 2 * y ** 2)           # 1e40 is past 3.4e38 / 16

@@ -90,7 +90,8 @@ class _Walk:
             if any(part is None for part in parts):
                 value = None
             elif expr.is_Add:
-                value = math.fsum(parts)       # every partial sum, in any order, is at most this
+                value = sum(parts)             # every partial sum, in any order, is at most this
+                                               # (no math.fsum: it raises where a sum overflows)
             else:
                 value = math.prod(parts)
                 # a partial product in another order than sympy's may pass through the factors above
