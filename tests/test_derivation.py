@@ -25,6 +25,7 @@ import sympy as sp
 import shared
 from helpers import DEMO_FILES, EXAMPLES, build_arm, demo_arm, joint
 from ikgen.armfile import arm_from_data
+from ikgen.backends import c as c_backend
 from ikgen.backends import common
 from ikgen.backends import python as python_backend
 from ikgen.engine import derive
@@ -136,6 +137,33 @@ def test_a_reading_fixed_by_an_outer_loop_is_converted_once_there():
     lean = python[python.index("def inverse_joints("):]
     assert lean.count("v1 = ") == 1
     assert lean.index("v1 = ") < lean.index("for sg3 in ")
+
+
+def test_roots_known_outside_their_loop_are_computed_once_before_it():
+    """inspector6's derivation solves the elbow (joint 3) before the shoulder (joint 1), whose two
+    roots are opposite and read only the wrist centre: the plan computes joint 1's root, atan2,
+    cosine and sine once before the elbow loop (hoist_roots), and the loop over joint 1's roots
+    inside the elbow's only picks the first root or its opposite, so the solutions keep their
+    order. Their values are checked against the forward kinematics, and C against Python bit for
+    bit, elsewhere (test_c_backend, test_golden)."""
+    arm = demo_arm("inspector6")
+    plan = common.lower(shared.built(arm).derivation)
+    one = next(b for b in plan.blocks if b.key == "1")
+    three = next(b for b in plan.blocks if b.key == "3")
+    assert one.prelude and one.depth == 1 and three.depth == 0 and three.preludes == [one]
+    assert plan.blocks.index(three) < plan.blocks.index(one)
+    python = shared.python_source(arm)
+    lean = python[python.index("def inverse_joints("):]
+    assert lean.count("atan2(sn1, cn1)") == 1
+    assert lean.index("ta1 = atan2(sn1, cn1)") < lean.index("for sg3 in ") < lean.index("for sg1 in roots1")
+    source = c_backend.render(arm, shared.built(arm).derivation)["inspector6_ik.c"]
+    lean_c = source[source.index("int inspector6_ik_inverse_joints("):]
+    assert lean_c.count("_atan2(sn1, cn1)") == 1
+    assert lean_c.index("ta1 = inspector6_ik_atan2(sn1, cn1)") < lean_c.index("for (int k3 = 0;") \
+        < lean_c.index("for (int k1 = 0;")
+    # benchtop6 solves joint 1 first: nothing to move
+    plan = common.lower(shared.built(demo_arm("benchtop6")).derivation)
+    assert not any(b.prelude or b.preludes for b in plan.blocks)
 
 
 def test_intermediates_only_a_fallback_reads_are_computed_there():

@@ -231,6 +231,29 @@ static int closed_form(const double pose[16], const double *current,
     const double q1y = pz - 160.0;
     const double v1y = wz - 160.0;
 
+    /* th1, its first root computed here, before the loops: no later unknown enters it (th1: z of A1^-1 w = A2 A3 c3)
+     * a*cos(th1) + b*sin(th1) = 0: the second root is the first turned by half a turn */
+
+    const int free1 = t3_0 <= 9.9999999999999988e-16;
+    if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
+        if (status) *status = ENGRAVER5_IK_UNREACHABLE;
+        return 0;
+    }
+    const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
+    const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
+    double ta1, ca1, sa1;   /* the first root */
+    if (free1) {
+        ta1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
+        ca1 = cos(ta1);
+        sa1 = sin(ta1);
+    } else {
+        const double cn1 = wx;
+        const double sn1 = wy;
+        ta1 = engraver5_ik_atan2(sn1, cn1);
+        ca1 = cn1/root1;
+        sa1 = sn1/root1;
+    }
+
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const double t2_0 = wx*wx + wy*wy + wz*wz - 320.0*wz;
@@ -267,40 +290,17 @@ static int closed_form(const double pose[16], const double *current,
         const double ks2_2 = -190.0*c3 + 20.0*s3;
         const double ks2_3 = -20.0*c3*v1y - 190.0*s3*v1y - 200.0*v1y;
 
-        /* th1: z of A1^-1 w = A2 A3 c3
-         * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-        const int free1 = t3_0 <= 9.9999999999999988e-16;
-        if (free1 ? 0.0 > 9.9999999999999988e-16 : 1.0000000019999999*t3_0 < 0.0) {
-            continue;
-        }
-        const double root1 = t3_0 > 0.0 ? sqrt(t3_0) : 0.0;
-        const int n1 = (free1 || root1 == 0.0) ? 1 : 2;
-        double ta1 = 0.0, ca1 = 0.0, sa1 = 0.0;   /* the first root, for the second */
+        /* th1: z of A1^-1 w = A2 A3 c3: the first root (computed before the loops) or the opposite one */
         for (int k1 = 0; k1 < n1; ++k1) {
-            const double sg1 = k1 ? -1.0 : 1.0;
             double th1, c1, s1;
-            if (free1) {
-                th1 = one_turn((0.0 + 0.017453292519943295 * (current && current[0] - current[0] == 0.0 ? fmod(current[0], 360.0) : 0.0)));
-                c1 = cos(th1);
-                s1 = sin(th1);
+            if (k1) {
+                th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
+                c1 = -ca1;
+                s1 = -sa1;
             } else {
-                if (k1) {   /* the second root: the first turned by half a turn */
-                    th1 = ta1 > 0.0 ? ta1 - 3.1415926535897931 : ta1 + 3.1415926535897931;
-                    c1 = -ca1;
-                    s1 = -sa1;
-                } else {
-                    const double cn1 = sg1*wx;
-                    const double sn1 = sg1*wy;
-                    th1 = engraver5_ik_atan2(sn1, cn1);
-                    c1 = cn1/root1;
-                    s1 = sn1/root1;
-
-                    ta1 = th1;
-                    ca1 = c1;
-                    sa1 = s1;
-                }
-
+                th1 = ta1;
+                c1 = ca1;
+                s1 = sa1;
             }
 
             /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */

@@ -215,6 +215,29 @@ static int closed_form(const float pose[16], const float *current,
     const float q1y = pz - 160.0f;
     const float v1y = wz - 160.0f;
 
+    /* th1, its first root computed here, before the loops: no later unknown enters it (th1: z of A1^-1 w = A2 A3 c3)
+     * a*cos(th1) + b*sin(th1) = 0: the second root is the first turned by half a turn */
+
+    const int free1 = t3_0 <= 1e-15f;
+    if (free1 ? 0.0f > 1e-15f : 1.000006f*t3_0 < 0.0f) {
+        if (status) *status = ENGRAVER5_IK_F32_UNREACHABLE;
+        return 0;
+    }
+    const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
+    const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
+    float ta1, ca1, sa1;   /* the first root */
+    if (free1) {
+        ta1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
+        ca1 = cosf(ta1);
+        sa1 = sinf(ta1);
+    } else {
+        const float cn1 = wx;
+        const float sn1 = wy;
+        ta1 = engraver5_ik_f32_atan2(sn1, cn1);
+        ca1 = cn1/root1;
+        sa1 = sn1/root1;
+    }
+
     /* th3: squared norm of A1^-1 w = A2 A3 c3
      * a*cos(th3) + b*sin(th3) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
     const float t2_0 = wx*wx + wy*wy + wz*wz - 320.0f*wz;
@@ -251,40 +274,17 @@ static int closed_form(const float pose[16], const float *current,
         const float ks2_2 = -190.0f*c3 + 20.0f*s3;
         const float ks2_3 = -20.0f*c3*v1y - 190.0f*s3*v1y - 200.0f*v1y;
 
-        /* th1: z of A1^-1 w = A2 A3 c3
-         * a*cos(th1) + b*sin(th1) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
-
-        const int free1 = t3_0 <= 1e-15f;
-        if (free1 ? 0.0f > 1e-15f : 1.000006f*t3_0 < 0.0f) {
-            continue;
-        }
-        const float root1 = t3_0 > 0.0f ? sqrtf(t3_0) : 0.0f;
-        const int n1 = (free1 || root1 == 0.0f) ? 1 : 2;
-        float ta1 = 0.0f, ca1 = 0.0f, sa1 = 0.0f;   /* the first root, for the second */
+        /* th1: z of A1^-1 w = A2 A3 c3: the first root (computed before the loops) or the opposite one */
         for (int k1 = 0; k1 < n1; ++k1) {
-            const float sg1 = k1 ? -1.0f : 1.0f;
             float th1, c1, s1;
-            if (free1) {
-                th1 = one_turn((0.0f + 0.0174532925f * (current && current[0] - current[0] == 0.0f ? fmodf(current[0], 360.0f) : 0.0f)));
-                c1 = cosf(th1);
-                s1 = sinf(th1);
+            if (k1) {
+                th1 = ta1 > 0.0f ? ta1 - 3.14159265f : ta1 + 3.14159265f;
+                c1 = -ca1;
+                s1 = -sa1;
             } else {
-                if (k1) {   /* the second root: the first turned by half a turn */
-                    th1 = ta1 > 0.0f ? ta1 - 3.14159265f : ta1 + 3.14159265f;
-                    c1 = -ca1;
-                    s1 = -sa1;
-                } else {
-                    const float cn1 = sg1*wx;
-                    const float sn1 = sg1*wy;
-                    th1 = engraver5_ik_f32_atan2(sn1, cn1);
-                    c1 = cn1/root1;
-                    s1 = sn1/root1;
-
-                    ta1 = th1;
-                    ca1 = c1;
-                    sa1 = s1;
-                }
-
+                th1 = ta1;
+                c1 = ca1;
+                s1 = sa1;
             }
 
             /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */

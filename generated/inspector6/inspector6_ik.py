@@ -387,6 +387,25 @@ def _closed_form(pose, current, check_finite=True):
     t4_0 = wx*wx + wy*wy
     v1y = wz - 180.0
 
+    # th1, its first root computed here, before the loops: no later unknown enters it (th1: z of A1^-1 w = A2 A3 c3)
+    # a*cos(th1) + b*sin(th1) = 0: the second root is the first turned by half a turn
+
+    free1 = t4_0 <= 9.999999999999999e-16
+    if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
+        return solutions
+    root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
+    roots1 = (1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)
+    if free1:
+        ta1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
+        ca1 = cos(ta1)
+        sa1 = sin(ta1)
+    else:
+        cn1 = wx
+        sn1 = wy
+        ta1 = atan2(sn1, cn1)
+        ca1 = cn1/root1
+        sa1 = sn1/root1
+
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz
@@ -417,29 +436,16 @@ def _closed_form(pose, current, check_finite=True):
         dq2 = -185600.0*s3 - 186500.0
         iq2 = (1.0/dq2 if dq2 else 0.0)
 
-        # th1: z of A1^-1 w = A2 A3 c3
-        # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
-        free1 = t4_0 <= 9.999999999999999e-16
-        if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
-            continue
-        root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
-        for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
-            if free1:
-                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
-                c1 = cos(th1)
-                s1 = sin(th1)
+        # th1: z of A1^-1 w = A2 A3 c3: the first root (computed before the loops) or the opposite one
+        for sg1 in roots1:
+            if sg1 < 0.0:
+                th1 = ta1 - _PI if ta1 > 0.0 else ta1 + _PI
+                c1 = -ca1
+                s1 = -sa1
             else:
-                if sg1 < 0.0:  # the second root: the first turned by half a turn
-                    th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
-                    c1 = -c1
-                    s1 = -s1
-                else:
-                    cn1 = sg1*wx
-                    sn1 = sg1*wy
-                    th1 = atan2(sn1, cn1)
-                    c1 = cn1/root1
-                    s1 = sn1/root1
+                th1 = ta1
+                c1 = ca1
+                s1 = sa1
 
             # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
             g16_11 = -c1*r12 + r22*s1
@@ -662,6 +668,25 @@ def inverse_joints(pose, current=None):
     t4_0 = wx*wx + wy*wy
     v1y = wz - 180.0
 
+    # th1, its first root computed here, before the loops: no later unknown enters it (th1: z of A1^-1 w = A2 A3 c3)
+    # a*cos(th1) + b*sin(th1) = 0: the second root is the first turned by half a turn
+
+    free1 = t4_0 <= 9.999999999999999e-16
+    if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
+        return solutions
+    root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
+    roots1 = (1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)
+    if free1:
+        ta1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
+        ca1 = cos(ta1)
+        sa1 = sin(ta1)
+    else:
+        cn1 = wx
+        sn1 = wy
+        ta1 = atan2(sn1, cn1)
+        ca1 = cn1/root1
+        sa1 = sn1/root1
+
     # th3: squared norm of A1^-1 w = A2 A3 c3
     # a*cos(th3) + b*sin(th3) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
     t3_0 = wx*wx + wy*wy + wz*wz - 360.0*wz
@@ -692,29 +717,16 @@ def inverse_joints(pose, current=None):
         dq2 = -185600.0*s3 - 186500.0
         iq2 = (1.0/dq2 if dq2 else 0.0)
 
-        # th1: z of A1^-1 w = A2 A3 c3
-        # a*cos(th1) + b*sin(th1) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
-
-        free1 = t4_0 <= 9.999999999999999e-16
-        if (0.0 > 9.999999999999999e-16) if free1 else (1.000000002*t4_0 < 0.0):
-            continue
-        root1 = sqrt(t4_0) if t4_0 > 0.0 else 0.0
-        for sg1 in ((1.0,) if free1 or root1 == 0.0 else (1.0, -1.0)):
-            if free1:
-                th1 = _one_turn((0.0 + 0.017453292519943295 * (fmod(current[0], 360.0) if current is not None else 0.0)))
-                c1 = cos(th1)
-                s1 = sin(th1)
+        # th1: z of A1^-1 w = A2 A3 c3: the first root (computed before the loops) or the opposite one
+        for sg1 in roots1:
+            if sg1 < 0.0:
+                th1 = ta1 - _PI if ta1 > 0.0 else ta1 + _PI
+                c1 = -ca1
+                s1 = -sa1
             else:
-                if sg1 < 0.0:  # the second root: the first turned by half a turn
-                    th1 = th1 - _PI if th1 > 0.0 else th1 + _PI
-                    c1 = -c1
-                    s1 = -s1
-                else:
-                    cn1 = sg1*wx
-                    sn1 = sg1*wy
-                    th1 = atan2(sn1, cn1)
-                    c1 = cn1/root1
-                    s1 = sn1/root1
+                th1 = ta1
+                c1 = ca1
+                s1 = sa1
 
             # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
             g16_11 = -c1*r12 + r22*s1

@@ -237,6 +237,10 @@ class Block:
     scale_free: bool = False     # pair whose cosine and sine nothing later reads: they are kept as the
                                  # numerators with the determinant's sign (c = +-cos_num, s = +-sin_num),
                                  # which is all atan2 needs: no division, no unit scaling
+    prelude: bool = False        # cossin with opposite roots whose inputs are known outside its enclosing
+                                 # loop: its first root is computed once there (see hoist_roots)
+    preludes: list = field(default_factory=list)   # loop-opening block: the prelude blocks computed
+                                                   # just before it (hoist_roots)
 
     @property
     def joint(self) -> str:      # the unknown's key (kept for templates that name variables by it)
@@ -633,6 +637,7 @@ def lower_now(derivation: Derivation) -> Plan:
     mark_root_tests(plan)
     hoist(plan)
     mark_late_angles(plan)
+    hoist_roots(plan)
     return plan
 
 
@@ -952,6 +957,42 @@ def mark_late_angles(plan: Plan) -> None:
             block.late_angle = angle_symbol(block.key) not in read
         for e in block_exprs(block):
             read |= sp.sympify(e).free_symbols
+
+
+def hoist_roots(plan: Plan) -> None:
+    """Loop-invariant hoisting of a whole root computation: a cossin block with opposite roots
+    (c = 0: one atan2 serves both) that sits inside a loop although its inputs are known outside
+    it (a shoulder's roots inside the elbow's loop, where the engine solved the elbow first) gets
+    its guard, root, atan2, cosine and sine computed once, just before the outermost loop whose
+    unknown it does not read (``prelude``; that loop-opening block lists it in ``preludes``). Its
+    own loop stays where it is and picks the first root or its opposite, so the solutions keep
+    their order. Only inputs named by compute blocks (whose level is their depth after hoist) or
+    the pose count as known outside; a block with temps of its own stays as it is."""
+    level: dict = {symbol: 0 for symbol in plan.pose_symbols}
+    for index, block in enumerate(plan.blocks):
+        if block.kind == "compute":
+            for assignment in block.temps:
+                level[assignment.target] = block.depth
+            continue
+        if not (block.kind == "cossin" and block.antipodal and not block.mirrored and block.depth > 0
+                and not block.temps and block.late_angle is False):
+            continue
+        own = {sp.Symbol(f"{name}{block.key}", real=True) for name in ("sg", "root", "cn", "sn")}
+        inputs: set = set()
+        for expr in (block.c, block.norm, block.radicand, block.guard, block.cn, block.sn, block.cos_expr,
+                     block.sin_expr):
+            if expr is not None:
+                inputs |= sp.sympify(expr).free_symbols - own
+        if not all(symbol in level for symbol in inputs):
+            continue
+        known = max((level[symbol] for symbol in inputs), default=0)
+        if known >= block.depth:
+            continue
+        anchor = next((b for b in reversed(plan.blocks[:index]) if b.depth == known and opens_loop(b)), None)
+        if anchor is None:
+            continue
+        block.prelude = True
+        anchor.preludes.append(block)
 
 
 def balanced_sum(terms: list[str]) -> str:
