@@ -206,18 +206,18 @@ class _Walk:
                 self.bound[sin_j] = self.unit(block.sin_expr)
                 self.bound[th_j] = abs(block.gamma or 0.0) + math.pi
             elif block.kind == "pair":
-                numerators = 0.0
+                numerators = dets = 0.0
                 for form in block.forms:
                     self.assign(form.temps)
                     det = self.value(form.det)
+                    dets = max(dets, det)
                     top = max(self.value(form.cos_num), self.value(form.sin_num))
                     numerators = max(numerators, top)
                     if block.scale_free and not form.consistent:
                         self.note(2.0 * top * top + det * det)    # the consistency test's squares
                     elif not block.scale_free and form.consistent:
                         self.note(2.0 * (top / form.limit(self.real)) ** 2)   # the unit scaling's square
-                self.bound[sp.Symbol(f"dt{j}", real=True)] = max((self.value(form.det) for form in block.forms),
-                                                                 default=0.0)
+                self.bound[sp.Symbol(f"dt{j}", real=True)] = dets
                 self.bound[cos_j] = self.bound[sin_j] = numerators if block.scale_free else UNIT
                 self.bound[th_j] = math.pi
             elif block.kind == "sum":
@@ -239,22 +239,19 @@ def majorants(plan, entry: float, real: str) -> dict:
     return dict(walk.bound)
 
 
-def fits(plan, entry: float, real: str) -> bool:
-    """Whether no intermediate of ``plan`` can overflow ``real`` when every pose entry is within ``entry``."""
-    try:
-        _Walk(plan, entry, real).walk(plan)
-    except Unbounded:
-        return False
-    return True
-
-
 def why_not(plan, entry: float, real: str) -> str:
-    """Why ``fits`` fails ('' when it holds): for the report and for tests."""
+    """Why an intermediate of ``plan`` may overflow ``real`` with every pose entry within ``entry``
+    ('' when none can)."""
     try:
         _Walk(plan, entry, real).walk(plan)
     except Unbounded as reason:
         return str(reason)
     return ""
+
+
+def fits(plan, entry: float, real: str) -> bool:
+    """Whether no intermediate of ``plan`` can overflow ``real`` when every pose entry is within ``entry``."""
+    return not why_not(plan, entry, real)
 
 
 def safe_entry(plan, real: str) -> float:

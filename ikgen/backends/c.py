@@ -116,7 +116,6 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         within_checks=common.limit_checked(common.joint_turns(arm)),
         probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
         safe_entry=bounds.safe_entry(plan, scalar.name), label_inputs=label_inputs(plan),
-        first_root=lambda key: {sp.Symbol(f"sg{key}", real=True): 1},
         max_turns=max(t.count for t in common.joint_turns(arm)),
         # the polynomial's tangency band and root precision follow the scalar type, as the clamp does
         poly_tolerance=lambda block: block.tolerance if scalar.name == "double" else max(block.tolerance, 1e-5),

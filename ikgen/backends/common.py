@@ -259,6 +259,12 @@ class Block:
         they are computed."""
         return self.checked and any(form.consistent for form in self.forms)
 
+    def first_root(self) -> tuple[sp.Expr, sp.Expr]:
+        """A cossin block's (cn, sn) for its first root (sg = +1): what a prelude computes once
+        (hoist_roots)."""
+        first = {sp.Symbol(f"sg{self.key}", real=True): 1}
+        return sp.sympify(self.cn).subs(first), sp.sympify(self.sn).subs(first)
+
     def root_parts(self) -> tuple[list[Assignment], sp.Expr | None, sp.Expr | None]:
         """For a cossin block with constant a and b (gamma): its cosine and sine per root as
         A + B sg, with A and B named before the loop over the roots (they read the radicand's root

@@ -97,7 +97,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
-        safe_entry=bounds.safe_entry(plan, "double"), first_root=lambda key: {sp.Symbol(f"sg{key}", real=True): 1}))
+        safe_entry=bounds.safe_entry(plan, "double")))
 
 
 TARGET_API = {
