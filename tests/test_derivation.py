@@ -166,6 +166,34 @@ def test_roots_known_outside_their_loop_are_computed_once_before_it():
     assert not any(b.prelude or b.preludes for b in plan.blocks)
 
 
+def test_labels_known_above_the_innermost_level_are_picked_there():
+    """benchtop6's reach label reads only joint 1's solution (the wrist centre seen from link 1):
+    the plan places it right after the block of joint 1's roots (Plan.label_places), and the
+    generated Python picks its subtable of the prebuilt configurations there, once per reach root,
+    before the elbow loop; the elbow label is picked once per elbow root for a solution and its
+    mirrored twin, and the wrist bend (the wrist's root, never negative) needs no test at all.
+    The labels' values are checked against their geometric definitions in test_labels and the
+    Python solver against the C solver in test_c_backend."""
+    arm = demo_arm("benchtop6")
+    plan = common.lower(shared.built(arm).derivation)
+    names = [label.name for label in plan.labels]
+    places = plan.label_places()
+    assert set(places) == {names.index("reach")}
+    after = plan.blocks[places[names.index("reach")]]
+    assert after.key == "" and after.kind == "compute" and after.depth == 1 < plan.depth
+    assert python_backend.constant_label(plan, names.index("wrist_bend"))
+    assert not python_backend.constant_label(plan, names.index("elbow"))
+    full = shared.python_source(arm)
+    full = full[full.index("def _closed_form("):full.index("def inverse_joints(")]
+    assert full.index("cfg0 = _CONFIGS[0 if v1x + 25.0 >= 0.0 else 1]") < full.index("for sg3 in ")
+    assert full.count("cfgs = cfg0[0 if lm1 >= 0.0 else 1]") == 1
+    assert "cfgs[0]" in full and "cfgs[1]" in full and "la0 =" not in full and "lm2" not in full
+    # labels that all wait for the innermost level, none of them constant: a tuple per solution
+    arm = demo_arm("boardpick4")
+    assert not common.lower(shared.built(arm).derivation).label_places()
+    assert "_CONFIGS" not in shared.python_source(arm) and "la0 = " in shared.python_source(arm)
+
+
 def test_intermediates_only_a_fallback_reads_are_computed_there():
     """benchtop6's elbow pair (joint 2) has later forms for where its first form's determinant is
     ~0; the entries of A1^-1 T that only they read move into them (sink_into_fallbacks): no compute

@@ -101,7 +101,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -211,9 +210,34 @@ def inverse(pose, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        (
+            ("reach_forward", "elbow_up", "bend_positive", ),
+            ("reach_forward", "elbow_up", "bend_negative", ),
+        ),
+        (
+            ("reach_forward", "elbow_down", "bend_positive", ),
+            ("reach_forward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+    (
+        (
+            ("reach_backward", "elbow_up", "bend_positive", ),
+            ("reach_backward", "elbow_up", "bend_negative", ),
+        ),
+        (
+            ("reach_backward", "elbow_down", "bend_positive", ),
+            ("reach_backward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -221,7 +245,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
         large = False                                      # infinite or beyond SAFE_ENTRY
@@ -242,7 +269,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -373,12 +400,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     pcx = px - 95.0*r13
     pcy = py - 95.0*r23
@@ -424,6 +449,8 @@ def _closed_form(pose, current, check_finite=True):
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
 
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg0 = _CONFIGS[0 if v1x + 25.0 >= 0.0 else 1]
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = c1*r11 + r21*s1
         g16_12 = c1*r12 + r22*s1
@@ -653,9 +680,7 @@ def _closed_form(pose, current, check_finite=True):
 
             # Joint readings, configuration labels, singular flag.
 
-            lm0 = v1x + 25.0
             lm1 = 62400.0*c3 + 5200.0*s3
-            lm2 = root5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
             u2 = th2 - -1.5707963267948966
@@ -664,15 +689,9 @@ def _closed_form(pose, current, check_finite=True):
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
-            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
-            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
-            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
             inside = -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -150.0000003 <= v3 <= 150.0000003   # the readings the mirrored twin shares
-            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                la0,
-                la1,
-                la2,
-            ), singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
+            cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
+            solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
@@ -681,11 +700,7 @@ def _closed_form(pose, current, check_finite=True):
                 v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
                 u6 = th6 + 3.141592653589793
                 v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
-                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                    la0,
-                    la1,
-                    "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
+                solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -109,7 +109,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 0.0  # no overflow bound was proved for this solver: every solution is tested for NaN and infinity
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -245,9 +244,11 @@ def _project(pose):
     r = _turned(c / norm, s / norm)
     return (r[0] + (pose[0][3],), r[1] + (pose[1][3],), r[2] + (pose[2][3],)), tilt
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -255,7 +256,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= LARGEST_ENTRY:              # the usual case, one call: no entry is NaN,
         large = True                                       # infinite or beyond LARGEST_ENTRY (no SAFE_ENTRY)
@@ -277,7 +281,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -376,12 +380,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     pcx = px - 30.0*r13
     pcy = py - 30.0*r23
@@ -618,7 +620,7 @@ def _closed_form(pose, current, check_finite=True):
         u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
         v4 = u4 * 57.29577951308232
         la0 = "counterclockwise" if lm0 >= 0.0 else "clockwise"
-        solutions.append(_new(Solution, ((v1, v2, v3, v4, ), (
+        solutions.append(Solution(((v1, v2, v3, v4, ), (
             la0,
         ), singular, conditioning, -140.00000028 <= v1 <= 140.00000028 and -150.0000003 <= v2 <= 150.0000003 and -1.8000000000000002e-07 <= v3 <= 180.00000018)))
 

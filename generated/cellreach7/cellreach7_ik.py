@@ -108,7 +108,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 0.0  # no overflow bound was proved for this solver: every solution is tested for NaN and infinity
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -219,9 +218,34 @@ def inverse(pose, given, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True, given)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        (
+            ("bend_positive", "bend_positive", "bend_positive", ),
+            ("bend_positive", "bend_positive", "bend_negative", ),
+        ),
+        (
+            ("bend_negative", "bend_positive", "bend_positive", ),
+            ("bend_negative", "bend_positive", "bend_negative", ),
+        ),
+    ),
+    (
+        (
+            ("bend_positive", "bend_negative", "bend_positive", ),
+            ("bend_positive", "bend_negative", "bend_negative", ),
+        ),
+        (
+            ("bend_negative", "bend_negative", "bend_positive", ),
+            ("bend_negative", "bend_negative", "bend_negative", ),
+        ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -229,7 +253,10 @@ def _solve(pose, current, limits, check, given):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     given = _real(given, "given")
     if given - given != 0.0:
         return [], "invalid_input"
@@ -251,7 +278,7 @@ def _solve(pose, current, limits, check, given):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -462,12 +489,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True, given=0.0):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     pcx = px - 134.0*r13
     pcy = py - 134.0*r23
@@ -508,6 +533,8 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
 
         # joint 4's reading: once here, not once per inner root
         v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg1 = _CONFIGS[0 if s4 >= 0.0 else 1]
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
         kc2_1 = -372.0*c4*v1y - 415.0*v1y
@@ -758,8 +785,6 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = s2
-            lm1 = s4
-            lm2 = root6
             singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
             conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
@@ -767,15 +792,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
-            la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
-            la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
-            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
             inside = -165.00000033 <= v1 <= 165.00000033 and -115.00000023 <= v2 <= 115.00000023 and -165.00000033 <= given <= 165.00000033 and -125.00000025000001 <= v4 <= 125.00000025000001   # the readings the mirrored twin shares
-            solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
-                la0,
-                la1,
-                la2,
-            ), singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
+            cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
+            solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[0], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
             if root6 > 0.0 and not free5:
                 u5 = th5 + 3.141592653589793
@@ -784,11 +803,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
                 v6 = (u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6) * 57.29577951308232
                 u7 = th7 + 3.141592653589793
                 v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
-                solutions.append(_new(Solution, ((v1, v2, given, v4, v5, v6, v7, ), (
-                    la0,
-                    la1,
-                    "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
+                solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[1], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

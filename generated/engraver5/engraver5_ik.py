@@ -110,7 +110,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -242,9 +241,34 @@ def _roll_allowance(conditioning):
     m = min(conditioning) if conditioning else 1.0
     return ROLL_TOLERANCE + ROLL_GAIN / (m if m > ROLL_FLOOR else ROLL_FLOOR)
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        (
+            ("reach_forward", "elbow_up", "bend_positive", ),
+            ("reach_forward", "elbow_up", "bend_negative", ),
+        ),
+        (
+            ("reach_backward", "elbow_up", "bend_positive", ),
+            ("reach_backward", "elbow_up", "bend_negative", ),
+        ),
+    ),
+    (
+        (
+            ("reach_forward", "elbow_down", "bend_positive", ),
+            ("reach_forward", "elbow_down", "bend_negative", ),
+        ),
+        (
+            ("reach_backward", "elbow_down", "bend_positive", ),
+            ("reach_backward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -252,7 +276,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
         large = False                                      # infinite or beyond SAFE_ENTRY
@@ -277,7 +304,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -398,12 +425,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # wrist point in the DH base frame: p - lam u, on the tool's axis
     wx = px - 60.0*r13
     wy = py - 60.0*r23
@@ -456,6 +481,8 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 3's reading: once here, not once per inner root
         v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg1 = _CONFIGS[0 if 38000.0*c3 - 4000.0*s3 >= 0.0 else 1]
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -20.0*c3 - 190.0*s3 - 200.0
         kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y
@@ -647,7 +674,6 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3
-            lm1 = 38000.0*c3 - 4000.0*s3
             lm2 = c4*n3x + n1z*s4
             singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
@@ -656,26 +682,16 @@ def _closed_form(pose, current, check_finite=True):
             v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
-            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
-            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
-            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
             inside = -170.00000034 <= v1 <= 170.00000034 and -100.0000002 <= v2 <= 100.0000002 and -135.00000027 <= v3 <= 135.00000027   # the readings the mirrored twin shares
-            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, ), (
-                la0,
-                la1,
-                la2,
-            ), singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
+            cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
+            solutions.append(Solution(((v1, v2, v3, v4, v5, ), cfgs[0 if lm2 >= 0.0 else 1], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
                 v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
                 u5 = -th5
                 v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
-                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, ), (
-                    la0,
-                    la1,
-                    "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
+                solutions.append(Solution(((v1, v2, v3, v4, v5, ), cfgs[1 if lm2 >= 0.0 else 0], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

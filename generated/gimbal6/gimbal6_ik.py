@@ -204,7 +204,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 0.0  # no overflow bound was proved for this solver: every solution is tested for NaN and infinity
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -314,9 +313,22 @@ def inverse(pose, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        ("bend_positive", "bend_positive", ),
+        ("bend_negative", "bend_positive", ),
+    ),
+    (
+        ("bend_positive", "bend_negative", ),
+        ("bend_negative", "bend_negative", ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -324,7 +336,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= LARGEST_ENTRY:              # the usual case, one call: no entry is NaN,
         large = True                                       # infinite or beyond LARGEST_ENTRY (no SAFE_ENTRY)
@@ -345,7 +360,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -496,12 +511,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # base centre (where axes 1, 2, 3 meet) seen from the last DH frame: T^-1 b0
     bx = -px*r11 - py*r21 - pz*r31 + 0.3*r31
     by = -px*r12 - py*r22 - pz*r32 + 0.3*r32
@@ -689,7 +702,6 @@ def _closed_form(pose, current, check_finite=True):
 
         # Joint readings, configuration labels, singular flag.
 
-        lm0 = root2
         lm1 = 0.8660254037844386*s5
         singular = free6 or dbl6 or free5 or root2 == 0.0 or free1
         conditioning = (cnd6, root2, )
@@ -700,13 +712,9 @@ def _closed_form(pose, current, check_finite=True):
         v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
         u6 = th6 - 6.283185307179586 if th6 > 3.141592653589793 else (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6)
         v6 = u6 * 57.29577951308232
-        la0 = "bend_positive" if lm0 >= 0.0 else "bend_negative"
-        la1 = "bend_positive" if lm1 >= 0.0 else "bend_negative"
         inside = -170.00000034 <= v4 <= 170.00000034 and -170.00000034 <= v5 <= 170.00000034 and -170.00000034 <= v6 <= 170.00000034   # the readings the mirrored twin shares
-        solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-            la0,
-            la1,
-        ), singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
+        cfgs = _CONFIGS[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
+        solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
         if root2 > 0.0 and not free1:
             u1 = th1 + 3.141592653589793
@@ -715,10 +723,7 @@ def _closed_form(pose, current, check_finite=True):
             v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
             u3 = th3 + 3.141592653589793
             v3 = (u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3) * 57.29577951308232
-            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                "bend_negative" if lm0 >= 0.0 else "bend_positive",
-                la1,
-            ), singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
+            solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -101,7 +101,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -209,9 +208,34 @@ def inverse(pose, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        (
+            ("reach_forward", "elbow_up", "bend_positive", ),
+            ("reach_forward", "elbow_down", "bend_positive", ),
+        ),
+        (
+            ("reach_forward", "elbow_up", "bend_negative", ),
+            ("reach_forward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+    (
+        (
+            ("reach_backward", "elbow_up", "bend_positive", ),
+            ("reach_backward", "elbow_down", "bend_positive", ),
+        ),
+        (
+            ("reach_backward", "elbow_up", "bend_negative", ),
+            ("reach_backward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -219,7 +243,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
         large = False                                      # infinite or beyond SAFE_ENTRY
@@ -238,7 +265,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -366,12 +393,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     pcx = px - 62.0*r13
     pcy = py - 62.0*r23
@@ -414,6 +439,8 @@ def _closed_form(pose, current, check_finite=True):
         g16_22 = c1*r22 - r12*s1
         g16_23 = c1*r23 - r13*s1
 
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg0 = _CONFIGS[0 if -78.0*g16_13 + g16_14 >= 0.0 else 1]
         # th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
         # a*cos(th5) + b*sin(th5) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         er5 = g16_13*g16_13 + r33*r33
@@ -432,6 +459,8 @@ def _closed_form(pose, current, check_finite=True):
 
             # joint 5's reading: once here, not once per inner root
             v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
+            # configuration labels known here (once here, not once per solution): their subtable
+            cfg2 = cfg0[0 if s5 >= 0.0 else 1]
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
@@ -547,9 +576,7 @@ def _closed_form(pose, current, check_finite=True):
 
                 # Joint readings, configuration labels, singular flag.
 
-                lm0 = -78.0*g16_13 + g16_14
                 lm1 = -97350.0*s3
-                lm2 = s5
                 singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
                 conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
                 u2 = th2 - 1.5707963267948966
@@ -560,14 +587,7 @@ def _closed_form(pose, current, check_finite=True):
                 u4 = u4 - 6.283185307179586 if u4 > 3.141592653589793 else (u4 + 6.283185307179586 if u4 <= -3.141592653589793 else u4)
                 v4 = u4 * 57.29577951308232
                 v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
-                la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
-                la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
-                la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
-                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                    la0,
-                    la1,
-                    la2,
-                ), singular, conditioning, -175.00000035 <= v2 <= 175.00000035 and -160.00000032 <= v3 <= 160.00000032 and -175.00000035 <= v4 <= 175.00000035 and -175.00000035 <= v5 <= 175.00000035)))
+                solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfg2[0 if lm1 >= 0.0 else 1], singular, conditioning, -175.00000035 <= v2 <= 175.00000035 and -160.00000032 <= v3 <= 160.00000032 and -175.00000035 <= v4 <= 175.00000035 and -175.00000035 <= v5 <= 175.00000035)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

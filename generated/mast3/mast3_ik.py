@@ -102,7 +102,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -205,9 +204,22 @@ def inverse_point(point, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, False)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        ("reach_forward", "root_plus", ),
+        ("reach_forward", "root_minus", ),
+    ),
+    (
+        ("reach_backward", "root_plus", ),
+        ("reach_backward", "root_minus", ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -215,7 +227,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
         large = False                                      # infinite or beyond SAFE_ENTRY
@@ -236,7 +251,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -325,12 +340,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them)
     q1y = 1500.0 - pz
 
@@ -360,6 +373,8 @@ def _closed_form(pose, current, check_finite=True):
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
 
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg0 = _CONFIGS[0 if q1x >= 0.0 else 1]
         # th2: x of A2^-1 A1^-1 p = A3 t
         # a*cos(th2) + b*sin(th2) = c: two solutions th = atan2(b*c + sg*a*root, a*c - sg*b*root)
         t3_0 = q1x*q1x + q1y*q1y
@@ -400,18 +415,12 @@ def _closed_form(pose, current, check_finite=True):
             if not 399.9999984 <= (l3 - 0.0) * 1.0 <= 2000.0000016:
                 continue
 
-            lm0 = q1x
             lm1 = -c2*q1y + q1x*s2
             singular = free1 or root1 == 0.0 or free2 or root2 == 0.0
             conditioning = (root1 * 0.001, root2 * 0.001, )
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
-            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
-            la1 = "root_plus" if lm1 >= 0.0 else "root_minus"
-            solutions.append(_new(Solution, ((v1, v2, v3, ), (
-                la0,
-                la1,
-            ), singular, conditioning, -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and 399.9999984 <= v3 <= 2000.0000016)))
+            solutions.append(Solution(((v1, v2, v3, ), cfg0[0 if lm1 >= 0.0 else 1], singular, conditioning, -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and 399.9999984 <= v3 <= 2000.0000016)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

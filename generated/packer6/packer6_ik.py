@@ -101,7 +101,6 @@ class Solution(tuple):
         """True when every reading lies within JOINT_LIMITS."""
         return self[4]
 
-_new = tuple.__new__
 LARGEST_ENTRY = 1e150  # a pose entry beyond this (or NaN, infinite) is invalid input: its square would overflow
 SAFE_ENTRY = 1e+10  # every entry within this: no intermediate can overflow (proved when generated), no finite test
 _POSE_FORM = "a 4x4 or 3x4 row-major matrix of real numbers (nested lists or tuples, or a numpy array)"
@@ -211,9 +210,34 @@ def inverse(pose, current=None, limits="drop", with_status=False):
     solutions, status = _solve(pose, current, limits, True)
     return (solutions, status) if with_status else solutions
 
+_LIMIT_MODES = ("drop", "flag", "ignore")
+# every configuration as a prebuilt tuple, nested by label in the order the solver knows them
+_CONFIGS = (
+    (
+        (
+            ("reach_forward", "elbow_up", "bend_positive", ),
+            ("reach_forward", "elbow_up", "bend_negative", ),
+        ),
+        (
+            ("reach_forward", "elbow_down", "bend_positive", ),
+            ("reach_forward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+    (
+        (
+            ("reach_backward", "elbow_up", "bend_positive", ),
+            ("reach_backward", "elbow_up", "bend_negative", ),
+        ),
+        (
+            ("reach_backward", "elbow_down", "bend_positive", ),
+            ("reach_backward", "elbow_down", "bend_negative", ),
+        ),
+    ),
+)
+
 def _check(limits, current):
     """``current`` as readings (see _readings) after checking ``limits``; ValueError when either is malformed."""
-    if not isinstance(limits, str) or limits not in ("drop", "flag", "ignore"):
+    if not isinstance(limits, str) or limits not in _LIMIT_MODES:
         raise ValueError(f"limits must be 'drop', 'flag' or 'ignore', not {limits!r:.80}")
     return _readings(current)
 
@@ -221,7 +245,10 @@ def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
     pose = _pose_rows(pose)
-    current = _check(limits, current)
+    if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
+        _check(limits, current)
+    if current is not None:
+        current = _readings(current)
     r0, r1, r2 = pose
     if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
         large = False                                      # infinite or beyond SAFE_ENTRY
@@ -242,7 +269,7 @@ def _solve(pose, current, limits, check):
         expanded = _expand(q)
         if expanded:
             for e in expanded:
-                out.append(solution if e == q else _new(Solution, (e, c, s, k, True)))
+                out.append(solution if e == q else Solution((e, c, s, k, True)))
         elif limits == "flag":
             out.append(solution)
     return out, "ok" if out else "unreachable"
@@ -369,12 +396,10 @@ def forward(joints):
     ]
 
 def _closed_form(pose, current, check_finite=True):
-    """The closed-form solutions as (joints, config, singular, conditioning) in branch order."""
+    """The closed-form solutions as (joints, config, singular, conditioning) in branch order, for a
+    pose whose entries _solve found finite."""
     (r11, r12, r13, px), (r21, r22, r23, py), (r31, r32, r33, pz) = pose[0], pose[1], pose[2]
     solutions = []
-    finite = r11 + r12 + r13 + r21 + r22 + r23 + r31 + r32 + r33 + px + py + pz
-    if finite - finite != 0.0:
-        return solutions
     # target in the DH base frame (base and tool removed): base^-1 T tool^-1
     pcx = -px - 0.18*r11 + 0.06*r13
     pcy = -py - 0.18*r21 + 0.06*r23
@@ -415,6 +440,8 @@ def _closed_form(pose, current, check_finite=True):
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
 
+        # configuration labels known here (once here, not once per solution): their subtable
+        cfg0 = _CONFIGS[0 if v1x >= 0.0 else 1]
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         g16_11 = -c1*r13 - r23*s1
         g16_12 = -c1*r12 - r22*s1
@@ -677,9 +704,7 @@ def _closed_form(pose, current, check_finite=True):
 
             # Joint readings, configuration labels, singular flag.
 
-            lm0 = v1x
             lm1 = 0.765*c3 + 0.0935*s3
-            lm2 = root5
             singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1, root3 * 0.648767005161783, root5, )
             u2 = th2 - -1.5707963267948966
@@ -688,15 +713,9 @@ def _closed_form(pose, current, check_finite=True):
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
-            la0 = "reach_forward" if lm0 >= 0.0 else "reach_backward"
-            la1 = "elbow_up" if lm1 >= 0.0 else "elbow_down"
-            la2 = "bend_positive" if lm2 >= 0.0 else "bend_negative"
             inside = -2.356194494904734 <= v2 <= 2.356194494904734 and -2.617993883227482 <= v3 <= 2.617993883227482   # the readings the mirrored twin shares
-            solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                la0,
-                la1,
-                la2,
-            ), singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
+            cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
+            solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
             if root5 > 0.0 and not free4:
                 u4 = th4 + 3.141592653589793
@@ -705,11 +724,7 @@ def _closed_form(pose, current, check_finite=True):
                 v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
                 u6 = th6 + 3.141592653589793
                 v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
-                solutions.append(_new(Solution, ((v1, v2, v3, v4, v5, v6, ), (
-                    la0,
-                    la1,
-                    "bend_negative" if lm2 >= 0.0 else "bend_positive",
-                ), singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
+                solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
         return solutions

@@ -439,6 +439,49 @@ class Plan:
                 if str(out.joint) == block.key and not out.given and not out.prismatic
                 and (self.mirror is None or self.mirrored_angle(out.joint) == f"th{out.joint}")]
 
+    def label_places(self) -> dict[int, int]:
+        """Loop-invariant hoisting of the configuration labels: {label index: index of the block
+        after which its measure is known}, for each label whose measure is known above the
+        innermost level (the reach of a six-axis arm: once per reach root, not once per elbow and
+        wrist root); the others are taken where each solution is written. Known after block i:
+        the pose, a compute block's or a solving block's temps, a cossin's root, and the cosine,
+        sine and angle (length) that a cossin with a loop of its own or a pair fixes in its block
+        (not an angle whose atan2 is deferred, not a mirrored root's: the twin reads another). A
+        label the mirror flips, or one that reads anything else, stays where it is."""
+        if "_label_places" in self.__dict__:
+            return self.__dict__["_label_places"]
+        known: dict = {symbol: -1 for symbol in self.pose_symbols}
+        inner_of: dict[int, int] = {-1: 0}
+        for index, block in enumerate(self.blocks):
+            inner_of[index] = block.depth + (1 if opens_loop(block) else 0)
+            for assignment in block.temps:
+                known[assignment.target] = index
+            if block.kind == "cossin" and not block.mirrored:
+                known[sp.Symbol(f"root{block.key}", real=True)] = index
+            if block.kind == "pair" or (block.kind == "cossin" and not block.mirrored):
+                fixed = [] if block.late_angle else [angle_symbol(block.key)]
+                fixed += [cos_symbol(block.key)] if block.need_cos else []
+                fixed += [sin_symbol(block.key)] if block.need_sin else []
+                for symbol in fixed:
+                    known[symbol] = index
+        places = {}
+        for k, measure in enumerate(self.label_measures):
+            if self.mirror is not None and self.mirror.label_signs[k] < 0:
+                continue
+            symbols = sp.sympify(measure).free_symbols
+            if not symbols <= known.keys():
+                continue
+            after = max((known[symbol] for symbol in symbols), default=-1)
+            if after >= 0 and inner_of[after] < self.depth:
+                places[k] = after
+        self.__dict__["_label_places"] = places
+        return places
+
+    def early_labels(self, block: "Block") -> list[int]:
+        """The labels (indices) taken right after ``block`` (see label_places)."""
+        index = next(i for i, b in enumerate(self.blocks) if b is block)
+        return [k for k, after in self.label_places().items() if after == index]
+
     @property
     def early_joints(self) -> set:
         """The joints of every early output (see early_outputs)."""

@@ -97,7 +97,7 @@ def render(arm: Arm, derivation: Derivation) -> str:
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
-        safe_entry=bounds.safe_entry(plan, "double")))
+        safe_entry=bounds.safe_entry(plan, "double"), label_table=label_table(plan)))
 
 
 TARGET_API = {
@@ -154,6 +154,66 @@ def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
         shared = plan.mirror is not None and (out.prismatic or out.given or plan.mirrored_angle(joint) == f"th{joint}")
         (kept if shared else changed).append(check)
     return kept, changed
+
+
+def constant_label(plan: common.Plan, k: int) -> bool:
+    """Whether label k's measure is a cossin block's root: a square root, never negative, so the
+    first solution always takes the label's first value (and a mirrored twin that flips it the
+    second). A NaN root gives no solution: the finite test drops it, or within SAFE_ENTRY none
+    arises."""
+    measure = plan.label_measures[k]
+    return any(b.kind == "cossin" and measure == sp.Symbol(f"root{b.key}", real=True) for b in plan.blocks)
+
+
+def label_table(plan: common.Plan) -> dict | None:
+    """The configuration labels as a nested table of prebuilt tuples, or None where no label is
+    known early or constant (the tuple is then built per solution, which is cheaper than a table
+    lookup). The table nests the labels known after a block (Plan.label_places) first, in block
+    order, then the others; each early label picks its subtable where it is known (once per root
+    of its loop, not once per solution), and a solution indexes the rest. Returns {"table": the
+    nested tuple's source, "early": {block index: (its inner level, [(name, parent, measure)])}, "solution": the
+    subtable a solution and its mirrored twin share (named cfgs; None when there is none to pick),
+    "first"/"mirrored": each one's config expression, "measured": the labels whose measure lm<k> a
+    solution computes}."""
+    places = plan.label_places()
+    constant = [k for k in range(len(plan.labels)) if k not in places and constant_label(plan, k)]
+    if not plan.labels or not (places or constant):
+        return None
+
+    def flipped(k: int) -> bool:
+        return plan.mirror is not None and plan.mirror.label_signs[k] < 0
+    early = sorted(places, key=lambda k: (places[k], k))
+    rest = [k for k in range(len(plan.labels)) if k not in places]
+    shared = [k for k in rest if not flipped(k)]          # one index for a solution and its twin
+    order = early + shared + [k for k in rest if flipped(k)]
+
+    def nest(level: int, chosen: dict, indent: str) -> str:
+        if level == len(order):
+            return "(" + "".join(f'"{plan.labels[k].positive if chosen[k] == 0 else plan.labels[k].negative}", '
+                                 for k in range(len(plan.labels))) + ")"
+        inner = indent + "    "
+        return "(\n" + "".join(inner + nest(level + 1, {**chosen, order[level]: i}, inner) + ",\n"
+                               for i in (0, 1)) + indent + ")"
+    p = printer()
+    steps: dict[int, tuple] = {}
+    parent = "_CONFIGS"
+    for k in early:
+        block = plan.blocks[places[k]]
+        inner_level = block.depth + (1 if common.opens_loop(block) else 0)
+        steps.setdefault(places[k], (inner_level, []))[1].append((f"cfg{k}", parent, p.doprint(plan.label_measures[k])))
+        parent = f"cfg{k}"
+
+    def index(k: int, mirrored: bool) -> str:
+        flip = mirrored and flipped(k)
+        if k in constant:
+            return "[1]" if flip else "[0]"
+        return f"[1 if lm{k} >= 0.0 else 0]" if flip else f"[0 if lm{k} >= 0.0 else 1]"
+    solution = parent + "".join(index(k, False) for k in shared)
+    own = order[len(early) + len(shared):]
+    return {"table": nest(0, {}, ""), "early": steps, "solution": solution if own else None,
+            "first": ("cfgs" if own else solution) + "".join(index(k, False) for k in own),
+            "mirrored": ("cfgs" if own else solution) + "".join(index(k, True) for k in own),
+            "measured": [k for k in rest if k not in constant]}
 
 
 PYTHON_TERMS = {"free": "free{}", "double": "root{} == 0.0", "double_root": "dbl{}", "root": "root{} > 0.0",
