@@ -832,15 +832,18 @@ static int closed_form(const float pose[16], const float *current,
                 float u3 = th3;
                 u3 = u3 > 3.14159265f ? u3 - 6.28318531f : (u3 <= -3.14159265f ? u3 + 6.28318531f : u3);
                 const float jv3 = u3 * 57.2957795f;
-                float u4 = th4 + 3.14159265f;
-                u4 = u4 > 3.14159265f ? u4 - 6.28318531f : u4;
-                const float jv4 = u4 * 57.2957795f;
-                float u5 = -th5;
+                float u4 = th4;
+                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
+                const float jf4 = u4 * 57.2957795f;
+                const float jv4 = jf4 > 7.62939453e-06f ? jf4 - 180.0f : jf4 + 180.0f;
+                float u5 = th5;
                 u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
-                const float jv5 = u5 * 57.2957795f;
-                float u6 = th6 + 3.14159265f;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : u6;
-                const float jv6 = u6 * 57.2957795f;
+                const float jf5 = u5 * 57.2957795f;
+                const float jv5 = jf5 < 180.0f ? -jf5 : jf5;
+                float u6 = th6;
+                u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
+                const float jf6 = u6 * 57.2957795f;
+                const float jv6 = jf6 > 7.62939453e-06f ? jf6 - 180.0f : jf6 + 180.0f;
                 const float cv0 = cnd3;
                 const float cv1 = root5 * 1.0f;
                 if (fine && count < CANTED6_IK_F32_CLOSED_FORM) {

@@ -797,12 +797,9 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[0], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
             if root6 > 0.0 and not free5:
-                u5 = th5 + 3.141592653589793
-                v5 = (u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5) * 57.29577951308232
-                u6 = -th6
-                v6 = (u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6) * 57.29577951308232
-                u7 = th7 + 3.141592653589793
-                v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
+                v5 = v5 - 180.0 if v5 > 1.4210854715202004e-14 else v5 + 180.0
+                v6 = -v6 if v6 < 180.0 else v6
+                v7 = v7 - 180.0 if v7 > 1.4210854715202004e-14 else v7 + 180.0
                 solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[1], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
@@ -1126,12 +1123,9 @@ def inverse_joints(pose, given, current=None):
             solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
             if root6 > 0.0 and not free5:
-                u5 = th5 + 3.141592653589793
-                v5 = (u5 - 6.283185307179586 if u5 > 3.141592653589793 else u5) * 57.29577951308232
-                u6 = -th6
-                v6 = (u6 + 6.283185307179586 if u6 <= -3.141592653589793 else u6) * 57.29577951308232
-                u7 = th7 + 3.141592653589793
-                v7 = (u7 - 6.283185307179586 if u7 > 3.141592653589793 else u7) * 57.29577951308232
+                v5 = v5 - 180.0 if v5 > 1.4210854715202004e-14 else v5 + 180.0
+                v6 = -v6 if v6 < 180.0 else v6
+                v7 = v7 - 180.0 if v7 > 1.4210854715202004e-14 else v7 + 180.0
                 solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
     if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -687,10 +687,8 @@ def _closed_form(pose, current, check_finite=True):
             solutions.append(Solution(((v1, v2, v3, v4, v5, ), cfgs[0 if lm2 >= 0.0 else 1], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + 3.141592653589793
-                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
-                u5 = -th5
-                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
+                v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
+                v5 = -v5 if v5 < 180.0 else v5
                 solutions.append(Solution(((v1, v2, v3, v4, v5, ), cfgs[1 if lm2 >= 0.0 else 0], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow

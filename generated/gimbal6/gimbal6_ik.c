@@ -737,15 +737,18 @@ static int closed_form(const double pose[16], const double *current,
         }
         if (root2 > 0.0 && !free1) {
             {
-                double u1 = th1 + 3.1415926535897931;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = -th2;
+                double u1 = th1;
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+                const double jf1 = u1 * 57.295779513082323;
+                const double jv1 = jf1 > 1.4210854715202004e-14 ? jf1 - 180.0 : jf1 + 180.0;
+                double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * 57.295779513082323;
-                double u3 = th3 + 3.1415926535897931;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : u3;
-                const double jv3 = u3 * 57.295779513082323;
+                const double jf2 = u2 * 57.295779513082323;
+                const double jv2 = jf2 < 180.0 ? -jf2 : jf2;
+                double u3 = th3;
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
+                const double jf3 = u3 * 57.295779513082323;
+                const double jv3 = jf3 > 1.4210854715202004e-14 ? jf3 - 180.0 : jf3 + 180.0;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
@@ -1080,15 +1083,18 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
         }
         if (root2 > 0.0 && !free1) {
             {
-                double u1 = th1 + 3.1415926535897931;
-                u1 = u1 > 3.1415926535897931 ? u1 - 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = -th2;
+                double u1 = th1;
+                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+                const double jf1 = u1 * 57.295779513082323;
+                const double jv1 = jf1 > 1.4210854715202004e-14 ? jf1 - 180.0 : jf1 + 180.0;
+                double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * 57.295779513082323;
-                double u3 = th3 + 3.1415926535897931;
-                u3 = u3 > 3.1415926535897931 ? u3 - 6.2831853071795862 : u3;
-                const double jv3 = u3 * 57.295779513082323;
+                const double jf2 = u2 * 57.295779513082323;
+                const double jv2 = jf2 < 180.0 ? -jf2 : jf2;
+                double u3 = th3;
+                u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
+                const double jf3 = u3 * 57.295779513082323;
+                const double jv3 = jf3 > 1.4210854715202004e-14 ? jf3 - 180.0 : jf3 + 180.0;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;

@@ -717,12 +717,9 @@ def _closed_form(pose, current, check_finite=True):
         solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
         if root2 > 0.0 and not free1:
-            u1 = th1 + 3.141592653589793
-            v1 = (u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1) * 57.29577951308232
-            u2 = -th2
-            v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
-            u3 = th3 + 3.141592653589793
-            v3 = (u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3) * 57.29577951308232
+            v1 = v1 - 180.0 if v1 > 1.4210854715202004e-14 else v1 + 180.0
+            v2 = -v2 if v2 < 180.0 else v2
+            v3 = v3 - 180.0 if v3 > 1.4210854715202004e-14 else v3 + 180.0
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -170.00000034 <= v3 <= 170.00000034)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
@@ -943,12 +940,9 @@ def inverse_joints(pose, current=None):
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
         if root2 > 0.0 and not free1:
-            u1 = th1 + 3.141592653589793
-            v1 = (u1 - 6.283185307179586 if u1 > 3.141592653589793 else u1) * 57.29577951308232
-            u2 = -th2
-            v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
-            u3 = th3 + 3.141592653589793
-            v3 = (u3 - 6.283185307179586 if u3 > 3.141592653589793 else u3) * 57.29577951308232
+            v1 = v1 - 180.0 if v1 > 1.4210854715202004e-14 else v1 + 180.0
+            v2 = -v2 if v2 < 180.0 else v2
+            v3 = v3 - 180.0 if v3 > 1.4210854715202004e-14 else v3 + 180.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow

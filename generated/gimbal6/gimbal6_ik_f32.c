@@ -721,15 +721,18 @@ static int closed_form(const float pose[16], const float *current,
         }
         if (root2 > 0.0f && !free1) {
             {
-                float u1 = th1 + 3.14159265f;
-                u1 = u1 > 3.14159265f ? u1 - 6.28318531f : u1;
-                const float jv1 = u1 * 57.2957795f;
-                float u2 = -th2;
+                float u1 = th1;
+                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+                const float jf1 = u1 * 57.2957795f;
+                const float jv1 = jf1 > 7.62939453e-06f ? jf1 - 180.0f : jf1 + 180.0f;
+                float u2 = th2;
                 u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
-                const float jv2 = u2 * 57.2957795f;
-                float u3 = th3 + 3.14159265f;
-                u3 = u3 > 3.14159265f ? u3 - 6.28318531f : u3;
-                const float jv3 = u3 * 57.2957795f;
+                const float jf2 = u2 * 57.2957795f;
+                const float jv2 = jf2 < 180.0f ? -jf2 : jf2;
+                float u3 = th3;
+                u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
+                const float jf3 = u3 * 57.2957795f;
+                const float jv3 = jf3 > 7.62939453e-06f ? jf3 - 180.0f : jf3 + 180.0f;
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;

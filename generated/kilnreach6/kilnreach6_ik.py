@@ -548,12 +548,9 @@ def _closed_form(pose, current, check_finite=True):
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + 3.141592653589793
-                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
-                u5 = -th5
-                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
-                u6 = th6 + 3.141592653589793
-                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
+                v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
+                v5 = -v5 if v5 < 180.0 else v5
+                v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0
                 solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
@@ -730,12 +727,9 @@ def inverse_joints(pose, current=None):
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + 3.141592653589793
-                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 57.29577951308232
-                u5 = -th5
-                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 57.29577951308232
-                u6 = th6 + 3.141592653589793
-                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 57.29577951308232
+                v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
+                v5 = -v5 if v5 < 180.0 else v5
+                v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow

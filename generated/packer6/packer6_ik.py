@@ -718,12 +718,9 @@ def _closed_form(pose, current, check_finite=True):
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + 3.141592653589793
-                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
-                u5 = -th5
-                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
-                u6 = th6 + 3.141592653589793
-                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
+                v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
+                v5 = -v5 if v5 < 3.141592653589793 else v5
+                v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793
                 solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[1], singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
     if not check_finite:        # every entry within SAFE_ENTRY: no intermediate can overflow
@@ -1058,12 +1055,9 @@ def inverse_joints(pose, current=None):
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
             if root5 > 0.0 and not free4:
-                u4 = th4 + 3.141592653589793
-                v4 = (u4 - 6.283185307179586 if u4 > 3.141592653589793 else u4) * 1.0
-                u5 = -th5
-                v5 = (u5 + 6.283185307179586 if u5 <= -3.141592653589793 else u5) * 1.0
-                u6 = th6 + 3.141592653589793
-                v6 = (u6 - 6.283185307179586 if u6 > 3.141592653589793 else u6) * 1.0
+                v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
+                v5 = -v5 if v5 < 3.141592653589793 else v5
+                v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793
                 solutions.append((v1, v2, v3, v4, v5, v6, ))
 
     if size <= SAFE_ENTRY:          # every entry within SAFE_ENTRY: no intermediate can overflow

@@ -99,6 +99,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
     n = names(arm, scalar)
     context = dict(
         arm=arm, plan=plan, p=printer.doprint, num=printer.number, fn=scalar.fn, real=scalar.name,
+        half_turn=common.half_turn, half_turn_split=common.half_turn_split,
         # a pair's cos^2 + sin^2 off 1 by more than rounding of the scalar type is renormalised
         unit_slack=common.UNIT_SLACK[scalar.name],
         header_lines=common.header_lines(arm, derivation), comment=common.comment_text, names=n,

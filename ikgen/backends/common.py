@@ -487,6 +487,22 @@ class Plan:
         """The joints of every early output (see early_outputs)."""
         return {out.joint for block in self.blocks for out in self.early_outputs(block)}
 
+    def mirror_shortcut(self, out: "OutputPlan") -> str | None:
+        """How a mirrored twin's reading follows from its first solution's reading v, in reading
+        units, without converting its angle again: "half_turn" for a joint whose angle the mirror
+        turns by half a turn (v - H if v > T else v + H, H the half turn in reading units and T
+        half an ulp of it, half_turn_split: the result lies in (-H, H] as every reading does); "negate" for the mirror's own joint when
+        its angle is negated and its zero is 0 (-v, except v = H, whose negation -H is the same
+        angle and stays H: exactly what converting the negated angle gives). None where the
+        reading is converted from the twin's angle (a slide, the caller's reading, an angle
+        pi - th, a negated angle with a zero offset)."""
+        if self.mirror is None or out.prismatic or out.given:
+            return None
+        key = str(out.joint)
+        if key == self.mirror.joint:
+            return "negate" if self.mirror.kind == "negate_sin" and out.zero == 0.0 else None
+        return "half_turn" if self.mirror.parities.get(key, 1) < 0 else None
+
     def mirrored_angle(self, joint) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
         m = self.mirror
@@ -496,6 +512,30 @@ class Plan:
         if m.parities.get(key, 1) < 0:
             return f"th{key} + _PI"
         return f"th{key}"
+
+
+def half_turn(out: OutputPlan, real: str = "double") -> float:
+    """Half a turn in reading units as the solver's own arithmetic gives it: the largest reading,
+    pi (the wrap's bound) times |factor| rounded in the build's type (180 for degrees)."""
+    if real == "float":
+        return float(np.float32(np.float32(math.pi) * np.float32(abs(out.factor))))
+    return math.pi * abs(out.factor)
+
+
+def half_turn_split(out: OutputPlan, real: str = "double") -> float:
+    """The largest reading v > 0 that a mirrored half turn takes as v + H rather than v - H (see
+    Plan.mirror_shortcut): below half an ulp of H, v - H would round to -H, outside (-H, H], while
+    v + H rounds to H (the same angle). At exactly half an ulp both round to even: to -H when H's
+    significand is even (then v + H, which rounds to H), to -H + ulp when it is odd (then v - H)."""
+    if real == "float":
+        h = np.float32(half_turn(out, real))
+        half = np.spacing(h) / np.float32(2)
+        even = int(h.view(np.uint32)) % 2 == 0
+        return float(half if even else np.nextafter(half, np.float32(0)))
+    h = half_turn(out, real)
+    half = math.ulp(h) / 2
+    even = int(np.float64(h).view(np.uint64)) % 2 == 0
+    return half if even else math.nextafter(half, 0.0)
 
 
 def condition_gain(norm: sp.Expr, threshold: float) -> float:

@@ -97,7 +97,9 @@ def render(arm: Arm, derivation: Derivation) -> str:
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
-        safe_entry=bounds.safe_entry(plan, "double"), label_table=label_table(plan)))
+        safe_entry=bounds.safe_entry(plan, "double"), label_table=label_table(plan),
+        half_turn=lambda out: repr(common.half_turn(out)),
+        half_turn_split=lambda out: repr(common.half_turn_split(out))))
 
 
 TARGET_API = {
