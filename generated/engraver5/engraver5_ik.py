@@ -152,7 +152,9 @@ def _readings(current):
 _ROWS = (list, tuple)
 
 def _pose_rows(pose):
-    """The pose's first three rows (sequences of floats); ValueError unless the shape and types are right."""
+    """(the pose's first three rows (sequences of floats), the root of the sum of its entries'
+    squares (math.hypot: no overflow; NaN or infinite where an entry is)); ValueError unless the
+    shape and types are right."""
     if type(pose) in _ROWS and len(pose) in (3, 4):           # the common case, checked quickly
         r0, r1, r2 = pose[0], pose[1], pose[2]
         if type(r0) in _ROWS and type(r1) in _ROWS and type(r2) in _ROWS and len(r0) == len(r1) == len(r2) == 4:
@@ -160,14 +162,15 @@ def _pose_rows(pose):
             # twelve identity tests: cheaper than a set of the entries' types
             if type(a) is type(b) is type(c) is type(d) is type(e) is type(f) is type(g) is type(h) is \
                     type(i) is type(j) is type(k) is type(m) is float:
-                return (r0, r1, r2)
+                return (r0, r1, r2), hypot(a, b, c, d, e, f, g, h, i, j, k, m)
     shown = _shown(pose)
     if hasattr(pose, "tolist"):
         pose = pose.tolist()
     if not isinstance(pose, (list, tuple)) or len(pose) not in (3, 4) or \
             not all(isinstance(row, (list, tuple)) and len(row) == 4 for row in pose):
         raise ValueError(f"pose must be {_POSE_FORM}, not {shown}")
-    return tuple(tuple(_real(v, "pose entries") for v in row) for row in pose[:3])
+    rows = tuple(tuple(_real(v, "pose entries") for v in row) for row in pose[:3])
+    return rows, hypot(*rows[0], *rows[1], *rows[2])
 
 def _finite(solution):
     """True when no reading or conditioning measure of a solution is NaN or infinite."""
@@ -275,15 +278,15 @@ def _check(limits, current):
 def _solve(pose, current, limits, check):
     """(solutions, status) for a pose; ``check`` applies the test that the pose is one the arm can
     take in kind (tilt or roll), which natural inputs pass by construction."""
-    pose = _pose_rows(pose)
+    pose, size = _pose_rows(pose)
     if type(limits) is not str or limits not in _LIMIT_MODES:   # the usual call in two tests
         _check(limits, current)
     if current is not None:
         current = _readings(current)
-    r0, r1, r2 = pose
-    if hypot(*r0, *r1, *r2) <= SAFE_ENTRY:                 # the usual case, one call: no entry is NaN,
-        large = False                                      # infinite or beyond SAFE_ENTRY
+    if size <= SAFE_ENTRY:                                 # the usual case: no entry is NaN, infinite
+        large = False                                      # or beyond SAFE_ENTRY
     else:
+        r0, r1, r2 = pose
         total = sum(r0) + sum(r1) + sum(r2)
         biggest = max(max(map(abs, r0)), max(map(abs, r1)), max(map(abs, r2)))
         if total - total != 0.0 or biggest > LARGEST_ENTRY:
