@@ -484,6 +484,37 @@ def test_single_and_batch_entry_points_agree(demos, stem):
                 assert len(conditioning) == solver.conditions and isinstance(within, bool)
 
 
+@pytest.mark.parametrize("stem", DEMOS)
+@pytest.mark.parametrize("scalar", [c_backend.DOUBLE, c_backend.FLOAT], ids=["double", "float"])
+def test_the_within_limits_flag_follows_the_joint_limits(demos, stem, scalar):
+    """With limits ignored every closed-form solution comes back with its within-limits flag: for
+    poses from readings over a whole turn (many solutions outside the limits), the flag of each C
+    solution (double and float builds) is whether each of its readings lies within the arm's limits,
+    as read from the arm file (readings within 1e-4 of a limit, where the widening by 1e-9 of the
+    range or float rounding decides, are left out); the Python solver's flags equal the double
+    build's."""
+    demo = demos(stem)
+    solver = demo.solver(scalar)
+    rng = np.random.default_rng(3101)
+    half = 180.0 if demo.arm.angle_unit == "deg" else math.pi
+    readings = rng.uniform(-half, half, (1500, demo.arm.dof))
+    limits = demo.arm.limits_in_readings()
+    seen = {True: 0, False: 0}
+    for pose in demo.chain.poses(readings):
+        ours = solver.inverse(pose, limits="ignore")
+        if scalar is c_backend.DOUBLE:
+            assert [s[4] for s in ours] == [s[4] for s in demo.python.inverse(pose, None, "ignore")]
+        for q, _, _, _, within in ours:
+            q = np.array(q)
+            gaps = np.minimum(np.abs(q - limits[:, 0]), np.abs(q - limits[:, 1]))
+            if gaps.min() < 1e-4:
+                continue
+            expected = bool(np.all((q >= limits[:, 0]) & (q <= limits[:, 1])))
+            assert within == expected, (q, within)
+            seen[expected] += 1
+    assert seen[True] > 500 and seen[False] > 500, seen
+
+
 def test_inverse_many_threads_give_the_same_arrays(demos):
     """inverse_many split over threads (cffi releases the GIL in the C call) fills exactly the
     arrays one thread does, for part sizes that do not divide the pose count; a bad thread count is

@@ -563,8 +563,9 @@ static int closed_form(const float pose[16], const float *current,
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
                     /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches */
-                    out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                     * readings are in one turn here), tested without branches; symmetric limits as one
+                     * comparison of the reading's magnitude (the same test, NaN included) */
+                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv5) <= HIGH[4]);
                 }
             }
             if (root5 > 0.0f && !free4) {
@@ -606,8 +607,9 @@ static int closed_form(const float pose[16], const float *current,
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches */
-                        out->within_limits = (jv1 >= LOW[0]) & (jv1 <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                         * readings are in one turn here), tested without branches; symmetric limits as one
+                         * comparison of the reading's magnitude (the same test, NaN included) */
+                        out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv5) <= HIGH[4]);
                     }
                 }
             }

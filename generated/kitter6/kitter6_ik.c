@@ -486,8 +486,9 @@ static int closed_form(const double pose[16], const double *current,
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
                         /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches */
-                        out->within_limits = (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (jv4 >= LOW[3]) & (jv4 <= HIGH[3]) & (jv5 >= LOW[4]) & (jv5 <= HIGH[4]);
+                         * readings are in one turn here), tested without branches; symmetric limits as one
+                         * comparison of the reading's magnitude (the same test, NaN included) */
+                        out->within_limits = (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]);
                     }
                 }
 
