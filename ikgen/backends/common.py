@@ -432,7 +432,7 @@ class Plan:
         level (its angle fixed there: no deferred atan2, and a mirrored twin reads the same
         angle) is converted once per root of its own loop, not once per inner root (the reach's
         joint 1 of a six-axis arm: once per reach root, not once per elbow and wrist root)."""
-        inner = block.depth + (1 if opens_loop(block) else 0)
+        inner = inner_level(block)
         if block.kind not in ("cossin", "pair") or block.late_angle or inner >= self.depth:
             return []
         return [out for out in self.outputs
@@ -453,7 +453,7 @@ class Plan:
         known: dict = {symbol: -1 for symbol in self.pose_symbols}
         inner_of: dict[int, int] = {-1: 0}
         for index, block in enumerate(self.blocks):
-            inner_of[index] = block.depth + (1 if opens_loop(block) else 0)
+            inner_of[index] = inner_level(block)
             for assignment in block.temps:
                 known[assignment.target] = index
             if block.kind == "cossin" and not block.mirrored:
@@ -477,11 +477,6 @@ class Plan:
         self.__dict__["_label_places"] = places
         return places
 
-    def early_labels(self, block: "Block") -> list[int]:
-        """The labels (indices) taken right after ``block`` (see label_places)."""
-        index = next(i for i, b in enumerate(self.blocks) if b is block)
-        return [k for k, after in self.label_places().items() if after == index]
-
     @property
     def early_joints(self) -> set:
         """The joints of every early output (see early_outputs)."""
@@ -491,11 +486,11 @@ class Plan:
         """How a mirrored twin's reading follows from its first solution's reading v, in reading
         units, without converting its angle again: "half_turn" for a joint whose angle the mirror
         turns by half a turn (v - H if v > T else v + H, H the half turn in reading units and T
-        half an ulp of it, half_turn_split: the result lies in (-H, H] as every reading does); "negate" for the mirror's own joint when
-        its angle is negated and its zero is 0 (-v, except v = H, whose negation -H is the same
-        angle and stays H: exactly what converting the negated angle gives). None where the
-        reading is converted from the twin's angle (a slide, the caller's reading, an angle
-        pi - th, a negated angle with a zero offset)."""
+        half an ulp of it, half_turn_split: the result lies in (-H, H] as every reading does);
+        "negate" for the mirror's own joint when its angle is negated and its zero is 0 (-v,
+        except v = H, whose negation -H is the same angle and stays H: exactly what converting
+        the negated angle gives). None where the reading is converted from the twin's angle (a
+        slide, the caller's reading, an angle pi - th, a negated angle with a zero offset)."""
         if self.mirror is None or out.prismatic or out.given:
             return None
         key = str(out.joint)
@@ -1143,6 +1138,12 @@ def opens_loop(block: Block) -> bool:
     return block.kind in ("poly", "quad") or (block.kind == "cossin" and not block.mirrored)
 
 
+def inner_level(block: Block) -> int:
+    """The loop level at which the block's unknown is known: its depth, one deeper for a block
+    whose roots are looped over (opens_loop)."""
+    return block.depth + (1 if opens_loop(block) else 0)
+
+
 def hoist(plan: Plan) -> None:
     """Loop-invariant hoisting: every named intermediate is computed at the outermost branch
     level where all its inputs are known (an intermediate that depends only on joint 1 is not
@@ -1203,7 +1204,7 @@ def hoist(plan: Plan) -> None:
                         level[inverse.target] = level[named.target]
                         form.inverse = inverse.target
         if block.key:
-            inner = block.depth + (1 if opens_loop(block) else 0)
+            inner = inner_level(block)
             for symbol in (angle_symbol(block.key), cos_symbol(block.key), sin_symbol(block.key),
                            length_symbol(block.key)):
                 level[symbol] = inner

@@ -173,10 +173,10 @@ def label_table(plan: common.Plan) -> dict | None:
     lookup). The table nests the labels known after a block (Plan.label_places) first, in block
     order, then the others; each early label picks its subtable where it is known (once per root
     of its loop, not once per solution), and a solution indexes the rest. Returns {"table": the
-    nested tuple's source, "early": {block index: (its inner level, [(name, parent, measure)])}, "solution": the
-    subtable a solution and its mirrored twin share (named cfgs; None when there is none to pick),
-    "first"/"mirrored": each one's config expression, "measured": the labels whose measure lm<k> a
-    solution computes}."""
+    nested tuple's source, "early": {block index: (its inner level, [(name, parent, measure)])},
+    "solution": the subtable a solution and its mirrored twin share (named cfgs; None when there is
+    none to pick), "first"/"mirrored": each one's config expression, "measured": the labels whose
+    measure lm<k> a solution computes}."""
     places = plan.label_places()
     constant = [k for k in range(len(plan.labels)) if k not in places and constant_label(plan, k)]
     if not plan.labels or not (places or constant):
@@ -200,9 +200,8 @@ def label_table(plan: common.Plan) -> dict | None:
     steps: dict[int, tuple] = {}
     parent = "_CONFIGS"
     for k in early:
-        block = plan.blocks[places[k]]
-        inner_level = block.depth + (1 if common.opens_loop(block) else 0)
-        steps.setdefault(places[k], (inner_level, []))[1].append((f"cfg{k}", parent, p.doprint(plan.label_measures[k])))
+        level = common.inner_level(plan.blocks[places[k]])
+        steps.setdefault(places[k], (level, []))[1].append((f"cfg{k}", parent, p.doprint(plan.label_measures[k])))
         parent = f"cfg{k}"
 
     def index(k: int, mirrored: bool) -> str:
