@@ -166,7 +166,7 @@ def test_roots_known_outside_their_loop_are_computed_once_before_it():
     assert not any(b.prelude or b.preludes for b in plan.blocks)
 
 
-def test_labels_known_above_the_innermost_level_are_picked_there():
+def test_labels_and_flags_known_above_the_innermost_level_are_computed_there():
     """benchtop6's reach label reads only joint 1's solution (the wrist centre seen from link 1):
     the plan places it right after the block of joint 1's roots (Plan.label_places), and the
     generated Python picks its subtable of the prebuilt configurations there, once per reach root,
@@ -188,6 +188,12 @@ def test_labels_known_above_the_innermost_level_are_picked_there():
     assert full.index("cfg0 = _CONFIGS[0 if v1x + 25.0 >= 0.0 else 1]") < full.index("for sg3 in ")
     assert full.count("cfgs = cfg0[0 if lm1 >= 0.0 else 1]") == 1
     assert "cfgs[0]" in full and "cfgs[1]" in full and "la0 =" not in full and "lm2" not in full
+    # the same for the parts of the singular flag, the conditioning and the limit test that joint 1
+    # fixes: once per reach root, before the elbow loop (python.early_parts)
+    loop = full.index("for sg3 in ")
+    for line in ("= free1 or root1 == 0.0", "cv0 = root1 * ", "in1 = -170.00000034 <= v1 <= 170.00000034"):
+        assert full.count(line) == 1 and full.index(line) < loop, line
+    assert "singular = sng" in full and "conditioning = (cv0, " in full and "inside = in1 and " in full
     # labels that all wait for the innermost level, none of them constant: a tuple per solution
     arm = demo_arm("boardpick4")
     assert not common.lower(shared.built(arm).derivation).label_places()

@@ -448,6 +448,10 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng3 = free1 or root1 == 0.0
+        cv0 = root1 * 0.003162277660168379
+        in1 = -170.00000034 <= v1 <= 170.00000034
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 25.0
         v1z = c1*wy - s1*wx
@@ -684,15 +688,15 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 62400.0*c3 + 5200.0*s3
-            singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
-            conditioning = (root1 * 0.003162277660168379, root3 * 7.985142293628842e-06, root5, )
+            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (cv0, root3 * 7.985142293628842e-06, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
             v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
-            inside = -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and -150.0000003 <= v3 <= 150.0000003   # the readings the mirrored twin shares
+            inside = in1 and -120.00000024000002 <= v2 <= 120.00000024000002 and -150.0000003 <= v3 <= 150.0000003   # the readings the mirrored twin shares
             cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 

@@ -415,6 +415,8 @@ def _closed_form(pose, current, check_finite=True):
     if free3:
         l3 = (0.0 + 1.0 * (current[2] if current is not None else 0.0))
 
+    # the flags, measures and limit tests known here (once here, not once per solution)
+    sng2 = free3
     # th1 from a linear pair (computed here, before the loops: no later unknown enters them)
     kc1_0 = -275.0*l3*r13 + 275.0*pcx - 12375.0*r13
     kc1_1 = -275.0*l3*r23 + 275.0*pcy - 12375.0*r23
@@ -614,7 +616,7 @@ def _closed_form(pose, current, check_finite=True):
             continue
 
         lm0 = 89375.0*s2
-        singular = free3 or root2 == 0.0 or free1
+        singular = sng2 or root2 == 0.0 or free1
         conditioning = (root2 * 5.594405594405594e-06, )
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         v2 = (th2 - 6.283185307179586 if th2 > 3.141592653589793 else (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2)) * 57.29577951308232

@@ -538,6 +538,10 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
         v4 = (th4 - 6.283185307179586 if th4 > 3.141592653589793 else (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4)) * 57.29577951308232
         # configuration labels known here (once here, not once per solution): their subtable
         cfg1 = _CONFIGS[0 if s4 >= 0.0 else 1]
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng4 = root4 == 0.0
+        cv0 = root4 * 3.2387614976033164e-06
+        in4 = -125.00000025000001 <= v4 <= 125.00000025000001
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = 372.0*c3*s4
         kc2_1 = -372.0*c4*v1y - 415.0*v1y
@@ -788,14 +792,14 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = s2
-            singular = root4 == 0.0 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
-            conditioning = (root4 * 3.2387614976033164e-06, root1 * 0.003162277660168379, root6, )
+            singular = sng4 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
+            conditioning = (cv0, root1 * 0.003162277660168379, root6, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
-            inside = -165.00000033 <= v1 <= 165.00000033 and -115.00000023 <= v2 <= 115.00000023 and -165.00000033 <= given <= 165.00000033 and -125.00000025000001 <= v4 <= 125.00000025000001   # the readings the mirrored twin shares
+            inside = -165.00000033 <= v1 <= 165.00000033 and -115.00000023 <= v2 <= 115.00000023 and -165.00000033 <= given <= 165.00000033 and in4   # the readings the mirrored twin shares
             cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[0], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 

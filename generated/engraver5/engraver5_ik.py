@@ -486,6 +486,10 @@ def _closed_form(pose, current, check_finite=True):
         v3 = (th3 + 6.283185307179586 if th3 <= -3.141592653589793 else th3) * 57.29577951308232
         # configuration labels known here (once here, not once per solution): their subtable
         cfg1 = _CONFIGS[0 if 38000.0*c3 - 4000.0*s3 >= 0.0 else 1]
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng2 = root3 == 0.0
+        cv0 = root3 * 1.3085598064755344e-05
+        in3 = -135.00000027 <= v3 <= 135.00000027
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -20.0*c3 - 190.0*s3 - 200.0
         kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y
@@ -678,14 +682,14 @@ def _closed_form(pose, current, check_finite=True):
 
             lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3
             lm2 = c4*n3x + n1z*s4
-            singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
-            conditioning = (root3 * 1.3085598064755344e-05, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
+            singular = sng2 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (cv0, root1 * 0.003162277660168379, root5 * 0.016666666666666666, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
             v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
-            inside = -170.00000034 <= v1 <= 170.00000034 and -100.0000002 <= v2 <= 100.0000002 and -135.00000027 <= v3 <= 135.00000027   # the readings the mirrored twin shares
+            inside = -170.00000034 <= v1 <= 170.00000034 and -100.0000002 <= v2 <= 100.0000002 and in3   # the readings the mirrored twin shares
             cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, ), cfgs[0 if lm2 >= 0.0 else 1], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 

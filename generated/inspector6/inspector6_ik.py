@@ -458,6 +458,10 @@ def _closed_form(pose, current, check_finite=True):
         v3 = (u3 + 6.283185307179586 if u3 <= -3.141592653589793 else u3) * 57.29577951308232
         # configuration labels known here (once here, not once per solution): their subtable
         cfg1 = _CONFIGS[0 if 92800.0*c3 >= 0.0 else 1]
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng3 = root3 == 0.0
+        cv0 = root3 * 5.387931034482758e-06
+        in3 = -160.00000028 <= v3 <= 120.00000028000001
         # th2 from a linear pair (computed here, before the loops: no later unknown enters them)
         kc2_0 = -290.0*s3 - 320.0
         kc2_1 = 290.0*c3*v1y
@@ -629,15 +633,15 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = v1x
-            singular = root3 == 0.0 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
-            conditioning = (root3 * 5.387931034482758e-06, root1 * 0.003162277660168379, root5, )
+            singular = sng3 or free1 or root1 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (cv0, root1 * 0.003162277660168379, root5, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             u2 = th2 - 1.5707963267948966
             v2 = (u2 + 6.283185307179586 if u2 < -3.141592653589793 else u2) * -57.29577951308232
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 - 6.283185307179586 if th5 >= 3.141592653589793 else th5) * -57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
-            inside = -175.00000035 <= v1 <= 175.00000035 and -140.00000024 <= v2 <= 100.00000024 and -160.00000028 <= v3 <= 120.00000028000001   # the readings the mirrored twin shares
+            inside = -175.00000035 <= v1 <= 175.00000035 and -140.00000024 <= v2 <= 100.00000024 and in3   # the readings the mirrored twin shares
             cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 

@@ -427,6 +427,10 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng3 = free1 or root1 == 0.0
+        cv0 = root1 * 0.001
+        in1 = -170.00000034 <= v1 <= 170.00000034
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
 
@@ -539,14 +543,14 @@ def _closed_form(pose, current, check_finite=True):
                 continue
 
             lm2 = -c2*v1y + s2*v1x
-            singular = free1 or root1 == 0.0 or free2 or root2 == 0.0 or root5 == 0.0 or free4
-            conditioning = (root1 * 0.001, root2 * 0.001, root5, )
+            singular = sng3 or free2 or root2 == 0.0 or root5 == 0.0 or free4
+            conditioning = (cv0, root2 * 0.001, root5, )
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 57.29577951308232
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 57.29577951308232
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
-            inside = -170.00000034 <= v1 <= 170.00000034 and -100.0000002 <= v2 <= 100.0000002 and 499.9999989 <= v3 <= 1600.0000011   # the readings the mirrored twin shares
+            inside = in1 and -100.0000002 <= v2 <= 100.0000002 and 499.9999989 <= v3 <= 1600.0000011   # the readings the mirrored twin shares
             cfgs = cfg0[0 if lm2 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 

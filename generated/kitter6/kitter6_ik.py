@@ -435,6 +435,9 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng2 = free1 or root1 == 0.0
+        cv0 = root1 * 0.003162277660168379
         # A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one)
         g16_13 = c1*r13 + r23*s1
         g16_14 = c1*pcx + pcy*s1
@@ -464,6 +467,8 @@ def _closed_form(pose, current, check_finite=True):
             v5 = (th5 - 6.283185307179586 if th5 > 3.141592653589793 else (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5)) * 57.29577951308232
             # configuration labels known here (once here, not once per solution): their subtable
             cfg2 = cfg0[0 if s5 >= 0.0 else 1]
+            # the flags, measures and limit tests known here (once here, not once per solution)
+            sng4 = sng2 or root5 == 0.0
             # th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0)
 
             dt6 = -s5*s5
@@ -494,6 +499,8 @@ def _closed_form(pose, current, check_finite=True):
                 c6 = cos(th6)
                 s6 = sin(th6)
 
+            # the flags, measures and limit tests known here (once here, not once per solution)
+            sng5 = sng4 or free6
             # T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one)
             g05_11 = c6*r11 - r12*s6
             g05_13 = -c6*r12 - r11*s6
@@ -580,8 +587,8 @@ def _closed_form(pose, current, check_finite=True):
                 # Joint readings, configuration labels, singular flag.
 
                 lm1 = -97350.0*s3
-                singular = free1 or root1 == 0.0 or root5 == 0.0 or free6 or root3 == 0.0 or free2
-                conditioning = (root1 * 0.003162277660168379, root5, root3 * 5.136106831022085e-06, )
+                singular = sng5 or root3 == 0.0 or free2
+                conditioning = (cv0, root5, root3 * 5.136106831022085e-06, )
                 u2 = th2 - 1.5707963267948966
                 v2 = (u2 + 6.283185307179586 if u2 <= -3.141592653589793 else u2) * 57.29577951308232
                 v3 = (th3 - 6.283185307179586 if th3 > 3.141592653589793 else th3) * 57.29577951308232

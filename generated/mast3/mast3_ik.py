@@ -373,6 +373,9 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng1 = free1 or root1 == 0.0
+        cv0 = root1 * 0.001
         # A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one)
         q1x = c1*px + py*s1
 
@@ -419,8 +422,8 @@ def _closed_form(pose, current, check_finite=True):
                 continue
 
             lm1 = -c2*q1y + q1x*s2
-            singular = free1 or root1 == 0.0 or free2 or root2 == 0.0
-            conditioning = (root1 * 0.001, root2 * 0.001, )
+            singular = sng1 or free2 or root2 == 0.0
+            conditioning = (cv0, root2 * 0.001, )
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
             solutions.append(Solution(((v1, v2, v3, ), cfg0[0 if lm1 >= 0.0 else 1], singular, conditioning, -170.00000034 <= v1 <= 170.00000034 and -120.00000024000002 <= v2 <= 120.00000024000002 and 399.9999984 <= v3 <= 2000.0000016)))

@@ -439,6 +439,8 @@ def _closed_form(pose, current, check_finite=True):
 
         # joint 1's reading: once here, not once per inner root
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 1.0
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng3 = free1 or root1 == 0.0
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy
         v1y = c1*wy - s1*wx
@@ -708,7 +710,7 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 0.765*c3 + 0.0935*s3
-            singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
             conditioning = (root1, root3 * 0.648767005161783, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0

@@ -445,6 +445,10 @@ def _closed_form(pose, current, check_finite=True):
         # joint 1's reading: once here, not once per inner root
         u1 = th1 - 0.5235987755982991
         v1 = (u1 + 6.283185307179586 if u1 <= -3.141592653589793 else u1) * 1.0
+        # the flags, measures and limit tests known here (once here, not once per solution)
+        sng3 = free1 or root1 == 0.0
+        cv0 = root1 * 3.162277660168379
+        in1 = -2.9000000058 <= v1 <= 2.9000000058
         # A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one)
         v1x = c1*wx + s1*wy - 0.04
         v1z = c1*wy - s1*wx
@@ -669,15 +673,15 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 0.119*c3 + 0.0119*s3
-            singular = free1 or root1 == 0.0 or root3 == 0.0 or free2 or root5 == 0.0 or free4
-            conditioning = (root1 * 3.162277660168379, root3 * 4.180828530294072, root5, )
+            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            conditioning = (cv0, root3 * 4.180828530294072, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
             v3 = (th3 + 6.283185307179586 if th3 < -3.141592653589793 else th3) * -1.0
             v4 = (th4 + 6.283185307179586 if th4 <= -3.141592653589793 else th4) * 1.0
             v5 = (th5 + 6.283185307179586 if th5 <= -3.141592653589793 else th5) * 1.0
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
-            inside = -2.9000000058 <= v1 <= 2.9000000058 and -1.9000000038 <= v2 <= 1.9000000038 and -2.4000000048 <= v3 <= 2.4000000048   # the readings the mirrored twin shares
+            inside = in1 and -1.9000000038 <= v2 <= 1.9000000038 and -2.4000000048 <= v3 <= 2.4000000048   # the readings the mirrored twin shares
             cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -3.1000000062 <= v4 <= 3.1000000062 and -2.1000000042 <= v5 <= 2.1000000042)))
 

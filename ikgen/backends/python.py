@@ -89,11 +89,11 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_zero=common.joint_zero(arm), joint_turn=common.joint_turn(arm), joint_direction=[j.direction for j in arm.joints],
         joint_scale=[arm.angle_scale if j.revolute else 1.0 for j in arm.joints],
         prismatic=[not j.revolute for j in arm.joints],
-        generator=common.GENERATOR, singular_terms=terms(plan.singular_terms),
+        generator=common.GENERATOR,
         mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
-        within_parts=within_parts(arm, plan), target=common.target_plan(arm, derivation),
+        early_parts=early_parts(arm, plan), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
@@ -142,11 +142,12 @@ def tolerances(real: str) -> dict:
             "slack_band": unit_band(common.UNIT_SLACK[real]), "pair_band": unit_band(common.PAIR_TOLERANCE[real])}
 
 
-def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
-    """The limits check of a solution whose revolute readings lie in one turn, as expressions in
-    its readings (v<j>, or ``given`` for the caller's joint); joints whose limits hold the whole
-    turn need no check. Split in two: the checks of readings a mirrored twin shares with its first
-    solution (tested once for both) and the rest (all of them when the plan has no mirror)."""
+def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[tuple[int, str]], list[tuple[int, str]]]:
+    """The limits check of a solution whose revolute readings lie in one turn, as (joint,
+    expression in its readings: v<j>, or ``given`` for the caller's joint); joints whose limits
+    hold the whole turn need no check. Split in two: the checks of readings a mirrored twin shares
+    with its first solution (tested once for both) and the rest (all of them when the plan has no
+    mirror)."""
     kept, changed = [], []
     turns = common.joint_turns(arm)
     for k in common.limit_checked(turns):
@@ -154,8 +155,65 @@ def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[str], list[str]]:
         out = next(o for o in plan.outputs if o.joint == joint)
         check = f"{turn.low!r} <= {'given' if out.given else f'v{joint}'} <= {turn.high!r}"
         shared = plan.mirror is not None and (out.prismatic or out.given or plan.mirrored_angle(joint) == f"th{joint}")
-        (kept if shared else changed).append(check)
+        (kept if shared else changed).append((joint, check))
     return kept, changed
+
+
+def early_parts(arm: Arm, plan: common.Plan) -> dict:
+    """Loop-invariant hoisting of the parts of a solution's flags and measures that are known
+    above the innermost level (the reach's singular terms, conditioning and limit test of a
+    six-axis arm: once per reach root, not once per elbow and wrist root): a singular term right
+    after the block that solves its unknown, a conditioning measure's product after its branch
+    block, and a shared limit test after the early conversion of its joint's reading
+    (Plan.early_outputs), where that block's level is above the innermost. Returns {"lines":
+    {block index: (level, [statements])}, "singular": the solution's singular expression,
+    "conditioning": the entries of its tuple, "kept"/"changed": the limit tests as within_parts
+    splits them, early ones by name}."""
+    lines: dict[int, tuple[int, list[str]]] = {}
+
+    def early(index: int) -> bool:
+        return index >= 0 and common.inner_level(plan.blocks[index]) < plan.depth
+
+    def add(index: int, statement: str) -> None:
+        lines.setdefault(index, (common.inner_level(plan.blocks[index]), []))[1].append(statement)
+
+    def solver_of(key: str) -> int:
+        return next((i for i, b in enumerate(plan.blocks)
+                     if b.key == key and b.kind in ("cossin", "pair", "poly", "lin", "quad")), -1)
+    late, sofar = [], None
+    grouped: dict[int, list[str]] = {}
+    for kind, key in plan.singular_terms:
+        text = PYTHON_TERMS[kind].format(key)
+        index = solver_of(key)
+        (grouped.setdefault(index, []) if early(index) else late).append(text)
+    for index in sorted(grouped):
+        add(index, f"sng{index} = " + " or ".join(([sofar] if sofar else []) + grouped[index]))
+        sofar = f"sng{index}"
+    singular = " or ".join(([sofar] if sofar else []) + late) or "False"
+    conditioning = []
+    for i, block in enumerate(plan.condition_blocks):
+        if block.kind == "poly":
+            conditioning.append(f"cnd{block.key}")
+        elif block.condition_gain == 1.0:
+            conditioning.append(f"root{block.key}")
+        else:
+            product = f"root{block.key} * {block.condition_gain}"
+            index = plan.blocks.index(block)
+            if early(index):
+                add(index, f"cv{i} = {product}")
+                product = f"cv{i}"
+            conditioning.append(product)
+    kept_checks, changed_checks = within_parts(arm, plan)
+    kept = []
+    for joint, check in kept_checks:
+        index = next((i for i, b in enumerate(plan.blocks)
+                      if any(out.joint == joint for out in plan.early_outputs(b))), -1)
+        if early(index):
+            add(index, f"in{joint} = {check}")
+            check = f"in{joint}"
+        kept.append(check)
+    return {"lines": lines, "singular": singular, "conditioning": conditioning, "kept": kept,
+            "changed": [check for _, check in changed_checks]}
 
 
 def constant_label(plan: common.Plan, k: int) -> bool:
