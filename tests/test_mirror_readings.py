@@ -76,19 +76,28 @@ def test_the_half_turn_rule_is_what_the_generated_solvers_compute():
             assert float(np.float32(line[2])) == float(np.float32(line[3])) == hf
 
 
-def test_a_negated_angle_twin_equals_converting_the_negated_angle():
-    """benchtop6's wrist joint 5 (zero offset 0): the twin's reading -v (v at H kept) equals the
-    conversion of -th5 bit for bit, for every th5 in [0, pi] at the ends and on a seeded sample."""
-    arm = demo_arm("benchtop6")
+@pytest.mark.parametrize("name", ["benchtop6", "inspector6"])
+def test_a_negated_angle_twin_equals_converting_the_negated_angle(name):
+    """The wrist's joint 5 (zero offset 0; benchtop6 counts along its DH angle, inspector6 against
+    it, so its readings come from angles in [-pi, pi)): the twin's reading -v (v at H kept) equals
+    the conversion of the negated angle bit for bit, zeros' signs included, for every angle in
+    [0, pi] at the ends and on a seeded sample."""
+    arm = demo_arm(name)
     plan = common.lower(shared.built(arm).derivation)
     out = next(o for o in plan.outputs if plan.mirror_shortcut(o) == "negate")
     assert str(out.joint) == plan.mirror.joint and out.zero == 0.0
     half = common.half_turn(out)
     pi = 3.141592653589793
+
+    def convert(th: float) -> float:          # the generated wrap into one turn, then the factor
+        if out.direction > 0:
+            u = th + 2 * pi if th <= -pi else (th - 2 * pi if th > pi else th)
+        else:
+            u = th + 2 * pi if th < -pi else (th - 2 * pi if th >= pi else th)
+        return u * out.factor
     rng = np.random.default_rng(41)
     for th in [0.0, 5e-324, pi, math.nextafter(pi, 0.0)] + list(rng.uniform(0.0, pi, 2000)):
-        v = (th + 2 * pi if th <= -pi else th) * out.factor
-        u = -th
-        converted = (u + 2 * pi if u <= -pi else u) * out.factor
+        v = convert(th)
         twin = -v if v < half else v
-        assert twin == converted, th
+        converted = convert(-th)
+        assert twin == converted and math.copysign(1.0, twin) == math.copysign(1.0, converted), th
