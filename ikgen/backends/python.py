@@ -78,6 +78,7 @@ def in_place(block: common.Block, expr) -> str:
 def render(arm: Arm, derivation: Derivation) -> str:
     plan = common.lower(derivation)
     p = printer()
+    labels = label_table(plan)
     fwd_temps, fwd_entries = forward_plan(arm)
     template = common.environment().get_template("python_solver.py.j2")
     return common.tidy(template.render(
@@ -93,11 +94,11 @@ def render(arm: Arm, derivation: Derivation) -> str:
         mirror_terms=terms(plan.mirror_condition) if plan.mirror else [],
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
-        early_parts=early_parts(arm, plan), target=common.target_plan(arm, derivation),
+        early_parts=early_parts(arm, plan, labels), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
-        safe_entry=bounds.safe_entry(plan, "double"), label_table=label_table(plan),
+        safe_entry=bounds.safe_entry(plan, "double"), label_table=labels,
         half_turn=lambda out: repr(common.half_turn(out)),
         half_turn_split=lambda out: repr(common.half_turn_split(out))))
 
@@ -159,23 +160,31 @@ def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[tuple[int, str]], li
     return kept, changed
 
 
-def early_parts(arm: Arm, plan: common.Plan) -> dict:
-    """Loop-invariant hoisting of the parts of a solution's flags and measures that are known
-    above the innermost level (the reach's singular terms, conditioning and limit test of a
-    six-axis arm: once per reach root, not once per elbow and wrist root): a singular term right
-    after the block that solves its unknown, a conditioning measure's product after its branch
-    block, and a shared limit test after the early conversion of its joint's reading
-    (Plan.early_outputs), where that block's level is above the innermost. Returns {"lines":
-    {block index: (level, [statements])}, "singular": the solution's singular expression,
-    "conditioning": the entries of its tuple, "kept"/"changed": the limit tests as within_parts
-    splits them, early ones by name}."""
+def early_parts(arm: Arm, plan: common.Plan, labels: dict | None) -> dict:
+    """Loop-invariant hoisting of the parts of a solution's labels, flags and measures that are
+    known above the innermost level (the reach's label, singular terms, conditioning and limit
+    test of a six-axis arm: once per reach root, not once per elbow and wrist root): a label's
+    pick of its subtable where label_table places it, a singular term right after the block that
+    solves its unknown, a conditioning measure's product after its branch block, and a shared
+    limit test after the early conversion of its joint's reading (Plan.early_outputs), where that
+    block's level is above the innermost. Returns {"lines": {block index: (level, [statements,
+    comments included])}, "singular": the solution's singular expression, "conditioning": the
+    entries of its tuple, "kept"/"changed": the limit tests as within_parts splits them, early
+    ones by name}."""
     lines: dict[int, tuple[int, list[str]]] = {}
+    for index, (level, steps) in (labels["early"] if labels else {}).items():
+        lines[index] = (level, ["# configuration labels known here (once here, not once per solution): their subtable"]
+                        + [f"{name} = {parent}[0 if {measure} >= 0.0 else 1]" for name, parent, measure in steps])
+    flags = "# the flags, measures and limit tests known here (once here, not once per solution)"
 
     def early(index: int) -> bool:
         return index >= 0 and common.inner_level(plan.blocks[index]) < plan.depth
 
     def add(index: int, statement: str) -> None:
-        lines.setdefault(index, (common.inner_level(plan.blocks[index]), []))[1].append(statement)
+        statements = lines.setdefault(index, (common.inner_level(plan.blocks[index]), []))[1]
+        if flags not in statements:
+            statements.append(flags)
+        statements.append(statement)
 
     def solver_of(key: str) -> int:
         return next((i for i, b in enumerate(plan.blocks)
