@@ -441,6 +441,14 @@ static int closed_form(const double pose[16], const double *current,
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + l3) + (th4 + root2);
         const int fine = probe - probe == 0.0;
+        /* the labels, singular flag and conditioning measures of the solution.
+         * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+         * being in one turn here; tested without branches, symmetric limits as one comparison of the
+         * reading's magnitude (the same test, NaN included).
+         */
+        const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+        const int singular = free3 | (root2 == 0.0) | free1;
+        const double cv0 = root2 * 5.594405594405594e-06;
         {
             double u1 = th1;
             u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -453,19 +461,15 @@ static int closed_form(const double pose[16], const double *current,
             u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
             u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
             const double jv4 = u4 * 57.295779513082323;
-            const double cv0 = root2 * 5.594405594405594e-06;
             if (fine && count < BOARDPICK4_IK_CLOSED_FORM) {
                 boardpick4_ik_solution *out = &solutions[count++];
                 out->joints[0] = jv1;
                 out->joints[1] = jv2;
                 out->joints[2] = jv3;
                 out->joints[3] = jv4;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->singular = free3 || root2 == 0.0 || free1;
+                out->labels[0] = lab0;
+                out->singular = singular;
                 out->conditioning[0] = cv0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches; symmetric limits as one
-                 * comparison of the reading's magnitude (the same test, NaN included) */
                 out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             }
         }

@@ -425,6 +425,14 @@ static int closed_form(const float pose[16], const float *current,
          * mirrored solution's values follow from these) */
         const float probe = ((th1 + th2) + l3) + (th4 + root2);
         const int fine = probe - probe == 0.0f;
+        /* the labels, singular flag and conditioning measures of the solution.
+         * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+         * being in one turn here; tested without branches, symmetric limits as one comparison of the
+         * reading's magnitude (the same test, NaN included).
+         */
+        const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+        const int singular = free3 | (root2 == 0.0f) | free1;
+        const float cv0 = root2 * 5.59440559e-06f;
         {
             float u1 = th1;
             u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
@@ -437,19 +445,15 @@ static int closed_form(const float pose[16], const float *current,
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
             const float jv4 = u4 * 57.2957795f;
-            const float cv0 = root2 * 5.59440559e-06f;
             if (fine && count < BOARDPICK4_IK_F32_CLOSED_FORM) {
                 boardpick4_ik_f32_solution *out = &solutions[count++];
                 out->joints[0] = jv1;
                 out->joints[1] = jv2;
                 out->joints[2] = jv3;
                 out->joints[3] = jv4;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->singular = free3 || root2 == 0.0f || free1;
+                out->labels[0] = lab0;
+                out->singular = singular;
                 out->conditioning[0] = cv0;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches; symmetric limits as one
-                 * comparison of the reading's magnitude (the same test, NaN included) */
                 out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             }
         }

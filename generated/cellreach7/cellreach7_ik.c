@@ -559,14 +559,30 @@ static int closed_form(const double pose[16], double given, const double *curren
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
             const int fine = probe - probe == 0.0;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            double u1 = th1;
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+            const double jv1 = u1 * 57.295779513082323;
+            double u2 = th2;
+            u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
+            const double jv2 = u2 * 57.295779513082323;
+            const double jv3 = given;
+            /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+             * the limit tests of the readings they share: once for both (the twin negates a label the
+             * mirror flips).
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
+            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
+            const int singular = (root4 == 0.0) | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5;
+            const double cv0 = root4 * 3.2387614976033164e-06;
+            const double cv1 = root1 * 0.003162277660168379;
+            const double cv2 = root6 * 1.0;
+            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]);
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = th2;
-                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * 57.295779513082323;
-                const double jv3 = given;
                 double u5 = th5;
                 u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
@@ -576,9 +592,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                 double u7 = th7;
                 u7 = u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7;
                 const double jv7 = u7 * 57.295779513082323;
-                const double cv0 = root4 * 3.2387614976033164e-06;
-                const double cv1 = root1 * 0.003162277660168379;
-                const double cv2 = root6 * 1.0;
                 if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
                     cellreach7_ik_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -588,28 +601,18 @@ static int closed_form(const double pose[16], double given, const double *curren
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
                     out->joints[6] = jv7;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                    out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->labels[2] = lab2;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]);
+                    out->within_limits = (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]) & inside;
                 }
             }
             if (root6 > 0.0 && !free5) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
-                    double u2 = th2;
-                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                    const double jv2 = u2 * 57.295779513082323;
-                    const double jv3 = given;
                     double u5 = th5;
                     u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                     const double jf5 = u5 * 57.295779513082323;
@@ -622,9 +625,6 @@ static int closed_form(const double pose[16], double given, const double *curren
                     u7 = u7 <= -3.1415926535897931 ? u7 + 6.2831853071795862 : u7;
                     const double jf7 = u7 * 57.295779513082323;
                     const double jv7 = jf7 > 1.4210854715202004e-14 ? jf7 - 180.0 : jf7 + 180.0;
-                    const double cv0 = root4 * 3.2387614976033164e-06;
-                    const double cv1 = root1 * 0.003162277660168379;
-                    const double cv2 = root6 * 1.0;
                     if (fine && count < CELLREACH7_IK_CLOSED_FORM) {
                         cellreach7_ik_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -634,17 +634,14 @@ static int closed_form(const double pose[16], double given, const double *curren
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
                         out->joints[6] = jv7;
-                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                        out->singular = root4 == 0.0 || free1 || root1 == 0.0 || free2 || root6 == 0.0 || free5;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = (signed char)-lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
-                        out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]);
+                        out->within_limits = (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]) & inside;
                     }
                 }
             }
@@ -998,14 +995,15 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
              * mirrored solution's values follow from these) */
             const double probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
             const int fine = probe - probe == 0.0;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            double u1 = th1;
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+            const double jv1 = u1 * 57.295779513082323;
+            double u2 = th2;
+            u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
+            const double jv2 = u2 * 57.295779513082323;
+            const double jv3 = given;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = th2;
-                u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * 57.295779513082323;
-                const double jv3 = given;
                 double u5 = th5;
                 u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                 const double jv5 = u5 * 57.295779513082323;
@@ -1028,13 +1026,6 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
             }
             if (root6 > 0.0 && !free5) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
-                    double u2 = th2;
-                    u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                    const double jv2 = u2 * 57.295779513082323;
-                    const double jv3 = given;
                     double u5 = th5;
                     u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
                     const double jf5 = u5 * 57.295779513082323;

@@ -543,14 +543,30 @@ static int closed_form(const float pose[16], float given, const float *current,
              * mirrored solution's values follow from these) */
             const float probe = (((th1 + th2) + th4) + (th5 + th6)) + ((th7 + root4) + (root1 + root6));
             const int fine = probe - probe == 0.0f;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            float u1 = th1;
+            u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+            const float jv1 = u1 * 57.2957795f;
+            float u2 = th2;
+            u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
+            const float jv2 = u2 * 57.2957795f;
+            const float jv3 = given;
+            /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+             * the limit tests of the readings they share: once for both (the twin negates a label the
+             * mirror flips).
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
+            const int singular = (root4 == 0.0f) | free1 | (root1 == 0.0f) | free2 | (root6 == 0.0f) | free5;
+            const float cv0 = root4 * 3.2387615e-06f;
+            const float cv1 = root1 * 0.00316227766f;
+            const float cv2 = root6 * 1.0f;
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]);
             {
-                float u1 = th1;
-                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                const float jv1 = u1 * 57.2957795f;
-                float u2 = th2;
-                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
-                const float jv2 = u2 * 57.2957795f;
-                const float jv3 = given;
                 float u5 = th5;
                 u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
@@ -560,9 +576,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                 float u7 = th7;
                 u7 = u7 <= -3.14159265f ? u7 + 6.28318531f : u7;
                 const float jv7 = u7 * 57.2957795f;
-                const float cv0 = root4 * 3.2387615e-06f;
-                const float cv1 = root1 * 0.00316227766f;
-                const float cv2 = root6 * 1.0f;
                 if (fine && count < CELLREACH7_IK_F32_CLOSED_FORM) {
                     cellreach7_ik_f32_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -572,28 +585,18 @@ static int closed_form(const float pose[16], float given, const float *current,
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
                     out->joints[6] = jv7;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                    out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->labels[2] = lab2;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]);
+                    out->within_limits = (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]) & inside;
                 }
             }
             if (root6 > 0.0f && !free5) {
                 {
-                    float u1 = th1;
-                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                    const float jv1 = u1 * 57.2957795f;
-                    float u2 = th2;
-                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
-                    const float jv2 = u2 * 57.2957795f;
-                    const float jv3 = given;
                     float u5 = th5;
                     u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                     const float jf5 = u5 * 57.2957795f;
@@ -606,9 +609,6 @@ static int closed_form(const float pose[16], float given, const float *current,
                     u7 = u7 <= -3.14159265f ? u7 + 6.28318531f : u7;
                     const float jf7 = u7 * 57.2957795f;
                     const float jv7 = jf7 > 7.62939453e-06f ? jf7 - 180.0f : jf7 + 180.0f;
-                    const float cv0 = root4 * 3.2387615e-06f;
-                    const float cv1 = root1 * 0.00316227766f;
-                    const float cv2 = root6 * 1.0f;
                     if (fine && count < CELLREACH7_IK_F32_CLOSED_FORM) {
                         cellreach7_ik_f32_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -618,17 +618,14 @@ static int closed_form(const float pose[16], float given, const float *current,
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
                         out->joints[6] = jv7;
-                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                        out->singular = root4 == 0.0f || free1 || root1 == 0.0f || free2 || root6 == 0.0f || free5;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = (signed char)-lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
-                        out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]);
+                        out->within_limits = (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]) & inside;
                     }
                 }
             }

@@ -459,22 +459,35 @@ static int closed_form(const float pose[16], const float *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + root3) + (root1 + root5));
             const int fine = entries == 2 || probe - probe == 0.0f;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            float u1 = th1;
+            u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
+            const float jv1 = u1 * 57.2957795f;
+            float u2 = th2 - 1.57079633f;
+            u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
+            const float jv2 = u2 * 57.2957795f;
+            /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+             * the limit tests of the readings they share: once for both (the twin negates a label the
+             * mirror flips).
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
+            const int singular = (root3 == 0.0f) | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const float cv0 = root3 * 1.30855981e-05f;
+            const float cv1 = root1 * 0.00316227766f;
+            const float cv2 = root5 * 0.0166666667f;
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
             {
-                float u1 = th1;
-                u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                const float jv1 = u1 * 57.2957795f;
-                float u2 = th2 - 1.57079633f;
-                u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
-                const float jv2 = u2 * 57.2957795f;
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 57.2957795f;
                 float u5 = th5;
                 u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                 const float jv5 = u5 * 57.2957795f;
-                const float cv0 = root3 * 1.30855981e-05f;
-                const float cv1 = root1 * 0.00316227766f;
-                const float cv2 = root5 * 0.0166666667f;
                 if (fine && count < ENGRAVER5_IK_F32_CLOSED_FORM) {
                     engraver5_ik_f32_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -482,27 +495,18 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[2] = jv3;
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                    out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->labels[2] = lab2;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv5) <= HIGH[4]);
+                    out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
             if (root5 > 0.0f && !free4) {
                 {
-                    float u1 = th1;
-                    u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
-                    const float jv1 = u1 * 57.2957795f;
-                    float u2 = th2 - 1.57079633f;
-                    u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
-                    const float jv2 = u2 * 57.2957795f;
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                     const float jf4 = u4 * 57.2957795f;
@@ -511,9 +515,6 @@ static int closed_form(const float pose[16], const float *current,
                     u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
                     const float jf5 = u5 * 57.2957795f;
                     const float jv5 = jf5 < 180.0f ? -jf5 : jf5;
-                    const float cv0 = root3 * 1.30855981e-05f;
-                    const float cv1 = root1 * 0.00316227766f;
-                    const float cv2 = root5 * 0.0166666667f;
                     if (fine && count < ENGRAVER5_IK_F32_CLOSED_FORM) {
                         engraver5_ik_f32_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -521,17 +522,14 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[2] = jv3;
                         out->joints[3] = jv4;
                         out->joints[4] = jv5;
-                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                        out->singular = root3 == 0.0f || free1 || root1 == 0.0f || free2 || root5 == 0.0f || free4;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = (signed char)-lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
-                        out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv5) <= HIGH[4]);
+                        out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
                     }
                 }
             }

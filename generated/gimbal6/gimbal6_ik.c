@@ -696,6 +696,29 @@ static int closed_form(const double pose[16], const double *current,
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
         const int fine = probe - probe == 0.0;
+        /* the readings a solution shares with its mirrored twin: converted once for both */
+        double u4 = th4;
+        u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
+        const double jv4 = u4 * 57.295779513082323;
+        double u5 = th5;
+        u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+        const double jv5 = u5 * 57.295779513082323;
+        double u6 = th6;
+        u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+        const double jv6 = u6 * 57.295779513082323;
+        /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+         * the limit tests of the readings they share: once for both (the twin negates a label the
+         * mirror flips).
+         * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+         * being in one turn here; tested without branches, symmetric limits as one comparison of the
+         * reading's magnitude (the same test, NaN included).
+         */
+        const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+        const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
+        const int singular = free6 | dbl6 | free5 | (root2 == 0.0) | free1;
+        const double cv0 = cnd6;
+        const double cv1 = root2 * 1.0;
+        const int inside = (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]);
         {
             double u1 = th1;
             u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -706,17 +729,6 @@ static int closed_form(const double pose[16], const double *current,
             double u3 = th3;
             u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
             const double jv3 = u3 * 57.295779513082323;
-            double u4 = th4;
-            u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
-            const double jv4 = u4 * 57.295779513082323;
-            double u5 = th5;
-            u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
-            const double jv5 = u5 * 57.295779513082323;
-            double u6 = th6;
-            u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-            const double jv6 = u6 * 57.295779513082323;
-            const double cv0 = cnd6;
-            const double cv1 = root2 * 1.0;
             if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
                 gimbal6_ik_solution *out = &solutions[count++];
                 out->joints[0] = jv1;
@@ -725,15 +737,12 @@ static int closed_form(const double pose[16], const double *current,
                 out->joints[3] = jv4;
                 out->joints[4] = jv5;
                 out->joints[5] = jv6;
-                out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
+                out->labels[0] = lab0;
+                out->labels[1] = lab1;
+                out->singular = singular;
                 out->conditioning[0] = cv0;
                 out->conditioning[1] = cv1;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches; symmetric limits as one
-                 * comparison of the reading's magnitude (the same test, NaN included) */
-                out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]);
+                out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & inside;
             }
         }
         if (root2 > 0.0 && !free1) {
@@ -750,17 +759,6 @@ static int closed_form(const double pose[16], const double *current,
                 u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jf3 = u3 * 57.295779513082323;
                 const double jv3 = jf3 > 1.4210854715202004e-14 ? jf3 - 180.0 : jf3 + 180.0;
-                double u4 = th4;
-                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
-                const double jv4 = u4 * 57.295779513082323;
-                double u5 = th5;
-                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
-                const double jv5 = u5 * 57.295779513082323;
-                double u6 = th6;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                const double jv6 = u6 * 57.295779513082323;
-                const double cv0 = cnd6;
-                const double cv1 = root2 * 1.0;
                 if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
                     gimbal6_ik_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -769,15 +767,12 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? -1 : 1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->singular = free6 || dbl6 || free5 || root2 == 0.0 || free1;
+                    out->labels[0] = (signed char)-lab0;
+                    out->labels[1] = lab1;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]);
+                    out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & inside;
                 }
             }
         }
@@ -1054,6 +1049,16 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
          * mirrored solution's values follow from these) */
         const double probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
         const int fine = probe - probe == 0.0;
+        /* the readings a solution shares with its mirrored twin: converted once for both */
+        double u4 = th4;
+        u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
+        const double jv4 = u4 * 57.295779513082323;
+        double u5 = th5;
+        u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
+        const double jv5 = u5 * 57.295779513082323;
+        double u6 = th6;
+        u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
+        const double jv6 = u6 * 57.295779513082323;
         {
             double u1 = th1;
             u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
@@ -1064,15 +1069,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
             double u3 = th3;
             u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
             const double jv3 = u3 * 57.295779513082323;
-            double u4 = th4;
-            u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
-            const double jv4 = u4 * 57.295779513082323;
-            double u5 = th5;
-            u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
-            const double jv5 = u5 * 57.295779513082323;
-            double u6 = th6;
-            u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-            const double jv6 = u6 * 57.295779513082323;
             if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
                 double *row = joints[count++];
                 row[0] = jv1;
@@ -1097,15 +1093,6 @@ int gimbal6_ik_inverse_joints(const double pose[16], const double *current,
                 u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
                 const double jf3 = u3 * 57.295779513082323;
                 const double jv3 = jf3 > 1.4210854715202004e-14 ? jf3 - 180.0 : jf3 + 180.0;
-                double u4 = th4;
-                u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
-                const double jv4 = u4 * 57.295779513082323;
-                double u5 = th5;
-                u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
-                const double jv5 = u5 * 57.295779513082323;
-                double u6 = th6;
-                u6 = u6 > 3.1415926535897931 ? u6 - 6.2831853071795862 : (u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6);
-                const double jv6 = u6 * 57.295779513082323;
                 if (fine && count < GIMBAL6_IK_CLOSED_FORM) {
                     double *row = joints[count++];
                     row[0] = jv1;

@@ -680,6 +680,29 @@ static int closed_form(const float pose[16], const float *current,
          * mirrored solution's values follow from these) */
         const float probe = ((th1 + th2) + (th3 + th4)) + ((th5 + th6) + (cnd6 + root2));
         const int fine = probe - probe == 0.0f;
+        /* the readings a solution shares with its mirrored twin: converted once for both */
+        float u4 = th4;
+        u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
+        const float jv4 = u4 * 57.2957795f;
+        float u5 = th5;
+        u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
+        const float jv5 = u5 * 57.2957795f;
+        float u6 = th6;
+        u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
+        const float jv6 = u6 * 57.2957795f;
+        /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+         * the limit tests of the readings they share: once for both (the twin negates a label the
+         * mirror flips).
+         * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+         * being in one turn here; tested without branches, symmetric limits as one comparison of the
+         * reading's magnitude (the same test, NaN included).
+         */
+        const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+        const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+        const int singular = free6 | dbl6 | free5 | (root2 == 0.0f) | free1;
+        const float cv0 = cnd6;
+        const float cv1 = root2 * 1.0f;
+        const int inside = (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]);
         {
             float u1 = th1;
             u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
@@ -690,17 +713,6 @@ static int closed_form(const float pose[16], const float *current,
             float u3 = th3;
             u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
             const float jv3 = u3 * 57.2957795f;
-            float u4 = th4;
-            u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
-            const float jv4 = u4 * 57.2957795f;
-            float u5 = th5;
-            u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
-            const float jv5 = u5 * 57.2957795f;
-            float u6 = th6;
-            u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-            const float jv6 = u6 * 57.2957795f;
-            const float cv0 = cnd6;
-            const float cv1 = root2 * 1.0f;
             if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
                 gimbal6_ik_f32_solution *out = &solutions[count++];
                 out->joints[0] = jv1;
@@ -709,15 +721,12 @@ static int closed_form(const float pose[16], const float *current,
                 out->joints[3] = jv4;
                 out->joints[4] = jv5;
                 out->joints[5] = jv6;
-                out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
+                out->labels[0] = lab0;
+                out->labels[1] = lab1;
+                out->singular = singular;
                 out->conditioning[0] = cv0;
                 out->conditioning[1] = cv1;
-                /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                 * readings are in one turn here), tested without branches; symmetric limits as one
-                 * comparison of the reading's magnitude (the same test, NaN included) */
-                out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]);
+                out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & inside;
             }
         }
         if (root2 > 0.0f && !free1) {
@@ -734,17 +743,6 @@ static int closed_form(const float pose[16], const float *current,
                 u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
                 const float jf3 = u3 * 57.2957795f;
                 const float jv3 = jf3 > 7.62939453e-06f ? jf3 - 180.0f : jf3 + 180.0f;
-                float u4 = th4;
-                u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
-                const float jv4 = u4 * 57.2957795f;
-                float u5 = th5;
-                u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
-                const float jv5 = u5 * 57.2957795f;
-                float u6 = th6;
-                u6 = u6 > 3.14159265f ? u6 - 6.28318531f : (u6 <= -3.14159265f ? u6 + 6.28318531f : u6);
-                const float jv6 = u6 * 57.2957795f;
-                const float cv0 = cnd6;
-                const float cv1 = root2 * 1.0f;
                 if (fine && count < GIMBAL6_IK_F32_CLOSED_FORM) {
                     gimbal6_ik_f32_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -753,15 +751,12 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? -1 : 1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->singular = free6 || dbl6 || free5 || root2 == 0.0f || free1;
+                    out->labels[0] = (signed char)-lab0;
+                    out->labels[1] = lab1;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]);
+                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & inside;
                 }
             }
         }

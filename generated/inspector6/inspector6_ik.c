@@ -499,13 +499,29 @@ static int closed_form(const double pose[16], const double *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            double u1 = th1;
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+            const double jv1 = u1 * 57.295779513082323;
+            double u2 = th2 - 1.5707963267948966;
+            u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
+            const double jv2 = u2 * -57.295779513082323;
+            /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+             * the limit tests of the readings they share: once for both (the twin negates a label the
+             * mirror flips).
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
+            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
+            const int singular = (root3 == 0.0) | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
+            const double cv0 = root3 * 5.3879310344827582e-06;
+            const double cv1 = root1 * 0.003162277660168379;
+            const double cv2 = root5 * 1.0;
+            const int inside = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = th2 - 1.5707963267948966;
-                u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * -57.295779513082323;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
@@ -515,9 +531,6 @@ static int closed_form(const double pose[16], const double *current,
                 double u6 = th6;
                 u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                 const double jv6 = u6 * 57.295779513082323;
-                const double cv0 = root3 * 5.3879310344827582e-06;
-                const double cv1 = root1 * 0.003162277660168379;
-                const double cv2 = root5 * 1.0;
                 if (fine && count < INSPECTOR6_IK_CLOSED_FORM) {
                     inspector6_ik_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -526,27 +539,18 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                    out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->labels[2] = lab2;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (fabs(jv5) <= HIGH[4]);
+                    out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                 }
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
-                    double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                    const double jv2 = u2 * -57.295779513082323;
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                     const double jf4 = u4 * 57.295779513082323;
@@ -559,9 +563,6 @@ static int closed_form(const double pose[16], const double *current,
                     u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jf6 = u6 * 57.295779513082323;
                     const double jv6 = jf6 > 1.4210854715202004e-14 ? jf6 - 180.0 : jf6 + 180.0;
-                    const double cv0 = root3 * 5.3879310344827582e-06;
-                    const double cv1 = root1 * 0.003162277660168379;
-                    const double cv2 = root5 * 1.0;
                     if (fine && count < INSPECTOR6_IK_CLOSED_FORM) {
                         inspector6_ik_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -570,17 +571,14 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[3] = jv4;
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
-                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0 ? -1 : 1);
-                        out->singular = root3 == 0.0 || free1 || root1 == 0.0 || free2 || root5 == 0.0 || free4;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = (signed char)-lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
-                        out->within_limits = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]) & (fabs(jv5) <= HIGH[4]);
+                        out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                     }
                 }
             }
@@ -880,13 +878,14 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root3) + (root1 + root5));
             const int fine = entries == 2 || probe - probe == 0.0;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            double u1 = th1;
+            u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
+            const double jv1 = u1 * 57.295779513082323;
+            double u2 = th2 - 1.5707963267948966;
+            u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
+            const double jv2 = u2 * -57.295779513082323;
             {
-                double u1 = th1;
-                u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                const double jv1 = u1 * 57.295779513082323;
-                double u2 = th2 - 1.5707963267948966;
-                u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                const double jv2 = u2 * -57.295779513082323;
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                 const double jv4 = u4 * 57.295779513082323;
@@ -908,12 +907,6 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
             }
             if (root5 > 0.0 && !free4) {
                 {
-                    double u1 = th1;
-                    u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
-                    const double jv1 = u1 * 57.295779513082323;
-                    double u2 = th2 - 1.5707963267948966;
-                    u2 = u2 < -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
-                    const double jv2 = u2 * -57.295779513082323;
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
                     const double jf4 = u4 * 57.295779513082323;

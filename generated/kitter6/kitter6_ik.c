@@ -453,6 +453,18 @@ static int closed_form(const double pose[16], const double *current,
                  * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
                 const double probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
                 const int fine = entries == 2 || probe - probe == 0.0;
+                /* the labels, singular flag and conditioning measures of the solution.
+                 * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+                 * being in one turn here; tested without branches, symmetric limits as one comparison of the
+                 * reading's magnitude (the same test, NaN included).
+                 */
+                const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+                const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
+                const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
+                const int singular = free1 | (root1 == 0.0) | (root5 == 0.0) | free6 | (root3 == 0.0) | free2;
+                const double cv0 = root1 * 0.003162277660168379;
+                const double cv1 = root5 * 1.0;
+                const double cv2 = root3 * 5.1361068310220853e-06;
                 {
                     double u2 = th2 - 1.5707963267948966;
                     u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
@@ -467,9 +479,6 @@ static int closed_form(const double pose[16], const double *current,
                     double u6 = th6;
                     u6 = u6 <= -3.1415926535897931 ? u6 + 6.2831853071795862 : u6;
                     const double jv6 = u6 * 57.295779513082323;
-                    const double cv0 = root1 * 0.003162277660168379;
-                    const double cv1 = root5 * 1.0;
-                    const double cv2 = root3 * 5.1361068310220853e-06;
                     if (fine && count < KITTER6_IK_CLOSED_FORM) {
                         kitter6_ik_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -478,16 +487,13 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[3] = jv4;
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
-                        out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                        out->singular = free1 || root1 == 0.0 || root5 == 0.0 || free6 || root3 == 0.0 || free2;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
                         out->within_limits = (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]) & (fabs(jv5) <= HIGH[4]);
                     }
                 }

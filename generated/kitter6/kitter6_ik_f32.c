@@ -437,6 +437,18 @@ static int closed_form(const float pose[16], const float *current,
                  * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
                 const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root5 + root3));
                 const int fine = entries == 2 || probe - probe == 0.0f;
+                /* the labels, singular flag and conditioning measures of the solution.
+                 * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+                 * being in one turn here; tested without branches, symmetric limits as one comparison of the
+                 * reading's magnitude (the same test, NaN included).
+                 */
+                const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+                const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+                const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
+                const int singular = free1 | (root1 == 0.0f) | (root5 == 0.0f) | free6 | (root3 == 0.0f) | free2;
+                const float cv0 = root1 * 0.00316227766f;
+                const float cv1 = root5 * 1.0f;
+                const float cv2 = root3 * 5.13610683e-06f;
                 {
                     float u2 = th2 - 1.57079633f;
                     u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
@@ -451,9 +463,6 @@ static int closed_form(const float pose[16], const float *current,
                     float u6 = th6;
                     u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                     const float jv6 = u6 * 57.2957795f;
-                    const float cv0 = root1 * 0.00316227766f;
-                    const float cv1 = root5 * 1.0f;
-                    const float cv2 = root3 * 5.13610683e-06f;
                     if (fine && count < KITTER6_IK_F32_CLOSED_FORM) {
                         kitter6_ik_f32_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -462,16 +471,13 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[3] = jv4;
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
-                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                        out->singular = free1 || root1 == 0.0f || root5 == 0.0f || free6 || root3 == 0.0f || free2;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
                         out->within_limits = (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]);
                     }
                 }

@@ -291,26 +291,31 @@ static int closed_form(const double pose[16], const double *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const double probe = ((th1 + th2) + l3) + (root1 + root2);
             const int fine = entries == 2 || probe - probe == 0.0;
+            /* the labels, singular flag and conditioning measures of the solution.
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
+            const int singular = free1 | (root1 == 0.0) | free2 | (root2 == 0.0);
+            const double cv0 = root1 * 0.001;
+            const double cv1 = root2 * 0.001;
             {
                 double u2 = th2;
                 u2 = u2 <= -3.1415926535897931 ? u2 + 6.2831853071795862 : u2;
                 const double jv2 = u2 * 57.295779513082323;
                 const double jv3 = (l3 - 0.0) * 1.0;
-                const double cv0 = root1 * 0.001;
-                const double cv1 = root2 * 0.001;
                 if (fine && count < MAST3_IK_CLOSED_FORM) {
                     mast3_ik_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
                     out->joints[1] = jv2;
                     out->joints[2] = jv3;
-                    out->labels[0] = (signed char)(lm0 >= 0.0 ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0 || free2 || root2 == 0.0;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
                     out->within_limits = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
                 }
             }

@@ -275,26 +275,31 @@ static int closed_form(const float pose[16], const float *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const float probe = ((th1 + th2) + l3) + (root1 + root2);
             const int fine = entries == 2 || probe - probe == 0.0f;
+            /* the labels, singular flag and conditioning measures of the solution.
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            const int singular = free1 | (root1 == 0.0f) | free2 | (root2 == 0.0f);
+            const float cv0 = root1 * 0.001f;
+            const float cv1 = root2 * 0.001f;
             {
                 float u2 = th2;
                 u2 = u2 <= -3.14159265f ? u2 + 6.28318531f : u2;
                 const float jv2 = u2 * 57.2957795f;
                 const float jv3 = (l3 - 0.0f) * 1.0f;
-                const float cv0 = root1 * 0.001f;
-                const float cv1 = root2 * 0.001f;
                 if (fine && count < MAST3_IK_F32_CLOSED_FORM) {
                     mast3_ik_f32_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
                     out->joints[1] = jv2;
                     out->joints[2] = jv3;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0f || free2 || root2 == 0.0f;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
                     out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
                 }
             }

@@ -515,13 +515,29 @@ static int closed_form(const float pose[16], const float *current,
              * SAFE_ENTRY nothing can overflow (the compiler computes the sum only where it is read) */
             const float probe = (((th1 + th2) + th3) + (th4 + th5)) + ((th6 + root1) + (root3 + root5));
             const int fine = entries == 2 || probe - probe == 0.0f;
+            /* the readings a solution shares with its mirrored twin: converted once for both */
+            float u2 = th2 - -1.57079633f;
+            u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
+            const float jv2 = u2 * 1.0f;
+            float u3 = th3;
+            u3 = u3 < -3.14159265f ? u3 + 6.28318531f : u3;
+            const float jv3 = u3 * -1.0f;
+            /* the labels, singular flag and conditioning measures of a solution and its mirrored twin, and
+             * the limit tests of the readings they share: once for both (the twin negates a label the
+             * mirror flips).
+             * Within the limits: only joints whose limits do not hold a whole turn can fail, the readings
+             * being in one turn here; tested without branches, symmetric limits as one comparison of the
+             * reading's magnitude (the same test, NaN included).
+             */
+            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
+            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
+            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
+            const int singular = free1 | (root1 == 0.0f) | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const float cv0 = root1 * 3.16227766f;
+            const float cv1 = root3 * 4.18082853f;
+            const float cv2 = root5 * 1.0f;
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
             {
-                float u2 = th2 - -1.57079633f;
-                u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
-                const float jv2 = u2 * 1.0f;
-                float u3 = th3;
-                u3 = u3 < -3.14159265f ? u3 + 6.28318531f : u3;
-                const float jv3 = u3 * -1.0f;
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                 const float jv4 = u4 * 1.0f;
@@ -531,9 +547,6 @@ static int closed_form(const float pose[16], const float *current,
                 float u6 = th6;
                 u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                 const float jv6 = u6 * 1.0f;
-                const float cv0 = root1 * 3.16227766f;
-                const float cv1 = root3 * 4.18082853f;
-                const float cv2 = root5 * 1.0f;
                 if (fine && count < SEEDLING6_IK_F32_CLOSED_FORM) {
                     seedling6_ik_f32_solution *out = &solutions[count++];
                     out->joints[0] = jv1;
@@ -542,27 +555,18 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                    out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                    out->labels[2] = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                    out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                    out->labels[0] = lab0;
+                    out->labels[1] = lab1;
+                    out->labels[2] = lab2;
+                    out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
                     out->conditioning[2] = cv2;
-                    /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                     * readings are in one turn here), tested without branches; symmetric limits as one
-                     * comparison of the reading's magnitude (the same test, NaN included) */
-                    out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]);
+                    out->within_limits = (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
             if (root5 > 0.0f && !free4) {
                 {
-                    float u2 = th2 - -1.57079633f;
-                    u2 = u2 > 3.14159265f ? u2 - 6.28318531f : u2;
-                    const float jv2 = u2 * 1.0f;
-                    float u3 = th3;
-                    u3 = u3 < -3.14159265f ? u3 + 6.28318531f : u3;
-                    const float jv3 = u3 * -1.0f;
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
                     const float jf4 = u4 * 1.0f;
@@ -575,9 +579,6 @@ static int closed_form(const float pose[16], const float *current,
                     u6 = u6 <= -3.14159265f ? u6 + 6.28318531f : u6;
                     const float jf6 = u6 * 1.0f;
                     const float jv6 = jf6 > 1.19209282e-07f ? jf6 - 3.14159274f : jf6 + 3.14159274f;
-                    const float cv0 = root1 * 3.16227766f;
-                    const float cv1 = root3 * 4.18082853f;
-                    const float cv2 = root5 * 1.0f;
                     if (fine && count < SEEDLING6_IK_F32_CLOSED_FORM) {
                         seedling6_ik_f32_solution *out = &solutions[count++];
                         out->joints[0] = jv1;
@@ -586,17 +587,14 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[3] = jv4;
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
-                        out->labels[0] = (signed char)(lm0 >= 0.0f ? 1 : -1);
-                        out->labels[1] = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                        out->labels[2] = (signed char)(lm2 >= 0.0f ? -1 : 1);
-                        out->singular = free1 || root1 == 0.0f || root3 == 0.0f || free2 || root5 == 0.0f || free4;
+                        out->labels[0] = lab0;
+                        out->labels[1] = lab1;
+                        out->labels[2] = (signed char)-lab2;
+                        out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;
                         out->conditioning[2] = cv2;
-                        /* within the limits: only joints whose limits do not hold a whole turn can fail (the
-                         * readings are in one turn here), tested without branches; symmetric limits as one
-                         * comparison of the reading's magnitude (the same test, NaN included) */
-                        out->within_limits = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]);
+                        out->within_limits = (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & inside;
                     }
                 }
             }

@@ -115,6 +115,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         guard=lambda block: reach_guard(block, scalar),
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=common.limit_checked(common.joint_turns(arm)),
+        within_shared=within_split(arm, plan, True), within_own=within_split(arm, plan, False),
         probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
         safe_entry=bounds.safe_entry(plan, scalar.name), label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
@@ -136,6 +137,13 @@ def source_functions(scalar: Scalar, n: dict) -> dict:
     """The source's ``fn``: every atan2 goes through <prefix>_atan2 (templates/c_atan2.c.j2: the
     maths library's, or the kernel's when the user compiles with IKGEN_FAST_ATAN2 defined)."""
     return {"fn": lambda name: f"{n['prefix']}_atan2" if name == "atan2" else scalar.fn(name)}
+
+
+def within_split(arm: Arm, plan, shared: bool) -> list[int]:
+    """The joints (0-based) whose limit test a solution shares with its mirrored twin (shared,
+    Plan.twin_shares: tested once for both), or the others."""
+    outputs = {out.joint: out for out in plan.outputs}
+    return [k for k in common.limit_checked(common.joint_turns(arm)) if plan.twin_shares(outputs[k + 1]) == shared]
 
 
 def probe_terms(plan) -> list[str]:

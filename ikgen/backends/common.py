@@ -498,6 +498,18 @@ class Plan:
             return "negate" if self.mirror.kind == "negate_sin" and out.zero == 0.0 else None
         return "half_turn" if self.mirror.parities.get(key, 1) < 0 else None
 
+    def twin_shares(self, out: "OutputPlan") -> bool:
+        """Whether a mirrored twin has its first solution's reading of this output (a slide, the
+        caller's reading, an angle the mirror leaves alone), so that the reading and its limit
+        test serve both (False without a mirror)."""
+        return self.mirror is not None and (out.prismatic or out.given or self.mirrored_angle(out.joint) == f"th{out.joint}")
+
+    @property
+    def twin_readings(self) -> list:
+        """The outputs whose readings are set once for a solution and its mirrored twin, before
+        either is written (twin_shares; an early output is converted earlier still)."""
+        return [out for out in self.outputs if out.joint not in self.early_joints and self.twin_shares(out)]
+
     def mirrored_angle(self, joint) -> str:
         """The mirrored solution's DH angle of ``joint`` in terms of the first one's (generated names)."""
         m = self.mirror

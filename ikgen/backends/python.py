@@ -155,8 +155,7 @@ def within_parts(arm: Arm, plan: common.Plan) -> tuple[list[tuple[int, str]], li
         turn, joint = turns[k], k + 1
         out = next(o for o in plan.outputs if o.joint == joint)
         check = f"{turn.low!r} <= {'given' if out.given else f'v{joint}'} <= {turn.high!r}"
-        shared = plan.mirror is not None and (out.prismatic or out.given or plan.mirrored_angle(joint) == f"th{joint}")
-        (kept if shared else changed).append((joint, check))
+        (kept if plan.twin_shares(out) else changed).append((joint, check))
     return kept, changed
 
 
