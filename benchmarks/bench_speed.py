@@ -4,19 +4,27 @@ For the demo arm examples/benchtop6.toml, in one run, on the same N seeded poses
 within the limits, NumericChain.poses), every solver returning every closed-form solution with
 joint limits ignored:
 - C, gcc -O2: the generated double solver (<arm>_ik.c, BENCHTOP6_IK_LIMITS_IGNORE) against the
-  hand-written benchmarks/hand/benchtop6_hand.c, ns per full solve and their ratio (goal <= 1.05x);
+  hand-written benchmarks/hand/benchtop6_hand.c, ns per full solve and their ratio (goal <= 1.05x):
+  the full call against the hand-written readings-only solver (the comparison as first made), the
+  full call against the hand-written solver's full build (the same outputs: labels, singular flag,
+  conditioning measures, within-limits flag), and the readings-only entry _inverse_joints against
+  the readings-only solver;
   the generated float build (<arm>_ik_f32.c) against the double one (goal <= 1.0x); and the same
   two rows with the generated solvers built with their opt-in atan2 kernel (-DIKGEN_FAST_ATAN2;
   the hand-written solver keeps the maths library's atan2). One harness
   (benchmarks/hand/speed_harness.c) times them in interleaved rounds and keeps each one's best;
 - Python: the generated <arm>_ik.py, inverse(pose, limits="ignore") and the readings-only
-  inverse_joints(pose) (the same output as the hand-written solver's), against the hand-written
-  benchmarks/hand/benchtop6_hand.py, us per full solve and their ratio (goal <= 1.5x);
+  inverse_joints(pose) (the same output as the hand-written inverse's), against the hand-written
+  benchmarks/hand/benchtop6_hand.py, us per full solve and their ratio (goal <= 1.5x): the same
+  three pairs as for C (the full call also against the hand-written inverse_full, which returns
+  the same outputs);
 - the generated C called once per pose through cffi (ikgen.cbuild.compile_solver(arm).inverse,
   rendered by the installed generator) against the generated pure-Python solver (goal <= 1.0x).
 Before timing, the generated and hand-written solvers must find the same number of solutions on
-every pose (C) and on the first --check-poses poses (Python); tests/test_hand_reference.py checks
-the hand solvers' solution sets and round trips in full.
+every pose (C) and on the first --check-poses poses (Python), and the hand-written full builds the
+same labels and flags as the generated full calls (measures within 1e-9, readings as the
+readings-only hand solvers'); tests/test_hand_reference.py checks the hand solvers' solution sets,
+round trips and full outputs in full.
 
 The generated files are read from generated/benchtop6/ (as committed or as the lead regenerated
 them), or, with --fresh, generated now by ikgen.generate.build into a temporary folder.
@@ -113,6 +121,8 @@ def compile_harness(cc: str, arm, sources: Path, work: Path, variant: str) -> Pa
     units = {f"generated_{variant}.o": [*solver_flags, *include, str(sources / double["source"])],
              f"generated_f32_{variant}.o": [*float_flags, *include, str(sources / single["source"])],
              f"hand_{variant}.o": [*solver_flags, *include, str(HAND / "benchtop6_hand.c")],
+             f"hand_full_{variant}.o": [*solver_flags, *include, "-DBENCHTOP6_HAND_FULL",
+                                        str(HAND / "benchtop6_hand.c")],
              f"harness_{variant}.o": [*harness_flags, *include, *macros, str(HAND / "speed_harness.c")]}
     if extra:
         units["counters.o"] = [str(ROOT / "benchmarks" / "c" / "counters.c")]
@@ -140,6 +150,10 @@ def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Pa
     if figures["readings_mismatches"]:
         raise BenchError(f"the generated C solver's readings-only entry and its full one differ on "
                          f"{int(figures['readings_mismatches'])} poses: fix that before timing them")
+    if figures["hand_full_mismatches"]:
+        raise BenchError(f"the hand-written C solver's full build and the generated full call (or the hand-written "
+                         f"readings-only build) differ on {int(figures['hand_full_mismatches'])} poses: fix that "
+                         f"before timing them")
     stubbed = key_values(run([str(binaries["stub"]), str(pose_file), str(rounds)], work))
     figures.update({f"stub_{key}": value for key, value in stubbed.items()})
     kernel = key_values(run([str(binaries["kernel"]), str(pose_file), str(rounds)], work))
@@ -149,12 +163,19 @@ def time_c(cc: str, arm, sources: Path, poses: np.ndarray, rounds: int, work: Pa
 
 def check_python(generated, hand, poses: list) -> None:
     for index, pose in enumerate(poses):
-        want, got = len(generated.inverse(pose, limits="ignore")), len(hand.inverse(pose))
+        full, lean = generated.inverse(pose, limits="ignore"), hand.inverse(pose)
+        want, got = len(full), len(lean)
         if hasattr(generated, "inverse_joints") and len(generated.inverse_joints(pose)) != want:
             raise BenchError(f"pose {index}: inverse_joints and inverse disagree on the number of solutions")
         if want != got:
             raise BenchError(f"pose {index}: the generated Python solver finds {want} solutions, "
                              f"the hand-written one {got}: fix that before timing them")
+        rows = hand.inverse_full(pose)
+        if [tuple(r.joints) for r in rows] != lean or any(
+                r.config != s.config or r.singular != s.singular or r.within_limits != s.within_limits
+                or max(abs(a - b) for a, b in zip(r.conditioning, s.conditioning)) > 1e-9 for r, s in zip(rows, full)):
+            raise BenchError(f"pose {index}: the hand-written inverse_full and the generated inverse disagree on "
+                             f"labels, flags or measures (or inverse_full on readings with inverse): fix that first")
 
 
 def time_python(solvers: dict, poses: list, rounds: int) -> dict[str, tuple[float, float]]:
@@ -207,6 +228,10 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
          ratio, GOALS["c"])
     line("  (median round)", f"{c['generated_median_ns']:.0f}", f"{c['hand_median_ns']:.0f}",
          c["generated_median_ns"] / c["hand_median_ns"])
+    line("C double, full vs hand-written full, ns", f"{c['generated_best_ns']:.0f}", f"{c['hand_full_best_ns']:.0f}",
+         c["generated_best_ns"] / c["hand_full_best_ns"], GOALS["c"])
+    line("  (median round)", f"{c['generated_median_ns']:.0f}", f"{c['hand_full_median_ns']:.0f}",
+         c["generated_median_ns"] / c["hand_full_median_ns"])
     line("C double inverse_joints (readings only), ns", f"{c['readings_best_ns']:.0f}", f"{c['hand_best_ns']:.0f}",
          c["readings_best_ns"] / c["hand_best_ns"], GOALS["c"])
     line("  (median round)", f"{c['readings_median_ns']:.0f}", f"{c['hand_median_ns']:.0f}",
@@ -214,6 +239,10 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     gen, hand = py["generated"], py["hand"]
     line("Python, us per full solve (best)", f"{gen[0]:.2f}", f"{hand[0]:.2f}", gen[0] / hand[0], GOALS["python"])
     line("  (median round)", f"{gen[1]:.2f}", f"{hand[1]:.2f}", gen[1] / hand[1])
+    whole = py["hand_full"]
+    line("Python, full vs hand-written full, us", f"{gen[0]:.2f}", f"{whole[0]:.2f}", gen[0] / whole[0],
+         GOALS["python"])
+    line("  (median round)", f"{gen[1]:.2f}", f"{whole[1]:.2f}", gen[1] / whole[1])
     if "readings" in py:
         lean = py["readings"]
         line("Python inverse_joints (readings only), us", f"{lean[0]:.2f}", f"{hand[0]:.2f}", lean[0] / hand[0],
@@ -237,8 +266,14 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
          GOALS["float"])
     poses = c["poses"]
     print("-" * 92)
-    print("reference column: hand-written C / hand-written Python (benchmarks/hand/); for the cffi row the "
-          "generated pure-Python solver; for the float row the generated double build.")
+    print("reference column: hand-written C / hand-written Python (benchmarks/hand/), readings only; in the "
+          "'full vs hand-written full' rows their full builds (benchtop6_hand_inverse_full, inverse_full), which "
+          "return what the generated full call returns; for the cffi row the generated pure-Python solver; for "
+          "the float row the generated double build.")
+    print(f"hand-written C full build {c['hand_full_best_ns']:.0f} ns against its readings-only build "
+          f"{c['hand_best_ns']:.0f} ns ({c['hand_full_best_ns'] / c['hand_best_ns']:.2f}x); Python "
+          f"{py['hand_full'][0]:.2f} against {py['hand'][0]:.2f} us ({py['hand_full'][0] / py['hand'][0]:.2f}x): "
+          f"what the full outputs cost written by hand.")
     print(f"C: {int(poses)} poses, {rounds[0]} interleaved rounds (order rotating), best and median round; "
           f"solutions per pose {c['generated_solutions'] / poses:.3f} generated, {c['hand_solutions'] / poses:.3f} "
           f"hand-written, {c['float_solutions'] / poses:.3f} float build.")
@@ -248,7 +283,7 @@ def print_table(c: dict, py: dict, rounds: tuple[int, int], counts: tuple[int, i
     print("IKGEN_FAST_ATAN2: the generated double and float solvers built with their opt-in atan2 kernel "
           "(docs/solvers.md), the hand-written one with the maths library's atan2 as always.")
     print(f"Python: {counts[0]} poses as nested lists, {rounds[1]} interleaved rounds; solution counts of the "
-          f"generated and hand-written solvers compared on the first {counts[1]} poses (all equal).")
+          f"generated and hand-written solvers compared on the first {counts[1]} poses (all equal; with the hand-written full build, labels, flags and measures too).")
 
 
 def parse_args(argv):
@@ -280,7 +315,8 @@ def measure(args, cc: str, work: Path) -> None:
     hand = load_module((HAND / "benchtop6_hand.py").read_text(encoding="utf-8"), "benchtop6_hand_bench_speed")
     nested = [p.tolist() for p in poses[:args.python_poses or len(poses)]]
     check_python(generated, hand, nested[:args.check_poses])
-    solvers = {"generated": lambda pose: generated.inverse(pose, limits="ignore"), "hand": hand.inverse}
+    solvers = {"generated": lambda pose: generated.inverse(pose, limits="ignore"), "hand": hand.inverse,
+               "hand_full": hand.inverse_full}
     if hasattr(generated, "inverse_joints"):          # readings only, as the hand-written solver returns
         solvers["readings"] = generated.inverse_joints
     if not args.no_cffi:

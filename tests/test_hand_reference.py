@@ -10,7 +10,13 @@ examples/benchtop6.toml (random readings within the limits):
   (Spong, Hutchinson and Vidyasagar, Robot Modeling and Control, 1st ed., sec. 3.2; from memory),
   itself checked against ikgen.kinematics.NumericChain;
 - the branches random poses never take: a NaN pose, a pose out of reach, a wrist-singular pose
-  (joint 5 at 0) and a wrist centre on axis 1.
+  (joint 5 at 0) and a wrist centre on axis 1;
+- their full builds (C benchtop6_hand_inverse_full, Python inverse_full: what the generated full
+  call returns beside the readings) give the readings-only builds' readings bit for bit and the
+  generated solver's labels, singular flags and within-limits flags, with its conditioning
+  measures within 1e-9 (on random poses and on the singular ones above). The labels and measures
+  are ikgen's own definitions (docs/solvers.md, docs/derivation.md section 4): this checks that the
+  full-output yardstick returns the same outputs, not the definitions themselves.
 Joint-1 candidates through the two shoulder sides, 2 elbows and 2 wrists give 8 solutions: the
 usual count for a six-axis arm with a spherical wrist (Pieper 1968; common practice).
 """
@@ -90,25 +96,59 @@ def generated():
     return _import(GENERATED, "benchtop6_ik_for_hand_reference")
 
 
-@pytest.fixture(scope="module")
-def hand_c(tmp_path_factory):
-    """The hand-written C solver as a function pose (4x4) -> list of 6-tuples, through cffi."""
+def _hand_library(folder: Path, full: bool):
+    """(ffi, lib) of the hand-written C solver's readings-only build, or of its full build."""
     if not any(shutil.which(cc) for cc in ("cc", "gcc")):
         pytest.skip("no C compiler on this machine")
     import cffi
-    folder = tmp_path_factory.mktemp("hand_c")
     ffi = cffi.FFI()
-    ffi.cdef("int benchtop6_hand_inverse(const double pose[16], double q[8][6]);")
-    ffi.set_source("_benchtop6_hand_c", '#include "benchtop6_hand.h"', sources=[str(HAND / "benchtop6_hand.c")],
-                   include_dirs=[str(HAND)], extra_compile_args=["-O2", "-std=c99", "-Wall", "-Werror"])
-    library = ffi.compile(tmpdir=str(folder), verbose=False)
-    lib = _import(Path(library), "_benchtop6_hand_c").lib
+    if full:
+        ffi.cdef("typedef struct { double joints[6]; double conditioning[3]; signed char labels[3]; int singular; "
+                 "int within_limits; } benchtop6_hand_solution;\n"
+                 "int benchtop6_hand_inverse_full(const double pose[16], benchtop6_hand_solution q[8]);")
+    else:
+        ffi.cdef("int benchtop6_hand_inverse(const double pose[16], double q[8][6]);")
+    name = "_benchtop6_hand_full_c" if full else "_benchtop6_hand_c"
+    ffi.set_source(name, '#include "benchtop6_hand.h"', sources=[str(HAND / "benchtop6_hand.c")],
+                   include_dirs=[str(HAND)], define_macros=[("BENCHTOP6_HAND_FULL", "1")] if full else [],
+                   extra_compile_args=["-O2", "-std=c99", "-Wall", "-Werror"])
+    module = _import(Path(ffi.compile(tmpdir=str(folder), verbose=False)), name)
+    return module.ffi, module.lib   # the compiled module's own ffi: its struct type is the one lib takes
+
+
+@pytest.fixture(scope="module")
+def hand_c(tmp_path_factory):
+    """The hand-written C solver as a function pose (4x4) -> list of 6-tuples, through cffi."""
+    ffi, lib = _hand_library(tmp_path_factory.mktemp("hand_c"), full=False)
     out = ffi.new("double[8][6]")
 
     def inverse(pose) -> list[tuple]:
         flat = np.ascontiguousarray(pose, dtype=np.float64).reshape(16)
         count = lib.benchtop6_hand_inverse(ffi.cast("double *", ffi.from_buffer(flat)), out)
         return [tuple(out[k][j] for j in range(6)) for k in range(count)]
+
+    return inverse
+
+
+LABEL_WORDS = (("reach_forward", "reach_backward"), ("elbow_up", "elbow_down"), ("bend_positive", "bend_negative"))
+
+
+@pytest.fixture(scope="module")
+def hand_c_full(tmp_path_factory):
+    """The hand-written C solver's full build as a function pose (4x4) -> list of (readings,
+    labels as words, singular, conditioning, within_limits), through cffi."""
+    ffi, lib = _hand_library(tmp_path_factory.mktemp("hand_c_full"), full=True)
+    out = ffi.new("benchtop6_hand_solution[8]")
+
+    def inverse(pose) -> list[tuple]:
+        flat = np.ascontiguousarray(pose, dtype=np.float64).reshape(16)
+        count = lib.benchtop6_hand_inverse_full(ffi.cast("double *", ffi.from_buffer(flat)), out)
+        rows = []
+        for s in out[0:count]:
+            assert all(s.labels[k] in (1, -1) for k in range(3))
+            rows.append((tuple(s.joints), tuple(LABEL_WORDS[k][0 if s.labels[k] > 0 else 1] for k in range(3)),
+                         bool(s.singular), tuple(s.conditioning), bool(s.within_limits)))
+        return rows
 
     return inverse
 
@@ -194,3 +234,51 @@ def test_branches_that_random_poses_miss(which, arm, hand_py, request):
     found = solve(on_axis.tolist())
     assert len(found) == 4
     assert max(round_trip_gaps(found, on_axis)) < 1e-9
+
+
+def full_mismatch(full: list, lean: list, want: list) -> str:
+    """'' when a full build's rows have the readings-only build's readings bit for bit and the
+    generated solutions' labels, flags and (within 1e-9) conditioning measures, else why not."""
+    if [tuple(row[0]) for row in full] != [tuple(q) for q in lean]:
+        return "the full build's readings differ from the readings-only build's"
+    if len(full) != len(want):
+        return f"{len(full)} solutions, the generated solver {len(want)}"
+    for k, (row, s) in enumerate(zip(full, want)):
+        if tuple(row[1]) != tuple(s.config) or bool(row[2]) != bool(s.singular) or bool(row[4]) != bool(s.within_limits):
+            return f"solution {k}: labels/flags {row[1:3]}, {row[4]} against {s.config}, {s.singular}, {s.within_limits}"
+        if max(abs(a - b) for a, b in zip(row[3], s.conditioning)) > 1e-9:
+            return f"solution {k}: conditioning {row[3]} against {s.conditioning}"
+    return ""
+
+
+@pytest.mark.parametrize("which", ["python", "c"])
+def test_full_build_returns_what_the_generated_full_call_returns(which, arm, poses, hand_py, request, generated):
+    full = hand_py.inverse_full if which == "python" else request.getfixturevalue("hand_c_full")
+    lean = hand_py.inverse if which == "python" else request.getfixturevalue("hand_c")
+    chain = NumericChain(arm)
+    # 1000 random poses and one whose readings break a limit (joint 2 at 150 deg against its 120)
+    outside = chain.pose([30.0, 150.0, 20.0, 10.0, 40.0, 5.0])
+    found = {"outside": 0}
+    for index, pose in enumerate([*poses[:1000], outside]):
+        rows = pose.tolist()
+        got = full(rows if which == "python" else pose)
+        problem = full_mismatch(got, lean(rows if which == "python" else pose), generated.inverse(rows, limits="ignore"))
+        assert not problem, f"pose {index}: {problem}"
+        found["outside"] += sum(not row[4] for row in got)
+    assert found["outside"] > 0
+    # singular poses (joint 5 at 0: the solutions with that wrist; the wrist centre on axis 1: every
+    # solution) flagged by both, the readings still the readings-only build's (the two solvers'
+    # counts and free joints differ there)
+    rotation = textbook_forward(np.array([[10.0, 20.0, 30.0, 40.0, 50.0, 60.0]]))[0, :3, :3]
+    on_axis = np.eye(4)
+    on_axis[:3, :3] = rotation
+    on_axis[:3, 3] = np.array([0.0, 0.0, 500.0]) + 165.0 * rotation[:, 2]
+    for pose, whole in ((chain.pose([20.0, -30.0, 40.0, 35.0, 0.0, -50.0]), False), (on_axis, True)):
+        rows = pose.tolist()
+        got = full(rows if which == "python" else pose)
+        assert [tuple(row[0]) for row in got] == [tuple(q) for q in lean(rows if which == "python" else pose)]
+        want = generated.inverse(rows, limits="ignore")
+        for solutions, reading, flag in ((got, lambda row: row[0], lambda row: row[2]),
+                                         (want, lambda s: s.joints, lambda s: s.singular)):
+            bent = [flag(row) for row in solutions if whole or abs(reading(row)[4]) < 1e-6]
+            assert bent and all(bent), (whole, solutions)

@@ -34,6 +34,14 @@
  * Readings: q = DH angle - theta offset (direction +1), in degrees, wrapped into (-180, 180].
  * Joint limits are ignored (all closed-form solutions); a pose out of reach gives 0 solutions.
  *
+ * Two builds of this one file: as it is, benchtop6_hand_inverse (the readings and nothing else);
+ * with -DBENCHTOP6_HAND_FULL, benchtop6_hand_inverse_full, the same solver writing what ikgen's
+ * full call returns beside the readings (benchtop6_hand_solution in the header): the three
+ * configuration labels, the singular flag, the three conditioning measures and whether the
+ * readings lie within the arm file's limits, each computed where its inputs are known. The
+ * readings-only build's code is the same with or without the full one (the FULL parts are
+ * preprocessor blocks; READING(row, j) is row[j] there).
+ *
  * Safety: a benchmark yardstick, not a product. Check every solution in simulation before moving a
  * real arm; limits and collisions are the integrator's job (ISO 10218-1/-2, ISO/TS 15066).
  * C99, <math.h> only.
@@ -49,6 +57,23 @@
 #define REACH_SLACK (1e-9 * L3_SQ)      /* S^2 this far below 0 is rounding: arm stretched or folded */
 #define WRIST_FREE 1e-12                /* sin(th5) below this: joints 4 and 6 share one axis */
 
+#ifdef BENCHTOP6_HAND_FULL
+typedef benchtop6_hand_solution hand_row;
+#define READING(row, j) ((row).joints[j])
+/* ikgen's reach measure for this arm: the wrist centre's distance from axis 1 over sqrt(1e5) mm
+ * (its typical squared size rounded to a power of ten, as its derivation prints); the elbow's is
+ * |sin| of the elbow's angle from full stretch, S / L3; the wrist's |sin(th5)| */
+#define REACH_GAIN 0.0031622776601683794
+/* the arm file's joint limits (deg) of the joints whose range is less than a turn: 1, 2, 3, 5 */
+#define HIGH1 170.0
+#define HIGH2 120.0
+#define HIGH3 150.0
+#define HIGH5 125.0
+#else
+typedef double hand_row[6];
+#define READING(row, j) ((row)[j])
+#endif
+
 static double wrap(double q)
 {
     return q > 180.0 ? q - 360.0 : (q <= -180.0 ? q + 360.0 : q);
@@ -56,7 +81,7 @@ static double wrap(double q)
 
 /* Joints 4-6 for one arm configuration, both wrists: writes two rows, returns 2. */
 static int wrist(double m13, double m23, double m33, double m31, double m32,
-                 double m21, double m22, double q[2][6])
+                 double m21, double m22, hand_row q[2])
 {
     const double s5 = sqrt(m13 * m13 + m23 * m23);
     double q4, q5, q6;
@@ -69,16 +94,30 @@ static int wrist(double m13, double m23, double m33, double m31, double m32,
         q5 = m33 > 0.0 ? 0.0 : 180.0;
         q6 = atan2(m21, m22) * R2D;
     }
-    q[0][3] = wrap(q4);
-    q[0][4] = q5;
-    q[0][5] = wrap(q6);
-    q[1][3] = wrap(q4 + 180.0);
-    q[1][4] = wrap(-q5);
-    q[1][5] = wrap(q6 + 180.0);
+    READING(q[0], 3) = wrap(q4);
+    READING(q[0], 4) = q5;
+    READING(q[0], 5) = wrap(q6);
+    READING(q[1], 3) = wrap(q4 + 180.0);
+    READING(q[1], 4) = wrap(-q5);
+    READING(q[1], 5) = wrap(q6 + 180.0);
+#ifdef BENCHTOP6_HAND_FULL
+    q[0].labels[2] = 1; /* bend_positive: sin(th5) >= 0 */
+    q[1].labels[2] = -1;
+    q[0].conditioning[2] = q[1].conditioning[2] = s5;
+    const int free = s5 <= WRIST_FREE;
+    q[0].singular = free;
+    q[1].singular = free;
+    q[0].within_limits = fabs(q5) <= HIGH5;
+    q[1].within_limits = fabs(READING(q[1], 4)) <= HIGH5;
+#endif
     return 2;
 }
 
-int benchtop6_hand_inverse(const double pose[16], double q[BENCHTOP6_HAND_MAX][6])
+#ifdef BENCHTOP6_HAND_FULL
+int benchtop6_hand_inverse_full(const double pose[16], hand_row q[BENCHTOP6_HAND_MAX])
+#else
+int benchtop6_hand_inverse(const double pose[16], hand_row q[BENCHTOP6_HAND_MAX])
+#endif
 {
     const double xx = pose[0], yx = pose[1], zx = pose[2], px = pose[3];
     const double xy = pose[4], yy = pose[5], zy = pose[6], py = pose[7];
@@ -106,6 +145,9 @@ int benchtop6_hand_inverse(const double pose[16], double q[BENCHTOP6_HAND_MAX][6
     const double ax1 = c1 * xx + s1 * xy, bx1 = s1 * xx - c1 * xy;
     const double ay1 = c1 * yx + s1 * yy, by1 = s1 * yx - c1 * yy;
 
+#ifdef BENCHTOP6_HAND_FULL
+    const double reach_measure = r * REACH_GAIN;
+#endif
     int n = 0;
     for (int shoulder = 0; shoulder < shoulders; ++shoulder) {
         const double sign = shoulder ? -1.0 : 1.0;
@@ -119,6 +161,10 @@ int benchtop6_hand_inverse(const double pose[16], double q[BENCHTOP6_HAND_MAX][6
             ss = 0.0;
         }
         const double s = sqrt(ss);
+#ifdef BENCHTOP6_HAND_FULL
+        const double elbow_measure = s * (1.0 / 240.83189157584592); /* S / L3, L3 = sqrt(58000) */
+        const int arm_singular = shoulders == 1 || s == 0.0;
+#endif
         const double q1s = shoulder ? wrap(q1 + 180.0) : q1;
         const double th3 = atan2(s, k) * R2D; /* th3 + phi of the first elbow; the other is -th3 */
         const double az = sign * az1, bz = sign * bz1, ax = sign * ax1;
@@ -130,12 +176,25 @@ int benchtop6_hand_inverse(const double pose[16], double q[BENCHTOP6_HAND_MAX][6
             const double c2 = u * x1 + v * y1, s2 = u * y1 - v * x1;
             const double c3 = 20.0 * k + 240.0 * v, s3 = 20.0 * v - 240.0 * k;
             const double c23 = (c2 * c3 - s2 * s3) * scale, s23 = (s2 * c3 + c2 * s3) * scale;
-            double (*row)[6] = q + n;
-            row[0][0] = row[1][0] = q1s;
-            row[0][1] = row[1][1] = wrap(atan2(s2, c2) * R2D + 90.0);
-            row[0][2] = row[1][2] = wrap((elbow ? -th3 : th3) - PHI_DEG);
+            hand_row *row = q + n;
+            READING(row[0], 0) = READING(row[1], 0) = q1s;
+            READING(row[0], 1) = READING(row[1], 1) = wrap(atan2(s2, c2) * R2D + 90.0);
+            READING(row[0], 2) = READING(row[1], 2) = wrap((elbow ? -th3 : th3) - PHI_DEG);
             n += wrist(c23 * az - s23 * zz, bz, -s23 * az - c23 * zz, -s23 * ax - c23 * xz,
                        -s23 * ay - c23 * yz, bx, by, row);
+#ifdef BENCHTOP6_HAND_FULL
+            const int arm_inside = (fabs(q1s) <= HIGH1) & (fabs(READING(row[0], 1)) <= HIGH2)
+                                   & (fabs(READING(row[0], 2)) <= HIGH3);
+            const signed char elbow_label = elbow ? -1 : 1; /* elbow_up: the first root, v = +S */
+            for (int w = 0; w < 2; ++w) { /* both wrists (wrist() set their own parts) */
+                row[w].labels[0] = (signed char)sign; /* reach_forward: the wrist centre on link 1's x side */
+                row[w].labels[1] = elbow_label;
+                row[w].conditioning[0] = reach_measure;
+                row[w].conditioning[1] = elbow_measure;
+                row[w].singular |= arm_singular;
+                row[w].within_limits &= arm_inside;
+            }
+#endif
         }
     }
     return n;

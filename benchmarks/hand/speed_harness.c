@@ -1,7 +1,9 @@
 /*
  * Timing harness for benchmarks/bench_speed.py: the generated C solver (double and float builds,
  * limits ignored, every solution; and the double build's readings-only entry _inverse_joints)
- * against the hand-written one (benchtop6_hand.c), same poses, interleaved rounds.
+ * against the hand-written one (benchtop6_hand.c: its readings-only build, and its full build,
+ * benchtop6_hand_inverse_full, which returns what the generated full call returns), same poses,
+ * interleaved rounds.
  *
  * Compiled with -DIK_HEADER='"<arm>_ik.h"' -DIK_PREFIX=<arm>_ik -DIK_UPPER=<ARM>_IK and the same
  * three for the float build (IK32_HEADER, IK32_PREFIX, IK32_UPPER); each solver is its own
@@ -10,7 +12,10 @@
  *   speed_harness POSES.bin ROUNDS
  * POSES.bin: raw native-endian doubles, 16 a pose (row-major 4x4). First one checking pass (the
  * generated and hand solvers must find the same number of solutions on every pose, and the
- * readings-only entry the same readings as the full one, bit for bit), then ROUNDS
+ * readings-only entry the same readings as the full one, bit for bit; the hand-written full build
+ * the same readings as the hand-written readings-only one, bit for bit, and the same labels, flags
+ * and (within 1e-9 of 1 + their size: near a double root the two compute a small
+ * measure with different cancellations) conditioning measures as the generated full call), then ROUNDS
  * rounds, each one timed pass of every solver over all poses, the order of the solvers rotating
  * from round to round. Prints key=value lines: best and median ns per pose of each solver.
  * Built with -DIK_COUNTING (the double solvers compiled with -include ../c/count_math.h and linked
@@ -19,6 +24,7 @@
  */
 #define _POSIX_C_SOURCE 199309L
 
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <time.h>
@@ -40,8 +46,8 @@
 #define F32_MAX CAT(IK32_UPPER, _MAX_SOLUTIONS)
 #define F32_IGNORE CAT(IK32_UPPER, _LIMITS_IGNORE)
 
-enum { GENERATED, HAND, FLOAT_BUILD, READINGS, SOLVERS };
-static const char *const NAMES[SOLVERS] = { "generated", "hand", "float", "readings" };
+enum { GENERATED, HAND, FLOAT_BUILD, READINGS, HAND_FULL, SOLVERS };
+static const char *const NAMES[SOLVERS] = { "generated", "hand", "float", "readings", "hand_full" };
 
 static volatile double sink; /* keeps every pass's results alive */
 
@@ -78,6 +84,7 @@ static double pass(int solver, const double *poses, const float *poses32, long c
     GEN_SOLUTION generated[GEN_MAX];
     F32_SOLUTION single[F32_MAX];
     double hand[BENCHTOP6_HAND_MAX][6];
+    benchtop6_hand_solution hand_full[BENCHTOP6_HAND_MAX];
     double readings[GEN_MAX][GEN_DOF];
     double total = 0.0;
     const double started = now_ns();
@@ -92,6 +99,9 @@ static double pass(int solver, const double *poses, const float *poses32, long c
         } else if (solver == READINGS) {
             n = GEN_JOINTS(poses + 16 * i, NULL, readings);
             total += n ? readings[n - 1][5] : 0.0;
+        } else if (solver == HAND_FULL) {
+            n = benchtop6_hand_inverse_full(poses + 16 * i, hand_full);
+            total += n ? hand_full[n - 1].joints[5] : 0.0;
         } else {
             n = F32_INVERSE(poses32 + 16 * i, NULL, F32_IGNORE, single, NULL);
             total += n ? single[n - 1].joints[5] : 0.0;
@@ -150,8 +160,9 @@ int main(int argc, char **argv)
     GEN_SOLUTION generated[GEN_MAX];
     F32_SOLUTION single[F32_MAX];
     double hand[BENCHTOP6_HAND_MAX][6];
+    benchtop6_hand_solution hand_full[BENCHTOP6_HAND_MAX];
     double readings[GEN_MAX][GEN_DOF];
-    long mismatched = 0, readings_differ = 0, solutions[SOLVERS] = { 0, 0, 0, 0 };
+    long mismatched = 0, readings_differ = 0, full_differ = 0, solutions[SOLVERS] = { 0, 0, 0, 0, 0 };
     for (long i = 0; i < count; ++i) {
         const int g = GEN_INVERSE(poses + 16 * i, NULL, GEN_IGNORE, generated, NULL);
         const int h = benchtop6_hand_inverse(poses + 16 * i, hand);
@@ -166,6 +177,23 @@ int main(int argc, char **argv)
             for (int j = 0; j < GEN_DOF; ++j)
                 differ |= readings[k][j] != generated[k].joints[j];
         readings_differ += differ;
+        /* the hand-written full build: its readings bit for bit those of the readings-only build,
+         * its labels and flags those of the generated full call, its measures within 1e-9 */
+        const int f = benchtop6_hand_inverse_full(poses + 16 * i, hand_full);
+        solutions[HAND_FULL] += f;
+        differ = f != h || f != g;
+        for (int k = 0; k < f && k < h && k < g; ++k) {
+            for (int j = 0; j < 6; ++j)
+                differ |= hand_full[k].joints[j] != hand[k][j];
+            for (int j = 0; j < 3; ++j) {
+                differ |= hand_full[k].labels[j] != generated[k].labels[j];
+                differ |= !(fabs(hand_full[k].conditioning[j] - generated[k].conditioning[j])
+                            <= 1e-9 * (1.0 + fabs(generated[k].conditioning[j])));
+            }
+            differ |= hand_full[k].singular != generated[k].singular;
+            differ |= hand_full[k].within_limits != generated[k].within_limits;
+        }
+        full_differ += differ;
     }
 
 #ifdef IK_COUNTING
@@ -179,8 +207,8 @@ int main(int argc, char **argv)
             times[solver * rounds + r] = pass(solver, poses, poses32, count);
         }
 
-    printf("poses=%ld\nrounds=%d\ncount_mismatches=%ld\nreadings_mismatches=%ld\n", count, rounds, mismatched,
-           readings_differ);
+    printf("poses=%ld\nrounds=%d\ncount_mismatches=%ld\nreadings_mismatches=%ld\nhand_full_mismatches=%ld\n", count,
+           rounds, mismatched, readings_differ, full_differ);
     for (int s = 0; s < SOLVERS; ++s) {
         qsort(times + s * rounds, (size_t)rounds, sizeof(double), by_value);
         printf("%s_solutions=%ld\n", NAMES[s], solutions[s]);
