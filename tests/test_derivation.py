@@ -172,8 +172,9 @@ def test_labels_and_flags_known_above_the_innermost_level_are_computed_there():
     generated Python picks its subtable of the prebuilt configurations there, once per reach root,
     before the elbow loop; the elbow label is picked once per elbow root for a solution and its
     mirrored twin, and the wrist bend (the wrist's root, never negative) needs no test at all.
-    The labels' values are checked against their geometric definitions in test_labels and the
-    Python solver against the C solver in test_c_backend."""
+    The generated C places them the same way (Plan.flag_places, c.flag_code), in its full call
+    only. The labels' values are checked against their geometric definitions in test_labels and
+    the Python solver against the C solver in test_c_backend."""
     arm = demo_arm("benchtop6")
     plan = common.lower(shared.built(arm).derivation)
     names = [label.name for label in plan.labels]
@@ -181,8 +182,8 @@ def test_labels_and_flags_known_above_the_innermost_level_are_computed_there():
     assert set(places) == {names.index("reach")}
     after = plan.blocks[places[names.index("reach")]]
     assert after.key == "" and after.kind == "compute" and after.depth == 1 < plan.depth
-    assert python_backend.constant_label(plan, names.index("wrist_bend"))
-    assert not python_backend.constant_label(plan, names.index("elbow"))
+    assert plan.constant_label(names.index("wrist_bend"))
+    assert not plan.constant_label(names.index("elbow"))
     full = shared.python_source(arm)
     full = full[full.index("def _closed_form("):full.index("def inverse_joints(")]
     assert full.index("cfg0 = _CONFIGS[0 if v1x + 25.0 >= 0.0 else 1]") < full.index("for sg3 in ")
@@ -194,6 +195,18 @@ def test_labels_and_flags_known_above_the_innermost_level_are_computed_there():
     for line in ("= free1 or root1 == 0.0", "cv0 = root1 * ", "in1 = -170.00000034 <= v1 <= 170.00000034"):
         assert full.count(line) == 1 and full.index(line) < loop, line
     assert "singular = sng" in full and "conditioning = (cv0, " in full and "inside = in1 and " in full
+    # the C full call: the same statements before the elbow loop, the elbow's label once for a
+    # solution and its twin, the wrist bend a constant; its readings-only entry computes none of them
+    source = c_backend.render(arm, shared.built(arm).derivation)["benchtop6_ik.c"]
+    closed = source[source.index("static int closed_form("):source.index("int benchtop6_ik_inverse_joints(")]
+    loop = closed.index("for (int k3 = 0;")
+    for line in ("const signed char lab0 = (signed char)(v1x + 25.0 >= 0.0 ? 1 : -1);", "= free1 | (root1 == 0.0);",
+                 "const double cv0 = root1 * ", "const int in1 = (fabs(jv1) <= HIGH[0]);"):
+        assert closed.count(line) == 1 and closed.index(line) < loop, line
+    assert closed.count("const signed char lab1 = ") == 1 and "lm2" not in closed and "lab2" not in closed
+    assert closed.count("out->labels[2] = 1;") == 1 and closed.count("out->labels[2] = -1;") == 1
+    lean = source[source.index("int benchtop6_ik_inverse_joints("):]
+    assert not any(name in lean for name in ("lab0", "sng", "cv0", "in1 ="))
     # labels that all wait for the innermost level, none of them constant: a tuple per solution
     arm = demo_arm("boardpick4")
     assert not common.lower(shared.built(arm).derivation).label_places()

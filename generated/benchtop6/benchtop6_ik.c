@@ -293,10 +293,16 @@ static int closed_form(const double pose[16], const double *current,
         double u1 = th1;
         u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
         const double jv1 = u1 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0);
+        const double cv0 = root1 * 0.003162277660168379;
+        const int in1 = (fabs(jv1) <= HIGH[0]);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy - 25.0;
         const double v1z = c1*wy - s1*wx;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x + 25.0 >= 0.0 ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
@@ -531,9 +537,7 @@ static int closed_form(const double pose[16], const double *current,
 
             /* joint readings, configuration labels, singular flag */
 
-            const double lm0 = v1x + 25.0;
             const double lm1 = 62400.0*c3 + 5200.0*s3;
-            const double lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = benchtop6_ik_atan2(s2, c2);
             th5 = benchtop6_ik_atan2(sn5, cn5);
@@ -558,14 +562,11 @@ static int closed_form(const double pose[16], const double *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
             const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
-            const double cv0 = root1 * 0.003162277660168379;
+            const int singular = sng3 | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
             const double cv1 = root3 * 7.9851422936288423e-06;
             const double cv2 = root5 * 1.0;
-            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]);
+            const int inside = in1 & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]);
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -586,7 +587,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -618,7 +619,7 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

@@ -240,6 +240,8 @@ static int closed_form(const double pose[16], const double *current,
         l3 = (0.0 + 1.0 * (current && current[2] - current[2] == 0.0 ? current[2] : 0.0));
     }
 
+    /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+    const int sng2 = free3;
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const double kc1_0 = -275.0*l3*r13 + 275.0*pcx - 12375.0*r13;
     const double kc1_1 = -275.0*l3*r23 + 275.0*pcy - 12375.0*r23;
@@ -447,7 +449,7 @@ static int closed_form(const double pose[16], const double *current,
          * reading's magnitude (the same test, NaN included).
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-        const int singular = free3 | (root2 == 0.0) | free1;
+        const int singular = sng2 | (root2 == 0.0) | free1;
         const double cv0 = root2 * 5.594405594405594e-06;
         {
             double u1 = th1;

@@ -224,6 +224,8 @@ static int closed_form(const float pose[16], const float *current,
         l3 = (0.0f + 1.0f * (current && current[2] - current[2] == 0.0f ? current[2] : 0.0f));
     }
 
+    /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+    const int sng2 = free3;
     /* th1 from a linear pair (computed here, before the loops: no later unknown enters them) */
     const float kc1_0 = -275.0f*l3*r13 + 275.0f*pcx - 12375.0f*r13;
     const float kc1_1 = -275.0f*l3*r23 + 275.0f*pcy - 12375.0f*r23;
@@ -431,7 +433,7 @@ static int closed_form(const float pose[16], const float *current,
          * reading's magnitude (the same test, NaN included).
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-        const int singular = free3 | (root2 == 0.0f) | free1;
+        const int singular = sng2 | (root2 == 0.0f) | free1;
         const float cv0 = root2 * 5.59440559e-06f;
         {
             float u1 = th1;

@@ -786,7 +786,6 @@ static int closed_form(const double pose[16], const double *current,
 
         const double lm0 = v1x + 50.0;
         const double lm1 = 72746.133917892847*c3 - 5196.152422706632*s3;
-        const double lm2 = root5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         if (!free1) th1 = canted6_ik_atan2(s1, c1);
         if (!free2) th2 = canted6_ik_atan2(s2, c2);
@@ -816,7 +815,6 @@ static int closed_form(const double pose[16], const double *current,
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-        const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
         const int singular = free3 | dbl3 | free1 | free2 | (root5 == 0.0) | free4;
         const double cv0 = cnd3;
         const double cv1 = root5 * 1.0;
@@ -841,7 +839,7 @@ static int closed_form(const double pose[16], const double *current,
                 out->joints[5] = jv6;
                 out->labels[0] = lab0;
                 out->labels[1] = lab1;
-                out->labels[2] = lab2;
+                out->labels[2] = 1;
                 out->singular = singular;
                 out->conditioning[0] = cv0;
                 out->conditioning[1] = cv1;
@@ -872,7 +870,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = (signed char)-lab2;
+                    out->labels[2] = -1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;

@@ -770,7 +770,6 @@ static int closed_form(const float pose[16], const float *current,
 
         const float lm0 = v1x + 50.0f;
         const float lm1 = 72746.1339f*c3 - 5196.15242f*s3;
-        const float lm2 = root5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         if (!free1) th1 = canted6_ik_f32_atan2(s1, c1);
         if (!free2) th2 = canted6_ik_f32_atan2(s2, c2);
@@ -800,7 +799,6 @@ static int closed_form(const float pose[16], const float *current,
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-        const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
         const int singular = free3 | dbl3 | free1 | free2 | (root5 == 0.0f) | free4;
         const float cv0 = cnd3;
         const float cv1 = root5 * 1.0f;
@@ -825,7 +823,7 @@ static int closed_form(const float pose[16], const float *current,
                 out->joints[5] = jv6;
                 out->labels[0] = lab0;
                 out->labels[1] = lab1;
-                out->labels[2] = lab2;
+                out->labels[2] = 1;
                 out->singular = singular;
                 out->conditioning[0] = cv0;
                 out->conditioning[1] = cv1;
@@ -856,7 +854,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = (signed char)-lab2;
+                    out->labels[2] = -1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;

@@ -292,6 +292,11 @@ static int closed_form(const double pose[16], double given, const double *curren
         double u4 = th4;
         u4 = u4 > 3.1415926535897931 ? u4 - 6.2831853071795862 : (u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4);
         const double jv4 = u4 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(s4 >= 0.0 ? 1 : -1);
+        const int sng4 = (root4 == 0.0);
+        const double cv0 = root4 * 3.2387614976033164e-06;
+        const int in4 = (fabs(jv4) <= HIGH[3]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = 372.0*c3*s4;
         const double kc2_1 = -372.0*c4*v1y - 415.0*v1y;
@@ -548,8 +553,6 @@ static int closed_form(const double pose[16], double given, const double *curren
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = s2;
-            const double lm1 = s4;
-            const double lm2 = root6;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = cellreach7_ik_atan2(s2, c2);
             th6 = cellreach7_ik_atan2(sn6, cn6);
@@ -575,13 +578,10 @@ static int closed_form(const double pose[16], double given, const double *curren
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = (root4 == 0.0) | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5;
-            const double cv0 = root4 * 3.2387614976033164e-06;
+            const int singular = sng4 | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5;
             const double cv1 = root1 * 0.003162277660168379;
             const double cv2 = root6 * 1.0;
-            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & (fabs(jv4) <= HIGH[3]);
+            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & in4;
             {
                 double u5 = th5;
                 u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
@@ -603,7 +603,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                     out->joints[6] = jv7;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -636,7 +636,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                         out->joints[6] = jv7;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

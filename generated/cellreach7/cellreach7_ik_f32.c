@@ -276,6 +276,11 @@ static int closed_form(const float pose[16], float given, const float *current,
         float u4 = th4;
         u4 = u4 > 3.14159265f ? u4 - 6.28318531f : (u4 <= -3.14159265f ? u4 + 6.28318531f : u4);
         const float jv4 = u4 * 57.2957795f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(s4 >= 0.0f ? 1 : -1);
+        const int sng4 = (root4 == 0.0f);
+        const float cv0 = root4 * 3.2387615e-06f;
+        const int in4 = (fabsf(jv4) <= HIGH[3]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = 372.0f*c3*s4;
         const float kc2_1 = -372.0f*c4*v1y - 415.0f*v1y;
@@ -532,8 +537,6 @@ static int closed_form(const float pose[16], float given, const float *current,
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = s2;
-            const float lm1 = s4;
-            const float lm2 = root6;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = cellreach7_ik_f32_atan2(s2, c2);
             th6 = cellreach7_ik_f32_atan2(sn6, cn6);
@@ -559,13 +562,10 @@ static int closed_form(const float pose[16], float given, const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = (root4 == 0.0f) | free1 | (root1 == 0.0f) | free2 | (root6 == 0.0f) | free5;
-            const float cv0 = root4 * 3.2387615e-06f;
+            const int singular = sng4 | free1 | (root1 == 0.0f) | free2 | (root6 == 0.0f) | free5;
             const float cv1 = root1 * 0.00316227766f;
             const float cv2 = root6 * 1.0f;
-            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & (fabsf(jv4) <= HIGH[3]);
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & in4;
             {
                 float u5 = th5;
                 u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;
@@ -587,7 +587,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     out->joints[6] = jv7;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -620,7 +620,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                         out->joints[6] = jv7;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

@@ -284,6 +284,11 @@ static int closed_form(const double pose[16], const double *current,
         double u3 = th3;
         u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
         const double jv3 = u3 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(38000.0*c3 - 4000.0*s3 >= 0.0 ? 1 : -1);
+        const int sng2 = (root3 == 0.0);
+        const double cv0 = root3 * 1.3085598064755344e-05;
+        const int in3 = (fabs(jv3) <= HIGH[2]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -20.0*c3 - 190.0*s3 - 200.0;
         const double kc2_1 = 190.0*c3*v1y - 20.0*s3*v1y;
@@ -464,7 +469,6 @@ static int closed_form(const double pose[16], const double *current,
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = 20.0*c2*c3 + 190.0*c2*s3 + 200.0*c2 + 190.0*c3*s2 - 20.0*s2*s3;
-            const double lm1 = 38000.0*c3 - 4000.0*s3;
             const double lm2 = c4*n3x + n1z*s4;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = engraver5_ik_atan2(s2, c2);
@@ -490,13 +494,11 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
             const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = (root3 == 0.0) | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
-            const double cv0 = root3 * 1.3085598064755344e-05;
+            const int singular = sng2 | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
             const double cv1 = root1 * 0.003162277660168379;
             const double cv2 = root5 * 0.016666666666666666;
-            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]);
+            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & in3;
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

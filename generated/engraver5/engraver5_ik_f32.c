@@ -268,6 +268,11 @@ static int closed_form(const float pose[16], const float *current,
         float u3 = th3;
         u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
         const float jv3 = u3 * 57.2957795f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(38000.0f*c3 - 4000.0f*s3 >= 0.0f ? 1 : -1);
+        const int sng2 = (root3 == 0.0f);
+        const float cv0 = root3 * 1.30855981e-05f;
+        const int in3 = (fabsf(jv3) <= HIGH[2]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = -20.0f*c3 - 190.0f*s3 - 200.0f;
         const float kc2_1 = 190.0f*c3*v1y - 20.0f*s3*v1y;
@@ -448,7 +453,6 @@ static int closed_form(const float pose[16], const float *current,
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = 20.0f*c2*c3 + 190.0f*c2*s3 + 200.0f*c2 + 190.0f*c3*s2 - 20.0f*s2*s3;
-            const float lm1 = 38000.0f*c3 - 4000.0f*s3;
             const float lm2 = c4*n3x + n1z*s4;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = engraver5_ik_f32_atan2(s2, c2);
@@ -474,13 +478,11 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
             const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = (root3 == 0.0f) | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
-            const float cv0 = root3 * 1.30855981e-05f;
+            const int singular = sng2 | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
             const float cv1 = root1 * 0.00316227766f;
             const float cv2 = root5 * 0.0166666667f;
-            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & in3;
             {
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

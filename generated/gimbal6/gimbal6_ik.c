@@ -684,7 +684,6 @@ static int closed_form(const double pose[16], const double *current,
 
         /* joint readings, configuration labels, singular flag */
 
-        const double lm0 = root2;
         const double lm1 = 0.8660254037844386*s5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         th4 = gimbal6_ik_atan2(s4, c4);
@@ -713,7 +712,6 @@ static int closed_form(const double pose[16], const double *current,
          * being in one turn here; tested without branches, symmetric limits as one comparison of the
          * reading's magnitude (the same test, NaN included).
          */
-        const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
         const int singular = free6 | dbl6 | free5 | (root2 == 0.0) | free1;
         const double cv0 = cnd6;
@@ -737,7 +735,7 @@ static int closed_form(const double pose[16], const double *current,
                 out->joints[3] = jv4;
                 out->joints[4] = jv5;
                 out->joints[5] = jv6;
-                out->labels[0] = lab0;
+                out->labels[0] = 1;
                 out->labels[1] = lab1;
                 out->singular = singular;
                 out->conditioning[0] = cv0;
@@ -767,7 +765,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)-lab0;
+                    out->labels[0] = -1;
                     out->labels[1] = lab1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;

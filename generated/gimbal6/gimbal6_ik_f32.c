@@ -668,7 +668,6 @@ static int closed_form(const float pose[16], const float *current,
 
         /* joint readings, configuration labels, singular flag */
 
-        const float lm0 = root2;
         const float lm1 = 0.866025404f*s5;
         /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
         th4 = gimbal6_ik_f32_atan2(s4, c4);
@@ -697,7 +696,6 @@ static int closed_form(const float pose[16], const float *current,
          * being in one turn here; tested without branches, symmetric limits as one comparison of the
          * reading's magnitude (the same test, NaN included).
          */
-        const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
         const int singular = free6 | dbl6 | free5 | (root2 == 0.0f) | free1;
         const float cv0 = cnd6;
@@ -721,7 +719,7 @@ static int closed_form(const float pose[16], const float *current,
                 out->joints[3] = jv4;
                 out->joints[4] = jv5;
                 out->joints[5] = jv6;
-                out->labels[0] = lab0;
+                out->labels[0] = 1;
                 out->labels[1] = lab1;
                 out->singular = singular;
                 out->conditioning[0] = cv0;
@@ -751,7 +749,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[3] = jv4;
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
-                    out->labels[0] = (signed char)-lab0;
+                    out->labels[0] = -1;
                     out->labels[1] = lab1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;

@@ -300,6 +300,11 @@ static int closed_form(const double pose[16], const double *current,
         double u3 = th3 - 1.7889624832941875;
         u3 = u3 <= -3.1415926535897931 ? u3 + 6.2831853071795862 : u3;
         const double jv3 = u3 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(92800.0*c3 >= 0.0 ? 1 : -1);
+        const int sng3 = (root3 == 0.0);
+        const double cv0 = root3 * 5.3879310344827582e-06;
+        const int in3 = (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double kc2_0 = -290.0*s3 - 320.0;
         const double kc2_1 = 290.0*c3*v1y;
@@ -487,8 +492,6 @@ static int closed_form(const double pose[16], const double *current,
             /* joint readings, configuration labels, singular flag */
 
             const double lm0 = v1x;
-            const double lm1 = 92800.0*c3;
-            const double lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = inspector6_ik_atan2(s2, c2);
             th5 = inspector6_ik_atan2(sn5, cn5);
@@ -514,13 +517,10 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = (root3 == 0.0) | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
-            const double cv0 = root3 * 5.3879310344827582e-06;
+            const int singular = sng3 | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
             const double cv1 = root1 * 0.003162277660168379;
             const double cv2 = root5 * 1.0;
-            const int inside = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+            const int inside = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & in3;
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -541,7 +541,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -573,7 +573,7 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

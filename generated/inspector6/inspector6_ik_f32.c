@@ -284,6 +284,11 @@ static int closed_form(const float pose[16], const float *current,
         float u3 = th3 - 1.78896248f;
         u3 = u3 <= -3.14159265f ? u3 + 6.28318531f : u3;
         const float jv3 = u3 * 57.2957795f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab1 = (signed char)(92800.0f*c3 >= 0.0f ? 1 : -1);
+        const int sng3 = (root3 == 0.0f);
+        const float cv0 = root3 * 5.38793103e-06f;
+        const int in3 = (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
         /* th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float kc2_0 = -290.0f*s3 - 320.0f;
         const float kc2_1 = 290.0f*c3*v1y;
@@ -471,8 +476,6 @@ static int closed_form(const float pose[16], const float *current,
             /* joint readings, configuration labels, singular flag */
 
             const float lm0 = v1x;
-            const float lm1 = 92800.0f*c3;
-            const float lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = inspector6_ik_f32_atan2(s2, c2);
             th5 = inspector6_ik_f32_atan2(sn5, cn5);
@@ -498,13 +501,10 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = (root3 == 0.0f) | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
-            const float cv0 = root3 * 5.38793103e-06f;
+            const int singular = sng3 | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
             const float cv1 = root1 * 0.00316227766f;
             const float cv2 = root5 * 1.0f;
-            const int inside = (fabsf(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+            const int inside = (fabsf(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & in3;
             {
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
@@ -525,7 +525,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -557,7 +557,7 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

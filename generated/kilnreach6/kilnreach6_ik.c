@@ -268,9 +268,15 @@ static int closed_form(const double pose[16], const double *current,
         double u1 = th1;
         u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
         const double jv1 = u1 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0);
+        const double cv0 = root1 * 0.001;
+        const int in1 = (fabs(jv1) <= HIGH[0]);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x >= 0.0 ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = c1*r11 + r21*s1;
         const double g16_12 = c1*r12 + r22*s1;
@@ -417,8 +423,6 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
 
-            const double lm0 = v1x;
-            const double lm1 = root5;
             const double lm2 = -c2*v1y + s2*v1x;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             th5 = kilnreach6_ik_atan2(sn5, cn5);
@@ -441,14 +445,11 @@ static int closed_form(const double pose[16], const double *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
             const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0) | free2 | (root2 == 0.0) | (root5 == 0.0) | free4;
-            const double cv0 = root1 * 0.001;
+            const int singular = sng3 | free2 | (root2 == 0.0) | (root5 == 0.0) | free4;
             const double cv1 = root2 * 0.001;
             const double cv2 = root5 * 1.0;
-            const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+            const int inside = in1 & (fabs(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -468,7 +469,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
-                    out->labels[1] = lab1;
+                    out->labels[1] = 1;
                     out->labels[2] = lab2;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
@@ -500,7 +501,7 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
-                        out->labels[1] = (signed char)-lab1;
+                        out->labels[1] = -1;
                         out->labels[2] = lab2;
                         out->singular = singular;
                         out->conditioning[0] = cv0;

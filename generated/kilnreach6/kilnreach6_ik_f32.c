@@ -252,9 +252,15 @@ static int closed_form(const float pose[16], const float *current,
         float u1 = th1;
         u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
         const float jv1 = u1 * 57.2957795f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0f);
+        const float cv0 = root1 * 0.001f;
+        const int in1 = (fabsf(jv1) <= HIGH[0]);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x >= 0.0f ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = c1*r11 + r21*s1;
         const float g16_12 = c1*r12 + r22*s1;
@@ -401,8 +407,6 @@ static int closed_form(const float pose[16], const float *current,
                 }
             }
 
-            const float lm0 = v1x;
-            const float lm1 = root5;
             const float lm2 = -c2*v1y + s2*v1x;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             th5 = kilnreach6_ik_f32_atan2(sn5, cn5);
@@ -425,14 +429,11 @@ static int closed_form(const float pose[16], const float *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
             const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0f) | free2 | (root2 == 0.0f) | (root5 == 0.0f) | free4;
-            const float cv0 = root1 * 0.001f;
+            const int singular = sng3 | free2 | (root2 == 0.0f) | (root5 == 0.0f) | free4;
             const float cv1 = root2 * 0.001f;
             const float cv2 = root5 * 1.0f;
-            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
+            const int inside = in1 & (fabsf(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
             {
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
@@ -452,7 +453,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[4] = jv5;
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
-                    out->labels[1] = lab1;
+                    out->labels[1] = 1;
                     out->labels[2] = lab2;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
@@ -484,7 +485,7 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[4] = jv5;
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
-                        out->labels[1] = (signed char)-lab1;
+                        out->labels[1] = -1;
                         out->labels[2] = lab2;
                         out->singular = singular;
                         out->conditioning[0] = cv0;

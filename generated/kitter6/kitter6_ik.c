@@ -278,6 +278,9 @@ static int closed_form(const double pose[16], const double *current,
         double u1 = th1;
         u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
         const double jv1 = u1 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng2 = free1 | (root1 == 0.0);
+        const double cv0 = root1 * 0.003162277660168379;
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double g16_13 = c1*r13 + r23*s1;
         const double g16_14 = c1*pcx + pcy*s1;
@@ -285,6 +288,8 @@ static int closed_form(const double pose[16], const double *current,
         const double g16_22 = c1*r22 - r12*s1;
         const double g16_23 = c1*r23 - r13*s1;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(-78.0*g16_13 + g16_14 >= 0.0 ? 1 : -1);
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double er5 = g16_13*g16_13 + r33*r33;
@@ -308,6 +313,9 @@ static int closed_form(const double pose[16], const double *current,
             double u5 = th5;
             u5 = u5 > 3.1415926535897931 ? u5 - 6.2831853071795862 : (u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5);
             const double jv5 = u5 * 57.295779513082323;
+            /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+            const signed char lab2 = (signed char)(s5 >= 0.0 ? 1 : -1);
+            const int sng4 = sng2 | (root5 == 0.0);
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             double th6 = 0.0, c6 = 0.0, s6 = 0.0, dt6, wk6 = 0.0;
             int free6 = 1;
@@ -344,6 +352,8 @@ static int closed_form(const double pose[16], const double *current,
                 s6 = sin(th6);
             }
 
+            /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+            const int sng5 = sng4 | free6;
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
             const double g05_11 = c6*r11 - r12*s6;
             const double g05_13 = -c6*r12 - r11*s6;
@@ -443,9 +453,7 @@ static int closed_form(const double pose[16], const double *current,
 
                 /* joint readings, configuration labels, singular flag */
 
-                const double lm0 = -78.0*g16_13 + g16_14;
                 const double lm1 = -97350.0*s3;
-                const double lm2 = s5;
                 /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
                 if (!free6) th6 = kitter6_ik_atan2(s6, c6);
                 /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
@@ -458,11 +466,8 @@ static int closed_form(const double pose[16], const double *current,
                  * being in one turn here; tested without branches, symmetric limits as one comparison of the
                  * reading's magnitude (the same test, NaN included).
                  */
-                const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
                 const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-                const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-                const int singular = free1 | (root1 == 0.0) | (root5 == 0.0) | free6 | (root3 == 0.0) | free2;
-                const double cv0 = root1 * 0.003162277660168379;
+                const int singular = sng5 | (root3 == 0.0) | free2;
                 const double cv1 = root5 * 1.0;
                 const double cv2 = root3 * 5.1361068310220853e-06;
                 {

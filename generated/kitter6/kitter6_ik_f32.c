@@ -262,6 +262,9 @@ static int closed_form(const float pose[16], const float *current,
         float u1 = th1;
         u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
         const float jv1 = u1 * 57.2957795f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng2 = free1 | (root1 == 0.0f);
+        const float cv0 = root1 * 0.00316227766f;
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float g16_13 = c1*r13 + r23*s1;
         const float g16_14 = c1*pcx + pcy*s1;
@@ -269,6 +272,8 @@ static int closed_form(const float pose[16], const float *current,
         const float g16_22 = c1*r22 - r12*s1;
         const float g16_23 = c1*r23 - r13*s1;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(-78.0f*g16_13 + g16_14 >= 0.0f ? 1 : -1);
         /* th5: entry (2,2) A1^-1 T A6^-1 = A2 A3 A4 A5
          * a*cos(th5) + b*sin(th5) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const float er5 = g16_13*g16_13 + r33*r33;
@@ -292,6 +297,9 @@ static int closed_form(const float pose[16], const float *current,
             float u5 = th5;
             u5 = u5 > 3.14159265f ? u5 - 6.28318531f : (u5 <= -3.14159265f ? u5 + 6.28318531f : u5);
             const float jv5 = u5 * 57.2957795f;
+            /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+            const signed char lab2 = (signed char)(s5 >= 0.0f ? 1 : -1);
+            const int sng4 = sng2 | (root5 == 0.0f);
             /* th6 from a linear pair: c = cos_num/det, s = sin_num/det (first form whose det is not ~0) */
             float th6 = 0.0f, c6 = 0.0f, s6 = 0.0f, dt6, wk6 = 0.0f;
             int free6 = 1;
@@ -328,6 +336,8 @@ static int closed_form(const float pose[16], const float *current,
                 s6 = sinf(th6);
             }
 
+            /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+            const int sng5 = sng4 | free6;
             /* T A6^-1: the known side with joints 6 moved over (times A6^-1 the previous one) */
             const float g05_11 = c6*r11 - r12*s6;
             const float g05_13 = -c6*r12 - r11*s6;
@@ -427,9 +437,7 @@ static int closed_form(const float pose[16], const float *current,
 
                 /* joint readings, configuration labels, singular flag */
 
-                const float lm0 = -78.0f*g16_13 + g16_14;
                 const float lm1 = -97350.0f*s3;
-                const float lm2 = s5;
                 /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
                 if (!free6) th6 = kitter6_ik_f32_atan2(s6, c6);
                 /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
@@ -442,11 +450,8 @@ static int closed_form(const float pose[16], const float *current,
                  * being in one turn here; tested without branches, symmetric limits as one comparison of the
                  * reading's magnitude (the same test, NaN included).
                  */
-                const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
                 const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-                const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-                const int singular = free1 | (root1 == 0.0f) | (root5 == 0.0f) | free6 | (root3 == 0.0f) | free2;
-                const float cv0 = root1 * 0.00316227766f;
+                const int singular = sng5 | (root3 == 0.0f) | free2;
                 const float cv1 = root5 * 1.0f;
                 const float cv2 = root3 * 5.13610683e-06f;
                 {

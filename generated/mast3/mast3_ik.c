@@ -221,9 +221,14 @@ static int closed_form(const double pose[16], const double *current,
         double u1 = th1;
         u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
         const double jv1 = u1 * 57.295779513082323;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng1 = free1 | (root1 == 0.0);
+        const double cv0 = root1 * 0.001;
         /* A1^-1 p: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double q1x = c1*px + py*s1;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(q1x >= 0.0 ? 1 : -1);
         /* th2: x of A2^-1 A1^-1 p = A3 t
          * a*cos(th2) + b*sin(th2) = c: th = atan2(b*c + sg*a*root, a*c - sg*b*root) */
         const double t3_0 = q1x*q1x + q1y*q1y;
@@ -284,7 +289,6 @@ static int closed_form(const double pose[16], const double *current,
                 }
             }
 
-            const double lm0 = q1x;
             const double lm1 = -c2*q1y + q1x*s2;
             /* overflow from a huge input: no solution holds a NaN or an infinity (their sum is one then; the
              * mirrored solution's values follow from these); with every entry within
@@ -296,10 +300,8 @@ static int closed_form(const double pose[16], const double *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
             const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0) | free2 | (root2 == 0.0);
-            const double cv0 = root1 * 0.001;
+            const int singular = sng1 | free2 | (root2 == 0.0);
             const double cv1 = root2 * 0.001;
             {
                 double u2 = th2;

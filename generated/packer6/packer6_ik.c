@@ -278,10 +278,14 @@ static int closed_form(const double pose[16], const double *current,
         double u1 = th1;
         u1 = u1 <= -3.1415926535897931 ? u1 + 6.2831853071795862 : u1;
         const double jv1 = u1 * 1.0;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const double v1x = c1*wx + s1*wy;
         const double v1y = c1*wy - s1*wx;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x >= 0.0 ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const double g16_11 = -c1*r13 - r23*s1;
         const double g16_12 = -c1*r12 - r22*s1;
@@ -547,9 +551,7 @@ static int closed_form(const double pose[16], const double *current,
 
             /* joint readings, configuration labels, singular flag */
 
-            const double lm0 = v1x;
             const double lm1 = 0.76500000000000001*c3 + 0.0935*s3;
-            const double lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = packer6_ik_atan2(s2, c2);
             th5 = packer6_ik_atan2(sn5, cn5);
@@ -574,10 +576,8 @@ static int closed_form(const double pose[16], const double *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
             const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
+            const int singular = sng3 | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
             const double cv0 = root1 * 1.0;
             const double cv1 = root3 * 0.64876700516178298;
             const double cv2 = root5 * 1.0;
@@ -602,7 +602,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -634,7 +634,7 @@ static int closed_form(const double pose[16], const double *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

@@ -262,10 +262,14 @@ static int closed_form(const float pose[16], const float *current,
         float u1 = th1;
         u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
         const float jv1 = u1 * 1.0f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0f);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy;
         const float v1y = c1*wy - s1*wx;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x >= 0.0f ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = -c1*r13 - r23*s1;
         const float g16_12 = -c1*r12 - r22*s1;
@@ -531,9 +535,7 @@ static int closed_form(const float pose[16], const float *current,
 
             /* joint readings, configuration labels, singular flag */
 
-            const float lm0 = v1x;
             const float lm1 = 0.765f*c3 + 0.0935f*s3;
-            const float lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = packer6_ik_f32_atan2(s2, c2);
             th5 = packer6_ik_f32_atan2(sn5, cn5);
@@ -558,10 +560,8 @@ static int closed_form(const float pose[16], const float *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
             const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0f) | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const int singular = sng3 | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
             const float cv0 = root1 * 1.0f;
             const float cv1 = root3 * 0.648767005f;
             const float cv2 = root5 * 1.0f;
@@ -586,7 +586,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -618,7 +618,7 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

@@ -276,10 +276,16 @@ static int closed_form(const float pose[16], const float *current,
         float u1 = th1 - 0.523598776f;
         u1 = u1 <= -3.14159265f ? u1 + 6.28318531f : u1;
         const float jv1 = u1 * 1.0f;
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const int sng3 = free1 | (root1 == 0.0f);
+        const float cv0 = root1 * 3.16227766f;
+        const int in1 = (fabsf(jv1) <= HIGH[0]);
         /* A1^-1 w: the known side with joints 1 moved over (A1^-1 times the previous one) */
         const float v1x = c1*wx + s1*wy - 0.04f;
         const float v1z = c1*wy - s1*wx;
 
+        /* the labels, flags, measures and limit tests known here (once here, not once per solution) */
+        const signed char lab0 = (signed char)(v1x + 0.04f >= 0.0f ? 1 : -1);
         /* A1^-1 T: the known side with joints 1 moved over (A1^-1 times the previous one); th2 from a linear pair (computed here, before the loops: no later unknown enters them) */
         const float g16_11 = -c1*r11 - r21*s1;
         const float g16_12 = -c1*r12 - r22*s1;
@@ -502,9 +508,7 @@ static int closed_form(const float pose[16], const float *current,
 
             /* joint readings, configuration labels, singular flag */
 
-            const float lm0 = v1x + 0.04f;
             const float lm1 = 0.119f*c3 + 0.0119f*s3;
-            const float lm2 = root5;
             /* the angles no later step read, from their cosine and sine (their atan2 deferred to here) */
             if (!free2) th2 = seedling6_ik_f32_atan2(s2, c2);
             th5 = seedling6_ik_f32_atan2(sn5, cn5);
@@ -529,14 +533,11 @@ static int closed_form(const float pose[16], const float *current,
              * being in one turn here; tested without branches, symmetric limits as one comparison of the
              * reading's magnitude (the same test, NaN included).
              */
-            const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
             const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = free1 | (root1 == 0.0f) | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
-            const float cv0 = root1 * 3.16227766f;
+            const int singular = sng3 | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
             const float cv1 = root3 * 4.18082853f;
             const float cv2 = root5 * 1.0f;
-            const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
+            const int inside = in1 & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
             {
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;
@@ -557,7 +558,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->joints[5] = jv6;
                     out->labels[0] = lab0;
                     out->labels[1] = lab1;
-                    out->labels[2] = lab2;
+                    out->labels[2] = 1;
                     out->singular = singular;
                     out->conditioning[0] = cv0;
                     out->conditioning[1] = cv1;
@@ -589,7 +590,7 @@ static int closed_form(const float pose[16], const float *current,
                         out->joints[5] = jv6;
                         out->labels[0] = lab0;
                         out->labels[1] = lab1;
-                        out->labels[2] = (signed char)-lab2;
+                        out->labels[2] = -1;
                         out->singular = singular;
                         out->conditioning[0] = cv0;
                         out->conditioning[1] = cv1;

@@ -116,6 +116,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         turns=common.joint_turns(arm), max_solutions=common.max_solutions(arm, plan),
         within_checks=common.limit_checked(common.joint_turns(arm)),
         within_shared=within_split(arm, plan, True), within_own=within_split(arm, plan, False),
+        flags=flag_code(arm, plan, printer, scalar), inner_level=common.inner_level,
         probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
         safe_entry=bounds.safe_entry(plan, scalar.name), label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
@@ -137,6 +138,57 @@ def source_functions(scalar: Scalar, n: dict) -> dict:
     """The source's ``fn``: every atan2 goes through <prefix>_atan2 (templates/c_atan2.c.j2: the
     maths library's, or the kernel's when the user compiles with IKGEN_FAST_ATAN2 defined)."""
     return {"fn": lambda name: f"{n['prefix']}_atan2" if name == "atan2" else scalar.fn(name)}
+
+
+def limit_test(arm: Arm, k: int, scalar: Scalar) -> str:
+    """The branch-free limit test of joint k (0-based) on its reading jv<k+1>: one comparison of the
+    reading's magnitude for symmetric limits (the same test, NaN included)."""
+    turn = common.joint_turns(arm)[k]
+    if turn.low == -turn.high:
+        return f"({scalar.fn('fabs')}(jv{k + 1}) <= HIGH[{k}])"
+    return f"(jv{k + 1} >= LOW[{k}]) & (jv{k + 1} <= HIGH[{k}])"
+
+
+def flag_code(arm: Arm, plan, printer: SolverCPrinter, scalar: Scalar) -> dict:
+    """The C of a solution's labels, singular flag, conditioning measures and shared limit tests,
+    placed as the Python solver places them (Plan.label_places, Plan.flag_places): {"early": {block
+    index: [statements after that block]}, "measured": labels decided where the solution is written
+    (lm<k>, lab<k>), "constant": labels whose measure is a root (first value for the first solution),
+    "singular": the flag's expression, "conditions": [(i, expression, or None when computed
+    early)], "inside": the shared limit tests' terms}."""
+    early: dict[int, list[str]] = {}
+    places = plan.label_places()
+    for k, index in sorted(places.items(), key=lambda item: (item[1], item[0])):
+        early.setdefault(index, []).append(
+            f"const signed char lab{k} = (signed char)({printer.doprint(plan.label_measures[k])} >= {printer.number(0)} ? 1 : -1);")
+    shared = [k + 1 for k in within_split(arm, plan, True)]
+    flags = plan.flag_places(shared)
+
+    def term(text: str) -> str:
+        return f"({text})" if " " in text else text
+    sofar = None
+    for index, items in flags.singular_groups:
+        early.setdefault(index, []).append(
+            f"const int sng{index} = " + " | ".join(([sofar] if sofar else []) + [term(t) for t in c_terms(items, printer)]) + ";")
+        sofar = f"sng{index}"
+    singular = " | ".join(([sofar] if sofar else []) + [term(t) for t in c_terms(flags.singular_late, printer)]) or "0"
+    conditions = []
+    for i, block in enumerate(plan.condition_blocks):
+        value = f"cnd{block.key}" if block.kind == "poly" else f"root{block.key} * {printer.number(block.condition_gain)}"
+        if i in flags.conditions:
+            early.setdefault(flags.conditions[i], []).append(f"const {scalar.name} cv{i} = {value};")
+            value = None
+        conditions.append((i, value))
+    inside = []
+    for joint in shared:
+        test = limit_test(arm, joint - 1, scalar)
+        if joint in flags.limits:
+            early.setdefault(flags.limits[joint], []).append(f"const int in{joint} = {test};")
+            test = f"in{joint}"
+        inside.append(test)
+    constant = [k for k in range(len(plan.labels)) if k not in places and plan.constant_label(k)]
+    return {"early": early, "measured": [k for k in range(len(plan.labels)) if k not in places and k not in constant],
+            "constant": constant, "singular": singular, "conditions": conditions, "inside": inside}
 
 
 def within_split(arm: Arm, plan, shared: bool) -> list[int]:

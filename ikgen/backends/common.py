@@ -498,6 +498,45 @@ class Plan:
             return "negate" if self.mirror.kind == "negate_sin" and out.zero == 0.0 else None
         return "half_turn" if self.mirror.parities.get(key, 1) < 0 else None
 
+    def constant_label(self, k: int) -> bool:
+        """Whether label k's measure is a cossin block's root: a square root, never negative, so the
+        first solution always takes the label's first value (and a mirrored twin that flips it the
+        second). A NaN root gives no solution: the finite test drops it, or within SAFE_ENTRY none
+        arises."""
+        measure = self.label_measures[k]
+        return any(b.kind == "cossin" and measure == sp.Symbol(f"root{b.key}", real=True) for b in self.blocks)
+
+    def flag_places(self, shared_limits: list[int]) -> "FlagPlaces":
+        """Loop-invariant hoisting of a solution's flags and measures (the rule of label_places):
+        a singular term right after the block that solves its unknown, a conditioning measure's
+        product after its branch block, and the limit test of a joint in ``shared_limits`` (tests a
+        mirrored twin shares) after the early conversion of that joint's reading (early_outputs),
+        where that block's level is above the innermost; the rest where the solution is written.
+        Language-neutral: each back-end prints the terms in its own syntax."""
+        def early(index: int) -> bool:
+            return index >= 0 and inner_level(self.blocks[index]) < self.depth
+
+        def solver_of(key: str) -> int:
+            return next((i for i, b in enumerate(self.blocks)
+                         if b.key == key and b.kind in ("cossin", "pair", "poly", "lin", "quad")), -1)
+        grouped: dict[int, list[tuple[str, str]]] = {}
+        late = []
+        for kind, key in self.singular_terms:
+            index = solver_of(key)
+            (grouped.setdefault(index, []) if early(index) else late).append((kind, key))
+        conditions = {}
+        for i, block in enumerate(self.condition_blocks):
+            index = self.blocks.index(block)
+            if block.kind != "poly" and block.condition_gain != 1.0 and early(index):
+                conditions[i] = index
+        limits = {}
+        for joint in shared_limits:
+            index = next((i for i, b in enumerate(self.blocks)
+                          if any(out.joint == joint for out in self.early_outputs(b))), -1)
+            if early(index):
+                limits[joint] = index
+        return FlagPlaces(sorted(grouped.items()), late, conditions, limits)
+
     def twin_shares(self, out: "OutputPlan") -> bool:
         """Whether a mirrored twin has its first solution's reading of this output (a slide, the
         caller's reading, an angle the mirror leaves alone), so that the reading and its limit
@@ -519,6 +558,21 @@ class Plan:
         if m.parities.get(key, 1) < 0:
             return f"th{key} + _PI"
         return f"th{key}"
+
+
+@dataclass
+class FlagPlaces:
+    """Where a solution's flags and measures are computed (Plan.flag_places): block indices are
+    those of Plan.blocks; the statements go after that block, at its inner level."""
+    singular_groups: list   # [(block index, [(kind, key) terms])] in block order; each group's flag ORs the previous
+    singular_late: list     # [(kind, key)] terms known only where the solution is written
+    conditions: dict        # condition index -> block index of its product
+    limits: dict            # joint (1-based) -> block index of its limit test
+
+    def at(self, index: int) -> bool:
+        """Whether anything goes after block ``index``."""
+        return (any(i == index for i, _ in self.singular_groups) or index in self.conditions.values()
+                or index in self.limits.values())
 
 
 def half_turn(out: OutputPlan, real: str = "double") -> float:

@@ -163,74 +163,48 @@ def early_parts(arm: Arm, plan: common.Plan, labels: dict | None) -> dict:
     """Loop-invariant hoisting of the parts of a solution's labels, flags and measures that are
     known above the innermost level (the reach's label, singular terms, conditioning and limit
     test of a six-axis arm: once per reach root, not once per elbow and wrist root): a label's
-    pick of its subtable where label_table places it, a singular term right after the block that
-    solves its unknown, a conditioning measure's product after its branch block, and a shared
-    limit test after the early conversion of its joint's reading (Plan.early_outputs), where that
-    block's level is above the innermost. Returns {"lines": {block index: (level, [statements,
-    comments included])}, "singular": the solution's singular expression, "conditioning": the
-    entries of its tuple, "kept"/"changed": the limit tests as within_parts splits them, early
-    ones by name}."""
+    pick of its subtable where label_table places it, and the singular terms, conditioning
+    products and shared limit tests where Plan.flag_places puts them. Returns {"lines": {block
+    index: (level, [statements, comments included])}, "singular": the solution's singular
+    expression, "conditioning": the entries of its tuple, "kept"/"changed": the limit tests as
+    within_parts splits them, early ones by name}."""
     lines: dict[int, tuple[int, list[str]]] = {}
     for index, (level, steps) in (labels["early"] if labels else {}).items():
         lines[index] = (level, ["# configuration labels known here (once here, not once per solution): their subtable"]
                         + [f"{name} = {parent}[0 if {measure} >= 0.0 else 1]" for name, parent, measure in steps])
     flags = "# the flags, measures and limit tests known here (once here, not once per solution)"
 
-    def early(index: int) -> bool:
-        return index >= 0 and common.inner_level(plan.blocks[index]) < plan.depth
-
     def add(index: int, statement: str) -> None:
         statements = lines.setdefault(index, (common.inner_level(plan.blocks[index]), []))[1]
         if flags not in statements:
             statements.append(flags)
         statements.append(statement)
-
-    def solver_of(key: str) -> int:
-        return next((i for i, b in enumerate(plan.blocks)
-                     if b.key == key and b.kind in ("cossin", "pair", "poly", "lin", "quad")), -1)
-    late, sofar = [], None
-    grouped: dict[int, list[str]] = {}
-    for kind, key in plan.singular_terms:
-        text = PYTHON_TERMS[kind].format(key)
-        index = solver_of(key)
-        (grouped.setdefault(index, []) if early(index) else late).append(text)
-    for index in sorted(grouped):
-        add(index, f"sng{index} = " + " or ".join(([sofar] if sofar else []) + grouped[index]))
+    kept_checks, changed_checks = within_parts(arm, plan)
+    places = plan.flag_places([joint for joint, _ in kept_checks])
+    sofar = None
+    for index, items in places.singular_groups:
+        add(index, f"sng{index} = " + " or ".join(([sofar] if sofar else []) + terms(items)))
         sofar = f"sng{index}"
-    singular = " or ".join(([sofar] if sofar else []) + late) or "False"
+    singular = " or ".join(([sofar] if sofar else []) + terms(places.singular_late)) or "False"
     conditioning = []
     for i, block in enumerate(plan.condition_blocks):
         if block.kind == "poly":
             conditioning.append(f"cnd{block.key}")
         elif block.condition_gain == 1.0:
             conditioning.append(f"root{block.key}")
+        elif i in places.conditions:
+            add(places.conditions[i], f"cv{i} = root{block.key} * {block.condition_gain}")
+            conditioning.append(f"cv{i}")
         else:
-            product = f"root{block.key} * {block.condition_gain}"
-            index = plan.blocks.index(block)
-            if early(index):
-                add(index, f"cv{i} = {product}")
-                product = f"cv{i}"
-            conditioning.append(product)
-    kept_checks, changed_checks = within_parts(arm, plan)
+            conditioning.append(f"root{block.key} * {block.condition_gain}")
     kept = []
     for joint, check in kept_checks:
-        index = next((i for i, b in enumerate(plan.blocks)
-                      if any(out.joint == joint for out in plan.early_outputs(b))), -1)
-        if early(index):
-            add(index, f"in{joint} = {check}")
+        if joint in places.limits:
+            add(places.limits[joint], f"in{joint} = {check}")
             check = f"in{joint}"
         kept.append(check)
     return {"lines": lines, "singular": singular, "conditioning": conditioning, "kept": kept,
             "changed": [check for _, check in changed_checks]}
-
-
-def constant_label(plan: common.Plan, k: int) -> bool:
-    """Whether label k's measure is a cossin block's root: a square root, never negative, so the
-    first solution always takes the label's first value (and a mirrored twin that flips it the
-    second). A NaN root gives no solution: the finite test drops it, or within SAFE_ENTRY none
-    arises."""
-    measure = plan.label_measures[k]
-    return any(b.kind == "cossin" and measure == sp.Symbol(f"root{b.key}", real=True) for b in plan.blocks)
 
 
 def label_table(plan: common.Plan) -> dict | None:
@@ -244,7 +218,7 @@ def label_table(plan: common.Plan) -> dict | None:
     none to pick), "first"/"mirrored": each one's config expression, "measured": the labels whose
     measure lm<k> a solution computes}."""
     places = plan.label_places()
-    constant = [k for k in range(len(plan.labels)) if k not in places and constant_label(plan, k)]
+    constant = [k for k in range(len(plan.labels)) if k not in places and plan.constant_label(k)]
     if not plan.labels or not (places or constant):
         return None
 
