@@ -213,6 +213,25 @@ def test_labels_and_flags_known_above_the_innermost_level_are_computed_there():
     assert "_CONFIGS" not in shared.python_source(arm) and "la0 = " in shared.python_source(arm)
 
 
+def test_a_test_implied_by_a_pairs_freedom_is_not_repeated():
+    """benchtop6's wrist pair (joint 4) has one form, used only where joint 5's root exceeds a
+    positive bound: joint 4 is free wherever that root is 0 (or NaN), so the singular flag needs no
+    `root5 == 0` term beside `free4`, and the mirrored wrist no `root5 > 0` test beside `not free4`
+    (Plan.root_tested_pairs). Every back-end prints the shorter forms; the flags and counts they
+    give are checked against the C solver, the batch solver and the hand-written solvers (at
+    joint 5 = 0 too) in test_c_backend, test_batch and test_hand_reference."""
+    arm = demo_arm("benchtop6")
+    plan = common.lower(shared.built(arm).derivation)
+    assert plan.root_tested_pairs("5") == {"4"} and plan.root_tested_pairs("3") == set()
+    assert ("free", "4") in plan.singular_terms and ("double", "5") not in plan.singular_terms
+    assert ("double", "3") in plan.singular_terms
+    assert plan.mirror.joint == "5" and plan.mirror_condition == [("not_free", "4")]
+    four = next(b for b in plan.blocks if b.kind == "pair" and b.key == "4")
+    assert all(str(form.root_symbol) == "root5" and form.root_bound("double") > 0 for form in four.forms)
+    python = shared.python_source(arm)
+    assert "root5 == 0.0" not in python and "if not free4:" in python
+
+
 def test_intermediates_only_a_fallback_reads_are_computed_there():
     """benchtop6's elbow pair (joint 2) has later forms for where its first form's determinant is
     ~0; the entries of A1^-1 T that only they read move into them (sink_into_fallbacks): no compute

@@ -563,7 +563,7 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const int singular = sng3 | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
+            const int singular = sng3 | (root3 == 0.0) | free2 | free4;
             const double cv1 = root3 * 7.9851422936288423e-06;
             const double cv2 = root5 * 1.0;
             const int inside = in1 & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]);
@@ -595,7 +595,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -995,7 +995,7 @@ int benchtop6_ik_inverse_joints(const double pose[16], const double *current,
                     row[5] = jv6;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

@@ -688,7 +688,7 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 62400.0*c3 + 5200.0*s3
-            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            singular = sng3 or root3 == 0.0 or free2 or free4
             conditioning = (cv0, root3 * 7.985142293628842e-06, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 57.29577951308232
@@ -700,7 +700,7 @@ def _closed_form(pose, current, check_finite=True):
             cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -125.00000025000001 <= v5 <= 125.00000025000001)))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
                 v5 = -v5 if v5 < 180.0 else v5
                 v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0
@@ -1008,7 +1008,7 @@ def inverse_joints(pose, current=None):
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
                 v5 = -v5 if v5 < 180.0 else v5
                 v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0

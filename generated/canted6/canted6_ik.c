@@ -815,7 +815,7 @@ static int closed_form(const double pose[16], const double *current,
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-        const int singular = free3 | dbl3 | free1 | free2 | (root5 == 0.0) | free4;
+        const int singular = free3 | dbl3 | free1 | free2 | free4;
         const double cv0 = cnd3;
         const double cv1 = root5 * 1.0;
         const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]);
@@ -846,7 +846,7 @@ static int closed_form(const double pose[16], const double *current,
                 out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
             }
         }
-        if (root5 > 0.0 && !free4) {
+        if (!free4) {
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -1287,7 +1287,7 @@ int canted6_ik_inverse_joints(const double pose[16], const double *current,
                 row[5] = jv6;
             }
         }
-        if (root5 > 0.0 && !free4) {
+        if (!free4) {
             {
                 double u4 = th4;
                 u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

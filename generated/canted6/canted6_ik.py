@@ -836,7 +836,7 @@ def _closed_form(pose, current, check_finite=True):
 
         lm0 = v1x + 50.0
         lm1 = 72746.13391789285*c3 - 5196.152422706632*s3
-        singular = free3 or dbl3 or free1 or free2 or root5 == 0.0 or free4
+        singular = free3 or dbl3 or free1 or free2 or free4
         conditioning = (cnd3, root5, )
         v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
         v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
@@ -849,7 +849,7 @@ def _closed_form(pose, current, check_finite=True):
         cfgs = _CONFIGS[0 if lm0 >= 0.0 else 1][0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
         solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -120.00000024000002 <= v5 <= 120.00000024000002)))
 
-        if root5 > 0.0 and not free4:
+        if not free4:
             v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
             v5 = -v5 if v5 < 180.0 else v5
             v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0
@@ -1196,7 +1196,7 @@ def inverse_joints(pose, current=None):
         v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
         solutions.append((v1, v2, v3, v4, v5, v6, ))
 
-        if root5 > 0.0 and not free4:
+        if not free4:
             v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
             v5 = -v5 if v5 < 180.0 else v5
             v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0

@@ -799,7 +799,7 @@ static int closed_form(const float pose[16], const float *current,
          */
         const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
         const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-        const int singular = free3 | dbl3 | free1 | free2 | (root5 == 0.0f) | free4;
+        const int singular = free3 | dbl3 | free1 | free2 | free4;
         const float cv0 = cnd3;
         const float cv1 = root5 * 1.0f;
         const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
@@ -830,7 +830,7 @@ static int closed_form(const float pose[16], const float *current,
                 out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
             }
         }
-        if (root5 > 0.0f && !free4) {
+        if (!free4) {
             {
                 float u4 = th4;
                 u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

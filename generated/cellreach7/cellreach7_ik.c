@@ -578,7 +578,7 @@ static int closed_form(const double pose[16], double given, const double *curren
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const int singular = sng4 | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5;
+            const int singular = sng4 | free1 | (root1 == 0.0) | free2 | free5;
             const double cv1 = root1 * 0.003162277660168379;
             const double cv2 = root6 * 1.0;
             const int inside = (fabs(jv1) <= HIGH[0]) & (fabs(jv2) <= HIGH[1]) & (fabs(jv3) <= HIGH[2]) & in4;
@@ -611,7 +611,7 @@ static int closed_form(const double pose[16], double given, const double *curren
                     out->within_limits = (fabs(jv5) <= HIGH[4]) & (fabs(jv6) <= HIGH[5]) & inside;
                 }
             }
-            if (root6 > 0.0 && !free5) {
+            if (!free5) {
                 {
                     double u5 = th5;
                     u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;
@@ -1024,7 +1024,7 @@ int cellreach7_ik_inverse_joints(const double pose[16], double given, const doub
                     row[6] = jv7;
                 }
             }
-            if (root6 > 0.0 && !free5) {
+            if (!free5) {
                 {
                     double u5 = th5;
                     u5 = u5 <= -3.1415926535897931 ? u5 + 6.2831853071795862 : u5;

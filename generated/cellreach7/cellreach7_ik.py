@@ -792,7 +792,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             # Joint readings, configuration labels, singular flag.
 
             lm0 = s2
-            singular = sng4 or free1 or root1 == 0.0 or free2 or root6 == 0.0 or free5
+            singular = sng4 or free1 or root1 == 0.0 or free2 or free5
             conditioning = (cv0, root1 * 0.003162277660168379, root6, )
             v1 = (th1 + 6.283185307179586 if th1 <= -3.141592653589793 else th1) * 57.29577951308232
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
@@ -803,7 +803,7 @@ def _closed_form(pose, current, check_finite=True, given=0.0):
             cfgs = cfg1[0 if lm0 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, given, v4, v5, v6, v7, ), cfgs[0], singular, conditioning, inside and -165.00000033 <= v5 <= 165.00000033 and -115.00000023 <= v6 <= 115.00000023)))
 
-            if root6 > 0.0 and not free5:
+            if not free5:
                 v5 = v5 - 180.0 if v5 > 1.4210854715202004e-14 else v5 + 180.0
                 v6 = -v6 if v6 < 180.0 else v6
                 v7 = v7 - 180.0 if v7 > 1.4210854715202004e-14 else v7 + 180.0
@@ -1128,7 +1128,7 @@ def inverse_joints(pose, given, current=None):
             v7 = (th7 + 6.283185307179586 if th7 <= -3.141592653589793 else th7) * 57.29577951308232
             solutions.append((v1, v2, given, v4, v5, v6, v7, ))
 
-            if root6 > 0.0 and not free5:
+            if not free5:
                 v5 = v5 - 180.0 if v5 > 1.4210854715202004e-14 else v5 + 180.0
                 v6 = -v6 if v6 < 180.0 else v6
                 v7 = v7 - 180.0 if v7 > 1.4210854715202004e-14 else v7 + 180.0

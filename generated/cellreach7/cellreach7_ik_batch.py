@@ -446,13 +446,13 @@ def _solve_chunk(poses, given, current, out_joints, out_valid, out_labels, out_s
         numpy.multiply(lab1, valid, out=out_labels[..., 0, 1, :])
         lab2 = numpy.where(lm2 >= 0.0, _PLUS, _MINUS)
         numpy.multiply(lab2, valid, out=out_labels[..., 0, 2, :])
-        out_singular[..., 0, :] = (root4 == 0.0) | free1 | (root1 == 0.0) | free2 | (root6 == 0.0) | free5
+        out_singular[..., 0, :] = (root4 == 0.0) | free1 | (root1 == 0.0) | free2 | free5
         if out_conditioning is not None:
             out_conditioning[..., 0, :] = cond4[..., None, :]   # both mirrored solutions
             out_conditioning[..., 1, :] = cond1[..., None, :]   # both mirrored solutions
             out_conditioning[..., 2, :] = cond6[..., None, :]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
-        valid = valid & (root6 > 0.0) & ~free5
+        valid = valid & ~free5
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u5 = th5 + _PI

@@ -562,7 +562,7 @@ static int closed_form(const float pose[16], float given, const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const int singular = sng4 | free1 | (root1 == 0.0f) | free2 | (root6 == 0.0f) | free5;
+            const int singular = sng4 | free1 | (root1 == 0.0f) | free2 | free5;
             const float cv1 = root1 * 0.00316227766f;
             const float cv2 = root6 * 1.0f;
             const int inside = (fabsf(jv1) <= HIGH[0]) & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]) & in4;
@@ -595,7 +595,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     out->within_limits = (fabsf(jv5) <= HIGH[4]) & (fabsf(jv6) <= HIGH[5]) & inside;
                 }
             }
-            if (root6 > 0.0f && !free5) {
+            if (!free5) {
                 {
                     float u5 = th5;
                     u5 = u5 <= -3.14159265f ? u5 + 6.28318531f : u5;

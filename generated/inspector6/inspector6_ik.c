@@ -517,7 +517,7 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0 ? 1 : -1);
-            const int singular = sng3 | free1 | (root1 == 0.0) | free2 | (root5 == 0.0) | free4;
+            const int singular = sng3 | free1 | (root1 == 0.0) | free2 | free4;
             const double cv1 = root1 * 0.003162277660168379;
             const double cv2 = root5 * 1.0;
             const int inside = (fabs(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & in3;
@@ -549,7 +549,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -905,7 +905,7 @@ int inspector6_ik_inverse_joints(const double pose[16], const double *current,
                     row[5] = jv6;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

@@ -501,7 +501,7 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab0 = (signed char)(lm0 >= 0.0f ? 1 : -1);
-            const int singular = sng3 | free1 | (root1 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const int singular = sng3 | free1 | (root1 == 0.0f) | free2 | free4;
             const float cv1 = root1 * 0.00316227766f;
             const float cv2 = root5 * 1.0f;
             const int inside = (fabsf(jv1) <= HIGH[0]) & (jv2 >= LOW[1]) & (jv2 <= HIGH[1]) & in3;
@@ -533,7 +533,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0f && !free4) {
+            if (!free4) {
                 {
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

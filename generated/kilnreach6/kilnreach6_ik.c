@@ -446,7 +446,7 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab2 = (signed char)(lm2 >= 0.0 ? 1 : -1);
-            const int singular = sng3 | free2 | (root2 == 0.0) | (root5 == 0.0) | free4;
+            const int singular = sng3 | free2 | (root2 == 0.0) | free4;
             const double cv1 = root2 * 0.001;
             const double cv2 = root5 * 1.0;
             const int inside = in1 & (fabs(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
@@ -478,7 +478,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -776,7 +776,7 @@ int kilnreach6_ik_inverse_joints(const double pose[16], const double *current,
                     row[5] = jv6;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

@@ -543,7 +543,7 @@ def _closed_form(pose, current, check_finite=True):
                 continue
 
             lm2 = -c2*v1y + s2*v1x
-            singular = sng3 or free2 or root2 == 0.0 or root5 == 0.0 or free4
+            singular = sng3 or free2 or root2 == 0.0 or free4
             conditioning = (cv0, root2 * 0.001, root5, )
             v2 = (th2 + 6.283185307179586 if th2 <= -3.141592653589793 else th2) * 57.29577951308232
             v3 = (l3 - 0.0) * 1.0
@@ -554,7 +554,7 @@ def _closed_form(pose, current, check_finite=True):
             cfgs = cfg0[0 if lm2 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -115.00000023 <= v5 <= 115.00000023)))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
                 v5 = -v5 if v5 < 180.0 else v5
                 v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0
@@ -732,7 +732,7 @@ def inverse_joints(pose, current=None):
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 57.29577951308232
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 180.0 if v4 > 1.4210854715202004e-14 else v4 + 180.0
                 v5 = -v5 if v5 < 180.0 else v5
                 v6 = v6 - 180.0 if v6 > 1.4210854715202004e-14 else v6 + 180.0

@@ -430,7 +430,7 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab2 = (signed char)(lm2 >= 0.0f ? 1 : -1);
-            const int singular = sng3 | free2 | (root2 == 0.0f) | (root5 == 0.0f) | free4;
+            const int singular = sng3 | free2 | (root2 == 0.0f) | free4;
             const float cv1 = root2 * 0.001f;
             const float cv2 = root5 * 1.0f;
             const int inside = in1 & (fabsf(jv2) <= HIGH[1]) & (jv3 >= LOW[2]) & (jv3 <= HIGH[2]);
@@ -462,7 +462,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0f && !free4) {
+            if (!free4) {
                 {
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

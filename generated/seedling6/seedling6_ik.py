@@ -673,7 +673,7 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 0.119*c3 + 0.0119*s3
-            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            singular = sng3 or root3 == 0.0 or free2 or free4
             conditioning = (cv0, root3 * 4.180828530294072, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
@@ -685,7 +685,7 @@ def _closed_form(pose, current, check_finite=True):
             cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -3.1000000062 <= v4 <= 3.1000000062 and -2.1000000042 <= v5 <= 2.1000000042)))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
                 v5 = -v5 if v5 < 3.141592653589793 else v5
                 v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793
@@ -982,7 +982,7 @@ def inverse_joints(pose, current=None):
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
                 v5 = -v5 if v5 < 3.141592653589793 else v5
                 v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793

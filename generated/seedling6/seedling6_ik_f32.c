@@ -534,7 +534,7 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const int singular = sng3 | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const int singular = sng3 | (root3 == 0.0f) | free2 | free4;
             const float cv1 = root3 * 4.18082853f;
             const float cv2 = root5 * 1.0f;
             const int inside = in1 & (fabsf(jv2) <= HIGH[1]) & (fabsf(jv3) <= HIGH[2]);
@@ -566,7 +566,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->within_limits = (fabsf(jv4) <= HIGH[3]) & (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0f && !free4) {
+            if (!free4) {
                 {
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

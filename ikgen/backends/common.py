@@ -395,10 +395,20 @@ class Plan:
         second root; ("not_free", k) no later unknown left free (at a singular wrist the copy would
         move the kept joint)."""
         m = self.mirror
-        terms = [("root", m.joint)]
-        terms += [("not_free", b.key) for b in self.blocks
-                  if b.kind == "pair" and b.free_possible and b.key in m.parities]
-        return terms
+        kept = [b.key for b in self.blocks if b.kind == "pair" and b.free_possible and b.key in m.parities]
+        # a kept pair that is free wherever the mirror's root is 0 makes the root test redundant
+        covered = any(key in self.root_tested_pairs(m.joint) for key in kept)
+        return ([] if covered else [("root", m.joint)]) + [("not_free", key) for key in kept]
+
+    def root_tested_pairs(self, key: str) -> set:
+        """The pair blocks (their keys) free wherever root<key> is 0: every form of theirs is used
+        only where that root exceeds a positive bound (mark_root_tests), so root == 0 (or NaN)
+        leaves them free. Their free flag then implies root<key> == 0's singular term, and their
+        not being free the root's being positive."""
+        root = sp.Symbol(f"root{key}", real=True)
+        return {b.key for b in self.blocks
+                if b.kind == "pair" and b.free_possible and b.forms
+                and all(f.root_symbol == root and f.limit("float") > 0 and f.limit("double") > 0 for f in b.forms)}
 
     @property
     def singular_terms(self) -> list[tuple[str, str]]:
@@ -410,7 +420,8 @@ class Plan:
             if block.kind == "cossin":
                 if block.threshold is not None:
                     terms.append(("free", block.key))
-                terms.append(("double", block.key))
+                if not self.root_tested_pairs(block.key):   # else a pair's free term covers root == 0
+                    terms.append(("double", block.key))
             elif block.kind == "pair" and block.free_possible:
                 terms.append(("free", block.key))
             elif block.kind == "poly":
