@@ -230,6 +230,11 @@ def test_a_test_implied_by_a_pairs_freedom_is_not_repeated():
     assert all(str(form.root_symbol) == "root5" and form.root_bound("double") > 0 for form in four.forms)
     python = shared.python_source(arm)
     assert "root5 == 0.0" not in python and "if not free4:" in python
+    # packer6's wrist pair has root5^2 itself as its determinant (scale 1): tested through the root too
+    plan = common.lower(shared.built(demo_arm("packer6")).derivation)
+    four = next(b for b in plan.blocks if b.kind == "pair" and b.key == "4")
+    assert [str(form.root_symbol) for form in four.forms] == ["root5"] and four.forms[0].root_scale == 1.0
+    assert plan.root_tested_pairs("5") == {"4"} and ("double", "5") not in plan.singular_terms
 
 
 def test_intermediates_only_a_fallback_reads_are_computed_there():

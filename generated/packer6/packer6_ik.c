@@ -496,13 +496,14 @@ static int closed_form(const double pose[16], const double *current,
             {
 
                 dt4 = root5*root5;
-                if (dt4 > 9.9999999999999995e-21) {
+                if (root5 > 1e-10) {
                     c4 = -g36_13;
                     s4 = g16_23;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -577,7 +578,7 @@ static int closed_form(const double pose[16], const double *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab1 = (signed char)(lm1 >= 0.0 ? 1 : -1);
-            const int singular = sng3 | (root3 == 0.0) | free2 | (root5 == 0.0) | free4;
+            const int singular = sng3 | (root3 == 0.0) | free2 | free4;
             const double cv0 = root1 * 1.0;
             const double cv1 = root3 * 0.64876700516178298;
             const double cv2 = root5 * 1.0;
@@ -610,7 +611,7 @@ static int closed_form(const double pose[16], const double *current,
                     out->within_limits = (fabs(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;
@@ -934,13 +935,14 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
             {
 
                 dt4 = root5*root5;
-                if (dt4 > 9.9999999999999995e-21) {
+                if (root5 > 1e-10) {
                     c4 = -g36_13;
                     s4 = g16_23;
                     free4 = 0;
                     wk4 = 1e-08;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -1030,7 +1032,7 @@ int packer6_ik_inverse_joints(const double pose[16], const double *current,
                     row[5] = jv6;
                 }
             }
-            if (root5 > 0.0 && !free4) {
+            if (!free4) {
                 {
                     double u4 = th4;
                     u4 = u4 <= -3.1415926535897931 ? u4 + 6.2831853071795862 : u4;

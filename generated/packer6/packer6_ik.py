@@ -666,8 +666,7 @@ def _closed_form(pose, current, check_finite=True):
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = root5*root5
-            if dt4 > 1e-20:
+            if root5 > 1e-10:
                 c4 = -g36_13
                 s4 = g16_23
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -710,7 +709,7 @@ def _closed_form(pose, current, check_finite=True):
             # Joint readings, configuration labels, singular flag.
 
             lm1 = 0.765*c3 + 0.0935*s3
-            singular = sng3 or root3 == 0.0 or free2 or root5 == 0.0 or free4
+            singular = sng3 or root3 == 0.0 or free2 or free4
             conditioning = (root1, root3 * 0.648767005161783, root5, )
             u2 = th2 - -1.5707963267948966
             v2 = (u2 - 6.283185307179586 if u2 > 3.141592653589793 else u2) * 1.0
@@ -722,7 +721,7 @@ def _closed_form(pose, current, check_finite=True):
             cfgs = cfg0[0 if lm1 >= 0.0 else 1]   # the configurations this solution and its mirrored twin can take
             solutions.append(Solution(((v1, v2, v3, v4, v5, v6, ), cfgs[0], singular, conditioning, inside and -2.094395106581986 <= v5 <= 2.094395106581986)))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
                 v5 = -v5 if v5 < 3.141592653589793 else v5
                 v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793
@@ -1008,8 +1007,7 @@ def inverse_joints(pose, current=None):
             # th4 from a linear pair: (c, s) = (cos_num, sin_num) times the sign of det (first form whose det is not
             # ~0); no later step reads them, atan2 needs only their direction
 
-            dt4 = root5*root5
-            if dt4 > 1e-20:
+            if root5 > 1e-10:
                 c4 = -g36_13
                 s4 = g16_23
                 # no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form)
@@ -1058,7 +1056,7 @@ def inverse_joints(pose, current=None):
             v6 = (th6 + 6.283185307179586 if th6 <= -3.141592653589793 else th6) * 1.0
             solutions.append((v1, v2, v3, v4, v5, v6, ))
 
-            if root5 > 0.0 and not free4:
+            if not free4:
                 v4 = v4 - 3.141592653589793 if v4 > 2.220446049250313e-16 else v4 + 3.141592653589793
                 v5 = -v5 if v5 < 3.141592653589793 else v5
                 v6 = v6 - 3.141592653589793 if v6 > 2.220446049250313e-16 else v6 + 3.141592653589793

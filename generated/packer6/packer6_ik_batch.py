@@ -353,7 +353,7 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         chosen4 = numpy.zeros((), dtype=bool)
 
         dt4 = root5*root5
-        use = ~chosen4 & (dt4 > 1e-20)
+        use = ~chosen4 & (root5 > 1e-10)
         c4 = -g36_13
         s4 = g16_23
         chosen4 = chosen4 | use
@@ -445,13 +445,13 @@ def _solve_chunk(poses, current, out_joints, out_valid, out_labels, out_singular
         numpy.multiply(lab1, valid, out=out_labels[..., 0, 1, :])
         lab2 = numpy.where(lm2 >= 0.0, _PLUS, _MINUS)
         numpy.multiply(lab2, valid, out=out_labels[..., 0, 2, :])
-        out_singular[..., 0, :] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | (root5 == 0.0) | free4
+        out_singular[..., 0, :] = free1 | (root1 == 0.0) | (root3 == 0.0) | free2 | free4
         if out_conditioning is not None:
             out_conditioning[..., 0, :] = cond1[..., None, :]   # both mirrored solutions
             out_conditioning[..., 1, :] = cond3[..., None, :]   # both mirrored solutions
             out_conditioning[..., 2, :] = cond5[..., None, :]   # both mirrored solutions
         # the mirrored solution, in the last branch axis
-        valid = valid & (root5 > 0.0) & ~free4
+        valid = valid & ~free4
         out_valid[..., 1, :] = valid
         blank = numpy.where(valid, -0.0, numpy.nan)
         u4 = th4 + _PI

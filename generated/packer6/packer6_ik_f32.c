@@ -480,13 +480,14 @@ static int closed_form(const float pose[16], const float *current,
             {
 
                 dt4 = root5*root5;
-                if (dt4 > 1e-20f) {
+                if (root5 > 1e-10f) {
                     c4 = -g36_13;
                     s4 = g16_23;
                     free4 = 0;
                     wk4 = 1e-08f;
                 }
             }
+            (void)dt4;   /* a form tested through its root does not read it */
             /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (every form) */
             (void)wk4;
             if (free4) {
@@ -561,7 +562,7 @@ static int closed_form(const float pose[16], const float *current,
              * reading's magnitude (the same test, NaN included).
              */
             const signed char lab1 = (signed char)(lm1 >= 0.0f ? 1 : -1);
-            const int singular = sng3 | (root3 == 0.0f) | free2 | (root5 == 0.0f) | free4;
+            const int singular = sng3 | (root3 == 0.0f) | free2 | free4;
             const float cv0 = root1 * 1.0f;
             const float cv1 = root3 * 0.648767005f;
             const float cv2 = root5 * 1.0f;
@@ -594,7 +595,7 @@ static int closed_form(const float pose[16], const float *current,
                     out->within_limits = (fabsf(jv5) <= HIGH[4]) & inside;
                 }
             }
-            if (root5 > 0.0f && !free4) {
+            if (!free4) {
                 {
                     float u4 = th4;
                     u4 = u4 <= -3.14159265f ? u4 + 6.28318531f : u4;

@@ -1067,15 +1067,15 @@ def mark_nonnegative_radicands(plan: Plan) -> None:
 
 def mark_root_tests(plan: Plan) -> None:
     """A consistent form's determinant that is a constant times the square of a root (the wrist's
-    -root5^2) is tested through the root: |det| > limit is root > sqrt(limit / |constant|), one
+    -root5^2, or root5^2 itself) is tested through the root: |det| > limit is root > sqrt(limit / |constant|), one
     comparison and no product; nothing else reads such a form's determinant (no consistency test
     follows it). Every back-end prints the same test."""
     for block in plan.blocks:
         for form in block.forms:
             det = sp.sympify(form.det)
-            if not form.consistent or not isinstance(det, sp.Mul):
+            if not form.consistent or not isinstance(det, (sp.Mul, sp.Pow)):
                 continue
-            scale, rest = det.as_coeff_Mul()
+            scale, rest = det.as_coeff_Mul() if isinstance(det, sp.Mul) else (sp.Integer(1), det)   # root^2 alone: scale 1
             if (isinstance(rest, sp.Pow) and rest.exp == 2 and isinstance(rest.base, sp.Symbol)
                     and rest.base.name.startswith("root") and scale.is_number and scale != 0):
                 form.root_symbol, form.root_scale = rest.base, float(abs(scale))
