@@ -117,6 +117,7 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         within_checks=common.limit_checked(common.joint_turns(arm)),
         within_shared=within_split(arm, plan, True), within_own=within_split(arm, plan, False),
         flags=flag_code(arm, plan, printer, scalar), inner_level=common.inner_level,
+        limit_test=lambda k: limit_test(arm, k, scalar),
         probe_terms=probe_terms(plan), balanced_sum=common.balanced_sum,
         safe_entry=bounds.safe_entry(plan, scalar.name), label_inputs=label_inputs(plan),
         max_turns=max(t.count for t in common.joint_turns(arm)),
