@@ -159,23 +159,26 @@ def flag_code(arm: Arm, plan, printer: SolverCPrinter, scalar: Scalar) -> dict:
     early)], "inside": the shared limit tests' terms}."""
     early: dict[int, list[str]] = {}
     places = plan.label_places()
+    zero = printer.number(0)
     for k, index in sorted(places.items(), key=lambda item: (item[1], item[0])):
-        early.setdefault(index, []).append(
-            f"const signed char lab{k} = (signed char)({printer.doprint(plan.label_measures[k])} >= {printer.number(0)} ? 1 : -1);")
+        measure = printer.doprint(plan.label_measures[k])
+        early.setdefault(index, []).append(f"const signed char lab{k} = (signed char)({measure} >= {zero} ? 1 : -1);")
     shared = [k + 1 for k in within_split(arm, plan, True)]
     flags = plan.flag_places(shared)
 
-    def term(text: str) -> str:
-        return f"({text})" if " " in text else text
+    def either(items: list, sofar: str | None) -> str:
+        """The singular terms OR'd with the flag so far, comparisons in parentheses."""
+        texts = [f"({t})" if " " in t else t for t in c_terms(items, printer)]
+        return " | ".join(([sofar] if sofar else []) + texts)
     sofar = None
     for index, items in flags.singular_groups:
-        early.setdefault(index, []).append(
-            f"const int sng{index} = " + " | ".join(([sofar] if sofar else []) + [term(t) for t in c_terms(items, printer)]) + ";")
+        early.setdefault(index, []).append(f"const int sng{index} = {either(items, sofar)};")
         sofar = f"sng{index}"
-    singular = " | ".join(([sofar] if sofar else []) + [term(t) for t in c_terms(flags.singular_late, printer)]) or "0"
+    singular = either(flags.singular_late, sofar) or "0"
     conditions = []
     for i, block in enumerate(plan.condition_blocks):
-        value = f"cnd{block.key}" if block.kind == "poly" else f"root{block.key} * {printer.number(block.condition_gain)}"
+        gain = printer.number(block.condition_gain)
+        value = f"cnd{block.key}" if block.kind == "poly" else f"root{block.key} * {gain}"
         if i in flags.conditions:
             early.setdefault(flags.conditions[i], []).append(f"const {scalar.name} cv{i} = {value};")
             value = None
@@ -188,8 +191,9 @@ def flag_code(arm: Arm, plan, printer: SolverCPrinter, scalar: Scalar) -> dict:
             test = f"in{joint}"
         inside.append(test)
     constant = [k for k in range(len(plan.labels)) if k not in places and plan.constant_label(k)]
-    return {"early": early, "measured": [k for k in range(len(plan.labels)) if k not in places and k not in constant],
-            "constant": constant, "singular": singular, "conditions": conditions, "inside": inside}
+    measured = [k for k in range(len(plan.labels)) if k not in places and k not in constant]
+    return {"early": early, "measured": measured, "constant": constant, "singular": singular,
+            "conditions": conditions, "inside": inside}
 
 
 def within_split(arm: Arm, plan, shared: bool) -> list[int]:

@@ -408,7 +408,7 @@ class Plan:
         root = sp.Symbol(f"root{key}", real=True)
         return {b.key for b in self.blocks
                 if b.kind == "pair" and b.free_possible and b.forms
-                and all(f.root_symbol == root and f.limit("float") > 0 and f.limit("double") > 0 for f in b.forms)}
+                and all(f.root_symbol == root and min(f.limit("float"), f.limit("double")) > 0 for f in b.forms)}
 
     @property
     def singular_terms(self) -> list[tuple[str, str]]:
@@ -552,7 +552,8 @@ class Plan:
         """Whether a mirrored twin has its first solution's reading of this output (a slide, the
         caller's reading, an angle the mirror leaves alone), so that the reading and its limit
         test serve both (False without a mirror)."""
-        return self.mirror is not None and (out.prismatic or out.given or self.mirrored_angle(out.joint) == f"th{out.joint}")
+        return self.mirror is not None and (out.prismatic or out.given
+                                            or self.mirrored_angle(out.joint) == f"th{out.joint}")
 
     @property
     def twin_readings(self) -> list:
@@ -579,11 +580,6 @@ class FlagPlaces:
     singular_late: list     # [(kind, key)] terms known only where the solution is written
     conditions: dict        # condition index -> block index of its product
     limits: dict            # joint (1-based) -> block index of its limit test
-
-    def at(self, index: int) -> bool:
-        """Whether anything goes after block ``index``."""
-        return (any(i == index for i, _ in self.singular_groups) or index in self.conditions.values()
-                or index in self.limits.values())
 
 
 def half_turn(out: OutputPlan, real: str = "double") -> float:
@@ -1067,15 +1063,16 @@ def mark_nonnegative_radicands(plan: Plan) -> None:
 
 def mark_root_tests(plan: Plan) -> None:
     """A consistent form's determinant that is a constant times the square of a root (the wrist's
-    -root5^2, or root5^2 itself) is tested through the root: |det| > limit is root > sqrt(limit / |constant|), one
-    comparison and no product; nothing else reads such a form's determinant (no consistency test
-    follows it). Every back-end prints the same test."""
+    -root5^2, or root5^2 itself) is tested through the root: |det| > limit is
+    root > sqrt(limit / |constant|), one comparison and no product; nothing else reads such a
+    form's determinant (no consistency test follows it). Every back-end prints the same test."""
     for block in plan.blocks:
         for form in block.forms:
             det = sp.sympify(form.det)
             if not form.consistent or not isinstance(det, (sp.Mul, sp.Pow)):
                 continue
-            scale, rest = det.as_coeff_Mul() if isinstance(det, sp.Mul) else (sp.Integer(1), det)   # root^2 alone: scale 1
+            # root^2 alone has scale 1
+            scale, rest = det.as_coeff_Mul() if isinstance(det, sp.Mul) else (sp.Integer(1), det)
             if (isinstance(rest, sp.Pow) and rest.exp == 2 and isinstance(rest.base, sp.Symbol)
                     and rest.base.name.startswith("root") and scale.is_number and scale != 0):
                 form.root_symbol, form.root_scale = rest.base, float(abs(scale))
