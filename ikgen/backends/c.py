@@ -108,7 +108,6 @@ def render(arm: Arm, derivation: Derivation, scalar: Scalar = DOUBLE) -> dict[st
         limits=[list(l) for l in arm.limits_in_readings()],
         joint_zero=common.joint_zero(arm), joint_turn=common.joint_turn(arm), joint_gain=common.joint_gain(arm),
         prismatic=[not j.revolute for j in arm.joints],
-        singular_terms=c_terms(plan.singular_terms, printer),
         mirror_terms=c_terms(plan.mirror_condition, printer) if plan.mirror else [], generator=common.GENERATOR,
         label_bits=[(i, l.name, l.positive, l.negative) for i, l in enumerate(plan.labels)],
         pose_names=[str(s) for s in plan.pose_symbols], used_pose={str(s) for s in plan_symbols(plan)},
