@@ -21,6 +21,25 @@ from .model import Arm, Joint
 POSE_CHUNK = 4096   # readings per part in NumericChain.poses (1e6 readings of benchtop6: 1.1-1.5 s in parts of 1,024-8,192, 4.7 s at once)
 
 
+def numeric_links(standard: bool, a, alpha, d, theta) -> np.ndarray:
+    """(..., n, 4, 4) DH link transforms, numeric, from (..., n) arrays of theta and d and the
+    (n,) a and alpha (``standard``: the distal form, else the modified one)."""
+    ct, st = np.cos(theta), np.sin(theta)
+    ca, sa = np.cos(alpha), np.sin(alpha)
+    a = np.broadcast_to(a, ct.shape)
+    out = np.zeros(ct.shape + (4, 4))
+    if standard:
+        out[..., 0, 0], out[..., 0, 1], out[..., 0, 2], out[..., 0, 3] = ct, -st * ca, st * sa, a * ct
+        out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st, ct * ca, -ct * sa, a * st
+        out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = sa, ca, d
+    else:
+        out[..., 0, 0], out[..., 0, 1], out[..., 0, 3] = ct, -st, a
+        out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st * ca, ct * ca, -sa, -sa * d
+        out[..., 2, 0], out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = st * sa, ct * sa, ca, ca * d
+    out[..., 3, 3] = 1.0
+    return out
+
+
 def link_matrix(convention: str, a, alpha, d, theta) -> sp.Matrix:
     """The 4x4 DH link transform, exact (sympy) for the given convention."""
     return link_from_cos_sin(convention, a, sp.cos(alpha), sp.sin(alpha), d, sp.cos(theta), sp.sin(theta))
@@ -95,20 +114,7 @@ class NumericChain:
         variable = self.offset + self.direction * q
         theta = np.where(self.revolute, self.theta + variable, self.theta)
         d = np.where(self.revolute, self.d, self.d + variable)
-        ct, st = np.cos(theta), np.sin(theta)
-        ca, sa = np.cos(self.alpha), np.sin(self.alpha)
-        a = np.broadcast_to(self.a, ct.shape)
-        out = np.zeros(ct.shape + (4, 4))
-        if self.standard:
-            out[..., 0, 0], out[..., 0, 1], out[..., 0, 2], out[..., 0, 3] = ct, -st * ca, st * sa, a * ct
-            out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st, ct * ca, -ct * sa, a * st
-            out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = sa, ca, d
-        else:
-            out[..., 0, 0], out[..., 0, 1], out[..., 0, 3] = ct, -st, a
-            out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st * ca, ct * ca, -sa, -sa * d
-            out[..., 2, 0], out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = st * sa, ct * sa, ca, ca * d
-        out[..., 3, 3] = 1.0
-        return out
+        return numeric_links(self.standard, self.a, self.alpha, d, theta)
 
     def frames(self, readings) -> np.ndarray:
         """(N, dof+1, 4, 4): frame 0 (the base of the chain) to frame n (the flange), in the world."""

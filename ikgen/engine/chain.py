@@ -15,7 +15,7 @@ from functools import cached_property
 import numpy as np
 import sympy as sp
 
-from ..kinematics import link_from_cos_sin
+from ..kinematics import link_from_cos_sin, numeric_links
 from ..model import Arm
 from ..rotations import inverse_transform
 from .symbols import Unknown
@@ -121,21 +121,8 @@ class Chain:
         revolute joint, the DH displacement d of a prismatic one."""
         values = np.asarray(angles, dtype=float)
         angles = np.where(self.prismatic, self._theta, values)
-        ct, st = np.cos(angles), np.sin(angles)
-        ca, sa = np.cos(self._alpha), np.sin(self._alpha)
-        a = np.broadcast_to(self._a, ct.shape)
-        d = np.where(self.prismatic, values, np.broadcast_to(self._d, ct.shape))
-        out = np.zeros(ct.shape + (4, 4))
-        if self.arm.convention == "standard":
-            out[..., 0, 0], out[..., 0, 1], out[..., 0, 2], out[..., 0, 3] = ct, -st * ca, st * sa, a * ct
-            out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st, ct * ca, -ct * sa, a * st
-            out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = sa, ca, d
-        else:
-            out[..., 0, 0], out[..., 0, 1], out[..., 0, 3] = ct, -st, a
-            out[..., 1, 0], out[..., 1, 1], out[..., 1, 2], out[..., 1, 3] = st * ca, ct * ca, -sa, -sa * d
-            out[..., 2, 0], out[..., 2, 1], out[..., 2, 2], out[..., 2, 3] = st * sa, ct * sa, ca, ca * d
-        out[..., 3, 3] = 1.0
-        return out
+        d = np.where(self.prismatic, values, np.broadcast_to(self._d, angles.shape))
+        return numeric_links(self.arm.convention == "standard", self._a, self._alpha, d, angles)
 
     def numeric_core(self, angles: np.ndarray) -> np.ndarray:
         """(N, 4, 4): the product A1 ... An (the pose with base and tool removed)."""
