@@ -643,6 +643,83 @@ def test_two_joints_making_the_same_motion_are_refused():
         build(parallel_slides)
 
 
+def test_an_arm_whose_joints_cannot_move_the_tool_every_way_is_refused_with_the_reason(tmp_path, capsys):
+    """Two rank-deficient arms (facts of kinematics, common practice): a planar three-link arm
+    (axes 1 to 3 parallel to the base z axis) keeps a spherical wrist's centre at one height, so no
+    joint rate moves the tool point along z at a reading where the tool point is the wrist
+    centre; an RRR arm whose tool point lies on axis 3 cannot move that point with joint 3
+    (z3 x (p - o3) = 0). Both are refused before any derivation, naming that direction or joint,
+    and the command exits 3 writing nothing."""
+    from ikgen.cli import main
+    planar = build_arm([joint("r", a=0.3, d=0.2), joint("r", a=0.4), joint("r", a=0.1, alpha=-90, d=0.05),
+                        joint("r", alpha=90, d=0.3), joint("r", alpha=-90), joint("r")], name="planar_wrist")
+    with pytest.raises(StructureError) as caught:
+        build(planar)
+    message = str(caught.value)
+    assert "target's Jacobian has rank 5, not 6" in message
+    assert "no joint rate moves the tool point along (0.000, 0.000, 1.000) (world)" in message
+    assert caught.value.exit_code == 3
+    on_axis = build_arm([joint("r", d=0.5, alpha=-90), joint("r", a=0.4), joint("r")], name="point_on_axis")
+    with pytest.raises(StructureError, match=r"rank 2, not 3.*Joint 3 'j3' moves nothing the target holds "
+                                             r"\(the tool point lies on its axis\)"):
+        build(on_axis)
+    full = build_arm([joint("r", alpha=-90, d=0.3), joint("r", a=0.4), joint("r", a=0.05, alpha=-90),
+                      joint("r", alpha=90, d=0.35), joint("r", alpha=-90), joint("r")], name="full_rank")
+    assert derive(full).max_solutions == 8
+    arm_file = tmp_path / "planar_wrist.toml"
+    arm_file.write_text("[arm]\nname = \"planar_wrist\"\nconvention = \"standard\"\nlength_unit = \"m\"\n"
+                        "angle_unit = \"deg\"\n" + "".join(
+                            f"\n[[joint]]\ntype = \"revolute\"\na = {a}\nalpha = {alpha}\nd = {d}\ntheta = 0\n"
+                            for a, alpha, d in [(0.3, 0, 0.2), (0.4, 0, 0), (0.1, -90, 0.05), (0, 90, 0.3),
+                                                (0, -90, 0), (0, 0, 0)]), encoding="utf-8")
+    out_dir = tmp_path / "out"
+    assert main(["generate", str(arm_file), "-o", str(out_dir)]) == 3
+    err = capsys.readouterr().err
+    assert err.startswith("ikgen: error:") and "Traceback" not in err and "rank 5, not 6" in err
+    assert not out_dir.exists() or list(out_dir.iterdir()) == []
+
+
+@pytest.mark.parametrize("stem", ["benchtop6", "boardpick4", "engraver5", "mast3", "seedling6"])
+def test_the_target_jacobian_is_the_derivative_of_what_the_target_holds(stem):
+    """target_jacobian against central differences of the forward kinematics (the definition of
+    the derivative; angular velocity from dR/dq R^T = [w]x, common practice): position over the
+    reach, tool rotation, the turn about a point-and-angle target's axis and the rate of a
+    point-and-direction target's tool axis, per radian of a revolute joint's DH angle and per reach
+    of a slide."""
+    from ikgen.engine.targets import resolve, target_jacobian
+    arm = demo_arm(stem)
+    target = resolve(arm)
+    chain = NumericChain(arm)
+    length = arm.reach_scale()
+    readings = np.mean(arm.limits_in_readings(), axis=1) + 0.1 * np.ptp(arm.limits_in_readings(), axis=1) * \
+        np.sin(np.arange(arm.dof) + 1.0)
+    jacobian = target_jacobian(arm, chain, target, readings)
+    pose0 = chain.poses(readings[None, :])[0]
+    column_of = {j.index - 1: k for k, j in enumerate(arm.solved_joints)}
+    for joint_index, column in column_of.items():
+        j = arm.joints[joint_index]
+        # a step of h in the DH variable is a step of h / (scale * direction) in the reading
+        h = 1e-6
+        per_reading = arm.reading_scales()[joint_index] * j.direction
+        step = np.zeros(arm.dof)
+        step[joint_index] = (h if j.revolute else h * length) / per_reading
+        plus, minus = chain.poses((readings + step)[None, :])[0], chain.poses((readings - step)[None, :])[0]
+        velocity = (plus[:3, 3] - minus[:3, 3]) / (2 * h) / length
+        spin = (plus[:3, :3] - minus[:3, :3]) / (2 * h) @ pose0[:3, :3].T
+        w = np.array([spin[2, 1], spin[0, 2], spin[1, 0]])
+        if target.kind == "pose":
+            expected = np.concatenate([velocity, w])
+        elif target.kind == "point":
+            expected = velocity
+        elif target.kind == "point_and_angle":
+            expected = np.concatenate([velocity, [np.dot([float(v) for v in target.axis], w)]])
+        else:
+            a = "xyz".index(target.tool_axis)
+            rate = (plus[:3, a] - minus[:3, a]) / (2 * h)
+            expected = np.concatenate([velocity, rate])
+        assert np.allclose(jacobian[:, column], expected, atol=1e-7), (stem, joint_index)
+
+
 def test_a_declared_pose_for_a_four_joint_arm_is_refused_with_what_it_serves():
     data = benchtop_data()
     del data["joint"][4:]

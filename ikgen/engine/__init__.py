@@ -19,7 +19,7 @@ from ..errors import StructureError
 from ..ir import GIVEN_SYMBOL, CirclePolynomial, Compute, CosSinEquation, Derivation, JointOutput, QuadraticLength
 from ..model import Arm
 from .context import make_setup
-from .targets import check_given, check_independent, resolve as resolve_target
+from .targets import check_independent, check_rank, resolve as resolve_target
 from .labels import MEANINGS, build_labels, plan_labels, root_label
 from .mirror import attach_mirror
 from .solver import Solver, drop_idle_sibling_forms, free_symbols_of
@@ -30,7 +30,7 @@ def derive(arm: Arm) -> Derivation:
         raise StructureError(seven_joint_refusal(arm))
     target = resolve_target(arm)
     check_independent(arm)
-    check_given(arm, target)
+    check_rank(arm, target)
     setup = make_setup(arm, target)
     findings = [(strategy, strategy.recognise(arm, target)) for strategy in STRATEGIES]
     applied = [(s, f) for s, f in findings if f.applies]

@@ -123,28 +123,84 @@ def check_independent(arm: Arm) -> None:
 
 
 
-def check_given(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> None:
-    """Refuse a given joint that leaves joints the target cannot be reached with: the Jacobian of
-    the other joints (columns of the target's freedoms) must have full rank at some generic
-    readings, else a pose's change in some direction needs the given joint and a generic pose has
-    no solution for most of its readings."""
-    rows = {"pose": slice(0, 6), "point": slice(0, 3)}.get(target.kind)
-    if arm.given_joint is None or rows is None:
-        return
+RANK_TOLERANCE = 1e-9   # smallest over largest singular value of the target's Jacobian: below it, rank-deficient
+
+
+def target_jacobian(arm: Arm, chain: NumericChain, target: Target, readings) -> np.ndarray:
+    """The rates of what the target holds, one column per solved joint, at joint readings: for a
+    pose the tool point's velocity (over the reach) and the tool's angular velocity; for a point
+    the velocity; for a point and an angle the velocity and the turn rate about the target's axis;
+    for a point and a direction the velocity and the rate of the directed tool axis a (w x a).
+    Columns are per radian of a revolute joint and per reach of a slide, so they are comparable."""
+    length = arm.reach_scale()
+    jacobian = jacobian_of(chain, readings, length)
+    jacobian[:, ~chain.revolute] *= length
+    velocity, turn = jacobian[:3], jacobian[3:]
+    if target.kind == "pose":
+        rows = jacobian
+    elif target.kind == "point":
+        rows = velocity
+    elif target.kind == "point_and_angle":
+        rows = np.vstack([velocity, np.array([float(v) for v in target.axis]) @ turn])
+    else:
+        frames = chain.frames(np.asarray(readings, dtype=float)[None, :])[0]
+        a = (frames[-1] @ chain.tool)[:3, "xyz".index(target.tool_axis)]
+        rows = np.vstack([velocity, np.cross(turn.T, a).T])
+    return rows[:, [j.index - 1 for j in arm.solved_joints]]
+
+
+def check_rank(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> None:
+    """Refuse an arm whose solved joints cannot move the tool in every direction of its target: the
+    target's Jacobian (target_jacobian) rank-deficient at every one of ``samples`` generic readings.
+    A generic target then has no solution (only a thin set of targets is reached), and for a given
+    joint most of its readings leave the pose unreachable. The refusal names the joint that moves
+    nothing the target holds, or the direction the tool cannot move in."""
     chain = NumericChain(arm)
-    others = [j.index - 1 for j in arm.solved_joints]
-    best = 0.0
+    best, first = 0.0, None
     for k in range(samples):
-        readings = generic_readings(arm, seed + k)
-        jacobian = jacobian_of(chain, readings, arm.reach_scale())[rows, others]
-        values = np.linalg.svd(jacobian, compute_uv=False)
+        jacobian = target_jacobian(arm, chain, target, generic_readings(arm, seed + k))
+        left, values, right = np.linalg.svd(jacobian)
+        if first is None:
+            first = (left, values, right)
         best = max(best, float(values[-1] / values[0]))
-    if best < 1e-9:
+    if best >= RANK_TOLERANCE:
+        return
+    if arm.given_joint is not None:
         raise StructureError(f"arm '{arm.name}': with joint {arm.given_joint} given, the other joints cannot move the "
                              "tool in every direction of the target (their Jacobian is rank-deficient at every "
                              "sampled reading: a generic pose has no solution for most readings of the given "
                              "joint), so nothing was written. Choose another given joint; `ikgen describe` lists "
                              "the choices that work")
+    left, values, right = first
+    rank = int(np.sum(values > RANK_TOLERANCE * values[0]))
+    raise StructureError(
+        f"arm '{arm.name}': its joints cannot move the tool in every direction its target ({target.kind}) needs: the "
+        f"target's Jacobian has rank {rank}, not {len(values)}, at every one of {samples} sampled readings, so a "
+        f"generic target has no solution and nothing was written. {rank_witness(arm, target, left, right, rank)} "
+        "Check the DH table (a twist alpha of 0 where +-90 deg was meant makes two axes parallel; an offset of 0 "
+        "where one was meant can put the tool point on an axis); `ikgen describe` shows the joint axes at the "
+        "zero pose")
+
+
+def rank_witness(arm: Arm, target: Target, left: np.ndarray, right: np.ndarray, rank: int) -> str:
+    """One sentence on what the missing freedom is, at the first sampled reading: the joint whose
+    motion the target does not see, or the direction of motion (or turn) no joint rate gives."""
+    joints = arm.solved_joints
+    idle = right[-1]
+    if np.max(np.abs(idle)) > 1.0 - 1e-9:
+        joint = joints[int(np.argmax(np.abs(idle)))]
+        where = " (the tool point lies on its axis)" if target.kind == "point" and joint.revolute else ""
+        return f"Joint {joint.index} '{joint.name}' moves nothing the target holds{where}."
+    missing = left[:, rank]
+    missing = missing if missing[np.argmax(np.abs(missing))] > 0 else -missing
+    shown = lambda v: "(" + ", ".join(f"{x:.3f}" for x in v / np.linalg.norm(v)) + ")"
+    if target.kind == "pose" and np.linalg.norm(missing[3:]) < 1e-6:
+        return f"At the first sampled reading no joint rate moves the tool point along {shown(missing[:3])} (world)."
+    if target.kind == "pose" and np.linalg.norm(missing[:3]) < 1e-6:
+        return f"At the first sampled reading no joint rate turns the tool about {shown(missing[3:])} (world)."
+    if target.kind == "point":
+        return f"At the first sampled reading no joint rate moves the tool point along {shown(missing)} (world)."
+    return "At the first sampled reading one combination of the target's rates has no joint rate that gives it."
 
 
 def jacobian_of(chain: NumericChain, readings, length: float) -> np.ndarray:
