@@ -58,11 +58,12 @@ class Draw:
         return joint("p", a=a, alpha=alpha, d=0, theta=theta, direction=int(self.rng.choice([-1, 1])),
                      limits=[start, round(start + float(self.rng.uniform(0.3, 0.8)), 3)])
 
-    def frame(self, rotate: bool = True) -> dict | None:
-        """A [base] or [tool] table half the time: a translation, and (if ``rotate``) a rotation."""
+    def frame(self, rotate: bool = True, along_z: bool = False) -> dict | None:
+        """A [base] or [tool] table half the time: a translation (along z only when ``along_z``),
+        and (if ``rotate``) a rotation."""
         if self.rng.random() < 0.5:
             return None
-        table = {"translation": [self.signed(0.2, 0.4) for _ in range(3)]}
+        table = {"translation": [0, 0, self.signed(0.2, 0.4)] if along_z else [self.signed(0.2, 0.4) for _ in range(3)]}
         if rotate and self.rng.random() < 0.7:
             table["rotation"] = {"axes": "zyx", "frame": "moving",
                                  "angles": [round(float(a), 1) for a in self.rng.uniform(-180, 180, 3)]}
@@ -70,7 +71,7 @@ class Draw:
 
 
 def arm_of(draw: Draw, joints: list[dict], name: str, modified_ok: bool = True, tool_rotation: bool = True,
-           base_rotation: bool = True):
+           base_rotation: bool = True, tool_along_z: bool = False):
     """The arm of a standard DH table, moved over to the modified convention half the time."""
     convention = "standard"
     if modified_ok and draw.rng.random() < 0.5:
@@ -80,7 +81,7 @@ def arm_of(draw: Draw, joints: list[dict], name: str, modified_ok: bool = True, 
             shifted[i]["a"], shifted[i]["alpha"] = (joints[i - 1]["a"], joints[i - 1]["alpha"]) if i else (0, 0)
         joints = shifted
     return build_arm(joints, convention=convention, length_unit="m", angle_unit="deg",
-                     tool=draw.frame(tool_rotation), base=draw.frame(base_rotation), name=name)
+                     tool=draw.frame(tool_rotation, tool_along_z), base=draw.frame(base_rotation), name=name)
 
 
 # ----------------------------------------------------------------------------- six-axis arms
@@ -163,9 +164,12 @@ def scara_rrrp(draw: Draw):
 
 
 def point_direction_5r(draw: Draw):
+    """Axes 4 and 5 meeting, the tool point on the tool's z axis through that point (a tool moved
+    along z only): the wrist point on the tool axis. A tool point off that axis leaves the general 5R,
+    which is refused."""
     joints = [draw.revolute(0, 90, draw.length(0.05)), draw.revolute(draw.length(0.05), 0, 0),
               draw.revolute(draw.length(0, 0.1), 90, 0), draw.revolute(0, -90, draw.length(0.05)), draw.revolute(0, 90, 0)]
-    return arm_of(draw, joints, "drawn_5r", modified_ok=False, tool_rotation=False)
+    return arm_of(draw, joints, "drawn_5r", modified_ok=False, tool_rotation=False, tool_along_z=True)
 
 
 STRUCTURES = {
