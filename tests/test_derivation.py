@@ -644,12 +644,12 @@ def test_two_joints_making_the_same_motion_are_refused():
 
 
 def test_an_arm_whose_joints_cannot_move_the_tool_every_way_is_refused_with_the_reason(tmp_path, capsys):
-    """Two rank-deficient arms (facts of kinematics, common practice): a planar three-link arm
-    (axes 1 to 3 parallel to the base z axis) keeps a spherical wrist's centre at one height, so no
-    joint rate moves the tool point along z at a reading where the tool point is the wrist
-    centre; an RRR arm whose tool point lies on axis 3 cannot move that point with joint 3
-    (z3 x (p - o3) = 0). Both are refused before any derivation, naming that direction or joint,
-    and the command exits 3 writing nothing."""
+    """Rank-deficient arms (facts of kinematics, common practice): a planar three-link arm (axes 1
+    to 3 parallel to the base z axis) keeps a spherical wrist's centre at one height, so no joint
+    rate moves the tool point along z where the tool point is the wrist centre; an RRR arm whose
+    tool point lies on axis 3 cannot move that point with joint 3 (z3 x (p - o3) = 0), nor with any
+    joint when the point is where all three axes meet. All are refused before any derivation,
+    naming that direction or those joints, and the command exits 3 writing nothing."""
     from ikgen.cli import main
     planar = build_arm([joint("r", a=0.3, d=0.2), joint("r", a=0.4), joint("r", a=0.1, alpha=-90, d=0.05),
                         joint("r", alpha=90, d=0.3), joint("r", alpha=-90), joint("r")], name="planar_wrist")
@@ -663,6 +663,10 @@ def test_an_arm_whose_joints_cannot_move_the_tool_every_way_is_refused_with_the_
     with pytest.raises(StructureError, match=r"rank 2, not 3.*Joint 3 'j3' moves nothing the target holds "
                                              r"\(the tool point lies on its axis\)"):
         build(on_axis)
+    centre = build_arm([joint("r", alpha=-90), joint("r", alpha=90), joint("r")], name="point_at_centre")
+    with pytest.raises(StructureError, match=r"rank 0, not 3.*Joints 1 'j1', 2 'j2', 3 'j3' move nothing the "
+                                             r"target holds \(the tool point lies on their axes\)"):
+        build(centre)          # three axes through one point, the tool point there
     full = build_arm([joint("r", alpha=-90, d=0.3), joint("r", a=0.4), joint("r", a=0.05, alpha=-90),
                       joint("r", alpha=90, d=0.35), joint("r", alpha=-90), joint("r")], name="full_rank")
     assert derive(full).max_solutions == 8

@@ -161,8 +161,8 @@ def check_rank(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> Non
         jacobian = target_jacobian(arm, chain, target, generic_readings(arm, seed + k))
         left, values, right = np.linalg.svd(jacobian)
         if first is None:
-            first = (left, values, right)
-        best = max(best, float(values[-1] / values[0]))
+            first = (jacobian, left, values, right)
+        best = max(best, float(values[-1] / values[0]) if values[0] > 0.0 else 0.0)
     if best >= RANK_TOLERANCE:
         return
     if arm.given_joint is not None:
@@ -171,26 +171,33 @@ def check_rank(arm: Arm, target: Target, samples: int = 6, seed: int = 7) -> Non
                              "sampled reading: a generic pose has no solution for most readings of the given "
                              "joint), so nothing was written. Choose another given joint; `ikgen describe` lists "
                              "the choices that work")
-    left, values, right = first
+    jacobian, left, values, right = first
     rank = int(np.sum(values > RANK_TOLERANCE * values[0]))
     raise StructureError(
         f"arm '{arm.name}': its joints cannot move the tool in every direction its target ({target.kind}) needs: the "
         f"target's Jacobian has rank {rank}, not {len(values)}, at every one of {samples} sampled readings, so a "
-        f"generic target has no solution and nothing was written. {rank_witness(arm, target, left, right, rank)} "
+        f"generic target has no solution and nothing was written. {rank_witness(arm, target, jacobian, left, right, rank)} "
         "Check the DH table (a twist alpha of 0 where +-90 deg was meant makes two axes parallel; an offset of 0 "
         "where one was meant can put the tool point on an axis); `ikgen describe` shows the joint axes at the "
         "zero pose")
 
 
-def rank_witness(arm: Arm, target: Target, left: np.ndarray, right: np.ndarray, rank: int) -> str:
-    """One sentence on what the missing freedom is, at the first sampled reading: the joint whose
+def rank_witness(arm: Arm, target: Target, jacobian: np.ndarray, left: np.ndarray, right: np.ndarray,
+                 rank: int) -> str:
+    """One sentence on what the missing freedom is, at the first sampled reading: the joints whose
     motion the target does not see, or the direction of motion (or turn) no joint rate gives."""
     joints = arm.solved_joints
-    idle = right[-1]
-    if np.max(np.abs(idle)) > 1.0 - 1e-9:
-        joint = joints[int(np.argmax(np.abs(idle)))]
-        where = " (the tool point lies on its axis)" if target.kind == "point" and joint.revolute else ""
-        return f"Joint {joint.index} '{joint.name}' moves nothing the target holds{where}."
+    sizes = np.linalg.norm(jacobian, axis=0)
+    idle = [joints[k] for k in np.flatnonzero(sizes <= RANK_TOLERANCE * max(float(sizes.max()), 1.0))]
+    if not idle and np.max(np.abs(right[-1])) > 1.0 - 1e-9:
+        idle = [joints[int(np.argmax(np.abs(right[-1])))]]
+    if idle:
+        names = ", ".join(f"{j.index} '{j.name}'" for j in idle)
+        on_axis = target.kind == "point" and all(j.revolute for j in idle)
+        if len(idle) == 1:
+            return (f"Joint {names} moves nothing the target holds"
+                    + (" (the tool point lies on its axis)." if on_axis else "."))
+        return f"Joints {names} move nothing the target holds" + (" (the tool point lies on their axes)." if on_axis else ".")
     missing = left[:, rank]
     missing = missing if missing[np.argmax(np.abs(missing))] > 0 else -missing
     shown = lambda v: "(" + ", ".join(f"{x:.3f}" for x in v / np.linalg.norm(v)) + ")"
