@@ -24,7 +24,11 @@ same with -fno-math-errno (the compiler may then use the FPU's vsqrt.f32 instead
   8 times between two readings, less the same loop around an empty function with the solver's
   signature, so one solve is resolved to about 5 instructions. Instructions, not cycles: QEMU
   models no pipeline, wait states or FPU latencies (a Cortex-M4 runs most instructions in one
-  cycle, loads, divisions and square roots in more).
+  cycle, loads, divisions and square roots in more);
+- the same instruction count for the arm's double build (generated/<arm>/<arm>_ik.c, the same
+  poses in double, the project's flags): the Cortex-M4F's FPU is single precision only, so the
+  double build's arithmetic runs in libgcc's software routines and newlib's double maths; the
+  float/double ratio is the goal "float at least as fast as double" on this core, in instructions.
 
 QEMU 7.2 as packaged by Debian is built with TCG plugin support but ships no plugins (nor the
 header to build one), so instruction counting uses -icount instead.
@@ -79,13 +83,17 @@ def arm_files(examples: Path) -> dict[str, Path]:
     return out
 
 
-def write_poses(arm_path: Path, count: int, seed: int, path: Path) -> None:
-    """``count`` seeded poses (random readings within the limits, ikgen's forward kinematics) as C."""
+def write_poses(arm_path: Path, count: int, seed: int, path: Path, real: str = "float") -> None:
+    """``count`` seeded poses (random readings within the limits, ikgen's forward kinematics) as C,
+    in ``real`` ("float", or "double" for the double build)."""
     arm = load_arm(arm_path)
     readings = random_readings(arm, count, np.random.default_rng(seed))
     poses = NumericChain(arm).poses(readings)
-    rows = ["    { " + ", ".join(f"{float(v):.8e}f" for v in pose.reshape(-1)) + " }," for pose in poses]
-    path.write_text("const float bench_poses[][16] = {\n" + "\n".join(rows) + "\n};\n"
+    if real == "float":
+        rows = ["    { " + ", ".join(f"{float(v):.8e}f" for v in pose.reshape(-1)) + " }," for pose in poses]
+    else:
+        rows = ["    { " + ", ".join(f"{float(v):.17e}" for v in pose.reshape(-1)) + " }," for pose in poses]
+    path.write_text(f"const {real} bench_poses[][16] = {{\n" + "\n".join(rows) + "\n};\n"
                     f"const int bench_pose_count = {count};\n", encoding="utf-8")
 
 
@@ -263,9 +271,10 @@ def stack_figures(tools, solver, extra: tuple, elf: Path, work: Path) -> dict:
 
 # ------------------------------------------------------------------------------ emulation
 
-def emulated_figures(tools, solver, extra: tuple, poses_c: Path, work: Path) -> tuple[dict, Path]:
+def emulated_figures(tools, solver, extra: tuple, poses_c: Path, work: Path,
+                     defines: tuple = ()) -> tuple[dict, Path]:
     elf = firmware.link(tools, [solver.source, firmware.HERE / "bench_main.c", poses_c], work / "bench.elf",
-                        includes=(solver.folder,), defines=solver_defines(solver), extra=extra)
+                        includes=(solver.folder,), defines=solver_defines(solver) + defines, extra=extra)
     run = firmware.emulate(tools, elf, count_instructions=True)
     if run.status != 0:
         raise BenchError(f"{elf.name} for {solver.prefix} exited {run.status}:\n{run.output}")
@@ -300,6 +309,13 @@ def measure(tools, solver, arm_path: Path, poses: int, seed: int) -> list[dict]:
             calls = firmware.run([tools.nm, "-u", work / "solver.o"]).split()
             rows.append(dict(arm=solver.stem, variant=variant, sizes=sizes, flash=flash, ram=ram, stack=stack,
                              counts=counts, calls=sorted(c for c in calls if c != "U")))
+        # the double build of the same arm on the same poses (in double), the project's flags: the
+        # FPU has no double precision, so its arithmetic runs in libgcc's software routines
+        double = firmware.FloatSolver(stem=solver.stem, folder=solver.folder, prefix=solver.prefix[: -len("_f32")])
+        poses_double = work / "poses_double.c"
+        write_poses(arm_path, poses, seed, poses_double, real="double")
+        counts, _ = emulated_figures(tools, double, (), poses_double, work, defines=("IK_REAL=double",))
+        rows[0]["double"] = counts
     return rows
 
 
@@ -322,6 +338,16 @@ def print_table(rows: list[dict]) -> None:
               f"{k['compared'] - len(k['disagree'])} of {k['compared']} solver functions")
         for line in k["notes"] + k["disagree"]:
             print(f"  note: {line}")
+    print("\nfloat and double builds (-Os), instructions per full solve on the same poses:")
+    print(f"{'arm':<11} {'float':>7} {'double':>7} {'float/double':>12}")
+    ratios = []
+    for r in rows:
+        if "double" in r:
+            single, double = r["counts"]["mean"], r["double"]["mean"]
+            ratios.append(single / double)
+            print(f"{r['arm']:<11} {single:7.0f} {double:7.0f} {single / double:11.3f}x")
+    print(f"Float build at least as fast as the double build on the Cortex-M4F (instructions): "
+          f"{'met' if max(ratios) <= 1.0 else 'NOT met'} (worst {max(ratios):.3f}x).")
     largest = max(r["sizes"][".text"] for r in rows)
     print(f"\nLargest .text of a solver object: {largest} bytes; goal at most {TEXT_GOAL} bytes (8 KiB): "
           f"{'met' if largest <= TEXT_GOAL else 'NOT met'}.")
