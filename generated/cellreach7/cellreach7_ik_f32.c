@@ -335,7 +335,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     c2 = (kc2_0*v1x + kc2_1) / dt2;
                     s2 = (ks2_2*v1x + ks2_3) / dt2;
                     free2 = 0;
-                    wk2 = 0.001f;
+                    wk2 = 10.0f;
                 }
             }
             if (free2) {
@@ -373,7 +373,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     c2 = (-g17_13*g17_14*t9_1_9 + 26569728.0f*g17_13*t9_1_19 + 29640960.0f*g17_13*t9_1_3 - g17_14*t9_1_20 - g17_14*t9_1_8 - g17_33*g17_34*t9_1_9 + 71424.0f*g17_33*t9_1_22 - 744.0f*g17_34*t9_1_22 + 192.0f*r33*t9_1_1 + t9_1_10*t9_1_11 + t9_1_11*t9_1_15 + t9_1_11*t9_1_18 - t9_1_14*t9_1_23 + t9_1_14 + t9_1_17*t9_1_23 - t9_1_17 + t9_1_4*v1y + t9_1_5*v1y + t9_1_6*v1y + t9_1_7*v1y + 310609.0f*v1y) / dt2;
                     s2 = (-26569728.0f*c3*c4*r33*s4 - 29640960.0f*c3*r33*s4 + 192.0f*g17_13*g17_14*v1x + 26569728.0f*g17_13*t9_1_12*t9_1_23 - g17_13*t9_1_13 + 276768.0f*g17_14*t9_1_12 - g17_14*t9_1_16*t9_1_23 - 192.0f*g17_24*r33*v1x - g17_24*t9_1_20 - g17_24*t9_1_8 + 192.0f*g17_33*g17_34*v1x - 71424.0f*g17_33*t9_1_21*v1x + 744.0f*g17_34*s3*s4*v1x - t9_1_10*t9_1_24 - t9_1_15*t9_1_24 - t9_1_18*t9_1_24 - t9_1_4*v1x - t9_1_5*v1x - t9_1_6*v1x - t9_1_7*v1x - 310609.0f*v1x) / dt2;
                     free2 = 0;
-                    wk2 = 1.0f;
+                    wk2 = 10000.0f;
                 }
             }
             if (free2) {
@@ -414,7 +414,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     c2 = (g17_12*t9_2_8 + g17_34*t9_2_15*t9_2_21 - t9_2_0*t9_2_10 + t9_2_0*t9_2_17 - t9_2_0*t9_2_5 + t9_2_1*t9_2_10 - t9_2_1*t9_2_17 + t9_2_1*t9_2_5 + t9_2_11*t9_2_12 - t9_2_11*t9_2_7 - t9_2_12*t9_2_14 - t9_2_12*t9_2_22 + t9_2_14*t9_2_7 - t9_2_18*t9_2_19 + t9_2_18*t9_2_24 - t9_2_21*t9_2_23 + t9_2_22*t9_2_7 - t9_2_6*t9_2_7) / dt2;
                     s2 = (-r32*t9_2_8 + t9_2_0*t9_2_25 + t9_2_0*t9_2_26 + t9_2_0*t9_2_27 - t9_2_1*t9_2_25 - t9_2_1*t9_2_26 - t9_2_1*t9_2_27 - t9_2_11*t9_2_18 + t9_2_11*t9_2_20 - t9_2_12*t9_2_19 + t9_2_12*t9_2_24 + t9_2_14*t9_2_18 - t9_2_14*t9_2_20 + t9_2_18*t9_2_22 - t9_2_18*t9_2_6 + t9_2_19*t9_2_7 - t9_2_20*t9_2_22 - t9_2_24*t9_2_7) / dt2;
                     free2 = 0;
-                    wk2 = 0.001f;
+                    wk2 = 10.0f;
                 }
             }
             if (!free2) {
@@ -482,7 +482,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     c5 = g47_13;
                     s5 = g37_33;
                     free5 = 0;
-                    wk5 = 1e-08f;
+                    wk5 = 0.0001f;
                 }
             }
             (void)dt5;   /* a form tested through its root does not read it */
@@ -506,7 +506,7 @@ static int closed_form(const float pose[16], float given, const float *current,
                     s7 = g47_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free7 = 0;
-                    wk7 = 1e-08f;
+                    wk7 = 0.0001f;
                 }
             }
             if (free7) {

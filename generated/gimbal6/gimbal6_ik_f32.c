@@ -535,7 +535,7 @@ static int closed_form(const float pose[16], const float *current,
                 c5 = (0.25f*c4*e1x + 0.0125f*c4 + 0.2f*e1x + kc5_0*s4 + kc5_1) / dt5;
                 s5 = (c4*ks5_2 - 0.125f*e1x*s4 - 0.0433012702f*e1x + ks5_3 - 0.00625f*s4) / dt5;
                 free5 = 0;
-                wk5 = 1e-09f;
+                wk5 = 1e-05f;
             }
         }
         if (!free5) {
@@ -615,7 +615,7 @@ static int closed_form(const float pose[16], const float *current,
                 c1 = -root2*(0.5f*g03_12 + 0.866025404f*g03_13);
                 s1 = -root2*(0.5f*g03_22 + 0.866025404f*g03_23);
                 free1 = 0;
-                wk1 = 1e-08f;
+                wk1 = 0.0001f;
             }
         }
         if (!free1 && fabsf(c1 * c1 + s1 * s1 - dt1 * dt1) > 0.005f * (dt1 * dt1)) {
@@ -641,7 +641,7 @@ static int closed_form(const float pose[16], const float *current,
                 c3 = 0.866025404f*g03_31*root2;
                 s3 = -root2*(-0.5f*ec2 + g03_32);
                 free3 = 0;
-                wk3 = 1e-08f;
+                wk3 = 0.0001f;
             }
         }
         if (free3) {

@@ -329,7 +329,7 @@ static int closed_form(const float pose[16], const float *current,
                     c2 = (kc2_0*v1x + kc2_1) * iq2;
                     s2 = (ks2_2*v1x + ks2_3) * iq2;
                     free2 = 0;
-                    wk2 = 0.001f;
+                    wk2 = 10.0f;
                 }
             }
             if (free2) {
@@ -363,7 +363,7 @@ static int closed_form(const float pose[16], const float *current,
                     c2 = (168200.0f*c3*g16_24*s3 + 185600.0f*c3*g16_24 + 15776000.0f*c3*r33 + 170.0f*g16_13*g16_14*v1x + 14297000.0f*g16_13*t7_1_14 - 14297000.0f*g16_13 + 168200.0f*g16_14 - 170.0f*g16_24*r33*v1x + 170.0f*g16_33*g16_34*v1x - t7_1_10*v1x - t7_1_11*v1x - t7_1_12*t7_1_13 - t7_1_14*t7_1_17 - t7_1_15*t7_1_16 - t7_1_16*t7_1_18 - t7_1_16*t7_1_19 - t7_1_8*v1x - t7_1_9*v1x - 186500.0f*v1x) / dt2;
                     s2 = (14297000.0f*c3*g16_13*s3 + 15776000.0f*c3*g16_13 - 185600.0f*c3*g16_14 + 170.0f*g16_13*g16_14*v1y - 170.0f*g16_24*r33*v1y - 168200.0f*g16_24*t7_1_14 + 168200.0f*g16_24 + 170.0f*g16_33*g16_34*v1y - 14297000.0f*r33*t7_1_14 - t7_1_10*v1y - t7_1_11*v1y - t7_1_12 - t7_1_13*t7_1_17 - t7_1_15*t7_1_20 - t7_1_18*t7_1_20 - t7_1_19*t7_1_20 - t7_1_8*v1y - t7_1_9*v1y - 186500.0f*v1y) / dt2;
                     free2 = 0;
-                    wk2 = 1.0f;
+                    wk2 = 10000.0f;
                 }
             }
             if (!free2) {
@@ -421,7 +421,7 @@ static int closed_form(const float pose[16], const float *current,
                     c4 = g36_13;
                     s4 = g16_33;
                     free4 = 0;
-                    wk4 = 1e-08f;
+                    wk4 = 0.0001f;
                 }
             }
             (void)dt4;   /* a form tested through its root does not read it */
@@ -445,7 +445,7 @@ static int closed_form(const float pose[16], const float *current,
                     s6 = g36_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
-                    wk6 = 1e-08f;
+                    wk6 = 0.0001f;
                 }
             }
             if (free6) {

@@ -346,7 +346,7 @@ static int closed_form(const float pose[16], const float *current,
                     c4 = g26_13;
                     s4 = g16_33;
                     free4 = 0;
-                    wk4 = 1e-08f;
+                    wk4 = 0.0001f;
                 }
             }
             (void)dt4;   /* a form tested through its root does not read it */
@@ -370,7 +370,7 @@ static int closed_form(const float pose[16], const float *current,
                     s6 = g26_32;
                     /* no consistency test: cos_num^2 + sin_num^2 = det^2 holds by construction (this form) */
                     free6 = 0;
-                    wk6 = 1e-08f;
+                    wk6 = 0.0001f;
                 }
             }
             if (free6) {

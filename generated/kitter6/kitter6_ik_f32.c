@@ -310,7 +310,7 @@ static int closed_form(const float pose[16], const float *current,
                     c6 = (g16_21*s5) / dt6;
                     s6 = (-g16_22*s5) / dt6;
                     free6 = 0;
-                    wk6 = 1e-08f;
+                    wk6 = 0.0001f;
                 }
             }
             if (!free6) {
@@ -415,7 +415,7 @@ static int closed_form(const float pose[16], const float *current,
                         c2 = (c3*kc2_0 + kc2_1*s3 + kc2_2) / dt2;
                         s2 = (c3*kc2_1 - kc2_0*s3 + ks2_3) / dt2;
                         free2 = 0;
-                        wk2 = 0.001f;
+                        wk2 = 10.0f;
                     }
                 }
                 if (!free2 && fabsf(c2 * c2 + s2 * s2 - 1.0f) > 0.005f) {

@@ -184,11 +184,22 @@ class FormPlan:
         """Below this |det| (1e-8 of its typical size) a pair whose (cos, sin) come out inconsistent
         is ill-conditioned rather than unreachable: rounding near a singular pose (the square root
         of a radicand that is 0 up to rounding) made the determinant tiny but not 0, and the unknown
-        is treated as free."""
-        return 0.0 if self.constant_det else self.threshold * WEAK_FACTOR
+        is treated as free. The double build's figure; weak_for gives each scalar type's."""
+        return self.weak_for("double")
+
+    def weak_for(self, real: str) -> float:
+        """``weak`` for a scalar type: WEAK_FACTOR[real] times the typical size's 1e-20."""
+        return 0.0 if self.constant_det else self.threshold * WEAK_FACTOR[real]
 
 
-WEAK_FACTOR = 1e12
+# 1e-8 of a determinant's typical size in double. In float, rounding near a singular pose leaves far
+# more: a determinant that is a radicand (det = -root^2, a wrist pair after its joint's root) is that
+# radicand's float noise, up to the float reach band (2 * FLOAT_GUARD_TOLERANCE = 6e-6 of the
+# radicand's scale, ikgen/backends/c.py), and with 1e-8 such a pair came out inconsistent and its
+# branch was dropped: engraver5's float build lost the branch nearest its wrist's fold (joint 5 near
+# 0) within 0.04 deg of it (tests/test_c_backend_float.py). 1e-4 keeps a factor of about 15 over
+# that band.
+WEAK_FACTOR = {"double": 1e12, "float": 1e16}
 PI = math.pi                    # the double nearest pi: atan2's results lie in [-PI, PI]
 
 
