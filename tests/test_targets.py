@@ -28,6 +28,7 @@ from ikgen.backends import python as python_backend
 from ikgen.engine import derive
 from ikgen.generate import load_module
 from ikgen.kinematics import NumericChain
+from ikgen.verify import random_readings
 
 _CACHE: dict[str, tuple] = {}
 
@@ -341,6 +342,33 @@ def test_a_roll_the_five_axis_arm_cannot_take_is_not_realisable_from_a_full_pose
         # the natural call takes no roll: the rolled pose's point and direction are served
         found = solver.inverse_point_direction(list(rolled[:3, 3]), list(rolled[:3, 2]), limits="ignore")
         assert any(np.abs((np.array(q) - [20, 40, -30, 50, 60] + 180) % 360 - 180).max() < 1e-6 for q, *_ in found)
+
+
+def test_a_full_pose_with_the_wrist_folded_straight_is_realisable_at_any_roll():
+    """engraver5 with joint 5 at 0: axis 4 then runs along the tool axis through the tool point
+    (its DH table: a4 = d5 = 0, the tool along z5), so the point and the direction leave joint 4 free
+    and only the pose's roll fixes it. A full pose there is realisable whatever joint 4 reads; it was
+    not_realisable unless the caller's current reading of joint 4 happened to match (the free joint
+    took that reading and the roll check then failed). Reference: ikgen's forward kinematics (the DH
+    link transform, Craig, 3rd ed., sec. 3.4; tests/test_kinematics.py) and the source readings."""
+    module, csolver, arm = generated("engraver5", demo_arm("engraver5"))
+    chain = NumericChain(arm)
+    rng = np.random.default_rng(2305)
+    for _ in range(12):
+        q = random_readings(arm, 1, rng)[0]
+        q[4] = 0.0
+        pose = chain.pose(q)
+        for solver in (module, csolver):
+            found, status = solver.inverse(pose.tolist(), limits="ignore", with_status=True)
+            assert status == "ok" and found, (q.tolist(), status)
+            for s in found:
+                again = chain.pose(np.array(s[0], dtype=float))
+                # a singular pose (joint 5's root is 0): verify's singular-pose bound
+                assert np.abs(again[:3, 3] - pose[:3, 3]).max() <= 1e-6 * arm.reach_scale()
+                assert np.abs(again[:3, :3] - pose[:3, :3]).max() <= 1e-6
+            # the source's own branch is among them, joint 4 and all (joint 5 at its fold is fixed only
+            # to about the square root of rounding: a few 1e-6 deg)
+            assert any(np.abs((np.array(s[0]) - q + 180.0) % 360.0 - 180.0).max() < 1e-4 for s in found), q.tolist()
 
 
 @pytest.mark.parametrize("stem", ["mast3", "boardpick4", "engraver5"])

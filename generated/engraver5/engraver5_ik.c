@@ -644,6 +644,66 @@ static double roll_allowance(const engraver5_ik_solution *solution)
     return ENGRAVER5_IK_ROLL_TOLERANCE + ENGRAVER5_IK_ROLL_GAIN / (m > ENGRAVER5_IK_ROLL_FLOOR ? m : ENGRAVER5_IK_ROLL_FLOOR);
 }
 
+/* A singular solution whose roll is off the pose's, with one joint turned by that gap (as the Python
+ * solver's _turn_to_roll: where a joint's axis is the tool axis through the tool point, the point and
+ * the direction leave it free and only the roll fixes it). Each revolute joint is turned both ways by
+ * the signed angle from the solution's tool frame to the pose's about the tool axis; a candidate
+ * counts when its point and direction stay within the verification's round-trip bound (1e-9 +
+ * 1e-14 / m, or 1e-9 + 10 max(m, 1e-8) for m below 1e-6; of the reach for the point; m the
+ * smallest conditioning measure; in float at least ROLL_TOLERANCE) and its roll within
+ * roll_allowance. 1 when one does (written into `solution`), else 0. */
+static int turn_to_roll(engraver5_ik_solution *solution, const double pose[16])
+{
+    static const int REVOLUTE[] = { 0, 1, 2, 3, 4 };
+    static const double SCALE[ENGRAVER5_IK_JOINTS] = { 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295 };
+    double f[16], g[16], t[ENGRAVER5_IK_JOINTS];
+    engraver5_ik_forward(solution->joints, f);
+    const double *a = pose + 2;
+    const double x0 = f[0], x1 = f[4 + 0], x2 = f[8 + 0];
+    const double y0 = pose[0], y1 = pose[4 + 0], y2 = pose[8 + 0];
+    const double turn = engraver5_ik_atan2((x1 * y2 - x2 * y1) * a[0] + (x2 * y0 - x0 * y2) * a[4] + (x0 * y1 - x1 * y0) * a[8],
+                                  x0 * y0 + x1 * y1 + x2 * y2);
+    double m = 1.0;
+    for (int k = 0; k < ENGRAVER5_IK_CONDITIONS; ++k) {
+        if (k == 0 || solution->conditioning[k] < m) {
+            m = solution->conditioning[k];
+        }
+    }
+    double bound = 1.0000000000000001e-09 + (m >= 9.9999999999999995e-07 ? 1e-14 / m : 10.0 * (m > 1e-08 ? m : 1e-08));
+    bound = bound > 0.0 ? bound : 0.0;   /* the scalar type's own floor */
+    const double allowance = roll_allowance(solution);
+    for (unsigned r = 0; r < sizeof REVOLUTE / sizeof REVOLUTE[0]; ++r) {
+        const int j = REVOLUTE[r];
+        for (int sense = 1; sense >= -1; sense -= 2) {
+            for (int k = 0; k < ENGRAVER5_IK_JOINTS; ++k) {
+                t[k] = solution->joints[k];
+            }
+            const double half = 3.1415926535897931 / SCALE[j];
+            const double v = t[j] + (double)sense * turn / SCALE[j];
+            t[j] = v > half ? v - 2.0 * half : (v <= -half ? v + 2.0 * half : v);
+            engraver5_ik_forward(t, g);
+            int fits = 1;
+            for (int i = 0; i < 3; ++i) {
+                if (fabs(g[4 * i + 3] - pose[4 * i + 3]) > bound * 630.0 ||
+                    fabs(g[4 * i + 2] - pose[4 * i + 2]) > bound) {
+                    fits = 0;
+                }
+            }
+            if (!fits || roll_gap(t, pose) > allowance) {
+                continue;
+            }
+            int inside = 1;
+            for (int k = 0; k < ENGRAVER5_IK_JOINTS; ++k) {
+                solution->joints[k] = t[k];
+                inside &= in_limits(t[k], k);
+            }
+            solution->within_limits = inside;
+            return 1;
+        }
+    }
+    return 0;
+}
+
 /* Every solution of a pose; `check` applies the test that the pose is one this arm can take in
  * kind (tilt or roll), which the natural inputs pass by construction. */
 static int solve(const double pose_in[16], const double *current, engraver5_ik_limits limits,
@@ -661,7 +721,8 @@ static int solve(const double pose_in[16], const double *current, engraver5_ik_l
     if (check && found > 0) {
         int kept = 0;
         for (int i = 0; i < found; ++i) {
-            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i])) {
+            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i]) ||
+                (raw[i].singular && turn_to_roll(&raw[i], pose))) {
                 raw[kept++] = raw[i];
             }
         }

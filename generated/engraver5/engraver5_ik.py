@@ -244,6 +244,44 @@ def _roll_allowance(conditioning):
     m = min(conditioning) if conditioning else 1.0
     return ROLL_TOLERANCE + ROLL_GAIN / (m if m > ROLL_FLOOR else ROLL_FLOOR)
 
+def _turn_to_roll(solution, pose):
+    """A singular solution whose roll is off the pose's, with one joint turned by that gap, or None.
+    Where a joint's axis is the tool axis through the tool point (a wrist folded straight), the point
+    and the direction leave that joint free and only the pose's roll fixes it. Each revolute joint is
+    turned both ways by the signed angle from the solution's tool frame to the pose's about the tool
+    axis; a candidate counts when its forward kinematics puts the point and the direction where the
+    pose has them, within the verification's round-trip bound (1e-9 + 1e-14 / m, or
+    1e-9 + 10 max(m, 1e-8) for m below 1e-6; of the reach for the point; m the smallest conditioning
+    measure), and its roll within _roll_allowance."""
+    q, config, singular, conditioning, inside = solution
+    f = forward(q)
+    a = (pose[0][COLUMN], pose[1][COLUMN], pose[2][COLUMN])
+    x = (f[0][OTHER], f[1][OTHER], f[2][OTHER])
+    y = (pose[0][OTHER], pose[1][OTHER], pose[2][OTHER])
+    turn = atan2((x[1] * y[2] - x[2] * y[1]) * a[0] + (x[2] * y[0] - x[0] * y[2]) * a[1] + (x[0] * y[1] - x[1] * y[0]) * a[2],
+                 x[0] * y[0] + x[1] * y[1] + x[2] * y[2])
+    m = min(conditioning) if conditioning else 1.0
+    bound = 1e-9 + (1e-14 / m if m >= 1e-6 else 10.0 * (m if m > 1e-8 else 1e-8))
+    allowance = _roll_allowance(conditioning)
+    for j in _REVOLUTE:
+        for sense in (1.0, -1.0):
+            t = list(q)
+            v = q[j] + sense * turn / _SCALE[j]
+            half = _PI / _SCALE[j]
+            t[j] = v - 2.0 * half if v > half else (v + 2.0 * half if v <= -half else v)
+            g = forward(t)
+            if max(abs(g[i][3] - pose[i][3]) for i in range(3)) > bound * REACH_SCALE or \
+                    max(abs(g[i][COLUMN] - pose[i][COLUMN]) for i in range(3)) > bound or _roll_gap(t, pose) > allowance:
+                continue
+            t = tuple(t)
+            return Solution((t, config, singular, conditioning, t in _expand(t)))
+    return None
+
+COLUMN, OTHER = 2, 0   # the tool axis's column, and another of the rotation's
+REACH_SCALE = 630.0   # the arm's reach scale (length unit): the point's bound above is relative to it
+_REVOLUTE = (0, 1, 2, 3, 4)   # the revolute joints (0-based)
+_SCALE = (0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295, 0.017453292519943295)   # radians per reading unit, per joint
+
 _LIMIT_MODES = ("drop", "flag", "ignore")
 # every configuration as a prebuilt tuple, nested by label in the order the solver knows them
 _CONFIGS = (
@@ -294,7 +332,15 @@ def _solve(pose, current, limits, check):
         large = biggest > SAFE_ENTRY
     solutions = _closed_form(pose, current, large)
     if check and solutions:
-        solutions = [s for s in solutions if _roll_gap(s[0], pose) <= _roll_allowance(s[3])]
+        kept = []
+        for s in solutions:
+            if _roll_gap(s[0], pose) <= _roll_allowance(s[3]):
+                kept.append(s)
+            elif s[2]:                  # singular: a joint the point and direction leave free may fit the roll
+                turned = _turn_to_roll(s, pose)
+                if turned is not None:
+                    kept.append(turned)
+        solutions = kept
         if not solutions:
             return [], "not_realisable"
     if limits == "ignore":

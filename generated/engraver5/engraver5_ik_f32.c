@@ -628,6 +628,66 @@ static float roll_allowance(const engraver5_ik_f32_solution *solution)
     return ENGRAVER5_IK_F32_ROLL_TOLERANCE + ENGRAVER5_IK_F32_ROLL_GAIN / (m > ENGRAVER5_IK_F32_ROLL_FLOOR ? m : ENGRAVER5_IK_F32_ROLL_FLOOR);
 }
 
+/* A singular solution whose roll is off the pose's, with one joint turned by that gap (as the Python
+ * solver's _turn_to_roll: where a joint's axis is the tool axis through the tool point, the point and
+ * the direction leave it free and only the roll fixes it). Each revolute joint is turned both ways by
+ * the signed angle from the solution's tool frame to the pose's about the tool axis; a candidate
+ * counts when its point and direction stay within the verification's round-trip bound (1e-9 +
+ * 1e-14 / m, or 1e-9 + 10 max(m, 1e-8) for m below 1e-6; of the reach for the point; m the
+ * smallest conditioning measure; in float at least ROLL_TOLERANCE) and its roll within
+ * roll_allowance. 1 when one does (written into `solution`), else 0. */
+static int turn_to_roll(engraver5_ik_f32_solution *solution, const float pose[16])
+{
+    static const int REVOLUTE[] = { 0, 1, 2, 3, 4 };
+    static const float SCALE[ENGRAVER5_IK_F32_JOINTS] = { 0.0174532925f, 0.0174532925f, 0.0174532925f, 0.0174532925f, 0.0174532925f };
+    float f[16], g[16], t[ENGRAVER5_IK_F32_JOINTS];
+    engraver5_ik_f32_forward(solution->joints, f);
+    const float *a = pose + 2;
+    const float x0 = f[0], x1 = f[4 + 0], x2 = f[8 + 0];
+    const float y0 = pose[0], y1 = pose[4 + 0], y2 = pose[8 + 0];
+    const float turn = engraver5_ik_f32_atan2((x1 * y2 - x2 * y1) * a[0] + (x2 * y0 - x0 * y2) * a[4] + (x0 * y1 - x1 * y0) * a[8],
+                                  x0 * y0 + x1 * y1 + x2 * y2);
+    float m = 1.0f;
+    for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
+        if (k == 0 || solution->conditioning[k] < m) {
+            m = solution->conditioning[k];
+        }
+    }
+    float bound = 1e-09f + (m >= 1e-06f ? 1e-14f / m : 10.0f * (m > 1e-08f ? m : 1e-08f));
+    bound = bound > 0.0001f ? bound : 0.0001f;   /* the scalar type's own floor */
+    const float allowance = roll_allowance(solution);
+    for (unsigned r = 0; r < sizeof REVOLUTE / sizeof REVOLUTE[0]; ++r) {
+        const int j = REVOLUTE[r];
+        for (int sense = 1; sense >= -1; sense -= 2) {
+            for (int k = 0; k < ENGRAVER5_IK_F32_JOINTS; ++k) {
+                t[k] = solution->joints[k];
+            }
+            const float half = 3.14159265f / SCALE[j];
+            const float v = t[j] + (float)sense * turn / SCALE[j];
+            t[j] = v > half ? v - 2.0f * half : (v <= -half ? v + 2.0f * half : v);
+            engraver5_ik_f32_forward(t, g);
+            int fits = 1;
+            for (int i = 0; i < 3; ++i) {
+                if (fabsf(g[4 * i + 3] - pose[4 * i + 3]) > bound * 630.0f ||
+                    fabsf(g[4 * i + 2] - pose[4 * i + 2]) > bound) {
+                    fits = 0;
+                }
+            }
+            if (!fits || roll_gap(t, pose) > allowance) {
+                continue;
+            }
+            int inside = 1;
+            for (int k = 0; k < ENGRAVER5_IK_F32_JOINTS; ++k) {
+                solution->joints[k] = t[k];
+                inside &= in_limits(t[k], k);
+            }
+            solution->within_limits = inside;
+            return 1;
+        }
+    }
+    return 0;
+}
+
 /* Every solution of a pose; `check` applies the test that the pose is one this arm can take in
  * kind (tilt or roll), which the natural inputs pass by construction. */
 static int solve(const float pose_in[16], const float *current, engraver5_ik_f32_limits limits,
@@ -645,7 +705,8 @@ static int solve(const float pose_in[16], const float *current, engraver5_ik_f32
     if (check && found > 0) {
         int kept = 0;
         for (int i = 0; i < found; ++i) {
-            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i])) {
+            if (roll_gap(raw[i].joints, pose) <= roll_allowance(&raw[i]) ||
+                (raw[i].singular && turn_to_roll(&raw[i], pose))) {
                 raw[kept++] = raw[i];
             }
         }

@@ -96,6 +96,8 @@ def render(arm: Arm, derivation: Derivation) -> str:
         joint_vars=", ".join(f"q{j.index}" for j in arm.joints),
         early_parts=early_parts(arm, plan, labels), target=common.target_plan(arm, derivation),
         angle_scale=repr(float(arm.angle_scale)), tolerances=tolerances("double"),
+        reach=repr(float(arm.reach_scale())), revolute=repr(tuple(j.index - 1 for j in arm.joints if j.revolute)),
+        scale=repr(tuple(float(arm.angle_scale) if j.revolute else 1.0 for j in arm.joints)),
         target_api="\n        ".join(TARGET_API[derivation.target.kind if derivation.target else "pose"]),
         given=common.given_plan(arm), ga=", given" if arm.given_joint else "",
         safe_entry=bounds.safe_entry(plan, "double"), label_table=labels,
