@@ -631,9 +631,8 @@ static double roll_gap(const double joints[ENGRAVER5_IK_JOINTS], const double po
     return gap;
 }
 
-/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
- * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
-static double roll_allowance(const engraver5_ik_solution *solution)
+/* A solution's smallest conditioning measure. */
+static double smallest_measure(const engraver5_ik_solution *solution)
 {
     double m = 1.0;
     for (int k = 0; k < ENGRAVER5_IK_CONDITIONS; ++k) {
@@ -641,6 +640,14 @@ static double roll_allowance(const engraver5_ik_solution *solution)
             m = solution->conditioning[k];
         }
     }
+    return m;
+}
+
+/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
+ * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
+static double roll_allowance(const engraver5_ik_solution *solution)
+{
+    const double m = smallest_measure(solution);
     return ENGRAVER5_IK_ROLL_TOLERANCE + ENGRAVER5_IK_ROLL_GAIN / (m > ENGRAVER5_IK_ROLL_FLOOR ? m : ENGRAVER5_IK_ROLL_FLOOR);
 }
 
@@ -663,12 +670,7 @@ static int turn_to_roll(engraver5_ik_solution *solution, const double pose[16])
     const double y0 = pose[0], y1 = pose[4 + 0], y2 = pose[8 + 0];
     const double turn = engraver5_ik_atan2((x1 * y2 - x2 * y1) * a[0] + (x2 * y0 - x0 * y2) * a[4] + (x0 * y1 - x1 * y0) * a[8],
                                   x0 * y0 + x1 * y1 + x2 * y2);
-    double m = 1.0;
-    for (int k = 0; k < ENGRAVER5_IK_CONDITIONS; ++k) {
-        if (k == 0 || solution->conditioning[k] < m) {
-            m = solution->conditioning[k];
-        }
-    }
+    const double m = smallest_measure(solution);
     double bound = 1.0000000000000001e-09 + (m >= 9.9999999999999995e-07 ? 1e-14 / m : 10.0 * (m > 1e-08 ? m : 1e-08));
     bound = bound > 0.0 ? bound : 0.0;   /* the scalar type's own floor */
     const double allowance = roll_allowance(solution);

@@ -615,9 +615,8 @@ static float roll_gap(const float joints[ENGRAVER5_IK_F32_JOINTS], const float p
     return gap;
 }
 
-/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
- * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
-static float roll_allowance(const engraver5_ik_f32_solution *solution)
+/* A solution's smallest conditioning measure. */
+static float smallest_measure(const engraver5_ik_f32_solution *solution)
 {
     float m = 1.0f;
     for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
@@ -625,6 +624,14 @@ static float roll_allowance(const engraver5_ik_f32_solution *solution)
             m = solution->conditioning[k];
         }
     }
+    return m;
+}
+
+/* The roll gap a solution may have: ROLL_TOLERANCE, widened like 1/m near a singular set (m its
+ * smallest conditioning measure, at least ROLL_FLOOR), as the Python solver's _roll_allowance. */
+static float roll_allowance(const engraver5_ik_f32_solution *solution)
+{
+    const float m = smallest_measure(solution);
     return ENGRAVER5_IK_F32_ROLL_TOLERANCE + ENGRAVER5_IK_F32_ROLL_GAIN / (m > ENGRAVER5_IK_F32_ROLL_FLOOR ? m : ENGRAVER5_IK_F32_ROLL_FLOOR);
 }
 
@@ -647,12 +654,7 @@ static int turn_to_roll(engraver5_ik_f32_solution *solution, const float pose[16
     const float y0 = pose[0], y1 = pose[4 + 0], y2 = pose[8 + 0];
     const float turn = engraver5_ik_f32_atan2((x1 * y2 - x2 * y1) * a[0] + (x2 * y0 - x0 * y2) * a[4] + (x0 * y1 - x1 * y0) * a[8],
                                   x0 * y0 + x1 * y1 + x2 * y2);
-    float m = 1.0f;
-    for (int k = 0; k < ENGRAVER5_IK_F32_CONDITIONS; ++k) {
-        if (k == 0 || solution->conditioning[k] < m) {
-            m = solution->conditioning[k];
-        }
-    }
+    const float m = smallest_measure(solution);
     float bound = 1e-09f + (m >= 1e-06f ? 1e-14f / m : 10.0f * (m > 1e-08f ? m : 1e-08f));
     bound = bound > 0.0001f ? bound : 0.0001f;   /* the scalar type's own floor */
     const float allowance = roll_allowance(solution);
