@@ -314,7 +314,7 @@ def measure(tools, solver, arm_path: Path, poses: int, seed: int) -> list[dict]:
         double = firmware.FloatSolver(stem=solver.stem, folder=solver.folder, prefix=solver.prefix[: -len("_f32")])
         poses_double = work / "poses_double.c"
         write_poses(arm_path, poses, seed, poses_double, real="double")
-        counts, _ = emulated_figures(tools, double, (), poses_double, work, defines=("IK_REAL=double",))
+        counts, _ = emulated_figures(tools, double, (), poses_double, work, defines=("BENCH_SCALAR=double",))
         rows[0]["double"] = counts
     return rows
 

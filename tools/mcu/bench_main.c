@@ -1,7 +1,7 @@
 /* Measures the solver on the emulated core; run under QEMU with -icount shift=0, where the virtual
  * clock advances 1 ns per executed instruction, so SysTick (clocked from the core's clock) counts
  * instructions at its resolution. Build with -DIK_HEADER='"<prefix>.h"', -DIK_PREFIX=<prefix>,
- * -DIK_UPPER=<PREFIX> and a poses.c that defines bench_poses and bench_pose_count; -DIK_REAL=double
+ * -DIK_UPPER=<PREFIX> and a poses.c that defines bench_poses and bench_pose_count; -DBENCH_SCALAR=double
  * for a double build (its poses.c then holds doubles), float by default.
  *
  * Prints, one per line (bench_mcu.py reads them):
@@ -16,8 +16,8 @@
 #include IK_HEADER
 #include "semihost.h"
 
-#ifndef IK_REAL
-#define IK_REAL float
+#ifndef BENCH_SCALAR
+#define BENCH_SCALAR float
 #endif
 
 #define IK_CAT_(a, b) a##b
@@ -37,7 +37,7 @@ typedef IK_NAME(_solution) solution;
 typedef IK_NAME(_status) status_code;
 typedef IK_NAME(_limits) limits_mode;
 
-extern const IK_REAL bench_poses[][16];
+extern const BENCH_SCALAR bench_poses[][16];
 extern const int bench_pose_count;
 
 static solution solutions[IK_MACRO(_MAX_SOLUTIONS)];
@@ -64,17 +64,17 @@ __attribute__((noinline)) static void known_loop(uint32_t n)
 }
 
 /* The solver's signature and nothing else: the cost of the timing loop and of the call itself. */
-__attribute__((noinline)) static int empty_solver(const IK_REAL pose[16], const IK_REAL *current, limits_mode limits,
-                                                  solution *out, status_code *status)
+__attribute__((noinline)) static int empty_solver(const BENCH_SCALAR pose[16], const BENCH_SCALAR *current,
+                                                  limits_mode limits, solution *out, status_code *status)
 {
     __asm__ volatile("" : : "r"(pose), "r"(current), "r"(limits), "r"(out), "r"(status) : "memory");
     return 0;
 }
 
-typedef int (*solver_function)(const IK_REAL pose[16], const IK_REAL *current, limits_mode limits, solution *out,
-                               status_code *status);
+typedef int (*solver_function)(const BENCH_SCALAR pose[16], const BENCH_SCALAR *current, limits_mode limits,
+                               solution *out, status_code *status);
 
-__attribute__((noinline)) static uint32_t timed(solver_function solve, const IK_REAL *pose, int *count)
+__attribute__((noinline)) static uint32_t timed(solver_function solve, const BENCH_SCALAR *pose, int *count)
 {
     status_code status;
     const uint32_t start = SYST_CVR;
